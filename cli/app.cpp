@@ -1,0 +1,77 @@
+#include "cli/app.hpp"
+
+#include <algorithm>
+#include <iostream>
+#include <sstream>
+
+#include <CLI/CLI.hpp>
+
+#include "dsp/error.hpp"
+
+namespace pinchoff::cli {
+
+int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
+  CLI::App app{
+      "pinchoff: a workbench for JFET audio gain stages (pedal, preamp and microphone\n"
+      "impedance-converter builders). Describe a stage in a TOML file, then ask where it\n"
+      "biases, what gain and headroom it has, and which resistor hits the bias you want.",
+      "pinchoff"};
+  app.set_version_flag("--version", std::string("pinchoff ") + PINCHOFF_VERSION);
+  app.require_subcommand(1);
+  app.footer(
+      "Examples:\n"
+      "  pinchoff bias presets/bass-booster-9v.toml\n"
+      "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5\n"
+      "Run 'pinchoff COMMAND --help' for each command's options.");
+
+  std::vector<command> commands;
+  register_bias(app, commands);
+  register_tune(app, commands);
+
+  std::vector<std::string> reversed(args.rbegin(), args.rend());
+  try {
+    app.parse(reversed);
+  } catch (const CLI::CallForHelp&) {
+    const CLI::App* target = &app;
+    for (const command& c : commands)
+      if (c.sub->parsed()) target = c.sub;
+    out << target->help();
+    return 0;
+  } catch (const CLI::CallForAllHelp&) {
+    out << app.help("", CLI::AppFormatMode::All);
+    return 0;
+  } catch (const CLI::CallForVersion&) {
+    out << std::string("pinchoff ") + PINCHOFF_VERSION << '\n';
+    return 0;
+  } catch (const CLI::ParseError& e) {
+    err << "pinchoff: " << e.what() << '\n';
+    std::string which = "pinchoff";
+    for (const command& c : commands)
+      if (c.sub->parsed()) which = "pinchoff " + c.sub->get_name();
+    err << "Run '" << which << " --help' for usage.\n";
+    return 2;
+  }
+
+  for (const command& c : commands) {
+    if (!c.sub->parsed()) continue;
+    std::ostringstream report;
+    try {
+      c.run(report, err);
+    } catch (const input_error& e) {
+      err << "pinchoff " << c.sub->get_name() << ": " << e.what() << '\n';
+      return 2;
+    } catch (const internal_error& e) {
+      err << "pinchoff " << c.sub->get_name() << ": internal failure: " << e.what() << '\n';
+      return 1;
+    } catch (const std::exception& e) {
+      err << "pinchoff " << c.sub->get_name() << ": internal failure: " << e.what() << '\n';
+      return 1;
+    }
+    out << report.str();
+    out.flush();
+    return 0;
+  }
+  return 2;
+}
+
+}  // namespace pinchoff::cli

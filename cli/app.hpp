@@ -1,0 +1,31 @@
+#pragma once
+// The command-line application. `run` is what main() calls and what the tests call
+// in-process with an argv vector (without the program name).
+#include <functional>
+#include <iosfwd>
+#include <string>
+#include <vector>
+
+namespace CLI {
+class App;
+}
+
+namespace pinchoff::cli {
+
+/// One subcommand: set up by its register function, run after a successful parse.
+/// `run` writes the report to `out`; the caller prints it only when run succeeded, so a
+/// failed command writes nothing to stdout. Warnings and progress go to `err`.
+struct command {
+  CLI::App* sub{nullptr};
+  std::function<void(std::ostream& out, std::ostream& err)> run;
+};
+
+/// Parses `args` (no program name) and runs the chosen command. Returns the exit status:
+/// 0 success, 1 internal failure, 2 bad input or usage.
+int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+
+// One register function per command file (cli/cmd_*.cpp).
+void register_bias(CLI::App& app, std::vector<command>& commands);
+void register_tune(CLI::App& app, std::vector<command>& commands);
+
+}  // namespace pinchoff::cli

@@ -1,0 +1,30 @@
+#pragma once
+// The project's error hierarchy. Every layer throws these; only cli/main.cpp catches them
+// and turns them into exit codes (0 success, 1 internal failure, 2 bad input or usage,
+// 130 interrupted).
+#include <stdexcept>
+#include <string>
+
+namespace pinchoff {
+
+/// Something the user gave is wrong: a file, a value, an option. Exit status 2.
+/// The message names the thing, where it is, and what was expected.
+class input_error : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+/// A file could not be opened, read or written. Exit status 2.
+class io_error : public input_error {
+ public:
+  using input_error::input_error;
+};
+
+/// The tool failed on valid input (a solver that did not converge where it should).
+/// Exit status 1.
+class internal_error : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+}  // namespace pinchoff
