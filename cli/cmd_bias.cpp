@@ -1,13 +1,193 @@
+// pinchoff bias: operating point, small-signal figures, headroom, corners and warnings.
+#include <cmath>
+#include <memory>
+#include <numbers>
+#include <optional>
+
 #include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
 
 #include "cli/app.hpp"
-#include "dsp/error.hpp"
+#include "cli/common.hpp"
+#include "cli/text_table.hpp"
+#include "dsp/units.hpp"
+#include "model/headroom.hpp"
+#include "model/network.hpp"
+#include "model/small_signal.hpp"
+#include "model/warnings.hpp"
 
 namespace pinchoff::cli {
+namespace {
+
+using dsp::format_si;
+using dsp::format_number;
+using align = text_table::align;
+
+struct bias_options {
+  stage_input input;
+  std::string at_text;
+  bool json{false};
+};
+
+struct bias_report {
+  model::stage st;
+  model::network net;
+  model::operating_point op;
+  model::small_signal_figures ss;
+  model::headroom_figures head;
+  std::vector<std::string> warnings;
+  std::optional<double> at_hz;
+};
+
+std::string db_text(double gain) { return format_number(dsp::db_from_ratio(std::fabs(gain)), 3) + " dB"; }
+
+void write_text(const bias_report& r, const std::string& path, std::ostream& out) {
+  const model::terminal_point& t = r.op.at;
+  out << r.st.name << "\n  " << topology_name(r.st.topo) << ", " << (r.st.pol == model::polarity::p ? "p" : "n")
+      << "-channel, supply " << format_si(r.st.supply.volts_v, "V") << "  (" << path << ")\n\n";
+
+  out << "Operating point\n";
+  text_table op({align::left, align::right, align::left, align::left, align::right});
+  op.add({"VG", format_si(t.vg_v, "V", 4), "", "ID", format_si(t.id_a, "A", 4)});
+  op.add({"VS", format_si(t.vs_v, "V", 4), "", "PD", format_si(std::fabs(t.id_a * t.vds_v), "W")});
+  op.add({"VD", format_si(t.vd_v, "V", 4), "", "region", model::region_name(t.region)});
+  op.add({"VGS", format_si(t.vgs_v, "V", 4), "", "supply draws", format_si(model::supply_current_a(r.net, r.op), "A")});
+  op.add({"VDS", format_si(t.vds_v, "V", 4), "", "", ""});
+  op.write(out);
+
+  out << "\nSmall signal (mid-band: coupling and bypass capacitors shorted)\n";
+  text_table ss({align::left, align::right, align::left});
+  ss.add({"gm", format_si(r.ss.gm_s, "S"), ""});
+  ss.add({"gds", format_si(r.ss.gds_s, "S"),
+          std::isfinite(r.ss.rds_ohm) ? "rds " + format_si(r.ss.rds_ohm, "Ω") : "rds infinite (lambda = 0)"});
+  ss.add({"gain", format_number(r.ss.gain_midband, 4) + " V/V",
+          db_text(r.ss.gain_midband) + (r.ss.gain_midband < 0 ? ", inverting" : "") + "; ignoring gds " +
+              format_number(r.ss.gain_midband_no_gds, 4) + " V/V (" + db_text(r.ss.gain_midband_no_gds) + ")"});
+  ss.add({"input impedance", format_si(r.ss.zin_ohm, "Ω"), "after the generator's own impedance"});
+  ss.add({"output impedance", format_si(r.ss.zout_ohm, "Ω"), "looking back from the load"});
+  ss.write(out);
+
+  out << "\nHeadroom (mid-band, capacitors holding their rest voltages)\n";
+  text_table hr({align::left, align::right, align::left, align::left});
+  auto limit_row = [&](const char* name, const model::swing_limit& l) {
+    hr.add({name, format_si(l.output_v, "V"), "at drive " + format_si(l.drive_v, "V"),
+            std::string("limit: ") + model::swing_limit_text(l.kind)});
+  };
+  limit_row("output up", r.head.up);
+  limit_row("output down", r.head.down);
+  hr.write(out);
+  out << "  clean symmetric swing " << format_si(r.head.symmetric_output_vpk, "V") << " peak ("
+      << format_number(dsp::dbu_from_vpk(r.head.symmetric_output_vpk), 3) << " dBu) at the load, for drive up to "
+      << format_si(r.head.clean_drive_vpk, "V") << " peak ("
+      << format_number(dsp::dbu_from_vpk(r.head.clean_drive_vpk), 3) << " dBu)\n";
+
+  if (!r.ss.corners.empty()) {
+    out << "\nLow-frequency corners (each capacitor alone, the others shorted)\n";
+    text_table ct({align::left, align::right, align::left, align::right});
+    for (const model::cap_corner& c : r.ss.corners)
+      ct.add({c.key, format_si(c.farad, "F"), "sees " + format_si(c.r_seen_ohm, "Ω"), format_si(c.corner_hz, "Hz")});
+    ct.write(out);
+    out << "  lower -3 dB point, estimate (sum of corners): " << format_si(r.ss.low_corner_estimate_hz, "Hz") << '\n';
+  }
+
+  if (r.at_hz) {
+    out << "\nCapacitors at " << format_si(*r.at_hz, "Hz") << '\n';
+    text_table xt({align::left, align::right, align::left, align::right, align::left});
+    for (const model::cap_corner& c : r.ss.corners) {
+      const double xc = 1.0 / (2.0 * std::numbers::pi * *r.at_hz * c.farad);
+      const double loss = model::highpass_loss_db(*r.at_hz, c.corner_hz);
+      xt.add({c.key, "Xc " + format_si(xc, "Ω"), "vs " + format_si(c.r_seen_ohm, "Ω"), format_number(loss, 2) + " dB",
+              xc < 0.1 * c.r_seen_ohm ? "a short here" : (xc < c.r_seen_ohm ? "partly a short" : "not a short: it cuts here")});
+    }
+    xt.write(out);
+  }
+
+  out << "\nWarnings\n";
+  if (r.warnings.empty()) out << "  none\n";
+  for (const std::string& w : r.warnings) out << "  ! " << w << '\n';
+}
+
+nlohmann::json corner_json(const model::cap_corner& c) {
+  return {{"key", c.key}, {"capacitance_f", c.farad}, {"r_seen_ohm", c.r_seen_ohm}, {"corner_hz", c.corner_hz}};
+}
+
+nlohmann::json limit_json(const model::swing_limit& l) {
+  return {{"output_v", l.output_v}, {"drive_v", l.drive_v}, {"limit", model::swing_limit_text(l.kind)}};
+}
+
+void write_json(const bias_report& r, std::ostream& out) {
+  nlohmann::json j;
+  j["stage"] = {{"name", r.st.name},
+                {"topology", topology_name(r.st.topo)},
+                {"polarity", r.st.pol == model::polarity::p ? "p" : "n"},
+                {"supply_v", r.st.supply.volts_v}};
+  j["operating_point"] = operating_point_json(r.op.at);
+  j["operating_point"]["pd_w"] = std::fabs(r.op.at.id_a * r.op.at.vds_v);
+  j["operating_point"]["supply_current_a"] = model::supply_current_a(r.net, r.op);
+  j["small_signal"] = {{"gm_s", r.ss.gm_s},
+                       {"gds_s", r.ss.gds_s},
+                       {"rds_ohm", number_or_null(r.ss.rds_ohm)},
+                       {"gain_midband_db", dsp::db_from_ratio(std::fabs(r.ss.gain_midband))},
+                       {"gain_midband_v_per_v", r.ss.gain_midband},
+                       {"gain_midband_no_gds_db", dsp::db_from_ratio(std::fabs(r.ss.gain_midband_no_gds))},
+                       {"gain_midband_no_gds_v_per_v", r.ss.gain_midband_no_gds},
+                       {"zin_ohm", r.ss.zin_ohm},
+                       {"zout_ohm", r.ss.zout_ohm}};
+  j["headroom"] = {{"up", limit_json(r.head.up)},
+                   {"down", limit_json(r.head.down)},
+                   {"symmetric_output_vpk", r.head.symmetric_output_vpk},
+                   {"clean_drive_vpk", r.head.clean_drive_vpk}};
+  nlohmann::json corners = nlohmann::json::array();
+  for (const auto& c : r.ss.corners) corners.push_back(corner_json(c));
+  j["corners"] = corners;
+  j["low_corner_estimate_hz"] = r.ss.low_corner_estimate_hz;
+  if (r.at_hz) {
+    nlohmann::json xs = nlohmann::json::array();
+    for (const auto& c : r.ss.corners)
+      xs.push_back({{"key", c.key},
+                    {"frequency_hz", *r.at_hz},
+                    {"xc_ohm", 1.0 / (2.0 * std::numbers::pi * *r.at_hz * c.farad)},
+                    {"r_seen_ohm", c.r_seen_ohm},
+                    {"loss_db", model::highpass_loss_db(*r.at_hz, c.corner_hz)}});
+    j["reactances"] = xs;
+  }
+  j["warnings"] = r.warnings;
+  out << j.dump(2) << '\n';
+}
+
+}  // namespace
 
 void register_bias(CLI::App& app, std::vector<command>& commands) {
-  CLI::App* sub = app.add_subcommand("bias", "(being written)");
-  commands.push_back({sub, [](std::ostream&, std::ostream&) { throw internal_error("not written yet"); }});
+  auto opt = std::make_shared<bias_options>();
+  CLI::App* sub = app.add_subcommand("bias", "Operating point, gain, impedances, headroom and corners of a stage");
+  add_stage_input(*sub, opt->input);
+  sub->add_option("--at", opt->at_text, "Also show each capacitor's reactance and loss at this frequency, e.g. 1k or 40")
+      ->type_name("FREQ");
+  sub->add_flag("--json", opt->json, "Machine-readable output (keys carry their unit as a suffix)");
+  sub->footer(
+      "Examples:\n"
+      "  pinchoff bias presets/bass-booster-9v.toml\n"
+      "      where the stage biases, its mid-band gain, headroom and corners\n"
+      "  pinchoff bias presets/bass-booster-9v.toml --at 41\n"
+      "      is every capacitor a short at the low E of a bass (41 Hz)?\n"
+      "  pinchoff bias presets/clean-preamp-18v.toml --set drain.resistor=3.9k --set supply.volts=9\n"
+      "      try a change without editing the file\n"
+      "  pinchoff bias presets/phantom-mic-follower.toml --json\n"
+      "Headroom is found by sweeping the drive slowly with every coupling and bypass capacitor\n"
+      "holding its rest voltage: the clean region ends at the triode edge, at cutoff, or when the\n"
+      "gate rises to the source voltage.");
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
+                        bias_report r;
+                        if (!opt->at_text.empty()) r.at_hz = dsp::parse_frequency_hz(opt->at_text);
+                        r.st = load_stage(opt->input);
+                        r.net = model::build_network(r.st);
+                        r.op = model::solve_operating_point(r.net);
+                        r.ss = model::analyse_small_signal(r.net, r.op);
+                        r.head = model::analyse_headroom(r.net, r.op);
+                        r.warnings = model::operating_warnings(r.st, r.net, r.op);
+                        if (opt->json) write_json(r, out);
+                        else write_text(r, opt->input.path, out);
+                      }});
 }
 
 }  // namespace pinchoff::cli

@@ -38,24 +38,6 @@ void residual(const network& net, const mna_system& lin, const Eigen::VectorXd& 
   add(net.source, -c.id - c.igs);
 }
 
-void jacobian(const network& net, const mna_system& lin, const Eigen::VectorXd& x, Eigen::MatrixXd& j) {
-  j = lin.a;
-  const double vd = node_v(x, net.drain), vg = node_v(x, net.gate), vs = node_v(x, net.source);
-  const jfet_currents c = eval_jfet(net, vg - vs, vd - vs);
-  // Partial derivatives of each terminal current with respect to (vd, vg, vs).
-  const double did[3] = {c.gds, c.gm, -c.gm - c.gds};
-  const double digs[3] = {0.0, c.ggs, -c.ggs};
-  const double digd[3] = {-c.ggd, c.ggd, 0.0};
-  const int nodes[3] = {net.drain, net.gate, net.source};
-  for (int col = 0; col < 3; ++col) {
-    if (nodes[col] == 0) continue;
-    const int cj = row(nodes[col]);
-    if (net.drain != 0) j(row(net.drain), cj) += did[col] - digd[col];
-    if (net.gate != 0) j(row(net.gate), cj) += digs[col] + digd[col];
-    if (net.source != 0) j(row(net.source), cj) += -did[col] - digs[col];
-  }
-}
-
 }  // namespace
 
 std::vector<cap_treatment> uniform_caps(const network& net, cap_treatment::kind how) {
@@ -118,62 +100,90 @@ mna_system assemble_linear(const network& net, std::span<const cap_treatment> ca
 newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::VectorXd& x, const nodal_options& opt) {
   const int n = static_cast<int>(lin.a.rows());
   if (x.size() != n) x = Eigen::VectorXd::Zero(n);
-  Eigen::VectorXd f(n), scale(n), step(n), trial(n), f_trial(n), scale_trial(n);
   Eigen::MatrixXd jac(n, n);
+  Eigen::VectorXd rhs(n), x_new(n), f(n), scale(n);
   Eigen::PartialPivLU<Eigen::MatrixXd> lu(n);
   const double nvt = net.device.n * net.vt_v;
   const double vcrit = critical_voltage(net.device, net.vt_v);
 
-  auto norm_of = [&](const Eigen::VectorXd& r, const Eigen::VectorXd& s) {
-    double worst = 0.0;  // largest residual relative to its tolerance
-    for (int k = 0; k < lin.node_unknowns; ++k)
-      worst = std::max(worst, std::fabs(r[k]) / (opt.itol_a + opt.itol_rel * s[k]));
-    return worst;
-  };
+  // SPICE practice (Nagel 1975): the gate junctions are evaluated at their own limited
+  // voltages, which follow the node voltages by at most a logarithmic step once forward
+  // biased; each Newton step solves the network with the junctions replaced by their
+  // tangent (Norton) at those voltages. The first evaluation starts at most at vcrit.
+  auto vpair = [&](const Eigen::VectorXd& v, int p, int q) { return node_v(v, p) - node_v(v, q); };
+  double jgs = std::min(vpair(x, net.gate, net.source), vcrit);
+  double jgd = std::min(vpair(x, net.gate, net.drain), vcrit);
 
   newton_result res;
-  residual(net, lin, x, f, scale);
-  double fnorm = norm_of(f, scale);
   for (int it = 1; it <= opt.max_iterations; ++it) {
     res.iterations = it;
-    jacobian(net, lin, x, jac);
-    lu.compute(jac);
-    step = lu.solve(-f);
-    if (!step.allFinite()) break;
+    const double vd = node_v(x, net.drain), vg = node_v(x, net.gate), vs = node_v(x, net.source);
+    const channel_eval ch = drain_current(net.device, vg - vs, vd - vs);
+    const junction_eval js = junction_current(net.device, jgs, net.vt_v);
+    const junction_eval jd = junction_current(net.device, jgd, net.vt_v);
 
-    // Junction limiting on the two gate junctions scales the whole step.
-    double alpha = 1.0;
-    auto limit = [&](int p, int q) {
-      const double v_old = node_v(x, p) - node_v(x, q);
-      const double dv = node_v(step, p) - node_v(step, q);
-      if (dv == 0.0) return;
-      const double v_lim = limit_junction(v_old + dv, v_old, nvt, vcrit);
-      if (v_lim != v_old + dv) alpha = std::min(alpha, std::max(1e-3, (v_lim - v_old) / dv));
+    // Linear system for the next iterate: A x' + [i(x) + J (x' - x)] = rhs, with the
+    // junction currents linearised at their limited voltages.
+    jac = lin.a;
+    rhs = lin.rhs;
+    const int nodes[3] = {net.drain, net.gate, net.source};
+    const double did[3] = {ch.gds_s, ch.gm_s, -ch.gm_s - ch.gds_s};
+    const double digs[3] = {0.0, js.g_s, -js.g_s};
+    const double digd[3] = {-jd.g_s, jd.g_s, 0.0};
+    // Current of each element at the expansion point, minus its tangent times that point.
+    const double id0 = ch.id_a - (did[0] * vd + did[1] * vg + did[2] * vs);
+    const double igs0 = js.i_a - js.g_s * jgs;
+    const double igd0 = jd.i_a - jd.g_s * jgd;
+    auto add_rhs = [&](int node, double i) {
+      if (node != 0) rhs[row(node)] -= i;
     };
-    limit(net.gate, net.source);
-    limit(net.gate, net.drain);
+    add_rhs(net.drain, id0 - igd0);
+    add_rhs(net.gate, igs0 + igd0);
+    add_rhs(net.source, -id0 - igs0);
+    for (int col = 0; col < 3; ++col) {
+      if (nodes[col] == 0) continue;
+      const int cj = row(nodes[col]);
+      if (net.drain != 0) jac(row(net.drain), cj) += did[col] - digd[col];
+      if (net.gate != 0) jac(row(net.gate), cj) += digs[col] + digd[col];
+      if (net.source != 0) jac(row(net.source), cj) += -did[col] - digs[col];
+    }
+    lu.compute(jac);
+    x_new = lu.solve(rhs);
+    if (!x_new.allFinite()) break;
 
-    // Step halving until the residual falls (damped Newton).
-    double fnorm_trial = 0.0;
-    for (int h = 0; h < 12; ++h) {
-      trial = x + alpha * step;
-      residual(net, lin, trial, f_trial, scale_trial);
-      fnorm_trial = norm_of(f_trial, scale_trial);
-      if (fnorm_trial <= fnorm || fnorm_trial <= 1.0) break;
-      alpha *= 0.5;
+    // Channel step limiting (in the spirit of SPICE's fetlim): the square law is only
+    // trustworthy over about one pinch-off voltage, so a larger change of vgs in one
+    // step is scaled back along the Newton direction.
+    {
+      const double dvgs = (node_v(x_new, net.gate) - node_v(x_new, net.source)) - (vg - vs);
+      const double max_dvgs = std::max(std::fabs(net.device.vp_v), 0.5);
+      if (std::fabs(dvgs) > max_dvgs) x_new = x + (max_dvgs / std::fabs(dvgs)) * (x_new - x);
     }
     double worst_step = 0.0;
     for (int k = 0; k < lin.node_unknowns; ++k)
-      worst_step = std::max(worst_step, std::fabs(alpha * step[k]) / (opt.vtol_v + opt.vtol_rel * std::fabs(trial[k])));
-    x = trial;
-    f = f_trial;
-    scale = scale_trial;
-    fnorm = fnorm_trial;
-    if (alpha == 1.0 && worst_step <= 1.0 && fnorm <= 1.0) {
-      res.converged = true;
-      break;
+      worst_step = std::max(worst_step, std::fabs(x_new[k] - x[k]) / (opt.vtol_v + opt.vtol_rel * std::fabs(x_new[k])));
+    x = x_new;
+
+    const double ags = vpair(x, net.gate, net.source), agd = vpair(x, net.gate, net.drain);
+    const double lgs = limit_junction(ags, jgs, nvt, vcrit), lgd = limit_junction(agd, jgd, nvt, vcrit);
+    const bool limited = lgs != ags || lgd != agd;
+    const bool junctions_settled =
+        std::fabs(ags - jgs) <= opt.vtol_v + opt.vtol_rel * std::fabs(ags) + 1e-9 * nvt &&
+        std::fabs(agd - jgd) <= opt.vtol_v + opt.vtol_rel * std::fabs(agd) + 1e-9 * nvt;
+    jgs = lgs;
+    jgd = lgd;
+    if (!limited && junctions_settled && worst_step <= 1.0) {
+      residual(net, lin, x, f, scale);
+      double worst = 0.0;
+      for (int k = 0; k < lin.node_unknowns; ++k)
+        worst = std::max(worst, std::fabs(f[k]) / (opt.itol_a + opt.itol_rel * scale[k]));
+      if (worst <= 1.0) {
+        res.converged = true;
+        break;
+      }
     }
   }
+  residual(net, lin, x, f, scale);
   double worst_abs = 0.0;
   for (int k = 0; k < lin.node_unknowns; ++k) worst_abs = std::max(worst_abs, std::fabs(f[k]));
   res.residual_a = worst_abs;
