@@ -12,6 +12,11 @@ namespace {
 
 inline int row(int node) noexcept { return node - 1; }
 
+template <class V>
+double max_abs(const V& v) {
+  return v.size() ? v.cwiseAbs().maxCoeff() : 0.0;
+}
+
 // The stacked state update with compile-time sizes (unrolled, vectorised by Eigen).
 template <int NS>
 void update_fixed(const double* w, double* in, double* out, int) noexcept {
@@ -209,13 +214,13 @@ void dk_engine::init(const network& net, const operating_point& op) {
       if (!delta.allFinite()) break;
       qp += delta.head(ns);
       vp += delta.tail(2);
-      if (delta.cwiseAbs().maxCoeff() <= 1e-15 * (1.0 + qp.cwiseAbs().maxCoeff() + vp.cwiseAbs().maxCoeff())) {
+      if (max_abs(delta) <= 1e-15 * (1.0 + max_abs(qp) + max_abs(vp))) {
         ok = true;
         break;
       }
     }
     // Only rounding is to be removed: a larger move means the equations disagree.
-    if (ok && (qp - q).cwiseAbs().maxCoeff() <= 1e-6 && (vp - v).cwiseAbs().maxCoeff() <= 1e-6) {
+    if (ok && max_abs(Eigen::VectorXd(qp - q)) <= 1e-6 && max_abs(Eigen::Vector2d(vp - v)) <= 1e-6) {
       q = qp;
       v = vp;
     }
