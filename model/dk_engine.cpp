@@ -17,23 +17,49 @@ double max_abs(const V& v) {
   return v.size() ? v.cwiseAbs().maxCoeff() : 0.0;
 }
 
-// The stacked state update with compile-time sizes (unrolled, vectorised by Eigen).
+// The stacked state update W [x; u; i] in two parts, with compile-time sizes where the
+// state count allows: the x and u columns before the sample's Newton solve (independent
+// of it, so the processor overlaps the two), the three current columns after it (a short
+// chain to the next sample's p). Column-major, rows padded to even, so Eigen's
+// coefficient-based product runs in whole SIMD packets.
+constexpr int padded_rows(int ns) noexcept { return (ns + 3 + 1) & ~1; }
+
 template <int NS>
-void update_fixed(const double* w, double* in, double* out, int) noexcept {
-  using w_type = Eigen::Matrix<double, NS + 3, NS + 5, Eigen::RowMajor>;
+void update_before_fixed(const double* w, const double* in, double* pre, int) noexcept {
+  constexpr int rows = padded_rows(NS);
+  using w_type = Eigen::Matrix<double, rows, NS + 5>;
+  const Eigen::Map<const w_type> wm(w);
+  const Eigen::Map<const Eigen::Matrix<double, NS + 2, 1>> xu(in);
+  Eigen::Map<Eigen::Matrix<double, rows, 1>> o(pre);
+  // Coefficient-based: Eigen would otherwise call its general GEMV for these sizes.
+  o.noalias() = wm.template leftCols<NS + 2>().lazyProduct(xu);
+}
+
+template <int NS>
+void update_after_fixed(const double* w, double* in, const double* pre, double* out, int) noexcept {
+  constexpr int rows = padded_rows(NS);
+  using w_type = Eigen::Matrix<double, rows, NS + 5>;
   const Eigen::Map<const w_type> wm(w);
   Eigen::Map<Eigen::Matrix<double, NS + 5, 1>> x(in);
-  Eigen::Map<Eigen::Matrix<double, NS + 3, 1>> o(out);
-  o.noalias() = wm.lazyProduct(x);  // coefficient-based: Eigen would pick a GEMV call here
+  const Eigen::Map<const Eigen::Matrix<double, rows, 1>> b(pre);
+  Eigen::Map<Eigen::Matrix<double, rows, 1>> o(out);
+  o.noalias() = b + wm.template rightCols<3>().lazyProduct(x.template tail<3>());
   x.template head<NS>() += o.template head<NS>();
 }
 
-void update_dynamic(const double* w, double* in, double* out, int ns) noexcept {
-  using w_type = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
-  const Eigen::Map<const w_type> wm(w, ns + 3, ns + 5);
+void update_before_dynamic(const double* w, const double* in, double* pre, int ns) noexcept {
+  const Eigen::Map<const Eigen::MatrixXd> wm(w, padded_rows(ns), ns + 5);
+  const Eigen::Map<const Eigen::VectorXd> xu(in, ns + 2);
+  Eigen::Map<Eigen::VectorXd> o(pre, padded_rows(ns));
+  o.noalias() = wm.leftCols(ns + 2) * xu;
+}
+
+void update_after_dynamic(const double* w, double* in, const double* pre, double* out, int ns) noexcept {
+  const Eigen::Map<const Eigen::MatrixXd> wm(w, padded_rows(ns), ns + 5);
   Eigen::Map<Eigen::VectorXd> x(in, ns + 5);
-  Eigen::Map<Eigen::VectorXd> o(out, ns + 3);
-  o.noalias() = wm * x;
+  const Eigen::Map<const Eigen::VectorXd> b(pre, padded_rows(ns));
+  Eigen::Map<Eigen::VectorXd> o(out, padded_rows(ns));
+  o.noalias() = b + wm.rightCols(3) * x.tail(3);
   x.head(ns) += o.head(ns);
 }
 
@@ -165,23 +191,33 @@ void dk_engine::init(const network& net, const operating_point& op) {
   // The state rows hold the increment x_n - x_{n-1} = (A - I) x_{n-1} + B u + C i: near a
   // fixed point the terms of a slow mode are then small, and so is their rounding, which
   // that mode would otherwise integrate over tau/T samples (a drift of up to 1e-10 V).
-  w_.resize(ns + 3, ns + 5);
+  w_ = Eigen::MatrixXd::Zero(padded_rows(ns), ns + 5);
   w_.topRows(ns) << m_.a - Eigen::MatrixXd::Identity(ns, ns), m_.b, m_.c;
   w_.middleRows(ns, 2) << m_.d * m_.a, m_.d * m_.b, m_.d * m_.c;
-  w_.bottomRows(1) << m_.d_out, m_.e_out, m_.f_out;
+  w_.row(ns + 2) << m_.d_out, m_.e_out, m_.f_out;
   in_ = Eigen::VectorXd::Zero(ns + 5);
-  out_ = Eigen::VectorXd::Zero(ns + 3);
+  out_ = Eigen::VectorXd::Zero(padded_rows(ns));
+  pre_ = Eigen::VectorXd::Zero(padded_rows(ns));
   switch (ns) {
-    case 0: update_ = update_fixed<0>; break;
-    case 1: update_ = update_fixed<1>; break;
-    case 2: update_ = update_fixed<2>; break;
-    case 3: update_ = update_fixed<3>; break;
-    case 4: update_ = update_fixed<4>; break;
-    case 5: update_ = update_fixed<5>; break;
-    case 6: update_ = update_fixed<6>; break;
-    case 7: update_ = update_fixed<7>; break;
-    case 8: update_ = update_fixed<8>; break;
-    default: update_ = update_dynamic; break;
+#define PINCHOFF_DK_FIXED(k)               \
+  case k:                                  \
+    before_ = update_before_fixed<k>;      \
+    after_ = update_after_fixed<k>;        \
+    break;
+    PINCHOFF_DK_FIXED(0)
+    PINCHOFF_DK_FIXED(1)
+    PINCHOFF_DK_FIXED(2)
+    PINCHOFF_DK_FIXED(3)
+    PINCHOFF_DK_FIXED(4)
+    PINCHOFF_DK_FIXED(5)
+    PINCHOFF_DK_FIXED(6)
+    PINCHOFF_DK_FIXED(7)
+    PINCHOFF_DK_FIXED(8)
+#undef PINCHOFF_DK_FIXED
+    default:
+      before_ = update_before_dynamic;
+      after_ = update_after_dynamic;
+      break;
   }
   phi_.resize(ns, ns);
   tmp_.resize(ns, ns);
@@ -416,6 +452,8 @@ void dk_engine::substep(const Eigen::Vector2d& p, port_point& out, int& evals) n
 double dk_engine::process(double generator_v) noexcept {
   const int ns = m_.states;
   const double ug = sign_ * generator_v;
+  in_[ns + 1] = ug;
+  before_(w_.data(), in_.data(), pre_.data(), ns);
   const Eigen::Vector2d p = q_ + m_.e.col(0) * supply_v_ + m_.e.col(1) * ug;
 
   // Warm start: polynomial extrapolation of v, corrected to first order for the part of
@@ -438,9 +476,8 @@ double dk_engine::process(double generator_v) noexcept {
   last_ = pt;
   p_last_ = p;
 
-  in_[ns + 1] = ug;
   in_.tail<3>() = pt.i;
-  update_(w_.data(), in_.data(), out_.data(), ns);
+  after_(w_.data(), in_.data(), pre_.data(), out_.data(), ns);
   q_ = out_.segment<2>(ns);
 
   ++stats_.samples;

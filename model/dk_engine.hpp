@@ -130,8 +130,9 @@ class dk_engine {
     Eigen::Matrix<double, 3, 2> jf;  ///< di/dv
     Eigen::Matrix2d m;               ///< dv/dp = (I - F Jf)^-1
   };
-  // x += (rows 0..ns-1 of W) [x; u; i], q = (rows ns, ns+1) [...], y = row ns+2; in = [x; u; i].
-  using update_fn = void (*)(const double* w, double* in, double* out, int ns) noexcept;
+  // Kernels of the state update (see dk_engine.cpp); in = [x; u; i].
+  using before_fn = void (*)(const double* w, const double* in, double* pre, int ns) noexcept;
+  using after_fn = void (*)(const double* w, double* in, const double* pre, double* out, int ns) noexcept;
 
   void init(const network& net, const operating_point& op);
   bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
@@ -144,10 +145,12 @@ class dk_engine {
   double sign_{1.0};
   double supply_v_{0};              // network frame
   Eigen::Matrix<double, 2, 3> f_abs_;
-  // Stacked update: [x_n; D x_n; y_n] = W [x_{n-1}; u_n; i_n], rows ns + 3, cols ns + 5.
-  Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor> w_;
+  // Stacked update: [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n], ns + 3 rows, ns + 5 cols.
+  Eigen::MatrixXd w_;  // rows padded to even (a zero row when needed)
   Eigen::VectorXd in_, out_;        // [x; u; i] and the product
-  update_fn update_{nullptr};       // fixed-size kernel for ns <= 8, else the dynamic one
+  Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
+  before_fn before_{nullptr};       // fixed-size kernels for ns <= 8, else dynamic ones
+  after_fn after_{nullptr};
   Eigen::Vector2d q_{Eigen::Vector2d::Zero()};  // D x_{n-1}
   port_point last_;
   Eigen::Vector2d p_last_{Eigen::Vector2d::Zero()};
