@@ -215,16 +215,16 @@ std::string format_si(double value, std::string_view unit_symbol, int digits) {
   int e3 = static_cast<int>(std::floor(std::log10(std::fabs(value)) / 3.0));
   if (e3 < -5) e3 = -5;
   if (e3 > 4) e3 = 4;
-  double mant = value / std::pow(10.0, 3 * e3);
+  const double mant = value / std::pow(10.0, 3 * e3);
   // Rounding to `digits` may carry into the next prefix (999.7 -> 1000 -> 1.00 k).
   const int mag = static_cast<int>(std::floor(std::log10(std::fabs(mant))));
   const double scale = std::pow(10.0, digits - 1 - mag);
-  const double rounded = std::round(mant * scale) / scale;
+  double rounded = std::round(mant * scale) / scale;
   if (std::fabs(rounded) >= 1000.0 && e3 < 4) {
     ++e3;
-    mant = value / std::pow(10.0, 3 * e3);
+    rounded /= 1000.0;
   }
-  return format_number(mant, digits) + " " + prefixes[static_cast<std::size_t>(e3 + 5)] + std::string(unit_symbol);
+  return format_number(rounded, digits) + " " + prefixes[static_cast<std::size_t>(e3 + 5)] + std::string(unit_symbol);
 }
 
 }  // namespace pinchoff::dsp
