@@ -246,13 +246,13 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   else if (polarity_text != "n") rd.fail_at(polarity_where, "jfet.polarity", "jfet.polarity must be \"n\" or \"p\", not \"" + polarity_text + "\"");
   (void)polarity_given;
   const double sign = st.pol == polarity::p ? -1.0 : 1.0;
-  const char* chan = st.pol == polarity::p ? "p-channel" : "n-channel";
+  const char* chan = st.pol == polarity::p ? "a p-channel" : "an n-channel";
 
   if (!root.contains("supply") || !has("supply.volts")) rd.fail_file("[supply] needs volts (the supply voltage)");
   st.supply.volts_v = get("supply.volts");
   if (!(sign * st.supply.volts_v > 0))
     rd.fail_at(where["supply.volts"], "supply.volts",
-               std::string("supply.volts must be ") + (sign > 0 ? "positive" : "negative") + " for a " + chan +
+               std::string("supply.volts must be ") + (sign > 0 ? "positive" : "negative") + " for " + chan +
                    " stage" + (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
   st.supply.resistance_ohm = get("supply.resistance");
   st.supply.capacitance_f = get("supply.capacitance");
@@ -271,7 +271,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   const double vp = get(vkey);
   if (!(sign * vp < 0))
     rd.fail_at(where[vkey], vkey,
-               std::string(vkey) + " must be " + (sign > 0 ? "negative" : "positive") + " for a " + chan + " part" +
+               std::string(vkey) + " must be " + (sign > 0 ? "negative" : "positive") + " for " + chan + " part" +
                    (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
   st.jfet.vp_v = vp;
   st.jfet.idss_a = form_b ? get("jfet.beta") * vp * vp : get("jfet.idss");
