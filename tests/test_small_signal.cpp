@@ -1,5 +1,6 @@
 // Small-signal figures against closed forms of the gm model.
 #include <cmath>
+#include <complex>
 #include <numbers>
 
 #include <doctest/doctest.h>
@@ -132,4 +133,31 @@ TEST_CASE("high-pass loss of a first-order section") {
   // Closed form: |H| = (f/fc)/sqrt(1 + (f/fc)^2): -3.0103 dB at the corner.
   CHECK(highpass_loss_db(100.0, 100.0) == doctest::Approx(-3.0103).epsilon(1e-4));
   CHECK(highpass_loss_db(1000.0, 10.0) == doctest::Approx(-0.000434).epsilon(1e-2));
+}
+
+TEST_CASE("a capacitor's loss at a frequency is exact for coupling and bypass capacitors") {
+  // Closed forms, lambda = 0, the other capacitors shorted:
+  //  input coupling: single-pole high-pass with fc = 1/(2 pi C (Rsig + RG));
+  //  bypass: gain ~ gm RD' / (1 + gm Zs), Zs = RS / (1 + j w RS CS) (Sedra & Smith).
+  const std::string text = test::self_bias_text(
+      9.0, 4.5e-3, -1.6, 680.0, 3.3e3,
+      "bypass_cap = \"47u\"\n[signal]\nimpedance = \"10k\"\n[output]\ncoupling_cap = \"1u\"\nload = \"100k\"\n");
+  const solved r = solve(text);
+  const double gm = gm_closed(4.5e-3, -1.6, r.op.at.vgs_v);
+  for (double f : {2.0, 15.0, 41.0, 1000.0}) {
+    CAPTURE(f);
+    const std::vector<cap_reactance> xs = reactances_at(r.net, r.op, f);
+    REQUIRE(xs.size() == 3);
+    for (const cap_reactance& x : xs) {
+      CAPTURE(x.key);
+      CHECK(x.xc_ohm == doctest::Approx(1.0 / (two_pi * f * x.farad)).epsilon(1e-12));
+      if (x.key == "gate.coupling_cap")
+        CHECK(x.loss_db == doctest::Approx(highpass_loss_db(f, 1.0 / (two_pi * 100e-9 * 1.01e6))).epsilon(1e-9).scale(1e-9));
+      if (x.key == "source.bypass_cap") {
+        const std::complex<double> zs = 680.0 / (1.0 + std::complex<double>(0.0, two_pi * f * 680.0 * 47e-6));
+        const double shelf = std::abs(1.0 / (1.0 + gm * zs));
+        CHECK(x.loss_db == doctest::Approx(20.0 * std::log10(shelf)).epsilon(1e-9).scale(1e-9));
+      }
+    }
+  }
 }
