@@ -76,6 +76,13 @@ class reader {
   }
   [[noreturn]] void fail_file(const std::string& msg) const { throw input_error(std::string(source_) + ": " + msg); }
 
+  /// Points at a section's header when the section exists, else at the file.
+  [[noreturn]] void fail_section(const toml::table& root, std::string_view section, const std::string& msg) const {
+    if (const toml::node* n = root.get(section); n != nullptr && n->source().begin.line != 0)
+      fail_at(n->source(), std::string(section), msg);
+    fail_file(msg);
+  }
+
   double number(const toml::node& node, const std::string& key, const key_spec& spec) const {
     double v = 0.0;
     if (node.is_integer() || node.is_floating_point()) {
@@ -248,7 +255,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   const double sign = st.pol == polarity::p ? -1.0 : 1.0;
   const char* chan = st.pol == polarity::p ? "a p-channel" : "an n-channel";
 
-  if (!root.contains("supply") || !has("supply.volts")) rd.fail_file("[supply] needs volts (the supply voltage)");
+  if (!root.contains("supply") || !has("supply.volts")) rd.fail_section(root, "supply", "[supply] needs volts (the supply voltage)");
   st.supply.volts_v = get("supply.volts");
   if (!(sign * st.supply.volts_v > 0))
     rd.fail_at(where["supply.volts"], "supply.volts",
@@ -261,12 +268,12 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   const bool form_a = has("jfet.idss") || has("jfet.vp");
   const bool form_b = has("jfet.beta") || has("jfet.vto");
   if (!root.contains("jfet")) rd.fail_file("the stage file needs a [jfet] section with idss and vp");
-  if (form_a && form_b) rd.fail_file("[jfet]: give either idss and vp, or beta and vto, not both");
+  if (form_a && form_b) rd.fail_section(root, "jfet", "[jfet]: give either idss and vp, or beta and vto, not both");
   const char* vkey = form_b ? "jfet.vto" : "jfet.vp";
   if (form_b) {
-    if (!has("jfet.beta") || !has("jfet.vto")) rd.fail_file("[jfet] needs both beta and vto");
+    if (!has("jfet.beta") || !has("jfet.vto")) rd.fail_section(root, "jfet", "[jfet] needs both beta and vto");
   } else if (!has("jfet.idss") || !has("jfet.vp")) {
-    rd.fail_file("[jfet] needs idss and vp (or beta and vto)");
+    rd.fail_section(root, "jfet", "[jfet] needs idss and vp (or beta and vto)");
   }
   const double vp = get(vkey);
   if (!(sign * vp < 0))
