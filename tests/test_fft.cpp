@@ -78,7 +78,7 @@ TEST_CASE("real_fft matches a naive long-double DFT to eps*log2(n) for smooth an
   };
   const double eps = std::numeric_limits<double>::epsilon();
   for (const row& r : rows) {
-    INFO(r.source);
+    INFO(std::string(r.source));
     const std::vector<double> x = noise(r.n, 1000 + r.n);
     const real_fft fft(r.n);
     REQUIRE(fft.bins() == r.n / 2 + 1);
@@ -111,7 +111,7 @@ TEST_CASE("real_fft is unscaled: a sine of peak A on bin k reads A n / 2, DC rea
       {"closed form: sum of A sin over whole cycles, odd n", 999, 100, 1.0, -1.0},
   };
   for (const row& r : rows) {
-    INFO(r.source);
+    INFO(std::string(r.source));
     CAPTURE(r.n);
     std::vector<double> x(r.n);
     for (std::size_t t = 0; t < r.n; ++t)

@@ -70,7 +70,7 @@ TEST_CASE("coherent analysis reproduces known harmonic amplitudes, THD and the D
       {"closed form: absent line", 10, 0.0},
   };
   for (const row& rw : rows) {
-    INFO(rw.source);
+    INFO(std::string(rw.source));
     CAPTURE(rw.harmonic);
     const auto i = static_cast<std::size_t>(rw.harmonic - 2);
     CHECK(std::abs(r.harmonics_vpk[i] - rw.vpk) <= amplitude_tol_v);
@@ -115,7 +115,7 @@ TEST_CASE("band-limited square and triangle waves give the THD of their Fourier 
   CHECK(100.0 * tri_full == doctest::Approx(12.115).epsilon(1e-4));  // CHECKS.md, 5 digits
   const double fs = 384000.0;
   for (const row& r : rows) {
-    INFO(r.source);
+    INFO(std::string(r.source));
     const std::size_t n = static_cast<std::size_t>(fs / r.f0_hz);  // one cycle
     std::vector<line> lines;
     for (int h = 1; h <= r.top_harmonic; h += 2) {
@@ -158,7 +158,7 @@ TEST_CASE("non-harmonic lines show up in alias_dbc at their level; harmonics and
       {"closed form: H15 is a harmonic, not a spur", {{7.77, 1e-4, 0.2}, {15.0, 1e-2, 0.0}}, -80.0, -80.0},
   };
   for (const row& r : rows) {
-    INFO(r.source);
+    INFO(std::string(r.source));
     std::vector<line> lines = {{1, 0.5, 0.0}, {3, 0.5e-3, 0.0}};
     for (line l : r.extra) {
       l.amplitude_vpk *= 0.5;  // levels relative to the 0.5 V fundamental
@@ -188,7 +188,7 @@ TEST_CASE("harmonics beyond the bandwidth or at and above Nyquist are marked as 
       {"definition: 10 kHz fundamental, H2 outside 15 kHz band", 48000.0, 480, 100, 15000.0, 1},
   };
   for (const row& r : rows) {
-    INFO(r.source);
+    INFO(std::string(r.source));
     const auto x = synthesise(r.n, r.cycles, 0.0, {{1, 1.0, 0.0}, {2, 0.1, 0.0}, {3, 0.01, 0.0}});
     const harmonic_analysis a = analyse_coherent(x, r.fs_hz, r.cycles, {10, r.bandwidth_hz});
     CHECK(a.highest_harmonic == r.highest);

@@ -69,7 +69,7 @@ TEST_CASE("window figures agree with Harris 1978 Table 1 and Heinzel 2002") {
        0.0039, 0.00005},
   };
   for (const row& r : rows) {
-    INFO(r.source);
+    INFO(std::string(r.source));
     const std::vector<double> w = make_window(r.kind, 1024);  // large enough for the tables' limit
     const double cg = coherent_gain(w);
     CHECK(std::abs(cg - cosine_coefficients(r.kind)[0]) <= 1e-14);
