@@ -50,7 +50,8 @@ std::vector<double> make_window(window_kind kind, std::size_t n);
 
 double coherent_gain(std::span<const double> w);
 double enbw_bins(std::span<const double> w);
-/// The window's DTFT at `freq_bins` (bins of the n-point DFT), evaluated directly.
+/// The DTFT of any real sequence of n samples (a window, or a windowed record) at
+/// `freq_bins` (bins of the n-point DFT, any real value), evaluated directly in O(n).
 std::complex<double> window_dtft(std::span<const double> w, double freq_bins);
 double scallop_loss_db(std::span<const double> w);
 
