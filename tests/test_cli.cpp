@@ -1,4 +1,5 @@
 // The command line, run in-process with argv vectors (CLI11's own testing approach).
+#include <filesystem>
 #include <sstream>
 #include <string>
 #include <vector>
@@ -70,6 +71,20 @@ TEST_CASE("tune --json lists the exact value and standard candidates") {
   CHECK(j["exact"]["operating_point"]["vd_v"].get<double>() == doctest::Approx(4.5).epsilon(1e-9));
 }
 
+TEST_CASE("response --json follows the contract and --plot writes an SVG") {
+  // Contract: DESIGN.md, "Machine-readable output" for response.
+  const std::string svg = (std::filesystem::temp_directory_path() / "pinchoff_cli_response.svg").string();
+  const result r = run({"response", preset("clean-preamp-18v.toml"), "--json", "--points", "30", "--plot", svg});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["midband_gain_db"].is_number());
+  CHECK(j["corners_hz"].size() >= 2);
+  REQUIRE(j["points"].size() == 30);
+  for (const char* k : {"frequency_hz", "magnitude_db", "phase_deg"}) CHECK(j["points"][0].contains(k));
+  CHECK(std::filesystem::file_size(svg) > 1000);
+  std::filesystem::remove(svg);
+}
+
 TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
   const std::vector<std::vector<std::string>> cases{
       {"bias", preset("missing.toml")},
@@ -82,6 +97,8 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
       {"tune", preset("bass-booster-9v.toml")},
       {"frobnicate"},
       {"bias", preset("bass-booster-9v.toml"), "--no-such-option"},
+      {"response", preset("bass-booster-9v.toml"), "--from", "1k", "--to", "10"},
+      {"response", preset("bass-booster-9v.toml"), "--plot", "/nonexistent-folder/r.svg"},
   };
   for (const auto& args : cases) {
     CAPTURE(args.size() > 1 ? args[1] : args[0]);
@@ -94,7 +111,7 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
 }
 
 TEST_CASE("help teaches by example and exits 0") {
-  for (const char* cmd : {"bias", "tune"}) {
+  for (const char* cmd : {"bias", "tune", "response"}) {
     CAPTURE(cmd);
     const result r = run({cmd, "--help"});
     CHECK(r.status == 0);
