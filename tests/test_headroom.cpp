@@ -70,3 +70,19 @@ TEST_CASE("a p-channel stage swings as the mirror of its n-channel twin") {
   CHECK(hp.down.output_v == doctest::Approx(-hn.up.output_v).epsilon(1e-9));
   CHECK(hp.up.kind == hn.down.kind);
 }
+
+TEST_CASE("a reservoir capacitor across an ideal supply does not upset the analyses") {
+  // Regression (found by the random-stage test): with no supply resistance the reservoir
+  // capacitor sat in parallel with the ideal supply source. It changes nothing there, so
+  // results must equal those of the same stage without it.
+  const std::string base = test::self_bias_text(5.8, 0.235e-3, -0.715, 62.4, 241.0, "[signal]\nimpedance = \"13k\"\n");
+  std::string with_cap = base;
+  with_cap.replace(with_cap.find("volts = 5.8"), 11, "volts = 5.8\ncapacitance = \"470u\"");
+  const network a = build_network(test::stage_from(base));
+  const network b = build_network(test::stage_from(with_cap));
+  const headroom_figures ha = analyse_headroom(a, solve_operating_point(a));
+  const headroom_figures hb = analyse_headroom(b, solve_operating_point(b));
+  CHECK(hb.up.kind == ha.up.kind);
+  CHECK(hb.down.kind == ha.down.kind);
+  CHECK(hb.symmetric_output_vpk == doctest::Approx(ha.symmetric_output_vpk).epsilon(1e-12));
+}
