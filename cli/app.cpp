@@ -28,6 +28,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   register_bias(app, commands);
   register_tune(app, commands);
   register_response(app, commands);
+  register_fit(app, commands);
 
   if (!args.empty() && !args.front().empty() && args.front().front() != '-') {
     bool known = false;

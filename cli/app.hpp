@@ -28,5 +28,6 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
 void register_bias(CLI::App& app, std::vector<command>& commands);
 void register_tune(CLI::App& app, std::vector<command>& commands);
 void register_response(CLI::App& app, std::vector<command>& commands);
+void register_fit(CLI::App& app, std::vector<command>& commands);
 
 }  // namespace pinchoff::cli
