@@ -124,74 +124,95 @@ halfband_design design_halfband(double stopband_edge, double attenuation_db) {
   return best;
 }
 
-// Doubled delay lines: a sample is written at pos and pos + size, so the last `size`
-// samples are always the contiguous run line[pos .. pos + size - 1] (oldest first) after pos
-// is advanced.
+// Both processors keep a linear buffer: the history a window needs, then the current piece
+// of input. Outputs are accumulated tap by tap across the piece (the inner loop runs over
+// contiguous samples, which the compiler vectorises), then the history is moved to the front.
+// Each output's sum is formed in the same order whatever the piece boundaries, so results do
+// not depend on block sizes.
+
+namespace {
+constexpr std::size_t piece = 256;  // samples of the lower rate per pass
+}
 
 halfband_interpolator::halfband_interpolator(const halfband_design& design)
-    : taps_(design.side_taps), line_(4 * design.side_taps.size(), 0.0), half_(design.side_taps.size()) {
+    : taps_(design.side_taps),
+      line_(2 * design.side_taps.size() - 1 + piece, 0.0),
+      acc_(piece, 0.0),
+      half_(design.side_taps.size()) {
   for (double& t : taps_) t *= 2.0;
 }
 
-void halfband_interpolator::reset() noexcept {
-  std::fill(line_.begin(), line_.end(), 0.0);
-  pos_ = 0;
-}
+void halfband_interpolator::reset() noexcept { std::fill(line_.begin(), line_.end(), 0.0); }
 
 void halfband_interpolator::process(std::span<const double> in, std::span<double> out) noexcept {
   const std::size_t k = half_;
-  const std::size_t size = 2 * k;
-  const double* taps = taps_.data();
-  for (std::size_t n = 0; n < in.size(); ++n) {
-    line_[pos_] = in[n];
-    line_[pos_ + size] = in[n];
-    pos_ = (pos_ + 1 == size) ? 0 : pos_ + 1;
-    // w[j] = x[n - 2K + 1 + j]. With the causal filter h[t] = h(t - (2K-1)):
+  const std::size_t history = 2 * k - 1;
+  for (std::size_t start = 0; start < in.size(); start += piece) {
+    const std::size_t len = std::min(piece, in.size() - start);
+    std::copy_n(in.data() + start, len, line_.data() + history);
+    // Window of input n: w = line_ + n, w[j] = x[n - 2K + 1 + j]. With the causal filter
+    // h[t] = h(t - (2K-1)):
     //   y[2n]   = 2 sum_i g_i (x[n-K+1+i] + x[n-K-i]) = sum_i taps_i (w[K+i] + w[K-1-i])
     //   y[2n+1] = 2 h(0) x[n-K+1] = w[K]
-    const double* w = line_.data() + pos_;
-    double acc = 0.0;
-    for (std::size_t i = 0; i < k; ++i) acc += taps[i] * (w[k + i] + w[k - 1 - i]);
-    out[2 * n] = acc;
-    out[2 * n + 1] = w[k];
+    const double* w = line_.data();
+    double* acc = acc_.data();
+    std::fill_n(acc, len, 0.0);
+    for (std::size_t i = 0; i < k; ++i) {
+      const double t = taps_[i];
+      const double* a = w + k + i;
+      const double* b = w + k - 1 - i;
+      for (std::size_t n = 0; n < len; ++n) acc[n] += t * (a[n] + b[n]);
+    }
+    double* y = out.data() + 2 * start;
+    for (std::size_t n = 0; n < len; ++n) {
+      y[2 * n] = acc[n];
+      y[2 * n + 1] = w[n + k];
+    }
+    std::copy_n(line_.data() + len, history, line_.data());
   }
 }
 
 halfband_decimator::halfband_decimator(const halfband_design& design)
     : taps_(design.side_taps),
-      even_(4 * design.side_taps.size(), 0.0),
-      odd_(2 * (design.side_taps.size() + 1), 0.0),
+      even_(2 * design.side_taps.size() - 1 + piece, 0.0),
+      odd_(design.side_taps.size() + piece, 0.0),
+      acc_(piece, 0.0),
       half_(design.side_taps.size()) {}
 
 void halfband_decimator::reset() noexcept {
   std::fill(even_.begin(), even_.end(), 0.0);
   std::fill(odd_.begin(), odd_.end(), 0.0);
-  even_pos_ = 0;
-  odd_pos_ = 0;
 }
 
 void halfband_decimator::process(std::span<const double> in, std::span<double> out) noexcept {
   const std::size_t k = half_;
-  const std::size_t even_size = 2 * k;
-  const std::size_t odd_size = k + 1;
-  const double* taps = taps_.data();
-  for (std::size_t n = 0; n < out.size(); ++n) {
-    const double v_even = in[2 * n];
-    const double v_odd = in[2 * n + 1];
-    even_[even_pos_] = v_even;
-    even_[even_pos_ + even_size] = v_even;
-    even_pos_ = (even_pos_ + 1 == even_size) ? 0 : even_pos_ + 1;
-    odd_[odd_pos_] = v_odd;
-    odd_[odd_pos_ + odd_size] = v_odd;
-    odd_pos_ = (odd_pos_ + 1 == odd_size) ? 0 : odd_pos_ + 1;
-    // e[j] = v[2(n - 2K + 1 + j)], o[j] = v[2(n - K + j) + 1]. With h[t] = h(t - (2K-1)):
+  const std::size_t even_history = 2 * k - 1;
+  const std::size_t odd_history = k;
+  for (std::size_t start = 0; start < out.size(); start += piece) {
+    const std::size_t len = std::min(piece, out.size() - start);
+    const double* v = in.data() + 2 * start;
+    double* e = even_.data();
+    double* o = odd_.data();
+    for (std::size_t n = 0; n < len; ++n) {
+      e[even_history + n] = v[2 * n];
+      o[odd_history + n] = v[2 * n + 1];
+    }
+    // e + n is the window of output n: e[n + j] = v[2(n - 2K + 1 + j)]; o[n] = v[2(n - K) + 1].
+    // With h[t] = h(t - (2K-1)):
     //   y[n] = h(0) v[2n-2K+1] + sum_i g_i (v[2(n-K+1+i)] + v[2(n-K-i)])
-    //        = o[0] / 2 + sum_i g_i (e[K+i] + e[K-1-i])
-    const double* e = even_.data() + even_pos_;
-    const double* o = odd_.data() + odd_pos_;
-    double acc = 0.0;
-    for (std::size_t i = 0; i < k; ++i) acc += taps[i] * (e[k + i] + e[k - 1 - i]);
-    out[n] = 0.5 * o[0] + acc;
+    //        = o[n] / 2 + sum_i g_i (e[n+K+i] + e[n+K-1-i])
+    double* acc = acc_.data();
+    std::fill_n(acc, len, 0.0);
+    for (std::size_t i = 0; i < k; ++i) {
+      const double t = taps_[i];
+      const double* a = e + k + i;
+      const double* b = e + k - 1 - i;
+      for (std::size_t n = 0; n < len; ++n) acc[n] += t * (a[n] + b[n]);
+    }
+    double* y = out.data() + start;
+    for (std::size_t n = 0; n < len; ++n) y[n] = 0.5 * o[n] + acc[n];
+    std::copy_n(e + len, even_history, e);
+    std::copy_n(o + len, odd_history, o);
   }
 }
 

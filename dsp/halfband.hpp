@@ -75,9 +75,9 @@ class halfband_interpolator {
 
  private:
   std::vector<double> taps_;  // 2 g_i
-  std::vector<double> line_;  // last 2K inputs, stored twice so a window is contiguous
+  std::vector<double> line_;  // 2K-1 inputs of history, then the piece being processed
+  std::vector<double> acc_;   // even-phase sums of the piece
   std::size_t half_;          // K
-  std::size_t pos_{0};
 };
 
 /// Downsampling by two: the half-band followed by keeping the even-indexed samples. Output
@@ -93,11 +93,10 @@ class halfband_decimator {
 
  private:
   std::vector<double> taps_;  // g_i
-  std::vector<double> even_;  // last 2K even-indexed inputs, stored twice
-  std::vector<double> odd_;   // last K+1 odd-indexed inputs, stored twice
+  std::vector<double> even_;  // 2K-1 even-indexed inputs of history, then the piece
+  std::vector<double> odd_;   // K odd-indexed inputs of history, then the piece
+  std::vector<double> acc_;   // sums of the piece
   std::size_t half_;          // K
-  std::size_t even_pos_{0};
-  std::size_t odd_pos_{0};
 };
 
 }  // namespace pinchoff::dsp

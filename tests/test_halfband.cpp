@@ -118,7 +118,7 @@ TEST_CASE("the polyphase interpolator and decimator equal zero-stuffing and plai
   // order of additions: allow 1e-15 relative to the sum of |terms| (a few ulps).
   const halfband_design d = design_halfband(0.36, 110.0);
   const std::vector<double> h = full_taps(d);
-  std::vector<double> x(97);
+  std::vector<double> x(601);  // more than one internal piece (256)
   for (std::size_t n = 0; n < x.size(); ++n) x[n] = std::sin(0.37 * static_cast<double>(n * n % 101)) + 0.1;
 
   SUBCASE("interpolator") {

@@ -329,6 +329,7 @@ TEST_CASE("the documented latency is what an impulse and a sine's phase show") {
           const long double lag_dn = std::arg(high.amplitude(std::span(xh).subspan(warmup_base * f), k)) -
                                      std::arg(base.amplitude(std::span(y_dn).subspan(warmup_base), k));
           CHECK(std::abs(wrapped(lag_dn - w * os.downsample_latency_base_samples())) <= 1e-9);
+          CHECK(os.upsample_latency_base_samples() + os.downsample_latency_base_samples() == os.latency_base_samples());
         }
       }
     }
