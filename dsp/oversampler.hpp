@@ -11,8 +11,9 @@
 //
 // Design targets (base rate fb, audio band 0 .. 20 kHz):
 // - Passband 0 .. 20 kHz, flat within 0.01 dB for base rates 44.1 to 192 kHz. Above 20 kHz
-//   the response is not held flat: at base rates above 44.1 kHz, content between 20 kHz and
-//   fb/2 is partly removed by a round trip (the first stage's transition band starts there).
+//   the response is not held flat: content between 20 kHz and fb/2 lies in the first
+//   stage's transition band and is partly removed by a round trip (at 96 kHz and above,
+//   most of the band above 20 kHz).
 // - Images that upsampling leaves above fb/2 (which a following nonlinearity could fold
 //   back) and components that downsampling would alias into 0 .. 20 kHz rejected by at
 //   least 100 dB. A component within 20 kHz of a multiple of 2^(s-1) fb is what stage s
@@ -27,8 +28,11 @@
 // pair; each stage's measured stopband peak is -120.2 to -121.2 dB):
 //   44.1 kHz: 171, 31, 23, 23        48 kHz: 99, 31, 23, 23
 //   96 kHz:    31, 23, 23, 19       192 kHz: 23, 23, 19, 19
-// (Later stages stop shrinking at about 19-23 taps: with the window fixed by A = 120 dB, a
-// shorter Kaiser filter cannot reach that attenuation however wide its transition band.)
+// (Later stages stop shrinking at 19-23 taps: even with the widest transition band a
+// half-band allows, Kaiser's estimate asks for 17 taps at 120 dB.)
+// Measured (tests/test_oversampler.cpp, 44.1 and 48 kHz, every factor): passband within
+// 4.1e-5 dB up, down and round trip; images above fb/2 and in-band alias residue at most
+// -120.9 dB; round-trip residual of an in-band multi-tone at most -110.3 dB.
 //
 // Latency: stage s delays by (2K_s - 1)/2 samples of its low rate, (2K_s - 1)/2^s base
 // samples, in each direction. Those sums are fractions of a base sample. So that callers can
@@ -46,11 +50,12 @@
 //   192 kHz   round trip  0   11       17        19         20
 // Other rates: call the accessors; latency depends on the base rate because the filters do.
 //
-// Why not libsoxr: its latency depends on its quality recipe and phase setting and is not
-// an exact, documented figure here; it is a general rational resampler where only powers of
-// two are needed; it would be a further dependency; and the half-band cascade, whose every
-// tap is computed in this file's companion, is cheap (70 to 90 multiplies a base sample
-// each way at 8x) and testable stage by stage.
+// Why a half-band cascade rather than libsoxr: the latency here follows exactly from the
+// tap counts, so the round trip is a fixed, documented whole number of samples that a caller
+// compensates with an integer shift; only power-of-two factors are needed, which half-bands
+// serve at the lowest cost (every other tap is zero and the rest are symmetric); it adds no
+// dependency to the list in the design; and every stage can be designed and tested on its
+// own. The cost is small: 70 to 90 multiplies a base sample each way at 8x.
 //
 // Streaming: state is kept between calls; any block length (including 0 and 1); no
 // allocation after construction (work is done in chunks through two buffers sized in the
