@@ -32,5 +32,8 @@ printf '[supply]\nvolts = 9\n[jfet]\nidss = "5m"\nvp = -1\n[drain]\nresitor = 1\
 check "typo" 2 "$bin" bias "$tmp/typo.toml"
 grep -q "typo.toml:7:1: unknown key 'resitor' in \[drain\]; did you mean 'resistor'" "$tmp/err" || { echo "FAIL: typo message"; cat "$tmp/err"; fail=1; }
 check "version" 0 "$bin" --version
+printf 'rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,0.16m\n' > "$tmp/jig.csv"
+check "fit" 0 "$bin" fit "$tmp/jig.csv"
+grep -q '^\[jfet\]' "$tmp/out" || { echo "FAIL: fit printed no [jfet] block"; fail=1; }
 [ $fail -eq 0 ] && echo "end-to-end: all passed"
 exit $fail

@@ -1,5 +1,6 @@
 // The command line, run in-process with argv vectors (CLI11's own testing approach).
 #include <filesystem>
+#include <fstream>
 #include <sstream>
 #include <string>
 #include <vector>
@@ -85,6 +86,33 @@ TEST_CASE("response --json follows the contract and --plot writes an SVG") {
   std::filesystem::remove(svg);
 }
 
+TEST_CASE("fit --json follows the contract") {
+  // Contract: DESIGN.md, "Machine-readable output" for fit. Readings from Shockley's
+  // equation for IDSS 5 mA, VP -2 V (closed form): 5, 2.8125, 1.25, 0.3125 mA.
+  const auto path = std::filesystem::temp_directory_path() / "pinchoff_cli_fit.csv";
+  {
+    std::ofstream(path) << "vgs_v,id_a\n0,5m\n-0.5,2.8125m\n-1,1.25m\n-1.5,0.3125m\n";
+  }
+  const result r = run({"fit", path.string(), "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6));
+  CHECK(j["vp_v"].get<double>() == doctest::Approx(-2.0).epsilon(1e-6));
+  CHECK(j["std_errors"].contains("idss_a"));
+  CHECK(j["rows"].size() == 4);
+  {
+    std::ofstream(path) << "vgs_v,id_a\n0,5m\n-0.5,lots\n";
+  }
+  const result bad = run({"fit", path.string()});
+  CHECK(bad.status == 2);
+  CHECK(bad.err.find(":3:") != std::string::npos);
+  {
+    std::ofstream(path) << "vgs,id_a\n0,5m\n";
+  }
+  CHECK(run({"fit", path.string()}).status == 2);
+  std::filesystem::remove(path);
+}
+
 TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
   const std::vector<std::vector<std::string>> cases{
       {"bias", preset("missing.toml")},
@@ -111,7 +139,7 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
 }
 
 TEST_CASE("help teaches by example and exits 0") {
-  for (const char* cmd : {"bias", "tune", "response"}) {
+  for (const char* cmd : {"bias", "tune", "response", "fit"}) {
     CAPTURE(cmd);
     const result r = run({cmd, "--help"});
     CHECK(r.status == 0);
