@@ -382,6 +382,7 @@ sound_writer sound_writer::create(const fs::path& path, const write_settings& s)
   sound_writer w;
   w.target_ = path;
   w.settings_ = s;
+  w.dither_state_ = s.dither_seed;
   w.fd_ = create_temporary(path, w.temp_);
   SF_INFO si{};
   si.samplerate = static_cast<int>(s.rate_hz);
@@ -409,7 +410,8 @@ sound_writer::sound_writer(sound_writer&& o) noexcept
       settings_(std::move(o.settings_)),
       frames_(o.frames_),
       clipped_(o.clipped_),
-      codes_(std::move(o.codes_)) {}
+      codes_(std::move(o.codes_)),
+      dither_state_(o.dither_state_) {}
 
 sound_writer& sound_writer::operator=(sound_writer&& o) noexcept {
   if (this != &o) {
@@ -422,6 +424,7 @@ sound_writer& sound_writer::operator=(sound_writer&& o) noexcept {
     frames_ = o.frames_;
     clipped_ = o.clipped_;
     codes_ = std::move(o.codes_);
+    dither_state_ = o.dither_state_;
   }
   return *this;
 }
@@ -438,6 +441,16 @@ void sound_writer::discard() noexcept {
     fs::remove(temp_, ec);
     temp_.clear();
   }
+}
+
+// SplitMix64 (Steele, Lea & Flood, "Fast splittable pseudorandom number generators",
+// OOPSLA 2014): small, seedable with any value, and the same on every platform.
+double sound_writer::uniform() noexcept {
+  std::uint64_t z = (dither_state_ += 0x9E3779B97F4A7C15ull);
+  z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
+  z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
+  z ^= z >> 31;
+  return std::ldexp(static_cast<double>(z >> 11), -53) - 0.5;
 }
 
 void sound_writer::write(std::span<const double> x) {
@@ -460,7 +473,9 @@ void sound_writer::write(std::span<const double> x) {
     const double lo = -scale, hi = scale - 1.0;
     codes_.resize(x.size());
     for (std::size_t i = 0; i < x.size(); ++i) {
-      double q = std::nearbyint(x[i] * scale);
+      double v = x[i] * scale;
+      if (settings_.tpdf_dither) v += uniform() + uniform();
+      double q = std::nearbyint(v);
       if (q < lo || q > hi) {
         q = std::clamp(q, lo, hi);
         ++clipped_;

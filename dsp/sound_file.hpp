@@ -18,6 +18,11 @@
 // quantised here, not by libsndfile: code = round(x * 2^(bits-1)), clipped to
 // [-2^(bits-1), 2^(bits-1) - 1], so that reading back returns x within half a step
 // (1/65536 for 16-bit, 1/2^24 for 24-bit) when |x| < 1. Clipped samples are counted.
+// With `tpdf_dither` set, triangular dither of +-1 step (the sum of two independent uniform
+// values of +-1/2 step) is added before rounding: the error is then signal-independent
+// noise of power step^2/4 instead of distortion (Lipshitz, Wannamaker & Vanderkooy,
+// "Quantization and dither: a theoretical survey", JAES 40(5), 1992), at most 1.5 steps.
+// The dither sequence is deterministic (seeded), so the same call writes the same file.
 // Float files store the values exactly as float (rounding to 24 significant bits) and
 // are never clipped. A non-finite sample given to write() is a caller bug (internal_error).
 //
@@ -114,6 +119,8 @@ struct write_settings {
   double rate_hz{48000.0};                     ///< whole hertz, 1 .. 768000
   int channels{1};                             ///< 1 .. 64
   sample_format format{sample_format::wav24};
+  bool tpdf_dither{false};                     ///< integer formats only; see above
+  std::uint64_t dither_seed{1};
   bool overwrite{false};                       ///< replace an existing file
   std::vector<std::filesystem::path> inputs;   ///< files the output must never be
 };
@@ -153,6 +160,8 @@ class sound_writer {
   write_settings settings_;
   std::int64_t frames_{0}, clipped_{0};
   std::vector<int> codes_;  // scratch for integer encodings
+  std::uint64_t dither_state_{0};
+  double uniform() noexcept;  // [-1/2, 1/2), from dither_state_
 };
 
 }  // namespace pinchoff::dsp

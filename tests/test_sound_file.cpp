@@ -16,28 +16,16 @@
 
 #include "dsp/error.hpp"
 #include "dsp/sound_file.hpp"
+#include "support/scratch_dir.hpp"
 
 using namespace pinchoff::dsp;
 using pinchoff::input_error;
 using pinchoff::io_error;
+using pinchoff::testing::scratch_dir;
 namespace fs = std::filesystem;
 
 namespace {
 
-// A fresh empty folder for one test, removed with everything in it afterwards.
-struct scratch_dir {
-  fs::path path;
-  scratch_dir() {
-    std::random_device rd;
-    path = fs::temp_directory_path() / ("pinchoff-test-sound-" + std::to_string(rd()) + std::to_string(rd()));
-    fs::create_directories(path);
-  }
-  ~scratch_dir() {
-    std::error_code ec;
-    fs::remove_all(path, ec);
-  }
-  std::size_t entries() const { return static_cast<std::size_t>(std::distance(fs::directory_iterator(path), {})); }
-};
 
 // Stereo test material: a sine on the left, a ramp across almost all of full scale on the
 // right (both signs, the extremes included), so every code region and the channel order
@@ -360,4 +348,51 @@ TEST_CASE("format names and bad settings") {
   s.channels = 0;
   CHECK_THROWS_AS(sound_writer::create(dir.path / "a.wav", s), input_error);
   CHECK(dir.entries() == 0);
+}
+
+TEST_CASE("TPDF dither makes the rounding error signal-independent noise of power step^2/4") {
+  // Lipshitz, Wannamaker & Vanderkooy, JAES 40(5), 1992: with triangular dither of +-1
+  // step the total error has mean 0 and power step^2/4 whatever the input. Without dither a
+  // constant 0.3 step above a code rounds to an error of exactly -0.3 step. Sampling
+  // tolerance: 200000 samples give the mean to 0.5/sqrt(n) = 0.0011 step (1 sigma) and the
+  // power to about 0.3 % (1 sigma); the checks allow 5 sigma.
+  scratch_dir dir;
+  const std::size_t n = 200000;
+  const double step = 1.0 / 32768.0;
+  struct row {
+    const char* source;
+    double offset_steps, sine_steps;
+  };
+  const row rows[] = {{"LWV 1992, constant input", 0.3, 0.0}, {"LWV 1992, slow sine of 3 steps", 0.0, 3.0}};
+  for (const row& r : rows) {
+    INFO(std::string(r.source));
+    std::vector<double> x(n);
+    for (std::size_t t = 0; t < n; ++t)
+      x[t] = step * (100.0 + r.offset_steps + r.sine_steps * std::sin(2 * std::numbers::pi * static_cast<double>(t) / 4801.0));
+    for (bool dither : {false, true}) {
+      CAPTURE(dither);
+      write_settings s;
+      s.format = sample_format::wav16;
+      s.tpdf_dither = dither;
+      const fs::path p = dir.path / (std::string(dither ? "d" : "nd") + std::to_string(r.offset_steps) + ".wav");
+      write_file(p, s, x);
+      sound_reader rd = sound_reader::open(p);
+      const auto y = read_channel(rd, 0);
+      double mean = 0.0, power = 0.0, worst = 0.0;
+      for (std::size_t t = 0; t < n; ++t) {
+        const double e = (y[t] - x[t]) / step;
+        mean += e / static_cast<double>(n);
+        power += e * e / static_cast<double>(n);
+        worst = std::max(worst, std::abs(e));
+      }
+      if (dither) {
+        CHECK(std::abs(mean) <= 0.0055);
+        CHECK(power == doctest::Approx(0.25).epsilon(0.015));
+        CHECK(worst <= 1.5);
+      } else {
+        CHECK(worst <= 0.5);
+        if (r.sine_steps == 0.0) CHECK(mean == doctest::Approx(-0.3).epsilon(1e-9));
+      }
+    }
+  }
 }
