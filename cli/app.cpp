@@ -27,6 +27,8 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   std::vector<command> commands;
   register_bias(app, commands);
   register_tune(app, commands);
+  register_tone(app, commands);
+  register_measure(app, commands);
 
   if (!args.empty() && !args.front().empty() && args.front().front() != '-') {
     bool known = false;
