@@ -180,4 +180,79 @@ windowed_analysis analyse_windowed(std::span<const double> samples, double fs_hz
   return r;
 }
 
+sample_range steady_part(std::span<const double> x, double fs_hz) {
+  const std::size_t n = x.size();
+  const std::size_t block = std::max<std::size_t>(1, static_cast<std::size_t>(std::llround(0.01 * fs_hz)));
+  const std::size_t blocks = n / block;
+  if (blocks < 8) return {0, n};
+  std::vector<double> rms(blocks);
+  double loudest = 0.0;
+  for (std::size_t b = 0; b < blocks; ++b) {
+    double s = 0.0;
+    for (std::size_t t = b * block; t < (b + 1) * block; ++t) s += x[t] * x[t];
+    rms[b] = std::sqrt(s / static_cast<double>(block));
+    loudest = std::max(loudest, rms[b]);
+  }
+  const auto settled = [&](std::size_t b, std::size_t next) { return rms[b] >= 0.99 * rms[next] && rms[b] >= 0.01 * loudest; };
+  std::size_t first = 0;
+  while (first + 1 < blocks && !settled(first, first + 1)) ++first;
+  std::size_t last = blocks - 1;  // inclusive
+  while (last > first + 1 && !settled(last, last - 1)) --last;
+  ++first;  // the margins
+  if (last == 0 || last <= first + 1) return {0, n};
+  --last;
+  // Trailing samples past the last whole block belong to the ending: keep them only when
+  // the last block is itself steady, i.e. nothing was trimmed at the end.
+  const std::size_t end = last + 2 == blocks ? n : (last + 1) * block;
+  const std::size_t begin = first == 1 ? 0 : first * block;
+  return {begin, end};
+}
+
+std::size_t fast_analysis_length(std::size_t n) {
+  std::size_t best = 1;
+  for (std::size_t p2 = 1; p2 <= n; p2 *= 2)
+    for (std::size_t p3 = p2; p3 <= n; p3 *= 3)
+      for (std::size_t p5 = p3; p5 <= n; p5 *= 5) best = std::max(best, p5);
+  return best;
+}
+
+display_spectrum spectrum_for_display(std::span<const double> samples, double fs_hz, window_kind window, double low_hz,
+                                      double high_hz, std::size_t points) {
+  const std::size_t n = samples.size();
+  if (n < 64) throw input_error("a record of " + std::to_string(n) + " samples is too short to analyse (need 64 or more)");
+  if (!(fs_hz > 0.0) || !(low_hz > 0.0) || !(high_hz > low_hz) || points < 2)
+    throw input_error("the spectrum's frequency range is empty");
+  const std::vector<double> w = make_window(window, n);
+  double sw = 0.0, dc = 0.0;
+  for (std::size_t t = 0; t < n; ++t) {
+    sw += w[t];
+    dc += samples[t] * w[t];
+  }
+  dc /= sw;
+  std::vector<double> xw(n);
+  for (std::size_t t = 0; t < n; ++t) xw[t] = (samples[t] - dc) * w[t];
+  const std::vector<std::complex<double>> X = real_fft(n).forward(xw);
+  const double df = fs_hz / static_cast<double>(n);
+  const std::size_t k_lo = std::max<std::size_t>(1, static_cast<std::size_t>(std::ceil(low_hz / df)));
+  const std::size_t k_hi = std::min(X.size() - 1, static_cast<std::size_t>(std::floor(high_hz / df)));
+  display_spectrum out;
+  if (k_lo > k_hi) throw input_error("the spectrum's frequency range holds no bins");
+  const double log_lo = std::log(low_hz), step = (std::log(high_hz) - log_lo) / static_cast<double>(points);
+  std::size_t k = k_lo;
+  while (k <= k_hi) {
+    // The bucket holding bin k ends where the next log step begins (at least one bin on).
+    const double bucket = std::floor((std::log(static_cast<double>(k) * df) - log_lo) / step);
+    const double edge_hz = std::exp(log_lo + (bucket + 1.0) * step);
+    std::size_t best = k, j = k;
+    while (j <= k_hi && (j == k || static_cast<double>(j) * df < edge_hz)) {
+      if (std::abs(X[j]) > std::abs(X[best])) best = j;
+      ++j;
+    }
+    out.frequency_hz.push_back(static_cast<double>(best) * df);
+    out.amplitude_vpk.push_back(2.0 * std::abs(X[best]) / sw);
+    k = j;
+  }
+  return out;
+}
+
 }  // namespace pinchoff::dsp

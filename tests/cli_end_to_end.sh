@@ -31,6 +31,11 @@ check "missing file" 2 "$bin" bias "$tmp/none.toml"
 printf '[supply]\nvolts = 9\n[jfet]\nidss = "5m"\nvp = -1\n[drain]\nresitor = 1\n' > "$tmp/typo.toml"
 check "typo" 2 "$bin" bias "$tmp/typo.toml"
 grep -q "typo.toml:7:1: unknown key 'resitor' in \[drain\]; did you mean 'resistor'" "$tmp/err" || { echo "FAIL: typo message"; cat "$tmp/err"; fail=1; }
+check "tone" 0 "$bin" tone --freq 1k --level -10dBFS --seconds 2 "$tmp/tone.wav"
+check "measure --json" 0 "$bin" measure "$tmp/tone.wav" --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert abs(j["fundamental_dbfs"]+10)<0.01 and abs(j["fundamental_hz"]-1000)<0.01' "$tmp/out" || { echo "FAIL: measure of the tone file"; fail=1; }
+check "measure of a non-audio file" 2 "$bin" measure "$tmp/typo.toml"
+[ -s "$tmp/out" ] && { echo "FAIL: output written for a non-audio file"; fail=1; }
 check "version" 0 "$bin" --version
 printf 'rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,0.16m\n' > "$tmp/jig.csv"
 check "fit" 0 "$bin" fit "$tmp/jig.csv"
