@@ -27,7 +27,25 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   std::vector<command> commands;
   register_bias(app, commands);
   register_tune(app, commands);
+  register_response(app, commands);
+  register_fit(app, commands);
+  register_spread(app, commands);
+  register_tone(app, commands);
+  register_measure(app, commands);
 
+  if (!args.empty() && !args.front().empty() && args.front().front() != '-') {
+    bool known = false;
+    std::string names;
+    for (const command& c : commands) {
+      known = known || c.sub->get_name() == args.front();
+      names += (names.empty() ? "" : ", ") + c.sub->get_name();
+    }
+    if (!known) {
+      err << "pinchoff: unknown command '" << args.front() << "' (commands: " << names << ")\n"
+          << "Run 'pinchoff --help' for usage.\n";
+      return 2;
+    }
+  }
   std::vector<std::string> reversed(args.rbegin(), args.rend());
   try {
     app.parse(reversed);

@@ -27,5 +27,10 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
 // One register function per command file (cli/cmd_*.cpp).
 void register_bias(CLI::App& app, std::vector<command>& commands);
 void register_tune(CLI::App& app, std::vector<command>& commands);
+void register_response(CLI::App& app, std::vector<command>& commands);
+void register_fit(CLI::App& app, std::vector<command>& commands);
+void register_spread(CLI::App& app, std::vector<command>& commands);
+void register_tone(CLI::App& app, std::vector<command>& commands);
+void register_measure(CLI::App& app, std::vector<command>& commands);
 
 }  // namespace pinchoff::cli

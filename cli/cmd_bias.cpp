@@ -37,6 +37,7 @@ struct bias_report {
   model::headroom_figures head;
   std::vector<std::string> warnings;
   std::optional<double> at_hz;
+  std::vector<model::cap_reactance> reactances;
 };
 
 std::string db_text(double gain) { return format_number(dsp::db_from_ratio(std::fabs(gain)), 3) + " dB"; }
@@ -93,15 +94,18 @@ void write_text(const bias_report& r, const std::string& path, std::ostream& out
   if (r.at_hz) {
     out << "\nCapacitors at " << format_si(*r.at_hz, "Hz") << '\n';
     text_table xt({align::left, align::right, align::left, align::right, align::left});
-    for (const model::cap_corner& c : r.ss.corners) {
-      const double xc = 1.0 / (2.0 * std::numbers::pi * *r.at_hz * c.farad);
-      const double loss = model::highpass_loss_db(*r.at_hz, c.corner_hz);
-      xt.add({c.key, "Xc " + format_si(xc, "Ω"), "vs " + format_si(c.r_seen_ohm, "Ω"), format_number(loss, 2) + " dB",
-              xc < 0.1 * c.r_seen_ohm ? "a short here" : (xc < c.r_seen_ohm ? "partly a short" : "not a short: it cuts here")});
+    for (const model::cap_reactance& c : r.reactances) {
+      std::string verdict = "a short here";
+      if (c.loss_db < -1.0) verdict = "not a short: costs " + format_number(-c.loss_db, 2) + " dB here";
+      else if (c.loss_db < -0.1) verdict = "partly a short";
+      xt.add({c.key, "Xc " + format_si(c.xc_ohm, "Ω"), "vs " + format_si(c.r_seen_ohm, "Ω"),
+              format_number(c.loss_db, 2) + " dB", verdict});
     }
     xt.write(out);
   }
 
+  if (r.at_hz)
+    out << "  loss: drop of the mid-band gain from that capacitor alone (a bypass capacitor gives a shelf)\n";
   out << "\nWarnings\n";
   if (r.warnings.empty()) out << "  none\n";
   for (const std::string& w : r.warnings) out << "  ! " << w << '\n';
@@ -143,12 +147,12 @@ void write_json(const bias_report& r, std::ostream& out) {
   j["low_corner_estimate_hz"] = r.ss.low_corner_estimate_hz;
   if (r.at_hz) {
     nlohmann::json xs = nlohmann::json::array();
-    for (const auto& c : r.ss.corners)
+    for (const auto& c : r.reactances)
       xs.push_back({{"key", c.key},
                     {"frequency_hz", *r.at_hz},
-                    {"xc_ohm", 1.0 / (2.0 * std::numbers::pi * *r.at_hz * c.farad)},
+                    {"xc_ohm", c.xc_ohm},
                     {"r_seen_ohm", c.r_seen_ohm},
-                    {"loss_db", model::highpass_loss_db(*r.at_hz, c.corner_hz)}});
+                    {"loss_db", c.loss_db}});
     j["reactances"] = xs;
   }
   j["warnings"] = r.warnings;
@@ -185,6 +189,7 @@ void register_bias(CLI::App& app, std::vector<command>& commands) {
                         r.ss = model::analyse_small_signal(r.net, r.op);
                         r.head = model::analyse_headroom(r.net, r.op);
                         r.warnings = model::operating_warnings(r.st, r.net, r.op);
+                        if (r.at_hz) r.reactances = model::reactances_at(r.net, r.op, *r.at_hz);
                         if (opt->json) write_json(r, out);
                         else write_text(r, opt->input.path, out);
                       }});

@@ -1,13 +1,148 @@
+// pinchoff tune: the resistor value that puts the operating point on a target.
+#include <cmath>
+#include <memory>
+
 #include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
 
 #include "cli/app.hpp"
-#include "dsp/error.hpp"
+#include "cli/common.hpp"
+#include "cli/text_table.hpp"
+#include "dsp/eseries.hpp"
+#include "dsp/units.hpp"
+#include "model/spread.hpp"
+#include "model/tune.hpp"
 
 namespace pinchoff::cli {
+namespace {
+
+using dsp::format_si;
+using align = text_table::align;
+
+struct tune_options {
+  stage_input input;
+  std::string target_text;
+  std::string adjust{"source.resistor"};
+  std::string series{"E24"};
+  bool json{false};
+  bool over_spread{false};
+  spread_input batch;
+};
+
+nlohmann::json point_json(const model::tune_point& p) {
+  nlohmann::json op = operating_point_json(p.at);
+  return op;
+}
+
+void write_text(const model::stage& st, const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
+  out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << r.adjust << "\n\n";
+  text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right,
+                align::left});
+  t.add({"", r.adjust, "VD", "VS", "VDS", "ID", "swing", "region"});
+  auto row = [&](const std::string& label, const model::tune_point& p) {
+    t.add({label, format_si(p.value_ohm, "Ω", label == "exact" ? 4 : 3), format_si(p.at.vd_v, "V", 4),
+           format_si(p.at.vs_v, "V", 4), format_si(p.at.vds_v, "V", 4), format_si(p.at.id_a, "A", 4),
+           format_si(p.headroom.symmetric_output_vpk, "V"), model::region_name(p.at.region)});
+  };
+  row("exact", r.exact);
+  for (const model::tune_candidate& c : r.candidates) {
+    const char* side = c.point.value_ohm < r.exact_ohm ? "below" : (c.point.value_ohm > r.exact_ohm ? "above" : "match");
+    row(c.series + " " + side, c.point);
+  }
+  t.write(out);
+  out << "\n  swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
+}
+
+}  // namespace
 
 void register_tune(CLI::App& app, std::vector<command>& commands) {
-  CLI::App* sub = app.add_subcommand("tune", "(being written)");
-  commands.push_back({sub, [](std::ostream&, std::ostream&) { throw internal_error("not written yet"); }});
+  auto opt = std::make_shared<tune_options>();
+  CLI::App* sub = app.add_subcommand("tune", "Find the resistor value that puts the bias on a target");
+  add_stage_input(*sub, opt->input);
+  sub->add_option("--target", opt->target_text,
+                  "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, or center (largest symmetric clean swing)")
+      ->required()
+      ->type_name("TARGET");
+  std::string keys;
+  for (std::string_view k : model::adjustable_resistor_keys()) keys += (keys.empty() ? "" : ", ") + std::string(k);
+  sub->add_option("--adjust", opt->adjust, "The resistor to solve for: " + keys)
+      ->type_name("KEY")
+      ->capture_default_str();
+  sub->add_option("--series", opt->series, "Standard values to offer: E12, E24 or E96")->capture_default_str();
+  sub->add_flag("--json", opt->json, "Machine-readable output");
+  sub->add_flag("--over-spread", opt->over_spread,
+                "Size a fixed resistor plus trimmer that brings every part of a batch to the target (with the batch options)");
+  add_spread_options(*sub, opt->batch);
+  sub->footer(
+      "Examples:\n"
+      "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5\n"
+      "      the source resistor that puts the drain at 4.5 V, and the nearest E24 values\n"
+      "  pinchoff tune presets/clean-preamp-18v.toml --target center --adjust drain.resistor\n"
+      "      the drain resistor that gives the largest symmetric clean swing\n"
+      "  pinchoff tune presets/bass-booster-9v.toml --target id=1m --series E12\n"
+      "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5 --over-spread --idss 2m..8m --vp -0.8..-3\n"
+      "      the source resistance each part of a batch needs, and a fixed resistor plus trimmer\n"
+      "      (standard values 100 Ω to 1 MΩ in 1-2-5 steps) that covers them\n"
+      "Values are searched from 1 Ω to 100 MΩ; a target no value reaches is reported with the\n"
+      "range that can be reached. Voltages are to ground, in real signs (negative for a\n"
+      "p-channel stage on a negative supply).");
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
+                        const model::tune_target target = model::parse_target(opt->target_text);
+                        const dsp::eseries series = dsp::parse_series(opt->series);
+                        const model::stage st = load_stage(opt->input);
+                        if (opt->over_spread) {
+                          const model::spread_settings ss = spread_settings_from(opt->batch);
+                          const model::trim_result t = model::size_trimmer(st, opt->adjust, target, ss, series);
+                          if (opt->json) {
+                            nlohmann::json j;
+                            j["adjust"] = t.adjust;
+                            j["target"] = model::target_text(target);
+                            j["runs"] = ss.runs;
+                            j["reachable"] = t.reachable;
+                            j["range_ohm"] = {{"min", t.r_min}, {"p5", t.r_p5}, {"p95", t.r_p95}, {"max", t.r_max}};
+                            j["fixed_ohm"] = t.fixed_ohm;
+                            j["trimmer_ohm"] = t.trimmer_ohm;
+                            j["coverage"] = t.coverage;
+                            out << j.dump(2) << '\n';
+                            return;
+                          }
+                          out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << t.adjust
+                              << " over a batch\n  " << describe_spread(ss, st) << "\n\n";
+                          text_table tt({align::left, align::right});
+                          tt.add({"needed, smallest", format_si(t.r_min, "Ω", 4)});
+                          tt.add({"needed, 5 % of parts below", format_si(t.r_p5, "Ω", 4)});
+                          tt.add({"needed, 95 % of parts below", format_si(t.r_p95, "Ω", 4)});
+                          tt.add({"needed, largest", format_si(t.r_max, "Ω", 4)});
+                          tt.write(out);
+                          out << "\n  fit " << format_si(t.fixed_ohm, "Ω") << " (" << dsp::series_name(series) << ") in series with a "
+                              << format_si(t.trimmer_ohm, "Ω") << " trimmer: covers " << format_si(t.fixed_ohm, "Ω") << " to "
+                              << format_si(t.fixed_ohm + t.trimmer_ohm, "Ω") << ", " << dsp::format_number(100.0 * t.coverage, 3)
+                              << " % of the parts\n";
+                          if (t.reachable < ss.runs)
+                            out << "  " << (ss.runs - t.reachable) << " of " << ss.runs
+                                << " parts cannot reach the target with any value\n";
+                          return;
+                        }
+                        const model::tune_result r = model::tune_resistor(st, opt->adjust, target, series);
+                        if (!opt->json) {
+                          write_text(st, target, r, out);
+                          return;
+                        }
+                        nlohmann::json j;
+                        j["adjust"] = r.adjust;
+                        j["exact_ohm"] = r.exact_ohm;
+                        j["target"] = model::target_text(target);
+                        j["exact"] = {{"value_ohm", r.exact_ohm}, {"operating_point", point_json(r.exact)},
+                                      {"symmetric_output_vpk", r.exact.headroom.symmetric_output_vpk}};
+                        nlohmann::json cands = nlohmann::json::array();
+                        for (const auto& c : r.candidates)
+                          cands.push_back({{"series", c.series},
+                                           {"value_ohm", c.point.value_ohm},
+                                           {"operating_point", point_json(c.point)},
+                                           {"symmetric_output_vpk", c.point.headroom.symmetric_output_vpk}});
+                        j["candidates"] = cands;
+                        out << j.dump(2) << '\n';
+                      }});
 }
 
 }  // namespace pinchoff::cli

@@ -190,6 +190,39 @@ double parse_frequency_hz(std::string_view text) {
   return f;
 }
 
+value_range parse_range(std::string_view text, unit u, std::string_view what, bool any_order) {
+  const std::string prefix = what.empty() ? std::string() : std::string(what) + ": ";
+  const auto dots = text.find("..");
+  if (dots == std::string_view::npos) {
+    const double v = parse_value(text, u, what);
+    return {v, v};
+  }
+  const std::string_view a = text.substr(0, dots), b = text.substr(dots + 2);
+  if (trim(a).empty() || trim(b).empty())
+    throw input_error(prefix + "range '" + std::string(text) + "' needs both ends, for example 2m..8m");
+  double lo = parse_value(a, u, what), hi = parse_value(b, u, what);
+  if (lo > hi) {
+    if (!any_order)
+      throw input_error(prefix + "range '" + std::string(text) + "' has its minimum above its maximum (write LO..HI)");
+    std::swap(lo, hi);
+  }
+  return {lo, hi};
+}
+
+double parse_fraction(std::string_view text, std::string_view what) {
+  const std::string prefix = what.empty() ? std::string() : std::string(what) + ": ";
+  std::string_view s = trim(text);
+  double scale = 1.0;
+  if (!s.empty() && s.back() == '%') {
+    s.remove_suffix(1);
+    scale = 0.01;
+  }
+  const auto v = try_parse_value(s, unit::none);
+  if (!v || *v * scale < 0 || *v * scale >= 1)
+    throw input_error(prefix + "cannot read '" + std::string(text) + "' as a fraction (expected for example 5% or 0.05)");
+  return *v * scale;
+}
+
 double db_from_ratio(double ratio) noexcept { return 20.0 * std::log10(ratio); }
 double ratio_from_db(double gain_db) noexcept { return std::pow(10.0, gain_db / 20.0); }
 double dbu_from_vpk(double vpk) noexcept { return db_from_ratio(vpk / sqrt2 / dbu_reference_vrms); }
@@ -215,16 +248,16 @@ std::string format_si(double value, std::string_view unit_symbol, int digits) {
   int e3 = static_cast<int>(std::floor(std::log10(std::fabs(value)) / 3.0));
   if (e3 < -5) e3 = -5;
   if (e3 > 4) e3 = 4;
-  double mant = value / std::pow(10.0, 3 * e3);
+  const double mant = value / std::pow(10.0, 3 * e3);
   // Rounding to `digits` may carry into the next prefix (999.7 -> 1000 -> 1.00 k).
   const int mag = static_cast<int>(std::floor(std::log10(std::fabs(mant))));
   const double scale = std::pow(10.0, digits - 1 - mag);
-  const double rounded = std::round(mant * scale) / scale;
+  double rounded = std::round(mant * scale) / scale;
   if (std::fabs(rounded) >= 1000.0 && e3 < 4) {
     ++e3;
-    mant = value / std::pow(10.0, 3 * e3);
+    rounded /= 1000.0;
   }
-  return format_number(mant, digits) + " " + prefixes[static_cast<std::size_t>(e3 + 5)] + std::string(unit_symbol);
+  return format_number(rounded, digits) + " " + prefixes[static_cast<std::size_t>(e3 + 5)] + std::string(unit_symbol);
 }
 
 }  // namespace pinchoff::dsp

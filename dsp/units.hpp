@@ -29,6 +29,17 @@ double parse_level_vpk(std::string_view text, bool require_unit = false);
 /// Reads a frequency ("1k", "1000", "1kHz") in hertz; must be > 0.
 double parse_frequency_hz(std::string_view text);
 
+/// A closed range "LO..HI" of values ("2m..8m", "7..9.6"); a single value is the range
+/// [v, v]. With `any_order` the ends may come in either order (pinch-off voltages are
+/// written from small to large magnitude: "-0.8..-3"); otherwise LO > HI is an error.
+struct value_range {
+  double lo{}, hi{};
+};
+value_range parse_range(std::string_view text, unit u = unit::none, std::string_view what = {}, bool any_order = false);
+
+/// "5%", "0.05" or "1%": a fraction (0.05). Must be in [0, 1).
+double parse_fraction(std::string_view text, std::string_view what = {});
+
 // Level constants and conversions (sine waves: Vrms = Vpk / sqrt 2).
 inline constexpr double dbu_reference_vrms = 0.7745966692414834;  // sqrt(0.6) V, 0 dBu
 inline constexpr double dbv_reference_vrms = 1.0;                 // 0 dBV

@@ -31,7 +31,10 @@ network build_network(const stage& s) {
     rail = new_node("rail");
     add_r(net.supply_node, rail, s.supply.resistance_ohm, "supply.resistance");
   }
-  add_c(rail, 0, s.supply.capacitance_f, cap_role::supply_reservoir, "supply.capacitance");
+  // Across an ideal source a reservoir capacitor changes nothing (and would put two
+  // voltage sources in parallel in the held and shorted analyses): only with a series
+  // resistance does it filter.
+  if (rail != net.supply_node) add_c(rail, 0, s.supply.capacitance_f, cap_role::supply_reservoir, "supply.capacitance");
 
   // Generator -> impedance -> input coupling capacitor -> gate.
   net.generator_node = new_node("generator");

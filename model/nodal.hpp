@@ -46,8 +46,8 @@ struct newton_result {
 
 struct nodal_options {
   int max_iterations{200};
-  double vtol_v{1e-12};   ///< step tolerance, plus vtol_rel * |v|
-  double vtol_rel{1e-12};
+  double vtol_v{1e-9};    ///< step tolerance, plus vtol_rel * |v| (the error after a step this small is far below it: Newton converges quadratically)
+  double vtol_rel{1e-9};
   double itol_a{1e-15};   ///< residual tolerance, plus itol_rel * largest branch current
   double itol_rel{1e-12};
 };

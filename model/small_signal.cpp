@@ -21,7 +21,9 @@ Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, 
   int branches = 1 + (setup.generator_present ? 1 : 0);
   if (setup.midband)
     for (std::size_t k = 0; k < net.capacitors.size(); ++k)
-      if (is_large_cap(net.capacitors[k].role) && static_cast<int>(k) != setup.removed_cap) ++branches;
+      if (is_large_cap(net.capacitors[k].role) && static_cast<int>(k) != setup.removed_cap &&
+          static_cast<int>(k) != setup.admittance_cap)
+        ++branches;
   const int n = nu + branches;
   Eigen::MatrixXcd a = Eigen::MatrixXcd::Zero(n, n);
   Eigen::VectorXcd rhs = Eigen::VectorXcd::Zero(n);
@@ -67,7 +69,9 @@ Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, 
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     if (static_cast<int>(k) == setup.removed_cap) continue;
     const net_capacitor& c = net.capacitors[k];
-    if (setup.midband) {
+    if (setup.midband && static_cast<int>(k) == setup.admittance_cap) {
+      stamp_y(c.a, c.b, setup.s * c.farad);
+    } else if (setup.midband) {
       if (is_large_cap(c.role)) stamp_v(c.a, c.b, 0.0);
     } else {
       stamp_y(c.a, c.b, setup.s * c.farad);
@@ -127,6 +131,29 @@ small_signal_figures analyse_small_signal(const network& net, const operating_po
     f.low_corner_estimate_hz += fc;
   }
   return f;
+}
+
+std::vector<cap_reactance> reactances_at(const network& net, const operating_point& op, double f_hz) {
+  const jfet_linear lin = linearise(net, op);
+  const small_signal_figures ss = analyse_small_signal(net, op);
+  ac_setup mid;
+  mid.generator_v = 1.0;
+  const double g_mid = std::abs(solve_small_signal(net, lin, mid)[net.output_node]);
+  std::vector<cap_reactance> out;
+  for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
+    const net_capacitor& c = net.capacitors[k];
+    if (!is_large_cap(c.role) || c.role == cap_role::supply_reservoir) continue;
+    ac_setup one = mid;
+    one.admittance_cap = static_cast<int>(k);
+    one.s = {0.0, 2.0 * std::numbers::pi * f_hz};
+    const double g = std::abs(solve_small_signal(net, lin, one)[net.output_node]);
+    double r_seen = 0.0;
+    for (const cap_corner& cc : ss.corners)
+      if (cc.key == c.key) r_seen = cc.r_seen_ohm;
+    out.push_back({std::string(c.key), c.farad, 1.0 / (2.0 * std::numbers::pi * f_hz * c.farad), r_seen,
+                   20.0 * std::log10(g / g_mid)});
+  }
+  return out;
 }
 
 double highpass_loss_db(double f_hz, double fc_hz) noexcept {

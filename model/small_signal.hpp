@@ -29,6 +29,7 @@ struct ac_setup {
   double generator_v{0.0};           ///< generator amplitude when present
   bool load_present{true};
   int removed_cap{-1};               ///< index of a capacitor left out (its terminals open)
+  int admittance_cap{-1};            ///< in the mid-band, this one capacitor is s C instead of a short
   bool include_gds{true};
   int inject_a{-1};                  ///< node a 1 A test current flows into (-1: none)
   int inject_b{0};                   ///< node it flows out of
@@ -61,6 +62,18 @@ struct small_signal_figures {
 };
 
 small_signal_figures analyse_small_signal(const network& net, const operating_point& op);
+
+/// One capacitor at a chosen frequency: its reactance, the resistance it sees, and how
+/// much the mid-band gain drops when it alone is real (the others shorted): exact for
+/// coupling capacitors (a high-pass) and bypass capacitors (a shelf) alike.
+struct cap_reactance {
+  std::string key;
+  double farad{};
+  double xc_ohm{};
+  double r_seen_ohm{};
+  double loss_db{};  ///< <= 0 for coupling capacitors; a bypass capacitor's shelf is also < 0
+};
+std::vector<cap_reactance> reactances_at(const network& net, const operating_point& op, double f_hz);
 
 /// Loss of a first-order high-pass section with corner fc at frequency f, in dB (<= 0):
 /// 20 log10( (f/fc) / sqrt(1 + (f/fc)^2) ).

@@ -76,6 +76,13 @@ class reader {
   }
   [[noreturn]] void fail_file(const std::string& msg) const { throw input_error(std::string(source_) + ": " + msg); }
 
+  /// Points at a section's header when the section exists, else at the file.
+  [[noreturn]] void fail_section(const toml::table& root, std::string_view section, const std::string& msg) const {
+    if (const toml::node* n = root.get(section); n != nullptr && n->source().begin.line != 0)
+      fail_at(n->source(), std::string(section), msg);
+    fail_file(msg);
+  }
+
   double number(const toml::node& node, const std::string& key, const key_spec& spec) const {
     double v = 0.0;
     if (node.is_integer() || node.is_floating_point()) {
@@ -246,13 +253,13 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   else if (polarity_text != "n") rd.fail_at(polarity_where, "jfet.polarity", "jfet.polarity must be \"n\" or \"p\", not \"" + polarity_text + "\"");
   (void)polarity_given;
   const double sign = st.pol == polarity::p ? -1.0 : 1.0;
-  const char* chan = st.pol == polarity::p ? "p-channel" : "n-channel";
+  const char* chan = st.pol == polarity::p ? "a p-channel" : "an n-channel";
 
-  if (!root.contains("supply") || !has("supply.volts")) rd.fail_file("[supply] needs volts (the supply voltage)");
+  if (!root.contains("supply") || !has("supply.volts")) rd.fail_section(root, "supply", "[supply] needs volts (the supply voltage)");
   st.supply.volts_v = get("supply.volts");
   if (!(sign * st.supply.volts_v > 0))
     rd.fail_at(where["supply.volts"], "supply.volts",
-               std::string("supply.volts must be ") + (sign > 0 ? "positive" : "negative") + " for a " + chan +
+               std::string("supply.volts must be ") + (sign > 0 ? "positive" : "negative") + " for " + chan +
                    " stage" + (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
   st.supply.resistance_ohm = get("supply.resistance");
   st.supply.capacitance_f = get("supply.capacitance");
@@ -261,17 +268,17 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   const bool form_a = has("jfet.idss") || has("jfet.vp");
   const bool form_b = has("jfet.beta") || has("jfet.vto");
   if (!root.contains("jfet")) rd.fail_file("the stage file needs a [jfet] section with idss and vp");
-  if (form_a && form_b) rd.fail_file("[jfet]: give either idss and vp, or beta and vto, not both");
+  if (form_a && form_b) rd.fail_section(root, "jfet", "[jfet]: give either idss and vp, or beta and vto, not both");
   const char* vkey = form_b ? "jfet.vto" : "jfet.vp";
   if (form_b) {
-    if (!has("jfet.beta") || !has("jfet.vto")) rd.fail_file("[jfet] needs both beta and vto");
+    if (!has("jfet.beta") || !has("jfet.vto")) rd.fail_section(root, "jfet", "[jfet] needs both beta and vto");
   } else if (!has("jfet.idss") || !has("jfet.vp")) {
-    rd.fail_file("[jfet] needs idss and vp (or beta and vto)");
+    rd.fail_section(root, "jfet", "[jfet] needs idss and vp (or beta and vto)");
   }
   const double vp = get(vkey);
   if (!(sign * vp < 0))
     rd.fail_at(where[vkey], vkey,
-               std::string(vkey) + " must be " + (sign > 0 ? "negative" : "positive") + " for a " + chan + " part" +
+               std::string(vkey) + " must be " + (sign > 0 ? "negative" : "positive") + " for " + chan + " part" +
                    (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
   st.jfet.vp_v = vp;
   st.jfet.idss_a = form_b ? get("jfet.beta") * vp * vp : get("jfet.idss");

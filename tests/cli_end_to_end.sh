@@ -1,1 +1,44 @@
-
+#!/usr/bin/env bash
+# End-to-end runs of the built binary on every preset: exit codes, JSON that parses,
+# and nothing on stdout when the input is bad.
+set -u
+bin=$1
+presets=$2
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+fail=0
+check() { # description, expected status, command...
+  local what=$1 want=$2
+  shift 2
+  "$@" >"$tmp/out" 2>"$tmp/err"
+  local got=$?
+  if [ "$got" -ne "$want" ]; then
+    echo "FAIL: $what: exit $got, expected $want"; cat "$tmp/err"; fail=1
+  fi
+}
+for p in "$presets"/*.toml; do
+  [ "$(basename "$p")" = devices.toml ] && continue
+  check "bias $p" 0 "$bin" bias "$p"
+  grep -q "Operating point" "$tmp/out" || { echo "FAIL: bias $p printed no report"; fail=1; }
+  check "bias --json $p" 0 "$bin" bias "$p" --json
+  python3 -c 'import json,sys; json.load(open(sys.argv[1]))' "$tmp/out" || { echo "FAIL: bias --json $p is not JSON"; fail=1; }
+  check "tune center $p" 0 "$bin" tune "$p" --target center
+  check "response $p" 0 "$bin" response "$p" --plot "$tmp/r.svg"
+  rsvg-convert "$tmp/r.svg" -o "$tmp/r.png" || { echo "FAIL: response plot of $p does not render"; fail=1; }
+done
+check "missing file" 2 "$bin" bias "$tmp/none.toml"
+[ -s "$tmp/out" ] && { echo "FAIL: output written for a missing file"; fail=1; }
+printf '[supply]\nvolts = 9\n[jfet]\nidss = "5m"\nvp = -1\n[drain]\nresitor = 1\n' > "$tmp/typo.toml"
+check "typo" 2 "$bin" bias "$tmp/typo.toml"
+grep -q "typo.toml:7:1: unknown key 'resitor' in \[drain\]; did you mean 'resistor'" "$tmp/err" || { echo "FAIL: typo message"; cat "$tmp/err"; fail=1; }
+check "tone" 0 "$bin" tone --freq 1k --level -10dBFS --seconds 2 "$tmp/tone.wav"
+check "measure --json" 0 "$bin" measure "$tmp/tone.wav" --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert abs(j["fundamental_dbfs"]+10)<0.01 and abs(j["fundamental_hz"]-1000)<0.01' "$tmp/out" || { echo "FAIL: measure of the tone file"; fail=1; }
+check "measure of a non-audio file" 2 "$bin" measure "$tmp/typo.toml"
+[ -s "$tmp/out" ] && { echo "FAIL: output written for a non-audio file"; fail=1; }
+check "version" 0 "$bin" --version
+printf 'rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,0.16m\n' > "$tmp/jig.csv"
+check "fit" 0 "$bin" fit "$tmp/jig.csv"
+grep -q '^\[jfet\]' "$tmp/out" || { echo "FAIL: fit printed no [jfet] block"; fail=1; }
+[ $fail -eq 0 ] && echo "end-to-end: all passed"
+exit $fail

@@ -1,0 +1,7 @@
+#pragma once
+// Benchmark entry points, one per measured unit; the bench program's main calls each.
+// Each prints its own figures to stdout.
+
+/// Oversampler cost at 48 kHz for factors 1-16: ns per base-rate sample and real-time
+/// factor for upsampling, downsampling and the round trip.
+void bench_oversampler();

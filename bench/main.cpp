@@ -1,0 +1,12 @@
+// pinchoff_bench: prints the performance figures (`make bench`). Figures are ratios
+// (real-time factors, speed-ups against the project's reference solver) because the
+// machines they run on are shared and noisy.
+#include <cstdio>
+
+#include "bench/benches.hpp"
+
+int main() {
+  std::printf("pinchoff benchmarks\n\n");
+  bench_oversampler();
+  return 0;
+}

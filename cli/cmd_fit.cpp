@@ -1,0 +1,123 @@
+// pinchoff fit: IDSS, VP (and lambda) of one part from bench readings in CSV.
+#include <cmath>
+#include <memory>
+
+#include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
+
+#include "cli/app.hpp"
+#include "cli/common.hpp"
+#include "cli/text_table.hpp"
+#include "dsp/csv.hpp"
+#include "dsp/error.hpp"
+#include "dsp/units.hpp"
+#include "model/fit.hpp"
+
+namespace pinchoff::cli {
+namespace {
+
+using dsp::format_number;
+using dsp::format_si;
+using align = text_table::align;
+
+struct fit_options {
+  std::string path;
+  bool json{false};
+};
+
+}  // namespace
+
+void register_fit(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<fit_options>();
+  CLI::App* sub = app.add_subcommand("fit", "Fit IDSS, VP and lambda of a part to bench readings (CSV)");
+  sub->add_option("FILE", opt->path, "CSV with a header: vgs_v,id_a (gate sweep) or rs_ohm,id_a (self-bias jig), optionally vds_v")
+      ->required();
+  sub->add_flag("--json", opt->json, "Machine-readable output");
+  sub->footer(
+      "Examples:\n"
+      "  pinchoff fit part7.csv\n"
+      "A gate sweep (a bench supply sets VGS, a meter reads ID, drain at a few volts):\n"
+      "  vgs_v,id_a\n  0,5.1m\n  -0.5,2.9m\n  -1.0,1.25m\n"
+      "A self-bias jig (gate grounded, a known source resistor, read ID or VS/RS):\n"
+      "  rs_ohm,id_a\n  100,3.6m\n  1k,1.02m\n  10k,0.16m\n"
+      "Cells take the same values as stage files (2.5m, 1k). Give vds_v per row to fit lambda\n"
+      "as well (needs VDS varied by more than 1 V). Keep the part in saturation (VDS above\n"
+      "VGS - VP). The result ends with a [jfet] block to paste into a stage file.");
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
+                        const dsp::csv_table t = dsp::read_csv_file(opt->path);
+                        const int c_vgs = t.column("vgs_v"), c_rs = t.column("rs_ohm"), c_id = t.column("id_a"),
+                                  c_vds = t.column("vds_v");
+                        if (c_id < 0) throw input_error(t.source + ": missing column 'id_a' (the drain current, A)");
+                        if ((c_vgs < 0) == (c_rs < 0))
+                          throw input_error(t.source + ": give exactly one of the columns 'vgs_v' (gate sweep) or "
+                                                       "'rs_ohm' (self-bias jig)");
+                        for (const std::string& c : t.columns)
+                          if (c != "vgs_v" && c != "rs_ohm" && c != "id_a" && c != "vds_v")
+                            throw input_error(t.source + ": unknown column '" + c + "' (expected vgs_v or rs_ohm, id_a, vds_v)");
+                        const model::reading_kind kind =
+                            c_vgs >= 0 ? model::reading_kind::gate_sweep : model::reading_kind::self_bias_jig;
+                        std::vector<model::bench_reading> rd;
+                        for (std::size_t k = 0; k < t.rows.size(); ++k) {
+                          model::bench_reading r;
+                          r.x = t.rows[k][static_cast<std::size_t>(c_vgs >= 0 ? c_vgs : c_rs)];
+                          r.id_a = t.rows[k][static_cast<std::size_t>(c_id)];
+                          if (c_vds >= 0) {
+                            r.vds_v = t.rows[k][static_cast<std::size_t>(c_vds)];
+                            r.has_vds = true;
+                          }
+                          r.line = t.line_of_row[k];
+                          rd.push_back(r);
+                        }
+                        model::fit_result f;
+                        try {
+                          f = model::fit_square_law(kind, rd);
+                        } catch (const input_error& e) {
+                          throw input_error(t.source + ": " + e.what());
+                        }
+                        if (opt->json) {
+                          nlohmann::json j;
+                          j["idss_a"] = f.idss_a;
+                          j["vp_v"] = f.vp_v;
+                          j["lambda_per_v"] = f.lambda_per_v;
+                          j["lambda_fitted"] = f.lambda_fitted;
+                          j["polarity"] = f.p_channel ? "p" : "n";
+                          j["std_errors"] = {{"idss_a", f.idss_se_a}, {"vp_v", f.vp_se_v}, {"lambda_per_v", f.lambda_se_per_v}};
+                          j["rms_residual_percent"] = 100.0 * f.rms_residual_ratio;
+                          nlohmann::json rows = nlohmann::json::array();
+                          for (const auto& r : f.rows)
+                            rows.push_back({{"line", r.reading.line},
+                                            {"vgs_v", r.vgs_v},
+                                            {"id_a", r.reading.id_a},
+                                            {"id_model_a", r.id_model_a},
+                                            {"residual_percent", 100.0 * r.residual_ratio},
+                                            {"flagged", r.flagged}});
+                          j["rows"] = rows;
+                          out << j.dump(2) << '\n';
+                          return;
+                        }
+                        out << "fit of " << t.source << " (" << t.rows.size() << " readings, "
+                            << (kind == model::reading_kind::gate_sweep ? "gate sweep" : "self-bias jig") << ", "
+                            << (f.p_channel ? "p" : "n") << "-channel)\n\n";
+                        text_table p({align::left, align::right, align::left});
+                        p.add({"IDSS", format_si(f.idss_a, "A", 4), "± " + format_si(f.idss_se_a, "A", 2)});
+                        p.add({"VP", format_si(f.vp_v, "V", 4), "± " + format_si(f.vp_se_v, "V", 2)});
+                        if (f.lambda_fitted)
+                          p.add({"lambda", format_number(f.lambda_per_v, 3) + " /V",
+                                 "± " + format_number(f.lambda_se_per_v, 2) + " /V"});
+                        else
+                          p.add({"lambda", "not fitted", "(give vds_v varied by more than 1 V)"});
+                        p.add({"rms misfit", format_number(100.0 * f.rms_residual_ratio, 2) + " %", ""});
+                        p.write(out);
+                        out << '\n';
+                        text_table rows({align::right, align::right, align::right, align::right, align::right, align::left});
+                        rows.add({"line", "VGS", "ID read", "ID model", "misfit", ""});
+                        for (const auto& r : f.rows)
+                          rows.add({std::to_string(r.reading.line), format_si(r.vgs_v, "V", 4), format_si(r.reading.id_a, "A", 4),
+                                    format_si(r.id_model_a, "A", 4), format_number(100.0 * r.residual_ratio, 2) + " %",
+                                    r.flagged ? "<- does not fit the others" : ""});
+                        rows.write(out);
+                        out << "\nPaste into a stage file:\n\n" << model::jfet_block(f);
+                      }});
+}
+
+}  // namespace pinchoff::cli

@@ -1,0 +1,168 @@
+// pinchoff response: small-signal frequency response from the generator to the load.
+#include <cmath>
+#include <complex>
+#include <memory>
+#include <numbers>
+
+#include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
+
+#include "cli/app.hpp"
+#include "cli/common.hpp"
+#include "cli/plot.hpp"
+#include "cli/text_table.hpp"
+#include "dsp/error.hpp"
+#include "dsp/units.hpp"
+#include "model/network.hpp"
+#include "model/response.hpp"
+
+namespace pinchoff::cli {
+namespace {
+
+using dsp::format_number;
+using dsp::format_si;
+using align = text_table::align;
+
+struct response_options {
+  stage_input input;
+  std::string from{"10"}, to{"100k"};
+  int points{200};
+  bool json{false}, csv{false};
+  std::string plot;
+};
+
+double mag_db(std::complex<double> g) { return dsp::db_from_ratio(std::abs(g)); }
+
+// Phase in degrees, unwrapped along the sweep so it does not jump by 360.
+std::vector<double> unwrapped_phase_deg(const std::vector<model::response_point>& pts) {
+  std::vector<double> out;
+  double prev = 0.0;
+  for (std::size_t k = 0; k < pts.size(); ++k) {
+    double p = std::arg(pts[k].gain) * 180.0 / std::numbers::pi;
+    if (k > 0) {
+      while (p - prev > 180.0) p -= 360.0;
+      while (p - prev < -180.0) p += 360.0;
+    }
+    out.push_back(p);
+    prev = p;
+  }
+  return out;
+}
+
+// Standard 1-2-5 frequencies inside the range, for the readable table.
+std::vector<double> table_frequencies(double lo, double hi) {
+  std::vector<double> f;
+  for (double decade = std::pow(10.0, std::floor(std::log10(lo))); decade <= hi; decade *= 10.0)
+    for (double m : {1.0, 2.0, 5.0})
+      if (m * decade >= lo * (1 - 1e-9) && m * decade <= hi * (1 + 1e-9)) f.push_back(m * decade);
+  return f;
+}
+
+}  // namespace
+
+void register_response(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<response_options>();
+  CLI::App* sub = app.add_subcommand("response", "Small-signal frequency response, -3 dB corners and input impedance");
+  add_stage_input(*sub, opt->input);
+  sub->add_option("--from", opt->from, "Lowest frequency")->capture_default_str();
+  sub->add_option("--to", opt->to, "Highest frequency")->capture_default_str();
+  sub->add_option("--points", opt->points, "Log-spaced frequencies for --csv, --json and --plot")
+      ->capture_default_str()
+      ->check(CLI::Range(2, 100000));
+  sub->add_flag("--json", opt->json, "Machine-readable output");
+  sub->add_flag("--csv", opt->csv, "Every point as CSV");
+  sub->add_option("--plot", opt->plot, "Write magnitude and phase against frequency as SVG")->type_name("FILE.svg");
+  sub->footer(
+      "Examples:\n"
+      "  pinchoff response presets/bass-booster-9v.toml\n"
+      "      mid-band gain, -3 dB corners, and gain and phase at 1-2-5 frequencies\n"
+      "  pinchoff response presets/phantom-mic-follower.toml --from 1 --to 1M --plot mic.svg\n"
+      "  pinchoff response presets/clean-preamp-18v.toml --set source.bypass_cap=4.7u --csv > r.csv\n"
+      "Every capacitor is included: coupling and bypass capacitors set the low corners, the\n"
+      "junction capacitances cgs and cgd (with the Miller effect) the high corner.");
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
+                        if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
+                        const double lo = dsp::parse_frequency_hz(opt->from), hi = dsp::parse_frequency_hz(opt->to);
+                        if (!(hi > lo)) throw input_error("--to must be above --from");
+                        const model::stage st = load_stage(opt->input);
+                        const model::network net = model::build_network(st);
+                        const model::operating_point op = model::solve_operating_point(net);
+                        const model::response_result r = model::analyse_response(net, op, lo, hi, opt->points);
+                        const std::vector<double> phase = unwrapped_phase_deg(r.points);
+                        const double mid_db = dsp::db_from_ratio(std::fabs(r.midband_gain));
+
+                        if (!opt->plot.empty()) {
+                          line_plot p;
+                          p.title = st.name + ": frequency response";
+                          p.x = {"frequency (Hz)", axis_scale::log10, lo, hi, true};
+                          series mag{"gain", {}, {}, false}, ph{"phase", {}, {}, false};
+                          for (std::size_t k = 0; k < r.points.size(); ++k) {
+                            mag.x.push_back(r.points[k].frequency_hz);
+                            mag.y.push_back(mag_db(r.points[k].gain));
+                            ph.x.push_back(r.points[k].frequency_hz);
+                            ph.y.push_back(phase[k]);
+                          }
+                          p.top = {axis{"gain (dB)", axis_scale::linear, {}, {}, false}, {mag}};
+                          p.bottom = panel{axis{"phase (degrees)", axis_scale::linear, {}, {}, false}, {ph}};
+                          for (const auto& c : r.corners)
+                            if (c.frequency_hz >= lo && c.frequency_hz <= hi)
+                              p.markers.push_back({c.frequency_hz, "-3 dB " + format_si(c.frequency_hz, "Hz")});
+                          write_svg_file(opt->plot, render_svg(p));
+                        }
+
+                        if (opt->json) {
+                          nlohmann::json j;
+                          j["midband_gain_db"] = mid_db;
+                          j["midband_gain_v_per_v"] = r.midband_gain;
+                          nlohmann::json corners = nlohmann::json::array(), kinds = nlohmann::json::array();
+                          for (const auto& c : r.corners) {
+                            corners.push_back(c.frequency_hz);
+                            kinds.push_back(c.is_low ? "low" : "high");
+                          }
+                          j["corners_hz"] = corners;
+                          j["corner_kinds"] = kinds;
+                          nlohmann::json pts = nlohmann::json::array();
+                          for (std::size_t k = 0; k < r.points.size(); ++k)
+                            pts.push_back({{"frequency_hz", r.points[k].frequency_hz},
+                                           {"magnitude_db", mag_db(r.points[k].gain)},
+                                           {"phase_deg", phase[k]},
+                                           {"zin_ohm", std::abs(r.points[k].zin_ohm)},
+                                           {"zin_phase_deg", std::arg(r.points[k].zin_ohm) * 180.0 / std::numbers::pi}});
+                          j["points"] = pts;
+                          out << j.dump(2) << '\n';
+                          return;
+                        }
+                        if (opt->csv) {
+                          out << "frequency_hz,magnitude_db,phase_deg,zin_ohm,zin_phase_deg\n";
+                          out.precision(10);
+                          for (std::size_t k = 0; k < r.points.size(); ++k)
+                            out << r.points[k].frequency_hz << ',' << mag_db(r.points[k].gain) << ',' << phase[k] << ','
+                                << std::abs(r.points[k].zin_ohm) << ','
+                                << std::arg(r.points[k].zin_ohm) * 180.0 / std::numbers::pi << '\n';
+                          return;
+                        }
+                        out << st.name << "\n  small-signal response, generator to load\n\n";
+                        out << "  mid-band gain " << format_number(r.midband_gain, 4) << " V/V ("
+                            << format_number(mid_db, 3) << " dB)\n";
+                        if (r.corners.empty()) out << "  no -3 dB corner between 1 mHz and 1 GHz\n";
+                        for (const auto& c : r.corners)
+                          out << "  " << (c.is_low ? "low " : "high") << " -3 dB corner " << format_si(c.frequency_hz, "Hz", 4)
+                              << '\n';
+                        out << '\n';
+                        text_table t({align::right, align::right, align::right, align::right, align::right});
+                        t.add({"frequency", "gain", "re mid-band", "phase", "input impedance"});
+                        std::vector<model::response_point> rows;
+                        for (double f : table_frequencies(lo, hi)) rows.push_back(model::response_at(net, op, f));
+                        const std::vector<double> row_phase = unwrapped_phase_deg(rows);
+                        for (std::size_t k = 0; k < rows.size(); ++k) {
+                          const model::response_point& p = rows[k];
+                          t.add({format_si(p.frequency_hz, "Hz"), format_number(mag_db(p.gain), 3) + " dB",
+                                 format_number(mag_db(p.gain) - mid_db, 2) + " dB", format_number(row_phase[k], 3) + "°",
+                                 format_si(std::abs(p.zin_ohm), "Ω")});
+                        }
+                        t.write(out);
+                        if (!opt->plot.empty()) out << "\n  plot written to " << opt->plot << '\n';
+                      }});
+}
+
+}  // namespace pinchoff::cli

@@ -1,0 +1,275 @@
+// pinchoff tone: a sine test tone, or a staircase of levels, written to an audio file to
+// play into a built stage.
+#include <algorithm>
+#include <cctype>
+#include <cmath>
+#include <cstdio>
+#include <memory>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
+
+#include "cli/app.hpp"
+#include "cli/text_table.hpp"
+#include "dsp/error.hpp"
+#include "dsp/sound_file.hpp"
+#include "dsp/tone.hpp"
+#include "dsp/units.hpp"
+
+namespace pinchoff::cli {
+namespace {
+
+using dsp::format_number;
+using dsp::format_si;
+using align = text_table::align;
+
+struct tone_options {
+  std::string output;
+  std::string freq_text{"1k"};
+  std::string level_text{"-20dBFS"};
+  double seconds{5.0};
+  std::string steps_text;
+  double step_seconds{1.0};
+  double rate_hz{48000.0};
+  std::string format_text{"wav24"};
+  int channels{1};
+  double fade_ms{10.0};
+  bool no_dither{false};
+  bool force{false};
+  bool json{false};
+};
+
+std::string trimmed(std::string_view t) {
+  while (!t.empty() && std::isspace(static_cast<unsigned char>(t.front()))) t.remove_prefix(1);
+  while (!t.empty() && std::isspace(static_cast<unsigned char>(t.back()))) t.remove_suffix(1);
+  return std::string(t);
+}
+
+// "-10dBFS", "-10 dBFS", "-10" (dBFS understood). `suffix` is the unit word accepted.
+double parse_db(std::string_view text, std::string_view suffix, std::string_view what) {
+  std::string t = trimmed(text);
+  std::string lower = t;
+  std::transform(lower.begin(), lower.end(), lower.begin(), [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
+  std::string suf(suffix);
+  std::transform(suf.begin(), suf.end(), suf.begin(), [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
+  if (lower.size() >= suf.size() && lower.compare(lower.size() - suf.size(), suf.size(), suf) == 0)
+    t = trimmed(std::string_view(t).substr(0, t.size() - suf.size()));
+  std::size_t used = 0;
+  double v = 0.0;
+  try {
+    v = std::stod(t, &used);
+  } catch (const std::exception&) {
+    used = 0;
+  }
+  if (t.empty() || used != t.size() || !std::isfinite(v))
+    throw input_error(std::string(what) + " '" + std::string(text) + "' is not a level; expected a number of " +
+                      std::string(suffix) + ", e.g. -10" + std::string(suffix));
+  return v;
+}
+
+// FROM..TO:STEP, e.g. "-40dBFS..0dBFS:10" or "-40..0:6dB".
+std::vector<dsp::tone_step> parse_steps(const std::string& text, double seconds) {
+  const std::size_t dots = text.find("..");
+  const std::size_t colon = text.rfind(':');
+  if (dots == std::string::npos || colon == std::string::npos || colon < dots)
+    throw input_error("--steps '" + text + "' is not FROM..TO:STEP, e.g. -40dBFS..0dBFS:10 (levels in dBFS, step in dB)");
+  const double from = parse_db(text.substr(0, dots), "dBFS", "--steps start");
+  const double to = parse_db(text.substr(dots + 2, colon - dots - 2), "dBFS", "--steps end");
+  const double step = parse_db(text.substr(colon + 1), "dB", "--steps step");
+  return dsp::level_staircase(from, to, step, seconds);
+}
+
+struct tone_report {
+  std::string path;
+  dsp::tone_plan plan;
+  dsp::sample_format format{};
+  int channels{1};
+  bool dither{false};
+  std::int64_t frames{0};
+  double sample_peak{0.0};
+  std::int64_t clipped{0};
+  std::vector<dsp::steady_span> spans;
+  double ceiling_dbfs{0.0};  // < 0 when levels near full scale were lowered to fit the codes
+};
+
+std::string dbfs_text(double level_dbfs) {
+  char t[32];
+  std::snprintf(t, sizeof t, "%.1f dBFS", level_dbfs == 0.0 ? 0.0 : level_dbfs);
+  return t;
+}
+std::string seconds_text(std::int64_t frames, double rate_hz) {
+  char t[32];
+  std::snprintf(t, sizeof t, "%.3f s", static_cast<double>(frames) / rate_hz);
+  return t;
+}
+std::string rate_text(double rate_hz) {
+  return rate_hz == std::floor(rate_hz) ? std::to_string(static_cast<long long>(rate_hz)) : format_number(rate_hz, 6);
+}
+
+const char* format_description(dsp::sample_format f) {
+  switch (f) {
+    case dsp::sample_format::wav16: return "WAV, 16-bit integer";
+    case dsp::sample_format::wav24: return "WAV, 24-bit integer";
+    case dsp::sample_format::wav_float: return "WAV, 32-bit float";
+    case dsp::sample_format::flac24: return "FLAC, 24-bit integer";
+  }
+  return "";
+}
+
+void write_text(const tone_report& r, std::ostream& out) {
+  const auto& p = r.plan;
+  out << "Wrote " << r.path << '\n';
+  out << "  " << format_si(p.frequency_hz, "Hz", 4) << " sine, ";
+  if (p.steps.size() == 1) out << dbfs_text(p.steps[0].level_dbfs);
+  else
+    out << p.steps.size() << " levels from " << dbfs_text(p.steps.front().level_dbfs) << " to "
+        << dbfs_text(p.steps.back().level_dbfs);
+  out << ", " << seconds_text(r.frames, p.rate_hz) << " (" << r.frames << " frames)\n";
+  out << "  " << rate_text(p.rate_hz) << " Hz, " << r.channels << (r.channels == 1 ? " channel, " : " channels (all the same), ")
+      << format_description(r.format)
+      << (dsp::quantisation_bits(r.format) == 0 ? "" : (r.dither ? ", TPDF dither" : ", no dither")) << '\n';
+  out << "  sample peak " << dbfs_text(dsp::db_from_ratio(r.sample_peak)) << " (0 dBFS: a sine reaching full scale); "
+      << format_number(p.fade_seconds * 1000.0, 3) << " ms raised-cosine fades\n";
+  if (r.ceiling_dbfs < 0.0)
+    out << "  levels above " << format_number(r.ceiling_dbfs, 2) << " dBFS written at that level, the largest sine a "
+        << dsp::quantisation_bits(r.format) << "-bit file holds" << (r.dither ? " with dither" : "") << " without clipping\n";
+  if (r.clipped > 0) out << "  ! " << r.clipped << " samples clipped\n";
+  if (p.steps.size() > 1) {
+    out << "\nSteps (steady: where the level holds, for measuring)\n";
+    text_table t({align::right, align::right, align::right, align::right, align::right});
+    t.add({"step", "level", "starts", "steady from", "to"});
+    for (std::size_t i = 0; i < p.steps.size(); ++i)
+      t.add({std::to_string(i + 1), dbfs_text(p.steps[i].level_dbfs),
+             seconds_text(i == 0 ? 0 : r.spans[i - 1].end, p.rate_hz),
+             seconds_text(r.spans[i].begin, p.rate_hz), seconds_text(r.spans[i].end, p.rate_hz)});
+    t.write(out);
+  }
+  out << "\nCaution: start playback quietly and raise it slowly; a full-scale tone through a\n"
+         "power amplifier or headphones is loud enough to harm hearing and speakers.\n";
+}
+
+void write_json(const tone_report& r, std::ostream& out) {
+  const auto& p = r.plan;
+  nlohmann::json steps = nlohmann::json::array();
+  for (std::size_t i = 0; i < p.steps.size(); ++i)
+    steps.push_back({{"level_dbfs", p.steps[i].level_dbfs},
+                     {"start_s", static_cast<double>(i == 0 ? 0 : r.spans[i - 1].end) / p.rate_hz},
+                     {"steady_from_s", static_cast<double>(r.spans[i].begin) / p.rate_hz},
+                     {"steady_to_s", static_cast<double>(r.spans[i].end) / p.rate_hz}});
+  nlohmann::json j{{"path", r.path},
+                   {"frequency_hz", p.frequency_hz},
+                   {"rate_hz", p.rate_hz},
+                   {"channels", r.channels},
+                   {"format", std::string(dsp::sample_format_name(r.format))},
+                   {"dither", r.dither && dsp::quantisation_bits(r.format) != 0},
+                   {"frames", r.frames},
+                   {"duration_s", static_cast<double>(r.frames) / p.rate_hz},
+                   {"fade_s", p.fade_seconds},
+                   {"sample_peak_dbfs", dsp::db_from_ratio(r.sample_peak)},
+                   {"clipped_samples", r.clipped},
+                   {"ceiling_dbfs", r.ceiling_dbfs},
+                   {"steps", steps}};
+  out << j.dump(2) << '\n';
+}
+
+tone_report make_tone(const tone_options& o) {
+  tone_report r;
+  r.path = o.output;
+  r.format = dsp::parse_sample_format(o.format_text);
+  r.channels = o.channels;
+  r.dither = !o.no_dither;
+  r.plan.frequency_hz = dsp::parse_frequency_hz(o.freq_text);
+  r.plan.rate_hz = o.rate_hz;
+  r.plan.fade_seconds = o.fade_ms / 1000.0;
+  if (o.steps_text.empty()) r.plan.steps = {{parse_db(o.level_text, "dBFS", "--level"), o.seconds}};
+  else r.plan.steps = parse_steps(o.steps_text, o.step_seconds);
+
+  // An integer file's largest code is one step short of full scale, and dither adds up to
+  // one step more: a sine reaching 0 dBFS would clip. Such levels are lowered to the largest
+  // that fits (rounding keeps |x| + 1 step below 2^(bits-1) - 1/2 codes).
+  for (const dsp::tone_step& st : r.plan.steps)
+    if (st.level_dbfs > 0.0)
+      throw input_error("level " + format_number(st.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
+  if (const int bits = dsp::quantisation_bits(r.format); bits > 0) {
+    const double codes = std::ldexp(1.0, bits - 1);
+    const double ceiling = dsp::db_from_ratio((codes - (r.dither ? 1.5 : 0.5) - 0.01) / codes);
+    for (dsp::tone_step& st : r.plan.steps)
+      if (st.level_dbfs > ceiling) {
+        st.level_dbfs = ceiling;
+        r.ceiling_dbfs = ceiling;
+      }
+  }
+  dsp::tone_generator gen(r.plan);  // validates the plan before any file is made
+  r.spans = dsp::steady_spans(r.plan);
+  dsp::write_settings ws;
+  ws.rate_hz = o.rate_hz;
+  ws.channels = o.channels;
+  ws.format = r.format;
+  ws.tpdf_dither = r.dither;
+  ws.overwrite = o.force;
+  dsp::sound_writer w = dsp::sound_writer::create(o.output, ws);
+  const auto ch = static_cast<std::size_t>(o.channels);
+  std::vector<double> mono(8192), frames(8192 * ch);
+  for (;;) {
+    const std::size_t n = gen.generate(mono);
+    if (n == 0) break;
+    for (std::size_t t = 0; t < n; ++t) {
+      r.sample_peak = std::max(r.sample_peak, std::abs(mono[t]));
+      for (std::size_t c = 0; c < ch; ++c) frames[t * ch + c] = mono[t];
+    }
+    w.write(std::span<const double>(frames).first(n * ch));
+  }
+  w.commit();
+  r.frames = w.frames_written();
+  r.clipped = w.clipped_samples();
+  return r;
+}
+
+}  // namespace
+
+void register_tone(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<tone_options>();
+  CLI::App* sub = app.add_subcommand("tone", "Write a sine test tone, or a staircase of levels, to an audio file");
+  sub->add_option("OUT", opt->output, "Audio file to write (refused if it exists, unless --force)")->required();
+  sub->add_option("--freq", opt->freq_text, "Tone frequency, e.g. 1k or 440")->type_name("FREQ")->capture_default_str();
+  sub->add_option("--level", opt->level_text, "Level of a plain tone in dBFS (0 dBFS: the sine's peak reaches full scale)")
+      ->type_name("dBFS")
+      ->capture_default_str();
+  sub->add_option("--seconds", opt->seconds, "Length of a plain tone")->capture_default_str();
+  auto* steps = sub->add_option("--steps", opt->steps_text,
+                                "A staircase of levels instead of one: FROM..TO:STEP, levels in dBFS, step in dB")
+                    ->type_name("FROM..TO:STEP");
+  sub->add_option("--step-seconds", opt->step_seconds, "How long each step of --steps holds")->capture_default_str();
+  sub->add_option("--rate", opt->rate_hz, "Sample rate in hertz")->capture_default_str();
+  sub->add_option("--format", opt->format_text, "wav16, wav24, float (32-bit float WAV) or flac (24-bit)")
+      ->capture_default_str();
+  sub->add_option("--channels", opt->channels, "Number of channels, each holding the same tone")->capture_default_str();
+  sub->add_option("--fade-ms", opt->fade_ms, "Raised-cosine fade at the start, the end and between steps")
+      ->capture_default_str();
+  sub->add_flag("--no-dither", opt->no_dither, "Round integer formats without TPDF dither (dither is on by default)");
+  sub->add_flag("--force", opt->force, "Replace OUT if it exists");
+  sub->add_flag("--json", opt->json, "Machine-readable summary of what was written");
+  sub->get_option("--level")->excludes(steps);
+  sub->get_option("--seconds")->excludes(steps);
+  sub->footer(
+      "Examples:\n"
+      "  pinchoff tone --freq 1k --level -10dBFS --seconds 5 tone-1k.wav\n"
+      "      five seconds of 1 kHz at -10 dBFS, 48 kHz 24-bit WAV\n"
+      "  pinchoff tone --steps -40dBFS..0dBFS:6 --step-seconds 2 staircase.wav\n"
+      "      -40 to -4 dBFS in 6 dB steps (0 dBFS is not a whole step away), 2 s each, to find\n"
+      "      where a stage starts to distort\n"
+      "  pinchoff tone --freq 100 --level -20dBFS --format float --rate 96000 low.wav\n"
+      "Play the file into the stage's input, record its output, and read the recording with\n"
+      "'pinchoff measure'. Integer formats get triangular (TPDF) dither so that rounding adds\n"
+      "noise rather than harmonics.");
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
+                        const tone_report r = make_tone(*opt);
+                        if (opt->json) write_json(r, out);
+                        else write_text(r, out);
+                      }});
+}
+
+}  // namespace pinchoff::cli

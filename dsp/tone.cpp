@@ -1,0 +1,117 @@
+#include "dsp/tone.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+#include <string>
+
+#include "dsp/error.hpp"
+#include "dsp/units.hpp"
+
+namespace pinchoff::dsp {
+
+std::vector<tone_step> level_staircase(double from_dbfs, double to_dbfs, double step_db, double seconds) {
+  if (!std::isfinite(from_dbfs) || !std::isfinite(to_dbfs) || !std::isfinite(step_db) || step_db == 0.0)
+    throw input_error("a level staircase needs finite levels and a non-zero step in dB");
+  if (from_dbfs > 0.0 || to_dbfs > 0.0)
+    throw input_error("levels above 0 dBFS would clip; the staircase goes to " + format_number(std::max(from_dbfs, to_dbfs)) +
+                      " dBFS");
+  const double span = std::abs(to_dbfs - from_dbfs);
+  const double step = std::abs(step_db);
+  // A step that divides the range up to rounding (-40..0:10/3) still reaches the end.
+  const auto count = static_cast<long long>(std::floor(span / step + 1e-9)) + 1;
+  if (count > 1000) throw input_error("a staircase of " + std::to_string(count) + " steps is too long (1000 at most)");
+  const double dir = to_dbfs >= from_dbfs ? 1.0 : -1.0;
+  std::vector<tone_step> steps;
+  for (long long i = 0; i < count; ++i) steps.push_back({from_dbfs + dir * step * static_cast<double>(i), seconds});
+  return steps;
+}
+
+namespace {
+std::int64_t frames_of(double seconds, double rate_hz) { return static_cast<std::int64_t>(std::llround(seconds * rate_hz)); }
+}  // namespace
+
+std::int64_t tone_frames(const tone_plan& plan) {
+  std::int64_t n = 0;
+  for (const tone_step& s : plan.steps) n += frames_of(s.seconds, plan.rate_hz);
+  return n;
+}
+
+tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
+  if (!(plan.rate_hz > 0.0) || !std::isfinite(plan.rate_hz))
+    throw input_error("sample rate must be positive, got " + format_number(plan.rate_hz));
+  if (!(plan.frequency_hz > 0.0) || !(plan.frequency_hz < plan.rate_hz / 2))
+    throw input_error("tone frequency " + format_si(plan.frequency_hz, "Hz") + " must lie between 0 and half the sample rate (" +
+                      format_si(plan.rate_hz / 2, "Hz") + ")");
+  if (plan.steps.empty()) throw input_error("a tone needs at least one level");
+  if (!(plan.fade_seconds >= 0.0) || !std::isfinite(plan.fade_seconds))
+    throw input_error("fade time must be zero or positive, got " + format_number(plan.fade_seconds));
+  fade_frames_ = frames_of(plan.fade_seconds, plan.rate_hz);
+  starts_.push_back(0);
+  for (std::size_t i = 0; i < plan.steps.size(); ++i) {
+    const tone_step& s = plan.steps[i];
+    if (!(s.level_dbfs <= 0.0))
+      throw input_error("level " + format_number(s.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
+    if (!(s.seconds > 0.0) || !std::isfinite(s.seconds))
+      throw input_error("a step must last a positive time, got " + format_number(s.seconds) + " s");
+    const std::int64_t n = frames_of(s.seconds, plan.rate_hz);
+    const bool is_last = i + 1 == plan.steps.size();
+    // The last step holds a ramp in and a ramp out, so it needs at least four fades to keep
+    // half of itself steady; the others two.
+    if (n < (is_last ? 4 : 2) * fade_frames_ || n < 1)
+      throw input_error("a step of " + format_number(s.seconds) + " s is too short for fades of " +
+                        format_number(plan.fade_seconds) + " s (at least " + (is_last ? "four" : "two") + " fades long)");
+    starts_.push_back(starts_.back() + n);
+    amplitudes_.push_back(ratio_from_db(s.level_dbfs));
+    peak_ = std::max(peak_, amplitudes_.back());
+  }
+  total_ = starts_.back();
+}
+
+double tone_generator::envelope(std::int64_t t) const noexcept {
+  // The step holding t: starts_ is sorted, so a binary search.
+  const auto it = std::upper_bound(starts_.begin(), starts_.end(), t);
+  const std::size_t i = static_cast<std::size_t>(it - starts_.begin()) - 1;
+  const double a1 = amplitudes_[i];
+  const auto ramp = [this](std::int64_t k) {  // 0 -> 1 over fade_frames_
+    const double u = (static_cast<double>(k) + 0.5) / static_cast<double>(fade_frames_);
+    return 0.5 * (1.0 - std::cos(std::numbers::pi * u));
+  };
+  double a = a1;
+  const std::int64_t into = t - starts_[i];
+  if (fade_frames_ > 0 && into < fade_frames_) {
+    const double a0 = i == 0 ? 0.0 : amplitudes_[i - 1];
+    a = a0 + (a1 - a0) * ramp(into);
+  }
+  const std::int64_t left = total_ - 1 - t;
+  if (fade_frames_ > 0 && i + 1 == amplitudes_.size() && left < fade_frames_) a *= ramp(left);
+  return a;
+}
+
+std::size_t tone_generator::generate(std::span<double> out) {
+  const std::size_t n = static_cast<std::size_t>(std::min<std::int64_t>(static_cast<std::int64_t>(out.size()), total_ - at_));
+  const long double cycles_per_frame = static_cast<long double>(plan_.frequency_hz) / static_cast<long double>(plan_.rate_hz);
+  for (std::size_t k = 0; k < n; ++k) {
+    const std::int64_t t = at_ + static_cast<std::int64_t>(k);
+    const long double turns = cycles_per_frame * static_cast<long double>(t);
+    const double phase = 2.0 * std::numbers::pi * static_cast<double>(turns - std::floor(turns));
+    out[k] = envelope(t) * std::sin(phase);
+  }
+  at_ += static_cast<std::int64_t>(n);
+  return n;
+}
+
+std::vector<steady_span> steady_spans(const tone_plan& plan) {
+  const tone_generator g(plan);  // validates
+  const std::int64_t fade = frames_of(plan.fade_seconds, plan.rate_hz);
+  std::vector<steady_span> spans;
+  std::int64_t start = 0;
+  for (std::size_t i = 0; i < plan.steps.size(); ++i) {
+    const std::int64_t end = start + frames_of(plan.steps[i].seconds, plan.rate_hz);
+    spans.push_back({start + fade, i + 1 == plan.steps.size() ? end - fade : end});
+    start = end;
+  }
+  return spans;
+}
+
+}  // namespace pinchoff::dsp

@@ -1,0 +1,151 @@
+// The command line, run in-process with argv vectors (CLI11's own testing approach).
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include <doctest/doctest.h>
+#include <nlohmann/json.hpp>
+
+#include "cli/app.hpp"
+
+namespace {
+struct result {
+  int status;
+  std::string out, err;
+};
+
+result run(std::vector<std::string> args) {
+  std::ostringstream out, err;
+  const int status = pinchoff::cli::run(args, out, err);
+  return {status, out.str(), err.str()};
+}
+
+std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
+
+const char* presets[] = {"bass-booster-9v.toml", "clean-preamp-18v.toml", "phantom-mic-follower.toml"};
+}  // namespace
+
+TEST_CASE("bias --json follows the contract on every preset") {
+  // Contract: DESIGN.md, "Machine-readable output".
+  for (const char* p : presets) {
+    CAPTURE(p);
+    const result r = run({"bias", preset(p), "--json"});
+    REQUIRE(r.status == 0);
+    const nlohmann::json j = nlohmann::json::parse(r.out);
+    for (const char* k : {"vg_v", "vs_v", "vd_v", "vgs_v", "vds_v", "id_a", "region"}) {
+      CAPTURE(k);
+      CHECK(j["operating_point"].contains(k));
+    }
+    CHECK(j["operating_point"]["region"] == "saturation");
+    for (const char* k : {"gm_s", "gds_s", "gain_midband_db", "zin_ohm", "zout_ohm"}) {
+      CAPTURE(k);
+      CHECK(j["small_signal"][k].is_number());
+    }
+    CHECK(j["headroom"]["symmetric_output_vpk"].get<double>() > 0.0);
+  }
+}
+
+TEST_CASE("bias prints a grouped report and --at adds reactances") {
+  const result r = run({"bias", preset("bass-booster-9v.toml"), "--at", "41"});
+  REQUIRE(r.status == 0);
+  for (const char* part : {"Operating point", "Small signal", "Headroom", "Low-frequency corners", "Capacitors at 41.0 Hz",
+                           "Warnings"}) {
+    CAPTURE(part);
+    CHECK(r.out.find(part) != std::string::npos);
+  }
+}
+
+TEST_CASE("tune --json lists the exact value and standard candidates") {
+  // Contract: DESIGN.md, "Machine-readable output" for tune.
+  const result r = run({"tune", preset("bass-booster-9v.toml"), "--target", "vd=4.5", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["adjust"] == "source.resistor");
+  CHECK(j["exact_ohm"].get<double>() > 0.0);
+  REQUIRE(j["candidates"].size() == 2);
+  for (const auto& c : j["candidates"]) {
+    CHECK(c["series"] == "E24");
+    CHECK(c["operating_point"].contains("vd_v"));
+  }
+  CHECK(j["exact"]["operating_point"]["vd_v"].get<double>() == doctest::Approx(4.5).epsilon(1e-9));
+}
+
+TEST_CASE("response --json follows the contract and --plot writes an SVG") {
+  // Contract: DESIGN.md, "Machine-readable output" for response.
+  const std::string svg = (std::filesystem::temp_directory_path() / "pinchoff_cli_response.svg").string();
+  const result r = run({"response", preset("clean-preamp-18v.toml"), "--json", "--points", "30", "--plot", svg});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["midband_gain_db"].is_number());
+  CHECK(j["corners_hz"].size() >= 2);
+  REQUIRE(j["points"].size() == 30);
+  for (const char* k : {"frequency_hz", "magnitude_db", "phase_deg"}) CHECK(j["points"][0].contains(k));
+  CHECK(std::filesystem::file_size(svg) > 1000);
+  std::filesystem::remove(svg);
+}
+
+TEST_CASE("fit --json follows the contract") {
+  // Contract: DESIGN.md, "Machine-readable output" for fit. Readings from Shockley's
+  // equation for IDSS 5 mA, VP -2 V (closed form): 5, 2.8125, 1.25, 0.3125 mA.
+  const auto path = std::filesystem::temp_directory_path() / "pinchoff_cli_fit.csv";
+  {
+    std::ofstream(path) << "vgs_v,id_a\n0,5m\n-0.5,2.8125m\n-1,1.25m\n-1.5,0.3125m\n";
+  }
+  const result r = run({"fit", path.string(), "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6));
+  CHECK(j["vp_v"].get<double>() == doctest::Approx(-2.0).epsilon(1e-6));
+  CHECK(j["std_errors"].contains("idss_a"));
+  CHECK(j["rows"].size() == 4);
+  {
+    std::ofstream(path) << "vgs_v,id_a\n0,5m\n-0.5,lots\n";
+  }
+  const result bad = run({"fit", path.string()});
+  CHECK(bad.status == 2);
+  CHECK(bad.err.find(":3:") != std::string::npos);
+  {
+    std::ofstream(path) << "vgs,id_a\n0,5m\n";
+  }
+  CHECK(run({"fit", path.string()}).status == 2);
+  std::filesystem::remove(path);
+}
+
+TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
+  const std::vector<std::vector<std::string>> cases{
+      {"bias", preset("missing.toml")},
+      {"bias"},
+      {"bias", preset("bass-booster-9v.toml"), "--set", "drain.resistor=oops"},
+      {"bias", preset("bass-booster-9v.toml"), "--at", "fast"},
+      {"tune", preset("bass-booster-9v.toml"), "--target", "vd=40"},
+      {"tune", preset("bass-booster-9v.toml"), "--target", "vd=4.5", "--series", "E7"},
+      {"tune", preset("bass-booster-9v.toml"), "--target", "vd=4.5", "--adjust", "drain.resistr"},
+      {"tune", preset("bass-booster-9v.toml")},
+      {"frobnicate"},
+      {"bias", preset("bass-booster-9v.toml"), "--no-such-option"},
+      {"response", preset("bass-booster-9v.toml"), "--from", "1k", "--to", "10"},
+      {"response", preset("bass-booster-9v.toml"), "--plot", "/nonexistent-folder/r.svg"},
+  };
+  for (const auto& args : cases) {
+    CAPTURE(args.size() > 1 ? args[1] : args[0]);
+    CAPTURE(args.back());
+    const result r = run(args);
+    CHECK(r.status == 2);
+    CHECK(r.out.empty());
+    CHECK_FALSE(r.err.empty());
+  }
+}
+
+TEST_CASE("help teaches by example and exits 0") {
+  for (const char* cmd : {"bias", "tune", "response", "fit"}) {
+    CAPTURE(cmd);
+    const result r = run({cmd, "--help"});
+    CHECK(r.status == 0);
+    CHECK(r.out.find("Examples:") != std::string::npos);
+  }
+  const result top = run({"--help"});
+  CHECK(top.status == 0);
+  CHECK(top.out.find("bias") != std::string::npos);
+}
