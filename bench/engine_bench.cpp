@@ -19,6 +19,7 @@
 #include "model/operating_point.hpp"
 #include "model/stage_file.hpp"
 #include "model/transient_reference.hpp"
+#include "bench/benches.hpp"
 
 namespace {
 
@@ -54,14 +55,14 @@ double best_seconds(int repeats, F&& run) {
 
 }  // namespace
 
-int main() {
+void bench_engine() {
   std::vector<std::filesystem::path> presets;
   for (const auto& e : std::filesystem::directory_iterator(PINCHOFF_PRESETS_DIR))
     if (e.path().extension() == ".toml") presets.push_back(e.path());
   std::sort(presets.begin(), presets.end());
   if (presets.empty()) {
-    std::fprintf(stderr, "no presets found\n");
-    return 1;
+    std::printf("engine: no presets found\n");
+    return;
   }
 
   std::printf("DK engine, %g kHz x %d = %g kHz, %g Hz sine; thread CPU time, best of 30 blocks of 0.1 s of audio\n",
@@ -101,6 +102,5 @@ int main() {
                   ns_ref / ns_engine, std::isfinite(sink) ? "" : " (non-finite output!)");
     }
   }
-  std::printf("\nslowest case: %.1fx real time (target 30x, aim 50x)\n", worst_rt);
-  return 0;
+  std::printf("\nslowest case: %.1fx real time (target 30x, aim 50x)\n\n", worst_rt);
 }

@@ -8,5 +8,6 @@
 int main() {
   std::printf("pinchoff benchmarks\n\n");
   bench_oversampler();
+  bench_engine();
   return 0;
 }
