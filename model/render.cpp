@@ -40,6 +40,10 @@ std::size_t channel_renderer::run(std::span<const double> in_v, std::span<double
     engine_.process(high, high);
     for (double& y : high) y -= rest_v_;
     os_.downsample(high, low);
+    for (double y : low)
+      if (!std::isfinite(y))
+        throw internal_error("the engine's output became non-finite after " + std::to_string(engine_.stats().failed) +
+                             " samples whose Newton solve failed; the render is abandoned");
     const std::size_t skip = static_cast<std::size_t>(std::min<long long>(to_skip_, static_cast<long long>(n)));
     to_skip_ -= static_cast<long long>(skip);
     std::copy(low.begin() + static_cast<std::ptrdiff_t>(skip), low.end(), out_v.begin() + static_cast<std::ptrdiff_t>(written));
