@@ -9,5 +9,6 @@ int main() {
   std::printf("pinchoff benchmarks\n\n");
   bench_oversampler();
   bench_engine();
+  bench_render();
   return 0;
 }

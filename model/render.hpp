@@ -131,7 +131,8 @@ struct output_report {
   std::string name;              ///< the stage's name, or "dry"
   bool is_dry{false};
   double scale{0};               ///< full scale per volt at the load (dry: per generator volt)
-  /// Measured on the values written (before integer rounding); -infinity when silent
+  /// Of the values written (before integer rounding; in two passes, the first pass's figures
+  /// scaled by `scale`); -infinity when silent
   /// (no 400 ms block above BS.1770's absolute gate).
   double loudness_lufs{0};
   double sample_peak{0};         ///< ratio to full scale
