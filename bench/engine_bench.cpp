@@ -1,0 +1,106 @@
+// Engine speed: for each preset and a few drive levels, the DK engine's cost per
+// oversampled sample, the real-time factor for 48 kHz mono at 8x oversampling on one core,
+// Newton evaluations per sample, and the speed-up over the nodal reference solver.
+// Figures are ratios where the machine's speed cancels (real-time factor, speed-up); the
+// nanoseconds are printed for context. Timings are the thread's CPU time (time spent
+// waiting for a core on a shared machine is not counted), best of many short repeats.
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <numbers>
+#include <string>
+#include <vector>
+
+#include <time.h>
+
+#include "bench/benches.hpp"
+#include "model/dk_engine.hpp"
+#include "model/network.hpp"
+#include "model/operating_point.hpp"
+#include "model/stage_file.hpp"
+#include "model/transient_reference.hpp"
+
+namespace {
+
+using namespace pinchoff;
+
+constexpr double base_rate_hz = 48000.0;
+constexpr int oversampling = 8;
+constexpr double rate_hz = base_rate_hz * oversampling;
+constexpr double tone_hz = 1000.0;
+
+std::vector<double> tone(double amplitude_v, std::size_t n) {
+  std::vector<double> u(n);
+  for (std::size_t k = 0; k < n; ++k) u[k] = amplitude_v * std::sin(2.0 * std::numbers::pi * tone_hz * double(k) / rate_hz);
+  return u;
+}
+
+double thread_seconds() {
+  timespec t{};
+  clock_gettime(CLOCK_THREAD_CPUTIME_ID, &t);
+  return double(t.tv_sec) + 1e-9 * double(t.tv_nsec);
+}
+
+template <class F>
+double best_seconds(int repeats, F&& run) {
+  double best = 1e300;
+  for (int r = 0; r < repeats; ++r) {
+    const double t0 = thread_seconds();
+    run();
+    best = std::min(best, thread_seconds() - t0);
+  }
+  return best;
+}
+
+}  // namespace
+
+void bench_engine() {
+  std::vector<std::filesystem::path> presets;
+  for (const auto& e : std::filesystem::directory_iterator(PINCHOFF_PRESETS_DIR))
+    if (e.path().extension() == ".toml") presets.push_back(e.path());
+  std::sort(presets.begin(), presets.end());
+  if (presets.empty()) {
+    std::printf("engine: no presets found in %s\n", PINCHOFF_PRESETS_DIR);
+    return;
+  }
+
+  std::printf("DK engine, %g kHz x %d = %g kHz, %g Hz sine; thread CPU time, best of 30 blocks of 0.1 s of audio\n",
+              base_rate_hz / 1000, oversampling, rate_hz / 1000, tone_hz);
+  std::printf("(engine) and of 3 runs of 20000 samples (reference). realtime = audio time / engine time.\n\n");
+  std::printf("%-28s %7s %6s %8s %9s %8s %6s %7s %9s\n", "preset", "drive", "states", "ns/smp", "realtime", "iter/smp",
+              "max", "failed", "speed-up");
+  const std::size_t n_engine = static_cast<std::size_t>(rate_hz / 10);  // 0.1 s of audio
+  const std::size_t n_reference = 20000;
+  double worst_rt = 1e300;
+  for (const auto& path : presets) {
+    const model::network net = model::build_network(model::read_stage_file(path));
+    const model::operating_point op = model::solve_operating_point(net);
+    for (double drive : {0.1, 1.0, 10.0}) {
+      const std::vector<double> u = tone(drive, n_engine);
+      std::vector<double> y(n_engine);
+      model::dk_engine eng(net, op, rate_hz);
+      double sink = 0.0;
+      eng.process(u, y);  // a first block from the DC point, untimed
+      const double t_engine = best_seconds(30, [&] {
+        eng.process(u, y);  // continues the same sine (0.1 s holds 100 whole periods)
+        sink += y.back();
+      });
+      const model::dk_stats st = eng.stats();  // all 31 blocks
+      const double t_ref = best_seconds(3, [&] {
+        model::transient_reference ref(net, op, rate_hz);
+        for (std::size_t k = 0; k < n_reference; ++k) sink += ref.process(u[k]);
+      });
+      const double ns_engine = 1e9 * t_engine / double(n_engine);
+      const double ns_ref = 1e9 * t_ref / double(n_reference);
+      const double realtime = 1e9 / rate_hz / ns_engine;
+      worst_rt = std::min(worst_rt, realtime);
+      char drive_text[32];
+      std::snprintf(drive_text, sizeof drive_text, "%gVpk", drive);
+      std::printf("%-28s %7s %6d %8.1f %8.1fx %8.3f %6d %7lld %8.1fx%s\n", path.stem().string().c_str(), drive_text,
+                  eng.states(), ns_engine, realtime, st.mean_evaluations(), st.max_evaluations, st.failed,
+                  ns_ref / ns_engine, std::isfinite(sink) ? "" : " (non-finite output!)");
+    }
+  }
+  std::printf("\nslowest case: %.1fx real time (target 30x, aim 50x)\n", worst_rt);
+}

@@ -1,0 +1,501 @@
+#include "model/dk_engine.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <string>
+
+#include "dsp/error.hpp"
+
+namespace pinchoff::model {
+namespace {
+
+inline int row(int node) noexcept { return node - 1; }
+
+template <class V>
+double max_abs(const V& v) {
+  return v.size() ? v.cwiseAbs().maxCoeff() : 0.0;
+}
+
+// The stacked state update W [x; u; i] in two parts, with compile-time sizes where the
+// state count allows: the x and u columns before the sample's Newton solve (independent
+// of it, so the processor overlaps the two), the three current columns after it (a short
+// chain to the next sample's p). Column-major, rows padded to even, so Eigen's
+// coefficient-based product runs in whole SIMD packets.
+constexpr int padded_rows(int ns) noexcept { return (ns + 3 + 1) & ~1; }
+
+template <int NS>
+inline void update_before_fixed(const double* w, const double* in, double* pre, int) noexcept {
+  constexpr int rows = padded_rows(NS);
+  using w_type = Eigen::Matrix<double, rows, NS + 5>;
+  const Eigen::Map<const w_type> wm(w);
+  const Eigen::Map<const Eigen::Matrix<double, NS + 2, 1>> xu(in);
+  Eigen::Map<Eigen::Matrix<double, rows, 1>> o(pre);
+  // Coefficient-based: Eigen would otherwise call its general GEMV for these sizes.
+  o.noalias() = wm.template leftCols<NS + 2>().lazyProduct(xu);
+}
+
+template <int NS>
+inline void update_after_fixed(const double* w, double* in, const double* pre, double* out, int) noexcept {
+  constexpr int rows = padded_rows(NS);
+  using w_type = Eigen::Matrix<double, rows, NS + 5>;
+  const Eigen::Map<const w_type> wm(w);
+  Eigen::Map<Eigen::Matrix<double, NS + 5, 1>> x(in);
+  const Eigen::Map<const Eigen::Matrix<double, rows, 1>> b(pre);
+  Eigen::Map<Eigen::Matrix<double, rows, 1>> o(out);
+  o.noalias() = b + wm.template rightCols<3>().lazyProduct(x.template tail<3>());
+  x.template head<NS>() += o.template head<NS>();
+}
+
+void update_before_dynamic(const double* w, const double* in, double* pre, int ns) noexcept {
+  const Eigen::Map<const Eigen::MatrixXd> wm(w, padded_rows(ns), ns + 5);
+  const Eigen::Map<const Eigen::VectorXd> xu(in, ns + 2);
+  Eigen::Map<Eigen::VectorXd> o(pre, padded_rows(ns));
+  o.noalias() = wm.leftCols(ns + 2) * xu;
+}
+
+void update_after_dynamic(const double* w, double* in, const double* pre, double* out, int ns) noexcept {
+  const Eigen::Map<const Eigen::MatrixXd> wm(w, padded_rows(ns), ns + 5);
+  Eigen::Map<Eigen::VectorXd> x(in, ns + 5);
+  const Eigen::Map<const Eigen::VectorXd> b(pre, padded_rows(ns));
+  Eigen::Map<Eigen::VectorXd> o(out, padded_rows(ns));
+  o.noalias() = b + wm.rightCols(3) * x.tail(3);
+  x.head(ns) += o.head(ns);
+}
+
+// Dispatch on the state count inside the sample loop: a switch the branch predictor always
+// gets right, with each case inlined (an indirect call would cost more than the product).
+#define PINCHOFF_DK_DISPATCH(fixed, dynamic, ...) \
+  switch (ns) {                                   \
+    case 0: fixed<0>(__VA_ARGS__); break;         \
+    case 1: fixed<1>(__VA_ARGS__); break;         \
+    case 2: fixed<2>(__VA_ARGS__); break;         \
+    case 3: fixed<3>(__VA_ARGS__); break;         \
+    case 4: fixed<4>(__VA_ARGS__); break;         \
+    case 5: fixed<5>(__VA_ARGS__); break;         \
+    case 6: fixed<6>(__VA_ARGS__); break;         \
+    case 7: fixed<7>(__VA_ARGS__); break;         \
+    case 8: fixed<8>(__VA_ARGS__); break;         \
+    default: dynamic(__VA_ARGS__); break;         \
+  }
+
+}  // namespace
+
+dk_matrices discretise(const network& net, double sample_rate_hz) {
+  if (!(sample_rate_hz > 0.0) || !std::isfinite(sample_rate_hz))
+    throw internal_error("discretise: the sample rate must be a positive number of hertz");
+  const double t = 1.0 / sample_rate_hz;
+  const int ns = static_cast<int>(net.capacitors.size());
+
+  // S: resistors, companion conductances 2C/T and the two sources (supply first, then the
+  // generator: branch unknowns nu and nu + 1, as assemble_linear orders them).
+  std::vector<cap_treatment> caps(net.capacitors.size());
+  for (std::size_t k = 0; k < caps.size(); ++k)
+    caps[k] = {cap_treatment::kind::companion, 0.0, 2.0 * net.capacitors[k].farad / t, 0.0};
+  const mna_system lin = assemble_linear(net, caps, 0.0, 0.0);
+  const int n = static_cast<int>(lin.a.rows());
+  const int nu = lin.node_unknowns;
+
+  // Right-hand sides: S z = Nx q + Nu u - Nl i.
+  Eigen::MatrixXd rhs = Eigen::MatrixXd::Zero(n, ns + 5);
+  for (int k = 0; k < ns; ++k) {
+    const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
+    const double g = caps[static_cast<std::size_t>(k)].g_s;
+    // Companion branch current a -> b is G v - G q: the source G q enters at a.
+    if (c.a != 0) rhs(row(c.a), k) += g;
+    if (c.b != 0) rhs(row(c.b), k) -= g;
+  }
+  rhs(nu, ns) = 1.0;
+  rhs(nu + 1, ns + 1) = 1.0;
+  // Device currents leave these nodes: igs gate -> source, igd gate -> drain, id drain -> source.
+  auto leave = [&](int node, int col, double s) {
+    if (node != 0) rhs(row(node), ns + 2 + col) -= s;  // minus: -Nl i
+  };
+  leave(net.gate, 0, 1.0);
+  leave(net.source, 0, -1.0);
+  leave(net.gate, 1, 1.0);
+  leave(net.drain, 1, -1.0);
+  leave(net.drain, 2, 1.0);
+  leave(net.source, 2, -1.0);
+
+  // S^-1 [Nx Nu -Nl] in extended precision, with one refinement step, then rounded: the
+  // states are history voltages of the order of the supply, and the outputs (a coupled
+  // output sits at 0 V) are differences of them, so rounding in these matrices shows
+  // directly as an output offset (about 1e-10 V with a plain double solve).
+  using matrix_ld = Eigen::Matrix<long double, Eigen::Dynamic, Eigen::Dynamic>;
+  const matrix_ld s_ld = lin.a.cast<long double>();
+  const matrix_ld rhs_ld = rhs.cast<long double>();
+  const Eigen::FullPivLU<matrix_ld> lu(s_ld);
+  dk_matrices m;
+  m.states = ns;
+  m.sample_rate_hz = sample_rate_hz;
+  m.rcond = lu.isInvertible() ? static_cast<double>(lu.rcond()) : 0.0;
+  if (!(m.rcond >= 1e-15))
+    throw internal_error("the stage's network matrix at " + std::to_string(sample_rate_hz) +
+                         " Hz is singular or too ill-conditioned (rcond " + std::to_string(m.rcond) + ")");
+  matrix_ld z_ld = lu.solve(rhs_ld);
+  z_ld += lu.solve(matrix_ld(rhs_ld - s_ld * z_ld));
+  const Eigen::MatrixXd z = z_ld.cast<double>();  // n x (ns + 5): columns q, u, i
+
+  auto diff = [&](int a, int b) -> Eigen::RowVectorXd {
+    Eigen::RowVectorXd r = Eigen::RowVectorXd::Zero(ns + 5);
+    if (a != 0) r += z.row(row(a));
+    if (b != 0) r -= z.row(row(b));
+    return r;
+  };
+  // Capacitor voltages v_n = Nc z; q_n = 2 v_n - q_{n-1}.
+  Eigen::MatrixXd vc(ns, ns + 5);
+  for (int k = 0; k < ns; ++k) {
+    const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
+    vc.row(k) = diff(c.a, c.b);
+  }
+  m.a = 2.0 * vc.leftCols(ns) - Eigen::MatrixXd::Identity(ns, ns);
+  m.b = 2.0 * vc.middleCols(ns, 2);
+  m.c = 2.0 * vc.rightCols(3);
+
+  const Eigen::RowVectorXd vgs = diff(net.gate, net.source);
+  const Eigen::RowVectorXd vds = diff(net.drain, net.source);
+  m.d.resize(2, ns);
+  m.d.row(0) = vgs.head(ns);
+  m.d.row(1) = vds.head(ns);
+  m.e.row(0) = vgs.segment(ns, 2);
+  m.e.row(1) = vds.segment(ns, 2);
+  m.f.row(0) = vgs.tail(3);
+  m.f.row(1) = vds.tail(3);
+
+  const Eigen::RowVectorXd out = diff(net.output_node, 0);
+  m.d_out = out.head(ns);
+  m.e_out = out.segment(ns, 2);
+  m.f_out = out.tail(3);
+  return m;
+}
+
+Eigen::VectorXd dc_states(const network& net, const Eigen::VectorXd& x) {
+  Eigen::VectorXd q(static_cast<Eigen::Index>(net.capacitors.size()));
+  for (std::size_t k = 0; k < net.capacitors.size(); ++k)
+    q[static_cast<Eigen::Index>(k)] = node_v(x, net.capacitors[k].a) - node_v(x, net.capacitors[k].b);
+  return q;
+}
+
+dk_engine::dk_engine(const network& net, const operating_point& op, double sample_rate_hz, const dk_options& opt)
+    : m_(discretise(net, sample_rate_hz)), opt_(opt) {
+  init(net, op);
+}
+
+dk_engine::dk_engine(const network& net, double sample_rate_hz, const dk_options& opt)
+    : m_(discretise(net, sample_rate_hz)), opt_(opt) {
+  init(net, solve_operating_point(net));
+}
+
+void dk_engine::init(const network& net, const operating_point& op) {
+  if (opt_.max_iterations < 1 || opt_.max_iterations > 1000)
+    throw internal_error("dk_options: max_iterations must be 1..1000");
+  if (!(opt_.tol_v > 0.0)) throw internal_error("dk_options: tol_v must be above 0 V");
+  if (opt_.max_substep_levels < 0 || opt_.max_substep_levels > 16)
+    throw internal_error("dk_options: max_substep_levels must be 0..16");
+  if (opt_.predictor_order < 0 || opt_.predictor_order > 3)
+    throw internal_error("dk_options: predictor_order must be 0..3");
+  static constexpr double weights[4][4] = {{1, 0, 0, 0}, {2, -1, 0, 0}, {3, -3, 1, 0}, {4, -6, 4, -1}};
+  for (int k = 0; k < 4; ++k) pred_[static_cast<std::size_t>(k)] = weights[opt_.predictor_order][k];
+
+  dev_ = detail::device_consts::of(net.device, net.vt_v);
+  sign_ = net.sign;
+  supply_v_ = net.supply_v;
+  f_abs_ = m_.f.cwiseAbs();
+  const int ns = m_.states;
+
+  // The state rows hold the increment x_n - x_{n-1} = (A - I) x_{n-1} + B u + C i: near a
+  // fixed point the terms of a slow mode are then small, and so is their rounding, which
+  // that mode would otherwise integrate over tau/T samples (a drift of up to 1e-10 V).
+  w_ = Eigen::MatrixXd::Zero(padded_rows(ns), ns + 5);
+  w_.topRows(ns) << m_.a - Eigen::MatrixXd::Identity(ns, ns), m_.b, m_.c;
+  w_.middleRows(ns, 2) << m_.d * m_.a, m_.d * m_.b, m_.d * m_.c;
+  w_.row(ns + 2) << m_.d_out, m_.e_out, m_.f_out;
+  in_ = Eigen::VectorXd::Zero(ns + 5);
+  out_ = Eigen::VectorXd::Zero(padded_rows(ns));
+  pre_ = Eigen::VectorXd::Zero(padded_rows(ns));
+
+  phi_.resize(ns, ns);
+  tmp_.resize(ns, ns);
+  cj_.resize(ns, 2);
+  md_.resize(2, ns);
+
+  // DC point: states from the operating point, then a few Newton steps on the engine's own
+  // fixed-point equations q = A q + B u + C i(v), v = D q + E u + F i(v) so that silence
+  // in gives exactly constant samples out (removes the DC solve's rounding only).
+  const Eigen::Vector2d u(supply_v_, 0.0);
+  Eigen::VectorXd q = dc_states(net, op.x);
+  Eigen::Vector2d v(node_v(op.x, net.gate) - node_v(op.x, net.source), node_v(op.x, net.drain) - node_v(op.x, net.source));
+  {
+    Eigen::VectorXd qp = q;
+    Eigen::Vector2d vp = v;
+    Eigen::MatrixXd jac(ns + 2, ns + 2);
+    Eigen::VectorXd g(ns + 2);
+    bool ok = false;
+    for (int it = 0; it < 20; ++it) {
+      const port_point pt = point_at(vp);
+      g.head(ns) = (m_.a - Eigen::MatrixXd::Identity(ns, ns)) * qp + m_.b * u + m_.c * pt.i;
+      g.tail(2) = m_.d * qp + m_.e * u + m_.f * pt.i - vp;
+      jac.topLeftCorner(ns, ns) = m_.a - Eigen::MatrixXd::Identity(ns, ns);
+      jac.topRightCorner(ns, 2) = m_.c * pt.jf;
+      jac.bottomLeftCorner(2, ns) = m_.d;
+      jac.bottomRightCorner(2, 2) = m_.f * pt.jf - Eigen::Matrix2d::Identity();
+      const Eigen::FullPivLU<Eigen::MatrixXd> lu(jac);
+      if (!lu.isInvertible()) break;
+      const Eigen::VectorXd delta = lu.solve(-g);
+      if (!delta.allFinite()) break;
+      qp += delta.head(ns);
+      vp += delta.tail(2);
+      if (max_abs(delta) <= 1e-15 * (1.0 + max_abs(qp) + max_abs(vp))) {
+        ok = true;
+        break;
+      }
+    }
+    // Only rounding is to be removed: a larger move means the equations disagree.
+    if (ok && max_abs(Eigen::VectorXd(qp - q)) <= 1e-6 && max_abs(Eigen::Vector2d(vp - v)) <= 1e-6) {
+      q = qp;
+      v = vp;
+    }
+  }
+  x_dc_ = q;
+  dc_point_ = point_at(v);
+  p_dc_ = m_.d * q + m_.e * u;
+  y_dc_ = sign_ * (m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(dc_point_.i));
+  reset();
+}
+
+dk_engine::port_point dk_engine::point_at(const Eigen::Vector2d& v) const noexcept {
+  const detail::port_currents c = detail::evaluate_ports(dev_, v[0], v[1]);
+  port_point pt;
+  pt.v = v;
+  pt.i << c.igs_a, c.igd_a, c.id_a;
+  pt.jf << c.ggs_s, 0.0, c.ggd_s, -c.ggd_s, c.gm_s, c.gds_s;
+  const Eigen::Matrix2d j = Eigen::Matrix2d::Identity() - m_.f * pt.jf;
+  pt.m = j.inverse();
+  return pt;
+}
+
+void dk_engine::reset() {
+  const int ns = m_.states;
+  in_.head(ns) = x_dc_;
+  in_[ns] = supply_v_;
+  in_[ns + 1] = 0.0;
+  in_.tail(3) = dc_point_.i;
+  q_ = m_.d * x_dc_;
+  last_ = dc_point_;
+  p_last_ = p_dc_;
+  v_hist_.fill(dc_point_.v);
+  p_hist_.fill(p_dc_);
+  stats_ = {};
+}
+
+Eigen::VectorXd dk_engine::state() const { return in_.head(m_.states); }
+
+void dk_engine::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
+  if (x.size() != m_.states) throw internal_error("dk_engine::set_state: wrong number of states");
+  in_.head(m_.states) = x;
+  q_ = m_.d * x;
+}
+
+// Newton on r(v) = p + F i(v) - v = 0, from `guess`.
+//
+// Acceptance (both the step and the residual): after the step dv computed at v, the
+// device currents at v + dv differ from their linearisation i(v) + Jf dv by at most the
+// Taylor remainder R: for a junction is e^(v/nVt)(e^x - 1 - x), x = dv/nVt, which is below
+// 0.505 g dv^2 / nVt for |x| <= 0.01; for the channel h (|dv0| + 2|dv1|)^2 / 2 (see
+// dk_device.hpp). The residual at v + dv is then at most |F| R and the distance to the
+// exact solution at most |(I - F Jf)^-1| |F| R (the Newton-Kantorovich argument; Ortega &
+// Rheinboldt 1970, 12.6). Both bounds must be below tol_v; the accepted currents are the
+// linearised ones, which satisfy v + dv = p + F i exactly. This is the "accept on a tiny
+// step" of quadratic convergence with the step size made precise, not a looser test.
+bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out,
+                            int& evals) noexcept {
+  const Eigen::Matrix<double, 2, 3>& f = m_.f;
+  const double tol = opt_.tol_v;
+  const double small_junction_step = 0.01 * dev_.nvt_v;
+  double v0 = guess[0], v1 = guess[1];
+  double base0 = v0, base1 = v1, step0 = 0.0, step1 = 0.0;
+  double rn_base = std::numeric_limits<double>::infinity();
+  bool may_damp = false;
+  int halvings = 0;
+  for (int k = 0; k < opt_.max_iterations; ++k) {
+    const detail::port_currents c = detail::evaluate_ports(dev_, v0, v1);
+    ++evals;
+    const double r0 = p[0] + f(0, 0) * c.igs_a + f(0, 1) * c.igd_a + f(0, 2) * c.id_a - v0;
+    const double r1 = p[1] + f(1, 0) * c.igs_a + f(1, 1) * c.igd_a + f(1, 2) * c.id_a - v1;
+    const double rn = std::max(std::fabs(r0), std::fabs(r1));
+    // Damped Newton: halve a step that made the residual grow (or not finite).
+    if (may_damp && !(rn <= rn_base) && !(rn <= tol) && halvings < 30) {
+      step0 *= 0.5;
+      step1 *= 0.5;
+      v0 = base0 + step0;
+      v1 = base1 + step1;
+      ++halvings;
+      continue;
+    }
+    if (!std::isfinite(rn)) return false;
+
+    // J = F Jf - I with Jf = [[ggs, 0], [ggd, -ggd], [gm, gds]]; M = -J^-1 = (I - F Jf)^-1.
+    const double j00 = f(0, 0) * c.ggs_s + f(0, 1) * c.ggd_s + f(0, 2) * c.gm_s - 1.0;
+    const double j01 = -f(0, 1) * c.ggd_s + f(0, 2) * c.gds_s;
+    const double j10 = f(1, 0) * c.ggs_s + f(1, 1) * c.ggd_s + f(1, 2) * c.gm_s;
+    const double j11 = -f(1, 1) * c.ggd_s + f(1, 2) * c.gds_s - 1.0;
+    const double det = j00 * j11 - j01 * j10;
+    if (!(std::fabs(det) > 1e-200)) return false;
+    const double inv = 1.0 / det;
+    const double m00 = -j11 * inv, m01 = j01 * inv, m10 = j10 * inv, m11 = -j00 * inv;
+    double d0 = m00 * r0 + m01 * r1;
+    double d1 = m10 * r0 + m11 * r1;
+
+    // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) scales the whole step.
+    bool limited = false;
+    {
+      const double gs_old = v0, gd_old = v0 - v1;
+      const double gs_new = gs_old + d0, gd_new = gd_old + d0 - d1;
+      if (gs_new > dev_.vcrit_v || gd_new > dev_.vcrit_v) {
+        double alpha = 1.0;
+        const double ls = limit_junction(gs_new, gs_old, dev_.nvt_v, dev_.vcrit_v);
+        if (ls != gs_new) alpha = std::min(alpha, std::max(1e-3, (ls - gs_old) / (gs_new - gs_old)));
+        const double ld = limit_junction(gd_new, gd_old, dev_.nvt_v, dev_.vcrit_v);
+        if (ld != gd_new) alpha = std::min(alpha, std::max(1e-3, (ld - gd_old) / (gd_new - gd_old)));
+        if (alpha < 1.0) {
+          d0 *= alpha;
+          d1 *= alpha;
+          limited = true;
+        }
+      }
+    }
+
+    const double dgs = d0, dgd = d0 - d1;
+    if (!limited && std::fabs(dgs) <= small_junction_step && std::fabs(dgd) <= small_junction_step) {
+      const double s = std::fabs(d0) + 2.0 * std::fabs(d1);
+      const double rgs = 0.505 * c.ggs_s * dev_.inv_nvt * dgs * dgs;
+      const double rgd = 0.505 * c.ggd_s * dev_.inv_nvt * dgd * dgd;
+      const double rd = 0.5 * detail::channel_curvature_bound(dev_, v0, v1) * s * s;
+      const double t0 = f_abs_(0, 0) * rgs + f_abs_(0, 1) * rgd + f_abs_(0, 2) * rd;
+      const double t1 = f_abs_(1, 0) * rgs + f_abs_(1, 1) * rgd + f_abs_(1, 2) * rd;
+      const double e0 = std::fabs(m00) * t0 + std::fabs(m01) * t1;
+      const double e1 = std::fabs(m10) * t0 + std::fabs(m11) * t1;
+      if (std::max(t0, t1) <= tol && std::max(e0, e1) <= tol) {
+        const double a0 = v0 + d0, a1 = v1 + d1;
+        if (opt_.confirm) {
+          const detail::port_currents cc = detail::evaluate_ports(dev_, a0, a1);
+          ++evals;
+          const double q0 = p[0] + f(0, 0) * cc.igs_a + f(0, 1) * cc.igd_a + f(0, 2) * cc.id_a - a0;
+          const double q1 = p[1] + f(1, 0) * cc.igs_a + f(1, 1) * cc.igd_a + f(1, 2) * cc.id_a - a1;
+          if (std::max(std::fabs(q0), std::fabs(q1)) > tol) {
+            ++stats_.bound_misses;
+          } else {
+            out.v << a0, a1;
+            out.i << cc.igs_a, cc.igd_a, cc.id_a;
+            out.jf << cc.ggs_s, 0.0, cc.ggd_s, -cc.ggd_s, cc.gm_s, cc.gds_s;
+            out.m << m00, m01, m10, m11;
+            return true;
+          }
+        } else {
+          out.v << a0, a1;
+          out.i << c.igs_a + c.ggs_s * dgs, c.igd_a + c.ggd_s * dgd, c.id_a + c.gm_s * d0 + c.gds_s * d1;
+          out.jf << c.ggs_s, 0.0, c.ggd_s, -c.ggd_s, c.gm_s, c.gds_s;
+          out.m << m00, m01, m10, m11;
+          return true;
+        }
+      }
+    }
+    base0 = v0;
+    base1 = v1;
+    step0 = d0;
+    step1 = d1;
+    rn_base = rn;
+    may_damp = !limited;
+    halvings = 0;
+    v0 += d0;
+    v1 += d1;
+  }
+  return false;
+}
+
+// A sample whose Newton did not converge: the change of p over the sample is split into
+// 2, 4, ... equal parts, each solved from the last (continuation on the input; the
+// equations of the last part are exactly those of the sample, so the result is the same
+// trapezoidal solution a converged direct solve gives). What still fails is held at the
+// previous solution and counted.
+void dk_engine::substep(const Eigen::Vector2d& p, port_point& out, int& evals) noexcept {
+  for (int level = 1; level <= opt_.max_substep_levels; ++level) {
+    const int parts = 1 << level;
+    port_point cur = last_;
+    Eigen::Vector2d pc = p_last_;
+    bool ok = true;
+    for (int j = 1; j <= parts && ok; ++j) {
+      const Eigen::Vector2d pj = j == parts ? p : Eigen::Vector2d(p_last_ + (p - p_last_) * (double(j) / parts));
+      const Eigen::Vector2d guess = cur.v + cur.m * (pj - pc);
+      port_point next;
+      ok = solve_ports(pj, guess, next, evals);
+      if (ok) {
+        cur = next;
+        pc = pj;
+      }
+    }
+    if (ok) {
+      out = cur;
+      ++stats_.substepped;
+      return;
+    }
+  }
+  ++stats_.failed;
+  out = last_;
+}
+
+double dk_engine::process(double generator_v) noexcept {
+  const int ns = m_.states;
+  const double ug = sign_ * generator_v;
+  in_[ns + 1] = ug;
+  PINCHOFF_DK_DISPATCH(update_before_fixed, update_before_dynamic, w_.data(), in_.data(), pre_.data(), ns)
+  const Eigen::Vector2d p = q_ + m_.e.col(0) * supply_v_ + m_.e.col(1) * ug;
+
+  // Warm start: polynomial extrapolation of v, corrected to first order for the part of
+  // the new p the same extrapolation of p misses (v = v(p) is a static map in the DK form,
+  // and last_.m = dv/dp there).
+  const Eigen::Vector2d v_ext = pred_[0] * last_.v + pred_[1] * v_hist_[0] + pred_[2] * v_hist_[1] + pred_[3] * v_hist_[2];
+  const Eigen::Vector2d p_ext = pred_[0] * p_last_ + pred_[1] * p_hist_[0] + pred_[2] * p_hist_[1] + pred_[3] * p_hist_[2];
+  const Eigen::Vector2d guess = v_ext + last_.m * (p - p_ext);
+
+  int evals = 0;
+  port_point pt;
+  if (!solve_ports(p, guess, pt, evals)) substep(p, pt, evals);
+
+  v_hist_[2] = v_hist_[1];
+  v_hist_[1] = v_hist_[0];
+  v_hist_[0] = last_.v;
+  p_hist_[2] = p_hist_[1];
+  p_hist_[1] = p_hist_[0];
+  p_hist_[0] = p_last_;
+  last_ = pt;
+  p_last_ = p;
+
+  in_.tail<3>() = pt.i;
+  PINCHOFF_DK_DISPATCH(update_after_fixed, update_after_dynamic, w_.data(), in_.data(), pre_.data(), out_.data(), ns)
+  q_ = out_.segment<2>(ns);
+
+  ++stats_.samples;
+  stats_.evaluations += evals;
+  stats_.max_evaluations = std::max(stats_.max_evaluations, evals);
+  return sign_ * out_[ns + 2];
+}
+
+void dk_engine::process(std::span<const double> in, std::span<double> out) noexcept {
+  const std::size_t n = std::min(in.size(), out.size());
+  for (std::size_t k = 0; k < n; ++k) out[k] = process(in[k]);
+}
+
+double dk_engine::process_tracked(double generator_v, Eigen::MatrixXd& sensitivity) {
+  const double y = process(generator_v);
+  cj_.noalias() = m_.c * last_.jf;
+  md_.noalias() = last_.m * m_.d;
+  phi_ = m_.a;
+  phi_.noalias() += cj_ * md_;
+  tmp_.noalias() = phi_ * sensitivity;
+  sensitivity = tmp_;
+  return y;
+}
+
+}  // namespace pinchoff::model

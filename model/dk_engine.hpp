@@ -1,0 +1,167 @@
+#pragma once
+// Nonlinear state-space ("DK") engine for one stage: the nodal DK method (Yeh, Abel &
+// Smith, IEEE TASLP 18(4), 2010; Holters & Zölzer, EUSIPCO 2015) on the modified nodal
+// system of the network (Ho, Ruehli & Brennan, IEEE TCAS 22(6), 1975).
+//
+// Resistors, trapezoidal capacitor companions (G = 2C/T) and the two ideal sources are
+// stamped into one constant MNA matrix S, inverted once. The JFET enters through its three
+// currents i = [igs(vgs), igd(vgs - vds), id(vgs, vds)] (an incidence matrix) and is
+// controlled by the two port voltages v = [vgs, vds] (read through another). With
+// u = [supply_v, generator_v] this gives, per sample n,
+//
+//   x_n = A x_{n-1} + B u_n + C i_n
+//   v_n = D x_{n-1} + E u_n + F i_n,   i_n = f(v_n)
+//   y_n = Do x_{n-1} + Eo u_n + Fo i_n
+//
+// and only the 2 port voltages are found by Newton (closed-form 2x2 solves).
+//
+// State: for capacitor k, the trapezoidal history voltage q_k = v_k + i_k / G_k, with the
+// capacitor's voltage v_k and current i_k (a -> b) at the same sample and G_k = 2 C_k / T.
+// The companion of the next sample is then the conductance G_k in series with the voltage
+// q_k (q_{k,n} = 2 v_{k,n} - q_{k,n-1}). At DC (no capacitor current) q_k equals the
+// capacitor voltage, so the states are volts and start at the DC operating point.
+//
+// Everything inside is the n-channel network frame (model/network.hpp); the engine's
+// inputs and outputs are real (bench) signs: network u = sign * real u, real y = sign * y.
+#include <array>
+#include <span>
+
+#include <Eigen/Dense>
+
+#include "model/dk_device.hpp"
+#include "model/network.hpp"
+#include "model/operating_point.hpp"
+
+namespace pinchoff::model {
+
+/// The discretised stage. Sizes: ns states; A ns x ns, B ns x 2, C ns x 3; D 2 x ns, E 2x2,
+/// F 2x3; Do 1 x ns, Eo 1 x 2, Fo 1 x 3. Columns of B/E/Eo: supply, generator (network
+/// volts); of C/F/Fo: igs, igd, id (A). Rows of D/E/F: vgs, vds.
+struct dk_matrices {
+  int states{0};
+  double sample_rate_hz{0};
+  Eigen::MatrixXd a, b, c;
+  Eigen::Matrix<double, 2, Eigen::Dynamic> d;
+  Eigen::Matrix2d e;
+  Eigen::Matrix<double, 2, 3> f;
+  Eigen::RowVectorXd d_out;
+  Eigen::RowVector2d e_out;
+  Eigen::RowVector3d f_out;
+  double rcond{0};  ///< reciprocal condition estimate (1-norm) of the MNA matrix S
+};
+
+/// Builds the matrices for the network at `sample_rate_hz` (> 0). Throws internal_error when
+/// S is singular or too ill-conditioned to trust (rcond < 1e-15).
+dk_matrices discretise(const network& net, double sample_rate_hz);
+
+/// States consistent with a DC network solution `x` (every capacitor current zero): q_k is
+/// capacitor k's voltage. Size: number of capacitors.
+Eigen::VectorXd dc_states(const network& net, const Eigen::VectorXd& x);
+
+struct dk_options {
+  int max_iterations{50};       ///< Newton evaluations per attempt (1..1000)
+  /// Accepted when the bound on the remaining error of the port voltages after the last
+  /// Newton step, and on the residual there, are both below tol_v (see dk_engine.cpp).
+  double tol_v{1e-10};
+  int max_substep_levels{6};    ///< failed samples are retried in 2, 4, ..., 2^levels sub-steps
+  int predictor_order{3};       ///< polynomial extrapolation order of the warm start, 0..3
+  /// Also evaluate the device at every accepted point and require the actual residual to
+  /// be below tol_v (slower; checks the error bound, see dk_stats::bound_misses).
+  bool confirm{false};
+};
+
+struct dk_stats {
+  long long samples{0};
+  long long evaluations{0};      ///< device evaluations (Newton iterations), all attempts
+  int max_evaluations{0};        ///< most in one sample
+  long long substepped{0};       ///< samples that needed sub-steps and then converged
+  long long failed{0};           ///< samples that did not converge even sub-stepped
+  long long bound_misses{0};     ///< confirm mode: accepted points whose residual was too big
+  double mean_evaluations() const noexcept { return samples ? double(evaluations) / double(samples) : 0.0; }
+};
+
+class dk_engine {
+ public:
+  /// Engine for `net` at the (oversampled) rate, starting at the DC operating point `op`.
+  dk_engine(const network& net, const operating_point& op, double sample_rate_hz, const dk_options& opt = {});
+  /// The same, solving the DC operating point first (throws as solve_operating_point does).
+  dk_engine(const network& net, double sample_rate_hz, const dk_options& opt = {});
+
+  /// One sample: generator open-circuit voltage in (real volts, finite), voltage across
+  /// the load out (real volts). Allocates nothing.
+  double process(double generator_v) noexcept;
+  /// A block; in and out may be the same span; sizes must match. Allocates nothing.
+  void process(std::span<const double> in, std::span<double> out) noexcept;
+
+  /// The same as process(), and `sensitivity` <- (d x_n / d x_{n-1}) * sensitivity, the
+  /// per-sample factor of the monodromy matrix (Aprille & Trick 1972) at the converged
+  /// point: A + C Jf (I - F Jf)^-1 D. `sensitivity` is ns x ns.
+  double process_tracked(double generator_v, Eigen::MatrixXd& sensitivity);
+
+  /// Back to the DC operating point, statistics cleared.
+  void reset();
+
+  int states() const noexcept { return m_.states; }
+  /// The state vector (network frame, volts; see the file comment).
+  Eigen::VectorXd state() const;
+  /// Sets the states (size ns); the warm-start history is kept.
+  void set_state(const Eigen::Ref<const Eigen::VectorXd>& x);
+  const Eigen::VectorXd& dc_state() const noexcept { return x_dc_; }
+
+  /// Port voltages (vgs, vds) of the last sample, real signs.
+  Eigen::Vector2d ports_v() const noexcept { return sign_ * last_.v; }
+  /// Network frame (n-channel mirror), as used inside.
+  Eigen::Vector2d ports_network_v() const noexcept { return last_.v; }
+  /// Output (real volts) the DC state gives with the generator at 0 V.
+  double dc_output_v() const noexcept { return y_dc_; }
+
+  const dk_stats& stats() const noexcept { return stats_; }
+  void clear_stats() noexcept { stats_ = {}; }
+  const dk_matrices& matrices() const noexcept { return m_; }
+  const dk_options& options() const noexcept { return opt_; }
+  double sample_rate_hz() const noexcept { return m_.sample_rate_hz; }
+
+ private:
+  // A converged (or last) point of the port equations.
+  // (Members left uninitialised: a temporary of the sample loop.)
+  struct port_point {
+    Eigen::Vector2d v;
+    Eigen::Vector3d i;
+    Eigen::Matrix<double, 3, 2> jf;  ///< di/dv
+    Eigen::Matrix2d m;               ///< dv/dp = (I - F Jf)^-1
+  };
+
+
+  void init(const network& net, const operating_point& op);
+  bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
+  void substep(const Eigen::Vector2d& p, port_point& out, int& evals) noexcept;
+  port_point point_at(const Eigen::Vector2d& v) const noexcept;
+
+  dk_matrices m_;
+  dk_options opt_;
+  detail::device_consts dev_{};
+  double sign_{1.0};
+  double supply_v_{0};              // network frame
+  Eigen::Matrix<double, 2, 3> f_abs_;
+  // Stacked update: [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n], ns + 3 rows, ns + 5 cols.
+  Eigen::MatrixXd w_;  // rows padded to even (a zero row when needed)
+  Eigen::VectorXd in_, out_;        // [x; u; i] and the product
+  Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
+  Eigen::Vector2d q_{Eigen::Vector2d::Zero()};  // D x_{n-1}
+  port_point last_;
+  Eigen::Vector2d p_last_{Eigen::Vector2d::Zero()};
+  std::array<Eigen::Vector2d, 3> v_hist_{};  // v_{n-2}, v_{n-3}, v_{n-4} (v_{n-1} is last_.v)
+  std::array<Eigen::Vector2d, 3> p_hist_{};
+  std::array<double, 4> pred_{};    // extrapolation weights for v_{n-1}..v_{n-4}
+  Eigen::VectorXd x_dc_;
+  port_point dc_point_;
+  Eigen::Vector2d p_dc_{Eigen::Vector2d::Zero()};
+  double y_dc_{0};
+  dk_stats stats_;
+  // Scratch for process_tracked.
+  Eigen::MatrixXd phi_, tmp_;
+  Eigen::Matrix<double, Eigen::Dynamic, 2> cj_;
+  Eigen::Matrix<double, 2, Eigen::Dynamic> md_;
+};
+
+}  // namespace pinchoff::model
