@@ -105,8 +105,8 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
                         if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
                         std::vector<model::requirement> reqs;
                         for (const std::string& r : opt->conditions) reqs.push_back(model::parse_requirement(r));
-                        const model::spread_settings settings = spread_settings_from(opt->batch);
                         const model::stage st = load_stage(opt->input);
+                        const model::spread_settings settings = spread_settings_from(opt->batch, st, opt->input.path);
                         const model::spread_result res = model::run_spread(st, settings, reqs);
 
                         std::vector<std::string> shown{"id", "vd", "vs", "vds", "gain", "swing"};

@@ -91,7 +91,7 @@ void register_tune(CLI::App& app, std::vector<command>& commands) {
                         const dsp::eseries series = dsp::parse_series(opt->series);
                         const model::stage st = load_stage(opt->input);
                         if (opt->over_spread) {
-                          const model::spread_settings ss = spread_settings_from(opt->batch);
+                          const model::spread_settings ss = spread_settings_from(opt->batch, st, opt->input.path);
                           const model::trim_result t = model::size_trimmer(st, opt->adjust, target, ss, series);
                           if (opt->json) {
                             nlohmann::json j;

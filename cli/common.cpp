@@ -39,6 +39,10 @@ namespace pinchoff::cli {
 void add_spread_options(CLI::App& sub, spread_input& in) {
   sub.add_option("--idss", in.idss, "IDSS range of the batch, e.g. 2m..8m")->type_name("LO..HI");
   sub.add_option("--vp", in.vp, "Pinch-off voltage range, either order, e.g. -0.8..-3")->type_name("A..B");
+  sub.add_option("--class", in.device_class,
+                 "Take the IDSS and VP ranges from a device class (presets/devices.toml: low-cutoff, general-purpose, "
+                 "high-current); a stage that names a class uses its ranges by default")
+      ->type_name("NAME");
   sub.add_option("--correlation", in.correlation, "Correlation of IDSS with |VP| (real parts: strongly positive)")
       ->capture_default_str();
   sub.add_option("--tolerance", in.tolerance, "Resistor tolerance, e.g. 5% (applied to every resistor)")->type_name("PCT");
@@ -51,8 +55,16 @@ void add_spread_options(CLI::App& sub, spread_input& in) {
   sub.add_option("--threads", in.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
 }
 
-model::spread_settings spread_settings_from(const spread_input& in) {
+model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const std::string& stage_path) {
   model::spread_settings s;
+  std::optional<model::device_class> cls = st.jfet_class;
+  if (!in.device_class.empty()) cls = model::find_device_class(in.device_class, model::device_file_for(stage_path));
+  if (cls) {
+    const double sign = model::polarity_sign(st);
+    s.idss_a = cls->idss_a;
+    s.vp_v = dsp::value_range{std::min(sign * cls->vp_v.lo, sign * cls->vp_v.hi), std::max(sign * cls->vp_v.lo, sign * cls->vp_v.hi)};
+    s.class_name = cls->name;
+  }
   if (!in.idss.empty()) s.idss_a = dsp::parse_range(in.idss, dsp::unit::ampere, "--idss");
   if (!in.vp.empty()) s.vp_v = dsp::parse_range(in.vp, dsp::unit::volt, "--vp", true);
   if (!in.supply.empty()) s.supply_v = dsp::parse_range(in.supply, dsp::unit::volt, "--supply", true);
@@ -69,6 +81,7 @@ std::string describe_spread(const model::spread_settings& s, const model::stage&
   using dsp::format_si;
   std::string d = std::to_string(s.runs) + " runs, seed " + std::to_string(s.seed) + ": ";
   auto range = [](const dsp::value_range& r, const char* u) { return format_si(r.lo, u) + " to " + format_si(r.hi, u); };
+  if (!s.class_name.empty()) d += "class " + s.class_name + ", ";
   d += "IDSS " + (s.idss_a ? range(*s.idss_a, "A") : format_si(st.jfet.idss_a, "A") + " fixed");
   d += ", VP " + (s.vp_v ? range(*s.vp_v, "V") : format_si(st.jfet.vp_v, "V") + " fixed");
   if (s.idss_a && s.vp_v) d += " (correlation " + dsp::format_number(s.correlation, 2) + ")";

@@ -38,7 +38,7 @@ const char* topology_name(model::topology t) noexcept;
 namespace pinchoff::cli {
 
 struct spread_input {
-  std::string idss, vp, supply, tolerance, distribution{"uniform"};
+  std::string idss, vp, supply, tolerance, distribution{"uniform"}, device_class;
   double correlation{0.7};
   int runs{2000};
   std::uint64_t seed{1};
@@ -46,7 +46,9 @@ struct spread_input {
 };
 
 void add_spread_options(CLI::App& sub, spread_input& in);
-model::spread_settings spread_settings_from(const spread_input& in);
+/// The settings; IDSS and VP ranges come from --idss/--vp, else from --class, else from
+/// the stage's own class (if it names one). `stage_path` locates the class file.
+model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const std::string& stage_path);
 /// One line describing what was varied, for reports.
 std::string describe_spread(const model::spread_settings& s, const model::stage& st);
 

@@ -29,6 +29,7 @@ struct spread_settings {
   int runs{2000};
   std::uint64_t seed{1};
   int threads{0};                ///< 0: one per core
+  std::string class_name;        ///< the device class the ranges came from, if any
 };
 
 /// Checks ranges, correlation and runs; throws input_error naming the option.

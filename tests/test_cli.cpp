@@ -113,6 +113,33 @@ TEST_CASE("fit --json follows the contract") {
   std::filesystem::remove(path);
 }
 
+TEST_CASE("spread --json follows the contract") {
+  // Contract: DESIGN.md, "Machine-readable output" for spread.
+  const result r = run({"spread", preset("bass-booster-9v.toml"), "--idss", "2m..8m", "--vp", "-0.8..-3", "--runs", "200",
+                        "--require", "vd=3.5..6", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["runs"] == 200);
+  CHECK(j["yield"].get<double>() > 0.0);
+  CHECK(j["yield"].get<double>() < 1.0);
+  for (const char* k : {"id_a", "vd_v", "vds_v"}) {
+    CAPTURE(k);
+    for (const char* p : {"p5", "p50", "p95", "min", "max"}) CHECK(j["percentiles"][k][p].is_number());
+  }
+  // The same run again gives the same answer (deterministic for a seed).
+  CHECK(run({"spread", preset("bass-booster-9v.toml"), "--idss", "2m..8m", "--vp", "-0.8..-3", "--runs", "200",
+             "--require", "vd=3.5..6", "--json", "--threads", "1"}).out == r.out);
+}
+
+TEST_CASE("tune --over-spread sizes a trimmer") {
+  const result r = run({"tune", preset("bass-booster-9v.toml"), "--target", "vd=4.5", "--over-spread", "--idss", "2m..8m",
+                        "--vp", "-0.8..-3", "--runs", "100", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["coverage"].get<double>() == 1.0);
+  CHECK(j["fixed_ohm"].get<double>() + j["trimmer_ohm"].get<double>() >= j["range_ohm"]["max"].get<double>());
+}
+
 TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
   const std::vector<std::vector<std::string>> cases{
       {"bias", preset("missing.toml")},
@@ -126,6 +153,12 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
       {"frobnicate"},
       {"bias", preset("bass-booster-9v.toml"), "--no-such-option"},
       {"response", preset("bass-booster-9v.toml"), "--from", "1k", "--to", "10"},
+      {"spread", preset("bass-booster-9v.toml"), "--idss", "8m..2m"},
+      {"spread", preset("bass-booster-9v.toml"), "--vp", "0.8..3"},
+      {"spread", preset("bass-booster-9v.toml"), "--require", "vd=6..3"},
+      {"spread", preset("bass-booster-9v.toml"), "--class", "nonesuch"},
+      {"spread", preset("bass-booster-9v.toml"), "--tolerance", "150%"},
+      {"tune", preset("bass-booster-9v.toml"), "--target", "center", "--over-spread"},
       {"response", preset("bass-booster-9v.toml"), "--plot", "/nonexistent-folder/r.svg"},
   };
   for (const auto& args : cases) {
@@ -139,7 +172,7 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
 }
 
 TEST_CASE("help teaches by example and exits 0") {
-  for (const char* cmd : {"bias", "tune", "response", "fit"}) {
+  for (const char* cmd : {"bias", "tune", "response", "fit", "spread"}) {
     CAPTURE(cmd);
     const result r = run({cmd, "--help"});
     CHECK(r.status == 0);
