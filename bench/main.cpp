@@ -8,5 +8,7 @@
 int main() {
   std::printf("pinchoff benchmarks\n\n");
   bench_oversampler();
+  std::printf("\n");
+  bench_engine();
   return 0;
 }
