@@ -57,10 +57,12 @@ steady_state_result periodic_steady_state(dk_engine& eng, double amplitude_v, in
   const int p = samples_per_period;
   const int ns = eng.states();
   std::vector<double> drive(static_cast<std::size_t>(p));
-  for (int n = 0; n < p; ++n) drive[static_cast<std::size_t>(n)] = amplitude_v * std::sin(2.0 * std::numbers::pi * n / p);
+  if (opt.cycles < 1 || 2 * opt.cycles >= p) throw internal_error("periodic_steady_state: cycles must be in [1, samples/2)");
+  for (int n = 0; n < p; ++n)
+    drive[static_cast<std::size_t>(n)] = amplitude_v * std::sin(2.0 * std::numbers::pi * double(opt.cycles) * n / p);
 
   steady_state_result res;
-  res.frequency_hz = eng.sample_rate_hz() / p;
+  res.frequency_hz = eng.sample_rate_hz() * opt.cycles / p;
   res.samples_per_period = p;
   res.output_v.assign(static_cast<std::size_t>(p) * static_cast<std::size_t>(opt.periods_out), 0.0);
 
