@@ -27,6 +27,10 @@ demo: build
 	@echo
 	@echo "== pinchoff tune presets/bass-booster-9v.toml --target vd=4.5"
 	@$(PINCHOFF) tune presets/bass-booster-9v.toml --target vd=4.5
+	@echo
+	@mkdir -p out
+	@echo "== pinchoff sweep presets/bass-booster-9v.toml --plot out/bass-booster-sweep.svg"
+	@$(PINCHOFF) sweep presets/bass-booster-9v.toml --plot out/bass-booster-sweep.svg
 
 # The whole suite runs twice: on the Release build, and on a build with AddressSanitizer
 # and UndefinedBehaviorSanitizer that stops at the first report.

@@ -9,3 +9,6 @@ void bench_oversampler();
 /// DK engine cost per oversampled sample for each preset at 8x 48 kHz: real-time factor,
 /// Newton evaluations per sample and the speed-up over the nodal reference solver.
 void bench_engine();
+
+/// A 25-point sweep of every preset: seconds (target under 0.5 s) and periods per point.
+void bench_sweep();

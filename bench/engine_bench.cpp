@@ -58,7 +58,7 @@ double best_seconds(int repeats, F&& run) {
 void bench_engine() {
   std::vector<std::filesystem::path> presets;
   for (const auto& e : std::filesystem::directory_iterator(PINCHOFF_PRESETS_DIR))
-    if (e.path().extension() == ".toml") presets.push_back(e.path());
+    if (e.path().extension() == ".toml" && e.path().filename() != "devices.toml") presets.push_back(e.path());
   std::sort(presets.begin(), presets.end());
   if (presets.empty()) {
     std::printf("engine: no presets found in %s\n", PINCHOFF_PRESETS_DIR);

@@ -10,5 +10,6 @@ int main() {
   bench_oversampler();
   std::printf("\n");
   bench_engine();
+  bench_sweep();
   return 0;
 }
