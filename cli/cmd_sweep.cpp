@@ -154,7 +154,18 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
                             }
                             lines.push_back(hs);
                           }
-                          pl.top = {axis{"level re fundamental (dB)", axis_scale::linear, {}, {}, false}, lines};
+                          // Below -140 dB lies nothing a build note needs, and below -180 only
+                          // the simulation's numerical floor: the axis stops at -140.
+                          double lowest = 0.0;
+                          for (const auto& l : lines)
+                            for (double y : l.y)
+                              if (std::isfinite(y)) lowest = std::min(lowest, y);
+                          axis yaxis{"level re fundamental (dB)", axis_scale::linear, {}, {}, false};
+                          if (lowest < -140.0) {
+                            yaxis.min = -140.0;
+                            yaxis.max = 0.0;
+                          }
+                          pl.top = {yaxis, lines};
                           for (const auto& c : r.crossings)
                             if (c.found)
                               pl.markers.push_back({dsp::dbu_from_vpk(c.drive_vpk), format_number(c.thd_percent, 2) + " % THD"});
