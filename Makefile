@@ -7,7 +7,7 @@ CMAKE_FLAGS ?=
 PINCHOFF = $(BUILD_DIR)/pinchoff
 MAKEFLAGS += --no-print-directory
 
-.PHONY: all deps configure build build-asan demo test test-release test-asan bench clean
+.PHONY: all deps configure build build-asan demo test test-release test-asan bench soak clean
 
 all: build
 
@@ -27,6 +27,10 @@ demo: build
 	@echo
 	@echo "== pinchoff tune presets/bass-booster-9v.toml --target vd=4.5"
 	@$(PINCHOFF) tune presets/bass-booster-9v.toml --target vd=4.5
+	@echo
+	@mkdir -p out
+	@echo "== pinchoff sweep presets/bass-booster-9v.toml --plot out/bass-booster-sweep.svg"
+	@$(PINCHOFF) sweep presets/bass-booster-9v.toml --plot out/bass-booster-sweep.svg
 	@echo
 	@echo "== pinchoff render: the demo clip through two presets, loudness-matched, into out/"
 	@$(PINCHOFF) render presets/bass-booster-9v.toml presets/clean-preamp-18v.toml \
@@ -48,6 +52,10 @@ test-asan: build-asan
 	@echo "== tests: AddressSanitizer + UndefinedBehaviorSanitizer build"
 	@ASAN_OPTIONS=halt_on_error=1:detect_leaks=1 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 \
 	  ctest --test-dir $(ASAN_DIR) --output-on-failure -j$(JOBS)
+
+# 100 000 random valid stages (PINCHOFF_SOAK_COUNT to change), with counts printed.
+soak: build
+	@$(BUILD_DIR)/pinchoff_tests -tc="soak*" --no-skip --success=false
 
 bench: build
 	@if [ -x $(BUILD_DIR)/pinchoff_bench ]; then $(BUILD_DIR)/pinchoff_bench; else echo "no benchmarks built"; fi

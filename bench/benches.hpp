@@ -6,9 +6,12 @@
 /// factor for upsampling, downsampling and the round trip.
 void bench_oversampler();
 
-/// DK engine cost per preset and drive: ns per oversampled sample, real-time factor at 8x
-/// 48 kHz on one core, Newton evaluations, speed-up over the nodal reference solver.
+/// DK engine cost per oversampled sample for each preset at 8x 48 kHz: real-time factor,
+/// Newton evaluations per sample and the speed-up over the nodal reference solver.
 void bench_engine();
+
+/// A 25-point sweep of every preset: seconds (target under 0.5 s) and periods per point.
+void bench_sweep();
 
 /// The render pipeline at 48 kHz, 8x, with file I/O: real-time factor for mono on one core
 /// and stereo on two threads, for each preset.

@@ -8,7 +8,9 @@
 int main() {
   std::printf("pinchoff benchmarks\n\n");
   bench_oversampler();
+  std::printf("\n");
   bench_engine();
+  bench_sweep();
   bench_render();
   return 0;
 }

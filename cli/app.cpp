@@ -30,6 +30,8 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   register_response(app, commands);
   register_fit(app, commands);
   register_spread(app, commands);
+  register_sweep(app, commands);
+  register_imd(app, commands);
   register_tone(app, commands);
   register_measure(app, commands);
   register_render(app, commands);

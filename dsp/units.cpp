@@ -236,6 +236,7 @@ std::string format_number(double value, int digits) {
   const int mag = static_cast<int>(std::floor(std::log10(std::fabs(value))));
   int decimals = digits - 1 - mag;
   if (decimals < 0) decimals = 0;
+  if (decimals > 15) decimals = 15;
   char buf[64];
   std::snprintf(buf, sizeof buf, "%.*f", decimals, value);
   return buf;

@@ -130,9 +130,7 @@ class dk_engine {
     Eigen::Matrix<double, 3, 2> jf;  ///< di/dv
     Eigen::Matrix2d m;               ///< dv/dp = (I - F Jf)^-1
   };
-  // Kernels of the state update (see dk_engine.cpp); in = [x; u; i].
-  using before_fn = void (*)(const double* w, const double* in, double* pre, int ns) noexcept;
-  using after_fn = void (*)(const double* w, double* in, const double* pre, double* out, int ns) noexcept;
+
 
   void init(const network& net, const operating_point& op);
   bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
@@ -149,8 +147,6 @@ class dk_engine {
   Eigen::MatrixXd w_;  // rows padded to even (a zero row when needed)
   Eigen::VectorXd in_, out_;        // [x; u; i] and the product
   Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
-  before_fn before_{nullptr};       // fixed-size kernels for ns <= 8, else dynamic ones
-  after_fn after_{nullptr};
   Eigen::Vector2d q_{Eigen::Vector2d::Zero()};  // D x_{n-1}
   port_point last_;
   Eigen::Vector2d p_last_{Eigen::Vector2d::Zero()};

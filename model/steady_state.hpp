@@ -17,6 +17,10 @@ namespace pinchoff::model {
 
 struct steady_state_options {
   int periods_out{1};               ///< steady-state periods returned, >= 1
+  /// Sine cycles in one period of samples_per_period samples (>= 1). With more than one
+  /// cycle, and cycles and samples coprime, folded (aliased) products fall between the
+  /// harmonic bins of the record instead of on them.
+  int cycles{1};
   int max_shooting_iterations{12};  ///< Newton updates of the start state
   /// Converged when the estimated distance of the start state to the periodic solution,
   /// |(M - I)^-1 (phi(x0) - x0)|, is below this (volts; states are volts, see dk_engine).
@@ -26,7 +30,7 @@ struct steady_state_options {
 };
 
 struct steady_state_result {
-  double frequency_hz{0};           ///< sample_rate / samples_per_period
+  double frequency_hz{0};           ///< sample_rate * cycles / samples_per_period
   int samples_per_period{0};
   std::vector<double> output_v;     ///< periods_out * samples_per_period samples at the load, real volts
   double mean_vgs_v{0}, mean_vds_v{0};  ///< port voltages averaged over the returned periods, real signs
@@ -41,11 +45,16 @@ struct steady_state_result {
   dk_stats engine;                  ///< Newton statistics over all periods
 };
 
-/// Steady state for the generator sine amplitude_v * sin(2 pi n / samples_per_period)
+/// Steady state for the generator sine amplitude_v * sin(2 pi cycles n / samples_per_period)
 /// (real volts peak, n counted from the start of each period) at the engine's rate.
 /// Starts from the engine's DC state; the engine is left at the end of the returned periods.
 /// samples_per_period >= 4.
 steady_state_result periodic_steady_state(dk_engine& engine, double amplitude_v, int samples_per_period,
+                                          const steady_state_options& opt = {});
+
+/// Steady state for any periodic generator drive given as one period of samples (real
+/// volts); `opt.cycles` is not used, and frequency_hz is the period's repetition rate.
+steady_state_result periodic_steady_state(dk_engine& engine, const std::vector<double>& drive,
                                           const steady_state_options& opt = {});
 
 /// The same with an engine built for the network at `sample_rate_hz`.

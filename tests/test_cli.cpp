@@ -1,4 +1,5 @@
 // The command line, run in-process with argv vectors (CLI11's own testing approach).
+#include <cmath>
 #include <filesystem>
 #include <fstream>
 #include <sstream>
@@ -140,6 +141,35 @@ TEST_CASE("tune --over-spread sizes a trimmer") {
   CHECK(j["fixed_ohm"].get<double>() + j["trimmer_ohm"].get<double>() >= j["range_ohm"]["max"].get<double>());
 }
 
+TEST_CASE("sweep --json follows the contract") {
+  // Contract: DESIGN.md, "Machine-readable output" for sweep.
+  const result r = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "10mVpk,0.3,1Vrms", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["frequency_hz"].get<double>() == doctest::Approx(1000.0).epsilon(1e-3));
+  CHECK(j["oversampling"] == 8);
+  REQUIRE(j["points"].size() == 3);
+  CHECK(j["points"][1]["drive_vpk"].get<double>() == doctest::Approx(0.3).epsilon(1e-12));
+  CHECK(j["points"][2]["drive_vpk"].get<double>() == doctest::Approx(std::sqrt(2.0)).epsilon(1e-12));
+  for (const char* k : {"drive_vpk", "output_vpk", "gain_db", "thd_percent", "harmonics_dbc", "alias_dbc", "dc_shift_v"}) {
+    CAPTURE(k);
+    CHECK(j["points"][0].contains(k));
+  }
+  CHECK(j["points"][0]["harmonics_dbc"].size() == 9);  // H2..H10
+}
+
+TEST_CASE("imd --json reports the products") {
+  const result r = run({"imd", preset("bass-booster-9v.toml"), "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["method"] == "smpte");
+  CHECK(j["imd_percent"].get<double>() > 0.0);
+  CHECK(j["products"].size() == 4);
+  const result t = run({"imd", preset("bass-booster-9v.toml"), "--method", "twin-tone", "--json"});
+  REQUIRE(t.status == 0);
+  CHECK(nlohmann::json::parse(t.out).contains("d3_percent"));
+}
+
 TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
   const std::vector<std::vector<std::string>> cases{
       {"bias", preset("missing.toml")},
@@ -159,6 +189,14 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
       {"spread", preset("bass-booster-9v.toml"), "--class", "nonesuch"},
       {"spread", preset("bass-booster-9v.toml"), "--tolerance", "150%"},
       {"tune", preset("bass-booster-9v.toml"), "--target", "center", "--over-spread"},
+      {"sweep", preset("bass-booster-9v.toml"), "--freq", "30k"},
+      {"sweep", preset("bass-booster-9v.toml"), "--drive", "loud"},
+      {"sweep", preset("bass-booster-9v.toml"), "--from", "1V", "--to", "10mV"},
+      {"sweep", preset("bass-booster-9v.toml"), "--drive", "1V", "--from", "10mV"},
+      {"sweep", preset("bass-booster-9v.toml"), "--oversample", "0"},
+      {"imd", preset("bass-booster-9v.toml"), "--method", "ccif"},
+      {"imd", preset("bass-booster-9v.toml"), "--level", "-1V"},
+      {"imd", preset("bass-booster-9v.toml"), "--method", "twin-tone", "--rate", "32k"},
       {"response", preset("bass-booster-9v.toml"), "--plot", "/nonexistent-folder/r.svg"},
   };
   for (const auto& args : cases) {
@@ -172,7 +210,7 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
 }
 
 TEST_CASE("help teaches by example and exits 0") {
-  for (const char* cmd : {"bias", "tune", "response", "fit", "spread"}) {
+  for (const char* cmd : {"bias", "tune", "response", "fit", "spread", "sweep", "imd"}) {
     CAPTURE(cmd);
     const result r = run({cmd, "--help"});
     CHECK(r.status == 0);
