@@ -37,6 +37,9 @@ grep -q "typo.toml:7:1: unknown key 'resitor' in \[drain\]; did you mean 'resist
 check "tone" 0 "$bin" tone --freq 1k --level -10dBFS --seconds 2 "$tmp/tone.wav"
 check "measure --json" 0 "$bin" measure "$tmp/tone.wav" --json
 python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert abs(j["fundamental_dbfs"]+10)<0.01 and abs(j["fundamental_hz"]-1000)<0.01' "$tmp/out" || { echo "FAIL: measure of the tone file"; fail=1; }
+check "render" 0 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav" --quiet
+check "render refuses an existing output" 2 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav"
+[ -s "$tmp/out" ] && { echo "FAIL: output written for a refused render"; fail=1; }
 check "measure of a non-audio file" 2 "$bin" measure "$tmp/typo.toml"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for a non-audio file"; fail=1; }
 check "version" 0 "$bin" --version
