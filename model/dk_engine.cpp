@@ -24,27 +24,26 @@ double max_abs(const V& v) {
 // coefficient-based product runs in whole SIMD packets.
 constexpr int padded_rows(int ns) noexcept { return (ns + 3 + 1) & ~1; }
 
+// Column by column (o += W(:, j) x_j): each x_j is broadcast once and the column runs in
+// whole SIMD packets; the same sums in the same order as the row-by-column product.
 template <int NS>
 inline void update_before_fixed(const double* w, const double* in, double* pre, int) noexcept {
   constexpr int rows = padded_rows(NS);
-  using w_type = Eigen::Matrix<double, rows, NS + 5>;
-  const Eigen::Map<const w_type> wm(w);
-  const Eigen::Map<const Eigen::Matrix<double, NS + 2, 1>> xu(in);
-  Eigen::Map<Eigen::Matrix<double, rows, 1>> o(pre);
-  // Coefficient-based: Eigen would otherwise call its general GEMV for these sizes.
-  o.noalias() = wm.template leftCols<NS + 2>().lazyProduct(xu);
+  using col_type = Eigen::Matrix<double, rows, 1>;
+  // A local accumulator, so it stays in registers (a Map could alias w and in).
+  col_type o = Eigen::Map<const col_type>(w) * in[0];
+  for (int j = 1; j < NS + 2; ++j) o += Eigen::Map<const col_type>(w + j * rows) * in[j];
+  Eigen::Map<col_type>{pre} = o;
 }
 
 template <int NS>
 inline void update_after_fixed(const double* w, double* in, const double* pre, double* out, int) noexcept {
   constexpr int rows = padded_rows(NS);
-  using w_type = Eigen::Matrix<double, rows, NS + 5>;
-  const Eigen::Map<const w_type> wm(w);
-  Eigen::Map<Eigen::Matrix<double, NS + 5, 1>> x(in);
-  const Eigen::Map<const Eigen::Matrix<double, rows, 1>> b(pre);
-  Eigen::Map<Eigen::Matrix<double, rows, 1>> o(out);
-  o.noalias() = b + wm.template rightCols<3>().lazyProduct(x.template tail<3>());
-  x.template head<NS>() += o.template head<NS>();
+  using col_type = Eigen::Matrix<double, rows, 1>;
+  col_type o = Eigen::Map<const col_type>(pre);
+  for (int j = NS + 2; j < NS + 5; ++j) o += Eigen::Map<const col_type>(w + j * rows) * in[j];
+  Eigen::Map<col_type>{out} = o;
+  Eigen::Map<Eigen::Matrix<double, NS, 1>>(in) += o.template head<NS>();
 }
 
 void update_before_dynamic(const double* w, const double* in, double* pre, int ns) noexcept {
