@@ -299,10 +299,10 @@ void dk_engine::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 // Newton on r(v) = p + F i(v) - v = 0, from `guess`.
 //
 // Acceptance (both the step and the residual): after the step dv computed at v, the
-// device currents at v + dv differ from their linearisation i(v) + Jf dv by at most the
-// Taylor remainder R: for a junction is e^(v/nVt)(e^x - 1 - x), x = dv/nVt, which is below
-// 0.505 g dv^2 / nVt for |x| <= 0.01; for the channel h (|dv0| + 2|dv1|)^2 / 2 (see
-// dk_device.hpp). The residual at v + dv is then at most |F| R and the distance to the
+// device currents at v + dv differ from their linearisation i(v) + Jf dv by R: for a
+// junction R is is e^(v/nVt)(e^x - 1 - x), x = dv/nVt, which is below 0.505 g dv^2 / nVt
+// for |x| <= 0.01; for the channel R is computed exactly, from the (cheap, polynomial)
+// channel current at v + dv, plus a margin for its rounding. The residual at v + dv is then at most |F| R and the distance to the
 // exact solution at most |(I - F Jf)^-1| |F| R (the Newton-Kantorovich argument; Ortega &
 // Rheinboldt 1970, 12.6). Both bounds must be below tol_v; the accepted currents are the
 // linearised ones, which satisfy v + dv = p + F i exactly. This is the "accept on a tiny
@@ -367,10 +367,15 @@ bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& gue
 
     const double dgs = d0, dgd = d0 - d1;
     if (!limited && std::fabs(dgs) <= small_junction_step && std::fabs(dgd) <= small_junction_step) {
-      const double s = std::fabs(d0) + 2.0 * std::fabs(d1);
       const double rgs = 0.505 * c.ggs_s * dev_.inv_nvt * dgs * dgs;
       const double rgd = 0.505 * c.ggd_s * dev_.inv_nvt * dgd * dgd;
-      const double rd = 0.5 * detail::channel_curvature_bound(dev_, v0, v1) * s * s;
+      // Exact channel remainder; 8 eps of the magnitudes summed covers the rounding of the
+      // few operations on each side (each correct to an ulp or two).
+      const double id_new = detail::channel_current(dev_, v0 + d0, v1 + d1);
+      const double id_lin_d = c.gm_s * d0 + c.gds_s * d1;
+      const double rd = std::fabs(id_new - c.id_a - id_lin_d) +
+                        8.0 * std::numeric_limits<double>::epsilon() *
+                            (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d0) + std::fabs(c.gds_s * d1));
       const double t0 = f_abs_(0, 0) * rgs + f_abs_(0, 1) * rgd + f_abs_(0, 2) * rd;
       const double t1 = f_abs_(1, 0) * rgs + f_abs_(1, 1) * rgd + f_abs_(1, 2) * rd;
       const double e0 = std::fabs(m00) * t0 + std::fabs(m01) * t1;
@@ -393,7 +398,7 @@ bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& gue
           }
         } else {
           out.v << a0, a1;
-          out.i << c.igs_a + c.ggs_s * dgs, c.igd_a + c.ggd_s * dgd, c.id_a + c.gm_s * d0 + c.gds_s * d1;
+          out.i << c.igs_a + c.ggs_s * dgs, c.igd_a + c.ggd_s * dgd, c.id_a + id_lin_d;
           out.jf << c.ggs_s, 0.0, c.ggd_s, -c.ggd_s, c.gm_s, c.gds_s;
           out.m << m00, m01, m10, m11;
           return true;
