@@ -105,16 +105,18 @@ inline port_currents evaluate_ports(const device_consts& d, double vgs, double v
   return c;
 }
 
-/// A bound h (A/V^2) on every second partial derivative of id near (vgs, vds), over all
-/// regions (cutoff, triode, saturation, inverse): from the level-1 equations the entries
-/// are at most 2 beta (1 + 2 lambda (|vds| + |vgst|)) in the forward frame; the inverse
-/// frame (vgs - vds, -vds) is covered by doubling |vds| and adding |vgs - vds - vto|, and
-/// the extra 1 V covers a step of up to 1 V. So, by Taylor's theorem (id is C1 with
-/// piecewise bounded second derivatives), for |d| <= 1 V:
-/// |id(v + d) - id(v) - grad . d| <= h (|d0| + 2 |d1|)^2 / 2.
-inline double channel_curvature_bound(const device_consts& d, double vgs, double vds) noexcept {
-  return 2.0 * d.beta *
-         (1.0 + 2.0 * d.lambda * (2.0 * std::fabs(vds) + std::fabs(vgs - d.vto_v) + std::fabs(vgs - vds - d.vto_v) + 1.0));
+/// The channel current alone at (vgs, vds), network frame: the id_a of evaluate_ports()
+/// (the same operations, so the same bits), without the junction exponentials. The Newton
+/// acceptance uses it to get the channel's linearisation error exactly.
+inline double channel_current(const device_consts& d, double vgs, double vds) noexcept {
+  const bool inverse = vds < 0.0;
+  const double g = inverse ? vgs - vds : vgs;
+  const double w = inverse ? -vds : vds;
+  const double vgst = g - d.vto_v;
+  if (vgst <= 0.0) return 0.0;
+  const double clm = 1.0 + d.lambda * w;
+  const double f = w < vgst ? d.beta * (w * (2.0 * vgst - w)) * clm : d.beta * vgst * vgst * clm;
+  return inverse ? -f : f;
 }
 
 }  // namespace pinchoff::model::detail

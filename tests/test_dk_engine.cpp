@@ -114,38 +114,26 @@ TEST_CASE("the engine's device evaluation is the device model of jfet.hpp") {
   }
 }
 
-TEST_CASE("the channel remainder bound of the Newton acceptance holds across regions") {
-  // Taylor's theorem for a C1 function with piecewise bounded second derivatives: the
-  // level-1 channel current (Shichman & Hodges 1968) satisfies
-  // |id(v + d) - id(v) - grad . d| <= h (|d0| + 2 |d1|)^2 / 2 with h from dk_device.hpp,
-  // for steps up to 1 V, across the region boundaries.
+TEST_CASE("the acceptance's channel-only current is the engine's channel current in every region") {
+  // The Newton acceptance takes the channel's linearisation error exactly from this
+  // function, so it must be the id of evaluate_ports() (itself checked against jfet.hpp
+  // above) bit for bit: cutoff, triode, saturation and inverse mode on a grid (common practice).
   model::jfet_params p;
   p.idss_a = 8e-3;
   p.vp_v = -2.5;
   p.lambda_per_v = 0.02;
   const model::detail::device_consts d = model::detail::device_consts::of(p, 0.025865);
-  int checked = 0;
-  double worst_ratio = 0.0;
+  int nonzero = 0;
   for (double vgs = -3.0; vgs <= 0.5; vgs += 0.173) {
     for (double vds = -3.0; vds <= 6.0; vds += 0.211) {
-      for (double step : {1e-3, 3e-2, 0.3, 1.0}) {
-        for (int dir = 0; dir < 8; ++dir) {
-          const double a = dir * std::numbers::pi / 4.0;
-          const double d0 = step * std::cos(a), d1 = step * std::sin(a);
-          const model::detail::port_currents c = model::detail::evaluate_ports(d, vgs, vds);
-          const model::detail::port_currents e = model::detail::evaluate_ports(d, vgs + d0, vds + d1);
-          const double rem = std::fabs(e.id_a - c.id_a - c.gm_s * d0 - c.gds_s * d1);
-          const double s = std::fabs(d0) + 2.0 * std::fabs(d1);
-          const double bound = 0.5 * model::detail::channel_curvature_bound(d, vgs, vds) * s * s;
-          worst_ratio = std::max(worst_ratio, rem / bound);
-          ++checked;
-        }
-      }
+      CAPTURE(vgs);
+      CAPTURE(vds);
+      const double id = model::detail::channel_current(d, vgs, vds);
+      CHECK(id == model::detail::evaluate_ports(d, vgs, vds).id_a);
+      if (id != 0.0) ++nonzero;
     }
   }
-  CAPTURE(checked);
-  CHECK(worst_ratio <= 1.0);
-  CHECK(worst_ratio > 0.1);  // the bound is not vacuous
+  CHECK(nonzero > 100);
 }
 
 TEST_CASE("silence in gives a flat output at the DC operating point") {
@@ -206,8 +194,12 @@ TEST_CASE("the solution does not depend on the warm start") {
     o.predictor_order = order;
     model::dk_engine eng(net, op, 384000.0, o);
     for (int n = 0; n < 3000; ++n) y[order].push_back(eng.process(sine(6.0, 1000.0, 384000.0, n)));
-    mean[order] = eng.stats().mean_evaluations();
     CHECK(eng.stats().failed == 0);
+    // Iteration counts at moderate drive, where the waveform is smooth enough for the
+    // extrapolation to matter (in hard clipping the kinks dominate either way).
+    model::dk_engine moderate(net, op, 384000.0, o);
+    for (int n = 0; n < 3000; ++n) moderate.process(sine(1.0, 1000.0, 384000.0, n));
+    mean[order] = moderate.stats().mean_evaluations();
   }
   for (int order = 1; order < 4; ++order) {
     CAPTURE(order);
@@ -216,7 +208,9 @@ TEST_CASE("the solution does not depend on the warm start") {
     CHECK(worst <= 1e-9);
   }
   // Extrapolation pays: fewer evaluations than the plain tangent warm start.
+  CAPTURE(mean[0]);
   CHECK(mean[2] < mean[0]);
+  CHECK(mean[3] < mean[0]);
 }
 
 TEST_CASE("the acceptance bound is sound: confirmed residuals never exceed the tolerance") {

@@ -98,7 +98,7 @@ TEST_CASE("sub-stepped samples still give the reference's samples") {
     const std::string name = st.name;
     CAPTURE(name);
     const model::network net = pinchoff::test::network_of(st.toml, st.name);
-    const comparison c = compare(net, 15.0, 1000.0, 384000.0, 1536, o);
+    const comparison c = compare(net, 20.0, 1000.0, 384000.0, 1536, o);
     CHECK(c.engine.substepped > 0);
     CHECK(c.engine.failed == 0);
     CHECK(c.worst_output_v <= 1e-9);
