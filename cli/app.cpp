@@ -29,6 +29,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   register_tune(app, commands);
   register_response(app, commands);
   register_fit(app, commands);
+  register_spread(app, commands);
   register_tone(app, commands);
   register_measure(app, commands);
 

@@ -29,6 +29,7 @@ void register_bias(CLI::App& app, std::vector<command>& commands);
 void register_tune(CLI::App& app, std::vector<command>& commands);
 void register_response(CLI::App& app, std::vector<command>& commands);
 void register_fit(CLI::App& app, std::vector<command>& commands);
+void register_spread(CLI::App& app, std::vector<command>& commands);
 void register_tone(CLI::App& app, std::vector<command>& commands);
 void register_measure(CLI::App& app, std::vector<command>& commands);
 

@@ -45,7 +45,8 @@ std::string db_text(double gain) { return format_number(dsp::db_from_ratio(std::
 void write_text(const bias_report& r, const std::string& path, std::ostream& out) {
   const model::terminal_point& t = r.op.at;
   out << r.st.name << "\n  " << topology_name(r.st.topo) << ", " << (r.st.pol == model::polarity::p ? "p" : "n")
-      << "-channel, supply " << format_si(r.st.supply.volts_v, "V") << "  (" << path << ")\n\n";
+      << "-channel" << (r.st.jfet_class ? " (class " + r.st.jfet_class->name + ")" : std::string()) << ", supply "
+      << format_si(r.st.supply.volts_v, "V") << "  (" << path << ")\n\n";
 
   out << "Operating point\n";
   text_table op({align::left, align::right, align::left, align::left, align::right});

@@ -10,6 +10,7 @@
 #include "cli/text_table.hpp"
 #include "dsp/eseries.hpp"
 #include "dsp/units.hpp"
+#include "model/spread.hpp"
 #include "model/tune.hpp"
 
 namespace pinchoff::cli {
@@ -24,6 +25,8 @@ struct tune_options {
   std::string adjust{"source.resistor"};
   std::string series{"E24"};
   bool json{false};
+  bool over_spread{false};
+  spread_input batch;
 };
 
 nlohmann::json point_json(const model::tune_point& p) {
@@ -67,6 +70,9 @@ void register_tune(CLI::App& app, std::vector<command>& commands) {
       ->capture_default_str();
   sub->add_option("--series", opt->series, "Standard values to offer: E12, E24 or E96")->capture_default_str();
   sub->add_flag("--json", opt->json, "Machine-readable output");
+  sub->add_flag("--over-spread", opt->over_spread,
+                "Size a fixed resistor plus trimmer that brings every part of a batch to the target (with the batch options)");
+  add_spread_options(*sub, opt->batch);
   sub->footer(
       "Examples:\n"
       "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5\n"
@@ -74,6 +80,9 @@ void register_tune(CLI::App& app, std::vector<command>& commands) {
       "  pinchoff tune presets/clean-preamp-18v.toml --target center --adjust drain.resistor\n"
       "      the drain resistor that gives the largest symmetric clean swing\n"
       "  pinchoff tune presets/bass-booster-9v.toml --target id=1m --series E12\n"
+      "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5 --over-spread --idss 2m..8m --vp -0.8..-3\n"
+      "      the source resistance each part of a batch needs, and a fixed resistor plus trimmer\n"
+      "      (standard values 100 Ω to 1 MΩ in 1-2-5 steps) that covers them\n"
       "Values are searched from 1 Ω to 100 MΩ; a target no value reaches is reported with the\n"
       "range that can be reached. Voltages are to ground, in real signs (negative for a\n"
       "p-channel stage on a negative supply).");
@@ -81,6 +90,39 @@ void register_tune(CLI::App& app, std::vector<command>& commands) {
                         const model::tune_target target = model::parse_target(opt->target_text);
                         const dsp::eseries series = dsp::parse_series(opt->series);
                         const model::stage st = load_stage(opt->input);
+                        if (opt->over_spread) {
+                          const model::spread_settings ss = spread_settings_from(opt->batch);
+                          const model::trim_result t = model::size_trimmer(st, opt->adjust, target, ss, series);
+                          if (opt->json) {
+                            nlohmann::json j;
+                            j["adjust"] = t.adjust;
+                            j["target"] = model::target_text(target);
+                            j["runs"] = ss.runs;
+                            j["reachable"] = t.reachable;
+                            j["range_ohm"] = {{"min", t.r_min}, {"p5", t.r_p5}, {"p95", t.r_p95}, {"max", t.r_max}};
+                            j["fixed_ohm"] = t.fixed_ohm;
+                            j["trimmer_ohm"] = t.trimmer_ohm;
+                            j["coverage"] = t.coverage;
+                            out << j.dump(2) << '\n';
+                            return;
+                          }
+                          out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << t.adjust
+                              << " over a batch\n  " << describe_spread(ss, st) << "\n\n";
+                          text_table tt({align::left, align::right});
+                          tt.add({"needed, smallest", format_si(t.r_min, "Ω", 4)});
+                          tt.add({"needed, 5 % of parts below", format_si(t.r_p5, "Ω", 4)});
+                          tt.add({"needed, 95 % of parts below", format_si(t.r_p95, "Ω", 4)});
+                          tt.add({"needed, largest", format_si(t.r_max, "Ω", 4)});
+                          tt.write(out);
+                          out << "\n  fit " << format_si(t.fixed_ohm, "Ω") << " (" << dsp::series_name(series) << ") in series with a "
+                              << format_si(t.trimmer_ohm, "Ω") << " trimmer: covers " << format_si(t.fixed_ohm, "Ω") << " to "
+                              << format_si(t.fixed_ohm + t.trimmer_ohm, "Ω") << ", " << dsp::format_number(100.0 * t.coverage, 3)
+                              << " % of the parts\n";
+                          if (t.reachable < ss.runs)
+                            out << "  " << (ss.runs - t.reachable) << " of " << ss.runs
+                                << " parts cannot reach the target with any value\n";
+                          return;
+                        }
                         const model::tune_result r = model::tune_resistor(st, opt->adjust, target, series);
                         if (!opt->json) {
                           write_text(st, target, r, out);

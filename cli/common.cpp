@@ -30,3 +30,52 @@ const char* topology_name(model::topology t) noexcept {
 }
 
 }  // namespace pinchoff::cli
+
+#include "dsp/error.hpp"
+#include "dsp/units.hpp"
+
+namespace pinchoff::cli {
+
+void add_spread_options(CLI::App& sub, spread_input& in) {
+  sub.add_option("--idss", in.idss, "IDSS range of the batch, e.g. 2m..8m")->type_name("LO..HI");
+  sub.add_option("--vp", in.vp, "Pinch-off voltage range, either order, e.g. -0.8..-3")->type_name("A..B");
+  sub.add_option("--correlation", in.correlation, "Correlation of IDSS with |VP| (real parts: strongly positive)")
+      ->capture_default_str();
+  sub.add_option("--tolerance", in.tolerance, "Resistor tolerance, e.g. 5% (applied to every resistor)")->type_name("PCT");
+  sub.add_option("--supply", in.supply, "Supply range, e.g. 7..9.6 for a draining 9 V battery")->type_name("LO..HI");
+  sub.add_option("--distribution", in.distribution, "uniform within the ranges, or normal (range = +-3 sigma)")
+      ->capture_default_str()
+      ->check(CLI::IsMember({"uniform", "normal"}));
+  sub.add_option("--runs", in.runs, "Number of Monte Carlo runs")->capture_default_str()->check(CLI::Range(1, 10000000));
+  sub.add_option("--seed", in.seed, "Seed: the same seed gives the same runs")->capture_default_str();
+  sub.add_option("--threads", in.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
+}
+
+model::spread_settings spread_settings_from(const spread_input& in) {
+  model::spread_settings s;
+  if (!in.idss.empty()) s.idss_a = dsp::parse_range(in.idss, dsp::unit::ampere, "--idss");
+  if (!in.vp.empty()) s.vp_v = dsp::parse_range(in.vp, dsp::unit::volt, "--vp", true);
+  if (!in.supply.empty()) s.supply_v = dsp::parse_range(in.supply, dsp::unit::volt, "--supply", true);
+  if (!in.tolerance.empty()) s.resistor_tolerance = dsp::parse_fraction(in.tolerance, "--tolerance");
+  s.correlation = in.correlation;
+  s.distribution = in.distribution == "normal" ? model::spread_distribution::normal : model::spread_distribution::uniform;
+  s.runs = in.runs;
+  s.seed = in.seed;
+  s.threads = in.threads;
+  return s;
+}
+
+std::string describe_spread(const model::spread_settings& s, const model::stage& st) {
+  using dsp::format_si;
+  std::string d = std::to_string(s.runs) + " runs, seed " + std::to_string(s.seed) + ": ";
+  auto range = [](const dsp::value_range& r, const char* u) { return format_si(r.lo, u) + " to " + format_si(r.hi, u); };
+  d += "IDSS " + (s.idss_a ? range(*s.idss_a, "A") : format_si(st.jfet.idss_a, "A") + " fixed");
+  d += ", VP " + (s.vp_v ? range(*s.vp_v, "V") : format_si(st.jfet.vp_v, "V") + " fixed");
+  if (s.idss_a && s.vp_v) d += " (correlation " + dsp::format_number(s.correlation, 2) + ")";
+  d += s.distribution == model::spread_distribution::uniform ? ", uniform" : ", normal";
+  d += ", resistors " + (s.resistor_tolerance > 0 ? "±" + dsp::format_number(100 * s.resistor_tolerance, 2) + " %" : std::string("exact"));
+  d += ", supply " + (s.supply_v ? range(*s.supply_v, "V") : format_si(st.supply.volts_v, "V"));
+  return d;
+}
+
+}  // namespace pinchoff::cli

@@ -31,3 +31,23 @@ nlohmann::json number_or_null(double v);
 const char* topology_name(model::topology t) noexcept;
 
 }  // namespace pinchoff::cli
+
+// Options shared by `spread` and `tune --over-spread`.
+#include "model/spread.hpp"
+
+namespace pinchoff::cli {
+
+struct spread_input {
+  std::string idss, vp, supply, tolerance, distribution{"uniform"};
+  double correlation{0.7};
+  int runs{2000};
+  std::uint64_t seed{1};
+  int threads{0};
+};
+
+void add_spread_options(CLI::App& sub, spread_input& in);
+model::spread_settings spread_settings_from(const spread_input& in);
+/// One line describing what was varied, for reports.
+std::string describe_spread(const model::spread_settings& s, const model::stage& st);
+
+}  // namespace pinchoff::cli

@@ -7,6 +7,9 @@
 #include <string_view>
 #include <vector>
 
+#include <optional>
+
+#include "model/device_class.hpp"
 #include "model/jfet.hpp"
 
 namespace pinchoff::model {
@@ -46,6 +49,7 @@ struct stage {
   supply_part supply;
   jfet_params jfet;           ///< in real signs (vp > 0 for p-channel)
   jfet_ratings ratings;
+  std::optional<device_class> jfet_class;  ///< when the file names `class`: its ranges (n-channel signs)
   double signal_impedance_ohm{0};  ///< generator series resistance; 0 = ideal source
   gate_part gate;
   double drain_resistor_ohm{0};    ///< 0 = drain straight to the supply (source follower)

@@ -41,7 +41,8 @@ const std::vector<section_spec>& schema() {
   static const std::vector<section_spec> s{
       {"supply", {{"volts", unit::volt, rule::any_sign}, {"resistance", unit::ohm, rule::non_negative},
                   {"capacitance", unit::farad, rule::non_negative}}},
-      {"jfet", {{"polarity", unit::none, rule::any_sign}, {"idss", unit::ampere, rule::positive},
+      {"jfet", {{"polarity", unit::none, rule::any_sign}, {"class", unit::none, rule::any_sign},
+                {"idss", unit::ampere, rule::positive},
                 {"vp", unit::volt, rule::any_sign}, {"beta", unit::none, rule::positive},
                 {"vto", unit::volt, rule::any_sign}, {"lambda", unit::per_volt, rule::non_negative},
                 {"is", unit::ampere, rule::non_negative}, {"n", unit::none, rule::positive},
@@ -201,6 +202,8 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   std::string polarity_text = "n";
   bool polarity_given = false;
   toml::source_region polarity_where;
+  std::string class_name;
+  toml::source_region class_where;
 
   for (auto&& [k, node] : root) {
     const std::string key(k.str());
@@ -241,6 +244,11 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
         polarity_where = v.source();
         continue;
       }
+      if (full == "jfet.class") {
+        class_name = rd.text(v, full);
+        class_where = v.source();
+        continue;
+      }
       values[full] = rd.number(v, full, *spec);
       where[full] = v.source();
     }
@@ -264,6 +272,28 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   st.supply.resistance_ohm = get("supply.resistance");
   st.supply.capacitance_f = get("supply.capacitance");
 
+  // A named class fills in whatever the file does not give (values given win).
+  if (!class_name.empty()) {
+    try {
+      st.jfet_class = find_device_class(class_name, device_file_for(std::filesystem::path(std::string(source_name))));
+    } catch (const input_error& e) {
+      rd.fail_at(class_where, "jfet.class", e.what());
+    }
+    const device_class& c = *st.jfet_class;
+    if (!has("jfet.beta") && !has("jfet.vto")) {
+      if (!has("jfet.idss")) values["jfet.idss"] = c.typical_idss_a;
+      if (!has("jfet.vp")) {
+        values["jfet.vp"] = sign * c.typical_vp_v;
+        where["jfet.vp"] = class_where;
+      }
+    }
+    if (!has("jfet.lambda")) values["jfet.lambda"] = c.lambda_per_v;
+    if (!has("jfet.is")) values["jfet.is"] = c.is_a;
+    if (!has("jfet.n")) values["jfet.n"] = c.n;
+    if (!has("jfet.cgs")) values["jfet.cgs"] = c.cgs_f;
+    if (!has("jfet.cgd")) values["jfet.cgd"] = c.cgd_f;
+  }
+
   // Device: idss + vp, or beta + vto.
   const bool form_a = has("jfet.idss") || has("jfet.vp");
   const bool form_b = has("jfet.beta") || has("jfet.vto");
@@ -273,7 +303,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   if (form_b) {
     if (!has("jfet.beta") || !has("jfet.vto")) rd.fail_section(root, "jfet", "[jfet] needs both beta and vto");
   } else if (!has("jfet.idss") || !has("jfet.vp")) {
-    rd.fail_section(root, "jfet", "[jfet] needs idss and vp (or beta and vto)");
+    rd.fail_section(root, "jfet", "[jfet] needs idss and vp (or beta and vto, or a class)");
   }
   const double vp = get(vkey);
   if (!(sign * vp < 0))

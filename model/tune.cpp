@@ -75,7 +75,7 @@ tune_point evaluate_with(const stage& s, std::string_view adjust_key, double val
   return evaluate_point(s, adjust_key, value_ohm, true);
 }
 
-tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tune_target& target, dsp::eseries series) {
+double solve_resistor(const stage& s, std::string_view adjust_key, const tune_target& target) {
   stage probe = s;
   if (resistor_field(probe, adjust_key) == nullptr) {
     std::string keys;
@@ -172,7 +172,11 @@ tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tun
     }
     exact = std::exp(0.5 * (a + b));
   }
+  return exact;
+}
 
+tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tune_target& target, dsp::eseries series) {
+  const double exact = solve_resistor(s, adjust_key, target);
   tune_result res;
   res.adjust = std::string(adjust_key);
   res.exact_ohm = exact;

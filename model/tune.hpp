@@ -48,6 +48,9 @@ inline constexpr double tune_max_ohm = 100e6;
 /// input_error saying what range is reachable when no value hits the target.
 tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tune_target& target, dsp::eseries series);
 
+/// The exact value alone (no series candidates): what tune_resistor solves first.
+double solve_resistor(const stage& s, std::string_view adjust_key, const tune_target& target);
+
 /// The operating point and headroom of the stage with one resistor replaced.
 tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm);
 

@@ -1,0 +1,211 @@
+// pinchoff spread: how a design spreads over a batch of real parts.
+#include <cmath>
+#include <filesystem>
+#include <memory>
+
+#include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
+
+#include "cli/app.hpp"
+#include "cli/common.hpp"
+#include "cli/plot.hpp"
+#include "cli/text_table.hpp"
+#include "dsp/error.hpp"
+#include "dsp/units.hpp"
+#include "model/spread.hpp"
+
+namespace pinchoff::cli {
+namespace {
+
+using dsp::format_number;
+using dsp::format_si;
+using align = text_table::align;
+
+struct spread_options {
+  stage_input input;
+  spread_input batch;
+  std::vector<std::string> conditions;
+  bool json{false}, csv{false};
+  std::string plot;
+};
+
+std::string value_text(const model::quantity_def& q, double v) {
+  if (std::string_view(q.unit) == "dB") return format_number(v, 3) + " dB";
+  if (std::string_view(q.unit) == "%") return format_number(v, 3) + " %";
+  return format_si(v, q.unit, 4);
+}
+
+const model::quantity_def& def_of(const std::string& name) {
+  for (const auto& q : model::spread_quantities())
+    if (name == q.name) return q;
+  throw internal_error("unknown quantity " + name);
+}
+
+std::string part_text(const model::spread_run& r) {
+  return "IDSS " + format_si(r.draw.idss_a, "A") + ", VP " + format_si(r.draw.vp_v, "V") + ", supply " +
+         format_si(r.draw.supply_v, "V");
+}
+
+void write_histograms(const model::spread_result& res, const std::vector<std::string>& names, const std::string& base,
+                      const std::string& title, std::ostream& out) {
+  const std::filesystem::path p(base);
+  for (const std::string& name : names) {
+    const model::quantity_def& q = def_of(name);
+    std::vector<double> v;
+    for (const auto& r : res.runs)
+      if (auto it = r.values.find(name); it != r.values.end() && std::isfinite(it->second)) v.push_back(it->second);
+    if (v.empty()) continue;
+    const double lo = *std::min_element(v.begin(), v.end()), hi = *std::max_element(v.begin(), v.end());
+    constexpr int bins = 20;
+    const double w = hi > lo ? (hi - lo) / bins : 1.0;
+    bar_chart c;
+    c.title = title + ": " + name + " over " + std::to_string(v.size()) + " parts";
+    c.x_title = std::string(name) + " (" + q.unit + "), bin centres";
+    c.y_title = "parts";
+    c.groups = {"parts"};
+    c.values.assign(1, std::vector<double>(bins, 0.0));
+    c.floor = 0.0;
+    for (int b = 0; b < bins; ++b) {
+      const double centre = lo + (b + 0.5) * w;
+      c.categories.push_back(std::string_view(q.unit) == "A" ? format_si(centre, "", 3) : format_number(centre, 3));
+    }
+    for (double x : v) c.values[0][static_cast<std::size_t>(std::min(bins - 1, static_cast<int>((x - lo) / w)))] += 1.0;
+    const std::filesystem::path file = p.parent_path() / (p.stem().string() + "-" + name + p.extension().string());
+    write_svg_file(file, render_svg(c));
+    out << "  histogram of " << name << " written to " << file.string() << '\n';
+  }
+}
+
+}  // namespace
+
+void register_spread(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<spread_options>();
+  CLI::App* sub = app.add_subcommand("spread", "Monte Carlo over a batch of parts: bias, gain and headroom spread, yield");
+  add_stage_input(*sub, opt->input);
+  add_spread_options(*sub, opt->batch);
+  sub->add_option("--require", opt->conditions,
+                  "A condition a good build meets, QUANTITY=LO..HI (repeatable): id, vd, vs, vds, vgs, gain (dB), swing (V peak)")
+      ->type_name("Q=LO..HI");
+  sub->add_flag("--json", opt->json, "Machine-readable summary");
+  sub->add_flag("--csv", opt->csv, "Every run as CSV");
+  sub->add_option("--plot", opt->plot,
+                  "Histograms as SVG: FILE.svg becomes FILE-vd.svg, FILE-id.svg, ... (the required quantities, else vd and id)")
+      ->type_name("FILE.svg");
+  sub->footer(
+      "Examples:\n"
+      "  pinchoff spread presets/bass-booster-9v.toml --idss 2m..8m --vp -0.8..-3 --require vd=3.5..6\n"
+      "      how many parts of a wide batch bias acceptably, and which ones do not\n"
+      "  pinchoff spread presets/bass-booster-9v.toml --supply 7..9.6 --tolerance 5% --runs 5000\n"
+      "      the same part as the battery drains, with 5 % resistors\n"
+      "  pinchoff spread presets/clean-preamp-18v.toml --idss 4m..12m --vp -1.5..-4 --plot batch.svg\n"
+      "IDSS and |VP| are drawn with the given correlation (real batches: parts with a high IDSS\n"
+      "also pinch off at a larger voltage). The yield counts runs biased in saturation that meet\n"
+      "every --require. The same seed gives the same runs on any number of threads.");
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
+                        if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
+                        std::vector<model::requirement> reqs;
+                        for (const std::string& r : opt->conditions) reqs.push_back(model::parse_requirement(r));
+                        const model::spread_settings settings = spread_settings_from(opt->batch);
+                        const model::stage st = load_stage(opt->input);
+                        const model::spread_result res = model::run_spread(st, settings, reqs);
+
+                        std::vector<std::string> shown{"id", "vd", "vs", "vds", "gain", "swing"};
+                        std::ostringstream plots;
+                        if (!opt->plot.empty()) {
+                          std::vector<std::string> names;
+                          for (const auto& r : reqs) names.push_back(r.quantity);
+                          if (names.empty()) names = {"vd", "id"};
+                          write_histograms(res, names, opt->plot, st.name, plots);
+                        }
+                        if (opt->csv) {
+                          out << "run,idss_a,vp_v,supply_v,solved";
+                          for (const auto& q : model::spread_quantities())
+                            if (res.stats.count(q.name)) out << ',' << q.json_key;
+                          out << ",meets\n";
+                          out.precision(10);
+                          for (const auto& r : res.runs) {
+                            out << r.index << ',' << r.draw.idss_a << ',' << r.draw.vp_v << ',' << r.draw.supply_v << ','
+                                << (r.solved ? 1 : 0);
+                            for (const auto& q : model::spread_quantities())
+                              if (res.stats.count(q.name)) {
+                                out << ',';
+                                if (auto it = r.values.find(q.name); it != r.values.end()) out << it->second;
+                              }
+                            out << ',' << (r.meets ? 1 : 0) << '\n';
+                          }
+                          return;
+                        }
+                        // Worst cases: for each requirement (else vd), the runs at either extreme.
+                        std::vector<std::string> worst_of;
+                        for (const auto& r : reqs) worst_of.push_back(r.quantity);
+                        if (worst_of.empty()) worst_of = {"vd"};
+                        struct worst {
+                          std::string quantity, side;
+                          const model::spread_run* run;
+                        };
+                        std::vector<worst> worsts;
+                        for (const std::string& name : worst_of) {
+                          const model::spread_run *lo = nullptr, *hi = nullptr;
+                          for (const auto& r : res.runs) {
+                            auto it = r.values.find(name);
+                            if (it == r.values.end()) continue;
+                            if (!lo || it->second < lo->values.at(name)) lo = &r;
+                            if (!hi || it->second > hi->values.at(name)) hi = &r;
+                          }
+                          if (lo) worsts.push_back({name, "lowest", lo});
+                          if (hi) worsts.push_back({name, "highest", hi});
+                        }
+                        if (opt->json) {
+                          nlohmann::json j;
+                          j["runs"] = settings.runs;
+                          j["yield"] = res.yield;
+                          j["unsolved"] = res.unsolved;
+                          j["seed"] = settings.seed;
+                          nlohmann::json pc;
+                          for (const auto& [name, s] : res.stats)
+                            pc[def_of(name).json_key] = {{"p5", s.p5}, {"p50", s.p50}, {"p95", s.p95}, {"min", s.min}, {"max", s.max}};
+                          j["percentiles"] = pc;
+                          nlohmann::json rq = nlohmann::json::array();
+                          for (const auto& r : reqs)
+                            rq.push_back({{"quantity", r.quantity}, {"lo", number_or_null(r.lo)}, {"hi", number_or_null(r.hi)}});
+                          j["requirements"] = rq;
+                          nlohmann::json ws = nlohmann::json::array();
+                          for (const auto& w : worsts)
+                            ws.push_back({{"quantity", w.quantity}, {"side", w.side}, {"run", w.run->index},
+                                          {"idss_a", w.run->draw.idss_a}, {"vp_v", w.run->draw.vp_v},
+                                          {"supply_v", w.run->draw.supply_v}, {"value", w.run->values.at(w.quantity)}});
+                          j["worst"] = ws;
+                          out << j.dump(2) << '\n';
+                          return;
+                        }
+                        out << st.name << "\n  " << describe_spread(settings, st) << "\n\n";
+                        text_table t({align::left, align::right, align::right, align::right, align::right, align::right});
+                        t.add({"", "p5", "median", "p95", "min", "max"});
+                        for (const std::string& name : shown) {
+                          auto it = res.stats.find(name);
+                          if (it == res.stats.end()) continue;
+                          const auto& q = def_of(name);
+                          const auto& s = it->second;
+                          t.add({name, value_text(q, s.p5), value_text(q, s.p50), value_text(q, s.p95), value_text(q, s.min),
+                                 value_text(q, s.max)});
+                        }
+                        t.write(out);
+                        std::string cond = "biased in saturation";
+                        for (const auto& r : reqs) {
+                          const auto& q = def_of(r.quantity);
+                          cond += ", " + r.quantity + " " + (std::isfinite(r.lo) ? value_text(q, r.lo) : std::string("")) + ".." +
+                                  (std::isfinite(r.hi) ? value_text(q, r.hi) : std::string(""));
+                        }
+                        out << "\n  yield " << format_number(100.0 * res.yield, 3) << " % (" << cond << ")\n";
+                        if (res.unsolved) out << "  " << res.unsolved << " runs had no operating point\n";
+                        out << "\nExtremes\n";
+                        text_table w({align::left, align::left, align::right, align::left});
+                        for (const auto& x : worsts)
+                          w.add({x.side + " " + x.quantity, "run " + std::to_string(x.run->index),
+                                 value_text(def_of(x.quantity), x.run->values.at(x.quantity)), part_text(*x.run)});
+                        w.write(out);
+                        if (!plots.str().empty()) out << '\n' << plots.str();
+                      }});
+}
+
+}  // namespace pinchoff::cli
