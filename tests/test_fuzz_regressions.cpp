@@ -43,6 +43,7 @@ struct fuzz_target {
 
 const fuzz_target targets[] = {
     {"stage_file", [](const std::string& b) { return pinchoff::fuzz::stage_file_entry(b); }},
+    {"device_classes", [](const std::string& b) { return pinchoff::fuzz::device_classes_entry(b); }},
     {"units", [](const std::string& b) { return pinchoff::fuzz::units_entry(b); }},
     {"csv_fit", [](const std::string& b) { return pinchoff::fuzz::csv_fit_entry(b); }},
     {"sound", [](const std::string& b) { return pinchoff::fuzz::sound_entry(std::as_bytes(std::span(b.data(), b.size()))); }},
@@ -68,7 +69,7 @@ TEST_CASE("every saved fuzz input is refused cleanly or read within the parser's
 TEST_CASE("the valid seeds are accepted, so the entry functions reach the parsers' success paths") {
   // One known-good input per target (written by hand, or by the project's own writer for audio).
   const std::pair<const char*, const char*> good[] = {
-      {"stage_file", "preset-bass-booster"}, {"units", "seed-0"}, {"csv_fit", "gate-sweep"}, {"sound", "tone-wav16.wav"}};
+      {"stage_file", "preset-bass-booster"}, {"device_classes", "preset-devices.toml"}, {"units", "seed-0"}, {"csv_fit", "gate-sweep"}, {"sound", "tone-wav16.wav"}};
   for (const auto& [name, file] : good) {
     CAPTURE(name);
     const auto t = std::find_if(std::begin(targets), std::end(targets), [&](const fuzz_target& x) { return std::string(x.name) == name; });

@@ -20,7 +20,9 @@
 #include "dsp/error.hpp"
 #include "dsp/sound_file.hpp"
 #include "dsp/units.hpp"
+#include "model/device_class.hpp"
 #include "model/fit.hpp"
+#include "model/spread.hpp"
 #include "model/stage.hpp"
 #include "model/stage_file.hpp"
 
@@ -75,8 +77,30 @@ inline outcome stage_file_entry(std::string_view data) {
 }
 
 // ---------------------------------------------------------------------------------------
+// Device-class file (presets/devices.toml and its like): accepted classes have the ranges
+// and typical values the reader promises, and a refusal names the file.
+inline outcome device_classes_entry(std::string_view text) {
+  try {
+    const std::vector<model::device_class> all = model::parse_device_classes(text, "fuzz-devices.toml");
+    for (const model::device_class& c : all) {
+      for (double v : {c.idss_a.lo, c.idss_a.hi, c.vp_v.lo, c.vp_v.hi, c.typical_idss_a, c.typical_vp_v, c.lambda_per_v,
+                       c.is_a, c.n, c.cgs_f, c.cgd_f})
+        detail::require(std::isfinite(v), "a device class with a non-finite value was accepted");
+      detail::require(c.idss_a.lo > 0 && c.idss_a.lo <= c.idss_a.hi && c.vp_v.lo <= c.vp_v.hi && c.vp_v.hi < 0 &&
+                          c.typical_idss_a > 0 && c.typical_vp_v < 0,
+                      "a device class with impossible ranges was accepted");
+    }
+    return outcome::accepted;
+  } catch (const input_error& e) {
+    detail::require(detail::starts_with(e.what(), "fuzz-devices.toml"),
+                    std::string("device-class message does not say where: ") + e.what());
+    return outcome::refused;
+  }
+}
+
+// ---------------------------------------------------------------------------------------
 // Values, levels, frequencies, ranges and fractions: the whole input is one text given to
-// every parser in dsp/units.hpp. Accepted results are finite and inside the stated ranges,
+// every parser in dsp/units.hpp, and to the spread's --require parser. Accepted results are finite and inside the stated ranges,
 // and try_parse_value agrees with parse_value.
 inline outcome units_entry(std::string_view text) {
   using dsp::unit;
@@ -121,6 +145,10 @@ inline outcome units_entry(std::string_view text) {
   attempt([&] {
     const double f = dsp::parse_frequency_hz(text);
     detail::require(std::isfinite(f) && f > 0.0, "parse_frequency_hz returned a frequency not above 0");
+  });
+  attempt([&] {
+    const model::requirement r = model::parse_requirement(text);
+    detail::require(!std::isnan(r.lo) && !std::isnan(r.hi) && r.lo <= r.hi, "parse_requirement returned a bad range");
   });
   attempt([&] {
     const double x = dsp::parse_fraction(text, "key");
