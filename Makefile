@@ -2,12 +2,16 @@
 # Debian packages first (scripts/install-deps), configure and build.
 BUILD_DIR ?= build
 ASAN_DIR ?= build-asan
+FUZZ_DIR ?= build-fuzz
+FUZZ_SECONDS ?= 60
+FUZZ_SMOKE_SECONDS ?= 3
+FUZZ_TARGETS = stage_file device_classes units csv_fit sound
 JOBS ?= 2
 CMAKE_FLAGS ?=
 PINCHOFF = $(BUILD_DIR)/pinchoff
 MAKEFLAGS += --no-print-directory
 
-.PHONY: all deps configure build build-asan demo test test-release test-asan bench soak clean
+.PHONY: all deps configure build build-asan build-fuzz demo test test-release test-asan test-fuzz fuzz bench soak clean
 
 all: build
 
@@ -37,8 +41,9 @@ demo: build
 	  --input samples/pluck-phrase-48k.wav --output out --dry --force
 
 # The whole suite runs twice: on the Release build, and on a build with AddressSanitizer
-# and UndefinedBehaviorSanitizer that stops at the first report.
-test: test-release test-asan
+# and UndefinedBehaviorSanitizer that stops at the first report. Then each fuzz target
+# runs for a few seconds from its seeds and saved regression inputs.
+test: test-release test-asan test-fuzz
 
 test-release: build
 	@echo "== tests: Release build"
@@ -57,8 +62,24 @@ test-asan: build-asan
 soak: build
 	@$(BUILD_DIR)/pinchoff_tests -tc="soak*" --no-skip --success=false
 
+# libFuzzer targets (tests/fuzz/), built with clang in their own folder; the gcc builds
+# above do not need clang.
+build-fuzz: deps
+	@cmake -S . -B $(FUZZ_DIR) -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_CXX_COMPILER=clang++ -DPINCHOFF_FUZZ=ON \
+	  -DPINCHOFF_TESTS=OFF $(CMAKE_FLAGS) > $(FUZZ_DIR).configure.log 2>&1 || { cat $(FUZZ_DIR).configure.log; exit 1; }
+	@cmake --build $(FUZZ_DIR) -j$(JOBS) --target fuzz_targets
+
+# Each target for FUZZ_SECONDS (default 60); prints the executions each survived.
+fuzz: build-fuzz
+	@echo "== fuzzing, $(FUZZ_SECONDS) s per target"
+	@scripts/run-fuzz $(FUZZ_DIR) $(FUZZ_SECONDS) $(FUZZ_TARGETS)
+
+test-fuzz: build-fuzz
+	@echo "== fuzz smoke run, $(FUZZ_SMOKE_SECONDS) s per target"
+	@scripts/run-fuzz $(FUZZ_DIR) $(FUZZ_SMOKE_SECONDS) $(FUZZ_TARGETS)
+
 bench: build
 	@if [ -x $(BUILD_DIR)/pinchoff_bench ]; then $(BUILD_DIR)/pinchoff_bench; else echo "no benchmarks built"; fi
 
 clean:
-	rm -rf $(BUILD_DIR) $(BUILD_DIR).configure.log $(ASAN_DIR) $(ASAN_DIR).configure.log out
+	rm -rf $(BUILD_DIR) $(BUILD_DIR).configure.log $(ASAN_DIR) $(ASAN_DIR).configure.log $(FUZZ_DIR) $(FUZZ_DIR).configure.log out

@@ -183,7 +183,7 @@ void register_bias(CLI::App& app, std::vector<command>& commands) {
       "gate rises to the source voltage.");
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
                         bias_report r;
-                        if (!opt->at_text.empty()) r.at_hz = dsp::parse_frequency_hz(opt->at_text);
+                        if (!opt->at_text.empty()) r.at_hz = parse_analysis_frequency_hz(opt->at_text, "--at");
                         r.st = load_stage(opt->input);
                         r.net = model::build_network(r.st);
                         r.op = model::solve_operating_point(r.net);

@@ -83,8 +83,15 @@ measure_report analyse(const measure_options& o) {
   dsp::windowed_settings s;
   s.window = r.window;
   s.harmonics = o.harmonics;
-  s.band_high_hz = dsp::parse_frequency_hz(o.bandwidth_text);
-  if (o.freq_text != "auto") s.approx_fundamental_hz = dsp::parse_frequency_hz(o.freq_text);
+  auto frequency = [](const std::string& text, const char* option) {
+    try {
+      return dsp::parse_frequency_hz(text);
+    } catch (const input_error& e) {
+      throw input_error(std::string(option) + ": " + e.what());
+    }
+  };
+  s.band_high_hz = frequency(o.bandwidth_text, "--bandwidth");
+  if (o.freq_text != "auto") s.approx_fundamental_hz = frequency(o.freq_text, "--freq");
 
   dsp::sound_reader rd = dsp::sound_reader::open(o.path);
   r.info = rd.info();
@@ -116,7 +123,11 @@ measure_report analyse(const measure_options& o) {
   x.resize(dsp::fast_analysis_length(x.size()));
   r.analysed = x.size();
   for (double v : x) r.sample_peak = std::max(r.sample_peak, std::abs(v));
-  r.a = dsp::analyse_windowed(x, fs, s);
+  try {
+    r.a = dsp::analyse_windowed(x, fs, s);
+  } catch (const input_error& e) {
+    throw input_error("'" + o.path + "': " + e.what());  // "no tone found" must say in which file
+  }
 
   if (!o.plot_path.empty()) {
     const double top_hz = fs / 2;
@@ -140,7 +151,8 @@ measure_report analyse(const measure_options& o) {
       const bool is_clear = std::log10(h / (h - 1.0)) > 0.03 * decades;
       p.markers.push_back({h * r.a.fundamental_hz, is_clear ? "H" + std::to_string(h) : std::string()});
     }
-    write_svg_file(o.plot_path, render_svg(p));
+    const std::filesystem::path inputs[] = {o.path};
+    write_svg_file(o.plot_path, render_svg(p), inputs);
   }
   return r;
 }

@@ -82,7 +82,8 @@ void register_response(CLI::App& app, std::vector<command>& commands) {
       "junction capacitances cgs and cgd (with the Miller effect) the high corner.");
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
                         if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
-                        const double lo = dsp::parse_frequency_hz(opt->from), hi = dsp::parse_frequency_hz(opt->to);
+                        const double lo = parse_analysis_frequency_hz(opt->from, "--from"),
+                                     hi = parse_analysis_frequency_hz(opt->to, "--to");
                         if (!(hi > lo)) throw input_error("--to must be above --from");
                         const model::stage st = load_stage(opt->input);
                         const model::network net = model::build_network(st);
@@ -107,7 +108,8 @@ void register_response(CLI::App& app, std::vector<command>& commands) {
                           for (const auto& c : r.corners)
                             if (c.frequency_hz >= lo && c.frequency_hz <= hi)
                               p.markers.push_back({c.frequency_hz, "-3 dB " + format_si(c.frequency_hz, "Hz")});
-                          write_svg_file(opt->plot, render_svg(p));
+                          const std::filesystem::path inputs[] = {opt->input.path};
+                          write_svg_file(opt->plot, render_svg(p), inputs);
                         }
 
                         if (opt->json) {

@@ -181,8 +181,14 @@ tone_report make_tone(const tone_options& o) {
   r.format = dsp::parse_sample_format(o.format_text);
   r.channels = o.channels;
   r.dither = !o.no_dither;
-  r.plan.frequency_hz = dsp::parse_frequency_hz(o.freq_text);
+  try {
+    r.plan.frequency_hz = dsp::parse_frequency_hz(o.freq_text);
+  } catch (const input_error& e) {
+    throw input_error(std::string("--freq: ") + e.what());
+  }
   r.plan.rate_hz = o.rate_hz;
+  if (!(o.fade_ms >= 0.0) || !std::isfinite(o.fade_ms))
+    throw input_error("--fade-ms must be zero or positive, got " + format_number(o.fade_ms));
   r.plan.fade_seconds = o.fade_ms / 1000.0;
   if (o.steps_text.empty()) r.plan.steps = {{parse_db(o.level_text, "dBFS", "--level"), o.seconds}};
   else r.plan.steps = parse_steps(o.steps_text, o.step_seconds);
@@ -203,6 +209,15 @@ tone_report make_tone(const tone_options& o) {
       }
   }
   dsp::tone_generator gen(r.plan);  // validates the plan before any file is made
+  // RIFF sizes are 32-bit: a WAV file cannot hold more than 4 GiB of samples.
+  if (r.format != dsp::sample_format::flac24) {
+    const int bytes = dsp::quantisation_bits(r.format) == 0 ? 4 : dsp::quantisation_bits(r.format) / 8;
+    const double size = static_cast<double>(dsp::tone_frames(r.plan)) * o.channels * bytes;
+    if (size > 4294967295.0 - 65536.0)
+      throw input_error("the tone needs " + format_number(size / 1073741824.0) +
+                        " GiB of samples and a WAV file holds at most 4 GiB: shorten it, lower --rate or --channels, or "
+                        "use --format flac");
+  }
   r.spans = dsp::steady_spans(r.plan);
   dsp::write_settings ws;
   ws.rate_hz = o.rate_hz;

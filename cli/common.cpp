@@ -2,6 +2,9 @@
 
 #include <cmath>
 
+#include "dsp/error.hpp"
+#include "dsp/units.hpp"
+#include "model/response.hpp"
 #include "model/stage_file.hpp"
 
 namespace pinchoff::cli {
@@ -27,6 +30,21 @@ nlohmann::json operating_point_json(const model::terminal_point& t) {
 
 const char* topology_name(model::topology t) noexcept {
   return t == model::topology::common_source ? "common-source" : "source-follower";
+}
+
+double parse_analysis_frequency_hz(const std::string& text, const std::string& option) {
+  double f = 0.0;
+  try {
+    f = dsp::parse_frequency_hz(text);
+  } catch (const input_error& e) {
+    throw input_error(option + ": " + e.what());
+  }
+  if (f < model::lowest_analysis_hz || f > model::highest_analysis_hz)
+    throw input_error(option + " " + text + ": the small-signal analysis covers " +
+                      dsp::format_si(model::lowest_analysis_hz, "Hz") + " to " +
+                      dsp::format_si(model::highest_analysis_hz, "Hz") +
+                      " (beyond that the lumped model with constant junction capacitances means nothing)");
+  return f;
 }
 
 }  // namespace pinchoff::cli

@@ -30,6 +30,10 @@ nlohmann::json number_or_null(double v);
 
 const char* topology_name(model::topology t) noexcept;
 
+/// Reads the frequency given to `option` ("--at", "--to") and checks that it lies in the
+/// band the small-signal analyses cover (model::lowest_analysis_hz .. highest_analysis_hz).
+double parse_analysis_frequency_hz(const std::string& text, const std::string& option);
+
 }  // namespace pinchoff::cli
 
 // Options shared by `spread` and `tune --over-spread`.

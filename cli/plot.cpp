@@ -471,12 +471,18 @@ std::string render_svg(const bar_chart& chart) {
   return out.s;
 }
 
-void write_svg_file(const std::filesystem::path& path, std::string_view svg) {
+void write_svg_file(const std::filesystem::path& path, std::string_view svg, std::span<const std::filesystem::path> inputs) {
   namespace fs = std::filesystem;
   const fs::path folder = path.has_parent_path() ? path.parent_path() : fs::path(".");
   std::error_code ec;
   if (!fs::is_directory(folder, ec))
     throw io_error("cannot write plot '" + path.string() + "': folder '" + folder.string() + "' does not exist");
+  if (fs::is_directory(path, ec)) throw io_error("cannot write plot '" + path.string() + "': it is a folder");
+  for (const fs::path& in : inputs) {
+    const bool same = fs::exists(path, ec) && fs::exists(in, ec) ? fs::equivalent(path, in, ec)
+                                                                 : fs::weakly_canonical(path, ec) == fs::weakly_canonical(in, ec);
+    if (same) throw io_error("cannot write plot '" + path.string() + "': it is the input file; choose another name");
+  }
   std::string temp_name = ".";  // built by appends: GCC 12 warns falsely on "." + string (PR 105329)
   temp_name += path.filename().string();
   temp_name += ".partial";

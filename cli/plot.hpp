@@ -13,6 +13,7 @@
 // Text is escaped for XML; everything else is the module's own fixed look.
 #include <filesystem>
 #include <optional>
+#include <span>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -86,7 +87,10 @@ std::string render_svg(const line_plot& plot);
 std::string render_svg(const bar_chart& chart);
 
 /// Writes `svg` to `path` atomically: a temporary file beside it, then a rename. Throws
-/// io_error naming the path when its folder does not exist or the write fails.
-void write_svg_file(const std::filesystem::path& path, std::string_view svg);
+/// io_error naming the path when its folder does not exist, when it is a folder, when it is
+/// one of `inputs` (compared as files, so links and relative paths are seen through: a plot
+/// must never replace the stage file or recording it was made from), or the write fails.
+void write_svg_file(const std::filesystem::path& path, std::string_view svg,
+                    std::span<const std::filesystem::path> inputs = {});
 
 }  // namespace pinchoff::cli

@@ -88,7 +88,7 @@ csv_table parse_csv(std::string_view text, std::string_view source) {
     } else {
       if (fields.size() != t.columns.size())
         throw input_error(t.source + ":" + std::to_string(line_no) + ": row has " + std::to_string(fields.size()) +
-                          " cells, the header has " + std::to_string(t.columns.size()));
+                          (fields.size() == 1 ? " cell" : " cells") + ", the header has " + std::to_string(t.columns.size()));
       std::vector<double> row;
       for (std::size_t c = 0; c < fields.size(); ++c) {
         const auto v = try_parse_value(fields[c]);

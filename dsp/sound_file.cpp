@@ -108,6 +108,13 @@ void check_opened(SNDFILE* f, const SF_INFO& si, const std::string& name) {
   }
 }
 
+// All the digits a user may have typed ("44100.5", not the rounded "44100").
+std::string exact_text(double v) {
+  char text[40];
+  std::snprintf(text, sizeof text, "%.12g", v);
+  return text;
+}
+
 std::string seconds_text(std::int64_t frame, double rate_hz) {
   char text[32];
   std::snprintf(text, sizeof text, "%.6g s", static_cast<double>(frame) / rate_hz);
@@ -192,6 +199,8 @@ struct sound_reader::memory_source {
 sound_reader sound_reader::open(const fs::path& path) {
   std::error_code ec;
   if (fs::is_directory(path, ec)) throw io_error("cannot open " + quoted(path) + ": it is a folder, not an audio file");
+  if (fs::is_regular_file(path, ec) && fs::file_size(path, ec) == 0 && !ec)
+    throw io_error("cannot open " + quoted(path) + ": the file is empty (0 bytes)");
   SF_INFO si{};
   SNDFILE* f = sf_open(path.c_str(), SFM_READ, &si);
   if (!f) throw io_error("cannot open " + quoted(path) + ": " + sf_strerror(nullptr));
@@ -365,7 +374,7 @@ int create_temporary(const fs::path& target, fs::path& temp) {
 
 sound_writer sound_writer::create(const fs::path& path, const write_settings& s) {
   if (!(s.rate_hz >= 1.0 && s.rate_hz <= 768000.0) || s.rate_hz != std::floor(s.rate_hz))
-    throw input_error("sample rate must be a whole number of hertz from 1 to 768000, got " + format_number(s.rate_hz));
+    throw input_error("sample rate must be a whole number of hertz from 1 to 768000, got " + exact_text(s.rate_hz));
   if (s.channels < 1 || s.channels > 64)
     throw input_error("channel count must be 1 to 64, got " + std::to_string(s.channels));
   if (path.empty()) throw io_error("no output file given");

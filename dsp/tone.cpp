@@ -54,6 +54,9 @@ tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
       throw input_error("level " + format_number(s.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
     if (!(s.seconds > 0.0) || !std::isfinite(s.seconds))
       throw input_error("a step must last a positive time, got " + format_number(s.seconds) + " s");
+    if (s.seconds > max_tone_seconds)
+      throw input_error("a step of " + format_number(s.seconds) + " s is longer than a test tone may be (" +
+                        format_number(max_tone_seconds) + " s, one hour)");
     const std::int64_t n = frames_of(s.seconds, plan.rate_hz);
     const bool is_last = i + 1 == plan.steps.size();
     // The last step holds a ramp in and a ramp out, so it needs at least four fades to keep
@@ -66,6 +69,9 @@ tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
     peak_ = std::max(peak_, amplitudes_.back());
   }
   total_ = starts_.back();
+  if (static_cast<double>(total_) > max_tone_seconds * plan.rate_hz)
+    throw input_error("the tone would last " + format_number(static_cast<double>(total_) / plan.rate_hz, 4) +
+                      " s, longer than a test tone may be (" + format_number(max_tone_seconds) + " s, one hour)");
 }
 
 double tone_generator::envelope(std::int64_t t) const noexcept {

@@ -38,6 +38,10 @@ struct tone_plan {
 /// when step_db is 0, the range needs more than 1000 steps, or a level is above 0 dBFS.
 std::vector<tone_step> level_staircase(double from_dbfs, double to_dbfs, double step_db, double seconds);
 
+/// The longest plan a tone_generator takes: one hour. Longer is taken for a slip of the
+/// keyboard (--seconds 1e12 would write until the disk is full).
+inline constexpr double max_tone_seconds = 3600.0;
+
 /// The plan's length in frames: the sum over steps of round(seconds * rate).
 std::int64_t tone_frames(const tone_plan& plan);
 

@@ -1,5 +1,6 @@
 #include "dsp/units.hpp"
 
+#include <algorithm>
 #include <array>
 #include <charconv>
 #include <cmath>
@@ -175,6 +176,9 @@ double parse_level_vpk(std::string_view text, bool require_unit) {
       default: vpk = vpk_from_dbv(*v); break;
     }
     if (sf.kind < 3 && *v < 0) break;
+    // "1e5dBu" or "1.3e308Vrms" read as numbers but overflow once converted to volts.
+    if (!std::isfinite(vpk))
+      throw input_error("level '" + std::string(text) + "' is too large: it overflows when converted to volts");
     return vpk;
   }
   if (!require_unit) {
@@ -218,8 +222,9 @@ double parse_fraction(std::string_view text, std::string_view what) {
     scale = 0.01;
   }
   const auto v = try_parse_value(s, unit::none);
-  if (!v || *v * scale < 0 || *v * scale >= 1)
-    throw input_error(prefix + "cannot read '" + std::string(text) + "' as a fraction (expected for example 5% or 0.05)");
+  if (!v) throw input_error(prefix + "cannot read '" + std::string(text) + "' as a fraction (expected for example 5% or 0.05)");
+  if (*v * scale < 0 || *v * scale >= 1)
+    throw input_error(prefix + "'" + std::string(text) + "' lies outside 0 to 100 % (a fraction from 0 up to, not including, 1)");
   return *v * scale;
 }
 
@@ -234,10 +239,15 @@ std::string format_number(double value, int digits) {
   if (!std::isfinite(value)) return std::isnan(value) ? "nan" : (value > 0 ? "inf" : "-inf");
   if (value == 0.0) return "0";
   const int mag = static_cast<int>(std::floor(std::log10(std::fabs(value))));
+  char buf[64];
+  // Fixed notation would print hundreds of digits for 1e300 (or zeros for 1e-300).
+  if (mag >= 15 || mag < -15) {
+    std::snprintf(buf, sizeof buf, "%.*e", std::max(digits - 1, 0), value);
+    return buf;
+  }
   int decimals = digits - 1 - mag;
   if (decimals < 0) decimals = 0;
   if (decimals > 15) decimals = 15;
-  char buf[64];
   std::snprintf(buf, sizeof buf, "%.*f", decimals, value);
   return buf;
 }

@@ -1,6 +1,10 @@
 #include "model/device_class.hpp"
 
+#include <cerrno>
 #include <cstdlib>
+#include <cstring>
+#include <fstream>
+#include <sstream>
 
 #include <toml++/toml.h>
 
@@ -43,11 +47,22 @@ dsp::value_range range(const toml::node& n, dsp::unit u, const std::string& file
 
 std::vector<device_class> read_device_classes(const std::filesystem::path& path) {
   const std::string file = path.string();
+  std::error_code ec;
+  if (std::filesystem::is_directory(path, ec)) throw io_error("cannot read device classes '" + file + "': it is a folder");
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw io_error("cannot read device classes '" + file + "': " + std::strerror(errno));
+  std::ostringstream buf;
+  buf << in.rdbuf();
+  if (in.bad()) throw io_error("cannot read device classes '" + file + "'");
+  return parse_device_classes(buf.str(), file);
+}
+
+std::vector<device_class> parse_device_classes(std::string_view text, std::string_view source_name) {
+  const std::string file(source_name);
   toml::table root;
   try {
-    root = toml::parse_file(file);
+    root = toml::parse(text, source_name);
   } catch (const toml::parse_error& e) {
-    if (e.source().begin.line == 0) throw io_error("cannot read device classes '" + file + "': " + std::string(e.description()));
     throw input_error(where(file, e.source()) + std::string(e.description()));
   }
   static const std::vector<std::string_view> keys{"summary", "idss", "vp", "typical_idss", "typical_vp", "lambda",

@@ -20,6 +20,8 @@ struct device_class {
 
 /// Reads a device-class file; errors name file, line and column like stage files.
 std::vector<device_class> read_device_classes(const std::filesystem::path& path);
+/// The same from text; `source_name` stands for the file in messages.
+std::vector<device_class> parse_device_classes(std::string_view text, std::string_view source_name);
 
 /// The class file used for `stage_file`: devices.toml beside it, else $PINCHOFF_DEVICES,
 /// else the project's presets/devices.toml.

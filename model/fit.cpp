@@ -4,6 +4,7 @@
 #include <cmath>
 #include <limits>
 #include <sstream>
+#include <utility>
 
 #include <Eigen/Dense>
 
@@ -195,6 +196,19 @@ fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& i
     res.idss_se_a = res.vp_se_v = res.lambda_se_per_v = std::numeric_limits<double>::quiet_NaN();
   }
   res.rms_residual_ratio = std::sqrt(cost / m);
+  // Readings whose current hardly falls with the gate voltage are matched best by a part
+  // that never pinches off: the fit runs VP off to infinity (or IDSS to zero), and the
+  // covariance is singular. Such readings do not determine the parameters; say so rather
+  // than report an infinite or NaN figure.
+  const std::pair<double, const char*> figures[] = {
+      {res.idss_a, "IDSS"},           {res.vp_v, "VP"},           {res.lambda_per_v, "lambda"},
+      {res.idss_se_a, "IDSS's error"}, {res.vp_se_v, "VP's error"}, {res.lambda_se_per_v, "lambda's error"}};
+  for (const auto& [value, name] : figures)
+    if (!std::isfinite(value) || (value == 0.0 && (name == figures[0].second || name == figures[1].second)))
+      throw input_error(std::string("these readings do not determine IDSS and VP: the best fit sends ") + name + " to " +
+                        dsp::format_number(value) +
+                        " (the current hardly falls as the gate goes more negative; take readings from VGS = 0 "
+                        "down to near cut-off, and check the columns and signs)");
 
   // A row "does not fit" when, refitted without it, the others predict it more than four
   // of their own standard deviations away (a deleted-residual test, Cook & Weisberg,

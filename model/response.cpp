@@ -46,7 +46,7 @@ response_result analyse_response(const network& net, const operating_point& op, 
 
   // -3 dB crossings: |H|^2 = |H_mid|^2 / 2 (half power).
   const double half = 0.5 * r.midband_gain * r.midband_gain;
-  const double lo = 1e-3, hi = 1e9;
+  const double lo = lowest_analysis_hz, hi = highest_analysis_hz;
   constexpr int per_decade = 40;
   const int n = static_cast<int>(std::log10(hi / lo) * per_decade);
   double f_prev = lo, e_prev = gain_mag2(net, lin, lo) - half;

@@ -10,6 +10,12 @@
 
 namespace pinchoff::model {
 
+/// The band the small-signal analyses cover: 1 mHz to 1 GHz. Above it the lumped model
+/// (constant junction capacitances, no lead inductance) means nothing and the nodal solve
+/// loses all precision; the corner search spans exactly this band.
+inline constexpr double lowest_analysis_hz = 1e-3;
+inline constexpr double highest_analysis_hz = 1e9;
+
 struct response_point {
   double frequency_hz{};
   std::complex<double> gain;  ///< V(load) / V(generator), real signs
@@ -30,9 +36,9 @@ struct response_result {
   std::vector<response_point> points;
 };
 
-/// `points` log-spaced frequencies from f_lo to f_hi (f_lo < f_hi, points >= 2). The
-/// corners are searched from 1 mHz to 1 GHz whatever the plotted range, and refined by
-/// bisection to 1e-9 relative in frequency.
+/// `points` log-spaced frequencies from f_lo to f_hi (f_lo < f_hi, points >= 2, both
+/// within the analysis band). The corners are searched over the whole analysis band
+/// whatever the plotted range, and refined by bisection to 1e-9 relative in frequency.
 response_result analyse_response(const network& net, const operating_point& op, double f_lo_hz, double f_hi_hz,
                                  int points);
 

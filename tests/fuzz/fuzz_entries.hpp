@@ -1,0 +1,243 @@
+#pragma once
+// The entry functions of the fuzz targets, shared by the libFuzzer programs (fuzz_*.cpp)
+// and by the regression test that replays every saved input on each `make test`
+// (tests/test_fuzz_regressions.cpp).
+//
+// Each function feeds arbitrary bytes to one parser. Refusing the input with input_error
+// (or io_error, which derives from it) is an expected outcome. Anything else is a bug: an
+// other exception escaping, a crash, a hang, a sanitizer report, or an accepted result that
+// breaks the parser's stated contract; the last throws `broken_contract`.
+#include <cmath>
+#include <cstddef>
+#include <cstdint>
+#include <span>
+#include <stdexcept>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "dsp/csv.hpp"
+#include "dsp/error.hpp"
+#include "dsp/sound_file.hpp"
+#include "dsp/units.hpp"
+#include "model/device_class.hpp"
+#include "model/fit.hpp"
+#include "model/spread.hpp"
+#include "model/stage.hpp"
+#include "model/stage_file.hpp"
+
+namespace pinchoff::fuzz {
+
+/// An accepted result that breaks what the parser promises.
+class broken_contract : public std::logic_error {
+ public:
+  using std::logic_error::logic_error;
+};
+
+enum class outcome { accepted, refused };
+
+namespace detail {
+
+inline void require(bool ok, const std::string& what) {
+  if (!ok) throw broken_contract(what);
+}
+
+inline bool starts_with(std::string_view text, std::string_view head) { return text.substr(0, head.size()) == head; }
+
+}  // namespace detail
+
+// ---------------------------------------------------------------------------------------
+// Stage file: the first line is one --set override (none when it is empty), the rest the
+// TOML text. An accepted stage has finite values and passes validate(); a refusal names
+// where it is (the source name or "--set").
+inline outcome stage_file_entry(std::string_view data) {
+  const std::size_t nl = data.find('\n');
+  const std::string_view first = data.substr(0, nl);
+  const std::string_view rest = nl == std::string_view::npos ? std::string_view() : data.substr(nl + 1);
+  std::vector<std::string> overrides;
+  if (!first.empty()) overrides.emplace_back(first);
+  try {
+    const model::stage st = model::parse_stage(rest, "fuzz.toml", overrides);
+    for (double v : {st.temperature_k, st.supply.volts_v, st.supply.resistance_ohm, st.supply.capacitance_f,
+                     st.jfet.idss_a, st.jfet.vp_v, st.jfet.lambda_per_v, st.jfet.is_a, st.jfet.n, st.jfet.cgs_f,
+                     st.jfet.cgd_f, st.signal_impedance_ohm, st.gate.coupling_cap_f, st.gate.resistor_ohm,
+                     st.gate.bias_top_ohm, st.gate.bias_bottom_ohm, st.drain_resistor_ohm, st.source.unbypassed_ohm,
+                     st.source.resistor_ohm, st.source.bypass_cap_f, st.output.coupling_cap_f, st.output.load_ohm})
+      detail::require(std::isfinite(v), "parse_stage accepted a non-finite value");
+    model::validate(st);  // throws input_error, which is reported below as a broken contract
+    return outcome::accepted;
+  } catch (const broken_contract&) {
+    throw;
+  } catch (const input_error& e) {
+    const std::string_view msg = e.what();
+    detail::require(detail::starts_with(msg, "fuzz.toml") || detail::starts_with(msg, "--set"),
+                    "stage-file message does not say where: " + std::string(msg));
+    return outcome::refused;
+  }
+}
+
+// ---------------------------------------------------------------------------------------
+// Device-class file (presets/devices.toml and its like): accepted classes have the ranges
+// and typical values the reader promises, and a refusal names the file.
+inline outcome device_classes_entry(std::string_view text) {
+  try {
+    const std::vector<model::device_class> all = model::parse_device_classes(text, "fuzz-devices.toml");
+    for (const model::device_class& c : all) {
+      for (double v : {c.idss_a.lo, c.idss_a.hi, c.vp_v.lo, c.vp_v.hi, c.typical_idss_a, c.typical_vp_v, c.lambda_per_v,
+                       c.is_a, c.n, c.cgs_f, c.cgd_f})
+        detail::require(std::isfinite(v), "a device class with a non-finite value was accepted");
+      detail::require(c.idss_a.lo > 0 && c.idss_a.lo <= c.idss_a.hi && c.vp_v.lo <= c.vp_v.hi && c.vp_v.hi < 0 &&
+                          c.typical_idss_a > 0 && c.typical_vp_v < 0,
+                      "a device class with impossible ranges was accepted");
+    }
+    return outcome::accepted;
+  } catch (const input_error& e) {
+    detail::require(detail::starts_with(e.what(), "fuzz-devices.toml"),
+                    std::string("device-class message does not say where: ") + e.what());
+    return outcome::refused;
+  }
+}
+
+// ---------------------------------------------------------------------------------------
+// Values, levels, frequencies, ranges and fractions: the whole input is one text given to
+// every parser in dsp/units.hpp, and to the spread's --require parser. Accepted results are finite and inside the stated ranges,
+// and try_parse_value agrees with parse_value.
+inline outcome units_entry(std::string_view text) {
+  using dsp::unit;
+  bool any = false;
+  auto attempt = [&](auto&& f) {
+    try {
+      f();
+      any = true;
+    } catch (const broken_contract&) {
+      throw;
+    } catch (const input_error& e) {
+      detail::require(std::string_view(e.what()).size() > 0, "empty message");
+    }
+  };
+  for (unit u : {unit::none, unit::ohm, unit::farad, unit::volt, unit::ampere, unit::hertz, unit::watt, unit::per_volt,
+                 unit::kelvin}) {
+    const std::optional<double> quiet = dsp::try_parse_value(text, u);
+    bool thrown = false;
+    try {
+      const double v = dsp::parse_value(text, u, "key");
+      detail::require(std::isfinite(v), "parse_value returned a non-finite value");
+      detail::require(quiet && *quiet == v, "try_parse_value disagrees with parse_value");
+      (void)dsp::format_si(v, "V");
+      any = true;
+    } catch (const input_error&) {
+      thrown = true;
+    }
+    detail::require(thrown == !quiet, "try_parse_value and parse_value disagree on acceptance");
+    for (bool any_order : {false, true})
+      attempt([&] {
+        const dsp::value_range r = dsp::parse_range(text, u, "key", any_order);
+        detail::require(std::isfinite(r.lo) && std::isfinite(r.hi) && r.lo <= r.hi, "parse_range returned a bad range");
+      });
+  }
+  for (bool require_unit : {false, true})
+    attempt([&] {
+      const double vpk = dsp::parse_level_vpk(text, require_unit);
+      detail::require(std::isfinite(vpk) && vpk >= 0.0, "parse_level_vpk returned a non-finite or negative level");
+      (void)dsp::format_si(vpk, "V");
+      (void)dsp::dbu_from_vpk(vpk);
+    });
+  attempt([&] {
+    const double f = dsp::parse_frequency_hz(text);
+    detail::require(std::isfinite(f) && f > 0.0, "parse_frequency_hz returned a frequency not above 0");
+  });
+  attempt([&] {
+    const model::requirement r = model::parse_requirement(text);
+    detail::require(!std::isnan(r.lo) && !std::isnan(r.hi) && r.lo <= r.hi, "parse_requirement returned a bad range");
+  });
+  attempt([&] {
+    const double x = dsp::parse_fraction(text, "key");
+    detail::require(std::isfinite(x) && x >= 0.0 && x < 1.0, "parse_fraction returned a value outside [0, 1)");
+  });
+  return any ? outcome::accepted : outcome::refused;
+}
+
+// ---------------------------------------------------------------------------------------
+// Bench CSV, then the square-law fit on what it read when the columns are those `pinchoff
+// fit` takes: the fit either refuses the readings or returns finite figures.
+inline outcome csv_fit_entry(std::string_view text) {
+  dsp::csv_table t;
+  try {
+    t = dsp::parse_csv(text, "fuzz.csv");
+  } catch (const input_error& e) {
+    detail::require(detail::starts_with(e.what(), "fuzz.csv"), std::string("CSV message does not say where: ") + e.what());
+    return outcome::refused;
+  }
+  detail::require(t.rows.size() == t.line_of_row.size(), "rows and their line numbers differ in count");
+  for (std::size_t k = 0; k < t.rows.size(); ++k) {
+    detail::require(t.rows[k].size() == t.columns.size(), "a row with the wrong number of cells was accepted");
+    for (double v : t.rows[k]) detail::require(std::isfinite(v), "a non-finite cell was accepted");
+    detail::require(t.line_of_row[k] >= 1 && (k == 0 || t.line_of_row[k] > t.line_of_row[k - 1]), "line numbers out of order");
+  }
+  const int c_vgs = t.column("vgs_v"), c_rs = t.column("rs_ohm"), c_id = t.column("id_a"), c_vds = t.column("vds_v");
+  if (c_id < 0 || (c_vgs < 0) == (c_rs < 0)) return outcome::accepted;
+  const model::reading_kind kind = c_vgs >= 0 ? model::reading_kind::gate_sweep : model::reading_kind::self_bias_jig;
+  std::vector<model::bench_reading> readings;
+  for (std::size_t k = 0; k < t.rows.size(); ++k) {
+    model::bench_reading r;
+    r.x = t.rows[k][static_cast<std::size_t>(c_vgs >= 0 ? c_vgs : c_rs)];
+    r.id_a = t.rows[k][static_cast<std::size_t>(c_id)];
+    if (c_vds >= 0) {
+      r.vds_v = t.rows[k][static_cast<std::size_t>(c_vds)];
+      r.has_vds = true;
+    }
+    r.line = t.line_of_row[k];
+    readings.push_back(r);
+  }
+  try {
+    const model::fit_result f = model::fit_square_law(kind, readings);
+    const std::string figures = "idss " + std::to_string(f.idss_a) + " +- " + std::to_string(f.idss_se_a) + ", vp " +
+                                std::to_string(f.vp_v) + " +- " + std::to_string(f.vp_se_v) + ", lambda " +
+                                std::to_string(f.lambda_per_v) + " +- " + std::to_string(f.lambda_se_per_v) + ", rms " +
+                                std::to_string(f.rms_residual_ratio);
+    for (double v : {f.idss_a, f.vp_v, f.lambda_per_v, f.idss_se_a, f.vp_se_v, f.lambda_se_per_v, f.rms_residual_ratio})
+      detail::require(std::isfinite(v), "fit_square_law returned a non-finite figure: " + figures);
+    detail::require(f.idss_a > 0.0 && (f.p_channel ? f.vp_v > 0.0 : f.vp_v < 0.0), "fit returned a sign that is not a JFET's: " + figures);
+    detail::require(f.rows.size() == readings.size(), "fit returned a different number of rows");
+    for (const model::fit_row& r : f.rows)
+      detail::require(std::isfinite(r.vgs_v) && std::isfinite(r.id_model_a) && std::isfinite(r.residual_ratio),
+                      "fit returned a non-finite row");
+    (void)model::jfet_block(f);
+    return outcome::accepted;
+  } catch (const input_error&) {
+    return outcome::refused;
+  }
+}
+
+// ---------------------------------------------------------------------------------------
+// Audio: the bytes as an in-memory file through libsndfile's virtual I/O; every frame is
+// read in blocks, then channel 1 again from the start as `pinchoff measure` reads it.
+inline outcome sound_entry(std::span<const std::byte> bytes) {
+  try {
+    dsp::sound_reader rd = dsp::sound_reader::open_memory(bytes, "fuzz.wav");
+    const dsp::sound_info info = rd.info();
+    detail::require(info.channels >= 1 && info.rate_hz >= 1 && info.frames >= 0, "opened a file with an impossible header");
+    std::vector<double> block(static_cast<std::size_t>(info.channels) * 1024);
+    std::int64_t total = 0;
+    for (;;) {
+      const std::size_t got = rd.read(block);
+      if (got == 0) break;
+      detail::require(got <= 1024, "read returned more frames than asked for");
+      total += static_cast<std::int64_t>(got);
+      if (info.is_float)
+        for (std::size_t i = 0; i < got * static_cast<std::size_t>(info.channels); ++i)
+          detail::require(std::isfinite(block[i]), "a non-finite sample was read");
+    }
+    detail::require(total == info.frames && rd.position() == total, "read a different number of frames than the header gives");
+    rd.seek(0);
+    const std::vector<double> x = dsp::read_channel(rd, 0);
+    detail::require(static_cast<std::int64_t>(x.size()) == info.frames, "read_channel returned a different number of frames");
+    return outcome::accepted;
+  } catch (const input_error& e) {
+    detail::require(std::string_view(e.what()).find("fuzz.wav") != std::string_view::npos,
+                    std::string("audio message does not name the file: ") + e.what());
+    return outcome::refused;
+  }
+}
+
+}  // namespace pinchoff::fuzz

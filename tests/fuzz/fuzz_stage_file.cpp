@@ -1,0 +1,11 @@
+// libFuzzer target: the stage-file reader (TOML text, with the first line as one --set override).
+// The entry function and what counts as a bug: fuzz_entries.hpp.
+#include <cstddef>
+#include <cstdint>
+
+#include "tests/fuzz/fuzz_entries.hpp"
+
+extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
+  (void)pinchoff::fuzz::stage_file_entry(std::string_view(reinterpret_cast<const char*>(data), size));
+  return 0;
+}
