@@ -23,7 +23,8 @@ for p in "$presets"/*.toml; do
   check "bias --json $p" 0 "$bin" bias "$p" --json
   python3 -c 'import json,sys; json.load(open(sys.argv[1]))' "$tmp/out" || { echo "FAIL: bias --json $p is not JSON"; fail=1; }
   check "tune center $p" 0 "$bin" tune "$p" --target center
-  check "spread $p" 0 "$bin" spread "$p" --runs 100 --class general-purpose
+  check "spread $p" 0 "$bin" spread "$p" --runs 100 --class general-purpose --plot "$tmp/h.svg"
+  rsvg-convert "$tmp/h-vd.svg" -o "$tmp/h.png" || { echo "FAIL: spread histogram of $p does not render"; fail=1; }
   check "sweep $p" 0 "$bin" sweep "$p" --steps 5 --plot "$tmp/s.svg"
   rsvg-convert "$tmp/s.svg" -o "$tmp/s.png" || { echo "FAIL: sweep plot of $p does not render"; fail=1; }
   check "response $p" 0 "$bin" response "$p" --plot "$tmp/r.svg"
