@@ -33,5 +33,6 @@ void register_spread(CLI::App& app, std::vector<command>& commands);
 void register_sweep(CLI::App& app, std::vector<command>& commands);
 void register_tone(CLI::App& app, std::vector<command>& commands);
 void register_measure(CLI::App& app, std::vector<command>& commands);
+void register_compare(CLI::App& app, std::vector<command>& commands);
 
 }  // namespace pinchoff::cli
