@@ -7,7 +7,7 @@ CMAKE_FLAGS ?=
 PINCHOFF = $(BUILD_DIR)/pinchoff
 MAKEFLAGS += --no-print-directory
 
-.PHONY: all deps configure build build-asan demo test test-release test-asan bench clean
+.PHONY: all deps configure build build-asan demo test test-release test-asan bench soak clean
 
 all: build
 
@@ -48,6 +48,10 @@ test-asan: build-asan
 	@echo "== tests: AddressSanitizer + UndefinedBehaviorSanitizer build"
 	@ASAN_OPTIONS=halt_on_error=1:detect_leaks=1 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 \
 	  ctest --test-dir $(ASAN_DIR) --output-on-failure -j$(JOBS)
+
+# 100 000 random valid stages (PINCHOFF_SOAK_COUNT to change), with counts printed.
+soak: build
+	@$(BUILD_DIR)/pinchoff_tests -tc="soak*" --no-skip --success=false
 
 bench: build
 	@if [ -x $(BUILD_DIR)/pinchoff_bench ]; then $(BUILD_DIR)/pinchoff_bench; else echo "no benchmarks built"; fi

@@ -31,6 +31,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   register_fit(app, commands);
   register_spread(app, commands);
   register_sweep(app, commands);
+  register_imd(app, commands);
   register_tone(app, commands);
   register_measure(app, commands);
   register_compare(app, commands);

@@ -31,6 +31,7 @@ void register_response(CLI::App& app, std::vector<command>& commands);
 void register_fit(CLI::App& app, std::vector<command>& commands);
 void register_spread(CLI::App& app, std::vector<command>& commands);
 void register_sweep(CLI::App& app, std::vector<command>& commands);
+void register_imd(CLI::App& app, std::vector<command>& commands);
 void register_tone(CLI::App& app, std::vector<command>& commands);
 void register_measure(CLI::App& app, std::vector<command>& commands);
 void register_compare(CLI::App& app, std::vector<command>& commands);

@@ -81,7 +81,9 @@ void register_fit(CLI::App& app, std::vector<command>& commands) {
                           j["lambda_per_v"] = f.lambda_per_v;
                           j["lambda_fitted"] = f.lambda_fitted;
                           j["polarity"] = f.p_channel ? "p" : "n";
-                          j["std_errors"] = {{"idss_a", f.idss_se_a}, {"vp_v", f.vp_se_v}, {"lambda_per_v", f.lambda_se_per_v}};
+                          j["std_errors"] = {{"idss_a", number_or_null(f.idss_se_a)},
+                                             {"vp_v", number_or_null(f.vp_se_v)},
+                                             {"lambda_per_v", number_or_null(f.lambda_se_per_v)}};
                           j["rms_residual_percent"] = 100.0 * f.rms_residual_ratio;
                           nlohmann::json rows = nlohmann::json::array();
                           for (const auto& r : f.rows)
@@ -99,8 +101,10 @@ void register_fit(CLI::App& app, std::vector<command>& commands) {
                             << (kind == model::reading_kind::gate_sweep ? "gate sweep" : "self-bias jig") << ", "
                             << (f.p_channel ? "p" : "n") << "-channel)\n\n";
                         text_table p({align::left, align::right, align::left});
-                        p.add({"IDSS", format_si(f.idss_a, "A", 4), "± " + format_si(f.idss_se_a, "A", 2)});
-                        p.add({"VP", format_si(f.vp_v, "V", 4), "± " + format_si(f.vp_se_v, "V", 2)});
+                        const bool exact = std::isnan(f.idss_se_a);
+                        p.add({"IDSS", format_si(f.idss_a, "A", 4), exact ? "exact through two readings" : "± " + format_si(f.idss_se_a, "A", 2)});
+                        p.add({"VP", format_si(f.vp_v, "V", 4),
+                               exact ? "(a third reading gives error estimates)" : "± " + format_si(f.vp_se_v, "V", 2)});
                         if (f.lambda_fitted)
                           p.add({"lambda", format_number(f.lambda_per_v, 3) + " /V",
                                  "± " + format_number(f.lambda_se_per_v, 2) + " /V"});

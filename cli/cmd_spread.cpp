@@ -13,6 +13,7 @@
 #include "dsp/error.hpp"
 #include "dsp/units.hpp"
 #include "model/spread.hpp"
+#include "model/sweep.hpp"
 
 namespace pinchoff::cli {
 namespace {
@@ -25,6 +26,7 @@ struct spread_options {
   stage_input input;
   spread_input batch;
   std::vector<std::string> conditions;
+  std::string drive, freq{"1k"};
   bool json{false}, csv{false};
   std::string plot;
 };
@@ -84,8 +86,12 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
   add_stage_input(*sub, opt->input);
   add_spread_options(*sub, opt->batch);
   sub->add_option("--require", opt->conditions,
-                  "A condition a good build meets, QUANTITY=LO..HI (repeatable): id, vd, vs, vds, vgs, gain (dB), swing (V peak)")
+                  "A condition a good build meets, QUANTITY=LO..HI (repeatable): id, vd, vs, vds, vgs, gain (dB), swing (V peak), "
+                  "thd (%, with --drive)")
       ->type_name("Q=LO..HI");
+  sub->add_option("--drive", opt->drive, "Also simulate each part at this drive and report its THD (slower)")
+      ->type_name("LEVEL");
+  sub->add_option("--freq", opt->freq, "Test-tone frequency for --drive")->capture_default_str();
   sub->add_flag("--json", opt->json, "Machine-readable summary");
   sub->add_flag("--csv", opt->csv, "Every run as CSV");
   sub->add_option("--plot", opt->plot,
@@ -98,6 +104,8 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
       "  pinchoff spread presets/bass-booster-9v.toml --supply 7..9.6 --tolerance 5% --runs 5000\n"
       "      the same part as the battery drains, with 5 % resistors\n"
       "  pinchoff spread presets/clean-preamp-18v.toml --idss 4m..12m --vp -1.5..-4 --plot batch.svg\n"
+      "  pinchoff spread presets/bass-booster-9v.toml --class general-purpose --drive 300mVpk --require thd=..5\n"
+      "      how the distortion at a hard pluck spreads over a batch (thd in %)\n"
       "IDSS and |VP| are drawn with the given correlation (real batches: parts with a high IDSS\n"
       "also pinch off at a larger voltage). The yield counts runs biased in saturation that meet\n"
       "every --require. The same seed gives the same runs on any number of threads.");
@@ -107,9 +115,22 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
                         for (const std::string& r : opt->conditions) reqs.push_back(model::parse_requirement(r));
                         const model::stage st = load_stage(opt->input);
                         const model::spread_settings settings = spread_settings_from(opt->batch, st, opt->input.path);
-                        const model::spread_result res = model::run_spread(st, settings, reqs);
+                        model::run_extra extra;
+                        if (!opt->drive.empty()) {
+                          model::sweep_settings sw;
+                          sw.drives_vpk = {dsp::parse_level_vpk(opt->drive)};
+                          sw.frequency_hz = dsp::parse_frequency_hz(opt->freq);
+                          sw.threads = 1;
+                          model::validate(sw);
+                          extra = [sw](const model::stage& drawn, std::map<std::string, double>& values) {
+                            values["thd"] = model::run_sweep(drawn, sw).points[0].thd_percent;
+                          };
+                        }
+                        for (const auto& r : reqs)
+                          if (r.quantity == "thd" && !extra) throw input_error("--require thd=... needs --drive (the level to measure THD at)");
+                        const model::spread_result res = model::run_spread(st, settings, reqs, extra);
 
-                        std::vector<std::string> shown{"id", "vd", "vs", "vds", "gain", "swing"};
+                        std::vector<std::string> shown{"id", "vd", "vs", "vds", "gain", "swing", "thd"};
                         std::ostringstream plots;
                         if (!opt->plot.empty()) {
                           std::vector<std::string> names;

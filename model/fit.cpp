@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <sstream>
 
 #include <Eigen/Dense>
@@ -159,9 +160,19 @@ fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& i
   res.lambda_fitted = vds_all && (vmax - vmin) > 1.0 && rd.size() >= 4;
   const int np = res.lambda_fitted ? 3 : 2;
   const int m = static_cast<int>(rd.size());
-  if (m < np + 1)
-    throw input_error("too few readings to fit: " + std::to_string(m) + " given, at least " + std::to_string(np + 1) +
-                      " needed for " + std::to_string(np) + " parameters and their errors");
+  if (m < np)
+    throw input_error("too few readings to fit: " + std::to_string(m) + " given, at least " + std::to_string(np) +
+                      " needed for " + std::to_string(np) + " parameters (and one more for their errors)");
+  {
+    double xmin = rd.front().x, xmax = rd.front().x;
+    for (const bench_reading& r : rd) {
+      xmin = std::min(xmin, r.x);
+      xmax = std::max(xmax, r.x);
+    }
+    if (!(xmax > xmin))
+      throw input_error(std::string("every reading has the same ") + (kind == reading_kind::gate_sweep ? "vgs_v" : "rs_ohm") +
+                        ": at least two different settings are needed to tell IDSS from VP");
+  }
 
   const core_fit cf = fit_core(kind, rd, np);
   const Eigen::Vector3d q = cf.q;
@@ -172,11 +183,17 @@ fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& i
   res.vp_v = -std::exp(q[1]);
   res.lambda_per_v = np == 3 ? q[2] : 0.0;
   const double dof = m - np;
-  const double s2 = cost / dof;
-  const Eigen::MatrixXd cov = (cf.jm.transpose() * cf.jm).inverse() * s2;
-  res.idss_se_a = res.idss_a * std::sqrt(std::max(0.0, cov(0, 0)));
-  res.vp_se_v = std::fabs(res.vp_v) * std::sqrt(std::max(0.0, cov(1, 1)));
-  res.lambda_se_per_v = np == 3 ? std::sqrt(std::max(0.0, cov(2, 2))) : 0.0;
+  if (dof > 0) {
+    const double s2 = cost / dof;
+    const Eigen::MatrixXd cov = (cf.jm.transpose() * cf.jm).inverse() * s2;
+    res.idss_se_a = res.idss_a * std::sqrt(std::max(0.0, cov(0, 0)));
+    res.vp_se_v = std::fabs(res.vp_v) * std::sqrt(std::max(0.0, cov(1, 1)));
+    res.lambda_se_per_v = np == 3 ? std::sqrt(std::max(0.0, cov(2, 2))) : 0.0;
+  } else {
+    // As many readings as parameters: the part is determined exactly, with no scatter
+    // left to estimate errors from.
+    res.idss_se_a = res.vp_se_v = res.lambda_se_per_v = std::numeric_limits<double>::quiet_NaN();
+  }
   res.rms_residual_ratio = std::sqrt(cost / m);
 
   // A row "does not fit" when, refitted without it, the others predict it more than four
@@ -221,8 +238,11 @@ std::string jfet_block(const fit_result& r) {
   std::ostringstream os;
   os << "[jfet]\n";
   if (r.p_channel) os << "polarity = \"p\"\n";
-  os << "idss = \"" << value(r.idss_a) << "\"    # ± " << dsp::format_si(r.idss_se_a, "A", 2) << "\n";
-  os << "vp = " << dsp::format_number(r.vp_v, 4) << "    # ± " << dsp::format_si(r.vp_se_v, "V", 2) << "\n";
+  const bool exact = std::isnan(r.idss_se_a);
+  os << "idss = \"" << value(r.idss_a) << "\"    # "
+     << (exact ? std::string("from two readings, no error estimate") : "± " + dsp::format_si(r.idss_se_a, "A", 2)) << "\n";
+  os << "vp = " << dsp::format_number(r.vp_v, 4) << "    # "
+     << (exact ? std::string("from two readings, no error estimate") : "± " + dsp::format_si(r.vp_se_v, "V", 2)) << "\n";
   if (r.lambda_fitted)
     os << "lambda = " << dsp::format_number(r.lambda_per_v, 3) << "    # ± " << dsp::format_number(r.lambda_se_per_v, 2) << " /V\n";
   return os.str();

@@ -37,14 +37,16 @@ struct fit_row {
 struct fit_result {
   bool p_channel{false};
   double idss_a{}, vp_v{}, lambda_per_v{};
-  double idss_se_a{}, vp_se_v{}, lambda_se_per_v{};
+  double idss_se_a{}, vp_se_v{}, lambda_se_per_v{};  ///< NaN with exactly as many readings as parameters
   bool lambda_fitted{false};
   int iterations{};
   double rms_residual_ratio{};
   std::vector<fit_row> rows;
 };
 
-/// Fits the readings (all of one kind). Throws input_error when there are too few rows,
+/// Fits the readings (all of one kind); two readings determine IDSS and VP exactly (no
+/// error estimate), three or more give standard errors. Throws input_error when there are
+/// too few rows,
 /// a current is not positive (or of mixed sign), or the readings cannot come from a
 /// square-law part (the current does not fall as the gate goes more negative).
 fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& readings);

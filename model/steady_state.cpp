@@ -52,17 +52,28 @@ Eigen::VectorXd newton_correction(const Eigen::MatrixXd& m, const Eigen::VectorX
 steady_state_result periodic_steady_state(dk_engine& eng, double amplitude_v, int samples_per_period,
                                           const steady_state_options& opt) {
   if (samples_per_period < 4) throw internal_error("periodic_steady_state: a period needs at least 4 samples");
-  if (opt.periods_out < 1) throw internal_error("periodic_steady_state: periods_out must be at least 1");
   if (!std::isfinite(amplitude_v)) throw internal_error("periodic_steady_state: the amplitude must be finite");
   const int p = samples_per_period;
-  const int ns = eng.states();
   std::vector<double> drive(static_cast<std::size_t>(p));
   if (opt.cycles < 1 || 2 * opt.cycles >= p) throw internal_error("periodic_steady_state: cycles must be in [1, samples/2)");
   for (int n = 0; n < p; ++n)
     drive[static_cast<std::size_t>(n)] = amplitude_v * std::sin(2.0 * std::numbers::pi * double(opt.cycles) * n / p);
+  steady_state_result res = periodic_steady_state(eng, drive, opt);
+  res.frequency_hz = eng.sample_rate_hz() * opt.cycles / p;
+  return res;
+}
+
+steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<double>& drive,
+                                          const steady_state_options& opt) {
+  if (drive.size() < 4) throw internal_error("periodic_steady_state: a period needs at least 4 samples");
+  if (opt.periods_out < 1) throw internal_error("periodic_steady_state: periods_out must be at least 1");
+  for (double d : drive)
+    if (!std::isfinite(d)) throw internal_error("periodic_steady_state: the drive must be finite");
+  const int p = static_cast<int>(drive.size());
+  const int ns = eng.states();
 
   steady_state_result res;
-  res.frequency_hz = eng.sample_rate_hz() * opt.cycles / p;
+  res.frequency_hz = eng.sample_rate_hz() / p;
   res.samples_per_period = p;
   res.output_v.assign(static_cast<std::size_t>(p) * static_cast<std::size_t>(opt.periods_out), 0.0);
 

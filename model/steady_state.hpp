@@ -52,6 +52,11 @@ struct steady_state_result {
 steady_state_result periodic_steady_state(dk_engine& engine, double amplitude_v, int samples_per_period,
                                           const steady_state_options& opt = {});
 
+/// Steady state for any periodic generator drive given as one period of samples (real
+/// volts); `opt.cycles` is not used, and frequency_hz is the period's repetition rate.
+steady_state_result periodic_steady_state(dk_engine& engine, const std::vector<double>& drive,
+                                          const steady_state_options& opt = {});
+
 /// The same with an engine built for the network at `sample_rate_hz`.
 steady_state_result periodic_steady_state(const network& net, const operating_point& op, double sample_rate_hz,
                                           double amplitude_v, int samples_per_period,

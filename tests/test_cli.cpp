@@ -158,6 +158,18 @@ TEST_CASE("sweep --json follows the contract") {
   CHECK(j["points"][0]["harmonics_dbc"].size() == 9);  // H2..H10
 }
 
+TEST_CASE("imd --json reports the products") {
+  const result r = run({"imd", preset("bass-booster-9v.toml"), "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["method"] == "smpte");
+  CHECK(j["imd_percent"].get<double>() > 0.0);
+  CHECK(j["products"].size() == 4);
+  const result t = run({"imd", preset("bass-booster-9v.toml"), "--method", "twin-tone", "--json"});
+  REQUIRE(t.status == 0);
+  CHECK(nlohmann::json::parse(t.out).contains("d3_percent"));
+}
+
 TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
   const std::vector<std::vector<std::string>> cases{
       {"bias", preset("missing.toml")},
@@ -182,6 +194,9 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
       {"sweep", preset("bass-booster-9v.toml"), "--from", "1V", "--to", "10mV"},
       {"sweep", preset("bass-booster-9v.toml"), "--drive", "1V", "--from", "10mV"},
       {"sweep", preset("bass-booster-9v.toml"), "--oversample", "0"},
+      {"imd", preset("bass-booster-9v.toml"), "--method", "ccif"},
+      {"imd", preset("bass-booster-9v.toml"), "--level", "-1V"},
+      {"imd", preset("bass-booster-9v.toml"), "--method", "twin-tone", "--rate", "32k"},
       {"response", preset("bass-booster-9v.toml"), "--plot", "/nonexistent-folder/r.svg"},
   };
   for (const auto& args : cases) {
@@ -195,7 +210,7 @@ TEST_CASE("bad input exits with status 2 and writes nothing to stdout") {
 }
 
 TEST_CASE("help teaches by example and exits 0") {
-  for (const char* cmd : {"bias", "tune", "response", "fit", "spread", "sweep"}) {
+  for (const char* cmd : {"bias", "tune", "response", "fit", "spread", "sweep", "imd"}) {
     CAPTURE(cmd);
     const result r = run({cmd, "--help"});
     CHECK(r.status == 0);

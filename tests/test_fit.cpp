@@ -74,6 +74,18 @@ TEST_CASE("a p-channel part is fitted from bench signs") {
   CHECK(f.vp_v == doctest::Approx(2.0).epsilon(1e-6));
 }
 
+TEST_CASE("two readings determine the part exactly") {
+  // Closed form: two points fix the two parameters of Shockley's equation; with a
+  // self-bias jig, id at two source resistors (Boylestad & Nashelsky ch. 7 quadratic).
+  const std::vector<bench_reading> two{{100.0, jig(4e-3, -1.4, 100.0), 0, false, 2},
+                                       {2200.0, jig(4e-3, -1.4, 2200.0), 0, false, 3}};
+  const fit_result f = fit_square_law(reading_kind::self_bias_jig, two);
+  CHECK(f.idss_a == doctest::Approx(4e-3).epsilon(1e-6));
+  CHECK(f.vp_v == doctest::Approx(-1.4).epsilon(1e-6));
+  CHECK(std::isnan(f.idss_se_a));
+  CHECK(jfet_block(f).find("no error estimate") != std::string::npos);
+}
+
 TEST_CASE("with 1 % reading noise the truth lies within the reported standard errors") {
   // Statistics of least squares (any text on regression): with the scatter estimated
   // from 7 - 2 = 5 degrees of freedom, |estimate - truth| / SE follows Student's t with 5
@@ -115,8 +127,10 @@ TEST_CASE("an outlier row is flagged") {
 TEST_CASE("readings no square-law part can produce are refused") {
   const std::vector<bench_reading> rising{{0.0, 1e-3, 0, false, 2}, {-0.5, 2e-3, 0, false, 3}, {-1.0, 3e-3, 0, false, 4}};
   CHECK_THROWS_AS(fit_square_law(reading_kind::gate_sweep, rising), input_error);
-  const std::vector<bench_reading> two{{0.0, 5e-3, 0, false, 2}, {-0.5, 3e-3, 0, false, 3}};
-  CHECK_THROWS_WITH_AS(fit_square_law(reading_kind::gate_sweep, two), doctest::Contains("too few readings"), input_error);
+  const std::vector<bench_reading> one{{0.0, 5e-3, 0, false, 2}};
+  CHECK_THROWS_WITH_AS(fit_square_law(reading_kind::gate_sweep, one), doctest::Contains("too few readings"), input_error);
+  const std::vector<bench_reading> same{{-0.5, 3e-3, 0, false, 2}, {-0.5, 3.1e-3, 0, false, 3}};
+  CHECK_THROWS_WITH_AS(fit_square_law(reading_kind::gate_sweep, same), doctest::Contains("same vgs_v"), input_error);
   const std::vector<bench_reading> zero{{0.0, 5e-3, 0, false, 2}, {-0.5, 3e-3, 0, false, 3}, {-3.0, 0.0, 0, false, 4}};
   CHECK_THROWS_WITH_AS(fit_square_law(reading_kind::gate_sweep, zero), doctest::Contains("line 4"), input_error);
 }

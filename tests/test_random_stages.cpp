@@ -1,6 +1,7 @@
 // Property test: every random valid stage gets an operating point that satisfies
 // Kirchhoff's current law, and finite small-signal and headroom figures.
 #include <cmath>
+#include <cstdlib>
 #include <sstream>
 
 #include <doctest/doctest.h>
@@ -10,6 +11,7 @@
 #include "model/nodal.hpp"
 #include "model/operating_point.hpp"
 #include "model/small_signal.hpp"
+#include "model/sweep.hpp"
 #include "support/random_stage.hpp"
 
 using namespace pinchoff;
@@ -27,16 +29,21 @@ std::string describe(const stage& s) {
      << " RS=" << s.source.resistor_ohm << " CS=" << s.source.bypass_cap_f << " RL=" << s.output.load_ohm;
   return os.str();
 }
-}  // namespace
+struct random_counts {
+  int drawn{0}, solved{0}, swept{0}, sweep_points_with_failures{0};
+};
 
-TEST_CASE("random valid stages all get a DC point that satisfies KCL") {
-  // Kirchhoff's current law at every node is the oracle: the residual of the full nodal
-  // equations at the reported point, independent of how the solver got there.
-  test::stage_sampler sampler(20261201);
-  int solved = 0;
-  constexpr int count = 3000;
+// Draws `count` stages; every one must solve, and every `sweep_every`-th is also swept at
+// three drives. Checks are doctest CHECKs, so a failure names the stage.
+random_counts check_random_stages(std::uint64_t seed, int count, int sweep_every) {
+  test::stage_sampler sampler(seed);
+  random_counts c;
+  sweep_settings sw;
+  sw.drives_vpk = {0.01, 0.3, 3.0};
+  sw.threads = 1;
   for (int k = 0; k < count; ++k) {
     const stage s = sampler.draw();
+    ++c.drawn;
     CAPTURE(k);
     const std::string what = describe(s);
     CAPTURE(what);
@@ -50,7 +57,7 @@ TEST_CASE("random valid stages all get a DC point that satisfies KCL") {
     // Residual relative to the largest current in the circuit.
     const double scale = std::max(1e-12, (lin.a.cwiseAbs() * op.x.cwiseAbs()).maxCoeff());
     CHECK(op.newton.residual_a <= 1e-9 * scale + 1e-15);
-    ++solved;
+    ++c.solved;
     const small_signal_figures ss = analyse_small_signal(net, op);
     CHECK(std::isfinite(ss.gain_midband));
     CHECK(std::isfinite(ss.zout_ohm));
@@ -58,7 +65,39 @@ TEST_CASE("random valid stages all get a DC point that satisfies KCL") {
     CHECK(std::isfinite(h.symmetric_output_vpk));
     CHECK(h.up.kind != swing_limit_kind::no_convergence);
     CHECK(h.down.kind != swing_limit_kind::no_convergence);
+    if (sweep_every > 0 && k % sweep_every == 0) {
+      sweep_result r;
+      REQUIRE_NOTHROW(r = run_sweep(s, sw));
+      for (const sweep_point& p : r.points) {
+        CAPTURE(p.drive_vpk);
+        CHECK(std::isfinite(p.output_vpk));
+        CHECK(std::isfinite(p.thd_percent));
+        CHECK(std::isfinite(p.gain_db));
+        if (p.newton.failed > 0) ++c.sweep_points_with_failures;
+      }
+      ++c.swept;
+    }
   }
-  CHECK(solved == count);
-  MESSAGE("random stages solved: " << solved << " of " << count);
+  return c;
+}
+
+}  // namespace
+
+TEST_CASE("random valid stages all get a DC point that satisfies KCL, and sweep to finite numbers") {
+  // Kirchhoff's current law at every node is the oracle: the residual of the full nodal
+  // equations at the reported point, independent of how the solver got there.
+  const random_counts c = check_random_stages(20261201, 3000, 50);
+  CHECK(c.solved == c.drawn);
+  MESSAGE("random stages: " << c.solved << " of " << c.drawn << " solved; " << c.swept
+                            << " swept at 3 drives, points with unconverged samples: " << c.sweep_points_with_failures);
+}
+
+TEST_CASE("soak: many random stages" * doctest::skip()) {
+  // `make soak`: PINCHOFF_SOAK_COUNT stages (default 100000), a sweep on every 50th.
+  const char* env = std::getenv("PINCHOFF_SOAK_COUNT");
+  const int count = env ? std::atoi(env) : 100000;
+  const random_counts c = check_random_stages(777, count, 50);
+  CHECK(c.solved == c.drawn);
+  MESSAGE("soak: " << c.solved << " of " << c.drawn << " random stages solved; " << c.swept
+                   << " swept at 3 drives, points with unconverged samples: " << c.sweep_points_with_failures);
 }

@@ -7,6 +7,7 @@
 
 #include "dsp/error.hpp"
 #include "model/spread.hpp"
+#include "model/sweep.hpp"
 #include "support/stages.hpp"
 
 using namespace pinchoff;
@@ -150,4 +151,30 @@ TEST_CASE("a trimmer sized over the batch brings every part to the target") {
   // The smallest standard trimmer that spans the range (common practice values).
   for (double smaller : standard_trimmers_ohm())
     if (smaller < t.trimmer_ohm) CHECK(t.fixed_ohm + smaller < t.r_max);
+}
+
+TEST_CASE("THD over a batch follows the square-law closed form per part") {
+  // Ideal square law (gate DC-coupled at 0 V, grounded source, lambda = 0, no gate
+  // current): HD2 = A / (4 (VGSQ - VP)) with VGSQ = 0 and no higher harmonics (Gray,
+  // Hurst, Lewis & Meyer; from memory), so THD = A / (4 |VP|) for every drawn part.
+  const std::string text =
+      "[supply]\nvolts = 30\n[jfet]\nidss = \"4m\"\nvp = -2\nis = 0\n[gate]\nresistor = \"1M\"\n[drain]\nresistor = \"1k\"\n";
+  const stage st = test::stage_from(text);
+  spread_settings s;
+  s.vp_v = dsp::value_range{-3.0, -1.5};
+  s.runs = 40;
+  sweep_settings sw;
+  sw.drives_vpk = {0.05};
+  sw.threads = 1;
+  const spread_result r = run_spread(st, s, {parse_requirement("thd=..1")},
+                                     [&](const stage& drawn, std::map<std::string, double>& v) {
+                                       v["thd"] = run_sweep(drawn, sw).points[0].thd_percent;
+                                     });
+  int meets = 0;
+  for (const spread_run& run : r.runs) {
+    const double expect = 100.0 * 0.05 / (4.0 * std::fabs(run.draw.vp_v));
+    CHECK(run.values.at("thd") == doctest::Approx(expect).epsilon(1e-6));
+    meets += expect <= 1.0 ? 1 : 0;
+  }
+  CHECK(r.yield == doctest::Approx(meets / 40.0).epsilon(1e-12));
 }
