@@ -263,6 +263,8 @@ void register_compare(CLI::App& app, std::vector<command>& commands) {
   sub->add_option("--set", opt->overrides,
                   "Override a value in every design, KEY=VALUE, or in design N only, N:KEY=VALUE (repeatable)")
       ->type_name("[N:]KEY=VALUE")
+      ->expected(1)
+      ->allow_extra_args(false)
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
   sub->add_option("--freq", opt->freq, "Test-tone frequency (snapped so the record holds whole cycles)")->capture_default_str();
   sub->add_option("--at-output", opt->at_output,

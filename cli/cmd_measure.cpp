@@ -367,6 +367,8 @@ void register_measure(CLI::App& app, std::vector<command>& commands) {
       ->type_name("LEVEL");
   sub->add_option("--set", opt->overrides, "With --against: override a stage-file value, KEY=VALUE (repeatable)")
       ->type_name("KEY=VALUE")
+      ->expected(1)
+      ->allow_extra_args(false)
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
   sub->footer(
       "Examples:\n"

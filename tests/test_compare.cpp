@@ -195,6 +195,11 @@ TEST_CASE("compare per-design --set makes a variant, and the text and CSV forms 
   const nlohmann::json j = run_json({"compare", preset(presets[0]), preset(presets[0]), "--set", "2:source.bypass_cap=0", "--json"});
   // An unbypassed source resistor is series feedback: less gain (common practice).
   CHECK(j["designs"][1]["gain_midband_db"].get<double>() < j["designs"][0]["gain_midband_db"].get<double>() - 3.0);
+  // --set takes one value each time, so the files may come before, between or after.
+  for (const std::vector<std::string>& order :
+       {std::vector<std::string>{"compare", preset(presets[0]), "--set", "2:source.bypass_cap=0", preset(presets[0]), "--json"},
+        std::vector<std::string>{"compare", "--set", "2:source.bypass_cap=0", preset(presets[0]), preset(presets[0]), "--json"}})
+    CHECK(run_json(order) == j);
   const result c = run({"compare", preset(presets[0]), preset(presets[1]), preset(presets[2]), "--csv", "--at-drive", "50mVpk"});
   REQUIRE(c.status == 0);
   std::istringstream lines(c.out);
@@ -284,11 +289,12 @@ TEST_CASE("measure --against reads a recording of the model's own harmonics with
     CHECK(plain[k] == j[k]);
   }
   CHECK_FALSE(plain.contains("against"));
-  const result text = run({"measure", wav, "--harmonics", std::to_string(harmonics), "--against", preset(presets[0]), "--drive",
-                           "300mVpk"});
+  const result text = run({"measure", "--against", preset(presets[0]), "--set", "drain.resistor=3k9", "--drive", "300mVpk", wav,
+                           "--harmonics", std::to_string(harmonics)});
   REQUIRE(text.status == 0);
   CHECK(text.out.find("Against the model") != std::string::npos);
   CHECK(text.out.find("predicted") != std::string::npos);
+  CHECK(text.out.find("--set drain.resistor=3k9") != std::string::npos);
 }
 
 TEST_CASE("compare and measure --against refuse bad input with status 2 and nothing on stdout") {
