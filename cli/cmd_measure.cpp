@@ -210,8 +210,11 @@ void write_against_text(const measure_report& r, std::ostream& out) {
   out << "\nAgainst the model\n  " << p.path;
   for (const std::string& o : p.overrides) out << " --set " << o;
   out << ": " << p.st.name << "\n  drive " << format_si(p.drive_vpk, "Vpk") << " (" << fixed(dsp::dbu_from_vpk(p.drive_vpk), 2)
-      << " dBu) at " << fixed(p.sweep.frequency_hz, 3) << " Hz (the measured " << fixed(a.fundamental_hz, 3)
-      << " Hz, snapped to whole cycles), " << p.sweep.oversample << "x oversampling\n  predicted output " << format_si(pt.output_vpk, "Vpk") << " ("
+      << " dBu) at " << fixed(p.sweep.frequency_hz, 3) << " Hz ("
+      << (std::fabs(p.sweep.frequency_hz - a.fundamental_hz) < 5e-4
+              ? std::string("the measured fundamental")
+              : "the measured " + fixed(a.fundamental_hz, 3) + " Hz, snapped to whole cycles")
+      << "), " << p.sweep.oversample << "x oversampling\n  predicted output " << format_si(pt.output_vpk, "Vpk") << " ("
       << fixed(dsp::dbu_from_vpk(pt.output_vpk), 2) << " dBu) at the load; the recording holds it at "
       << fixed(dsp::db_from_ratio(a.fundamental_vpk), 2) << " dBFS\n";
   for (const std::string& w : p.warnings) out << "  ! " << w << '\n';
