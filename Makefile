@@ -31,6 +31,10 @@ demo: build
 	@mkdir -p out
 	@echo "== pinchoff sweep presets/bass-booster-9v.toml --plot out/bass-booster-sweep.svg"
 	@$(PINCHOFF) sweep presets/bass-booster-9v.toml --plot out/bass-booster-sweep.svg
+	@echo
+	@echo "== pinchoff render: the demo clip through two presets, loudness-matched, into out/"
+	@$(PINCHOFF) render presets/bass-booster-9v.toml presets/clean-preamp-18v.toml \
+	  --input samples/pluck-phrase-48k.wav --output out --dry --force
 
 # The whole suite runs twice: on the Release build, and on a build with AddressSanitizer
 # and UndefinedBehaviorSanitizer that stops at the first report.

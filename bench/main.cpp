@@ -11,5 +11,6 @@ int main() {
   std::printf("\n");
   bench_engine();
   bench_sweep();
+  bench_render();
   return 0;
 }

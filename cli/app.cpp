@@ -35,6 +35,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   register_tone(app, commands);
   register_measure(app, commands);
   register_compare(app, commands);
+  register_render(app, commands);
 
   if (!args.empty() && !args.front().empty() && args.front().front() != '-') {
     bool known = false;
@@ -81,6 +82,9 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     } catch (const input_error& e) {
       err << "pinchoff " << c.sub->get_name() << ": " << e.what() << '\n';
       return 2;
+    } catch (const interrupted& e) {
+      err << "pinchoff " << c.sub->get_name() << ": " << e.what() << '\n';
+      return 130;
     } catch (const internal_error& e) {
       err << "pinchoff " << c.sub->get_name() << ": internal failure: " << e.what() << '\n';
       return 1;

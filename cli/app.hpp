@@ -21,7 +21,7 @@ struct command {
 };
 
 /// Parses `args` (no program name) and runs the chosen command. Returns the exit status:
-/// 0 success, 1 internal failure, 2 bad input or usage.
+/// 0 success, 1 internal failure, 2 bad input or usage, 130 interrupted (Ctrl-C).
 int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 
 // One register function per command file (cli/cmd_*.cpp).
@@ -35,5 +35,6 @@ void register_imd(CLI::App& app, std::vector<command>& commands);
 void register_tone(CLI::App& app, std::vector<command>& commands);
 void register_measure(CLI::App& app, std::vector<command>& commands);
 void register_compare(CLI::App& app, std::vector<command>& commands);
+void register_render(CLI::App& app, std::vector<command>& commands);
 
 }  // namespace pinchoff::cli

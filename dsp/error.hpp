@@ -1,5 +1,5 @@
 #pragma once
-// The project's error hierarchy. Every layer throws these; only cli/main.cpp catches them
+// The project's error hierarchy. Every layer throws these; only cli/app.cpp catches them
 // and turns them into exit codes (0 success, 1 internal failure, 2 bad input or usage,
 // 130 interrupted).
 #include <stdexcept>
@@ -23,6 +23,13 @@ class io_error : public input_error {
 /// The tool failed on valid input (a solver that did not converge where it should).
 /// Exit status 1.
 class internal_error : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+/// The user stopped the run (Ctrl-C): work was abandoned and its temporary files removed.
+/// Exit status 130 (128 + SIGINT, the shell convention).
+class interrupted : public std::runtime_error {
  public:
   using std::runtime_error::runtime_error;
 };

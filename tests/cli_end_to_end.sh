@@ -45,6 +45,9 @@ check "compare --json" 0 "$bin" compare "$presets/bass-booster-9v.toml" "$preset
 python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert all(abs(d["output_dbu"]+10)<0.01 for d in j["designs"])' "$tmp/out" || { echo "FAIL: compare --json"; fail=1; }
 check "compare of one design" 2 "$bin" compare "$presets/bass-booster-9v.toml"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for compare of one design"; fail=1; }
+check "render" 0 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav" --quiet
+check "render refuses an existing output" 2 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav"
+[ -s "$tmp/out" ] && { echo "FAIL: output written for a refused render"; fail=1; }
 check "measure of a non-audio file" 2 "$bin" measure "$tmp/typo.toml"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for a non-audio file"; fail=1; }
 check "version" 0 "$bin" --version

@@ -1,0 +1,418 @@
+// pinchoff render: recorded audio through one or several stages, to listen to before
+// building; several stages come out loudness-matched so that the louder one does not win.
+#include <signal.h>
+
+#include <algorithm>
+#include <atomic>
+#include <cctype>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <memory>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
+
+#include "cli/app.hpp"
+#include "cli/common.hpp"
+#include "cli/progress_bar.hpp"
+#include "cli/text_table.hpp"
+#include "dsp/error.hpp"
+#include "dsp/sound_file.hpp"
+#include "dsp/units.hpp"
+#include "model/network.hpp"
+#include "model/operating_point.hpp"
+#include "model/render.hpp"
+#include "model/stage_file.hpp"
+
+namespace pinchoff::cli {
+namespace {
+
+namespace fs = std::filesystem;
+using dsp::format_number;
+using dsp::format_si;
+using align = text_table::align;
+
+struct render_options {
+  std::vector<std::string> stages;
+  std::string input, output;
+  std::string input_peak{"1V"};
+  std::string output_peak;
+  std::string normalize{"-1dBFS"};
+  int oversample{8};
+  std::string format;
+  int threads{0};
+  bool dry{false}, force{false}, quiet{false}, json{false};
+};
+
+// Set by SIGINT, read by the render loop. A signal handler can reach nothing but objects
+// of static storage duration, so this is the one mutable static in the program; a
+// lock-free atomic is safe to store from a handler.
+std::atomic<bool> interrupt_requested{false};
+static_assert(std::atomic<bool>::is_always_lock_free);
+
+extern "C" void on_interrupt(int) { interrupt_requested.store(true, std::memory_order_relaxed); }
+
+// Installs the handler for the life of a render and puts the previous one back after.
+// SA_RESETHAND: a second Ctrl-C stops the program at once, the usual way out.
+class interrupt_guard {
+ public:
+  interrupt_guard() {
+    interrupt_requested.store(false);
+    struct sigaction sa {};
+    sa.sa_handler = on_interrupt;
+    sigemptyset(&sa.sa_mask);
+    sa.sa_flags = SA_RESETHAND | SA_RESTART;
+    installed_ = ::sigaction(SIGINT, &sa, &previous_) == 0;
+  }
+  ~interrupt_guard() {
+    if (installed_) ::sigaction(SIGINT, &previous_, nullptr);
+  }
+  interrupt_guard(const interrupt_guard&) = delete;
+  interrupt_guard& operator=(const interrupt_guard&) = delete;
+
+ private:
+  struct sigaction previous_ {};
+  bool installed_{false};
+};
+
+// Removes a folder this run created when the run fails and leaves it empty.
+class created_folder {
+ public:
+  explicit created_folder(fs::path p) : path_(std::move(p)) {}
+  ~created_folder() {
+    std::error_code ec;
+    if (!path_.empty() && fs::is_empty(path_, ec)) fs::remove(path_, ec);
+  }
+  void keep() { path_.clear(); }
+  created_folder(const created_folder&) = delete;
+  created_folder& operator=(const created_folder&) = delete;
+
+ private:
+  fs::path path_;
+};
+
+std::string lower(std::string s) {
+  std::transform(s.begin(), s.end(), s.begin(), [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
+  return s;
+}
+
+std::string quoted(const fs::path& p) {
+  std::string q(1, '\'');
+  q.append(p.string()).push_back('\'');
+  return q;
+}
+
+// "-1dBFS", "-1 dBFS", "-1".
+double parse_dbfs(const std::string& text, const char* what) {
+  std::string t = text;
+  const std::string l = lower(t);
+  if (l.size() >= 4 && l.compare(l.size() - 4, 4, "dbfs") == 0) t = t.substr(0, t.size() - 4);
+  while (!t.empty() && std::isspace(static_cast<unsigned char>(t.back()))) t.pop_back();
+  std::size_t used = 0;
+  double v = 0;
+  try {
+    v = std::stod(t, &used);
+  } catch (const std::exception&) {
+    used = 0;
+  }
+  if (t.empty() || used != t.size() || !std::isfinite(v))
+    throw input_error(std::string(what) + " '" + text + "' is not a level in dBFS, e.g. -1dBFS");
+  if (v > 0.0) throw input_error(std::string(what) + " " + format_number(v) + " dBFS is above full scale (0 dBFS at most)");
+  return v;
+}
+
+const char* extension_for(dsp::sample_format f) { return f == dsp::sample_format::flac24 ? ".flac" : ".wav"; }
+
+// A single output's name must say what it holds: .wav for WAV, .flac for FLAC.
+void check_extension(const fs::path& out, dsp::sample_format f) {
+  const std::string ext = lower(out.extension().string());
+  const bool is_flac = f == dsp::sample_format::flac24;
+  if (is_flac ? ext == ".flac" : (ext == ".wav" || ext == ".wave")) return;
+  throw input_error("--output " + quoted(out) + " would hold " + (is_flac ? "FLAC" : "WAV") + " (" +
+                    std::string(dsp::sample_format_name(f)) + "); name it " +
+                    (out.stem().string() + extension_for(f)) + ", or choose the format with --format wav16|wav24|float|flac");
+}
+
+struct loaded_stage {
+  fs::path file;
+  model::render_stage st;
+  std::string description;  // the stage file's `name`
+};
+
+// dB figures with two decimals (loudness matching is checked to 0.1 LU).
+std::string db_text(double db, const char* unit) {
+  char t[48];
+  std::snprintf(t, sizeof t, "%.2f %s", std::abs(db) < 0.005 ? 0.0 : db, unit);
+  return t;
+}
+
+std::string dbfs_text(double ratio, const char* unit) {
+  return ratio > 0.0 ? db_text(dsp::db_from_ratio(ratio), unit) : std::string("-inf ") + unit;
+}
+
+std::string lufs_text(double lufs) { return std::isfinite(lufs) ? db_text(lufs, "LUFS") : "silent"; }
+
+std::string rate_text(double rate_hz) {
+  return rate_hz == std::floor(rate_hz) ? std::to_string(static_cast<long long>(rate_hz)) : format_number(rate_hz, 6);
+}
+
+std::string volts_text(double v) { return format_si(v, "V", 3); }
+
+void write_text(const model::render_report& r, const render_options& o, const std::vector<loaded_stage>& stages,
+                std::ostream& out) {
+  const auto& in = r.input;
+  const std::size_t n_out = r.outputs.size();
+  out << "Rendered " << o.input << " through " << stages.size() << (stages.size() == 1 ? " stage" : " stages");
+  if (n_out > 1) out << (o.dry ? " and the dry input" : "") << ", loudness-matched";
+  out << '\n';
+  out << "  input   " << in.format_text << ", " << rate_text(in.rate_hz) << " Hz, " << in.channels
+      << (in.channels == 1 ? " channel, " : " channels, ") << format_number(in.seconds(), 4) << " s; 0 dBFS = "
+      << volts_text(dsp::parse_level_vpk(o.input_peak)) << " peak at the generator\n";
+  out << "  engine  " << r.oversample << "x oversampling (" << format_si(r.engine_rate_hz, "Hz", 3) << "), "
+      << r.latency_samples << " samples of filter latency compensated, " << r.threads
+      << (r.threads == 1 ? " thread" : " threads") << '\n';
+  const std::string ceiling = db_text(parse_dbfs(o.normalize, "--normalize"), "dBFS");
+  if (!o.output_peak.empty())
+    out << "  level   fixed: 0 dBFS = " << volts_text(1.0 / r.outputs[0].scale) << " peak at the load\n";
+  else if (n_out > 1 && std::isfinite(r.target_lufs))
+    out << "  level   " << lufs_text(r.target_lufs) << " each (ITU-R BS.1770), the loudest at which no peak exceeds "
+        << ceiling << '\n';
+  else
+    out << "  level   peak normalised to " << ceiling << '\n';
+  model::dk_stats newton;
+  for (const model::output_report& x : r.outputs) {
+    newton.samples += x.engine.samples;
+    newton.evaluations += x.engine.evaluations;
+    newton.max_evaluations = std::max(newton.max_evaluations, x.engine.max_evaluations);
+    newton.failed += x.engine.failed;
+  }
+  out << "  newton  " << (newton.failed == 0 ? std::string("every sample converged") : std::to_string(newton.failed) + " samples did not converge")
+      << ", " << format_number(newton.mean_evaluations(), 3) << " iterations a sample on average, " << newton.max_evaluations
+      << " at most\n";
+  out << '\n';
+
+  text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right});
+  t.add({"file", "applied gain", "0 dBFS =", "loudness", "sample peak", "true peak", "clipped"});
+  for (const model::output_report& x : r.outputs) {
+    const double gain_db = dsp::db_from_ratio(x.scale * (x.is_dry ? dsp::parse_level_vpk(o.input_peak) : 1.0));
+    t.add({x.path.string() + (x.is_dry ? " (dry)" : ""), db_text(gain_db, "dB"), volts_text(1.0 / x.scale),
+           lufs_text(x.loudness_lufs), dbfs_text(x.sample_peak, "dBFS"), dbfs_text(x.true_peak, "dBTP"),
+           std::to_string(x.clipped_samples)});
+  }
+  t.write(out);
+  out << "  applied gain: from volts at the load to full scale (0 dB: 1 V reads 0 dBFS); for the dry\n"
+         "  file, from the input file's level. 0 dBFS =: the peak voltage that reads full scale.\n";
+
+  bool notes = false;
+  auto note = [&](const std::string& line) {
+    if (!notes) out << '\n';
+    notes = true;
+    out << "  ! " << line << '\n';
+  };
+  for (const model::output_report& x : r.outputs) {
+    if (x.engine.failed > 0)
+      note(x.path.string() + ": " + std::to_string(x.engine.failed) + " of " + std::to_string(x.engine.samples) +
+           " engine samples did not converge (each held its previous solution); try --oversample 16");
+    if (x.clipped_samples > 0)
+      note(x.path.string() + ": " + std::to_string(x.clipped_samples) + " samples beyond full scale" +
+           (dsp::quantisation_bits(r.format) > 0 ? " were clipped" : " (kept in the float file; a player will clip them)") +
+           "; raise --output-peak or leave it out to normalise");
+    if (!x.matched)
+      note(x.path.string() + " is silent (no 400 ms above -70 LUFS) and was left out of the loudness matching");
+    if (x.true_peak > 1.0)
+      note(x.path.string() + ": true peak above 0 dBTP; a converter may clip between samples (try --normalize -2dBFS)");
+  }
+  out << "\n  speed " << format_number(r.realtime_factor, 3) << "x real time (" << format_number(r.seconds, 3) << " s)\n";
+  out << "\nCaution: start playback quietly and raise it slowly; a distorting stage can be much\n"
+         "louder than its input, and full-scale audio can harm hearing and speakers.\n";
+}
+
+nlohmann::json level_json(double ratio) {
+  return ratio > 0.0 ? nlohmann::json(dsp::db_from_ratio(ratio)) : nlohmann::json(nullptr);
+}
+
+void write_json(const model::render_report& r, const render_options& o, std::ostream& out) {
+  nlohmann::json outputs = nlohmann::json::array();
+  for (const model::output_report& x : r.outputs) {
+    nlohmann::json j{{"path", x.path.string()},
+                     {"name", x.name},
+                     {"dry", x.is_dry},
+                     {"scale", x.scale},
+                     {"full_scale_v", 1.0 / x.scale},
+                     {"loudness_lufs", number_or_null(x.loudness_lufs)},
+                     {"sample_peak_dbfs", level_json(x.sample_peak)},
+                     {"true_peak_dbtp", level_json(x.true_peak)},
+                     {"clipped_samples", x.clipped_samples},
+                     {"loudness_matched", x.matched && r.outputs.size() > 1}};
+    if (!x.is_dry)
+      j["engine"] = {{"samples", x.engine.samples},
+                     {"newton_failures", x.engine.failed},
+                     {"substepped", x.engine.substepped},
+                     {"mean_iterations", x.engine.mean_evaluations()},
+                     {"max_iterations", x.engine.max_evaluations}};
+    outputs.push_back(std::move(j));
+  }
+  const nlohmann::json j{{"input",
+                          {{"path", o.input},
+                           {"rate_hz", r.input.rate_hz},
+                           {"channels", r.input.channels},
+                           {"frames", r.input.frames},
+                           {"duration_s", r.input.seconds()},
+                           {"format", r.input.format_text},
+                           {"full_scale_vpk", dsp::parse_level_vpk(o.input_peak)}}},
+                         {"format", std::string(dsp::sample_format_name(r.format))},
+                         {"oversampling", r.oversample},
+                         {"engine_rate_hz", r.engine_rate_hz},
+                         {"latency_samples", r.latency_samples},
+                         {"threads", r.threads},
+                         {"level", !o.output_peak.empty() ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
+                         {"target_lufs", r.outputs.size() > 1 ? number_or_null(r.target_lufs) : nlohmann::json(nullptr)},
+                         {"outputs", outputs},
+                         {"seconds", r.seconds},
+                         {"realtime_factor", r.realtime_factor}};
+  out << j.dump(2) << '\n';
+}
+
+void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
+  model::render_job job;
+  job.input = o.input;
+  job.input_peak_v = dsp::parse_level_vpk(o.input_peak);
+  job.oversample = o.oversample;
+  job.overwrite = o.force;
+  job.threads = o.threads;
+  if (!o.format.empty()) job.format = dsp::parse_sample_format(o.format);
+  job.peak_dbfs = parse_dbfs(o.normalize, "--normalize");
+  if (!o.output_peak.empty()) {
+    job.level = model::output_level::fixed;
+    job.full_scale_v = dsp::parse_level_vpk(o.output_peak);
+  }
+
+  std::vector<loaded_stage> stages;
+  for (const std::string& path : o.stages) {
+    loaded_stage l;
+    l.file = path;
+    const model::stage s = model::read_stage_file(path, {});
+    l.description = s.name;
+    l.st.name = l.file.stem().string();
+    l.st.net = model::build_network(s);
+    l.st.op = model::solve_operating_point(l.st.net);
+    stages.push_back(std::move(l));
+  }
+
+  // The format decides the names; the input must open to know it.
+  const dsp::sound_info info = dsp::sound_reader::open(o.input).info();
+  const dsp::sample_format format = job.format ? *job.format : dsp::nearest_sample_format(info);
+  const bool to_folder = stages.size() > 1 || o.dry;
+  const fs::path out_path(o.output);
+  std::optional<created_folder> made;
+  if (to_folder) {
+    if (!o.output_peak.empty())
+      throw input_error("--output-peak fixes the scale of one output; several outputs (" +
+                        std::string(stages.size() > 1 ? "several stages" : "--dry") + ") are loudness-matched instead");
+    std::error_code ec;
+    if (fs::exists(out_path, ec) && !fs::is_directory(out_path, ec))
+      throw io_error("--output " + quoted(out_path) + " is a file; several outputs need a folder there");
+    if (!fs::exists(out_path, ec)) {
+      const fs::path parent = out_path.has_parent_path() ? out_path.parent_path() : fs::path(".");
+      if (!fs::is_directory(parent, ec))
+        throw io_error("cannot make the folder " + quoted(out_path) + ": " + quoted(parent) + " does not exist");
+      if (!fs::create_directory(out_path, ec) || ec)
+        throw io_error("cannot make the folder " + quoted(out_path) + ": " + ec.message());
+      made.emplace(out_path);
+    }
+    for (loaded_stage& l : stages) l.st.output = out_path / (l.st.name + extension_for(format));
+    job.dry_output = o.dry ? std::optional<fs::path>(out_path / (std::string("dry") + extension_for(format))) : std::nullopt;
+    job.match_loudness = true;
+  } else {
+    check_extension(out_path, format);
+    stages[0].st.output = out_path;
+  }
+  for (loaded_stage& l : stages) job.stages.push_back(l.st);
+
+  interrupt_guard guard;
+  progress_bar bar(err, !o.quiet && stderr_is_terminal());
+  model::render_control control;
+  control.stop = &interrupt_requested;
+  if (bar.enabled())
+    control.progress = [&bar](const model::render_progress& p) { bar.update(p.fraction, p.realtime_factor, p.seconds_left); };
+  const model::render_report r = model::render(job, control);
+  bar.clear();
+  if (made) made->keep();
+  if (o.json) write_json(r, o, out);
+  else write_text(r, o, stages, out);
+}
+
+}  // namespace
+
+void register_render(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<render_options>();
+  CLI::App* sub = app.add_subcommand("render", "Render a recording through one or several stages, to listen to them");
+  sub->add_option("STAGE", opt->stages, "Stage files (TOML); several are rendered side by side, loudness-matched")
+      ->required()
+      ->expected(1, -1);
+  sub->add_option("--input", opt->input, "Recording to play into the stage (WAV, FLAC, AIFF; 44.1 kHz or more)")
+      ->required()
+      ->type_name("IN");
+  sub->add_option("--output", opt->output,
+                  "One stage: the file to write. Several stages or --dry: a folder (made if missing), one file per "
+                  "stage named after its stage file")
+      ->required()
+      ->type_name("OUT");
+  sub->add_option("--input-peak", opt->input_peak,
+                  "Generator voltage (peak) that full scale in the input stands for; see below")
+      ->type_name("LEVEL")
+      ->capture_default_str();
+  auto* fixed = sub->add_option("--output-peak", opt->output_peak,
+                                "Fix the scale instead of normalising: this voltage (peak) at the load is 0 dBFS; "
+                                "samples beyond it are counted as clipped")
+                    ->type_name("LEVEL");
+  auto* norm = sub->add_option("--normalize", opt->normalize, "Peak level of the output (several: the loudest allowed)")
+                   ->type_name("dBFS")
+                   ->capture_default_str();
+  fixed->excludes(norm);
+  sub->add_option("--oversample", opt->oversample, "Engine oversampling factor: 1, 2, 4, 8 or 16")
+      ->capture_default_str()
+      ->check(CLI::IsMember({1, 2, 4, 8, 16}));
+  sub->add_option("--format", opt->format,
+                  "wav16, wav24, float (32-bit float WAV) or flac (24-bit); default: as the input")
+      ->type_name("FORMAT");
+  sub->add_option("--threads", opt->threads, "Threads (0: one per core); results do not depend on it")
+      ->capture_default_str()
+      ->check(CLI::Range(0, 256));
+  sub->add_flag("--dry", opt->dry, "Also write the input itself, matched in loudness, to compare against");
+  sub->add_flag("--force", opt->force, "Replace outputs that exist");
+  sub->add_flag("--quiet", opt->quiet, "No progress bar");
+  sub->add_flag("--json", opt->json, "Machine-readable summary of what was written");
+  sub->footer(
+      "Calibration: full scale (0 dBFS) in the input file stands for --input-peak volts peak at\n"
+      "the generator, 1 V by default. That is common practice for instrument and line sources:\n"
+      "a hot passive pickup played hard, or a line-level output, peaks around 1 V (single notes\n"
+      "from a passive pickup are more like 10-300 mV). A quieter source drives a stage less hard:\n"
+      "give the peak your source reaches, e.g. --input-peak 300mV for a vintage-output pickup.\n"
+      "\n"
+      "Output level: normalised so the peak is at --normalize (-1 dBFS), and the applied gain is\n"
+      "printed; --output-peak fixes it instead (the same stage always sounds as loud). Several\n"
+      "stages (and --dry) come out at one integrated loudness (ITU-R BS.1770), so that the\n"
+      "comparison is not won by the louder stage. Each channel runs through its own copy of\n"
+      "the stage, starting at its DC operating point; the output keeps the input's length, rate,\n"
+      "channels and sample format (unless --format), and is aligned with it sample for sample.\n"
+      "Nothing is written until the output is complete: an existing file is kept (unless\n"
+      "--force), and Ctrl-C leaves no file behind (exit status 130).\n"
+      "\n"
+      "Examples:\n"
+      "  pinchoff render presets/bass-booster-9v.toml --input samples/pluck-phrase-48k.wav --output boosted.wav\n"
+      "  pinchoff render presets/bass-booster-9v.toml presets/clean-preamp-18v.toml \\\n"
+      "      --input samples/pluck-phrase-48k.wav --output compare --dry\n"
+      "      writes compare/bass-booster-9v.wav, compare/clean-preamp-18v.wav and compare/dry.wav\n"
+      "      at the same loudness\n"
+      "  pinchoff render presets/bass-booster-9v.toml --input di-take.wav --output hot.wav \\\n"
+      "      --input-peak 2V --output-peak 5V\n"
+      "      a hotter source, and a fixed scale: 5 V peak at the load is full scale");
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run_render(*opt, out, err); }});
+}
+
+}  // namespace pinchoff::cli
