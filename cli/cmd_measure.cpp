@@ -199,7 +199,7 @@ constexpr double predicted_floor_dbc = -180.0;
 std::string signed_db(double v) {
   if (!std::isfinite(v)) return "-";
   char t[32];
-  std::snprintf(t, sizeof t, "%+.2f dB", v);
+  std::snprintf(t, sizeof t, "%+.2f dB", std::fabs(v) < 0.005 ? 0.0 : v);  // no "-0.00"
   return t;
 }
 
