@@ -34,6 +34,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   register_imd(app, commands);
   register_tone(app, commands);
   register_measure(app, commands);
+  register_compare(app, commands);
   register_render(app, commands);
 
   if (!args.empty() && !args.front().empty() && args.front().front() != '-') {

@@ -34,6 +34,7 @@ void register_sweep(CLI::App& app, std::vector<command>& commands);
 void register_imd(CLI::App& app, std::vector<command>& commands);
 void register_tone(CLI::App& app, std::vector<command>& commands);
 void register_measure(CLI::App& app, std::vector<command>& commands);
+void register_compare(CLI::App& app, std::vector<command>& commands);
 void register_render(CLI::App& app, std::vector<command>& commands);
 
 }  // namespace pinchoff::cli

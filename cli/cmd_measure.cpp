@@ -19,6 +19,8 @@
 #include "dsp/sound_file.hpp"
 #include "dsp/units.hpp"
 #include "dsp/windowed_analysis.hpp"
+#include "model/stage_file.hpp"
+#include "model/sweep.hpp"
 
 namespace pinchoff::cli {
 namespace {
@@ -38,6 +40,21 @@ struct measure_options {
   double duration_s{0.0};
   std::string plot_path;
   bool json{false};
+  // --against STAGE --drive L [--set KEY=VALUE]...: the model's prediction beside it.
+  std::string against_path;
+  std::string drive_text;
+  std::vector<std::string> overrides;
+};
+
+// The model's steady state for the same drive at the measured fundamental.
+struct prediction {
+  std::string path;
+  std::vector<std::string> overrides;
+  model::stage st;
+  double drive_vpk{};
+  model::sweep_result sweep;
+  std::vector<std::string> warnings;
+  const model::sweep_point& point() const { return sweep.points.front(); }
 };
 
 struct measure_report {
@@ -51,6 +68,7 @@ struct measure_report {
   bool trimmed{false};  // ramps at the ends skipped
   double sample_peak{0.0};
   dsp::windowed_analysis a;
+  std::optional<prediction> against;
 };
 
 dsp::window_kind parse_window(const std::string& t) {
@@ -157,12 +175,78 @@ measure_report analyse(const measure_options& o) {
   return r;
 }
 
+// Simulated at the measured fundamental with the same harmonics and band as the
+// measurement, so both THD figures count the same lines.
+void predict(measure_report& r, const measure_options& o) {
+  prediction& p = *r.against;
+  model::sweep_settings s;
+  s.frequency_hz = r.a.fundamental_hz;
+  s.drives_vpk = {p.drive_vpk};
+  s.harmonics = o.harmonics;
+  s.bandwidth_hz = r.band_high_hz;
+  if (!(s.frequency_hz < 0.5 * s.base_rate_hz))
+    throw input_error("the recording's fundamental, " + format_si(s.frequency_hz, "Hz") + ", lies above the " +
+                      format_si(0.5 * s.base_rate_hz, "Hz") + " the model's test tone can reach");
+  model::validate(s);
+  p.sweep = model::run_sweep(p.st, s);
+  const model::sweep_point& pt = p.point();
+  if (pt.newton.failed > 0)
+    p.warnings.push_back(std::to_string(pt.newton.failed) + " samples of the prediction did not converge even sub-stepped");
+  if (!pt.converged)
+    p.warnings.push_back("the prediction's steady state was not reached (state still changes " + format_si(pt.state_change_v, "V") +
+                         " a period)");
+}
+
 std::string db_text(double v, const char* unit) { return std::isfinite(v) ? format_number(v, 4) + " " + unit : "n/a"; }
 std::string dbc_text(double v) {
   if (!std::isfinite(v)) return "n/a";
   char t[32];
   std::snprintf(t, sizeof t, "%.2f dBc", v);
   return t;
+}
+
+// Below this a predicted harmonic is under the engine's numerical floor (as in `sweep`).
+constexpr double predicted_floor_dbc = -180.0;
+
+std::string signed_db(double v) {
+  if (!std::isfinite(v)) return "-";
+  char t[32];
+  std::snprintf(t, sizeof t, "%+.2f dB", std::fabs(v) < 0.005 ? 0.0 : v);  // no "-0.00"
+  return t;
+}
+
+void write_against_text(const measure_report& r, std::ostream& out) {
+  const prediction& p = *r.against;
+  const model::sweep_point& pt = p.point();
+  const dsp::windowed_analysis& a = r.a;
+  out << "\nAgainst the model\n  " << p.path;
+  for (const std::string& o : p.overrides) out << " --set " << o;
+  out << ": " << p.st.name << "\n  drive " << format_si(p.drive_vpk, "Vpk") << " (" << fixed(dsp::dbu_from_vpk(p.drive_vpk), 2)
+      << " dBu) at " << fixed(p.sweep.frequency_hz, 3) << " Hz ("
+      << (std::fabs(p.sweep.frequency_hz - a.fundamental_hz) < 5e-4
+              ? std::string("the measured fundamental")
+              : "the measured " + fixed(a.fundamental_hz, 3) + " Hz, snapped to whole cycles")
+      << "), " << p.sweep.oversample << "x oversampling\n  predicted output " << format_si(pt.output_vpk, "Vpk") << " ("
+      << fixed(dsp::dbu_from_vpk(pt.output_vpk), 2) << " dBu) at the load; the recording holds it at "
+      << fixed(dsp::db_from_ratio(a.fundamental_vpk), 2) << " dBFS\n";
+  for (const std::string& w : p.warnings) out << "  ! " << w << '\n';
+  out << '\n';
+  text_table t({align::left, align::right, align::right, align::right});
+  t.add({"", "measured", "predicted", "difference"});
+  for (std::size_t i = 0; i < a.harmonics_dbc.size(); ++i) {
+    const int n = static_cast<int>(i) + 2;
+    if (n > a.highest_harmonic) break;
+    const double m = a.harmonics_dbc[i];
+    const double q = i < pt.harmonics_dbc.size() ? pt.harmonics_dbc[i] : std::nan("");
+    const bool is_floor = std::isfinite(q) && q < predicted_floor_dbc;
+    t.add({"H" + std::to_string(n), dbc_text(m), is_floor ? std::string("< -180 dBc") : dbc_text(q),
+           is_floor ? std::string("-") : signed_db(m - q)});
+  }
+  t.add({"THD", format_number(a.thd_percent, 4) + " %", format_number(pt.thd_percent, 4) + " %",
+         signed_db(dsp::db_from_ratio(a.thd_ratio / pt.thd_ratio))});
+  t.write(out);
+  out << "  difference: measured minus predicted; dBc figures do not depend on the recording's gain.\n"
+         "  A measured harmonic near the noise floor reads the noise, not the stage.\n";
 }
 
 void write_text(const measure_report& r, std::ostream& out) {
@@ -208,6 +292,7 @@ void write_text(const measure_report& r, std::ostream& out) {
   t.write(out);
   out << "  THD: harmonics relative to the fundamental; THD+N: everything but the fundamental\n"
          "  relative to the total rms in the band; dBFS: 0 for a sine reaching full scale.\n";
+  if (r.against) write_against_text(r, out);
 }
 
 void write_json(const measure_report& r, std::ostream& out) {
@@ -241,6 +326,33 @@ void write_json(const measure_report& r, std::ostream& out) {
                    {"noise_dbc", a.noise_dbc},
                    {"noise_density_dbc_per_hz", a.noise_floor_dbc_per_hz},
                    {"sample_peak_dbfs", dsp::db_from_ratio(r.sample_peak)}};
+  if (r.against) {
+    const prediction& p = *r.against;
+    const model::sweep_point& pt = p.point();
+    nlohmann::json hs = nlohmann::json::array(), diff = nlohmann::json::array();
+    for (std::size_t i = 0; i < a.harmonics_dbc.size(); ++i) {
+      const double q = i < pt.harmonics_dbc.size() ? pt.harmonics_dbc[i] : std::nan("");
+      hs.push_back(number_or_null(q));
+      diff.push_back(number_or_null(a.harmonics_dbc[i] - q));
+    }
+    j["against"] = {{"stage_path", p.path},
+                    {"overrides", p.overrides},
+                    {"name", p.st.name},
+                    {"drive_vpk", p.drive_vpk},
+                    {"drive_dbu", dsp::dbu_from_vpk(p.drive_vpk)},
+                    {"frequency_hz", p.sweep.frequency_hz},
+                    {"requested_frequency_hz", p.sweep.requested_hz},
+                    {"oversampling", p.sweep.oversample},
+                    {"output_vpk", pt.output_vpk},
+                    {"output_dbu", dsp::dbu_from_vpk(pt.output_vpk)},
+                    {"harmonics_dbc", hs},
+                    {"difference_db", diff},
+                    {"thd_percent", pt.thd_percent},
+                    {"thd_db", pt.thd_db},
+                    {"thd_difference_db", number_or_null(dsp::db_from_ratio(a.thd_ratio / pt.thd_ratio))},
+                    {"steady_state_converged", pt.converged},
+                    {"warnings", p.warnings}};
+  }
   out << j.dump(2) << '\n';
 }
 
@@ -264,6 +376,15 @@ void register_measure(CLI::App& app, std::vector<command>& commands) {
   sub->add_option("--duration", opt->duration_s, "Analyse this many seconds (default: to the end)")->type_name("SECONDS");
   sub->add_option("--plot", opt->plot_path, "Write the spectrum with the harmonics marked as SVG")->type_name("FILE.svg");
   sub->add_flag("--json", opt->json, "Machine-readable output (keys carry their unit as a suffix)");
+  sub->add_option("--against", opt->against_path, "Stage file (TOML) whose prediction is shown beside the measurement")
+      ->type_name("STAGE");
+  sub->add_option("--drive", opt->drive_text, "With --against: the generator level the stage was driven with, e.g. 100mVpk")
+      ->type_name("LEVEL");
+  sub->add_option("--set", opt->overrides, "With --against: override a stage-file value, KEY=VALUE (repeatable)")
+      ->type_name("KEY=VALUE")
+      ->expected(1)
+      ->allow_extra_args(false)
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
   sub->footer(
       "Examples:\n"
       "  pinchoff measure stage-out.wav\n"
@@ -271,13 +392,33 @@ void register_measure(CLI::App& app, std::vector<command>& commands) {
       "  pinchoff measure stage-out.wav --freq 1k --channel 2 --plot spectrum.svg\n"
       "  pinchoff measure staircase-out.wav --start 4.01 --duration 1.98 --json\n"
       "      one step of a 'pinchoff tone --steps' recording (tone prints where each step holds)\n"
+      "  pinchoff measure booster-out.wav --against presets/bass-booster-9v.toml --drive 100mVpk\n"
+      "      beside each harmonic, what the model predicts for that drive at the measured frequency\n"
       "The fundamental is found to a fraction of a bin and subtracted before the harmonics and\n"
       "the noise are read, so a recording need not hold whole cycles. Use a flat-top window for\n"
       "a level read without scallop loss in the plot; the figures are read at the exact\n"
       "frequencies under either window. Record at least a second: the noise floor and the\n"
-      "resolution between close lines improve with length.");
+      "resolution between close lines improve with length. --drive is the generator's open-circuit\n"
+      "level as in `sweep`; the comparison is in dBc, so the recording's own gain does not matter.");
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
-                        const measure_report r = analyse(*opt);
+                        std::optional<prediction> against;
+                        if (opt->against_path.empty()) {
+                          if (!opt->drive_text.empty() || !opt->overrides.empty())
+                            throw input_error("--drive and --set go with --against STAGE (the stage to predict)");
+                        } else {
+                          if (opt->drive_text.empty())
+                            throw input_error("--against needs --drive: the generator level the stage was driven with");
+                          prediction p;
+                          p.path = opt->against_path;
+                          p.overrides = opt->overrides;
+                          p.drive_vpk = dsp::parse_level_vpk(opt->drive_text);
+                          if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
+                          p.st = model::read_stage_file(p.path, p.overrides);
+                          against = std::move(p);
+                        }
+                        measure_report r = analyse(*opt);
+                        r.against = std::move(against);
+                        if (r.against) predict(r, *opt);
                         if (opt->json) write_json(r, out);
                         else write_text(r, out);
                       }});

@@ -38,6 +38,14 @@ grep -q "typo.toml:7:1: unknown key 'resitor' in \[drain\]; did you mean 'resist
 check "tone" 0 "$bin" tone --freq 1k --level -10dBFS --seconds 2 "$tmp/tone.wav"
 check "measure --json" 0 "$bin" measure "$tmp/tone.wav" --json
 python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert abs(j["fundamental_dbfs"]+10)<0.01 and abs(j["fundamental_hz"]-1000)<0.01' "$tmp/out" || { echo "FAIL: measure of the tone file"; fail=1; }
+check "measure --against" 0 "$bin" measure "$tmp/tone.wav" --against "$presets/bass-booster-9v.toml" --drive 100mVpk --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert len(j["against"]["harmonics_dbc"]) == 9' "$tmp/out" || { echo "FAIL: measure --against JSON"; fail=1; }
+check "compare" 0 "$bin" compare "$presets/bass-booster-9v.toml" "$presets/clean-preamp-18v.toml" "$presets/phantom-mic-follower.toml" --plot "$tmp/c.svg"
+rsvg-convert "$tmp/c.svg" -o "$tmp/c.png" || { echo "FAIL: compare plot does not render"; fail=1; }
+check "compare --json" 0 "$bin" compare "$presets/bass-booster-9v.toml" "$presets/bass-booster-9v.toml" --set 2:source.bypass_cap=0 --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert all(abs(d["output_dbu"]+10)<0.01 for d in j["designs"])' "$tmp/out" || { echo "FAIL: compare --json"; fail=1; }
+check "compare of one design" 2 "$bin" compare "$presets/bass-booster-9v.toml"
+[ -s "$tmp/out" ] && { echo "FAIL: output written for compare of one design"; fail=1; }
 check "render" 0 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav" --quiet
 check "render refuses an existing output" 2 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for a refused render"; fail=1; }

@@ -1,0 +1,344 @@
+// pinchoff compare: candidate designs side by side, at one output level or one drive.
+#include <cctype>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
+
+#include "cli/app.hpp"
+#include "cli/common.hpp"
+#include "cli/plot.hpp"
+#include "cli/text_table.hpp"
+#include "dsp/error.hpp"
+#include "dsp/units.hpp"
+#include "model/compare.hpp"
+#include "model/stage_file.hpp"
+
+namespace pinchoff::cli {
+namespace {
+
+using dsp::format_number;
+using dsp::format_si;
+using align = text_table::align;
+
+struct compare_options {
+  std::vector<std::string> paths;
+  std::vector<std::string> overrides;
+  std::string freq{"1k"};
+  std::string at_output, at_drive;
+  int harmonics{5};
+  int oversample{8};
+  bool json{false}, csv{false};
+  std::string plot;
+  int threads{0};
+};
+
+struct design_input {
+  std::string path;
+  std::vector<std::string> own;  // overrides for this design alone ("N:KEY=VALUE")
+  model::stage st;
+};
+
+// "--set KEY=VALUE" applies to every design, "--set N:KEY=VALUE" to design N (from 1) only,
+// after the common ones.
+std::vector<design_input> load_designs(const compare_options& o) {
+  if (o.paths.size() < 2)
+    throw input_error("compare needs at least two designs (give two or more stage files; the same file twice with "
+                      "--set 2:KEY=VALUE compares a variant)");
+  std::vector<std::string> common;
+  std::vector<std::vector<std::string>> own(o.paths.size());
+  for (const std::string& s : o.overrides) {
+    std::size_t digits = 0;
+    while (digits < s.size() && std::isdigit(static_cast<unsigned char>(s[digits]))) ++digits;
+    if (digits > 0 && digits < s.size() && s[digits] == ':') {
+      const unsigned long n = std::stoul(s.substr(0, digits));
+      if (n < 1 || n > o.paths.size())
+        throw input_error("--set " + s + ": there is no design " + s.substr(0, digits) + " (designs are numbered 1 to " +
+                          std::to_string(o.paths.size()) + " in the order given)");
+      own[n - 1].push_back(s.substr(digits + 1));
+    } else {
+      common.push_back(s);
+    }
+  }
+  std::vector<design_input> d;
+  for (std::size_t i = 0; i < o.paths.size(); ++i) {
+    std::vector<std::string> all = common;
+    all.insert(all.end(), own[i].begin(), own[i].end());
+    d.push_back({o.paths[i], own[i], model::read_stage_file(o.paths[i], all)});
+  }
+  return d;
+}
+
+std::string fixed(double v, int decimals) {
+  if (!std::isfinite(v)) return "-";
+  char t[48];
+  std::snprintf(t, sizeof t, "%.*f", decimals, std::fabs(v) < 0.5 * std::pow(10.0, -decimals) ? 0.0 : v);
+  return t;
+}
+std::string dbu(double vpk) { return fixed(dsp::dbu_from_vpk(vpk), 2) + " dBu"; }
+// Below this a harmonic is under the engine's numerical floor (as in `sweep`).
+constexpr double shown_floor_dbc = -180.0;
+std::string dbc(double v) {
+  if (!std::isfinite(v)) return "-";
+  return v < shown_floor_dbc ? "< -180 dBc" : fixed(v, 2) + " dBc";
+}
+std::string ratio_db(double r) {
+  if (std::isnan(r)) return "-";
+  if (std::isinf(r)) return "even only";
+  if (r <= 0) return "odd only";
+  return fixed(10.0 * std::log10(r), 1) + " dB";
+}
+
+std::string label_of(const design_input& d) {
+  std::string l = d.path;
+  for (const std::string& s : d.own) l += "  --set " + s;
+  return l;
+}
+
+std::string mode_text(const model::compare_result& r) {
+  if (r.mode == model::compare_mode::at_output)
+    return "each design driven to give " + dbu(r.level_vpk) + " (" + format_si(r.level_vpk, "Vpk", 4) + ") at the load";
+  return "every design driven at " + format_si(r.level_vpk, "Vpk", 4) + " (" + dbu(r.level_vpk) + ") from the generator";
+}
+
+void write_text(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
+  out << "Comparison at " << format_si(r.frequency_hz, "Hz", 5);
+  if (std::fabs(r.frequency_hz - r.requested_hz) > 1e-9 * r.requested_hz)
+    out << " (asked " << format_si(r.requested_hz, "Hz", 4) << ", snapped to whole cycles)";
+  out << ", " << mode_text(r) << "\n  " << r.oversample << "x oversampling, THD over H2..H" << r.thd_harmonics << "\n\n";
+  text_table legend({align::left, align::left, align::left});
+  for (std::size_t i = 0; i < in.size(); ++i) legend.add({std::to_string(i + 1), label_of(in[i]), in[i].st.name});
+  legend.write(out);
+  out << '\n';
+
+  std::vector<align> al{align::left};
+  al.insert(al.end(), r.designs.size(), align::right);
+  text_table t(al);
+  auto row = [&](const std::string& name, auto cell) {
+    std::vector<std::string> cells{name};
+    for (const model::design_figures& d : r.designs) cells.push_back(cell(d));
+    t.add(cells);
+  };
+  using df = model::design_figures;
+  std::vector<std::string> head{""};
+  for (std::size_t i = 0; i < r.designs.size(); ++i) head.push_back(std::to_string(i + 1));
+  t.add(head);
+  row("VD", [](const df& d) { return format_si(d.at.vd_v, "V", 4); });
+  row("ID", [](const df& d) { return format_si(d.at.id_a, "A", 4); });
+  row("gain, mid-band", [](const df& d) { return fixed(d.gain_midband_db, 2) + " dB"; });
+  row("clean swing", [](const df& d) { return format_si(d.clean_swing_vpk, "Vpk"); });
+  row("", [](const df& d) { return dbu(d.clean_swing_vpk); });
+  row("drive", [](const df& d) { return format_si(d.point.drive_vpk, "Vpk", 4); });
+  row("", [](const df& d) { return dbu(d.point.drive_vpk); });
+  row("output", [](const df& d) { return format_si(d.point.output_vpk, "Vpk", 4); });
+  row("", [](const df& d) { return dbu(d.point.output_vpk); });
+  row("gain at this level", [](const df& d) { return fixed(d.point.gain_db, 2) + " dB"; });
+  row("THD", [](const df& d) { return format_number(d.point.thd_percent, 3) + " %"; });
+  for (int h = 2; h <= r.harmonics; ++h)
+    row("H" + std::to_string(h), [h](const df& d) { return dbc(d.point.harmonics_dbc[static_cast<std::size_t>(h - 2)]); });
+  row("even/odd", [](const df& d) { return ratio_db(d.point.even_odd_ratio); });
+  row("1 % THD at output", [](const df& d) {
+    return d.thd_1_percent.found ? format_si(d.thd_1_percent.point.output_vpk, "Vpk") : std::string("not reached");
+  });
+  row("", [](const df& d) { return d.thd_1_percent.found ? dbu(d.thd_1_percent.point.output_vpk) : std::string(); });
+  row("  at drive", [](const df& d) { return d.thd_1_percent.found ? dbu(d.thd_1_percent.drive_vpk) : std::string(); });
+  t.write(out);
+
+  out << "\n  clean swing: largest symmetric output before the JFET leaves its clean region (mid-band,\n"
+         "  quasi-static, as in `bias`); drive: generator sine peak, open circuit; output: the\n"
+         "  fundamental at the load; even/odd: even- over odd-harmonic power (positive: even-dominated);\n"
+         "  1 % THD: output where THD first reaches 1 % as the drive rises, at this frequency.\n";
+  for (std::size_t i = 0; i < r.designs.size(); ++i)
+    if (!r.designs[i].thd_1_percent.found)
+      out << "  design " << i + 1 << ", 1 % THD: " << r.designs[i].thd_1_percent.reason << '\n';
+}
+
+nlohmann::json write_json(const std::vector<design_input>& in, const model::compare_result& r) {
+  nlohmann::json j;
+  j["frequency_hz"] = r.frequency_hz;
+  j["requested_frequency_hz"] = r.requested_hz;
+  j["oversampling"] = r.oversample;
+  j["mode"] = r.mode == model::compare_mode::at_output ? "at_output" : "at_drive";
+  j["level_vpk"] = r.level_vpk;
+  j["level_dbu"] = dsp::dbu_from_vpk(r.level_vpk);
+  j["thd_harmonics"] = r.thd_harmonics;
+  nlohmann::json ds = nlohmann::json::array();
+  for (std::size_t i = 0; i < r.designs.size(); ++i) {
+    const model::design_figures& d = r.designs[i];
+    nlohmann::json hs = nlohmann::json::array();
+    for (int h = 2; h <= r.harmonics; ++h) hs.push_back(number_or_null(d.point.harmonics_dbc[static_cast<std::size_t>(h - 2)]));
+    const model::drive_search& t1 = d.thd_1_percent;
+    ds.push_back({{"path", in[i].path},
+                  {"overrides", in[i].own},
+                  {"name", in[i].st.name},
+                  {"operating_point", operating_point_json(d.at)},
+                  {"gain_midband_db", d.gain_midband_db},
+                  {"gain_midband_v_per_v", d.gain_midband},
+                  {"clean_swing_vpk", d.clean_swing_vpk},
+                  {"clean_drive_vpk", d.clean_drive_vpk},
+                  {"drive_vpk", d.point.drive_vpk},
+                  {"drive_dbu", dsp::dbu_from_vpk(d.point.drive_vpk)},
+                  {"output_vpk", d.point.output_vpk},
+                  {"output_dbu", dsp::dbu_from_vpk(d.point.output_vpk)},
+                  {"gain_db", d.point.gain_db},
+                  {"thd_percent", d.point.thd_percent},
+                  {"thd_db", d.point.thd_db},
+                  {"harmonics_dbc", hs},
+                  {"even_odd_ratio", number_or_null(d.point.even_odd_ratio)},
+                  {"alias_dbc", d.point.alias_dbc},
+                  {"drive_evaluations", d.drive_evaluations},
+                  {"thd_1_percent",
+                   {{"found", t1.found},
+                    {"drive_vpk", t1.found ? nlohmann::json(t1.drive_vpk) : nlohmann::json(nullptr)},
+                    {"output_vpk", t1.found ? nlohmann::json(t1.point.output_vpk) : nlohmann::json(nullptr)},
+                    {"output_dbu", t1.found ? nlohmann::json(dsp::dbu_from_vpk(t1.point.output_vpk)) : nlohmann::json(nullptr)},
+                    {"reason", t1.reason}}}});
+  }
+  j["designs"] = ds;
+  j["warnings"] = r.warnings;
+  return j;
+}
+
+void write_csv(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
+  auto quoted = [](const std::string& s) {
+    std::string q = "\"";
+    for (char c : s) q += c == '"' ? std::string("\"\"") : std::string(1, c);
+    return q + "\"";
+  };
+  out << "design,path,name,vd_v,id_a,gain_midband_db,clean_swing_vpk,drive_vpk,output_vpk,gain_db,thd_percent";
+  for (int h = 2; h <= r.harmonics; ++h) out << ",h" << h << "_dbc";
+  out << ",even_odd_ratio,thd_1_percent_output_vpk,thd_1_percent_drive_vpk\n";
+  out.precision(10);
+  for (std::size_t i = 0; i < r.designs.size(); ++i) {
+    const model::design_figures& d = r.designs[i];
+    out << i + 1 << ',' << quoted(label_of(in[i])) << ',' << quoted(in[i].st.name) << ',' << d.at.vd_v << ',' << d.at.id_a << ','
+        << d.gain_midband_db << ',' << d.clean_swing_vpk << ',' << d.point.drive_vpk << ',' << d.point.output_vpk << ','
+        << d.point.gain_db << ',' << d.point.thd_percent;
+    for (int h = 2; h <= r.harmonics; ++h) {
+      const double v = d.point.harmonics_dbc[static_cast<std::size_t>(h - 2)];
+      out << ',';
+      if (std::isfinite(v)) out << v;
+    }
+    out << ',';
+    if (std::isfinite(d.point.even_odd_ratio)) out << d.point.even_odd_ratio;
+    out << ',';
+    if (d.thd_1_percent.found) out << d.thd_1_percent.point.output_vpk;
+    out << ',';
+    if (d.thd_1_percent.found) out << d.thd_1_percent.drive_vpk;
+    out << '\n';
+  }
+}
+
+void write_plot(const std::vector<design_input>& in, const model::compare_result& r, const std::string& path) {
+  bar_chart b;
+  b.title = "Harmonic profile at " + format_si(r.frequency_hz, "Hz") + ", " +
+            (r.mode == model::compare_mode::at_output ? dbu(r.level_vpk) + " at the load"
+                                                      : format_si(r.level_vpk, "Vpk") + " drive");
+  b.x_title = "harmonic";
+  b.y_title = "level re fundamental (dBc)";
+  for (int h = 2; h <= r.harmonics; ++h) b.categories.push_back("H" + std::to_string(h));
+  for (std::size_t i = 0; i < r.designs.size(); ++i) {
+    const std::string stem = std::filesystem::path(in[i].path).stem().string();
+    std::string g = std::to_string(i + 1) + ": " + stem;
+    for (const std::string& s : in[i].own) g += ", " + s;
+    b.groups.push_back(g);
+    std::vector<double> v;
+    for (int h = 2; h <= r.harmonics; ++h) v.push_back(r.designs[i].point.harmonics_dbc[static_cast<std::size_t>(h - 2)]);
+    b.values.push_back(v);
+  }
+  write_svg_file(path, render_svg(b));
+}
+
+}  // namespace
+
+void register_compare(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<compare_options>();
+  CLI::App* sub = app.add_subcommand("compare", "Candidate designs side by side: bias, gain, headroom and harmonic profile");
+  sub->add_option("FILES", opt->paths, "Two or more stage files (TOML), one column each")->required();
+  sub->add_option("--set", opt->overrides,
+                  "Override a value in every design, KEY=VALUE, or in design N only, N:KEY=VALUE (repeatable)")
+      ->type_name("[N:]KEY=VALUE")
+      ->expected(1)
+      ->allow_extra_args(false)
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
+  sub->add_option("--freq", opt->freq, "Test-tone frequency (snapped so the record holds whole cycles)")->capture_default_str();
+  sub->add_option("--at-output", opt->at_output,
+                  "Drive each design so its fundamental at the load is this level (the default, at -10dBu)")
+      ->type_name("LEVEL");
+  sub->add_option("--at-drive", opt->at_drive, "Drive every design with this generator level instead")->type_name("LEVEL");
+  sub->add_option("--harmonics", opt->harmonics, "Highest harmonic shown (H2..HN); THD counts at least H2..H10")
+      ->capture_default_str();
+  sub->add_option("--oversample", opt->oversample, "Simulation rate as a multiple of 48 kHz")->capture_default_str();
+  sub->add_flag("--json", opt->json, "Machine-readable output");
+  sub->add_flag("--csv", opt->csv, "One row per design as CSV");
+  sub->add_option("--plot", opt->plot, "Write the harmonic profiles as grouped bars (SVG)")->type_name("FILE.svg");
+  sub->add_option("--threads", opt->threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
+  sub->footer(
+      "Examples:\n"
+      "  pinchoff compare presets/bass-booster-9v.toml presets/clean-preamp-18v.toml presets/phantom-mic-follower.toml\n"
+      "      the three at -10 dBu out, 1 kHz: which one colours the tone, and how\n"
+      "  pinchoff compare presets/bass-booster-9v.toml presets/clean-preamp-18v.toml --at-drive 100mVpk\n"
+      "      the same input level into both: the louder stage also distorts more\n"
+      "  pinchoff compare presets/bass-booster-9v.toml presets/bass-booster-9v.toml --set 2:source.bypass_cap=0\n"
+      "      a variant of one design: the bypass capacitor removed (less gain, less H2)\n"
+      "  pinchoff compare presets/clean-preamp-18v.toml presets/clean-preamp-18v.toml --set 2:supply.volts=12 \\\n"
+      "      --at-output 0dBu --freq 100 --plot profile.svg\n"
+      "Why equal output by default: at one drive a stage with more gain swings further and so\n"
+      "distorts more; comparing at the same level at the load (--at-output, -10 dBu unless told:\n"
+      "245 mV rms, near a line input's nominal level and inside the clean range of most JFET\n"
+      "stages) shows the character of each circuit rather than its gain. Per design, the drive is\n"
+      "found to within 0.001 dB of the target; a design that cannot reach it below 20 V peak drive\n"
+      "and 50 % THD is an error that says why. --at-drive compares at one input level instead.\n"
+      "Each figure is the periodic steady state at the test frequency, as `sweep` computes it.");
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) {
+                        if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
+                        if (!opt->at_output.empty() && !opt->at_drive.empty())
+                          throw input_error("--at-output and --at-drive: choose one");
+                        model::compare_settings s;
+                        s.frequency_hz = dsp::parse_frequency_hz(opt->freq);
+                        if (!opt->at_drive.empty()) {
+                          s.mode = model::compare_mode::at_drive;
+                          s.level_vpk = dsp::parse_level_vpk(opt->at_drive);
+                        } else {
+                          s.mode = model::compare_mode::at_output;
+                          s.level_vpk = dsp::parse_level_vpk(opt->at_output.empty() ? "-10dBu" : opt->at_output);
+                        }
+                        s.harmonics = opt->harmonics;
+                        s.oversample = opt->oversample;
+                        s.threads = opt->threads;
+                        model::validate(s);
+                        const std::vector<design_input> in = load_designs(*opt);
+                        std::vector<model::stage> stages;
+                        for (const design_input& d : in) stages.push_back(d.st);
+                        const model::compare_result r = model::compare_designs(stages, s);
+
+                        std::string unreached;
+                        for (std::size_t i = 0; i < r.designs.size(); ++i)
+                          if (!r.designs[i].reached)
+                            unreached += "\n  design " + std::to_string(i + 1) + " (" + label_of(in[i]) + "): " +
+                                         r.designs[i].unreached_reason;
+                        if (!unreached.empty())
+                          throw input_error("cannot compare at " + dbu(s.level_vpk) + " at the load:" + unreached +
+                                            "\n  compare at a lower --at-output, or at one input level with --at-drive");
+                        for (const std::string& w : r.warnings) err << "pinchoff compare: warning: " << w << '\n';
+
+                        if (!opt->plot.empty()) write_plot(in, r, opt->plot);
+                        if (opt->json) {
+                          out << write_json(in, r).dump(2) << '\n';
+                          return;
+                        }
+                        if (opt->csv) {
+                          write_csv(in, r, out);
+                          return;
+                        }
+                        write_text(in, r, out);
+                        if (!opt->plot.empty()) out << "\n  plot written to " << opt->plot << '\n';
+                      }});
+}
+
+}  // namespace pinchoff::cli
