@@ -11,7 +11,7 @@ CMAKE_FLAGS ?=
 PINCHOFF = $(BUILD_DIR)/pinchoff
 MAKEFLAGS += --no-print-directory
 
-.PHONY: all deps configure build build-asan build-fuzz demo test test-release test-asan test-fuzz fuzz bench soak clean
+.PHONY: all deps configure build build-asan build-fuzz demo test test-all test-release test-asan test-fuzz fuzz bench soak clean
 
 all: build
 
@@ -40,10 +40,13 @@ demo: build
 	@$(PINCHOFF) render presets/bass-booster-9v.toml presets/clean-preamp-18v.toml \
 	  --input samples/pluck-phrase-48k.wav --output out --dry --force
 
-# The whole suite runs twice: on the Release build, and on a build with AddressSanitizer
-# and UndefinedBehaviorSanitizer that stops at the first report. Then each fuzz target
-# runs for a few seconds from its seeds and saved regression inputs.
-test: test-release test-asan test-fuzz
+# `make test`: every test on the Release build. `make test-all` adds the sanitizer and
+# fuzz gates (see below).
+test: test-release
+
+# Every gate: the Release suite, the suite under AddressSanitizer and
+# UndefinedBehaviorSanitizer, and a short run of each fuzz target.
+test-all: test-release test-asan test-fuzz
 
 test-release: build
 	@echo "== tests: Release build"

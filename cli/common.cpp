@@ -14,9 +14,8 @@ void add_stage_input(CLI::App& sub, stage_input& in) {
   sub.add_option("--set", in.overrides,
                  "Override a stage-file value, KEY=VALUE (repeatable), e.g. --set drain.resistor=4.7k")
       ->type_name("KEY=VALUE")
-      ->take_last();
-  // take_last would keep only one; we want them all:
-  sub.get_option("--set")->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
+      ->expected(1)
+      ->allow_extra_args(false);  // one value per --set, so a FILE after it stays positional
 }
 
 model::stage load_stage(const stage_input& in) { return model::read_stage_file(in.path, in.overrides); }

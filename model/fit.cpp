@@ -203,12 +203,16 @@ fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& i
   const std::pair<double, const char*> figures[] = {
       {res.idss_a, "IDSS"},           {res.vp_v, "VP"},           {res.lambda_per_v, "lambda"},
       {res.idss_se_a, "IDSS's error"}, {res.vp_se_v, "VP's error"}, {res.lambda_se_per_v, "lambda's error"}};
-  for (const auto& [value, name] : figures)
+  for (const auto& [value, name] : figures) {
+    // With as many readings as parameters the errors are NaN by design (no scatter left).
+    const bool is_error = name == figures[3].second || name == figures[4].second || name == figures[5].second;
+    if (is_error && dof == 0) continue;
     if (!std::isfinite(value) || (value == 0.0 && (name == figures[0].second || name == figures[1].second)))
       throw input_error(std::string("these readings do not determine IDSS and VP: the best fit sends ") + name + " to " +
                         dsp::format_number(value) +
                         " (the current hardly falls as the gate goes more negative; take readings from VGS = 0 "
                         "down to near cut-off, and check the columns and signs)");
+  }
 
   // A row "does not fit" when, refitted without it, the others predict it more than four
   // of their own standard deviations away (a deleted-residual test, Cook & Weisberg,

@@ -113,7 +113,7 @@ struct fixtures {
     write(f("noid.csv"), "vgs_v,i\n0,1m\n");
     write(f("both.csv"), "vgs_v,rs_ohm,id_a\n0,1,1m\n");
     write(f("unknowncol.csv"), "vgs_v,id_a,temp_c\n0,5m,25\n");
-    write(f("two.csv"), "vgs_v,id_a\n0,5m\n-1,1m\n");
+    write(f("two.csv"), "vgs_v,id_a\n0,5m\n");
     write(f("mixed.csv"), "vgs_v,id_a\n0,5m\n-1,-1m\n-2,1m\n");
     write(f("zero.csv"), "vgs_v,id_a\n0,5m\n-1,1m\n-2,0\n");
     write(f("rising.csv"), "vgs_v,id_a\n0,1m\n-1,2m\n-2,3m\n");
@@ -248,7 +248,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"no id_a column", {"fit", "@noid.csv"}, {"@noid.csv", "missing column 'id_a'"}},
       {"both vgs_v and rs_ohm", {"fit", "@both.csv"}, {"@both.csv", "exactly one of the columns"}},
       {"unknown column", {"fit", "@unknowncol.csv"}, {"@unknowncol.csv", "unknown column 'temp_c'"}},
-      {"too few readings", {"fit", "@two.csv"}, {"@two.csv", "too few readings", "2 given"}},
+      {"too few readings", {"fit", "@two.csv"}, {"@two.csv", "too few readings", "1 given"}},
       {"currents of both signs", {"fit", "@mixed.csv"}, {"@mixed.csv", "line 3", "opposite sign"}},
       {"a zero current", {"fit", "@zero.csv"}, {"@zero.csv", "line 4", "is zero"}},
       {"current rising as the gate goes negative", {"fit", "@rising.csv"}, {"@rising.csv", "cannot come from a square-law part"}},
@@ -314,6 +314,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
     const std::set<std::string> before = listing(fx.dir.path);
     const outcome o = run_cli(args);
     CAPTURE(o.err);
+    CAPTURE(o.out);
     CHECK(o.status == r.status);
     CHECK(o.out.empty());
     for (const std::string& w : r.words) {
