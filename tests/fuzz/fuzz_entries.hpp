@@ -195,8 +195,14 @@ inline outcome csv_fit_entry(std::string_view text) {
                                 std::to_string(f.vp_v) + " +- " + std::to_string(f.vp_se_v) + ", lambda " +
                                 std::to_string(f.lambda_per_v) + " +- " + std::to_string(f.lambda_se_per_v) + ", rms " +
                                 std::to_string(f.rms_residual_ratio);
-    for (double v : {f.idss_a, f.vp_v, f.lambda_per_v, f.idss_se_a, f.vp_se_v, f.lambda_se_per_v, f.rms_residual_ratio})
+    for (double v : {f.idss_a, f.vp_v, f.lambda_per_v, f.rms_residual_ratio})
       detail::require(std::isfinite(v), "fit_square_law returned a non-finite figure: " + figures);
+    // Errors are NaN by contract only when the readings determine the part exactly (as
+    // many readings as parameters); otherwise they must be finite.
+    const std::size_t parameters = f.lambda_fitted ? 3 : 2;
+    for (double v : {f.idss_se_a, f.vp_se_v, f.lambda_se_per_v})
+      detail::require(std::isfinite(v) || (readings.size() == parameters && std::isnan(v)),
+                      "fit_square_law returned a non-finite error with spare readings: " + figures);
     detail::require(f.idss_a > 0.0 && (f.p_channel ? f.vp_v > 0.0 : f.vp_v < 0.0), "fit returned a sign that is not a JFET's: " + figures);
     detail::require(f.rows.size() == readings.size(), "fit returned a different number of rows");
     for (const model::fit_row& r : f.rows)
