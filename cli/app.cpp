@@ -84,7 +84,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
       return 2;
     } catch (const interrupted& e) {
       err << "pinchoff " << c.sub->get_name() << ": " << e.what() << '\n';
-      return 130;
+      return 128 + e.signal_number();
     } catch (const internal_error& e) {
       err << "pinchoff " << c.sub->get_name() << ": internal failure: " << e.what() << '\n';
       return 1;

@@ -4,6 +4,7 @@
 #include <cstdio>
 #include <filesystem>
 #include <memory>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -234,7 +235,8 @@ void write_csv(const std::vector<design_input>& in, const model::compare_result&
   }
 }
 
-void write_plot(const std::vector<design_input>& in, const model::compare_result& r, const std::string& path) {
+void write_plot(const std::vector<design_input>& in, const model::compare_result& r, const std::string& path,
+                std::span<const std::filesystem::path> inputs) {
   bar_chart b;
   b.title = "Harmonic profile at " + format_si(r.frequency_hz, "Hz") + ", " +
             (r.mode == model::compare_mode::at_output ? dbu(r.level_vpk) + " at the load"
@@ -251,7 +253,7 @@ void write_plot(const std::vector<design_input>& in, const model::compare_result
     for (int h = 2; h <= r.harmonics; ++h) v.push_back(r.designs[i].point.harmonics_dbc[static_cast<std::size_t>(h - 2)]);
     b.values.push_back(v);
   }
-  write_svg_file(path, render_svg(b));
+  write_svg_file(path, render_svg(b), inputs);
 }
 
 }  // namespace
@@ -300,18 +302,20 @@ void register_compare(CLI::App& app, std::vector<command>& commands) {
                         if (!opt->at_output.empty() && !opt->at_drive.empty())
                           throw input_error("--at-output and --at-drive: choose one");
                         model::compare_settings s;
-                        s.frequency_hz = dsp::parse_frequency_hz(opt->freq);
+                        s.frequency_hz = option_frequency_hz(opt->freq, "--freq");
                         if (!opt->at_drive.empty()) {
                           s.mode = model::compare_mode::at_drive;
-                          s.level_vpk = dsp::parse_level_vpk(opt->at_drive);
+                          s.level_vpk = option_level_vpk(opt->at_drive, "--at-drive");
                         } else {
                           s.mode = model::compare_mode::at_output;
-                          s.level_vpk = dsp::parse_level_vpk(opt->at_output.empty() ? "-10dBu" : opt->at_output);
+                          s.level_vpk = option_level_vpk(opt->at_output.empty() ? "-10dBu" : opt->at_output, "--at-output");
                         }
                         s.harmonics = opt->harmonics;
                         s.oversample = opt->oversample;
                         s.threads = opt->threads;
                         model::validate(s);
+                        const std::vector<std::filesystem::path> inputs(opt->paths.begin(), opt->paths.end());
+                        if (!opt->plot.empty()) check_plot_target(opt->plot, inputs);
                         const std::vector<design_input> in = load_designs(*opt);
                         std::vector<model::stage> stages;
                         for (const design_input& d : in) stages.push_back(d.st);
@@ -327,7 +331,7 @@ void register_compare(CLI::App& app, std::vector<command>& commands) {
                                             "\n  compare at a lower --at-output, or at one input level with --at-drive");
                         for (const std::string& w : r.warnings) err << "pinchoff compare: warning: " << w << '\n';
 
-                        if (!opt->plot.empty()) write_plot(in, r, opt->plot);
+                        if (!opt->plot.empty()) write_plot(in, r, opt->plot, inputs);
                         if (opt->json) {
                           out << write_json(in, r).dump(2) << '\n';
                           return;

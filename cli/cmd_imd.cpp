@@ -63,9 +63,9 @@ void register_imd(CLI::App& app, std::vector<command>& commands) {
                         s.method = opt->method == "din"        ? model::imd_method::din
                                    : opt->method == "twin-tone" ? model::imd_method::twin_tone
                                                                 : model::imd_method::smpte;
-                        s.level_vpk = dsp::parse_level_vpk(opt->level);
+                        s.level_vpk = option_level_vpk(opt->level, "--level");
                         s.oversample = opt->oversample;
-                        s.base_rate_hz = dsp::parse_frequency_hz(opt->rate);
+                        s.base_rate_hz = option_frequency_hz(opt->rate, "--rate");
                         const model::stage st = load_stage(opt->input);
                         const model::imd_result r = model::run_imd(st, s);
                         if (r.newton.failed > 0)

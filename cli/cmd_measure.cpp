@@ -101,13 +101,7 @@ measure_report analyse(const measure_options& o) {
   dsp::windowed_settings s;
   s.window = r.window;
   s.harmonics = o.harmonics;
-  auto frequency = [](const std::string& text, const char* option) {
-    try {
-      return dsp::parse_frequency_hz(text);
-    } catch (const input_error& e) {
-      throw input_error(std::string(option) + ": " + e.what());
-    }
-  };
+  auto frequency = [](const std::string& text, const char* option) { return option_frequency_hz(text, option); };
   s.band_high_hz = frequency(o.bandwidth_text, "--bandwidth");
   if (o.freq_text != "auto") s.approx_fundamental_hz = frequency(o.freq_text, "--freq");
 
@@ -411,7 +405,7 @@ void register_measure(CLI::App& app, std::vector<command>& commands) {
                           prediction p;
                           p.path = opt->against_path;
                           p.overrides = opt->overrides;
-                          p.drive_vpk = dsp::parse_level_vpk(opt->drive_text);
+                          p.drive_vpk = option_level_vpk(opt->drive_text, "--drive");
                           if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
                           p.st = model::read_stage_file(p.path, p.overrides);
                           against = std::move(p);

@@ -1,9 +1,7 @@
 // pinchoff render: recorded audio through one or several stages, to listen to before
 // building; several stages come out loudness-matched so that the louder one does not win.
-#include <signal.h>
 
 #include <algorithm>
-#include <atomic>
 #include <cctype>
 #include <cmath>
 #include <cstdio>
@@ -18,6 +16,7 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "cli/interrupt.hpp"
 #include "cli/progress_bar.hpp"
 #include "cli/text_table.hpp"
 #include "dsp/error.hpp"
@@ -46,37 +45,6 @@ struct render_options {
   std::string format;
   int threads{0};
   bool dry{false}, force{false}, quiet{false}, json{false};
-};
-
-// Set by SIGINT, read by the render loop. A signal handler can reach nothing but objects
-// of static storage duration, so this is the one mutable static in the program; a
-// lock-free atomic is safe to store from a handler.
-std::atomic<bool> interrupt_requested{false};
-static_assert(std::atomic<bool>::is_always_lock_free);
-
-extern "C" void on_interrupt(int) { interrupt_requested.store(true, std::memory_order_relaxed); }
-
-// Installs the handler for the life of a render and puts the previous one back after.
-// SA_RESETHAND: a second Ctrl-C stops the program at once, the usual way out.
-class interrupt_guard {
- public:
-  interrupt_guard() {
-    interrupt_requested.store(false);
-    struct sigaction sa {};
-    sa.sa_handler = on_interrupt;
-    sigemptyset(&sa.sa_mask);
-    sa.sa_flags = SA_RESETHAND | SA_RESTART;
-    installed_ = ::sigaction(SIGINT, &sa, &previous_) == 0;
-  }
-  ~interrupt_guard() {
-    if (installed_) ::sigaction(SIGINT, &previous_, nullptr);
-  }
-  interrupt_guard(const interrupt_guard&) = delete;
-  interrupt_guard& operator=(const interrupt_guard&) = delete;
-
- private:
-  struct sigaction previous_ {};
-  bool installed_{false};
 };
 
 // Removes a folder this run created when the run fails and leaves it empty.
@@ -280,7 +248,7 @@ void write_json(const model::render_report& r, const render_options& o, std::ost
 void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
   model::render_job job;
   job.input = o.input;
-  job.input_peak_v = dsp::parse_level_vpk(o.input_peak);
+  job.input_peak_v = option_level_vpk(o.input_peak, "--input-peak");
   job.oversample = o.oversample;
   job.overwrite = o.force;
   job.threads = o.threads;
@@ -288,7 +256,7 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
   job.peak_dbfs = parse_dbfs(o.normalize, "--normalize");
   if (!o.output_peak.empty()) {
     job.level = model::output_level::fixed;
-    job.full_scale_v = dsp::parse_level_vpk(o.output_peak);
+    job.full_scale_v = option_level_vpk(o.output_peak, "--output-peak");
   }
 
   std::vector<loaded_stage> stages;
@@ -333,10 +301,10 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
   }
   for (loaded_stage& l : stages) job.stages.push_back(l.st);
 
-  interrupt_guard guard;
+  const interrupt_guard guard;
   progress_bar bar(err, !o.quiet && stderr_is_terminal());
   model::render_control control;
-  control.stop = &interrupt_requested;
+  control.stop = guard.flag();
   if (bar.enabled())
     control.progress = [&bar](const model::render_progress& p) { bar.update(p.fraction, p.realtime_factor, p.seconds_left); };
   const model::render_report r = model::render(job, control);

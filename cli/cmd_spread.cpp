@@ -2,6 +2,7 @@
 #include <cmath>
 #include <filesystem>
 #include <memory>
+#include <span>
 
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
@@ -48,8 +49,21 @@ std::string part_text(const model::spread_run& r) {
          format_si(r.draw.supply_v, "V");
 }
 
+// The histogram files: BASE-NAME.EXT for each quantity.
+std::filesystem::path histogram_path(const std::string& base, const std::string& name) {
+  const std::filesystem::path p(base);
+  return p.parent_path() / (p.stem().string() + "-" + name + p.extension().string());
+}
+
+std::vector<std::string> histogram_names(const std::vector<model::requirement>& reqs) {
+  std::vector<std::string> names;
+  for (const auto& r : reqs) names.push_back(r.quantity);
+  if (names.empty()) names = {"vd", "id"};
+  return names;
+}
+
 void write_histograms(const model::spread_result& res, const std::vector<std::string>& names, const std::string& base,
-                      const std::string& title, std::ostream& out) {
+                      const std::string& title, std::ostream& out, std::span<const std::filesystem::path> inputs) {
   const std::filesystem::path p(base);
   for (const std::string& name : names) {
     const model::quantity_def& q = def_of(name);
@@ -72,8 +86,8 @@ void write_histograms(const model::spread_result& res, const std::vector<std::st
       c.categories.push_back(std::string_view(q.unit) == "A" ? format_si(centre, "", 3) : format_number(centre, 3));
     }
     for (double x : v) c.values[0][static_cast<std::size_t>(std::min(bins - 1, static_cast<int>((x - lo) / w)))] += 1.0;
-    const std::filesystem::path file = p.parent_path() / (p.stem().string() + "-" + name + p.extension().string());
-    write_svg_file(file, render_svg(c));
+    const std::filesystem::path file = histogram_path(base, name);
+    write_svg_file(file, render_svg(c), inputs);
     out << "  histogram of " << name << " written to " << file.string() << '\n';
   }
 }
@@ -113,13 +127,16 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
                         if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
                         std::vector<model::requirement> reqs;
                         for (const std::string& r : opt->conditions) reqs.push_back(model::parse_requirement(r));
+                        const std::filesystem::path inputs[] = {opt->input.path};
+                        if (!opt->plot.empty())
+                          for (const std::string& name : histogram_names(reqs)) check_plot_target(histogram_path(opt->plot, name), inputs);
                         const model::stage st = load_stage(opt->input);
                         const model::spread_settings settings = spread_settings_from(opt->batch, st, opt->input.path);
                         model::run_extra extra;
                         if (!opt->drive.empty()) {
                           model::sweep_settings sw;
-                          sw.drives_vpk = {dsp::parse_level_vpk(opt->drive)};
-                          sw.frequency_hz = dsp::parse_frequency_hz(opt->freq);
+                          sw.drives_vpk = {option_level_vpk(opt->drive, "--drive")};
+                          sw.frequency_hz = option_frequency_hz(opt->freq, "--freq");
                           sw.threads = 1;
                           model::validate(sw);
                           extra = [sw](const model::stage& drawn, std::map<std::string, double>& values) {
@@ -133,10 +150,7 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
                         std::vector<std::string> shown{"id", "vd", "vs", "vds", "gain", "swing", "thd"};
                         std::ostringstream plots;
                         if (!opt->plot.empty()) {
-                          std::vector<std::string> names;
-                          for (const auto& r : reqs) names.push_back(r.quantity);
-                          if (names.empty()) names = {"vd", "id"};
-                          write_histograms(res, names, opt->plot, st.name, plots);
+                          write_histograms(res, histogram_names(reqs), opt->plot, st.name, plots, inputs);
                         }
                         if (opt->csv) {
                           out << "run,idss_a,vp_v,supply_v,solved";

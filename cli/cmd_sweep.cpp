@@ -1,5 +1,6 @@
 // pinchoff sweep: harmonic profile against drive, from the nonlinear engine.
 #include <cmath>
+#include <filesystem>
 #include <memory>
 #include <sstream>
 
@@ -42,14 +43,14 @@ std::vector<double> drive_levels(const sweep_options& o) {
     if (!o.from.empty() || !o.to.empty()) throw input_error("--drive and --from/--to: choose one");
     std::stringstream ss(o.drive);
     std::string item;
-    while (std::getline(ss, item, ',')) d.push_back(dsp::parse_level_vpk(item));
+    while (std::getline(ss, item, ',')) d.push_back(option_level_vpk(item, "--drive"));
     if (d.empty()) throw input_error("--drive: give one or more levels, e.g. --drive 100mVpk,300mVpk,1Vpk");
     for (double v : d)
       if (!(v > 0)) throw input_error("--drive: levels must be above 0 V");
     return d;
   }
-  const double lo = dsp::parse_level_vpk(o.from.empty() ? "-40dBu" : o.from);
-  const double hi = dsp::parse_level_vpk(o.to.empty() ? "+20dBu" : o.to);
+  const double lo = option_level_vpk(o.from.empty() ? "-40dBu" : o.from, "--from");
+  const double hi = option_level_vpk(o.to.empty() ? "+20dBu" : o.to, "--to");
   if (!(lo > 0) || !(hi > lo)) throw input_error("--from must be above 0 V and below --to");
   if (o.steps < 2 || o.steps > 1000) throw input_error("--steps must be between 2 and 1000");
   for (int k = 0; k < o.steps; ++k) d.push_back(lo * std::pow(hi / lo, double(k) / (o.steps - 1)));
@@ -112,14 +113,16 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
   commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) {
                         if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
                         model::sweep_settings s;
-                        s.frequency_hz = dsp::parse_frequency_hz(opt->freq);
+                        s.frequency_hz = option_frequency_hz(opt->freq, "--freq");
                         s.drives_vpk = drive_levels(*opt);
                         s.oversample = opt->oversample;
                         s.harmonics = opt->harmonics;
-                        s.bandwidth_hz = dsp::parse_frequency_hz(opt->bandwidth);
-                        s.base_rate_hz = dsp::parse_frequency_hz(opt->rate);
+                        s.bandwidth_hz = option_frequency_hz(opt->bandwidth, "--bandwidth");
+                        s.base_rate_hz = option_frequency_hz(opt->rate, "--rate");
                         s.threads = opt->threads;
                         model::validate(s);
+                        const std::filesystem::path inputs[] = {opt->input.path};
+                        if (!opt->plot.empty()) check_plot_target(opt->plot, inputs);
                         const model::stage st = load_stage(opt->input);
                         const model::sweep_result r = model::run_sweep(st, s);
 
@@ -169,7 +172,7 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
                           for (const auto& c : r.crossings)
                             if (c.found)
                               pl.markers.push_back({dsp::dbu_from_vpk(c.drive_vpk), format_number(c.thd_percent, 2) + " % THD"});
-                          write_svg_file(opt->plot, render_svg(pl));
+                          write_svg_file(opt->plot, render_svg(pl), inputs);
                         }
 
                         if (opt->json) {

@@ -13,6 +13,8 @@
 #include <nlohmann/json.hpp>
 
 #include "cli/app.hpp"
+#include "cli/common.hpp"
+#include "cli/interrupt.hpp"
 #include "cli/text_table.hpp"
 #include "dsp/error.hpp"
 #include "dsp/sound_file.hpp"
@@ -181,11 +183,7 @@ tone_report make_tone(const tone_options& o) {
   r.format = dsp::parse_sample_format(o.format_text);
   r.channels = o.channels;
   r.dither = !o.no_dither;
-  try {
-    r.plan.frequency_hz = dsp::parse_frequency_hz(o.freq_text);
-  } catch (const input_error& e) {
-    throw input_error(std::string("--freq: ") + e.what());
-  }
+  r.plan.frequency_hz = option_frequency_hz(o.freq_text, "--freq");
   r.plan.rate_hz = o.rate_hz;
   if (!(o.fade_ms >= 0.0) || !std::isfinite(o.fade_ms))
     throw input_error("--fade-ms must be zero or positive, got " + format_number(o.fade_ms));
@@ -225,10 +223,12 @@ tone_report make_tone(const tone_options& o) {
   ws.format = r.format;
   ws.tpdf_dither = r.dither;
   ws.overwrite = o.force;
+  const interrupt_guard guard;  // Ctrl-C: the writer's temporary is removed as it unwinds
   dsp::sound_writer w = dsp::sound_writer::create(o.output, ws);
   const auto ch = static_cast<std::size_t>(o.channels);
   std::vector<double> mono(8192), frames(8192 * ch);
   for (;;) {
+    guard.check();
     const std::size_t n = gen.generate(mono);
     if (n == 0) break;
     for (std::size_t t = 0; t < n; ++t) {

@@ -31,13 +31,24 @@ const char* topology_name(model::topology t) noexcept {
   return t == model::topology::common_source ? "common-source" : "source-follower";
 }
 
-double parse_analysis_frequency_hz(const std::string& text, const std::string& option) {
-  double f = 0.0;
+double option_frequency_hz(const std::string& text, const std::string& option) {
   try {
-    f = dsp::parse_frequency_hz(text);
+    return dsp::parse_frequency_hz(text);
   } catch (const input_error& e) {
     throw input_error(option + ": " + e.what());
   }
+}
+
+double option_level_vpk(const std::string& text, const std::string& option) {
+  try {
+    return dsp::parse_level_vpk(text);
+  } catch (const input_error& e) {
+    throw input_error(option + ": " + e.what());
+  }
+}
+
+double parse_analysis_frequency_hz(const std::string& text, const std::string& option) {
+  const double f = option_frequency_hz(text, option);
   if (f < model::lowest_analysis_hz || f > model::highest_analysis_hz)
     throw input_error(option + " " + text + ": the small-signal analysis covers " +
                       dsp::format_si(model::lowest_analysis_hz, "Hz") + " to " +

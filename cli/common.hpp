@@ -30,6 +30,11 @@ nlohmann::json number_or_null(double v);
 
 const char* topology_name(model::topology t) noexcept;
 
+/// dsp::parse_frequency_hz / dsp::parse_level_vpk with the option named in any error
+/// ("--freq: cannot read '1kV' as a frequency ...").
+double option_frequency_hz(const std::string& text, const std::string& option);
+double option_level_vpk(const std::string& text, const std::string& option);
+
 /// Reads the frequency given to `option` ("--at", "--to") and checks that it lies in the
 /// band the small-signal analyses cover (model::lowest_analysis_hz .. highest_analysis_hz).
 double parse_analysis_frequency_hz(const std::string& text, const std::string& option);

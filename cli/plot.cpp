@@ -471,7 +471,7 @@ std::string render_svg(const bar_chart& chart) {
   return out.s;
 }
 
-void write_svg_file(const std::filesystem::path& path, std::string_view svg, std::span<const std::filesystem::path> inputs) {
+void check_plot_target(const std::filesystem::path& path, std::span<const std::filesystem::path> inputs) {
   namespace fs = std::filesystem;
   const fs::path folder = path.has_parent_path() ? path.parent_path() : fs::path(".");
   std::error_code ec;
@@ -483,6 +483,13 @@ void write_svg_file(const std::filesystem::path& path, std::string_view svg, std
                                                                  : fs::weakly_canonical(path, ec) == fs::weakly_canonical(in, ec);
     if (same) throw io_error("cannot write plot '" + path.string() + "': it is the input file; choose another name");
   }
+}
+
+void write_svg_file(const std::filesystem::path& path, std::string_view svg, std::span<const std::filesystem::path> inputs) {
+  namespace fs = std::filesystem;
+  check_plot_target(path, inputs);
+  const fs::path folder = path.has_parent_path() ? path.parent_path() : fs::path(".");
+  std::error_code ec;
   std::string temp_name = ".";  // built by appends: GCC 12 warns falsely on "." + string (PR 105329)
   temp_name += path.filename().string();
   temp_name += ".partial";

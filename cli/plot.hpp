@@ -86,11 +86,15 @@ std::vector<tick> make_ticks(double lo, double hi, axis_scale scale, bool si_lab
 std::string render_svg(const line_plot& plot);
 std::string render_svg(const bar_chart& chart);
 
-/// Writes `svg` to `path` atomically: a temporary file beside it, then a rename. Throws
-/// io_error naming the path when its folder does not exist, when it is a folder, when it is
-/// one of `inputs` (compared as files, so links and relative paths are seen through: a plot
-/// must never replace the stage file or recording it was made from), or the write fails.
+/// Throws io_error naming `path` when a plot cannot go there: its folder does not exist, it
+/// is a folder, or it is one of `inputs` (compared as files, so links and relative paths are
+/// seen through: a plot must never replace the stage file or recording it was made from).
+/// Commands call it before their computation, so a bad --plot fails at once.
+void check_plot_target(const std::filesystem::path& path, std::span<const std::filesystem::path> inputs);
+
+/// Writes `svg` to `path` atomically: a temporary file beside it, then a rename. Checks the
+/// target as check_plot_target() does, and throws io_error when the write fails.
 void write_svg_file(const std::filesystem::path& path, std::string_view svg,
-                    std::span<const std::filesystem::path> inputs = {});
+                    std::span<const std::filesystem::path> inputs);
 
 }  // namespace pinchoff::cli

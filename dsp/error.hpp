@@ -1,7 +1,7 @@
 #pragma once
 // The project's error hierarchy. Every layer throws these; only cli/app.cpp catches them
 // and turns them into exit codes (0 success, 1 internal failure, 2 bad input or usage,
-// 130 interrupted).
+// 128 + the signal when interrupted: 130 for Ctrl-C).
 #include <stdexcept>
 #include <string>
 
@@ -27,11 +27,16 @@ class internal_error : public std::runtime_error {
   using std::runtime_error::runtime_error;
 };
 
-/// The user stopped the run (Ctrl-C): work was abandoned and its temporary files removed.
-/// Exit status 130 (128 + SIGINT, the shell convention).
+/// The user stopped the run (Ctrl-C, or SIGTERM): work was abandoned and its temporary files
+/// removed. Exit status 128 + the signal (130 for SIGINT, the shell convention).
 class interrupted : public std::runtime_error {
  public:
-  using std::runtime_error::runtime_error;
+  explicit interrupted(const std::string& what, int signal_number = 2 /* SIGINT */)
+      : std::runtime_error(what), signal_number_(signal_number > 0 ? signal_number : 2) {}
+  int signal_number() const noexcept { return signal_number_; }
+
+ private:
+  int signal_number_;
 };
 
 }  // namespace pinchoff

@@ -22,6 +22,7 @@
 #include "dsp/error.hpp"
 #include "dsp/units.hpp"
 #include "model/spread.hpp"
+#include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
 namespace fs = std::filesystem;
@@ -29,16 +30,8 @@ using pinchoff::testing::scratch_dir;
 
 namespace {
 
-struct outcome {
-  int status;
-  std::string out, err;
-};
-
-outcome run_cli(const std::vector<std::string>& args) {
-  std::ostringstream out, err;
-  const int status = pinchoff::cli::run(args, out, err);
-  return {status, out.str(), err.str()};
-}
+using outcome = pinchoff::testing::cli_result;
+using pinchoff::testing::run_cli;
 
 void write(const fs::path& p, std::string_view bytes) {
   std::ofstream f(p, std::ios::binary);
@@ -127,6 +120,8 @@ struct fixtures {
     REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "0.5", "--level", "-200", "--no-dither", "--format", "wav16",
                      f("silent.wav")})
                 .status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", f("rec48.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", "--format", "float", f("float48.wav")}).status == 0);
     write(f("empty.wav"), "");
     {
       std::ifstream in(f("rec.wav"), std::ios::binary);
@@ -143,6 +138,23 @@ struct fixtures {
       std::memcpy(bytes.data() + data + 8 + 4 * 1000, &nan_bits, 4);
       write(f("nan.wav"), bytes);
     }
+    {
+      // The same at frame 4800 (0.1 s) of the 48 kHz float recording.
+      std::ifstream in(f("float48.wav"), std::ios::binary);
+      std::string bytes(std::istreambuf_iterator<char>(in), {});
+      const std::size_t data = bytes.find("data");
+      REQUIRE(data != std::string::npos);
+      const std::uint32_t inf_bits = 0x7f800000u;
+      std::memcpy(bytes.data() + data + 8 + 4 * 4800, &inf_bits, 4);
+      write(f("inf48.wav"), bytes);
+    }
+    fs::create_directory(f("made"));
+    write(f("made/taken.wav"), "x");
+    // A second stage file whose name matches the first: both would render to stage.wav.
+    fs::create_directory(f("other"));
+    write(f("other/stage.toml"), good_stage);
+    write(f("second.toml"), good_stage);
+    write(f("h-vd.svg"), good_stage);  // a stage file that a histogram name would match
   }
 };
 
@@ -298,9 +310,76 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"unknown --window", {"measure", "@rec.wav", "--window", "hann"}, {"'hann'", "blackman-harris or flat-top"}},
       {"--plot into a folder that does not exist", {"measure", "@rec.wav", "--plot", "@nofolder/m.svg"}, {"@nofolder/m.svg", "does not exist"}},
       {"--plot onto the recording itself", {"measure", "@rec.wav", "--plot", "@rec.wav"}, {"@rec.wav", "it is the input file"}},
+      // ---- sweep
+      {"sweep on an empty stage file", {"sweep", "@empty.toml"}, {"@empty.toml", "the file is empty"}},
+      {"sweep on binary garbage", {"sweep", "@garbage.bin"}, {"@garbage.bin:1:"}},
+      {"--drive with --from", {"sweep", "@stage.toml", "--drive", "1V", "--from", "-10dBu"}, {"--drive and --from/--to: choose one"}},
+      {"--drive of 0 V", {"sweep", "@stage.toml", "--drive", "0V"}, {"--drive", "above 0 V"}},
+      {"--drive that is not a level", {"sweep", "@stage.toml", "--drive", "loud"}, {"--drive: cannot read 'loud' as a level", "dBu"}},
+      {"--drive list with a bad entry", {"sweep", "@stage.toml", "--drive", "1V,x"}, {"--drive: cannot read 'x'"}},
+      {"--from above --to", {"sweep", "@stage.toml", "--from", "0dBu", "--to", "-10dBu"}, {"--from", "below --to"}},
+      {"--steps below 2", {"sweep", "@stage.toml", "--steps", "1"}, {"--steps", "between 2 and 1000"}},
+      {"--oversample of 0", {"sweep", "@stage.toml", "--oversample", "0"}, {"--oversample", "between 1 and 64"}},
+      {"--freq above the Nyquist limit of the oversampled rate", {"sweep", "@stage.toml", "--freq", "300k", "--oversample", "1"}, {"--freq 300 kHz", "Nyquist", "48.0 kHz"}},
+      {"--freq below 1 Hz", {"sweep", "@stage.toml", "--freq", "0.5"}, {"--freq", "at least 1 Hz"}},
+      {"--freq that is not a frequency", {"sweep", "@stage.toml", "--freq", "1kV"}, {"--freq: cannot read '1kV' as a frequency"}},
+      {"--harmonics of 0", {"sweep", "@stage.toml", "--harmonics", "0"}, {"--harmonics", "between 1 and 100"}},
+      {"--bandwidth above half the simulation rate", {"sweep", "@stage.toml", "--bandwidth", "1G"}, {"--bandwidth", "half the simulation rate"}},
+      {"--rate below 8 kHz", {"sweep", "@stage.toml", "--rate", "4k"}, {"--rate", "8 kHz"}},
+      {"--json with --csv", {"sweep", "@stage.toml", "--json", "--csv"}, {"--json and --csv"}},
+      {"--plot into a folder that does not exist", {"sweep", "@stage.toml", "--plot", "@nofolder/w.svg"}, {"@nofolder/w.svg", "does not exist"}},
+      {"--plot onto the stage file itself", {"sweep", "@stage.toml", "--plot", "@stage.toml"}, {"@stage.toml", "it is the input file"}},
+      {"--set of an unknown key", {"sweep", "@stage.toml", "--set", "drain.resistr=1k"}, {"--set drain.resistr", "did you mean 'resistor'"}},
+      // ---- imd
+      {"imd on an empty stage file", {"imd", "@empty.toml"}, {"@empty.toml", "the file is empty"}},
+      {"unknown --method", {"imd", "@stage.toml", "--method", "ccif"}, {"--method", "ccif"}},
+      {"--level of 0 V", {"imd", "@stage.toml", "--level", "0V"}, {"--level", "above 0 V"}},
+      {"--level that is not a level", {"imd", "@stage.toml", "--level", "abc"}, {"--level: cannot read 'abc' as a level"}},
+      {"--oversample above 64", {"imd", "@stage.toml", "--oversample", "100"}, {"--oversample", "between 1 and 64"}},
+      {"a rate too low for the tones and their products", {"imd", "@stage.toml", "--rate", "8k"}, {"8.00 kHz rate cannot carry", "Nyquist"}},
+      {"--rate that is not a frequency", {"imd", "@stage.toml", "--rate", "fast"}, {"--rate: cannot read 'fast'"}},
+      {"--rate of 0", {"imd", "@stage.toml", "--rate", "0"}, {"--rate", "above 0 Hz"}},
+      // ---- compare
+      {"one design only", {"compare", "@stage.toml"}, {"at least two designs"}},
+      {"a design file that does not exist", {"compare", "@stage.toml", "@missing.toml"}, {"@missing.toml", "No such file"}},
+      {"a design file with a misspelt key", {"compare", "@stage.toml", "@typo.toml"}, {"@typo.toml:13:1:", "unknown key 'resistr'"}},
+      {"--set for a design that is not there", {"compare", "@stage.toml", "@stage.toml", "--set", "3:drain.resistor=1k"}, {"--set 3:drain.resistor=1k", "no design 3"}},
+      {"--at-output with --at-drive", {"compare", "@stage.toml", "@stage.toml", "--at-output", "1V", "--at-drive", "1V"}, {"--at-output and --at-drive: choose one"}},
+      {"--at-drive above the comparison limit", {"compare", "@stage.toml", "@stage.toml", "--at-drive", "100V"}, {"--at-drive 100 Vpk", "limit"}},
+      {"--at-output the stages cannot reach", {"compare", "@stage.toml", "@stage.toml", "--at-output", "+40dBu"}, {"cannot compare at", "design 1", "--at-drive"}},
+      {"--harmonics below 2", {"compare", "@stage.toml", "@stage.toml", "--harmonics", "1"}, {"--harmonics", "between 2 and 100"}},
+      {"--json with --csv", {"compare", "@stage.toml", "@stage.toml", "--json", "--csv"}, {"--json and --csv"}},
+      {"--plot onto a design file", {"compare", "@stage.toml", "@typo.toml", "--plot", "@typo.toml"}, {"@typo.toml", "it is the input file"}},
+      // ---- spread: plots
+      {"--plot whose histogram would replace the stage file", {"spread", "@h-vd.svg", "--runs", "10", "--plot", "@h.svg"}, {"@h-vd.svg", "it is the input file"}},
+      // ---- render
+      {"render without --input", {"render", "@stage.toml", "--output", "@o.wav"}, {"--input"}},
+      {"render without --output", {"render", "@stage.toml", "--input", "@rec48.wav"}, {"--output"}},
+      {"input recording that does not exist", {"render", "@stage.toml", "--input", "@missing.wav", "--output", "@o.wav"}, {"@missing.wav", "No such file"}},
+      {"a folder as the input recording", {"render", "@stage.toml", "--input", "@folder", "--output", "@o.wav"}, {"@folder", "it is a folder"}},
+      {"empty input recording", {"render", "@stage.toml", "--input", "@empty.wav", "--output", "@o.wav"}, {"@empty.wav", "empty"}},
+      {"binary garbage as the input recording", {"render", "@stage.toml", "--input", "@garbage.bin", "--output", "@o.wav"}, {"@garbage.bin", "not recognised"}},
+      {"truncated input recording", {"render", "@stage.toml", "--input", "@truncated.wav", "--output", "@o.wav"}, {"@truncated.wav", "truncated"}},
+      {"infinite sample in a float input", {"render", "@stage.toml", "--input", "@inf48.wav", "--output", "@o.wav"}, {"@inf48.wav", "frame 4800", "channel 1"}},
+      {"input below 44.1 kHz", {"render", "@stage.toml", "--input", "@rec.wav", "--output", "@o.wav"}, {"@rec.wav", "8000.00 Hz", "44.1 kHz or more"}},
+      {"output path equal to the input", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@rec48.wav", "--force"}, {"@rec48.wav", "it is the input file"}},
+      {"output that exists, without --force", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@made/taken.wav"}, {"@made/taken.wav", "exists", "--force"}},
+      {"output folder that does not exist", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@nofolder/o.wav"}, {"@nofolder/o.wav", "does not exist"}},
+      {"output named for another format", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.flac"}, {"@o.flac", "would hold WAV", "--format"}},
+      {"unknown --format", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--format", "mp3"}, {"'mp3'", "wav16, wav24"}},
+      {"--oversample that is not a power of two", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--oversample", "3"}, {"--oversample", "3"}},
+      {"--input-peak of 0 V", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "0V"}, {"--input-peak", "above 0 V"}},
+      {"--input-peak that is not a level", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "hot"}, {"--input-peak: cannot read 'hot' as a level"}},
+      {"--normalize above full scale", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--normalize", "3dBFS"}, {"--normalize", "above full scale"}},
+      {"--normalize that is not a level", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--normalize", "loud"}, {"--normalize 'loud'", "dBFS"}},
+      {"--output-peak with several stages", {"render", "@stage.toml", "@second.toml", "--input", "@rec48.wav", "--output", "@cmp", "--output-peak", "1V"}, {"--output-peak fixes the scale of one output"}},
+      {"several stages into a file", {"render", "@stage.toml", "@other/stage.toml", "--input", "@rec48.wav", "--output", "@made/taken.wav", "--force"}, {"@made/taken.wav", "is a file", "folder"}},
+      {"several stages into a folder whose parent does not exist", {"render", "@stage.toml", "@second.toml", "--input", "@rec48.wav", "--output", "@nofolder/cmp"}, {"@nofolder/cmp", "does not exist"}},
+      {"two stage files of the same name", {"render", "@stage.toml", "@other/stage.toml", "--input", "@rec48.wav", "--output", "@cmp"}, {"two outputs would both be written", "stage.wav"}},
+      {"a stage file with a misspelt key", {"render", "@typo.toml", "--input", "@rec48.wav", "--output", "@o.wav"}, {"@typo.toml:13:1:", "unknown key 'resistr'"}},
   };
 
-  REQUIRE(rows.size() >= 100);
+  REQUIRE(rows.size() >= 180);
   const bool permissions_hold = ::geteuid() != 0;
   for (const row& r : rows) {
     std::vector<std::string> args;

@@ -10,18 +10,11 @@
 #include <nlohmann/json.hpp>
 
 #include "cli/app.hpp"
+#include "support/cli_runner.hpp"
 
 namespace {
-struct result {
-  int status;
-  std::string out, err;
-};
-
-result run(std::vector<std::string> args) {
-  std::ostringstream out, err;
-  const int status = pinchoff::cli::run(args, out, err);
-  return {status, out.str(), err.str()};
-}
+using result = pinchoff::testing::cli_result;
+constexpr auto run = pinchoff::testing::run_cli;
 
 std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
 

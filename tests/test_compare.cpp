@@ -21,6 +21,7 @@
 #include "model/compare.hpp"
 #include "model/stage_file.hpp"
 #include "model/sweep.hpp"
+#include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 #include "support/stages.hpp"
 
@@ -28,15 +29,8 @@ using namespace pinchoff;
 using pinchoff::testing::scratch_dir;
 
 namespace {
-struct result {
-  int status;
-  std::string out, err;
-};
-result run(std::vector<std::string> args) {
-  std::ostringstream out, err;
-  const int status = cli::run(args, out, err);
-  return {status, out.str(), err.str()};
-}
+using result = pinchoff::testing::cli_result;
+constexpr auto run = pinchoff::testing::run_cli;
 nlohmann::json run_json(const std::vector<std::string>& args) {
   const result r = run(args);
   INFO(r.err);

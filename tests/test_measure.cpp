@@ -15,21 +15,15 @@
 
 #include "cli/app.hpp"
 #include "dsp/sound_file.hpp"
+#include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
 using namespace pinchoff::dsp;
 using pinchoff::testing::scratch_dir;
 
 namespace {
-struct result {
-  int status;
-  std::string out, err;
-};
-result run(std::vector<std::string> args) {
-  std::ostringstream out, err;
-  const int status = pinchoff::cli::run(args, out, err);
-  return {status, out.str(), err.str()};
-}
+using result = pinchoff::testing::cli_result;
+constexpr auto run = pinchoff::testing::run_cli;
 
 struct line {
   double freq_hz, amplitude, phase_rad;

@@ -194,7 +194,7 @@ TEST_CASE("every plot kind renders with rsvg-convert at its stated size and name
       CHECK(r.svg.find(s) != std::string::npos);
     }
     const fs::path svg = dir.path / r.file;
-    write_svg_file(svg, r.svg);
+    write_svg_file(svg, r.svg, {});
     CHECK_FALSE(fs::exists(dir.path / ("." + r.file + ".partial")));
     const fs::path png = dir.path / (r.file + ".png");
     REQUIRE(render_png(svg, png) == 0);
@@ -231,7 +231,7 @@ TEST_CASE("plots escape text, check their inputs, and refuse a missing folder") 
 
   const fs::path missing = fs::temp_directory_path() / "pinchoff-no-such-folder" / "plot.svg";
   try {
-    write_svg_file(missing, svg);
+    write_svg_file(missing, svg, {});
     FAIL("write_svg_file accepted a missing folder");
   } catch (const pinchoff::io_error& e) {
     CHECK(std::string(e.what()).find("does not exist") != std::string::npos);

@@ -2,11 +2,16 @@
 // holds the requested rate, length, frequency and level; steps change without clicks.
 #include <doctest/doctest.h>
 
+#include <signal.h>
+#include <sys/wait.h>
+
 #include <algorithm>
+#include <chrono>
 #include <cmath>
 #include <numbers>
 #include <sstream>
 #include <string>
+#include <thread>
 #include <vector>
 
 #include <nlohmann/json.hpp>
@@ -16,21 +21,15 @@
 #include "dsp/sound_file.hpp"
 #include "dsp/tone.hpp"
 #include "dsp/windowed_analysis.hpp"
+#include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
 using namespace pinchoff::dsp;
 using pinchoff::testing::scratch_dir;
 
 namespace {
-struct result {
-  int status;
-  std::string out, err;
-};
-result run(std::vector<std::string> args) {
-  std::ostringstream out, err;
-  const int status = pinchoff::cli::run(args, out, err);
-  return {status, out.str(), err.str()};
-}
+using result = pinchoff::testing::cli_result;
+constexpr auto run = pinchoff::testing::run_cli;
 }  // namespace
 
 TEST_CASE("a level staircase covers the range in whole steps") {
@@ -183,4 +182,35 @@ TEST_CASE("tone refuses what it cannot write and leaves no file") {
   }
   CHECK(dir.entries() == 1);  // only the first file
   CHECK(run({"tone", "--force", existing, "--seconds", "1"}).status == 0);
+}
+
+TEST_CASE("a tone stopped by Ctrl-C or SIGTERM exits 128 + the signal and leaves no file") {
+  // common practice: shells report a process ended by signal N as status 128 + N; an
+  // interrupted writer must not leave a half-written file or its temporary behind.
+  struct row {
+    const char* given;
+    int signo;
+    int status;
+  };
+  const row rows[] = {{"Ctrl-C (SIGINT)", SIGINT, 130}, {"SIGTERM", SIGTERM, 143}};
+  for (const row& r : rows) {
+    CAPTURE(std::string(r.given));
+    scratch_dir dir;
+    // 50 minutes of 24-bit stereo (860 MB): far longer than the test waits.
+    const pid_t pid = pinchoff::testing::spawn_cli(
+        {"tone", "--seconds", "3000", "--channels", "2", "--format", "wav24", dir.file("long.wav")});
+    REQUIRE(pid > 0);
+    // Wait for the writer's temporary file to appear, then signal.
+    const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(10);
+    while (std::chrono::steady_clock::now() < deadline && dir.entries() == 0)
+      std::this_thread::sleep_for(std::chrono::milliseconds(2));
+    REQUIRE(dir.entries() == 1);
+    std::this_thread::sleep_for(std::chrono::milliseconds(50));
+    REQUIRE(::kill(pid, r.signo) == 0);
+    int status = 0;
+    REQUIRE(::waitpid(pid, &status, 0) == pid);
+    REQUIRE(WIFEXITED(status));
+    CHECK(WEXITSTATUS(status) == r.status);
+    CHECK(dir.entries() == 0);  // no output, no temporary
+  }
 }

@@ -1,0 +1,54 @@
+#include "cli/interrupt.hpp"
+
+#include <signal.h>
+
+#include "dsp/error.hpp"
+
+namespace pinchoff::cli {
+namespace {
+
+// Set by the handlers. A signal handler can reach nothing but objects of static storage
+// duration, so these are the program's only mutable statics; lock-free atomics are safe to
+// store from a handler.
+std::atomic<bool> stop_requested{false};
+std::atomic<int> stop_signal{0};
+static_assert(std::atomic<bool>::is_always_lock_free && std::atomic<int>::is_always_lock_free);
+
+extern "C" void on_stop_signal(int signo) {
+  stop_signal.store(signo, std::memory_order_relaxed);
+  stop_requested.store(true, std::memory_order_relaxed);
+}
+
+constexpr int handled[] = {SIGINT, SIGTERM};
+
+}  // namespace
+
+struct interrupt_guard::saved {
+  struct sigaction previous[2] {};
+  bool installed[2]{false, false};
+};
+
+interrupt_guard::interrupt_guard() : saved_(new saved) {
+  stop_requested.store(false);
+  stop_signal.store(0);
+  struct sigaction sa {};
+  sa.sa_handler = on_stop_signal;
+  sigemptyset(&sa.sa_mask);
+  sa.sa_flags = SA_RESETHAND | SA_RESTART;
+  for (int k = 0; k < 2; ++k) saved_->installed[k] = ::sigaction(handled[k], &sa, &saved_->previous[k]) == 0;
+}
+
+interrupt_guard::~interrupt_guard() {
+  for (int k = 0; k < 2; ++k)
+    if (saved_->installed[k]) ::sigaction(handled[k], &saved_->previous[k], nullptr);
+  delete saved_;
+}
+
+const std::atomic<bool>* interrupt_guard::flag() const noexcept { return &stop_requested; }
+
+void interrupt_guard::check() const {
+  if (stop_requested.load(std::memory_order_relaxed))
+    throw interrupted("interrupted; no output written", stop_signal.load(std::memory_order_relaxed));
+}
+
+}  // namespace pinchoff::cli

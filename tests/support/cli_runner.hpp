@@ -1,0 +1,52 @@
+#pragma once
+// Running the command line from tests: in-process with an argv vector (CLI11's own testing
+// approach), or as a child process of the built binary for what only a real process shows
+// (signals and their exit status, peak memory).
+#include <fcntl.h>
+#include <spawn.h>
+#include <sys/types.h>
+#include <unistd.h>
+
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "cli/app.hpp"
+
+extern char** environ;
+
+namespace pinchoff::testing {
+
+struct cli_result {
+  int status;
+  std::string out, err;
+};
+
+/// `pinchoff ARGS...` in this process; standard output and error captured.
+inline cli_result run_cli(const std::vector<std::string>& args) {
+  std::ostringstream out, err;
+  const int status = pinchoff::cli::run(args, out, err);
+  return {status, out.str(), err.str()};
+}
+
+#ifdef PINCHOFF_BINARY
+/// `pinchoff ARGS...` as a child process (the built binary), its output sent to /dev/null.
+/// Returns the child's pid, or -1 when it could not be started.
+inline pid_t spawn_cli(const std::vector<std::string>& args) {
+  std::vector<std::string> all{PINCHOFF_BINARY};
+  all.insert(all.end(), args.begin(), args.end());
+  std::vector<char*> argv;
+  for (std::string& a : all) argv.push_back(a.data());
+  argv.push_back(nullptr);
+  posix_spawn_file_actions_t fa;
+  posix_spawn_file_actions_init(&fa);
+  posix_spawn_file_actions_addopen(&fa, 1, "/dev/null", O_WRONLY, 0);
+  posix_spawn_file_actions_addopen(&fa, 2, "/dev/null", O_WRONLY, 0);
+  pid_t pid = -1;
+  const int e = posix_spawn(&pid, argv[0], &fa, nullptr, argv.data(), environ);
+  posix_spawn_file_actions_destroy(&fa);
+  return e == 0 ? pid : -1;
+}
+#endif
+
+}  // namespace pinchoff::testing
