@@ -45,32 +45,10 @@ void register_fit(CLI::App& app, std::vector<command>& commands) {
       "VGS - VP). The result ends with a [jfet] block to paste into a stage file.");
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
                         const dsp::csv_table t = dsp::read_csv_file(opt->path);
-                        const int c_vgs = t.column("vgs_v"), c_rs = t.column("rs_ohm"), c_id = t.column("id_a"),
-                                  c_vds = t.column("vds_v");
-                        if (c_id < 0) throw input_error(t.source + ": missing column 'id_a' (the drain current, A)");
-                        if ((c_vgs < 0) == (c_rs < 0))
-                          throw input_error(t.source + ": give exactly one of the columns 'vgs_v' (gate sweep) or "
-                                                       "'rs_ohm' (self-bias jig)");
-                        for (const std::string& c : t.columns)
-                          if (c != "vgs_v" && c != "rs_ohm" && c != "id_a" && c != "vds_v")
-                            throw input_error(t.source + ": unknown column '" + c + "' (expected vgs_v or rs_ohm, id_a, vds_v)");
-                        const model::reading_kind kind =
-                            c_vgs >= 0 ? model::reading_kind::gate_sweep : model::reading_kind::self_bias_jig;
-                        std::vector<model::bench_reading> rd;
-                        for (std::size_t k = 0; k < t.rows.size(); ++k) {
-                          model::bench_reading r;
-                          r.x = t.rows[k][static_cast<std::size_t>(c_vgs >= 0 ? c_vgs : c_rs)];
-                          r.id_a = t.rows[k][static_cast<std::size_t>(c_id)];
-                          if (c_vds >= 0) {
-                            r.vds_v = t.rows[k][static_cast<std::size_t>(c_vds)];
-                            r.has_vds = true;
-                          }
-                          r.line = t.line_of_row[k];
-                          rd.push_back(r);
-                        }
+                        const model::bench_table bt = model::readings_from_table(t);
                         model::fit_result f;
                         try {
-                          f = model::fit_square_law(kind, rd);
+                          f = model::fit_square_law(bt.kind, bt.readings);
                         } catch (const input_error& e) {
                           throw input_error(t.source + ": " + e.what());
                         }
@@ -98,7 +76,7 @@ void register_fit(CLI::App& app, std::vector<command>& commands) {
                           return;
                         }
                         out << "fit of " << t.source << " (" << t.rows.size() << " readings, "
-                            << (kind == model::reading_kind::gate_sweep ? "gate sweep" : "self-bias jig") << ", "
+                            << (bt.kind == model::reading_kind::gate_sweep ? "gate sweep" : "self-bias jig") << ", "
                             << (f.p_channel ? "p" : "n") << "-channel)\n\n";
                         text_table p({align::left, align::right, align::left});
                         const bool exact = std::isnan(f.idss_se_a);

@@ -266,4 +266,28 @@ std::string jfet_block(const fit_result& r) {
   return os.str();
 }
 
+bench_table readings_from_table(const dsp::csv_table& t) {
+  const int c_vgs = t.column("vgs_v"), c_rs = t.column("rs_ohm"), c_id = t.column("id_a"), c_vds = t.column("vds_v");
+  if (c_id < 0) throw input_error(t.source + ": missing column 'id_a' (the drain current, A)");
+  if ((c_vgs < 0) == (c_rs < 0))
+    throw input_error(t.source + ": give exactly one of the columns 'vgs_v' (gate sweep) or 'rs_ohm' (self-bias jig)");
+  for (const std::string& c : t.columns)
+    if (c != "vgs_v" && c != "rs_ohm" && c != "id_a" && c != "vds_v")
+      throw input_error(t.source + ": unknown column '" + c + "' (expected vgs_v or rs_ohm, id_a, vds_v)");
+  bench_table b;
+  b.kind = c_vgs >= 0 ? reading_kind::gate_sweep : reading_kind::self_bias_jig;
+  for (std::size_t k = 0; k < t.rows.size(); ++k) {
+    bench_reading r;
+    r.x = t.rows[k][static_cast<std::size_t>(c_vgs >= 0 ? c_vgs : c_rs)];
+    r.id_a = t.rows[k][static_cast<std::size_t>(c_id)];
+    if (c_vds >= 0) {
+      r.vds_v = t.rows[k][static_cast<std::size_t>(c_vds)];
+      r.has_vds = true;
+    }
+    r.line = t.line_of_row[k];
+    b.readings.push_back(r);
+  }
+  return b;
+}
+
 }  // namespace pinchoff::model

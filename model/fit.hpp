@@ -14,6 +14,8 @@
 #include <string>
 #include <vector>
 
+#include "dsp/csv.hpp"
+
 namespace pinchoff::model {
 
 enum class reading_kind { gate_sweep, self_bias_jig };
@@ -50,6 +52,15 @@ struct fit_result {
 /// a current is not positive (or of mixed sign), or the readings cannot come from a
 /// square-law part (the current does not fall as the gate goes more negative).
 fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& readings);
+
+/// The readings of a bench table (dsp::read_csv_file / parse_csv): columns id_a, exactly one
+/// of vgs_v (gate sweep) or rs_ohm (self-bias jig), and optionally vds_v. Throws input_error,
+/// starting with the table's source, for a missing, doubled-up or unknown column.
+struct bench_table {
+  reading_kind kind{reading_kind::gate_sweep};
+  std::vector<bench_reading> readings;
+};
+bench_table readings_from_table(const dsp::csv_table& t);
 
 /// A [jfet] block to paste into a stage file.
 std::string jfet_block(const fit_result& r);

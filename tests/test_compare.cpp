@@ -22,6 +22,7 @@
 #include "model/stage_file.hpp"
 #include "model/sweep.hpp"
 #include "support/cli_runner.hpp"
+#include "support/png_size.hpp"
 #include "support/scratch_dir.hpp"
 #include "support/stages.hpp"
 
@@ -51,27 +52,8 @@ const char* square_law_text =
 constexpr double square_law_gain = 2 * 4e-3 / 2.0 * 2000.0;  // gm Rd = 8 V/V
 constexpr double square_law_vov = 2.0;                        // VGSQ - VP
 
-struct png_size {
-  std::uint32_t width{}, height{};
-  bool is_png{false};
-};
-// PNG specification (ISO/IEC 15948, 11.2.2): the IHDR chunk right after the 8-byte
-// signature holds width and height as big-endian 32-bit integers at bytes 16-23.
-png_size read_png_size(const std::string& p) {
-  std::ifstream in(p, std::ios::binary);
-  unsigned char b[24] = {};
-  in.read(reinterpret_cast<char*>(b), sizeof b);
-  png_size s;
-  if (in.gcount() != 24) return s;
-  const unsigned char signature[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1a, '\n'};
-  s.is_png = std::equal(signature, signature + 8, b) && std::string(reinterpret_cast<char*>(b + 12), 4) == "IHDR";
-  auto be32 = [&](int i) {
-    return (std::uint32_t{b[i]} << 24) | (std::uint32_t{b[i + 1]} << 16) | (std::uint32_t{b[i + 2]} << 8) | b[i + 3];
-  };
-  s.width = be32(16);
-  s.height = be32(20);
-  return s;
-}
+using pinchoff::testing::png_size;
+using pinchoff::testing::read_png_size;
 }  // namespace
 
 TEST_CASE("at-output finds the drive of an ideal square-law stage: target / (gm Rd)") {

@@ -18,32 +18,15 @@
 
 #include "cli/plot.hpp"
 #include "dsp/error.hpp"
+#include "support/png_size.hpp"
 
 using namespace pinchoff::cli;
 namespace fs = std::filesystem;
 
 namespace {
 
-struct png_size {
-  std::uint32_t width{}, height{};
-  bool is_png{false};
-};
-
-png_size read_png_size(const fs::path& p) {
-  std::ifstream in(p, std::ios::binary);
-  unsigned char b[24] = {};
-  in.read(reinterpret_cast<char*>(b), sizeof b);
-  png_size s;
-  if (in.gcount() != 24) return s;
-  const unsigned char signature[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1a, '\n'};
-  s.is_png = std::equal(signature, signature + 8, b) && std::string(reinterpret_cast<char*>(b + 12), 4) == "IHDR";
-  auto be32 = [&](int i) {
-    return (std::uint32_t{b[i]} << 24) | (std::uint32_t{b[i + 1]} << 16) | (std::uint32_t{b[i + 2]} << 8) | b[i + 3];
-  };
-  s.width = be32(16);
-  s.height = be32(20);
-  return s;
-}
+using pinchoff::testing::png_size;
+using pinchoff::testing::read_png_size;
 
 // A scratch folder removed when the test ends. Set PINCHOFF_KEEP_PLOTS to keep the files.
 struct scratch_dir {

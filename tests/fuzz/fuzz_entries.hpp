@@ -174,21 +174,15 @@ inline outcome csv_fit_entry(std::string_view text) {
     for (double v : t.rows[k]) detail::require(std::isfinite(v), "a non-finite cell was accepted");
     detail::require(t.line_of_row[k] >= 1 && (k == 0 || t.line_of_row[k] > t.line_of_row[k - 1]), "line numbers out of order");
   }
-  const int c_vgs = t.column("vgs_v"), c_rs = t.column("rs_ohm"), c_id = t.column("id_a"), c_vds = t.column("vds_v");
-  if (c_id < 0 || (c_vgs < 0) == (c_rs < 0)) return outcome::accepted;
-  const model::reading_kind kind = c_vgs >= 0 ? model::reading_kind::gate_sweep : model::reading_kind::self_bias_jig;
-  std::vector<model::bench_reading> readings;
-  for (std::size_t k = 0; k < t.rows.size(); ++k) {
-    model::bench_reading r;
-    r.x = t.rows[k][static_cast<std::size_t>(c_vgs >= 0 ? c_vgs : c_rs)];
-    r.id_a = t.rows[k][static_cast<std::size_t>(c_id)];
-    if (c_vds >= 0) {
-      r.vds_v = t.rows[k][static_cast<std::size_t>(c_vds)];
-      r.has_vds = true;
-    }
-    r.line = t.line_of_row[k];
-    readings.push_back(r);
+  model::bench_table bt;
+  try {
+    bt = model::readings_from_table(t);
+  } catch (const input_error& e) {
+    detail::require(detail::starts_with(e.what(), "fuzz.csv"), std::string("column message does not say where: ") + e.what());
+    return outcome::accepted;  // a well-formed table that is not a set of bench readings
   }
+  const model::reading_kind kind = bt.kind;
+  const std::vector<model::bench_reading>& readings = bt.readings;
   try {
     const model::fit_result f = model::fit_square_law(kind, readings);
     const std::string figures = "idss " + std::to_string(f.idss_a) + " +- " + std::to_string(f.idss_se_a) + ", vp " +
