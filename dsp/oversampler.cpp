@@ -20,8 +20,11 @@ int stage_count(int factor) {
     case 4: return 2;
     case 8: return 3;
     case 16: return 4;
+    case 32: return 5;
+    case 64: return 6;
     default:
-      throw input_error("oversampling factor " + std::to_string(factor) + " is not supported; expected 1, 2, 4, 8 or 16");
+      throw input_error("oversampling factor " + std::to_string(factor) +
+                        " is not supported; expected 1, 2, 4, 8, 16, 32 or 64");
   }
 }
 

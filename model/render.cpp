@@ -165,8 +165,8 @@ void check_job(const render_job& job) {
   if (job.stages.empty()) throw input_error("render: no stage given");
   if (!(job.input_peak_v > 0.0) || !std::isfinite(job.input_peak_v))
     throw input_error("--input-peak must be a level above 0 V, got " + dsp::format_number(job.input_peak_v));
-  if (job.oversample != 1 && job.oversample != 2 && job.oversample != 4 && job.oversample != 8 && job.oversample != 16)
-    throw input_error("--oversample must be 1, 2, 4, 8 or 16, got " + std::to_string(job.oversample));
+  if (job.oversample < 0 || job.oversample > 64 || (job.oversample & (job.oversample - 1)) != 0)
+    throw input_error("--oversample must be 1, 2, 4, 8, 16, 32, 64 or auto, got " + std::to_string(job.oversample));
   if (job.level == output_level::fixed && !(job.full_scale_v > 0.0 && std::isfinite(job.full_scale_v)))
     throw input_error("--output-peak must be a level above 0 V, got " + dsp::format_number(job.full_scale_v));
   if (!(job.peak_dbfs <= 0.0) || !std::isfinite(job.peak_dbfs) || job.peak_dbfs < -100.0)
@@ -204,7 +204,15 @@ render_report render(const render_job& job, const render_control& control) {
   rep.input = info;
   rep.format = job.format ? *job.format : dsp::nearest_sample_format(info);
   rep.oversample = job.oversample;
-  rep.engine_rate_hz = info.rate_hz * job.oversample;
+  if (job.oversample == 0) {
+    rep.oversample_chosen = true;
+    rep.survey = survey_input(job.input);
+    std::vector<stage_ref> refs;
+    for (const render_stage& st : job.stages) refs.push_back({&st.net, &st.op});
+    rep.choice = choose_oversampling(refs, rep.survey.sample_peak * job.input_peak_v, rep.survey.edge_hz, info.rate_hz);
+    rep.oversample = rep.choice.factor;
+  }
+  rep.engine_rate_hz = info.rate_hz * rep.oversample;
 
   const auto ch = static_cast<std::size_t>(info.channels);
   const std::size_t n_stages = job.stages.size();
@@ -229,7 +237,7 @@ render_report render(const render_job& job, const render_control& control) {
   units.reserve(n_units);
   for (const render_stage& st : job.stages)
     for (std::size_t c = 0; c < ch; ++c)
-      units.emplace_back(st.net, st.op, job.oversample, info.rate_hz, block, job.engine);
+      units.emplace_back(st.net, st.op, rep.oversample, info.rate_hz, block, job.engine);
   rep.latency_samples = units.front().latency_samples();
   const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
   rep.threads = static_cast<int>(std::min<std::size_t>(job.threads > 0 ? static_cast<std::size_t>(job.threads) : cores,

@@ -45,6 +45,7 @@
 #include "model/dk_engine.hpp"
 #include "model/network.hpp"
 #include "model/operating_point.hpp"
+#include "model/oversampling_choice.hpp"
 
 namespace pinchoff::model {
 
@@ -54,7 +55,7 @@ namespace pinchoff::model {
 /// input was split into blocks.
 class channel_renderer {
  public:
-  /// factor 1, 2, 4, 8 or 16; base_rate_hz as dsp::oversampler takes it; block_samples >= 1
+  /// factor 1, 2, 4, 8, 16, 32 or 64; base_rate_hz as dsp::oversampler takes it; block_samples >= 1
   /// is the size of the internal buffers (any input length is accepted).
   channel_renderer(const network& net, const operating_point& op, int factor, double base_rate_hz,
                    std::size_t block_samples = 8192, const dk_options& engine = {});
@@ -103,7 +104,8 @@ struct render_job {
   std::vector<render_stage> stages;                 ///< at least one
   std::optional<std::filesystem::path> dry_output;  ///< also write the input itself
   double input_peak_v{1.0};                         ///< generator volts for full scale, > 0
-  int oversample{8};                                ///< 1, 2, 4, 8, 16
+  /// 1, 2, 4, 8, 16, 32 or 64; 0: chosen from the input (model/oversampling_choice.hpp)
+  int oversample{8};
   output_level level{output_level::normalize};
   double peak_dbfs{-1.0};                           ///< normalize / match: peak ceiling, <= 0
   double full_scale_v{1.0};                         ///< fixed: volts at the load for 0 dBFS, > 0
@@ -146,7 +148,10 @@ struct output_report {
 struct render_report {
   dsp::sound_info input;
   dsp::sample_format format{};
-  int oversample{1};
+  int oversample{1};             ///< the factor run
+  bool oversample_chosen{false}; ///< job.oversample was 0: `survey` and `choice` hold why
+  input_survey survey;
+  oversampling_choice choice;
   double engine_rate_hz{0};
   int latency_samples{0};        ///< the round trip compensated, at the file's rate
   int threads{1};
