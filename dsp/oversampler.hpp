@@ -108,8 +108,7 @@ class oversampler {
   std::vector<halfband_design> designs_;
   std::vector<halfband_interpolator> up_;    // stage 1 first
   std::vector<halfband_decimator> down_;     // stage 1 first (run last)
-  std::vector<double> pad_line_;             // downsampler's padding delay
-  std::size_t pad_pos_{0};
+  std::vector<double> pad_line_;             // downsampler's padding delay: the last samples held
   std::vector<double> scratch_a_;
   std::vector<double> scratch_b_;
   double up_latency_{0.0};
