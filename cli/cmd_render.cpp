@@ -174,7 +174,7 @@ void write_text(const model::render_report& r, const render_options& o, const st
       << volts_text(dsp::parse_level_vpk(o.input_peak)) << " peak at the generator\n";
   out << "  engine  " << r.oversample << "x oversampling (" << format_si(r.engine_rate_hz, "Hz", 3) << "), "
       << r.latency_samples << " samples of filter latency compensated, " << r.threads
-      << (r.threads == 1 ? " thread" : " threads") << '\n';
+      << (r.threads == 1 ? " engine thread" : " engine threads") << (r.pipelined ? " and one for files" : "") << '\n';
   if (r.oversample_chosen) {
     const model::oversampling_choice& c = r.choice;
     if (c.probes.empty()) {
@@ -297,6 +297,7 @@ void write_json(const model::render_report& r, const render_options& o, std::ost
                          {"engine_rate_hz", r.engine_rate_hz},
                          {"latency_samples", r.latency_samples},
                          {"threads", r.threads},
+                         {"files_beside", r.pipelined},
                          {"level", !o.output_peak.empty() ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
                          {"target_lufs", r.outputs.size() > 1 ? number_or_null(r.target_lufs) : nlohmann::json(nullptr)},
                          {"outputs", outputs},
@@ -410,7 +411,8 @@ void register_render(CLI::App& app, std::vector<command>& commands) {
   sub->add_option("--format", opt->format,
                   "wav16, wav24, float (32-bit float WAV) or flac (24-bit); default: as the input")
       ->type_name("FORMAT");
-  sub->add_option("--threads", opt->threads, "Threads (0: one per core); results do not depend on it")
+  sub->add_option("--threads", opt->threads, "Threads (0: one per core): engines on up to one each per channel and stage, and from 2 on, one more "
+                  "meters and writes beside them; results do not depend on it")
       ->capture_default_str()
       ->check(CLI::Range(0, 256));
   sub->add_flag("--dry", opt->dry, "Also write the input itself, matched in loudness, to compare against");

@@ -13,7 +13,9 @@
 //
 // Streaming: blocks of block_frames frames; memory stays flat whatever the file length.
 // Work units (stage, channel) run in parallel threads, each unit always in one thread with
-// its own state, so the result does not depend on the number of threads.
+// its own state, so the result does not depend on the number of threads. With more than one
+// thread allowed, the calling thread interleaves, meters and spools block i - 1 while the
+// engines render block i (so a mono render uses a second core for that work too).
 //
 // Output level (a file's full scale, 0 dBFS, is `1 / scale` volts at the load):
 // - normalise (the default): the peak of every output lands at `peak_dbfs`. It needs the
@@ -112,7 +114,9 @@ struct render_job {
   bool match_loudness{false};                       ///< several outputs: same integrated loudness
   std::optional<dsp::sample_format> format;         ///< default: nearest to the input's
   bool overwrite{false};
-  int threads{0};                                   ///< 0: one per core, at most one per unit
+  /// 0: one per core. Engine threads are at most one per unit; with 2 or more the calling
+  /// thread works beside them (see the file comment); 1 runs everything on the caller.
+  int threads{0};
   std::size_t block_frames{8192};
   dk_options engine;
 };
@@ -154,7 +158,8 @@ struct render_report {
   oversampling_choice choice;
   double engine_rate_hz{0};
   int latency_samples{0};        ///< the round trip compensated, at the file's rate
-  int threads{1};
+  int threads{1};                ///< engine threads (at most one per unit)
+  bool pipelined{false};         ///< the calling thread metered and stored beside them
   double target_lufs{0};         ///< match_loudness: the common loudness
   std::vector<output_report> outputs;  ///< the stages in order, then dry
   double seconds{0};             ///< wall time

@@ -248,6 +248,19 @@ TEST_CASE("the same render on one or two threads writes the same file") {
                 .status == 0);
   const audio a = read_audio(dir.path / "t1.wav"), b = read_audio(dir.path / "t2.wav");
   CHECK(a.x == b.x);
+  // Mono: one thread does everything; with two or three, the engine runs on its own thread
+  // while the calling one meters and writes the previous block. Same bytes.
+  write_audio(dir.path / "mono.wav", 48000.0, 1, dsp::sample_format::wav_float, m);
+  std::vector<std::vector<double>> got;
+  for (const char* t : {"1", "2", "3"}) {
+    const result r = run({"render", preset("bass-booster-9v.toml"), "--input", dir.file("mono.wav"), "--output",
+                          dir.file(std::string("m") + t + ".wav"), "--threads", t, "--json"});
+    REQUIRE(r.status == 0);
+    CHECK(nlohmann::json::parse(r.out)["files_beside"].get<bool>() == (std::string(t) != "1"));
+    got.push_back(read_audio(dir.path / (std::string("m") + t + ".wav")).x);
+  }
+  CHECK(got[0] == got[1]);
+  CHECK(got[0] == got[2]);
 }
 
 TEST_CASE("several stages come out at the same integrated loudness, the dry input too") {
