@@ -93,12 +93,13 @@ class surveyor {
 
 }  // namespace
 
-input_survey survey_input(const std::filesystem::path& path) {
+input_survey survey_input(const std::filesystem::path& path, const std::atomic<bool>* stop) {
   dsp::sound_reader reader = dsp::sound_reader::open(path);
   const dsp::sound_info info = reader.info();
   surveyor s(info.channels, info.rate_hz);
   std::vector<double> block(survey_block * static_cast<std::size_t>(info.channels));
   for (;;) {
+    if (stop && stop->load(std::memory_order_relaxed)) throw interrupted("interrupted; no output written");
     const std::size_t n = reader.read(block);
     if (n == 0) break;
     s.add(std::span<const double>(block).first(n * static_cast<std::size_t>(info.channels)));

@@ -28,6 +28,7 @@
 // A sine at the input's peak and at its edge is a pessimistic stand-in for real material
 // (a recording seldom has its peak at its highest frequencies), so the choice errs toward
 // the higher rate.
+#include <atomic>
 #include <filesystem>
 #include <span>
 #include <vector>
@@ -44,8 +45,8 @@ struct input_survey {
 };
 
 /// Reads the whole file once (streaming, blocks of 4096 frames). Throws as
-/// dsp::sound_reader does.
-input_survey survey_input(const std::filesystem::path& path);
+/// dsp::sound_reader does, and pinchoff::interrupted when `stop` is set (checked every block).
+input_survey survey_input(const std::filesystem::path& path, const std::atomic<bool>* stop = nullptr);
 
 /// The same for interleaved samples in memory.
 input_survey survey_samples(std::span<const double> interleaved, int channels, double rate_hz);

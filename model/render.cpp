@@ -233,7 +233,7 @@ render_report render(const render_job& job, const render_control& control) {
   rep.oversample = job.oversample;
   if (job.oversample == 0) {
     rep.oversample_chosen = true;
-    rep.survey = survey_input(job.input);
+    rep.survey = survey_input(job.input, control.stop);
     std::vector<stage_ref> refs;
     for (const render_stage& st : job.stages) refs.push_back({&st.net, &st.op});
     rep.choice = choose_oversampling(refs, rep.survey.sample_peak * job.input_peak_v, rep.survey.edge_hz, info.rate_hz);
