@@ -292,7 +292,9 @@ render_report render(const render_job& job, const render_control& control) {
   // Progress: pass 1 costs a frame per unit-frame of engine work; a pass-2 frame of one
   // output (read, scale, write) is far cheaper (about 1/20 of an 8x engine frame).
   const double total_frames = static_cast<double>(info.frames);
-  const double pass2_weight = two_pass ? 0.05 * static_cast<double>(n_outputs) / static_cast<double>(n_units) : 0.0;
+  // The engine's share scales with the factor; pass 2 does not.
+  const double pass2_weight =
+      two_pass ? 0.05 * (8.0 / rep.oversample) * static_cast<double>(n_outputs) / static_cast<double>(n_units) : 0.0;
   const double total_work = total_frames * (1.0 + pass2_weight);
   auto report_progress = [&](double work_done, double frames_rendered) {
     if (!control.progress) return;
