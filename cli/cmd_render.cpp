@@ -41,7 +41,7 @@ struct render_options {
   std::string input_peak{"1V"};
   std::string output_peak;
   std::string normalize{"-1dBFS"};
-  int oversample{8};
+  std::string oversample{"auto"};
   std::string format;
   int threads{0};
   bool dry{false}, force{false}, quiet{false}, json{false};
@@ -142,7 +142,20 @@ void write_text(const model::render_report& r, const render_options& o, const st
       << volts_text(dsp::parse_level_vpk(o.input_peak)) << " peak at the generator\n";
   out << "  engine  " << r.oversample << "x oversampling (" << format_si(r.engine_rate_hz, "Hz", 3) << "), "
       << r.latency_samples << " samples of filter latency compensated, " << r.threads
-      << (r.threads == 1 ? " thread" : " threads") << '\n';
+      << (r.threads == 1 ? " engine thread" : " engine threads") << (r.pipelined ? " and one for files" : "") << '\n';
+  if (r.oversample_chosen) {
+    const model::oversampling_choice& c = r.choice;
+    if (c.probes.empty()) {
+      out << "  rate    auto: " << r.oversample << "x (the input is silent)\n";
+    } else {
+      out << "  rate    auto: " << r.oversample << "x, the lowest at which a " << format_si(c.probe_hz, "Hz", 3)
+          << " sine at " << volts_text(c.probe_vpk) << " peak (the input's peak\n"
+          << "          level and 99 % power edge) folds below " << format_number(c.target_dbc, 3) << " dBc:";
+      for (const model::oversampling_probe& p : c.probes)
+        out << ' ' << p.factor << "x " << format_number(p.alias_dbc, 3) << (&p == &c.probes.back() ? " dBc" : ",");
+      out << (c.target_met ? "" : " (64x is the highest offered)") << '\n';
+    }
+  }
   const std::string ceiling = db_text(parse_dbfs(o.normalize, "--normalize"), "dBFS");
   if (!o.output_peak.empty())
     out << "  level   fixed: 0 dBFS = " << volts_text(1.0 / r.outputs[0].scale) << " peak at the load\n";
@@ -184,7 +197,7 @@ void write_text(const model::render_report& r, const render_options& o, const st
   for (const model::output_report& x : r.outputs) {
     if (x.engine.failed > 0)
       note(x.path.string() + ": " + std::to_string(x.engine.failed) + " of " + std::to_string(x.engine.samples) +
-           " engine samples did not converge (each held its previous solution); try --oversample 16");
+           " engine samples did not converge (each held its previous solution); try a higher --oversample");
     if (x.clipped_samples > 0)
       note(x.path.string() + ": " + std::to_string(x.clipped_samples) + " samples beyond full scale" +
            (dsp::quantisation_bits(r.format) > 0 ? " were clipped" : " (kept in the float file; a player will clip them)") +
@@ -201,6 +214,20 @@ void write_text(const model::render_report& r, const render_options& o, const st
 
 nlohmann::json level_json(double ratio) {
   return ratio > 0.0 ? nlohmann::json(dsp::db_from_ratio(ratio)) : nlohmann::json(nullptr);
+}
+
+// null for an explicit --oversample; otherwise the survey and the probes behind the choice.
+nlohmann::json choice_json(const model::render_report& r) {
+  if (!r.oversample_chosen) return nullptr;
+  nlohmann::json probes = nlohmann::json::array();
+  for (const model::oversampling_probe& p : r.choice.probes) probes.push_back({{"factor", p.factor}, {"alias_dbc", p.alias_dbc}});
+  return {{"input_sample_peak", r.survey.sample_peak},
+          {"input_edge_hz", r.survey.edge_hz},
+          {"probe_hz", r.choice.probe_hz},
+          {"probe_vpk", r.choice.probe_vpk},
+          {"target_dbc", r.choice.target_dbc},
+          {"target_met", r.choice.target_met},
+          {"probes", probes}};
 }
 
 void write_json(const model::render_report& r, const render_options& o, std::ostream& out) {
@@ -234,9 +261,11 @@ void write_json(const model::render_report& r, const render_options& o, std::ost
                            {"full_scale_vpk", dsp::parse_level_vpk(o.input_peak)}}},
                          {"format", std::string(dsp::sample_format_name(r.format))},
                          {"oversampling", r.oversample},
+                         {"oversampling_choice", choice_json(r)},
                          {"engine_rate_hz", r.engine_rate_hz},
                          {"latency_samples", r.latency_samples},
                          {"threads", r.threads},
+                         {"files_beside", r.pipelined},
                          {"level", !o.output_peak.empty() ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
                          {"target_lufs", r.outputs.size() > 1 ? number_or_null(r.target_lufs) : nlohmann::json(nullptr)},
                          {"outputs", outputs},
@@ -249,7 +278,7 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
   model::render_job job;
   job.input = o.input;
   job.input_peak_v = option_level_vpk(o.input_peak, "--input-peak");
-  job.oversample = o.oversample;
+  job.oversample = o.oversample == "auto" ? 0 : std::stoi(o.oversample);
   job.overwrite = o.force;
   job.threads = o.threads;
   if (!o.format.empty()) job.format = dsp::parse_sample_format(o.format);
@@ -342,13 +371,16 @@ void register_render(CLI::App& app, std::vector<command>& commands) {
                    ->type_name("dBFS")
                    ->capture_default_str();
   fixed->excludes(norm);
-  sub->add_option("--oversample", opt->oversample, "Engine oversampling factor: 1, 2, 4, 8 or 16")
+  sub->add_option("--oversample", opt->oversample,
+                  "Engine oversampling factor: 1, 2, 4, 8, 16, 32 or 64, or auto (8x, raised for inputs that would "
+                  "alias when clipped; see below)")
       ->capture_default_str()
-      ->check(CLI::IsMember({1, 2, 4, 8, 16}));
+      ->check(CLI::IsMember({"auto", "1", "2", "4", "8", "16", "32", "64"}));
   sub->add_option("--format", opt->format,
                   "wav16, wav24, float (32-bit float WAV) or flac (24-bit); default: as the input")
       ->type_name("FORMAT");
-  sub->add_option("--threads", opt->threads, "Threads (0: one per core); results do not depend on it")
+  sub->add_option("--threads", opt->threads, "Threads (0: one per core): engines on up to one each per channel and stage, and from 2 on, one more "
+                  "meters and writes beside them; results do not depend on it")
       ->capture_default_str()
       ->check(CLI::Range(0, 256));
   sub->add_flag("--dry", opt->dry, "Also write the input itself, matched in loudness, to compare against");
@@ -370,6 +402,13 @@ void register_render(CLI::App& app, std::vector<command>& commands) {
       "channels and sample format (unless --format), and is aligned with it sample for sample.\n"
       "Nothing is written until the output is complete: an existing file is kept (unless\n"
       "--force), and Ctrl-C leaves no file behind (exit status 130).\n"
+      "\n"
+      "Oversampling: a stage clipped hard by bright material makes harmonics far above the\n"
+      "audio band, and the engine's sampling folds them back into it; no filter after the\n"
+      "engine can remove them. --oversample auto (the default) surveys the input (its peak and\n"
+      "the frequency below which 99 % of its power lies), simulates a sine at that level and\n"
+      "frequency at 8x, 16x, 32x and 64x, and runs at the lowest factor whose folded products\n"
+      "stay below -80 dBc, printing the figures. A number runs at exactly that factor.\n"
       "\n"
       "Examples:\n"
       "  pinchoff render presets/bass-booster-9v.toml --input samples/pluck-phrase-48k.wav --output boosted.wav\n"

@@ -76,7 +76,6 @@ class halfband_interpolator {
  private:
   std::vector<double> taps_;  // 2 g_i
   std::vector<double> line_;  // 2K-1 inputs of history, then the piece being processed
-  std::vector<double> acc_;   // even-phase sums of the piece
   std::size_t half_;          // K
 };
 
@@ -95,7 +94,6 @@ class halfband_decimator {
   std::vector<double> taps_;  // g_i
   std::vector<double> even_;  // 2K-1 even-indexed inputs of history, then the piece
   std::vector<double> odd_;   // K odd-indexed inputs of history, then the piece
-  std::vector<double> acc_;   // sums of the piece
   std::size_t half_;          // K
 };
 

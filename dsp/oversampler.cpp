@@ -20,8 +20,11 @@ int stage_count(int factor) {
     case 4: return 2;
     case 8: return 3;
     case 16: return 4;
+    case 32: return 5;
+    case 64: return 6;
     default:
-      throw input_error("oversampling factor " + std::to_string(factor) + " is not supported; expected 1, 2, 4, 8 or 16");
+      throw input_error("oversampling factor " + std::to_string(factor) +
+                        " is not supported; expected 1, 2, 4, 8, 16, 32 or 64");
   }
 }
 
@@ -71,7 +74,6 @@ void oversampler::reset() noexcept {
   for (halfband_interpolator& u : up_) u.reset();
   for (halfband_decimator& d : down_) d.reset();
   std::fill(pad_line_.begin(), pad_line_.end(), 0.0);
-  pad_pos_ = 0;
 }
 
 void oversampler::upsample(std::span<const double> in, std::span<double> out) {
@@ -113,12 +115,12 @@ void oversampler::downsample(std::span<const double> in, std::span<double> out) 
     std::size_t len = n * f;
     std::span<const double> src = in.subspan(start * f, len);
     if (pad > 0) {
+      // A delay of pad < factor <= len samples: the held samples, then all but the last pad
+      // of this chunk, whose last pad are held for the next.
       std::span<double> delayed = std::span<double>(scratch_b_).first(len);
-      for (std::size_t j = 0; j < len; ++j) {
-        delayed[j] = pad_line_[pad_pos_];
-        pad_line_[pad_pos_] = src[j];
-        pad_pos_ = (pad_pos_ + 1 == pad) ? 0 : pad_pos_ + 1;
-      }
+      std::copy(pad_line_.begin(), pad_line_.end(), delayed.begin());
+      std::copy(src.begin(), src.end() - static_cast<std::ptrdiff_t>(pad), delayed.begin() + static_cast<std::ptrdiff_t>(pad));
+      std::copy(src.end() - static_cast<std::ptrdiff_t>(pad), src.end(), pad_line_.begin());
       src = delayed;
     }
     // Highest-rate stage first; alternate buffers so a stage never reads what it writes.

@@ -459,7 +459,8 @@ double sound_writer::uniform() noexcept {
   z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
   z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
   z ^= z >> 31;
-  return std::ldexp(static_cast<double>(z >> 11), -53) - 0.5;
+  // 53 random bits times 2^-53: exact, as ldexp would be, without the library call.
+  return static_cast<double>(z >> 11) * 0x1p-53 - 0.5;
 }
 
 void sound_writer::write(std::span<const double> x) {

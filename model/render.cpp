@@ -142,6 +142,33 @@ void run_parallel(std::size_t units, int threads, Work&& work) {
     if (e) std::rethrow_exception(e);
 }
 
+// Runs work(u) for u in [0, units) on `workers` new threads (unit u always on thread
+// u % workers) while the calling thread runs beside(); returns when all are done. An
+// exception from any of them is rethrown once every thread has been joined.
+template <class Work, class Beside>
+void run_beside(std::size_t units, int workers, Work&& work, Beside&& beside) {
+  const auto t = static_cast<std::size_t>(std::max(1, workers));
+  std::vector<std::exception_ptr> errors(t + 1);
+  std::vector<std::thread> pool;
+  pool.reserve(t);
+  try {
+    for (std::size_t k = 0; k < t; ++k)
+      pool.emplace_back([&, k] {
+        try {
+          for (std::size_t u = k; u < units; u += t) work(u);
+        } catch (...) {
+          errors[k] = std::current_exception();
+        }
+      });
+    beside();
+  } catch (...) {
+    errors[t] = std::current_exception();
+  }
+  for (std::thread& th : pool) th.join();
+  for (const std::exception_ptr& e : errors)
+    if (e) std::rethrow_exception(e);
+}
+
 // Scales `values` in place and counts the samples a float file keeps beyond full scale.
 long long scale_and_count(std::span<double> values, double scale) {
   long long beyond = 0;
@@ -165,8 +192,8 @@ void check_job(const render_job& job) {
   if (job.stages.empty()) throw input_error("render: no stage given");
   if (!(job.input_peak_v > 0.0) || !std::isfinite(job.input_peak_v))
     throw input_error("--input-peak must be a level above 0 V, got " + dsp::format_number(job.input_peak_v));
-  if (job.oversample != 1 && job.oversample != 2 && job.oversample != 4 && job.oversample != 8 && job.oversample != 16)
-    throw input_error("--oversample must be 1, 2, 4, 8 or 16, got " + std::to_string(job.oversample));
+  if (job.oversample < 0 || job.oversample > 64 || (job.oversample & (job.oversample - 1)) != 0)
+    throw input_error("--oversample must be 1, 2, 4, 8, 16, 32, 64 or auto, got " + std::to_string(job.oversample));
   if (job.level == output_level::fixed && !(job.full_scale_v > 0.0 && std::isfinite(job.full_scale_v)))
     throw input_error("--output-peak must be a level above 0 V, got " + dsp::format_number(job.full_scale_v));
   if (!(job.peak_dbfs <= 0.0) || !std::isfinite(job.peak_dbfs) || job.peak_dbfs < -100.0)
@@ -204,7 +231,15 @@ render_report render(const render_job& job, const render_control& control) {
   rep.input = info;
   rep.format = job.format ? *job.format : dsp::nearest_sample_format(info);
   rep.oversample = job.oversample;
-  rep.engine_rate_hz = info.rate_hz * job.oversample;
+  if (job.oversample == 0) {
+    rep.oversample_chosen = true;
+    rep.survey = survey_input(job.input, control.stop);
+    std::vector<stage_ref> refs;
+    for (const render_stage& st : job.stages) refs.push_back({&st.net, &st.op});
+    rep.choice = choose_oversampling(refs, rep.survey.sample_peak * job.input_peak_v, rep.survey.edge_hz, info.rate_hz);
+    rep.oversample = rep.choice.factor;
+  }
+  rep.engine_rate_hz = info.rate_hz * rep.oversample;
 
   const auto ch = static_cast<std::size_t>(info.channels);
   const std::size_t n_stages = job.stages.size();
@@ -229,12 +264,15 @@ render_report render(const render_job& job, const render_control& control) {
   units.reserve(n_units);
   for (const render_stage& st : job.stages)
     for (std::size_t c = 0; c < ch; ++c)
-      units.emplace_back(st.net, st.op, job.oversample, info.rate_hz, block, job.engine);
+      units.emplace_back(st.net, st.op, rep.oversample, info.rate_hz, block, job.engine);
   rep.latency_samples = units.front().latency_samples();
   const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
-  rep.threads = static_cast<int>(std::min<std::size_t>(job.threads > 0 ? static_cast<std::size_t>(job.threads) : cores,
-                                                       std::max<std::size_t>(n_units, 1)));
-
+  const std::size_t asked = job.threads > 0 ? static_cast<std::size_t>(job.threads) : cores;
+  rep.threads = static_cast<int>(std::min<std::size_t>(asked, std::max<std::size_t>(n_units, 1)));
+  // With more than one thread, the engines of block i run on their own threads while the
+  // calling thread meters and spools block i - 1 (the same work in the same order, so the
+  // files do not change).
+  rep.pipelined = asked > 1;
   std::vector<dsp::sample_spool> spools;
   if (two_pass)
     for (std::size_t s = 0; s < n_stages; ++s) spools.push_back(dsp::sample_spool::create(job.stages[s].output));
@@ -254,7 +292,9 @@ render_report render(const render_job& job, const render_control& control) {
   // Progress: pass 1 costs a frame per unit-frame of engine work; a pass-2 frame of one
   // output (read, scale, write) is far cheaper (about 1/20 of an 8x engine frame).
   const double total_frames = static_cast<double>(info.frames);
-  const double pass2_weight = two_pass ? 0.05 * static_cast<double>(n_outputs) / static_cast<double>(n_units) : 0.0;
+  // The engine's share scales with the factor; pass 2 does not.
+  const double pass2_weight =
+      two_pass ? 0.05 * (8.0 / rep.oversample) * static_cast<double>(n_outputs) / static_cast<double>(n_units) : 0.0;
   const double total_work = total_frames * (1.0 + pass2_weight);
   auto report_progress = [&](double work_done, double frames_rendered) {
     if (!control.progress) return;
@@ -270,36 +310,23 @@ render_report render(const render_job& job, const render_control& control) {
   std::vector<double> frames(block * ch);
   std::vector<std::vector<double>> in(ch, std::vector<double>(block));
   const std::size_t out_size = std::max<std::size_t>(block, static_cast<std::size_t>(rep.latency_samples));
-  std::vector<std::vector<double>> out(n_units, std::vector<double>(out_size));
-  std::vector<std::size_t> produced(n_units);
+  // Two sets of unit outputs: one being rendered while the other is consumed.
+  std::vector<std::vector<double>> out[2] = {std::vector<std::vector<double>>(n_units, std::vector<double>(out_size)),
+                                             std::vector<std::vector<double>>(rep.pipelined ? n_units : 0,
+                                                                              std::vector<double>(out_size))};
+  std::vector<std::size_t> produced[2] = {std::vector<std::size_t>(n_units), std::vector<std::size_t>(n_units)};
   std::vector<double> stage_frames(out_size * ch);
   std::vector<double> dry_frames(block * ch);
-  std::int64_t read_frames = 0;
-  bool input_done = false;
-  while (!input_done) {
-    check_stop(control);
-    const std::size_t n = reader.read(frames);
-    if (n > 0) {
-      for (std::size_t k = 0; k < n; ++k)
-        for (std::size_t c = 0; c < ch; ++c) in[c][k] = frames[k * ch + c] * job.input_peak_v;
-      run_parallel(n_units, rep.threads, [&](std::size_t u) {
-        produced[u] = units[u].process(std::span<const double>(in[u % ch]).first(n), out[u]);
-      });
-      if (job.dry_output) {
-        for (std::size_t i = 0; i < n * ch; ++i) dry_frames[i] = frames[i] * job.input_peak_v;
-        meters[n_stages].add(std::span<const double>(dry_frames).first(n * ch));
-      }
-      read_frames += static_cast<std::int64_t>(n);
-    } else {
-      run_parallel(n_units, rep.threads, [&](std::size_t u) { produced[u] = units[u].finish(out[u]); });
-      input_done = true;
-    }
+  // Interleaves, meters and stores one set of unit outputs (in block order).
+  auto consume = [&](int set) {
     for (std::size_t s = 0; s < n_stages; ++s) {
-      const std::size_t m = produced[s * ch];
+      const std::size_t m = produced[set][s * ch];
       for (std::size_t c = 0; c < ch; ++c)
-        if (produced[s * ch + c] != m) throw internal_error("render: channels of one stage went out of step");
-      for (std::size_t k = 0; k < m; ++k)
-        for (std::size_t c = 0; c < ch; ++c) stage_frames[k * ch + c] = out[s * ch + c][k];
+        if (produced[set][s * ch + c] != m) throw internal_error("render: channels of one stage went out of step");
+      for (std::size_t c = 0; c < ch; ++c) {
+        const double* o = out[set][s * ch + c].data();
+        for (std::size_t k = 0; k < m; ++k) stage_frames[k * ch + c] = o[k];
+      }
       const std::span<double> v = std::span<double>(stage_frames).first(m * ch);
       if (two_pass) {
         meters[s].add(v);
@@ -309,6 +336,39 @@ render_report render(const render_job& job, const render_control& control) {
         meters[s].add(v);
         writers[s].write(v);
       }
+    }
+  };
+  std::int64_t read_frames = 0;
+  bool input_done = false, have_previous = false;
+  int set = 0;
+  while (!input_done) {
+    check_stop(control);
+    const std::size_t n = reader.read(frames);
+    if (n > 0) {
+      for (std::size_t k = 0; k < n; ++k)
+        for (std::size_t c = 0; c < ch; ++c) in[c][k] = frames[k * ch + c] * job.input_peak_v;
+      if (job.dry_output) {
+        for (std::size_t i = 0; i < n * ch; ++i) dry_frames[i] = frames[i] * job.input_peak_v;
+        meters[n_stages].add(std::span<const double>(dry_frames).first(n * ch));
+      }
+      read_frames += static_cast<std::int64_t>(n);
+    } else {
+      input_done = true;
+    }
+    auto work = [&, set, n](std::size_t u) {
+      produced[set][u] = n > 0 ? units[u].process(std::span<const double>(in[u % ch]).first(n), out[set][u])
+                               : units[u].finish(out[set][u]);
+    };
+    if (rep.pipelined) {
+      run_beside(n_units, rep.threads, work, [&] {
+        if (have_previous) consume(1 - set);
+      });
+      have_previous = true;
+      if (input_done) consume(set);
+      set = 1 - set;
+    } else {
+      run_parallel(n_units, 1, work);
+      consume(set);
     }
     report_progress(static_cast<double>(read_frames), static_cast<double>(read_frames));
   }

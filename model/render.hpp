@@ -13,7 +13,9 @@
 //
 // Streaming: blocks of block_frames frames; memory stays flat whatever the file length.
 // Work units (stage, channel) run in parallel threads, each unit always in one thread with
-// its own state, so the result does not depend on the number of threads.
+// its own state, so the result does not depend on the number of threads. With more than one
+// thread allowed, the calling thread interleaves, meters and spools block i - 1 while the
+// engines render block i (so a mono render uses a second core for that work too).
 //
 // Output level (a file's full scale, 0 dBFS, is `1 / scale` volts at the load):
 // - normalise (the default): the peak of every output lands at `peak_dbfs`. It needs the
@@ -45,6 +47,7 @@
 #include "model/dk_engine.hpp"
 #include "model/network.hpp"
 #include "model/operating_point.hpp"
+#include "model/oversampling_choice.hpp"
 
 namespace pinchoff::model {
 
@@ -54,7 +57,7 @@ namespace pinchoff::model {
 /// input was split into blocks.
 class channel_renderer {
  public:
-  /// factor 1, 2, 4, 8 or 16; base_rate_hz as dsp::oversampler takes it; block_samples >= 1
+  /// factor 1, 2, 4, 8, 16, 32 or 64; base_rate_hz as dsp::oversampler takes it; block_samples >= 1
   /// is the size of the internal buffers (any input length is accepted).
   channel_renderer(const network& net, const operating_point& op, int factor, double base_rate_hz,
                    std::size_t block_samples = 8192, const dk_options& engine = {});
@@ -103,14 +106,17 @@ struct render_job {
   std::vector<render_stage> stages;                 ///< at least one
   std::optional<std::filesystem::path> dry_output;  ///< also write the input itself
   double input_peak_v{1.0};                         ///< generator volts for full scale, > 0
-  int oversample{8};                                ///< 1, 2, 4, 8, 16
+  /// 1, 2, 4, 8, 16, 32 or 64; 0: chosen from the input (model/oversampling_choice.hpp)
+  int oversample{8};
   output_level level{output_level::normalize};
   double peak_dbfs{-1.0};                           ///< normalize / match: peak ceiling, <= 0
   double full_scale_v{1.0};                         ///< fixed: volts at the load for 0 dBFS, > 0
   bool match_loudness{false};                       ///< several outputs: same integrated loudness
   std::optional<dsp::sample_format> format;         ///< default: nearest to the input's
   bool overwrite{false};
-  int threads{0};                                   ///< 0: one per core, at most one per unit
+  /// 0: one per core. Engine threads are at most one per unit; with 2 or more the calling
+  /// thread works beside them (see the file comment); 1 runs everything on the caller.
+  int threads{0};
   std::size_t block_frames{8192};
   dk_options engine;
 };
@@ -146,10 +152,14 @@ struct output_report {
 struct render_report {
   dsp::sound_info input;
   dsp::sample_format format{};
-  int oversample{1};
+  int oversample{1};             ///< the factor run
+  bool oversample_chosen{false}; ///< job.oversample was 0: `survey` and `choice` hold why
+  input_survey survey;
+  oversampling_choice choice;
   double engine_rate_hz{0};
   int latency_samples{0};        ///< the round trip compensated, at the file's rate
-  int threads{1};
+  int threads{1};                ///< engine threads (at most one per unit)
+  bool pipelined{false};         ///< the calling thread metered and stored beside them
   double target_lufs{0};         ///< match_loudness: the common loudness
   std::vector<output_report> outputs;  ///< the stages in order, then dry
   double seconds{0};             ///< wall time
