@@ -353,6 +353,21 @@ void dk_engine::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
   q_ = m_.d * x;
 }
 
+// The factor (<= 1) that junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) puts on the
+// step (d0, d1) from the port point (v0, v1): 1 unless a junction would land above vcrit by
+// a step the exponential cannot be trusted over.
+double dk_engine::junction_step_scale(double v0, double v1, double d0, double d1) const noexcept {
+  const double gs_old = v0, gd_old = v0 - v1;
+  const double gs_new = gs_old + d0, gd_new = gd_old + d0 - d1;
+  if (!(gs_new > dev_.vcrit_v || gd_new > dev_.vcrit_v)) return 1.0;
+  double alpha = 1.0;
+  const double ls = limit_junction(gs_new, gs_old, dev_.nvt_v, dev_.vcrit_v);
+  if (ls != gs_new) alpha = std::min(alpha, std::max(1e-3, (ls - gs_old) / (gs_new - gs_old)));
+  const double ld = limit_junction(gd_new, gd_old, dev_.nvt_v, dev_.vcrit_v);
+  if (ld != gd_new) alpha = std::min(alpha, std::max(1e-3, (ld - gd_old) / (gd_new - gd_old)));
+  return alpha;
+}
+
 // Newton on r(v) = p + F i(v) - v = 0, from `guess`.
 //
 // Acceptance (both the step and the residual): after the step dv computed at v, the
@@ -404,22 +419,11 @@ bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& gue
     double d1 = m10 * r0 + m11 * r1;
 
     // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) scales the whole step.
-    bool limited = false;
-    {
-      const double gs_old = v0, gd_old = v0 - v1;
-      const double gs_new = gs_old + d0, gd_new = gd_old + d0 - d1;
-      if (gs_new > dev_.vcrit_v || gd_new > dev_.vcrit_v) {
-        double alpha = 1.0;
-        const double ls = limit_junction(gs_new, gs_old, dev_.nvt_v, dev_.vcrit_v);
-        if (ls != gs_new) alpha = std::min(alpha, std::max(1e-3, (ls - gs_old) / (gs_new - gs_old)));
-        const double ld = limit_junction(gd_new, gd_old, dev_.nvt_v, dev_.vcrit_v);
-        if (ld != gd_new) alpha = std::min(alpha, std::max(1e-3, (ld - gd_old) / (gd_new - gd_old)));
-        if (alpha < 1.0) {
-          d0 *= alpha;
-          d1 *= alpha;
-          limited = true;
-        }
-      }
+    const double alpha = junction_step_scale(v0, v1, d0, d1);
+    const bool limited = alpha < 1.0;
+    if (limited) {
+      d0 *= alpha;
+      d1 *= alpha;
     }
 
     const double dgs = d0, dgd = d0 - d1;
@@ -433,8 +437,18 @@ bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& gue
       const double rd = std::fabs(id_new - c.id_a - id_lin_d) +
                         8.0 * std::numeric_limits<double>::epsilon() *
                             (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d0) + std::fabs(c.gds_s * d1));
-      const double t0 = f_abs_(0, 0) * rgs + f_abs_(0, 1) * rgd + f_abs_(0, 2) * rd;
-      const double t1 = f_abs_(1, 0) * rgs + f_abs_(1, 1) * rgd + f_abs_(1, 2) * rd;
+      // Rounding: the linearised equation v + dv = p + F (i + Jf dv) holds only to the
+      // rounding of its terms, a few eps of their magnitudes. Negligible at any sane point
+      // (1e-14 V for terms of 10 V), it rejects points where currents are so large (a
+      // junction far beyond exp(80)) that the equation cannot be resolved in doubles.
+      const double ags = std::fabs(c.igs_a) + std::fabs(c.ggs_s * dgs);
+      const double agd = std::fabs(c.igd_a) + std::fabs(c.ggd_s * dgd);
+      const double ad = std::fabs(c.id_a) + std::fabs(id_lin_d);
+      constexpr double round_k = 8.0 * std::numeric_limits<double>::epsilon();
+      const double t0 = f_abs_(0, 0) * (rgs + round_k * ags) + f_abs_(0, 1) * (rgd + round_k * agd) +
+                        f_abs_(0, 2) * rd + round_k * (std::fabs(p[0]) + std::fabs(v0 + d0) + f_abs_(0, 2) * ad);
+      const double t1 = f_abs_(1, 0) * (rgs + round_k * ags) + f_abs_(1, 1) * (rgd + round_k * agd) +
+                        f_abs_(1, 2) * rd + round_k * (std::fabs(p[1]) + std::fabs(v1 + d1) + f_abs_(1, 2) * ad);
       const double e0 = std::fabs(m00) * t0 + std::fabs(m01) * t1;
       const double e1 = std::fabs(m10) * t0 + std::fabs(m11) * t1;
       if (std::max(t0, t1) <= tol && std::max(e0, e1) <= tol) {
@@ -527,7 +541,15 @@ __attribute__((always_inline)) inline double dk_engine::step(double generator_v)
   // and last_.m = dv/dp there).
   const Eigen::Vector2d v_ext = pred_[0] * last_.v + pred_[1] * v_hist_[0] + pred_[2] * v_hist_[1] + pred_[3] * v_hist_[2];
   const Eigen::Vector2d p_ext = pred_[0] * p_last_ + pred_[1] * p_hist_[0] + pred_[2] * p_hist_[1] + pred_[3] * p_hist_[2];
-  const Eigen::Vector2d guess = v_ext + last_.m * (p - p_ext);
+  Eigen::Vector2d guess = v_ext + last_.m * (p - p_ext);
+  // Across a kink (cutoff, the triode edge, a junction turning on) the extrapolation can
+  // overshoot by volts; a junction pushed far forward by it would start Newton where its
+  // exponential (or the linear continuation beyond exp(80)) swamps everything else. The
+  // warm start is limited like a Newton step from the last solution.
+  {
+    const double alpha = junction_step_scale(last_.v[0], last_.v[1], guess[0] - last_.v[0], guess[1] - last_.v[1]);
+    if (alpha < 1.0) guess = last_.v + alpha * (guess - last_.v);
+  }
 
   int evals = 0;
   port_point pt;

@@ -138,6 +138,7 @@ class dk_engine {
 
   void init(const network& net, const operating_point& op);
   double step(double generator_v) noexcept;
+  double junction_step_scale(double v0, double v1, double d0, double d1) const noexcept;
   bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
   void substep(const Eigen::Vector2d& p, port_point& out, int& evals) noexcept;
   port_point point_at(const Eigen::Vector2d& v) const noexcept;
