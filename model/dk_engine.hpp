@@ -68,6 +68,10 @@ struct dk_options {
   /// Also evaluate the device at every accepted point and require the actual residual to
   /// be below tol_v (slower; checks the error bound, see dk_stats::bound_misses).
   bool confirm{false};
+  /// Use the AVX2 + FMA state-update kernels where the processor has them (x86-64). They
+  /// round differently from the portable ones (last bits of the samples); a processor
+  /// always takes the same kernels, so results repeat. false: the portable kernels.
+  bool wide_kernels{true};
 };
 
 struct dk_stats {
@@ -133,6 +137,8 @@ class dk_engine {
 
 
   void init(const network& net, const operating_point& op);
+  double step(double generator_v) noexcept;
+  double junction_step_scale(double v0, double v1, double d0, double d1) const noexcept;
   bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
   void substep(const Eigen::Vector2d& p, port_point& out, int& evals) noexcept;
   port_point point_at(const Eigen::Vector2d& v) const noexcept;
@@ -142,9 +148,10 @@ class dk_engine {
   detail::device_consts dev_{};
   double sign_{1.0};
   double supply_v_{0};              // network frame
+  bool wide_{false};                // AVX2 + FMA update kernels (see dk_engine.cpp)
   Eigen::Matrix<double, 2, 3> f_abs_;
   // Stacked update: [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n], ns + 3 rows, ns + 5 cols.
-  Eigen::MatrixXd w_;  // rows padded to even (a zero row when needed)
+  Eigen::MatrixXd w_;  // rows padded to whole packets (zero rows)
   Eigen::VectorXd in_, out_;        // [x; u; i] and the product
   Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
   Eigen::Vector2d q_{Eigen::Vector2d::Zero()};  // D x_{n-1}
