@@ -16,7 +16,7 @@
 //
 // and only the 2k port voltages are found by Newton. One JFET: closed-form 2x2 solves.
 // More: the device Jacobian Jf is block diagonal (3x2 per JFET), and I - F Jf (2k x 2k) is
-// factored by partial-pivoting LU each iteration, with the same acceptance bound, junction
+// factored by partial-pivoting LU (plain loops) each iteration, with the same acceptance bound, junction
 // limiting (per JFET), sub-stepping and monodromy factor (model/dk_multi.cpp).
 //
 // State: for capacitor k, the trapezoidal history voltage q_k = v_k + i_k / G_k, with the
@@ -159,9 +159,9 @@ class dk_engine {
     Eigen::MatrixXd w;                          // [A - I, B, C; D A, D B, D C; Do, Eo, Fo]
     Eigen::VectorXd pre, out;                   // W's x and u columns times [x; u]; the product
     Eigen::VectorXd q, p, p_last, p_dc, v_ext, p_ext, dp;
-    Eigen::VectorXd v, r, d, base, step, rem, t, bound, unit, pc, pj, guess;
-    Eigen::MatrixXd j;                          // I - F Jf
-    Eigen::PartialPivLU<Eigen::MatrixXd> lu;
+    Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
+    Eigen::MatrixXd j;                          // I - F Jf, then its LU factors
+    std::vector<int> piv;                       // the LU's row interchanges
     port_set last, dc, trial, cur_pt, next_pt;
     Eigen::MatrixXd v_hist, p_hist;             // columns v_{n-2}, v_{n-3}, v_{n-4} (and p)
     Eigen::MatrixXd cj, md;                     // process_tracked: C Jf (ns x 2k), M D (2k x ns)
@@ -172,7 +172,12 @@ class dk_engine {
   void reset_general();
   double process_general(double generator_v) noexcept;
   void point_general(const Eigen::VectorXd& v, port_set& out) noexcept;
+  // K JFETs at compile time (fixed-size views of the storage), or K = 0: any number.
+  template <int K>
+  double process_k(double generator_v) noexcept;
+  template <int K>
   bool solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& guess, port_set& out, int& evals) noexcept;
+  template <int K>
   void substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept;
   bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
   void substep(const Eigen::Vector2d& p, port_point& out, int& evals) noexcept;

@@ -2,17 +2,25 @@
 // closed-form 2x2 path of dk_engine.cpp). The same equations and the same acceptance
 // argument with k devices: 2k port voltages v, 3k currents i, the device Jacobian Jf
 // block diagonal (one 3x2 block per JFET), and I - F Jf (2k x 2k) factored by LU with
-// partial pivoting (Golub & Van Loan, Matrix Computations, sec. 3.4) on every Newton
-// iteration. Every vector and matrix is sized when the engine is built, so a sample
+// partial pivoting (Golub & Van Loan, Matrix Computations, Alg. 3.4.1) on every Newton
+// iteration. The factorisation, the solves and the small products are plain loops: at
+// these sizes (4 x 4 for two JFETs) Eigen's dynamic-size kernels cost several times the
+// arithmetic. Every vector and matrix is sized when the engine is built, so a sample
 // allocates nothing.
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <utility>
+#include <vector>
 
 #include "model/dk_engine.hpp"
 
 namespace pinchoff::model {
 namespace {
+
+// Compile-time sizes for K JFETs (K = 0: dynamic).
+constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
+constexpr int currents_of(int k) noexcept { return k > 0 ? 3 * k : Eigen::Dynamic; }
 
 double max_abs_of(const Eigen::Ref<const Eigen::VectorXd>& v) noexcept {
   double m = 0.0;
@@ -42,12 +50,117 @@ void one_minus_f_jf(const Eigen::MatrixXd& f, const std::vector<detail::port_cur
   j.diagonal().array() += 1.0;
 }
 
-// M = (I - F Jf)^-1 from its factors, column by column (no temporaries).
-void inverse_of(const Eigen::PartialPivLU<Eigen::MatrixXd>& lu, Eigen::VectorXd& unit, Eigen::MatrixXd& m) noexcept {
-  for (Eigen::Index c = 0; c < m.cols(); ++c) {
-    unit.setZero();
-    unit[c] = 1.0;
-    m.col(c) = lu.solve(unit);
+// LU with partial pivoting of the n x n column-major matrix `a` in place, the row
+// interchanges applied to whole rows as they happen (LAPACK's getrf order); piv[k] is the
+// row swapped with row k at step k. U's diagonal is stored as its reciprocals (the solve
+// then multiplies: a division is several times slower and sits on its dependency chain).
+// Returns |det|, 0 when a pivot is zero or not finite.
+// N > 0: the size at compile time (the loops unroll; at these sizes loop overhead costs
+// more than the arithmetic); N = 0: n at run time.
+template <int N>
+double lu_factor_n(double* a, int n_rt, int* piv) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  double det = 1.0;
+  for (int k = 0; k < n; ++k) {
+    int p = k;
+    double best = std::fabs(a[k + k * n]);
+    for (int r = k + 1; r < n; ++r) {
+      const double v = std::fabs(a[r + k * n]);
+      if (v > best) {
+        best = v;
+        p = r;
+      }
+    }
+    piv[k] = p;
+    if (!(best > 0.0) || !std::isfinite(best)) return 0.0;
+    if (p != k)
+      for (int c = 0; c < n; ++c) std::swap(a[k + c * n], a[p + c * n]);
+    det *= best;
+    const double inv = 1.0 / a[k + k * n];
+    a[k + k * n] = inv;
+    for (int r = k + 1; r < n; ++r) a[r + k * n] *= inv;
+    for (int c = k + 1; c < n; ++c) {
+      const double akc = a[k + c * n];
+      for (int r = k + 1; r < n; ++r) a[r + c * n] -= a[r + k * n] * akc;
+    }
+  }
+  return det;
+}
+
+// Solves (the matrix factored by lu_factor) x = b in place.
+template <int N>
+void lu_solve_n(const double* a, int n_rt, const int* piv, double* b) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  for (int k = 0; k < n; ++k)
+    if (piv[k] != k) std::swap(b[k], b[piv[k]]);
+  for (int c = 0; c < n; ++c) {
+    const double bc = b[c];
+    for (int r = c + 1; r < n; ++r) b[r] -= a[r + c * n] * bc;
+  }
+  for (int c = n - 1; c >= 0; --c) {
+    b[c] *= a[c + c * n];
+    const double bc = b[c];
+    for (int r = 0; r < c; ++r) b[r] -= a[r + c * n] * bc;
+  }
+}
+
+// Two, three and four JFETs at compile-time sizes, more at run time.
+double lu_factor(double* a, int n, int* piv) noexcept {
+  switch (n) {
+    case 4: return lu_factor_n<4>(a, n, piv);
+    case 6: return lu_factor_n<6>(a, n, piv);
+    case 8: return lu_factor_n<8>(a, n, piv);
+    default: return lu_factor_n<0>(a, n, piv);
+  }
+}
+
+void lu_solve(const double* a, int n, const int* piv, double* b) noexcept {
+  switch (n) {
+    case 4: lu_solve_n<4>(a, n, piv, b); return;
+    case 6: lu_solve_n<6>(a, n, piv, b); return;
+    case 8: lu_solve_n<8>(a, n, piv, b); return;
+    default: lu_solve_n<0>(a, n, piv, b); return;
+  }
+}
+
+// M = (I - F Jf)^-1 from its factors, column by column.
+void inverse_of(const Eigen::MatrixXd& lu, const std::vector<int>& piv, Eigen::MatrixXd& m) noexcept {
+  const int n = static_cast<int>(m.rows());
+  for (int c = 0; c < n; ++c) {
+    double* col = m.col(c).data();
+    for (int r = 0; r < n; ++r) col[r] = r == c ? 1.0 : 0.0;
+    lu_solve(lu.data(), n, piv.data(), col);
+  }
+}
+
+// out = a + M b for a column-major M of n_rt (N > 0: N) rows and m columns.
+template <int N>
+void add_product_n(const double* a, const double* md, int n_rt, int m, const double* b, double* out) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  double acc[N > 0 ? N : 1];
+  if constexpr (N > 0) {
+    for (int r = 0; r < N; ++r) acc[r] = a ? a[r] : 0.0;
+    for (int c = 0; c < m; ++c) {
+      const double bc = b[c];
+      for (int r = 0; r < N; ++r) acc[r] += md[r + c * N] * bc;
+    }
+    for (int r = 0; r < N; ++r) out[r] = acc[r];
+  } else {
+    for (int r = 0; r < n; ++r) out[r] = a ? a[r] : 0.0;
+    for (int c = 0; c < m; ++c) {
+      const double bc = b[c];
+      for (int r = 0; r < n; ++r) out[r] += md[r + c * n] * bc;
+    }
+  }
+}
+
+void add_product(const double* a, const Eigen::MatrixXd& mat, const double* b, double* out) noexcept {
+  const int n = static_cast<int>(mat.rows()), m = static_cast<int>(mat.cols());
+  switch (n) {
+    case 4: add_product_n<4>(a, mat.data(), n, m, b, out); return;
+    case 6: add_product_n<6>(a, mat.data(), n, m, b, out); return;
+    case 8: add_product_n<8>(a, mat.data(), n, m, b, out); return;
+    default: add_product_n<0>(a, mat.data(), n, m, b, out); return;
   }
 }
 
@@ -79,11 +192,11 @@ void dk_engine::init_general(const network& net, const operating_point& op) {
   in_ = Eigen::VectorXd::Zero(ns + 2 + ni);
 
   for (Eigen::VectorXd* v : {&g.q, &g.p, &g.p_last, &g.p_dc, &g.v_ext, &g.p_ext, &g.dp, &g.v, &g.r, &g.d, &g.base,
-                             &g.step, &g.t, &g.bound, &g.unit, &g.pc, &g.pj, &g.guess})
+                             &g.step, &g.t, &g.bound, &g.pc, &g.pj, &g.guess})
     v->setZero(np);
   g.rem.setZero(ni);
   g.j.setZero(np, np);
-  g.lu = Eigen::PartialPivLU<Eigen::MatrixXd>(np);
+  g.piv.assign(static_cast<std::size_t>(np), 0);
   for (port_set* s : {&g.last, &g.dc, &g.trial, &g.cur_pt, &g.next_pt}) s->resize(k);
   g.v_hist.setZero(np, 3);
   g.p_hist.setZero(np, 3);
@@ -152,8 +265,10 @@ void dk_engine::point_general(const Eigen::VectorXd& v, port_set& out) noexcept 
   }
   out.v = v;
   one_minus_f_jf(m_.f, g.cur, g.j);
-  g.lu.compute(g.j);
-  inverse_of(g.lu, g.unit, out.m);
+  if (lu_factor(g.j.data(), k * 2, g.piv.data()) > 0.0)
+    inverse_of(g.j, g.piv, out.m);
+  else
+    out.m.setConstant(std::numeric_limits<double>::quiet_NaN());
 }
 
 void dk_engine::reset_general() {
@@ -180,45 +295,68 @@ void dk_engine::reset_general() {
 // rounding margin); stacked into R (3k), the residual at v + dv is at most |F| R and the
 // distance to the exact solution at most |M| |F| R with M = (I - F Jf)^-1 (Ortega &
 // Rheinboldt 1970, 12.6). Both must be below tol_v in every row.
-bool dk_engine::solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& guess, port_set& out,
+//
+// K > 0: the number of JFETs at compile time (fixed-size views of the engine's storage, so
+// the small products unroll); K = 0: any number, at run time.
+template <int K>
+bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd& guess, port_set& out,
                               int& evals) noexcept {
+  using vec_p = Eigen::Matrix<double, ports_of(K), 1>;
+  using vec_i = Eigen::Matrix<double, currents_of(K), 1>;
+  using mat_f = Eigen::Matrix<double, ports_of(K), currents_of(K)>;
   general_path& g = g_;
-  const Eigen::MatrixXd& f = m_.f;
-  const int k = m_.devices, np = 2 * k;
+  const int k = K > 0 ? K : m_.devices, np = 2 * k, ni = 3 * k;
+  const Eigen::Map<const mat_f> f(m_.f.data(), np, ni);
+  const Eigen::Map<const mat_f> f_abs(g.f_abs.data(), np, ni);
+  const Eigen::Map<const vec_p> p(p_in.data(), np);
+  Eigen::Map<vec_p> v(g.v.data(), np), r(g.r.data(), np), d(g.d.data(), np), base(g.base.data(), np),
+      step(g.step.data(), np), t(g.t.data(), np), bound(g.bound.data(), np);
+  Eigen::Map<vec_i> i(out.i.data(), ni), rem(g.rem.data(), ni);
   const double tol = opt_.tol_v;
   const double eps8 = 8.0 * std::numeric_limits<double>::epsilon();
-  g.v = guess;
-  g.base = g.v;
-  g.step.setZero();
+  v = Eigen::Map<const vec_p>(guess.data(), np);
+  base = v;
+  step.setZero();
   double rn_base = std::numeric_limits<double>::infinity();
   bool may_damp = false;
   int halvings = 0;
   for (int it = 0; it < opt_.max_iterations; ++it) {
     for (int j = 0; j < k; ++j) {
-      const detail::port_currents c = detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], g.v[2 * j], g.v[2 * j + 1]);
+      const detail::port_currents c = detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], v[2 * j], v[2 * j + 1]);
       g.cur[static_cast<std::size_t>(j)] = c;
-      out.i[3 * j] = c.igs_a;
-      out.i[3 * j + 1] = c.igd_a;
-      out.i[3 * j + 2] = c.id_a;
+      i[3 * j] = c.igs_a;
+      i[3 * j + 1] = c.igd_a;
+      i[3 * j + 2] = c.id_a;
     }
     ++evals;
-    g.r = p - g.v;
-    g.r.noalias() += f * out.i;
-    const double rn = max_abs_of(g.r);
+    r = p - v;
+    r.noalias() += f * i;
+    const double rn = r.cwiseAbs().maxCoeff();
     // Damped Newton: halve a step that made the residual grow (or not finite).
     if (may_damp && !(rn <= rn_base) && !(rn <= tol) && halvings < 30) {
-      g.step *= 0.5;
-      g.v = g.base + g.step;
+      step *= 0.5;
+      v = base + step;
       ++halvings;
       continue;
     }
     if (!std::isfinite(rn)) return false;
 
-    one_minus_f_jf(f, g.cur, g.j);
-    g.lu.compute(g.j);
-    if (!(std::fabs(g.lu.determinant()) > 1e-200)) return false;
-    g.d = g.lu.solve(g.r);
-    if (!g.d.allFinite()) return false;
+    // I - F Jf, column pair by column pair (Jf is block diagonal).
+    {
+      double* jd = g.j.data();
+      for (int q = 0; q < k; ++q) {
+        const detail::port_currents& c = g.cur[static_cast<std::size_t>(q)];
+        for (int row = 0; row < np; ++row) {
+          const double f0 = f(row, 3 * q), f1 = f(row, 3 * q + 1), f2 = f(row, 3 * q + 2);
+          jd[row + (2 * q) * np] = (row == 2 * q ? 1.0 : 0.0) - (f0 * c.ggs_s + f1 * c.ggd_s + f2 * c.gm_s);
+          jd[row + (2 * q + 1) * np] = (row == 2 * q + 1 ? 1.0 : 0.0) - (-f1 * c.ggd_s + f2 * c.gds_s);
+        }
+      }
+    }
+    if (!(lu_factor(g.j.data(), np, g.piv.data()) > 1e-200)) return false;
+    d = r;
+    lu_solve(g.j.data(), np, g.piv.data(), d.data());
+    if (!d.allFinite()) return false;
 
     // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim), per JFET; the largest cut
     // scales the whole step.
@@ -227,8 +365,8 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& g
       double alpha = 1.0;
       for (int j = 0; j < k; ++j) {
         const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
-        const double gs_old = g.v[2 * j], gd_old = g.v[2 * j] - g.v[2 * j + 1];
-        const double gs_new = gs_old + g.d[2 * j], gd_new = gd_old + g.d[2 * j] - g.d[2 * j + 1];
+        const double gs_old = v[2 * j], gd_old = v[2 * j] - v[2 * j + 1];
+        const double gs_new = gs_old + d[2 * j], gd_new = gd_old + d[2 * j] - d[2 * j + 1];
         if (gs_new > dv.vcrit_v || gd_new > dv.vcrit_v) {
           const double ls = limit_junction(gs_new, gs_old, dv.nvt_v, dv.vcrit_v);
           if (ls != gs_new) alpha = std::min(alpha, std::max(1e-3, (ls - gs_old) / (gs_new - gs_old)));
@@ -237,7 +375,7 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& g
         }
       }
       if (alpha < 1.0) {
-        g.d *= alpha;
+        d *= alpha;
         limited = true;
       }
     }
@@ -245,60 +383,61 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& g
     bool small = !limited;
     for (int j = 0; j < k && small; ++j) {
       const double lim = 0.01 * g.dev[static_cast<std::size_t>(j)].nvt_v;
-      const double dgs = g.d[2 * j], dgd = g.d[2 * j] - g.d[2 * j + 1];
+      const double dgs = d[2 * j], dgd = d[2 * j] - d[2 * j + 1];
       small = std::fabs(dgs) <= lim && std::fabs(dgd) <= lim;
     }
     if (small) {
       for (int j = 0; j < k; ++j) {
         const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
         const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
-        const double d0 = g.d[2 * j], d1 = g.d[2 * j + 1];
+        const double d0 = d[2 * j], d1 = d[2 * j + 1];
         const double dgs = d0, dgd = d0 - d1;
-        g.rem[3 * j] = 0.505 * c.ggs_s * dv.inv_nvt * dgs * dgs;
-        g.rem[3 * j + 1] = 0.505 * c.ggd_s * dv.inv_nvt * dgd * dgd;
-        const double id_new = detail::channel_current(dv, g.v[2 * j] + d0, g.v[2 * j + 1] + d1);
+        rem[3 * j] = 0.505 * c.ggs_s * dv.inv_nvt * dgs * dgs;
+        rem[3 * j + 1] = 0.505 * c.ggd_s * dv.inv_nvt * dgd * dgd;
+        const double id_new = detail::channel_current(dv, v[2 * j] + d0, v[2 * j + 1] + d1);
         const double id_lin_d = c.gm_s * d0 + c.gds_s * d1;
-        g.rem[3 * j + 2] = std::fabs(id_new - c.id_a - id_lin_d) +
-                           eps8 * (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d0) + std::fabs(c.gds_s * d1));
+        rem[3 * j + 2] = std::fabs(id_new - c.id_a - id_lin_d) +
+                         eps8 * (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d0) + std::fabs(c.gds_s * d1));
       }
-      g.t.noalias() = g.f_abs * g.rem;
-      if (max_abs_of(g.t) <= tol) {
-        inverse_of(g.lu, g.unit, out.m);
-        for (int r = 0; r < np; ++r) {
-          double s = 0.0;
-          for (int c = 0; c < np; ++c) s += std::fabs(out.m(r, c)) * g.t[c];
-          g.bound[r] = s;
+      t.noalias() = f_abs * rem;
+      if (t.maxCoeff() <= tol) {
+        inverse_of(g.j, g.piv, out.m);
+        const double* md = out.m.data();
+        for (int row = 0; row < np; ++row) {
+          double sum = 0.0;
+          for (int c = 0; c < np; ++c) sum += std::fabs(md[row + c * np]) * t[c];
+          bound[row] = sum;
         }
-        if (max_abs_of(g.bound) <= tol) {
+        if (bound.maxCoeff() <= tol) {
           if (opt_.confirm) {
-            g.bound = g.v + g.d;  // the accepted point (bound is free now)
+            bound = v + d;  // the accepted point (bound is free now)
             for (int j = 0; j < k; ++j) {
               const detail::port_currents cc =
-                  detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], g.bound[2 * j], g.bound[2 * j + 1]);
-              g.rem[3 * j] = cc.igs_a;
-              g.rem[3 * j + 1] = cc.igd_a;
-              g.rem[3 * j + 2] = cc.id_a;
+                  detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], bound[2 * j], bound[2 * j + 1]);
+              rem[3 * j] = cc.igs_a;
+              rem[3 * j + 1] = cc.igd_a;
+              rem[3 * j + 2] = cc.id_a;
               g.cur[static_cast<std::size_t>(j)] = cc;
             }
             ++evals;
-            g.t = p - g.bound;
-            g.t.noalias() += f * g.rem;
-            if (max_abs_of(g.t) > tol) {
+            t = p - bound;
+            t.noalias() += f * rem;
+            if (t.cwiseAbs().maxCoeff() > tol) {
               ++stats_.bound_misses;
             } else {
               out.v = g.bound;
-              out.i = g.rem;
+              i = rem;
               for (int j = 0; j < k; ++j) put_block(out.jf, j, g.cur[static_cast<std::size_t>(j)]);
               return true;
             }
           } else {
-            out.v = g.v + g.d;
+            Eigen::Map<vec_p>(out.v.data(), np) = v + d;
             for (int j = 0; j < k; ++j) {
               const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
-              const double d0 = g.d[2 * j], d1 = g.d[2 * j + 1];
-              out.i[3 * j] = c.igs_a + c.ggs_s * d0;
-              out.i[3 * j + 1] = c.igd_a + c.ggd_s * (d0 - d1);
-              out.i[3 * j + 2] = c.id_a + (c.gm_s * d0 + c.gds_s * d1);
+              const double d0 = d[2 * j], d1 = d[2 * j + 1];
+              i[3 * j] = c.igs_a + c.ggs_s * d0;
+              i[3 * j + 1] = c.igd_a + c.ggd_s * (d0 - d1);
+              i[3 * j + 2] = c.id_a + (c.gm_s * d0 + c.gds_s * d1);
               put_block(out.jf, j, c);
             }
             return true;
@@ -306,18 +445,19 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& g
         }
       }
     }
-    g.base = g.v;
-    g.step = g.d;
+    base = v;
+    step = d;
     rn_base = rn;
     may_damp = !limited;
     halvings = 0;
-    g.v += g.d;
+    v += d;
   }
   return false;
 }
 
 // As substep(): the change of p over the sample split into 2, 4, ... parts, each solved
 // from the last; what still fails is held at the previous solution and counted.
+template <int K>
 void dk_engine::substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept {
   general_path& g = g_;
   for (int level = 1; level <= opt_.max_substep_levels; ++level) {
@@ -331,9 +471,8 @@ void dk_engine::substep_general(const Eigen::VectorXd& p, port_set& out, int& ev
       else
         g.pj = g.p_last + (p - g.p_last) * (double(j) / parts);
       g.dp = g.pj - g.pc;
-      g.guess = g.cur_pt.v;
-      g.guess.noalias() += g.cur_pt.m * g.dp;
-      ok = solve_general(g.pj, g.guess, g.next_pt, evals);
+      add_product(g.cur_pt.v.data(), g.cur_pt.m, g.dp.data(), g.guess.data());
+      ok = solve_general<K>(g.pj, g.guess, g.next_pt, evals);
       if (ok) {
         g.cur_pt = g.next_pt;
         g.pc = g.pj;
@@ -349,43 +488,91 @@ void dk_engine::substep_general(const Eigen::VectorXd& p, port_set& out, int& ev
   out = g.last;
 }
 
-double dk_engine::process_general(double generator_v) noexcept {
+template <int K>
+double dk_engine::process_k(double generator_v) noexcept {
+  using vec_p = Eigen::Matrix<double, ports_of(K), 1>;
+  using mat_p = Eigen::Matrix<double, ports_of(K), ports_of(K)>;
   general_path& g = g_;
-  const int ns = m_.states, np = 2 * m_.devices, ni = 3 * m_.devices;
+  const int ns = m_.states, k = K > 0 ? K : m_.devices, np = 2 * k, ni = 3 * k;
+  const int rows = ns + np + 1;
   const double ug = sign_ * generator_v;
   in_[ns + 1] = ug;
-  g.pre.noalias() = g.w.leftCols(ns + 2) * in_.head(ns + 2);
-  g.p = g.q + m_.e.col(0) * supply_v_ + m_.e.col(1) * ug;
+  // W's x and u columns times [x; u], column by column (plain loops; see the file comment).
+  {
+    const double* __restrict w = g.w.data();
+    const double* __restrict xu = in_.data();
+    double* __restrict pre = g.pre.data();
+    for (int row = 0; row < rows; ++row) pre[row] = 0.0;
+    for (int c = 0; c < ns + 2; ++c) {
+      const double x = xu[c];
+      const double* __restrict wc = w + static_cast<std::ptrdiff_t>(c) * rows;
+      for (int row = 0; row < rows; ++row) pre[row] += wc[row] * x;
+    }
+  }
+  Eigen::Map<vec_p> p(g.p.data(), np), q(g.q.data(), np), p_last(g.p_last.data(), np), dp(g.dp.data(), np),
+      guess(g.guess.data(), np);
+  const Eigen::Map<const vec_p> e0(m_.e.col(0).data(), np), e1(m_.e.col(1).data(), np);
+  p = q + e0 * supply_v_ + e1 * ug;
 
   // Warm start as for one JFET: extrapolated v, corrected to first order by M.
-  g.v_ext = pred_[0] * g.last.v + pred_[1] * g.v_hist.col(0) + pred_[2] * g.v_hist.col(1) + pred_[3] * g.v_hist.col(2);
-  g.p_ext = pred_[0] * g.p_last + pred_[1] * g.p_hist.col(0) + pred_[2] * g.p_hist.col(1) + pred_[3] * g.p_hist.col(2);
-  g.dp = g.p - g.p_ext;
-  g.guess = g.v_ext;
-  g.guess.noalias() += g.last.m * g.dp;
+  {
+    const Eigen::Map<const vec_p> v0(g.last.v.data(), np), v1(g.v_hist.col(0).data(), np), v2(g.v_hist.col(1).data(), np),
+        v3(g.v_hist.col(2).data(), np);
+    const Eigen::Map<const vec_p> p1(g.p_hist.col(0).data(), np), p2(g.p_hist.col(1).data(), np),
+        p3(g.p_hist.col(2).data(), np);
+    dp = p - (pred_[0] * p_last + pred_[1] * p1 + pred_[2] * p2 + pred_[3] * p3);
+    guess = pred_[0] * v0 + pred_[1] * v1 + pred_[2] * v2 + pred_[3] * v3;
+    guess.noalias() += Eigen::Map<const mat_p>(g.last.m.data(), np, np) * dp;
+  }
 
   int evals = 0;
-  if (!solve_general(g.p, g.guess, g.trial, evals)) substep_general(g.p, g.trial, evals);
+  if (!solve_general<K>(g.p, g.guess, g.trial, evals)) substep_general<K>(g.p, g.trial, evals);
 
-  g.v_hist.col(2) = g.v_hist.col(1);
-  g.v_hist.col(1) = g.v_hist.col(0);
-  g.v_hist.col(0) = g.last.v;
-  g.p_hist.col(2) = g.p_hist.col(1);
-  g.p_hist.col(1) = g.p_hist.col(0);
-  g.p_hist.col(0) = g.p_last;
-  g.last = g.trial;
-  g.p_last = g.p;
+  {
+    Eigen::Map<vec_p> v0(g.last.v.data(), np), v1(g.v_hist.col(0).data(), np), v2(g.v_hist.col(1).data(), np),
+        v3(g.v_hist.col(2).data(), np);
+    Eigen::Map<vec_p> p1(g.p_hist.col(0).data(), np), p2(g.p_hist.col(1).data(), np), p3(g.p_hist.col(2).data(), np);
+    v3 = v2;
+    v2 = v1;
+    v1 = v0;
+    p3 = p2;
+    p2 = p1;
+    p1 = p_last;
+  }
+  std::swap(g.last, g.trial);  // swaps storage: no copy, no allocation
+  p_last = p;
 
-  in_.tail(ni) = g.last.i;
-  g.out = g.pre;
-  g.out.noalias() += g.w.rightCols(ni) * in_.tail(ni);
-  in_.head(ns) += g.out.head(ns);
-  g.q = g.out.segment(ns, np);
+  // The current columns of W times i, onto the pre-computed part.
+  {
+    const double* __restrict w = g.w.data();
+    const double* __restrict pre = g.pre.data();
+    const double* __restrict cur = g.last.i.data();
+    double* __restrict o = g.out.data();
+    double* __restrict x_in = in_.data();
+    for (int row = 0; row < rows; ++row) o[row] = pre[row];
+    for (int c = 0; c < ni; ++c) {
+      const double x = cur[c];
+      x_in[ns + 2 + c] = x;
+      const double* __restrict wc = w + static_cast<std::ptrdiff_t>(ns + 2 + c) * rows;
+      for (int row = 0; row < rows; ++row) o[row] += wc[row] * x;
+    }
+    for (int row = 0; row < ns; ++row) x_in[row] += o[row];
+  }
+  q = Eigen::Map<const vec_p>(g.out.data() + ns, np);
 
   ++stats_.samples;
   stats_.evaluations += evals;
   stats_.max_evaluations = std::max(stats_.max_evaluations, evals);
   return sign_ * g.out[ns + np];
+}
+
+double dk_engine::process_general(double generator_v) noexcept {
+  switch (m_.devices) {
+    case 2: return process_k<2>(generator_v);
+    case 3: return process_k<3>(generator_v);
+    case 4: return process_k<4>(generator_v);
+    default: return process_k<0>(generator_v);
+  }
 }
 
 }  // namespace pinchoff::model
