@@ -10,6 +10,10 @@ void bench_oversampler();
 /// Newton evaluations per sample and the speed-up over the nodal reference solver.
 void bench_engine();
 
+/// The DK engine's general path (two JFETs): real-time factor and speed-up over the
+/// reference on two cascaded stages; cost against the one-JFET path on the same circuit twice.
+void bench_multi_device();
+
 /// A 25-point sweep of every preset: seconds (target under 0.5 s) and periods per point.
 void bench_sweep();
 

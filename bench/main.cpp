@@ -10,6 +10,7 @@ int main() {
   bench_oversampler();
   std::printf("\n");
   bench_engine();
+  bench_multi_device();
   bench_sweep();
   bench_render();
   return 0;

@@ -140,6 +140,9 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
     throw internal_error("discretise: the sample rate must be a positive number of hertz");
   const double t = 1.0 / sample_rate_hz;
   const int ns = static_cast<int>(net.capacitors.size());
+  const int nd = net.devices();
+  if (nd < 1) throw internal_error("discretise: the network has no JFET");
+  const int ni = 3 * nd;  // device currents
 
   // S: resistors, companion conductances 2C/T and the two sources (supply first, then the
   // generator: branch unknowns nu and nu + 1, as assemble_linear orders them).
@@ -151,7 +154,7 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   const int nu = lin.node_unknowns;
 
   // Right-hand sides: S z = Nx q + Nu u - Nl i.
-  Eigen::MatrixXd rhs = Eigen::MatrixXd::Zero(n, ns + 5);
+  Eigen::MatrixXd rhs = Eigen::MatrixXd::Zero(n, ns + 2 + ni);
   for (int k = 0; k < ns; ++k) {
     const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
     const double g = caps[static_cast<std::size_t>(k)].g_s;
@@ -165,12 +168,15 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   auto leave = [&](int node, int col, double s) {
     if (node != 0) rhs(row(node), ns + 2 + col) -= s;  // minus: -Nl i
   };
-  leave(net.gate, 0, 1.0);
-  leave(net.source, 0, -1.0);
-  leave(net.gate, 1, 1.0);
-  leave(net.drain, 1, -1.0);
-  leave(net.drain, 2, 1.0);
-  leave(net.source, 2, -1.0);
+  for (int j = 0; j < nd; ++j) {
+    const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
+    leave(q.gate, 3 * j, 1.0);
+    leave(q.source, 3 * j, -1.0);
+    leave(q.gate, 3 * j + 1, 1.0);
+    leave(q.drain, 3 * j + 1, -1.0);
+    leave(q.drain, 3 * j + 2, 1.0);
+    leave(q.source, 3 * j + 2, -1.0);
+  }
 
   // S^-1 [Nx Nu -Nl] in extended precision, with one refinement step, then rounded: the
   // states are history voltages of the order of the supply, and the outputs (a coupled
@@ -182,6 +188,7 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   const Eigen::FullPivLU<matrix_ld> lu(s_ld);
   dk_matrices m;
   m.states = ns;
+  m.devices = nd;
   m.sample_rate_hz = sample_rate_hz;
   m.rcond = lu.isInvertible() ? static_cast<double>(lu.rcond()) : 0.0;
   if (!(m.rcond >= 1e-15))
@@ -189,38 +196,43 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
                          " Hz is singular or too ill-conditioned (rcond " + std::to_string(m.rcond) + ")");
   matrix_ld z_ld = lu.solve(rhs_ld);
   z_ld += lu.solve(matrix_ld(rhs_ld - s_ld * z_ld));
-  const Eigen::MatrixXd z = z_ld.cast<double>();  // n x (ns + 5): columns q, u, i
+  const Eigen::MatrixXd z = z_ld.cast<double>();  // n x (ns + 2 + 3k): columns q, u, i
 
   auto diff = [&](int a, int b) -> Eigen::RowVectorXd {
-    Eigen::RowVectorXd r = Eigen::RowVectorXd::Zero(ns + 5);
+    Eigen::RowVectorXd r = Eigen::RowVectorXd::Zero(ns + 2 + ni);
     if (a != 0) r += z.row(row(a));
     if (b != 0) r -= z.row(row(b));
     return r;
   };
   // Capacitor voltages v_n = Nc z; q_n = 2 v_n - q_{n-1}.
-  Eigen::MatrixXd vc(ns, ns + 5);
+  Eigen::MatrixXd vc(ns, ns + 2 + ni);
   for (int k = 0; k < ns; ++k) {
     const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
     vc.row(k) = diff(c.a, c.b);
   }
   m.a = 2.0 * vc.leftCols(ns) - Eigen::MatrixXd::Identity(ns, ns);
   m.b = 2.0 * vc.middleCols(ns, 2);
-  m.c = 2.0 * vc.rightCols(3);
+  m.c = 2.0 * vc.rightCols(ni);
 
-  const Eigen::RowVectorXd vgs = diff(net.gate, net.source);
-  const Eigen::RowVectorXd vds = diff(net.drain, net.source);
-  m.d.resize(2, ns);
-  m.d.row(0) = vgs.head(ns);
-  m.d.row(1) = vds.head(ns);
-  m.e.row(0) = vgs.segment(ns, 2);
-  m.e.row(1) = vds.segment(ns, 2);
-  m.f.row(0) = vgs.tail(3);
-  m.f.row(1) = vds.tail(3);
+  m.d.resize(2 * nd, ns);
+  m.e.resize(2 * nd, 2);
+  m.f.resize(2 * nd, ni);
+  for (int j = 0; j < nd; ++j) {
+    const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
+    const Eigen::RowVectorXd vgs = diff(q.gate, q.source);
+    const Eigen::RowVectorXd vds = diff(q.drain, q.source);
+    m.d.row(2 * j) = vgs.head(ns);
+    m.d.row(2 * j + 1) = vds.head(ns);
+    m.e.row(2 * j) = vgs.segment(ns, 2);
+    m.e.row(2 * j + 1) = vds.segment(ns, 2);
+    m.f.row(2 * j) = vgs.tail(ni);
+    m.f.row(2 * j + 1) = vds.tail(ni);
+  }
 
   const Eigen::RowVectorXd out = diff(net.output_node, 0);
   m.d_out = out.head(ns);
   m.e_out = out.segment(ns, 2);
-  m.f_out = out.tail(3);
+  m.f_out = out.tail(ni);
   return m;
 }
 
@@ -252,10 +264,16 @@ void dk_engine::init(const network& net, const operating_point& op) {
   static constexpr double weights[4][4] = {{1, 0, 0, 0}, {2, -1, 0, 0}, {3, -3, 1, 0}, {4, -6, 4, -1}};
   for (int k = 0; k < 4; ++k) pred_[static_cast<std::size_t>(k)] = weights[opt_.predictor_order][k];
 
-  dev_ = detail::device_consts::of(net.device, net.vt_v);
   sign_ = net.sign;
   supply_v_ = net.supply_v;
-  f_abs_ = m_.f.cwiseAbs();
+  if (m_.devices != 1) {
+    init_general(net, op);
+    return;
+  }
+  dev_ = detail::device_consts::of(net.jfet().device, net.vt_v);
+  f1_ = m_.f;
+  e1_ = m_.e;
+  f_abs_ = f1_.cwiseAbs();
   const int ns = m_.states;
 
   // The state rows hold the increment x_n - x_{n-1} = (A - I) x_{n-1} + B u + C i: near a
@@ -281,7 +299,8 @@ void dk_engine::init(const network& net, const operating_point& op) {
   // in gives exactly constant samples out (removes the DC solve's rounding only).
   const Eigen::Vector2d u(supply_v_, 0.0);
   Eigen::VectorXd q = dc_states(net, op.x);
-  Eigen::Vector2d v(node_v(op.x, net.gate) - node_v(op.x, net.source), node_v(op.x, net.drain) - node_v(op.x, net.source));
+  const net_jfet& jf0 = net.jfet();
+  Eigen::Vector2d v(node_v(op.x, jf0.gate) - node_v(op.x, jf0.source), node_v(op.x, jf0.drain) - node_v(op.x, jf0.source));
   {
     Eigen::VectorXd qp = q;
     Eigen::Vector2d vp = v;
@@ -291,11 +310,11 @@ void dk_engine::init(const network& net, const operating_point& op) {
     for (int it = 0; it < 20; ++it) {
       const port_point pt = point_at(vp);
       g.head(ns) = (m_.a - Eigen::MatrixXd::Identity(ns, ns)) * qp + m_.b * u + m_.c * pt.i;
-      g.tail(2) = m_.d * qp + m_.e * u + m_.f * pt.i - vp;
+      g.tail(2) = m_.d * qp + e1_ * u + f1_ * pt.i - vp;
       jac.topLeftCorner(ns, ns) = m_.a - Eigen::MatrixXd::Identity(ns, ns);
       jac.topRightCorner(ns, 2) = m_.c * pt.jf;
       jac.bottomLeftCorner(2, ns) = m_.d;
-      jac.bottomRightCorner(2, 2) = m_.f * pt.jf - Eigen::Matrix2d::Identity();
+      jac.bottomRightCorner(2, 2) = f1_ * pt.jf - Eigen::Matrix2d::Identity();
       const Eigen::FullPivLU<Eigen::MatrixXd> lu(jac);
       if (!lu.isInvertible()) break;
       const Eigen::VectorXd delta = lu.solve(-g);
@@ -315,7 +334,7 @@ void dk_engine::init(const network& net, const operating_point& op) {
   }
   x_dc_ = q;
   dc_point_ = point_at(v);
-  p_dc_ = m_.d * q + m_.e * u;
+  p_dc_ = m_.d * q + e1_ * u;
   y_dc_ = sign_ * (m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(dc_point_.i));
   reset();
 }
@@ -326,12 +345,16 @@ dk_engine::port_point dk_engine::point_at(const Eigen::Vector2d& v) const noexce
   pt.v = v;
   pt.i << c.igs_a, c.igd_a, c.id_a;
   pt.jf << c.ggs_s, 0.0, c.ggd_s, -c.ggd_s, c.gm_s, c.gds_s;
-  const Eigen::Matrix2d j = Eigen::Matrix2d::Identity() - m_.f * pt.jf;
+  const Eigen::Matrix2d j = Eigen::Matrix2d::Identity() - f1_ * pt.jf;
   pt.m = j.inverse();
   return pt;
 }
 
 void dk_engine::reset() {
+  if (m_.devices != 1) {
+    reset_general();
+    return;
+  }
   const int ns = m_.states;
   in_.head(ns) = x_dc_;
   in_[ns] = supply_v_;
@@ -350,7 +373,10 @@ Eigen::VectorXd dk_engine::state() const { return in_.head(m_.states); }
 void dk_engine::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
   if (x.size() != m_.states) throw internal_error("dk_engine::set_state: wrong number of states");
   in_.head(m_.states) = x;
-  q_ = m_.d * x;
+  if (m_.devices != 1)
+    g_.q.noalias() = m_.d * x;
+  else
+    q_ = m_.d * x;
 }
 
 // The factor (<= 1) that junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) puts on the
@@ -381,7 +407,7 @@ double dk_engine::junction_step_scale(double v0, double v1, double d0, double d1
 // step" of quadratic convergence with the step size made precise, not a looser test.
 bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out,
                             int& evals) noexcept {
-  const Eigen::Matrix<double, 2, 3>& f = m_.f;
+  const Eigen::Matrix<double, 2, 3>& f = f1_;
   const double tol = opt_.tol_v;
   const double small_junction_step = 0.01 * dev_.nvt_v;
   double v0 = guess[0], v1 = guess[1];
@@ -534,7 +560,7 @@ __attribute__((always_inline)) inline double dk_engine::step(double generator_v)
   {
     PINCHOFF_DK_DISPATCH(update_before_fixed, update_before_dynamic, w_.data(), in_.data(), pre_.data(), ns)
   }
-  const Eigen::Vector2d p = q_ + m_.e.col(0) * supply_v_ + m_.e.col(1) * ug;
+  const Eigen::Vector2d p = q_ + e1_.col(0) * supply_v_ + e1_.col(1) * ug;
 
   // Warm start: polynomial extrapolation of v, corrected to first order for the part of
   // the new p the same extrapolation of p misses (v = v(p) is a static map in the DK form,
@@ -581,15 +607,31 @@ __attribute__((always_inline)) inline double dk_engine::step(double generator_v)
   return sign_ * out_[ns + 2];
 }
 
-double dk_engine::process(double generator_v) noexcept { return step(generator_v); }
+double dk_engine::process(double generator_v) noexcept {
+  if (m_.devices != 1) return process_general(generator_v);
+  return step(generator_v);
+}
 
 void dk_engine::process(std::span<const double> in, std::span<double> out) noexcept {
   const std::size_t n = std::min(in.size(), out.size());
+  if (m_.devices != 1) {
+    for (std::size_t k = 0; k < n; ++k) out[k] = process_general(in[k]);
+    return;
+  }
   for (std::size_t k = 0; k < n; ++k) out[k] = step(in[k]);
 }
 
 double dk_engine::process_tracked(double generator_v, Eigen::MatrixXd& sensitivity) {
   const double y = process(generator_v);
+  if (m_.devices != 1) {
+    g_.cj.noalias() = m_.c * g_.last.jf;
+    g_.md.noalias() = g_.last.m * m_.d;
+    phi_ = m_.a;
+    phi_.noalias() += g_.cj * g_.md;
+    tmp_.noalias() = phi_ * sensitivity;
+    sensitivity = tmp_;
+    return y;
+  }
   cj_.noalias() = m_.c * last_.jf;
   md_.noalias() = last_.m * m_.d;
   phi_ = m_.a;

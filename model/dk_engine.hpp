@@ -1,19 +1,23 @@
 #pragma once
-// Nonlinear state-space ("DK") engine for one stage: the nodal DK method (Yeh, Abel &
+// Nonlinear state-space ("DK") engine for a network: the nodal DK method (Yeh, Abel &
 // Smith, IEEE TASLP 18(4), 2010; Holters & Zölzer, EUSIPCO 2015) on the modified nodal
 // system of the network (Ho, Ruehli & Brennan, IEEE TCAS 22(6), 1975).
 //
 // Resistors, trapezoidal capacitor companions (G = 2C/T) and the two ideal sources are
-// stamped into one constant MNA matrix S, inverted once. The JFET enters through its three
-// currents i = [igs(vgs), igd(vgs - vds), id(vgs, vds)] (an incidence matrix) and is
-// controlled by the two port voltages v = [vgs, vds] (read through another). With
-// u = [supply_v, generator_v] this gives, per sample n,
+// stamped into one constant MNA matrix S, inverted once. Each of the network's k JFETs
+// enters through its three currents [igs(vgs), igd(vgs - vds), id(vgs, vds)] (an incidence
+// matrix) and is controlled by its two port voltages [vgs, vds] (read through another);
+// i (3k) and v (2k) stack them device after device. With u = [supply_v, generator_v]
+// this gives, per sample n,
 //
 //   x_n = A x_{n-1} + B u_n + C i_n
 //   v_n = D x_{n-1} + E u_n + F i_n,   i_n = f(v_n)
 //   y_n = Do x_{n-1} + Eo u_n + Fo i_n
 //
-// and only the 2 port voltages are found by Newton (closed-form 2x2 solves).
+// and only the 2k port voltages are found by Newton. One JFET: closed-form 2x2 solves.
+// More: the device Jacobian Jf is block diagonal (3x2 per JFET), and I - F Jf (2k x 2k) is
+// factored by partial-pivoting LU (plain loops) each iteration, with the same acceptance bound, junction
+// limiting (per JFET), sub-stepping and monodromy factor (model/dk_multi.cpp).
 //
 // State: for capacitor k, the trapezoidal history voltage q_k = v_k + i_k / G_k, with the
 // capacitor's voltage v_k and current i_k (a -> b) at the same sample and G_k = 2 C_k / T.
@@ -25,6 +29,7 @@
 // inputs and outputs are real (bench) signs: network u = sign * real u, real y = sign * y.
 #include <array>
 #include <span>
+#include <vector>
 
 #include <Eigen/Dense>
 
@@ -34,19 +39,21 @@
 
 namespace pinchoff::model {
 
-/// The discretised stage. Sizes: ns states; A ns x ns, B ns x 2, C ns x 3; D 2 x ns, E 2x2,
-/// F 2x3; Do 1 x ns, Eo 1 x 2, Fo 1 x 3. Columns of B/E/Eo: supply, generator (network
-/// volts); of C/F/Fo: igs, igd, id (A). Rows of D/E/F: vgs, vds.
+/// The discretised network. Sizes, for ns states and k JFETs: A ns x ns, B ns x 2,
+/// C ns x 3k; D 2k x ns, E 2k x 2, F 2k x 3k; Do 1 x ns, Eo 1 x 2, Fo 1 x 3k. Columns of
+/// B/E/Eo: supply, generator (network volts); of C/F/Fo: igs, igd, id (A) of JFET 0, then
+/// of JFET 1, ... Rows of D/E/F: vgs, vds of JFET 0, then of JFET 1, ...
 struct dk_matrices {
   int states{0};
+  int devices{1};
   double sample_rate_hz{0};
   Eigen::MatrixXd a, b, c;
-  Eigen::Matrix<double, 2, Eigen::Dynamic> d;
-  Eigen::Matrix2d e;
-  Eigen::Matrix<double, 2, 3> f;
+  Eigen::MatrixXd d;
+  Eigen::Matrix<double, Eigen::Dynamic, 2> e;
+  Eigen::MatrixXd f;
   Eigen::RowVectorXd d_out;
   Eigen::RowVector2d e_out;
-  Eigen::RowVector3d f_out;
+  Eigen::RowVectorXd f_out;
   double rcond{0};  ///< reciprocal condition estimate (1-norm) of the MNA matrix S
 };
 
@@ -99,23 +106,27 @@ class dk_engine {
 
   /// The same as process(), and `sensitivity` <- (d x_n / d x_{n-1}) * sensitivity, the
   /// per-sample factor of the monodromy matrix (Aprille & Trick 1972) at the converged
-  /// point: A + C Jf (I - F Jf)^-1 D. `sensitivity` is ns x ns.
+  /// point: A + C Jf (I - F Jf)^-1 D. `sensitivity` is ns x ns. Allocates nothing.
   double process_tracked(double generator_v, Eigen::MatrixXd& sensitivity);
 
   /// Back to the DC operating point, statistics cleared.
   void reset();
 
   int states() const noexcept { return m_.states; }
+  /// Number of JFETs.
+  int devices() const noexcept { return m_.devices; }
   /// The state vector (network frame, volts; see the file comment).
   Eigen::VectorXd state() const;
   /// Sets the states (size ns); the warm-start history is kept.
   void set_state(const Eigen::Ref<const Eigen::VectorXd>& x);
   const Eigen::VectorXd& dc_state() const noexcept { return x_dc_; }
 
-  /// Port voltages (vgs, vds) of the last sample, real signs.
-  Eigen::Vector2d ports_v() const noexcept { return sign_ * last_.v; }
+  /// Port voltages (vgs, vds) of JFET `device` (0..devices()-1) at the last sample, real signs.
+  Eigen::Vector2d ports_v(int device = 0) const noexcept { return sign_ * ports_network_v(device); }
   /// Network frame (n-channel mirror), as used inside.
-  Eigen::Vector2d ports_network_v() const noexcept { return last_.v; }
+  Eigen::Vector2d ports_network_v(int device = 0) const noexcept {
+    return m_.devices == 1 ? last_.v : Eigen::Vector2d(g_.last.v.segment<2>(2 * device));
+  }
   /// Output (real volts) the DC state gives with the generator at 0 V.
   double dc_output_v() const noexcept { return y_dc_; }
 
@@ -136,9 +147,44 @@ class dk_engine {
   };
 
 
+  // The general path for more than one JFET (model/dk_multi.cpp). Every size is fixed when
+  // the engine is built, so the sample loop allocates nothing.
+  struct port_set {
+    Eigen::VectorXd v;   ///< 2k port voltages
+    Eigen::VectorXd i;   ///< 3k device currents
+    Eigen::MatrixXd jf;  ///< 3k x 2k, di/dv, block diagonal
+    Eigen::MatrixXd m;   ///< 2k x 2k, dv/dp = (I - F Jf)^-1
+    void resize(int k);
+  };
+  struct general_path {
+    std::vector<detail::device_consts> dev;
+    std::vector<detail::port_currents> cur;     // per JFET, at the Newton iterate
+    Eigen::MatrixXd f_abs;                      // |F|
+    Eigen::MatrixXd w;                          // [A - I, B, C; D A, D B, D C; Do, Eo, Fo]
+    Eigen::VectorXd pre, out;                   // W's x and u columns times [x; u]; the product
+    Eigen::VectorXd q, p, p_last, p_dc, v_ext, p_ext, dp;
+    Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
+    Eigen::MatrixXd j;                          // I - F Jf, then its LU factors
+    std::vector<int> piv;                       // the LU's row interchanges
+    port_set last, dc, trial, cur_pt, next_pt;
+    Eigen::MatrixXd v_hist, p_hist;             // columns v_{n-2}, v_{n-3}, v_{n-4} (and p)
+    Eigen::MatrixXd cj, md;                     // process_tracked: C Jf (ns x 2k), M D (2k x ns)
+  };
+
   void init(const network& net, const operating_point& op);
   double step(double generator_v) noexcept;
   double junction_step_scale(double v0, double v1, double d0, double d1) const noexcept;
+  void init_general(const network& net, const operating_point& op);
+  void reset_general();
+  double process_general(double generator_v) noexcept;
+  void point_general(const Eigen::VectorXd& v, port_set& out) noexcept;
+  // K JFETs at compile time (fixed-size views of the storage), or K = 0: any number.
+  template <int K>
+  double process_k(double generator_v) noexcept;
+  template <int K>
+  bool solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& guess, port_set& out, int& evals) noexcept;
+  template <int K>
+  void substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept;
   bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
   void substep(const Eigen::Vector2d& p, port_point& out, int& evals) noexcept;
   port_point point_at(const Eigen::Vector2d& v) const noexcept;
@@ -149,6 +195,8 @@ class dk_engine {
   double sign_{1.0};
   double supply_v_{0};              // network frame
   bool wide_{false};                // AVX2 + FMA update kernels (see dk_engine.cpp)
+  Eigen::Matrix<double, 2, 3> f1_;  // one JFET: F and E at fixed size
+  Eigen::Matrix2d e1_;
   Eigen::Matrix<double, 2, 3> f_abs_;
   // Stacked update: [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n], ns + 3 rows, ns + 5 cols.
   Eigen::MatrixXd w_;  // rows padded to whole packets (zero rows)
@@ -169,6 +217,7 @@ class dk_engine {
   Eigen::MatrixXd phi_, tmp_;
   Eigen::Matrix<double, Eigen::Dynamic, 2> cj_;
   Eigen::Matrix<double, 2, Eigen::Dynamic> md_;
+  general_path g_;                  // more than one JFET only
 };
 
 }  // namespace pinchoff::model

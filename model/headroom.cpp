@@ -4,6 +4,8 @@
 #include <cmath>
 #include <vector>
 
+#include "dsp/error.hpp"
+
 namespace pinchoff::model {
 namespace {
 
@@ -22,11 +24,11 @@ probe evaluate(const network& net, std::span<const cap_treatment> caps, double u
     return p;
   }
   p.ok = true;
-  const double vd = node_v(x, net.drain), vg = node_v(x, net.gate), vs = node_v(x, net.source);
+  const double vd = node_v(x, net.jfet().drain), vg = node_v(x, net.jfet().gate), vs = node_v(x, net.jfet().source);
   const double vgs = vg - vs, vds = vd - vs;
-  const double scale = std::max(1.0, std::fabs(net.device.vp_v));
-  const double m_triode = (vds - (vgs - net.device.vp_v)) / scale;
-  const double m_cutoff = (vgs - net.device.vp_v) / scale;
+  const double scale = std::max(1.0, std::fabs(net.jfet().device.vp_v));
+  const double m_triode = (vds - (vgs - net.jfet().device.vp_v)) / scale;
+  const double m_cutoff = (vgs - net.jfet().device.vp_v) / scale;
   const double m_gate = -vgs / scale;
   p.margin = m_triode;
   p.kind = swing_limit_kind::triode;
@@ -56,6 +58,7 @@ const char* swing_limit_text(swing_limit_kind k) noexcept {
 }
 
 headroom_figures analyse_headroom(const network& net, const operating_point& op) {
+  if (net.devices() != 1) throw internal_error("the headroom sweep handles a network of one JFET");
   std::vector<cap_treatment> caps = uniform_caps(net, cap_treatment::kind::open);
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     const net_capacitor& c = net.capacitors[k];
@@ -72,7 +75,7 @@ headroom_figures analyse_headroom(const network& net, const operating_point& op)
   const double out0 = rest.output_v;
 
   headroom_figures h;
-  h.search_limit_v = 4.0 * (net.supply_v + std::fabs(net.device.vp_v));
+  h.search_limit_v = 4.0 * (net.supply_v + std::fabs(net.jfet().device.vp_v));
   constexpr int steps = 200;
   const double du = h.search_limit_v / steps;
 

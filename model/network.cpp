@@ -19,8 +19,9 @@ network build_network(const stage& s) {
     if (f > 0.0) net.capacitors.push_back({a, b, f, role, key});
   };
 
-  net.device = s.jfet;
-  net.device.vp_v = net.sign * s.jfet.vp_v;
+  net_jfet& q = net.jfets.emplace_back();
+  q.device = s.jfet;
+  q.device.vp_v = net.sign * s.jfet.vp_v;
   net.vt_v = thermal_voltage(s.temperature_k);
   net.supply_v = net.sign * s.supply.volts_v;
 
@@ -43,38 +44,38 @@ network build_network(const stage& s) {
     net.input_node = new_node("input");
     add_r(net.generator_node, net.input_node, s.signal_impedance_ohm, "signal.impedance");
   }
-  net.gate = net.input_node;
+  q.gate = net.input_node;
   if (s.gate.coupling_cap_f > 0.0) {
-    net.gate = new_node("gate");
-    add_c(net.input_node, net.gate, s.gate.coupling_cap_f, cap_role::input_coupling, "gate.coupling_cap");
+    q.gate = new_node("gate");
+    add_c(net.input_node, q.gate, s.gate.coupling_cap_f, cap_role::input_coupling, "gate.coupling_cap");
   }
 
   // Gate bias: gate resistor to the bias node; the bias node is ground or a divider.
   const bool has_divider = s.gate.bias_top_ohm > 0.0 || s.gate.bias_bottom_ohm > 0.0;
   int bias_node = 0;
-  if (has_divider) bias_node = s.gate.resistor_ohm > 0.0 ? new_node("bias") : net.gate;
-  if (s.gate.resistor_ohm > 0.0) add_r(net.gate, bias_node, s.gate.resistor_ohm, "gate.resistor");
+  if (has_divider) bias_node = s.gate.resistor_ohm > 0.0 ? new_node("bias") : q.gate;
+  if (s.gate.resistor_ohm > 0.0) add_r(q.gate, bias_node, s.gate.resistor_ohm, "gate.resistor");
   if (s.gate.bias_top_ohm > 0.0) add_r(rail, bias_node, s.gate.bias_top_ohm, "gate.bias_top");
   if (s.gate.bias_bottom_ohm > 0.0) add_r(bias_node, 0, s.gate.bias_bottom_ohm, "gate.bias_bottom");
 
   // Drain.
-  net.drain = rail;
+  q.drain = rail;
   if (s.drain_resistor_ohm > 0.0) {
-    net.drain = new_node("drain");
-    add_r(rail, net.drain, s.drain_resistor_ohm, "drain.resistor");
+    q.drain = new_node("drain");
+    add_r(rail, q.drain, s.drain_resistor_ohm, "drain.resistor");
   }
 
   // Source: terminal -> unbypassed -> node -> (resistor || bypass) -> ground.
-  net.source = new_node("source");
-  int mid = net.source;
+  q.source = new_node("source");
+  int mid = q.source;
   if (s.source.unbypassed_ohm > 0.0) {
     mid = new_node("source_mid");
-    add_r(net.source, mid, s.source.unbypassed_ohm, "source.unbypassed");
+    add_r(q.source, mid, s.source.unbypassed_ohm, "source.unbypassed");
   }
   if (s.source.resistor_ohm > 0.0) {
     add_r(mid, 0, s.source.resistor_ohm, "source.resistor");
     add_c(mid, 0, s.source.bypass_cap_f, cap_role::source_bypass, "source.bypass_cap");
-  } else if (mid != net.source) {
+  } else if (mid != q.source) {
     // Only the unbypassed part: its far end is ground. Rewire the last resistor.
     net.resistors.back().b = 0;
     net.node_names.pop_back();
@@ -83,14 +84,14 @@ network build_network(const stage& s) {
     // Source grounded: merge the source node with ground.
     net.node_names.pop_back();
     --net.node_count;
-    net.source = 0;
+    q.source = 0;
   }
 
-  add_c(net.gate, net.source, s.jfet.cgs_f, cap_role::junction_gs, "jfet.cgs");
-  add_c(net.gate, net.drain, s.jfet.cgd_f, cap_role::junction_gd, "jfet.cgd");
+  add_c(q.gate, q.source, s.jfet.cgs_f, cap_role::junction_gs, "jfet.cgs");
+  add_c(q.gate, q.drain, s.jfet.cgd_f, cap_role::junction_gd, "jfet.cgd");
 
   // Output across the load.
-  net.output_tap = s.topo == topology::common_source ? net.drain : net.source;
+  net.output_tap = s.topo == topology::common_source ? q.drain : q.source;
   net.output_node = net.output_tap;
   net.has_load = s.output.load_ohm > 0.0;
   if (net.has_load) {

@@ -1,12 +1,14 @@
 #pragma once
 // The stage as a circuit: numbered nodes (0 = ground), linear parts, two ideal voltage
-// sources (the supply and the signal generator) and one JFET. Every analysis builds on
+// sources (the supply and the signal generator) and a list of JFETs (one for a stage read
+// from a stage file; chains of stages built in code list more). Every analysis builds on
 // this: the DC operating point, small-signal figures, the frequency response and the
 // time-domain engines.
 //
 // The network is always the n-channel mirror image: for a p-channel stage every voltage
 // and current is negated (Sedra & Smith's complementary-circuit argument, common
-// practice), so `supply_v` > 0 and `device.vp_v` < 0. Real value = sign * network value.
+// practice), so `supply_v` > 0 and every `device.vp_v` < 0. Real value = sign * network
+// value. The sign is one per network: all of its JFETs have the same polarity.
 #include <string>
 #include <string_view>
 #include <vector>
@@ -35,6 +37,12 @@ struct net_capacitor {
   std::string_view key;
 };
 
+/// One JFET of the network: its terminals and its parameters (mirrored: vp_v < 0).
+struct net_jfet {
+  int drain{0}, gate{0}, source{0};
+  jfet_params device;
+};
+
 struct network {
   int node_count{1};                  ///< including ground, node 0
   std::vector<std::string> node_names;
@@ -44,13 +52,20 @@ struct network {
   double supply_v{0};     ///< mirrored supply voltage, > 0
   int generator_node{0};  ///< ideal generator from ground: V = u (mirrored)
   int input_node{0};      ///< after the generator impedance; stage input impedance seen here
-  int drain{0}, gate{0}, source{0};  ///< JFET terminals
-  int output_tap{0};      ///< drain (common source) or source terminal (follower)
+  /// The JFETs, at least one. The solvers (nodal, DC point, reference transient, DK
+  /// engine) handle any number; the stage analyses built on one stage (small signal,
+  /// headroom, tune) use the first.
+  std::vector<net_jfet> jfets;
+  int output_tap{0};      ///< drain (common source) or source terminal (follower) of the first JFET
   int output_node{0};     ///< the node across the load (after the output coupling cap)
   bool has_load{false};
-  jfet_params device;     ///< mirrored: vp_v < 0
-  double vt_v{0};
-  double sign{1.0};       ///< +1 n-channel, -1 p-channel
+  double vt_v{0};         ///< thermal voltage, the same for every JFET
+  double sign{1.0};       ///< +1 n-channel, -1 p-channel (every JFET of the network)
+
+  /// The first JFET: the stage's device for the analyses of a single stage.
+  const net_jfet& jfet() const { return jfets.front(); }
+  net_jfet& jfet() { return jfets.front(); }
+  int devices() const noexcept { return static_cast<int>(jfets.size()); }
 };
 
 /// Builds the network of a validated stage.

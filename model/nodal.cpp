@@ -8,14 +8,13 @@ namespace {
 
 struct jfet_currents {
   double id, igs, igd;           // channel d->s, junction g->s, junction g->d
-  double gm, gds, ggs, ggd;      // derivatives
 };
 
-jfet_currents eval_jfet(const network& net, double vgs, double vds) noexcept {
-  const channel_eval ch = drain_current(net.device, vgs, vds);
-  const junction_eval js = junction_current(net.device, vgs, net.vt_v);
-  const junction_eval jd = junction_current(net.device, vgs - vds, net.vt_v);
-  return {ch.id_a, js.i_a, jd.i_a, ch.gm_s, ch.gds_s, js.g_s, jd.g_s};
+jfet_currents eval_jfet(const net_jfet& q, double vt_v, double vgs, double vds) noexcept {
+  const channel_eval ch = drain_current(q.device, vgs, vds);
+  const junction_eval js = junction_current(q.device, vgs, vt_v);
+  const junction_eval jd = junction_current(q.device, vgs - vds, vt_v);
+  return {ch.id_a, js.i_a, jd.i_a};
 }
 
 // Node k's row in the unknown vector, or -1 for ground.
@@ -26,16 +25,18 @@ void residual(const network& net, const mna_system& lin, const Eigen::VectorXd& 
               Eigen::VectorXd& scale) {
   f = lin.a * x - lin.rhs;
   scale = (lin.a.cwiseAbs() * x.cwiseAbs()) + lin.rhs.cwiseAbs();
-  const double vd = node_v(x, net.drain), vg = node_v(x, net.gate), vs = node_v(x, net.source);
-  const jfet_currents c = eval_jfet(net, vg - vs, vd - vs);
   auto add = [&](int node, double i) {
     if (node == 0) return;
     f[row(node)] += i;
     scale[row(node)] += std::fabs(i);
   };
-  add(net.drain, c.id - c.igd);
-  add(net.gate, c.igs + c.igd);
-  add(net.source, -c.id - c.igs);
+  for (const net_jfet& q : net.jfets) {
+    const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
+    const jfet_currents c = eval_jfet(q, net.vt_v, vg - vs, vd - vs);
+    add(q.drain, c.id - c.igd);
+    add(q.gate, c.igs + c.igd);
+    add(q.source, -c.id - c.igs);
+  }
 }
 
 }  // namespace
@@ -103,49 +104,59 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
   Eigen::MatrixXd jac(n, n);
   Eigen::VectorXd rhs(n), x_new(n), f(n), scale(n);
   Eigen::PartialPivLU<Eigen::MatrixXd> lu(n);
-  const double nvt = net.device.n * net.vt_v;
-  const double vcrit = critical_voltage(net.device, net.vt_v);
 
   // SPICE practice (Nagel 1975): the gate junctions are evaluated at their own limited
   // voltages, which follow the node voltages by at most a logarithmic step once forward
   // biased; each Newton step solves the network with the junctions replaced by their
   // tangent (Norton) at those voltages. The first evaluation starts at most at vcrit.
+  // Every JFET has its own pair of limited junction voltages.
   auto vpair = [&](const Eigen::VectorXd& v, int p, int q) { return node_v(v, p) - node_v(v, q); };
-  double jgs = std::min(vpair(x, net.gate, net.source), vcrit);
-  double jgd = std::min(vpair(x, net.gate, net.drain), vcrit);
+  struct junction_state {
+    double nvt, vcrit, jgs, jgd;
+  };
+  std::vector<junction_state> js_state;
+  js_state.reserve(net.jfets.size());
+  for (const net_jfet& q : net.jfets) {
+    const double vcrit = critical_voltage(q.device, net.vt_v);
+    js_state.push_back({q.device.n * net.vt_v, vcrit, std::min(vpair(x, q.gate, q.source), vcrit),
+                        std::min(vpair(x, q.gate, q.drain), vcrit)});
+  }
 
   newton_result res;
   for (int it = 1; it <= opt.max_iterations; ++it) {
     res.iterations = it;
-    const double vd = node_v(x, net.drain), vg = node_v(x, net.gate), vs = node_v(x, net.source);
-    const channel_eval ch = drain_current(net.device, vg - vs, vd - vs);
-    const junction_eval js = junction_current(net.device, jgs, net.vt_v);
-    const junction_eval jd = junction_current(net.device, jgd, net.vt_v);
-
     // Linear system for the next iterate: A x' + [i(x) + J (x' - x)] = rhs, with the
     // junction currents linearised at their limited voltages.
     jac = lin.a;
     rhs = lin.rhs;
-    const int nodes[3] = {net.drain, net.gate, net.source};
-    const double did[3] = {ch.gds_s, ch.gm_s, -ch.gm_s - ch.gds_s};
-    const double digs[3] = {0.0, js.g_s, -js.g_s};
-    const double digd[3] = {-jd.g_s, jd.g_s, 0.0};
-    // Current of each element at the expansion point, minus its tangent times that point.
-    const double id0 = ch.id_a - (did[0] * vd + did[1] * vg + did[2] * vs);
-    const double igs0 = js.i_a - js.g_s * jgs;
-    const double igd0 = jd.i_a - jd.g_s * jgd;
-    auto add_rhs = [&](int node, double i) {
-      if (node != 0) rhs[row(node)] -= i;
-    };
-    add_rhs(net.drain, id0 - igd0);
-    add_rhs(net.gate, igs0 + igd0);
-    add_rhs(net.source, -id0 - igs0);
-    for (int col = 0; col < 3; ++col) {
-      if (nodes[col] == 0) continue;
-      const int cj = row(nodes[col]);
-      if (net.drain != 0) jac(row(net.drain), cj) += did[col] - digd[col];
-      if (net.gate != 0) jac(row(net.gate), cj) += digs[col] + digd[col];
-      if (net.source != 0) jac(row(net.source), cj) += -did[col] - digs[col];
+    for (std::size_t k = 0; k < net.jfets.size(); ++k) {
+      const net_jfet& q = net.jfets[k];
+      const junction_state& st = js_state[k];
+      const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
+      const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
+      const junction_eval js = junction_current(q.device, st.jgs, net.vt_v);
+      const junction_eval jd = junction_current(q.device, st.jgd, net.vt_v);
+      const int nodes[3] = {q.drain, q.gate, q.source};
+      const double did[3] = {ch.gds_s, ch.gm_s, -ch.gm_s - ch.gds_s};
+      const double digs[3] = {0.0, js.g_s, -js.g_s};
+      const double digd[3] = {-jd.g_s, jd.g_s, 0.0};
+      // Current of each element at the expansion point, minus its tangent times that point.
+      const double id0 = ch.id_a - (did[0] * vd + did[1] * vg + did[2] * vs);
+      const double igs0 = js.i_a - js.g_s * st.jgs;
+      const double igd0 = jd.i_a - jd.g_s * st.jgd;
+      auto add_rhs = [&](int node, double i) {
+        if (node != 0) rhs[row(node)] -= i;
+      };
+      add_rhs(q.drain, id0 - igd0);
+      add_rhs(q.gate, igs0 + igd0);
+      add_rhs(q.source, -id0 - igs0);
+      for (int col = 0; col < 3; ++col) {
+        if (nodes[col] == 0) continue;
+        const int cj = row(nodes[col]);
+        if (q.drain != 0) jac(row(q.drain), cj) += did[col] - digd[col];
+        if (q.gate != 0) jac(row(q.gate), cj) += digs[col] + digd[col];
+        if (q.source != 0) jac(row(q.source), cj) += -did[col] - digs[col];
+      }
     }
     lu.compute(jac);
     x_new = lu.solve(rhs);
@@ -159,25 +170,34 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
 
     // Channel step limiting (in the spirit of SPICE's fetlim): the square law is only
     // trustworthy over about one pinch-off voltage, so a larger change of vgs in one
-    // step is scaled back along the Newton direction.
+    // step is scaled back along the Newton direction (by the most any JFET asks for).
     {
-      const double dvgs = (node_v(x_new, net.gate) - node_v(x_new, net.source)) - (vg - vs);
-      const double max_dvgs = std::max(std::fabs(net.device.vp_v), 0.5);
-      if (std::fabs(dvgs) > max_dvgs) x_new = x + (max_dvgs / std::fabs(dvgs)) * (x_new - x);
+      double scale_back = 1.0;
+      for (const net_jfet& q : net.jfets) {
+        const double dvgs = vpair(x_new, q.gate, q.source) - vpair(x, q.gate, q.source);
+        const double max_dvgs = std::max(std::fabs(q.device.vp_v), 0.5);
+        if (std::fabs(dvgs) > max_dvgs) scale_back = std::min(scale_back, max_dvgs / std::fabs(dvgs));
+      }
+      if (scale_back < 1.0) x_new = x + scale_back * (x_new - x);
     }
     double worst_step = 0.0;
     for (int k = 0; k < lin.node_unknowns; ++k)
       worst_step = std::max(worst_step, std::fabs(x_new[k] - x[k]) / (opt.vtol_v + opt.vtol_rel * std::fabs(x_new[k])));
     x = x_new;
 
-    const double ags = vpair(x, net.gate, net.source), agd = vpair(x, net.gate, net.drain);
-    const double lgs = limit_junction(ags, jgs, nvt, vcrit), lgd = limit_junction(agd, jgd, nvt, vcrit);
-    const bool limited = lgs != ags || lgd != agd;
-    const bool junctions_settled =
-        std::fabs(ags - jgs) <= opt.vtol_v + opt.vtol_rel * std::fabs(ags) + 1e-9 * nvt &&
-        std::fabs(agd - jgd) <= opt.vtol_v + opt.vtol_rel * std::fabs(agd) + 1e-9 * nvt;
-    jgs = lgs;
-    jgd = lgd;
+    bool limited = false, junctions_settled = true;
+    for (std::size_t k = 0; k < net.jfets.size(); ++k) {
+      const net_jfet& q = net.jfets[k];
+      junction_state& st = js_state[k];
+      const double ags = vpair(x, q.gate, q.source), agd = vpair(x, q.gate, q.drain);
+      const double lgs = limit_junction(ags, st.jgs, st.nvt, st.vcrit), lgd = limit_junction(agd, st.jgd, st.nvt, st.vcrit);
+      limited = limited || lgs != ags || lgd != agd;
+      junctions_settled = junctions_settled &&
+                          std::fabs(ags - st.jgs) <= opt.vtol_v + opt.vtol_rel * std::fabs(ags) + 1e-9 * st.nvt &&
+                          std::fabs(agd - st.jgd) <= opt.vtol_v + opt.vtol_rel * std::fabs(agd) + 1e-9 * st.nvt;
+      st.jgs = lgs;
+      st.jgd = lgd;
+    }
     if (!limited && junctions_settled && worst_step <= 1.0) {
       residual(net, lin, x, f, scale);
       double worst = 0.0;

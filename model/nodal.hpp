@@ -1,6 +1,6 @@
 #pragma once
 // Modified nodal analysis of a network (Ho, Ruehli & Brennan, IEEE TCAS 22(6), 1975) and
-// the full nodal Newton solve with the JFET. This is the plain, general solver: the DC
+// the full nodal Newton solve with the JFETs. This is the plain, general solver: the DC
 // operating point, quasi-static sweeps and the reference time-domain solver use it.
 //
 // Unknowns: node voltages 1..N-1 (index k-1 for node k), then the currents of the supply
@@ -52,7 +52,7 @@ struct nodal_options {
   double itol_rel{1e-12};
 };
 
-/// Solves the linear system plus the JFET by damped Newton with junction limiting.
+/// Solves the linear system plus every JFET by damped Newton with junction limiting.
 /// `v` holds all unknowns: on entry the starting guess, on exit the solution (or the last
 /// iterate when not converged).
 newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::VectorXd& v,

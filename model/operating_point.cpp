@@ -7,11 +7,13 @@
 
 namespace pinchoff::model {
 
-terminal_point terminals_of(const network& net, const Eigen::VectorXd& x) {
-  const double vd = node_v(x, net.drain), vg = node_v(x, net.gate), vs = node_v(x, net.source);
-  const channel_eval ch = drain_current(net.device, vg - vs, vd - vs);
-  const double ig = junction_current(net.device, vg - vs, net.vt_v).i_a +
-                    junction_current(net.device, vg - vd, net.vt_v).i_a;
+terminal_point terminals_of(const network& net, const Eigen::VectorXd& x, int device) {
+  if (device < 0 || device >= net.devices()) throw internal_error("terminals_of: no such JFET in the network");
+  const net_jfet& q = net.jfets[static_cast<std::size_t>(device)];
+  const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
+  const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
+  const double ig = junction_current(q.device, vg - vs, net.vt_v).i_a +
+                    junction_current(q.device, vg - vd, net.vt_v).i_a;
   terminal_point t;
   t.vg_v = net.sign * vg;
   t.vs_v = net.sign * vs;
@@ -20,7 +22,7 @@ terminal_point terminals_of(const network& net, const Eigen::VectorXd& x) {
   t.vds_v = net.sign * (vd - vs);
   t.id_a = net.sign * ch.id_a;
   t.ig_a = net.sign * ig;
-  t.region = region_of(net.device, vg - vs, vd - vs);
+  t.region = region_of(q.device, vg - vs, vd - vs);
   return t;
 }
 

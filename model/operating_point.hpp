@@ -1,5 +1,5 @@
 #pragma once
-// DC operating point of a stage: every capacitor open, generator at 0 V.
+// DC operating point of a network (any number of JFETs): every capacitor open, generator at 0 V.
 #include <string>
 
 #include <Eigen/Dense>
@@ -20,7 +20,7 @@ struct terminal_point {
 };
 
 struct operating_point {
-  terminal_point at;
+  terminal_point at;        ///< of the first JFET (terminals_of(net, x, k) gives JFET k)
   Eigen::VectorXd x;        ///< the network solution (mirrored), for the analyses built on it
   newton_result newton;     ///< the final Newton solve
   int source_steps{0};      ///< 0 when the direct solve converged; else steps of the ramp
@@ -36,7 +36,8 @@ operating_point solve_operating_point(const network& net);
 newton_result solve_point(const network& net, std::span<const cap_treatment> caps, double generator_v,
                           Eigen::VectorXd& x);
 
-/// Reads the terminal quantities (real signs) out of a network solution.
-terminal_point terminals_of(const network& net, const Eigen::VectorXd& x);
+/// Reads the terminal quantities (real signs) of JFET `device` (0: the first) out of a
+/// network solution. Throws internal_error for an index out of range.
+terminal_point terminals_of(const network& net, const Eigen::VectorXd& x, int device = 0);
 
 }  // namespace pinchoff::model

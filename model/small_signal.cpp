@@ -3,6 +3,8 @@
 #include <cmath>
 #include <numbers>
 
+#include "dsp/error.hpp"
+
 namespace pinchoff::model {
 namespace {
 using cplx = std::complex<double>;
@@ -10,13 +12,15 @@ inline int row(int node) noexcept { return node - 1; }
 }  // namespace
 
 jfet_linear linearise(const network& net, const operating_point& op) {
-  const double vd = node_v(op.x, net.drain), vg = node_v(op.x, net.gate), vs = node_v(op.x, net.source);
-  const channel_eval ch = drain_current(net.device, vg - vs, vd - vs);
-  return {ch.gm_s, ch.gds_s, junction_current(net.device, vg - vs, net.vt_v).g_s,
-          junction_current(net.device, vg - vd, net.vt_v).g_s};
+  if (net.devices() != 1) throw internal_error("small-signal analysis handles a network of one JFET");
+  const double vd = node_v(op.x, net.jfet().drain), vg = node_v(op.x, net.jfet().gate), vs = node_v(op.x, net.jfet().source);
+  const channel_eval ch = drain_current(net.jfet().device, vg - vs, vd - vs);
+  return {ch.gm_s, ch.gds_s, junction_current(net.jfet().device, vg - vs, net.vt_v).g_s,
+          junction_current(net.jfet().device, vg - vd, net.vt_v).g_s};
 }
 
 Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, const ac_setup& setup) {
+  if (net.devices() != 1) throw internal_error("small-signal analysis handles a network of one JFET");
   const int nu = net.node_count - 1;
   int branches = 1 + (setup.generator_present ? 1 : 0);
   if (setup.midband)
@@ -78,10 +82,10 @@ Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, 
     }
   }
   // JFET: channel current d -> s controlled by vgs and vds; junction conductances.
-  stamp_vccs(net.drain, net.source, net.gate, net.source, lin.gm_s);
-  if (setup.include_gds) stamp_y(net.drain, net.source, lin.gds_s);
-  stamp_y(net.gate, net.source, lin.ggs_s);
-  stamp_y(net.gate, net.drain, lin.ggd_s);
+  stamp_vccs(net.jfet().drain, net.jfet().source, net.jfet().gate, net.jfet().source, lin.gm_s);
+  if (setup.include_gds) stamp_y(net.jfet().drain, net.jfet().source, lin.gds_s);
+  stamp_y(net.jfet().gate, net.jfet().source, lin.ggs_s);
+  stamp_y(net.jfet().gate, net.jfet().drain, lin.ggd_s);
 
   if (setup.inject_a >= 0) {
     if (setup.inject_a != 0) rhs[row(setup.inject_a)] += 1.0;

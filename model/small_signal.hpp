@@ -1,5 +1,6 @@
 #pragma once
-// Small-signal (linearised) analysis at the operating point: the JFET becomes gm, gds and
+// Small-signal (linearised) analysis at the operating point of a one-JFET network (the
+// functions throw internal_error for more): the JFET becomes gm, gds and
 // the two gate-junction conductances; capacitors are either admittances s C, or (in the
 // mid-band) shorts for coupling, bypass and reservoir capacitors and open for the junction
 // capacitances. Solved as a complex modified nodal system.

@@ -41,8 +41,9 @@ double transient_reference::process(double generator_v) {
   return net_.sign * node_v(x_, net_.output_node);
 }
 
-Eigen::Vector2d transient_reference::ports_v() const {
-  const double vg = node_v(x_, net_.gate), vs = node_v(x_, net_.source), vd = node_v(x_, net_.drain);
+Eigen::Vector2d transient_reference::ports_v(int device) const {
+  const net_jfet& q = net_.jfets.at(static_cast<std::size_t>(device));
+  const double vg = node_v(x_, q.gate), vs = node_v(x_, q.source), vd = node_v(x_, q.drain);
   return net_.sign * Eigen::Vector2d(vg - vs, vd - vs);
 }
 

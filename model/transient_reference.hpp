@@ -42,8 +42,8 @@ class transient_reference {
   /// One sample: generator open-circuit voltage in, voltage across the load out (real volts).
   double process(double generator_v);
 
-  /// Port voltages (vgs, vds) of the last sample, real signs.
-  Eigen::Vector2d ports_v() const;
+  /// Port voltages (vgs, vds) of JFET `device` (0: the first) at the last sample, real signs.
+  Eigen::Vector2d ports_v(int device = 0) const;
   /// The full network solution of the last sample (network frame).
   const Eigen::VectorXd& solution() const noexcept { return x_; }
   const reference_stats& stats() const noexcept { return stats_; }

@@ -11,6 +11,7 @@
 #include <vector>
 
 #include "engine_stages.hpp"
+#include "multi_device_networks.hpp"
 #include "model/dk_device.hpp"
 #include "model/dk_engine.hpp"
 #include "model/jfet.hpp"
@@ -178,6 +179,41 @@ TEST_CASE("the sample loop allocates nothing") {
   std::vector<double>* probe = new std::vector<double>(100);
   CHECK(heap_allocations.load() - before >= 2);
   delete probe;
+#else
+  MESSAGE("allocation counting needs glibc without a sanitizer; not checked in this build");
+#endif
+}
+
+TEST_CASE("the sample loop allocates nothing with more than one JFET") {
+#ifdef PINCHOFF_COUNT_ALLOCATIONS
+  // The general path (LU of I - F Jf, per-JFET limiting and bounds, sub-steps), at a drive
+  // that clips both stages and so takes every branch of it; sub-steps forced by a low
+  // iteration cap in a second engine.
+  const model::network net = pinchoff::test::two_stage_network();
+  model::dk_engine eng(net, 384000.0);
+  model::dk_options few;
+  few.max_iterations = 3;
+  model::dk_options confirm;
+  confirm.confirm = true;
+  model::dk_engine starved(net, 384000.0, few), checked(net, 384000.0, confirm);
+  REQUIRE(eng.devices() == 2);
+  Eigen::MatrixXd sens = Eigen::MatrixXd::Identity(eng.states(), eng.states());
+  std::vector<double> buf(512);
+  for (std::size_t n = 0; n < buf.size(); ++n) buf[n] = sine(6.0, 1000.0, 384000.0, static_cast<int>(n));
+  const long before = heap_allocations.load();
+  double sum = 0.0;
+  for (int n = 0; n < 2000; ++n) {
+    const double u = sine(6.0, 1000.0, 384000.0, n);
+    sum += eng.process(u) + starved.process(u) + checked.process(u);
+  }
+  eng.process(buf, buf);
+  for (int n = 0; n < 500; ++n) sum += eng.process_tracked(sine(6.0, 1000.0, 384000.0, n), sens);
+  const long during = heap_allocations.load() - before;
+  CHECK(std::isfinite(sum));
+  CHECK(during == 0);
+  CHECK(starved.stats().substepped > 0);
+  CHECK(checked.stats().bound_misses == 0);
+  eng.reset();
 #else
   MESSAGE("allocation counting needs glibc without a sanitizer; not checked in this build");
 #endif

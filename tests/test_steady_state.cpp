@@ -155,7 +155,7 @@ TEST_CASE("square-law stage: HD2 = A / (4 (VGSQ - VP)) and no third harmonic") {
     const long double h1 = harmonic_amplitude(ss.output_v, 1);
     const long double h2 = harmonic_amplitude(ss.output_v, 2);
     const long double h3 = harmonic_amplitude(ss.output_v, 3);
-    const double expected = r.amplitude_v / (4.0 * (ss.mean_vgs_v - net.device.vp_v));
+    const double expected = r.amplitude_v / (4.0 * (ss.mean_vgs_v - net.jfet().device.vp_v));
     CAPTURE(ss.mean_vgs_v);
     CHECK(std::fabs(db(h2 / h1) - db(expected)) <= r.tol_db);
     if (r.tol_db < 1e-3) {
@@ -166,7 +166,7 @@ TEST_CASE("square-law stage: HD2 = A / (4 (VGSQ - VP)) and no third harmonic") {
       // Bypassed source: the 2nd-harmonic current through the bypass (|Zc(2 f)|) mixes with
       // the drive: H3 ~ HD2 gm A |Zc(2f)| / (2 (VGSQ - VP)) (first-order perturbation,
       // computed), far below HD2; allow twice that.
-      const double vgst = ss.mean_vgs_v - net.device.vp_v;
+      const double vgst = ss.mean_vgs_v - net.jfet().device.vp_v;
       const double gm = 2.0 * (8e-3 / 9.0) * vgst;
       const double zc2 = 1.0 / (2.0 * std::numbers::pi * 2000.0 * 0.1);
       const double h3_estimate = expected * gm * r.amplitude_v * zc2 / (2.0 * vgst);

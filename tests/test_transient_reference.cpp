@@ -34,7 +34,7 @@ comparison compare(const model::network& net, double amplitude_v, double f_hz, d
     c.worst_output_v = std::max(c.worst_output_v, std::fabs(a - b));
     c.worst_ports_v = std::max(c.worst_ports_v, (eng.ports_v() - ref.ports_v()).cwiseAbs().maxCoeff());
     const Eigen::Vector2d v = eng.ports_network_v();
-    c.min_vgst_v = std::min(c.min_vgst_v, v[0] - net.device.vp_v);
+    c.min_vgst_v = std::min(c.min_vgst_v, v[0] - net.jfet().device.vp_v);
     c.max_vgs_v = std::max(c.max_vgs_v, v[0]);
   }
   c.engine = eng.stats();
