@@ -3,9 +3,7 @@
 // the periodic steady state, aliasing against the oversampling factor, Ctrl-C, and flat
 // memory. CLI runs are in-process with argv vectors (as tests/test_cli.cpp), except
 // where a child process is the point (a signal, its peak memory).
-#include <fcntl.h>
 #include <signal.h>
-#include <spawn.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
@@ -38,9 +36,8 @@
 #include "model/render.hpp"
 #include "model/stage_file.hpp"
 #include "model/steady_state.hpp"
+#include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
-
-extern char** environ;
 
 namespace {
 
@@ -596,19 +593,8 @@ namespace {
 
 // Runs the built program with `args`, stdout and stderr to /dev/null; returns its pid.
 pid_t spawn(const std::vector<std::string>& args) {
-  std::vector<std::string> all{PINCHOFF_BINARY};
-  all.insert(all.end(), args.begin(), args.end());
-  std::vector<char*> argv;
-  for (std::string& a : all) argv.push_back(a.data());
-  argv.push_back(nullptr);
-  posix_spawn_file_actions_t fa;
-  posix_spawn_file_actions_init(&fa);
-  posix_spawn_file_actions_addopen(&fa, 1, "/dev/null", O_WRONLY, 0);
-  posix_spawn_file_actions_addopen(&fa, 2, "/dev/null", O_WRONLY, 0);
-  pid_t pid = -1;
-  const int e = posix_spawn(&pid, argv[0], &fa, nullptr, argv.data(), environ);
-  posix_spawn_file_actions_destroy(&fa);
-  REQUIRE(e == 0);
+  const pid_t pid = pinchoff::testing::spawn_cli(args);
+  REQUIRE(pid > 0);
   return pid;
 }
 
