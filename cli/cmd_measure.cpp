@@ -116,6 +116,7 @@ measure_report analyse(const measure_options& o) {
   r.band_high_hz = s.band_high_hz = std::min(s.band_high_hz, fs / 2);
   if (s.approx_fundamental_hz >= fs / 2)
     throw input_error("--freq " + o.freq_text + " lies above half the file's sample rate (" + format_si(fs / 2, "Hz") + ")");
+  if (r.info.frames <= 0) throw input_error("'" + o.path + "' holds no audio (a header and no frames)");
   r.first_frame = static_cast<std::int64_t>(std::llround(o.start_s * fs));
   if (r.first_frame >= r.info.frames)
     throw input_error("--start " + format_number(o.start_s) + " s lies beyond the end of '" + o.path + "' (" +

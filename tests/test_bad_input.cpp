@@ -124,6 +124,19 @@ struct fixtures {
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", "--format", "float", f("float48.wav")}).status == 0);
     write(f("empty.wav"), "");
     {
+      // A WAV header (PCM, mono, 48 kHz, 16-bit) whose data chunk holds no frames.
+      std::string h = "RIFF";
+      auto le = [&h](std::uint32_t v, int bytes) {
+        for (int k = 0; k < bytes; ++k) h.push_back(static_cast<char>((v >> (8 * k)) & 0xffu));
+      };
+      le(36, 4);
+      h += "WAVEfmt ";
+      le(16, 4), le(1, 2), le(1, 2), le(48000, 4), le(96000, 4), le(2, 2), le(16, 2);
+      h += "data";
+      le(0, 4);
+      write(f("noframes.wav"), h);
+    }
+    {
       std::ifstream in(f("rec.wav"), std::ios::binary);
       std::string bytes(std::istreambuf_iterator<char>(in), {});
       write(f("truncated.wav"), std::string_view(bytes).substr(0, bytes.size() / 2));
@@ -297,6 +310,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a folder where the recording goes", {"measure", "@folder"}, {"@folder", "it is a folder"}},
       {"recording that does not exist", {"measure", "@missing.wav"}, {"@missing.wav", "No such file"}},
       {"truncated WAV", {"measure", "@truncated.wav"}, {"@truncated.wav", "truncated"}},
+      {"WAV with no frames", {"measure", "@noframes.wav"}, {"@noframes.wav", "holds no audio"}},
       {"NaN sample in a float file", {"measure", "@nan.wav"}, {"@nan.wav", "frame 1000", "0.125 s", "channel 1", "NaN"}},
       {"silent recording", {"measure", "@silent.wav"}, {"@silent.wav", "no tone found"}},
       {"channel the file does not have", {"measure", "@rec.wav", "--channel", "2"}, {"@rec.wav", "1 channel", "--channel 2"}},
@@ -359,6 +373,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a folder as the input recording", {"render", "@stage.toml", "--input", "@folder", "--output", "@o.wav"}, {"@folder", "it is a folder"}},
       {"empty input recording", {"render", "@stage.toml", "--input", "@empty.wav", "--output", "@o.wav"}, {"@empty.wav", "empty"}},
       {"binary garbage as the input recording", {"render", "@stage.toml", "--input", "@garbage.bin", "--output", "@o.wav"}, {"@garbage.bin", "not recognised"}},
+      {"input recording with no frames", {"render", "@stage.toml", "--input", "@noframes.wav", "--output", "@o.wav"}, {"@noframes.wav", "holds no audio"}},
       {"truncated input recording", {"render", "@stage.toml", "--input", "@truncated.wav", "--output", "@o.wav"}, {"@truncated.wav", "truncated"}},
       {"infinite sample in a float input", {"render", "@stage.toml", "--input", "@inf48.wav", "--output", "@o.wav"}, {"@inf48.wav", "frame 4800", "channel 1"}},
       {"input below 44.1 kHz", {"render", "@stage.toml", "--input", "@rec.wav", "--output", "@o.wav"}, {"@rec.wav", "8000.00 Hz", "44.1 kHz or more"}},
