@@ -9,9 +9,9 @@
 #include <numbers>
 #include <vector>
 
-#include <time.h>
 
 #include "bench/benches.hpp"
+#include "bench/engine_timing.hpp"
 #include "model/dk_engine.hpp"
 #include "model/operating_point.hpp"
 #include "model/transient_reference.hpp"
@@ -20,32 +20,7 @@
 namespace {
 
 using namespace pinchoff;
-
-constexpr double rate_hz = 48000.0 * 8;
-constexpr double tone_hz = 1000.0;
-
-std::vector<double> tone(double amplitude_v, std::size_t n) {
-  std::vector<double> u(n);
-  for (std::size_t k = 0; k < n; ++k) u[k] = amplitude_v * std::sin(2.0 * std::numbers::pi * tone_hz * double(k) / rate_hz);
-  return u;
-}
-
-double thread_seconds() {
-  timespec t{};
-  clock_gettime(CLOCK_THREAD_CPUTIME_ID, &t);
-  return double(t.tv_sec) + 1e-9 * double(t.tv_nsec);
-}
-
-template <class F>
-double best_seconds(int repeats, F&& run) {
-  double best = 1e300;
-  for (int r = 0; r < repeats; ++r) {
-    const double t0 = thread_seconds();
-    run();
-    best = std::min(best, thread_seconds() - t0);
-  }
-  return best;
-}
+using namespace pinchoff::bench;
 
 // Seconds per sample of the engine on the tone, best of 30 blocks of 0.1 s (after one
 // untimed block from the DC point).

@@ -68,11 +68,6 @@ std::string lower(std::string s) {
   return s;
 }
 
-std::string quoted(const fs::path& p) {
-  std::string q(1, '\'');
-  q.append(p.string()).push_back('\'');
-  return q;
-}
 
 // "-1dBFS", "-1 dBFS", "-1".
 double parse_dbfs(const std::string& text, const char* what) {
@@ -100,7 +95,7 @@ void check_extension(const fs::path& out, dsp::sample_format f) {
   const std::string ext = lower(out.extension().string());
   const bool is_flac = f == dsp::sample_format::flac24;
   if (is_flac ? ext == ".flac" : (ext == ".wav" || ext == ".wave")) return;
-  throw input_error("--output " + quoted(out) + " would hold " + (is_flac ? "FLAC" : "WAV") + " (" +
+  throw input_error("--output " + quoted_path(out) + " would hold " + (is_flac ? "FLAC" : "WAV") + " (" +
                     std::string(dsp::sample_format_name(f)) + "); name it " +
                     (out.stem().string() + extension_for(f)) + ", or choose the format with --format wav16|wav24|float|flac");
 }
@@ -312,13 +307,13 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
                         std::string(stages.size() > 1 ? "several stages" : "--dry") + ") are loudness-matched instead");
     std::error_code ec;
     if (fs::exists(out_path, ec) && !fs::is_directory(out_path, ec))
-      throw io_error("--output " + quoted(out_path) + " is a file; several outputs need a folder there");
+      throw io_error("--output " + quoted_path(out_path) + " is a file; several outputs need a folder there");
     if (!fs::exists(out_path, ec)) {
       const fs::path parent = out_path.has_parent_path() ? out_path.parent_path() : fs::path(".");
       if (!fs::is_directory(parent, ec))
-        throw io_error("cannot make the folder " + quoted(out_path) + ": " + quoted(parent) + " does not exist");
+        throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + quoted_path(parent) + " does not exist");
       if (!fs::create_directory(out_path, ec) || ec)
-        throw io_error("cannot make the folder " + quoted(out_path) + ": " + ec.message());
+        throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + ec.message());
       made.emplace(out_path);
     }
     for (loaded_stage& l : stages) l.st.output = out_path / (l.st.name + extension_for(format));

@@ -1,7 +1,5 @@
 #include "cli/interrupt.hpp"
 
-#include <signal.h>
-
 #include "dsp/error.hpp"
 
 namespace pinchoff::cli {
@@ -23,25 +21,19 @@ constexpr int handled[] = {SIGINT, SIGTERM};
 
 }  // namespace
 
-struct interrupt_guard::saved {
-  struct sigaction previous[2] {};
-  bool installed[2]{false, false};
-};
-
-interrupt_guard::interrupt_guard() : saved_(new saved) {
+interrupt_guard::interrupt_guard() {
   stop_requested.store(false);
   stop_signal.store(0);
   struct sigaction sa {};
   sa.sa_handler = on_stop_signal;
   sigemptyset(&sa.sa_mask);
   sa.sa_flags = SA_RESETHAND | SA_RESTART;
-  for (int k = 0; k < 2; ++k) saved_->installed[k] = ::sigaction(handled[k], &sa, &saved_->previous[k]) == 0;
+  for (int k = 0; k < 2; ++k) installed_[k] = ::sigaction(handled[k], &sa, &previous_[k]) == 0;
 }
 
 interrupt_guard::~interrupt_guard() {
   for (int k = 0; k < 2; ++k)
-    if (saved_->installed[k]) ::sigaction(handled[k], &saved_->previous[k], nullptr);
-  delete saved_;
+    if (installed_[k]) ::sigaction(handled[k], &previous_[k], nullptr);
 }
 
 const std::atomic<bool>* interrupt_guard::flag() const noexcept { return &stop_requested; }

@@ -4,6 +4,8 @@
 // throws pinchoff::interrupted, which cli/app.cpp turns into exit status 128 + the signal
 // (130 for Ctrl-C, 143 for SIGTERM), the shell convention. A second signal of the same
 // kind stops the program at once (SA_RESETHAND), the usual way out of a stuck run.
+#include <signal.h>
+
 #include <atomic>
 
 namespace pinchoff::cli {
@@ -23,8 +25,8 @@ class interrupt_guard {
   void check() const;
 
  private:
-  struct saved;
-  saved* saved_;
+  struct sigaction previous_[2]{};  // SIGINT, SIGTERM
+  bool installed_[2]{false, false};
 };
 
 }  // namespace pinchoff::cli

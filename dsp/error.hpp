@@ -2,6 +2,7 @@
 // The project's error hierarchy. Every layer throws these; only cli/app.cpp catches them
 // and turns them into exit codes (0 success, 1 internal failure, 2 bad input or usage,
 // 128 + the signal when interrupted: 130 for Ctrl-C).
+#include <filesystem>
 #include <stdexcept>
 #include <string>
 
@@ -38,5 +39,13 @@ class interrupted : public std::runtime_error {
  private:
   int signal_number_;
 };
+
+/// A path in single quotes, as every message names files: 'out/take 2.wav'.
+/// (Appended rather than "'" + string: GCC 12 warns falsely, -Wrestrict, on literal + rvalue string.)
+inline std::string quoted_path(const std::filesystem::path& p) {
+  std::string q(1, '\'');
+  q.append(p.string()).push_back('\'');
+  return q;
+}
 
 }  // namespace pinchoff

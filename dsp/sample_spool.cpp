@@ -18,12 +18,6 @@ namespace fs = std::filesystem;
 
 namespace {
 
-std::string quoted(const fs::path& p) {
-  std::string q(1, '\'');
-  q.append(p.string()).push_back('\'');
-  return q;
-}
-
 constexpr std::size_t chunk_values = 16384;
 
 }  // namespace
@@ -43,12 +37,12 @@ sample_spool sample_spool::create(const fs::path& target) {
     if (s.fd_ < 0 && errno != EEXIST) {
       const int e = errno;
       s.path_.clear();
-      throw io_error("cannot write a temporary file beside " + quoted(target) + ": " + std::strerror(e));
+      throw io_error("cannot write a temporary file beside " + quoted_path(target) + ": " + std::strerror(e));
     }
   }
   if (s.fd_ < 0) {
     s.path_.clear();
-    throw io_error("cannot write a temporary file beside " + quoted(target) + ": no free name");
+    throw io_error("cannot write a temporary file beside " + quoted_path(target) + ": no free name");
   }
   s.buffer_.resize(chunk_values);
   return s;
@@ -99,7 +93,7 @@ void sample_spool::write(std::span<const double> values) {
       if (w < 0 && errno == EINTR) continue;
       if (w <= 0) {
         const int e = errno;
-        throw io_error("cannot write a temporary file beside " + quoted(target_) + ": " + std::strerror(e));
+        throw io_error("cannot write a temporary file beside " + quoted_path(target_) + ": " + std::strerror(e));
       }
       p += w;
       left -= static_cast<std::size_t>(w);
@@ -113,7 +107,7 @@ void sample_spool::rewind() {
   if (fd_ < 0) throw internal_error("rewind of a closed spool");
   if (::lseek(fd_, 0, SEEK_SET) != 0) {
     const int e = errno;
-    throw io_error("cannot read back a temporary file beside " + quoted(target_) + ": " + std::strerror(e));
+    throw io_error("cannot read back a temporary file beside " + quoted_path(target_) + ": " + std::strerror(e));
   }
   read_ = 0;
 }
@@ -132,7 +126,7 @@ std::size_t sample_spool::read(std::span<double> values) {
       if (r < 0 && errno == EINTR) continue;
       if (r <= 0) {
         const int e = r < 0 ? errno : EIO;
-        throw io_error("cannot read back a temporary file beside " + quoted(target_) + ": " + std::strerror(e));
+        throw io_error("cannot read back a temporary file beside " + quoted_path(target_) + ": " + std::strerror(e));
       }
       p += r;
       left -= static_cast<std::size_t>(r);

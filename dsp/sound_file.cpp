@@ -24,13 +24,6 @@ namespace fs = std::filesystem;
 
 namespace {
 
-// Appending rather than "'" + string: GCC 12 warns falsely (-Wrestrict) on literal + rvalue string.
-std::string quoted(const fs::path& p) {
-  std::string q(1, '\'');
-  q.append(p.string()).push_back('\'');
-  return q;
-}
-
 std::string container_name(int format) {
   int count = 0;
   sf_command(nullptr, SFC_GET_FORMAT_MAJOR_COUNT, &count, sizeof count);
@@ -198,12 +191,12 @@ struct sound_reader::memory_source {
 
 sound_reader sound_reader::open(const fs::path& path) {
   std::error_code ec;
-  if (fs::is_directory(path, ec)) throw io_error("cannot open " + quoted(path) + ": it is a folder, not an audio file");
+  if (fs::is_directory(path, ec)) throw io_error("cannot open " + quoted_path(path) + ": it is a folder, not an audio file");
   if (fs::is_regular_file(path, ec) && fs::file_size(path, ec) == 0 && !ec)
-    throw io_error("cannot open " + quoted(path) + ": the file is empty (0 bytes)");
+    throw io_error("cannot open " + quoted_path(path) + ": the file is empty (0 bytes)");
   SF_INFO si{};
   SNDFILE* f = sf_open(path.c_str(), SFM_READ, &si);
-  if (!f) throw io_error("cannot open " + quoted(path) + ": " + sf_strerror(nullptr));
+  if (!f) throw io_error("cannot open " + quoted_path(path) + ": " + sf_strerror(nullptr));
   check_opened(f, si, path.string());
   sound_reader r;
   r.file_ = f;
@@ -364,10 +357,10 @@ int create_temporary(const fs::path& target, fs::path& temp) {
     if (fd >= 0) return fd;
     if (errno != EEXIST) {
       const int e = errno;
-      throw io_error("cannot write " + quoted(target) + ": " + std::strerror(e));
+      throw io_error("cannot write " + quoted_path(target) + ": " + std::strerror(e));
     }
   }
-  throw io_error("cannot write " + quoted(target) + ": no free temporary name beside it");
+  throw io_error("cannot write " + quoted_path(target) + ": no free temporary name beside it");
 }
 
 }  // namespace
@@ -381,12 +374,12 @@ sound_writer sound_writer::create(const fs::path& path, const write_settings& s)
   std::error_code ec;
   const fs::path folder = path.has_parent_path() ? path.parent_path() : fs::path(".");
   if (!fs::is_directory(folder, ec))
-    throw io_error("cannot write " + quoted(path) + ": the folder " + quoted(folder) + " does not exist");
-  if (fs::is_directory(path, ec)) throw io_error("cannot write " + quoted(path) + ": it is a folder");
+    throw io_error("cannot write " + quoted_path(path) + ": the folder " + quoted_path(folder) + " does not exist");
+  if (fs::is_directory(path, ec)) throw io_error("cannot write " + quoted_path(path) + ": it is a folder");
   for (const fs::path& in : s.inputs)
-    if (same_file(path, in)) throw io_error("cannot write " + quoted(path) + ": it is the input file; choose another name");
+    if (same_file(path, in)) throw io_error("cannot write " + quoted_path(path) + ": it is the input file; choose another name");
   if (!s.overwrite && fs::exists(path, ec))
-    throw io_error("cannot write " + quoted(path) + ": the file exists (use --force to replace it)");
+    throw io_error("cannot write " + quoted_path(path) + ": the file exists (use --force to replace it)");
 
   sound_writer w;
   w.target_ = path;
@@ -406,7 +399,7 @@ sound_writer sound_writer::create(const fs::path& path, const write_settings& s)
   if (!w.file_) {
     const std::string why = sf_strerror(nullptr);
     w.discard();
-    throw io_error("cannot write " + quoted(path) + ": " + why);
+    throw io_error("cannot write " + quoted_path(path) + ": " + why);
   }
   return w;
 }
@@ -470,7 +463,7 @@ void sound_writer::write(std::span<const double> x) {
   for (std::size_t i = 0; i < x.size(); ++i)
     if (!std::isfinite(x[i]))
       throw internal_error("non-finite sample at frame " + std::to_string(frames_ + static_cast<std::int64_t>(i / ch)) +
-                           " written to " + quoted(target_));
+                           " written to " + quoted_path(target_));
   const sf_count_t frames = static_cast<sf_count_t>(x.size() / ch);
   sf_count_t done = 0;
   const int bits = quantisation_bits(settings_.format);
@@ -497,7 +490,7 @@ void sound_writer::write(std::span<const double> x) {
   if (done != frames) {
     const std::string why = sf_strerror(file_);
     discard();
-    throw io_error("cannot write " + quoted(target_) + ": " + why);
+    throw io_error("cannot write " + quoted_path(target_) + ": " + why);
   }
   frames_ += frames;
 }
@@ -509,24 +502,24 @@ void sound_writer::commit() {
   if (e != 0) {
     const std::string why = sf_error_number(e);
     discard();
-    throw io_error("cannot write " + quoted(target_) + ": " + why);
+    throw io_error("cannot write " + quoted_path(target_) + ": " + why);
   }
   if (::fsync(fd_) != 0 || ::close(fd_) != 0) {
     const int err = errno;
     fd_ = -1;
     discard();
-    throw io_error("cannot write " + quoted(target_) + ": " + std::strerror(err));
+    throw io_error("cannot write " + quoted_path(target_) + ": " + std::strerror(err));
   }
   fd_ = -1;
   std::error_code ec;
   if (!settings_.overwrite && fs::exists(target_, ec)) {
     discard();
-    throw io_error("cannot write " + quoted(target_) + ": the file appeared while writing (use --force to replace it)");
+    throw io_error("cannot write " + quoted_path(target_) + ": the file appeared while writing (use --force to replace it)");
   }
   fs::rename(temp_, target_, ec);
   if (ec) {
     discard();
-    throw io_error("cannot write " + quoted(target_) + ": " + ec.message());
+    throw io_error("cannot write " + quoted_path(target_) + ": " + ec.message());
   }
   temp_.clear();
 }

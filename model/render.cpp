@@ -107,11 +107,6 @@ namespace {
 
 using clock_type = std::chrono::steady_clock;
 
-std::string quoted(const fs::path& p) {
-  std::string q(1, '\'');
-  q.append(p.string()).push_back('\'');
-  return q;
-}
 
 void check_stop(const render_control& c) {
   if (c.stop && c.stop->load(std::memory_order_relaxed)) throw interrupted("interrupted; no output written");
@@ -208,7 +203,7 @@ void check_job(const render_job& job) {
     const fs::path p = i < job.stages.size() ? job.stages[i].output : *job.dry_output;
     const fs::path canon = fs::weakly_canonical(fs::absolute(p, ec), ec);
     if (std::find(seen.begin(), seen.end(), canon) != seen.end())
-      throw input_error("two outputs would both be written to " + quoted(p) + " (stage files with the same name?)");
+      throw input_error("two outputs would both be written to " + quoted_path(p) + " (stage files with the same name?)");
     seen.push_back(canon);
   }
 }
@@ -221,9 +216,9 @@ render_report render(const render_job& job, const render_control& control) {
 
   dsp::sound_reader reader = dsp::sound_reader::open(job.input);
   const dsp::sound_info info = reader.info();
-  if (info.frames <= 0) throw input_error(quoted(job.input) + " holds no audio");
+  if (info.frames <= 0) throw input_error(quoted_path(job.input) + " holds no audio");
   if (!(info.rate_hz > 40000.0))
-    throw input_error(quoted(job.input) + " is at " + dsp::format_number(info.rate_hz, 6) +
+    throw input_error(quoted_path(job.input) + " is at " + dsp::format_number(info.rate_hz, 6) +
                       " Hz; render needs 44.1 kHz or more (the oversampler keeps 0 to 20 kHz flat and free of "
                       "aliases, which needs a rate above 40 kHz)");
 
@@ -437,7 +432,7 @@ render_report render(const render_job& job, const render_control& control) {
     o.true_peak = meters[i].true_peak() * g;
     if (dsp::quantisation_bits(rep.format) > 0) o.clipped_samples = writers[i].clipped_samples();
     if (writers[i].frames_written() != info.frames)
-      throw internal_error("render: wrote " + std::to_string(writers[i].frames_written()) + " frames to " + quoted(o.path) +
+      throw internal_error("render: wrote " + std::to_string(writers[i].frames_written()) + " frames to " + quoted_path(o.path) +
                            " for " + std::to_string(info.frames) + " input frames");
   }
   check_stop(control);
