@@ -6,36 +6,39 @@
 namespace pinchoff::model {
 namespace {
 
-struct jfet_currents {
-  double id, igs, igd;           // channel d->s, junction g->s, junction g->d
-};
-
-jfet_currents eval_jfet(const net_jfet& q, double vt_v, double vgs, double vds) noexcept {
-  const channel_eval ch = drain_current(q.device, vgs, vds);
-  const junction_eval js = junction_current(q.device, vgs, vt_v);
-  const junction_eval jd = junction_current(q.device, vgs - vds, vt_v);
-  return {ch.id_a, js.i_a, jd.i_a};
-}
-
 // Node k's row in the unknown vector, or -1 for ground.
 inline int row(int node) noexcept { return node - 1; }
 
-// Residual F = A x + i_nl(x) - rhs, plus a scale for the relative tolerance per row.
+// Residual F = A x + i_nl(x) - rhs, plus a scale per row for the relative tolerance: the
+// componentwise backward error of Oettli & Prager (Numer. Math. 6, 1964), |F| against
+// |A| |x| + |rhs|, with each device's tangent conductances entering like the entries of A
+// (a JFET at the point is its currents plus its conductances times its terminal voltages).
+// A point within a relative itol_rel of that scale solves a network whose every element
+// differs from the given one by about that much. Each branch current also counts by its
+// own magnitude. Both matter where a forward gate junction and a triode channel meet at a
+// drain whose resistor carries microamperes: their currents nearly cancel, and the rounding
+// floor of the sum (one ulp of a 30 V node times their conductance of a siemens or so, a
+// few 1e-15 A) is far above a relative tolerance of the microamperes alone.
 void residual(const network& net, const mna_system& lin, const Eigen::VectorXd& x, Eigen::VectorXd& f,
               Eigen::VectorXd& scale) {
   f = lin.a * x - lin.rhs;
   scale = (lin.a.cwiseAbs() * x.cwiseAbs()) + lin.rhs.cwiseAbs();
-  auto add = [&](int node, double i) {
+  auto add = [&](int node, double a, double b, double conductance_times_v) {
     if (node == 0) return;
-    f[row(node)] += i;
-    scale[row(node)] += std::fabs(i);
+    f[row(node)] += a + b;
+    scale[row(node)] += std::fabs(a) + std::fabs(b) + conductance_times_v;
   };
   for (const net_jfet& q : net.jfets) {
     const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
-    const jfet_currents c = eval_jfet(q, net.vt_v, vg - vs, vd - vs);
-    add(q.drain, c.id - c.igd);
-    add(q.gate, c.igs + c.igd);
-    add(q.source, -c.id - c.igs);
+    const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
+    const junction_eval js = junction_current(q.device, vg - vs, net.vt_v);
+    const junction_eval jd = junction_current(q.device, vg - vd, net.vt_v);
+    const double ad = std::fabs(vd), ag = std::fabs(vg), as = std::fabs(vs);
+    const double gch = std::fabs(ch.gds_s) * ad + std::fabs(ch.gm_s) * ag + std::fabs(ch.gm_s + ch.gds_s) * as;
+    const double ggs = std::fabs(js.g_s) * (ag + as), ggd = std::fabs(jd.g_s) * (ag + ad);
+    add(q.drain, ch.id_a, -jd.i_a, gch + ggd);
+    add(q.gate, js.i_a, jd.i_a, ggs + ggd);
+    add(q.source, -ch.id_a, -js.i_a, gch + ggs);
   }
 }
 

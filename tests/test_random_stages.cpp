@@ -3,6 +3,8 @@
 #include <cmath>
 #include <cstdlib>
 #include <sstream>
+#include <string>
+#include <vector>
 
 #include <doctest/doctest.h>
 
@@ -26,11 +28,13 @@ std::string describe(const stage& s) {
      << " vp=" << s.jfet.vp_v << " lambda=" << s.jfet.lambda_per_v << " Rsig=" << s.signal_impedance_ohm
      << " Cin=" << s.gate.coupling_cap_f << " RG=" << s.gate.resistor_ohm << " top=" << s.gate.bias_top_ohm
      << " bottom=" << s.gate.bias_bottom_ohm << " RD=" << s.drain_resistor_ohm << " RSu=" << s.source.unbypassed_ohm
-     << " RS=" << s.source.resistor_ohm << " CS=" << s.source.bypass_cap_f << " RL=" << s.output.load_ohm;
+     << " RS=" << s.source.resistor_ohm << " CS=" << s.source.bypass_cap_f << " RL=" << s.output.load_ohm
+     << " Cout=" << s.output.coupling_cap_f << " Cgs=" << s.jfet.cgs_f << " Cgd=" << s.jfet.cgd_f;
   return os.str();
 }
 struct random_counts {
   int drawn{0}, solved{0}, swept{0}, sweep_points_with_failures{0};
+  std::vector<std::string> stages_with_failures;  ///< describe() of each, for a regression row
 };
 
 // Draws `count` stages; every one must solve, and every `sweep_every`-th is also swept at
@@ -73,7 +77,10 @@ random_counts check_random_stages(std::uint64_t seed, int count, int sweep_every
         CHECK(std::isfinite(p.output_vpk));
         CHECK(std::isfinite(p.thd_percent));
         CHECK(std::isfinite(p.gain_db));
-        if (p.newton.failed > 0) ++c.sweep_points_with_failures;
+        if (p.newton.failed > 0) {
+          ++c.sweep_points_with_failures;
+          if (c.stages_with_failures.empty() || c.stages_with_failures.back() != what) c.stages_with_failures.push_back(what);
+        }
       }
       ++c.swept;
     }
@@ -100,4 +107,82 @@ TEST_CASE("soak: many random stages" * doctest::skip()) {
   CHECK(c.solved == c.drawn);
   MESSAGE("soak: " << c.solved << " of " << c.drawn << " random stages solved; " << c.swept
                    << " swept at 3 drives, points with unconverged samples: " << c.sweep_points_with_failures);
+  for (const std::string& what : c.stages_with_failures) MESSAGE("unconverged samples in: " << what);
+}
+
+// The inverse of describe(): a stage from the line a failed property test logs, so a
+// failure found by the soak becomes a regression row by pasting that line.
+stage parse_described(const std::string& line) {
+  std::istringstream is(line);
+  std::string topo, pol, field;
+  is >> topo >> pol;
+  stage s;
+  s.name = "regression";
+  s.topo = topo == "SF" ? topology::source_follower : topology::common_source;
+  s.pol = pol == "p" ? polarity::p : polarity::n;
+  while (is >> field) {
+    const auto eq = field.find('=');
+    REQUIRE(eq != std::string::npos);
+    const std::string key = field.substr(0, eq);
+    const double v = std::stod(field.substr(eq + 1));
+    if (key == "V") s.supply.volts_v = v;
+    else if (key == "Rsup") s.supply.resistance_ohm = v;
+    else if (key == "Csup") s.supply.capacitance_f = v;
+    else if (key == "idss") s.jfet.idss_a = v;
+    else if (key == "vp") s.jfet.vp_v = v;
+    else if (key == "lambda") s.jfet.lambda_per_v = v;
+    else if (key == "Rsig") s.signal_impedance_ohm = v;
+    else if (key == "Cin") s.gate.coupling_cap_f = v;
+    else if (key == "RG") s.gate.resistor_ohm = v;
+    else if (key == "top") s.gate.bias_top_ohm = v;
+    else if (key == "bottom") s.gate.bias_bottom_ohm = v;
+    else if (key == "RD") s.drain_resistor_ohm = v;
+    else if (key == "RSu") s.source.unbypassed_ohm = v;
+    else if (key == "RS") s.source.resistor_ohm = v;
+    else if (key == "CS") s.source.bypass_cap_f = v;
+    else if (key == "RL") s.output.load_ohm = v;
+    else if (key == "Cout") s.output.coupling_cap_f = v;
+    else if (key == "Cgs") s.jfet.cgs_f = v;
+    else if (key == "Cgd") s.jfet.cgd_f = v;
+    else FAIL("unknown field " << key);
+  }
+  return s;
+}
+
+TEST_CASE("regression: random stages that once got no DC point") {
+  // Each line is what the soak (seed 777) logged for a stage it could not solve; each must
+  // now solve, satisfy KCL and sweep to finite numbers.
+  const char* const lines[] = {
+      // Stage 2761: the gate fed from 57 V through 11 + 45 ohm; both junctions forward with
+      // tens of mA into a drain node whose resistor carries microamperes (the residual's
+      // scale must count each branch current, not their difference).
+      "CS n V=57.359319542131125 Rsup=0 Csup=0 idss=0.012004900065011015 vp=-0.31759813652136243 "
+      "lambda=0.031736563884659112 Rsig=0 Cin=3.2728477250112469e-06 RG=45.40516886571627 top=11.337960454821971 "
+      "bottom=55401.25917491861 RD=9894679.9022146314 RSu=0 RS=59.079686025530279 CS=0 RL=22.495710814545351 "
+      "Cout=2.7285580270751961e-06 Cgs=1.6553638364634956e-11 Cgd=0",
+      // Stage 30151.
+      "SF n V=56.9362171893994 Rsup=0 Csup=0 idss=0.019202182614858364 vp=-0.22522183643983557 "
+      "lambda=0.044817148080024086 Rsig=0 Cin=2.0739195123193825e-09 RG=37.128368921045784 top=49957.079104783115 "
+      "bottom=412743.47904868569 RD=8867240.9821063522 RSu=2122530.6890272112 RS=3991.0566253253869 "
+      "CS=9.5501012963319199e-05 RL=990495.9371000079 Cout=0 Cgs=0 Cgd=1.3910943556059098e-12",
+  };
+  for (const std::string line : lines) {
+    CAPTURE(line);
+    const stage s = parse_described(line);
+    REQUIRE(describe(s) == line);  // the row holds the stage exactly
+    validate(s);
+    const network net = build_network(s);
+    operating_point op;
+    REQUIRE_NOTHROW(op = solve_operating_point(net));
+    CHECK(op.newton.converged);
+    const mna_system lin = assemble_linear(net, uniform_caps(net, cap_treatment::kind::open), net.supply_v, 0.0);
+    const double scale = std::max(1e-12, (lin.a.cwiseAbs() * op.x.cwiseAbs()).maxCoeff());
+    CHECK(op.newton.residual_a <= 1e-9 * scale + 1e-15);
+    sweep_settings sw;
+    sw.drives_vpk = {0.01, 0.3, 3.0};
+    sw.threads = 1;
+    sweep_result r;
+    REQUIRE_NOTHROW(r = run_sweep(s, sw));
+    for (const sweep_point& p : r.points) CHECK(std::isfinite(p.thd_percent));
+  }
 }
