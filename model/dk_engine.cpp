@@ -407,6 +407,7 @@ double dk_engine::junction_step_scale(double v0, double v1, double d0, double d1
 // step" of quadratic convergence with the step size made precise, not a looser test.
 bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out,
                             int& evals) noexcept {
+  constexpr double rounding_allowance_v = 1e-8;
   const Eigen::Matrix<double, 2, 3>& f = f1_;
   const double tol = opt_.tol_v;
   const double small_junction_step = 0.01 * dev_.nvt_v;
@@ -471,20 +472,29 @@ bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& gue
       const double agd = std::fabs(c.igd_a) + std::fabs(c.ggd_s * dgd);
       const double ad = std::fabs(c.id_a) + std::fabs(id_lin_d);
       constexpr double round_k = 8.0 * std::numeric_limits<double>::epsilon();
-      const double t0 = f_abs_(0, 0) * (rgs + round_k * ags) + f_abs_(0, 1) * (rgd + round_k * agd) +
-                        f_abs_(0, 2) * rd + round_k * (std::fabs(p[0]) + std::fabs(v0 + d0) + f_abs_(0, 2) * ad);
-      const double t1 = f_abs_(1, 0) * (rgs + round_k * ags) + f_abs_(1, 1) * (rgd + round_k * agd) +
-                        f_abs_(1, 2) * rd + round_k * (std::fabs(p[1]) + std::fabs(v1 + d1) + f_abs_(1, 2) * ad);
+      // The rounding part of each row is allowed on top of tol_v up to rounding_allowance_v:
+      // where a large transimpedance meets a large current (megohms and tens of mA: terms
+      // of tens of kV cancelling to a port voltage of a few volts) the equation resolves
+      // the port voltages only to about 1e-10 V, and no point could meet tol_v alone. A
+      // point resolved more coarsely than the allowance is still never accepted.
+      const double round0 = round_k * (f_abs_(0, 0) * ags + f_abs_(0, 1) * agd + f_abs_(0, 2) * ad + std::fabs(p[0]) +
+                                   std::fabs(v0 + d0));
+      const double round1 = round_k * (f_abs_(1, 0) * ags + f_abs_(1, 1) * agd + f_abs_(1, 2) * ad + std::fabs(p[1]) +
+                                   std::fabs(v1 + d1));
+      const double t0 = f_abs_(0, 0) * rgs + f_abs_(0, 1) * rgd + f_abs_(0, 2) * rd + round0;
+      const double t1 = f_abs_(1, 0) * rgs + f_abs_(1, 1) * rgd + f_abs_(1, 2) * rd + round1;
       const double e0 = std::fabs(m00) * t0 + std::fabs(m01) * t1;
       const double e1 = std::fabs(m10) * t0 + std::fabs(m11) * t1;
-      if (std::max(t0, t1) <= tol && std::max(e0, e1) <= tol) {
+      const double al0 = std::min(round0, rounding_allowance_v), al1 = std::min(round1, rounding_allowance_v);
+      if (t0 <= tol + al0 && t1 <= tol + al1 && e0 <= tol + std::fabs(m00) * al0 + std::fabs(m01) * al1 &&
+          e1 <= tol + std::fabs(m10) * al0 + std::fabs(m11) * al1) {
         const double a0 = v0 + d0, a1 = v1 + d1;
         if (opt_.confirm) {
           const detail::port_currents cc = detail::evaluate_ports(dev_, a0, a1);
           ++evals;
           const double q0 = p[0] + f(0, 0) * cc.igs_a + f(0, 1) * cc.igd_a + f(0, 2) * cc.id_a - a0;
           const double q1 = p[1] + f(1, 0) * cc.igs_a + f(1, 1) * cc.igd_a + f(1, 2) * cc.id_a - a1;
-          if (std::max(std::fabs(q0), std::fabs(q1)) > tol) {
+          if (std::fabs(q0) > tol + al0 || std::fabs(q1) > tol + al1) {
             ++stats_.bound_misses;
           } else {
             out.v << a0, a1;

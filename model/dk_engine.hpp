@@ -68,7 +68,9 @@ Eigen::VectorXd dc_states(const network& net, const Eigen::VectorXd& x);
 struct dk_options {
   int max_iterations{50};       ///< Newton evaluations per attempt (1..1000)
   /// Accepted when the bound on the remaining error of the port voltages after the last
-  /// Newton step, and on the residual there, are both below tol_v (see dk_engine.cpp).
+  /// Newton step, and on the residual there, are both below tol_v (see dk_engine.cpp); where
+  /// the port equations cannot be resolved that finely in double precision (megohm
+  /// transimpedances carrying tens of mA), below tol_v plus their rounding, at most 1e-8 V.
   double tol_v{1e-10};
   int max_substep_levels{6};    ///< failed samples are retried in 2, 4, ..., 2^levels sub-steps
   int predictor_order{3};       ///< polynomial extrapolation order of the warm start, 0..3
