@@ -78,6 +78,15 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     if (!c.sub->parsed()) continue;
     std::ostringstream report;
     try {
+      // An option given an empty value (`--drive ""`, often an unset shell variable) is an
+      // error, never read as the option left out.
+      for (const CLI::Option* o : c.sub->get_options()) {
+        if (o->count() == 0 || o->get_type_size() == 0) continue;
+        for (const std::string& r : o->results())
+          if (r.empty())
+            throw input_error(o->get_positional() ? "the " + o->get_name() + " argument is empty"
+                                                  : o->get_name() + ": the value is empty");
+      }
       c.run(report, err);
     } catch (const input_error& e) {
       err << "pinchoff " << c.sub->get_name() << ": " << e.what() << '\n';

@@ -24,6 +24,16 @@ namespace fs = std::filesystem;
 
 namespace {
 
+// libsndfile's reason for the last failure, as a clause of our own messages: its
+// "System error : " prefix (an errno text follows) and the closing full stop dropped.
+std::string sndfile_reason(SNDFILE* f) {
+  std::string why = sf_strerror(f);
+  for (const char* prefix : {"System error : ", "System error: "})
+    if (why.rfind(prefix, 0) == 0) why.erase(0, std::strlen(prefix));
+  while (!why.empty() && (why.back() == '.' || why.back() == ' ' || why.back() == '\n')) why.pop_back();
+  return why;
+}
+
 std::string container_name(int format) {
   int count = 0;
   sf_command(nullptr, SFC_GET_FORMAT_MAJOR_COUNT, &count, sizeof count);
@@ -196,7 +206,7 @@ sound_reader sound_reader::open(const fs::path& path) {
     throw io_error("cannot open " + quoted_path(path) + ": the file is empty (0 bytes)");
   SF_INFO si{};
   SNDFILE* f = sf_open(path.c_str(), SFM_READ, &si);
-  if (!f) throw io_error("cannot open " + quoted_path(path) + ": " + sf_strerror(nullptr));
+  if (!f) throw io_error("cannot open " + quoted_path(path) + ": " + sndfile_reason(nullptr));
   check_opened(f, si, path.string());
   sound_reader r;
   r.file_ = f;
@@ -212,7 +222,7 @@ sound_reader sound_reader::open_memory(std::span<const std::byte> bytes, std::st
                    &memory_source::tell};
   SF_INFO si{};
   SNDFILE* f = sf_open_virtual(&io, SFM_READ, &si, mem.get());
-  if (!f) throw io_error("cannot open '" + name + "': " + sf_strerror(nullptr));
+  if (!f) throw io_error("cannot open '" + name + "': " + sndfile_reason(nullptr));
   check_opened(f, si, name);
   sound_reader r;
   r.file_ = f;
@@ -259,7 +269,7 @@ std::size_t sound_reader::read(std::span<double> interleaved) {
   if (got < asked) {
     const int e = sf_error(file_);
     throw io_error("cannot read '" + name_ + "': " +
-                   (e != SF_ERR_NO_ERROR ? std::string(sf_strerror(file_)) : std::string("the audio ends early")) +
+                   (e != SF_ERR_NO_ERROR ? sndfile_reason(file_) : std::string("the audio ends early")) +
                    " at frame " + std::to_string(position_ + std::max<sf_count_t>(got, 0)) + " of " +
                    std::to_string(info_.frames) + " (damaged or truncated file)");
   }
@@ -281,7 +291,7 @@ void sound_reader::seek(std::int64_t frame) {
   if (frame < 0 || frame > info_.frames)
     throw input_error("'" + name_ + "': frame " + std::to_string(frame) + " lies outside the file's " +
                       std::to_string(info_.frames) + " frames");
-  if (sf_seek(file_, frame, SEEK_SET) < 0) throw io_error("cannot seek in '" + name_ + "': " + sf_strerror(file_));
+  if (sf_seek(file_, frame, SEEK_SET) < 0) throw io_error("cannot seek in '" + name_ + "': " + sndfile_reason(file_));
   position_ = frame;
 }
 
@@ -397,7 +407,7 @@ sound_writer sound_writer::create(const fs::path& path, const write_settings& s)
   }
   w.file_ = sf_open_fd(w.fd_, SFM_WRITE, &si, SF_FALSE);
   if (!w.file_) {
-    const std::string why = sf_strerror(nullptr);
+    const std::string why = sndfile_reason(nullptr);
     w.discard();
     throw io_error("cannot write " + quoted_path(path) + ": " + why);
   }
@@ -488,7 +498,7 @@ void sound_writer::write(std::span<const double> x) {
     done = sf_writef_int(file_, codes_.data(), frames);
   }
   if (done != frames) {
-    const std::string why = sf_strerror(file_);
+    const std::string why = sndfile_reason(file_);
     discard();
     throw io_error("cannot write " + quoted_path(target_) + ": " + why);
   }

@@ -331,6 +331,13 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"--drive of 0 V", {"sweep", "@stage.toml", "--drive", "0V"}, {"--drive", "above 0 V"}},
       {"--drive that is not a level", {"sweep", "@stage.toml", "--drive", "loud"}, {"--drive: cannot read 'loud' as a level", "dBu"}},
       {"--drive list with a bad entry", {"sweep", "@stage.toml", "--drive", "1V,x"}, {"--drive: cannot read 'x'"}},
+      // An empty value (often an unset shell variable) is an error, never the option left out.
+      {"--drive given an empty value", {"sweep", "@stage.toml", "--drive", ""}, {"--drive: the value is empty"}},
+      {"an empty stage file name", {"sweep", ""}, {"the FILE argument is empty"}},
+      {"--plot given an empty value", {"sweep", "@stage.toml", "--plot", ""}, {"--plot: the value is empty"}},
+      {"--set given an empty value", {"bias", "@stage.toml", "--set", ""}, {"--set: the value is empty"}},
+      {"spread --drive given an empty value", {"spread", "@stage.toml", "--drive", ""}, {"--drive: the value is empty"}},
+      {"render --input given an empty value", {"render", "@stage.toml", "--input", "", "--output", "@o.wav"}, {"--input: the value is empty"}},
       {"--from above --to", {"sweep", "@stage.toml", "--from", "0dBu", "--to", "-10dBu"}, {"--from", "below --to"}},
       {"--steps below 2", {"sweep", "@stage.toml", "--steps", "1"}, {"--steps", "between 2 and 1000"}},
       {"--oversample of 0", {"sweep", "@stage.toml", "--oversample", "0"}, {"--oversample", "between 1 and 64"}},

@@ -37,6 +37,7 @@
 #include "model/stage_file.hpp"
 #include "model/steady_state.hpp"
 #include "support/cli_runner.hpp"
+#include "support/patch_float.hpp"
 #include "support/scratch_dir.hpp"
 
 namespace {
@@ -335,25 +336,11 @@ TEST_CASE("render refuses bad files and leaves nothing behind") {
   // Truncated: the header promises more than the file holds.
   fs::copy_file(dir.path / "in.wav", dir.path / "cut.wav");
   fs::resize_file(dir.path / "cut.wav", 50000);
-  // NaN in a float file at frame 30000 (0.625 s): a marker value patched to a quiet NaN
-  // (IEEE 754 binary32 0x7FC00000), the last occurrence (the PEAK chunk holds it too).
+  // NaN in a float file at frame 30000 (0.625 s).
   std::vector<double> nan_x = sine(440.0, 48000.0, 0.5, 48000);
-  nan_x[30000] = 1234.5;
+  nan_x[30000] = pinchoff::testing::float_marker;
   write_audio(dir.path / "nan.wav", 48000.0, 1, dsp::sample_format::wav_float, nan_x);
-  {
-    std::vector<char> bytes((std::istreambuf_iterator<char>(std::ifstream(dir.path / "nan.wav", std::ios::binary).rdbuf())), {});
-    const std::uint32_t marker = std::bit_cast<std::uint32_t>(1234.5f), nan_bits = 0x7FC00000u;
-    std::size_t last = bytes.size();
-    for (std::size_t i = 0; i + 4 <= bytes.size(); ++i) {
-      std::uint32_t v;
-      std::memcpy(&v, bytes.data() + i, 4);
-      if (v == marker) last = i;
-    }
-    REQUIRE(last < bytes.size());
-    std::memcpy(bytes.data() + last, &nan_bits, 4);
-    std::ofstream(dir.path / "nan.wav", std::ios::binary | std::ios::trunc)
-        .write(bytes.data(), static_cast<std::streamsize>(bytes.size()));
-  }
+  pinchoff::testing::patch_float_marker(dir.path / "nan.wav", 0x7FC00000u);
   const auto old_size = fs::file_size(dir.path / "old.wav");
   const std::size_t files = dir.entries();
 

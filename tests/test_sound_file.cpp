@@ -16,6 +16,7 @@
 
 #include "dsp/error.hpp"
 #include "dsp/sound_file.hpp"
+#include "support/patch_float.hpp"
 #include "support/scratch_dir.hpp"
 
 using namespace pinchoff::dsp;
@@ -135,9 +136,8 @@ TEST_CASE("integer formats clip at full scale and count the clipped samples") {
 }
 
 TEST_CASE("a NaN or infinity in a float file is refused at its frame, time and channel") {
-  // A valid float file with a marker value, then the marker's bytes in the data chunk (the
-  // last occurrence: libsndfile's PEAK chunk before it holds the marker too) patched to a
-  // quiet NaN (0x7FC00000) or +infinity (0x7F800000), IEEE 754 binary32.
+  // A valid float file with a marker value patched to a quiet NaN (0x7FC00000) or
+  // +infinity (0x7F800000), IEEE 754 binary32 (tests/support/patch_float.hpp).
   struct row {
     const char* source;
     std::uint32_t bits;
@@ -153,19 +153,9 @@ TEST_CASE("a NaN or infinity in a float file is refused at its frame, time and c
     s.channels = 2;
     s.format = sample_format::wav_float;
     std::vector<double> x(2 * 20000, 0.25);
-    x[2 * 12000 + 1] = 1234.5;  // frame 12000, second channel
+    x[2 * 12000 + 1] = pinchoff::testing::float_marker;  // frame 12000, second channel
     write_file(p, s, x);
-    std::vector<char> bytes((std::istreambuf_iterator<char>(std::ifstream(p, std::ios::binary).rdbuf())), {});
-    const std::uint32_t marker = std::bit_cast<std::uint32_t>(1234.5f);
-    std::size_t last = bytes.size();
-    for (std::size_t i = 0; i + 4 <= bytes.size(); ++i) {
-      std::uint32_t v;
-      std::memcpy(&v, bytes.data() + i, 4);
-      if (v == marker) last = i;
-    }
-    REQUIRE(last < bytes.size());
-    std::memcpy(bytes.data() + last, &rw.bits, 4);
-    std::ofstream(p, std::ios::binary | std::ios::trunc).write(bytes.data(), static_cast<std::streamsize>(bytes.size()));
+    pinchoff::testing::patch_float_marker(p, rw.bits);
     sound_reader r = sound_reader::open(p);
     std::string message;
     try {
