@@ -31,11 +31,13 @@ double max_abs(const V& v) {
 //
 // Two kernel sets, chosen once per engine from what the processor offers: portable ones
 // (Eigen on the compile's baseline, SSE2 on x86-64: packets of 2) and, on x86-64 processors
-// with AVX2 and FMA, ones written with intrinsics in a function compiled for those units
-// (packets of 4 and fused multiply-adds: about a third of the instructions of the update).
-// The two round differently (a fused multiply-add rounds once), so their samples differ
-// in the last bits, but a given processor always takes the same set: results repeat run
-// to run and thread to thread. dk_options::wide_kernels = false forces the portable set.
+// with AVX2 and FMA, ones written with intrinsics (packets of 4 and fused multiply-adds:
+// about a third of the instructions of the update), inlined into a sample loop compiled
+// for those units as a whole, the Newton solve included (about a third fewer instructions
+// a sample than the portable loop). The two round differently (a fused multiply-add rounds
+// once), so their samples differ in the last bits, but a given processor always takes the
+// same set: results repeat run to run and thread to thread. dk_options::wide_kernels =
+// false forces the portable set.
 constexpr int padded_rows(int ns, int packet) noexcept { return (ns + 3 + packet - 1) / packet * packet; }
 
 // Column by column (o += W(:, j) x_j): each x_j is broadcast once and the column runs in
@@ -115,23 +117,6 @@ bool wide_kernels_available() noexcept {
 #else
 bool wide_kernels_available() noexcept { return false; }
 #endif
-
-// Dispatch on the state count inside the sample loop: a switch the branch predictor always
-// gets right, with each portable case inlined (the wide ones are calls: a function for
-// other units cannot be inlined into one for the baseline).
-#define PINCHOFF_DK_DISPATCH(fixed, dynamic, ...) \
-  switch (ns) {                                   \
-    case 0: fixed<0>(__VA_ARGS__); break;         \
-    case 1: fixed<1>(__VA_ARGS__); break;         \
-    case 2: fixed<2>(__VA_ARGS__); break;         \
-    case 3: fixed<3>(__VA_ARGS__); break;         \
-    case 4: fixed<4>(__VA_ARGS__); break;         \
-    case 5: fixed<5>(__VA_ARGS__); break;         \
-    case 6: fixed<6>(__VA_ARGS__); break;         \
-    case 7: fixed<7>(__VA_ARGS__); break;         \
-    case 8: fixed<8>(__VA_ARGS__); break;         \
-    default: dynamic(__VA_ARGS__); break;         \
-  }
 
 }  // namespace
 
@@ -312,9 +297,9 @@ void dk_engine::init(const network& net, const operating_point& op) {
       g.head(ns) = (m_.a - Eigen::MatrixXd::Identity(ns, ns)) * qp + m_.b * u + m_.c * pt.i;
       g.tail(2) = m_.d * qp + e1_ * u + f1_ * pt.i - vp;
       jac.topLeftCorner(ns, ns) = m_.a - Eigen::MatrixXd::Identity(ns, ns);
-      jac.topRightCorner(ns, 2) = m_.c * pt.jf;
+      jac.topRightCorner(ns, 2) = m_.c * pt.jf();
       jac.bottomLeftCorner(2, ns) = m_.d;
-      jac.bottomRightCorner(2, 2) = f1_ * pt.jf - Eigen::Matrix2d::Identity();
+      jac.bottomRightCorner(2, 2) = f1_ * pt.jf() - Eigen::Matrix2d::Identity();
       const Eigen::FullPivLU<Eigen::MatrixXd> lu(jac);
       if (!lu.isInvertible()) break;
       const Eigen::VectorXd delta = lu.solve(-g);
@@ -344,8 +329,8 @@ dk_engine::port_point dk_engine::point_at(const Eigen::Vector2d& v) const noexce
   port_point pt;
   pt.v = v;
   pt.i << c.igs_a, c.igd_a, c.id_a;
-  pt.jf << c.ggs_s, 0.0, c.ggd_s, -c.ggd_s, c.gm_s, c.gds_s;
-  const Eigen::Matrix2d j = Eigen::Matrix2d::Identity() - f1_ * pt.jf;
+  pt.g << c.ggs_s, c.ggd_s, c.gm_s, c.gds_s;
+  const Eigen::Matrix2d j = Eigen::Matrix2d::Identity() - f1_ * pt.jf();
   pt.m = j.inverse();
   return pt;
 }
@@ -394,6 +379,27 @@ double dk_engine::junction_step_scale(double v0, double v1, double d0, double d1
   return alpha;
 }
 
+// An accepted point, element by element (no comma initialiser: a call the wide block loops,
+// compiled for other units, would not inline).
+__attribute__((always_inline)) inline void dk_engine::store_point(port_point& out, const Eigen::Array2d& v,
+                                                                  double igs, double igd, double id,
+                                                                  const detail::port_currents& c, const Eigen::Array2d& mc0,
+                                                                  const Eigen::Array2d& mc1) noexcept {
+  out.v[0] = v[0];
+  out.v[1] = v[1];
+  out.i[0] = igs;
+  out.i[1] = igd;
+  out.i[2] = id;
+  out.g[0] = c.ggs_s;
+  out.g[1] = c.ggd_s;
+  out.g[2] = c.gm_s;
+  out.g[3] = c.gds_s;
+  out.m(0, 0) = mc0[0];
+  out.m(1, 0) = mc0[1];
+  out.m(0, 1) = mc1[0];
+  out.m(1, 1) = mc1[1];
+}
+
 // Newton on r(v) = p + F i(v) - v = 0, from `guess`.
 //
 // Acceptance (both the step and the residual): after the step dv computed at v, the
@@ -405,65 +411,69 @@ double dk_engine::junction_step_scale(double v0, double v1, double d0, double d1
 // Rheinboldt 1970, 12.6). Both bounds must be below tol_v; the accepted currents are the
 // linearised ones, which satisfy v + dv = p + F i exactly. This is the "accept on a tiny
 // step" of quadratic convergence with the step size made precise, not a looser test.
-bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out,
-                            int& evals) noexcept {
+__attribute__((always_inline)) inline bool dk_engine::solve_ports(const Eigen::Vector2d& p_in,
+                                                                  const Eigen::Vector2d& guess, port_point& out,
+                                                                  int& evals) noexcept {
+  // Both rows of every port quantity side by side (packets of two): the columns of F and
+  // |F| are contiguous pairs, so each row pair costs one packed operation.
+  using a2 = Eigen::Array2d;
   constexpr double rounding_allowance_v = 1e-8;
-  const Eigen::Matrix<double, 2, 3>& f = f1_;
+  constexpr double round_k = 8.0 * std::numeric_limits<double>::epsilon();
+  const a2 fc0 = f1_.col(0).array(), fc1 = f1_.col(1).array(), fc2 = f1_.col(2).array();
+  const a2 p = p_in.array();
   const double tol = opt_.tol_v;
   const double small_junction_step = 0.01 * dev_.nvt_v;
-  double v0 = guess[0], v1 = guess[1];
-  double base0 = v0, base1 = v1, step0 = 0.0, step1 = 0.0;
+  a2 v = guess.array();
+  a2 base = v, step = a2::Zero();
   double rn_base = std::numeric_limits<double>::infinity();
   bool may_damp = false;
   int halvings = 0;
   for (int k = 0; k < opt_.max_iterations; ++k) {
-    const detail::port_currents c = detail::evaluate_ports(dev_, v0, v1);
+    const detail::port_currents c = detail::evaluate_ports(dev_, v[0], v[1]);
     ++evals;
-    const double r0 = p[0] + f(0, 0) * c.igs_a + f(0, 1) * c.igd_a + f(0, 2) * c.id_a - v0;
-    const double r1 = p[1] + f(1, 0) * c.igs_a + f(1, 1) * c.igd_a + f(1, 2) * c.id_a - v1;
-    const double rn = std::max(std::fabs(r0), std::fabs(r1));
+    const a2 r = p + fc0 * c.igs_a + fc1 * c.igd_a + fc2 * c.id_a - v;
+    const double rn = r.abs().maxCoeff();
     // Damped Newton: halve a step that made the residual grow (or not finite).
     if (may_damp && !(rn <= rn_base) && !(rn <= tol) && halvings < 30) {
-      step0 *= 0.5;
-      step1 *= 0.5;
-      v0 = base0 + step0;
-      v1 = base1 + step1;
+      step *= 0.5;
+      v = base + step;
       ++halvings;
       continue;
     }
     if (!std::isfinite(rn)) return false;
 
-    // J = F Jf - I with Jf = [[ggs, 0], [ggd, -ggd], [gm, gds]]; M = -J^-1 = (I - F Jf)^-1.
-    const double j00 = f(0, 0) * c.ggs_s + f(0, 1) * c.ggd_s + f(0, 2) * c.gm_s - 1.0;
-    const double j01 = -f(0, 1) * c.ggd_s + f(0, 2) * c.gds_s;
-    const double j10 = f(1, 0) * c.ggs_s + f(1, 1) * c.ggd_s + f(1, 2) * c.gm_s;
-    const double j11 = -f(1, 1) * c.ggd_s + f(1, 2) * c.gds_s - 1.0;
+    // J = F Jf - I with Jf = [[ggs, 0], [ggd, -ggd], [gm, gds]], by columns; M = -J^-1 = (I - F Jf)^-1.
+    const a2 jc0 = fc0 * c.ggs_s + fc1 * c.ggd_s + fc2 * c.gm_s;
+    const a2 jc1 = fc2 * c.gds_s - fc1 * c.ggd_s;
+    const double j00 = jc0[0] - 1.0, j10 = jc0[1], j01 = jc1[0], j11 = jc1[1] - 1.0;
     const double det = j00 * j11 - j01 * j10;
     if (!(std::fabs(det) > 1e-200)) return false;
     const double inv = 1.0 / det;
-    const double m00 = -j11 * inv, m01 = j01 * inv, m10 = j10 * inv, m11 = -j00 * inv;
-    double d0 = m00 * r0 + m01 * r1;
-    double d1 = m10 * r0 + m11 * r1;
+    const a2 mc0 = a2(-j11, j10) * inv, mc1 = a2(j01, -j00) * inv;  // the columns of M
+    a2 d = mc0 * r[0] + mc1 * r[1];
 
-    // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) scales the whole step.
-    const double alpha = junction_step_scale(v0, v1, d0, d1);
-    const bool limited = alpha < 1.0;
-    if (limited) {
-      d0 *= alpha;
-      d1 *= alpha;
+    // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) scales the whole step; only
+    // a junction landing above vcrit can be limited.
+    bool limited = false;
+    if (v[0] + d[0] > dev_.vcrit_v || (v[0] - v[1]) + (d[0] - d[1]) > dev_.vcrit_v) {
+      const double alpha = junction_step_scale(v[0], v[1], d[0], d[1]);
+      if (alpha < 1.0) {
+        d *= alpha;
+        limited = true;
+      }
     }
 
-    const double dgs = d0, dgd = d0 - d1;
+    const double dgs = d[0], dgd = d[0] - d[1];
     if (!limited && std::fabs(dgs) <= small_junction_step && std::fabs(dgd) <= small_junction_step) {
+      const a2 vn = v + d;
       const double rgs = 0.505 * c.ggs_s * dev_.inv_nvt * dgs * dgs;
       const double rgd = 0.505 * c.ggd_s * dev_.inv_nvt * dgd * dgd;
       // Exact channel remainder; 8 eps of the magnitudes summed covers the rounding of the
       // few operations on each side (each correct to an ulp or two).
-      const double id_new = detail::channel_current(dev_, v0 + d0, v1 + d1);
-      const double id_lin_d = c.gm_s * d0 + c.gds_s * d1;
+      const double id_new = detail::channel_current(dev_, vn[0], vn[1]);
+      const double id_lin_d = c.gm_s * d[0] + c.gds_s * d[1];
       const double rd = std::fabs(id_new - c.id_a - id_lin_d) +
-                        8.0 * std::numeric_limits<double>::epsilon() *
-                            (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d0) + std::fabs(c.gds_s * d1));
+                        round_k * (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d[0]) + std::fabs(c.gds_s * d[1]));
       // Rounding: the linearised equation v + dv = p + F (i + Jf dv) holds only to the
       // rounding of its terms, a few eps of their magnitudes. Negligible at any sane point
       // (1e-14 V for terms of 10 V), it rejects points where currents are so large (a
@@ -471,56 +481,41 @@ bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& gue
       const double ags = std::fabs(c.igs_a) + std::fabs(c.ggs_s * dgs);
       const double agd = std::fabs(c.igd_a) + std::fabs(c.ggd_s * dgd);
       const double ad = std::fabs(c.id_a) + std::fabs(id_lin_d);
-      constexpr double round_k = 8.0 * std::numeric_limits<double>::epsilon();
+      const a2 fa0 = f_abs_.col(0).array(), fa1 = f_abs_.col(1).array(), fa2 = f_abs_.col(2).array();
+      const a2 round = round_k * (fa0 * ags + fa1 * agd + fa2 * ad + p.abs() + vn.abs());
+      const a2 t = fa0 * rgs + fa1 * rgd + fa2 * rd + round;
       // The rounding part of each row is allowed on top of tol_v up to rounding_allowance_v:
       // where a large transimpedance meets a large current (megohms and tens of mA: terms
       // of tens of kV cancelling to a port voltage of a few volts) the equation resolves
       // the port voltages only to about 1e-10 V, and no point could meet tol_v alone. A
       // point resolved more coarsely than the allowance is still never accepted.
-      const double round0 = round_k * (f_abs_(0, 0) * ags + f_abs_(0, 1) * agd + f_abs_(0, 2) * ad + std::fabs(p[0]) +
-                                   std::fabs(v0 + d0));
-      const double round1 = round_k * (f_abs_(1, 0) * ags + f_abs_(1, 1) * agd + f_abs_(1, 2) * ad + std::fabs(p[1]) +
-                                   std::fabs(v1 + d1));
-      const double t0 = f_abs_(0, 0) * rgs + f_abs_(0, 1) * rgd + f_abs_(0, 2) * rd + round0;
-      const double t1 = f_abs_(1, 0) * rgs + f_abs_(1, 1) * rgd + f_abs_(1, 2) * rd + round1;
-      const double e0 = std::fabs(m00) * t0 + std::fabs(m01) * t1;
-      const double e1 = std::fabs(m10) * t0 + std::fabs(m11) * t1;
-      const double al0 = std::min(round0, rounding_allowance_v), al1 = std::min(round1, rounding_allowance_v);
-      if (t0 <= tol + al0 && t1 <= tol + al1 && e0 <= tol + std::fabs(m00) * al0 + std::fabs(m01) * al1 &&
-          e1 <= tol + std::fabs(m10) * al0 + std::fabs(m11) * al1) {
-        const double a0 = v0 + d0, a1 = v1 + d1;
+      const a2 allowed = round.min(rounding_allowance_v);
+      const a2 ma0 = mc0.abs(), ma1 = mc1.abs();
+      const a2 e = ma0 * t[0] + ma1 * t[1];
+      const a2 e_allowed = ma0 * allowed[0] + ma1 * allowed[1];
+      if ((t <= tol + allowed).all() && (e <= tol + e_allowed).all()) {
         if (opt_.confirm) {
-          const detail::port_currents cc = detail::evaluate_ports(dev_, a0, a1);
+          const detail::port_currents cc = detail::evaluate_ports(dev_, vn[0], vn[1]);
           ++evals;
-          const double q0 = p[0] + f(0, 0) * cc.igs_a + f(0, 1) * cc.igd_a + f(0, 2) * cc.id_a - a0;
-          const double q1 = p[1] + f(1, 0) * cc.igs_a + f(1, 1) * cc.igd_a + f(1, 2) * cc.id_a - a1;
-          if (std::fabs(q0) > tol + al0 || std::fabs(q1) > tol + al1) {
+          const a2 q = p + fc0 * cc.igs_a + fc1 * cc.igd_a + fc2 * cc.id_a - vn;
+          if (!(q.abs() <= tol + allowed).all()) {
             ++stats_.bound_misses;
           } else {
-            out.v << a0, a1;
-            out.i << cc.igs_a, cc.igd_a, cc.id_a;
-            out.jf << cc.ggs_s, 0.0, cc.ggd_s, -cc.ggd_s, cc.gm_s, cc.gds_s;
-            out.m << m00, m01, m10, m11;
+            store_point(out, vn, cc.igs_a, cc.igd_a, cc.id_a, cc, mc0, mc1);
             return true;
           }
         } else {
-          out.v << a0, a1;
-          out.i << c.igs_a + c.ggs_s * dgs, c.igd_a + c.ggd_s * dgd, c.id_a + id_lin_d;
-          out.jf << c.ggs_s, 0.0, c.ggd_s, -c.ggd_s, c.gm_s, c.gds_s;
-          out.m << m00, m01, m10, m11;
+          store_point(out, vn, c.igs_a + c.ggs_s * dgs, c.igd_a + c.ggd_s * dgd, c.id_a + id_lin_d, c, mc0, mc1);
           return true;
         }
       }
     }
-    base0 = v0;
-    base1 = v1;
-    step0 = d0;
-    step1 = d1;
+    base = v;
+    step = d;
     rn_base = rn;
     may_damp = !limited;
     halvings = 0;
-    v0 += d0;
-    v1 += d1;
+    v += d;
   }
   return false;
 }
@@ -556,19 +551,23 @@ void dk_engine::substep(const Eigen::Vector2d& p, port_point& out, int& evals) n
   out = last_;
 }
 
-// One sample; inlined into both process() overloads, so the block loop makes no call per
-// sample beyond the Newton solve and the wide kernels.
-__attribute__((always_inline)) inline double dk_engine::step(double generator_v) noexcept {
-  const int ns = m_.states;
+// One sample, for NS states (0: any number, at run time) with the portable or the wide
+// (AVX2 + FMA) update kernels. Always inlined into the block loops below, so each loop is
+// compiled once per state count and kernel set, with no dispatch per sample; the wide loops
+// are compiled for AVX2 + FMA as a whole (the Newton solve inlined into them included).
+template <int NS, bool Wide>
+__attribute__((always_inline)) inline int dk_engine::step_t(double generator_v, double& y) noexcept {
+  const int ns = NS > 0 ? NS : m_.states;
   const double ug = sign_ * generator_v;
   in_[ns + 1] = ug;
+  if constexpr (NS == 0) {
+    update_before_dynamic(w_.data(), in_.data(), pre_.data(), ns);
+  } else if constexpr (Wide) {
 #if PINCHOFF_DK_WIDE
-  if (wide_) {
-    PINCHOFF_DK_DISPATCH(update_before_wide, update_before_dynamic, w_.data(), in_.data(), pre_.data(), ns)
-  } else
+    update_before_wide<NS>(w_.data(), in_.data(), pre_.data(), ns);
 #endif
-  {
-    PINCHOFF_DK_DISPATCH(update_before_fixed, update_before_dynamic, w_.data(), in_.data(), pre_.data(), ns)
+  } else {
+    update_before_fixed<NS>(w_.data(), in_.data(), pre_.data(), ns);
   }
   const Eigen::Vector2d p = q_ + e1_.col(0) * supply_v_ + e1_.col(1) * ug;
 
@@ -581,8 +580,9 @@ __attribute__((always_inline)) inline double dk_engine::step(double generator_v)
   // Across a kink (cutoff, the triode edge, a junction turning on) the extrapolation can
   // overshoot by volts; a junction pushed far forward by it would start Newton where its
   // exponential (or the linear continuation beyond exp(80)) swamps everything else. The
-  // warm start is limited like a Newton step from the last solution.
-  {
+  // warm start is limited like a Newton step from the last solution (only a junction
+  // landing above vcrit can be limited).
+  if (guess[0] > dev_.vcrit_v || guess[0] - guess[1] > dev_.vcrit_v) {
     const double alpha = junction_step_scale(last_.v[0], last_.v[1], guess[0] - last_.v[0], guess[1] - last_.v[1]);
     if (alpha < 1.0) guess = last_.v + alpha * (guess - last_.v);
   }
@@ -601,25 +601,82 @@ __attribute__((always_inline)) inline double dk_engine::step(double generator_v)
   p_last_ = p;
 
   in_.tail<3>() = pt.i;
+  if constexpr (NS == 0) {
+    update_after_dynamic(w_.data(), in_.data(), pre_.data(), out_.data(), ns);
+  } else if constexpr (Wide) {
 #if PINCHOFF_DK_WIDE
-  if (wide_) {
-    PINCHOFF_DK_DISPATCH(update_after_wide, update_after_dynamic, w_.data(), in_.data(), pre_.data(), out_.data(), ns)
-  } else
+    update_after_wide<NS>(w_.data(), in_.data(), pre_.data(), out_.data(), ns);
 #endif
-  {
-    PINCHOFF_DK_DISPATCH(update_after_fixed, update_after_dynamic, w_.data(), in_.data(), pre_.data(), out_.data(), ns)
+  } else {
+    update_after_fixed<NS>(w_.data(), in_.data(), pre_.data(), out_.data(), ns);
   }
   q_ = out_.segment<2>(ns);
+  y = sign_ * out_[ns + 2];
+  return evals;
+}
 
-  ++stats_.samples;
-  stats_.evaluations += evals;
-  stats_.max_evaluations = std::max(stats_.max_evaluations, evals);
-  return sign_ * out_[ns + 2];
+// The block loops: the statistics are kept in locals and stored once a block.
+template <int NS>
+void dk_engine::block_portable(const double* in, double* out, std::size_t n) noexcept {
+  long long evaluations = 0;
+  int most = stats_.max_evaluations;
+  for (std::size_t k = 0; k < n; ++k) {
+    const int e = step_t<NS, false>(in[k], out[k]);
+    evaluations += e;
+    most = std::max(most, e);
+  }
+  stats_.samples += static_cast<long long>(n);
+  stats_.evaluations += evaluations;
+  stats_.max_evaluations = most;
+}
+
+#if PINCHOFF_DK_WIDE
+template <int NS>
+__attribute__((target("avx2,fma"))) void dk_engine::block_wide(const double* in, double* out, std::size_t n) noexcept {
+  long long evaluations = 0;
+  int most = stats_.max_evaluations;
+  for (std::size_t k = 0; k < n; ++k) {
+    const int e = step_t<NS, true>(in[k], out[k]);
+    evaluations += e;
+    most = std::max(most, e);
+  }
+  stats_.samples += static_cast<long long>(n);
+  stats_.evaluations += evaluations;
+  stats_.max_evaluations = most;
+}
+#endif
+
+void dk_engine::run_block(const double* in, double* out, std::size_t n) noexcept {
+#if PINCHOFF_DK_WIDE
+#define PINCHOFF_DK_WIDE_CASE(N) \
+  if (wide_) return block_wide<N>(in, out, n);
+#else
+#define PINCHOFF_DK_WIDE_CASE(N)
+#endif
+#define PINCHOFF_DK_CASE(N)   \
+  case N:                     \
+    PINCHOFF_DK_WIDE_CASE(N)  \
+    return block_portable<N>(in, out, n);
+  switch (m_.states) {
+    PINCHOFF_DK_CASE(1)
+    PINCHOFF_DK_CASE(2)
+    PINCHOFF_DK_CASE(3)
+    PINCHOFF_DK_CASE(4)
+    PINCHOFF_DK_CASE(5)
+    PINCHOFF_DK_CASE(6)
+    PINCHOFF_DK_CASE(7)
+    PINCHOFF_DK_CASE(8)
+    default: return block_portable<0>(in, out, n);
+  }
+#undef PINCHOFF_DK_CASE
+#undef PINCHOFF_DK_WIDE_CASE
 }
 
 double dk_engine::process(double generator_v) noexcept {
   if (m_.devices != 1) return process_general(generator_v);
-  return step(generator_v);
+  double y = 0.0;
+  run_block(&generator_v, &y, 1);
+  return y;
 }
 
 void dk_engine::process(std::span<const double> in, std::span<double> out) noexcept {
@@ -628,7 +685,8 @@ void dk_engine::process(std::span<const double> in, std::span<double> out) noexc
     for (std::size_t k = 0; k < n; ++k) out[k] = process_general(in[k]);
     return;
   }
-  for (std::size_t k = 0; k < n; ++k) out[k] = step(in[k]);
+  // In place (in and out the same span) is fine: sample k is read before it is written.
+  run_block(in.data(), out.data(), n);
 }
 
 double dk_engine::process_tracked(double generator_v, Eigen::MatrixXd& sensitivity) {
@@ -642,7 +700,7 @@ double dk_engine::process_tracked(double generator_v, Eigen::MatrixXd& sensitivi
     sensitivity = tmp_;
     return y;
   }
-  cj_.noalias() = m_.c * last_.jf;
+  cj_.noalias() = m_.c * last_.jf();
   md_.noalias() = last_.m * m_.d;
   phi_ = m_.a;
   phi_.noalias() += cj_ * md_;

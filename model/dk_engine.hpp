@@ -77,9 +77,10 @@ struct dk_options {
   /// Also evaluate the device at every accepted point and require the actual residual to
   /// be below tol_v (slower; checks the error bound, see dk_stats::bound_misses).
   bool confirm{false};
-  /// Use the AVX2 + FMA state-update kernels where the processor has them (x86-64). They
-  /// round differently from the portable ones (last bits of the samples); a processor
-  /// always takes the same kernels, so results repeat. false: the portable kernels.
+  /// Use the sample loop compiled for AVX2 + FMA (state update and Newton solve) where the
+  /// processor has them (x86-64). It rounds differently from the portable loop (last bits
+  /// of the samples); a processor always takes the same loop, so results repeat. false:
+  /// the portable loop.
   bool wide_kernels{true};
 };
 
@@ -144,8 +145,14 @@ class dk_engine {
   struct port_point {
     Eigen::Vector2d v;
     Eigen::Vector3d i;
-    Eigen::Matrix<double, 3, 2> jf;  ///< di/dv
+    Eigen::Vector4d g;               ///< ggs, ggd, gm, gds: the conductances behind Jf
     Eigen::Matrix2d m;               ///< dv/dp = (I - F Jf)^-1
+    /// di/dv: [[ggs, 0], [ggd, -ggd], [gm, gds]].
+    Eigen::Matrix<double, 3, 2> jf() const {
+      Eigen::Matrix<double, 3, 2> j;
+      j << g[0], 0.0, g[1], -g[1], g[2], g[3];
+      return j;
+    }
   };
 
 
@@ -174,7 +181,15 @@ class dk_engine {
   };
 
   void init(const network& net, const operating_point& op);
-  double step(double generator_v) noexcept;
+  template <int NS, bool Wide>
+  int step_t(double generator_v, double& y) noexcept;
+  template <int NS>
+  void block_portable(const double* in, double* out, std::size_t n) noexcept;
+  template <int NS>
+  void block_wide(const double* in, double* out, std::size_t n) noexcept;
+  void run_block(const double* in, double* out, std::size_t n) noexcept;
+  static void store_point(port_point& out, const Eigen::Array2d& v, double igs, double igd, double id,
+                          const detail::port_currents& c, const Eigen::Array2d& mc0, const Eigen::Array2d& mc1) noexcept;
   double junction_step_scale(double v0, double v1, double d0, double d1) const noexcept;
   void init_general(const network& net, const operating_point& op);
   void reset_general();

@@ -296,10 +296,10 @@ TEST_CASE("a sample Newton cannot solve directly is sub-stepped, and what still 
   }
 }
 
-TEST_CASE("the wide and the portable update kernels give the same samples") {
-  // The AVX2 + FMA kernels compute the same sums with fused multiply-adds (one rounding
-  // instead of two), so the two differ by rounding only: far below the 1e-9 V the engine
-  // is held to against the reference (common practice: compare against a plain path).
+TEST_CASE("the wide and the portable sample loops give the same samples") {
+  // The loop compiled for AVX2 + FMA computes the same sums with fused multiply-adds (one
+  // rounding instead of two), so the two differ by rounding only: far below the 1e-9 V the
+  // engine is held to against the reference (common practice: compare against a plain path).
   for (const auto& st : engine_stages) {
     const std::string name = st.name;
     CAPTURE(name);
