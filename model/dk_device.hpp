@@ -7,13 +7,19 @@
 // One shortcut, exact in double precision: where a junction is so far reverse biased that
 // exp(v / (n Vt)) < 2^-54, is (exp - 1) rounds to exactly -is, so the exponential is not
 // evaluated; its conductance (below 1e-27 S for is = 1e-14 A) is then taken as 0, which only
-// touches the Newton Jacobian, never the solution.
+// touches the Newton Jacobian, never the solution. A user of these functions may move the
+// threshold up (device_consts::skip_arg) if it bounds what that leaves out: below skip_arg
+// the current differs from -is by at most is exp(skip_arg) (the DK engine adds that to its
+// acceptance bound).
 #include <cmath>
 #include <limits>
 
 #include "model/jfet.hpp"
 
 namespace pinchoff::model::detail {
+
+// exp(-38) = 3.1e-17 < 2^-54: (exp - 1) rounds to exactly -1 below this argument.
+inline constexpr double junction_deep_reverse = -38.0;
 
 struct device_consts {
   double beta{};      ///< A/V^2
@@ -23,6 +29,9 @@ struct device_consts {
   double nvt_v{};     ///< n Vt
   double inv_nvt{};   ///< 1 / (n Vt)
   double vcrit_v{};   ///< pnjlim critical voltage (infinite when is = 0)
+  /// Below this v / (n Vt) a junction is taken as -is with no conductance; the default is
+  /// exact in double precision (see above).
+  double skip_arg{junction_deep_reverse};
 
   static device_consts of(const jfet_params& p, double vt_v) noexcept {
     device_consts d;
@@ -45,12 +54,10 @@ struct port_currents {
 
 // Same constant as model/jfet.cpp: beyond exp(80) the junction current is continued linearly.
 inline constexpr double junction_exp_limit = 80.0;
-// exp(-38) = 3.1e-17 < 2^-54: (exp - 1) rounds to exactly -1 below this argument.
-inline constexpr double junction_deep_reverse = -38.0;
 
 inline void junction(const device_consts& d, double v, double& i, double& g) noexcept {
   const double arg = v * d.inv_nvt;
-  if (arg < junction_deep_reverse) {
+  if (arg < d.skip_arg) {
     i = -d.is_a;
     g = 0.0;
     return;

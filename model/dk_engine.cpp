@@ -261,6 +261,24 @@ void dk_engine::init(const network& net, const operating_point& op) {
   f_abs_ = f1_.cwiseAbs();
   const int ns = m_.states;
 
+  // Far-reverse junctions. Below v / (n Vt) = skip_arg the device takes a junction as -is
+  // with no conductance, leaving out at most is exp(skip_arg); in a Newton step that starts
+  // there and ends at most 0.01 n Vt higher, the remainder is at most e^0.01 times that.
+  // Both, for both junctions, go through F into the acceptance bound (skip_t_), and
+  // skip_arg is set so that they stay below a thousandth of tol_v (and never above
+  // exp(-16), 0.41 V of reverse bias at n = 1 and room temperature). At rest the gate-source
+  // junction of a biased stage sits there, and its exponential lies on the path from one
+  // sample to the next.
+  {
+    const Eigen::Array2d fa = f_abs_.col(0).array() + f_abs_.col(1).array();
+    const double per_amp = 2.02 * fa.maxCoeff();
+    if (dev_.is_a > 0.0 && per_amp > 0.0) {
+      const double arg = std::log(1e-3 * opt_.tol_v / (per_amp * dev_.is_a));
+      dev_.skip_arg = std::clamp(arg, detail::junction_deep_reverse, -16.0);
+    }
+    skip_t_ = fa * (2.02 * dev_.is_a * std::exp(dev_.skip_arg));
+  }
+
   // The state rows hold the increment x_n - x_{n-1} = (A - I) x_{n-1} + B u + C i: near a
   // fixed point the terms of a slow mode are then small, and so is their rounding, which
   // that mode would otherwise integrate over tau/T samples (a drift of up to 1e-10 V).
@@ -483,7 +501,7 @@ __attribute__((always_inline)) inline bool dk_engine::solve_ports(const Eigen::V
       const double ad = std::fabs(c.id_a) + std::fabs(id_lin_d);
       const a2 fa0 = f_abs_.col(0).array(), fa1 = f_abs_.col(1).array(), fa2 = f_abs_.col(2).array();
       const a2 round = round_k * (fa0 * ags + fa1 * agd + fa2 * ad + p.abs() + vn.abs());
-      const a2 t = fa0 * rgs + fa1 * rgd + fa2 * rd + round;
+      const a2 t = fa0 * rgs + fa1 * rgd + fa2 * rd + round + skip_t_;
       // The rounding part of each row is allowed on top of tol_v up to rounding_allowance_v:
       // where a large transimpedance meets a large current (megohms and tens of mA: terms
       // of tens of kV cancelling to a port voltage of a few volts) the equation resolves
@@ -495,7 +513,10 @@ __attribute__((always_inline)) inline bool dk_engine::solve_ports(const Eigen::V
       const a2 e_allowed = ma0 * allowed[0] + ma1 * allowed[1];
       if ((t <= tol + allowed).all() && (e <= tol + e_allowed).all()) {
         if (opt_.confirm) {
-          const detail::port_currents cc = detail::evaluate_ports(dev_, vn[0], vn[1]);
+          // The exact device (no far-reverse skip), so the check covers the skip's bound too.
+          detail::device_consts exact = dev_;
+          exact.skip_arg = detail::junction_deep_reverse;
+          const detail::port_currents cc = detail::evaluate_ports(exact, vn[0], vn[1]);
           ++evals;
           const a2 q = p + fc0 * cc.igs_a + fc1 * cc.igd_a + fc2 * cc.id_a - vn;
           if (!(q.abs() <= tol + allowed).all()) {

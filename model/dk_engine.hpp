@@ -215,6 +215,7 @@ class dk_engine {
   Eigen::Matrix<double, 2, 3> f1_;  // one JFET: F and E at fixed size
   Eigen::Matrix2d e1_;
   Eigen::Matrix<double, 2, 3> f_abs_;
+  Eigen::Array2d skip_t_{Eigen::Array2d::Zero()};  // bound on what skipped junction exponentials leave out, per port row
   // Stacked update: [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n], ns + 3 rows, ns + 5 cols.
   Eigen::MatrixXd w_;  // rows padded to whole packets (zero rows)
   Eigen::VectorXd in_, out_;        // [x; u; i] and the product
