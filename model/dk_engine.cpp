@@ -636,13 +636,14 @@ __attribute__((always_inline)) inline int dk_engine::step_t(double generator_v, 
   return evals;
 }
 
-// The block loops: the statistics are kept in locals and stored once a block.
-template <int NS>
-void dk_engine::block_portable(const double* in, double* out, std::size_t n) noexcept {
+// The block loop: the statistics are kept in locals and stored once a block. Always
+// inlined into the two entry points below, the wide one compiled for AVX2 + FMA.
+template <int NS, bool Wide>
+__attribute__((always_inline)) inline void dk_engine::block_t(const double* in, double* out, std::size_t n) noexcept {
   long long evaluations = 0;
   int most = stats_.max_evaluations;
   for (std::size_t k = 0; k < n; ++k) {
-    const int e = step_t<NS, false>(in[k], out[k]);
+    const int e = step_t<NS, Wide>(in[k], out[k]);
     evaluations += e;
     most = std::max(most, e);
   }
@@ -651,19 +652,15 @@ void dk_engine::block_portable(const double* in, double* out, std::size_t n) noe
   stats_.max_evaluations = most;
 }
 
+template <int NS>
+void dk_engine::block_portable(const double* in, double* out, std::size_t n) noexcept {
+  block_t<NS, false>(in, out, n);
+}
+
 #if PINCHOFF_DK_WIDE
 template <int NS>
 __attribute__((target("avx2,fma"))) void dk_engine::block_wide(const double* in, double* out, std::size_t n) noexcept {
-  long long evaluations = 0;
-  int most = stats_.max_evaluations;
-  for (std::size_t k = 0; k < n; ++k) {
-    const int e = step_t<NS, true>(in[k], out[k]);
-    evaluations += e;
-    most = std::max(most, e);
-  }
-  stats_.samples += static_cast<long long>(n);
-  stats_.evaluations += evaluations;
-  stats_.max_evaluations = most;
+  block_t<NS, true>(in, out, n);
 }
 #endif
 

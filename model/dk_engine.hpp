@@ -183,6 +183,8 @@ class dk_engine {
   void init(const network& net, const operating_point& op);
   template <int NS, bool Wide>
   int step_t(double generator_v, double& y) noexcept;
+  template <int NS, bool Wide>
+  void block_t(const double* in, double* out, std::size_t n) noexcept;
   template <int NS>
   void block_portable(const double* in, double* out, std::size_t n) noexcept;
   template <int NS>
