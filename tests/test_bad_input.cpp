@@ -23,6 +23,7 @@
 #include "dsp/units.hpp"
 #include "model/spread.hpp"
 #include "support/cli_runner.hpp"
+#include "support/patch_float.hpp"
 #include "support/scratch_dir.hpp"
 
 namespace fs = std::filesystem;
@@ -141,26 +142,10 @@ struct fixtures {
       std::string bytes(std::istreambuf_iterator<char>(in), {});
       write(f("truncated.wav"), std::string_view(bytes).substr(0, bytes.size() / 2));
     }
-    {
-      // A NaN at frame 1000 of the float recording (frames of 4 bytes after the data chunk).
-      std::ifstream in(f("float.wav"), std::ios::binary);
-      std::string bytes(std::istreambuf_iterator<char>(in), {});
-      const std::size_t data = bytes.find("data");
-      REQUIRE(data != std::string::npos);
-      const std::uint32_t nan_bits = 0x7fc00000u;
-      std::memcpy(bytes.data() + data + 8 + 4 * 1000, &nan_bits, 4);
-      write(f("nan.wav"), bytes);
-    }
-    {
-      // The same at frame 4800 (0.1 s) of the 48 kHz float recording.
-      std::ifstream in(f("float48.wav"), std::ios::binary);
-      std::string bytes(std::istreambuf_iterator<char>(in), {});
-      const std::size_t data = bytes.find("data");
-      REQUIRE(data != std::string::npos);
-      const std::uint32_t inf_bits = 0x7f800000u;
-      std::memcpy(bytes.data() + data + 8 + 4 * 4800, &inf_bits, 4);
-      write(f("inf48.wav"), bytes);
-    }
+    // A NaN at frame 1000 of the float recording; an infinity at frame 4800 (0.1 s) of the
+    // 48 kHz one.
+    pinchoff::testing::copy_with_float_sample(f("float.wav"), f("nan.wav"), 1000, 0x7fc00000u);
+    pinchoff::testing::copy_with_float_sample(f("float48.wav"), f("inf48.wav"), 4800, 0x7f800000u);
     fs::create_directory(f("made"));
     write(f("made/taken.wav"), "x");
     // A second stage file whose name matches the first: both would render to stage.wav.
