@@ -41,14 +41,16 @@ double max_abs(const V& v) {
 constexpr int padded_rows(int ns, int packet) noexcept { return (ns + 3 + packet - 1) / packet * packet; }
 
 // Column by column (o += W(:, j) x_j): each x_j is broadcast once and the column runs in
-// whole SIMD packets; the same sums in the same order as the row-by-column product.
+// whole SIMD packets; the same sums in the same order as the row-by-column product. The
+// supply column is constant: it enters as the vector k (W's supply column times the supply).
 template <int NS>
-void update_before_fixed(const double* w, const double* in, double* pre, int) noexcept {
+void update_before_fixed(const double* w, const double* k, const double* in, double* pre, int) noexcept {
   constexpr int rows = padded_rows(NS, 2);
   using col_type = Eigen::Matrix<double, rows, 1>;
   // A local accumulator, so it stays in registers (a Map could alias w and in).
-  col_type o = Eigen::Map<const col_type>(w) * in[0];
-  for (int j = 1; j < NS + 2; ++j) o += Eigen::Map<const col_type>(w + j * rows) * in[j];
+  col_type o = Eigen::Map<const col_type>(k);
+  for (int j = 0; j < NS; ++j) o += Eigen::Map<const col_type>(w + j * rows) * in[j];
+  o += Eigen::Map<const col_type>(w + (NS + 1) * rows) * in[NS + 1];
   Eigen::Map<col_type>{pre} = o;
 }
 
@@ -62,11 +64,13 @@ void update_after_fixed(const double* w, double* in, const double* pre, double* 
   Eigen::Map<Eigen::Matrix<double, NS, 1>>(in) += o.template head<NS>();
 }
 
-void update_before_dynamic(const double* w, const double* in, double* pre, int ns) noexcept {
+void update_before_dynamic(const double* w, const double* k, const double* in, double* pre, int ns) noexcept {
   const Eigen::Map<const Eigen::MatrixXd> wm(w, padded_rows(ns, 2), ns + 5);
-  const Eigen::Map<const Eigen::VectorXd> xu(in, ns + 2);
+  const Eigen::Map<const Eigen::VectorXd> x(in, ns);
   Eigen::Map<Eigen::VectorXd> o(pre, padded_rows(ns, 2));
-  o.noalias() = wm.leftCols(ns + 2) * xu;
+  o = Eigen::Map<const Eigen::VectorXd>(k, padded_rows(ns, 2));
+  o.noalias() += wm.leftCols(ns) * x;
+  o += wm.col(ns + 1) * in[ns + 1];
 }
 
 void update_after_dynamic(const double* w, double* in, const double* pre, double* out, int ns) noexcept {
@@ -81,14 +85,14 @@ void update_after_dynamic(const double* w, double* in, const double* pre, double
 #if PINCHOFF_DK_WIDE
 // AVX2 + FMA kernels: rows padded to a multiple of 4; the same column order as above.
 template <int NS>
-__attribute__((target("avx2,fma"))) void update_before_wide(const double* w, const double* in, double* pre,
-                                                             int) noexcept {
+__attribute__((target("avx2,fma"))) void update_before_wide(const double* w, const double* kc, const double* in,
+                                                             double* pre, int) noexcept {
   constexpr int packets = padded_rows(NS, 4) / 4;
   constexpr int rows = 4 * packets;
   __m256d o[packets];
-  const __m256d x0 = _mm256_broadcast_sd(in);
-  for (int k = 0; k < packets; ++k) o[k] = _mm256_mul_pd(_mm256_loadu_pd(w + 4 * k), x0);
-  for (int j = 1; j < NS + 2; ++j) {
+  for (int k = 0; k < packets; ++k) o[k] = _mm256_loadu_pd(kc + 4 * k);
+  for (int j = 0; j < NS + 2; ++j) {
+    if (j == NS) continue;  // the supply: in kc
     const __m256d xj = _mm256_broadcast_sd(in + j);
     for (int k = 0; k < packets; ++k) o[k] = _mm256_fmadd_pd(_mm256_loadu_pd(w + j * rows + 4 * k), xj, o[k]);
   }
@@ -288,6 +292,7 @@ void dk_engine::init(const network& net, const operating_point& op) {
   w_.topRows(ns) << m_.a - Eigen::MatrixXd::Identity(ns, ns), m_.b, m_.c;
   w_.middleRows(ns, 2) << m_.d * m_.a, m_.d * m_.b, m_.d * m_.c;
   w_.row(ns + 2) << m_.d_out, m_.e_out, m_.f_out;
+  w_const_ = w_.col(ns) * supply_v_;
   in_ = Eigen::VectorXd::Zero(ns + 5);
   out_ = Eigen::VectorXd::Zero(rows);
   pre_ = Eigen::VectorXd::Zero(rows);
@@ -363,11 +368,11 @@ void dk_engine::reset() {
   in_[ns] = supply_v_;
   in_[ns + 1] = 0.0;
   in_.tail(3) = dc_point_.i;
-  q_ = m_.d * x_dc_;
-  last_ = dc_point_;
-  p_last_ = p_dc_;
-  v_hist_.fill(dc_point_.v);
-  p_hist_.fill(p_dc_);
+  ls_.q = m_.d * x_dc_;
+  ls_.last = dc_point_;
+  ls_.p_last = p_dc_;
+  ls_.v_hist.fill(dc_point_.v);
+  ls_.p_hist.fill(p_dc_);
   stats_ = {};
 }
 
@@ -379,7 +384,7 @@ void dk_engine::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
   if (m_.devices != 1)
     g_.q.noalias() = m_.d * x;
   else
-    q_ = m_.d * x;
+    ls_.q = m_.d * x;
 }
 
 // The factor (<= 1) that junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) puts on the
@@ -418,7 +423,7 @@ __attribute__((always_inline)) inline void dk_engine::store_point(port_point& ou
   out.m(1, 1) = mc1[1];
 }
 
-// Newton on r(v) = p + F i(v) - v = 0, from `guess`.
+// One Newton iteration on r(v) = p + F i(v) - v = 0 from st.v.
 //
 // Acceptance (both the step and the residual): after the step dv computed at v, the
 // device currents at v + dv differ from their linearisation i(v) + Jf dv by R: for a
@@ -429,9 +434,10 @@ __attribute__((always_inline)) inline void dk_engine::store_point(port_point& ou
 // Rheinboldt 1970, 12.6). Both bounds must be below tol_v; the accepted currents are the
 // linearised ones, which satisfy v + dv = p + F i exactly. This is the "accept on a tiny
 // step" of quadratic convergence with the step size made precise, not a looser test.
-__attribute__((always_inline)) inline bool dk_engine::solve_ports(const Eigen::Vector2d& p_in,
-                                                                  const Eigen::Vector2d& guess, port_point& out,
-                                                                  int& evals) noexcept {
+__attribute__((always_inline)) inline dk_engine::newton_outcome dk_engine::newton_iteration(newton_state& st,
+                                                                                        const Eigen::Vector2d& p_in,
+                                                                                        port_point& out,
+                                                                                        int& evals) noexcept {
   // Both rows of every port quantity side by side (packets of two): the columns of F and
   // |F| are contiguous pairs, so each row pair costs one packed operation.
   using a2 = Eigen::Array2d;
@@ -441,104 +447,127 @@ __attribute__((always_inline)) inline bool dk_engine::solve_ports(const Eigen::V
   const a2 p = p_in.array();
   const double tol = opt_.tol_v;
   const double small_junction_step = 0.01 * dev_.nvt_v;
-  a2 v = guess.array();
-  a2 base = v, step = a2::Zero();
-  double rn_base = std::numeric_limits<double>::infinity();
-  bool may_damp = false;
-  int halvings = 0;
-  for (int k = 0; k < opt_.max_iterations; ++k) {
-    const detail::port_currents c = detail::evaluate_ports(dev_, v[0], v[1]);
-    ++evals;
-    const a2 r = p + fc0 * c.igs_a + fc1 * c.igd_a + fc2 * c.id_a - v;
-    const double rn = r.abs().maxCoeff();
-    // Damped Newton: halve a step that made the residual grow (or not finite).
-    if (may_damp && !(rn <= rn_base) && !(rn <= tol) && halvings < 30) {
-      step *= 0.5;
-      v = base + step;
-      ++halvings;
-      continue;
+  a2& v = st.v;
+  const detail::port_currents c = detail::evaluate_ports(dev_, v[0], v[1]);
+  ++evals;
+  const a2 r = p + fc0 * c.igs_a + fc1 * c.igd_a + fc2 * c.id_a - v;
+  const double rn = r.abs().maxCoeff();
+  // Damped Newton: halve a step that made the residual grow (or not finite).
+  if (st.may_damp && !(rn <= st.rn_base) && !(rn <= tol) && st.halvings < 30) {
+    st.step *= 0.5;
+    v = st.base + st.step;
+    ++st.halvings;
+    return newton_outcome::go_on;
+  }
+  if (!std::isfinite(rn)) return newton_outcome::failed;
+
+  // J = F Jf - I with Jf = [[ggs, 0], [ggd, -ggd], [gm, gds]], by columns; M = -J^-1 = (I - F Jf)^-1.
+  const a2 jc0 = fc0 * c.ggs_s + fc1 * c.ggd_s + fc2 * c.gm_s;
+  const a2 jc1 = fc2 * c.gds_s - fc1 * c.ggd_s;
+  const double j00 = jc0[0] - 1.0, j10 = jc0[1], j01 = jc1[0], j11 = jc1[1] - 1.0;
+  const double det = j00 * j11 - j01 * j10;
+  if (!(std::fabs(det) > 1e-200)) return newton_outcome::failed;
+  const double inv = 1.0 / det;
+  const a2 mc0 = a2(-j11, j10) * inv, mc1 = a2(j01, -j00) * inv;  // the columns of M
+  a2 d = mc0 * r[0] + mc1 * r[1];
+
+  // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) scales the whole step; only
+  // a junction landing above vcrit can be limited.
+  bool limited = false;
+  if (v[0] + d[0] > dev_.vcrit_v || (v[0] - v[1]) + (d[0] - d[1]) > dev_.vcrit_v) {
+    const double alpha = junction_step_scale(v[0], v[1], d[0], d[1]);
+    if (alpha < 1.0) {
+      d *= alpha;
+      limited = true;
     }
-    if (!std::isfinite(rn)) return false;
-
-    // J = F Jf - I with Jf = [[ggs, 0], [ggd, -ggd], [gm, gds]], by columns; M = -J^-1 = (I - F Jf)^-1.
-    const a2 jc0 = fc0 * c.ggs_s + fc1 * c.ggd_s + fc2 * c.gm_s;
-    const a2 jc1 = fc2 * c.gds_s - fc1 * c.ggd_s;
-    const double j00 = jc0[0] - 1.0, j10 = jc0[1], j01 = jc1[0], j11 = jc1[1] - 1.0;
-    const double det = j00 * j11 - j01 * j10;
-    if (!(std::fabs(det) > 1e-200)) return false;
-    const double inv = 1.0 / det;
-    const a2 mc0 = a2(-j11, j10) * inv, mc1 = a2(j01, -j00) * inv;  // the columns of M
-    a2 d = mc0 * r[0] + mc1 * r[1];
-
-    // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) scales the whole step; only
-    // a junction landing above vcrit can be limited.
-    bool limited = false;
-    if (v[0] + d[0] > dev_.vcrit_v || (v[0] - v[1]) + (d[0] - d[1]) > dev_.vcrit_v) {
-      const double alpha = junction_step_scale(v[0], v[1], d[0], d[1]);
-      if (alpha < 1.0) {
-        d *= alpha;
-        limited = true;
-      }
-    }
-
-    const double dgs = d[0], dgd = d[0] - d[1];
-    if (!limited && std::fabs(dgs) <= small_junction_step && std::fabs(dgd) <= small_junction_step) {
-      const a2 vn = v + d;
-      const double rgs = 0.505 * c.ggs_s * dev_.inv_nvt * dgs * dgs;
-      const double rgd = 0.505 * c.ggd_s * dev_.inv_nvt * dgd * dgd;
-      // Exact channel remainder; 8 eps of the magnitudes summed covers the rounding of the
-      // few operations on each side (each correct to an ulp or two).
-      const double id_new = detail::channel_current(dev_, vn[0], vn[1]);
-      const double id_lin_d = c.gm_s * d[0] + c.gds_s * d[1];
-      const double rd = std::fabs(id_new - c.id_a - id_lin_d) +
-                        round_k * (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d[0]) + std::fabs(c.gds_s * d[1]));
-      // Rounding: the linearised equation v + dv = p + F (i + Jf dv) holds only to the
-      // rounding of its terms, a few eps of their magnitudes. Negligible at any sane point
-      // (1e-14 V for terms of 10 V), it rejects points where currents are so large (a
-      // junction far beyond exp(80)) that the equation cannot be resolved in doubles.
-      const double ags = std::fabs(c.igs_a) + std::fabs(c.ggs_s * dgs);
-      const double agd = std::fabs(c.igd_a) + std::fabs(c.ggd_s * dgd);
-      const double ad = std::fabs(c.id_a) + std::fabs(id_lin_d);
-      const a2 fa0 = f_abs_.col(0).array(), fa1 = f_abs_.col(1).array(), fa2 = f_abs_.col(2).array();
-      const a2 round = round_k * (fa0 * ags + fa1 * agd + fa2 * ad + p.abs() + vn.abs());
-      const a2 t = fa0 * rgs + fa1 * rgd + fa2 * rd + round + skip_t_;
-      // The rounding part of each row is allowed on top of tol_v up to rounding_allowance_v:
-      // where a large transimpedance meets a large current (megohms and tens of mA: terms
-      // of tens of kV cancelling to a port voltage of a few volts) the equation resolves
-      // the port voltages only to about 1e-10 V, and no point could meet tol_v alone. A
-      // point resolved more coarsely than the allowance is still never accepted.
-      const a2 allowed = round.min(rounding_allowance_v);
-      const a2 ma0 = mc0.abs(), ma1 = mc1.abs();
-      const a2 e = ma0 * t[0] + ma1 * t[1];
-      const a2 e_allowed = ma0 * allowed[0] + ma1 * allowed[1];
-      if ((t <= tol + allowed).all() && (e <= tol + e_allowed).all()) {
-        if (opt_.confirm) {
-          // The exact device (no far-reverse skip), so the check covers the skip's bound too.
-          detail::device_consts exact = dev_;
-          exact.skip_arg = detail::junction_deep_reverse;
-          const detail::port_currents cc = detail::evaluate_ports(exact, vn[0], vn[1]);
-          ++evals;
-          const a2 q = p + fc0 * cc.igs_a + fc1 * cc.igd_a + fc2 * cc.id_a - vn;
-          if (!(q.abs() <= tol + allowed).all()) {
-            ++stats_.bound_misses;
-          } else {
-            store_point(out, vn, cc.igs_a, cc.igd_a, cc.id_a, cc, mc0, mc1);
-            return true;
-          }
+  }
+  const double dgs = d[0], dgd = d[0] - d[1];
+  if (!limited && std::fabs(dgs) <= small_junction_step && std::fabs(dgd) <= small_junction_step) {
+    const a2 vn = v + d;
+    const double rgs = 0.505 * c.ggs_s * dev_.inv_nvt * dgs * dgs;
+    const double rgd = 0.505 * c.ggd_s * dev_.inv_nvt * dgd * dgd;
+    // Exact channel remainder; 8 eps of the magnitudes summed covers the rounding of the
+    // few operations on each side (each correct to an ulp or two).
+    const double id_new = detail::channel_current(dev_, vn[0], vn[1]);
+    const double id_lin_d = c.gm_s * d[0] + c.gds_s * d[1];
+    const double rd = std::fabs(id_new - c.id_a - id_lin_d) +
+                      round_k * (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d[0]) + std::fabs(c.gds_s * d[1]));
+    // Rounding: the linearised equation v + dv = p + F (i + Jf dv) holds only to the
+    // rounding of its terms, a few eps of their magnitudes. Negligible at any sane point
+    // (1e-14 V for terms of 10 V), it rejects points where currents are so large (a
+    // junction far beyond exp(80)) that the equation cannot be resolved in doubles.
+    const double ags = std::fabs(c.igs_a) + std::fabs(c.ggs_s * dgs);
+    const double agd = std::fabs(c.igd_a) + std::fabs(c.ggd_s * dgd);
+    const double ad = std::fabs(c.id_a) + std::fabs(id_lin_d);
+    const a2 fa0 = f_abs_.col(0).array(), fa1 = f_abs_.col(1).array(), fa2 = f_abs_.col(2).array();
+    const a2 round = round_k * (fa0 * ags + fa1 * agd + fa2 * ad + p.abs() + vn.abs());
+    const a2 t = fa0 * rgs + fa1 * rgd + fa2 * rd + round + skip_t_;
+    // The rounding part of each row is allowed on top of tol_v up to rounding_allowance_v:
+    // where a large transimpedance meets a large current (megohms and tens of mA: terms
+    // of tens of kV cancelling to a port voltage of a few volts) the equation resolves
+    // the port voltages only to about 1e-10 V, and no point could meet tol_v alone. A
+    // point resolved more coarsely than the allowance is still never accepted.
+    const a2 allowed = round.min(rounding_allowance_v);
+    const a2 ma0 = mc0.abs(), ma1 = mc1.abs();
+    const a2 e = ma0 * t[0] + ma1 * t[1];
+    const a2 e_allowed = ma0 * allowed[0] + ma1 * allowed[1];
+    if ((t <= tol + allowed).all() && (e <= tol + e_allowed).all()) {
+      if (opt_.confirm) {
+        // The exact device (no far-reverse skip), so the check covers the skip's bound too.
+        detail::device_consts exact = dev_;
+        exact.skip_arg = detail::junction_deep_reverse;
+        const detail::port_currents cc = detail::evaluate_ports(exact, vn[0], vn[1]);
+        ++evals;
+        const a2 q = p + fc0 * cc.igs_a + fc1 * cc.igd_a + fc2 * cc.id_a - vn;
+        if (!(q.abs() <= tol + allowed).all()) {
+          ++stats_.bound_misses;
         } else {
-          store_point(out, vn, c.igs_a + c.ggs_s * dgs, c.igd_a + c.ggd_s * dgd, c.id_a + id_lin_d, c, mc0, mc1);
-          return true;
+          store_point(out, vn, cc.igs_a, cc.igd_a, cc.id_a, cc, mc0, mc1);
+          return newton_outcome::accepted;
         }
+      } else {
+        store_point(out, vn, c.igs_a + c.ggs_s * dgs, c.igd_a + c.ggd_s * dgd, c.id_a + id_lin_d, c, mc0, mc1);
+        return newton_outcome::accepted;
       }
     }
-    base = v;
-    step = d;
-    rn_base = rn;
-    may_damp = !limited;
-    halvings = 0;
-    v += d;
+  }
+  st.base = v;
+  st.step = d;
+  st.rn_base = rn;
+  st.may_damp = !limited;
+  st.halvings = 0;
+  v += d;
+  return newton_outcome::go_on;
+}
+
+// Newton from `guess`, up to max_iterations evaluations in all (`done` of them already
+// made on st). Out of line: the sample loop makes the first iteration itself and calls this
+// only when that one was not accepted.
+bool dk_engine::newton_rest(newton_state& st, const Eigen::Vector2d& p, port_point& out, int& evals,
+                            int done) noexcept {
+  for (int k = done; k < opt_.max_iterations; ++k) {
+    switch (newton_iteration(st, p, out, evals)) {
+      case newton_outcome::accepted: return true;
+      case newton_outcome::failed: return false;
+      case newton_outcome::go_on: break;
+    }
   }
   return false;
+}
+
+// The rest of a sample whose first Newton iteration was not accepted: the other iterations,
+// then sub-steps from the last sample's solution if they fail.
+dk_engine::port_point dk_engine::rest_of_sample(newton_state st, bool failed, Eigen::Vector2d p, port_point last,
+                                                Eigen::Vector2d p_last, int& evals) noexcept {
+  port_point pt;
+  if (failed || !newton_rest(st, p, pt, evals, 1)) substep(p, last, p_last, pt, evals);
+  return pt;
+}
+
+bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out,
+                            int& evals) noexcept {
+  newton_state st(guess);
+  return newton_rest(st, p, out, evals, 0);
 }
 
 // A sample whose Newton did not converge: the change of p over the sample is split into
@@ -546,14 +575,15 @@ __attribute__((always_inline)) inline bool dk_engine::solve_ports(const Eigen::V
 // equations of the last part are exactly those of the sample, so the result is the same
 // trapezoidal solution a converged direct solve gives). What still fails is held at the
 // previous solution and counted.
-void dk_engine::substep(const Eigen::Vector2d& p, port_point& out, int& evals) noexcept {
+void dk_engine::substep(const Eigen::Vector2d& p, const port_point& from, const Eigen::Vector2d& p_from, port_point& out,
+                        int& evals) noexcept {
   for (int level = 1; level <= opt_.max_substep_levels; ++level) {
     const int parts = 1 << level;
-    port_point cur = last_;
-    Eigen::Vector2d pc = p_last_;
+    port_point cur = from;
+    Eigen::Vector2d pc = p_from;
     bool ok = true;
     for (int j = 1; j <= parts && ok; ++j) {
-      const Eigen::Vector2d pj = j == parts ? p : Eigen::Vector2d(p_last_ + (p - p_last_) * (double(j) / parts));
+      const Eigen::Vector2d pj = j == parts ? p : Eigen::Vector2d(p_from + (p - p_from) * (double(j) / parts));
       const Eigen::Vector2d guess = cur.v + cur.m * (pj - pc);
       port_point next;
       ok = solve_ports(pj, guess, next, evals);
@@ -569,84 +599,119 @@ void dk_engine::substep(const Eigen::Vector2d& p, port_point& out, int& evals) n
     }
   }
   ++stats_.failed;
-  out = last_;
+  out = from;
 }
 
 // One sample, for NS states (0: any number, at run time) with the portable or the wide
-// (AVX2 + FMA) update kernels. Always inlined into the block loops below, so each loop is
-// compiled once per state count and kernel set, with no dispatch per sample; the wide loops
-// are compiled for AVX2 + FMA as a whole (the Newton solve inlined into them included).
+// (AVX2 + FMA) update kernels, on the loop state s and the buffers xin ([x; u; i]), pre and
+// outv (W's products). Always inlined into the block loops below, so each loop is compiled
+// once per state count and kernel set, with no dispatch per sample; the wide loops are
+// compiled for AVX2 + FMA as a whole, the first Newton iteration inlined into them. The
+// rest of a sample that needs more (newton_rest, substep) is out of line and portable: kept
+// out of the loop, it leaves the loop's registers to the path nearly every sample takes
+// (with it inlined, a loop over iterations, the compiler spilled the loop's constants to
+// the stack every sample: 8 % of the time).
 template <int NS, bool Wide>
-__attribute__((always_inline)) inline int dk_engine::step_t(double generator_v, double& y) noexcept {
+__attribute__((always_inline)) inline int dk_engine::step_t(loop_state& s, double* xin, double* pre, double* outv,
+                                                            double generator_v, double& y) noexcept {
   const int ns = NS > 0 ? NS : m_.states;
   const double ug = sign_ * generator_v;
-  in_[ns + 1] = ug;
+  xin[ns + 1] = ug;
   if constexpr (NS == 0) {
-    update_before_dynamic(w_.data(), in_.data(), pre_.data(), ns);
+    update_before_dynamic(w_.data(), w_const_.data(), xin, pre, ns);
   } else if constexpr (Wide) {
 #if PINCHOFF_DK_WIDE
-    update_before_wide<NS>(w_.data(), in_.data(), pre_.data(), ns);
+    update_before_wide<NS>(w_.data(), w_const_.data(), xin, pre, ns);
 #endif
   } else {
-    update_before_fixed<NS>(w_.data(), in_.data(), pre_.data(), ns);
+    update_before_fixed<NS>(w_.data(), w_const_.data(), xin, pre, ns);
   }
-  const Eigen::Vector2d p = q_ + e1_.col(0) * supply_v_ + e1_.col(1) * ug;
+  const Eigen::Vector2d p = s.q + e1_.col(0) * supply_v_ + e1_.col(1) * ug;
 
   // Warm start: polynomial extrapolation of v, corrected to first order for the part of
   // the new p the same extrapolation of p misses (v = v(p) is a static map in the DK form,
-  // and last_.m = dv/dp there).
-  const Eigen::Vector2d v_ext = pred_[0] * last_.v + pred_[1] * v_hist_[0] + pred_[2] * v_hist_[1] + pred_[3] * v_hist_[2];
-  const Eigen::Vector2d p_ext = pred_[0] * p_last_ + pred_[1] * p_hist_[0] + pred_[2] * p_hist_[1] + pred_[3] * p_hist_[2];
-  Eigen::Vector2d guess = v_ext + last_.m * (p - p_ext);
+  // and last.m = dv/dp there).
+  const Eigen::Vector2d v_ext =
+      pred_[0] * s.last.v + pred_[1] * s.v_hist[0] + pred_[2] * s.v_hist[1] + pred_[3] * s.v_hist[2];
+  const Eigen::Vector2d p_ext =
+      pred_[0] * s.p_last + pred_[1] * s.p_hist[0] + pred_[2] * s.p_hist[1] + pred_[3] * s.p_hist[2];
+  Eigen::Vector2d guess = v_ext + s.last.m * (p - p_ext);
   // Across a kink (cutoff, the triode edge, a junction turning on) the extrapolation can
   // overshoot by volts; a junction pushed far forward by it would start Newton where its
   // exponential (or the linear continuation beyond exp(80)) swamps everything else. The
   // warm start is limited like a Newton step from the last solution (only a junction
   // landing above vcrit can be limited).
   if (guess[0] > dev_.vcrit_v || guess[0] - guess[1] > dev_.vcrit_v) {
-    const double alpha = junction_step_scale(last_.v[0], last_.v[1], guess[0] - last_.v[0], guess[1] - last_.v[1]);
-    if (alpha < 1.0) guess = last_.v + alpha * (guess - last_.v);
+    const double alpha =
+        junction_step_scale(s.last.v[0], s.last.v[1], guess[0] - s.last.v[0], guess[1] - s.last.v[1]);
+    if (alpha < 1.0) guess = s.last.v + alpha * (guess - s.last.v);
   }
 
+  // The first Newton iteration inline; what it did not settle goes out of line, on copies
+  // (so that nothing of the hot path has its address taken and has to live in memory).
   int evals = 0;
   port_point pt;
-  if (!solve_ports(p, guess, pt, evals)) substep(p, pt, evals);
+  newton_state st(guess);
+  const newton_outcome first = newton_iteration(st, p, pt, evals);
+  if (first != newton_outcome::accepted) [[unlikely]]
+    pt = rest_of_sample(st, first == newton_outcome::failed, p, s.last, s.p_last, evals);
 
-  v_hist_[2] = v_hist_[1];
-  v_hist_[1] = v_hist_[0];
-  v_hist_[0] = last_.v;
-  p_hist_[2] = p_hist_[1];
-  p_hist_[1] = p_hist_[0];
-  p_hist_[0] = p_last_;
-  last_ = pt;
-  p_last_ = p;
+  s.v_hist[2] = s.v_hist[1];
+  s.v_hist[1] = s.v_hist[0];
+  s.v_hist[0] = s.last.v;
+  s.p_hist[2] = s.p_hist[1];
+  s.p_hist[1] = s.p_hist[0];
+  s.p_hist[0] = s.p_last;
+  s.last = pt;
+  s.p_last = p;
 
-  in_.tail<3>() = pt.i;
+  xin[ns + 2] = pt.i[0];
+  xin[ns + 3] = pt.i[1];
+  xin[ns + 4] = pt.i[2];
   if constexpr (NS == 0) {
-    update_after_dynamic(w_.data(), in_.data(), pre_.data(), out_.data(), ns);
+    update_after_dynamic(w_.data(), xin, pre, outv, ns);
   } else if constexpr (Wide) {
 #if PINCHOFF_DK_WIDE
-    update_after_wide<NS>(w_.data(), in_.data(), pre_.data(), out_.data(), ns);
+    update_after_wide<NS>(w_.data(), xin, pre, outv, ns);
 #endif
   } else {
-    update_after_fixed<NS>(w_.data(), in_.data(), pre_.data(), out_.data(), ns);
+    update_after_fixed<NS>(w_.data(), xin, pre, outv, ns);
   }
-  q_ = out_.segment<2>(ns);
-  y = sign_ * out_[ns + 2];
+  s.q[0] = outv[ns];
+  s.q[1] = outv[ns + 1];
+  y = sign_ * outv[ns + 2];
   return evals;
 }
 
-// The block loop: the statistics are kept in locals and stored once a block. Always
-// inlined into the two entry points below, the wide one compiled for AVX2 + FMA.
+// The block loop: the loop state, and for a fixed state count the update's buffers, are
+// copied into locals for the block and back after it; the statistics are kept in locals
+// and stored once a block. Always inlined into the two entry points below, the wide one
+// compiled for AVX2 + FMA.
 template <int NS, bool Wide>
 __attribute__((always_inline)) inline void dk_engine::block_t(const double* in, double* out, std::size_t n) noexcept {
   long long evaluations = 0;
   int most = stats_.max_evaluations;
-  for (std::size_t k = 0; k < n; ++k) {
-    const int e = step_t<NS, Wide>(in[k], out[k]);
-    evaluations += e;
-    most = std::max(most, e);
+  loop_state s = ls_;
+  if constexpr (NS == 0) {
+    for (std::size_t k = 0; k < n; ++k) {
+      const int e = step_t<NS, Wide>(s, in_.data(), pre_.data(), out_.data(), in[k], out[k]);
+      evaluations += e;
+      most = std::max(most, e);
+    }
+  } else {
+    constexpr int rows = padded_rows(NS, Wide ? 4 : 2);
+    alignas(32) double xin[NS + 5];
+    alignas(32) double pre[rows];
+    alignas(32) double outv[rows];
+    for (int j = 0; j < NS + 5; ++j) xin[j] = in_[j];
+    for (std::size_t k = 0; k < n; ++k) {
+      const int e = step_t<NS, Wide>(s, xin, pre, outv, in[k], out[k]);
+      evaluations += e;
+      most = std::max(most, e);
+    }
+    for (int j = 0; j < NS + 5; ++j) in_[j] = xin[j];
   }
+  ls_ = s;
   stats_.samples += static_cast<long long>(n);
   stats_.evaluations += evaluations;
   stats_.max_evaluations = most;
@@ -718,8 +783,8 @@ double dk_engine::process_tracked(double generator_v, Eigen::MatrixXd& sensitivi
     sensitivity = tmp_;
     return y;
   }
-  cj_.noalias() = m_.c * last_.jf();
-  md_.noalias() = last_.m * m_.d;
+  cj_.noalias() = m_.c * ls_.last.jf();
+  md_.noalias() = ls_.last.m * m_.d;
   phi_ = m_.a;
   phi_.noalias() += cj_ * md_;
   tmp_.noalias() = phi_ * sensitivity;

@@ -28,6 +28,7 @@
 // Everything inside is the n-channel network frame (model/network.hpp); the engine's
 // inputs and outputs are real (bench) signs: network u = sign * real u, real y = sign * y.
 #include <array>
+#include <limits>
 #include <span>
 #include <vector>
 
@@ -128,7 +129,7 @@ class dk_engine {
   Eigen::Vector2d ports_v(int device = 0) const noexcept { return sign_ * ports_network_v(device); }
   /// Network frame (n-channel mirror), as used inside.
   Eigen::Vector2d ports_network_v(int device = 0) const noexcept {
-    return m_.devices == 1 ? last_.v : Eigen::Vector2d(g_.last.v.segment<2>(2 * device));
+    return m_.devices == 1 ? ls_.last.v : Eigen::Vector2d(g_.last.v.segment<2>(2 * device));
   }
   /// Output (real volts) the DC state gives with the generator at 0 V.
   double dc_output_v() const noexcept { return y_dc_; }
@@ -156,6 +157,16 @@ class dk_engine {
   };
 
 
+  // What the one-JFET sample loop carries from one sample to the next; a block works on a
+  // copy in locals (kept in registers, no round trip through the engine's memory a sample).
+  struct loop_state {
+    port_point last;                                 // the last sample's solution
+    Eigen::Vector2d q{Eigen::Vector2d::Zero()};      // D x_{n-1}
+    Eigen::Vector2d p_last{Eigen::Vector2d::Zero()};
+    std::array<Eigen::Vector2d, 3> v_hist{};         // v_{n-2}, v_{n-3}, v_{n-4} (v_{n-1} is last.v)
+    std::array<Eigen::Vector2d, 3> p_hist{};
+  };
+
   // The general path for more than one JFET (model/dk_multi.cpp). Every size is fixed when
   // the engine is built, so the sample loop allocates nothing.
   struct port_set {
@@ -182,7 +193,7 @@ class dk_engine {
 
   void init(const network& net, const operating_point& op);
   template <int NS, bool Wide>
-  int step_t(double generator_v, double& y) noexcept;
+  int step_t(loop_state& s, double* xin, double* pre, double* outv, double generator_v, double& y) noexcept;
   template <int NS, bool Wide>
   void block_t(const double* in, double* out, std::size_t n) noexcept;
   template <int NS>
@@ -204,8 +215,24 @@ class dk_engine {
   bool solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& guess, port_set& out, int& evals) noexcept;
   template <int K>
   void substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept;
+  // The one-JFET Newton: its state between iterations, one iteration (inlined into the
+  // sample loop for the first), the rest out of line, and the whole from a guess.
+  struct newton_state {
+    explicit newton_state(const Eigen::Vector2d& guess) : v(guess.array()), base(v) {}
+    Eigen::Array2d v, base;
+    Eigen::Array2d step{Eigen::Array2d::Zero()};
+    double rn_base{std::numeric_limits<double>::infinity()};
+    bool may_damp{false};
+    int halvings{0};
+  };
+  enum class newton_outcome { accepted, failed, go_on };
+  newton_outcome newton_iteration(newton_state& st, const Eigen::Vector2d& p, port_point& out, int& evals) noexcept;
+  bool newton_rest(newton_state& st, const Eigen::Vector2d& p, port_point& out, int& evals, int done) noexcept;
   bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
-  void substep(const Eigen::Vector2d& p, port_point& out, int& evals) noexcept;
+  port_point rest_of_sample(newton_state st, bool failed, Eigen::Vector2d p, port_point last, Eigen::Vector2d p_last,
+                            int& evals) noexcept;
+  void substep(const Eigen::Vector2d& p, const port_point& from, const Eigen::Vector2d& p_from, port_point& out,
+               int& evals) noexcept;
   port_point point_at(const Eigen::Vector2d& v) const noexcept;
 
   dk_matrices m_;
@@ -222,11 +249,8 @@ class dk_engine {
   Eigen::MatrixXd w_;  // rows padded to whole packets (zero rows)
   Eigen::VectorXd in_, out_;        // [x; u; i] and the product
   Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
-  Eigen::Vector2d q_{Eigen::Vector2d::Zero()};  // D x_{n-1}
-  port_point last_;
-  Eigen::Vector2d p_last_{Eigen::Vector2d::Zero()};
-  std::array<Eigen::Vector2d, 3> v_hist_{};  // v_{n-2}, v_{n-3}, v_{n-4} (v_{n-1} is last_.v)
-  std::array<Eigen::Vector2d, 3> p_hist_{};
+  Eigen::VectorXd w_const_;         // W's supply column times the supply (constant)
+  loop_state ls_;
   std::array<double, 4> pred_{};    // extrapolation weights for v_{n-1}..v_{n-4}
   Eigen::VectorXd x_dc_;
   port_point dc_point_;
