@@ -252,6 +252,7 @@ void dk_engine::init(const network& net, const operating_point& op) {
     throw internal_error("dk_options: predictor_order must be 0..3");
   static constexpr double weights[4][4] = {{1, 0, 0, 0}, {2, -1, 0, 0}, {3, -3, 1, 0}, {4, -6, 4, -1}};
   for (int k = 0; k < 4; ++k) pred_[static_cast<std::size_t>(k)] = weights[opt_.predictor_order][k];
+  for (int k = 0; k < 3; ++k) diff_use_[static_cast<std::size_t>(k)] = k < opt_.predictor_order ? 1.0 : 0.0;
 
   sign_ = net.sign;
   supply_v_ = net.supply_v;
@@ -371,8 +372,8 @@ void dk_engine::reset() {
   ls_.q = m_.d * x_dc_;
   ls_.last = dc_point_;
   ls_.p_last = p_dc_;
-  ls_.v_hist.fill(dc_point_.v);
-  ls_.p_hist.fill(p_dc_);
+  ls_.v_diff.fill(Eigen::Vector2d::Zero());
+  ls_.p_diff.fill(Eigen::Vector2d::Zero());
   stats_ = {};
 }
 
@@ -484,8 +485,9 @@ __attribute__((always_inline)) inline dk_engine::newton_outcome dk_engine::newto
   const double dgs = d[0], dgd = d[0] - d[1];
   if (!limited && std::fabs(dgs) <= small_junction_step && std::fabs(dgd) <= small_junction_step) {
     const a2 vn = v + d;
-    const double rgs = 0.505 * c.ggs_s * dev_.inv_nvt * dgs * dgs;
-    const double rgd = 0.505 * c.ggd_s * dev_.inv_nvt * dgd * dgd;
+    const double k_junction = 0.505 * dev_.inv_nvt;
+    const double rgs = k_junction * c.ggs_s * dgs * dgs;
+    const double rgd = k_junction * c.ggd_s * dgd * dgd;
     // Exact channel remainder; 8 eps of the magnitudes summed covers the rounding of the
     // few operations on each side (each correct to an ulp or two).
     const double id_new = detail::channel_current(dev_, vn[0], vn[1]);
@@ -501,17 +503,18 @@ __attribute__((always_inline)) inline dk_engine::newton_outcome dk_engine::newto
     const double ad = std::fabs(c.id_a) + std::fabs(id_lin_d);
     const a2 fa0 = f_abs_.col(0).array(), fa1 = f_abs_.col(1).array(), fa2 = f_abs_.col(2).array();
     const a2 round = round_k * (fa0 * ags + fa1 * agd + fa2 * ad + p.abs() + vn.abs());
-    const a2 t = fa0 * rgs + fa1 * rgd + fa2 * rd + round + skip_t_;
-    // The rounding part of each row is allowed on top of tol_v up to rounding_allowance_v:
-    // where a large transimpedance meets a large current (megohms and tens of mA: terms
-    // of tens of kV cancelling to a port voltage of a few volts) the equation resolves
-    // the port voltages only to about 1e-10 V, and no point could meet tol_v alone. A
-    // point resolved more coarsely than the allowance is still never accepted.
+    // The bound on the residual is t = fa0 rgs + fa1 rgd + fa2 rd + round + skip_t_, and
+    // on the error |M| t. The rounding part of each row is allowed on top of tol_v up to
+    // rounding_allowance_v: where a large transimpedance meets a large current (megohms
+    // and tens of mA: terms of tens of kV cancelling to a port voltage of a few volts) the
+    // equation resolves the port voltages only to about 1e-10 V, and no point could meet
+    // tol_v alone. A point resolved more coarsely than the allowance is still never
+    // accepted. Both tests as t - allowed <= tol_v and |M| (t - allowed) <= tol_v, with
+    // t - allowed = fa0 rgs + fa1 rgd + fa2 rd + skip_t_ + max(round - allowance, 0).
     const a2 allowed = round.min(rounding_allowance_v);
-    const a2 ma0 = mc0.abs(), ma1 = mc1.abs();
-    const a2 e = ma0 * t[0] + ma1 * t[1];
-    const a2 e_allowed = ma0 * allowed[0] + ma1 * allowed[1];
-    if ((t <= tol + allowed).all() && (e <= tol + e_allowed).all()) {
+    const a2 u = fa0 * rgs + fa1 * rgd + fa2 * rd + skip_t_ + (round - rounding_allowance_v).max(0.0);
+    const a2 e = mc0.abs() * u[0] + mc1.abs() * u[1];
+    if ((u <= tol).all() && (e <= tol).all()) {
       if (opt_.confirm) {
         // The exact device (no far-reverse skip), so the check covers the skip's bound too.
         detail::device_consts exact = dev_;
@@ -557,10 +560,10 @@ bool dk_engine::newton_rest(newton_state& st, const Eigen::Vector2d& p, port_poi
 
 // The rest of a sample whose first Newton iteration was not accepted: the other iterations,
 // then sub-steps from the last sample's solution if they fail.
-dk_engine::port_point dk_engine::rest_of_sample(newton_state st, bool failed, Eigen::Vector2d p, port_point last,
-                                                Eigen::Vector2d p_last, int& evals) noexcept {
+dk_engine::port_point dk_engine::rest_of_sample(newton_state st, int done, bool failed, Eigen::Vector2d p,
+                                                port_point last, Eigen::Vector2d p_last, int& evals) noexcept {
   port_point pt;
-  if (failed || !newton_rest(st, p, pt, evals, 1)) substep(p, last, p_last, pt, evals);
+  if (failed || !newton_rest(st, p, pt, evals, done)) substep(p, last, p_last, pt, evals);
   return pt;
 }
 
@@ -628,13 +631,14 @@ __attribute__((always_inline)) inline int dk_engine::step_t(loop_state& s, doubl
   }
   const Eigen::Vector2d p = s.q + e1_.col(0) * supply_v_ + e1_.col(1) * ug;
 
-  // Warm start: polynomial extrapolation of v, corrected to first order for the part of
-  // the new p the same extrapolation of p misses (v = v(p) is a static map in the DK form,
-  // and last.m = dv/dp there).
+  // Warm start: polynomial extrapolation of v (the sum of its backward differences up to
+  // predictor_order), corrected to first order for the part of the new p the same
+  // extrapolation of p misses (v = v(p) is a static map in the DK form, and last.m = dv/dp
+  // there).
   const Eigen::Vector2d v_ext =
-      pred_[0] * s.last.v + pred_[1] * s.v_hist[0] + pred_[2] * s.v_hist[1] + pred_[3] * s.v_hist[2];
+      s.last.v + diff_use_[0] * s.v_diff[0] + diff_use_[1] * s.v_diff[1] + diff_use_[2] * s.v_diff[2];
   const Eigen::Vector2d p_ext =
-      pred_[0] * s.p_last + pred_[1] * s.p_hist[0] + pred_[2] * s.p_hist[1] + pred_[3] * s.p_hist[2];
+      s.p_last + diff_use_[0] * s.p_diff[0] + diff_use_[1] * s.p_diff[1] + diff_use_[2] * s.p_diff[2];
   Eigen::Vector2d guess = v_ext + s.last.m * (p - p_ext);
   // Across a kink (cutoff, the triode edge, a junction turning on) the extrapolation can
   // overshoot by volts; a junction pushed far forward by it would start Newton where its
@@ -652,16 +656,23 @@ __attribute__((always_inline)) inline int dk_engine::step_t(loop_state& s, doubl
   int evals = 0;
   port_point pt;
   newton_state st(guess);
-  const newton_outcome first = newton_iteration(st, p, pt, evals);
-  if (first != newton_outcome::accepted) [[unlikely]]
-    pt = rest_of_sample(st, first == newton_outcome::failed, p, s.last, s.p_last, evals);
+  newton_outcome o = newton_iteration(st, p, pt, evals);
+  int done = 1;
+  if (o == newton_outcome::go_on && opt_.max_iterations > 1) {
+    o = newton_iteration(st, p, pt, evals);
+    done = 2;
+  }
+  if (o != newton_outcome::accepted) [[unlikely]]
+    pt = rest_of_sample(st, done, o == newton_outcome::failed, p, s.last, s.p_last, evals);
 
-  s.v_hist[2] = s.v_hist[1];
-  s.v_hist[1] = s.v_hist[0];
-  s.v_hist[0] = s.last.v;
-  s.p_hist[2] = s.p_hist[1];
-  s.p_hist[1] = s.p_hist[0];
-  s.p_hist[0] = s.p_last;
+  const Eigen::Vector2d dv1 = pt.v - s.last.v, dv2 = dv1 - s.v_diff[0];
+  s.v_diff[2] = dv2 - s.v_diff[1];
+  s.v_diff[1] = dv2;
+  s.v_diff[0] = dv1;
+  const Eigen::Vector2d dp1 = p - s.p_last, dp2 = dp1 - s.p_diff[0];
+  s.p_diff[2] = dp2 - s.p_diff[1];
+  s.p_diff[1] = dp2;
+  s.p_diff[0] = dp1;
   s.last = pt;
   s.p_last = p;
 

@@ -163,8 +163,10 @@ class dk_engine {
     port_point last;                                 // the last sample's solution
     Eigen::Vector2d q{Eigen::Vector2d::Zero()};      // D x_{n-1}
     Eigen::Vector2d p_last{Eigen::Vector2d::Zero()};
-    std::array<Eigen::Vector2d, 3> v_hist{};         // v_{n-2}, v_{n-3}, v_{n-4} (v_{n-1} is last.v)
-    std::array<Eigen::Vector2d, 3> p_hist{};
+    // Backward differences of v and p at the last sample, orders 1..3 (order 0 is last.v
+    // and p_last): the warm start extrapolates with their sum (Newton's backward form).
+    std::array<Eigen::Vector2d, 3> v_diff{};
+    std::array<Eigen::Vector2d, 3> p_diff{};
   };
 
   // The general path for more than one JFET (model/dk_multi.cpp). Every size is fixed when
@@ -229,8 +231,8 @@ class dk_engine {
   newton_outcome newton_iteration(newton_state& st, const Eigen::Vector2d& p, port_point& out, int& evals) noexcept;
   bool newton_rest(newton_state& st, const Eigen::Vector2d& p, port_point& out, int& evals, int done) noexcept;
   bool solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& guess, port_point& out, int& evals) noexcept;
-  port_point rest_of_sample(newton_state st, bool failed, Eigen::Vector2d p, port_point last, Eigen::Vector2d p_last,
-                            int& evals) noexcept;
+  port_point rest_of_sample(newton_state st, int done, bool failed, Eigen::Vector2d p, port_point last,
+                            Eigen::Vector2d p_last, int& evals) noexcept;
   void substep(const Eigen::Vector2d& p, const port_point& from, const Eigen::Vector2d& p_from, port_point& out,
                int& evals) noexcept;
   port_point point_at(const Eigen::Vector2d& v) const noexcept;
@@ -251,7 +253,8 @@ class dk_engine {
   Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
   Eigen::VectorXd w_const_;         // W's supply column times the supply (constant)
   loop_state ls_;
-  std::array<double, 4> pred_{};    // extrapolation weights for v_{n-1}..v_{n-4}
+  std::array<double, 4> pred_{};    // extrapolation weights for v_{n-1}..v_{n-4} (general path)
+  std::array<double, 3> diff_use_{};  // 1 for the backward differences the extrapolation uses, else 0
   Eigen::VectorXd x_dc_;
   port_point dc_point_;
   Eigen::Vector2d p_dc_{Eigen::Vector2d::Zero()};
