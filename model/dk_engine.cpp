@@ -651,21 +651,23 @@ __attribute__((always_inline)) inline int dk_engine::step_t(loop_state& s, doubl
     if (alpha < 1.0) guess = s.last.v + alpha * (guess - s.last.v);
   }
 
-  // The first Newton iteration inline; what it did not settle goes out of line, on copies
-  // (so that nothing of the hot path has its address taken and has to live in memory).
+  // The first two Newton iterations inline, writing the accepted point straight into the
+  // loop state; what they did not settle goes out of line, on copies (so that nothing of
+  // the hot path has its address taken and has to live in memory).
   int evals = 0;
-  port_point pt;
+  const Eigen::Vector2d v_prev = s.last.v;
   newton_state st(guess);
-  newton_outcome o = newton_iteration(st, p, pt, evals);
+  newton_outcome o = newton_iteration(st, p, s.last, evals);
   int done = 1;
   if (o == newton_outcome::go_on && opt_.max_iterations > 1) {
-    o = newton_iteration(st, p, pt, evals);
+    o = newton_iteration(st, p, s.last, evals);
     done = 2;
   }
   if (o != newton_outcome::accepted) [[unlikely]]
-    pt = rest_of_sample(st, done, o == newton_outcome::failed, p, s.last, s.p_last, evals);
+    s.last = rest_of_sample(st, done, o == newton_outcome::failed, p, s.last, s.p_last, evals);
+  const port_point& pt = s.last;
 
-  const Eigen::Vector2d dv1 = pt.v - s.last.v, dv2 = dv1 - s.v_diff[0];
+  const Eigen::Vector2d dv1 = pt.v - v_prev, dv2 = dv1 - s.v_diff[0];
   s.v_diff[2] = dv2 - s.v_diff[1];
   s.v_diff[1] = dv2;
   s.v_diff[0] = dv1;
@@ -673,7 +675,6 @@ __attribute__((always_inline)) inline int dk_engine::step_t(loop_state& s, doubl
   s.p_diff[2] = dp2 - s.p_diff[1];
   s.p_diff[1] = dp2;
   s.p_diff[0] = dp1;
-  s.last = pt;
   s.p_last = p;
 
   xin[ns + 2] = pt.i[0];
