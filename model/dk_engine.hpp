@@ -186,6 +186,7 @@ class dk_engine {
     Eigen::VectorXd pre, out;                   // W's x and u columns times [x; u]; the product
     Eigen::VectorXd q, p, p_last, p_dc, v_ext, p_ext, dp;
     Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
+    Eigen::VectorXd allowed, mag;               // the acceptance's rounding: per row, per current
     Eigen::MatrixXd j;                          // I - F Jf, then its LU factors
     std::vector<int> piv;                       // the LU's row interchanges
     port_set last, dc, trial, cur_pt, next_pt;

@@ -192,9 +192,10 @@ void dk_engine::init_general(const network& net, const operating_point& op) {
   in_ = Eigen::VectorXd::Zero(ns + 2 + ni);
 
   for (Eigen::VectorXd* v : {&g.q, &g.p, &g.p_last, &g.p_dc, &g.v_ext, &g.p_ext, &g.dp, &g.v, &g.r, &g.d, &g.base,
-                             &g.step, &g.t, &g.bound, &g.pc, &g.pj, &g.guess})
+                             &g.step, &g.t, &g.bound, &g.allowed, &g.pc, &g.pj, &g.guess})
     v->setZero(np);
   g.rem.setZero(ni);
+  g.mag.setZero(ni);
   g.j.setZero(np, np);
   g.piv.assign(static_cast<std::size_t>(np), 0);
   for (port_set* s : {&g.last, &g.dc, &g.trial, &g.cur_pt, &g.next_pt}) s->resize(k);
@@ -289,12 +290,15 @@ void dk_engine::reset_general() {
 }
 
 // Newton on r(v) = p + F i(v) - v = 0 from `guess`, for k JFETs; the argument of
-// solve_ports() carried over. After the step dv computed at v, device j's currents at
-// v + dv differ from their linearisation by a remainder bounded per current as there (the
-// junction bound 0.505 g dv^2 / nVt for |dv| <= 0.01 nVt, the channel's exact, plus its
-// rounding margin); stacked into R (3k), the residual at v + dv is at most |F| R and the
-// distance to the exact solution at most |M| |F| R with M = (I - F Jf)^-1 (Ortega &
-// Rheinboldt 1970, 12.6). Both must be below tol_v in every row.
+// newton_iteration() (dk_engine.cpp) carried over, with the same acceptance. After the step
+// dv computed at v, device j's currents at v + dv differ from their linearisation by a
+// remainder bounded per current as there (the junction bound 0.505 g dv^2 / nVt for
+// |dv| <= 0.01 nVt, the channel's exact, plus its rounding margin); stacked into R (3k),
+// the residual at v + dv is at most |F| R + rounding and the distance to the exact solution
+// at most |M| times that, with M = (I - F Jf)^-1 (Ortega & Rheinboldt 1970, 12.6). The
+// rounding of the port equation, 8 eps (|F| (|i| + |Jf dv|) + |p| + |v + dv|) a row, is
+// allowed on top of tol_v up to 1e-8 V, as on the one-JFET path (which says why); a change
+// to either path's acceptance belongs in both.
 //
 // K > 0: the number of JFETs at compile time (fixed-size views of the engine's storage, so
 // the small products unroll); K = 0: any number, at run time.
@@ -311,9 +315,11 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd
   const Eigen::Map<const vec_p> p(p_in.data(), np);
   Eigen::Map<vec_p> v(g.v.data(), np), r(g.r.data(), np), d(g.d.data(), np), base(g.base.data(), np),
       step(g.step.data(), np), t(g.t.data(), np), bound(g.bound.data(), np);
-  Eigen::Map<vec_i> i(out.i.data(), ni), rem(g.rem.data(), ni);
+  Eigen::Map<vec_p> allowed(g.allowed.data(), np);
+  Eigen::Map<vec_i> i(out.i.data(), ni), rem(g.rem.data(), ni), mag(g.mag.data(), ni);
   const double tol = opt_.tol_v;
   const double eps8 = 8.0 * std::numeric_limits<double>::epsilon();
+  constexpr double rounding_allowance_v = 1e-8;  // as on the one-JFET path
   v = Eigen::Map<const vec_p>(guess.data(), np);
   base = v;
   step.setZero();
@@ -398,8 +404,17 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd
         const double id_lin_d = c.gm_s * d0 + c.gds_s * d1;
         rem[3 * j + 2] = std::fabs(id_new - c.id_a - id_lin_d) +
                          eps8 * (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d0) + std::fabs(c.gds_s * d1));
+        mag[3 * j] = std::fabs(c.igs_a) + std::fabs(c.ggs_s * dgs);
+        mag[3 * j + 1] = std::fabs(c.igd_a) + std::fabs(c.ggd_s * dgd);
+        mag[3 * j + 2] = std::fabs(c.id_a) + std::fabs(id_lin_d);
       }
+      // allowed: the rounding of each row, up to the allowance; t: the residual bound less
+      // what is allowed (so t <= tol_v is the test of the residual).
+      allowed.noalias() = f_abs * mag;
+      allowed = eps8 * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
       t.noalias() = f_abs * rem;
+      t += (allowed.array() - rounding_allowance_v).max(0.0).matrix();
+      allowed = allowed.cwiseMin(rounding_allowance_v);
       if (t.maxCoeff() <= tol) {
         inverse_of(g.j, g.piv, out.m);
         const double* md = out.m.data();
@@ -422,7 +437,7 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd
             ++evals;
             t = p - bound;
             t.noalias() += f * rem;
-            if (t.cwiseAbs().maxCoeff() > tol) {
+            if (!(t.cwiseAbs().array() <= tol + allowed.array()).all()) {
               ++stats_.bound_misses;
             } else {
               out.v = g.bound;

@@ -17,6 +17,7 @@
 #include "model/small_signal.hpp"
 #include "model/sweep.hpp"
 #include "model/transient_reference.hpp"
+#include "multi_device_networks.hpp"
 #include "support/random_stage.hpp"
 
 using namespace pinchoff;
@@ -152,6 +153,16 @@ stage parse_described(const std::string& line) {
   return s;
 }
 
+// A p-channel follower whose gate is pulled to 57 V through 1.8 kohm while a 51 ohm load
+// holds the source: about 30 mA of gate current into a drain port behind 2.35 Mohm, so the
+// engine's port equations cancel terms of about 57 kV and resolve the port voltages only to
+// about 1e-10 V (the engine's rounding allowance).
+constexpr const char* p_follower_57v =
+    "SF p V=-57.124935115658289 Rsup=0 Csup=3.5654001565237746e-06 idss=0.0050791103257875128 "
+    "vp=0.24920576440314546 lambda=0.032273017877274872 Rsig=0 Cin=4.1892945394497217e-07 RG=0 "
+    "top=1787.4196012159439 bottom=282773.44371158944 RD=2354747.7632707604 RSu=0 RS=4728044.7489165803 CS=0 "
+    "RL=51.384277392008897 Cout=0 Cgs=1.0778702449115724e-11 Cgd=0";
+
 TEST_CASE("regression: random stages the soak once could not solve") {
   // Each line is what the soak (seed 777) logged for a stage it could not solve; each must
   // now solve, satisfy KCL, sweep with every sample converged, and the engine must give the
@@ -169,14 +180,7 @@ TEST_CASE("regression: random stages the soak once could not solve") {
       "lambda=0.044817148080024086 Rsig=0 Cin=2.0739195123193825e-09 RG=37.128368921045784 top=49957.079104783115 "
       "bottom=412743.47904868569 RD=8867240.9821063522 RSu=2122530.6890272112 RS=3991.0566253253869 "
       "CS=9.5501012963319199e-05 RL=990495.9371000079 Cout=0 Cgs=0 Cgd=1.3910943556059098e-12",
-      // A p-channel follower whose gate is pulled to 57 V through 1.8 kohm while a 51 ohm
-      // load holds the source: about 30 mA of gate current into a drain port behind
-      // 2.35 Mohm, so the engine's port equations cancel terms of about 57 kV and resolve
-      // the port voltages only to about 1e-10 V (the engine's rounding allowance).
-      "SF p V=-57.124935115658289 Rsup=0 Csup=3.5654001565237746e-06 idss=0.0050791103257875128 "
-      "vp=0.24920576440314546 lambda=0.032273017877274872 Rsig=0 Cin=4.1892945394497217e-07 RG=0 "
-      "top=1787.4196012159439 bottom=282773.44371158944 RD=2354747.7632707604 RSu=0 RS=4728044.7489165803 CS=0 "
-      "RL=51.384277392008897 Cout=0 Cgs=1.0778702449115724e-11 Cgd=0",
+      p_follower_57v,
   };
   for (const std::string line : lines) {
     CAPTURE(line);
@@ -209,6 +213,31 @@ TEST_CASE("regression: random stages the soak once could not solve") {
       worst = std::max(worst, std::fabs(eng.process(u) - ref.process(u)));
     }
     CHECK(eng.stats().failed == 0);
+    CHECK(worst <= 1e-8);
+  }
+}
+
+TEST_CASE("regression: the general (k-JFET) path accepts the rounding allowance like the one-JFET path") {
+  // Two independent copies of the follower above (it has no supply resistance, so the
+  // copies share only ideal sources and ground): the general path must solve the same port
+  // equations to the same bound, so every sample converges and the twin gives the single
+  // engine's samples (closed form by construction, as in tests/test_multi_device.cpp),
+  // here to the 1e-8 V the allowance permits.
+  const stage s = parse_described(p_follower_57v);
+  const network one = build_network(s);
+  const operating_point op = solve_operating_point(one);
+  for (int copy = 0; copy < 2; ++copy) {
+    CAPTURE(copy);
+    const network two = test::twin_of(one, copy);
+    REQUIRE(two.devices() == 2);
+    dk_engine single(one, op, 384000.0), twin(two, 384000.0);
+    double worst = 0.0;
+    for (int n = 0; n < 768; ++n) {
+      const double u = 3.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / 384000.0);
+      worst = std::max(worst, std::fabs(twin.process(u) - single.process(u)));
+    }
+    CHECK(single.stats().failed == 0);
+    CHECK(twin.stats().failed == 0);
     CHECK(worst <= 1e-8);
   }
 }
