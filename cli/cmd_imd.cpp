@@ -67,6 +67,7 @@ void register_imd(CLI::App& app, std::vector<command>& commands) {
                         s.oversample = opt->oversample;
                         s.base_rate_hz = option_frequency_hz(opt->rate, "--rate");
                         const model::stage st = load_stage(opt->input);
+                        const std::vector<std::string> warnings = rest_point_warnings(st, "imd", err);
                         const model::imd_result r = model::run_imd(st, s);
                         if (r.newton.failed > 0)
                           err << "pinchoff imd: warning: " << r.newton.failed
@@ -84,6 +85,7 @@ void register_imd(CLI::App& app, std::vector<command>& commands) {
                           j["tone1_drive_vpk"] = r.a1_vpk;
                           j["tone2_drive_vpk"] = r.a2_vpk;
                           j["oversampling"] = s.oversample;
+                          j["warnings"] = warnings;
                           nlohmann::json products = nlohmann::json::array();
                           if (twin) {
                             const auto& d = r.difference;

@@ -225,7 +225,8 @@ nlohmann::json choice_json(const model::render_report& r) {
           {"probes", probes}};
 }
 
-void write_json(const model::render_report& r, const render_options& o, std::ostream& out) {
+void write_json(const model::render_report& r, const render_options& o, const std::vector<std::string>& warnings,
+                std::ostream& out) {
   nlohmann::json outputs = nlohmann::json::array();
   for (const model::output_report& x : r.outputs) {
     nlohmann::json j{{"path", x.path.string()},
@@ -264,6 +265,7 @@ void write_json(const model::render_report& r, const render_options& o, std::ost
                          {"level", !o.output_peak.empty() ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
                          {"target_lufs", r.outputs.size() > 1 ? number_or_null(r.target_lufs) : nlohmann::json(nullptr)},
                          {"outputs", outputs},
+                         {"warnings", warnings},
                          {"seconds", r.seconds},
                          {"realtime_factor", r.realtime_factor}};
   out << j.dump(2) << '\n';
@@ -284,6 +286,7 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
   }
 
   std::vector<loaded_stage> stages;
+  std::vector<std::string> warnings;
   for (const std::string& path : o.stages) {
     loaded_stage l;
     l.file = path;
@@ -292,6 +295,9 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
     l.st.name = l.file.stem().string();
     l.st.net = model::build_network(s);
     l.st.op = model::solve_operating_point(l.st.net);
+    const std::vector<std::string> w =
+        rest_point_warnings(s, l.st.net, l.st.op, "render", err, o.stages.size() > 1 ? l.file.filename().string() : "");
+    warnings.insert(warnings.end(), w.begin(), w.end());
     stages.push_back(std::move(l));
   }
 
@@ -334,7 +340,7 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
   const model::render_report r = model::render(job, control);
   bar.clear();
   if (made) made->keep();
-  if (o.json) write_json(r, o, out);
+  if (o.json) write_json(r, o, warnings, out);
   else write_text(r, o, stages, out);
 }
 

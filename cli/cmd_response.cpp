@@ -80,12 +80,13 @@ void register_response(CLI::App& app, std::vector<command>& commands) {
       "  pinchoff response presets/clean-preamp-18v.toml --set source.bypass_cap=4.7u --csv > r.csv\n"
       "Every capacitor is included: coupling and bypass capacitors set the low corners, the\n"
       "junction capacitances cgs and cgd (with the Miller effect) the high corner.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) {
                         if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
                         const double lo = parse_analysis_frequency_hz(opt->from, "--from"),
                                      hi = parse_analysis_frequency_hz(opt->to, "--to");
                         if (!(hi > lo)) throw input_error("--to must be above --from");
                         const model::stage st = load_stage(opt->input);
+                        const std::vector<std::string> warnings = rest_point_warnings(st, "response", err);
                         const model::network net = model::build_network(st);
                         const model::operating_point op = model::solve_operating_point(net);
                         const model::response_result r = model::analyse_response(net, op, lo, hi, opt->points);
@@ -115,6 +116,7 @@ void register_response(CLI::App& app, std::vector<command>& commands) {
                         if (opt->json) {
                           nlohmann::json j;
                           j["midband_gain_db"] = mid_db;
+                          j["warnings"] = warnings;
                           j["midband_gain_v_per_v"] = r.midband_gain;
                           nlohmann::json corners = nlohmann::json::array(), kinds = nlohmann::json::array();
                           for (const auto& c : r.corners) {

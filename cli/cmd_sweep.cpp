@@ -126,8 +126,10 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
                         const model::stage st = load_stage(opt->input);
                         const model::sweep_result r = model::run_sweep(st, s);
 
-                        // Anything the solver could not do is said, never hidden.
-                        std::vector<std::string> problems;
+                        // The rest point's cautions, then anything the solver could not do: said,
+                        // never hidden.
+                        std::vector<std::string> problems = rest_point_warnings(st, "sweep", err);
+                        const std::size_t rest_warnings = problems.size();
                         for (const auto& p : r.points) {
                           if (p.newton.failed > 0)
                             problems.push_back("at " + format_si(p.drive_vpk, "V") + " peak, " + std::to_string(p.newton.failed) +
@@ -136,7 +138,8 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
                             problems.push_back("at " + format_si(p.drive_vpk, "V") + " peak the steady state was not reached (" +
                                                "state still changes " + format_si(p.state_change_v, "V") + " a period)");
                         }
-                        for (const auto& m : problems) err << "pinchoff sweep: warning: " << m << '\n';
+                        for (std::size_t k = rest_warnings; k < problems.size(); ++k)
+                          err << "pinchoff sweep: warning: " << problems[k] << '\n';
 
                         if (!opt->plot.empty()) {
                           line_plot pl;

@@ -5,7 +5,9 @@
 #include "dsp/error.hpp"
 #include "dsp/units.hpp"
 #include "model/response.hpp"
+#include "model/network.hpp"
 #include "model/stage_file.hpp"
+#include "model/warnings.hpp"
 
 namespace pinchoff::cli {
 
@@ -19,6 +21,22 @@ void add_stage_input(CLI::App& sub, stage_input& in) {
 }
 
 model::stage load_stage(const stage_input& in) { return model::read_stage_file(in.path, in.overrides); }
+
+std::vector<std::string> rest_point_warnings(const model::stage& st, const std::string& command, std::ostream& err,
+                                             const std::string& label) {
+  const model::network net = model::build_network(st);
+  return rest_point_warnings(st, net, model::solve_operating_point(net), command, err, label);
+}
+
+std::vector<std::string> rest_point_warnings(const model::stage& st, const model::network& net,
+                                             const model::operating_point& op, const std::string& command,
+                                             std::ostream& err, const std::string& label) {
+  std::vector<std::string> w = model::operating_warnings(st, net, op);
+  if (!label.empty())
+    for (std::string& m : w) m = label + ": " + m;
+  for (const std::string& m : w) err << "pinchoff " << command << ": warning: " << m << '\n';
+  return w;
+}
 
 nlohmann::json number_or_null(double v) { return std::isfinite(v) ? nlohmann::json(v) : nlohmann::json(nullptr); }
 

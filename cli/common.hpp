@@ -8,6 +8,7 @@
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
 
+#include "model/network.hpp"
 #include "model/operating_point.hpp"
 #include "model/stage.hpp"
 
@@ -24,6 +25,17 @@ model::stage load_stage(const stage_input& in);
 
 /// {"vg_v","vs_v","vd_v","vgs_v","vds_v","id_a","ig_a","region"}: the contract keys.
 nlohmann::json operating_point_json(const model::terminal_point& t);
+
+/// The cautions about the stage's rest point (model/warnings.hpp: ratings exceeded, a bias
+/// that does not amplify, unsafe supplies), each written to `err` as
+/// "pinchoff COMMAND: warning: ..." (prefixed with `label` when given, for commands that
+/// take several stages); returns them for a JSON "warnings" list. Solves the rest point.
+std::vector<std::string> rest_point_warnings(const model::stage& st, const std::string& command, std::ostream& err,
+                                             const std::string& label = {});
+/// The same for a rest point already solved.
+std::vector<std::string> rest_point_warnings(const model::stage& st, const model::network& net,
+                                             const model::operating_point& op, const std::string& command,
+                                             std::ostream& err, const std::string& label = {});
 
 /// A JSON number, or null where the value is not finite (JSON has no infinity).
 nlohmann::json number_or_null(double v);

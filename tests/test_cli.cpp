@@ -213,3 +213,45 @@ TEST_CASE("help teaches by example and exits 0") {
   CHECK(top.status == 0);
   CHECK(top.out.find("bias") != std::string::npos);
 }
+
+TEST_CASE("the simulating commands relay the rest point's cautions that bias gives") {
+  // A 47 kohm drain resistor on the bass booster leaves the JFET in the triode region at
+  // rest (vds below vgs - vp, the square law's boundary; Shichman & Hodges 1968): every
+  // command that runs the stage must say what `bias` says, on stderr and in its JSON.
+  const std::vector<std::string> set = {"--set", "drain.resistor=47k"};
+  auto with = [&](std::vector<std::string> args) {
+    args.insert(args.begin() + 2, set.begin(), set.end());
+    return args;
+  };
+  const result b = run(with({"bias", preset("bass-booster-9v.toml"), "--json"}));
+  REQUIRE(b.status == 0);
+  const nlohmann::json expected = nlohmann::json::parse(b.out)["warnings"];
+  REQUIRE(expected.size() == 1);
+  CHECK(expected[0].get<std::string>().find("triode region at rest") != std::string::npos);
+  const std::vector<std::vector<std::string>> commands = {
+      {"sweep", preset("bass-booster-9v.toml"), "--drive", "0.1", "--json"},
+      {"imd", preset("bass-booster-9v.toml"), "--json"},
+      {"response", preset("bass-booster-9v.toml"), "--json"},
+  };
+  for (const auto& c : commands) {
+    CAPTURE(c[0]);
+    const result r = run(with(c));
+    REQUIRE(r.status == 0);
+    CHECK(r.err.find("pinchoff " + c[0] + ": warning: " + expected[0].get<std::string>()) != std::string::npos);
+    const nlohmann::json w = nlohmann::json::parse(r.out)["warnings"];
+    REQUIRE(!w.empty());
+    CHECK(w[0] == expected[0]);
+  }
+  // The presets as shipped: sweep says exactly what bias says (the phantom feed's caution
+  // for the microphone follower, nothing for the others).
+  for (const char* p : presets) {
+    CAPTURE(p);
+    const result r = run({"sweep", preset(p), "--drive", "0.1"});
+    REQUIRE(r.status == 0);
+    std::string said;
+    const nlohmann::json bias_json = nlohmann::json::parse(run({"bias", preset(p), "--json"}).out);
+    for (const auto& w : bias_json["warnings"])
+      said += "pinchoff sweep: warning: " + w.get<std::string>() + "\n";
+    CHECK(r.err == said);
+  }
+}
