@@ -123,7 +123,7 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
       "IDSS and |VP| are drawn with the given correlation (real batches: parts with a high IDSS\n"
       "also pinch off at a larger voltage). The yield counts runs biased in saturation that meet\n"
       "every --require. The same seed gives the same runs on any number of threads.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) {
                         if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
                         std::vector<model::requirement> reqs;
                         for (const std::string& r : opt->conditions) reqs.push_back(model::parse_requirement(r));
@@ -132,6 +132,11 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
                           for (const std::string& name : histogram_names(reqs)) check_plot_target(histogram_path(opt->plot, name), inputs);
                         const model::stage st = load_stage(opt->input);
                         const model::spread_settings settings = spread_settings_from(opt->batch, st, opt->input.path);
+                        auto varies = [](const std::optional<dsp::value_range>& r) { return r && r->lo != r->hi; };
+                        if (!varies(settings.idss_a) && !varies(settings.vp_v) && !varies(settings.supply_v) &&
+                            settings.resistor_tolerance == 0.0)
+                          err << "pinchoff spread: note: nothing varies from run to run (one IDSS, one VP, exact resistors, "
+                                 "one supply voltage); give --idss and --vp ranges or a --class, --tolerance or --supply\n";
                         model::run_extra extra;
                         if (!opt->drive.empty()) {
                           model::sweep_settings sw;

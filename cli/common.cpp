@@ -17,7 +17,8 @@ void add_stage_input(CLI::App& sub, stage_input& in) {
                  "Override a stage-file value, KEY=VALUE (repeatable), e.g. --set drain.resistor=4.7k")
       ->type_name("KEY=VALUE")
       ->expected(1)
-      ->allow_extra_args(false);  // one value per --set, so a FILE after it stays positional
+      ->allow_extra_args(false)  // one value per --set, so a FILE after it stays positional
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);  // and any number of --set
 }
 
 model::stage load_stage(const stage_input& in) { return model::read_stage_file(in.path, in.overrides); }

@@ -255,3 +255,27 @@ TEST_CASE("the simulating commands relay the rest point's cautions that bias giv
     CHECK(r.err == said);
   }
 }
+
+TEST_CASE("--set may be given several times and every value applies") {
+  // Ohm's law on the rest point (closed form): the source resistor carries the drain
+  // current (the gate current is nanoamperes at most), and the drain resistor the same
+  // current from the rail, which sits the battery's 47 ohm below 9 V.
+  const result r = run({"bias", preset("bass-booster-9v.toml"), "--set", "drain.resistor=3k", "--set",
+                        "source.resistor=1k", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json op = nlohmann::json::parse(r.out)["operating_point"];
+  const double id = op["id_a"].get<double>();
+  REQUIRE(id > 0.0);
+  CHECK(op["vs_v"].get<double>() / id == doctest::Approx(1000.0).epsilon(1e-6));
+  CHECK((9.0 - 47.0 * id - op["vd_v"].get<double>()) / id == doctest::Approx(3000.0).epsilon(1e-6));
+}
+
+TEST_CASE("spread says so when nothing varies from run to run") {
+  // common practice: a Monte Carlo of one fixed part is a user's slip worth pointing out.
+  const result fixed = run({"spread", preset("bass-booster-9v.toml"), "--runs", "20"});
+  REQUIRE(fixed.status == 0);
+  CHECK(fixed.err.find("nothing varies") != std::string::npos);
+  const result batch = run({"spread", preset("bass-booster-9v.toml"), "--runs", "20", "--idss", "2m..8m", "--vp", "-0.8..-3"});
+  REQUIRE(batch.status == 0);
+  CHECK(batch.err.find("nothing varies") == std::string::npos);
+}
