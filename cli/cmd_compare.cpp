@@ -318,8 +318,14 @@ void register_compare(CLI::App& app, std::vector<command>& commands) {
                         if (!opt->plot.empty()) check_plot_target(opt->plot, inputs);
                         const std::vector<design_input> in = load_designs(*opt);
                         std::vector<model::stage> stages;
-                        for (const design_input& d : in) stages.push_back(d.st);
-                        const model::compare_result r = model::compare_designs(stages, s);
+                        std::vector<std::string> rest;  // the rest points' cautions, design by design
+                        for (std::size_t i = 0; i < in.size(); ++i) {
+                          stages.push_back(in[i].st);
+                          const std::vector<std::string> w = rest_point_warnings(
+                              in[i].st, "compare", err, "design " + std::to_string(i + 1) + " (" + label_of(in[i]) + ")");
+                          rest.insert(rest.end(), w.begin(), w.end());
+                        }
+                        model::compare_result r = model::compare_designs(stages, s);
 
                         std::string unreached;
                         for (std::size_t i = 0; i < r.designs.size(); ++i)
@@ -330,6 +336,7 @@ void register_compare(CLI::App& app, std::vector<command>& commands) {
                           throw input_error("cannot compare at " + dbu(s.level_vpk) + " at the load:" + unreached +
                                             "\n  compare at a lower --at-output, or at one input level with --at-drive");
                         for (const std::string& w : r.warnings) err << "pinchoff compare: warning: " << w << '\n';
+                        r.warnings.insert(r.warnings.begin(), rest.begin(), rest.end());
 
                         if (!opt->plot.empty()) write_plot(in, r, opt->plot, inputs);
                         if (opt->json) {

@@ -242,6 +242,12 @@ TEST_CASE("the simulating commands relay the rest point's cautions that bias giv
     REQUIRE(!w.empty());
     CHECK(w[0] == expected[0]);
   }
+  // compare names the design: here the first of two, the second as shipped.
+  const result c = run({"compare", preset("bass-booster-9v.toml"), preset("bass-booster-9v.toml"), "--set",
+                        "1:drain.resistor=47k", "--at-drive", "0.1"});
+  CHECK(c.err.find("pinchoff compare: warning: design 1 (") != std::string::npos);
+  CHECK(c.err.find(expected[0].get<std::string>()) != std::string::npos);
+  CHECK(c.err.find("design 2 (") == std::string::npos);
   // The presets as shipped: sweep says exactly what bias says (the phantom feed's caution
   // for the microphone follower, nothing for the others).
   for (const char* p : presets) {
