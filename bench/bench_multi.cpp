@@ -64,7 +64,7 @@ void bench_multi_device() {
 
   std::printf("\nsame circuit twice: two independent copies (general path) against the single stage (2x2 path)\n");
   std::printf("%-28s %7s %14s %14s %12s\n", "network", "drive", "realtime twin", "realtime one", "cost ratio");
-  const model::network one = test::network_of(test::stiff_booster_9v, "stiff booster");
+  const model::network one = test::stiff_booster();
   const model::network twin = test::twin_of(one, 1);
   for (double drive : {0.1, 10.0}) {
     const std::vector<double> u = tone(drive, n_engine);

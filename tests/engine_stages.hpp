@@ -5,6 +5,7 @@
 #include <string_view>
 
 #include "model/network.hpp"
+#include "model/operating_point.hpp"
 #include "model/stage_file.hpp"
 
 namespace pinchoff::test {
@@ -143,6 +144,17 @@ inline constexpr std::array<engine_stage, 4> engine_stages{{
 
 inline model::network network_of(std::string_view toml, const char* name) {
   return model::build_network(model::parse_stage(toml, name));
+}
+
+/// A test stage built and at its DC operating point: where every engine test starts.
+struct solved_stage {
+  model::network net;
+  model::operating_point op;
+};
+inline solved_stage solve(const engine_stage& st) {
+  solved_stage s{network_of(st.toml, st.name), {}};
+  s.op = model::solve_operating_point(s.net);
+  return s;
 }
 
 }  // namespace pinchoff::test

@@ -1,6 +1,7 @@
 #pragma once
 // Networks of more than one JFET, built in code for the tests of the solvers' multi-device
 // paths. Scenario values of our own (demo values, not measured parts or published circuits).
+#include <string>
 #include <string_view>
 #include <vector>
 
@@ -9,34 +10,13 @@
 
 namespace pinchoff::test {
 
-// A 9 V bass booster on a stiff supply (no series resistance, so the supply node is the
-// ideal source and two copies of the stage share nothing but it, the generator and ground).
-inline constexpr std::string_view stiff_booster_9v = R"(
-name = "booster 9 V, stiff supply"
-topology = "common-source"
-[supply]
-volts = 9
-[jfet]
-idss = "7m"
-vp = -2.2
-lambda = 0.012
-is = 1e-14
-cgs = "3p"
-cgd = "1.5p"
-[signal]
-impedance = "1k"
-[gate]
-coupling_cap = "100n"
-resistor = "1M"
-[drain]
-resistor = "2.4k"
-[source]
-resistor = "560"
-bypass_cap = "22u"
-[output]
-coupling_cap = "1u"
-load = "100k"
-)";
+/// The engine tests' 9 V booster (engine_stages.hpp) on a stiff supply: no series
+/// resistance, so the supply node is the ideal source and two copies of the stage share
+/// nothing but it, the generator and ground.
+inline model::network stiff_booster() {
+  const std::string overrides[] = {"supply.resistance=0"};
+  return model::build_network(model::parse_stage(booster_9v, "booster 9 V, stiff supply", overrides));
+}
 
 /// Two copies of a one-JFET network side by side, sharing only ground, the supply node and
 /// the generator node (the supply must have no series resistance for them to be

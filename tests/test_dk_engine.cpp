@@ -63,6 +63,7 @@ namespace {
 using namespace pinchoff;
 using pinchoff::test::engine_stages;
 using pinchoff::test::network_of;
+using pinchoff::test::solve;
 
 double sine(double amplitude_v, double f_hz, double fs_hz, int n) {
   return amplitude_v * std::sin(2.0 * std::numbers::pi * f_hz * n / fs_hz);
@@ -141,8 +142,7 @@ TEST_CASE("silence in gives a flat output at the DC operating point") {
   for (const auto& st : engine_stages) {
     const std::string name = st.name;
     CAPTURE(name);
-    const model::network net = network_of(st.toml, st.name);
-    const model::operating_point op = model::solve_operating_point(net);
+    const auto [net, op] = solve(st);
     model::dk_engine eng(net, op, 384000.0);
     const double y_op = net.sign * model::node_v(op.x, net.output_node);
     const double y0 = eng.process(0.0);
@@ -255,8 +255,7 @@ TEST_CASE("the acceptance bound is sound: confirmed residuals never exceed the t
       const std::string name = st.name;
     CAPTURE(name);
       CAPTURE(amp);
-      const model::network net = network_of(st.toml, st.name);
-      const model::operating_point op = model::solve_operating_point(net);
+      const auto [net, op] = solve(st);
       model::dk_options confirm;
       confirm.confirm = true;
       model::dk_engine fast(net, op, 384000.0), checked(net, op, 384000.0, confirm);
@@ -303,8 +302,7 @@ TEST_CASE("the wide and the portable sample loops give the same samples") {
   for (const auto& st : engine_stages) {
     const std::string name = st.name;
     CAPTURE(name);
-    const model::network net = network_of(st.toml, st.name);
-    const model::operating_point op = model::solve_operating_point(net);
+    const auto [net, op] = solve(st);
     model::dk_options portable;
     portable.wide_kernels = false;
     model::dk_engine wide(net, op, 384000.0), plain(net, op, 384000.0, portable);

@@ -54,7 +54,7 @@ TEST_CASE("two independent copies of a stage: each JFET sits at the single stage
   // Closed form by construction: the copies share only ideal sources and ground, so each
   // solves the single stage's equations. Tolerance: the nodal Newton's step tolerance
   // (1e-9 V + 1e-9 |v|, model/nodal.hpp), currents to the same relative figure.
-  const model::network one = test::network_of(test::stiff_booster_9v, "stiff booster");
+  const model::network one = test::stiff_booster();
   REQUIRE(one.devices() == 1);
   const model::network two = test::twin_of(one, 1);
   REQUIRE(two.devices() == 2);
@@ -79,7 +79,7 @@ TEST_CASE("two independent copies of a stage: the general DK path gives the sing
   // The same circuit twice, solved by the k = 2 path (LU of I - F Jf) against the k = 1 path
   // (closed-form 2x2): both accept on a bound of 1e-10 V on the port voltages, so outputs
   // agree well inside the 1e-9 V held between the engine and the reference solver.
-  const model::network one = test::network_of(test::stiff_booster_9v, "stiff booster");
+  const model::network one = test::stiff_booster();
   for (int copy = 0; copy < 2; ++copy) {
     for (double amp : {0.02, 3.0, 12.0}) {
       CAPTURE(copy);

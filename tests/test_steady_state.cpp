@@ -311,8 +311,7 @@ TEST_CASE("hard drive into every test stage finishes with finite results") {
   for (const auto& st : pinchoff::test::engine_stages) {
     const std::string name = st.name;
     CAPTURE(name);
-    const model::network net = pinchoff::test::network_of(st.toml, st.name);
-    const model::operating_point op = model::solve_operating_point(net);
+    const auto [net, op] = pinchoff::test::solve(st);
     model::steady_state_options o;
     o.periods_out = 2;
     const model::steady_state_result ss = model::periodic_steady_state(net, op, fs_hz, 20.0, period, o);

@@ -48,8 +48,7 @@ TEST_CASE("the reference starts at the DC operating point and stays there in sil
   for (const auto& st : pinchoff::test::engine_stages) {
     const std::string name = st.name;
     CAPTURE(name);
-    const model::network net = pinchoff::test::network_of(st.toml, st.name);
-    const model::operating_point op = model::solve_operating_point(net);
+    const auto [net, op] = pinchoff::test::solve(st);
     model::transient_reference ref(net, op, 384000.0);
     double worst = 0.0;
     for (int n = 0; n < 200; ++n) worst = std::max(worst, std::fabs(ref.process(0.0) - net.sign * model::node_v(op.x, net.output_node)));
