@@ -543,9 +543,9 @@ __attribute__((always_inline)) inline dk_engine::newton_outcome dk_engine::newto
   return newton_outcome::go_on;
 }
 
-// Newton from `guess`, up to max_iterations evaluations in all (`done` of them already
-// made on st). Out of line: the sample loop makes the first iteration itself and calls this
-// only when that one was not accepted.
+// Newton on st, up to max_iterations iterations in all (`done` of them already made). Out
+// of line: the sample loop makes the first two iterations itself and comes here (through
+// rest_of_sample) only when they were not accepted.
 bool dk_engine::newton_rest(newton_state& st, const Eigen::Vector2d& p, port_point& out, int& evals,
                             int done) noexcept {
   for (int k = done; k < opt_.max_iterations; ++k) {
@@ -558,8 +558,8 @@ bool dk_engine::newton_rest(newton_state& st, const Eigen::Vector2d& p, port_poi
   return false;
 }
 
-// The rest of a sample whose first Newton iteration was not accepted: the other iterations,
-// then sub-steps from the last sample's solution if they fail.
+// The rest of a sample whose inline Newton iterations were not accepted: the other
+// iterations, then sub-steps from the last sample's solution if they fail.
 dk_engine::port_point dk_engine::rest_of_sample(newton_state st, int done, bool failed, Eigen::Vector2d p,
                                                 port_point last, Eigen::Vector2d p_last, int& evals) noexcept {
   port_point pt;
@@ -609,11 +609,12 @@ void dk_engine::substep(const Eigen::Vector2d& p, const port_point& from, const 
 // (AVX2 + FMA) update kernels, on the loop state s and the buffers xin ([x; u; i]), pre and
 // outv (W's products). Always inlined into the block loops below, so each loop is compiled
 // once per state count and kernel set, with no dispatch per sample; the wide loops are
-// compiled for AVX2 + FMA as a whole, the first Newton iteration inlined into them. The
-// rest of a sample that needs more (newton_rest, substep) is out of line and portable: kept
-// out of the loop, it leaves the loop's registers to the path nearly every sample takes
-// (with it inlined, a loop over iterations, the compiler spilled the loop's constants to
-// the stack every sample: 8 % of the time).
+// compiled for AVX2 + FMA as a whole, the first two Newton iterations inlined into them.
+// The rest of a sample that needs more (rest_of_sample: further iterations, sub-steps) is
+// out of line and portable: kept out of the loop, it leaves the loop's registers to the
+// path nearly every sample takes (with the Newton loop inlined, the compiler spilled the
+// loop's constants to the stack every sample: 8 % of the time; a third inline iteration
+// was slower again).
 template <int NS, bool Wide>
 __attribute__((always_inline)) inline int dk_engine::step_t(loop_state& s, double* xin, double* pre, double* outv,
                                                             double generator_v, double& y) noexcept {
