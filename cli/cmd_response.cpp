@@ -86,9 +86,9 @@ void register_response(CLI::App& app, std::vector<command>& commands) {
                                      hi = parse_analysis_frequency_hz(opt->to, "--to");
                         if (!(hi > lo)) throw input_error("--to must be above --from");
                         const model::stage st = load_stage(opt->input);
-                        const std::vector<std::string> warnings = rest_point_warnings(st, "response", err);
                         const model::network net = model::build_network(st);
                         const model::operating_point op = model::solve_operating_point(net);
+                        const std::vector<std::string> warnings = rest_point_warnings(st, net, op, "response", err);
                         const model::response_result r = model::analyse_response(net, op, lo, hi, opt->points);
                         const std::vector<double> phase = unwrapped_phase_deg(r.points);
                         const double mid_db = dsp::db_from_ratio(std::fabs(r.midband_gain));

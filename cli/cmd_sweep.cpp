@@ -124,12 +124,12 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
                         const std::filesystem::path inputs[] = {opt->input.path};
                         if (!opt->plot.empty()) check_plot_target(opt->plot, inputs);
                         const model::stage st = load_stage(opt->input);
-                        const model::sweep_result r = model::run_sweep(st, s);
-
-                        // The rest point's cautions, then anything the solver could not do: said,
-                        // never hidden.
+                        // The rest point's cautions first (before the simulation's wait), then
+                        // anything the solver could not do: said, never hidden.
                         std::vector<std::string> problems = rest_point_warnings(st, "sweep", err);
                         const std::size_t rest_warnings = problems.size();
+                        const model::sweep_result r = model::run_sweep(st, s);
+
                         for (const auto& p : r.points) {
                           if (p.newton.failed > 0)
                             problems.push_back("at " + format_si(p.drive_vpk, "V") + " peak, " + std::to_string(p.newton.failed) +

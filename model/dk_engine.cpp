@@ -442,12 +442,10 @@ __attribute__((always_inline)) inline dk_engine::newton_outcome dk_engine::newto
   // Both rows of every port quantity side by side (packets of two): the columns of F and
   // |F| are contiguous pairs, so each row pair costs one packed operation.
   using a2 = Eigen::Array2d;
-  constexpr double rounding_allowance_v = 1e-8;
-  constexpr double round_k = 8.0 * std::numeric_limits<double>::epsilon();
+  using detail::rounding_allowance_v;
   const a2 fc0 = f1_.col(0).array(), fc1 = f1_.col(1).array(), fc2 = f1_.col(2).array();
   const a2 p = p_in.array();
   const double tol = opt_.tol_v;
-  const double small_junction_step = 0.01 * dev_.nvt_v;
   a2& v = st.v;
   const detail::port_currents c = detail::evaluate_ports(dev_, v[0], v[1]);
   ++evals;
@@ -483,26 +481,19 @@ __attribute__((always_inline)) inline dk_engine::newton_outcome dk_engine::newto
     }
   }
   const double dgs = d[0], dgd = d[0] - d[1];
-  if (!limited && std::fabs(dgs) <= small_junction_step && std::fabs(dgd) <= small_junction_step) {
+  if (!limited && detail::small_junction_steps(dev_, dgs, dgd)) {
     const a2 vn = v + d;
-    const double k_junction = 0.505 * dev_.inv_nvt;
-    const double rgs = k_junction * c.ggs_s * dgs * dgs;
-    const double rgd = k_junction * c.ggd_s * dgd * dgd;
-    // Exact channel remainder; 8 eps of the magnitudes summed covers the rounding of the
-    // few operations on each side (each correct to an ulp or two).
-    const double id_new = detail::channel_current(dev_, vn[0], vn[1]);
-    const double id_lin_d = c.gm_s * d[0] + c.gds_s * d[1];
-    const double rd = std::fabs(id_new - c.id_a - id_lin_d) +
-                      round_k * (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d[0]) + std::fabs(c.gds_s * d[1]));
-    // Rounding: the linearised equation v + dv = p + F (i + Jf dv) holds only to the
-    // rounding of its terms, a few eps of their magnitudes. Negligible at any sane point
-    // (1e-14 V for terms of 10 V), it rejects points where currents are so large (a
-    // junction far beyond exp(80)) that the equation cannot be resolved in doubles.
-    const double ags = std::fabs(c.igs_a) + std::fabs(c.ggs_s * dgs);
-    const double agd = std::fabs(c.igd_a) + std::fabs(c.ggd_s * dgd);
-    const double ad = std::fabs(c.id_a) + std::fabs(id_lin_d);
+    // The remainders (rgs, rgd, rd) and the terms' magnitudes (shared with the general
+    // path, model/dk_device.hpp). Rounding: the linearised equation v + dv = p + F (i + Jf
+    // dv) holds only to the rounding of its terms, a few eps of their magnitudes.
+    // Negligible at any sane point (1e-14 V for terms of 10 V), it rejects points where
+    // currents are so large (a junction far beyond exp(80)) that the equation cannot be
+    // resolved in doubles.
+    const detail::step_remainders sr = detail::remainders_of(dev_, c, vn[0], vn[1], d[0], d[1]);
+    const double rgs = sr.rem[0], rgd = sr.rem[1], rd = sr.rem[2], id_lin_d = sr.id_lin_d;
     const a2 fa0 = f_abs_.col(0).array(), fa1 = f_abs_.col(1).array(), fa2 = f_abs_.col(2).array();
-    const a2 round = round_k * (fa0 * ags + fa1 * agd + fa2 * ad + p.abs() + vn.abs());
+    const a2 round =
+        detail::acceptance_round_k * (fa0 * sr.mag[0] + fa1 * sr.mag[1] + fa2 * sr.mag[2] + p.abs() + vn.abs());
     // The bound on the residual is t = fa0 rgs + fa1 rgd + fa2 rd + round + skip_t_, and
     // on the error |M| t. The rounding part of each row is allowed on top of tol_v up to
     // rounding_allowance_v: where a large transimpedance meets a large current (megohms

@@ -297,8 +297,9 @@ void dk_engine::reset_general() {
 // the residual at v + dv is at most |F| R + rounding and the distance to the exact solution
 // at most |M| times that, with M = (I - F Jf)^-1 (Ortega & Rheinboldt 1970, 12.6). The
 // rounding of the port equation, 8 eps (|F| (|i| + |Jf dv|) + |p| + |v + dv|) a row, is
-// allowed on top of tol_v up to 1e-8 V, as on the one-JFET path (which says why); a change
-// to either path's acceptance belongs in both.
+// allowed on top of tol_v up to 1e-8 V, as on the one-JFET path (which says why). The
+// per-device part (remainders, magnitudes, the small-step test) is one function for both
+// paths (detail::remainders_of); only the assembly of the rows differs.
 //
 // K > 0: the number of JFETs at compile time (fixed-size views of the engine's storage, so
 // the small products unroll); K = 0: any number, at run time.
@@ -318,8 +319,8 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd
   Eigen::Map<vec_p> allowed(g.allowed.data(), np);
   Eigen::Map<vec_i> i(out.i.data(), ni), rem(g.rem.data(), ni), mag(g.mag.data(), ni);
   const double tol = opt_.tol_v;
-  const double eps8 = 8.0 * std::numeric_limits<double>::epsilon();
-  constexpr double rounding_allowance_v = 1e-8;  // as on the one-JFET path
+  using detail::acceptance_round_k;
+  using detail::rounding_allowance_v;
   v = Eigen::Map<const vec_p>(guess.data(), np);
   base = v;
   step.setZero();
@@ -387,31 +388,22 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd
     }
 
     bool small = !limited;
-    for (int j = 0; j < k && small; ++j) {
-      const double lim = 0.01 * g.dev[static_cast<std::size_t>(j)].nvt_v;
-      const double dgs = d[2 * j], dgd = d[2 * j] - d[2 * j + 1];
-      small = std::fabs(dgs) <= lim && std::fabs(dgd) <= lim;
-    }
+    for (int j = 0; j < k && small; ++j)
+      small = detail::small_junction_steps(g.dev[static_cast<std::size_t>(j)], d[2 * j], d[2 * j] - d[2 * j + 1]);
     if (small) {
       for (int j = 0; j < k; ++j) {
-        const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
-        const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
-        const double d0 = d[2 * j], d1 = d[2 * j + 1];
-        const double dgs = d0, dgd = d0 - d1;
-        rem[3 * j] = 0.505 * c.ggs_s * dv.inv_nvt * dgs * dgs;
-        rem[3 * j + 1] = 0.505 * c.ggd_s * dv.inv_nvt * dgd * dgd;
-        const double id_new = detail::channel_current(dv, v[2 * j] + d0, v[2 * j + 1] + d1);
-        const double id_lin_d = c.gm_s * d0 + c.gds_s * d1;
-        rem[3 * j + 2] = std::fabs(id_new - c.id_a - id_lin_d) +
-                         eps8 * (std::fabs(id_new) + std::fabs(c.id_a) + std::fabs(c.gm_s * d0) + std::fabs(c.gds_s * d1));
-        mag[3 * j] = std::fabs(c.igs_a) + std::fabs(c.ggs_s * dgs);
-        mag[3 * j + 1] = std::fabs(c.igd_a) + std::fabs(c.ggd_s * dgd);
-        mag[3 * j + 2] = std::fabs(c.id_a) + std::fabs(id_lin_d);
+        const detail::step_remainders sr = detail::remainders_of(
+            g.dev[static_cast<std::size_t>(j)], g.cur[static_cast<std::size_t>(j)], v[2 * j] + d[2 * j], v[2 * j + 1] + d[2 * j + 1], d[2 * j],
+            d[2 * j + 1]);
+        for (int q = 0; q < 3; ++q) {
+          rem[3 * j + q] = sr.rem[q];
+          mag[3 * j + q] = sr.mag[q];
+        }
       }
       // allowed: the rounding of each row, up to the allowance; t: the residual bound less
       // what is allowed (so t <= tol_v is the test of the residual).
       allowed.noalias() = f_abs * mag;
-      allowed = eps8 * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
+      allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
       t.noalias() = f_abs * rem;
       t += (allowed.array() - rounding_allowance_v).max(0.0).matrix();
       allowed = allowed.cwiseMin(rounding_allowance_v);
