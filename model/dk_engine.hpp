@@ -74,7 +74,10 @@ struct dk_options {
   /// transimpedances carrying tens of mA), below tol_v plus their rounding, at most 1e-8 V.
   double tol_v{1e-10};
   int max_substep_levels{6};    ///< failed samples are retried in 2, 4, ..., 2^levels sub-steps
-  int predictor_order{3};       ///< polynomial extrapolation order of the warm start, 0..3
+  /// Order of the warm start, 0..3: 0 the last solution; 1..3, the last solution moved
+  /// along the new p's step by dv/dp at the last 1..3 samples (Adams-Bashforth of that
+  /// order). The general path (more than one JFET) extrapolates v and p polynomially.
+  int predictor_order{3};
   /// Also evaluate the device at every accepted point and require the actual residual to
   /// be below tol_v (slower; checks the error bound, see dk_stats::bound_misses).
   bool confirm{false};
@@ -163,10 +166,9 @@ class dk_engine {
     port_point last;                                 // the last sample's solution
     Eigen::Vector2d q{Eigen::Vector2d::Zero()};      // D x_{n-1}
     Eigen::Vector2d p_last{Eigen::Vector2d::Zero()};
-    // Backward differences of v and p at the last sample, orders 1..3 (order 0 is last.v
-    // and p_last): the warm start extrapolates with their sum (Newton's backward form).
-    std::array<Eigen::Vector2d, 3> v_diff{};
-    std::array<Eigen::Vector2d, 3> p_diff{};
+    // dv/dp at the two samples before the last, for the warm start (dk_engine.cpp, step_t).
+    Eigen::Matrix2d m_prev{Eigen::Matrix2d::Zero()};
+    Eigen::Matrix2d m_prev2{Eigen::Matrix2d::Zero()};
   };
 
   // The general path for more than one JFET (model/dk_multi.cpp). Every size is fixed when
@@ -255,7 +257,9 @@ class dk_engine {
   Eigen::VectorXd w_const_;         // W's supply column times the supply (constant)
   loop_state ls_;
   std::array<double, 4> pred_{};    // extrapolation weights for v_{n-1}..v_{n-4} (general path)
-  std::array<double, 3> diff_use_{};  // 1 for the backward differences the extrapolation uses, else 0
+  // Warm start of the one-JFET path: weights of dv/dp at the last three samples
+  // (Adams-Bashforth of order predictor_order; dk_engine.cpp, step_t).
+  std::array<double, 3> warm_{};
   Eigen::VectorXd x_dc_;
   port_point dc_point_;
   Eigen::Vector2d p_dc_{Eigen::Vector2d::Zero()};
