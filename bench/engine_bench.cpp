@@ -42,6 +42,7 @@ void bench_engine() {
   const std::size_t n_engine = static_cast<std::size_t>(rate_hz / 10);  // 0.1 s of audio
   const std::size_t n_reference = 20000;
   double worst_rt = 1e300;
+  std::string loop_name = "?";
   for (const auto& path : presets) {
     const model::network net = model::build_network(model::read_stage_file(path));
     const model::operating_point op = model::solve_operating_point(net);
@@ -49,6 +50,7 @@ void bench_engine() {
       const std::vector<double> u = tone(drive, n_engine);
       std::vector<double> y(n_engine);
       model::dk_engine eng(net, op, rate_hz);
+      loop_name = eng.sample_loop();
       double sink = 0.0;
       eng.process(u, y);  // a first block from the DC point, untimed
       const double t_engine = best_seconds(30, [&] {
@@ -72,4 +74,5 @@ void bench_engine() {
     }
   }
   std::printf("\nslowest case: %.1fx real time (target 30x, aim 50x)\n", worst_rt);
+  std::printf("sample loop on this processor: %s\n", loop_name.c_str());
 }

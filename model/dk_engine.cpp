@@ -394,7 +394,8 @@ void dk_engine::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 // The factor (<= 1) that junction-voltage limiting (Nagel 1975, SPICE2 pnjlim) puts on the
 // step (d0, d1) from the port point (v0, v1): 1 unless a junction would land above vcrit by
 // a step the exponential cannot be trusted over.
-double dk_engine::junction_step_scale(double v0, double v1, double d0, double d1) const noexcept {
+__attribute__((noinline)) double dk_engine::junction_step_scale(double v0, double v1, double d0,
+                                                                double d1) const noexcept {
   const double gs_old = v0, gd_old = v0 - v1;
   const double gs_new = gs_old + d0, gd_new = gd_old + d0 - d1;
   if (!(gs_new > dev_.vcrit_v || gd_new > dev_.vcrit_v)) return 1.0;
@@ -540,8 +541,8 @@ __attribute__((always_inline)) inline dk_engine::newton_outcome dk_engine::newto
 // Newton on st, up to max_iterations iterations in all (`done` of them already made). Out
 // of line: the sample loop makes the first two iterations itself and comes here (through
 // rest_of_sample) only when they were not accepted.
-bool dk_engine::newton_rest(newton_state& st, const Eigen::Vector2d& p, port_point& out, int& evals,
-                            int done) noexcept {
+__attribute__((noinline)) bool dk_engine::newton_rest(newton_state& st, const Eigen::Vector2d& p, port_point& out,
+                                                      int& evals, int done) noexcept {
   for (int k = done; k < opt_.max_iterations; ++k) {
     switch (newton_iteration(st, p, out, evals)) {
       case newton_outcome::accepted: return true;
@@ -554,8 +555,9 @@ bool dk_engine::newton_rest(newton_state& st, const Eigen::Vector2d& p, port_poi
 
 // The rest of a sample whose inline Newton iterations were not accepted: the other
 // iterations, then sub-steps from the last sample's solution if they fail.
-dk_engine::port_point dk_engine::rest_of_sample(newton_state st, int done, bool failed, Eigen::Vector2d p,
-                                                port_point last, Eigen::Vector2d p_last, int& evals) noexcept {
+__attribute__((noinline)) dk_engine::port_point dk_engine::rest_of_sample(newton_state st, int done, bool failed,
+                                                                          Eigen::Vector2d p, port_point last,
+                                                                          Eigen::Vector2d p_last, int& evals) noexcept {
   port_point pt;
   if (failed || !newton_rest(st, p, pt, evals, done)) substep(p, last, p_last, pt, evals);
   return pt;
@@ -572,8 +574,8 @@ bool dk_engine::solve_ports(const Eigen::Vector2d& p, const Eigen::Vector2d& gue
 // equations of the last part are exactly those of the sample, so the result is the same
 // trapezoidal solution a converged direct solve gives). What still fails is held at the
 // previous solution and counted.
-void dk_engine::substep(const Eigen::Vector2d& p, const port_point& from, const Eigen::Vector2d& p_from, port_point& out,
-                        int& evals) noexcept {
+__attribute__((noinline)) void dk_engine::substep(const Eigen::Vector2d& p, const port_point& from,
+                                                  const Eigen::Vector2d& p_from, port_point& out, int& evals) noexcept {
   for (int level = 1; level <= opt_.max_substep_levels; ++level) {
     const int parts = 1 << level;
     port_point cur = from;
@@ -727,12 +729,23 @@ void dk_engine::block_portable(const double* in, double* out, std::size_t n) noe
   block_t<NS, false>(in, out, n);
 }
 
+// The wide loop is flattened: everything it calls is inlined into it except what is
+// marked noinline (the rare rest of a sample: newton_rest, rest_of_sample, substep,
+// junction_step_scale). Left to its heuristics the compiler had put small parts of the
+// hot path out of line (an Eigen expression of the acceptance, the device's channel
+// current in the second iteration), and which ones changed with unrelated edits: up to 4 %
+// of the time at 10 V.
 #if PINCHOFF_DK_WIDE
 template <int NS>
-__attribute__((target("avx2,fma"))) void dk_engine::block_wide(const double* in, double* out, std::size_t n) noexcept {
+__attribute__((flatten, target("avx2,fma"))) void dk_engine::block_wide(const double* in, double* out,
+                                                                         std::size_t n) noexcept {
   block_t<NS, true>(in, out, n);
 }
 #endif
+
+const char* dk_engine::sample_loop() const noexcept {
+  return m_.devices == 1 && wide_ ? "AVX2+FMA" : "portable";
+}
 
 void dk_engine::run_block(const double* in, double* out, std::size_t n) noexcept {
 #if PINCHOFF_DK_WIDE

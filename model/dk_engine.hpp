@@ -138,6 +138,9 @@ class dk_engine {
   double dc_output_v() const noexcept { return y_dc_; }
 
   const dk_stats& stats() const noexcept { return stats_; }
+  /// Which compiled sample loop runs (dk_engine.cpp): "AVX2+FMA" or "portable" (the
+  /// general path, more than one JFET, is portable).
+  const char* sample_loop() const noexcept;
   void clear_stats() noexcept { stats_ = {}; }
   const dk_matrices& matrices() const noexcept { return m_; }
   const dk_options& options() const noexcept { return opt_; }
