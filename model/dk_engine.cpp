@@ -250,10 +250,8 @@ void dk_engine::init(const network& net, const operating_point& op) {
     throw internal_error("dk_options: max_substep_levels must be 0..16");
   if (opt_.predictor_order < 0 || opt_.predictor_order > 3)
     throw internal_error("dk_options: predictor_order must be 0..3");
-  static constexpr double weights[4][4] = {{1, 0, 0, 0}, {2, -1, 0, 0}, {3, -3, 1, 0}, {4, -6, 4, -1}};
-  for (int k = 0; k < 4; ++k) pred_[static_cast<std::size_t>(k)] = weights[opt_.predictor_order][k];
-  // The one-JFET path's warm start (step_t): Adams-Bashforth weights of order 0..3 on
-  // dv/dp at the last three samples.
+  // The warm start (step_t, process_k): Adams-Bashforth weights of order 0..3 on dv/dp at
+  // the last three samples.
   static constexpr double ab[4][3] = {{0, 0, 0}, {1, 0, 0}, {1.5, -0.5, 0}, {23.0 / 12, -16.0 / 12, 5.0 / 12}};
   for (int k = 0; k < 3; ++k) warm_[static_cast<std::size_t>(k)] = ab[opt_.predictor_order][k];
 

@@ -76,7 +76,7 @@ struct dk_options {
   int max_substep_levels{6};    ///< failed samples are retried in 2, 4, ..., 2^levels sub-steps
   /// Order of the warm start, 0..3: 0 the last solution; 1..3, the last solution moved
   /// along the new p's step by dv/dp at the last 1..3 samples (Adams-Bashforth of that
-  /// order). The general path (more than one JFET) extrapolates v and p polynomially.
+  /// order).
   int predictor_order{3};
   /// Also evaluate the device at every accepted point and require the actual residual to
   /// be below tol_v (slower; checks the error bound, see dk_stats::bound_misses).
@@ -195,7 +195,8 @@ class dk_engine {
     Eigen::MatrixXd j;                          // I - F Jf, then its LU factors
     std::vector<int> piv;                       // the LU's row interchanges
     port_set last, dc, trial, cur_pt, next_pt;
-    Eigen::MatrixXd v_hist, p_hist;             // columns v_{n-2}, v_{n-3}, v_{n-4} (and p)
+    Eigen::MatrixXd m_prev, m_prev2;            // dv/dp at the two samples before the last (warm start)
+    Eigen::VectorXd mdl;                        // the warm start's products
     Eigen::MatrixXd cj, md;                     // process_tracked: C Jf (ns x 2k), M D (2k x ns)
   };
 
@@ -259,9 +260,8 @@ class dk_engine {
   Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
   Eigen::VectorXd w_const_;         // W's supply column times the supply (constant)
   loop_state ls_;
-  std::array<double, 4> pred_{};    // extrapolation weights for v_{n-1}..v_{n-4} (general path)
-  // Warm start of the one-JFET path: weights of dv/dp at the last three samples
-  // (Adams-Bashforth of order predictor_order; dk_engine.cpp, step_t).
+  // Warm start: weights of dv/dp at the last three samples (Adams-Bashforth of order
+  // predictor_order; dk_engine.cpp, step_t).
   std::array<double, 3> warm_{};
   Eigen::VectorXd x_dc_;
   port_point dc_point_;

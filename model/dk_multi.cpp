@@ -199,8 +199,9 @@ void dk_engine::init_general(const network& net, const operating_point& op) {
   g.j.setZero(np, np);
   g.piv.assign(static_cast<std::size_t>(np), 0);
   for (port_set* s : {&g.last, &g.dc, &g.trial, &g.cur_pt, &g.next_pt}) s->resize(k);
-  g.v_hist.setZero(np, 3);
-  g.p_hist.setZero(np, 3);
+  g.m_prev.setZero(np, np);
+  g.m_prev2.setZero(np, np);
+  g.mdl.setZero(np);
   g.cj.setZero(ns, np);
   g.md.setZero(np, ns);
   phi_.resize(ns, ns);
@@ -282,10 +283,8 @@ void dk_engine::reset_general() {
   g.q.noalias() = m_.d * x_dc_;
   g.last = g.dc;
   g.p_last = g.p_dc;
-  for (int c = 0; c < 3; ++c) {
-    g.v_hist.col(c) = g.dc.v;
-    g.p_hist.col(c) = g.p_dc;
-  }
+  g.m_prev = g.dc.m;
+  g.m_prev2 = g.dc.m;
   stats_ = {};
 }
 
@@ -521,31 +520,28 @@ double dk_engine::process_k(double generator_v) noexcept {
   const Eigen::Map<const vec_p> e0(m_.e.col(0).data(), np), e1(m_.e.col(1).data(), np);
   p = q + e0 * supply_v_ + e1 * ug;
 
-  // Warm start as for one JFET: extrapolated v, corrected to first order by M.
+  // Warm start as for one JFET: the last solution moved along the step of p by dv/dp at
+  // the last three samples (Adams-Bashforth weights warm_; dk_engine.cpp, step_t).
   {
-    const Eigen::Map<const vec_p> v0(g.last.v.data(), np), v1(g.v_hist.col(0).data(), np), v2(g.v_hist.col(1).data(), np),
-        v3(g.v_hist.col(2).data(), np);
-    const Eigen::Map<const vec_p> p1(g.p_hist.col(0).data(), np), p2(g.p_hist.col(1).data(), np),
-        p3(g.p_hist.col(2).data(), np);
-    dp = p - (pred_[0] * p_last + pred_[1] * p1 + pred_[2] * p2 + pred_[3] * p3);
-    guess = pred_[0] * v0 + pred_[1] * v1 + pred_[2] * v2 + pred_[3] * v3;
-    guess.noalias() += Eigen::Map<const mat_p>(g.last.m.data(), np, np) * dp;
+    using map_m = Eigen::Map<const mat_p>;
+    Eigen::Map<vec_p> mdl(g.mdl.data(), np);
+    dp = p - p_last;
+    guess = Eigen::Map<const vec_p>(g.last.v.data(), np);
+    mdl.noalias() = map_m(g.last.m.data(), np, np) * dp;
+    guess += warm_[0] * mdl;
+    mdl.noalias() = map_m(g.m_prev.data(), np, np) * dp;
+    guess += warm_[1] * mdl;
+    mdl.noalias() = map_m(g.m_prev2.data(), np, np) * dp;
+    guess += warm_[2] * mdl;
   }
 
   int evals = 0;
   if (!solve_general<K>(g.p, g.guess, g.trial, evals)) substep_general<K>(g.p, g.trial, evals);
 
-  {
-    Eigen::Map<vec_p> v0(g.last.v.data(), np), v1(g.v_hist.col(0).data(), np), v2(g.v_hist.col(1).data(), np),
-        v3(g.v_hist.col(2).data(), np);
-    Eigen::Map<vec_p> p1(g.p_hist.col(0).data(), np), p2(g.p_hist.col(1).data(), np), p3(g.p_hist.col(2).data(), np);
-    v3 = v2;
-    v2 = v1;
-    v1 = v0;
-    p3 = p2;
-    p2 = p1;
-    p1 = p_last;
-  }
+  // The dv/dp history for the next warm start: m_prev2 <- m_prev <- the last solution's
+  // (a swap of storage and a copy of the same size: no allocation).
+  g.m_prev2.swap(g.m_prev);
+  g.m_prev = g.last.m;
   std::swap(g.last, g.trial);  // swaps storage: no copy, no allocation
   p_last = p;
 
