@@ -640,7 +640,7 @@ __attribute__((always_inline)) inline int dk_engine::step_t(loop_state& s, doubl
   const Eigen::Vector2d dl = p - s.p_last;
   const Eigen::Matrix2d mg = warm_[0] * s.last.m + warm_[1] * s.m_prev + warm_[2] * s.m_prev2;
   Eigen::Vector2d guess = s.last.v + mg * dl;
-  // Across a kink (cutoff, the triode edge, a junction turning on) the extrapolation can
+  // Across a kink (cutoff, the triode edge, a junction turning on) the warm start can
   // overshoot by volts; a junction pushed far forward by it would start Newton where its
   // exponential (or the linear continuation beyond exp(80)) swamps everything else. The
   // warm start is limited like a Newton step from the last solution (only a junction
