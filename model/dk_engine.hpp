@@ -189,7 +189,7 @@ class dk_engine {
     Eigen::MatrixXd f_abs;                      // |F|
     Eigen::MatrixXd w;                          // [A - I, B, C; D A, D B, D C; Do, Eo, Fo]
     Eigen::VectorXd pre, out;                   // W's x and u columns times [x; u]; the product
-    Eigen::VectorXd q, p, p_last, p_dc, v_ext, p_ext, dp;
+    Eigen::VectorXd q, p, p_last, p_dc, dp;
     Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
     Eigen::VectorXd allowed, mag;               // the acceptance's rounding: per row, per current
     Eigen::MatrixXd j;                          // I - F Jf, then its LU factors

@@ -191,7 +191,7 @@ void dk_engine::init_general(const network& net, const operating_point& op) {
   g.out = Eigen::VectorXd::Zero(ns + np + 1);
   in_ = Eigen::VectorXd::Zero(ns + 2 + ni);
 
-  for (Eigen::VectorXd* v : {&g.q, &g.p, &g.p_last, &g.p_dc, &g.v_ext, &g.p_ext, &g.dp, &g.v, &g.r, &g.d, &g.base,
+  for (Eigen::VectorXd* v : {&g.q, &g.p, &g.p_last, &g.p_dc, &g.dp, &g.v, &g.r, &g.d, &g.base,
                              &g.step, &g.t, &g.bound, &g.allowed, &g.pc, &g.pj, &g.guess})
     v->setZero(np);
   g.rem.setZero(ni);
