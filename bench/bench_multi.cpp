@@ -12,10 +12,10 @@
 
 #include "bench/benches.hpp"
 #include "bench/engine_timing.hpp"
-#include "model/dk_engine.hpp"
-#include "model/operating_point.hpp"
-#include "model/transient_reference.hpp"
-#include "tests/multi_device_networks.hpp"
+#include "model/engine/dk_engine.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/engine/transient_reference.hpp"
+#include "fixtures/multi_device_networks.hpp"
 
 namespace {
 

@@ -16,11 +16,11 @@
 #include <time.h>
 
 #include "bench/benches.hpp"
-#include "dsp/sound_file.hpp"
-#include "model/network.hpp"
-#include "model/operating_point.hpp"
-#include "model/render.hpp"
-#include "model/stage_file.hpp"
+#include "dsp/io/sound_file.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/audio/render.hpp"
+#include "model/circuit/stage_file.hpp"
 
 namespace {
 

@@ -8,9 +8,9 @@
 #include <vector>
 
 #include "bench/benches.hpp"
-#include "dsp/units.hpp"
-#include "model/stage_file.hpp"
-#include "model/sweep.hpp"
+#include "base/units.hpp"
+#include "model/circuit/stage_file.hpp"
+#include "model/analysis/sweep.hpp"
 
 void bench_sweep() {
   using namespace pinchoff;
@@ -23,7 +23,7 @@ void bench_sweep() {
   for (const auto& p : presets) {
     const model::stage st = model::read_stage_file(p);
     model::sweep_settings s;
-    for (int k = 0; k < 25; ++k) s.drives_vpk.push_back(dsp::vpk_from_dbu(-40.0 + 60.0 * k / 24.0));
+    for (int k = 0; k < 25; ++k) s.drives_vpk.push_back(base::vpk_from_dbu(-40.0 + 60.0 * k / 24.0));
     double best = 1e9;
     model::sweep_result r;
     for (int rep = 0; rep < 5; ++rep) {

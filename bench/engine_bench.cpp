@@ -15,11 +15,11 @@
 
 #include "bench/benches.hpp"
 #include "bench/engine_timing.hpp"
-#include "model/dk_engine.hpp"
-#include "model/network.hpp"
-#include "model/operating_point.hpp"
-#include "model/stage_file.hpp"
-#include "model/transient_reference.hpp"
+#include "model/engine/dk_engine.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/circuit/stage_file.hpp"
+#include "model/engine/transient_reference.hpp"
 
 using namespace pinchoff;
 using namespace pinchoff::bench;

@@ -6,7 +6,7 @@
 
 #include <CLI/CLI.hpp>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 
 namespace pinchoff::cli {
 
@@ -88,6 +88,11 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
                                                   : o->get_name() + ": the value is empty");
       }
       c.run(report, err);
+    } catch (const setting_error& e) {
+      const auto o = c.options_of_fields.find(e.field());
+      err << "pinchoff " << c.sub->get_name() << ": " << (o != c.options_of_fields.end() ? o->second : e.field()) << ": "
+          << e.what() << '\n';
+      return 2;
     } catch (const input_error& e) {
       err << "pinchoff " << c.sub->get_name() << ": " << e.what() << '\n';
       return 2;

@@ -3,6 +3,7 @@
 // in-process with an argv vector (without the program name).
 #include <functional>
 #include <iosfwd>
+#include <map>
 #include <string>
 #include <vector>
 
@@ -15,9 +16,14 @@ namespace pinchoff::cli {
 /// One subcommand: set up by its register function, run after a successful parse.
 /// `run` writes the report to `out`; the caller prints it only when run succeeded, so a
 /// failed command writes nothing to stdout. Warnings and progress go to `err`.
+/// `options_of_fields` maps the fields the model names in a setting_error (base/error.hpp)
+/// to this command's options: {"oversampling", "--oversample"} turns "oversampling must be
+/// 1 to 64" into "--oversample: oversampling must be 1 to 64". A field it does not list is
+/// printed as the model named it.
 struct command {
   CLI::App* sub{nullptr};
   std::function<void(std::ostream& out, std::ostream& err)> run;
+  std::map<std::string, std::string, std::less<>> options_of_fields{};
 };
 
 /// Parses `args` (no program name) and runs the chosen command. Returns the exit status:

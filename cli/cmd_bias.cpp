@@ -10,17 +10,17 @@
 #include "cli/app.hpp"
 #include "cli/common.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/units.hpp"
-#include "model/headroom.hpp"
-#include "model/network.hpp"
-#include "model/small_signal.hpp"
-#include "model/warnings.hpp"
+#include "base/units.hpp"
+#include "model/analysis/headroom.hpp"
+#include "model/circuit/network.hpp"
+#include "model/analysis/small_signal.hpp"
+#include "model/analysis/warnings.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_si;
-using dsp::format_number;
+using base::format_si;
+using base::format_number;
 using align = text_table::align;
 
 struct bias_options {
@@ -40,7 +40,7 @@ struct bias_report {
   std::vector<model::cap_reactance> reactances;
 };
 
-std::string db_text(double gain) { return format_number(dsp::db_from_ratio(std::fabs(gain)), 3) + " dB"; }
+std::string db_text(double gain) { return format_number(base::db_from_ratio(std::fabs(gain)), 3) + " dB"; }
 
 void write_text(const bias_report& r, const std::string& path, std::ostream& out) {
   const model::terminal_point& t = r.op.at;
@@ -79,9 +79,9 @@ void write_text(const bias_report& r, const std::string& path, std::ostream& out
   limit_row("output down", r.head.down);
   hr.write(out);
   out << "  clean symmetric swing " << format_si(r.head.symmetric_output_vpk, "V") << " peak ("
-      << format_number(dsp::dbu_from_vpk(r.head.symmetric_output_vpk), 3) << " dBu) at the load, for drive up to "
+      << format_number(base::dbu_from_vpk(r.head.symmetric_output_vpk), 3) << " dBu) at the load, for drive up to "
       << format_si(r.head.clean_drive_vpk, "V") << " peak ("
-      << format_number(dsp::dbu_from_vpk(r.head.clean_drive_vpk), 3) << " dBu)\n";
+      << format_number(base::dbu_from_vpk(r.head.clean_drive_vpk), 3) << " dBu)\n";
 
   if (!r.ss.corners.empty()) {
     out << "\nLow-frequency corners (each capacitor alone, the others shorted)\n";
@@ -132,9 +132,9 @@ void write_json(const bias_report& r, std::ostream& out) {
   j["small_signal"] = {{"gm_s", r.ss.gm_s},
                        {"gds_s", r.ss.gds_s},
                        {"rds_ohm", number_or_null(r.ss.rds_ohm)},
-                       {"gain_midband_db", dsp::db_from_ratio(std::fabs(r.ss.gain_midband))},
+                       {"gain_midband_db", base::db_from_ratio(std::fabs(r.ss.gain_midband))},
                        {"gain_midband_v_per_v", r.ss.gain_midband},
-                       {"gain_midband_no_gds_db", dsp::db_from_ratio(std::fabs(r.ss.gain_midband_no_gds))},
+                       {"gain_midband_no_gds_db", base::db_from_ratio(std::fabs(r.ss.gain_midband_no_gds))},
                        {"gain_midband_no_gds_v_per_v", r.ss.gain_midband_no_gds},
                        {"zin_ohm", r.ss.zin_ohm},
                        {"zout_ohm", r.ss.zout_ohm}};

@@ -15,16 +15,16 @@
 #include "cli/common.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
-#include "model/compare.hpp"
-#include "model/stage_file.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/analysis/compare.hpp"
+#include "model/circuit/stage_file.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct compare_options {
@@ -81,7 +81,7 @@ std::string fixed(double v, int decimals) {
   std::snprintf(t, sizeof t, "%.*f", decimals, std::fabs(v) < 0.5 * std::pow(10.0, -decimals) ? 0.0 : v);
   return t;
 }
-std::string dbu(double vpk) { return fixed(dsp::dbu_from_vpk(vpk), 2) + " dBu"; }
+std::string dbu(double vpk) { return fixed(base::dbu_from_vpk(vpk), 2) + " dBu"; }
 // Below this a harmonic is under the engine's numerical floor (as in `sweep`).
 constexpr double shown_floor_dbc = -180.0;
 std::string dbc(double v) {
@@ -166,7 +166,7 @@ nlohmann::json write_json(const std::vector<design_input>& in, const model::comp
   j["oversampling"] = r.oversample;
   j["mode"] = r.mode == model::compare_mode::at_output ? "at_output" : "at_drive";
   j["level_vpk"] = r.level_vpk;
-  j["level_dbu"] = dsp::dbu_from_vpk(r.level_vpk);
+  j["level_dbu"] = base::dbu_from_vpk(r.level_vpk);
   j["thd_harmonics"] = r.thd_harmonics;
   nlohmann::json ds = nlohmann::json::array();
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
@@ -183,9 +183,9 @@ nlohmann::json write_json(const std::vector<design_input>& in, const model::comp
                   {"clean_swing_vpk", d.clean_swing_vpk},
                   {"clean_drive_vpk", d.clean_drive_vpk},
                   {"drive_vpk", d.point.drive_vpk},
-                  {"drive_dbu", dsp::dbu_from_vpk(d.point.drive_vpk)},
+                  {"drive_dbu", base::dbu_from_vpk(d.point.drive_vpk)},
                   {"output_vpk", d.point.output_vpk},
-                  {"output_dbu", dsp::dbu_from_vpk(d.point.output_vpk)},
+                  {"output_dbu", base::dbu_from_vpk(d.point.output_vpk)},
                   {"gain_db", d.point.gain_db},
                   {"thd_percent", d.point.thd_percent},
                   {"thd_db", d.point.thd_db},
@@ -197,7 +197,7 @@ nlohmann::json write_json(const std::vector<design_input>& in, const model::comp
                    {{"found", t1.found},
                     {"drive_vpk", t1.found ? nlohmann::json(t1.drive_vpk) : nlohmann::json(nullptr)},
                     {"output_vpk", t1.found ? nlohmann::json(t1.point.output_vpk) : nlohmann::json(nullptr)},
-                    {"output_dbu", t1.found ? nlohmann::json(dsp::dbu_from_vpk(t1.point.output_vpk)) : nlohmann::json(nullptr)},
+                    {"output_dbu", t1.found ? nlohmann::json(base::dbu_from_vpk(t1.point.output_vpk)) : nlohmann::json(nullptr)},
                     {"reason", t1.reason}}}});
   }
   j["designs"] = ds;

@@ -8,16 +8,16 @@
 #include "cli/app.hpp"
 #include "cli/common.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/csv.hpp"
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
-#include "model/fit.hpp"
+#include "base/csv.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/device/fit.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct fit_options {
@@ -44,7 +44,7 @@ void register_fit(CLI::App& app, std::vector<command>& commands) {
       "as well (needs VDS varied by more than 1 V). Keep the part in saturation (VDS above\n"
       "VGS - VP). The result ends with a [jfet] block to paste into a stage file.");
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
-                        const dsp::csv_table t = dsp::read_csv_file(opt->path);
+                        const base::csv_table t = base::read_csv_file(opt->path);
                         const model::bench_table bt = model::readings_from_table(t);
                         model::fit_result f;
                         try {

@@ -8,15 +8,15 @@
 #include "cli/app.hpp"
 #include "cli/common.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
-#include "model/imd.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/analysis/imd.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct imd_options {
@@ -29,9 +29,9 @@ struct imd_options {
 };
 
 std::string pct_db(double ratio) {
-  return format_number(100.0 * ratio, 3) + " % (" + format_number(dsp::db_from_ratio(ratio), 3) + " dB)";
+  return format_number(100.0 * ratio, 3) + " % (" + format_number(base::db_from_ratio(ratio), 3) + " dB)";
 }
-std::string rel_db(double v, double ref) { return format_number(dsp::db_from_ratio(v / ref), 3) + " dB"; }
+std::string rel_db(double v, double ref) { return format_number(base::db_from_ratio(v / ref), 3) + " dB"; }
 
 }  // namespace
 
@@ -93,8 +93,8 @@ void register_imd(CLI::App& app, std::vector<command>& commands) {
                             j["tone2_output_vpk"] = d.u2_vpk;
                             j["d2_percent"] = 100.0 * d.d2_ratio;
                             j["d3_percent"] = 100.0 * d.d3_ratio;
-                            j["d2_db"] = dsp::db_from_ratio(d.d2_ratio);
-                            j["d3_db"] = dsp::db_from_ratio(d.d3_ratio);
+                            j["d2_db"] = base::db_from_ratio(d.d2_ratio);
+                            j["d3_db"] = base::db_from_ratio(d.d3_ratio);
                             products.push_back({{"name", "f2-f1"}, {"frequency_hz", d.f2_hz - d.f1_hz}, {"level_vpk", d.difference_vpk}});
                             products.push_back({{"name", "2f1-f2"}, {"frequency_hz", 2 * d.f1_hz - d.f2_hz}, {"level_vpk", d.lower3_vpk}});
                             products.push_back({{"name", "2f2-f1"}, {"frequency_hz", 2 * d.f2_hz - d.f1_hz}, {"level_vpk", d.upper3_vpk}});
@@ -103,13 +103,13 @@ void register_imd(CLI::App& app, std::vector<command>& commands) {
                             j["tone1_output_vpk"] = m.u1_vpk;
                             j["tone2_output_vpk"] = m.u2_vpk;
                             j["imd_percent"] = 100.0 * m.imd_ratio;
-                            j["imd_db"] = dsp::db_from_ratio(m.imd_ratio);
+                            j["imd_db"] = base::db_from_ratio(m.imd_ratio);
                             for (const auto& o : m.orders)
                               products.push_back({{"order", o.order},
                                                   {"lower_hz", o.lower_hz},
                                                   {"upper_hz", o.upper_hz},
-                                                  {"lower_dbc", dsp::db_from_ratio(o.lower_vpk / m.u2_vpk)},
-                                                  {"upper_dbc", dsp::db_from_ratio(o.upper_vpk / m.u2_vpk)},
+                                                  {"lower_dbc", base::db_from_ratio(o.lower_vpk / m.u2_vpk)},
+                                                  {"upper_dbc", base::db_from_ratio(o.upper_vpk / m.u2_vpk)},
                                                   {"d_percent", 100.0 * o.d_ratio}});
                           }
                           j["products"] = products;

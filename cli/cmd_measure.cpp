@@ -15,18 +15,18 @@
 #include "cli/common.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/error.hpp"
-#include "dsp/sound_file.hpp"
-#include "dsp/units.hpp"
+#include "base/error.hpp"
+#include "dsp/io/sound_file.hpp"
+#include "base/units.hpp"
 #include "dsp/windowed_analysis.hpp"
-#include "model/stage_file.hpp"
-#include "model/sweep.hpp"
+#include "model/circuit/stage_file.hpp"
+#include "model/analysis/sweep.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct measure_options {
@@ -84,7 +84,7 @@ const char* window_description(dsp::window_kind w) {
 
 // dBFS of an rms value, on the scale where a full-scale sine (rms 1/sqrt 2) is 0 dBFS
 // (AES17's definition), so a sine of peak A reads 20 log10 A as in `tone`.
-double dbfs_from_rms(double rms) { return dsp::db_from_ratio(rms * dsp::sqrt2); }
+double dbfs_from_rms(double rms) { return base::db_from_ratio(rms * base::sqrt2); }
 
 std::string fixed(double v, int decimals) {
   char t[48];
@@ -151,7 +151,7 @@ measure_report analyse(const measure_options& o) {
     series line{"windowed spectrum (" + std::string(dsp::window_name(r.window)) + ")", sp.frequency_hz, {}};
     double lowest = 0.0;
     for (double a : sp.amplitude_vpk) {
-      line.y.push_back(dsp::db_from_ratio(a));
+      line.y.push_back(base::db_from_ratio(a));
       if (std::isfinite(line.y.back())) lowest = std::min(lowest, line.y.back());
     }
     p.top.y = axis{"level (dBFS, sine peak)", axis_scale::linear, std::max(-200.0, 20.0 * std::floor(lowest / 20.0)), 0.0};
@@ -216,14 +216,14 @@ void write_against_text(const measure_report& r, std::ostream& out) {
   const dsp::windowed_analysis& a = r.a;
   out << "\nAgainst the model\n  " << p.path;
   for (const std::string& o : p.overrides) out << " --set " << o;
-  out << ": " << p.st.name << "\n  drive " << format_si(p.drive_vpk, "Vpk") << " (" << fixed(dsp::dbu_from_vpk(p.drive_vpk), 2)
+  out << ": " << p.st.name << "\n  drive " << format_si(p.drive_vpk, "Vpk") << " (" << fixed(base::dbu_from_vpk(p.drive_vpk), 2)
       << " dBu) at " << fixed(p.sweep.frequency_hz, 3) << " Hz ("
       << (std::fabs(p.sweep.frequency_hz - a.fundamental_hz) < 5e-4
               ? std::string("the measured fundamental")
               : "the measured " + fixed(a.fundamental_hz, 3) + " Hz, snapped to whole cycles")
       << "), " << p.sweep.oversample << "x oversampling\n  predicted output " << format_si(pt.output_vpk, "Vpk") << " ("
-      << fixed(dsp::dbu_from_vpk(pt.output_vpk), 2) << " dBu) at the load; the recording holds it at "
-      << fixed(dsp::db_from_ratio(a.fundamental_vpk), 2) << " dBFS\n";
+      << fixed(base::dbu_from_vpk(pt.output_vpk), 2) << " dBu) at the load; the recording holds it at "
+      << fixed(base::db_from_ratio(a.fundamental_vpk), 2) << " dBFS\n";
   for (const std::string& w : p.warnings) out << "  ! " << w << '\n';
   out << '\n';
   text_table t({align::left, align::right, align::right, align::right});
@@ -238,7 +238,7 @@ void write_against_text(const measure_report& r, std::ostream& out) {
            is_floor ? std::string("-") : signed_db(m - q)});
   }
   t.add({"THD", format_number(a.thd_percent, 4) + " %", format_number(pt.thd_percent, 4) + " %",
-         signed_db(dsp::db_from_ratio(a.thd_ratio / pt.thd_ratio))});
+         signed_db(base::db_from_ratio(a.thd_ratio / pt.thd_ratio))});
   t.write(out);
   out << "  difference: measured minus predicted; dBc figures do not depend on the recording's gain.\n"
          "  A measured harmonic near the noise floor reads the noise, not the stage.\n";
@@ -259,8 +259,8 @@ void write_text(const measure_report& r, std::ostream& out) {
   out << "\nFundamental\n";
   text_table f({align::left, align::right});
   f.add({"frequency", fixed(a.fundamental_hz, 4) + " Hz"});
-  f.add({"level", fixed(dsp::db_from_ratio(a.fundamental_vpk), 2) + " dBFS"});
-  f.add({"DC", fixed(dsp::db_from_ratio(std::abs(a.dc_v)), 1) + " dBFS"});
+  f.add({"level", fixed(base::db_from_ratio(a.fundamental_vpk), 2) + " dBFS"});
+  f.add({"DC", fixed(base::db_from_ratio(std::abs(a.dc_v)), 1) + " dBFS"});
   f.write(out);
 
   out << "\nHarmonics (relative to the fundamental)\n";
@@ -273,7 +273,7 @@ void write_text(const measure_report& r, std::ostream& out) {
       continue;
     }
     h.add({"H" + std::to_string(n), format_si(fh, "Hz", 4), dbc_text(a.harmonics_dbc[i]),
-           fixed(dsp::db_from_ratio(a.harmonics_vpk[i]), 2) + " dBFS"});
+           fixed(base::db_from_ratio(a.harmonics_vpk[i]), 2) + " dBFS"});
   }
   h.write(out);
 
@@ -295,7 +295,7 @@ void write_json(const measure_report& r, std::ostream& out) {
   nlohmann::json dbc = nlohmann::json::array(), dbfs = nlohmann::json::array();
   for (std::size_t i = 0; i < a.harmonics_dbc.size(); ++i) {
     dbc.push_back(number_or_null(a.harmonics_dbc[i]));
-    dbfs.push_back(number_or_null(std::isfinite(a.harmonics_vpk[i]) ? dsp::db_from_ratio(a.harmonics_vpk[i])
+    dbfs.push_back(number_or_null(std::isfinite(a.harmonics_vpk[i]) ? base::db_from_ratio(a.harmonics_vpk[i])
                                                                     : a.harmonics_vpk[i]));
   }
   const double fs = r.info.rate_hz;
@@ -308,8 +308,8 @@ void write_json(const measure_report& r, std::ostream& out) {
                    {"window", std::string(dsp::window_name(r.window))},
                    {"bandwidth_hz", r.band_high_hz},
                    {"fundamental_hz", a.fundamental_hz},
-                   {"fundamental_dbfs", dsp::db_from_ratio(a.fundamental_vpk)},
-                   {"dc_dbfs", dsp::db_from_ratio(std::abs(a.dc_v))},
+                   {"fundamental_dbfs", base::db_from_ratio(a.fundamental_vpk)},
+                   {"dc_dbfs", base::db_from_ratio(std::abs(a.dc_v))},
                    {"highest_harmonic", a.highest_harmonic},
                    {"harmonics_dbc", dbc},
                    {"harmonics_dbfs", dbfs},
@@ -320,7 +320,7 @@ void write_json(const measure_report& r, std::ostream& out) {
                    {"noise_dbfs", dbfs_from_rms(a.noise_rms_v)},
                    {"noise_dbc", a.noise_dbc},
                    {"noise_density_dbc_per_hz", a.noise_floor_dbc_per_hz},
-                   {"sample_peak_dbfs", dsp::db_from_ratio(r.sample_peak)}};
+                   {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)}};
   if (r.against) {
     const prediction& p = *r.against;
     const model::sweep_point& pt = p.point();
@@ -334,17 +334,17 @@ void write_json(const measure_report& r, std::ostream& out) {
                     {"overrides", p.overrides},
                     {"name", p.st.name},
                     {"drive_vpk", p.drive_vpk},
-                    {"drive_dbu", dsp::dbu_from_vpk(p.drive_vpk)},
+                    {"drive_dbu", base::dbu_from_vpk(p.drive_vpk)},
                     {"frequency_hz", p.sweep.frequency_hz},
                     {"requested_frequency_hz", p.sweep.requested_hz},
                     {"oversampling", p.sweep.oversample},
                     {"output_vpk", pt.output_vpk},
-                    {"output_dbu", dsp::dbu_from_vpk(pt.output_vpk)},
+                    {"output_dbu", base::dbu_from_vpk(pt.output_vpk)},
                     {"harmonics_dbc", hs},
                     {"difference_db", diff},
                     {"thd_percent", pt.thd_percent},
                     {"thd_db", pt.thd_db},
-                    {"thd_difference_db", number_or_null(dsp::db_from_ratio(a.thd_ratio / pt.thd_ratio))},
+                    {"thd_difference_db", number_or_null(base::db_from_ratio(a.thd_ratio / pt.thd_ratio))},
                     {"steady_state_converged", pt.converged},
                     {"warnings", p.warnings}};
   }

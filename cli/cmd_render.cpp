@@ -19,20 +19,20 @@
 #include "cli/interrupt.hpp"
 #include "cli/progress_bar.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/error.hpp"
-#include "dsp/sound_file.hpp"
-#include "dsp/units.hpp"
-#include "model/network.hpp"
-#include "model/operating_point.hpp"
-#include "model/render.hpp"
-#include "model/stage_file.hpp"
+#include "base/error.hpp"
+#include "dsp/io/sound_file.hpp"
+#include "base/units.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/audio/render.hpp"
+#include "model/circuit/stage_file.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
 namespace fs = std::filesystem;
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct render_options {
@@ -114,7 +114,7 @@ std::string db_text(double db, const char* unit) {
 }
 
 std::string dbfs_text(double ratio, const char* unit) {
-  return ratio > 0.0 ? db_text(dsp::db_from_ratio(ratio), unit) : std::string("-inf ") + unit;
+  return ratio > 0.0 ? db_text(base::db_from_ratio(ratio), unit) : std::string("-inf ") + unit;
 }
 
 std::string lufs_text(double lufs) { return std::isfinite(lufs) ? db_text(lufs, "LUFS") : "silent"; }
@@ -134,7 +134,7 @@ void write_text(const model::render_report& r, const render_options& o, const st
   out << '\n';
   out << "  input   " << in.format_text << ", " << rate_text(in.rate_hz) << " Hz, " << in.channels
       << (in.channels == 1 ? " channel, " : " channels, ") << format_number(in.seconds(), 4) << " s; 0 dBFS = "
-      << volts_text(dsp::parse_level_vpk(o.input_peak)) << " peak at the generator\n";
+      << volts_text(base::parse_level_vpk(o.input_peak)) << " peak at the generator\n";
   out << "  engine  " << r.oversample << "x oversampling (" << format_si(r.engine_rate_hz, "Hz", 3) << "), "
       << r.latency_samples << " samples of filter latency compensated, " << r.threads
       << (r.threads == 1 ? " engine thread" : " engine threads") << (r.pipelined ? " and one for files" : "") << '\n';
@@ -174,7 +174,7 @@ void write_text(const model::render_report& r, const render_options& o, const st
   text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right});
   t.add({"file", "applied gain", "0 dBFS =", "loudness", "sample peak", "true peak", "clipped"});
   for (const model::output_report& x : r.outputs) {
-    const double gain_db = dsp::db_from_ratio(x.scale * (x.is_dry ? dsp::parse_level_vpk(o.input_peak) : 1.0));
+    const double gain_db = base::db_from_ratio(x.scale * (x.is_dry ? base::parse_level_vpk(o.input_peak) : 1.0));
     t.add({x.path.string() + (x.is_dry ? " (dry)" : ""), db_text(gain_db, "dB"), volts_text(1.0 / x.scale),
            lufs_text(x.loudness_lufs), dbfs_text(x.sample_peak, "dBFS"), dbfs_text(x.true_peak, "dBTP"),
            std::to_string(x.clipped_samples)});
@@ -208,7 +208,7 @@ void write_text(const model::render_report& r, const render_options& o, const st
 }
 
 nlohmann::json level_json(double ratio) {
-  return ratio > 0.0 ? nlohmann::json(dsp::db_from_ratio(ratio)) : nlohmann::json(nullptr);
+  return ratio > 0.0 ? nlohmann::json(base::db_from_ratio(ratio)) : nlohmann::json(nullptr);
 }
 
 // null for an explicit --oversample; otherwise the survey and the probes behind the choice.
@@ -254,7 +254,7 @@ void write_json(const model::render_report& r, const render_options& o, const st
                            {"frames", r.input.frames},
                            {"duration_s", r.input.seconds()},
                            {"format", r.input.format_text},
-                           {"full_scale_vpk", dsp::parse_level_vpk(o.input_peak)}}},
+                           {"full_scale_vpk", base::parse_level_vpk(o.input_peak)}}},
                          {"format", std::string(dsp::sample_format_name(r.format))},
                          {"oversampling", r.oversample},
                          {"oversampling_choice", choice_json(r)},

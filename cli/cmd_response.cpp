@@ -11,16 +11,16 @@
 #include "cli/common.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
-#include "model/network.hpp"
-#include "model/response.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/circuit/network.hpp"
+#include "model/analysis/response.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct response_options {
@@ -31,7 +31,7 @@ struct response_options {
   std::string plot;
 };
 
-double mag_db(std::complex<double> g) { return dsp::db_from_ratio(std::abs(g)); }
+double mag_db(std::complex<double> g) { return base::db_from_ratio(std::abs(g)); }
 
 // Phase in degrees, unwrapped along the sweep so it does not jump by 360.
 std::vector<double> unwrapped_phase_deg(const std::vector<model::response_point>& pts) {
@@ -91,7 +91,7 @@ void register_response(CLI::App& app, std::vector<command>& commands) {
                         const std::vector<std::string> warnings = rest_point_warnings(st, net, op, "response", err);
                         const model::response_result r = model::analyse_response(net, op, lo, hi, opt->points);
                         const std::vector<double> phase = unwrapped_phase_deg(r.points);
-                        const double mid_db = dsp::db_from_ratio(std::fabs(r.midband_gain));
+                        const double mid_db = base::db_from_ratio(std::fabs(r.midband_gain));
 
                         if (!opt->plot.empty()) {
                           line_plot p;

@@ -11,16 +11,16 @@
 #include "cli/common.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
-#include "model/spread.hpp"
-#include "model/sweep.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/analysis/spread.hpp"
+#include "model/analysis/sweep.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct spread_options {
@@ -132,7 +132,7 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
                           for (const std::string& name : histogram_names(reqs)) check_plot_target(histogram_path(opt->plot, name), inputs);
                         const model::stage st = load_stage(opt->input);
                         const model::spread_settings settings = spread_settings_from(opt->batch, st, opt->input.path);
-                        auto varies = [](const std::optional<dsp::value_range>& r) { return r && r->lo != r->hi; };
+                        auto varies = [](const std::optional<base::value_range>& r) { return r && r->lo != r->hi; };
                         if (!varies(settings.idss_a) && !varies(settings.vp_v) && !varies(settings.supply_v) &&
                             settings.resistor_tolerance == 0.0)
                           err << "pinchoff spread: note: nothing varies from run to run (one IDSS, one VP, exact resistors, "

@@ -11,15 +11,15 @@
 #include "cli/common.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
-#include "model/sweep.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/analysis/sweep.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct sweep_options {
@@ -59,7 +59,7 @@ std::vector<double> drive_levels(const sweep_options& o) {
 
 // Levels are computed from volts; a level within 1e-9 dB of zero is zero.
 std::string dbu(double vpk) {
-  const double l = dsp::dbu_from_vpk(vpk);
+  const double l = base::dbu_from_vpk(vpk);
   return format_number(std::fabs(l) < 1e-9 ? 0.0 : l, 3) + " dBu";
 }
 // Below this a harmonic is under the engine's numerical floor: its Newton tolerance
@@ -148,14 +148,14 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
                           std::vector<series> lines;
                           series thd{"THD", {}, {}, true};
                           for (const auto& p : r.points) {
-                            thd.x.push_back(dsp::dbu_from_vpk(p.drive_vpk));
+                            thd.x.push_back(base::dbu_from_vpk(p.drive_vpk));
                             thd.y.push_back(p.thd_db);
                           }
                           lines.push_back(thd);
                           for (int h = 2; h <= std::min(5, s.harmonics); ++h) {
                             series hs{"H" + std::to_string(h), {}, {}, false};
                             for (const auto& p : r.points) {
-                              hs.x.push_back(dsp::dbu_from_vpk(p.drive_vpk));
+                              hs.x.push_back(base::dbu_from_vpk(p.drive_vpk));
                               hs.y.push_back(p.harmonics_dbc[static_cast<std::size_t>(h - 2)]);
                             }
                             lines.push_back(hs);
@@ -174,7 +174,7 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
                           pl.top = {yaxis, lines};
                           for (const auto& c : r.crossings)
                             if (c.found)
-                              pl.markers.push_back({dsp::dbu_from_vpk(c.drive_vpk), format_number(c.thd_percent, 2) + " % THD"});
+                              pl.markers.push_back({base::dbu_from_vpk(c.drive_vpk), format_number(c.thd_percent, 2) + " % THD"});
                           write_svg_file(opt->plot, render_svg(pl), inputs);
                         }
 
@@ -191,9 +191,9 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
                             nlohmann::json hs = nlohmann::json::array();
                             for (double h : p.harmonics_dbc) hs.push_back(number_or_null(h));
                             pts.push_back({{"drive_vpk", p.drive_vpk},
-                                           {"drive_dbu", dsp::dbu_from_vpk(p.drive_vpk)},
+                                           {"drive_dbu", base::dbu_from_vpk(p.drive_vpk)},
                                            {"output_vpk", p.output_vpk},
-                                           {"output_dbu", dsp::dbu_from_vpk(p.output_vpk)},
+                                           {"output_dbu", base::dbu_from_vpk(p.output_vpk)},
                                            {"gain_db", p.gain_db},
                                            {"thd_percent", p.thd_percent},
                                            {"thd_db", p.thd_db},

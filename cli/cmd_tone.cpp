@@ -16,16 +16,16 @@
 #include "cli/common.hpp"
 #include "cli/interrupt.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/error.hpp"
-#include "dsp/sound_file.hpp"
+#include "base/error.hpp"
+#include "dsp/io/sound_file.hpp"
 #include "dsp/tone.hpp"
-#include "dsp/units.hpp"
+#include "base/units.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_number;
-using dsp::format_si;
+using base::format_number;
+using base::format_si;
 using align = text_table::align;
 
 struct tone_options {
@@ -133,7 +133,7 @@ void write_text(const tone_report& r, std::ostream& out) {
   out << "  " << rate_text(p.rate_hz) << " Hz, " << r.channels << (r.channels == 1 ? " channel, " : " channels (all the same), ")
       << format_description(r.format)
       << (dsp::quantisation_bits(r.format) == 0 ? "" : (r.dither ? ", TPDF dither" : ", no dither")) << '\n';
-  out << "  sample peak " << dbfs_text(dsp::db_from_ratio(r.sample_peak)) << " (0 dBFS: a sine reaching full scale); "
+  out << "  sample peak " << dbfs_text(base::db_from_ratio(r.sample_peak)) << " (0 dBFS: a sine reaching full scale); "
       << format_number(p.fade_seconds * 1000.0, 3) << " ms raised-cosine fades\n";
   if (r.ceiling_dbfs < 0.0)
     out << "  levels above " << format_number(r.ceiling_dbfs, 2) << " dBFS written at that level, the largest sine a "
@@ -170,7 +170,7 @@ void write_json(const tone_report& r, std::ostream& out) {
                    {"frames", r.frames},
                    {"duration_s", static_cast<double>(r.frames) / p.rate_hz},
                    {"fade_s", p.fade_seconds},
-                   {"sample_peak_dbfs", dsp::db_from_ratio(r.sample_peak)},
+                   {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)},
                    {"clipped_samples", r.clipped},
                    {"ceiling_dbfs", r.ceiling_dbfs},
                    {"steps", steps}};
@@ -199,7 +199,7 @@ tone_report make_tone(const tone_options& o) {
       throw input_error("level " + format_number(st.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
   if (const int bits = dsp::quantisation_bits(r.format); bits > 0) {
     const double codes = std::ldexp(1.0, bits - 1);
-    const double ceiling = dsp::db_from_ratio((codes - (r.dither ? 1.5 : 0.5) - 0.01) / codes);
+    const double ceiling = base::db_from_ratio((codes - (r.dither ? 1.5 : 0.5) - 0.01) / codes);
     for (dsp::tone_step& st : r.plan.steps)
       if (st.level_dbfs > ceiling) {
         st.level_dbfs = ceiling;

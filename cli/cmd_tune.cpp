@@ -8,15 +8,15 @@
 #include "cli/app.hpp"
 #include "cli/common.hpp"
 #include "cli/text_table.hpp"
-#include "dsp/eseries.hpp"
-#include "dsp/units.hpp"
-#include "model/spread.hpp"
-#include "model/tune.hpp"
+#include "base/eseries.hpp"
+#include "base/units.hpp"
+#include "model/analysis/spread.hpp"
+#include "model/analysis/tune.hpp"
 
 namespace pinchoff::cli {
 namespace {
 
-using dsp::format_si;
+using base::format_si;
 using align = text_table::align;
 
 struct tune_options {
@@ -88,7 +88,7 @@ void register_tune(CLI::App& app, std::vector<command>& commands) {
       "p-channel stage on a negative supply).");
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
                         const model::tune_target target = model::parse_target(opt->target_text);
-                        const dsp::eseries series = dsp::parse_series(opt->series);
+                        const base::eseries series = base::parse_series(opt->series);
                         const model::stage st = load_stage(opt->input);
                         if (opt->over_spread) {
                           const model::spread_settings ss = spread_settings_from(opt->batch, st, opt->input.path);
@@ -114,9 +114,9 @@ void register_tune(CLI::App& app, std::vector<command>& commands) {
                           tt.add({"needed, 95 % of parts below", format_si(t.r_p95, "Ω", 4)});
                           tt.add({"needed, largest", format_si(t.r_max, "Ω", 4)});
                           tt.write(out);
-                          out << "\n  fit " << format_si(t.fixed_ohm, "Ω") << " (" << dsp::series_name(series) << ") in series with a "
+                          out << "\n  fit " << format_si(t.fixed_ohm, "Ω") << " (" << base::series_name(series) << ") in series with a "
                               << format_si(t.trimmer_ohm, "Ω") << " trimmer: covers " << format_si(t.fixed_ohm, "Ω") << " to "
-                              << format_si(t.fixed_ohm + t.trimmer_ohm, "Ω") << ", " << dsp::format_number(100.0 * t.coverage, 3)
+                              << format_si(t.fixed_ohm + t.trimmer_ohm, "Ω") << ", " << base::format_number(100.0 * t.coverage, 3)
                               << " % of the parts\n";
                           if (t.reachable < ss.runs)
                             out << "  " << (ss.runs - t.reachable) << " of " << ss.runs

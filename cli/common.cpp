@@ -2,12 +2,12 @@
 
 #include <cmath>
 
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
-#include "model/response.hpp"
-#include "model/network.hpp"
-#include "model/stage_file.hpp"
-#include "model/warnings.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/analysis/response.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/stage_file.hpp"
+#include "model/analysis/warnings.hpp"
 
 namespace pinchoff::cli {
 
@@ -52,7 +52,7 @@ const char* topology_name(model::topology t) noexcept {
 
 double option_frequency_hz(const std::string& text, const std::string& option) {
   try {
-    return dsp::parse_frequency_hz(text);
+    return base::parse_frequency_hz(text);
   } catch (const input_error& e) {
     throw input_error(option + ": " + e.what());
   }
@@ -60,7 +60,7 @@ double option_frequency_hz(const std::string& text, const std::string& option) {
 
 double option_level_vpk(const std::string& text, const std::string& option) {
   try {
-    return dsp::parse_level_vpk(text);
+    return base::parse_level_vpk(text);
   } catch (const input_error& e) {
     throw input_error(option + ": " + e.what());
   }
@@ -70,16 +70,16 @@ double parse_analysis_frequency_hz(const std::string& text, const std::string& o
   const double f = option_frequency_hz(text, option);
   if (f < model::lowest_analysis_hz || f > model::highest_analysis_hz)
     throw input_error(option + " " + text + ": the small-signal analysis covers " +
-                      dsp::format_si(model::lowest_analysis_hz, "Hz") + " to " +
-                      dsp::format_si(model::highest_analysis_hz, "Hz") +
+                      base::format_si(model::lowest_analysis_hz, "Hz") + " to " +
+                      base::format_si(model::highest_analysis_hz, "Hz") +
                       " (beyond that the lumped model with constant junction capacitances means nothing)");
   return f;
 }
 
 }  // namespace pinchoff::cli
 
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
 
 namespace pinchoff::cli {
 
@@ -109,13 +109,13 @@ model::spread_settings spread_settings_from(const spread_input& in, const model:
   if (cls) {
     const double sign = model::polarity_sign(st);
     s.idss_a = cls->idss_a;
-    s.vp_v = dsp::value_range{std::min(sign * cls->vp_v.lo, sign * cls->vp_v.hi), std::max(sign * cls->vp_v.lo, sign * cls->vp_v.hi)};
+    s.vp_v = base::value_range{std::min(sign * cls->vp_v.lo, sign * cls->vp_v.hi), std::max(sign * cls->vp_v.lo, sign * cls->vp_v.hi)};
     s.class_name = cls->name;
   }
-  if (!in.idss.empty()) s.idss_a = dsp::parse_range(in.idss, dsp::unit::ampere, "--idss");
-  if (!in.vp.empty()) s.vp_v = dsp::parse_range(in.vp, dsp::unit::volt, "--vp", true);
-  if (!in.supply.empty()) s.supply_v = dsp::parse_range(in.supply, dsp::unit::volt, "--supply", true);
-  if (!in.tolerance.empty()) s.resistor_tolerance = dsp::parse_fraction(in.tolerance, "--tolerance");
+  if (!in.idss.empty()) s.idss_a = base::parse_range(in.idss, base::unit::ampere, "--idss");
+  if (!in.vp.empty()) s.vp_v = base::parse_range(in.vp, base::unit::volt, "--vp", true);
+  if (!in.supply.empty()) s.supply_v = base::parse_range(in.supply, base::unit::volt, "--supply", true);
+  if (!in.tolerance.empty()) s.resistor_tolerance = base::parse_fraction(in.tolerance, "--tolerance");
   s.correlation = in.correlation;
   s.distribution = in.distribution == "normal" ? model::spread_distribution::normal : model::spread_distribution::uniform;
   s.runs = in.runs;
@@ -125,15 +125,15 @@ model::spread_settings spread_settings_from(const spread_input& in, const model:
 }
 
 std::string describe_spread(const model::spread_settings& s, const model::stage& st) {
-  using dsp::format_si;
+  using base::format_si;
   std::string d = std::to_string(s.runs) + " runs, seed " + std::to_string(s.seed) + ": ";
-  auto range = [](const dsp::value_range& r, const char* u) { return format_si(r.lo, u) + " to " + format_si(r.hi, u); };
+  auto range = [](const base::value_range& r, const char* u) { return format_si(r.lo, u) + " to " + format_si(r.hi, u); };
   if (!s.class_name.empty()) d += "class " + s.class_name + ", ";
   d += "IDSS " + (s.idss_a ? range(*s.idss_a, "A") : format_si(st.jfet.idss_a, "A") + " fixed");
   d += ", VP " + (s.vp_v ? range(*s.vp_v, "V") : format_si(st.jfet.vp_v, "V") + " fixed");
-  if (s.idss_a && s.vp_v) d += " (correlation " + dsp::format_number(s.correlation, 2) + ")";
+  if (s.idss_a && s.vp_v) d += " (correlation " + base::format_number(s.correlation, 2) + ")";
   d += s.distribution == model::spread_distribution::uniform ? ", uniform" : ", normal";
-  d += ", resistors " + (s.resistor_tolerance > 0 ? "±" + dsp::format_number(100 * s.resistor_tolerance, 2) + " %" : std::string("exact"));
+  d += ", resistors " + (s.resistor_tolerance > 0 ? "±" + base::format_number(100 * s.resistor_tolerance, 2) + " %" : std::string("exact"));
   d += ", supply " + (s.supply_v ? range(*s.supply_v, "V") : format_si(st.supply.volts_v, "V"));
   return d;
 }

@@ -8,9 +8,9 @@
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
 
-#include "model/network.hpp"
-#include "model/operating_point.hpp"
-#include "model/stage.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/circuit/stage.hpp"
 
 namespace pinchoff::cli {
 
@@ -42,7 +42,7 @@ nlohmann::json number_or_null(double v);
 
 const char* topology_name(model::topology t) noexcept;
 
-/// dsp::parse_frequency_hz / dsp::parse_level_vpk with the option named in any error
+/// base::parse_frequency_hz / base::parse_level_vpk with the option named in any error
 /// ("--freq: cannot read '1kV' as a frequency ...").
 double option_frequency_hz(const std::string& text, const std::string& option);
 double option_level_vpk(const std::string& text, const std::string& option);
@@ -54,7 +54,7 @@ double parse_analysis_frequency_hz(const std::string& text, const std::string& o
 }  // namespace pinchoff::cli
 
 // Options shared by `spread` and `tune --over-spread`.
-#include "model/spread.hpp"
+#include "model/analysis/spread.hpp"
 
 namespace pinchoff::cli {
 

@@ -1,6 +1,6 @@
 #include "cli/interrupt.hpp"
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 
 namespace pinchoff::cli {
 namespace {

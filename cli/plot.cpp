@@ -9,7 +9,7 @@
 #include <limits>
 #include <map>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 
 namespace pinchoff::cli {
 namespace {

@@ -4,7 +4,7 @@
 
 #include <string>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 
 namespace pinchoff::dsp {
 

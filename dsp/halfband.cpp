@@ -6,7 +6,7 @@
 #include <numbers>
 #include <string>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 
 namespace pinchoff::dsp {
 

@@ -6,9 +6,9 @@
 #include <limits>
 #include <string>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 #include "dsp/fft.hpp"
-#include "dsp/units.hpp"
+#include "base/units.hpp"
 
 namespace pinchoff::dsp {
 namespace {
@@ -21,14 +21,14 @@ double floored_db_from_power_ratio(double ratio) noexcept {
 
 void validate(std::size_t n, double fs_hz, std::size_t cycles, const coherent_settings& s) {
   if (!(fs_hz > 0.0) || !std::isfinite(fs_hz))
-    throw input_error("sample rate must be a positive number of hertz, got " + format_number(fs_hz));
+    throw input_error("sample rate must be a positive number of hertz, got " + base::format_number(fs_hz));
   if (cycles < 1) throw input_error("a coherent record must hold at least one cycle");
   if (2 * cycles >= n)
     throw input_error("a record of " + std::to_string(n) + " samples cannot hold " + std::to_string(cycles) +
                       " cycles below Nyquist (needs more than 2 samples a cycle)");
   if (s.harmonics < 1) throw input_error("number of harmonics must be at least 1, got " + std::to_string(s.harmonics));
   if (!(s.bandwidth_hz > 0.0))
-    throw input_error("measurement bandwidth must be positive, got " + format_number(s.bandwidth_hz) + " Hz");
+    throw input_error("measurement bandwidth must be positive, got " + base::format_number(s.bandwidth_hz) + " Hz");
 }
 
 }  // namespace

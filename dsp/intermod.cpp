@@ -4,7 +4,7 @@
 #include <complex>
 #include <string>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 #include "dsp/fft.hpp"
 
 namespace pinchoff::dsp {

@@ -7,8 +7,8 @@
 #include <limits>
 #include <string>
 
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
 
 namespace pinchoff::dsp {
 
@@ -31,7 +31,7 @@ loudness_meter::loudness_meter(int channels, double rate_hz) : channels_(channel
     throw input_error("loudness: channel count must be 1 to 64, got " + std::to_string(channels));
   if (!(rate_hz >= 8000.0 && rate_hz <= 768000.0) || rate_hz != std::floor(rate_hz))
     throw input_error("loudness: sample rate must be a whole number of hertz from 8000 to 768000, got " +
-                      format_number(rate_hz));
+                      base::format_number(rate_hz));
   h_ = std::make_unique<handle>();
   h_->st = ebur128_init(static_cast<unsigned>(channels), static_cast<unsigned long>(rate_hz),
                         EBUR128_MODE_I | EBUR128_MODE_SAMPLE_PEAK | EBUR128_MODE_TRUE_PEAK);

@@ -5,8 +5,8 @@
 #include <numbers>
 #include <string>
 
-#include "dsp/error.hpp"
-#include "dsp/units.hpp"
+#include "base/error.hpp"
+#include "base/units.hpp"
 
 namespace pinchoff::dsp {
 
@@ -14,7 +14,7 @@ std::vector<tone_step> level_staircase(double from_dbfs, double to_dbfs, double 
   if (!std::isfinite(from_dbfs) || !std::isfinite(to_dbfs) || !std::isfinite(step_db) || step_db == 0.0)
     throw input_error("a level staircase needs finite levels and a non-zero step in dB");
   if (from_dbfs > 0.0 || to_dbfs > 0.0)
-    throw input_error("levels above 0 dBFS would clip; the staircase goes to " + format_number(std::max(from_dbfs, to_dbfs)) +
+    throw input_error("levels above 0 dBFS would clip; the staircase goes to " + base::format_number(std::max(from_dbfs, to_dbfs)) +
                       " dBFS");
   const double span = std::abs(to_dbfs - from_dbfs);
   const double step = std::abs(step_db);
@@ -39,39 +39,39 @@ std::int64_t tone_frames(const tone_plan& plan) {
 
 tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
   if (!(plan.rate_hz > 0.0) || !std::isfinite(plan.rate_hz))
-    throw input_error("sample rate must be positive, got " + format_number(plan.rate_hz));
+    throw input_error("sample rate must be positive, got " + base::format_number(plan.rate_hz));
   if (!(plan.frequency_hz > 0.0) || !(plan.frequency_hz < plan.rate_hz / 2))
-    throw input_error("tone frequency " + format_si(plan.frequency_hz, "Hz") + " must lie between 0 and half the sample rate (" +
-                      format_si(plan.rate_hz / 2, "Hz") + ")");
+    throw input_error("tone frequency " + base::format_si(plan.frequency_hz, "Hz") + " must lie between 0 and half the sample rate (" +
+                      base::format_si(plan.rate_hz / 2, "Hz") + ")");
   if (plan.steps.empty()) throw input_error("a tone needs at least one level");
   if (!(plan.fade_seconds >= 0.0) || !std::isfinite(plan.fade_seconds))
-    throw input_error("fade time must be zero or positive, got " + format_number(plan.fade_seconds));
+    throw input_error("fade time must be zero or positive, got " + base::format_number(plan.fade_seconds));
   fade_frames_ = frames_of(plan.fade_seconds, plan.rate_hz);
   starts_.push_back(0);
   for (std::size_t i = 0; i < plan.steps.size(); ++i) {
     const tone_step& s = plan.steps[i];
     if (!(s.level_dbfs <= 0.0))
-      throw input_error("level " + format_number(s.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
+      throw input_error("level " + base::format_number(s.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
     if (!(s.seconds > 0.0) || !std::isfinite(s.seconds))
-      throw input_error("a step must last a positive time, got " + format_number(s.seconds) + " s");
+      throw input_error("a step must last a positive time, got " + base::format_number(s.seconds) + " s");
     if (s.seconds > max_tone_seconds)
-      throw input_error("a step of " + format_number(s.seconds) + " s is longer than a test tone may be (" +
-                        format_number(max_tone_seconds) + " s, one hour)");
+      throw input_error("a step of " + base::format_number(s.seconds) + " s is longer than a test tone may be (" +
+                        base::format_number(max_tone_seconds) + " s, one hour)");
     const std::int64_t n = frames_of(s.seconds, plan.rate_hz);
     const bool is_last = i + 1 == plan.steps.size();
     // The last step holds a ramp in and a ramp out, so it needs at least four fades to keep
     // half of itself steady; the others two.
     if (n < (is_last ? 4 : 2) * fade_frames_ || n < 1)
-      throw input_error("a step of " + format_number(s.seconds) + " s is too short for fades of " +
-                        format_number(plan.fade_seconds) + " s (at least " + (is_last ? "four" : "two") + " fades long)");
+      throw input_error("a step of " + base::format_number(s.seconds) + " s is too short for fades of " +
+                        base::format_number(plan.fade_seconds) + " s (at least " + (is_last ? "four" : "two") + " fades long)");
     starts_.push_back(starts_.back() + n);
-    amplitudes_.push_back(ratio_from_db(s.level_dbfs));
+    amplitudes_.push_back(base::ratio_from_db(s.level_dbfs));
     peak_ = std::max(peak_, amplitudes_.back());
   }
   total_ = starts_.back();
   if (static_cast<double>(total_) > max_tone_seconds * plan.rate_hz)
-    throw input_error("the tone would last " + format_number(static_cast<double>(total_) / plan.rate_hz, 4) +
-                      " s, longer than a test tone may be (" + format_number(max_tone_seconds) + " s, one hour)");
+    throw input_error("the tone would last " + base::format_number(static_cast<double>(total_) / plan.rate_hz, 4) +
+                      " s, longer than a test tone may be (" + base::format_number(max_tone_seconds) + " s, one hour)");
 }
 
 double tone_generator::envelope(std::int64_t t) const noexcept {

@@ -4,7 +4,7 @@
 #include <cmath>
 #include <numbers>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 
 namespace pinchoff::dsp {
 namespace {

@@ -7,10 +7,10 @@
 #include <numbers>
 #include <string>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 #include "dsp/fft.hpp"
 #include "dsp/harmonics.hpp"
-#include "dsp/units.hpp"
+#include "base/units.hpp"
 
 namespace pinchoff::dsp {
 namespace {
@@ -24,13 +24,13 @@ double floored_db(double power_ratio) noexcept {
 void validate(std::size_t n, double fs_hz, const windowed_settings& s) {
   if (n < 64) throw input_error("a record of " + std::to_string(n) + " samples is too short to analyse (need 64 or more)");
   if (!(fs_hz > 0.0) || !std::isfinite(fs_hz))
-    throw input_error("sample rate must be a positive number of hertz, got " + format_number(fs_hz));
+    throw input_error("sample rate must be a positive number of hertz, got " + base::format_number(fs_hz));
   if (s.harmonics < 1) throw input_error("number of harmonics must be at least 1, got " + std::to_string(s.harmonics));
   if (!(s.band_low_hz >= 0.0) || !(s.band_high_hz > s.band_low_hz))
-    throw input_error("measurement band " + format_number(s.band_low_hz) + " Hz to " + format_number(s.band_high_hz) +
+    throw input_error("measurement band " + base::format_number(s.band_low_hz) + " Hz to " + base::format_number(s.band_high_hz) +
                       " Hz is not a range of positive frequencies");
   if (s.approx_fundamental_hz < 0.0 || s.approx_fundamental_hz >= fs_hz / 2)
-    throw input_error("approximate fundamental " + format_number(s.approx_fundamental_hz) +
+    throw input_error("approximate fundamental " + base::format_number(s.approx_fundamental_hz) +
                       " Hz must lie between 0 and half the sample rate");
 }
 

@@ -12,8 +12,8 @@
 #include <string>
 #include <vector>
 
-#include "dsp/error.hpp"
-#include "dsp/sound_file.hpp"
+#include "base/error.hpp"
+#include "dsp/io/sound_file.hpp"
 #include "samples/pluck_phrase.hpp"
 
 namespace {

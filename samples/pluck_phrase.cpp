@@ -6,7 +6,7 @@
 #include <string>
 #include <utility>
 
-#include "dsp/error.hpp"
+#include "base/error.hpp"
 
 namespace pinchoff::samples {
 

@@ -16,15 +16,15 @@
 #include <string_view>
 #include <vector>
 
-#include "dsp/csv.hpp"
-#include "dsp/error.hpp"
-#include "dsp/sound_file.hpp"
-#include "dsp/units.hpp"
-#include "model/device_class.hpp"
-#include "model/fit.hpp"
-#include "model/spread.hpp"
-#include "model/stage.hpp"
-#include "model/stage_file.hpp"
+#include "base/csv.hpp"
+#include "base/error.hpp"
+#include "dsp/io/sound_file.hpp"
+#include "base/units.hpp"
+#include "model/device/device_class.hpp"
+#include "model/device/fit.hpp"
+#include "model/analysis/spread.hpp"
+#include "model/circuit/stage.hpp"
+#include "model/circuit/stage_file.hpp"
 
 namespace pinchoff::fuzz {
 
@@ -103,7 +103,7 @@ inline outcome device_classes_entry(std::string_view text) {
 // every parser in dsp/units.hpp, and to the spread's --require parser. Accepted results are finite and inside the stated ranges,
 // and try_parse_value agrees with parse_value.
 inline outcome units_entry(std::string_view text) {
-  using dsp::unit;
+  using base::unit;
   bool any = false;
   auto attempt = [&](auto&& f) {
     try {
@@ -117,13 +117,13 @@ inline outcome units_entry(std::string_view text) {
   };
   for (unit u : {unit::none, unit::ohm, unit::farad, unit::volt, unit::ampere, unit::hertz, unit::watt, unit::per_volt,
                  unit::kelvin}) {
-    const std::optional<double> quiet = dsp::try_parse_value(text, u);
+    const std::optional<double> quiet = base::try_parse_value(text, u);
     bool thrown = false;
     try {
-      const double v = dsp::parse_value(text, u, "key");
+      const double v = base::parse_value(text, u, "key");
       detail::require(std::isfinite(v), "parse_value returned a non-finite value");
       detail::require(quiet && *quiet == v, "try_parse_value disagrees with parse_value");
-      (void)dsp::format_si(v, "V");
+      (void)base::format_si(v, "V");
       any = true;
     } catch (const input_error&) {
       thrown = true;
@@ -131,19 +131,19 @@ inline outcome units_entry(std::string_view text) {
     detail::require(thrown == !quiet, "try_parse_value and parse_value disagree on acceptance");
     for (bool any_order : {false, true})
       attempt([&] {
-        const dsp::value_range r = dsp::parse_range(text, u, "key", any_order);
+        const base::value_range r = base::parse_range(text, u, "key", any_order);
         detail::require(std::isfinite(r.lo) && std::isfinite(r.hi) && r.lo <= r.hi, "parse_range returned a bad range");
       });
   }
   for (bool require_unit : {false, true})
     attempt([&] {
-      const double vpk = dsp::parse_level_vpk(text, require_unit);
+      const double vpk = base::parse_level_vpk(text, require_unit);
       detail::require(std::isfinite(vpk) && vpk >= 0.0, "parse_level_vpk returned a non-finite or negative level");
-      (void)dsp::format_si(vpk, "V");
-      (void)dsp::dbu_from_vpk(vpk);
+      (void)base::format_si(vpk, "V");
+      (void)base::dbu_from_vpk(vpk);
     });
   attempt([&] {
-    const double f = dsp::parse_frequency_hz(text);
+    const double f = base::parse_frequency_hz(text);
     detail::require(std::isfinite(f) && f > 0.0, "parse_frequency_hz returned a frequency not above 0");
   });
   attempt([&] {
@@ -151,7 +151,7 @@ inline outcome units_entry(std::string_view text) {
     detail::require(!std::isnan(r.lo) && !std::isnan(r.hi) && r.lo <= r.hi, "parse_requirement returned a bad range");
   });
   attempt([&] {
-    const double x = dsp::parse_fraction(text, "key");
+    const double x = base::parse_fraction(text, "key");
     detail::require(std::isfinite(x) && x >= 0.0 && x < 1.0, "parse_fraction returned a value outside [0, 1)");
   });
   return any ? outcome::accepted : outcome::refused;
@@ -161,9 +161,9 @@ inline outcome units_entry(std::string_view text) {
 // Bench CSV, then the square-law fit on what it read when the columns are those `pinchoff
 // fit` takes: the fit either refuses the readings or returns finite figures.
 inline outcome csv_fit_entry(std::string_view text) {
-  dsp::csv_table t;
+  base::csv_table t;
   try {
-    t = dsp::parse_csv(text, "fuzz.csv");
+    t = base::parse_csv(text, "fuzz.csv");
   } catch (const input_error& e) {
     detail::require(detail::starts_with(e.what(), "fuzz.csv"), std::string("CSV message does not say where: ") + e.what());
     return outcome::refused;

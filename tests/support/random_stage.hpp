@@ -8,7 +8,7 @@
 #include <random>
 #include <string>
 
-#include "model/stage.hpp"
+#include "model/circuit/stage.hpp"
 
 namespace pinchoff::test {
 

@@ -3,7 +3,7 @@
 #include <sstream>
 #include <string>
 
-#include "model/stage_file.hpp"
+#include "model/circuit/stage_file.hpp"
 
 namespace pinchoff::test {
 

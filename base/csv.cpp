@@ -1,0 +1,119 @@
+#include "base/csv.hpp"
+
+#include <algorithm>
+#include <cctype>
+#include <cerrno>
+#include <cstring>
+#include <fstream>
+#include <sstream>
+
+#include "base/error.hpp"
+#include "base/units.hpp"
+
+namespace pinchoff::base {
+namespace {
+
+std::string trim(std::string_view s) {
+  while (!s.empty() && std::isspace(static_cast<unsigned char>(s.front()))) s.remove_prefix(1);
+  while (!s.empty() && std::isspace(static_cast<unsigned char>(s.back()))) s.remove_suffix(1);
+  return std::string(s);
+}
+
+// Splits one line into fields; returns false on an unterminated quote.
+bool split_fields(std::string_view line, std::vector<std::string>& out) {
+  out.clear();
+  std::string cur;
+  bool quoted = false;
+  for (std::size_t i = 0; i < line.size(); ++i) {
+    const char c = line[i];
+    if (quoted) {
+      if (c == '"' && i + 1 < line.size() && line[i + 1] == '"') {
+        cur += '"';
+        ++i;
+      } else if (c == '"') {
+        quoted = false;
+      } else {
+        cur += c;
+      }
+    } else if (c == '"') {
+      quoted = true;
+    } else if (c == ',') {
+      out.push_back(trim(cur));
+      cur.clear();
+    } else {
+      cur += c;
+    }
+  }
+  out.push_back(trim(cur));
+  return !quoted;
+}
+
+}  // namespace
+
+int csv_table::column(std::string_view name) const noexcept {
+  for (std::size_t k = 0; k < columns.size(); ++k)
+    if (columns[k] == name) return static_cast<int>(k);
+  return -1;
+}
+
+csv_table parse_csv(std::string_view text, std::string_view source) {
+  csv_table t;
+  t.source = std::string(source);
+  if (text.find('\0') != std::string_view::npos) throw input_error(t.source + ": not a text file (it contains NUL bytes)");
+  std::vector<std::string> fields;
+  int line_no = 0;
+  bool have_header = false;
+  std::size_t pos = 0;
+  while (pos <= text.size()) {
+    const std::size_t end = std::min(text.find('\n', pos), text.size());
+    std::string_view line = text.substr(pos, end - pos);
+    pos = end + 1;
+    ++line_no;
+    if (!line.empty() && line.back() == '\r') line.remove_suffix(1);
+    const std::string trimmed = trim(line);
+    if (trimmed.empty() || trimmed.front() == '#') {
+      if (end == text.size()) break;
+      continue;
+    }
+    if (!split_fields(line, fields))
+      throw input_error(t.source + ":" + std::to_string(line_no) + ": unterminated quote");
+    if (!have_header) {
+      for (const std::string& f : fields) {
+        if (f.empty()) throw input_error(t.source + ":" + std::to_string(line_no) + ": empty column name in the header");
+        if (std::find(t.columns.begin(), t.columns.end(), f) != t.columns.end())
+          throw input_error(t.source + ":" + std::to_string(line_no) + ": column '" + f + "' appears twice in the header");
+        t.columns.push_back(f);
+      }
+      have_header = true;
+    } else {
+      if (fields.size() != t.columns.size())
+        throw input_error(t.source + ":" + std::to_string(line_no) + ": row has " + std::to_string(fields.size()) +
+                          (fields.size() == 1 ? " cell" : " cells") + ", the header has " + std::to_string(t.columns.size()));
+      std::vector<double> row;
+      for (std::size_t c = 0; c < fields.size(); ++c) {
+        const auto v = try_parse_value(fields[c]);
+        if (!v)
+          throw input_error(t.source + ":" + std::to_string(line_no) + ": column '" + t.columns[c] + "' (column " +
+                            std::to_string(c + 1) + "): '" + fields[c] + "' is not a number");
+        row.push_back(*v);
+      }
+      t.rows.push_back(std::move(row));
+      t.line_of_row.push_back(line_no);
+    }
+    if (end == text.size()) break;
+  }
+  if (!have_header) throw input_error(t.source + ": empty table (expected a header row and data rows)");
+  return t;
+}
+
+csv_table read_csv_file(const std::filesystem::path& path) {
+  std::error_code ec;
+  if (std::filesystem::is_directory(path, ec)) throw io_error("'" + path.string() + "' is a directory, not a CSV file");
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw io_error("cannot open '" + path.string() + "': " + std::strerror(errno));
+  std::ostringstream buf;
+  buf << in.rdbuf();
+  return parse_csv(buf.str(), path.string());
+}
+
+}  // namespace pinchoff::base

@@ -1,0 +1,62 @@
+#pragma once
+// Parsing and formatting of values, levels and frequencies, and the level constants.
+//
+// Values: a plain number in SI base units ("4700", "1e-7"), a number with an SI prefix
+// ("4.7k", "100n", "22u", "22µ", "1M" = mega, "2.2m" = milli), or the IEC 60062
+// letter-and-digit code where the prefix letter stands for the decimal point ("4k7",
+// "2n2", "R47", "4R7", "2m2"). An optional unit symbol may follow ("4.7kΩ", "100nF").
+// Levels: "100mVpk", "300mVrms", "2Vpp", "-10dBu", "-20dBV"; a bare number is volts peak.
+#include <optional>
+#include <string>
+#include <string_view>
+
+namespace pinchoff::base {
+
+/// The unit a value is read in; its symbols are accepted as an optional suffix.
+enum class unit { none, ohm, farad, volt, ampere, hertz, watt, per_volt, kelvin };
+
+/// Parses a value as described above. Throws input_error naming the text and what was
+/// expected. `what` names the thing for the message ("drain.resistor").
+double parse_value(std::string_view text, unit u = unit::none, std::string_view what = {});
+
+/// Like parse_value but returns nullopt instead of throwing.
+std::optional<double> try_parse_value(std::string_view text, unit u = unit::none) noexcept;
+
+/// Reads a drive or output level and returns volts peak (sine). A bare number is volts
+/// peak. When `require_unit` is set a bare number is refused.
+double parse_level_vpk(std::string_view text, bool require_unit = false);
+
+/// Reads a frequency ("1k", "1000", "1kHz") in hertz; must be > 0.
+double parse_frequency_hz(std::string_view text);
+
+/// A closed range "LO..HI" of values ("2m..8m", "7..9.6"); a single value is the range
+/// [v, v]. With `any_order` the ends may come in either order (pinch-off voltages are
+/// written from small to large magnitude: "-0.8..-3"); otherwise LO > HI is an error.
+struct value_range {
+  double lo{}, hi{};
+};
+value_range parse_range(std::string_view text, unit u = unit::none, std::string_view what = {}, bool any_order = false);
+
+/// "5%", "0.05" or "1%": a fraction (0.05). Must be in [0, 1).
+double parse_fraction(std::string_view text, std::string_view what = {});
+
+// Level constants and conversions (sine waves: Vrms = Vpk / sqrt 2).
+inline constexpr double dbu_reference_vrms = 0.7745966692414834;  // sqrt(0.6) V, 0 dBu
+inline constexpr double dbv_reference_vrms = 1.0;                 // 0 dBV
+inline constexpr double sqrt2 = 1.4142135623730951;
+
+double db_from_ratio(double ratio) noexcept;       // 20 log10(ratio)
+double ratio_from_db(double gain_db) noexcept;     // 10^(db/20)
+double dbu_from_vpk(double vpk) noexcept;
+double vpk_from_dbu(double level_dbu) noexcept;
+double dbv_from_vpk(double vpk) noexcept;
+double vpk_from_dbv(double level_dbv) noexcept;
+
+/// Formats a value with an SI prefix and unit symbol, `digits` significant digits:
+/// format_si(4700, "Ω") == "4.70 kΩ"; format_si(-0.00259, "A") == "-2.59 mA".
+std::string format_si(double value, std::string_view unit_symbol, int digits = 3);
+
+/// Formats a plain number with `digits` significant digits ("12.3", "-0.0456").
+std::string format_number(double value, int digits = 3);
+
+}  // namespace pinchoff::base

@@ -1,0 +1,36 @@
+#pragma once
+// Headroom: how far the output can swing from its rest value before the JFET leaves the
+// clean square-law region, found by a quasi-static sweep of the generator voltage with
+// every coupling, bypass and reservoir capacitor held at its DC voltage (the mid-band
+// large-signal transfer curve; junction capacitances open).
+//
+// Clean region: saturation (vds >= vgs - vp), not cut off (vgs > vp), and the gate not
+// above the source (vgs <= 0, beyond which the gate junction starts to conduct; common
+// practice for JFET stages).
+#include <string>
+
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+
+namespace pinchoff::model {
+
+enum class swing_limit_kind { none, triode, cutoff, gate_forward, no_convergence };
+const char* swing_limit_text(swing_limit_kind k) noexcept;
+
+struct swing_limit {
+  swing_limit_kind kind{swing_limit_kind::none};
+  double output_v{};  ///< excursion of the load voltage from rest, real sign
+  double drive_v{};   ///< generator voltage (real sign) at which the limit is reached
+};
+
+struct headroom_figures {
+  swing_limit up;    ///< output swinging positive
+  swing_limit down;  ///< output swinging negative
+  double symmetric_output_vpk{};  ///< min(|up|, |down|): largest clean symmetric swing
+  double clean_drive_vpk{};       ///< largest sine peak at the generator that stays clean
+  double search_limit_v{};        ///< |generator| searched up to, when a side found no limit
+};
+
+headroom_figures analyse_headroom(const network& net, const operating_point& op);
+
+}  // namespace pinchoff::model

@@ -1,0 +1,45 @@
+#pragma once
+// Small-signal frequency response from the generator to the load: the circuit linearised
+// at its operating point with every capacitor (coupling, bypass, reservoir and the
+// junction capacitances cgs and cgd, so the Miller effect shows) as its admittance j w C.
+#include <complex>
+#include <vector>
+
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+
+namespace pinchoff::model {
+
+/// The band the small-signal analyses cover: 1 mHz to 1 GHz. Above it the lumped model
+/// (constant junction capacitances, no lead inductance) means nothing and the nodal solve
+/// loses all precision; the corner search spans exactly this band.
+inline constexpr double lowest_analysis_hz = 1e-3;
+inline constexpr double highest_analysis_hz = 1e9;
+
+struct response_point {
+  double frequency_hz{};
+  std::complex<double> gain;  ///< V(load) / V(generator), real signs
+  std::complex<double> zin_ohm;  ///< looking into the stage after the generator impedance
+};
+
+/// Gain and input impedance at one frequency (> 0).
+response_point response_at(const network& net, const operating_point& op, double f_hz);
+
+struct corner_crossing {
+  double frequency_hz{};
+  bool is_low{};  ///< true: the gain rises through -3 dB (a low corner); false: it falls
+};
+
+struct response_result {
+  double midband_gain{};          ///< signed V/V, capacitors as in the mid-band
+  std::vector<corner_crossing> corners;  ///< where |gain| crosses |midband| - 3.0103 dB
+  std::vector<response_point> points;
+};
+
+/// `points` log-spaced frequencies from f_lo to f_hi (f_lo < f_hi, points >= 2, both
+/// within the analysis band). The corners are searched over the whole analysis band
+/// whatever the plotted range, and refined by bisection to 1e-9 relative in frequency.
+response_result analyse_response(const network& net, const operating_point& op, double f_lo_hz, double f_hi_hz,
+                                 int points);
+
+}  // namespace pinchoff::model

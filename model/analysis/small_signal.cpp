@@ -1,0 +1,168 @@
+#include "model/analysis/small_signal.hpp"
+
+#include <cmath>
+#include <numbers>
+
+#include "base/error.hpp"
+
+namespace pinchoff::model {
+namespace {
+using cplx = std::complex<double>;
+inline int row(int node) noexcept { return node - 1; }
+}  // namespace
+
+jfet_linear linearise(const network& net, const operating_point& op) {
+  if (net.devices() != 1) throw internal_error("small-signal analysis handles a network of one JFET");
+  const double vd = node_v(op.x, net.jfet().drain), vg = node_v(op.x, net.jfet().gate), vs = node_v(op.x, net.jfet().source);
+  const channel_eval ch = drain_current(net.jfet().device, vg - vs, vd - vs);
+  return {ch.gm_s, ch.gds_s, junction_current(net.jfet().device, vg - vs, net.vt_v).g_s,
+          junction_current(net.jfet().device, vg - vd, net.vt_v).g_s};
+}
+
+Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, const ac_setup& setup) {
+  if (net.devices() != 1) throw internal_error("small-signal analysis handles a network of one JFET");
+  const int nu = net.node_count - 1;
+  int branches = 1 + (setup.generator_present ? 1 : 0);
+  if (setup.midband)
+    for (std::size_t k = 0; k < net.capacitors.size(); ++k)
+      if (is_large_cap(net.capacitors[k].role) && static_cast<int>(k) != setup.removed_cap &&
+          static_cast<int>(k) != setup.admittance_cap)
+        ++branches;
+  const int n = nu + branches;
+  Eigen::MatrixXcd a = Eigen::MatrixXcd::Zero(n, n);
+  Eigen::VectorXcd rhs = Eigen::VectorXcd::Zero(n);
+
+  auto stamp_y = [&](int p, int q, cplx y) {
+    if (p != 0) a(row(p), row(p)) += y;
+    if (q != 0) a(row(q), row(q)) += y;
+    if (p != 0 && q != 0) {
+      a(row(p), row(q)) -= y;
+      a(row(q), row(p)) -= y;
+    }
+  };
+  // Voltage-controlled current from p to q (through the element), controlled by V(c) - V(d).
+  auto stamp_vccs = [&](int p, int q, int c, int d, double g) {
+    auto add = [&](int r, int col, double v) {
+      if (r != 0 && col != 0) a(row(r), row(col)) += v;
+    };
+    add(p, c, g);
+    add(p, d, -g);
+    add(q, c, -g);
+    add(q, d, g);
+  };
+  int branch = nu;
+  auto stamp_v = [&](int p, int q, cplx volts) {
+    if (p != 0) {
+      a(row(p), branch) += 1.0;
+      a(branch, row(p)) += 1.0;
+    }
+    if (q != 0) {
+      a(row(q), branch) -= 1.0;
+      a(branch, row(q)) -= 1.0;
+    }
+    rhs[branch] = volts;
+    ++branch;
+  };
+
+  for (const net_resistor& r : net.resistors) {
+    if (!setup.load_present && r.key == "output.load") continue;
+    stamp_y(r.a, r.b, 1.0 / r.ohm);
+  }
+  stamp_v(net.supply_node, 0, 0.0);  // the supply is an AC ground
+  if (setup.generator_present) stamp_v(net.generator_node, 0, setup.generator_v);
+  for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
+    if (static_cast<int>(k) == setup.removed_cap) continue;
+    const net_capacitor& c = net.capacitors[k];
+    if (setup.midband && static_cast<int>(k) == setup.admittance_cap) {
+      stamp_y(c.a, c.b, setup.s * c.farad);
+    } else if (setup.midband) {
+      if (is_large_cap(c.role)) stamp_v(c.a, c.b, 0.0);
+    } else {
+      stamp_y(c.a, c.b, setup.s * c.farad);
+    }
+  }
+  // JFET: channel current d -> s controlled by vgs and vds; junction conductances.
+  stamp_vccs(net.jfet().drain, net.jfet().source, net.jfet().gate, net.jfet().source, lin.gm_s);
+  if (setup.include_gds) stamp_y(net.jfet().drain, net.jfet().source, lin.gds_s);
+  stamp_y(net.jfet().gate, net.jfet().source, lin.ggs_s);
+  stamp_y(net.jfet().gate, net.jfet().drain, lin.ggd_s);
+
+  if (setup.inject_a >= 0) {
+    if (setup.inject_a != 0) rhs[row(setup.inject_a)] += 1.0;
+    if (setup.inject_b != 0) rhs[row(setup.inject_b)] -= 1.0;
+  }
+  const Eigen::VectorXcd x = a.fullPivLu().solve(rhs);
+  Eigen::VectorXcd v(net.node_count);
+  v[0] = 0.0;
+  for (int k = 1; k < net.node_count; ++k) v[k] = x[row(k)];
+  return v;
+}
+
+small_signal_figures analyse_small_signal(const network& net, const operating_point& op) {
+  const jfet_linear lin = linearise(net, op);
+  small_signal_figures f;
+  f.gm_s = lin.gm_s;
+  f.gds_s = lin.gds_s;
+  if (lin.gds_s > 0) f.rds_ohm = 1.0 / lin.gds_s;
+
+  ac_setup gain;
+  gain.generator_v = 1.0;
+  f.gain_midband = solve_small_signal(net, lin, gain)[net.output_node].real();
+  gain.include_gds = false;
+  f.gain_midband_no_gds = solve_small_signal(net, lin, gain)[net.output_node].real();
+
+  ac_setup zin;
+  zin.generator_present = false;
+  zin.inject_a = net.input_node;
+  f.zin_ohm = solve_small_signal(net, lin, zin)[net.input_node].real();
+
+  ac_setup zout;
+  zout.load_present = false;
+  zout.inject_a = net.output_node;
+  f.zout_ohm = solve_small_signal(net, lin, zout)[net.output_node].real();
+
+  for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
+    const net_capacitor& c = net.capacitors[k];
+    if (!is_large_cap(c.role) || c.role == cap_role::supply_reservoir) continue;
+    ac_setup seen;
+    seen.removed_cap = static_cast<int>(k);
+    seen.inject_a = c.a;
+    seen.inject_b = c.b;
+    const Eigen::VectorXcd v = solve_small_signal(net, lin, seen);
+    const double r = (v[c.a] - v[c.b]).real();
+    const double fc = 1.0 / (2.0 * std::numbers::pi * r * c.farad);
+    f.corners.push_back({std::string(c.key), c.role, c.farad, r, fc});
+    f.low_corner_estimate_hz += fc;
+  }
+  return f;
+}
+
+std::vector<cap_reactance> reactances_at(const network& net, const operating_point& op, double f_hz) {
+  const jfet_linear lin = linearise(net, op);
+  const small_signal_figures ss = analyse_small_signal(net, op);
+  ac_setup mid;
+  mid.generator_v = 1.0;
+  const double g_mid = std::abs(solve_small_signal(net, lin, mid)[net.output_node]);
+  std::vector<cap_reactance> out;
+  for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
+    const net_capacitor& c = net.capacitors[k];
+    if (!is_large_cap(c.role) || c.role == cap_role::supply_reservoir) continue;
+    ac_setup one = mid;
+    one.admittance_cap = static_cast<int>(k);
+    one.s = {0.0, 2.0 * std::numbers::pi * f_hz};
+    const double g = std::abs(solve_small_signal(net, lin, one)[net.output_node]);
+    double r_seen = 0.0;
+    for (const cap_corner& cc : ss.corners)
+      if (cc.key == c.key) r_seen = cc.r_seen_ohm;
+    out.push_back({std::string(c.key), c.farad, 1.0 / (2.0 * std::numbers::pi * f_hz * c.farad), r_seen,
+                   20.0 * std::log10(g / g_mid)});
+  }
+  return out;
+}
+
+double highpass_loss_db(double f_hz, double fc_hz) noexcept {
+  const double x = f_hz / fc_hz;
+  return 20.0 * std::log10(x / std::sqrt(1.0 + x * x));
+}
+
+}  // namespace pinchoff::model

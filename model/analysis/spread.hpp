@@ -1,0 +1,112 @@
+#pragma once
+// Monte Carlo over real parts: JFET IDSS and VP drawn within ranges (positively
+// correlated, as in real batches), resistor tolerances and a supply range (a draining
+// battery). Deterministic for a seed and independent of the thread count: every run draws
+// from its own generator seeded from (seed, run index).
+#include <cstdint>
+#include <functional>
+#include <map>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "base/units.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/circuit/stage.hpp"
+#include "model/analysis/tune.hpp"
+
+namespace pinchoff::model {
+
+enum class spread_distribution { uniform, normal };
+
+struct spread_settings {
+  std::optional<base::value_range> idss_a;  ///< absent: the stage's value
+  std::optional<base::value_range> vp_v;    ///< real signs, either order
+  std::optional<base::value_range> supply_v;  ///< real signs; absent: the stage's value
+  double correlation{0.0};       ///< between IDSS and |VP|, in [-1, 1]
+  double resistor_tolerance{0.0};  ///< fraction: 0.05 for 5 %
+  spread_distribution distribution{spread_distribution::uniform};
+  int runs{2000};
+  std::uint64_t seed{1};
+  int threads{0};                ///< 0: one per core
+  std::string class_name;        ///< the device class the ranges came from, if any
+};
+
+/// Checks ranges, correlation and runs; throws input_error naming the option.
+void validate(const spread_settings& s, const stage& st);
+
+/// One drawn part and supply: the stage with these values substituted.
+struct spread_draw {
+  double idss_a{}, vp_v{}, supply_v{};
+  std::vector<double> resistor_factors;  ///< one per adjustable_resistor_keys() entry
+};
+
+/// The i-th draw (pure function of the settings, the stage and i).
+spread_draw draw_part(const spread_settings& s, const stage& st, int index);
+stage apply_draw(const stage& st, const spread_draw& d);
+
+/// What a run measures; names are the option spellings ("vd", "gain", ...).
+struct quantity_def {
+  const char* name;      ///< "vd"
+  const char* json_key;  ///< "vd_v"
+  const char* unit;      ///< "V"
+};
+const std::vector<quantity_def>& spread_quantities();
+
+struct requirement {
+  std::string quantity;  ///< a spread_quantities() name
+  double lo{-INFINITY}, hi{INFINITY};
+};
+/// "vd=3.5..5.5", "gain=15..", "swing=2.." (SI values; gain in dB). Throws input_error.
+requirement parse_requirement(std::string_view text);
+
+struct spread_run {
+  int index{};
+  spread_draw draw;
+  bool solved{false};
+  std::string failure;           ///< why not solved
+  std::map<std::string, double> values;  ///< by quantity name
+  bool meets{false};             ///< solved, in saturation, and every requirement met
+};
+
+struct quantity_stats {
+  double p5{}, p50{}, p95{}, min{}, max{};
+  int count{};
+};
+
+struct spread_result {
+  std::vector<spread_run> runs;
+  std::map<std::string, quantity_stats> stats;  ///< by quantity name
+  double yield{};        ///< fraction of runs that meet every requirement (in saturation)
+  int unsolved{};
+};
+
+/// Extra per-run measurement (THD at a drive, from the engine) keyed by quantity name.
+using run_extra = std::function<void(const stage& drawn, std::map<std::string, double>& values)>;
+
+spread_result run_spread(const stage& st, const spread_settings& s, const std::vector<requirement>& reqs,
+                         const run_extra& extra = {});
+
+/// Percentile p (0..100) of sorted values by linear interpolation between order
+/// statistics (Hyndman & Fan 1996, definition 7).
+double percentile_sorted(const std::vector<double>& sorted, double p);
+
+// --- Trimmer sizing over a spread ----------------------------------------------------
+
+/// Common-practice trimmer values (ohm).
+const std::vector<double>& standard_trimmers_ohm();
+
+struct trim_result {
+  std::string adjust;
+  std::vector<double> exact_ohm;  ///< per run; NaN where no value reaches the target
+  int reachable{};
+  double r_min{}, r_max{}, r_p5{}, r_p95{};
+  double fixed_ohm{};             ///< the series resistor in line with the trimmer
+  double trimmer_ohm{};           ///< the trimmer's full value
+  double coverage{};              ///< fraction of all runs the pair can bring to the target
+};
+
+trim_result size_trimmer(const stage& st, std::string_view adjust_key, const tune_target& target,
+                         const spread_settings& s, base::eseries series);
+
+}  // namespace pinchoff::model

@@ -1,0 +1,112 @@
+#include "model/analysis/sweep.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <numeric>
+
+#include "base/error.hpp"
+#include "base/threads.hpp"
+#include "dsp/fft.hpp"
+#include "dsp/harmonics.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/analysis/spread.hpp"
+#include "model/engine/steady_state.hpp"
+
+namespace pinchoff::model {
+
+int record_samples(double frequency_hz, double sample_rate_hz, int cycles) {
+  const long long m0 = std::llround(cycles * sample_rate_hz / frequency_hz);
+  for (long long d = 0;; ++d) {
+    for (long long m : {m0 + d, m0 - d})
+      if (m > 2LL * cycles && std::gcd(m, static_cast<long long>(cycles)) == 1) return static_cast<int>(m);
+  }
+}
+
+void validate(const sweep_settings& s) {
+  if (s.oversample < 1 || s.oversample > 64) throw input_error("--oversample must be between 1 and 64");
+  if (!(s.base_rate_hz >= 8000 && s.base_rate_hz <= 768000)) throw input_error("--rate must be between 8 kHz and 768 kHz");
+  const double fs = s.base_rate_hz * s.oversample;
+  if (!(s.frequency_hz > 0) || s.frequency_hz >= 0.5 * s.base_rate_hz)
+    throw input_error("--freq " + base::format_si(s.frequency_hz, "Hz") + " is at or above the Nyquist limit " +
+                      base::format_si(0.5 * s.base_rate_hz, "Hz") + " of the " + base::format_si(s.base_rate_hz, "Hz") + " rate");
+  if (s.frequency_hz < 1.0) throw input_error("--freq must be at least 1 Hz (a lower tone needs an impractically long record)");
+  if (s.harmonics < 1 || s.harmonics > 100) throw input_error("--harmonics must be between 1 and 100");
+  if (!(s.bandwidth_hz > 0) || s.bandwidth_hz > 0.5 * fs) throw input_error("--bandwidth must be above 0 and below half the simulation rate");
+  if (s.drives_vpk.empty()) throw input_error("no drive levels given");
+  for (double d : s.drives_vpk)
+    if (!(d > 0) || !std::isfinite(d)) throw input_error("drive levels must be above 0 V");
+  if (s.cycles < 1 || s.cycles > 64) throw internal_error("sweep cycles out of range");
+}
+
+sweep_result run_sweep(const stage& st, const sweep_settings& s) {
+  validate(s);
+  sweep_result res;
+  res.requested_hz = s.frequency_hz;
+  res.oversample = s.oversample;
+  res.sample_rate_hz = s.base_rate_hz * s.oversample;
+  res.cycles = s.cycles;
+  res.samples_per_record = record_samples(s.frequency_hz, res.sample_rate_hz, s.cycles);
+  res.frequency_hz = res.sample_rate_hz * s.cycles / res.samples_per_record;
+
+  const network net = build_network(st);
+  const operating_point op = solve_operating_point(net);
+  const double rest_vgs = op.at.vgs_v;
+  dsp::coherent_settings cs;
+  cs.harmonics = s.harmonics;
+  cs.bandwidth_hz = s.bandwidth_hz;
+
+  res.points.resize(s.drives_vpk.size());
+  base::parallel_for(static_cast<int>(s.drives_vpk.size()), s.threads, [&](int i) {
+    // Each point on its own engine (and FFT plan: a plan is not shared between threads).
+    const dsp::real_fft fft(static_cast<std::size_t>(res.samples_per_record));
+    dk_engine eng(net, op, res.sample_rate_hz);
+    steady_state_options so;
+    so.cycles = s.cycles;
+    const double drive = s.drives_vpk[static_cast<std::size_t>(i)];
+    const steady_state_result ss = periodic_steady_state(eng, drive, res.samples_per_record, so);
+    const dsp::harmonic_analysis h = dsp::analyse_coherent(fft, ss.output_v, res.sample_rate_hz, s.cycles, cs);
+    sweep_point& p = res.points[static_cast<std::size_t>(i)];
+    p.drive_vpk = drive;
+    p.output_vpk = h.fundamental_vpk;
+    p.gain_db = base::db_from_ratio(h.fundamental_vpk / drive);
+    p.thd_ratio = h.thd_ratio;
+    p.thd_percent = h.thd_percent;
+    p.thd_db = h.thd_db;
+    p.harmonics_dbc = h.harmonics_dbc;
+    p.alias_dbc = h.alias_dbc;
+    p.even_odd_ratio = h.even_odd_ratio;
+    p.dc_shift_v = ss.mean_output_v - eng.dc_output_v();
+    p.bias_shift_v = ss.mean_vgs_v - rest_vgs;
+    p.state_change_v = ss.state_change_v;
+    p.shooting_iterations = ss.shooting_iterations;
+    p.periods_simulated = ss.periods_simulated;
+    p.converged = ss.converged;
+    p.used_settling = ss.used_settling;
+    p.newton = ss.engine;
+  });
+
+  // THD crossings, on the points sorted by drive.
+  std::vector<const sweep_point*> sorted;
+  for (const sweep_point& p : res.points) sorted.push_back(&p);
+  std::sort(sorted.begin(), sorted.end(), [](const sweep_point* a, const sweep_point* b) { return a->drive_vpk < b->drive_vpk; });
+  for (double level : {1.0, 3.0, 10.0}) {
+    thd_crossing c;
+    c.thd_percent = level;
+    for (std::size_t k = 0; k + 1 < sorted.size(); ++k) {
+      const sweep_point& a = *sorted[k];
+      const sweep_point& b = *sorted[k + 1];
+      if (a.thd_percent < level && b.thd_percent >= level && a.thd_percent > 0) {
+        const double t = (std::log(level) - std::log(a.thd_percent)) / (std::log(b.thd_percent) - std::log(a.thd_percent));
+        c.found = true;
+        c.drive_vpk = std::exp(std::log(a.drive_vpk) + t * (std::log(b.drive_vpk) - std::log(a.drive_vpk)));
+        c.output_vpk = std::exp(std::log(a.output_vpk) + t * (std::log(b.output_vpk) - std::log(a.output_vpk)));
+        break;
+      }
+    }
+    res.crossings.push_back(c);
+  }
+  return res;
+}
+
+}  // namespace pinchoff::model

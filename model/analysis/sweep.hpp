@@ -1,0 +1,75 @@
+#pragma once
+// Drive sweeps: the periodic steady state of the stage for a sine at each drive level,
+// simulated at the oversampled rate, and the harmonic profile of the voltage at the load.
+//
+// The record is one steady-state period of M samples holding K whole cycles (K = 3, M
+// chosen coprime with K), so every harmonic falls on a bin (no window, no leakage) and
+// products folded from above the simulation's Nyquist frequency land between harmonic
+// bins, where they are measured as aliasing. The frequency is snapped to K fs / M and the
+// snapped value reported.
+#include <vector>
+
+#include "model/engine/dk_engine.hpp"
+#include "model/circuit/stage.hpp"
+
+namespace pinchoff::model {
+
+struct sweep_settings {
+  double frequency_hz{1000.0};
+  std::vector<double> drives_vpk;   ///< generator open-circuit sine peaks, > 0
+  int oversample{8};                ///< 1..64
+  double base_rate_hz{48000.0};     ///< the audio rate the oversampling multiplies
+  int harmonics{10};                ///< N: H2..HN
+  double bandwidth_hz{20000.0};     ///< harmonics above it are not counted (AES17)
+  int cycles{3};                    ///< K
+  int threads{0};                   ///< 0: one per core; results do not depend on it
+};
+
+/// Validates the settings against the simulation rate; throws input_error naming the
+/// option (a frequency at or above the Nyquist limit of the oversampled rate, ...).
+void validate(const sweep_settings& s);
+
+struct sweep_point {
+  double drive_vpk{};
+  double output_vpk{};       ///< fundamental at the load, peak
+  double gain_db{};          ///< 20 log10(output / drive)
+  double thd_ratio{}, thd_percent{}, thd_db{};
+  std::vector<double> harmonics_dbc;  ///< H2..HN; NaN above the bandwidth
+  double alias_dbc{};        ///< non-harmonic energy within the bandwidth, re the fundamental
+  double even_odd_ratio{};   ///< even-harmonic over odd-harmonic power (H2.. only)
+  double dc_shift_v{};       ///< mean load voltage minus its rest value
+  double bias_shift_v{};     ///< mean VGS minus its rest value (gate rectification, squash)
+  // Solver figures.
+  double state_change_v{};   ///< remaining period-to-period state change
+  int shooting_iterations{};
+  int periods_simulated{};
+  bool converged{};
+  bool used_settling{};
+  dk_stats newton;
+};
+
+/// Drive and output where THD crosses a level, interpolated log-log between points.
+struct thd_crossing {
+  double thd_percent{};
+  bool found{false};
+  double drive_vpk{}, output_vpk{};
+};
+
+struct sweep_result {
+  double frequency_hz{};      ///< as simulated (snapped)
+  double requested_hz{};
+  double sample_rate_hz{};    ///< base rate * oversample
+  int oversample{};
+  int samples_per_record{};   ///< M
+  int cycles{};               ///< K
+  std::vector<sweep_point> points;  ///< in the order of the drives given
+  std::vector<thd_crossing> crossings;  ///< 1 %, 3 %, 10 %
+};
+
+sweep_result run_sweep(const stage& st, const sweep_settings& s);
+
+/// Record length M for K cycles of f at fs: round(K fs / f) moved to the nearest value
+/// coprime with K.
+int record_samples(double frequency_hz, double sample_rate_hz, int cycles);
+
+}  // namespace pinchoff::model

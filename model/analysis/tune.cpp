@@ -1,0 +1,197 @@
+#include "model/analysis/tune.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <optional>
+
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/circuit/network.hpp"
+
+namespace pinchoff::model {
+namespace {
+
+double quantity(const tune_target& t, const tune_point& p) {
+  switch (t.kind) {
+    case target_kind::vd: return p.at.vd_v;
+    case target_kind::id: return p.at.id_a;
+    case target_kind::vds: return p.at.vds_v;
+    case target_kind::vs: return p.at.vs_v;
+    case target_kind::center: return p.headroom.symmetric_output_vpk;
+  }
+  return 0.0;
+}
+
+const char* quantity_unit(target_kind k) { return k == target_kind::id ? "A" : "V"; }
+const char* quantity_name(target_kind k) {
+  switch (k) {
+    case target_kind::vd: return "vd";
+    case target_kind::id: return "id";
+    case target_kind::vds: return "vds";
+    case target_kind::vs: return "vs";
+    case target_kind::center: return "center";
+  }
+  return "";
+}
+
+tune_point evaluate_point(const stage& s, std::string_view adjust_key, double value_ohm, bool with_headroom) {
+  stage copy = s;
+  *resistor_field(copy, adjust_key) = value_ohm;
+  const network net = build_network(copy);
+  const operating_point op = solve_operating_point(net);
+  tune_point p{value_ohm, op.at, {}};
+  if (with_headroom) p.headroom = analyse_headroom(net, op);
+  return p;
+}
+
+}  // namespace
+
+tune_target parse_target(std::string_view text) {
+  if (text == "center") return {target_kind::center, 0.0};
+  const auto eq = text.find('=');
+  const std::string_view name = text.substr(0, eq);
+  tune_target t;
+  if (name == "vd") t.kind = target_kind::vd;
+  else if (name == "id") t.kind = target_kind::id;
+  else if (name == "vds") t.kind = target_kind::vds;
+  else if (name == "vs") t.kind = target_kind::vs;
+  else
+    throw input_error("--target '" + std::string(text) +
+                      "': expected vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS or center (for example --target vd=4.5)");
+  if (eq == std::string_view::npos)
+    throw input_error("--target '" + std::string(text) + "': give a value, for example --target " + std::string(name) +
+                      (t.kind == target_kind::id ? "=1m" : "=4.5"));
+  t.value = base::parse_value(text.substr(eq + 1), t.kind == target_kind::id ? base::unit::ampere : base::unit::volt,
+                             "--target " + std::string(name));
+  return t;
+}
+
+std::string target_text(const tune_target& t) {
+  if (t.kind == target_kind::center) return "center (largest symmetric clean swing)";
+  return std::string(quantity_name(t.kind)) + " = " + base::format_si(t.value, quantity_unit(t.kind), 4);
+}
+
+tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm) {
+  return evaluate_point(s, adjust_key, value_ohm, true);
+}
+
+double solve_resistor(const stage& s, std::string_view adjust_key, const tune_target& target) {
+  stage probe = s;
+  if (resistor_field(probe, adjust_key) == nullptr) {
+    std::string keys;
+    for (std::string_view k : adjustable_resistor_keys()) keys += (keys.empty() ? "" : ", ") + std::string(k);
+    throw input_error("--adjust '" + std::string(adjust_key) + "': not an adjustable resistor (choose one of " + keys + ")");
+  }
+  // Removing or adding some resistors changes the topology; keep the stage valid.
+  const bool is_divider = adjust_key == "gate.bias_top" || adjust_key == "gate.bias_bottom";
+  if (is_divider && !(s.gate.bias_top_ohm > 0 && s.gate.bias_bottom_ohm > 0))
+    throw input_error("--adjust " + std::string(adjust_key) + ": the stage has no bias divider to adjust");
+
+  const bool want_center = target.kind == target_kind::center;
+  auto eval = [&](double r) -> std::optional<tune_point> {
+    try {
+      stage t = s;
+      *resistor_field(t, adjust_key) = r;
+      validate(t);
+      return evaluate_point(s, adjust_key, r, want_center);
+    } catch (const std::exception&) {
+      return std::nullopt;
+    }
+  };
+
+  // Coarse log grid over the whole range, then refinement.
+  constexpr int grid = 97;  // 12 points per decade over 8 decades
+  std::vector<double> rs;
+  std::vector<std::optional<tune_point>> pts;
+  for (int k = 0; k < grid; ++k) {
+    const double r = tune_min_ohm * std::pow(tune_max_ohm / tune_min_ohm, double(k) / (grid - 1));
+    rs.push_back(r);
+    pts.push_back(eval(r));
+  }
+  double lo_q = INFINITY, hi_q = -INFINITY;
+  for (const auto& p : pts)
+    if (p) {
+      lo_q = std::min(lo_q, quantity(target, *p));
+      hi_q = std::max(hi_q, quantity(target, *p));
+    }
+  if (!std::isfinite(lo_q)) throw input_error("no operating point found for any " + std::string(adjust_key) + " value");
+
+  double exact = 0.0;
+  if (want_center) {
+    int best = -1;
+    for (int k = 0; k < grid; ++k)
+      if (pts[k] && (best < 0 || quantity(target, *pts[k]) > quantity(target, *pts[best]))) best = k;
+    // Golden-section search on log R around the best grid point.
+    double a = std::log(rs[std::max(best - 1, 0)]), b = std::log(rs[std::min(best + 1, grid - 1)]);
+    const double g = (std::sqrt(5.0) - 1.0) / 2.0;
+    auto f = [&](double lr) {
+      auto p = eval(std::exp(lr));
+      return p ? quantity(target, *p) : -INFINITY;
+    };
+    double c = b - g * (b - a), d = a + g * (b - a);
+    double fc = f(c), fd = f(d);
+    for (int it = 0; it < 60 && (b - a) > 1e-10; ++it) {
+      if (fc > fd) {
+        b = d; d = c; fd = fc; c = b - g * (b - a); fc = f(c);
+      } else {
+        a = c; c = d; fc = fd; d = a + g * (b - a); fd = f(d);
+      }
+    }
+    exact = std::exp(0.5 * (a + b));
+  } else {
+    int bracket = -1;
+    for (int k = 0; k + 1 < grid; ++k) {
+      if (!pts[k] || !pts[k + 1]) continue;
+      const double e0 = quantity(target, *pts[k]) - target.value, e1 = quantity(target, *pts[k + 1]) - target.value;
+      if (e0 == 0.0 || (e0 < 0) != (e1 < 0)) {
+        bracket = k;
+        break;
+      }
+    }
+    if (bracket < 0) {
+      const char* u = quantity_unit(target.kind);
+      throw input_error(target_text(target) + " is out of reach: " + std::string(adjust_key) + " from " +
+                        base::format_si(tune_min_ohm, "Ω") + " to " + base::format_si(tune_max_ohm, "Ω") + " gives " +
+                        quantity_name(target.kind) + " from " + base::format_si(lo_q, u, 4) + " to " +
+                        base::format_si(hi_q, u, 4));
+    }
+    // Bisection on log R (the quantity is continuous in R).
+    double a = std::log(rs[bracket]), b = std::log(rs[bracket + 1]);
+    double ea = quantity(target, *pts[bracket]) - target.value;
+    for (int it = 0; it < 200 && (b - a) > 1e-13; ++it) {
+      const double m = 0.5 * (a + b);
+      auto p = eval(std::exp(m));
+      if (!p) break;
+      const double em = quantity(target, *p) - target.value;
+      if ((em < 0) == (ea < 0)) {
+        a = m;
+        ea = em;
+      } else {
+        b = m;
+      }
+    }
+    exact = std::exp(0.5 * (a + b));
+  }
+  return exact;
+}
+
+tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tune_target& target, base::eseries series) {
+  const double exact = solve_resistor(s, adjust_key, target);
+  tune_result res;
+  res.adjust = std::string(adjust_key);
+  res.exact_ohm = exact;
+  res.exact = evaluate_with(s, adjust_key, exact);
+  const double below = base::series_at_or_below(series, exact);
+  const double above = base::series_at_or_above(series, exact);
+  for (double v : {below, above}) {
+    if (!res.candidates.empty() && res.candidates.back().point.value_ohm == v) continue;
+    try {
+      res.candidates.push_back({std::string(base::series_name(series)), evaluate_with(s, adjust_key, v)});
+    } catch (const std::exception&) {
+      // A series value outside what the stage allows is simply not offered.
+    }
+  }
+  return res;
+}
+
+}  // namespace pinchoff::model

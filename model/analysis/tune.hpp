@@ -1,0 +1,57 @@
+#pragma once
+// Solving for one resistor that puts the operating point where the builder wants it.
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "base/eseries.hpp"
+#include "model/analysis/headroom.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/circuit/stage.hpp"
+
+namespace pinchoff::model {
+
+enum class target_kind { vd, id, vds, vs, center };
+
+/// "vd=4.5", "id=1m", "vds=3.2", "vs=0.9" (real signs, SI values) or "center" (the bias
+/// with the largest symmetric clean output swing). Throws input_error otherwise.
+struct tune_target {
+  target_kind kind{target_kind::vd};
+  double value{};
+};
+tune_target parse_target(std::string_view text);
+std::string target_text(const tune_target& t);
+
+struct tune_point {
+  double value_ohm{};
+  terminal_point at;
+  headroom_figures headroom;
+};
+
+struct tune_candidate {
+  std::string series;  ///< "E24", or "exact"
+  tune_point point;
+};
+
+struct tune_result {
+  std::string adjust;       ///< the stage-file key that was adjusted
+  double exact_ohm{};
+  tune_point exact;
+  std::vector<tune_candidate> candidates;  ///< nearest series values below and above
+};
+
+/// Lowest and highest resistance the search covers.
+inline constexpr double tune_min_ohm = 1.0;
+inline constexpr double tune_max_ohm = 100e6;
+
+/// Solves for the resistor `adjust_key` (one of adjustable_resistor_keys()). Throws
+/// input_error saying what range is reachable when no value hits the target.
+tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tune_target& target, base::eseries series);
+
+/// The exact value alone (no series candidates): what tune_resistor solves first.
+double solve_resistor(const stage& s, std::string_view adjust_key, const tune_target& target);
+
+/// The operating point and headroom of the stage with one resistor replaced.
+tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm);
+
+}  // namespace pinchoff::model

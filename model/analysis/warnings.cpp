@@ -1,0 +1,48 @@
+#include "model/analysis/warnings.hpp"
+
+#include <cmath>
+
+#include "base/units.hpp"
+
+namespace pinchoff::model {
+
+double supply_current_a(const network& net, const operating_point& op) {
+  // The supply branch current is the first unknown after the node voltages; it flows
+  // into the source's + terminal, so a delivering supply shows a negative value.
+  return std::fabs(op.x[net.node_count - 1]);
+}
+
+std::vector<std::string> operating_warnings(const stage& s, const network& net, const operating_point& op) {
+  using base::format_si;
+  std::vector<std::string> w;
+  const terminal_point& t = op.at;
+  if (t.region == jfet_region::cutoff)
+    w.push_back("the JFET is cut off at rest (no drain current): this bias does not amplify");
+  else if (t.region == jfet_region::triode)
+    w.push_back("the JFET sits in the triode region at rest (vds below vgs - vp): expect low gain and early clipping");
+  if (s.ratings.vds_max_v && std::fabs(t.vds_v) > *s.ratings.vds_max_v)
+    w.push_back("vds " + format_si(std::fabs(t.vds_v), "V") + " exceeds the rating vds_max " + format_si(*s.ratings.vds_max_v, "V"));
+  const double pd = std::fabs(t.id_a * t.vds_v);
+  if (s.ratings.pd_max_w && pd > *s.ratings.pd_max_w)
+    w.push_back("dissipation " + format_si(pd, "W") + " exceeds the rating pd_max " + format_si(*s.ratings.pd_max_w, "W"));
+  if (s.ratings.igf_max_a && t.ig_a * net.sign > *s.ratings.igf_max_a)
+    w.push_back("gate forward current " + format_si(std::fabs(t.ig_a), "A") + " exceeds the rating igf_max " +
+                format_si(*s.ratings.igf_max_a, "A"));
+  if (t.vgs_v * net.sign > 0.3)
+    w.push_back("the gate junction is forward biased at rest (vgs " + format_si(t.vgs_v, "V") + "): gate current flows");
+  const double vsup = std::fabs(s.supply.volts_v);
+  if (vsup >= 60.0)
+    w.push_back("supply of " + format_si(vsup, "V") +
+                " DC: at or above 60 V is beyond the extra-low-voltage class (IEC 62368-1 ES1); such rails can hurt. "
+                "Follow local codes and licensed practice");
+  const double isup = supply_current_a(net, op);
+  if (vsup >= 44.0 && vsup <= 52.0 && s.supply.resistance_ohm >= 3000.0)
+    w.push_back("caution: a 48 V phantom feed; switch phantom power off at the preamp before connecting or "
+                "reworking the microphone circuit");
+
+  if (vsup >= 44.0 && vsup <= 52.0 && s.supply.resistance_ohm >= 3000.0 && isup > 10e-3)
+    w.push_back("draws " + format_si(isup, "A") + " from what looks like a P48 phantom feed; IEC 61938 allows at most 10 mA");
+  return w;
+}
+
+}  // namespace pinchoff::model

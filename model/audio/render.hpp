@@ -1,0 +1,182 @@
+#pragma once
+// Rendering recorded audio through one or several stages (the `render` command's work).
+//
+// Signal path, per stage and per channel, each with its own engine and oversampler:
+//   file sample x (full scale 1) -> generator volts x * input_peak_v -> upsample by the
+//   factor -> DK engine at factor * file rate (starting at the DC operating point) ->
+//   the load voltage minus its rest value -> downsample -> load volts at the file's rate.
+// The rest value (the load voltage at the DC operating point) is removed so that a
+// DC-coupled output does not carry its standing voltage into the file.
+// The round trip of the oversampler delays by a whole number of samples; those are
+// dropped at the start and made up at the end by feeding zeros, so output sample n is the
+// response at the time of input sample n and the output has exactly the input's length.
+//
+// Streaming: blocks of block_frames frames; memory stays flat whatever the file length.
+// Work units (stage, channel) run in parallel threads, each unit always in one thread with
+// its own state, so the result does not depend on the number of threads. With more than one
+// thread allowed, the calling thread interleaves, meters and spools block i - 1 while the
+// engines render block i (so a mono render uses a second core for that work too).
+//
+// Output level (a file's full scale, 0 dBFS, is `1 / scale` volts at the load):
+// - normalise (the default): the peak of every output lands at `peak_dbfs`. It needs the
+//   peak before the file is written, so a first pass spools the volts to a temporary float
+//   file beside the output and a second pass scales and writes them.
+// - fixed: `scale = 1 / full_scale_v`, one pass; samples beyond full scale are counted.
+// - match_loudness (several outputs): every output gets the same integrated loudness
+//   (ITU-R BS.1770): the highest loudness at which no output's peak exceeds `peak_dbfs`.
+//   The dry output (the input itself, scaled the same way) takes part when asked for.
+// Peaks are sample peaks of the written values (true peaks are reported beside them).
+//
+// Files: every output is written to a temporary file beside it and renamed into place
+// only when all of them are complete (dsp::sound_writer); an output that is the input or
+// that exists without `overwrite` is refused before any work starts. A float input holding
+// NaN or infinity is refused naming the first position (dsp::sound_reader).
+// Interrupt: `stop` is checked every block; when set, render() removes its temporaries and
+// throws pinchoff::interrupted.
+#include <atomic>
+#include <cstdint>
+#include <filesystem>
+#include <functional>
+#include <optional>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "dsp/oversampler.hpp"
+#include "dsp/io/sound_file.hpp"
+#include "model/engine/dk_engine.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/audio/oversampling_choice.hpp"
+
+namespace pinchoff::model {
+
+/// One channel's path at the file's rate: generator volts in, load volts out (rest value
+/// removed), aligned with the input (see the file comment). Allocates only in the
+/// constructor. Output sample n depends only on inputs 0..n+latency, never on how the
+/// input was split into blocks.
+class channel_renderer {
+ public:
+  /// factor 1, 2, 4, 8, 16, 32 or 64; base_rate_hz as dsp::oversampler takes it; block_samples >= 1
+  /// is the size of the internal buffers (any input length is accepted).
+  channel_renderer(const network& net, const operating_point& op, int factor, double base_rate_hz,
+                   std::size_t block_samples = 8192, const dk_options& engine = {});
+
+  /// Feeds in_v and writes the aligned outputs that are complete to the front of out_v
+  /// (out_v.size() >= in_v.size()); returns how many. That is in_v.size() except while the
+  /// first latency_samples() outputs are being dropped.
+  std::size_t process(std::span<const double> in_v, std::span<double> out_v);
+  /// After the last input: feeds zeros to bring out the outputs still owed (at most
+  /// latency_samples(); out_v must hold that many) and returns how many. Inputs and outputs
+  /// then have the same count; later calls return 0.
+  std::size_t finish(std::span<double> out_v);
+
+  int latency_samples() const noexcept { return latency_; }
+  const dk_stats& engine_stats() const noexcept { return engine_.stats(); }
+  double rest_output_v() const noexcept { return rest_v_; }
+
+ private:
+  std::size_t run(std::span<const double> in_v, std::span<double> out_v);
+  dsp::oversampler os_;
+  dk_engine engine_;
+  double rest_v_;
+  int latency_;
+  std::size_t block_;
+  std::vector<double> high_, low_, zeros_;
+  long long to_skip_;   // outputs still to drop at the start
+  long long fed_{0}, produced_{0};
+  bool finished_{false};
+};
+
+/// A stage to render and where its file goes.
+struct render_stage {
+  std::string name;              ///< for reports (the stage file's stem)
+  network net;
+  operating_point op;
+  std::filesystem::path output;
+};
+
+enum class output_level {
+  normalize,  ///< peak at peak_dbfs (two passes)
+  fixed,      ///< 0 dBFS = full_scale_v volts at the load (one pass)
+};
+
+struct render_job {
+  std::filesystem::path input;
+  std::vector<render_stage> stages;                 ///< at least one
+  std::optional<std::filesystem::path> dry_output;  ///< also write the input itself
+  double input_peak_v{1.0};                         ///< generator volts for full scale, > 0
+  /// 1, 2, 4, 8, 16, 32 or 64; 0: chosen from the input (model/oversampling_choice.hpp)
+  int oversample{8};
+  output_level level{output_level::normalize};
+  double peak_dbfs{-1.0};                           ///< normalize / match: peak ceiling, <= 0
+  double full_scale_v{1.0};                         ///< fixed: volts at the load for 0 dBFS, > 0
+  bool match_loudness{false};                       ///< several outputs: same integrated loudness
+  std::optional<dsp::sample_format> format;         ///< default: nearest to the input's
+  bool overwrite{false};
+  /// 0: one per core. Engine threads are at most one per unit; with 2 or more the calling
+  /// thread works beside them (see the file comment); 1 runs everything on the caller.
+  int threads{0};
+  std::size_t block_frames{8192};
+  dk_options engine;
+};
+
+struct render_progress {
+  double fraction{0};          ///< 0..1 of the whole job
+  double realtime_factor{0};   ///< input seconds rendered per second of wall time so far
+  double seconds_left{0};      ///< estimate
+};
+
+struct render_control {
+  std::function<void(const render_progress&)> progress;  ///< called from the calling thread
+  const std::atomic<bool>* stop{nullptr};                 ///< set (e.g. by SIGINT) to abandon
+};
+
+struct output_report {
+  std::filesystem::path path;
+  std::string name;              ///< the stage's name, or "dry"
+  bool is_dry{false};
+  double scale{0};               ///< full scale per volt at the load (dry: per generator volt)
+  /// Of the values written (before integer rounding; in two passes, the first pass's figures
+  /// scaled by `scale`); -infinity when silent
+  /// (no 400 ms block above BS.1770's absolute gate).
+  double loudness_lufs{0};
+  double sample_peak{0};         ///< ratio to full scale
+  double true_peak{0};           ///< ratio to full scale (BS.1770 Annex 2, libebur128)
+  /// Samples at or beyond full scale: clipped in an integer file; a float file keeps them.
+  long long clipped_samples{0};
+  bool matched{true};            ///< false for a silent output that loudness matching left out
+  dk_stats engine;               ///< summed over the channels (not for dry)
+};
+
+struct render_report {
+  dsp::sound_info input;
+  dsp::sample_format format{};
+  int oversample{1};             ///< the factor run
+  bool oversample_chosen{false}; ///< job.oversample was 0: `survey` and `choice` hold why
+  input_survey survey;
+  oversampling_choice choice;
+  double engine_rate_hz{0};
+  int latency_samples{0};        ///< the round trip compensated, at the file's rate
+  int threads{1};                ///< engine threads (at most one per unit)
+  bool pipelined{false};         ///< the calling thread metered and stored beside them
+  double target_lufs{0};         ///< match_loudness: the common loudness
+  std::vector<output_report> outputs;  ///< the stages in order, then dry
+  double seconds{0};             ///< wall time
+  double realtime_factor{0};     ///< input duration / wall time
+};
+
+/// Runs the job (see the file comment). Throws io_error / input_error for files and
+/// values (before any output exists), internal_error on failures of valid input,
+/// interrupted when control.stop was set.
+render_report render(const render_job& job, const render_control& control = {});
+
+/// The gains that give every output the same integrated loudness without any peak above
+/// `ceiling` (ratio): loudness_lufs and peak of each output at scale 1; returns the scales.
+/// Outputs whose loudness is -infinity (silent) are scaled to the ceiling on their own
+/// peak (scale 1 when the peak is 0) and do not set the common loudness. `target_lufs`
+/// receives the common loudness (-infinity when every output is silent).
+std::vector<double> loudness_matched_scales(std::span<const double> loudness_lufs, std::span<const double> peak,
+                                            double ceiling, double& target_lufs);
+
+}  // namespace pinchoff::model

@@ -1,0 +1,74 @@
+#pragma once
+// The stage as a circuit: numbered nodes (0 = ground), linear parts, two ideal voltage
+// sources (the supply and the signal generator) and a list of JFETs (one for a stage read
+// from a stage file; chains of stages built in code list more). Every analysis builds on
+// this: the DC operating point, small-signal figures, the frequency response and the
+// time-domain engines.
+//
+// The network is always the n-channel mirror image: for a p-channel stage every voltage
+// and current is negated (Sedra & Smith's complementary-circuit argument, common
+// practice), so `supply_v` > 0 and every `device.vp_v` < 0. Real value = sign * network
+// value. The sign is one per network: all of its JFETs have the same polarity.
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "model/device/jfet.hpp"
+#include "model/circuit/stage.hpp"
+
+namespace pinchoff::model {
+
+enum class cap_role { input_coupling, source_bypass, output_coupling, supply_reservoir, junction_gs, junction_gd };
+
+/// True for the capacitors that are shorts in the mid-band (coupling, bypass, reservoir),
+/// false for the junction capacitances (open in the mid-band).
+bool is_large_cap(cap_role r) noexcept;
+
+struct net_resistor {
+  int a, b;
+  double ohm;
+  std::string_view key;  ///< stage-file key ("drain.resistor"), or "load" style names
+};
+
+struct net_capacitor {
+  int a, b;
+  double farad;
+  cap_role role;
+  std::string_view key;
+};
+
+/// One JFET of the network: its terminals and its parameters (mirrored: vp_v < 0).
+struct net_jfet {
+  int drain{0}, gate{0}, source{0};
+  jfet_params device;
+};
+
+struct network {
+  int node_count{1};                  ///< including ground, node 0
+  std::vector<std::string> node_names;
+  std::vector<net_resistor> resistors;
+  std::vector<net_capacitor> capacitors;
+  int supply_node{0};     ///< ideal supply source from ground: V = supply_v
+  double supply_v{0};     ///< mirrored supply voltage, > 0
+  int generator_node{0};  ///< ideal generator from ground: V = u (mirrored)
+  int input_node{0};      ///< after the generator impedance; stage input impedance seen here
+  /// The JFETs, at least one. The solvers (nodal, DC point, reference transient, DK
+  /// engine) handle any number; the stage analyses built on one stage (small signal,
+  /// headroom, tune) use the first.
+  std::vector<net_jfet> jfets;
+  int output_tap{0};      ///< drain (common source) or source terminal (follower) of the first JFET
+  int output_node{0};     ///< the node across the load (after the output coupling cap)
+  bool has_load{false};
+  double vt_v{0};         ///< thermal voltage, the same for every JFET
+  double sign{1.0};       ///< +1 n-channel, -1 p-channel (every JFET of the network)
+
+  /// The first JFET: the stage's device for the analyses of a single stage.
+  const net_jfet& jfet() const { return jfets.front(); }
+  net_jfet& jfet() { return jfets.front(); }
+  int devices() const noexcept { return static_cast<int>(jfets.size()); }
+};
+
+/// Builds the network of a validated stage.
+network build_network(const stage& s);
+
+}  // namespace pinchoff::model

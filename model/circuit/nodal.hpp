@@ -1,0 +1,64 @@
+#pragma once
+// Modified nodal analysis of a network (Ho, Ruehli & Brennan, IEEE TCAS 22(6), 1975) and
+// the full nodal Newton solve with the JFETs. This is the plain, general solver: the DC
+// operating point, quasi-static sweeps and the reference time-domain solver use it.
+//
+// Unknowns: node voltages 1..N-1 (index k-1 for node k), then the currents of the supply
+// source, the generator source, and of every capacitor treated as a voltage source.
+#include <span>
+#include <vector>
+
+#include <Eigen/Dense>
+
+#include "model/circuit/network.hpp"
+
+namespace pinchoff::model {
+
+/// How one capacitor enters a linear solve.
+struct cap_treatment {
+  enum class kind { open, shorted, held, companion };
+  kind how{kind::open};
+  double volts{0};   ///< held: the capacitor voltage V(a) - V(b)
+  double g_s{0};     ///< companion: conductance (trapezoidal: 2C/T)
+  double i_a{0};     ///< companion: current source from a to b in parallel with g
+};
+
+/// One treatment per network capacitor, all the same.
+std::vector<cap_treatment> uniform_caps(const network& net, cap_treatment::kind how);
+
+struct mna_system {
+  Eigen::MatrixXd a;    ///< square, node_unknowns + branch unknowns
+  Eigen::VectorXd rhs;
+  int node_unknowns{0};
+};
+
+/// Linear part of the network with the given capacitor treatments and source values
+/// (mirrored volts).
+mna_system assemble_linear(const network& net, std::span<const cap_treatment> caps, double supply_v,
+                           double generator_v);
+
+/// Expected numeric failure is a value, never silent.
+struct newton_result {
+  bool converged{false};
+  int iterations{0};
+  double residual_a{0};  ///< largest KCL residual at the end
+};
+
+struct nodal_options {
+  int max_iterations{200};
+  double vtol_v{1e-9};    ///< step tolerance, plus vtol_rel * |v| (the error after a step this small is far below it: Newton converges quadratically)
+  double vtol_rel{1e-9};
+  double itol_a{1e-15};   ///< residual tolerance, plus itol_rel * largest branch current
+  double itol_rel{1e-12};
+};
+
+/// Solves the linear system plus every JFET by damped Newton with junction limiting.
+/// `v` holds all unknowns: on entry the starting guess, on exit the solution (or the last
+/// iterate when not converged).
+newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::VectorXd& v,
+                          const nodal_options& opt = {});
+
+/// Voltage of node k from a solution vector (node 0 is ground).
+inline double node_v(const Eigen::VectorXd& x, int node) noexcept { return node == 0 ? 0.0 : x[node - 1]; }
+
+}  // namespace pinchoff::model

@@ -1,0 +1,339 @@
+#include "model/circuit/stage_file.hpp"
+
+#include <algorithm>
+#include <cerrno>
+#include <cmath>
+#include <cstring>
+#include <fstream>
+#include <map>
+#include <sstream>
+#include <vector>
+
+#include <toml++/toml.h>
+
+#include "base/error.hpp"
+#include "base/text.hpp"
+#include "base/units.hpp"
+
+namespace pinchoff::model {
+namespace {
+
+using base::unit;
+
+// What each value must be.
+enum class rule {
+  positive,       // > 0
+  non_negative,   // >= 0 (0 = absent where the reference says so)
+  any_sign,       // sign checked later against the polarity
+};
+
+struct key_spec {
+  std::string_view name;
+  unit u;
+  rule r;
+};
+
+struct section_spec {
+  std::string_view name;
+  std::vector<key_spec> keys;
+};
+
+const std::vector<section_spec>& schema() {
+  static const std::vector<section_spec> s{
+      {"supply", {{"volts", unit::volt, rule::any_sign}, {"resistance", unit::ohm, rule::non_negative},
+                  {"capacitance", unit::farad, rule::non_negative}}},
+      {"jfet", {{"polarity", unit::none, rule::any_sign}, {"class", unit::none, rule::any_sign},
+                {"idss", unit::ampere, rule::positive},
+                {"vp", unit::volt, rule::any_sign}, {"beta", unit::none, rule::positive},
+                {"vto", unit::volt, rule::any_sign}, {"lambda", unit::per_volt, rule::non_negative},
+                {"is", unit::ampere, rule::non_negative}, {"n", unit::none, rule::positive},
+                {"cgs", unit::farad, rule::non_negative}, {"cgd", unit::farad, rule::non_negative},
+                {"vds_max", unit::volt, rule::positive}, {"pd_max", unit::watt, rule::positive},
+                {"igf_max", unit::ampere, rule::positive}}},
+      {"signal", {{"impedance", unit::ohm, rule::non_negative}}},
+      {"gate", {{"coupling_cap", unit::farad, rule::non_negative}, {"resistor", unit::ohm, rule::positive},
+                {"bias_top", unit::ohm, rule::positive}, {"bias_bottom", unit::ohm, rule::positive}}},
+      {"drain", {{"resistor", unit::ohm, rule::non_negative}}},
+      {"source", {{"unbypassed", unit::ohm, rule::non_negative}, {"resistor", unit::ohm, rule::positive},
+                  {"bypass_cap", unit::farad, rule::non_negative}}},
+      {"output", {{"coupling_cap", unit::farad, rule::non_negative}, {"load", unit::ohm, rule::positive}}},
+  };
+  return s;
+}
+
+constexpr std::array<std::string_view, 3> top_scalars{"name", "topology", "temperature"};
+
+class reader {
+ public:
+  reader(std::string_view source_name) : source_(source_name) {}
+
+  [[noreturn]] void fail_at(const toml::source_region& where, const std::string& key, const std::string& msg) const {
+    std::ostringstream os;
+    if (where.begin.line == 0) {
+      os << "--set " << key << ": " << msg;
+    } else {
+      os << source_ << ':' << where.begin.line << ':' << where.begin.column << ": " << msg;
+    }
+    throw input_error(os.str());
+  }
+  [[noreturn]] void fail_file(const std::string& msg) const { throw input_error(std::string(source_) + ": " + msg); }
+
+  /// Points at a section's header when the section exists, else at the file.
+  [[noreturn]] void fail_section(const toml::table& root, std::string_view section, const std::string& msg) const {
+    if (const toml::node* n = root.get(section); n != nullptr && n->source().begin.line != 0)
+      fail_at(n->source(), std::string(section), msg);
+    fail_file(msg);
+  }
+
+  double number(const toml::node& node, const std::string& key, const key_spec& spec) const {
+    double v = 0.0;
+    if (node.is_integer() || node.is_floating_point()) {
+      v = node.value<double>().value_or(0.0);
+    } else if (node.is_string()) {
+      const std::string text = *node.value<std::string>();
+      auto parsed = base::try_parse_value(text, spec.u);
+      if (!parsed) {
+        try {
+          base::parse_value(text, spec.u, key);
+        } catch (const input_error& e) {
+          fail_at(node.source(), key, e.what());
+        }
+      }
+      v = *parsed;
+    } else {
+      fail_at(node.source(), key, key + ": expected a number or a value string such as \"4k7\", got " + type_name(node));
+    }
+    if (!std::isfinite(v)) fail_at(node.source(), key, key + ": value must be finite");
+    if (spec.r == rule::positive && !(v > 0)) fail_at(node.source(), key, key + " must be above 0");
+    if (spec.r == rule::non_negative && !(v >= 0)) fail_at(node.source(), key, key + " must not be negative");
+    return v;
+  }
+
+  static std::string type_name(const toml::node& n) {
+    switch (n.type()) {
+      case toml::node_type::table: return "a table";
+      case toml::node_type::array: return "an array";
+      case toml::node_type::string: return "a string";
+      case toml::node_type::integer: return "an integer";
+      case toml::node_type::floating_point: return "a number";
+      case toml::node_type::boolean: return "a boolean";
+      default: return "a date or time";
+    }
+  }
+
+  std::string text(const toml::node& node, const std::string& key) const {
+    if (!node.is_string()) fail_at(node.source(), key, key + ": expected a string, got " + type_name(node));
+    return *node.value<std::string>();
+  }
+
+  std::string_view source_;
+};
+
+std::string unknown_key_message(std::string_view key, std::string_view where, std::span<const std::string_view> known) {
+  std::string m = "unknown key '" + std::string(key) + "' in " + std::string(where);
+  const std::string near = base::nearest_name(key, known);
+  if (!near.empty()) m += "; did you mean '" + near + "'?";
+  return m;
+}
+
+void apply_override(toml::table& root, const std::string& spec) {
+  const auto eq = spec.find('=');
+  if (eq == std::string::npos || eq == 0)
+    throw input_error("--set '" + spec + "': expected KEY=VALUE, for example --set drain.resistor=4.7k");
+  const std::string key = spec.substr(0, eq);
+  const std::string value = spec.substr(eq + 1);
+  const auto dot = key.find('.');
+  if (dot == std::string::npos) {
+    root.insert_or_assign(key, value);
+    return;
+  }
+  const std::string section = key.substr(0, dot), name = key.substr(dot + 1);
+  if (name.empty() || name.find('.') != std::string::npos)
+    throw input_error("--set '" + spec + "': expected SECTION.KEY=VALUE, for example --set drain.resistor=4.7k");
+  toml::node* sec = root.get(section);
+  if (sec == nullptr) {
+    root.insert_or_assign(section, toml::table{});
+    sec = root.get(section);
+  }
+  if (!sec->is_table()) throw input_error("--set '" + spec + "': '" + section + "' is not a section");
+  sec->as_table()->insert_or_assign(name, value);
+}
+
+}  // namespace
+
+stage parse_stage(std::string_view text, std::string_view source_name, std::span<const std::string> overrides) {
+  reader rd(source_name);
+  toml::table root;
+  try {
+    root = toml::parse(text, source_name);
+  } catch (const toml::parse_error& e) {
+    const auto& b = e.source().begin;
+    throw input_error(std::string(source_name) + ":" + std::to_string(b.line) + ":" + std::to_string(b.column) +
+                      ": " + std::string(e.description()));
+  }
+  for (const std::string& o : overrides) apply_override(root, o);
+
+  std::vector<std::string_view> top_known(top_scalars.begin(), top_scalars.end());
+  for (const section_spec& s : schema()) top_known.push_back(s.name);
+
+  stage st;
+  std::map<std::string, double> values;              // "section.key" -> value
+  std::map<std::string, toml::source_region> where;  // for later messages
+  std::string polarity_text = "n";
+  bool polarity_given = false;
+  toml::source_region polarity_where;
+  std::string class_name;
+  toml::source_region class_where;
+
+  for (auto&& [k, node] : root) {
+    const std::string key(k.str());
+    if (key == "name") {
+      st.name = rd.text(node, key);
+      continue;
+    }
+    if (key == "topology") {
+      const std::string t = rd.text(node, key);
+      if (t == "common-source") st.topo = topology::common_source;
+      else if (t == "source-follower") st.topo = topology::source_follower;
+      else rd.fail_at(node.source(), key, "topology must be \"common-source\" or \"source-follower\", not \"" + t + "\"");
+      continue;
+    }
+    if (key == "temperature") {
+      st.temperature_k = rd.number(node, key, {"temperature", unit::kelvin, rule::positive});
+      continue;
+    }
+    const auto sec = std::find_if(schema().begin(), schema().end(), [&](const section_spec& s) { return s.name == key; });
+    if (sec == schema().end()) {
+      const toml::source_region at = k.source().begin.line ? k.source() : node.source();
+      rd.fail_at(at, key, unknown_key_message(key, "the stage file", top_known));
+    }
+    if (!node.is_table()) rd.fail_at(node.source(), key, "'" + key + "' must be a section [" + key + "], got " + reader::type_name(node));
+    std::vector<std::string_view> known;
+    for (const key_spec& ks : sec->keys) known.push_back(ks.name);
+    for (auto&& [k2, v] : *node.as_table()) {
+      const std::string name(k2.str());
+      const std::string full = key + "." + name;
+      const auto spec = std::find_if(sec->keys.begin(), sec->keys.end(), [&](const key_spec& s) { return s.name == name; });
+      if (spec == sec->keys.end()) {
+        const toml::source_region at = k2.source().begin.line ? k2.source() : v.source();
+        rd.fail_at(at, full, unknown_key_message(name, "[" + key + "]", known));
+      }
+      if (full == "jfet.polarity") {
+        polarity_text = rd.text(v, full);
+        polarity_given = true;
+        polarity_where = v.source();
+        continue;
+      }
+      if (full == "jfet.class") {
+        class_name = rd.text(v, full);
+        class_where = v.source();
+        continue;
+      }
+      values[full] = rd.number(v, full, *spec);
+      where[full] = v.source();
+    }
+  }
+
+  auto has = [&](const char* k) { return values.count(k) > 0; };
+  auto get = [&](const char* k, double dflt = 0.0) { return has(k) ? values.at(k) : dflt; };
+
+  if (polarity_text == "p") st.pol = polarity::p;
+  else if (polarity_text != "n") rd.fail_at(polarity_where, "jfet.polarity", "jfet.polarity must be \"n\" or \"p\", not \"" + polarity_text + "\"");
+  (void)polarity_given;
+  const double sign = st.pol == polarity::p ? -1.0 : 1.0;
+  const char* chan = st.pol == polarity::p ? "a p-channel" : "an n-channel";
+
+  if (!root.contains("supply") || !has("supply.volts")) rd.fail_section(root, "supply", "[supply] needs volts (the supply voltage)");
+  st.supply.volts_v = get("supply.volts");
+  if (!(sign * st.supply.volts_v > 0))
+    rd.fail_at(where["supply.volts"], "supply.volts",
+               std::string("supply.volts must be ") + (sign > 0 ? "positive" : "negative") + " for " + chan +
+                   " stage" + (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
+  st.supply.resistance_ohm = get("supply.resistance");
+  st.supply.capacitance_f = get("supply.capacitance");
+
+  // A named class fills in whatever the file does not give (values given win).
+  if (!class_name.empty()) {
+    try {
+      st.jfet_class = find_device_class(class_name, device_file_for(std::filesystem::path(std::string(source_name))));
+    } catch (const input_error& e) {
+      rd.fail_at(class_where, "jfet.class", e.what());
+    }
+    const device_class& c = *st.jfet_class;
+    if (!has("jfet.beta") && !has("jfet.vto")) {
+      if (!has("jfet.idss")) values["jfet.idss"] = c.typical_idss_a;
+      if (!has("jfet.vp")) {
+        values["jfet.vp"] = sign * c.typical_vp_v;
+        where["jfet.vp"] = class_where;
+      }
+    }
+    if (!has("jfet.lambda")) values["jfet.lambda"] = c.lambda_per_v;
+    if (!has("jfet.is")) values["jfet.is"] = c.is_a;
+    if (!has("jfet.n")) values["jfet.n"] = c.n;
+    if (!has("jfet.cgs")) values["jfet.cgs"] = c.cgs_f;
+    if (!has("jfet.cgd")) values["jfet.cgd"] = c.cgd_f;
+  }
+
+  // Device: idss + vp, or beta + vto.
+  const bool form_a = has("jfet.idss") || has("jfet.vp");
+  const bool form_b = has("jfet.beta") || has("jfet.vto");
+  if (!root.contains("jfet")) rd.fail_file("the stage file needs a [jfet] section with idss and vp");
+  if (form_a && form_b) rd.fail_section(root, "jfet", "[jfet]: give either idss and vp, or beta and vto, not both");
+  const char* vkey = form_b ? "jfet.vto" : "jfet.vp";
+  if (form_b) {
+    if (!has("jfet.beta") || !has("jfet.vto")) rd.fail_section(root, "jfet", "[jfet] needs both beta and vto");
+  } else if (!has("jfet.idss") || !has("jfet.vp")) {
+    rd.fail_section(root, "jfet", "[jfet] needs idss and vp (or beta and vto, or a class)");
+  }
+  const double vp = get(vkey);
+  if (!(sign * vp < 0))
+    rd.fail_at(where[vkey], vkey,
+               std::string(vkey) + " must be " + (sign > 0 ? "negative" : "positive") + " for " + chan + " part" +
+                   (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
+  st.jfet.vp_v = vp;
+  st.jfet.idss_a = form_b ? get("jfet.beta") * vp * vp : get("jfet.idss");
+  st.jfet.lambda_per_v = get("jfet.lambda", 0.0);
+  st.jfet.is_a = get("jfet.is", 1e-14);
+  st.jfet.n = get("jfet.n", 1.0);
+  st.jfet.cgs_f = get("jfet.cgs");
+  st.jfet.cgd_f = get("jfet.cgd");
+  if (has("jfet.vds_max")) st.ratings.vds_max_v = get("jfet.vds_max");
+  if (has("jfet.pd_max")) st.ratings.pd_max_w = get("jfet.pd_max");
+  if (has("jfet.igf_max")) st.ratings.igf_max_a = get("jfet.igf_max");
+
+  st.signal_impedance_ohm = get("signal.impedance");
+  st.gate.coupling_cap_f = get("gate.coupling_cap");
+  st.gate.resistor_ohm = get("gate.resistor");
+  st.gate.bias_top_ohm = get("gate.bias_top");
+  st.gate.bias_bottom_ohm = get("gate.bias_bottom");
+  st.drain_resistor_ohm = get("drain.resistor");
+  st.source.unbypassed_ohm = get("source.unbypassed");
+  st.source.resistor_ohm = get("source.resistor");
+  st.source.bypass_cap_f = get("source.bypass_cap");
+  st.output.coupling_cap_f = get("output.coupling_cap");
+  st.output.load_ohm = get("output.load");
+  if (st.name.empty()) st.name = std::string(source_name);
+
+  try {
+    validate(st);
+  } catch (const input_error& e) {
+    rd.fail_file(e.what());
+  }
+  return st;
+}
+
+stage read_stage_file(const std::filesystem::path& path, std::span<const std::string> overrides) {
+  std::error_code ec;
+  if (std::filesystem::is_directory(path, ec)) throw io_error("'" + path.string() + "' is a directory, not a stage file");
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw io_error("cannot open stage file '" + path.string() + "': " + std::strerror(errno));
+  std::ostringstream buf;
+  buf << in.rdbuf();
+  if (in.bad()) throw io_error("cannot read stage file '" + path.string() + "'");
+  const std::string text = buf.str();
+  if (text.find_first_not_of(" \t\r\n") == std::string::npos)
+    throw input_error(path.string() + ": the file is empty (expected a stage description, see README \"Stage file\")");
+  return parse_stage(text, path.string(), overrides);
+}
+
+}  // namespace pinchoff::model

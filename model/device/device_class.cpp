@@ -1,0 +1,125 @@
+#include "model/device/device_class.hpp"
+
+#include <cerrno>
+#include <cstdlib>
+#include <cstring>
+#include <fstream>
+#include <sstream>
+
+#include <toml++/toml.h>
+
+#include "base/error.hpp"
+#include "base/text.hpp"
+
+#ifndef PINCHOFF_DEVICES_FILE
+#define PINCHOFF_DEVICES_FILE "presets/devices.toml"
+#endif
+
+namespace pinchoff::model {
+namespace {
+
+std::string where(const std::string& file, const toml::source_region& r) {
+  return file + ":" + std::to_string(r.begin.line) + ":" + std::to_string(r.begin.column) + ": ";
+}
+
+double number(const toml::node& n, base::unit u, const std::string& file, const std::string& key) {
+  if (n.is_integer() || n.is_floating_point()) return n.value<double>().value_or(0.0);
+  if (n.is_string()) {
+    try {
+      return base::parse_value(*n.value<std::string>(), u, key);
+    } catch (const input_error& e) {
+      throw input_error(where(file, n.source()) + e.what());
+    }
+  }
+  throw input_error(where(file, n.source()) + key + ": expected a number or a value string");
+}
+
+base::value_range range(const toml::node& n, base::unit u, const std::string& file, const std::string& key) {
+  if (!n.is_string()) throw input_error(where(file, n.source()) + key + ": expected a range string such as \"2m..8m\"");
+  try {
+    return base::parse_range(*n.value<std::string>(), u, key, true);
+  } catch (const input_error& e) {
+    throw input_error(where(file, n.source()) + e.what());
+  }
+}
+
+}  // namespace
+
+std::vector<device_class> read_device_classes(const std::filesystem::path& path) {
+  const std::string file = path.string();
+  std::error_code ec;
+  if (std::filesystem::is_directory(path, ec)) throw io_error("cannot read device classes '" + file + "': it is a folder");
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw io_error("cannot read device classes '" + file + "': " + std::strerror(errno));
+  std::ostringstream buf;
+  buf << in.rdbuf();
+  if (in.bad()) throw io_error("cannot read device classes '" + file + "'");
+  return parse_device_classes(buf.str(), file);
+}
+
+std::vector<device_class> parse_device_classes(std::string_view text, std::string_view source_name) {
+  const std::string file(source_name);
+  toml::table root;
+  try {
+    root = toml::parse(text, source_name);
+  } catch (const toml::parse_error& e) {
+    throw input_error(where(file, e.source()) + std::string(e.description()));
+  }
+  static const std::vector<std::string_view> keys{"summary", "idss", "vp", "typical_idss", "typical_vp", "lambda",
+                                                  "is", "n", "cgs", "cgd"};
+  std::vector<device_class> out;
+  for (auto&& [k, node] : root) {
+    device_class c;
+    c.name = std::string(k.str());
+    if (!node.is_table()) throw input_error(where(file, node.source()) + "'" + c.name + "' must be a section [" + c.name + "]");
+    const toml::table& t = *node.as_table();
+    for (auto&& [k2, v] : t) {
+      const std::string key(k2.str());
+      const std::string full = c.name + "." + key;
+      if (key == "summary") c.summary = v.value<std::string>().value_or("");
+      else if (key == "idss") c.idss_a = range(v, base::unit::ampere, file, full);
+      else if (key == "vp") c.vp_v = range(v, base::unit::volt, file, full);
+      else if (key == "typical_idss") c.typical_idss_a = number(v, base::unit::ampere, file, full);
+      else if (key == "typical_vp") c.typical_vp_v = number(v, base::unit::volt, file, full);
+      else if (key == "lambda") c.lambda_per_v = number(v, base::unit::per_volt, file, full);
+      else if (key == "is") c.is_a = number(v, base::unit::ampere, file, full);
+      else if (key == "n") c.n = number(v, base::unit::none, file, full);
+      else if (key == "cgs") c.cgs_f = number(v, base::unit::farad, file, full);
+      else if (key == "cgd") c.cgd_f = number(v, base::unit::farad, file, full);
+      else {
+        std::string m = "unknown key '" + key + "' in [" + c.name + "]";
+        if (const std::string near = base::nearest_name(key, keys); !near.empty()) m += "; did you mean '" + near + "'?";
+        throw input_error(where(file, k2.source()) + m);
+      }
+    }
+    if (!(c.idss_a.lo > 0) || !(c.vp_v.hi < 0) || !(c.typical_idss_a > 0) || !(c.typical_vp_v < 0))
+      throw input_error(where(file, node.source()) + "[" + c.name +
+                        "] needs idss and vp ranges and typical_idss and typical_vp (n-channel signs: vp negative)");
+    out.push_back(c);
+  }
+  return out;
+}
+
+std::filesystem::path device_file_for(const std::filesystem::path& stage_file) {
+  std::error_code ec;
+  const std::filesystem::path beside = stage_file.parent_path() / "devices.toml";
+  if (!stage_file.empty() && std::filesystem::is_regular_file(beside, ec)) return beside;
+  if (const char* env = std::getenv("PINCHOFF_DEVICES"); env != nullptr && *env != '\0') return env;
+  return PINCHOFF_DEVICES_FILE;
+}
+
+device_class find_device_class(std::string_view name, const std::filesystem::path& file) {
+  const std::vector<device_class> all = read_device_classes(file);
+  std::vector<std::string_view> names;
+  for (const device_class& c : all) {
+    if (c.name == name) return c;
+    names.push_back(c.name);
+  }
+  std::string list;
+  for (std::string_view n : names) list += (list.empty() ? "" : ", ") + std::string(n);
+  std::string m = "unknown device class '" + std::string(name) + "' (classes in " + file.string() + ": " + list + ")";
+  if (const std::string near = base::nearest_name(name, names); !near.empty()) m += "; did you mean '" + near + "'?";
+  throw input_error(m);
+}
+
+}  // namespace pinchoff::model

@@ -1,0 +1,34 @@
+#pragma once
+// Generic JFET classes (presets/devices.toml): parameter ranges of a general kind of
+// part plus typical values, in n-channel signs.
+#include <filesystem>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "base/units.hpp"
+
+namespace pinchoff::model {
+
+struct device_class {
+  std::string name, summary;
+  base::value_range idss_a;  ///< > 0
+  base::value_range vp_v;    ///< n-channel: both < 0, lo is the most negative
+  double typical_idss_a{}, typical_vp_v{};
+  double lambda_per_v{0.0}, is_a{1e-14}, n{1.0}, cgs_f{0.0}, cgd_f{0.0};
+};
+
+/// Reads a device-class file; errors name file, line and column like stage files.
+std::vector<device_class> read_device_classes(const std::filesystem::path& path);
+/// The same from text; `source_name` stands for the file in messages.
+std::vector<device_class> parse_device_classes(std::string_view text, std::string_view source_name);
+
+/// The class file used for `stage_file`: devices.toml beside it, else $PINCHOFF_DEVICES,
+/// else the project's presets/devices.toml.
+std::filesystem::path device_file_for(const std::filesystem::path& stage_file);
+
+/// Looks a class up by name; throws input_error listing the known names (with a
+/// did-you-mean) when there is none.
+device_class find_device_class(std::string_view name, const std::filesystem::path& file);
+
+}  // namespace pinchoff::model

@@ -1,0 +1,293 @@
+#include "model/device/fit.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <sstream>
+#include <utility>
+
+#include <Eigen/Dense>
+
+#include "base/error.hpp"
+#include "base/units.hpp"
+
+namespace pinchoff::model {
+namespace {
+
+// Self-bias with the gate at 0 V: id = k idss (1 + id rs / vp)^2 (vp < 0), the root with
+// 1 + id rs / vp > 0 (Boylestad & Nashelsky ch. 7).
+double jig_current(double idss, double vp, double rs) {
+  const double a = rs / vp;  // < 0
+  if (rs == 0.0) return idss;
+  // idss a^2 id^2 + (2 idss a - 1) id + idss = 0
+  const double qa = idss * a * a, qb = 2.0 * idss * a - 1.0, qc = idss;
+  const double disc = std::sqrt(std::max(0.0, qb * qb - 4.0 * qa * qc));
+  // The smaller root keeps 1 + a id > 0; written to avoid cancellation.
+  return 2.0 * qc / (-qb + disc);
+}
+
+double model_current(reading_kind kind, const bench_reading& r, double idss, double vp, double lambda) {
+  const double clm = 1.0 + lambda * (r.has_vds ? r.vds_v : 0.0);
+  if (kind == reading_kind::self_bias_jig) return jig_current(idss * clm, vp, r.x);
+  const double u = 1.0 - r.x / vp;
+  return u > 0.0 ? idss * clm * u * u : 0.0;
+}
+
+struct core_fit {
+  Eigen::Vector3d q;   // [ln idss, ln(-vp), lambda]
+  Eigen::VectorXd r;   // relative residuals
+  Eigen::MatrixXd jm;  // Jacobian of r by the fitted parameters
+  double cost{};
+  int iterations{};
+};
+
+// Levenberg-Marquardt on the mirrored (n-channel) readings with np parameters.
+core_fit fit_core(reading_kind kind, const std::vector<bench_reading>& rd, int np) {
+  const int m = static_cast<int>(rd.size());
+  // Start: straight line sqrt(id) = c + s vgs with c = sqrt(idss), s = -sqrt(idss)/vp.
+  Eigen::MatrixXd a(m, 2);
+  Eigen::VectorXd b(m);
+  for (int i = 0; i < m; ++i) {
+    const double vgs = kind == reading_kind::gate_sweep ? rd[i].x : -rd[i].id_a * rd[i].x;
+    a(i, 0) = 1.0;
+    a(i, 1) = vgs;
+    b[i] = std::sqrt(rd[i].id_a);
+  }
+  const Eigen::Vector2d line = a.colPivHouseholderQr().solve(b);
+  if (!(line[0] > 0 && line[1] > 0))
+    throw input_error(
+        "these readings cannot come from a square-law part: the current does not fall as the gate goes more negative "
+        "(check the columns and signs; a self-bias jig needs a larger current for a smaller source resistor)");
+  // Parameters: q = [ln idss, ln(-vp), lambda].
+  Eigen::Vector3d q(std::log(line[0] * line[0]), std::log(line[0] / line[1]), 0.0);
+
+  auto residuals = [&](const Eigen::Vector3d& p, Eigen::VectorXd& r) {
+    r.resize(m);
+    for (int i = 0; i < m; ++i)
+      r[i] = model_current(kind, rd[i], std::exp(p[0]), -std::exp(p[1]), np == 3 ? p[2] : 0.0) / rd[i].id_a - 1.0;
+  };
+  auto jacobian = [&](const Eigen::Vector3d& p, Eigen::MatrixXd& jm) {
+    jm.resize(m, np);
+    Eigen::VectorXd rp, rm;
+    for (int k = 0; k < np; ++k) {
+      const double h = 1e-6 * std::max(1.0, std::fabs(p[k]));
+      Eigen::Vector3d pp = p, pm = p;
+      pp[k] += h;
+      pm[k] -= h;
+      residuals(pp, rp);
+      residuals(pm, rm);
+      jm.col(k) = (rp - rm) / (2.0 * h);
+    }
+  };
+
+  Eigen::VectorXd r;
+  Eigen::MatrixXd jm;
+  residuals(q, r);
+  double cost = r.squaredNorm();
+  double mu = 1e-3;
+  int it = 0;
+  for (; it < 200; ++it) {
+    jacobian(q, jm);
+    const Eigen::MatrixXd jtj = jm.transpose() * jm;
+    const Eigen::VectorXd g = jm.transpose() * r;
+    bool improved = false;
+    for (int tries = 0; tries < 30; ++tries) {
+      Eigen::MatrixXd damped = jtj;
+      for (int k = 0; k < np; ++k) damped(k, k) += mu * std::max(jtj(k, k), 1e-30);
+      const Eigen::VectorXd step = damped.ldlt().solve(-g);
+      Eigen::Vector3d trial = q;
+      trial.head(np) += step;
+      Eigen::VectorXd rt;
+      residuals(trial, rt);
+      const double ct = rt.squaredNorm();
+      if (std::isfinite(ct) && ct <= cost) {
+        const double change = cost - ct;
+        q = trial;
+        r = rt;
+        cost = ct;
+        mu = std::max(mu / 3.0, 1e-12);
+        improved = true;
+        if (change <= 1e-15 * std::max(cost, 1e-300) || step.norm() < 1e-14) it = 1000;
+        break;
+      }
+      mu *= 4.0;
+    }
+    if (!improved || it >= 1000) break;
+  }
+
+  core_fit out;
+  out.q = q;
+  out.r = r;
+  out.cost = cost;
+  out.iterations = std::min(it, 200);
+  jacobian(q, out.jm);
+  return out;
+}
+
+}  // namespace
+
+fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& in) {
+  if (in.empty()) throw input_error("no readings to fit");
+  fit_result res;
+  // Sign: all currents positive (n-channel) or all negative (p-channel, fitted as its mirror).
+  const bool all_pos = std::all_of(in.begin(), in.end(), [](const bench_reading& r) { return r.id_a > 0; });
+  const bool all_neg = std::all_of(in.begin(), in.end(), [](const bench_reading& r) { return r.id_a < 0; });
+  if (!all_pos && !all_neg) {
+    for (const bench_reading& r : in)
+      if (!(r.id_a != 0.0) || (r.id_a > 0) != (in.front().id_a > 0))
+        throw input_error("line " + std::to_string(r.line) + ": id_a " + base::format_si(r.id_a, "A") +
+                          (r.id_a == 0.0 ? " is zero: a reading in cutoff says nothing about IDSS and VP; leave it out"
+                                         : " has the opposite sign to the first reading (all readings must be of one part polarity)"));
+  }
+  res.p_channel = all_neg;
+  std::vector<bench_reading> rd = in;
+  if (res.p_channel)
+    for (bench_reading& r : rd) {
+      r.id_a = -r.id_a;
+      if (kind == reading_kind::gate_sweep) r.x = -r.x;
+      r.vds_v = -r.vds_v;
+    }
+  if (kind == reading_kind::self_bias_jig)
+    for (const bench_reading& r : rd)
+      if (r.x < 0) throw input_error("line " + std::to_string(r.line) + ": rs_ohm must not be negative");
+
+  // Whether lambda can be told from the data: vds given on every row and varying.
+  bool vds_all = std::all_of(rd.begin(), rd.end(), [](const bench_reading& r) { return r.has_vds; });
+  double vmin = 1e300, vmax = -1e300;
+  for (const bench_reading& r : rd) {
+    vmin = std::min(vmin, r.vds_v);
+    vmax = std::max(vmax, r.vds_v);
+  }
+  res.lambda_fitted = vds_all && (vmax - vmin) > 1.0 && rd.size() >= 4;
+  const int np = res.lambda_fitted ? 3 : 2;
+  const int m = static_cast<int>(rd.size());
+  if (m < np)
+    throw input_error("too few readings to fit: " + std::to_string(m) + " given, at least " + std::to_string(np) +
+                      " needed for " + std::to_string(np) + " parameters (and one more for their errors)");
+  {
+    double xmin = rd.front().x, xmax = rd.front().x;
+    for (const bench_reading& r : rd) {
+      xmin = std::min(xmin, r.x);
+      xmax = std::max(xmax, r.x);
+    }
+    if (!(xmax > xmin))
+      throw input_error(std::string("every reading has the same ") + (kind == reading_kind::gate_sweep ? "vgs_v" : "rs_ohm") +
+                        ": at least two different settings are needed to tell IDSS from VP");
+  }
+
+  const core_fit cf = fit_core(kind, rd, np);
+  const Eigen::Vector3d q = cf.q;
+  const Eigen::VectorXd& r = cf.r;
+  const double cost = cf.cost;
+  res.iterations = cf.iterations;
+  res.idss_a = std::exp(q[0]);
+  res.vp_v = -std::exp(q[1]);
+  res.lambda_per_v = np == 3 ? q[2] : 0.0;
+  const double dof = m - np;
+  if (dof > 0) {
+    const double s2 = cost / dof;
+    const Eigen::MatrixXd cov = (cf.jm.transpose() * cf.jm).inverse() * s2;
+    res.idss_se_a = res.idss_a * std::sqrt(std::max(0.0, cov(0, 0)));
+    res.vp_se_v = std::fabs(res.vp_v) * std::sqrt(std::max(0.0, cov(1, 1)));
+    res.lambda_se_per_v = np == 3 ? std::sqrt(std::max(0.0, cov(2, 2))) : 0.0;
+  } else {
+    // As many readings as parameters: the part is determined exactly, with no scatter
+    // left to estimate errors from.
+    res.idss_se_a = res.vp_se_v = res.lambda_se_per_v = std::numeric_limits<double>::quiet_NaN();
+  }
+  res.rms_residual_ratio = std::sqrt(cost / m);
+  // Readings whose current hardly falls with the gate voltage are matched best by a part
+  // that never pinches off: the fit runs VP off to infinity (or IDSS to zero), and the
+  // covariance is singular. Such readings do not determine the parameters; say so rather
+  // than report an infinite or NaN figure.
+  const std::pair<double, const char*> figures[] = {
+      {res.idss_a, "IDSS"},           {res.vp_v, "VP"},           {res.lambda_per_v, "lambda"},
+      {res.idss_se_a, "IDSS's error"}, {res.vp_se_v, "VP's error"}, {res.lambda_se_per_v, "lambda's error"}};
+  for (const auto& [value, name] : figures) {
+    // With as many readings as parameters the errors are NaN by design (no scatter left).
+    const bool is_error = name == figures[3].second || name == figures[4].second || name == figures[5].second;
+    if (is_error && dof == 0) continue;
+    if (!std::isfinite(value) || (value == 0.0 && (name == figures[0].second || name == figures[1].second)))
+      throw input_error(std::string("these readings do not determine IDSS and VP: the best fit sends ") + name + " to " +
+                        base::format_number(value) +
+                        " (the current hardly falls as the gate goes more negative; take readings from VGS = 0 "
+                        "down to near cut-off, and check the columns and signs)");
+  }
+
+  // A row "does not fit" when, refitted without it, the others predict it more than four
+  // of their own standard deviations away (a deleted-residual test, Cook & Weisberg,
+  // Residuals and Influence in Regression, 1982); the row then cannot pull the fit or
+  // inflate the scatter it is judged by. Needs at least three spare degrees of freedom.
+  std::vector<bool> flagged(static_cast<std::size_t>(m), false);
+  if (dof >= 3) {
+    for (int i = 0; i < m; ++i) {
+      std::vector<bench_reading> others;
+      for (int j = 0; j < m; ++j)
+        if (j != i) others.push_back(rd[j]);
+      const core_fit loo = fit_core(kind, others, np);
+      const double s_loo = std::sqrt(loo.cost / (m - 1 - np));
+      const double pred =
+          model_current(kind, rd[i], std::exp(loo.q[0]), -std::exp(loo.q[1]), np == 3 ? loo.q[2] : 0.0) / rd[i].id_a - 1.0;
+      flagged[static_cast<std::size_t>(i)] = std::fabs(pred) > 4.0 * s_loo && std::fabs(pred) > 1e-6;
+    }
+  }
+  for (int i = 0; i < m; ++i) {
+    fit_row row;
+    row.reading = in[i];
+    const double id_model = model_current(kind, rd[i], res.idss_a, res.vp_v, res.lambda_per_v);
+    const double vgs = kind == reading_kind::gate_sweep ? rd[i].x : -id_model * rd[i].x;
+    row.vgs_v = res.p_channel ? -vgs : vgs;
+    row.id_model_a = res.p_channel ? -id_model : id_model;
+    row.residual_ratio = r[i];
+    row.flagged = flagged[static_cast<std::size_t>(i)];
+    res.rows.push_back(row);
+  }
+  if (res.p_channel) res.vp_v = -res.vp_v;
+  return res;
+}
+
+std::string jfet_block(const fit_result& r) {
+  // Values in the stage-file notation ("5.170m"), the error as a comment.
+  auto value = [](double v) {
+    std::string t = base::format_si(v, "", 4);
+    t.erase(std::remove(t.begin(), t.end(), ' '), t.end());
+    return t;
+  };
+  std::ostringstream os;
+  os << "[jfet]\n";
+  if (r.p_channel) os << "polarity = \"p\"\n";
+  const bool exact = std::isnan(r.idss_se_a);
+  os << "idss = \"" << value(r.idss_a) << "\"    # "
+     << (exact ? std::string("from two readings, no error estimate") : "± " + base::format_si(r.idss_se_a, "A", 2)) << "\n";
+  os << "vp = " << base::format_number(r.vp_v, 4) << "    # "
+     << (exact ? std::string("from two readings, no error estimate") : "± " + base::format_si(r.vp_se_v, "V", 2)) << "\n";
+  if (r.lambda_fitted)
+    os << "lambda = " << base::format_number(r.lambda_per_v, 3) << "    # ± " << base::format_number(r.lambda_se_per_v, 2) << " /V\n";
+  return os.str();
+}
+
+bench_table readings_from_table(const base::csv_table& t) {
+  const int c_vgs = t.column("vgs_v"), c_rs = t.column("rs_ohm"), c_id = t.column("id_a"), c_vds = t.column("vds_v");
+  if (c_id < 0) throw input_error(t.source + ": missing column 'id_a' (the drain current, A)");
+  if ((c_vgs < 0) == (c_rs < 0))
+    throw input_error(t.source + ": give exactly one of the columns 'vgs_v' (gate sweep) or 'rs_ohm' (self-bias jig)");
+  for (const std::string& c : t.columns)
+    if (c != "vgs_v" && c != "rs_ohm" && c != "id_a" && c != "vds_v")
+      throw input_error(t.source + ": unknown column '" + c + "' (expected vgs_v or rs_ohm, id_a, vds_v)");
+  bench_table b;
+  b.kind = c_vgs >= 0 ? reading_kind::gate_sweep : reading_kind::self_bias_jig;
+  for (std::size_t k = 0; k < t.rows.size(); ++k) {
+    bench_reading r;
+    r.x = t.rows[k][static_cast<std::size_t>(c_vgs >= 0 ? c_vgs : c_rs)];
+    r.id_a = t.rows[k][static_cast<std::size_t>(c_id)];
+    if (c_vds >= 0) {
+      r.vds_v = t.rows[k][static_cast<std::size_t>(c_vds)];
+      r.has_vds = true;
+    }
+    r.line = t.line_of_row[k];
+    b.readings.push_back(r);
+  }
+  return b;
+}
+
+}  // namespace pinchoff::model

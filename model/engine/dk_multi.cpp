@@ -1,0 +1,581 @@
+// The DK engine's general path, for a network of more than one JFET (one JFET takes the
+// closed-form 2x2 path of dk_engine.cpp). The same equations and the same acceptance
+// argument with k devices: 2k port voltages v, 3k currents i, the device Jacobian Jf
+// block diagonal (one 3x2 block per JFET), and I - F Jf (2k x 2k) factored by LU with
+// partial pivoting (Golub & Van Loan, Matrix Computations, Alg. 3.4.1) on every Newton
+// iteration. The factorisation, the solves and the small products are plain loops: at
+// these sizes (4 x 4 for two JFETs) Eigen's dynamic-size kernels cost several times the
+// arithmetic. Every vector and matrix is sized when the engine is built, so a sample
+// allocates nothing.
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <utility>
+#include <vector>
+
+#include "model/engine/dk_engine.hpp"
+
+namespace pinchoff::model {
+namespace {
+
+// Compile-time sizes for K JFETs (K = 0: dynamic).
+constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
+constexpr int currents_of(int k) noexcept { return k > 0 ? 3 * k : Eigen::Dynamic; }
+
+double max_abs_of(const Eigen::Ref<const Eigen::VectorXd>& v) noexcept {
+  double m = 0.0;
+  for (Eigen::Index k = 0; k < v.size(); ++k) m = std::max(m, std::fabs(v[k]));
+  return m;
+}
+
+// JFET j's 3x2 block of the block-diagonal Jf: rows igs, igd, id; columns vgs, vds.
+void put_block(Eigen::MatrixXd& jf, int j, const detail::port_currents& c) noexcept {
+  const Eigen::Index r = 3 * j, k = 2 * j;
+  jf(r, k) = c.ggs_s;
+  jf(r, k + 1) = 0.0;
+  jf(r + 1, k) = c.ggd_s;
+  jf(r + 1, k + 1) = -c.ggd_s;
+  jf(r + 2, k) = c.gm_s;
+  jf(r + 2, k + 1) = c.gds_s;
+}
+
+// I - F Jf from the per-JFET derivatives, column pair by column pair (Jf is block diagonal,
+// so each column of F Jf combines three columns of F).
+void one_minus_f_jf(const Eigen::MatrixXd& f, const std::vector<detail::port_currents>& cur, Eigen::MatrixXd& j) noexcept {
+  for (int d = 0; d < static_cast<int>(cur.size()); ++d) {
+    const detail::port_currents& c = cur[static_cast<std::size_t>(d)];
+    j.col(2 * d) = -(f.col(3 * d) * c.ggs_s + f.col(3 * d + 1) * c.ggd_s + f.col(3 * d + 2) * c.gm_s);
+    j.col(2 * d + 1) = -(f.col(3 * d + 1) * (-c.ggd_s) + f.col(3 * d + 2) * c.gds_s);
+  }
+  j.diagonal().array() += 1.0;
+}
+
+// LU with partial pivoting of the n x n column-major matrix `a` in place, the row
+// interchanges applied to whole rows as they happen (LAPACK's getrf order); piv[k] is the
+// row swapped with row k at step k. U's diagonal is stored as its reciprocals (the solve
+// then multiplies: a division is several times slower and sits on its dependency chain).
+// Returns |det|, 0 when a pivot is zero or not finite.
+// N > 0: the size at compile time (the loops unroll; at these sizes loop overhead costs
+// more than the arithmetic); N = 0: n at run time.
+template <int N>
+double lu_factor_n(double* a, int n_rt, int* piv) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  double det = 1.0;
+  for (int k = 0; k < n; ++k) {
+    int p = k;
+    double best = std::fabs(a[k + k * n]);
+    for (int r = k + 1; r < n; ++r) {
+      const double v = std::fabs(a[r + k * n]);
+      if (v > best) {
+        best = v;
+        p = r;
+      }
+    }
+    piv[k] = p;
+    if (!(best > 0.0) || !std::isfinite(best)) return 0.0;
+    if (p != k)
+      for (int c = 0; c < n; ++c) std::swap(a[k + c * n], a[p + c * n]);
+    det *= best;
+    const double inv = 1.0 / a[k + k * n];
+    a[k + k * n] = inv;
+    for (int r = k + 1; r < n; ++r) a[r + k * n] *= inv;
+    for (int c = k + 1; c < n; ++c) {
+      const double akc = a[k + c * n];
+      for (int r = k + 1; r < n; ++r) a[r + c * n] -= a[r + k * n] * akc;
+    }
+  }
+  return det;
+}
+
+// Solves (the matrix factored by lu_factor) x = b in place.
+template <int N>
+void lu_solve_n(const double* a, int n_rt, const int* piv, double* b) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  for (int k = 0; k < n; ++k)
+    if (piv[k] != k) std::swap(b[k], b[piv[k]]);
+  for (int c = 0; c < n; ++c) {
+    const double bc = b[c];
+    for (int r = c + 1; r < n; ++r) b[r] -= a[r + c * n] * bc;
+  }
+  for (int c = n - 1; c >= 0; --c) {
+    b[c] *= a[c + c * n];
+    const double bc = b[c];
+    for (int r = 0; r < c; ++r) b[r] -= a[r + c * n] * bc;
+  }
+}
+
+// Two, three and four JFETs at compile-time sizes, more at run time.
+double lu_factor(double* a, int n, int* piv) noexcept {
+  switch (n) {
+    case 4: return lu_factor_n<4>(a, n, piv);
+    case 6: return lu_factor_n<6>(a, n, piv);
+    case 8: return lu_factor_n<8>(a, n, piv);
+    default: return lu_factor_n<0>(a, n, piv);
+  }
+}
+
+void lu_solve(const double* a, int n, const int* piv, double* b) noexcept {
+  switch (n) {
+    case 4: lu_solve_n<4>(a, n, piv, b); return;
+    case 6: lu_solve_n<6>(a, n, piv, b); return;
+    case 8: lu_solve_n<8>(a, n, piv, b); return;
+    default: lu_solve_n<0>(a, n, piv, b); return;
+  }
+}
+
+// M = (I - F Jf)^-1 from its factors, column by column.
+void inverse_of(const Eigen::MatrixXd& lu, const std::vector<int>& piv, Eigen::MatrixXd& m) noexcept {
+  const int n = static_cast<int>(m.rows());
+  for (int c = 0; c < n; ++c) {
+    double* col = m.col(c).data();
+    for (int r = 0; r < n; ++r) col[r] = r == c ? 1.0 : 0.0;
+    lu_solve(lu.data(), n, piv.data(), col);
+  }
+}
+
+// out = a + M b for a column-major M of n_rt (N > 0: N) rows and m columns.
+template <int N>
+void add_product_n(const double* a, const double* md, int n_rt, int m, const double* b, double* out) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  double acc[N > 0 ? N : 1];
+  if constexpr (N > 0) {
+    for (int r = 0; r < N; ++r) acc[r] = a ? a[r] : 0.0;
+    for (int c = 0; c < m; ++c) {
+      const double bc = b[c];
+      for (int r = 0; r < N; ++r) acc[r] += md[r + c * N] * bc;
+    }
+    for (int r = 0; r < N; ++r) out[r] = acc[r];
+  } else {
+    for (int r = 0; r < n; ++r) out[r] = a ? a[r] : 0.0;
+    for (int c = 0; c < m; ++c) {
+      const double bc = b[c];
+      for (int r = 0; r < n; ++r) out[r] += md[r + c * n] * bc;
+    }
+  }
+}
+
+void add_product(const double* a, const Eigen::MatrixXd& mat, const double* b, double* out) noexcept {
+  const int n = static_cast<int>(mat.rows()), m = static_cast<int>(mat.cols());
+  switch (n) {
+    case 4: add_product_n<4>(a, mat.data(), n, m, b, out); return;
+    case 6: add_product_n<6>(a, mat.data(), n, m, b, out); return;
+    case 8: add_product_n<8>(a, mat.data(), n, m, b, out); return;
+    default: add_product_n<0>(a, mat.data(), n, m, b, out); return;
+  }
+}
+
+}  // namespace
+
+void dk_engine::port_set::resize(int k) {
+  v.setZero(2 * k);
+  i.setZero(3 * k);
+  jf.setZero(3 * k, 2 * k);
+  m.setIdentity(2 * k, 2 * k);
+}
+
+void dk_engine::init_general(const network& net, const operating_point& op) {
+  const int ns = m_.states, k = m_.devices, np = 2 * k, ni = 3 * k;
+  general_path& g = g_;
+  g.dev.clear();
+  for (const net_jfet& q : net.jfets) g.dev.push_back(detail::device_consts::of(q.device, net.vt_v));
+  g.cur.assign(static_cast<std::size_t>(k), detail::port_currents{});
+  g.f_abs = m_.f.cwiseAbs();
+
+  // Stacked update as for one JFET: the state rows hold the increment x_n - x_{n-1}.
+  const Eigen::MatrixXd a_minus_i = m_.a - Eigen::MatrixXd::Identity(ns, ns);
+  g.w = Eigen::MatrixXd::Zero(ns + np + 1, ns + 2 + ni);
+  g.w.topRows(ns) << a_minus_i, m_.b, m_.c;
+  g.w.middleRows(ns, np) << m_.d * m_.a, m_.d * m_.b, m_.d * m_.c;
+  g.w.row(ns + np) << m_.d_out, m_.e_out, m_.f_out;
+  g.pre = Eigen::VectorXd::Zero(ns + np + 1);
+  g.out = Eigen::VectorXd::Zero(ns + np + 1);
+  in_ = Eigen::VectorXd::Zero(ns + 2 + ni);
+
+  for (Eigen::VectorXd* v : {&g.q, &g.p, &g.p_last, &g.p_dc, &g.dp, &g.v, &g.r, &g.d, &g.base,
+                             &g.step, &g.t, &g.bound, &g.allowed, &g.pc, &g.pj, &g.guess})
+    v->setZero(np);
+  g.rem.setZero(ni);
+  g.mag.setZero(ni);
+  g.j.setZero(np, np);
+  g.piv.assign(static_cast<std::size_t>(np), 0);
+  for (port_set* s : {&g.last, &g.dc, &g.trial, &g.cur_pt, &g.next_pt}) s->resize(k);
+  g.m_prev.setZero(np, np);
+  g.m_prev2.setZero(np, np);
+  g.mdl.setZero(np);
+  g.cj.setZero(ns, np);
+  g.md.setZero(np, ns);
+  phi_.resize(ns, ns);
+  tmp_.resize(ns, ns);
+
+  // DC point, as for one JFET: a few Newton steps on the engine's own fixed-point equations
+  // so that silence in gives exactly constant samples out.
+  const Eigen::Vector2d u(supply_v_, 0.0);
+  Eigen::VectorXd q = dc_states(net, op.x);
+  Eigen::VectorXd v(np);
+  for (int j = 0; j < k; ++j) {
+    const net_jfet& d = net.jfets[static_cast<std::size_t>(j)];
+    v[2 * j] = node_v(op.x, d.gate) - node_v(op.x, d.source);
+    v[2 * j + 1] = node_v(op.x, d.drain) - node_v(op.x, d.source);
+  }
+  {
+    Eigen::VectorXd qp = q, vp = v;
+    Eigen::MatrixXd jac(ns + np, ns + np);
+    Eigen::VectorXd res(ns + np);
+    bool ok = false;
+    for (int it = 0; it < 20; ++it) {
+      point_general(vp, g.trial);
+      res.head(ns) = a_minus_i * qp + m_.b * u + m_.c * g.trial.i;
+      res.tail(np) = m_.d * qp + m_.e * u + m_.f * g.trial.i - vp;
+      jac.topLeftCorner(ns, ns) = a_minus_i;
+      jac.topRightCorner(ns, np) = m_.c * g.trial.jf;
+      jac.bottomLeftCorner(np, ns) = m_.d;
+      jac.bottomRightCorner(np, np) = m_.f * g.trial.jf - Eigen::MatrixXd::Identity(np, np);
+      const Eigen::FullPivLU<Eigen::MatrixXd> lu(jac);
+      if (!lu.isInvertible()) break;
+      const Eigen::VectorXd delta = lu.solve(-res);
+      if (!delta.allFinite()) break;
+      qp += delta.head(ns);
+      vp += delta.tail(np);
+      if (max_abs_of(delta) <= 1e-15 * (1.0 + max_abs_of(qp) + max_abs_of(vp))) {
+        ok = true;
+        break;
+      }
+    }
+    // Only rounding is to be removed: a larger move means the equations disagree.
+    if (ok && max_abs_of(qp - q) <= 1e-6 && max_abs_of(vp - v) <= 1e-6) {
+      q = qp;
+      v = vp;
+    }
+  }
+  x_dc_ = q;
+  point_general(v, g.dc);
+  g.p_dc = m_.d * q + m_.e * u;
+  y_dc_ = sign_ * (m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(g.dc.i));
+  reset();
+}
+
+void dk_engine::point_general(const Eigen::VectorXd& v, port_set& out) noexcept {
+  general_path& g = g_;
+  const int k = m_.devices;
+  for (int j = 0; j < k; ++j) {
+    const detail::port_currents c = detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], v[2 * j], v[2 * j + 1]);
+    g.cur[static_cast<std::size_t>(j)] = c;
+    out.i[3 * j] = c.igs_a;
+    out.i[3 * j + 1] = c.igd_a;
+    out.i[3 * j + 2] = c.id_a;
+    put_block(out.jf, j, c);
+  }
+  out.v = v;
+  one_minus_f_jf(m_.f, g.cur, g.j);
+  if (lu_factor(g.j.data(), k * 2, g.piv.data()) > 0.0)
+    inverse_of(g.j, g.piv, out.m);
+  else
+    out.m.setConstant(std::numeric_limits<double>::quiet_NaN());
+}
+
+void dk_engine::reset_general() {
+  general_path& g = g_;
+  const int ns = m_.states, ni = 3 * m_.devices;
+  in_.head(ns) = x_dc_;
+  in_[ns] = supply_v_;
+  in_[ns + 1] = 0.0;
+  in_.tail(ni) = g.dc.i;
+  g.q.noalias() = m_.d * x_dc_;
+  g.last = g.dc;
+  g.p_last = g.p_dc;
+  g.m_prev = g.dc.m;
+  g.m_prev2 = g.dc.m;
+  stats_ = {};
+}
+
+// Newton on r(v) = p + F i(v) - v = 0 from `guess`, for k JFETs; the argument of
+// newton_iteration() (dk_engine.cpp) carried over, with the same acceptance. After the step
+// dv computed at v, device j's currents at v + dv differ from their linearisation by a
+// remainder bounded per current as there (the junction bound 0.505 g dv^2 / nVt for
+// |dv| <= 0.01 nVt, the channel's exact, plus its rounding margin); stacked into R (3k),
+// the residual at v + dv is at most |F| R + rounding and the distance to the exact solution
+// at most |M| times that, with M = (I - F Jf)^-1 (Ortega & Rheinboldt 1970, 12.6). The
+// rounding of the port equation, 8 eps (|F| (|i| + |Jf dv|) + |p| + |v + dv|) a row, is
+// allowed on top of tol_v up to 1e-8 V, as on the one-JFET path (which says why). The
+// per-device part (remainders, magnitudes, the small-step test) is one function for both
+// paths (detail::remainders_of); only the assembly of the rows differs.
+//
+// K > 0: the number of JFETs at compile time (fixed-size views of the engine's storage, so
+// the small products unroll); K = 0: any number, at run time.
+template <int K>
+bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd& guess, port_set& out,
+                              int& evals) noexcept {
+  using vec_p = Eigen::Matrix<double, ports_of(K), 1>;
+  using vec_i = Eigen::Matrix<double, currents_of(K), 1>;
+  using mat_f = Eigen::Matrix<double, ports_of(K), currents_of(K)>;
+  general_path& g = g_;
+  const int k = K > 0 ? K : m_.devices, np = 2 * k, ni = 3 * k;
+  const Eigen::Map<const mat_f> f(m_.f.data(), np, ni);
+  const Eigen::Map<const mat_f> f_abs(g.f_abs.data(), np, ni);
+  const Eigen::Map<const vec_p> p(p_in.data(), np);
+  Eigen::Map<vec_p> v(g.v.data(), np), r(g.r.data(), np), d(g.d.data(), np), base(g.base.data(), np),
+      step(g.step.data(), np), t(g.t.data(), np), bound(g.bound.data(), np);
+  Eigen::Map<vec_p> allowed(g.allowed.data(), np);
+  Eigen::Map<vec_i> i(out.i.data(), ni), rem(g.rem.data(), ni), mag(g.mag.data(), ni);
+  const double tol = opt_.tol_v;
+  using detail::acceptance_round_k;
+  using detail::rounding_allowance_v;
+  v = Eigen::Map<const vec_p>(guess.data(), np);
+  base = v;
+  step.setZero();
+  double rn_base = std::numeric_limits<double>::infinity();
+  bool may_damp = false;
+  int halvings = 0;
+  for (int it = 0; it < opt_.max_iterations; ++it) {
+    for (int j = 0; j < k; ++j) {
+      const detail::port_currents c = detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], v[2 * j], v[2 * j + 1]);
+      g.cur[static_cast<std::size_t>(j)] = c;
+      i[3 * j] = c.igs_a;
+      i[3 * j + 1] = c.igd_a;
+      i[3 * j + 2] = c.id_a;
+    }
+    ++evals;
+    r = p - v;
+    r.noalias() += f * i;
+    const double rn = r.cwiseAbs().maxCoeff();
+    // Damped Newton: halve a step that made the residual grow (or not finite).
+    if (may_damp && !(rn <= rn_base) && !(rn <= tol) && halvings < 30) {
+      step *= 0.5;
+      v = base + step;
+      ++halvings;
+      continue;
+    }
+    if (!std::isfinite(rn)) return false;
+
+    // I - F Jf, column pair by column pair (Jf is block diagonal).
+    {
+      double* jd = g.j.data();
+      for (int q = 0; q < k; ++q) {
+        const detail::port_currents& c = g.cur[static_cast<std::size_t>(q)];
+        for (int row = 0; row < np; ++row) {
+          const double f0 = f(row, 3 * q), f1 = f(row, 3 * q + 1), f2 = f(row, 3 * q + 2);
+          jd[row + (2 * q) * np] = (row == 2 * q ? 1.0 : 0.0) - (f0 * c.ggs_s + f1 * c.ggd_s + f2 * c.gm_s);
+          jd[row + (2 * q + 1) * np] = (row == 2 * q + 1 ? 1.0 : 0.0) - (-f1 * c.ggd_s + f2 * c.gds_s);
+        }
+      }
+    }
+    if (!(lu_factor(g.j.data(), np, g.piv.data()) > 1e-200)) return false;
+    d = r;
+    lu_solve(g.j.data(), np, g.piv.data(), d.data());
+    if (!d.allFinite()) return false;
+
+    // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim), per JFET; the largest cut
+    // scales the whole step.
+    bool limited = false;
+    {
+      double alpha = 1.0;
+      for (int j = 0; j < k; ++j) {
+        const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
+        const double gs_old = v[2 * j], gd_old = v[2 * j] - v[2 * j + 1];
+        const double gs_new = gs_old + d[2 * j], gd_new = gd_old + d[2 * j] - d[2 * j + 1];
+        if (gs_new > dv.vcrit_v || gd_new > dv.vcrit_v) {
+          const double ls = limit_junction(gs_new, gs_old, dv.nvt_v, dv.vcrit_v);
+          if (ls != gs_new) alpha = std::min(alpha, std::max(1e-3, (ls - gs_old) / (gs_new - gs_old)));
+          const double ld = limit_junction(gd_new, gd_old, dv.nvt_v, dv.vcrit_v);
+          if (ld != gd_new) alpha = std::min(alpha, std::max(1e-3, (ld - gd_old) / (gd_new - gd_old)));
+        }
+      }
+      if (alpha < 1.0) {
+        d *= alpha;
+        limited = true;
+      }
+    }
+
+    bool small = !limited;
+    for (int j = 0; j < k && small; ++j)
+      small = detail::small_junction_steps(g.dev[static_cast<std::size_t>(j)], d[2 * j], d[2 * j] - d[2 * j + 1]);
+    if (small) {
+      for (int j = 0; j < k; ++j) {
+        const detail::step_remainders sr = detail::remainders_of(
+            g.dev[static_cast<std::size_t>(j)], g.cur[static_cast<std::size_t>(j)], v[2 * j] + d[2 * j], v[2 * j + 1] + d[2 * j + 1], d[2 * j],
+            d[2 * j + 1]);
+        for (int q = 0; q < 3; ++q) {
+          rem[3 * j + q] = sr.rem[q];
+          mag[3 * j + q] = sr.mag[q];
+        }
+      }
+      // allowed: the rounding of each row, up to the allowance; t: the residual bound less
+      // what is allowed (so t <= tol_v is the test of the residual).
+      allowed.noalias() = f_abs * mag;
+      allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
+      t.noalias() = f_abs * rem;
+      t += (allowed.array() - rounding_allowance_v).max(0.0).matrix();
+      allowed = allowed.cwiseMin(rounding_allowance_v);
+      if (t.maxCoeff() <= tol) {
+        inverse_of(g.j, g.piv, out.m);
+        const double* md = out.m.data();
+        for (int row = 0; row < np; ++row) {
+          double sum = 0.0;
+          for (int c = 0; c < np; ++c) sum += std::fabs(md[row + c * np]) * t[c];
+          bound[row] = sum;
+        }
+        if (bound.maxCoeff() <= tol) {
+          if (opt_.confirm) {
+            bound = v + d;  // the accepted point (bound is free now)
+            for (int j = 0; j < k; ++j) {
+              const detail::port_currents cc =
+                  detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], bound[2 * j], bound[2 * j + 1]);
+              rem[3 * j] = cc.igs_a;
+              rem[3 * j + 1] = cc.igd_a;
+              rem[3 * j + 2] = cc.id_a;
+              g.cur[static_cast<std::size_t>(j)] = cc;
+            }
+            ++evals;
+            t = p - bound;
+            t.noalias() += f * rem;
+            if (!(t.cwiseAbs().array() <= tol + allowed.array()).all()) {
+              ++stats_.bound_misses;
+            } else {
+              out.v = g.bound;
+              i = rem;
+              for (int j = 0; j < k; ++j) put_block(out.jf, j, g.cur[static_cast<std::size_t>(j)]);
+              return true;
+            }
+          } else {
+            Eigen::Map<vec_p>(out.v.data(), np) = v + d;
+            for (int j = 0; j < k; ++j) {
+              const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
+              const double d0 = d[2 * j], d1 = d[2 * j + 1];
+              i[3 * j] = c.igs_a + c.ggs_s * d0;
+              i[3 * j + 1] = c.igd_a + c.ggd_s * (d0 - d1);
+              i[3 * j + 2] = c.id_a + (c.gm_s * d0 + c.gds_s * d1);
+              put_block(out.jf, j, c);
+            }
+            return true;
+          }
+        }
+      }
+    }
+    base = v;
+    step = d;
+    rn_base = rn;
+    may_damp = !limited;
+    halvings = 0;
+    v += d;
+  }
+  return false;
+}
+
+// As substep(): the change of p over the sample split into 2, 4, ... parts, each solved
+// from the last; what still fails is held at the previous solution and counted.
+template <int K>
+void dk_engine::substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept {
+  general_path& g = g_;
+  for (int level = 1; level <= opt_.max_substep_levels; ++level) {
+    const int parts = 1 << level;
+    g.cur_pt = g.last;
+    g.pc = g.p_last;
+    bool ok = true;
+    for (int j = 1; j <= parts && ok; ++j) {
+      if (j == parts)
+        g.pj = p;
+      else
+        g.pj = g.p_last + (p - g.p_last) * (double(j) / parts);
+      g.dp = g.pj - g.pc;
+      add_product(g.cur_pt.v.data(), g.cur_pt.m, g.dp.data(), g.guess.data());
+      ok = solve_general<K>(g.pj, g.guess, g.next_pt, evals);
+      if (ok) {
+        g.cur_pt = g.next_pt;
+        g.pc = g.pj;
+      }
+    }
+    if (ok) {
+      out = g.cur_pt;
+      ++stats_.substepped;
+      return;
+    }
+  }
+  ++stats_.failed;
+  out = g.last;
+}
+
+template <int K>
+double dk_engine::process_k(double generator_v) noexcept {
+  using vec_p = Eigen::Matrix<double, ports_of(K), 1>;
+  using mat_p = Eigen::Matrix<double, ports_of(K), ports_of(K)>;
+  general_path& g = g_;
+  const int ns = m_.states, k = K > 0 ? K : m_.devices, np = 2 * k, ni = 3 * k;
+  const int rows = ns + np + 1;
+  const double ug = sign_ * generator_v;
+  in_[ns + 1] = ug;
+  // W's x and u columns times [x; u], column by column (plain loops; see the file comment).
+  {
+    const double* __restrict w = g.w.data();
+    const double* __restrict xu = in_.data();
+    double* __restrict pre = g.pre.data();
+    for (int row = 0; row < rows; ++row) pre[row] = 0.0;
+    for (int c = 0; c < ns + 2; ++c) {
+      const double x = xu[c];
+      const double* __restrict wc = w + static_cast<std::ptrdiff_t>(c) * rows;
+      for (int row = 0; row < rows; ++row) pre[row] += wc[row] * x;
+    }
+  }
+  Eigen::Map<vec_p> p(g.p.data(), np), q(g.q.data(), np), p_last(g.p_last.data(), np), dp(g.dp.data(), np),
+      guess(g.guess.data(), np);
+  const Eigen::Map<const vec_p> e0(m_.e.col(0).data(), np), e1(m_.e.col(1).data(), np);
+  p = q + e0 * supply_v_ + e1 * ug;
+
+  // Warm start as for one JFET: the last solution moved along the step of p by dv/dp at
+  // the last three samples (Adams-Bashforth weights warm_; dk_engine.cpp, step_t).
+  {
+    using map_m = Eigen::Map<const mat_p>;
+    Eigen::Map<vec_p> mdl(g.mdl.data(), np);
+    dp = p - p_last;
+    guess = Eigen::Map<const vec_p>(g.last.v.data(), np);
+    mdl.noalias() = map_m(g.last.m.data(), np, np) * dp;
+    guess += warm_[0] * mdl;
+    mdl.noalias() = map_m(g.m_prev.data(), np, np) * dp;
+    guess += warm_[1] * mdl;
+    mdl.noalias() = map_m(g.m_prev2.data(), np, np) * dp;
+    guess += warm_[2] * mdl;
+  }
+
+  int evals = 0;
+  if (!solve_general<K>(g.p, g.guess, g.trial, evals)) substep_general<K>(g.p, g.trial, evals);
+
+  // The dv/dp history for the next warm start: m_prev2 <- m_prev <- the last solution's
+  // (a swap of storage and a copy of the same size: no allocation).
+  g.m_prev2.swap(g.m_prev);
+  g.m_prev = g.last.m;
+  std::swap(g.last, g.trial);  // swaps storage: no copy, no allocation
+  p_last = p;
+
+  // The current columns of W times i, onto the pre-computed part.
+  {
+    const double* __restrict w = g.w.data();
+    const double* __restrict pre = g.pre.data();
+    const double* __restrict cur = g.last.i.data();
+    double* __restrict o = g.out.data();
+    double* __restrict x_in = in_.data();
+    for (int row = 0; row < rows; ++row) o[row] = pre[row];
+    for (int c = 0; c < ni; ++c) {
+      const double x = cur[c];
+      x_in[ns + 2 + c] = x;
+      const double* __restrict wc = w + static_cast<std::ptrdiff_t>(ns + 2 + c) * rows;
+      for (int row = 0; row < rows; ++row) o[row] += wc[row] * x;
+    }
+    for (int row = 0; row < ns; ++row) x_in[row] += o[row];
+  }
+  q = Eigen::Map<const vec_p>(g.out.data() + ns, np);
+
+  ++stats_.samples;
+  stats_.evaluations += evals;
+  stats_.max_evaluations = std::max(stats_.max_evaluations, evals);
+  return sign_ * g.out[ns + np];
+}
+
+double dk_engine::process_general(double generator_v) noexcept {
+  switch (m_.devices) {
+    case 2: return process_k<2>(generator_v);
+    case 3: return process_k<3>(generator_v);
+    case 4: return process_k<4>(generator_v);
+    default: return process_k<0>(generator_v);
+  }
+}
+
+}  // namespace pinchoff::model

@@ -1,0 +1,177 @@
+#include "model/engine/steady_state.hpp"
+
+#include <cmath>
+#include <limits>
+#include <numbers>
+
+#include "base/error.hpp"
+
+namespace pinchoff::model {
+namespace {
+
+struct period_run {
+  Eigen::VectorXd end_state;
+  double sum_vgs_v{0}, sum_vds_v{0};
+  bool finite{true};
+};
+
+// One period from the engine's current state; the monodromy into `m` when given.
+period_run run_period(dk_engine& eng, const std::vector<double>& drive, double* out, Eigen::MatrixXd* m) {
+  period_run r;
+  if (m) m->setIdentity();
+  for (std::size_t n = 0; n < drive.size(); ++n) {
+    const double y = m ? eng.process_tracked(drive[n], *m) : eng.process(drive[n]);
+    if (out) out[n] = y;
+    if (!std::isfinite(y)) r.finite = false;
+    const Eigen::Vector2d v = eng.ports_v();
+    r.sum_vgs_v += v[0];
+    r.sum_vds_v += v[1];
+  }
+  r.end_state = eng.state();
+  if (!r.end_state.allFinite()) r.finite = false;
+  return r;
+}
+
+double max_abs(const Eigen::VectorXd& v) { return v.size() ? v.cwiseAbs().maxCoeff() : 0.0; }
+
+// Newton correction for the period map: solves (M - I) dx = -(phi - x0) in the least-
+// squares, minimum-norm sense. Directions where M - I is singular are left alone: they are
+// the undamped alternating modes the trapezoidal rule gives a loop of capacitors and ideal
+// sources (eigenvalue -1 per sample, +1 per even period), which the drive does not excite.
+Eigen::VectorXd newton_correction(const Eigen::MatrixXd& m, const Eigen::VectorXd& residual) {
+  if (m.rows() == 0) return Eigen::VectorXd(0);
+  const Eigen::MatrixXd j = m - Eigen::MatrixXd::Identity(m.rows(), m.cols());
+  Eigen::CompleteOrthogonalDecomposition<Eigen::MatrixXd> cod;
+  cod.setThreshold(1e-11);
+  cod.compute(j);
+  return cod.solve(-residual);
+}
+
+}  // namespace
+
+steady_state_result periodic_steady_state(dk_engine& eng, double amplitude_v, int samples_per_period,
+                                          const steady_state_options& opt) {
+  if (samples_per_period < 4) throw internal_error("periodic_steady_state: a period needs at least 4 samples");
+  if (!std::isfinite(amplitude_v)) throw internal_error("periodic_steady_state: the amplitude must be finite");
+  const int p = samples_per_period;
+  std::vector<double> drive(static_cast<std::size_t>(p));
+  if (opt.cycles < 1 || 2 * opt.cycles >= p) throw internal_error("periodic_steady_state: cycles must be in [1, samples/2)");
+  for (int n = 0; n < p; ++n)
+    drive[static_cast<std::size_t>(n)] = amplitude_v * std::sin(2.0 * std::numbers::pi * double(opt.cycles) * n / p);
+  steady_state_result res = periodic_steady_state(eng, drive, opt);
+  res.frequency_hz = eng.sample_rate_hz() * opt.cycles / p;
+  return res;
+}
+
+steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<double>& drive,
+                                          const steady_state_options& opt) {
+  if (drive.size() < 4) throw internal_error("periodic_steady_state: a period needs at least 4 samples");
+  if (opt.periods_out < 1) throw internal_error("periodic_steady_state: periods_out must be at least 1");
+  for (double d : drive)
+    if (!std::isfinite(d)) throw internal_error("periodic_steady_state: the drive must be finite");
+  const int p = static_cast<int>(drive.size());
+  const int ns = eng.states();
+
+  steady_state_result res;
+  res.frequency_hz = eng.sample_rate_hz() / p;
+  res.samples_per_period = p;
+  res.output_v.assign(static_cast<std::size_t>(p) * static_cast<std::size_t>(opt.periods_out), 0.0);
+
+  eng.reset();
+  Eigen::VectorXd x0 = eng.dc_state();
+  Eigen::MatrixXd m(ns, ns);
+  Eigen::VectorXd best_x0 = x0;
+  double best_distance = std::numeric_limits<double>::infinity();
+  period_run run;
+
+  // Shooting: Newton on x0, damped by step halving where a full step does not shorten the
+  // estimated distance to the periodic solution (hard drive makes the period map strongly
+  // nonlinear: gate conduction recharges the coupling capacitors within a period).
+  auto shoot = [&](const Eigen::VectorXd& start, Eigen::VectorXd& r, Eigen::VectorXd& dx) {
+    eng.set_state(start);
+    run = run_period(eng, drive, res.output_v.data(), &m);
+    ++res.periods_simulated;
+    if (!run.finite) return std::numeric_limits<double>::infinity();
+    r = run.end_state - start;
+    dx = newton_correction(m, r);
+    return dx.allFinite() ? max_abs(dx) : std::numeric_limits<double>::infinity();
+  };
+  Eigen::VectorXd r(ns), dx(ns), r_try(ns), dx_try(ns);
+  double distance = shoot(x0, r, dx);
+  int periods_left = opt.max_shooting_iterations * 3;
+  while (std::isfinite(distance)) {
+    res.state_change_v = max_abs(r);
+    res.distance_v = distance;
+    if (distance < best_distance) {
+      best_distance = distance;
+      best_x0 = x0;
+    }
+    if (distance <= opt.tol_v || res.state_change_v == 0.0) {
+      res.converged = true;
+      break;
+    }
+    if (res.shooting_iterations >= opt.max_shooting_iterations || periods_left <= 0) break;
+    double lambda = 1.0, d_try = std::numeric_limits<double>::infinity();
+    Eigen::VectorXd x_try = x0;
+    for (int h = 0; h < 6 && periods_left > 0; ++h, lambda *= 0.5) {
+      x_try = x0 + lambda * dx;
+      d_try = shoot(x_try, r_try, dx_try);
+      --periods_left;
+      if (d_try < distance) break;
+    }
+    ++res.shooting_iterations;
+    // Without a shorter distance even at the smallest step the last trial is kept anyway
+    // (the iteration cap ends a hopeless case); a non-finite one ends it now.
+    if (!std::isfinite(d_try)) break;
+    x0 = x_try;
+    r = r_try;
+    dx = dx_try;
+    distance = d_try;
+  }
+
+  // Fallback: settle from the best start found, one period at a time.
+  if (!res.converged) {
+    res.used_settling = true;
+    eng.set_state(best_x0);
+    Eigen::VectorXd start = best_x0;
+    for (int k = 0; k < opt.max_settle_periods; ++k) {
+      run = run_period(eng, drive, res.output_v.data(), &m);
+      ++res.periods_simulated;
+      if (!run.finite) break;
+      const Eigen::VectorXd r = run.end_state - start;
+      const Eigen::VectorXd dx = newton_correction(m, r);
+      res.state_change_v = max_abs(r);
+      res.distance_v = dx.allFinite() ? max_abs(dx) : std::numeric_limits<double>::infinity();
+      start = run.end_state;
+      if (res.distance_v <= opt.tol_v) {
+        res.converged = true;
+        break;
+      }
+    }
+  }
+
+  // The returned periods: the first is the last one run; more follow from its end.
+  double sum_vgs = run.sum_vgs_v, sum_vds = run.sum_vds_v;
+  for (int k = 1; k < opt.periods_out && run.finite; ++k) {
+    const period_run more = run_period(eng, drive, res.output_v.data() + static_cast<std::ptrdiff_t>(k) * p, nullptr);
+    ++res.periods_simulated;
+    sum_vgs += more.sum_vgs_v;
+    sum_vds += more.sum_vds_v;
+  }
+  const double count = static_cast<double>(p) * opt.periods_out;
+  res.mean_vgs_v = sum_vgs / count;
+  res.mean_vds_v = sum_vds / count;
+  double sum_y = 0.0;
+  for (double y : res.output_v) sum_y += y;
+  res.mean_output_v = sum_y / count;
+  res.engine = eng.stats();
+  return res;
+}
+
+steady_state_result periodic_steady_state(const network& net, const operating_point& op, double sample_rate_hz,
+                                          double amplitude_v, int samples_per_period, const steady_state_options& opt) {
+  dk_engine eng(net, op, sample_rate_hz, opt.engine);
+  return periodic_steady_state(eng, amplitude_v, samples_per_period, opt);
+}
+
+}  // namespace pinchoff::model

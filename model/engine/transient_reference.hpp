@@ -1,0 +1,61 @@
+#pragma once
+// The plain time-domain reference: on every sample the whole network is solved by the
+// general nodal Newton of model/nodal.hpp (assemble_linear with trapezoidal companion
+// capacitors, G = 2C/T, then solve_nodal), with the same device model and the same
+// trapezoidal rule as the DK engine. Slow and simple on purpose: tests compare the fast
+// engine with it sample by sample.
+#include <vector>
+
+#include <Eigen/Dense>
+
+#include "model/circuit/network.hpp"
+#include "model/circuit/nodal.hpp"
+#include "model/circuit/operating_point.hpp"
+
+namespace pinchoff::model {
+
+struct reference_stats {
+  long long samples{0};
+  long long iterations{0};  ///< nodal Newton iterations, all samples
+  long long failed{0};      ///< samples whose nodal Newton did not converge
+};
+
+/// Nodal Newton tolerances for the reference: a last step below 1e-10 V + 1e-12 |v| (the
+/// error after it is far smaller still, by quadratic convergence). Not tighter: with
+/// companion conductances 2C/T of tens of siemens the node voltages are solved from history
+/// currents of tens of amperes, and rounding (eps times that current over the smallest
+/// conductance the node sees, measured at about 2e-11 V on an 18 V stage) makes the last
+/// Newton steps alternate at that level forever.
+inline nodal_options transient_nodal_options() {
+  nodal_options o;
+  o.vtol_v = 1e-10;
+  o.vtol_rel = 1e-12;
+  return o;
+}
+
+class transient_reference {
+ public:
+  /// Starts at the DC operating point `op`: every capacitor at its DC voltage, no current.
+  transient_reference(const network& net, const operating_point& op, double sample_rate_hz,
+                      const nodal_options& opt = transient_nodal_options());
+
+  /// One sample: generator open-circuit voltage in, voltage across the load out (real volts).
+  double process(double generator_v);
+
+  /// Port voltages (vgs, vds) of JFET `device` (0: the first) at the last sample, real signs.
+  Eigen::Vector2d ports_v(int device = 0) const;
+  /// The full network solution of the last sample (network frame).
+  const Eigen::VectorXd& solution() const noexcept { return x_; }
+  const reference_stats& stats() const noexcept { return stats_; }
+
+ private:
+  network net_;
+  nodal_options opt_;
+  double t_s_{0};
+  std::vector<cap_treatment> caps_;
+  std::vector<double> cap_v_, cap_i_;  // voltage a - b and current a -> b of each capacitor
+  Eigen::VectorXd x_;
+  reference_stats stats_;
+};
+
+}  // namespace pinchoff::model

@@ -1,0 +1,115 @@
+// Value, level and frequency parsing; level constants.
+#include <cmath>
+
+#include <doctest/doctest.h>
+
+#include "base/error.hpp"
+#include "base/units.hpp"
+
+using namespace pinchoff;
+using namespace pinchoff::base;
+
+TEST_CASE("letter-and-digit codes read as IEC 60062 defines them") {
+  struct row {
+    const char* source;
+    const char* text;
+    unit u;
+    double value;
+  };
+  const row rows[] = {
+      {"IEC 60062: R47 = 0.47 ohm", "R47", unit::ohm, 0.47},
+      {"IEC 60062: 4R7 = 4.7 ohm", "4R7", unit::ohm, 4.7},
+      {"IEC 60062: 4K7 = 4.7 kohm", "4K7", unit::ohm, 4700},
+      {"IEC 60062: 4k7 = 4.7 kohm", "4k7", unit::ohm, 4700},
+      {"IEC 60062: 47K3 = 47.3 kohm", "47K3", unit::ohm, 47300},
+      {"IEC 60062: 4M7 = 4.7 Mohm", "4M7", unit::ohm, 4.7e6},
+      {"IEC 60062: 2n2 = 2.2 nF", "2n2", unit::farad, 2.2e-9},
+      {"IEC 60062: 4p7 = 4.7 pF", "4p7", unit::farad, 4.7e-12},
+      {"IEC 60062: 100n = 100 nF", "100n", unit::farad, 100e-9},
+      {"IEC 60062 style: 2m2 = 2.2 milli", "2m2", unit::none, 2.2e-3},
+      {"IEC 60062 style: 470R = 470 ohm", "470R", unit::ohm, 470},
+  };
+  for (const row& r : rows) {
+    CAPTURE(r.source);
+    CHECK(parse_value(r.text, r.u) == doctest::Approx(r.value).epsilon(1e-12));
+  }
+}
+
+TEST_CASE("SI prefixes and optional unit symbols are read") {
+  struct row {
+    const char* source;
+    const char* text;
+    unit u;
+    double value;
+  };
+  const row rows[] = {
+      {"SI prefix k = 1e3", "4.7k", unit::ohm, 4700},
+      {"SI prefix M = 1e6 (mega)", "1M", unit::ohm, 1e6},
+      {"SI prefix m = 1e-3 (milli)", "1m", unit::none, 1e-3},
+      {"SI prefix u = micro", "22u", unit::farad, 22e-6},
+      {"SI prefix µ (U+00B5) = micro", "22\xC2\xB5", unit::farad, 22e-6},
+      {"SI prefix n = 1e-9 with unit", "100nF", unit::farad, 100e-9},
+      {"ohm sign after prefix", "4.7k\xCE\xA9", unit::ohm, 4700},
+      {"plain number", "1e-7", unit::farad, 1e-7},
+      {"negative", "-1.8", unit::volt, -1.8},
+      {"milliamps with unit", "2.5mA", unit::ampere, 2.5e-3},
+      {"kilohertz", "1kHz", unit::hertz, 1000},
+  };
+  for (const row& r : rows) {
+    CAPTURE(r.source);
+    CHECK(parse_value(r.text, r.u) == doctest::Approx(r.value).epsilon(1e-12));
+  }
+}
+
+TEST_CASE("malformed values are refused with the text in the message") {
+  for (const char* bad : {"", "k", "4.7kk", "4.7.1", "abc", "4k7k", "4.7k7", "1x", "inf", "nan", "--1", "1 F"}) {
+    CAPTURE(bad);
+    CHECK_THROWS_AS(parse_value(bad, unit::ohm, "drain.resistor"), input_error);
+  }
+  try {
+    parse_value("4.7kk", unit::ohm, "drain.resistor");
+  } catch (const input_error& e) {
+    CHECK(std::string(e.what()).find("drain.resistor") != std::string::npos);
+    CHECK(std::string(e.what()).find("4.7kk") != std::string::npos);
+  }
+}
+
+TEST_CASE("dBu and dBV references") {
+  // CHECKS.md: 0 dBu = sqrt(0.6) V rms = 0.7746 V; +4 dBu = 1.228 V rms; -10 dBV = -7.78 dBu.
+  CHECK(dbu_reference_vrms == doctest::Approx(0.7746).epsilon(1e-4));
+  CHECK(vpk_from_dbu(4.0) / sqrt2 == doctest::Approx(1.228).epsilon(1e-3));
+  CHECK(dbu_from_vpk(vpk_from_dbv(-10.0)) == doctest::Approx(-7.78).epsilon(1e-3));
+  CHECK(dbv_from_vpk(sqrt2) == doctest::Approx(0.0).epsilon(1e-12));
+}
+
+TEST_CASE("levels convert to volts peak") {
+  struct row {
+    const char* source;
+    const char* text;
+    double vpk;
+  };
+  const row rows[] = {
+      {"peak as given", "100mVpk", 0.1},
+      {"rms of a sine: pk = rms * sqrt 2 (definition)", "300mVrms", 0.3 * std::sqrt(2.0)},
+      {"peak-to-peak / 2 (definition)", "2Vpp", 1.0},
+      {"0 dBu = sqrt(0.6) Vrms (CHECKS.md)", "0dBu", std::sqrt(0.6) * std::sqrt(2.0)},
+      {"-20 dBV = 0.1 Vrms (definition)", "-20dBV", 0.1 * std::sqrt(2.0)},
+      {"bare number is volts peak (design)", "0.5", 0.5},
+      {"plus sign", "+4dBu", std::sqrt(0.6) * std::pow(10.0, 0.2) * std::sqrt(2.0)},
+  };
+  for (const row& r : rows) {
+    CAPTURE(r.source);
+    CHECK(parse_level_vpk(r.text) == doctest::Approx(r.vpk).epsilon(1e-12));
+  }
+  CHECK_THROWS_AS(parse_level_vpk("0.5", true), input_error);
+  CHECK_THROWS_AS(parse_level_vpk("-1Vpk"), input_error);
+  CHECK_THROWS_AS(parse_level_vpk("loud"), input_error);
+}
+
+TEST_CASE("SI formatting picks the prefix and keeps significant digits") {
+  CHECK(format_si(4700, "Ω") == "4.70 kΩ");
+  CHECK(format_si(-0.00259, "A") == "-2.59 mA");
+  CHECK(format_si(999.7, "V") == "1.00 kV");
+  CHECK(format_si(22e-6, "F") == "22.0 µF");
+  CHECK(format_si(0.0, "V") == "0 V");
+}

@@ -1,0 +1,227 @@
+// `pinchoff measure` on synthesised recordings written to float WAV files (no quantisation
+// to mask low harmonics), run in-process: Fourier-series waveforms, known harmonic lines,
+// known added noise, and files it must refuse.
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <fstream>
+#include <numbers>
+#include <random>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "base/units.hpp"
+#include "cli/app.hpp"
+#include "dsp/io/sound_file.hpp"
+#include "support/cli_runner.hpp"
+#include "support/scratch_dir.hpp"
+
+using namespace pinchoff::dsp;
+using namespace pinchoff::base;
+using pinchoff::testing::scratch_dir;
+
+namespace {
+using result = pinchoff::testing::cli_result;
+constexpr auto run = pinchoff::testing::run_cli;
+
+struct line {
+  double freq_hz, amplitude, phase_rad;
+};
+
+// Sum of sines, phase reduced per line so that long records stay exact.
+std::vector<double> lines_signal(double fs, double seconds, const std::vector<line>& lines) {
+  std::vector<double> x(static_cast<std::size_t>(std::llround(fs * seconds)), 0.0);
+  for (const line& l : lines)
+    for (std::size_t t = 0; t < x.size(); ++t) {
+      const double turns = l.freq_hz * static_cast<double>(t) / fs;
+      x[t] += l.amplitude * std::sin(2 * std::numbers::pi * (turns - std::floor(turns)) + l.phase_rad);
+    }
+  return x;
+}
+
+void write_float_wav(const std::string& path, double fs, const std::vector<double>& x) {
+  write_settings s;
+  s.rate_hz = fs;
+  s.format = sample_format::wav_float;
+  sound_writer w = sound_writer::create(path, s);
+  w.write(x);
+  w.commit();
+}
+
+nlohmann::json measure_json(const std::vector<std::string>& extra) {
+  std::vector<std::string> args{"measure", "--json"};
+  args.insert(args.end(), extra.begin(), extra.end());
+  const result r = run(args);
+  INFO(r.err);
+  REQUIRE(r.status == 0);
+  return nlohmann::json::parse(r.out);
+}
+}  // namespace
+
+TEST_CASE("band-limited square and triangle waves give the THD of their Fourier series") {
+  // Any text on Fourier series: square wave, odd harmonics of amplitude 1/n; triangle wave,
+  // odd harmonics 1/n^2 with alternating sign. Full series: THD = sqrt(pi^2/8 - 1) =
+  // 48.343 % and sqrt(pi^4/96 - 1) = 12.115 % (CHECKS.md). Band-limited: only the
+  // harmonics up to N count, so the expected THD is sqrt(sum_{odd n=3..N} a_n^2) / a_1,
+  // computed here from the definition. Tolerance: 0.05 dB per harmonic (the requirement),
+  // so 0.6 % relative on THD.
+  struct row {
+    const char* source;
+    const char* wave;
+    double f1_hz;
+    int highest;  // highest harmonic synthesised and counted
+    int power;    // a_n = 1/n^power
+  };
+  const row rows[] = {
+      {"Fourier series, square, H2..H10", "square", 1001.3, 10, 1},
+      {"Fourier series, square, H2..H19 (all below 20 kHz)", "square", 1001.3, 19, 1},
+      {"Fourier series, square, H2..H45 (all below 20 kHz)", "square", 440.7, 45, 1},
+      {"Fourier series, triangle, H2..H10", "triangle", 1001.3, 10, 2},
+      {"Fourier series, triangle, H2..H45", "triangle", 440.7, 45, 2},
+  };
+  scratch_dir dir;
+  const double fs = 48000.0;
+  for (const row& r : rows) {
+    INFO(std::string(r.source));
+    std::vector<line> lines;
+    double sum_sq = 0.0;
+    for (int n = 1; n <= r.highest; n += 2) {
+      const double a = 0.4 / std::pow(n, r.power);
+      const double sign = r.power == 2 && (n / 2) % 2 == 1 ? -1.0 : 1.0;
+      lines.push_back({n * r.f1_hz, sign * a, 0.0});
+      if (n > 1) sum_sq += (a / 0.4) * (a / 0.4);
+    }
+    const double expected_percent = 100.0 * std::sqrt(sum_sq);
+    const std::string path = dir.file(std::string(r.wave) + std::to_string(r.highest) + ".wav");
+    write_float_wav(path, fs, lines_signal(fs, 2.0, lines));
+    const auto j = measure_json({path, "--harmonics", std::to_string(r.highest)});
+    CHECK(j["thd_percent"].get<double>() == doctest::Approx(expected_percent).epsilon(0.006));
+    CHECK(std::abs(j["fundamental_hz"].get<double>() - r.f1_hz) <= 1e-4);
+    CHECK(std::abs(j["fundamental_dbfs"].get<double>() - 20 * std::log10(0.4)) <= 0.05);
+    const auto& h = j["harmonics_dbc"];
+    REQUIRE(h.size() == static_cast<std::size_t>(r.highest - 1));
+    for (int n = 3; n <= r.highest; n += 2) {
+      CAPTURE(n);
+      CHECK(std::abs(h[static_cast<std::size_t>(n - 2)].get<double>() + 20.0 * r.power * std::log10(n)) <= 0.05);
+    }
+  }
+  // The full series is approached from below as N grows (closed form as the limit).
+  CHECK(100.0 * std::sqrt(std::pow(std::numbers::pi, 2) / 8 - 1) == doctest::Approx(48.343).epsilon(1e-4));
+  CHECK(100.0 * std::sqrt(std::pow(std::numbers::pi, 4) / 96 - 1) == doctest::Approx(12.115).epsilon(1e-4));
+}
+
+TEST_CASE("harmonics at -60 and -100 dBc off the bin grid are read within 0.05 dB") {
+  // closed form: the synthetic lines themselves; 0.05 dB is the requirement (issue text).
+  // Float WAV stores 24 significant bits: rounding noise near -150 dBFS, far under the
+  // -100 dBc line of a -6 dBFS tone (-106 dBFS).
+  scratch_dir dir;
+  const double fs = 48000.0, f1 = 997.31, a1 = 0.5;
+  const std::string path = dir.file("lines.wav");
+  write_float_wav(path, fs,
+                  lines_signal(fs, 3.0, {{f1, a1, 0.3}, {2 * f1, a1 * 1e-3, 1.1}, {3 * f1, a1 * 1e-5, -0.7}}));
+  struct row {
+    const char* source;
+    const char* window;
+  };
+  const row rows[] = {{"closed form, Blackman-Harris (Harris 1978)", "blackman-harris"},
+                      {"closed form, flat-top HFT90D (Heinzel et al. 2002)", "flat-top"}};
+  for (const row& r : rows) {
+    INFO(std::string(r.source));
+    const auto j = measure_json({path, "--freq", "1k", "--window", r.window});
+    CHECK(std::abs(j["harmonics_dbc"][0].get<double>() + 60.0) <= 0.05);
+    CHECK(std::abs(j["harmonics_dbc"][1].get<double>() + 100.0) <= 0.05);
+    CHECK(j["harmonics_dbc"][2].get<double>() < -140.0);
+    CHECK(std::abs(j["fundamental_hz"].get<double>() - f1) <= 1e-4);
+    CHECK(std::abs(j["fundamental_dbfs"].get<double>() - 20 * std::log10(a1)) <= 0.01);
+    // THD = sqrt(1e-6 + 1e-10) (definition, IEC 61000-2-2 usage)
+    CHECK(j["thd_percent"].get<double>() == doctest::Approx(100 * std::sqrt(1e-6 + 1e-10)).epsilon(0.006));
+  }
+}
+
+TEST_CASE("THD+N of a tone with known white noise is read within 0.2 dB") {
+  // closed form: white noise of variance s^2 puts s^2 * B / (fs/2) in a band B; THD+N
+  // (AES17) = sqrt(noise in band / (tone power + noise in band)). 0.2 dB is the requirement;
+  // 240000 samples estimate the noise power to about 0.3 % (0.013 dB), 1 sigma.
+  scratch_dir dir;
+  const double fs = 48000.0, a1 = 0.5, sigma = 1e-3;
+  std::vector<double> x = lines_signal(fs, 5.0, {{1234.5, a1, 0.0}});
+  std::mt19937_64 gen(42);
+  std::normal_distribution<double> noise(0.0, sigma);
+  for (double& v : x) v += noise(gen);
+  const std::string path = dir.file("noisy.wav");
+  write_float_wav(path, fs, x);
+  const auto j = measure_json({path});
+  const double band_hz = j["bandwidth_hz"].get<double>() - 20.0;
+  const double pn = sigma * sigma * band_hz / (fs / 2);
+  const double expected_db = 10 * std::log10(pn / (a1 * a1 / 2 + pn));
+  CHECK(std::abs(j["thd_n_db"].get<double>() - expected_db) <= 0.2);
+  CHECK(std::abs(j["noise_dbfs"].get<double>() - 10 * std::log10(2 * pn)) <= 0.2);  // dBFS of rms: +3.01 dB
+}
+
+TEST_CASE("measure reads a tone file written by tone, skipping its fades") {
+  // The loop: 24-bit TPDF-dithered tone; dither noise has power step^2/4 (Lipshitz,
+  // Wannamaker & Vanderkooy 1992), rms 2^-24 over 0..fs/2, which in the 20 Hz..20 kHz
+  // band of 48 kHz is 10 log10(2 * 2^-48 * 19980/24000) = -142.3 dBFS. Without the fades
+  // skipped the ramps would read near -117 dBFS.
+  scratch_dir dir;
+  const std::string path = dir.file("loop.wav");
+  REQUIRE(run({"tone", "--freq", "1k", "--level", "-10dBFS", "--seconds", "2", path}).status == 0);
+  const auto j = measure_json({path});
+  CHECK(j["ends_skipped"] == true);
+  CHECK(std::abs(j["fundamental_dbfs"].get<double>() + 10.0) <= 0.01);
+  CHECK(std::abs(j["noise_dbfs"].get<double>() - 10 * std::log10(2 * std::ldexp(1.0, -48) * 19980.0 / 24000.0)) <= 1.0);
+}
+
+TEST_CASE("measure writes the spectrum plot and its text report") {
+  scratch_dir dir;
+  const std::string wav = dir.file("p.wav"), svg = dir.file("p.svg");
+  write_float_wav(wav, 48000.0, lines_signal(48000.0, 1.0, {{1000.3, 0.5, 0}, {2000.6, 0.005, 0}}));
+  const result r = run({"measure", wav, "--plot", svg});
+  REQUIRE(r.status == 0);
+  for (const char* part : {"Fundamental", "Harmonics", "THD (H2..H10)", "THD+N", "noise"}) {
+    CAPTURE(part);
+    CHECK(r.out.find(part) != std::string::npos);
+  }
+  std::ifstream in(svg);
+  const std::string text((std::istreambuf_iterator<char>(in)), {});
+  CHECK(text.find("<svg") != std::string::npos);
+  CHECK(text.find(">H2<") != std::string::npos);
+  CHECK(text.find("level (dBFS, sine peak)") != std::string::npos);
+}
+
+TEST_CASE("measure refuses bad recordings with status 2 and nothing on stdout") {
+  scratch_dir dir;
+  std::ofstream(dir.file("text.wav")) << "not audio at all\n";
+  write_float_wav(dir.file("short.wav"), 48000.0, std::vector<double>(40, 0.1));
+  write_float_wav(dir.file("silent.wav"), 48000.0, std::vector<double>(48000, 0.0));
+  write_float_wav(dir.file("ok.wav"), 48000.0, lines_signal(48000.0, 0.5, {{1000, 0.5, 0}}));
+  std::filesystem::copy_file(dir.file("ok.wav"), dir.file("cut.wav"));
+  std::filesystem::resize_file(dir.file("cut.wav"), 40000);
+  struct row {
+    std::vector<std::string> args;
+    const char* expect;
+  };
+  const row rows[] = {
+      {{"measure", dir.file("none.wav")}, "No such file"},
+      {{"measure", dir.file("text.wav")}, "not recognised"},
+      {{"measure", dir.file("cut.wav")}, "truncated"},
+      {{"measure", dir.file("short.wav")}, "at least 64"},
+      {{"measure", dir.file("silent.wav")}, "silent"},
+      {{"measure", dir.file("ok.wav"), "--channel", "2"}, "1 channel; --channel 2 does not exist"},
+      {{"measure", dir.file("ok.wav"), "--window", "hann"}, "unknown window"},
+      {{"measure", dir.file("ok.wav"), "--freq", "30k"}, "half the file's sample rate"},
+      {{"measure", dir.file("ok.wav"), "--start", "9"}, "beyond the end"},
+  };
+  for (const row& r : rows) {
+    std::string line;
+    for (const std::string& a : r.args) line += a + " ";
+    INFO(std::string(line));
+    const result res = run(r.args);
+    CHECK(res.status == 2);
+    CHECK(res.out.empty());
+    CHECK(res.err.find(r.expect) != std::string::npos);
+  }
+}

@@ -1,0 +1,155 @@
+// Tests of the real-input FFT against an independent oracle: a naive DFT summed in long
+// double (the oracle KissFFT's own testcpp.cc uses), and closed-form single-bin signals.
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <complex>
+#include <cstdint>
+#include <limits>
+#include <numbers>
+#include <random>
+#include <vector>
+
+#include "base/error.hpp"
+#include "dsp/fft.hpp"
+
+using pinchoff::dsp::real_fft;
+
+namespace {
+
+// X[k] = sum x[t] exp(-2 pi i k t / n) in long double. The phase index k*t is reduced mod n
+// in integers, so the only rounding is in the table of n roots and the sums.
+std::vector<std::complex<long double>> naive_dft(const std::vector<double>& x) {
+  const std::size_t n = x.size();
+  std::vector<std::complex<long double>> root(n);
+  const long double two_pi = 2.0L * std::numbers::pi_v<long double>;
+  for (std::size_t j = 0; j < n; ++j) {
+    const long double a = -two_pi * static_cast<long double>(j) / static_cast<long double>(n);
+    root[j] = {std::cos(a), std::sin(a)};
+  }
+  std::vector<std::complex<long double>> out(n / 2 + 1);
+  for (std::size_t k = 0; k < out.size(); ++k) {
+    std::complex<long double> s = 0;
+    std::size_t phase = 0;
+    for (std::size_t t = 0; t < n; ++t) {
+      s += static_cast<long double>(x[t]) * root[phase];
+      phase += k;
+      if (phase >= n) phase -= n;
+    }
+    out[k] = s;
+  }
+  return out;
+}
+
+std::vector<double> noise(std::size_t n, std::uint64_t seed) {
+  std::mt19937_64 rng(seed);
+  std::uniform_real_distribution<double> u(-1.0, 1.0);
+  std::vector<double> x(n);
+  for (double& v : x) v = u(rng);
+  return x;
+}
+
+}  // namespace
+
+TEST_CASE("real_fft matches a naive long-double DFT to eps*log2(n) for smooth and awkward sizes") {
+  // Norm-wise bound for a Cooley-Tukey FFT: ||X^ - X|| / ||X|| <= log2(n) * eta, with
+  // eta = mu + gamma_4 (sqrt 2 + mu), mu the twiddle error (Higham 2002, Thm 24.2; from memory).
+  // With u = eps/2, mu <= eps and gamma_4 ~ 4u: eta <= 4 eps. One level is added for the
+  // real-input post-processing. Generic radices (7, 11, 13) sum p terms in one stage;
+  // log2(p) levels understate that, so each such stage counts as p-1 levels.
+  struct row {
+    const char* source;
+    std::size_t n;
+    std::size_t generic_levels;  // sum of (p - 1 - log2 p) over radices above 5, rounded up
+  };
+  const row rows[] = {
+      {"naive DFT, n = 1 (identity)", 1, 0},
+      {"naive DFT, n = 2", 2, 0},
+      {"naive DFT, n = 3 (odd, complex path)", 3, 0},
+      {"naive DFT, n = 5", 5, 0},
+      {"naive DFT, n = 16 (power of two)", 16, 0},
+      {"naive DFT, n = 384 (1 kHz period at 384 kHz)", 384, 0},
+      {"naive DFT, n = 1152 = 384 * 3", 1152, 0},
+      {"naive DFT, n = 1920 = 384 * 5", 1920, 0},
+      {"naive DFT, n = 2688 = 384 * 7 (generic radix 7)", 2688, 4},
+      {"naive DFT, n = 4224 = 384 * 11 (generic radix 11)", 4224, 7},
+      {"naive DFT, n = 4096", 4096, 0},
+      {"naive DFT, n = 1001 = 7 * 11 * 13 (odd)", 1001, 4 + 7 + 9},
+  };
+  const double eps = std::numeric_limits<double>::epsilon();
+  for (const row& r : rows) {
+    INFO(std::string(r.source));
+    const std::vector<double> x = noise(r.n, 1000 + r.n);
+    const real_fft fft(r.n);
+    REQUIRE(fft.bins() == r.n / 2 + 1);
+    const auto got = fft.forward(x);
+    const auto ref = naive_dft(x);
+    long double err2 = 0, ref2 = 0;
+    for (std::size_t k = 0; k < ref.size(); ++k) {
+      err2 += std::norm(std::complex<long double>(got[k]) - ref[k]);
+      ref2 += std::norm(ref[k]);
+    }
+    const double rel = static_cast<double>(std::sqrt(err2 / ref2));
+    const double levels = std::log2(static_cast<double>(r.n)) + 1.0 + static_cast<double>(r.generic_levels);
+    const double bound = 4.0 * eps * levels;
+    CAPTURE(rel);
+    CAPTURE(bound);
+    CHECK(rel <= bound);
+  }
+}
+
+TEST_CASE("real_fft is unscaled: a sine of peak A on bin k reads A n / 2, DC reads n * mean") {
+  // Closed forms of the DFT definition in fft.hpp.
+  struct row {
+    const char* source;
+    std::size_t n, k;
+    double amplitude, offset;
+  };
+  const row rows[] = {
+      {"closed form: sum of A sin over whole cycles", 384, 1, 0.5, 0.0},
+      {"closed form: sum of A sin over whole cycles", 3840, 37, 2.0, 0.25},
+      {"closed form: sum of A sin over whole cycles, odd n", 999, 100, 1.0, -1.0},
+  };
+  for (const row& r : rows) {
+    INFO(std::string(r.source));
+    CAPTURE(r.n);
+    std::vector<double> x(r.n);
+    for (std::size_t t = 0; t < r.n; ++t)
+      x[t] = r.offset + r.amplitude * std::sin(2.0 * std::numbers::pi * static_cast<double>(r.k * t) /
+                                               static_cast<double>(r.n));
+    const auto X = real_fft(r.n).forward(x);
+    const double n = static_cast<double>(r.n);
+    CHECK(std::abs(X[r.k]) == doctest::Approx(r.amplitude * n / 2).epsilon(1e-12));
+    // A sine is -i A n/2 on its bin: its phase is -90 degrees.
+    CHECK(std::arg(X[r.k]) == doctest::Approx(-std::numbers::pi / 2).epsilon(1e-10));
+    // Absolute tolerance: rounding of n terms of size ~A, relative 1e-12 of the bin's scale.
+    CHECK(std::abs(X[0].real() - r.offset * n) <= 1e-12 * (std::abs(r.offset) + r.amplitude) * n);
+    CHECK(std::abs(X[0].imag()) == 0.0);
+  }
+}
+
+TEST_CASE("real_fft puts a cosine at Nyquist on the last bin with |X| = A n") {
+  // closed form: x[t] = A cos(pi t) = A (-1)^t sums to A n on bin n/2.
+  const std::size_t n = 768;
+  std::vector<double> x(n);
+  for (std::size_t t = 0; t < n; ++t) x[t] = (t % 2 == 0) ? 0.75 : -0.75;
+  const auto X = real_fft(n).forward(x);
+  CHECK(X[n / 2].real() == doctest::Approx(0.75 * n).epsilon(1e-13));
+  CHECK(X[n / 2].imag() == 0.0);
+  CHECK(std::abs(X[0]) <= 1e-12 * 0.75 * n);  // alternating terms cancel exactly in pairs
+}
+
+TEST_CASE("real_fft copies plan independently and refuses wrong sizes") {
+  real_fft a(384);
+  const real_fft b = a;
+  const std::vector<double> x = noise(384, 7);
+  const auto xa = a.forward(x);
+  const auto xb = b.forward(x);
+  CHECK(xa == xb);  // same plan, same arithmetic: bitwise equal
+
+  CHECK_THROWS_AS(real_fft(0), pinchoff::input_error);
+  std::vector<double> short_x(383);
+  CHECK_THROWS_AS(a.forward(short_x), pinchoff::internal_error);
+  std::vector<std::complex<double>> out(10);
+  CHECK_THROWS_AS(a.forward(x, out), pinchoff::internal_error);
+}

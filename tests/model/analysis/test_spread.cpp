@@ -1,0 +1,180 @@
+// Monte Carlo spread against closed forms and distribution theory.
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+
+#include <doctest/doctest.h>
+
+#include "base/error.hpp"
+#include "model/analysis/spread.hpp"
+#include "model/analysis/sweep.hpp"
+#include "support/stages.hpp"
+
+using namespace pinchoff;
+using namespace pinchoff::model;
+
+namespace {
+// Self-bias closed form (Boylestad & Nashelsky ch. 7): id = idss (1 - id rs/|vp|)^2.
+double self_bias_id(double idss, double vp, double rs) {
+  const double a = rs / std::fabs(vp);
+  return ((2 * idss * a + 1) - std::sqrt(4 * idss * a + 1)) / (2 * idss * a * a);
+}
+}  // namespace
+
+TEST_CASE("with only IDSS varied, the spread maps through the self-bias closed form") {
+  const double vp = -1.6, rs = 680.0, rd = 3.3e3, vdd = 9.0;
+  const stage st = test::stage_from(test::self_bias_text(vdd, 4.5e-3, vp, rs, rd));
+  spread_settings s;
+  s.idss_a = base::value_range{2e-3, 8e-3};
+  s.runs = 2000;
+  s.seed = 7;
+  const spread_result r = run_spread(st, s, {});
+  REQUIRE(r.unsolved == 0);
+  // Per run: the tool's current is the closed form of the drawn IDSS.
+  for (const spread_run& run : r.runs) {
+    CHECK(run.values.at("id") == doctest::Approx(self_bias_id(run.draw.idss_a, vp, rs)).epsilon(1e-9));
+    CHECK(run.values.at("vd") == doctest::Approx(vdd - rd * self_bias_id(run.draw.idss_a, vp, rs)).epsilon(1e-9));
+  }
+  // Percentiles: id is increasing in IDSS, so the population p-quantile of id is the
+  // closed form at the p-quantile of IDSS, lo + p (hi - lo). The empirical CDF of 2000
+  // draws stays within 0.04 of the true one with probability 1 - 2 exp(-2 n 0.04^2) =
+  // 99.7 % (Dvoretzky-Kiefer-Wolfowitz inequality, Massart 1990).
+  const quantity_stats& id = r.stats.at("id");
+  for (auto [p, got] : {std::pair{0.05, id.p5}, std::pair{0.50, id.p50}, std::pair{0.95, id.p95}}) {
+    CAPTURE(p);
+    const double lo = self_bias_id(2e-3 + std::max(0.0, p - 0.04) * 6e-3, vp, rs);
+    const double hi = self_bias_id(2e-3 + std::min(1.0, p + 0.04) * 6e-3, vp, rs);
+    CHECK(got >= lo);
+    CHECK(got <= hi);
+  }
+  CHECK(id.min >= self_bias_id(2e-3, vp, rs));
+  CHECK(id.max <= self_bias_id(8e-3, vp, rs));
+}
+
+TEST_CASE("the same seed gives the same runs on one thread or two") {
+  const stage st = test::stage_from(test::self_bias_text(9.0, 4.5e-3, -1.6, 680.0, 3.3e3));
+  spread_settings s;
+  s.idss_a = base::value_range{2e-3, 8e-3};
+  s.vp_v = base::value_range{-3.0, -0.8};
+  s.supply_v = base::value_range{7.0, 9.6};
+  s.resistor_tolerance = 0.05;
+  s.runs = 300;
+  s.seed = 42;
+  s.threads = 1;
+  const spread_result one = run_spread(st, s, {});
+  s.threads = 2;
+  const spread_result two = run_spread(st, s, {});
+  REQUIRE(one.runs.size() == two.runs.size());
+  for (std::size_t i = 0; i < one.runs.size(); ++i) {
+    CHECK(one.runs[i].draw.idss_a == two.runs[i].draw.idss_a);
+    CHECK(one.runs[i].values == two.runs[i].values);
+  }
+  s.seed = 43;
+  CHECK(run_spread(st, s, {}).runs[0].draw.idss_a != one.runs[0].draw.idss_a);
+}
+
+TEST_CASE("IDSS and |VP| are correlated as the Gaussian copula predicts") {
+  // For uniform margins from a Gaussian copula with correlation rho, the correlation of
+  // the uniforms is Spearman's rho = (6/pi) arcsin(rho/2) (Kruskal 1958; from memory).
+  // With 20000 draws the sampling error is about 1/sqrt(n) = 0.007; tolerance 0.03.
+  const stage st = test::stage_from(test::self_bias_text(9.0, 4.5e-3, -1.6, 680.0, 3.3e3));
+  spread_settings s;
+  s.idss_a = base::value_range{2e-3, 8e-3};
+  s.vp_v = base::value_range{-3.0, -0.8};
+  s.correlation = 0.7;
+  s.runs = 20000;
+  double sx = 0, sy = 0, sxx = 0, syy = 0, sxy = 0;
+  for (int i = 0; i < s.runs; ++i) {
+    const spread_draw d = draw_part(s, st, i);
+    const double x = d.idss_a, y = std::fabs(d.vp_v);
+    CHECK(x >= 2e-3);
+    CHECK(x <= 8e-3);
+    CHECK(y >= 0.8);
+    CHECK(y <= 3.0);
+    sx += x; sy += y; sxx += x * x; syy += y * y; sxy += x * y;
+  }
+  const double n = s.runs;
+  const double corr = (sxy / n - sx / n * sy / n) / std::sqrt((sxx / n - sx * sx / n / n) * (syy / n - sy * sy / n / n));
+  CHECK(corr == doctest::Approx(6.0 / std::numbers::pi * std::asin(0.35)).epsilon(0.03 / 0.68));
+}
+
+TEST_CASE("yield counts the runs that meet every requirement") {
+  const stage st = test::stage_from(test::self_bias_text(9.0, 4.5e-3, -1.6, 680.0, 3.3e3));
+  spread_settings s;
+  s.idss_a = base::value_range{2e-3, 8e-3};
+  s.vp_v = base::value_range{-3.0, -0.8};
+  s.runs = 500;
+  const std::vector<requirement> reqs{parse_requirement("vd=3.5..6"), parse_requirement("id=1m..")};
+  const spread_result r = run_spread(st, s, reqs);
+  int meets = 0;
+  for (const spread_run& run : r.runs) {
+    const double vd = run.values.at("vd"), id = run.values.at("id");
+    const bool ok = vd >= 3.5 && vd <= 6 && id >= 1e-3 && run.values.at("vds") > run.values.at("vgs") - run.draw.vp_v;
+    CHECK(run.meets == ok);
+    meets += ok ? 1 : 0;
+  }
+  CHECK(r.yield == doctest::Approx(meets / 500.0).epsilon(1e-12));
+  CHECK_THROWS_AS(parse_requirement("vd=6..3.5"), input_error);
+  CHECK_THROWS_AS(parse_requirement("volume=1..2"), input_error);
+  CHECK_THROWS_AS(parse_requirement("vd=3.5"), input_error);
+}
+
+TEST_CASE("percentiles interpolate between order statistics") {
+  // Hyndman & Fan 1996, definition 7 (the default of R and NumPy).
+  const std::vector<double> v{1, 2, 3, 4, 5};
+  CHECK(percentile_sorted(v, 0) == 1);
+  CHECK(percentile_sorted(v, 50) == 3);
+  CHECK(percentile_sorted(v, 5) == doctest::Approx(1.2).epsilon(1e-12));
+  CHECK(percentile_sorted(v, 100) == 5);
+}
+
+TEST_CASE("a trimmer sized over the batch brings every part to the target") {
+  // Closed form per part (square law, lambda = 0): rs = |vp| (1 - sqrt(id/idss)) / id
+  // with id = (VDD - vd)/RD.
+  const double vdd = 9.0, rd = 3.3e3, vd = 4.5;
+  const stage st = test::stage_from(test::self_bias_text(vdd, 4.5e-3, -1.6, 680.0, rd));
+  spread_settings s;
+  s.idss_a = base::value_range{2e-3, 8e-3};
+  s.vp_v = base::value_range{-3.0, -0.8};
+  s.runs = 200;
+  const trim_result t = size_trimmer(st, "source.resistor", {target_kind::vd, vd}, s, base::eseries::e24);
+  const double id = (vdd - vd) / rd;
+  for (int i = 0; i < s.runs; ++i) {
+    const spread_draw d = draw_part(s, st, i);
+    const double need = std::fabs(d.vp_v) * (1 - std::sqrt(id / d.idss_a)) / id;
+    CHECK(t.exact_ohm[static_cast<std::size_t>(i)] == doctest::Approx(need).epsilon(1e-8));
+  }
+  CHECK(t.reachable == s.runs);
+  CHECK(t.fixed_ohm <= t.r_min);
+  CHECK(t.fixed_ohm + t.trimmer_ohm >= t.r_max);
+  CHECK(t.coverage == 1.0);
+  // The smallest standard trimmer that spans the range (common practice values).
+  for (double smaller : standard_trimmers_ohm())
+    if (smaller < t.trimmer_ohm) CHECK(t.fixed_ohm + smaller < t.r_max);
+}
+
+TEST_CASE("THD over a batch follows the square-law closed form per part") {
+  // Ideal square law (gate DC-coupled at 0 V, grounded source, lambda = 0, no gate
+  // current): HD2 = A / (4 (VGSQ - VP)) with VGSQ = 0 and no higher harmonics (Gray,
+  // Hurst, Lewis & Meyer; from memory), so THD = A / (4 |VP|) for every drawn part.
+  const std::string text =
+      "[supply]\nvolts = 30\n[jfet]\nidss = \"4m\"\nvp = -2\nis = 0\n[gate]\nresistor = \"1M\"\n[drain]\nresistor = \"1k\"\n";
+  const stage st = test::stage_from(text);
+  spread_settings s;
+  s.vp_v = base::value_range{-3.0, -1.5};
+  s.runs = 40;
+  sweep_settings sw;
+  sw.drives_vpk = {0.05};
+  sw.threads = 1;
+  const spread_result r = run_spread(st, s, {parse_requirement("thd=..1")},
+                                     [&](const stage& drawn, std::map<std::string, double>& v) {
+                                       v["thd"] = run_sweep(drawn, sw).points[0].thd_percent;
+                                     });
+  int meets = 0;
+  for (const spread_run& run : r.runs) {
+    const double expect = 100.0 * 0.05 / (4.0 * std::fabs(run.draw.vp_v));
+    CHECK(run.values.at("thd") == doctest::Approx(expect).epsilon(1e-6));
+    meets += expect <= 1.0 ? 1 : 0;
+  }
+  CHECK(r.yield == doctest::Approx(meets / 40.0).epsilon(1e-12));
+}

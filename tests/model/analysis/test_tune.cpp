@@ -1,0 +1,78 @@
+// Solving for a resistor against closed forms.
+#include <cmath>
+
+#include <doctest/doctest.h>
+
+#include "base/error.hpp"
+#include "model/analysis/tune.hpp"
+#include "support/stages.hpp"
+
+using namespace pinchoff;
+using namespace pinchoff::model;
+
+TEST_CASE("source resistor for a drain-voltage target matches the closed form") {
+  // Closed form (square law, lambda = 0, no gate current): the target vd fixes
+  // id = (VDD - vd)/RD, Shockley gives vgs = vp (1 - sqrt(id/idss)), and rs = -vgs/id.
+  const double vdd = 9.0, idss = 4.5e-3, vp = -1.6, rd = 3.3e3;
+  const stage s = test::stage_from(test::self_bias_text(vdd, idss, vp, 680.0, rd));
+  for (double vd : {3.5, 4.5, 6.0}) {
+    CAPTURE(vd);
+    const tune_result r = tune_resistor(s, "source.resistor", {target_kind::vd, vd}, base::eseries::e24);
+    const double id = (vdd - vd) / rd;
+    const double rs = -vp * (1.0 - std::sqrt(id / idss)) / id;
+    CHECK(r.exact_ohm == doctest::Approx(rs).epsilon(1e-9));
+    CHECK(r.exact.at.vd_v == doctest::Approx(vd).epsilon(1e-9));
+    REQUIRE(r.candidates.size() == 2);
+    CHECK(r.candidates[0].point.value_ohm <= r.exact_ohm);
+    CHECK(r.candidates[1].point.value_ohm >= r.exact_ohm);
+  }
+}
+
+TEST_CASE("drain resistor for a current target") {
+  // Closed form: adjusting RS, rs = vp (sqrt(id/idss) - 1)/id. With RS fixed, id does not
+  // depend on RD in saturation (lambda = 0), so RD reaches a lower current only by
+  // pushing the part into the triode region.
+  const stage s = test::stage_from(test::self_bias_text(9.0, 4.5e-3, -1.6, 680.0, 3.3e3));
+  const tune_result r = tune_resistor(s, "source.resistor", {target_kind::id, 1e-3}, base::eseries::e12);
+  CHECK(r.exact_ohm == doctest::Approx(-1.6 * (std::sqrt(1e-3 / 4.5e-3) - 1.0) / 1e-3).epsilon(1e-9));
+  const tune_result d = tune_resistor(s, "drain.resistor", {target_kind::id, 1e-3}, base::eseries::e12);
+  CHECK(d.exact.at.id_a == doctest::Approx(1e-3).epsilon(1e-9));
+  CHECK(d.exact.at.region == jfet_region::triode);
+}
+
+TEST_CASE("an unreachable target says what range can be reached") {
+  const stage s = test::stage_from(test::self_bias_text(9.0, 4.5e-3, -1.6, 680.0, 3.3e3));
+  try {
+    tune_resistor(s, "source.resistor", {target_kind::vd, 12.0}, base::eseries::e24);
+    FAIL("expected an error");
+  } catch (const input_error& e) {
+    const std::string m = e.what();
+    CHECK(m.find("out of reach") != std::string::npos);
+    CHECK(m.find("9.000 V") != std::string::npos);  // the supply bounds vd
+  }
+  CHECK_THROWS_AS(tune_resistor(s, "drain.resistr", {target_kind::vd, 4.0}, base::eseries::e24), input_error);
+}
+
+TEST_CASE("center maximises the symmetric swing") {
+  // Definition: at the optimum, nudging the resistor either way cannot enlarge the
+  // smaller of the two swings.
+  const stage s = test::stage_from(test::self_bias_text(
+      9.0, 4.5e-3, -1.6, 680.0, 3.3e3, "bypass_cap = \"47u\"\n[output]\ncoupling_cap = \"1u\"\nload = \"100k\"\n"));
+  const tune_result r = tune_resistor(s, "source.resistor", {target_kind::center, 0.0}, base::eseries::e24);
+  const double best = r.exact.headroom.symmetric_output_vpk;
+  for (double f : {0.97, 1.03}) {
+    CAPTURE(f);
+    CHECK(evaluate_with(s, "source.resistor", r.exact_ohm * f).headroom.symmetric_output_vpk <= best * (1 + 1e-9));
+  }
+  // At the optimum the two limits meet (closed form of a max-min of a rising and a falling curve).
+  CHECK(std::fabs(r.exact.headroom.up.output_v) == doctest::Approx(std::fabs(r.exact.headroom.down.output_v)).epsilon(1e-4));
+}
+
+TEST_CASE("targets are parsed with units") {
+  CHECK(parse_target("vd=4.5").value == doctest::Approx(4.5).epsilon(1e-15));
+  CHECK(parse_target("id=1.2m").value == doctest::Approx(1.2e-3).epsilon(1e-15));
+  CHECK(parse_target("center").kind == target_kind::center);
+  CHECK_THROWS_AS(parse_target("vg=3"), input_error);
+  CHECK_THROWS_AS(parse_target("vd"), input_error);
+  CHECK_THROWS_AS(parse_target("vd=four"), input_error);
+}

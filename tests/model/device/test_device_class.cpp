@@ -1,0 +1,79 @@
+// Device classes: the bundled file, a stage naming a class, spreads over a class.
+#include <doctest/doctest.h>
+
+#include "base/error.hpp"
+#include "model/device/device_class.hpp"
+#include "model/analysis/spread.hpp"
+#include "model/circuit/stage_file.hpp"
+
+using namespace pinchoff;
+using namespace pinchoff::model;
+
+namespace {
+const std::string devices = std::string(PINCHOFF_PRESETS_DIR) + "/devices.toml";
+const std::string stage_text =
+    "[supply]\nvolts = 9\n[jfet]\nclass = \"general-purpose\"\n[gate]\nresistor = \"1M\"\n[drain]\nresistor = \"3.3k\"\n"
+    "[source]\nresistor = \"680\"\n";
+}  // namespace
+
+TEST_CASE("the bundled classes are well formed") {
+  const std::vector<device_class> all = read_device_classes(devices);
+  REQUIRE(all.size() >= 3);
+  for (const device_class& c : all) {
+    CAPTURE(c.name);
+    CHECK_FALSE(c.summary.empty());
+    CHECK(c.idss_a.lo > 0);
+    CHECK(c.idss_a.lo < c.idss_a.hi);
+    CHECK(c.vp_v.hi < 0);
+    // Typical values lie inside the class's own ranges.
+    CHECK(c.typical_idss_a >= c.idss_a.lo);
+    CHECK(c.typical_idss_a <= c.idss_a.hi);
+    CHECK(c.typical_vp_v >= c.vp_v.lo);
+    CHECK(c.typical_vp_v <= c.vp_v.hi);
+  }
+}
+
+TEST_CASE("a stage naming a class takes its typical values; given values win") {
+  const device_class gp = find_device_class("general-purpose", devices);
+  const stage s = parse_stage(stage_text, "test.toml");
+  REQUIRE(s.jfet_class);
+  CHECK(s.jfet.idss_a == gp.typical_idss_a);
+  CHECK(s.jfet.vp_v == gp.typical_vp_v);
+  CHECK(s.jfet.lambda_per_v == gp.lambda_per_v);
+  CHECK(s.jfet.cgs_f == gp.cgs_f);
+  std::string with_idss = stage_text;
+  with_idss.replace(with_idss.find("class"), 5, "idss = \"7m\"\nclass");
+  CHECK(parse_stage(with_idss, "test.toml").jfet.idss_a == doctest::Approx(7e-3).epsilon(1e-15));
+  std::string p = stage_text;
+  p.replace(p.find("volts = 9"), 9, "volts = -9");
+  p.replace(p.find("class"), 5, "polarity = \"p\"\nclass");
+  CHECK(parse_stage(p, "test.toml").jfet.vp_v == -gp.typical_vp_v);
+}
+
+TEST_CASE("an unknown class is named with the known ones") {
+  std::string bad = stage_text;
+  bad.replace(bad.find("general-purpose"), 15, "general-purpos");
+  try {
+    parse_stage(bad, "bass.toml");
+    FAIL("expected an error");
+  } catch (const input_error& e) {
+    const std::string m = e.what();
+    CHECK(m.find("bass.toml:4:9") != std::string::npos);
+    CHECK(m.find("did you mean 'general-purpose'") != std::string::npos);
+  }
+}
+
+TEST_CASE("a spread over a class stays inside the class's ranges") {
+  const stage s = parse_stage(stage_text, "test.toml");
+  spread_settings set;
+  set.idss_a = s.jfet_class->idss_a;
+  set.vp_v = s.jfet_class->vp_v;
+  set.runs = 400;
+  for (int i = 0; i < set.runs; ++i) {
+    const spread_draw d = draw_part(set, s, i);
+    CHECK(d.idss_a >= s.jfet_class->idss_a.lo);
+    CHECK(d.idss_a <= s.jfet_class->idss_a.hi);
+    CHECK(d.vp_v >= s.jfet_class->vp_v.lo);
+    CHECK(d.vp_v <= s.jfet_class->vp_v.hi);
+  }
+}
