@@ -8,9 +8,12 @@
 // at |k f0 - m fs| (Nyquist-Shannon; any sampled method does this, whatever its
 // integration rule); at 8x 48 kHz, H37-H40 of 10 kHz fold to 14, 4, 6 and 16 kHz. No
 // filter after the engine can remove them, so the cure is a higher engine rate.
-// (Antiderivative anti-aliasing lowers aliasing at the same rate for a one-port
-// nonlinearity, Parker, Zavalishin & Le Bivic, DAFx-16, and for some stateful ones, Holters,
-// DAFx-19; it has no established form for the JFET's two coupled ports, so it is not used.)
+// (Antiderivative anti-aliasing lowers aliasing at the same rate for a memoryless
+// nonlinearity, Parker, Zavalishin & Le Bivic, DAFx-16; it is extended to a class of
+// stateful systems by Holters, Applied Sciences 10(1), 20, 2020, and to wave digital
+// structures with a multi-port nonlinearity, shown on diode and bipolar-transistor circuits,
+// by Albertini, Bernardini & Sarti, JAES 69(7/8), 2021. It has not been worked out for a
+// JFET stage in the nodal DK form used here, so it is not used.)
 // A light drive or low-pitched material needs no more than 8x (a 1 kHz tone at 4 V: about
 // -81 dBc at 8x), so the rate is raised only when the input calls for it.
 //
