@@ -1,6 +1,6 @@
 #pragma once
 // Loudness and peaks of a signal through libebur128, as a move-only owner that throws on
-// init (STYLE rule 7).
+// init (as every C resource here: the release cannot fail, the acquire is checked).
 //
 // - Integrated loudness per ITU-R BS.1770 (K-weighting, 400 ms blocks overlapping by 75 %,
 //   absolute gate at -70 LUFS, relative gate 10 LU below the ungated mean) as EBU R128

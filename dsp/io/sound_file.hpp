@@ -1,6 +1,6 @@
 #pragma once
-// Audio files through libsndfile, as move-only owners that throw on open (STYLE rule 7;
-// libsndfile's own SndfileHandle reads as true even after a failed open).
+// Audio files through libsndfile, as move-only owners that throw on open (as every C
+// resource here; libsndfile's own SndfileHandle reads as true even after a failed open).
 //
 // Reading: any container and encoding libsndfile reads (WAV 16/24/32-bit integer and
 // float, FLAC, AIFF, ...). Samples come back as double, interleaved (frame by frame, the
