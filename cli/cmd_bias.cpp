@@ -11,9 +11,7 @@
 #include "cli/common.hpp"
 #include "cli/text_table.hpp"
 #include "base/units.hpp"
-#include "model/analysis/headroom.hpp"
-#include "model/circuit/network.hpp"
-#include "model/analysis/small_signal.hpp"
+#include "model/analysis/bias.hpp"
 #include "model/analysis/warnings.hpp"
 
 namespace pinchoff::cli {
@@ -31,19 +29,13 @@ struct bias_options {
 
 struct bias_report {
   model::stage st;
-  model::network net;
-  model::operating_point op;
-  model::small_signal_figures ss;
-  model::headroom_figures head;
-  std::vector<std::string> warnings;
-  std::optional<double> at_hz;
-  std::vector<model::cap_reactance> reactances;
+  model::bias_figures b;
 };
 
 std::string db_text(double gain) { return format_number(base::db_from_ratio(std::fabs(gain)), 3) + " dB"; }
 
-void write_text(const bias_report& r, const std::string& path, std::ostream& out) {
-  const model::terminal_point& t = r.op.at;
+void print_text(const bias_report& r, const std::string& path, std::ostream& out) {
+  const model::terminal_point& t = r.b.op.at;
   out << r.st.name << "\n  " << topology_name(r.st.topo) << ", " << (r.st.pol == model::polarity::p ? "p" : "n")
       << "-channel" << (r.st.jfet_class ? " (class " + r.st.jfet_class->name + ")" : std::string()) << ", supply "
       << format_si(r.st.supply.volts_v, "V") << "  (" << path << ")\n\n";
@@ -53,20 +45,20 @@ void write_text(const bias_report& r, const std::string& path, std::ostream& out
   op.add({"VG", format_si(t.vg_v, "V", 4), "", "ID", format_si(t.id_a, "A", 4)});
   op.add({"VS", format_si(t.vs_v, "V", 4), "", "PD", format_si(std::fabs(t.id_a * t.vds_v), "W")});
   op.add({"VD", format_si(t.vd_v, "V", 4), "", "region", model::region_name(t.region)});
-  op.add({"VGS", format_si(t.vgs_v, "V", 4), "", "supply draws", format_si(model::supply_current_a(r.net, r.op), "A")});
+  op.add({"VGS", format_si(t.vgs_v, "V", 4), "", "supply draws", format_si(model::supply_current_a(r.b.net, r.b.op), "A")});
   op.add({"VDS", format_si(t.vds_v, "V", 4), "", "", ""});
   op.write(out);
 
   out << "\nSmall signal (mid-band: coupling and bypass capacitors shorted)\n";
   text_table ss({align::left, align::right, align::left});
-  ss.add({"gm", format_si(r.ss.gm_s, "S"), ""});
-  ss.add({"gds", format_si(r.ss.gds_s, "S"),
-          std::isfinite(r.ss.rds_ohm) ? "rds " + format_si(r.ss.rds_ohm, "Ω") : "rds infinite (lambda = 0)"});
-  ss.add({"gain", format_number(r.ss.gain_midband, 4) + " V/V",
-          db_text(r.ss.gain_midband) + (r.ss.gain_midband < 0 ? ", inverting" : "") + "; ignoring gds " +
-              format_number(r.ss.gain_midband_no_gds, 4) + " V/V (" + db_text(r.ss.gain_midband_no_gds) + ")"});
-  ss.add({"input impedance", format_si(r.ss.zin_ohm, "Ω"), "after the generator's own impedance"});
-  ss.add({"output impedance", format_si(r.ss.zout_ohm, "Ω"), "looking back from the load"});
+  ss.add({"gm", format_si(r.b.ss.gm_s, "S"), ""});
+  ss.add({"gds", format_si(r.b.ss.gds_s, "S"),
+          std::isfinite(r.b.ss.rds_ohm) ? "rds " + format_si(r.b.ss.rds_ohm, "Ω") : "rds infinite (lambda = 0)"});
+  ss.add({"gain", format_number(r.b.ss.gain_midband, 4) + " V/V",
+          db_text(r.b.ss.gain_midband) + (r.b.ss.gain_midband < 0 ? ", inverting" : "") + "; ignoring gds " +
+              format_number(r.b.ss.gain_midband_no_gds, 4) + " V/V (" + db_text(r.b.ss.gain_midband_no_gds) + ")"});
+  ss.add({"input impedance", format_si(r.b.ss.zin_ohm, "Ω"), "after the generator's own impedance"});
+  ss.add({"output impedance", format_si(r.b.ss.zout_ohm, "Ω"), "looking back from the load"});
   ss.write(out);
 
   out << "\nHeadroom (mid-band, capacitors holding their rest voltages)\n";
@@ -75,27 +67,27 @@ void write_text(const bias_report& r, const std::string& path, std::ostream& out
     hr.add({name, format_si(l.output_v, "V"), "at drive " + format_si(l.drive_v, "V"),
             std::string("limit: ") + model::swing_limit_text(l.kind)});
   };
-  limit_row("output up", r.head.up);
-  limit_row("output down", r.head.down);
+  limit_row("output up", r.b.head.up);
+  limit_row("output down", r.b.head.down);
   hr.write(out);
-  out << "  clean symmetric swing " << format_si(r.head.symmetric_output_vpk, "V") << " peak ("
-      << format_number(base::dbu_from_vpk(r.head.symmetric_output_vpk), 3) << " dBu) at the load, for drive up to "
-      << format_si(r.head.clean_drive_vpk, "V") << " peak ("
-      << format_number(base::dbu_from_vpk(r.head.clean_drive_vpk), 3) << " dBu)\n";
+  out << "  clean symmetric swing " << format_si(r.b.head.symmetric_output_vpk, "V") << " peak ("
+      << format_number(base::dbu_from_vpk(r.b.head.symmetric_output_vpk), 3) << " dBu) at the load, for drive up to "
+      << format_si(r.b.head.clean_drive_vpk, "V") << " peak ("
+      << format_number(base::dbu_from_vpk(r.b.head.clean_drive_vpk), 3) << " dBu)\n";
 
-  if (!r.ss.corners.empty()) {
+  if (!r.b.ss.corners.empty()) {
     out << "\nLow-frequency corners (each capacitor alone, the others shorted)\n";
     text_table ct({align::left, align::right, align::left, align::right});
-    for (const model::cap_corner& c : r.ss.corners)
+    for (const model::cap_corner& c : r.b.ss.corners)
       ct.add({c.key, format_si(c.farad, "F"), "sees " + format_si(c.r_seen_ohm, "Ω"), format_si(c.corner_hz, "Hz")});
     ct.write(out);
-    out << "  lower -3 dB point, estimate (sum of corners): " << format_si(r.ss.low_corner_estimate_hz, "Hz") << '\n';
+    out << "  lower -3 dB point, estimate (sum of corners): " << format_si(r.b.ss.low_corner_estimate_hz, "Hz") << '\n';
   }
 
-  if (r.at_hz) {
-    out << "\nCapacitors at " << format_si(*r.at_hz, "Hz") << '\n';
+  if (r.b.at_hz) {
+    out << "\nCapacitors at " << format_si(*r.b.at_hz, "Hz") << '\n';
     text_table xt({align::left, align::right, align::left, align::right, align::left});
-    for (const model::cap_reactance& c : r.reactances) {
+    for (const model::cap_reactance& c : r.b.reactances) {
       std::string verdict = "a short here";
       if (c.loss_db < -1.0) verdict = "not a short: costs " + format_number(-c.loss_db, 2) + " dB here";
       else if (c.loss_db < -0.1) verdict = "partly a short";
@@ -105,11 +97,11 @@ void write_text(const bias_report& r, const std::string& path, std::ostream& out
     xt.write(out);
   }
 
-  if (r.at_hz)
+  if (r.b.at_hz)
     out << "  loss: drop of the mid-band gain from that capacitor alone (a bypass capacitor gives a shelf)\n";
   out << "\nWarnings\n";
-  if (r.warnings.empty()) out << "  none\n";
-  for (const std::string& w : r.warnings) out << "  ! " << w << '\n';
+  if (r.b.warnings.empty()) out << "  none\n";
+  for (const std::string& w : r.b.warnings) out << "  ! " << w << '\n';
 }
 
 nlohmann::json corner_json(const model::cap_corner& c) {
@@ -120,55 +112,52 @@ nlohmann::json limit_json(const model::swing_limit& l) {
   return {{"output_v", l.output_v}, {"drive_v", l.drive_v}, {"limit", model::swing_limit_text(l.kind)}};
 }
 
-void write_json(const bias_report& r, std::ostream& out) {
+void print_json(const bias_report& r, std::ostream& out) {
   nlohmann::json j;
   j["stage"] = {{"name", r.st.name},
                 {"topology", topology_name(r.st.topo)},
                 {"polarity", r.st.pol == model::polarity::p ? "p" : "n"},
                 {"supply_v", r.st.supply.volts_v}};
-  j["operating_point"] = operating_point_json(r.op.at);
-  j["operating_point"]["pd_w"] = std::fabs(r.op.at.id_a * r.op.at.vds_v);
-  j["operating_point"]["supply_current_a"] = model::supply_current_a(r.net, r.op);
-  j["small_signal"] = {{"gm_s", r.ss.gm_s},
-                       {"gds_s", r.ss.gds_s},
-                       {"rds_ohm", number_or_null(r.ss.rds_ohm)},
-                       {"gain_midband_db", base::db_from_ratio(std::fabs(r.ss.gain_midband))},
-                       {"gain_midband_v_per_v", r.ss.gain_midband},
-                       {"gain_midband_no_gds_db", base::db_from_ratio(std::fabs(r.ss.gain_midband_no_gds))},
-                       {"gain_midband_no_gds_v_per_v", r.ss.gain_midband_no_gds},
-                       {"zin_ohm", r.ss.zin_ohm},
-                       {"zout_ohm", r.ss.zout_ohm}};
-  j["headroom"] = {{"up", limit_json(r.head.up)},
-                   {"down", limit_json(r.head.down)},
-                   {"symmetric_output_vpk", r.head.symmetric_output_vpk},
-                   {"clean_drive_vpk", r.head.clean_drive_vpk}};
+  j["operating_point"] = operating_point_json(r.b.op.at);
+  j["operating_point"]["pd_w"] = std::fabs(r.b.op.at.id_a * r.b.op.at.vds_v);
+  j["operating_point"]["supply_current_a"] = model::supply_current_a(r.b.net, r.b.op);
+  j["small_signal"] = {{"gm_s", r.b.ss.gm_s},
+                       {"gds_s", r.b.ss.gds_s},
+                       {"rds_ohm", number_or_null(r.b.ss.rds_ohm)},
+                       {"gain_midband_db", base::db_from_ratio(std::fabs(r.b.ss.gain_midband))},
+                       {"gain_midband_v_per_v", r.b.ss.gain_midband},
+                       {"gain_midband_no_gds_db", base::db_from_ratio(std::fabs(r.b.ss.gain_midband_no_gds))},
+                       {"gain_midband_no_gds_v_per_v", r.b.ss.gain_midband_no_gds},
+                       {"zin_ohm", r.b.ss.zin_ohm},
+                       {"zout_ohm", r.b.ss.zout_ohm}};
+  j["headroom"] = {{"up", limit_json(r.b.head.up)},
+                   {"down", limit_json(r.b.head.down)},
+                   {"symmetric_output_vpk", r.b.head.symmetric_output_vpk},
+                   {"clean_drive_vpk", r.b.head.clean_drive_vpk}};
   nlohmann::json corners = nlohmann::json::array();
-  for (const auto& c : r.ss.corners) corners.push_back(corner_json(c));
+  for (const auto& c : r.b.ss.corners) corners.push_back(corner_json(c));
   j["corners"] = corners;
-  j["low_corner_estimate_hz"] = r.ss.low_corner_estimate_hz;
-  if (r.at_hz) {
+  j["low_corner_estimate_hz"] = r.b.ss.low_corner_estimate_hz;
+  if (r.b.at_hz) {
     nlohmann::json xs = nlohmann::json::array();
-    for (const auto& c : r.reactances)
+    for (const auto& c : r.b.reactances)
       xs.push_back({{"key", c.key},
-                    {"frequency_hz", *r.at_hz},
+                    {"frequency_hz", *r.b.at_hz},
                     {"xc_ohm", c.xc_ohm},
                     {"r_seen_ohm", c.r_seen_ohm},
                     {"loss_db", c.loss_db}});
     j["reactances"] = xs;
   }
-  j["warnings"] = r.warnings;
+  j["warnings"] = r.b.warnings;
   out << j.dump(2) << '\n';
 }
 
-}  // namespace
-
-void register_bias(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<bias_options>();
+CLI::App* setup(CLI::App& app, bias_options& opt) {
   CLI::App* sub = app.add_subcommand("bias", "Operating point, gain, impedances, headroom and corners of a stage");
-  add_stage_input(*sub, opt->input);
-  sub->add_option("--at", opt->at_text, "Also show each capacitor's reactance and loss at this frequency, e.g. 1k or 40")
+  add_stage_input(*sub, opt.input);
+  sub->add_option("--at", opt.at_text, "Also show each capacitor's reactance and loss at this frequency, e.g. 1k or 40")
       ->type_name("FREQ");
-  sub->add_flag("--json", opt->json, "Machine-readable output (keys carry their unit as a suffix)");
+  sub->add_flag("--json", opt.json, "Machine-readable output (keys carry their unit as a suffix)");
   sub->footer(
       "Examples:\n"
       "  pinchoff bias presets/bass-booster-9v.toml\n"
@@ -181,19 +170,25 @@ void register_bias(CLI::App& app, std::vector<command>& commands) {
       "Headroom is found by sweeping the drive slowly with every coupling and bypass capacitor\n"
       "holding its rest voltage: the clean region ends at the triode edge, at cutoff, or when the\n"
       "gate rises to the source voltage.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
-                        bias_report r;
-                        if (!opt->at_text.empty()) r.at_hz = parse_analysis_frequency_hz(opt->at_text, "--at");
-                        r.st = load_stage(opt->input);
-                        r.net = model::build_network(r.st);
-                        r.op = model::solve_operating_point(r.net);
-                        r.ss = model::analyse_small_signal(r.net, r.op);
-                        r.head = model::analyse_headroom(r.net, r.op);
-                        r.warnings = model::operating_warnings(r.st, r.net, r.op);
-                        if (r.at_hz) r.reactances = model::reactances_at(r.net, r.op, *r.at_hz);
-                        if (opt->json) write_json(r, out);
-                        else write_text(r, opt->input.path, out);
-                      }});
+  return sub;
+}
+
+void run(const bias_options& opt, std::ostream& out) {
+  std::optional<double> at_hz;
+  if (!opt.at_text.empty()) at_hz = parse_analysis_frequency_hz(opt.at_text, "--at");
+  bias_report r;
+  r.st = load_stage(opt.input);
+  r.b = model::analyse_bias(r.st, at_hz);
+  if (opt.json) return print_json(r, out);
+  print_text(r, opt.input.path, out);
+}
+
+}  // namespace
+
+void register_bias(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<bias_options>();
+  CLI::App* sub = setup(app, *opt);
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); }});
 }
 
 }  // namespace pinchoff::cli

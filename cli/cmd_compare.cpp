@@ -18,7 +18,6 @@
 #include "base/error.hpp"
 #include "base/units.hpp"
 #include "model/analysis/compare.hpp"
-#include "model/circuit/stage_file.hpp"
 
 namespace pinchoff::cli {
 namespace {
@@ -70,7 +69,7 @@ std::vector<design_input> load_designs(const compare_options& o) {
   for (std::size_t i = 0; i < o.paths.size(); ++i) {
     std::vector<std::string> all = common;
     all.insert(all.end(), own[i].begin(), own[i].end());
-    d.push_back({o.paths[i], own[i], model::read_stage_file(o.paths[i], all)});
+    d.push_back({o.paths[i], own[i], load_stage(o.paths[i], all)});
   }
   return d;
 }
@@ -107,7 +106,7 @@ std::string mode_text(const model::compare_result& r) {
   return "every design driven at " + format_si(r.level_vpk, "Vpk", 4) + " (" + dbu(r.level_vpk) + ") from the generator";
 }
 
-void write_text(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
+void print_text(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
   out << "Comparison at " << format_si(r.frequency_hz, "Hz", 5);
   if (std::fabs(r.frequency_hz - r.requested_hz) > 1e-9 * r.requested_hz)
     out << " (asked " << format_si(r.requested_hz, "Hz", 4) << ", snapped to whole cycles)";
@@ -159,7 +158,7 @@ void write_text(const std::vector<design_input>& in, const model::compare_result
       out << "  design " << i + 1 << ", 1 % THD: " << r.designs[i].thd_1_percent.reason << '\n';
 }
 
-nlohmann::json write_json(const std::vector<design_input>& in, const model::compare_result& r) {
+void print_json(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
   nlohmann::json j;
   j["frequency_hz"] = r.frequency_hz;
   j["requested_frequency_hz"] = r.requested_hz;
@@ -202,7 +201,7 @@ nlohmann::json write_json(const std::vector<design_input>& in, const model::comp
   }
   j["designs"] = ds;
   j["warnings"] = r.warnings;
-  return j;
+  out << j.dump(2) << '\n';
 }
 
 void write_csv(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
@@ -256,30 +255,27 @@ void write_plot(const std::vector<design_input>& in, const model::compare_result
   write_svg_file(path, render_svg(b), inputs);
 }
 
-}  // namespace
-
-void register_compare(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<compare_options>();
+CLI::App* setup(CLI::App& app, compare_options& opt) {
   CLI::App* sub = app.add_subcommand("compare", "Candidate designs side by side: bias, gain, headroom and harmonic profile");
-  sub->add_option("FILES", opt->paths, "Two or more stage files (TOML), one column each")->required();
-  sub->add_option("--set", opt->overrides,
+  sub->add_option("FILES", opt.paths, "Two or more stage files (TOML), one column each")->required();
+  sub->add_option("--set", opt.overrides,
                   "Override a value in every design, KEY=VALUE, or in design N only, N:KEY=VALUE (repeatable)")
       ->type_name("[N:]KEY=VALUE")
       ->expected(1)
       ->allow_extra_args(false)
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
-  sub->add_option("--freq", opt->freq, "Test-tone frequency (snapped so the record holds whole cycles)")->capture_default_str();
-  sub->add_option("--at-output", opt->at_output,
+  sub->add_option("--freq", opt.freq, "Test-tone frequency (snapped so the record holds whole cycles)")->capture_default_str();
+  sub->add_option("--at-output", opt.at_output,
                   "Drive each design so its fundamental at the load is this level (the default, at -10dBu)")
       ->type_name("LEVEL");
-  sub->add_option("--at-drive", opt->at_drive, "Drive every design with this generator level instead")->type_name("LEVEL");
-  sub->add_option("--harmonics", opt->harmonics, "Highest harmonic shown (H2..HN); THD counts at least H2..H10")
+  sub->add_option("--at-drive", opt.at_drive, "Drive every design with this generator level instead")->type_name("LEVEL");
+  sub->add_option("--harmonics", opt.harmonics, "Highest harmonic shown (H2..HN); THD counts at least H2..H10")
       ->capture_default_str();
-  sub->add_option("--oversample", opt->oversample, "Simulation rate as a multiple of 48 kHz")->capture_default_str();
-  sub->add_flag("--json", opt->json, "Machine-readable output");
-  sub->add_flag("--csv", opt->csv, "One row per design as CSV");
-  sub->add_option("--plot", opt->plot, "Write the harmonic profiles as grouped bars (SVG)")->type_name("FILE.svg");
-  sub->add_option("--threads", opt->threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
+  sub->add_option("--oversample", opt.oversample, "Simulation rate as a multiple of 48 kHz")->capture_default_str();
+  sub->add_flag("--json", opt.json, "Machine-readable output");
+  sub->add_flag("--csv", opt.csv, "One row per design as CSV");
+  sub->add_option("--plot", opt.plot, "Write the harmonic profiles as grouped bars (SVG)")->type_name("FILE.svg");
+  sub->add_option("--threads", opt.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
   sub->footer(
       "Examples:\n"
       "  pinchoff compare presets/bass-booster-9v.toml presets/clean-preamp-18v.toml presets/phantom-mic-follower.toml\n"
@@ -297,59 +293,66 @@ void register_compare(CLI::App& app, std::vector<command>& commands) {
       "found to within 0.001 dB of the target; a design that cannot reach it below 20 V peak drive\n"
       "and 50 % THD is an error that says why. --at-drive compares at one input level instead.\n"
       "Each figure is the periodic steady state at the test frequency, as `sweep` computes it.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) {
-                        if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
-                        if (!opt->at_output.empty() && !opt->at_drive.empty())
-                          throw input_error("--at-output and --at-drive: choose one");
-                        model::compare_settings s;
-                        s.frequency_hz = option_frequency_hz(opt->freq, "--freq");
-                        if (!opt->at_drive.empty()) {
-                          s.mode = model::compare_mode::at_drive;
-                          s.level_vpk = option_level_vpk(opt->at_drive, "--at-drive");
-                        } else {
-                          s.mode = model::compare_mode::at_output;
-                          s.level_vpk = option_level_vpk(opt->at_output.empty() ? "-10dBu" : opt->at_output, "--at-output");
-                        }
-                        s.harmonics = opt->harmonics;
-                        s.oversample = opt->oversample;
-                        s.threads = opt->threads;
-                        model::validate(s);
-                        const std::vector<std::filesystem::path> inputs(opt->paths.begin(), opt->paths.end());
-                        if (!opt->plot.empty()) check_plot_target(opt->plot, inputs);
-                        const std::vector<design_input> in = load_designs(*opt);
-                        std::vector<model::stage> stages;
-                        std::vector<std::string> rest;  // the rest points' cautions, design by design
-                        for (std::size_t i = 0; i < in.size(); ++i) {
-                          stages.push_back(in[i].st);
-                          const std::vector<std::string> w = rest_point_warnings(
-                              in[i].st, "compare", err, "design " + std::to_string(i + 1) + " (" + label_of(in[i]) + ")");
-                          rest.insert(rest.end(), w.begin(), w.end());
-                        }
-                        model::compare_result r = model::compare_designs(stages, s);
+  return sub;
+}
 
-                        std::string unreached;
-                        for (std::size_t i = 0; i < r.designs.size(); ++i)
-                          if (!r.designs[i].reached)
-                            unreached += "\n  design " + std::to_string(i + 1) + " (" + label_of(in[i]) + "): " +
-                                         r.designs[i].unreached_reason;
-                        if (!unreached.empty())
-                          throw input_error("cannot compare at " + dbu(s.level_vpk) + " at the load:" + unreached +
-                                            "\n  compare at a lower --at-output, or at one input level with --at-drive");
-                        for (const std::string& w : r.warnings) err << "pinchoff compare: warning: " << w << '\n';
-                        r.warnings.insert(r.warnings.begin(), rest.begin(), rest.end());
+void run(const compare_options& opt, std::ostream& out, std::ostream& err) {
+  if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
+  if (!opt.at_output.empty() && !opt.at_drive.empty()) throw input_error("--at-output and --at-drive: choose one");
+  model::compare_settings s;
+  s.frequency_hz = option_frequency_hz(opt.freq, "--freq");
+  if (!opt.at_drive.empty()) {
+    s.mode = model::compare_mode::at_drive;
+    s.level_vpk = option_level_vpk(opt.at_drive, "--at-drive");
+  } else {
+    s.mode = model::compare_mode::at_output;
+    s.level_vpk = option_level_vpk(opt.at_output.empty() ? "-10dBu" : opt.at_output, "--at-output");
+  }
+  s.harmonics = opt.harmonics;
+  s.oversample = opt.oversample;
+  s.threads = opt.threads;
+  const model::compare_plan plan = model::plan_compare(s);  // the settings' errors before any file is read
+  const std::vector<std::filesystem::path> inputs(opt.paths.begin(), opt.paths.end());
+  if (!opt.plot.empty()) check_plot_target(opt.plot, inputs);
+  const std::vector<design_input> in = load_designs(opt);
+  std::vector<model::stage> stages;
+  std::vector<std::string> rest;  // the rest points' cautions, design by design
+  for (std::size_t i = 0; i < in.size(); ++i) {
+    stages.push_back(in[i].st);
+    const std::vector<std::string> w =
+        rest_point_warnings(in[i].st, "compare", err, "design " + std::to_string(i + 1) + " (" + label_of(in[i]) + ")");
+    rest.insert(rest.end(), w.begin(), w.end());
+  }
+  model::compare_result r = model::compare_designs(stages, plan);
 
-                        if (!opt->plot.empty()) write_plot(in, r, opt->plot, inputs);
-                        if (opt->json) {
-                          out << write_json(in, r).dump(2) << '\n';
-                          return;
-                        }
-                        if (opt->csv) {
-                          write_csv(in, r, out);
-                          return;
-                        }
-                        write_text(in, r, out);
-                        if (!opt->plot.empty()) out << "\n  plot written to " << opt->plot << '\n';
-                      }});
+  std::string unreached;
+  for (std::size_t i = 0; i < r.designs.size(); ++i)
+    if (!r.designs[i].reached)
+      unreached += "\n  design " + std::to_string(i + 1) + " (" + label_of(in[i]) + "): " + r.designs[i].unreached_reason;
+  if (!unreached.empty())
+    throw input_error("cannot compare at " + dbu(s.level_vpk) + " at the load:" + unreached +
+                      "\n  compare at a lower --at-output, or at one input level with --at-drive");
+  for (const std::string& w : r.warnings) err << "pinchoff compare: warning: " << w << '\n';
+  r.warnings.insert(r.warnings.begin(), rest.begin(), rest.end());
+
+  if (!opt.plot.empty()) write_plot(in, r, opt.plot, inputs);
+  if (opt.json) return print_json(in, r, out);
+  if (opt.csv) return write_csv(in, r, out);
+  print_text(in, r, out);
+  if (!opt.plot.empty()) out << "\n  plot written to " << opt.plot << '\n';
+}
+
+}  // namespace
+
+void register_compare(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<compare_options>();
+  CLI::App* sub = setup(app, *opt);
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
+                      {{"drive_level_vpk", "--at-drive"},
+                       {"output_level_vpk", "--at-output"},
+                       {"harmonics", "--harmonics"},
+                       {"oversampling", "--oversample"},
+                       {"frequency_hz", "--freq"}}});
 }
 
 }  // namespace pinchoff::cli

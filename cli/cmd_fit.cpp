@@ -25,14 +25,59 @@ struct fit_options {
   bool json{false};
 };
 
-}  // namespace
+void print_json(const model::fit_result& f, std::ostream& out) {
+  nlohmann::json j;
+  j["idss_a"] = f.idss_a;
+  j["vp_v"] = f.vp_v;
+  j["lambda_per_v"] = f.lambda_per_v;
+  j["lambda_fitted"] = f.lambda_fitted;
+  j["polarity"] = f.p_channel ? "p" : "n";
+  j["std_errors"] = {{"idss_a", number_or_null(f.idss_se_a)},
+                     {"vp_v", number_or_null(f.vp_se_v)},
+                     {"lambda_per_v", number_or_null(f.lambda_se_per_v)}};
+  j["rms_residual_percent"] = 100.0 * f.rms_residual_ratio;
+  nlohmann::json rows = nlohmann::json::array();
+  for (const auto& r : f.rows)
+    rows.push_back({{"line", r.reading.line},
+                    {"vgs_v", r.vgs_v},
+                    {"id_a", r.reading.id_a},
+                    {"id_model_a", r.id_model_a},
+                    {"residual_percent", 100.0 * r.residual_ratio},
+                    {"flagged", r.flagged}});
+  j["rows"] = rows;
+  out << j.dump(2) << '\n';
+}
 
-void register_fit(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<fit_options>();
+void print_text(const base::csv_table& t, const model::bench_table& bt, const model::fit_result& f, std::ostream& out) {
+  out << "fit of " << t.source << " (" << t.rows.size() << " readings, "
+      << (bt.kind == model::reading_kind::gate_sweep ? "gate sweep" : "self-bias jig") << ", " << (f.p_channel ? "p" : "n")
+      << "-channel)\n\n";
+  text_table p({align::left, align::right, align::left});
+  const bool exact = std::isnan(f.idss_se_a);
+  p.add({"IDSS", format_si(f.idss_a, "A", 4), exact ? "exact through two readings" : "± " + format_si(f.idss_se_a, "A", 2)});
+  p.add({"VP", format_si(f.vp_v, "V", 4), exact ? "(a third reading gives error estimates)" : "± " + format_si(f.vp_se_v, "V", 2)});
+  if (f.lambda_fitted)
+    p.add({"lambda", format_number(f.lambda_per_v, 3) + " /V", "± " + format_number(f.lambda_se_per_v, 2) + " /V"});
+  else
+    p.add({"lambda", "not fitted", "(give vds_v varied by more than 1 V)"});
+  p.add({"rms misfit", format_number(100.0 * f.rms_residual_ratio, 2) + " %", ""});
+  p.write(out);
+  out << '\n';
+  text_table rows({align::right, align::right, align::right, align::right, align::right, align::left});
+  rows.add({"line", "VGS", "ID read", "ID model", "misfit", ""});
+  for (const auto& r : f.rows)
+    rows.add({std::to_string(r.reading.line), format_si(r.vgs_v, "V", 4), format_si(r.reading.id_a, "A", 4),
+              format_si(r.id_model_a, "A", 4), format_number(100.0 * r.residual_ratio, 2) + " %",
+              r.flagged ? "<- does not fit the others" : ""});
+  rows.write(out);
+  out << "\nPaste into a stage file:\n\n" << model::jfet_block(f);
+}
+
+CLI::App* setup(CLI::App& app, fit_options& opt) {
   CLI::App* sub = app.add_subcommand("fit", "Fit IDSS, VP and lambda of a part to bench readings (CSV)");
-  sub->add_option("FILE", opt->path, "CSV with a header: vgs_v,id_a (gate sweep) or rs_ohm,id_a (self-bias jig), optionally vds_v")
+  sub->add_option("FILE", opt.path, "CSV with a header: vgs_v,id_a (gate sweep) or rs_ohm,id_a (self-bias jig), optionally vds_v")
       ->required();
-  sub->add_flag("--json", opt->json, "Machine-readable output");
+  sub->add_flag("--json", opt.json, "Machine-readable output");
   sub->footer(
       "Examples:\n"
       "  pinchoff fit part7.csv\n"
@@ -43,63 +88,28 @@ void register_fit(CLI::App& app, std::vector<command>& commands) {
       "Cells take the same values as stage files (2.5m, 1k). Give vds_v per row to fit lambda\n"
       "as well (needs VDS varied by more than 1 V). Keep the part in saturation (VDS above\n"
       "VGS - VP). The result ends with a [jfet] block to paste into a stage file.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
-                        const base::csv_table t = base::read_csv_file(opt->path);
-                        const model::bench_table bt = model::readings_from_table(t);
-                        model::fit_result f;
-                        try {
-                          f = model::fit_square_law(bt.kind, bt.readings);
-                        } catch (const input_error& e) {
-                          throw input_error(t.source + ": " + e.what());
-                        }
-                        if (opt->json) {
-                          nlohmann::json j;
-                          j["idss_a"] = f.idss_a;
-                          j["vp_v"] = f.vp_v;
-                          j["lambda_per_v"] = f.lambda_per_v;
-                          j["lambda_fitted"] = f.lambda_fitted;
-                          j["polarity"] = f.p_channel ? "p" : "n";
-                          j["std_errors"] = {{"idss_a", number_or_null(f.idss_se_a)},
-                                             {"vp_v", number_or_null(f.vp_se_v)},
-                                             {"lambda_per_v", number_or_null(f.lambda_se_per_v)}};
-                          j["rms_residual_percent"] = 100.0 * f.rms_residual_ratio;
-                          nlohmann::json rows = nlohmann::json::array();
-                          for (const auto& r : f.rows)
-                            rows.push_back({{"line", r.reading.line},
-                                            {"vgs_v", r.vgs_v},
-                                            {"id_a", r.reading.id_a},
-                                            {"id_model_a", r.id_model_a},
-                                            {"residual_percent", 100.0 * r.residual_ratio},
-                                            {"flagged", r.flagged}});
-                          j["rows"] = rows;
-                          out << j.dump(2) << '\n';
-                          return;
-                        }
-                        out << "fit of " << t.source << " (" << t.rows.size() << " readings, "
-                            << (bt.kind == model::reading_kind::gate_sweep ? "gate sweep" : "self-bias jig") << ", "
-                            << (f.p_channel ? "p" : "n") << "-channel)\n\n";
-                        text_table p({align::left, align::right, align::left});
-                        const bool exact = std::isnan(f.idss_se_a);
-                        p.add({"IDSS", format_si(f.idss_a, "A", 4), exact ? "exact through two readings" : "± " + format_si(f.idss_se_a, "A", 2)});
-                        p.add({"VP", format_si(f.vp_v, "V", 4),
-                               exact ? "(a third reading gives error estimates)" : "± " + format_si(f.vp_se_v, "V", 2)});
-                        if (f.lambda_fitted)
-                          p.add({"lambda", format_number(f.lambda_per_v, 3) + " /V",
-                                 "± " + format_number(f.lambda_se_per_v, 2) + " /V"});
-                        else
-                          p.add({"lambda", "not fitted", "(give vds_v varied by more than 1 V)"});
-                        p.add({"rms misfit", format_number(100.0 * f.rms_residual_ratio, 2) + " %", ""});
-                        p.write(out);
-                        out << '\n';
-                        text_table rows({align::right, align::right, align::right, align::right, align::right, align::left});
-                        rows.add({"line", "VGS", "ID read", "ID model", "misfit", ""});
-                        for (const auto& r : f.rows)
-                          rows.add({std::to_string(r.reading.line), format_si(r.vgs_v, "V", 4), format_si(r.reading.id_a, "A", 4),
-                                    format_si(r.id_model_a, "A", 4), format_number(100.0 * r.residual_ratio, 2) + " %",
-                                    r.flagged ? "<- does not fit the others" : ""});
-                        rows.write(out);
-                        out << "\nPaste into a stage file:\n\n" << model::jfet_block(f);
-                      }});
+  return sub;
+}
+
+void run(const fit_options& opt, std::ostream& out) {
+  const base::csv_table t = base::read_csv_file(opt.path);
+  const model::bench_table bt = model::readings_from_table(t);
+  model::fit_result f;
+  try {
+    f = model::fit_square_law(bt.kind, bt.readings);
+  } catch (const input_error& e) {
+    throw input_error(t.source + ": " + e.what());
+  }
+  if (opt.json) return print_json(f, out);
+  print_text(t, bt, f, out);
+}
+
+}  // namespace
+
+void register_fit(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<fit_options>();
+  CLI::App* sub = setup(app, *opt);
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); }});
 }
 
 }  // namespace pinchoff::cli

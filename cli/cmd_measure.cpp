@@ -408,7 +408,7 @@ void register_measure(CLI::App& app, std::vector<command>& commands) {
                           p.overrides = opt->overrides;
                           p.drive_vpk = option_level_vpk(opt->drive_text, "--drive");
                           if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
-                          p.st = model::read_stage_file(p.path, p.overrides);
+                          p.st = load_stage(p.path, p.overrides);
                           against = std::move(p);
                         }
                         measure_report r = analyse(*opt);

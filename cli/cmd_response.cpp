@@ -1,8 +1,12 @@
 // pinchoff response: small-signal frequency response from the generator to the load.
 #include <cmath>
 #include <complex>
+#include <filesystem>
 #include <memory>
 #include <numbers>
+#include <span>
+#include <string>
+#include <vector>
 
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
@@ -58,20 +62,103 @@ std::vector<double> table_frequencies(double lo, double hi) {
   return f;
 }
 
-}  // namespace
+// What run computed, for the formatters.
+struct response_report {
+  model::stage st;
+  model::network net;
+  model::operating_point op;
+  double lo_hz{}, hi_hz{};
+  model::response_result r;
+  std::vector<double> phase_deg;  // unwrapped, one per point
+  double midband_db{};
+  std::vector<std::string> warnings;
+  std::vector<model::response_point> table;  // at the 1-2-5 frequencies of the range, for the text
+};
 
-void register_response(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<response_options>();
+void write_plot(const response_report& rep, const std::string& path, std::span<const std::filesystem::path> inputs) {
+  const model::response_result& r = rep.r;
+  line_plot p;
+  p.title = rep.st.name + ": frequency response";
+  p.x = {"frequency (Hz)", axis_scale::log10, rep.lo_hz, rep.hi_hz, true};
+  series mag{"gain", {}, {}, false}, ph{"phase", {}, {}, false};
+  for (std::size_t k = 0; k < r.points.size(); ++k) {
+    mag.x.push_back(r.points[k].frequency_hz);
+    mag.y.push_back(mag_db(r.points[k].gain));
+    ph.x.push_back(r.points[k].frequency_hz);
+    ph.y.push_back(rep.phase_deg[k]);
+  }
+  p.top = {axis{"gain (dB)", axis_scale::linear, {}, {}, false}, {mag}};
+  p.bottom = panel{axis{"phase (degrees)", axis_scale::linear, {}, {}, false}, {ph}};
+  for (const auto& c : r.corners)
+    if (c.frequency_hz >= rep.lo_hz && c.frequency_hz <= rep.hi_hz)
+      p.markers.push_back({c.frequency_hz, "-3 dB " + format_si(c.frequency_hz, "Hz")});
+  write_svg_file(path, render_svg(p), inputs);
+}
+
+void print_json(const response_report& rep, std::ostream& out) {
+  const model::response_result& r = rep.r;
+  nlohmann::json j;
+  j["midband_gain_db"] = rep.midband_db;
+  j["warnings"] = rep.warnings;
+  j["midband_gain_v_per_v"] = r.midband_gain;
+  nlohmann::json corners = nlohmann::json::array(), kinds = nlohmann::json::array();
+  for (const auto& c : r.corners) {
+    corners.push_back(c.frequency_hz);
+    kinds.push_back(c.is_low ? "low" : "high");
+  }
+  j["corners_hz"] = corners;
+  j["corner_kinds"] = kinds;
+  nlohmann::json pts = nlohmann::json::array();
+  for (std::size_t k = 0; k < r.points.size(); ++k)
+    pts.push_back({{"frequency_hz", r.points[k].frequency_hz},
+                   {"magnitude_db", mag_db(r.points[k].gain)},
+                   {"phase_deg", rep.phase_deg[k]},
+                   {"zin_ohm", std::abs(r.points[k].zin_ohm)},
+                   {"zin_phase_deg", std::arg(r.points[k].zin_ohm) * 180.0 / std::numbers::pi}});
+  j["points"] = pts;
+  out << j.dump(2) << '\n';
+}
+
+void write_csv(const response_report& rep, std::ostream& out) {
+  const model::response_result& r = rep.r;
+  out << "frequency_hz,magnitude_db,phase_deg,zin_ohm,zin_phase_deg\n";
+  out.precision(10);
+  for (std::size_t k = 0; k < r.points.size(); ++k)
+    out << r.points[k].frequency_hz << ',' << mag_db(r.points[k].gain) << ',' << rep.phase_deg[k] << ','
+        << std::abs(r.points[k].zin_ohm) << ',' << std::arg(r.points[k].zin_ohm) * 180.0 / std::numbers::pi << '\n';
+}
+
+void print_text(const response_report& rep, std::ostream& out) {
+  const model::response_result& r = rep.r;
+  out << rep.st.name << "\n  small-signal response, generator to load\n\n";
+  out << "  mid-band gain " << format_number(r.midband_gain, 4) << " V/V (" << format_number(rep.midband_db, 3) << " dB)\n";
+  if (r.corners.empty()) out << "  no -3 dB corner between 1 mHz and 1 GHz\n";
+  for (const auto& c : r.corners)
+    out << "  " << (c.is_low ? "low " : "high") << " -3 dB corner " << format_si(c.frequency_hz, "Hz", 4) << '\n';
+  out << '\n';
+  text_table t({align::right, align::right, align::right, align::right, align::right});
+  t.add({"frequency", "gain", "re mid-band", "phase", "input impedance"});
+  const std::vector<double> row_phase = unwrapped_phase_deg(rep.table);
+  for (std::size_t k = 0; k < rep.table.size(); ++k) {
+    const model::response_point& p = rep.table[k];
+    t.add({format_si(p.frequency_hz, "Hz"), format_number(mag_db(p.gain), 3) + " dB",
+           format_number(mag_db(p.gain) - rep.midband_db, 2) + " dB", format_number(row_phase[k], 3) + "°",
+           format_si(std::abs(p.zin_ohm), "Ω")});
+  }
+  t.write(out);
+}
+
+CLI::App* setup(CLI::App& app, response_options& opt) {
   CLI::App* sub = app.add_subcommand("response", "Small-signal frequency response, -3 dB corners and input impedance");
-  add_stage_input(*sub, opt->input);
-  sub->add_option("--from", opt->from, "Lowest frequency")->capture_default_str();
-  sub->add_option("--to", opt->to, "Highest frequency")->capture_default_str();
-  sub->add_option("--points", opt->points, "Log-spaced frequencies for --csv, --json and --plot")
+  add_stage_input(*sub, opt.input);
+  sub->add_option("--from", opt.from, "Lowest frequency")->capture_default_str();
+  sub->add_option("--to", opt.to, "Highest frequency")->capture_default_str();
+  sub->add_option("--points", opt.points, "Log-spaced frequencies for --csv, --json and --plot")
       ->capture_default_str()
       ->check(CLI::Range(2, 100000));
-  sub->add_flag("--json", opt->json, "Machine-readable output");
-  sub->add_flag("--csv", opt->csv, "Every point as CSV");
-  sub->add_option("--plot", opt->plot, "Write magnitude and phase against frequency as SVG")->type_name("FILE.svg");
+  sub->add_flag("--json", opt.json, "Machine-readable output");
+  sub->add_flag("--csv", opt.csv, "Every point as CSV");
+  sub->add_option("--plot", opt.plot, "Write magnitude and phase against frequency as SVG")->type_name("FILE.svg");
   sub->footer(
       "Examples:\n"
       "  pinchoff response presets/bass-booster-9v.toml\n"
@@ -80,93 +167,40 @@ void register_response(CLI::App& app, std::vector<command>& commands) {
       "  pinchoff response presets/clean-preamp-18v.toml --set source.bypass_cap=4.7u --csv > r.csv\n"
       "Every capacitor is included: coupling and bypass capacitors set the low corners, the\n"
       "junction capacitances cgs and cgd (with the Miller effect) the high corner.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) {
-                        if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
-                        const double lo = parse_analysis_frequency_hz(opt->from, "--from"),
-                                     hi = parse_analysis_frequency_hz(opt->to, "--to");
-                        if (!(hi > lo)) throw input_error("--to must be above --from");
-                        const model::stage st = load_stage(opt->input);
-                        const model::network net = model::build_network(st);
-                        const model::operating_point op = model::solve_operating_point(net);
-                        const std::vector<std::string> warnings = rest_point_warnings(st, net, op, "response", err);
-                        const model::response_result r = model::analyse_response(net, op, lo, hi, opt->points);
-                        const std::vector<double> phase = unwrapped_phase_deg(r.points);
-                        const double mid_db = base::db_from_ratio(std::fabs(r.midband_gain));
+  return sub;
+}
 
-                        if (!opt->plot.empty()) {
-                          line_plot p;
-                          p.title = st.name + ": frequency response";
-                          p.x = {"frequency (Hz)", axis_scale::log10, lo, hi, true};
-                          series mag{"gain", {}, {}, false}, ph{"phase", {}, {}, false};
-                          for (std::size_t k = 0; k < r.points.size(); ++k) {
-                            mag.x.push_back(r.points[k].frequency_hz);
-                            mag.y.push_back(mag_db(r.points[k].gain));
-                            ph.x.push_back(r.points[k].frequency_hz);
-                            ph.y.push_back(phase[k]);
-                          }
-                          p.top = {axis{"gain (dB)", axis_scale::linear, {}, {}, false}, {mag}};
-                          p.bottom = panel{axis{"phase (degrees)", axis_scale::linear, {}, {}, false}, {ph}};
-                          for (const auto& c : r.corners)
-                            if (c.frequency_hz >= lo && c.frequency_hz <= hi)
-                              p.markers.push_back({c.frequency_hz, "-3 dB " + format_si(c.frequency_hz, "Hz")});
-                          const std::filesystem::path inputs[] = {opt->input.path};
-                          write_svg_file(opt->plot, render_svg(p), inputs);
-                        }
+void run(const response_options& opt, std::ostream& out, std::ostream& err) {
+  if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
+  response_report rep;
+  rep.lo_hz = parse_analysis_frequency_hz(opt.from, "--from");
+  rep.hi_hz = parse_analysis_frequency_hz(opt.to, "--to");
+  if (!(rep.hi_hz > rep.lo_hz)) throw input_error("--to must be above --from");
+  rep.st = load_stage(opt.input);
+  rep.net = model::build_network(rep.st);
+  rep.op = model::solve_operating_point(rep.net);
+  rep.warnings = rest_point_warnings(rep.st, rep.net, rep.op, "response", err);
+  rep.r = model::analyse_response(rep.net, rep.op, rep.lo_hz, rep.hi_hz, opt.points);
+  rep.phase_deg = unwrapped_phase_deg(rep.r.points);
+  rep.midband_db = base::db_from_ratio(std::fabs(rep.r.midband_gain));
 
-                        if (opt->json) {
-                          nlohmann::json j;
-                          j["midband_gain_db"] = mid_db;
-                          j["warnings"] = warnings;
-                          j["midband_gain_v_per_v"] = r.midband_gain;
-                          nlohmann::json corners = nlohmann::json::array(), kinds = nlohmann::json::array();
-                          for (const auto& c : r.corners) {
-                            corners.push_back(c.frequency_hz);
-                            kinds.push_back(c.is_low ? "low" : "high");
-                          }
-                          j["corners_hz"] = corners;
-                          j["corner_kinds"] = kinds;
-                          nlohmann::json pts = nlohmann::json::array();
-                          for (std::size_t k = 0; k < r.points.size(); ++k)
-                            pts.push_back({{"frequency_hz", r.points[k].frequency_hz},
-                                           {"magnitude_db", mag_db(r.points[k].gain)},
-                                           {"phase_deg", phase[k]},
-                                           {"zin_ohm", std::abs(r.points[k].zin_ohm)},
-                                           {"zin_phase_deg", std::arg(r.points[k].zin_ohm) * 180.0 / std::numbers::pi}});
-                          j["points"] = pts;
-                          out << j.dump(2) << '\n';
-                          return;
-                        }
-                        if (opt->csv) {
-                          out << "frequency_hz,magnitude_db,phase_deg,zin_ohm,zin_phase_deg\n";
-                          out.precision(10);
-                          for (std::size_t k = 0; k < r.points.size(); ++k)
-                            out << r.points[k].frequency_hz << ',' << mag_db(r.points[k].gain) << ',' << phase[k] << ','
-                                << std::abs(r.points[k].zin_ohm) << ','
-                                << std::arg(r.points[k].zin_ohm) * 180.0 / std::numbers::pi << '\n';
-                          return;
-                        }
-                        out << st.name << "\n  small-signal response, generator to load\n\n";
-                        out << "  mid-band gain " << format_number(r.midband_gain, 4) << " V/V ("
-                            << format_number(mid_db, 3) << " dB)\n";
-                        if (r.corners.empty()) out << "  no -3 dB corner between 1 mHz and 1 GHz\n";
-                        for (const auto& c : r.corners)
-                          out << "  " << (c.is_low ? "low " : "high") << " -3 dB corner " << format_si(c.frequency_hz, "Hz", 4)
-                              << '\n';
-                        out << '\n';
-                        text_table t({align::right, align::right, align::right, align::right, align::right});
-                        t.add({"frequency", "gain", "re mid-band", "phase", "input impedance"});
-                        std::vector<model::response_point> rows;
-                        for (double f : table_frequencies(lo, hi)) rows.push_back(model::response_at(net, op, f));
-                        const std::vector<double> row_phase = unwrapped_phase_deg(rows);
-                        for (std::size_t k = 0; k < rows.size(); ++k) {
-                          const model::response_point& p = rows[k];
-                          t.add({format_si(p.frequency_hz, "Hz"), format_number(mag_db(p.gain), 3) + " dB",
-                                 format_number(mag_db(p.gain) - mid_db, 2) + " dB", format_number(row_phase[k], 3) + "°",
-                                 format_si(std::abs(p.zin_ohm), "Ω")});
-                        }
-                        t.write(out);
-                        if (!opt->plot.empty()) out << "\n  plot written to " << opt->plot << '\n';
-                      }});
+  if (!opt.plot.empty()) {
+    const std::filesystem::path inputs[] = {opt.input.path};
+    write_plot(rep, opt.plot, inputs);
+  }
+  if (opt.json) return print_json(rep, out);
+  if (opt.csv) return write_csv(rep, out);
+  for (double f : table_frequencies(rep.lo_hz, rep.hi_hz)) rep.table.push_back(model::response_at(rep.net, rep.op, f));
+  print_text(rep, out);
+  if (!opt.plot.empty()) out << "\n  plot written to " << opt.plot << '\n';
+}
+
+}  // namespace
+
+void register_response(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<response_options>();
+  CLI::App* sub = setup(app, *opt);
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); }});
 }
 
 }  // namespace pinchoff::cli

@@ -1,14 +1,18 @@
 // pinchoff spread: how a design spreads over a batch of real parts.
 #include <cmath>
 #include <filesystem>
+#include <map>
 #include <memory>
+#include <optional>
 #include <span>
+#include <sstream>
 
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "cli/option_text.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
@@ -92,23 +96,124 @@ void write_histograms(const model::spread_result& res, const std::vector<std::st
   }
 }
 
-}  // namespace
 
-void register_spread(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<spread_options>();
+// What run computed, for the formatters.
+struct spread_report {
+  model::stage st;
+  model::spread_settings settings;
+  std::vector<model::requirement> reqs;
+  model::spread_result res;
+};
+
+void write_csv(const spread_report& rep, std::ostream& out) {
+  const model::spread_result& res = rep.res;
+  out << "run,idss_a,vp_v,supply_v,solved";
+  for (const auto& q : model::spread_quantities())
+    if (res.stats.count(q.name)) out << ',' << q.json_key;
+  out << ",meets\n";
+  out.precision(10);
+  for (const auto& r : res.runs) {
+    out << r.index << ',' << r.draw.idss_a << ',' << r.draw.vp_v << ',' << r.draw.supply_v << ',' << (r.solved ? 1 : 0);
+    for (const auto& q : model::spread_quantities())
+      if (res.stats.count(q.name)) {
+        out << ',';
+        if (auto it = r.values.find(q.name); it != r.values.end()) out << it->second;
+      }
+    out << ',' << (r.meets ? 1 : 0) << '\n';
+  }
+}
+
+// The runs at either extreme of each required quantity (else of vd).
+struct extreme {
+  std::string quantity, side;
+  const model::spread_run* run;
+};
+
+std::vector<extreme> extremes(const spread_report& rep) {
+  std::vector<std::string> worst_of;
+  for (const auto& r : rep.reqs) worst_of.push_back(r.quantity);
+  if (worst_of.empty()) worst_of = {"vd"};
+  std::vector<extreme> worsts;
+  for (const std::string& name : worst_of) {
+    const model::spread_run *lo = nullptr, *hi = nullptr;
+    for (const auto& r : rep.res.runs) {
+      auto it = r.values.find(name);
+      if (it == r.values.end()) continue;
+      if (!lo || it->second < lo->values.at(name)) lo = &r;
+      if (!hi || it->second > hi->values.at(name)) hi = &r;
+    }
+    if (lo) worsts.push_back({name, "lowest", lo});
+    if (hi) worsts.push_back({name, "highest", hi});
+  }
+  return worsts;
+}
+
+void print_json(const spread_report& rep, std::ostream& out) {
+  const model::spread_result& res = rep.res;
+  nlohmann::json j;
+  j["runs"] = rep.settings.runs;
+  j["yield"] = res.yield;
+  j["unsolved"] = res.unsolved;
+  j["seed"] = rep.settings.seed;
+  nlohmann::json pc;
+  for (const auto& [name, s] : res.stats)
+    pc[def_of(name).json_key] = {{"p5", s.p5}, {"p50", s.p50}, {"p95", s.p95}, {"min", s.min}, {"max", s.max}};
+  j["percentiles"] = pc;
+  nlohmann::json rq = nlohmann::json::array();
+  for (const auto& r : rep.reqs)
+    rq.push_back({{"quantity", r.quantity}, {"lo", number_or_null(r.lo)}, {"hi", number_or_null(r.hi)}});
+  j["requirements"] = rq;
+  nlohmann::json ws = nlohmann::json::array();
+  for (const auto& w : extremes(rep))
+    ws.push_back({{"quantity", w.quantity}, {"side", w.side}, {"run", w.run->index}, {"idss_a", w.run->draw.idss_a},
+                  {"vp_v", w.run->draw.vp_v}, {"supply_v", w.run->draw.supply_v}, {"value", w.run->values.at(w.quantity)}});
+  j["worst"] = ws;
+  out << j.dump(2) << '\n';
+}
+
+void print_text(const spread_report& rep, const std::string& plots, std::ostream& out) {
+  const model::spread_result& res = rep.res;
+  out << rep.st.name << "\n  " << describe_spread(rep.settings, rep.st) << "\n\n";
+  text_table t({align::left, align::right, align::right, align::right, align::right, align::right});
+  t.add({"", "p5", "median", "p95", "min", "max"});
+  for (const std::string name : {"id", "vd", "vs", "vds", "gain", "swing", "thd"}) {
+    auto it = res.stats.find(name);
+    if (it == res.stats.end()) continue;
+    const auto& q = def_of(name);
+    const auto& s = it->second;
+    t.add({name, value_text(q, s.p5), value_text(q, s.p50), value_text(q, s.p95), value_text(q, s.min), value_text(q, s.max)});
+  }
+  t.write(out);
+  std::string cond = "biased in saturation";
+  for (const auto& r : rep.reqs) {
+    const auto& q = def_of(r.quantity);
+    cond += ", " + r.quantity + " " + (std::isfinite(r.lo) ? value_text(q, r.lo) : std::string("")) + ".." +
+            (std::isfinite(r.hi) ? value_text(q, r.hi) : std::string(""));
+  }
+  out << "\n  yield " << format_number(100.0 * res.yield, 3) << " % (" << cond << ")\n";
+  if (res.unsolved) out << "  " << res.unsolved << " runs had no operating point\n";
+  out << "\nExtremes\n";
+  text_table w({align::left, align::left, align::right, align::left});
+  for (const auto& x : extremes(rep))
+    w.add({x.side + " " + x.quantity, "run " + std::to_string(x.run->index),
+           value_text(def_of(x.quantity), x.run->values.at(x.quantity)), part_text(*x.run)});
+  w.write(out);
+  if (!plots.empty()) out << '\n' << plots;
+}
+
+CLI::App* setup(CLI::App& app, spread_options& opt) {
   CLI::App* sub = app.add_subcommand("spread", "Monte Carlo over a batch of parts: bias, gain and headroom spread, yield");
-  add_stage_input(*sub, opt->input);
-  add_spread_options(*sub, opt->batch);
-  sub->add_option("--require", opt->conditions,
+  add_stage_input(*sub, opt.input);
+  add_spread_options(*sub, opt.batch);
+  sub->add_option("--require", opt.conditions,
                   "A condition a good build meets, QUANTITY=LO..HI (repeatable): id, vd, vs, vds, vgs, gain (dB), swing (V peak), "
                   "thd (%, with --drive)")
       ->type_name("Q=LO..HI");
-  sub->add_option("--drive", opt->drive, "Also simulate each part at this drive and report its THD (slower)")
-      ->type_name("LEVEL");
-  sub->add_option("--freq", opt->freq, "Test-tone frequency for --drive")->capture_default_str();
-  sub->add_flag("--json", opt->json, "Machine-readable summary");
-  sub->add_flag("--csv", opt->csv, "Every run as CSV");
-  sub->add_option("--plot", opt->plot,
+  sub->add_option("--drive", opt.drive, "Also simulate each part at this drive and report its THD (slower)")->type_name("LEVEL");
+  sub->add_option("--freq", opt.freq, "Test-tone frequency for --drive")->capture_default_str();
+  sub->add_flag("--json", opt.json, "Machine-readable summary");
+  sub->add_flag("--csv", opt.csv, "Every run as CSV");
+  sub->add_option("--plot", opt.plot,
                   "Histograms as SVG: FILE.svg becomes FILE-vd.svg, FILE-id.svg, ... (the required quantities, else vd and id)")
       ->type_name("FILE.svg");
   sub->footer(
@@ -123,129 +228,54 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
       "IDSS and |VP| are drawn with the given correlation (real batches: parts with a high IDSS\n"
       "also pinch off at a larger voltage). The yield counts runs biased in saturation that meet\n"
       "every --require. The same seed gives the same runs on any number of threads.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) {
-                        if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
-                        std::vector<model::requirement> reqs;
-                        for (const std::string& r : opt->conditions) reqs.push_back(model::parse_requirement(r));
-                        const std::filesystem::path inputs[] = {opt->input.path};
-                        if (!opt->plot.empty())
-                          for (const std::string& name : histogram_names(reqs)) check_plot_target(histogram_path(opt->plot, name), inputs);
-                        const model::stage st = load_stage(opt->input);
-                        const model::spread_settings settings = spread_settings_from(opt->batch, st, opt->input.path);
-                        auto varies = [](const std::optional<base::value_range>& r) { return r && r->lo != r->hi; };
-                        if (!varies(settings.idss_a) && !varies(settings.vp_v) && !varies(settings.supply_v) &&
-                            settings.resistor_tolerance == 0.0)
-                          err << "pinchoff spread: note: nothing varies from run to run (one IDSS, one VP, exact resistors, "
-                                 "one supply voltage); give --idss and --vp ranges or a --class, --tolerance or --supply\n";
-                        model::run_extra extra;
-                        if (!opt->drive.empty()) {
-                          model::sweep_settings sw;
-                          sw.drives_vpk = {option_level_vpk(opt->drive, "--drive")};
-                          sw.frequency_hz = option_frequency_hz(opt->freq, "--freq");
-                          sw.threads = 1;
-                          model::validate(sw);
-                          extra = [sw](const model::stage& drawn, std::map<std::string, double>& values) {
-                            values["thd"] = model::run_sweep(drawn, sw).points[0].thd_percent;
-                          };
-                        }
-                        for (const auto& r : reqs)
-                          if (r.quantity == "thd" && !extra) throw input_error("--require thd=... needs --drive (the level to measure THD at)");
-                        const model::spread_result res = model::run_spread(st, settings, reqs, extra);
+  return sub;
+}
 
-                        std::vector<std::string> shown{"id", "vd", "vs", "vds", "gain", "swing", "thd"};
-                        std::ostringstream plots;
-                        if (!opt->plot.empty()) {
-                          write_histograms(res, histogram_names(reqs), opt->plot, st.name, plots, inputs);
-                        }
-                        if (opt->csv) {
-                          out << "run,idss_a,vp_v,supply_v,solved";
-                          for (const auto& q : model::spread_quantities())
-                            if (res.stats.count(q.name)) out << ',' << q.json_key;
-                          out << ",meets\n";
-                          out.precision(10);
-                          for (const auto& r : res.runs) {
-                            out << r.index << ',' << r.draw.idss_a << ',' << r.draw.vp_v << ',' << r.draw.supply_v << ','
-                                << (r.solved ? 1 : 0);
-                            for (const auto& q : model::spread_quantities())
-                              if (res.stats.count(q.name)) {
-                                out << ',';
-                                if (auto it = r.values.find(q.name); it != r.values.end()) out << it->second;
-                              }
-                            out << ',' << (r.meets ? 1 : 0) << '\n';
-                          }
-                          return;
-                        }
-                        // Worst cases: for each requirement (else vd), the runs at either extreme.
-                        std::vector<std::string> worst_of;
-                        for (const auto& r : reqs) worst_of.push_back(r.quantity);
-                        if (worst_of.empty()) worst_of = {"vd"};
-                        struct worst {
-                          std::string quantity, side;
-                          const model::spread_run* run;
-                        };
-                        std::vector<worst> worsts;
-                        for (const std::string& name : worst_of) {
-                          const model::spread_run *lo = nullptr, *hi = nullptr;
-                          for (const auto& r : res.runs) {
-                            auto it = r.values.find(name);
-                            if (it == r.values.end()) continue;
-                            if (!lo || it->second < lo->values.at(name)) lo = &r;
-                            if (!hi || it->second > hi->values.at(name)) hi = &r;
-                          }
-                          if (lo) worsts.push_back({name, "lowest", lo});
-                          if (hi) worsts.push_back({name, "highest", hi});
-                        }
-                        if (opt->json) {
-                          nlohmann::json j;
-                          j["runs"] = settings.runs;
-                          j["yield"] = res.yield;
-                          j["unsolved"] = res.unsolved;
-                          j["seed"] = settings.seed;
-                          nlohmann::json pc;
-                          for (const auto& [name, s] : res.stats)
-                            pc[def_of(name).json_key] = {{"p5", s.p5}, {"p50", s.p50}, {"p95", s.p95}, {"min", s.min}, {"max", s.max}};
-                          j["percentiles"] = pc;
-                          nlohmann::json rq = nlohmann::json::array();
-                          for (const auto& r : reqs)
-                            rq.push_back({{"quantity", r.quantity}, {"lo", number_or_null(r.lo)}, {"hi", number_or_null(r.hi)}});
-                          j["requirements"] = rq;
-                          nlohmann::json ws = nlohmann::json::array();
-                          for (const auto& w : worsts)
-                            ws.push_back({{"quantity", w.quantity}, {"side", w.side}, {"run", w.run->index},
-                                          {"idss_a", w.run->draw.idss_a}, {"vp_v", w.run->draw.vp_v},
-                                          {"supply_v", w.run->draw.supply_v}, {"value", w.run->values.at(w.quantity)}});
-                          j["worst"] = ws;
-                          out << j.dump(2) << '\n';
-                          return;
-                        }
-                        out << st.name << "\n  " << describe_spread(settings, st) << "\n\n";
-                        text_table t({align::left, align::right, align::right, align::right, align::right, align::right});
-                        t.add({"", "p5", "median", "p95", "min", "max"});
-                        for (const std::string& name : shown) {
-                          auto it = res.stats.find(name);
-                          if (it == res.stats.end()) continue;
-                          const auto& q = def_of(name);
-                          const auto& s = it->second;
-                          t.add({name, value_text(q, s.p5), value_text(q, s.p50), value_text(q, s.p95), value_text(q, s.min),
-                                 value_text(q, s.max)});
-                        }
-                        t.write(out);
-                        std::string cond = "biased in saturation";
-                        for (const auto& r : reqs) {
-                          const auto& q = def_of(r.quantity);
-                          cond += ", " + r.quantity + " " + (std::isfinite(r.lo) ? value_text(q, r.lo) : std::string("")) + ".." +
-                                  (std::isfinite(r.hi) ? value_text(q, r.hi) : std::string(""));
-                        }
-                        out << "\n  yield " << format_number(100.0 * res.yield, 3) << " % (" << cond << ")\n";
-                        if (res.unsolved) out << "  " << res.unsolved << " runs had no operating point\n";
-                        out << "\nExtremes\n";
-                        text_table w({align::left, align::left, align::right, align::left});
-                        for (const auto& x : worsts)
-                          w.add({x.side + " " + x.quantity, "run " + std::to_string(x.run->index),
-                                 value_text(def_of(x.quantity), x.run->values.at(x.quantity)), part_text(*x.run)});
-                        w.write(out);
-                        if (!plots.str().empty()) out << '\n' << plots.str();
-                      }});
+void run(const spread_options& opt, std::ostream& out, std::ostream& err) {
+  if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
+  spread_report rep;
+  for (const std::string& r : opt.conditions) rep.reqs.push_back(parse_requirement(r));
+  const std::filesystem::path inputs[] = {opt.input.path};
+  if (!opt.plot.empty())
+    for (const std::string& name : histogram_names(rep.reqs)) check_plot_target(histogram_path(opt.plot, name), inputs);
+  rep.st = load_stage(opt.input);
+  rep.settings = spread_settings_from(opt.batch, rep.st, opt.input.path);
+  const model::spread_settings& settings = rep.settings;
+  auto varies = [](const std::optional<base::value_range>& r) { return r && r->lo != r->hi; };
+  if (!varies(settings.idss_a) && !varies(settings.vp_v) && !varies(settings.supply_v) && settings.resistor_tolerance == 0.0)
+    err << "pinchoff spread: note: nothing varies from run to run (one IDSS, one VP, exact resistors, "
+           "one supply voltage); give --idss and --vp ranges or a --class, --tolerance or --supply\n";
+  model::run_extra extra;
+  if (!opt.drive.empty()) {
+    model::sweep_settings sw;
+    sw.drives_vpk = {option_level_vpk(opt.drive, "--drive")};
+    sw.frequency_hz = option_frequency_hz(opt.freq, "--freq");
+    sw.threads = 1;
+    extra = [plan = model::plan_sweep(sw)](const model::stage& drawn, std::map<std::string, double>& values) {
+      values["thd"] = model::run_sweep(drawn, plan).points[0].thd_percent;
+    };
+  }
+  for (const auto& r : rep.reqs)
+    if (r.quantity == "thd" && !extra) throw input_error("--require thd=... needs --drive (the level to measure THD at)");
+  rep.res = model::run_spread(rep.st, settings, rep.reqs, extra);
+
+  std::ostringstream plots;
+  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.reqs), opt.plot, rep.st.name, plots, inputs);
+  if (opt.csv) return write_csv(rep, out);
+  if (opt.json) return print_json(rep, out);
+  print_text(rep, plots.str(), out);
+}
+
+}  // namespace
+
+void register_spread(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<spread_options>();
+  CLI::App* sub = setup(app, *opt);
+  // The THD of --drive is a one-level sweep: its settings' fields map to spread's options.
+  command c{sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
+            {{"drives_vpk", "--drive"}, {"frequency_hz", "--freq"}}};
+  map_spread_fields(c.options_of_fields);
+  commands.push_back(std::move(c));
 }
 
 }  // namespace pinchoff::cli

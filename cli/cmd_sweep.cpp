@@ -2,6 +2,7 @@
 #include <cmath>
 #include <filesystem>
 #include <memory>
+#include <span>
 #include <sstream>
 
 #include <CLI/CLI.hpp>
@@ -44,10 +45,7 @@ std::vector<double> drive_levels(const sweep_options& o) {
     std::stringstream ss(o.drive);
     std::string item;
     while (std::getline(ss, item, ',')) d.push_back(option_level_vpk(item, "--drive"));
-    if (d.empty()) throw input_error("--drive: give one or more levels, e.g. --drive 100mVpk,300mVpk,1Vpk");
-    for (double v : d)
-      if (!(v > 0)) throw input_error("--drive: levels must be above 0 V");
-    return d;
+    return d;  // the model checks that there are levels and that each is above 0 V
   }
   const double lo = option_level_vpk(o.from.empty() ? "-40dBu" : o.from, "--from");
   const double hi = option_level_vpk(o.to.empty() ? "+20dBu" : o.to, "--to");
@@ -78,27 +76,186 @@ std::string ratio_db(double r) {
   return format_number(10.0 * std::log10(r), 3) + " dB";
 }
 
-}  // namespace
 
-void register_sweep(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<sweep_options>();
+// What run computed, for the formatters.
+struct sweep_report {
+  model::stage st;
+  model::sweep_settings settings;
+  model::sweep_result r;
+  std::vector<std::string> problems;  // the rest point's cautions, then the solver's
+};
+
+void write_plot(const sweep_report& rep, const std::string& path, std::span<const std::filesystem::path> inputs) {
+  const model::sweep_result& r = rep.r;
+  line_plot pl;
+  pl.title = rep.st.name + ": harmonics against drive at " + format_si(r.frequency_hz, "Hz");
+  pl.x = {"drive at the generator (dBu)", axis_scale::linear, {}, {}, false};
+  std::vector<series> lines;
+  series thd{"THD", {}, {}, true};
+  for (const auto& p : r.points) {
+    thd.x.push_back(base::dbu_from_vpk(p.drive_vpk));
+    thd.y.push_back(p.thd_db);
+  }
+  lines.push_back(thd);
+  for (int h = 2; h <= std::min(5, rep.settings.harmonics); ++h) {
+    series hs{"H" + std::to_string(h), {}, {}, false};
+    for (const auto& p : r.points) {
+      hs.x.push_back(base::dbu_from_vpk(p.drive_vpk));
+      hs.y.push_back(p.harmonics_dbc[static_cast<std::size_t>(h - 2)]);
+    }
+    lines.push_back(hs);
+  }
+  // Below -140 dB lies nothing a build note needs, and below -180 only the simulation's
+  // numerical floor: the axis stops at -140.
+  double lowest = 0.0;
+  for (const auto& l : lines)
+    for (double y : l.y)
+      if (std::isfinite(y)) lowest = std::min(lowest, y);
+  axis yaxis{"level re fundamental (dB)", axis_scale::linear, {}, {}, false};
+  if (lowest < -140.0) {
+    yaxis.min = -140.0;
+    yaxis.max = 0.0;
+  }
+  pl.top = {yaxis, lines};
+  for (const auto& c : r.crossings)
+    if (c.found) pl.markers.push_back({base::dbu_from_vpk(c.drive_vpk), format_number(c.thd_percent, 2) + " % THD"});
+  write_svg_file(path, render_svg(pl), inputs);
+}
+
+void print_json(const sweep_report& rep, std::ostream& out) {
+  const model::sweep_result& r = rep.r;
+  nlohmann::json j;
+  j["frequency_hz"] = r.frequency_hz;
+  j["requested_frequency_hz"] = r.requested_hz;
+  j["oversampling"] = r.oversample;
+  j["sample_rate_hz"] = r.sample_rate_hz;
+  j["record_samples"] = r.samples_per_record;
+  j["record_cycles"] = r.cycles;
+  nlohmann::json pts = nlohmann::json::array();
+  for (const auto& p : r.points) {
+    nlohmann::json hs = nlohmann::json::array();
+    for (double h : p.harmonics_dbc) hs.push_back(number_or_null(h));
+    pts.push_back({{"drive_vpk", p.drive_vpk},
+                   {"drive_dbu", base::dbu_from_vpk(p.drive_vpk)},
+                   {"output_vpk", p.output_vpk},
+                   {"output_dbu", base::dbu_from_vpk(p.output_vpk)},
+                   {"gain_db", p.gain_db},
+                   {"thd_percent", p.thd_percent},
+                   {"thd_db", p.thd_db},
+                   {"harmonics_dbc", hs},
+                   {"alias_dbc", p.alias_dbc},
+                   {"even_odd_ratio", number_or_null(p.even_odd_ratio)},
+                   {"dc_shift_v", p.dc_shift_v},
+                   {"bias_shift_v", p.bias_shift_v},
+                   {"steady_state_converged", p.converged},
+                   {"state_change_v", p.state_change_v},
+                   {"newton_mean_iterations", p.newton.mean_evaluations()},
+                   {"newton_max_iterations", p.newton.max_evaluations},
+                   {"newton_failed_samples", p.newton.failed},
+                   {"periods_simulated", p.periods_simulated}});
+  }
+  j["points"] = pts;
+  nlohmann::json cs = nlohmann::json::array();
+  for (const auto& c : r.crossings)
+    cs.push_back({{"thd_percent", c.thd_percent},
+                  {"drive_vpk", c.found ? nlohmann::json(c.drive_vpk) : nlohmann::json(nullptr)},
+                  {"output_vpk", c.found ? nlohmann::json(c.output_vpk) : nlohmann::json(nullptr)}});
+  j["thd_crossings"] = cs;
+  j["warnings"] = rep.problems;
+  out << j.dump(2) << '\n';
+}
+
+void write_csv(const sweep_report& rep, std::ostream& out) {
+  out << "drive_vpk,output_vpk,gain_db,thd_percent,alias_dbc,even_odd_ratio,dc_shift_v";
+  for (int h = 2; h <= rep.settings.harmonics; ++h) out << ",h" << h << "_dbc";
+  out << '\n';
+  out.precision(10);
+  for (const auto& p : rep.r.points) {
+    out << p.drive_vpk << ',' << p.output_vpk << ',' << p.gain_db << ',' << p.thd_percent << ',' << p.alias_dbc << ','
+        << p.even_odd_ratio << ',' << p.dc_shift_v;
+    for (double h : p.harmonics_dbc) {
+      out << ',';
+      if (std::isfinite(h)) out << h;
+    }
+    out << '\n';
+  }
+}
+
+void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
+  const model::sweep_result& r = rep.r;
+  const int harmonics = rep.settings.harmonics;
+  out << rep.st.name << "\n  sine at " << format_si(r.frequency_hz, "Hz", 5);
+  if (std::fabs(r.frequency_hz - r.requested_hz) > 1e-9 * r.requested_hz)
+    out << " (asked " << format_si(r.requested_hz, "Hz", 4) << "; snapped so " << r.cycles << " whole cycles fill the record)";
+  out << ", " << r.oversample << "x oversampling (" << format_si(r.sample_rate_hz, "Hz") << "), H2..H" << harmonics
+      << " up to " << format_si(rep.settings.bandwidth_hz, "Hz") << "\n\n";
+  text_table t({align::right, align::right, align::right, align::right, align::right, align::right, align::right,
+                align::right, align::right, align::right, align::right});
+  t.add({"drive", "", "output", "", "gain", "THD", "", "even/odd", "alias", "DC shift", "VGS shift"});
+  for (const auto& p : r.points)
+    t.add({dbu(p.drive_vpk), format_si(p.drive_vpk, "Vpk"), dbu(p.output_vpk), format_si(p.output_vpk, "Vpk"),
+           format_number(p.gain_db, 3) + " dB", format_number(p.thd_percent, 3) + " %", format_number(p.thd_db, 3) + " dB",
+           ratio_db(p.even_odd_ratio),
+           p.alias_dbc < shown_floor_dbc ? std::string("< -180 dBc") : format_number(p.alias_dbc, 3) + " dBc",
+           shift(p.dc_shift_v), shift(p.bias_shift_v)});
+  t.write(out);
+  out << "\n  harmonics (dBc)\n";
+  std::vector<text_table::align> al(static_cast<std::size_t>(harmonics), align::right);
+  text_table ht(al);
+  std::vector<std::string> head{"drive"};
+  for (int h = 2; h <= harmonics; ++h) head.push_back("H" + std::to_string(h));
+  ht.add(head);
+  for (const auto& p : r.points) {
+    std::vector<std::string> row{dbu(p.drive_vpk)};
+    for (double h : p.harmonics_dbc) row.push_back(dbc(h));
+    ht.add(row);
+  }
+  ht.write(out);
+  out << '\n';
+  for (const auto& c : r.crossings) {
+    out << "  THD " << format_number(c.thd_percent, 2) << " %: ";
+    if (c.found)
+      out << "drive " << format_si(c.drive_vpk, "Vpk") << " (" << dbu(c.drive_vpk) << "), output "
+          << format_si(c.output_vpk, "Vpk") << " (" << dbu(c.output_vpk) << ")\n";
+    else
+      out << "not reached in this sweep\n";
+  }
+  out << "  even/odd: even-harmonic over odd-harmonic power (positive dB: even-dominated, "
+         "the square-law signature)\n"
+         "  DC shift: mean load voltage moved from rest; VGS shift: the bias moved by the drive\n"
+         "  (gate conduction charging the coupling capacitor, or the channel squashing)\n"
+         "  < -180: below the simulation's numerical floor\n";
+  if (verbose) {
+    out << "\n  solver\n";
+    text_table v({align::right, align::right, align::right, align::right, align::right, align::right, align::right});
+    v.add({"drive", "Newton mean", "max", "failed", "shooting", "periods", "state change"});
+    for (const auto& p : r.points)
+      v.add({dbu(p.drive_vpk), format_number(p.newton.mean_evaluations(), 3), std::to_string(p.newton.max_evaluations),
+             std::to_string(p.newton.failed),
+             std::to_string(p.shooting_iterations) + (p.used_settling ? " +settle" : ""),
+             std::to_string(p.periods_simulated), format_si(p.state_change_v, "V")});
+    v.write(out);
+  }
+}
+
+CLI::App* setup(CLI::App& app, sweep_options& opt) {
   CLI::App* sub = app.add_subcommand("sweep", "Harmonics and THD against drive level, from the nonlinear simulation");
-  add_stage_input(*sub, opt->input);
-  sub->add_option("--freq", opt->freq, "Test-tone frequency (snapped so the record holds whole cycles)")->capture_default_str();
-  sub->add_option("--drive", opt->drive, "Drive levels at the generator, comma separated: 100mVpk,300mVrms,-10dBu")
+  add_stage_input(*sub, opt.input);
+  sub->add_option("--freq", opt.freq, "Test-tone frequency (snapped so the record holds whole cycles)")->capture_default_str();
+  sub->add_option("--drive", opt.drive, "Drive levels at the generator, comma separated: 100mVpk,300mVrms,-10dBu")
       ->type_name("L1,L2,...");
-  sub->add_option("--from", opt->from, "Lowest drive of a stepped sweep (default -40dBu)")->type_name("LEVEL");
-  sub->add_option("--to", opt->to, "Highest drive of a stepped sweep (default +20dBu)")->type_name("LEVEL");
-  sub->add_option("--steps", opt->steps, "Drive levels from --from to --to, equal steps in dB")->capture_default_str();
-  sub->add_option("--oversample", opt->oversample, "Simulation rate as a multiple of --rate")->capture_default_str();
-  sub->add_option("--harmonics", opt->harmonics, "Highest harmonic N reported (H2..HN)")->capture_default_str();
-  sub->add_option("--bandwidth", opt->bandwidth, "Harmonics above it are not counted (AES17: 20k)")->capture_default_str();
-  sub->add_option("--rate", opt->rate, "The audio rate the oversampling multiplies")->capture_default_str();
-  sub->add_flag("--json", opt->json, "Machine-readable output");
-  sub->add_flag("--csv", opt->csv, "Every point as CSV");
-  sub->add_option("--plot", opt->plot, "Write THD and H2..H5 against drive as SVG")->type_name("FILE.svg");
-  sub->add_flag("--verbose", opt->verbose, "Also show Newton and steady-state statistics per point");
-  sub->add_option("--threads", opt->threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
+  sub->add_option("--from", opt.from, "Lowest drive of a stepped sweep (default -40dBu)")->type_name("LEVEL");
+  sub->add_option("--to", opt.to, "Highest drive of a stepped sweep (default +20dBu)")->type_name("LEVEL");
+  sub->add_option("--steps", opt.steps, "Drive levels from --from to --to, equal steps in dB")->capture_default_str();
+  sub->add_option("--oversample", opt.oversample, "Simulation rate as a multiple of --rate")->capture_default_str();
+  sub->add_option("--harmonics", opt.harmonics, "Highest harmonic N reported (H2..HN)")->capture_default_str();
+  sub->add_option("--bandwidth", opt.bandwidth, "Harmonics above it are not counted (AES17: 20k)")->capture_default_str();
+  sub->add_option("--rate", opt.rate, "The audio rate the oversampling multiplies")->capture_default_str();
+  sub->add_flag("--json", opt.json, "Machine-readable output");
+  sub->add_flag("--csv", opt.csv, "Every point as CSV");
+  sub->add_option("--plot", opt.plot, "Write THD and H2..H5 against drive as SVG")->type_name("FILE.svg");
+  sub->add_flag("--verbose", opt.verbose, "Also show Newton and steady-state statistics per point");
+  sub->add_option("--threads", opt.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
   sub->footer(
       "Examples:\n"
       "  pinchoff sweep presets/bass-booster-9v.toml\n"
@@ -110,188 +267,59 @@ void register_sweep(CLI::App& app, std::vector<command>& commands) {
       "the periodic steady state (found by shooting, not by seconds of settling), simulated at\n"
       "the oversampled rate; harmonics are read exactly from whole cycles, and energy between\n"
       "the harmonics within the bandwidth is reported as aliasing.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) {
-                        if (opt->json && opt->csv) throw input_error("--json and --csv: choose one");
-                        model::sweep_settings s;
-                        s.frequency_hz = option_frequency_hz(opt->freq, "--freq");
-                        s.drives_vpk = drive_levels(*opt);
-                        s.oversample = opt->oversample;
-                        s.harmonics = opt->harmonics;
-                        s.bandwidth_hz = option_frequency_hz(opt->bandwidth, "--bandwidth");
-                        s.base_rate_hz = option_frequency_hz(opt->rate, "--rate");
-                        s.threads = opt->threads;
-                        model::validate(s);
-                        const std::filesystem::path inputs[] = {opt->input.path};
-                        if (!opt->plot.empty()) check_plot_target(opt->plot, inputs);
-                        const model::stage st = load_stage(opt->input);
-                        // The rest point's cautions first (before the simulation's wait), then
-                        // anything the solver could not do: said, never hidden.
-                        std::vector<std::string> problems = rest_point_warnings(st, "sweep", err);
-                        const std::size_t rest_warnings = problems.size();
-                        const model::sweep_result r = model::run_sweep(st, s);
+  return sub;
+}
 
-                        for (const auto& p : r.points) {
-                          if (p.newton.failed > 0)
-                            problems.push_back("at " + format_si(p.drive_vpk, "V") + " peak, " + std::to_string(p.newton.failed) +
-                                               " samples did not converge even sub-stepped: treat this point with caution");
-                          if (!p.converged)
-                            problems.push_back("at " + format_si(p.drive_vpk, "V") + " peak the steady state was not reached (" +
-                                               "state still changes " + format_si(p.state_change_v, "V") + " a period)");
-                        }
-                        for (std::size_t k = rest_warnings; k < problems.size(); ++k)
-                          err << "pinchoff sweep: warning: " << problems[k] << '\n';
+void run(const sweep_options& opt, std::ostream& out, std::ostream& err) {
+  if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
+  sweep_report rep;
+  model::sweep_settings& s = rep.settings;
+  s.frequency_hz = option_frequency_hz(opt.freq, "--freq");
+  s.drives_vpk = drive_levels(opt);
+  s.oversample = opt.oversample;
+  s.harmonics = opt.harmonics;
+  s.bandwidth_hz = option_frequency_hz(opt.bandwidth, "--bandwidth");
+  s.base_rate_hz = option_frequency_hz(opt.rate, "--rate");
+  s.threads = opt.threads;
+  const model::sweep_plan plan = model::plan_sweep(s);  // the settings' errors before any file is read
+  const std::filesystem::path inputs[] = {opt.input.path};
+  if (!opt.plot.empty()) check_plot_target(opt.plot, inputs);
+  rep.st = load_stage(opt.input);
+  // The rest point's cautions first (before the simulation's wait), then anything the
+  // solver could not do: said, never hidden.
+  rep.problems = rest_point_warnings(rep.st, "sweep", err);
+  const std::size_t rest_warnings = rep.problems.size();
+  rep.r = model::run_sweep(rep.st, plan);
+  for (const auto& p : rep.r.points) {
+    if (p.newton.failed > 0)
+      rep.problems.push_back("at " + format_si(p.drive_vpk, "V") + " peak, " + std::to_string(p.newton.failed) +
+                             " samples did not converge even sub-stepped: treat this point with caution");
+    if (!p.converged)
+      rep.problems.push_back("at " + format_si(p.drive_vpk, "V") + " peak the steady state was not reached (" +
+                             "state still changes " + format_si(p.state_change_v, "V") + " a period)");
+  }
+  for (std::size_t k = rest_warnings; k < rep.problems.size(); ++k)
+    err << "pinchoff sweep: warning: " << rep.problems[k] << '\n';
 
-                        if (!opt->plot.empty()) {
-                          line_plot pl;
-                          pl.title = st.name + ": harmonics against drive at " + format_si(r.frequency_hz, "Hz");
-                          pl.x = {"drive at the generator (dBu)", axis_scale::linear, {}, {}, false};
-                          std::vector<series> lines;
-                          series thd{"THD", {}, {}, true};
-                          for (const auto& p : r.points) {
-                            thd.x.push_back(base::dbu_from_vpk(p.drive_vpk));
-                            thd.y.push_back(p.thd_db);
-                          }
-                          lines.push_back(thd);
-                          for (int h = 2; h <= std::min(5, s.harmonics); ++h) {
-                            series hs{"H" + std::to_string(h), {}, {}, false};
-                            for (const auto& p : r.points) {
-                              hs.x.push_back(base::dbu_from_vpk(p.drive_vpk));
-                              hs.y.push_back(p.harmonics_dbc[static_cast<std::size_t>(h - 2)]);
-                            }
-                            lines.push_back(hs);
-                          }
-                          // Below -140 dB lies nothing a build note needs, and below -180 only
-                          // the simulation's numerical floor: the axis stops at -140.
-                          double lowest = 0.0;
-                          for (const auto& l : lines)
-                            for (double y : l.y)
-                              if (std::isfinite(y)) lowest = std::min(lowest, y);
-                          axis yaxis{"level re fundamental (dB)", axis_scale::linear, {}, {}, false};
-                          if (lowest < -140.0) {
-                            yaxis.min = -140.0;
-                            yaxis.max = 0.0;
-                          }
-                          pl.top = {yaxis, lines};
-                          for (const auto& c : r.crossings)
-                            if (c.found)
-                              pl.markers.push_back({base::dbu_from_vpk(c.drive_vpk), format_number(c.thd_percent, 2) + " % THD"});
-                          write_svg_file(opt->plot, render_svg(pl), inputs);
-                        }
+  if (!opt.plot.empty()) write_plot(rep, opt.plot, inputs);
+  if (opt.json) return print_json(rep, out);
+  if (opt.csv) return write_csv(rep, out);
+  print_text(rep, opt.verbose, out);
+  if (!opt.plot.empty()) out << "\n  plot written to " << opt.plot << '\n';
+}
 
-                        if (opt->json) {
-                          nlohmann::json j;
-                          j["frequency_hz"] = r.frequency_hz;
-                          j["requested_frequency_hz"] = r.requested_hz;
-                          j["oversampling"] = r.oversample;
-                          j["sample_rate_hz"] = r.sample_rate_hz;
-                          j["record_samples"] = r.samples_per_record;
-                          j["record_cycles"] = r.cycles;
-                          nlohmann::json pts = nlohmann::json::array();
-                          for (const auto& p : r.points) {
-                            nlohmann::json hs = nlohmann::json::array();
-                            for (double h : p.harmonics_dbc) hs.push_back(number_or_null(h));
-                            pts.push_back({{"drive_vpk", p.drive_vpk},
-                                           {"drive_dbu", base::dbu_from_vpk(p.drive_vpk)},
-                                           {"output_vpk", p.output_vpk},
-                                           {"output_dbu", base::dbu_from_vpk(p.output_vpk)},
-                                           {"gain_db", p.gain_db},
-                                           {"thd_percent", p.thd_percent},
-                                           {"thd_db", p.thd_db},
-                                           {"harmonics_dbc", hs},
-                                           {"alias_dbc", p.alias_dbc},
-                                           {"even_odd_ratio", number_or_null(p.even_odd_ratio)},
-                                           {"dc_shift_v", p.dc_shift_v},
-                                           {"bias_shift_v", p.bias_shift_v},
-                                           {"steady_state_converged", p.converged},
-                                           {"state_change_v", p.state_change_v},
-                                           {"newton_mean_iterations", p.newton.mean_evaluations()},
-                                           {"newton_max_iterations", p.newton.max_evaluations},
-                                           {"newton_failed_samples", p.newton.failed},
-                                           {"periods_simulated", p.periods_simulated}});
-                          }
-                          j["points"] = pts;
-                          nlohmann::json cs = nlohmann::json::array();
-                          for (const auto& c : r.crossings)
-                            cs.push_back({{"thd_percent", c.thd_percent},
-                                          {"drive_vpk", c.found ? nlohmann::json(c.drive_vpk) : nlohmann::json(nullptr)},
-                                          {"output_vpk", c.found ? nlohmann::json(c.output_vpk) : nlohmann::json(nullptr)}});
-                          j["thd_crossings"] = cs;
-                          j["warnings"] = problems;
-                          out << j.dump(2) << '\n';
-                          return;
-                        }
-                        if (opt->csv) {
-                          out << "drive_vpk,output_vpk,gain_db,thd_percent,alias_dbc,even_odd_ratio,dc_shift_v";
-                          for (int h = 2; h <= s.harmonics; ++h) out << ",h" << h << "_dbc";
-                          out << '\n';
-                          out.precision(10);
-                          for (const auto& p : r.points) {
-                            out << p.drive_vpk << ',' << p.output_vpk << ',' << p.gain_db << ',' << p.thd_percent << ','
-                                << p.alias_dbc << ',' << p.even_odd_ratio << ',' << p.dc_shift_v;
-                            for (double h : p.harmonics_dbc) {
-                              out << ',';
-                              if (std::isfinite(h)) out << h;
-                            }
-                            out << '\n';
-                          }
-                          return;
-                        }
-                        out << st.name << "\n  sine at " << format_si(r.frequency_hz, "Hz", 5);
-                        if (std::fabs(r.frequency_hz - r.requested_hz) > 1e-9 * r.requested_hz)
-                          out << " (asked " << format_si(r.requested_hz, "Hz", 4) << "; snapped so " << r.cycles
-                              << " whole cycles fill the record)";
-                        out << ", " << r.oversample << "x oversampling (" << format_si(r.sample_rate_hz, "Hz") << "), H2..H"
-                            << s.harmonics << " up to " << format_si(s.bandwidth_hz, "Hz") << "\n\n";
-                        text_table t({align::right, align::right, align::right, align::right, align::right, align::right,
-                                      align::right, align::right, align::right, align::right, align::right});
-                        t.add({"drive", "", "output", "", "gain", "THD", "", "even/odd", "alias", "DC shift", "VGS shift"});
-                        for (const auto& p : r.points)
-                          t.add({dbu(p.drive_vpk), format_si(p.drive_vpk, "Vpk"), dbu(p.output_vpk), format_si(p.output_vpk, "Vpk"),
-                                 format_number(p.gain_db, 3) + " dB", format_number(p.thd_percent, 3) + " %",
-                                 format_number(p.thd_db, 3) + " dB", ratio_db(p.even_odd_ratio),
-                                 p.alias_dbc < shown_floor_dbc ? std::string("< -180 dBc") : format_number(p.alias_dbc, 3) + " dBc",
-                                 shift(p.dc_shift_v), shift(p.bias_shift_v)});
-                        t.write(out);
-                        out << "\n  harmonics (dBc)\n";
-                        std::vector<text_table::align> al(static_cast<std::size_t>(s.harmonics), align::right);
-                        text_table ht(al);
-                        std::vector<std::string> head{"drive"};
-                        for (int h = 2; h <= s.harmonics; ++h) head.push_back("H" + std::to_string(h));
-                        ht.add(head);
-                        for (const auto& p : r.points) {
-                          std::vector<std::string> row{dbu(p.drive_vpk)};
-                          for (double h : p.harmonics_dbc) row.push_back(dbc(h));
-                          ht.add(row);
-                        }
-                        ht.write(out);
-                        out << '\n';
-                        for (const auto& c : r.crossings) {
-                          out << "  THD " << format_number(c.thd_percent, 2) << " %: ";
-                          if (c.found)
-                            out << "drive " << format_si(c.drive_vpk, "Vpk") << " (" << dbu(c.drive_vpk) << "), output "
-                                << format_si(c.output_vpk, "Vpk") << " (" << dbu(c.output_vpk) << ")\n";
-                          else
-                            out << "not reached in this sweep\n";
-                        }
-                        out << "  even/odd: even-harmonic over odd-harmonic power (positive dB: even-dominated, "
-                               "the square-law signature)\n"
-                               "  DC shift: mean load voltage moved from rest; VGS shift: the bias moved by the drive\n"
-                               "  (gate conduction charging the coupling capacitor, or the channel squashing)\n"
-                               "  < -180: below the simulation's numerical floor\n";
-                        if (opt->verbose) {
-                          out << "\n  solver\n";
-                          text_table v({align::right, align::right, align::right, align::right, align::right, align::right,
-                                        align::right});
-                          v.add({"drive", "Newton mean", "max", "failed", "shooting", "periods", "state change"});
-                          for (const auto& p : r.points)
-                            v.add({dbu(p.drive_vpk), format_number(p.newton.mean_evaluations(), 3),
-                                   std::to_string(p.newton.max_evaluations), std::to_string(p.newton.failed),
-                                   std::to_string(p.shooting_iterations) + (p.used_settling ? " +settle" : ""),
-                                   std::to_string(p.periods_simulated), format_si(p.state_change_v, "V")});
-                          v.write(out);
-                        }
-                        if (!opt->plot.empty()) out << "\n  plot written to " << opt->plot << '\n';
-                      }});
+}  // namespace
+
+void register_sweep(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<sweep_options>();
+  CLI::App* sub = setup(app, *opt);
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
+                      {{"frequency_hz", "--freq"},
+                       {"drives_vpk", "--drive"},
+                       {"oversampling", "--oversample"},
+                       {"harmonics", "--harmonics"},
+                       {"bandwidth_hz", "--bandwidth"},
+                       {"base_rate_hz", "--rate"}}});
 }
 
 }  // namespace pinchoff::cli

@@ -7,6 +7,7 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "cli/option_text.hpp"
 #include "cli/text_table.hpp"
 #include "base/eseries.hpp"
 #include "base/units.hpp"
@@ -34,7 +35,7 @@ nlohmann::json point_json(const model::tune_point& p) {
   return op;
 }
 
-void write_text(const model::stage& st, const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
+void print_text(const model::stage& st, const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
   out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << r.adjust << "\n\n";
   text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right,
                 align::left});
@@ -53,26 +54,71 @@ void write_text(const model::stage& st, const model::tune_target& target, const 
   out << "\n  swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
 }
 
-}  // namespace
+void print_json(const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
+  nlohmann::json j;
+  j["adjust"] = r.adjust;
+  j["exact_ohm"] = r.exact_ohm;
+  j["target"] = model::target_text(target);
+  j["exact"] = {{"value_ohm", r.exact_ohm},
+                {"operating_point", point_json(r.exact)},
+                {"symmetric_output_vpk", r.exact.headroom.symmetric_output_vpk}};
+  nlohmann::json cands = nlohmann::json::array();
+  for (const auto& c : r.candidates)
+    cands.push_back({{"series", c.series},
+                     {"value_ohm", c.point.value_ohm},
+                     {"operating_point", point_json(c.point)},
+                     {"symmetric_output_vpk", c.point.headroom.symmetric_output_vpk}});
+  j["candidates"] = cands;
+  out << j.dump(2) << '\n';
+}
 
-void register_tune(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<tune_options>();
+// --over-spread: the trimmer that brings a batch to the target.
+void print_trim_text(const model::stage& st, const model::tune_target& target, const model::spread_settings& ss,
+                     const model::trim_result& t, base::eseries series, std::ostream& out) {
+  out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << t.adjust << " over a batch\n  "
+      << describe_spread(ss, st) << "\n\n";
+  text_table tt({align::left, align::right});
+  tt.add({"needed, smallest", format_si(t.r_min, "Ω", 4)});
+  tt.add({"needed, 5 % of parts below", format_si(t.r_p5, "Ω", 4)});
+  tt.add({"needed, 95 % of parts below", format_si(t.r_p95, "Ω", 4)});
+  tt.add({"needed, largest", format_si(t.r_max, "Ω", 4)});
+  tt.write(out);
+  out << "\n  fit " << format_si(t.fixed_ohm, "Ω") << " (" << base::series_name(series) << ") in series with a "
+      << format_si(t.trimmer_ohm, "Ω") << " trimmer: covers " << format_si(t.fixed_ohm, "Ω") << " to "
+      << format_si(t.fixed_ohm + t.trimmer_ohm, "Ω") << ", " << base::format_number(100.0 * t.coverage, 3)
+      << " % of the parts\n";
+  if (t.reachable < ss.runs) out << "  " << (ss.runs - t.reachable) << " of " << ss.runs << " parts cannot reach the target with any value\n";
+}
+
+void print_trim_json(const model::tune_target& target, const model::spread_settings& ss, const model::trim_result& t,
+                     std::ostream& out) {
+  nlohmann::json j;
+  j["adjust"] = t.adjust;
+  j["target"] = model::target_text(target);
+  j["runs"] = ss.runs;
+  j["reachable"] = t.reachable;
+  j["range_ohm"] = {{"min", t.r_min}, {"p5", t.r_p5}, {"p95", t.r_p95}, {"max", t.r_max}};
+  j["fixed_ohm"] = t.fixed_ohm;
+  j["trimmer_ohm"] = t.trimmer_ohm;
+  j["coverage"] = t.coverage;
+  out << j.dump(2) << '\n';
+}
+
+CLI::App* setup(CLI::App& app, tune_options& opt) {
   CLI::App* sub = app.add_subcommand("tune", "Find the resistor value that puts the bias on a target");
-  add_stage_input(*sub, opt->input);
-  sub->add_option("--target", opt->target_text,
+  add_stage_input(*sub, opt.input);
+  sub->add_option("--target", opt.target_text,
                   "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, or center (largest symmetric clean swing)")
       ->required()
       ->type_name("TARGET");
   std::string keys;
   for (std::string_view k : model::adjustable_resistor_keys()) keys += (keys.empty() ? "" : ", ") + std::string(k);
-  sub->add_option("--adjust", opt->adjust, "The resistor to solve for: " + keys)
-      ->type_name("KEY")
-      ->capture_default_str();
-  sub->add_option("--series", opt->series, "Standard values to offer: E12, E24 or E96")->capture_default_str();
-  sub->add_flag("--json", opt->json, "Machine-readable output");
-  sub->add_flag("--over-spread", opt->over_spread,
+  sub->add_option("--adjust", opt.adjust, "The resistor to solve for: " + keys)->type_name("KEY")->capture_default_str();
+  sub->add_option("--series", opt.series, "Standard values to offer: E12, E24 or E96")->capture_default_str();
+  sub->add_flag("--json", opt.json, "Machine-readable output");
+  sub->add_flag("--over-spread", opt.over_spread,
                 "Size a fixed resistor plus trimmer that brings every part of a batch to the target (with the batch options)");
-  add_spread_options(*sub, opt->batch);
+  add_spread_options(*sub, opt.batch);
   sub->footer(
       "Examples:\n"
       "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5\n"
@@ -86,63 +132,33 @@ void register_tune(CLI::App& app, std::vector<command>& commands) {
       "Values are searched from 1 Ω to 100 MΩ; a target no value reaches is reported with the\n"
       "range that can be reached. Voltages are to ground, in real signs (negative for a\n"
       "p-channel stage on a negative supply).");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
-                        const model::tune_target target = model::parse_target(opt->target_text);
-                        const base::eseries series = base::parse_series(opt->series);
-                        const model::stage st = load_stage(opt->input);
-                        if (opt->over_spread) {
-                          const model::spread_settings ss = spread_settings_from(opt->batch, st, opt->input.path);
-                          const model::trim_result t = model::size_trimmer(st, opt->adjust, target, ss, series);
-                          if (opt->json) {
-                            nlohmann::json j;
-                            j["adjust"] = t.adjust;
-                            j["target"] = model::target_text(target);
-                            j["runs"] = ss.runs;
-                            j["reachable"] = t.reachable;
-                            j["range_ohm"] = {{"min", t.r_min}, {"p5", t.r_p5}, {"p95", t.r_p95}, {"max", t.r_max}};
-                            j["fixed_ohm"] = t.fixed_ohm;
-                            j["trimmer_ohm"] = t.trimmer_ohm;
-                            j["coverage"] = t.coverage;
-                            out << j.dump(2) << '\n';
-                            return;
-                          }
-                          out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << t.adjust
-                              << " over a batch\n  " << describe_spread(ss, st) << "\n\n";
-                          text_table tt({align::left, align::right});
-                          tt.add({"needed, smallest", format_si(t.r_min, "Ω", 4)});
-                          tt.add({"needed, 5 % of parts below", format_si(t.r_p5, "Ω", 4)});
-                          tt.add({"needed, 95 % of parts below", format_si(t.r_p95, "Ω", 4)});
-                          tt.add({"needed, largest", format_si(t.r_max, "Ω", 4)});
-                          tt.write(out);
-                          out << "\n  fit " << format_si(t.fixed_ohm, "Ω") << " (" << base::series_name(series) << ") in series with a "
-                              << format_si(t.trimmer_ohm, "Ω") << " trimmer: covers " << format_si(t.fixed_ohm, "Ω") << " to "
-                              << format_si(t.fixed_ohm + t.trimmer_ohm, "Ω") << ", " << base::format_number(100.0 * t.coverage, 3)
-                              << " % of the parts\n";
-                          if (t.reachable < ss.runs)
-                            out << "  " << (ss.runs - t.reachable) << " of " << ss.runs
-                                << " parts cannot reach the target with any value\n";
-                          return;
-                        }
-                        const model::tune_result r = model::tune_resistor(st, opt->adjust, target, series);
-                        if (!opt->json) {
-                          write_text(st, target, r, out);
-                          return;
-                        }
-                        nlohmann::json j;
-                        j["adjust"] = r.adjust;
-                        j["exact_ohm"] = r.exact_ohm;
-                        j["target"] = model::target_text(target);
-                        j["exact"] = {{"value_ohm", r.exact_ohm}, {"operating_point", point_json(r.exact)},
-                                      {"symmetric_output_vpk", r.exact.headroom.symmetric_output_vpk}};
-                        nlohmann::json cands = nlohmann::json::array();
-                        for (const auto& c : r.candidates)
-                          cands.push_back({{"series", c.series},
-                                           {"value_ohm", c.point.value_ohm},
-                                           {"operating_point", point_json(c.point)},
-                                           {"symmetric_output_vpk", c.point.headroom.symmetric_output_vpk}});
-                        j["candidates"] = cands;
-                        out << j.dump(2) << '\n';
-                      }});
+  return sub;
+}
+
+void run(const tune_options& opt, std::ostream& out) {
+  const model::tune_target target = parse_target(opt.target_text);
+  const base::eseries series = base::parse_series(opt.series);
+  const model::stage st = load_stage(opt.input);
+  if (opt.over_spread) {
+    const model::spread_settings ss = spread_settings_from(opt.batch, st, opt.input.path);
+    const model::trim_result t = model::size_trimmer(st, opt.adjust, target, ss, series);
+    if (opt.json) return print_trim_json(target, ss, t, out);
+    return print_trim_text(st, target, ss, t, series, out);
+  }
+  const model::tune_result r = model::tune_resistor(st, opt.adjust, target, series);
+  if (opt.json) return print_json(target, r, out);
+  print_text(st, target, r, out);
+}
+
+}  // namespace
+
+void register_tune(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<tune_options>();
+  CLI::App* sub = setup(app, *opt);
+  command c{sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); },
+            {{"adjust_key", "--adjust"}, {"target", "--target"}}};
+  map_spread_fields(c.options_of_fields);
+  commands.push_back(std::move(c));
 }
 
 }  // namespace pinchoff::cli

@@ -4,6 +4,7 @@
 
 #include "base/error.hpp"
 #include "base/units.hpp"
+#include "cli/option_text.hpp"
 #include "model/analysis/response.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/stage_file.hpp"
@@ -21,7 +22,17 @@ void add_stage_input(CLI::App& sub, stage_input& in) {
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);  // and any number of --set
 }
 
-model::stage load_stage(const stage_input& in) { return model::read_stage_file(in.path, in.overrides); }
+model::stage load_stage(const stage_input& in) { return load_stage(in.path, in.overrides); }
+
+model::stage load_stage(const std::string& path, std::span<const std::string> set_args) {
+  std::vector<model::stage_override> overrides;
+  for (const std::string& a : set_args) overrides.push_back(parse_set(a));
+  try {
+    return model::read_stage_file(path, overrides);
+  } catch (const setting_error& e) {
+    throw input_error("--set " + e.field() + ": " + e.what());
+  }
+}
 
 std::vector<std::string> rest_point_warnings(const model::stage& st, const std::string& command, std::ostream& err,
                                              const std::string& label) {
@@ -97,9 +108,18 @@ void add_spread_options(CLI::App& sub, spread_input& in) {
   sub.add_option("--distribution", in.distribution, "uniform within the ranges, or normal (range = +-3 sigma)")
       ->capture_default_str()
       ->check(CLI::IsMember({"uniform", "normal"}));
-  sub.add_option("--runs", in.runs, "Number of Monte Carlo runs")->capture_default_str()->check(CLI::Range(1, 10000000));
+  sub.add_option("--runs", in.runs, "Number of Monte Carlo runs, 1 to 10000000")->capture_default_str();
   sub.add_option("--seed", in.seed, "Seed: the same seed gives the same runs")->capture_default_str();
   sub.add_option("--threads", in.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
+}
+
+void map_spread_fields(std::map<std::string, std::string, std::less<>>& options_of_fields) {
+  options_of_fields.insert({{"idss_a", "--idss"},
+                            {"vp_v", "--vp"},
+                            {"supply_v", "--supply"},
+                            {"correlation", "--correlation"},
+                            {"resistor_tolerance", "--tolerance"},
+                            {"runs", "--runs"}});
 }
 
 model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const std::string& stage_path) {

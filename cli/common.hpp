@@ -1,7 +1,10 @@
 #pragma once
 // Pieces several commands share: the stage-file argument with --set overrides, and the
 // JSON and text forms of an operating point.
+#include <functional>
+#include <map>
 #include <ostream>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -22,6 +25,10 @@ struct stage_input {
 /// Adds the positional FILE and the repeatable --set option.
 void add_stage_input(CLI::App& sub, stage_input& in);
 model::stage load_stage(const stage_input& in);
+/// Reads the stage file at `path` with each of `set_args` ("KEY=VALUE", read by
+/// cli/option_text.hpp's parse_set) applied; an error in an override is named
+/// "--set KEY: ...".
+model::stage load_stage(const std::string& path, std::span<const std::string> set_args);
 
 /// {"vg_v","vs_v","vd_v","vgs_v","vds_v","id_a","ig_a","region"}: the contract keys.
 nlohmann::json operating_point_json(const model::terminal_point& t);
@@ -67,6 +74,9 @@ struct spread_input {
 };
 
 void add_spread_options(CLI::App& sub, spread_input& in);
+/// The spread_settings fields the model names in its errors, mapped to the options above
+/// (added to a command's options_of_fields).
+void map_spread_fields(std::map<std::string, std::string, std::less<>>& options_of_fields);
 /// The settings; IDSS and VP ranges come from --idss/--vp, else from --class, else from
 /// the stage's own class (if it names one). `stage_path` locates the class file.
 model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const std::string& stage_path);

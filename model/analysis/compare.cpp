@@ -70,12 +70,16 @@ double neper_from_db(double db) { return db * std::log(10.0) / 20.0; }
 }  // namespace
 
 void validate(const compare_settings& s) {
-  if (!(s.level_vpk > 0) || !std::isfinite(s.level_vpk)) throw input_error("the comparison level must be above 0 V");
-  if (s.harmonics < 2 || s.harmonics > 100) throw input_error("--harmonics must be between 2 and 100");
-  if (!(s.max_drive_vpk > 0)) throw input_error("the largest drive must be above 0 V");
+  // The level is a drive in one mode and an output in the other: the field says which.
+  const char* level_field = s.mode == compare_mode::at_drive ? "drive_level_vpk" : "output_level_vpk";
+  if (!(s.level_vpk > 0) || !std::isfinite(s.level_vpk))
+    throw setting_error(level_field, "the comparison level must be above 0 V, got " + format_si(s.level_vpk, "Vpk"));
+  if (s.harmonics < 2 || s.harmonics > 100)
+    throw setting_error("harmonics", "the highest harmonic must be 2 to 100, got " + std::to_string(s.harmonics));
+  if (!(s.max_drive_vpk > 0)) throw setting_error("max_drive_vpk", "the largest drive must be above 0 V");
   if (s.mode == compare_mode::at_drive && s.level_vpk > s.max_drive_vpk)
-    throw input_error("--at-drive " + format_si(s.level_vpk, "Vpk") + " is above the " + format_si(s.max_drive_vpk, "Vpk") +
-                      " limit of a comparison");
+    throw setting_error(level_field, "the drive " + format_si(s.level_vpk, "Vpk") + " is above the " +
+                                         format_si(s.max_drive_vpk, "Vpk") + " limit of a comparison");
   if (!(s.output_tolerance_db > 0) || !(s.thd_tolerance > 0) || !(s.thd_search_from_vpk > 0) ||
       !(s.thd_search_from_vpk < s.max_drive_vpk) || !(s.max_thd_percent > 0))
     throw internal_error("comparison search settings out of range");
@@ -196,8 +200,19 @@ drive_search find_drive_for_thd(const stage& st, const compare_settings& s, doub
   }
 }
 
-compare_result compare_designs(std::span<const stage> stages, const compare_settings& s) {
+compare_plan plan_compare(const compare_settings& s) {
   validate(s);
+  compare_plan p;
+  p.settings_ = s;
+  return p;
+}
+
+compare_result compare_designs(std::span<const stage> stages, const compare_settings& s) {
+  return compare_designs(stages, plan_compare(s));
+}
+
+compare_result compare_designs(std::span<const stage> stages, const compare_plan& plan) {
+  const compare_settings& s = plan.settings();
   compare_result res;
   {
     const sweep_settings p = point_settings(s, s.level_vpk);

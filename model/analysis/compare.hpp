@@ -39,7 +39,9 @@ struct compare_settings {
   int threads{0};                        ///< for the steady-state points; results do not depend on it
 };
 
-/// Validates the settings; throws input_error naming the option.
+/// Validates the settings; throws setting_error naming the field: "drive_level_vpk" or
+/// "output_level_vpk" (the level, by mode), "harmonics", and those of validate(sweep_settings)
+/// for the frequency, oversampling and rate.
 void validate(const compare_settings& s);
 
 /// The outcome of a search for a drive (a value: not finding one is an expected result).
@@ -94,6 +96,23 @@ struct compare_result {
 /// Figures for every stage; each point's harmonics_dbc holds H2..H(thd_harmonics), of
 /// which the first harmonics - 1 are the ones asked for. A design that cannot reach the
 /// output target has reached = false and its reason; its point is the last one tried.
+/// Settings that passed validate(). Only plan_compare makes one, so settings checked before
+/// the stage files are read are not checked again.
+class compare_plan {
+ public:
+  const compare_settings& settings() const noexcept { return settings_; }
+
+ private:
+  friend compare_plan plan_compare(const compare_settings& s);
+  compare_plan() = default;
+  compare_settings settings_;
+};
+
+/// validate(s): throws setting_error as validate does.
+compare_plan plan_compare(const compare_settings& s);
+
+compare_result compare_designs(std::span<const stage> stages, const compare_plan& plan);
+/// compare_designs(stages, plan_compare(s)).
 compare_result compare_designs(std::span<const stage> stages, const compare_settings& s);
 
 }  // namespace pinchoff::model

@@ -11,8 +11,10 @@
 namespace pinchoff::model {
 
 imd_result run_imd(const stage& st, const imd_settings& s) {
-  if (!(s.level_vpk > 0) || !std::isfinite(s.level_vpk)) throw input_error("--level must be above 0 V");
-  if (s.oversample < 1 || s.oversample > 64) throw input_error("--oversample must be between 1 and 64");
+  if (!(s.level_vpk > 0) || !std::isfinite(s.level_vpk))
+    throw setting_error("level_vpk", "the level must be above 0 V, got " + base::format_si(s.level_vpk, "Vpk"));
+  if (s.oversample < 1 || s.oversample > 64)
+    throw setting_error("oversampling", "oversampling must be 1 to 64, got " + std::to_string(s.oversample));
   imd_result r;
   r.method = s.method;
   r.sample_rate_hz = s.base_rate_hz * s.oversample;
@@ -37,8 +39,9 @@ imd_result run_imd(const stage& st, const imd_settings& s) {
   const double nyquist = 0.5 * s.base_rate_hz;
   const double top = s.method == imd_method::twin_tone ? r.f2_hz : r.f2_hz + s.max_order * r.f1_hz;
   if (top >= nyquist)
-    throw input_error("the " + base::format_si(s.base_rate_hz, "Hz") + " rate cannot carry tones and products up to " +
-                      base::format_si(top, "Hz") + " (Nyquist " + base::format_si(nyquist, "Hz") + "); use --rate 48k or more");
+    throw setting_error("base_rate_hz", "the " + base::format_si(s.base_rate_hz, "Hz") +
+                                            " rate cannot carry tones and products up to " + base::format_si(top, "Hz") +
+                                            " (Nyquist " + base::format_si(nyquist, "Hz") + "); use a rate of 48 kHz or more");
   const bool four_to_one = s.method != imd_method::twin_tone;
   r.a1_vpk = four_to_one ? 0.8 * s.level_vpk : 0.5 * s.level_vpk;
   r.a2_vpk = four_to_one ? 0.2 * s.level_vpk : 0.5 * s.level_vpk;

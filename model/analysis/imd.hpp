@@ -16,7 +16,7 @@ struct imd_settings {
   /// Peak of the composite drive at the generator (the two tones' peaks added): SMPTE and
   /// DIN split it 4:1 (low:high), twin-tone 1:1.
   double level_vpk{0.3};
-  int oversample{8};
+  int oversample{8};                ///< 1..64
   double base_rate_hz{48000.0};
   int max_order{4};
 };
@@ -34,6 +34,8 @@ struct imd_result {
   dk_stats newton;
 };
 
+/// Throws setting_error naming the field ("level_vpk", "oversampling", "base_rate_hz": a
+/// rate whose Nyquist limit the tones and their products do not fit under).
 imd_result run_imd(const stage& st, const imd_settings& s);
 
 }  // namespace pinchoff::model

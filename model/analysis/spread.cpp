@@ -44,15 +44,24 @@ double to_range(double z, const base::value_range& r, spread_distribution d) noe
 }  // namespace
 
 void validate(const spread_settings& s, const stage& st) {
+  using base::format_number;
+  using base::format_si;
   const double sign = polarity_sign(st);
-  if (s.idss_a && !(s.idss_a->lo > 0)) throw input_error("--idss: the range must be above 0 A");
+  if (s.idss_a && !(s.idss_a->lo > 0))
+    throw setting_error("idss_a", "the IDSS range must be above 0 A, got " + format_si(s.idss_a->lo, "A") + " at its low end");
   if (s.vp_v && !(sign * s.vp_v->hi < 0 && sign * s.vp_v->lo < 0))
-    throw input_error(std::string("--vp: pinch-off voltages must be ") + (sign > 0 ? "negative for an n-channel part" : "positive for a p-channel part"));
+    throw setting_error("vp_v", std::string("pinch-off voltages must be ") +
+                                    (sign > 0 ? "negative for an n-channel part" : "positive for a p-channel part"));
   if (s.supply_v && !(sign * s.supply_v->lo > 0 && sign * s.supply_v->hi > 0))
-    throw input_error(std::string("--supply: the range must be ") + (sign > 0 ? "positive" : "negative") + " like the stage's supply");
-  if (!(s.correlation >= -1 && s.correlation <= 1)) throw input_error("--correlation must be between -1 and 1");
-  if (!(s.resistor_tolerance >= 0 && s.resistor_tolerance < 0.5)) throw input_error("--tolerance must be below 50 %");
-  if (s.runs < 1 || s.runs > 10000000) throw input_error("--runs must be between 1 and 10000000");
+    throw setting_error("supply_v", std::string("the supply range must be ") + (sign > 0 ? "positive" : "negative") +
+                                        " like the stage's supply");
+  if (!(s.correlation >= -1 && s.correlation <= 1))
+    throw setting_error("correlation", "the correlation must be -1 to 1, got " + format_number(s.correlation));
+  if (!(s.resistor_tolerance >= 0 && s.resistor_tolerance < 0.5))
+    throw setting_error("resistor_tolerance",
+                        "the resistor tolerance must be below 50 %, got " + format_number(100 * s.resistor_tolerance) + " %");
+  if (s.runs < 1 || s.runs > 10000000)
+    throw setting_error("runs", "the number of runs must be 1 to 10000000, got " + std::to_string(s.runs));
 }
 
 spread_draw draw_part(const spread_settings& s, const stage& st, int index) {
@@ -113,32 +122,6 @@ const std::vector<quantity_def>& spread_quantities() {
       {"swing", "swing_vpk", "V"}, {"thd", "thd_percent", "%"},
   };
   return q;
-}
-
-requirement parse_requirement(std::string_view text) {
-  const auto eq = text.find('=');
-  const std::string name(text.substr(0, eq));
-  const auto& qs = spread_quantities();
-  const auto q = std::find_if(qs.begin(), qs.end(), [&](const quantity_def& d) { return name == d.name; });
-  if (eq == std::string_view::npos || q == qs.end()) {
-    std::string names;
-    for (const auto& d : qs) names += (names.empty() ? "" : ", ") + std::string(d.name);
-    throw input_error("--require '" + std::string(text) + "': expected QUANTITY=LO..HI with QUANTITY one of " + names +
-                      " (for example --require vd=3.5..5.5 or --require gain=15..)");
-  }
-  requirement r;
-  r.quantity = name;
-  const std::string_view range = text.substr(eq + 1);
-  const auto dots = range.find("..");
-  const base::unit u = std::string_view(q->unit) == "A" ? base::unit::ampere : std::string_view(q->unit) == "V" ? base::unit::volt : base::unit::none;
-  const std::string what = "--require " + name;
-  if (dots == std::string_view::npos) throw input_error(what + ": give a range LO..HI (either end may be left open)");
-  const std::string_view a = range.substr(0, dots), b = range.substr(dots + 2);
-  if (!a.empty()) r.lo = base::parse_value(a, u, what);
-  if (!b.empty()) r.hi = base::parse_value(b, u, what);
-  if (a.empty() && b.empty()) throw input_error(what + ": give at least one end of the range");
-  if (r.lo > r.hi) throw input_error(what + ": the range has its minimum above its maximum");
-  return r;
 }
 
 double percentile_sorted(const std::vector<double>& v, double p) {
@@ -209,7 +192,7 @@ trim_result size_trimmer(const stage& st, std::string_view adjust_key, const tun
                          const spread_settings& s, base::eseries series) {
   validate(s, st);
   if (target.kind == target_kind::center)
-    throw input_error("--over-spread needs a bias target such as vd=4.5 or id=1m (not center)");
+    throw setting_error("target", "sizing a trimmer over a batch needs a bias target such as vd=4.5 or id=1m, not center");
   trim_result res;
   res.adjust = std::string(adjust_key);
   res.exact_ohm.assign(static_cast<std::size_t>(s.runs), NAN);

@@ -32,7 +32,8 @@ struct spread_settings {
   std::string class_name;        ///< the device class the ranges came from, if any
 };
 
-/// Checks ranges, correlation and runs; throws input_error naming the option.
+/// Checks ranges, correlation, tolerance and runs; throws setting_error naming the field
+/// ("idss_a", "vp_v", "supply_v", "correlation", "resistor_tolerance", "runs").
 void validate(const spread_settings& s, const stage& st);
 
 /// One drawn part and supply: the stage with these values substituted.
@@ -45,7 +46,7 @@ struct spread_draw {
 spread_draw draw_part(const spread_settings& s, const stage& st, int index);
 stage apply_draw(const stage& st, const spread_draw& d);
 
-/// What a run measures; names are the option spellings ("vd", "gain", ...).
+/// What a run measures, by name ("vd", "gain", ...).
 struct quantity_def {
   const char* name;      ///< "vd"
   const char* json_key;  ///< "vd_v"
@@ -53,12 +54,11 @@ struct quantity_def {
 };
 const std::vector<quantity_def>& spread_quantities();
 
+/// A condition a good build meets: lo <= value <= hi (an open end is infinite).
 struct requirement {
   std::string quantity;  ///< a spread_quantities() name
   double lo{-INFINITY}, hi{INFINITY};
 };
-/// "vd=3.5..5.5", "gain=15..", "swing=2.." (SI values; gain in dB). Throws input_error.
-requirement parse_requirement(std::string_view text);
 
 struct spread_run {
   int index{};
@@ -106,6 +106,7 @@ struct trim_result {
   double coverage{};              ///< fraction of all runs the pair can bring to the target
 };
 
+/// The target must be a bias quantity (not center: a setting_error of the field "target").
 trim_result size_trimmer(const stage& st, std::string_view adjust_key, const tune_target& target,
                          const spread_settings& s, base::eseries series);
 

@@ -24,30 +24,52 @@ int record_samples(double frequency_hz, double sample_rate_hz, int cycles) {
 }
 
 void validate(const sweep_settings& s) {
-  if (s.oversample < 1 || s.oversample > 64) throw input_error("--oversample must be between 1 and 64");
-  if (!(s.base_rate_hz >= 8000 && s.base_rate_hz <= 768000)) throw input_error("--rate must be between 8 kHz and 768 kHz");
+  using base::format_si;
+  if (s.oversample < 1 || s.oversample > 64)
+    throw setting_error("oversampling", "oversampling must be 1 to 64, got " + std::to_string(s.oversample));
+  if (!(s.base_rate_hz >= 8000 && s.base_rate_hz <= 768000))
+    throw setting_error("base_rate_hz", "the audio rate must be 8 kHz to 768 kHz, got " + format_si(s.base_rate_hz, "Hz"));
   const double fs = s.base_rate_hz * s.oversample;
   if (!(s.frequency_hz > 0) || s.frequency_hz >= 0.5 * s.base_rate_hz)
-    throw input_error("--freq " + base::format_si(s.frequency_hz, "Hz") + " is at or above the Nyquist limit " +
-                      base::format_si(0.5 * s.base_rate_hz, "Hz") + " of the " + base::format_si(s.base_rate_hz, "Hz") + " rate");
-  if (s.frequency_hz < 1.0) throw input_error("--freq must be at least 1 Hz (a lower tone needs an impractically long record)");
-  if (s.harmonics < 1 || s.harmonics > 100) throw input_error("--harmonics must be between 1 and 100");
-  if (!(s.bandwidth_hz > 0) || s.bandwidth_hz > 0.5 * fs) throw input_error("--bandwidth must be above 0 and below half the simulation rate");
-  if (s.drives_vpk.empty()) throw input_error("no drive levels given");
+    throw setting_error("frequency_hz", "the test frequency " + format_si(s.frequency_hz, "Hz") +
+                                            " is at or above the Nyquist limit " + format_si(0.5 * s.base_rate_hz, "Hz") +
+                                            " of the " + format_si(s.base_rate_hz, "Hz") + " rate");
+  if (s.frequency_hz < 1.0)
+    throw setting_error("frequency_hz", "the test frequency must be at least 1 Hz (a lower tone needs an impractically "
+                                        "long record), got " + format_si(s.frequency_hz, "Hz"));
+  if (s.harmonics < 1 || s.harmonics > 100)
+    throw setting_error("harmonics", "the highest harmonic must be 1 to 100, got " + std::to_string(s.harmonics));
+  if (!(s.bandwidth_hz > 0) || s.bandwidth_hz > 0.5 * fs)
+    throw setting_error("bandwidth_hz", "the bandwidth must be above 0 and below half the simulation rate (" +
+                                            format_si(0.5 * fs, "Hz") + "), got " + format_si(s.bandwidth_hz, "Hz"));
+  if (s.drives_vpk.empty()) throw setting_error("drives_vpk", "no drive levels given");
   for (double d : s.drives_vpk)
-    if (!(d > 0) || !std::isfinite(d)) throw input_error("drive levels must be above 0 V");
+    if (!(d > 0) || !std::isfinite(d))
+      throw setting_error("drives_vpk", "drive levels must be above 0 V, got " + format_si(d, "Vpk"));
   if (s.cycles < 1 || s.cycles > 64) throw internal_error("sweep cycles out of range");
 }
 
-sweep_result run_sweep(const stage& st, const sweep_settings& s) {
+sweep_plan plan_sweep(const sweep_settings& s) {
   validate(s);
+  sweep_plan p;
+  p.settings_ = s;
+  p.sample_rate_hz_ = s.base_rate_hz * s.oversample;
+  p.samples_per_record_ = record_samples(s.frequency_hz, p.sample_rate_hz_, s.cycles);
+  p.frequency_hz_ = p.sample_rate_hz_ * s.cycles / p.samples_per_record_;
+  return p;
+}
+
+sweep_result run_sweep(const stage& st, const sweep_settings& s) { return run_sweep(st, plan_sweep(s)); }
+
+sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
+  const sweep_settings& s = plan.settings();
   sweep_result res;
   res.requested_hz = s.frequency_hz;
   res.oversample = s.oversample;
-  res.sample_rate_hz = s.base_rate_hz * s.oversample;
+  res.sample_rate_hz = plan.sample_rate_hz();
   res.cycles = s.cycles;
-  res.samples_per_record = record_samples(s.frequency_hz, res.sample_rate_hz, s.cycles);
-  res.frequency_hz = res.sample_rate_hz * s.cycles / res.samples_per_record;
+  res.samples_per_record = plan.samples_per_record();
+  res.frequency_hz = plan.frequency_hz();
 
   const network net = build_network(st);
   const operating_point op = solve_operating_point(net);

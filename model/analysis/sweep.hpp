@@ -25,8 +25,9 @@ struct sweep_settings {
   int threads{0};                   ///< 0: one per core; results do not depend on it
 };
 
-/// Validates the settings against the simulation rate; throws input_error naming the
-/// option (a frequency at or above the Nyquist limit of the oversampled rate, ...).
+/// Validates the settings against the simulation rate; throws setting_error naming the
+/// field ("oversampling", "base_rate_hz", "frequency_hz", "harmonics", "bandwidth_hz",
+/// "drives_vpk"): a frequency at or above the Nyquist limit of the audio rate, ...
 void validate(const sweep_settings& s);
 
 struct sweep_point {
@@ -66,6 +67,30 @@ struct sweep_result {
   std::vector<thd_crossing> crossings;  ///< 1 %, 3 %, 10 %
 };
 
+/// Settings that passed validate(), with the rate and record they imply. Only plan_sweep
+/// makes one, so a sweep run many times on one plan (a spread runs one per part) or whose
+/// settings were checked before the stage was read is checked once.
+class sweep_plan {
+ public:
+  const sweep_settings& settings() const noexcept { return settings_; }
+  double sample_rate_hz() const noexcept { return sample_rate_hz_; }    ///< base rate * oversample
+  int samples_per_record() const noexcept { return samples_per_record_; }  ///< M
+  double frequency_hz() const noexcept { return frequency_hz_; }        ///< as simulated (snapped)
+
+ private:
+  friend sweep_plan plan_sweep(const sweep_settings& s);
+  sweep_plan() = default;
+  sweep_settings settings_;
+  double sample_rate_hz_{};
+  int samples_per_record_{};
+  double frequency_hz_{};
+};
+
+/// validate(s), then the record: throws setting_error as validate does.
+sweep_plan plan_sweep(const sweep_settings& s);
+
+sweep_result run_sweep(const stage& st, const sweep_plan& plan);
+/// run_sweep(st, plan_sweep(s)).
 sweep_result run_sweep(const stage& st, const sweep_settings& s);
 
 /// Record length M for K cycles of f at fs: round(K fs / f) moved to the nearest value

@@ -46,26 +46,6 @@ tune_point evaluate_point(const stage& s, std::string_view adjust_key, double va
 
 }  // namespace
 
-tune_target parse_target(std::string_view text) {
-  if (text == "center") return {target_kind::center, 0.0};
-  const auto eq = text.find('=');
-  const std::string_view name = text.substr(0, eq);
-  tune_target t;
-  if (name == "vd") t.kind = target_kind::vd;
-  else if (name == "id") t.kind = target_kind::id;
-  else if (name == "vds") t.kind = target_kind::vds;
-  else if (name == "vs") t.kind = target_kind::vs;
-  else
-    throw input_error("--target '" + std::string(text) +
-                      "': expected vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS or center (for example --target vd=4.5)");
-  if (eq == std::string_view::npos)
-    throw input_error("--target '" + std::string(text) + "': give a value, for example --target " + std::string(name) +
-                      (t.kind == target_kind::id ? "=1m" : "=4.5"));
-  t.value = base::parse_value(text.substr(eq + 1), t.kind == target_kind::id ? base::unit::ampere : base::unit::volt,
-                             "--target " + std::string(name));
-  return t;
-}
-
 std::string target_text(const tune_target& t) {
   if (t.kind == target_kind::center) return "center (largest symmetric clean swing)";
   return std::string(quantity_name(t.kind)) + " = " + base::format_si(t.value, quantity_unit(t.kind), 4);
@@ -80,12 +60,13 @@ double solve_resistor(const stage& s, std::string_view adjust_key, const tune_ta
   if (resistor_field(probe, adjust_key) == nullptr) {
     std::string keys;
     for (std::string_view k : adjustable_resistor_keys()) keys += (keys.empty() ? "" : ", ") + std::string(k);
-    throw input_error("--adjust '" + std::string(adjust_key) + "': not an adjustable resistor (choose one of " + keys + ")");
+    throw setting_error("adjust_key",
+                        "'" + std::string(adjust_key) + "' is not an adjustable resistor (choose one of " + keys + ")");
   }
   // Removing or adding some resistors changes the topology; keep the stage valid.
   const bool is_divider = adjust_key == "gate.bias_top" || adjust_key == "gate.bias_bottom";
   if (is_divider && !(s.gate.bias_top_ohm > 0 && s.gate.bias_bottom_ohm > 0))
-    throw input_error("--adjust " + std::string(adjust_key) + ": the stage has no bias divider to adjust");
+    throw setting_error("adjust_key", "the stage has no bias divider, so " + std::string(adjust_key) + " cannot be adjusted");
 
   const bool want_center = target.kind == target_kind::center;
   auto eval = [&](double r) -> std::optional<tune_point> {

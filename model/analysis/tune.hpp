@@ -13,13 +13,13 @@ namespace pinchoff::model {
 
 enum class target_kind { vd, id, vds, vs, center };
 
-/// "vd=4.5", "id=1m", "vds=3.2", "vs=0.9" (real signs, SI values) or "center" (the bias
-/// with the largest symmetric clean output swing). Throws input_error otherwise.
+/// A bias target: a terminal quantity (vd, vds, vs in volts, id in amperes, real signs) to
+/// hit, or center (the bias with the largest symmetric clean output swing; value unused).
 struct tune_target {
   target_kind kind{target_kind::vd};
   double value{};
 };
-tune_target parse_target(std::string_view text);
+/// "vd = 4.50 V", "center (largest symmetric clean swing)": for reports.
 std::string target_text(const tune_target& t);
 
 struct tune_point {
@@ -44,8 +44,9 @@ struct tune_result {
 inline constexpr double tune_min_ohm = 1.0;
 inline constexpr double tune_max_ohm = 100e6;
 
-/// Solves for the resistor `adjust_key` (one of adjustable_resistor_keys()). Throws
-/// input_error saying what range is reachable when no value hits the target.
+/// Solves for the resistor `adjust_key` (one of adjustable_resistor_keys(); any other is a
+/// setting_error of the field "adjust_key"). Throws input_error saying what range is
+/// reachable when no value hits the target.
 tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tune_target& target, base::eseries series);
 
 /// The exact value alone (no series candidates): what tune_resistor solves first.

@@ -60,7 +60,8 @@ struct stage {
 /// +1 for n-channel, -1 for p-channel: real value = sign * mirrored n-channel value.
 inline double polarity_sign(const stage& s) noexcept { return s.pol == polarity::p ? -1.0 : 1.0; }
 
-/// The resistor keys a command may adjust (`tune --adjust`), in stage-file spelling.
+/// The resistors that tuning may solve for and a spread varies, as stage-file keys
+/// ("source.resistor").
 std::vector<std::string_view> adjustable_resistor_keys() noexcept;
 /// The field behind an adjustable key, or nullptr when the key is not one.
 double* resistor_field(stage& s, std::string_view key) noexcept;

@@ -68,12 +68,10 @@ class reader {
   reader(std::string_view source_name) : source_(source_name) {}
 
   [[noreturn]] void fail_at(const toml::source_region& where, const std::string& key, const std::string& msg) const {
+    // A node with no place in the text came from an override: named by its key alone.
+    if (where.begin.line == 0) throw setting_error(key, msg);
     std::ostringstream os;
-    if (where.begin.line == 0) {
-      os << "--set " << key << ": " << msg;
-    } else {
-      os << source_ << ':' << where.begin.line << ':' << where.begin.column << ": " << msg;
-    }
+    os << source_ << ':' << where.begin.line << ':' << where.begin.column << ": " << msg;
     throw input_error(os.str());
   }
   [[noreturn]] void fail_file(const std::string& msg) const { throw input_error(std::string(source_) + ": " + msg); }
@@ -136,32 +134,23 @@ std::string unknown_key_message(std::string_view key, std::string_view where, st
   return m;
 }
 
-void apply_override(toml::table& root, const std::string& spec) {
-  const auto eq = spec.find('=');
-  if (eq == std::string::npos || eq == 0)
-    throw input_error("--set '" + spec + "': expected KEY=VALUE, for example --set drain.resistor=4.7k");
-  const std::string key = spec.substr(0, eq);
-  const std::string value = spec.substr(eq + 1);
-  const auto dot = key.find('.');
-  if (dot == std::string::npos) {
-    root.insert_or_assign(key, value);
+void apply_override(toml::table& root, const stage_override& o) {
+  if (o.section.empty()) {
+    root.insert_or_assign(o.key, o.value);
     return;
   }
-  const std::string section = key.substr(0, dot), name = key.substr(dot + 1);
-  if (name.empty() || name.find('.') != std::string::npos)
-    throw input_error("--set '" + spec + "': expected SECTION.KEY=VALUE, for example --set drain.resistor=4.7k");
-  toml::node* sec = root.get(section);
+  toml::node* sec = root.get(o.section);
   if (sec == nullptr) {
-    root.insert_or_assign(section, toml::table{});
-    sec = root.get(section);
+    root.insert_or_assign(o.section, toml::table{});
+    sec = root.get(o.section);
   }
-  if (!sec->is_table()) throw input_error("--set '" + spec + "': '" + section + "' is not a section");
-  sec->as_table()->insert_or_assign(name, value);
+  if (!sec->is_table()) throw setting_error(o.section + "." + o.key, "'" + o.section + "' is not a section");
+  sec->as_table()->insert_or_assign(o.key, o.value);
 }
 
 }  // namespace
 
-stage parse_stage(std::string_view text, std::string_view source_name, std::span<const std::string> overrides) {
+stage parse_stage(std::string_view text, std::string_view source_name, std::span<const stage_override> overrides) {
   reader rd(source_name);
   toml::table root;
   try {
@@ -171,7 +160,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
     throw input_error(std::string(source_name) + ":" + std::to_string(b.line) + ":" + std::to_string(b.column) +
                       ": " + std::string(e.description()));
   }
-  for (const std::string& o : overrides) apply_override(root, o);
+  for (const stage_override& o : overrides) apply_override(root, o);
 
   std::vector<std::string_view> top_known(top_scalars.begin(), top_scalars.end());
   for (const section_spec& s : schema()) top_known.push_back(s.name);
@@ -322,7 +311,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   return st;
 }
 
-stage read_stage_file(const std::filesystem::path& path, std::span<const std::string> overrides) {
+stage read_stage_file(const std::filesystem::path& path, std::span<const stage_override> overrides) {
   std::error_code ec;
   if (std::filesystem::is_directory(path, ec)) throw io_error("'" + path.string() + "' is a directory, not a stage file");
   std::ifstream in(path, std::ios::binary);

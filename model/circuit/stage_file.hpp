@@ -1,7 +1,9 @@
 #pragma once
-// Reads a stage file (TOML, see README "Stage file") into a validated stage.
-// Errors are input_error with "FILE:LINE:COLUMN: message" naming the key; values given
-// with --set are named as "--set KEY=VALUE".
+// Reads a stage file (TOML, see README "Stage file") into a validated stage, with values
+// replaced or added by overrides. Errors in the file are input_error with
+// "FILE:LINE:COLUMN: message" naming the key; an error in an override's value is a
+// setting_error whose field is the override's key ("drain.resistor") and whose message says
+// what is wrong ("drain.resistor must not be negative").
 #include <filesystem>
 #include <span>
 #include <string>
@@ -11,11 +13,20 @@
 
 namespace pinchoff::model {
 
-/// Reads and validates the file, applying `overrides` ("drain.resistor=4.7k") first.
-stage read_stage_file(const std::filesystem::path& path, std::span<const std::string> overrides = {});
+/// One value to set before the file is read: `key` in `section` ("drain", "resistor"), or a
+/// top-level key when `section` is empty ("name"). The value is text, read and checked as
+/// the same value in the file would be ("4.7k", "4k7", "100n").
+struct stage_override {
+  std::string section;
+  std::string key;
+  std::string value;
+};
+
+/// Reads and validates the file, applying `overrides` first, in order.
+stage read_stage_file(const std::filesystem::path& path, std::span<const stage_override> overrides = {});
 
 /// The same from text; `source_name` is used in messages in place of the file name.
-stage parse_stage(std::string_view text, std::string_view source_name, std::span<const std::string> overrides = {});
+stage parse_stage(std::string_view text, std::string_view source_name, std::span<const stage_override> overrides = {});
 
 
 }  // namespace pinchoff::model

@@ -20,6 +20,7 @@
 #include "base/error.hpp"
 #include "dsp/io/sound_file.hpp"
 #include "base/units.hpp"
+#include "cli/option_text.hpp"
 #include "model/device/device_class.hpp"
 #include "model/device/fit.hpp"
 #include "model/analysis/spread.hpp"
@@ -47,16 +48,17 @@ inline bool starts_with(std::string_view text, std::string_view head) { return t
 }  // namespace detail
 
 // ---------------------------------------------------------------------------------------
-// Stage file: the first line is one --set override (none when it is empty), the rest the
-// TOML text. An accepted stage has finite values and passes validate(); a refusal names
-// where it is (the source name or "--set").
+// Stage file: the first line is one --set override (none when it is empty), read as the
+// command line reads it, the rest the TOML text. An accepted stage has finite values and
+// passes validate(); a refusal names where it is: the source name, "--set" for an override
+// the command line cannot read, or the override's key for a value the reader refuses.
 inline outcome stage_file_entry(std::string_view data) {
   const std::size_t nl = data.find('\n');
   const std::string_view first = data.substr(0, nl);
   const std::string_view rest = nl == std::string_view::npos ? std::string_view() : data.substr(nl + 1);
-  std::vector<std::string> overrides;
-  if (!first.empty()) overrides.emplace_back(first);
+  std::vector<model::stage_override> overrides;
   try {
+    if (!first.empty()) overrides.push_back(cli::parse_set(first));
     const model::stage st = model::parse_stage(rest, "fuzz.toml", overrides);
     for (double v : {st.temperature_k, st.supply.volts_v, st.supply.resistance_ohm, st.supply.capacitance_f,
                      st.jfet.idss_a, st.jfet.vp_v, st.jfet.lambda_per_v, st.jfet.is_a, st.jfet.n, st.jfet.cgs_f,
@@ -68,6 +70,10 @@ inline outcome stage_file_entry(std::string_view data) {
     return outcome::accepted;
   } catch (const broken_contract&) {
     throw;
+  } catch (const setting_error& e) {
+    detail::require(!overrides.empty() && !e.field().empty() && e.what()[0] != '\0',
+                    "an override's refusal does not name its key: " + e.field() + ": " + e.what());
+    return outcome::refused;
   } catch (const input_error& e) {
     const std::string_view msg = e.what();
     detail::require(detail::starts_with(msg, "fuzz.toml") || detail::starts_with(msg, "--set"),
@@ -147,7 +153,7 @@ inline outcome units_entry(std::string_view text) {
     detail::require(std::isfinite(f) && f > 0.0, "parse_frequency_hz returned a frequency not above 0");
   });
   attempt([&] {
-    const model::requirement r = model::parse_requirement(text);
+    const model::requirement r = cli::parse_requirement(text);
     detail::require(!std::isnan(r.lo) && !std::isnan(r.hi) && r.lo <= r.hi, "parse_requirement returned a bad range");
   });
   attempt([&] {

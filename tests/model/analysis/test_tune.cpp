@@ -68,11 +68,17 @@ TEST_CASE("center maximises the symmetric swing") {
   CHECK(std::fabs(r.exact.headroom.up.output_v) == doctest::Approx(std::fabs(r.exact.headroom.down.output_v)).epsilon(1e-4));
 }
 
-TEST_CASE("targets are parsed with units") {
-  CHECK(parse_target("vd=4.5").value == doctest::Approx(4.5).epsilon(1e-15));
-  CHECK(parse_target("id=1.2m").value == doctest::Approx(1.2e-3).epsilon(1e-15));
-  CHECK(parse_target("center").kind == target_kind::center);
-  CHECK_THROWS_AS(parse_target("vg=3"), input_error);
-  CHECK_THROWS_AS(parse_target("vd"), input_error);
-  CHECK_THROWS_AS(parse_target("vd=four"), input_error);
+TEST_CASE("a resistor tuning cannot adjust is named by the field adjust_key") {
+  const stage s = test::stage_from(test::self_bias_text(9.0, 4.5e-3, -1.6, 680.0, 3.3e3));
+  for (const char* key : {"jfet.idss", "gate.bias_top"}) {  // not a resistor; a divider the stage lacks
+    CAPTURE(key);
+    try {
+      (void)solve_resistor(s, key, {target_kind::vd, 4.5});
+      FAIL("accepted");
+    } catch (const setting_error& e) {
+      CHECK(e.field() == "adjust_key");
+      CHECK(std::string(e.what()).find(key) != std::string::npos);
+      CHECK(std::string(e.what()).find("--") == std::string::npos);
+    }
+  }
 }

@@ -49,9 +49,12 @@ std::string replace_line(const std::string& text, int line, const std::string& w
   return out;
 }
 
-std::string error_of(const std::string& text, std::vector<std::string> overrides = {}) {
+// An error in an override names its key as the field: shown here as "KEY: message".
+std::string error_of(const std::string& text, std::vector<stage_override> overrides = {}) {
   try {
     parse_stage(text, "bass.toml", overrides);
+  } catch (const setting_error& e) {
+    return e.field() + ": " + e.what();
   } catch (const input_error& e) {
     return e.what();
   }
@@ -88,8 +91,8 @@ TEST_CASE("a p-channel part takes bench signs") {
   CHECK(s.jfet.vp_v == 1.8);
 }
 
-TEST_CASE("--set overrides values with the same checks") {
-  const std::vector<std::string> set{"drain.resistor=4.7k", "supply.volts=12", "signal.impedance=10k"};
+TEST_CASE("overrides replace values with the same checks") {
+  const std::vector<stage_override> set{{"drain", "resistor", "4.7k"}, {"supply", "volts", "12"}, {"signal", "impedance", "10k"}};
   const stage s = parse_stage(good, "bass.toml", set);
   CHECK(s.drain_resistor_ohm == doctest::Approx(4700).epsilon(1e-15));
   CHECK(s.supply.volts_v == doctest::Approx(12).epsilon(1e-15));
@@ -100,7 +103,7 @@ TEST_CASE("every bad input names where it is and what was expected") {
   struct row {
     const char* what;
     std::string text;
-    std::vector<std::string> overrides;
+    std::vector<stage_override> overrides;
     std::vector<std::string> must_contain;
   };
   const std::vector<row> rows{
@@ -127,10 +130,11 @@ TEST_CASE("every bad input names where it is and what was expected") {
       {"gate without DC path", replace_line(good, 10, ""), {}, {"bass.toml", "no DC path", "gate.resistor"}},
       {"bad polarity", replace_line(good, 7, "vp = -1.8\npolarity = \"x\""), {}, {"bass.toml:8:", "jfet.polarity"}},
       {"bad topology", replace_line(good, 2, "topology = \"common-gate\""), {}, {"bass.toml:2:", "topology"}},
-      {"override with unknown key", good, {"drain.resistr=4.7k"}, {"--set drain.resistr", "did you mean 'resistor'"}},
-      {"override with bad value", good, {"drain.resistor=lots"}, {"--set drain.resistor", "lots"}},
-      {"override without =", good, {"drain.resistor"}, {"--set", "KEY=VALUE"}},
-      {"override of a non-positive value", good, {"gate.resistor=0"}, {"--set gate.resistor", "above 0"}},
+      {"override with unknown key", good, {{"drain", "resistr", "4.7k"}}, {"drain.resistr: ", "did you mean 'resistor'"}},
+      {"override with bad value", good, {{"drain", "resistor", "lots"}}, {"drain.resistor: ", "lots"}},
+      {"override of a non-positive value", good, {{"gate", "resistor", "0"}}, {"gate.resistor: ", "above 0"}},
+      {"override into a value, not a section", good, {{"name", "x", "1"}}, {"name.x: ", "'name' is not a section"}},
+      {"override of an unknown top-level key", good, {{"", "colour", "red"}}, {"colour: ", "unknown key 'colour'"}},
   };
   for (const row& r : rows) {
     CAPTURE(r.what);

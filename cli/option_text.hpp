@@ -1,0 +1,93 @@
+#pragma once
+// The small languages of option values, read into the structured values the model takes:
+//   --set KEY=VALUE          -> model::stage_override   ("drain.resistor=4.7k", "name=Boost")
+//   --target vd=4.5          -> model::tune_target      (vd, id, vds, vs = a value; or center)
+//   --require vd=3.5..5.5    -> model::requirement      (either end may be left open)
+// Each throws input_error naming the option and the text given, with an example.
+// Header-only: the fuzz targets, which link only the libraries below cli/, call these too.
+#include <algorithm>
+#include <string>
+#include <string_view>
+
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/analysis/spread.hpp"
+#include "model/analysis/tune.hpp"
+#include "model/circuit/stage_file.hpp"
+
+namespace pinchoff::cli {
+
+/// "SECTION.KEY=VALUE" or "KEY=VALUE" (a top-level key such as name). The value is kept as
+/// text: the stage reader checks it as it checks the file's own values.
+inline model::stage_override parse_set(std::string_view spec) {
+  const std::string text(spec);
+  const auto eq = text.find('=');
+  if (eq == std::string::npos || eq == 0)
+    throw input_error("--set '" + text + "': expected KEY=VALUE, for example --set drain.resistor=4.7k");
+  const std::string key = text.substr(0, eq);
+  model::stage_override o;
+  o.value = text.substr(eq + 1);
+  const auto dot = key.find('.');
+  if (dot == std::string::npos) {
+    o.key = key;
+    return o;
+  }
+  o.section = key.substr(0, dot);
+  o.key = key.substr(dot + 1);
+  if (o.section.empty() || o.key.empty() || o.key.find('.') != std::string::npos)
+    throw input_error("--set '" + text + "': expected SECTION.KEY=VALUE, for example --set drain.resistor=4.7k");
+  return o;
+}
+
+/// "vd=4.5", "id=1m", "vds=3.2", "vs=0.9" (real signs, SI values) or "center".
+inline model::tune_target parse_target(std::string_view text) {
+  if (text == "center") return {model::target_kind::center, 0.0};
+  const auto eq = text.find('=');
+  const std::string_view name = text.substr(0, eq);
+  model::tune_target t;
+  if (name == "vd") t.kind = model::target_kind::vd;
+  else if (name == "id") t.kind = model::target_kind::id;
+  else if (name == "vds") t.kind = model::target_kind::vds;
+  else if (name == "vs") t.kind = model::target_kind::vs;
+  else
+    throw input_error("--target '" + std::string(text) +
+                      "': expected vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS or center (for example --target vd=4.5)");
+  if (eq == std::string_view::npos)
+    throw input_error("--target '" + std::string(text) + "': give a value, for example --target " + std::string(name) +
+                      (t.kind == model::target_kind::id ? "=1m" : "=4.5"));
+  t.value = base::parse_value(text.substr(eq + 1), t.kind == model::target_kind::id ? base::unit::ampere : base::unit::volt,
+                             "--target " + std::string(name));
+  return t;
+}
+
+/// "vd=3.5..5.5", "gain=15..", "swing=2.." with QUANTITY a model::spread_quantities() name
+/// (SI values; gain in dB, thd in %).
+inline model::requirement parse_requirement(std::string_view text) {
+  const auto eq = text.find('=');
+  const std::string name(text.substr(0, eq));
+  const auto& qs = model::spread_quantities();
+  const auto q = std::find_if(qs.begin(), qs.end(), [&](const model::quantity_def& d) { return name == d.name; });
+  if (eq == std::string_view::npos || q == qs.end()) {
+    std::string names;
+    for (const auto& d : qs) names += (names.empty() ? "" : ", ") + std::string(d.name);
+    throw input_error("--require '" + std::string(text) + "': expected QUANTITY=LO..HI with QUANTITY one of " + names +
+                      " (for example --require vd=3.5..5.5 or --require gain=15..)");
+  }
+  model::requirement r;
+  r.quantity = name;
+  const std::string_view range = text.substr(eq + 1);
+  const auto dots = range.find("..");
+  const base::unit u = std::string_view(q->unit) == "A"   ? base::unit::ampere
+                       : std::string_view(q->unit) == "V" ? base::unit::volt
+                                                          : base::unit::none;
+  const std::string what = "--require " + name;
+  if (dots == std::string_view::npos) throw input_error(what + ": give a range LO..HI (either end may be left open)");
+  const std::string_view a = range.substr(0, dots), b = range.substr(dots + 2);
+  if (!a.empty()) r.lo = base::parse_value(a, u, what);
+  if (!b.empty()) r.hi = base::parse_value(b, u, what);
+  if (a.empty() && b.empty()) throw input_error(what + ": give at least one end of the range");
+  if (r.lo > r.hi) throw input_error(what + ": the range has its minimum above its maximum");
+  return r;
+}
+
+}  // namespace pinchoff::cli
