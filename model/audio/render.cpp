@@ -263,7 +263,8 @@ render_plan plan_render(const render_job& job, const render_control& control, cl
 
   p.units.reserve(p.n_units);
   for (const render_stage& st : job.stages)
-    for (std::size_t c = 0; c < p.ch; ++c) p.units.emplace_back(st.net, st.op, rep.oversample, p.info.rate_hz, p.block, job.engine);
+    for (std::size_t c = 0; c < p.ch; ++c)
+      p.units.emplace_back(st.net, st.op, rep.oversample, p.info.rate_hz, p.block, job.engine);
   rep.latency_samples = p.units.front().latency_samples();
   const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
   const std::size_t asked = job.threads > 0 ? static_cast<std::size_t>(job.threads) : cores;
