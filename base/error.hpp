@@ -22,6 +22,13 @@ class io_error : public input_error {
   using input_error::input_error;
 };
 
+/// A file to be written exists and replacing it was not allowed. The message says which
+/// file; cli/ adds how the user allows it (cli/app.cpp).
+class file_exists_error : public io_error {
+ public:
+  using io_error::io_error;
+};
+
 /// A setting's value is wrong: out of its range, or not a value of its kind. `field()` names
 /// the setting as the layer that checks it knows it ("oversampling", "frequency_hz",
 /// "drain.resistor"); the message says what was expected without naming any option

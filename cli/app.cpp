@@ -93,6 +93,10 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
       err << "pinchoff " << c.sub->get_name() << ": " << (o != c.options_of_fields.end() ? o->second : e.field()) << ": "
           << e.what() << '\n';
       return 2;
+    } catch (const file_exists_error& e) {
+      err << "pinchoff " << c.sub->get_name() << ": " << e.what()
+          << (c.sub->get_option_no_throw("--force") ? " (use --force to replace it)" : "") << '\n';
+      return 2;
     } catch (const input_error& e) {
       err << "pinchoff " << c.sub->get_name() << ": " << e.what() << '\n';
       return 2;

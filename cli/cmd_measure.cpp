@@ -29,6 +29,7 @@ using base::format_number;
 using base::format_si;
 using align = text_table::align;
 
+// The options as typed.
 struct measure_options {
   std::string path;
   std::string freq_text{"auto"};
@@ -68,6 +69,7 @@ struct measure_report {
   bool trimmed{false};  // ramps at the ends skipped
   double sample_peak{0.0};
   dsp::windowed_analysis a;
+  std::optional<dsp::display_spectrum> spectrum;  // with --plot
   std::optional<prediction> against;
 };
 
@@ -90,6 +92,26 @@ std::string fixed(double v, int decimals) {
   char t[48];
   std::snprintf(t, sizeof t, "%.*f", decimals, v);
   return t;
+}
+
+// ---- Run
+
+// --against STAGE with its --drive and --set: the stage to predict, read before the
+// recording is analysed.
+std::optional<prediction> load_against(const measure_options& o) {
+  if (o.against_path.empty()) {
+    if (!o.drive_text.empty() || !o.overrides.empty())
+      throw input_error("--drive and --set go with --against STAGE (the stage to predict)");
+    return std::nullopt;
+  }
+  if (o.drive_text.empty()) throw input_error("--against needs --drive: the generator level the stage was driven with");
+  prediction p;
+  p.path = o.against_path;
+  p.overrides = o.overrides;
+  p.drive_vpk = option_level_vpk(o.drive_text, "--drive");
+  if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
+  p.st = load_stage(p.path, p.overrides);
+  return p;
 }
 
 measure_report analyse(const measure_options& o) {
@@ -142,31 +164,8 @@ measure_report analyse(const measure_options& o) {
     throw input_error("'" + o.path + "': " + e.what());  // "no tone found" must say in which file
   }
 
-  if (!o.plot_path.empty()) {
-    const double top_hz = fs / 2;
-    const dsp::display_spectrum sp = dsp::spectrum_for_display(x, fs, r.window, std::min(10.0, top_hz / 100), top_hz);
-    line_plot p;
-    p.title = "Spectrum of " + std::filesystem::path(o.path).filename().string() + ", channel " + std::to_string(o.channel);
-    p.x = axis{"frequency (Hz)", axis_scale::log10, std::min(10.0, top_hz / 100), top_hz};
-    series line{"windowed spectrum (" + std::string(dsp::window_name(r.window)) + ")", sp.frequency_hz, {}};
-    double lowest = 0.0;
-    for (double a : sp.amplitude_vpk) {
-      line.y.push_back(base::db_from_ratio(a));
-      if (std::isfinite(line.y.back())) lowest = std::min(lowest, line.y.back());
-    }
-    p.top.y = axis{"level (dBFS, sine peak)", axis_scale::linear, std::max(-200.0, 20.0 * std::floor(lowest / 20.0)), 0.0};
-    p.top.lines.push_back(std::move(line));
-    p.markers.push_back({r.a.fundamental_hz, "H1"});
-    // Label a harmonic only where it stands clear of the one before (3 % of the axis width),
-    // so the labels do not overprint; the unlabelled lines follow in order.
-    const double decades = std::log10(top_hz / *p.x.min);
-    for (int h = 2; h <= r.a.highest_harmonic; ++h) {
-      const bool is_clear = std::log10(h / (h - 1.0)) > 0.03 * decades;
-      p.markers.push_back({h * r.a.fundamental_hz, is_clear ? "H" + std::to_string(h) : std::string()});
-    }
-    const std::filesystem::path inputs[] = {o.path};
-    write_svg_file(o.plot_path, render_svg(p), inputs);
-  }
+  if (!o.plot_path.empty())
+    r.spectrum = dsp::spectrum_for_display(x, fs, r.window, std::min(10.0, fs / 2 / 100), fs / 2);
   return r;
 }
 
@@ -182,8 +181,7 @@ void predict(measure_report& r, const measure_options& o) {
   if (!(s.frequency_hz < 0.5 * s.base_rate_hz))
     throw input_error("the recording's fundamental, " + format_si(s.frequency_hz, "Hz") + ", lies above the " +
                       format_si(0.5 * s.base_rate_hz, "Hz") + " the model's test tone can reach");
-  model::validate(s);
-  p.sweep = model::run_sweep(p.st, s);
+  p.sweep = model::run_sweep(p.st, s);  // checks the settings
   const model::sweep_point& pt = p.point();
   if (pt.newton.failed > 0)
     p.warnings.push_back(std::to_string(pt.newton.failed) + " samples of the prediction did not converge even sub-stepped");
@@ -191,6 +189,8 @@ void predict(measure_report& r, const measure_options& o) {
     p.warnings.push_back("the prediction's steady state was not reached (state still changes " + format_si(pt.state_change_v, "V") +
                          " a period)");
 }
+
+// ---- Formatters
 
 std::string db_text(double v, const char* unit) { return std::isfinite(v) ? format_number(v, 4) + " " + unit : "n/a"; }
 std::string dbc_text(double v) {
@@ -351,31 +351,64 @@ void write_json(const measure_report& r, std::ostream& out) {
   out << j.dump(2) << '\n';
 }
 
-}  // namespace
+// The spectrum with the harmonics marked, as SVG.
+void write_plot(const measure_report& r, const measure_options& o) {
+  const double top_hz = r.info.rate_hz / 2;
+  const dsp::display_spectrum& sp = *r.spectrum;
+  line_plot p;
+  p.title = "Spectrum of " + std::filesystem::path(o.path).filename().string() + ", channel " + std::to_string(o.channel);
+  p.x = axis{"frequency (Hz)", axis_scale::log10, std::min(10.0, top_hz / 100), top_hz};
+  series line{"windowed spectrum (" + std::string(dsp::window_name(r.window)) + ")", sp.frequency_hz, {}};
+  double lowest = 0.0;
+  for (double a : sp.amplitude_vpk) {
+    line.y.push_back(base::db_from_ratio(a));
+    if (std::isfinite(line.y.back())) lowest = std::min(lowest, line.y.back());
+  }
+  p.top.y = axis{"level (dBFS, sine peak)", axis_scale::linear, std::max(-200.0, 20.0 * std::floor(lowest / 20.0)), 0.0};
+  p.top.lines.push_back(std::move(line));
+  p.markers.push_back({r.a.fundamental_hz, "H1"});
+  // Label a harmonic only where it stands clear of the one before (3 % of the axis width),
+  // so the labels do not overprint; the unlabelled lines follow in order.
+  const double decades = std::log10(top_hz / *p.x.min);
+  for (int h = 2; h <= r.a.highest_harmonic; ++h) {
+    const bool is_clear = std::log10(h / (h - 1.0)) > 0.03 * decades;
+    p.markers.push_back({h * r.a.fundamental_hz, is_clear ? "H" + std::to_string(h) : std::string()});
+  }
+  const std::filesystem::path inputs[] = {o.path};
+  write_svg_file(o.plot_path, render_svg(p), inputs);
+}
 
-void register_measure(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<measure_options>();
+measure_report run(const measure_options& o) {
+  std::optional<prediction> against = load_against(o);
+  measure_report r = analyse(o);
+  r.against = std::move(against);
+  if (r.against) predict(r, o);
+  return r;
+}
+
+// ---- Setup: the options, their help and the worked examples.
+CLI::App* setup(CLI::App& app, measure_options& o) {
   CLI::App* sub = app.add_subcommand("measure", "Harmonics, THD, THD+N and noise of a recorded test tone");
-  sub->add_option("REC", opt->path, "Recording to analyse (WAV, FLAC, AIFF, ...)")->required();
-  sub->add_option("--freq", opt->freq_text, "The tone's frequency, roughly (searched within 10 %), or auto: the strongest line")
+  sub->add_option("REC", o.path, "Recording to analyse (WAV, FLAC, AIFF, ...)")->required();
+  sub->add_option("--freq", o.freq_text, "The tone's frequency, roughly (searched within 10 %), or auto: the strongest line")
       ->type_name("FREQ|auto")
       ->capture_default_str();
-  sub->add_option("--channel", opt->channel, "Channel to analyse, counted from 1")->capture_default_str();
-  sub->add_option("--window", opt->window_text, "blackman-harris (4-term, -92 dB sidelobes) or flat-top (HFT90D)")
+  sub->add_option("--channel", o.channel, "Channel to analyse, counted from 1")->capture_default_str();
+  sub->add_option("--window", o.window_text, "blackman-harris (4-term, -92 dB sidelobes) or flat-top (HFT90D)")
       ->capture_default_str();
-  sub->add_option("--harmonics", opt->harmonics, "Highest harmonic counted in THD")->capture_default_str();
-  sub->add_option("--bandwidth", opt->bandwidth_text, "Upper edge of the measurement band")
+  sub->add_option("--harmonics", o.harmonics, "Highest harmonic counted in THD")->capture_default_str();
+  sub->add_option("--bandwidth", o.bandwidth_text, "Upper edge of the measurement band")
       ->type_name("FREQ")
       ->capture_default_str();
-  sub->add_option("--start", opt->start_s, "Skip this many seconds at the start")->type_name("SECONDS");
-  sub->add_option("--duration", opt->duration_s, "Analyse this many seconds (default: to the end)")->type_name("SECONDS");
-  sub->add_option("--plot", opt->plot_path, "Write the spectrum with the harmonics marked as SVG")->type_name("FILE.svg");
-  sub->add_flag("--json", opt->json, "Machine-readable output (keys carry their unit as a suffix)");
-  sub->add_option("--against", opt->against_path, "Stage file (TOML) whose prediction is shown beside the measurement")
+  sub->add_option("--start", o.start_s, "Skip this many seconds at the start")->type_name("SECONDS");
+  sub->add_option("--duration", o.duration_s, "Analyse this many seconds (default: to the end)")->type_name("SECONDS");
+  sub->add_option("--plot", o.plot_path, "Write the spectrum with the harmonics marked as SVG")->type_name("FILE.svg");
+  sub->add_flag("--json", o.json, "Machine-readable output (keys carry their unit as a suffix)");
+  sub->add_option("--against", o.against_path, "Stage file (TOML) whose prediction is shown beside the measurement")
       ->type_name("STAGE");
-  sub->add_option("--drive", opt->drive_text, "With --against: the generator level the stage was driven with, e.g. 100mVpk")
+  sub->add_option("--drive", o.drive_text, "With --against: the generator level the stage was driven with, e.g. 100mVpk")
       ->type_name("LEVEL");
-  sub->add_option("--set", opt->overrides, "With --against: override a stage-file value, KEY=VALUE (repeatable)")
+  sub->add_option("--set", o.overrides, "With --against: override a stage-file value, KEY=VALUE (repeatable)")
       ->type_name("KEY=VALUE")
       ->expected(1)
       ->allow_extra_args(false)
@@ -395,25 +428,18 @@ void register_measure(CLI::App& app, std::vector<command>& commands) {
       "frequencies under either window. Record at least a second: the noise floor and the\n"
       "resolution between close lines improve with length. --drive is the generator's open-circuit\n"
       "level as in `sweep`; the comparison is in dBc, so the recording's own gain does not matter.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
-                        std::optional<prediction> against;
-                        if (opt->against_path.empty()) {
-                          if (!opt->drive_text.empty() || !opt->overrides.empty())
-                            throw input_error("--drive and --set go with --against STAGE (the stage to predict)");
-                        } else {
-                          if (opt->drive_text.empty())
-                            throw input_error("--against needs --drive: the generator level the stage was driven with");
-                          prediction p;
-                          p.path = opt->against_path;
-                          p.overrides = opt->overrides;
-                          p.drive_vpk = option_level_vpk(opt->drive_text, "--drive");
-                          if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
-                          p.st = load_stage(p.path, p.overrides);
-                          against = std::move(p);
-                        }
-                        measure_report r = analyse(*opt);
-                        r.against = std::move(against);
-                        if (r.against) predict(r, *opt);
+  return sub;
+}
+
+}  // namespace
+
+void register_measure(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<measure_options>();
+  CLI::App* sub = setup(app, *opt);
+  commands.push_back({sub,
+                      [opt](std::ostream& out, std::ostream&) {
+                        const measure_report r = run(*opt);
+                        if (r.spectrum) write_plot(r, *opt);
                         if (opt->json) write_json(r, out);
                         else write_text(r, out);
                       }});

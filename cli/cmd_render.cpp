@@ -6,6 +6,7 @@
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
+#include <map>
 #include <memory>
 #include <optional>
 #include <string>
@@ -35,6 +36,7 @@ using base::format_number;
 using base::format_si;
 using align = text_table::align;
 
+// The options as typed.
 struct render_options {
   std::vector<std::string> stages;
   std::string input, output;
@@ -45,6 +47,24 @@ struct render_options {
   std::string format;
   int threads{0};
   bool dry{false}, force{false}, quiet{false}, json{false};
+};
+
+// The fields the model names in its errors (model/audio/render.hpp, render_job), and the
+// options that set them.
+const std::map<std::string, std::string, std::less<>> render_options_of_fields{
+    {"input_peak_v", "--input-peak"}, {"oversampling", "--oversample"}, {"full_scale_v", "--output-peak"},
+    {"level", "--output-peak"},       {"peak_dbfs", "--normalize"}};
+
+// What the formatters print: the model's report and the values the run was asked for.
+struct render_outcome {
+  model::render_report report;
+  std::string input;  // as given
+  double input_peak_v{};
+  double peak_dbfs{};
+  bool fixed_level{false};
+  bool dry{false};
+  std::size_t stage_count{};
+  std::vector<std::string> warnings;
 };
 
 // Removes a folder this run created when the run fails and leaves it empty.
@@ -69,7 +89,7 @@ std::string lower(std::string s) {
 }
 
 
-// "-1dBFS", "-1 dBFS", "-1".
+// "-1dBFS", "-1 dBFS", "-1". The range is the model's to check (render_job::peak_dbfs).
 double parse_dbfs(const std::string& text, const char* what) {
   std::string t = text;
   const std::string l = lower(t);
@@ -84,7 +104,20 @@ double parse_dbfs(const std::string& text, const char* what) {
   }
   if (t.empty() || used != t.size() || !std::isfinite(v))
     throw input_error(std::string(what) + " '" + text + "' is not a level in dBFS, e.g. -1dBFS");
-  if (v > 0.0) throw input_error(std::string(what) + " " + format_number(v) + " dBFS is above full scale (0 dBFS at most)");
+  return v;
+}
+
+// "auto" (0: the model chooses) or a whole number; which factors run is the model's to check.
+int parse_oversampling(const std::string& text) {
+  if (text == "auto") return 0;
+  std::size_t used = 0;
+  int v = 0;
+  try {
+    v = std::stoi(text, &used);
+  } catch (const std::exception&) {
+    used = 0;
+  }
+  if (text.empty() || used != text.size()) throw input_error("--oversample '" + text + "': expected a whole number or auto");
   return v;
 }
 
@@ -99,12 +132,6 @@ void check_extension(const fs::path& out, dsp::sample_format f) {
                     std::string(dsp::sample_format_name(f)) + "); name it " +
                     (out.stem().string() + extension_for(f)) + ", or choose the format with --format wav16|wav24|float|flac");
 }
-
-struct loaded_stage {
-  fs::path file;
-  model::render_stage st;
-  std::string description;  // the stage file's `name`
-};
 
 // dB figures with two decimals (loudness matching is checked to 0.1 LU).
 std::string db_text(double db, const char* unit) {
@@ -125,16 +152,18 @@ std::string rate_text(double rate_hz) {
 
 std::string volts_text(double v) { return format_si(v, "V", 3); }
 
-void write_text(const model::render_report& r, const render_options& o, const std::vector<loaded_stage>& stages,
-                std::ostream& out) {
+// ---- Formatters
+
+void write_text(const render_outcome& run, std::ostream& out) {
+  const model::render_report& r = run.report;
   const auto& in = r.input;
   const std::size_t n_out = r.outputs.size();
-  out << "Rendered " << o.input << " through " << stages.size() << (stages.size() == 1 ? " stage" : " stages");
-  if (n_out > 1) out << (o.dry ? " and the dry input" : "") << ", loudness-matched";
+  out << "Rendered " << run.input << " through " << run.stage_count << (run.stage_count == 1 ? " stage" : " stages");
+  if (n_out > 1) out << (run.dry ? " and the dry input" : "") << ", loudness-matched";
   out << '\n';
   out << "  input   " << in.format_text << ", " << rate_text(in.rate_hz) << " Hz, " << in.channels
       << (in.channels == 1 ? " channel, " : " channels, ") << format_number(in.seconds(), 4) << " s; 0 dBFS = "
-      << volts_text(base::parse_level_vpk(o.input_peak)) << " peak at the generator\n";
+      << volts_text(run.input_peak_v) << " peak at the generator\n";
   out << "  engine  " << r.oversample << "x oversampling (" << format_si(r.engine_rate_hz, "Hz", 3) << "), "
       << r.latency_samples << " samples of filter latency compensated, " << r.threads
       << (r.threads == 1 ? " engine thread" : " engine threads") << (r.pipelined ? " and one for files" : "") << '\n';
@@ -151,8 +180,8 @@ void write_text(const model::render_report& r, const render_options& o, const st
       out << (c.target_met ? "" : " (64x is the highest offered)") << '\n';
     }
   }
-  const std::string ceiling = db_text(parse_dbfs(o.normalize, "--normalize"), "dBFS");
-  if (!o.output_peak.empty())
+  const std::string ceiling = db_text(run.peak_dbfs, "dBFS");
+  if (run.fixed_level)
     out << "  level   fixed: 0 dBFS = " << volts_text(1.0 / r.outputs[0].scale) << " peak at the load\n";
   else if (n_out > 1 && std::isfinite(r.target_lufs))
     out << "  level   " << lufs_text(r.target_lufs) << " each (ITU-R BS.1770), the loudest at which no peak exceeds "
@@ -174,7 +203,7 @@ void write_text(const model::render_report& r, const render_options& o, const st
   text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right});
   t.add({"file", "applied gain", "0 dBFS =", "loudness", "sample peak", "true peak", "clipped"});
   for (const model::output_report& x : r.outputs) {
-    const double gain_db = base::db_from_ratio(x.scale * (x.is_dry ? base::parse_level_vpk(o.input_peak) : 1.0));
+    const double gain_db = base::db_from_ratio(x.scale * (x.is_dry ? run.input_peak_v : 1.0));
     t.add({x.path.string() + (x.is_dry ? " (dry)" : ""), db_text(gain_db, "dB"), volts_text(1.0 / x.scale),
            lufs_text(x.loudness_lufs), dbfs_text(x.sample_peak, "dBFS"), dbfs_text(x.true_peak, "dBTP"),
            std::to_string(x.clipped_samples)});
@@ -225,8 +254,8 @@ nlohmann::json choice_json(const model::render_report& r) {
           {"probes", probes}};
 }
 
-void write_json(const model::render_report& r, const render_options& o, const std::vector<std::string>& warnings,
-                std::ostream& out) {
+void write_json(const render_outcome& run, std::ostream& out) {
+  const model::render_report& r = run.report;
   nlohmann::json outputs = nlohmann::json::array();
   for (const model::output_report& x : r.outputs) {
     nlohmann::json j{{"path", x.path.string()},
@@ -248,13 +277,13 @@ void write_json(const model::render_report& r, const render_options& o, const st
     outputs.push_back(std::move(j));
   }
   const nlohmann::json j{{"input",
-                          {{"path", o.input},
+                          {{"path", run.input},
                            {"rate_hz", r.input.rate_hz},
                            {"channels", r.input.channels},
                            {"frames", r.input.frames},
                            {"duration_s", r.input.seconds()},
                            {"format", r.input.format_text},
-                           {"full_scale_vpk", base::parse_level_vpk(o.input_peak)}}},
+                           {"full_scale_vpk", run.input_peak_v}}},
                          {"format", std::string(dsp::sample_format_name(r.format))},
                          {"oversampling", r.oversample},
                          {"oversampling_choice", choice_json(r)},
@@ -262,20 +291,23 @@ void write_json(const model::render_report& r, const render_options& o, const st
                          {"latency_samples", r.latency_samples},
                          {"threads", r.threads},
                          {"files_beside", r.pipelined},
-                         {"level", !o.output_peak.empty() ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
+                         {"level", run.fixed_level ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
                          {"target_lufs", r.outputs.size() > 1 ? number_or_null(r.target_lufs) : nlohmann::json(nullptr)},
                          {"outputs", outputs},
-                         {"warnings", warnings},
+                         {"warnings", run.warnings},
                          {"seconds", r.seconds},
                          {"realtime_factor", r.realtime_factor}};
   out << j.dump(2) << '\n';
 }
 
-void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
+// ---- Run
+
+// The job as the options give it: values only, which the model checks (render_job).
+model::render_job job_from(const render_options& o) {
   model::render_job job;
   job.input = o.input;
   job.input_peak_v = option_level_vpk(o.input_peak, "--input-peak");
-  job.oversample = o.oversample == "auto" ? 0 : std::stoi(o.oversample);
+  job.oversample = parse_oversampling(o.oversample);
   job.overwrite = o.force;
   job.threads = o.threads;
   if (!o.format.empty()) job.format = dsp::parse_sample_format(o.format);
@@ -284,52 +316,64 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
     job.level = model::output_level::fixed;
     job.full_scale_v = option_level_vpk(o.output_peak, "--output-peak");
   }
+  return job;
+}
 
-  std::vector<loaded_stage> stages;
-  std::vector<std::string> warnings;
+// Reads each stage file and solves its rest point, printing its cautions (and keeping them
+// for the JSON report).
+std::vector<model::render_stage> load_stages(const render_options& o, std::ostream& err, std::vector<std::string>& warnings) {
+  std::vector<model::render_stage> stages;
   for (const std::string& path : o.stages) {
-    loaded_stage l;
-    l.file = path;
+    const fs::path file(path);
     const model::stage s = model::read_stage_file(path, {});
-    l.description = s.name;
-    l.st.name = l.file.stem().string();
-    l.st.net = model::build_network(s);
-    l.st.op = model::solve_operating_point(l.st.net);
+    model::render_stage st;
+    st.name = file.stem().string();
+    st.net = model::build_network(s);
+    st.op = model::solve_operating_point(st.net);
     const std::vector<std::string> w =
-        rest_point_warnings(s, l.st.net, l.st.op, "render", err, o.stages.size() > 1 ? l.file.filename().string() : "");
+        rest_point_warnings(s, st.net, st.op, "render", err, o.stages.size() > 1 ? file.filename().string() : "");
     warnings.insert(warnings.end(), w.begin(), w.end());
-    stages.push_back(std::move(l));
+    stages.push_back(std::move(st));
   }
+  return stages;
+}
 
+// Names the outputs. One stage: the file --output names, whose extension must match the
+// format. Several stages or --dry: one file each in the folder --output names, made if
+// missing (`made` removes it again if the run fails), loudness-matched.
+void place_outputs(const render_options& o, model::render_job& job, std::optional<created_folder>& made) {
   // The format decides the names; the input must open to know it.
   const dsp::sound_info info = dsp::sound_reader::open(o.input).info();
   const dsp::sample_format format = job.format ? *job.format : dsp::nearest_sample_format(info);
-  const bool to_folder = stages.size() > 1 || o.dry;
   const fs::path out_path(o.output);
-  std::optional<created_folder> made;
-  if (to_folder) {
-    if (!o.output_peak.empty())
-      throw input_error("--output-peak fixes the scale of one output; several outputs (" +
-                        std::string(stages.size() > 1 ? "several stages" : "--dry") + ") are loudness-matched instead");
-    std::error_code ec;
-    if (fs::exists(out_path, ec) && !fs::is_directory(out_path, ec))
-      throw io_error("--output " + quoted_path(out_path) + " is a file; several outputs need a folder there");
-    if (!fs::exists(out_path, ec)) {
-      const fs::path parent = out_path.has_parent_path() ? out_path.parent_path() : fs::path(".");
-      if (!fs::is_directory(parent, ec))
-        throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + quoted_path(parent) + " does not exist");
-      if (!fs::create_directory(out_path, ec) || ec)
-        throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + ec.message());
-      made.emplace(out_path);
-    }
-    for (loaded_stage& l : stages) l.st.output = out_path / (l.st.name + extension_for(format));
-    job.dry_output = o.dry ? std::optional<fs::path>(out_path / (std::string("dry") + extension_for(format))) : std::nullopt;
-    job.match_loudness = true;
-  } else {
+  if (job.stages.size() == 1 && !o.dry) {
     check_extension(out_path, format);
-    stages[0].st.output = out_path;
+    job.stages[0].output = out_path;
+    return;
   }
-  for (loaded_stage& l : stages) job.stages.push_back(l.st);
+  std::error_code ec;
+  if (fs::exists(out_path, ec) && !fs::is_directory(out_path, ec))
+    throw io_error("--output " + quoted_path(out_path) + " is a file; several outputs need a folder there");
+  if (!fs::exists(out_path, ec)) {
+    const fs::path parent = out_path.has_parent_path() ? out_path.parent_path() : fs::path(".");
+    if (!fs::is_directory(parent, ec))
+      throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + quoted_path(parent) + " does not exist");
+    if (!fs::create_directory(out_path, ec) || ec)
+      throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + ec.message());
+    made.emplace(out_path);
+  }
+  for (model::render_stage& st : job.stages) st.output = out_path / (st.name + extension_for(format));
+  job.dry_output = o.dry ? std::optional<fs::path>(out_path / (std::string("dry") + extension_for(format))) : std::nullopt;
+  job.match_loudness = true;
+}
+
+// Calls the model once, with a progress bar on a terminal and Ctrl-C as its stop.
+render_outcome run(const render_options& o, std::ostream& err) {
+  render_outcome r;
+  model::render_job job = job_from(o);
+  job.stages = load_stages(o, err, r.warnings);
+  std::optional<created_folder> made;
+  place_outputs(o, job, made);
 
   const interrupt_guard guard;
   progress_bar bar(err, !o.quiet && stderr_is_terminal());
@@ -337,57 +381,60 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
   control.stop = guard.flag();
   if (bar.enabled())
     control.progress = [&bar](const model::render_progress& p) { bar.update(p.fraction, p.realtime_factor, p.seconds_left); };
-  const model::render_report r = model::render(job, control);
+  r.report = model::render(job, control);
   bar.clear();
   if (made) made->keep();
-  if (o.json) write_json(r, o, warnings, out);
-  else write_text(r, o, stages, out);
+  r.input = o.input;
+  r.input_peak_v = job.input_peak_v;
+  r.peak_dbfs = job.peak_dbfs;
+  r.fixed_level = job.level == model::output_level::fixed;
+  r.dry = o.dry;
+  r.stage_count = job.stages.size();
+  return r;
 }
 
-}  // namespace
-
-void register_render(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<render_options>();
+// ---- Setup: the options, their help and the worked examples.
+CLI::App* setup(CLI::App& app, render_options& o) {
   CLI::App* sub = app.add_subcommand("render", "Render a recording through one or several stages, to listen to them");
-  sub->add_option("STAGE", opt->stages, "Stage files (TOML); several are rendered side by side, loudness-matched")
+  sub->add_option("STAGE", o.stages, "Stage files (TOML); several are rendered side by side, loudness-matched")
       ->required()
       ->expected(1, -1);
-  sub->add_option("--input", opt->input, "Recording to play into the stage (WAV, FLAC, AIFF; 44.1 kHz or more)")
+  sub->add_option("--input", o.input, "Recording to play into the stage (WAV, FLAC, AIFF; 44.1 kHz or more)")
       ->required()
       ->type_name("IN");
-  sub->add_option("--output", opt->output,
+  sub->add_option("--output", o.output,
                   "One stage: the file to write. Several stages or --dry: a folder (made if missing), one file per "
                   "stage named after its stage file")
       ->required()
       ->type_name("OUT");
-  sub->add_option("--input-peak", opt->input_peak,
+  sub->add_option("--input-peak", o.input_peak,
                   "Generator voltage (peak) that full scale in the input stands for; see below")
       ->type_name("LEVEL")
       ->capture_default_str();
-  auto* fixed = sub->add_option("--output-peak", opt->output_peak,
+  auto* fixed = sub->add_option("--output-peak", o.output_peak,
                                 "Fix the scale instead of normalising: this voltage (peak) at the load is 0 dBFS; "
                                 "samples beyond it are counted as clipped")
                     ->type_name("LEVEL");
-  auto* norm = sub->add_option("--normalize", opt->normalize, "Peak level of the output (several: the loudest allowed)")
+  auto* norm = sub->add_option("--normalize", o.normalize, "Peak level of the output (several: the loudest allowed)")
                    ->type_name("dBFS")
                    ->capture_default_str();
   fixed->excludes(norm);
-  sub->add_option("--oversample", opt->oversample,
+  sub->add_option("--oversample", o.oversample,
                   "Engine oversampling factor: 1, 2, 4, 8, 16, 32 or 64, or auto (8x, raised for inputs that would "
                   "alias when clipped; see below)")
-      ->capture_default_str()
-      ->check(CLI::IsMember({"auto", "1", "2", "4", "8", "16", "32", "64"}));
-  sub->add_option("--format", opt->format,
+      ->type_name("TEXT:{auto,1,2,4,8,16,32,64}")  // the values; the model checks them
+      ->capture_default_str();
+  sub->add_option("--format", o.format,
                   "wav16, wav24, float (32-bit float WAV) or flac (24-bit); default: as the input")
       ->type_name("FORMAT");
-  sub->add_option("--threads", opt->threads, "Threads (0: one per core): engines on up to one each per channel and stage, and from 2 on, one more "
+  sub->add_option("--threads", o.threads, "Threads (0: one per core): engines on up to one each per channel and stage, and from 2 on, one more "
                   "meters and writes beside them; results do not depend on it")
       ->capture_default_str()
       ->check(CLI::Range(0, 256));
-  sub->add_flag("--dry", opt->dry, "Also write the input itself, matched in loudness, to compare against");
-  sub->add_flag("--force", opt->force, "Replace outputs that exist");
-  sub->add_flag("--quiet", opt->quiet, "No progress bar");
-  sub->add_flag("--json", opt->json, "Machine-readable summary of what was written");
+  sub->add_flag("--dry", o.dry, "Also write the input itself, matched in loudness, to compare against");
+  sub->add_flag("--force", o.force, "Replace outputs that exist");
+  sub->add_flag("--quiet", o.quiet, "No progress bar");
+  sub->add_flag("--json", o.json, "Machine-readable summary of what was written");
   sub->footer(
       "Calibration: full scale (0 dBFS) in the input file stands for --input-peak volts peak at\n"
       "the generator, 1 V by default. That is common practice for instrument and line sources:\n"
@@ -420,7 +467,21 @@ void register_render(CLI::App& app, std::vector<command>& commands) {
       "  pinchoff render presets/bass-booster-9v.toml --input di-take.wav --output hot.wav \\\n"
       "      --input-peak 2V --output-peak 5V\n"
       "      a hotter source, and a fixed scale: 5 V peak at the load is full scale");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run_render(*opt, out, err); }});
+  return sub;
+}
+
+}  // namespace
+
+void register_render(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<render_options>();
+  CLI::App* sub = setup(app, *opt);
+  commands.push_back({sub,
+                      [opt](std::ostream& out, std::ostream& err) {
+                        const render_outcome r = run(*opt, err);
+                        if (opt->json) write_json(r, out);
+                        else write_text(r, out);
+                      },
+                      render_options_of_fields});
 }
 
 }  // namespace pinchoff::cli

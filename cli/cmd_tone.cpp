@@ -4,6 +4,7 @@
 #include <cctype>
 #include <cmath>
 #include <cstdio>
+#include <map>
 #include <memory>
 #include <optional>
 #include <string>
@@ -28,6 +29,7 @@ using base::format_number;
 using base::format_si;
 using align = text_table::align;
 
+// The options as typed.
 struct tone_options {
   std::string output;
   std::string freq_text{"1k"};
@@ -43,6 +45,9 @@ struct tone_options {
   bool force{false};
   bool json{false};
 };
+
+// The fields dsp::tone_generator names in its errors, and the options that set them.
+const std::map<std::string, std::string, std::less<>> tone_options_of_fields{{"fade_seconds", "--fade-ms"}};
 
 std::string trimmed(std::string_view t) {
   while (!t.empty() && std::isspace(static_cast<unsigned char>(t.front()))) t.remove_prefix(1);
@@ -84,6 +89,7 @@ std::vector<dsp::tone_step> parse_steps(const std::string& text, double seconds)
   return dsp::level_staircase(from, to, step, seconds);
 }
 
+// What was written, for the formatters.
 struct tone_report {
   std::string path;
   dsp::tone_plan plan;
@@ -120,6 +126,8 @@ const char* format_description(dsp::sample_format f) {
   }
   return "";
 }
+
+// ---- Formatters
 
 void write_text(const tone_report& r, std::ostream& out) {
   const auto& p = r.plan;
@@ -177,7 +185,11 @@ void write_json(const tone_report& r, std::ostream& out) {
   out << j.dump(2) << '\n';
 }
 
-tone_report make_tone(const tone_options& o) {
+// ---- Run
+
+// The tone as the options give it: frequency, rate, fade and levels, lowered where an
+// integer file cannot hold them. dsp::tone_generator checks the plan.
+tone_report plan_tone(const tone_options& o) {
   tone_report r;
   r.path = o.output;
   r.format = dsp::parse_sample_format(o.format_text);
@@ -185,15 +197,14 @@ tone_report make_tone(const tone_options& o) {
   r.dither = !o.no_dither;
   r.plan.frequency_hz = option_frequency_hz(o.freq_text, "--freq");
   r.plan.rate_hz = o.rate_hz;
-  if (!(o.fade_ms >= 0.0) || !std::isfinite(o.fade_ms))
-    throw input_error("--fade-ms must be zero or positive, got " + format_number(o.fade_ms));
   r.plan.fade_seconds = o.fade_ms / 1000.0;
   if (o.steps_text.empty()) r.plan.steps = {{parse_db(o.level_text, "dBFS", "--level"), o.seconds}};
   else r.plan.steps = parse_steps(o.steps_text, o.step_seconds);
 
   // An integer file's largest code is one step short of full scale, and dither adds up to
   // one step more: a sine reaching 0 dBFS would clip. Such levels are lowered to the largest
-  // that fits (rounding keeps |x| + 1 step below 2^(bits-1) - 1/2 codes).
+  // that fits (rounding keeps |x| + 1 step below 2^(bits-1) - 1/2 codes). A level above full
+  // scale is refused first, as the lowering would hide it.
   for (const dsp::tone_step& st : r.plan.steps)
     if (st.level_dbfs > 0.0)
       throw input_error("level " + format_number(st.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
@@ -206,6 +217,12 @@ tone_report make_tone(const tone_options& o) {
         r.ceiling_dbfs = ceiling;
       }
   }
+  return r;
+}
+
+// Writes the planned tone to its file (nothing is left behind if it fails or Ctrl-C
+// stops it) and fills in what was written.
+void write_tone(const tone_options& o, tone_report& r) {
   dsp::tone_generator gen(r.plan);  // validates the plan before any file is made
   // RIFF sizes are 32-bit: a WAV file cannot hold more than 4 GiB of samples.
   if (r.format != dsp::sample_format::flac24) {
@@ -240,33 +257,36 @@ tone_report make_tone(const tone_options& o) {
   w.commit();
   r.frames = w.frames_written();
   r.clipped = w.clipped_samples();
+}
+
+tone_report run(const tone_options& o) {
+  tone_report r = plan_tone(o);
+  write_tone(o, r);
   return r;
 }
 
-}  // namespace
-
-void register_tone(CLI::App& app, std::vector<command>& commands) {
-  auto opt = std::make_shared<tone_options>();
+// ---- Setup: the options, their help and the worked examples.
+CLI::App* setup(CLI::App& app, tone_options& o) {
   CLI::App* sub = app.add_subcommand("tone", "Write a sine test tone, or a staircase of levels, to an audio file");
-  sub->add_option("OUT", opt->output, "Audio file to write (refused if it exists, unless --force)")->required();
-  sub->add_option("--freq", opt->freq_text, "Tone frequency, e.g. 1k or 440")->type_name("FREQ")->capture_default_str();
-  sub->add_option("--level", opt->level_text, "Level of a plain tone in dBFS (0 dBFS: the sine's peak reaches full scale)")
+  sub->add_option("OUT", o.output, "Audio file to write (refused if it exists, unless --force)")->required();
+  sub->add_option("--freq", o.freq_text, "Tone frequency, e.g. 1k or 440")->type_name("FREQ")->capture_default_str();
+  sub->add_option("--level", o.level_text, "Level of a plain tone in dBFS (0 dBFS: the sine's peak reaches full scale)")
       ->type_name("dBFS")
       ->capture_default_str();
-  sub->add_option("--seconds", opt->seconds, "Length of a plain tone")->capture_default_str();
-  auto* steps = sub->add_option("--steps", opt->steps_text,
+  sub->add_option("--seconds", o.seconds, "Length of a plain tone")->capture_default_str();
+  auto* steps = sub->add_option("--steps", o.steps_text,
                                 "A staircase of levels instead of one: FROM..TO:STEP, levels in dBFS, step in dB")
                     ->type_name("FROM..TO:STEP");
-  sub->add_option("--step-seconds", opt->step_seconds, "How long each step of --steps holds")->capture_default_str();
-  sub->add_option("--rate", opt->rate_hz, "Sample rate in hertz")->capture_default_str();
-  sub->add_option("--format", opt->format_text, "wav16, wav24, float (32-bit float WAV) or flac (24-bit)")
+  sub->add_option("--step-seconds", o.step_seconds, "How long each step of --steps holds")->capture_default_str();
+  sub->add_option("--rate", o.rate_hz, "Sample rate in hertz")->capture_default_str();
+  sub->add_option("--format", o.format_text, "wav16, wav24, float (32-bit float WAV) or flac (24-bit)")
       ->capture_default_str();
-  sub->add_option("--channels", opt->channels, "Number of channels, each holding the same tone")->capture_default_str();
-  sub->add_option("--fade-ms", opt->fade_ms, "Raised-cosine fade at the start, the end and between steps")
+  sub->add_option("--channels", o.channels, "Number of channels, each holding the same tone")->capture_default_str();
+  sub->add_option("--fade-ms", o.fade_ms, "Raised-cosine fade at the start, the end and between steps")
       ->capture_default_str();
-  sub->add_flag("--no-dither", opt->no_dither, "Round integer formats without TPDF dither (dither is on by default)");
-  sub->add_flag("--force", opt->force, "Replace OUT if it exists");
-  sub->add_flag("--json", opt->json, "Machine-readable summary of what was written");
+  sub->add_flag("--no-dither", o.no_dither, "Round integer formats without TPDF dither (dither is on by default)");
+  sub->add_flag("--force", o.force, "Replace OUT if it exists");
+  sub->add_flag("--json", o.json, "Machine-readable summary of what was written");
   sub->get_option("--level")->excludes(steps);
   sub->get_option("--seconds")->excludes(steps);
   sub->footer(
@@ -280,11 +300,21 @@ void register_tone(CLI::App& app, std::vector<command>& commands) {
       "Play the file into the stage's input, record its output, and read the recording with\n"
       "'pinchoff measure'. Integer formats get triangular (TPDF) dither so that rounding adds\n"
       "noise rather than harmonics.");
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) {
-                        const tone_report r = make_tone(*opt);
+  return sub;
+}
+
+}  // namespace
+
+void register_tone(CLI::App& app, std::vector<command>& commands) {
+  auto opt = std::make_shared<tone_options>();
+  CLI::App* sub = setup(app, *opt);
+  commands.push_back({sub,
+                      [opt](std::ostream& out, std::ostream&) {
+                        const tone_report r = run(*opt);
                         if (opt->json) write_json(r, out);
                         else write_text(r, out);
-                      }});
+                      },
+                      tone_options_of_fields});
 }
 
 }  // namespace pinchoff::cli

@@ -39,7 +39,7 @@ struct tone_plan {
 std::vector<tone_step> level_staircase(double from_dbfs, double to_dbfs, double step_db, double seconds);
 
 /// The longest plan a tone_generator takes: one hour. Longer is taken for a slip of the
-/// keyboard (--seconds 1e12 would write until the disk is full).
+/// keyboard (a length of 1e12 s would write until the disk is full).
 inline constexpr double max_tone_seconds = 3600.0;
 
 /// The plan's length in frames: the sum over steps of round(seconds * rate).

@@ -389,7 +389,7 @@ sound_writer sound_writer::create(const fs::path& path, const write_settings& s)
   for (const fs::path& in : s.inputs)
     if (same_file(path, in)) throw io_error("cannot write " + quoted_path(path) + ": it is the input file; choose another name");
   if (!s.overwrite && fs::exists(path, ec))
-    throw io_error("cannot write " + quoted_path(path) + ": the file exists (use --force to replace it)");
+    throw file_exists_error("cannot write " + quoted_path(path) + ": the file exists");
 
   sound_writer w;
   w.target_ = path;
@@ -524,7 +524,7 @@ void sound_writer::commit() {
   std::error_code ec;
   if (!settings_.overwrite && fs::exists(target_, ec)) {
     discard();
-    throw io_error("cannot write " + quoted_path(target_) + ": the file appeared while writing (use --force to replace it)");
+    throw file_exists_error("cannot write " + quoted_path(target_) + ": the file appeared while writing");
   }
   fs::rename(temp_, target_, ec);
   if (ec) {

@@ -128,9 +128,10 @@ struct write_settings {
 class sound_writer {
  public:
   /// Creates the temporary file beside `path`. Throws io_error when the folder is missing
-  /// or not writable, when `path` exists and overwrite is not set, when it is a folder, or
+  /// or not writable, when it is a folder, or
   /// when it is one of `settings.inputs` (compared as files, so links and relative paths
-  /// are seen through); input_error when the rate or channels are out of range.
+  /// are seen through); file_exists_error (an io_error) when `path` exists and overwrite is
+  /// not set; input_error when the rate or channels are out of range.
   static sound_writer create(const std::filesystem::path& path, const write_settings& settings);
 
   sound_writer(sound_writer&&) noexcept;

@@ -1,5 +1,6 @@
 #pragma once
-// Choosing the oversampling factor of a render from its input (`render --oversample auto`).
+// Choosing the oversampling factor of a render from its input (render_job::oversample 0,
+// which the command line calls auto).
 //
 // Why a choice is needed: a stage driven into hard clipping has a waveform whose harmonics
 // fall slowly (the bass booster at 4 V peak, 10 kHz: H37-H40 at -51 to -61 dBc, H75-H78 at

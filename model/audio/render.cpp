@@ -102,12 +102,15 @@ std::vector<double> loudness_matched_scales(std::span<const double> loudness_luf
 }
 
 // ---------------------------------------------------------------------------------------
-// The job
+// The job, phase by phase: check the job; open the input; choose the oversampling; plan
+// (every writer, the units, the spools and meters); the first pass (render and meter,
+// into the spools or, at a fixed scale, into the files); the scales (normalise or match
+// loudness); the second pass (scale the spooled volts into the files); the report
+// (figures of the written values, then commit).
 
 namespace {
 
 using clock_type = std::chrono::steady_clock;
-
 
 void check_stop(const render_control& c) {
   if (c.stop && c.stop->load(std::memory_order_relaxed)) throw interrupted("interrupted; no output written");
@@ -132,24 +135,45 @@ void add_stats(dk_stats& sum, const dk_stats& s) {
   sum.bound_misses += s.bound_misses;
 }
 
+std::size_t output_count(const render_job& job) { return job.stages.size() + (job.dry_output ? 1 : 0); }
+
+const fs::path& output_path(const render_job& job, std::size_t i) {
+  return i < job.stages.size() ? job.stages[i].output : *job.dry_output;
+}
+
+// ---- Phase: check the job. Each value is checked here and nowhere else; the fields are
+// named as render_job names them, for cli/ to map to its options.
 void check_job(const render_job& job) {
   if (job.stages.empty()) throw input_error("render: no stage given");
   if (!(job.input_peak_v > 0.0) || !std::isfinite(job.input_peak_v))
-    throw input_error("--input-peak must be a level above 0 V, got " + base::format_number(job.input_peak_v));
+    throw setting_error("input_peak_v", "the input's full scale must stand for a level above 0 V, got " +
+                                            base::format_number(job.input_peak_v));
   if (job.oversample < 0 || job.oversample > 64 || (job.oversample & (job.oversample - 1)) != 0)
-    throw input_error("--oversample must be 1, 2, 4, 8, 16, 32, 64 or auto, got " + std::to_string(job.oversample));
+    throw setting_error("oversampling",
+                        "oversampling must be 1, 2, 4, 8, 16, 32, 64 or auto, got " + std::to_string(job.oversample));
   if (job.level == output_level::fixed && !(job.full_scale_v > 0.0 && std::isfinite(job.full_scale_v)))
-    throw input_error("--output-peak must be a level above 0 V, got " + base::format_number(job.full_scale_v));
-  if (!(job.peak_dbfs <= 0.0) || !std::isfinite(job.peak_dbfs) || job.peak_dbfs < -100.0)
-    throw input_error("--normalize must be a peak from -100 to 0 dBFS, got " + base::format_number(job.peak_dbfs) + " dBFS");
-  const std::size_t outputs = job.stages.size() + (job.dry_output ? 1 : 0);
-  if (job.level == output_level::fixed && (job.match_loudness || outputs > 1))
-    throw input_error("--output-peak fixes the scale of one output; several outputs are loudness-matched instead");
+    throw setting_error("full_scale_v", "the full-scale level at the load must be above 0 V, got " +
+                                            base::format_number(job.full_scale_v));
+  if (!(job.peak_dbfs <= 0.0))
+    throw setting_error("peak_dbfs", "a peak of " + base::format_number(job.peak_dbfs) +
+                                         " dBFS is above full scale (the peak must be -100 to 0 dBFS)");
+  if (!(job.peak_dbfs >= -100.0))
+    throw setting_error("peak_dbfs", "a peak of " + base::format_number(job.peak_dbfs) +
+                                         " dBFS is below -100 dBFS (the peak must be -100 to 0 dBFS)");
+  const std::size_t outputs = output_count(job);
+  if (job.level == output_level::fixed && outputs > 1) {
+    const std::size_t n = job.stages.size();
+    throw setting_error("level", "a fixed scale is for one output; several outputs (" + std::to_string(n) +
+                                     (n == 1 ? " stage" : " stages") + (job.dry_output ? " and the dry input" : "") +
+                                     ") are loudness-matched instead");
+  }
+  if (job.level == output_level::fixed && job.match_loudness)
+    throw setting_error("level", "a fixed scale and loudness matching exclude each other");
   if (job.block_frames < 1) throw internal_error("render: block_frames must be at least 1");
   std::vector<fs::path> seen;
   std::error_code ec;
   for (std::size_t i = 0; i < outputs; ++i) {
-    const fs::path p = i < job.stages.size() ? job.stages[i].output : *job.dry_output;
+    const fs::path& p = output_path(job, i);
     const fs::path canon = fs::weakly_canonical(fs::absolute(p, ec), ec);
     if (std::find(seen.begin(), seen.end(), canon) != seen.end())
       throw input_error("two outputs would both be written to " + quoted_path(p) + " (stage files with the same name?)");
@@ -157,238 +181,299 @@ void check_job(const render_job& job) {
   }
 }
 
-}  // namespace
-
-render_report render(const render_job& job, const render_control& control) {
-  const auto t0 = clock_type::now();
-  check_job(job);
-
-  dsp::sound_reader reader = dsp::sound_reader::open(job.input);
-  const dsp::sound_info info = reader.info();
-  if (info.frames <= 0) throw input_error(quoted_path(job.input) + " holds no audio");
+// ---- Phase: open the input, refusing one that holds no audio or is sampled too slowly.
+dsp::sound_reader open_input(const fs::path& input) {
+  dsp::sound_reader reader = dsp::sound_reader::open(input);
+  const dsp::sound_info& info = reader.info();
+  if (info.frames <= 0) throw input_error(quoted_path(input) + " holds no audio");
   if (!(info.rate_hz > 40000.0))
-    throw input_error(quoted_path(job.input) + " is at " + base::format_number(info.rate_hz, 6) +
+    throw input_error(quoted_path(input) + " is at " + base::format_number(info.rate_hz, 6) +
                       " Hz; render needs 44.1 kHz or more (the oversampler keeps 0 to 20 kHz flat and free of "
                       "aliases, which needs a rate above 40 kHz)");
+  return reader;
+}
 
-  render_report rep;
-  rep.input = info;
-  rep.format = job.format ? *job.format : dsp::nearest_sample_format(info);
+// ---- Phase: choose the oversampling (the job's factor, or one chosen from the input).
+void choose_factor(const render_job& job, const render_control& control, render_report& rep) {
   rep.oversample = job.oversample;
   if (job.oversample == 0) {
     rep.oversample_chosen = true;
     rep.survey = survey_input(job.input, control.stop);
     std::vector<stage_ref> refs;
     for (const render_stage& st : job.stages) refs.push_back({&st.net, &st.op});
-    rep.choice = choose_oversampling(refs, rep.survey.sample_peak * job.input_peak_v, rep.survey.edge_hz, info.rate_hz);
+    rep.choice = choose_oversampling(refs, rep.survey.sample_peak * job.input_peak_v, rep.survey.edge_hz, rep.input.rate_hz);
     rep.oversample = rep.choice.factor;
   }
-  rep.engine_rate_hz = info.rate_hz * rep.oversample;
+  rep.engine_rate_hz = rep.input.rate_hz * rep.oversample;
+}
 
-  const auto ch = static_cast<std::size_t>(info.channels);
-  const std::size_t n_stages = job.stages.size();
-  const std::size_t n_outputs = n_stages + (job.dry_output ? 1 : 0);
-  const std::size_t n_units = n_stages * ch;
-  const bool two_pass = job.level == output_level::normalize;
-  const std::size_t block = job.block_frames;
-
-  // Every writer first: an output that is the input or exists is refused before any work.
-  dsp::write_settings ws;
-  ws.rate_hz = info.rate_hz;
-  ws.channels = info.channels;
-  ws.format = rep.format;
-  ws.tpdf_dither = dsp::quantisation_bits(rep.format) > 0;  // rounding as noise, not distortion
-  ws.overwrite = job.overwrite;
-  ws.inputs = {job.input};
+// What the passes share: the job's sizes, every writer, unit, spool and meter, and the
+// progress accounting.
+struct render_plan {
+  const render_job* job;
+  const render_control* control;
+  clock_type::time_point t0;
+  dsp::sound_info info;
+  std::size_t ch{}, n_stages{}, n_outputs{}, n_units{}, block{};
+  bool two_pass{};
+  double fixed_scale{};
   std::vector<dsp::sound_writer> writers;
-  for (std::size_t i = 0; i < n_outputs; ++i)
-    writers.push_back(dsp::sound_writer::create(i < n_stages ? job.stages[i].output : *job.dry_output, ws));
-
   std::vector<channel_renderer> units;
-  units.reserve(n_units);
-  for (const render_stage& st : job.stages)
-    for (std::size_t c = 0; c < ch; ++c)
-      units.emplace_back(st.net, st.op, rep.oversample, info.rate_hz, block, job.engine);
-  rep.latency_samples = units.front().latency_samples();
-  const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
-  const std::size_t asked = job.threads > 0 ? static_cast<std::size_t>(job.threads) : cores;
-  rep.threads = static_cast<int>(std::min<std::size_t>(asked, std::max<std::size_t>(n_units, 1)));
-  // With more than one thread, the engines of block i run on their own threads while the
-  // calling thread meters and spools block i - 1 (the same work in the same order, so the
-  // files do not change).
-  rep.pipelined = asked > 1;
-  std::vector<dsp::sample_spool> spools;
-  if (two_pass)
-    for (std::size_t s = 0; s < n_stages; ++s) spools.push_back(dsp::sample_spool::create(job.stages[s].output));
-  // Pass-1 meters: on volts (two passes) or on the written values (fixed).
-  std::vector<dsp::loudness_meter> meters;
-  for (std::size_t i = 0; i < n_outputs; ++i) meters.emplace_back(info.channels, info.rate_hz);
-
-  rep.outputs.resize(n_outputs);
-  for (std::size_t i = 0; i < n_outputs; ++i) {
-    output_report& o = rep.outputs[i];
-    o.is_dry = i >= n_stages;
-    o.path = o.is_dry ? *job.dry_output : job.stages[i].output;
-    o.name = o.is_dry ? "dry" : job.stages[i].name;
-  }
-  const double fixed_scale = 1.0 / job.full_scale_v;
-
+  std::vector<dsp::sample_spool> spools;        // two passes: the volts of each stage
+  std::vector<dsp::loudness_meter> meters;      // pass 1: on volts (two passes) or on the written values (fixed)
   // Progress: pass 1 costs a frame per unit-frame of engine work; a pass-2 frame of one
   // output (read, scale, write) is far cheaper (about 1/20 of an 8x engine frame).
-  const double total_frames = static_cast<double>(info.frames);
-  // The engine's share scales with the factor; pass 2 does not.
-  const double pass2_weight =
-      two_pass ? 0.05 * (8.0 / rep.oversample) * static_cast<double>(n_outputs) / static_cast<double>(n_units) : 0.0;
-  const double total_work = total_frames * (1.0 + pass2_weight);
-  auto report_progress = [&](double work_done, double frames_rendered) {
-    if (!control.progress) return;
+  double total_frames{}, pass2_weight{}, total_work{};
+
+  void report_progress(double work_done, double frames_rendered) const {
+    if (!control->progress) return;
     const double elapsed = std::chrono::duration<double>(clock_type::now() - t0).count();
     render_progress p;
     p.fraction = std::clamp(work_done / total_work, 0.0, 1.0);
     p.realtime_factor = elapsed > 0 ? frames_rendered / info.rate_hz / elapsed : 0.0;
     p.seconds_left = p.fraction > 0 ? elapsed * (1.0 - p.fraction) / p.fraction : 0.0;
-    control.progress(p);
-  };
+    control->progress(p);
+  }
+};
 
-  // ---- Pass 1: render every unit, block by block.
+// ---- Phase: plan. Every writer first: an output that is the input or exists is refused
+// before any work. Then one unit per (stage, channel), the threads, spools and meters.
+render_plan plan_render(const render_job& job, const render_control& control, clock_type::time_point t0,
+                        render_report& rep) {
+  render_plan p;
+  p.job = &job;
+  p.control = &control;
+  p.t0 = t0;
+  p.info = rep.input;
+  p.ch = static_cast<std::size_t>(p.info.channels);
+  p.n_stages = job.stages.size();
+  p.n_outputs = output_count(job);
+  p.n_units = p.n_stages * p.ch;
+  p.two_pass = job.level == output_level::normalize;
+  p.block = job.block_frames;
+
+  dsp::write_settings ws;
+  ws.rate_hz = p.info.rate_hz;
+  ws.channels = p.info.channels;
+  ws.format = rep.format;
+  ws.tpdf_dither = dsp::quantisation_bits(rep.format) > 0;  // rounding as noise, not distortion
+  ws.overwrite = job.overwrite;
+  ws.inputs = {job.input};
+  for (std::size_t i = 0; i < p.n_outputs; ++i) p.writers.push_back(dsp::sound_writer::create(output_path(job, i), ws));
+
+  p.units.reserve(p.n_units);
+  for (const render_stage& st : job.stages)
+    for (std::size_t c = 0; c < p.ch; ++c)
+      p.units.emplace_back(st.net, st.op, rep.oversample, p.info.rate_hz, p.block, job.engine);
+  rep.latency_samples = p.units.front().latency_samples();
+  const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
+  const std::size_t asked = job.threads > 0 ? static_cast<std::size_t>(job.threads) : cores;
+  rep.threads = static_cast<int>(std::min<std::size_t>(asked, std::max<std::size_t>(p.n_units, 1)));
+  // With more than one thread, the engines of block i run on their own threads while the
+  // calling thread meters and spools block i - 1 (the same work in the same order, so the
+  // files do not change).
+  rep.pipelined = asked > 1;
+  if (p.two_pass)
+    for (std::size_t s = 0; s < p.n_stages; ++s) p.spools.push_back(dsp::sample_spool::create(job.stages[s].output));
+  for (std::size_t i = 0; i < p.n_outputs; ++i) p.meters.emplace_back(p.info.channels, p.info.rate_hz);
+
+  rep.outputs.resize(p.n_outputs);
+  for (std::size_t i = 0; i < p.n_outputs; ++i) {
+    output_report& o = rep.outputs[i];
+    o.is_dry = i >= p.n_stages;
+    o.path = output_path(job, i);
+    o.name = o.is_dry ? "dry" : job.stages[i].name;
+  }
+  p.fixed_scale = 1.0 / job.full_scale_v;
+
+  p.total_frames = static_cast<double>(p.info.frames);
+  // The engine's share scales with the factor; pass 2 does not.
+  p.pass2_weight = p.two_pass ? 0.05 * (8.0 / rep.oversample) * static_cast<double>(p.n_outputs) /
+                                    static_cast<double>(p.n_units)
+                              : 0.0;
+  p.total_work = p.total_frames * (1.0 + p.pass2_weight);
+  return p;
+}
+
+// One set of unit outputs: one set is rendered while the other is consumed.
+struct unit_outputs {
+  std::vector<std::vector<double>> samples;  // per unit
+  std::vector<std::size_t> produced;         // per unit
+};
+
+// Interleaves, meters and stores one set of unit outputs (in block order): into the spools
+// (two passes) or, scaled, into the files (fixed).
+void store_block(render_plan& p, const unit_outputs& set, std::vector<double>& stage_frames, render_report& rep) {
+  const std::size_t ch = p.ch;
+  for (std::size_t s = 0; s < p.n_stages; ++s) {
+    const std::size_t m = set.produced[s * ch];
+    for (std::size_t c = 0; c < ch; ++c)
+      if (set.produced[s * ch + c] != m) throw internal_error("render: channels of one stage went out of step");
+    for (std::size_t c = 0; c < ch; ++c) {
+      const double* o = set.samples[s * ch + c].data();
+      for (std::size_t k = 0; k < m; ++k) stage_frames[k * ch + c] = o[k];
+    }
+    const std::span<double> v = std::span<double>(stage_frames).first(m * ch);
+    if (p.two_pass) {
+      p.meters[s].add(v);
+      p.spools[s].write(v);
+    } else {
+      rep.outputs[s].clipped_samples += scale_and_count(v, p.fixed_scale);
+      p.meters[s].add(v);
+      p.writers[s].write(v);
+    }
+  }
+}
+
+// ---- Phase: the first pass. Renders every unit block by block, meters the dry input, and
+// stores the stages' blocks (store_block).
+void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
+  const render_job& job = *p.job;
+  const std::size_t ch = p.ch, block = p.block, n_units = p.n_units;
   std::vector<double> frames(block * ch);
   std::vector<std::vector<double>> in(ch, std::vector<double>(block));
   const std::size_t out_size = std::max<std::size_t>(block, static_cast<std::size_t>(rep.latency_samples));
-  // Two sets of unit outputs: one being rendered while the other is consumed.
-  std::vector<std::vector<double>> out[2] = {std::vector<std::vector<double>>(n_units, std::vector<double>(out_size)),
-                                             std::vector<std::vector<double>>(rep.pipelined ? n_units : 0,
-                                                                              std::vector<double>(out_size))};
-  std::vector<std::size_t> produced[2] = {std::vector<std::size_t>(n_units), std::vector<std::size_t>(n_units)};
+  unit_outputs out[2] = {
+      {std::vector<std::vector<double>>(n_units, std::vector<double>(out_size)), std::vector<std::size_t>(n_units)},
+      {std::vector<std::vector<double>>(rep.pipelined ? n_units : 0, std::vector<double>(out_size)),
+       std::vector<std::size_t>(n_units)}};
   std::vector<double> stage_frames(out_size * ch);
   std::vector<double> dry_frames(block * ch);
-  // Interleaves, meters and stores one set of unit outputs (in block order).
-  auto consume = [&](int set) {
-    for (std::size_t s = 0; s < n_stages; ++s) {
-      const std::size_t m = produced[set][s * ch];
-      for (std::size_t c = 0; c < ch; ++c)
-        if (produced[set][s * ch + c] != m) throw internal_error("render: channels of one stage went out of step");
-      for (std::size_t c = 0; c < ch; ++c) {
-        const double* o = out[set][s * ch + c].data();
-        for (std::size_t k = 0; k < m; ++k) stage_frames[k * ch + c] = o[k];
-      }
-      const std::span<double> v = std::span<double>(stage_frames).first(m * ch);
-      if (two_pass) {
-        meters[s].add(v);
-        spools[s].write(v);
-      } else {
-        rep.outputs[s].clipped_samples += scale_and_count(v, fixed_scale);
-        meters[s].add(v);
-        writers[s].write(v);
-      }
-    }
-  };
   std::int64_t read_frames = 0;
   bool input_done = false, have_previous = false;
   int set = 0;
   while (!input_done) {
-    check_stop(control);
+    check_stop(*p.control);
     const std::size_t n = reader.read(frames);
     if (n > 0) {
       for (std::size_t k = 0; k < n; ++k)
         for (std::size_t c = 0; c < ch; ++c) in[c][k] = frames[k * ch + c] * job.input_peak_v;
       if (job.dry_output) {
         for (std::size_t i = 0; i < n * ch; ++i) dry_frames[i] = frames[i] * job.input_peak_v;
-        meters[n_stages].add(std::span<const double>(dry_frames).first(n * ch));
+        p.meters[p.n_stages].add(std::span<const double>(dry_frames).first(n * ch));
       }
       read_frames += static_cast<std::int64_t>(n);
     } else {
       input_done = true;
     }
-    auto work = [&, set, n](std::size_t u) {
-      produced[set][u] = n > 0 ? units[u].process(std::span<const double>(in[u % ch]).first(n), out[set][u])
-                               : units[u].finish(out[set][u]);
+    unit_outputs& now = out[set];
+    auto work = [&p, &in, &now, ch, n](std::size_t u) {
+      now.produced[u] = n > 0 ? p.units[u].process(std::span<const double>(in[u % ch]).first(n), now.samples[u])
+                              : p.units[u].finish(now.samples[u]);
     };
     if (rep.pipelined) {
       base::run_beside(n_units, rep.threads, work, [&] {
-        if (have_previous) consume(1 - set);
+        if (have_previous) store_block(p, out[1 - set], stage_frames, rep);
       });
       have_previous = true;
-      if (input_done) consume(set);
+      if (input_done) store_block(p, out[set], stage_frames, rep);
       set = 1 - set;
     } else {
       base::run_parallel(n_units, 1, work);
-      consume(set);
+      store_block(p, out[set], stage_frames, rep);
     }
-    report_progress(static_cast<double>(read_frames), static_cast<double>(read_frames));
+    p.report_progress(static_cast<double>(read_frames), static_cast<double>(read_frames));
   }
-  for (std::size_t s = 0; s < n_stages; ++s)
-    for (std::size_t c = 0; c < ch; ++c) add_stats(rep.outputs[s].engine, units[s * ch + c].engine_stats());
+  for (std::size_t s = 0; s < p.n_stages; ++s)
+    for (std::size_t c = 0; c < ch; ++c) add_stats(rep.outputs[s].engine, p.units[s * ch + c].engine_stats());
+}
 
-  // ---- Scales.
-  if (!two_pass) {
-    rep.outputs[0].scale = fixed_scale;
+// ---- Phase: the scales. Fixed: the job's. Normalised: each output's peak at the ceiling,
+// or, matching loudness, the common loudness no peak exceeds the ceiling at.
+void decide_scales(const render_plan& p, render_report& rep) {
+  const render_job& job = *p.job;
+  if (!p.two_pass) {
+    rep.outputs[0].scale = p.fixed_scale;
+    return;
+  }
+  const double ceiling = base::ratio_from_db(job.peak_dbfs);
+  std::vector<double> loud(p.n_outputs), peak(p.n_outputs);
+  for (std::size_t i = 0; i < p.n_outputs; ++i) {
+    loud[i] = p.meters[i].integrated_lufs();
+    peak[i] = p.meters[i].sample_peak();
+  }
+  if (job.match_loudness && p.n_outputs > 1) {
+    const std::vector<double> scales = loudness_matched_scales(loud, peak, ceiling, rep.target_lufs);
+    for (std::size_t i = 0; i < p.n_outputs; ++i) {
+      rep.outputs[i].scale = scales[i];
+      rep.outputs[i].matched = std::isfinite(loud[i]) && peak[i] > 0.0;
+    }
   } else {
-    const double ceiling = base::ratio_from_db(job.peak_dbfs);
-    std::vector<double> loud(n_outputs), peak(n_outputs);
-    for (std::size_t i = 0; i < n_outputs; ++i) {
-      loud[i] = meters[i].integrated_lufs();
-      peak[i] = meters[i].sample_peak();
-    }
-    if (job.match_loudness && n_outputs > 1) {
-      const std::vector<double> scales = loudness_matched_scales(loud, peak, ceiling, rep.target_lufs);
-      for (std::size_t i = 0; i < n_outputs; ++i) {
-        rep.outputs[i].scale = scales[i];
-        rep.outputs[i].matched = std::isfinite(loud[i]) && peak[i] > 0.0;
-      }
-    } else {
-      for (std::size_t i = 0; i < n_outputs; ++i) rep.outputs[i].scale = peak[i] > 0.0 ? ceiling / peak[i] : 1.0;
-    }
+    for (std::size_t i = 0; i < p.n_outputs; ++i) rep.outputs[i].scale = peak[i] > 0.0 ? ceiling / peak[i] : 1.0;
   }
+}
 
-  // ---- Pass 2: scale the spooled volts (and the input, for dry) into the files.
-  if (two_pass) {
-    double work = total_frames;
-    const double per_frame = pass2_weight / static_cast<double>(n_outputs);
-    std::vector<double> buf(block * ch);
-    for (std::size_t i = 0; i < n_outputs; ++i) {
-      output_report& o = rep.outputs[i];
-      std::optional<dsp::sound_reader> again;
-      if (o.is_dry) again.emplace(dsp::sound_reader::open(job.input));
-      else spools[i].rewind();
-      for (;;) {
-        check_stop(control);
-        std::size_t n = 0;
-        if (o.is_dry) {
-          n = again->read(buf);
-          for (std::size_t k = 0; k < n * ch; ++k) buf[k] *= job.input_peak_v;
-        } else {
-          n = spools[i].read(buf) / ch;
-        }
-        if (n == 0) break;
-        const std::span<double> v = std::span<double>(buf).first(n * ch);
-        o.clipped_samples += scale_and_count(v, o.scale);
-        writers[i].write(v);
-        work += static_cast<double>(n) * per_frame;
-        report_progress(work, total_frames);
-      }
-    }
-  }
-
-  // Two passes: the figures of the written values follow from the pass-1 figures of the
-  // volts by scaling (loudness + 20 log10(scale), peaks times scale; the float spool
-  // changes them by a relative 2^-24 at most), which spares a second meter.
-  for (std::size_t i = 0; i < n_outputs; ++i) {
+// ---- Phase: the second pass. Scales the spooled volts (and the input, for dry) into the files.
+void second_pass(render_plan& p, render_report& rep) {
+  const render_job& job = *p.job;
+  const std::size_t ch = p.ch;
+  double work = p.total_frames;
+  const double per_frame = p.pass2_weight / static_cast<double>(p.n_outputs);
+  std::vector<double> buf(p.block * ch);
+  for (std::size_t i = 0; i < p.n_outputs; ++i) {
     output_report& o = rep.outputs[i];
-    const double g = two_pass ? rep.outputs[i].scale : 1.0;
-    const double l = meters[i].integrated_lufs();
-    o.loudness_lufs = std::isfinite(l) ? l + base::db_from_ratio(g) : l;
-    o.sample_peak = meters[i].sample_peak() * g;
-    o.true_peak = meters[i].true_peak() * g;
-    if (dsp::quantisation_bits(rep.format) > 0) o.clipped_samples = writers[i].clipped_samples();
-    if (writers[i].frames_written() != info.frames)
-      throw internal_error("render: wrote " + std::to_string(writers[i].frames_written()) + " frames to " + quoted_path(o.path) +
-                           " for " + std::to_string(info.frames) + " input frames");
+    std::optional<dsp::sound_reader> again;
+    if (o.is_dry) again.emplace(dsp::sound_reader::open(job.input));
+    else p.spools[i].rewind();
+    for (;;) {
+      check_stop(*p.control);
+      std::size_t n = 0;
+      if (o.is_dry) {
+        n = again->read(buf);
+        for (std::size_t k = 0; k < n * ch; ++k) buf[k] *= job.input_peak_v;
+      } else {
+        n = p.spools[i].read(buf) / ch;
+      }
+      if (n == 0) break;
+      const std::span<double> v = std::span<double>(buf).first(n * ch);
+      o.clipped_samples += scale_and_count(v, o.scale);
+      p.writers[i].write(v);
+      work += static_cast<double>(n) * per_frame;
+      p.report_progress(work, p.total_frames);
+    }
   }
-  check_stop(control);
-  for (dsp::sound_writer& w : writers) w.commit();
-  rep.seconds = std::chrono::duration<double>(clock_type::now() - t0).count();
-  rep.realtime_factor = rep.seconds > 0 ? info.seconds() / rep.seconds : 0.0;
-  report_progress(total_work, total_frames);
+}
+
+// ---- Phase: the report. The figures of the written values, a check that every file is
+// complete, then every file is committed at once.
+// Two passes: the figures of the written values follow from the pass-1 figures of the
+// volts by scaling (loudness + 20 log10(scale), peaks times scale; the float spool
+// changes them by a relative 2^-24 at most), which spares a second meter.
+void finish_outputs(render_plan& p, render_report& rep) {
+  for (std::size_t i = 0; i < p.n_outputs; ++i) {
+    output_report& o = rep.outputs[i];
+    const double g = p.two_pass ? rep.outputs[i].scale : 1.0;
+    const double l = p.meters[i].integrated_lufs();
+    o.loudness_lufs = std::isfinite(l) ? l + base::db_from_ratio(g) : l;
+    o.sample_peak = p.meters[i].sample_peak() * g;
+    o.true_peak = p.meters[i].true_peak() * g;
+    if (dsp::quantisation_bits(rep.format) > 0) o.clipped_samples = p.writers[i].clipped_samples();
+    if (p.writers[i].frames_written() != p.info.frames)
+      throw internal_error("render: wrote " + std::to_string(p.writers[i].frames_written()) + " frames to " +
+                           quoted_path(o.path) + " for " + std::to_string(p.info.frames) + " input frames");
+  }
+  check_stop(*p.control);
+  for (dsp::sound_writer& w : p.writers) w.commit();
+  rep.seconds = std::chrono::duration<double>(clock_type::now() - p.t0).count();
+  rep.realtime_factor = rep.seconds > 0 ? p.info.seconds() / rep.seconds : 0.0;
+  p.report_progress(p.total_work, p.total_frames);
+}
+
+}  // namespace
+
+render_report render(const render_job& job, const render_control& control) {
+  const auto t0 = clock_type::now();
+  check_job(job);
+  dsp::sound_reader reader = open_input(job.input);
+  render_report rep;
+  rep.input = reader.info();
+  rep.format = job.format ? *job.format : dsp::nearest_sample_format(rep.input);
+  choose_factor(job, control, rep);
+  render_plan plan = plan_render(job, control, t0, rep);
+  first_pass(plan, reader, rep);
+  decide_scales(plan, rep);
+  if (plan.two_pass) second_pass(plan, rep);
+  finish_outputs(plan, rep);
   return rep;
 }
 

@@ -289,10 +289,11 @@ TEST_CASE("the output appears only on commit and never replaces what it must not
     std::string message;
     try {
       sound_writer::create(out, s);
-    } catch (const io_error& e) {
+    } catch (const pinchoff::file_exists_error& e) {  // its own type: cli/ adds how to replace it
       message = e.what();
     }
     CHECK(message.find("exists") != std::string::npos);
+    CHECK(message.find("--") == std::string::npos);
     s.overwrite = true;
     write_file(out, s, std::vector<double>(20, 0.1));
     sound_reader r = sound_reader::open(out);

@@ -25,6 +25,7 @@
 #include <doctest/doctest.h>
 #include <nlohmann/json.hpp>
 
+#include "base/error.hpp"
 #include "cli/app.hpp"
 #include "dsp/harmonics.hpp"
 #include "dsp/loudness.hpp"
@@ -372,6 +373,61 @@ TEST_CASE("render refuses bad files and leaves nothing behind") {
     CHECK(r.err.find(rw.expect) != std::string::npos);
     CHECK(dir.entries() == files);
     CHECK(fs::file_size(dir.path / "old.wav") == old_size);
+  }
+}
+
+TEST_CASE("render names the field of a setting it refuses, and no option") {
+  scratch_dir dir;
+  write_audio(dir.path / "in.wav", 48000.0, 1, dsp::sample_format::wav16, sine(440.0, 48000.0, 0.5, 4800));
+  const loaded s = load("bass-booster-9v.toml");
+  const std::size_t files = dir.entries();
+  auto job = [&] {
+    model::render_job j;
+    j.input = dir.path / "in.wav";
+    j.stages.push_back({"booster", s.net, s.op, dir.path / "out.wav"});
+    j.oversample = 2;
+    return j;
+  };
+  struct row {
+    const char* what;
+    void (*spoil)(model::render_job&);
+    const char* field;
+    const char* words;
+  };
+  // common practice: a factor of the half-band cascade is a power of two; a level is above 0 V;
+  // a peak ceiling is at or below full scale
+  const row rows[] = {
+      {"a factor that is not a power of two", [](model::render_job& j) { j.oversample = 3; }, "oversampling", "got 3"},
+      {"a factor above 64", [](model::render_job& j) { j.oversample = 128; }, "oversampling", "got 128"},
+      {"an input peak of 0 V", [](model::render_job& j) { j.input_peak_v = 0.0; }, "input_peak_v", "above 0 V"},
+      {"a ceiling above full scale", [](model::render_job& j) { j.peak_dbfs = 0.5; }, "peak_dbfs", "above full scale"},
+      {"a ceiling below -100 dBFS", [](model::render_job& j) { j.peak_dbfs = -120.0; }, "peak_dbfs", "below -100 dBFS"},
+      {"a fixed full scale of 0 V",
+       [](model::render_job& j) {
+         j.level = model::output_level::fixed;
+         j.full_scale_v = 0.0;
+       },
+       "full_scale_v", "above 0 V"},
+      {"a fixed scale for two outputs",
+       [](model::render_job& j) {
+         j.level = model::output_level::fixed;
+         j.dry_output = j.stages[0].output.parent_path() / "dry.wav";
+       },
+       "level", "1 stage and the dry input"},
+  };
+  for (const row& rw : rows) {
+    CAPTURE(std::string(rw.what));
+    model::render_job j = job();
+    rw.spoil(j);
+    try {
+      model::render(j);
+      FAIL("not refused");
+    } catch (const pinchoff::setting_error& e) {
+      CHECK(e.field() == rw.field);
+      CHECK(std::string(e.what()).find(rw.words) != std::string::npos);
+      CHECK(std::string(e.what()).find("--") == std::string::npos);
+    }
+    CHECK(dir.entries() == files);
   }
 }
 
