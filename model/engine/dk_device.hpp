@@ -1,5 +1,5 @@
 #pragma once
-// The JFET of model/jfet.hpp, evaluated for the per-sample loop of the DK engine: the same
+// The JFET of model/device/jfet.hpp, evaluated for the per-sample loop of the DK engine: the same
 // equations (Shichman–Hodges square law, SPICE2 level-1 JFET, with the exponential gate
 // junctions and their linear continuation beyond exp(80)), inlined, with the parameter
 // arithmetic done once. Tests check it against drain_current() / junction_current().

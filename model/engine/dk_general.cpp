@@ -1,12 +1,12 @@
 // The DK engine's general solver (model/engine/dk_general.hpp), used for a network of more
 // than one JFET (one JFET takes the closed-form 2x2 solver of dk_single.cpp). The same
-// equations and the same acceptance argument with k devices: 2k port voltages v, 3k currents i, the device Jacobian Jf
-// block diagonal (one 3x2 block per JFET), and I - F Jf (2k x 2k) factored by LU with
-// partial pivoting (Golub & Van Loan, Matrix Computations, Alg. 3.4.1) on every Newton
-// iteration. The factorisation, the solves and the small products are plain loops: at
-// these sizes (4 x 4 for two JFETs) Eigen's dynamic-size kernels cost several times the
-// arithmetic. Every vector and matrix is sized when the engine is built, so a sample
-// allocates nothing.
+// equations and the same acceptance argument with k devices: 2k port voltages v, 3k
+// currents i, the device Jacobian Jf block diagonal (one 3x2 block per JFET), and I - F Jf
+// (2k x 2k) factored by LU with partial pivoting (Golub & Van Loan, Matrix Computations,
+// Alg. 3.4.1) on every Newton iteration. The factorisation, the solves and the small
+// products are plain loops: at these sizes (4 x 4 for two JFETs) Eigen's dynamic-size
+// kernels cost several times the arithmetic. Every vector and matrix is sized when the
+// solver is built, so a sample allocates nothing.
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -492,7 +492,7 @@ double general_solver::process_k(double generator_v) noexcept {
   p = q + e0 * supply_v_ + e1 * ug;
 
   // Warm start as for one JFET: the last solution moved along the step of p by dv/dp at
-  // the last three samples (Adams-Bashforth weights warm_; dk_engine.cpp, step_t).
+  // the last three samples (Adams-Bashforth weights warm_; dk_single.cpp, step_t).
   {
     using map_m = Eigen::Map<const mat_p>;
     Eigen::Map<vec_p> mdl(g.mdl.data(), np);

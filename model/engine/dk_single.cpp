@@ -294,7 +294,7 @@ __attribute__((always_inline)) inline single_solver::newton_outcome single_solve
   if (!limited && detail::small_junction_steps(dev_, dgs, dgd)) {
     const a2 vn = v + d;
     // The remainders (rgs, rgd, rd) and the terms' magnitudes (shared with the general
-    // path, model/dk_device.hpp). Rounding: the linearised equation v + dv = p + F (i + Jf
+    // solver, dk_acceptance.hpp). Rounding: the linearised equation v + dv = p + F (i + Jf
     // dv) holds only to the rounding of its terms, a few eps of their magnitudes.
     // Negligible at any sane point (1e-14 V for terms of 10 V), it rejects points where
     // currents are so large (a junction far beyond exp(80)) that the equation cannot be
