@@ -180,11 +180,7 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   g.f_abs = m_.f.cwiseAbs();
 
   // Stacked update as for one JFET: the state rows hold the increment x_n - x_{n-1}.
-  const Eigen::MatrixXd a_minus_i = m_.a - Eigen::MatrixXd::Identity(ns, ns);
-  g.w = Eigen::MatrixXd::Zero(ns + np + 1, ns + 2 + ni);
-  g.w.topRows(ns) << a_minus_i, m_.b, m_.c;
-  g.w.middleRows(ns, np) << m_.d * m_.a, m_.d * m_.b, m_.d * m_.c;
-  g.w.row(ns + np) << m_.d_out, m_.e_out, m_.f_out;
+  g.w = stacked_update(m_, ns + np + 1);
   g.pre = Eigen::VectorXd::Zero(ns + np + 1);
   g.out = Eigen::VectorXd::Zero(ns + np + 1);
   in_ = Eigen::VectorXd::Zero(ns + 2 + ni);
@@ -242,11 +238,7 @@ void general_solver::point_general(const Eigen::VectorXd& v, port_set& out) noex
 
 void general_solver::reset() {
   storage& g = g_;
-  const int ns = m_.states, ni = 3 * m_.devices;
-  in_.head(ns) = x_dc_;
-  in_[ns] = supply_v_;
-  in_[ns + 1] = 0.0;
-  in_.tail(ni) = g.dc.i;
+  inputs_at_dc(g.dc.i);
   g.q.noalias() = m_.d * x_dc_;
   g.last = g.dc;
   g.p_last = g.p_dc;

@@ -115,6 +115,16 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   return m;
 }
 
+Eigen::MatrixXd stacked_update(const dk_matrices& m, int rows) {
+  const int ns = m.states, np = 2 * m.devices, ni = 3 * m.devices;
+  if (rows < ns + np + 1) throw internal_error("stacked_update: fewer rows than the update has");
+  Eigen::MatrixXd w = Eigen::MatrixXd::Zero(rows, ns + 2 + ni);
+  w.topRows(ns) << m.a - Eigen::MatrixXd::Identity(ns, ns), m.b, m.c;
+  w.middleRows(ns, np) << m.d * m.a, m.d * m.b, m.d * m.c;
+  w.row(ns + np) << m.d_out, m.e_out, m.f_out;
+  return w;
+}
+
 Eigen::VectorXd dc_states(const network& net, const Eigen::VectorXd& x) {
   Eigen::VectorXd q(static_cast<Eigen::Index>(net.capacitors.size()));
   for (std::size_t k = 0; k < net.capacitors.size(); ++k)

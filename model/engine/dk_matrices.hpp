@@ -40,6 +40,14 @@ struct dk_matrices {
 /// S is singular or too ill-conditioned to trust (rcond < 1e-15).
 dk_matrices discretise(const network& net, double sample_rate_hz);
 
+/// The stacked update of one sample, [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n]:
+/// W = [A - I, B, C; D A, D B, D C; Do, Eo, Fo], ns + 2k + 1 rows and ns + 2 + 3k columns,
+/// padded with zero rows to `rows` (at least ns + 2k + 1). The state rows hold the
+/// increment: near a fixed point the terms of a slow mode are then small, and so is their
+/// rounding, which that mode would otherwise integrate over tau/T samples (a drift of up
+/// to 1e-10 V).
+Eigen::MatrixXd stacked_update(const dk_matrices& m, int rows);
+
 /// States consistent with a DC network solution `x` (every capacitor current zero): q_k is
 /// capacitor k's voltage. Size: number of capacitors.
 Eigen::VectorXd dc_states(const network& net, const Eigen::VectorXd& x);

@@ -150,15 +150,10 @@ single_solver::single_solver(const network& net, const operating_point& op, dk_m
     skip_t_ = fa * (2.02 * dev_.is_a * std::exp(dev_.skip_arg));
   }
 
-  // The state rows hold the increment x_n - x_{n-1} = (A - I) x_{n-1} + B u + C i: near a
-  // fixed point the terms of a slow mode are then small, and so is their rounding, which
-  // that mode would otherwise integrate over tau/T samples (a drift of up to 1e-10 V).
+  // The stacked update (stacked_update), its rows padded to whole packets.
   wide_ = opt_.wide_kernels && ns <= 8 && wide_kernels_available();
   const int rows = padded_rows(ns, wide_ ? 4 : 2);
-  w_ = Eigen::MatrixXd::Zero(rows, ns + 5);
-  w_.topRows(ns) << m_.a - Eigen::MatrixXd::Identity(ns, ns), m_.b, m_.c;
-  w_.middleRows(ns, 2) << m_.d * m_.a, m_.d * m_.b, m_.d * m_.c;
-  w_.row(ns + 2) << m_.d_out, m_.e_out, m_.f_out;
+  w_ = stacked_update(m_, rows);
   w_const_ = w_.col(ns) * supply_v_;
   in_ = Eigen::VectorXd::Zero(ns + 5);
   out_ = Eigen::VectorXd::Zero(rows);
@@ -195,11 +190,7 @@ single_solver::port_point single_solver::point_at(const Eigen::Vector2d& v) cons
 }
 
 void single_solver::reset() {
-  const int ns = m_.states;
-  in_.head(ns) = x_dc_;
-  in_[ns] = supply_v_;
-  in_[ns + 1] = 0.0;
-  in_.tail(3) = dc_point_.i;
+  inputs_at_dc(dc_point_.i);
   ls_.q = m_.d * x_dc_;
   ls_.last = dc_point_;
   ls_.p_last = p_dc_;

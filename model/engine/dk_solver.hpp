@@ -36,6 +36,16 @@ class dk_solver_base {
   /// network's sign and supply.
   dk_solver_base(dk_matrices m, const dk_options& opt, const network& net);
 
+  /// [x; u; i] at the DC operating point, with the device currents i_dc there (3k).
+  void inputs_at_dc(const Eigen::Ref<const Eigen::VectorXd>& i_dc) {
+    const int ns = m_.states;
+    in_.resize(ns + 2 + i_dc.size());
+    in_.head(ns) = x_dc_;
+    in_[ns] = supply_v_;
+    in_[ns + 1] = 0.0;
+    in_.tail(i_dc.size()) = i_dc;
+  }
+
   /// sensitivity <- (A + cj md) sensitivity, with cj = C Jf and md = M D at the converged
   /// point: the per-sample factor of the monodromy matrix (Aprille & Trick 1972).
   template <class CJ, class MD>
