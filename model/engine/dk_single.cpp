@@ -153,8 +153,13 @@ single_solver::single_solver(const network& net, const operating_point& op, dk_m
   // The stacked update (stacked_update), its rows padded to whole packets.
   wide_ = opt_.wide_kernels && ns <= 8 && wide_kernels_available();
   const int rows = padded_rows(ns, wide_ ? 4 : 2);
-  w_ = stacked_update(m_, rows);
-  w_const_ = w_.col(ns) * supply_v_;
+  {
+    const Eigen::MatrixXd w = stacked_update(m_, rows);
+    w_ = detail::aligned_doubles(static_cast<std::size_t>(w.size()));
+    std::copy_n(w.data(), w.size(), w_.data());
+    w_const_ = detail::aligned_doubles(static_cast<std::size_t>(rows));
+    Eigen::Map<Eigen::VectorXd>(w_const_.data(), rows) = w.col(ns) * supply_v_;
+  }
   in_ = Eigen::VectorXd::Zero(ns + 5);
   out_ = Eigen::VectorXd::Zero(rows);
   pre_ = Eigen::VectorXd::Zero(rows);

@@ -3,9 +3,13 @@
 // two, solved by Newton with closed-form 2x2 solves, in a sample loop compiled once per
 // state count (1..8, or any at run time) and kernel set (portable, or AVX2 + FMA as a
 // whole). Its hot path and why it is laid out so: dk_single.cpp.
+#include <algorithm>
 #include <array>
 #include <cstddef>
+#include <cstdlib>
 #include <limits>
+#include <memory>
+#include <new>
 
 #include <Eigen/Dense>
 
@@ -13,6 +17,42 @@
 #include "model/engine/dk_solver.hpp"
 
 namespace pinchoff::model {
+
+namespace detail {
+
+/// n doubles starting on a 64-byte boundary (a cache line), so that no packet load of the
+/// sample loop straddles two lines whatever the heap gives (with Eigen's 16-byte
+/// alignment, whether W's 32-byte columns split lines changed from one engine to the next).
+class aligned_doubles {
+ public:
+  aligned_doubles() = default;
+  explicit aligned_doubles(std::size_t n) : n_(n), p_(allocate(n)) {}
+  aligned_doubles(const aligned_doubles& o) : aligned_doubles(o.n_) { std::copy_n(o.p_.get(), n_, p_.get()); }
+  aligned_doubles& operator=(const aligned_doubles& o) {
+    if (this != &o) *this = aligned_doubles(o);
+    return *this;
+  }
+  aligned_doubles(aligned_doubles&&) noexcept = default;
+  aligned_doubles& operator=(aligned_doubles&&) noexcept = default;
+  double* data() noexcept { return p_.get(); }
+  const double* data() const noexcept { return p_.get(); }
+  std::size_t size() const noexcept { return n_; }
+
+ private:
+  struct release {
+    void operator()(double* p) const noexcept { std::free(p); }
+  };
+  static double* allocate(std::size_t n) {
+    if (n == 0) return nullptr;
+    void* p = std::aligned_alloc(64, (n * sizeof(double) + 63) / 64 * 64);
+    if (!p) throw std::bad_alloc();
+    return static_cast<double*>(p);
+  }
+  std::size_t n_{0};
+  std::unique_ptr<double[], release> p_;
+};
+
+}  // namespace detail
 
 class single_solver : public dk_solver_base {
  public:
@@ -89,10 +129,10 @@ class single_solver : public dk_solver_base {
   Eigen::Matrix<double, 2, 3> f_abs_;
   Eigen::Array2d skip_t_{Eigen::Array2d::Zero()};  // bound on what skipped junction exponentials leave out, per port row
   // Stacked update: [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n], ns + 3 rows, ns + 5 cols.
-  Eigen::MatrixXd w_;  // rows padded to whole packets (zero rows)
+  detail::aligned_doubles w_;       // column-major, rows padded to whole packets (zero rows)
   Eigen::VectorXd out_;             // the product
   Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
-  Eigen::VectorXd w_const_;         // W's supply column times the supply (constant)
+  detail::aligned_doubles w_const_;  // W's supply column times the supply (constant)
   loop_state ls_;
   // Warm start: weights of dv/dp at the last three samples (Adams-Bashforth of order
   // predictor_order; detail::warm_start_weights).
