@@ -4,7 +4,7 @@
 #include <string>
 
 #include "dsp/intermod.hpp"
-#include "model/engine/dk_engine.hpp"
+#include "model/engine/dk_stats.hpp"
 #include "model/circuit/stage.hpp"
 
 namespace pinchoff::model {

@@ -9,7 +9,7 @@
 // snapped value reported.
 #include <vector>
 
-#include "model/engine/dk_engine.hpp"
+#include "model/engine/dk_stats.hpp"
 #include "model/circuit/stage.hpp"
 
 namespace pinchoff::model {

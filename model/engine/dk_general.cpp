@@ -1,19 +1,21 @@
-// The DK engine's general path, for a network of more than one JFET (one JFET takes the
-// closed-form 2x2 path of dk_engine.cpp). The same equations and the same acceptance
-// argument with k devices: 2k port voltages v, 3k currents i, the device Jacobian Jf
-// block diagonal (one 3x2 block per JFET), and I - F Jf (2k x 2k) factored by LU with
-// partial pivoting (Golub & Van Loan, Matrix Computations, Alg. 3.4.1) on every Newton
-// iteration. The factorisation, the solves and the small products are plain loops: at
-// these sizes (4 x 4 for two JFETs) Eigen's dynamic-size kernels cost several times the
-// arithmetic. Every vector and matrix is sized when the engine is built, so a sample
-// allocates nothing.
+// The DK engine's general solver (model/engine/dk_general.hpp), used for a network of more
+// than one JFET (one JFET takes the closed-form 2x2 solver of dk_single.cpp). The same
+// equations and the same acceptance argument with k devices: 2k port voltages v, 3k
+// currents i, the device Jacobian Jf block diagonal (one 3x2 block per JFET), and I - F Jf
+// (2k x 2k) factored by LU with partial pivoting (Golub & Van Loan, Matrix Computations,
+// Alg. 3.4.1) on every Newton iteration. The factorisation, the solves and the small
+// products are plain loops: at these sizes (4 x 4 for two JFETs) Eigen's dynamic-size
+// kernels cost several times the arithmetic. Every vector and matrix is sized when the
+// solver is built, so a sample allocates nothing.
 #include <algorithm>
 #include <cmath>
 #include <limits>
 #include <utility>
 #include <vector>
 
-#include "model/engine/dk_engine.hpp"
+#include "model/engine/dk_acceptance.hpp"
+#include "model/engine/dk_general.hpp"
+#include "model/engine/dk_steps.hpp"
 
 namespace pinchoff::model {
 namespace {
@@ -21,12 +23,6 @@ namespace {
 // Compile-time sizes for K JFETs (K = 0: dynamic).
 constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
 constexpr int currents_of(int k) noexcept { return k > 0 ? 3 * k : Eigen::Dynamic; }
-
-double max_abs_of(const Eigen::Ref<const Eigen::VectorXd>& v) noexcept {
-  double m = 0.0;
-  for (Eigen::Index k = 0; k < v.size(); ++k) m = std::max(m, std::fabs(v[k]));
-  return m;
-}
 
 // JFET j's 3x2 block of the block-diagonal Jf: rows igs, igd, id; columns vgs, vds.
 void put_block(Eigen::MatrixXd& jf, int j, const detail::port_currents& c) noexcept {
@@ -166,27 +162,25 @@ void add_product(const double* a, const Eigen::MatrixXd& mat, const double* b, d
 
 }  // namespace
 
-void dk_engine::port_set::resize(int k) {
+void general_solver::port_set::resize(int k) {
   v.setZero(2 * k);
   i.setZero(3 * k);
   jf.setZero(3 * k, 2 * k);
   m.setIdentity(2 * k, 2 * k);
 }
 
-void dk_engine::init_general(const network& net, const operating_point& op) {
+general_solver::general_solver(const network& net, const operating_point& op, dk_matrices m, const dk_options& opt)
+    : dk_solver_base(std::move(m), opt, net) {
+  warm_ = detail::warm_start_weights(opt_.predictor_order);
   const int ns = m_.states, k = m_.devices, np = 2 * k, ni = 3 * k;
-  general_path& g = g_;
+  storage& g = g_;
   g.dev.clear();
   for (const net_jfet& q : net.jfets) g.dev.push_back(detail::device_consts::of(q.device, net.vt_v));
   g.cur.assign(static_cast<std::size_t>(k), detail::port_currents{});
   g.f_abs = m_.f.cwiseAbs();
 
   // Stacked update as for one JFET: the state rows hold the increment x_n - x_{n-1}.
-  const Eigen::MatrixXd a_minus_i = m_.a - Eigen::MatrixXd::Identity(ns, ns);
-  g.w = Eigen::MatrixXd::Zero(ns + np + 1, ns + 2 + ni);
-  g.w.topRows(ns) << a_minus_i, m_.b, m_.c;
-  g.w.middleRows(ns, np) << m_.d * m_.a, m_.d * m_.b, m_.d * m_.c;
-  g.w.row(ns + np) << m_.d_out, m_.e_out, m_.f_out;
+  g.w = stacked_update(m_, ns + np + 1);
   g.pre = Eigen::VectorXd::Zero(ns + np + 1);
   g.out = Eigen::VectorXd::Zero(ns + np + 1);
   in_ = Eigen::VectorXd::Zero(ns + 2 + ni);
@@ -204,11 +198,9 @@ void dk_engine::init_general(const network& net, const operating_point& op) {
   g.mdl.setZero(np);
   g.cj.setZero(ns, np);
   g.md.setZero(np, ns);
-  phi_.resize(ns, ns);
-  tmp_.resize(ns, ns);
 
-  // DC point, as for one JFET: a few Newton steps on the engine's own fixed-point equations
-  // so that silence in gives exactly constant samples out.
+  // DC point: states from the operating point, then the shared refinement on the engine's
+  // own fixed-point equations (detail::refine_dc_point).
   const Eigen::Vector2d u(supply_v_, 0.0);
   Eigen::VectorXd q = dc_states(net, op.x);
   Eigen::VectorXd v(np);
@@ -217,36 +209,7 @@ void dk_engine::init_general(const network& net, const operating_point& op) {
     v[2 * j] = node_v(op.x, d.gate) - node_v(op.x, d.source);
     v[2 * j + 1] = node_v(op.x, d.drain) - node_v(op.x, d.source);
   }
-  {
-    Eigen::VectorXd qp = q, vp = v;
-    Eigen::MatrixXd jac(ns + np, ns + np);
-    Eigen::VectorXd res(ns + np);
-    bool ok = false;
-    for (int it = 0; it < 20; ++it) {
-      point_general(vp, g.trial);
-      res.head(ns) = a_minus_i * qp + m_.b * u + m_.c * g.trial.i;
-      res.tail(np) = m_.d * qp + m_.e * u + m_.f * g.trial.i - vp;
-      jac.topLeftCorner(ns, ns) = a_minus_i;
-      jac.topRightCorner(ns, np) = m_.c * g.trial.jf;
-      jac.bottomLeftCorner(np, ns) = m_.d;
-      jac.bottomRightCorner(np, np) = m_.f * g.trial.jf - Eigen::MatrixXd::Identity(np, np);
-      const Eigen::FullPivLU<Eigen::MatrixXd> lu(jac);
-      if (!lu.isInvertible()) break;
-      const Eigen::VectorXd delta = lu.solve(-res);
-      if (!delta.allFinite()) break;
-      qp += delta.head(ns);
-      vp += delta.tail(np);
-      if (max_abs_of(delta) <= 1e-15 * (1.0 + max_abs_of(qp) + max_abs_of(vp))) {
-        ok = true;
-        break;
-      }
-    }
-    // Only rounding is to be removed: a larger move means the equations disagree.
-    if (ok && max_abs_of(qp - q) <= 1e-6 && max_abs_of(vp - v) <= 1e-6) {
-      q = qp;
-      v = vp;
-    }
-  }
+  detail::refine_dc_point(m_, g.dev, supply_v_, q, v);
   x_dc_ = q;
   point_general(v, g.dc);
   g.p_dc = m_.d * q + m_.e * u;
@@ -254,8 +217,8 @@ void dk_engine::init_general(const network& net, const operating_point& op) {
   reset();
 }
 
-void dk_engine::point_general(const Eigen::VectorXd& v, port_set& out) noexcept {
-  general_path& g = g_;
+void general_solver::point_general(const Eigen::VectorXd& v, port_set& out) noexcept {
+  storage& g = g_;
   const int k = m_.devices;
   for (int j = 0; j < k; ++j) {
     const detail::port_currents c = detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], v[2 * j], v[2 * j + 1]);
@@ -273,13 +236,9 @@ void dk_engine::point_general(const Eigen::VectorXd& v, port_set& out) noexcept 
     out.m.setConstant(std::numeric_limits<double>::quiet_NaN());
 }
 
-void dk_engine::reset_general() {
-  general_path& g = g_;
-  const int ns = m_.states, ni = 3 * m_.devices;
-  in_.head(ns) = x_dc_;
-  in_[ns] = supply_v_;
-  in_[ns + 1] = 0.0;
-  in_.tail(ni) = g.dc.i;
+void general_solver::reset() {
+  storage& g = g_;
+  inputs_at_dc(g.dc.i);
   g.q.noalias() = m_.d * x_dc_;
   g.last = g.dc;
   g.p_last = g.p_dc;
@@ -288,8 +247,19 @@ void dk_engine::reset_general() {
   stats_ = {};
 }
 
+void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
+  in_.head(m_.states) = x;
+  g_.q.noalias() = m_.d * x;
+}
+
+void general_solver::track(Eigen::MatrixXd& sensitivity) {
+  g_.cj.noalias() = m_.c * g_.last.jf;
+  g_.md.noalias() = g_.last.m * m_.d;
+  apply_factor(g_.cj, g_.md, sensitivity);
+}
+
 // Newton on r(v) = p + F i(v) - v = 0 from `guess`, for k JFETs; the argument of
-// newton_iteration() (dk_engine.cpp) carried over, with the same acceptance. After the step
+// newton_iteration() (dk_single.cpp) carried over, with the same acceptance. After the step
 // dv computed at v, device j's currents at v + dv differ from their linearisation by a
 // remainder bounded per current as there (the junction bound 0.505 g dv^2 / nVt for
 // |dv| <= 0.01 nVt, the channel's exact, plus its rounding margin); stacked into R (3k),
@@ -303,12 +273,12 @@ void dk_engine::reset_general() {
 // K > 0: the number of JFETs at compile time (fixed-size views of the engine's storage, so
 // the small products unroll); K = 0: any number, at run time.
 template <int K>
-bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd& guess, port_set& out,
+bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd& guess, port_set& out,
                               int& evals) noexcept {
   using vec_p = Eigen::Matrix<double, ports_of(K), 1>;
   using vec_i = Eigen::Matrix<double, currents_of(K), 1>;
   using mat_f = Eigen::Matrix<double, ports_of(K), currents_of(K)>;
-  general_path& g = g_;
+  storage& g = g_;
   const int k = K > 0 ? K : m_.devices, np = 2 * k, ni = 3 * k;
   const Eigen::Map<const mat_f> f(m_.f.data(), np, ni);
   const Eigen::Map<const mat_f> f_abs(g.f_abs.data(), np, ni);
@@ -339,7 +309,7 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd
     r.noalias() += f * i;
     const double rn = r.cwiseAbs().maxCoeff();
     // Damped Newton: halve a step that made the residual grow (or not finite).
-    if (may_damp && !(rn <= rn_base) && !(rn <= tol) && halvings < 30) {
+    if (detail::halve_step(may_damp, rn, rn_base, tol, halvings)) {
       step *= 0.5;
       v = base + step;
       ++halvings;
@@ -371,14 +341,9 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd
       double alpha = 1.0;
       for (int j = 0; j < k; ++j) {
         const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
-        const double gs_old = v[2 * j], gd_old = v[2 * j] - v[2 * j + 1];
-        const double gs_new = gs_old + d[2 * j], gd_new = gd_old + d[2 * j] - d[2 * j + 1];
-        if (gs_new > dv.vcrit_v || gd_new > dv.vcrit_v) {
-          const double ls = limit_junction(gs_new, gs_old, dv.nvt_v, dv.vcrit_v);
-          if (ls != gs_new) alpha = std::min(alpha, std::max(1e-3, (ls - gs_old) / (gs_new - gs_old)));
-          const double ld = limit_junction(gd_new, gd_old, dv.nvt_v, dv.vcrit_v);
-          if (ld != gd_new) alpha = std::min(alpha, std::max(1e-3, (ld - gd_old) / (gd_new - gd_old)));
-        }
+        const double gs_new = v[2 * j] + d[2 * j], gd_new = (v[2 * j] - v[2 * j + 1]) + d[2 * j] - d[2 * j + 1];
+        if (gs_new > dv.vcrit_v || gd_new > dv.vcrit_v)
+          alpha = std::min(alpha, detail::junction_step_scale(dv, v[2 * j], v[2 * j + 1], d[2 * j], d[2 * j + 1]));
       }
       if (alpha < 1.0) {
         d *= alpha;
@@ -461,44 +426,42 @@ bool dk_engine::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd
   return false;
 }
 
-// As substep(): the change of p over the sample split into 2, 4, ... parts, each solved
-// from the last; what still fails is held at the previous solution and counted.
+// A sample whose Newton did not converge: sub-steps from the last sample's solution
+// (detail::substep), on the solver's storage (no allocation).
 template <int K>
-void dk_engine::substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept {
-  general_path& g = g_;
-  for (int level = 1; level <= opt_.max_substep_levels; ++level) {
-    const int parts = 1 << level;
-    g.cur_pt = g.last;
-    g.pc = g.p_last;
-    bool ok = true;
-    for (int j = 1; j <= parts && ok; ++j) {
-      if (j == parts)
+void general_solver::substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept {
+  struct path {
+    general_solver& s;
+    const Eigen::VectorXd& p;
+    port_set& out;
+    void restart() noexcept {
+      s.g_.cur_pt = s.g_.last;
+      s.g_.pc = s.g_.p_last;
+    }
+    bool step_to(double frac, bool last, int& evals) noexcept {
+      storage& g = s.g_;
+      if (last)
         g.pj = p;
       else
-        g.pj = g.p_last + (p - g.p_last) * (double(j) / parts);
+        g.pj = g.p_last + (p - g.p_last) * frac;
       g.dp = g.pj - g.pc;
       add_product(g.cur_pt.v.data(), g.cur_pt.m, g.dp.data(), g.guess.data());
-      ok = solve_general<K>(g.pj, g.guess, g.next_pt, evals);
-      if (ok) {
-        g.cur_pt = g.next_pt;
-        g.pc = g.pj;
-      }
+      if (!s.solve_general<K>(g.pj, g.guess, g.next_pt, evals)) return false;
+      g.cur_pt = g.next_pt;
+      g.pc = g.pj;
+      return true;
     }
-    if (ok) {
-      out = g.cur_pt;
-      ++stats_.substepped;
-      return;
-    }
-  }
-  ++stats_.failed;
-  out = g.last;
+    void take() noexcept { out = s.g_.cur_pt; }
+    void hold() noexcept { out = s.g_.last; }
+  } path_{*this, p, out};
+  detail::substep(path_, opt_.max_substep_levels, stats_, evals);
 }
 
 template <int K>
-double dk_engine::process_k(double generator_v) noexcept {
+double general_solver::process_k(double generator_v) noexcept {
   using vec_p = Eigen::Matrix<double, ports_of(K), 1>;
   using mat_p = Eigen::Matrix<double, ports_of(K), ports_of(K)>;
-  general_path& g = g_;
+  storage& g = g_;
   const int ns = m_.states, k = K > 0 ? K : m_.devices, np = 2 * k, ni = 3 * k;
   const int rows = ns + np + 1;
   const double ug = sign_ * generator_v;
@@ -521,7 +484,7 @@ double dk_engine::process_k(double generator_v) noexcept {
   p = q + e0 * supply_v_ + e1 * ug;
 
   // Warm start as for one JFET: the last solution moved along the step of p by dv/dp at
-  // the last three samples (Adams-Bashforth weights warm_; dk_engine.cpp, step_t).
+  // the last three samples (Adams-Bashforth weights warm_; dk_single.cpp, step_t).
   {
     using map_m = Eigen::Map<const mat_p>;
     Eigen::Map<vec_p> mdl(g.mdl.data(), np);
@@ -569,12 +532,18 @@ double dk_engine::process_k(double generator_v) noexcept {
   return sign_ * g.out[ns + np];
 }
 
-double dk_engine::process_general(double generator_v) noexcept {
+// One block: the number of JFETs is dispatched once, then the samples in turn.
+template <int K>
+void general_solver::block_k(const double* in, double* out, std::size_t n) noexcept {
+  for (std::size_t k = 0; k < n; ++k) out[k] = process_k<K>(in[k]);
+}
+
+void general_solver::process(const double* in, double* out, std::size_t n) noexcept {
   switch (m_.devices) {
-    case 2: return process_k<2>(generator_v);
-    case 3: return process_k<3>(generator_v);
-    case 4: return process_k<4>(generator_v);
-    default: return process_k<0>(generator_v);
+    case 2: return block_k<2>(in, out, n);
+    case 3: return block_k<3>(in, out, n);
+    case 4: return block_k<4>(in, out, n);
+    default: return block_k<0>(in, out, n);
   }
 }
 

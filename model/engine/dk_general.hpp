@@ -1,0 +1,75 @@
+#pragma once
+// The DK engine's solver for a network of any number k of JFETs: 2k port voltages, 3k
+// currents, the device Jacobian block diagonal, and I - F Jf (2k x 2k) factored by LU with
+// partial pivoting each Newton iteration (dk_general.cpp). The same acceptance bound,
+// junction limiting, sub-stepping and DC start as the one-JFET solver (model/engine/
+// dk_acceptance.hpp, dk_steps.hpp). It meets the dk_solver interface (dk_solver.hpp) and
+// nothing else of the engine depends on its inside, so it can be replaced by any solver
+// that meets that interface. Every size is fixed when it is built: a sample allocates
+// nothing.
+#include <array>
+#include <cstddef>
+#include <vector>
+
+#include <Eigen/Dense>
+
+#include "model/engine/dk_device.hpp"
+#include "model/engine/dk_solver.hpp"
+
+namespace pinchoff::model {
+
+class general_solver : public dk_solver_base {
+ public:
+  general_solver(const network& net, const operating_point& op, dk_matrices m, const dk_options& opt);
+
+  void process(const double* in, double* out, std::size_t n) noexcept;
+  void track(Eigen::MatrixXd& sensitivity);
+  void reset();
+  void set_state(const Eigen::Ref<const Eigen::VectorXd>& x);
+  Eigen::Vector2d ports_network_v(int device) const noexcept {
+    return Eigen::Vector2d(g_.last.v.segment<2>(2 * device));
+  }
+  const char* sample_loop() const noexcept { return "portable"; }
+
+ private:
+  struct port_set {
+    Eigen::VectorXd v;   ///< 2k port voltages
+    Eigen::VectorXd i;   ///< 3k device currents
+    Eigen::MatrixXd jf;  ///< 3k x 2k, di/dv, block diagonal
+    Eigen::MatrixXd m;   ///< 2k x 2k, dv/dp = (I - F Jf)^-1
+    void resize(int k);
+  };
+  struct storage {
+    std::vector<detail::device_consts> dev;
+    std::vector<detail::port_currents> cur;     // per JFET, at the Newton iterate
+    Eigen::MatrixXd f_abs;                      // |F|
+    Eigen::MatrixXd w;                          // [A - I, B, C; D A, D B, D C; Do, Eo, Fo]
+    Eigen::VectorXd pre, out;                   // W's x and u columns times [x; u]; the product
+    Eigen::VectorXd q, p, p_last, p_dc, dp;
+    Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
+    Eigen::VectorXd allowed, mag;               // the acceptance's rounding: per row, per current
+    Eigen::MatrixXd j;                          // I - F Jf, then its LU factors
+    std::vector<int> piv;                       // the LU's row interchanges
+    port_set last, dc, trial, cur_pt, next_pt;
+    Eigen::MatrixXd m_prev, m_prev2;            // dv/dp at the two samples before the last (warm start)
+    Eigen::VectorXd mdl;                        // the warm start's products
+    Eigen::MatrixXd cj, md;                     // track(): C Jf (ns x 2k), M D (2k x ns)
+  };
+
+  void point_general(const Eigen::VectorXd& v, port_set& out) noexcept;
+  // K JFETs at compile time (fixed-size views of the storage), or K = 0: any number.
+  template <int K>
+  void block_k(const double* in, double* out, std::size_t n) noexcept;
+  template <int K>
+  double process_k(double generator_v) noexcept;
+  template <int K>
+  bool solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& guess, port_set& out, int& evals) noexcept;
+  template <int K>
+  void substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept;
+
+  // Warm start: weights of dv/dp at the last three samples (detail::warm_start_weights).
+  std::array<double, 3> warm_{};
+  storage g_;
+};
+
+}  // namespace pinchoff::model

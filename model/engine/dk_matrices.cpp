@@ -1,0 +1,135 @@
+#include "model/engine/dk_matrices.hpp"
+
+#include <cmath>
+#include <string>
+#include <vector>
+
+#include "base/error.hpp"
+#include "model/circuit/nodal.hpp"
+
+namespace pinchoff::model {
+namespace {
+
+inline int row(int node) noexcept { return node - 1; }
+
+}  // namespace
+
+dk_matrices discretise(const network& net, double sample_rate_hz) {
+  if (!(sample_rate_hz > 0.0) || !std::isfinite(sample_rate_hz))
+    throw internal_error("discretise: the sample rate must be a positive number of hertz");
+  const double t = 1.0 / sample_rate_hz;
+  const int ns = static_cast<int>(net.capacitors.size());
+  const int nd = net.devices();
+  if (nd < 1) throw internal_error("discretise: the network has no JFET");
+  const int ni = 3 * nd;  // device currents
+
+  // S: resistors, companion conductances 2C/T and the two sources (supply first, then the
+  // generator: branch unknowns nu and nu + 1, as assemble_linear orders them).
+  std::vector<cap_treatment> caps(net.capacitors.size());
+  for (std::size_t k = 0; k < caps.size(); ++k)
+    caps[k] = {cap_treatment::kind::companion, 0.0, 2.0 * net.capacitors[k].farad / t, 0.0};
+  const mna_system lin = assemble_linear(net, caps, 0.0, 0.0);
+  const int n = static_cast<int>(lin.a.rows());
+  const int nu = lin.node_unknowns;
+
+  // Right-hand sides: S z = Nx q + Nu u - Nl i.
+  Eigen::MatrixXd rhs = Eigen::MatrixXd::Zero(n, ns + 2 + ni);
+  for (int k = 0; k < ns; ++k) {
+    const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
+    const double g = caps[static_cast<std::size_t>(k)].g_s;
+    // Companion branch current a -> b is G v - G q: the source G q enters at a.
+    if (c.a != 0) rhs(row(c.a), k) += g;
+    if (c.b != 0) rhs(row(c.b), k) -= g;
+  }
+  rhs(nu, ns) = 1.0;
+  rhs(nu + 1, ns + 1) = 1.0;
+  // Device currents leave these nodes: igs gate -> source, igd gate -> drain, id drain -> source.
+  auto leave = [&](int node, int col, double s) {
+    if (node != 0) rhs(row(node), ns + 2 + col) -= s;  // minus: -Nl i
+  };
+  for (int j = 0; j < nd; ++j) {
+    const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
+    leave(q.gate, 3 * j, 1.0);
+    leave(q.source, 3 * j, -1.0);
+    leave(q.gate, 3 * j + 1, 1.0);
+    leave(q.drain, 3 * j + 1, -1.0);
+    leave(q.drain, 3 * j + 2, 1.0);
+    leave(q.source, 3 * j + 2, -1.0);
+  }
+
+  // S^-1 [Nx Nu -Nl] in extended precision, with one refinement step, then rounded: the
+  // states are history voltages of the order of the supply, and the outputs (a coupled
+  // output sits at 0 V) are differences of them, so rounding in these matrices shows
+  // directly as an output offset (about 1e-10 V with a plain double solve).
+  using matrix_ld = Eigen::Matrix<long double, Eigen::Dynamic, Eigen::Dynamic>;
+  const matrix_ld s_ld = lin.a.cast<long double>();
+  const matrix_ld rhs_ld = rhs.cast<long double>();
+  const Eigen::FullPivLU<matrix_ld> lu(s_ld);
+  dk_matrices m;
+  m.states = ns;
+  m.devices = nd;
+  m.sample_rate_hz = sample_rate_hz;
+  m.rcond = lu.isInvertible() ? static_cast<double>(lu.rcond()) : 0.0;
+  if (!(m.rcond >= 1e-15))
+    throw internal_error("the stage's network matrix at " + std::to_string(sample_rate_hz) +
+                         " Hz is singular or too ill-conditioned (rcond " + std::to_string(m.rcond) + ")");
+  matrix_ld z_ld = lu.solve(rhs_ld);
+  z_ld += lu.solve(matrix_ld(rhs_ld - s_ld * z_ld));
+  const Eigen::MatrixXd z = z_ld.cast<double>();  // n x (ns + 2 + 3k): columns q, u, i
+
+  auto diff = [&](int a, int b) -> Eigen::RowVectorXd {
+    Eigen::RowVectorXd r = Eigen::RowVectorXd::Zero(ns + 2 + ni);
+    if (a != 0) r += z.row(row(a));
+    if (b != 0) r -= z.row(row(b));
+    return r;
+  };
+  // Capacitor voltages v_n = Nc z; q_n = 2 v_n - q_{n-1}.
+  Eigen::MatrixXd vc(ns, ns + 2 + ni);
+  for (int k = 0; k < ns; ++k) {
+    const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
+    vc.row(k) = diff(c.a, c.b);
+  }
+  m.a = 2.0 * vc.leftCols(ns) - Eigen::MatrixXd::Identity(ns, ns);
+  m.b = 2.0 * vc.middleCols(ns, 2);
+  m.c = 2.0 * vc.rightCols(ni);
+
+  m.d.resize(2 * nd, ns);
+  m.e.resize(2 * nd, 2);
+  m.f.resize(2 * nd, ni);
+  for (int j = 0; j < nd; ++j) {
+    const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
+    const Eigen::RowVectorXd vgs = diff(q.gate, q.source);
+    const Eigen::RowVectorXd vds = diff(q.drain, q.source);
+    m.d.row(2 * j) = vgs.head(ns);
+    m.d.row(2 * j + 1) = vds.head(ns);
+    m.e.row(2 * j) = vgs.segment(ns, 2);
+    m.e.row(2 * j + 1) = vds.segment(ns, 2);
+    m.f.row(2 * j) = vgs.tail(ni);
+    m.f.row(2 * j + 1) = vds.tail(ni);
+  }
+
+  const Eigen::RowVectorXd out = diff(net.output_node, 0);
+  m.d_out = out.head(ns);
+  m.e_out = out.segment(ns, 2);
+  m.f_out = out.tail(ni);
+  return m;
+}
+
+Eigen::MatrixXd stacked_update(const dk_matrices& m, int rows) {
+  const int ns = m.states, np = 2 * m.devices, ni = 3 * m.devices;
+  if (rows < ns + np + 1) throw internal_error("stacked_update: fewer rows than the update has");
+  Eigen::MatrixXd w = Eigen::MatrixXd::Zero(rows, ns + 2 + ni);
+  w.topRows(ns) << m.a - Eigen::MatrixXd::Identity(ns, ns), m.b, m.c;
+  w.middleRows(ns, np) << m.d * m.a, m.d * m.b, m.d * m.c;
+  w.row(ns + np) << m.d_out, m.e_out, m.f_out;
+  return w;
+}
+
+Eigen::VectorXd dc_states(const network& net, const Eigen::VectorXd& x) {
+  Eigen::VectorXd q(static_cast<Eigen::Index>(net.capacitors.size()));
+  for (std::size_t k = 0; k < net.capacitors.size(); ++k)
+    q[static_cast<Eigen::Index>(k)] = node_v(x, net.capacitors[k].a) - node_v(x, net.capacitors[k].b);
+  return q;
+}
+
+}  // namespace pinchoff::model

@@ -1,0 +1,96 @@
+#pragma once
+// What the DK engine's façade (model/engine/dk_engine.hpp) asks of a solver, and the state
+// every solver keeps. Two solvers meet it: single_solver (one JFET, closed-form 2x2 Newton,
+// model/engine/dk_single.hpp) and general_solver (k JFETs, LU, dk_general.hpp). A new
+// solver derives from dk_solver_base, fills its members when it is built and meets the
+// dk_solver concept below; the façade calls it once per call or block, never per sample
+// from outside.
+#include <concepts>
+#include <cstddef>
+
+#include <Eigen/Dense>
+
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/engine/dk_matrices.hpp"
+#include "model/engine/dk_stats.hpp"
+
+namespace pinchoff::model {
+
+/// The state both solvers keep, in the network frame (the engine's file comment).
+class dk_solver_base {
+ public:
+  const dk_matrices& matrices() const noexcept { return m_; }
+  const dk_options& options() const noexcept { return opt_; }
+  const dk_stats& stats() const noexcept { return stats_; }
+  void clear_stats() noexcept { stats_ = {}; }
+  /// The states of the DC operating point (volts).
+  const Eigen::VectorXd& dc_state() const noexcept { return x_dc_; }
+  /// Output (real volts) the DC state gives with the generator at 0 V.
+  double dc_output_v() const noexcept { return y_dc_; }
+  /// The state vector.
+  Eigen::VectorXd state() const { return in_.head(m_.states); }
+
+ protected:
+  /// Takes the matrices, checks the options (internal_error naming the field) and reads the
+  /// network's sign and supply.
+  dk_solver_base(dk_matrices m, const dk_options& opt, const network& net);
+
+  /// [x; u; i] at the DC operating point, with the device currents i_dc there (3k).
+  void inputs_at_dc(const Eigen::Ref<const Eigen::VectorXd>& i_dc) {
+    const int ns = m_.states;
+    in_.resize(ns + 2 + i_dc.size());
+    in_.head(ns) = x_dc_;
+    in_[ns] = supply_v_;
+    in_[ns + 1] = 0.0;
+    in_.tail(i_dc.size()) = i_dc;
+  }
+
+  /// sensitivity <- (A + cj md) sensitivity, with cj = C Jf and md = M D at the converged
+  /// point: the per-sample factor of the monodromy matrix (Aprille & Trick 1972).
+  template <class CJ, class MD>
+  void apply_factor(const CJ& cj, const MD& md, Eigen::MatrixXd& sensitivity) {
+    phi_ = m_.a;
+    phi_.noalias() += cj * md;
+    tmp_.noalias() = phi_ * sensitivity;
+    sensitivity = tmp_;
+  }
+
+  dk_matrices m_;
+  dk_options opt_;
+  double sign_{1.0};                // network frame = sign * real
+  double supply_v_{0};              // network frame
+  Eigen::VectorXd x_dc_;
+  double y_dc_{0};
+  dk_stats stats_;
+  Eigen::VectorXd in_;              // [x; u; i]: states, supply and generator, device currents
+  Eigen::MatrixXd phi_, tmp_;       // apply_factor's scratch (ns x ns)
+};
+
+/// The interface of a solver to the façade. Every call but construction allocates nothing.
+///   S(net, op, m, opt)        built for the network at the DC operating point op, with its
+///                             discretisation m (m.devices JFETs) and the options
+///   process(in, out, n)       n samples: generator open-circuit voltage in (real volts),
+///                             voltage across the load out (real volts); in == out allowed
+///   track(sensitivity)        sensitivity <- the monodromy factor at the last sample
+///   reset()                   back to the DC operating point, statistics cleared
+///   set_state(x)              the states (size ns, checked by the façade); the warm-start
+///                             history is kept
+///   ports_network_v(j)        JFET j's (vgs, vds) at the last sample, network frame
+///   sample_loop()             the name of the compiled sample loop that runs
+/// plus what dk_solver_base gives (matrices, options, statistics, DC state and output).
+template <class S>
+concept dk_solver =
+    std::derived_from<S, dk_solver_base> &&
+    std::constructible_from<S, const network&, const operating_point&, dk_matrices, const dk_options&> &&
+    requires(S s, const S cs, const double* in, double* out, std::size_t n, Eigen::MatrixXd& sens,
+             const Eigen::Ref<const Eigen::VectorXd>& x, int j) {
+      { s.process(in, out, n) } noexcept;
+      s.track(sens);
+      s.reset();
+      s.set_state(x);
+      { cs.ports_network_v(j) } noexcept -> std::convertible_to<Eigen::Vector2d>;
+      { cs.sample_loop() } noexcept -> std::convertible_to<const char*>;
+    };
+
+}  // namespace pinchoff::model

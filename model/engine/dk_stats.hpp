@@ -1,0 +1,51 @@
+#pragma once
+// The DK engine's options and its Newton statistics: what a caller sets and reads without
+// the engine itself (model/engine/dk_engine.hpp).
+
+namespace pinchoff::model {
+
+struct dk_options {
+  int max_iterations{50};       ///< Newton evaluations per attempt (1..1000)
+  /// Accepted when the bound on the remaining error of the port voltages after the last
+  /// Newton step, and on the residual there, are both below tol_v (see dk_single.cpp); where
+  /// the port equations cannot be resolved that finely in double precision (megohm
+  /// transimpedances carrying tens of mA), below tol_v plus their rounding, at most 1e-8 V.
+  double tol_v{1e-10};
+  int max_substep_levels{6};    ///< failed samples are retried in 2, 4, ..., 2^levels sub-steps
+  /// Order of the warm start, 0..3: 0 the last solution; 1..3, the last solution moved
+  /// along the new p's step by dv/dp at the last 1..3 samples (Adams-Bashforth of that
+  /// order).
+  int predictor_order{3};
+  /// Also evaluate the device at every accepted point and require the actual residual to
+  /// be below tol_v (slower; checks the error bound, see dk_stats::bound_misses).
+  bool confirm{false};
+  /// Use the sample loop compiled for AVX2 + FMA (state update and Newton solve) where the
+  /// processor has them (x86-64). It rounds differently from the portable loop (last bits
+  /// of the samples); a processor always takes the same loop, so results repeat. false:
+  /// the portable loop.
+  bool wide_kernels{true};
+};
+
+struct dk_stats {
+  long long samples{0};
+  long long evaluations{0};      ///< device evaluations (Newton iterations), all attempts
+  int max_evaluations{0};        ///< most in one sample
+  long long substepped{0};       ///< samples that needed sub-steps and then converged
+  long long failed{0};           ///< samples that did not converge even sub-stepped
+  long long bound_misses{0};     ///< confirm mode: accepted points whose residual was too big
+  double mean_evaluations() const noexcept { return samples ? double(evaluations) / double(samples) : 0.0; }
+
+  /// The statistics of two runs together: the counts summed, the most in one sample the
+  /// larger of the two.
+  dk_stats& operator+=(const dk_stats& o) noexcept {
+    samples += o.samples;
+    evaluations += o.evaluations;
+    max_evaluations = max_evaluations > o.max_evaluations ? max_evaluations : o.max_evaluations;
+    substepped += o.substepped;
+    failed += o.failed;
+    bound_misses += o.bound_misses;
+    return *this;
+  }
+};
+
+}  // namespace pinchoff::model
