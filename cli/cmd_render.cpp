@@ -189,12 +189,7 @@ void write_text(const render_outcome& run, std::ostream& out) {
   else
     out << "  level   peak normalised to " << ceiling << '\n';
   model::dk_stats newton;
-  for (const model::output_report& x : r.outputs) {
-    newton.samples += x.engine.samples;
-    newton.evaluations += x.engine.evaluations;
-    newton.max_evaluations = std::max(newton.max_evaluations, x.engine.max_evaluations);
-    newton.failed += x.engine.failed;
-  }
+  for (const model::output_report& x : r.outputs) newton += x.engine;
   out << "  newton  " << (newton.failed == 0 ? std::string("every sample converged") : std::to_string(newton.failed) + " samples did not converge")
       << ", " << format_number(newton.mean_evaluations(), 3) << " iterations a sample on average, " << newton.max_evaluations
       << " at most\n";

@@ -126,15 +126,6 @@ long long scale_and_count(std::span<double> values, double scale) {
   return beyond;
 }
 
-void add_stats(dk_stats& sum, const dk_stats& s) {
-  sum.samples += s.samples;
-  sum.evaluations += s.evaluations;
-  sum.max_evaluations = std::max(sum.max_evaluations, s.max_evaluations);
-  sum.substepped += s.substepped;
-  sum.failed += s.failed;
-  sum.bound_misses += s.bound_misses;
-}
-
 std::size_t output_count(const render_job& job) { return job.stages.size() + (job.dry_output ? 1 : 0); }
 
 const fs::path& output_path(const render_job& job, std::size_t i) {
@@ -375,7 +366,7 @@ void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
     p.report_progress(static_cast<double>(read_frames), static_cast<double>(read_frames));
   }
   for (std::size_t s = 0; s < p.n_stages; ++s)
-    for (std::size_t c = 0; c < ch; ++c) add_stats(rep.outputs[s].engine, p.units[s * ch + c].engine_stats());
+    for (std::size_t c = 0; c < ch; ++c) rep.outputs[s].engine += p.units[s * ch + c].engine_stats();
 }
 
 // ---- Phase: the scales. Fixed: the job's. Normalised: each output's peak at the ceiling,
