@@ -162,10 +162,10 @@ void write_json(const bias_report& r, std::ostream& out) {
 
 }  // namespace
 
-void register_bias(CLI::App& app, std::vector<command>& commands) {
+void register_bias(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<bias_options>();
   CLI::App* sub = app.add_subcommand("bias", "Operating point, gain, impedances, headroom and corners of a stage");
-  add_stage_input(*sub, opt->input);
+  add_stage_input(*sub, opt->input, data);
   sub->add_option("--at", opt->at_text, "Also show each capacitor's reactance and loss at this frequency, e.g. 1k or 40")
       ->type_name("FREQ");
   sub->add_flag("--json", opt->json, "Machine-readable output (keys carry their unit as a suffix)");

@@ -28,6 +28,7 @@ using base::format_si;
 using align = text_table::align;
 
 struct compare_options {
+  std::filesystem::path devices;  ///< the program's class file (data_files::devices)
   std::vector<std::string> paths;
   std::vector<std::string> overrides;
   std::string freq{"1k"};
@@ -70,7 +71,7 @@ std::vector<design_input> load_designs(const compare_options& o) {
   for (std::size_t i = 0; i < o.paths.size(); ++i) {
     std::vector<std::string> all = common;
     all.insert(all.end(), own[i].begin(), own[i].end());
-    d.push_back({o.paths[i], own[i], model::read_stage_file(o.paths[i], all)});
+    d.push_back({o.paths[i], own[i], model::read_stage_file(o.paths[i], all, o.devices)});
   }
   return d;
 }
@@ -258,8 +259,9 @@ void write_plot(const std::vector<design_input>& in, const model::compare_result
 
 }  // namespace
 
-void register_compare(CLI::App& app, std::vector<command>& commands) {
+void register_compare(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<compare_options>();
+  opt->devices = data.devices;
   CLI::App* sub = app.add_subcommand("compare", "Candidate designs side by side: bias, gain, headroom and harmonic profile");
   sub->add_option("FILES", opt->paths, "Two or more stage files (TOML), one column each")->required();
   sub->add_option("--set", opt->overrides,

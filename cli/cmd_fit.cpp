@@ -27,7 +27,7 @@ struct fit_options {
 
 }  // namespace
 
-void register_fit(CLI::App& app, std::vector<command>& commands) {
+void register_fit(CLI::App& app, std::vector<command>& commands, const data_files&) {
   auto opt = std::make_shared<fit_options>();
   CLI::App* sub = app.add_subcommand("fit", "Fit IDSS, VP and lambda of a part to bench readings (CSV)");
   sub->add_option("FILE", opt->path, "CSV with a header: vgs_v,id_a (gate sweep) or rs_ohm,id_a (self-bias jig), optionally vds_v")

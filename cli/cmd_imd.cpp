@@ -35,10 +35,10 @@ std::string rel_db(double v, double ref) { return format_number(base::db_from_ra
 
 }  // namespace
 
-void register_imd(CLI::App& app, std::vector<command>& commands) {
+void register_imd(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<imd_options>();
   CLI::App* sub = app.add_subcommand("imd", "Two-tone intermodulation: SMPTE/DIN sidebands or twin-tone difference products");
-  add_stage_input(*sub, opt->input);
+  add_stage_input(*sub, opt->input, data);
   sub->add_option("--method", opt->method,
                   "smpte (60 Hz + 7 kHz, 4:1; SMPTE RP120), din (250 Hz + 8 kHz, 4:1; DIN 45403) or twin-tone "
                   "(19 + 20 kHz, equal; IEC 60268-3)")

@@ -30,6 +30,7 @@ using base::format_si;
 using align = text_table::align;
 
 struct measure_options {
+  std::filesystem::path devices;  ///< the program's class file (data_files::devices)
   std::string path;
   std::string freq_text{"auto"};
   int channel{1};
@@ -353,8 +354,9 @@ void write_json(const measure_report& r, std::ostream& out) {
 
 }  // namespace
 
-void register_measure(CLI::App& app, std::vector<command>& commands) {
+void register_measure(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<measure_options>();
+  opt->devices = data.devices;
   CLI::App* sub = app.add_subcommand("measure", "Harmonics, THD, THD+N and noise of a recorded test tone");
   sub->add_option("REC", opt->path, "Recording to analyse (WAV, FLAC, AIFF, ...)")->required();
   sub->add_option("--freq", opt->freq_text, "The tone's frequency, roughly (searched within 10 %), or auto: the strongest line")
@@ -408,7 +410,7 @@ void register_measure(CLI::App& app, std::vector<command>& commands) {
                           p.overrides = opt->overrides;
                           p.drive_vpk = option_level_vpk(opt->drive_text, "--drive");
                           if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
-                          p.st = model::read_stage_file(p.path, p.overrides);
+                          p.st = model::read_stage_file(p.path, p.overrides, opt->devices);
                           against = std::move(p);
                         }
                         measure_report r = analyse(*opt);

@@ -36,6 +36,7 @@ using base::format_si;
 using align = text_table::align;
 
 struct render_options {
+  std::filesystem::path devices;  ///< the program's class file (data_files::devices)
   std::vector<std::string> stages;
   std::string input, output;
   std::string input_peak{"1V"};
@@ -290,7 +291,7 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
   for (const std::string& path : o.stages) {
     loaded_stage l;
     l.file = path;
-    const model::stage s = model::read_stage_file(path, {});
+    const model::stage s = model::read_stage_file(path, {}, o.devices);
     l.description = s.name;
     l.st.name = l.file.stem().string();
     l.st.net = model::build_network(s);
@@ -346,8 +347,9 @@ void run_render(const render_options& o, std::ostream& out, std::ostream& err) {
 
 }  // namespace
 
-void register_render(CLI::App& app, std::vector<command>& commands) {
+void register_render(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<render_options>();
+  opt->devices = data.devices;
   CLI::App* sub = app.add_subcommand("render", "Render a recording through one or several stages, to listen to them");
   sub->add_option("STAGE", opt->stages, "Stage files (TOML); several are rendered side by side, loudness-matched")
       ->required()

@@ -60,10 +60,10 @@ std::vector<double> table_frequencies(double lo, double hi) {
 
 }  // namespace
 
-void register_response(CLI::App& app, std::vector<command>& commands) {
+void register_response(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<response_options>();
   CLI::App* sub = app.add_subcommand("response", "Small-signal frequency response, -3 dB corners and input impedance");
-  add_stage_input(*sub, opt->input);
+  add_stage_input(*sub, opt->input, data);
   sub->add_option("--from", opt->from, "Lowest frequency")->capture_default_str();
   sub->add_option("--to", opt->to, "Highest frequency")->capture_default_str();
   sub->add_option("--points", opt->points, "Log-spaced frequencies for --csv, --json and --plot")

@@ -94,10 +94,10 @@ void write_histograms(const model::spread_result& res, const std::vector<std::st
 
 }  // namespace
 
-void register_spread(CLI::App& app, std::vector<command>& commands) {
+void register_spread(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<spread_options>();
   CLI::App* sub = app.add_subcommand("spread", "Monte Carlo over a batch of parts: bias, gain and headroom spread, yield");
-  add_stage_input(*sub, opt->input);
+  add_stage_input(*sub, opt->input, data);
   add_spread_options(*sub, opt->batch);
   sub->add_option("--require", opt->conditions,
                   "A condition a good build meets, QUANTITY=LO..HI (repeatable): id, vd, vs, vds, vgs, gain (dB), swing (V peak), "
@@ -131,7 +131,7 @@ void register_spread(CLI::App& app, std::vector<command>& commands) {
                         if (!opt->plot.empty())
                           for (const std::string& name : histogram_names(reqs)) check_plot_target(histogram_path(opt->plot, name), inputs);
                         const model::stage st = load_stage(opt->input);
-                        const model::spread_settings settings = spread_settings_from(opt->batch, st, opt->input.path);
+                        const model::spread_settings settings = spread_settings_from(opt->batch, st, opt->input);
                         auto varies = [](const std::optional<base::value_range>& r) { return r && r->lo != r->hi; };
                         if (!varies(settings.idss_a) && !varies(settings.vp_v) && !varies(settings.supply_v) &&
                             settings.resistor_tolerance == 0.0)

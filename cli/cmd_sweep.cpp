@@ -80,10 +80,10 @@ std::string ratio_db(double r) {
 
 }  // namespace
 
-void register_sweep(CLI::App& app, std::vector<command>& commands) {
+void register_sweep(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<sweep_options>();
   CLI::App* sub = app.add_subcommand("sweep", "Harmonics and THD against drive level, from the nonlinear simulation");
-  add_stage_input(*sub, opt->input);
+  add_stage_input(*sub, opt->input, data);
   sub->add_option("--freq", opt->freq, "Test-tone frequency (snapped so the record holds whole cycles)")->capture_default_str();
   sub->add_option("--drive", opt->drive, "Drive levels at the generator, comma separated: 100mVpk,300mVrms,-10dBu")
       ->type_name("L1,L2,...");

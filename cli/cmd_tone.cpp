@@ -245,7 +245,7 @@ tone_report make_tone(const tone_options& o) {
 
 }  // namespace
 
-void register_tone(CLI::App& app, std::vector<command>& commands) {
+void register_tone(CLI::App& app, std::vector<command>& commands, const data_files&) {
   auto opt = std::make_shared<tone_options>();
   CLI::App* sub = app.add_subcommand("tone", "Write a sine test tone, or a staircase of levels, to an audio file");
   sub->add_option("OUT", opt->output, "Audio file to write (refused if it exists, unless --force)")->required();

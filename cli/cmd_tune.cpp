@@ -55,10 +55,10 @@ void write_text(const model::stage& st, const model::tune_target& target, const 
 
 }  // namespace
 
-void register_tune(CLI::App& app, std::vector<command>& commands) {
+void register_tune(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<tune_options>();
   CLI::App* sub = app.add_subcommand("tune", "Find the resistor value that puts the bias on a target");
-  add_stage_input(*sub, opt->input);
+  add_stage_input(*sub, opt->input, data);
   sub->add_option("--target", opt->target_text,
                   "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, or center (largest symmetric clean swing)")
       ->required()
@@ -91,7 +91,7 @@ void register_tune(CLI::App& app, std::vector<command>& commands) {
                         const base::eseries series = base::parse_series(opt->series);
                         const model::stage st = load_stage(opt->input);
                         if (opt->over_spread) {
-                          const model::spread_settings ss = spread_settings_from(opt->batch, st, opt->input.path);
+                          const model::spread_settings ss = spread_settings_from(opt->batch, st, opt->input);
                           const model::trim_result t = model::size_trimmer(st, opt->adjust, target, ss, series);
                           if (opt->json) {
                             nlohmann::json j;

@@ -11,7 +11,8 @@
 
 namespace pinchoff::cli {
 
-void add_stage_input(CLI::App& sub, stage_input& in) {
+void add_stage_input(CLI::App& sub, stage_input& in, const data_files& data) {
+  in.devices = data.devices;
   sub.add_option("FILE", in.path, "Stage file (TOML); see README \"Stage file\"")->required();
   sub.add_option("--set", in.overrides,
                  "Override a stage-file value, KEY=VALUE (repeatable), e.g. --set drain.resistor=4.7k")
@@ -21,7 +22,7 @@ void add_stage_input(CLI::App& sub, stage_input& in) {
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);  // and any number of --set
 }
 
-model::stage load_stage(const stage_input& in) { return model::read_stage_file(in.path, in.overrides); }
+model::stage load_stage(const stage_input& in) { return model::read_stage_file(in.path, in.overrides, in.devices); }
 
 std::vector<std::string> rest_point_warnings(const model::stage& st, const std::string& command, std::ostream& err,
                                              const std::string& label) {
@@ -102,10 +103,10 @@ void add_spread_options(CLI::App& sub, spread_input& in) {
   sub.add_option("--threads", in.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
 }
 
-model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const std::string& stage_path) {
+model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const stage_input& stage) {
   model::spread_settings s;
   std::optional<model::device_class> cls = st.jfet_class;
-  if (!in.device_class.empty()) cls = model::find_device_class(in.device_class, model::device_file_for(stage_path));
+  if (!in.device_class.empty()) cls = model::find_device_class(in.device_class, model::device_file_for(stage.path, stage.devices));
   if (cls) {
     const double sign = model::polarity_sign(st);
     s.idss_a = cls->idss_a;

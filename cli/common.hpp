@@ -1,6 +1,7 @@
 #pragma once
 // Pieces several commands share: the stage-file argument with --set overrides, and the
 // JSON and text forms of an operating point.
+#include <filesystem>
 #include <ostream>
 #include <string>
 #include <vector>
@@ -8,6 +9,7 @@
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
 
+#include "cli/data_files.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
 #include "model/circuit/stage.hpp"
@@ -17,10 +19,11 @@ namespace pinchoff::cli {
 struct stage_input {
   std::string path;
   std::vector<std::string> overrides;  ///< "--set key=value"
+  std::filesystem::path devices;       ///< the program's class file (data_files::devices)
 };
 
-/// Adds the positional FILE and the repeatable --set option.
-void add_stage_input(CLI::App& sub, stage_input& in);
+/// Adds the positional FILE and the repeatable --set option; takes the class file from `data`.
+void add_stage_input(CLI::App& sub, stage_input& in, const data_files& data);
 model::stage load_stage(const stage_input& in);
 
 /// {"vg_v","vs_v","vd_v","vgs_v","vds_v","id_a","ig_a","region"}: the contract keys.
@@ -68,8 +71,8 @@ struct spread_input {
 
 void add_spread_options(CLI::App& sub, spread_input& in);
 /// The settings; IDSS and VP ranges come from --idss/--vp, else from --class, else from
-/// the stage's own class (if it names one). `stage_path` locates the class file.
-model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const std::string& stage_path);
+/// the stage's own class (if it names one). `stage` locates the class file.
+model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const stage_input& stage);
 /// One line describing what was varied, for reports.
 std::string describe_spread(const model::spread_settings& s, const model::stage& st);
 
