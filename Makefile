@@ -8,6 +8,9 @@ FUZZ_SMOKE_SECONDS ?= 3
 FUZZ_TARGETS = stage_file device_classes units csv_fit sound
 JOBS ?= 2
 CMAKE_FLAGS ?=
+# Inside `make test` the three trees build side by side under one make job server (JOBS jobs
+# in all, shared); a build run on its own gets -j$(JOBS) of its own.
+BUILD_JOBS = $(if $(findstring jobserver,$(MAKEFLAGS)),,-j$(JOBS))
 PINCHOFF = $(BUILD_DIR)/pinchoff
 MAKEFLAGS += --no-print-directory
 
@@ -22,7 +25,7 @@ configure: deps
 	@cmake -S . -B $(BUILD_DIR) -DCMAKE_BUILD_TYPE=Release $(CMAKE_FLAGS) > $(BUILD_DIR).configure.log 2>&1 || { cat $(BUILD_DIR).configure.log; exit 1; }
 
 build: configure
-	@cmake --build $(BUILD_DIR) -j$(JOBS)
+	+@cmake --build $(BUILD_DIR) $(BUILD_JOBS)
 
 demo: build
 	@echo
@@ -42,8 +45,11 @@ demo: build
 
 # `make test`: every gate. The suite on the Release build, the suite again under
 # AddressSanitizer and UndefinedBehaviorSanitizer (halting on the first report), and a short
-# run of each fuzz target. `make test-release` is the quick one while working.
-test: test-release test-asan test-fuzz
+# run of each fuzz target. `make test-release` is the quick one while working. The gates run
+# side by side, sharing JOBS compile jobs, so both cores stay busy until the last one ends;
+# each gate's suite starts as soon as its own build is done.
+test:
+	+@$(MAKE) -j$(JOBS) test-release test-asan test-fuzz
 
 # The same as `make test` (kept for old habits).
 test-all: test
@@ -53,11 +59,12 @@ test-release: build
 	@ctest --test-dir $(BUILD_DIR) --output-on-failure -j$(JOBS)
 
 # -O1 -g1: line tables are all a sanitizer report needs, and the build takes half the time
-# of -O2 -g.
+# of -O2 -g. Only what the suite runs is built (the test runner and the program; not the
+# benchmarks or the demo-clip writer).
 build-asan: deps
 	@cmake -S . -B $(ASAN_DIR) -DCMAKE_BUILD_TYPE=RelWithDebInfo "-DCMAKE_CXX_FLAGS_RELWITHDEBINFO=-O1 -g1 -DNDEBUG" \
 	  -DPINCHOFF_SANITIZE=ON $(CMAKE_FLAGS) > $(ASAN_DIR).configure.log 2>&1 || { cat $(ASAN_DIR).configure.log; exit 1; }
-	@cmake --build $(ASAN_DIR) -j$(JOBS)
+	+@cmake --build $(ASAN_DIR) $(BUILD_JOBS) --target pinchoff_tests pinchoff
 
 test-asan: build-asan
 	@echo "== tests: AddressSanitizer + UndefinedBehaviorSanitizer build"
@@ -69,11 +76,13 @@ soak: build
 	@$(BUILD_DIR)/pinchoff_tests -tc="soak*" --no-skip --success=false
 
 # libFuzzer targets (tests/fuzz/), built with clang in their own folder; the gcc builds
-# above do not need clang.
+# above do not need clang. -O2 with line tables only: a report names file and line, and the
+# full debug information cost build time and nothing else.
 build-fuzz: deps
-	@cmake -S . -B $(FUZZ_DIR) -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_CXX_COMPILER=clang++ -DPINCHOFF_FUZZ=ON \
+	@cmake -S . -B $(FUZZ_DIR) -DCMAKE_BUILD_TYPE=RelWithDebInfo "-DCMAKE_CXX_FLAGS_RELWITHDEBINFO=-O2 -gline-tables-only -DNDEBUG" \
+	  -DCMAKE_CXX_COMPILER=clang++ -DPINCHOFF_FUZZ=ON \
 	  -DPINCHOFF_TESTS=OFF $(CMAKE_FLAGS) > $(FUZZ_DIR).configure.log 2>&1 || { cat $(FUZZ_DIR).configure.log; exit 1; }
-	@cmake --build $(FUZZ_DIR) -j$(JOBS) --target fuzz_targets
+	+@cmake --build $(FUZZ_DIR) $(BUILD_JOBS) --target fuzz_targets
 
 # Each target for FUZZ_SECONDS (default 60); prints the executions each survived.
 fuzz: build-fuzz

@@ -10,7 +10,7 @@
 
 namespace pinchoff::cli {
 
-int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
+int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& err, const data_files& data) {
   CLI::App app{
       "pinchoff: a workbench for JFET audio gain stages (pedal, preamp and microphone\n"
       "impedance-converter builders). Describe a stage in a TOML file, then ask where it\n"
@@ -25,17 +25,17 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
       "Run 'pinchoff COMMAND --help' for each command's options.");
 
   std::vector<command> commands;
-  register_bias(app, commands);
-  register_tune(app, commands);
-  register_response(app, commands);
-  register_fit(app, commands);
-  register_spread(app, commands);
-  register_sweep(app, commands);
-  register_imd(app, commands);
-  register_tone(app, commands);
-  register_measure(app, commands);
-  register_compare(app, commands);
-  register_render(app, commands);
+  register_bias(app, commands, data);
+  register_tune(app, commands, data);
+  register_response(app, commands, data);
+  register_fit(app, commands, data);
+  register_spread(app, commands, data);
+  register_sweep(app, commands, data);
+  register_imd(app, commands, data);
+  register_tone(app, commands, data);
+  register_measure(app, commands, data);
+  register_compare(app, commands, data);
+  register_render(app, commands, data);
 
   if (!args.empty() && !args.front().empty() && args.front().front() != '-') {
     bool known = false;

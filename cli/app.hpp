@@ -7,6 +7,8 @@
 #include <string>
 #include <vector>
 
+#include "cli/data_files.hpp"
+
 namespace CLI {
 class App;
 }
@@ -26,21 +28,22 @@ struct command {
   std::map<std::string, std::string, std::less<>> options_of_fields{};
 };
 
-/// Parses `args` (no program name) and runs the chosen command. Returns the exit status:
+/// Parses `args` (no program name) and runs the chosen command, which reads its data from
+/// `data` (main() finds it beside the program: cli/data_files.hpp). Returns the exit status:
 /// 0 success, 1 internal failure, 2 bad input or usage, 130 interrupted (Ctrl-C).
-int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& err, const data_files& data);
 
-// One register function per command file (cli/cmd_*.cpp).
-void register_bias(CLI::App& app, std::vector<command>& commands);
-void register_tune(CLI::App& app, std::vector<command>& commands);
-void register_response(CLI::App& app, std::vector<command>& commands);
-void register_fit(CLI::App& app, std::vector<command>& commands);
-void register_spread(CLI::App& app, std::vector<command>& commands);
-void register_sweep(CLI::App& app, std::vector<command>& commands);
-void register_imd(CLI::App& app, std::vector<command>& commands);
-void register_tone(CLI::App& app, std::vector<command>& commands);
-void register_measure(CLI::App& app, std::vector<command>& commands);
-void register_compare(CLI::App& app, std::vector<command>& commands);
-void register_render(CLI::App& app, std::vector<command>& commands);
+// One register function per command file (cli/cmd_*.cpp); `data` is what run() was given.
+void register_bias(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_tune(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_response(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_fit(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_spread(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_sweep(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_imd(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_tone(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_measure(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_compare(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_render(CLI::App& app, std::vector<command>& commands, const data_files& data);
 
 }  // namespace pinchoff::cli

@@ -152,9 +152,9 @@ void print_json(const bias_report& r, std::ostream& out) {
   out << j.dump(2) << '\n';
 }
 
-CLI::App* setup(CLI::App& app, bias_options& opt) {
+CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("bias", "Operating point, gain, impedances, headroom and corners of a stage");
-  add_stage_input(*sub, opt.input);
+  add_stage_input(*sub, opt.input, data);
   sub->add_option("--at", opt.at_text, "Also show each capacitor's reactance and loss at this frequency, e.g. 1k or 40")
       ->type_name("FREQ");
   sub->add_flag("--json", opt.json, "Machine-readable output (keys carry their unit as a suffix)");
@@ -185,9 +185,9 @@ void run(const bias_options& opt, std::ostream& out) {
 
 }  // namespace
 
-void register_bias(CLI::App& app, std::vector<command>& commands) {
+void register_bias(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<bias_options>();
-  CLI::App* sub = setup(app, *opt);
+  CLI::App* sub = setup(app, *opt, data);
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); }});
 }
 

@@ -36,6 +36,7 @@ struct compare_options {
   bool json{false}, csv{false};
   std::string plot;
   int threads{0};
+  std::filesystem::path devices;  ///< the program's class file
 };
 
 struct design_input {
@@ -69,7 +70,7 @@ std::vector<design_input> load_designs(const compare_options& o) {
   for (std::size_t i = 0; i < o.paths.size(); ++i) {
     std::vector<std::string> all = common;
     all.insert(all.end(), own[i].begin(), own[i].end());
-    d.push_back({o.paths[i], own[i], load_stage(o.paths[i], all)});
+    d.push_back({o.paths[i], own[i], load_stage(o.paths[i], all, o.devices)});
   }
   return d;
 }
@@ -344,8 +345,9 @@ void run(const compare_options& opt, std::ostream& out, std::ostream& err) {
 
 }  // namespace
 
-void register_compare(CLI::App& app, std::vector<command>& commands) {
+void register_compare(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<compare_options>();
+  opt->devices = data.devices;
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
                       {{"drive_level_vpk", "--at-drive"},

@@ -106,7 +106,7 @@ void run(const fit_options& opt, std::ostream& out) {
 
 }  // namespace
 
-void register_fit(CLI::App& app, std::vector<command>& commands) {
+void register_fit(CLI::App& app, std::vector<command>& commands, const data_files&) {
   auto opt = std::make_shared<fit_options>();
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); }});

@@ -123,9 +123,9 @@ void print_text(const imd_report& rep, std::ostream& out) {
       << "\n  IMD = sqrt(sum d_n^2) = " << pct_db(m.imd_ratio) << '\n';
 }
 
-CLI::App* setup(CLI::App& app, imd_options& opt) {
+CLI::App* setup(CLI::App& app, imd_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("imd", "Two-tone intermodulation: SMPTE/DIN sidebands or twin-tone difference products");
-  add_stage_input(*sub, opt.input);
+  add_stage_input(*sub, opt.input, data);
   sub->add_option("--method", opt.method,
                   "smpte (60 Hz + 7 kHz, 4:1; SMPTE RP120), din (250 Hz + 8 kHz, 4:1; DIN 45403) or twin-tone "
                   "(19 + 20 kHz, equal; IEC 60268-3)")
@@ -172,9 +172,9 @@ void run(const imd_options& opt, std::ostream& out, std::ostream& err) {
 
 }  // namespace
 
-void register_imd(CLI::App& app, std::vector<command>& commands) {
+void register_imd(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<imd_options>();
-  CLI::App* sub = setup(app, *opt);
+  CLI::App* sub = setup(app, *opt, data);
   commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
                       {{"level_vpk", "--level"}, {"oversampling", "--oversample"}, {"base_rate_hz", "--rate"}}});
 }

@@ -31,6 +31,7 @@ using align = text_table::align;
 
 // The options as typed.
 struct measure_options {
+  std::filesystem::path devices;  ///< the program's class file
   std::string path;
   std::string freq_text{"auto"};
   int channel{1};
@@ -110,7 +111,7 @@ std::optional<prediction> load_against(const measure_options& o) {
   p.overrides = o.overrides;
   p.drive_vpk = option_level_vpk(o.drive_text, "--drive");
   if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
-  p.st = load_stage(p.path, p.overrides);
+  p.st = load_stage(p.path, p.overrides, o.devices);
   return p;
 }
 
@@ -433,8 +434,9 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
 
 }  // namespace
 
-void register_measure(CLI::App& app, std::vector<command>& commands) {
+void register_measure(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<measure_options>();
+  opt->devices = data.devices;
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,
                       [opt](std::ostream& out, std::ostream&) {

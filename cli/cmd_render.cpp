@@ -38,6 +38,7 @@ using align = text_table::align;
 
 // The options as typed.
 struct render_options {
+  std::filesystem::path devices;  ///< the program's class file
   std::vector<std::string> stages;
   std::string input, output;
   std::string input_peak{"1V"};
@@ -320,7 +321,7 @@ std::vector<model::render_stage> load_stages(const render_options& o, std::ostre
   std::vector<model::render_stage> stages;
   for (const std::string& path : o.stages) {
     const fs::path file(path);
-    const model::stage s = model::read_stage_file(path, {});
+    const model::stage s = model::read_stage_file(path, {}, o.devices);
     model::render_stage st;
     st.name = file.stem().string();
     st.net = model::build_network(s);
@@ -467,8 +468,9 @@ CLI::App* setup(CLI::App& app, render_options& o) {
 
 }  // namespace
 
-void register_render(CLI::App& app, std::vector<command>& commands) {
+void register_render(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<render_options>();
+  opt->devices = data.devices;
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,
                       [opt](std::ostream& out, std::ostream& err) {

@@ -148,9 +148,9 @@ void print_text(const response_report& rep, std::ostream& out) {
   t.write(out);
 }
 
-CLI::App* setup(CLI::App& app, response_options& opt) {
+CLI::App* setup(CLI::App& app, response_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("response", "Small-signal frequency response, -3 dB corners and input impedance");
-  add_stage_input(*sub, opt.input);
+  add_stage_input(*sub, opt.input, data);
   sub->add_option("--from", opt.from, "Lowest frequency")->capture_default_str();
   sub->add_option("--to", opt.to, "Highest frequency")->capture_default_str();
   sub->add_option("--points", opt.points, "Log-spaced frequencies for --csv, --json and --plot")
@@ -197,9 +197,9 @@ void run(const response_options& opt, std::ostream& out, std::ostream& err) {
 
 }  // namespace
 
-void register_response(CLI::App& app, std::vector<command>& commands) {
+void register_response(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<response_options>();
-  CLI::App* sub = setup(app, *opt);
+  CLI::App* sub = setup(app, *opt, data);
   commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); }});
 }
 

@@ -201,9 +201,9 @@ void print_text(const spread_report& rep, const std::string& plots, std::ostream
   if (!plots.empty()) out << '\n' << plots;
 }
 
-CLI::App* setup(CLI::App& app, spread_options& opt) {
+CLI::App* setup(CLI::App& app, spread_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("spread", "Monte Carlo over a batch of parts: bias, gain and headroom spread, yield");
-  add_stage_input(*sub, opt.input);
+  add_stage_input(*sub, opt.input, data);
   add_spread_options(*sub, opt.batch);
   sub->add_option("--require", opt.conditions,
                   "A condition a good build meets, QUANTITY=LO..HI (repeatable): id, vd, vs, vds, vgs, gain (dB), swing (V peak), "
@@ -239,7 +239,7 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err) {
   if (!opt.plot.empty())
     for (const std::string& name : histogram_names(rep.reqs)) check_plot_target(histogram_path(opt.plot, name), inputs);
   rep.st = load_stage(opt.input);
-  rep.settings = spread_settings_from(opt.batch, rep.st, opt.input.path);
+  rep.settings = spread_settings_from(opt.batch, rep.st, opt.input);
   const model::spread_settings& settings = rep.settings;
   auto varies = [](const std::optional<base::value_range>& r) { return r && r->lo != r->hi; };
   if (!varies(settings.idss_a) && !varies(settings.vp_v) && !varies(settings.supply_v) && settings.resistor_tolerance == 0.0)
@@ -268,9 +268,9 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err) {
 
 }  // namespace
 
-void register_spread(CLI::App& app, std::vector<command>& commands) {
+void register_spread(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<spread_options>();
-  CLI::App* sub = setup(app, *opt);
+  CLI::App* sub = setup(app, *opt, data);
   // The THD of --drive is a one-level sweep: its settings' fields map to spread's options.
   command c{sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
             {{"drives_vpk", "--drive"}, {"frequency_hz", "--freq"}}};

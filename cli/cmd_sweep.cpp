@@ -238,9 +238,9 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
   }
 }
 
-CLI::App* setup(CLI::App& app, sweep_options& opt) {
+CLI::App* setup(CLI::App& app, sweep_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("sweep", "Harmonics and THD against drive level, from the nonlinear simulation");
-  add_stage_input(*sub, opt.input);
+  add_stage_input(*sub, opt.input, data);
   sub->add_option("--freq", opt.freq, "Test-tone frequency (snapped so the record holds whole cycles)")->capture_default_str();
   sub->add_option("--drive", opt.drive, "Drive levels at the generator, comma separated: 100mVpk,300mVrms,-10dBu")
       ->type_name("L1,L2,...");
@@ -310,9 +310,9 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err) {
 
 }  // namespace
 
-void register_sweep(CLI::App& app, std::vector<command>& commands) {
+void register_sweep(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<sweep_options>();
-  CLI::App* sub = setup(app, *opt);
+  CLI::App* sub = setup(app, *opt, data);
   commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
                       {{"frequency_hz", "--freq"},
                        {"drives_vpk", "--drive"},

@@ -305,7 +305,7 @@ CLI::App* setup(CLI::App& app, tone_options& o) {
 
 }  // namespace
 
-void register_tone(CLI::App& app, std::vector<command>& commands) {
+void register_tone(CLI::App& app, std::vector<command>& commands, const data_files&) {
   auto opt = std::make_shared<tone_options>();
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,

@@ -104,9 +104,9 @@ void print_trim_json(const model::tune_target& target, const model::spread_setti
   out << j.dump(2) << '\n';
 }
 
-CLI::App* setup(CLI::App& app, tune_options& opt) {
+CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("tune", "Find the resistor value that puts the bias on a target");
-  add_stage_input(*sub, opt.input);
+  add_stage_input(*sub, opt.input, data);
   sub->add_option("--target", opt.target_text,
                   "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, or center (largest symmetric clean swing)")
       ->required()
@@ -140,7 +140,7 @@ void run(const tune_options& opt, std::ostream& out) {
   const base::eseries series = base::parse_series(opt.series);
   const model::stage st = load_stage(opt.input);
   if (opt.over_spread) {
-    const model::spread_settings ss = spread_settings_from(opt.batch, st, opt.input.path);
+    const model::spread_settings ss = spread_settings_from(opt.batch, st, opt.input);
     const model::trim_result t = model::size_trimmer(st, opt.adjust, target, ss, series);
     if (opt.json) return print_trim_json(target, ss, t, out);
     return print_trim_text(st, target, ss, t, series, out);
@@ -152,9 +152,9 @@ void run(const tune_options& opt, std::ostream& out) {
 
 }  // namespace
 
-void register_tune(CLI::App& app, std::vector<command>& commands) {
+void register_tune(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<tune_options>();
-  CLI::App* sub = setup(app, *opt);
+  CLI::App* sub = setup(app, *opt, data);
   command c{sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); },
             {{"adjust_key", "--adjust"}, {"target", "--target"}}};
   map_spread_fields(c.options_of_fields);

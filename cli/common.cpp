@@ -12,7 +12,8 @@
 
 namespace pinchoff::cli {
 
-void add_stage_input(CLI::App& sub, stage_input& in) {
+void add_stage_input(CLI::App& sub, stage_input& in, const data_files& data) {
+  in.devices = data.devices;
   sub.add_option("FILE", in.path, "Stage file (TOML); see README \"Stage file\"")->required();
   sub.add_option("--set", in.overrides,
                  "Override a stage-file value, KEY=VALUE (repeatable), e.g. --set drain.resistor=4.7k")
@@ -22,13 +23,14 @@ void add_stage_input(CLI::App& sub, stage_input& in) {
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);  // and any number of --set
 }
 
-model::stage load_stage(const stage_input& in) { return load_stage(in.path, in.overrides); }
+model::stage load_stage(const stage_input& in) { return load_stage(in.path, in.overrides, in.devices); }
 
-model::stage load_stage(const std::string& path, std::span<const std::string> set_args) {
+model::stage load_stage(const std::string& path, std::span<const std::string> set_args,
+                        const std::filesystem::path& devices) {
   std::vector<model::stage_override> overrides;
   for (const std::string& a : set_args) overrides.push_back(parse_set(a));
   try {
-    return model::read_stage_file(path, overrides);
+    return model::read_stage_file(path, overrides, devices);
   } catch (const setting_error& e) {
     throw input_error("--set " + e.field() + ": " + e.what());
   }
@@ -122,10 +124,10 @@ void map_spread_fields(std::map<std::string, std::string, std::less<>>& options_
                             {"runs", "--runs"}});
 }
 
-model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const std::string& stage_path) {
+model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const stage_input& stage) {
   model::spread_settings s;
   std::optional<model::device_class> cls = st.jfet_class;
-  if (!in.device_class.empty()) cls = model::find_device_class(in.device_class, model::device_file_for(stage_path));
+  if (!in.device_class.empty()) cls = model::find_device_class(in.device_class, model::device_file_for(stage.path, stage.devices));
   if (cls) {
     const double sign = model::polarity_sign(st);
     s.idss_a = cls->idss_a;

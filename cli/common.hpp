@@ -8,9 +8,12 @@
 #include <string>
 #include <vector>
 
+#include <filesystem>
+
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
 
+#include "cli/data_files.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
 #include "model/circuit/stage.hpp"
@@ -20,15 +23,16 @@ namespace pinchoff::cli {
 struct stage_input {
   std::string path;
   std::vector<std::string> overrides;  ///< "--set key=value"
+  std::filesystem::path devices;       ///< the program's class file (data_files::devices)
 };
 
-/// Adds the positional FILE and the repeatable --set option.
-void add_stage_input(CLI::App& sub, stage_input& in);
+/// Adds the positional FILE and the repeatable --set option; takes the class file from `data`.
+void add_stage_input(CLI::App& sub, stage_input& in, const data_files& data);
 model::stage load_stage(const stage_input& in);
 /// Reads the stage file at `path` with each of `set_args` ("KEY=VALUE", read by
 /// cli/option_text.hpp's parse_set) applied; an error in an override is named
 /// "--set KEY: ...".
-model::stage load_stage(const std::string& path, std::span<const std::string> set_args);
+model::stage load_stage(const std::string& path, std::span<const std::string> set_args, const std::filesystem::path& devices);
 
 /// {"vg_v","vs_v","vd_v","vgs_v","vds_v","id_a","ig_a","region"}: the contract keys.
 nlohmann::json operating_point_json(const model::terminal_point& t);
@@ -79,7 +83,7 @@ void add_spread_options(CLI::App& sub, spread_input& in);
 void map_spread_fields(std::map<std::string, std::string, std::less<>>& options_of_fields);
 /// The settings; IDSS and VP ranges come from --idss/--vp, else from --class, else from
 /// the stage's own class (if it names one). `stage_path` locates the class file.
-model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const std::string& stage_path);
+model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const stage_input& stage);
 /// One line describing what was varied, for reports.
 std::string describe_spread(const model::spread_settings& s, const model::stage& st);
 

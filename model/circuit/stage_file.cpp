@@ -150,7 +150,8 @@ void apply_override(toml::table& root, const stage_override& o) {
 
 }  // namespace
 
-stage parse_stage(std::string_view text, std::string_view source_name, std::span<const stage_override> overrides) {
+stage parse_stage(std::string_view text, std::string_view source_name, std::span<const stage_override> overrides,
+                  const std::filesystem::path& devices_file) {
   reader rd(source_name);
   toml::table root;
   try {
@@ -244,7 +245,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   // A named class fills in whatever the file does not give (values given win).
   if (!class_name.empty()) {
     try {
-      st.jfet_class = find_device_class(class_name, device_file_for(std::filesystem::path(std::string(source_name))));
+      st.jfet_class = find_device_class(class_name, device_file_for(std::filesystem::path(std::string(source_name)), devices_file));
     } catch (const input_error& e) {
       rd.fail_at(class_where, "jfet.class", e.what());
     }
@@ -311,7 +312,8 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   return st;
 }
 
-stage read_stage_file(const std::filesystem::path& path, std::span<const stage_override> overrides) {
+stage read_stage_file(const std::filesystem::path& path, std::span<const stage_override> overrides,
+                      const std::filesystem::path& devices_file) {
   std::error_code ec;
   if (std::filesystem::is_directory(path, ec)) throw io_error("'" + path.string() + "' is a directory, not a stage file");
   std::ifstream in(path, std::ios::binary);
@@ -322,7 +324,7 @@ stage read_stage_file(const std::filesystem::path& path, std::span<const stage_o
   const std::string text = buf.str();
   if (text.find_first_not_of(" \t\r\n") == std::string::npos)
     throw input_error(path.string() + ": the file is empty (expected a stage description, see README \"Stage file\")");
-  return parse_stage(text, path.string(), overrides);
+  return parse_stage(text, path.string(), overrides, devices_file);
 }
 
 }  // namespace pinchoff::model

@@ -23,10 +23,14 @@ struct stage_override {
 };
 
 /// Reads and validates the file, applying `overrides` first, in order.
-stage read_stage_file(const std::filesystem::path& path, std::span<const stage_override> overrides = {});
+/// A `[jfet] class` is looked up in the devices.toml beside the file, else in `devices_file`
+/// (the program's own class file, given by the caller; none when empty).
+stage read_stage_file(const std::filesystem::path& path, std::span<const stage_override> overrides = {},
+                      const std::filesystem::path& devices_file = {});
 
 /// The same from text; `source_name` is used in messages in place of the file name.
-stage parse_stage(std::string_view text, std::string_view source_name, std::span<const stage_override> overrides = {});
+stage parse_stage(std::string_view text, std::string_view source_name, std::span<const stage_override> overrides = {},
+                  const std::filesystem::path& devices_file = {});
 
 
 }  // namespace pinchoff::model

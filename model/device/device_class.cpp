@@ -1,7 +1,6 @@
 #include "model/device/device_class.hpp"
 
 #include <cerrno>
-#include <cstdlib>
 #include <cstring>
 #include <fstream>
 #include <sstream>
@@ -10,10 +9,6 @@
 
 #include "base/error.hpp"
 #include "base/text.hpp"
-
-#ifndef PINCHOFF_DEVICES_FILE
-#define PINCHOFF_DEVICES_FILE "presets/devices.toml"
-#endif
 
 namespace pinchoff::model {
 namespace {
@@ -100,12 +95,13 @@ std::vector<device_class> parse_device_classes(std::string_view text, std::strin
   return out;
 }
 
-std::filesystem::path device_file_for(const std::filesystem::path& stage_file) {
+std::filesystem::path device_file_for(const std::filesystem::path& stage_file, const std::filesystem::path& fallback) {
   std::error_code ec;
   const std::filesystem::path beside = stage_file.parent_path() / "devices.toml";
   if (!stage_file.empty() && std::filesystem::is_regular_file(beside, ec)) return beside;
-  if (const char* env = std::getenv("PINCHOFF_DEVICES"); env != nullptr && *env != '\0') return env;
-  return PINCHOFF_DEVICES_FILE;
+  if (fallback.empty())
+    throw input_error("no device-class file: put a devices.toml beside the stage file, or name one with PINCHOFF_DEVICES");
+  return fallback;
 }
 
 device_class find_device_class(std::string_view name, const std::filesystem::path& file) {

@@ -23,9 +23,10 @@ std::vector<device_class> read_device_classes(const std::filesystem::path& path)
 /// The same from text; `source_name` stands for the file in messages.
 std::vector<device_class> parse_device_classes(std::string_view text, std::string_view source_name);
 
-/// The class file used for `stage_file`: devices.toml beside it, else $PINCHOFF_DEVICES,
-/// else the project's presets/devices.toml.
-std::filesystem::path device_file_for(const std::filesystem::path& stage_file);
+/// The class file used for `stage_file`: devices.toml beside it, else `fallback` (the
+/// program's own class file, chosen by the caller). Throws input_error when there is
+/// neither.
+std::filesystem::path device_file_for(const std::filesystem::path& stage_file, const std::filesystem::path& fallback);
 
 /// Looks a class up by name; throws input_error listing the known names (with a
 /// did-you-mean) when there is none.

@@ -162,6 +162,7 @@ struct row {
   std::vector<std::string> words;  // the message must contain each ("@name" as above)
   int status{2};
   bool needs_permissions{false};   // meaningless where permission bits do not stop reads (root)
+  bool no_data_files{false};       // run as a program that found no class file beside itself
 };
 
 std::string expand(const fixtures& fx, const std::string& s) {
@@ -193,6 +194,12 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"no [jfet] section", {"bias", "@nojfet.toml"}, {"@nojfet.toml", "[jfet]"}},
       {"capacitor-coupled gate with no DC path", {"bias", "@nodcpath.toml"}, {"@nodcpath.toml", "no DC path"}},
       {"unknown device class", {"bias", "@noclass.toml"}, {"@noclass.toml:5:", "unknown device class 'no-such-class'"}},
+      {"a class named where no class file is found",
+       {"bias", "@noclass.toml"},
+       {"@noclass.toml:5:", "no device-class file", "PINCHOFF_DEVICES"},
+       2,
+       false,
+       true},
       {"both device forms", {"bias", "@bothforms.toml"}, {"@bothforms.toml:4:", "either idss and vp, or beta and vto"}},
       // ---- bias: --set and options
       {"--set without =", {"bias", "@stage.toml", "--set", "drain.resistor"}, {"--set 'drain.resistor'", "KEY=VALUE"}},
@@ -401,7 +408,15 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       continue;
     }
     const std::set<std::string> before = listing(fx.dir.path);
-    const outcome o = run_cli(args);
+    outcome o;
+    if (r.no_data_files) {
+      std::ostringstream out, err;
+      o.status = pinchoff::cli::run(args, out, err, pinchoff::cli::data_files{});
+      o.out = out.str();
+      o.err = err.str();
+    } else {
+      o = run_cli(args);
+    }
     CAPTURE(o.err);
     CAPTURE(o.out);
     CHECK(o.status == r.status);

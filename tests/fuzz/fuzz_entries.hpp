@@ -59,7 +59,7 @@ inline outcome stage_file_entry(std::string_view data) {
   std::vector<model::stage_override> overrides;
   try {
     if (!first.empty()) overrides.push_back(cli::parse_set(first));
-    const model::stage st = model::parse_stage(rest, "fuzz.toml", overrides);
+    const model::stage st = model::parse_stage(rest, "fuzz.toml", overrides, std::filesystem::path(PINCHOFF_PRESETS_DIR) / "devices.toml");
     for (double v : {st.temperature_k, st.supply.volts_v, st.supply.resistance_ohm, st.supply.capacitance_f,
                      st.jfet.idss_a, st.jfet.vp_v, st.jfet.lambda_per_v, st.jfet.is_a, st.jfet.n, st.jfet.cgs_f,
                      st.jfet.cgd_f, st.signal_impedance_ohm, st.gate.coupling_cap_f, st.gate.resistor_ohm,

@@ -12,6 +12,7 @@
 #include <vector>
 
 #include "cli/app.hpp"
+#include "cli/data_files.hpp"
 
 extern char** environ;
 
@@ -22,10 +23,14 @@ struct cli_result {
   std::string out, err;
 };
 
+/// The data files the way the program finds them: beside this test runner, in the build
+/// folder's share/pinchoff (copied there by the build); $PINCHOFF_DEVICES is not read.
+inline pinchoff::cli::data_files built_data_files() { return pinchoff::cli::find_data_files(pinchoff::cli::program_path(""), nullptr); }
+
 /// `pinchoff ARGS...` in this process; standard output and error captured.
 inline cli_result run_cli(const std::vector<std::string>& args) {
   std::ostringstream out, err;
-  const int status = pinchoff::cli::run(args, out, err);
+  const int status = pinchoff::cli::run(args, out, err, built_data_files());
   return {status, out.str(), err.str()};
 }
 

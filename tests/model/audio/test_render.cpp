@@ -54,7 +54,7 @@ struct result {
 
 result run(std::vector<std::string> args) {
   std::ostringstream out, err;
-  const int status = cli::run(args, out, err);
+  const int status = cli::run(args, out, err, testing::built_data_files());
   return {status, out.str(), err.str()};
 }
 

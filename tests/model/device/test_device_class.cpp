@@ -35,7 +35,7 @@ TEST_CASE("the bundled classes are well formed") {
 
 TEST_CASE("a stage naming a class takes its typical values; given values win") {
   const device_class gp = find_device_class("general-purpose", devices);
-  const stage s = parse_stage(stage_text, "test.toml");
+  const stage s = parse_stage(stage_text, "test.toml", {}, devices);
   REQUIRE(s.jfet_class);
   CHECK(s.jfet.idss_a == gp.typical_idss_a);
   CHECK(s.jfet.vp_v == gp.typical_vp_v);
@@ -43,18 +43,18 @@ TEST_CASE("a stage naming a class takes its typical values; given values win") {
   CHECK(s.jfet.cgs_f == gp.cgs_f);
   std::string with_idss = stage_text;
   with_idss.replace(with_idss.find("class"), 5, "idss = \"7m\"\nclass");
-  CHECK(parse_stage(with_idss, "test.toml").jfet.idss_a == doctest::Approx(7e-3).epsilon(1e-15));
+  CHECK(parse_stage(with_idss, "test.toml", {}, devices).jfet.idss_a == doctest::Approx(7e-3).epsilon(1e-15));
   std::string p = stage_text;
   p.replace(p.find("volts = 9"), 9, "volts = -9");
   p.replace(p.find("class"), 5, "polarity = \"p\"\nclass");
-  CHECK(parse_stage(p, "test.toml").jfet.vp_v == -gp.typical_vp_v);
+  CHECK(parse_stage(p, "test.toml", {}, devices).jfet.vp_v == -gp.typical_vp_v);
 }
 
 TEST_CASE("an unknown class is named with the known ones") {
   std::string bad = stage_text;
   bad.replace(bad.find("general-purpose"), 15, "general-purpos");
   try {
-    parse_stage(bad, "bass.toml");
+    parse_stage(bad, "bass.toml", {}, devices);
     FAIL("expected an error");
   } catch (const input_error& e) {
     const std::string m = e.what();
@@ -64,7 +64,7 @@ TEST_CASE("an unknown class is named with the known ones") {
 }
 
 TEST_CASE("a spread over a class stays inside the class's ranges") {
-  const stage s = parse_stage(stage_text, "test.toml");
+  const stage s = parse_stage(stage_text, "test.toml", {}, devices);
   spread_settings set;
   set.idss_a = s.jfet_class->idss_a;
   set.vp_v = s.jfet_class->vp_v;
