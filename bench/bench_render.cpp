@@ -69,7 +69,7 @@ void bench_render() {
     int channels, threads;
   };
   // One thread: everything on one core. Two: the engines on their own threads and the
-  // calling thread metering and writing beside them (model/render.hpp).
+  // calling thread metering and writing beside them (model/audio/render.hpp).
   const config configs[] = {{1, 1}, {1, 2}, {2, 2}};
   for (const char* name : {"bass-booster-9v.toml", "clean-preamp-18v.toml", "phantom-mic-follower.toml"}) {
     model::render_stage st;

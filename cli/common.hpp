@@ -37,7 +37,7 @@ model::stage load_stage(const std::string& path, std::span<const std::string> se
 /// {"vg_v","vs_v","vd_v","vgs_v","vds_v","id_a","ig_a","region"}: the contract keys.
 nlohmann::json operating_point_json(const model::terminal_point& t);
 
-/// The cautions about the stage's rest point (model/warnings.hpp: ratings exceeded, a bias
+/// The cautions about the stage's rest point (model/analysis/warnings.hpp: ratings exceeded, a bias
 /// that does not amplify, unsafe supplies), each written to `err` as
 /// "pinchoff COMMAND: warning: ..." (prefixed with `label` when given, for commands that
 /// take several stages); returns them for a JSON "warnings" list. Solves the rest point.

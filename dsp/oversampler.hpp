@@ -30,7 +30,7 @@
 //   96 kHz:    31, 23, 23, 19, 19, 19   192 kHz: 23, 23, 19, 19, 19, 19
 // (Later stages stop shrinking at 19-23 taps: even with the widest transition band a
 // half-band allows, Kaiser's estimate asks for 17 taps at 120 dB.)
-// Measured (tests/test_oversampler.cpp, 44.1 and 48 kHz, every factor 2x to 64x): passband
+// Measured (tests/dsp/test_oversampler.cpp, 44.1 and 48 kHz, every factor 2x to 64x): passband
 // within 7.5e-5 dB up, down and round trip; images above fb/2 and in-band alias residue at
 // most -120.2 dB; round-trip residual of an in-band multi-tone at most -105.7 dB.
 //

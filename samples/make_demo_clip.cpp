@@ -1,6 +1,6 @@
 // Writes the demo clip: the plucked-string bass phrase of pluck_phrase.hpp, 48 kHz mono,
 // WAV 24-bit, without dither (so that reading it back returns the synthesised samples
-// within half a 24-bit step, which tests/test_demo_sample.cpp checks).
+// within half a 24-bit step, which tests/dsp/test_demo_sample.cpp checks).
 //
 //   pinchoff_make_sample OUT.wav [--force]
 //

@@ -4,7 +4,7 @@
 // either at one drive for every design or, per design, at the drive that gives one
 // fundamental output level at the load (equal loudness at the output).
 //
-// Every harmonic figure is a run_sweep point (model/sweep.hpp), so `compare` and `sweep`
+// Every harmonic figure is a run_sweep point (model/analysis/sweep.hpp), so `compare` and `sweep`
 // agree exactly at the same drive, frequency and settings. The drive searches below are
 // root finds on run_sweep points in log drive (Illinois-modified regula falsi: Dowell &
 // Jarratt 1971), with the bracket grown by doubling.

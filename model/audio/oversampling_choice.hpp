@@ -24,11 +24,11 @@
 //    power spectra summed over blocks and channels; DC excluded).
 // 2. Probe each stage with a sine at the input's peak drive (peak times input_peak_v) and
 //    at the edge frequency, clamped to 1 kHz .. min(20 kHz, 0.45 fs): its periodic steady
-//    state at 8x, 16x, 32x, 64x (model/steady_state.hpp, the record of model/sweep.hpp:
+//    state at 8x, 16x, 32x, 64x (model/engine/steady_state.hpp, the record of model/analysis/sweep.hpp:
 //    3 cycles in a length coprime with 3, so folded products fall between harmonic bins),
 //    and the non-harmonic power below 20 kHz relative to the fundamental
 //    (dsp::analyse_coherent). The steady state at the engine rate gives the same figure as
-//    a render through the oversampler (tests/test_render.cpp): the half-band filters add
+//    a render through the oversampler (tests/model/audio/test_render.cpp): the half-band filters add
 //    nothing at this level.
 // 3. The factor is the lowest of those at which every stage's probe is below the target
 //    (-80 dBc), or 64x when none is; a silent input takes 8x.

@@ -106,7 +106,7 @@ struct render_job {
   std::vector<render_stage> stages;                 ///< at least one
   std::optional<std::filesystem::path> dry_output;  ///< also write the input itself
   double input_peak_v{1.0};                         ///< generator volts for full scale, > 0
-  /// 1, 2, 4, 8, 16, 32 or 64; 0: chosen from the input (model/oversampling_choice.hpp)
+  /// 1, 2, 4, 8, 16, 32 or 64; 0: chosen from the input (model/audio/oversampling_choice.hpp)
   int oversample{8};
   output_level level{output_level::normalize};
   double peak_dbfs{-1.0};                           ///< normalize / match: peak ceiling, <= 0

@@ -170,7 +170,6 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   std::map<std::string, double> values;              // "section.key" -> value
   std::map<std::string, toml::source_region> where;  // for later messages
   std::string polarity_text = "n";
-  bool polarity_given = false;
   toml::source_region polarity_where;
   std::string class_name;
   toml::source_region class_where;
@@ -210,7 +209,6 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
       }
       if (full == "jfet.polarity") {
         polarity_text = rd.text(v, full);
-        polarity_given = true;
         polarity_where = v.source();
         continue;
       }
@@ -229,7 +227,6 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
 
   if (polarity_text == "p") st.pol = polarity::p;
   else if (polarity_text != "n") rd.fail_at(polarity_where, "jfet.polarity", "jfet.polarity must be \"n\" or \"p\", not \"" + polarity_text + "\"");
-  (void)polarity_given;
   const double sign = st.pol == polarity::p ? -1.0 : 1.0;
   const char* chan = st.pol == polarity::p ? "a p-channel" : "an n-channel";
 

@@ -52,7 +52,7 @@ struct port_currents {
   double ggs_s, ggd_s, gm_s, gds_s;     ///< d igs/d vgs, d igd/d vgd, d id/d vgs, d id/d vds
 };
 
-// Same constant as model/jfet.cpp: beyond exp(80) the junction current is continued linearly.
+// Same constant as model/device/jfet.cpp: beyond exp(80) the junction current is continued linearly.
 inline constexpr double junction_exp_limit = 80.0;
 
 inline void junction(const device_consts& d, double v, double& i, double& g) noexcept {

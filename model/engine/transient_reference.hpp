@@ -1,6 +1,6 @@
 #pragma once
 // The plain time-domain reference: on every sample the whole network is solved by the
-// general nodal Newton of model/nodal.hpp (assemble_linear with trapezoidal companion
+// general nodal Newton of model/circuit/nodal.hpp (assemble_linear with trapezoidal companion
 // capacitors, G = 2C/T, then solve_nodal), with the same device model and the same
 // trapezoidal rule as the DK engine. Slow and simple on purpose: tests compare the fast
 // engine with it sample by sample.

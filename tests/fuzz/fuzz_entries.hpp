@@ -1,7 +1,7 @@
 #pragma once
 // The entry functions of the fuzz targets, shared by the libFuzzer programs (fuzz_*.cpp)
 // and by the regression test that replays every saved input on each `make test`
-// (tests/test_fuzz_regressions.cpp).
+// (tests/fuzz/test_fuzz_regressions.cpp).
 //
 // Each function feeds arbitrary bytes to one parser. Refusing the input with input_error
 // (or io_error, which derives from it) is an expected outcome. Anything else is a bug: an
@@ -106,7 +106,7 @@ inline outcome device_classes_entry(std::string_view text) {
 
 // ---------------------------------------------------------------------------------------
 // Values, levels, frequencies, ranges and fractions: the whole input is one text given to
-// every parser in dsp/units.hpp, and to the spread's --require parser. Accepted results are finite and inside the stated ranges,
+// every parser in base/units.hpp, and to the spread's --require parser. Accepted results are finite and inside the stated ranges,
 // and try_parse_value agrees with parse_value.
 inline outcome units_entry(std::string_view text) {
   using base::unit;

@@ -210,7 +210,7 @@ TEST_CASE("measure --against reads a recording of the model's own harmonics with
   // The "recording": a sum of sines at the sweep point's predicted levels (phases are
   // arbitrary: the analysis reads magnitudes), at the simulated frequency so that the
   // prediction made at the measured fundamental is the same steady state. The tolerance is
-  // `measure`'s own accuracy for lines down to -100 dBc (0.05 dB, tests/test_measure.cpp)
+  // `measure`'s own accuracy for lines down to -100 dBc (0.05 dB, tests/cli/test_measure.cpp)
   // with margin; harmonics below -110 dBc are under the window's reach in 2 s and are
   // skipped.
   const double drive = 0.3;

@@ -1,7 +1,7 @@
-// Rendering audio through stages (model/render.hpp and `pinchoff render`): length and
+// Rendering audio through stages (model/audio/render.hpp and `pinchoff render`): length and
 // alignment, loudness matching, the fixed scale's clip count, the refusals, agreement with
 // the periodic steady state, aliasing against the oversampling factor, Ctrl-C, and flat
-// memory. CLI runs are in-process with argv vectors (as tests/test_cli.cpp), except
+// memory. CLI runs are in-process with argv vectors (as tests/cli/test_cli.cpp), except
 // where a child process is the point (a signal, its peak memory).
 #include <signal.h>
 #include <sys/wait.h>
@@ -165,7 +165,7 @@ TEST_CASE("the rendered channel has the input's length and is aligned with it at
 }
 
 TEST_CASE("the rendered channel does not depend on the block size") {
-  // Streaming contract (model/render.hpp): each sample depends only on the samples before
+  // Streaming contract (model/audio/render.hpp): each sample depends only on the samples before
   // it, so blocks of 1, 37 and 8192 give the same numbers exactly.
   const loaded s = load("clean-preamp-18v.toml");
   const std::vector<double> x = sine(997.0, 48000.0, 2.0, 6000);
@@ -434,7 +434,7 @@ TEST_CASE("render names the field of a setting it refuses, and no option") {
 TEST_CASE("rendered harmonics agree with the periodic steady state at the same drive") {
   // Consistency of two paths through the engine: a long sine rendered through the
   // oversampler at 8x and read on a steady stretch, against the shooting steady state
-  // (model/steady_state.hpp) at the same drive and 384 kHz, and `pinchoff sweep` there.
+  // (model/engine/steady_state.hpp) at the same drive and 384 kHz, and `pinchoff sweep` there.
   // The oversampler is flat within
   // 0.01 dB below 20 kHz (dsp/oversampler.hpp), so H2 and H3 must agree within 0.2 dB.
   scratch_dir dir;

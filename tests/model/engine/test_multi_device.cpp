@@ -53,7 +53,7 @@ double parallel(std::initializer_list<double> rs) {
 TEST_CASE("two independent copies of a stage: each JFET sits at the single stage's DC point") {
   // Closed form by construction: the copies share only ideal sources and ground, so each
   // solves the single stage's equations. Tolerance: the nodal Newton's step tolerance
-  // (1e-9 V + 1e-9 |v|, model/nodal.hpp), currents to the same relative figure.
+  // (1e-9 V + 1e-9 |v|, model/circuit/nodal.hpp), currents to the same relative figure.
   const model::network one = test::stiff_booster();
   REQUIRE(one.devices() == 1);
   const model::network two = test::twin_of(one, 1);
@@ -135,7 +135,7 @@ cascade_run run_cascade(const model::network& net, double amp, int samples) {
 }  // namespace
 
 TEST_CASE("two cascaded stages: the DK engine follows the nodal reference to 1e-9 V") {
-  // Same circuit, same device model, same trapezoidal rule (model/transient_reference.hpp):
+  // Same circuit, same device model, same trapezoidal rule (model/engine/transient_reference.hpp):
   // the two solvers must give the same samples to 1e-9 V, as for every one-JFET stage.
   const model::network net = test::two_stage_network();
   SUBCASE("small drive") {

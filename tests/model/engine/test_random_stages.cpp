@@ -221,7 +221,7 @@ TEST_CASE("regression: the general (k-JFET) path accepts the rounding allowance 
   // Two independent copies of the follower above (it has no supply resistance, so the
   // copies share only ideal sources and ground): the general path must solve the same port
   // equations to the same bound, so every sample converges and the twin gives the single
-  // engine's samples (closed form by construction, as in tests/test_multi_device.cpp),
+  // engine's samples (closed form by construction, as in tests/model/engine/test_multi_device.cpp),
   // here to the 1e-8 V the allowance permits.
   const stage s = parse_described(p_follower_57v);
   const network one = build_network(s);
