@@ -12,6 +12,7 @@
 #include <toml++/toml.h>
 
 #include "base/error.hpp"
+#include "base/toml_depth.hpp"
 #include "base/text.hpp"
 #include "base/units.hpp"
 
@@ -154,6 +155,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
                   const std::filesystem::path& devices_file) {
   reader rd(source_name);
   toml::table root;
+  base::check_toml_depth(text, source_name);
   try {
     root = toml::parse(text, source_name);
   } catch (const toml::parse_error& e) {

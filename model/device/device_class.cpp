@@ -8,6 +8,7 @@
 #include <toml++/toml.h>
 
 #include "base/error.hpp"
+#include "base/toml_depth.hpp"
 #include "base/text.hpp"
 
 namespace pinchoff::model {
@@ -55,6 +56,7 @@ std::vector<device_class> read_device_classes(const std::filesystem::path& path)
 std::vector<device_class> parse_device_classes(std::string_view text, std::string_view source_name) {
   const std::string file(source_name);
   toml::table root;
+  base::check_toml_depth(text, source_name);
   try {
     root = toml::parse(text, source_name);
   } catch (const toml::parse_error& e) {

@@ -96,6 +96,19 @@ struct fixtures {
     write(f("nodcpath.toml"), with_line(good_stage, 9, "# no gate resistor"));
     write(f("noclass.toml"), with_line(with_line(good_stage, 5, "class = \"no-such-class\""), 6, ""));
     write(f("bothforms.toml"), with_line(good_stage, 6, "vp = -1.8\nbeta = \"1m\""));
+    // Nested 40,000 levels deep: the TOML parser recursed once a level and overflowed the
+    // stack (a crash) before the depth was bounded ahead of it.
+    {
+      std::string header = "[a", key = "a", array = "x = ";
+      for (int i = 0; i < 40000; ++i) header += ".a", key += ".b";
+      array += std::string(40000, '[') + std::string(40000, ']');
+      write(f("deep-header.toml"), header + "]\n");
+      write(f("deep-key.toml"), key + " = 1\n");
+      write(f("deep-array.toml"), "name = \"x\"\n" + array + "\n");
+      fs::create_directory(f("deepclass"));
+      write(f("deepclass/devices.toml"), "[general]\nidss = \"1m..2m\"\n" + key + " = 1\n");
+      write(f("deepclass/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
+    }
 
     write(f("empty.csv"), "");
     write(f("header.csv"), "vgs_v,id_a\n");
@@ -182,6 +195,10 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a folder where the stage file goes", {"bias", "@folder"}, {"@folder", "is a directory"}},
       {"stage file that does not exist", {"bias", "@missing.toml"}, {"@missing.toml", "No such file"}},
       {"stage file without read permission", {"bias", "@unreadable.toml"}, {"@unreadable.toml", "Permission denied"}, 2, true},
+      {"table header nested 40,000 levels", {"bias", "@deep-header.toml"}, {"@deep-header.toml:1:", "nested more than 64 levels"}},
+      {"dotted key nested 40,000 levels", {"bias", "@deep-key.toml"}, {"@deep-key.toml:1:", "nested more than 64 levels"}},
+      {"arrays nested 40,000 levels", {"bias", "@deep-array.toml"}, {"@deep-array.toml:2:", "nested more than 64 levels"}},
+      {"class file nested 40,000 levels", {"bias", "@deepclass/stage.toml"}, {"@deepclass/stage.toml:5:", "devices.toml:3:", "nested more than 64 levels"}},
       {"misspelt key", {"bias", "@typo.toml"}, {"@typo.toml:13:1:", "unknown key 'resistr' in [source]", "did you mean 'resistor'"}},
       {"value that is not a number", {"bias", "@badvalue.toml"}, {"@badvalue.toml:11:12:", "drain.resistor", "'3.3q'", "resistance"}},
       {"negative resistance", {"bias", "@negative.toml"}, {"@negative.toml:11:12:", "drain.resistor must not be negative"}},
