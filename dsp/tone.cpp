@@ -45,7 +45,7 @@ tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
                       base::format_si(plan.rate_hz / 2, "Hz") + ")");
   if (plan.steps.empty()) throw input_error("a tone needs at least one level");
   if (!(plan.fade_seconds >= 0.0) || !std::isfinite(plan.fade_seconds))
-    throw setting_error("fade_seconds", "fade time must be zero or positive, got " + base::format_number(plan.fade_seconds) + " s");
+    throw setting_error("fade_seconds", "fade time must be zero or positive, got " + base::format_si(plan.fade_seconds, "s"));
   fade_frames_ = frames_of(plan.fade_seconds, plan.rate_hz);
   starts_.push_back(0);
   for (std::size_t i = 0; i < plan.steps.size(); ++i) {

@@ -307,7 +307,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a length that would fill the disk", {"tone", "--seconds", "1e12", "@t.wav"}, {"longer than a test tone may be"}},
       {"more than a WAV file holds", {"tone", "--rate", "768000", "--channels", "64", "--seconds", "3000", "--format", "float", "@t.wav"}, {"at most 4 GiB", "flac"}},
       {"steps too short for their fades", {"tone", "--seconds", "0.01", "@t.wav"}, {"too short for fades"}},
-      {"negative fade", {"tone", "--fade-ms", "-1", "@t.wav"}, {"--fade-ms", "zero or positive", "got -0.00100 s"}},
+      {"negative fade", {"tone", "--fade-ms", "-1", "@t.wav"}, {"--fade-ms", "zero or positive", "got -1.00 ms"}},
       {"sample rate of 0", {"tone", "--rate", "0", "@t.wav"}, {"sample rate must be positive"}},
       {"sample rate that is not whole", {"tone", "--rate", "44100.5", "@t.wav"}, {"whole number of hertz", "44100.5"}},
       {"no channels", {"tone", "--channels", "0", "@t.wav"}, {"channel count must be 1 to 64", "got 0"}},
