@@ -10,17 +10,22 @@
 // (0 < k < n/2) gives |X[k]| = A n / 2; a cosine on the Nyquist bin (even n) gives
 // |X[n/2]| = A n. Bin k sits at k * fs / n hertz.
 //
-// Any n >= 1 is valid. KissFFT factors n into 4, 2, 3, 5 and then generic odd radices;
-// lengths such as 384 * k (whole cycles of 1 kHz at 384 kHz) factor well. A large prime
-// factor p costs O(p) per output in its stage, so keep sizes smooth for speed.
-// Even n uses the half-length complex transform plus KissFFT's real-input post-processing;
-// odd n uses the full-length complex transform.
+// Any n >= 1 is valid and costs O(n log n). The complex length c (n/2 for even n, whose
+// samples are fed as interleaved pairs and separated by the real-input post-processing; n
+// for odd n) runs directly on KissFFT's radix 2, 3, 4 and 5 butterflies when it has no
+// other prime factor (lengths such as 384 * k, whole cycles of 1 kHz at 384 kHz). Any other
+// c (a prime record length, say) goes through Bluestein's chirp: a circular convolution done
+// by transforms of the smallest 5-smooth length L >= 2c - 1, about three such transforms a
+// call, with the chirp and its spectrum kept in the plan (about 48 L bytes, and 32 L bytes
+// of work a call). A generic radix-p butterfly, O(p) a point, is never run.
 //
 // Accuracy: the norm-wise error is about eps * log2(n) relative to ||X||_2 (Higham,
-// Accuracy and Stability of Numerical Algorithms, 2nd ed., 2002, Thm 24.2; from memory).
+// Accuracy and Stability of Numerical Algorithms, 2nd ed., 2002, Thm 24.2; from memory);
+// the chirp path adds the error of three length-L transforms.
 //
-// Thread safety: forward() is const but KissFFT keeps a mutable scratch buffer for radices
-// above 5, so one object must not be used by two threads at once; give each thread a copy.
+// Thread safety: forward() is const and keeps no state between calls (the butterflies used
+// keep none, and the chirp's work buffers are allocated per call), so one plan may be used
+// by several threads at once.
 #include <complex>
 #include <cstddef>
 #include <memory>
@@ -51,10 +56,28 @@ class real_fft {
   /// Same, returning a new vector of bins() values.
   std::vector<std::complex<double>> forward(std::span<const double> x) const;
 
+  /// The largest prime factor of the length the plan transforms (c, or L through the chirp):
+  /// at most 5 for every n, so every stage is a radix 2..5 butterfly (1 for n <= 2).
+  std::size_t largest_radix() const noexcept;
+  /// The length the plan transforms: c directly, or L >= 2c - 1 through the chirp.
+  std::size_t transform_length() const noexcept;
+  /// Bytes one forward() call allocates for its work (0 on the direct path of an even n).
+  std::size_t work_bytes() const noexcept;
+  /// Whether the plan goes through the chirp (the complex length has a prime factor above 5).
+  bool uses_chirp() const noexcept;
+
  private:
   struct plan;
   std::size_t n_;
   std::unique_ptr<plan> plan_;
 };
+
+/// The length a plan of n real samples transforms (real_fft(n).transform_length(), without
+/// building the plan): c = n/2 (even n) or n (odd n) when c is 5-smooth, else the smallest
+/// 5-smooth L >= 2c - 1.
+std::size_t transform_length(std::size_t n);
+
+/// The largest prime factor of n (1 for n <= 1).
+std::size_t largest_prime_factor(std::size_t n);
 
 }  // namespace pinchoff::dsp

@@ -4,6 +4,7 @@
 
 #include <cmath>
 #include <complex>
+#include <algorithm>
 #include <cstdint>
 #include <limits>
 #include <numbers>
@@ -55,26 +56,32 @@ TEST_CASE("real_fft matches a naive long-double DFT to eps*log2(n) for smooth an
   // Norm-wise bound for a Cooley-Tukey FFT: ||X^ - X|| / ||X|| <= log2(n) * eta, with
   // eta = mu + gamma_4 (sqrt 2 + mu), mu the twiddle error (Higham 2002, Thm 24.2; from memory).
   // With u = eps/2, mu <= eps and gamma_4 ~ 4u: eta <= 4 eps. One level is added for the
-  // real-input post-processing. Generic radices (7, 11, 13) sum p terms in one stage;
-  // log2(p) levels understate that, so each such stage counts as p-1 levels.
+  // real-input post-processing. A length whose complex part has a prime factor above 5 goes
+  // through the chirp: three transforms of length L in sequence (the kernel's, the forward
+  // and the inverse), so 3 log2(L) levels, plus one for each of the three chirp products.
   struct row {
     const char* source;
     std::size_t n;
-    std::size_t generic_levels;  // sum of (p - 1 - log2 p) over radices above 5, rounded up
   };
   const row rows[] = {
-      {"naive DFT, n = 1 (identity)", 1, 0},
-      {"naive DFT, n = 2", 2, 0},
-      {"naive DFT, n = 3 (odd, complex path)", 3, 0},
-      {"naive DFT, n = 5", 5, 0},
-      {"naive DFT, n = 16 (power of two)", 16, 0},
-      {"naive DFT, n = 384 (1 kHz period at 384 kHz)", 384, 0},
-      {"naive DFT, n = 1152 = 384 * 3", 1152, 0},
-      {"naive DFT, n = 1920 = 384 * 5", 1920, 0},
-      {"naive DFT, n = 2688 = 384 * 7 (generic radix 7)", 2688, 4},
-      {"naive DFT, n = 4224 = 384 * 11 (generic radix 11)", 4224, 7},
-      {"naive DFT, n = 4096", 4096, 0},
-      {"naive DFT, n = 1001 = 7 * 11 * 13 (odd)", 1001, 4 + 7 + 9},
+      {"naive DFT, n = 1 (identity)", 1},
+      {"naive DFT, n = 2", 2},
+      {"naive DFT, n = 3 (odd, complex path)", 3},
+      {"naive DFT, n = 5", 5},
+      {"naive DFT, n = 16 (power of two)", 16},
+      {"naive DFT, n = 384 (1 kHz period at 384 kHz)", 384},
+      {"naive DFT, n = 1152 = 384 * 3", 1152},
+      {"naive DFT, n = 1920 = 384 * 5", 1920},
+      {"naive DFT, n = 2688 = 384 * 7 (chirp)", 2688},
+      {"naive DFT, n = 4224 = 384 * 11 (chirp)", 4224},
+      {"naive DFT, n = 4096", 4096},
+      {"naive DFT, n = 1001 = 7 * 11 * 13 (odd, chirp)", 1001},
+      {"naive DFT, n = 1153 (prime: 3 cycles of 999.13 Hz at 384 kHz)", 1153},
+      {"naive DFT, n = 2 * 1151 (even, half length prime)", 2302},
+      {"naive DFT, n = 4 * 1009 (even, half length 2 * prime)", 4036},
+      {"naive DFT, n = 7 (odd prime, chirp of length 15)", 7},
+      {"naive DFT, n = 14 (even, half length 7)", 14},
+      {"naive DFT, n = 4999 (prime)", 4999},
   };
   const double eps = std::numeric_limits<double>::epsilon();
   for (const row& r : rows) {
@@ -82,6 +89,7 @@ TEST_CASE("real_fft matches a naive long-double DFT to eps*log2(n) for smooth an
     const std::vector<double> x = noise(r.n, 1000 + r.n);
     const real_fft fft(r.n);
     REQUIRE(fft.bins() == r.n / 2 + 1);
+    CHECK(fft.largest_radix() <= 5);
     const auto got = fft.forward(x);
     const auto ref = naive_dft(x);
     long double err2 = 0, ref2 = 0;
@@ -90,11 +98,70 @@ TEST_CASE("real_fft matches a naive long-double DFT to eps*log2(n) for smooth an
       ref2 += std::norm(ref[k]);
     }
     const double rel = static_cast<double>(std::sqrt(err2 / ref2));
-    const double levels = std::log2(static_cast<double>(r.n)) + 1.0 + static_cast<double>(r.generic_levels);
+    const double levels = fft.uses_chirp() ? 3.0 * std::log2(static_cast<double>(fft.transform_length())) + 3.0 + 1.0
+                                           : std::log2(static_cast<double>(r.n)) + 1.0;
     const double bound = 4.0 * eps * levels;
+    CAPTURE(fft.uses_chirp());
     CAPTURE(rel);
     CAPTURE(bound);
     CHECK(rel <= bound);
+  }
+}
+
+TEST_CASE("real_fft plans every length with radix 2..5 stages only, through the chirp when needed") {
+  // The property that makes every length O(n log n): no generic radix-p butterfly (O(p) a
+  // point) is ever run. Every n up to 6000, then lengths near the sweep's largest records.
+  for (std::size_t n = 1; n <= 6000; ++n) {
+    const real_fft fft(n);
+    CAPTURE(n);
+    REQUIRE(fft.largest_radix() <= 5);
+    const std::size_t c = n % 2 == 0 ? n / 2 : n;
+    // closed form of the rule in fft.hpp: direct on c when c is 5-smooth, else a chirp of L >= 2c - 1
+    REQUIRE(fft.uses_chirp() == (pinchoff::dsp::largest_prime_factor(c) > 5));
+    if (fft.uses_chirp()) {
+      REQUIRE(fft.transform_length() >= 2 * c - 1);
+      // not wastefully long: the next 5-smooth number is within 25 % above 2c - 1 here
+      REQUIRE(fft.transform_length() <= (5 * (2 * c - 1)) / 4 + 1);
+    } else {
+      REQUIRE(fft.transform_length() == c);
+    }
+  }
+  for (std::size_t n : {57601u, 1152001u, 2097143u, 2097152u}) {
+    const real_fft fft(n);
+    CAPTURE(n);
+    CHECK(fft.largest_radix() <= 5);
+  }
+  // largest_prime_factor against hand factorisations (closed form)
+  CHECK(pinchoff::dsp::largest_prime_factor(1) == 1);
+  CHECK(pinchoff::dsp::largest_prime_factor(1152) == 3);
+  CHECK(pinchoff::dsp::largest_prime_factor(28097) == 28097);  // prime: 3 cycles of 41 Hz at 384 kHz
+  CHECK(pinchoff::dsp::largest_prime_factor(1001) == 13);
+  CHECK(pinchoff::dsp::largest_prime_factor(2 * 1151) == 1151);
+}
+
+TEST_CASE("real_fft of a long prime length reads a sine on its bin and nothing elsewhere") {
+  // closed form: A sin(2 pi k t / n) gives -i A n / 2 on bin k and 0 on every other bin.
+  // n = 57601 is the 20 Hz record at 384 kHz before any snap (prime); 28097 is 41 Hz's.
+  for (std::size_t n : {28097u, 57601u, 2u * 28097u}) {
+    const std::size_t k = 3;
+    const double a = 0.7;
+    std::vector<double> x(n);
+    for (std::size_t t = 0; t < n; ++t)
+      x[t] = a * std::sin(2.0 * std::numbers::pi * static_cast<double>((k * t) % n) / static_cast<double>(n));
+    const real_fft fft(n);
+    const auto X = fft.forward(x);
+    const double nd = static_cast<double>(n);
+    CAPTURE(n);
+    CHECK(std::abs(X[k] - std::complex<double>(0.0, -a * nd / 2)) <= 1e-11 * a * nd / 2);
+    // Every other bin: rounding only. The norm-wise chirp bound above, 4 eps (3 log2 L + 4),
+    // times ||X|| = A n / 2, bounds each bin.
+    const double levels = 3.0 * std::log2(static_cast<double>(fft.transform_length())) + 4.0;
+    const double floor = 4.0 * std::numeric_limits<double>::epsilon() * levels * a * nd / 2;
+    double worst = 0;
+    for (std::size_t b = 0; b < X.size(); ++b)
+      if (b != k) worst = std::max(worst, std::abs(X[b]));
+    CAPTURE(worst);
+    CHECK(worst <= floor);
   }
 }
 
