@@ -218,7 +218,7 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
     const sweep_settings p = point_settings(s, s.level_vpk);
     res.requested_hz = s.frequency_hz;
     res.sample_rate_hz = p.base_rate_hz * p.oversample;
-    res.frequency_hz = res.sample_rate_hz * p.cycles / record_samples(p.frequency_hz, res.sample_rate_hz, p.cycles);
+    res.frequency_hz = plan_sweep(p).frequency_hz();
     res.thd_harmonics = p.harmonics;
   }
   res.oversample = s.oversample;

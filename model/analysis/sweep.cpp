@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <numeric>
+#include <thread>
 
 #include "base/error.hpp"
 #include "base/threads.hpp"
@@ -21,6 +22,39 @@ int record_samples(double frequency_hz, double sample_rate_hz, int cycles) {
     for (long long m : {m0 + d, m0 - d})
       if (m > 2LL * cycles && std::gcd(m, static_cast<long long>(cycles)) == 1) return static_cast<int>(m);
   }
+}
+
+namespace {
+
+// The last harmonic H2..HN that dsp::analyse_coherent counts in a record of m samples holding
+// `cycles` cycles at fs: within the bandwidth and on a bin strictly below Nyquist (1: none).
+int last_counted(double fundamental_hz, double m, int cycles, int harmonics, double bandwidth_hz) {
+  int last = 1;
+  for (int h = 2; h <= harmonics; ++h) {
+    if (static_cast<double>(h) * fundamental_hz > bandwidth_hz || 2.0 * h * cycles >= m) break;
+    last = h;
+  }
+  return last;
+}
+
+}  // namespace
+
+int record_samples(double frequency_hz, double sample_rate_hz, int cycles, int harmonics, double bandwidth_hz) {
+  const double m_exact = cycles * sample_rate_hz / frequency_hz;
+  const int wanted = last_counted(frequency_hz, m_exact, cycles, harmonics, bandwidth_hz);
+  const long long m0 = std::llround(m_exact);
+  // Candidates in order of distance from m0; the window (+-m0/2) always holds one, since
+  // the records that count the same harmonics span at least 2 * cycles consecutive lengths
+  // (the bandwidth is at most half the rate), and 2 of every 3 integers are coprime with 3.
+  for (long long d = 0; d <= m0 / 2 + 2 * cycles; ++d) {
+    for (long long m : {m0 + d, m0 - d}) {
+      if (m <= 2LL * cycles || std::gcd(m, static_cast<long long>(cycles)) != 1) continue;
+      const double snapped = sample_rate_hz * cycles / static_cast<double>(m);
+      if (last_counted(snapped, static_cast<double>(m), cycles, harmonics, bandwidth_hz) == wanted)
+        return static_cast<int>(m);
+    }
+  }
+  return record_samples(frequency_hz, sample_rate_hz, cycles);
 }
 
 void validate(const sweep_settings& s) {
@@ -47,6 +81,17 @@ void validate(const sweep_settings& s) {
     if (!(d > 0) || !std::isfinite(d))
       throw setting_error("drives_vpk", "drive levels must be above 0 V, got " + format_si(d, "Vpk"));
   if (s.cycles < 1 || s.cycles > 64) throw internal_error("sweep cycles out of range");
+  // The record a point holds (drive, output, spectrum and the transform's work, at most about
+  // 120 bytes a sample, on every thread at once) must stay within memory. The bound is on the
+  // record as asked; the snap moves it by a few samples.
+  const double m = s.cycles * fs / s.frequency_hz;
+  if (m > static_cast<double>(max_record_samples))
+    throw setting_error("frequency_hz", "the test frequency " + format_si(s.frequency_hz, "Hz") + " needs a record of " +
+                                            std::to_string(std::llround(m)) + " samples (" + std::to_string(s.cycles) +
+                                            " cycles at the " + format_si(fs, "Hz") + " simulation rate), above the " +
+                                            std::to_string(max_record_samples) + " a point may hold; at this rate the "
+                                            "frequency must be at least " + format_si(s.cycles * fs / max_record_samples, "Hz", 4) +
+                                            ", or lower the oversampling or the audio rate");
 }
 
 sweep_plan plan_sweep(const sweep_settings& s) {
@@ -54,7 +99,7 @@ sweep_plan plan_sweep(const sweep_settings& s) {
   sweep_plan p;
   p.settings_ = s;
   p.sample_rate_hz_ = s.base_rate_hz * s.oversample;
-  p.samples_per_record_ = record_samples(s.frequency_hz, p.sample_rate_hz_, s.cycles);
+  p.samples_per_record_ = record_samples(s.frequency_hz, p.sample_rate_hz_, s.cycles, s.harmonics, s.bandwidth_hz);
   p.frequency_hz_ = p.sample_rate_hz_ * s.cycles / p.samples_per_record_;
   return p;
 }
@@ -79,9 +124,14 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
   cs.bandwidth_hz = s.bandwidth_hz;
 
   res.points.resize(s.drives_vpk.size());
-  base::parallel_for(static_cast<int>(s.drives_vpk.size()), s.threads, [&](int i) {
-    // Each point on its own engine (and FFT plan: a plan is not shared between threads).
-    const dsp::real_fft fft(static_cast<std::size_t>(res.samples_per_record));
+  // One transform plan for every point (its forward() is thread-safe); each point on its own
+  // engine. Points run at once only as many as fit the working memory.
+  const dsp::real_fft fft(static_cast<std::size_t>(res.samples_per_record));
+  const std::size_t point_bytes = 24 * static_cast<std::size_t>(res.samples_per_record) + fft.work_bytes();
+  const int fit = static_cast<int>(std::max<std::size_t>(1, sweep_working_bytes / point_bytes));
+  const int cores = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+  const int threads = std::min(s.threads > 0 ? s.threads : cores, fit);
+  base::parallel_for(static_cast<int>(s.drives_vpk.size()), threads, [&](int i) {
     dk_engine eng(net, op, res.sample_rate_hz);
     steady_state_options so;
     so.cycles = s.cycles;

@@ -6,7 +6,10 @@
 // chosen coprime with K), so every harmonic falls on a bin (no window, no leakage) and
 // products folded from above the simulation's Nyquist frequency land between harmonic
 // bins, where they are measured as aliasing. The frequency is snapped to K fs / M and the
-// snapped value reported.
+// snapped value reported; M is the nearest such length at which the same harmonics lie
+// within the bandwidth as at the frequency asked (record_samples below). Any M transforms
+// in O(M log M) (dsp/fft.hpp), and M is bounded (max_record_samples).
+#include <cstddef>
 #include <vector>
 
 #include "model/engine/dk_stats.hpp"
@@ -27,7 +30,9 @@ struct sweep_settings {
 
 /// Validates the settings against the simulation rate; throws setting_error naming the
 /// field ("oversampling", "base_rate_hz", "frequency_hz", "harmonics", "bandwidth_hz",
-/// "drives_vpk"): a frequency at or above the Nyquist limit of the audio rate, ...
+/// "drives_vpk"): a frequency at or above the Nyquist limit of the audio rate, a record
+/// longer than max_record_samples (named as "frequency_hz", with the lowest frequency the
+/// rate allows), ...
 void validate(const sweep_settings& s);
 
 struct sweep_point {
@@ -96,5 +101,20 @@ sweep_result run_sweep(const stage& st, const sweep_settings& s);
 /// Record length M for K cycles of f at fs: round(K fs / f) moved to the nearest value
 /// coprime with K.
 int record_samples(double frequency_hz, double sample_rate_hz, int cycles);
+
+/// The sweep's record: the nearest M coprime with K whose snapped frequency K fs / M counts
+/// the same harmonics (H2..HN within the bandwidth, on bins below Nyquist) as f itself, so
+/// the snap never moves a harmonic across the band edge (5 kHz at 384 kHz: M = 232,
+/// 4965.5 Hz, keeps H4 at 19.86 kHz inside 20 kHz, where the nearest M = 230 would put it
+/// at 20.03 kHz, outside).
+int record_samples(double frequency_hz, double sample_rate_hz, int cycles, int harmonics, double bandwidth_hz);
+
+/// The longest record a sweep point holds: 2^21 samples (0.55 Hz at 384 kHz with K = 3,
+/// 20 Hz up to a 14 MHz simulation rate). A point keeps the drive, the output, the spectrum
+/// and the transform's work, at most about 120 bytes a sample (0.25 GB at the limit), and
+/// the points share a transform plan of about 100 bytes a sample.
+inline constexpr int max_record_samples = 1 << 21;
+/// Points of one sweep run at once only as many as fit in this much working memory.
+inline constexpr std::size_t sweep_working_bytes = std::size_t{1} << 30;
 
 }  // namespace pinchoff::model
