@@ -34,6 +34,14 @@ std::size_t transform_length(std::size_t n) {
   return is_5_smooth(c) ? c : next_5_smooth(2 * c - 1);
 }
 
+std::size_t forward_work_bytes(std::size_t n) {
+  const std::size_t z = sizeof(cpx);
+  const std::size_t c = n % 2 == 0 ? n / 2 : n;
+  const std::size_t l = transform_length(n);
+  if (n <= 1 || l == c) return n % 2 == 0 ? 0 : 2 * z * n;
+  return 2 * z * l + (n % 2 == 0 ? z * c : 2 * z * c);
+}
+
 std::size_t largest_prime_factor(std::size_t n) {
   std::size_t largest = 1;
   for (std::size_t p = 2; p * p <= n; ++p)
@@ -127,13 +135,6 @@ std::size_t real_fft::largest_radix() const noexcept {
 }
 
 std::size_t real_fft::transform_length() const noexcept { return plan_ ? plan_->l : 0; }
-
-std::size_t real_fft::work_bytes() const noexcept {
-  if (!plan_) return 0;
-  const std::size_t z = sizeof(cpx);
-  if (!plan_->chirp) return n_ % 2 == 0 ? 0 : 2 * z * n_;
-  return 2 * z * plan_->l + (n_ % 2 == 0 ? z * plan_->c : 2 * z * plan_->c);
-}
 
 bool real_fft::uses_chirp() const noexcept { return plan_ && plan_->chirp; }
 

@@ -16,8 +16,8 @@
 // other prime factor (lengths such as 384 * k, whole cycles of 1 kHz at 384 kHz). Any other
 // c (a prime record length, say) goes through Bluestein's chirp: a circular convolution done
 // by transforms of the smallest 5-smooth length L >= 2c - 1, about three such transforms a
-// call, with the chirp and its spectrum kept in the plan (about 48 L bytes, and 32 L bytes
-// of work a call). A generic radix-p butterfly, O(p) a point, is never run.
+// call, with the chirp and its spectrum kept in the plan (about 40 L bytes, and up to 48 L
+// bytes of work a call). A generic radix-p butterfly, O(p) a point, is never run.
 //
 // Accuracy: the norm-wise error is about eps * log2(n) relative to ||X||_2 (Higham,
 // Accuracy and Stability of Numerical Algorithms, 2nd ed., 2002, Thm 24.2; from memory);
@@ -61,8 +61,6 @@ class real_fft {
   std::size_t largest_radix() const noexcept;
   /// The length the plan transforms: c directly, or L >= 2c - 1 through the chirp.
   std::size_t transform_length() const noexcept;
-  /// Bytes one forward() call allocates for its work (0 on the direct path of an even n).
-  std::size_t work_bytes() const noexcept;
   /// Whether the plan goes through the chirp (the complex length has a prime factor above 5).
   bool uses_chirp() const noexcept;
 
@@ -76,6 +74,11 @@ class real_fft {
 /// building the plan): c = n/2 (even n) or n (odd n) when c is 5-smooth, else the smallest
 /// 5-smooth L >= 2c - 1.
 std::size_t transform_length(std::size_t n);
+
+/// Bytes one forward() call of a plan of n allocates for its work: none on the direct path
+/// of an even n, copies in and out (2n complex) for an odd n, and through the chirp two
+/// length-L buffers and the length-c ones.
+std::size_t forward_work_bytes(std::size_t n);
 
 /// The largest prime factor of n (1 for n <= 1).
 std::size_t largest_prime_factor(std::size_t n);

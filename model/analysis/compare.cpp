@@ -228,7 +228,9 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
   res.designs.resize(stages.size());
   std::vector<std::vector<std::string>> trouble(stages.size());
 
-  base::parallel_for(static_cast<int>(stages.size()), s.threads, [&](int i) {
+  // Each design runs one point at a time; designs run at once only as many as fit in memory.
+  const int threads = concurrent_points(s.threads, plan_sweep(point_settings(s, s.level_vpk)).samples_per_record());
+  base::parallel_for(static_cast<int>(stages.size()), threads, [&](int i) {
     const std::size_t k = static_cast<std::size_t>(i);
     const stage& st = stages[k];
     design_figures& d = res.designs[k];

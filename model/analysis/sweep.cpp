@@ -57,6 +57,18 @@ int record_samples(double frequency_hz, double sample_rate_hz, int cycles, int h
   return record_samples(frequency_hz, sample_rate_hz, cycles);
 }
 
+std::size_t sweep_point_bytes(int samples_per_record) {
+  // drive, output and the spectrum (m/2 + 1 complex), and what one transform allocates
+  const std::size_t m = static_cast<std::size_t>(std::max(samples_per_record, 1));
+  return 24 * m + dsp::forward_work_bytes(m);
+}
+
+int concurrent_points(int threads, int samples_per_record) {
+  const int cores = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
+  const int fit = static_cast<int>(std::max<std::size_t>(1, sweep_working_bytes / sweep_point_bytes(samples_per_record)));
+  return std::min(threads > 0 ? threads : cores, fit);
+}
+
 void validate(const sweep_settings& s) {
   using base::format_si;
   if (s.oversample < 1 || s.oversample > 64)
@@ -127,10 +139,7 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
   // One transform plan for every point (its forward() is thread-safe); each point on its own
   // engine. Points run at once only as many as fit the working memory.
   const dsp::real_fft fft(static_cast<std::size_t>(res.samples_per_record));
-  const std::size_t point_bytes = 24 * static_cast<std::size_t>(res.samples_per_record) + fft.work_bytes();
-  const int fit = static_cast<int>(std::max<std::size_t>(1, sweep_working_bytes / point_bytes));
-  const int cores = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
-  const int threads = std::min(s.threads > 0 ? s.threads : cores, fit);
+  const int threads = concurrent_points(s.threads, res.samples_per_record);
   base::parallel_for(static_cast<int>(s.drives_vpk.size()), threads, [&](int i) {
     dk_engine eng(net, op, res.sample_rate_hz);
     steady_state_options so;

@@ -114,7 +114,13 @@ int record_samples(double frequency_hz, double sample_rate_hz, int cycles, int h
 /// and the transform's work, at most about 120 bytes a sample (0.25 GB at the limit), and
 /// the points share a transform plan of about 100 bytes a sample.
 inline constexpr int max_record_samples = 1 << 21;
-/// Points of one sweep run at once only as many as fit in this much working memory.
+/// Points of one sweep (or designs of one comparison) run at once only as many as fit in
+/// this much working memory.
 inline constexpr std::size_t sweep_working_bytes = std::size_t{1} << 30;
+/// The memory one point holds while it runs, for a record of that many samples.
+std::size_t sweep_point_bytes(int samples_per_record);
+/// Threads for points at once: `threads` (0: one per core), fewer when their records would
+/// not fit sweep_working_bytes together (at least 1).
+int concurrent_points(int threads, int samples_per_record);
 
 }  // namespace pinchoff::model
