@@ -293,7 +293,7 @@ void write_json(const render_outcome& run, std::ostream& out) {
                          {"warnings", run.warnings},
                          {"seconds", r.seconds},
                          {"realtime_factor", r.realtime_factor}};
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 // ---- Run
@@ -363,8 +363,30 @@ void place_outputs(const render_options& o, model::render_job& job, std::optiona
   job.match_loudness = true;
 }
 
-// Calls the model once, with a progress bar on a terminal and Ctrl-C as its stop.
-render_outcome run(const render_options& o, std::ostream& err) {
+// What render reads and writes, for the check before it runs (command::files): the output
+// names follow place_outputs.
+command_files render_files(const render_options& o) {
+  command_files f;
+  for (const std::string& s : o.stages) add_stage_inputs(f, s, o.devices);
+  f.inputs.push_back({"--input", o.input});
+  if (o.stages.size() == 1 && !o.dry) {
+    f.outputs.push_back({"--output", o.output});
+    return f;
+  }
+  std::error_code ec;
+  if (fs::exists(o.output, ec) && !fs::is_directory(o.output, ec))
+    throw io_error("--output " + quoted_path(o.output) + " is a file; several outputs need a folder there");
+  const dsp::sample_format format =
+      o.format.empty() ? dsp::nearest_sample_format(dsp::sound_reader::open(o.input).info()) : dsp::parse_sample_format(o.format);
+  for (const std::string& s : o.stages)
+    f.outputs.push_back({"--output (for " + quoted_path(s) + ")", fs::path(o.output) / (fs::path(s).stem().string() + extension_for(format)), true});
+  if (o.dry) f.outputs.push_back({"--output (for --dry)", fs::path(o.output) / (std::string("dry") + extension_for(format)), true});
+  return f;
+}
+
+// Calls the model once, with a progress bar on a terminal and Ctrl-C or SIGTERM as its
+// stop. The files are left in `outputs`, for the caller to commit.
+render_outcome run(const render_options& o, std::ostream& err, base::output_set& outputs) {
   render_outcome r;
   model::render_job job = job_from(o);
   job.stages = load_stages(o, err, r.warnings);
@@ -375,9 +397,15 @@ render_outcome run(const render_options& o, std::ostream& err) {
   progress_bar bar(err, !o.quiet && stderr_is_terminal());
   model::render_control control;
   control.stop = guard.flag();
+  control.outputs = &outputs;
   if (bar.enabled())
     control.progress = [&bar](const model::render_progress& p) { bar.update(p.fraction, p.realtime_factor, p.seconds_left); };
-  r.report = model::render(job, control);
+  try {
+    r.report = model::render(job, control);
+  } catch (const interrupted&) {
+    guard.check();  // the model knows only that it was stopped; the guard knows the signal (143 for SIGTERM)
+    throw;
+  }
   bar.clear();
   if (made) made->keep();
   r.input = o.input;
@@ -473,12 +501,13 @@ void register_render(CLI::App& app, std::vector<command>& commands, const data_f
   opt->devices = data.devices;
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,
-                      [opt](std::ostream& out, std::ostream& err) {
-                        const render_outcome r = run(*opt, err);
+                      [opt](std::ostream& out, std::ostream& err, base::output_set& outputs) {
+                        const render_outcome r = run(*opt, err, outputs);
                         if (opt->json) write_json(r, out);
                         else write_text(r, out);
                       },
-                      render_options_of_fields});
+                      render_options_of_fields,
+                      [opt] { return render_files(*opt); }});
 }
 
 }  // namespace pinchoff::cli

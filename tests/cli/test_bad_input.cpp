@@ -166,6 +166,15 @@ struct fixtures {
     write(f("other/stage.toml"), good_stage);
     write(f("second.toml"), good_stage);
     write(f("h-vd.svg"), good_stage);  // a stage file that a histogram name would match
+    // Outputs against inputs: a stage that reads the class file beside it, a link and a
+    // hard link to the stage file, and a stage named as render's dry output is.
+    fs::create_directory(f("cls"));
+    write(f("cls/devices.toml"),
+          "[general]\nidss = \"2m..8m\"\nvp = \"-1..-3\"\ntypical_idss = \"5m\"\ntypical_vp = -1.8\n");
+    write(f("cls/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
+    fs::create_symlink(f("stage.toml"), f("link-to-stage.svg"));
+    fs::create_hard_link(f("stage.toml"), f("hard-stage.svg"));
+    write(f("dry.toml"), good_stage);
   }
 };
 
@@ -411,6 +420,19 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"several stages into a folder whose parent does not exist", {"render", "@stage.toml", "@second.toml", "--input", "@rec48.wav", "--output", "@nofolder/cmp"}, {"@nofolder/cmp", "does not exist"}},
       {"two stage files of the same name", {"render", "@stage.toml", "@other/stage.toml", "--input", "@rec48.wav", "--output", "@cmp"}, {"two outputs would both be written", "stage.wav"}},
       {"a stage file with a misspelt key", {"render", "@typo.toml", "--input", "@rec48.wav", "--output", "@o.wav"}, {"@typo.toml:13:1:", "unknown key 'resistr'"}},
+
+      // ---- outputs against inputs and against each other: checked once, before any work,
+      // for every command that writes (cli/command_files.hpp); the message names the option
+      // and both files.
+      {"measure --plot onto its --against stage file", {"measure", "@rec.wav", "--against", "@stage.toml", "--drive", "100mV", "--plot", "@stage.toml"}, {"--plot", "@stage.toml", "it is the input file", "the --against stage file"}},
+      {"response --plot onto the class file its stage reads", {"response", "@cls/stage.toml", "--plot", "@cls/devices.toml"}, {"--plot", "@cls/devices.toml", "it is the input file", "the device-class file", "@cls/stage.toml"}},
+      {"sweep --plot onto the class file its stage reads", {"sweep", "@cls/stage.toml", "--plot", "@cls/devices.toml"}, {"--plot", "@cls/devices.toml", "device-class file"}},
+      {"--plot through a symbolic link to the stage file", {"response", "@stage.toml", "--plot", "@link-to-stage.svg"}, {"--plot", "@link-to-stage.svg", "it is the input file", "@stage.toml"}},
+      {"--plot onto a hard link of the stage file", {"sweep", "@stage.toml", "--plot", "@hard-stage.svg"}, {"@hard-stage.svg", "it is the input file"}},
+      {"--plot onto the stage file by way of '..'", {"compare", "@stage.toml", "@second.toml", "--plot", "@other/../second.toml"}, {"--plot", "it is the input file", "a design file"}},
+      {"render output through a link to the stage file", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@link-to-stage.svg", "--force"}, {"--output", "@link-to-stage.svg", "it is the input file"}},
+      {"render --dry beside a stage named dry", {"render", "@dry.toml", "--input", "@rec48.wav", "--output", "@cmp", "--dry"}, {"two outputs would both be written", "dry.wav", "--output (for --dry)"}},
+      {"measure --plot onto the recording through a link", {"measure", "@rec.wav", "--plot", "@folder/../rec.wav"}, {"--plot", "it is the input file", "the recording"}},
   };
 
   REQUIRE(rows.size() >= 180);
