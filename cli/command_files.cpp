@@ -56,7 +56,9 @@ void check_command_files(const command_files& files) {
     std::error_code ec;
     const fs::path folder = o.path.has_parent_path() ? o.path.parent_path() : fs::path(".");
     if (!o.folder_made && !fs::is_directory(folder, ec))
-      throw io_error("cannot write " + named(o) + ": the folder " + quoted_path(folder) + " does not exist");
+      throw io_error("cannot write " + named(o) + ": " +
+                     (fs::exists(folder, ec) ? quoted_path(folder) + " is not a folder"
+                                             : "the folder " + quoted_path(folder) + " does not exist"));
     const std::string leaf = o.path.filename().string();
     if (fs::is_directory(o.path, ec) || leaf.empty() || leaf == "." || leaf == "..")
       throw io_error("cannot write " + named(o) + ": it is a folder");

@@ -432,6 +432,8 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"--plot onto the stage file by way of '..'", {"compare", "@stage.toml", "@second.toml", "--plot", "@other/../second.toml"}, {"--plot", "it is the input file", "a design file"}},
       {"render output through a link to the stage file", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@link-to-stage.svg", "--force"}, {"--output", "@link-to-stage.svg", "it is the input file"}},
       {"render --dry beside a stage named dry", {"render", "@dry.toml", "--input", "@rec48.wav", "--output", "@cmp", "--dry"}, {"two outputs would both be written", "dry.wav", "--output (for --dry)"}},
+      {"tone into a path under a file", {"tone", "@rec.wav/t.wav"}, {"OUT", "@rec.wav", "is not a folder"}},
+      {"--plot into a path under a file", {"sweep", "@stage.toml", "--plot", "@stage.toml/w.svg"}, {"--plot", "@stage.toml", "is not a folder"}},
       {"measure --plot onto the recording through a link", {"measure", "@rec.wav", "--plot", "@folder/../rec.wav"}, {"--plot", "it is the input file", "the recording"}},
   };
 

@@ -190,6 +190,23 @@ TEST_CASE("two runs writing the same file at once: exactly one succeeds without 
   CHECK(names_in(dir.path).size() == static_cast<std::size_t>(pairs));  // no temporary left
 }
 
+TEST_CASE("render commits its outputs all or none: a file appearing meanwhile leaves none of them") {
+  // Outputs were committed one by one: a name taken during the run gave exit 2 but left
+  // the outputs committed before it.
+  scratch_dir dir;
+  REQUIRE(run_cli({"tone", "--seconds", "40", "--freq", "110", dir.file("in.wav")}).status == 0);
+  const pid_t pid = spawn_cli({"render", preset("bass-booster-9v.toml"), preset("clean-preamp-18v.toml"), "--dry", "--input",
+                               dir.file("in.wav"), "--output", dir.file("cmp"), "--oversample", "4"});
+  REQUIRE(pid > 0);
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(20);
+  while (std::chrono::steady_clock::now() < deadline && !(fs::exists(dir.path / "cmp") && has_hidden_file(dir.path / "cmp")))
+    std::this_thread::sleep_for(std::chrono::milliseconds(2));
+  put(dir.path / "cmp" / "dry.wav", "theirs");  // the last of the three names
+  CHECK(wait_status(pid) == 2);
+  CHECK(names_in(dir.path / "cmp") == std::vector<std::string>{"dry.wav"});
+  CHECK(slurp(dir.path / "cmp" / "dry.wav") == "theirs");
+}
+
 TEST_CASE("render and tone stopped by SIGTERM exit 143 and leave nothing") {
   // common practice: a process ended by signal N reports 128 + N (README, exit status).
   scratch_dir dir;
