@@ -282,6 +282,18 @@ void output_file::finish() {
 
 void output_set::add(output_file file) { files_.push_back(std::move(file)); }
 
+void output_set::add_made_folder(fs::path folder) { folders_.push_back(std::move(folder)); }
+
+output_set::~output_set() {
+  files_.clear();
+  remove_made_folders();
+}
+
+void output_set::remove_made_folders() noexcept {
+  for (auto it = folders_.rbegin(); it != folders_.rend(); ++it) ::rmdir(it->c_str());  // only when empty
+  folders_.clear();
+}
+
 std::vector<fs::path> output_set::targets() const {
   std::vector<fs::path> t;
   for (const output_file& f : files_) t.push_back(f.target_);
@@ -367,8 +379,11 @@ void output_set::commit() {
       }
       f.placed_ = false;
     }
+    files.clear();
+    remove_made_folders();
     throw;
   }
+  folders_.clear();
   for (output_file& f : files) {
     if (!f.temp_name_.empty()) ::unlinkat(f.dir_, f.temp_name_.c_str(), 0);
     f.temp_name_.clear();

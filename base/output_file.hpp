@@ -83,9 +83,13 @@ class output_set {
   output_set() = default;
   output_set(output_set&&) noexcept = default;
   output_set& operator=(output_set&&) noexcept = default;
-  ~output_set() = default;  ///< uncommitted files are removed
+  /// Uncommitted files are removed, then the folders made for them if left empty.
+  ~output_set();
 
   void add(output_file file);
+  /// A folder made for outputs of this set: removed again, when empty, if the set is not
+  /// committed.
+  void add_made_folder(std::filesystem::path folder);
   bool empty() const noexcept { return files_.empty(); }
   std::size_t size() const noexcept { return files_.size(); }
   /// The targets, in the order added.
@@ -97,7 +101,9 @@ class output_set {
   void commit();
 
  private:
+  void remove_made_folders() noexcept;
   std::vector<output_file> files_;
+  std::vector<std::filesystem::path> folders_;
 };
 
 /// A scratch file beside `target` (a spool for a two-pass job): made as output_file makes

@@ -17,6 +17,7 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "base/output_file.hpp"
 #include "cli/interrupt.hpp"
 #include "cli/progress_bar.hpp"
 #include "cli/text_table.hpp"
@@ -66,22 +67,6 @@ struct render_outcome {
   bool dry{false};
   std::size_t stage_count{};
   std::vector<std::string> warnings;
-};
-
-// Removes a folder this run created when the run fails and leaves it empty.
-class created_folder {
- public:
-  explicit created_folder(fs::path p) : path_(std::move(p)) {}
-  ~created_folder() {
-    std::error_code ec;
-    if (!path_.empty() && fs::is_empty(path_, ec)) fs::remove(path_, ec);
-  }
-  void keep() { path_.clear(); }
-  created_folder(const created_folder&) = delete;
-  created_folder& operator=(const created_folder&) = delete;
-
- private:
-  fs::path path_;
 };
 
 std::string lower(std::string s) {
@@ -336,8 +321,9 @@ std::vector<model::render_stage> load_stages(const render_options& o, std::ostre
 
 // Names the outputs. One stage: the file --output names, whose extension must match the
 // format. Several stages or --dry: one file each in the folder --output names, made if
-// missing (`made` removes it again if the run fails), loudness-matched.
-void place_outputs(const render_options& o, model::render_job& job, std::optional<created_folder>& made) {
+// missing (and removed again, if left empty, when the outputs are not committed),
+// loudness-matched.
+void place_outputs(const render_options& o, model::render_job& job, base::output_set& outputs) {
   // The format decides the names; the input must open to know it.
   const dsp::sound_info info = dsp::sound_reader::open(o.input).info();
   const dsp::sample_format format = job.format ? *job.format : dsp::nearest_sample_format(info);
@@ -356,7 +342,7 @@ void place_outputs(const render_options& o, model::render_job& job, std::optiona
       throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + quoted_path(parent) + " does not exist");
     if (!fs::create_directory(out_path, ec) || ec)
       throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + ec.message());
-    made.emplace(out_path);
+    outputs.add_made_folder(out_path);
   }
   for (model::render_stage& st : job.stages) st.output = out_path / (st.name + extension_for(format));
   job.dry_output = o.dry ? std::optional<fs::path>(out_path / (std::string("dry") + extension_for(format))) : std::nullopt;
@@ -390,8 +376,7 @@ render_outcome run(const render_options& o, std::ostream& err, base::output_set&
   render_outcome r;
   model::render_job job = job_from(o);
   job.stages = load_stages(o, err, r.warnings);
-  std::optional<created_folder> made;
-  place_outputs(o, job, made);
+  place_outputs(o, job, outputs);
 
   const interrupt_guard guard;
   progress_bar bar(err, !o.quiet && stderr_is_terminal());
@@ -407,7 +392,6 @@ render_outcome run(const render_options& o, std::ostream& err, base::output_set&
     throw;
   }
   bar.clear();
-  if (made) made->keep();
   r.input = o.input;
   r.input_peak_v = job.input_peak_v;
   r.peak_dbfs = job.peak_dbfs;

@@ -158,6 +158,16 @@ TEST_CASE("a set of outputs is committed all or none") {
     set.add(std::move(f));
   }
   CHECK(names_in(dir.path) == std::vector<std::string>{"old.svg", "sub"});
+  {
+    // A folder made for the outputs goes again with them when they are not committed.
+    output_set set;
+    fs::create_directory(dir.path / "made");
+    set.add_made_folder(dir.path / "made");
+    output_file f = output_file::create(dir.path / "made" / "x.wav", existing::refuse);
+    f.write("x");
+    set.add(std::move(f));
+  }
+  CHECK(names_in(dir.path) == std::vector<std::string>{"old.svg", "sub"});
 }
 
 TEST_CASE("two writers of the same name at once: exactly one succeeds without replace") {
