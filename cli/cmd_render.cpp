@@ -356,7 +356,7 @@ command_files render_files(const render_options& o) {
   for (const std::string& s : o.stages) add_stage_inputs(f, s, o.devices);
   f.inputs.push_back({"--input", o.input});
   if (o.stages.size() == 1 && !o.dry) {
-    f.outputs.push_back({"--output", o.output});
+    f.outputs.push_back({"--output", o.output, false, o.force});
     return f;
   }
   std::error_code ec;
@@ -365,8 +365,8 @@ command_files render_files(const render_options& o) {
   const dsp::sample_format format =
       o.format.empty() ? dsp::nearest_sample_format(dsp::sound_reader::open(o.input).info()) : dsp::parse_sample_format(o.format);
   for (const std::string& s : o.stages)
-    f.outputs.push_back({"--output (for " + quoted_path(s) + ")", fs::path(o.output) / (fs::path(s).stem().string() + extension_for(format)), true});
-  if (o.dry) f.outputs.push_back({"--output (for --dry)", fs::path(o.output) / (std::string("dry") + extension_for(format)), true});
+    f.outputs.push_back({"--output (for " + quoted_path(s) + ")", fs::path(o.output) / (fs::path(s).stem().string() + extension_for(format)), true, o.force});
+  if (o.dry) f.outputs.push_back({"--output (for --dry)", fs::path(o.output) / (std::string("dry") + extension_for(format)), true, o.force});
   return f;
 }
 

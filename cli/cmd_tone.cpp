@@ -317,7 +317,7 @@ void register_tone(CLI::App& app, std::vector<command>& commands, const data_fil
                       tone_options_of_fields,
                       [opt] {
                         command_files f;
-                        f.outputs.push_back({"OUT", opt->output});
+                        f.outputs.push_back({"OUT", opt->output, false, opt->force});
                         return f;
                       }});
 }

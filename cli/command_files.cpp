@@ -71,6 +71,8 @@ void check_command_files(const command_files& files) {
       if (same(out.back(), out[k]))
         throw io_error("two outputs would both be written to the same file: " + named(files.outputs[k]) + " and " +
                        named(o) + "; choose different names");
+    if (!o.may_exist && fs::symlink_status(o.path, ec).type() != fs::file_type::not_found)
+      throw file_exists_error("cannot write " + named(o) + ": the file exists");
   }
 }
 

@@ -16,6 +16,7 @@ struct named_file {
   std::string what;
   std::filesystem::path path;
   bool folder_made{false};  ///< an output whose folder the command makes when missing
+  bool may_exist{true};     ///< false: an existing file is refused (no --force)
 };
 
 struct command_files {
@@ -28,7 +29,9 @@ void add_stage_inputs(command_files& files, const std::filesystem::path& stage, 
                       const std::string& what = "the stage file");
 
 /// Throws io_error naming the option and the file when an output's folder is missing, when
-/// it is a folder, is one of the inputs, or is the same file as another output.
+/// it is a folder, is one of the inputs, or is the same file as another output;
+/// file_exists_error when it exists and may not (the writer checks that again, atomically,
+/// when it commits).
 void check_command_files(const command_files& files);
 
 }  // namespace pinchoff::cli

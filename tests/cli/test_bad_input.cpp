@@ -161,6 +161,7 @@ struct fixtures {
     pinchoff::testing::copy_with_float_sample(f("float48.wav"), f("inf48.wav"), 4800, 0x7f800000u);
     fs::create_directory(f("made"));
     write(f("made/taken.wav"), "x");
+    write(f("made/dry.wav"), "x");
     // A second stage file whose name matches the first: both would render to stage.wav.
     fs::create_directory(f("other"));
     write(f("other/stage.toml"), good_stage);
@@ -432,6 +433,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"--plot onto the stage file by way of '..'", {"compare", "@stage.toml", "@second.toml", "--plot", "@other/../second.toml"}, {"--plot", "it is the input file", "a design file"}},
       {"render output through a link to the stage file", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@link-to-stage.svg", "--force"}, {"--output", "@link-to-stage.svg", "it is the input file"}},
       {"render --dry beside a stage named dry", {"render", "@dry.toml", "--input", "@rec48.wav", "--output", "@cmp", "--dry"}, {"two outputs would both be written", "dry.wav", "--output (for --dry)"}},
+      {"render --dry into a folder whose dry.wav exists, without --force", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@made", "--dry"}, {"--output (for --dry)", "dry.wav", "exists", "--force"}},
       {"tone into a path under a file", {"tone", "@rec.wav/t.wav"}, {"OUT", "@rec.wav", "is not a folder"}},
       {"--plot into a path under a file", {"sweep", "@stage.toml", "--plot", "@stage.toml/w.svg"}, {"--plot", "@stage.toml", "is not a folder"}},
       {"measure --plot onto the recording through a link", {"measure", "@rec.wav", "--plot", "@folder/../rec.wav"}, {"--plot", "it is the input file", "the recording"}},
