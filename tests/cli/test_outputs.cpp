@@ -7,6 +7,7 @@
 #include <sched.h>
 #include <signal.h>
 #include <sys/mount.h>
+#include <sys/resource.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
@@ -261,10 +262,16 @@ TEST_CASE("after a SIGKILL the next run writing that file removes the stale temp
 
 namespace {
 
-// Runs `scenario` in a child process with a 64 KiB tmpfs mounted at `dir` (in a mount
-// namespace of its own, so nothing outlives the child). The scenario's text comes back
-// through a pipe; "cannot mount: ..." when the machine allows no such mount.
-std::string on_small_disk(const fs::path& dir, std::string (*scenario)(const fs::path&)) {
+enum class write_fault {
+  small_disk,   // a 64 KiB tmpfs, nearly full: ENOSPC
+  file_limit,   // RLIMIT_FSIZE of 4 KiB, no privilege needed: EFBIG
+};
+
+// Runs `scenario` in a child process where writes fail: on a 64 KiB tmpfs mounted at `dir`
+// (in a mount namespace of its own, so nothing outlives the child), or under a limit on
+// the size of any file written. The scenario's text comes back through a pipe; "cannot
+// mount: ..." when the machine allows no such mount.
+std::string with_write_fault(const fs::path& dir, write_fault fault, std::string (*scenario)(const fs::path&, write_fault)) {
   int fds[2];
   REQUIRE(::pipe(fds) == 0);
   const pid_t pid = ::fork();
@@ -273,15 +280,20 @@ std::string on_small_disk(const fs::path& dir, std::string (*scenario)(const fs:
     ::close(fds[0]);
     std::string text;
     const bool root = ::geteuid() == 0;
-    if (::unshare(root ? CLONE_NEWNS : (CLONE_NEWUSER | CLONE_NEWNS)) != 0) {
+    if (fault == write_fault::file_limit) {
+      ::signal(SIGXFSZ, SIG_IGN);  // a write past the limit then fails with EFBIG
+      const rlimit limit{4096, 4096};
+      text = ::setrlimit(RLIMIT_FSIZE, &limit) == 0 ? "" : std::string("cannot limit: ") + std::strerror(errno);
+    } else if (::unshare(root ? CLONE_NEWNS : (CLONE_NEWUSER | CLONE_NEWNS)) != 0) {
       text = std::string("cannot mount: unshare: ") + std::strerror(errno);
     } else if (::mount(nullptr, "/", nullptr, MS_REC | MS_PRIVATE, nullptr) != 0 && root) {
       text = std::string("cannot mount: private /: ") + std::strerror(errno);
     } else if (::mount("tmpfs", dir.c_str(), "tmpfs", 0, "size=64k") != 0) {
       text = std::string("cannot mount: tmpfs: ") + std::strerror(errno);
-    } else {
+    }
+    if (text.empty()) {
       try {
-        text = scenario(dir);
+        text = scenario(dir, fault);
       } catch (const std::exception& e) {
         text = std::string("exception: ") + e.what();
       }
@@ -299,8 +311,9 @@ std::string on_small_disk(const fs::path& dir, std::string (*scenario)(const fs:
   return text;
 }
 
-// Fills the disk but for `room` bytes (tmpfs counts 4 KiB pages).
-void fill_leaving(const fs::path& dir, std::size_t room) {
+// On the small disk, fills it but for `room` bytes (tmpfs counts 4 KiB pages).
+void fill_leaving(const fs::path& dir, std::size_t room, write_fault fault) {
+  if (fault != write_fault::small_disk) return;
   std::ofstream f(dir / "filler", std::ios::binary);
   const std::string block(4096, 'f');
   for (std::size_t used = 0; used + room + 4096 <= 64 * 1024; used += 4096) f << block;
@@ -312,33 +325,43 @@ std::string listing_text(const fs::path& dir) {
   return s;
 }
 
-std::string spread_on_full_disk(const fs::path& dir) {
-  // Room for the first histogram (vd) but not for both: each is about 7 KiB.
-  fill_leaving(dir, 12 * 1024);
-  const auto r = run_cli({"spread", preset("bass-booster-9v.toml"), "--runs", "200", "--idss", "2m..8m", "--plot", (dir / "h.svg").string()});
-  return "status " + std::to_string(r.status) + "; left: " + listing_text(dir) +
-         (r.err.find("No space left") != std::string::npos ? "; says no space" : "; message: " + r.err);
+std::string says_why(const std::string& err) {
+  const bool why = err.find("No space left") != std::string::npos || err.find("File too large") != std::string::npos;
+  return why ? "; says why" : "; message: " + err;
 }
 
-std::string tone_on_full_disk(const fs::path& dir) {
-  fill_leaving(dir, 8 * 1024);
+std::string spread_with_fault(const fs::path& dir, write_fault fault) {
+  // On the small disk: room for the first histogram (vd) but not for both (each is about
+  // 8 KiB, three pages).
+  fill_leaving(dir, 12 * 1024, fault);
+  const auto r = run_cli({"spread", preset("bass-booster-9v.toml"), "--runs", "200", "--idss", "2m..8m", "--plot", (dir / "h.svg").string()});
+  return "status " + std::to_string(r.status) + "; left: " + listing_text(dir) + says_why(r.err);
+}
+
+std::string tone_with_fault(const fs::path& dir, write_fault fault) {
+  fill_leaving(dir, 8 * 1024, fault);
   put(dir / "old.wav", "old");
   const auto r = run_cli({"tone", "--seconds", "1", "--force", (dir / "old.wav").string()});
-  return "status " + std::to_string(r.status) + "; left: " + listing_text(dir) + "; old " + slurp(dir / "old.wav") +
-         (r.err.find("No space left") != std::string::npos ? "; says no space" : "; message: " + r.err);
+  return "status " + std::to_string(r.status) + "; left: " + listing_text(dir) + "; old " + slurp(dir / "old.wav") + says_why(r.err);
 }
 
 }  // namespace
 
-TEST_CASE("a full disk: exit 2 naming the file, no output or temporary left, a replaced file kept") {
+TEST_CASE("a full disk or a failed write: exit 2 saying why, no output or temporary left, a replaced file kept") {
   scratch_dir dir;
   fs::create_directory(dir.path / "small");
-  const std::string spread = on_small_disk(dir.path / "small", spread_on_full_disk);
+  const std::string spread = with_write_fault(dir.path / "small", write_fault::small_disk, spread_with_fault);
   if (spread.rfind("cannot mount", 0) == 0) {
-    MESSAGE("skipped: this machine allows no small tmpfs here (" << spread << ")");
-    return;
+    MESSAGE("the full-disk half is skipped: this machine allows no small tmpfs here (" << spread << ")");
+  } else {
+    CHECK(spread == "status 2; left: filler ; says why");
+    CHECK(with_write_fault(dir.path / "small", write_fault::small_disk, tone_with_fault) ==
+          "status 2; left: filler old.wav ; old old; says why");
   }
-  CHECK(spread == "status 2; left: filler ; says no space");
-  const std::string tone = on_small_disk(dir.path / "small", tone_on_full_disk);
-  CHECK(tone == "status 2; left: filler old.wav ; old old; says no space");
+  // A write error injected by a limit on file size, which needs no privilege.
+  CHECK(with_write_fault(dir.path / "small", write_fault::file_limit, spread_with_fault) == "status 2; left: ; says why");
+  fs::remove_all(dir.path / "small");
+  fs::create_directory(dir.path / "small");
+  CHECK(with_write_fault(dir.path / "small", write_fault::file_limit, tone_with_fault) ==
+        "status 2; left: old.wav ; old old; says why");
 }
