@@ -355,7 +355,7 @@ void output_set::commit() {
       } else {
         if (entry_exists(f.dir_, f.name_)) {
           f.backup_name_ = f.temp_name_.substr(0, f.temp_name_.size() - 4) + "keep";
-          if (::linkat(f.dir_, f.name_.c_str(), f.dir_, f.backup_name_.c_str(), AT_SYMLINK_NOFOLLOW) != 0)
+          if (::linkat(f.dir_, f.name_.c_str(), f.dir_, f.backup_name_.c_str(), 0) != 0)  // 0: a link itself is kept
             f.backup_name_.clear();  // no hard links: the old file cannot be kept to put back
         }
         if (::renameat(f.dir_, f.temp_name_.c_str(), f.dir_, f.name_.c_str()) != 0) fail(f.target_, errno);

@@ -159,6 +159,26 @@ TEST_CASE("a set of outputs is committed all or none") {
   }
   CHECK(names_in(dir.path) == std::vector<std::string>{"old.svg", "sub"});
   {
+    // A replace placed, then a later one fails: the first replaced file is put back.
+    put(dir.path / "sub" / "y.svg", "old y");
+    output_set set;
+    output_file first = output_file::create(old, existing::replace);
+    first.write("new plot");
+    set.add(std::move(first));
+    output_file second = output_file::create(dir.path / "sub" / "y.svg", existing::replace);
+    second.write("new y");
+    const fs::path temp = second.temporary();
+    set.add(std::move(second));
+    fs::remove(temp);  // another file where its temporary was: the second cannot be placed
+    put(temp, "not ours");
+    CHECK_THROWS_AS(set.commit(), pinchoff::io_error);
+    CHECK(slurp(old) == "old plot");
+    CHECK(slurp(dir.path / "sub" / "y.svg") == "old y");
+    fs::remove(temp);
+    fs::remove(dir.path / "sub" / "y.svg");
+  }
+  CHECK(names_in(dir.path) == std::vector<std::string>{"old.svg", "sub"});
+  {
     // A folder made for the outputs goes again with them when they are not committed.
     output_set set;
     fs::create_directory(dir.path / "made");
