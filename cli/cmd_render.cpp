@@ -362,8 +362,14 @@ command_files render_files(const render_options& o) {
   std::error_code ec;
   if (fs::exists(o.output, ec) && !fs::is_directory(o.output, ec))
     throw io_error("--output " + quoted_path(o.output) + " is a file; several outputs need a folder there");
+  // The format names the files: from --format, else from the input's header (a pipe is not
+  // opened twice: its name's extension stands in; the writer checks the input again).
+  const bool readable_twice = fs::is_regular_file(o.input, ec);
   const dsp::sample_format format =
-      o.format.empty() ? dsp::nearest_sample_format(dsp::sound_reader::open(o.input).info()) : dsp::parse_sample_format(o.format);
+      !o.format.empty() ? dsp::parse_sample_format(o.format)
+      : readable_twice  ? dsp::nearest_sample_format(dsp::sound_reader::open(o.input).info())
+      : fs::path(o.input).extension() == ".flac" ? dsp::sample_format::flac24
+                                                 : dsp::sample_format::wav24;
   for (const std::string& s : o.stages)
     f.outputs.push_back({"--output (for " + quoted_path(s) + ")", fs::path(o.output) / (fs::path(s).stem().string() + extension_for(format)), true, o.force});
   if (o.dry) f.outputs.push_back({"--output (for --dry)", fs::path(o.output) / (std::string("dry") + extension_for(format)), true, o.force});
