@@ -289,6 +289,16 @@ TEST_CASE("stale temporaries of a killed run are removed by the next run, a live
   fs::last_write_time(far, fs::file_time_type::clock::now() - std::chrono::hours(25));
   CHECK(pinchoff::base::remove_stale_temporaries(target) == 1);
   CHECK_FALSE(fs::exists(far));
+
+  // Another user's stale temporary is left to its owner.
+  const std::string theirs = temporary_of_killed_run(target);
+  if (::geteuid() == 0) {
+    REQUIRE(::chown((dir.path / theirs).c_str(), 65534, 65534) == 0);
+    CHECK(pinchoff::base::remove_stale_temporaries(target) == 0);
+    CHECK(fs::exists(dir.path / theirs));
+  } else {
+    MESSAGE("the other-owner half needs root to give a file away");
+  }
 }
 
 TEST_CASE("a scratch file leaves no name behind") {
