@@ -195,7 +195,7 @@ TEST_CASE("two writers of the same name at once: exactly one succeeds without re
   // by a rename let both writers report success, the second replacing the first.
   scratch_dir dir;
   int both = 0, none = 0;
-  constexpr int rounds = 300;
+  constexpr int rounds = 100;
   for (int round = 0; round < rounds; ++round) {
     const fs::path target = dir.path / ("take-" + std::to_string(round) + ".wav");
     std::latch ready(2);

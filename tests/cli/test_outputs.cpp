@@ -173,7 +173,7 @@ TEST_CASE("two runs writing the same file at once: exactly one succeeds without 
   // pairs of `tone`); create-or-fail is now one step.
   scratch_dir dir;
   int both = 0, neither = 0;
-  constexpr int pairs = 60;
+  constexpr int pairs = 40;
   for (int i = 0; i < pairs; ++i) {
     const std::string out = dir.file("race-" + std::to_string(i) + ".wav");
     const pid_t a = spawn_cli({"tone", "--seconds", "0.3", out});
@@ -195,9 +195,9 @@ TEST_CASE("render commits its outputs all or none: a file appearing meanwhile le
   // Outputs were committed one by one: a name taken during the run gave exit 2 but left
   // the outputs committed before it.
   scratch_dir dir;
-  REQUIRE(run_cli({"tone", "--seconds", "40", "--freq", "110", dir.file("in.wav")}).status == 0);
+  REQUIRE(run_cli({"tone", "--seconds", "10", "--freq", "110", dir.file("in.wav")}).status == 0);
   const pid_t pid = spawn_cli({"render", preset("bass-booster-9v.toml"), preset("clean-preamp-18v.toml"), "--dry", "--input",
-                               dir.file("in.wav"), "--output", dir.file("cmp"), "--oversample", "4"});
+                               dir.file("in.wav"), "--output", dir.file("cmp"), "--oversample", "2"});
   REQUIRE(pid > 0);
   const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(20);
   while (std::chrono::steady_clock::now() < deadline && !(fs::exists(dir.path / "cmp") && has_hidden_file(dir.path / "cmp")))
