@@ -153,6 +153,16 @@ std::string rate_text(double rate_hz) {
 
 std::string volts_text(double v) { return format_si(v, "V", 3); }
 
+// "channel 2" or "channels 1 and 2", counted from 1.
+std::string channel_list(const std::vector<int>& channels) {
+  std::string t = channels.size() == 1 ? "channel " : "channels ";
+  for (std::size_t i = 0; i < channels.size(); ++i) {
+    if (i > 0) t += i + 1 == channels.size() ? " and " : ", ";
+    t += std::to_string(channels[i]);
+  }
+  return t + (channels.size() == 1 ? " is" : " are");
+}
+
 // ---- Formatters
 
 void write_text(const render_outcome& run, std::ostream& out) {
@@ -171,7 +181,7 @@ void write_text(const render_outcome& run, std::ostream& out) {
   if (r.oversample_chosen) {
     const model::oversampling_choice& c = r.choice;
     if (c.probes.empty()) {
-      out << "  rate    auto: " << r.oversample << "x (the input is silent)\n";
+      out << "  rate    auto: " << r.oversample << "x (the input is silent or below the floor)\n";
     } else {
       out << "  rate    auto: " << r.oversample << "x, the lowest at which a " << format_si(c.probe_hz, "Hz", 3)
           << " sine at " << volts_text(c.probe_vpk) << " peak (the input's peak\n"
@@ -200,9 +210,9 @@ void write_text(const render_outcome& run, std::ostream& out) {
   t.add({"file", "applied gain", "0 dBFS =", "loudness", "sample peak", "true peak", "clipped"});
   for (const model::output_report& x : r.outputs) {
     const double gain_db = base::db_from_ratio(x.scale * (x.is_dry ? run.input_peak_v : 1.0));
-    t.add({x.path.string() + (x.is_dry ? " (dry)" : ""), db_text(gain_db, "dB"), volts_text(1.0 / x.scale),
-           lufs_text(x.loudness_lufs), dbfs_text(x.sample_peak, "dBFS"), dbfs_text(x.true_peak, "dBTP"),
-           std::to_string(x.clipped_samples)});
+    t.add({x.path.string() + (x.is_dry ? " (dry)" : ""), x.silent ? std::string("none") : db_text(gain_db, "dB"),
+           x.silent ? std::string("-") : volts_text(1.0 / x.scale), lufs_text(x.loudness_lufs),
+           dbfs_text(x.sample_peak, "dBFS"), dbfs_text(x.true_peak, "dBTP"), std::to_string(x.clipped_samples)});
   }
   t.write(out);
   out << "  applied gain: from volts at the load to full scale (0 dB: 1 V reads 0 dBFS); for the dry\n"
@@ -215,6 +225,15 @@ void write_text(const render_outcome& run, std::ostream& out) {
     out << "  ! " << line << '\n';
   };
   for (const model::output_report& x : r.outputs) {
+    if (x.silent)
+      note(x.path.string() + " is written as silence: " +
+           (x.input_below_floor ? "the input peaks at " + volts_text(r.input_peak_v) + " at the generator"
+                                : "the " + std::string(x.is_dry ? "input" : "stage's output") + " peaks at " + volts_text(x.peak_v)) +
+           ",\n    not above the floor of " + volts_text(r.floor_v) +
+           " (the engine's accepted error a sample): normalising would lift only numerical residue");
+    else if (!x.silent_channels.empty())
+      note(x.path.string() + ": " + channel_list(x.silent_channels) +
+           " below the floor of " + volts_text(r.floor_v) + " (the engine's accepted error a sample),\n    written as silence");
     if (x.engine.failed > 0)
       note(x.path.string() + ": " + std::to_string(x.engine.failed) + " of " + std::to_string(x.engine.samples) +
            " engine samples did not converge (each held its previous solution); try a higher --oversample");
@@ -222,7 +241,7 @@ void write_text(const render_outcome& run, std::ostream& out) {
       note(x.path.string() + ": " + std::to_string(x.clipped_samples) + " samples beyond full scale" +
            (dsp::quantisation_bits(r.format) > 0 ? " were clipped" : " (kept in the float file; a player will clip them)") +
            "; raise --output-peak or leave it out to normalise");
-    if (!x.matched)
+    if (!x.matched && !x.silent)
       note(x.path.string() + " is silent (no 400 ms above -70 LUFS) and was left out of the loudness matching");
     if (x.true_peak > 1.0)
       note(x.path.string() + ": true peak above 0 dBTP; a converter may clip between samples (try --normalize -2dBFS)");
@@ -258,7 +277,10 @@ void write_json(const render_outcome& run, std::ostream& out) {
                      {"name", x.name},
                      {"dry", x.is_dry},
                      {"scale", x.scale},
-                     {"full_scale_v", 1.0 / x.scale},
+                     {"full_scale_v", x.scale > 0.0 ? nlohmann::json(1.0 / x.scale) : nlohmann::json(nullptr)},
+                     {"silent", x.silent},
+                     {"silent_channels", x.silent_channels},
+                     {"peak_v", x.peak_v},
                      {"loudness_lufs", number_or_null(x.loudness_lufs)},
                      {"sample_peak_dbfs", level_json(x.sample_peak)},
                      {"true_peak_dbtp", level_json(x.true_peak)},
@@ -289,6 +311,8 @@ void write_json(const render_outcome& run, std::ostream& out) {
                          {"files_beside", r.pipelined},
                          {"level", run.fixed_level ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
                          {"target_lufs", r.outputs.size() > 1 ? number_or_null(r.target_lufs) : nlohmann::json(nullptr)},
+                         {"silence_floor_v", r.floor_v},
+                         {"input_peak_v", r.input_peak_v},
                          {"outputs", outputs},
                          {"warnings", run.warnings},
                          {"seconds", r.seconds},

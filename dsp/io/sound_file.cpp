@@ -487,7 +487,7 @@ void sound_writer::write(std::span<const double> x) {
     codes_.resize(x.size());
     for (std::size_t i = 0; i < x.size(); ++i) {
       double v = x[i] * scale;
-      if (settings_.tpdf_dither) v += uniform() + uniform();
+      if (settings_.tpdf_dither && v != 0.0) v += uniform() + uniform();  // digital silence stays silent
       double q = std::nearbyint(v);
       if (q < lo || q > hi) {
         q = std::clamp(q, lo, hi);

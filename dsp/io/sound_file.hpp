@@ -23,6 +23,8 @@
 // noise of power step^2/4 instead of distortion (Lipshitz, Wannamaker & Vanderkooy,
 // "Quantization and dither: a theoretical survey", JAES 40(5), 1992), at most 1.5 steps.
 // The dither sequence is deterministic (seeded), so the same call writes the same file.
+// An exact zero is written as code 0 without dither: digital silence (a channel the caller
+// writes as zeros) stays silent.
 // Float files store the values exactly as float (rounding to 24 significant bits) and
 // are never clipped. A non-finite sample given to write() is a caller bug (internal_error).
 //

@@ -12,6 +12,7 @@
 #include "dsp/loudness.hpp"
 #include "dsp/io/sample_spool.hpp"
 #include "base/units.hpp"
+#include "model/engine/dk_acceptance.hpp"
 
 namespace pinchoff::model {
 namespace fs = std::filesystem;
@@ -96,7 +97,7 @@ std::vector<double> loudness_matched_scales(std::span<const double> loudness_luf
   std::vector<double> scales(peak.size());
   for (std::size_t i = 0; i < peak.size(); ++i) {
     if (std::isfinite(loudness_lufs[i]) && peak[i] > 0.0) scales[i] = base::ratio_from_db(target_lufs - loudness_lufs[i]);
-    else scales[i] = peak[i] > 0.0 ? ceiling / peak[i] : 1.0;
+    else scales[i] = peak[i] > 0.0 ? ceiling / peak[i] : 0.0;
   }
   return scales;
 }
@@ -116,14 +117,23 @@ void check_stop(const render_control& c) {
   if (c.stop && c.stop->load(std::memory_order_relaxed)) throw interrupted("interrupted; no output written");
 }
 
-// Scales `values` in place and counts the samples a float file keeps beyond full scale.
-long long scale_and_count(std::span<double> values, double scale) {
+// Scales interleaved `values` in place, channel c by gains[c], and counts the samples a
+// float file keeps beyond full scale.
+long long scale_and_count(std::span<double> values, std::span<const double> gains) {
   long long beyond = 0;
-  for (double& v : values) {
-    v *= scale;
+  const std::size_t ch = gains.size();
+  for (std::size_t i = 0; i < values.size(); ++i) {
+    double& v = values[i];
+    v *= gains[i % ch];
     beyond += std::abs(v) > 1.0;
   }
   return beyond;
+}
+
+// Raises peaks[c] to the largest |value| of channel c in interleaved `values`.
+void track_peaks(std::span<const double> values, std::vector<double>& peaks) {
+  const std::size_t ch = peaks.size();
+  for (std::size_t i = 0; i < values.size(); ++i) peaks[i % ch] = std::max(peaks[i % ch], std::abs(values[i]));
 }
 
 std::size_t output_count(const render_job& job) { return job.stages.size() + (job.dry_output ? 1 : 0); }
@@ -192,7 +202,10 @@ void choose_factor(const render_job& job, const render_control& control, render_
     rep.survey = survey_input(job.input, control.stop);
     std::vector<stage_ref> refs;
     for (const render_stage& st : job.stages) refs.push_back({&st.net, &st.op});
-    rep.choice = choose_oversampling(refs, rep.survey.sample_peak * job.input_peak_v, rep.survey.edge_hz, rep.input.rate_hz);
+    // An input below the silence floor is rendered as silence: no probe for it.
+    const double drive_vpk = rep.survey.sample_peak * job.input_peak_v;
+    rep.choice = choose_oversampling(refs, drive_vpk > render_floor_v(job.engine) ? drive_vpk : 0.0, rep.survey.edge_hz,
+                                     rep.input.rate_hz);
     rep.oversample = rep.choice.factor;
   }
   rep.engine_rate_hz = rep.input.rate_hz * rep.oversample;
@@ -212,6 +225,9 @@ struct render_plan {
   std::vector<channel_renderer> units;
   std::vector<dsp::sample_spool> spools;        // two passes: the volts of each stage
   std::vector<dsp::loudness_meter> meters;      // pass 1: on volts (two passes) or on the written values (fixed)
+  std::vector<double> input_peak_v;             // per input channel, volts at the generator
+  std::vector<std::vector<double>> peak_v;      // per output and channel, pass-1 volts
+  std::vector<std::vector<double>> gains;       // per output and channel: the scale, or 0 below the floor
   // Progress: pass 1 costs a frame per unit-frame of engine work; a pass-2 frame of one
   // output (read, scale, write) is far cheaper (about 1/20 of an 8x engine frame).
   double total_frames{}, pass2_weight{}, total_work{};
@@ -267,6 +283,9 @@ render_plan plan_render(const render_job& job, const render_control& control, cl
   if (p.two_pass)
     for (std::size_t s = 0; s < p.n_stages; ++s) p.spools.push_back(dsp::sample_spool::create(job.stages[s].output));
   for (std::size_t i = 0; i < p.n_outputs; ++i) p.meters.emplace_back(p.info.channels, p.info.rate_hz);
+  p.input_peak_v.assign(p.ch, 0.0);
+  p.peak_v.assign(p.n_outputs, std::vector<double>(p.ch, 0.0));
+  p.gains.assign(p.n_outputs, std::vector<double>(p.ch, 1.0 / job.full_scale_v));
 
   rep.outputs.resize(p.n_outputs);
   for (std::size_t i = 0; i < p.n_outputs; ++i) {
@@ -305,11 +324,12 @@ void store_block(render_plan& p, const unit_outputs& set, std::vector<double>& s
       for (std::size_t k = 0; k < m; ++k) stage_frames[k * ch + c] = o[k];
     }
     const std::span<double> v = std::span<double>(stage_frames).first(m * ch);
+    track_peaks(v, p.peak_v[s]);
     if (p.two_pass) {
       p.meters[s].add(v);
       p.spools[s].write(v);
     } else {
-      rep.outputs[s].clipped_samples += scale_and_count(v, p.fixed_scale);
+      rep.outputs[s].clipped_samples += scale_and_count(v, p.gains[s]);
       p.meters[s].add(v);
       p.writers[s].write(v);
     }
@@ -338,7 +358,10 @@ void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
     const std::size_t n = reader.read(frames);
     if (n > 0) {
       for (std::size_t k = 0; k < n; ++k)
-        for (std::size_t c = 0; c < ch; ++c) in[c][k] = frames[k * ch + c] * job.input_peak_v;
+        for (std::size_t c = 0; c < ch; ++c) {
+          in[c][k] = frames[k * ch + c] * job.input_peak_v;
+          p.input_peak_v[c] = std::max(p.input_peak_v[c], std::abs(in[c][k]));
+        }
       if (job.dry_output) {
         for (std::size_t i = 0; i < n * ch; ++i) dry_frames[i] = frames[i] * job.input_peak_v;
         p.meters[p.n_stages].add(std::span<const double>(dry_frames).first(n * ch));
@@ -367,21 +390,36 @@ void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
   }
   for (std::size_t s = 0; s < p.n_stages; ++s)
     for (std::size_t c = 0; c < ch; ++c) rep.outputs[s].engine += p.units[s * ch + c].engine_stats();
+  if (job.dry_output) p.peak_v[p.n_stages] = p.input_peak_v;
 }
 
 // ---- Phase: the scales. Fixed: the job's. Normalised: each output's peak at the ceiling,
 // or, matching loudness, the common loudness no peak exceeds the ceiling at.
-void decide_scales(const render_plan& p, render_report& rep) {
+// Channels below the silence floor (render.hpp) take no part and are written as zeros.
+void decide_scales(render_plan& p, render_report& rep) {
   const render_job& job = *p.job;
+  rep.floor_v = render_floor_v(job.engine);
+  rep.input_peak_v = *std::max_element(p.input_peak_v.begin(), p.input_peak_v.end());
+  for (std::size_t i = 0; i < p.n_outputs; ++i)
+    rep.outputs[i].peak_v = *std::max_element(p.peak_v[i].begin(), p.peak_v[i].end());
   if (!p.two_pass) {
     rep.outputs[0].scale = p.fixed_scale;
     return;
   }
   const double ceiling = base::ratio_from_db(job.peak_dbfs);
-  std::vector<double> loud(p.n_outputs), peak(p.n_outputs);
+  std::vector<double> loud(p.n_outputs), peak(p.n_outputs, 0.0);
   for (std::size_t i = 0; i < p.n_outputs; ++i) {
-    loud[i] = p.meters[i].integrated_lufs();
-    peak[i] = p.meters[i].sample_peak();
+    output_report& o = rep.outputs[i];
+    bool input_below = true;
+    for (std::size_t c = 0; c < p.ch; ++c) {
+      const bool in_below = p.input_peak_v[c] <= rep.floor_v;
+      input_below = input_below && in_below;
+      if (in_below || p.peak_v[i][c] <= rep.floor_v) o.silent_channels.push_back(static_cast<int>(c) + 1);
+      else peak[i] = std::max(peak[i], p.peak_v[i][c]);
+    }
+    o.silent = o.silent_channels.size() == p.ch;
+    o.input_below_floor = o.silent && input_below;
+    loud[i] = o.silent ? -std::numeric_limits<double>::infinity() : p.meters[i].integrated_lufs();
   }
   if (job.match_loudness && p.n_outputs > 1) {
     const std::vector<double> scales = loudness_matched_scales(loud, peak, ceiling, rep.target_lufs);
@@ -390,7 +428,11 @@ void decide_scales(const render_plan& p, render_report& rep) {
       rep.outputs[i].matched = std::isfinite(loud[i]) && peak[i] > 0.0;
     }
   } else {
-    for (std::size_t i = 0; i < p.n_outputs; ++i) rep.outputs[i].scale = peak[i] > 0.0 ? ceiling / peak[i] : 1.0;
+    for (std::size_t i = 0; i < p.n_outputs; ++i) rep.outputs[i].scale = peak[i] > 0.0 ? ceiling / peak[i] : 0.0;
+  }
+  for (std::size_t i = 0; i < p.n_outputs; ++i) {
+    std::fill(p.gains[i].begin(), p.gains[i].end(), rep.outputs[i].scale);
+    for (const int c : rep.outputs[i].silent_channels) p.gains[i][static_cast<std::size_t>(c - 1)] = 0.0;
   }
 }
 
@@ -417,7 +459,7 @@ void second_pass(render_plan& p, render_report& rep) {
       }
       if (n == 0) break;
       const std::span<double> v = std::span<double>(buf).first(n * ch);
-      o.clipped_samples += scale_and_count(v, o.scale);
+      o.clipped_samples += scale_and_count(v, p.gains[i]);
       p.writers[i].write(v);
       work += static_cast<double>(n) * per_frame;
       p.report_progress(work, p.total_frames);
@@ -451,6 +493,8 @@ void finish_outputs(render_plan& p, render_report& rep) {
 }
 
 }  // namespace
+
+double render_floor_v(const dk_options& engine) noexcept { return engine.tol_v + detail::rounding_allowance_v; }
 
 render_report render(const render_job& job, const render_control& control) {
   const auto t0 = clock_type::now();
