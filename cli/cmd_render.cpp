@@ -363,6 +363,7 @@ std::vector<model::render_stage> load_stages(const render_options& o, std::ostre
 // missing (`made` removes it again if the run fails), loudness-matched.
 void place_outputs(const render_options& o, model::render_job& job, std::optional<created_folder>& made) {
   // The format decides the names; the input must open to know it.
+  dsp::require_seekable_file(o.input, "render reads its input more than once (survey, passes)");
   const dsp::sound_info info = dsp::sound_reader::open(o.input).info();
   const dsp::sample_format format = job.format ? *job.format : dsp::nearest_sample_format(info);
   const fs::path out_path(o.output);
@@ -389,13 +390,14 @@ void place_outputs(const render_options& o, model::render_job& job, std::optiona
 
 // Calls the model once, with a progress bar on a terminal and Ctrl-C as its stop.
 render_outcome run(const render_options& o, std::ostream& err) {
+  // Ctrl-C from the start: whatever phase it lands in, the run stops at its next check.
+  const interrupt_guard guard;
   render_outcome r;
   model::render_job job = job_from(o);
   job.stages = load_stages(o, err, r.warnings);
   std::optional<created_folder> made;
   place_outputs(o, job, made);
 
-  const interrupt_guard guard;
   progress_bar bar(err, !o.quiet && stderr_is_terminal());
   model::render_control control;
   control.stop = guard.flag();

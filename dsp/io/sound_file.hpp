@@ -109,6 +109,11 @@ class sound_reader {
   std::int64_t position_{0};
 };
 
+/// Throws io_error naming `path` when it is not a regular file (a pipe, a terminal, a
+/// device): for readers that open their input more than once or seek in it; `why` says
+/// what needs that, e.g. "render reads its input twice".
+void require_seekable_file(const std::filesystem::path& path, std::string_view why);
+
 /// One channel (counted from 0) of an interleaved block.
 std::vector<double> channel_of(std::span<const double> interleaved, int channels, int channel);
 /// Every channel of an interleaved block: result[channel][frame].

@@ -113,8 +113,19 @@ namespace {
 
 using clock_type = std::chrono::steady_clock;
 
+// The input's range: the loudness meter's and the writer's top rate (dsp/loudness.hpp,
+// dsp/io/sound_file.hpp), and their channel count.
+constexpr double max_input_rate_hz = 768000.0;
+constexpr int max_input_channels = 64;
+
 void check_stop(const render_control& c) {
   if (c.stop && c.stop->load(std::memory_order_relaxed)) throw interrupted("interrupted; no output written");
+}
+
+// With an SI prefix where one fits (1.00 µV, 2.00 kV), else plain (1e+300 V).
+std::string quantity_text(double v, const char* unit) {
+  const double a = std::fabs(v);
+  return a >= 1e-15 && a < 1e15 ? base::format_si(v, unit) : base::format_number(v) + " " + unit;
 }
 
 // Scales interleaved `values` in place, channel c by gains[c], and counts the samples a
@@ -149,12 +160,20 @@ void check_job(const render_job& job) {
   if (!(job.input_peak_v > 0.0) || !std::isfinite(job.input_peak_v))
     throw setting_error("input_peak_v", "the input's full scale must stand for a level above 0 V, got " +
                                             base::format_number(job.input_peak_v));
+  // Beyond these no audio source or load is met (common practice), and the arithmetic
+  // would run out of range (a full scale of 1e-300 V lifts a volt to 1e300).
+  if (!(job.input_peak_v >= 1e-6 && job.input_peak_v <= 1e3))
+    throw setting_error("input_peak_v", "the input's full scale must stand for 1 µV to 1 kV peak at the generator, got " +
+                                            quantity_text(job.input_peak_v, "V"));
   if (job.oversample < 0 || job.oversample > 64 || (job.oversample & (job.oversample - 1)) != 0)
     throw setting_error("oversampling",
                         "oversampling must be 1, 2, 4, 8, 16, 32, 64 or auto, got " + std::to_string(job.oversample));
   if (job.level == output_level::fixed && !(job.full_scale_v > 0.0 && std::isfinite(job.full_scale_v)))
     throw setting_error("full_scale_v", "the full-scale level at the load must be above 0 V, got " +
                                             base::format_number(job.full_scale_v));
+  if (job.level == output_level::fixed && !(job.full_scale_v >= 1e-6 && job.full_scale_v <= 1e4))
+    throw setting_error("full_scale_v", "the full-scale level at the load must be 1 µV to 10 kV peak, got " +
+                                            quantity_text(job.full_scale_v, "V"));
   if (!(job.peak_dbfs <= 0.0))
     throw setting_error("peak_dbfs", "a peak of " + base::format_number(job.peak_dbfs) +
                                          " dBFS is above full scale (the peak must be -100 to 0 dBFS)");
@@ -182,8 +201,10 @@ void check_job(const render_job& job) {
   }
 }
 
-// ---- Phase: open the input, refusing one that holds no audio or is sampled too slowly.
+// ---- Phase: open the input, refusing one that is not a file (it is read more than once),
+// holds no audio, or whose rate or channels lie outside what render takes.
 dsp::sound_reader open_input(const fs::path& input) {
+  dsp::require_seekable_file(input, "render reads its input more than once (survey, passes)");
   dsp::sound_reader reader = dsp::sound_reader::open(input);
   const dsp::sound_info& info = reader.info();
   if (info.frames <= 0) throw input_error(quoted_path(input) + " holds no audio");
@@ -191,6 +212,13 @@ dsp::sound_reader open_input(const fs::path& input) {
     throw input_error(quoted_path(input) + " is at " + base::format_number(info.rate_hz, 6) +
                       " Hz; render needs 44.1 kHz or more (the oversampler keeps 0 to 20 kHz flat and free of "
                       "aliases, which needs a rate above 40 kHz)");
+  if (info.rate_hz > max_input_rate_hz)
+    throw input_error(quoted_path(input) + " says it is sampled at " + base::format_number(info.rate_hz, 6) +
+                      " Hz; render takes 44.1 to 768 kHz (768 kHz is the highest rate audio converters and the "
+                      "loudness meter take, and 64x of it already runs the engine at 49 MHz): is the header damaged?");
+  if (info.channels > max_input_channels)
+    throw input_error(quoted_path(input) + " has " + std::to_string(info.channels) + " channels; render takes 1 to " +
+                      std::to_string(max_input_channels) + " (one engine per channel and stage)");
   return reader;
 }
 
@@ -200,12 +228,13 @@ void choose_factor(const render_job& job, const render_control& control, render_
   if (job.oversample == 0) {
     rep.oversample_chosen = true;
     rep.survey = survey_input(job.input, control.stop);
+    check_stop(control);
     std::vector<stage_ref> refs;
     for (const render_stage& st : job.stages) refs.push_back({&st.net, &st.op});
     // An input below the silence floor is rendered as silence: no probe for it.
     const double drive_vpk = rep.survey.sample_peak * job.input_peak_v;
     rep.choice = choose_oversampling(refs, drive_vpk > render_floor_v(job.engine) ? drive_vpk : 0.0, rep.survey.edge_hz,
-                                     rep.input.rate_hz);
+                                     rep.input.rate_hz, -80.0, control.stop);
     rep.oversample = rep.choice.factor;
   }
   rep.engine_rate_hz = rep.input.rate_hz * rep.oversample;
@@ -498,6 +527,7 @@ double render_floor_v(const dk_options& engine) noexcept { return engine.tol_v +
 
 render_report render(const render_job& job, const render_control& control) {
   const auto t0 = clock_type::now();
+  check_stop(control);
   check_job(job);
   dsp::sound_reader reader = open_input(job.input);
   render_report rep;

@@ -121,12 +121,12 @@ struct render_job {
   std::filesystem::path input;
   std::vector<render_stage> stages;                 ///< at least one
   std::optional<std::filesystem::path> dry_output;  ///< also write the input itself
-  double input_peak_v{1.0};                         ///< generator volts for full scale, > 0
+  double input_peak_v{1.0};                         ///< generator volts for full scale, 1 µV to 1 kV
   /// 1, 2, 4, 8, 16, 32 or 64; 0: chosen from the input (model/audio/oversampling_choice.hpp)
   int oversample{8};
   output_level level{output_level::normalize};
   double peak_dbfs{-1.0};                           ///< normalize / match: peak ceiling, <= 0
-  double full_scale_v{1.0};                         ///< fixed: volts at the load for 0 dBFS, > 0
+  double full_scale_v{1.0};                         ///< fixed: volts at the load for 0 dBFS, 1 µV to 10 kV
   bool match_loudness{false};                       ///< several outputs: same integrated loudness
   std::optional<dsp::sample_format> format;         ///< default: nearest to the input's
   bool overwrite{false};
