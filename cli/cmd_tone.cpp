@@ -47,7 +47,8 @@ struct tone_options {
 };
 
 // The fields dsp::tone_generator names in its errors, and the options that set them.
-const std::map<std::string, std::string, std::less<>> tone_options_of_fields{{"fade_seconds", "--fade-ms"}};
+const std::map<std::string, std::string, std::less<>> tone_options_of_fields{{"fade_seconds", "--fade-ms"},
+                                                                            {"rate_hz", "--rate"}};
 
 std::string trimmed(std::string_view t) {
   while (!t.empty() && std::isspace(static_cast<unsigned char>(t.front()))) t.remove_prefix(1);

@@ -28,6 +28,11 @@ std::vector<tone_step> level_staircase(double from_dbfs, double to_dbfs, double 
 }
 
 namespace {
+// With an SI prefix where one fits (1.00 ms, 800 kHz), else plain (1e+300 s).
+std::string quantity_text(double v, const char* unit) {
+  const double a = std::fabs(v);
+  return a >= 1e-15 && a < 1e15 ? base::format_si(v, unit) : base::format_number(v) + " " + unit;
+}
 std::int64_t frames_of(double seconds, double rate_hz) { return static_cast<std::int64_t>(std::llround(seconds * rate_hz)); }
 }  // namespace
 
@@ -39,13 +44,22 @@ std::int64_t tone_frames(const tone_plan& plan) {
 
 tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
   if (!(plan.rate_hz > 0.0) || !std::isfinite(plan.rate_hz))
-    throw input_error("sample rate must be positive, got " + base::format_number(plan.rate_hz));
+    throw setting_error("rate_hz", "sample rate must be positive, got " + base::format_number(plan.rate_hz));
+  if (!(plan.rate_hz >= 1.0 && plan.rate_hz <= max_tone_rate_hz))
+    throw setting_error("rate_hz", "sample rate must be 1 Hz to 768 kHz (what an audio file here holds), got " +
+                                       quantity_text(plan.rate_hz, "Hz"));
   if (!(plan.frequency_hz > 0.0) || !(plan.frequency_hz < plan.rate_hz / 2))
     throw input_error("tone frequency " + base::format_si(plan.frequency_hz, "Hz") + " must lie between 0 and half the sample rate (" +
                       base::format_si(plan.rate_hz / 2, "Hz") + ")");
   if (plan.steps.empty()) throw input_error("a tone needs at least one level");
   if (!(plan.fade_seconds >= 0.0) || !std::isfinite(plan.fade_seconds))
     throw setting_error("fade_seconds", "fade time must be zero or positive, got " + base::format_si(plan.fade_seconds, "s"));
+  // A fade lasts at most half a step, and a step at most max_tone_seconds; refused here
+  // before it is counted in frames (1e300 s does not fit in any count).
+  if (plan.fade_seconds > max_tone_seconds / 2)
+    throw setting_error("fade_seconds", "a fade of " + quantity_text(plan.fade_seconds, "s") +
+                                            " is longer than half the longest tone (" +
+                                            base::format_number(max_tone_seconds) + " s, one hour)");
   fade_frames_ = frames_of(plan.fade_seconds, plan.rate_hz);
   starts_.push_back(0);
   for (std::size_t i = 0; i < plan.steps.size(); ++i) {
