@@ -7,6 +7,7 @@
 // row here.
 #include <doctest/doctest.h>
 
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cstdint>
@@ -166,6 +167,29 @@ struct fixtures {
     write(f("other/stage.toml"), good_stage);
     write(f("second.toml"), good_stage);
     write(f("h-vd.svg"), good_stage);  // a stage file that a histogram name would match
+
+    // ---- audio inputs that lie or cannot be read twice (render, measure)
+    {
+      // 16-bit PCM WAV headers of our own: a rate, a channel count and frames of one code.
+      auto wav = [](std::uint32_t rate, std::uint16_t channels, std::uint32_t frames, std::int16_t code) {
+        std::string h = "RIFF";
+        auto le = [&h](std::uint32_t v, int bytes) {
+          for (int k = 0; k < bytes; ++k) h.push_back(static_cast<char>((v >> (8 * k)) & 0xffu));
+        };
+        const std::uint32_t data = frames * channels * 2u;
+        le(36 + data, 4);
+        h += "WAVEfmt ";
+        le(16, 4), le(1, 2), le(channels, 2), le(rate, 4), le(rate * channels * 2u, 4), le(channels * 2u, 2), le(16, 2);
+        h += "data";
+        le(data, 4);
+        for (std::uint32_t i = 0; i < frames * channels; ++i) le(static_cast<std::uint16_t>(code), 2);
+        return h;
+      };
+      write(f("lying-rate.wav"), wav(2000000000u, 1, 48000, 0));  // 2 GHz over 48,000 frames
+      write(f("channels65.wav"), wav(48000, 65, 480, 0));
+      write(f("dc-only.wav"), wav(48000, 1, 48000, 16384));       // half scale, no tone
+      REQUIRE(::mkfifo(f("pipe.wav").c_str(), 0600) == 0);
+    }
   }
 };
 
@@ -411,6 +435,34 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"several stages into a folder whose parent does not exist", {"render", "@stage.toml", "@second.toml", "--input", "@rec48.wav", "--output", "@nofolder/cmp"}, {"@nofolder/cmp", "does not exist"}},
       {"two stage files of the same name", {"render", "@stage.toml", "@other/stage.toml", "--input", "@rec48.wav", "--output", "@cmp"}, {"two outputs would both be written", "stage.wav"}},
       {"a stage file with a misspelt key", {"render", "@typo.toml", "--input", "@rec48.wav", "--output", "@o.wav"}, {"@typo.toml:13:1:", "unknown key 'resistr'"}},
+      // ---- audio inputs that lie or cannot be read twice; numbers out of every range (render, tone, measure)
+      {"render input whose header claims 2 GHz", {"render", "@stage.toml", "--input", "@lying-rate.wav", "--output", "@o.wav"}, {"@lying-rate.wav", "2000000000 Hz", "44.1 to 768 kHz", "header damaged"}},
+      {"render input with 65 channels", {"render", "@stage.toml", "--input", "@channels65.wav", "--output", "@o.wav"}, {"@channels65.wav", "65 channels", "1 to 64"}},
+      {"render input that is a pipe", {"render", "@stage.toml", "--input", "@pipe.wav", "--output", "@o.wav"}, {"@pipe.wav", "it is a pipe", "more than once", "file first"}},
+      {"render input that is a device", {"render", "@stage.toml", "--input", "/dev/zero", "--output", "@o.wav"}, {"/dev/zero", "it is a device"}},
+      {"several outputs from a pipe", {"render", "@stage.toml", "--input", "@pipe.wav", "--output", "@cmp", "--dry"}, {"@pipe.wav", "it is a pipe"}},
+      {"--input-peak of 1e300 V", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "1e300V"}, {"--input-peak", "1 µV to 1 kV", "1.00e+300 V"}},
+      {"--input-peak below a microvolt", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "1nV"}, {"--input-peak", "1 µV to 1 kV", "1.00 nV"}},
+      {"--output-peak of 1e-300 V", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--output-peak", "1e-300V"}, {"--output-peak", "1 µV to 10 kV", "1.00e-300 V"}},
+      {"--output-peak of a megavolt", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--output-peak", "1MV"}, {"--output-peak", "1 µV to 10 kV", "1.00 MV"}},
+      {"--oversample past an int", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--oversample", "99999999999999999999"}, {"--oversample", "whole number or auto"}},
+      {"tone --fade-ms of 1e300", {"tone", "--fade-ms", "1e300", "@t.wav"}, {"--fade-ms", "longer than half the longest tone", "one hour"}},
+      {"tone --fade-ms of half an hour and more", {"tone", "--fade-ms", "2000000", "@t.wav"}, {"--fade-ms", "2.00 ks", "longer than half"}},
+      {"tone --rate of 1e300", {"tone", "--rate", "1e300", "@t.wav"}, {"--rate", "1 Hz to 768 kHz", "1.00e+300 Hz"}},
+      {"tone --rate above 768 kHz", {"tone", "--rate", "800000", "@t.wav"}, {"--rate", "1 Hz to 768 kHz", "800 kHz"}},
+      {"tone --rate below 1 Hz", {"tone", "--rate", "0.5", "--freq", "0.1", "@t.wav"}, {"--rate", "1 Hz to 768 kHz", "500 mHz"}},
+      {"tone --rate NaN", {"tone", "--rate", "nan", "@t.wav"}, {"--rate", "sample rate must be positive"}},
+      {"tone --seconds infinite", {"tone", "--seconds", "inf", "@t.wav"}, {"positive time", "inf"}},
+      {"tone --channels past an int", {"tone", "--channels", "99999999999", "@t.wav"}, {"--channels"}},
+      {"measure --start of 1e15 s", {"measure", "@rec.wav", "--start", "1e15"}, {"--start", "beyond the end", "@rec.wav"}},
+      {"measure --start infinite", {"measure", "@rec.wav", "--start", "inf"}, {"--start", "beyond the end"}},
+      {"measure --start NaN", {"measure", "@rec.wav", "--start", "nan"}, {"must not be negative"}},
+      {"measure --duration NaN", {"measure", "@rec.wav", "--duration", "nan"}, {"must not be negative"}},
+      {"measure --harmonics past an int", {"measure", "@rec.wav", "--harmonics", "99999999999"}, {"--harmonics"}},
+      {"measure --channel past an int", {"measure", "@rec.wav", "--channel", "99999999999"}, {"--channel"}},
+      {"measure --channel 0", {"measure", "@rec.wav", "--channel", "0"}, {"@rec.wav", "--channel 0 does not exist"}},
+      {"measure a file of DC alone", {"measure", "@dc-only.wav"}, {"@dc-only.wav", "no tone found", "DC only"}},
+      {"measure a pipe", {"measure", "@pipe.wav"}, {"@pipe.wav", "it is a pipe", "twice"}},
   };
 
   REQUIRE(rows.size() >= 180);
