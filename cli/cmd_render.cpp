@@ -421,7 +421,7 @@ CLI::App* setup(CLI::App& app, render_options& o) {
   sub->add_option("STAGE", o.stages, "Stage files (TOML); several are rendered side by side, loudness-matched")
       ->required()
       ->expected(1, -1);
-  sub->add_option("--input", o.input, "Recording to play into the stage (WAV, FLAC, AIFF; 44.1 kHz or more)")
+  sub->add_option("--input", o.input, "Recording to play into the stage (WAV, FLAC, AIFF; 44.1 to 768 kHz; a file, not a pipe)")
       ->required()
       ->type_name("IN");
   sub->add_option("--output", o.output,
@@ -467,7 +467,9 @@ CLI::App* setup(CLI::App& app, render_options& o) {
       "Output level: normalised so the peak is at --normalize (-1 dBFS), and the applied gain is\n"
       "printed; --output-peak fixes it instead (the same stage always sounds as loud). Several\n"
       "stages (and --dry) come out at one integrated loudness (ITU-R BS.1770), so that the\n"
-      "comparison is not won by the louder stage. Each channel runs through its own copy of\n"
+      "comparison is not won by the louder stage. A channel whose input or stage output peaks\n"
+      "no higher than the engine's accepted error a sample (10.1 nV) is written as silence, never\n"
+      "lifted: an all-zero input gives all-zero files. Each channel runs through its own copy of\n"
       "the stage, starting at its DC operating point; the output keeps the input's length, rate,\n"
       "channels and sample format (unless --format), and is aligned with it sample for sample.\n"
       "Nothing is written until the output is complete: an existing file is kept (unless\n"
