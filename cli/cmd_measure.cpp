@@ -176,6 +176,9 @@ measure_report analyse(const measure_options& o) {
   r.band_high_hz = s.band_high_hz = std::min(s.band_high_hz, fs / 2);
   if (s.approx_fundamental_hz >= fs / 2)
     throw input_error("--freq " + o.freq_text + " lies above half the file's sample rate (" + format_si(fs / 2, "Hz") + ")");
+  if (o.freq_text != "auto" && s.approx_fundamental_hz < s.band_low_hz)
+    throw input_error("--freq " + o.freq_text + " lies below the measurement band, which starts at " +
+                      format_si(s.band_low_hz, "Hz") + " (AES17)");
   if (r.info.frames <= 0) throw input_error("'" + o.path + "' holds no audio (a header and no frames)");
   // In seconds first: a time far beyond the file does not fit in a count of frames.
   const double frames_d = static_cast<double>(r.info.frames);

@@ -48,6 +48,9 @@ tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
   if (!(plan.rate_hz >= 1.0 && plan.rate_hz <= max_tone_rate_hz))
     throw setting_error("rate_hz", "sample rate must be 1 Hz to 768 kHz (what an audio file here holds), got " +
                                        quantity_text(plan.rate_hz, "Hz"));
+  if (!(plan.frequency_hz >= min_tone_hz))
+    throw input_error("tone frequency " + quantity_text(plan.frequency_hz, "Hz") +
+                      " is below 1 Hz: not an audio test tone (the audio band starts at 20 Hz)");
   if (!(plan.frequency_hz > 0.0) || !(plan.frequency_hz < plan.rate_hz / 2))
     throw input_error("tone frequency " + base::format_si(plan.frequency_hz, "Hz") + " must lie between 0 and half the sample rate (" +
                       base::format_si(plan.rate_hz / 2, "Hz") + ")");
@@ -66,6 +69,9 @@ tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
     const tone_step& s = plan.steps[i];
     if (!(s.level_dbfs <= 0.0))
       throw input_error("level " + base::format_number(s.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
+    if (s.level_dbfs < min_tone_dbfs)
+      throw input_error("level " + base::format_number(s.level_dbfs) + " dBFS is below " + base::format_number(min_tone_dbfs) +
+                        " dBFS, far under any converter's noise (a 24-bit step is -144 dBFS)");
     if (!(s.seconds > 0.0) || !std::isfinite(s.seconds))
       throw input_error("a step must last a positive time, got " + base::format_number(s.seconds) + " s");
     if (s.seconds > max_tone_seconds)

@@ -41,6 +41,10 @@ std::vector<tone_step> level_staircase(double from_dbfs, double to_dbfs, double 
 /// The longest plan a tone_generator takes: one hour. Longer is taken for a slip of the
 /// keyboard (a length of 1e12 s would write until the disk is full).
 inline constexpr double max_tone_seconds = 3600.0;
+/// The lowest frequency a tone is made at (common practice: the audio band starts at 20 Hz).
+inline constexpr double min_tone_hz = 1.0;
+/// The quietest level a tone is made at: far under any converter's noise (common practice).
+inline constexpr double min_tone_dbfs = -200.0;
 /// The highest rate a tone is made at: the top rate of the file writer (dsp/io/sound_file.hpp).
 inline constexpr double max_tone_rate_hz = 768000.0;
 

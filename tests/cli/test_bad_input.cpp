@@ -453,6 +453,9 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"tone --rate below 1 Hz", {"tone", "--rate", "0.5", "--freq", "0.1", "@t.wav"}, {"--rate", "1 Hz to 768 kHz", "500 mHz"}},
       {"tone --rate NaN", {"tone", "--rate", "nan", "@t.wav"}, {"--rate", "sample rate must be positive"}},
       {"tone --seconds infinite", {"tone", "--seconds", "inf", "@t.wav"}, {"positive time", "inf"}},
+      {"tone --level of -1e300 dBFS", {"tone", "--level", "-1e300", "@t.wav"}, {"below -200 dBFS", "converter's noise"}},
+      {"tone --steps down to -1e300 dBFS", {"tone", "--steps", "-1e300..-1e300:1", "@t.wav"}, {"below -200 dBFS"}},
+      {"tone --freq of 1e-300 Hz", {"tone", "--freq", "1e-300", "@t.wav"}, {"1.00e-300 Hz", "below 1 Hz"}},
       {"tone --channels past an int", {"tone", "--channels", "99999999999", "@t.wav"}, {"--channels"}},
       {"measure --start of 1e15 s", {"measure", "@rec.wav", "--start", "1e15"}, {"--start", "beyond the end", "@rec.wav"}},
       {"measure --start infinite", {"measure", "@rec.wav", "--start", "inf"}, {"--start", "beyond the end"}},
@@ -461,6 +464,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure --harmonics past an int", {"measure", "@rec.wav", "--harmonics", "99999999999"}, {"--harmonics"}},
       {"measure --channel past an int", {"measure", "@rec.wav", "--channel", "99999999999"}, {"--channel"}},
       {"measure --channel 0", {"measure", "@rec.wav", "--channel", "0"}, {"@rec.wav", "--channel 0 does not exist"}},
+      {"measure --freq below the band", {"measure", "@rec.wav", "--freq", "1e-3"}, {"--freq 1e-3", "below the measurement band", "20.0 Hz"}},
       {"measure a file of DC alone", {"measure", "@dc-only.wav"}, {"@dc-only.wav", "no tone found", "DC only"}},
       {"measure a pipe", {"measure", "@pipe.wav"}, {"@pipe.wav", "it is a pipe", "twice"}},
   };
