@@ -48,6 +48,9 @@ tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
   if (!(plan.rate_hz >= 1.0 && plan.rate_hz <= max_tone_rate_hz))
     throw setting_error("rate_hz", "sample rate must be 1 Hz to 768 kHz (what an audio file here holds), got " +
                                        quantity_text(plan.rate_hz, "Hz"));
+  if (plan.rate_hz != std::floor(plan.rate_hz))
+    throw setting_error("rate_hz", "sample rate must be a whole number of hertz (an audio file's header holds no "
+                                   "fraction), got " + base::format_number(plan.rate_hz, 9));
   if (!(plan.frequency_hz >= min_tone_hz))
     throw input_error("tone frequency " + quantity_text(plan.frequency_hz, "Hz") +
                       " is below 1 Hz: not an audio test tone (the audio band starts at 20 Hz)");

@@ -333,9 +333,9 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"steps too short for their fades", {"tone", "--seconds", "0.01", "@t.wav"}, {"too short for fades"}},
       {"negative fade", {"tone", "--fade-ms", "-1", "@t.wav"}, {"--fade-ms", "zero or positive", "got -1.00 ms"}},
       {"sample rate of 0", {"tone", "--rate", "0", "@t.wav"}, {"sample rate must be positive"}},
-      {"sample rate that is not whole", {"tone", "--rate", "44100.5", "@t.wav"}, {"whole number of hertz", "44100.5"}},
-      {"no channels", {"tone", "--channels", "0", "@t.wav"}, {"channel count must be 1 to 64", "got 0"}},
-      {"too many channels", {"tone", "--channels", "65", "@t.wav"}, {"channel count must be 1 to 64", "got 65"}},
+      {"sample rate that is not whole", {"tone", "--rate", "44100.5", "@t.wav"}, {"--rate", "whole number of hertz", "44100.5"}},
+      {"no channels", {"tone", "--channels", "0", "@t.wav"}, {"--channels", "channel count must be 1 to 64", "@t.wav", "got 0"}},
+      {"too many channels", {"tone", "--channels", "65", "@t.wav"}, {"--channels", "channel count must be 1 to 64", "@t.wav", "got 65"}},
       {"unknown format", {"tone", "--format", "mp3", "@t.wav"}, {"'mp3'", "wav16, wav24"}},
       // ---- measure: the recording
       {"empty audio file", {"measure", "@empty.wav"}, {"@empty.wav", "empty"}},
