@@ -7,6 +7,7 @@
 // against the figure the code computes.
 #include <algorithm>
 #include <cmath>
+#include <cstdint>
 #include <filesystem>
 #include <fstream>
 #include <limits>
@@ -76,6 +77,18 @@ std::vector<double> sine(double f_hz, double amplitude, std::size_t n) {
   return x;
 }
 
+// Triangular noise of peak `amplitude`: the sum of two uniform values of +-amplitude/2.
+std::vector<double> dither(double amplitude, std::size_t n) {
+  std::uint64_t state = 12345;
+  auto uniform = [&state] {  // [-1/2, 1/2), Knuth's MMIX constants
+    state = state * 6364136223846793005ull + 1442695040888963407ull;
+    return static_cast<double>(state >> 11) / 9007199254740992.0 - 0.5;
+  };
+  std::vector<double> x(n);
+  for (double& v : x) v = amplitude * (uniform() + uniform());
+  return x;
+}
+
 double peak_of(const std::vector<double>& x, std::size_t channels = 1, std::size_t channel = 0) {
   double p = 0.0;
   for (std::size_t i = channel; i < x.size(); i += channels) p = std::max(p, std::abs(x[i]));
@@ -110,6 +123,8 @@ TEST_CASE("a silent or near-silent input is written as silence, not lifted to fu
       {"all zero, float", std::vector<double>(n, 0.0), dsp::sample_format::wav_float, true},
       // -200 dBFS at 1 V full scale: 100 pV at the generator, a hundredth of the floor.
       {"-200 dBFS tone, float", sine(1000.0, 1e-10, n), dsp::sample_format::wav_float, true},
+      // TPDF dither of +-1e-10 (-200 dBFS peak), from a fixed linear congruential sequence.
+      {"-200 dBFS dither, float", dither(1e-10, n), dsp::sample_format::wav_float, true},
       // Just under and well over the floor (full scale stands for 1 V).
       {"0.9 x the floor", sine(1000.0, 0.9 * documented_floor_v, n), dsp::sample_format::wav_float, true},
       {"100 x the floor", sine(1000.0, 100.0 * documented_floor_v, n), dsp::sample_format::wav_float, false},
