@@ -400,7 +400,10 @@ void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
       input_done = true;
     }
     unit_outputs& now = out[set];
+    // A unit that starts after a stop does nothing: many units a block (stages times
+    // channels) would otherwise delay the stop by the whole block.
     auto work = [&p, &in, &now, ch, n](std::size_t u) {
+      if (p.control->stop && p.control->stop->load(std::memory_order_relaxed)) return;
       now.produced[u] = n > 0 ? p.units[u].process(std::span<const double>(in[u % ch]).first(n), now.samples[u])
                               : p.units[u].finish(now.samples[u]);
     };
@@ -408,11 +411,13 @@ void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
       base::run_beside(n_units, rep.threads, work, [&] {
         if (have_previous) store_block(p, out[1 - set], stage_frames, rep);
       });
+      check_stop(*p.control);
       have_previous = true;
       if (input_done) store_block(p, out[set], stage_frames, rep);
       set = 1 - set;
     } else {
       base::run_parallel(n_units, 1, work);
+      check_stop(*p.control);
       store_block(p, out[set], stage_frames, rep);
     }
     p.report_progress(static_cast<double>(read_frames), static_cast<double>(read_frames));
