@@ -112,6 +112,12 @@ std::optional<prediction> load_against(const measure_options& o) {
   p.overrides = o.overrides;
   p.drive_vpk = option_level_vpk(o.drive_text, "--drive");
   if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
+  // A generator's level, as render's --input-peak: beyond these no audio source is met
+  // (common practice), and the prediction's figures lose their meaning (1e300 V gave an
+  // infinite THD).
+  if (!(p.drive_vpk >= 1e-6 && p.drive_vpk <= 1e3))
+    throw input_error("--drive must be 1 µV to 1 kV peak at the generator, got " +
+                      (p.drive_vpk < 1e15 && p.drive_vpk >= 1e-15 ? format_si(p.drive_vpk, "V") : format_number(p.drive_vpk) + " V"));
   p.st = load_stage(p.path, p.overrides, o.devices);
   return p;
 }

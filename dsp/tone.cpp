@@ -19,8 +19,12 @@ std::vector<tone_step> level_staircase(double from_dbfs, double to_dbfs, double 
   const double span = std::abs(to_dbfs - from_dbfs);
   const double step = std::abs(step_db);
   // A step that divides the range up to rounding (-40..0:10/3) still reaches the end.
-  const auto count = static_cast<long long>(std::floor(span / step + 1e-9)) + 1;
-  if (count > 1000) throw input_error("a staircase of " + std::to_string(count) + " steps is too long (1000 at most)");
+  // Counted in double first: a step of 1e-300 dB gives more steps than any integer holds.
+  const double steps_d = std::floor(span / step + 1e-9) + 1.0;
+  if (steps_d > 1000.0)
+    throw input_error("a staircase of " + (steps_d < 1e15 ? std::to_string(static_cast<long long>(steps_d)) : base::format_number(steps_d)) +
+                      " steps is too long (1000 at most)");
+  const auto count = static_cast<long long>(steps_d);
   const double dir = to_dbfs >= from_dbfs ? 1.0 : -1.0;
   std::vector<tone_step> steps;
   for (long long i = 0; i < count; ++i) steps.push_back({from_dbfs + dir * step * static_cast<double>(i), seconds});

@@ -456,6 +456,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"tone --level of -1e300 dBFS", {"tone", "--level", "-1e300", "@t.wav"}, {"below -200 dBFS", "converter's noise"}},
       {"tone --steps down to -1e300 dBFS", {"tone", "--steps", "-1e300..-1e300:1", "@t.wav"}, {"below -200 dBFS"}},
       {"tone --freq of 1e-300 Hz", {"tone", "--freq", "1e-300", "@t.wav"}, {"1.00e-300 Hz", "below 1 Hz"}},
+      {"tone --steps of 1e-300 dB", {"tone", "--steps", "-10..0:1e-300", "@t.wav"}, {"steps is too long", "1000 at most"}},
       {"tone --channels past an int", {"tone", "--channels", "99999999999", "@t.wav"}, {"--channels"}},
       {"measure --start of 1e15 s", {"measure", "@rec.wav", "--start", "1e15"}, {"--start", "beyond the end", "@rec.wav"}},
       {"measure --start infinite", {"measure", "@rec.wav", "--start", "inf"}, {"--start", "beyond the end"}},
@@ -465,6 +466,8 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure --channel past an int", {"measure", "@rec.wav", "--channel", "99999999999"}, {"--channel"}},
       {"measure --channel 0", {"measure", "@rec.wav", "--channel", "0"}, {"@rec.wav", "--channel 0 does not exist"}},
       {"measure --freq below the band", {"measure", "@rec.wav", "--freq", "1e-3"}, {"--freq 1e-3", "below the measurement band", "20.0 Hz"}},
+      {"measure --drive of 1e300 V", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "1e300V"}, {"--drive", "1 µV to 1 kV", "1.00e+300 V"}},
+      {"measure --drive of a nanovolt", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "1nV"}, {"--drive", "1 µV to 1 kV", "1.00 nV"}},
       {"measure a file of DC alone", {"measure", "@dc-only.wav"}, {"@dc-only.wav", "no tone found", "DC only"}},
       {"measure a pipe", {"measure", "@pipe.wav"}, {"@pipe.wav", "it is a pipe", "twice"}},
   };
