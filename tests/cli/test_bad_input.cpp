@@ -187,7 +187,7 @@ struct fixtures {
       };
       write(f("lying-rate.wav"), wav(2000000000u, 1, 48000, 0));  // 2 GHz over 48,000 frames
       write(f("channels65.wav"), wav(48000, 65, 480, 0));
-      write(f("dc-only.wav"), wav(48000, 1, 48000, 16384));       // half scale, no tone
+      write(f("dc-only.wav"), wav(48000, 1, 48000, 22937));       // 0.7 of full scale, no tone
       REQUIRE(::mkfifo(f("pipe.wav").c_str(), 0600) == 0);
     }
   }
