@@ -234,6 +234,11 @@ void write_text(const render_outcome& run, std::ostream& out) {
     else if (!x.silent_channels.empty())
       note(x.path.string() + ": " + channel_list(x.silent_channels) +
            " below the floor of " + volts_text(r.floor_v) + " (the engine's accepted error a sample),\n    written as silence");
+    const double lift_db = base::db_from_ratio(x.scale * (x.is_dry ? run.input_peak_v : 1.0));
+    if (!x.silent && lift_db > 60.0)
+      note(x.path.string() + " was lifted by " + db_text(lift_db, "dB") + " to reach its level: its " +
+           (x.is_dry ? "input" : "stage's output") + " peaks at only " + volts_text(x.peak_v) +
+           ".\n    A click or hum that quiet comes out loud; check --input-peak, or fix the level with --output-peak");
     if (x.engine.failed > 0)
       note(x.path.string() + ": " + std::to_string(x.engine.failed) + " of " + std::to_string(x.engine.samples) +
            " engine samples did not converge (each held its previous solution); try a higher --oversample");
