@@ -168,6 +168,9 @@ measure_report analyse(const measure_options& o) {
   s.harmonics = o.harmonics;
   auto frequency = [](const std::string& text, const char* option) { return option_frequency_hz(text, option); };
   s.band_high_hz = frequency(o.bandwidth_text, "--bandwidth");
+  if (!(s.band_high_hz > s.band_low_hz))
+    throw input_error("--bandwidth " + o.bandwidth_text + " must lie above the band's low edge, " +
+                      format_si(s.band_low_hz, "Hz") + " (AES17)");
   if (o.freq_text != "auto") s.approx_fundamental_hz = frequency(o.freq_text, "--freq");
 
   dsp::require_seekable_file(o.path, "measure reads the recording twice (to find its steady part, then to analyse it)");

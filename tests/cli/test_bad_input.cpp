@@ -468,6 +468,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure --freq below the band", {"measure", "@rec.wav", "--freq", "1e-3"}, {"--freq 1e-3", "below the measurement band", "20.0 Hz"}},
       {"measure --drive of 1e300 V", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "1e300V"}, {"--drive", "1 µV to 1 kV", "1.00e+300 V"}},
       {"measure --drive of a nanovolt", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "1nV"}, {"--drive", "1 µV to 1 kV", "1.00 nV"}},
+      {"measure --bandwidth of 1e-300 Hz", {"measure", "@rec.wav", "--bandwidth", "1e-300"}, {"--bandwidth 1e-300", "above the band's low edge", "20.0 Hz"}},
       {"measure a file of DC alone", {"measure", "@dc-only.wav"}, {"@dc-only.wav", "no tone found", "DC only"}},
       {"measure a pipe", {"measure", "@pipe.wav"}, {"@pipe.wav", "it is a pipe", "twice"}},
   };
