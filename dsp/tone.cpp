@@ -88,7 +88,10 @@ tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
     const bool is_last = i + 1 == plan.steps.size();
     // The last step holds a ramp in and a ramp out, so it needs at least four fades to keep
     // half of itself steady; the others two.
-    if (n < (is_last ? 4 : 2) * fade_frames_ || n < 1)
+    if (n < 1)
+      throw input_error("a step of " + quantity_text(s.seconds, "s") + " is shorter than one sample at " +
+                        quantity_text(plan.rate_hz, "Hz"));
+    if (n < (is_last ? 4 : 2) * fade_frames_)
       throw input_error("a step of " + base::format_number(s.seconds) + " s is too short for fades of " +
                         base::format_number(plan.fade_seconds) + " s (at least " + (is_last ? "four" : "two") + " fades long)");
     starts_.push_back(starts_.back() + n);

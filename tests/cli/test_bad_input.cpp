@@ -457,6 +457,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"tone --steps down to -1e300 dBFS", {"tone", "--steps", "-1e300..-1e300:1", "@t.wav"}, {"below -200 dBFS"}},
       {"tone --freq of 1e-300 Hz", {"tone", "--freq", "1e-300", "@t.wav"}, {"1.00e-300 Hz", "below 1 Hz"}},
       {"tone --steps of 1e-300 dB", {"tone", "--steps", "-10..0:1e-300", "@t.wav"}, {"steps is too long", "1000 at most"}},
+      {"tone --seconds shorter than a sample", {"tone", "--seconds", "1e-300", "--fade-ms", "0", "@t.wav"}, {"1.00e-300 s", "shorter than one sample", "48.0 kHz"}},
       {"tone --channels past an int", {"tone", "--channels", "99999999999", "@t.wav"}, {"--channels"}},
       {"measure --start of 1e15 s", {"measure", "@rec.wav", "--start", "1e15"}, {"--start", "beyond the end", "@rec.wav"}},
       {"measure --start infinite", {"measure", "@rec.wav", "--start", "inf"}, {"--start", "beyond the end"}},
