@@ -133,18 +133,20 @@ std::string quantity_text(double v, const char* unit) {
 long long scale_and_count(std::span<double> values, std::span<const double> gains) {
   long long beyond = 0;
   const std::size_t ch = gains.size();
-  for (std::size_t i = 0; i < values.size(); ++i) {
-    double& v = values[i];
-    v *= gains[i % ch];
-    beyond += std::abs(v) > 1.0;
-  }
+  for (std::size_t i = 0; i + ch <= values.size(); i += ch)
+    for (std::size_t c = 0; c < ch; ++c) {
+      double& v = values[i + c];
+      v *= gains[c];
+      beyond += std::abs(v) > 1.0;
+    }
   return beyond;
 }
 
 // Raises peaks[c] to the largest |value| of channel c in interleaved `values`.
 void track_peaks(std::span<const double> values, std::vector<double>& peaks) {
   const std::size_t ch = peaks.size();
-  for (std::size_t i = 0; i < values.size(); ++i) peaks[i % ch] = std::max(peaks[i % ch], std::abs(values[i]));
+  for (std::size_t i = 0; i + ch <= values.size(); i += ch)
+    for (std::size_t c = 0; c < ch; ++c) peaks[c] = std::max(peaks[c], std::abs(values[i + c]));
 }
 
 std::size_t output_count(const render_job& job) { return job.stages.size() + (job.dry_output ? 1 : 0); }
