@@ -124,7 +124,8 @@ void map_spread_fields(std::map<std::string, std::string, std::less<>>& options_
                             {"supply_v", "--supply"},
                             {"correlation", "--correlation"},
                             {"resistor_tolerance", "--tolerance"},
-                            {"runs", "--runs"}});
+                            {"runs", "--runs"},
+                            {"threads", "--threads"}});
 }
 
 model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const stage_input& stage) {

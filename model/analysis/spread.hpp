@@ -24,6 +24,9 @@ enum class spread_distribution { uniform, normal };
 /// makes meaningful; each run costs about 0.5 ms of one core and 0.9 KB of memory (measured
 /// on the bass-booster preset), so the bound keeps a spread under a minute and 100 MB.
 inline constexpr int max_spread_runs = 100000;
+/// The most threads a spread starts: each is a system thread, and beyond the cores they only
+/// wait their turn (a thread per run of 100,000 runs exhausted the process's threads).
+inline constexpr int max_spread_threads = 256;
 
 struct spread_settings {
   std::optional<base::value_range> idss_a;  ///< absent: the stage's value
@@ -34,7 +37,7 @@ struct spread_settings {
   spread_distribution distribution{spread_distribution::uniform};
   int runs{2000};                ///< 1 to max_spread_runs
   std::uint64_t seed{1};
-  int threads{0};                ///< 0: one per core
+  int threads{0};                ///< 0: one per core; at most max_spread_threads
   std::string class_name;        ///< the device class the ranges came from, if any
 };
 

@@ -444,6 +444,8 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a bench CSV over 16 MiB", {"fit", "@huge.csv"}, {"@huge.csv", "holds more than 16 MiB"}},
       {"an endless device as the bench CSV", {"fit", "/dev/zero"}, {"'/dev/zero' is a device", "CSV file of bench readings"}},
       {"--runs above the bound", {"spread", "@stage.toml", "--runs", "100001"}, {"--runs: ", "1 to 100000", "got 100001", "0.16 %"}},
+      {"--threads beyond any machine", {"spread", "@stage.toml", "--runs", "10", "--threads", "100000"}, {"--threads: ", "0 (one per core) to 256", "got 100000"}},
+      {"--threads below 0", {"spread", "@stage.toml", "--runs", "10", "--threads", "-1"}, {"--threads: ", "got -1"}},
       {"--runs of ten million", {"spread", "@stage.toml", "--runs", "10000000"}, {"--runs: ", "1 to 100000", "gigabytes"}},
       {"an integer above 2^53", {"bias", "@bigint.toml"}, {"@bigint.toml:11:12:", "drain.resistor = 9.01e+15", "1 mΩ to 1 GΩ"}},
       {"a denormal resistance", {"bias", "@denormal.toml"}, {"@denormal.toml:11:12:", "drain.resistor = 1.00e-320", "lies outside"}},
