@@ -61,7 +61,7 @@ operating_point solve_operating_point(const network& net) {
     }
   }
   if (!op.newton.converged)
-    throw internal_error("no DC operating point found: Newton did not converge, even with source stepping (largest "
+    throw internal_error(source_prefix(net) + "no DC operating point found: Newton did not converge, even with source stepping (largest "
                          "current left unbalanced at a node: " + base::format_si(op.newton.residual_a, "A") + ")");
   op.x = x;
   op.at = terminals_of(net, x);

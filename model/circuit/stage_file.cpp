@@ -340,6 +340,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   st.output.coupling_cap_f = get("output.coupling_cap");
   st.output.load_ohm = get("output.load");
   if (st.name.empty()) st.name = std::string(source_name);
+  st.file = std::string(source_name);
 
   try {
     validate(st);

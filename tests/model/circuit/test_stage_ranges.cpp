@@ -154,3 +154,19 @@ TEST_CASE("the solvers solve the stage at every corner of the ranges") {
     }
   }
 }
+
+TEST_CASE("a network the engine cannot solve is named by its file and its widest-apart parts") {
+  // Beyond the reader's ranges (set in code, as no file can): a 1e16 ohm supply feed and a
+  // 1e6 F coupling capacitor at 49 MHz put 20 decades between two conductances.
+  stage st = parse_stage(base_stage, "wide.toml");
+  st.supply.resistance_ohm = 1e16;
+  st.gate.coupling_cap_f = 1e6;
+  const network net = build_network(st);
+  CHECK(widest_parts(net, 768000.0 * 64) == "supply.resistance (1.00e+16 Ω) against gate.coupling_cap (1.00 MF)");
+  CHECK(widest_parts(net, 0.0).find("supply.resistance") == 0);  // at DC the capacitors are open
+  CHECK_THROWS_WITH_AS(discretise(net, 768000.0 * 64),
+                       doctest::Contains("wide.toml: the stage's network matrix at 49.2 MHz is singular or too ill-conditioned"),
+                       internal_error);
+  CHECK_THROWS_WITH_AS(discretise(net, 768000.0 * 64), doctest::Contains("supply.resistance (1.00e+16 Ω) against gate.coupling_cap"),
+                       internal_error);
+}
