@@ -9,6 +9,8 @@
 #include <CLI/CLI.hpp>
 
 #include "base/error.hpp"
+#include "base/output_file.hpp"
+#include "cli/command_files.hpp"
 
 namespace pinchoff::cli {
 namespace {
@@ -103,7 +105,10 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
             throw input_error(o->get_positional() ? "the " + o->get_name() + " argument is empty"
                                                   : o->get_name() + ": the value is empty");
       }
-      c.run(report, err);
+      if (c.files) check_command_files(c.files());
+      base::output_set outputs;
+      c.run(report, err, outputs);
+      outputs.commit();  // the report is complete: nothing that can fail is left
     } catch (const setting_error& e) {
       const auto o = c.options_of_fields.find(e.field());
       err << "pinchoff " << c.sub->get_name() << ": " << (o != c.options_of_fields.end() ? o->second : e.field()) << ": "

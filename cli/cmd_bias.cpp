@@ -149,7 +149,7 @@ void print_json(const bias_report& r, std::ostream& out) {
     j["reactances"] = xs;
   }
   j["warnings"] = r.b.warnings;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
@@ -188,7 +188,7 @@ void run(const bias_options& opt, std::ostream& out) {
 void register_bias(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<bias_options>();
   CLI::App* sub = setup(app, *opt, data);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); }});
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&, base::output_set&) { run(*opt, out); }});
 }
 
 }  // namespace pinchoff::cli

@@ -195,7 +195,7 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
   }
   j["designs"] = ds;
   j["warnings"] = r.warnings;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 void write_csv(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
@@ -229,7 +229,7 @@ void write_csv(const std::vector<design_input>& in, const model::compare_result&
 }
 
 void write_plot(const std::vector<design_input>& in, const model::compare_result& r, const std::string& path,
-                std::span<const std::filesystem::path> inputs) {
+                base::output_set& outputs) {
   bar_chart b;
   b.title = "Harmonic profile at " + format_si(r.frequency_hz, "Hz") + ", " +
             (r.mode == model::compare_mode::at_output ? dbu(r.level_vpk) + " at the load"
@@ -246,7 +246,7 @@ void write_plot(const std::vector<design_input>& in, const model::compare_result
     for (int h = 2; h <= r.harmonics; ++h) v.push_back(r.designs[i].point.harmonics_dbc[static_cast<std::size_t>(h - 2)]);
     b.values.push_back(v);
   }
-  write_svg_file(path, render_svg(b), inputs);
+  add_svg_output(outputs, path, render_svg(b));
 }
 
 CLI::App* setup(CLI::App& app, compare_options& opt) {
@@ -290,7 +290,7 @@ CLI::App* setup(CLI::App& app, compare_options& opt) {
   return sub;
 }
 
-void run(const compare_options& opt, std::ostream& out, std::ostream& err) {
+void run(const compare_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
   if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
   if (!opt.at_output.empty() && !opt.at_drive.empty()) throw input_error("--at-output and --at-drive: choose one");
   model::compare_settings s;
@@ -306,8 +306,6 @@ void run(const compare_options& opt, std::ostream& out, std::ostream& err) {
   s.oversample = opt.oversample;
   s.threads = opt.threads;
   const model::compare_plan plan = model::plan_compare(s);  // the settings' errors before any file is read
-  const std::vector<std::filesystem::path> inputs(opt.paths.begin(), opt.paths.end());
-  if (!opt.plot.empty()) check_plot_target(opt.plot, inputs);
   const std::vector<design_input> in = load_designs(opt);
   std::vector<model::stage> stages;
   std::vector<std::string> rest;  // the rest points' cautions, design by design
@@ -329,7 +327,7 @@ void run(const compare_options& opt, std::ostream& out, std::ostream& err) {
   for (const std::string& w : r.warnings) err << "pinchoff compare: warning: " << w << '\n';
   r.warnings.insert(r.warnings.begin(), rest.begin(), rest.end());
 
-  if (!opt.plot.empty()) write_plot(in, r, opt.plot, inputs);
+  if (!opt.plot.empty()) write_plot(in, r, opt.plot, outputs);
   if (opt.json) return print_json(in, r, out);
   if (opt.csv) return write_csv(in, r, out);
   print_text(in, r, out);
@@ -342,12 +340,18 @@ void register_compare(CLI::App& app, std::vector<command>& commands, const data_
   auto opt = std::make_shared<compare_options>();
   opt->devices = data.devices;
   CLI::App* sub = setup(app, *opt);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err, base::output_set& o) { run(*opt, out, err, o); },
                       {{"drive_level_vpk", "--at-drive"},
                        {"output_level_vpk", "--at-output"},
                        {"harmonics", "--harmonics"},
                        {"oversampling", "--oversample"},
-                       {"frequency_hz", "--freq"}}});
+                       {"frequency_hz", "--freq"}},
+                      [opt] {
+                        command_files f;
+                        for (const std::string& p : opt->paths) add_stage_inputs(f, p, opt->devices, "a design file");
+                        if (!opt->plot.empty()) f.outputs.push_back({"--plot", opt->plot});
+                        return f;
+                      }});
 }
 
 }  // namespace pinchoff::cli

@@ -45,7 +45,7 @@ void print_json(const model::fit_result& f, std::ostream& out) {
                     {"residual_percent", 100.0 * r.residual_ratio},
                     {"flagged", r.flagged}});
   j["rows"] = rows;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 void print_text(const base::csv_table& t, const model::bench_table& bt, const model::fit_result& f, std::ostream& out) {
@@ -109,7 +109,7 @@ void run(const fit_options& opt, std::ostream& out) {
 void register_fit(CLI::App& app, std::vector<command>& commands, const data_files&) {
   auto opt = std::make_shared<fit_options>();
   CLI::App* sub = setup(app, *opt);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); }});
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&, base::output_set&) { run(*opt, out); }});
 }
 
 }  // namespace pinchoff::cli

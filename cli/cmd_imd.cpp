@@ -82,7 +82,7 @@ void print_json(const imd_report& rep, const std::string& method, std::ostream& 
   }
   j["products"] = products;
   j["steady_state_converged"] = r.converged;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 void print_text(const imd_report& rep, std::ostream& out) {
@@ -175,7 +175,7 @@ void run(const imd_options& opt, std::ostream& out, std::ostream& err) {
 void register_imd(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<imd_options>();
   CLI::App* sub = setup(app, *opt, data);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err, base::output_set&) { run(*opt, out, err); },
                       {{"level_vpk", "--level"}, {"oversampling", "--oversample"}, {"base_rate_hz", "--rate"}}});
 }
 

@@ -349,11 +349,11 @@ void write_json(const measure_report& r, std::ostream& out) {
                     {"steady_state_converged", pt.converged},
                     {"warnings", p.warnings}};
   }
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 // The spectrum with the harmonics marked, as SVG.
-void write_plot(const measure_report& r, const measure_options& o) {
+void write_plot(const measure_report& r, const measure_options& o, base::output_set& outputs) {
   const double top_hz = r.info.rate_hz / 2;
   const dsp::display_spectrum& sp = *r.spectrum;
   line_plot p;
@@ -375,8 +375,7 @@ void write_plot(const measure_report& r, const measure_options& o) {
     const bool is_clear = std::log10(h / (h - 1.0)) > 0.03 * decades;
     p.markers.push_back({h * r.a.fundamental_hz, is_clear ? "H" + std::to_string(h) : std::string()});
   }
-  const std::filesystem::path inputs[] = {o.path};
-  write_svg_file(o.plot_path, render_svg(p), inputs);
+  add_svg_output(outputs, o.plot_path, render_svg(p));
 }
 
 measure_report run(const measure_options& o) {
@@ -439,11 +438,19 @@ void register_measure(CLI::App& app, std::vector<command>& commands, const data_
   opt->devices = data.devices;
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,
-                      [opt](std::ostream& out, std::ostream&) {
+                      [opt](std::ostream& out, std::ostream&, base::output_set& outputs) {
                         const measure_report r = run(*opt);
-                        if (r.spectrum) write_plot(r, *opt);
+                        if (r.spectrum) write_plot(r, *opt, outputs);
                         if (opt->json) write_json(r, out);
                         else write_text(r, out);
+                      },
+                      {},
+                      [opt] {
+                        command_files f;
+                        f.inputs.push_back({"the recording", opt->path});
+                        if (!opt->against_path.empty()) add_stage_inputs(f, opt->against_path, opt->devices, "the --against stage file");
+                        if (!opt->plot_path.empty()) f.outputs.push_back({"--plot", opt->plot_path});
+                        return f;
                       }});
 }
 

@@ -17,6 +17,7 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "base/output_file.hpp"
 #include "cli/interrupt.hpp"
 #include "cli/progress_bar.hpp"
 #include "cli/text_table.hpp"
@@ -66,22 +67,6 @@ struct render_outcome {
   bool dry{false};
   std::size_t stage_count{};
   std::vector<std::string> warnings;
-};
-
-// Removes a folder this run created when the run fails and leaves it empty.
-class created_folder {
- public:
-  explicit created_folder(fs::path p) : path_(std::move(p)) {}
-  ~created_folder() {
-    std::error_code ec;
-    if (!path_.empty() && fs::is_empty(path_, ec)) fs::remove(path_, ec);
-  }
-  void keep() { path_.clear(); }
-  created_folder(const created_folder&) = delete;
-  created_folder& operator=(const created_folder&) = delete;
-
- private:
-  fs::path path_;
 };
 
 std::string lower(std::string s) {
@@ -293,7 +278,7 @@ void write_json(const render_outcome& run, std::ostream& out) {
                          {"warnings", run.warnings},
                          {"seconds", r.seconds},
                          {"realtime_factor", r.realtime_factor}};
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 // ---- Run
@@ -336,8 +321,9 @@ std::vector<model::render_stage> load_stages(const render_options& o, std::ostre
 
 // Names the outputs. One stage: the file --output names, whose extension must match the
 // format. Several stages or --dry: one file each in the folder --output names, made if
-// missing (`made` removes it again if the run fails), loudness-matched.
-void place_outputs(const render_options& o, model::render_job& job, std::optional<created_folder>& made) {
+// missing (and removed again, if left empty, when the outputs are not committed),
+// loudness-matched.
+void place_outputs(const render_options& o, model::render_job& job, base::output_set& outputs) {
   // The format decides the names; the input must open to know it.
   const dsp::sound_info info = dsp::sound_reader::open(o.input).info();
   const dsp::sample_format format = job.format ? *job.format : dsp::nearest_sample_format(info);
@@ -356,30 +342,62 @@ void place_outputs(const render_options& o, model::render_job& job, std::optiona
       throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + quoted_path(parent) + " does not exist");
     if (!fs::create_directory(out_path, ec) || ec)
       throw io_error("cannot make the folder " + quoted_path(out_path) + ": " + ec.message());
-    made.emplace(out_path);
+    outputs.add_made_folder(out_path);
   }
   for (model::render_stage& st : job.stages) st.output = out_path / (st.name + extension_for(format));
   job.dry_output = o.dry ? std::optional<fs::path>(out_path / (std::string("dry") + extension_for(format))) : std::nullopt;
   job.match_loudness = true;
 }
 
-// Calls the model once, with a progress bar on a terminal and Ctrl-C as its stop.
-render_outcome run(const render_options& o, std::ostream& err) {
+// What render reads and writes, for the check before it runs (command::files): the output
+// names follow place_outputs.
+command_files render_files(const render_options& o) {
+  command_files f;
+  for (const std::string& s : o.stages) add_stage_inputs(f, s, o.devices);
+  f.inputs.push_back({"--input", o.input});
+  if (o.stages.size() == 1 && !o.dry) {
+    f.outputs.push_back({"--output", o.output, false, o.force});
+    return f;
+  }
+  std::error_code ec;
+  if (fs::exists(o.output, ec) && !fs::is_directory(o.output, ec))
+    throw io_error("--output " + quoted_path(o.output) + " is a file; several outputs need a folder there");
+  // The format names the files: from --format, else from the input's header (a pipe is not
+  // opened twice: its name's extension stands in; the writer checks the input again).
+  const bool readable_twice = fs::is_regular_file(o.input, ec);
+  const dsp::sample_format format =
+      !o.format.empty() ? dsp::parse_sample_format(o.format)
+      : readable_twice  ? dsp::nearest_sample_format(dsp::sound_reader::open(o.input).info())
+      : fs::path(o.input).extension() == ".flac" ? dsp::sample_format::flac24
+                                                 : dsp::sample_format::wav24;
+  for (const std::string& s : o.stages)
+    f.outputs.push_back({"--output (for " + quoted_path(s) + ")", fs::path(o.output) / (fs::path(s).stem().string() + extension_for(format)), true, o.force});
+  if (o.dry) f.outputs.push_back({"--output (for --dry)", fs::path(o.output) / (std::string("dry") + extension_for(format)), true, o.force});
+  return f;
+}
+
+// Calls the model once, with a progress bar on a terminal and Ctrl-C or SIGTERM as its
+// stop. The files are left in `outputs`, for the caller to commit.
+render_outcome run(const render_options& o, std::ostream& err, base::output_set& outputs) {
   render_outcome r;
   model::render_job job = job_from(o);
   job.stages = load_stages(o, err, r.warnings);
-  std::optional<created_folder> made;
-  place_outputs(o, job, made);
+  place_outputs(o, job, outputs);
 
   const interrupt_guard guard;
   progress_bar bar(err, !o.quiet && stderr_is_terminal());
   model::render_control control;
   control.stop = guard.flag();
+  control.outputs = &outputs;
   if (bar.enabled())
     control.progress = [&bar](const model::render_progress& p) { bar.update(p.fraction, p.realtime_factor, p.seconds_left); };
-  r.report = model::render(job, control);
+  try {
+    r.report = model::render(job, control);
+  } catch (const interrupted&) {
+    guard.check();  // the model knows only that it was stopped; the guard knows the signal (143 for SIGTERM)
+    throw;
+  }
   bar.clear();
-  if (made) made->keep();
   r.input = o.input;
   r.input_peak_v = job.input_peak_v;
   r.peak_dbfs = job.peak_dbfs;
@@ -473,12 +491,13 @@ void register_render(CLI::App& app, std::vector<command>& commands, const data_f
   opt->devices = data.devices;
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,
-                      [opt](std::ostream& out, std::ostream& err) {
-                        const render_outcome r = run(*opt, err);
+                      [opt](std::ostream& out, std::ostream& err, base::output_set& outputs) {
+                        const render_outcome r = run(*opt, err, outputs);
                         if (opt->json) write_json(r, out);
                         else write_text(r, out);
                       },
-                      render_options_of_fields});
+                      render_options_of_fields,
+                      [opt] { return render_files(*opt); }});
 }
 
 }  // namespace pinchoff::cli

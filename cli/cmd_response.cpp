@@ -75,7 +75,7 @@ struct response_report {
   std::vector<model::response_point> table;  // at the 1-2-5 frequencies of the range, for the text
 };
 
-void write_plot(const response_report& rep, const std::string& path, std::span<const std::filesystem::path> inputs) {
+void write_plot(const response_report& rep, const std::string& path, base::output_set& outputs) {
   const model::response_result& r = rep.r;
   line_plot p;
   p.title = rep.st.name + ": frequency response";
@@ -92,7 +92,7 @@ void write_plot(const response_report& rep, const std::string& path, std::span<c
   for (const auto& c : r.corners)
     if (c.frequency_hz >= rep.lo_hz && c.frequency_hz <= rep.hi_hz)
       p.markers.push_back({c.frequency_hz, "-3 dB " + format_si(c.frequency_hz, "Hz")});
-  write_svg_file(path, render_svg(p), inputs);
+  add_svg_output(outputs, path, render_svg(p));
 }
 
 void print_json(const response_report& rep, std::ostream& out) {
@@ -116,7 +116,7 @@ void print_json(const response_report& rep, std::ostream& out) {
                    {"zin_ohm", std::abs(r.points[k].zin_ohm)},
                    {"zin_phase_deg", std::arg(r.points[k].zin_ohm) * 180.0 / std::numbers::pi}});
   j["points"] = pts;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 void write_csv(const response_report& rep, std::ostream& out) {
@@ -170,7 +170,7 @@ CLI::App* setup(CLI::App& app, response_options& opt, const data_files& data) {
   return sub;
 }
 
-void run(const response_options& opt, std::ostream& out, std::ostream& err) {
+void run(const response_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
   if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
   response_report rep;
   rep.lo_hz = parse_analysis_frequency_hz(opt.from, "--from");
@@ -184,10 +184,7 @@ void run(const response_options& opt, std::ostream& out, std::ostream& err) {
   rep.phase_deg = unwrapped_phase_deg(rep.r.points);
   rep.midband_db = base::db_from_ratio(std::fabs(rep.r.midband_gain));
 
-  if (!opt.plot.empty()) {
-    const std::filesystem::path inputs[] = {opt.input.path};
-    write_plot(rep, opt.plot, inputs);
-  }
+  if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
   if (opt.json) return print_json(rep, out);
   if (opt.csv) return write_csv(rep, out);
   for (double f : table_frequencies(rep.lo_hz, rep.hi_hz)) rep.table.push_back(model::response_at(rep.net, rep.op, f));
@@ -200,7 +197,13 @@ void run(const response_options& opt, std::ostream& out, std::ostream& err) {
 void register_response(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<response_options>();
   CLI::App* sub = setup(app, *opt, data);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); }});
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err, base::output_set& o) { run(*opt, out, err, o); }, {},
+                      [opt] {
+                        command_files f;
+                        add_stage_inputs(f, opt->input.path, opt->input.devices);
+                        if (!opt->plot.empty()) f.outputs.push_back({"--plot", opt->plot});
+                        return f;
+                      }});
 }
 
 }  // namespace pinchoff::cli

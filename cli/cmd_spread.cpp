@@ -67,7 +67,7 @@ std::vector<std::string> histogram_names(const std::vector<model::requirement>& 
 }
 
 void write_histograms(const model::spread_result& res, const std::vector<std::string>& names, const std::string& base,
-                      const std::string& title, std::ostream& out, std::span<const std::filesystem::path> inputs) {
+                      const std::string& title, std::ostream& out, base::output_set& outputs) {
   const std::filesystem::path p(base);
   for (const std::string& name : names) {
     const model::quantity_def& q = def_of(name);
@@ -91,7 +91,7 @@ void write_histograms(const model::spread_result& res, const std::vector<std::st
     }
     for (double x : v) c.values[0][static_cast<std::size_t>(std::min(bins - 1, static_cast<int>((x - lo) / w)))] += 1.0;
     const std::filesystem::path file = histogram_path(base, name);
-    write_svg_file(file, render_svg(c), inputs);
+    add_svg_output(outputs, file, render_svg(c));
     out << "  histogram of " << name << " written to " << file.string() << '\n';
   }
 }
@@ -168,7 +168,7 @@ void print_json(const spread_report& rep, std::ostream& out) {
     ws.push_back({{"quantity", w.quantity}, {"side", w.side}, {"run", w.run->index}, {"idss_a", w.run->draw.idss_a},
                   {"vp_v", w.run->draw.vp_v}, {"supply_v", w.run->draw.supply_v}, {"value", w.run->values.at(w.quantity)}});
   j["worst"] = ws;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 void print_text(const spread_report& rep, const std::string& plots, std::ostream& out) {
@@ -231,13 +231,10 @@ CLI::App* setup(CLI::App& app, spread_options& opt, const data_files& data) {
   return sub;
 }
 
-void run(const spread_options& opt, std::ostream& out, std::ostream& err) {
+void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
   if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
   spread_report rep;
   for (const std::string& r : opt.conditions) rep.reqs.push_back(parse_requirement(r));
-  const std::filesystem::path inputs[] = {opt.input.path};
-  if (!opt.plot.empty())
-    for (const std::string& name : histogram_names(rep.reqs)) check_plot_target(histogram_path(opt.plot, name), inputs);
   rep.st = load_stage(opt.input);
   rep.settings = spread_settings_from(opt.batch, rep.st, opt.input);
   const model::spread_settings& settings = rep.settings;
@@ -260,7 +257,7 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err) {
   rep.res = model::run_spread(rep.st, settings, rep.reqs, extra);
 
   std::ostringstream plots;
-  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.reqs), opt.plot, rep.st.name, plots, inputs);
+  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.reqs), opt.plot, rep.st.name, plots, outputs);
   if (opt.csv) return write_csv(rep, out);
   if (opt.json) return print_json(rep, out);
   print_text(rep, plots.str(), out);
@@ -272,8 +269,18 @@ void register_spread(CLI::App& app, std::vector<command>& commands, const data_f
   auto opt = std::make_shared<spread_options>();
   CLI::App* sub = setup(app, *opt, data);
   // The THD of --drive is a one-level sweep: its settings' fields map to spread's options.
-  command c{sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
-            {{"drives_vpk", "--drive"}, {"frequency_hz", "--freq"}}};
+  command c{sub, [opt](std::ostream& out, std::ostream& err, base::output_set& o) { run(*opt, out, err, o); },
+            {{"drives_vpk", "--drive"}, {"frequency_hz", "--freq"}},
+            [opt] {
+              command_files f;
+              add_stage_inputs(f, opt->input.path, opt->input.devices);
+              if (opt->plot.empty()) return f;
+              std::vector<model::requirement> reqs;
+              for (const std::string& r : opt->conditions) reqs.push_back(parse_requirement(r));
+              for (const std::string& name : histogram_names(reqs))
+                f.outputs.push_back({"--plot", histogram_path(opt->plot, name)});
+              return f;
+            }};
   map_spread_fields(c.options_of_fields);
   commands.push_back(std::move(c));
 }

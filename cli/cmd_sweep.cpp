@@ -85,7 +85,7 @@ struct sweep_report {
   std::vector<std::string> problems;  // the rest point's cautions, then the solver's
 };
 
-void write_plot(const sweep_report& rep, const std::string& path, std::span<const std::filesystem::path> inputs) {
+void write_plot(const sweep_report& rep, const std::string& path, base::output_set& outputs) {
   const model::sweep_result& r = rep.r;
   line_plot pl;
   pl.title = rep.st.name + ": harmonics against drive at " + format_si(r.frequency_hz, "Hz");
@@ -119,7 +119,7 @@ void write_plot(const sweep_report& rep, const std::string& path, std::span<cons
   pl.top = {yaxis, lines};
   for (const auto& c : r.crossings)
     if (c.found) pl.markers.push_back({base::dbu_from_vpk(c.drive_vpk), format_number(c.thd_percent, 2) + " % THD"});
-  write_svg_file(path, render_svg(pl), inputs);
+  add_svg_output(outputs, path, render_svg(pl));
 }
 
 void print_json(const sweep_report& rep, std::ostream& out) {
@@ -162,7 +162,7 @@ void print_json(const sweep_report& rep, std::ostream& out) {
                   {"output_vpk", c.found ? nlohmann::json(c.output_vpk) : nlohmann::json(nullptr)}});
   j["thd_crossings"] = cs;
   j["warnings"] = rep.problems;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 void write_csv(const sweep_report& rep, std::ostream& out) {
@@ -270,7 +270,7 @@ CLI::App* setup(CLI::App& app, sweep_options& opt, const data_files& data) {
   return sub;
 }
 
-void run(const sweep_options& opt, std::ostream& out, std::ostream& err) {
+void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
   if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
   sweep_report rep;
   model::sweep_settings& s = rep.settings;
@@ -282,8 +282,6 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err) {
   s.base_rate_hz = option_frequency_hz(opt.rate, "--rate");
   s.threads = opt.threads;
   const model::sweep_plan plan = model::plan_sweep(s);  // the settings' errors before any file is read
-  const std::filesystem::path inputs[] = {opt.input.path};
-  if (!opt.plot.empty()) check_plot_target(opt.plot, inputs);
   rep.st = load_stage(opt.input);
   // The rest point's cautions first (before the simulation's wait), then anything the
   // solver could not do: said, never hidden.
@@ -301,7 +299,7 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err) {
   for (std::size_t k = rest_warnings; k < rep.problems.size(); ++k)
     err << "pinchoff sweep: warning: " << rep.problems[k] << '\n';
 
-  if (!opt.plot.empty()) write_plot(rep, opt.plot, inputs);
+  if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
   if (opt.json) return print_json(rep, out);
   if (opt.csv) return write_csv(rep, out);
   print_text(rep, opt.verbose, out);
@@ -313,13 +311,19 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err) {
 void register_sweep(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<sweep_options>();
   CLI::App* sub = setup(app, *opt, data);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err) { run(*opt, out, err); },
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err, base::output_set& o) { run(*opt, out, err, o); },
                       {{"frequency_hz", "--freq"},
                        {"drives_vpk", "--drive"},
                        {"oversampling", "--oversample"},
                        {"harmonics", "--harmonics"},
                        {"bandwidth_hz", "--bandwidth"},
-                       {"base_rate_hz", "--rate"}}});
+                       {"base_rate_hz", "--rate"}},
+                      [opt] {
+                        command_files f;
+                        add_stage_inputs(f, opt->input.path, opt->input.devices);
+                        if (!opt->plot.empty()) f.outputs.push_back({"--plot", opt->plot});
+                        return f;
+                      }});
 }
 
 }  // namespace pinchoff::cli

@@ -182,7 +182,7 @@ void write_json(const tone_report& r, std::ostream& out) {
                    {"clipped_samples", r.clipped},
                    {"ceiling_dbfs", r.ceiling_dbfs},
                    {"steps", steps}};
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 // ---- Run
@@ -222,7 +222,7 @@ tone_report plan_tone(const tone_options& o) {
 
 // Writes the planned tone to its file (nothing is left behind if it fails or Ctrl-C
 // stops it) and fills in what was written.
-void write_tone(const tone_options& o, tone_report& r) {
+void write_tone(const tone_options& o, tone_report& r, base::output_set& outputs) {
   dsp::tone_generator gen(r.plan);  // validates the plan before any file is made
   // RIFF sizes are 32-bit: a WAV file cannot hold more than 4 GiB of samples.
   if (r.format != dsp::sample_format::flac24) {
@@ -254,14 +254,14 @@ void write_tone(const tone_options& o, tone_report& r) {
     }
     w.write(std::span<const double>(frames).first(n * ch));
   }
-  w.commit();
   r.frames = w.frames_written();
   r.clipped = w.clipped_samples();
+  outputs.add(w.finish());  // committed once the report is made (cli/app.hpp)
 }
 
-tone_report run(const tone_options& o) {
+tone_report run(const tone_options& o, base::output_set& outputs) {
   tone_report r = plan_tone(o);
-  write_tone(o, r);
+  write_tone(o, r, outputs);
   return r;
 }
 
@@ -309,12 +309,17 @@ void register_tone(CLI::App& app, std::vector<command>& commands, const data_fil
   auto opt = std::make_shared<tone_options>();
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,
-                      [opt](std::ostream& out, std::ostream&) {
-                        const tone_report r = run(*opt);
+                      [opt](std::ostream& out, std::ostream&, base::output_set& outputs) {
+                        const tone_report r = run(*opt, outputs);
                         if (opt->json) write_json(r, out);
                         else write_text(r, out);
                       },
-                      tone_options_of_fields});
+                      tone_options_of_fields,
+                      [opt] {
+                        command_files f;
+                        f.outputs.push_back({"OUT", opt->output, false, opt->force});
+                        return f;
+                      }});
 }
 
 }  // namespace pinchoff::cli

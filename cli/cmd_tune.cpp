@@ -69,7 +69,7 @@ void print_json(const model::tune_target& target, const model::tune_result& r, s
                      {"operating_point", point_json(c.point)},
                      {"symmetric_output_vpk", c.point.headroom.symmetric_output_vpk}});
   j["candidates"] = cands;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 // --over-spread: the trimmer that brings a batch to the target.
@@ -101,7 +101,7 @@ void print_trim_json(const model::tune_target& target, const model::spread_setti
   j["fixed_ohm"] = t.fixed_ohm;
   j["trimmer_ohm"] = t.trimmer_ohm;
   j["coverage"] = t.coverage;
-  out << j.dump(2) << '\n';
+  out << json_text(j) << '\n';
 }
 
 CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
@@ -155,7 +155,7 @@ void run(const tune_options& opt, std::ostream& out) {
 void register_tune(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<tune_options>();
   CLI::App* sub = setup(app, *opt, data);
-  command c{sub, [opt](std::ostream& out, std::ostream&) { run(*opt, out); },
+  command c{sub, [opt](std::ostream& out, std::ostream&, base::output_set&) { run(*opt, out); },
             {{"adjust_key", "--adjust"}, {"target", "--target"}}};
   map_spread_fields(c.options_of_fields);
   commands.push_back(std::move(c));

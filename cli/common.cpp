@@ -52,6 +52,8 @@ std::vector<std::string> rest_point_warnings(const model::stage& st, const model
   return w;
 }
 
+std::string json_text(const nlohmann::json& j) { return j.dump(2, ' ', false, nlohmann::json::error_handler_t::replace); }
+
 nlohmann::json number_or_null(double v) { return std::isfinite(v) ? nlohmann::json(v) : nlohmann::json(nullptr); }
 
 nlohmann::json operating_point_json(const model::terminal_point& t) {

@@ -48,6 +48,11 @@ std::vector<std::string> rest_point_warnings(const model::stage& st, const model
                                              const model::operating_point& op, const std::string& command,
                                              std::ostream& err, const std::string& label = {});
 
+/// The JSON text of a report, indented by two. A string that is not valid UTF-8 (a file
+/// name is bytes, not text) has each invalid byte replaced by U+FFFD instead of failing:
+/// the report of a run never fails after its files are written.
+std::string json_text(const nlohmann::json& j);
+
 /// A JSON number, or null where the value is not finite (JSON has no infinity).
 nlohmann::json number_or_null(double v);
 

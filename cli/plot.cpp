@@ -5,11 +5,11 @@
 #include <cmath>
 #include <cstdio>
 #include <cstring>
-#include <fstream>
 #include <limits>
 #include <map>
 
 #include "base/error.hpp"
+#include "base/output_file.hpp"
 
 namespace pinchoff::cli {
 namespace {
@@ -471,45 +471,10 @@ std::string render_svg(const bar_chart& chart) {
   return out.s;
 }
 
-void check_plot_target(const std::filesystem::path& path, std::span<const std::filesystem::path> inputs) {
-  namespace fs = std::filesystem;
-  const fs::path folder = path.has_parent_path() ? path.parent_path() : fs::path(".");
-  std::error_code ec;
-  if (!fs::is_directory(folder, ec))
-    throw io_error("cannot write plot '" + path.string() + "': folder '" + folder.string() + "' does not exist");
-  if (fs::is_directory(path, ec)) throw io_error("cannot write plot '" + path.string() + "': it is a folder");
-  for (const fs::path& in : inputs) {
-    const bool same = fs::exists(path, ec) && fs::exists(in, ec) ? fs::equivalent(path, in, ec)
-                                                                 : fs::weakly_canonical(path, ec) == fs::weakly_canonical(in, ec);
-    if (same) throw io_error("cannot write plot '" + path.string() + "': it is the input file; choose another name");
-  }
-}
-
-void write_svg_file(const std::filesystem::path& path, std::string_view svg, std::span<const std::filesystem::path> inputs) {
-  namespace fs = std::filesystem;
-  check_plot_target(path, inputs);
-  const fs::path folder = path.has_parent_path() ? path.parent_path() : fs::path(".");
-  std::error_code ec;
-  std::string temp_name = ".";  // built by appends: GCC 12 warns falsely on "." + string (PR 105329)
-  temp_name += path.filename().string();
-  temp_name += ".partial";
-  const fs::path temp = folder / temp_name;
-  {
-    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
-    if (!out) throw io_error("cannot create '" + temp.string() + "': " + std::strerror(errno));
-    out.write(svg.data(), static_cast<std::streamsize>(svg.size()));
-    out.close();
-    if (!out) {
-      fs::remove(temp, ec);
-      throw io_error("cannot write plot '" + path.string() + "': writing failed (disk full?)");
-    }
-  }
-  fs::rename(temp, path, ec);
-  if (ec) {
-    std::error_code ignored;
-    fs::remove(temp, ignored);
-    throw io_error("cannot write plot '" + path.string() + "': " + ec.message());
-  }
+void add_svg_output(base::output_set& outputs, const std::filesystem::path& path, std::string_view svg) {
+  base::output_file f = base::output_file::create(path, base::existing::replace);
+  f.write(svg);
+  outputs.add(std::move(f));
 }
 
 }  // namespace pinchoff::cli

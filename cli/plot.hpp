@@ -18,6 +18,10 @@
 #include <string_view>
 #include <vector>
 
+namespace pinchoff::base {
+class output_set;
+}
+
 namespace pinchoff::cli {
 
 enum class axis_scale { linear, log10 };
@@ -86,15 +90,12 @@ std::vector<tick> make_ticks(double lo, double hi, axis_scale scale, bool si_lab
 std::string render_svg(const line_plot& plot);
 std::string render_svg(const bar_chart& chart);
 
-/// Throws io_error naming `path` when a plot cannot go there: its folder does not exist, it
-/// is a folder, or it is one of `inputs` (compared as files, so links and relative paths are
-/// seen through: a plot must never replace the stage file or recording it was made from).
-/// Commands call it before their computation, so a bad --plot fails at once.
-void check_plot_target(const std::filesystem::path& path, std::span<const std::filesystem::path> inputs);
-
-/// Writes `svg` to `path` atomically: a temporary file beside it, then a rename. Checks the
-/// target as check_plot_target() does, and throws io_error when the write fails.
-void write_svg_file(const std::filesystem::path& path, std::string_view svg,
-                    std::span<const std::filesystem::path> inputs);
+/// Writes `svg` for `path` through the program's one writer (base/output_file.hpp): into a
+/// temporary in the plot's folder, added to `outputs`, which the command's caller commits
+/// with every other output once nothing can fail (cli/app.hpp); an existing plot of that
+/// name is then replaced. That the plot is not one of the command's inputs is checked
+/// before the command runs (command::files). Throws io_error naming `path` when the folder
+/// is missing or the write fails (a full disk).
+void add_svg_output(base::output_set& outputs, const std::filesystem::path& path, std::string_view svg);
 
 }  // namespace pinchoff::cli

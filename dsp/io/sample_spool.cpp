@@ -7,11 +7,11 @@
 #include <cerrno>
 #include <cstdio>
 #include <cstring>
-#include <random>
 #include <string>
 #include <utility>
 
 #include "base/error.hpp"
+#include "base/output_file.hpp"
 
 namespace pinchoff::dsp {
 namespace fs = std::filesystem;
@@ -23,34 +23,15 @@ constexpr std::size_t chunk_values = 16384;
 }  // namespace
 
 sample_spool sample_spool::create(const fs::path& target) {
-  const fs::path folder = target.has_parent_path() ? target.parent_path() : fs::path(".");
-  std::random_device rd;
   sample_spool s;
   s.target_ = target;
-  for (int attempt = 0; attempt < 16 && s.fd_ < 0; ++attempt) {
-    char tag[16];
-    std::snprintf(tag, sizeof tag, "%08x", static_cast<unsigned>(rd()));
-    std::string name(1, '.');
-    name.append(target.filename().string()).append(".spool-").append(tag);
-    s.path_ = folder / name;
-    s.fd_ = ::open(s.path_.c_str(), O_RDWR | O_CREAT | O_EXCL | O_CLOEXEC, 0600);
-    if (s.fd_ < 0 && errno != EEXIST) {
-      const int e = errno;
-      s.path_.clear();
-      throw io_error("cannot write a temporary file beside " + quoted_path(target) + ": " + std::strerror(e));
-    }
-  }
-  if (s.fd_ < 0) {
-    s.path_.clear();
-    throw io_error("cannot write a temporary file beside " + quoted_path(target) + ": no free name");
-  }
+  s.fd_ = base::create_scratch_file(target);
   s.buffer_.resize(chunk_values);
   return s;
 }
 
 sample_spool::sample_spool(sample_spool&& o) noexcept
     : fd_(std::exchange(o.fd_, -1)),
-      path_(std::exchange(o.path_, {})),
       target_(std::move(o.target_)),
       buffer_(std::move(o.buffer_)),
       written_(o.written_),
@@ -60,7 +41,6 @@ sample_spool& sample_spool::operator=(sample_spool&& o) noexcept {
   if (this != &o) {
     remove();
     fd_ = std::exchange(o.fd_, -1);
-    path_ = std::exchange(o.path_, {});
     target_ = std::move(o.target_);
     buffer_ = std::move(o.buffer_);
     written_ = o.written_;
@@ -74,11 +54,6 @@ sample_spool::~sample_spool() { remove(); }
 void sample_spool::remove() noexcept {
   if (fd_ >= 0) ::close(fd_);
   fd_ = -1;
-  if (!path_.empty()) {
-    std::error_code ec;
-    fs::remove(path_, ec);
-    path_.clear();
-  }
 }
 
 void sample_spool::write(std::span<const double> values) {

@@ -3,9 +3,10 @@
 // render that is normalised needs the peak before it writes the file): written once from
 // the start, then read back from the start. Memory stays flat whatever the length.
 //
-// The file is created beside a target path under a hidden name (".NAME.spool-XXXXXXXX",
-// O_EXCL, so it is ours alone) and removed by the destructor, also when an exception or an
-// interrupt ends the job. Values are stored as 32-bit IEEE float in the machine's byte
+// The file is made in the target's folder by the program's one writer
+// (base::create_scratch_file: a short hidden name, O_EXCL and O_NOFOLLOW, so it is ours
+// alone) and unlinked at once: only its descriptor holds it, so nothing of it is left
+// however the job ends, even when the process is killed. Values are stored as 32-bit IEEE float in the machine's byte
 // order (24 significant bits: a relative error of at most 2^-24, -144 dB, on each value).
 // Move-only; throws io_error naming the target when the file cannot be made, written or
 // read (a full disk).
@@ -33,13 +34,12 @@ class sample_spool {
   std::size_t read(std::span<double> values);
 
   std::int64_t size() const noexcept { return written_; }
-  const std::filesystem::path& path() const noexcept { return path_; }
 
  private:
   sample_spool() = default;
   void remove() noexcept;
   int fd_{-1};
-  std::filesystem::path path_, target_;
+  std::filesystem::path target_;
   std::vector<float> buffer_;
   std::int64_t written_{0}, read_{0};
 };

@@ -353,26 +353,6 @@ bool same_file(const fs::path& a, const fs::path& b) {
   return fs::weakly_canonical(a, ec) == fs::weakly_canonical(b, ec);
 }
 
-// A fresh name beside the target; O_EXCL makes it ours alone, and the mode 0666 lets the
-// user's umask decide the final permissions as for any other new file.
-int create_temporary(const fs::path& target, fs::path& temp) {
-  std::random_device rd;
-  for (int attempt = 0; attempt < 16; ++attempt) {
-    char tag[16];
-    std::snprintf(tag, sizeof tag, "%08x", static_cast<unsigned>(rd()));
-    std::string name(1, '.');
-    name.append(target.filename().string()).append(".part-").append(tag);
-    temp = target.parent_path() / name;
-    const int fd = ::open(temp.c_str(), O_RDWR | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
-    if (fd >= 0) return fd;
-    if (errno != EEXIST) {
-      const int e = errno;
-      throw io_error("cannot write " + quoted_path(target) + ": " + std::strerror(e));
-    }
-  }
-  throw io_error("cannot write " + quoted_path(target) + ": no free temporary name beside it");
-}
-
 }  // namespace
 
 sound_writer sound_writer::create(const fs::path& path, const write_settings& s) {
@@ -382,20 +362,15 @@ sound_writer sound_writer::create(const fs::path& path, const write_settings& s)
     throw input_error("channel count must be 1 to 64, got " + std::to_string(s.channels));
   if (path.empty()) throw io_error("no output file given");
   std::error_code ec;
-  const fs::path folder = path.has_parent_path() ? path.parent_path() : fs::path(".");
-  if (!fs::is_directory(folder, ec))
-    throw io_error("cannot write " + quoted_path(path) + ": the folder " + quoted_path(folder) + " does not exist");
   if (fs::is_directory(path, ec)) throw io_error("cannot write " + quoted_path(path) + ": it is a folder");
   for (const fs::path& in : s.inputs)
     if (same_file(path, in)) throw io_error("cannot write " + quoted_path(path) + ": it is the input file; choose another name");
-  if (!s.overwrite && fs::exists(path, ec))
-    throw file_exists_error("cannot write " + quoted_path(path) + ": the file exists");
 
   sound_writer w;
   w.target_ = path;
   w.settings_ = s;
   w.dither_state_ = s.dither_seed;
-  w.fd_ = create_temporary(path, w.temp_);
+  w.out_.emplace(base::output_file::create(path, s.overwrite ? base::existing::replace : base::existing::refuse));
   SF_INFO si{};
   si.samplerate = static_cast<int>(s.rate_hz);
   si.channels = s.channels;
@@ -405,7 +380,7 @@ sound_writer sound_writer::create(const fs::path& path, const write_settings& s)
     throw input_error("libsndfile cannot write " + std::string(sample_format_name(s.format)) + " with " +
                       std::to_string(s.channels) + " channels at " + base::format_number(s.rate_hz) + " Hz");
   }
-  w.file_ = sf_open_fd(w.fd_, SFM_WRITE, &si, SF_FALSE);
+  w.file_ = sf_open_fd(w.out_->fd(), SFM_WRITE, &si, SF_FALSE);
   if (!w.file_) {
     const std::string why = sndfile_reason(nullptr);
     w.discard();
@@ -416,9 +391,8 @@ sound_writer sound_writer::create(const fs::path& path, const write_settings& s)
 
 sound_writer::sound_writer(sound_writer&& o) noexcept
     : file_(std::exchange(o.file_, nullptr)),
-      fd_(std::exchange(o.fd_, -1)),
+      out_(std::exchange(o.out_, std::nullopt)),
       target_(std::move(o.target_)),
-      temp_(std::exchange(o.temp_, {})),
       settings_(std::move(o.settings_)),
       frames_(o.frames_),
       clipped_(o.clipped_),
@@ -429,9 +403,8 @@ sound_writer& sound_writer::operator=(sound_writer&& o) noexcept {
   if (this != &o) {
     discard();
     file_ = std::exchange(o.file_, nullptr);
-    fd_ = std::exchange(o.fd_, -1);
+    out_ = std::exchange(o.out_, std::nullopt);
     target_ = std::move(o.target_);
-    temp_ = std::exchange(o.temp_, {});
     settings_ = std::move(o.settings_);
     frames_ = o.frames_;
     clipped_ = o.clipped_;
@@ -446,13 +419,7 @@ sound_writer::~sound_writer() { discard(); }
 void sound_writer::discard() noexcept {
   if (file_) sf_close(file_);
   file_ = nullptr;
-  if (fd_ >= 0) ::close(fd_);
-  fd_ = -1;
-  if (!temp_.empty()) {
-    std::error_code ec;
-    fs::remove(temp_, ec);
-    temp_.clear();
-  }
+  out_.reset();  // removes the temporary
 }
 
 // SplitMix64 (Steele, Lea & Flood, "Fast splittable pseudorandom number generators",
@@ -505,8 +472,8 @@ void sound_writer::write(std::span<const double> x) {
   frames_ += frames;
 }
 
-void sound_writer::commit() {
-  if (!file_) throw internal_error("commit of a finished or failed sound file");
+base::output_file sound_writer::finish() {
+  if (!file_ || !out_) throw internal_error("commit of a finished or failed sound file");
   const int e = sf_close(file_);
   file_ = nullptr;
   if (e != 0) {
@@ -514,24 +481,16 @@ void sound_writer::commit() {
     discard();
     throw io_error("cannot write " + quoted_path(target_) + ": " + why);
   }
-  if (::fsync(fd_) != 0 || ::close(fd_) != 0) {
-    const int err = errno;
-    fd_ = -1;
-    discard();
-    throw io_error("cannot write " + quoted_path(target_) + ": " + std::strerror(err));
-  }
-  fd_ = -1;
-  std::error_code ec;
-  if (!settings_.overwrite && fs::exists(target_, ec)) {
-    discard();
-    throw file_exists_error("cannot write " + quoted_path(target_) + ": the file appeared while writing");
-  }
-  fs::rename(temp_, target_, ec);
-  if (ec) {
-    discard();
-    throw io_error("cannot write " + quoted_path(target_) + ": " + ec.message());
-  }
-  temp_.clear();
+  out_->finish();
+  base::output_file done = std::move(*out_);
+  out_.reset();
+  return done;
+}
+
+void sound_writer::commit() {
+  base::output_set set;
+  set.add(finish());
+  set.commit();
 }
 
 }  // namespace pinchoff::dsp

@@ -11,10 +11,12 @@
 // seconds and the channel, counted from 1).
 // A file whose header promises more audio than it holds is refused as truncated.
 //
-// Writing: WAV 16-bit, WAV 24-bit, WAV 32-bit float and FLAC 24-bit. The samples go to a
-// temporary file beside the target, created with the user's umask, and are renamed into
-// place only by commit(); a writer destroyed without commit() removes the temporary, so a
-// failure or an interrupted run leaves no half-written file. Integer encodings are
+// Writing: WAV 16-bit, WAV 24-bit, WAV 32-bit float and FLAC 24-bit, through the program's
+// one output writer (base/output_file.hpp): the samples go to a temporary file in the
+// target's folder, created with the user's umask, that becomes the target only when
+// committed (alone by commit(), or with other outputs, all or none, by finish() and a
+// base::output_set); a writer destroyed before that removes the temporary, so a failure or
+// an interrupted run leaves no half-written file. Integer encodings are
 // quantised here, not by libsndfile: code = round(x * 2^(bits-1)), clipped to
 // [-2^(bits-1), 2^(bits-1) - 1], so that reading back returns x within half a step
 // (1/65536 for 16-bit, 1/2^24 for 24-bit) when |x| < 1. Clipped samples are counted.
@@ -37,6 +39,8 @@
 #include <string>
 #include <string_view>
 #include <vector>
+
+#include "base/output_file.hpp"
 
 typedef struct sf_private_tag SNDFILE;  // libsndfile's opaque handle (sndfile.h)
 
@@ -142,10 +146,13 @@ class sound_writer {
   /// Appends interleaved frames (size a multiple of channels). Throws io_error when the
   /// write fails (a full disk), internal_error on a non-finite sample.
   void write(std::span<const double> interleaved);
-  /// Finishes the file and renames it into place. Throws io_error when that fails (the
-  /// temporary is then removed), or when the target appeared meanwhile and overwrite is
-  /// not set.
+  /// Finishes the file and puts it in place. Throws io_error when that fails (the
+  /// temporary is then removed), file_exists_error when the target appeared meanwhile and
+  /// overwrite is not set.
   void commit();
+  /// Finishes the file and hands it over uncommitted, to be committed with other outputs
+  /// (base::output_set). Throws io_error when the file cannot be completed.
+  base::output_file finish();
 
   std::int64_t frames_written() const noexcept { return frames_; }
   std::int64_t clipped_samples() const noexcept { return clipped_; }
@@ -156,8 +163,8 @@ class sound_writer {
   sound_writer() = default;
   void discard() noexcept;
   SNDFILE* file_{nullptr};
-  int fd_{-1};
-  std::filesystem::path target_, temp_;
+  std::optional<base::output_file> out_;
+  std::filesystem::path target_;
   write_settings settings_;
   std::int64_t frames_{0}, clipped_{0};
   std::vector<int> codes_;  // scratch for integer encodings

@@ -444,7 +444,10 @@ void finish_outputs(render_plan& p, render_report& rep) {
                            quoted_path(o.path) + " for " + std::to_string(p.info.frames) + " input frames");
   }
   check_stop(*p.control);
-  for (dsp::sound_writer& w : p.writers) w.commit();
+  base::output_set own;
+  base::output_set& finished = p.control->outputs ? *p.control->outputs : own;
+  for (dsp::sound_writer& w : p.writers) finished.add(w.finish());
+  own.commit();
   rep.seconds = std::chrono::duration<double>(clock_type::now() - p.t0).count();
   rep.realtime_factor = rep.seconds > 0 ? p.info.seconds() / rep.seconds : 0.0;
   p.report_progress(p.total_work, p.total_frames);

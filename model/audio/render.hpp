@@ -27,9 +27,11 @@
 //   The dry output (the input itself, scaled the same way) takes part when asked for.
 // Peaks are sample peaks of the written values (true peaks are reported beside them).
 //
-// Files: every output is written to a temporary file beside it and renamed into place
-// only when all of them are complete (dsp::sound_writer); an output that is the input or
-// that exists without `overwrite` is refused before any work starts. A float input holding
+// Files: every output is written to a temporary file beside it (dsp::sound_writer) and
+// committed only when all of them are complete, all or none (base::output_set): by
+// render() itself, or, when `control.outputs` is given, by the caller once it has done
+// everything else that can fail. An output that is the input or that exists without
+// `overwrite` is refused before any work starts. A float input holding
 // NaN or infinity is refused naming the first position (dsp::sound_reader).
 // Interrupt: `stop` is checked every block; when set, render() removes its temporaries and
 // throws pinchoff::interrupted.
@@ -42,6 +44,7 @@
 #include <string>
 #include <vector>
 
+#include "base/output_file.hpp"
 #include "dsp/oversampler.hpp"
 #include "dsp/io/sound_file.hpp"
 #include "model/engine/dk_engine.hpp"
@@ -130,6 +133,9 @@ struct render_progress {
 struct render_control {
   std::function<void(const render_progress&)> progress;  ///< called from the calling thread
   const std::atomic<bool>* stop{nullptr};                 ///< set (e.g. by SIGINT) to abandon
+  /// When given, the finished outputs are added here, uncommitted, for the caller to
+  /// commit with its other outputs; otherwise render() commits them itself.
+  base::output_set* outputs{nullptr};
 };
 
 struct output_report {

@@ -181,11 +181,21 @@ struct fixtures {
     pinchoff::testing::copy_with_float_sample(f("float48.wav"), f("inf48.wav"), 4800, 0x7f800000u);
     fs::create_directory(f("made"));
     write(f("made/taken.wav"), "x");
+    write(f("made/dry.wav"), "x");
     // A second stage file whose name matches the first: both would render to stage.wav.
     fs::create_directory(f("other"));
     write(f("other/stage.toml"), good_stage);
     write(f("second.toml"), good_stage);
     write(f("h-vd.svg"), good_stage);  // a stage file that a histogram name would match
+    // Outputs against inputs: a stage that reads the class file beside it, a link and a
+    // hard link to the stage file, and a stage named as render's dry output is.
+    fs::create_directory(f("cls"));
+    write(f("cls/devices.toml"),
+          "[general]\nidss = \"2m..8m\"\nvp = \"-1..-3\"\ntypical_idss = \"5m\"\ntypical_vp = -1.8\n");
+    write(f("cls/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
+    fs::create_symlink(f("stage.toml"), f("link-to-stage.svg"));
+    fs::create_hard_link(f("stage.toml"), f("hard-stage.svg"));
+    write(f("dry.toml"), good_stage);
   }
 };
 
@@ -462,6 +472,22 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"--set design number beyond any count", {"compare", "@stage.toml", "@second.toml", "--set", "99999999999999999999:drain.resistor=1k"}, {"--set 99999999999999999999:drain.resistor=1k", "there is no design"}},
       {"--target value beyond a double", {"tune", "@stage.toml", "--target", "vd=1e400"}, {"--target vd", "'1e400' is beyond the numbers"}},
       {"--require end beyond a double", {"spread", "@stage.toml", "--require", "vd=1e-400..", "--runs", "10"}, {"--require vd", "'1e-400' is beyond the numbers"}},
+
+      // ---- outputs against inputs and against each other: checked once, before any work,
+      // for every command that writes (cli/command_files.hpp); the message names the option
+      // and both files.
+      {"measure --plot onto its --against stage file", {"measure", "@rec.wav", "--against", "@stage.toml", "--drive", "100mV", "--plot", "@stage.toml"}, {"--plot", "@stage.toml", "it is the input file", "the --against stage file"}},
+      {"response --plot onto the class file its stage reads", {"response", "@cls/stage.toml", "--plot", "@cls/devices.toml"}, {"--plot", "@cls/devices.toml", "it is the input file", "the device-class file", "@cls/stage.toml"}},
+      {"sweep --plot onto the class file its stage reads", {"sweep", "@cls/stage.toml", "--plot", "@cls/devices.toml"}, {"--plot", "@cls/devices.toml", "device-class file"}},
+      {"--plot through a symbolic link to the stage file", {"response", "@stage.toml", "--plot", "@link-to-stage.svg"}, {"--plot", "@link-to-stage.svg", "it is the input file", "@stage.toml"}},
+      {"--plot onto a hard link of the stage file", {"sweep", "@stage.toml", "--plot", "@hard-stage.svg"}, {"@hard-stage.svg", "it is the input file"}},
+      {"--plot onto the stage file by way of '..'", {"compare", "@stage.toml", "@second.toml", "--plot", "@other/../second.toml"}, {"--plot", "it is the input file", "a design file"}},
+      {"render output through a link to the stage file", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@link-to-stage.svg", "--force"}, {"--output", "@link-to-stage.svg", "it is the input file"}},
+      {"render --dry beside a stage named dry", {"render", "@dry.toml", "--input", "@rec48.wav", "--output", "@cmp", "--dry"}, {"two outputs would both be written", "dry.wav", "--output (for --dry)"}},
+      {"render --dry into a folder whose dry.wav exists, without --force", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@made", "--dry"}, {"--output (for --dry)", "dry.wav", "exists", "--force"}},
+      {"tone into a path under a file", {"tone", "@rec.wav/t.wav"}, {"OUT", "@rec.wav", "is not a folder"}},
+      {"--plot into a path under a file", {"sweep", "@stage.toml", "--plot", "@stage.toml/w.svg"}, {"--plot", "@stage.toml", "is not a folder"}},
+      {"measure --plot onto the recording through a link", {"measure", "@rec.wav", "--plot", "@folder/../rec.wav"}, {"--plot", "it is the input file", "the recording"}},
   };
 
   REQUIRE(rows.size() >= 180);

@@ -17,6 +17,7 @@
 #include <vector>
 
 #include "cli/plot.hpp"
+#include "base/output_file.hpp"
 #include "base/error.hpp"
 #include "support/png_size.hpp"
 
@@ -177,8 +178,13 @@ TEST_CASE("every plot kind renders with rsvg-convert at its stated size and name
       CHECK(r.svg.find(s) != std::string::npos);
     }
     const fs::path svg = dir.path / r.file;
-    write_svg_file(svg, r.svg, {});
-    CHECK_FALSE(fs::exists(dir.path / ("." + r.file + ".partial")));
+    {
+      pinchoff::base::output_set outputs;
+      add_svg_output(outputs, svg, r.svg);
+      outputs.commit();
+    }
+    for (const auto& e : fs::directory_iterator(dir.path))  // no temporary left
+      CHECK(e.path().filename().string().rfind(pinchoff::base::temporary_prefix(svg), 0) == std::string::npos);
     const fs::path png = dir.path / (r.file + ".png");
     REQUIRE(render_png(svg, png) == 0);
     const png_size size = read_png_size(png);
@@ -214,8 +220,9 @@ TEST_CASE("plots escape text, check their inputs, and refuse a missing folder") 
 
   const fs::path missing = fs::temp_directory_path() / "pinchoff-no-such-folder" / "plot.svg";
   try {
-    write_svg_file(missing, svg, {});
-    FAIL("write_svg_file accepted a missing folder");
+    pinchoff::base::output_set outputs;
+    add_svg_output(outputs, missing, svg);
+    FAIL("add_svg_output accepted a missing folder");
   } catch (const pinchoff::io_error& e) {
     CHECK(std::string(e.what()).find("does not exist") != std::string::npos);
     CHECK(std::string(e.what()).find("plot.svg") != std::string::npos);
