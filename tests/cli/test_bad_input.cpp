@@ -129,6 +129,25 @@ struct fixtures {
     // Current that hardly falls: the best square law has VP at infinity (found by fuzzing).
     write(f("flat.csv"), "rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,1.46m\n");
 
+    // ---- Sizes, special files and the ranges of values (the readers' bounds)
+    write(f("huge.toml"), std::string(good_stage) + "# " + std::string(std::size_t{1} << 20, 'x') + "\n");
+    write(f("huge.csv"), "vgs_v,id_a\n" + std::string(std::size_t{16} << 20, '#') + "\n");
+    ::mkfifo(f("nowriter.toml").c_str(), 0600);  // a FIFO no program writes to
+    fs::create_directory(f("hugeclass"));
+    write(f("hugeclass/devices.toml"), "[general]\nidss = \"1m..2m\"\n# " + std::string(std::size_t{1} << 20, 'x') + "\n");
+    write(f("hugeclass/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
+    fs::create_directory(f("wildclass"));
+    write(f("wildclass/devices.toml"),
+          "[general]\nidss = \"1m..8m\"\nvp = \"-0.5..-3\"\ntypical_idss = 1e300\ntypical_vp = -1.5\n");
+    write(f("wildclass/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
+    write(f("emptyclass.toml"), with_line(with_line(good_stage, 5, "class = \"\""), 6, ""));
+    write(f("bigint.toml"), with_line(good_stage, 11, "resistor = 9007199254740993"));  // above 2^53: once read as 0
+    write(f("denormal.toml"), with_line(good_stage, 11, "resistor = 1e-320"));
+    write(f("coldstage.toml"), with_line(good_stage, 1, "temperature = 1e-300"));
+    write(f("hugebeta.toml"), with_line(with_line(good_stage, 5, "beta = 1e300"), 6, "vto = -1.8"));
+    write(f("tinysupply.toml"), with_line(good_stage, 3, "volts = \"4.9e-324\""));
+    write(f("hugestring.toml"), with_line(good_stage, 11, "resistor = \"1e400\""));
+
     // Recordings, written by the project's own tone writer.
     REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "0.5", f("rec.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "0.5", "--format", "float", f("float.wav")}).status == 0);
@@ -298,7 +317,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"--require range with min above max", {"spread", "@stage.toml", "--require", "vd=5..3", "--runs", "10"}, {"--require vd", "minimum above its maximum"}},
       {"--require of an unknown quantity", {"spread", "@stage.toml", "--require", "vx=1..2", "--runs", "10"}, {"--require 'vx=1..2'", "QUANTITY"}},
       {"--require without a range", {"spread", "@stage.toml", "--require", "vd=3", "--runs", "10"}, {"--require vd", "LO..HI"}},
-      {"--runs of 0", {"spread", "@stage.toml", "--runs", "0"}, {"--runs: ", "1 to 10000000", "got 0"}},
+      {"--runs of 0", {"spread", "@stage.toml", "--runs", "0"}, {"--runs: ", "1 to 100000", "got 0"}},
       {"--json with --csv", {"spread", "@stage.toml", "--json", "--csv", "--runs", "10"}, {"--json and --csv"}},
       {"unknown --distribution", {"spread", "@stage.toml", "--distribution", "cauchy", "--runs", "10"}, {"--distribution", "cauchy"}},
       {"--plot into a folder that does not exist", {"spread", "@stage.toml", "--plot", "@nofolder/s.svg", "--runs", "10"}, {"nofolder", "does not exist"}},
@@ -445,6 +464,37 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"several stages into a folder whose parent does not exist", {"render", "@stage.toml", "@second.toml", "--input", "@rec48.wav", "--output", "@nofolder/cmp"}, {"@nofolder/cmp", "does not exist"}},
       {"two stage files of the same name", {"render", "@stage.toml", "@other/stage.toml", "--input", "@rec48.wav", "--output", "@cmp"}, {"two outputs would both be written", "stage.wav"}},
       {"a stage file with a misspelt key", {"render", "@typo.toml", "--input", "@rec48.wav", "--output", "@o.wav"}, {"@typo.toml:13:1:", "unknown key 'resistr'"}},
+      // ---- Sizes, special files and the ranges of values: every text input is read with a
+      // bound, and every value is checked against a physical range where it is read.
+      {"a stage file over 1 MiB", {"bias", "@huge.toml"}, {"@huge.toml", "holds more than 1 MiB", "the most a stage file may hold"}},
+      {"an endless device as the stage file", {"bias", "/dev/zero"}, {"'/dev/zero' is a device, not a stage file"}},
+      {"random bytes as the stage file", {"sweep", "/dev/urandom"}, {"'/dev/urandom' is a device, not a stage file"}},
+      {"a FIFO no program writes to", {"bias", "@nowriter.toml"}, {"@nowriter.toml", "the file is empty"}},
+      {"a class file over 1 MiB", {"bias", "@hugeclass/stage.toml"}, {"@hugeclass/stage.toml:5:", "hugeclass/devices.toml", "holds more than 1 MiB"}},
+      {"a class value outside its range", {"bias", "@wildclass/stage.toml"}, {"wildclass/devices.toml:4:", "general.typical_idss", "1 µA to 2 A"}},
+      {"an empty class name in the file", {"bias", "@emptyclass.toml"}, {"@emptyclass.toml:5:", "jfet.class is empty", "general-purpose"}},
+      {"an empty class name through --set", {"bias", "@stage.toml", "--set", "jfet.class="}, {"--set jfet.class", "jfet.class is empty"}},
+      {"a bench CSV over 16 MiB", {"fit", "@huge.csv"}, {"@huge.csv", "holds more than 16 MiB"}},
+      {"an endless device as the bench CSV", {"fit", "/dev/zero"}, {"'/dev/zero' is a device", "CSV file of bench readings"}},
+      {"--runs above the bound", {"spread", "@stage.toml", "--runs", "100001"}, {"--runs: ", "1 to 100000", "got 100001", "0.16 %"}},
+      {"--threads beyond any machine", {"spread", "@stage.toml", "--runs", "10", "--threads", "100000"}, {"--threads: ", "0 (one per core) to 256", "got 100000"}},
+      {"--threads below 0", {"spread", "@stage.toml", "--runs", "10", "--threads", "-1"}, {"--threads: ", "got -1"}},
+      {"--runs of ten million", {"spread", "@stage.toml", "--runs", "10000000"}, {"--runs: ", "1 to 100000", "gigabytes"}},
+      {"an integer above 2^53", {"bias", "@bigint.toml"}, {"@bigint.toml:11:12:", "drain.resistor = 9.01e+15", "1 mΩ to 1 GΩ"}},
+      {"a denormal resistance", {"bias", "@denormal.toml"}, {"@denormal.toml:11:12:", "drain.resistor = 1.00e-320", "lies outside"}},
+      {"a temperature near 0 K", {"bias", "@coldstage.toml"}, {"@coldstage.toml:1:", "temperature", "200 K to 450 K"}},
+      {"a beta that gives an absurd IDSS", {"bias", "@hugebeta.toml"}, {"@hugebeta.toml:5:", "jfet.beta = 1.00e+300", "1e-9 to 1000"}},
+      {"a denormal supply as a value string", {"bias", "@tinysupply.toml"}, {"@tinysupply.toml:3:", "'4.9e-324' is beyond the numbers"}},
+      {"a value string beyond a double", {"bias", "@hugestring.toml"}, {"@hugestring.toml:11:", "'1e400' is beyond the numbers"}},
+      {"a source resistor of 1e300 ohm", {"sweep", "@stage.toml", "--set", "source.resistor=1e300"}, {"--set source.resistor", "1 mΩ to 1 GΩ"}},
+      {"a coupling capacitor of 1e6 F", {"imd", "@stage.toml", "--set", "gate.coupling_cap=1e6"}, {"--set gate.coupling_cap", "1 pF to 1 F", "or 0 for none"}},
+      {"a supply resistance of 1e16 ohm", {"compare", "@stage.toml", "@second.toml", "--set", "supply.resistance=1e16"}, {"--set supply.resistance", "1 mΩ to 1 GΩ"}},
+      {"a gate resistor above 100 GOhm", {"bias", "@stage.toml", "--set", "gate.resistor=1e12"}, {"--set gate.resistor", "1 mΩ to 100 GΩ", "capsule"}},
+      {"a junction capacitance of 5 F", {"response", "@stage.toml", "--set", "jfet.cgs=5"}, {"--set jfet.cgs", "10 fF to 10 nF"}},
+      {"a supply of a microvolt", {"bias", "@stage.toml", "--set", "supply.volts=1u"}, {"--set supply.volts", "100 mV to 1 kV"}},
+      {"--set design number beyond any count", {"compare", "@stage.toml", "@second.toml", "--set", "99999999999999999999:drain.resistor=1k"}, {"--set 99999999999999999999:drain.resistor=1k", "there is no design"}},
+      {"--target value beyond a double", {"tune", "@stage.toml", "--target", "vd=1e400"}, {"--target vd", "'1e400' is beyond the numbers"}},
+      {"--require end beyond a double", {"spread", "@stage.toml", "--require", "vd=1e-400..", "--runs", "10"}, {"--require vd", "'1e-400' is beyond the numbers"}},
 
       // ---- outputs against inputs and against each other: checked once, before any work,
       // for every command that writes (cli/command_files.hpp); the message names the option
