@@ -8,6 +8,7 @@
 #include <sstream>
 
 #include "base/error.hpp"
+#include "base/text_file.hpp"
 #include "base/units.hpp"
 
 namespace pinchoff::base {
@@ -60,6 +61,9 @@ csv_table parse_csv(std::string_view text, std::string_view source) {
   csv_table t;
   t.source = std::string(source);
   if (text.find('\0') != std::string_view::npos) throw input_error(t.source + ": not a text file (it contains NUL bytes)");
+  // A spreadsheet's "CSV UTF-8" export starts with a byte-order mark; it is not part of the
+  // first column's name.
+  if (text.starts_with("\xEF\xBB\xBF")) text.remove_prefix(3);
   std::vector<std::string> fields;
   int line_no = 0;
   bool have_header = false;
@@ -106,14 +110,8 @@ csv_table parse_csv(std::string_view text, std::string_view source) {
   return t;
 }
 
-csv_table read_csv_file(const std::filesystem::path& path) {
-  std::error_code ec;
-  if (std::filesystem::is_directory(path, ec)) throw io_error("'" + path.string() + "' is a directory, not a CSV file");
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw io_error("cannot open '" + path.string() + "': " + std::strerror(errno));
-  std::ostringstream buf;
-  buf << in.rdbuf();
-  return parse_csv(buf.str(), path.string());
+csv_table read_csv_file(const std::filesystem::path& path, const text_file_kind& kind) {
+  return parse_csv(read_text_file(path, kind), path.string());
 }
 
 }  // namespace pinchoff::base

@@ -1,9 +1,12 @@
 #pragma once
 // A small reader for numeric CSV tables with a header row (bench notebooks, exported
 // measurements). Comma separated; blank lines and lines starting with '#' are skipped;
-// fields may be quoted with "..." (quotes doubled inside). Cells are read with
+// fields may be quoted with "..." (quotes doubled inside); a UTF-8 byte-order mark at the
+// start (a spreadsheet's default export) is skipped. Cells are read with
 // parse_value, so "2.5m" and "1k" work as in stage files.
 #include <filesystem>
+
+#include "base/text_file.hpp"
 #include <string>
 #include <string_view>
 #include <vector>
@@ -24,6 +27,7 @@ struct csv_table {
 /// (column) for a non-numeric cell, a row with the wrong number of cells, an empty table
 /// or a header with a repeated or empty name.
 csv_table parse_csv(std::string_view text, std::string_view source);
-csv_table read_csv_file(const std::filesystem::path& path);
+/// Reads a CSV file of at most kind.max_bytes (base/text_file.hpp).
+csv_table read_csv_file(const std::filesystem::path& path, const text_file_kind& kind);
 
 }  // namespace pinchoff::base

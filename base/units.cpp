@@ -6,6 +6,7 @@
 #include <cmath>
 #include <cstdio>
 #include <cctype>
+#include <limits>
 
 #include "base/error.hpp"
 
@@ -93,9 +94,17 @@ bool all_digits(std::string_view s) noexcept {
   return true;
 }
 
-std::optional<double> parse_impl(std::string_view text, unit u) noexcept {
+// Why a text was not read: not a value of the unit, or a number a double cannot hold
+// (beyond 1.8e308, or so small it would be denormal or zero: below 2.2e-308).
+enum class misread { none, not_a_value, out_of_range };
+
+std::optional<double> parse_impl(std::string_view text, unit u, misread* why = nullptr) noexcept {
+  auto fail = [why](misread m) -> std::optional<double> {
+    if (why != nullptr) *why = m;
+    return std::nullopt;
+  };
   std::string_view s = trim(text);
-  if (s.empty()) return std::nullopt;
+  if (s.empty()) return fail(misread::not_a_value);
   bool negative = false;
   if (s.front() == '+' || s.front() == '-') {
     negative = s.front() == '-';
@@ -106,7 +115,8 @@ std::optional<double> parse_impl(std::string_view text, unit u) noexcept {
   std::size_t lead_len = 0;
   if (!s.empty() && (std::isdigit(static_cast<unsigned char>(s.front())) || s.front() == '.')) {
     auto [ptr, ec] = std::from_chars(s.data(), s.data() + s.size(), number);
-    if (ec != std::errc{}) return std::nullopt;
+    if (ec == std::errc::result_out_of_range) return fail(misread::out_of_range);
+    if (ec != std::errc{}) return fail(misread::not_a_value);
     lead_len = static_cast<std::size_t>(ptr - s.data());
   }
   lead = s.substr(0, lead_len);
@@ -120,22 +130,26 @@ std::optional<double> parse_impl(std::string_view text, unit u) noexcept {
     std::size_t ndig = 0;
     while (ndig < after.size() && std::isdigit(static_cast<unsigned char>(after[ndig]))) ++ndig;
     if (ndig > 0) {
-      if (!(lead.empty() || lead_is_integer)) return std::nullopt;  // "4.7k7" is nonsense
+      if (!(lead.empty() || lead_is_integer)) return fail(misread::not_a_value);  // "4.7k7" is nonsense
       const std::string joined = std::string(lead.empty() ? "0" : lead) + "." + std::string(after.substr(0, ndig));
       auto [ptr, ec] = std::from_chars(joined.data(), joined.data() + joined.size(), number);
-      if (ec != std::errc{} || ptr != joined.data() + joined.size()) return std::nullopt;
+      if (ec == std::errc::result_out_of_range) return fail(misread::out_of_range);
+      if (ec != std::errc{} || ptr != joined.data() + joined.size()) return fail(misread::not_a_value);
       after.remove_prefix(ndig);
     } else if (lead.empty()) {
-      return std::nullopt;
+      return fail(misread::not_a_value);
     }
     multiplier = p->multiplier;
     s = after;
   } else if (lead.empty()) {
-    return std::nullopt;
+    return fail(misread::not_a_value);
   }
-  if (!is_unit_symbol(s, u)) return std::nullopt;
+  if (!is_unit_symbol(s, u)) return fail(misread::not_a_value);
   const double value = (negative ? -number : number) * multiplier;
-  if (!std::isfinite(value)) return std::nullopt;
+  // "1e308k" overflows once scaled; "1e-320" is denormal: neither is a value of a real part,
+  // and a denormal loses its digits (and turns to 0 or infinity in the arithmetic after).
+  if (!std::isfinite(value) || (value != 0.0 && std::fabs(value) < std::numeric_limits<double>::min()))
+    return fail(misread::out_of_range);
   return value;
 }
 
@@ -144,10 +158,14 @@ std::optional<double> parse_impl(std::string_view text, unit u) noexcept {
 std::optional<double> try_parse_value(std::string_view text, unit u) noexcept { return parse_impl(text, u); }
 
 double parse_value(std::string_view text, unit u, std::string_view what) {
-  if (auto v = parse_impl(text, u)) return *v;
+  misread why = misread::none;
+  if (auto v = parse_impl(text, u, &why)) return *v;
   std::string msg;
   if (!what.empty()) msg = std::string(what) + ": ";
-  msg += "cannot read '" + std::string(text) + "' as " + unit_noun(u);
+  if (why == misread::out_of_range)
+    msg.append("'").append(text).append("' is beyond the numbers this tool reads (magnitudes from 2.2e-308 to 1.8e308, or 0)");
+  else
+    msg += "cannot read '" + std::string(text) + "' as " + unit_noun(u);
   throw input_error(msg);
 }
 
@@ -256,9 +274,11 @@ std::string format_si(double value, std::string_view unit_symbol, int digits) {
   if (!std::isfinite(value)) return format_number(value, digits) + " " + std::string(unit_symbol);
   static constexpr std::array<const char*, 10> prefixes{"f", "p", "n", "µ", "m", "", "k", "M", "G", "T"};
   if (value == 0.0) return "0 " + std::string(unit_symbol);
-  int e3 = static_cast<int>(std::floor(std::log10(std::fabs(value)) / 3.0));
-  if (e3 < -5) e3 = -5;
-  if (e3 > 4) e3 = 4;
+  const int e3_raw = static_cast<int>(std::floor(std::log10(std::fabs(value)) / 3.0));
+  // Beyond the prefixes (below 1 f, from 1000 T) the number is written in scientific
+  // notation: scaling a denormal by 1e15 and rounding it gave "nan fV".
+  if (e3_raw < -5 || e3_raw > 4) return format_number(value, digits) + " " + std::string(unit_symbol);
+  int e3 = e3_raw;
   const double mant = value / std::pow(10.0, 3 * e3);
   // Rounding to `digits` may carry into the next prefix (999.7 -> 1000 -> 1.00 k).
   const int mag = static_cast<int>(std::floor(std::log10(std::fabs(mant))));
@@ -269,6 +289,67 @@ std::string format_si(double value, std::string_view unit_symbol, int digits) {
     rounded /= 1000.0;
   }
   return format_number(rounded, digits) + " " + prefixes[static_cast<std::size_t>(e3 + 5)] + std::string(unit_symbol);
+}
+
+std::string_view unit_symbol(unit u) noexcept {
+  switch (u) {
+    case unit::ohm: return "\xCE\xA9";
+    case unit::farad: return "F";
+    case unit::volt: return "V";
+    case unit::ampere: return "A";
+    case unit::hertz: return "Hz";
+    case unit::watt: return "W";
+    case unit::per_volt: return "/V";
+    case unit::kelvin: return "K";
+    case unit::none: return "";
+  }
+  return "";
+}
+
+std::string format_bound(double value, unit u) {
+  // Drops the zeros rounding adds: "1.00" -> "1", "4.70" -> "4.7", "1.00e-20" -> "1e-20".
+  auto trim_zeros = [](const std::string& num) {
+    const std::size_t e = num.find('e');
+    std::string mant = num.substr(0, e), exp = e == std::string::npos ? std::string() : num.substr(e);
+    if (mant.find('.') != std::string::npos) {
+      while (mant.back() == '0') mant.pop_back();
+      if (mant.back() == '.') mant.pop_back();
+    }
+    // "e-09" -> "e-9", "e+03" -> "e3"
+    if (!exp.empty()) {
+      std::string digits = exp.substr(1);
+      const bool minus = !digits.empty() && digits[0] == '-';
+      if (!digits.empty() && (digits[0] == '-' || digits[0] == '+')) digits.erase(0, 1);
+      while (digits.size() > 1 && digits[0] == '0') digits.erase(0, 1);
+      exp = std::string("e") + (minus ? "-" : "") + digits;
+    }
+    return mant + exp;
+  };
+  if (u == unit::per_volt || u == unit::kelvin || u == unit::none) {
+    const double mag = value == 0.0 ? 0.0 : std::floor(std::log10(std::fabs(value)));
+    char buf[64];
+    if (mag < -3 || mag >= 6) std::snprintf(buf, sizeof buf, "%.2e", value);
+    else std::snprintf(buf, sizeof buf, "%.*f", static_cast<int>(std::max(0.0, 2 - mag)), value);
+    std::string t = trim_zeros(buf);
+    const std::string_view sym = unit_symbol(u);
+    if (!sym.empty()) t.append(" ").append(sym);
+    return t;
+  }
+  const std::string t = format_si(value, unit_symbol(u), 3);  // "1.00 mΩ", "1.00e-20 A"
+  const std::size_t space = t.find(' ');
+  return trim_zeros(t.substr(0, space)) + t.substr(space);
+}
+
+std::string bounds_refusal(std::string_view what, double value, const value_bounds& b, unit u) {
+  const double m = std::fabs(value);
+  if (b.zero_means_none && value == 0.0) return {};
+  // A bound written with a prefix ("100u") may read a rounding below or above it.
+  if (m >= b.lo * (1 - 1e-12) && m <= b.hi * (1 + 1e-12)) return {};
+  std::string msg = std::string(what) + " = " + format_number(value, 3) + " lies outside " + format_bound(b.lo, u) + " to " +
+                    format_bound(b.hi, u) + (value < 0 ? " in magnitude" : "");
+  if (b.zero_means_none) msg += " (or 0 for none)";
+  if (!b.why.empty()) msg += ": " + std::string(b.why);
+  return msg;
 }
 
 }  // namespace pinchoff::base

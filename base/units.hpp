@@ -37,6 +37,25 @@ struct value_range {
 };
 value_range parse_range(std::string_view text, unit u = unit::none, std::string_view what = {}, bool any_order = false);
 
+/// The physical range of a value a user gives: within [lo, hi], or exactly 0 where
+/// `zero_means_none` (a part left out). `why` says where the bounds come from, for the
+/// message. Signed values (voltages) are checked by magnitude.
+struct value_bounds {
+  double lo{}, hi{};
+  bool zero_means_none{false};
+  std::string_view why{};
+};
+
+/// Empty when `value` (by magnitude) lies within `b`; else the message
+/// "WHAT = VALUE lies outside LO to HI (0: none): WHY", with the bounds in SI notation of `u`.
+std::string bounds_refusal(std::string_view what, double value, const value_bounds& b, unit u);
+
+/// The unit's symbol for messages ("Ω", "F", "V", "A", "Hz", "W", "/V", "K"; none: "").
+std::string_view unit_symbol(unit u) noexcept;
+
+/// A bound for messages: format_si with trailing zeros dropped ("1 mΩ", "100 GΩ", "4.7 kΩ").
+std::string format_bound(double value, unit u);
+
 /// "5%", "0.05" or "1%": a fraction (0.05). Must be in [0, 1).
 double parse_fraction(std::string_view text, std::string_view what = {});
 

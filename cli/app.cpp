@@ -1,6 +1,8 @@
 #include "cli/app.hpp"
 
 #include <algorithm>
+#include <cerrno>
+#include <cstring>
 #include <iostream>
 #include <sstream>
 
@@ -11,6 +13,23 @@
 #include "cli/command_files.hpp"
 
 namespace pinchoff::cli {
+namespace {
+
+// Writes what a command produced and makes sure it arrived: standard output on a full
+// disk, /dev/full or a closed pipe fails, and a report cut short is a failure (exit 1),
+// never a success.
+int deliver(std::ostream& out, std::ostream& err, const std::string& who, const std::string& text) {
+  errno = 0;
+  out << text;
+  out.flush();
+  if (out) return 0;
+  const int e = errno;
+  err << who << ": cannot write to standard output" << (e != 0 ? std::string(": ") + std::strerror(e) : std::string())
+      << " (the report is incomplete)\n";
+  return 1;
+}
+
+}  // namespace
 
 int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& err, const data_files& data) {
   CLI::App app{
@@ -59,14 +78,11 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
     const CLI::App* target = &app;
     for (const command& c : commands)
       if (c.sub->parsed()) target = c.sub;
-    out << target->help();
-    return 0;
+    return deliver(out, err, "pinchoff", target->help());
   } catch (const CLI::CallForAllHelp&) {
-    out << app.help("", CLI::AppFormatMode::All);
-    return 0;
+    return deliver(out, err, "pinchoff", app.help("", CLI::AppFormatMode::All));
   } catch (const CLI::CallForVersion&) {
-    out << std::string("pinchoff ") + PINCHOFF_VERSION << '\n';
-    return 0;
+    return deliver(out, err, "pinchoff", std::string("pinchoff ") + PINCHOFF_VERSION + "\n");
   } catch (const CLI::ParseError& e) {
     err << "pinchoff: " << e.what() << '\n';
     std::string which = "pinchoff";
@@ -115,9 +131,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
       err << "pinchoff " << c.sub->get_name() << ": internal failure: " << e.what() << '\n';
       return 1;
     }
-    out << report.str();
-    out.flush();
-    return 0;
+    return deliver(out, err, "pinchoff " + c.sub->get_name(), report.str());
   }
   return 2;
 }

@@ -13,6 +13,7 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "cli/option_text.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
@@ -54,17 +55,9 @@ std::vector<design_input> load_designs(const compare_options& o) {
   std::vector<std::string> common;
   std::vector<std::vector<std::string>> own(o.paths.size());
   for (const std::string& s : o.overrides) {
-    std::size_t digits = 0;
-    while (digits < s.size() && std::isdigit(static_cast<unsigned char>(s[digits]))) ++digits;
-    if (digits > 0 && digits < s.size() && s[digits] == ':') {
-      const unsigned long n = std::stoul(s.substr(0, digits));
-      if (n < 1 || n > o.paths.size())
-        throw input_error("--set " + s + ": there is no design " + s.substr(0, digits) + " (designs are numbered 1 to " +
-                          std::to_string(o.paths.size()) + " in the order given)");
-      own[n - 1].push_back(s.substr(digits + 1));
-    } else {
-      common.push_back(s);
-    }
+    design_set ds = parse_design_set(s, o.paths.size());
+    if (ds.design == 0) common.push_back(std::move(ds.set));
+    else own[ds.design - 1].push_back(std::move(ds.set));
   }
   std::vector<design_input> d;
   for (std::size_t i = 0; i < o.paths.size(); ++i) {

@@ -92,7 +92,7 @@ CLI::App* setup(CLI::App& app, fit_options& opt) {
 }
 
 void run(const fit_options& opt, std::ostream& out) {
-  const base::csv_table t = base::read_csv_file(opt.path);
+  const base::csv_table t = base::read_csv_file(opt.path, model::bench_readings_file_kind);
   const model::bench_table bt = model::readings_from_table(t);
   model::fit_result f;
   try {

@@ -68,6 +68,7 @@ struct measure_report {
   std::int64_t first_frame{0};
   std::size_t analysed{0};
   bool trimmed{false};  // ramps at the ends skipped
+  std::int64_t available{0};  // frames of the chosen part, before the bound (max_analysed_frames)
   double sample_peak{0.0};
   dsp::windowed_analysis a;
   std::optional<dsp::display_spectrum> spectrum;  // with --plot
@@ -111,8 +112,49 @@ std::optional<prediction> load_against(const measure_options& o) {
   p.overrides = o.overrides;
   p.drive_vpk = option_level_vpk(o.drive_text, "--drive");
   if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
+  // A generator's level, as render's --input-peak: beyond these no audio source is met
+  // (common practice), and the prediction's figures lose their meaning (1e300 V gave an
+  // infinite THD).
+  if (!(p.drive_vpk >= 1e-6 && p.drive_vpk <= 1e3))
+    throw input_error("--drive must be 1 µV to 1 kV peak at the generator, got " +
+                      (p.drive_vpk < 1e15 && p.drive_vpk >= 1e-15 ? format_si(p.drive_vpk, "V") : format_number(p.drive_vpk) + " V"));
   p.st = load_stage(p.path, p.overrides, o.devices);
   return p;
+}
+
+// The most frames measure analyses. The analysis holds the record, its windowed copies and
+// their transforms, about 70 bytes a frame (2.0 GB for 28.8 million frames, measured), so
+// 2^21 frames bound it near 150 MB: 43.7 s at 48 kHz, 10.9 s at 192 kHz; far more than the
+// resolution and noise floor of a bench measurement need. A longer part is analysed from
+// its start and the report says how much was left out.
+constexpr std::int64_t max_analysed_frames = std::int64_t{1} << 21;
+
+// Streams one channel of [first, first + count) and finds its steady part (dsp::steady_part,
+// from 10 ms block rms values), in frames relative to `first`; holds only the block values.
+dsp::sample_range stream_steady_part(dsp::sound_reader& rd, int channel, std::int64_t first, std::int64_t count) {
+  rd.seek(first);
+  const auto ch = static_cast<std::size_t>(rd.info().channels);
+  const std::size_t block = dsp::steady_block_samples(rd.info().rate_hz);
+  std::vector<double> buf(8192 * ch), rms;
+  double sum = 0.0;
+  std::size_t in_block = 0;
+  std::int64_t done = 0;
+  while (done < count) {
+    const std::size_t want = static_cast<std::size_t>(std::min<std::int64_t>(8192, count - done));
+    const std::size_t got = rd.read(std::span<double>(buf).first(want * ch));
+    if (got == 0) break;
+    for (std::size_t i = 0; i < got; ++i) {
+      const double v = buf[i * ch + static_cast<std::size_t>(channel)];
+      sum += v * v;
+      if (++in_block == block) {
+        rms.push_back(std::sqrt(sum / static_cast<double>(block)));
+        sum = 0.0;
+        in_block = 0;
+      }
+    }
+    done += static_cast<std::int64_t>(got);
+  }
+  return dsp::steady_part_of_blocks(rms, block, static_cast<std::size_t>(done));
 }
 
 measure_report analyse(const measure_options& o) {
@@ -126,8 +168,12 @@ measure_report analyse(const measure_options& o) {
   s.harmonics = o.harmonics;
   auto frequency = [](const std::string& text, const char* option) { return option_frequency_hz(text, option); };
   s.band_high_hz = frequency(o.bandwidth_text, "--bandwidth");
+  if (!(s.band_high_hz > s.band_low_hz))
+    throw input_error("--bandwidth " + o.bandwidth_text + " must lie above the band's low edge, " +
+                      format_si(s.band_low_hz, "Hz") + " (AES17)");
   if (o.freq_text != "auto") s.approx_fundamental_hz = frequency(o.freq_text, "--freq");
 
+  dsp::require_seekable_file(o.path, "measure reads the recording twice (to find its steady part, then to analyse it)");
   dsp::sound_reader rd = dsp::sound_reader::open(o.path);
   r.info = rd.info();
   r.channel = o.channel;
@@ -139,21 +185,28 @@ measure_report analyse(const measure_options& o) {
   r.band_high_hz = s.band_high_hz = std::min(s.band_high_hz, fs / 2);
   if (s.approx_fundamental_hz >= fs / 2)
     throw input_error("--freq " + o.freq_text + " lies above half the file's sample rate (" + format_si(fs / 2, "Hz") + ")");
+  if (o.freq_text != "auto" && s.approx_fundamental_hz < s.band_low_hz)
+    throw input_error("--freq " + o.freq_text + " lies below the measurement band, which starts at " +
+                      format_si(s.band_low_hz, "Hz") + " (AES17)");
   if (r.info.frames <= 0) throw input_error("'" + o.path + "' holds no audio (a header and no frames)");
-  r.first_frame = static_cast<std::int64_t>(std::llround(o.start_s * fs));
-  if (r.first_frame >= r.info.frames)
+  // In seconds first: a time far beyond the file does not fit in a count of frames.
+  const double frames_d = static_cast<double>(r.info.frames);
+  if (!(o.start_s * fs < frames_d - 0.5))
     throw input_error("--start " + format_number(o.start_s) + " s lies beyond the end of '" + o.path + "' (" +
                       format_number(r.info.seconds(), 4) + " s)");
-  rd.seek(r.first_frame);
-  const std::int64_t want = o.duration_s > 0.0 ? static_cast<std::int64_t>(std::llround(o.duration_s * fs)) : -1;
-  std::vector<double> x = dsp::read_channel(rd, o.channel - 1, want);
+  r.first_frame = static_cast<std::int64_t>(std::llround(o.start_s * fs));
+  std::int64_t count = r.info.frames - r.first_frame;
+  if (o.duration_s > 0.0 && o.duration_s * fs < static_cast<double>(count))
+    count = static_cast<std::int64_t>(std::llround(o.duration_s * fs));
   if (o.start_s == 0.0 && o.duration_s == 0.0) {
-    const dsp::sample_range keep = dsp::steady_part(x, fs);
-    r.trimmed = keep.begin != 0 || keep.end != x.size();
-    x.resize(keep.end);
-    x.erase(x.begin(), x.begin() + static_cast<std::ptrdiff_t>(keep.begin));
+    const dsp::sample_range keep = stream_steady_part(rd, o.channel - 1, r.first_frame, count);
+    r.trimmed = keep.begin != 0 || static_cast<std::int64_t>(keep.end) != count;
     r.first_frame += static_cast<std::int64_t>(keep.begin);
+    count = static_cast<std::int64_t>(keep.end - keep.begin);
   }
+  r.available = count;
+  rd.seek(r.first_frame);
+  std::vector<double> x = dsp::read_channel(rd, o.channel - 1, std::min(count, max_analysed_frames));
   if (x.size() < 64)
     throw input_error("'" + o.path + "' holds " + std::to_string(x.size()) + " frames to analyse; at least 64 are needed");
   x.resize(dsp::fast_analysis_length(x.size()));
@@ -253,6 +306,10 @@ void write_text(const measure_report& r, std::ostream& out) {
       << (r.info.channels == 1 ? " channel, " : " channels, ") << format_number(r.info.seconds(), 4) << " s\n";
   out << "  channel " << r.channel << ", " << format_number(static_cast<double>(r.analysed) / fs, 4) << " s analysed from "
       << fixed(static_cast<double>(r.first_frame) / fs, 3) << " s" << (r.trimmed ? " (fades or silence at the ends skipped)" : "")
+      << (r.available > max_analysed_frames
+              ? "\n  (the first part of " + format_number(static_cast<double>(r.available) / fs, 4) +
+                    " s: measure analyses at most " + std::to_string(max_analysed_frames) + " frames)"
+              : std::string())
       << "\n  window " << window_description(r.window) << "; band 20 Hz to " << format_si(r.band_high_hz, "Hz") << " (AES17)\n";
   if (!r.info.is_float && r.sample_peak >= 32767.0 / 32768.0)
     out << "  ! samples at full scale: the recording may be clipped, which adds harmonics of its own\n";
@@ -306,6 +363,8 @@ void write_json(const measure_report& r, std::ostream& out) {
                    {"start_s", static_cast<double>(r.first_frame) / fs},
                    {"duration_s", static_cast<double>(r.analysed) / fs},
                    {"ends_skipped", r.trimmed},
+                   {"available_s", static_cast<double>(r.available) / fs},
+                   {"max_analysed_frames", max_analysed_frames},
                    {"window", std::string(dsp::window_name(r.window))},
                    {"bandwidth_hz", r.band_high_hz},
                    {"fundamental_hz", a.fundamental_hz},
@@ -426,7 +485,10 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       "the noise are read, so a recording need not hold whole cycles. Use a flat-top window for\n"
       "a level read without scallop loss in the plot; the figures are read at the exact\n"
       "frequencies under either window. Record at least a second: the noise floor and the\n"
-      "resolution between close lines improve with length. --drive is the generator's open-circuit\n"
+      "resolution between close lines improve with length, up to 2097152 frames (43.7 s at 48 kHz,\n"
+      "10.9 s at 192 kHz; a longer recording is analysed from the start of its steady part, and\n"
+      "memory stays near 150 MB whatever the file's length). The recording must be a file, not a\n"
+      "pipe: it is read twice. --drive is the generator's open-circuit\n"
       "level as in `sweep`; the comparison is in dBc, so the recording's own gain does not matter.");
   return sub;
 }

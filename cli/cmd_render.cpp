@@ -138,6 +138,16 @@ std::string rate_text(double rate_hz) {
 
 std::string volts_text(double v) { return format_si(v, "V", 3); }
 
+// "channel 2" or "channels 1 and 2", counted from 1.
+std::string channel_list(const std::vector<int>& channels) {
+  std::string t = channels.size() == 1 ? "channel " : "channels ";
+  for (std::size_t i = 0; i < channels.size(); ++i) {
+    if (i > 0) t += i + 1 == channels.size() ? " and " : ", ";
+    t += std::to_string(channels[i]);
+  }
+  return t + (channels.size() == 1 ? " is" : " are");
+}
+
 // ---- Formatters
 
 void write_text(const render_outcome& run, std::ostream& out) {
@@ -156,7 +166,7 @@ void write_text(const render_outcome& run, std::ostream& out) {
   if (r.oversample_chosen) {
     const model::oversampling_choice& c = r.choice;
     if (c.probes.empty()) {
-      out << "  rate    auto: " << r.oversample << "x (the input is silent)\n";
+      out << "  rate    auto: " << r.oversample << "x (the input is silent or below the floor)\n";
     } else {
       out << "  rate    auto: " << r.oversample << "x, the lowest at which a " << format_si(c.probe_hz, "Hz", 3)
           << " sine at " << volts_text(c.probe_vpk) << " peak (the input's peak\n"
@@ -185,9 +195,9 @@ void write_text(const render_outcome& run, std::ostream& out) {
   t.add({"file", "applied gain", "0 dBFS =", "loudness", "sample peak", "true peak", "clipped"});
   for (const model::output_report& x : r.outputs) {
     const double gain_db = base::db_from_ratio(x.scale * (x.is_dry ? run.input_peak_v : 1.0));
-    t.add({x.path.string() + (x.is_dry ? " (dry)" : ""), db_text(gain_db, "dB"), volts_text(1.0 / x.scale),
-           lufs_text(x.loudness_lufs), dbfs_text(x.sample_peak, "dBFS"), dbfs_text(x.true_peak, "dBTP"),
-           std::to_string(x.clipped_samples)});
+    t.add({x.path.string() + (x.is_dry ? " (dry)" : ""), x.silent ? std::string("none") : db_text(gain_db, "dB"),
+           x.silent ? std::string("-") : volts_text(1.0 / x.scale), lufs_text(x.loudness_lufs),
+           dbfs_text(x.sample_peak, "dBFS"), dbfs_text(x.true_peak, "dBTP"), std::to_string(x.clipped_samples)});
   }
   t.write(out);
   out << "  applied gain: from volts at the load to full scale (0 dB: 1 V reads 0 dBFS); for the dry\n"
@@ -200,6 +210,20 @@ void write_text(const render_outcome& run, std::ostream& out) {
     out << "  ! " << line << '\n';
   };
   for (const model::output_report& x : r.outputs) {
+    if (x.silent)
+      note(x.path.string() + " is written as silence: " +
+           (x.input_below_floor ? "the input peaks at " + volts_text(r.input_peak_v) + " at the generator"
+                                : "the " + std::string(x.is_dry ? "input" : "stage's output") + " peaks at " + volts_text(x.peak_v)) +
+           ",\n    not above the floor of " + volts_text(r.floor_v) +
+           " (the engine's accepted error a sample): normalising would lift only numerical residue");
+    else if (!x.silent_channels.empty())
+      note(x.path.string() + ": " + channel_list(x.silent_channels) +
+           " below the floor of " + volts_text(r.floor_v) + " (the engine's accepted error a sample),\n    written as silence");
+    const double lift_db = base::db_from_ratio(x.scale * (x.is_dry ? run.input_peak_v : 1.0));
+    if (!x.silent && lift_db > 60.0)
+      note(x.path.string() + " was lifted by " + db_text(lift_db, "dB") + " to reach its level: its " +
+           (x.is_dry ? "input" : "stage's output") + " peaks at only " + volts_text(x.peak_v) +
+           ".\n    A click or hum that quiet comes out loud; check --input-peak, or fix the level with --output-peak");
     if (x.engine.failed > 0)
       note(x.path.string() + ": " + std::to_string(x.engine.failed) + " of " + std::to_string(x.engine.samples) +
            " engine samples did not converge (each held its previous solution); try a higher --oversample");
@@ -207,7 +231,7 @@ void write_text(const render_outcome& run, std::ostream& out) {
       note(x.path.string() + ": " + std::to_string(x.clipped_samples) + " samples beyond full scale" +
            (dsp::quantisation_bits(r.format) > 0 ? " were clipped" : " (kept in the float file; a player will clip them)") +
            "; raise --output-peak or leave it out to normalise");
-    if (!x.matched)
+    if (!x.matched && !x.silent)
       note(x.path.string() + " is silent (no 400 ms above -70 LUFS) and was left out of the loudness matching");
     if (x.true_peak > 1.0)
       note(x.path.string() + ": true peak above 0 dBTP; a converter may clip between samples (try --normalize -2dBFS)");
@@ -243,7 +267,10 @@ void write_json(const render_outcome& run, std::ostream& out) {
                      {"name", x.name},
                      {"dry", x.is_dry},
                      {"scale", x.scale},
-                     {"full_scale_v", 1.0 / x.scale},
+                     {"full_scale_v", x.scale > 0.0 ? nlohmann::json(1.0 / x.scale) : nlohmann::json(nullptr)},
+                     {"silent", x.silent},
+                     {"silent_channels", x.silent_channels},
+                     {"peak_v", x.peak_v},
                      {"loudness_lufs", number_or_null(x.loudness_lufs)},
                      {"sample_peak_dbfs", level_json(x.sample_peak)},
                      {"true_peak_dbtp", level_json(x.true_peak)},
@@ -274,6 +301,8 @@ void write_json(const render_outcome& run, std::ostream& out) {
                          {"files_beside", r.pipelined},
                          {"level", run.fixed_level ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
                          {"target_lufs", r.outputs.size() > 1 ? number_or_null(r.target_lufs) : nlohmann::json(nullptr)},
+                         {"silence_floor_v", r.floor_v},
+                         {"input_peak_v", r.input_peak_v},
                          {"outputs", outputs},
                          {"warnings", run.warnings},
                          {"seconds", r.seconds},
@@ -325,6 +354,7 @@ std::vector<model::render_stage> load_stages(const render_options& o, std::ostre
 // loudness-matched.
 void place_outputs(const render_options& o, model::render_job& job, base::output_set& outputs) {
   // The format decides the names; the input must open to know it.
+  dsp::require_seekable_file(o.input, "render reads its input more than once (survey, passes)");
   const dsp::sound_info info = dsp::sound_reader::open(o.input).info();
   const dsp::sample_format format = job.format ? *job.format : dsp::nearest_sample_format(info);
   const fs::path out_path(o.output);
@@ -379,12 +409,13 @@ command_files render_files(const render_options& o) {
 // Calls the model once, with a progress bar on a terminal and Ctrl-C or SIGTERM as its
 // stop. The files are left in `outputs`, for the caller to commit.
 render_outcome run(const render_options& o, std::ostream& err, base::output_set& outputs) {
+  // Ctrl-C from the start: whatever phase it lands in, the run stops at its next check.
+  const interrupt_guard guard;
   render_outcome r;
   model::render_job job = job_from(o);
   job.stages = load_stages(o, err, r.warnings);
   place_outputs(o, job, outputs);
 
-  const interrupt_guard guard;
   progress_bar bar(err, !o.quiet && stderr_is_terminal());
   model::render_control control;
   control.stop = guard.flag();
@@ -413,7 +444,7 @@ CLI::App* setup(CLI::App& app, render_options& o) {
   sub->add_option("STAGE", o.stages, "Stage files (TOML); several are rendered side by side, loudness-matched")
       ->required()
       ->expected(1, -1);
-  sub->add_option("--input", o.input, "Recording to play into the stage (WAV, FLAC, AIFF; 44.1 kHz or more)")
+  sub->add_option("--input", o.input, "Recording to play into the stage (WAV, FLAC, AIFF; 44.1 to 768 kHz; a file, not a pipe)")
       ->required()
       ->type_name("IN");
   sub->add_option("--output", o.output,
@@ -459,7 +490,9 @@ CLI::App* setup(CLI::App& app, render_options& o) {
       "Output level: normalised so the peak is at --normalize (-1 dBFS), and the applied gain is\n"
       "printed; --output-peak fixes it instead (the same stage always sounds as loud). Several\n"
       "stages (and --dry) come out at one integrated loudness (ITU-R BS.1770), so that the\n"
-      "comparison is not won by the louder stage. Each channel runs through its own copy of\n"
+      "comparison is not won by the louder stage. A channel whose input or stage output peaks\n"
+      "no higher than the engine's accepted error a sample (10.1 nV) is written as silence, never\n"
+      "lifted: an all-zero input gives all-zero files. Each channel runs through its own copy of\n"
       "the stage, starting at its DC operating point; the output keeps the input's length, rate,\n"
       "channels and sample format (unless --format), and is aligned with it sample for sample.\n"
       "Nothing is written until the output is complete: an existing file is kept (unless\n"

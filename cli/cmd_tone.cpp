@@ -47,7 +47,8 @@ struct tone_options {
 };
 
 // The fields dsp::tone_generator names in its errors, and the options that set them.
-const std::map<std::string, std::string, std::less<>> tone_options_of_fields{{"fade_seconds", "--fade-ms"}};
+const std::map<std::string, std::string, std::less<>> tone_options_of_fields{{"fade_seconds", "--fade-ms"},
+                                                                            {"rate_hz", "--rate"}};
 
 std::string trimmed(std::string_view t) {
   while (!t.empty() && std::isspace(static_cast<unsigned char>(t.front()))) t.remove_prefix(1);
@@ -194,6 +195,9 @@ tone_report plan_tone(const tone_options& o) {
   r.path = o.output;
   r.format = dsp::parse_sample_format(o.format_text);
   r.channels = o.channels;
+  if (o.channels < 1 || o.channels > 64)
+    throw input_error("--channels: channel count must be 1 to 64 (what " + quoted_path(o.output) + " can hold), got " +
+                      std::to_string(o.channels));
   r.dither = !o.no_dither;
   r.plan.frequency_hz = option_frequency_hz(o.freq_text, "--freq");
   r.plan.rate_hz = o.rate_hz;

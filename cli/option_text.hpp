@@ -3,9 +3,13 @@
 //   --set KEY=VALUE          -> model::stage_override   ("drain.resistor=4.7k", "name=Boost")
 //   --target vd=4.5          -> model::tune_target      (vd, id, vds, vs = a value; or center)
 //   --require vd=3.5..5.5    -> model::requirement      (either end may be left open)
+//   --set 2:KEY=VALUE        -> design_set              (compare: one design's override)
 // Each throws input_error naming the option and the text given, with an example.
 // Header-only: the fuzz targets, which link only the libraries below cli/, call these too.
 #include <algorithm>
+#include <charconv>
+#include <cstddef>
+#include <system_error>
 #include <string>
 #include <string_view>
 
@@ -37,6 +41,26 @@ inline model::stage_override parse_set(std::string_view spec) {
   if (o.section.empty() || o.key.empty() || o.key.find('.') != std::string::npos)
     throw input_error("--set '" + text + "': expected SECTION.KEY=VALUE, for example --set drain.resistor=4.7k");
   return o;
+}
+
+/// compare's "--set N:KEY=VALUE" (design N of `designs`, counted from 1) or "--set KEY=VALUE"
+/// (every design: design 0). The KEY=VALUE part is read later by parse_set.
+struct design_set {
+  std::size_t design{0};
+  std::string set;
+};
+inline design_set parse_design_set(std::string_view spec, std::size_t designs) {
+  std::size_t digits = 0;
+  while (digits < spec.size() && spec[digits] >= '0' && spec[digits] <= '9') ++digits;
+  if (digits == 0 || digits >= spec.size() || spec[digits] != ':') return {0, std::string(spec)};
+  std::size_t n = 0;
+  const auto [ptr, ec] = std::from_chars(spec.data(), spec.data() + digits, n);
+  // A number too large for any count of designs is no design either (it once escaped as
+  // an internal failure).
+  if (ec != std::errc{} || ptr != spec.data() + digits || n < 1 || n > designs)
+    throw input_error("--set " + std::string(spec) + ": there is no design " + std::string(spec.substr(0, digits)) +
+                      " (designs are numbered 1 to " + std::to_string(designs) + " in the order given)");
+  return {n, std::string(spec.substr(digits + 1))};
 }
 
 /// "vd=4.5", "id=1m", "vds=3.2", "vs=0.9" (real signs, SI values) or "center".

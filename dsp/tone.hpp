@@ -28,7 +28,7 @@ struct tone_step {
 
 struct tone_plan {
   double frequency_hz{1000.0};   ///< 0 < f < rate / 2
-  double rate_hz{48000.0};       ///< > 0
+  double rate_hz{48000.0};       ///< 1 Hz to max_tone_rate_hz
   std::vector<tone_step> steps;  ///< one step: a plain tone
   double fade_seconds{0.01};     ///< >= 0, at most half of every step (the last one: a quarter)
 };
@@ -41,6 +41,12 @@ std::vector<tone_step> level_staircase(double from_dbfs, double to_dbfs, double 
 /// The longest plan a tone_generator takes: one hour. Longer is taken for a slip of the
 /// keyboard (a length of 1e12 s would write until the disk is full).
 inline constexpr double max_tone_seconds = 3600.0;
+/// The lowest frequency a tone is made at (common practice: the audio band starts at 20 Hz).
+inline constexpr double min_tone_hz = 1.0;
+/// The quietest level a tone is made at: far under any converter's noise (common practice).
+inline constexpr double min_tone_dbfs = -200.0;
+/// The highest rate a tone is made at: the top rate of the file writer (dsp/io/sound_file.hpp).
+inline constexpr double max_tone_rate_hz = 768000.0;
 
 /// The plan's length in frames: the sum over steps of round(seconds * rate).
 std::int64_t tone_frames(const tone_plan& plan);
@@ -53,7 +59,8 @@ std::vector<steady_span> steady_spans(const tone_plan& plan);
 
 class tone_generator {
  public:
-  /// Validates the plan (throws input_error naming the bad value).
+  /// Validates the plan (throws input_error naming the bad value; setting_error naming the
+  /// field for rate_hz and fade_seconds).
   explicit tone_generator(const tone_plan& plan);
   /// Writes the next min(out.size(), frames left) mono samples; returns how many.
   std::size_t generate(std::span<double> out);

@@ -108,7 +108,7 @@ windowed_analysis analyse_windowed(std::span<const double> samples, double fs_hz
   std::size_t k0 = k_lo;
   for (std::size_t k = k_lo; k <= k_hi; ++k)
     if (p[k] > p[k0]) k0 = k;
-  if (!(p[k0] > 0.0)) throw input_error("no tone found in the record (it is silent)");
+  if (!(p[k0] > 0.0)) throw input_error("no tone found in the record (it is silent, or holds DC only)");
 
   // 3. Fine frequency under Blackman-Harris, whatever the measuring window.
   const std::vector<double> xbh =
@@ -121,6 +121,15 @@ windowed_analysis analyse_windowed(std::span<const double> samples, double fs_hz
   const std::complex<double> c = 2.0 * window_dtft(xw, f1_bins) / sw;
   r.fundamental_vpk = std::abs(c);
   const double h1 = r.fundamental_vpk;
+  // A line more than 200 dB below the record's peak is the rounding of the DC removal and
+  // the transform, not a tone: a 32-bit float sample holds 24 significant bits (IEEE 754),
+  // about 144 dB of its own magnitude, and an integer one fewer.
+  double peak = 0.0;
+  for (const double v : samples) peak = std::max(peak, std::abs(v));
+  if (!(h1 > no_tone_below * peak))
+    throw input_error("no tone found in the record: what is left after removing its DC lies " +
+                      base::format_number(-base::db_from_ratio(h1 / peak), 3) +
+                      " dB below its peak, at the rounding of the arithmetic (it holds DC only)");
 
   // The notch: subtract the fitted fundamental. The phase is reduced in long double turns:
   // turns < n/2, so its rounding stays below 1e-12 turn for records up to 10^7 samples.
@@ -180,19 +189,28 @@ windowed_analysis analyse_windowed(std::span<const double> samples, double fs_hz
   return r;
 }
 
+std::size_t steady_block_samples(double fs_hz) {
+  return std::max<std::size_t>(1, static_cast<std::size_t>(std::llround(0.01 * fs_hz)));
+}
+
 sample_range steady_part(std::span<const double> x, double fs_hz) {
   const std::size_t n = x.size();
-  const std::size_t block = std::max<std::size_t>(1, static_cast<std::size_t>(std::llround(0.01 * fs_hz)));
+  const std::size_t block = steady_block_samples(fs_hz);
   const std::size_t blocks = n / block;
-  if (blocks < 8) return {0, n};
   std::vector<double> rms(blocks);
-  double loudest = 0.0;
   for (std::size_t b = 0; b < blocks; ++b) {
     double s = 0.0;
     for (std::size_t t = b * block; t < (b + 1) * block; ++t) s += x[t] * x[t];
     rms[b] = std::sqrt(s / static_cast<double>(block));
-    loudest = std::max(loudest, rms[b]);
   }
+  return steady_part_of_blocks(rms, block, n);
+}
+
+sample_range steady_part_of_blocks(std::span<const double> rms, std::size_t block, std::size_t n) {
+  const std::size_t blocks = rms.size();
+  if (blocks < 8) return {0, n};
+  double loudest = 0.0;
+  for (const double v : rms) loudest = std::max(loudest, v);
   const auto settled = [&](std::size_t b, std::size_t next) { return rms[b] >= 0.99 * rms[next] && rms[b] >= 0.01 * loudest; };
   std::size_t first = 0;
   while (first + 1 < blocks && !settled(first, first + 1)) ++first;

@@ -61,9 +61,13 @@ struct windowed_analysis {
   double noise_floor_dbc_per_hz{};      ///< noise density relative to the fundamental's power, per hertz
 };
 
+/// A fundamental this far below the record's peak (-200 dB) is taken for rounding, not a tone.
+inline constexpr double no_tone_below = 1e-10;
+
 /// Analyses `samples` at fs_hz as described above. Throws input_error when the arguments
 /// are out of range, the record is shorter than 64 samples or too short for the band, or no
-/// tone is found (silence, or the band holds no bins).
+/// tone is found (silence, DC only: a fundamental at or below no_tone_below times the
+/// record's peak, or the band holds no bins).
 windowed_analysis analyse_windowed(std::span<const double> samples, double fs_hz,
                                    const windowed_settings& settings = {});
 
@@ -84,6 +88,11 @@ struct sample_range {
   std::size_t begin{}, end{};
 };
 sample_range steady_part(std::span<const double> samples, double fs_hz);
+/// The same from the blocks' rms alone (for a record streamed from a file): `rms` holds the
+/// rms of each whole block of `block` samples, `n` the record's length in samples.
+sample_range steady_part_of_blocks(std::span<const double> rms, std::size_t block, std::size_t n);
+/// The block length steady_part uses at fs_hz: 10 ms, at least one sample.
+std::size_t steady_block_samples(double fs_hz);
 
 /// The windowed amplitude spectrum for display, on a log frequency axis.
 /// The record (DC removed as in step 1) is windowed and transformed; a bin reads

@@ -55,5 +55,31 @@ check "version" 0 "$bin" --version
 printf 'rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,0.16m\n' > "$tmp/jig.csv"
 check "fit" 0 "$bin" fit "$tmp/jig.csv"
 grep -q '^\[jfet\]' "$tmp/out" || { echo "FAIL: fit printed no [jfet] block"; fail=1; }
+# A report that standard output cannot take (a full disk, /dev/full, a closed descriptor) is
+# exit 1 with a message on stderr, never success with the report cut short.
+stdout_fails() { # description, full|closed, command...
+  local what=$1 how=$2
+  shift 2
+  if [ "$how" = full ]; then "$@" >/dev/full 2>"$tmp/err"; else "$@" >&- 2>"$tmp/err"; fi
+  local got=$?
+  [ "$got" -eq 1 ] || { echo "FAIL: $what, standard output $how: exit $got, expected 1"; fail=1; }
+  grep -q "standard output" "$tmp/err" || { echo "FAIL: $what, standard output $how: no message"; cat "$tmp/err"; fail=1; }
+}
+for how in full closed; do
+  stdout_fails "bias" $how "$bin" bias "$presets/bass-booster-9v.toml"
+  stdout_fails "spread --csv" $how "$bin" spread "$presets/bass-booster-9v.toml" --runs 3000 --csv
+  stdout_fails "sweep --json" $how "$bin" sweep "$presets/clean-preamp-18v.toml" --steps 3 --json
+  stdout_fails "fit" $how "$bin" fit "$tmp/jig.csv"
+  stdout_fails "tone" $how "$bin" tone --seconds 0.1 --force "$tmp/tone2.wav"
+  stdout_fails "--help" $how "$bin" --help
+  stdout_fails "--version" $how "$bin" --version
+done
+# Devices and endless streams are no text files: refused by name, before anything is read.
+cp "$presets/bass-booster-9v.toml" "$tmp/alone.toml"
+PINCHOFF_DEVICES=/dev/zero check "PINCHOFF_DEVICES=/dev/zero" 2 "$bin" bias "$tmp/alone.toml" --set jfet.class=general-purpose
+grep -q "'/dev/zero' is a device, not a device-class file" "$tmp/err" || { echo "FAIL: PINCHOFF_DEVICES=/dev/zero message"; cat "$tmp/err"; fail=1; }
+check "bias /dev/zero" 2 "$bin" bias /dev/zero
+grep -q "'/dev/zero' is a device, not a stage file" "$tmp/err" || { echo "FAIL: bias /dev/zero message"; cat "$tmp/err"; fail=1; }
+check "bias through a pipe" 0 "$bin" bias <(cat "$presets/bass-booster-9v.toml")
 [ $fail -eq 0 ] && echo "end-to-end: all passed"
 exit $fail

@@ -295,6 +295,16 @@ void sound_reader::seek(std::int64_t frame) {
   position_ = frame;
 }
 
+void require_seekable_file(const fs::path& path, std::string_view why) {
+  std::error_code ec;
+  const fs::file_status st = fs::status(path, ec);
+  if (ec || !fs::exists(st)) return;  // the open names what is missing
+  if (fs::is_regular_file(st) || fs::is_directory(st)) return;  // a folder is refused by the open
+  const char* kind = fs::is_fifo(st) ? "a pipe" : fs::is_character_file(st) || fs::is_block_file(st) ? "a device" : "not a file";
+  throw io_error("cannot read " + quoted_path(path) + ": it is " + kind + ", and " + std::string(why) +
+                 "; save the audio to a file first");
+}
+
 std::vector<double> channel_of(std::span<const double> interleaved, int channels, int channel) {
   if (channels < 1 || channel < 0 || channel >= channels)
     throw input_error("channel " + std::to_string(channel + 1) + " does not exist (the audio has " + std::to_string(channels) +
@@ -454,7 +464,7 @@ void sound_writer::write(std::span<const double> x) {
     codes_.resize(x.size());
     for (std::size_t i = 0; i < x.size(); ++i) {
       double v = x[i] * scale;
-      if (settings_.tpdf_dither) v += uniform() + uniform();
+      if (settings_.tpdf_dither && v != 0.0) v += uniform() + uniform();  // digital silence stays silent
       double q = std::nearbyint(v);
       if (q < lo || q > hi) {
         q = std::clamp(q, lo, hi);

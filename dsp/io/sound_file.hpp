@@ -25,6 +25,8 @@
 // noise of power step^2/4 instead of distortion (Lipshitz, Wannamaker & Vanderkooy,
 // "Quantization and dither: a theoretical survey", JAES 40(5), 1992), at most 1.5 steps.
 // The dither sequence is deterministic (seeded), so the same call writes the same file.
+// An exact zero is written as code 0 without dither: digital silence (a channel the caller
+// writes as zeros) stays silent.
 // Float files store the values exactly as float (rounding to 24 significant bits) and
 // are never clipped. A non-finite sample given to write() is a caller bug (internal_error).
 //
@@ -110,6 +112,11 @@ class sound_reader {
   std::string name_;
   std::int64_t position_{0};
 };
+
+/// Throws io_error naming `path` when it is not a regular file (a pipe, a terminal, a
+/// device): for readers that open their input more than once or seek in it; `why` says
+/// what needs that, e.g. "render reads its input twice".
+void require_seekable_file(const std::filesystem::path& path, std::string_view why);
 
 /// One channel (counted from 0) of an interleaved block.
 std::vector<double> channel_of(std::span<const double> interleaved, int channels, int channel);

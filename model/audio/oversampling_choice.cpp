@@ -115,7 +115,7 @@ input_survey survey_samples(std::span<const double> interleaved, int channels, d
 }
 
 oversampling_choice choose_oversampling(std::span<const stage_ref> stages, double drive_vpk, double edge_hz,
-                                        double base_rate_hz, double target_dbc) {
+                                        double base_rate_hz, double target_dbc, const std::atomic<bool>* stop) {
   oversampling_choice ch;
   ch.target_dbc = target_dbc;
   ch.probe_vpk = drive_vpk;
@@ -131,6 +131,7 @@ oversampling_choice choose_oversampling(std::span<const stage_ref> stages, doubl
     opt.cycles = cycles;
     oversampling_probe p{factor, -400.0};
     for (const stage_ref& st : stages) {
+      if (stop && stop->load(std::memory_order_relaxed)) throw interrupted("interrupted; no output written");
       const steady_state_result ss = periodic_steady_state(*st.net, *st.op, rate_hz, drive_vpk, m, opt);
       const dsp::harmonic_analysis a = dsp::analyse_coherent(ss.output_v, rate_hz, cycles);
       p.alias_dbc = std::max(p.alias_dbc, a.alias_dbc);

@@ -79,8 +79,10 @@ struct stage_ref {
 };
 
 /// Lowest factor in 8, 16, 32, 64 at which the probe (see the file comment) of every stage
-/// aliases below target_dbc. drive_vpk >= 0; base_rate_hz > 40 kHz.
+/// aliases below target_dbc. drive_vpk >= 0; base_rate_hz > 40 kHz. Throws
+/// pinchoff::interrupted when `stop` is set (checked before each probe).
 oversampling_choice choose_oversampling(std::span<const stage_ref> stages, double drive_vpk, double edge_hz,
-                                        double base_rate_hz, double target_dbc = -80.0);
+                                        double base_rate_hz, double target_dbc = -80.0,
+                                        const std::atomic<bool>* stop = nullptr);
 
 }  // namespace pinchoff::model

@@ -12,6 +12,7 @@
 #include "dsp/loudness.hpp"
 #include "dsp/io/sample_spool.hpp"
 #include "base/units.hpp"
+#include "model/engine/dk_acceptance.hpp"
 
 namespace pinchoff::model {
 namespace fs = std::filesystem;
@@ -96,7 +97,7 @@ std::vector<double> loudness_matched_scales(std::span<const double> loudness_luf
   std::vector<double> scales(peak.size());
   for (std::size_t i = 0; i < peak.size(); ++i) {
     if (std::isfinite(loudness_lufs[i]) && peak[i] > 0.0) scales[i] = base::ratio_from_db(target_lufs - loudness_lufs[i]);
-    else scales[i] = peak[i] > 0.0 ? ceiling / peak[i] : 1.0;
+    else scales[i] = peak[i] > 0.0 ? ceiling / peak[i] : 0.0;
   }
   return scales;
 }
@@ -112,18 +113,40 @@ namespace {
 
 using clock_type = std::chrono::steady_clock;
 
+// The input's range: the loudness meter's and the writer's top rate (dsp/loudness.hpp,
+// dsp/io/sound_file.hpp), and their channel count.
+constexpr double max_input_rate_hz = 768000.0;
+constexpr int max_input_channels = 64;
+
 void check_stop(const render_control& c) {
   if (c.stop && c.stop->load(std::memory_order_relaxed)) throw interrupted("interrupted; no output written");
 }
 
-// Scales `values` in place and counts the samples a float file keeps beyond full scale.
-long long scale_and_count(std::span<double> values, double scale) {
+// With an SI prefix where one fits (1.00 µV, 2.00 kV), else plain (1e+300 V).
+std::string quantity_text(double v, const char* unit) {
+  const double a = std::fabs(v);
+  return a >= 1e-15 && a < 1e15 ? base::format_si(v, unit) : base::format_number(v) + " " + unit;
+}
+
+// Scales interleaved `values` in place, channel c by gains[c], and counts the samples a
+// float file keeps beyond full scale.
+long long scale_and_count(std::span<double> values, std::span<const double> gains) {
   long long beyond = 0;
-  for (double& v : values) {
-    v *= scale;
-    beyond += std::abs(v) > 1.0;
-  }
+  const std::size_t ch = gains.size();
+  for (std::size_t i = 0; i + ch <= values.size(); i += ch)
+    for (std::size_t c = 0; c < ch; ++c) {
+      double& v = values[i + c];
+      v *= gains[c];
+      beyond += std::abs(v) > 1.0;
+    }
   return beyond;
+}
+
+// Raises peaks[c] to the largest |value| of channel c in interleaved `values`.
+void track_peaks(std::span<const double> values, std::vector<double>& peaks) {
+  const std::size_t ch = peaks.size();
+  for (std::size_t i = 0; i + ch <= values.size(); i += ch)
+    for (std::size_t c = 0; c < ch; ++c) peaks[c] = std::max(peaks[c], std::abs(values[i + c]));
 }
 
 std::size_t output_count(const render_job& job) { return job.stages.size() + (job.dry_output ? 1 : 0); }
@@ -139,12 +162,20 @@ void check_job(const render_job& job) {
   if (!(job.input_peak_v > 0.0) || !std::isfinite(job.input_peak_v))
     throw setting_error("input_peak_v", "the input's full scale must stand for a level above 0 V, got " +
                                             base::format_number(job.input_peak_v));
+  // Beyond these no audio source or load is met (common practice), and the arithmetic
+  // would run out of range (a full scale of 1e-300 V lifts a volt to 1e300).
+  if (!(job.input_peak_v >= 1e-6 && job.input_peak_v <= 1e3))
+    throw setting_error("input_peak_v", "the input's full scale must stand for 1 µV to 1 kV peak at the generator, got " +
+                                            quantity_text(job.input_peak_v, "V"));
   if (job.oversample < 0 || job.oversample > 64 || (job.oversample & (job.oversample - 1)) != 0)
     throw setting_error("oversampling",
                         "oversampling must be 1, 2, 4, 8, 16, 32, 64 or auto, got " + std::to_string(job.oversample));
   if (job.level == output_level::fixed && !(job.full_scale_v > 0.0 && std::isfinite(job.full_scale_v)))
     throw setting_error("full_scale_v", "the full-scale level at the load must be above 0 V, got " +
                                             base::format_number(job.full_scale_v));
+  if (job.level == output_level::fixed && !(job.full_scale_v >= 1e-6 && job.full_scale_v <= 1e4))
+    throw setting_error("full_scale_v", "the full-scale level at the load must be 1 µV to 10 kV peak, got " +
+                                            quantity_text(job.full_scale_v, "V"));
   if (!(job.peak_dbfs <= 0.0))
     throw setting_error("peak_dbfs", "a peak of " + base::format_number(job.peak_dbfs) +
                                          " dBFS is above full scale (the peak must be -100 to 0 dBFS)");
@@ -172,8 +203,10 @@ void check_job(const render_job& job) {
   }
 }
 
-// ---- Phase: open the input, refusing one that holds no audio or is sampled too slowly.
+// ---- Phase: open the input, refusing one that is not a file (it is read more than once),
+// holds no audio, or whose rate or channels lie outside what render takes.
 dsp::sound_reader open_input(const fs::path& input) {
+  dsp::require_seekable_file(input, "render reads its input more than once (survey, passes)");
   dsp::sound_reader reader = dsp::sound_reader::open(input);
   const dsp::sound_info& info = reader.info();
   if (info.frames <= 0) throw input_error(quoted_path(input) + " holds no audio");
@@ -181,6 +214,13 @@ dsp::sound_reader open_input(const fs::path& input) {
     throw input_error(quoted_path(input) + " is at " + base::format_number(info.rate_hz, 6) +
                       " Hz; render needs 44.1 kHz or more (the oversampler keeps 0 to 20 kHz flat and free of "
                       "aliases, which needs a rate above 40 kHz)");
+  if (info.rate_hz > max_input_rate_hz)
+    throw input_error(quoted_path(input) + " says it is sampled at " + base::format_number(info.rate_hz, 6) +
+                      " Hz; render takes 44.1 to 768 kHz (768 kHz is the highest rate audio converters and the "
+                      "loudness meter take, and 64x of it already runs the engine at 49 MHz): is the header damaged?");
+  if (info.channels > max_input_channels)
+    throw input_error(quoted_path(input) + " has " + std::to_string(info.channels) + " channels; render takes 1 to " +
+                      std::to_string(max_input_channels) + " (one engine per channel and stage)");
   return reader;
 }
 
@@ -190,9 +230,13 @@ void choose_factor(const render_job& job, const render_control& control, render_
   if (job.oversample == 0) {
     rep.oversample_chosen = true;
     rep.survey = survey_input(job.input, control.stop);
+    check_stop(control);
     std::vector<stage_ref> refs;
     for (const render_stage& st : job.stages) refs.push_back({&st.net, &st.op});
-    rep.choice = choose_oversampling(refs, rep.survey.sample_peak * job.input_peak_v, rep.survey.edge_hz, rep.input.rate_hz);
+    // An input below the silence floor is rendered as silence: no probe for it.
+    const double drive_vpk = rep.survey.sample_peak * job.input_peak_v;
+    rep.choice = choose_oversampling(refs, drive_vpk > render_floor_v(job.engine) ? drive_vpk : 0.0, rep.survey.edge_hz,
+                                     rep.input.rate_hz, -80.0, control.stop);
     rep.oversample = rep.choice.factor;
   }
   rep.engine_rate_hz = rep.input.rate_hz * rep.oversample;
@@ -212,6 +256,9 @@ struct render_plan {
   std::vector<channel_renderer> units;
   std::vector<dsp::sample_spool> spools;        // two passes: the volts of each stage
   std::vector<dsp::loudness_meter> meters;      // pass 1: on volts (two passes) or on the written values (fixed)
+  std::vector<double> input_peak_v;             // per input channel, volts at the generator
+  std::vector<std::vector<double>> peak_v;      // per output and channel, pass-1 volts
+  std::vector<std::vector<double>> gains;       // per output and channel: the scale, or 0 below the floor
   // Progress: pass 1 costs a frame per unit-frame of engine work; a pass-2 frame of one
   // output (read, scale, write) is far cheaper (about 1/20 of an 8x engine frame).
   double total_frames{}, pass2_weight{}, total_work{};
@@ -267,6 +314,9 @@ render_plan plan_render(const render_job& job, const render_control& control, cl
   if (p.two_pass)
     for (std::size_t s = 0; s < p.n_stages; ++s) p.spools.push_back(dsp::sample_spool::create(job.stages[s].output));
   for (std::size_t i = 0; i < p.n_outputs; ++i) p.meters.emplace_back(p.info.channels, p.info.rate_hz);
+  p.input_peak_v.assign(p.ch, 0.0);
+  p.peak_v.assign(p.n_outputs, std::vector<double>(p.ch, 0.0));
+  p.gains.assign(p.n_outputs, std::vector<double>(p.ch, 1.0 / job.full_scale_v));
 
   rep.outputs.resize(p.n_outputs);
   for (std::size_t i = 0; i < p.n_outputs; ++i) {
@@ -305,11 +355,12 @@ void store_block(render_plan& p, const unit_outputs& set, std::vector<double>& s
       for (std::size_t k = 0; k < m; ++k) stage_frames[k * ch + c] = o[k];
     }
     const std::span<double> v = std::span<double>(stage_frames).first(m * ch);
+    track_peaks(v, p.peak_v[s]);
     if (p.two_pass) {
       p.meters[s].add(v);
       p.spools[s].write(v);
     } else {
-      rep.outputs[s].clipped_samples += scale_and_count(v, p.fixed_scale);
+      rep.outputs[s].clipped_samples += scale_and_count(v, p.gains[s]);
       p.meters[s].add(v);
       p.writers[s].write(v);
     }
@@ -338,7 +389,10 @@ void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
     const std::size_t n = reader.read(frames);
     if (n > 0) {
       for (std::size_t k = 0; k < n; ++k)
-        for (std::size_t c = 0; c < ch; ++c) in[c][k] = frames[k * ch + c] * job.input_peak_v;
+        for (std::size_t c = 0; c < ch; ++c) {
+          in[c][k] = frames[k * ch + c] * job.input_peak_v;
+          p.input_peak_v[c] = std::max(p.input_peak_v[c], std::abs(in[c][k]));
+        }
       if (job.dry_output) {
         for (std::size_t i = 0; i < n * ch; ++i) dry_frames[i] = frames[i] * job.input_peak_v;
         p.meters[p.n_stages].add(std::span<const double>(dry_frames).first(n * ch));
@@ -348,7 +402,10 @@ void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
       input_done = true;
     }
     unit_outputs& now = out[set];
+    // A unit that starts after a stop does nothing: many units a block (stages times
+    // channels) would otherwise delay the stop by the whole block.
     auto work = [&p, &in, &now, ch, n](std::size_t u) {
+      if (p.control->stop && p.control->stop->load(std::memory_order_relaxed)) return;
       now.produced[u] = n > 0 ? p.units[u].process(std::span<const double>(in[u % ch]).first(n), now.samples[u])
                               : p.units[u].finish(now.samples[u]);
     };
@@ -356,32 +413,49 @@ void first_pass(render_plan& p, dsp::sound_reader& reader, render_report& rep) {
       base::run_beside(n_units, rep.threads, work, [&] {
         if (have_previous) store_block(p, out[1 - set], stage_frames, rep);
       });
+      check_stop(*p.control);
       have_previous = true;
       if (input_done) store_block(p, out[set], stage_frames, rep);
       set = 1 - set;
     } else {
       base::run_parallel(n_units, 1, work);
+      check_stop(*p.control);
       store_block(p, out[set], stage_frames, rep);
     }
     p.report_progress(static_cast<double>(read_frames), static_cast<double>(read_frames));
   }
   for (std::size_t s = 0; s < p.n_stages; ++s)
     for (std::size_t c = 0; c < ch; ++c) rep.outputs[s].engine += p.units[s * ch + c].engine_stats();
+  if (job.dry_output) p.peak_v[p.n_stages] = p.input_peak_v;
 }
 
 // ---- Phase: the scales. Fixed: the job's. Normalised: each output's peak at the ceiling,
 // or, matching loudness, the common loudness no peak exceeds the ceiling at.
-void decide_scales(const render_plan& p, render_report& rep) {
+// Channels below the silence floor (render.hpp) take no part and are written as zeros.
+void decide_scales(render_plan& p, render_report& rep) {
   const render_job& job = *p.job;
+  rep.floor_v = render_floor_v(job.engine);
+  rep.input_peak_v = *std::max_element(p.input_peak_v.begin(), p.input_peak_v.end());
+  for (std::size_t i = 0; i < p.n_outputs; ++i)
+    rep.outputs[i].peak_v = *std::max_element(p.peak_v[i].begin(), p.peak_v[i].end());
   if (!p.two_pass) {
     rep.outputs[0].scale = p.fixed_scale;
     return;
   }
   const double ceiling = base::ratio_from_db(job.peak_dbfs);
-  std::vector<double> loud(p.n_outputs), peak(p.n_outputs);
+  std::vector<double> loud(p.n_outputs), peak(p.n_outputs, 0.0);
   for (std::size_t i = 0; i < p.n_outputs; ++i) {
-    loud[i] = p.meters[i].integrated_lufs();
-    peak[i] = p.meters[i].sample_peak();
+    output_report& o = rep.outputs[i];
+    bool input_below = true;
+    for (std::size_t c = 0; c < p.ch; ++c) {
+      const bool in_below = p.input_peak_v[c] <= rep.floor_v;
+      input_below = input_below && in_below;
+      if (in_below || p.peak_v[i][c] <= rep.floor_v) o.silent_channels.push_back(static_cast<int>(c) + 1);
+      else peak[i] = std::max(peak[i], p.peak_v[i][c]);
+    }
+    o.silent = o.silent_channels.size() == p.ch;
+    o.input_below_floor = o.silent && input_below;
+    loud[i] = o.silent ? -std::numeric_limits<double>::infinity() : p.meters[i].integrated_lufs();
   }
   if (job.match_loudness && p.n_outputs > 1) {
     const std::vector<double> scales = loudness_matched_scales(loud, peak, ceiling, rep.target_lufs);
@@ -390,7 +464,11 @@ void decide_scales(const render_plan& p, render_report& rep) {
       rep.outputs[i].matched = std::isfinite(loud[i]) && peak[i] > 0.0;
     }
   } else {
-    for (std::size_t i = 0; i < p.n_outputs; ++i) rep.outputs[i].scale = peak[i] > 0.0 ? ceiling / peak[i] : 1.0;
+    for (std::size_t i = 0; i < p.n_outputs; ++i) rep.outputs[i].scale = peak[i] > 0.0 ? ceiling / peak[i] : 0.0;
+  }
+  for (std::size_t i = 0; i < p.n_outputs; ++i) {
+    std::fill(p.gains[i].begin(), p.gains[i].end(), rep.outputs[i].scale);
+    for (const int c : rep.outputs[i].silent_channels) p.gains[i][static_cast<std::size_t>(c - 1)] = 0.0;
   }
 }
 
@@ -417,7 +495,7 @@ void second_pass(render_plan& p, render_report& rep) {
       }
       if (n == 0) break;
       const std::span<double> v = std::span<double>(buf).first(n * ch);
-      o.clipped_samples += scale_and_count(v, o.scale);
+      o.clipped_samples += scale_and_count(v, p.gains[i]);
       p.writers[i].write(v);
       work += static_cast<double>(n) * per_frame;
       p.report_progress(work, p.total_frames);
@@ -455,8 +533,11 @@ void finish_outputs(render_plan& p, render_report& rep) {
 
 }  // namespace
 
+double render_floor_v(const dk_options& engine) noexcept { return engine.tol_v + detail::rounding_allowance_v; }
+
 render_report render(const render_job& job, const render_control& control) {
   const auto t0 = clock_type::now();
+  check_stop(control);
   check_job(job);
   dsp::sound_reader reader = open_input(job.input);
   render_report rep;

@@ -27,6 +27,22 @@
 //   The dry output (the input itself, scaled the same way) takes part when asked for.
 // Peaks are sample peaks of the written values (true peaks are reported beside them).
 //
+// The silence floor (normalise and match_loudness): normalising divides by the output's
+// peak, so an output that holds only the engine's numerical residue (an all-zero input
+// leaves femtovolts at the load: the rounding of the rest voltage, which is several volts)
+// would be lifted by hundreds of dB into a full-scale step. The engine accepts a sample
+// when its port voltages are within floor_v = tol_v + the port equation's rounding
+// allowance (1.01e-8 V with the default options; model/engine/dk_stats.hpp and
+// dk_acceptance.hpp) of the exact solution, so a swing no larger than floor_v, at the
+// generator or at the load, may be all error: it is not a result. Per output and channel:
+// a stage's channel is below the floor when the input channel driving it peaks at or below
+// floor_v volts at the generator (in the file's terms floor_v / input_peak_v of full
+// scale: -160 dBFS at the default 1 V) or when the stage's swing at the load peaks at or
+// below floor_v; the dry output's channel when its input channel does. Such a channel is
+// written as digital silence (zeros), takes no part in the normalisation, and the report
+// lists it; an output whose channels are all below the floor is silent (scale 0) and is
+// left out of the loudness matching. A fixed scale lifts nothing and is written as it is.
+//
 // Files: every output is written to a temporary file beside it (dsp::sound_writer) and
 // committed only when all of them are complete, all or none (base::output_set): by
 // render() itself, or, when `control.outputs` is given, by the caller once it has done
@@ -108,12 +124,12 @@ struct render_job {
   std::filesystem::path input;
   std::vector<render_stage> stages;                 ///< at least one
   std::optional<std::filesystem::path> dry_output;  ///< also write the input itself
-  double input_peak_v{1.0};                         ///< generator volts for full scale, > 0
+  double input_peak_v{1.0};                         ///< generator volts for full scale, 1 µV to 1 kV
   /// 1, 2, 4, 8, 16, 32 or 64; 0: chosen from the input (model/audio/oversampling_choice.hpp)
   int oversample{8};
   output_level level{output_level::normalize};
   double peak_dbfs{-1.0};                           ///< normalize / match: peak ceiling, <= 0
-  double full_scale_v{1.0};                         ///< fixed: volts at the load for 0 dBFS, > 0
+  double full_scale_v{1.0};                         ///< fixed: volts at the load for 0 dBFS, 1 µV to 10 kV
   bool match_loudness{false};                       ///< several outputs: same integrated loudness
   std::optional<dsp::sample_format> format;         ///< default: nearest to the input's
   bool overwrite{false};
@@ -152,6 +168,13 @@ struct output_report {
   /// Samples at or beyond full scale: clipped in an integer file; a float file keeps them.
   long long clipped_samples{0};
   bool matched{true};            ///< false for a silent output that loudness matching left out
+  /// Normalised: every channel is below the silence floor (see the file comment), the file
+  /// holds zeros and `scale` is 0.
+  bool silent{false};
+  /// Why it is silent: the input is below the floor (else the stage's output is).
+  bool input_below_floor{false};
+  std::vector<int> silent_channels;  ///< channels (from 1) written as zeros below the floor
+  double peak_v{0};              ///< first pass: largest |volts| at the load (dry: at the generator)
   dk_stats engine;               ///< summed over the channels (not for dry)
 };
 
@@ -167,6 +190,8 @@ struct render_report {
   int threads{1};                ///< engine threads (at most one per unit)
   bool pipelined{false};         ///< the calling thread metered and stored beside them
   double target_lufs{0};         ///< match_loudness: the common loudness
+  double floor_v{0};             ///< the silence floor (volts; see the file comment)
+  double input_peak_v{0};        ///< largest |volts| of the input at the generator
   std::vector<output_report> outputs;  ///< the stages in order, then dry
   double seconds{0};             ///< wall time
   double realtime_factor{0};     ///< input duration / wall time
@@ -177,11 +202,15 @@ struct render_report {
 /// interrupted when control.stop was set.
 render_report render(const render_job& job, const render_control& control = {});
 
+/// The silence floor of a render with these engine options, volts (see the file comment).
+double render_floor_v(const dk_options& engine) noexcept;
+
 /// The gains that give every output the same integrated loudness without any peak above
 /// `ceiling` (ratio): loudness_lufs and peak of each output at scale 1; returns the scales.
-/// Outputs whose loudness is -infinity (silent) are scaled to the ceiling on their own
-/// peak (scale 1 when the peak is 0) and do not set the common loudness. `target_lufs`
-/// receives the common loudness (-infinity when every output is silent).
+/// Outputs whose loudness is -infinity (below BS.1770's gate) are scaled to the ceiling on
+/// their own peak and do not set the common loudness; an output whose peak is 0 (below the
+/// silence floor) gets scale 0. `target_lufs` receives the common loudness (-infinity when
+/// no output sets it).
 std::vector<double> loudness_matched_scales(std::span<const double> loudness_lufs, std::span<const double> peak,
                                             double ceiling, double& target_lufs);
 

@@ -1,6 +1,11 @@
 #include "model/circuit/network.hpp"
 
+#include <algorithm>
 #include <cmath>
+#include <string>
+#include <vector>
+
+#include "base/units.hpp"
 
 namespace pinchoff::model {
 
@@ -23,6 +28,7 @@ network build_network(const stage& s) {
   q.device = s.jfet;
   q.device.vp_v = net.sign * s.jfet.vp_v;
   net.vt_v = thermal_voltage(s.temperature_k);
+  net.source = s.file;
   net.supply_v = net.sign * s.supply.volts_v;
 
   // Supply: ideal source -> series resistance -> rail (with reservoir capacitor).
@@ -103,5 +109,24 @@ network build_network(const stage& s) {
   }
   return net;
 }
+
+std::string widest_parts(const network& net, double sample_rate_hz) {
+  struct part {
+    std::string_view key;
+    double siemens;
+    std::string value;
+  };
+  std::vector<part> parts;
+  for (const net_resistor& r : net.resistors)
+    if (r.ohm > 0) parts.push_back({r.key, 1.0 / r.ohm, base::format_si(r.ohm, "\xCE\xA9")});
+  if (sample_rate_hz > 0)
+    for (const net_capacitor& c : net.capacitors)
+      if (c.farad > 0) parts.push_back({c.key, 2.0 * c.farad * sample_rate_hz, base::format_si(c.farad, "F")});
+  if (parts.size() < 2) return {};
+  auto [lo, hi] = std::minmax_element(parts.begin(), parts.end(), [](const part& a, const part& b) { return a.siemens < b.siemens; });
+  return std::string(lo->key) + " (" + lo->value + ") against " + std::string(hi->key) + " (" + hi->value + ")";
+}
+
+std::string source_prefix(const network& net) { return net.source.empty() ? std::string() : net.source + ": "; }
 
 }  // namespace pinchoff::model

@@ -61,6 +61,7 @@ struct network {
   bool has_load{false};
   double vt_v{0};         ///< thermal voltage, the same for every JFET
   double sign{1.0};       ///< +1 n-channel, -1 p-channel (every JFET of the network)
+  std::string source;     ///< the stage file it was built from, for messages (may be empty)
 
   /// The first JFET: the stage's device for the analyses of a single stage.
   const net_jfet& jfet() const { return jfets.front(); }
@@ -70,5 +71,14 @@ struct network {
 
 /// Builds the network of a validated stage.
 network build_network(const stage& s);
+
+/// For a message when the network's matrix cannot be solved: the two parts whose
+/// conductances lie furthest apart (1/R; 2C/T for a capacitor at the sample period T, left
+/// out at DC when `sample_rate_hz` is 0), with their keys and values:
+/// "gate.resistor (100 GΩ) against gate.coupling_cap (1 F)".
+std::string widest_parts(const network& net, double sample_rate_hz);
+
+/// "FILE: " for messages about the network, or nothing when it was built in code.
+std::string source_prefix(const network& net);
 
 }  // namespace pinchoff::model

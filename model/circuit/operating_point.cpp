@@ -4,6 +4,7 @@
 #include <string>
 
 #include "base/error.hpp"
+#include "base/units.hpp"
 
 namespace pinchoff::model {
 
@@ -60,8 +61,8 @@ operating_point solve_operating_point(const network& net) {
     }
   }
   if (!op.newton.converged)
-    throw internal_error("no DC operating point found: Newton did not converge, even with source stepping (last residual " +
-                         std::to_string(op.newton.residual_a) + " A)");
+    throw internal_error(source_prefix(net) + "no DC operating point found: Newton did not converge, even with source stepping (largest "
+                         "current left unbalanced at a node: " + base::format_si(op.newton.residual_a, "A") + ")");
   op.x = x;
   op.at = terminals_of(net, x);
   return op;

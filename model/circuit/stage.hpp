@@ -43,6 +43,7 @@ struct output_part {
 
 struct stage {
   std::string name;
+  std::string file;           ///< the file it was read from, for messages; empty for a stage built in code
   topology topo{topology::common_source};
   polarity pol{polarity::n};
   double temperature_k{default_temperature_k};

@@ -1,6 +1,8 @@
 #include "model/circuit/stage_file.hpp"
 
 #include <algorithm>
+#include <cstdint>
+#include <optional>
 #include <cerrno>
 #include <cmath>
 #include <cstring>
@@ -12,9 +14,11 @@
 #include <toml++/toml.h>
 
 #include "base/error.hpp"
+#include "base/text_file.hpp"
 #include "base/toml_depth.hpp"
 #include "base/text.hpp"
 #include "base/units.hpp"
+#include "model/device/parameter_ranges.hpp"
 
 namespace pinchoff::model {
 namespace {
@@ -32,6 +36,7 @@ struct key_spec {
   std::string_view name;
   unit u;
   rule r;
+  base::value_bounds bounds{};  // by magnitude; lo == hi == 0: a text, no bounds
 };
 
 struct section_spec {
@@ -39,25 +44,45 @@ struct section_spec {
   std::vector<key_spec> keys;
 };
 
+// The ranges of the circuit's parts (the JFET's are in model/device/parameter_ranges.hpp).
+// Each lies decades beyond what audio stages use (common practice), so that a refusal is a
+// slip, and within what the solvers are checked to solve at every corner
+// (tests/model/circuit/test_stage_ranges.cpp).
+constexpr base::value_bounds resistor{1e-3, 1e9, false,
+                                      "from a wire's resistance to a thousand times a scope probe's 1 MΩ"};
+constexpr base::value_bounds optional_resistor{resistor.lo, resistor.hi, true, resistor.why};
+// The gate's resistors may be far larger: capsule bias resistors of 1 to 10 GΩ.
+constexpr base::value_bounds gate_resistor{1e-3, 1e11, false,
+                                           "from a wire's resistance to ten times the largest capsule bias resistors"};
+constexpr base::value_bounds capacitor{1e-12, 1.0, true,
+                                       "from a capsule's few picofarads to a large reservoir capacitor's tens of "
+                                       "millifarads"};
+constexpr base::value_bounds supply_volts{0.1, 1000.0, false,
+                                          "a JFET stage needs some volts across its part, and above 1 kV is no audio "
+                                          "JFET stage"};
+constexpr base::value_bounds temperature{200.0, 450.0, false,
+                                         "JFETs are rated from -55 to 150 degrees C (218 to 423 K)"};
+
 const std::vector<section_spec>& schema() {
+  namespace r = ranges;
   static const std::vector<section_spec> s{
-      {"supply", {{"volts", unit::volt, rule::any_sign}, {"resistance", unit::ohm, rule::non_negative},
-                  {"capacitance", unit::farad, rule::non_negative}}},
+      {"supply", {{"volts", unit::volt, rule::any_sign, supply_volts}, {"resistance", unit::ohm, rule::non_negative, optional_resistor},
+                  {"capacitance", unit::farad, rule::non_negative, capacitor}}},
       {"jfet", {{"polarity", unit::none, rule::any_sign}, {"class", unit::none, rule::any_sign},
-                {"idss", unit::ampere, rule::positive},
-                {"vp", unit::volt, rule::any_sign}, {"beta", unit::none, rule::positive},
-                {"vto", unit::volt, rule::any_sign}, {"lambda", unit::per_volt, rule::non_negative},
-                {"is", unit::ampere, rule::non_negative}, {"n", unit::none, rule::positive},
-                {"cgs", unit::farad, rule::non_negative}, {"cgd", unit::farad, rule::non_negative},
-                {"vds_max", unit::volt, rule::positive}, {"pd_max", unit::watt, rule::positive},
-                {"igf_max", unit::ampere, rule::positive}}},
-      {"signal", {{"impedance", unit::ohm, rule::non_negative}}},
-      {"gate", {{"coupling_cap", unit::farad, rule::non_negative}, {"resistor", unit::ohm, rule::positive},
-                {"bias_top", unit::ohm, rule::positive}, {"bias_bottom", unit::ohm, rule::positive}}},
-      {"drain", {{"resistor", unit::ohm, rule::non_negative}}},
-      {"source", {{"unbypassed", unit::ohm, rule::non_negative}, {"resistor", unit::ohm, rule::positive},
-                  {"bypass_cap", unit::farad, rule::non_negative}}},
-      {"output", {{"coupling_cap", unit::farad, rule::non_negative}, {"load", unit::ohm, rule::positive}}},
+                {"idss", unit::ampere, rule::positive, r::idss},
+                {"vp", unit::volt, rule::any_sign, r::vp}, {"beta", unit::none, rule::positive, r::beta},
+                {"vto", unit::volt, rule::any_sign, r::vp}, {"lambda", unit::per_volt, rule::non_negative, r::lambda},
+                {"is", unit::ampere, rule::non_negative, r::is}, {"n", unit::none, rule::positive, r::n},
+                {"cgs", unit::farad, rule::non_negative, r::junction_cap}, {"cgd", unit::farad, rule::non_negative, r::junction_cap},
+                {"vds_max", unit::volt, rule::positive, r::vds_max}, {"pd_max", unit::watt, rule::positive, r::pd_max},
+                {"igf_max", unit::ampere, rule::positive, r::igf_max}}},
+      {"signal", {{"impedance", unit::ohm, rule::non_negative, optional_resistor}}},
+      {"gate", {{"coupling_cap", unit::farad, rule::non_negative, capacitor}, {"resistor", unit::ohm, rule::positive, gate_resistor},
+                {"bias_top", unit::ohm, rule::positive, gate_resistor}, {"bias_bottom", unit::ohm, rule::positive, gate_resistor}}},
+      {"drain", {{"resistor", unit::ohm, rule::non_negative, optional_resistor}}},
+      {"source", {{"unbypassed", unit::ohm, rule::non_negative, optional_resistor}, {"resistor", unit::ohm, rule::positive, resistor},
+                  {"bypass_cap", unit::farad, rule::non_negative, capacitor}}},
+      {"output", {{"coupling_cap", unit::farad, rule::non_negative, capacitor}, {"load", unit::ohm, rule::positive, resistor}}},
   };
   return s;
 }
@@ -86,8 +111,12 @@ class reader {
 
   double number(const toml::node& node, const std::string& key, const key_spec& spec) const {
     double v = 0.0;
-    if (node.is_integer() || node.is_floating_point()) {
-      v = node.value<double>().value_or(0.0);
+    if (node.is_integer()) {
+      // toml++ gives no double for an integer it cannot hold exactly (above 2^53): read it
+      // rounded, as a float of the same digits is, never as a missing value.
+      v = static_cast<double>(*node.value<std::int64_t>());
+    } else if (node.is_floating_point()) {
+      v = *node.value<double>();
     } else if (node.is_string()) {
       const std::string text = *node.value<std::string>();
       auto parsed = base::try_parse_value(text, spec.u);
@@ -105,6 +134,7 @@ class reader {
     if (!std::isfinite(v)) fail_at(node.source(), key, key + ": value must be finite");
     if (spec.r == rule::positive && !(v > 0)) fail_at(node.source(), key, key + " must be above 0");
     if (spec.r == rule::non_negative && !(v >= 0)) fail_at(node.source(), key, key + " must not be negative");
+    if (const std::string m = base::bounds_refusal(key, v, spec.bounds, spec.u); !m.empty()) fail_at(node.source(), key, m);
     return v;
   }
 
@@ -173,7 +203,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   std::map<std::string, toml::source_region> where;  // for later messages
   std::string polarity_text = "n";
   toml::source_region polarity_where;
-  std::string class_name;
+  std::optional<std::string> class_name;
   toml::source_region class_where;
 
   for (auto&& [k, node] : root) {
@@ -190,7 +220,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
       continue;
     }
     if (key == "temperature") {
-      st.temperature_k = rd.number(node, key, {"temperature", unit::kelvin, rule::positive});
+      st.temperature_k = rd.number(node, key, {"temperature", unit::kelvin, rule::positive, temperature});
       continue;
     }
     const auto sec = std::find_if(schema().begin(), schema().end(), [&](const section_spec& s) { return s.name == key; });
@@ -242,9 +272,13 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   st.supply.capacitance_f = get("supply.capacitance");
 
   // A named class fills in whatever the file does not give (values given win).
-  if (!class_name.empty()) {
+  if (class_name && class_name->find_first_not_of(" \t") == std::string::npos)
+    rd.fail_at(class_where, "jfet.class",
+               "jfet.class is empty: give the name of a device class, such as \"general-purpose\" (README \"Stage "
+               "file\" lists them), or leave the key out");
+  if (class_name) {
     try {
-      st.jfet_class = find_device_class(class_name, device_file_for(std::filesystem::path(std::string(source_name)), devices_file));
+      st.jfet_class = find_device_class(*class_name, device_file_for(std::filesystem::path(std::string(source_name)), devices_file));
     } catch (const input_error& e) {
       rd.fail_at(class_where, "jfet.class", e.what());
     }
@@ -281,6 +315,10 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
                    (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
   st.jfet.vp_v = vp;
   st.jfet.idss_a = form_b ? get("jfet.beta") * vp * vp : get("jfet.idss");
+  if (form_b) {
+    const std::string m = base::bounds_refusal("the IDSS it gives (beta vto^2)", st.jfet.idss_a, ranges::idss, unit::ampere);
+    if (!m.empty()) rd.fail_at(where["jfet.beta"], "jfet.beta", "jfet.beta: " + m);
+  }
   st.jfet.lambda_per_v = get("jfet.lambda", 0.0);
   st.jfet.is_a = get("jfet.is", 1e-14);
   st.jfet.n = get("jfet.n", 1.0);
@@ -302,6 +340,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   st.output.coupling_cap_f = get("output.coupling_cap");
   st.output.load_ohm = get("output.load");
   if (st.name.empty()) st.name = std::string(source_name);
+  st.file = std::string(source_name);
 
   try {
     validate(st);
@@ -313,14 +352,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
 
 stage read_stage_file(const std::filesystem::path& path, std::span<const stage_override> overrides,
                       const std::filesystem::path& devices_file) {
-  std::error_code ec;
-  if (std::filesystem::is_directory(path, ec)) throw io_error("'" + path.string() + "' is a directory, not a stage file");
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw io_error("cannot open stage file '" + path.string() + "': " + std::strerror(errno));
-  std::ostringstream buf;
-  buf << in.rdbuf();
-  if (in.bad()) throw io_error("cannot read stage file '" + path.string() + "'");
-  const std::string text = buf.str();
+  const std::string text = base::read_text_file(path, stage_file_kind);
   if (text.find_first_not_of(" \t\r\n") == std::string::npos)
     throw input_error(path.string() + ": the file is empty (expected a stage description, see README \"Stage file\")");
   return parse_stage(text, path.string(), overrides, devices_file);

@@ -9,6 +9,7 @@
 #include <string>
 #include <string_view>
 
+#include "base/text_file.hpp"
 #include "model/circuit/stage.hpp"
 
 namespace pinchoff::model {
@@ -21,6 +22,12 @@ struct stage_override {
   std::string key;
   std::string value;
 };
+
+/// The most a stage file may hold. The presets are about a kilobyte with their comments; a
+/// megabyte leaves room for any amount of commentary and refuses a wrong file (a recording,
+/// a device) before it fills the memory.
+inline constexpr base::text_file_kind stage_file_kind{"stage file", std::size_t{1} << 20,
+                                                      "a stage file is a few kilobytes"};
 
 /// Reads and validates the file, applying `overrides` first, in order.
 /// A `[jfet] class` is looked up in the devices.toml beside the file, else in `devices_file`

@@ -1,6 +1,8 @@
 #include "model/device/device_class.hpp"
 
 #include <cerrno>
+#include <cmath>
+#include <cstdint>
 #include <cstring>
 #include <fstream>
 #include <sstream>
@@ -8,8 +10,10 @@
 #include <toml++/toml.h>
 
 #include "base/error.hpp"
+#include "base/text_file.hpp"
 #include "base/toml_depth.hpp"
 #include "base/text.hpp"
+#include "model/device/parameter_ranges.hpp"
 
 namespace pinchoff::model {
 namespace {
@@ -18,39 +22,53 @@ std::string where(const std::string& file, const toml::source_region& r) {
   return file + ":" + std::to_string(r.begin.line) + ":" + std::to_string(r.begin.column) + ": ";
 }
 
-double number(const toml::node& n, base::unit u, const std::string& file, const std::string& key) {
-  if (n.is_integer() || n.is_floating_point()) return n.value<double>().value_or(0.0);
-  if (n.is_string()) {
+void check_bounds(const toml::node& n, double v, const base::value_bounds& b, base::unit u, const std::string& file,
+                  const std::string& key) {
+  if (!std::isfinite(v)) throw input_error(where(file, n.source()) + key + ": value must be finite");
+  if (const std::string m = base::bounds_refusal(key, v, b, u); !m.empty()) throw input_error(where(file, n.source()) + m);
+}
+
+double number(const toml::node& n, base::unit u, const base::value_bounds& b, const std::string& file,
+              const std::string& key) {
+  double v = 0.0;
+  if (n.is_integer()) {
+    v = static_cast<double>(*n.value<std::int64_t>());  // exact or rounded, never missing (above 2^53)
+  } else if (n.is_floating_point()) {
+    v = *n.value<double>();
+  } else if (n.is_string()) {
     try {
-      return base::parse_value(*n.value<std::string>(), u, key);
+      v = base::parse_value(*n.value<std::string>(), u, key);
     } catch (const input_error& e) {
       throw input_error(where(file, n.source()) + e.what());
     }
+  } else {
+    throw input_error(where(file, n.source()) + key + ": expected a number or a value string");
   }
-  throw input_error(where(file, n.source()) + key + ": expected a number or a value string");
+  if (v < 0 && u != base::unit::volt) throw input_error(where(file, n.source()) + key + " must not be negative");
+  check_bounds(n, v, b, u, file, key);
+  return v;
 }
 
-base::value_range range(const toml::node& n, base::unit u, const std::string& file, const std::string& key) {
+base::value_range range(const toml::node& n, base::unit u, const base::value_bounds& b, const std::string& file,
+                        const std::string& key) {
   if (!n.is_string()) throw input_error(where(file, n.source()) + key + ": expected a range string such as \"2m..8m\"");
+  base::value_range r;
   try {
-    return base::parse_range(*n.value<std::string>(), u, key, true);
+    r = base::parse_range(*n.value<std::string>(), u, key, true);
   } catch (const input_error& e) {
     throw input_error(where(file, n.source()) + e.what());
   }
+  // Signs are checked with the class as a whole; here each end's magnitude.
+  if (!(u == base::unit::volt ? r.hi < 0 : r.lo > 0)) return r;
+  check_bounds(n, r.lo, b, u, file, key);
+  check_bounds(n, r.hi, b, u, file, key);
+  return r;
 }
 
 }  // namespace
 
 std::vector<device_class> read_device_classes(const std::filesystem::path& path) {
-  const std::string file = path.string();
-  std::error_code ec;
-  if (std::filesystem::is_directory(path, ec)) throw io_error("cannot read device classes '" + file + "': it is a folder");
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw io_error("cannot read device classes '" + file + "': " + std::strerror(errno));
-  std::ostringstream buf;
-  buf << in.rdbuf();
-  if (in.bad()) throw io_error("cannot read device classes '" + file + "'");
-  return parse_device_classes(buf.str(), file);
+  return parse_device_classes(base::read_text_file(path, device_class_file_kind), path.string());
 }
 
 std::vector<device_class> parse_device_classes(std::string_view text, std::string_view source_name) {
@@ -73,16 +91,17 @@ std::vector<device_class> parse_device_classes(std::string_view text, std::strin
     for (auto&& [k2, v] : t) {
       const std::string key(k2.str());
       const std::string full = c.name + "." + key;
+      namespace r = ranges;
       if (key == "summary") c.summary = v.value<std::string>().value_or("");
-      else if (key == "idss") c.idss_a = range(v, base::unit::ampere, file, full);
-      else if (key == "vp") c.vp_v = range(v, base::unit::volt, file, full);
-      else if (key == "typical_idss") c.typical_idss_a = number(v, base::unit::ampere, file, full);
-      else if (key == "typical_vp") c.typical_vp_v = number(v, base::unit::volt, file, full);
-      else if (key == "lambda") c.lambda_per_v = number(v, base::unit::per_volt, file, full);
-      else if (key == "is") c.is_a = number(v, base::unit::ampere, file, full);
-      else if (key == "n") c.n = number(v, base::unit::none, file, full);
-      else if (key == "cgs") c.cgs_f = number(v, base::unit::farad, file, full);
-      else if (key == "cgd") c.cgd_f = number(v, base::unit::farad, file, full);
+      else if (key == "idss") c.idss_a = range(v, base::unit::ampere, r::idss, file, full);
+      else if (key == "vp") c.vp_v = range(v, base::unit::volt, r::vp, file, full);
+      else if (key == "typical_idss") c.typical_idss_a = number(v, base::unit::ampere, r::idss, file, full);
+      else if (key == "typical_vp") c.typical_vp_v = number(v, base::unit::volt, r::vp, file, full);
+      else if (key == "lambda") c.lambda_per_v = number(v, base::unit::per_volt, r::lambda, file, full);
+      else if (key == "is") c.is_a = number(v, base::unit::ampere, r::is, file, full);
+      else if (key == "n") c.n = number(v, base::unit::none, r::n, file, full);
+      else if (key == "cgs") c.cgs_f = number(v, base::unit::farad, r::junction_cap, file, full);
+      else if (key == "cgd") c.cgd_f = number(v, base::unit::farad, r::junction_cap, file, full);
       else {
         std::string m = "unknown key '" + key + "' in [" + c.name + "]";
         if (const std::string near = base::nearest_name(key, keys); !near.empty()) m += "; did you mean '" + near + "'?";

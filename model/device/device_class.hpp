@@ -6,6 +6,7 @@
 #include <string_view>
 #include <vector>
 
+#include "base/text_file.hpp"
 #include "base/units.hpp"
 
 namespace pinchoff::model {
@@ -17,6 +18,11 @@ struct device_class {
   double typical_idss_a{}, typical_vp_v{};
   double lambda_per_v{0.0}, is_a{1e-14}, n{1.0}, cgs_f{0.0}, cgd_f{0.0};
 };
+
+/// The most a device-class file may hold: the shipped one is about a kilobyte for three
+/// classes, so a megabyte holds thousands.
+inline constexpr base::text_file_kind device_class_file_kind{"device-class file", std::size_t{1} << 20,
+                                                             "a class file is a few kilobytes"};
 
 /// Reads a device-class file; errors name file, line and column like stage files.
 std::vector<device_class> read_device_classes(const std::filesystem::path& path);

@@ -218,16 +218,22 @@ fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& i
   // of their own standard deviations away (a deleted-residual test, Cook & Weisberg,
   // Residuals and Influence in Regression, 1982); the row then cannot pull the fit or
   // inflate the scatter it is judged by. Needs at least three spare degrees of freedom.
+  // The refit without row i is not run: linearised at the fit (the tangent-plane
+  // approximation Cook & Weisberg use for nonlinear least squares), the deleted fit's
+  // residual at row i is r_i / (1 - h_i) and its scatter
+  // s_(i)^2 = (SSR - r_i^2 / (1 - h_i)) / (m - 1 - p), with h_i = J_i (J^T J)^-1 J_i^T the
+  // row's leverage (ch. 2, the deletion identities). So the test costs one pass over the
+  // rows, not one fit per row, which made the fit quadratic in rows.
   std::vector<bool> flagged(static_cast<std::size_t>(m), false);
   if (dof >= 3) {
+    const Eigen::MatrixXd jtj_inv = (cf.jm.transpose() * cf.jm).inverse();
     for (int i = 0; i < m; ++i) {
-      std::vector<bench_reading> others;
-      for (int j = 0; j < m; ++j)
-        if (j != i) others.push_back(rd[j]);
-      const core_fit loo = fit_core(kind, others, np);
-      const double s_loo = std::sqrt(loo.cost / (m - 1 - np));
-      const double pred =
-          model_current(kind, rd[i], std::exp(loo.q[0]), -std::exp(loo.q[1]), np == 3 ? loo.q[2] : 0.0) / rd[i].id_a - 1.0;
+      const double h = cf.jm.row(i) * jtj_inv * cf.jm.row(i).transpose();
+      const double keep = 1.0 - h;
+      if (!(keep > 1e-9)) continue;  // the row alone fixes a parameter: nothing to judge it by
+      const double pred = r[i] / keep;
+      const double s2_loo = (cost - r[i] * r[i] / keep) / (m - 1 - np);
+      const double s_loo = std::sqrt(std::max(0.0, s2_loo));
       flagged[static_cast<std::size_t>(i)] = std::fabs(pred) > 4.0 * s_loo && std::fabs(pred) > 1e-6;
     }
   }

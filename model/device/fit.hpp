@@ -33,7 +33,7 @@ struct fit_row {
   double vgs_v{};            ///< the gate-source voltage of the reading (computed for the jig)
   double id_model_a{};
   double residual_ratio{};   ///< (model - reading) / reading
-  bool flagged{false};       ///< does not fit: more than 3 standard deviations off
+  bool flagged{false};       ///< does not fit: the others predict it more than 4 of their standard deviations off
 };
 
 struct fit_result {
@@ -61,6 +61,12 @@ struct bench_table {
   std::vector<bench_reading> readings;
 };
 bench_table readings_from_table(const base::csv_table& t);
+
+/// The most a CSV of bench readings may hold. A row is 10 to 40 bytes, so 16 MiB is several
+/// hundred thousand readings: more than any bench session or curve-tracer export, and still
+/// fitted in seconds (the fit is linear in rows).
+inline constexpr base::text_file_kind bench_readings_file_kind{"CSV file of bench readings", std::size_t{16} << 20,
+                                                               "a bench table is a few kilobytes"};
 
 /// A [jfet] block to paste into a stage file.
 std::string jfet_block(const fit_result& r);

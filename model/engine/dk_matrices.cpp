@@ -5,6 +5,7 @@
 #include <vector>
 
 #include "base/error.hpp"
+#include "base/units.hpp"
 #include "model/circuit/nodal.hpp"
 
 namespace pinchoff::model {
@@ -71,8 +72,9 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   m.sample_rate_hz = sample_rate_hz;
   m.rcond = lu.isInvertible() ? static_cast<double>(lu.rcond()) : 0.0;
   if (!(m.rcond >= 1e-15))
-    throw internal_error("the stage's network matrix at " + std::to_string(sample_rate_hz) +
-                         " Hz is singular or too ill-conditioned (rcond " + std::to_string(m.rcond) + ")");
+    throw internal_error(source_prefix(net) + "the stage's network matrix at " + base::format_si(sample_rate_hz, "Hz") +
+                         " is singular or too ill-conditioned (rcond " + base::format_number(m.rcond, 2) +
+                         "): the parts' conductances lie too far apart, from " + widest_parts(net, sample_rate_hz));
   matrix_ld z_ld = lu.solve(rhs_ld);
   z_ld += lu.solve(matrix_ld(rhs_ld - s_ld * z_ld));
   const Eigen::MatrixXd z = z_ld.cast<double>();  // n x (ns + 2 + 3k): columns q, u, i

@@ -113,3 +113,54 @@ TEST_CASE("SI formatting picks the prefix and keeps significant digits") {
   CHECK(format_si(22e-6, "F") == "22.0 µF");
   CHECK(format_si(0.0, "V") == "0 V");
 }
+
+TEST_CASE("numbers a double cannot hold are refused as such, never read as 0 or infinity") {
+  // IEEE 754 binary64: the largest finite value is about 1.8e308, the smallest normal one
+  // 2.2e-308; below that a value is denormal (fewer digits) or rounds to 0.
+  struct row {
+    const char* text;
+    const char* why;
+  };
+  const row rows[] = {
+      {"1e400", "above the largest double"},     {"-1e400", "below the most negative double"},
+      {"1e308k", "overflows once scaled"},         {"1e-320", "denormal"},
+      {"4.9e-324", "the smallest denormal"},       {"1e-400", "rounds to 0"},
+      {"1e-310p", "denormal once scaled"},
+  };
+  for (const row& r : rows) {
+    CAPTURE(r.text);
+    CAPTURE(r.why);
+    CHECK_FALSE(try_parse_value(r.text, unit::ohm).has_value());
+    CHECK_THROWS_WITH_AS(parse_value(r.text, unit::ohm, "drain.resistor"), doctest::Contains("is beyond the numbers this tool reads"),
+                         input_error);
+  }
+  CHECK(parse_value("0", unit::ohm) == 0.0);  // 0 itself stays a value (a part left out)
+  CHECK(parse_value("2.3e-308") == doctest::Approx(2.3e-308).epsilon(1e-15));  // the smallest normal doubles are read
+}
+
+TEST_CASE("SI formatting of values beyond the prefixes falls back to scientific notation") {
+  // The smallest denormal once printed "nan fV": its mantissa scaled by 1e311 overflowed.
+  CHECK(format_si(4.9e-324, "V") == "4.94e-324 V");
+  CHECK(format_si(1e-20, "A") == "1.00e-20 A");
+  CHECK(format_si(1e300, "Ω") == "1.00e+300 Ω");
+  CHECK(format_si(-2.5e16, "Ω") == "-2.50e+16 Ω");
+  CHECK(format_si(999e12, "Ω") == "999 TΩ");  // the largest prefix still used
+  CHECK(format_si(1e-15, "F") == "1.00 fF");  // and the smallest
+}
+
+TEST_CASE("physical bounds: each end accepted, beyond refused with the range in the message") {
+  const value_bounds b{1e-3, 1e9, true, "a reason"};
+  CHECK(bounds_refusal("drain.resistor", 0.0, b, unit::ohm).empty());  // 0: none
+  CHECK(bounds_refusal("drain.resistor", 1e-3, b, unit::ohm).empty());
+  CHECK(bounds_refusal("drain.resistor", 100e-6 * 10, b, unit::ohm).empty());  // a rounding below the bound
+  CHECK(bounds_refusal("drain.resistor", 1e9, b, unit::ohm).empty());
+  CHECK(bounds_refusal("drain.resistor", 1e-320, b, unit::ohm) ==
+        "drain.resistor = 1.00e-320 lies outside 1 mΩ to 1 GΩ (or 0 for none): a reason");
+  CHECK(bounds_refusal("x", -2e9, b, unit::ohm).find("in magnitude") != std::string::npos);
+  const value_bounds t{200, 450, false, {}};
+  CHECK(bounds_refusal("temperature", 0.0, t, unit::kelvin) == "temperature = 0 lies outside 200 K to 450 K");
+  CHECK(format_bound(1e-20, unit::ampere) == "1e-20 A");
+  CHECK(format_bound(1e-9, unit::none) == "1e-9");
+  CHECK(format_bound(4700, unit::ohm) == "4.7 kΩ");
+  CHECK(format_bound(1.0, unit::per_volt) == "1 /V");
+}

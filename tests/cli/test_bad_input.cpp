@@ -7,6 +7,7 @@
 // row here.
 #include <doctest/doctest.h>
 
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cstdint>
@@ -128,6 +129,25 @@ struct fixtures {
     // Current that hardly falls: the best square law has VP at infinity (found by fuzzing).
     write(f("flat.csv"), "rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,1.46m\n");
 
+    // ---- Sizes, special files and the ranges of values (the readers' bounds)
+    write(f("huge.toml"), std::string(good_stage) + "# " + std::string(std::size_t{1} << 20, 'x') + "\n");
+    write(f("huge.csv"), "vgs_v,id_a\n" + std::string(std::size_t{16} << 20, '#') + "\n");
+    ::mkfifo(f("nowriter.toml").c_str(), 0600);  // a FIFO no program writes to
+    fs::create_directory(f("hugeclass"));
+    write(f("hugeclass/devices.toml"), "[general]\nidss = \"1m..2m\"\n# " + std::string(std::size_t{1} << 20, 'x') + "\n");
+    write(f("hugeclass/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
+    fs::create_directory(f("wildclass"));
+    write(f("wildclass/devices.toml"),
+          "[general]\nidss = \"1m..8m\"\nvp = \"-0.5..-3\"\ntypical_idss = 1e300\ntypical_vp = -1.5\n");
+    write(f("wildclass/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
+    write(f("emptyclass.toml"), with_line(with_line(good_stage, 5, "class = \"\""), 6, ""));
+    write(f("bigint.toml"), with_line(good_stage, 11, "resistor = 9007199254740993"));  // above 2^53: once read as 0
+    write(f("denormal.toml"), with_line(good_stage, 11, "resistor = 1e-320"));
+    write(f("coldstage.toml"), with_line(good_stage, 1, "temperature = 1e-300"));
+    write(f("hugebeta.toml"), with_line(with_line(good_stage, 5, "beta = 1e300"), 6, "vto = -1.8"));
+    write(f("tinysupply.toml"), with_line(good_stage, 3, "volts = \"4.9e-324\""));
+    write(f("hugestring.toml"), with_line(good_stage, 11, "resistor = \"1e400\""));
+
     // Recordings, written by the project's own tone writer.
     REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "0.5", f("rec.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "0.5", "--format", "float", f("float.wav")}).status == 0);
@@ -176,6 +196,29 @@ struct fixtures {
     fs::create_symlink(f("stage.toml"), f("link-to-stage.svg"));
     fs::create_hard_link(f("stage.toml"), f("hard-stage.svg"));
     write(f("dry.toml"), good_stage);
+
+    // ---- audio inputs that lie or cannot be read twice (render, measure)
+    {
+      // 16-bit PCM WAV headers of our own: a rate, a channel count and frames of one code.
+      auto wav = [](std::uint32_t rate, std::uint16_t channels, std::uint32_t frames, std::int16_t code) {
+        std::string h = "RIFF";
+        auto le = [&h](std::uint32_t v, int bytes) {
+          for (int k = 0; k < bytes; ++k) h.push_back(static_cast<char>((v >> (8 * k)) & 0xffu));
+        };
+        const std::uint32_t data = frames * channels * 2u;
+        le(36 + data, 4);
+        h += "WAVEfmt ";
+        le(16, 4), le(1, 2), le(channels, 2), le(rate, 4), le(rate * channels * 2u, 4), le(channels * 2u, 2), le(16, 2);
+        h += "data";
+        le(data, 4);
+        for (std::uint32_t i = 0; i < frames * channels; ++i) le(static_cast<std::uint16_t>(code), 2);
+        return h;
+      };
+      write(f("lying-rate.wav"), wav(2000000000u, 1, 48000, 0));  // 2 GHz over 48,000 frames
+      write(f("channels65.wav"), wav(48000, 65, 480, 0));
+      write(f("dc-only.wav"), wav(48000, 1, 48000, 22937));       // 0.7 of full scale, no tone
+      REQUIRE(::mkfifo(f("pipe.wav").c_str(), 0600) == 0);
+    }
   }
 };
 
@@ -274,7 +317,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"--require range with min above max", {"spread", "@stage.toml", "--require", "vd=5..3", "--runs", "10"}, {"--require vd", "minimum above its maximum"}},
       {"--require of an unknown quantity", {"spread", "@stage.toml", "--require", "vx=1..2", "--runs", "10"}, {"--require 'vx=1..2'", "QUANTITY"}},
       {"--require without a range", {"spread", "@stage.toml", "--require", "vd=3", "--runs", "10"}, {"--require vd", "LO..HI"}},
-      {"--runs of 0", {"spread", "@stage.toml", "--runs", "0"}, {"--runs: ", "1 to 10000000", "got 0"}},
+      {"--runs of 0", {"spread", "@stage.toml", "--runs", "0"}, {"--runs: ", "1 to 100000", "got 0"}},
       {"--json with --csv", {"spread", "@stage.toml", "--json", "--csv", "--runs", "10"}, {"--json and --csv"}},
       {"unknown --distribution", {"spread", "@stage.toml", "--distribution", "cauchy", "--runs", "10"}, {"--distribution", "cauchy"}},
       {"--plot into a folder that does not exist", {"spread", "@stage.toml", "--plot", "@nofolder/s.svg", "--runs", "10"}, {"nofolder", "does not exist"}},
@@ -319,9 +362,9 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"steps too short for their fades", {"tone", "--seconds", "0.01", "@t.wav"}, {"too short for fades"}},
       {"negative fade", {"tone", "--fade-ms", "-1", "@t.wav"}, {"--fade-ms", "zero or positive", "got -1.00 ms"}},
       {"sample rate of 0", {"tone", "--rate", "0", "@t.wav"}, {"sample rate must be positive"}},
-      {"sample rate that is not whole", {"tone", "--rate", "44100.5", "@t.wav"}, {"whole number of hertz", "44100.5"}},
-      {"no channels", {"tone", "--channels", "0", "@t.wav"}, {"channel count must be 1 to 64", "got 0"}},
-      {"too many channels", {"tone", "--channels", "65", "@t.wav"}, {"channel count must be 1 to 64", "got 65"}},
+      {"sample rate that is not whole", {"tone", "--rate", "44100.5", "@t.wav"}, {"--rate", "whole number of hertz", "44100.5"}},
+      {"no channels", {"tone", "--channels", "0", "@t.wav"}, {"--channels", "channel count must be 1 to 64", "@t.wav", "got 0"}},
+      {"too many channels", {"tone", "--channels", "65", "@t.wav"}, {"--channels", "channel count must be 1 to 64", "@t.wav", "got 65"}},
       {"unknown format", {"tone", "--format", "mp3", "@t.wav"}, {"'mp3'", "wav16, wav24"}},
       // ---- measure: the recording
       {"empty audio file", {"measure", "@empty.wav"}, {"@empty.wav", "empty"}},
@@ -425,6 +468,37 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"sweep: 1 Hz at 768 kHz x 64", {"sweep", "@stage.toml", "--freq", "1", "--rate", "768k", "--oversample", "64"}, {"--freq: ", "147456000 samples", "49.2 MHz", "2097152 a point may hold", "at least 70.31 Hz", "oversampling"}},
       {"sweep: 20 Hz at 768 kHz x 32", {"sweep", "@stage.toml", "--freq", "20", "--rate", "768k", "--oversample", "32"}, {"--freq: ", "3686400 samples", "2097152 a point may hold", "at least 35.16 Hz"}},
       {"compare: 2 Hz at 48 kHz x 64", {"compare", "@stage.toml", "@stage.toml", "--freq", "2", "--oversample", "64"}, {"--freq: ", "4608000 samples", "2097152 a point may hold", "at least 4.395 Hz"}},
+      // ---- Sizes, special files and the ranges of values: every text input is read with a
+      // bound, and every value is checked against a physical range where it is read.
+      {"a stage file over 1 MiB", {"bias", "@huge.toml"}, {"@huge.toml", "holds more than 1 MiB", "the most a stage file may hold"}},
+      {"an endless device as the stage file", {"bias", "/dev/zero"}, {"'/dev/zero' is a device, not a stage file"}},
+      {"random bytes as the stage file", {"sweep", "/dev/urandom"}, {"'/dev/urandom' is a device, not a stage file"}},
+      {"a FIFO no program writes to", {"bias", "@nowriter.toml"}, {"@nowriter.toml", "the file is empty"}},
+      {"a class file over 1 MiB", {"bias", "@hugeclass/stage.toml"}, {"@hugeclass/stage.toml:5:", "hugeclass/devices.toml", "holds more than 1 MiB"}},
+      {"a class value outside its range", {"bias", "@wildclass/stage.toml"}, {"wildclass/devices.toml:4:", "general.typical_idss", "1 µA to 2 A"}},
+      {"an empty class name in the file", {"bias", "@emptyclass.toml"}, {"@emptyclass.toml:5:", "jfet.class is empty", "general-purpose"}},
+      {"an empty class name through --set", {"bias", "@stage.toml", "--set", "jfet.class="}, {"--set jfet.class", "jfet.class is empty"}},
+      {"a bench CSV over 16 MiB", {"fit", "@huge.csv"}, {"@huge.csv", "holds more than 16 MiB"}},
+      {"an endless device as the bench CSV", {"fit", "/dev/zero"}, {"'/dev/zero' is a device", "CSV file of bench readings"}},
+      {"--runs above the bound", {"spread", "@stage.toml", "--runs", "100001"}, {"--runs: ", "1 to 100000", "got 100001", "0.16 %"}},
+      {"--threads beyond any machine", {"spread", "@stage.toml", "--runs", "10", "--threads", "100000"}, {"--threads: ", "0 (one per core) to 256", "got 100000"}},
+      {"--threads below 0", {"spread", "@stage.toml", "--runs", "10", "--threads", "-1"}, {"--threads: ", "got -1"}},
+      {"--runs of ten million", {"spread", "@stage.toml", "--runs", "10000000"}, {"--runs: ", "1 to 100000", "gigabytes"}},
+      {"an integer above 2^53", {"bias", "@bigint.toml"}, {"@bigint.toml:11:12:", "drain.resistor = 9.01e+15", "1 mΩ to 1 GΩ"}},
+      {"a denormal resistance", {"bias", "@denormal.toml"}, {"@denormal.toml:11:12:", "drain.resistor = 1.00e-320", "lies outside"}},
+      {"a temperature near 0 K", {"bias", "@coldstage.toml"}, {"@coldstage.toml:1:", "temperature", "200 K to 450 K"}},
+      {"a beta that gives an absurd IDSS", {"bias", "@hugebeta.toml"}, {"@hugebeta.toml:5:", "jfet.beta = 1.00e+300", "1e-9 to 1000"}},
+      {"a denormal supply as a value string", {"bias", "@tinysupply.toml"}, {"@tinysupply.toml:3:", "'4.9e-324' is beyond the numbers"}},
+      {"a value string beyond a double", {"bias", "@hugestring.toml"}, {"@hugestring.toml:11:", "'1e400' is beyond the numbers"}},
+      {"a source resistor of 1e300 ohm", {"sweep", "@stage.toml", "--set", "source.resistor=1e300"}, {"--set source.resistor", "1 mΩ to 1 GΩ"}},
+      {"a coupling capacitor of 1e6 F", {"imd", "@stage.toml", "--set", "gate.coupling_cap=1e6"}, {"--set gate.coupling_cap", "1 pF to 1 F", "or 0 for none"}},
+      {"a supply resistance of 1e16 ohm", {"compare", "@stage.toml", "@second.toml", "--set", "supply.resistance=1e16"}, {"--set supply.resistance", "1 mΩ to 1 GΩ"}},
+      {"a gate resistor above 100 GOhm", {"bias", "@stage.toml", "--set", "gate.resistor=1e12"}, {"--set gate.resistor", "1 mΩ to 100 GΩ", "capsule"}},
+      {"a junction capacitance of 5 F", {"response", "@stage.toml", "--set", "jfet.cgs=5"}, {"--set jfet.cgs", "10 fF to 10 nF"}},
+      {"a supply of a microvolt", {"bias", "@stage.toml", "--set", "supply.volts=1u"}, {"--set supply.volts", "100 mV to 1 kV"}},
+      {"--set design number beyond any count", {"compare", "@stage.toml", "@second.toml", "--set", "99999999999999999999:drain.resistor=1k"}, {"--set 99999999999999999999:drain.resistor=1k", "there is no design"}},
+      {"--target value beyond a double", {"tune", "@stage.toml", "--target", "vd=1e400"}, {"--target vd", "'1e400' is beyond the numbers"}},
+      {"--require end beyond a double", {"spread", "@stage.toml", "--require", "vd=1e-400..", "--runs", "10"}, {"--require vd", "'1e-400' is beyond the numbers"}},
 
       // ---- outputs against inputs and against each other: checked once, before any work,
       // for every command that writes (cli/command_files.hpp); the message names the option
@@ -441,6 +515,43 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"tone into a path under a file", {"tone", "@rec.wav/t.wav"}, {"OUT", "@rec.wav", "is not a folder"}},
       {"--plot into a path under a file", {"sweep", "@stage.toml", "--plot", "@stage.toml/w.svg"}, {"--plot", "@stage.toml", "is not a folder"}},
       {"measure --plot onto the recording through a link", {"measure", "@rec.wav", "--plot", "@folder/../rec.wav"}, {"--plot", "it is the input file", "the recording"}},
+      // ---- audio inputs that lie or cannot be read twice; numbers out of every range (render, tone, measure)
+      {"render input whose header claims 2 GHz", {"render", "@stage.toml", "--input", "@lying-rate.wav", "--output", "@o.wav"}, {"@lying-rate.wav", "2000000000 Hz", "44.1 to 768 kHz", "header damaged"}},
+      {"render input with 65 channels", {"render", "@stage.toml", "--input", "@channels65.wav", "--output", "@o.wav"}, {"@channels65.wav", "65 channels", "1 to 64"}},
+      {"render input that is a pipe", {"render", "@stage.toml", "--input", "@pipe.wav", "--output", "@o.wav"}, {"@pipe.wav", "it is a pipe", "more than once", "file first"}},
+      {"render input that is a device", {"render", "@stage.toml", "--input", "/dev/zero", "--output", "@o.wav"}, {"/dev/zero", "it is a device"}},
+      {"several outputs from a pipe", {"render", "@stage.toml", "--input", "@pipe.wav", "--output", "@cmp", "--dry"}, {"@pipe.wav", "it is a pipe"}},
+      {"--input-peak of 1e300 V", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "1e300V"}, {"--input-peak", "1 µV to 1 kV", "1.00e+300 V"}},
+      {"--input-peak below a microvolt", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "1nV"}, {"--input-peak", "1 µV to 1 kV", "1.00 nV"}},
+      {"--output-peak of 1e-300 V", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--output-peak", "1e-300V"}, {"--output-peak", "1 µV to 10 kV", "1.00e-300 V"}},
+      {"--output-peak of a megavolt", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--output-peak", "1MV"}, {"--output-peak", "1 µV to 10 kV", "1.00 MV"}},
+      {"--oversample past an int", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--oversample", "99999999999999999999"}, {"--oversample", "whole number or auto"}},
+      {"tone --fade-ms of 1e300", {"tone", "--fade-ms", "1e300", "@t.wav"}, {"--fade-ms", "longer than half the longest tone", "one hour"}},
+      {"tone --fade-ms of half an hour and more", {"tone", "--fade-ms", "2000000", "@t.wav"}, {"--fade-ms", "2.00 ks", "longer than half"}},
+      {"tone --rate of 1e300", {"tone", "--rate", "1e300", "@t.wav"}, {"--rate", "1 Hz to 768 kHz", "1.00e+300 Hz"}},
+      {"tone --rate above 768 kHz", {"tone", "--rate", "800000", "@t.wav"}, {"--rate", "1 Hz to 768 kHz", "800 kHz"}},
+      {"tone --rate below 1 Hz", {"tone", "--rate", "0.5", "--freq", "0.1", "@t.wav"}, {"--rate", "1 Hz to 768 kHz", "500 mHz"}},
+      {"tone --rate NaN", {"tone", "--rate", "nan", "@t.wav"}, {"--rate", "sample rate must be positive"}},
+      {"tone --seconds infinite", {"tone", "--seconds", "inf", "@t.wav"}, {"positive time", "inf"}},
+      {"tone --level of -1e300 dBFS", {"tone", "--level", "-1e300", "@t.wav"}, {"below -200 dBFS", "converter's noise"}},
+      {"tone --steps down to -1e300 dBFS", {"tone", "--steps", "-1e300..-1e300:1", "@t.wav"}, {"below -200 dBFS"}},
+      {"tone --freq of 1e-300 Hz", {"tone", "--freq", "1e-300", "@t.wav"}, {"1.00e-300 Hz", "below 1 Hz"}},
+      {"tone --steps of 1e-300 dB", {"tone", "--steps", "-10..0:1e-300", "@t.wav"}, {"steps is too long", "1000 at most"}},
+      {"tone --seconds shorter than a sample", {"tone", "--seconds", "1e-300", "--fade-ms", "0", "@t.wav"}, {"1.00e-300 s", "shorter than one sample", "48.0 kHz"}},
+      {"tone --channels past an int", {"tone", "--channels", "99999999999", "@t.wav"}, {"--channels"}},
+      {"measure --start of 1e15 s", {"measure", "@rec.wav", "--start", "1e15"}, {"--start", "beyond the end", "@rec.wav"}},
+      {"measure --start infinite", {"measure", "@rec.wav", "--start", "inf"}, {"--start", "beyond the end"}},
+      {"measure --start NaN", {"measure", "@rec.wav", "--start", "nan"}, {"must not be negative"}},
+      {"measure --duration NaN", {"measure", "@rec.wav", "--duration", "nan"}, {"must not be negative"}},
+      {"measure --harmonics past an int", {"measure", "@rec.wav", "--harmonics", "99999999999"}, {"--harmonics"}},
+      {"measure --channel past an int", {"measure", "@rec.wav", "--channel", "99999999999"}, {"--channel"}},
+      {"measure --channel 0", {"measure", "@rec.wav", "--channel", "0"}, {"@rec.wav", "--channel 0 does not exist"}},
+      {"measure --freq below the band", {"measure", "@rec.wav", "--freq", "1e-3"}, {"--freq 1e-3", "below the measurement band", "20.0 Hz"}},
+      {"measure --drive of 1e300 V", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "1e300V"}, {"--drive", "1 µV to 1 kV", "1.00e+300 V"}},
+      {"measure --drive of a nanovolt", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "1nV"}, {"--drive", "1 µV to 1 kV", "1.00 nV"}},
+      {"measure --bandwidth of 1e-300 Hz", {"measure", "@rec.wav", "--bandwidth", "1e-300"}, {"--bandwidth 1e-300", "above the band's low edge", "20.0 Hz"}},
+      {"measure a file of DC alone", {"measure", "@dc-only.wav"}, {"@dc-only.wav", "no tone found", "DC only"}},
+      {"measure a pipe", {"measure", "@pipe.wav"}, {"@pipe.wav", "it is a pipe", "twice"}},
   };
 
   REQUIRE(rows.size() >= 180);

@@ -285,3 +285,40 @@ TEST_CASE("spread says so when nothing varies from run to run") {
   REQUIRE(batch.status == 0);
   CHECK(batch.err.find("nothing varies") == std::string::npos);
 }
+
+namespace {
+// Standard output on a full disk: takes `room` bytes, then every write fails.
+class full_after : public std::streambuf {
+ public:
+  explicit full_after(std::size_t room) : room_(room) {}
+
+ protected:
+  int_type overflow(int_type c) override {
+    if (traits_type::eq_int_type(c, traits_type::eof())) return traits_type::not_eof(c);
+    if (room_ == 0) return traits_type::eof();
+    --room_;
+    return c;
+  }
+
+ private:
+  std::size_t room_;
+};
+}  // namespace
+
+TEST_CASE("a report standard output cannot take is exit 1 with a message, never success") {
+  const std::string booster = preset("bass-booster-9v.toml");
+  const std::vector<std::vector<std::string>> commands = {
+      {"bias", booster}, {"response", booster, "--csv"}, {"spread", booster, "--runs", "200", "--csv"}, {"--help"}, {"--version"}};
+  for (const auto& args : commands) {
+    for (std::size_t room : {std::size_t{0}, std::size_t{5}}) {  // nothing fits; the report cut in its first line
+      CAPTURE(args.front());
+      CAPTURE(room);
+      full_after buf(room);
+      std::ostream out(&buf);
+      std::ostringstream err;
+      const int status = pinchoff::cli::run(args, out, err, pinchoff::testing::built_data_files());
+      CHECK(status == 1);
+      CHECK(err.str().find("cannot write to standard output") != std::string::npos);
+    }
+  }
+}

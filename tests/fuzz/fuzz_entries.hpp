@@ -10,6 +10,7 @@
 #include <cmath>
 #include <cstddef>
 #include <cstdint>
+#include <limits>
 #include <span>
 #include <stdexcept>
 #include <string>
@@ -65,7 +66,8 @@ inline outcome stage_file_entry(std::string_view data) {
                      st.jfet.cgd_f, st.signal_impedance_ohm, st.gate.coupling_cap_f, st.gate.resistor_ohm,
                      st.gate.bias_top_ohm, st.gate.bias_bottom_ohm, st.drain_resistor_ohm, st.source.unbypassed_ohm,
                      st.source.resistor_ohm, st.source.bypass_cap_f, st.output.coupling_cap_f, st.output.load_ohm})
-      detail::require(std::isfinite(v), "parse_stage accepted a non-finite value");
+      detail::require(std::isfinite(v) && (v == 0.0 || std::fabs(v) >= 1e-21) && std::fabs(v) <= 1e11,
+                      "parse_stage accepted a value outside every physical range");
     model::validate(st);  // throws input_error, which is reported below as a broken contract
     return outcome::accepted;
   } catch (const broken_contract&) {
@@ -129,7 +131,8 @@ inline outcome units_entry(std::string_view text) {
       const double v = base::parse_value(text, u, "key");
       detail::require(std::isfinite(v), "parse_value returned a non-finite value");
       detail::require(quiet && *quiet == v, "try_parse_value disagrees with parse_value");
-      (void)base::format_si(v, "V");
+      detail::require(v == 0.0 || std::fabs(v) >= std::numeric_limits<double>::min(), "parse_value accepted a denormal");
+      detail::require(base::format_si(v, "V").find("nan") == std::string::npos, "format_si wrote nan for a finite value");
       any = true;
     } catch (const input_error&) {
       thrown = true;
@@ -151,6 +154,11 @@ inline outcome units_entry(std::string_view text) {
   attempt([&] {
     const double f = base::parse_frequency_hz(text);
     detail::require(std::isfinite(f) && f > 0.0, "parse_frequency_hz returned a frequency not above 0");
+  });
+  attempt([&] {
+    // compare's --set N:KEY=VALUE for three designs: a design number 0 to 3, never an escape.
+    const cli::design_set d = cli::parse_design_set(text, 3);
+    detail::require(d.design <= 3, "parse_design_set returned a design beyond the count");
   });
   attempt([&] {
     const model::requirement r = cli::parse_requirement(text);

@@ -135,7 +135,7 @@ TEST_CASE("a wrong spread setting is named by its field, never by an option") {
       {"supply_v", with([](spread_settings& s) { s.supply_v = base::value_range{-9.0, -7.0}; }), "positive like the stage's supply"},
       {"correlation", with([](spread_settings& s) { s.correlation = 2.0; }), "-1 to 1, got 2"},
       {"resistor_tolerance", with([](spread_settings& s) { s.resistor_tolerance = 0.6; }), "below 50 %, got 60.0 %"},
-      {"runs", with([](spread_settings& s) { s.runs = 0; }), "1 to 10000000, got 0"},
+      {"runs", with([](spread_settings& s) { s.runs = 0; }), "1 to 100000, got 0"},
   };
   for (const row& r : rows) {
     const std::string words = r.words;

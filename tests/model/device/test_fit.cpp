@@ -163,3 +163,61 @@ TEST_CASE("bad CSV names the row and the column") {
   CHECK(t.rows[1][0] == -0.5);
   CHECK(t.line_of_row[1] == 5);
 }
+
+TEST_CASE("the outlier test agrees with refitting without each row, the method it replaces") {
+  // The deleted-residual test of Cook & Weisberg (1982): row i does not fit when the fit of
+  // the other rows predicts it more than 4 of their standard deviations off. The fit now
+  // takes the deleted fit from the deletion identities at its linearisation (one pass, so
+  // linear in rows); here each deleted fit is run in full, as it once was, and the two must
+  // flag the same rows, except within 10 % of the threshold where the linearisation may
+  // round either way.
+  std::mt19937_64 g(2024);
+  int compared = 0, near_threshold = 0;
+  for (int table = 0; table < 12; ++table) {
+    std::vector<bench_reading> rd;
+    for (int k = 0; k < 10; ++k) {
+      const double vgs = -1.5 * k / 9.0;
+      rd.push_back({vgs, shockley(5e-3, -1.8, 0.0, vgs, 0.0) * (1.0 + 0.01 * gauss(g)), 0.0, false, k + 2});
+    }
+    rd[static_cast<std::size_t>(table % 10)].id_a *= 1.0 + 0.02 * table;  // a misread of 0 to 22 %
+    const fit_result f = fit_square_law(reading_kind::gate_sweep, rd);
+    for (std::size_t i = 0; i < rd.size(); ++i) {
+      std::vector<bench_reading> others = rd;
+      others.erase(others.begin() + static_cast<std::ptrdiff_t>(i));
+      const fit_result loo = fit_square_law(reading_kind::gate_sweep, others);
+      const double s_loo = loo.rms_residual_ratio * std::sqrt((others.size()) / (others.size() - 2.0));
+      const double pred = shockley(loo.idss_a, loo.vp_v, 0.0, rd[i].x, 0.0) / rd[i].id_a - 1.0;
+      const double ratio = std::fabs(pred) / s_loo;
+      CAPTURE(table);
+      CAPTURE(i);
+      CAPTURE(ratio);
+      if (std::fabs(ratio - 4.0) < 0.4) {
+        ++near_threshold;
+        continue;
+      }
+      CHECK(f.rows[i].flagged == (ratio > 4.0));
+      ++compared;
+    }
+  }
+  CAPTURE(near_threshold);
+  CHECK(compared >= 100);
+}
+
+TEST_CASE("a long bench table fits, with its outlier found") {
+  // 20,000 readings (a curve tracer's export): the leave-one-out test once refitted the
+  // table once per row, so this took minutes; the result must still find the one bad row.
+  std::mt19937_64 g(99);
+  std::vector<bench_reading> rd;
+  for (int k = 0; k < 20000; ++k) {
+    const double vgs = -1.6 * k / 20000.0;
+    rd.push_back({vgs, shockley(5e-3, -1.8, 0.0, vgs, 0.0) * (1.0 + 0.005 * gauss(g)), 0.0, false, k + 2});
+  }
+  rd[777].id_a *= 1.2;
+  const fit_result f = fit_square_law(reading_kind::gate_sweep, rd);
+  CHECK(f.idss_a == doctest::Approx(5e-3).epsilon(1e-3));
+  CHECK(f.vp_v == doctest::Approx(-1.8).epsilon(1e-3));
+  CHECK(f.rows[777].flagged);
+  int flagged = 0;
+  for (const auto& r : f.rows) flagged += r.flagged ? 1 : 0;
+  CHECK(flagged <= 6);  // the bad row and chance: 4 standard deviations, 20,000 normal rows, about 1.3 (Poisson, at most 5 in 99.8 %)
+}

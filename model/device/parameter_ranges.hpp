@@ -1,0 +1,31 @@
+#pragma once
+// The physical ranges of a JFET's parameters, as a stage file or a device-class file may
+// give them. Values outside are refused where they are read (with the range and the reason
+// in the message), so the solvers only see parts they can solve. The bounds are wide: each
+// lies one or more decades beyond what real parts show (common practice: datasheets of
+// small-signal and power JFETs), so a refusal means a slip (a missing prefix, a wrong unit),
+// never an unusual part. README "Stage file" lists them.
+#include "base/units.hpp"
+
+namespace pinchoff::model::ranges {
+
+using base::value_bounds;
+
+inline constexpr value_bounds idss{1e-6, 2.0, false,
+                                   "small-signal JFETs have 0.1 to 100 mA, power parts up to an ampere or two"};
+/// By magnitude; the sign follows the polarity.
+inline constexpr value_bounds vp{0.01, 50.0, false, "real parts pinch off between about 0.2 and 10 V"};
+/// beta = idss / vp^2; the idss it gives is checked against `idss` too.
+inline constexpr value_bounds beta{1e-9, 1e3, false, "beta = IDSS/VP^2 of real parts lies between about 1e-5 and 1 A/V^2"};
+inline constexpr value_bounds lambda{0.0, 1.0, true,
+                                     "channel-length modulation of real parts is 0.001 to 0.05 /V (1 /V is an Early "
+                                     "voltage of 1 V)"};
+inline constexpr value_bounds is{1e-20, 1e-6, true, "gate junctions leak femto- to nanoamperes"};
+inline constexpr value_bounds n{0.5, 5.0, false, "emission coefficients of real junctions lie between 1 and 2"};
+inline constexpr value_bounds junction_cap{1e-14, 1e-8, true,
+                                           "small-signal parts have 1 to 30 pF, power parts up to a few nanofarads"};
+inline constexpr value_bounds vds_max{0.1, 1e4, false, "ratings of real parts lie between a few volts and a kilovolt"};
+inline constexpr value_bounds pd_max{1e-4, 1e4, false, "ratings of real parts lie between 100 mW and a few hundred watts"};
+inline constexpr value_bounds igf_max{1e-9, 100.0, false, "ratings of real parts lie between 1 mA and an ampere or so"};
+
+}  // namespace pinchoff::model::ranges
