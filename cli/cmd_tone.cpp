@@ -227,7 +227,16 @@ tone_report plan_tone(const tone_options& o) {
 // Writes the planned tone to its file (nothing is left behind if it fails or Ctrl-C
 // stops it) and fills in what was written.
 void write_tone(const tone_options& o, tone_report& r, base::output_set& outputs) {
-  dsp::tone_generator gen(r.plan);  // validates the plan before any file is made
+  // The generator validates the plan before any file is made; a step's length was given by
+  // --seconds (a plain tone) or --step-seconds (a staircase).
+  std::optional<dsp::tone_generator> made;
+  try {
+    made.emplace(r.plan);
+  } catch (const setting_error& e) {
+    if (e.field() != "step_seconds") throw;
+    throw input_error(std::string(o.steps_text.empty() ? "--seconds" : "--step-seconds") + ": " + e.what());
+  }
+  dsp::tone_generator& gen = *made;
   // RIFF sizes are 32-bit: a WAV file cannot hold more than 4 GiB of samples.
   if (r.format != dsp::sample_format::flac24) {
     const int bytes = dsp::quantisation_bits(r.format) == 0 ? 4 : dsp::quantisation_bits(r.format) / 8;

@@ -80,19 +80,19 @@ tone_generator::tone_generator(const tone_plan& plan) : plan_(plan) {
       throw input_error("level " + base::format_number(s.level_dbfs) + " dBFS is below " + base::format_number(min_tone_dbfs) +
                         " dBFS, far under any converter's noise (a 24-bit step is -144 dBFS)");
     if (!(s.seconds > 0.0) || !std::isfinite(s.seconds))
-      throw input_error("a step must last a positive time, got " + base::format_number(s.seconds) + " s");
+      throw setting_error("step_seconds", "a step must last a positive time, got " + base::format_number(s.seconds) + " s");
     if (s.seconds > max_tone_seconds)
-      throw input_error("a step of " + base::format_number(s.seconds) + " s is longer than a test tone may be (" +
+      throw setting_error("step_seconds", "a step of " + base::format_number(s.seconds) + " s is longer than a test tone may be (" +
                         base::format_number(max_tone_seconds) + " s, one hour)");
     const std::int64_t n = frames_of(s.seconds, plan.rate_hz);
     const bool is_last = i + 1 == plan.steps.size();
     // The last step holds a ramp in and a ramp out, so it needs at least four fades to keep
     // half of itself steady; the others two.
     if (n < 1)
-      throw input_error("a step of " + quantity_text(s.seconds, "s") + " is shorter than one sample at " +
+      throw setting_error("step_seconds", "a step of " + quantity_text(s.seconds, "s") + " is shorter than one sample at " +
                         quantity_text(plan.rate_hz, "Hz"));
     if (n < (is_last ? 4 : 2) * fade_frames_)
-      throw input_error("a step of " + base::format_number(s.seconds) + " s is too short for fades of " +
+      throw setting_error("step_seconds", "a step of " + base::format_number(s.seconds) + " s is too short for fades of " +
                         base::format_number(plan.fade_seconds) + " s (at least " + (is_last ? "four" : "two") + " fades long)");
     starts_.push_back(starts_.back() + n);
     amplitudes_.push_back(base::ratio_from_db(s.level_dbfs));
