@@ -34,6 +34,7 @@ struct compare_options {
   std::string at_output, at_drive;
   int harmonics{5};
   int oversample{8};
+  bool oversample_given{false};
   bool json{false}, csv{false};
   std::string plot;
   int threads{0};
@@ -265,7 +266,9 @@ CLI::App* setup(CLI::App& app, compare_options& opt) {
   sub->add_option("--at-drive", opt.at_drive, "Drive every design with this generator level instead")->type_name("LEVEL");
   sub->add_option("--harmonics", opt.harmonics, "Highest harmonic shown (H2..HN); THD counts at least H2..H10")
       ->capture_default_str();
-  sub->add_option("--oversample", opt.oversample, "Simulation rate as a multiple of 48 kHz")->capture_default_str();
+  sub->add_option("--oversample", opt.oversample,
+                 "Simulation rate as a multiple of 48 kHz, 1 to 64 (default: chosen by the test frequency as in sweep)")
+      ->each([&opt](const std::string&) { opt.oversample_given = true; });
   sub->add_flag("--json", opt.json, "Machine-readable output");
   sub->add_flag("--csv", opt.csv, "One row per design as CSV");
   sub->add_option("--plot", opt.plot, "Write the harmonic profiles as grouped bars (SVG)")->type_name("FILE.svg");
@@ -304,6 +307,7 @@ void run(const compare_options& opt, std::ostream& out, std::ostream& err, base:
   }
   s.harmonics = opt.harmonics;
   s.oversample = opt.oversample;
+  s.automatic_oversample = !opt.oversample_given;
   s.threads = opt.threads;
   const model::compare_plan plan = model::plan_compare(s);  // the settings' errors before any file is read
   const std::vector<design_input> in = load_designs(opt);

@@ -30,6 +30,7 @@ struct sweep_options {
   std::string from, to;
   int steps{25};
   int oversample{8};
+  bool oversample_given{false};
   int harmonics{10};
   std::string bandwidth{"20k"};
   std::string rate{"48k"};
@@ -187,7 +188,8 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
   out << rep.st.name << "\n  sine at " << format_si(r.frequency_hz, "Hz", 5);
   if (std::fabs(r.frequency_hz - r.requested_hz) > 1e-9 * r.requested_hz)
     out << " (asked " << format_si(r.requested_hz, "Hz", 4) << "; snapped so " << r.cycles << " whole cycles fill the record)";
-  out << ", " << r.oversample << "x oversampling (" << format_si(r.sample_rate_hz, "Hz") << "), H2..H" << harmonics
+  out << ", " << r.oversample << "x oversampling (" << format_si(r.sample_rate_hz, "Hz")
+      << (rep.settings.automatic_oversample && r.oversample < 8 ? ", enough at this frequency" : "") << "), H2..H" << harmonics
       << " up to " << format_si(rep.settings.bandwidth_hz, "Hz") << "\n\n";
   text_table t({align::right, align::right, align::right, align::right, align::right, align::right, align::right,
                 align::right, align::right, align::right, align::right});
@@ -247,7 +249,10 @@ CLI::App* setup(CLI::App& app, sweep_options& opt, const data_files& data) {
   sub->add_option("--from", opt.from, "Lowest drive of a stepped sweep (default -40dBu)")->type_name("LEVEL");
   sub->add_option("--to", opt.to, "Highest drive of a stepped sweep (default +20dBu)")->type_name("LEVEL");
   sub->add_option("--steps", opt.steps, "Drive levels from --from to --to, equal steps in dB")->capture_default_str();
-  sub->add_option("--oversample", opt.oversample, "Simulation rate as a multiple of --rate")->capture_default_str();
+  sub->add_option("--oversample", opt.oversample,
+                 "Simulation rate as a multiple of --rate, 1 to 64 (default: chosen by the test frequency, 8 at 1 kHz "
+                 "and above at 48 kHz, down to 1 at bass frequencies; see README)")
+      ->each([&opt](const std::string&) { opt.oversample_given = true; });
   sub->add_option("--harmonics", opt.harmonics, "Highest harmonic N reported (H2..HN)")->capture_default_str();
   sub->add_option("--bandwidth", opt.bandwidth, "Harmonics above it are not counted (AES17: 20k)")->capture_default_str();
   sub->add_option("--rate", opt.rate, "The audio rate the oversampling multiplies")->capture_default_str();
@@ -277,6 +282,7 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
   s.frequency_hz = option_frequency_hz(opt.freq, "--freq");
   s.drives_vpk = drive_levels(opt);
   s.oversample = opt.oversample;
+  s.automatic_oversample = !opt.oversample_given;
   s.harmonics = opt.harmonics;
   s.bandwidth_hz = option_frequency_hz(opt.bandwidth, "--bandwidth");
   s.base_rate_hz = option_frequency_hz(opt.rate, "--rate");

@@ -90,7 +90,7 @@ sweep_settings point_settings(const compare_settings& s, double drive_vpk) {
   sweep_settings p;
   p.frequency_hz = s.frequency_hz;
   p.drives_vpk = {drive_vpk};
-  p.oversample = s.oversample;
+  p.oversample = s.automatic_oversample ? automatic_oversampling(s.frequency_hz, s.base_rate_hz, s.bandwidth_hz) : s.oversample;
   p.base_rate_hz = s.base_rate_hz;
   p.harmonics = std::max(s.harmonics, 10);
   p.bandwidth_hz = s.bandwidth_hz;
@@ -220,8 +220,8 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
     res.sample_rate_hz = p.base_rate_hz * p.oversample;
     res.frequency_hz = plan_sweep(p).frequency_hz();
     res.thd_harmonics = p.harmonics;
+    res.oversample = p.oversample;
   }
-  res.oversample = s.oversample;
   res.harmonics = s.harmonics;
   res.mode = s.mode;
   res.level_vpk = s.level_vpk;

@@ -28,7 +28,8 @@ struct compare_settings {
   double level_vpk{0.34641016151377546}; ///< > 0; default -10 dBu = sqrt(0.12) V peak
   double frequency_hz{1000.0};           ///< snapped as in run_sweep
   int harmonics{5};                      ///< N: H2..HN reported, 2..100
-  int oversample{8};
+  int oversample{8};  ///< 1..64
+  bool automatic_oversample{false};  ///< oversample chosen by automatic_oversampling() (sweep.hpp)
   double base_rate_hz{48000.0};
   double bandwidth_hz{20000.0};
   double max_drive_vpk{20.0};            ///< the drive searches give up above it

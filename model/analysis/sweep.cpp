@@ -106,7 +106,18 @@ void validate(const sweep_settings& s) {
                                             ", or lower the oversampling or the audio rate");
 }
 
-sweep_plan plan_sweep(const sweep_settings& s) {
+int automatic_oversampling(double frequency_hz, double base_rate_hz, double bandwidth_hz) noexcept {
+  if (!(frequency_hz > 0) || !(base_rate_hz > 0) || !(bandwidth_hz > 0)) return 8;
+  for (int k = 1; k < 8; k *= 2) {
+    const double rate = k * base_rate_hz;
+    if (0.5 * rate > bandwidth_hz && (rate - bandwidth_hz) / frequency_hz >= reference_fold_order) return k;
+  }
+  return 8;
+}
+
+sweep_plan plan_sweep(const sweep_settings& asked) {
+  sweep_settings s = asked;
+  if (s.automatic_oversample) s.oversample = automatic_oversampling(s.frequency_hz, s.base_rate_hz, s.bandwidth_hz);
   validate(s);
   sweep_plan p;
   p.settings_ = s;

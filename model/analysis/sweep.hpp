@@ -21,12 +21,23 @@ struct sweep_settings {
   double frequency_hz{1000.0};
   std::vector<double> drives_vpk;   ///< generator open-circuit sine peaks, > 0
   int oversample{8};                ///< 1..64
+  bool automatic_oversample{false}; ///< oversample chosen by automatic_oversampling()
   double base_rate_hz{48000.0};     ///< the audio rate the oversampling multiplies
   int harmonics{10};                ///< N: H2..HN
   double bandwidth_hz{20000.0};     ///< harmonics above it are not counted (AES17)
   int cycles{3};                    ///< K
   int threads{0};                   ///< 0: one per core; results do not depend on it
 };
+
+/// The oversampling a sweep takes when none is asked (sweep_settings::automatic_oversample). What
+/// the factor guards against is harmonics above the simulation's Nyquist limit folding back
+/// into the band, and what folds is a harmonic's order: the first harmonic that can fold
+/// into the band at factor k is of order (k * base_rate - bandwidth) / frequency. The factor
+/// is the lowest of 1, 2, 4 and 8 at which that order is at least reference_fold_order (the
+/// order at 8x 48 kHz and 1 kHz, with a 20 kHz band), and whose Nyquist limit is above the
+/// band; 8 where none is. So 8 at about 1 kHz and above at 48 kHz, 1 at 20-70 Hz.
+int automatic_oversampling(double frequency_hz, double base_rate_hz, double bandwidth_hz) noexcept;
+inline constexpr double reference_fold_order = (8 * 48000.0 - 20000.0) / 1000.0;  // 364
 
 /// Validates the settings against the simulation rate; throws setting_error naming the
 /// field ("oversampling", "base_rate_hz", "frequency_hz", "harmonics", "bandwidth_hz",
