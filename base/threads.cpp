@@ -1,6 +1,16 @@
 #include "base/threads.hpp"
 
+#include <string>
+
+#include "base/error.hpp"
+
 namespace pinchoff::base {
+
+void check_thread_count(int threads) {
+  if (threads < 0 || threads > max_threads)
+    throw setting_error("threads", "the number of threads must be 0 (one per core) to " + std::to_string(max_threads) +
+                                       ", got " + std::to_string(threads));
+}
 
 void parallel_for(int n, int threads, const std::function<void(int)>& fn) {
   int t = threads > 0 ? threads : static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));

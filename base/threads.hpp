@@ -11,6 +11,12 @@
 
 namespace pinchoff::base {
 
+/// The most threads a command may be asked for (0 asks for one per core): far beyond any
+/// machine's cores, and low enough that starting them cannot exhaust the process.
+inline constexpr int max_threads = 256;
+/// Throws setting_error("threads", ...) unless 0 <= threads <= max_threads.
+void check_thread_count(int threads);
+
 /// Runs fn(i) for i in [0, n) on `threads` threads (0: one per core), each index once.
 void parallel_for(int n, int threads, const std::function<void(int)>& fn);
 

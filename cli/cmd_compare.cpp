@@ -272,7 +272,7 @@ CLI::App* setup(CLI::App& app, compare_options& opt) {
   sub->add_flag("--json", opt.json, "Machine-readable output");
   sub->add_flag("--csv", opt.csv, "One row per design as CSV");
   sub->add_option("--plot", opt.plot, "Write the harmonic profiles as grouped bars (SVG)")->type_name("FILE.svg");
-  sub->add_option("--threads", opt.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
+  sub->add_option("--threads", opt.threads, "Threads, 0 (one per core) to 256; results do not depend on it")->capture_default_str();
   sub->footer(
       "Examples:\n"
       "  pinchoff compare presets/bass-booster-9v.toml presets/clean-preamp-18v.toml presets/phantom-mic-follower.toml\n"
@@ -349,6 +349,7 @@ void register_compare(CLI::App& app, std::vector<command>& commands, const data_
                        {"output_level_vpk", "--at-output"},
                        {"harmonics", "--harmonics"},
                        {"oversampling", "--oversample"},
+                       {"threads", "--threads"},
                        {"frequency_hz", "--freq"}},
                       [opt] {
                         command_files f;

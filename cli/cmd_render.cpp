@@ -472,7 +472,7 @@ CLI::App* setup(CLI::App& app, render_options& o) {
   sub->add_option("--format", o.format,
                   "wav16, wav24, float (32-bit float WAV) or flac (24-bit); default: as the input")
       ->type_name("FORMAT");
-  sub->add_option("--threads", o.threads, "Threads (0: one per core): engines on up to one each per channel and stage, and from 2 on, one more "
+  sub->add_option("--threads", o.threads, "Threads, 0 (one per core) to 256: engines on up to one each per channel and stage, and from 2 on, one more "
                   "meters and writes beside them; results do not depend on it")
       ->capture_default_str()
       ->check(CLI::Range(0, 256));

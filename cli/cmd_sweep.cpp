@@ -260,7 +260,7 @@ CLI::App* setup(CLI::App& app, sweep_options& opt, const data_files& data) {
   sub->add_flag("--csv", opt.csv, "Every point as CSV");
   sub->add_option("--plot", opt.plot, "Write THD and H2..H5 against drive as SVG")->type_name("FILE.svg");
   sub->add_flag("--verbose", opt.verbose, "Also show Newton and steady-state statistics per point");
-  sub->add_option("--threads", opt.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
+  sub->add_option("--threads", opt.threads, "Threads, 0 (one per core) to 256; results do not depend on it")->capture_default_str();
   sub->footer(
       "Examples:\n"
       "  pinchoff sweep presets/bass-booster-9v.toml\n"
@@ -321,6 +321,7 @@ void register_sweep(CLI::App& app, std::vector<command>& commands, const data_fi
                       {{"frequency_hz", "--freq"},
                        {"drives_vpk", "--drive"},
                        {"oversampling", "--oversample"},
+                       {"threads", "--threads"},
                        {"harmonics", "--harmonics"},
                        {"bandwidth_hz", "--bandwidth"},
                        {"base_rate_hz", "--rate"}},

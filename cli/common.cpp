@@ -117,7 +117,7 @@ void add_spread_options(CLI::App& sub, spread_input& in) {
                      " (that many pin the yield to within 0.16 %; each run takes about 0.5 ms and 1 KB)")
       ->capture_default_str();
   sub.add_option("--seed", in.seed, "Seed: the same seed gives the same runs")->capture_default_str();
-  sub.add_option("--threads", in.threads, "Threads (0: one per core); results do not depend on it")->capture_default_str();
+  sub.add_option("--threads", in.threads, "Threads, 0 (one per core) to 256; results do not depend on it")->capture_default_str();
 }
 
 void map_spread_fields(std::map<std::string, std::string, std::less<>>& options_of_fields) {

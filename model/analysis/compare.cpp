@@ -83,6 +83,7 @@ void validate(const compare_settings& s) {
   if (!(s.output_tolerance_db > 0) || !(s.thd_tolerance > 0) || !(s.thd_search_from_vpk > 0) ||
       !(s.thd_search_from_vpk < s.max_drive_vpk) || !(s.max_thd_percent > 0))
     throw internal_error("comparison search settings out of range");
+  base::check_thread_count(s.threads);
   validate(point_settings(s, std::min(s.level_vpk, s.max_drive_vpk)));
 }
 

@@ -65,9 +65,7 @@ void validate(const spread_settings& s, const stage& st) {
                                     std::to_string(s.runs) +
                                     " (100,000 runs give the yield to within 0.16 %; each run takes about 0.5 ms and "
                                     "1 KB, so more would take minutes and gigabytes for no better answer)");
-  if (s.threads < 0 || s.threads > max_spread_threads)
-    throw setting_error("threads", "the number of threads must be 0 (one per core) to " + std::to_string(max_spread_threads) +
-                                       ", got " + std::to_string(s.threads));
+  base::check_thread_count(s.threads);
 }
 
 spread_draw draw_part(const spread_settings& s, const stage& st, int index) {

@@ -26,7 +26,6 @@ enum class spread_distribution { uniform, normal };
 inline constexpr int max_spread_runs = 100000;
 /// The most threads a spread starts: each is a system thread, and beyond the cores they only
 /// wait their turn (a thread per run of 100,000 runs exhausted the process's threads).
-inline constexpr int max_spread_threads = 256;
 
 struct spread_settings {
   std::optional<base::value_range> idss_a;  ///< absent: the stage's value
@@ -37,7 +36,7 @@ struct spread_settings {
   spread_distribution distribution{spread_distribution::uniform};
   int runs{2000};                ///< 1 to max_spread_runs
   std::uint64_t seed{1};
-  int threads{0};                ///< 0: one per core; at most max_spread_threads
+  int threads{0};                ///< 0: one per core; at most base::max_threads
   std::string class_name;        ///< the device class the ranges came from, if any
 };
 

@@ -71,6 +71,7 @@ int concurrent_points(int threads, int samples_per_record) {
 
 void validate(const sweep_settings& s) {
   using base::format_si;
+  base::check_thread_count(s.threads);
   if (s.oversample < 1 || s.oversample > 64)
     throw setting_error("oversampling", "oversampling must be 1 to 64, got " + std::to_string(s.oversample));
   if (!(s.base_rate_hz >= 8000 && s.base_rate_hz <= 768000))
