@@ -22,6 +22,7 @@
 
 #include "base/error.hpp"
 #include "base/output_file.hpp"
+#include "support/files.hpp"
 #include "support/scratch_dir.hpp"
 
 namespace fs = std::filesystem;
@@ -32,24 +33,9 @@ using pinchoff::testing::scratch_dir;
 
 namespace {
 
-std::string slurp(const fs::path& p) {
-  std::ifstream f(p, std::ios::binary);
-  std::ostringstream s;
-  s << f.rdbuf();
-  return s.str();
-}
-
-void put(const fs::path& p, const std::string& bytes) {
-  std::ofstream f(p, std::ios::binary);
-  f << bytes;
-}
-
-std::vector<std::string> names_in(const fs::path& dir) {
-  std::vector<std::string> n;
-  for (const auto& e : fs::directory_iterator(dir)) n.push_back(e.path().filename().string());
-  std::sort(n.begin(), n.end());
-  return n;
-}
+using pinchoff::testing::names_in;
+using pinchoff::testing::put;
+using pinchoff::testing::slurp;
 
 void commit_one(const fs::path& target, const std::string& bytes, existing policy) {
   output_set set;

@@ -25,6 +25,7 @@
 #include "base/output_file.hpp"
 #include "cli/app.hpp"
 #include "support/cli_runner.hpp"
+#include "support/files.hpp"
 #include "support/scratch_dir.hpp"
 
 namespace fs = std::filesystem;
@@ -36,24 +37,9 @@ namespace {
 
 std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
 
-std::string slurp(const fs::path& p) {
-  std::ifstream f(p, std::ios::binary);
-  std::ostringstream s;
-  s << f.rdbuf();
-  return s.str();
-}
-
-void put(const fs::path& p, const std::string& bytes) {
-  std::ofstream f(p, std::ios::binary);
-  f << bytes;
-}
-
-std::vector<std::string> names_in(const fs::path& dir) {
-  std::vector<std::string> n;
-  for (const auto& e : fs::directory_iterator(dir)) n.push_back(e.path().filename().string());
-  std::sort(n.begin(), n.end());
-  return n;
-}
+using pinchoff::testing::names_in;
+using pinchoff::testing::put;
+using pinchoff::testing::slurp;
 
 bool has_hidden_file(const fs::path& dir) {
   for (const auto& e : fs::directory_iterator(dir))
