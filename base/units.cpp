@@ -206,6 +206,26 @@ double parse_level_vpk(std::string_view text, bool require_unit) {
                     (require_unit ? std::string(")") : std::string("; a bare number is volts peak)")));
 }
 
+std::optional<double> parse_spl_db(std::string_view text) {
+  std::string compact;  // "94 dB SPL" reads as "94dBSPL"
+  for (char c : trim(text))
+    if (c != ' ') compact += c;
+  static constexpr std::string_view suffix = "dBSPL";
+  if (compact.size() < suffix.size() || !iequals(std::string_view(compact).substr(compact.size() - suffix.size()), suffix))
+    return std::nullopt;
+  const std::optional<double> v = parse_impl(std::string_view(compact).substr(0, compact.size() - suffix.size()), unit::none);
+  if (!v || !std::isfinite(*v))
+    throw input_error("cannot read '" + std::string(text) + "' as a sound pressure level (expected for example 94dBSPL)");
+  // 0 dB SPL is about the threshold of hearing; 194 dB SPL is a pressure swing of one
+  // atmosphere, beyond which a sine wave of pressure cannot exist in air (common practice).
+  if (*v < 0.0 || *v > 194.0)
+    throw input_error("sound pressure level '" + std::string(text) +
+                      "' lies outside 0 to 194 dB SPL (from the threshold of hearing to a swing of one atmosphere)");
+  return *v;
+}
+
+double pa_rms_from_db_spl(double level_db_spl) noexcept { return spl_reference_pa * std::pow(10.0, level_db_spl / 20.0); }
+
 double parse_frequency_hz(std::string_view text) {
   const double f = parse_value(text, unit::hertz);
   if (!(f > 0.0)) throw input_error("frequency '" + std::string(text) + "' must be above 0 Hz");

@@ -26,6 +26,11 @@ std::optional<double> try_parse_value(std::string_view text, unit u = unit::none
 /// peak. When `require_unit` is set a bare number is refused.
 double parse_level_vpk(std::string_view text, bool require_unit = false);
 
+/// A sound pressure level written "94dBSPL" (or "94 dB SPL", any case): its value in dB SPL,
+/// or nullopt when the text is not written as one. Throws input_error when it is written as
+/// one but its number cannot be read or is out of 0 to 194 dB SPL.
+std::optional<double> parse_spl_db(std::string_view text);
+
 /// Reads a frequency ("1k", "1000", "1kHz") in hertz; must be > 0.
 double parse_frequency_hz(std::string_view text);
 
@@ -63,6 +68,8 @@ double parse_fraction(std::string_view text, std::string_view what = {});
 inline constexpr double dbu_reference_vrms = 0.7745966692414834;  // sqrt(0.6) V, 0 dBu
 inline constexpr double dbv_reference_vrms = 1.0;                 // 0 dBV
 inline constexpr double sqrt2 = 1.4142135623730951;
+// 0 dB SPL = 20 µPa rms (IEC 60268-4, ISO 1683); 94 dB SPL is then 1.002 Pa, the usual 1 Pa.
+inline constexpr double spl_reference_pa = 20e-6;
 
 double db_from_ratio(double ratio) noexcept;       // 20 log10(ratio)
 double ratio_from_db(double gain_db) noexcept;     // 10^(db/20)
@@ -70,6 +77,7 @@ double dbu_from_vpk(double vpk) noexcept;
 double vpk_from_dbu(double level_dbu) noexcept;
 double dbv_from_vpk(double vpk) noexcept;
 double vpk_from_dbv(double level_dbv) noexcept;
+double pa_rms_from_db_spl(double level_db_spl) noexcept;  // 20 µPa x 10^(L/20)
 
 /// Formats a value with an SI prefix and unit symbol, `digits` significant digits:
 /// format_si(4700, "Ω") == "4.70 kΩ"; format_si(-0.00259, "A") == "-2.59 mA".

@@ -1,5 +1,6 @@
 // pinchoff bias: operating point, small-signal figures, headroom, corners and warnings.
 #include <cmath>
+#include <complex>
 #include <memory>
 #include <numbers>
 #include <optional>
@@ -126,7 +127,9 @@ void print_text(const bias_report& r, const std::string& path, std::ostream& out
   op.add({"VDS", format_si(t.vds_v, "V", 4), "", "", ""});
   op.write(out);
 
-  out << "\nSmall signal (mid-band: coupling and bypass capacitors shorted)\n";
+  out << (r.st.has_capsule() ? "\nSmall signal (mid-band: 1 kHz through the capsule's divider, coupling and bypass "
+                               "capacitors shorted)\n"
+                             : "\nSmall signal (mid-band: coupling and bypass capacitors shorted)\n");
   text_table ss({align::left, align::right, align::left});
   ss.add({"gm", format_si(r.b.ss.gm_s, "S"), ""});
   ss.add({"gds", format_si(r.b.ss.gds_s, "S"),
@@ -154,8 +157,43 @@ void print_text(const bias_report& r, const std::string& path, std::ostream& out
   print_tail(r, out);
 }
 
+std::string impedance_text(std::complex<double> z) {
+  return format_si(std::abs(z), "Ω") + " at " + format_number(std::arg(z) * 180.0 / std::numbers::pi, 3) + "°";
+}
+
+// What the source sees of the first stage, and a capsule stage's output at 94 dB SPL.
+void print_input(const bias_report& r, std::ostream& out) {
+  out << "\nWhat the source sees" << (r.st.is_chain() ? " (stage 1)" : "") << '\n';
+  text_table in({align::left, align::right, align::left});
+  in.add({"input capacitance", format_si(r.b.input.capacitance_f, "F"), "cgs and the Miller cgd, at 1 kHz"});
+  in.add({"input impedance", impedance_text(r.b.input.z_1khz_ohm), "at 1 kHz"});
+  in.add({"", impedance_text(r.b.input.z_10khz_ohm), "at 10 kHz"});
+  if (r.st.has_capsule()) {
+    const double v = r.b.output_at_94_db_spl_vrms;
+    in.add({"output at 94 dB SPL", format_number(base::db_from_ratio(v), 3) + " dBV",
+            format_number(v * 1e3, 4) + " mV rms at the load, capsule " +
+                format_number(r.st.capsule.sensitivity_v_per_pa * 1e3, 4) + " mV/Pa"});
+  }
+  in.write(out);
+}
+
+nlohmann::json input_json(const bias_report& r) {
+  auto z = [](std::complex<double> v) {
+    return nlohmann::json{{"magnitude_ohm", std::abs(v)}, {"phase_deg", std::arg(v) * 180.0 / std::numbers::pi}};
+  };
+  nlohmann::json j{{"capacitance_f", r.b.input.capacitance_f},
+                   {"impedance_1khz", z(r.b.input.z_1khz_ohm)},
+                   {"impedance_10khz", z(r.b.input.z_10khz_ohm)}};
+  if (r.st.has_capsule()) {
+    j["output_at_94_db_spl_dbv"] = base::db_from_ratio(r.b.output_at_94_db_spl_vrms);
+    j["output_at_94_db_spl_vrms"] = r.b.output_at_94_db_spl_vrms;
+  }
+  return j;
+}
+
 // What single stages and chains share: corners, reactances, warnings.
 void print_tail(const bias_report& r, std::ostream& out) {
+  print_input(r, out);
 
   if (!r.b.ss.corners.empty()) {
     out << "\nLow-frequency corners (each capacitor alone, the others shorted)\n";
@@ -256,6 +294,7 @@ void print_json(const bias_report& r, std::ostream& out) {
     nlohmann::json corners = nlohmann::json::array();
     for (const auto& c : r.b.ss.corners) corners.push_back(corner_json(c));
     j["corners"] = corners;
+    j["input"] = input_json(r);
     j["warnings"] = r.b.warnings;
     out << json_text(j) << '\n';
     return;
@@ -276,6 +315,7 @@ void print_json(const bias_report& r, std::ostream& out) {
   for (const auto& c : r.b.ss.corners) corners.push_back(corner_json(c));
   j["corners"] = corners;
   j["low_corner_estimate_hz"] = r.b.ss.low_corner_estimate_hz;
+  j["input"] = input_json(r);
   if (r.b.at_hz) {
     nlohmann::json xs = nlohmann::json::array();
     for (const auto& c : r.b.reactances)

@@ -154,10 +154,13 @@ void run(const imd_options& opt, std::ostream& out, std::ostream& err) {
   s.method = opt.method == "din"         ? model::imd_method::din
              : opt.method == "twin-tone" ? model::imd_method::twin_tone
                                          : model::imd_method::smpte;
-  s.level_vpk = option_level_vpk(opt.level, "--level");
+  // A sound pressure level needs the capsule's sensitivity: the stage is read first then.
+  const bool spl = is_spl_level(opt.level);
+  if (spl) rep.st = load_stage(opt.input);
+  s.level_vpk = option_level_vpk(opt.level, "--level", spl ? &rep.st : nullptr);
   s.oversample = opt.oversample;
   s.base_rate_hz = option_frequency_hz(opt.rate, "--rate");
-  rep.st = load_stage(opt.input);
+  if (!spl) rep.st = load_stage(opt.input);
   rep.warnings = rest_point_warnings(rep.st, "imd", err);
   rep.r = model::run_imd(rep.st, s);
   if (rep.r.newton.failed > 0)

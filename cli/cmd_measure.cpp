@@ -110,7 +110,10 @@ std::optional<prediction> load_against(const measure_options& o) {
   prediction p;
   p.path = o.against_path;
   p.overrides = o.overrides;
-  p.drive_vpk = option_level_vpk(o.drive_text, "--drive");
+  // A sound pressure level needs the capsule's sensitivity: the stage is read first then.
+  const bool spl = is_spl_level(o.drive_text);
+  if (spl) p.st = load_stage(p.path, p.overrides, o.devices);
+  p.drive_vpk = option_level_vpk(o.drive_text, "--drive", spl ? &p.st : nullptr);
   if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
   // A generator's level, as render's --input-peak: beyond these no audio source is met
   // (common practice), and the prediction's figures lose their meaning (1e300 V gave an
@@ -118,7 +121,7 @@ std::optional<prediction> load_against(const measure_options& o) {
   if (!(p.drive_vpk >= 1e-6 && p.drive_vpk <= 1e3))
     throw input_error("--drive must be 1 µV to 1 kV peak at the generator, got " +
                       (p.drive_vpk < 1e15 && p.drive_vpk >= 1e-15 ? format_si(p.drive_vpk, "V") : format_number(p.drive_vpk) + " V"));
-  p.st = load_stage(p.path, p.overrides, o.devices);
+  if (!spl) p.st = load_stage(p.path, p.overrides, o.devices);
   return p;
 }
 

@@ -245,7 +245,7 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::
   model::run_extra extra;
   if (!opt.drive.empty()) {
     model::sweep_settings sw;
-    sw.drives_vpk = {option_level_vpk(opt.drive, "--drive")};
+    sw.drives_vpk = {option_level_vpk(opt.drive, "--drive", &rep.st)};
     sw.frequency_hz = option_frequency_hz(opt.freq, "--freq");
     sw.threads = 1;
     sw.automatic_oversample = true;  // as sweep without --oversample: enough for the frequency

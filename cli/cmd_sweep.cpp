@@ -39,17 +39,18 @@ struct sweep_options {
   int threads{0};
 };
 
-std::vector<double> drive_levels(const sweep_options& o) {
+// `source`: the stage, when a level is written as a sound pressure (a capsule's).
+std::vector<double> drive_levels(const sweep_options& o, const model::stage* source) {
   std::vector<double> d;
   if (!o.drive.empty()) {
     if (!o.from.empty() || !o.to.empty()) throw input_error("--drive and --from/--to: choose one");
     std::stringstream ss(o.drive);
     std::string item;
-    while (std::getline(ss, item, ',')) d.push_back(option_level_vpk(item, "--drive"));
+    while (std::getline(ss, item, ',')) d.push_back(option_level_vpk(item, "--drive", source));
     return d;  // the model checks that there are levels and that each is above 0 V
   }
-  const double lo = option_level_vpk(o.from.empty() ? "-40dBu" : o.from, "--from");
-  const double hi = option_level_vpk(o.to.empty() ? "+20dBu" : o.to, "--to");
+  const double lo = option_level_vpk(o.from.empty() ? "-40dBu" : o.from, "--from", source);
+  const double hi = option_level_vpk(o.to.empty() ? "+20dBu" : o.to, "--to", source);
   if (!(lo > 0) || !(hi > lo)) throw input_error("--from must be above 0 V and below --to");
   if (o.steps < 2 || o.steps > 1000) throw input_error("--steps must be between 2 and 1000");
   for (int k = 0; k < o.steps; ++k) d.push_back(lo * std::pow(hi / lo, double(k) / (o.steps - 1)));
@@ -280,7 +281,10 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
   sweep_report rep;
   model::sweep_settings& s = rep.settings;
   s.frequency_hz = option_frequency_hz(opt.freq, "--freq");
-  s.drives_vpk = drive_levels(opt);
+  // A sound pressure level needs the capsule's sensitivity: the stage is read first then.
+  const bool spl = is_spl_level(opt.drive) || is_spl_level(opt.from) || is_spl_level(opt.to);
+  if (spl) rep.st = load_stage(opt.input);
+  s.drives_vpk = drive_levels(opt, spl ? &rep.st : nullptr);
   s.oversample = opt.oversample;
   s.automatic_oversample = !opt.oversample_given;
   s.harmonics = opt.harmonics;
@@ -288,7 +292,7 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
   s.base_rate_hz = option_frequency_hz(opt.rate, "--rate");
   s.threads = opt.threads;
   const model::sweep_plan plan = model::plan_sweep(s);  // the settings' errors before any file is read
-  rep.st = load_stage(opt.input);
+  if (!spl) rep.st = load_stage(opt.input);
   // The rest point's cautions first (before the simulation's wait), then anything the
   // solver could not do: said, never hidden.
   rep.problems = rest_point_warnings(rep.st, "sweep", err);

@@ -2,6 +2,9 @@
 
 #include <cmath>
 
+#include <optional>
+#include <sstream>
+
 #include "base/error.hpp"
 #include "base/units.hpp"
 #include "cli/option_text.hpp"
@@ -73,8 +76,30 @@ double option_frequency_hz(const std::string& text, const std::string& option) {
   }
 }
 
-double option_level_vpk(const std::string& text, const std::string& option) {
+bool is_spl_level(const std::string& text) {
+  std::stringstream ss(text);
+  std::string item;
+  while (std::getline(ss, item, ',')) {
+    try {
+      if (base::parse_spl_db(item)) return true;
+    } catch (const input_error&) {
+      return true;  // written as one: its message comes when it is read
+    }
+  }
+  return false;
+}
+
+double option_level_vpk(const std::string& text, const std::string& option, const model::stage* source) {
   try {
+    if (const std::optional<double> spl = base::parse_spl_db(text)) {
+      if (source == nullptr)
+        throw input_error("'" + text + "' is a sound pressure level, which this option does not take; give a voltage "
+                          "level such as -10dBu");
+      if (!source->has_capsule())
+        throw input_error("'" + text + "' is a sound pressure level, which needs a capsule source ([signal] kind = "
+                          "\"capsule\" with its sensitivity) to become a voltage; give a voltage level such as -10dBu");
+      return source->capsule.sensitivity_v_per_pa * base::pa_rms_from_db_spl(*spl) * base::sqrt2;
+    }
     return base::parse_level_vpk(text);
   } catch (const input_error& e) {
     throw input_error(option + ": " + e.what());

@@ -61,7 +61,13 @@ const char* topology_name(model::topology t) noexcept;
 /// base::parse_frequency_hz / base::parse_level_vpk with the option named in any error
 /// ("--freq: cannot read '1kV' as a frequency ...").
 double option_frequency_hz(const std::string& text, const std::string& option);
-double option_level_vpk(const std::string& text, const std::string& option);
+/// A level may be a sound pressure ("94dBSPL") when `source` is a stage driven by a capsule:
+/// the capsule's open-circuit voltage, sensitivity x pressure (rms), as volts peak. Without
+/// a capsule (or without `source`) a sound pressure is refused by name.
+double option_level_vpk(const std::string& text, const std::string& option, const model::stage* source = nullptr);
+/// True when a level, or any of a comma-separated list of levels, is written as a sound
+/// pressure level ("94dBSPL").
+bool is_spl_level(const std::string& text);
 
 /// Reads the frequency given to `option` ("--at", "--to") and checks that it lies in the
 /// band the small-signal analyses cover (model::lowest_analysis_hz .. highest_analysis_hz).

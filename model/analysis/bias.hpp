@@ -7,6 +7,7 @@
 #include <vector>
 
 #include "model/analysis/headroom.hpp"
+#include "model/analysis/response.hpp"
 #include "model/analysis/small_signal.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
@@ -19,6 +20,10 @@ struct bias_figures {
   operating_point op;
   small_signal_figures ss;
   headroom_figures head;
+  input_figures input;                     ///< what the source sees of the first stage
+  /// A capsule stage: the output at 94 dB SPL (1.002 Pa), V rms, the capsule's sensitivity
+  /// times the pressure times the mid-band (1 kHz) gain; 0 for another source.
+  double output_at_94_db_spl_vrms{0};
   std::vector<std::string> warnings;       ///< operating_warnings (model/analysis/warnings.hpp)
   std::optional<double> at_hz;             ///< the frequency of `reactances`, when asked
   std::vector<cap_reactance> reactances;   ///< at at_hz

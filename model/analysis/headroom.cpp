@@ -5,6 +5,7 @@
 #include <vector>
 
 #include "base/error.hpp"
+#include "model/analysis/small_signal.hpp"
 
 namespace pinchoff::model {
 namespace {
@@ -127,7 +128,9 @@ headroom_figures analyse_headroom(const network& net, const operating_point& op)
   std::vector<cap_treatment> caps = uniform_caps(net, cap_treatment::kind::open);
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     const net_capacitor& c = net.capacitors[k];
-    if (!is_large_cap(c.role)) continue;
+    // A capsule holds its rest voltage too, so the gate follows the generator; its divider
+    // with the gate's capacitance is applied to the drive figures below.
+    if (!is_large_cap(c.role) && c.role != cap_role::capsule) continue;
     caps[k].how = cap_treatment::kind::held;
     caps[k].volts = node_v(op.x, c.a) - node_v(op.x, c.b);
   }
@@ -221,6 +224,23 @@ headroom_figures analyse_headroom(const network& net, const operating_point& op)
     return a.drive_vpk < b.drive_vpk;
   });
   h.clip_order = std::move(edges);
+
+  // A capsule network: the sweep above drove the gate straight (the capsule held); the
+  // generator reaches the gate through the capacitive divider of the capsule against the
+  // stray and the gate's input capacitance, so each drive figure is the gate's divided by the
+  // divider's mid-band ratio (small-signal: the Miller part of the input capacitance is that
+  // of rest, a first-order figure near the clipping edge).
+  if (net.midband_hz > 0.0) {
+    ac_setup mid;
+    mid.generator_v = 1.0;
+    mid.small_caps_hz = net.midband_hz;
+    const double ratio = std::abs(solve_small_signal(net, linearise_all(net, op), mid)[net.input_node]);
+    if (ratio > 0.0) {
+      for (swing_limit* l : {&h.up, &h.down}) l->drive_v /= ratio;
+      h.clean_drive_vpk /= ratio;
+      for (stage_clip& c : h.clip_order) c.drive_vpk /= ratio;
+    }
+  }
   return h;
 }
 

@@ -31,13 +31,33 @@ response_point response_at(const network& net, const operating_point& op, double
   return {f_hz, solve_small_signal(net, lin, g)[net.output_node], solve_small_signal(net, lin, z)[net.input_node]};
 }
 
+input_figures analyse_input(const network& net, const operating_point& op) {
+  const std::vector<jfet_linear> lin = linearise_all(net, op);
+  constexpr double f_hz = 1000.0;
+  ac_setup g;
+  g.midband = false;
+  g.s = {0.0, 2.0 * std::numbers::pi * f_hz};
+  g.generator_v = 1.0;
+  const Eigen::VectorXcd v = solve_small_signal(net, lin, g);
+  const net_jfet& q = net.jfet();
+  input_figures in;
+  const std::complex<double> vg = v[q.gate];
+  if (std::abs(vg) > 0.0)
+    in.capacitance_f = (q.device.cgs_f * (1.0 - v[q.source] / vg) + q.device.cgd_f * (1.0 - v[q.drain] / vg)).real();
+  in.z_1khz_ohm = response_at(net, op, f_hz).zin_ohm;
+  in.z_10khz_ohm = response_at(net, op, 10.0 * f_hz).zin_ohm;
+  return in;
+}
+
 response_result analyse_response(const network& net, const operating_point& op, double f_lo_hz, double f_hi_hz,
                                  int points) {
   const std::vector<jfet_linear> lin = linearise_all(net, op);
   response_result r;
   ac_setup mid;
   mid.generator_v = 1.0;
-  r.midband_gain = solve_small_signal(net, lin, mid)[net.output_node].real();
+  mid.small_caps_hz = net.midband_hz;  // a capsule network: the gain at 1 kHz, the capsule's divider included
+  const std::complex<double> g_mid = solve_small_signal(net, lin, mid)[net.output_node];
+  r.midband_gain = g_mid.real() < 0 ? -std::abs(g_mid) : std::abs(g_mid);
 
   for (int k = 0; k < points; ++k) {
     const double f = f_lo_hz * std::pow(f_hi_hz / f_lo_hz, double(k) / (points - 1));

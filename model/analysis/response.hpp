@@ -25,13 +25,24 @@ struct response_point {
 /// Gain and input impedance at one frequency (> 0).
 response_point response_at(const network& net, const operating_point& op, double f_hz);
 
+/// What a source sees of the first stage at audio frequencies: the capacitance of its gate
+/// (cgs and cgd with the Miller effect: each junction's current over the gate voltage, at
+/// 1 kHz) and the input impedance, every capacitor at its admittance.
+struct input_figures {
+  double capacitance_f{};               ///< Re[cgs (1 - vs/vg) + cgd (1 - vd/vg)] at 1 kHz
+  std::complex<double> z_1khz_ohm;      ///< looking into the stage after the source's impedance (a capsule's gate side)
+  std::complex<double> z_10khz_ohm;
+};
+input_figures analyse_input(const network& net, const operating_point& op);
+
 struct corner_crossing {
   double frequency_hz{};
   bool is_low{};  ///< true: the gain rises through -3 dB (a low corner); false: it falls
 };
 
 struct response_result {
-  double midband_gain{};          ///< signed V/V, capacitors as in the mid-band
+  double midband_gain{};          ///< signed V/V, capacitors as in the mid-band (a capsule network: at 1 kHz,
+                                  ///< the magnitude with the sign of its real part)
   std::vector<corner_crossing> corners;  ///< where |gain| crosses |midband| - 3.0103 dB
   std::vector<response_point> points;
 };

@@ -9,6 +9,9 @@ namespace pinchoff::model {
 namespace {
 using cplx = std::complex<double>;
 inline int row(int node) noexcept { return node - 1; }
+// A gain that may carry a small phase (a capsule network's mid-band at 1 kHz): its
+// magnitude with the sign of its real part; exactly the real value when it is real.
+double signed_gain(cplx g) noexcept { return g.real() < 0 ? -std::abs(g) : std::abs(g); }
 }  // namespace
 
 namespace {
@@ -94,6 +97,7 @@ Eigen::VectorXcd solve_small_signal(const network& net, std::span<const jfet_lin
       stamp_y(c.a, c.b, setup.s * c.farad);
     } else if (setup.midband) {
       if (is_large_cap(c.role)) stamp_v(c.a, c.b, 0.0);
+      else if (setup.small_caps_hz > 0.0) stamp_y(c.a, c.b, cplx{0.0, 2.0 * std::numbers::pi * setup.small_caps_hz} * c.farad);
     } else {
       stamp_y(c.a, c.b, setup.s * c.farad);
     }
@@ -128,8 +132,9 @@ small_signal_figures analyse_small_signal(const network& net, const operating_po
 
   ac_setup gain;
   gain.generator_v = 1.0;
+  gain.small_caps_hz = net.midband_hz;
   const Eigen::VectorXcd v_mid = solve_small_signal(net, lin, gain);
-  f.gain_midband = v_mid[net.output_node].real();
+  f.gain_midband = signed_gain(v_mid[net.output_node]);
   for (std::size_t k = 0; k < net.stages.size(); ++k) {
     stage_small_signal st;
     const jfet_linear& l = lin[static_cast<std::size_t>(net.stages[k].jfet)];
@@ -137,12 +142,12 @@ small_signal_figures analyse_small_signal(const network& net, const operating_po
     st.gds_s = l.gds_s;
     if (l.gds_s > 0) st.rds_ohm = 1.0 / l.gds_s;
     const int to = k + 1 < net.stages.size() ? net.stages[k + 1].input : net.output_node;
-    const double in = v_mid[net.stages[k].input].real();
-    st.gain = std::fabs(in) > 1e-300 ? v_mid[to].real() / in : NAN;
+    const cplx in = v_mid[net.stages[k].input];
+    st.gain = std::abs(in) > 1e-300 ? signed_gain(v_mid[to] / in) : NAN;
     f.stages.push_back(st);
   }
   gain.include_gds = false;
-  f.gain_midband_no_gds = solve_small_signal(net, lin, gain)[net.output_node].real();
+  f.gain_midband_no_gds = signed_gain(solve_small_signal(net, lin, gain)[net.output_node]);
 
   ac_setup zin;
   zin.generator_present = false;
@@ -167,6 +172,24 @@ small_signal_figures analyse_small_signal(const network& net, const operating_po
     f.corners.push_back({std::string(c.key), c.role, c.farad, r, fc});
     f.low_corner_estimate_hz += fc;
   }
+
+  // A capsule's high-pass: its capacitance, the stray and the gate's input capacitance (cgs
+  // and the Miller cgd, in parallel at the gate) against the resistance the gate sees, the
+  // capsule's voltage at 0 V and the small capacitors open. In band the gate carries
+  // C_capsule / C_total of the capsule's voltage, so C_total = C_capsule |v_gen / v_gate| at
+  // the mid-band frequency (the capacitive divider; its resistors' share is below 1e-4 there
+  // for any corner under 10 Hz).
+  for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
+    const net_capacitor& c = net.capacitors[k];
+    if (c.role != cap_role::capsule) continue;
+    ac_setup seen;
+    seen.inject_a = c.b;  // the gate side; the generator side is the ideal source at 0 V
+    const double r = solve_small_signal(net, lin, seen)[c.b].real();
+    const double total_f = c.farad / std::abs(v_mid[c.b]);
+    const double fc = 1.0 / (2.0 * std::numbers::pi * r * total_f);
+    f.corners.push_back({std::string(c.key), c.role, total_f, r, fc});
+    f.low_corner_estimate_hz += fc;
+  }
   return f;
 }
 
@@ -175,6 +198,7 @@ std::vector<cap_reactance> reactances_at(const network& net, const operating_poi
   const small_signal_figures ss = analyse_small_signal(net, op);
   ac_setup mid;
   mid.generator_v = 1.0;
+  mid.small_caps_hz = net.midband_hz;
   const double g_mid = std::abs(solve_small_signal(net, lin, mid)[net.output_node]);
   std::vector<cap_reactance> out;
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {

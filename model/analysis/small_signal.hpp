@@ -34,6 +34,9 @@ struct ac_setup {
   bool load_present{true};
   int removed_cap{-1};               ///< index of a capacitor left out (its terminals open)
   int admittance_cap{-1};            ///< in the mid-band, this one capacitor is s C instead of a short
+  /// In the mid-band, the capacitors that are not shorts (junction, treble cut, capsule) are
+  /// open when 0, or their admittances at this frequency (a capsule network's `midband_hz`).
+  double small_caps_hz{0.0};
   bool include_gds{true};
   int inject_a{-1};                  ///< node a 1 A test current flows into (-1: none)
   int inject_b{0};                   ///< node it flows out of
@@ -71,11 +74,13 @@ struct stage_small_signal {
 struct small_signal_figures {
   double gm_s{}, gds_s{};         ///< of the first JFET
   double rds_ohm{std::numeric_limits<double>::infinity()};  ///< 1/gds
-  double gain_midband{};          ///< generator to load, V/V, signed (negative: inverting)
+  double gain_midband{};          ///< generator to load, V/V, signed (negative: inverting); for a capsule
+                                  ///< network, at its mid-band frequency (magnitude, with the sign of its real part)
   double gain_midband_no_gds{};   ///< the same with gds = 0
   double zin_ohm{};               ///< looking into the stage after the generator impedance
   double zout_ohm{};              ///< looking back into the output, load removed
-  std::vector<cap_corner> corners;  ///< coupling and bypass capacitors (not the reservoir)
+  std::vector<cap_corner> corners;  ///< coupling and bypass capacitors (not the reservoir), and a capsule's
+                                    ///< high-pass (its farad: capsule, stray and the gate's input capacitance)
   double low_corner_estimate_hz{};  ///< sum of the corners (the method's estimate)
   std::vector<stage_small_signal> stages;  ///< one per stage (empty for a network built without stages)
 };

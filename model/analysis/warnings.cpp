@@ -44,6 +44,14 @@ std::vector<std::string> operating_warnings(const stage& s, const network& net, 
                 " DC: at or above 60 V is beyond the extra-low-voltage class (IEC 62368-1 ES1); such rails can hurt. "
                 "Follow local codes and licensed practice");
   const double isup = supply_current_a(net, op);
+  if (const phantom_feed* feed = s.supply.phantom) {
+    w.push_back("caution: a " + std::string(feed->name) + " phantom feed (" + format_si(feed->volts_v, "V") +
+                "); switch phantom power off at the preamp before connecting or reworking the microphone circuit");
+    if (isup > feed->max_current_a)
+      w.push_back("draws " + format_si(isup, "A") + " from the " + std::string(feed->name) + " phantom feed; IEC 61938 "
+                  "allows at most " + format_si(feed->max_current_a, "A"));
+    return w;
+  }
   if (vsup >= 44.0 && vsup <= 52.0 && s.supply.resistance_ohm >= 3000.0)
     w.push_back("caution: a 48 V phantom feed; switch phantom power off at the preamp before connecting or "
                 "reworking the microphone circuit");

@@ -10,7 +10,8 @@
 namespace pinchoff::model {
 
 bool is_large_cap(cap_role r) noexcept {
-  return r != cap_role::junction_gs && r != cap_role::junction_gd && r != cap_role::treble_cut;
+  return r != cap_role::junction_gs && r != cap_role::junction_gd && r != cap_role::treble_cut && r != cap_role::capsule &&
+         r != cap_role::capsule_stray;
 }
 bool is_reservoir(cap_role r) noexcept { return r == cap_role::supply_reservoir || r == cap_role::rail_reservoir; }
 
@@ -45,10 +46,17 @@ network build_network(const stage& s) {
   if (shared_rail != net.supply_node)
     add_c(shared_rail, 0, s.supply.capacitance_f, cap_role::supply_reservoir, "supply.capacitance");
 
-  // Generator -> impedance -> the first stage.
+  // Generator -> impedance (or a capsule) -> the first stage.
   net.generator_node = new_node("generator");
   net.input_node = net.generator_node;
-  if (s.signal_impedance_ohm > 0.0) {
+  if (s.has_capsule()) {
+    // The capsule: its open-circuit voltage (the generator) behind its capacitance, to the
+    // gate; the stray capacitance from there to ground.
+    net.input_node = new_node("input");
+    add_c(net.generator_node, net.input_node, s.capsule.capacitance_f, cap_role::capsule, "signal.capacitance");
+    add_c(net.input_node, 0, s.capsule.stray_f, cap_role::capsule_stray, "signal.stray");
+    net.midband_hz = capsule_midband_hz;
+  } else if (s.signal_impedance_ohm > 0.0) {
     net.input_node = new_node("input");
     add_r(net.generator_node, net.input_node, s.signal_impedance_ohm, "signal.impedance");
   }

@@ -23,13 +23,22 @@ enum class cap_role {
   interstage_coupling,  ///< a series capacitor in a chain's `between`
   rail_reservoir,       ///< a chain stage's rail filter capacitor
   treble_cut,           ///< a shunt capacitor in `between`, or across a drain resistor: open in the mid-band
+  capsule,              ///< a condenser capsule's own capacitance, from the generator to the gate: never shorted
+  capsule_stray,        ///< stray capacitance from the capsule's gate to ground
 };
+
+/// The frequency a capsule network's mid-band is taken at: 1 kHz, where a microphone's
+/// sensitivity is stated (IEC 60268-4). There the capsule, its stray capacitance and the
+/// junction capacitances are their admittances (the capacitive divider at the gate is the
+/// signal path), and the coupling, bypass and reservoir capacitors are shorts.
+inline constexpr double capsule_midband_hz = 1000.0;
 
 /// True for the reservoirs of the supply and of the stage rails (left out of the corners).
 bool is_reservoir(cap_role r) noexcept;
 
 /// True for the capacitors that are shorts in the mid-band (coupling, bypass, reservoir),
-/// false for the junction capacitances and the treble cuts (open in the mid-band).
+/// false for the junction capacitances, the treble cuts (open in the mid-band) and a
+/// capsule's capacitances (admittances at `network::midband_hz`).
 bool is_large_cap(cap_role r) noexcept;
 
 struct net_resistor {
@@ -70,7 +79,7 @@ struct network {
   int supply_node{0};     ///< ideal supply source from ground: V = supply_v
   double supply_v{0};     ///< mirrored supply voltage, > 0
   int generator_node{0};  ///< ideal generator from ground: V = u (mirrored)
-  int input_node{0};      ///< after the generator impedance; stage input impedance seen here
+  int input_node{0};      ///< after the generator impedance (a capsule's gate side); stage input impedance seen here
   /// The JFETs, at least one. The solvers (nodal, DC point, reference transient, DK
   /// engine) handle any number; the stage analyses built on one stage (small signal,
   /// headroom, tune) use the first.
@@ -80,6 +89,9 @@ struct network {
   bool has_load{false};
   double vt_v{0};         ///< thermal voltage, the same for every JFET
   double sign{1.0};       ///< +1 n-channel, -1 p-channel (every JFET of the network)
+  /// 0: the mid-band has every small capacitor open (a resistive source). A capsule
+  /// network's is `capsule_midband_hz`: its small capacitors are admittances there.
+  double midband_hz{0};
   std::string source;     ///< the stage file it was built from, for messages (may be empty)
   /// The stages in signal order (one for a single stage; empty for a network built in code
   /// without them).

@@ -50,6 +50,17 @@ void validate_parts(const stage_parts& s, const std::string& prefix, bool last) 
 
 }  // namespace
 
+const phantom_feed* find_phantom(std::string_view name) noexcept {
+  // IEC 61938 (from memory): voltage, one leg's feed resistance (halved: both legs feed the
+  // microphone in parallel) and the largest current the feed must supply.
+  static constexpr phantom_feed feeds[]{{"P48", 48.0, 6800.0 / 2, 10e-3},
+                                        {"P24", 24.0, 1200.0 / 2, 10e-3},
+                                        {"P12", 12.0, 680.0 / 2, 15e-3}};
+  for (const phantom_feed& f : feeds)
+    if (f.name == name) return &f;
+  return nullptr;
+}
+
 double pot_fraction(pot_taper taper, double position) noexcept {
   if (taper == pot_taper::linear) return position;
   return position <= 0.5 ? 0.2 * position : 0.1 + 1.8 * (position - 0.5);

@@ -17,10 +17,24 @@ namespace pinchoff::model {
 enum class topology { common_source, source_follower };
 enum class polarity { n, p };
 
+/// A phantom feed of IEC 61938 (`[supply] phantom`): its voltage, the feed resistance of
+/// both legs together (a microphone draws from both in parallel) and the most current the
+/// standard lets it draw.
+struct phantom_feed {
+  std::string_view name;      ///< "P48", "P24", "P12"
+  double volts_v{};
+  double resistance_ohm{};    ///< both legs in parallel: half of one leg's
+  double max_current_a{};
+};
+/// The feeds of IEC 61938 (from memory: P48 48 V, 6.8 kΩ a leg, 10 mA; P24 24 V, 1.2 kΩ a
+/// leg, 10 mA; P12 12 V, 680 Ω a leg, 15 mA), or nullptr for another name.
+const phantom_feed* find_phantom(std::string_view name) noexcept;
+
 struct supply_part {
   double volts_v{};           ///< > 0 for n-channel, < 0 for p-channel
   double resistance_ohm{0};   ///< series resistance; 0 = none
   double capacitance_f{0};    ///< reservoir capacitor after it; 0 = none
+  const phantom_feed* phantom{nullptr};  ///< when the file names a phantom feed (which set volts and resistance)
 };
 
 struct gate_part {
@@ -62,6 +76,19 @@ struct between_part {
 /// The fraction of a pot's resistance between its wiper and ground at a knob position.
 double pot_fraction(pot_taper taper, double position) noexcept;
 
+/// What drives the first stage (`[signal] kind`).
+enum class source_kind {
+  resistive,  ///< a voltage behind `signal.impedance` (the default)
+  capsule,    ///< a condenser capsule: its open-circuit voltage behind its capacitance, straight to the gate
+};
+
+/// A condenser capsule at the first stage's gate.
+struct capsule_part {
+  double capacitance_f{0};          ///< the capsule's own capacitance, in series with its open-circuit voltage
+  double stray_f{0};                ///< from the gate to ground (wiring, the capsule's mount); 0 = none
+  double sensitivity_v_per_pa{0};   ///< open-circuit voltage per pascal at 1 kHz (rms per rms)
+};
+
 /// The parts of one JFET stage: the whole file for a single stage, one `[[stage]]` of a chain.
 struct stage_parts {
   std::string label;          ///< a chain stage's `name` ("input buffer"); empty: "stage N"
@@ -88,11 +115,14 @@ struct stage : stage_parts {
   std::string file;           ///< the file it was read from, for messages; empty for a stage built in code
   double temperature_k{default_temperature_k};
   supply_part supply;
-  double signal_impedance_ohm{0};  ///< generator series resistance; 0 = ideal source
+  double signal_impedance_ohm{0};  ///< generator series resistance; 0 = ideal source (resistive source only)
+  source_kind signal_kind{source_kind::resistive};
+  capsule_part capsule;            ///< when signal_kind is capsule
   std::vector<stage_parts> later;  ///< a chain's second and later stages; empty for a single stage
 
   int stage_count() const noexcept { return 1 + static_cast<int>(later.size()); }
   bool is_chain() const noexcept { return !later.empty(); }
+  bool has_capsule() const noexcept { return signal_kind == source_kind::capsule; }
   /// Stage k, counted from 0.
   const stage_parts& part(int k) const { return k == 0 ? *this : later.at(static_cast<std::size_t>(k - 1)); }
   stage_parts& part(int k) { return k == 0 ? *this : later.at(static_cast<std::size_t>(k - 1)); }

@@ -1,6 +1,7 @@
 #include "model/circuit/stage_file.hpp"
 
 #include <algorithm>
+#include <array>
 #include <charconv>
 #include <cstdint>
 #include <optional>
@@ -65,6 +66,13 @@ constexpr base::value_bounds supply_volts{0.1, 1000.0, false,
 constexpr base::value_bounds temperature{200.0, 450.0, false,
                                          "JFETs are rated from -55 to 150 degrees C (218 to 423 K)"};
 
+// A condenser capsule: small capsules of a few picofarads to large-diaphragm ones of a few
+// hundred; open-circuit sensitivities of 0.1 mV/Pa (small, unpolarised) to 100 mV/Pa (common
+// practice: measurement capsules 1 to 50 mV/Pa), read in V/Pa.
+constexpr base::value_bounds capsule_cap{1e-12, 1e-9, false, "from a small capsule's picofarad to a nanofarad"};
+constexpr base::value_bounds capsule_sensitivity{1e-5, 1.0, false,
+                                                 "a capsule's open-circuit sensitivity, in V/Pa (\"12m\" is 12 mV/Pa)"};
+
 constexpr base::value_bounds knob{0.0, 1.0, false, "a knob's rotation, from fully anticlockwise (0) to fully clockwise (1)"};
 
 // The sections of one stage: the whole file for a single stage, one [[stage]] of a chain.
@@ -94,8 +102,10 @@ const std::vector<section_spec>& stage_schema() {
 const std::vector<section_spec>& shared_schema() {
   static const std::vector<section_spec> s{
       {"supply", {{"volts", unit::volt, rule::any_sign, supply_volts}, {"resistance", unit::ohm, rule::non_negative, optional_resistor},
-                  {"capacitance", unit::farad, rule::non_negative, capacitor}}},
-      {"signal", {{"impedance", unit::ohm, rule::non_negative, optional_resistor}}},
+                  {"capacitance", unit::farad, rule::non_negative, capacitor}, {"phantom", unit::none, rule::any_sign}}},
+      {"signal", {{"kind", unit::none, rule::any_sign}, {"impedance", unit::ohm, rule::non_negative, optional_resistor},
+                  {"capacitance", unit::farad, rule::positive, capsule_cap}, {"stray", unit::farad, rule::non_negative, capacitor},
+                  {"sensitivity", unit::none, rule::positive, capsule_sensitivity}}},
   };
   return s;
 }
@@ -243,6 +253,10 @@ struct gathered {
   toml::source_region polarity_where;
   std::optional<std::string> class_name;
   toml::source_region class_where;
+  std::optional<std::string> signal_kind;
+  toml::source_region signal_kind_where;
+  std::optional<std::string> phantom;
+  toml::source_region phantom_where;
 
   bool has(const std::string& k) const { return values.count(k) > 0; }
   double get(const std::string& k, double dflt = 0.0) const { return has(k) ? values.at(k) : dflt; }
@@ -277,6 +291,16 @@ void read_section(const reader& rd, const std::string& section, const toml::node
     if (full == "jfet.class") {
       g.class_name = rd.text(v, shown);
       g.class_where = v.source();
+      continue;
+    }
+    if (full == "supply.phantom") {
+      g.phantom = rd.text(v, shown);
+      g.phantom_where = v.source();
+      continue;
+    }
+    if (full == "signal.kind") {
+      g.signal_kind = rd.text(v, shown);
+      g.signal_kind_where = v.source();
       continue;
     }
     g.values[full] = rd.number(v, shown, *ks);
@@ -446,6 +470,52 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
   return st;
 }
 
+// The source's kind and its parts ([signal]). A capsule connects to the first stage's gate
+// directly, so that stage has no coupling capacitor, and its gate needs a DC path of its own.
+void read_source(const reader& rd, const gathered& top, stage& st) {
+  const std::string kind = top.signal_kind.value_or("resistive");
+  if (kind == "resistive") {
+    st.signal_kind = source_kind::resistive;
+  } else if (kind == "capsule") {
+    st.signal_kind = source_kind::capsule;
+  } else {
+    rd.fail_at(top.signal_kind_where, "signal.kind",
+               "signal.kind must be \"resistive\" or \"capsule\", not \"" + kind + "\"");
+  }
+  static constexpr std::array<std::string_view, 3> capsule_keys{"capacitance", "stray", "sensitivity"};
+  auto where = [&](const std::string& k) { return top.where.at(k); };
+  if (!st.has_capsule()) {
+    for (std::string_view k : capsule_keys) {
+      const std::string full = "signal." + std::string(k);
+      if (top.has(full))
+        rd.fail_at(where(full), full,
+                   full + " belongs to a capsule source: set signal.kind = \"capsule\" (a resistive source has only "
+                          "signal.impedance)");
+    }
+    return;
+  }
+  if (top.has("signal.impedance") && top.get("signal.impedance") > 0.0)
+    rd.fail_at(where("signal.impedance"), "signal.impedance",
+               "signal.impedance belongs to a resistive source: a capsule's impedance is its capacitance "
+               "(signal.capacitance)");
+  if (!top.has("signal.capacitance") || !top.has("signal.sensitivity"))
+    rd.fail_at(top.signal_kind_where, "signal.kind",
+               "a capsule source needs signal.capacitance (the capsule's, such as \"50p\") and signal.sensitivity "
+               "(V/Pa at 1 kHz, such as \"12m\")");
+  st.capsule.capacitance_f = top.get("signal.capacitance");
+  st.capsule.stray_f = top.get("signal.stray");
+  st.capsule.sensitivity_v_per_pa = top.get("signal.sensitivity");
+  const std::string first = st.is_chain() ? "stage1." : "";
+  if (st.gate.coupling_cap_f > 0.0)
+    rd.fail_at(top.signal_kind_where, first + "gate.coupling_cap",
+               first + "gate.coupling_cap: a capsule connects to the gate directly, its own capacitance "
+               "(signal.capacitance) is the coupling; remove the gate coupling capacitor");
+  if (!(st.gate.resistor_ohm > 0.0) && !(st.gate.bias_top_ohm > 0.0))
+    rd.fail_at(top.signal_kind_where, first + "gate.resistor",
+               "a capsule passes no DC: give the first stage's gate a path to its bias, " + first +
+                   "gate.resistor (such as \"1G\") or a bias divider");
+}
+
 // Every node of the network reaches ground, the supply or the generator through resistors
 // and JFET channels: otherwise its DC voltage is undefined (a gate behind capacitors alone, a
 // node between two coupling capacitors). Returns the name of the first node that does not.
@@ -548,6 +618,23 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   auto supply_sign_check = [&](polarity pol) {
     const double sign = pol == polarity::p ? -1.0 : 1.0;
     const char* chan = pol == polarity::p ? "a p-channel" : "an n-channel";
+    if (top.phantom) {
+      const phantom_feed* feed = find_phantom(*top.phantom);
+      if (feed == nullptr)
+        rd.fail_at(top.phantom_where, "supply.phantom",
+                   "supply.phantom must be \"P48\", \"P24\" or \"P12\" (the feeds of IEC 61938), not \"" + *top.phantom + "\"");
+      for (const char* k : {"supply.volts", "supply.resistance"})
+        if (top.has(k))
+          rd.fail_at(top.where.at(k), k,
+                     std::string(k) + ": supply.phantom = \"" + *top.phantom + "\" sets the voltage and the feed "
+                     "resistance; give one or the other");
+      if (sign < 0)
+        rd.fail_at(top.phantom_where, "supply.phantom",
+                   "supply.phantom feeds a positive voltage: a p-channel stage cannot run from it as it stands");
+      st.supply.phantom = feed;
+      st.supply.volts_v = feed->volts_v;
+      return;
+    }
     if (!root.contains("supply") || !top.has("supply.volts")) {
       if (const toml::node* n = root.get("supply"); n != nullptr && n->source().begin.line != 0)
         rd.fail_at(n->source(), "supply", "[supply] needs volts (the supply voltage)");
@@ -623,9 +710,10 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
     st.last().output.load_ohm = top.get("output.load");
     supply_sign_check(st.pol);
   }
-  st.supply.resistance_ohm = top.get("supply.resistance");
+  st.supply.resistance_ohm = st.supply.phantom ? st.supply.phantom->resistance_ohm : top.get("supply.resistance");
   st.supply.capacitance_f = top.get("supply.capacitance");
   st.signal_impedance_ohm = top.get("signal.impedance");
+  read_source(rd, top, st);
   if (st.name.empty()) st.name = std::string(source_name);
   st.file = std::string(source_name);
 

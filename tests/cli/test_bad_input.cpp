@@ -63,6 +63,25 @@ constexpr std::string_view good_stage =
     "[source]\n"                   // 12
     "resistor = \"680\"\n";        // 13
 
+// sources: a capsule stage of our own (common practice values for a capsule's impedance
+// converter); the line numbers are what the rows below expect.
+constexpr std::string_view capsule_stage =
+    "name = \"catalogue capsule\"\n"     // 1
+    "topology = \"source-follower\"\n"   // 2
+    "[supply]\n"                         // 3
+    "volts = 24\n"                       // 4
+    "[jfet]\n"                           // 5
+    "idss = \"6m\"\n"                    // 6
+    "vp = -1.5\n"                        // 7
+    "[signal]\n"                         // 8
+    "kind = \"capsule\"\n"               // 9
+    "capacitance = \"50p\"\n"            // 10
+    "sensitivity = \"12m\"\n"            // 11
+    "[gate]\n"                           // 12
+    "resistor = \"1G\"\n"                // 13
+    "[source]\n"                         // 14
+    "resistor = \"2.2k\"\n";             // 15
+
 std::string with_line(std::string_view stage, int line, std::string_view replacement) {
   std::istringstream in{std::string(stage)};
   std::string out, l;
@@ -110,6 +129,20 @@ struct fixtures {
       write(f("deepclass/devices.toml"), "[general]\nidss = \"1m..2m\"\n" + key + " = 1\n");
       write(f("deepclass/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
     }
+
+    // ---- sources
+    write(f("capsule.toml"), capsule_stage);
+    write(f("capsule-coupled.toml"), with_line(capsule_stage, 13, "resistor = \"1G\"\ncoupling_cap = \"50p\""));
+    write(f("capsule-nosens.toml"), with_line(capsule_stage, 11, ""));
+    write(f("capsule-kind.toml"), with_line(capsule_stage, 9, "kind = \"ribbon\""));
+    write(f("capsule-nokind.toml"), with_line(capsule_stage, 9, ""));
+    write(f("capsule-impedance.toml"), with_line(capsule_stage, 11, "sensitivity = \"12m\"\nimpedance = \"10k\""));
+    write(f("capsule-nogate.toml"), with_line(capsule_stage, 13, ""));
+    write(f("capsule-sens.toml"), with_line(capsule_stage, 11, "sensitivity = 12"));
+    write(f("capsule-big.toml"), with_line(capsule_stage, 10, "capacitance = \"10n\""));
+    write(f("phantom-name.toml"), with_line(capsule_stage, 4, "phantom = \"P36\""));
+    write(f("phantom-p.toml"), with_line(with_line(good_stage, 3, "phantom = \"P48\""), 6, "vp = 1.8\npolarity = \"p\""));
+    write(f("phantom-volts.toml"), with_line(capsule_stage, 4, "phantom = \"P48\"\nvolts = 48"));
 
     write(f("empty.csv"), "");
     write(f("header.csv"), "vgs_v,id_a\n");
@@ -558,6 +591,29 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure --bandwidth of 1e-300 Hz", {"measure", "@rec.wav", "--bandwidth", "1e-300"}, {"--bandwidth 1e-300", "above the band's low edge", "20.0 Hz"}},
       {"measure a file of DC alone", {"measure", "@dc-only.wav"}, {"@dc-only.wav", "no tone found", "DC only"}},
       {"measure a pipe", {"measure", "@pipe.wav"}, {"@pipe.wav", "it is a pipe", "twice"}},
+
+      // ---- sources: [signal] kind, a capsule's parts, levels in dB SPL
+      {"a capsule beside a gate coupling capacitor", {"bias", "@capsule-coupled.toml"}, {"@capsule-coupled.toml:9:8", "gate.coupling_cap", "connects to the gate directly"}},
+      {"a capsule without its sensitivity", {"bias", "@capsule-nosens.toml"}, {"@capsule-nosens.toml:9:8", "needs signal.capacitance", "signal.sensitivity"}},
+      {"a source kind we do not have", {"bias", "@capsule-kind.toml"}, {"@capsule-kind.toml:9:8", "signal.kind must be \"resistive\" or \"capsule\"", "ribbon"}},
+      {"a capsule's parts on a resistive source", {"bias", "@capsule-nokind.toml"}, {"@capsule-nokind.toml:10:15", "signal.capacitance belongs to a capsule source"}},
+      {"an impedance on a capsule source", {"bias", "@capsule-impedance.toml"}, {"@capsule-impedance.toml:12:13", "signal.impedance belongs to a resistive source"}},
+      {"a capsule with no DC path at the gate", {"bias", "@capsule-nogate.toml"}, {"@capsule-nogate.toml:9:8", "passes no DC", "gate.resistor"}},
+      {"a capsule sensitivity of 12 V/Pa", {"bias", "@capsule-sens.toml"}, {"@capsule-sens.toml:11:15", "signal.sensitivity", "V/Pa"}},
+      {"a capsule of 10 nF", {"bias", "@capsule-big.toml"}, {"@capsule-big.toml:10:15", "signal.capacitance", "1 nF"}},
+      {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\" or \"capsule\""}},
+      {"sweep in dB SPL on a resistive source", {"sweep", "@stage.toml", "--drive", "94dBSPL"}, {"--drive", "'94dBSPL' is a sound pressure level", "capsule source"}},
+      {"sweep --from in dB SPL on a resistive source", {"sweep", "@stage.toml", "--from", "80dBSPL", "--to", "120dBSPL"}, {"--from", "capsule source"}},
+      {"imd in dB SPL on a resistive source", {"imd", "@stage.toml", "--level", "94dBSPL"}, {"--level", "capsule source"}},
+      {"measure --drive in dB SPL on a resistive source", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "94dBSPL"}, {"--drive", "capsule source"}},
+      {"compare at a sound pressure", {"compare", "@capsule.toml", "@stage.toml", "--at-drive", "94dBSPL"}, {"--at-drive", "does not take"}},
+      {"render's full scale as a sound pressure", {"render", "@capsule.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "94dBSPL"}, {"--input-peak", "does not take"}},
+      {"a sound pressure level that is not a number", {"sweep", "@capsule.toml", "--drive", "loud dBSPL"}, {"--drive", "cannot read 'loud dBSPL' as a sound pressure level"}},
+      {"a sound pressure level above 194 dB SPL", {"sweep", "@capsule.toml", "--drive", "200dBSPL"}, {"--drive", "outside 0 to 194 dB SPL"}},
+      {"a negative sound pressure level", {"imd", "@capsule.toml", "--level", "-10dBSPL"}, {"--level", "outside 0 to 194 dB SPL"}},
+      {"a phantom feed IEC 61938 does not name", {"bias", "@phantom-name.toml"}, {"@phantom-name.toml:4:11", "supply.phantom must be \"P48\", \"P24\" or \"P12\"", "P36"}},
+      {"a phantom feed for a p-channel stage", {"bias", "@phantom-p.toml"}, {"@phantom-p.toml:3:11", "feeds a positive voltage", "p-channel"}},
+      {"a phantom feed beside the voltage it sets", {"bias", "@phantom-volts.toml"}, {"@phantom-volts.toml:5:9", "supply.volts: supply.phantom = \"P48\" sets the voltage"}},
   };
 
   REQUIRE(rows.size() >= 180);

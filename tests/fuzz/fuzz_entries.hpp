@@ -152,6 +152,13 @@ inline outcome units_entry(std::string_view text) {
       (void)base::dbu_from_vpk(vpk);
     });
   attempt([&] {
+    // A sound pressure level: nothing, or 0 to 194 dB SPL with a finite pressure.
+    if (const std::optional<double> spl = base::parse_spl_db(text)) {
+      detail::require(*spl >= 0.0 && *spl <= 194.0, "parse_spl_db returned a level outside 0 to 194 dB SPL");
+      detail::require(std::isfinite(base::pa_rms_from_db_spl(*spl)), "a sound pressure level gave a non-finite pressure");
+    }
+  });
+  attempt([&] {
     const double f = base::parse_frequency_hz(text);
     detail::require(std::isfinite(f) && f > 0.0, "parse_frequency_hz returned a frequency not above 0");
   });

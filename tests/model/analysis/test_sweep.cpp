@@ -97,7 +97,13 @@ TEST_CASE("tiny-drive gain equals the small-signal gain") {
     big.supply.capacitance_f *= 1000;
     big.jfet.cgs_f = big.jfet.cgd_f = 0.0;
     const double sim_big = run_sweep(big, s).points[0].gain_db;
-    CHECK(std::fabs(sim_big - mid_db) < 0.01);
+    // The mid-band of that same stage: for a resistive source it is `mid_db`; a capsule's
+    // divider (README "Sources") loses the junction capacitances with them.
+    const network net_big = build_network(big);
+    const double mid_big_db =
+        base::db_from_ratio(std::fabs(analyse_small_signal(net_big, solve_operating_point(net_big)).gain_midband));
+    if (!st.has_capsule()) CHECK(mid_big_db == doctest::Approx(mid_db).epsilon(1e-12));
+    CHECK(std::fabs(sim_big - mid_big_db) < 0.01);
   }
 }
 
