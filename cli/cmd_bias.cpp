@@ -88,14 +88,19 @@ void print_chain_text(const bias_report& r, const std::string& path, std::ostrea
   for (const model::stage_clip& c : r.b.head.clip_order) {
     if (c.kind == model::swing_limit_kind::none)
       co.add({"", stage_name(r, c.stage), "-", "clean up to " + format_si(r.b.head.search_limit_v, "V") + " drive"});
+    else if (c.drive_vpk == 0.0)
+      co.add({"", stage_name(r, c.stage), "at rest", model::swing_limit_text(c.kind)});
     else
       co.add({"", stage_name(r, c.stage), format_si(c.drive_sign * c.drive_vpk, "V"), model::swing_limit_text(c.kind)});
   }
   co.write(out);
   if (!r.b.head.clip_order.empty() && r.b.head.clip_order.front().kind != model::swing_limit_kind::none) {
     const model::stage_clip& first = r.b.head.clip_order.front();
-    out << "  " << stage_name(r, first.stage) << " clips first, at " << format_si(first.drive_vpk, "V") << " peak ("
-        << format_number(base::dbu_from_vpk(first.drive_vpk), 3) << " dBu) at the input\n";
+    if (first.drive_vpk == 0.0)
+      out << "  " << stage_name(r, first.stage) << " is out of its clean region at rest: see the warnings\n";
+    else
+      out << "  " << stage_name(r, first.stage) << " clips first, at " << format_si(first.drive_vpk, "V") << " peak ("
+          << format_number(base::dbu_from_vpk(first.drive_vpk), 3) << " dBu) at the input\n";
   }
   out << "  clean symmetric swing " << format_si(r.b.head.symmetric_output_vpk, "V") << " peak ("
       << format_number(base::dbu_from_vpk(r.b.head.symmetric_output_vpk), 3) << " dBu) at the load\n";
