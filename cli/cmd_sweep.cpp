@@ -280,9 +280,14 @@ void print_stages(const sweep_report& rep, std::ostream& out) {
     h.write(out);
   }
   out << '\n';
+  double lowest = r.points.front().drive_vpk;
+  for (const auto& p : r.points) lowest = std::min(lowest, p.drive_vpk);
   for (const auto& st : r.stages) {
     out << "  " << st.label << ": ";
-    if (st.leaves_clean)
+    if (st.leaves_clean && st.first_unclean_drive_vpk == lowest)
+      out << "out of its clean region already at the lowest drive, " << format_si(lowest, "Vpk") << " (" << dbu(lowest)
+          << "), " << model::swing_limit_text(st.limit) << '\n';
+    else if (st.leaves_clean)
       out << "first out of its clean region at drive " << format_si(st.first_unclean_drive_vpk, "Vpk") << " ("
           << dbu(st.first_unclean_drive_vpk) << "), " << model::swing_limit_text(st.limit) << '\n';
     else
