@@ -321,7 +321,7 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
     t.add(row);
   }
   t.write(out);
-  out << "\n  harmonics (dBc)\n";
+  out << (chain ? "\n  harmonics at the load (dBc)\n" : "\n  harmonics (dBc)\n");
   std::vector<text_table::align> al(static_cast<std::size_t>(harmonics), align::right);
   text_table ht(al);
   std::vector<std::string> head{"drive"};

@@ -109,6 +109,8 @@ TEST_CASE("probes give every node of a chain driven into clipping, as the refere
   };
   const std::vector<row> rows{{"two-stage boost, n-channel", preset("two-stage-boost-9v.toml")},
                               {"two-stage boost mirrored, p-channel", mirrored(preset("two-stage-boost-9v.toml"))},
+                              {"three-stage overdrive, rail filters and treble cuts", preset("three-stage-overdrive-9v.toml")},
+                              {"gain stage DC-coupled into a follower", preset("buffered-boost-9v.toml")},
                               {"single stage", preset("bass-booster-9v.toml")}};
   for (const row& r : rows) {
     CAPTURE(r.what);
