@@ -399,7 +399,7 @@ TEST_CASE("a chain's stage outputs at a small drive follow the small-signal resp
   CHECK(r.points[0].stages[1].output_vpk > r.points[0].stages[0].output_vpk);
 }
 
-TEST_CASE("a chain's last stage output is the load's") {
+TEST_CASE("a chain's last stage output is the load's, its first stage's VGS shift the first JFET's") {
   // The last stage's output node is the node across the load: its probe must give the
   // figures the sweep reads from the engine's own output, at a drive deep in clipping too.
   const stage st = preset("two-stage-boost-9v.toml");
@@ -413,6 +413,9 @@ TEST_CASE("a chain's last stage output is the load's") {
     CHECK(last.output_vpk == doctest::Approx(p.output_vpk).epsilon(1e-9));
     CHECK(last.thd_percent == doctest::Approx(p.thd_percent).epsilon(1e-6));
     for (std::size_t h = 0; h < 3; ++h) CHECK(last.harmonics_dbc[h] == doctest::Approx(p.harmonics_dbc[h]).epsilon(1e-6));
+    // The first stage's VGS shift, from the recorded ports, is the one the steady state
+    // averages for the first JFET itself (the same samples summed in another order).
+    CHECK(std::fabs(p.stages.front().bias_shift_v - p.bias_shift_v) <= 1e-12);
   }
 }
 
