@@ -64,7 +64,7 @@ constexpr base::value_bounds supply_volts{0.1, 1000.0, false,
 constexpr base::value_bounds temperature{200.0, 450.0, false,
                                          "JFETs are rated from -55 to 150 degrees C (218 to 423 K)"};
 
-constexpr base::value_bounds knob{0.0, 1.0, true, "a knob's rotation, from fully anticlockwise (0) to fully clockwise (1)"};
+constexpr base::value_bounds knob{0.0, 1.0, false, "a knob's rotation, from fully anticlockwise (0) to fully clockwise (1)"};
 
 // The sections of one stage: the whole file for a single stage, one [[stage]] of a chain.
 const std::vector<section_spec>& stage_schema() {
@@ -611,16 +611,28 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   if (st.name.empty()) st.name = std::string(source_name);
   st.file = std::string(source_name);
 
+  // A refusal that names a chain's stage ("stage2: ...", "the stage1.output node ...") points
+  // at that stage's [[stage]] header.
+  auto fail_in_stage = [&](const std::string& msg, std::string_view named) {
+    if (st.is_chain() && named.size() > 5 && named.substr(0, 5) == "stage") {
+      const std::size_t n = static_cast<std::size_t>(named[5] - '0');
+      const toml::array* arr = chain_node->as_array();
+      if (n >= 1 && n <= arr->size() && arr->get(n - 1)->source().begin.line != 0)
+        rd.fail_at(arr->get(n - 1)->source(), "stage", msg);
+    }
+    rd.fail_file(msg);
+  };
   try {
     validate(st);
   } catch (const input_error& e) {
-    rd.fail_file(e.what());
+    fail_in_stage(e.what(), e.what());
   }
   if (st.is_chain()) {
     const std::string node = floating_node(build_network(st));
     if (!node.empty())
-      rd.fail_file("the " + node + " node has no DC path to ground or the supply (only capacitors reach it): give it a "
-                   "resistor, such as a gate resistor or a shunt in 'between'");
+      fail_in_stage("the " + node + " node has no DC path to ground or the supply (only capacitors reach it): give it a "
+                    "resistor, such as a gate resistor or a shunt in 'between'",
+                    node);
   }
   return st;
 }
