@@ -49,6 +49,8 @@ inline model::stage_override parse_set(std::string_view spec) {
   }
   o.section = key.substr(0, dot);
   o.key = key.substr(dot + 1);
+  // A chain stage's between element: "between.2.position" (the reader checks the rest).
+  if (o.stage > 0 && o.section == "between" && !o.key.empty()) return o;
   if (o.section.empty() || o.key.empty() || o.key.find('.') != std::string::npos)
     throw input_error("--set '" + text + "': expected SECTION.KEY=VALUE, for example --set drain.resistor=4.7k" +
                       " (or stageN.SECTION.KEY=VALUE in a chain)");

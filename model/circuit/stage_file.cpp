@@ -1,6 +1,7 @@
 #include "model/circuit/stage_file.hpp"
 
 #include <algorithm>
+#include <charconv>
 #include <cstdint>
 #include <optional>
 #include <cerrno>
@@ -176,6 +177,23 @@ std::string unknown_key_message(std::string_view key, std::string_view where, st
 }
 
 void set_in(toml::table& table, const stage_override& o, const std::string& shown) {
+  // "between.N.KEY": a key of the N-th element of a chain stage's between (a pot's position).
+  if (o.section == "between") {
+    const std::size_t dot = o.key.find('.');
+    std::size_t n = 0;
+    const char* end = o.key.data() + (dot == std::string::npos ? o.key.size() : dot);
+    const auto [ptr, ec] = std::from_chars(o.key.data(), end, n);
+    if (dot == std::string::npos || ec != std::errc{} || ptr != end || dot + 1 >= o.key.size())
+      throw setting_error(shown, "name an element of between by its place and a key, as between.1.position");
+    toml::array* arr = table.get_as<toml::array>("between");
+    if (arr == nullptr || n < 1 || n > arr->size())
+      throw setting_error(shown, "there is no element " + std::to_string(n) + " in this stage's between (it has " +
+                                     std::to_string(arr == nullptr ? 0 : arr->size()) + ")");
+    toml::table* e = arr->get_as<toml::table>(n - 1);
+    if (e == nullptr) throw setting_error(shown, "element " + std::to_string(n) + " of between is not a table");
+    e->insert_or_assign(o.key.substr(dot + 1), o.value);
+    return;
+  }
   if (o.section.empty()) {
     table.insert_or_assign(o.key, o.value);
     return;
