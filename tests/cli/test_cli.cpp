@@ -134,6 +134,58 @@ TEST_CASE("tune --over-spread sizes a trimmer") {
   CHECK(j["fixed_ohm"].get<double>() + j["trimmer_ohm"].get<double>() >= j["range_ohm"]["max"].get<double>());
 }
 
+TEST_CASE("spread on a chain reports every stage's quantities under its name") {
+  // Contract: README, "Machine-readable output" for spread on a chain.
+  const result r = run({"spread", preset("two-stage-boost-9v.toml"), "--class", "general-purpose", "--runs", "100",
+                        "--require", "stage2.vd=3.5..6", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  REQUIRE(j["stages"].size() == 2);
+  for (int k = 0; k < 2; ++k) {
+    CAPTURE(k);
+    CHECK(j["stages"][k]["stage"] == k + 1);
+    for (const char* q : {"id_a", "vd_v", "vs_v", "vds_v", "vgs_v"}) CHECK(j["stages"][k]["percentiles"][q]["p50"].is_number());
+  }
+  CHECK(j["percentiles"]["gain_db"]["p50"].is_number());
+  CHECK(!j["percentiles"].contains("vd_v"));  // a stage's own quantity lives under its stage
+  CHECK(j["requirements"][0]["quantity"] == "stage2.vd");
+  REQUIRE(j["worst"].size() == 2);
+  CHECK(j["worst"][0]["quantity"] == "stage2.vd");
+  CHECK(j["worst"][0]["parts"].size() == 2);
+  // The text names each stage's rows; the CSV has a column per stage.
+  const result text = run({"spread", preset("two-stage-boost-9v.toml"), "--class", "general-purpose", "--runs", "50"});
+  REQUIRE(text.status == 0);
+  for (const char* w : {"stage1.vd", "stage2.vd", "stage2.id", "every stage biased in saturation", "stage2 IDSS"}) {
+    CAPTURE(w);
+    CHECK(text.out.find(w) != std::string::npos);
+  }
+  const result csv = run({"spread", preset("two-stage-boost-9v.toml"), "--class", "general-purpose", "--runs", "5", "--csv"});
+  REQUIRE(csv.status == 0);
+  CHECK(csv.out.rfind("run,stage1.idss_a,stage1.vp_v,stage2.idss_a,stage2.vp_v,supply_v,solved,stage1.id_a,", 0) == 0);
+}
+
+TEST_CASE("tune on a chain: a trimmer per stage over a batch, and several resistors on nominal parts") {
+  const result r = run({"tune", preset("two-stage-boost-9v.toml"), "--over-spread", "--class", "general-purpose", "--runs",
+                        "60", "--adjust", "stage1.source.resistor", "--target", "stage1.vd=4.5", "--adjust",
+                        "stage2.source.resistor", "--target", "stage2.vd=4.5", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  REQUIRE(j["trimmers"].size() == 2);
+  CHECK(j["trimmers"][0]["adjust"] == "stage1.source.resistor");
+  CHECK(j["trimmers"][1]["adjust"] == "stage2.source.resistor");
+  for (const auto& t : j["trimmers"])
+    CHECK(t["fixed_ohm"].get<double>() + t["trimmer_ohm"].get<double>() >= t["range_ohm"]["max"].get<double>());
+  CHECK(j["most_rounds"].get<int>() >= 1);
+  const result plain = run({"tune", preset("two-stage-boost-9v.toml"), "--adjust", "stage1.source.resistor", "--target",
+                            "stage1.vd=4.5", "--adjust", "stage2.source.resistor", "--target", "stage2.vd=4.5", "--json"});
+  REQUIRE(plain.status == 0);
+  const nlohmann::json p = nlohmann::json::parse(plain.out);
+  REQUIRE(p["pairs"].size() == 2);
+  // Each pair's exact point is on its target with the other resistor at its solved value.
+  CHECK(p["pairs"][0]["exact"]["operating_point"]["vd_v"].get<double>() == doctest::Approx(4.5).epsilon(1e-5));
+  CHECK(p["pairs"][1]["exact"]["operating_point"]["vd_v"].get<double>() == doctest::Approx(4.5).epsilon(1e-5));
+}
+
 TEST_CASE("sweep --json follows the contract") {
   // Contract: DESIGN.md, "Machine-readable output" for sweep.
   const result r = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "10mVpk,0.3,1Vrms", "--json"});
