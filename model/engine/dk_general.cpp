@@ -165,6 +165,23 @@ __attribute__((always_inline)) inline void abs_bound_n(const double* a, int n_rt
   }
 }
 
+// |A^-1| t (t >= 0) from A's factors, forming A^-1 column by column in `scratch` (n x n):
+// the exact form of abs_bound_n's bound, for where that one is too coarse. Out of line.
+template <int N>
+__attribute__((noinline)) void exact_abs_bound(const double* a, int n, const int* piv, const double* t, double* scratch,
+                                               double* out) noexcept {
+  for (int c = 0; c < n; ++c) {
+    double* col = scratch + c * n;
+    for (int r = 0; r < n; ++r) col[r] = r == c ? 1.0 : 0.0;
+    lu_solve_n<N>(a, n, piv, col);
+  }
+  for (int r = 0; r < n; ++r) {
+    double sum = 0.0;
+    for (int c = 0; c < n; ++c) sum += std::fabs(scratch[r + c * n]) * t[c];
+    out[r] = sum;
+  }
+}
+
 // y (+)= A x for a column-major A of N (0: n_rt) rows and m columns: column by column, each
 // x_c broadcast once (Eigen's general product kernel, taken for these sizes, is not inlined
 // into the wide loop).
@@ -517,9 +534,13 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       allowed = allowed.cwiseMin(rounding_allowance_v);
       if (t.maxCoeff() <= tol) {
         // The bound on the error, |M| t with M = (I - F Jf)^-1, from the factors
-        // (abs_bound_n: no inverse formed).
+        // (abs_bound_n: no inverse formed). Where that bound is too coarse (the
+        // comparison matrices can overstate |U^-1| by far where U's entries cancel), |M| t
+        // itself, from M formed column by column.
         bound = t;
         abs_bound_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), bound.data());
+        if (!(bound.maxCoeff() <= tol)) [[unlikely]]
+          exact_abs_bound<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), t.data(), g.mi.data(), bound.data());
         if (bound.maxCoeff() <= tol) {
           if (opt_.confirm) {
             bound = v + d;  // the accepted point (bound is free now)
