@@ -30,7 +30,7 @@ class general_solver : public dk_solver_base {
   Eigen::Vector2d ports_network_v(int device) const noexcept {
     return Eigen::Vector2d(g_.last.v.segment<2>(2 * device));
   }
-  const char* sample_loop() const noexcept { return wide_ ? "AVX2+FMA" : "portable"; }
+  const char* sample_loop() const noexcept { return wide_ && m_.devices <= 6 ? "AVX2+FMA" : "portable"; }
 
  private:
   struct port_set {
