@@ -39,6 +39,12 @@ demo: build
 	@echo "== pinchoff sweep presets/bass-booster-9v.toml --plot out/bass-booster-sweep.svg"
 	@$(PINCHOFF) sweep presets/bass-booster-9v.toml --plot out/bass-booster-sweep.svg
 	@echo
+	@echo "== pinchoff bias presets/three-stage-overdrive-9v.toml (a chain: which stage clips first)"
+	@$(PINCHOFF) bias presets/three-stage-overdrive-9v.toml
+	@echo
+	@echo "== pinchoff sweep presets/three-stage-overdrive-9v.toml --from -70dBu --to -20dBu --steps 6"
+	@$(PINCHOFF) sweep presets/three-stage-overdrive-9v.toml --from -70dBu --to -20dBu --steps 6
+	@echo
 	@echo "== pinchoff render: the demo clip through two presets, loudness-matched, into out/"
 	@$(PINCHOFF) render presets/bass-booster-9v.toml presets/clean-preamp-18v.toml \
 	  --input samples/pluck-phrase-48k.wav --output out --dry --force

@@ -327,7 +327,31 @@ int place_new(int dir, const std::string& temp, const std::string& name, bool& t
 
 }  // namespace
 
+namespace {
+// While a set is being placed, the signals that stop a run wait (they stay pending and act
+// once the set is whole, or once it is taken back), so an interrupt never leaves half a set.
+class stop_signals_held {
+ public:
+  stop_signals_held() {
+    sigset_t hold;
+    sigemptyset(&hold);
+    for (int s : {SIGINT, SIGTERM, SIGHUP, SIGQUIT}) sigaddset(&hold, s);
+    held_ = ::pthread_sigmask(SIG_BLOCK, &hold, &previous_) == 0;
+  }
+  ~stop_signals_held() {
+    if (held_) ::pthread_sigmask(SIG_SETMASK, &previous_, nullptr);
+  }
+  stop_signals_held(const stop_signals_held&) = delete;
+  stop_signals_held& operator=(const stop_signals_held&) = delete;
+
+ private:
+  sigset_t previous_{};
+  bool held_{false};
+};
+}  // namespace
+
 void output_set::commit() {
+  const stop_signals_held hold;
   std::vector<output_file> files = std::move(files_);
   files_.clear();
   for (output_file& f : files) f.finish();

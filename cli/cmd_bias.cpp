@@ -34,7 +34,84 @@ struct bias_report {
 
 std::string db_text(double gain) { return format_number(base::db_from_ratio(std::fabs(gain)), 3) + " dB"; }
 
+void print_tail(const bias_report& r, std::ostream& out);
+
+std::string stage_title(const bias_report& r, int k) {
+  const model::stage_parts& p = r.st.part(k);
+  return "Stage " + std::to_string(k + 1) + (p.label.empty() ? std::string() : ": " + p.label) + " (" +
+         topology_name(p.topo) + (p.jfet_class ? ", class " + p.jfet_class->name : std::string()) + ")";
+}
+
+std::string stage_name(const bias_report& r, int k) {
+  const model::stage_parts& p = r.st.part(k);
+  return "stage " + std::to_string(k + 1) + (p.label.empty() ? std::string() : " (" + p.label + ")");
+}
+
+void print_chain_text(const bias_report& r, const std::string& path, std::ostream& out) {
+  const int n = r.st.stage_count();
+  out << r.st.name << "\n  chain of " << n << " stages, " << (r.st.pol == model::polarity::p ? "p" : "n")
+      << "-channel, supply " << format_si(r.st.supply.volts_v, "V") << ", draws "
+      << format_si(model::supply_current_a(r.b.net, r.b.op), "A") << "  (" << path << ")\n";
+  for (int k = 0; k < n; ++k) {
+    const model::terminal_point t = model::terminals_of(r.b.net, r.b.op.x, k);
+    out << '\n' << stage_title(r, k) << '\n';
+    text_table op({align::left, align::right, align::left, align::left, align::right, align::left, align::left,
+                   align::right});
+    op.add({"VG", format_si(t.vg_v, "V", 4), "", "VGS", format_si(t.vgs_v, "V", 4), "", "ID", format_si(t.id_a, "A", 4)});
+    op.add({"VS", format_si(t.vs_v, "V", 4), "", "VDS", format_si(t.vds_v, "V", 4), "", "PD",
+            format_si(std::fabs(t.id_a * t.vds_v), "W")});
+    op.add({"VD", format_si(t.vd_v, "V", 4), "", "region", model::region_name(t.region), "", "", ""});
+    op.write(out);
+    if (static_cast<std::size_t>(k) < r.b.ss.stages.size()) {
+      const model::stage_small_signal& s = r.b.ss.stages[static_cast<std::size_t>(k)];
+      const std::string to = k + 1 < n ? "to stage " + std::to_string(k + 2) + "'s input" : "to the load";
+      out << "  gm " << format_si(s.gm_s, "S") << ", "
+          << (std::isfinite(s.rds_ohm) ? "rds " + format_si(s.rds_ohm, "Ω") : std::string("rds infinite")) << "; gain "
+          << to << " "
+          << (std::isfinite(s.gain) ? format_number(s.gain, 4) + " V/V (" + db_text(s.gain) + ")"
+                                    : std::string("none (no signal reaches this stage)"))
+          << '\n';
+    }
+  }
+
+  out << "\nChain (mid-band: coupling and bypass capacitors shorted, treble cuts open)\n";
+  text_table ss({align::left, align::right, align::left});
+  ss.add({"gain", format_number(r.b.ss.gain_midband, 4) + " V/V",
+          db_text(r.b.ss.gain_midband) + (r.b.ss.gain_midband < 0 ? ", inverting" : "") + ", generator to load"});
+  ss.add({"input impedance", format_si(r.b.ss.zin_ohm, "Ω"), "after the generator's own impedance"});
+  ss.add({"output impedance", format_si(r.b.ss.zout_ohm, "Ω"), "looking back from the load"});
+  ss.write(out);
+
+  out << "\nClip order (drive at the chain's input where each stage leaves its clean region;\n"
+         "mid-band, capacitors holding their rest voltages)\n";
+  text_table co({align::left, align::left, align::right, align::left});
+  for (const model::stage_clip& c : r.b.head.clip_order) {
+    if (c.kind == model::swing_limit_kind::none)
+      co.add({"", stage_name(r, c.stage), "-", "clean up to " + format_si(r.b.head.search_limit_v, "V") + " drive"});
+    else if (c.drive_vpk == 0.0)
+      co.add({"", stage_name(r, c.stage), "at rest", model::swing_limit_text(c.kind)});
+    else
+      co.add({"", stage_name(r, c.stage), format_si(c.drive_sign * c.drive_vpk, "V"), model::swing_limit_text(c.kind)});
+  }
+  co.write(out);
+  if (!r.b.head.clip_order.empty() && r.b.head.clip_order.front().kind != model::swing_limit_kind::none) {
+    const model::stage_clip& first = r.b.head.clip_order.front();
+    if (first.drive_vpk == 0.0)
+      out << "  " << stage_name(r, first.stage) << " is out of its clean region at rest: see the warnings\n";
+    else
+      out << "  " << stage_name(r, first.stage) << " clips first, at " << format_si(first.drive_vpk, "V") << " peak ("
+          << format_number(base::dbu_from_vpk(first.drive_vpk), 3) << " dBu) at the input\n";
+  }
+  out << "  clean symmetric swing " << format_si(r.b.head.symmetric_output_vpk, "V") << " peak ("
+      << format_number(base::dbu_from_vpk(r.b.head.symmetric_output_vpk), 3) << " dBu) at the load\n";
+}
+
 void print_text(const bias_report& r, const std::string& path, std::ostream& out) {
+  if (r.st.is_chain()) {
+    print_chain_text(r, path, out);
+    print_tail(r, out);
+    return;
+  }
   const model::terminal_point& t = r.b.op.at;
   out << r.st.name << "\n  " << topology_name(r.st.topo) << ", " << (r.st.pol == model::polarity::p ? "p" : "n")
       << "-channel" << (r.st.jfet_class ? " (class " + r.st.jfet_class->name + ")" : std::string()) << ", supply "
@@ -74,6 +151,11 @@ void print_text(const bias_report& r, const std::string& path, std::ostream& out
       << format_number(base::dbu_from_vpk(r.b.head.symmetric_output_vpk), 3) << " dBu) at the load, for drive up to "
       << format_si(r.b.head.clean_drive_vpk, "V") << " peak ("
       << format_number(base::dbu_from_vpk(r.b.head.clean_drive_vpk), 3) << " dBu)\n";
+  print_tail(r, out);
+}
+
+// What single stages and chains share: corners, reactances, warnings.
+void print_tail(const bias_report& r, std::ostream& out) {
 
   if (!r.b.ss.corners.empty()) {
     out << "\nLow-frequency corners (each capacitor alone, the others shorted)\n";
@@ -112,8 +194,72 @@ nlohmann::json limit_json(const model::swing_limit& l) {
   return {{"output_v", l.output_v}, {"drive_v", l.drive_v}, {"limit", model::swing_limit_text(l.kind)}};
 }
 
+nlohmann::json small_signal_json(const model::small_signal_figures& ss) {
+  return {{"gm_s", ss.gm_s},
+          {"gds_s", ss.gds_s},
+          {"rds_ohm", number_or_null(ss.rds_ohm)},
+          {"gain_midband_db", base::db_from_ratio(std::fabs(ss.gain_midband))},
+          {"gain_midband_v_per_v", ss.gain_midband},
+          {"gain_midband_no_gds_db", base::db_from_ratio(std::fabs(ss.gain_midband_no_gds))},
+          {"gain_midband_no_gds_v_per_v", ss.gain_midband_no_gds},
+          {"zin_ohm", ss.zin_ohm},
+          {"zout_ohm", ss.zout_ohm}};
+}
+
+void chain_json(const bias_report& r, nlohmann::json& j) {
+  nlohmann::json stages = nlohmann::json::array();
+  for (int k = 0; k < r.st.stage_count(); ++k) {
+    const model::stage_parts& p = r.st.part(k);
+    const model::terminal_point t = model::terminals_of(r.b.net, r.b.op.x, k);
+    nlohmann::json op = operating_point_json(t);
+    op["pd_w"] = std::fabs(t.id_a * t.vds_v);
+    nlohmann::json sj = nlohmann::json::object();
+    if (static_cast<std::size_t>(k) < r.b.ss.stages.size()) {
+      const model::stage_small_signal& s = r.b.ss.stages[static_cast<std::size_t>(k)];
+      sj = {{"gm_s", s.gm_s},
+            {"gds_s", s.gds_s},
+            {"rds_ohm", number_or_null(s.rds_ohm)},
+            {"gain_v_per_v", number_or_null(s.gain)},
+            {"gain_db", number_or_null(base::db_from_ratio(std::fabs(s.gain)))}};
+    }
+    stages.push_back({{"name", p.label.empty() ? "stage " + std::to_string(k + 1) : p.label},
+                      {"topology", topology_name(p.topo)},
+                      {"operating_point", op},
+                      {"small_signal", sj}});
+  }
+  j["stages"] = stages;
+  j["chain"] = {{"gain_midband_db", base::db_from_ratio(std::fabs(r.b.ss.gain_midband))},
+                {"gain_midband_v_per_v", r.b.ss.gain_midband},
+                {"zin_ohm", r.b.ss.zin_ohm},
+                {"zout_ohm", r.b.ss.zout_ohm},
+                {"supply_current_a", model::supply_current_a(r.b.net, r.b.op)}};
+  nlohmann::json order = nlohmann::json::array();
+  for (const model::stage_clip& c : r.b.head.clip_order)
+    order.push_back({{"stage", c.stage + 1},
+                     {"drive_vpk", c.kind == model::swing_limit_kind::none ? nlohmann::json(nullptr) : nlohmann::json(c.drive_vpk)},
+                     {"drive_sign", c.drive_sign},
+                     {"limit", model::swing_limit_text(c.kind)}});
+  j["clip_order"] = order;
+}
+
 void print_json(const bias_report& r, std::ostream& out) {
   nlohmann::json j;
+  if (r.st.is_chain()) {
+    j["name"] = r.st.name;
+    j["polarity"] = r.st.pol == model::polarity::p ? "p" : "n";
+    j["supply_v"] = r.st.supply.volts_v;
+    chain_json(r, j);
+    j["headroom"] = {{"up", limit_json(r.b.head.up)},
+                     {"down", limit_json(r.b.head.down)},
+                     {"symmetric_output_vpk", r.b.head.symmetric_output_vpk},
+                     {"clean_drive_vpk", r.b.head.clean_drive_vpk}};
+    nlohmann::json corners = nlohmann::json::array();
+    for (const auto& c : r.b.ss.corners) corners.push_back(corner_json(c));
+    j["corners"] = corners;
+    j["warnings"] = r.b.warnings;
+    out << json_text(j) << '\n';
+    return;
+  }
   j["stage"] = {{"name", r.st.name},
                 {"topology", topology_name(r.st.topo)},
                 {"polarity", r.st.pol == model::polarity::p ? "p" : "n"},
@@ -121,15 +267,7 @@ void print_json(const bias_report& r, std::ostream& out) {
   j["operating_point"] = operating_point_json(r.b.op.at);
   j["operating_point"]["pd_w"] = std::fabs(r.b.op.at.id_a * r.b.op.at.vds_v);
   j["operating_point"]["supply_current_a"] = model::supply_current_a(r.b.net, r.b.op);
-  j["small_signal"] = {{"gm_s", r.b.ss.gm_s},
-                       {"gds_s", r.b.ss.gds_s},
-                       {"rds_ohm", number_or_null(r.b.ss.rds_ohm)},
-                       {"gain_midband_db", base::db_from_ratio(std::fabs(r.b.ss.gain_midband))},
-                       {"gain_midband_v_per_v", r.b.ss.gain_midband},
-                       {"gain_midband_no_gds_db", base::db_from_ratio(std::fabs(r.b.ss.gain_midband_no_gds))},
-                       {"gain_midband_no_gds_v_per_v", r.b.ss.gain_midband_no_gds},
-                       {"zin_ohm", r.b.ss.zin_ohm},
-                       {"zout_ohm", r.b.ss.zout_ohm}};
+  j["small_signal"] = small_signal_json(r.b.ss);
   j["headroom"] = {{"up", limit_json(r.b.head.up)},
                    {"down", limit_json(r.b.head.down)},
                    {"symmetric_output_vpk", r.b.head.symmetric_output_vpk},
@@ -167,6 +305,8 @@ CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
       "  pinchoff bias presets/clean-preamp-18v.toml --set drain.resistor=3.9k --set supply.volts=9\n"
       "      try a change without editing the file\n"
       "  pinchoff bias presets/phantom-mic-follower.toml --json\n"
+      "  pinchoff bias presets/two-stage-boost-9v.toml --set stage2.source.resistor=1k\n"
+      "      a chain: each stage's bias and gain, the chain's gain, and which stage clips first\n"
       "Headroom is found by sweeping the drive slowly with every coupling and bypass capacitor\n"
       "holding its rest voltage: the clean region ends at the triode edge, at cutoff, or when the\n"
       "gate rises to the source voltage.");

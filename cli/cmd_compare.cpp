@@ -101,11 +101,14 @@ std::string mode_text(const model::compare_result& r) {
   return "every design driven at " + format_si(r.level_vpk, "Vpk", 4) + " (" + dbu(r.level_vpk) + ") from the generator";
 }
 
-void print_text(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
+void print_text(const std::vector<design_input>& in, const model::compare_result& r, bool automatic_oversample,
+                std::ostream& out) {
   out << "Comparison at " << format_si(r.frequency_hz, "Hz", 5);
   if (std::fabs(r.frequency_hz - r.requested_hz) > 1e-9 * r.requested_hz)
     out << " (asked " << format_si(r.requested_hz, "Hz", 4) << ", snapped to whole cycles)";
-  out << ", " << mode_text(r) << "\n  " << r.oversample << "x oversampling, THD over H2..H" << r.thd_harmonics << "\n\n";
+  out << ", " << mode_text(r) << "\n  " << r.oversample << "x oversampling"
+      << (automatic_oversample && r.oversample < 8 ? " (enough at this frequency; --oversample sets it)" : "")
+      << ", THD over H2..H" << r.thd_harmonics << "\n\n";
   text_table legend({align::left, align::left, align::left});
   for (std::size_t i = 0; i < in.size(); ++i) legend.add({std::to_string(i + 1), label_of(in[i]), in[i].st.name});
   legend.write(out);
@@ -334,7 +337,7 @@ void run(const compare_options& opt, std::ostream& out, std::ostream& err, base:
   if (!opt.plot.empty()) write_plot(in, r, opt.plot, outputs);
   if (opt.json) return print_json(in, r, out);
   if (opt.csv) return write_csv(in, r, out);
-  print_text(in, r, out);
+  print_text(in, r, s.automatic_oversample, out);
   if (!opt.plot.empty()) out << "\n  plot written to " << opt.plot << '\n';
 }
 

@@ -248,7 +248,11 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::
     sw.drives_vpk = {option_level_vpk(opt.drive, "--drive")};
     sw.frequency_hz = option_frequency_hz(opt.freq, "--freq");
     sw.threads = 1;
-    extra = [plan = model::plan_sweep(sw)](const model::stage& drawn, std::map<std::string, double>& values) {
+    sw.automatic_oversample = true;  // as sweep without --oversample: enough for the frequency
+    const model::sweep_plan plan = model::plan_sweep(sw);
+    // Each run holds one record at a time: as many runs at once as fit the sweeps' memory.
+    rep.settings.threads = model::concurrent_points(rep.settings.threads, plan.samples_per_record());
+    extra = [plan](const model::stage& drawn, std::map<std::string, double>& values) {
       values["thd"] = model::run_sweep(drawn, plan).points[0].thd_percent;
     };
   }

@@ -108,12 +108,17 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("tune", "Find the resistor value that puts the bias on a target");
   add_stage_input(*sub, opt.input, data);
   sub->add_option("--target", opt.target_text,
-                  "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, or center (largest symmetric clean swing)")
+                  "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, or center (largest symmetric clean swing); "
+                  "in a chain, of the adjusted stage or of the one named: stage2.vd=4.5")
       ->required()
       ->type_name("TARGET");
   std::string keys;
-  for (std::string_view k : model::adjustable_resistor_keys()) keys += (keys.empty() ? "" : ", ") + std::string(k);
-  sub->add_option("--adjust", opt.adjust, "The resistor to solve for: " + keys)->type_name("KEY")->capture_default_str();
+  for (const std::string& k : model::adjustable_resistor_keys(model::stage{})) keys += (keys.empty() ? "" : ", ") + k;
+  sub->add_option("--adjust", opt.adjust,
+                  "The resistor to solve for: " + keys + "; in a chain stageN. before a stage's own (stage2.drain.resistor), "
+                  "and stageN.rail.resistance")
+      ->type_name("KEY")
+      ->capture_default_str();
   sub->add_option("--series", opt.series, "Standard values to offer: E12, E24 or E96")->capture_default_str();
   sub->add_flag("--json", opt.json, "Machine-readable output");
   sub->add_flag("--over-spread", opt.over_spread,
@@ -129,6 +134,8 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
       "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5 --over-spread --idss 2m..8m --vp -0.8..-3\n"
       "      the source resistance each part of a batch needs, and a fixed resistor plus trimmer\n"
       "      (standard values 100 Ω to 1 MΩ in 1-2-5 steps) that covers them\n"
+      "  pinchoff tune presets/chain-overdrive-9v.toml --target stage2.vd=4.5 --adjust stage2.source.resistor\n"
+      "      in a chain: the second stage's source resistor for its drain at 4.5 V\n"
       "Values are searched from 1 Ω to 100 MΩ; a target no value reaches is reported with the\n"
       "range that can be reached. Voltages are to ground, in real signs (negative for a\n"
       "p-channel stage on a negative supply).");
@@ -139,13 +146,22 @@ void run(const tune_options& opt, std::ostream& out) {
   const model::tune_target target = parse_target(opt.target_text);
   const base::eseries series = base::parse_series(opt.series);
   const model::stage st = load_stage(opt.input);
+  // In a chain, a stage's own key without its stage belongs to the target's stage.
+  std::string adjust = opt.adjust;
+  if (st.is_chain() && adjust.rfind("stage", 0) != 0 && adjust != "supply.resistance" && adjust != "output.load") {
+    if (target.stage < 0)
+      throw input_error("--adjust " + adjust + ": the file is a chain of " + std::to_string(st.stage_count()) +
+                        " stages: name the stage, as --adjust stage1." + adjust + " (or the target's, --target stage1." +
+                        opt.target_text + ")");
+    adjust = model::stage_key(st, target.stage, adjust);
+  }
   if (opt.over_spread) {
     const model::spread_settings ss = spread_settings_from(opt.batch, st, opt.input);
-    const model::trim_result t = model::size_trimmer(st, opt.adjust, target, ss, series);
+    const model::trim_result t = model::size_trimmer(st, adjust, target, ss, series);
     if (opt.json) return print_trim_json(target, ss, t, out);
     return print_trim_text(st, target, ss, t, series, out);
   }
-  const model::tune_result r = model::tune_resistor(st, opt.adjust, target, series);
+  const model::tune_result r = model::tune_resistor(st, adjust, target, series);
   if (opt.json) return print_json(target, r, out);
   print_text(st, target, r, out);
 }

@@ -21,25 +21,39 @@
 
 namespace pinchoff::cli {
 
-/// "SECTION.KEY=VALUE" or "KEY=VALUE" (a top-level key such as name). The value is kept as
-/// text: the stage reader checks it as it checks the file's own values.
+/// "SECTION.KEY=VALUE" or "KEY=VALUE" (a top-level key such as name); in a chain
+/// "stageN.SECTION.KEY=VALUE" or "stageN.KEY=VALUE" (N from 1). The value is kept as text:
+/// the stage reader checks it as it checks the file's own values.
 inline model::stage_override parse_set(std::string_view spec) {
   const std::string text(spec);
   const auto eq = text.find('=');
   if (eq == std::string::npos || eq == 0)
     throw input_error("--set '" + text + "': expected KEY=VALUE, for example --set drain.resistor=4.7k");
-  const std::string key = text.substr(0, eq);
+  std::string key = text.substr(0, eq);
   model::stage_override o;
   o.value = text.substr(eq + 1);
+  // A leading "stageN." names a stage of a chain.
+  if (key.size() > 6 && key.compare(0, 5, "stage") == 0 && key[5] >= '1' && key[5] <= '9') {
+    std::size_t digits = 5;
+    while (digits < key.size() && key[digits] >= '0' && key[digits] <= '9') ++digits;
+    if (digits < key.size() && key[digits] == '.' && digits - 5 <= 2) {
+      o.stage = std::stoi(key.substr(5, digits - 5));
+      key = key.substr(digits + 1);
+    }
+  }
   const auto dot = key.find('.');
   if (dot == std::string::npos) {
+    if (key.empty()) throw input_error("--set '" + text + "': expected stageN.SECTION.KEY=VALUE, for example --set stage2.drain.resistor=4.7k");
     o.key = key;
     return o;
   }
   o.section = key.substr(0, dot);
   o.key = key.substr(dot + 1);
+  // A chain stage's between element: "between.2.position" (the reader checks the rest).
+  if (o.stage > 0 && o.section == "between" && !o.key.empty()) return o;
   if (o.section.empty() || o.key.empty() || o.key.find('.') != std::string::npos)
-    throw input_error("--set '" + text + "': expected SECTION.KEY=VALUE, for example --set drain.resistor=4.7k");
+    throw input_error("--set '" + text + "': expected SECTION.KEY=VALUE, for example --set drain.resistor=4.7k" +
+                      " (or stageN.SECTION.KEY=VALUE in a chain)");
   return o;
 }
 
@@ -64,11 +78,23 @@ inline design_set parse_design_set(std::string_view spec, std::size_t designs) {
 }
 
 /// "vd=4.5", "id=1m", "vds=3.2", "vs=0.9" (real signs, SI values) or "center".
-inline model::tune_target parse_target(std::string_view text) {
-  if (text == "center") return {model::target_kind::center, 0.0};
+inline model::tune_target parse_target(std::string_view full) {
+  // "stageN." names the stage of a chain whose terminals are the target.
+  int stage = -1;
+  std::string_view text = full;
+  if (text.size() > 6 && text.substr(0, 5) == "stage" && text[5] >= '1' && text[5] <= '9') {
+    std::size_t digits = 5;
+    while (digits < text.size() && text[digits] >= '0' && text[digits] <= '9') ++digits;
+    if (digits < text.size() && text[digits] == '.' && digits - 5 <= 2) {
+      stage = std::stoi(std::string(text.substr(5, digits - 5))) - 1;
+      text = text.substr(digits + 1);
+    }
+  }
+  if (text == "center") return {model::target_kind::center, 0.0, stage};
   const auto eq = text.find('=');
   const std::string_view name = text.substr(0, eq);
   model::tune_target t;
+  t.stage = stage;
   if (name == "vd") t.kind = model::target_kind::vd;
   else if (name == "id") t.kind = model::target_kind::id;
   else if (name == "vds") t.kind = model::target_kind::vds;

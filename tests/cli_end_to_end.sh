@@ -18,11 +18,13 @@ check() { # description, expected status, command...
 }
 for p in "$presets"/*.toml; do
   [ "$(basename "$p")" = devices.toml ] && continue
+  # A chain names its stages in keys and targets.
+  stage1=""; grep -q '^\[\[stage\]\]' "$p" && stage1="stage1."
   check "bias $p" 0 "$bin" bias "$p"
-  grep -q "Operating point" "$tmp/out" || { echo "FAIL: bias $p printed no report"; fail=1; }
+  grep -q "^Operating point\|^Stage 1" "$tmp/out" || { echo "FAIL: bias $p printed no report"; fail=1; }
   check "bias --json $p" 0 "$bin" bias "$p" --json
   python3 -c 'import json,sys; json.load(open(sys.argv[1]))' "$tmp/out" || { echo "FAIL: bias --json $p is not JSON"; fail=1; }
-  check "tune center $p" 0 "$bin" tune "$p" --target center
+  check "tune center $p" 0 "$bin" tune "$p" --target "${stage1}center"
   check "spread $p" 0 "$bin" spread "$p" --runs 100 --class general-purpose --plot "$tmp/h.svg"
   rsvg-convert "$tmp/h-vd.svg" -o "$tmp/h.png" || { echo "FAIL: spread histogram of $p does not render"; fail=1; }
   check "sweep $p" 0 "$bin" sweep "$p" --steps 5 --plot "$tmp/s.svg"
@@ -44,6 +46,8 @@ check "compare" 0 "$bin" compare "$presets/bass-booster-9v.toml" "$presets/clean
 rsvg-convert "$tmp/c.svg" -o "$tmp/c.png" || { echo "FAIL: compare plot does not render"; fail=1; }
 check "compare --json" 0 "$bin" compare "$presets/bass-booster-9v.toml" "$presets/bass-booster-9v.toml" --set 2:source.bypass_cap=0 --json
 python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert all(abs(d["output_dbu"]+10)<0.01 for d in j["designs"])' "$tmp/out" || { echo "FAIL: compare --json"; fail=1; }
+check "compare at a bass frequency" 0 "$bin" compare "$presets/bass-booster-9v.toml" "$presets/clean-preamp-18v.toml" --freq 40
+grep -q "1x oversampling (enough at this frequency" "$tmp/out" || { echo "FAIL: compare does not say it lowered the oversampling"; cat "$tmp/out"; fail=1; }
 check "compare of one design" 2 "$bin" compare "$presets/bass-booster-9v.toml"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for compare of one design"; fail=1; }
 check "render" 0 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav" --quiet

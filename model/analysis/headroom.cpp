@@ -11,9 +11,11 @@ namespace {
 
 struct probe {
   bool ok{false};
-  double margin{};             // > 0 inside the clean region
+  double margin{};             // > 0 inside the clean region (every JFET's)
   swing_limit_kind kind{swing_limit_kind::none};
   double output_v{};           // load voltage (network frame)
+  std::vector<double> margins;                 // each JFET's
+  std::vector<swing_limit_kind> kinds;         // each JFET's nearest edge
 };
 
 probe evaluate(const network& net, std::span<const cap_treatment> caps, double u, Eigen::VectorXd& x) {
@@ -21,27 +23,91 @@ probe evaluate(const network& net, std::span<const cap_treatment> caps, double u
   const newton_result r = solve_point(net, caps, u, x);
   if (!r.converged) {
     p.kind = swing_limit_kind::no_convergence;
+    p.margins.assign(net.jfets.size(), -1.0);
+    p.kinds.assign(net.jfets.size(), swing_limit_kind::no_convergence);
     return p;
   }
   p.ok = true;
-  const double vd = node_v(x, net.jfet().drain), vg = node_v(x, net.jfet().gate), vs = node_v(x, net.jfet().source);
-  const double vgs = vg - vs, vds = vd - vs;
-  const double scale = std::max(1.0, std::fabs(net.jfet().device.vp_v));
-  const double m_triode = (vds - (vgs - net.jfet().device.vp_v)) / scale;
-  const double m_cutoff = (vgs - net.jfet().device.vp_v) / scale;
-  const double m_gate = -vgs / scale;
-  p.margin = m_triode;
-  p.kind = swing_limit_kind::triode;
-  if (m_cutoff < p.margin) {
-    p.margin = m_cutoff;
-    p.kind = swing_limit_kind::cutoff;
-  }
-  if (m_gate < p.margin) {
-    p.margin = m_gate;
-    p.kind = swing_limit_kind::gate_forward;
+  p.margin = INFINITY;
+  for (const net_jfet& q : net.jfets) {
+    const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
+    const double vgs = vg - vs, vds = vd - vs;
+    const double scale = std::max(1.0, std::fabs(q.device.vp_v));
+    const double m_triode = (vds - (vgs - q.device.vp_v)) / scale;
+    const double m_cutoff = (vgs - q.device.vp_v) / scale;
+    const double m_gate = -vgs / scale;
+    double m = m_triode;
+    swing_limit_kind kind = swing_limit_kind::triode;
+    if (m_cutoff < m) {
+      m = m_cutoff;
+      kind = swing_limit_kind::cutoff;
+    }
+    if (m_gate < m) {
+      m = m_gate;
+      kind = swing_limit_kind::gate_forward;
+    }
+    p.margins.push_back(m);
+    p.kinds.push_back(kind);
+    if (m < p.margin) {
+      p.margin = m;
+      p.kind = kind;
+    }
   }
   p.output_v = node_v(x, net.output_node);
   return p;
+}
+
+// Where each JFET first leaves its clean region, sweeping the generator from rest in
+// direction `dir` over a geometric grid (a chain's last stage can clip at millivolts), each
+// edge found by bisection on that JFET's own margin.
+void find_stage_edges(const network& net, std::span<const cap_treatment> caps, const Eigen::VectorXd& start, double dir,
+                      double limit, std::vector<stage_clip>& best) {
+  constexpr int steps = 240;
+  constexpr double first = 1e-5;
+  const std::size_t n = net.jfets.size();
+  std::vector<bool> done(n, false);
+  std::vector<double> last_in(n, 0.0);
+  std::vector<Eigen::VectorXd> x_in(n, start);
+  Eigen::VectorXd x = start;
+  for (int k = 0; k <= steps; ++k) {
+    const double u = dir * first * std::pow(limit / first, static_cast<double>(k) / steps);
+    Eigen::VectorXd y = x;
+    const probe p = evaluate(net, caps, u, y);
+    if (p.ok) x = y;
+    bool all = true;
+    for (std::size_t j = 0; j < n; ++j) {
+      if (done[j]) continue;
+      if (p.ok && p.margins[j] > 0) {
+        last_in[j] = u;
+        x_in[j] = y;
+        all = false;
+        continue;
+      }
+      double lo = last_in[j], hi = u;
+      Eigen::VectorXd xl = x_in[j];
+      swing_limit_kind kind = p.kinds[j];
+      for (int it = 0; it < 60 && std::fabs(hi - lo) > 1e-9 * std::max(1e-6, std::fabs(hi)); ++it) {
+        const double mid = 0.5 * (lo + hi);
+        Eigen::VectorXd ym = xl;
+        const probe pm = evaluate(net, caps, mid, ym);
+        if (pm.ok && pm.margins[j] > 0) {
+          lo = mid;
+          xl = ym;
+        } else {
+          hi = mid;
+          kind = pm.kinds[j];
+        }
+      }
+      done[j] = true;
+      stage_clip& b = best[j];
+      if (b.kind == swing_limit_kind::none || std::fabs(lo) < b.drive_vpk) {
+        b.kind = kind;
+        b.drive_vpk = std::fabs(lo);
+        b.drive_sign = net.sign * dir;
+      }
+    }
+    if (all) break;
+  }
 }
 
 }  // namespace
@@ -58,7 +124,6 @@ const char* swing_limit_text(swing_limit_kind k) noexcept {
 }
 
 headroom_figures analyse_headroom(const network& net, const operating_point& op) {
-  if (net.devices() != 1) throw internal_error("the headroom sweep handles a network of one JFET");
   std::vector<cap_treatment> caps = uniform_caps(net, cap_treatment::kind::open);
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     const net_capacitor& c = net.capacitors[k];
@@ -75,7 +140,9 @@ headroom_figures analyse_headroom(const network& net, const operating_point& op)
   const double out0 = rest.output_v;
 
   headroom_figures h;
-  h.search_limit_v = 4.0 * (net.supply_v + std::fabs(net.jfet().device.vp_v));
+  double vp_max = 0.0;
+  for (const net_jfet& q : net.jfets) vp_max = std::max(vp_max, std::fabs(q.device.vp_v));
+  h.search_limit_v = 4.0 * (net.supply_v + vp_max);
   constexpr int steps = 200;
   const double du = h.search_limit_v / steps;
 
@@ -137,6 +204,23 @@ headroom_figures analyse_headroom(const network& net, const operating_point& op)
   }
   h.symmetric_output_vpk = std::min(std::fabs(h.up.output_v), std::fabs(h.down.output_v));
   h.clean_drive_vpk = std::min(std::fabs(h.up.drive_v), std::fabs(h.down.drive_v));
+
+  // The clip order: for one JFET, its edge is the chain's.
+  std::vector<stage_clip> edges(net.jfets.size());
+  for (std::size_t j = 0; j < edges.size(); ++j) edges[j].stage = static_cast<int>(j);
+  if (net.jfets.size() == 1) {
+    const swing_limit& first = std::fabs(h.up.drive_v) <= std::fabs(h.down.drive_v) ? h.up : h.down;
+    edges[0] = {0, first.kind, std::fabs(first.drive_v), first.drive_v < 0 ? -1.0 : 1.0};
+  } else {
+    find_stage_edges(net, caps, start, 1.0, h.search_limit_v, edges);
+    find_stage_edges(net, caps, start, -1.0, h.search_limit_v, edges);
+  }
+  std::stable_sort(edges.begin(), edges.end(), [](const stage_clip& a, const stage_clip& b) {
+    const bool an = a.kind == swing_limit_kind::none, bn = b.kind == swing_limit_kind::none;
+    if (an != bn) return bn;
+    return a.drive_vpk < b.drive_vpk;
+  });
+  h.clip_order = std::move(edges);
   return h;
 }
 

@@ -8,7 +8,7 @@
 namespace pinchoff::model {
 namespace {
 
-double gain_mag2(const network& net, const jfet_linear& lin, double f_hz) {
+double gain_mag2(const network& net, std::span<const jfet_linear> lin, double f_hz) {
   ac_setup g;
   g.midband = false;
   g.s = {0.0, 2.0 * std::numbers::pi * f_hz};
@@ -19,7 +19,7 @@ double gain_mag2(const network& net, const jfet_linear& lin, double f_hz) {
 }  // namespace
 
 response_point response_at(const network& net, const operating_point& op, double f_hz) {
-  const jfet_linear lin = linearise(net, op);
+  const std::vector<jfet_linear> lin = linearise_all(net, op);
   const std::complex<double> s{0.0, 2.0 * std::numbers::pi * f_hz};
   ac_setup g;
   g.midband = false;
@@ -33,7 +33,7 @@ response_point response_at(const network& net, const operating_point& op, double
 
 response_result analyse_response(const network& net, const operating_point& op, double f_lo_hz, double f_hi_hz,
                                  int points) {
-  const jfet_linear lin = linearise(net, op);
+  const std::vector<jfet_linear> lin = linearise_all(net, op);
   response_result r;
   ac_setup mid;
   mid.generator_v = 1.0;

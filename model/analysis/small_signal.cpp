@@ -11,16 +11,33 @@ using cplx = std::complex<double>;
 inline int row(int node) noexcept { return node - 1; }
 }  // namespace
 
+namespace {
+jfet_linear linearise_one(const network& net, const operating_point& op, const net_jfet& q) {
+  const double vd = node_v(op.x, q.drain), vg = node_v(op.x, q.gate), vs = node_v(op.x, q.source);
+  const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
+  return {ch.gm_s, ch.gds_s, junction_current(q.device, vg - vs, net.vt_v).g_s, junction_current(q.device, vg - vd, net.vt_v).g_s};
+}
+}  // namespace
+
 jfet_linear linearise(const network& net, const operating_point& op) {
-  if (net.devices() != 1) throw internal_error("small-signal analysis handles a network of one JFET");
-  const double vd = node_v(op.x, net.jfet().drain), vg = node_v(op.x, net.jfet().gate), vs = node_v(op.x, net.jfet().source);
-  const channel_eval ch = drain_current(net.jfet().device, vg - vs, vd - vs);
-  return {ch.gm_s, ch.gds_s, junction_current(net.jfet().device, vg - vs, net.vt_v).g_s,
-          junction_current(net.jfet().device, vg - vd, net.vt_v).g_s};
+  if (net.devices() != 1) throw internal_error("linearise: the network has more than one JFET (linearise_all)");
+  return linearise_one(net, op, net.jfet());
+}
+
+std::vector<jfet_linear> linearise_all(const network& net, const operating_point& op) {
+  std::vector<jfet_linear> out;
+  for (const net_jfet& q : net.jfets) out.push_back(linearise_one(net, op, q));
+  return out;
 }
 
 Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, const ac_setup& setup) {
-  if (net.devices() != 1) throw internal_error("small-signal analysis handles a network of one JFET");
+  if (net.devices() != 1) throw internal_error("small-signal analysis: one linearised JFET given for several");
+  return solve_small_signal(net, std::span<const jfet_linear>(&lin, 1), setup);
+}
+
+Eigen::VectorXcd solve_small_signal(const network& net, std::span<const jfet_linear> lins, const ac_setup& setup) {
+  if (static_cast<int>(lins.size()) != net.devices())
+    throw internal_error("small-signal analysis: the linearised JFETs do not match the network");
   const int nu = net.node_count - 1;
   int branches = 1 + (setup.generator_present ? 1 : 0);
   if (setup.midband)
@@ -81,11 +98,15 @@ Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, 
       stamp_y(c.a, c.b, setup.s * c.farad);
     }
   }
-  // JFET: channel current d -> s controlled by vgs and vds; junction conductances.
-  stamp_vccs(net.jfet().drain, net.jfet().source, net.jfet().gate, net.jfet().source, lin.gm_s);
-  if (setup.include_gds) stamp_y(net.jfet().drain, net.jfet().source, lin.gds_s);
-  stamp_y(net.jfet().gate, net.jfet().source, lin.ggs_s);
-  stamp_y(net.jfet().gate, net.jfet().drain, lin.ggd_s);
+  // Each JFET: channel current d -> s controlled by vgs and vds; junction conductances.
+  for (std::size_t k = 0; k < lins.size(); ++k) {
+    const net_jfet& q = net.jfets[k];
+    const jfet_linear& lin = lins[k];
+    stamp_vccs(q.drain, q.source, q.gate, q.source, lin.gm_s);
+    if (setup.include_gds) stamp_y(q.drain, q.source, lin.gds_s);
+    stamp_y(q.gate, q.source, lin.ggs_s);
+    stamp_y(q.gate, q.drain, lin.ggd_s);
+  }
 
   if (setup.inject_a >= 0) {
     if (setup.inject_a != 0) rhs[row(setup.inject_a)] += 1.0;
@@ -99,15 +120,27 @@ Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, 
 }
 
 small_signal_figures analyse_small_signal(const network& net, const operating_point& op) {
-  const jfet_linear lin = linearise(net, op);
+  const std::vector<jfet_linear> lin = linearise_all(net, op);
   small_signal_figures f;
-  f.gm_s = lin.gm_s;
-  f.gds_s = lin.gds_s;
-  if (lin.gds_s > 0) f.rds_ohm = 1.0 / lin.gds_s;
+  f.gm_s = lin.front().gm_s;
+  f.gds_s = lin.front().gds_s;
+  if (f.gds_s > 0) f.rds_ohm = 1.0 / f.gds_s;
 
   ac_setup gain;
   gain.generator_v = 1.0;
-  f.gain_midband = solve_small_signal(net, lin, gain)[net.output_node].real();
+  const Eigen::VectorXcd v_mid = solve_small_signal(net, lin, gain);
+  f.gain_midband = v_mid[net.output_node].real();
+  for (std::size_t k = 0; k < net.stages.size(); ++k) {
+    stage_small_signal st;
+    const jfet_linear& l = lin[static_cast<std::size_t>(net.stages[k].jfet)];
+    st.gm_s = l.gm_s;
+    st.gds_s = l.gds_s;
+    if (l.gds_s > 0) st.rds_ohm = 1.0 / l.gds_s;
+    const int to = k + 1 < net.stages.size() ? net.stages[k + 1].input : net.output_node;
+    const double in = v_mid[net.stages[k].input].real();
+    st.gain = std::fabs(in) > 1e-300 ? v_mid[to].real() / in : NAN;
+    f.stages.push_back(st);
+  }
   gain.include_gds = false;
   f.gain_midband_no_gds = solve_small_signal(net, lin, gain)[net.output_node].real();
 
@@ -123,7 +156,7 @@ small_signal_figures analyse_small_signal(const network& net, const operating_po
 
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     const net_capacitor& c = net.capacitors[k];
-    if (!is_large_cap(c.role) || c.role == cap_role::supply_reservoir) continue;
+    if (!is_large_cap(c.role) || is_reservoir(c.role)) continue;
     ac_setup seen;
     seen.removed_cap = static_cast<int>(k);
     seen.inject_a = c.a;
@@ -138,7 +171,7 @@ small_signal_figures analyse_small_signal(const network& net, const operating_po
 }
 
 std::vector<cap_reactance> reactances_at(const network& net, const operating_point& op, double f_hz) {
-  const jfet_linear lin = linearise(net, op);
+  const std::vector<jfet_linear> lin = linearise_all(net, op);
   const small_signal_figures ss = analyse_small_signal(net, op);
   ac_setup mid;
   mid.generator_v = 1.0;
@@ -146,7 +179,7 @@ std::vector<cap_reactance> reactances_at(const network& net, const operating_poi
   std::vector<cap_reactance> out;
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     const net_capacitor& c = net.capacitors[k];
-    if (!is_large_cap(c.role) || c.role == cap_role::supply_reservoir) continue;
+    if (!is_large_cap(c.role) || is_reservoir(c.role)) continue;
     ac_setup one = mid;
     one.admittance_cap = static_cast<int>(k);
     one.s = {0.0, 2.0 * std::numbers::pi * f_hz};

@@ -1,11 +1,11 @@
 #pragma once
-// Small-signal (linearised) analysis at the operating point of a one-JFET network (the
-// functions throw internal_error for more): the JFET becomes gm, gds and
-// the two gate-junction conductances; capacitors are either admittances s C, or (in the
+// Small-signal (linearised) analysis at the operating point of a network of one JFET or a
+// chain of them: each JFET becomes gm, gds and the two gate-junction conductances; capacitors are either admittances s C, or (in the
 // mid-band) shorts for coupling, bypass and reservoir capacitors and open for the junction
 // capacitances. Solved as a complex modified nodal system.
 #include <complex>
 #include <limits>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -20,7 +20,10 @@ namespace pinchoff::model {
 struct jfet_linear {
   double gm_s{}, gds_s{}, ggs_s{}, ggd_s{};
 };
+/// The network's only JFET (internal_error for more: use linearise_all).
 jfet_linear linearise(const network& net, const operating_point& op);
+/// Every JFET of the network, in order.
+std::vector<jfet_linear> linearise_all(const network& net, const operating_point& op);
 
 /// How a small-signal solve is set up.
 struct ac_setup {
@@ -37,6 +40,9 @@ struct ac_setup {
 };
 
 /// Node voltages (index = node, 0 = ground) of the linearised network.
+/// `lins` holds one entry per JFET (internal_error otherwise).
+Eigen::VectorXcd solve_small_signal(const network& net, std::span<const jfet_linear> lins, const ac_setup& setup);
+/// The same for a network of one JFET.
 Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, const ac_setup& setup);
 
 /// Low-frequency corner of one large capacitor by the short-circuit time-constant method
@@ -51,8 +57,19 @@ struct cap_corner {
   double corner_hz{};
 };
 
-struct small_signal_figures {
+/// One stage of a chain in the mid-band: its JFET's gm and gds, and its gain from the signal
+/// at its input (the end of its `between`, or the first stage's input after the generator
+/// impedance) to the next stage's input (after that stage's `between`), or to the load for
+/// the last stage. The stages' gains multiply to the chain's gain after the generator
+/// impedance.
+struct stage_small_signal {
   double gm_s{}, gds_s{};
+  double rds_ohm{std::numeric_limits<double>::infinity()};
+  double gain{};          ///< V/V, signed; NaN when the stage's input carries no signal (a volume at 0)
+};
+
+struct small_signal_figures {
+  double gm_s{}, gds_s{};         ///< of the first JFET
   double rds_ohm{std::numeric_limits<double>::infinity()};  ///< 1/gds
   double gain_midband{};          ///< generator to load, V/V, signed (negative: inverting)
   double gain_midband_no_gds{};   ///< the same with gds = 0
@@ -60,6 +77,7 @@ struct small_signal_figures {
   double zout_ohm{};              ///< looking back into the output, load removed
   std::vector<cap_corner> corners;  ///< coupling and bypass capacitors (not the reservoir)
   double low_corner_estimate_hz{};  ///< sum of the corners (the method's estimate)
+  std::vector<stage_small_signal> stages;  ///< one per stage (empty for a network built without stages)
 };
 
 small_signal_figures analyse_small_signal(const network& net, const operating_point& op);

@@ -72,26 +72,30 @@ spread_draw draw_part(const spread_settings& s, const stage& st, int index) {
   splitmix64 g{s.seed * 0xD1B54A32D192ED03ull + static_cast<std::uint64_t>(index) * 0x9E3779B97F4A7C15ull};
   g.next();
   spread_draw d;
-  // Correlated pair (z1, z2): corr(z1, z2) = rho. For the normal form, redraw the pair
-  // until both lie within +-3 sigma, so every part stays inside its range.
-  double z1 = 0, z2 = 0;
-  for (int tries = 0; tries < 1000; ++tries) {
-    z1 = g.gauss();
-    z2 = s.correlation * z1 + std::sqrt(std::max(0.0, 1.0 - s.correlation * s.correlation)) * g.gauss();
-    if (s.distribution == spread_distribution::uniform || (std::fabs(z1) <= 3 && std::fabs(z2) <= 3)) break;
-  }
-  d.idss_a = s.idss_a ? to_range(z1, *s.idss_a, s.distribution) : st.jfet.idss_a;
-  if (s.vp_v) {
-    // Correlate IDSS with |VP|: draw the magnitude.
-    const base::value_range mag{std::min(std::fabs(s.vp_v->lo), std::fabs(s.vp_v->hi)),
-                               std::max(std::fabs(s.vp_v->lo), std::fabs(s.vp_v->hi))};
-    d.vp_v = (st.pol == polarity::p ? 1.0 : -1.0) * to_range(z2, mag, s.distribution);
-  } else {
-    d.vp_v = st.jfet.vp_v;
-  }
+  auto draw_jfet = [&](const stage_parts& p, double& idss, double& vp) {
+    // Correlated pair (z1, z2): corr(z1, z2) = rho. For the normal form, redraw the pair
+    // until both lie within +-3 sigma, so every part stays inside its range.
+    double z1 = 0, z2 = 0;
+    for (int tries = 0; tries < 1000; ++tries) {
+      z1 = g.gauss();
+      z2 = s.correlation * z1 + std::sqrt(std::max(0.0, 1.0 - s.correlation * s.correlation)) * g.gauss();
+      if (s.distribution == spread_distribution::uniform || (std::fabs(z1) <= 3 && std::fabs(z2) <= 3)) break;
+    }
+    idss = s.idss_a ? to_range(z1, *s.idss_a, s.distribution) : p.jfet.idss_a;
+    if (s.vp_v) {
+      // Correlate IDSS with |VP|: draw the magnitude.
+      const base::value_range mag{std::min(std::fabs(s.vp_v->lo), std::fabs(s.vp_v->hi)),
+                                 std::max(std::fabs(s.vp_v->lo), std::fabs(s.vp_v->hi))};
+      vp = (st.pol == polarity::p ? 1.0 : -1.0) * to_range(z2, mag, s.distribution);
+    } else {
+      vp = p.jfet.vp_v;
+    }
+  };
+  draw_jfet(st, d.idss_a, d.vp_v);
   const double us = g.unit();
   d.supply_v = s.supply_v ? s.supply_v->lo + (s.supply_v->hi - s.supply_v->lo) * us : st.supply.volts_v;
-  for (std::size_t k = 0; k < adjustable_resistor_keys().size(); ++k) {
+  const std::size_t resistors = adjustable_resistor_keys(st).size();
+  for (std::size_t k = 0; k < resistors; ++k) {
     double f = 1.0;
     if (s.resistor_tolerance > 0) {
       if (s.distribution == spread_distribution::uniform) {
@@ -106,6 +110,11 @@ spread_draw draw_part(const spread_settings& s, const stage& st, int index) {
     }
     d.resistor_factors.push_back(f);
   }
+  // A chain's later parts come after, so a single stage draws what it always drew.
+  for (const stage_parts& p : st.later) {
+    spread_draw::part& q = d.later.emplace_back();
+    draw_jfet(p, q.idss_a, q.vp_v);
+  }
   return d;
 }
 
@@ -114,7 +123,11 @@ stage apply_draw(const stage& st, const spread_draw& d) {
   s.jfet.idss_a = d.idss_a;
   s.jfet.vp_v = d.vp_v;
   s.supply.volts_v = d.supply_v;
-  const auto keys = adjustable_resistor_keys();
+  for (std::size_t k = 0; k < d.later.size() && k < s.later.size(); ++k) {
+    s.later[k].jfet.idss_a = d.later[k].idss_a;
+    s.later[k].jfet.vp_v = d.later[k].vp_v;
+  }
+  const auto keys = adjustable_resistor_keys(s);
   for (std::size_t k = 0; k < keys.size(); ++k) *resistor_field(s, keys[k]) *= d.resistor_factors[k];
   return s;
 }

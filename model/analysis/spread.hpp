@@ -44,10 +44,13 @@ struct spread_settings {
 /// ("idss_a", "vp_v", "supply_v", "correlation", "resistor_tolerance", "runs").
 void validate(const spread_settings& s, const stage& st);
 
-/// One drawn part and supply: the stage with these values substituted.
+/// One drawn part and supply: the stage with these values substituted. In a chain every JFET
+/// is drawn on its own (the IDSS-VP correlation holds within each part).
 struct spread_draw {
-  double idss_a{}, vp_v{}, supply_v{};
-  std::vector<double> resistor_factors;  ///< one per adjustable_resistor_keys() entry
+  double idss_a{}, vp_v{}, supply_v{};   ///< the first (or only) stage's part, and the supply
+  std::vector<double> resistor_factors;  ///< one per adjustable_resistor_keys(stage) entry
+  struct part { double idss_a{}, vp_v{}; };
+  std::vector<part> later;               ///< a chain's second and later parts
 };
 
 /// The i-th draw (pure function of the settings, the stage and i).

@@ -34,12 +34,12 @@ const char* quantity_name(target_kind k) {
   return "";
 }
 
-tune_point evaluate_point(const stage& s, std::string_view adjust_key, double value_ohm, bool with_headroom) {
+tune_point evaluate_point(const stage& s, std::string_view adjust_key, double value_ohm, bool with_headroom, int at_stage) {
   stage copy = s;
   *resistor_field(copy, adjust_key) = value_ohm;
   const network net = build_network(copy);
   const operating_point op = solve_operating_point(net);
-  tune_point p{value_ohm, op.at, {}};
+  tune_point p{value_ohm, at_stage == 0 ? op.at : terminals_of(net, op.x, at_stage), {}};
   if (with_headroom) p.headroom = analyse_headroom(net, op);
   return p;
 }
@@ -48,24 +48,42 @@ tune_point evaluate_point(const stage& s, std::string_view adjust_key, double va
 
 std::string target_text(const tune_target& t) {
   if (t.kind == target_kind::center) return "center (largest symmetric clean swing)";
-  return std::string(quantity_name(t.kind)) + " = " + base::format_si(t.value, quantity_unit(t.kind), 4);
+  const std::string who = t.stage >= 0 ? "stage" + std::to_string(t.stage + 1) + "." : std::string();
+  return who + quantity_name(t.kind) + " = " + base::format_si(t.value, quantity_unit(t.kind), 4);
 }
 
-tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm) {
-  return evaluate_point(s, adjust_key, value_ohm, true);
+tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm, int at_stage) {
+  return evaluate_point(s, adjust_key, value_ohm, true, at_stage);
+}
+
+int target_stage(const stage& s, std::string_view adjust_key, const tune_target& target) {
+  if (target.stage >= 0) {
+    if (target.stage >= s.stage_count())
+      throw setting_error("target", s.is_chain() ? "the chain has " + std::to_string(s.stage_count()) +
+                                                       " stages, so there is no stage " + std::to_string(target.stage + 1)
+                                                 : "the file describes one stage, so there is no stage " +
+                                                       std::to_string(target.stage + 1));
+    return target.stage;
+  }
+  if (!s.is_chain()) return 0;
+  for (int k = 0; k < s.stage_count(); ++k)
+    if (adjust_key.substr(0, stage_key(s, k, "").size()) == stage_key(s, k, "")) return k;
+  throw setting_error("target", "in a chain, name the stage whose bias is the target, such as stage1." +
+                                    std::string(target.kind == target_kind::center ? "center" : "vd=4.5"));
 }
 
 double solve_resistor(const stage& s, std::string_view adjust_key, const tune_target& target) {
   stage probe = s;
   if (resistor_field(probe, adjust_key) == nullptr) {
     std::string keys;
-    for (std::string_view k : adjustable_resistor_keys()) keys += (keys.empty() ? "" : ", ") + std::string(k);
+    for (const std::string& k : adjustable_resistor_keys(s)) keys += (keys.empty() ? "" : ", ") + k;
     throw setting_error("adjust_key",
                         "'" + std::string(adjust_key) + "' is not an adjustable resistor (choose one of " + keys + ")");
   }
+  const int at_stage = target_stage(s, adjust_key, target);
   // Removing or adding some resistors changes the topology; keep the stage valid.
-  const bool is_divider = adjust_key == "gate.bias_top" || adjust_key == "gate.bias_bottom";
-  if (is_divider && !(s.gate.bias_top_ohm > 0 && s.gate.bias_bottom_ohm > 0))
+  const bool is_divider = adjust_key.ends_with("gate.bias_top") || adjust_key.ends_with("gate.bias_bottom");
+  if (is_divider && *resistor_field(probe, adjust_key) == 0.0)
     throw setting_error("adjust_key", "the stage has no bias divider, so " + std::string(adjust_key) + " cannot be adjusted");
 
   const bool want_center = target.kind == target_kind::center;
@@ -74,7 +92,7 @@ double solve_resistor(const stage& s, std::string_view adjust_key, const tune_ta
       stage t = s;
       *resistor_field(t, adjust_key) = r;
       validate(t);
-      return evaluate_point(s, adjust_key, r, want_center);
+      return evaluate_point(s, adjust_key, r, want_center, at_stage);
     } catch (const std::exception&) {
       return std::nullopt;
     }
@@ -161,13 +179,14 @@ tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tun
   tune_result res;
   res.adjust = std::string(adjust_key);
   res.exact_ohm = exact;
-  res.exact = evaluate_with(s, adjust_key, exact);
+  const int at_stage = target_stage(s, adjust_key, target);
+  res.exact = evaluate_with(s, adjust_key, exact, at_stage);
   const double below = base::series_at_or_below(series, exact);
   const double above = base::series_at_or_above(series, exact);
   for (double v : {below, above}) {
     if (!res.candidates.empty() && res.candidates.back().point.value_ohm == v) continue;
     try {
-      res.candidates.push_back({std::string(base::series_name(series)), evaluate_with(s, adjust_key, v)});
+      res.candidates.push_back({std::string(base::series_name(series)), evaluate_with(s, adjust_key, v, at_stage)});
     } catch (const std::exception&) {
       // A series value outside what the stage allows is simply not offered.
     }

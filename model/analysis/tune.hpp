@@ -18,13 +18,14 @@ enum class target_kind { vd, id, vds, vs, center };
 struct tune_target {
   target_kind kind{target_kind::vd};
   double value{};
+  int stage{-1};  ///< whose terminals, counted from 0; -1: the adjusted resistor's stage (the only one of a single stage)
 };
 /// "vd = 4.50 V", "center (largest symmetric clean swing)": for reports.
 std::string target_text(const tune_target& t);
 
 struct tune_point {
   double value_ohm{};
-  terminal_point at;
+  terminal_point at;          ///< of the target's stage
   headroom_figures headroom;
 };
 
@@ -52,7 +53,12 @@ tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tun
 /// The exact value alone (no series candidates): what tune_resistor solves first.
 double solve_resistor(const stage& s, std::string_view adjust_key, const tune_target& target);
 
-/// The operating point and headroom of the stage with one resistor replaced.
-tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm);
+/// The operating point (of stage `at_stage`) and headroom of the stage with one resistor replaced.
+tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm, int at_stage = 0);
+
+/// The stage a target's terminals belong to: its own `stage`, else the adjusted key's
+/// ("stage2.drain.resistor": 1), else 0 for a single stage. A chain's shared key with no
+/// stage named is a setting_error of the field "target".
+int target_stage(const stage& s, std::string_view adjust_key, const tune_target& target);
 
 }  // namespace pinchoff::model

@@ -1,5 +1,6 @@
 #include "model/analysis/warnings.hpp"
 
+#include <algorithm>
 #include <cmath>
 
 #include "base/units.hpp"
@@ -15,21 +16,28 @@ double supply_current_a(const network& net, const operating_point& op) {
 std::vector<std::string> operating_warnings(const stage& s, const network& net, const operating_point& op) {
   using base::format_si;
   std::vector<std::string> w;
-  const terminal_point& t = op.at;
-  if (t.region == jfet_region::cutoff)
-    w.push_back("the JFET is cut off at rest (no drain current): this bias does not amplify");
-  else if (t.region == jfet_region::triode)
-    w.push_back("the JFET sits in the triode region at rest (vds below vgs - vp): expect low gain and early clipping");
-  if (s.ratings.vds_max_v && std::fabs(t.vds_v) > *s.ratings.vds_max_v)
-    w.push_back("vds " + format_si(std::fabs(t.vds_v), "V") + " exceeds the rating vds_max " + format_si(*s.ratings.vds_max_v, "V"));
-  const double pd = std::fabs(t.id_a * t.vds_v);
-  if (s.ratings.pd_max_w && pd > *s.ratings.pd_max_w)
-    w.push_back("dissipation " + format_si(pd, "W") + " exceeds the rating pd_max " + format_si(*s.ratings.pd_max_w, "W"));
-  if (s.ratings.igf_max_a && t.ig_a * net.sign > *s.ratings.igf_max_a)
-    w.push_back("gate forward current " + format_si(std::fabs(t.ig_a), "A") + " exceeds the rating igf_max " +
-                format_si(*s.ratings.igf_max_a, "A"));
-  if (t.vgs_v * net.sign > 0.3)
-    w.push_back("the gate junction is forward biased at rest (vgs " + format_si(t.vgs_v, "V") + "): gate current flows");
+  const int devices = std::min(net.devices(), s.stage_count());
+  for (int k = 0; k < devices; ++k) {
+    const terminal_point t = k == 0 ? op.at : terminals_of(net, op.x, k);
+    const jfet_ratings& ratings = s.part(k).ratings;
+    const std::string who = s.is_chain() ? "stage " + std::to_string(k + 1) + ": " : std::string();
+    const std::string it = s.is_chain() ? "its JFET" : "the JFET";
+    if (t.region == jfet_region::cutoff)
+      w.push_back(who + it + " is cut off at rest (no drain current): this bias does not amplify");
+    else if (t.region == jfet_region::triode)
+      w.push_back(who + it + " sits in the triode region at rest (vds below vgs - vp): expect low gain and early clipping");
+    if (ratings.vds_max_v && std::fabs(t.vds_v) > *ratings.vds_max_v)
+      w.push_back(who + "vds " + format_si(std::fabs(t.vds_v), "V") + " exceeds the rating vds_max " +
+                  format_si(*ratings.vds_max_v, "V"));
+    const double pd = std::fabs(t.id_a * t.vds_v);
+    if (ratings.pd_max_w && pd > *ratings.pd_max_w)
+      w.push_back(who + "dissipation " + format_si(pd, "W") + " exceeds the rating pd_max " + format_si(*ratings.pd_max_w, "W"));
+    if (ratings.igf_max_a && t.ig_a * net.sign > *ratings.igf_max_a)
+      w.push_back(who + "gate forward current " + format_si(std::fabs(t.ig_a), "A") + " exceeds the rating igf_max " +
+                  format_si(*ratings.igf_max_a, "A"));
+    if (t.vgs_v * net.sign > 0.3)
+      w.push_back(who + "the gate junction is forward biased at rest (vgs " + format_si(t.vgs_v, "V") + "): gate current flows");
+  }
   const double vsup = std::fabs(s.supply.volts_v);
   if (vsup >= 60.0)
     w.push_back("supply of " + format_si(vsup, "V") +

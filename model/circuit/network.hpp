@@ -18,29 +18,48 @@
 
 namespace pinchoff::model {
 
-enum class cap_role { input_coupling, source_bypass, output_coupling, supply_reservoir, junction_gs, junction_gd };
+enum class cap_role {
+  input_coupling, source_bypass, output_coupling, supply_reservoir, junction_gs, junction_gd,
+  interstage_coupling,  ///< a series capacitor in a chain's `between`
+  rail_reservoir,       ///< a chain stage's rail filter capacitor
+  treble_cut,           ///< a shunt capacitor in `between`, or across a drain resistor: open in the mid-band
+};
+
+/// True for the reservoirs of the supply and of the stage rails (left out of the corners).
+bool is_reservoir(cap_role r) noexcept;
 
 /// True for the capacitors that are shorts in the mid-band (coupling, bypass, reservoir),
-/// false for the junction capacitances (open in the mid-band).
+/// false for the junction capacitances and the treble cuts (open in the mid-band).
 bool is_large_cap(cap_role r) noexcept;
 
 struct net_resistor {
   int a, b;
   double ohm;
-  std::string_view key;  ///< stage-file key ("drain.resistor"), or "load" style names
+  std::string key;  ///< stage-file key ("drain.resistor", "stage2.drain.resistor")
 };
 
 struct net_capacitor {
   int a, b;
   double farad;
   cap_role role;
-  std::string_view key;
+  std::string key;
 };
 
 /// One JFET of the network: its terminals and its parameters (mirrored: vp_v < 0).
 struct net_jfet {
   int drain{0}, gate{0}, source{0};
   jfet_params device;
+};
+
+/// One stage of the network: its JFET and the nodes a chain's analyses report on.
+struct net_stage {
+  int jfet{0};            ///< index into network::jfets
+  int input{0};           ///< where the stage's signal arrives: before its gate coupling cap (the generator side
+                          ///< for the first stage's impedance, the end of `between` for the others)
+  int output_tap{0};      ///< drain (common source) or source (follower)
+  int output{0};          ///< after the output coupling capacitor (the tap when there is none)
+  int rail{0};            ///< the node its drain resistor and bias divider hang from
+  std::string label;      ///< "stage 2" or the stage's own name
 };
 
 struct network {
@@ -56,12 +75,15 @@ struct network {
   /// engine) handle any number; the stage analyses built on one stage (small signal,
   /// headroom, tune) use the first.
   std::vector<net_jfet> jfets;
-  int output_tap{0};      ///< drain (common source) or source terminal (follower) of the first JFET
+  int output_tap{0};      ///< drain (common source) or source terminal (follower) of the last stage's JFET
   int output_node{0};     ///< the node across the load (after the output coupling cap)
   bool has_load{false};
   double vt_v{0};         ///< thermal voltage, the same for every JFET
   double sign{1.0};       ///< +1 n-channel, -1 p-channel (every JFET of the network)
   std::string source;     ///< the stage file it was built from, for messages (may be empty)
+  /// The stages in signal order (one for a single stage; empty for a network built in code
+  /// without them).
+  std::vector<net_stage> stages;
 
   /// The first JFET: the stage's device for the analyses of a single stage.
   const net_jfet& jfet() const { return jfets.front(); }

@@ -60,9 +60,13 @@ operating_point solve_operating_point(const network& net) {
       }
     }
   }
-  if (!op.newton.converged)
+  if (!op.newton.converged) {
+    // Name the parts most likely at fault: the two whose conductances lie furthest apart.
+    const std::string parts = widest_parts(net, 0.0);
     throw internal_error(source_prefix(net) + "no DC operating point found: Newton did not converge, even with source stepping (largest "
-                         "current left unbalanced at a node: " + base::format_si(op.newton.residual_a, "A") + ")");
+                         "current left unbalanced at a node: " + base::format_si(op.newton.residual_a, "A") + ")" +
+                         (parts.empty() ? std::string() : "; the values furthest apart are " + parts));
+  }
   op.x = x;
   op.at = terminals_of(net, x);
   return op;

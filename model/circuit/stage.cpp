@@ -1,34 +1,31 @@
 #include "model/circuit/stage.hpp"
 
 #include <array>
+#include <charconv>
 #include <string>
 
 #include "base/error.hpp"
 
 namespace pinchoff::model {
+namespace {
 
-std::vector<std::string_view> adjustable_resistor_keys() noexcept {
-  return {"source.resistor", "source.unbypassed", "drain.resistor", "gate.bias_top", "gate.bias_bottom",
-          "gate.resistor", "supply.resistance", "output.load"};
-}
+constexpr std::array<std::string_view, 6> own_resistor_keys{"source.resistor", "source.unbypassed", "drain.resistor",
+                                                          "gate.bias_top",   "gate.bias_bottom",  "gate.resistor"};
 
-double* resistor_field(stage& s, std::string_view key) noexcept {
-  if (key == "source.resistor") return &s.source.resistor_ohm;
-  if (key == "source.unbypassed") return &s.source.unbypassed_ohm;
-  if (key == "drain.resistor") return &s.drain_resistor_ohm;
-  if (key == "gate.bias_top") return &s.gate.bias_top_ohm;
-  if (key == "gate.bias_bottom") return &s.gate.bias_bottom_ohm;
-  if (key == "gate.resistor") return &s.gate.resistor_ohm;
-  if (key == "supply.resistance") return &s.supply.resistance_ohm;
-  if (key == "output.load") return &s.output.load_ohm;
+double* own_resistor(stage_parts& p, std::string_view key) noexcept {
+  if (key == "source.resistor") return &p.source.resistor_ohm;
+  if (key == "source.unbypassed") return &p.source.unbypassed_ohm;
+  if (key == "drain.resistor") return &p.drain_resistor_ohm;
+  if (key == "gate.bias_top") return &p.gate.bias_top_ohm;
+  if (key == "gate.bias_bottom") return &p.gate.bias_bottom_ohm;
+  if (key == "gate.resistor") return &p.gate.resistor_ohm;
+  if (key == "rail.resistance") return &p.rail.resistance_ohm;
   return nullptr;
 }
 
-void validate(const stage& s) {
-  auto fail = [](const std::string& m) { throw input_error(m); };
+void validate_parts(const stage_parts& s, const std::string& prefix, bool last) {
+  auto fail = [&](const std::string& m) { throw input_error(prefix + m); };
   const bool p = s.pol == polarity::p;
-  if (p ? !(s.supply.volts_v < 0) : !(s.supply.volts_v > 0))
-    fail(std::string("supply.volts must be ") + (p ? "negative for a p-channel stage" : "positive for an n-channel stage"));
   if (!(s.jfet.idss_a > 0)) fail("jfet.idss must be above 0 A");
   if (p ? !(s.jfet.vp_v > 0) : !(s.jfet.vp_v < 0))
     fail(std::string("jfet.vp must be ") + (p ? "positive for a p-channel part" : "negative for an n-channel part"));
@@ -43,9 +40,66 @@ void validate(const stage& s) {
     fail("the gate has no DC path: with gate.coupling_cap, give gate.resistor (to ground) or a bias divider");
   if (s.source.bypass_cap_f > 0 && !(s.source.resistor_ohm > 0))
     fail("source.bypass_cap needs source.resistor to shunt");
-  if (s.output.coupling_cap_f > 0 && !(s.output.load_ohm > 0))
+  if (s.drain_shunt_cap_f > 0 && !(s.drain_resistor_ohm > 0))
+    fail("drain.shunt_cap needs drain.resistor to sit across");
+  if (last && s.output.coupling_cap_f > 0 && !(s.output.load_ohm > 0))
     fail("output.coupling_cap needs output.load (otherwise the coupled output floats)");
-  if (!(s.temperature_k > 0)) fail("temperature must be above 0 K");
+  if (s.rail.capacitance_f > 0 && !(s.rail.resistance_ohm > 0))
+    fail("rail.capacitance needs rail.resistance (across the supply itself it filters nothing)");
+}
+
+}  // namespace
+
+double pot_fraction(pot_taper taper, double position) noexcept {
+  if (taper == pot_taper::linear) return position;
+  return position <= 0.5 ? 0.2 * position : 0.1 + 1.8 * (position - 0.5);
+}
+
+std::string stage_key(const stage& s, int k, std::string_view key) {
+  if (!s.is_chain()) return std::string(key);
+  return "stage" + std::to_string(k + 1) + "." + std::string(key);
+}
+
+std::vector<std::string> adjustable_resistor_keys(const stage& s) {
+  std::vector<std::string> keys;
+  for (int k = 0; k < s.stage_count(); ++k) {
+    for (std::string_view key : own_resistor_keys) keys.push_back(stage_key(s, k, key));
+    if (s.is_chain()) keys.push_back(stage_key(s, k, "rail.resistance"));
+  }
+  keys.push_back("supply.resistance");
+  keys.push_back("output.load");
+  return keys;
+}
+
+double* resistor_field(stage& s, std::string_view key) noexcept {
+  if (key == "supply.resistance") return &s.supply.resistance_ohm;
+  if (key == "output.load") return &s.last().output.load_ohm;
+  if (!s.is_chain()) return key == "rail.resistance" ? nullptr : own_resistor(s, key);
+  if (key.substr(0, 5) != "stage") return nullptr;
+  const std::size_t dot = key.find('.');
+  if (dot == std::string_view::npos) return nullptr;
+  int n = 0;
+  const auto [ptr, ec] = std::from_chars(key.data() + 5, key.data() + dot, n);
+  if (ec != std::errc{} || ptr != key.data() + dot || n < 1 || n > s.stage_count()) return nullptr;
+  return own_resistor(s.part(n - 1), key.substr(dot + 1));
+}
+
+void validate(const stage& s) {
+  const bool p = s.pol == polarity::p;
+  if (p ? !(s.supply.volts_v < 0) : !(s.supply.volts_v > 0))
+    throw input_error(std::string("supply.volts must be ") +
+                      (p ? "negative for a p-channel stage" : "positive for an n-channel stage"));
+  if (!(s.temperature_k > 0)) throw input_error("temperature must be above 0 K");
+  if (s.stage_count() > max_chain_stages)
+    throw input_error("a chain holds at most " + std::to_string(max_chain_stages) + " stages, this one " +
+                      std::to_string(s.stage_count()));
+  for (int k = 0; k < s.stage_count(); ++k) {
+    const stage_parts& part = s.part(k);
+    const std::string prefix = s.is_chain() ? "stage" + std::to_string(k + 1) + ": " : std::string();
+    if (part.pol != s.pol) throw input_error(prefix + "every stage of a chain must have the polarity of the first");
+    if (k == 0 && !part.between.empty()) throw input_error(prefix + "the first stage has no 'between' (nothing comes before it)");
+    validate_parts(part, prefix, k + 1 == s.stage_count());
+  }
 }
 
 }  // namespace pinchoff::model

@@ -38,32 +38,83 @@ struct source_part {
 
 struct output_part {
   double coupling_cap_f{0};   ///< 0 = DC-coupled output
-  double load_ohm{0};         ///< 0 = no load (open)
+  double load_ohm{0};         ///< 0 = no load (open); in a chain, only the last stage has one
 };
 
-struct stage {
-  std::string name;
-  std::string file;           ///< the file it was read from, for messages; empty for a stage built in code
+/// A stage's own supply filter in a chain: an RC from the shared supply to the stage's rail.
+struct rail_part {
+  double resistance_ohm{0};   ///< 0 = the stage is fed straight from the supply
+  double capacitance_f{0};    ///< reservoir after it; 0 = none
+};
+
+/// One element of the network between two stages of a chain, in signal order.
+enum class between_kind { series, series_cap, shunt, shunt_cap, pot };
+/// A potentiometer's law. Linear: the wiper-to-ground part is x R. Log ("audio", common
+/// practice: 10 % of the resistance at half rotation): two straight segments through (0, 0),
+/// (0.5, 0.1) and (1, 1), the usual construction of audio-taper tracks.
+enum class pot_taper { linear, log };
+struct between_part {
+  between_kind kind{between_kind::series};
+  double value{0};            ///< ohm, or farad for series_cap and shunt_cap
+  double position{0};         ///< pot only: knob rotation 0..1
+  pot_taper taper{pot_taper::linear};
+};
+/// The fraction of a pot's resistance between its wiper and ground at a knob position.
+double pot_fraction(pot_taper taper, double position) noexcept;
+
+/// The parts of one JFET stage: the whole file for a single stage, one `[[stage]]` of a chain.
+struct stage_parts {
+  std::string label;          ///< a chain stage's `name` ("input buffer"); empty: "stage N"
   topology topo{topology::common_source};
   polarity pol{polarity::n};
-  double temperature_k{default_temperature_k};
-  supply_part supply;
   jfet_params jfet;           ///< in real signs (vp > 0 for p-channel)
   jfet_ratings ratings;
   std::optional<device_class> jfet_class;  ///< when the file names `class`: its ranges (n-channel signs)
-  double signal_impedance_ohm{0};  ///< generator series resistance; 0 = ideal source
   gate_part gate;
   double drain_resistor_ohm{0};    ///< 0 = drain straight to the supply (source follower)
+  double drain_shunt_cap_f{0};     ///< across the drain resistor (a treble cut); 0 = none
   source_part source;
   output_part output;
+  rail_part rail;                  ///< chains only
+  std::vector<between_part> between;  ///< chains only, stages after the first: from the previous stage's output
 };
+
+/// A design as read from a stage file: one JFET stage, or a chain of up to six. Its own
+/// stage_parts are the first (or only) stage; `later` holds the stages after it. The supply,
+/// the signal and the temperature are shared by the whole chain; the load is the last
+/// stage's `output.load`.
+struct stage : stage_parts {
+  std::string name;
+  std::string file;           ///< the file it was read from, for messages; empty for a stage built in code
+  double temperature_k{default_temperature_k};
+  supply_part supply;
+  double signal_impedance_ohm{0};  ///< generator series resistance; 0 = ideal source
+  std::vector<stage_parts> later;  ///< a chain's second and later stages; empty for a single stage
+
+  int stage_count() const noexcept { return 1 + static_cast<int>(later.size()); }
+  bool is_chain() const noexcept { return !later.empty(); }
+  /// Stage k, counted from 0.
+  const stage_parts& part(int k) const { return k == 0 ? *this : later.at(static_cast<std::size_t>(k - 1)); }
+  stage_parts& part(int k) { return k == 0 ? *this : later.at(static_cast<std::size_t>(k - 1)); }
+  const stage_parts& last() const { return part(stage_count() - 1); }
+  stage_parts& last() { return part(stage_count() - 1); }
+};
+
+/// A chain holds two to six stages.
+inline constexpr int max_chain_stages = 6;
+
+/// The name of a stage's key as the user writes it: "drain.resistor" in a single-stage file,
+/// "stage2.drain.resistor" in a chain (k counted from 0). Shared keys (supply, signal,
+/// output.load) are never prefixed.
+std::string stage_key(const stage& s, int k, std::string_view key);
 
 /// +1 for n-channel, -1 for p-channel: real value = sign * mirrored n-channel value.
 inline double polarity_sign(const stage& s) noexcept { return s.pol == polarity::p ? -1.0 : 1.0; }
 
-/// The resistors that tuning may solve for and a spread varies, as stage-file keys
-/// ("source.resistor").
-std::vector<std::string_view> adjustable_resistor_keys() noexcept;
+/// The resistors that tuning may solve for and a spread varies, as stage-file keys: for a
+/// single stage "source.resistor", ...; for a chain each stage's ("stage2.source.resistor")
+/// and the shared ones ("supply.resistance", "output.load").
+std::vector<std::string> adjustable_resistor_keys(const stage& s);
 /// The field behind an adjustable key, or nullptr when the key is not one.
 double* resistor_field(stage& s, std::string_view key) noexcept;
 

@@ -1,6 +1,7 @@
 #include "model/circuit/stage_file.hpp"
 
 #include <algorithm>
+#include <charconv>
 #include <cstdint>
 #include <optional>
 #include <cerrno>
@@ -18,6 +19,7 @@
 #include "base/toml_depth.hpp"
 #include "base/text.hpp"
 #include "base/units.hpp"
+#include "model/circuit/network.hpp"
 #include "model/device/parameter_ranges.hpp"
 
 namespace pinchoff::model {
@@ -63,11 +65,12 @@ constexpr base::value_bounds supply_volts{0.1, 1000.0, false,
 constexpr base::value_bounds temperature{200.0, 450.0, false,
                                          "JFETs are rated from -55 to 150 degrees C (218 to 423 K)"};
 
-const std::vector<section_spec>& schema() {
+constexpr base::value_bounds knob{0.0, 1.0, false, "a knob's rotation, from fully anticlockwise (0) to fully clockwise (1)"};
+
+// The sections of one stage: the whole file for a single stage, one [[stage]] of a chain.
+const std::vector<section_spec>& stage_schema() {
   namespace r = ranges;
   static const std::vector<section_spec> s{
-      {"supply", {{"volts", unit::volt, rule::any_sign, supply_volts}, {"resistance", unit::ohm, rule::non_negative, optional_resistor},
-                  {"capacitance", unit::farad, rule::non_negative, capacitor}}},
       {"jfet", {{"polarity", unit::none, rule::any_sign}, {"class", unit::none, rule::any_sign},
                 {"idss", unit::ampere, rule::positive, r::idss},
                 {"vp", unit::volt, rule::any_sign, r::vp}, {"beta", unit::none, rule::positive, r::beta},
@@ -76,15 +79,30 @@ const std::vector<section_spec>& schema() {
                 {"cgs", unit::farad, rule::non_negative, r::junction_cap}, {"cgd", unit::farad, rule::non_negative, r::junction_cap},
                 {"vds_max", unit::volt, rule::positive, r::vds_max}, {"pd_max", unit::watt, rule::positive, r::pd_max},
                 {"igf_max", unit::ampere, rule::positive, r::igf_max}}},
-      {"signal", {{"impedance", unit::ohm, rule::non_negative, optional_resistor}}},
       {"gate", {{"coupling_cap", unit::farad, rule::non_negative, capacitor}, {"resistor", unit::ohm, rule::positive, gate_resistor},
                 {"bias_top", unit::ohm, rule::positive, gate_resistor}, {"bias_bottom", unit::ohm, rule::positive, gate_resistor}}},
-      {"drain", {{"resistor", unit::ohm, rule::non_negative, optional_resistor}}},
+      {"drain", {{"resistor", unit::ohm, rule::non_negative, optional_resistor}, {"shunt_cap", unit::farad, rule::non_negative, capacitor}}},
       {"source", {{"unbypassed", unit::ohm, rule::non_negative, optional_resistor}, {"resistor", unit::ohm, rule::positive, resistor},
                   {"bypass_cap", unit::farad, rule::non_negative, capacitor}}},
       {"output", {{"coupling_cap", unit::farad, rule::non_negative, capacitor}, {"load", unit::ohm, rule::positive, resistor}}},
+      {"rail", {{"resistance", unit::ohm, rule::positive, resistor}, {"capacitance", unit::farad, rule::non_negative, capacitor}}},
   };
   return s;
+}
+
+// The sections the whole design shares: a single stage's file also holds them at the top.
+const std::vector<section_spec>& shared_schema() {
+  static const std::vector<section_spec> s{
+      {"supply", {{"volts", unit::volt, rule::any_sign, supply_volts}, {"resistance", unit::ohm, rule::non_negative, optional_resistor},
+                  {"capacitance", unit::farad, rule::non_negative, capacitor}}},
+      {"signal", {{"impedance", unit::ohm, rule::non_negative, optional_resistor}}},
+  };
+  return s;
+}
+
+const section_spec* find_section(const std::vector<section_spec>& schema, std::string_view name) {
+  const auto it = std::find_if(schema.begin(), schema.end(), [&](const section_spec& s) { return s.name == name; });
+  return it == schema.end() ? nullptr : &*it;
 }
 
 constexpr std::array<std::string_view, 3> top_scalars{"name", "topology", "temperature"};
@@ -101,13 +119,6 @@ class reader {
     throw input_error(os.str());
   }
   [[noreturn]] void fail_file(const std::string& msg) const { throw input_error(std::string(source_) + ": " + msg); }
-
-  /// Points at a section's header when the section exists, else at the file.
-  [[noreturn]] void fail_section(const toml::table& root, std::string_view section, const std::string& msg) const {
-    if (const toml::node* n = root.get(section); n != nullptr && n->source().begin.line != 0)
-      fail_at(n->source(), std::string(section), msg);
-    fail_file(msg);
-  }
 
   double number(const toml::node& node, const std::string& key, const key_spec& spec) const {
     double v = 0.0;
@@ -165,21 +176,303 @@ std::string unknown_key_message(std::string_view key, std::string_view where, st
   return m;
 }
 
-void apply_override(toml::table& root, const stage_override& o) {
-  if (o.section.empty()) {
-    root.insert_or_assign(o.key, o.value);
+void set_in(toml::table& table, const stage_override& o, const std::string& shown) {
+  // "between.N.KEY": a key of the N-th element of a chain stage's between (a pot's position).
+  if (o.section == "between") {
+    const std::size_t dot = o.key.find('.');
+    std::size_t n = 0;
+    const char* end = o.key.data() + (dot == std::string::npos ? o.key.size() : dot);
+    const auto [ptr, ec] = std::from_chars(o.key.data(), end, n);
+    if (dot == std::string::npos || ec != std::errc{} || ptr != end || dot + 1 >= o.key.size())
+      throw setting_error(shown, "name an element of between by its place and a key, as between.1.position");
+    toml::array* arr = table.get_as<toml::array>("between");
+    if (arr == nullptr || n < 1 || n > arr->size())
+      throw setting_error(shown, "there is no element " + std::to_string(n) + " in this stage's between (it has " +
+                                     std::to_string(arr == nullptr ? 0 : arr->size()) + ")");
+    toml::table* e = arr->get_as<toml::table>(n - 1);
+    if (e == nullptr) throw setting_error(shown, "element " + std::to_string(n) + " of between is not a table");
+    e->insert_or_assign(o.key.substr(dot + 1), o.value);
     return;
   }
-  toml::node* sec = root.get(o.section);
-  if (sec == nullptr) {
-    root.insert_or_assign(o.section, toml::table{});
-    sec = root.get(o.section);
+  if (o.section.empty()) {
+    table.insert_or_assign(o.key, o.value);
+    return;
   }
-  if (!sec->is_table()) throw setting_error(o.section + "." + o.key, "'" + o.section + "' is not a section");
+  toml::node* sec = table.get(o.section);
+  if (sec == nullptr) {
+    table.insert_or_assign(o.section, toml::table{});
+    sec = table.get(o.section);
+  }
+  if (!sec->is_table()) throw setting_error(shown, "'" + o.section + "' is not a section");
   sec->as_table()->insert_or_assign(o.key, o.value);
 }
 
+bool is_stage_section(std::string_view name) {
+  return find_section(stage_schema(), name) != nullptr || name == "topology" || name == "between";
+}
+
+void apply_override(toml::table& root, const stage_override& o) {
+  const std::string shown = override_key(o);
+  toml::array* chain = root.get_as<toml::array>("stage");
+  if (chain == nullptr) {
+    if (o.stage > 1) throw setting_error(shown, "the file describes one stage, so there is no stage " + std::to_string(o.stage));
+    set_in(root, o, shown);
+    return;
+  }
+  if (o.stage == 0) {
+    if (!o.section.empty() ? is_stage_section(o.section) : is_stage_section(o.key))
+      throw setting_error(shown, "the file is a chain of " + std::to_string(chain->size()) +
+                                     " stages: name the stage, as stage1." + shown);
+    set_in(root, o, shown);
+    return;
+  }
+  if (o.stage > static_cast<int>(chain->size()))
+    throw setting_error(shown, "the chain has " + std::to_string(chain->size()) + " stages, so there is no stage " +
+                                   std::to_string(o.stage));
+  toml::table* t = chain->get_as<toml::table>(static_cast<std::size_t>(o.stage - 1));
+  if (t == nullptr) throw setting_error(shown, "stage " + std::to_string(o.stage) + " is not a table");
+  set_in(*t, o, shown);
+}
+
+// What one table of a file gives: its values by "section.key", where each was written, and
+// the texts of the jfet's polarity and class.
+struct gathered {
+  std::map<std::string, double> values;
+  std::map<std::string, toml::source_region> where;
+  std::string polarity_text = "n";
+  toml::source_region polarity_where;
+  std::optional<std::string> class_name;
+  toml::source_region class_where;
+
+  bool has(const std::string& k) const { return values.count(k) > 0; }
+  double get(const std::string& k, double dflt = 0.0) const { return has(k) ? values.at(k) : dflt; }
+};
+
+// Reads one section of a table into `g`. `prefix` ("stage2.") is put before every key a
+// message names; `omit` lists keys the section has elsewhere but not here, with the reason.
+void read_section(const reader& rd, const std::string& section, const toml::node& node, const section_spec& spec,
+                  const std::string& prefix, gathered& g,
+                  std::span<const std::pair<std::string_view, std::string_view>> omit = {}) {
+  const std::string shown_section = prefix + section;
+  if (!node.is_table())
+    rd.fail_at(node.source(), shown_section,
+               "'" + shown_section + "' must be a section [" + shown_section + "], got " + reader::type_name(node));
+  std::vector<std::string_view> known;
+  for (const key_spec& ks : spec.keys)
+    if (std::none_of(omit.begin(), omit.end(), [&](const auto& o) { return o.first == ks.name; })) known.push_back(ks.name);
+  for (auto&& [k2, v] : *node.as_table()) {
+    const std::string name(k2.str());
+    const std::string full = section + "." + name;
+    const std::string shown = prefix + full;
+    const toml::source_region at = k2.source().begin.line ? k2.source() : v.source();
+    for (const auto& [key, why] : omit)
+      if (key == name) rd.fail_at(at, shown, shown + ": " + std::string(why));
+    const auto ks = std::find_if(spec.keys.begin(), spec.keys.end(), [&](const key_spec& s) { return s.name == name; });
+    if (ks == spec.keys.end()) rd.fail_at(at, shown, unknown_key_message(name, "[" + shown_section + "]", known));
+    if (full == "jfet.polarity") {
+      g.polarity_text = rd.text(v, shown);
+      g.polarity_where = v.source();
+      continue;
+    }
+    if (full == "jfet.class") {
+      g.class_name = rd.text(v, shown);
+      g.class_where = v.source();
+      continue;
+    }
+    g.values[full] = rd.number(v, shown, *ks);
+    g.where[full] = v.source();
+  }
+}
+
+topology read_topology(const reader& rd, const toml::node& node, const std::string& shown) {
+  const std::string t = rd.text(node, shown);
+  if (t == "common-source") return topology::common_source;
+  if (t == "source-follower") return topology::source_follower;
+  rd.fail_at(node.source(), shown, shown + " must be \"common-source\" or \"source-follower\", not \"" + t + "\"");
+}
+
+// The `between` of a chain stage: an array of inline tables, each one element.
+std::vector<between_part> read_between(const reader& rd, const toml::node& node, const std::string& shown) {
+  const toml::array* arr = node.as_array();
+  if (arr == nullptr)
+    rd.fail_at(node.source(), shown,
+               shown + ": expected an array of parts in signal order, such as [ { series = \"10k\" }, { shunt_cap = "
+                       "\"4n7\" } ], got " + reader::type_name(node));
+  static const std::array<std::string_view, 5> kinds{"series", "series_cap", "shunt", "shunt_cap", "pot"};
+  std::vector<between_part> parts;
+  int index = 0;
+  for (const toml::node& e : *arr) {
+    ++index;
+    const std::string at = shown + "[" + std::to_string(index) + "]";
+    const toml::table* t = e.as_table();
+    if (t == nullptr)
+      rd.fail_at(e.source(), at, at + ": expected one part such as { series = \"10k\" }, got " + reader::type_name(e));
+    between_part p;
+    int found = 0;
+    std::optional<double> position;
+    std::optional<std::string> taper;
+    toml::source_region taper_where;
+    for (auto&& [k, v] : *t) {
+      const std::string name(k.str());
+      const toml::source_region where = k.source().begin.line ? k.source() : v.source();
+      const std::string key = at + "." + name;
+      const auto kind = std::find(kinds.begin(), kinds.end(), name);
+      if (kind != kinds.end()) {
+        ++found;
+        if (found > 1)
+          rd.fail_at(where, key, at + ": one part per table: " + name + " follows another part (write each in its own { })");
+        p.kind = static_cast<between_kind>(kind - kinds.begin());
+        const bool cap = p.kind == between_kind::series_cap || p.kind == between_kind::shunt_cap;
+        p.value = rd.number(v, key, {name, cap ? unit::farad : unit::ohm, rule::positive, cap ? capacitor : resistor});
+      } else if (name == "position") {
+        position = rd.number(v, key, {name, unit::none, rule::non_negative, knob});
+      } else if (name == "taper") {
+        taper = rd.text(v, key);
+        taper_where = v.source();
+      } else {
+        std::vector<std::string_view> known(kinds.begin(), kinds.end());
+        known.push_back("position");
+        known.push_back("taper");
+        rd.fail_at(where, key, unknown_key_message(name, at, known));
+      }
+    }
+    if (found == 0)
+      rd.fail_at(e.source(), at, at + ": give one of series, series_cap, shunt, shunt_cap or pot (with position)");
+    if (p.kind == between_kind::pot) {
+      if (!position) rd.fail_at(e.source(), at, at + ": a pot needs position, its knob's rotation from 0 to 1");
+      p.position = *position;
+      if (taper && *taper == "log") p.taper = pot_taper::log;
+      else if (taper && *taper != "linear")
+        rd.fail_at(taper_where, at + ".taper", at + ".taper must be \"linear\" or \"log\", not \"" + *taper + "\"");
+    } else if (position || taper) {
+      rd.fail_at(e.source(), at, at + ": position and taper belong to a pot");
+    }
+    parts.push_back(p);
+  }
+  return parts;
+}
+
+// The parts of one stage from what its table gave. `table` locates its sections in messages.
+stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g, const std::string& prefix,
+                        std::string_view source_name, const std::filesystem::path& devices_file) {
+  stage_parts st;
+  if (g.polarity_text == "p") st.pol = polarity::p;
+  else if (g.polarity_text != "n")
+    rd.fail_at(g.polarity_where, prefix + "jfet.polarity",
+               prefix + "jfet.polarity must be \"n\" or \"p\", not \"" + g.polarity_text + "\"");
+  const double sign = st.pol == polarity::p ? -1.0 : 1.0;
+  const char* chan = st.pol == polarity::p ? "a p-channel" : "an n-channel";
+  auto fail_section = [&](std::string_view section, const std::string& msg) {
+    if (const toml::node* n = table.get(section); n != nullptr && n->source().begin.line != 0)
+      rd.fail_at(n->source(), prefix + std::string(section), msg);
+    if (table.source().begin.line != 0) rd.fail_at(table.source(), prefix + std::string(section), msg);
+    rd.fail_file(msg);
+  };
+
+  // A named class fills in whatever the file does not give (values given win).
+  if (g.class_name && g.class_name->find_first_not_of(" \t") == std::string::npos)
+    rd.fail_at(g.class_where, prefix + "jfet.class",
+               prefix + "jfet.class is empty: give the name of a device class, such as \"general-purpose\" (README \"Stage "
+                        "file\" lists them), or leave the key out");
+  if (g.class_name) {
+    try {
+      st.jfet_class = find_device_class(*g.class_name, device_file_for(std::filesystem::path(std::string(source_name)), devices_file));
+    } catch (const input_error& e) {
+      rd.fail_at(g.class_where, prefix + "jfet.class", e.what());
+    }
+    const device_class& c = *st.jfet_class;
+    if (!g.has("jfet.beta") && !g.has("jfet.vto")) {
+      if (!g.has("jfet.idss")) g.values["jfet.idss"] = c.typical_idss_a;
+      if (!g.has("jfet.vp")) {
+        g.values["jfet.vp"] = sign * c.typical_vp_v;
+        g.where["jfet.vp"] = g.class_where;
+      }
+    }
+    if (!g.has("jfet.lambda")) g.values["jfet.lambda"] = c.lambda_per_v;
+    if (!g.has("jfet.is")) g.values["jfet.is"] = c.is_a;
+    if (!g.has("jfet.n")) g.values["jfet.n"] = c.n;
+    if (!g.has("jfet.cgs")) g.values["jfet.cgs"] = c.cgs_f;
+    if (!g.has("jfet.cgd")) g.values["jfet.cgd"] = c.cgd_f;
+  }
+
+  // Device: idss + vp, or beta + vto.
+  const bool form_a = g.has("jfet.idss") || g.has("jfet.vp");
+  const bool form_b = g.has("jfet.beta") || g.has("jfet.vto");
+  if (!table.contains("jfet")) {
+    if (prefix.empty()) rd.fail_file("the stage file needs a [jfet] section with idss and vp");
+    fail_section("jfet", prefix + "jfet: each stage needs a [stage.jfet] section with idss and vp (or a class)");
+  }
+  const std::string jfet_section = prefix.empty() ? "[jfet]" : prefix + "jfet";
+  if (form_a && form_b) fail_section("jfet", jfet_section + ": give either idss and vp, or beta and vto, not both");
+  const std::string vkey = form_b ? "jfet.vto" : "jfet.vp";
+  if (form_b) {
+    if (!g.has("jfet.beta") || !g.has("jfet.vto")) fail_section("jfet", jfet_section + " needs both beta and vto");
+  } else if (!g.has("jfet.idss") || !g.has("jfet.vp")) {
+    fail_section("jfet", jfet_section + " needs idss and vp (or beta and vto, or a class)");
+  }
+  const double vp = g.get(vkey);
+  if (!(sign * vp < 0))
+    rd.fail_at(g.where[vkey], prefix + vkey,
+               prefix + vkey + " must be " + (sign > 0 ? "negative" : "positive") + " for " + chan + " part" +
+                   (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
+  st.jfet.vp_v = vp;
+  st.jfet.idss_a = form_b ? g.get("jfet.beta") * vp * vp : g.get("jfet.idss");
+  if (form_b) {
+    const std::string m = base::bounds_refusal("the IDSS it gives (beta vto^2)", st.jfet.idss_a, ranges::idss, unit::ampere);
+    if (!m.empty()) rd.fail_at(g.where["jfet.beta"], prefix + "jfet.beta", prefix + "jfet.beta: " + m);
+  }
+  st.jfet.lambda_per_v = g.get("jfet.lambda", 0.0);
+  st.jfet.is_a = g.get("jfet.is", 1e-14);
+  st.jfet.n = g.get("jfet.n", 1.0);
+  st.jfet.cgs_f = g.get("jfet.cgs");
+  st.jfet.cgd_f = g.get("jfet.cgd");
+  if (g.has("jfet.vds_max")) st.ratings.vds_max_v = g.get("jfet.vds_max");
+  if (g.has("jfet.pd_max")) st.ratings.pd_max_w = g.get("jfet.pd_max");
+  if (g.has("jfet.igf_max")) st.ratings.igf_max_a = g.get("jfet.igf_max");
+
+  st.gate.coupling_cap_f = g.get("gate.coupling_cap");
+  st.gate.resistor_ohm = g.get("gate.resistor");
+  st.gate.bias_top_ohm = g.get("gate.bias_top");
+  st.gate.bias_bottom_ohm = g.get("gate.bias_bottom");
+  st.drain_resistor_ohm = g.get("drain.resistor");
+  st.drain_shunt_cap_f = g.get("drain.shunt_cap");
+  st.source.unbypassed_ohm = g.get("source.unbypassed");
+  st.source.resistor_ohm = g.get("source.resistor");
+  st.source.bypass_cap_f = g.get("source.bypass_cap");
+  st.output.coupling_cap_f = g.get("output.coupling_cap");
+  st.output.load_ohm = g.get("output.load");
+  st.rail.resistance_ohm = g.get("rail.resistance");
+  st.rail.capacitance_f = g.get("rail.capacitance");
+  return st;
+}
+
+// Every node of the network reaches ground, the supply or the generator through resistors
+// and JFET channels: otherwise its DC voltage is undefined (a gate behind capacitors alone, a
+// node between two coupling capacitors). Returns the name of the first node that does not.
+std::string floating_node(const network& net) {
+  std::vector<int> parent(static_cast<std::size_t>(net.node_count));
+  for (int n = 0; n < net.node_count; ++n) parent[static_cast<std::size_t>(n)] = n;
+  auto find = [&](int n) {
+    while (parent[static_cast<std::size_t>(n)] != n) n = parent[static_cast<std::size_t>(n)] = parent[static_cast<std::size_t>(parent[static_cast<std::size_t>(n)])];
+    return n;
+  };
+  auto join = [&](int a, int b) { parent[static_cast<std::size_t>(find(a))] = find(b); };
+  join(net.supply_node, 0);
+  join(net.generator_node, 0);
+  for (const net_resistor& r : net.resistors) join(r.a, r.b);
+  for (const net_jfet& q : net.jfets) join(q.drain, q.source);
+  for (int n = 1; n < net.node_count; ++n)
+    if (find(n) != find(0)) return net.node_names[static_cast<std::size_t>(n)];
+  return {};
+}
+
 }  // namespace
+
+std::string override_key(const stage_override& o) {
+  std::string k = o.stage > 0 ? "stage" + std::to_string(o.stage) + "." : std::string();
+  if (!o.section.empty()) k += o.section + ".";
+  return k + o.key;
+}
 
 stage parse_stage(std::string_view text, std::string_view source_name, std::span<const stage_override> overrides,
                   const std::filesystem::path& devices_file) {
@@ -195,150 +488,144 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   }
   for (const stage_override& o : overrides) apply_override(root, o);
 
-  std::vector<std::string_view> top_known(top_scalars.begin(), top_scalars.end());
-  for (const section_spec& s : schema()) top_known.push_back(s.name);
+  const toml::node* chain_node = root.get("stage");
+  const bool chain = chain_node != nullptr;
+
+  // Top level: the shared sections, plus (single stage) the stage's own.
+  std::vector<std::string_view> top_known{"name", "temperature"};
+  for (const section_spec& s : shared_schema()) top_known.push_back(s.name);
+  if (chain) {
+    top_known.push_back("output");
+    top_known.push_back("stage");
+  } else {
+    top_known.push_back("topology");
+    for (const section_spec& s : stage_schema())
+      if (s.name != "rail") top_known.push_back(s.name);
+  }
 
   stage st;
-  std::map<std::string, double> values;              // "section.key" -> value
-  std::map<std::string, toml::source_region> where;  // for later messages
-  std::string polarity_text = "n";
-  toml::source_region polarity_where;
-  std::optional<std::string> class_name;
-  toml::source_region class_where;
-
+  gathered top;
+  std::optional<topology> top_topology;
   for (auto&& [k, node] : root) {
     const std::string key(k.str());
+    const toml::source_region at = k.source().begin.line ? k.source() : node.source();
     if (key == "name") {
       st.name = rd.text(node, key);
-      continue;
-    }
-    if (key == "topology") {
-      const std::string t = rd.text(node, key);
-      if (t == "common-source") st.topo = topology::common_source;
-      else if (t == "source-follower") st.topo = topology::source_follower;
-      else rd.fail_at(node.source(), key, "topology must be \"common-source\" or \"source-follower\", not \"" + t + "\"");
       continue;
     }
     if (key == "temperature") {
       st.temperature_k = rd.number(node, key, {"temperature", unit::kelvin, rule::positive, temperature});
       continue;
     }
-    const auto sec = std::find_if(schema().begin(), schema().end(), [&](const section_spec& s) { return s.name == key; });
-    if (sec == schema().end()) {
-      const toml::source_region at = k.source().begin.line ? k.source() : node.source();
-      rd.fail_at(at, key, unknown_key_message(key, "the stage file", top_known));
+    if (key == "stage") continue;
+    if (chain && (is_stage_section(key) && key != "output"))
+      rd.fail_at(at, key,
+                 "'" + key + "' at the top of a chain file: a file with [[stage]] tables keeps each stage's " +
+                     (key == "topology" || key == "between" ? "'" + key + "'" : "[" + key + "]") +
+                     " inside its [[stage]] (as [stage." + key + "]), and only name, temperature, [supply], [signal] "
+                     "and [output] at the top");
+    if (key == "topology") {
+      top_topology = read_topology(rd, node, key);
+      continue;
     }
-    if (!node.is_table()) rd.fail_at(node.source(), key, "'" + key + "' must be a section [" + key + "], got " + reader::type_name(node));
-    std::vector<std::string_view> known;
-    for (const key_spec& ks : sec->keys) known.push_back(ks.name);
-    for (auto&& [k2, v] : *node.as_table()) {
-      const std::string name(k2.str());
-      const std::string full = key + "." + name;
-      const auto spec = std::find_if(sec->keys.begin(), sec->keys.end(), [&](const key_spec& s) { return s.name == name; });
-      if (spec == sec->keys.end()) {
-        const toml::source_region at = k2.source().begin.line ? k2.source() : v.source();
-        rd.fail_at(at, full, unknown_key_message(name, "[" + key + "]", known));
-      }
-      if (full == "jfet.polarity") {
-        polarity_text = rd.text(v, full);
-        polarity_where = v.source();
-        continue;
-      }
-      if (full == "jfet.class") {
-        class_name = rd.text(v, full);
-        class_where = v.source();
-        continue;
-      }
-      values[full] = rd.number(v, full, *spec);
-      where[full] = v.source();
+    if (!chain && (key == "rail" || key == "between"))
+      rd.fail_at(at, key, "'" + key + "' belongs to a stage of a chain ([[stage]]); a single stage is fed by [supply]" +
+                              std::string(key == "between" ? " and driven by [signal]" : ""));
+    const section_spec* sec = find_section(shared_schema(), key);
+    if (sec == nullptr) sec = find_section(stage_schema(), key);
+    if (sec == nullptr) rd.fail_at(at, key, unknown_key_message(key, chain ? "a chain file" : "the stage file", top_known));
+    if (chain && key == "output") {
+      static constexpr std::pair<std::string_view, std::string_view> omit[]{
+          {"coupling_cap", "the top-level [output] holds only the chain's load; a stage's coupling capacitor goes in its "
+                           "[stage.output]"}};
+      read_section(rd, key, node, *sec, "", top, omit);
+    } else {
+      read_section(rd, key, node, *sec, "", top);
     }
   }
 
-  auto has = [&](const char* k) { return values.count(k) > 0; };
-  auto get = [&](const char* k, double dflt = 0.0) { return has(k) ? values.at(k) : dflt; };
-
-  if (polarity_text == "p") st.pol = polarity::p;
-  else if (polarity_text != "n") rd.fail_at(polarity_where, "jfet.polarity", "jfet.polarity must be \"n\" or \"p\", not \"" + polarity_text + "\"");
-  const double sign = st.pol == polarity::p ? -1.0 : 1.0;
-  const char* chan = st.pol == polarity::p ? "a p-channel" : "an n-channel";
-
-  if (!root.contains("supply") || !has("supply.volts")) rd.fail_section(root, "supply", "[supply] needs volts (the supply voltage)");
-  st.supply.volts_v = get("supply.volts");
-  if (!(sign * st.supply.volts_v > 0))
-    rd.fail_at(where["supply.volts"], "supply.volts",
-               std::string("supply.volts must be ") + (sign > 0 ? "positive" : "negative") + " for " + chan +
-                   " stage" + (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
-  st.supply.resistance_ohm = get("supply.resistance");
-  st.supply.capacitance_f = get("supply.capacitance");
-
-  // A named class fills in whatever the file does not give (values given win).
-  if (class_name && class_name->find_first_not_of(" \t") == std::string::npos)
-    rd.fail_at(class_where, "jfet.class",
-               "jfet.class is empty: give the name of a device class, such as \"general-purpose\" (README \"Stage "
-               "file\" lists them), or leave the key out");
-  if (class_name) {
-    try {
-      st.jfet_class = find_device_class(*class_name, device_file_for(std::filesystem::path(std::string(source_name)), devices_file));
-    } catch (const input_error& e) {
-      rd.fail_at(class_where, "jfet.class", e.what());
+  // Shared: supply, signal, temperature.
+  auto supply_sign_check = [&](polarity pol) {
+    const double sign = pol == polarity::p ? -1.0 : 1.0;
+    const char* chan = pol == polarity::p ? "a p-channel" : "an n-channel";
+    if (!root.contains("supply") || !top.has("supply.volts")) {
+      if (const toml::node* n = root.get("supply"); n != nullptr && n->source().begin.line != 0)
+        rd.fail_at(n->source(), "supply", "[supply] needs volts (the supply voltage)");
+      rd.fail_file("[supply] needs volts (the supply voltage)");
     }
-    const device_class& c = *st.jfet_class;
-    if (!has("jfet.beta") && !has("jfet.vto")) {
-      if (!has("jfet.idss")) values["jfet.idss"] = c.typical_idss_a;
-      if (!has("jfet.vp")) {
-        values["jfet.vp"] = sign * c.typical_vp_v;
-        where["jfet.vp"] = class_where;
+    st.supply.volts_v = top.get("supply.volts");
+    if (!(sign * st.supply.volts_v > 0))
+      rd.fail_at(top.where["supply.volts"], "supply.volts",
+                 std::string("supply.volts must be ") + (sign > 0 ? "positive" : "negative") + " for " + chan +
+                     (chain ? " chain" : " stage") + (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
+  };
+
+  if (!chain) {
+    static_cast<stage_parts&>(st) = build_parts(rd, root, top, "", source_name, devices_file);
+    if (top_topology) st.topo = *top_topology;
+    supply_sign_check(st.pol);
+  } else {
+    const toml::array* arr = chain_node->as_array();
+    if (arr == nullptr || !arr->is_array_of_tables())
+      rd.fail_at(chain_node->source(), "stage", "'stage' must be an array of tables, written [[stage]] before each stage");
+    if (arr->size() < 2)
+      rd.fail_at(chain_node->source(), "stage",
+                 "a chain needs at least two [[stage]] tables; for one stage write its sections at the top of the file");
+    if (arr->size() > static_cast<std::size_t>(max_chain_stages)) {
+      const toml::node& extra = *arr->get(static_cast<std::size_t>(max_chain_stages));
+      rd.fail_at(extra.source(), "stage", "a chain holds at most " + std::to_string(max_chain_stages) + " stages, this one " +
+                                             std::to_string(arr->size()));
+    }
+    for (std::size_t i = 0; i < arr->size(); ++i) {
+      const toml::table& t = *arr->get_as<toml::table>(i);
+      const std::string prefix = "stage" + std::to_string(i + 1) + ".";
+      gathered g;
+      std::optional<topology> topo;
+      std::vector<between_part> between;
+      std::string label;
+      std::vector<std::string_view> known{"name", "topology", "between"};
+      for (const section_spec& s : stage_schema()) known.push_back(s.name);
+      for (auto&& [k, node] : t) {
+        const std::string key(k.str());
+        const std::string shown = prefix + key;
+        const toml::source_region at = k.source().begin.line ? k.source() : node.source();
+        if (key == "name") {
+          label = rd.text(node, shown);
+        } else if (key == "topology") {
+          topo = read_topology(rd, node, shown);
+        } else if (key == "between") {
+          if (i == 0)
+            rd.fail_at(at, shown, shown + ": the first stage has no 'between' (nothing comes before it); the source's "
+                                          "own parts are in [signal]");
+          between = read_between(rd, node, shown);
+        } else if (const section_spec* sec = find_section(stage_schema(), key); sec != nullptr) {
+          if (key == "output") {
+            static constexpr std::pair<std::string_view, std::string_view> omit[]{
+                {"load", "the chain's load is the top-level [output] load, across the last stage's output"}};
+            read_section(rd, key, node, *sec, prefix, g, omit);
+          } else {
+            read_section(rd, key, node, *sec, prefix, g);
+          }
+        } else if (find_section(shared_schema(), key) != nullptr || key == "temperature") {
+          rd.fail_at(at, shown, shown + ": " + (key == "temperature" ? "'temperature'" : "[" + key + "]") +
+                                    " is shared by the whole chain: write it once at the top of the file");
+        } else {
+          rd.fail_at(at, shown, unknown_key_message(key, "[[stage]] " + std::to_string(i + 1), known));
+        }
       }
+      stage_parts p = build_parts(rd, t, g, prefix, source_name, devices_file);
+      if (topo) p.topo = *topo;
+      p.between = std::move(between);
+      p.label = label;
+      if (i == 0) static_cast<stage_parts&>(st) = std::move(p);
+      else st.later.push_back(std::move(p));
     }
-    if (!has("jfet.lambda")) values["jfet.lambda"] = c.lambda_per_v;
-    if (!has("jfet.is")) values["jfet.is"] = c.is_a;
-    if (!has("jfet.n")) values["jfet.n"] = c.n;
-    if (!has("jfet.cgs")) values["jfet.cgs"] = c.cgs_f;
-    if (!has("jfet.cgd")) values["jfet.cgd"] = c.cgd_f;
+    st.last().output.load_ohm = top.get("output.load");
+    supply_sign_check(st.pol);
   }
-
-  // Device: idss + vp, or beta + vto.
-  const bool form_a = has("jfet.idss") || has("jfet.vp");
-  const bool form_b = has("jfet.beta") || has("jfet.vto");
-  if (!root.contains("jfet")) rd.fail_file("the stage file needs a [jfet] section with idss and vp");
-  if (form_a && form_b) rd.fail_section(root, "jfet", "[jfet]: give either idss and vp, or beta and vto, not both");
-  const char* vkey = form_b ? "jfet.vto" : "jfet.vp";
-  if (form_b) {
-    if (!has("jfet.beta") || !has("jfet.vto")) rd.fail_section(root, "jfet", "[jfet] needs both beta and vto");
-  } else if (!has("jfet.idss") || !has("jfet.vp")) {
-    rd.fail_section(root, "jfet", "[jfet] needs idss and vp (or beta and vto, or a class)");
-  }
-  const double vp = get(vkey);
-  if (!(sign * vp < 0))
-    rd.fail_at(where[vkey], vkey,
-               std::string(vkey) + " must be " + (sign > 0 ? "negative" : "positive") + " for " + chan + " part" +
-                   (sign > 0 ? " (for a p-channel part set jfet.polarity = \"p\")" : ""));
-  st.jfet.vp_v = vp;
-  st.jfet.idss_a = form_b ? get("jfet.beta") * vp * vp : get("jfet.idss");
-  if (form_b) {
-    const std::string m = base::bounds_refusal("the IDSS it gives (beta vto^2)", st.jfet.idss_a, ranges::idss, unit::ampere);
-    if (!m.empty()) rd.fail_at(where["jfet.beta"], "jfet.beta", "jfet.beta: " + m);
-  }
-  st.jfet.lambda_per_v = get("jfet.lambda", 0.0);
-  st.jfet.is_a = get("jfet.is", 1e-14);
-  st.jfet.n = get("jfet.n", 1.0);
-  st.jfet.cgs_f = get("jfet.cgs");
-  st.jfet.cgd_f = get("jfet.cgd");
-  if (has("jfet.vds_max")) st.ratings.vds_max_v = get("jfet.vds_max");
-  if (has("jfet.pd_max")) st.ratings.pd_max_w = get("jfet.pd_max");
-  if (has("jfet.igf_max")) st.ratings.igf_max_a = get("jfet.igf_max");
-
-  st.signal_impedance_ohm = get("signal.impedance");
-  st.gate.coupling_cap_f = get("gate.coupling_cap");
-  st.gate.resistor_ohm = get("gate.resistor");
-  st.gate.bias_top_ohm = get("gate.bias_top");
-  st.gate.bias_bottom_ohm = get("gate.bias_bottom");
-  st.drain_resistor_ohm = get("drain.resistor");
-  st.source.unbypassed_ohm = get("source.unbypassed");
-  st.source.resistor_ohm = get("source.resistor");
-  st.source.bypass_cap_f = get("source.bypass_cap");
-  st.output.coupling_cap_f = get("output.coupling_cap");
-  st.output.load_ohm = get("output.load");
+  st.supply.resistance_ohm = top.get("supply.resistance");
+  st.supply.capacitance_f = top.get("supply.capacitance");
+  st.signal_impedance_ohm = top.get("signal.impedance");
   if (st.name.empty()) st.name = std::string(source_name);
   st.file = std::string(source_name);
 
@@ -346,6 +633,12 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
     validate(st);
   } catch (const input_error& e) {
     rd.fail_file(e.what());
+  }
+  if (st.is_chain()) {
+    const std::string node = floating_node(build_network(st));
+    if (!node.empty())
+      rd.fail_file("the " + node + " node has no DC path to ground or the supply (only capacitors reach it): give it a "
+                   "resistor, such as a gate resistor or a shunt in 'between'");
   }
   return st;
 }

@@ -15,13 +15,18 @@
 namespace pinchoff::model {
 
 /// One value to set before the file is read: `key` in `section` ("drain", "resistor"), or a
-/// top-level key when `section` is empty ("name"). The value is text, read and checked as
-/// the same value in the file would be ("4.7k", "4k7", "100n").
+/// top-level key when `section` is empty ("name"); in a chain, of stage `stage` (counted
+/// from 1; 0 = the file's top level). The value is text, read and checked as the same value
+/// in the file would be ("4.7k", "4k7", "100n").
 struct stage_override {
   std::string section;
   std::string key;
   std::string value;
+  int stage{0};
 };
+
+/// The key an override names, as the user wrote it: "stage2.drain.resistor", "drain.resistor".
+std::string override_key(const stage_override& o);
 
 /// The most a stage file may hold. The presets are about a kilobyte with their comments; a
 /// megabyte leaves room for any amount of commentary and refuses a wrong file (a recording,

@@ -3,6 +3,8 @@
 // --force, and stale temporaries of killed runs cleaned without touching a live run's.
 #include <doctest/doctest.h>
 
+#include <fcntl.h>
+#include <pthread.h>
 #include <signal.h>
 #include <sys/stat.h>
 #include <sys/types.h>
@@ -10,6 +12,7 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <cstdio>
 #include <atomic>
 #include <chrono>
 #include <filesystem>
@@ -322,4 +325,61 @@ TEST_CASE("the writer refuses what it cannot write, naming the target") {
       CHECK(std::string(e.what()).find(r.target.string()) != std::string::npos);
     }
   }
+}
+
+namespace {
+// What the SIGTERM handler below saw: signals, and signals that found half the set in place.
+constexpr int held_files = 400;  // the handler looks for f000.txt and f399.txt
+std::atomic<int> seen_partial{0}, seen_signals{0};
+int held_dir = -1;
+void count_placed(int) {
+  // The set is placed in the order it was made: half a set has its first file and not its last.
+  struct stat st {};
+  const bool first = ::fstatat(held_dir, "f000.txt", &st, AT_SYMLINK_NOFOLLOW) == 0;
+  const bool last = ::fstatat(held_dir, "f399.txt", &st, AT_SYMLINK_NOFOLLOW) == 0;
+  if (first != last) seen_partial.fetch_add(1);
+  seen_signals.fetch_add(1);
+}
+}  // namespace
+
+TEST_CASE("a stop signal during a commit waits until the set is whole") {
+  // Ctrl-C or SIGTERM between two placements would leave half a set; the commit holds them
+  // (pending) until the set is placed, and gives back the signal mask it found.
+  scratch_dir dir;
+  held_dir = ::open(dir.path.c_str(), O_RDONLY | O_DIRECTORY);
+  REQUIRE(held_dir >= 0);
+  struct sigaction act {}, old {};
+  act.sa_handler = count_placed;
+  sigemptyset(&act.sa_mask);
+  REQUIRE(::sigaction(SIGTERM, &act, &old) == 0);
+  sigset_t before, after;
+  ::pthread_sigmask(SIG_SETMASK, nullptr, &before);
+
+  output_set set;
+  for (int i = 0; i < held_files; ++i) {
+    char name[32];
+    std::snprintf(name, sizeof name, "f%03d.txt", i);
+    output_file f = output_file::create(dir.path / name, existing::refuse);
+    f.write("x");
+    set.add(std::move(f));
+  }
+  const pthread_t main_thread = ::pthread_self();
+  std::atomic<bool> stop{false};
+  std::thread sender([&] {
+    while (!stop.load()) {
+      ::pthread_kill(main_thread, SIGTERM);
+      std::this_thread::sleep_for(std::chrono::microseconds(20));
+    }
+  });
+  set.commit();
+  stop = true;
+  sender.join();
+  ::pthread_sigmask(SIG_SETMASK, nullptr, &after);
+  ::sigaction(SIGTERM, &old, nullptr);
+  ::close(held_dir);
+  CHECK(seen_signals.load() > 0);
+  CHECK(seen_partial.load() == 0);
+  CHECK(sigismember(&after, SIGTERM) == sigismember(&before, SIGTERM));
+  CHECK(sigismember(&after, SIGINT) == sigismember(&before, SIGINT));
+  CHECK(names_in(dir.path).size() == static_cast<std::size_t>(held_files));
 }

@@ -280,9 +280,3 @@ TEST_CASE("two cascaded stages: the tracked monodromy equals finite differences 
     CHECK(eng.stats().failed == 0);
   }
 }
-
-TEST_CASE("the one-stage analyses refuse a network of more than one JFET") {
-  const model::network net = test::two_stage_network();
-  const model::operating_point op = model::solve_operating_point(net);
-  CHECK_THROWS_AS(model::analyse_small_signal(net, op), internal_error);
-}
