@@ -251,33 +251,34 @@ void update_after_portable(const double* __restrict w, int rows, const double* _
 }
 
 #if PINCHOFF_DK_GENERAL_WIDE
-// AVX2 + FMA: rows padded to a multiple of 16, four packets of 4 rows held in registers
-// while the columns pass (so that four independent fused multiply-adds are in flight).
+// AVX2 + FMA: rows padded to a multiple of 4; blocks of four packets (16 rows) held in
+// registers while the columns pass (four independent fused multiply-adds in flight), then
+// the last one to three packets the same way.
+template <int P>
+__attribute__((target("avx2,fma"), always_inline)) inline void update_block(const double* __restrict w, int rows,
+                                                                            const double* __restrict start,
+                                                                            const double* __restrict x, int cols,
+                                                                            double* __restrict o) noexcept {
+  __m256d a[P];
+  for (int q = 0; q < P; ++q) a[q] = start ? _mm256_load_pd(start + 4 * q) : _mm256_setzero_pd();
+  const double* wc = w;
+  for (int c = 0; c < cols; ++c, wc += rows) {
+    const __m256d xc = _mm256_broadcast_sd(x + c);
+    for (int q = 0; q < P; ++q) a[q] = _mm256_fmadd_pd(_mm256_load_pd(wc + 4 * q), xc, a[q]);
+  }
+  for (int q = 0; q < P; ++q) _mm256_store_pd(o + 4 * q, a[q]);
+}
+
 __attribute__((target("avx2,fma"))) void update_wide(const double* __restrict w, int rows,
                                                      const double* __restrict start, const double* __restrict x,
                                                      int cols, double* __restrict o) noexcept {
-  for (int r0 = 0; r0 < rows; r0 += 16) {
-    __m256d a0, a1, a2, a3;
-    if (start) {
-      a0 = _mm256_load_pd(start + r0);
-      a1 = _mm256_load_pd(start + r0 + 4);
-      a2 = _mm256_load_pd(start + r0 + 8);
-      a3 = _mm256_load_pd(start + r0 + 12);
-    } else {
-      a0 = a1 = a2 = a3 = _mm256_setzero_pd();
-    }
-    const double* wc = w + r0;
-    for (int c = 0; c < cols; ++c, wc += rows) {
-      const __m256d xc = _mm256_broadcast_sd(x + c);
-      a0 = _mm256_fmadd_pd(_mm256_load_pd(wc), xc, a0);
-      a1 = _mm256_fmadd_pd(_mm256_load_pd(wc + 4), xc, a1);
-      a2 = _mm256_fmadd_pd(_mm256_load_pd(wc + 8), xc, a2);
-      a3 = _mm256_fmadd_pd(_mm256_load_pd(wc + 12), xc, a3);
-    }
-    _mm256_store_pd(o + r0, a0);
-    _mm256_store_pd(o + r0 + 4, a1);
-    _mm256_store_pd(o + r0 + 8, a2);
-    _mm256_store_pd(o + r0 + 12, a3);
+  int r0 = 0;
+  for (; r0 + 16 <= rows; r0 += 16) update_block<4>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
+  switch ((rows - r0) / 4) {
+    case 3: update_block<3>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
+    case 2: update_block<2>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
+    case 1: update_block<1>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
+    default: break;
   }
 }
 
@@ -312,7 +313,7 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
 
   // Stacked update as for one JFET: the state rows hold the increment x_n - x_{n-1}.
   wide_ = opt_.wide_kernels && wide_available();
-  g.rows = (ns + np + 1 + 15) / 16 * 16;
+  g.rows = (ns + np + 1 + 3) / 4 * 4;
   {
     const Eigen::MatrixXd w = stacked_update(m_, g.rows);
     g.w = detail::aligned_doubles(static_cast<std::size_t>(w.size()));

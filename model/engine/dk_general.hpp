@@ -46,7 +46,7 @@ class general_solver : public dk_solver_base {
     std::vector<detail::port_currents> cur;     // per JFET, at the Newton iterate
     Eigen::MatrixXd f_abs;                      // |F|
     // [A - I, B, C; D A, D B, D C; Do, Eo, Fo], column-major, rows padded with zero rows to
-    // `rows` (a multiple of 16), on 64-byte boundaries.
+    // `rows` (a multiple of 4), on 64-byte boundaries.
     detail::aligned_doubles w;
     detail::aligned_doubles pre, out;           // W's x and u columns times [x; u]; the product
     int rows{0};
