@@ -151,6 +151,53 @@ TEST_CASE("sweep --json follows the contract") {
   CHECK(j["points"][0]["harmonics_dbc"].size() == 9);  // H2..H10
 }
 
+TEST_CASE("sweep --json on a chain gives each stage at each point; a single stage keeps its keys") {
+  // Contract: README, sweep: points[i].stages[k] with output_vpk, thd_percent, harmonics_dbc,
+  // clean; stages[k] with the first drive out of the clean region.
+  const result r = run({"sweep", preset("two-stage-boost-9v.toml"), "--drive", "10mVpk,1Vpk", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  REQUIRE(j["points"].size() == 2);
+  for (const auto& p : j["points"]) {
+    REQUIRE(p["stages"].size() == 2);
+    for (const auto& st : p["stages"]) {
+      for (const char* k : {"name", "output_vpk", "thd_percent", "harmonics_dbc", "clean", "limit", "bias_shift_v"}) {
+        CAPTURE(k);
+        CHECK(st.contains(k));
+      }
+      CHECK(st["harmonics_dbc"].size() == 9);
+    }
+    // The last stage's output is the load.
+    CHECK(p["stages"][1]["output_vpk"].get<double>() == doctest::Approx(p["output_vpk"].get<double>()).epsilon(1e-9));
+    CHECK(p["bias_shift_v"].is_null());  // a chain has one per stage
+  }
+  CHECK(j["points"][0]["stages"][0]["name"] == "input stage");
+  CHECK(j["points"][0]["stages"][0]["clean"] == true);
+  CHECK(j["points"][1]["stages"][1]["clean"] == false);
+  REQUIRE(j["stages"].size() == 2);
+  CHECK(j["stages"][1]["leaves_clean_at_drive_vpk"].get<double>() == doctest::Approx(1.0).epsilon(1e-12));
+  CHECK(j["stages"][1]["limit"].is_string());
+
+  const result one = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "10mVpk", "--json"});
+  REQUIRE(one.status == 0);
+  const nlohmann::json o = nlohmann::json::parse(one.out);
+  CHECK_FALSE(o.contains("stages"));
+  CHECK_FALSE(o["points"][0].contains("stages"));
+  CHECK(o["points"][0]["bias_shift_v"].is_number());
+}
+
+TEST_CASE("sweep on a chain: the text has a table per stage, the CSV columns per stage, the plot a panel per stage") {
+  const result t = run({"sweep", preset("two-stage-boost-9v.toml"), "--drive", "10mVpk,1Vpk"});
+  REQUIRE(t.status == 0);
+  CHECK(t.out.find("at each stage's output") != std::string::npos);
+  CHECK(t.out.find("second stage: first out of its clean region at drive 1.00 Vpk") != std::string::npos);
+  const result c = run({"sweep", preset("two-stage-boost-9v.toml"), "--drive", "10mVpk,1Vpk", "--csv"});
+  REQUIRE(c.status == 0);
+  CHECK(c.out.find(",stage1_output_vpk,stage1_thd_percent,stage1_clean,stage2_output_vpk") != std::string::npos);
+  const result one = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "10mVpk"});
+  CHECK(one.out.find("each stage") == std::string::npos);
+}
+
 TEST_CASE("imd --json reports the products") {
   const result r = run({"imd", preset("bass-booster-9v.toml"), "--json"});
   REQUIRE(r.status == 0);
