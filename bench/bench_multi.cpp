@@ -1,74 +1,159 @@
-// Engine speed with more than one JFET: the DK engine's general path (LU of I - F Jf per
-// Newton iteration) on the two-stage network of the tests, and on two independent copies
-// of a stage against the one-JFET engine on the single stage (the cost of the general
-// path over the closed-form 2x2 one for the same work per device). Ratios only: real-time
-// factor at 8x 48 kHz, speed-up over the nodal reference solver, cost ratio.
+// Engine speed with more than one JFET: the DK engine's general path on chains of two to
+// six stages (fixtures/multi_device_networks.hpp: cascade, with per-stage rail filters and
+// interstage treble cuts and volume dividers) at 0.01 to 10 V peak, against the targets:
+// real-time factor at 8x 48 kHz on one core (two stages 30x, aim 40x; three 20x, aim 30x;
+// four 15x), cost per JFET against the one-JFET path on one stage of the same chain (at
+// most 1.5x), and the speed-up over the nodal reference solver. Then a two-stage chain at
+// 16x, and two independent copies of one stage against the stage alone. Ratios only.
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <numbers>
 #include <vector>
 
-
 #include "bench/benches.hpp"
 #include "bench/engine_timing.hpp"
-#include "model/engine/dk_engine.hpp"
-#include "model/circuit/operating_point.hpp"
-#include "model/engine/transient_reference.hpp"
 #include "fixtures/multi_device_networks.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/engine/dk_engine.hpp"
+#include "model/engine/transient_reference.hpp"
 
 namespace {
 
 using namespace pinchoff;
 using namespace pinchoff::bench;
 
-// Seconds per sample of the engine on the tone, best of 30 blocks of 0.1 s (after one
-// untimed block from the DC point).
-double engine_seconds(model::dk_engine& eng, const std::vector<double>& u, double& sink) {
+std::vector<double> tone_at(double amplitude_v, std::size_t n, double fs_hz) {
+  std::vector<double> u(n);
+  for (std::size_t k = 0; k < n; ++k) u[k] = amplitude_v * std::sin(2.0 * std::numbers::pi * tone_hz * double(k) / fs_hz);
+  return u;
+}
+
+// Seconds per sample of the engine on the tone, best of `repeats` blocks (after one untimed
+// block from the DC point).
+double engine_seconds(model::dk_engine& eng, const std::vector<double>& u, double& sink, int repeats = 10) {
   std::vector<double> y(u.size());
   eng.process(u, y);
-  const double t = best_seconds(30, [&] {
+  const double t = best_seconds(repeats, [&] {
     eng.process(u, y);
     sink += y.back();
   });
   return t / double(u.size());
 }
 
+double reference_seconds(const model::network& net, const model::operating_point& op, const std::vector<double>& u,
+                         std::size_t n, double& sink) {
+  return best_seconds(2, [&] {
+           model::transient_reference ref(net, op, rate_hz);
+           for (std::size_t k = 0; k < n; ++k) sink += ref.process(u[k]);
+         }) /
+         double(n);
+}
+
+const char* verdict(bool met) { return met ? "MET" : "MISSED"; }
+
+// The real-time target (and aim) for a chain of k stages; 0: none set.
+double realtime_target(int k) { return k == 2 ? 30.0 : k == 3 ? 20.0 : k == 4 ? 15.0 : 0.0; }
+double realtime_aim(int k) { return k == 2 ? 40.0 : k == 3 ? 30.0 : 0.0; }
+
 }  // namespace
 
 void bench_multi_device() {
   const std::size_t n_engine = static_cast<std::size_t>(rate_hz / 10);
-  const std::size_t n_reference = 20000;
+  const std::size_t n_reference = 2000;
+  const double drives[] = {0.01, 0.1, 1.0, 10.0};
   double sink = 0.0;
 
-  std::printf("\nDK engine with two JFETs (general path), 384 kHz, %g Hz sine; as above\n\n", tone_hz);
-  std::printf("%-28s %7s %6s %9s %8s %6s %7s %9s\n", "network", "drive", "states", "realtime", "iter/smp", "max",
-              "failed", "speed-up");
-  const model::network cascade = test::two_stage_network();
-  const model::operating_point op = model::solve_operating_point(cascade);
-  for (double drive : {0.01, 0.1, 1.0}) {
-    const std::vector<double> u = tone(drive, n_engine);
-    model::dk_engine eng(cascade, op, rate_hz);
-    const double t_engine = engine_seconds(eng, u, sink);
-    const model::dk_stats st = eng.stats();
-    const double t_ref = best_seconds(3, [&] {
-                           model::transient_reference ref(cascade, op, rate_hz);
-                           for (std::size_t k = 0; k < n_reference; ++k) sink += ref.process(u[k]);
-                         }) /
-                         double(n_reference);
-    char drive_text[32];
-    std::snprintf(drive_text, sizeof drive_text, "%gVpk", drive);
-    std::printf("%-28s %7s %6d %8.1fx %8.3f %6d %7lld %8.1fx\n", "two cascaded stages", drive_text, eng.states(),
-                1.0 / rate_hz / t_engine, st.mean_evaluations(), st.max_evaluations, st.failed, t_ref / t_engine);
+  test::cascade_options opts;
+  opts.rail_filters = true;
+
+  // The one-JFET path on the chain's first stage alone (same parts, rail filter, input and
+  // load): the cost per JFET is judged against it.
+  const model::network one = test::cascade(1, opts);
+  double t_one[4];
+  for (int d = 0; d < 4; ++d) {
+    model::dk_engine e(one, rate_hz);
+    t_one[d] = engine_seconds(e, tone(drives[d], n_engine), sink);
+  }
+
+  std::printf("DK engine on chains of stages (general path), %g kHz, %g Hz sine; per-stage rail filters,\n",
+              rate_hz / 1000.0, tone_hz);
+  std::printf("treble cut and volume divider between stages. per JFET = (chain time / stages) / one-stage time.\n\n");
+  std::printf("%-7s %7s %6s %9s %8s %6s %7s %9s %9s\n", "stages", "drive", "states", "realtime", "iter/smp", "max",
+              "failed", "per JFET", "speed-up");
+  struct size_summary {
+    double worst_rt{1e300}, worst_per_jfet{0}, worst_speedup{1e300}, best_speedup{0};
+    long long failed{0};
+  };
+  size_summary sum[7];
+  const char* loop = "";
+  for (int k = 2; k <= 6; ++k) {
+    const model::network net = test::cascade(k, opts);
+    const model::operating_point op = model::solve_operating_point(net);
+    for (int d = 0; d < 4; ++d) {
+      const std::vector<double> u = tone(drives[d], n_engine);
+      model::dk_engine eng(net, op, rate_hz);
+      loop = eng.sample_loop();
+      const double t = engine_seconds(eng, u, sink);
+      const model::dk_stats st = eng.stats();
+      const double t_ref = reference_seconds(net, op, u, n_reference, sink);
+      const double rt = 1.0 / rate_hz / t, per_jfet = t / k / t_one[d], speedup = t_ref / t;
+      size_summary& s = sum[k];
+      s.worst_rt = std::min(s.worst_rt, rt);
+      s.worst_per_jfet = std::max(s.worst_per_jfet, per_jfet);
+      s.worst_speedup = std::min(s.worst_speedup, speedup);
+      s.best_speedup = std::max(s.best_speedup, speedup);
+      s.failed += st.failed;
+      char drive_text[32];
+      std::snprintf(drive_text, sizeof drive_text, "%gVpk", drives[d]);
+      std::printf("%-7d %7s %6d %8.1fx %8.3f %6d %7lld %8.2fx %8.1fx\n", k, drive_text, eng.states(), rt,
+                  st.mean_evaluations(), st.max_evaluations, st.failed, per_jfet, speedup);
+    }
+  }
+
+  std::printf("\nchains against the targets (worst over 0.01-10 Vpk):\n");
+  std::printf("%-7s %14s %17s %20s %18s\n", "stages", "realtime", "target (aim)", "per JFET (max 1.5x)",
+              "speed-up over ref");
+  for (int k = 2; k <= 6; ++k) {
+    const size_summary& s = sum[k];
+    char target[40] = "-";
+    const double tg = realtime_target(k);
+    if (tg > 0.0) {
+      if (realtime_aim(k) > 0.0)
+        std::snprintf(target, sizeof target, "%gx (%gx) %s", tg, realtime_aim(k), verdict(s.worst_rt >= tg));
+      else
+        std::snprintf(target, sizeof target, "%gx %s", tg, verdict(s.worst_rt >= tg));
+    }
+    char per[40];
+    std::snprintf(per, sizeof per, "%.2fx %s", s.worst_per_jfet, verdict(s.worst_per_jfet <= 1.5));
+    std::printf("%-7d %13.1fx %17s %20s %8.1f-%.1fx\n", k, s.worst_rt, target, per, s.worst_speedup,
+                s.best_speedup);
+  }
+  std::printf("sample loop on this processor: %s\n", loop);
+
+  // The oversampling factor's cost: the two-stage chain at 8x and 16x.
+  std::printf("\ntwo-stage chain at 8x and 16x 48 kHz (realtime at each rate)\n");
+  std::printf("%-7s %11s %11s\n", "drive", "8x", "16x");
+  {
+    const model::network net = test::cascade(2, opts);
+    const model::operating_point op = model::solve_operating_point(net);
+    for (double drive : {0.1, 10.0}) {
+      model::dk_engine e8(net, op, rate_hz), e16(net, op, 2.0 * rate_hz);
+      const double t8 = engine_seconds(e8, tone(drive, n_engine), sink);
+      const double t16 = engine_seconds(e16, tone_at(drive, 2 * n_engine, 2.0 * rate_hz), sink);
+      char drive_text[32];
+      std::snprintf(drive_text, sizeof drive_text, "%gVpk", drive);
+      std::printf("%-7s %10.1fx %10.1fx\n", drive_text, 1.0 / rate_hz / t8, 1.0 / (2.0 * rate_hz) / t16);
+    }
   }
 
   std::printf("\nsame circuit twice: two independent copies (general path) against the single stage (2x2 path)\n");
   std::printf("%-28s %7s %14s %14s %12s\n", "network", "drive", "realtime twin", "realtime one", "cost ratio");
-  const model::network one = test::stiff_booster();
-  const model::network twin = test::twin_of(one, 1);
+  const model::network single = test::stiff_booster();
+  const model::network twin = test::twin_of(single, 1);
   for (double drive : {0.1, 10.0}) {
     const std::vector<double> u = tone(drive, n_engine);
-    model::dk_engine e1(one, rate_hz), e2(twin, rate_hz);
+    model::dk_engine e1(single, rate_hz), e2(twin, rate_hz);
     const double t1 = engine_seconds(e1, u, sink);
     const double t2 = engine_seconds(e2, u, sink);
     char drive_text[32];

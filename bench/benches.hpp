@@ -10,8 +10,9 @@ void bench_oversampler();
 /// Newton evaluations per sample and the speed-up over the nodal reference solver.
 void bench_engine();
 
-/// The DK engine's general path (two JFETs): real-time factor and speed-up over the
-/// reference on two cascaded stages; cost against the one-JFET path on the same circuit twice.
+/// The DK engine's general path on chains of 2-6 stages at 0.01-10 V peak: real-time factor,
+/// cost per JFET against the one-JFET path and speed-up over the reference, each against its
+/// target; a two-stage chain at 8x and 16x; the same circuit twice against it once.
 void bench_multi_device();
 
 /// A 25-point sweep of every preset at 1 kHz (target under 0.5 s) and at 20 Hz (its time as a

@@ -201,8 +201,12 @@ void print_tail(const bias_report& r, std::ostream& out) {
     for (const model::cap_corner& c : r.b.ss.corners)
       ct.add({c.key, format_si(c.farad, "F"), "sees " + format_si(c.r_seen_ohm, "Ω"), format_si(c.corner_hz, "Hz")});
     ct.write(out);
-    out << "  lower -3 dB point, estimate (sum of corners): " << format_si(r.b.ss.low_corner_estimate_hz, "Hz") << '\n';
+    out << "  sum of the corners (the hand estimate of the lower -3 dB point): "
+        << format_si(r.b.ss.low_corner_estimate_hz, "Hz") << '\n';
   }
+  out << "\n-3 dB points of the whole response (every capacitor at once, re the mid-band gain)\n  lower "
+      << (r.b.low_3db_hz ? format_si(*r.b.low_3db_hz, "Hz") : std::string("none (flat to DC)")) << ", upper "
+      << (r.b.high_3db_hz ? format_si(*r.b.high_3db_hz, "Hz") : std::string("none below 1 GHz")) << '\n';
 
   if (r.b.at_hz) {
     out << "\nCapacitors at " << format_si(*r.b.at_hz, "Hz") << '\n';
@@ -295,6 +299,8 @@ void print_json(const bias_report& r, std::ostream& out) {
     for (const auto& c : r.b.ss.corners) corners.push_back(corner_json(c));
     j["corners"] = corners;
     j["input"] = input_json(r);
+    j["low_3db_hz"] = r.b.low_3db_hz ? nlohmann::json(*r.b.low_3db_hz) : nlohmann::json(nullptr);
+    j["high_3db_hz"] = r.b.high_3db_hz ? nlohmann::json(*r.b.high_3db_hz) : nlohmann::json(nullptr);
     j["warnings"] = r.b.warnings;
     out << json_text(j) << '\n';
     return;
@@ -316,6 +322,8 @@ void print_json(const bias_report& r, std::ostream& out) {
   j["corners"] = corners;
   j["low_corner_estimate_hz"] = r.b.ss.low_corner_estimate_hz;
   j["input"] = input_json(r);
+  j["low_3db_hz"] = r.b.low_3db_hz ? nlohmann::json(*r.b.low_3db_hz) : nlohmann::json(nullptr);
+  j["high_3db_hz"] = r.b.high_3db_hz ? nlohmann::json(*r.b.high_3db_hz) : nlohmann::json(nullptr);
   if (r.b.at_hz) {
     nlohmann::json xs = nlohmann::json::array();
     for (const auto& c : r.b.reactances)

@@ -126,8 +126,17 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
   std::vector<std::string> head{""};
   for (std::size_t i = 0; i < r.designs.size(); ++i) head.push_back(std::to_string(i + 1));
   t.add(head);
-  row("VD", [](const df& d) { return format_si(d.at.vd_v, "V", 4); });
-  row("ID", [](const df& d) { return format_si(d.at.id_a, "A", 4); });
+  // A chain's operating point is each of its stages', in signal order.
+  bool chains = false;
+  for (const df& d : r.designs) chains = chains || !d.stages_at.empty();
+  auto each = [](const df& d, auto value) {
+    if (d.stages_at.empty()) return value(d.at);
+    std::string t;
+    for (const model::terminal_point& a : d.stages_at) t += (t.empty() ? "" : " / ") + value(a);
+    return t;
+  };
+  row(chains ? "VD (each stage)" : "VD", [&](const df& d) { return each(d, [](const model::terminal_point& a) { return format_si(a.vd_v, "V", 4); }); });
+  row(chains ? "ID (each stage)" : "ID", [&](const df& d) { return each(d, [](const model::terminal_point& a) { return format_si(a.id_a, "A", 4); }); });
   row("gain, mid-band", [](const df& d) { return fixed(d.gain_midband_db, 2) + " dB"; });
   row("clean swing", [](const df& d) { return format_si(d.clean_swing_vpk, "Vpk"); });
   row("", [](const df& d) { return dbu(d.clean_swing_vpk); });
@@ -147,9 +156,12 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
   row("  at drive", [](const df& d) { return d.thd_1_percent.found ? dbu(d.thd_1_percent.drive_vpk) : std::string(); });
   t.write(out);
 
-  out << "\n  clean swing: largest symmetric output before the JFET leaves its clean region (mid-band,\n"
-         "  quasi-static, as in `bias`); drive: generator sine peak, open circuit; output: the\n"
-         "  fundamental at the load; even/odd: even- over odd-harmonic power (positive: even-dominated);\n"
+  out << (chains ? "\n  clean swing: largest symmetric output at the load before the first JFET to clip leaves\n"
+                  "  its clean region (mid-band, quasi-static, as in `bias`); VD, ID: each stage's, in signal\n"
+                  "  order; drive: generator sine peak, open circuit; output: the\n"
+                : "\n  clean swing: largest symmetric output before the JFET leaves its clean region (mid-band,\n"
+                  "  quasi-static, as in `bias`); drive: generator sine peak, open circuit; output: the\n")
+      << "  fundamental at the load; even/odd: even- over odd-harmonic power (positive: even-dominated);\n"
          "  1 % THD: output where THD first reaches 1 % as the drive rises, at this frequency.\n";
   for (std::size_t i = 0; i < r.designs.size(); ++i)
     if (!r.designs[i].thd_1_percent.found)
@@ -196,6 +208,14 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
                     {"output_vpk", t1.found ? nlohmann::json(t1.point.output_vpk) : nlohmann::json(nullptr)},
                     {"output_dbu", t1.found ? nlohmann::json(base::dbu_from_vpk(t1.point.output_vpk)) : nlohmann::json(nullptr)},
                     {"reason", t1.reason}}}});
+    if (!d.stages_at.empty()) {
+      // A chain: each stage's operating point, as bias gives them, instead of one.
+      nlohmann::json sts = nlohmann::json::array();
+      for (std::size_t k = 0; k < d.stages_at.size(); ++k)
+        sts.push_back({{"name", d.stage_labels[k]}, {"operating_point", operating_point_json(d.stages_at[k])}});
+      ds.back().erase("operating_point");
+      ds.back()["stages"] = sts;
+    }
   }
   j["designs"] = ds;
   j["warnings"] = r.warnings;
@@ -214,7 +234,11 @@ void write_csv(const std::vector<design_input>& in, const model::compare_result&
   out.precision(10);
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
     const model::design_figures& d = r.designs[i];
-    out << i + 1 << ',' << quoted(label_of(in[i])) << ',' << quoted(in[i].st.name) << ',' << d.at.vd_v << ',' << d.at.id_a << ','
+    // A chain has no one VD and ID: those cells stay empty (its stages' are in --json).
+    out << i + 1 << ',' << quoted(label_of(in[i])) << ',' << quoted(in[i].st.name) << ',';
+    if (d.stages_at.empty()) out << d.at.vd_v << ',' << d.at.id_a;
+    else out << ',';
+    out << ','
         << d.gain_midband_db << ',' << d.clean_swing_vpk << ',' << d.point.drive_vpk << ',' << d.point.output_vpk << ','
         << d.point.gain_db << ',' << d.point.thd_percent;
     for (int h = 2; h <= r.harmonics; ++h) {

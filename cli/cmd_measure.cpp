@@ -298,7 +298,8 @@ void write_against_text(const measure_report& r, std::ostream& out) {
          signed_db(base::db_from_ratio(a.thd_ratio / pt.thd_ratio))});
   t.write(out);
   out << "  difference: measured minus predicted; dBc figures do not depend on the recording's gain.\n"
-         "  A measured harmonic near the noise floor reads the noise, not the stage.\n";
+         "  A measured harmonic near the noise floor reads the noise, not the "
+      << (p.st.is_chain() ? "chain" : "stage") << ".\n";
 }
 
 void write_text(const measure_report& r, std::ostream& out) {

@@ -65,7 +65,8 @@ struct render_outcome {
   double peak_dbfs{};
   bool fixed_level{false};
   bool dry{false};
-  std::size_t stage_count{};
+  std::size_t stage_count{};  // stage files
+  std::vector<std::size_t> chain_lengths;  // stages in each stage file, in order
   std::vector<std::string> warnings;
 };
 
@@ -154,7 +155,15 @@ void write_text(const render_outcome& run, std::ostream& out) {
   const model::render_report& r = run.report;
   const auto& in = r.input;
   const std::size_t n_out = r.outputs.size();
-  out << "Rendered " << run.input << " through " << run.stage_count << (run.stage_count == 1 ? " stage" : " stages");
+  // A stage file may hold a chain: it is then named as one, with its number of stages.
+  const bool chains = std::any_of(run.chain_lengths.begin(), run.chain_lengths.end(), [](std::size_t k) { return k > 1; });
+  out << "Rendered " << run.input << " through ";
+  if (!chains)
+    out << run.stage_count << (run.stage_count == 1 ? " stage" : " stages");
+  else if (run.stage_count == 1)
+    out << "a chain of " << run.chain_lengths.front() << " stages";
+  else
+    out << run.stage_count << " designs";
   if (n_out > 1) out << (run.dry ? " and the dry input" : "") << ", loudness-matched";
   out << '\n';
   out << "  input   " << in.format_text << ", " << rate_text(in.rate_hz) << " Hz, " << in.channels
@@ -209,11 +218,17 @@ void write_text(const render_outcome& run, std::ostream& out) {
     notes = true;
     out << "  ! " << line << '\n';
   };
-  for (const model::output_report& x : r.outputs) {
+  // The outputs are the stage files' in order, then the dry input.
+  auto what = [&](std::size_t i, const model::output_report& x) -> std::string {
+    if (x.is_dry) return "input";
+    return i < run.chain_lengths.size() && run.chain_lengths[i] > 1 ? "chain's output" : "stage's output";
+  };
+  for (std::size_t i = 0; i < r.outputs.size(); ++i) {
+    const model::output_report& x = r.outputs[i];
     if (x.silent)
       note(x.path.string() + " is written as silence: " +
            (x.input_below_floor ? "the input peaks at " + volts_text(r.input_peak_v) + " at the generator"
-                                : "the " + std::string(x.is_dry ? "input" : "stage's output") + " peaks at " + volts_text(x.peak_v)) +
+                                : "the " + what(i, x) + " peaks at " + volts_text(x.peak_v)) +
            ",\n    not above the floor of " + volts_text(r.floor_v) +
            " (the engine's accepted error a sample): normalising would lift only numerical residue");
     else if (!x.silent_channels.empty())
@@ -222,7 +237,7 @@ void write_text(const render_outcome& run, std::ostream& out) {
     const double lift_db = base::db_from_ratio(x.scale * (x.is_dry ? run.input_peak_v : 1.0));
     if (!x.silent && lift_db > 60.0)
       note(x.path.string() + " was lifted by " + db_text(lift_db, "dB") + " to reach its level: its " +
-           (x.is_dry ? "input" : "stage's output") + " peaks at only " + volts_text(x.peak_v) +
+           what(i, x) + " peaks at only " + volts_text(x.peak_v) +
            ".\n    A click or hum that quiet comes out loud; check --input-peak, or fix the level with --output-peak");
     if (x.engine.failed > 0)
       note(x.path.string() + ": " + std::to_string(x.engine.failed) + " of " + std::to_string(x.engine.samples) +
@@ -237,8 +252,8 @@ void write_text(const render_outcome& run, std::ostream& out) {
       note(x.path.string() + ": true peak above 0 dBTP; a converter may clip between samples (try --normalize -2dBFS)");
   }
   out << "\n  speed " << format_number(r.realtime_factor, 3) << "x real time (" << format_number(r.seconds, 3) << " s)\n";
-  out << "\nCaution: start playback quietly and raise it slowly; a distorting stage can be much\n"
-         "louder than its input, and full-scale audio can harm hearing and speakers.\n";
+  out << "\nCaution: start playback quietly and raise it slowly; a distorting " << (chains ? "chain" : "stage")
+      << " can be much\nlouder than its input, and full-scale audio can harm hearing and speakers.\n";
 }
 
 nlohmann::json level_json(double ratio) {
@@ -435,6 +450,7 @@ render_outcome run(const render_options& o, std::ostream& err, base::output_set&
   r.fixed_level = job.level == model::output_level::fixed;
   r.dry = o.dry;
   r.stage_count = job.stages.size();
+  for (const model::render_stage& st : job.stages) r.chain_lengths.push_back(std::max<std::size_t>(1, st.net.stages.size()));
   return r;
 }
 

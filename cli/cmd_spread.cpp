@@ -1,4 +1,5 @@
 // pinchoff spread: how a design spreads over a batch of real parts.
+#include <algorithm>
 #include <cmath>
 #include <filesystem>
 #include <map>
@@ -42,27 +43,39 @@ std::string value_text(const model::quantity_def& q, double v) {
   return format_si(v, q.unit, 4);
 }
 
+// The definition behind a run's quantity name ("vd", "stage2.vd").
 const model::quantity_def& def_of(const std::string& name) {
-  for (const auto& q : model::spread_quantities())
-    if (name == q.name) return q;
-  throw internal_error("unknown quantity " + name);
+  const model::named_quantity n = model::split_quantity_name(name);
+  if (n.def == nullptr) throw internal_error("unknown quantity " + name);
+  return *n.def;
 }
 
-std::string part_text(const model::spread_run& r) {
-  return "IDSS " + format_si(r.draw.idss_a, "A") + ", VP " + format_si(r.draw.vp_v, "V") + ", supply " +
-         format_si(r.draw.supply_v, "V");
+// The drawn parts of a run: one JFET, or every stage's of a chain, and the supply.
+std::string part_text(const model::stage& st, const model::spread_run& r) {
+  if (!st.is_chain())
+    return "IDSS " + format_si(r.draw.idss_a, "A") + ", VP " + format_si(r.draw.vp_v, "V") + ", supply " +
+           format_si(r.draw.supply_v, "V");
+  std::string text = "stage1 IDSS " + format_si(r.draw.idss_a, "A") + ", VP " + format_si(r.draw.vp_v, "V");
+  for (std::size_t k = 0; k < r.draw.later.size(); ++k)
+    text += "; stage" + std::to_string(k + 2) + " IDSS " + format_si(r.draw.later[k].idss_a, "A") + ", VP " +
+            format_si(r.draw.later[k].vp_v, "V");
+  return text + "; supply " + format_si(r.draw.supply_v, "V");
 }
 
-// The histogram files: BASE-NAME.EXT for each quantity.
-std::filesystem::path histogram_path(const std::string& base, const std::string& name) {
+// The histogram files: BASE-NAME.EXT for each quantity ("stage2.vd" gives BASE-stage2-vd.EXT).
+std::filesystem::path histogram_path(const std::string& base, std::string name) {
+  std::replace(name.begin(), name.end(), '.', '-');
   const std::filesystem::path p(base);
   return p.parent_path() / (p.stem().string() + "-" + name + p.extension().string());
 }
 
-std::vector<std::string> histogram_names(const std::vector<model::requirement>& reqs) {
+// The required quantities (as resolve_requirements names them), else every stage's vd and id.
+std::vector<std::string> histogram_names(const model::stage& st, const std::vector<model::requirement>& reqs) {
   std::vector<std::string> names;
   for (const auto& r : reqs) names.push_back(r.quantity);
-  if (names.empty()) names = {"vd", "id"};
+  if (!names.empty()) return names;
+  for (const char* q : {"vd", "id"})
+    for (int k = 0; k < st.stage_count(); ++k) names.push_back(model::stage_key(st, k, q));
   return names;
 }
 
@@ -105,19 +118,35 @@ struct spread_report {
   model::spread_result res;
 };
 
+// A quantity's column or key: "vd_v", in a chain "stage2.vd_v".
+std::string json_key_of(const std::string& name) {
+  const model::named_quantity n = model::split_quantity_name(name);
+  return (n.stage >= 0 ? "stage" + std::to_string(n.stage + 1) + "." : std::string()) + n.def->json_key;
+}
+
 void write_csv(const spread_report& rep, std::ostream& out) {
   const model::spread_result& res = rep.res;
-  out << "run,idss_a,vp_v,supply_v,solved";
-  for (const auto& q : model::spread_quantities())
-    if (res.stats.count(q.name)) out << ',' << q.json_key;
+  const std::vector<std::string> names = model::spread_quantity_names(rep.st);
+  if (rep.st.is_chain()) {
+    out << "run";
+    for (int k = 0; k < rep.st.stage_count(); ++k)
+      out << ',' << model::stage_key(rep.st, k, "idss_a") << ',' << model::stage_key(rep.st, k, "vp_v");
+    out << ",supply_v,solved";
+  } else {
+    out << "run,idss_a,vp_v,supply_v,solved";
+  }
+  for (const std::string& name : names)
+    if (res.stats.count(name)) out << ',' << json_key_of(name);
   out << ",meets\n";
   out.precision(10);
   for (const auto& r : res.runs) {
-    out << r.index << ',' << r.draw.idss_a << ',' << r.draw.vp_v << ',' << r.draw.supply_v << ',' << (r.solved ? 1 : 0);
-    for (const auto& q : model::spread_quantities())
-      if (res.stats.count(q.name)) {
+    out << r.index << ',' << r.draw.idss_a << ',' << r.draw.vp_v;
+    for (const auto& p : r.draw.later) out << ',' << p.idss_a << ',' << p.vp_v;
+    out << ',' << r.draw.supply_v << ',' << (r.solved ? 1 : 0);
+    for (const std::string& name : names)
+      if (res.stats.count(name)) {
         out << ',';
-        if (auto it = r.values.find(q.name); it != r.values.end()) out << it->second;
+        if (auto it = r.values.find(name); it != r.values.end()) out << it->second;
       }
     out << ',' << (r.meets ? 1 : 0) << '\n';
   }
@@ -132,7 +161,8 @@ struct extreme {
 std::vector<extreme> extremes(const spread_report& rep) {
   std::vector<std::string> worst_of;
   for (const auto& r : rep.reqs) worst_of.push_back(r.quantity);
-  if (worst_of.empty()) worst_of = {"vd"};
+  if (worst_of.empty())
+    for (int k = 0; k < rep.st.stage_count(); ++k) worst_of.push_back(model::stage_key(rep.st, k, "vd"));
   std::vector<extreme> worsts;
   for (const std::string& name : worst_of) {
     const model::spread_run *lo = nullptr, *hi = nullptr;
@@ -155,18 +185,42 @@ void print_json(const spread_report& rep, std::ostream& out) {
   j["yield"] = res.yield;
   j["unsolved"] = res.unsolved;
   j["seed"] = rep.settings.seed;
+  // A single stage: every quantity in `percentiles`. A chain: the chain's (gain, swing,
+  // thd) there, and each stage's own in `stages[k].percentiles`.
+  auto stats_json = [](const model::quantity_stats& s) {
+    return nlohmann::json{{"p5", s.p5}, {"p50", s.p50}, {"p95", s.p95}, {"min", s.min}, {"max", s.max}};
+  };
   nlohmann::json pc;
-  for (const auto& [name, s] : res.stats)
-    pc[def_of(name).json_key] = {{"p5", s.p5}, {"p50", s.p50}, {"p95", s.p95}, {"min", s.min}, {"max", s.max}};
+  nlohmann::json stages = nlohmann::json::array();
+  for (int k = 0; rep.st.is_chain() && k < rep.st.stage_count(); ++k)
+    stages.push_back({{"stage", k + 1}, {"name", rep.st.part(k).label}, {"percentiles", nlohmann::json::object()}});
+  for (const auto& [name, s] : res.stats) {
+    const model::named_quantity n = model::split_quantity_name(name);
+    if (n.stage >= 0) stages[static_cast<std::size_t>(n.stage)]["percentiles"][n.def->json_key] = stats_json(s);
+    else pc[n.def->json_key] = stats_json(s);
+  }
   j["percentiles"] = pc;
+  if (rep.st.is_chain()) j["stages"] = stages;
   nlohmann::json rq = nlohmann::json::array();
   for (const auto& r : rep.reqs)
     rq.push_back({{"quantity", r.quantity}, {"lo", number_or_null(r.lo)}, {"hi", number_or_null(r.hi)}});
   j["requirements"] = rq;
   nlohmann::json ws = nlohmann::json::array();
-  for (const auto& w : extremes(rep))
-    ws.push_back({{"quantity", w.quantity}, {"side", w.side}, {"run", w.run->index}, {"idss_a", w.run->draw.idss_a},
-                  {"vp_v", w.run->draw.vp_v}, {"supply_v", w.run->draw.supply_v}, {"value", w.run->values.at(w.quantity)}});
+  for (const auto& w : extremes(rep)) {
+    nlohmann::json e = {{"quantity", w.quantity}, {"side", w.side}, {"run", w.run->index}};
+    if (rep.st.is_chain()) {
+      // Every stage's part, in stage order.
+      nlohmann::json parts = nlohmann::json::array({{{"idss_a", w.run->draw.idss_a}, {"vp_v", w.run->draw.vp_v}}});
+      for (const auto& p : w.run->draw.later) parts.push_back({{"idss_a", p.idss_a}, {"vp_v", p.vp_v}});
+      e["parts"] = parts;
+    } else {
+      e["idss_a"] = w.run->draw.idss_a;
+      e["vp_v"] = w.run->draw.vp_v;
+    }
+    e["supply_v"] = w.run->draw.supply_v;
+    e["value"] = w.run->values.at(w.quantity);
+    ws.push_back(e);
+  }
   j["worst"] = ws;
   out << json_text(j) << '\n';
 }
@@ -176,7 +230,8 @@ void print_text(const spread_report& rep, const std::string& plots, std::ostream
   out << rep.st.name << "\n  " << describe_spread(rep.settings, rep.st) << "\n\n";
   text_table t({align::left, align::right, align::right, align::right, align::right, align::right});
   t.add({"", "p5", "median", "p95", "min", "max"});
-  for (const std::string name : {"id", "vd", "vs", "vds", "gain", "swing", "thd"}) {
+  for (const std::string& name : model::spread_quantity_names(rep.st)) {
+    if (def_of(name).name == std::string_view("vgs")) continue;  // the table leaves vgs to the JSON and CSV
     auto it = res.stats.find(name);
     if (it == res.stats.end()) continue;
     const auto& q = def_of(name);
@@ -184,7 +239,7 @@ void print_text(const spread_report& rep, const std::string& plots, std::ostream
     t.add({name, value_text(q, s.p5), value_text(q, s.p50), value_text(q, s.p95), value_text(q, s.min), value_text(q, s.max)});
   }
   t.write(out);
-  std::string cond = "biased in saturation";
+  std::string cond = rep.st.is_chain() ? "every stage biased in saturation" : "biased in saturation";
   for (const auto& r : rep.reqs) {
     const auto& q = def_of(r.quantity);
     cond += ", " + r.quantity + " " + (std::isfinite(r.lo) ? value_text(q, r.lo) : std::string("")) + ".." +
@@ -196,7 +251,7 @@ void print_text(const spread_report& rep, const std::string& plots, std::ostream
   text_table w({align::left, align::left, align::right, align::left});
   for (const auto& x : extremes(rep))
     w.add({x.side + " " + x.quantity, "run " + std::to_string(x.run->index),
-           value_text(def_of(x.quantity), x.run->values.at(x.quantity)), part_text(*x.run)});
+           value_text(def_of(x.quantity), x.run->values.at(x.quantity)), part_text(rep.st, *x.run)});
   w.write(out);
   if (!plots.empty()) out << '\n' << plots;
 }
@@ -207,7 +262,7 @@ CLI::App* setup(CLI::App& app, spread_options& opt, const data_files& data) {
   add_spread_options(*sub, opt.batch);
   sub->add_option("--require", opt.conditions,
                   "A condition a good build meets, QUANTITY=LO..HI (repeatable): id, vd, vs, vds, vgs, gain (dB), swing (V peak), "
-                  "thd (%, with --drive)")
+                  "thd (%, with --drive); in a chain a stage's own names its stage, stage2.vd=3.5..5.5")
       ->type_name("Q=LO..HI");
   sub->add_option("--drive", opt.drive, "Also simulate each part at this drive and report its THD (slower)")->type_name("LEVEL");
   sub->add_option("--freq", opt.freq, "Test-tone frequency for --drive")->capture_default_str();
@@ -236,6 +291,7 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::
   spread_report rep;
   for (const std::string& r : opt.conditions) rep.reqs.push_back(parse_requirement(r));
   rep.st = load_stage(opt.input);
+  rep.reqs = model::resolve_requirements(rep.st, rep.reqs);
   rep.settings = spread_settings_from(opt.batch, rep.st, opt.input);
   const model::spread_settings& settings = rep.settings;
   auto varies = [](const std::optional<base::value_range>& r) { return r && r->lo != r->hi; };
@@ -261,7 +317,7 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::
   rep.res = model::run_spread(rep.st, settings, rep.reqs, extra);
 
   std::ostringstream plots;
-  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.reqs), opt.plot, rep.st.name, plots, outputs);
+  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.st, rep.reqs), opt.plot, rep.st.name, plots, outputs);
   if (opt.csv) return write_csv(rep, out);
   if (opt.json) return print_json(rep, out);
   print_text(rep, plots.str(), out);
@@ -274,14 +330,16 @@ void register_spread(CLI::App& app, std::vector<command>& commands, const data_f
   CLI::App* sub = setup(app, *opt, data);
   // The THD of --drive is a one-level sweep: its settings' fields map to spread's options.
   command c{sub, [opt](std::ostream& out, std::ostream& err, base::output_set& o) { run(*opt, out, err, o); },
-            {{"drives_vpk", "--drive"}, {"frequency_hz", "--freq"}},
+            {{"drives_vpk", "--drive"}, {"frequency_hz", "--freq"}, {"requirements", "--require"}},
             [opt] {
               command_files f;
               add_stage_inputs(f, opt->input.path, opt->input.devices);
               if (opt->plot.empty()) return f;
+              // The histograms' names depend on the stages the file holds.
               std::vector<model::requirement> reqs;
               for (const std::string& r : opt->conditions) reqs.push_back(parse_requirement(r));
-              for (const std::string& name : histogram_names(reqs))
+              const model::stage st = load_stage(opt->input);
+              for (const std::string& name : histogram_names(st, model::resolve_requirements(st, reqs)))
                 f.outputs.push_back({"--plot", histogram_path(opt->plot, name)});
               return f;
             }};

@@ -119,6 +119,29 @@ void write_plot(const sweep_report& rep, const std::string& path, base::output_s
     yaxis.max = 0.0;
   }
   pl.top = {yaxis, lines};
+  // A chain: THD at each stage's output in a second panel, so the profile can be followed
+  // through the chain.
+  if (!r.stages.empty()) {
+    std::vector<series> per;
+    for (std::size_t k = 0; k < r.stages.size(); ++k) {
+      series st{r.stages[k].label, {}, {}, true};
+      for (const auto& p : r.points) {
+        st.x.push_back(base::dbu_from_vpk(p.drive_vpk));
+        st.y.push_back(p.stages[k].thd_db);
+      }
+      per.push_back(st);
+    }
+    axis sy{"THD at each stage's output (dB)", axis_scale::linear, {}, {}, false};
+    double low = 0.0;
+    for (const auto& l : per)
+      for (double y : l.y)
+        if (std::isfinite(y)) low = std::min(low, y);
+    if (low < -140.0) {
+      sy.min = -140.0;
+      sy.max = 0.0;
+    }
+    pl.bottom = panel{sy, per};
+  }
   for (const auto& c : r.crossings)
     if (c.found) pl.markers.push_back({base::dbu_from_vpk(c.drive_vpk), format_number(c.thd_percent, 2) + " % THD"});
   add_svg_output(outputs, path, render_svg(pl));
@@ -155,8 +178,35 @@ void print_json(const sweep_report& rep, std::ostream& out) {
                    {"newton_max_iterations", p.newton.max_evaluations},
                    {"newton_failed_samples", p.newton.failed},
                    {"periods_simulated", p.periods_simulated}});
+    if (!p.stages.empty()) {
+      nlohmann::json sts = nlohmann::json::array();
+      for (std::size_t k = 0; k < p.stages.size(); ++k) {
+        const model::stage_point& sp = p.stages[k];
+        nlohmann::json shs = nlohmann::json::array();
+        for (double h : sp.harmonics_dbc) shs.push_back(number_or_null(h));
+        sts.push_back({{"name", r.stages[k].label},
+                       {"output_vpk", sp.output_vpk},
+                       {"output_dbu", base::dbu_from_vpk(sp.output_vpk)},
+                       {"thd_percent", sp.thd_percent},
+                       {"thd_db", sp.thd_db},
+                       {"harmonics_dbc", shs},
+                       {"bias_shift_v", sp.bias_shift_v},
+                       {"clean", sp.clean},
+                       {"limit", sp.clean ? nlohmann::json(nullptr) : nlohmann::json(model::swing_limit_text(sp.limit))}});
+      }
+      pts.back()["stages"] = sts;
+      pts.back()["bias_shift_v"] = nullptr;  // a chain: each stage's, above
+    }
   }
   j["points"] = pts;
+  if (!r.stages.empty()) {
+    nlohmann::json sts = nlohmann::json::array();
+    for (const auto& st : r.stages)
+      sts.push_back({{"name", st.label},
+                     {"leaves_clean_at_drive_vpk", st.leaves_clean ? nlohmann::json(st.first_unclean_drive_vpk) : nlohmann::json(nullptr)},
+                     {"limit", st.leaves_clean ? nlohmann::json(model::swing_limit_text(st.limit)) : nlohmann::json(nullptr)}});
+    j["stages"] = sts;
+  }
   nlohmann::json cs = nlohmann::json::array();
   for (const auto& c : r.crossings)
     cs.push_back({{"thd_percent", c.thd_percent},
@@ -170,6 +220,9 @@ void print_json(const sweep_report& rep, std::ostream& out) {
 void write_csv(const sweep_report& rep, std::ostream& out) {
   out << "drive_vpk,output_vpk,gain_db,thd_percent,alias_dbc,even_odd_ratio,dc_shift_v";
   for (int h = 2; h <= rep.settings.harmonics; ++h) out << ",h" << h << "_dbc";
+  // A chain: each stage's output level, THD and whether it stayed clean, stage1_... on.
+  for (std::size_t k = 1; k <= rep.r.stages.size(); ++k)
+    out << ",stage" << k << "_output_vpk,stage" << k << "_thd_percent,stage" << k << "_clean";
   out << '\n';
   out.precision(10);
   for (const auto& p : rep.r.points) {
@@ -179,8 +232,69 @@ void write_csv(const sweep_report& rep, std::ostream& out) {
       out << ',';
       if (std::isfinite(h)) out << h;
     }
+    for (const auto& sp : p.stages) out << ',' << sp.output_vpk << ',' << sp.thd_percent << ',' << (sp.clean ? 1 : 0);
     out << '\n';
   }
+}
+
+// A chain: each stage's output over the drives, then where each stage leaves its clean region.
+void print_stages(const sweep_report& rep, std::ostream& out) {
+  const model::sweep_result& r = rep.r;
+  const std::size_t ns = r.stages.size();
+  out << "\n  at each stage's output (* : the stage left its clean region during the period)\n";
+  text_table t(std::vector<text_table::align>(1 + 3 * ns, align::right));
+  std::vector<std::string> names{""}, head{"drive"};
+  for (const auto& st : r.stages) {
+    names.insert(names.end(), {st.label, "", ""});
+    head.insert(head.end(), {"level", "THD", "VGS shift"});
+  }
+  t.add(names);
+  t.add(head);
+  for (const auto& p : r.points) {
+    std::vector<std::string> row{dbu(p.drive_vpk)};
+    for (const auto& sp : p.stages) {
+      row.push_back(dbu(sp.output_vpk));
+      row.push_back(format_number(sp.thd_percent, 3) + " %" + (sp.clean ? "  " : " *"));
+      row.push_back(shift(sp.bias_shift_v));
+    }
+    t.add(row);
+  }
+  t.write(out);
+  const int shown = std::min(5, rep.settings.harmonics);
+  if (shown >= 2) {
+    out << "\n  H2..H" << shown << " at each stage's output (dBc)\n";
+    text_table h(std::vector<text_table::align>(1 + static_cast<std::size_t>(shown - 1) * ns, align::right));
+    std::vector<std::string> hn{""}, hh{"drive"};
+    for (const auto& st : r.stages)
+      for (int k = 2; k <= shown; ++k) {
+        hn.push_back(k == 2 ? st.label : "");
+        hh.push_back("H" + std::to_string(k));
+      }
+    h.add(hn);
+    h.add(hh);
+    for (const auto& p : r.points) {
+      std::vector<std::string> row{dbu(p.drive_vpk)};
+      for (const auto& sp : p.stages)
+        for (int k = 2; k <= shown; ++k) row.push_back(dbc(sp.harmonics_dbc[static_cast<std::size_t>(k - 2)]));
+      h.add(row);
+    }
+    h.write(out);
+  }
+  out << '\n';
+  double lowest = r.points.front().drive_vpk;
+  for (const auto& p : r.points) lowest = std::min(lowest, p.drive_vpk);
+  for (const auto& st : r.stages) {
+    out << "  " << st.label << ": ";
+    if (st.leaves_clean && st.first_unclean_drive_vpk == lowest)
+      out << "out of its clean region already at the lowest drive, " << format_si(lowest, "Vpk") << " (" << dbu(lowest)
+          << "), " << model::swing_limit_text(st.limit) << '\n';
+    else if (st.leaves_clean)
+      out << "first out of its clean region at drive " << format_si(st.first_unclean_drive_vpk, "Vpk") << " ("
+          << dbu(st.first_unclean_drive_vpk) << "), " << model::swing_limit_text(st.limit) << '\n';
+    else
+      out << "clean at every drive of this sweep\n";
+  }
+  out << '\n';
 }
 
 void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
@@ -192,17 +306,23 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
   out << ", " << r.oversample << "x oversampling (" << format_si(r.sample_rate_hz, "Hz")
       << (rep.settings.automatic_oversample && r.oversample < 8 ? ", enough at this frequency" : "") << "), H2..H" << harmonics
       << " up to " << format_si(rep.settings.bandwidth_hz, "Hz") << "\n\n";
-  text_table t({align::right, align::right, align::right, align::right, align::right, align::right, align::right,
-                align::right, align::right, align::right, align::right});
-  t.add({"drive", "", "output", "", "gain", "THD", "", "even/odd", "alias", "DC shift", "VGS shift"});
-  for (const auto& p : r.points)
-    t.add({dbu(p.drive_vpk), format_si(p.drive_vpk, "Vpk"), dbu(p.output_vpk), format_si(p.output_vpk, "Vpk"),
-           format_number(p.gain_db, 3) + " dB", format_number(p.thd_percent, 3) + " %", format_number(p.thd_db, 3) + " dB",
-           ratio_db(p.even_odd_ratio),
-           p.alias_dbc < shown_floor_dbc ? std::string("< -180 dBc") : format_number(p.alias_dbc, 3) + " dBc",
-           shift(p.dc_shift_v), shift(p.bias_shift_v)});
+  // A chain's VGS shift is each stage's, in the stage table below.
+  const bool chain = !r.stages.empty();
+  text_table t(std::vector<text_table::align>(chain ? 10 : 11, align::right));
+  std::vector<std::string> main_head{"drive", "", "output", "", "gain", "THD", "", "even/odd", "alias", "DC shift", "VGS shift"};
+  if (chain) main_head.pop_back();
+  t.add(main_head);
+  for (const auto& p : r.points) {
+    std::vector<std::string> row{dbu(p.drive_vpk), format_si(p.drive_vpk, "Vpk"), dbu(p.output_vpk), format_si(p.output_vpk, "Vpk"),
+                                 format_number(p.gain_db, 3) + " dB", format_number(p.thd_percent, 3) + " %",
+                                 format_number(p.thd_db, 3) + " dB", ratio_db(p.even_odd_ratio),
+                                 p.alias_dbc < shown_floor_dbc ? std::string("< -180 dBc") : format_number(p.alias_dbc, 3) + " dBc",
+                                 shift(p.dc_shift_v)};
+    if (!chain) row.push_back(shift(p.bias_shift_v));
+    t.add(row);
+  }
   t.write(out);
-  out << "\n  harmonics (dBc)\n";
+  out << (chain ? "\n  harmonics at the load (dBc)\n" : "\n  harmonics (dBc)\n");
   std::vector<text_table::align> al(static_cast<std::size_t>(harmonics), align::right);
   text_table ht(al);
   std::vector<std::string> head{"drive"};
@@ -223,6 +343,7 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
     else
       out << "not reached in this sweep\n";
   }
+  if (!r.stages.empty()) print_stages(rep, out);
   out << "  even/odd: even-harmonic over odd-harmonic power (positive dB: even-dominated, "
          "the square-law signature)\n"
          "  DC shift: mean load voltage moved from rest; VGS shift: the bias moved by the drive\n"
@@ -259,7 +380,7 @@ CLI::App* setup(CLI::App& app, sweep_options& opt, const data_files& data) {
   sub->add_option("--rate", opt.rate, "The audio rate the oversampling multiplies")->capture_default_str();
   sub->add_flag("--json", opt.json, "Machine-readable output");
   sub->add_flag("--csv", opt.csv, "Every point as CSV");
-  sub->add_option("--plot", opt.plot, "Write THD and H2..H5 against drive as SVG")->type_name("FILE.svg");
+  sub->add_option("--plot", opt.plot, "Write THD and H2..H5 against drive as SVG (a chain: and THD at each stage's output)")->type_name("FILE.svg");
   sub->add_flag("--verbose", opt.verbose, "Also show Newton and steady-state statistics per point");
   sub->add_option("--threads", opt.threads, "Threads, 0 (one per core) to 256; results do not depend on it")->capture_default_str();
   sub->footer(
@@ -269,6 +390,9 @@ CLI::App* setup(CLI::App& app, sweep_options& opt, const data_files& data) {
       "  pinchoff sweep presets/clean-preamp-18v.toml --drive 100mVpk,300mVpk,1Vpk --harmonics 5\n"
       "  pinchoff sweep presets/bass-booster-9v.toml --freq 82 --from 10mVpk --to 2Vpk --plot boost.svg\n"
       "  pinchoff sweep presets/bass-booster-9v.toml --set source.resistor=1k --json\n"
+      "  pinchoff sweep presets/two-stage-boost-9v.toml --plot chain.svg\n"
+      "      a chain: also the level, THD and H2..H5 at each stage's output, and the drive at\n"
+      "      which each stage first leaves its clean region\n"
       "Drive is the generator's open-circuit sine (a bare number is volts peak). Each point is\n"
       "the periodic steady state (found by shooting, not by seconds of settling), simulated at\n"
       "the oversampled rate; harmonics are read exactly from whole cycles, and energy between\n"
@@ -291,6 +415,7 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
   s.bandwidth_hz = option_frequency_hz(opt.bandwidth, "--bandwidth");
   s.base_rate_hz = option_frequency_hz(opt.rate, "--rate");
   s.threads = opt.threads;
+  s.per_stage = true;  // a chain's stages too; nothing changes for a single stage
   const model::sweep_plan plan = model::plan_sweep(s);  // the settings' errors before any file is read
   if (!spl) rep.st = load_stage(opt.input);
   // The rest point's cautions first (before the simulation's wait), then anything the

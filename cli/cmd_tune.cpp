@@ -1,6 +1,8 @@
 // pinchoff tune: the resistor value that puts the operating point on a target.
 #include <cmath>
 #include <memory>
+#include <string>
+#include <vector>
 
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
@@ -22,8 +24,8 @@ using align = text_table::align;
 
 struct tune_options {
   stage_input input;
-  std::string target_text;
-  std::string adjust{"source.resistor"};
+  std::vector<std::string> target_texts;  ///< paired in order with `adjusts`
+  std::vector<std::string> adjusts;       ///< empty: source.resistor for the one target
   std::string series{"E24"};
   bool json{false};
   bool over_spread{false};
@@ -35,8 +37,7 @@ nlohmann::json point_json(const model::tune_point& p) {
   return op;
 }
 
-void print_text(const model::stage& st, const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
-  out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << r.adjust << "\n\n";
+void print_table(const model::tune_result& r, std::ostream& out) {
   text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right,
                 align::left});
   t.add({"", r.adjust, "VD", "VS", "VDS", "ID", "swing", "region"});
@@ -51,10 +52,15 @@ void print_text(const model::stage& st, const model::tune_target& target, const 
     row(c.series + " " + side, c.point);
   }
   t.write(out);
+}
+
+void print_text(const model::stage& st, const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
+  out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << r.adjust << "\n\n";
+  print_table(r, out);
   out << "\n  swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
 }
 
-void print_json(const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
+nlohmann::json result_json(const model::tune_target& target, const model::tune_result& r) {
   nlohmann::json j;
   j["adjust"] = r.adjust;
   j["exact_ohm"] = r.exact_ohm;
@@ -69,14 +75,15 @@ void print_json(const model::tune_target& target, const model::tune_result& r, s
                      {"operating_point", point_json(c.point)},
                      {"symmetric_output_vpk", c.point.headroom.symmetric_output_vpk}});
   j["candidates"] = cands;
-  out << json_text(j) << '\n';
+  return j;
+}
+
+void print_json(const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
+  out << json_text(result_json(target, r)) << '\n';
 }
 
 // --over-spread: the trimmer that brings a batch to the target.
-void print_trim_text(const model::stage& st, const model::tune_target& target, const model::spread_settings& ss,
-                     const model::trim_result& t, base::eseries series, std::ostream& out) {
-  out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << t.adjust << " over a batch\n  "
-      << describe_spread(ss, st) << "\n\n";
+void print_trim_table(const model::trim_result& t, base::eseries series, std::ostream& out) {
   text_table tt({align::left, align::right});
   tt.add({"needed, smallest", format_si(t.r_min, "Ω", 4)});
   tt.add({"needed, 5 % of parts below", format_si(t.r_p5, "Ω", 4)});
@@ -87,38 +94,85 @@ void print_trim_text(const model::stage& st, const model::tune_target& target, c
       << format_si(t.trimmer_ohm, "Ω") << " trimmer: covers " << format_si(t.fixed_ohm, "Ω") << " to "
       << format_si(t.fixed_ohm + t.trimmer_ohm, "Ω") << ", " << base::format_number(100.0 * t.coverage, 3)
       << " % of the parts\n";
+}
+
+void print_trim_text(const model::stage& st, const model::tune_target& target, const model::spread_settings& ss,
+                     const model::trim_result& t, base::eseries series, std::ostream& out) {
+  out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << t.adjust << " over a batch\n  "
+      << describe_spread(ss, st) << "\n\n";
+  print_trim_table(t, series, out);
   if (t.reachable < ss.runs) out << "  " << (ss.runs - t.reachable) << " of " << ss.runs << " parts cannot reach the target with any value\n";
 }
 
-void print_trim_json(const model::tune_target& target, const model::spread_settings& ss, const model::trim_result& t,
-                     std::ostream& out) {
+nlohmann::json trim_json(const model::tune_target& target, const model::trim_result& t) {
   nlohmann::json j;
   j["adjust"] = t.adjust;
   j["target"] = model::target_text(target);
-  j["runs"] = ss.runs;
   j["reachable"] = t.reachable;
   j["range_ohm"] = {{"min", t.r_min}, {"p5", t.r_p5}, {"p95", t.r_p95}, {"max", t.r_max}};
   j["fixed_ohm"] = t.fixed_ohm;
   j["trimmer_ohm"] = t.trimmer_ohm;
   j["coverage"] = t.coverage;
+  return j;
+}
+
+void print_trim_json(const model::tune_target& target, const model::spread_settings& ss, const model::trim_result& t,
+                     std::ostream& out) {
+  nlohmann::json j = trim_json(target, t);
+  j["runs"] = ss.runs;
+  out << json_text(j) << '\n';
+}
+
+// Several pairs over one batch: a trimmer per pair, every part's values solved together.
+void print_trim_set_text(const model::stage& st, const std::vector<model::tune_pair>& pairs, const model::spread_settings& ss,
+                         const model::trim_set& set, base::eseries series, std::ostream& out) {
+  out << st.name << "\n  " << pairs.size() << " trimmers over a batch, each part's resistors solved together\n  "
+      << describe_spread(ss, st) << "\n";
+  for (std::size_t k = 0; k < pairs.size(); ++k) {
+    out << "\n  target " << model::target_text(pairs[k].target) << ", adjusting " << set.trims[k].adjust << "\n\n";
+    print_trim_table(set.trims[k], series, out);
+  }
+  out << "\n  every trimmer covers its part's value in " << base::format_number(100.0 * set.coverage_all, 3)
+      << " % of the parts; the joint solves took at most " << set.most_rounds
+      << (set.most_rounds == 1 ? " round" : " rounds") << " (each target within 1 ppm + 1 µV or 1 nA)\n";
+  if (set.settled < ss.runs)
+    out << "  " << (ss.runs - set.settled) << " of " << ss.runs << " parts cannot reach every target together"
+        << (set.unsettled > 0 ? " (" + std::to_string(set.unsettled) + " did not settle in " +
+                                    std::to_string(model::joint_max_rounds) + " rounds)"
+                              : std::string())
+        << '\n';
+}
+
+void print_trim_set_json(const std::vector<model::tune_pair>& pairs, const model::spread_settings& ss,
+                         const model::trim_set& set, std::ostream& out) {
+  nlohmann::json j;
+  j["runs"] = ss.runs;
+  j["reachable"] = set.settled;
+  j["unsettled"] = set.unsettled;
+  j["most_rounds"] = set.most_rounds;
+  j["coverage_all"] = set.coverage_all;
+  nlohmann::json ts = nlohmann::json::array();
+  for (std::size_t k = 0; k < pairs.size(); ++k) ts.push_back(trim_json(pairs[k].target, set.trims[k]));
+  j["trimmers"] = ts;
   out << json_text(j) << '\n';
 }
 
 CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("tune", "Find the resistor value that puts the bias on a target");
   add_stage_input(*sub, opt.input, data);
-  sub->add_option("--target", opt.target_text,
+  sub->add_option("--target", opt.target_texts,
                   "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, or center (largest symmetric clean swing); "
-                  "in a chain, of the adjusted stage or of the one named: stage2.vd=4.5")
+                  "in a chain, of the adjusted stage or of the one named: stage2.vd=4.5. Repeatable, each with its "
+                  "--adjust in the same order: the resistors are solved together")
       ->required()
       ->type_name("TARGET");
   std::string keys;
   for (const std::string& k : model::adjustable_resistor_keys(model::stage{})) keys += (keys.empty() ? "" : ", ") + k;
-  sub->add_option("--adjust", opt.adjust,
-                  "The resistor to solve for: " + keys + "; in a chain stageN. before a stage's own (stage2.drain.resistor), "
-                  "and stageN.rail.resistance")
-      ->type_name("KEY")
-      ->capture_default_str();
+  sub->add_option("--adjust", opt.adjusts,
+                  "The resistor to solve for (default source.resistor): " + keys +
+                      "; in a chain stageN. before a stage's own (stage2.drain.resistor), and stageN.rail.resistance. "
+                      "Repeatable, one for each --target")
+      ->type_name("KEY");
   sub->add_option("--series", opt.series, "Standard values to offer: E12, E24 or E96")->capture_default_str();
   sub->add_flag("--json", opt.json, "Machine-readable output");
   sub->add_flag("--over-spread", opt.over_spread,
@@ -134,36 +188,98 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
       "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5 --over-spread --idss 2m..8m --vp -0.8..-3\n"
       "      the source resistance each part of a batch needs, and a fixed resistor plus trimmer\n"
       "      (standard values 100 Ω to 1 MΩ in 1-2-5 steps) that covers them\n"
-      "  pinchoff tune presets/chain-overdrive-9v.toml --target stage2.vd=4.5 --adjust stage2.source.resistor\n"
+      "  pinchoff tune presets/two-stage-boost-9v.toml --target stage2.vd=4.5 --adjust stage2.source.resistor\n"
       "      in a chain: the second stage's source resistor for its drain at 4.5 V\n"
+      "  pinchoff tune presets/two-stage-boost-9v.toml --over-spread --class general-purpose \\\n"
+      "      --adjust stage1.source.resistor --target stage1.vd=4.5 --adjust stage2.source.resistor --target stage2.vd=4.5\n"
+      "      a trimmer per stage over a batch, both solved together for every part\n"
       "Values are searched from 1 Ω to 100 MΩ; a target no value reaches is reported with the\n"
       "range that can be reached. Voltages are to ground, in real signs (negative for a\n"
       "p-channel stage on a negative supply).");
   return sub;
 }
 
+// The --adjust/--target pairs, in the order given; a chain's stage key without its stage
+// belongs to the target's stage.
+std::vector<model::tune_pair> pairs_of(const tune_options& opt, const model::stage& st) {
+  const std::vector<std::string> adjusts = opt.adjusts.empty() ? std::vector<std::string>{"source.resistor"} : opt.adjusts;
+  if (adjusts.size() != opt.target_texts.size())
+    throw input_error("--adjust and --target come in pairs: " + std::to_string(opt.target_texts.size()) + " --target but " +
+                      std::to_string(adjusts.size()) + " --adjust (give one --adjust for each --target, in the same order)");
+  std::vector<model::tune_pair> pairs;
+  for (std::size_t i = 0; i < adjusts.size(); ++i) {
+    model::tune_pair p{adjusts[i], parse_target(opt.target_texts[i])};
+    if (st.is_chain() && p.adjust.rfind("stage", 0) != 0 && p.adjust != "supply.resistance" && p.adjust != "output.load") {
+      if (p.target.stage < 0)
+        throw input_error("--adjust " + p.adjust + ": the file is a chain of " + std::to_string(st.stage_count()) +
+                          " stages: name the stage, as --adjust stage1." + p.adjust + " (or the target's, --target stage1." +
+                          opt.target_texts[i] + ")");
+      p.adjust = model::stage_key(st, p.target.stage, p.adjust);
+    }
+    pairs.push_back(std::move(p));
+  }
+  return pairs;
+}
+
+// Several pairs: each resistor's table at the values solved together (the others held at theirs).
+void print_pairs_text(const model::stage& st, const std::vector<model::tune_pair>& pairs, const model::joint_solution& sol,
+                      const std::vector<model::tune_result>& results, std::ostream& out) {
+  out << st.name << "\n  " << pairs.size() << " resistors solved together, in " << sol.rounds
+      << (sol.rounds == 1 ? " round" : " rounds") << " (each target within 1 ppm + 1 µV or 1 nA)\n";
+  for (std::size_t k = 0; k < pairs.size(); ++k) {
+    out << "\n  target " << model::target_text(pairs[k].target) << ", adjusting " << results[k].adjust << "\n\n";
+    print_table(results[k], out);
+  }
+  out << "\n  each table holds the other resistors at their exact values\n"
+         "  swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
+}
+
+void print_pairs_json(const std::vector<model::tune_pair>& pairs, const model::joint_solution& sol,
+                      const std::vector<model::tune_result>& results, std::ostream& out) {
+  nlohmann::json j;
+  j["rounds"] = sol.rounds;
+  nlohmann::json ps = nlohmann::json::array();
+  for (std::size_t k = 0; k < pairs.size(); ++k) ps.push_back(result_json(pairs[k].target, results[k]));
+  j["pairs"] = ps;
+  out << json_text(j) << '\n';
+}
+
 void run(const tune_options& opt, std::ostream& out) {
-  const model::tune_target target = parse_target(opt.target_text);
+  for (const std::string& t : opt.target_texts) (void)parse_target(t);
   const base::eseries series = base::parse_series(opt.series);
   const model::stage st = load_stage(opt.input);
-  // In a chain, a stage's own key without its stage belongs to the target's stage.
-  std::string adjust = opt.adjust;
-  if (st.is_chain() && adjust.rfind("stage", 0) != 0 && adjust != "supply.resistance" && adjust != "output.load") {
-    if (target.stage < 0)
-      throw input_error("--adjust " + adjust + ": the file is a chain of " + std::to_string(st.stage_count()) +
-                        " stages: name the stage, as --adjust stage1." + adjust + " (or the target's, --target stage1." +
-                        opt.target_text + ")");
-    adjust = model::stage_key(st, target.stage, adjust);
-  }
+  const std::vector<model::tune_pair> pairs = pairs_of(opt, st);
   if (opt.over_spread) {
     const model::spread_settings ss = spread_settings_from(opt.batch, st, opt.input);
-    const model::trim_result t = model::size_trimmer(st, adjust, target, ss, series);
-    if (opt.json) return print_trim_json(target, ss, t, out);
-    return print_trim_text(st, target, ss, t, series, out);
+    if (pairs.size() == 1) {
+      const model::trim_result t = model::size_trimmer(st, pairs[0].adjust, pairs[0].target, ss, series);
+      if (opt.json) return print_trim_json(pairs[0].target, ss, t, out);
+      return print_trim_text(st, pairs[0].target, ss, t, series, out);
+    }
+    const model::trim_set set = model::size_trimmers(st, pairs, ss, series);
+    if (opt.json) return print_trim_set_json(pairs, ss, set, out);
+    return print_trim_set_text(st, pairs, ss, set, series, out);
   }
-  const model::tune_result r = model::tune_resistor(st, adjust, target, series);
-  if (opt.json) return print_json(target, r, out);
-  print_text(st, target, r, out);
+  if (pairs.size() == 1) {
+    const model::tune_result r = model::tune_resistor(st, pairs[0].adjust, pairs[0].target, series);
+    if (opt.json) return print_json(pairs[0].target, r, out);
+    return print_text(st, pairs[0].target, r, out);
+  }
+  const model::joint_solution sol = model::solve_resistors(st, pairs);
+  if (!sol.settled)
+    throw input_error("the resistors did not settle on their targets together in " + std::to_string(sol.rounds) +
+                      " rounds: the targets pull against each other; try them one at a time to see which");
+  // Each pair's table: its resistor solved with the others held at their joint values (the
+  // joint solution is a fixed point, so the exact value is the same), with its series values.
+  std::vector<model::tune_result> results;
+  for (std::size_t k = 0; k < pairs.size(); ++k) {
+    model::stage others = st;
+    for (std::size_t m = 0; m < pairs.size(); ++m)
+      if (m != k) *model::resistor_field(others, pairs[m].adjust) = sol.ohm[m];
+    results.push_back(model::tune_resistor(others, pairs[k].adjust, pairs[k].target, series));
+  }
+  if (opt.json) return print_pairs_json(pairs, sol, results, out);
+  print_pairs_text(st, pairs, sol, results, out);
 }
 
 }  // namespace

@@ -111,18 +111,21 @@ inline model::tune_target parse_target(std::string_view full) {
 }
 
 /// "vd=3.5..5.5", "gain=15..", "swing=2.." with QUANTITY a model::spread_quantities() name
-/// (SI values; gain in dB, thd in %).
+/// (SI values; gain in dB, thd in %); in a chain a stage's own quantity names its stage,
+/// "stage2.vd=3.5..5.5" (which stages there are is the model's to check).
 inline model::requirement parse_requirement(std::string_view text) {
   const auto eq = text.find('=');
   const std::string name(text.substr(0, eq));
+  const model::named_quantity n = model::split_quantity_name(name);
   const auto& qs = model::spread_quantities();
-  const auto q = std::find_if(qs.begin(), qs.end(), [&](const model::quantity_def& d) { return name == d.name; });
-  if (eq == std::string_view::npos || q == qs.end()) {
+  if (eq == std::string_view::npos || n.def == nullptr) {
     std::string names;
     for (const auto& d : qs) names += (names.empty() ? "" : ", ") + std::string(d.name);
     throw input_error("--require '" + std::string(text) + "': expected QUANTITY=LO..HI with QUANTITY one of " + names +
-                      " (for example --require vd=3.5..5.5 or --require gain=15..)");
+                      " (for example --require vd=3.5..5.5 or --require gain=15..; in a chain a stage's own, "
+                      "--require stage2.vd=3.5..5.5)");
   }
+  const model::quantity_def* q = n.def;
   model::requirement r;
   r.quantity = name;
   const std::string_view range = text.substr(eq + 1);

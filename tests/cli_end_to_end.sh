@@ -55,6 +55,22 @@ check "render refuses an existing output" 2 "$bin" render "$presets/bass-booster
 [ -s "$tmp/out" ] && { echo "FAIL: output written for a refused render"; fail=1; }
 check "measure of a non-audio file" 2 "$bin" measure "$tmp/typo.toml"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for a non-audio file"; fail=1; }
+# A chain through the time-domain commands: the output at the load, the chain named as one.
+chain="$presets/two-stage-boost-9v.toml"
+check "sweep --json of a chain" 0 "$bin" sweep "$chain" --steps 4 --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert all(len(p["stages"]) == 2 and all(k in s for s in p["stages"] for k in ("output_vpk","thd_percent","harmonics_dbc","clean")) for p in j["points"]) and len(j["stages"]) == 2' "$tmp/out" || { echo "FAIL: sweep --json of a chain has no stages"; fail=1; }
+check "sweep --plot of a chain" 0 "$bin" sweep "$chain" --steps 4 --plot "$tmp/sc.svg"
+grep -q "THD at each stage" "$tmp/sc.svg" && grep -q "second stage" "$tmp/sc.svg" || { echo "FAIL: sweep plot of a chain has no stage panel"; fail=1; }
+check "imd of a chain" 0 "$bin" imd "$chain" --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert j["imd_percent"] > 0' "$tmp/out" || { echo "FAIL: imd of a chain"; fail=1; }
+check "compare with a chain" 0 "$bin" compare "$chain" "$presets/bass-booster-9v.toml"
+grep -q "VD (each stage) .* / " "$tmp/out" || { echo "FAIL: compare shows one stage's VD for a chain"; cat "$tmp/out"; fail=1; }
+check "compare --json with a chain" 0 "$bin" compare "$chain" "$presets/bass-booster-9v.toml" --json
+python3 -c 'import json,sys; d=json.load(open(sys.argv[1]))["designs"]; assert len(d[0]["stages"]) == 2 and "operating_point" not in d[0] and "operating_point" in d[1] and abs(d[0]["output_dbu"]+10)<0.01' "$tmp/out" || { echo "FAIL: compare --json with a chain"; fail=1; }
+check "render of a chain" 0 "$bin" render "$chain" --input "$tmp/tone.wav" --output "$tmp/chain.wav"
+grep -q "through a chain of 2 stages" "$tmp/out" && ! grep -q "distorting stage" "$tmp/out" || { echo "FAIL: render of a chain calls it a stage"; cat "$tmp/out"; fail=1; }
+check "measure --against a chain" 0 "$bin" measure "$tmp/chain.wav" --against "$chain" --drive 1Vpk
+grep -q "predicted output .* at the load" "$tmp/out" && grep -q "not the chain" "$tmp/out" || { echo "FAIL: measure --against a chain"; cat "$tmp/out"; fail=1; }
 check "version" 0 "$bin" --version
 printf 'rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,0.16m\n' > "$tmp/jig.csv"
 check "fit" 0 "$bin" fit "$tmp/jig.csv"

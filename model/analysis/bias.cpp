@@ -3,6 +3,7 @@
 #include <cmath>
 
 #include "base/units.hpp"
+#include "model/analysis/response.hpp"
 #include "model/analysis/warnings.hpp"
 
 namespace pinchoff::model {
@@ -18,6 +19,16 @@ bias_figures analyse_bias(const stage& st, std::optional<double> at_hz) {
     b.output_at_94_db_spl_vrms =
         std::fabs(b.ss.gain_midband) * st.capsule.sensitivity_v_per_pa * base::pa_rms_from_db_spl(94.0);
   b.warnings = operating_warnings(st, b.net, b.op);
+  // The pass band: the first falling crossing is the upper point, the last rising one below
+  // it the lower.
+  const response_result resp = analyse_response(b.net, b.op, 10.0, 1e5, 2);
+  for (const corner_crossing& c : resp.corners)
+    if (!c.is_low) {
+      b.high_3db_hz = c.frequency_hz;
+      break;
+    }
+  for (const corner_crossing& c : resp.corners)
+    if (c.is_low && (!b.high_3db_hz || c.frequency_hz < *b.high_3db_hz)) b.low_3db_hz = c.frequency_hz;
   b.at_hz = at_hz;
   if (at_hz) b.reactances = reactances_at(b.net, b.op, *at_hz);
   return b;

@@ -25,6 +25,9 @@ struct bias_figures {
   /// times the pressure times the mid-band (1 kHz) gain; 0 for another source.
   double output_at_94_db_spl_vrms{0};
   std::vector<std::string> warnings;       ///< operating_warnings (model/analysis/warnings.hpp)
+  /// The -3 dB points of the whole response (every capacitor at once, junction capacitances
+  /// too), re the mid-band gain; absent when the gain does not cross it in the analysis band.
+  std::optional<double> low_3db_hz, high_3db_hz;
   std::optional<double> at_hz;             ///< the frequency of `reactances`, when asked
   std::vector<cap_reactance> reactances;   ///< at at_hz
 };

@@ -238,6 +238,11 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
     const network net = build_network(st);
     const operating_point op = solve_operating_point(net);
     d.at = op.at;
+    if (net.stages.size() > 1)
+      for (const net_stage& ns : net.stages) {
+        d.stage_labels.push_back(ns.label);
+        d.stages_at.push_back(terminals_of(net, op.x, ns.jfet));
+      }
     const small_signal_figures ss = analyse_small_signal(net, op);
     d.gain_midband = ss.gain_midband;
     d.gain_midband_db = base::db_from_ratio(std::fabs(ss.gain_midband));

@@ -69,7 +69,11 @@ drive_search find_drive_for_output(const stage& st, const compare_settings& s, d
 drive_search find_drive_for_thd(const stage& st, const compare_settings& s, double thd_percent);
 
 struct design_figures {
-  terminal_point at;                 ///< DC operating point, real signs
+  terminal_point at;                 ///< DC operating point, real signs (a chain: its first JFET's)
+  /// A chain: each stage's label and its JFET's DC operating point, in signal order; empty
+  /// for a single stage.
+  std::vector<std::string> stage_labels;
+  std::vector<terminal_point> stages_at;
   double gain_midband{};             ///< V/V, signed (small signal, coupling caps shorted)
   double gain_midband_db{};
   double clean_swing_vpk{};          ///< headroom: largest clean symmetric swing at the load

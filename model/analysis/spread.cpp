@@ -134,11 +134,71 @@ stage apply_draw(const stage& st, const spread_draw& d) {
 
 const std::vector<quantity_def>& spread_quantities() {
   static const std::vector<quantity_def> q{
-      {"id", "id_a", "A"},         {"vd", "vd_v", "V"},       {"vs", "vs_v", "V"},
-      {"vds", "vds_v", "V"},       {"vgs", "vgs_v", "V"},     {"gain", "gain_db", "dB"},
-      {"swing", "swing_vpk", "V"}, {"thd", "thd_percent", "%"},
+      {"id", "id_a", "A", true},          {"vd", "vd_v", "V", true},        {"vs", "vs_v", "V", true},
+      {"vds", "vds_v", "V", true},        {"vgs", "vgs_v", "V", true},      {"gain", "gain_db", "dB", false},
+      {"swing", "swing_vpk", "V", false}, {"thd", "thd_percent", "%", false},
   };
   return q;
+}
+
+std::string spread_quantity_name(const stage& st, int k, const quantity_def& q) {
+  return q.per_stage ? stage_key(st, k, q.name) : std::string(q.name);
+}
+
+std::vector<std::string> spread_quantity_names(const stage& st) {
+  std::vector<std::string> names;
+  for (int k = 0; k < st.stage_count(); ++k)
+    for (const quantity_def& q : spread_quantities())
+      if (q.per_stage) names.push_back(spread_quantity_name(st, k, q));
+  for (const quantity_def& q : spread_quantities())
+    if (!q.per_stage) names.push_back(q.name);
+  return names;
+}
+
+named_quantity split_quantity_name(std::string_view name) {
+  named_quantity n;
+  if (name.size() > 6 && name.substr(0, 5) == "stage" && name[5] >= '1' && name[5] <= '9') {
+    std::size_t digits = 5;
+    while (digits < name.size() && name[digits] >= '0' && name[digits] <= '9') ++digits;
+    if (digits < name.size() && name[digits] == '.' && digits - 5 <= 2) {
+      n.stage = std::stoi(std::string(name.substr(5, digits - 5))) - 1;
+      name = name.substr(digits + 1);
+    }
+  }
+  for (const quantity_def& q : spread_quantities())
+    if (name == q.name) n.def = &q;
+  return n;
+}
+
+std::vector<requirement> resolve_requirements(const stage& st, const std::vector<requirement>& reqs) {
+  std::vector<requirement> out;
+  for (const requirement& r : reqs) {
+    const named_quantity n = split_quantity_name(r.quantity);
+    if (n.def == nullptr) throw setting_error("requirements", "'" + r.quantity + "' is not a quantity a run measures");
+    const std::string plain = n.def->name;
+    if (n.stage >= 0 && !n.def->per_stage)
+      throw setting_error("requirements", r.quantity + ": " + plain +
+                                              " is the whole design's, from the generator to the load: write " + plain +
+                                              "=LO..HI without a stage");
+    if (n.stage >= st.stage_count())
+      throw setting_error("requirements", r.quantity + ": " +
+                                              (st.is_chain() ? "the chain has " + std::to_string(st.stage_count()) +
+                                                                   " stages, so there is no stage " + std::to_string(n.stage + 1)
+                                                             : "the file describes one stage, so there is no stage " +
+                                                                   std::to_string(n.stage + 1)));
+    if (st.is_chain() && n.def->per_stage && n.stage < 0) {
+      std::string choices;
+      for (int k = 0; k < st.stage_count(); ++k)
+        choices += (k == 0 ? "" : k + 1 == st.stage_count() ? " or " : ", ") + spread_quantity_name(st, k, *n.def);
+      throw setting_error("requirements", r.quantity + ": the file is a chain of " + std::to_string(st.stage_count()) +
+                                              " stages, so name the stage whose " + plain + " it is: " + choices +
+                                              " (gain, swing and thd are the chain's, from the generator to the load)");
+    }
+    requirement q = r;
+    q.quantity = spread_quantity_name(st, std::max(n.stage, 0), *n.def);
+    out.push_back(q);
+  }
+  return out;
 }
 
 double percentile_sorted(const std::vector<double>& v, double p) {
@@ -152,6 +212,7 @@ double percentile_sorted(const std::vector<double>& v, double p) {
 spread_result run_spread(const stage& st, const spread_settings& s, const std::vector<requirement>& reqs,
                          const run_extra& extra) {
   validate(s, st);
+  const std::vector<requirement> resolved = resolve_requirements(st, reqs);
   spread_result res;
   res.runs.resize(static_cast<std::size_t>(s.runs));
   base::parallel_for(s.runs, s.threads, [&](int i) {
@@ -164,17 +225,24 @@ spread_result run_spread(const stage& st, const spread_settings& s, const std::v
       const operating_point op = solve_operating_point(net);
       const small_signal_figures ss = analyse_small_signal(net, op);
       const headroom_figures h = analyse_headroom(net, op);
-      run.values["id"] = op.at.id_a;
-      run.values["vd"] = op.at.vd_v;
-      run.values["vs"] = op.at.vs_v;
-      run.values["vds"] = op.at.vds_v;
-      run.values["vgs"] = op.at.vgs_v;
+      // Every stage's own terminals; "in saturation" must hold for each of them.
+      bool saturated = true;
+      for (int k = 0; k < st.stage_count(); ++k) {
+        const int device = net.stages.empty() ? k : net.stages[static_cast<std::size_t>(k)].jfet;
+        const terminal_point at = k == 0 && device == 0 ? op.at : terminals_of(net, op.x, device);
+        run.values[stage_key(st, k, "id")] = at.id_a;
+        run.values[stage_key(st, k, "vd")] = at.vd_v;
+        run.values[stage_key(st, k, "vs")] = at.vs_v;
+        run.values[stage_key(st, k, "vds")] = at.vds_v;
+        run.values[stage_key(st, k, "vgs")] = at.vgs_v;
+        saturated = saturated && at.region == jfet_region::saturation;
+      }
       run.values["gain"] = base::db_from_ratio(std::fabs(ss.gain_midband));
       run.values["swing"] = h.symmetric_output_vpk;
       if (extra) extra(drawn, run.values);
       run.solved = true;
-      run.meets = op.at.region == jfet_region::saturation;
-      for (const requirement& r : reqs) {
+      run.meets = saturated;
+      for (const requirement& r : resolved) {
         const auto it = run.values.find(r.quantity);
         if (it == run.values.end() || !(it->second >= r.lo && it->second <= r.hi)) run.meets = false;
       }
@@ -188,13 +256,13 @@ spread_result run_spread(const stage& st, const spread_settings& s, const std::v
     if (r.meets) ++meets;
   }
   res.yield = static_cast<double>(meets) / s.runs;
-  for (const quantity_def& q : spread_quantities()) {
+  for (const std::string& name : spread_quantity_names(st)) {
     std::vector<double> v;
     for (const spread_run& r : res.runs)
-      if (auto it = r.values.find(q.name); it != r.values.end() && std::isfinite(it->second)) v.push_back(it->second);
+      if (auto it = r.values.find(name); it != r.values.end() && std::isfinite(it->second)) v.push_back(it->second);
     if (v.empty()) continue;
     std::sort(v.begin(), v.end());
-    res.stats[q.name] = {percentile_sorted(v, 5), percentile_sorted(v, 50), percentile_sorted(v, 95), v.front(),
+    res.stats[name] = {percentile_sorted(v, 5), percentile_sorted(v, 50), percentile_sorted(v, 95), v.front(),
                          v.back(), static_cast<int>(v.size())};
   }
   return res;
@@ -205,28 +273,17 @@ const std::vector<double>& standard_trimmers_ohm() {
   return t;
 }
 
-trim_result size_trimmer(const stage& st, std::string_view adjust_key, const tune_target& target,
-                         const spread_settings& s, base::eseries series) {
-  validate(s, st);
-  if (target.kind == target_kind::center)
-    throw setting_error("target", "sizing a trimmer over a batch needs a bias target such as vd=4.5 or id=1m, not center");
-  trim_result res;
-  res.adjust = std::string(adjust_key);
-  res.exact_ohm.assign(static_cast<std::size_t>(s.runs), NAN);
-  // The adjusted resistor itself is what the trimmer sets: its tolerance does not apply.
-  base::parallel_for(s.runs, s.threads, [&](int i) {
-    const spread_draw d = draw_part(s, st, i);
-    try {
-      res.exact_ohm[static_cast<std::size_t>(i)] = solve_resistor(apply_draw(st, d), adjust_key, target);
-    } catch (const input_error&) {
-      // Unreachable for this part: counted below.
-    }
-  });
+namespace {
+
+bool covers(const trim_result& t, double r) noexcept { return r >= t.fixed_ohm && r <= t.fixed_ohm + t.trimmer_ohm; }
+
+// The fixed resistor and trimmer that cover a pair's exact values.
+void fit_trimmer(trim_result& res, base::eseries series, int runs) {
   std::vector<double> ok;
   for (double r : res.exact_ohm)
     if (std::isfinite(r)) ok.push_back(r);
   res.reachable = static_cast<int>(ok.size());
-  if (ok.empty()) throw input_error("no part of the spread can reach " + target_text(target) + " by adjusting " + res.adjust);
+  if (ok.empty()) return;
   std::sort(ok.begin(), ok.end());
   res.r_min = ok.front();
   res.r_max = ok.back();
@@ -244,9 +301,82 @@ trim_result size_trimmer(const stage& st, std::string_view adjust_key, const tun
     }
   int covered = 0;
   for (double r : ok)
-    if (r >= res.fixed_ohm && r <= res.fixed_ohm + res.trimmer_ohm) ++covered;
-  res.coverage = static_cast<double>(covered) / s.runs;
-  return res;
+    if (covers(res, r)) ++covered;
+  res.coverage = static_cast<double>(covered) / runs;
+}
+
+}  // namespace
+
+trim_set size_trimmers(const stage& st, const std::vector<tune_pair>& pairs, const spread_settings& s,
+                       base::eseries series) {
+  validate(s, st);
+  if (pairs.empty()) throw setting_error("target", "give a target to size a trimmer for");
+  for (const tune_pair& p : pairs)
+    if (p.target.kind == target_kind::center)
+      throw setting_error("target", "sizing a trimmer over a batch needs a bias target such as vd=4.5 or id=1m, not center");
+  validate_pairs(st, pairs);
+  // Named keys and stages are checked once on the design, before any part is drawn.
+  for (const tune_pair& p : pairs) {
+    stage probe = st;
+    if (resistor_field(probe, p.adjust) == nullptr) (void)solve_resistor(st, p.adjust, p.target);
+    (void)target_stage(st, p.adjust, p.target);
+  }
+  trim_set set;
+  set.trims.resize(pairs.size());
+  for (std::size_t k = 0; k < pairs.size(); ++k) {
+    set.trims[k].adjust = pairs[k].adjust;
+    set.trims[k].exact_ohm.assign(static_cast<std::size_t>(s.runs), NAN);
+  }
+  std::vector<int> rounds(static_cast<std::size_t>(s.runs), 0);
+  std::vector<char> unsettled(static_cast<std::size_t>(s.runs), 0);
+  // The adjusted resistors themselves are what the trimmers set: their tolerance does not apply.
+  base::parallel_for(s.runs, s.threads, [&](int i) {
+    const spread_draw d = draw_part(s, st, i);
+    try {
+      const joint_solution sol = solve_resistors(apply_draw(st, d), pairs);
+      rounds[static_cast<std::size_t>(i)] = sol.rounds;
+      if (!sol.settled) {
+        unsettled[static_cast<std::size_t>(i)] = 1;
+        return;
+      }
+      for (std::size_t k = 0; k < pairs.size(); ++k) set.trims[k].exact_ohm[static_cast<std::size_t>(i)] = sol.ohm[k];
+    } catch (const input_error&) {
+      // Unreachable for this part: counted below.
+    }
+  });
+  for (int i = 0; i < s.runs; ++i) {
+    set.most_rounds = std::max(set.most_rounds, rounds[static_cast<std::size_t>(i)]);
+    set.unsettled += unsettled[static_cast<std::size_t>(i)];
+    if (std::isfinite(set.trims[0].exact_ohm[static_cast<std::size_t>(i)])) ++set.settled;
+  }
+  if (set.settled == 0) {
+    if (pairs.size() == 1)
+      throw input_error("no part of the spread can reach " + target_text(pairs[0].target) + " by adjusting " +
+                        pairs[0].adjust);
+    std::string what;
+    for (const tune_pair& p : pairs) what += (what.empty() ? "" : ", ") + target_text(p.target) + " by " + p.adjust;
+    throw input_error("no part of the spread can reach every target together (" + what + ")" +
+                      (set.unsettled > 0 ? ": the adjustments of " + std::to_string(set.unsettled) +
+                                               " parts did not settle in " + std::to_string(joint_max_rounds) + " rounds"
+                                         : std::string()));
+  }
+  for (trim_result& t : set.trims) fit_trimmer(t, series, s.runs);
+  int all = 0;
+  for (int i = 0; i < s.runs; ++i) {
+    bool every = true;
+    for (const trim_result& t : set.trims) {
+      const double r = t.exact_ohm[static_cast<std::size_t>(i)];
+      every = every && std::isfinite(r) && covers(t, r);
+    }
+    if (every) ++all;
+  }
+  set.coverage_all = static_cast<double>(all) / s.runs;
+  return set;
+}
+
+trim_result size_trimmer(const stage& st, std::string_view adjust_key, const tune_target& target,
+                         const spread_settings& s, base::eseries series) {
+  return size_trimmers(st, {tune_pair{std::string(adjust_key), target}}, s, series).trims.front();
 }
 
 }  // namespace pinchoff::model

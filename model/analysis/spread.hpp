@@ -62,14 +62,37 @@ struct quantity_def {
   const char* name;      ///< "vd"
   const char* json_key;  ///< "vd_v"
   const char* unit;      ///< "V"
+  bool per_stage;        ///< a JFET's own terminal quantity (id, vd, vs, vds, vgs); else the whole design's
 };
 const std::vector<quantity_def>& spread_quantities();
 
+/// A quantity's name as a run's values hold it: "vd" for a single stage; in a chain
+/// "stage2.vd" (stage k counted from 0) for a stage's own quantities, while gain, swing and
+/// thd stay the chain's (generator to load) and keep their plain names.
+std::string spread_quantity_name(const stage& st, int k, const quantity_def& q);
+/// Every name a run of `st` measures, in report order: a chain's stages one after the other,
+/// then the chain's gain, swing and thd.
+std::vector<std::string> spread_quantity_names(const stage& st);
+
+/// A quantity name split into its stage (counted from 0; -1 when none is named) and its
+/// definition ("stage2.vd": 1 and vd). nullptr for a name that is none.
+struct named_quantity {
+  int stage{-1};
+  const quantity_def* def{nullptr};
+};
+named_quantity split_quantity_name(std::string_view name);
+
 /// A condition a good build meets: lo <= value <= hi (an open end is infinite).
 struct requirement {
-  std::string quantity;  ///< a spread_quantities() name
+  std::string quantity;  ///< a spread_quantities() name, with "stageN." before a stage's own in a chain
   double lo{-INFINITY}, hi{INFINITY};
 };
+
+/// The requirements as the runs of `st` name them: a chain's stage quantity must name its
+/// stage (which one is the builder's to say: the stages of a chain bias differently), a
+/// single stage's may say stage1. Throws setting_error of the field "requirements" naming
+/// the choices.
+std::vector<requirement> resolve_requirements(const stage& st, const std::vector<requirement>& reqs);
 
 struct spread_run {
   int index{};
@@ -77,7 +100,7 @@ struct spread_run {
   bool solved{false};
   std::string failure;           ///< why not solved
   std::map<std::string, double> values;  ///< by quantity name
-  bool meets{false};             ///< solved, in saturation, and every requirement met
+  bool meets{false};             ///< solved, every JFET in saturation, and every requirement met
 };
 
 struct quantity_stats {
@@ -87,8 +110,8 @@ struct quantity_stats {
 
 struct spread_result {
   std::vector<spread_run> runs;
-  std::map<std::string, quantity_stats> stats;  ///< by quantity name
-  double yield{};        ///< fraction of runs that meet every requirement (in saturation)
+  std::map<std::string, quantity_stats> stats;  ///< by quantity name (spread_quantity_names)
+  double yield{};        ///< fraction of runs that meet every requirement (every JFET in saturation)
   int unsolved{};
 };
 
@@ -120,5 +143,18 @@ struct trim_result {
 /// The target must be a bias quantity (not center: a setting_error of the field "target").
 trim_result size_trimmer(const stage& st, std::string_view adjust_key, const tune_target& target,
                          const spread_settings& s, base::eseries series);
+
+/// One trimmer per pair over the same drawn batch: for every part, the resistors that put
+/// every target in place together (solve_resistors: pairs that interact are solved jointly),
+/// then per pair a fixed resistor and a trimmer as size_trimmer gives.
+struct trim_set {
+  std::vector<trim_result> trims;  ///< one per pair, in the order given
+  int settled{};                   ///< parts whose pairs all reached their targets together
+  int unsettled{};                 ///< parts whose joint solve did not settle in joint_max_rounds
+  int most_rounds{};               ///< the most rounds any part's joint solve took
+  double coverage_all{};           ///< fraction of all runs every pair's trimmer brings to its target
+};
+trim_set size_trimmers(const stage& st, const std::vector<tune_pair>& pairs, const spread_settings& s,
+                       base::eseries series);
 
 }  // namespace pinchoff::model

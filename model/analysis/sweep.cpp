@@ -2,7 +2,11 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
+#include <numbers>
 #include <numeric>
+#include <optional>
+#include <span>
 #include <thread>
 
 #include "base/error.hpp"
@@ -10,8 +14,10 @@
 #include "dsp/fft.hpp"
 #include "dsp/harmonics.hpp"
 #include "model/circuit/network.hpp"
+#include "model/circuit/nodal.hpp"
 #include "model/circuit/operating_point.hpp"
 #include "model/analysis/spread.hpp"
+#include "model/engine/dk_probes.hpp"
 #include "model/engine/steady_state.hpp"
 
 namespace pinchoff::model {
@@ -57,15 +63,18 @@ int record_samples(double frequency_hz, double sample_rate_hz, int cycles, int h
   return record_samples(frequency_hz, sample_rate_hz, cycles);
 }
 
-std::size_t sweep_point_bytes(int samples_per_record) {
-  // drive, output and the spectrum (m/2 + 1 complex), and what one transform allocates
+std::size_t sweep_point_bytes(int samples_per_record, int stages_probed) {
+  // drive, output and the spectrum (m/2 + 1 complex), and what one transform allocates;
+  // probed stages add their JFETs' ports (2 a stage), their traced outputs and one record
   const std::size_t m = static_cast<std::size_t>(std::max(samples_per_record, 1));
-  return 24 * m + dsp::forward_work_bytes(m);
+  const std::size_t k = static_cast<std::size_t>(std::max(stages_probed, 0));
+  return 24 * m + dsp::forward_work_bytes(m) + (k > 0 ? (24 * k + 8) * m : 0);
 }
 
-int concurrent_points(int threads, int samples_per_record) {
+int concurrent_points(int threads, int samples_per_record, int stages_probed) {
   const int cores = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
-  const int fit = static_cast<int>(std::max<std::size_t>(1, sweep_working_bytes / sweep_point_bytes(samples_per_record)));
+  const int fit = static_cast<int>(
+      std::max<std::size_t>(1, sweep_working_bytes / sweep_point_bytes(samples_per_record, stages_probed)));
   return std::min(threads > 0 ? threads : cores, fit);
 }
 
@@ -130,6 +139,67 @@ sweep_plan plan_sweep(const sweep_settings& asked) {
 
 sweep_result run_sweep(const stage& st, const sweep_settings& s) { return run_sweep(st, plan_sweep(s)); }
 
+namespace {
+
+// Whether JFET `q` stays in its clean region over a period of recorded ports (network
+// frame, 2 * devices values a sample), and the limit it crosses furthest. The region and
+// the margins' scaling are headroom.cpp's. Returns the mean VGS (network frame).
+double judge_clean(const network& net, int jfet, std::span<const double> ports, stage_point& sp) {
+  const double vp = net.jfets[static_cast<std::size_t>(jfet)].device.vp_v;
+  const double scale = std::max(1.0, std::fabs(vp));
+  const std::size_t per = 2 * static_cast<std::size_t>(net.devices());
+  double worst = std::numeric_limits<double>::infinity();
+  sp.clean = true;
+  sp.limit = swing_limit_kind::none;
+  auto crossed = [&](double margin, swing_limit_kind kind) {
+    sp.clean = false;
+    if (margin < worst || sp.limit == swing_limit_kind::none) {
+      worst = margin;
+      sp.limit = kind;
+    }
+  };
+  double sum_vgs = 0.0;
+  std::size_t samples = 0;
+  for (std::size_t n = 0; n + per <= ports.size(); n += per, ++samples) {
+    const double vgs = ports[n + 2 * static_cast<std::size_t>(jfet)];
+    const double vds = ports[n + 2 * static_cast<std::size_t>(jfet) + 1];
+    sum_vgs += vgs;
+    if (vds < vgs - vp) crossed((vds - (vgs - vp)) / scale, swing_limit_kind::triode);
+    if (!(vgs > vp)) crossed((vgs - vp) / scale, swing_limit_kind::cutoff);
+    if (vgs > 0.0) crossed(-vgs / scale, swing_limit_kind::gate_forward);
+  }
+  return samples ? sum_vgs / static_cast<double>(samples) : 0.0;
+}
+
+// Each stage of a chain over the analysed period: the harmonics at its output, traced by
+// the probes from the period's recorded ports, and its clean region.
+std::vector<stage_point> analyse_stages(const network& net, const Eigen::VectorXd& op_x, const dk_probes& probes,
+                                        const steady_state_result& ss,
+                                        const std::vector<double>& drive, const dsp::real_fft& fft, double fs_hz,
+                                        int cycles, const dsp::coherent_settings& cs) {
+  const std::vector<double> v = probes.trace(ss.start_state, drive, ss.ports_network_v);
+  const std::size_t ns = net.stages.size(), m = drive.size();
+  std::vector<stage_point> out(ns);
+  std::vector<double> record(m);
+  for (std::size_t k = 0; k < ns; ++k) {
+    for (std::size_t n = 0; n < m; ++n) record[n] = v[n * ns + k];
+    const dsp::harmonic_analysis h = dsp::analyse_coherent(fft, record, fs_hz, static_cast<std::size_t>(cycles), cs);
+    stage_point& sp = out[k];
+    sp.output_vpk = h.fundamental_vpk;
+    sp.thd_ratio = h.thd_ratio;
+    sp.thd_percent = h.thd_percent;
+    sp.thd_db = h.thd_db;
+    sp.harmonics_dbc = h.harmonics_dbc;
+    const int j = net.stages[k].jfet;
+    const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
+    const double rest_vgs = node_v(op_x, q.gate) - node_v(op_x, q.source);
+    sp.bias_shift_v = net.sign * (judge_clean(net, j, ss.ports_network_v, sp) - rest_vgs);
+  }
+  return out;
+}
+
+}  // namespace
+
 sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
   const sweep_settings& s = plan.settings();
   sweep_result res;
@@ -148,16 +218,38 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
   cs.bandwidth_hz = s.bandwidth_hz;
 
   res.points.resize(s.drives_vpk.size());
+  // A chain's stages, when asked: probes of their outputs, shared by every point (const).
+  const bool per_stage = s.per_stage && net.stages.size() > 1;
+  std::optional<dk_probes> probes;
+  if (per_stage) {
+    std::vector<int> nodes;
+    for (const net_stage& ns : net.stages) nodes.push_back(ns.output);
+    probes.emplace(net, nodes, res.sample_rate_hz);
+  }
+  const int stages_probed = per_stage ? static_cast<int>(net.stages.size()) : 0;
   // One transform plan for every point (its forward() is thread-safe); each point on its own
   // engine. Points run at once only as many as fit the working memory.
   const dsp::real_fft fft(static_cast<std::size_t>(res.samples_per_record));
-  const int threads = concurrent_points(s.threads, res.samples_per_record);
+  const int threads = concurrent_points(s.threads, res.samples_per_record, stages_probed);
   base::parallel_for(static_cast<int>(s.drives_vpk.size()), threads, [&](int i) {
     dk_engine eng(net, op, res.sample_rate_hz);
     steady_state_options so;
     so.cycles = s.cycles;
     const double drive = s.drives_vpk[static_cast<std::size_t>(i)];
-    const steady_state_result ss = periodic_steady_state(eng, drive, res.samples_per_record, so);
+    steady_state_result ss;
+    std::vector<double> period;
+    if (per_stage) {
+      // The drive periodic_steady_state makes of the amplitude, sample for sample, kept to
+      // trace the probes.
+      const int m = res.samples_per_record;
+      period.resize(static_cast<std::size_t>(m));
+      for (int n = 0; n < m; ++n)
+        period[static_cast<std::size_t>(n)] = drive * std::sin(2.0 * std::numbers::pi * double(so.cycles) * n / m);
+      so.record_ports = true;
+      ss = periodic_steady_state(eng, period, so);
+    } else {
+      ss = periodic_steady_state(eng, drive, res.samples_per_record, so);
+    }
     const dsp::harmonic_analysis h = dsp::analyse_coherent(fft, ss.output_v, res.sample_rate_hz, s.cycles, cs);
     sweep_point& p = res.points[static_cast<std::size_t>(i)];
     p.drive_vpk = drive;
@@ -177,6 +269,7 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
     p.converged = ss.converged;
     p.used_settling = ss.used_settling;
     p.newton = ss.engine;
+    if (per_stage) p.stages = analyse_stages(net, op.x, *probes, ss, period, fft, res.sample_rate_hz, s.cycles, cs);
   });
 
   // THD crossings, on the points sorted by drive.
@@ -199,6 +292,20 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
     }
     res.crossings.push_back(c);
   }
+  // Each stage's first drive out of its clean region.
+  if (per_stage)
+    for (std::size_t k = 0; k < net.stages.size(); ++k) {
+      stage_sweep ss;
+      ss.label = net.stages[k].label;
+      for (const sweep_point* p : sorted)
+        if (!p->stages[k].clean) {
+          ss.leaves_clean = true;
+          ss.first_unclean_drive_vpk = p->drive_vpk;
+          ss.limit = p->stages[k].limit;
+          break;
+        }
+      res.stages.push_back(ss);
+    }
   return res;
 }
 

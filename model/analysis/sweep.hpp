@@ -9,9 +9,16 @@
 // snapped value reported; M is the nearest such length at which the same harmonics lie
 // within the bandwidth as at the frequency asked (record_samples below). Any M transforms
 // in O(M log M) (dsp/fft.hpp), and M is bounded (max_record_samples).
+//
+// A chain is simulated whole, with the output at the load. Asked for (per_stage), each of
+// its stages is also reported at its own output (net_stage::output: after its output
+// coupling capacitor, or its output tap), read from that same steady-state period by node
+// probes (model/engine/dk_probes.hpp): no more simulation, one more pass over the period.
 #include <cstddef>
+#include <string>
 #include <vector>
 
+#include "model/analysis/headroom.hpp"
 #include "model/engine/dk_stats.hpp"
 #include "model/circuit/stage.hpp"
 
@@ -27,6 +34,9 @@ struct sweep_settings {
   double bandwidth_hz{20000.0};     ///< harmonics above it are not counted (AES17)
   int cycles{3};                    ///< K
   int threads{0};                   ///< 0: one per core; results do not depend on it
+  /// A chain: also each stage's output and clean region (sweep_point::stages). Ignored for
+  /// a single stage.
+  bool per_stage{false};
 };
 
 /// The oversampling a sweep takes when none is asked (sweep_settings::automatic_oversample). What
@@ -46,6 +56,27 @@ inline constexpr double reference_fold_order = (8 * 48000.0 - 20000.0) / 1000.0;
 /// rate allows), ...
 void validate(const sweep_settings& s);
 
+/// One stage of a chain at one drive, over the steady-state period the point analyses.
+struct stage_point {
+  double output_vpk{};        ///< fundamental at the stage's output, peak
+  double thd_ratio{}, thd_percent{}, thd_db{};
+  std::vector<double> harmonics_dbc;  ///< H2..HN, as at the load; NaN above the bandwidth
+  double bias_shift_v{};      ///< the stage's mean VGS minus its rest value
+  /// The JFET stayed in its clean region (headroom.hpp: vds >= vgs - vp, vgs > vp,
+  /// vgs <= 0) at every sample of the period.
+  bool clean{true};
+  /// Not clean: the limit crossed furthest (margins scaled as headroom.hpp scales them).
+  swing_limit_kind limit{swing_limit_kind::none};
+};
+
+/// One stage of a chain over the whole sweep.
+struct stage_sweep {
+  std::string label;          ///< net_stage::label
+  bool leaves_clean{false};   ///< some point of the sweep is not clean
+  double first_unclean_drive_vpk{};  ///< the lowest drive of the sweep at which it is not
+  swing_limit_kind limit{swing_limit_kind::none};  ///< the limit at that drive
+};
+
 struct sweep_point {
   double drive_vpk{};
   double output_vpk{};       ///< fundamental at the load, peak
@@ -55,7 +86,7 @@ struct sweep_point {
   double alias_dbc{};        ///< non-harmonic energy within the bandwidth, re the fundamental
   double even_odd_ratio{};   ///< even-harmonic over odd-harmonic power (H2.. only)
   double dc_shift_v{};       ///< mean load voltage minus its rest value
-  double bias_shift_v{};     ///< mean VGS minus its rest value (gate rectification, squash)
+  double bias_shift_v{};     ///< mean VGS minus its rest value (gate rectification, squash); a chain: its first JFET's
   // Solver figures.
   double state_change_v{};   ///< remaining period-to-period state change
   int shooting_iterations{};
@@ -63,6 +94,8 @@ struct sweep_point {
   bool converged{};
   bool used_settling{};
   dk_stats newton;
+  /// A chain's stages in signal order (sweep_settings::per_stage); empty otherwise.
+  std::vector<stage_point> stages;
 };
 
 /// Drive and output where THD crosses a level, interpolated log-log between points.
@@ -81,6 +114,7 @@ struct sweep_result {
   int cycles{};               ///< K
   std::vector<sweep_point> points;  ///< in the order of the drives given
   std::vector<thd_crossing> crossings;  ///< 1 %, 3 %, 10 %
+  std::vector<stage_sweep> stages;  ///< as sweep_point::stages
 };
 
 /// Settings that passed validate(), with the rate and record they imply. Only plan_sweep
@@ -128,10 +162,11 @@ inline constexpr int max_record_samples = 1 << 21;
 /// Points of one sweep (or designs of one comparison) run at once only as many as fit in
 /// this much working memory.
 inline constexpr std::size_t sweep_working_bytes = std::size_t{1} << 30;
-/// The memory one point holds while it runs, for a record of that many samples.
-std::size_t sweep_point_bytes(int samples_per_record);
+/// The memory one point holds while it runs, for a record of that many samples, with
+/// `stages_probed` stages of a chain reported (sweep_settings::per_stage; 0: none).
+std::size_t sweep_point_bytes(int samples_per_record, int stages_probed = 0);
 /// Threads for points at once: `threads` (0: one per core), fewer when their records would
 /// not fit sweep_working_bytes together (at least 1).
-int concurrent_points(int threads, int samples_per_record);
+int concurrent_points(int threads, int samples_per_record, int stages_probed = 0);
 
 }  // namespace pinchoff::model

@@ -174,6 +174,134 @@ double solve_resistor(const stage& s, std::string_view adjust_key, const tune_ta
   return exact;
 }
 
+double joint_tolerance(const tune_target& t) noexcept {
+  return 1e-6 * std::fabs(t.value) + (t.kind == target_kind::id ? 1e-9 : 1e-6);
+}
+
+void validate_pairs(const stage& s, const std::vector<tune_pair>& pairs) {
+  for (std::size_t i = 0; i < pairs.size(); ++i) {
+    stage probe = s;
+    if (resistor_field(probe, pairs[i].adjust) == nullptr) continue;  // solve_resistor names it
+    if (pairs.size() > 1 && pairs[i].target.kind == target_kind::center)
+      throw setting_error("target", "several resistors are solved together for bias targets such as vd=4.5 or id=1m; "
+                                    "center is a search of its own: give it alone");
+    for (std::size_t j = 0; j < i; ++j) {
+      if (pairs[j].adjust == pairs[i].adjust)
+        throw setting_error("adjust_key", pairs[i].adjust + " is adjusted twice: give each resistor once");
+      const int si = target_stage(s, pairs[i].adjust, pairs[i].target);
+      const int sj = target_stage(s, pairs[j].adjust, pairs[j].target);
+      if (si == sj && pairs[i].target.kind == pairs[j].target.kind) {
+        const std::string what = s.is_chain() ? stage_key(s, si, quantity_name(pairs[i].target.kind))
+                                              : std::string(quantity_name(pairs[i].target.kind));
+        throw setting_error("target", what + " is the target of two resistors (" + pairs[j].adjust + " and " +
+                                          pairs[i].adjust + "): give one resistor per target");
+      }
+    }
+  }
+}
+
+namespace {
+
+// One pair's resistor near `hint` (ohm), for the rounds of a joint solve, where every value
+// is close to the last: a bracket grown geometrically on log R from the hint, then the
+// Illinois variant of regula falsi (Dowell & Jarratt 1971) on log R until the target is
+// within a thousandth of joint_tolerance. Empty where the search leaves the range, meets a
+// value the stage refuses, or finds no sign change: the caller then takes the full search.
+std::optional<double> solve_near(const stage& s, std::string_view key, const tune_target& target, int at_stage,
+                                 double hint) {
+  const double lo = std::log(tune_min_ohm), hi = std::log(tune_max_ohm);
+  auto error = [&](double lr) -> std::optional<double> {
+    if (!(lr >= lo && lr <= hi)) return std::nullopt;
+    try {
+      stage t = s;
+      *resistor_field(t, key) = std::exp(lr);
+      validate(t);
+      return quantity(target, evaluate_point(s, key, std::exp(lr), false, at_stage)) - target.value;
+    } catch (const std::exception&) {
+      return std::nullopt;
+    }
+  };
+  const double ftol = 1e-3 * joint_tolerance(target);
+  double a = std::log(hint);
+  std::optional<double> fa = error(a);
+  if (!fa) return std::nullopt;
+  if (std::fabs(*fa) <= ftol) return hint;
+  double step = 0.02;
+  std::optional<double> fb = error(a + step);
+  if (!fb) return std::nullopt;
+  double b = a + step;
+  const double dir = std::fabs(*fb) < std::fabs(*fa) ? 1.0 : -1.0;
+  for (int tries = 0; (*fa < 0) == (*fb < 0); ++tries) {
+    if (tries > 40) return std::nullopt;
+    if (dir > 0) {
+      a = b;
+      fa = fb;
+    }
+    step *= 2;
+    b = a + dir * step;
+    fb = error(b);
+    if (!fb) return std::nullopt;
+  }
+  // a and b bracket the root (fa, fb of opposite signs).
+  for (int it = 0; it < 100; ++it) {
+    const double c = (a * *fb - b * *fa) / (*fb - *fa);
+    const std::optional<double> fc = error(c);
+    if (!fc) return std::nullopt;
+    if (std::fabs(*fc) <= ftol || std::fabs(b - a) < 1e-12) return std::exp(c);
+    if ((*fc < 0) != (*fb < 0)) {
+      a = b;
+      fa = fb;
+    } else {
+      *fa *= 0.5;
+    }
+    b = c;
+    fb = fc;
+  }
+  return std::nullopt;
+}
+
+}  // namespace
+
+joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pairs) {
+  validate_pairs(s, pairs);
+  joint_solution sol;
+  stage t = s;
+  sol.ohm.assign(pairs.size(), NAN);
+  if (pairs.size() == 1) {
+    sol.ohm[0] = solve_resistor(t, pairs[0].adjust, pairs[0].target);
+    sol.rounds = 1;
+    sol.settled = true;
+    return sol;
+  }
+  std::vector<int> at(pairs.size());
+  for (std::size_t i = 0; i < pairs.size(); ++i) at[i] = target_stage(s, pairs[i].adjust, pairs[i].target);
+  for (sol.rounds = 1; sol.rounds <= joint_max_rounds; ++sol.rounds) {
+    for (std::size_t i = 0; i < pairs.size(); ++i) {
+      // Near the value in place (the design's, then the last round's); else the full search.
+      double* field = resistor_field(t, pairs[i].adjust);
+      std::optional<double> near;
+      if (field != nullptr && *field > 0) near = solve_near(t, pairs[i].adjust, pairs[i].target, at[i], *field);
+      sol.ohm[i] = near ? *near : solve_resistor(t, pairs[i].adjust, pairs[i].target);
+      *resistor_field(t, pairs[i].adjust) = sol.ohm[i];
+    }
+    // Settled when every target holds with every value in place (the last pair's solve may
+    // have moved the others').
+    const network net = build_network(t);
+    const operating_point op = solve_operating_point(net);
+    bool settled = true;
+    for (std::size_t i = 0; i < pairs.size(); ++i) {
+      const tune_point p{sol.ohm[i], at[i] == 0 ? op.at : terminals_of(net, op.x, at[i]), {}};
+      settled = settled && std::fabs(quantity(pairs[i].target, p) - pairs[i].target.value) <= joint_tolerance(pairs[i].target);
+    }
+    if (settled) {
+      sol.settled = true;
+      return sol;
+    }
+  }
+  sol.rounds = joint_max_rounds;
+  return sol;
+}
+
 tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tune_target& target, base::eseries series) {
   const double exact = solve_resistor(s, adjust_key, target);
   tune_result res;

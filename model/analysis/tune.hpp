@@ -56,6 +56,41 @@ double solve_resistor(const stage& s, std::string_view adjust_key, const tune_ta
 /// The operating point (of stage `at_stage`) and headroom of the stage with one resistor replaced.
 tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm, int at_stage = 0);
 
+/// One resistor to solve for and the bias target it sets.
+struct tune_pair {
+  std::string adjust;   ///< an adjustable_resistor_keys() entry
+  tune_target target;
+};
+
+/// Several pairs solved together: every resistor at the value that puts every target in
+/// place at once.
+struct joint_solution {
+  std::vector<double> ohm;  ///< one per pair, in the order given
+  int rounds{};             ///< rounds of one-at-a-time solves taken
+  bool settled{false};      ///< every target within joint_tolerance of its value
+};
+
+/// When a joint solve has settled: each target quantity within 1e-6 of its value, relative,
+/// plus 1 µV (voltages) or 1 nA (currents), with every resistor at its solved value.
+double joint_tolerance(const tune_target& t) noexcept;
+/// The most rounds a joint solve takes before it gives up (settled = false).
+inline constexpr int joint_max_rounds = 30;
+
+/// Checks pairs for a joint solve: each resistor once, each target (stage and quantity) once,
+/// and bias targets only when there are several (center is a search of its own). Throws
+/// setting_error of the field "adjust_key" or "target".
+void validate_pairs(const stage& s, const std::vector<tune_pair>& pairs);
+
+/// Solves the pairs together. Pairs interact where one resistor moves another stage's bias
+/// (a shared supply or rail resistance, a DC-coupled stage, gate current), so they are solved
+/// one at a time in rounds (block Gauss-Seidel), each with the others held at their latest
+/// values, until every target is within joint_tolerance with all values in place; pairs that
+/// do not interact settle in the first round. Each solve looks first near the value in place
+/// (the design's, then the last round's: the root nearest it), and takes solve_resistor's
+/// full search where that finds none. One pair is solve_resistor itself. Throws input_error
+/// when a pair is out of reach (as solve_resistor does).
+joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pairs);
+
 /// The stage a target's terminals belong to: its own `stage`, else the adjusted key's
 /// ("stage2.drain.resistor": 1), else 0 for a single stage. A chain's shared key with no
 /// stage named is a setting_error of the field "target".

@@ -186,7 +186,7 @@ void check_job(const render_job& job) {
   if (job.level == output_level::fixed && outputs > 1) {
     const std::size_t n = job.stages.size();
     throw setting_error("level", "a fixed scale is for one output; several outputs (" + std::to_string(n) +
-                                     (n == 1 ? " stage" : " stages") + (job.dry_output ? " and the dry input" : "") +
+                                     (n == 1 ? " design" : " designs") + (job.dry_output ? " and the dry input" : "") +
                                      ") are loudness-matched instead");
   }
   if (job.level == output_level::fixed && job.match_loudness)

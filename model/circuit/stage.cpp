@@ -43,7 +43,9 @@ void validate_parts(const stage_parts& s, const std::string& prefix, bool last) 
   if (s.drain_shunt_cap_f > 0 && !(s.drain_resistor_ohm > 0))
     fail("drain.shunt_cap needs drain.resistor to sit across");
   if (last && s.output.coupling_cap_f > 0 && !(s.output.load_ohm > 0))
-    fail("output.coupling_cap needs output.load (otherwise the coupled output floats)");
+    fail(prefix.empty() ? "output.coupling_cap needs output.load (otherwise the coupled output floats)"
+                        : "output.coupling_cap needs the chain's load, the top-level [output] load (otherwise the coupled "
+                          "output floats)");
   if (s.rail.capacitance_f > 0 && !(s.rail.resistance_ohm > 0))
     fail("rail.capacitance needs rail.resistance (across the supply itself it filters nothing)");
 }

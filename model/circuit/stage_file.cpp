@@ -717,16 +717,28 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   if (st.name.empty()) st.name = std::string(source_name);
   st.file = std::string(source_name);
 
+  // A refusal that names a chain's stage ("stage2: ...", "the stage1.output node ...") points
+  // at that stage's [[stage]] header.
+  auto fail_in_stage = [&](const std::string& msg, std::string_view named) {
+    if (st.is_chain() && named.size() > 5 && named.substr(0, 5) == "stage") {
+      const std::size_t n = static_cast<std::size_t>(named[5] - '0');
+      const toml::array* arr = chain_node->as_array();
+      if (n >= 1 && n <= arr->size() && arr->get(n - 1)->source().begin.line != 0)
+        rd.fail_at(arr->get(n - 1)->source(), "stage", msg);
+    }
+    rd.fail_file(msg);
+  };
   try {
     validate(st);
   } catch (const input_error& e) {
-    rd.fail_file(e.what());
+    fail_in_stage(e.what(), e.what());
   }
   if (st.is_chain()) {
     const std::string node = floating_node(build_network(st));
     if (!node.empty())
-      rd.fail_file("the " + node + " node has no DC path to ground or the supply (only capacitors reach it): give it a "
-                   "resistor, such as a gate resistor or a shunt in 'between'");
+      fail_in_stage("the " + node + " node has no DC path to ground or the supply (only capacitors reach it): give it a "
+                    "resistor, such as a gate resistor or a shunt in 'between'",
+                    node);
   }
   return st;
 }

@@ -91,8 +91,8 @@ class dk_engine {
   double dc_output_v() const noexcept { return base().dc_output_v(); }
 
   const dk_stats& stats() const noexcept { return base().stats(); }
-  /// Which compiled sample loop runs: "AVX2+FMA" or "portable" (the general solver, more
-  /// than one JFET, is portable).
+  /// Which compiled sample loop runs: "AVX2+FMA" or "portable" (the general solver's
+  /// AVX2+FMA loop covers 2-6 JFETs; more take the portable one).
   const char* sample_loop() const noexcept {
     return std::visit([](const auto& s) { return s.sample_loop(); }, solver_);
   }

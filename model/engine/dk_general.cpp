@@ -17,12 +17,21 @@
 #include "model/engine/dk_general.hpp"
 #include "model/engine/dk_steps.hpp"
 
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
+#include <immintrin.h>
+#define PINCHOFF_DK_GENERAL_WIDE 1
+#else
+#define PINCHOFF_DK_GENERAL_WIDE 0
+#endif
+
 namespace pinchoff::model {
 namespace {
 
 // Compile-time sizes for K JFETs (K = 0: dynamic).
 constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
 constexpr int currents_of(int k) noexcept { return k > 0 ? 3 * k : Eigen::Dynamic; }
+// The LU's compile-time size (0: at run time).
+constexpr int lu_size_of(int k) noexcept { return k > 0 ? 2 * k : 0; }
 
 // JFET j's 3x2 block of the block-diagonal Jf: rows igs, igd, id; columns vgs, vds.
 void put_block(Eigen::MatrixXd& jf, int j, const detail::port_currents& c) noexcept {
@@ -54,7 +63,7 @@ void one_minus_f_jf(const Eigen::MatrixXd& f, const std::vector<detail::port_cur
 // N > 0: the size at compile time (the loops unroll; at these sizes loop overhead costs
 // more than the arithmetic); N = 0: n at run time.
 template <int N>
-double lu_factor_n(double* a, int n_rt, int* piv) noexcept {
+__attribute__((always_inline)) inline double lu_factor_n(double* a, int n_rt, int* piv) noexcept {
   const int n = N > 0 ? N : n_rt;
   double det = 1.0;
   for (int k = 0; k < n; ++k) {
@@ -73,11 +82,24 @@ double lu_factor_n(double* a, int n_rt, int* piv) noexcept {
       for (int c = 0; c < n; ++c) std::swap(a[k + c * n], a[p + c * n]);
     det *= best;
     const double inv = 1.0 / a[k + k * n];
-    a[k + k * n] = inv;
-    for (int r = k + 1; r < n; ++r) a[r + k * n] *= inv;
-    for (int c = k + 1; c < n; ++c) {
-      const double akc = a[k + c * n];
-      for (int r = k + 1; r < n; ++r) a[r + c * n] -= a[r + k * n] * akc;
+    if constexpr (N > 0) {
+      // Whole columns at the fixed size, the rows not to change multiplied by an exact 0
+      // (so they do not): a fixed trip count runs in whole packets, a triangular one did not.
+      double l[N > 0 ? N : 1];
+      for (int r = 0; r < N; ++r) l[r] = r > k ? a[r + k * N] * inv : 0.0;
+      for (int r = 0; r < N; ++r) a[r + k * N] = r > k ? l[r] : a[r + k * N];
+      a[k + k * N] = inv;
+      for (int c = k + 1; c < N; ++c) {
+        const double akc = a[k + c * N];
+        for (int r = 0; r < N; ++r) a[r + c * N] -= l[r] * akc;
+      }
+    } else {
+      a[k + k * n] = inv;
+      for (int r = k + 1; r < n; ++r) a[r + k * n] *= inv;
+      for (int c = k + 1; c < n; ++c) {
+        const double akc = a[k + c * n];
+        for (int r = k + 1; r < n; ++r) a[r + c * n] -= a[r + k * n] * akc;
+      }
     }
   }
   return det;
@@ -85,18 +107,93 @@ double lu_factor_n(double* a, int n_rt, int* piv) noexcept {
 
 // Solves (the matrix factored by lu_factor) x = b in place.
 template <int N>
-void lu_solve_n(const double* a, int n_rt, const int* piv, double* b) noexcept {
+__attribute__((always_inline)) inline void lu_solve_n(const double* a, int n_rt, const int* piv, double* b) noexcept {
   const int n = N > 0 ? N : n_rt;
   for (int k = 0; k < n; ++k)
     if (piv[k] != k) std::swap(b[k], b[piv[k]]);
+  if constexpr (N > 0) {
+    // Unrolled at the fixed size (the triangular loops' bounds then known).
+#pragma GCC unroll 16
+    for (int c = 0; c < N; ++c) {
+      const double bc = b[c];
+#pragma GCC unroll 16
+      for (int r = c + 1; r < N; ++r) b[r] -= a[r + c * N] * bc;
+    }
+#pragma GCC unroll 16
+    for (int c = N - 1; c >= 0; --c) {
+      b[c] *= a[c + c * N];
+      const double bc = b[c];
+#pragma GCC unroll 16
+      for (int r = 0; r < c; ++r) b[r] -= a[r + c * N] * bc;
+    }
+  } else {
+    for (int c = 0; c < n; ++c) {
+      const double bc = b[c];
+      for (int r = c + 1; r < n; ++r) b[r] -= a[r + c * n] * bc;
+    }
+    for (int c = n - 1; c >= 0; --c) {
+      b[c] *= a[c + c * n];
+      const double bc = b[c];
+      for (int r = 0; r < c; ++r) b[r] -= a[r + c * n] * bc;
+    }
+  }
+}
+
+// A bound on |A^-1| t (t >= 0, in place) from A's factors (lu_factor): with P A = L U,
+// A^-1 = U^-1 L^-1 P, so |A^-1| t <= |U^-1| |L^-1| P t, and for a triangular T,
+// |T^-1| <= M(T)^-1, M(T) the comparison matrix (|t_ii| on the diagonal, -|t_ij| off it;
+// Higham, Accuracy and Stability of Numerical Algorithms, 2nd ed., Thm 8.12, from memory).
+// So two triangular solves with the factors' magnitudes give the bound, without forming
+// A^-1: every term is non-negative, so nothing cancels.
+template <int N>
+__attribute__((always_inline)) inline void abs_bound_n(const double* a, int n_rt, const int* piv, double* b) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  for (int k = 0; k < n; ++k)
+    if (piv[k] != k) std::swap(b[k], b[piv[k]]);
+#pragma GCC unroll 16
   for (int c = 0; c < n; ++c) {
     const double bc = b[c];
-    for (int r = c + 1; r < n; ++r) b[r] -= a[r + c * n] * bc;
+#pragma GCC unroll 16
+    for (int r = c + 1; r < n; ++r) b[r] += std::fabs(a[r + c * n]) * bc;
   }
+#pragma GCC unroll 16
   for (int c = n - 1; c >= 0; --c) {
-    b[c] *= a[c + c * n];
+    b[c] *= std::fabs(a[c + c * n]);
     const double bc = b[c];
-    for (int r = 0; r < c; ++r) b[r] -= a[r + c * n] * bc;
+#pragma GCC unroll 16
+    for (int r = 0; r < c; ++r) b[r] += std::fabs(a[r + c * n]) * bc;
+  }
+}
+
+// |A^-1| t (t >= 0) from A's factors, forming A^-1 column by column in `scratch` (n x n):
+// the exact form of abs_bound_n's bound, for where that one is too coarse. Out of line.
+template <int N>
+__attribute__((noinline)) void exact_abs_bound(const double* a, int n, const int* piv, const double* t, double* scratch,
+                                               double* out) noexcept {
+  for (int c = 0; c < n; ++c) {
+    double* col = scratch + c * n;
+    for (int r = 0; r < n; ++r) col[r] = r == c ? 1.0 : 0.0;
+    lu_solve_n<N>(a, n, piv, col);
+  }
+  for (int r = 0; r < n; ++r) {
+    double sum = 0.0;
+    for (int c = 0; c < n; ++c) sum += std::fabs(scratch[r + c * n]) * t[c];
+    out[r] = sum;
+  }
+}
+
+// y (+)= A x for a column-major A of N (0: n_rt) rows and m columns: column by column, each
+// x_c broadcast once (Eigen's general product kernel, taken for these sizes, is not inlined
+// into the wide loop).
+template <int N, bool Add>
+__attribute__((always_inline)) inline void product_n(const double* __restrict a, int n_rt, int m,
+                                                     const double* __restrict x, double* __restrict y) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  if constexpr (!Add)
+    for (int r = 0; r < n; ++r) y[r] = 0.0;
+  for (int c = 0; c < m; ++c) {
+    const double xc = x[c];
+    for (int r = 0; r < n; ++r) y[r] += a[r + c * n] * xc;
   }
 }
 
@@ -129,36 +226,69 @@ void inverse_of(const Eigen::MatrixXd& lu, const std::vector<int>& piv, Eigen::M
   }
 }
 
-// out = a + M b for a column-major M of n_rt (N > 0: N) rows and m columns.
-template <int N>
-void add_product_n(const double* a, const double* md, int n_rt, int m, const double* b, double* out) noexcept {
-  const int n = N > 0 ? N : n_rt;
-  double acc[N > 0 ? N : 1];
-  if constexpr (N > 0) {
-    for (int r = 0; r < N; ++r) acc[r] = a ? a[r] : 0.0;
-    for (int c = 0; c < m; ++c) {
-      const double bc = b[c];
-      for (int r = 0; r < N; ++r) acc[r] += md[r + c * N] * bc;
-    }
-    for (int r = 0; r < N; ++r) out[r] = acc[r];
-  } else {
-    for (int r = 0; r < n; ++r) out[r] = a ? a[r] : 0.0;
-    for (int c = 0; c < m; ++c) {
-      const double bc = b[c];
-      for (int r = 0; r < n; ++r) out[r] += md[r + c * n] * bc;
-    }
+// The stacked update W [x; u; i] (column-major, `rows` rows, padded with zero rows) in two
+// parts, as on the one-JFET path: the x and u columns before the sample's Newton solve,
+// the current columns after it. Column by column: each input is broadcast once and the
+// column runs in whole packets; the sums in the same order in both kernel sets.
+void update_before_portable(const double* __restrict w, int rows, const double* __restrict xu, int cols,
+                            double* __restrict pre) noexcept {
+  for (int row = 0; row < rows; ++row) pre[row] = 0.0;
+  for (int c = 0; c < cols; ++c) {
+    const double x = xu[c];
+    const double* __restrict wc = w + static_cast<std::ptrdiff_t>(c) * rows;
+    for (int row = 0; row < rows; ++row) pre[row] += wc[row] * x;
   }
 }
 
-void add_product(const double* a, const Eigen::MatrixXd& mat, const double* b, double* out) noexcept {
-  const int n = static_cast<int>(mat.rows()), m = static_cast<int>(mat.cols());
-  switch (n) {
-    case 4: add_product_n<4>(a, mat.data(), n, m, b, out); return;
-    case 6: add_product_n<6>(a, mat.data(), n, m, b, out); return;
-    case 8: add_product_n<8>(a, mat.data(), n, m, b, out); return;
-    default: add_product_n<0>(a, mat.data(), n, m, b, out); return;
+void update_after_portable(const double* __restrict w, int rows, const double* __restrict pre,
+                           const double* __restrict cur, int cols, double* __restrict o) noexcept {
+  for (int row = 0; row < rows; ++row) o[row] = pre[row];
+  for (int c = 0; c < cols; ++c) {
+    const double x = cur[c];
+    const double* __restrict wc = w + static_cast<std::ptrdiff_t>(c) * rows;
+    for (int row = 0; row < rows; ++row) o[row] += wc[row] * x;
   }
 }
+
+#if PINCHOFF_DK_GENERAL_WIDE
+// AVX2 + FMA: rows padded to a multiple of 4; blocks of four packets (16 rows) held in
+// registers while the columns pass (four independent fused multiply-adds in flight), then
+// the last one to three packets the same way.
+template <int P>
+__attribute__((target("avx2,fma"), always_inline)) inline void update_block(const double* __restrict w, int rows,
+                                                                            const double* __restrict start,
+                                                                            const double* __restrict x, int cols,
+                                                                            double* __restrict o) noexcept {
+  __m256d a[P];
+  for (int q = 0; q < P; ++q) a[q] = start ? _mm256_load_pd(start + 4 * q) : _mm256_setzero_pd();
+  const double* wc = w;
+  for (int c = 0; c < cols; ++c, wc += rows) {
+    const __m256d xc = _mm256_broadcast_sd(x + c);
+    for (int q = 0; q < P; ++q) a[q] = _mm256_fmadd_pd(_mm256_load_pd(wc + 4 * q), xc, a[q]);
+  }
+  for (int q = 0; q < P; ++q) _mm256_store_pd(o + 4 * q, a[q]);
+}
+
+__attribute__((target("avx2,fma"))) void update_wide(const double* __restrict w, int rows,
+                                                     const double* __restrict start, const double* __restrict x,
+                                                     int cols, double* __restrict o) noexcept {
+  int r0 = 0;
+  for (; r0 + 16 <= rows; r0 += 16) update_block<4>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
+  switch ((rows - r0) / 4) {
+    case 3: update_block<3>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
+    case 2: update_block<2>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
+    case 1: update_block<1>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
+    default: break;
+  }
+}
+
+bool wide_available() noexcept {
+  __builtin_cpu_init();
+  return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
+}
+#else
+bool wide_available() noexcept { return false; }
+#endif
 
 }  // namespace
 
@@ -166,7 +296,9 @@ void general_solver::port_set::resize(int k) {
   v.setZero(2 * k);
   i.setZero(3 * k);
   jf.setZero(3 * k, 2 * k);
-  m.setIdentity(2 * k, 2 * k);
+  lu.setIdentity(2 * k, 2 * k);
+  piv.resize(static_cast<std::size_t>(2 * k));
+  for (int r = 0; r < 2 * k; ++r) piv[static_cast<std::size_t>(r)] = r;
 }
 
 general_solver::general_solver(const network& net, const operating_point& op, dk_matrices m, const dk_options& opt)
@@ -180,9 +312,17 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   g.f_abs = m_.f.cwiseAbs();
 
   // Stacked update as for one JFET: the state rows hold the increment x_n - x_{n-1}.
-  g.w = stacked_update(m_, ns + np + 1);
-  g.pre = Eigen::VectorXd::Zero(ns + np + 1);
-  g.out = Eigen::VectorXd::Zero(ns + np + 1);
+  wide_ = opt_.wide_kernels && wide_available();
+  g.rows = (ns + np + 1 + 3) / 4 * 4;
+  {
+    const Eigen::MatrixXd w = stacked_update(m_, g.rows);
+    g.w = detail::aligned_doubles(static_cast<std::size_t>(w.size()));
+    std::copy_n(w.data(), w.size(), g.w.data());
+  }
+  g.pre = detail::aligned_doubles(static_cast<std::size_t>(g.rows));
+  g.out = detail::aligned_doubles(static_cast<std::size_t>(g.rows));
+  std::fill_n(g.pre.data(), g.rows, 0.0);
+  std::fill_n(g.out.data(), g.rows, 0.0);
   in_ = Eigen::VectorXd::Zero(ns + 2 + ni);
 
   for (Eigen::VectorXd* v : {&g.q, &g.p, &g.p_last, &g.p_dc, &g.dp, &g.v, &g.r, &g.d, &g.base,
@@ -190,14 +330,32 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     v->setZero(np);
   g.rem.setZero(ni);
   g.mag.setZero(ni);
-  g.j.setZero(np, np);
-  g.piv.assign(static_cast<std::size_t>(np), 0);
   for (port_set* s : {&g.last, &g.dc, &g.trial, &g.cur_pt, &g.next_pt}) s->resize(k);
-  g.m_prev.setZero(np, np);
-  g.m_prev2.setZero(np, np);
+  g.lu_prev.setIdentity(np, np);
+  g.lu_prev2.setIdentity(np, np);
+  g.piv_prev = g.last.piv;
+  g.piv_prev2 = g.last.piv;
   g.mdl.setZero(np);
   g.cj.setZero(ns, np);
   g.md.setZero(np, ns);
+  g.mi.setZero(np, np);
+
+  // Far-reverse junctions, as on the one-JFET path (dk_single.cpp says why): below
+  // v / (n Vt) = skip_arg a junction is taken as -is with no conductance, which leaves out
+  // at most is exp(skip_arg), e^0.01 times that over an accepted step; both junctions of
+  // every JFET go through |F| into the acceptance bound (skip_t), and skip_arg is set so
+  // that the sum over the JFETs stays below a thousandth of tol_v (never above exp(-16)).
+  g.skip_t.setZero(np);
+  for (int j = 0; j < k; ++j) {
+    detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
+    const Eigen::VectorXd fa = g.f_abs.col(3 * j) + g.f_abs.col(3 * j + 1);
+    const double per_amp = 2.02 * fa.maxCoeff() * k;
+    if (dv.is_a > 0.0 && per_amp > 0.0) {
+      const double arg = std::log(1e-3 * opt_.tol_v / (per_amp * dv.is_a));
+      dv.skip_arg = std::clamp(arg, detail::junction_deep_reverse, -16.0);
+    }
+    g.skip_t += fa * (2.02 * dv.is_a * std::exp(dv.skip_arg));
+  }
 
   // DC point: states from the operating point, then the shared refinement on the engine's
   // own fixed-point equations (detail::refine_dc_point).
@@ -229,11 +387,9 @@ void general_solver::point_general(const Eigen::VectorXd& v, port_set& out) noex
     put_block(out.jf, j, c);
   }
   out.v = v;
-  one_minus_f_jf(m_.f, g.cur, g.j);
-  if (lu_factor(g.j.data(), k * 2, g.piv.data()) > 0.0)
-    inverse_of(g.j, g.piv, out.m);
-  else
-    out.m.setConstant(std::numeric_limits<double>::quiet_NaN());
+  one_minus_f_jf(m_.f, g.cur, out.lu);
+  if (!(lu_factor(out.lu.data(), k * 2, out.piv.data()) > 0.0))
+    out.lu.setConstant(std::numeric_limits<double>::quiet_NaN());
 }
 
 void general_solver::reset() {
@@ -242,8 +398,10 @@ void general_solver::reset() {
   g.q.noalias() = m_.d * x_dc_;
   g.last = g.dc;
   g.p_last = g.p_dc;
-  g.m_prev = g.dc.m;
-  g.m_prev2 = g.dc.m;
+  g.lu_prev = g.dc.lu;
+  g.lu_prev2 = g.dc.lu;
+  g.piv_prev = g.dc.piv;
+  g.piv_prev2 = g.dc.piv;
   stats_ = {};
 }
 
@@ -254,7 +412,8 @@ void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
   g_.cj.noalias() = m_.c * g_.last.jf;
-  g_.md.noalias() = g_.last.m * m_.d;
+  inverse_of(g_.last.lu, g_.last.piv, g_.mi);
+  g_.md.noalias() = g_.mi * m_.d;
   apply_factor(g_.cj, g_.md, sensitivity);
 }
 
@@ -306,7 +465,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
     }
     ++evals;
     r = p - v;
-    r.noalias() += f * i;
+    product_n<lu_size_of(K), true>(f.data(), np, ni, i.data(), r.data());
     const double rn = r.cwiseAbs().maxCoeff();
     // Damped Newton: halve a step that made the residual grow (or not finite).
     if (detail::halve_step(may_damp, rn, rn_base, tol, halvings)) {
@@ -319,7 +478,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
 
     // I - F Jf, column pair by column pair (Jf is block diagonal).
     {
-      double* jd = g.j.data();
+      double* jd = out.lu.data();
       for (int q = 0; q < k; ++q) {
         const detail::port_currents& c = g.cur[static_cast<std::size_t>(q)];
         for (int row = 0; row < np; ++row) {
@@ -329,9 +488,11 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         }
       }
     }
-    if (!(lu_factor(g.j.data(), np, g.piv.data()) > 1e-200)) return false;
+    // Its factors, straight into the point's (kept when this step is accepted), and the
+    // step d = (I - F Jf)^-1 r.
+    if (!(lu_factor_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data()) > 1e-200)) return false;
     d = r;
-    lu_solve(g.j.data(), np, g.piv.data(), d.data());
+    lu_solve_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), d.data());
     if (!d.allFinite()) return false;
 
     // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim), per JFET; the largest cut
@@ -366,25 +527,29 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       }
       // allowed: the rounding of each row, up to the allowance; t: the residual bound less
       // what is allowed (so t <= tol_v is the test of the residual).
-      allowed.noalias() = f_abs * mag;
+      product_n<lu_size_of(K), false>(f_abs.data(), np, ni, mag.data(), allowed.data());
       allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
-      t.noalias() = f_abs * rem;
+      product_n<lu_size_of(K), false>(f_abs.data(), np, ni, rem.data(), t.data());
+      t += Eigen::Map<const vec_p>(g.skip_t.data(), np);
       t += (allowed.array() - rounding_allowance_v).max(0.0).matrix();
       allowed = allowed.cwiseMin(rounding_allowance_v);
       if (t.maxCoeff() <= tol) {
-        inverse_of(g.j, g.piv, out.m);
-        const double* md = out.m.data();
-        for (int row = 0; row < np; ++row) {
-          double sum = 0.0;
-          for (int c = 0; c < np; ++c) sum += std::fabs(md[row + c * np]) * t[c];
-          bound[row] = sum;
-        }
+        // The bound on the error, |M| t with M = (I - F Jf)^-1, from the factors
+        // (abs_bound_n: no inverse formed). Where that bound is too coarse (the
+        // comparison matrices can overstate |U^-1| by far where U's entries cancel), |M| t
+        // itself, from M formed column by column.
+        bound = t;
+        abs_bound_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), bound.data());
+        if (!(bound.maxCoeff() <= tol)) [[unlikely]]
+          exact_abs_bound<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), t.data(), g.mi.data(), bound.data());
         if (bound.maxCoeff() <= tol) {
           if (opt_.confirm) {
             bound = v + d;  // the accepted point (bound is free now)
             for (int j = 0; j < k; ++j) {
-              const detail::port_currents cc =
-                  detail::evaluate_ports(g.dev[static_cast<std::size_t>(j)], bound[2 * j], bound[2 * j + 1]);
+              // The exact device (no far-reverse skip), so the check covers the skip's bound too.
+              detail::device_consts exact = g.dev[static_cast<std::size_t>(j)];
+              exact.skip_arg = detail::junction_deep_reverse;
+              const detail::port_currents cc = detail::evaluate_ports(exact, bound[2 * j], bound[2 * j + 1]);
               rem[3 * j] = cc.igs_a;
               rem[3 * j + 1] = cc.igd_a;
               rem[3 * j + 2] = cc.id_a;
@@ -392,7 +557,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
             }
             ++evals;
             t = p - bound;
-            t.noalias() += f * rem;
+            product_n<lu_size_of(K), true>(f.data(), np, ni, rem.data(), t.data());
             if (!(t.cwiseAbs().array() <= tol + allowed.array()).all()) {
               ++stats_.bound_misses;
             } else {
@@ -429,7 +594,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
 // A sample whose Newton did not converge: sub-steps from the last sample's solution
 // (detail::substep), on the solver's storage (no allocation).
 template <int K>
-void general_solver::substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept {
+__attribute__((noinline)) void general_solver::substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept {
   struct path {
     general_solver& s;
     const Eigen::VectorXd& p;
@@ -445,7 +610,9 @@ void general_solver::substep_general(const Eigen::VectorXd& p, port_set& out, in
       else
         g.pj = g.p_last + (p - g.p_last) * frac;
       g.dp = g.pj - g.pc;
-      add_product(g.cur_pt.v.data(), g.cur_pt.m, g.dp.data(), g.guess.data());
+      g.mdl = g.dp;
+      lu_solve_n<lu_size_of(K)>(g.cur_pt.lu.data(), static_cast<int>(g.dp.size()), g.cur_pt.piv.data(), g.mdl.data());
+      g.guess = g.cur_pt.v + g.mdl;
       if (!s.solve_general<K>(g.pj, g.guess, g.next_pt, evals)) return false;
       g.cur_pt = g.next_pt;
       g.pc = g.pj;
@@ -460,24 +627,18 @@ void general_solver::substep_general(const Eigen::VectorXd& p, port_set& out, in
 template <int K>
 double general_solver::process_k(double generator_v) noexcept {
   using vec_p = Eigen::Matrix<double, ports_of(K), 1>;
-  using mat_p = Eigen::Matrix<double, ports_of(K), ports_of(K)>;
   storage& g = g_;
   const int ns = m_.states, k = K > 0 ? K : m_.devices, np = 2 * k, ni = 3 * k;
-  const int rows = ns + np + 1;
+  const int rows = g.rows;
   const double ug = sign_ * generator_v;
   in_[ns + 1] = ug;
-  // W's x and u columns times [x; u], column by column (plain loops; see the file comment).
-  {
-    const double* __restrict w = g.w.data();
-    const double* __restrict xu = in_.data();
-    double* __restrict pre = g.pre.data();
-    for (int row = 0; row < rows; ++row) pre[row] = 0.0;
-    for (int c = 0; c < ns + 2; ++c) {
-      const double x = xu[c];
-      const double* __restrict wc = w + static_cast<std::ptrdiff_t>(c) * rows;
-      for (int row = 0; row < rows; ++row) pre[row] += wc[row] * x;
-    }
-  }
+  // W's x and u columns times [x; u].
+#if PINCHOFF_DK_GENERAL_WIDE
+  if (wide_)
+    update_wide(g.w.data(), rows, nullptr, in_.data(), ns + 2, g.pre.data());
+  else
+#endif
+    update_before_portable(g.w.data(), rows, in_.data(), ns + 2, g.pre.data());
   Eigen::Map<vec_p> p(g.p.data(), np), q(g.q.data(), np), p_last(g.p_last.data(), np), dp(g.dp.data(), np),
       guess(g.guess.data(), np);
   const Eigen::Map<const vec_p> e0(m_.e.col(0).data(), np), e1(m_.e.col(1).data(), np);
@@ -486,16 +647,17 @@ double general_solver::process_k(double generator_v) noexcept {
   // Warm start as for one JFET: the last solution moved along the step of p by dv/dp at
   // the last three samples (Adams-Bashforth weights warm_; dk_single.cpp, step_t).
   {
-    using map_m = Eigen::Map<const mat_p>;
     Eigen::Map<vec_p> mdl(g.mdl.data(), np);
     dp = p - p_last;
     guess = Eigen::Map<const vec_p>(g.last.v.data(), np);
-    mdl.noalias() = map_m(g.last.m.data(), np, np) * dp;
-    guess += warm_[0] * mdl;
-    mdl.noalias() = map_m(g.m_prev.data(), np, np) * dp;
-    guess += warm_[1] * mdl;
-    mdl.noalias() = map_m(g.m_prev2.data(), np, np) * dp;
-    guess += warm_[2] * mdl;
+    const double* lus[3] = {g.last.lu.data(), g.lu_prev.data(), g.lu_prev2.data()};
+    const int* pivs[3] = {g.last.piv.data(), g.piv_prev.data(), g.piv_prev2.data()};
+    for (int h = 0; h < 3; ++h) {
+      if (warm_[static_cast<std::size_t>(h)] == 0.0) continue;
+      mdl = dp;
+      lu_solve_n<lu_size_of(K)>(lus[h], np, pivs[h], mdl.data());
+      guess += warm_[static_cast<std::size_t>(h)] * mdl;
+    }
   }
 
   int evals = 0;
@@ -503,25 +665,25 @@ double general_solver::process_k(double generator_v) noexcept {
 
   // The dv/dp history for the next warm start: m_prev2 <- m_prev <- the last solution's
   // (a swap of storage and a copy of the same size: no allocation).
-  g.m_prev2.swap(g.m_prev);
-  g.m_prev = g.last.m;
+  g.lu_prev2.swap(g.lu_prev);
+  g.piv_prev2.swap(g.piv_prev);
+  g.lu_prev = g.last.lu;
+  g.piv_prev = g.last.piv;
   std::swap(g.last, g.trial);  // swaps storage: no copy, no allocation
   p_last = p;
 
   // The current columns of W times i, onto the pre-computed part.
   {
-    const double* __restrict w = g.w.data();
-    const double* __restrict pre = g.pre.data();
-    const double* __restrict cur = g.last.i.data();
-    double* __restrict o = g.out.data();
+    const double* w_i = g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows;
+#if PINCHOFF_DK_GENERAL_WIDE
+    if (wide_)
+      update_wide(w_i, rows, g.pre.data(), g.last.i.data(), ni, g.out.data());
+    else
+#endif
+      update_after_portable(w_i, rows, g.pre.data(), g.last.i.data(), ni, g.out.data());
     double* __restrict x_in = in_.data();
-    for (int row = 0; row < rows; ++row) o[row] = pre[row];
-    for (int c = 0; c < ni; ++c) {
-      const double x = cur[c];
-      x_in[ns + 2 + c] = x;
-      const double* __restrict wc = w + static_cast<std::ptrdiff_t>(ns + 2 + c) * rows;
-      for (int row = 0; row < rows; ++row) o[row] += wc[row] * x;
-    }
+    const double* __restrict o = g.out.data();
+    for (int c = 0; c < ni; ++c) x_in[ns + 2 + c] = g.last.i[c];
     for (int row = 0; row < ns; ++row) x_in[row] += o[row];
   }
   q = Eigen::Map<const vec_p>(g.out.data() + ns, np);
@@ -529,7 +691,7 @@ double general_solver::process_k(double generator_v) noexcept {
   ++stats_.samples;
   stats_.evaluations += evals;
   stats_.max_evaluations = std::max(stats_.max_evaluations, evals);
-  return sign_ * g.out[ns + np];
+  return sign_ * g.out.data()[ns + np];
 }
 
 // One block: the number of JFETs is dispatched once, then the samples in turn.
@@ -538,11 +700,43 @@ void general_solver::block_k(const double* in, double* out, std::size_t n) noexc
   for (std::size_t k = 0; k < n; ++k) out[k] = process_k<K>(in[k]);
 }
 
+// The same loop compiled for AVX2 + FMA as a whole (the Newton's small matrix loops run in
+// packets of 4 with fused multiply-adds), everything but the rare sub-stepping inlined into
+// it, as on the one-JFET path (dk_single.cpp says why flattening). It rounds differently
+// from the portable loop; a processor always takes the same one.
+#if PINCHOFF_DK_GENERAL_WIDE
+#if defined(PINCHOFF_NO_FLATTEN)
+#define PINCHOFF_DK_GENERAL_FLATTEN
+#else
+#define PINCHOFF_DK_GENERAL_FLATTEN flatten,
+#endif
+template <int K>
+__attribute__((PINCHOFF_DK_GENERAL_FLATTEN target("avx2,fma"))) void general_solver::block_wide(const double* in, double* out,
+                                                                                  std::size_t n) noexcept {
+  for (std::size_t k = 0; k < n; ++k) out[k] = process_k<K>(in[k]);
+}
+#undef PINCHOFF_DK_GENERAL_FLATTEN
+#endif
+
 void general_solver::process(const double* in, double* out, std::size_t n) noexcept {
+#if PINCHOFF_DK_GENERAL_WIDE
+  if (wide_) {
+    switch (m_.devices) {
+      case 2: return block_wide<2>(in, out, n);
+      case 3: return block_wide<3>(in, out, n);
+      case 4: return block_wide<4>(in, out, n);
+      case 5: return block_wide<5>(in, out, n);
+      case 6: return block_wide<6>(in, out, n);
+      default: break;
+    }
+  }
+#endif
   switch (m_.devices) {
     case 2: return block_k<2>(in, out, n);
     case 3: return block_k<3>(in, out, n);
     case 4: return block_k<4>(in, out, n);
+    case 5: return block_k<5>(in, out, n);
+    case 6: return block_k<6>(in, out, n);
     default: return block_k<0>(in, out, n);
   }
 }

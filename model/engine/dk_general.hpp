@@ -14,6 +14,7 @@
 #include <Eigen/Dense>
 
 #include "model/engine/dk_device.hpp"
+#include "model/engine/dk_single.hpp"
 #include "model/engine/dk_solver.hpp"
 
 namespace pinchoff::model {
@@ -29,37 +30,44 @@ class general_solver : public dk_solver_base {
   Eigen::Vector2d ports_network_v(int device) const noexcept {
     return Eigen::Vector2d(g_.last.v.segment<2>(2 * device));
   }
-  const char* sample_loop() const noexcept { return "portable"; }
+  const char* sample_loop() const noexcept { return wide_ && m_.devices <= 6 ? "AVX2+FMA" : "portable"; }
 
  private:
   struct port_set {
     Eigen::VectorXd v;   ///< 2k port voltages
     Eigen::VectorXd i;   ///< 3k device currents
     Eigen::MatrixXd jf;  ///< 3k x 2k, di/dv, block diagonal
-    Eigen::MatrixXd m;   ///< 2k x 2k, dv/dp = (I - F Jf)^-1
+    Eigen::MatrixXd lu;  ///< 2k x 2k: the LU factors of I - F Jf (dv/dp is its inverse)
+    std::vector<int> piv;  ///< the factors' row interchanges
     void resize(int k);
   };
   struct storage {
     std::vector<detail::device_consts> dev;
     std::vector<detail::port_currents> cur;     // per JFET, at the Newton iterate
     Eigen::MatrixXd f_abs;                      // |F|
-    Eigen::MatrixXd w;                          // [A - I, B, C; D A, D B, D C; Do, Eo, Fo]
-    Eigen::VectorXd pre, out;                   // W's x and u columns times [x; u]; the product
+    // [A - I, B, C; D A, D B, D C; Do, Eo, Fo], column-major, rows padded with zero rows to
+    // `rows` (a multiple of 4), on 64-byte boundaries.
+    detail::aligned_doubles w;
+    detail::aligned_doubles pre, out;           // W's x and u columns times [x; u]; the product
+    int rows{0};
     Eigen::VectorXd q, p, p_last, p_dc, dp;
     Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
     Eigen::VectorXd allowed, mag;               // the acceptance's rounding: per row, per current
-    Eigen::MatrixXd j;                          // I - F Jf, then its LU factors
-    std::vector<int> piv;                       // the LU's row interchanges
     port_set last, dc, trial, cur_pt, next_pt;
-    Eigen::MatrixXd m_prev, m_prev2;            // dv/dp at the two samples before the last (warm start)
+    // The factors of I - F Jf at the two samples before the last (the warm start's dv/dp).
+    Eigen::MatrixXd lu_prev, lu_prev2;
+    std::vector<int> piv_prev, piv_prev2;
     Eigen::VectorXd mdl;                        // the warm start's products
-    Eigen::MatrixXd cj, md;                     // track(): C Jf (ns x 2k), M D (2k x ns)
+    Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
+    Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M
   };
 
   void point_general(const Eigen::VectorXd& v, port_set& out) noexcept;
   // K JFETs at compile time (fixed-size views of the storage), or K = 0: any number.
   template <int K>
   void block_k(const double* in, double* out, std::size_t n) noexcept;
+  template <int K>
+  void block_wide(const double* in, double* out, std::size_t n) noexcept;
   template <int K>
   double process_k(double generator_v) noexcept;
   template <int K>
@@ -69,6 +77,7 @@ class general_solver : public dk_solver_base {
 
   // Warm start: weights of dv/dp at the last three samples (detail::warm_start_weights).
   std::array<double, 3> warm_{};
+  bool wide_{false};  // the state update's AVX2 + FMA kernel (dk_general.cpp)
   storage g_;
 };
 

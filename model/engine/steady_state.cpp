@@ -15,13 +15,22 @@ struct period_run {
   bool finite{true};
 };
 
-// One period from the engine's current state; the monodromy into `m` when given.
-period_run run_period(dk_engine& eng, const std::vector<double>& drive, double* out, Eigen::MatrixXd* m) {
+// One period from the engine's current state; the monodromy into `m` when given, every
+// JFET's port voltages (network frame) into `ports` when given.
+period_run run_period(dk_engine& eng, const std::vector<double>& drive, double* out, Eigen::MatrixXd* m,
+                      double* ports = nullptr) {
   period_run r;
   if (m) m->setIdentity();
+  const int nd = eng.devices();
   for (std::size_t n = 0; n < drive.size(); ++n) {
     const double y = m ? eng.process_tracked(drive[n], *m) : eng.process(drive[n]);
     if (out) out[n] = y;
+    if (ports)
+      for (int j = 0; j < nd; ++j) {
+        const Eigen::Vector2d v = eng.ports_network_v(j);
+        ports[(n * static_cast<std::size_t>(nd) + static_cast<std::size_t>(j)) * 2] = v[0];
+        ports[(n * static_cast<std::size_t>(nd) + static_cast<std::size_t>(j)) * 2 + 1] = v[1];
+      }
     if (!std::isfinite(y)) r.finite = false;
     const Eigen::Vector2d v = eng.ports_v();
     r.sum_vgs_v += v[0];
@@ -76,6 +85,10 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
   res.frequency_hz = eng.sample_rate_hz() / p;
   res.samples_per_period = p;
   res.output_v.assign(static_cast<std::size_t>(p) * static_cast<std::size_t>(opt.periods_out), 0.0);
+  // Each period run records into the first period of the buffer, so it holds the returned one.
+  const std::size_t ports_per_sample = 2 * static_cast<std::size_t>(eng.devices());
+  if (opt.record_ports) res.ports_network_v.assign(res.output_v.size() * ports_per_sample, 0.0);
+  double* const ports = opt.record_ports ? res.ports_network_v.data() : nullptr;
 
   eng.reset();
   Eigen::VectorXd x0 = eng.dc_state();
@@ -89,7 +102,8 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
   // nonlinear: gate conduction recharges the coupling capacitors within a period).
   auto shoot = [&](const Eigen::VectorXd& start, Eigen::VectorXd& r, Eigen::VectorXd& dx) {
     eng.set_state(start);
-    run = run_period(eng, drive, res.output_v.data(), &m);
+    if (ports) res.start_state = start;
+    run = run_period(eng, drive, res.output_v.data(), &m, ports);
     ++res.periods_simulated;
     if (!run.finite) return std::numeric_limits<double>::infinity();
     r = run.end_state - start;
@@ -135,7 +149,8 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
     eng.set_state(best_x0);
     Eigen::VectorXd start = best_x0;
     for (int k = 0; k < opt.max_settle_periods; ++k) {
-      run = run_period(eng, drive, res.output_v.data(), &m);
+      if (ports) res.start_state = start;
+      run = run_period(eng, drive, res.output_v.data(), &m, ports);
       ++res.periods_simulated;
       if (!run.finite) break;
       const Eigen::VectorXd r = run.end_state - start;
@@ -153,7 +168,9 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
   // The returned periods: the first is the last one run; more follow from its end.
   double sum_vgs = run.sum_vgs_v, sum_vds = run.sum_vds_v;
   for (int k = 1; k < opt.periods_out && run.finite; ++k) {
-    const period_run more = run_period(eng, drive, res.output_v.data() + static_cast<std::ptrdiff_t>(k) * p, nullptr);
+    const period_run more = run_period(eng, drive, res.output_v.data() + static_cast<std::ptrdiff_t>(k) * p, nullptr,
+                                       ports ? ports + static_cast<std::ptrdiff_t>(k) * p * static_cast<std::ptrdiff_t>(ports_per_sample)
+                                             : nullptr);
     ++res.periods_simulated;
     sum_vgs += more.sum_vgs_v;
     sum_vds += more.sum_vds_v;

@@ -26,6 +26,11 @@ struct steady_state_options {
   /// |(M - I)^-1 (phi(x0) - x0)|, is below this (volts; states are volts, see dk_engine).
   double tol_v{1e-10};
   int max_settle_periods{20000};    ///< fallback: plain periods at most
+  /// Also return every JFET's port voltages at every sample of the returned periods and the
+  /// state before them (steady_state_result::ports_network_v, start_state), from which the
+  /// voltage of any node follows (model/engine/dk_probes.hpp). Recorded as each period runs,
+  /// since which period is returned is known only after it.
+  bool record_ports{false};
   dk_options engine;
 };
 
@@ -43,6 +48,11 @@ struct steady_state_result {
   bool converged{false};
   bool used_settling{false};        ///< shooting did not converge; settling periods were run
   dk_stats engine;                  ///< Newton statistics over all periods
+  /// With record_ports: the state before the first returned sample (network frame), and
+  /// the port voltages (vgs, vds) of JFET 0, then JFET 1, ... after each returned sample,
+  /// sample after sample (2 * devices values a sample, network frame); empty otherwise.
+  Eigen::VectorXd start_state;
+  std::vector<double> ports_network_v;
 };
 
 /// Steady state for the generator sine amplitude_v * sin(2 pi cycles n / samples_per_period)

@@ -82,6 +82,42 @@ constexpr std::string_view capsule_stage =
     "[source]\n"                         // 14
     "resistor = \"2.2k\"\n";             // 15
 
+// A valid two-stage chain of our own (common practice values: two 9 V common-source stages
+// with a volume pot between them); the line numbers are what the chain rows expect.
+constexpr std::string_view good_chain =
+    "name = \"catalogue chain\"\n"                            // 1
+    "[supply]\n"                                               // 2
+    "volts = 9\n"                                              // 3
+    "[output]\n"                                               // 4
+    "load = \"100k\"\n"                                        // 5
+    "[[stage]]\n"                                              // 6
+    "[stage.jfet]\n"                                           // 7
+    "idss = \"5m\"\n"                                          // 8
+    "vp = -1.8\n"                                              // 9
+    "[stage.gate]\n"                                           // 10
+    "coupling_cap = \"100n\"\n"                                // 11
+    "resistor = \"1M\"\n"                                      // 12
+    "[stage.drain]\n"                                          // 13
+    "resistor = \"3.3k\"\n"                                    // 14
+    "[stage.source]\n"                                         // 15
+    "resistor = \"680\"\n"                                     // 16
+    "[stage.output]\n"                                         // 17
+    "coupling_cap = \"100n\"\n"                                // 18
+    "[[stage]]\n"                                              // 19
+    "between = [ { pot = \"100k\", position = 0.5 } ]\n"       // 20
+    "[stage.jfet]\n"                                           // 21
+    "idss = \"5m\"\n"                                          // 22
+    "vp = -1.8\n"                                              // 23
+    "[stage.gate]\n"                                           // 24
+    "coupling_cap = \"100n\"\n"                                // 25
+    "resistor = \"1M\"\n"                                      // 26
+    "[stage.drain]\n"                                          // 27
+    "resistor = \"3.3k\"\n"                                    // 28
+    "[stage.source]\n"                                         // 29
+    "resistor = \"680\"\n"                                     // 30
+    "[stage.output]\n"                                         // 31
+    "coupling_cap = \"1u\"\n";                                 // 32
+
 std::string with_line(std::string_view stage, int line, std::string_view replacement) {
   std::istringstream in{std::string(stage)};
   std::string out, l;
@@ -229,6 +265,42 @@ struct fixtures {
     fs::create_symlink(f("stage.toml"), f("link-to-stage.svg"));
     fs::create_hard_link(f("stage.toml"), f("hard-stage.svg"));
     write(f("dry.toml"), good_stage);
+
+    // ---- chains: the [[stage]] reader's refusals
+    write(f("chain.toml"), good_chain);
+    write(f("chain-jfet-top.toml"), with_line(good_chain, 5, "load = \"100k\"\n[jfet]\nidss = \"5m\""));  // [jfet] at 6
+    write(f("chain-topology-top.toml"), with_line(good_chain, 1, "topology = \"common-source\""));
+    write(f("chain-between-first.toml"), with_line(good_chain, 6, "[[stage]]\nbetween = [ { series = \"1k\" } ]"));  // 7
+    {
+      std::string seven(good_chain);
+      const std::string second(good_chain.substr(good_chain.find("[[stage]]\nbetween")));
+      for (int k = 0; k < 5; ++k) seven += second;  // stage 7 begins at line 19 + 5 * 14 = 89
+      write(f("chain-seven.toml"), seven);
+    }
+    write(f("chain-one.toml"), good_chain.substr(0, good_chain.find("[[stage]]\nbetween")));
+    write(f("chain-not-tables.toml"), "name = \"x\"\nstage = [ 1, 2 ]\n[supply]\nvolts = 9\n");
+    write(f("chain-nogate-dc.toml"), with_line(good_chain, 26, "# no gate resistor"));
+    write(f("chain-floating.toml"), with_line(good_chain, 20, "between = [ { series_cap = \"100n\" } ]"));
+    write(f("chain-two-kinds.toml"), with_line(good_chain, 20, "between = [ { series = \"1k\", shunt = \"1k\" } ]"));
+    write(f("chain-no-kind.toml"), with_line(good_chain, 20, "between = [ { taper = \"log\" } ]"));
+    write(f("chain-pot-no-position.toml"), with_line(good_chain, 20, "between = [ { pot = \"100k\" } ]"));
+    write(f("chain-position-range.toml"), with_line(good_chain, 20, "between = [ { pot = \"100k\", position = 1.5 } ]"));
+    write(f("chain-bad-taper.toml"), with_line(good_chain, 20, "between = [ { pot = \"100k\", position = 0.5, taper = \"steep\" } ]"));
+    write(f("chain-position-series.toml"), with_line(good_chain, 20, "between = [ { series = \"1k\", position = 0.5 } ]"));
+    write(f("chain-between-unknown.toml"), with_line(good_chain, 20, "between = [ { serie = \"1k\" } ]"));
+    write(f("chain-between-string.toml"), with_line(good_chain, 20, "between = \"1k\""));
+    write(f("chain-between-number.toml"), with_line(good_chain, 20, "between = [ 1000 ]"));
+    write(f("chain-between-single.toml"), with_line(good_stage, 1, "between = [ { series = \"1k\" } ]"));
+    write(f("chain-rail-single.toml"), std::string(good_stage) + "[rail]\nresistance = \"100\"\n");
+    write(f("chain-stage-load.toml"), with_line(good_chain, 32, "coupling_cap = \"1u\"\nload = \"10k\""));  // load at 33
+    write(f("chain-top-coupling.toml"), with_line(good_chain, 5, "load = \"100k\"\ncoupling_cap = \"1u\""));  // at 6
+    write(f("chain-no-load.toml"), with_line(good_chain, 5, ""));
+    write(f("chain-stage-supply.toml"), with_line(good_chain, 31, "[stage.supply]\nvolts = 9\n[stage.output]"));  // 31
+    write(f("chain-stage-temperature.toml"), with_line(good_chain, 20, "temperature = 300"));
+    write(f("chain-stage-unknown.toml"), with_line(good_chain, 27, "[stage.drian]"));
+    write(f("chain-no-jfet.toml"), with_line(with_line(with_line(good_chain, 21, "# no jfet"), 22, ""), 23, ""));
+    write(f("chain-mixed-polarity.toml"), with_line(good_chain, 23, "vp = 1.8\npolarity = \"p\""));
+    write(f("chain-rail-cap.toml"), with_line(good_chain, 20, "between = [ { pot = \"100k\", position = 0.5 } ]\n[stage.rail]\ncapacitance = \"47u\""));
 
     // ---- audio inputs that lie or cannot be read twice (render, measure)
     {
@@ -491,8 +563,8 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"--normalize above full scale", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--normalize", "3dBFS"}, {"--normalize", "above full scale"}},
       {"--normalize below -100 dBFS", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--normalize", "-200"}, {"--normalize", "-200", "below -100 dBFS"}},
       {"--normalize that is not a level", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--normalize", "loud"}, {"--normalize 'loud'", "dBFS"}},
-      {"--output-peak with several stages", {"render", "@stage.toml", "@second.toml", "--input", "@rec48.wav", "--output", "@cmp", "--output-peak", "1V"}, {"--output-peak", "a fixed scale is for one output", "2 stages", "loudness-matched"}},
-      {"--output-peak with --dry", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@cmp", "--dry", "--output-peak", "1V"}, {"--output-peak", "one output", "1 stage and the dry input"}},
+      {"--output-peak with several designs", {"render", "@stage.toml", "@second.toml", "--input", "@rec48.wav", "--output", "@cmp", "--output-peak", "1V"}, {"--output-peak", "a fixed scale is for one output", "2 designs", "loudness-matched"}},
+      {"--output-peak with --dry", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@cmp", "--dry", "--output-peak", "1V"}, {"--output-peak", "one output", "1 design and the dry input"}},
       {"several stages into a file", {"render", "@stage.toml", "@other/stage.toml", "--input", "@rec48.wav", "--output", "@made/taken.wav", "--force"}, {"@made/taken.wav", "is a file", "folder"}},
       {"several stages into a folder whose parent does not exist", {"render", "@stage.toml", "@second.toml", "--input", "@rec48.wav", "--output", "@nofolder/cmp"}, {"@nofolder/cmp", "does not exist"}},
       {"two stage files of the same name", {"render", "@stage.toml", "@other/stage.toml", "--input", "@rec48.wav", "--output", "@cmp"}, {"two outputs would both be written", "stage.wav"}},
@@ -614,6 +686,61 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a phantom feed IEC 61938 does not name", {"bias", "@phantom-name.toml"}, {"@phantom-name.toml:4:11", "supply.phantom must be \"P48\", \"P24\" or \"P12\"", "P36"}},
       {"a phantom feed for a p-channel stage", {"bias", "@phantom-p.toml"}, {"@phantom-p.toml:3:11", "feeds a positive voltage", "p-channel"}},
       {"a phantom feed beside the voltage it sets", {"bias", "@phantom-volts.toml"}, {"@phantom-volts.toml:5:9", "supply.volts: supply.phantom = \"P48\" sets the voltage"}},
+      // ---- chains: the [[stage]] reader, --set, tune's pairs and spread's requirements
+      {"[[stage]] with a top-level [jfet]", {"bias", "@chain-jfet-top.toml"}, {"@chain-jfet-top.toml:6:", "'jfet' at the top of a chain file", "inside its [[stage]]"}},
+      {"[[stage]] with a top-level topology", {"bias", "@chain-topology-top.toml"}, {"@chain-topology-top.toml:1:1:", "'topology' at the top of a chain file"}},
+      {"between on the first stage", {"bias", "@chain-between-first.toml"}, {"@chain-between-first.toml:7:1:", "stage1.between", "the first stage has no 'between'"}},
+      {"a chain of seven stages", {"bias", "@chain-seven.toml"}, {"@chain-seven.toml:89:", "at most 6 stages, this one 7"}},
+      {"a chain of one [[stage]]", {"bias", "@chain-one.toml"}, {"@chain-one.toml:6:", "at least two [[stage]] tables"}},
+      {"stage that is not a table", {"bias", "@chain-not-tables.toml"}, {"@chain-not-tables.toml:2:", "'stage' must be an array of tables", "[[stage]]"}},
+      {"a chain stage's gate without a DC path", {"bias", "@chain-nogate-dc.toml"}, {"@chain-nogate-dc.toml:19:1:", "stage2: the gate has no DC path"}},
+      {"a node between two coupling capacitors", {"bias", "@chain-floating.toml"}, {"@chain-floating.toml:6:1:", "stage1.output node has no DC path", "shunt in 'between'"}},
+      {"two parts in one between table", {"bias", "@chain-two-kinds.toml"}, {"@chain-two-kinds.toml:20:", "stage2.between[1]", "one part per table"}},
+      {"a between table with no part", {"bias", "@chain-no-kind.toml"}, {"@chain-no-kind.toml:20:", "stage2.between[1]", "give one of series, series_cap, shunt, shunt_cap or pot"}},
+      {"a pot without its position", {"bias", "@chain-pot-no-position.toml"}, {"@chain-pot-no-position.toml:20:", "a pot needs position"}},
+      {"a pot position beyond 1", {"bias", "@chain-position-range.toml"}, {"@chain-position-range.toml:20:40:", "stage2.between[1].position = 1.50 lies outside 0 to 1: a knob's rotation"}},
+      {"a pot of an unknown taper", {"bias", "@chain-bad-taper.toml"}, {"@chain-bad-taper.toml:20:", "stage2.between[1].taper must be \"linear\" or \"log\"", "\"steep\""}},
+      {"a position on a series resistor", {"bias", "@chain-position-series.toml"}, {"@chain-position-series.toml:20:", "position and taper belong to a pot"}},
+      {"an unknown key in a between table", {"bias", "@chain-between-unknown.toml"}, {"@chain-between-unknown.toml:20:", "unknown key 'serie'", "did you mean 'series'"}},
+      {"between that is not an array", {"bias", "@chain-between-string.toml"}, {"@chain-between-string.toml:20:", "stage2.between: expected an array of parts", "got a string"}},
+      {"a between element that is not a table", {"bias", "@chain-between-number.toml"}, {"@chain-between-number.toml:20:", "stage2.between[1]: expected one part", "got an integer"}},
+      {"between in a single-stage file", {"bias", "@chain-between-single.toml"}, {"@chain-between-single.toml:1:1:", "'between' belongs to a stage of a chain"}},
+      {"[rail] in a single-stage file", {"bias", "@chain-rail-single.toml"}, {"@chain-rail-single.toml:14:", "'rail' belongs to a stage of a chain"}},
+      {"a load in [stage.output]", {"bias", "@chain-stage-load.toml"}, {"@chain-stage-load.toml:33:1:", "stage2.output.load", "top-level [output] load"}},
+      {"a coupling capacitor in the top-level [output]", {"bias", "@chain-top-coupling.toml"}, {"@chain-top-coupling.toml:6:1:", "output.coupling_cap", "holds only the chain's load"}},
+      {"a coupled last stage with no load", {"bias", "@chain-no-load.toml"}, {"@chain-no-load.toml:19:1:", "stage2: output.coupling_cap needs the chain's load", "top-level [output]"}},
+      {"[supply] inside a stage", {"bias", "@chain-stage-supply.toml"}, {"@chain-stage-supply.toml:31:", "stage2.supply", "shared by the whole chain"}},
+      {"temperature inside a stage", {"bias", "@chain-stage-temperature.toml"}, {"@chain-stage-temperature.toml:20:1:", "stage2.temperature", "shared by the whole chain"}},
+      {"a misspelt section in a stage", {"bias", "@chain-stage-unknown.toml"}, {"@chain-stage-unknown.toml:27:", "unknown key 'drian' in [[stage]] 2", "did you mean 'drain'"}},
+      {"a stage without its jfet", {"bias", "@chain-no-jfet.toml"}, {"@chain-no-jfet.toml:19:1:", "stage2.jfet: each stage needs a [stage.jfet] section"}},
+      {"stages of both polarities", {"bias", "@chain-mixed-polarity.toml"}, {"@chain-mixed-polarity.toml:19:1:", "stage2: every stage of a chain must have the polarity of the first"}},
+      {"a rail capacitor without its resistance", {"bias", "@chain-rail-cap.toml"}, {"@chain-rail-cap.toml:19:1:", "stage2: rail.capacitance needs rail.resistance"}},
+      {"--set of a stage the chain lacks", {"bias", "@chain.toml", "--set", "stage7.drain.resistor=1k"}, {"--set stage7.drain.resistor", "the chain has 2 stages, so there is no stage 7"}},
+      {"--set of a stage's key without the stage", {"bias", "@chain.toml", "--set", "drain.resistor=1k"}, {"--set drain.resistor", "a chain of 2 stages", "stage1.drain.resistor"}},
+      {"--set of stage 2 on a single stage", {"bias", "@stage.toml", "--set", "stage2.drain.resistor=1k"}, {"--set stage2.drain.resistor", "describes one stage, so there is no stage 2"}},
+      {"--set of a stage and no key", {"bias", "@chain.toml", "--set", "stage2.=1k"}, {"--set 'stage2.=1k'", "stageN.SECTION.KEY=VALUE"}},
+      {"--set of a key nested too deep", {"bias", "@chain.toml", "--set", "stage2.drain.resistor.x=1k"}, {"--set 'stage2.drain.resistor.x=1k'", "SECTION.KEY=VALUE"}},
+      {"--set of a stage into a chain whose stages are not tables", {"bias", "@chain-not-tables.toml", "--set", "stage1.drain.resistor=1k"}, {"--set stage1.drain.resistor", "stage 1 is not a table"}},
+      {"--set of a between element without its place", {"bias", "@chain.toml", "--set", "stage2.between.position=0.5"}, {"--set stage2.between.position", "name an element of between by its place and a key"}},
+      {"--set of a between element the stage lacks", {"bias", "@chain.toml", "--set", "stage2.between.3.position=0.5"}, {"--set stage2.between.3.position", "no element 3 in this stage's between (it has 1)"}},
+      {"--set into a between element that is not a table", {"bias", "@chain-between-number.toml", "--set", "stage2.between.1.position=0.5"}, {"--set stage2.between.1.position", "element 1 of between is not a table"}},
+      {"tune --adjust without its stage in a chain", {"tune", "@chain.toml", "--target", "vd=4.5", "--adjust", "drain.resistor"}, {"--adjust drain.resistor", "a chain of 2 stages", "--adjust stage1.drain.resistor"}},
+      {"tune's default --adjust in a chain", {"tune", "@chain.toml", "--target", "vd=4.5"}, {"--adjust source.resistor", "name the stage"}},
+      {"tune --target of a stage the chain lacks", {"tune", "@chain.toml", "--target", "stage7.vd=4.5", "--adjust", "stage1.source.resistor"}, {"--target: ", "the chain has 2 stages, so there is no stage 7"}},
+      {"tune --target of stage 2 on a single stage", {"tune", "@stage.toml", "--target", "stage2.vd=4.5"}, {"--target: ", "describes one stage, so there is no stage 2"}},
+      {"tune on a shared resistor with no stage named", {"tune", "@chain.toml", "--target", "vd=4.5", "--adjust", "output.load"}, {"--target: ", "name the stage whose bias is the target"}},
+      {"tune --adjust of a stage the chain lacks", {"tune", "@chain.toml", "--target", "vd=4.5", "--adjust", "stage3.source.resistor"}, {"--adjust: 'stage3.source.resistor' is not an adjustable resistor", "stage2.source.resistor"}},
+      {"tune with more --target than --adjust", {"tune", "@chain.toml", "--target", "stage1.vd=4.5", "--target", "stage2.vd=4.5", "--adjust", "stage1.source.resistor"}, {"--adjust and --target come in pairs", "2 --target but 1 --adjust"}},
+      {"tune with one resistor adjusted twice", {"tune", "@chain.toml", "--adjust", "stage1.source.resistor", "--target", "stage1.vd=4.5", "--adjust", "stage1.source.resistor", "--target", "stage1.id=1m"}, {"--adjust: ", "stage1.source.resistor is adjusted twice"}},
+      {"tune with one target for two resistors", {"tune", "@chain.toml", "--adjust", "stage2.source.resistor", "--target", "stage2.vd=4.5", "--adjust", "stage2.drain.resistor", "--target", "stage2.vd=5"}, {"--target: ", "stage2.vd is the target of two resistors"}},
+      {"tune with center among several pairs", {"tune", "@chain.toml", "--adjust", "stage1.source.resistor", "--target", "stage1.center", "--adjust", "stage2.source.resistor", "--target", "stage2.vd=4.5"}, {"--target: ", "center is a search of its own"}},
+      {"tune --over-spread for center", {"tune", "@chain.toml", "--adjust", "stage1.source.resistor", "--target", "stage1.center", "--over-spread", "--runs", "10"}, {"--target: ", "needs a bias target"}},
+      {"tune --over-spread with targets out of every part's reach", {"tune", "@chain.toml", "--adjust", "stage1.source.resistor", "--target", "stage1.vd=12", "--adjust", "stage2.source.resistor", "--target", "stage2.vd=4.5", "--over-spread", "--runs", "4"}, {"no part of the spread can reach every target together", "stage1.vd = 12.00 V by stage1.source.resistor"}},
+      {"spread --require of a stage quantity without its stage", {"spread", "@chain.toml", "--require", "vd=3.5..5.5", "--runs", "10"}, {"--require: ", "a chain of 2 stages", "stage1.vd or stage2.vd", "gain, swing and thd are the chain's"}},
+      {"spread --require of a stage the chain lacks", {"spread", "@chain.toml", "--require", "stage7.vd=3.5..5.5", "--runs", "10"}, {"--require: ", "the chain has 2 stages, so there is no stage 7"}},
+      {"spread --require of stage 2 on a single stage", {"spread", "@stage.toml", "--require", "stage2.vd=3.5..5.5", "--runs", "10"}, {"--require: ", "describes one stage, so there is no stage 2"}},
+      {"spread --require of the chain's gain by stage", {"spread", "@chain.toml", "--require", "stage2.gain=10..", "--runs", "10"}, {"--require: ", "gain is the whole design's", "without a stage"}},
+      {"spread --plot with a requirement the chain refuses", {"spread", "@chain.toml", "--require", "id=1m..", "--plot", "@h.svg", "--runs", "10"}, {"--require: ", "stage1.id or stage2.id"}},
   };
 
   REQUIRE(rows.size() >= 180);

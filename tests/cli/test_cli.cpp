@@ -134,6 +134,58 @@ TEST_CASE("tune --over-spread sizes a trimmer") {
   CHECK(j["fixed_ohm"].get<double>() + j["trimmer_ohm"].get<double>() >= j["range_ohm"]["max"].get<double>());
 }
 
+TEST_CASE("spread on a chain reports every stage's quantities under its name") {
+  // Contract: README, "Machine-readable output" for spread on a chain.
+  const result r = run({"spread", preset("two-stage-boost-9v.toml"), "--class", "general-purpose", "--runs", "100",
+                        "--require", "stage2.vd=3.5..6", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  REQUIRE(j["stages"].size() == 2);
+  for (int k = 0; k < 2; ++k) {
+    CAPTURE(k);
+    CHECK(j["stages"][k]["stage"] == k + 1);
+    for (const char* q : {"id_a", "vd_v", "vs_v", "vds_v", "vgs_v"}) CHECK(j["stages"][k]["percentiles"][q]["p50"].is_number());
+  }
+  CHECK(j["percentiles"]["gain_db"]["p50"].is_number());
+  CHECK(!j["percentiles"].contains("vd_v"));  // a stage's own quantity lives under its stage
+  CHECK(j["requirements"][0]["quantity"] == "stage2.vd");
+  REQUIRE(j["worst"].size() == 2);
+  CHECK(j["worst"][0]["quantity"] == "stage2.vd");
+  CHECK(j["worst"][0]["parts"].size() == 2);
+  // The text names each stage's rows; the CSV has a column per stage.
+  const result text = run({"spread", preset("two-stage-boost-9v.toml"), "--class", "general-purpose", "--runs", "50"});
+  REQUIRE(text.status == 0);
+  for (const char* w : {"stage1.vd", "stage2.vd", "stage2.id", "every stage biased in saturation", "stage2 IDSS"}) {
+    CAPTURE(w);
+    CHECK(text.out.find(w) != std::string::npos);
+  }
+  const result csv = run({"spread", preset("two-stage-boost-9v.toml"), "--class", "general-purpose", "--runs", "5", "--csv"});
+  REQUIRE(csv.status == 0);
+  CHECK(csv.out.rfind("run,stage1.idss_a,stage1.vp_v,stage2.idss_a,stage2.vp_v,supply_v,solved,stage1.id_a,", 0) == 0);
+}
+
+TEST_CASE("tune on a chain: a trimmer per stage over a batch, and several resistors on nominal parts") {
+  const result r = run({"tune", preset("two-stage-boost-9v.toml"), "--over-spread", "--class", "general-purpose", "--runs",
+                        "60", "--adjust", "stage1.source.resistor", "--target", "stage1.vd=4.5", "--adjust",
+                        "stage2.source.resistor", "--target", "stage2.vd=4.5", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  REQUIRE(j["trimmers"].size() == 2);
+  CHECK(j["trimmers"][0]["adjust"] == "stage1.source.resistor");
+  CHECK(j["trimmers"][1]["adjust"] == "stage2.source.resistor");
+  for (const auto& t : j["trimmers"])
+    CHECK(t["fixed_ohm"].get<double>() + t["trimmer_ohm"].get<double>() >= t["range_ohm"]["max"].get<double>());
+  CHECK(j["most_rounds"].get<int>() >= 1);
+  const result plain = run({"tune", preset("two-stage-boost-9v.toml"), "--adjust", "stage1.source.resistor", "--target",
+                            "stage1.vd=4.5", "--adjust", "stage2.source.resistor", "--target", "stage2.vd=4.5", "--json"});
+  REQUIRE(plain.status == 0);
+  const nlohmann::json p = nlohmann::json::parse(plain.out);
+  REQUIRE(p["pairs"].size() == 2);
+  // Each pair's exact point is on its target with the other resistor at its solved value.
+  CHECK(p["pairs"][0]["exact"]["operating_point"]["vd_v"].get<double>() == doctest::Approx(4.5).epsilon(1e-5));
+  CHECK(p["pairs"][1]["exact"]["operating_point"]["vd_v"].get<double>() == doctest::Approx(4.5).epsilon(1e-5));
+}
+
 TEST_CASE("sweep --json follows the contract") {
   // Contract: DESIGN.md, "Machine-readable output" for sweep.
   const result r = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "10mVpk,0.3,1Vrms", "--json"});
@@ -149,6 +201,53 @@ TEST_CASE("sweep --json follows the contract") {
     CHECK(j["points"][0].contains(k));
   }
   CHECK(j["points"][0]["harmonics_dbc"].size() == 9);  // H2..H10
+}
+
+TEST_CASE("sweep --json on a chain gives each stage at each point; a single stage keeps its keys") {
+  // Contract: README, sweep: points[i].stages[k] with output_vpk, thd_percent, harmonics_dbc,
+  // clean; stages[k] with the first drive out of the clean region.
+  const result r = run({"sweep", preset("two-stage-boost-9v.toml"), "--drive", "10mVpk,1Vpk", "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  REQUIRE(j["points"].size() == 2);
+  for (const auto& p : j["points"]) {
+    REQUIRE(p["stages"].size() == 2);
+    for (const auto& st : p["stages"]) {
+      for (const char* k : {"name", "output_vpk", "thd_percent", "harmonics_dbc", "clean", "limit", "bias_shift_v"}) {
+        CAPTURE(k);
+        CHECK(st.contains(k));
+      }
+      CHECK(st["harmonics_dbc"].size() == 9);
+    }
+    // The last stage's output is the load.
+    CHECK(p["stages"][1]["output_vpk"].get<double>() == doctest::Approx(p["output_vpk"].get<double>()).epsilon(1e-9));
+    CHECK(p["bias_shift_v"].is_null());  // a chain has one per stage
+  }
+  CHECK(j["points"][0]["stages"][0]["name"] == "input stage");
+  CHECK(j["points"][0]["stages"][0]["clean"] == true);
+  CHECK(j["points"][1]["stages"][1]["clean"] == false);
+  REQUIRE(j["stages"].size() == 2);
+  CHECK(j["stages"][1]["leaves_clean_at_drive_vpk"].get<double>() == doctest::Approx(1.0).epsilon(1e-12));
+  CHECK(j["stages"][1]["limit"].is_string());
+
+  const result one = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "10mVpk", "--json"});
+  REQUIRE(one.status == 0);
+  const nlohmann::json o = nlohmann::json::parse(one.out);
+  CHECK_FALSE(o.contains("stages"));
+  CHECK_FALSE(o["points"][0].contains("stages"));
+  CHECK(o["points"][0]["bias_shift_v"].is_number());
+}
+
+TEST_CASE("sweep on a chain: the text has a table per stage, the CSV columns per stage, the plot a panel per stage") {
+  const result t = run({"sweep", preset("two-stage-boost-9v.toml"), "--drive", "10mVpk,1Vpk"});
+  REQUIRE(t.status == 0);
+  CHECK(t.out.find("at each stage's output") != std::string::npos);
+  CHECK(t.out.find("second stage: first out of its clean region at drive 1.00 Vpk") != std::string::npos);
+  const result c = run({"sweep", preset("two-stage-boost-9v.toml"), "--drive", "10mVpk,1Vpk", "--csv"});
+  REQUIRE(c.status == 0);
+  CHECK(c.out.find(",stage1_output_vpk,stage1_thd_percent,stage1_clean,stage2_output_vpk") != std::string::npos);
+  const result one = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "10mVpk"});
+  CHECK(one.out.find("each stage") == std::string::npos);
 }
 
 TEST_CASE("imd --json reports the products") {

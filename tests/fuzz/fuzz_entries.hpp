@@ -25,6 +25,7 @@
 #include "model/device/device_class.hpp"
 #include "model/device/fit.hpp"
 #include "model/analysis/spread.hpp"
+#include "model/circuit/network.hpp"
 #include "model/circuit/stage.hpp"
 #include "model/circuit/stage_file.hpp"
 
@@ -61,14 +62,33 @@ inline outcome stage_file_entry(std::string_view data) {
   try {
     if (!first.empty()) overrides.push_back(cli::parse_set(first));
     const model::stage st = model::parse_stage(rest, "fuzz.toml", overrides, std::filesystem::path(PINCHOFF_PRESETS_DIR) / "devices.toml");
-    for (double v : {st.temperature_k, st.supply.volts_v, st.supply.resistance_ohm, st.supply.capacitance_f,
-                     st.jfet.idss_a, st.jfet.vp_v, st.jfet.lambda_per_v, st.jfet.is_a, st.jfet.n, st.jfet.cgs_f,
-                     st.jfet.cgd_f, st.signal_impedance_ohm, st.gate.coupling_cap_f, st.gate.resistor_ohm,
-                     st.gate.bias_top_ohm, st.gate.bias_bottom_ohm, st.drain_resistor_ohm, st.source.unbypassed_ohm,
-                     st.source.resistor_ohm, st.source.bypass_cap_f, st.output.coupling_cap_f, st.output.load_ohm})
+    auto in_range = [](double v) {
       detail::require(std::isfinite(v) && (v == 0.0 || std::fabs(v) >= 1e-21) && std::fabs(v) <= 1e11,
                       "parse_stage accepted a value outside every physical range");
+    };
+    for (double v : {st.temperature_k, st.supply.volts_v, st.supply.resistance_ohm, st.supply.capacitance_f,
+                     st.signal_impedance_ohm})
+      in_range(v);
+    // Every stage of a chain (the first is the stage itself), with its rail and between.
+    detail::require(st.stage_count() >= 1 && st.stage_count() <= model::max_chain_stages,
+                    "parse_stage accepted a chain of more than six stages");
+    for (int k = 0; k < st.stage_count(); ++k) {
+      const model::stage_parts& p = st.part(k);
+      for (double v : {p.jfet.idss_a, p.jfet.vp_v, p.jfet.lambda_per_v, p.jfet.is_a, p.jfet.n, p.jfet.cgs_f,
+                       p.jfet.cgd_f, p.gate.coupling_cap_f, p.gate.resistor_ohm, p.gate.bias_top_ohm,
+                       p.gate.bias_bottom_ohm, p.drain_resistor_ohm, p.drain_shunt_cap_f, p.source.unbypassed_ohm,
+                       p.source.resistor_ohm, p.source.bypass_cap_f, p.output.coupling_cap_f, p.output.load_ohm,
+                       p.rail.resistance_ohm, p.rail.capacitance_f})
+        in_range(v);
+      detail::require(k > 0 || p.between.empty(), "parse_stage accepted a 'between' on the first stage");
+      for (const model::between_part& b : p.between) {
+        in_range(b.value);
+        detail::require(b.value > 0 && b.position >= 0 && b.position <= 1, "parse_stage accepted a between part out of range");
+      }
+    }
     model::validate(st);  // throws input_error, which is reported below as a broken contract
+    // What the reader accepts builds into a network (the chain's floating-node check ran on it).
+    (void)model::build_network(st);
     return outcome::accepted;
   } catch (const broken_contract&) {
     throw;

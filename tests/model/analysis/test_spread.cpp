@@ -210,3 +210,127 @@ TEST_CASE("THD over a batch follows the square-law closed form per part") {
   }
   CHECK(r.yield == doctest::Approx(meets / 40.0).epsilon(1e-12));
 }
+
+TEST_CASE("on a chain every stage's bias is its own self-bias closed form, per drawn part") {
+  // Two AC-coupled stages on an ideal supply: each stage is the closed form above with its
+  // own drawn part (draw.idss_a for stage 1, draw.later[0] for stage 2).
+  const double vdd = 9.0, rs1 = 680.0, rd1 = 3.3e3, rs2 = 470.0, rd2 = 2.7e3;
+  const stage st = test::stage_from(test::two_stage_text(vdd, 0.0, 4.5e-3, -1.6, rs1, rd1, 4e-3, -1.4, rs2, rd2));
+  spread_settings s;
+  s.idss_a = base::value_range{2e-3, 8e-3};
+  s.vp_v = base::value_range{-3.0, -0.8};
+  s.runs = 300;
+  s.seed = 11;
+  const std::vector<std::string> names = spread_quantity_names(st);
+  CHECK(names == std::vector<std::string>{"stage1.id", "stage1.vd", "stage1.vs", "stage1.vds", "stage1.vgs", "stage2.id",
+                                          "stage2.vd", "stage2.vs", "stage2.vds", "stage2.vgs", "gain", "swing", "thd"});
+  const spread_result r = run_spread(st, s, {{"stage2.vd", 3.5, 6.0}});
+  REQUIRE(r.unsolved == 0);
+  int meets = 0, differ = 0, checked = 0;
+  for (const spread_run& run : r.runs) {
+    REQUIRE(run.draw.later.size() == 1);
+    CHECK(run.values.count("id") == 0);
+    // The parts are drawn independently: the two stages' IDSS differ.
+    differ += run.draw.idss_a != run.draw.later[0].idss_a ? 1 : 0;
+    // The closed form holds in saturation (vds >= vgs - vp), which it predicts itself; a
+    // part it puts in the triode region is in no stage's yield.
+    const double id1 = self_bias_id(run.draw.idss_a, run.draw.vp_v, rs1);
+    const double id2 = self_bias_id(run.draw.later[0].idss_a, run.draw.later[0].vp_v, rs2);
+    const double vd1 = vdd - rd1 * id1, vd2 = vdd - rd2 * id2;
+    const bool sat1 = vd1 - rs1 * id1 >= -rs1 * id1 - run.draw.vp_v;
+    const bool sat2 = vd2 - rs2 * id2 >= -rs2 * id2 - run.draw.later[0].vp_v;
+    if (sat1 && sat2) {
+      ++checked;
+      CHECK(run.values.at("stage1.id") == doctest::Approx(id1).epsilon(1e-9));
+      CHECK(run.values.at("stage1.vd") == doctest::Approx(vd1).epsilon(1e-9));
+      CHECK(run.values.at("stage2.id") == doctest::Approx(id2).epsilon(1e-9));
+      CHECK(run.values.at("stage2.vd") == doctest::Approx(vd2).epsilon(1e-9));
+      CHECK(run.values.at("stage2.vs") == doctest::Approx(rs2 * id2).epsilon(1e-9));
+    }
+    // The yield needs both stages in saturation and the requirement on stage 2.
+    const bool ok = sat1 && sat2 && vd2 >= 3.5 && vd2 <= 6.0;
+    CHECK(run.meets == ok);
+    meets += ok ? 1 : 0;
+  }
+  CHECK(differ == s.runs);
+  CHECK(checked > s.runs / 2);
+  CHECK(r.yield == doctest::Approx(meets / 300.0).epsilon(1e-12));
+  CHECK(r.stats.count("stage2.vd") == 1);
+  CHECK(r.stats.count("gain") == 1);
+}
+
+TEST_CASE("a chain's requirement names its stage; a refusal names the field and the choices") {
+  const stage chain = test::stage_from(test::two_stage_text(9.0, 0.0, 4.5e-3, -1.6, 680.0, 3.3e3, 4e-3, -1.4, 470.0, 2.7e3));
+  const stage single = test::stage_from(test::self_bias_text(9.0, 4.5e-3, -1.6, 680.0, 3.3e3));
+  struct row {
+    const stage* st;
+    const char* quantity;
+    const char* words;  // nullptr: accepted
+    const char* resolved;
+  };
+  const row rows[] = {
+      {&chain, "stage2.vd", nullptr, "stage2.vd"},
+      {&chain, "gain", nullptr, "gain"},
+      {&single, "vd", nullptr, "vd"},
+      {&single, "stage1.vd", nullptr, "vd"},
+      {&chain, "vd", "stage1.vd or stage2.vd", ""},
+      {&chain, "stage3.id", "the chain has 2 stages, so there is no stage 3", ""},
+      {&single, "stage2.vd", "describes one stage, so there is no stage 2", ""},
+      {&chain, "stage1.swing", "swing is the whole design's", ""},
+  };
+  for (const row& r : rows) {
+    CAPTURE(r.quantity);
+    const std::vector<requirement> reqs{{r.quantity, 1.0, 2.0}};
+    if (r.words == nullptr) {
+      CHECK(resolve_requirements(*r.st, reqs).at(0).quantity == r.resolved);
+      continue;
+    }
+    try {
+      (void)resolve_requirements(*r.st, reqs);
+      FAIL("accepted");
+    } catch (const setting_error& e) {
+      CHECK(e.field() == "requirements");
+      CHECK(std::string(e.what()).find(r.words) != std::string::npos);
+      CHECK(std::string(e.what()).find("--") == std::string::npos);
+    }
+  }
+}
+
+TEST_CASE("trimmers for two stages over one batch: each part's pair of values is the closed form") {
+  // A shared supply resistance couples the stages: the rail sits at VDD - Rsup (id1 + id2).
+  // With vd_k = target on both, the rail and currents are linear in each other:
+  //   id_k = (rail - vd) / RD_k,  rail = (VDD + Rsup vd G) / (1 + Rsup G),  G = 1/RD1 + 1/RD2,
+  // and each part's source resistor is the self-bias closed form rs = |vp| (1 - sqrt(id/idss)) / id.
+  const double vdd = 12.0, rsup = 1e3, rd1 = 3.3e3, rd2 = 2.7e3, vd = 6.0;
+  const stage st = test::stage_from(test::two_stage_text(vdd, rsup, 4.5e-3, -1.6, 680.0, rd1, 4e-3, -1.4, 470.0, rd2));
+  spread_settings s;
+  s.idss_a = base::value_range{3e-3, 8e-3};
+  s.vp_v = base::value_range{-3.0, -1.0};
+  s.runs = 40;
+  const std::vector<tune_pair> pairs{{"stage1.source.resistor", {target_kind::vd, vd, 0}},
+                                     {"stage2.source.resistor", {target_kind::vd, vd, 1}}};
+  const trim_set set = size_trimmers(st, pairs, s, base::eseries::e24);
+  const double g = 1 / rd1 + 1 / rd2;
+  const double rail = (vdd + rsup * vd * g) / (1 + rsup * g);
+  const double id1 = (rail - vd) / rd1, id2 = (rail - vd) / rd2;
+  REQUIRE(set.trims.size() == 2);
+  CHECK(set.settled == s.runs);
+  CHECK(set.unsettled == 0);
+  // The stages interact through the shared resistance, so a part takes more than one round.
+  CHECK(set.most_rounds > 1);
+  // Settled within 1 ppm + 1 uV of the drain target: about 3e-6 of each current, so each
+  // resistor within 1e-4 of its closed form.
+  for (int i = 0; i < s.runs; ++i) {
+    CAPTURE(i);
+    const spread_draw d = draw_part(s, st, i);
+    const double rs1 = std::fabs(d.vp_v) * (1 - std::sqrt(id1 / d.idss_a)) / id1;
+    const double rs2 = std::fabs(d.later[0].vp_v) * (1 - std::sqrt(id2 / d.later[0].idss_a)) / id2;
+    CHECK(set.trims[0].exact_ohm[static_cast<std::size_t>(i)] == doctest::Approx(rs1).epsilon(1e-4));
+    CHECK(set.trims[1].exact_ohm[static_cast<std::size_t>(i)] == doctest::Approx(rs2).epsilon(1e-4));
+  }
+  for (const trim_result& t : set.trims) {
+    CHECK(t.fixed_ohm <= t.r_min);
+    CHECK(t.fixed_ohm + t.trimmer_ohm >= t.r_max);
+  }
+  CHECK(set.coverage_all == 1.0);
+}

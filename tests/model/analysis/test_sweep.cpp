@@ -11,6 +11,7 @@
 #include "dsp/fft.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
+#include "model/analysis/headroom.hpp"
 #include "model/analysis/response.hpp"
 #include "model/analysis/small_signal.hpp"
 #include "model/circuit/stage_file.hpp"
@@ -369,4 +370,121 @@ TEST_CASE("a sweep does not depend on the thread count") {
     CHECK(a.points[i].output_vpk == b.points[i].output_vpk);
     CHECK(a.points[i].harmonics_dbc == b.points[i].harmonics_dbc);
   }
+}
+
+// ---- A chain's stages
+
+TEST_CASE("a chain's stage outputs at a small drive follow the small-signal response to each stage's output") {
+  // Oracle: the small-signal frequency response (model/analysis/response.hpp: the network
+  // linearised at its operating point, every capacitor as j w C, solved in the frequency
+  // domain) from the generator to each stage's output node, at the snapped frequency. The
+  // sweep reads the same node from the time-domain engine's steady state. 1 mVpk keeps the
+  // JFETs linear to far below 1e-4 (H2 near -80 dBc at the first stage's output); the
+  // trapezoidal rule's frequency warping at 1 kHz and 384 kHz is (w T)^2 / 12 = 2e-5.
+  const stage st = preset("two-stage-boost-9v.toml");
+  REQUIRE(st.is_chain());
+  sweep_settings s;
+  s.drives_vpk = {1e-3};
+  s.per_stage = true;
+  const sweep_result r = run_sweep(st, s);
+  const network net = build_network(st);
+  const operating_point op = solve_operating_point(net);
+  REQUIRE(r.stages.size() == net.stages.size());
+  REQUIRE(r.points[0].stages.size() == net.stages.size());
+  for (std::size_t k = 0; k < net.stages.size(); ++k) {
+    CAPTURE(k);
+    network at_stage = net;
+    at_stage.output_node = net.stages[k].output;
+    const double want = std::abs(response_at(at_stage, op, r.frequency_hz).gain) * 1e-3;
+    CHECK(r.points[0].stages[k].output_vpk == doctest::Approx(want).epsilon(1e-4));
+    CHECK(r.points[0].stages[k].clean);
+    CHECK(r.stages[k].label == net.stages[k].label);
+    CHECK_FALSE(r.stages[k].leaves_clean);
+  }
+  // The stages grow the signal: each output above the one before.
+  CHECK(r.points[0].stages[1].output_vpk > r.points[0].stages[0].output_vpk);
+}
+
+TEST_CASE("a chain's last stage output is the load's, its first stage's VGS shift the first JFET's") {
+  // The last stage's output node is the node across the load: its probe must give the
+  // figures the sweep reads from the engine's own output, at a drive deep in clipping too.
+  const stage st = preset("two-stage-boost-9v.toml");
+  sweep_settings s;
+  s.drives_vpk = {0.01, 2.0};
+  s.per_stage = true;
+  const sweep_result r = run_sweep(st, s);
+  for (const sweep_point& p : r.points) {
+    CAPTURE(p.drive_vpk);
+    const stage_point& last = p.stages.back();
+    CHECK(last.output_vpk == doctest::Approx(p.output_vpk).epsilon(1e-9));
+    CHECK(last.thd_percent == doctest::Approx(p.thd_percent).epsilon(1e-6));
+    for (std::size_t h = 0; h < 3; ++h) CHECK(last.harmonics_dbc[h] == doctest::Approx(p.harmonics_dbc[h]).epsilon(1e-6));
+    // The first stage's VGS shift, from the recorded ports, is the one the steady state
+    // averages for the first JFET itself (the same samples summed in another order).
+    CHECK(std::fabs(p.stages.front().bias_shift_v - p.bias_shift_v) <= 1e-12);
+  }
+}
+
+TEST_CASE("a chain's stages leave their clean region where the quasi-static clip order says") {
+  // Oracle: the headroom analysis (model/analysis/headroom.hpp), a quasi-static sweep of
+  // the mid-band transfer curve with the capacitors at their rest voltages, independent of
+  // the time-domain engine. At 1 kHz the coupling capacitors (corners of a few hertz) hold
+  // their voltages over a period, so a sine of 0.7 times a stage's clip drive keeps it clean
+  // and one of 1.4 times takes it out, by the same limit (the margins are common practice;
+  // gate conduction shifting the bias over many periods is what the gap allows for).
+  const stage st = preset("two-stage-boost-9v.toml");
+  const network net = build_network(st);
+  const headroom_figures h = analyse_headroom(net, solve_operating_point(net));
+  REQUIRE(h.clip_order.size() == 2);
+  for (const stage_clip& c : h.clip_order) {
+    CAPTURE(c.stage);
+    REQUIRE(c.kind != swing_limit_kind::none);
+    sweep_settings s;
+    s.drives_vpk = {1.4 * c.drive_vpk, 0.7 * c.drive_vpk};  // out of order on purpose
+    s.per_stage = true;
+    const sweep_result r = run_sweep(st, s);
+    const std::size_t k = static_cast<std::size_t>(c.stage);
+    CHECK_FALSE(r.points[0].stages[k].clean);
+    CHECK(r.points[0].stages[k].limit == c.kind);
+    CHECK(r.points[1].stages[k].clean);
+    CHECK(r.points[1].stages[k].limit == swing_limit_kind::none);
+    CHECK(r.stages[k].leaves_clean);
+    CHECK(r.stages[k].first_unclean_drive_vpk == r.points[0].drive_vpk);
+    CHECK(r.stages[k].limit == c.kind);
+  }
+}
+
+TEST_CASE("stage figures only for a chain, and only when asked") {
+  sweep_settings s;
+  s.drives_vpk = {0.1};
+  s.per_stage = true;
+  const sweep_result single = run_sweep(preset("bass-booster-9v.toml"), s);
+  CHECK(single.stages.empty());
+  CHECK(single.points[0].stages.empty());
+  s.per_stage = false;
+  const sweep_result chain = run_sweep(preset("two-stage-boost-9v.toml"), s);
+  CHECK(chain.stages.empty());
+  CHECK(chain.points[0].stages.empty());
+  // Asking for them changes nothing at the load: the same steady state, bit for bit.
+  s.per_stage = true;
+  const sweep_result both = run_sweep(preset("two-stage-boost-9v.toml"), s);
+  CHECK(both.points[0].output_vpk == chain.points[0].output_vpk);
+  CHECK(both.points[0].harmonics_dbc == chain.points[0].harmonics_dbc);
+  CHECK(both.points[0].periods_simulated == chain.points[0].periods_simulated);
+}
+
+TEST_CASE("a chain's stage figures do not depend on the thread count") {
+  sweep_settings s;
+  s.drives_vpk = {0.01, 0.3, 3.0};
+  s.per_stage = true;
+  s.threads = 1;
+  const sweep_result a = run_sweep(preset("two-stage-boost-9v.toml"), s);
+  s.threads = 2;
+  const sweep_result b = run_sweep(preset("two-stage-boost-9v.toml"), s);
+  for (std::size_t i = 0; i < a.points.size(); ++i)
+    for (std::size_t k = 0; k < a.points[i].stages.size(); ++k) {
+      CHECK(a.points[i].stages[k].output_vpk == b.points[i].stages[k].output_vpk);
+      CHECK(a.points[i].stages[k].harmonics_dbc == b.points[i].stages[k].harmonics_dbc);
+      CHECK(a.points[i].stages[k].clean == b.points[i].stages[k].clean);
+    }
 }

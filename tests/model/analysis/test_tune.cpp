@@ -82,3 +82,65 @@ TEST_CASE("a resistor tuning cannot adjust is named by the field adjust_key") {
     }
   }
 }
+
+TEST_CASE("two resistors solved together on a shared supply resistance meet the closed form") {
+  // Closed form (square law, lambda = 0, no gate current; AC-coupled stages): with the drain
+  // targets vd1 and vd2 the currents and the shared rail are linear in each other,
+  //   id_k = (rail - vd_k) / RD_k,  rail = VDD - Rsup (id1 + id2),
+  // and each source resistor is rs = |vp| (1 - sqrt(id/idss)) / id.
+  const double vdd = 12.0, rsup = 1e3, rd1 = 3.3e3, rd2 = 2.7e3, vd1 = 6.5, vd2 = 5.5;
+  const double idss1 = 4.5e-3, vp1 = -1.6, idss2 = 4e-3, vp2 = -1.4;
+  const stage s = test::stage_from(test::two_stage_text(vdd, rsup, idss1, vp1, 680.0, rd1, idss2, vp2, 470.0, rd2));
+  const std::vector<tune_pair> pairs{{"stage1.source.resistor", {target_kind::vd, vd1, -1}},
+                                     {"stage2.source.resistor", {target_kind::vd, vd2, -1}}};
+  const joint_solution sol = solve_resistors(s, pairs);
+  const double g = 1 / rd1 + 1 / rd2;
+  const double rail = (vdd + rsup * (vd1 / rd1 + vd2 / rd2)) / (1 + rsup * g);
+  const double id1 = (rail - vd1) / rd1, id2 = (rail - vd2) / rd2;
+  REQUIRE(sol.settled);
+  CHECK(sol.rounds > 1);  // they interact through the shared resistance
+  CHECK(sol.rounds < joint_max_rounds);
+  // Settled within 1 ppm + 1 uV of each drain target: about 3e-6 of each current, so each
+  // resistor within 1e-4 of the closed form.
+  CHECK(sol.ohm[0] == doctest::Approx(std::fabs(vp1) * (1 - std::sqrt(id1 / idss1)) / id1).epsilon(1e-4));
+  CHECK(sol.ohm[1] == doctest::Approx(std::fabs(vp2) * (1 - std::sqrt(id2 / idss2)) / id2).epsilon(1e-4));
+  // Solving each alone on the nominal design misses: the other resistor moves the rail.
+  const double alone = solve_resistor(s, pairs[0].adjust, pairs[0].target);
+  CHECK(std::fabs(alone - sol.ohm[0]) > 1e-3 * sol.ohm[0]);
+}
+
+TEST_CASE("stages that share nothing settle in one round") {
+  // Ideal supply, AC coupling: a stage-2 resistor cannot move stage 1's bias.
+  const stage s = test::stage_from(test::two_stage_text(9.0, 0.0, 4.5e-3, -1.6, 680.0, 3.3e3, 4e-3, -1.4, 470.0, 2.7e3));
+  const joint_solution sol = solve_resistors(s, {{"stage1.source.resistor", {target_kind::vd, 4.5, -1}},
+                                                 {"stage2.drain.resistor", {target_kind::id, 1e-3, -1}}});
+  REQUIRE(sol.settled);
+  CHECK(sol.rounds == 1);
+}
+
+TEST_CASE("pairs that cannot be solved together are named by their field") {
+  const stage s = test::stage_from(test::two_stage_text(9.0, 0.0, 4.5e-3, -1.6, 680.0, 3.3e3, 4e-3, -1.4, 470.0, 2.7e3));
+  struct row {
+    std::vector<tune_pair> pairs;
+    const char* field;
+    const char* words;
+  };
+  const row rows[] = {
+      {{{"stage1.source.resistor", {target_kind::vd, 4.5, -1}}, {"stage1.source.resistor", {target_kind::id, 1e-3, -1}}},
+       "adjust_key", "adjusted twice"},
+      {{{"stage1.source.resistor", {target_kind::vd, 4.5, -1}}, {"stage1.drain.resistor", {target_kind::vd, 5.0, -1}}},
+       "target", "stage1.vd is the target of two resistors"},
+      {{{"stage1.source.resistor", {target_kind::center, 0, -1}}, {"stage2.source.resistor", {target_kind::vd, 4.5, -1}}},
+       "target", "center is a search of its own"},
+  };
+  for (const row& r : rows) {
+    CAPTURE(r.words);
+    try {
+      (void)solve_resistors(s, r.pairs);
+      FAIL("accepted");
+    } catch (const setting_error& e) {
+      CHECK(e.field() == r.field);
+      CHECK(std::string(e.what()).find(r.words) != std::string::npos);
+    }
+  }
+}

@@ -413,7 +413,7 @@ TEST_CASE("render names the field of a setting it refuses, and no option") {
          j.level = model::output_level::fixed;
          j.dry_output = j.stages[0].output.parent_path() / "dry.wav";
        },
-       "level", "1 stage and the dry input"},
+       "level", "1 design and the dry input"},
   };
   for (const row& rw : rows) {
     CAPTURE(std::string(rw.what));

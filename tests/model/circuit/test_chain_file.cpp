@@ -131,5 +131,6 @@ TEST_CASE("chain messages give the stage's key and its line and column") {
   t.replace(t.find("[stage.gate]\nresistor = \"1M\"\n[stage.source]"), 12, "[stage.gate]\ncoupling_cap = \"1u\"");
   const std::string m = error_of(t);
   CAPTURE(m);
-  CHECK(m.find("chain.toml: the stage1.output node has no DC path") != std::string::npos);
+  // Located at the [[stage]] header of the stage the node belongs to.
+  CHECK(m.find("chain.toml:10:1: the stage1.output node has no DC path") != std::string::npos);
 }

@@ -219,6 +219,45 @@ TEST_CASE("the sample loop allocates nothing with more than one JFET") {
 #endif
 }
 
+TEST_CASE("the sample loop allocates nothing on chains of two to seven stages") {
+#ifdef PINCHOFF_COUNT_ALLOCATIONS
+  // Every compile-time size of the general path (2..6 JFETs) and the run-time one (7), wide
+  // and portable loops, at a drive deep into clipping, with sub-steps forced by a low
+  // iteration cap and the tracked monodromy.
+  for (int k = 2; k <= 7; ++k) {
+    CAPTURE(k);
+    pinchoff::test::cascade_options o;
+    o.rail_filters = true;
+    o.dc_follower = k % 2 == 1;
+    const model::network net = pinchoff::test::cascade(k, o);
+    model::dk_options few;
+    few.max_iterations = 3;
+    model::dk_options portable;
+    portable.wide_kernels = false;
+    model::dk_engine eng(net, 384000.0), starved(net, 384000.0, few), plain(net, 384000.0, portable);
+    REQUIRE(eng.devices() == k);
+    Eigen::MatrixXd sens = Eigen::MatrixXd::Identity(eng.states(), eng.states());
+    std::vector<double> buf(256);
+    for (std::size_t n = 0; n < buf.size(); ++n) buf[n] = sine(10.0, 1000.0, 384000.0, static_cast<int>(n));
+    const long before = heap_allocations.load();
+    double sum = 0.0;
+    for (int n = 0; n < 600; ++n) {
+      const double u = sine(10.0, 1000.0, 384000.0, n);
+      sum += eng.process(u) + starved.process(u) + plain.process(u);
+    }
+    eng.process(buf, buf);
+    for (int n = 0; n < 100; ++n) sum += eng.process_tracked(sine(10.0, 1000.0, 384000.0, n), sens);
+    const long during = heap_allocations.load() - before;
+    CHECK(std::isfinite(sum));
+    CHECK(during == 0);
+    CHECK(starved.stats().substepped > 0);
+    CHECK(eng.stats().failed == 0);
+  }
+#else
+  MESSAGE("allocation counting needs glibc without a sanitizer; not checked in this build");
+#endif
+}
+
 TEST_CASE("the solution does not depend on the warm start") {
   // Newton's answer is the same from every predictor; only the iteration count changes.
   const model::network net = network_of(pinchoff::test::divider_18v, "divider");

@@ -92,7 +92,129 @@ random_counts check_random_stages(std::uint64_t seed, int count, int sweep_every
   return c;
 }
 
+// A chain's parts in one line, for a failure message (the sampler's seed and index
+// reproduce it exactly).
+std::string describe_chain(const stage& s) {
+  std::ostringstream os;
+  os.precision(6);
+  os << (s.pol == polarity::p ? "p" : "n") << " V=" << s.supply.volts_v << " Rsup=" << s.supply.resistance_ohm
+     << " Rsig=" << s.signal_impedance_ohm;
+  for (int k = 0; k < s.stage_count(); ++k) {
+    const stage_parts& p = s.part(k);
+    os << " | " << (p.topo == topology::common_source ? "CS" : "SF") << " idss=" << p.jfet.idss_a << " vp=" << p.jfet.vp_v
+       << " between=" << p.between.size() << " Rrail=" << p.rail.resistance_ohm << " Cin=" << p.gate.coupling_cap_f
+       << " RG=" << p.gate.resistor_ohm << " top=" << p.gate.bias_top_ohm << " RD=" << p.drain_resistor_ohm
+       << " RS=" << p.source.resistor_ohm << " Cout=" << p.output.coupling_cap_f;
+  }
+  return os.str();
+}
+
+std::string sci(double v) {
+  std::ostringstream os;
+  os.precision(3);
+  os << v;
+  return os.str();
+}
+
+struct chain_counts {
+  int drawn{0}, solved{0}, compared{0}, dc_coupled{0};
+  int offset_over_1nv{0};  ///< compared chains whose rest offset (engine against reference) exceeds 1e-9 V
+  double worst_v{0.0};
+  std::vector<std::string> failures;  ///< "chain N: ..." for the soak's list
+};
+
+// Draws `count` chains of 2-4 stages; each must solve (KCL at the DC point), give finite
+// small-signal and headroom figures with a stage gain per stage, and every
+// `compare_every`-th is driven hard (3 V peak at 1 kHz, 384 kHz, 1 ms) through the engine
+// and the reference solver, with no failed sample: the signal must agree to 1e-9 V, and
+// every sample to the engine's stated bound (1e-8 V); rest offsets beyond 1e-9 V are counted.
+chain_counts check_random_chains(std::uint64_t seed, int count, int compare_every) {
+  test::stage_sampler sampler(seed);
+  chain_counts c;
+  for (int k = 0; k < count; ++k) {
+    const stage s = sampler.draw_chain();
+    ++c.drawn;
+    CAPTURE(seed);
+    CAPTURE(k);
+    const std::string what = describe_chain(s);
+    CAPTURE(what);
+    REQUIRE(s.is_chain());
+    for (int i = 1; i < s.stage_count(); ++i) {
+      const stage_parts &a = s.part(i - 1), &b = s.part(i);
+      if (a.output.coupling_cap_f == 0 && b.gate.coupling_cap_f == 0 && b.gate.resistor_ohm == 0) ++c.dc_coupled;
+    }
+    const network net = build_network(s);
+    REQUIRE(net.devices() == s.stage_count());
+    operating_point op;
+    try {
+      op = solve_operating_point(net);
+    } catch (const std::exception& e) {
+      c.failures.push_back("chain " + std::to_string(k) + ": no DC point (" + e.what() + "): " + what);
+      CHECK_MESSAGE(false, e.what());
+      continue;
+    }
+    const mna_system lin = assemble_linear(net, uniform_caps(net, cap_treatment::kind::open), net.supply_v, 0.0);
+    CHECK(op.newton.converged);
+    const double scale = std::max(1e-12, (lin.a.cwiseAbs() * op.x.cwiseAbs()).maxCoeff());
+    CHECK(op.newton.residual_a <= 1e-9 * scale + 1e-15);
+    ++c.solved;
+    const small_signal_figures ss = analyse_small_signal(net, op);
+    CHECK(std::isfinite(ss.gain_midband));
+    CHECK(std::isfinite(ss.zin_ohm));
+    CHECK(std::isfinite(ss.zout_ohm));
+    CHECK(ss.stages.size() == static_cast<std::size_t>(s.stage_count()));
+    const headroom_figures h = analyse_headroom(net, op);
+    CHECK(std::isfinite(h.symmetric_output_vpk));
+    CHECK(h.clip_order.size() == static_cast<std::size_t>(s.stage_count()));
+    if (compare_every > 0 && k % compare_every == 0) {
+      dk_engine eng(net, op, 384000.0);
+      transient_reference ref(net, op, 384000.0);
+      // Two figures: every sample's difference (worst), and the difference less the one at
+      // the first sample (moving): the engine refines its start point on its own reduced
+      // equations, whose rounding in a chain with microfarads beside megohms (2C/T of
+      // several siemens against 1e-7 S) leaves a constant offset of a few nV at rest.
+      double worst = 0.0, moving = 0.0, first = 0.0;
+      for (int n = 0; n < 384; ++n) {
+        const double u = 3.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / 384000.0);
+        const double d = eng.process(u) - ref.process(u);
+        if (n == 0) first = d;
+        worst = std::max(worst, std::fabs(d));
+        moving = std::max(moving, std::fabs(d - first));
+      }
+      CHECK(eng.stats().failed == 0);
+      // The brief's figure, on the signal: 1e-9 V.
+      CHECK(moving <= 1e-9);
+      // Every sample within the engine's stated bound: tol_v plus the rounding of its port
+      // equations, at most 1e-8 V (model/engine/dk_stats.hpp, dk_options::tol_v).
+      CHECK(worst <= 1e-8);
+      if (worst > 1e-9) ++c.offset_over_1nv;
+      if (eng.stats().failed != 0 || !(moving <= 1e-9) || !(worst <= 1e-8))
+        c.failures.push_back("chain " + std::to_string(k) + ": engine against reference " + sci(worst) +
+                             " V (moving part " + sci(moving) + " V), failed samples " +
+                             std::to_string(eng.stats().failed) + ": " + what);
+      else if (worst > 1e-9)
+        c.failures.push_back("chain " + std::to_string(k) + ": rest offset " + sci(first) +
+                             " V beyond 1e-9 V (the signal within 1e-9 V): " + what);
+      c.worst_v = std::max(c.worst_v, worst);
+      ++c.compared;
+    }
+  }
+  return c;
+}
+
 }  // namespace
+
+TEST_CASE("random chains of 2-4 stages get a DC point, finite small-signal figures, and the engine agrees with the reference") {
+  // Oracles: Kirchhoff's current law at the DC point (the full nodal residual), and the
+  // reference solver (plain full-nodal Newton on the same trapezoidal rule) sample by sample.
+  const chain_counts c = check_random_chains(20261203, 60, 3);
+  CHECK(c.solved == c.drawn);
+  CHECK(c.dc_coupled > 0);  // the draw covers DC coupling, not only capacitors
+  MESSAGE("random chains: " << c.solved << " of " << c.drawn << " solved, " << c.dc_coupled << " DC-coupled links; "
+                            << c.compared << " driven against the reference, worst " << c.worst_v << " V, "
+                            << c.offset_over_1nv << " with a rest offset beyond 1e-9 V");
+  for (const std::string& f : c.failures) MESSAGE(f);
+}
 
 TEST_CASE("random valid stages all get a DC point that satisfies KCL, and sweep to finite numbers") {
   // Kirchhoff's current law at every node is the oracle: the residual of the full nodal
@@ -112,6 +234,15 @@ TEST_CASE("soak: many random stages" * doctest::skip()) {
   MESSAGE("soak: " << c.solved << " of " << c.drawn << " random stages solved; " << c.swept
                    << " swept at 3 drives, points with unconverged samples: " << c.sweep_points_with_failures);
   for (const std::string& what : c.stages_with_failures) MESSAGE("unconverged samples in: " << what);
+  // Chains: a tenth as many (each is 2-4 stages), every tenth driven against the reference;
+  // a failure names its index under seed 777 (test::stage_sampler(777).draw_chain() that
+  // many times reproduces it).
+  const chain_counts ch = check_random_chains(777, std::max(1, count / 10), 10);
+  CHECK(ch.solved == ch.drawn);
+  MESSAGE("soak: " << ch.solved << " of " << ch.drawn << " random chains solved, " << ch.dc_coupled << " DC-coupled links; "
+                   << ch.compared << " driven against the reference, worst " << ch.worst_v << " V, "
+                   << ch.offset_over_1nv << " with a rest offset beyond 1e-9 V");
+  for (const std::string& f : ch.failures) MESSAGE(f);
 }
 
 // The inverse of describe(): a stage from the line a failed property test logs, so a
