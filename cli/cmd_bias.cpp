@@ -75,7 +75,9 @@ void print_chain_text(const bias_report& r, const std::string& path, std::ostrea
     }
   }
 
-  out << "\nChain (mid-band: coupling and bypass capacitors shorted, treble cuts open)\n";
+  out << (r.st.has_capsule() ? "\nChain (mid-band: 1 kHz through the capsule's divider, coupling and bypass capacitors "
+                               "shorted, treble cuts in place)\n"
+                             : "\nChain (mid-band: coupling and bypass capacitors shorted, treble cuts open)\n");
   text_table ss({align::left, align::right, align::left});
   ss.add({"gain", format_number(r.b.ss.gain_midband, 4) + " V/V",
           db_text(r.b.ss.gain_midband) + (r.b.ss.gain_midband < 0 ? ", inverting" : "") + ", generator to load"});
