@@ -293,28 +293,17 @@ void print_json(const bias_report& r, std::ostream& out) {
     j["polarity"] = r.st.pol == model::polarity::p ? "p" : "n";
     j["supply_v"] = r.st.supply.volts_v;
     chain_json(r, j);
-    j["headroom"] = {{"up", limit_json(r.b.head.up)},
-                     {"down", limit_json(r.b.head.down)},
-                     {"symmetric_output_vpk", r.b.head.symmetric_output_vpk},
-                     {"clean_drive_vpk", r.b.head.clean_drive_vpk}};
-    nlohmann::json corners = nlohmann::json::array();
-    for (const auto& c : r.b.ss.corners) corners.push_back(corner_json(c));
-    j["corners"] = corners;
-    j["input"] = input_json(r);
-    j["low_3db_hz"] = r.b.low_3db_hz ? nlohmann::json(*r.b.low_3db_hz) : nlohmann::json(nullptr);
-    j["high_3db_hz"] = r.b.high_3db_hz ? nlohmann::json(*r.b.high_3db_hz) : nlohmann::json(nullptr);
-    j["warnings"] = r.b.warnings;
-    out << json_text(j) << '\n';
-    return;
+  } else {
+    j["stage"] = {{"name", r.st.name},
+                  {"topology", topology_name(r.st.topo)},
+                  {"polarity", r.st.pol == model::polarity::p ? "p" : "n"},
+                  {"supply_v", r.st.supply.volts_v}};
+    j["operating_point"] = operating_point_json(r.b.op.at);
+    j["operating_point"]["pd_w"] = std::fabs(r.b.op.at.id_a * r.b.op.at.vds_v);
+    j["operating_point"]["supply_current_a"] = model::supply_current_a(r.b.net, r.b.op);
+    j["small_signal"] = small_signal_json(r.b.ss);
   }
-  j["stage"] = {{"name", r.st.name},
-                {"topology", topology_name(r.st.topo)},
-                {"polarity", r.st.pol == model::polarity::p ? "p" : "n"},
-                {"supply_v", r.st.supply.volts_v}};
-  j["operating_point"] = operating_point_json(r.b.op.at);
-  j["operating_point"]["pd_w"] = std::fabs(r.b.op.at.id_a * r.b.op.at.vds_v);
-  j["operating_point"]["supply_current_a"] = model::supply_current_a(r.b.net, r.b.op);
-  j["small_signal"] = small_signal_json(r.b.ss);
+  // What single stages and chains share.
   j["headroom"] = {{"up", limit_json(r.b.head.up)},
                    {"down", limit_json(r.b.head.down)},
                    {"symmetric_output_vpk", r.b.head.symmetric_output_vpk},
