@@ -71,7 +71,7 @@ constexpr base::value_bounds temperature{200.0, 450.0, false,
 // practice: measurement capsules 1 to 50 mV/Pa), read in V/Pa.
 constexpr base::value_bounds capsule_cap{1e-12, 1e-9, false, "from a small capsule's picofarad to a nanofarad"};
 constexpr base::value_bounds capsule_sensitivity{1e-5, 1.0, false,
-                                                 "a capsule's open-circuit sensitivity, in V/Pa (\"12m\" is 12 mV/Pa)"};
+                                                 "a capsule's open-circuit sensitivity (\"12m\" or \"12mV/Pa\" is 12 mV/Pa)"};
 
 constexpr base::value_bounds knob{0.0, 1.0, false, "a knob's rotation, from fully anticlockwise (0) to fully clockwise (1)"};
 
@@ -105,7 +105,7 @@ const std::vector<section_spec>& shared_schema() {
                   {"capacitance", unit::farad, rule::non_negative, capacitor}, {"phantom", unit::none, rule::any_sign}}},
       {"signal", {{"kind", unit::none, rule::any_sign}, {"impedance", unit::ohm, rule::non_negative, optional_resistor},
                   {"capacitance", unit::farad, rule::positive, capsule_cap}, {"stray", unit::farad, rule::non_negative, capacitor},
-                  {"sensitivity", unit::none, rule::positive, capsule_sensitivity}}},
+                  {"sensitivity", unit::volt_per_pascal, rule::positive, capsule_sensitivity}}},
   };
   return s;
 }
