@@ -88,6 +88,10 @@ struct capsule_part {
   double stray_f{0};                ///< from the gate to ground (wiring, the capsule's mount); 0 = none
   double sensitivity_v_per_pa{0};   ///< open-circuit voltage per pascal at 1 kHz (rms per rms)
 };
+/// The capsule's open-circuit sine peak at a sound pressure level (dB SPL, 0 dB = 20 µPa rms),
+/// and the level whose open-circuit peak is `drive_vpk`: sensitivity x pressure, as peak volts.
+double capsule_drive_vpk(const capsule_part& c, double level_db_spl) noexcept;
+double capsule_level_db_spl(const capsule_part& c, double drive_vpk) noexcept;
 
 /// The parts of one JFET stage: the whole file for a single stage, one `[[stage]]` of a chain.
 struct stage_parts {
