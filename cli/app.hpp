@@ -49,6 +49,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
 void register_bias(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_tune(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_response(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_noise(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_fit(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_spread(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_sweep(CLI::App& app, std::vector<command>& commands, const data_files& data);

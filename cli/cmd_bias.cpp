@@ -13,6 +13,7 @@
 #include "cli/text_table.hpp"
 #include "base/units.hpp"
 #include "model/analysis/bias.hpp"
+#include "model/analysis/noise.hpp"
 #include "model/analysis/warnings.hpp"
 
 namespace pinchoff::cli {
@@ -31,6 +32,8 @@ struct bias_options {
 struct bias_report {
   model::stage st;
   model::bias_figures b;
+  double ein_a_dbu{};          ///< A-weighted EIN, 20 Hz to 20 kHz
+  double self_noise_dba_spl{};  ///< a capsule's
 };
 
 std::string db_text(double gain) { return format_number(base::db_from_ratio(std::fabs(gain)), 3) + " dB"; }
@@ -196,6 +199,10 @@ nlohmann::json input_json(const bias_report& r) {
 // What single stages and chains share: corners, reactances, warnings.
 void print_tail(const bias_report& r, std::ostream& out) {
   print_input(r, out);
+  if (r.st.has_capsule())
+    out << "  self-noise " << format_number(r.self_noise_dba_spl, 3) << " dB(A) SPL (`pinchoff noise` names the parts)\n";
+  else
+    out << "  EIN " << format_number(r.ein_a_dbu, 4) << " dBu A-weighted, 20 Hz to 20 kHz (`pinchoff noise` names the parts)\n";
 
   if (!r.b.ss.corners.empty()) {
     out << "\nLow-frequency corners (each capacitor alone, the others shorted)\n";
@@ -326,6 +333,8 @@ void print_json(const bias_report& r, std::ostream& out) {
     j["reactances"] = xs;
   }
   j["warnings"] = r.b.warnings;
+  j["noise"] = {{"ein_a_dbu", number_or_null(r.ein_a_dbu)},
+                {"self_noise_dba_spl", r.st.has_capsule() ? number_or_null(r.self_noise_dba_spl) : nlohmann::json(nullptr)}};
   out << json_text(j) << '\n';
 }
 
@@ -358,6 +367,9 @@ void run(const bias_options& opt, std::ostream& out) {
   bias_report r;
   r.st = load_stage(opt.input);
   r.b = model::analyse_bias(r.st, at_hz);
+  const model::noise_result n = model::analyse_noise(r.b.net, r.b.op, {.points = 2, .band_points_per_decade = 50});
+  r.ein_a_dbu = model::dbu_of_rms(n.input_a_v());
+  if (r.st.has_capsule()) r.self_noise_dba_spl = model::self_noise_db_spl(n.input_a_v(), r.st.capsule.sensitivity_v_per_pa);
   if (opt.json) return print_json(r, out);
   print_text(r, opt.input.path, out);
 }

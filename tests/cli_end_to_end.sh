@@ -31,6 +31,8 @@ for p in "$presets"/*.toml; do
   rsvg-convert "$tmp/s.svg" -o "$tmp/s.png" || { echo "FAIL: sweep plot of $p does not render"; fail=1; }
   check "response $p" 0 "$bin" response "$p" --plot "$tmp/r.svg"
   rsvg-convert "$tmp/r.svg" -o "$tmp/r.png" || { echo "FAIL: response plot of $p does not render"; fail=1; }
+  check "noise $p" 0 "$bin" noise "$p" --points 20 --plot "$tmp/n.svg"
+  rsvg-convert "$tmp/n.svg" -o "$tmp/n.png" || { echo "FAIL: noise plot of $p does not render"; fail=1; }
 done
 check "missing file" 2 "$bin" bias "$tmp/none.toml"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for a missing file"; fail=1; }

@@ -2,6 +2,7 @@
 
 #include <cmath>
 #include <numbers>
+#include <utility>
 
 #include "base/error.hpp"
 
@@ -39,6 +40,15 @@ Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, 
 }
 
 Eigen::VectorXcd solve_small_signal(const network& net, std::span<const jfet_linear> lins, const ac_setup& setup) {
+  const small_signal_system sys = assemble_small_signal(net, lins, setup);
+  const Eigen::VectorXcd x = sys.a.fullPivLu().solve(sys.rhs);
+  Eigen::VectorXcd v(net.node_count);
+  v[0] = 0.0;
+  for (int k = 1; k < net.node_count; ++k) v[k] = x[row(k)];
+  return v;
+}
+
+small_signal_system assemble_small_signal(const network& net, std::span<const jfet_linear> lins, const ac_setup& setup) {
   if (static_cast<int>(lins.size()) != net.devices())
     throw internal_error("small-signal analysis: the linearised JFETs do not match the network");
   const int nu = net.node_count - 1;
@@ -116,11 +126,7 @@ Eigen::VectorXcd solve_small_signal(const network& net, std::span<const jfet_lin
     if (setup.inject_a != 0) rhs[row(setup.inject_a)] += 1.0;
     if (setup.inject_b != 0) rhs[row(setup.inject_b)] -= 1.0;
   }
-  const Eigen::VectorXcd x = a.fullPivLu().solve(rhs);
-  Eigen::VectorXcd v(net.node_count);
-  v[0] = 0.0;
-  for (int k = 1; k < net.node_count; ++k) v[k] = x[row(k)];
-  return v;
+  return {std::move(a), std::move(rhs)};
 }
 
 small_signal_figures analyse_small_signal(const network& net, const operating_point& op) {

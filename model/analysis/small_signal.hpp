@@ -48,6 +48,15 @@ Eigen::VectorXcd solve_small_signal(const network& net, std::span<const jfet_lin
 /// The same for a network of one JFET.
 Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, const ac_setup& setup);
 
+/// The modified nodal system behind solve_small_signal: unknowns are the node voltages 1..N-1
+/// (row node - 1) and then one branch current per voltage source or shorted capacitor. The
+/// noise analysis solves its transpose (the adjoint network) for every source at once.
+struct small_signal_system {
+  Eigen::MatrixXcd a;
+  Eigen::VectorXcd rhs;
+};
+small_signal_system assemble_small_signal(const network& net, std::span<const jfet_linear> lins, const ac_setup& setup);
+
 /// Low-frequency corner of one large capacitor by the short-circuit time-constant method
 /// (Gray & Searle, Electronic Principles, 1969; Gray, Hurst, Lewis & Meyer, sec. 7.3):
 /// f = 1 / (2 pi R C), R = resistance its terminals see with the other large capacitors

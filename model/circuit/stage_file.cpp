@@ -86,7 +86,10 @@ const std::vector<section_spec>& stage_schema() {
                 {"is", unit::ampere, rule::non_negative, r::is}, {"n", unit::none, rule::positive, r::n},
                 {"cgs", unit::farad, rule::non_negative, r::junction_cap}, {"cgd", unit::farad, rule::non_negative, r::junction_cap},
                 {"vds_max", unit::volt, rule::positive, r::vds_max}, {"pd_max", unit::watt, rule::positive, r::pd_max},
-                {"igf_max", unit::ampere, rule::positive, r::igf_max}}},
+                {"igf_max", unit::ampere, rule::positive, r::igf_max},
+                {"flicker_coefficient", unit::none, rule::non_negative, r::flicker_coefficient},
+                {"flicker_exponent", unit::none, rule::positive, r::flicker_exponent},
+                {"gate_leakage", unit::ampere, rule::non_negative, r::gate_leakage}}},
       {"gate", {{"coupling_cap", unit::farad, rule::non_negative, capacitor}, {"resistor", unit::ohm, rule::positive, gate_resistor},
                 {"bias_top", unit::ohm, rule::positive, gate_resistor}, {"bias_bottom", unit::ohm, rule::positive, gate_resistor}}},
       {"drain", {{"resistor", unit::ohm, rule::non_negative, optional_resistor}, {"shunt_cap", unit::farad, rule::non_negative, capacitor}}},
@@ -450,6 +453,9 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
   st.jfet.n = g.get("jfet.n", 1.0);
   st.jfet.cgs_f = g.get("jfet.cgs");
   st.jfet.cgd_f = g.get("jfet.cgd");
+  st.jfet.flicker_k = g.get("jfet.flicker_coefficient", 0.0);
+  st.jfet.flicker_exponent = g.get("jfet.flicker_exponent", 1.0);
+  st.jfet.gate_leakage_a = g.get("jfet.gate_leakage", 0.0);
   if (g.has("jfet.vds_max")) st.ratings.vds_max_v = g.get("jfet.vds_max");
   if (g.has("jfet.pd_max")) st.ratings.pd_max_w = g.get("jfet.pd_max");
   if (g.has("jfet.igf_max")) st.ratings.igf_max_a = g.get("jfet.igf_max");

@@ -17,6 +17,10 @@ struct jfet_params {
   double n{1.0};              ///< gate junction emission coefficient, > 0
   double cgs_f{0.0};          ///< gate-source capacitance (constant), >= 0
   double cgd_f{0.0};          ///< gate-drain capacitance (constant), >= 0
+  // Noise only (the channel and junction equations above do not use them):
+  double flicker_k{0.0};         ///< flicker noise current density K |id|^a / f (A^2/Hz at 1 Hz for a = 0), >= 0
+  double flicker_exponent{1.0};  ///< a, the drain current's exponent in the flicker density
+  double gate_leakage_a{0.0};    ///< reverse gate leakage, magnitude (A): its shot noise 2 q I
 };
 
 /// Optional device ratings; a missing rating is not checked.

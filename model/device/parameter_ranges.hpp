@@ -24,6 +24,13 @@ inline constexpr value_bounds is{1e-20, 1e-6, true, "gate junctions leak femto- 
 inline constexpr value_bounds n{0.5, 5.0, false, "emission coefficients of real junctions lie between 1 and 2"};
 inline constexpr value_bounds junction_cap{1e-14, 1e-8, true,
                                            "small-signal parts have 1 to 30 pF, power parts up to a few nanofarads"};
+/// Noise: SPICE-style flicker coefficient and exponent (K |id|^a / f), and the gate leakage.
+inline constexpr value_bounds flicker_coefficient{1e-25, 1e-10, true,
+                                                  "flicker coefficients of real parts lie between about 1e-20 and 1e-14 "
+                                                  "with an exponent near 1"};
+inline constexpr value_bounds flicker_exponent{0.5, 2.5, false, "flicker exponents of real parts lie between 0.5 and 2"};
+inline constexpr value_bounds gate_leakage{1e-16, 1e-6, true,
+                                           "gate leakage of real parts is picoamperes at room temperature, nanoamperes hot"};
 inline constexpr value_bounds vds_max{0.1, 1e4, false, "ratings of real parts lie between a few volts and a kilovolt"};
 inline constexpr value_bounds pd_max{1e-4, 1e4, false, "ratings of real parts lie between 100 mW and a few hundred watts"};
 inline constexpr value_bounds igf_max{1e-9, 100.0, false, "ratings of real parts lie between 1 mA and an ampere or so"};
