@@ -2,6 +2,7 @@
 #include <algorithm>
 #include <cmath>
 #include <memory>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -14,6 +15,7 @@
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "base/units.hpp"
+#include "model/analysis/compare.hpp"
 #include "model/analysis/headroom.hpp"
 #include "model/analysis/noise.hpp"
 #include "model/circuit/network.hpp"
@@ -44,7 +46,14 @@ struct noise_report {
   std::string level_text;
   double level_vpk{NAN};   ///< --level at the generator, peak; NaN when not given
   std::vector<std::string> warnings;
+  std::optional<model::max_spl_figures> max_spl;  ///< a capsule source: the top of its dynamic range
 };
+
+// A capsule's dynamic range: the maximum SPL at 1 % THD (1 kHz) over the A-weighted self-noise.
+double dynamic_range_db(const noise_report& rep) {
+  return rep.max_spl->one_percent_db_spl -
+         model::self_noise_db_spl(rep.r.input_a_v(), rep.st.capsule.sensitivity_v_per_pa);
+}
 
 double rms_of_vpk(double vpk) { return vpk / std::sqrt(2.0); }
 double snr_db(double signal_rms, double noise_rms) { return 20.0 * std::log10(signal_rms / noise_rms); }
@@ -119,6 +128,11 @@ void print_json(const noise_report& rep, std::ostream& out) {
   j["self_noise_dba_spl"] =
       rep.st.has_capsule() ? number_or_null(model::self_noise_db_spl(r.input_a_v(), rep.st.capsule.sensitivity_v_per_pa))
                            : nlohmann::json(nullptr);
+  if (rep.max_spl) {
+    const bool found = rep.max_spl->one_percent.found;
+    j["max_spl_1_percent_db"] = found ? number_or_null(rep.max_spl->one_percent_db_spl) : nlohmann::json(nullptr);
+    j["dynamic_range_db"] = found ? number_or_null(dynamic_range_db(rep)) : nlohmann::json(nullptr);
+  }
   j["clean_swing_vrms"] = clean_swing_rms(rep);
   j["snr_db"] = number_or_null(snr_db(clean_swing_rms(rep), r.output_v()));
   j["snr_a_db"] = number_or_null(snr_db(clean_swing_rms(rep), r.output_a_v()));
@@ -209,6 +223,13 @@ void print_text(const noise_report& rep, std::ostream& out) {
   if (rep.st.has_capsule())
     out << "  self-noise " << format_number(model::self_noise_db_spl(r.input_a_v(), rep.st.capsule.sensitivity_v_per_pa), 3)
         << " dB(A) SPL (the capsule's " << format_si(rep.st.capsule.sensitivity_v_per_pa * 1e3, "mV/Pa") << ")\n";
+  if (rep.max_spl) {
+    if (rep.max_spl->one_percent.found)
+      out << "  dynamic range " << format_number(dynamic_range_db(rep), 3) << " dB, from the self-noise to the maximum SPL at 1 % THD ("
+          << format_number(rep.max_spl->one_percent_db_spl, 4) << " dB SPL at 1 kHz)\n";
+    else
+      out << "  dynamic range: no maximum SPL at 1 % THD (" << rep.max_spl->one_percent.reason << ")\n";
+  }
   out << "  signal-to-noise at the clean swing (" << format_si(clean_swing_rms(rep), "V") << " rms at the load): "
       << format_number(snr_db(clean_swing_rms(rep), r.output_v()), 3) << " dB, "
       << format_number(snr_db(clean_swing_rms(rep), r.output_a_v()), 3) << " dB A-weighted\n";
@@ -291,6 +312,13 @@ void run(const noise_options& opt, std::ostream& out, std::ostream& err, base::o
   rep.warnings = rest_point_warnings(rep.st, rep.net, rep.op, "noise", err);
   rep.r = model::analyse_noise(rep.net, rep.op, s);
   rep.head = model::analyse_headroom(rep.net, rep.op);
+  if (rep.st.has_capsule()) {
+    // The top of a microphone's dynamic range, as sweep and compare rate it (1 kHz).
+    model::compare_settings c;
+    c.mode = model::compare_mode::at_drive;
+    c.automatic_oversample = true;
+    rep.max_spl = model::find_max_spl(rep.st, c);
+  }
 
   if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
   if (opt.json) return print_json(rep, out);

@@ -87,3 +87,20 @@ TEST_CASE("bias prints the A-weighted EIN, or a capsule's self-noise") {
   REQUIRE(j.status == 0);
   CHECK(nlohmann::json::parse(j.out)["noise"]["self_noise_dba_spl"].is_number());
 }
+
+TEST_CASE("a capsule's dynamic range runs from its self-noise to its maximum SPL at 1 % THD") {
+  // IEC 60268-4 usage: the dynamic range is the maximum SPL less the A-weighted self-noise
+  // (both in dB SPL); the maximum SPL is the one sweep and compare give at 1 kHz.
+  const result r = run({"noise", preset("phantom-mic-follower.toml"), "--json", "--points", "20"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  const result c = run({"compare", preset("phantom-mic-follower.toml"), preset("phantom-mic-follower.toml"), "--json"});
+  REQUIRE(c.status == 0);
+  const double max_spl = nlohmann::json::parse(c.out)["designs"][0]["max_spl_1_percent_db"].get<double>();
+  CHECK(j["max_spl_1_percent_db"].get<double>() == doctest::Approx(max_spl).epsilon(1e-9));
+  CHECK(j["dynamic_range_db"].get<double>() ==
+        doctest::Approx(max_spl - j["self_noise_dba_spl"].get<double>()).epsilon(1e-9));
+  const result text = run({"noise", preset("phantom-mic-follower.toml"), "--points", "20"});
+  REQUIRE(text.status == 0);
+  CHECK(text.out.find("dynamic range") != std::string::npos);
+}
