@@ -55,7 +55,7 @@ std::string pickup_into_cs(const std::string& cgs, const std::string& rg) {
 
 TEST_CASE("a pickup's resonance and peak match the RLC divider's closed form, unloaded and loaded") {
   // Unloaded: a gate resistor of 100 GΩ and no input capacitance leave the pickup's own RLC
-  // (its 1/(2 pi sqrt(L C)) 3.18 kHz, Q = sqrt(L/C)/R). Loaded: a 1 MΩ gate resistor and
+  // (its 1/(2 pi sqrt(L C)) 4.50 kHz, Q = sqrt(L/C)/R = 11.8). Loaded: a 1 MΩ gate resistor and
   // 100 pF of input capacitance (cgs) damp it and pull it down by sqrt(C / (C + Cin)).
   struct row {
     const char* source;

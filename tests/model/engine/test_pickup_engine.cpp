@@ -65,9 +65,9 @@ TEST_CASE("a pickup's coil in the DK engine: the reference's samples to 1e-9 V, 
   // Both solvers discretise the same circuit with the same trapezoidal rule (the inductor's
   // companion T/(2L), Nagel 1975), so they agree to the issue's 1e-9 V. The single stage is
   // presets/pickup-buffer-9v.toml; the chain is presets/buffered-boost-9v.toml driven by the
-  // same pickup, DC-coupled to its gate (no coupling capacitor: the coil carries the gate
-  // resistor's DC). Drives: clean, and hard enough to clip, at 1 kHz and at 3 kHz, near
-  // the resonance (about 3.2 kHz loaded).
+  // same pickup, DC-coupled to its gate (no coupling capacitor: the coil lies in the gate's
+  // DC path). Drives: clean, and hard enough to clip, at 1 kHz and at 3 kHz, on
+  // the resonance's rising flank (the single stage's lies at 4.9 kHz).
   const std::string pickup = "[signal]\nkind = \"pickup\"\nresistance = \"6k\"\ninductance = 2.5\ncapacitance = \"120p\"\ncable = 3\n";
   std::string chain = preset_text("buffered-boost-9v.toml");
   const std::string resistive = "[signal]\nimpedance = \"10k\"\n";
