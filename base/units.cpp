@@ -227,6 +227,7 @@ std::optional<double> parse_spl_db(std::string_view text) {
 }
 
 double pa_rms_from_db_spl(double level_db_spl) noexcept { return spl_reference_pa * std::pow(10.0, level_db_spl / 20.0); }
+double db_spl_from_pa_rms(double pa_rms) noexcept { return db_from_ratio(pa_rms / spl_reference_pa); }
 
 double parse_frequency_hz(std::string_view text) {
   const double f = parse_value(text, unit::hertz);

@@ -78,6 +78,7 @@ double vpk_from_dbu(double level_dbu) noexcept;
 double dbv_from_vpk(double vpk) noexcept;
 double vpk_from_dbv(double level_dbv) noexcept;
 double pa_rms_from_db_spl(double level_db_spl) noexcept;  // 20 µPa x 10^(L/20)
+double db_spl_from_pa_rms(double pa_rms) noexcept;        // 20 log10(p / 20 µPa)
 
 /// Formats a value with an SI prefix and unit symbol, `digits` significant digits:
 /// format_si(4700, "Ω") == "4.70 kΩ"; format_si(-0.00259, "A") == "-2.59 mA".

@@ -4,6 +4,7 @@
 #include <cstdio>
 #include <filesystem>
 #include <memory>
+#include <optional>
 #include <span>
 #include <string>
 #include <vector>
@@ -95,7 +96,20 @@ std::string label_of(const design_input& d) {
   return l;
 }
 
+// A capsule design's maximum sound pressure level at a THD, or why there is none.
+std::optional<double> max_spl(const model::stage& st, const model::drive_search& d) {
+  if (!st.has_capsule() || !d.found) return std::nullopt;
+  return model::capsule_level_db_spl(st.capsule, d.drive_vpk);
+}
+std::string spl_text(const model::stage& st, const std::optional<model::drive_search>& d) {
+  if (!d) return "";
+  const std::optional<double> l = max_spl(st, *d);
+  return l ? fixed(*l, 1) + " dB SPL" : std::string("not reached");
+}
+
 std::string mode_text(const model::compare_result& r) {
+  if (r.drive_db_spl)
+    return "every design driven at " + fixed(*r.drive_db_spl, 1) + " dB SPL at its capsule (each capsule's own voltage)";
   if (r.mode == model::compare_mode::at_output)
     return "each design driven to give " + dbu(r.level_vpk) + " (" + format_si(r.level_vpk, "Vpk", 4) + ") at the load";
   return "every design driven at " + format_si(r.level_vpk, "Vpk", 4) + " (" + dbu(r.level_vpk) + ") from the generator";
@@ -142,6 +156,16 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
   row("", [](const df& d) { return dbu(d.clean_swing_vpk); });
   row("drive", [](const df& d) { return format_si(d.point.drive_vpk, "Vpk", 4); });
   row("", [](const df& d) { return dbu(d.point.drive_vpk); });
+  bool capsules = false;
+  for (const design_input& d : in) capsules = capsules || d.st.has_capsule();
+  std::size_t col = 0;  // the design a cell is for, counted by the row below
+  if (capsules) {
+    col = 0;
+    row("", [&](const df& d) {
+      const model::stage& st = in[col++].st;
+      return st.has_capsule() ? fixed(model::capsule_level_db_spl(st.capsule, d.point.drive_vpk), 1) + " dB SPL" : std::string();
+    });
+  }
   row("output", [](const df& d) { return format_si(d.point.output_vpk, "Vpk", 4); });
   row("", [](const df& d) { return dbu(d.point.output_vpk); });
   row("gain at this level", [](const df& d) { return fixed(d.point.gain_db, 2) + " dB"; });
@@ -154,6 +178,15 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
   });
   row("", [](const df& d) { return d.thd_1_percent.found ? dbu(d.thd_1_percent.point.output_vpk) : std::string(); });
   row("  at drive", [](const df& d) { return d.thd_1_percent.found ? dbu(d.thd_1_percent.drive_vpk) : std::string(); });
+  if (capsules) {
+    col = 0;
+    row("max SPL, 0.5 % THD", [&](const df& d) { return spl_text(in[col++].st, d.thd_half_percent); });
+    col = 0;
+    row("max SPL, 1 % THD", [&](const df& d) {
+      const model::stage& st = in[col++].st;
+      return st.has_capsule() ? spl_text(st, d.thd_1_percent) : std::string();
+    });
+  }
   t.write(out);
 
   out << (chains ? "\n  clean swing: largest symmetric output at the load before the first JFET to clip leaves\n"
@@ -163,9 +196,15 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
                   "  quasi-static, as in `bias`); drive: generator sine peak, open circuit; output: the\n")
       << "  fundamental at the load; even/odd: even- over odd-harmonic power (positive: even-dominated);\n"
          "  1 % THD: output where THD first reaches 1 % as the drive rises, at this frequency.\n";
-  for (std::size_t i = 0; i < r.designs.size(); ++i)
+  if (capsules)
+    out << "  max SPL: the sound pressure at the capsule (dB SPL, 0 dB = 20 µPa) at which THD first reaches\n"
+           "  0.5 % or 1 % as the level rises, at this frequency; the capsule's own distortion is not modelled.\n";
+  for (std::size_t i = 0; i < r.designs.size(); ++i) {
     if (!r.designs[i].thd_1_percent.found)
       out << "  design " << i + 1 << ", 1 % THD: " << r.designs[i].thd_1_percent.reason << '\n';
+    if (r.designs[i].thd_half_percent && !r.designs[i].thd_half_percent->found)
+      out << "  design " << i + 1 << ", 0.5 % THD: " << r.designs[i].thd_half_percent->reason << '\n';
+  }
 }
 
 void print_json(const std::vector<design_input>& in, const model::compare_result& r, std::ostream& out) {
@@ -177,6 +216,7 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
   j["level_vpk"] = r.level_vpk;
   j["level_dbu"] = base::dbu_from_vpk(r.level_vpk);
   j["thd_harmonics"] = r.thd_harmonics;
+  j["drive_db_spl"] = r.drive_db_spl ? nlohmann::json(*r.drive_db_spl) : nlohmann::json(nullptr);
   nlohmann::json ds = nlohmann::json::array();
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
     const model::design_figures& d = r.designs[i];
@@ -208,6 +248,13 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
                     {"output_vpk", t1.found ? nlohmann::json(t1.point.output_vpk) : nlohmann::json(nullptr)},
                     {"output_dbu", t1.found ? nlohmann::json(base::dbu_from_vpk(t1.point.output_vpk)) : nlohmann::json(nullptr)},
                     {"reason", t1.reason}}}});
+    if (in[i].st.has_capsule() && d.thd_half_percent) {
+      // Null where THD does not reach the figure within the drive limit.
+      const std::optional<double> half = max_spl(in[i].st, *d.thd_half_percent), one = max_spl(in[i].st, t1);
+      ds.back()["drive_db_spl"] = model::capsule_level_db_spl(in[i].st.capsule, d.point.drive_vpk);
+      ds.back()["max_spl_half_percent_db"] = half ? nlohmann::json(*half) : nlohmann::json(nullptr);
+      ds.back()["max_spl_1_percent_db"] = one ? nlohmann::json(*one) : nlohmann::json(nullptr);
+    }
     if (!d.stages_at.empty()) {
       // A chain: each stage's operating point, as bias gives them, instead of one.
       nlohmann::json sts = nlohmann::json::array();
@@ -230,7 +277,11 @@ void write_csv(const std::vector<design_input>& in, const model::compare_result&
   };
   out << "design,path,name,vd_v,id_a,gain_midband_db,clean_swing_vpk,drive_vpk,output_vpk,gain_db,thd_percent";
   for (int h = 2; h <= r.harmonics; ++h) out << ",h" << h << "_dbc";
-  out << ",even_odd_ratio,thd_1_percent_output_vpk,thd_1_percent_drive_vpk\n";
+  out << ",even_odd_ratio,thd_1_percent_output_vpk,thd_1_percent_drive_vpk";
+  bool capsules = false;
+  for (const design_input& d : in) capsules = capsules || d.st.has_capsule();
+  if (capsules) out << ",max_spl_half_percent_db,max_spl_1_percent_db";
+  out << '\n';
   out.precision(10);
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
     const model::design_figures& d = r.designs[i];
@@ -252,6 +303,13 @@ void write_csv(const std::vector<design_input>& in, const model::compare_result&
     if (d.thd_1_percent.found) out << d.thd_1_percent.point.output_vpk;
     out << ',';
     if (d.thd_1_percent.found) out << d.thd_1_percent.drive_vpk;
+    if (capsules) {
+      out << ',';
+      if (d.thd_half_percent)
+        if (const std::optional<double> l = max_spl(in[i].st, *d.thd_half_percent)) out << *l;
+      out << ',';
+      if (const std::optional<double> l = max_spl(in[i].st, d.thd_1_percent)) out << *l;
+    }
     out << '\n';
   }
 }
@@ -261,6 +319,7 @@ void write_plot(const std::vector<design_input>& in, const model::compare_result
   bar_chart b;
   b.title = "Harmonic profile at " + format_si(r.frequency_hz, "Hz") + ", " +
             (r.mode == model::compare_mode::at_output ? dbu(r.level_vpk) + " at the load"
+             : r.drive_db_spl                         ? fixed(*r.drive_db_spl, 1) + " dB SPL at the capsule"
                                                       : format_si(r.level_vpk, "Vpk") + " drive");
   b.x_title = "harmonic";
   b.y_title = "level re fundamental (dBc)";
@@ -290,7 +349,10 @@ CLI::App* setup(CLI::App& app, compare_options& opt) {
   sub->add_option("--at-output", opt.at_output,
                   "Drive each design so its fundamental at the load is this level (the default, at -10dBu)")
       ->type_name("LEVEL");
-  sub->add_option("--at-drive", opt.at_drive, "Drive every design with this generator level instead")->type_name("LEVEL");
+  sub->add_option("--at-drive", opt.at_drive,
+                  "Drive every design with this generator level instead; with capsule sources a sound pressure "
+                  "level such as 94dBSPL (each capsule's own voltage)")
+      ->type_name("LEVEL");
   sub->add_option("--harmonics", opt.harmonics, "Highest harmonic shown (H2..HN); THD counts at least H2..H10")
       ->capture_default_str();
   sub->add_option("--oversample", opt.oversample,
@@ -310,6 +372,10 @@ CLI::App* setup(CLI::App& app, compare_options& opt) {
       "      a variant of one design: the bypass capacitor removed (less gain, less H2)\n"
       "  pinchoff compare presets/clean-preamp-18v.toml presets/clean-preamp-18v.toml --set 2:supply.volts=12 \\\n"
       "      --at-output 0dBu --freq 100 --plot profile.svg\n"
+      "  pinchoff compare presets/phantom-mic-follower.toml presets/phantom-mic-follower.toml \\\n"
+      "      --set 2:source.resistor=4.7k --at-drive 120dBSPL\n"
+      "      two microphone converters at one sound pressure; capsule designs also get their\n"
+      "      maximum SPL at 0.5 % and 1 % THD\n"
       "Why equal output by default: at one drive a stage with more gain swings further and so\n"
       "distorts more; comparing at the same level at the load (--at-output, -10 dBu unless told:\n"
       "245 mV rms, near a line input's nominal level and inside the clean range of most JFET\n"
@@ -327,7 +393,13 @@ void run(const compare_options& opt, std::ostream& out, std::ostream& err, base:
   s.frequency_hz = option_frequency_hz(opt.freq, "--freq");
   if (!opt.at_drive.empty()) {
     s.mode = model::compare_mode::at_drive;
-    s.level_vpk = option_level_vpk(opt.at_drive, "--at-drive");
+    // A sound pressure level becomes each design's own capsule voltage in the model.
+    try {
+      s.drive_db_spl = base::parse_spl_db(opt.at_drive);
+    } catch (const input_error& e) {
+      throw input_error(std::string("--at-drive: ") + e.what());
+    }
+    if (!s.drive_db_spl) s.level_vpk = option_level_vpk(opt.at_drive, "--at-drive");
   } else {
     s.mode = model::compare_mode::at_output;
     s.level_vpk = option_level_vpk(opt.at_output.empty() ? "-10dBu" : opt.at_output, "--at-output");

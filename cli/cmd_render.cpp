@@ -61,6 +61,7 @@ const std::map<std::string, std::string, std::less<>> render_options_of_fields{
 struct render_outcome {
   model::render_report report;
   std::string input;  // as given
+  std::optional<double> input_peak_db_spl;  // --input-peak as a sound pressure (capsule stages)
   double input_peak_v{};
   double peak_dbfs{};
   bool fixed_level{false};
@@ -168,7 +169,10 @@ void write_text(const render_outcome& run, std::ostream& out) {
   out << '\n';
   out << "  input   " << in.format_text << ", " << rate_text(in.rate_hz) << " Hz, " << in.channels
       << (in.channels == 1 ? " channel, " : " channels, ") << format_number(in.seconds(), 4) << " s; 0 dBFS = "
-      << volts_text(run.input_peak_v) << " peak at the generator\n";
+      << volts_text(run.input_peak_v) << " peak at the generator";
+  if (run.input_peak_db_spl)
+    out << " (a sine at " << format_number(*run.input_peak_db_spl, 4) << " dB SPL at the capsule)";
+  out << '\n';
   out << "  engine  " << r.oversample << "x oversampling (" << format_si(r.engine_rate_hz, "Hz", 3) << "), "
       << r.latency_samples << " samples of filter latency compensated, " << r.threads
       << (r.threads == 1 ? " engine thread" : " engine threads") << (r.pipelined ? " and one for files" : "") << '\n';
@@ -306,7 +310,8 @@ void write_json(const render_outcome& run, std::ostream& out) {
                            {"frames", r.input.frames},
                            {"duration_s", r.input.seconds()},
                            {"format", r.input.format_text},
-                           {"full_scale_vpk", run.input_peak_v}}},
+                           {"full_scale_vpk", run.input_peak_v},
+                           {"full_scale_db_spl", run.input_peak_db_spl ? nlohmann::json(*run.input_peak_db_spl) : nlohmann::json(nullptr)}}},
                          {"format", std::string(dsp::sample_format_name(r.format))},
                          {"oversampling", r.oversample},
                          {"oversampling_choice", choice_json(r)},
@@ -331,7 +336,8 @@ void write_json(const render_outcome& run, std::ostream& out) {
 model::render_job job_from(const render_options& o) {
   model::render_job job;
   job.input = o.input;
-  job.input_peak_v = option_level_vpk(o.input_peak, "--input-peak");
+  // A sound pressure level needs the capsule's sensitivity: set once the stages are read.
+  if (!is_spl_level(o.input_peak)) job.input_peak_v = option_level_vpk(o.input_peak, "--input-peak");
   job.oversample = parse_oversampling(o.oversample);
   job.overwrite = o.force;
   job.threads = o.threads;
@@ -346,11 +352,13 @@ model::render_job job_from(const render_options& o) {
 
 // Reads each stage file and solves its rest point, printing its cautions (and keeping them
 // for the JSON report).
-std::vector<model::render_stage> load_stages(const render_options& o, std::ostream& err, std::vector<std::string>& warnings) {
+// `read` gets the stage files as read.
+std::vector<model::render_stage> load_stages(const render_options& o, std::ostream& err, std::vector<std::string>& warnings,
+                                             std::vector<model::stage>& read) {
   std::vector<model::render_stage> stages;
   for (const std::string& path : o.stages) {
     const fs::path file(path);
-    const model::stage s = model::read_stage_file(path, {}, o.devices);
+    const model::stage& s = read.emplace_back(model::read_stage_file(path, {}, o.devices));
     model::render_stage st;
     st.name = file.stem().string();
     st.net = model::build_network(s);
@@ -428,7 +436,23 @@ render_outcome run(const render_options& o, std::ostream& err, base::output_set&
   const interrupt_guard guard;
   render_outcome r;
   model::render_job job = job_from(o);
-  job.stages = load_stages(o, err, r.warnings);
+  std::vector<model::stage> read;
+  job.stages = load_stages(o, err, r.warnings, read);
+  if (is_spl_level(o.input_peak)) {
+    // One recording drives every stage: a sound pressure stands for one voltage only when
+    // every stage has a capsule of the same sensitivity.
+    for (std::size_t i = 1; i < read.size(); ++i)
+      if (read[i].has_capsule() && read[0].has_capsule() &&
+          read[i].capsule.sensitivity_v_per_pa != read[0].capsule.sensitivity_v_per_pa)
+        throw input_error("--input-peak " + o.input_peak + ": " + o.stages[0] + " and " + o.stages[i] +
+                          " have capsules of different sensitivity, so one sound pressure is a different voltage for "
+                          "each; render them one at a time, or give --input-peak in volts");
+    for (std::size_t i = 0; i < read.size(); ++i)
+      if (!read[i].has_capsule())
+        job.input_peak_v = option_level_vpk(o.input_peak, "--input-peak", &read[i]);  // says why it cannot be
+    job.input_peak_v = option_level_vpk(o.input_peak, "--input-peak", &read[0]);
+    r.input_peak_db_spl = base::parse_spl_db(o.input_peak);
+  }
   place_outputs(o, job, outputs);
 
   progress_bar bar(err, !o.quiet && stderr_is_terminal());
@@ -502,6 +526,8 @@ CLI::App* setup(CLI::App& app, render_options& o) {
       "a hot passive pickup played hard, or a line-level output, peaks around 1 V (single notes\n"
       "from a passive pickup are more like 10-300 mV). A quieter source drives a stage less hard:\n"
       "give the peak your source reaches, e.g. --input-peak 300mV for a vintage-output pickup.\n"
+      "With a capsule source it may be a sound pressure: --input-peak 120dBSPL makes a full-scale\n"
+      "sine stand for a 120 dB SPL sine at the capsule (its sensitivity times the pressure).\n"
       "\n"
       "Output level: normalised so the peak is at --normalize (-1 dBFS), and the applied gain is\n"
       "printed; --output-peak fixes it instead (the same stage always sounds as loud). Several\n"

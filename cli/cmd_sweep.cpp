@@ -3,7 +3,10 @@
 #include <filesystem>
 #include <memory>
 #include <span>
+#include <optional>
 #include <sstream>
+#include <string>
+#include <tuple>
 
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
@@ -14,6 +17,7 @@
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "base/units.hpp"
+#include "model/analysis/compare.hpp"
 #include "model/analysis/sweep.hpp"
 
 namespace pinchoff::cli {
@@ -85,7 +89,13 @@ struct sweep_report {
   model::sweep_settings settings;
   model::sweep_result r;
   std::vector<std::string> problems;  // the rest point's cautions, then the solver's
+  std::optional<model::max_spl_figures> max_spl;  // a capsule source
 };
+
+// A capsule's level at a drive, in dB SPL.
+std::string spl(const model::stage& st, double drive_vpk) {
+  return format_number(model::capsule_level_db_spl(st.capsule, drive_vpk), 4) + " dB SPL";
+}
 
 void write_plot(const sweep_report& rep, const std::string& path, base::output_set& outputs) {
   const model::sweep_result& r = rep.r;
@@ -213,6 +223,20 @@ void print_json(const sweep_report& rep, std::ostream& out) {
                   {"drive_vpk", c.found ? nlohmann::json(c.drive_vpk) : nlohmann::json(nullptr)},
                   {"output_vpk", c.found ? nlohmann::json(c.output_vpk) : nlohmann::json(nullptr)}});
   j["thd_crossings"] = cs;
+  if (rep.max_spl) {
+    const model::max_spl_figures& m = *rep.max_spl;
+    for (std::size_t i = 0; i < r.points.size(); ++i)
+      j["points"][i]["drive_db_spl"] = model::capsule_level_db_spl(rep.st.capsule, r.points[i].drive_vpk);
+    auto one = [](const model::drive_search& d, double db) {
+      return nlohmann::json{{"found", d.found},
+                            {"db_spl", d.found ? nlohmann::json(db) : nlohmann::json(nullptr)},
+                            {"drive_vpk", d.found ? nlohmann::json(d.drive_vpk) : nlohmann::json(nullptr)},
+                            {"output_vpk", d.found ? nlohmann::json(d.point.output_vpk) : nlohmann::json(nullptr)},
+                            {"reason", d.reason}};
+    };
+    j["max_spl_half_percent"] = one(m.half_percent, m.half_percent_db_spl);
+    j["max_spl_1_percent"] = one(m.one_percent, m.one_percent_db_spl);
+  }
   j["warnings"] = rep.problems;
   out << json_text(j) << '\n';
 }
@@ -308,9 +332,11 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
       << " up to " << format_si(rep.settings.bandwidth_hz, "Hz") << "\n\n";
   // A chain's VGS shift is each stage's, in the stage table below.
   const bool chain = !r.stages.empty();
-  text_table t(std::vector<text_table::align>(chain ? 10 : 11, align::right));
+  text_table t(std::vector<text_table::align>((chain ? 10 : 11) + (rep.st.has_capsule() ? 1 : 0), align::right));
   std::vector<std::string> main_head{"drive", "", "output", "", "gain", "THD", "", "even/odd", "alias", "DC shift", "VGS shift"};
   if (chain) main_head.pop_back();
+  const bool capsule = rep.st.has_capsule();
+  if (capsule) main_head.insert(main_head.begin(), "pressure");
   t.add(main_head);
   for (const auto& p : r.points) {
     std::vector<std::string> row{dbu(p.drive_vpk), format_si(p.drive_vpk, "Vpk"), dbu(p.output_vpk), format_si(p.output_vpk, "Vpk"),
@@ -319,6 +345,7 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
                                  p.alias_dbc < shown_floor_dbc ? std::string("< -180 dBc") : format_number(p.alias_dbc, 3) + " dBc",
                                  shift(p.dc_shift_v)};
     if (!chain) row.push_back(shift(p.bias_shift_v));
+    if (capsule) row.insert(row.begin(), spl(rep.st, p.drive_vpk));
     t.add(row);
   }
   t.write(out);
@@ -337,11 +364,27 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
   out << '\n';
   for (const auto& c : r.crossings) {
     out << "  THD " << format_number(c.thd_percent, 2) << " %: ";
+    if (c.found && rep.st.has_capsule()) out << spl(rep.st, c.drive_vpk) << ", ";
     if (c.found)
       out << "drive " << format_si(c.drive_vpk, "Vpk") << " (" << dbu(c.drive_vpk) << "), output "
           << format_si(c.output_vpk, "Vpk") << " (" << dbu(c.output_vpk) << ")\n";
     else
       out << "not reached in this sweep\n";
+  }
+  if (rep.max_spl) {
+    // Searched on its own, not limited to this sweep's levels.
+    const model::max_spl_figures& m = *rep.max_spl;
+    for (const auto& [name, d, db] : {std::tuple{"0.5 %", &m.half_percent, m.half_percent_db_spl},
+                                      std::tuple{"1 %", &m.one_percent, m.one_percent_db_spl}}) {
+      out << "  max SPL at " << name << " THD: ";
+      if (d->found)
+        out << format_number(db, 4) << " dB SPL (capsule " << format_si(d->drive_vpk, "Vpk") << ", output "
+            << format_si(d->point.output_vpk, "Vpk") << ", " << dbu(d->point.output_vpk) << ")\n";
+      else
+        out << "not found: " << d->reason << '\n';
+    }
+    out << "  (searched at this frequency over any level, THD over H2..H" << std::max(10, rep.settings.harmonics)
+        << "; the capsule's own distortion is not modelled)\n";
   }
   if (!r.stages.empty()) print_stages(rep, out);
   out << "  even/odd: even-harmonic over odd-harmonic power (positive dB: even-dominated, "
@@ -423,6 +466,20 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
   rep.problems = rest_point_warnings(rep.st, "sweep", err);
   const std::size_t rest_warnings = rep.problems.size();
   rep.r = model::run_sweep(rep.st, plan);
+  if (rep.st.has_capsule()) {
+    // A microphone's rating: the pressure at which THD first reaches 0.5 % and 1 %.
+    model::compare_settings c;
+    c.mode = model::compare_mode::at_drive;
+    c.level_vpk = s.drives_vpk.front();
+    c.frequency_hz = s.frequency_hz;
+    c.harmonics = std::min(s.harmonics, 100);
+    c.oversample = s.oversample;
+    c.automatic_oversample = s.automatic_oversample;
+    c.base_rate_hz = s.base_rate_hz;
+    c.bandwidth_hz = s.bandwidth_hz;
+    c.threads = s.threads;
+    rep.max_spl = model::find_max_spl(rep.st, c);
+  }
   for (const auto& p : rep.r.points) {
     if (p.newton.failed > 0)
       rep.problems.push_back("at " + format_si(p.drive_vpk, "V") + " peak, " + std::to_string(p.newton.failed) +

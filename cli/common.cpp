@@ -98,7 +98,7 @@ double option_level_vpk(const std::string& text, const std::string& option, cons
       if (!source->has_capsule())
         throw input_error("'" + text + "' is a sound pressure level, which needs a capsule source ([signal] kind = "
                           "\"capsule\" with its sensitivity) to become a voltage; give a voltage level such as -10dBu");
-      return source->capsule.sensitivity_v_per_pa * base::pa_rms_from_db_spl(*spl) * base::sqrt2;
+      return model::capsule_drive_vpk(source->capsule, *spl);
     }
     return base::parse_level_vpk(text);
   } catch (const input_error& e) {

@@ -77,7 +77,13 @@ void validate(const compare_settings& s) {
   if (s.harmonics < 2 || s.harmonics > 100)
     throw setting_error("harmonics", "the highest harmonic must be 2 to 100, got " + std::to_string(s.harmonics));
   if (!(s.max_drive_vpk > 0)) throw setting_error("max_drive_vpk", "the largest drive must be above 0 V");
-  if (s.mode == compare_mode::at_drive && s.level_vpk > s.max_drive_vpk)
+  if (s.drive_db_spl) {
+    if (s.mode != compare_mode::at_drive)
+      throw internal_error("a sound pressure level is a drive: it needs the at-drive mode");
+    if (!(*s.drive_db_spl >= 0 && *s.drive_db_spl <= 194))
+      throw setting_error(level_field, "a sound pressure level must be 0 to 194 dB SPL, got " + format_number(*s.drive_db_spl, 4));
+  }
+  if (s.mode == compare_mode::at_drive && !s.drive_db_spl && s.level_vpk > s.max_drive_vpk)
     throw setting_error(level_field, "the drive " + format_si(s.level_vpk, "Vpk") + " is above the " +
                                          format_si(s.max_drive_vpk, "Vpk") + " limit of a comparison");
   if (!(s.output_tolerance_db > 0) || !(s.thd_tolerance > 0) || !(s.thd_search_from_vpk > 0) ||
@@ -201,6 +207,16 @@ drive_search find_drive_for_thd(const stage& st, const compare_settings& s, doub
   }
 }
 
+max_spl_figures find_max_spl(const stage& st, const compare_settings& s) {
+  if (!st.has_capsule()) throw internal_error("find_max_spl: the stage has no capsule");
+  max_spl_figures m;
+  m.half_percent = find_drive_for_thd(st, s, 0.5);
+  m.one_percent = find_drive_for_thd(st, s, 1.0);
+  m.half_percent_db_spl = capsule_level_db_spl(st.capsule, m.half_percent.drive_vpk);
+  m.one_percent_db_spl = capsule_level_db_spl(st.capsule, m.one_percent.drive_vpk);
+  return m;
+}
+
 compare_plan plan_compare(const compare_settings& s) {
   validate(s);
   compare_plan p;
@@ -226,7 +242,22 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
   res.harmonics = s.harmonics;
   res.mode = s.mode;
   res.level_vpk = s.level_vpk;
+  res.drive_db_spl = s.drive_db_spl;
   res.designs.resize(stages.size());
+  // A sound pressure level: each design's own capsule voltage, every one checked first.
+  std::vector<double> drive(stages.size(), s.level_vpk);
+  if (s.drive_db_spl)
+    for (std::size_t k = 0; k < stages.size(); ++k) {
+      const std::string which = "design " + std::to_string(k + 1) + " (" + stages[k].name + ")";
+      if (!stages[k].has_capsule())
+        throw setting_error("drive_level_vpk", format_number(*s.drive_db_spl, 4) + " dB SPL needs every design to have a capsule "
+                                               "source ([signal] kind = \"capsule\" with its sensitivity); " + which + " has none");
+      drive[k] = capsule_drive_vpk(stages[k].capsule, *s.drive_db_spl);
+      if (drive[k] > s.max_drive_vpk)
+        throw setting_error("drive_level_vpk", format_number(*s.drive_db_spl, 4) + " dB SPL gives " + which + " a drive of " +
+                                               format_si(drive[k], "Vpk") + ", above the " + format_si(s.max_drive_vpk, "Vpk") +
+                                               " limit of a comparison");
+    }
   std::vector<std::vector<std::string>> trouble(stages.size());
 
   // Each design runs one point at a time; designs run at once only as many as fit in memory.
@@ -252,7 +283,7 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
 
     if (s.mode == compare_mode::at_drive) {
       evaluator eval{st, s};
-      d.point = eval(s.level_vpk);
+      d.point = eval(drive[k]);
       d.drive_evaluations = 1;
     } else {
       const drive_search f = find_drive_for_output(st, s, s.level_vpk);
@@ -262,8 +293,11 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
       d.drive_evaluations = f.evaluations;
     }
     d.thd_1_percent = find_drive_for_thd(st, s, 1.0);
+    if (st.has_capsule()) d.thd_half_percent = find_drive_for_thd(st, s, 0.5);
 
-    for (const sweep_point* p : {&d.point, &d.thd_1_percent.point}) {
+    std::vector<const sweep_point*> points{&d.point, &d.thd_1_percent.point};
+    if (d.thd_half_percent) points.push_back(&d.thd_half_percent->point);
+    for (const sweep_point* p : points) {
       if (p->newton.failed > 0)
         trouble[k].push_back("at " + format_si(p->drive_vpk, "Vpk") + ", " + std::to_string(p->newton.failed) +
                              " samples did not converge even sub-stepped");

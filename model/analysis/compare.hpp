@@ -8,6 +8,7 @@
 // agree exactly at the same drive, frequency and settings. The drive searches below are
 // root finds on run_sweep points in log drive (Illinois-modified regula falsi: Dowell &
 // Jarratt 1971), with the bracket grown by doubling.
+#include <optional>
 #include <span>
 #include <string>
 #include <vector>
@@ -26,6 +27,9 @@ enum class compare_mode {
 struct compare_settings {
   compare_mode mode{compare_mode::at_output};
   double level_vpk{0.34641016151377546}; ///< > 0; default -10 dBu = sqrt(0.12) V peak
+  /// at_drive only: a sound pressure level (dB SPL) instead of level_vpk. Each design is then
+  /// driven at its own capsule's open-circuit voltage for it; every design needs a capsule.
+  std::optional<double> drive_db_spl;
   double frequency_hz{1000.0};           ///< snapped as in run_sweep
   int harmonics{5};                      ///< N: H2..HN reported, 2..100
   int oversample{8};  ///< 1..64
@@ -83,6 +87,9 @@ struct design_figures {
   int drive_evaluations{};           ///< steady states spent finding the drive (at_output)
   sweep_point point;                 ///< the harmonic profile at the drive used
   drive_search thd_1_percent;        ///< drive and output (point.output_vpk) at 1 % THD
+  /// A capsule source: the drive at 0.5 % THD too, for the maximum SPL (a microphone's rating
+  /// at 0.5 % and 1 % THD); empty for any other source.
+  std::optional<drive_search> thd_half_percent;
 };
 
 struct compare_result {
@@ -94,6 +101,7 @@ struct compare_result {
   int thd_harmonics{};               ///< THD counts H2..this
   compare_mode mode{};
   double level_vpk{};
+  std::optional<double> drive_db_spl;   ///< as in the settings
   std::vector<design_figures> designs;  ///< in the order given
   std::vector<std::string> warnings;    ///< solver trouble, per design ("design 2: ...")
 };
@@ -113,9 +121,20 @@ class compare_plan {
   compare_settings settings_;
 };
 
+/// A capsule stage's maximum sound pressure levels at s.frequency_hz: the lowest levels at which
+/// THD reaches 0.5 % and 1 % as the pressure rises (find_drive_for_thd), in dB SPL.
+struct max_spl_figures {
+  drive_search half_percent, one_percent;
+  double half_percent_db_spl{}, one_percent_db_spl{};  ///< meaningful where found
+};
+/// Throws internal_error when the stage has no capsule.
+max_spl_figures find_max_spl(const stage& st, const compare_settings& s);
+
 /// validate(s): throws setting_error as validate does.
 compare_plan plan_compare(const compare_settings& s);
 
+/// With settings.drive_db_spl, a design without a capsule, or whose capsule's voltage at that
+/// level is above max_drive_vpk, throws setting_error("drive_level_vpk") before anything runs.
 compare_result compare_designs(std::span<const stage> stages, const compare_plan& plan);
 /// compare_designs(stages, plan_compare(s)).
 compare_result compare_designs(std::span<const stage> stages, const compare_settings& s);

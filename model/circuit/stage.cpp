@@ -5,6 +5,7 @@
 #include <string>
 
 #include "base/error.hpp"
+#include "base/units.hpp"
 
 namespace pinchoff::model {
 namespace {
@@ -61,6 +62,14 @@ const phantom_feed* find_phantom(std::string_view name) noexcept {
   for (const phantom_feed& f : feeds)
     if (f.name == name) return &f;
   return nullptr;
+}
+
+double capsule_drive_vpk(const capsule_part& c, double level_db_spl) noexcept {
+  return c.sensitivity_v_per_pa * base::pa_rms_from_db_spl(level_db_spl) * base::sqrt2;
+}
+
+double capsule_level_db_spl(const capsule_part& c, double drive_vpk) noexcept {
+  return base::db_spl_from_pa_rms(drive_vpk / base::sqrt2 / c.sensitivity_v_per_pa);
 }
 
 double pot_fraction(pot_taper taper, double position) noexcept {

@@ -90,6 +90,10 @@ struct capsule_part {
   double stray_f{0};                ///< from the gate to ground (wiring, the capsule's mount); 0 = none
   double sensitivity_v_per_pa{0};   ///< open-circuit voltage per pascal at 1 kHz (rms per rms)
 };
+/// The capsule's open-circuit sine peak at a sound pressure level (dB SPL, 0 dB = 20 µPa rms),
+/// and the level whose open-circuit peak is `drive_vpk`: sensitivity x pressure, as peak volts.
+double capsule_drive_vpk(const capsule_part& c, double level_db_spl) noexcept;
+double capsule_level_db_spl(const capsule_part& c, double drive_vpk) noexcept;
 
 /// A magnetic pickup and its cable, driving the first stage. The open-circuit voltage (the
 /// generator) is the coil's, behind its winding resistance and its inductance in series; the

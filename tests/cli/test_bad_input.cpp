@@ -212,6 +212,7 @@ struct fixtures {
     write(f("pickup-per-metre.toml"), with_line(pickup_stage, 13, "cable_capacitance = \"80p\""));
     write(f("pickup-nocap.toml"), with_line(with_line(pickup_stage, 12, ""), 13, ""));
     write(f("capsule-coil.toml"), with_line(capsule_stage, 11, "sensitivity = \"12m\"\ninductance = 2.5"));
+    write(f("capsule-hot.toml"), with_line(capsule_stage, 11, "sensitivity = \"30m\""));
     write(f("phantom-name.toml"), with_line(capsule_stage, 4, "phantom = \"P36\""));
     write(f("phantom-p.toml"), with_line(with_line(good_stage, 3, "phantom = \"P48\""), 6, "vp = 1.8\npolarity = \"p\""));
     write(f("phantom-volts.toml"), with_line(capsule_stage, 4, "phantom = \"P48\"\nvolts = 48"));
@@ -714,8 +715,12 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"sweep --from in dB SPL on a resistive source", {"sweep", "@stage.toml", "--from", "80dBSPL", "--to", "120dBSPL"}, {"--from", "capsule source"}},
       {"imd in dB SPL on a resistive source", {"imd", "@stage.toml", "--level", "94dBSPL"}, {"--level", "capsule source"}},
       {"measure --drive in dB SPL on a resistive source", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "94dBSPL"}, {"--drive", "capsule source"}},
-      {"compare at a sound pressure", {"compare", "@capsule.toml", "@stage.toml", "--at-drive", "94dBSPL"}, {"--at-drive", "does not take"}},
-      {"render's full scale as a sound pressure", {"render", "@capsule.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "94dBSPL"}, {"--input-peak", "does not take"}},
+      {"compare at a sound pressure with a resistive design", {"compare", "@capsule.toml", "@stage.toml", "--at-drive", "94dBSPL"}, {"--at-drive", "94.00 dB SPL needs every design to have a capsule", "design 2"}},
+      {"compare at a sound pressure beyond the drive limit", {"compare", "@capsule.toml", "@capsule-hot.toml", "--at-drive", "180dBSPL"}, {"--at-drive", "180.0 dB SPL gives design 1", "above the 20.0 Vpk limit"}},
+      {"compare at a sound pressure out of range", {"compare", "@capsule.toml", "@capsule-hot.toml", "--at-drive", "200dBSPL"}, {"--at-drive", "outside 0 to 194 dB SPL"}},
+      {"compare's output level as a sound pressure", {"compare", "@capsule.toml", "@capsule-hot.toml", "--at-output", "94dBSPL"}, {"--at-output", "does not take"}},
+      {"render's full scale as a sound pressure on a resistive source", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--input-peak", "94dBSPL"}, {"--input-peak", "capsule source"}},
+      {"render's full scale as a sound pressure for capsules that differ", {"render", "@capsule.toml", "@capsule-hot.toml", "--input", "@rec48.wav", "--output", "@odir", "--input-peak", "94dBSPL"}, {"--input-peak", "capsules of different sensitivity", "in volts"}},
       {"a sound pressure level that is not a number", {"sweep", "@capsule.toml", "--drive", "loud dBSPL"}, {"--drive", "cannot read 'loud dBSPL' as a sound pressure level"}},
       {"a sound pressure level above 194 dB SPL", {"sweep", "@capsule.toml", "--drive", "200dBSPL"}, {"--drive", "outside 0 to 194 dB SPL"}},
       {"a negative sound pressure level", {"imd", "@capsule.toml", "--level", "-10dBSPL"}, {"--level", "outside 0 to 194 dB SPL"}},

@@ -84,3 +84,49 @@ TEST_CASE("the pickup preset: response and bias report its resonance where the c
     CHECK(text.out.find(part) != std::string::npos);
   }
 }
+
+TEST_CASE("compare --at-drive in dB SPL drives each capsule at its own voltage and rates its maximum SPL") {
+  // Design 2's capsule is 2.5 times as sensitive (30 mV/Pa): at one pressure its drive is
+  // 2.5 times design 1's (the definition: sensitivity x pressure).
+  const result r = run({"compare", preset("phantom-mic-follower.toml"), preset("phantom-mic-follower.toml"), "--set",
+                        "2:signal.sensitivity=30m", "--at-drive", "94dBSPL", "--json"});
+  CAPTURE(r.err);
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["drive_db_spl"].get<double>() == 94.0);
+  const nlohmann::json& d = j["designs"];
+  CHECK(d[0]["drive_vpk"].get<double>() == doctest::Approx(sensitivity * pa_at_94 * std::numbers::sqrt2).epsilon(1e-12));
+  CHECK(d[1]["drive_vpk"].get<double>() == doctest::Approx(30e-3 * pa_at_94 * std::numbers::sqrt2).epsilon(1e-12));
+  CHECK(d[0]["drive_db_spl"].get<double>() == doctest::Approx(94.0).epsilon(1e-12));
+  // The same converter behind a 2.5x more sensitive capsule clips at a pressure
+  // 20 log10(2.5) = 7.96 dB lower (the circuits are the same; the search stops within 1e-4
+  // of the THD, so within about 0.002 dB).
+  const double shift = 20.0 * std::log10(2.5);
+  CHECK(d[0]["max_spl_1_percent_db"].get<double>() - d[1]["max_spl_1_percent_db"].get<double>() ==
+        doctest::Approx(shift).epsilon(0.004 / shift));
+  CHECK(d[0]["max_spl_half_percent_db"].get<double>() - d[1]["max_spl_half_percent_db"].get<double>() ==
+        doctest::Approx(shift).epsilon(0.004 / shift));
+  CHECK(d[0]["max_spl_half_percent_db"].get<double>() < d[0]["max_spl_1_percent_db"].get<double>());
+}
+
+TEST_CASE("sweep on a capsule stage gives a pressure column and the maximum SPL at 0.5 % and 1 % THD") {
+  const result r = run({"sweep", preset("phantom-mic-follower.toml"), "--drive", "94dBSPL,120dBSPL", "--json"});
+  CAPTURE(r.err);
+  REQUIRE(r.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  CHECK(j["points"][1]["drive_db_spl"].get<double>() == doctest::Approx(120.0).epsilon(1e-12));
+  // The same figure compare gives: one search, one definition.
+  const result c = run({"compare", preset("phantom-mic-follower.toml"), preset("phantom-mic-follower.toml"), "--json"});
+  REQUIRE(c.status == 0);
+  const nlohmann::json cj = nlohmann::json::parse(c.out);
+  CHECK(j["max_spl_1_percent"]["db_spl"].get<double>() ==
+        doctest::Approx(cj["designs"][0]["max_spl_1_percent_db"].get<double>()).epsilon(1e-9));
+  CHECK(j["max_spl_half_percent"]["db_spl"].get<double>() ==
+        doctest::Approx(cj["designs"][0]["max_spl_half_percent_db"].get<double>()).epsilon(1e-9));
+  const result text = run({"sweep", preset("phantom-mic-follower.toml"), "--drive", "94dBSPL"});
+  REQUIRE(text.status == 0);
+  for (const char* part : {"pressure", "94.00 dB SPL", "max SPL at 0.5 % THD", "max SPL at 1 % THD"}) {
+    CAPTURE(part);
+    CHECK(text.out.find(part) != std::string::npos);
+  }
+}

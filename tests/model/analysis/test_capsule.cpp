@@ -7,6 +7,8 @@
 
 #include <doctest/doctest.h>
 
+#include "base/error.hpp"
+#include "model/analysis/compare.hpp"
 #include "model/analysis/response.hpp"
 #include "model/analysis/small_signal.hpp"
 #include "model/circuit/network.hpp"
@@ -175,4 +177,44 @@ TEST_CASE("the bundled microphone preset's response, checked by hand") {
     const response_point p = response_at(net, op, f);
     CHECK(std::fabs(20.0 * std::log10(std::abs(p.gain) / std::fabs(in_band))) < 0.1);
   }
+}
+
+TEST_CASE("a capsule stage's maximum SPL at 0.5 % and 1 % THD follows the square law's HD2") {
+  // Gray, Hurst, Lewis & Meyer, distortion of a square-law device (from memory; CHECKS.md):
+  // a gate driven by VGSQ + A cos wt gives HD2 = A / (4 (VGSQ - VP)) and no H3. Here VGSQ = 0
+  // (the gate resistor to ground, the source grounded), lambda = 0, no junction current and
+  // no junction capacitance, a resistive drain load: THD = HD2, so THD reaches T at
+  // A = 4 T (0 - VP) = 8 T volts. The capsule's high-pass with the 10 GΩ gate resistor
+  // (w R C = 3142 at 1 kHz) passes 1 - 5e-8 of its voltage: A is the capsule's voltage.
+  // dB SPL: 20 log10(p / 20 µPa), p = A / sqrt 2 / sensitivity (IEC 60268-4 usage).
+  const stage st = test::stage_from(
+      "[supply]\nvolts = 30\n[jfet]\nidss = \"4m\"\nvp = -2\nis = 0\n[drain]\nresistor = \"2k\"\n"
+      "[signal]\nkind = \"capsule\"\ncapacitance = \"50p\"\nsensitivity = \"12m\"\n[gate]\nresistor = \"10G\"\n");
+  compare_settings s;
+  s.mode = compare_mode::at_drive;
+  const max_spl_figures m = find_max_spl(st, s);
+  REQUIRE(m.half_percent.found);
+  REQUIRE(m.one_percent.found);
+  auto spl_at = [](double a_vpk) { return 20.0 * std::log10(a_vpk / std::sqrt(2.0) / 12e-3 / 20e-6); };
+  // The search stops within 1e-4 of the THD (relative): 1e-4 of the drive, 0.001 dB.
+  CHECK(m.half_percent.drive_vpk == doctest::Approx(8.0 * 0.005).epsilon(2e-4));
+  CHECK(m.one_percent.drive_vpk == doctest::Approx(8.0 * 0.01).epsilon(2e-4));
+  CHECK(m.half_percent_db_spl == doctest::Approx(spl_at(0.04)).epsilon(0.002 / 100));
+  CHECK(m.one_percent_db_spl == doctest::Approx(spl_at(0.08)).epsilon(0.002 / 100));
+  // 0.08 V / sqrt 2 / 12 mV/Pa = 4.714 Pa: 107.45 dB SPL, worked by hand.
+  CHECK(m.one_percent_db_spl == doctest::Approx(107.45).epsilon(0.01 / 107));
+  // A resistive source has no sound pressure to rate.
+  CHECK_THROWS_AS(find_max_spl(test::stage_from("[supply]\nvolts = 30\n[jfet]\nidss = \"4m\"\nvp = -2\n[drain]\nresistor = \"2k\"\n"
+                                                "[gate]\nresistor = \"1M\"\n"),
+                               s),
+                  internal_error);
+}
+
+TEST_CASE("a sound pressure level and a capsule's voltage convert both ways") {
+  // IEC 60268-4 usage: 0 dB SPL = 20 µPa rms, so 94 dB SPL = 1.0024 Pa; a 12 mV/Pa capsule
+  // gives 12.03 mV rms there, 17.01 mV peak (worked by hand).
+  const capsule_part c{50e-12, 0.0, 12e-3};
+  CHECK(capsule_drive_vpk(c, 94.0) == doctest::Approx(12e-3 * 20e-6 * std::pow(10.0, 94.0 / 20.0) * std::sqrt(2.0)).epsilon(1e-12));
+  CHECK(capsule_drive_vpk(c, 94.0) == doctest::Approx(17.01e-3).epsilon(1e-3));
+  for (double l : {0.0, 40.0, 94.0, 120.0, 194.0}) CHECK(capsule_level_db_spl(c, capsule_drive_vpk(c, l)) == doctest::Approx(l).epsilon(1e-12));
 }
