@@ -3,7 +3,8 @@
 // second of time. Mono on one thread is timed on the process's CPU time (a shared machine's
 // waiting is not counted); mono on two threads (the engine on one, metering and files on
 // the calling one) and stereo on two engine threads are given both on CPU time per channel
-// and on wall time (which a busy machine lowers).
+// and on wall time (which a busy machine lowers). Then chains of stages (the chain presets), mono on
+// one thread, at 8x and 16x.
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
@@ -99,6 +100,40 @@ void bench_render() {
     }
   }
   std::printf("  (target: mono at least 25x on one core, aim 40x; stereo on two cores about the same)\n\n");
+
+  // Chains of stages: the render's cost grows with the oversampling factor, so mono on one
+  // thread at 8x and at 16x (what `--oversample auto` may choose), on a shorter clip.
+  const double chain_seconds = 5.0;
+  std::printf("render pipeline through chains of stages, mono, one thread, %.0f s of audio, best of 3\n", chain_seconds);
+  std::printf("  %-30s %14s %14s\n", "preset", "x rt at 8x", "x rt at 16x");
+  const fs::path chain_in = dir / "chain-in.wav";
+  write_input(chain_in, 1, chain_seconds);
+  for (const char* name : {"two-stage-boost-9v.toml", "three-stage-overdrive-9v.toml"}) {
+    model::render_stage st;
+    st.name = name;
+    st.net = model::build_network(model::read_stage_file(fs::path(PINCHOFF_PRESETS_DIR) / name));
+    st.op = model::solve_operating_point(st.net);
+    double rt[2] = {0, 0};
+    const int factors[2] = {8, 16};
+    for (int f = 0; f < 2; ++f) {
+      double best_cpu = 1e300;
+      for (int rep = 0; rep < 3; ++rep) {
+        model::render_job job;
+        job.input = chain_in;
+        st.output = dir / "chain-out.wav";
+        job.stages = {st};
+        job.overwrite = true;
+        job.threads = 1;
+        job.oversample = factors[f];
+        const double c0 = clock_seconds(CLOCK_PROCESS_CPUTIME_ID);
+        (void)model::render(job);
+        best_cpu = std::min(best_cpu, clock_seconds(CLOCK_PROCESS_CPUTIME_ID) - c0);
+      }
+      rt[f] = chain_seconds / best_cpu;
+    }
+    std::printf("  %-30s %13.1fx %13.1fx\n", name, rt[0], rt[1]);
+  }
+  std::printf("\n");
   std::error_code ec;
   fs::remove_all(dir, ec);
 }

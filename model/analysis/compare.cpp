@@ -277,7 +277,7 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
     const small_signal_figures ss = analyse_small_signal(net, op);
     d.gain_midband = ss.gain_midband;
     d.gain_midband_db = base::db_from_ratio(std::fabs(ss.gain_midband));
-    const headroom_figures h = analyse_headroom(net, op);
+    const headroom_figures h = analyse_headroom(net, op, headroom_detail::swing_only);
     d.clean_swing_vpk = h.symmetric_output_vpk;
     d.clean_drive_vpk = h.clean_drive_vpk;
 

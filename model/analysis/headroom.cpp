@@ -124,7 +124,7 @@ const char* swing_limit_text(swing_limit_kind k) noexcept {
   return "";
 }
 
-headroom_figures analyse_headroom(const network& net, const operating_point& op) {
+headroom_figures analyse_headroom(const network& net, const operating_point& op, headroom_detail detail) {
   std::vector<cap_treatment> caps = uniform_caps(net, cap_treatment::kind::open);
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     const net_capacitor& c = net.capacitors[k];
@@ -209,9 +209,10 @@ headroom_figures analyse_headroom(const network& net, const operating_point& op)
   h.clean_drive_vpk = std::min(std::fabs(h.up.drive_v), std::fabs(h.down.drive_v));
 
   // The clip order: for one JFET, its edge is the chain's.
-  std::vector<stage_clip> edges(net.jfets.size());
+  std::vector<stage_clip> edges(detail == headroom_detail::with_clip_order ? net.jfets.size() : 0);
   for (std::size_t j = 0; j < edges.size(); ++j) edges[j].stage = static_cast<int>(j);
-  if (net.jfets.size() == 1) {
+  if (edges.empty()) {
+  } else if (net.jfets.size() == 1) {
     const swing_limit& first = std::fabs(h.up.drive_v) <= std::fabs(h.down.drive_v) ? h.up : h.down;
     edges[0] = {0, first.kind, std::fabs(first.drive_v), first.drive_v < 0 ? -1.0 : 1.0};
   } else {

@@ -44,6 +44,13 @@ struct headroom_figures {
   std::vector<stage_clip> clip_order;
 };
 
-headroom_figures analyse_headroom(const network& net, const operating_point& op);
+/// What analyse_headroom works out beyond the swing: a chain's clip order costs two more
+/// sweeps of the transfer curve per side, which the analyses that use only the swing (spread,
+/// tune, compare: once per run or probe) skip.
+enum class headroom_detail { with_clip_order, swing_only };
+
+/// swing_only: clip_order is left empty.
+headroom_figures analyse_headroom(const network& net, const operating_point& op,
+                                  headroom_detail detail = headroom_detail::with_clip_order);
 
 }  // namespace pinchoff::model

@@ -224,7 +224,7 @@ spread_result run_spread(const stage& st, const spread_settings& s, const std::v
       const network net = build_network(drawn);
       const operating_point op = solve_operating_point(net);
       const small_signal_figures ss = analyse_small_signal(net, op);
-      const headroom_figures h = analyse_headroom(net, op);
+      const headroom_figures h = analyse_headroom(net, op, headroom_detail::swing_only);
       // Every stage's own terminals; "in saturation" must hold for each of them.
       bool saturated = true;
       for (int k = 0; k < st.stage_count(); ++k) {

@@ -40,7 +40,7 @@ tune_point evaluate_point(const stage& s, std::string_view adjust_key, double va
   const network net = build_network(copy);
   const operating_point op = solve_operating_point(net);
   tune_point p{value_ohm, at_stage == 0 ? op.at : terminals_of(net, op.x, at_stage), {}};
-  if (with_headroom) p.headroom = analyse_headroom(net, op);
+  if (with_headroom) p.headroom = analyse_headroom(net, op, headroom_detail::swing_only);
   return p;
 }
 

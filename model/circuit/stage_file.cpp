@@ -9,6 +9,7 @@
 #include <cmath>
 #include <cstring>
 #include <fstream>
+#include <limits>
 #include <map>
 #include <sstream>
 #include <vector>
@@ -71,7 +72,7 @@ constexpr base::value_bounds temperature{200.0, 450.0, false,
 // practice: measurement capsules 1 to 50 mV/Pa), read in V/Pa.
 constexpr base::value_bounds capsule_cap{1e-12, 1e-9, false, "from a small capsule's picofarad to a nanofarad"};
 constexpr base::value_bounds capsule_sensitivity{1e-5, 1.0, false,
-                                                 "a capsule's open-circuit sensitivity, in V/Pa (\"12m\" is 12 mV/Pa)"};
+                                                 "a capsule's open-circuit sensitivity (\"12m\" or \"12mV/Pa\" is 12 mV/Pa)"};
 
 // A magnetic pickup and its cable: coils of 2 to 20 kΩ and 1 to 10 H, a pickup's own 50 to
 // 300 pF and cables of about 100 pF a metre (common practice); the bounds lie decades beyond.
@@ -89,9 +90,9 @@ constexpr base::value_bounds cable_length{0.1, 300.0, true,
                                           "10 cm patch lead to a 300 m run"};
 constexpr base::value_bounds cable_per_metre{10e-12, 1e-9, false,
                                              "instrument and microphone cables have 50 to 200 pF per metre"};
-// signal.capacitance is a capsule's or a pickup's: the reader holds it to the whole span of
-// both, and read_source to the kind's own.
-constexpr base::value_bounds source_cap{1e-12, 1e-6, false, "from a small capsule's picofarad to a microfarad"};
+// signal.capacitance is a capsule's or a pickup's: read_source holds it to the kind's own
+// range (capsule_cap, pickup_cap), so the reader only asks for a positive number.
+constexpr base::value_bounds source_cap{0.0, std::numeric_limits<double>::infinity(), false, ""};
 
 constexpr base::value_bounds knob{0.0, 1.0, false, "a knob's rotation, from fully anticlockwise (0) to fully clockwise (1)"};
 
@@ -125,7 +126,7 @@ const std::vector<section_spec>& shared_schema() {
                   {"capacitance", unit::farad, rule::non_negative, capacitor}, {"phantom", unit::none, rule::any_sign}}},
       {"signal", {{"kind", unit::none, rule::any_sign}, {"impedance", unit::ohm, rule::non_negative, optional_resistor},
                   {"capacitance", unit::farad, rule::positive, source_cap}, {"stray", unit::farad, rule::non_negative, capacitor},
-                  {"sensitivity", unit::none, rule::positive, capsule_sensitivity},
+                  {"sensitivity", unit::volt_per_pascal, rule::positive, capsule_sensitivity},
                   {"resistance", unit::ohm, rule::positive, pickup_resistance},
                   {"inductance", unit::henry, rule::positive, pickup_inductance},
                   {"cable", unit::none, rule::non_negative, cable_length},

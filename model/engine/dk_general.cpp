@@ -251,9 +251,10 @@ void update_after_portable(const double* __restrict w, int rows, const double* _
 }
 
 #if PINCHOFF_DK_GENERAL_WIDE
-// AVX2 + FMA: rows padded to a multiple of 4; blocks of four packets (16 rows) held in
-// registers while the columns pass (four independent fused multiply-adds in flight), then
-// the last one to three packets the same way.
+// AVX2 + FMA: rows padded to a multiple of 4. Up to 12 packets (48 rows: six stages with
+// rail filters) are held in registers while the columns pass once (each input broadcast
+// once, the packets' fused multiply-adds independent); taller matrices pass in blocks of 8
+// packets.
 template <int P>
 __attribute__((target("avx2,fma"), always_inline)) inline void update_block(const double* __restrict w, int rows,
                                                                             const double* __restrict start,
@@ -272,14 +273,24 @@ __attribute__((target("avx2,fma"), always_inline)) inline void update_block(cons
 __attribute__((target("avx2,fma"))) void update_wide(const double* __restrict w, int rows,
                                                      const double* __restrict start, const double* __restrict x,
                                                      int cols, double* __restrict o) noexcept {
-  int r0 = 0;
-  for (; r0 + 16 <= rows; r0 += 16) update_block<4>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
-  switch ((rows - r0) / 4) {
-    case 3: update_block<3>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
-    case 2: update_block<2>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
-    case 1: update_block<1>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0); break;
+  switch (rows / 4) {
+    case 1: return update_block<1>(w, rows, start, x, cols, o);
+    case 2: return update_block<2>(w, rows, start, x, cols, o);
+    case 3: return update_block<3>(w, rows, start, x, cols, o);
+    case 4: return update_block<4>(w, rows, start, x, cols, o);
+    case 5: return update_block<5>(w, rows, start, x, cols, o);
+    case 6: return update_block<6>(w, rows, start, x, cols, o);
+    case 7: return update_block<7>(w, rows, start, x, cols, o);
+    case 8: return update_block<8>(w, rows, start, x, cols, o);
+    case 9: return update_block<9>(w, rows, start, x, cols, o);
+    case 10: return update_block<10>(w, rows, start, x, cols, o);
+    case 11: return update_block<11>(w, rows, start, x, cols, o);
+    case 12: return update_block<12>(w, rows, start, x, cols, o);
     default: break;
   }
+  int r0 = 0;
+  for (; r0 + 32 <= rows; r0 += 32) update_block<8>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
+  for (; r0 < rows; r0 += 4) update_block<1>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
 }
 
 bool wide_available() noexcept {
@@ -330,11 +341,7 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     v->setZero(np);
   g.rem.setZero(ni);
   g.mag.setZero(ni);
-  for (port_set* s : {&g.last, &g.dc, &g.trial, &g.cur_pt, &g.next_pt}) s->resize(k);
-  g.lu_prev.setIdentity(np, np);
-  g.lu_prev2.setIdentity(np, np);
-  g.piv_prev = g.last.piv;
-  g.piv_prev2 = g.last.piv;
+  for (port_set* s : {&g.ring[0], &g.ring[1], &g.ring[2], &g.ring[3], &g.dc, &g.cur_pt, &g.next_pt}) s->resize(k);
   g.mdl.setZero(np);
   g.cj.setZero(ns, np);
   g.md.setZero(np, ns);
@@ -396,12 +403,9 @@ void general_solver::reset() {
   storage& g = g_;
   inputs_at_dc(g.dc.i);
   g.q.noalias() = m_.d * x_dc_;
-  g.last = g.dc;
+  for (port_set& s : g.ring) s = g.dc;
+  g.head = 0;
   g.p_last = g.p_dc;
-  g.lu_prev = g.dc.lu;
-  g.lu_prev2 = g.dc.lu;
-  g.piv_prev = g.dc.piv;
-  g.piv_prev2 = g.dc.piv;
   stats_ = {};
 }
 
@@ -411,8 +415,8 @@ void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 }
 
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
-  g_.cj.noalias() = m_.c * g_.last.jf;
-  inverse_of(g_.last.lu, g_.last.piv, g_.mi);
+  g_.cj.noalias() = m_.c * g_.last().jf;
+  inverse_of(g_.last().lu, g_.last().piv, g_.mi);
   g_.md.noalias() = g_.mi * m_.d;
   apply_factor(g_.cj, g_.md, sensitivity);
 }
@@ -600,7 +604,7 @@ __attribute__((noinline)) void general_solver::substep_general(const Eigen::Vect
     const Eigen::VectorXd& p;
     port_set& out;
     void restart() noexcept {
-      s.g_.cur_pt = s.g_.last;
+      s.g_.cur_pt = s.g_.last();
       s.g_.pc = s.g_.p_last;
     }
     bool step_to(double frac, bool last, int& evals) noexcept {
@@ -619,7 +623,7 @@ __attribute__((noinline)) void general_solver::substep_general(const Eigen::Vect
       return true;
     }
     void take() noexcept { out = s.g_.cur_pt; }
-    void hold() noexcept { out = s.g_.last; }
+    void hold() noexcept { out = s.g_.last(); }
   } path_{*this, p, out};
   detail::substep(path_, opt_.max_substep_levels, stats_, evals);
 }
@@ -649,27 +653,23 @@ double general_solver::process_k(double generator_v) noexcept {
   {
     Eigen::Map<vec_p> mdl(g.mdl.data(), np);
     dp = p - p_last;
-    guess = Eigen::Map<const vec_p>(g.last.v.data(), np);
-    const double* lus[3] = {g.last.lu.data(), g.lu_prev.data(), g.lu_prev2.data()};
-    const int* pivs[3] = {g.last.piv.data(), g.piv_prev.data(), g.piv_prev2.data()};
+    guess = Eigen::Map<const vec_p>(g.last().v.data(), np);
     for (int h = 0; h < 3; ++h) {
       if (warm_[static_cast<std::size_t>(h)] == 0.0) continue;
       mdl = dp;
-      lu_solve_n<lu_size_of(K)>(lus[h], np, pivs[h], mdl.data());
+      const port_set& ph = g.back(h);
+      lu_solve_n<lu_size_of(K)>(ph.lu.data(), np, ph.piv.data(), mdl.data());
       guess += warm_[static_cast<std::size_t>(h)] * mdl;
     }
   }
 
   int evals = 0;
-  if (!solve_general<K>(g.p, g.guess, g.trial, evals)) substep_general<K>(g.p, g.trial, evals);
+  port_set& trial = g.trial();
+  if (!solve_general<K>(g.p, g.guess, trial, evals)) substep_general<K>(g.p, trial, evals);
 
-  // The dv/dp history for the next warm start: m_prev2 <- m_prev <- the last solution's
-  // (a swap of storage and a copy of the same size: no allocation).
-  g.lu_prev2.swap(g.lu_prev);
-  g.piv_prev2.swap(g.piv_prev);
-  g.lu_prev = g.last.lu;
-  g.piv_prev = g.last.piv;
-  std::swap(g.last, g.trial);  // swaps storage: no copy, no allocation
+  // The trial becomes the last point; the two before it stay in the ring for the next
+  // warm start (nothing copied).
+  g.head = (g.head + 1) & 3;
   p_last = p;
 
   // The current columns of W times i, onto the pre-computed part.
@@ -677,13 +677,13 @@ double general_solver::process_k(double generator_v) noexcept {
     const double* w_i = g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows;
 #if PINCHOFF_DK_GENERAL_WIDE
     if (wide_)
-      update_wide(w_i, rows, g.pre.data(), g.last.i.data(), ni, g.out.data());
+      update_wide(w_i, rows, g.pre.data(), g.last().i.data(), ni, g.out.data());
     else
 #endif
-      update_after_portable(w_i, rows, g.pre.data(), g.last.i.data(), ni, g.out.data());
+      update_after_portable(w_i, rows, g.pre.data(), g.last().i.data(), ni, g.out.data());
     double* __restrict x_in = in_.data();
     const double* __restrict o = g.out.data();
-    for (int c = 0; c < ni; ++c) x_in[ns + 2 + c] = g.last.i[c];
+    for (int c = 0; c < ni; ++c) x_in[ns + 2 + c] = g.last().i[c];
     for (int row = 0; row < ns; ++row) x_in[row] += o[row];
   }
   q = Eigen::Map<const vec_p>(g.out.data() + ns, np);

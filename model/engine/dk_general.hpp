@@ -28,7 +28,7 @@ class general_solver : public dk_solver_base {
   void reset();
   void set_state(const Eigen::Ref<const Eigen::VectorXd>& x);
   Eigen::Vector2d ports_network_v(int device) const noexcept {
-    return Eigen::Vector2d(g_.last.v.segment<2>(2 * device));
+    return Eigen::Vector2d(g_.last().v.segment<2>(2 * device));
   }
   const char* sample_loop() const noexcept { return wide_ && m_.devices <= 6 ? "AVX2+FMA" : "portable"; }
 
@@ -53,10 +53,16 @@ class general_solver : public dk_solver_base {
     Eigen::VectorXd q, p, p_last, p_dc, dp;
     Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
     Eigen::VectorXd allowed, mag;               // the acceptance's rounding: per row, per current
-    port_set last, dc, trial, cur_pt, next_pt;
-    // The factors of I - F Jf at the two samples before the last (the warm start's dv/dp).
-    Eigen::MatrixXd lu_prev, lu_prev2;
-    std::vector<int> piv_prev, piv_prev2;
+    // The accepted points of the last three samples and the one being solved, in a ring:
+    // ring[head] the last, head - 1 and head - 2 the two before (the warm start's dv/dp from
+    // their factors), head + 1 the trial. A sample moves head on; nothing is copied.
+    port_set ring[4];
+    int head{0};
+    port_set dc, cur_pt, next_pt;
+    port_set& last() noexcept { return ring[head]; }
+    const port_set& last() const noexcept { return ring[head]; }
+    port_set& back(int n) noexcept { return ring[(head - n) & 3]; }
+    port_set& trial() noexcept { return ring[(head + 1) & 3]; }
     Eigen::VectorXd mdl;                        // the warm start's products
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
     Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M

@@ -163,4 +163,9 @@ TEST_CASE("physical bounds: each end accepted, beyond refused with the range in 
   CHECK(format_bound(1e-9, unit::none) == "1e-9");
   CHECK(format_bound(4700, unit::ohm) == "4.7 kΩ");
   CHECK(format_bound(1.0, unit::per_volt) == "1 /V");
+  // A capsule's sensitivity: V/Pa, with an SI prefix as any unit.
+  CHECK(format_bound(1e-5, unit::volt_per_pascal) == "10 µV/Pa");
+  CHECK(parse_value("12mV/Pa", unit::volt_per_pascal) == doctest::Approx(12e-3).epsilon(1e-15));
+  CHECK(parse_value("12m", unit::volt_per_pascal) == doctest::Approx(12e-3).epsilon(1e-15));
+  CHECK_THROWS_AS(parse_value("12mV", unit::volt_per_pascal), input_error);
 }

@@ -6,6 +6,7 @@
 #include "model/analysis/headroom.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
+#include "model/circuit/stage_file.hpp"
 #include "support/stages.hpp"
 
 using namespace pinchoff;
@@ -85,4 +86,21 @@ TEST_CASE("a reservoir capacitor across an ideal supply does not upset the analy
   CHECK(hb.up.kind == ha.up.kind);
   CHECK(hb.down.kind == ha.down.kind);
   CHECK(hb.symmetric_output_vpk == doctest::Approx(ha.symmetric_output_vpk).epsilon(1e-12));
+}
+
+TEST_CASE("the swing alone is the same swing: only the clip order is left out") {
+  // spread, tune and compare ask for the swing alone; it must be the figure bias reports.
+  for (const char* name : {"three-stage-overdrive-9v.toml", "bass-booster-9v.toml"}) {
+    CAPTURE(name);
+    const network net = build_network(read_stage_file(std::string(PINCHOFF_PRESETS_DIR) + "/" + name));
+    const operating_point op = solve_operating_point(net);
+    const headroom_figures full = analyse_headroom(net, op);
+    const headroom_figures swing = analyse_headroom(net, op, headroom_detail::swing_only);
+    CHECK(swing.symmetric_output_vpk == full.symmetric_output_vpk);
+    CHECK(swing.clean_drive_vpk == full.clean_drive_vpk);
+    CHECK(swing.up.output_v == full.up.output_v);
+    CHECK(swing.down.drive_v == full.down.drive_v);
+    CHECK(full.clip_order.size() == net.jfets.size());
+    CHECK(swing.clip_order.empty());
+  }
 }

@@ -69,6 +69,27 @@ const std::vector<range_row> rows = {
     {"temperature", "200", "450", "199", "451", "200 K to 450 K"},
 };
 
+// A capsule at the gate of a 24 V follower (common practice values); the capsule's keys
+// have ranges of their own, and the gate resistor is a capsule's gigohm.
+const std::string capsule_stage =
+    "name = \"capsule range test\"\ntopology = \"source-follower\"\n"
+    "[supply]\nvolts = 24\nresistance = \"2.2k\"\ncapacitance = \"22u\"\n"
+    "[jfet]\nidss = \"5m\"\nvp = -1.8\nlambda = 0.005\ncgs = \"4p\"\ncgd = \"2p\"\n"
+    "[signal]\nkind = \"capsule\"\ncapacitance = \"50p\"\nstray = \"5p\"\nsensitivity = \"12m\"\n"
+    "[gate]\nresistor = \"1G\"\n"
+    "[source]\nresistor = \"2.2k\"\n"
+    "[output]\ncoupling_cap = \"1u\"\nload = \"100k\"\n";
+
+// The capsule's ranges (README "Sources"; common practice: a small capsule's picofarad to a
+// nanofarad, measurement capsules' 1 to 50 mV/Pa with decades either side).
+const std::vector<range_row> capsule_rows = {
+    {"signal.capacitance", "1p", "1n", "0.9p", "1.1n", "1 pF to 1 nF"},
+    {"signal.stray", "1p", "1", "0.9p", "1.1", "1 pF to 1 F"},
+    {"signal.sensitivity", "10u", "1", "9u", "1.1", "10 µV/Pa to 1 V/Pa"},
+    {"signal.sensitivity", "10uV/Pa", "1V/Pa", "9uV/Pa", "1.1V/Pa", "10 µV/Pa to 1 V/Pa"},
+    {"gate.resistor", "1m", "100G", "0.9m", "101G", "1 mΩ to 100 GΩ"},
+};
+
 std::vector<stage_override> overrides_of(const range_row& r, const std::string& value) {
   std::vector<stage_override> o;
   auto add = [&o](const std::string& kv) {
@@ -91,17 +112,23 @@ std::vector<stage_override> overrides_of(const range_row& r, const std::string& 
 }  // namespace
 
 TEST_CASE("each end of every value's range is accepted, and a step beyond it is refused with the range") {
-  for (const range_row& r : rows) {
+  struct table {
+    const std::string* text;
+    const std::vector<range_row>* rows;
+  };
+  for (const table tb : {table{&base_stage, &rows}, table{&capsule_stage, &capsule_rows}})
+  for (const range_row& r : *tb.rows) {
+    const std::string& stage_text = *tb.text;
     CAPTURE(r.key);
     for (const char* ok : {r.lo, r.hi}) {
       CAPTURE(ok);
-      CHECK_NOTHROW(parse_stage(base_stage, "range.toml", overrides_of(r, ok)));
+      CHECK_NOTHROW(parse_stage(stage_text, "range.toml", overrides_of(r, ok)));
     }
     for (const char* bad : {r.below, r.above}) {
       if (std::string(bad).empty()) continue;
       CAPTURE(bad);
       try {
-        parse_stage(base_stage, "range.toml", overrides_of(r, bad));
+        parse_stage(stage_text, "range.toml", overrides_of(r, bad));
         FAIL("accepted");
       } catch (const setting_error& e) {
         const std::string m = e.what();
@@ -138,11 +165,16 @@ TEST_CASE("a value out of its range in the file is refused at its line and colum
 TEST_CASE("the solvers solve the stage at every corner of the ranges") {
   // The DC point converges and the network discretises (a matrix the engine can invert) at
   // 48 kHz and at the highest rate any command simulates (768 kHz, 64 times oversampled).
-  for (const range_row& r : rows) {
+  struct table {
+    const std::string* text;
+    const std::vector<range_row>* rows;
+  };
+  for (const table tb : {table{&base_stage, &rows}, table{&capsule_stage, &capsule_rows}})
+  for (const range_row& r : *tb.rows) {
     for (const char* v : {r.lo, r.hi}) {
       CAPTURE(r.key);
       CAPTURE(v);
-      const stage st = parse_stage(base_stage, "range.toml", overrides_of(r, v));
+      const stage st = parse_stage(*tb.text, "range.toml", overrides_of(r, v));
       const network net = build_network(st);
       operating_point op;
       REQUIRE_NOTHROW(op = solve_operating_point(net));
