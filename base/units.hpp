@@ -13,7 +13,7 @@
 namespace pinchoff::base {
 
 /// The unit a value is read in; its symbols are accepted as an optional suffix.
-enum class unit { none, ohm, farad, volt, ampere, hertz, watt, per_volt, kelvin, volt_per_pascal };
+enum class unit { none, ohm, farad, volt, ampere, hertz, watt, per_volt, kelvin, volt_per_pascal, henry };
 
 /// Parses a value as described above. Throws input_error naming the text and what was
 /// expected. `what` names the thing for the message ("drain.resistor").
@@ -55,7 +55,7 @@ struct value_bounds {
 /// "WHAT = VALUE lies outside LO to HI (0: none): WHY", with the bounds in SI notation of `u`.
 std::string bounds_refusal(std::string_view what, double value, const value_bounds& b, unit u);
 
-/// The unit's symbol for messages ("Ω", "F", "V", "A", "Hz", "W", "/V", "K", "V/Pa"; none: "").
+/// The unit's symbol for messages ("Ω", "F", "V", "A", "Hz", "W", "/V", "K", "V/Pa", "H"; none: "").
 std::string_view unit_symbol(unit u) noexcept;
 
 /// A bound for messages: format_si with trailing zeros dropped ("1 mΩ", "100 GΩ", "4.7 kΩ").

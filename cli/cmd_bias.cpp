@@ -134,6 +134,8 @@ void print_text(const bias_report& r, const std::string& path, std::ostream& out
 
   out << (r.st.has_capsule() ? "\nSmall signal (mid-band: 1 kHz through the capsule's divider, coupling and bypass "
                                "capacitors shorted)\n"
+          : r.st.has_pickup() ? "\nSmall signal (mid-band: the pass band below the pickup's resonance, its coil's "
+                                "resistance alone; coupling and bypass capacitors shorted)\n"
                              : "\nSmall signal (mid-band: coupling and bypass capacitors shorted)\n");
   text_table ss({align::left, align::right, align::left});
   ss.add({"gm", format_si(r.b.ss.gm_s, "S"), ""});
@@ -173,6 +175,23 @@ void print_input(const bias_report& r, std::ostream& out) {
   in.add({"input capacitance", format_si(r.b.input.capacitance_f, "F"), "cgs and the Miller cgd, at 1 kHz"});
   in.add({"input impedance", impedance_text(r.b.input.z_1khz_ohm), "at 1 kHz"});
   in.add({"", impedance_text(r.b.input.z_10khz_ohm), "at 10 kHz"});
+  if (r.st.has_pickup()) {
+    const model::pickup_part& pu = r.st.pickup;
+    in.add({"pickup", format_si(pu.inductance_h, "H") + ", " + format_si(pu.resistance_ohm, "Ω"),
+            format_si(pu.total_capacitance_f(), "F") + " across it" +
+                (pu.cable_m > 0 ? " (" + format_number(pu.cable_m, 3) + " m of cable at " +
+                                      format_si(pu.cable_f_per_m, "F") + "/m included)"
+                                : std::string())});
+    if (const auto& res = r.b.input.resonance) {
+      in.add({"loaded resonance", format_si(res->frequency_hz, "Hz", 4),
+              "peak " + format_number(res->peak_db, 3) + " dB above the pass band, at the stage's input"});
+      in.add({"", res->below_hz ? format_si(*res->below_hz, "Hz", 4) + " to " + format_si(*res->above_hz, "Hz", 4)
+                                : "up to " + format_si(*res->above_hz, "Hz", 4),
+              res->below_hz ? "-3 dB from the peak, either side" : "-3 dB from the peak (under 3 dB high: no lower point)"});
+    } else {
+      in.add({"loaded resonance", "no peak", "damped flat by the load and the cable"});
+    }
+  }
   if (r.st.has_capsule()) {
     const double v = r.b.output_at_94_db_spl_vrms;
     in.add({"output at 94 dB SPL", format_number(base::db_from_ratio(v), 3) + " dBV",
@@ -189,6 +208,16 @@ nlohmann::json input_json(const bias_report& r) {
   nlohmann::json j{{"capacitance_f", r.b.input.capacitance_f},
                    {"impedance_1khz", z(r.b.input.z_1khz_ohm)},
                    {"impedance_10khz", z(r.b.input.z_10khz_ohm)}};
+  if (r.st.has_pickup()) {
+    nlohmann::json res = nullptr;
+    if (const auto& p = r.b.input.resonance) {
+      res = {{"frequency_hz", p->frequency_hz}, {"peak_db", p->peak_db}};
+      res["below_3db_hz"] = p->below_hz ? nlohmann::json(*p->below_hz) : nlohmann::json(nullptr);
+      res["above_3db_hz"] = p->above_hz ? nlohmann::json(*p->above_hz) : nlohmann::json(nullptr);
+    }
+    j["loaded_resonance"] = res;
+    j["pickup_capacitance_f"] = r.st.pickup.total_capacitance_f();
+  }
   if (r.st.has_capsule()) {
     j["output_at_94_db_spl_dbv"] = base::db_from_ratio(r.b.output_at_94_db_spl_vrms);
     j["output_at_94_db_spl_vrms"] = r.b.output_at_94_db_spl_vrms;

@@ -92,6 +92,8 @@ void write_plot(const response_report& rep, const std::string& path, base::outpu
   for (const auto& c : r.corners)
     if (c.frequency_hz >= rep.lo_hz && c.frequency_hz <= rep.hi_hz)
       p.markers.push_back({c.frequency_hz, "-3 dB " + format_si(c.frequency_hz, "Hz")});
+  if (r.resonance && r.resonance->frequency_hz >= rep.lo_hz && r.resonance->frequency_hz <= rep.hi_hz)
+    p.markers.push_back({r.resonance->frequency_hz, "resonance " + format_si(r.resonance->frequency_hz, "Hz")});
   add_svg_output(outputs, path, render_svg(p));
 }
 
@@ -108,6 +110,14 @@ void print_json(const response_report& rep, std::ostream& out) {
   }
   j["corners_hz"] = corners;
   j["corner_kinds"] = kinds;
+  if (const auto& res = r.resonance) {
+    nlohmann::json o{{"frequency_hz", res->frequency_hz}, {"peak_db", res->peak_db}};
+    o["below_3db_hz"] = res->below_hz ? nlohmann::json(*res->below_hz) : nlohmann::json(nullptr);
+    o["above_3db_hz"] = res->above_hz ? nlohmann::json(*res->above_hz) : nlohmann::json(nullptr);
+    j["resonance"] = o;
+  } else if (rep.st.has_pickup()) {
+    j["resonance"] = nullptr;
+  }
   nlohmann::json pts = nlohmann::json::array();
   for (std::size_t k = 0; k < r.points.size(); ++k)
     pts.push_back({{"frequency_hz", r.points[k].frequency_hz},
@@ -132,9 +142,23 @@ void print_text(const response_report& rep, std::ostream& out) {
   const model::response_result& r = rep.r;
   out << rep.st.name << "\n  small-signal response, generator to load\n\n";
   out << "  mid-band gain " << format_number(r.midband_gain, 4) << " V/V (" << format_number(rep.midband_db, 3) << " dB)\n";
+  if (rep.st.has_pickup()) {
+    // A pickup: its resonance and the points 3 dB below its peak, rather than one upper corner.
+    out << "  mid-band: the pass band below the pickup's resonance (the coil's resistance alone)\n";
+    if (const auto& res = r.resonance) {
+      out << "  resonance " << format_si(res->frequency_hz, "Hz", 4) << ", peak " << format_number(res->peak_db, 3)
+          << " dB above mid-band\n";
+      out << "  -3 dB from the peak: "
+          << (res->below_hz ? format_si(*res->below_hz, "Hz", 4) + " to " : std::string("(no lower point: the peak is under 3 dB) up to "))
+          << format_si(*res->above_hz, "Hz", 4) << '\n';
+    } else {
+      out << "  no resonance peak: the load and the cable damp it flat\n";
+    }
+  }
   if (r.corners.empty()) out << "  no -3 dB corner between 1 mHz and 1 GHz\n";
   for (const auto& c : r.corners)
-    out << "  " << (c.is_low ? "low " : "high") << " -3 dB corner " << format_si(c.frequency_hz, "Hz", 4) << '\n';
+    out << "  " << (c.is_low ? "low " : "high") << " -3 dB corner " << format_si(c.frequency_hz, "Hz", 4)
+        << (rep.st.has_pickup() ? " (re mid-band)" : "") << '\n';
   out << '\n';
   text_table t({align::right, align::right, align::right, align::right, align::right});
   t.add({"frequency", "gain", "re mid-band", "phase", "input impedance"});

@@ -52,7 +52,10 @@ small_signal_system assemble_small_signal(const network& net, std::span<const jf
   if (static_cast<int>(lins.size()) != net.devices())
     throw internal_error("small-signal analysis: the linearised JFETs do not match the network");
   const int nu = net.node_count - 1;
-  int branches = 1 + (setup.generator_present ? 1 : 0);
+  // An inductor is a short in the mid-band (its winding resistance, a resistor of its own,
+  // stays: a pickup's pass band lies below its resonance) and at s = 0; elsewhere 1 / (s L).
+  const bool inductors_shorted = setup.midband || setup.s == cplx{0.0, 0.0};
+  int branches = 1 + (setup.generator_present ? 1 : 0) + (inductors_shorted ? static_cast<int>(net.inductors.size()) : 0);
   if (setup.midband)
     for (std::size_t k = 0; k < net.capacitors.size(); ++k)
       if (is_large_cap(net.capacitors[k].role) && static_cast<int>(k) != setup.removed_cap &&
@@ -100,6 +103,10 @@ small_signal_system assemble_small_signal(const network& net, std::span<const jf
   }
   stamp_v(net.supply_node, 0, 0.0);  // the supply is an AC ground
   if (setup.generator_present) stamp_v(net.generator_node, 0, setup.generator_v);
+  for (const net_inductor& l : net.inductors) {
+    if (inductors_shorted) stamp_v(l.a, l.b, 0.0);
+    else stamp_y(l.a, l.b, 1.0 / (setup.s * l.henry));
+  }
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     if (static_cast<int>(k) == setup.removed_cap) continue;
     const net_capacitor& c = net.capacitors[k];

@@ -11,7 +11,7 @@ namespace pinchoff::model {
 
 bool is_large_cap(cap_role r) noexcept {
   return r != cap_role::junction_gs && r != cap_role::junction_gd && r != cap_role::treble_cut && r != cap_role::capsule &&
-         r != cap_role::capsule_stray;
+         r != cap_role::capsule_stray && r != cap_role::pickup_load;
 }
 bool is_reservoir(cap_role r) noexcept { return r == cap_role::supply_reservoir || r == cap_role::rail_reservoir; }
 
@@ -56,6 +56,15 @@ network build_network(const stage& s) {
     add_c(net.generator_node, net.input_node, s.capsule.capacitance_f, cap_role::capsule, "signal.capacitance");
     add_c(net.input_node, 0, s.capsule.stray_f, cap_role::capsule_stray, "signal.stray");
     net.midband_hz = capsule_midband_hz;
+  } else if (s.has_pickup()) {
+    // The pickup: the coil's open-circuit voltage (the generator) behind its winding
+    // resistance and inductance in series; its own and the cable's capacitance from its
+    // output to ground. The first stage's input is the pickup's output.
+    const int coil = new_node("coil");
+    add_r(net.generator_node, coil, s.pickup.resistance_ohm, "signal.resistance");
+    net.input_node = new_node("input");
+    net.inductors.push_back({coil, net.input_node, s.pickup.inductance_h, ind_role::pickup_coil, "signal.inductance"});
+    add_c(net.input_node, 0, s.pickup.total_capacitance_f(), cap_role::pickup_load, "signal.capacitance");
   } else if (s.signal_impedance_ohm > 0.0) {
     net.input_node = new_node("input");
     add_r(net.generator_node, net.input_node, s.signal_impedance_ohm, "signal.impedance");
@@ -204,6 +213,9 @@ std::string widest_parts(const network& net, double sample_rate_hz) {
   if (sample_rate_hz > 0)
     for (const net_capacitor& c : net.capacitors)
       if (c.farad > 0) parts.push_back({c.key, 2.0 * c.farad * sample_rate_hz, base::format_si(c.farad, "F")});
+  if (sample_rate_hz > 0)
+    for (const net_inductor& l : net.inductors)
+      if (l.henry > 0) parts.push_back({l.key, 1.0 / (2.0 * l.henry * sample_rate_hz), base::format_si(l.henry, "H")});
   if (parts.size() < 2) return {};
   auto [lo, hi] = std::minmax_element(parts.begin(), parts.end(), [](const part& a, const part& b) { return a.siemens < b.siemens; });
   return std::string(lo->key) + " (" + lo->value + ") against " + std::string(hi->key) + " (" + hi->value + ")";

@@ -25,6 +25,12 @@ enum class cap_role {
   treble_cut,           ///< a shunt capacitor in `between`, or across a drain resistor: open in the mid-band
   capsule,              ///< a condenser capsule's own capacitance, from the generator to the gate: never shorted
   capsule_stray,        ///< stray capacitance from the capsule's gate to ground
+  pickup_load,          ///< a pickup's own and its cable's capacitance, across its output: open in the mid-band
+};
+
+/// What an inductor is in the circuit.
+enum class ind_role {
+  pickup_coil,  ///< a magnetic pickup's coil, in series with its winding resistance
 };
 
 /// The frequency a capsule network's mid-band is taken at: 1 kHz, where a microphone's
@@ -54,6 +60,15 @@ struct net_capacitor {
   std::string key;
 };
 
+/// An inductor: a short at DC (its winding resistance is a resistor of its own, in series),
+/// j w L in the small-signal solve, a trapezoidal companion in the time domain.
+struct net_inductor {
+  int a, b;
+  double henry;
+  ind_role role;
+  std::string key;
+};
+
 /// One JFET of the network: its terminals and its parameters (mirrored: vp_v < 0).
 struct net_jfet {
   int drain{0}, gate{0}, source{0};
@@ -76,10 +91,11 @@ struct network {
   std::vector<std::string> node_names;
   std::vector<net_resistor> resistors;
   std::vector<net_capacitor> capacitors;
+  std::vector<net_inductor> inductors;
   int supply_node{0};     ///< ideal supply source from ground: V = supply_v
   double supply_v{0};     ///< mirrored supply voltage, > 0
   int generator_node{0};  ///< ideal generator from ground: V = u (mirrored)
-  int input_node{0};      ///< after the generator impedance (a capsule's gate side); stage input impedance seen here
+  int input_node{0};      ///< after the generator impedance (a capsule's gate side, a pickup's output); stage input impedance seen here
   /// The JFETs, at least one. The solvers (nodal, DC point, reference transient, DK
   /// engine) handle any number; the stage analyses built on one stage (small signal,
   /// headroom, tune) use the first.
@@ -107,8 +123,8 @@ struct network {
 network build_network(const stage& s);
 
 /// For a message when the network's matrix cannot be solved: the two parts whose
-/// conductances lie furthest apart (1/R; 2C/T for a capacitor at the sample period T, left
-/// out at DC when `sample_rate_hz` is 0), with their keys and values:
+/// conductances lie furthest apart (1/R; 2C/T for a capacitor and T/(2L) for an inductor at
+/// the sample period T, both left out at DC when `sample_rate_hz` is 0), with their keys and values:
 /// "gate.resistor (100 GΩ) against gate.coupling_cap (1 F)".
 std::string widest_parts(const network& net, double sample_rate_hz);
 

@@ -49,8 +49,11 @@ std::vector<cap_treatment> uniform_caps(const network& net, cap_treatment::kind 
 }
 
 mna_system assemble_linear(const network& net, std::span<const cap_treatment> caps, double supply_v,
-                           double generator_v) {
+                           double generator_v, std::span<const ind_treatment> inds) {
+  auto ind_shorted = [&](std::size_t j) { return inds.empty() || inds[j].how == ind_treatment::kind::shorted; };
   int branches = 2;
+  for (std::size_t j = 0; j < net.inductors.size(); ++j)
+    if (ind_shorted(j)) ++branches;
   for (const cap_treatment& c : caps)
     if (c.how == cap_treatment::kind::shorted || c.how == cap_treatment::kind::held) ++branches;
   const int nu = net.node_count - 1;
@@ -84,6 +87,16 @@ mna_system assemble_linear(const network& net, std::span<const cap_treatment> ca
   for (const net_resistor& r : net.resistors) stamp_g(r.a, r.b, 1.0 / r.ohm);
   stamp_v(net.supply_node, 0, supply_v);
   stamp_v(net.generator_node, 0, generator_v);
+  for (std::size_t j = 0; j < net.inductors.size(); ++j) {
+    const net_inductor& l = net.inductors[j];
+    if (ind_shorted(j)) {
+      stamp_v(l.a, l.b, 0.0);
+    } else {
+      stamp_g(l.a, l.b, inds[j].g_s);
+      if (l.a != 0) m.rhs[row(l.a)] -= inds[j].i_a;
+      if (l.b != 0) m.rhs[row(l.b)] += inds[j].i_a;
+    }
+  }
   for (std::size_t k = 0; k < net.capacitors.size(); ++k) {
     const net_capacitor& c = net.capacitors[k];
     const cap_treatment& t = caps[k];

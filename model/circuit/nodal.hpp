@@ -4,7 +4,8 @@
 // operating point, quasi-static sweeps and the reference time-domain solver use it.
 //
 // Unknowns: node voltages 1..N-1 (index k-1 for node k), then the currents of the supply
-// source, the generator source, and of every capacitor treated as a voltage source.
+// source, the generator source, of every inductor treated as a short (a -> b), and of every
+// capacitor treated as a voltage source.
 #include <span>
 #include <vector>
 
@@ -23,6 +24,20 @@ struct cap_treatment {
   double i_a{0};     ///< companion: current source from a to b in parallel with g
 };
 
+/// How one inductor enters a linear solve: a short (DC, and the quasi-static analyses; its
+/// current is an unknown), or its trapezoidal companion, a conductance T/(2L) in parallel
+/// with a current source (Nagel 1975, the dual of the capacitor's).
+struct ind_treatment {
+  enum class kind { shorted, companion };
+  kind how{kind::shorted};
+  double g_s{0};  ///< companion: conductance (trapezoidal: T/(2L))
+  double i_a{0};  ///< companion: current source from a to b in parallel with g
+};
+
+/// The unknown that holds inductor j's current (a -> b) when every inductor is a short and
+/// no capacitor is a source (the DC operating point's solution).
+inline int inductor_current_unknown(const network& net, int j) noexcept { return net.node_count - 1 + 2 + j; }
+
 /// One treatment per network capacitor, all the same.
 std::vector<cap_treatment> uniform_caps(const network& net, cap_treatment::kind how);
 
@@ -33,9 +48,9 @@ struct mna_system {
 };
 
 /// Linear part of the network with the given capacitor treatments and source values
-/// (mirrored volts).
+/// (mirrored volts). `inds` holds one treatment per inductor, or none: every inductor a short.
 mna_system assemble_linear(const network& net, std::span<const cap_treatment> caps, double supply_v,
-                           double generator_v);
+                           double generator_v, std::span<const ind_treatment> inds = {});
 
 /// Expected numeric failure is a value, never silent.
 struct newton_result {

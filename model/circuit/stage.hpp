@@ -80,6 +80,8 @@ double pot_fraction(pot_taper taper, double position) noexcept;
 enum class source_kind {
   resistive,  ///< a voltage behind `signal.impedance` (the default)
   capsule,    ///< a condenser capsule: its open-circuit voltage behind its capacitance, straight to the gate
+  pickup,     ///< a magnetic pickup and its cable: the coil's open-circuit voltage behind its resistance and
+              ///< inductance, with the pickup's and the cable's capacitance across its output
 };
 
 /// A condenser capsule at the first stage's gate.
@@ -92,6 +94,19 @@ struct capsule_part {
 /// and the level whose open-circuit peak is `drive_vpk`: sensitivity x pressure, as peak volts.
 double capsule_drive_vpk(const capsule_part& c, double level_db_spl) noexcept;
 double capsule_level_db_spl(const capsule_part& c, double drive_vpk) noexcept;
+
+/// A magnetic pickup and its cable, driving the first stage. The open-circuit voltage (the
+/// generator) is the coil's, behind its winding resistance and its inductance in series; the
+/// pickup's own capacitance and the cable's lie from the pickup's output to ground.
+struct pickup_part {
+  double resistance_ohm{0};         ///< the coil's DC resistance
+  double inductance_h{0};           ///< the coil's inductance
+  double capacitance_f{0};          ///< from the output to ground: the pickup's own, plus a cable given here
+  double cable_m{0};                ///< a cable's length, metres; 0 = none
+  double cable_f_per_m{100e-12};    ///< the cable's capacitance per metre (100 pF/m: common practice)
+  /// Everything from the pickup's output to ground: its capacitance and the cable's.
+  double total_capacitance_f() const noexcept { return capacitance_f + cable_m * cable_f_per_m; }
+};
 
 /// The parts of one JFET stage: the whole file for a single stage, one `[[stage]]` of a chain.
 struct stage_parts {
@@ -122,11 +137,13 @@ struct stage : stage_parts {
   double signal_impedance_ohm{0};  ///< generator series resistance; 0 = ideal source (resistive source only)
   source_kind signal_kind{source_kind::resistive};
   capsule_part capsule;            ///< when signal_kind is capsule
+  pickup_part pickup;              ///< when signal_kind is pickup
   std::vector<stage_parts> later;  ///< a chain's second and later stages; empty for a single stage
 
   int stage_count() const noexcept { return 1 + static_cast<int>(later.size()); }
   bool is_chain() const noexcept { return !later.empty(); }
   bool has_capsule() const noexcept { return signal_kind == source_kind::capsule; }
+  bool has_pickup() const noexcept { return signal_kind == source_kind::pickup; }
   /// Stage k, counted from 0.
   const stage_parts& part(int k) const { return k == 0 ? *this : later.at(static_cast<std::size_t>(k - 1)); }
   stage_parts& part(int k) { return k == 0 ? *this : later.at(static_cast<std::size_t>(k - 1)); }

@@ -9,6 +9,7 @@
 #include <cmath>
 #include <cstring>
 #include <fstream>
+#include <limits>
 #include <map>
 #include <sstream>
 #include <vector>
@@ -73,6 +74,26 @@ constexpr base::value_bounds capsule_cap{1e-12, 1e-9, false, "from a small capsu
 constexpr base::value_bounds capsule_sensitivity{1e-5, 1.0, false,
                                                  "a capsule's open-circuit sensitivity (\"12m\" or \"12mV/Pa\" is 12 mV/Pa)"};
 
+// A magnetic pickup and its cable: coils of 2 to 20 kΩ and 1 to 10 H, a pickup's own 50 to
+// 300 pF and cables of about 100 pF a metre (common practice); the bounds lie decades beyond.
+constexpr base::value_bounds pickup_resistance{1.0, 1e6, false,
+                                               "from a low-impedance coil's few ohms to fifty times a heavily wound "
+                                               "pickup's 20 kΩ"};
+constexpr base::value_bounds pickup_inductance{1e-4, 100.0, false,
+                                               "from a low-impedance coil's fraction of a millihenry to ten times a "
+                                               "heavily wound pickup's 10 H"};
+constexpr base::value_bounds pickup_cap{1e-12, 1e-6, false,
+                                        "from a pickup's own few picofarads to a microfarad, far beyond any cable"};
+// Read in metres as a plain number: "3m" would be 3 millimetres, below the range.
+constexpr base::value_bounds cable_length{0.1, 300.0, true,
+                                          "in metres, a plain number such as 3 (\"3m\" reads as 3 millimetres): from a "
+                                          "10 cm patch lead to a 300 m run"};
+constexpr base::value_bounds cable_per_metre{10e-12, 1e-9, false,
+                                             "instrument and microphone cables have 50 to 200 pF per metre"};
+// signal.capacitance is a capsule's or a pickup's: read_source holds it to the kind's own
+// range (capsule_cap, pickup_cap), so the reader only asks for a positive number.
+constexpr base::value_bounds source_cap{0.0, std::numeric_limits<double>::infinity(), false, ""};
+
 constexpr base::value_bounds knob{0.0, 1.0, false, "a knob's rotation, from fully anticlockwise (0) to fully clockwise (1)"};
 
 // The sections of one stage: the whole file for a single stage, one [[stage]] of a chain.
@@ -107,8 +128,12 @@ const std::vector<section_spec>& shared_schema() {
       {"supply", {{"volts", unit::volt, rule::any_sign, supply_volts}, {"resistance", unit::ohm, rule::non_negative, optional_resistor},
                   {"capacitance", unit::farad, rule::non_negative, capacitor}, {"phantom", unit::none, rule::any_sign}}},
       {"signal", {{"kind", unit::none, rule::any_sign}, {"impedance", unit::ohm, rule::non_negative, optional_resistor},
-                  {"capacitance", unit::farad, rule::positive, capsule_cap}, {"stray", unit::farad, rule::non_negative, capacitor},
-                  {"sensitivity", unit::volt_per_pascal, rule::positive, capsule_sensitivity}}},
+                  {"capacitance", unit::farad, rule::positive, source_cap}, {"stray", unit::farad, rule::non_negative, capacitor},
+                  {"sensitivity", unit::volt_per_pascal, rule::positive, capsule_sensitivity},
+                  {"resistance", unit::ohm, rule::positive, pickup_resistance},
+                  {"inductance", unit::henry, rule::positive, pickup_inductance},
+                  {"cable", unit::none, rule::non_negative, cable_length},
+                  {"cable_capacitance", unit::farad, rule::positive, cable_per_metre}}},
   };
   return s;
 }
@@ -484,26 +509,84 @@ void read_source(const reader& rd, const gathered& top, stage& st) {
     st.signal_kind = source_kind::resistive;
   } else if (kind == "capsule") {
     st.signal_kind = source_kind::capsule;
+  } else if (kind == "pickup") {
+    st.signal_kind = source_kind::pickup;
   } else {
     rd.fail_at(top.signal_kind_where, "signal.kind",
-               "signal.kind must be \"resistive\" or \"capsule\", not \"" + kind + "\"");
+               "signal.kind must be \"resistive\", \"capsule\" or \"pickup\", not \"" + kind + "\"");
   }
-  static constexpr std::array<std::string_view, 3> capsule_keys{"capacitance", "stray", "sensitivity"};
+  // Each source's own keys; `capacitance` is both a capsule's and a pickup's.
+  static constexpr std::array<std::string_view, 2> capsule_only{"stray", "sensitivity"};
+  static constexpr std::array<std::string_view, 4> pickup_only{"resistance", "inductance", "cable", "cable_capacitance"};
   auto where = [&](const std::string& k) { return top.where.at(k); };
-  if (!st.has_capsule()) {
-    for (std::string_view k : capsule_keys) {
-      const std::string full = "signal." + std::string(k);
-      if (top.has(full))
-        rd.fail_at(where(full), full,
-                   full + " belongs to a capsule source: set signal.kind = \"capsule\" (a resistive source has only "
-                          "signal.impedance)");
+  const std::string own = st.has_capsule() ? "a capsule source has signal.capacitance, signal.stray and signal.sensitivity"
+                          : st.has_pickup()
+                              ? "a pickup source has signal.resistance, signal.inductance, signal.capacitance, "
+                                "signal.cable and signal.cable_capacitance"
+                              : "a resistive source has only signal.impedance";
+  // The first key in the file that belongs to another kind of source.
+  std::optional<std::pair<std::string, std::string>> foreign;  // key, owner
+  auto consider = [&](std::string_view k, std::string_view owner) {
+    const std::string full = "signal." + std::string(k);
+    if (!top.has(full)) return;
+    const toml::source_position at = where(full).begin;
+    if (foreign) {
+      const toml::source_position was = where(foreign->first).begin;
+      if (std::pair(was.line, was.column) <= std::pair(at.line, at.column)) return;
     }
-    return;
+    foreign = std::pair(full, std::string(owner));
+  };
+  if (st.signal_kind == source_kind::resistive) consider("capacitance", "capsule or a pickup");
+  if (!st.has_capsule())
+    for (std::string_view k : capsule_only) consider(k, "capsule");
+  if (!st.has_pickup())
+    for (std::string_view k : pickup_only) consider(k, "pickup");
+  if (foreign) {
+    const auto& [full, owner] = *foreign;
+    const std::string set = owner == "capsule or a pickup" ? "\"capsule\" or \"pickup\"" : "\"" + owner + "\"";
+    rd.fail_at(where(full), full, full + " belongs to a " + owner + " source: set signal.kind = " + set + " (" + own + ")");
   }
+  if (st.signal_kind == source_kind::resistive) return;
   if (top.has("signal.impedance") && top.get("signal.impedance") > 0.0)
     rd.fail_at(where("signal.impedance"), "signal.impedance",
-               "signal.impedance belongs to a resistive source: a capsule's impedance is its capacitance "
-               "(signal.capacitance)");
+               st.has_capsule() ? "signal.impedance belongs to a resistive source: a capsule's impedance is its "
+                                  "capacitance (signal.capacitance)"
+                                : "signal.impedance belongs to a resistive source: a pickup's impedance is its "
+                                  "signal.resistance and signal.inductance, with signal.capacitance across them");
+  if (st.has_pickup()) {
+    if (!top.has("signal.resistance") || !top.has("signal.inductance"))
+      rd.fail_at(top.signal_kind_where, "signal.kind",
+                 std::string("a pickup source needs ") +
+                     (!top.has("signal.inductance") && !top.has("signal.resistance")
+                          ? "signal.inductance (the coil's, such as \"2.5\" henries) and signal.resistance (its DC "
+                            "resistance, such as \"6k\")"
+                      : !top.has("signal.inductance") ? "signal.inductance (the coil's, such as \"2.5\" henries)"
+                                                      : "signal.resistance (the coil's DC resistance, such as \"6k\")"));
+    if (top.has("signal.capacitance"))
+      if (const std::string m = base::bounds_refusal("signal.capacitance", top.get("signal.capacitance"), pickup_cap,
+                                                     unit::farad);
+          !m.empty())
+        rd.fail_at(where("signal.capacitance"), "signal.capacitance", m);
+    if (top.has("signal.cable_capacitance") && !(top.get("signal.cable") > 0.0))
+      rd.fail_at(where("signal.cable_capacitance"), "signal.cable_capacitance",
+                 "signal.cable_capacitance is per metre of signal.cable: give the cable's length too (signal.cable, "
+                 "in metres, such as 3)");
+    if (!top.has("signal.capacitance") && !(top.get("signal.cable") > 0.0))
+      rd.fail_at(top.signal_kind_where, "signal.kind",
+                 "a pickup source needs a capacitance across its output: signal.capacitance (the pickup's own and "
+                 "its cable's, such as \"500p\") or signal.cable (in metres, at signal.cable_capacitance per metre)");
+    st.pickup.resistance_ohm = top.get("signal.resistance");
+    st.pickup.inductance_h = top.get("signal.inductance");
+    st.pickup.capacitance_f = top.get("signal.capacitance");
+    st.pickup.cable_m = top.get("signal.cable");
+    st.pickup.cable_f_per_m = top.get("signal.cable_capacitance", st.pickup.cable_f_per_m);
+    return;
+  }
+  if (top.has("signal.capacitance"))
+    if (const std::string m =
+            base::bounds_refusal("signal.capacitance", top.get("signal.capacitance"), capsule_cap, unit::farad);
+        !m.empty())
+      rd.fail_at(where("signal.capacitance"), "signal.capacitance", m);
   if (!top.has("signal.capacitance") || !top.has("signal.sensitivity"))
     rd.fail_at(top.signal_kind_where, "signal.kind",
                "a capsule source needs signal.capacitance (the capsule's, such as \"50p\") and signal.sensitivity "
@@ -536,6 +619,7 @@ std::string floating_node(const network& net) {
   join(net.supply_node, 0);
   join(net.generator_node, 0);
   for (const net_resistor& r : net.resistors) join(r.a, r.b);
+  for (const net_inductor& l : net.inductors) join(l.a, l.b);
   for (const net_jfet& q : net.jfets) join(q.drain, q.source);
   for (int n = 1; n < net.node_count; ++n)
     if (find(n) != find(0)) return net.node_names[static_cast<std::size_t>(n)];

@@ -1,6 +1,7 @@
 #include "model/engine/dk_matrices.hpp"
 
 #include <cmath>
+#include <numbers>
 #include <string>
 #include <vector>
 
@@ -15,11 +16,15 @@ inline int row(int node) noexcept { return node - 1; }
 
 }  // namespace
 
+double inductor_state_ohm(double henry) noexcept { return 2.0 * std::numbers::pi * 1000.0 * henry; }
+
 dk_matrices discretise(const network& net, double sample_rate_hz) {
   if (!(sample_rate_hz > 0.0) || !std::isfinite(sample_rate_hz))
     throw internal_error("discretise: the sample rate must be a positive number of hertz");
   const double t = 1.0 / sample_rate_hz;
-  const int ns = static_cast<int>(net.capacitors.size());
+  const int nc = static_cast<int>(net.capacitors.size());
+  const int nl = static_cast<int>(net.inductors.size());
+  const int ns = nc + nl;
   const int nd = net.devices();
   if (nd < 1) throw internal_error("discretise: the network has no JFET");
   const int ni = 3 * nd;  // device currents
@@ -29,18 +34,27 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   std::vector<cap_treatment> caps(net.capacitors.size());
   for (std::size_t k = 0; k < caps.size(); ++k)
     caps[k] = {cap_treatment::kind::companion, 0.0, 2.0 * net.capacitors[k].farad / t, 0.0};
-  const mna_system lin = assemble_linear(net, caps, 0.0, 0.0);
+  std::vector<ind_treatment> inds(net.inductors.size());
+  for (std::size_t j = 0; j < inds.size(); ++j) inds[j] = {ind_treatment::kind::companion, t / (2.0 * net.inductors[j].henry), 0.0};
+  const mna_system lin = assemble_linear(net, caps, 0.0, 0.0, inds);
   const int n = static_cast<int>(lin.a.rows());
   const int nu = lin.node_unknowns;
 
   // Right-hand sides: S z = Nx q + Nu u - Nl i.
   Eigen::MatrixXd rhs = Eigen::MatrixXd::Zero(n, ns + 2 + ni);
-  for (int k = 0; k < ns; ++k) {
+  for (int k = 0; k < nc; ++k) {
     const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
     const double g = caps[static_cast<std::size_t>(k)].g_s;
     // Companion branch current a -> b is G v - G q: the source G q enters at a.
     if (c.a != 0) rhs(row(c.a), k) += g;
     if (c.b != 0) rhs(row(c.b), k) -= g;
+  }
+  for (int j = 0; j < nl; ++j) {
+    const net_inductor& l = net.inductors[static_cast<std::size_t>(j)];
+    // Companion branch current a -> b is G v + h, h = q / rho: the source h leaves a.
+    const double per_v = 1.0 / inductor_state_ohm(l.henry);
+    if (l.a != 0) rhs(row(l.a), nc + j) -= per_v;
+    if (l.b != 0) rhs(row(l.b), nc + j) += per_v;
   }
   rhs(nu, ns) = 1.0;
   rhs(nu + 1, ns + 1) = 1.0;
@@ -85,15 +99,23 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
     if (b != 0) r -= z.row(row(b));
     return r;
   };
-  // Capacitor voltages v_n = Nc z; q_n = 2 v_n - q_{n-1}.
+  // Capacitor voltages v_n = Nc z; q_n = 2 v_n - q_{n-1}. Inductor voltages likewise;
+  // q_n = q_{n-1} + 2 G rho v_n.
   Eigen::MatrixXd vc(ns, ns + 2 + ni);
-  for (int k = 0; k < ns; ++k) {
+  Eigen::VectorXd q_prev = Eigen::VectorXd::Constant(ns, -1.0);
+  for (int k = 0; k < nc; ++k) {
     const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
-    vc.row(k) = diff(c.a, c.b);
+    vc.row(k) = 2.0 * diff(c.a, c.b);
   }
-  m.a = 2.0 * vc.leftCols(ns) - Eigen::MatrixXd::Identity(ns, ns);
-  m.b = 2.0 * vc.middleCols(ns, 2);
-  m.c = 2.0 * vc.rightCols(ni);
+  for (int j = 0; j < nl; ++j) {
+    const net_inductor& l = net.inductors[static_cast<std::size_t>(j)];
+    vc.row(nc + j) = (2.0 * inds[static_cast<std::size_t>(j)].g_s * inductor_state_ohm(l.henry)) * diff(l.a, l.b);
+    q_prev[nc + j] = 1.0;
+  }
+  m.a = vc.leftCols(ns);
+  m.a.diagonal() += q_prev;
+  m.b = vc.middleCols(ns, 2);
+  m.c = vc.rightCols(ni);
 
   m.d.resize(2 * nd, ns);
   m.e.resize(2 * nd, 2);
@@ -128,9 +150,13 @@ Eigen::MatrixXd stacked_update(const dk_matrices& m, int rows) {
 }
 
 Eigen::VectorXd dc_states(const network& net, const Eigen::VectorXd& x) {
-  Eigen::VectorXd q(static_cast<Eigen::Index>(net.capacitors.size()));
-  for (std::size_t k = 0; k < net.capacitors.size(); ++k)
+  const std::size_t nc = net.capacitors.size(), nl = net.inductors.size();
+  Eigen::VectorXd q(static_cast<Eigen::Index>(nc + nl));
+  for (std::size_t k = 0; k < nc; ++k)
     q[static_cast<Eigen::Index>(k)] = node_v(x, net.capacitors[k].a) - node_v(x, net.capacitors[k].b);
+  for (std::size_t j = 0; j < nl; ++j)
+    q[static_cast<Eigen::Index>(nc + j)] =
+        inductor_state_ohm(net.inductors[j].henry) * x[inductor_current_unknown(net, static_cast<int>(j))];
   return q;
 }
 

@@ -12,13 +12,23 @@
 // State: for capacitor k, the trapezoidal history voltage q_k = v_k + i_k / G_k, with the
 // capacitor's voltage v_k and current i_k (a -> b) at the same sample and G_k = 2 C_k / T.
 // At DC (no capacitor current) q_k equals the capacitor voltage.
+//
+// After the capacitors' states come the inductors' (a pickup's coil): the companion of
+// inductor j is G_j = T / (2 L_j) in parallel with its history current h_j = i_j + G_j v_j
+// (a -> b), so i_n = G v_n + h_{n-1} and h_n = h_{n-1} + 2 G v_n. Its state is that history
+// current in volts, q_j = rho_j h_j with rho_j = inductor_state_ohm(L_j) (its reactance at
+// 1 kHz, a scale fixed by the part alone, not by T), so every state is of the order of the
+// node voltages it shapes. At DC (no voltage across it) q_j = rho_j times its DC current.
 #include <Eigen/Dense>
 
 #include "model/circuit/network.hpp"
 
 namespace pinchoff::model {
 
-/// The discretised network. Sizes, for ns states and k JFETs: A ns x ns, B ns x 2,
+/// The scale of an inductor's state: its reactance at 1 kHz, ohms.
+double inductor_state_ohm(double henry) noexcept;
+
+/// The discretised network. Sizes, for ns states (the capacitors', then the inductors') and k JFETs: A ns x ns, B ns x 2,
 /// C ns x 3k; D 2k x ns, E 2k x 2, F 2k x 3k; Do 1 x ns, Eo 1 x 2, Fo 1 x 3k. Columns of
 /// B/E/Eo: supply, generator (network volts); of C/F/Fo: igs, igd, id (A) of JFET 0, then
 /// of JFET 1, ... Rows of D/E/F: vgs, vds of JFET 0, then of JFET 1, ...
@@ -48,8 +58,9 @@ dk_matrices discretise(const network& net, double sample_rate_hz);
 /// to 1e-10 V).
 Eigen::MatrixXd stacked_update(const dk_matrices& m, int rows);
 
-/// States consistent with a DC network solution `x` (every capacitor current zero): q_k is
-/// capacitor k's voltage. Size: number of capacitors.
+/// States consistent with a DC network solution `x` (every capacitor current zero, every
+/// inductor a short: the DC operating point's solution): q_k is capacitor k's voltage, then
+/// inductor j's DC current times inductor_state_ohm. Size: capacitors plus inductors.
 Eigen::VectorXd dc_states(const network& net, const Eigen::VectorXd& x);
 
 }  // namespace pinchoff::model

@@ -21,14 +21,32 @@ transient_reference::transient_reference(const network& net, const operating_poi
     caps_[k].g_s = 2.0 * c.farad / t_s_;
     cap_v_[k] = node_v(op.x, c.a) - node_v(op.x, c.b);
   }
+  const std::size_t nl = net_.inductors.size();
+  inds_.assign(nl, ind_treatment{ind_treatment::kind::companion, 0.0, 0.0});
+  ind_v_.assign(nl, 0.0);
+  ind_i_.resize(nl);
+  for (std::size_t j = 0; j < nl; ++j) {
+    inds_[j].g_s = t_s_ / (2.0 * net_.inductors[j].henry);
+    ind_i_[j] = op.x[inductor_current_unknown(net_, static_cast<int>(j))];
+  }
+  // The companion system has no branch unknowns for the inductors: op.x without them.
   x_ = op.x;
+  if (nl > 0) {
+    const int first = inductor_current_unknown(net_, 0), n = static_cast<int>(op.x.size());
+    Eigen::VectorXd y(n - static_cast<int>(nl));
+    y << op.x.head(first), op.x.tail(n - first - static_cast<int>(nl));
+    x_ = y;
+  }
 }
 
 double transient_reference::process(double generator_v) {
   // Trapezoidal companion: i_n = G v_n - (G v_{n-1} + i_{n-1}), a current source of
   // -(G v_{n-1} + i_{n-1}) from a to b in parallel with G.
   for (std::size_t k = 0; k < caps_.size(); ++k) caps_[k].i_a = -(caps_[k].g_s * cap_v_[k] + cap_i_[k]);
-  const mna_system lin = assemble_linear(net_, caps_, net_.supply_v, net_.sign * generator_v);
+  // Inductors: i_n = i_{n-1} + G (v_n + v_{n-1}), G = T/(2L): a current source of
+  // i_{n-1} + G v_{n-1} from a to b in parallel with G.
+  for (std::size_t j = 0; j < inds_.size(); ++j) inds_[j].i_a = ind_i_[j] + inds_[j].g_s * ind_v_[j];
+  const mna_system lin = assemble_linear(net_, caps_, net_.supply_v, net_.sign * generator_v, inds_);
   const newton_result r = solve_nodal(net_, lin, x_, opt_);
   ++stats_.samples;
   stats_.iterations += r.iterations;
@@ -37,6 +55,11 @@ double transient_reference::process(double generator_v) {
     const net_capacitor& c = net_.capacitors[k];
     cap_v_[k] = node_v(x_, c.a) - node_v(x_, c.b);
     cap_i_[k] = caps_[k].g_s * cap_v_[k] + caps_[k].i_a;
+  }
+  for (std::size_t j = 0; j < inds_.size(); ++j) {
+    const net_inductor& l = net_.inductors[j];
+    ind_v_[j] = node_v(x_, l.a) - node_v(x_, l.b);
+    ind_i_[j] = inds_[j].g_s * ind_v_[j] + inds_[j].i_a;
   }
   return net_.sign * node_v(x_, net_.output_node);
 }

@@ -1,7 +1,7 @@
 #pragma once
 // The plain time-domain reference: on every sample the whole network is solved by the
 // general nodal Newton of model/circuit/nodal.hpp (assemble_linear with trapezoidal companion
-// capacitors, G = 2C/T, then solve_nodal), with the same device model and the same
+// capacitors, G = 2C/T, and inductors, G = T/(2L), then solve_nodal), with the same device model and the same
 // trapezoidal rule as the DK engine. Slow and simple on purpose: tests compare the fast
 // engine with it sample by sample.
 #include <vector>
@@ -35,7 +35,8 @@ inline nodal_options transient_nodal_options() {
 
 class transient_reference {
  public:
-  /// Starts at the DC operating point `op`: every capacitor at its DC voltage, no current.
+  /// Starts at the DC operating point `op`: every capacitor at its DC voltage, no current;
+  /// every inductor at its DC current, no voltage.
   transient_reference(const network& net, const operating_point& op, double sample_rate_hz,
                       const nodal_options& opt = transient_nodal_options());
 
@@ -54,6 +55,8 @@ class transient_reference {
   double t_s_{0};
   std::vector<cap_treatment> caps_;
   std::vector<double> cap_v_, cap_i_;  // voltage a - b and current a -> b of each capacitor
+  std::vector<ind_treatment> inds_;
+  std::vector<double> ind_v_, ind_i_;  // voltage a - b and current a -> b of each inductor
   Eigen::VectorXd x_;
   reference_stats stats_;
 };

@@ -82,6 +82,28 @@ constexpr std::string_view capsule_stage =
     "[source]\n"                         // 14
     "resistor = \"2.2k\"\n";             // 15
 
+// pickup source: a single-coil-like pickup with 3 m of cable into a buffer (common practice
+// values: 2.5 H, 6 kΩ, 100 pF a metre); the line numbers are what the rows below expect.
+constexpr std::string_view pickup_stage =
+    "name = \"catalogue pickup\"\n"      // 1
+    "topology = \"source-follower\"\n"   // 2
+    "[supply]\n"                         // 3
+    "volts = 9\n"                        // 4
+    "[jfet]\n"                           // 5
+    "idss = \"6m\"\n"                    // 6
+    "vp = -2\n"                          // 7
+    "[signal]\n"                         // 8
+    "kind = \"pickup\"\n"                // 9
+    "resistance = \"6k\"\n"              // 10
+    "inductance = 2.5\n"                 // 11
+    "capacitance = \"200p\"\n"           // 12
+    "cable = 3\n"                        // 13
+    "[gate]\n"                           // 14
+    "coupling_cap = \"22n\"\n"           // 15
+    "resistor = \"1M\"\n"                // 16
+    "[source]\n"                         // 17
+    "resistor = \"3.3k\"\n";             // 18
+
 // A valid two-stage chain of our own (common practice values: two 9 V common-source stages
 // with a volume pot between them); the line numbers are what the chain rows expect.
 constexpr std::string_view good_chain =
@@ -176,6 +198,20 @@ struct fixtures {
     write(f("capsule-nogate.toml"), with_line(capsule_stage, 13, ""));
     write(f("capsule-sens.toml"), with_line(capsule_stage, 11, "sensitivity = 12"));
     write(f("capsule-big.toml"), with_line(capsule_stage, 10, "capacitance = \"10n\""));
+    // ---- pickup source
+    write(f("pickup.toml"), pickup_stage);
+    write(f("pickup-noind.toml"), with_line(pickup_stage, 11, ""));
+    write(f("pickup-nores.toml"), with_line(pickup_stage, 10, ""));
+    write(f("pickup-negind.toml"), with_line(pickup_stage, 11, "inductance = -2.5"));
+    write(f("pickup-bigind.toml"), with_line(pickup_stage, 11, "inductance = 1000"));
+    write(f("pickup-cable-mm.toml"), with_line(pickup_stage, 13, "cable = \"3m\""));
+    write(f("pickup-bigcap.toml"), with_line(pickup_stage, 12, "capacitance = \"10u\""));
+    write(f("pickup-impedance.toml"), with_line(pickup_stage, 13, "cable = 3\nimpedance = \"10k\""));
+    write(f("pickup-sens.toml"), with_line(pickup_stage, 13, "cable = 3\nsensitivity = \"12m\""));
+    write(f("pickup-nokind.toml"), with_line(pickup_stage, 9, ""));
+    write(f("pickup-per-metre.toml"), with_line(pickup_stage, 13, "cable_capacitance = \"80p\""));
+    write(f("pickup-nocap.toml"), with_line(with_line(pickup_stage, 12, ""), 13, ""));
+    write(f("capsule-coil.toml"), with_line(capsule_stage, 11, "sensitivity = \"12m\"\ninductance = 2.5"));
     write(f("capsule-hot.toml"), with_line(capsule_stage, 11, "sensitivity = \"30m\""));
     write(f("phantom-name.toml"), with_line(capsule_stage, 4, "phantom = \"P36\""));
     write(f("phantom-p.toml"), with_line(with_line(good_stage, 3, "phantom = \"P48\""), 6, "vp = 1.8\npolarity = \"p\""));
@@ -686,13 +722,13 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       // ---- sources: [signal] kind, a capsule's parts, levels in dB SPL
       {"a capsule beside a gate coupling capacitor", {"bias", "@capsule-coupled.toml"}, {"@capsule-coupled.toml:9:8", "gate.coupling_cap", "connects to the gate directly"}},
       {"a capsule without its sensitivity", {"bias", "@capsule-nosens.toml"}, {"@capsule-nosens.toml:9:8", "needs signal.capacitance", "signal.sensitivity"}},
-      {"a source kind we do not have", {"bias", "@capsule-kind.toml"}, {"@capsule-kind.toml:9:8", "signal.kind must be \"resistive\" or \"capsule\"", "ribbon"}},
-      {"a capsule's parts on a resistive source", {"bias", "@capsule-nokind.toml"}, {"@capsule-nokind.toml:10:15", "signal.capacitance belongs to a capsule source"}},
+      {"a source kind we do not have", {"bias", "@capsule-kind.toml"}, {"@capsule-kind.toml:9:8", "signal.kind must be \"resistive\", \"capsule\" or \"pickup\"", "ribbon"}},
+      {"a capsule's parts on a resistive source", {"bias", "@capsule-nokind.toml"}, {"@capsule-nokind.toml:10:15", "signal.capacitance belongs to a capsule or a pickup source"}},
       {"an impedance on a capsule source", {"bias", "@capsule-impedance.toml"}, {"@capsule-impedance.toml:12:13", "signal.impedance belongs to a resistive source"}},
       {"a capsule with no DC path at the gate", {"bias", "@capsule-nogate.toml"}, {"@capsule-nogate.toml:9:8", "passes no DC", "gate.resistor"}},
       {"a capsule sensitivity of 12 V/Pa", {"bias", "@capsule-sens.toml"}, {"@capsule-sens.toml:11:15", "signal.sensitivity", "V/Pa"}},
       {"a capsule of 10 nF", {"bias", "@capsule-big.toml"}, {"@capsule-big.toml:10:15", "signal.capacitance", "1 nF"}},
-      {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\" or \"capsule\""}},
+      {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\", \"capsule\" or \"pickup\""}},
       {"sweep in dB SPL on a resistive source", {"sweep", "@stage.toml", "--drive", "94dBSPL"}, {"--drive", "'94dBSPL' is a sound pressure level", "capsule source"}},
       {"sweep --from in dB SPL on a resistive source", {"sweep", "@stage.toml", "--from", "80dBSPL", "--to", "120dBSPL"}, {"--from", "capsule source"}},
       {"imd in dB SPL on a resistive source", {"imd", "@stage.toml", "--level", "94dBSPL"}, {"--level", "capsule source"}},
@@ -706,6 +742,20 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a sound pressure level that is not a number", {"sweep", "@capsule.toml", "--drive", "loud dBSPL"}, {"--drive", "cannot read 'loud dBSPL' as a sound pressure level"}},
       {"a sound pressure level above 194 dB SPL", {"sweep", "@capsule.toml", "--drive", "200dBSPL"}, {"--drive", "outside 0 to 194 dB SPL"}},
       {"a negative sound pressure level", {"imd", "@capsule.toml", "--level", "-10dBSPL"}, {"--level", "outside 0 to 194 dB SPL"}},
+      // ---- pickup source: [signal] kind = "pickup", its coil, capacitance and cable
+      {"a pickup without its inductance", {"bias", "@pickup-noind.toml"}, {"@pickup-noind.toml:9:8", "a pickup source needs signal.inductance"}},
+      {"a pickup without its resistance", {"bias", "@pickup-nores.toml"}, {"@pickup-nores.toml:9:8", "a pickup source needs signal.resistance"}},
+      {"a negative inductance", {"bias", "@pickup-negind.toml"}, {"@pickup-negind.toml:11:14", "signal.inductance must be above 0"}},
+      {"an inductance of 1000 H", {"bias", "@pickup-bigind.toml"}, {"@pickup-bigind.toml:11:14", "signal.inductance", "100 H"}},
+      {"a cable length written as 3m", {"bias", "@pickup-cable-mm.toml"}, {"@pickup-cable-mm.toml:13:9", "signal.cable", "3 millimetres"}},
+      {"a pickup capacitance of 10 uF", {"bias", "@pickup-bigcap.toml"}, {"@pickup-bigcap.toml:12:15", "signal.capacitance", "1 µF"}},
+      {"an impedance beside a pickup", {"bias", "@pickup-impedance.toml"}, {"@pickup-impedance.toml:14:13", "signal.impedance belongs to a resistive source", "a pickup's impedance"}},
+      {"a capsule's sensitivity on a pickup", {"bias", "@pickup-sens.toml"}, {"@pickup-sens.toml:14:15", "signal.sensitivity belongs to a capsule source", "a pickup source has"}},
+      {"a pickup's parts on a resistive source", {"bias", "@pickup-nokind.toml"}, {"@pickup-nokind.toml:10:14", "signal.resistance belongs to a pickup source", "set signal.kind = \"pickup\""}},
+      {"a pickup's inductance on a capsule", {"bias", "@capsule-coil.toml"}, {"@capsule-coil.toml:12:14", "signal.inductance belongs to a pickup source", "a capsule source has"}},
+      {"a cable's capacitance per metre without its length", {"bias", "@pickup-per-metre.toml"}, {"@pickup-per-metre.toml:13:21", "signal.cable_capacitance is per metre of signal.cable"}},
+      {"a pickup with no capacitance across it", {"bias", "@pickup-nocap.toml"}, {"@pickup-nocap.toml:9:8", "needs a capacitance across its output"}},
+      {"a pickup's inductance set to 0 from the command line", {"response", "@pickup.toml", "--set", "signal.inductance=0"}, {"--set signal.inductance", "must be above 0"}},
       {"a phantom feed IEC 61938 does not name", {"bias", "@phantom-name.toml"}, {"@phantom-name.toml:4:11", "supply.phantom must be \"P48\", \"P24\" or \"P12\"", "P36"}},
       {"a phantom feed for a p-channel stage", {"bias", "@phantom-p.toml"}, {"@phantom-p.toml:3:11", "feeds a positive voltage", "p-channel"}},
       {"a phantom feed beside the voltage it sets", {"bias", "@phantom-volts.toml"}, {"@phantom-volts.toml:5:9", "supply.volts: supply.phantom = \"P48\" sets the voltage"}},

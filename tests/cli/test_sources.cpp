@@ -53,6 +53,38 @@ TEST_CASE("bias reports a capsule stage's output at 94 dB SPL and what the capsu
   }
 }
 
+TEST_CASE("the pickup preset: response and bias report its resonance where the coil meets the capacitance") {
+  // presets/pickup-buffer-9v.toml: 2.5 H against 120 pF + 3 m at 100 pF/m (common practice)
+  // plus the buffer's input capacitance, which bias reports: Thomson's 1/(2 pi sqrt(L C)).
+  // The coil's 6 kΩ and the buffer's 1.5 MΩ damp it, and the RLC divider's peak (closed form,
+  // as in tests/model/analysis/test_pickup.cpp) lies 0.22 % below it: a 0.3 % tolerance holds
+  // the reported peak to Thomson's formula with that damping.
+  const result b = run({"bias", preset("pickup-buffer-9v.toml"), "--json"});
+  CAPTURE(b.err);
+  REQUIRE(b.status == 0);
+  const nlohmann::json in = nlohmann::json::parse(b.out)["input"];
+  const double c_total = 420e-12 + in["capacitance_f"].get<double>();
+  CHECK(in["pickup_capacitance_f"].get<double>() == doctest::Approx(420e-12).epsilon(1e-12));
+  const double f0 = 1.0 / (2.0 * std::numbers::pi * std::sqrt(2.5 * c_total));
+  const double f_bias = in["loaded_resonance"]["frequency_hz"].get<double>();
+  CHECK(f_bias == doctest::Approx(f0).epsilon(3e-3));
+  CHECK(f_bias < f0);
+  const result r = run({"response", preset("pickup-buffer-9v.toml"), "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json res = nlohmann::json::parse(r.out)["resonance"];
+  // A buffer's gain is flat there: the load's peak is the input's.
+  CHECK(res["frequency_hz"].get<double>() == doctest::Approx(f_bias).epsilon(1e-3));
+  CHECK(res["peak_db"].get<double>() > 10.0);
+  CHECK(res["below_3db_hz"].get<double>() < res["frequency_hz"].get<double>());
+  CHECK(res["above_3db_hz"].get<double>() > res["frequency_hz"].get<double>());
+  const result text = run({"response", preset("pickup-buffer-9v.toml")});
+  REQUIRE(text.status == 0);
+  for (const char* part : {"resonance", "dB above mid-band", "-3 dB from the peak", "the coil's resistance alone"}) {
+    CAPTURE(part);
+    CHECK(text.out.find(part) != std::string::npos);
+  }
+}
+
 TEST_CASE("compare --at-drive in dB SPL drives each capsule at its own voltage and rates its maximum SPL") {
   // Design 2's capsule is 2.5 times as sensitive (30 mV/Pa): at one pressure its drive is
   // 2.5 times design 1's (the definition: sensitivity x pressure).

@@ -144,7 +144,7 @@ inline outcome units_entry(std::string_view text) {
     }
   };
   for (unit u : {unit::none, unit::ohm, unit::farad, unit::volt, unit::ampere, unit::hertz, unit::watt, unit::per_volt,
-                 unit::kelvin}) {
+                 unit::kelvin, unit::volt_per_pascal, unit::henry}) {
     const std::optional<double> quiet = base::try_parse_value(text, u);
     bool thrown = false;
     try {

@@ -117,7 +117,8 @@ model::network preset_network(const char* file) {
   return model::build_network(model::read_stage_file(std::string(PINCHOFF_PRESETS_DIR) + "/" + file));
 }
 
-constexpr const char* preset_files[] = {"bass-booster-9v.toml", "clean-preamp-18v.toml", "phantom-mic-follower.toml"};
+constexpr const char* preset_files[] = {"bass-booster-9v.toml", "clean-preamp-18v.toml", "phantom-mic-follower.toml",
+                                        "pickup-buffer-9v.toml"};
 
 }  // namespace
 
