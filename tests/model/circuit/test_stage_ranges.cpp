@@ -93,6 +93,25 @@ const std::vector<range_row> capsule_rows = {
     {"gate.resistor", "1m", "100G", "0.9m", "101G", "1 mΩ to 100 GΩ"},
 };
 
+// A pickup and cable into a 9 V buffer (common practice values: 2.5 H, 6 kΩ, 3 m of cable).
+const std::string pickup_stage =
+    "name = \"pickup range test\"\ntopology = \"source-follower\"\n"
+    "[supply]\nvolts = 9\nresistance = \"100\"\ncapacitance = \"100u\"\n"
+    "[jfet]\nidss = \"5m\"\nvp = -1.8\nlambda = 0.005\ncgs = \"4p\"\ncgd = \"2p\"\n"
+    "[signal]\nkind = \"pickup\"\nresistance = \"6k\"\ninductance = 2.5\ncapacitance = \"120p\"\ncable = 3\n"
+    "[gate]\ncoupling_cap = \"22n\"\nresistor = \"1M\"\n"
+    "[source]\nresistor = \"2.2k\"\n"
+    "[output]\ncoupling_cap = \"1u\"\nload = \"100k\"\n";
+
+// The pickup's ranges (README "Sources"; common practice, decades beyond real coils and cables).
+const std::vector<range_row> pickup_rows = {
+    {"signal.resistance", "1", "1M", "0.9", "1.1M", "1 Ω to 1 MΩ"},
+    {"signal.inductance", "100u", "100", "90u", "110", "100 µH to 100 H"},
+    {"signal.capacitance", "1p", "1u", "0.9p", "1.1u", "1 pF to 1 µF"},
+    {"signal.cable", "0.1", "300", "0.09", "301", "0.1 to 300"},
+    {"signal.cable_capacitance", "10p", "1n", "9p", "1.1n", "10 pF to 1 nF"},
+};
+
 std::vector<stage_override> overrides_of(const range_row& r, const std::string& value) {
   std::vector<stage_override> o;
   auto add = [&o](const std::string& kv) {
@@ -119,7 +138,7 @@ TEST_CASE("each end of every value's range is accepted, and a step beyond it is 
     const std::string* text;
     const std::vector<range_row>* rows;
   };
-  for (const table tb : {table{&base_stage, &rows}, table{&capsule_stage, &capsule_rows}})
+  for (const table tb : {table{&base_stage, &rows}, table{&capsule_stage, &capsule_rows}, table{&pickup_stage, &pickup_rows}})
   for (const range_row& r : *tb.rows) {
     const std::string& stage_text = *tb.text;
     CAPTURE(r.key);
@@ -172,7 +191,7 @@ TEST_CASE("the solvers solve the stage at every corner of the ranges") {
     const std::string* text;
     const std::vector<range_row>* rows;
   };
-  for (const table tb : {table{&base_stage, &rows}, table{&capsule_stage, &capsule_rows}})
+  for (const table tb : {table{&base_stage, &rows}, table{&capsule_stage, &capsule_rows}, table{&pickup_stage, &pickup_rows}})
   for (const range_row& r : *tb.rows) {
     for (const char* v : {r.lo, r.hi}) {
       CAPTURE(r.key);
