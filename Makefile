@@ -45,6 +45,12 @@ demo: build
 	@echo "== pinchoff sweep presets/three-stage-overdrive-9v.toml --from -70dBu --to -20dBu --steps 6"
 	@$(PINCHOFF) sweep presets/three-stage-overdrive-9v.toml --from -70dBu --to -20dBu --steps 6
 	@echo
+	@echo "== pinchoff noise presets/phantom-mic-follower.toml (self-noise, and which part hisses)"
+	@$(PINCHOFF) noise presets/phantom-mic-follower.toml
+	@echo
+	@echo "== pinchoff response presets/pickup-buffer-9v.toml (a pickup's resonance into a buffer)"
+	@$(PINCHOFF) response presets/pickup-buffer-9v.toml
+	@echo
 	@echo "== pinchoff render: the demo clip through two presets, loudness-matched, into out/"
 	@$(PINCHOFF) render presets/bass-booster-9v.toml presets/clean-preamp-18v.toml \
 	  --input samples/pluck-phrase-48k.wav --output out --dry --force
