@@ -112,6 +112,13 @@ const std::vector<range_row> pickup_rows = {
     {"signal.cable_capacitance", "10p", "1n", "9p", "1.1n", "10 pF to 1 nF"},
 };
 
+// Each base stage with the rows its ranges are checked on.
+struct range_table {
+  const std::string* text;
+  const std::vector<range_row>* rows;
+};
+const range_table range_tables[] = {{&base_stage, &rows}, {&capsule_stage, &capsule_rows}, {&pickup_stage, &pickup_rows}};
+
 std::vector<stage_override> overrides_of(const range_row& r, const std::string& value) {
   std::vector<stage_override> o;
   auto add = [&o](const std::string& kv) {
@@ -134,11 +141,7 @@ std::vector<stage_override> overrides_of(const range_row& r, const std::string& 
 }  // namespace
 
 TEST_CASE("each end of every value's range is accepted, and a step beyond it is refused with the range") {
-  struct table {
-    const std::string* text;
-    const std::vector<range_row>* rows;
-  };
-  for (const table tb : {table{&base_stage, &rows}, table{&capsule_stage, &capsule_rows}, table{&pickup_stage, &pickup_rows}})
+  for (const range_table& tb : range_tables)
   for (const range_row& r : *tb.rows) {
     const std::string& stage_text = *tb.text;
     CAPTURE(r.key);
@@ -187,11 +190,7 @@ TEST_CASE("a value out of its range in the file is refused at its line and colum
 TEST_CASE("the solvers solve the stage at every corner of the ranges") {
   // The DC point converges and the network discretises (a matrix the engine can invert) at
   // 48 kHz and at the highest rate any command simulates (768 kHz, 64 times oversampled).
-  struct table {
-    const std::string* text;
-    const std::vector<range_row>* rows;
-  };
-  for (const table tb : {table{&base_stage, &rows}, table{&capsule_stage, &capsule_rows}, table{&pickup_stage, &pickup_rows}})
+  for (const range_table& tb : range_tables)
   for (const range_row& r : *tb.rows) {
     for (const char* v : {r.lo, r.hi}) {
       CAPTURE(r.key);
