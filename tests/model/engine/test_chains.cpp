@@ -19,6 +19,7 @@
 #include "model/circuit/operating_point.hpp"
 #include "model/engine/dk_engine.hpp"
 #include "model/engine/transient_reference.hpp"
+#include "support/engine_vs_reference.hpp"
 
 namespace {
 
@@ -26,48 +27,11 @@ using namespace pinchoff;
 
 constexpr double fs_hz = 384000.0;  // 8 x 48 kHz
 
-double sine(double amplitude_v, double f_hz, int n) { return amplitude_v * std::sin(2.0 * std::numbers::pi * f_hz * n / fs_hz); }
 
-struct chain_run {
-  double worst_output_v{0}, worst_ports_v{0};
-  double output_peak_v{0};
-  int devices{0};
-  long long engine_failed{0}, reference_failed{0};
-  int gate_conducting{0};  ///< JFETs whose gate-source junction went forward of 0.4 V
-};
-
-// The engine and the reference side by side on `samples` samples of a 1 kHz sine.
-// Both start from the DC point, polished to the reference's own step tolerance (1e-10 V +
-// 1e-12 |v|; the DC solve stops at 1e-9 V + 1e-9 |v|): the engine refines its start on its
-// own equations (detail::refine_dc_point), the reference starts where it is given, so a
-// coarser start showed as a difference of up to 3e-9 V from the first sample on some
-// random chains, a difference of DC solves, not of the transient solvers compared here.
-chain_run run_chain(const model::network& net, double amp, int samples, const model::dk_options& opt = {}) {
-  model::operating_point op = model::solve_operating_point(net);
-  {
-    const std::vector<model::cap_treatment> open = model::uniform_caps(net, model::cap_treatment::kind::open);
-    const model::mna_system lin = model::assemble_linear(net, open, net.supply_v, 0.0);
-    REQUIRE(model::solve_nodal(net, lin, op.x, model::transient_nodal_options()).converged);
-  }
-  model::dk_engine eng(net, op, fs_hz, opt);
-  model::transient_reference ref(net, op, fs_hz);
-  chain_run c;
-  c.devices = eng.devices();
-  std::vector<double> max_vgs(static_cast<std::size_t>(c.devices), -1e9);
-  for (int n = 0; n < samples; ++n) {
-    const double u = sine(amp, 1000.0, n);
-    const double y = eng.process(u);
-    c.worst_output_v = std::max(c.worst_output_v, std::fabs(y - ref.process(u)));
-    c.output_peak_v = std::max(c.output_peak_v, std::fabs(y - eng.dc_output_v()));
-    for (int k = 0; k < c.devices; ++k) {
-      c.worst_ports_v = std::max(c.worst_ports_v, (eng.ports_v(k) - ref.ports_v(k)).cwiseAbs().maxCoeff());
-      max_vgs[static_cast<std::size_t>(k)] = std::max(max_vgs[static_cast<std::size_t>(k)], eng.ports_network_v(k)[0]);
-    }
-  }
-  for (double v : max_vgs) c.gate_conducting += v > 0.4 ? 1 : 0;
-  c.engine_failed = eng.stats().failed;
-  c.reference_failed = ref.stats().failed;
-  return c;
+// The engine and the reference side by side on `samples` samples of a 1 kHz sine
+// (tests/support/engine_vs_reference.hpp, which says how both start).
+test::side_by_side run_chain(const model::network& net, double amp, int samples, const model::dk_options& opt = {}) {
+  return test::engine_against_reference(net, amp, 1000.0, samples, fs_hz, opt);
 }
 
 }  // namespace
@@ -88,7 +52,7 @@ TEST_CASE("chains of two to six stages follow the nodal reference to 1e-9 V, cle
           CAPTURE(dc);
           CAPTURE(rails);
           CAPTURE(amp);
-          const chain_run c = run_chain(net, amp, 800);
+          const test::side_by_side c = run_chain(net, amp, 800);
           CAPTURE(c.worst_output_v);
           CAPTURE(c.worst_ports_v);
           CHECK(c.worst_output_v <= 1e-9);
@@ -99,7 +63,7 @@ TEST_CASE("chains of two to six stages follow the nodal reference to 1e-9 V, cle
             // Deep in clipping: the first gate conducts on the positive peaks (10 V into a
             // gate with a 1 MΩ return), and the chain's output is limited far below the
             // small-signal gain times the drive.
-            CHECK(c.gate_conducting >= 1);
+            CHECK(c.gate_conducting() >= 1);
             CHECK(c.output_peak_v < net.supply_v);
           }
         }
@@ -121,7 +85,7 @@ TEST_CASE("chains: the portable sample loop follows the reference too") {
     for (const double amp : {0.01, 10.0}) {
       CAPTURE(k);
       CAPTURE(amp);
-      const chain_run c = run_chain(net, amp, 400, portable);
+      const test::side_by_side c = run_chain(net, amp, 400, portable);
       CHECK(c.worst_output_v <= 1e-9);
       CHECK(c.worst_ports_v <= 1e-9);
       CHECK(c.engine_failed == 0);
@@ -134,7 +98,7 @@ TEST_CASE("chains beyond the compile-time sizes (seven stages) take the run-time
   REQUIRE(net.devices() == 7);
   for (const double amp : {0.01, 10.0}) {
     CAPTURE(amp);
-    const chain_run c = run_chain(net, amp, 300);
+    const test::side_by_side c = run_chain(net, amp, 300);
     CHECK(c.worst_output_v <= 1e-9);
     CHECK(c.worst_ports_v <= 1e-9);
     CHECK(c.engine_failed == 0);
@@ -222,7 +186,7 @@ TEST_CASE("random chains of two to four stages: every output sample follows the 
     const model::network net = random_chain(rng);
     CAPTURE(trial);
     CAPTURE(net.devices());
-    const chain_run c = run_chain(net, 0.01, 400);
+    const test::side_by_side c = run_chain(net, 0.01, 400);
     CAPTURE(c.worst_output_v);
     CAPTURE(c.worst_ports_v);
     CHECK(c.worst_output_v <= 1e-9);

@@ -15,6 +15,8 @@
 #include "model/engine/dk_engine.hpp"
 #include "model/engine/dk_matrices.hpp"
 #include "model/engine/transient_reference.hpp"
+#include "support/engine_vs_reference.hpp"
+#include "support/files.hpp"
 
 namespace {
 
@@ -22,42 +24,7 @@ using namespace pinchoff;
 
 constexpr double fs_hz = 384000.0;  // 8 x 48 kHz
 
-std::string preset_text(const char* file) {
-  std::ifstream in(std::string(PINCHOFF_PRESETS_DIR) + "/" + file);
-  std::ostringstream os;
-  os << in.rdbuf();
-  return os.str();
-}
-
-struct run {
-  double worst_output_v{0}, worst_ports_v{0}, output_peak_v{0};
-  long long engine_failed{0}, reference_failed{0};
-};
-
-// Both start from the DC point polished to the reference's own step tolerance (as in
-// test_chains.cpp), then take the same sine, sample by sample.
-run side_by_side(const model::network& net, double amp, double f_hz, int samples) {
-  model::operating_point op = model::solve_operating_point(net);
-  {
-    const std::vector<model::cap_treatment> open = model::uniform_caps(net, model::cap_treatment::kind::open);
-    const model::mna_system lin = model::assemble_linear(net, open, net.supply_v, 0.0);
-    REQUIRE(model::solve_nodal(net, lin, op.x, model::transient_nodal_options()).converged);
-  }
-  model::dk_engine eng(net, op, fs_hz);
-  model::transient_reference ref(net, op, fs_hz);
-  run r;
-  for (int n = 0; n < samples; ++n) {
-    const double u = amp * std::sin(2.0 * std::numbers::pi * f_hz * n / fs_hz);
-    const double y = eng.process(u);
-    r.worst_output_v = std::max(r.worst_output_v, std::fabs(y - ref.process(u)));
-    r.output_peak_v = std::max(r.output_peak_v, std::fabs(y - eng.dc_output_v()));
-    for (int k = 0; k < eng.devices(); ++k)
-      r.worst_ports_v = std::max(r.worst_ports_v, (eng.ports_v(k) - ref.ports_v(k)).cwiseAbs().maxCoeff());
-  }
-  r.engine_failed = eng.stats().failed;
-  r.reference_failed = ref.stats().failed;
-  return r;
-}
+std::string preset_text(const char* file) { return testing::slurp(std::string(PINCHOFF_PRESETS_DIR) + "/" + file); }
 
 }  // namespace
 
@@ -89,7 +56,7 @@ TEST_CASE("a pickup's coil in the DK engine: the reference's samples to 1e-9 V, 
         CAPTURE(r.name);
         CAPTURE(f);
         CAPTURE(amp);
-        const run c = side_by_side(net, amp, f, 1536);
+        const test::side_by_side c = test::engine_against_reference(net, amp, f, 1536, fs_hz);
         CAPTURE(c.worst_output_v);
         CAPTURE(c.worst_ports_v);
         CHECK(c.worst_output_v <= 1e-9);
