@@ -46,12 +46,13 @@ struct noise_report {
   std::string level_text;
   double level_vpk{NAN};   ///< --level at the generator, peak; NaN when not given
   std::vector<std::string> warnings;
-  std::optional<model::max_spl_figures> max_spl;  ///< a capsule source: the top of its dynamic range
+  std::optional<model::drive_search> max_spl;  ///< a capsule source: 1 % THD, the top of its dynamic range
+  double max_spl_db{NAN};
 };
 
 // A capsule's dynamic range: the maximum SPL at 1 % THD (1 kHz) over the A-weighted self-noise.
 double dynamic_range_db(const noise_report& rep) {
-  return rep.max_spl->one_percent_db_spl -
+  return rep.max_spl_db -
          model::self_noise_db_spl(rep.r.input_a_v(), rep.st.capsule.sensitivity_v_per_pa);
 }
 
@@ -129,8 +130,8 @@ void print_json(const noise_report& rep, std::ostream& out) {
       rep.st.has_capsule() ? number_or_null(model::self_noise_db_spl(r.input_a_v(), rep.st.capsule.sensitivity_v_per_pa))
                            : nlohmann::json(nullptr);
   if (rep.max_spl) {
-    const bool found = rep.max_spl->one_percent.found;
-    j["max_spl_1_percent_db"] = found ? number_or_null(rep.max_spl->one_percent_db_spl) : nlohmann::json(nullptr);
+    const bool found = rep.max_spl->found;
+    j["max_spl_1_percent_db"] = found ? number_or_null(rep.max_spl_db) : nlohmann::json(nullptr);
     j["dynamic_range_db"] = found ? number_or_null(dynamic_range_db(rep)) : nlohmann::json(nullptr);
   }
   j["clean_swing_vrms"] = clean_swing_rms(rep);
@@ -224,11 +225,11 @@ void print_text(const noise_report& rep, std::ostream& out) {
     out << "  self-noise " << format_number(model::self_noise_db_spl(r.input_a_v(), rep.st.capsule.sensitivity_v_per_pa), 3)
         << " dB(A) SPL (the capsule's " << format_si(rep.st.capsule.sensitivity_v_per_pa * 1e3, "mV/Pa") << ")\n";
   if (rep.max_spl) {
-    if (rep.max_spl->one_percent.found)
+    if (rep.max_spl->found)
       out << "  dynamic range " << format_number(dynamic_range_db(rep), 3) << " dB, from the self-noise to the maximum SPL at 1 % THD ("
-          << format_number(rep.max_spl->one_percent_db_spl, 4) << " dB SPL at 1 kHz)\n";
+          << format_number(rep.max_spl_db, 4) << " dB SPL at 1 kHz)\n";
     else
-      out << "  dynamic range: no maximum SPL at 1 % THD (" << rep.max_spl->one_percent.reason << ")\n";
+      out << "  dynamic range: no maximum SPL at 1 % THD (" << rep.max_spl->reason << ")\n";
   }
   out << "  signal-to-noise at the clean swing (" << format_si(clean_swing_rms(rep), "V") << " rms at the load): "
       << format_number(snr_db(clean_swing_rms(rep), r.output_v()), 3) << " dB, "
@@ -318,7 +319,9 @@ void run(const noise_options& opt, std::ostream& out, std::ostream& err, base::o
     model::compare_settings c;
     c.mode = model::compare_mode::at_drive;
     c.automatic_oversample = true;
-    rep.max_spl = model::find_max_spl(rep.st, c);
+    // Only the 1 % figure: the 0.5 % one find_max_spl adds is not shown here.
+    rep.max_spl = model::find_drive_for_thd(rep.st, c, 1.0);
+    rep.max_spl_db = model::capsule_level_db_spl(rep.st.capsule, rep.max_spl->drive_vpk);
   }
 
   if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
