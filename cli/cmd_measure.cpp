@@ -20,7 +20,10 @@
 #include "base/units.hpp"
 #include "dsp/windowed_analysis.hpp"
 #include "model/circuit/stage_file.hpp"
+#include "model/analysis/noise.hpp"
 #include "model/analysis/sweep.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
 
 namespace pinchoff::cli {
 namespace {
@@ -46,6 +49,26 @@ struct measure_options {
   std::string against_path;
   std::string drive_text;
   std::vector<std::string> overrides;
+  // --noise [--output-cal L]: a recording of noise alone, read unweighted and weighted.
+  bool noise{false};
+  std::string output_cal_text;
+};
+
+// --noise: the readings of a recording that holds noise alone, and the stage's predicted
+// output noise beside them (--against, in volts through --output-cal).
+struct noise_report {
+  std::string path;
+  dsp::sound_info info;
+  int channel{1};
+  std::int64_t first_frame{0};
+  std::size_t analysed{0};
+  std::int64_t available{0};
+  dsp::noise_reading reading;
+  double cal_vpk{0.0};  ///< the peak volts of a full-scale sine at the recorder's input; 0: not given
+  std::string stage_path;
+  std::vector<std::string> overrides;
+  std::string stage_name;
+  model::band_power predicted;  ///< V^2 at the load, with --against
 };
 
 // The model's steady state for the same drive at the measured fundamental.
@@ -267,6 +290,169 @@ std::string signed_db(double v) {
   return t;
 }
 
+// ---- Noise alone (--noise)
+
+noise_report analyse_noise_recording(const measure_options& o) {
+  if (!o.drive_text.empty())
+    throw input_error("--drive goes with a tone: --noise reads a recording of the stage's output with no signal");
+  if (o.freq_text != "auto") throw input_error("--freq goes with a tone: --noise reads a recording with no signal");
+  if (!o.plot_path.empty()) throw input_error("--plot draws a tone's spectrum; with --noise there is no tone to mark");
+  if (!o.against_path.empty() && o.output_cal_text.empty())
+    throw input_error("--noise --against compares volts: give --output-cal, the level a full-scale sine has at the "
+                      "recorder's input (such as 1.55Vpk or +6dBu)");
+  if (!o.overrides.empty() && o.against_path.empty()) throw input_error("--set goes with --against STAGE (the stage to predict)");
+  if (!(o.start_s >= 0.0) || !(o.duration_s >= 0.0)) throw input_error("--start and --duration must not be negative");
+  noise_report r;
+  r.path = o.path;
+  if (!o.output_cal_text.empty()) {
+    r.cal_vpk = option_level_vpk(o.output_cal_text, "--output-cal");
+    if (!(r.cal_vpk >= 1e-3 && r.cal_vpk <= 100.0))
+      throw input_error("--output-cal must be 1 mV to 100 V peak (a recorder's full scale), got " + format_si(r.cal_vpk, "V"));
+  }
+  const double band_high = option_frequency_hz(o.bandwidth_text, "--bandwidth");
+  if (!(band_high > 20.0))
+    throw input_error("--bandwidth " + o.bandwidth_text + " must lie above the band's low edge, 20 Hz (AES17)");
+  std::optional<model::stage> st;
+  if (!o.against_path.empty()) st = load_stage(o.against_path, o.overrides, o.devices);
+
+  dsp::require_seekable_file(o.path, "measure reads the recording from a file");
+  dsp::sound_reader rd = dsp::sound_reader::open(o.path);
+  r.info = rd.info();
+  r.channel = o.channel;
+  if (o.channel < 1 || o.channel > r.info.channels)
+    throw input_error("'" + o.path + "' has " + std::to_string(r.info.channels) + " channel" +
+                      (r.info.channels == 1 ? "" : "s") + "; --channel " + std::to_string(o.channel) + " does not exist");
+  if (r.info.frames <= 0) throw input_error("'" + o.path + "' holds no audio (a header and no frames)");
+  const double fs = r.info.rate_hz;
+  if (!(o.start_s * fs < static_cast<double>(r.info.frames) - 0.5))
+    throw input_error("--start " + format_number(o.start_s) + " s lies beyond the end of '" + o.path + "' (" +
+                      format_number(r.info.seconds(), 4) + " s)");
+  r.first_frame = static_cast<std::int64_t>(std::llround(o.start_s * fs));
+  std::int64_t count = r.info.frames - r.first_frame;
+  if (o.duration_s > 0.0 && o.duration_s * fs < static_cast<double>(count))
+    count = static_cast<std::int64_t>(std::llround(o.duration_s * fs));
+  r.available = count;
+  rd.seek(r.first_frame);
+  std::vector<double> x = dsp::read_channel(rd, o.channel - 1, std::min(count, max_analysed_frames));
+  // A quarter of a second puts 5 bins below the band's 20 Hz edge (the Hann window's main
+  // lobe is 2 bins wide); a few seconds read steadier.
+  if (static_cast<double>(x.size()) < 0.25 * fs)
+    throw input_error("'" + o.path + "' holds " + format_number(static_cast<double>(x.size()) / fs, 3) +
+                      " s to analyse; a noise reading needs at least 0.25 s (a few seconds read steadier)");
+  x.resize(dsp::fast_analysis_length(x.size()));
+  r.analysed = x.size();
+  r.reading = dsp::analyse_noise_record(x, fs, 20.0, std::min(band_high, fs / 2));
+  if (st) {
+    r.stage_path = o.against_path;
+    r.overrides = o.overrides;
+    r.stage_name = st->name;
+    const model::network net = model::build_network(*st);
+    const model::operating_point op = model::solve_operating_point(net);
+    model::noise_settings s;
+    s.band_lo_hz = 20.0;
+    s.band_hi_hz = std::min(band_high, fs / 2);
+    s.from_hz = s.band_lo_hz;
+    s.to_hz = s.band_hi_hz;
+    s.points = 2;
+    r.predicted = model::analyse_noise(net, op, s).output;
+  }
+  return r;
+}
+
+// The three readings' rms (full-scale units) and the predicted ones (V^2), in order.
+struct noise_row {
+  const char* label;
+  const char* key;
+  double rms_fs;
+  double predicted_v2;
+};
+std::vector<noise_row> noise_rows(const noise_report& r) {
+  return {{"unweighted", "noise", r.reading.rms_v, r.predicted.unweighted},
+          {"A-weighted", "noise_a", r.reading.a_rms_v, r.predicted.a},
+          {"ITU-R 468 (rms)", "noise_468", r.reading.itu468_rms_v, r.predicted.itu468}};
+}
+
+void write_noise_text(const noise_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  out << r.path << ": " << r.info.format_text << ", "
+      << (fs == std::floor(fs) ? std::to_string(static_cast<long long>(fs)) : format_number(fs, 6)) << " Hz, " << r.info.channels
+      << (r.info.channels == 1 ? " channel, " : " channels, ") << format_number(r.info.seconds(), 4) << " s\n";
+  out << "  channel " << r.channel << ", " << format_number(static_cast<double>(r.analysed) / fs, 4) << " s analysed from "
+      << fixed(static_cast<double>(r.first_frame) / fs, 3) << " s, all of it read as noise (no tone is looked for)"
+      << (r.available > max_analysed_frames
+              ? "\n  (the first part of " + format_number(static_cast<double>(r.available) / fs, 4) +
+                    " s: measure analyses at most " + std::to_string(max_analysed_frames) + " frames)"
+              : std::string())
+      << "\n  band " << format_si(r.reading.band_low_hz, "Hz", 3) << " to " << format_si(r.reading.band_high_hz, "Hz", 3)
+      << ", Hann window\n";
+  const bool cal = r.cal_vpk > 0.0;
+  out << "\nNoise\n";
+  text_table t(cal ? std::vector<align>{align::left, align::right, align::right, align::right}
+                   : std::vector<align>{align::left, align::right});
+  if (cal) t.add({"", "dBFS", "dBu", "rms"});
+  for (const noise_row& n : noise_rows(r)) {
+    std::vector<std::string> row{n.label, fixed(dbfs_from_rms(n.rms_fs), 1) + (cal ? "" : " dBFS")};
+    if (cal) {
+      const double v = n.rms_fs * r.cal_vpk;
+      row.push_back(fixed(model::dbu_of_rms(v), 1));
+      row.push_back(format_si(v, "V"));
+    }
+    t.add(row);
+  }
+  t.write(out);
+  out << "  dBFS: 0 for a full-scale sine's rms (AES17)"
+      << (cal ? ";\n  volts: a full-scale sine is " + format_si(r.cal_vpk, "V") + " peak at the recorder (--output-cal)"
+              : std::string())
+      << ".\n  ITU-R 468 here is its weighting filter read as rms, not the recommendation's quasi-peak meter.\n";
+  if (r.stage_path.empty()) return;
+  out << "\nAgainst the model\n  " << r.stage_path;
+  for (const std::string& o : r.overrides) out << " --set " << o;
+  out << ": " << r.stage_name << ", its noise at the load over the same band\n\n";
+  text_table a({align::left, align::right, align::right, align::right});
+  a.add({"", "measured", "predicted", "difference"});
+  for (const noise_row& n : noise_rows(r)) {
+    const double m = model::dbu_of_rms(n.rms_fs * r.cal_vpk), q = model::dbu_of_rms(std::sqrt(n.predicted_v2));
+    a.add({n.label, fixed(m, 1) + " dBu", fixed(q, 1) + " dBu", signed_db(m - q)});
+  }
+  a.write(out);
+  out << "  difference: measured minus predicted. The recorder's own noise adds to the stage's in power:\n"
+         "  record the recorder with its input terminated too, and trust a difference only where the\n"
+         "  stage's reading lies 10 dB or more above that floor.\n";
+}
+
+void write_noise_json(const noise_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  nlohmann::json j{{"path", r.path},
+                   {"mode", "noise"},
+                   {"rate_hz", fs},
+                   {"channel", r.channel},
+                   {"start_s", static_cast<double>(r.first_frame) / fs},
+                   {"duration_s", static_cast<double>(r.analysed) / fs},
+                   {"band_hz", {r.reading.band_low_hz, r.reading.band_high_hz}}};
+  const bool cal = r.cal_vpk > 0.0;
+  if (cal) j["output_cal_vpk"] = r.cal_vpk;
+  nlohmann::json pred = nlohmann::json::object(), diff = nlohmann::json::object();
+  for (const noise_row& n : noise_rows(r)) {
+    const std::string key = n.key;
+    j[key + "_dbfs"] = dbfs_from_rms(n.rms_fs);
+    if (cal) {
+      j[key + "_v"] = n.rms_fs * r.cal_vpk;
+      j[key + "_dbu"] = model::dbu_of_rms(n.rms_fs * r.cal_vpk);
+    }
+    if (!r.stage_path.empty()) {
+      const double q = model::dbu_of_rms(std::sqrt(n.predicted_v2));
+      pred[key + "_dbu"] = q;
+      pred[key + "_v"] = std::sqrt(n.predicted_v2);
+      diff[key + "_db"] = model::dbu_of_rms(n.rms_fs * r.cal_vpk) - q;
+    }
+  }
+  if (!r.stage_path.empty())
+    j["against"] = {{"stage_path", r.stage_path}, {"overrides", r.overrides}, {"name", r.stage_name},
+                    {"predicted", pred}, {"difference", diff}};
+  out << json_text(j) << '\n';
+}
+
+
 void write_against_text(const measure_report& r, std::ostream& out) {
   const prediction& p = *r.against;
   const model::sweep_point& pt = p.point();
@@ -345,6 +531,8 @@ void write_text(const measure_report& r, std::ostream& out) {
   t.add({"THD (" + range + ")", format_number(a.thd_percent, 4) + " %", db_text(a.thd_db, "dB")});
   t.add({"THD+N (band, AES17)", format_number(a.thd_n_percent, 4) + " %", db_text(a.thd_n_db, "dB")});
   t.add({"noise (band, lines removed)", fixed(dbfs_from_rms(a.noise_rms_v), 1) + " dBFS", dbc_text(a.noise_dbc)});
+  t.add({"  A-weighted", fixed(dbfs_from_rms(a.noise_a_rms_v), 1) + " dBFS", ""});
+  t.add({"  ITU-R 468 (rms)", fixed(dbfs_from_rms(a.noise_468_rms_v), 1) + " dBFS", ""});
   t.add({"noise density", "", fixed(a.noise_floor_dbc_per_hz, 1) + " dBc/Hz"});
   t.write(out);
   out << "  THD: harmonics relative to the fundamental; THD+N: everything but the fundamental\n"
@@ -383,6 +571,8 @@ void write_json(const measure_report& r, std::ostream& out) {
                    {"thd_n_db", a.thd_n_db},
                    {"noise_dbfs", dbfs_from_rms(a.noise_rms_v)},
                    {"noise_dbc", a.noise_dbc},
+                   {"noise_a_dbfs", dbfs_from_rms(a.noise_a_rms_v)},
+                   {"noise_468_dbfs", dbfs_from_rms(a.noise_468_rms_v)},
                    {"noise_density_dbc_per_hz", a.noise_floor_dbc_per_hz},
                    {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)}};
   if (r.against) {
@@ -442,6 +632,8 @@ void write_plot(const measure_report& r, const measure_options& o, base::output_
 }
 
 measure_report run(const measure_options& o) {
+  if (!o.output_cal_text.empty())
+    throw input_error("--output-cal goes with --noise (a tone's figures are in dBc and need no calibration)");
   std::optional<prediction> against = load_against(o);
   measure_report r = analyse(o);
   r.against = std::move(against);
@@ -476,6 +668,13 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       ->expected(1)
       ->allow_extra_args(false)
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeAll);
+  sub->add_flag("--noise", o.noise,
+                "The recording holds noise alone (the stage's output, its input shorted or terminated): read it "
+                "unweighted, A-weighted and ITU-R 468 weighted");
+  sub->add_option("--output-cal", o.output_cal_text,
+                  "With --noise: the level of a full-scale sine at the recorder's input, e.g. 1.55Vpk or +6dBu, so "
+                  "readings are in volts and dBu")
+      ->type_name("LEVEL");
   sub->footer(
       "Examples:\n"
       "  pinchoff measure stage-out.wav\n"
@@ -485,6 +684,9 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       "      one step of a 'pinchoff tone --steps' recording (tone prints where each step holds)\n"
       "  pinchoff measure booster-out.wav --against presets/bass-booster-9v.toml --drive 100mVpk\n"
       "      beside each harmonic, what the model predicts for that drive at the measured frequency\n"
+      "  pinchoff measure hiss.wav --noise --output-cal 1.55Vpk --against presets/phantom-mic-follower.toml\n"
+      "      a recording of the output with no signal, unweighted, A- and 468-weighted, in dBFS and dBu,\n"
+      "      beside the noise `pinchoff noise` predicts at the load\n"
       "The fundamental is found to a fraction of a bin and subtracted before the harmonics and\n"
       "the noise are read, so a recording need not hold whole cycles. Use a flat-top window for\n"
       "a level read without scallop loss in the plot; the figures are read at the exact\n"
@@ -505,6 +707,12 @@ void register_measure(CLI::App& app, std::vector<command>& commands, const data_
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,
                       [opt](std::ostream& out, std::ostream&, base::output_set& outputs) {
+                        if (opt->noise) {
+                          const noise_report n = analyse_noise_recording(*opt);
+                          if (opt->json) write_noise_json(n, out);
+                          else write_noise_text(n, out);
+                          return;
+                        }
                         const measure_report r = run(*opt);
                         if (r.spectrum) write_plot(r, *opt, outputs);
                         if (opt->json) write_json(r, out);

@@ -57,6 +57,8 @@ struct windowed_analysis {
   double thd_n_ratio{}, thd_n_percent{}, thd_n_db{};
   double band_rms_v{};                  ///< rms of everything in the band, fundamental included
   double noise_rms_v{};                 ///< in-band rms without the fundamental and counted harmonics
+  double noise_a_rms_v{};               ///< the same, A-weighted (IEC 61672-1; weighting.hpp)
+  double noise_468_rms_v{};             ///< the same, ITU-R BS.468-4 weighted (rms, not quasi-peak)
   double noise_dbc{};                   ///< noise power relative to the fundamental's power
   double noise_floor_dbc_per_hz{};      ///< noise density relative to the fundamental's power, per hertz
 };
@@ -70,6 +72,21 @@ inline constexpr double no_tone_below = 1e-10;
 /// record's peak, or the band holds no bins).
 windowed_analysis analyse_windowed(std::span<const double> samples, double fs_hz,
                                    const windowed_settings& settings = {});
+
+/// A record that holds noise alone (a stage's output with its input shorted or terminated):
+/// its in-band rms unweighted, A-weighted and ITU-R BS.468-4 weighted (the filter of
+/// weighting.hpp read as rms, not the recommendation's quasi-peak meter). The DC (the mean
+/// under the window) is removed; one Hann-windowed transform of the whole record; each bin
+/// p_k = 2 |X_k|^2 / (n sum w^2) (the bins sum to the mean square, as in step 5 above) times
+/// the weighting's power gain at the bin's centre, summed over the bins from band_low_hz to
+/// band_high_hz (at least the third bin, clear of the DC's main lobe). Throws input_error
+/// for fewer than 64 samples or an empty band.
+struct noise_reading {
+  double band_low_hz{}, band_high_hz{};  ///< the bin centres actually summed
+  double rms_v{}, a_rms_v{}, itu468_rms_v{};
+};
+noise_reading analyse_noise_record(std::span<const double> samples, double fs_hz, double band_low_hz = 20.0,
+                                   double band_high_hz = 20000.0);
 
 /// The largest n' <= n of the form 2^a 3^b 5^c: a record trimmed to it transforms fast
 /// (a prime length would cost O(n^2) in KissFFT's generic radix). The trim loses under

@@ -268,6 +268,7 @@ struct fixtures {
                      f("silent.wav")})
                 .status == 0);
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", f("rec48.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "1", f("rec1s.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", "--format", "float", f("float48.wav")}).status == 0);
     write(f("empty.wav"), "");
     {
@@ -743,6 +744,18 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a negative bootstrap capacitor", {"bias", "@boot-neg.toml"}, {"@boot-neg.toml:15:13", "gate.bootstrap"}},
       {"drain feedback on a follower", {"bias", "@fb-follower.toml"}, {"@fb-follower.toml:14:12", "gate.feedback", "carries no signal to feed back"}},
       {"a feedback resistor of a teraohm", {"bias", "@fb-huge.toml"}, {"@fb-huge.toml:10:12", "gate.feedback", "100 G"}},
+      // ---- measure --noise: a recording of noise alone
+      {"measure --noise with a drive", {"measure", "@rec1s.wav", "--noise", "--drive", "100mV"}, {"--drive goes with a tone"}},
+      {"measure --noise with a tone's frequency", {"measure", "@rec1s.wav", "--noise", "--freq", "1k"}, {"--freq goes with a tone"}},
+      {"measure --noise with a spectrum plot", {"measure", "@rec1s.wav", "--noise", "--plot", "@made/n.svg"}, {"--plot", "no tone to mark"}},
+      {"measure --noise against a stage without calibration", {"measure", "@rec1s.wav", "--noise", "--against", "@stage.toml"}, {"--output-cal", "full-scale sine"}},
+      {"measure --noise with --set but no stage", {"measure", "@rec1s.wav", "--noise", "--set", "drain.resistor=4k7"}, {"--set goes with --against"}},
+      {"measure --output-cal on a tone", {"measure", "@rec1s.wav", "--output-cal", "1.55V"}, {"--output-cal goes with --noise"}},
+      {"measure --output-cal of a kilovolt", {"measure", "@rec1s.wav", "--noise", "--output-cal", "1kV"}, {"--output-cal must be 1 mV to 100 V"}},
+      {"measure --output-cal that is not a level", {"measure", "@rec1s.wav", "--noise", "--output-cal", "loud"}, {"--output-cal"}},
+      {"measure --noise on a fifth of a second", {"measure", "@rec48.wav", "--noise"}, {"@rec48.wav", "at least 0.25 s"}},
+      {"measure --noise with a bandwidth under 20 Hz", {"measure", "@rec1s.wav", "--noise", "--bandwidth", "10"}, {"--bandwidth", "above the band's low edge"}},
+
       {"a bootstrap set on a common-source stage", {"bias", "@stage.toml", "--set", "gate.bootstrap=10u"}, {"gate.bootstrap", "belongs to a source follower"}},
       {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\", \"capsule\" or \"pickup\""}},
       {"sweep in dB SPL on a resistive source", {"sweep", "@stage.toml", "--drive", "94dBSPL"}, {"--drive", "'94dBSPL' is a sound pressure level", "capsule source"}},

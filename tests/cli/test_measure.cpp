@@ -280,3 +280,52 @@ TEST_CASE("measure holds at most 2^21 frames: a 60 s recording peaks no higher t
   CHECK(long_report["duration_s"].get<double>() <= 2097152.0 / 192000.0);
   CHECK(std::abs(long_report["fundamental_hz"].get<double>() - 1000.0) < 1e-3);
 }
+
+TEST_CASE("measure --noise: white noise of known variance, in dBFS and through the calibration in dBu") {
+  // White Gaussian noise of standard deviation s in full-scale units at 48 kHz has s^2
+  // (20000 - 20)/24000 of its power in the 20 Hz - 20 kHz band (flat density, common
+  // practice); in dBFS (AES17: a full-scale sine's rms is 0 dBFS) that is 20 log10(s sqrt 2
+  // sqrt(19980/24000)). A full-scale sine of 1.55 V peak (--output-cal) makes the rms volts
+  // s sqrt(19980/24000) 1.55, and dBu = 20 log10(V / 0.7746) (IEC 60268-2's 0 dBu, from
+  // memory). Ten seconds (480,000 samples, 400,000 in the band) scatter by about 0.01 dB.
+  scratch_dir dir;
+  const double fs = 48000.0, s = 1e-3;
+  std::vector<double> x(480000);
+  std::mt19937_64 rng(468);
+  std::normal_distribution<double> gauss(0.0, s);
+  for (double& v : x) v = gauss(rng);
+  const std::string path = dir.file("hiss.wav");
+  write_float_wav(path, fs, x);
+  const double band = std::sqrt(19980.0 / 24000.0);
+  const nlohmann::json j = measure_json({path, "--noise", "--output-cal", "1.55Vpk"});
+  CHECK(j["mode"] == "noise");
+  CHECK(std::abs(j["noise_dbfs"].get<double>() - 20.0 * std::log10(s * std::sqrt(2.0) * band)) <= 0.05);
+  CHECK(std::abs(j["noise_dbu"].get<double>() - 20.0 * std::log10(s * band * 1.55 / 0.7746)) <= 0.05);
+  CHECK(j["noise_v"].get<double>() == doctest::Approx(s * band * 1.55).epsilon(0.01));
+  // Weighted readings of white noise: A below, 468 above the unweighted (their curves'
+  // noise bandwidths; the values themselves are checked in the dsp tests).
+  CHECK(j["noise_a_dbfs"].get<double>() < j["noise_dbfs"].get<double>());
+  CHECK(j["noise_468_dbfs"].get<double>() > j["noise_dbfs"].get<double>());
+}
+
+TEST_CASE("measure --noise --against: the prediction is the noise command's own figure at the load") {
+  // The model's side of the comparison is `pinchoff noise` over the same band: the two
+  // commands must print the same predicted output noise (common practice of a bench loop:
+  // one model, one number).
+  scratch_dir dir;
+  std::vector<double> x(48000);
+  std::mt19937_64 rng(61672);
+  std::normal_distribution<double> gauss(0.0, 1e-4);
+  for (double& v : x) v = gauss(rng);
+  const std::string path = dir.file("hiss.wav");
+  write_float_wav(path, 48000.0, x);
+  const std::string preset = std::string(PINCHOFF_PRESETS_DIR) + "/phantom-mic-follower.toml";
+  const nlohmann::json m = measure_json({path, "--noise", "--output-cal", "1Vpk", "--against", preset});
+  const result r = run({"noise", preset, "--json"});
+  REQUIRE(r.status == 0);
+  const nlohmann::json n = nlohmann::json::parse(r.out);
+  CHECK(m["against"]["predicted"]["noise_a_v"].get<double>() == doctest::Approx(n["output_noise_a_v"].get<double>()).epsilon(1e-3));
+  CHECK(m["against"]["predicted"]["noise_v"].get<double>() == doctest::Approx(n["output_noise_v"].get<double>()).epsilon(1e-3));
+  CHECK(m["against"]["difference"]["noise_a_db"].get<double>() ==
+        doctest::Approx(m["noise_a_dbu"].get<double>() - m["against"]["predicted"]["noise_a_dbu"].get<double>()).epsilon(1e-9));
+}
