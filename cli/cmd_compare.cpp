@@ -33,7 +33,7 @@ struct compare_options {
   std::vector<std::string> overrides;
   std::string freq{"1k"};
   std::string at_output, at_drive;
-  int harmonics{5};
+  int harmonics{model::default_harmonics};
   int oversample{8};
   bool oversample_given{false};
   bool json{false}, csv{false};
@@ -168,6 +168,7 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
   }
   row("output", [](const df& d) { return format_si(d.point.output_vpk, "Vpk", 4); });
   row("", [](const df& d) { return dbu(d.point.output_vpk); });
+  row("within clean swing", [](const df& d) { return d.beyond_clean_swing ? std::string("NO") : std::string("yes"); });
   row("gain at this level", [](const df& d) { return fixed(d.point.gain_db, 2) + " dB"; });
   row("THD", [](const df& d) { return format_number(d.point.thd_percent, 3) + " %"; });
   for (int h = 2; h <= r.harmonics; ++h)
@@ -195,7 +196,9 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
                 : "\n  clean swing: largest symmetric output before the JFET leaves its clean region (mid-band,\n"
                   "  quasi-static, as in `bias`); drive: generator sine peak, open circuit; output: the\n")
       << "  fundamental at the load; even/odd: even- over odd-harmonic power (positive: even-dominated);\n"
-         "  1 % THD: output where THD first reaches 1 % as the drive rises, at this frequency.\n";
+         "  1 % THD: output where THD first reaches 1 % as the drive rises, at this frequency;\n"
+         "  within clean swing: NO where this output is beyond the clean swing, so the figures are\n"
+         "  those of a stage already out of its clean region.\n";
   if (capsules)
     out << "  max SPL: the sound pressure at the capsule (dB SPL, 0 dB = 20 µPa) at which THD first reaches\n"
            "  0.5 % or 1 % as the level rises, at this frequency; the capsule's own distortion is not modelled.\n";
@@ -216,6 +219,7 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
   j["level_vpk"] = r.level_vpk;
   j["level_dbu"] = base::dbu_from_vpk(r.level_vpk);
   j["thd_harmonics"] = r.thd_harmonics;
+  j["harmonics"] = r.harmonics;
   j["drive_db_spl"] = r.drive_db_spl ? nlohmann::json(*r.drive_db_spl) : nlohmann::json(nullptr);
   nlohmann::json ds = nlohmann::json::array();
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
@@ -231,6 +235,7 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
                   {"gain_midband_v_per_v", d.gain_midband},
                   {"clean_swing_vpk", d.clean_swing_vpk},
                   {"clean_drive_vpk", d.clean_drive_vpk},
+                  {"beyond_clean_swing", d.beyond_clean_swing},
                   {"drive_vpk", d.point.drive_vpk},
                   {"drive_dbu", base::dbu_from_vpk(d.point.drive_vpk)},
                   {"output_vpk", d.point.output_vpk},

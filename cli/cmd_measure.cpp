@@ -36,7 +36,7 @@ struct measure_options {
   std::string freq_text{"auto"};
   int channel{1};
   std::string window_text{"blackman-harris"};
-  int harmonics{10};
+  int harmonics{model::default_harmonics};
   std::string bandwidth_text{"20k"};
   double start_s{0.0};
   double duration_s{0.0};

@@ -35,7 +35,7 @@ struct sweep_options {
   int steps{25};
   int oversample{8};
   bool oversample_given{false};
-  int harmonics{10};
+  int harmonics{model::default_harmonics};
   std::string bandwidth{"20k"};
   std::string rate{"48k"};
   bool json{false}, csv{false}, verbose{false};

@@ -24,13 +24,17 @@
 
 namespace pinchoff::model {
 
+/// The harmonics every command reports unless told otherwise (H2..H10), and THD counts at
+/// least these: one default for sweep, compare and the rest.
+inline constexpr int default_harmonics = 10;
+
 struct sweep_settings {
   double frequency_hz{1000.0};
   std::vector<double> drives_vpk;   ///< generator open-circuit sine peaks, > 0
   int oversample{8};                ///< 1..64
   bool automatic_oversample{false}; ///< oversample chosen by automatic_oversampling()
   double base_rate_hz{48000.0};     ///< the audio rate the oversampling multiplies
-  int harmonics{10};                ///< N: H2..HN
+  int harmonics{default_harmonics}; ///< N: H2..HN
   double bandwidth_hz{20000.0};     ///< harmonics above it are not counted (AES17)
   int cycles{3};                    ///< K
   int threads{0};                   ///< 0: one per core; results do not depend on it

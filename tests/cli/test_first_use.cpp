@@ -1,0 +1,100 @@
+// What a builder trying the program for the first time tripped over, each reproduced: a
+// report that says what it does not model, a default that differs between commands, a
+// figure that reads as a number where it is a floor.
+#include <cmath>
+#include <string>
+#include <vector>
+
+#include <doctest/doctest.h>
+#include <nlohmann/json.hpp>
+
+#include "support/cli_runner.hpp"
+
+namespace {
+using result = pinchoff::testing::cli_result;
+constexpr auto run = pinchoff::testing::run_cli;
+std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
+bool has(const std::string& s, const std::string& what) { return s.find(what) != std::string::npos; }
+}  // namespace
+
+TEST_CASE("response says when no junction capacitance is given, so the response is flat to the top") {
+  // Without cgs and cgd nothing rolls the treble off: no high corner, said as an omission.
+  const result bare = run({"response", preset("clean-preamp-18v.toml"), "--set", "jfet.cgs=0", "--set", "jfet.cgd=0"});
+  REQUIRE(bare.status == 0);
+  CHECK(has(bare.out, "junction capacitances (cgs, cgd in [jfet]) are not given"));
+  CHECK(!has(bare.out, "high -3 dB corner"));
+  const result bare_json =
+      run({"response", preset("clean-preamp-18v.toml"), "--set", "jfet.cgs=0", "--set", "jfet.cgd=0", "--json"});
+  REQUIRE(bare_json.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(bare_json.out);
+  REQUIRE(j["notes"].size() == 1);
+  CHECK(has(j["notes"][0].get<std::string>(), "flat to the top"));
+  // Given (the preset's own): a high corner and no note.
+  const result given = run({"response", preset("clean-preamp-18v.toml")});
+  REQUIRE(given.status == 0);
+  CHECK(has(given.out, "high -3 dB corner"));
+  CHECK(!has(given.out, "are not given"));
+}
+
+TEST_CASE("compare and sweep report the same harmonics by default") {
+  // One default, H2..H10 (model::default_harmonics): a design compared and swept at the same
+  // drive shows the same table.
+  const result c = run({"compare", preset("bass-booster-9v.toml"), preset("clean-preamp-18v.toml"), "--json"});
+  REQUIRE(c.status == 0);
+  const nlohmann::json cj = nlohmann::json::parse(c.out);
+  const result s = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "0.1", "--json"});
+  REQUIRE(s.status == 0);
+  const nlohmann::json sj = nlohmann::json::parse(s.out);
+  CHECK(sj["points"][0]["harmonics_dbc"].size() == 9);
+  CHECK(cj["designs"][0]["harmonics_dbc"].size() == sj["points"][0]["harmonics_dbc"].size());
+  CHECK(cj["harmonics"] == 10);
+}
+
+TEST_CASE("compare warns when its level is beyond a design's clean swing, and says so in the table") {
+  // The microphone converter's clean swing (bias's headroom) is 590 mVpk; 0 dBu at the load
+  // (1.10 Vpk) is beyond it, while the booster (3.19 Vpk) is well within.
+  const std::vector<std::string> args{"compare", preset("bass-booster-9v.toml"), preset("phantom-mic-follower.toml"),
+                                      "--at-output", "0dBu"};
+  const result t = run(args);
+  REQUIRE(t.status == 0);
+  CHECK(has(t.err, "design 2: compared at"));
+  CHECK(has(t.err, "beyond its clean swing"));
+  CHECK(!has(t.err, "design 1: compared at"));
+  CHECK(has(t.out, "within clean swing"));
+  CHECK(has(t.out, "  NO\n"));
+  std::vector<std::string> json_args = args;
+  json_args.push_back("--json");
+  const result j = run(json_args);
+  REQUIRE(j.status == 0);
+  const nlohmann::json d = nlohmann::json::parse(j.out)["designs"];
+  CHECK(d[0]["beyond_clean_swing"] == false);
+  CHECK(d[1]["beyond_clean_swing"] == true);
+  CHECK(d[1]["output_vpk"].get<double>() > d[1]["clean_swing_vpk"].get<double>());
+  // Within every design's clean swing: no warning.
+  const result low = run({"compare", preset("bass-booster-9v.toml"), preset("phantom-mic-follower.toml"), "--at-output", "-30dBu"});
+  REQUIRE(low.status == 0);
+  CHECK(!has(low.err, "beyond its clean swing"));
+}
+
+TEST_CASE("a [jfet] value outside the range of small-signal parts is read with a warning that says the range") {
+  // common practice: small-signal JFETs have IDSS 0.1 to 100 mA and |VP| 0.2 to 10 V. IDSS =
+  // 1.5 (amperes, a slip for 1.5 mA) is within the physical bounds, so it is read, and said.
+  const result slip = run({"sweep", preset("bass-booster-9v.toml"), "--set", "jfet.idss=1.5", "--drive", "0.01", "--json"});
+  REQUIRE(slip.status == 0);
+  CHECK(has(slip.err, "jfet.idss = 1.50 A lies outside 100 µA to 100 mA, the range of small-signal JFETs (common practice)"));
+  CHECK(has(slip.err, "for 1.5 mA write 1.5m"));
+  const nlohmann::json j = nlohmann::json::parse(slip.out);
+  bool in_json = false;
+  for (const auto& w : j["warnings"]) in_json = in_json || has(w.get<std::string>(), "jfet.idss = 1.50 A lies outside");
+  CHECK(in_json);
+  const result vp = run({"bias", preset("bass-booster-9v.toml"), "--set", "jfet.vp=-0.1"});
+  REQUIRE(vp.status == 0);
+  CHECK(has(vp.out, "jfet.vp = -100 mV lies outside 200 mV to 10.0 V"));
+  // The presets' parts are all within it: no such warning.
+  for (const char* p : {"bass-booster-9v.toml", "clean-preamp-18v.toml", "phantom-mic-follower.toml", "two-stage-boost-9v.toml"}) {
+    CAPTURE(p);
+    const result r = run({"bias", preset(p)});
+    REQUIRE(r.status == 0);
+    CHECK(!has(r.out + r.err, "the range of small-signal JFETs"));
+  }
+}
