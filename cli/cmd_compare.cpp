@@ -77,11 +77,10 @@ std::string fixed(double v, int decimals) {
   return t;
 }
 std::string dbu(double vpk) { return fixed(base::dbu_from_vpk(vpk), 2) + " dBu"; }
-// Below this a harmonic is under the engine's numerical floor (as in `sweep`).
-constexpr double shown_floor_dbc = -180.0;
+// A level below the engine's numerical floor is a mark (cli/common.hpp).
 std::string dbc(double v) {
   if (!std::isfinite(v)) return "-";
-  return v < shown_floor_dbc ? "< -180 dBc" : fixed(v, 2) + " dBc";
+  return below_numerical_floor(v) ? std::string(floor_mark) + " dBc" : fixed(v, 2) + " dBc";
 }
 std::string ratio_db(double r) {
   if (std::isnan(r)) return "-";
@@ -220,12 +219,14 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
   j["level_dbu"] = base::dbu_from_vpk(r.level_vpk);
   j["thd_harmonics"] = r.thd_harmonics;
   j["harmonics"] = r.harmonics;
+  j["numerical_floor_dbc"] = model::numerical_floor_dbc;  // levels below it are null, flagged *_below_floor
   j["drive_db_spl"] = r.drive_db_spl ? nlohmann::json(*r.drive_db_spl) : nlohmann::json(nullptr);
   nlohmann::json ds = nlohmann::json::array();
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
     const model::design_figures& d = r.designs[i];
     nlohmann::json hs = nlohmann::json::array();
-    for (int h = 2; h <= r.harmonics; ++h) hs.push_back(number_or_null(d.point.harmonics_dbc[static_cast<std::size_t>(h - 2)]));
+    const std::span<const double> shown(d.point.harmonics_dbc.data(), static_cast<std::size_t>(r.harmonics - 1));
+    for (double h : shown) hs.push_back(dbc_or_null(h));
     const model::drive_search& t1 = d.thd_1_percent;
     ds.push_back({{"path", in[i].path},
                   {"overrides", in[i].own},
@@ -244,8 +245,10 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
                   {"thd_percent", d.point.thd_percent},
                   {"thd_db", d.point.thd_db},
                   {"harmonics_dbc", hs},
+                  {"harmonics_below_floor", below_floor_json(shown)},
                   {"even_odd_ratio", number_or_null(d.point.even_odd_ratio)},
-                  {"alias_dbc", d.point.alias_dbc},
+                  {"alias_dbc", dbc_or_null(d.point.alias_dbc)},
+                  {"alias_below_floor", below_numerical_floor(d.point.alias_dbc)},
                   {"drive_evaluations", d.drive_evaluations},
                   {"thd_1_percent",
                    {{"found", t1.found},
@@ -300,7 +303,7 @@ void write_csv(const std::vector<design_input>& in, const model::compare_result&
     for (int h = 2; h <= r.harmonics; ++h) {
       const double v = d.point.harmonics_dbc[static_cast<std::size_t>(h - 2)];
       out << ',';
-      if (std::isfinite(v)) out << v;
+      if (std::isfinite(v) && !below_numerical_floor(v)) out << v;  // empty: no figure, or below the floor
     }
     out << ',';
     if (std::isfinite(d.point.even_odd_ratio)) out << d.point.even_odd_ratio;
@@ -328,6 +331,8 @@ void write_plot(const std::vector<design_input>& in, const model::compare_result
                                                       : format_si(r.level_vpk, "Vpk") + " drive");
   b.x_title = "harmonic";
   b.y_title = "level re fundamental (dBc)";
+  b.mark_below = model::numerical_floor_dbc;  // a mark, not a bar, below the numerical floor
+  b.mark_label = floor_mark;
   for (int h = 2; h <= r.harmonics; ++h) b.categories.push_back("H" + std::to_string(h));
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
     const std::string stem = std::filesystem::path(in[i].path).stem().string();

@@ -67,12 +67,10 @@ std::string dbu(double vpk) {
   const double l = base::dbu_from_vpk(vpk);
   return format_number(std::fabs(l) < 1e-9 ? 0.0 : l, 3) + " dBu";
 }
-// Below this a harmonic is under the engine's numerical floor: its Newton tolerance
-// (1e-10 V on the port voltages) against output levels of tens of millivolts and up.
-constexpr double shown_floor_dbc = -180.0;
+// A level below the engine's numerical floor is a mark (cli/common.hpp).
 std::string dbc(double v) {
   if (!std::isfinite(v)) return "-";
-  return v < shown_floor_dbc ? "< -180" : format_number(v, 3);
+  return below_numerical_floor(v) ? floor_mark : format_number(v, 3);
 }
 // A DC shift below 1 nV is solver noise on an AC-coupled output.
 std::string shift(double v) { return format_si(std::fabs(v) < 1e-9 ? 0.0 : v, "V"); }
@@ -244,10 +242,11 @@ void print_json(const sweep_report& rep, std::ostream& out) {
   j["sample_rate_hz"] = r.sample_rate_hz;
   j["record_samples"] = r.samples_per_record;
   j["record_cycles"] = r.cycles;
+  j["numerical_floor_dbc"] = model::numerical_floor_dbc;  // levels below it are null, flagged *_below_floor
   nlohmann::json pts = nlohmann::json::array();
   for (const auto& p : r.points) {
     nlohmann::json hs = nlohmann::json::array();
-    for (double h : p.harmonics_dbc) hs.push_back(number_or_null(h));
+    for (double h : p.harmonics_dbc) hs.push_back(dbc_or_null(h));
     pts.push_back({{"drive_vpk", p.drive_vpk},
                    {"drive_dbu", base::dbu_from_vpk(p.drive_vpk)},
                    {"output_vpk", p.output_vpk},
@@ -256,7 +255,9 @@ void print_json(const sweep_report& rep, std::ostream& out) {
                    {"thd_percent", p.thd_percent},
                    {"thd_db", p.thd_db},
                    {"harmonics_dbc", hs},
-                   {"alias_dbc", p.alias_dbc},
+                   {"harmonics_below_floor", below_floor_json(p.harmonics_dbc)},
+                   {"alias_dbc", dbc_or_null(p.alias_dbc)},
+                   {"alias_below_floor", below_numerical_floor(p.alias_dbc)},
                    {"even_odd_ratio", number_or_null(p.even_odd_ratio)},
                    {"dc_shift_v", p.dc_shift_v},
                    {"tap_shift_v", number_or_null(p.tap_shift_v)},
@@ -272,13 +273,14 @@ void print_json(const sweep_report& rep, std::ostream& out) {
       for (std::size_t k = 0; k < p.stages.size(); ++k) {
         const model::stage_point& sp = p.stages[k];
         nlohmann::json shs = nlohmann::json::array();
-        for (double h : sp.harmonics_dbc) shs.push_back(number_or_null(h));
+        for (double h : sp.harmonics_dbc) shs.push_back(dbc_or_null(h));
         sts.push_back({{"name", r.stages[k].label},
                        {"output_vpk", sp.output_vpk},
                        {"output_dbu", base::dbu_from_vpk(sp.output_vpk)},
                        {"thd_percent", sp.thd_percent},
                        {"thd_db", sp.thd_db},
                        {"harmonics_dbc", shs},
+                       {"harmonics_below_floor", below_floor_json(sp.harmonics_dbc)},
                        {"bias_shift_v", sp.bias_shift_v},
                        {"tap_shift_v", number_or_null(sp.tap_shift_v)},
                        {"clean", sp.clean},
@@ -330,11 +332,13 @@ void write_csv(const sweep_report& rep, std::ostream& out) {
   out << ",tap_shift_v\n";
   out.precision(10);
   for (const auto& p : rep.r.points) {
-    out << p.drive_vpk << ',' << p.output_vpk << ',' << p.gain_db << ',' << p.thd_percent << ',' << p.alias_dbc << ','
-        << p.even_odd_ratio << ',' << p.dc_shift_v;
+    // Empty: above the bandwidth, or below the numerical floor (no figure either way).
+    out << p.drive_vpk << ',' << p.output_vpk << ',' << p.gain_db << ',' << p.thd_percent << ',';
+    if (!below_numerical_floor(p.alias_dbc)) out << p.alias_dbc;
+    out << ',' << p.even_odd_ratio << ',' << p.dc_shift_v;
     for (double h : p.harmonics_dbc) {
       out << ',';
-      if (std::isfinite(h)) out << h;
+      if (std::isfinite(h) && !below_numerical_floor(h)) out << h;
     }
     for (const auto& sp : p.stages) out << ',' << sp.output_vpk << ',' << sp.thd_percent << ',' << (sp.clean ? 1 : 0);
     out << ',';
@@ -428,7 +432,7 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
     std::vector<std::string> row{dbu(p.drive_vpk), format_si(p.drive_vpk, "Vpk"), dbu(p.output_vpk), format_si(p.output_vpk, "Vpk"),
                                  format_number(p.gain_db, 3) + " dB", format_number(p.thd_percent, 3) + " %",
                                  format_number(p.thd_db, 3) + " dB", ratio_db(p.even_odd_ratio),
-                                 p.alias_dbc < shown_floor_dbc ? std::string("< -180 dBc") : format_number(p.alias_dbc, 3) + " dBc",
+                                 dbc(p.alias_dbc) + " dBc",
                                  shift(p.tap_shift_v)};
     if (!chain) row.push_back(shift(p.bias_shift_v));
     if (capsule) row.insert(row.begin(), spl(rep.st, p.drive_vpk));

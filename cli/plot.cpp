@@ -453,8 +453,15 @@ std::string render_svg(const bar_chart& chart) {
     for (std::size_t g = 0; g < chart.groups.size(); ++g) {
       const double v = chart.values[g][c];
       if (!std::isfinite(v)) continue;
-      const double shown = std::clamp(v, chart.floor, top);
       const double x = cx - 0.4 * cat_w + static_cast<double>(g) * bar_w;
+      if (chart.mark_below && v < *chart.mark_below) {
+        // Written upwards from the foot of the bar's place, so narrow places do not overlap.
+        const double mx = x + bar_w / 2 + 3.5, my = field_bottom - 4;
+        const std::string turn = " transform=\"rotate(-90 " + num(mx) + " " + num(my) + ")\"";
+        out.text(mx, my, chart.mark_label, 10.5, palette[g % palette_size], "start", turn.c_str());
+        continue;
+      }
+      const double shown = std::clamp(v, chart.floor, top);
       const double y = ym(shown);
       out.rect(x + 1, y, std::max(0.0, bar_w - 2), field_bottom - y, palette[g % palette_size], "none");
       if (bar_w >= 34) {

@@ -24,6 +24,12 @@
 
 namespace pinchoff::model {
 
+/// Below this a harmonic (or the aliasing) re the fundamental is under the engine's numerical
+/// floor: its Newton tolerance (1e-10 V on the port voltages) against output levels of tens
+/// of millivolts and up. A level below it is no figure, only "below the floor", and every
+/// command reports it so (cli/common.hpp).
+inline constexpr double numerical_floor_dbc = -180.0;
+
 /// The harmonics every command reports unless told otherwise (H2..H10), and THD counts at
 /// least these: one default for sweep, compare and the rest.
 inline constexpr int default_harmonics = 10;

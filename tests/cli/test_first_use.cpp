@@ -2,6 +2,7 @@
 // report that says what it does not model, a default that differs between commands, a
 // figure that reads as a number where it is a floor.
 #include <cmath>
+#include <cstdlib>
 #include <string>
 #include <vector>
 
@@ -9,10 +10,13 @@
 #include <nlohmann/json.hpp>
 
 #include "support/cli_runner.hpp"
+#include "support/files.hpp"
+#include "support/scratch_dir.hpp"
 
 namespace {
 using result = pinchoff::testing::cli_result;
 constexpr auto run = pinchoff::testing::run_cli;
+using pinchoff::testing::scratch_dir;
 std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
 bool has(const std::string& s, const std::string& what) { return s.find(what) != std::string::npos; }
 }  // namespace
@@ -96,5 +100,64 @@ TEST_CASE("a [jfet] value outside the range of small-signal parts is read with a
     const result r = run({"bias", preset(p)});
     REQUIRE(r.status == 0);
     CHECK(!has(r.out + r.err, "the range of small-signal JFETs"));
+  }
+}
+
+TEST_CASE("levels below the numerical floor are marks, not numbers, in every command") {
+  // At 10 mVpk the booster's H6..H10 lie below the engine's numerical floor (-180 dBc, the
+  // Newton tolerance against the output): no figure, so null and flagged in JSON, "< -180"
+  // in text and plots, and no difference between two floors.
+  auto check_marks = [](const nlohmann::json& values, const nlohmann::json& flags) {
+    REQUIRE(values.size() == flags.size());
+    int marked = 0;
+    for (std::size_t i = 0; i < values.size(); ++i) {
+      CAPTURE(i);
+      if (flags[i].get<bool>()) {
+        ++marked;
+        CHECK(values[i].is_null());
+      } else if (!values[i].is_null()) {
+        CHECK(values[i].get<double>() >= -180.0);
+      }
+    }
+    return marked;
+  };
+  const result s = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "10mVpk", "--json"});
+  REQUIRE(s.status == 0);
+  const nlohmann::json sj = nlohmann::json::parse(s.out);
+  CHECK(sj["numerical_floor_dbc"] == -180.0);
+  const nlohmann::json& p = sj["points"][0];
+  CHECK(check_marks(p["harmonics_dbc"], p["harmonics_below_floor"]) >= 4);
+  CHECK((p["alias_below_floor"].get<bool>() ? p["alias_dbc"].is_null() : p["alias_dbc"].get<double>() >= -180.0));
+
+  scratch_dir dir;
+  const std::string plot = dir.file("profile.svg");
+  const result c = run({"compare", preset("bass-booster-9v.toml"), preset("clean-preamp-18v.toml"), "--at-drive", "10mVpk",
+                        "--harmonics", "5", "--json", "--plot", plot});
+  REQUIRE(c.status == 0);
+  const nlohmann::json cj = nlohmann::json::parse(c.out);
+  int marked = 0;
+  for (const auto& d : cj["designs"]) marked += check_marks(d["harmonics_dbc"], d["harmonics_below_floor"]);
+  CHECK(marked >= 1);
+  // The plot: the mark, and no value label below the floor (bars at 4 harmonics are wide
+  // enough to carry their values).
+  const std::string svg = pinchoff::testing::slurp(plot);
+  CHECK(has(svg, ">&lt; -180</text>"));
+  for (std::size_t at = svg.find(">-"); at != std::string::npos; at = svg.find(">-", at + 2)) {
+    const double v = std::atof(svg.c_str() + at + 1);
+    CAPTURE(svg.substr(at, 12));
+    CHECK(v >= -180.0);
+  }
+
+  // measure --against: the prediction's floor levels are null and so are their differences.
+  const std::string wav = dir.file("tone.wav");
+  REQUIRE(run({"tone", wav, "--freq", "1k", "--level", "-6dBFS", "--seconds", "2"}).status == 0);
+  const result m = run({"measure", wav, "--json", "--against", preset("bass-booster-9v.toml"), "--drive", "10mVpk"});
+  REQUIRE(m.status == 0);
+  const nlohmann::json mj = nlohmann::json::parse(m.out);
+  const nlohmann::json& ag = mj["against"];
+  CHECK(check_marks(ag["harmonics_dbc"], ag["harmonics_below_floor"]) >= 4);
+  for (std::size_t i = 0; i < ag["difference_db"].size(); ++i) {
+    CAPTURE(i);
+    if (ag["harmonics_below_floor"][i].get<bool>()) CHECK(ag["difference_db"][i].is_null());
   }
 }
