@@ -151,6 +151,7 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
   row(chains ? "VD (each stage)" : "VD", [&](const df& d) { return each(d, [](const model::terminal_point& a) { return format_si(a.vd_v, "V", 4); }); });
   row(chains ? "ID (each stage)" : "ID", [&](const df& d) { return each(d, [](const model::terminal_point& a) { return format_si(a.id_a, "A", 4); }); });
   row("gain, mid-band", [](const df& d) { return fixed(d.gain_midband_db, 2) + " dB"; });
+  row("output polarity", [](const df& d) { return d.gain_midband < 0 ? std::string("inverted") : std::string("kept"); });
   row("clean swing", [](const df& d) { return format_si(d.clean_swing_vpk, "Vpk"); });
   row("", [](const df& d) { return dbu(d.clean_swing_vpk); });
   row("drive", [](const df& d) { return format_si(d.point.drive_vpk, "Vpk", 4); });
@@ -195,6 +196,8 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
                 : "\n  clean swing: largest symmetric output before the JFET leaves its clean region (mid-band,\n"
                   "  quasi-static, as in `bias`); drive: generator sine peak, open circuit; output: the\n")
       << "  fundamental at the load; even/odd: even- over odd-harmonic power (positive: even-dominated);\n"
+         "  output polarity: inverted where the output is upside down against the input (common\n"
+         "  source; `render --invert` restores it for listening);\n"
          "  1 % THD: output where THD first reaches 1 % as the drive rises, at this frequency;\n"
          "  within clean swing: NO where this output is beyond the clean swing, so the figures are\n"
          "  those of a stage already out of its clean region.\n";
@@ -234,6 +237,7 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
                   {"operating_point", operating_point_json(d.at)},
                   {"gain_midband_db", d.gain_midband_db},
                   {"gain_midband_v_per_v", d.gain_midband},
+                  {"inverting", d.gain_midband < 0},
                   {"clean_swing_vpk", d.clean_swing_vpk},
                   {"clean_drive_vpk", d.clean_drive_vpk},
                   {"beyond_clean_swing", d.beyond_clean_swing},

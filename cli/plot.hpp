@@ -73,6 +73,9 @@ struct bar_chart {
   std::optional<double> mark_below;
   std::string mark_label;
   std::optional<double> top;                  ///< default: nice ceiling of the data, at least 0
+  /// Labelled vertical lines (a requirement's limits), x in categories: 0 is the left edge of
+  /// the first, categories.size() the right edge of the last; outside, drawn at the edge.
+  std::vector<marker_line> markers;
   int width_px{860};
   int height_px{480};
 };

@@ -9,6 +9,7 @@
 #include <doctest/doctest.h>
 #include <nlohmann/json.hpp>
 
+#include "dsp/io/sound_file.hpp"
 #include "support/cli_runner.hpp"
 #include "support/files.hpp"
 #include "support/scratch_dir.hpp"
@@ -160,4 +161,60 @@ TEST_CASE("levels below the numerical floor are marks, not numbers, in every com
     CAPTURE(i);
     if (ag["harmonics_below_floor"][i].get<bool>()) CHECK(ag["difference_db"][i].is_null());
   }
+}
+
+TEST_CASE("render and compare say that a common-source output is inverted, and render --invert restores it") {
+  // A common-source stage's mid-band gain is negative (the drain falls as the gate rises);
+  // a follower's is positive.
+  const result c = run({"compare", preset("bass-booster-9v.toml"), preset("phantom-mic-follower.toml"), "--at-output", "-30dBu"});
+  REQUIRE(c.status == 0);
+  CHECK(has(c.out, "output polarity"));
+  const result cj = run({"compare", preset("bass-booster-9v.toml"), preset("phantom-mic-follower.toml"), "--at-output", "-30dBu", "--json"});
+  REQUIRE(cj.status == 0);
+  const nlohmann::json d = nlohmann::json::parse(cj.out)["designs"];
+  CHECK(d[0]["inverting"] == true);
+  CHECK(d[1]["inverting"] == false);
+
+  scratch_dir dir;
+  const std::string tone = dir.file("tone.wav"), plain = dir.file("plain.wav"), restored = dir.file("restored.wav");
+  REQUIRE(run({"tone", tone, "--freq", "220", "--level", "-20dBFS", "--seconds", "0.5", "--format", "float"}).status == 0);
+  // A fixed output scale: one pass, the same scale for both, so the files differ only in sign.
+  const result a = run({"render", preset("bass-booster-9v.toml"), "--input", tone, "--output", plain, "--input-peak", "100mV",
+                        "--output-peak", "5V", "--format", "float"});
+  REQUIRE(a.status == 0);
+  CHECK(has(a.out, "is inverted (upside down against the input); --invert restores its polarity"));
+  const result b = run({"render", preset("bass-booster-9v.toml"), "--input", tone, "--output", restored, "--input-peak",
+                        "100mV", "--output-peak", "5V", "--format", "float", "--invert", "--json"});
+  REQUIRE(b.status == 0);
+  const nlohmann::json bj = nlohmann::json::parse(b.out);
+  CHECK(bj["outputs"][0]["inverting"] == true);
+  CHECK(bj["outputs"][0]["polarity_restored"] == true);
+  auto samples = [](const std::string& path) {
+    pinchoff::dsp::sound_reader r = pinchoff::dsp::sound_reader::open(path);
+    return pinchoff::dsp::read_channel(r, 0);
+  };
+  const std::vector<double> x = samples(plain), y = samples(restored);
+  REQUIRE(x.size() == y.size());
+  double peak = 0.0, worst = 0.0;
+  for (std::size_t i = 0; i < x.size(); ++i) {
+    peak = std::max(peak, std::fabs(x[i]));
+    worst = std::max(worst, std::fabs(x[i] + y[i]));
+  }
+  CHECK(peak > 0.01);
+  CHECK(worst == 0.0);  // exact negatives: the same samples, scaled by -1
+}
+
+TEST_CASE("spread's histograms mark the --require limits") {
+  scratch_dir dir;
+  const std::string base = dir.file("batch.svg");
+  const result r = run({"spread", preset("bass-booster-9v.toml"), "--idss", "2m..8m", "--vp=-0.8..-3", "--require", "vd=3.5..6",
+                        "--require", "id=..20m", "--runs", "200", "--plot", base});
+  REQUIRE(r.status == 0);
+  const std::string vd = pinchoff::testing::slurp(dir.file("batch-vd.svg"));
+  CHECK(has(vd, "required min 3.50 V"));
+  CHECK(has(vd, "required max 6.00 V"));
+  CHECK(has(vd, "stroke-dasharray"));
+  // A limit far beyond the batch (20 mA against a few milliamperes) is marked at the edge.
+  const std::string id = pinchoff::testing::slurp(dir.file("batch-id.svg"));
+  CHECK(has(id, "required max 20.0 mA (off to the right)"));
 }
