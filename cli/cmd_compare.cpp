@@ -33,7 +33,7 @@ struct compare_options {
   std::vector<std::string> overrides;
   std::string freq{"1k"};
   std::string at_output, at_drive;
-  int harmonics{5};
+  int harmonics{model::default_harmonics};
   int oversample{8};
   bool oversample_given{false};
   bool json{false}, csv{false};
@@ -77,11 +77,10 @@ std::string fixed(double v, int decimals) {
   return t;
 }
 std::string dbu(double vpk) { return fixed(base::dbu_from_vpk(vpk), 2) + " dBu"; }
-// Below this a harmonic is under the engine's numerical floor (as in `sweep`).
-constexpr double shown_floor_dbc = -180.0;
+// A level below the engine's numerical floor is a mark (cli/common.hpp).
 std::string dbc(double v) {
   if (!std::isfinite(v)) return "-";
-  return v < shown_floor_dbc ? "< -180 dBc" : fixed(v, 2) + " dBc";
+  return below_numerical_floor(v) ? std::string(floor_mark) + " dBc" : fixed(v, 2) + " dBc";
 }
 std::string ratio_db(double r) {
   if (std::isnan(r)) return "-";
@@ -152,6 +151,7 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
   row(chains ? "VD (each stage)" : "VD", [&](const df& d) { return each(d, [](const model::terminal_point& a) { return format_si(a.vd_v, "V", 4); }); });
   row(chains ? "ID (each stage)" : "ID", [&](const df& d) { return each(d, [](const model::terminal_point& a) { return format_si(a.id_a, "A", 4); }); });
   row("gain, mid-band", [](const df& d) { return fixed(d.gain_midband_db, 2) + " dB"; });
+  row("output polarity", [](const df& d) { return d.gain_midband < 0 ? std::string("inverted") : std::string("kept"); });
   row("clean swing", [](const df& d) { return format_si(d.clean_swing_vpk, "Vpk"); });
   row("", [](const df& d) { return dbu(d.clean_swing_vpk); });
   row("drive", [](const df& d) { return format_si(d.point.drive_vpk, "Vpk", 4); });
@@ -168,6 +168,7 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
   }
   row("output", [](const df& d) { return format_si(d.point.output_vpk, "Vpk", 4); });
   row("", [](const df& d) { return dbu(d.point.output_vpk); });
+  row("within clean swing", [](const df& d) { return d.beyond_clean_swing ? std::string("NO") : std::string("yes"); });
   row("gain at this level", [](const df& d) { return fixed(d.point.gain_db, 2) + " dB"; });
   row("THD", [](const df& d) { return format_number(d.point.thd_percent, 3) + " %"; });
   for (int h = 2; h <= r.harmonics; ++h)
@@ -195,7 +196,11 @@ void print_text(const std::vector<design_input>& in, const model::compare_result
                 : "\n  clean swing: largest symmetric output before the JFET leaves its clean region (mid-band,\n"
                   "  quasi-static, as in `bias`); drive: generator sine peak, open circuit; output: the\n")
       << "  fundamental at the load; even/odd: even- over odd-harmonic power (positive: even-dominated);\n"
-         "  1 % THD: output where THD first reaches 1 % as the drive rises, at this frequency.\n";
+         "  output polarity: inverted where the output is upside down against the input (common\n"
+         "  source; `render --invert` restores it for listening);\n"
+         "  1 % THD: output where THD first reaches 1 % as the drive rises, at this frequency;\n"
+         "  within clean swing: NO where this output is beyond the clean swing, so the figures are\n"
+         "  those of a stage already out of its clean region.\n";
   if (capsules)
     out << "  max SPL: the sound pressure at the capsule (dB SPL, 0 dB = 20 µPa) at which THD first reaches\n"
            "  0.5 % or 1 % as the level rises, at this frequency; the capsule's own distortion is not modelled.\n";
@@ -216,12 +221,15 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
   j["level_vpk"] = r.level_vpk;
   j["level_dbu"] = base::dbu_from_vpk(r.level_vpk);
   j["thd_harmonics"] = r.thd_harmonics;
+  j["harmonics"] = r.harmonics;
+  j["numerical_floor_dbc"] = model::numerical_floor_dbc;  // levels below it are null, flagged *_below_floor
   j["drive_db_spl"] = r.drive_db_spl ? nlohmann::json(*r.drive_db_spl) : nlohmann::json(nullptr);
   nlohmann::json ds = nlohmann::json::array();
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
     const model::design_figures& d = r.designs[i];
     nlohmann::json hs = nlohmann::json::array();
-    for (int h = 2; h <= r.harmonics; ++h) hs.push_back(number_or_null(d.point.harmonics_dbc[static_cast<std::size_t>(h - 2)]));
+    const std::span<const double> shown(d.point.harmonics_dbc.data(), static_cast<std::size_t>(r.harmonics - 1));
+    for (double h : shown) hs.push_back(dbc_or_null(h));
     const model::drive_search& t1 = d.thd_1_percent;
     ds.push_back({{"path", in[i].path},
                   {"overrides", in[i].own},
@@ -229,8 +237,10 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
                   {"operating_point", operating_point_json(d.at)},
                   {"gain_midband_db", d.gain_midband_db},
                   {"gain_midband_v_per_v", d.gain_midband},
+                  {"inverting", d.gain_midband < 0},
                   {"clean_swing_vpk", d.clean_swing_vpk},
                   {"clean_drive_vpk", d.clean_drive_vpk},
+                  {"beyond_clean_swing", d.beyond_clean_swing},
                   {"drive_vpk", d.point.drive_vpk},
                   {"drive_dbu", base::dbu_from_vpk(d.point.drive_vpk)},
                   {"output_vpk", d.point.output_vpk},
@@ -239,8 +249,10 @@ void print_json(const std::vector<design_input>& in, const model::compare_result
                   {"thd_percent", d.point.thd_percent},
                   {"thd_db", d.point.thd_db},
                   {"harmonics_dbc", hs},
+                  {"harmonics_below_floor", below_floor_json(shown)},
                   {"even_odd_ratio", number_or_null(d.point.even_odd_ratio)},
-                  {"alias_dbc", d.point.alias_dbc},
+                  {"alias_dbc", dbc_or_null(d.point.alias_dbc)},
+                  {"alias_below_floor", below_numerical_floor(d.point.alias_dbc)},
                   {"drive_evaluations", d.drive_evaluations},
                   {"thd_1_percent",
                    {{"found", t1.found},
@@ -295,7 +307,7 @@ void write_csv(const std::vector<design_input>& in, const model::compare_result&
     for (int h = 2; h <= r.harmonics; ++h) {
       const double v = d.point.harmonics_dbc[static_cast<std::size_t>(h - 2)];
       out << ',';
-      if (std::isfinite(v)) out << v;
+      if (std::isfinite(v) && !below_numerical_floor(v)) out << v;  // empty: no figure, or below the floor
     }
     out << ',';
     if (std::isfinite(d.point.even_odd_ratio)) out << d.point.even_odd_ratio;
@@ -323,6 +335,8 @@ void write_plot(const std::vector<design_input>& in, const model::compare_result
                                                       : format_si(r.level_vpk, "Vpk") + " drive");
   b.x_title = "harmonic";
   b.y_title = "level re fundamental (dBc)";
+  b.mark_below = model::numerical_floor_dbc;  // a mark, not a bar, below the numerical floor
+  b.mark_label = floor_mark;
   for (int h = 2; h <= r.harmonics; ++h) b.categories.push_back("H" + std::to_string(h));
   for (std::size_t i = 0; i < r.designs.size(); ++i) {
     const std::string stem = std::filesystem::path(in[i].path).stem().string();

@@ -39,7 +39,7 @@ struct measure_options {
   std::string freq_text{"auto"};
   int channel{1};
   std::string window_text{"blackman-harris"};
-  int harmonics{10};
+  int harmonics{model::default_harmonics};
   std::string bandwidth_text{"20k"};
   double start_s{0.0};
   double duration_s{0.0};
@@ -280,9 +280,6 @@ std::string dbc_text(double v) {
   return t;
 }
 
-// Below this a predicted harmonic is under the engine's numerical floor (as in `sweep`).
-constexpr double predicted_floor_dbc = -180.0;
-
 std::string signed_db(double v) {
   if (!std::isfinite(v)) return "-";
   char t[32];
@@ -476,8 +473,8 @@ void write_against_text(const measure_report& r, std::ostream& out) {
     if (n > a.highest_harmonic) break;
     const double m = a.harmonics_dbc[i];
     const double q = i < pt.harmonics_dbc.size() ? pt.harmonics_dbc[i] : std::nan("");
-    const bool is_floor = std::isfinite(q) && q < predicted_floor_dbc;
-    t.add({"H" + std::to_string(n), dbc_text(m), is_floor ? std::string("< -180 dBc") : dbc_text(q),
+    const bool is_floor = below_numerical_floor(q);  // a mark, not a number (cli/common.hpp)
+    t.add({"H" + std::to_string(n), dbc_text(m), is_floor ? std::string(floor_mark) + " dBc" : dbc_text(q),
            is_floor ? std::string("-") : signed_db(m - q)});
   }
   t.add({"THD", format_number(a.thd_percent, 4) + " %", format_number(pt.thd_percent, 4) + " %",
@@ -578,11 +575,15 @@ void write_json(const measure_report& r, std::ostream& out) {
   if (r.against) {
     const prediction& p = *r.against;
     const model::sweep_point& pt = p.point();
+    // A predicted level below the numerical floor is no figure: null, flagged, and so is its
+    // difference (cli/common.hpp).
     nlohmann::json hs = nlohmann::json::array(), diff = nlohmann::json::array();
+    std::vector<double> predicted;
     for (std::size_t i = 0; i < a.harmonics_dbc.size(); ++i) {
       const double q = i < pt.harmonics_dbc.size() ? pt.harmonics_dbc[i] : std::nan("");
-      hs.push_back(number_or_null(q));
-      diff.push_back(number_or_null(a.harmonics_dbc[i] - q));
+      predicted.push_back(q);
+      hs.push_back(dbc_or_null(q));
+      diff.push_back(below_numerical_floor(q) ? nlohmann::json(nullptr) : number_or_null(a.harmonics_dbc[i] - q));
     }
     j["against"] = {{"stage_path", p.path},
                     {"overrides", p.overrides},
@@ -595,6 +596,8 @@ void write_json(const measure_report& r, std::ostream& out) {
                     {"output_vpk", pt.output_vpk},
                     {"output_dbu", base::dbu_from_vpk(pt.output_vpk)},
                     {"harmonics_dbc", hs},
+                    {"harmonics_below_floor", below_floor_json(predicted)},
+                    {"numerical_floor_dbc", model::numerical_floor_dbc},
                     {"difference_db", diff},
                     {"thd_percent", pt.thd_percent},
                     {"thd_db", pt.thd_db},

@@ -26,6 +26,7 @@
 #include "base/units.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
+#include "model/analysis/small_signal.hpp"
 #include "model/audio/render.hpp"
 #include "model/circuit/stage_file.hpp"
 
@@ -49,6 +50,7 @@ struct render_options {
   std::string format;
   int threads{0};
   bool dry{false}, force{false}, quiet{false}, json{false};
+  bool invert{false};  ///< write an inverting stage's output with its polarity restored
 };
 
 // The fields the model names in its errors (model/audio/render.hpp, render_job), and the
@@ -68,6 +70,8 @@ struct render_outcome {
   bool dry{false};
   std::size_t stage_count{};  // stage files
   std::vector<std::size_t> chain_lengths;  // stages in each stage file, in order
+  std::vector<bool> inverting;             // each stage file's mid-band gain is negative
+  std::vector<bool> restored;              // and --invert wrote it restored
   std::vector<std::string> warnings;
 };
 
@@ -254,6 +258,11 @@ void write_text(const render_outcome& run, std::ostream& out) {
       note(x.path.string() + " is silent (no 400 ms above -70 LUFS) and was left out of the loudness matching");
     if (x.true_peak > 1.0)
       note(x.path.string() + ": true peak above 0 dBTP; a converter may clip between samples (try --normalize -2dBFS)");
+    if (!x.is_dry && i < run.inverting.size() && run.inverting[i])
+      note(x.path.string() + (run.restored[i]
+                                  ? ": the " + what(i, x) + " is inverted; written with its polarity restored (--invert)"
+                                  : ": the " + what(i, x) + " is inverted (upside down against the input); --invert "
+                                    "restores its polarity for A/B listening"));
   }
   out << "\n  speed " << format_number(r.realtime_factor, 3) << "x real time (" << format_number(r.seconds, 3) << " s)\n";
   out << "\nCaution: start playback quietly and raise it slowly; a distorting " << (chains ? "chain" : "stage")
@@ -295,6 +304,11 @@ void write_json(const render_outcome& run, std::ostream& out) {
                      {"true_peak_dbtp", level_json(x.true_peak)},
                      {"clipped_samples", x.clipped_samples},
                      {"loudness_matched", x.matched && r.outputs.size() > 1}};
+    const std::size_t k = static_cast<std::size_t>(&x - r.outputs.data());
+    if (!x.is_dry && k < run.inverting.size()) {
+      j["inverting"] = static_cast<bool>(run.inverting[k]);
+      j["polarity_restored"] = static_cast<bool>(run.restored[k]);
+    }
     if (!x.is_dry)
       j["engine"] = {{"samples", x.engine.samples},
                      {"newton_failures", x.engine.failed},
@@ -363,6 +377,9 @@ std::vector<model::render_stage> load_stages(const render_options& o, std::ostre
     st.name = file.stem().string();
     st.net = model::build_network(s);
     st.op = model::solve_operating_point(st.net);
+    // An inverting stage (a common-source one, or an odd count of them in a chain) puts its
+    // output upside down against the input; --invert writes it back the right way up.
+    st.invert = o.invert && model::analyse_small_signal(st.net, st.op).gain_midband < 0.0;
     const std::vector<std::string> w =
         rest_point_warnings(s, st.net, st.op, "render", err, o.stages.size() > 1 ? file.filename().string() : "");
     warnings.insert(warnings.end(), w.begin(), w.end());
@@ -474,7 +491,11 @@ render_outcome run(const render_options& o, std::ostream& err, base::output_set&
   r.fixed_level = job.level == model::output_level::fixed;
   r.dry = o.dry;
   r.stage_count = job.stages.size();
-  for (const model::render_stage& st : job.stages) r.chain_lengths.push_back(std::max<std::size_t>(1, st.net.stages.size()));
+  for (const model::render_stage& st : job.stages) {
+    r.chain_lengths.push_back(std::max<std::size_t>(1, st.net.stages.size()));
+    r.inverting.push_back(model::analyse_small_signal(st.net, st.op).gain_midband < 0.0);
+    r.restored.push_back(st.invert);
+  }
   return r;
 }
 
@@ -517,6 +538,8 @@ CLI::App* setup(CLI::App& app, render_options& o) {
       ->capture_default_str()
       ->check(CLI::Range(0, 256));
   sub->add_flag("--dry", o.dry, "Also write the input itself, matched in loudness, to compare against");
+  sub->add_flag("--invert", o.invert,
+                "Write an inverting stage's output (common-source) with its polarity restored, for A/B listening");
   sub->add_flag("--force", o.force, "Replace outputs that exist");
   sub->add_flag("--quiet", o.quiet, "No progress bar");
   sub->add_flag("--json", o.json, "Machine-readable summary of what was written");

@@ -73,7 +73,26 @@ struct response_report {
   double midband_db{};
   std::vector<std::string> warnings;
   std::vector<model::response_point> table;  // at the 1-2-5 frequencies of the range, for the text
+  std::string junction_note;  // no high corner because no junction capacitance is given; else empty
 };
+
+// The stages whose [jfet] gives neither cgs nor cgd: without them nothing in the model rolls
+// the treble off, so a response with no high corner is flat to the top by omission, not by design.
+std::string junction_capacitance_note(const model::stage& st, const model::response_result& r) {
+  for (const auto& c : r.corners)
+    if (!c.is_low) return "";
+  std::vector<std::string> missing;
+  for (int k = 0; k < st.stage_count(); ++k) {
+    const model::stage_parts& p = st.part(k);
+    if (p.jfet.cgs_f == 0.0 && p.jfet.cgd_f == 0.0)
+      missing.push_back(st.is_chain() ? (p.label.empty() ? "stage " + std::to_string(k + 1) : p.label) : "the JFET");
+  }
+  if (missing.empty()) return "";
+  std::string who;
+  for (std::size_t i = 0; i < missing.size(); ++i) who += (i ? ", " : "") + missing[i];
+  return "no high corner: the junction capacitances (cgs, cgd in [jfet]) are not given for " + who +
+         ", so the response is flat to the top; give them (a datasheet's Ciss and Crss) for the treble roll-off";
+}
 
 void write_plot(const response_report& rep, const std::string& path, base::output_set& outputs) {
   const model::response_result& r = rep.r;
@@ -110,6 +129,7 @@ void print_json(const response_report& rep, std::ostream& out) {
   }
   j["corners_hz"] = corners;
   j["corner_kinds"] = kinds;
+  j["notes"] = rep.junction_note.empty() ? nlohmann::json::array() : nlohmann::json::array({rep.junction_note});
   if (const auto& res = r.resonance) {
     nlohmann::json o{{"frequency_hz", res->frequency_hz}, {"peak_db", res->peak_db}};
     o["below_3db_hz"] = res->below_hz ? nlohmann::json(*res->below_hz) : nlohmann::json(nullptr);
@@ -159,6 +179,7 @@ void print_text(const response_report& rep, std::ostream& out) {
   for (const auto& c : r.corners)
     out << "  " << (c.is_low ? "low " : "high") << " -3 dB corner " << format_si(c.frequency_hz, "Hz", 4)
         << (rep.st.has_pickup() ? " (re mid-band)" : "") << '\n';
+  if (!rep.junction_note.empty()) out << "  " << rep.junction_note << '\n';
   out << '\n';
   text_table t({align::right, align::right, align::right, align::right, align::right});
   t.add({"frequency", "gain", "re mid-band", "phase", "input impedance"});
@@ -207,6 +228,7 @@ void run(const response_options& opt, std::ostream& out, std::ostream& err, base
   rep.r = model::analyse_response(rep.net, rep.op, rep.lo_hz, rep.hi_hz, opt.points);
   rep.phase_deg = unwrapped_phase_deg(rep.r.points);
   rep.midband_db = base::db_from_ratio(std::fabs(rep.r.midband_gain));
+  rep.junction_note = junction_capacitance_note(rep.st, rep.r);
 
   if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
   if (opt.json) return print_json(rep, out);

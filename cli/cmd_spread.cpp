@@ -79,8 +79,9 @@ std::vector<std::string> histogram_names(const model::stage& st, const std::vect
   return names;
 }
 
-void write_histograms(const model::spread_result& res, const std::vector<std::string>& names, const std::string& base,
-                      const std::string& title, std::ostream& out, base::output_set& outputs) {
+void write_histograms(const model::spread_result& res, const std::vector<std::string>& names,
+                      const std::vector<model::requirement>& reqs, const std::string& base, const std::string& title,
+                      std::ostream& out, base::output_set& outputs) {
   const std::filesystem::path p(base);
   for (const std::string& name : names) {
     const model::quantity_def& q = def_of(name);
@@ -88,7 +89,21 @@ void write_histograms(const model::spread_result& res, const std::vector<std::st
     for (const auto& r : res.runs)
       if (auto it = r.values.find(name); it != r.values.end() && std::isfinite(it->second)) v.push_back(it->second);
     if (v.empty()) continue;
-    const double lo = *std::min_element(v.begin(), v.end()), hi = *std::max_element(v.begin(), v.end());
+    double lo = *std::min_element(v.begin(), v.end()), hi = *std::max_element(v.begin(), v.end());
+    // The --require limits of this quantity: the bins widen to take a limit within a span
+    // of the batch's own, so the batch shows against it; a farther one is marked at the edge.
+    std::vector<std::pair<double, std::string>> limits;
+    auto value_text = [&q](double x) {
+      return std::string_view(q.unit).empty() ? format_number(x, 3) : format_si(x, q.unit);
+    };
+    for (const model::requirement& r : reqs)
+      if (r.quantity == name) {
+        if (std::isfinite(r.lo)) limits.push_back({r.lo, "min " + value_text(r.lo)});
+        if (std::isfinite(r.hi)) limits.push_back({r.hi, "max " + value_text(r.hi)});
+      }
+    const double span = std::max(hi - lo, 1e-12 * std::max(std::fabs(lo), std::fabs(hi)));
+    for (const auto& [x, label] : limits)
+      if (x >= lo - span && x <= hi + span) lo = std::min(lo, x), hi = std::max(hi, x);
     constexpr int bins = 20;
     const double w = hi > lo ? (hi - lo) / bins : 1.0;
     bar_chart c;
@@ -103,6 +118,10 @@ void write_histograms(const model::spread_result& res, const std::vector<std::st
       c.categories.push_back(std::string_view(q.unit) == "A" ? format_si(centre, "", 3) : format_number(centre, 3));
     }
     for (double x : v) c.values[0][static_cast<std::size_t>(std::min(bins - 1, static_cast<int>((x - lo) / w)))] += 1.0;
+    for (const auto& [x, label] : limits) {
+      const double at = (x - lo) / w;
+      c.markers.push_back({at, "required " + label + (at < 0 ? " (off to the left)" : at > bins ? " (off to the right)" : "")});
+    }
     const std::filesystem::path file = histogram_path(base, name);
     add_svg_output(outputs, file, render_svg(c));
     out << "  histogram of " << name << " written to " << file.string() << '\n';
@@ -317,7 +336,7 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::
   rep.res = model::run_spread(rep.st, settings, rep.reqs, extra);
 
   std::ostringstream plots;
-  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.st, rep.reqs), opt.plot, rep.st.name, plots, outputs);
+  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.st, rep.reqs), rep.reqs, opt.plot, rep.st.name, plots, outputs);
   if (opt.csv) return write_csv(rep, out);
   if (opt.json) return print_json(rep, out);
   print_text(rep, plots.str(), out);

@@ -35,11 +35,12 @@ struct sweep_options {
   int steps{25};
   int oversample{8};
   bool oversample_given{false};
-  int harmonics{10};
+  int harmonics{model::default_harmonics};
   std::string bandwidth{"20k"};
   std::string rate{"48k"};
   bool json{false}, csv{false}, verbose{false};
   std::string plot;
+  std::string waveform, transfer;
   int threads{0};
 };
 
@@ -66,12 +67,10 @@ std::string dbu(double vpk) {
   const double l = base::dbu_from_vpk(vpk);
   return format_number(std::fabs(l) < 1e-9 ? 0.0 : l, 3) + " dBu";
 }
-// Below this a harmonic is under the engine's numerical floor: its Newton tolerance
-// (1e-10 V on the port voltages) against output levels of tens of millivolts and up.
-constexpr double shown_floor_dbc = -180.0;
+// A level below the engine's numerical floor is a mark (cli/common.hpp).
 std::string dbc(double v) {
   if (!std::isfinite(v)) return "-";
-  return v < shown_floor_dbc ? "< -180" : format_number(v, 3);
+  return below_numerical_floor(v) ? floor_mark : format_number(v, 3);
 }
 // A DC shift below 1 nV is solver noise on an AC-coupled output.
 std::string shift(double v) { return format_si(std::fabs(v) < 1e-9 ? 0.0 : v, "V"); }
@@ -157,6 +156,83 @@ void write_plot(const sweep_report& rep, const std::string& path, base::output_s
   add_svg_output(outputs, path, render_svg(pl));
 }
 
+// The points a picture shows: every point of a sweep of up to six drives, else six spread
+// evenly over the drives in rising order, the lowest and the highest among them.
+constexpr std::size_t pictured_points = 6;
+constexpr std::size_t picture_points = 900;  // samples a period drawn: smooth at 860 px
+std::vector<int> pictured(const std::vector<double>& drives) {
+  std::vector<int> order(drives.size());
+  for (std::size_t i = 0; i < order.size(); ++i) order[i] = static_cast<int>(i);
+  std::stable_sort(order.begin(), order.end(), [&](int a, int b) {
+    return drives[static_cast<std::size_t>(a)] < drives[static_cast<std::size_t>(b)];
+  });
+  if (order.size() <= pictured_points) return order;
+  std::vector<int> out;
+  const double step = static_cast<double>(order.size() - 1) / static_cast<double>(pictured_points - 1);
+  for (std::size_t k = 0; k < pictured_points; ++k)
+    out.push_back(order[static_cast<std::size_t>(std::lround(step * static_cast<double>(k)))]);
+  return out;
+}
+
+std::string drive_legend(double vpk) { return dbu(vpk) + " (" + format_si(vpk, "Vpk") + ")"; }
+
+// The output over one period at each pictured drive, each scaled to its own peak, so the
+// shapes (the bend, the flat tops, a lean to one side) compare at any level.
+void write_waveform_plot(const sweep_report& rep, const std::string& path, base::output_set& outputs) {
+  const model::sweep_result& r = rep.r;
+  line_plot pl;
+  pl.title = rep.st.name + ": one period of the output at " + format_si(r.frequency_hz, "Hz");
+  pl.x = {"phase of the generator's sine (degrees)", axis_scale::linear, 0.0, 360.0, false};
+  pl.top.y = {"output at the load, change from rest / its peak", axis_scale::linear, -1.05, 1.05, false};
+  for (int i : pictured(rep.settings.drives_vpk)) {
+    const model::sweep_point& p = r.points[static_cast<std::size_t>(i)];
+    const model::period_trace t = model::fold_period(p, r, picture_points);
+    double peak = 0.0;
+    for (double v : t.output_v) peak = std::max(peak, std::fabs(v));
+    series s{drive_legend(p.drive_vpk), {}, {}, false};
+    for (std::size_t k = 0; k < t.phase.size(); ++k) {
+      s.x.push_back(360.0 * t.phase[k]);
+      s.y.push_back(peak > 0 ? t.output_v[k] / peak : 0.0);
+    }
+    if (!s.x.empty()) {  // the period closes at 360 degrees where it began
+      s.x.push_back(360.0);
+      s.y.push_back(s.y.front());
+    }
+    pl.top.lines.push_back(std::move(s));
+  }
+  add_svg_output(outputs, path, render_svg(pl));
+}
+
+// The output against the generator's instantaneous voltage over one period at each
+// pictured drive, each scaled to its own peak (drives tens of dB apart share one frame): a
+// straight line is a clean stage (falling: it inverts), the bend and the flat tops show
+// where it clips, and a loop (the way down apart from the way up) shows the coupling
+// capacitors charging within the period.
+void write_transfer_plot(const sweep_report& rep, const std::string& path, base::output_set& outputs) {
+  const model::sweep_result& r = rep.r;
+  line_plot pl;
+  pl.title = rep.st.name + ": transfer curve over one period at " + format_si(r.frequency_hz, "Hz");
+  pl.x = {"generator voltage / its peak", axis_scale::linear, -1.05, 1.05, false};
+  pl.top.y = {"output at the load, change from rest / its peak", axis_scale::linear, -1.05, 1.05, false};
+  for (int i : pictured(rep.settings.drives_vpk)) {
+    const model::sweep_point& p = r.points[static_cast<std::size_t>(i)];
+    const model::period_trace t = model::fold_period(p, r, picture_points);
+    double peak = 0.0;
+    for (double v : t.output_v) peak = std::max(peak, std::fabs(v));
+    series s{drive_legend(p.drive_vpk), {}, {}, false};
+    for (std::size_t k = 0; k < t.phase.size(); ++k) {
+      s.x.push_back(t.generator_v[k] / p.drive_vpk);
+      s.y.push_back(peak > 0 ? t.output_v[k] / peak : 0.0);
+    }
+    if (!s.x.empty()) {  // the loop closes
+      s.x.push_back(s.x.front());
+      s.y.push_back(s.y.front());
+    }
+    pl.top.lines.push_back(std::move(s));
+  }
+  add_svg_output(outputs, path, render_svg(pl));
+}
+
 void print_json(const sweep_report& rep, std::ostream& out) {
   const model::sweep_result& r = rep.r;
   nlohmann::json j;
@@ -166,10 +242,11 @@ void print_json(const sweep_report& rep, std::ostream& out) {
   j["sample_rate_hz"] = r.sample_rate_hz;
   j["record_samples"] = r.samples_per_record;
   j["record_cycles"] = r.cycles;
+  j["numerical_floor_dbc"] = model::numerical_floor_dbc;  // levels below it are null, flagged *_below_floor
   nlohmann::json pts = nlohmann::json::array();
   for (const auto& p : r.points) {
     nlohmann::json hs = nlohmann::json::array();
-    for (double h : p.harmonics_dbc) hs.push_back(number_or_null(h));
+    for (double h : p.harmonics_dbc) hs.push_back(dbc_or_null(h));
     pts.push_back({{"drive_vpk", p.drive_vpk},
                    {"drive_dbu", base::dbu_from_vpk(p.drive_vpk)},
                    {"output_vpk", p.output_vpk},
@@ -178,9 +255,12 @@ void print_json(const sweep_report& rep, std::ostream& out) {
                    {"thd_percent", p.thd_percent},
                    {"thd_db", p.thd_db},
                    {"harmonics_dbc", hs},
-                   {"alias_dbc", p.alias_dbc},
+                   {"harmonics_below_floor", below_floor_json(p.harmonics_dbc)},
+                   {"alias_dbc", dbc_or_null(p.alias_dbc)},
+                   {"alias_below_floor", below_numerical_floor(p.alias_dbc)},
                    {"even_odd_ratio", number_or_null(p.even_odd_ratio)},
                    {"dc_shift_v", p.dc_shift_v},
+                   {"tap_shift_v", number_or_null(p.tap_shift_v)},
                    {"bias_shift_v", p.bias_shift_v},
                    {"steady_state_converged", p.converged},
                    {"state_change_v", p.state_change_v},
@@ -193,14 +273,16 @@ void print_json(const sweep_report& rep, std::ostream& out) {
       for (std::size_t k = 0; k < p.stages.size(); ++k) {
         const model::stage_point& sp = p.stages[k];
         nlohmann::json shs = nlohmann::json::array();
-        for (double h : sp.harmonics_dbc) shs.push_back(number_or_null(h));
+        for (double h : sp.harmonics_dbc) shs.push_back(dbc_or_null(h));
         sts.push_back({{"name", r.stages[k].label},
                        {"output_vpk", sp.output_vpk},
                        {"output_dbu", base::dbu_from_vpk(sp.output_vpk)},
                        {"thd_percent", sp.thd_percent},
                        {"thd_db", sp.thd_db},
                        {"harmonics_dbc", shs},
+                       {"harmonics_below_floor", below_floor_json(sp.harmonics_dbc)},
                        {"bias_shift_v", sp.bias_shift_v},
+                       {"tap_shift_v", number_or_null(sp.tap_shift_v)},
                        {"clean", sp.clean},
                        {"limit", sp.clean ? nlohmann::json(nullptr) : nlohmann::json(model::swing_limit_text(sp.limit))}});
       }
@@ -247,16 +329,20 @@ void write_csv(const sweep_report& rep, std::ostream& out) {
   // A chain: each stage's output level, THD and whether it stayed clean, stage1_... on.
   for (std::size_t k = 1; k <= rep.r.stages.size(); ++k)
     out << ",stage" << k << "_output_vpk,stage" << k << "_thd_percent,stage" << k << "_clean";
-  out << '\n';
+  out << ",tap_shift_v\n";
   out.precision(10);
   for (const auto& p : rep.r.points) {
-    out << p.drive_vpk << ',' << p.output_vpk << ',' << p.gain_db << ',' << p.thd_percent << ',' << p.alias_dbc << ','
-        << p.even_odd_ratio << ',' << p.dc_shift_v;
+    // Empty: above the bandwidth, or below the numerical floor (no figure either way).
+    out << p.drive_vpk << ',' << p.output_vpk << ',' << p.gain_db << ',' << p.thd_percent << ',';
+    if (!below_numerical_floor(p.alias_dbc)) out << p.alias_dbc;
+    out << ',' << p.even_odd_ratio << ',' << p.dc_shift_v;
     for (double h : p.harmonics_dbc) {
       out << ',';
-      if (std::isfinite(h)) out << h;
+      if (std::isfinite(h) && !below_numerical_floor(h)) out << h;
     }
     for (const auto& sp : p.stages) out << ',' << sp.output_vpk << ',' << sp.thd_percent << ',' << (sp.clean ? 1 : 0);
+    out << ',';
+    if (std::isfinite(p.tap_shift_v)) out << p.tap_shift_v;
     out << '\n';
   }
 }
@@ -333,7 +419,11 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
   // A chain's VGS shift is each stage's, in the stage table below.
   const bool chain = !r.stages.empty();
   text_table t(std::vector<text_table::align>((chain ? 10 : 11) + (rep.st.has_capsule() ? 1 : 0), align::right));
-  std::vector<std::string> main_head{"drive", "", "output", "", "gain", "THD", "", "even/odd", "alias", "DC shift", "VGS shift"};
+  // The mean shift at the output tap (the last stage's, which feeds the load): an AC-coupled
+  // load's mean cannot move, the drain's or the source's does.
+  const bool follower = rep.st.last().topo == model::topology::source_follower;
+  const std::string tap_head = follower ? "source shift" : "drain shift";
+  std::vector<std::string> main_head{"drive", "", "output", "", "gain", "THD", "", "even/odd", "alias", tap_head, "VGS shift"};
   if (chain) main_head.pop_back();
   const bool capsule = rep.st.has_capsule();
   if (capsule) main_head.insert(main_head.begin(), "pressure");
@@ -342,8 +432,8 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
     std::vector<std::string> row{dbu(p.drive_vpk), format_si(p.drive_vpk, "Vpk"), dbu(p.output_vpk), format_si(p.output_vpk, "Vpk"),
                                  format_number(p.gain_db, 3) + " dB", format_number(p.thd_percent, 3) + " %",
                                  format_number(p.thd_db, 3) + " dB", ratio_db(p.even_odd_ratio),
-                                 p.alias_dbc < shown_floor_dbc ? std::string("< -180 dBc") : format_number(p.alias_dbc, 3) + " dBc",
-                                 shift(p.dc_shift_v)};
+                                 dbc(p.alias_dbc) + " dBc",
+                                 shift(p.tap_shift_v)};
     if (!chain) row.push_back(shift(p.bias_shift_v));
     if (capsule) row.insert(row.begin(), spl(rep.st, p.drive_vpk));
     t.add(row);
@@ -389,7 +479,9 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
   if (!r.stages.empty()) print_stages(rep, out);
   out << "  even/odd: even-harmonic over odd-harmonic power (positive dB: even-dominated, "
          "the square-law signature)\n"
-         "  DC shift: mean load voltage moved from rest; VGS shift: the bias moved by the drive\n"
+         "  " << tap_head << ": mean " << (follower ? "source" : "drain") << " voltage" << (chain ? " of the last stage" : "")
+      << " moved from rest by the drive (an AC-coupled load's mean cannot move);\n"
+         "  VGS shift: the bias moved by the drive\n"
          "  (gate conduction charging the coupling capacitor, or the channel squashing)\n"
          "  < -180: below the simulation's numerical floor\n";
   if (verbose) {
@@ -424,6 +516,12 @@ CLI::App* setup(CLI::App& app, sweep_options& opt, const data_files& data) {
   sub->add_flag("--json", opt.json, "Machine-readable output");
   sub->add_flag("--csv", opt.csv, "Every point as CSV");
   sub->add_option("--plot", opt.plot, "Write THD and H2..H5 against drive as SVG (a chain: and THD at each stage's output)")->type_name("FILE.svg");
+  sub->add_option("--waveform", opt.waveform,
+                  "Write one period of the output at up to six of the drives, each scaled to its peak, as SVG")
+      ->type_name("FILE.svg");
+  sub->add_option("--transfer", opt.transfer,
+                  "Write the output against the generator's voltage over one period at up to six of the drives, as SVG")
+      ->type_name("FILE.svg");
   sub->add_flag("--verbose", opt.verbose, "Also show Newton and steady-state statistics per point");
   sub->add_option("--threads", opt.threads, "Threads, 0 (one per core) to 256; results do not depend on it")->capture_default_str();
   sub->footer(
@@ -459,6 +557,8 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
   s.base_rate_hz = option_frequency_hz(opt.rate, "--rate");
   s.threads = opt.threads;
   s.per_stage = true;  // a chain's stages too; nothing changes for a single stage
+  s.taps = true;       // the mean shift at the output tap, what moves under an AC-coupled load
+  if (!opt.waveform.empty() || !opt.transfer.empty()) s.keep_records = pictured(s.drives_vpk);
   const model::sweep_plan plan = model::plan_sweep(s);  // the settings' errors before any file is read
   if (!spl) rep.st = load_stage(opt.input);
   // The rest point's cautions first (before the simulation's wait), then anything the
@@ -492,10 +592,14 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
     err << "pinchoff sweep: warning: " << rep.problems[k] << '\n';
 
   if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
+  if (!opt.waveform.empty()) write_waveform_plot(rep, opt.waveform, outputs);
+  if (!opt.transfer.empty()) write_transfer_plot(rep, opt.transfer, outputs);
   if (opt.json) return print_json(rep, out);
   if (opt.csv) return write_csv(rep, out);
   print_text(rep, opt.verbose, out);
   if (!opt.plot.empty()) out << "\n  plot written to " << opt.plot << '\n';
+  if (!opt.waveform.empty()) out << "  waveform written to " << opt.waveform << '\n';
+  if (!opt.transfer.empty()) out << "  transfer curve written to " << opt.transfer << '\n';
 }
 
 }  // namespace
@@ -515,6 +619,8 @@ void register_sweep(CLI::App& app, std::vector<command>& commands, const data_fi
                         command_files f;
                         add_stage_inputs(f, opt->input.path, opt->input.devices);
                         if (!opt->plot.empty()) f.outputs.push_back({"--plot", opt->plot});
+                        if (!opt->waveform.empty()) f.outputs.push_back({"--waveform", opt->waveform});
+                        if (!opt->transfer.empty()) f.outputs.push_back({"--transfer", opt->transfer});
                         return f;
                       }});
 }

@@ -9,6 +9,7 @@
 #include "base/units.hpp"
 #include "cli/option_text.hpp"
 #include "model/analysis/response.hpp"
+#include "model/analysis/sweep.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/stage_file.hpp"
 #include "model/analysis/warnings.hpp"
@@ -58,6 +59,16 @@ std::vector<std::string> rest_point_warnings(const model::stage& st, const model
 std::string json_text(const nlohmann::json& j) { return j.dump(2, ' ', false, nlohmann::json::error_handler_t::replace); }
 
 nlohmann::json number_or_null(double v) { return std::isfinite(v) ? nlohmann::json(v) : nlohmann::json(nullptr); }
+
+bool below_numerical_floor(double dbc) noexcept { return std::isfinite(dbc) && dbc < model::numerical_floor_dbc; }
+
+nlohmann::json dbc_or_null(double dbc) { return below_numerical_floor(dbc) ? nlohmann::json(nullptr) : number_or_null(dbc); }
+
+nlohmann::json below_floor_json(std::span<const double> dbc) {
+  nlohmann::json flags = nlohmann::json::array();
+  for (double v : dbc) flags.push_back(below_numerical_floor(v));
+  return flags;
+}
 
 nlohmann::json operating_point_json(const model::terminal_point& t) {
   return {{"vg_v", t.vg_v},   {"vs_v", t.vs_v},   {"vd_v", t.vd_v}, {"vgs_v", t.vgs_v},

@@ -56,6 +56,17 @@ std::string json_text(const nlohmann::json& j);
 /// A JSON number, or null where the value is not finite (JSON has no infinity).
 nlohmann::json number_or_null(double v);
 
+/// Simulated levels re the fundamental below the engine's numerical floor
+/// (model::numerical_floor_dbc) are marks, not numbers, in every command: the text shows
+/// floor_mark ("< -180"), JSON gives null with a flag (below_floor_json beside the values),
+/// a plot draws the mark instead of a bar or a point.
+bool below_numerical_floor(double dbc) noexcept;
+inline constexpr const char* floor_mark = "< -180";
+/// The level, or null where it is not finite or below the floor.
+nlohmann::json dbc_or_null(double dbc);
+/// One flag a level: true where it is below the floor (its value in dbc_or_null is null).
+nlohmann::json below_floor_json(std::span<const double> dbc);
+
 const char* topology_name(model::topology t) noexcept;
 
 /// base::parse_frequency_hz / base::parse_level_vpk with the option named in any error

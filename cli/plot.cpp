@@ -453,8 +453,15 @@ std::string render_svg(const bar_chart& chart) {
     for (std::size_t g = 0; g < chart.groups.size(); ++g) {
       const double v = chart.values[g][c];
       if (!std::isfinite(v)) continue;
-      const double shown = std::clamp(v, chart.floor, top);
       const double x = cx - 0.4 * cat_w + static_cast<double>(g) * bar_w;
+      if (chart.mark_below && v < *chart.mark_below) {
+        // Written upwards from the foot of the bar's place, so narrow places do not overlap.
+        const double mx = x + bar_w / 2 + 3.5, my = field_bottom - 4;
+        const std::string turn = " transform=\"rotate(-90 " + num(mx) + " " + num(my) + ")\"";
+        out.text(mx, my, chart.mark_label, 10.5, palette[g % palette_size], "start", turn.c_str());
+        continue;
+      }
+      const double shown = std::clamp(v, chart.floor, top);
       const double y = ym(shown);
       out.rect(x + 1, y, std::max(0.0, bar_w - 2), field_bottom - y, palette[g % palette_size], "none");
       if (bar_w >= 34) {
@@ -465,6 +472,15 @@ std::string render_svg(const bar_chart& chart) {
     }
   }
   if (chart.floor < 0 && top > 0) out.line(field_left, ym(0), field_right, ym(0), frame_stroke, 1.0);
+  for (std::size_t k = 0; k < chart.markers.size(); ++k) {
+    const marker_line& m = chart.markers[k];
+    if (!std::isfinite(m.x)) continue;
+    const double x = field_left + std::clamp(m.x, 0.0, ncat) * cat_w;
+    out.line(x, field_top, x, field_bottom, marker_stroke, 1.4, " stroke-dasharray=\"5 4\"");
+    const bool right_side = x > field_right - 150;
+    out.text(right_side ? x - 5 : x + 5, field_top + 15 + 16 * static_cast<double>(k % 2), m.label, 11.5, marker_stroke,
+             right_side ? "end" : "start", " stroke=\"#ffffff\" stroke-width=\"3\" paint-order=\"stroke\"");
+  }
   out.rect(field_left, field_top, field_right - field_left, field_bottom - field_top, "none", frame_stroke);
   if (!chart.x_title.empty()) out.text((field_left + field_right) / 2, height - 16, chart.x_title, 13, text_main, "middle");
   out.close();

@@ -68,7 +68,14 @@ struct bar_chart {
   std::vector<std::string> groups;            ///< one colour each, e.g. design names
   std::vector<std::vector<double>> values;    ///< values[group][category]; NaN: no bar
   double floor{-120.0};                       ///< bars rise from here; lower values clamp to it
+  /// Values below this are no figure (a simulation's numerical floor): no bar and no value,
+  /// only `mark_label` written upwards from the foot of the bar's place, in its group's colour.
+  std::optional<double> mark_below;
+  std::string mark_label;
   std::optional<double> top;                  ///< default: nice ceiling of the data, at least 0
+  /// Labelled vertical lines (a requirement's limits), x in categories: 0 is the left edge of
+  /// the first, categories.size() the right edge of the last; outside, drawn at the edge.
+  std::vector<marker_line> markers;
   int width_px{860};
   int height_px{480};
 };

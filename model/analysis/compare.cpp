@@ -292,6 +292,13 @@ compare_result compare_designs(std::span<const stage> stages, const compare_plan
       d.unreached_reason = f.reason;
       d.drive_evaluations = f.evaluations;
     }
+    if (d.reached && d.point.output_vpk > d.clean_swing_vpk) {
+      d.beyond_clean_swing = true;
+      trouble[k].push_back("compared at " + format_si(d.point.output_vpk, "Vpk") + " at the load (" +
+                           format_si(d.point.drive_vpk, "Vpk") + " drive), beyond its clean swing of " +
+                           format_si(d.clean_swing_vpk, "Vpk") + ": its figures are those of a stage already out of its clean region (THD " +
+                           base::format_number(d.point.thd_percent, 3) + " %); compare at a level within every design's clean swing");
+    }
     d.thd_1_percent = find_drive_for_thd(st, s, 1.0);
     if (st.has_capsule()) d.thd_half_percent = find_drive_for_thd(st, s, 0.5);
 

@@ -31,7 +31,7 @@ struct compare_settings {
   /// driven at its own capsule's open-circuit voltage for it; every design needs a capsule.
   std::optional<double> drive_db_spl;
   double frequency_hz{1000.0};           ///< snapped as in run_sweep
-  int harmonics{5};                      ///< N: H2..HN reported, 2..100
+  int harmonics{default_harmonics};      ///< N: H2..HN reported, 2..100
   int oversample{8};  ///< 1..64
   bool automatic_oversample{false};  ///< oversample chosen by automatic_oversampling() (sweep.hpp)
   double base_rate_hz{48000.0};
@@ -81,6 +81,9 @@ struct design_figures {
   double gain_midband{};             ///< V/V, signed (small signal, coupling caps shorted)
   double gain_midband_db{};
   double clean_swing_vpk{};          ///< headroom: largest clean symmetric swing at the load
+  /// The comparison's output (point.output_vpk) is above clean_swing_vpk: its figures are those
+  /// of a stage already out of its clean region (a warning in compare_result::warnings says so).
+  bool beyond_clean_swing{false};
   double clean_drive_vpk{};          ///< ... and the drive peak that gives it
   bool reached{true};                ///< at_output: the target was reached within the limits
   std::string unreached_reason;

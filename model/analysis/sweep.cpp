@@ -171,18 +171,17 @@ double judge_clean(const network& net, int jfet, std::span<const double> ports, 
   return samples ? sum_vgs / static_cast<double>(samples) : 0.0;
 }
 
-// Each stage of a chain over the analysed period: the harmonics at its output, traced by
-// the probes from the period's recorded ports, and its clean region.
-std::vector<stage_point> analyse_stages(const network& net, const Eigen::VectorXd& op_x, const dk_probes& probes,
-                                        const steady_state_result& ss,
-                                        const std::vector<double>& drive, const dsp::real_fft& fft, double fs_hz,
-                                        int cycles, const dsp::coherent_settings& cs) {
-  const std::vector<double> v = probes.trace(ss.start_state, drive, ss.ports_network_v);
-  const std::size_t ns = net.stages.size(), m = drive.size();
+// Each stage of a chain over the analysed period: the harmonics at its output, from the
+// probes' trace `v` of the period's recorded ports (`stride` values a sample, the stages'
+// outputs first), and its clean region.
+std::vector<stage_point> analyse_stages(const network& net, const Eigen::VectorXd& op_x, const steady_state_result& ss,
+                                        const std::vector<double>& v, std::size_t stride, const dsp::real_fft& fft,
+                                        double fs_hz, int cycles, const dsp::coherent_settings& cs) {
+  const std::size_t ns = net.stages.size(), m = v.size() / stride;
   std::vector<stage_point> out(ns);
   std::vector<double> record(m);
   for (std::size_t k = 0; k < ns; ++k) {
-    for (std::size_t n = 0; n < m; ++n) record[n] = v[n * ns + k];
+    for (std::size_t n = 0; n < m; ++n) record[n] = v[n * stride + k];
     const dsp::harmonic_analysis h = dsp::analyse_coherent(fft, record, fs_hz, static_cast<std::size_t>(cycles), cs);
     stage_point& sp = out[k];
     sp.output_vpk = h.fundamental_vpk;
@@ -190,12 +189,21 @@ std::vector<stage_point> analyse_stages(const network& net, const Eigen::VectorX
     sp.thd_percent = h.thd_percent;
     sp.thd_db = h.thd_db;
     sp.harmonics_dbc = h.harmonics_dbc;
+    sp.tap_shift_v = std::numeric_limits<double>::quiet_NaN();
     const int j = net.stages[k].jfet;
     const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
     const double rest_vgs = node_v(op_x, q.gate) - node_v(op_x, q.source);
     sp.bias_shift_v = net.sign * (judge_clean(net, j, ss.ports_network_v, sp) - rest_vgs);
   }
   return out;
+}
+
+// The mean of probe `column` over the trace `v` (`stride` values a sample).
+double trace_mean(const std::vector<double>& v, std::size_t stride, std::size_t column) {
+  double sum = 0.0;
+  std::size_t n = 0;
+  for (std::size_t i = column; i < v.size(); i += stride, ++n) sum += v[i];
+  return n ? sum / static_cast<double>(n) : 0.0;
 }
 
 }  // namespace
@@ -218,15 +226,23 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
   cs.bandwidth_hz = s.bandwidth_hz;
 
   res.points.resize(s.drives_vpk.size());
-  // A chain's stages, when asked: probes of their outputs, shared by every point (const).
+  for (int i : s.keep_records)
+    if (i < 0 || static_cast<std::size_t>(i) >= s.drives_vpk.size()) throw internal_error("sweep: kept record out of range");
+  // A chain's stages, when asked: probes of their outputs, then of every stage's output tap
+  // when asked, shared by every point (const).
   const bool per_stage = s.per_stage && net.stages.size() > 1;
-  std::optional<dk_probes> probes;
-  if (per_stage) {
-    std::vector<int> nodes;
+  const std::size_t nst = net.stages.size();
+  std::vector<int> nodes;
+  if (per_stage)
     for (const net_stage& ns : net.stages) nodes.push_back(ns.output);
-    probes.emplace(net, nodes, res.sample_rate_hz);
-  }
-  const int stages_probed = per_stage ? static_cast<int>(net.stages.size()) : 0;
+  const std::size_t tap_column = nodes.size();
+  if (s.taps)
+    for (const net_stage& ns : net.stages) nodes.push_back(ns.output_tap);
+  std::optional<dk_probes> probes;
+  if (!nodes.empty()) probes.emplace(net, nodes, res.sample_rate_hz);
+  std::vector<double> rest_tap_v;  // real volts
+  for (std::size_t k = 0; s.taps && k < nst; ++k) rest_tap_v.push_back(net.sign * node_v(op.x, net.stages[k].output_tap));
+  const int stages_probed = static_cast<int>((nodes.size() + 1) / 2);
   // One transform plan for every point (its forward() is thread-safe); each point on its own
   // engine. Points run at once only as many as fit the working memory.
   const dsp::real_fft fft(static_cast<std::size_t>(res.samples_per_record));
@@ -238,7 +254,7 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
     const double drive = s.drives_vpk[static_cast<std::size_t>(i)];
     steady_state_result ss;
     std::vector<double> period;
-    if (per_stage) {
+    if (probes) {
       // The drive periodic_steady_state makes of the amplitude, sample for sample, kept to
       // trace the probes.
       const int m = res.samples_per_record;
@@ -262,6 +278,9 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
     p.alias_dbc = h.alias_dbc;
     p.even_odd_ratio = h.even_odd_ratio;
     p.dc_shift_v = ss.mean_output_v - eng.dc_output_v();
+    if (i == 0) res.rest_output_v = eng.dc_output_v();  // the same for every point; written once
+    p.tap_shift_v = std::numeric_limits<double>::quiet_NaN();
+    if (std::find(s.keep_records.begin(), s.keep_records.end(), i) != s.keep_records.end()) p.record_v = ss.output_v;
     p.bias_shift_v = ss.mean_vgs_v - rest_vgs;
     p.state_change_v = ss.state_change_v;
     p.shooting_iterations = ss.shooting_iterations;
@@ -269,8 +288,18 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
     p.converged = ss.converged;
     p.used_settling = ss.used_settling;
     p.newton = ss.engine;
-    if (per_stage) p.stages = analyse_stages(net, op.x, *probes, ss, period, fft, res.sample_rate_hz, s.cycles, cs);
+    if (probes) {
+      const std::vector<double> v = probes->trace(ss.start_state, period, ss.ports_network_v);
+      const std::size_t stride = nodes.size();
+      if (per_stage) p.stages = analyse_stages(net, op.x, ss, v, stride, fft, res.sample_rate_hz, s.cycles, cs);
+      if (s.taps) {
+        for (std::size_t k = 0; per_stage && k < nst; ++k)
+          p.stages[k].tap_shift_v = trace_mean(v, stride, tap_column + k) - rest_tap_v[k];
+        p.tap_shift_v = trace_mean(v, stride, tap_column + nst - 1) - rest_tap_v[nst - 1];
+      }
+    }
   });
+
 
   // THD crossings, on the points sorted by drive.
   std::vector<const sweep_point*> sorted;
@@ -307,6 +336,25 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
       res.stages.push_back(ss);
     }
   return res;
+}
+
+period_trace fold_period(const sweep_point& p, const sweep_result& r, std::size_t max_points) {
+  period_trace t;
+  const std::size_t m = p.record_v.size();
+  if (m == 0 || r.cycles < 1) return t;
+  // Sample n sits at phase (K n mod M) / M of the fundamental; with M coprime with K the
+  // map n -> K n mod M is a permutation, so phase slot j holds sample n = j K^-1 mod M.
+  std::vector<std::size_t> at(m);
+  for (std::size_t n = 0; n < m; ++n) at[(static_cast<std::size_t>(r.cycles) * n) % m] = n;
+  const std::size_t step = std::max<std::size_t>(1, (m + max_points - 1) / std::max<std::size_t>(1, max_points));
+  for (std::size_t j = 0; j < m; j += step) {
+    const std::size_t n = at[j];
+    const double phase = static_cast<double>(j) / static_cast<double>(m);
+    t.phase.push_back(phase);
+    t.generator_v.push_back(p.drive_vpk * std::sin(2.0 * std::numbers::pi * phase));
+    t.output_v.push_back(p.record_v[n] - r.rest_output_v);
+  }
+  return t;
 }
 
 }  // namespace pinchoff::model

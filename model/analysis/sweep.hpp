@@ -24,19 +24,36 @@
 
 namespace pinchoff::model {
 
+/// Below this a harmonic (or the aliasing) re the fundamental is under the engine's numerical
+/// floor: its Newton tolerance (1e-10 V on the port voltages) against output levels of tens
+/// of millivolts and up. A level below it is no figure, only "below the floor", and every
+/// command reports it so (cli/common.hpp).
+inline constexpr double numerical_floor_dbc = -180.0;
+
+/// The harmonics every command reports unless told otherwise (H2..H10), and THD counts at
+/// least these: one default for sweep, compare and the rest.
+inline constexpr int default_harmonics = 10;
+
 struct sweep_settings {
   double frequency_hz{1000.0};
   std::vector<double> drives_vpk;   ///< generator open-circuit sine peaks, > 0
   int oversample{8};                ///< 1..64
   bool automatic_oversample{false}; ///< oversample chosen by automatic_oversampling()
   double base_rate_hz{48000.0};     ///< the audio rate the oversampling multiplies
-  int harmonics{10};                ///< N: H2..HN
+  int harmonics{default_harmonics}; ///< N: H2..HN
   double bandwidth_hz{20000.0};     ///< harmonics above it are not counted (AES17)
   int cycles{3};                    ///< K
   int threads{0};                   ///< 0: one per core; results do not depend on it
   /// A chain: also each stage's output and clean region (sweep_point::stages). Ignored for
   /// a single stage.
   bool per_stage{false};
+  /// Also the mean shift of each stage's output tap (drain or source) under drive
+  /// (sweep_point::tap_shift_v, stage_point::tap_shift_v), traced by node probes from the
+  /// same period: what moves when an AC-coupled load's mean cannot.
+  bool taps{false};
+  /// Indices into drives_vpk whose steady-state record at the load is kept
+  /// (sweep_point::record_v), for pictures of the waveform and the transfer curve.
+  std::vector<int> keep_records;
 };
 
 /// The oversampling a sweep takes when none is asked (sweep_settings::automatic_oversample). What
@@ -62,6 +79,7 @@ struct stage_point {
   double thd_ratio{}, thd_percent{}, thd_db{};
   std::vector<double> harmonics_dbc;  ///< H2..HN, as at the load; NaN above the bandwidth
   double bias_shift_v{};      ///< the stage's mean VGS minus its rest value
+  double tap_shift_v{};       ///< sweep_settings::taps: its output tap's mean voltage minus its rest value; else NaN
   /// The JFET stayed in its clean region (headroom.hpp: vds >= vgs - vp, vgs > vp,
   /// vgs <= 0) at every sample of the period.
   bool clean{true};
@@ -86,6 +104,9 @@ struct sweep_point {
   double alias_dbc{};        ///< non-harmonic energy within the bandwidth, re the fundamental
   double even_odd_ratio{};   ///< even-harmonic over odd-harmonic power (H2.. only)
   double dc_shift_v{};       ///< mean load voltage minus its rest value
+  /// sweep_settings::taps: the mean voltage of the last stage's output tap (drain or
+  /// source, what feeds the load) minus its rest value; else NaN.
+  double tap_shift_v{};
   double bias_shift_v{};     ///< mean VGS minus its rest value (gate rectification, squash); a chain: its first JFET's
   // Solver figures.
   double state_change_v{};   ///< remaining period-to-period state change
@@ -96,6 +117,10 @@ struct sweep_point {
   dk_stats newton;
   /// A chain's stages in signal order (sweep_settings::per_stage); empty otherwise.
   std::vector<stage_point> stages;
+  /// sweep_settings::keep_records: the steady-state record at the load (real volts,
+  /// samples_per_record samples holding `cycles` cycles of the generator's
+  /// drive_vpk * sin(2 pi cycles n / M)); empty otherwise.
+  std::vector<double> record_v;
 };
 
 /// Drive and output where THD crosses a level, interpolated log-log between points.
@@ -115,7 +140,19 @@ struct sweep_result {
   std::vector<sweep_point> points;  ///< in the order of the drives given
   std::vector<thd_crossing> crossings;  ///< 1 %, 3 %, 10 %
   std::vector<stage_sweep> stages;  ///< as sweep_point::stages
+  double rest_output_v{};     ///< the load's voltage at rest (real volts)
 };
+
+/// One period of a kept record (sweep_point::record_v), its samples folded onto one cycle
+/// of the fundamental and put in phase order (the record is periodic in the fundamental's
+/// period, and with M coprime with K its samples land at M distinct phases), at most
+/// `max_points` of them, evenly taken.
+struct period_trace {
+  std::vector<double> phase;        ///< 0 <= phase < 1, of the generator's sine, ascending
+  std::vector<double> generator_v;  ///< the generator's instantaneous voltage
+  std::vector<double> output_v;     ///< the load's voltage minus its rest value
+};
+period_trace fold_period(const sweep_point& p, const sweep_result& r, std::size_t max_points = 2400);
 
 /// Settings that passed validate(), with the rate and record they imply. Only plan_sweep
 /// makes one, so a sweep run many times on one plan (a spread runs one per part) or whose

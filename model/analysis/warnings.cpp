@@ -15,7 +15,7 @@ double supply_current_a(const network& net, const operating_point& op) {
 
 std::vector<std::string> operating_warnings(const stage& s, const network& net, const operating_point& op) {
   using base::format_si;
-  std::vector<std::string> w;
+  std::vector<std::string> w = s.file_warnings;  // what the file gave that is unusual
   const int devices = std::min(net.devices(), s.stage_count());
   for (int k = 0; k < devices; ++k) {
     const terminal_point t = k == 0 ? op.at : terminals_of(net, op.x, k);

@@ -317,6 +317,8 @@ render_plan plan_render(const render_job& job, const render_control& control, cl
   p.input_peak_v.assign(p.ch, 0.0);
   p.peak_v.assign(p.n_outputs, std::vector<double>(p.ch, 0.0));
   p.gains.assign(p.n_outputs, std::vector<double>(p.ch, 1.0 / job.full_scale_v));
+  for (std::size_t s = 0; s < p.n_stages; ++s)
+    if (job.stages[s].invert) std::fill(p.gains[s].begin(), p.gains[s].end(), -1.0 / job.full_scale_v);
 
   rep.outputs.resize(p.n_outputs);
   for (std::size_t i = 0; i < p.n_outputs; ++i) {
@@ -467,7 +469,8 @@ void decide_scales(render_plan& p, render_report& rep) {
     for (std::size_t i = 0; i < p.n_outputs; ++i) rep.outputs[i].scale = peak[i] > 0.0 ? ceiling / peak[i] : 0.0;
   }
   for (std::size_t i = 0; i < p.n_outputs; ++i) {
-    std::fill(p.gains[i].begin(), p.gains[i].end(), rep.outputs[i].scale);
+    const bool flip = i < p.n_stages && job.stages[i].invert;
+    std::fill(p.gains[i].begin(), p.gains[i].end(), flip ? -rep.outputs[i].scale : rep.outputs[i].scale);
     for (const int c : rep.outputs[i].silent_channels) p.gains[i][static_cast<std::size_t>(c - 1)] = 0.0;
   }
 }

@@ -113,6 +113,9 @@ struct render_stage {
   network net;
   operating_point op;
   std::filesystem::path output;
+  /// Written with its sign flipped: an inverting stage's polarity restored, so its file and
+  /// the dry one line up for A/B listening. The level figures do not change.
+  bool invert{false};
 };
 
 enum class output_level {

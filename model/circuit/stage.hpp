@@ -146,6 +146,10 @@ struct stage : stage_parts {
   capsule_part capsule;            ///< when signal_kind is capsule
   pickup_part pickup;              ///< when signal_kind is pickup
   std::vector<stage_parts> later;  ///< a chain's second and later stages; empty for a single stage
+  /// Values the file gave that are allowed but unusual (a JFET outside the plausible range of
+  /// small-signal parts, a likely unit slip), located "file:line:col: ..."; every command
+  /// shows them with the rest point's cautions.
+  std::vector<std::string> file_warnings;
 
   int stage_count() const noexcept { return 1 + static_cast<int>(later.size()); }
   bool is_chain() const noexcept { return !later.empty(); }

@@ -4,6 +4,7 @@
 #include <array>
 #include <charconv>
 #include <cstdint>
+#include <cstdio>
 #include <optional>
 #include <cerrno>
 #include <cmath>
@@ -157,6 +158,14 @@ class reader {
     os << source_ << ':' << where.begin.line << ':' << where.begin.column << ": " << msg;
     throw input_error(os.str());
   }
+  /// `msg` prefixed with its place in the file, "file:line:col: "; a value with no place
+  /// (an override) is named by its key, which `msg` begins with.
+  std::string located(const toml::source_region& where, const std::string& msg) const {
+    if (where.begin.line == 0) return msg;
+    std::ostringstream os;
+    os << source_ << ':' << where.begin.line << ':' << where.begin.column << ": " << msg;
+    return os.str();
+  }
   [[noreturn]] void fail_file(const std::string& msg) const { throw input_error(std::string(source_) + ": " + msg); }
 
   double number(const toml::node& node, const std::string& key, const key_spec& spec) const {
@@ -208,9 +217,23 @@ class reader {
   std::string_view source_;
 };
 
+// A known key that is an abbreviation of `key` or that `key` abbreviates (coupling_capacitor
+// for coupling_cap), when exactly one is; else empty.
+std::string abbreviated_name(std::string_view key, std::span<const std::string_view> known) {
+  std::string found;
+  for (std::string_view k : known) {
+    const std::size_t n = std::min(k.size(), key.size());
+    if (n < 3 || k == key || k.substr(0, n) != key.substr(0, n)) continue;
+    if (!found.empty()) return "";
+    found = std::string(k);
+  }
+  return found;
+}
+
 std::string unknown_key_message(std::string_view key, std::string_view where, std::span<const std::string_view> known) {
   std::string m = "unknown key '" + std::string(key) + "' in " + std::string(where);
-  const std::string near = base::nearest_name(key, known);
+  std::string near = base::nearest_name(key, known);
+  if (near.empty()) near = abbreviated_name(key, known);
   if (!near.empty()) m += "; did you mean '" + near + "'?";
   return m;
 }
@@ -403,6 +426,46 @@ std::vector<between_part> read_between(const reader& rd, const toml::node& node,
     parts.push_back(p);
   }
   return parts;
+}
+
+// The plausible ranges of small-signal JFETs (common practice: datasheets of small-signal
+// parts), narrower than the physical bounds of model/device/parameter_ranges.hpp, which
+// refuse. A value the file gives outside them is read, with a warning: it is most often a
+// unit slip (idss = 6.037 is amperes, not milliamperes).
+struct plausible_range {
+  const char* key;
+  double lo, hi;  // by magnitude
+  const char* unit;
+  const char* prefix;  // the unit prefix meant by the slip a value above the range most likely is
+  double scale;        // and its factor
+};
+constexpr plausible_range plausible_jfet[] = {
+    {"jfet.idss", 0.1e-3, 100e-3, "A", "m", 1e-3},
+    {"jfet.vp", 0.2, 10.0, "V", "m", 1e-3},
+    {"jfet.cgs", 0.5e-12, 50e-12, "F", "p", 1e-12},
+    {"jfet.cgd", 0.5e-12, 50e-12, "F", "p", 1e-12},
+};
+
+// Warnings for the [jfet] values this stage's table gave outside the plausible range.
+void plausibility_warnings(const reader& rd, gathered& g, const std::string& prefix, std::vector<std::string>& out) {
+  for (const plausible_range& r : plausible_jfet) {
+    const auto at = g.where.find(r.key);
+    if (!g.has(r.key) || at == g.where.end()) continue;  // not given (a class's typical value is plausible)
+    const double v = std::fabs(g.get(r.key));
+    if (v == 0.0 && std::string_view(r.unit) == "F") continue;  // no junction capacitance: said by `response`
+    if (v >= r.lo && v <= r.hi) continue;
+    const std::string shown = prefix + r.key;
+    std::string m = shown + " = " + base::format_si(g.get(r.key), r.unit) + " lies outside " + base::format_si(r.lo, r.unit) +
+                    " to " + base::format_si(r.hi, r.unit) + ", the range of small-signal JFETs (common practice)";
+    if (v > r.hi && v * r.scale >= r.lo && v * r.scale <= r.hi) {
+      char n[32];
+      std::snprintf(n, sizeof n, "%g", g.get(r.key));
+      m += "; a bare number is in " + std::string(r.unit == std::string_view("A") ? "amperes" : r.unit == std::string_view("V") ? "volts" : "farads") +
+           ": for " + n + " " + r.prefix + r.unit + " write " + n + r.prefix;
+    }
+    m += "; read as given";
+    out.push_back(rd.located(at->second, m));
+  }
 }
 
 // The parts of one stage from what its table gave. `table` locates its sections in messages.
@@ -749,6 +812,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
 
   if (!chain) {
     static_cast<stage_parts&>(st) = build_parts(rd, root, top, "", source_name, devices_file);
+    plausibility_warnings(rd, top, "", st.file_warnings);
     if (top_topology) st.topo = *top_topology;
     check_gate_extras(rd, top, st, "");
     supply_sign_check(st.pol);
@@ -802,6 +866,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
         }
       }
       stage_parts p = build_parts(rd, t, g, prefix, source_name, devices_file);
+      plausibility_warnings(rd, g, prefix, st.file_warnings);
       if (topo) p.topo = *topo;
       check_gate_extras(rd, g, p, prefix);
       p.between = std::move(between);

@@ -122,7 +122,7 @@ TEST_CASE("compare --at-output drives every preset to the target within 0.01 dB"
       CAPTURE(k);
       CHECK(d.contains(k));
     }
-    CHECK(d["harmonics_dbc"].size() == 4);  // H2..H5 by default
+    CHECK(d["harmonics_dbc"].size() == 9);  // H2..H10 by default, as sweep (model::default_harmonics)
   }
 }
 
@@ -156,7 +156,10 @@ TEST_CASE("compare's figures are run_sweep's at the same drive") {
     REQUIRE(d["harmonics_dbc"].size() == p.harmonics_dbc.size());
     for (std::size_t h = 0; h < p.harmonics_dbc.size(); ++h) {
       CAPTURE(h + 2);
-      CHECK(std::fabs(d["harmonics_dbc"][h].get<double>() - p.harmonics_dbc[h]) <= 1e-9);
+      // Below the numerical floor a level is no figure: null, and flagged.
+      CHECK(d["harmonics_below_floor"][h].get<bool>() == (p.harmonics_dbc[h] < model::numerical_floor_dbc));
+      if (p.harmonics_dbc[h] < model::numerical_floor_dbc) CHECK(d["harmonics_dbc"][h].is_null());
+      else CHECK(std::fabs(d["harmonics_dbc"][h].get<double>() - p.harmonics_dbc[h]) <= 1e-9);
     }
   }
 }
@@ -293,7 +296,7 @@ TEST_CASE("measure --against a stage's own rendered tone agrees within 0.1 dB") 
   int compared = 0;
   for (std::size_t i = 0; i < ag["harmonics_dbc"].size(); ++i) {
     CAPTURE(i + 2);
-    if (!(ag["harmonics_dbc"][i].get<double>() > -120.0)) continue;
+    if (ag["harmonics_dbc"][i].is_null() || !(ag["harmonics_dbc"][i].get<double>() > -120.0)) continue;  // null: below the floor
     ++compared;
     CHECK(std::fabs(ag["difference_db"][i].get<double>()) <= 0.1);
   }

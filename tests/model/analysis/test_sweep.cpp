@@ -488,3 +488,64 @@ TEST_CASE("a chain's stage figures do not depend on the thread count") {
       CHECK(a.points[i].stages[k].clean == b.points[i].stages[k].clean);
     }
 }
+
+namespace {
+// The ideal square-law stage of the first test (gate DC-coupled to the generator, VGSQ = 0,
+// source grounded, lambda = 0, no gate current), 8 mA x 2k = 8 V across its drain resistor
+// at rest, with an AC-coupled load when `coupled`.
+stage square_law_stage(bool coupled) {
+  std::string text =
+      "[supply]\nvolts = 30\n[jfet]\nidss = \"4m\"\nvp = -2\nis = 0\n[gate]\nresistor = \"1M\"\n[drain]\nresistor = \"2k\"\n";
+  if (coupled) text += "[output]\ncoupling_cap = \"10u\"\nload = \"100k\"\n";
+  return test::stage_from(text);
+}
+}  // namespace
+
+TEST_CASE("the output tap's mean shift under drive is the square law's: -Rd IDSS A^2 / (2 VP^2)") {
+  // closed form: id = IDSS (1 - vgs/VP)^2 with vgs = A sin wt averages IDSS (1 + A^2 / (2 VP^2)),
+  // so the drain's mean falls by Rd IDSS A^2 / (2 VP^2) = A^2 volts here. The AC-coupled load's
+  // mean cannot move (its capacitor blocks DC): the tap's is the shift a builder can measure.
+  const stage st = square_law_stage(true);
+  sweep_settings s;
+  s.drives_vpk = {0.05, 0.2, 0.5};
+  s.taps = true;
+  const sweep_result r = run_sweep(st, s);
+  for (const sweep_point& p : r.points) {
+    CAPTURE(p.drive_vpk);
+    const double expected = -2000.0 * 4e-3 * p.drive_vpk * p.drive_vpk / (2.0 * 4.0);
+    CHECK(std::fabs(p.tap_shift_v - expected) < 1e-6 * std::fabs(expected) + 1e-9);
+    CHECK(std::fabs(p.dc_shift_v) < 1e-9);
+  }
+  s.taps = false;  // not asked: not reported as a number
+  CHECK(std::isnan(run_sweep(st, s).points[0].tap_shift_v));
+}
+
+TEST_CASE("a kept record folds onto one period of the square law's transfer curve") {
+  // closed form: the drain moves by -Rd IDSS ((1 + g/2)^2 - 1) for a generator voltage g
+  // (DC-coupled gate, VP = -2 V), at every phase of the period.
+  const stage st = square_law_stage(false);
+  sweep_settings s;
+  s.drives_vpk = {0.1, 1.0};
+  s.keep_records = {1};
+  const sweep_result r = run_sweep(st, s);
+  CHECK(r.points[0].record_v.empty());
+  REQUIRE(r.points[1].record_v.size() == static_cast<std::size_t>(r.samples_per_record));
+  for (std::size_t max_points : {std::size_t{100000}, std::size_t{500}}) {
+    CAPTURE(max_points);
+    const period_trace t = fold_period(r.points[1], r, max_points);
+    REQUIRE(!t.phase.empty());
+    CHECK(t.phase.size() <= max_points);
+    CHECK(std::is_sorted(t.phase.begin(), t.phase.end()));
+    CHECK(t.phase.front() == 0.0);
+    CHECK(t.phase.back() < 1.0);
+    double worst = 0.0;
+    for (std::size_t i = 0; i < t.phase.size(); ++i) {
+      const double g = t.generator_v[i];
+      CHECK(g == doctest::Approx(std::sin(2.0 * 3.14159265358979323846 * t.phase[i])).epsilon(1e-12));
+      const double expected = -2000.0 * 4e-3 * ((1.0 + g / 2.0) * (1.0 + g / 2.0) - 1.0);
+      worst = std::max(worst, std::fabs(t.output_v[i] - expected));
+    }
+    CHECK(worst < 1e-6);
+  }
+  CHECK(r.rest_output_v == doctest::Approx(22.0).epsilon(1e-9));
+}
