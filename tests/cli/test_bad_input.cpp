@@ -247,6 +247,8 @@ struct fixtures {
     write(f("parts-nopart.csv"), "idss_a,vp_v\n5m,-2\n");
     write(f("parts-unknown.csv"), "part,idss_a,vp_v,colour\nA,5m,-2,3\n");
     write(f("parts-mixed.csv"), "part,idss_a,vp_v\nA,5m,-2\nB,-5m,2\n");
+    write(f("parts-pch.csv"), "part,idss_a,vp_v\nA,-5m,2\n");
+    write(f("idssvds-beta.toml"), with_line(with_line(good_stage, 6, "vto = -1.8"), 5, "beta = 0.001\nidss_vds = 10"));
 
     // ---- Sizes, special files and the ranges of values (the readers' bounds)
     write(f("huge.toml"), std::string(good_stage) + "# " + std::string(std::size_t{1} << 20, 'x') + "\n");
@@ -537,6 +539,15 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"match: --tolerance of two voltages", {"match", "@bag.csv", "--tolerance", "20mV,30mV"}, {"--tolerance '20mV,30mV'", "each tolerance once"}},
       {"match: --tolerance of three pieces", {"match", "@bag.csv", "--tolerance", "2%,20mV,x"}, {"--tolerance '2%,20mV,x'", "expected a percentage"}},
       {"match: a parts file that does not exist", {"match", "@missing.csv"}, {"@missing.csv", "No such file"}},
+      {"idss_vds beside beta and vto", {"bias", "@idssvds-beta.toml"}, {"@idssvds-beta.toml:6:", "jfet.idss_vds", "no meaning beside beta"}},
+      {"spread: --parts beside an IDSS range", {"spread", "@stage.toml", "--parts", "@bag.csv", "--idss", "2m..8m"}, {"--parts: ", "take the place of the IDSS and VP ranges"}},
+      {"spread: --parts of the other polarity", {"spread", "@stage.toml", "--parts", "@parts-pch.csv"}, {"--parts: ", "part 'A' is p-channel"}},
+      {"spread: --parts that does not exist", {"spread", "@stage.toml", "--parts", "@missing.csv"}, {"@missing.csv", "No such file"}},
+      {"tune: --over-spread --parts whose part does not fit", {"tune", "@stage.toml", "--target", "vd=4.5", "--over-spread", "--parts", "@bag-short.csv"}, {"@bag-short.csv", "part 'B'", "too few readings"}},
+      {"tune: --target gain without a value", {"tune", "@stage.toml", "--target", "gain"}, {"--target 'gain'", "give a value"}},
+      {"tune: --target gain that is not a number", {"tune", "@stage.toml", "--target", "gain=loud"}, {"--target gain", "'loud'", "gain in dB"}},
+      {"tune: --target gain out of reach", {"tune", "@stage.toml", "--target", "gain=60dB"}, {"gain = 60.00 dB (mid-band) is out of reach", "drain.resistor from"}},
+      {"tune: two targets and one resistor", {"tune", "@stage.toml", "--target", "gain=20dB", "--target", "vd=4.5", "--adjust", "drain.resistor"}, {"--adjust and --target come in pairs", "2 --target but 1 --adjust"}},
       // ---- tone: the output file and the levels
       {"output folder that does not exist", {"tone", "@nofolder/t.wav"}, {"@nofolder/t.wav", "does not exist"}},
       {"output onto a folder", {"tone", "@folder"}, {"@folder", "it is a folder"}},
