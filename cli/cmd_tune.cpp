@@ -284,7 +284,9 @@ void print_pairs_text(const model::stage& st, const std::vector<model::tune_pair
                       const std::vector<model::tune_result>& results, const std::vector<model::joint_candidate>& cands,
                       base::eseries series, std::ostream& out) {
   out << st.name << "\n  " << pairs.size() << " resistors solved together, in " << sol.rounds
-      << (sol.rounds == 1 ? " round" : " rounds") << " (each target within 1 ppm + 1 µV or 1 nA; a gain within 1e-5 dB)\n";
+      << (sol.all_at_once ? (sol.rounds == 1 ? " step, all at once" : " steps, all at once")
+                          : (sol.rounds == 1 ? " round" : " rounds"))
+      << " (each target within 1 ppm + 1 µV or 1 nA; a gain within 1e-5 dB)\n";
   for (std::size_t k = 0; k < pairs.size(); ++k) {
     out << "\n  target " << model::target_text(pairs[k].target) << ", adjusting " << results[k].adjust << "\n\n";
     print_table(results[k], out);
@@ -299,6 +301,7 @@ void print_pairs_json(const std::vector<model::tune_pair>& pairs, const model::j
                       base::eseries series, std::ostream& out) {
   nlohmann::json j;
   j["rounds"] = sol.rounds;
+  j["all_at_once"] = sol.all_at_once;
   nlohmann::json adjust = nlohmann::json::array(), targets = nlohmann::json::array();
   for (const model::tune_pair& p : pairs) {
     adjust.push_back(p.adjust);

@@ -9,6 +9,8 @@
 #include "model/circuit/network.hpp"
 #include "model/analysis/small_signal.hpp"
 
+#include <Eigen/Dense>
+
 namespace pinchoff::model {
 namespace {
 
@@ -280,8 +282,129 @@ std::optional<double> solve_near(const stage& s, std::string_view key, const tun
 
 }  // namespace
 
+namespace {
+
+joint_solution solve_one_at_a_time(const stage& s, const std::vector<tune_pair>& pairs);
+
+// Every pair's target quantity with the resistors at `ohm`; empty when the stage refuses the
+// values or has no operating point there.
+std::optional<std::vector<double>> joint_quantities(const stage& s, const std::vector<tune_pair>& pairs,
+                                                     const std::vector<int>& at, const std::vector<double>& ohm) {
+  try {
+    stage t = s;
+    for (std::size_t i = 0; i < pairs.size(); ++i) {
+      if (!(ohm[i] >= tune_min_ohm && ohm[i] <= tune_max_ohm)) return std::nullopt;
+      *resistor_field(t, pairs[i].adjust) = ohm[i];
+    }
+    validate(t);
+    const network net = build_network(t);
+    const operating_point op = solve_operating_point(net);
+    const bool any_gain = std::any_of(pairs.begin(), pairs.end(), [](const tune_pair& p) { return p.target.kind == target_kind::gain; });
+    const double gain = any_gain ? gain_db_of(net, op) : NAN;
+    std::vector<double> q;
+    for (std::size_t i = 0; i < pairs.size(); ++i)
+      q.push_back(quantity(pairs[i].target, tune_point{ohm[i], at[i] == 0 ? op.at : terminals_of(net, op.x, at[i]), {}, gain}));
+    return q;
+  } catch (const std::exception&) {
+    return std::nullopt;
+  }
+}
+
+// All pairs at once: damped Newton on log R with a finite-difference Jacobian, the errors
+// scaled to 1 V, 1 mA or 1 dB. Taken where solving one resistor at a time cannot start (a
+// target out of reach of its resistor while the others sit at the file's values) or does not
+// settle.
+joint_solution solve_jointly(const stage& s, const std::vector<tune_pair>& pairs, const std::vector<int>& at,
+                             std::vector<double> ohm) {
+  const std::size_t n = pairs.size();
+  auto scaled = [&](const std::vector<double>& q) {
+    Eigen::VectorXd e(static_cast<Eigen::Index>(n));
+    for (std::size_t i = 0; i < n; ++i)
+      e[static_cast<Eigen::Index>(i)] = (q[i] - pairs[i].target.value) / (pairs[i].target.kind == target_kind::id ? 1e-3 : 1.0);
+    return e;
+  };
+  joint_solution sol;
+  sol.ohm = ohm;
+  sol.all_at_once = true;
+  std::optional<std::vector<double>> q = joint_quantities(s, pairs, at, ohm);
+  if (!q) return sol;
+  Eigen::VectorXd e = scaled(*q);
+  for (sol.rounds = 1; sol.rounds <= 100; ++sol.rounds) {
+    bool settled = true;
+    for (std::size_t i = 0; i < n; ++i) settled = settled && std::fabs((*q)[i] - pairs[i].target.value) <= joint_tolerance(pairs[i].target);
+    if (settled) {
+      sol.ohm = ohm;
+      sol.settled = true;
+      return sol;
+    }
+    Eigen::MatrixXd jm(static_cast<Eigen::Index>(n), static_cast<Eigen::Index>(n));
+    for (std::size_t k = 0; k < n; ++k) {
+      std::vector<double> bumped = ohm;
+      const double h = 1e-5;
+      bumped[k] *= std::exp(h);
+      const std::optional<std::vector<double>> qb = joint_quantities(s, pairs, at, bumped);
+      if (!qb) return sol;
+      jm.col(static_cast<Eigen::Index>(k)) = (scaled(*qb) - e) / h;
+    }
+    const Eigen::VectorXd step = jm.colPivHouseholderQr().solve(-e);
+    if (!step.allFinite()) return sol;
+    // Damped: at most a factor e (2.7) per resistor a step, halved until the error falls.
+    double damp = std::min(1.0, 1.0 / std::max(1e-300, step.cwiseAbs().maxCoeff()));
+    bool moved = false;
+    for (int tries = 0; tries < 30 && !moved; ++tries, damp *= 0.5) {
+      std::vector<double> trial = ohm;
+      for (std::size_t k = 0; k < n; ++k) trial[k] *= std::exp(damp * step[static_cast<Eigen::Index>(k)]);
+      const std::optional<std::vector<double>> qt = joint_quantities(s, pairs, at, trial);
+      if (!qt) continue;
+      const Eigen::VectorXd et = scaled(*qt);
+      if (et.norm() < e.norm()) {
+        ohm = trial;
+        q = qt;
+        e = et;
+        moved = true;
+      }
+    }
+    if (!moved) return sol;
+  }
+  return sol;
+}
+
+}  // namespace
+
 joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pairs) {
   validate_pairs(s, pairs);
+  if (pairs.size() > 1) {
+    joint_solution gs;
+    try {
+      gs = solve_one_at_a_time(s, pairs);
+    } catch (const input_error&) {
+      // One resistor cannot reach its target with the others where they are: all at once,
+      // from the file's values, may still find the point where every target holds.
+      std::vector<int> at(pairs.size());
+      std::vector<double> start;
+      for (std::size_t i = 0; i < pairs.size(); ++i) {
+        at[i] = target_stage(s, pairs[i].adjust, pairs[i].target);
+        stage probe = s;
+        const double v = *resistor_field(probe, pairs[i].adjust);
+        start.push_back(v > 0 ? v : 1e3);
+      }
+      joint_solution nj = solve_jointly(s, pairs, at, start);
+      if (nj.settled) return nj;
+      throw;
+    }
+    if (gs.settled) return gs;
+    std::vector<int> at(pairs.size());
+    for (std::size_t i = 0; i < pairs.size(); ++i) at[i] = target_stage(s, pairs[i].adjust, pairs[i].target);
+    joint_solution nj = solve_jointly(s, pairs, at, gs.ohm);
+    return nj.settled ? nj : gs;
+  }
+  return solve_one_at_a_time(s, pairs);
+}
+
+namespace {
+
+// Each resistor in turn with the others held at their latest values (block Gauss-Seidel).
+joint_solution solve_one_at_a_time(const stage& s, const std::vector<tune_pair>& pairs) {
   joint_solution sol;
   stage t = s;
   sol.ohm.assign(pairs.size(), NAN);
@@ -321,6 +444,8 @@ joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pai
   sol.rounds = joint_max_rounds;
   return sol;
 }
+
+}  // namespace
 
 std::vector<joint_candidate> joint_candidates(const stage& s, const std::vector<tune_pair>& pairs, const joint_solution& sol,
                                               base::eseries series) {

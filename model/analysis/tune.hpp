@@ -70,8 +70,9 @@ struct tune_pair {
 /// place at once.
 struct joint_solution {
   std::vector<double> ohm;  ///< one per pair, in the order given
-  int rounds{};             ///< rounds of one-at-a-time solves taken
+  int rounds{};             ///< rounds of one-at-a-time solves taken (Newton steps when all_at_once)
   bool settled{false};      ///< every target within joint_tolerance of its value
+  bool all_at_once{false};  ///< solved by the all-at-once Newton (solve_resistors says when)
 };
 
 /// When a joint solve has settled: each target quantity within 1e-6 of its value, relative,
@@ -91,8 +92,10 @@ void validate_pairs(const stage& s, const std::vector<tune_pair>& pairs);
 /// values, until every target is within joint_tolerance with all values in place; pairs that
 /// do not interact settle in the first round. Each solve looks first near the value in place
 /// (the design's, then the last round's: the root nearest it), and takes solve_resistor's
-/// full search where that finds none. One pair is solve_resistor itself. Throws input_error
-/// when a pair is out of reach (as solve_resistor does).
+/// full search where that finds none. Where a resistor cannot reach its target with the
+/// others where they are, or the rounds do not settle, every value is solved at once by a
+/// damped Newton iteration on log R (all_at_once). One pair is solve_resistor itself. Throws
+/// input_error when a pair is out of reach both ways (as solve_resistor does).
 joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pairs);
 
 /// Standard values around a joint solution: every combination of each resistor's nearest

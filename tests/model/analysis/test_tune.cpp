@@ -5,6 +5,7 @@
 
 #include "base/error.hpp"
 #include "model/analysis/tune.hpp"
+#include "model/circuit/stage_file.hpp"
 #include "support/stages.hpp"
 
 using namespace pinchoff;
@@ -211,4 +212,21 @@ TEST_CASE("two targets met together: a gain and a drain voltage, and the standar
     CHECK(k.achieved[0] == doctest::Approx(k.gain_db).epsilon(1e-15));
   }
   for (std::size_t k = 1; k < c.size(); ++k) CHECK(c[k].error >= c[k - 1].error);
+}
+
+TEST_CASE("two targets out of reach one resistor at a time are still met together") {
+  // On the clean preamp preset 20 dB is beyond the drain resistor alone while the source
+  // resistor stays at the file's 2.2 kΩ (at most 17.2 dB), yet with the drain at 9 V both
+  // hold together (13 kΩ and 6.8 kΩ are the nearest E24 pair). The stage built from the
+  // solved values gives both.
+  const stage s = read_stage_file(std::string(PINCHOFF_PRESETS_DIR) + "/clean-preamp-18v.toml");
+  const std::vector<tune_pair> pairs{{"drain.resistor", {target_kind::gain, 20.0}}, {"source.resistor", {target_kind::vd, 9.0}}};
+  CHECK_THROWS_AS(solve_resistor(s, "drain.resistor", {target_kind::gain, 20.0}), input_error);
+  const joint_solution sol = solve_resistors(s, pairs);
+  REQUIRE(sol.settled);
+  stage built = s;
+  built.drain_resistor_ohm = sol.ohm[0];
+  built.source.resistor_ohm = sol.ohm[1];
+  CHECK(std::fabs(midband_gain_db(built) - 20.0) < 0.01);
+  CHECK(std::fabs(evaluate_with(built, "drain.resistor", sol.ohm[0]).at.vd_v - 9.0) < 1e-4);
 }
