@@ -222,6 +222,8 @@ void print_json(const spread_report& rep, std::ostream& out) {
       e["idss_a"] = w.run->draw.idss_a;
       e["vp_v"] = w.run->draw.vp_v;
     }
+    // With --parts: the measured part (the first stage's in a chain).
+    if (w.run->draw.bag_index >= 0) e["part"] = rep.settings.parts[static_cast<std::size_t>(w.run->draw.bag_index)].name;
     e["supply_v"] = w.run->draw.supply_v;
     e["value"] = w.run->values.at(w.quantity);
     ws.push_back(e);

@@ -67,6 +67,12 @@ TEST_CASE("fit of a parts file: every part, the issue's JSON keys, and a parts t
     CHECK_FALSE(mj["sets"][0].contains("vgs_spread_v"));
     CHECK(mj["left_over"] == nlohmann::json::array({"B"}));
   }
+  // spread over the bag: every part once, the extremes named.
+  const result sp = run({"spread", std::string(PINCHOFF_PRESETS_DIR) + "/bass-booster-9v.toml", "--parts", table_path, "--json"});
+  REQUIRE(sp.status == 0);
+  const nlohmann::json sj = nlohmann::json::parse(sp.out);
+  CHECK(sj["runs"] == 3);
+  for (const auto& w : sj["worst"]) CHECK(w.contains("part"));
   const result v = run({"match", path, "--by", "vgs@1m", "--json"});
   REQUIRE(v.status == 0);
   CHECK(nlohmann::json::parse(v.out)["sets"][0].contains("vgs_spread_v"));
