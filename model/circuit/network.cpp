@@ -176,6 +176,13 @@ network build_network(const stage& s) {
       q.source = 0;
     }
 
+    // A bootstrap drives the gate resistor's foot from the source (validate() holds it to a
+    // follower whose gate resistor has a foot of its own); a feedback resistor runs from the
+    // drain back to the gate.
+    if (p.gate.bootstrap_cap_f > 0.0 && bias_node != 0 && bias_node != q.gate)
+      add_c(q.source, bias_node, p.gate.bootstrap_cap_f, cap_role::bootstrap, "gate.bootstrap");
+    if (p.gate.feedback_ohm > 0.0) add_r(q.drain, q.gate, p.gate.feedback_ohm, "gate.feedback");
+
     add_c(q.gate, q.source, p.jfet.cgs_f, cap_role::junction_gs, "jfet.cgs");
     add_c(q.gate, q.drain, p.jfet.cgd_f, cap_role::junction_gd, "jfet.cgd");
 

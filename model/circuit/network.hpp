@@ -26,6 +26,7 @@ enum class cap_role {
   capsule,              ///< a condenser capsule's own capacitance, from the generator to the gate: never shorted
   capsule_stray,        ///< stray capacitance from the capsule's gate to ground
   pickup_load,          ///< a pickup's own and its cable's capacitance, across its output: open in the mid-band
+  bootstrap,            ///< a follower's source to its gate resistor's foot: a short in the mid-band
 };
 
 /// What an inductor is in the circuit.

@@ -31,7 +31,7 @@ void residual(const network& net, const mna_system& lin, const Eigen::VectorXd& 
   for (const net_jfet& q : net.jfets) {
     const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
     const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
-    const junction_eval js = junction_current(q.device, vg - vs, net.vt_v);
+    const junction_eval js = gate_source_current(q.device, vg - vs, net.vt_v);
     const junction_eval jd = junction_current(q.device, vg - vd, net.vt_v);
     const double ad = std::fabs(vd), ag = std::fabs(vg), as = std::fabs(vs);
     const double gch = std::fabs(ch.gds_s) * ad + std::fabs(ch.gm_s) * ag + std::fabs(ch.gm_s + ch.gds_s) * as;
@@ -150,7 +150,7 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
       const junction_state& st = js_state[k];
       const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
       const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
-      const junction_eval js = junction_current(q.device, st.jgs, net.vt_v);
+      const junction_eval js = gate_source_current(q.device, st.jgs, net.vt_v);
       const junction_eval jd = junction_current(q.device, st.jgd, net.vt_v);
       const int nodes[3] = {q.drain, q.gate, q.source};
       const double did[3] = {ch.gds_s, ch.gm_s, -ch.gm_s - ch.gds_s};

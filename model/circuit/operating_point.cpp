@@ -13,7 +13,7 @@ terminal_point terminals_of(const network& net, const Eigen::VectorXd& x, int de
   const net_jfet& q = net.jfets[static_cast<std::size_t>(device)];
   const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
   const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
-  const double ig = junction_current(q.device, vg - vs, net.vt_v).i_a +
+  const double ig = gate_source_current(q.device, vg - vs, net.vt_v).i_a +
                     junction_current(q.device, vg - vd, net.vt_v).i_a;
   terminal_point t;
   t.vg_v = net.sign * vg;

@@ -10,8 +10,9 @@
 namespace pinchoff::model {
 namespace {
 
-constexpr std::array<std::string_view, 6> own_resistor_keys{"source.resistor", "source.unbypassed", "drain.resistor",
-                                                          "gate.bias_top",   "gate.bias_bottom",  "gate.resistor"};
+constexpr std::array<std::string_view, 7> own_resistor_keys{"source.resistor",  "source.unbypassed", "drain.resistor",
+                                                          "gate.bias_top",    "gate.bias_bottom",  "gate.resistor",
+                                                          "gate.feedback"};
 
 double* own_resistor(stage_parts& p, std::string_view key) noexcept {
   if (key == "source.resistor") return &p.source.resistor_ohm;
@@ -20,6 +21,7 @@ double* own_resistor(stage_parts& p, std::string_view key) noexcept {
   if (key == "gate.bias_top") return &p.gate.bias_top_ohm;
   if (key == "gate.bias_bottom") return &p.gate.bias_bottom_ohm;
   if (key == "gate.resistor") return &p.gate.resistor_ohm;
+  if (key == "gate.feedback") return &p.gate.feedback_ohm;
   if (key == "rail.resistance") return &p.rail.resistance_ohm;
   return nullptr;
 }
@@ -35,7 +37,11 @@ void validate_parts(const stage_parts& s, const std::string& prefix, bool last) 
   if (s.topo == topology::source_follower && !(s.source.resistor_ohm > 0) && !(s.source.unbypassed_ohm > 0))
     fail("a source follower needs source.resistor (the output is taken at the source)");
   const bool divider = s.gate.bias_top_ohm > 0 || s.gate.bias_bottom_ohm > 0;
-  if (divider && !(s.gate.bias_top_ohm > 0 && s.gate.bias_bottom_ohm > 0))
+  std::string extra_key;
+  if (const std::string m = gate_extras_problem(s, prefix, extra_key); !m.empty()) throw input_error(m);
+  // A bootstrapped gate resistor's foot may sit on gate.bias_bottom alone (to ground).
+  const bool foot_to_ground = s.gate.bootstrap_cap_f > 0 && s.gate.bias_bottom_ohm > 0 && !(s.gate.bias_top_ohm > 0);
+  if (divider && !foot_to_ground && !(s.gate.bias_top_ohm > 0 && s.gate.bias_bottom_ohm > 0))
     fail("a bias divider needs both gate.bias_top and gate.bias_bottom");
   if (s.gate.coupling_cap_f > 0 && !(s.gate.resistor_ohm > 0) && !divider)
     fail("the gate has no DC path: with gate.coupling_cap, give gate.resistor (to ground) or a bias divider");
@@ -104,6 +110,30 @@ double* resistor_field(stage& s, std::string_view key) noexcept {
   const auto [ptr, ec] = std::from_chars(key.data() + 5, key.data() + dot, n);
   if (ec != std::errc{} || ptr != key.data() + dot || n < 1 || n > s.stage_count()) return nullptr;
   return own_resistor(s.part(n - 1), key.substr(dot + 1));
+}
+
+std::string gate_extras_problem(const stage_parts& p, const std::string& prefix, std::string& key) {
+  if (p.gate.bootstrap_cap_f > 0) {
+    key = "gate.bootstrap";
+    const std::string k = prefix + key;
+    if (p.topo != topology::source_follower)
+      return k + " drives the gate resistor's foot from the source: it belongs to a source follower (topology = "
+                 "\"source-follower\"); a common-source stage's input resistance is its gate resistor's";
+    if (!(p.gate.resistor_ohm > 0))
+      return k + " needs " + prefix + "gate.resistor: the bootstrap drives that resistor's foot, so the resistor "
+                 "carries almost no signal current";
+    if (!(p.gate.bias_bottom_ohm > 0))
+      return k + " needs a DC path for the gate resistor's foot: " + prefix +
+             "gate.bias_bottom to ground (such as \"100k\"), or a divider, " + prefix + "gate.bias_top and " + prefix +
+             "gate.bias_bottom";
+  }
+  if (p.gate.feedback_ohm > 0 && p.topo != topology::common_source) {
+    key = "gate.feedback";
+    return prefix + key + " runs from the drain back to the gate of a common-source stage: a source follower's drain "
+                          "carries no signal to feed back";
+  }
+  key.clear();
+  return {};
 }
 
 void validate(const stage& s) {

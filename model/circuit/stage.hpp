@@ -42,6 +42,13 @@ struct gate_part {
   double resistor_ohm{0};     ///< gate to bias node; 0 = gate tied straight to the bias node
   double bias_top_ohm{0};     ///< divider from the supply; 0 = no divider (bias node = ground)
   double bias_bottom_ohm{0};
+  /// A source follower's bootstrap: a capacitor from the source to the gate resistor's foot
+  /// (the bias node), so the foot follows the gate and the resistor carries less signal
+  /// current; 0 = none.
+  double bootstrap_cap_f{0};
+  /// A common-source stage's drain-to-gate resistor (combination bias, shunt feedback);
+  /// 0 = none.
+  double feedback_ohm{0};
 };
 
 struct source_part {
@@ -168,6 +175,11 @@ inline double polarity_sign(const stage& s) noexcept { return s.pol == polarity:
 std::vector<std::string> adjustable_resistor_keys(const stage& s);
 /// The field behind an adjustable key, or nullptr when the key is not one.
 double* resistor_field(stage& s, std::string_view key) noexcept;
+
+/// What is wrong with a stage's gate bootstrap or feedback resistor, or empty: each belongs
+/// to one topology and needs the parts it connects to. `key` is set to the offending key
+/// ("gate.bootstrap", "gate.feedback"); `prefix` ("stage2.") goes before the keys a message names.
+std::string gate_extras_problem(const stage_parts& p, const std::string& prefix, std::string& key);
 
 /// Checks that the stage can have a DC operating point at all: the gate has a DC path,
 /// values are in range. Throws input_error naming the key. (The file reader calls it.)

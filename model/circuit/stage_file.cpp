@@ -112,7 +112,8 @@ const std::vector<section_spec>& stage_schema() {
                 {"flicker_exponent", unit::none, rule::positive, r::flicker_exponent},
                 {"gate_leakage", unit::ampere, rule::non_negative, r::gate_leakage}}},
       {"gate", {{"coupling_cap", unit::farad, rule::non_negative, capacitor}, {"resistor", unit::ohm, rule::positive, gate_resistor},
-                {"bias_top", unit::ohm, rule::positive, gate_resistor}, {"bias_bottom", unit::ohm, rule::positive, gate_resistor}}},
+                {"bias_top", unit::ohm, rule::positive, gate_resistor}, {"bias_bottom", unit::ohm, rule::positive, gate_resistor},
+                {"bootstrap", unit::farad, rule::non_negative, capacitor}, {"feedback", unit::ohm, rule::positive, gate_resistor}}},
       {"drain", {{"resistor", unit::ohm, rule::non_negative, optional_resistor}, {"shunt_cap", unit::farad, rule::non_negative, capacitor}}},
       {"source", {{"unbypassed", unit::ohm, rule::non_negative, optional_resistor}, {"resistor", unit::ohm, rule::positive, resistor},
                   {"bypass_cap", unit::farad, rule::non_negative, capacitor}}},
@@ -496,6 +497,8 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
   st.gate.resistor_ohm = g.get("gate.resistor");
   st.gate.bias_top_ohm = g.get("gate.bias_top");
   st.gate.bias_bottom_ohm = g.get("gate.bias_bottom");
+  st.gate.bootstrap_cap_f = g.get("gate.bootstrap");
+  st.gate.feedback_ohm = g.get("gate.feedback");
   st.drain_resistor_ohm = g.get("drain.resistor");
   st.drain_shunt_cap_f = g.get("drain.shunt_cap");
   st.source.unbypassed_ohm = g.get("source.unbypassed");
@@ -506,6 +509,13 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
   st.rail.resistance_ohm = g.get("rail.resistance");
   st.rail.capacitance_f = g.get("rail.capacitance");
   return st;
+}
+
+// A gate bootstrap or feedback resistor that does not fit the stage, refused at its key
+// (validate() holds stages built in code to the same).
+void check_gate_extras(const reader& rd, const gathered& g, const stage_parts& p, const std::string& prefix) {
+  std::string key;
+  if (const std::string m = gate_extras_problem(p, prefix, key); !m.empty()) rd.fail_at(g.where.at(key), prefix + key, m);
 }
 
 // The source's kind and its parts ([signal]). A capsule connects to the first stage's gate
@@ -747,6 +757,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
   if (!chain) {
     static_cast<stage_parts&>(st) = build_parts(rd, root, top, "", source_name, devices_file);
     if (top_topology) st.topo = *top_topology;
+    check_gate_extras(rd, top, st, "");
     supply_sign_check(st.pol);
   } else {
     const toml::array* arr = chain_node->as_array();
@@ -799,6 +810,7 @@ stage parse_stage(std::string_view text, std::string_view source_name, std::span
       }
       stage_parts p = build_parts(rd, t, g, prefix, source_name, devices_file);
       if (topo) p.topo = *topo;
+      check_gate_extras(rd, g, p, prefix);
       p.between = std::move(between);
       p.label = label;
       if (i == 0) static_cast<stage_parts&>(st) = std::move(p);

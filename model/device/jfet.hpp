@@ -20,7 +20,9 @@ struct jfet_params {
   // Noise only (the channel and junction equations above do not use them):
   double flicker_k{0.0};         ///< flicker noise current density K |id|^a / f (A^2/Hz at 1 Hz for a = 0), >= 0
   double flicker_exponent{1.0};  ///< a, the drain current's exponent in the flicker density
-  double gate_leakage_a{0.0};    ///< reverse gate leakage, magnitude (A): its shot noise 2 q I
+  /// Reverse gate leakage, magnitude (A): a constant current from the source into the gate
+  /// beside the junction's own (in the DC point and the time domain), and its shot noise 2 q I.
+  double gate_leakage_a{0.0};
 };
 
 /// Optional device ratings; a missing rating is not checked.
@@ -51,6 +53,14 @@ struct junction_eval {
   double g_s;
 };
 junction_eval junction_current(const jfet_params& p, double v, double vt_v) noexcept;
+/// The gate-source junction's current, gate -> source: the junction's, less the constant
+/// reverse leakage `gate_leakage_a` (which leaves the conductance unchanged). The gate-drain
+/// junction is junction_current() alone.
+inline junction_eval gate_source_current(const jfet_params& p, double vgs_v, double vt_v) noexcept {
+  junction_eval j = junction_current(p, vgs_v, vt_v);
+  j.i_a -= p.gate_leakage_a;
+  return j;
+}
 
 /// Thermal voltage k T / q with the exact SI constants (2019 redefinition).
 double thermal_voltage(double temperature_k) noexcept;

@@ -26,6 +26,7 @@ struct device_consts {
   double vto_v{};     ///< < 0 (n-channel frame)
   double lambda{};    ///< 1/V
   double is_a{};      ///< A (0: no junction current)
+  double leak_a{};    ///< the gate's constant reverse leakage, taken from igs (A)
   double nvt_v{};     ///< n Vt
   double inv_nvt{};   ///< 1 / (n Vt)
   double vcrit_v{};   ///< pnjlim critical voltage (infinite when is = 0)
@@ -39,6 +40,7 @@ struct device_consts {
     d.vto_v = p.vp_v;
     d.lambda = p.lambda_per_v;
     d.is_a = p.is_a > 0.0 ? p.is_a : 0.0;
+    d.leak_a = p.gate_leakage_a;
     d.nvt_v = p.n * vt_v;
     d.inv_nvt = 1.0 / d.nvt_v;
     d.vcrit_v = critical_voltage(p, vt_v);
@@ -98,6 +100,7 @@ inline void forward_channel(const device_consts& d, double vgs, double vds, doub
 inline port_currents evaluate_ports(const device_consts& d, double vgs, double vds) noexcept {
   port_currents c;
   junction(d, vgs, c.igs_a, c.ggs_s);
+  c.igs_a -= d.leak_a;  // gate_source_current(): the constant leakage beside the junction
   junction(d, vgs - vds, c.igd_a, c.ggd_s);
   if (vds >= 0.0) {
     forward_channel(d, vgs, vds, c.id_a, c.gm_s, c.gds_s);

@@ -2,8 +2,10 @@
 // than one JFET (one JFET takes the closed-form 2x2 solver of dk_single.cpp). The same
 // equations and the same acceptance argument with k devices: 2k port voltages v, 3k
 // currents i, the device Jacobian Jf block diagonal (one 3x2 block per JFET), and I - F Jf
-// (2k x 2k) factored by LU with partial pivoting (Golub & Van Loan, Matrix Computations,
-// Alg. 3.4.1) on every Newton iteration. The factorisation, the solves and the small
+// (2k x 2k) factored on every Newton iteration: by 2 x 2 blocks, one per JFET, without
+// pivoting where that is safe (block_factor_n; a chain's I - F Jf is nearly block lower
+// triangular), else by LU with partial pivoting (Golub & Van Loan, Matrix Computations,
+// Alg. 3.4.1). The factorisation, the solves and the small
 // products are plain loops: at these sizes (4 x 4 for two JFETs) Eigen's dynamic-size
 // kernels cost several times the arithmetic. Every vector and matrix is sized when the
 // solver is built, so a sample allocates nothing.
@@ -165,15 +167,145 @@ __attribute__((always_inline)) inline void abs_bound_n(const double* a, int n_rt
   }
 }
 
+// Block LU without pivoting, in 2 x 2 blocks (one per JFET), of the n x n column-major
+// matrix `a` in place: A = L U with L unit block lower triangular and U block upper
+// triangular (Golub & Van Loan, Matrix Computations, 4th ed., 3.2.11, block LU, from memory).
+// Each diagonal block of U is stored as its inverse (closed form: one division, as on the
+// one-JFET path), the blocks of L below it, the blocks of U above. A chain's I - F Jf is
+// nearly block lower triangular with each JFET's own 2 x 2 block on the diagonal, which the
+// one-JFET path inverts without pivoting: no pivot search, no row interchanges, k divisions
+// instead of 2k. Returns false (the matrix left unusable: factor it by lu_factor_n) where a
+// diagonal block, after the elimination, is not safely invertible: |det| not above 1e-3 of
+// |a00 a11| + |a01 a10| (its condition then too large to divide by without a pivot), or a
+// multiplier grew above 1e4 (the rounding of the factors then no longer small against A).
+template <int N>
+__attribute__((always_inline)) inline bool block_factor_n(double* a, int n_rt) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  constexpr int NL = N > 0 ? N : 1;
+  for (int b = 0; b < n; b += 2) {
+    double* d = a + b + b * n;
+    const double a00 = d[0], a10 = d[1], a01 = d[n], a11 = d[n + 1];
+    const double p0 = a00 * a11, p1 = a01 * a10;
+    const double det = p0 - p1;
+    if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
+    const double inv = 1.0 / det;
+    const double i00 = a11 * inv, i01 = -a01 * inv, i10 = -a10 * inv, i11 = a00 * inv;
+    d[0] = i00;
+    d[1] = i10;
+    d[n] = i01;
+    d[n + 1] = i11;
+    if (b + 2 >= n) break;
+    // L's blocks below: A_ib D^-1; rows not below the block multiplied by an exact 0 in the
+    // update (whole columns at the fixed size, as in lu_factor_n).
+    if constexpr (N > 0) {
+      double l0[NL], l1[NL];
+      double growth = 0.0;
+#pragma GCC unroll 16
+      for (int r = 0; r < N; ++r) {
+        const double x0 = a[r + b * N], x1 = a[r + (b + 1) * N];
+        const double m0 = x0 * i00 + x1 * i10, m1 = x0 * i01 + x1 * i11;
+        l0[r] = r > b + 1 ? m0 : 0.0;
+        l1[r] = r > b + 1 ? m1 : 0.0;
+        growth = std::max(growth, std::max(std::fabs(l0[r]), std::fabs(l1[r])));
+      }
+      if (!(growth <= 1e4)) return false;
+#pragma GCC unroll 16
+      for (int r = 0; r < N; ++r) {
+        a[r + b * N] = r > b + 1 ? l0[r] : a[r + b * N];
+        a[r + (b + 1) * N] = r > b + 1 ? l1[r] : a[r + (b + 1) * N];
+      }
+      for (int c = b + 2; c < N; ++c) {
+        const double u0 = a[b + c * N], u1 = a[b + 1 + c * N];
+#pragma GCC unroll 16
+        for (int r = 0; r < N; ++r) a[r + c * N] -= l0[r] * u0 + l1[r] * u1;
+      }
+    } else {
+      double growth = 0.0;
+      for (int r = b + 2; r < n; ++r) {
+        const double x0 = a[r + b * n], x1 = a[r + (b + 1) * n];
+        a[r + b * n] = x0 * i00 + x1 * i10;
+        a[r + (b + 1) * n] = x0 * i01 + x1 * i11;
+        growth = std::max(growth, std::max(std::fabs(a[r + b * n]), std::fabs(a[r + (b + 1) * n])));
+      }
+      if (!(growth <= 1e4)) return false;
+      for (int c = b + 2; c < n; ++c) {
+        const double u0 = a[b + c * n], u1 = a[b + 1 + c * n];
+        for (int r = b + 2; r < n; ++r) a[r + c * n] -= a[r + b * n] * u0 + a[r + (b + 1) * n] * u1;
+      }
+    }
+  }
+  return true;
+}
+
+// Solves (the matrix factored by block_factor_n) x = b in place: forward with L's blocks,
+// then back with U's, each diagonal block's inverse applied in closed form.
+template <int N>
+__attribute__((always_inline)) inline void block_solve_n(const double* a, int n_rt, double* x) noexcept {
+  const int n = N > 0 ? N : n_rt;
+#pragma GCC unroll 8
+  for (int b = 0; b + 2 < n; b += 2) {
+    const double x0 = x[b], x1 = x[b + 1];
+#pragma GCC unroll 16
+    for (int r = b + 2; r < n; ++r) x[r] -= a[r + b * n] * x0 + a[r + (b + 1) * n] * x1;
+  }
+#pragma GCC unroll 8
+  for (int b = n - 2; b >= 0; b -= 2) {
+    const double* d = a + b + b * n;
+    const double y0 = d[0] * x[b] + d[n] * x[b + 1], y1 = d[1] * x[b] + d[n + 1] * x[b + 1];
+    x[b] = y0;
+    x[b + 1] = y1;
+#pragma GCC unroll 16
+    for (int r = 0; r < b; ++r) x[r] -= a[r + b * n] * y0 + a[r + (b + 1) * n] * y1;
+  }
+}
+
+// A bound on |A^-1| t (t >= 0, in place) from the block factors (block_factor_n): with
+// A = L U, L = I + N_L (N_L strictly block lower) and U = D (I + D^-1 N_U) (N_U strictly
+// block upper), both N_L and D^-1 N_U are nilpotent, so their Neumann series end and
+// |L^-1| <= (I - |N_L|)^-1, |U^-1| <= (I - |D^-1| |N_U|)^-1 |D^-1|. So the forward and back
+// solves of block_solve_n with every entry's magnitude, D^-1's blocks taken exactly, bound
+// it: every term is non-negative, nothing cancels (the comparison-matrix argument of
+// abs_bound_n, by blocks).
+template <int N>
+__attribute__((always_inline)) inline void block_abs_bound_n(const double* a, int n_rt, double* x) noexcept {
+  const int n = N > 0 ? N : n_rt;
+#pragma GCC unroll 8
+  for (int b = 0; b + 2 < n; b += 2) {
+    const double x0 = x[b], x1 = x[b + 1];
+#pragma GCC unroll 16
+    for (int r = b + 2; r < n; ++r) x[r] += std::fabs(a[r + b * n]) * x0 + std::fabs(a[r + (b + 1) * n]) * x1;
+  }
+#pragma GCC unroll 8
+  for (int b = n - 2; b >= 0; b -= 2) {
+    const double* d = a + b + b * n;
+    const double y0 = std::fabs(d[0]) * x[b] + std::fabs(d[n]) * x[b + 1];
+    const double y1 = std::fabs(d[1]) * x[b] + std::fabs(d[n + 1]) * x[b + 1];
+    x[b] = y0;
+    x[b + 1] = y1;
+#pragma GCC unroll 16
+    for (int r = 0; r < b; ++r) x[r] += std::fabs(a[r + b * n]) * y0 + std::fabs(a[r + (b + 1) * n]) * y1;
+  }
+}
+
+// Factors of either kind: `blocked` says which (block_factor_n's or lu_factor_n's).
+template <int N>
+__attribute__((always_inline)) inline void factors_solve_n(const double* a, int n, const int* piv, bool blocked,
+                                                           double* b) noexcept {
+  if (blocked)
+    block_solve_n<N>(a, n, b);
+  else
+    lu_solve_n<N>(a, n, piv, b);
+}
+
 // |A^-1| t (t >= 0) from A's factors, forming A^-1 column by column in `scratch` (n x n):
 // the exact form of abs_bound_n's bound, for where that one is too coarse. Out of line.
 template <int N>
-__attribute__((noinline)) void exact_abs_bound(const double* a, int n, const int* piv, const double* t, double* scratch,
-                                               double* out) noexcept {
+__attribute__((noinline)) void exact_abs_bound(const double* a, int n, const int* piv, bool blocked, const double* t,
+                                               double* scratch, double* out) noexcept {
   for (int c = 0; c < n; ++c) {
     double* col = scratch + c * n;
     for (int r = 0; r < n; ++r) col[r] = r == c ? 1.0 : 0.0;
-    lu_solve_n<N>(a, n, piv, col);
+    factors_solve_n<N>(a, n, piv, blocked, col);
   }
   for (int r = 0; r < n; ++r) {
     double sum = 0.0;
@@ -207,22 +339,13 @@ double lu_factor(double* a, int n, int* piv) noexcept {
   }
 }
 
-void lu_solve(const double* a, int n, const int* piv, double* b) noexcept {
-  switch (n) {
-    case 4: lu_solve_n<4>(a, n, piv, b); return;
-    case 6: lu_solve_n<6>(a, n, piv, b); return;
-    case 8: lu_solve_n<8>(a, n, piv, b); return;
-    default: lu_solve_n<0>(a, n, piv, b); return;
-  }
-}
-
-// M = (I - F Jf)^-1 from its factors, column by column.
-void inverse_of(const Eigen::MatrixXd& lu, const std::vector<int>& piv, Eigen::MatrixXd& m) noexcept {
+// M = (I - F Jf)^-1 from its factors (of either kind), column by column.
+void inverse_of(const Eigen::MatrixXd& lu, const std::vector<int>& piv, bool blocked, Eigen::MatrixXd& m) noexcept {
   const int n = static_cast<int>(m.rows());
   for (int c = 0; c < n; ++c) {
     double* col = m.col(c).data();
     for (int r = 0; r < n; ++r) col[r] = r == c ? 1.0 : 0.0;
-    lu_solve(lu.data(), n, piv.data(), col);
+    factors_solve_n<0>(lu.data(), n, piv.data(), blocked, col);
   }
 }
 
@@ -310,6 +433,7 @@ void general_solver::port_set::resize(int k) {
   lu.setIdentity(2 * k, 2 * k);
   piv.resize(static_cast<std::size_t>(2 * k));
   for (int r = 0; r < 2 * k; ++r) piv[static_cast<std::size_t>(r)] = r;
+  blocked = false;
 }
 
 general_solver::general_solver(const network& net, const operating_point& op, dk_matrices m, const dk_options& opt)
@@ -395,6 +519,7 @@ void general_solver::point_general(const Eigen::VectorXd& v, port_set& out) noex
   }
   out.v = v;
   one_minus_f_jf(m_.f, g.cur, out.lu);
+  out.blocked = false;
   if (!(lu_factor(out.lu.data(), k * 2, out.piv.data()) > 0.0))
     out.lu.setConstant(std::numeric_limits<double>::quiet_NaN());
 }
@@ -416,7 +541,7 @@ void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
   g_.cj.noalias() = m_.c * g_.last().jf;
-  inverse_of(g_.last().lu, g_.last().piv, g_.mi);
+  inverse_of(g_.last().lu, g_.last().piv, g_.last().blocked, g_.mi);
   g_.md.noalias() = g_.mi * m_.d;
   apply_factor(g_.cj, g_.md, sensitivity);
 }
@@ -492,11 +617,17 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         }
       }
     }
-    // Its factors, straight into the point's (kept when this step is accepted), and the
-    // step d = (I - F Jf)^-1 r.
-    if (!(lu_factor_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data()) > 1e-200)) return false;
+    // Its factors, straight into the point's (kept when this step is accepted): by 2 x 2
+    // blocks where that is safe (block_factor_n), else with partial pivoting, I - F Jf
+    // formed again; and the step d = (I - F Jf)^-1 r.
+    out.blocked = opt_.block_factors && block_factor_n<lu_size_of(K)>(out.lu.data(), np);
+    if (!out.blocked) [[unlikely]] {
+      ++stats_.pivoted;
+      if (opt_.block_factors) one_minus_f_jf(m_.f, g.cur, out.lu);
+      if (!(lu_factor_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data()) > 1e-200)) return false;
+    }
     d = r;
-    lu_solve_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), d.data());
+    factors_solve_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), out.blocked, d.data());
     if (!d.allFinite()) return false;
 
     // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim), per JFET; the largest cut
@@ -543,9 +674,13 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         // comparison matrices can overstate |U^-1| by far where U's entries cancel), |M| t
         // itself, from M formed column by column.
         bound = t;
-        abs_bound_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), bound.data());
+        if (out.blocked)
+          block_abs_bound_n<lu_size_of(K)>(out.lu.data(), np, bound.data());
+        else
+          abs_bound_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), bound.data());
         if (!(bound.maxCoeff() <= tol)) [[unlikely]]
-          exact_abs_bound<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), t.data(), g.mi.data(), bound.data());
+          exact_abs_bound<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), out.blocked, t.data(), g.mi.data(),
+                                         bound.data());
         if (bound.maxCoeff() <= tol) {
           if (opt_.confirm) {
             bound = v + d;  // the accepted point (bound is free now)
@@ -615,7 +750,8 @@ __attribute__((noinline)) void general_solver::substep_general(const Eigen::Vect
         g.pj = g.p_last + (p - g.p_last) * frac;
       g.dp = g.pj - g.pc;
       g.mdl = g.dp;
-      lu_solve_n<lu_size_of(K)>(g.cur_pt.lu.data(), static_cast<int>(g.dp.size()), g.cur_pt.piv.data(), g.mdl.data());
+      factors_solve_n<lu_size_of(K)>(g.cur_pt.lu.data(), static_cast<int>(g.dp.size()), g.cur_pt.piv.data(),
+                                     g.cur_pt.blocked, g.mdl.data());
       g.guess = g.cur_pt.v + g.mdl;
       if (!s.solve_general<K>(g.pj, g.guess, g.next_pt, evals)) return false;
       g.cur_pt = g.next_pt;
@@ -658,7 +794,7 @@ double general_solver::process_k(double generator_v) noexcept {
       if (warm_[static_cast<std::size_t>(h)] == 0.0) continue;
       mdl = dp;
       const port_set& ph = g.back(h);
-      lu_solve_n<lu_size_of(K)>(ph.lu.data(), np, ph.piv.data(), mdl.data());
+      factors_solve_n<lu_size_of(K)>(ph.lu.data(), np, ph.piv.data(), ph.blocked, mdl.data());
       guess += warm_[static_cast<std::size_t>(h)] * mdl;
     }
   }

@@ -1,7 +1,8 @@
 #pragma once
 // The DK engine's solver for a network of any number k of JFETs: 2k port voltages, 3k
-// currents, the device Jacobian block diagonal, and I - F Jf (2k x 2k) factored by LU with
-// partial pivoting each Newton iteration (dk_general.cpp). The same acceptance bound,
+// currents, the device Jacobian block diagonal, and I - F Jf (2k x 2k) factored each Newton
+// iteration, by 2 x 2 blocks where that is safe, else by LU with partial pivoting
+// (dk_general.cpp). The same acceptance bound,
 // junction limiting, sub-stepping and DC start as the one-JFET solver (model/engine/
 // dk_acceptance.hpp, dk_steps.hpp). It meets the dk_solver interface (dk_solver.hpp) and
 // nothing else of the engine depends on its inside, so it can be replaced by any solver
@@ -38,7 +39,8 @@ class general_solver : public dk_solver_base {
     Eigen::VectorXd i;   ///< 3k device currents
     Eigen::MatrixXd jf;  ///< 3k x 2k, di/dv, block diagonal
     Eigen::MatrixXd lu;  ///< 2k x 2k: the LU factors of I - F Jf (dv/dp is its inverse)
-    std::vector<int> piv;  ///< the factors' row interchanges
+    std::vector<int> piv;  ///< the factors' row interchanges (when not blocked)
+    bool blocked{false};   ///< lu holds block factors in 2 x 2 blocks, no interchanges (dk_general.cpp)
     void resize(int k);
   };
   struct storage {

@@ -24,6 +24,10 @@ struct dk_options {
   /// of the samples); a processor always takes the same loop, so results repeat. false:
   /// the portable loop.
   bool wide_kernels{true};
+  /// More than one JFET: factor I - F Jf by 2 x 2 blocks, one per JFET, where that is safe
+  /// (model/engine/dk_general.cpp, block_factor_n), else with partial pivoting. false: with
+  /// partial pivoting always. Both are held to the same acceptance bound.
+  bool block_factors{true};
 };
 
 struct dk_stats {
@@ -33,6 +37,7 @@ struct dk_stats {
   long long substepped{0};       ///< samples that needed sub-steps and then converged
   long long failed{0};           ///< samples that did not converge even sub-stepped
   long long bound_misses{0};     ///< confirm mode: accepted points whose residual was too big
+  long long pivoted{0};          ///< more than one JFET: Newton steps factored with pivoting, not by blocks
   double mean_evaluations() const noexcept { return samples ? double(evaluations) / double(samples) : 0.0; }
 
   /// The statistics of two runs together: the counts summed, the most in one sample the
@@ -44,6 +49,7 @@ struct dk_stats {
     substepped += o.substepped;
     failed += o.failed;
     bound_misses += o.bound_misses;
+    pivoted += o.pivoted;
     return *this;
   }
 };

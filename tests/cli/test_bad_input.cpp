@@ -213,6 +213,13 @@ struct fixtures {
     write(f("pickup-nocap.toml"), with_line(with_line(pickup_stage, 12, ""), 13, ""));
     write(f("capsule-coil.toml"), with_line(capsule_stage, 11, "sensitivity = \"12m\"\ninductance = 2.5"));
     write(f("capsule-hot.toml"), with_line(capsule_stage, 11, "sensitivity = \"30m\""));
+    // ---- a gate's bootstrap and feedback resistor
+    write(f("boot-cs.toml"), with_line(good_stage, 9, "resistor = \"1M\"\nbias_bottom = \"100k\"\nbootstrap = \"10u\""));
+    write(f("boot-nofoot.toml"), with_line(capsule_stage, 13, "resistor = \"1G\"\nbootstrap = \"1u\""));
+    write(f("boot-norg.toml"), with_line(capsule_stage, 13, "bias_top = \"1G\"\nbias_bottom = \"1G\"\nbootstrap = \"1u\""));
+    write(f("boot-neg.toml"), with_line(capsule_stage, 13, "resistor = \"1G\"\nbias_bottom = \"1G\"\nbootstrap = -1"));
+    write(f("fb-follower.toml"), with_line(capsule_stage, 13, "resistor = \"1G\"\nfeedback = \"10M\""));
+    write(f("fb-huge.toml"), with_line(good_stage, 9, "resistor = \"1M\"\nfeedback = \"200G\""));
     write(f("phantom-name.toml"), with_line(capsule_stage, 4, "phantom = \"P36\""));
     write(f("phantom-p.toml"), with_line(with_line(good_stage, 3, "phantom = \"P48\""), 6, "vp = 1.8\npolarity = \"p\""));
     write(f("phantom-volts.toml"), with_line(capsule_stage, 4, "phantom = \"P48\"\nvolts = 48"));
@@ -775,6 +782,15 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"a capsule with no DC path at the gate", {"bias", "@capsule-nogate.toml"}, {"@capsule-nogate.toml:9:8", "passes no DC", "gate.resistor"}},
       {"a capsule sensitivity of 12 V/Pa", {"bias", "@capsule-sens.toml"}, {"@capsule-sens.toml:11:15", "signal.sensitivity", "V/Pa"}},
       {"a capsule of 10 nF", {"bias", "@capsule-big.toml"}, {"@capsule-big.toml:10:15", "signal.capacitance", "1 nF"}},
+
+      // ---- a gate's bootstrap (followers) and feedback resistor (common-source stages)
+      {"a bootstrap on a common-source stage", {"bias", "@boot-cs.toml"}, {"@boot-cs.toml:11:13", "gate.bootstrap", "belongs to a source follower"}},
+      {"a bootstrap with no DC path for the foot", {"bias", "@boot-nofoot.toml"}, {"@boot-nofoot.toml:14:13", "needs a DC path for the gate resistor's foot", "gate.bias_bottom"}},
+      {"a bootstrap without a gate resistor", {"bias", "@boot-norg.toml"}, {"@boot-norg.toml:15:13", "needs gate.resistor"}},
+      {"a negative bootstrap capacitor", {"bias", "@boot-neg.toml"}, {"@boot-neg.toml:15:13", "gate.bootstrap"}},
+      {"drain feedback on a follower", {"bias", "@fb-follower.toml"}, {"@fb-follower.toml:14:12", "gate.feedback", "carries no signal to feed back"}},
+      {"a feedback resistor of a teraohm", {"bias", "@fb-huge.toml"}, {"@fb-huge.toml:10:12", "gate.feedback", "100 G"}},
+      {"a bootstrap set on a common-source stage", {"bias", "@stage.toml", "--set", "gate.bootstrap=10u"}, {"gate.bootstrap", "belongs to a source follower"}},
       {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\", \"capsule\" or \"pickup\""}},
       {"sweep in dB SPL on a resistive source", {"sweep", "@stage.toml", "--drive", "94dBSPL"}, {"--drive", "'94dBSPL' is a sound pressure level", "capsule source"}},
       {"sweep --from in dB SPL on a resistive source", {"sweep", "@stage.toml", "--from", "80dBSPL", "--to", "120dBSPL"}, {"--from", "capsule source"}},

@@ -131,3 +131,24 @@ TEST_CASE("triode and cutoff bias are recognised") {
   CHECK(op.at.id_a < 1e-7);
   CHECK(op.at.id_a == doctest::Approx(closed_form_id(5e-3, -1.0, 1e8, 0.0)).epsilon(1e-6));
 }
+
+TEST_CASE("a gate's reverse leakage drops across the gate resistor: VG = I R, the current law") {
+  // A self-biased follower with its gate on 1 GΩ to ground and no junction current of its
+  // own (is = 0): the leakage leaves the gate through the resistor, so the gate sits at
+  // +I R for an n-channel part and -I R for a p-channel one (Kirchhoff's current law; the
+  // drift of a high-impedance gate with leakage is common practice). Then VGS = VG - ID RS
+  // with the square law: closed_form_id with vg = I R.
+  for (const bool p : {false, true}) {
+    CAPTURE(p);
+    const double s = p ? -1.0 : 1.0;
+    const double leak = 100e-12, rg = 1e9, rs = 1.5e3, idss = 6e-3, vp = -1.5 * s;
+    const std::string text = std::string("topology = \"source-follower\"\n[supply]\nvolts = ") + test::num(24.0 * s) +
+                             "\n[jfet]\n" + (p ? "polarity = \"p\"\n" : "") + "idss = \"6m\"\nvp = " + test::num(vp) +
+                             "\nis = 0\ngate_leakage = \"100p\"\n[gate]\ncoupling_cap = \"1u\"\nresistor = \"1G\"\n[source]\nresistor = \"1.5k\"\n";
+    const network net = build_network(test::stage_from(text));
+    const operating_point op = solve_operating_point(net);
+    CHECK(op.at.vg_v == doctest::Approx(s * leak * rg).epsilon(1e-6));
+    CHECK(op.at.ig_a == doctest::Approx(-s * leak).epsilon(1e-9));
+    CHECK(op.at.id_a == doctest::Approx(s * closed_form_id(idss, -1.5, rs, leak * rg)).epsilon(1e-7));
+  }
+}

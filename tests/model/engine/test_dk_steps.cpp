@@ -151,6 +151,7 @@ TEST_CASE("two runs' statistics add: counts summed, the most evaluations in one 
   a.substepped = 3;
   a.failed = 1;
   a.bound_misses = 2;
+  a.pivoted = 1;
   model::dk_stats b;
   b.samples = 24;
   b.evaluations = 50;
@@ -158,6 +159,7 @@ TEST_CASE("two runs' statistics add: counts summed, the most evaluations in one 
   b.substepped = 0;
   b.failed = 4;
   b.bound_misses = 5;
+  b.pivoted = 3;
   model::dk_stats sum = a;
   sum += b;
   CHECK(sum.samples == 1024);
@@ -166,6 +168,7 @@ TEST_CASE("two runs' statistics add: counts summed, the most evaluations in one 
   CHECK(sum.substepped == 3);
   CHECK(sum.failed == 5);
   CHECK(sum.bound_misses == 7);
+  CHECK(sum.pivoted == 4);
   CHECK(sum.mean_evaluations() == doctest::Approx(1550.0 / 1024.0));
   // The other way round gives the same, and adding nothing changes nothing.
   model::dk_stats rev = b;
