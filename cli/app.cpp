@@ -51,6 +51,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   register_response(app, commands, data);
   register_noise(app, commands, data);
   register_fit(app, commands, data);
+  register_match(app, commands, data);
   register_spread(app, commands, data);
   register_sweep(app, commands, data);
   register_imd(app, commands, data);

@@ -51,6 +51,7 @@ void register_tune(CLI::App& app, std::vector<command>& commands, const data_fil
 void register_response(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_noise(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_fit(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_match(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_spread(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_sweep(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_imd(CLI::App& app, std::vector<command>& commands, const data_files& data);

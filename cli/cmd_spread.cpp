@@ -51,14 +51,19 @@ const model::quantity_def& def_of(const std::string& name) {
 }
 
 // The drawn parts of a run: one JFET, or every stage's of a chain, and the supply.
-std::string part_text(const model::stage& st, const model::spread_run& r) {
+std::string part_text(const model::stage& st, const model::spread_run& r, const model::spread_settings& ss) {
+  // A measured part is named; its IDSS is the model's (at VDS = 0).
+  auto named = [&](int bag_index) {
+    return bag_index >= 0 ? "part " + ss.parts[static_cast<std::size_t>(bag_index)].name + ": " : std::string();
+  };
   if (!st.is_chain())
-    return "IDSS " + format_si(r.draw.idss_a, "A") + ", VP " + format_si(r.draw.vp_v, "V") + ", supply " +
-           format_si(r.draw.supply_v, "V");
-  std::string text = "stage1 IDSS " + format_si(r.draw.idss_a, "A") + ", VP " + format_si(r.draw.vp_v, "V");
+    return named(r.draw.bag_index) + "IDSS " + format_si(r.draw.idss_a, "A") + ", VP " + format_si(r.draw.vp_v, "V") +
+           ", supply " + format_si(r.draw.supply_v, "V");
+  std::string text = "stage1 " + named(r.draw.bag_index) + "IDSS " + format_si(r.draw.idss_a, "A") + ", VP " +
+                     format_si(r.draw.vp_v, "V");
   for (std::size_t k = 0; k < r.draw.later.size(); ++k)
-    text += "; stage" + std::to_string(k + 2) + " IDSS " + format_si(r.draw.later[k].idss_a, "A") + ", VP " +
-            format_si(r.draw.later[k].vp_v, "V");
+    text += "; stage" + std::to_string(k + 2) + " " + named(r.draw.later[k].bag_index) + "IDSS " +
+            format_si(r.draw.later[k].idss_a, "A") + ", VP " + format_si(r.draw.later[k].vp_v, "V");
   return text + "; supply " + format_si(r.draw.supply_v, "V");
 }
 
@@ -236,6 +241,8 @@ void print_json(const spread_report& rep, std::ostream& out) {
       e["idss_a"] = w.run->draw.idss_a;
       e["vp_v"] = w.run->draw.vp_v;
     }
+    // With --parts: the measured part (the first stage's in a chain).
+    if (w.run->draw.bag_index >= 0) e["part"] = rep.settings.parts[static_cast<std::size_t>(w.run->draw.bag_index)].name;
     e["supply_v"] = w.run->draw.supply_v;
     e["value"] = w.run->values.at(w.quantity);
     ws.push_back(e);
@@ -270,7 +277,7 @@ void print_text(const spread_report& rep, const std::string& plots, std::ostream
   text_table w({align::left, align::left, align::right, align::left});
   for (const auto& x : extremes(rep))
     w.add({x.side + " " + x.quantity, "run " + std::to_string(x.run->index),
-           value_text(def_of(x.quantity), x.run->values.at(x.quantity)), part_text(rep.st, *x.run)});
+           value_text(def_of(x.quantity), x.run->values.at(x.quantity)), part_text(rep.st, *x.run, rep.settings)});
   w.write(out);
   if (!plots.empty()) out << '\n' << plots;
 }
@@ -298,6 +305,7 @@ CLI::App* setup(CLI::App& app, spread_options& opt, const data_files& data) {
       "      the same part as the battery drains, with 5 % resistors\n"
       "  pinchoff spread presets/clean-preamp-18v.toml --idss 4m..12m --vp -1.5..-4 --plot batch.svg\n"
       "  pinchoff spread presets/bass-booster-9v.toml --class general-purpose --drive 300mVpk --require thd=..5\n"
+      "  pinchoff spread presets/bass-booster-9v.toml --parts parts.csv --require vd=3.5..6   (the bag on the bench)\n"
       "      how the distortion at a hard pluck spreads over a batch (thd in %)\n"
       "IDSS and |VP| are drawn with the given correlation (real batches: parts with a high IDSS\n"
       "also pinch off at a larger voltage). The yield counts runs biased in saturation that meet\n"
@@ -314,7 +322,8 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::
   rep.settings = spread_settings_from(opt.batch, rep.st, opt.input);
   const model::spread_settings& settings = rep.settings;
   auto varies = [](const std::optional<base::value_range>& r) { return r && r->lo != r->hi; };
-  if (!varies(settings.idss_a) && !varies(settings.vp_v) && !varies(settings.supply_v) && settings.resistor_tolerance == 0.0)
+  if (!varies(settings.idss_a) && !varies(settings.vp_v) && !varies(settings.supply_v) && settings.resistor_tolerance == 0.0 &&
+      settings.parts.size() < 2)
     err << "pinchoff spread: note: nothing varies from run to run (one IDSS, one VP, exact resistors, "
            "one supply voltage); give --idss and --vp ranges or a --class, --tolerance or --supply\n";
   model::run_extra extra;
@@ -353,6 +362,7 @@ void register_spread(CLI::App& app, std::vector<command>& commands, const data_f
             [opt] {
               command_files f;
               add_stage_inputs(f, opt->input.path, opt->input.devices);
+              if (!opt->batch.parts.empty()) f.inputs.push_back({"--parts", opt->batch.parts});
               if (opt->plot.empty()) return f;
               // The histograms' names depend on the stages the file holds.
               std::vector<model::requirement> reqs;

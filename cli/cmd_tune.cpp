@@ -1,4 +1,5 @@
 // pinchoff tune: the resistor value that puts the operating point on a target.
+#include <algorithm>
 #include <cmath>
 #include <memory>
 #include <string>
@@ -39,12 +40,13 @@ nlohmann::json point_json(const model::tune_point& p) {
 
 void print_table(const model::tune_result& r, std::ostream& out) {
   text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right,
-                align::left});
-  t.add({"", r.adjust, "VD", "VS", "VDS", "ID", "swing", "region"});
+                align::right, align::left});
+  t.add({"", r.adjust, "VD", "VS", "VDS", "ID", "gain", "swing", "region"});
   auto row = [&](const std::string& label, const model::tune_point& p) {
     t.add({label, format_si(p.value_ohm, "Ω", label == "exact" ? 4 : 3), format_si(p.at.vd_v, "V", 4),
            format_si(p.at.vs_v, "V", 4), format_si(p.at.vds_v, "V", 4), format_si(p.at.id_a, "A", 4),
-           format_si(p.headroom.symmetric_output_vpk, "V"), model::region_name(p.at.region)});
+           base::format_number(p.gain_db, 4) + " dB", format_si(p.headroom.symmetric_output_vpk, "V"),
+           model::region_name(p.at.region)});
   };
   row("exact", r.exact);
   for (const model::tune_candidate& c : r.candidates) {
@@ -57,7 +59,7 @@ void print_table(const model::tune_result& r, std::ostream& out) {
 void print_text(const model::stage& st, const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
   out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << r.adjust << "\n\n";
   print_table(r, out);
-  out << "\n  swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
+  out << "\n  gain: mid-band, generator to load; swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
 }
 
 nlohmann::json result_json(const model::tune_target& target, const model::tune_result& r) {
@@ -67,12 +69,14 @@ nlohmann::json result_json(const model::tune_target& target, const model::tune_r
   j["target"] = model::target_text(target);
   j["exact"] = {{"value_ohm", r.exact_ohm},
                 {"operating_point", point_json(r.exact)},
+                {"gain_db", r.exact.gain_db},
                 {"symmetric_output_vpk", r.exact.headroom.symmetric_output_vpk}};
   nlohmann::json cands = nlohmann::json::array();
   for (const auto& c : r.candidates)
     cands.push_back({{"series", c.series},
                      {"value_ohm", c.point.value_ohm},
                      {"operating_point", point_json(c.point)},
+                     {"gain_db", c.point.gain_db},
                      {"symmetric_output_vpk", c.point.headroom.symmetric_output_vpk}});
   j["candidates"] = cands;
   return j;
@@ -161,7 +165,8 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("tune", "Find the resistor value that puts the bias on a target");
   add_stage_input(*sub, opt.input, data);
   sub->add_option("--target", opt.target_texts,
-                  "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, or center (largest symmetric clean swing); "
+                  "What to hit: vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, gain=DB (mid-band, generator to load), or center "
+                  "(largest symmetric clean swing); "
                   "in a chain, of the adjusted stage or of the one named: stage2.vd=4.5. Repeatable, each with its "
                   "--adjust in the same order: the resistors are solved together")
       ->required()
@@ -169,9 +174,9 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
   std::string keys;
   for (const std::string& k : model::adjustable_resistor_keys(model::stage{})) keys += (keys.empty() ? "" : ", ") + k;
   sub->add_option("--adjust", opt.adjusts,
-                  "The resistor to solve for (default source.resistor): " + keys +
+                  "The resistor to solve for (default source.resistor; drain.resistor for a gain alone): " + keys +
                       "; in a chain stageN. before a stage's own (stage2.drain.resistor), and stageN.rail.resistance. "
-                      "Repeatable, one for each --target")
+                      "Repeatable, one for each --target, or a list: --adjust drain.resistor,source.resistor")
       ->type_name("KEY");
   sub->add_option("--series", opt.series, "Standard values to offer: E12, E24 or E96")->capture_default_str();
   sub->add_flag("--json", opt.json, "Machine-readable output");
@@ -184,8 +189,13 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
       "      the source resistor that puts the drain at 4.5 V, and the nearest E24 values\n"
       "  pinchoff tune presets/clean-preamp-18v.toml --target center --adjust drain.resistor\n"
       "      the drain resistor that gives the largest symmetric clean swing\n"
-      "  pinchoff tune presets/bass-booster-9v.toml --target id=1m --series E12\n"
+      "  pinchoff tune presets/bass-booster-9v.toml --target id=1m --series E12\n"      "  pinchoff tune presets/clean-preamp-18v.toml --target gain=20dB --adjust source.unbypassed\n"
+      "  pinchoff tune presets/clean-preamp-18v.toml --target gain=20dB --target vd=9 \\\n"
+      "      --adjust drain.resistor,source.resistor\n"
+      "      the drain and source resistors that give 20 dB with the drain at 9 V, and the\n"
+      "      standard-value pairs around them\n"
       "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5 --over-spread --idss 2m..8m --vp -0.8..-3\n"
+      "  pinchoff tune presets/bass-booster-9v.toml --target vd=4.5 --over-spread --parts parts.csv\n"
       "      the source resistance each part of a batch needs, and a fixed resistor plus trimmer\n"
       "      (standard values 100 Ω to 1 MΩ in 1-2-5 steps) that covers them\n"
       "  pinchoff tune presets/two-stage-boost-9v.toml --target stage2.vd=4.5 --adjust stage2.source.resistor\n"
@@ -202,7 +212,20 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
 // The --adjust/--target pairs, in the order given; a chain's stage key without its stage
 // belongs to the target's stage.
 std::vector<model::tune_pair> pairs_of(const tune_options& opt, const model::stage& st) {
-  const std::vector<std::string> adjusts = opt.adjusts.empty() ? std::vector<std::string>{"source.resistor"} : opt.adjusts;
+  // --adjust drain.resistor,source.resistor is two --adjust; one gain target alone adjusts
+  // the drain resistor unless told otherwise.
+  std::vector<std::string> adjusts;
+  for (const std::string& a : opt.adjusts)
+    for (std::size_t from = 0;;) {
+      const std::size_t comma = a.find(',', from);
+      adjusts.push_back(a.substr(from, comma == std::string::npos ? std::string::npos : comma - from));
+      if (comma == std::string::npos) break;
+      from = comma + 1;
+    }
+  if (adjusts.empty())
+    adjusts.push_back(opt.target_texts.size() == 1 && parse_target(opt.target_texts[0]).kind == model::target_kind::gain
+                          ? "drain.resistor"
+                          : "source.resistor");
   if (adjusts.size() != opt.target_texts.size())
     throw input_error("--adjust and --target come in pairs: " + std::to_string(opt.target_texts.size()) + " --target but " +
                       std::to_string(adjusts.size()) + " --adjust (give one --adjust for each --target, in the same order)");
@@ -221,26 +244,86 @@ std::vector<model::tune_pair> pairs_of(const tune_options& opt, const model::sta
   return pairs;
 }
 
+// The standard-value combinations around the joint solution, closest to the targets first.
+void print_joint_candidates(const std::vector<model::tune_pair>& pairs, const std::vector<model::joint_candidate>& cands,
+                            base::eseries series, std::ostream& out) {
+  std::vector<align> cols{align::left};
+  std::vector<std::string> head{""};
+  for (const model::tune_pair& p : pairs) {
+    cols.push_back(align::right);
+    head.push_back(p.adjust);
+  }
+  for (const model::tune_pair& p : pairs) {
+    cols.push_back(align::right);
+    head.push_back(p.target.kind == model::target_kind::gain ? "gain" : model::target_text(p.target).substr(0, model::target_text(p.target).find(' ')));
+  }
+  const bool gain_shown = std::any_of(pairs.begin(), pairs.end(), [](const model::tune_pair& p) { return p.target.kind == model::target_kind::gain; });
+  if (!gain_shown) {
+    cols.push_back(align::right);
+    head.push_back("gain");
+  }
+  text_table t(cols);
+  t.add(head);
+  int k = 0;
+  for (const model::joint_candidate& c : cands) {
+    std::vector<std::string> row{std::string(base::series_name(series)) + " " + std::to_string(++k)};
+    for (double v : c.ohm) row.push_back(format_si(v, "Ω"));
+    for (std::size_t i = 0; i < pairs.size(); ++i)
+      row.push_back(pairs[i].target.kind == model::target_kind::gain
+                        ? base::format_number(c.achieved[i], 4) + " dB"
+                        : format_si(c.achieved[i], pairs[i].target.kind == model::target_kind::id ? "A" : "V", 4));
+    if (!gain_shown) row.push_back(base::format_number(c.gain_db, 4) + " dB");
+    t.add(row);
+  }
+  out << "\n  standard values around the joint solution, closest to the targets first\n\n";
+  t.write(out);
+}
+
 // Several pairs: each resistor's table at the values solved together (the others held at theirs).
 void print_pairs_text(const model::stage& st, const std::vector<model::tune_pair>& pairs, const model::joint_solution& sol,
-                      const std::vector<model::tune_result>& results, std::ostream& out) {
+                      const std::vector<model::tune_result>& results, const std::vector<model::joint_candidate>& cands,
+                      base::eseries series, std::ostream& out) {
   out << st.name << "\n  " << pairs.size() << " resistors solved together, in " << sol.rounds
-      << (sol.rounds == 1 ? " round" : " rounds") << " (each target within 1 ppm + 1 µV or 1 nA)\n";
+      << (sol.all_at_once ? (sol.rounds == 1 ? " step, all at once" : " steps, all at once")
+                          : (sol.rounds == 1 ? " round" : " rounds"))
+      << " (each target within 1 ppm + 1 µV or 1 nA; a gain within 1e-5 dB)\n";
   for (std::size_t k = 0; k < pairs.size(); ++k) {
     out << "\n  target " << model::target_text(pairs[k].target) << ", adjusting " << results[k].adjust << "\n\n";
     print_table(results[k], out);
   }
-  out << "\n  each table holds the other resistors at their exact values\n"
-         "  swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
+  print_joint_candidates(pairs, cands, series, out);
+  out << "\n  each table above holds the other resistors at their exact values\n"
+         "  gain: mid-band, generator to load; swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
 }
 
 void print_pairs_json(const std::vector<model::tune_pair>& pairs, const model::joint_solution& sol,
-                      const std::vector<model::tune_result>& results, std::ostream& out) {
+                      const std::vector<model::tune_result>& results, const std::vector<model::joint_candidate>& cands,
+                      base::eseries series, std::ostream& out) {
   nlohmann::json j;
   j["rounds"] = sol.rounds;
+  j["all_at_once"] = sol.all_at_once;
+  nlohmann::json adjust = nlohmann::json::array(), targets = nlohmann::json::array();
+  for (const model::tune_pair& p : pairs) {
+    adjust.push_back(p.adjust);
+    targets.push_back(model::target_text(p.target));
+  }
+  j["adjust"] = adjust;
+  j["target"] = targets;
+  j["exact_ohm"] = sol.ohm;
   nlohmann::json ps = nlohmann::json::array();
   for (std::size_t k = 0; k < pairs.size(); ++k) ps.push_back(result_json(pairs[k].target, results[k]));
   j["pairs"] = ps;
+  nlohmann::json cs = nlohmann::json::array();
+  for (const model::joint_candidate& c : cands) {
+    nlohmann::json ops = nlohmann::json::array();
+    for (const model::terminal_point& at : c.at) ops.push_back(operating_point_json(at));
+    cs.push_back({{"series", base::series_name(series)},
+                  {"values_ohm", c.ohm},
+                  {"achieved", c.achieved},
+                  {"gain_db", c.gain_db},
+                  {"operating_points", ops}});
+  }
+  j["candidates"] = cs;
   out << json_text(j) << '\n';
 }
 
@@ -278,8 +361,9 @@ void run(const tune_options& opt, std::ostream& out) {
       if (m != k) *model::resistor_field(others, pairs[m].adjust) = sol.ohm[m];
     results.push_back(model::tune_resistor(others, pairs[k].adjust, pairs[k].target, series));
   }
-  if (opt.json) return print_pairs_json(pairs, sol, results, out);
-  print_pairs_text(st, pairs, sol, results, out);
+  const std::vector<model::joint_candidate> cands = model::joint_candidates(st, pairs, sol, series);
+  if (opt.json) return print_pairs_json(pairs, sol, results, cands, series, out);
+  print_pairs_text(st, pairs, sol, results, cands, series, out);
 }
 
 }  // namespace

@@ -1,5 +1,8 @@
 #include "cli/common.hpp"
 
+#include "base/csv.hpp"
+#include "model/device/fit.hpp"
+
 #include <cmath>
 
 #include <optional>
@@ -151,7 +154,12 @@ void add_spread_options(CLI::App& sub, spread_input& in) {
   sub.add_option("--runs", in.runs,
                  "Number of Monte Carlo runs, 1 to " + std::to_string(model::max_spread_runs) +
                      " (that many pin the yield to within 0.16 %; each run takes about 0.5 ms and 1 KB)")
-      ->capture_default_str();
+      ->capture_default_str()
+      ->each([&in](const std::string&) { in.runs_given = true; });
+  sub.add_option("--parts", in.parts,
+                 "Measured parts in place of IDSS and VP ranges: a parts table (`fit --csv`) or a bag's readings. Every "
+                 "part once; with --runs, drawn from the bag")
+      ->type_name("PARTS.csv");
   sub.add_option("--seed", in.seed, "Seed: the same seed gives the same runs")->capture_default_str();
   sub.add_option("--threads", in.threads, "Threads, 0 (one per core) to 256; results do not depend on it")->capture_default_str();
 }
@@ -163,12 +171,14 @@ void map_spread_fields(std::map<std::string, std::string, std::less<>>& options_
                             {"correlation", "--correlation"},
                             {"resistor_tolerance", "--tolerance"},
                             {"runs", "--runs"},
-                            {"threads", "--threads"}});
+                            {"threads", "--threads"},
+                            {"parts", "--parts"}});
 }
 
 model::spread_settings spread_settings_from(const spread_input& in, const model::stage& st, const stage_input& stage) {
   model::spread_settings s;
-  std::optional<model::device_class> cls = st.jfet_class;
+  // Measured parts take the place of the class's ranges (a range given as well is refused).
+  std::optional<model::device_class> cls = in.parts.empty() ? st.jfet_class : std::nullopt;
   if (!in.device_class.empty()) cls = model::find_device_class(in.device_class, model::device_file_for(stage.path, stage.devices));
   if (cls) {
     const double sign = model::polarity_sign(st);
@@ -185,6 +195,13 @@ model::spread_settings spread_settings_from(const spread_input& in, const model:
   s.runs = in.runs;
   s.seed = in.seed;
   s.threads = in.threads;
+  if (!in.parts.empty()) {
+    const base::csv_table t = base::read_csv_file(in.parts, model::bench_readings_file_kind, model::bench_layout());
+    s.parts = model::parts_for_spread(model::read_parts(t), st);
+    s.parts_source = t.source;
+    s.parts_drawn = in.runs_given;
+    if (!in.runs_given) s.runs = static_cast<int>(s.parts.size());
+  }
   return s;
 }
 
@@ -193,9 +210,14 @@ std::string describe_spread(const model::spread_settings& s, const model::stage&
   std::string d = std::to_string(s.runs) + " runs, seed " + std::to_string(s.seed) + ": ";
   auto range = [](const base::value_range& r, const char* u) { return format_si(r.lo, u) + " to " + format_si(r.hi, u); };
   if (!s.class_name.empty()) d += "class " + s.class_name + ", ";
-  d += "IDSS " + (s.idss_a ? range(*s.idss_a, "A") : format_si(st.jfet.idss_a, "A") + " fixed");
-  d += ", VP " + (s.vp_v ? range(*s.vp_v, "V") : format_si(st.jfet.vp_v, "V") + " fixed");
-  if (s.idss_a && s.vp_v) d += " (correlation " + base::format_number(s.correlation, 2) + ")";
+  if (!s.parts.empty()) {
+    d += (s.parts_drawn ? "parts drawn from the " : "every part once of the ") + std::to_string(s.parts.size()) +
+         " in " + s.parts_source;
+  } else {
+    d += "IDSS " + (s.idss_a ? range(*s.idss_a, "A") : format_si(st.jfet.idss_a, "A") + " fixed");
+    d += ", VP " + (s.vp_v ? range(*s.vp_v, "V") : format_si(st.jfet.vp_v, "V") + " fixed");
+    if (s.idss_a && s.vp_v) d += " (correlation " + base::format_number(s.correlation, 2) + ")";
+  }
   d += s.distribution == model::spread_distribution::uniform ? ", uniform" : ", normal";
   d += ", resistors " + (s.resistor_tolerance > 0 ? "±" + base::format_number(100 * s.resistor_tolerance, 2) + " %" : std::string("exact"));
   d += ", supply " + (s.supply_v ? range(*s.supply_v, "V") : format_si(st.supply.volts_v, "V"));

@@ -93,8 +93,10 @@ namespace pinchoff::cli {
 
 struct spread_input {
   std::string idss, vp, supply, tolerance, distribution{"uniform"}, device_class;
+  std::string parts;        ///< --parts: a parts table or a bag's readings
   double correlation{0.7};
   int runs{2000};
+  bool runs_given{false};   ///< --runs was given (with --parts: draw from the bag)
   std::uint64_t seed{1};
   int threads{0};
 };

@@ -1,12 +1,15 @@
 #pragma once
 // The small languages of option values, read into the structured values the model takes:
 //   --set KEY=VALUE          -> model::stage_override   ("drain.resistor=4.7k", "name=Boost")
-//   --target vd=4.5          -> model::tune_target      (vd, id, vds, vs = a value; or center)
+//   --target vd=4.5          -> model::tune_target      (vd, id, vds, vs = a value; gain=20dB; or center)
 //   --require vd=3.5..5.5    -> model::requirement      (either end may be left open)
 //   --set 2:KEY=VALUE        -> design_set              (compare: one design's override)
+//   --by idss,vp | vgs@1m    -> match_by                (match: what makes parts alike)
+//   --tolerance 2%,20mV      -> the match_settings tolerances
 // Each throws input_error naming the option and the text given, with an example.
 // Header-only: the fuzz targets, which link only the libraries below cli/, call these too.
 #include <algorithm>
+#include <cmath>
 #include <charconv>
 #include <cstddef>
 #include <system_error>
@@ -18,6 +21,7 @@
 #include "model/analysis/spread.hpp"
 #include "model/analysis/tune.hpp"
 #include "model/circuit/stage_file.hpp"
+#include "model/device/match.hpp"
 
 namespace pinchoff::cli {
 
@@ -95,13 +99,26 @@ inline model::tune_target parse_target(std::string_view full) {
   const std::string_view name = text.substr(0, eq);
   model::tune_target t;
   t.stage = stage;
+  if (name == "gain") {
+    // Mid-band gain in dB: "gain=20dB" or "gain=20".
+    t.kind = model::target_kind::gain;
+    if (eq == std::string_view::npos) throw input_error("--target 'gain': give a value, for example --target gain=20dB");
+    std::string_view v = text.substr(eq + 1);
+    if (v.size() > 2 && (v.substr(v.size() - 2) == "dB" || v.substr(v.size() - 2) == "db")) v.remove_suffix(2);
+    const auto db = base::try_parse_value(v);
+    if (!db || !(std::fabs(*db) <= 200.0))
+      throw input_error("--target gain: cannot read '" + std::string(text.substr(eq + 1)) +
+                        "' as a gain in dB from -200 to 200 (for example --target gain=20dB)");
+    t.value = *db;
+    return t;
+  }
   if (name == "vd") t.kind = model::target_kind::vd;
   else if (name == "id") t.kind = model::target_kind::id;
   else if (name == "vds") t.kind = model::target_kind::vds;
   else if (name == "vs") t.kind = model::target_kind::vs;
   else
     throw input_error("--target '" + std::string(text) +
-                      "': expected vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS or center (for example --target vd=4.5)");
+                      "': expected vd=VOLTS, id=AMPS, vds=VOLTS, vs=VOLTS, gain=DB or center (for example --target vd=4.5)");
   if (eq == std::string_view::npos)
     throw input_error("--target '" + std::string(text) + "': give a value, for example --target " + std::string(name) +
                       (t.kind == model::target_kind::id ? "=1m" : "=4.5"));
@@ -141,6 +158,55 @@ inline model::requirement parse_requirement(std::string_view text) {
   if (a.empty() && b.empty()) throw input_error(what + ": give at least one end of the range");
   if (r.lo > r.hi) throw input_error(what + ": the range has its minimum above its maximum");
   return r;
+}
+
+/// match's "--by": "idss,vp" (either order) or "vgs@CURRENT" ("vgs@1m", "vgs@1mA").
+struct match_by {
+  model::match_basis basis{model::match_basis::idss_and_vp};
+  double current_a{};
+};
+inline match_by parse_match_by(std::string_view text) {
+  if (text == "idss,vp" || text == "vp,idss") return {};
+  if (text.substr(0, 4) == "vgs@") {
+    const double i = base::parse_value(text.substr(4), base::unit::ampere, "--by vgs@");
+    if (!(i > 0)) throw input_error("--by " + std::string(text) + ": the drain current must be above 0, for example --by vgs@1m");
+    return {model::match_basis::vgs_at_current, i};
+  }
+  throw input_error("--by '" + std::string(text) + "': expected idss,vp or vgs@CURRENT (for example --by vgs@1m)");
+}
+
+/// match's "--tolerance": with --by idss,vp a percentage of IDSS, a voltage of VP, or both
+/// ("2%", "20mV", "2%,20mV"); with --by vgs@I a voltage of VGS ("5mV").
+inline void parse_match_tolerance(std::string_view text, model::match_basis basis, model::match_settings& s) {
+  const std::string all(text);
+  const std::string example = basis == model::match_basis::idss_and_vp ? "2%,20mV" : "5mV";
+  std::size_t from = 0;
+  int pieces = 0;
+  while (from <= text.size()) {
+    const std::size_t comma = std::min(text.find(',', from), text.size());
+    std::string_view piece = text.substr(from, comma - from);
+    while (!piece.empty() && piece.front() == ' ') piece.remove_prefix(1);
+    while (!piece.empty() && piece.back() == ' ') piece.remove_suffix(1);
+    ++pieces;
+    if (!piece.empty() && piece.back() == '%' && basis == model::match_basis::idss_and_vp && !s.idss_tolerance_ratio) {
+      const auto v = base::try_parse_value(piece.substr(0, piece.size() - 1));
+      if (!v || !(*v > 0 && *v < 100)) throw input_error("--tolerance '" + all + "': the IDSS tolerance is a percentage above 0 and below 100, for example " + example);
+      s.idss_tolerance_ratio = std::log1p(*v / 100.0);
+    } else if (!piece.empty() && piece.back() == 'V') {
+      const auto v = base::try_parse_value(piece, base::unit::volt);
+      if (!v || !(*v > 0 && *v <= 10)) throw input_error("--tolerance '" + all + "': a voltage tolerance is above 0 and at most 10 V, for example " + example);
+      if (basis == model::match_basis::vgs_at_current && !s.vgs_tolerance_v) s.vgs_tolerance_v = *v;
+      else if (basis == model::match_basis::idss_and_vp && !s.vp_tolerance_v) s.vp_tolerance_v = *v;
+      else throw input_error("--tolerance '" + all + "': give each tolerance once, for example " + example);
+    } else {
+      throw input_error("--tolerance '" + all + "': expected " +
+                        (basis == model::match_basis::idss_and_vp ? std::string("a percentage of IDSS and/or a voltage of VP (with V), for example 2%,20mV")
+                                                                  : std::string("a voltage of VGS (with V), for example 5mV")));
+    }
+    if (comma == text.size()) break;
+    from = comma + 1;
+  }
+  if (pieces > 2) throw input_error("--tolerance '" + all + "': at most two tolerances, for example " + example);
 }
 
 }  // namespace pinchoff::cli

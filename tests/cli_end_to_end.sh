@@ -77,6 +77,13 @@ check "version" 0 "$bin" --version
 printf 'rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,0.16m\n' > "$tmp/jig.csv"
 check "fit" 0 "$bin" fit "$tmp/jig.csv"
 grep -q '^\[jfet\]' "$tmp/out" || { echo "FAIL: fit printed no [jfet] block"; fail=1; }
+printf 'part,vgs_v,id_a\nA,0,5 mA\nA,-0.5,2.8125m\nA,-1,1.25m\nB,0,4m\nB,-0.5,2.25m\nB,-1,1m\nC,0,5.05m\nC,-0.5,2.857m\nC,-1,1.275m\n' > "$tmp/bag.csv"
+check "fit of a bag" 0 "$bin" fit "$tmp/bag.csv" --csv
+cp "$tmp/out" "$tmp/parts.csv"
+check "match" 0 "$bin" match "$tmp/parts.csv" --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert j["sets"][0]["parts"] == ["A", "C"] and j["left_over"] == ["B"]' "$tmp/out" || { echo "FAIL: match"; cat "$tmp/out"; fail=1; }
+check "tune over a bag" 0 "$bin" tune "$presets/bass-booster-9v.toml" --target vd=4.5 --over-spread --parts "$tmp/parts.csv"
+grep -q "every part once of the 3" "$tmp/out" || { echo "FAIL: tune over a bag"; cat "$tmp/out"; fail=1; }
 # A report that standard output cannot take (a full disk, /dev/full, a closed descriptor) is
 # exit 1 with a message on stderr, never success with the report cut short.
 stdout_fails() { # description, full|closed, command...

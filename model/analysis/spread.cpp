@@ -1,4 +1,5 @@
 #include "model/analysis/spread.hpp"
+#include "model/device/fit.hpp"
 
 #include <algorithm>
 #include <cmath>
@@ -66,6 +67,34 @@ void validate(const spread_settings& s, const stage& st) {
                                     " (100,000 runs give the yield to within 0.16 %; each run takes about 0.5 ms and "
                                     "1 KB, so more would take minutes and gigabytes for no better answer)");
   base::check_thread_count(s.threads);
+  if (!s.parts.empty()) {
+    if (s.idss_a || s.vp_v)
+      throw setting_error("parts", "measured parts take the place of the IDSS and VP ranges: give one or the other");
+    if (!s.parts_drawn && s.runs != static_cast<int>(s.parts.size()))
+      throw setting_error("runs", "every part once is " + std::to_string(s.parts.size()) + " runs, got " + std::to_string(s.runs));
+    for (const bag_part& p : s.parts)
+      if (!(sign * p.vp_v < 0))
+        throw setting_error("parts", "part '" + p.name + "' is " + (sign > 0 ? "p" : "n") + "-channel and the stage is not");
+  }
+}
+
+std::vector<bag_part> parts_for_spread(const std::vector<part_figures>& parts, const stage& st) {
+  std::vector<bag_part> out;
+  const double sign = polarity_sign(st);
+  for (const part_figures& p : parts) {
+    if ((p.p_channel ? -1.0 : 1.0) != sign)
+      throw setting_error("parts", "part '" + p.name + "' is " + (p.p_channel ? "p" : "n") + "-channel and the stage is not");
+    bag_part b;
+    b.name = p.name;
+    // A fitted lambda is the part's own; else the stage's lambda carries IDSS from the VDS
+    // it was measured at to the model's VDS = 0.
+    const double lambda = p.lambda_per_v > 0.0 ? p.lambda_per_v : st.jfet.lambda_per_v;
+    b.idss_a = p.idss_a / (1.0 + lambda * p.idss_vds_v);
+    b.vp_v = p.vp_v;
+    if (p.lambda_per_v > 0.0) b.lambda_per_v = p.lambda_per_v;
+    out.push_back(std::move(b));
+  }
+  return out;
 }
 
 spread_draw draw_part(const spread_settings& s, const stage& st, int index) {
@@ -91,7 +120,19 @@ spread_draw draw_part(const spread_settings& s, const stage& st, int index) {
       vp = p.jfet.vp_v;
     }
   };
-  draw_jfet(st, d.idss_a, d.vp_v);
+  // Measured parts: every part once (in a chain stage k takes the part k further on), or
+  // drawn from the bag.
+  const std::size_t bag = s.parts.size();
+  auto take_part = [&](int stage_index, double& idss, double& vp, double& lambda, int& at) {
+    at = s.parts_drawn ? static_cast<int>(std::min<double>(static_cast<double>(bag) - 1, std::floor(g.unit() * static_cast<double>(bag))))
+                       : static_cast<int>((static_cast<std::size_t>(index) + static_cast<std::size_t>(stage_index)) % bag);
+    const bag_part& p = s.parts[static_cast<std::size_t>(at)];
+    idss = p.idss_a;
+    vp = p.vp_v;
+    lambda = p.lambda_per_v;
+  };
+  if (bag > 0) take_part(0, d.idss_a, d.vp_v, d.lambda_per_v, d.bag_index);
+  else draw_jfet(st, d.idss_a, d.vp_v);
   const double us = g.unit();
   d.supply_v = s.supply_v ? s.supply_v->lo + (s.supply_v->hi - s.supply_v->lo) * us : st.supply.volts_v;
   const std::size_t resistors = adjustable_resistor_keys(st).size();
@@ -113,7 +154,8 @@ spread_draw draw_part(const spread_settings& s, const stage& st, int index) {
   // A chain's later parts come after, so a single stage draws what it always drew.
   for (const stage_parts& p : st.later) {
     spread_draw::part& q = d.later.emplace_back();
-    draw_jfet(p, q.idss_a, q.vp_v);
+    if (bag > 0) take_part(static_cast<int>(d.later.size()), q.idss_a, q.vp_v, q.lambda_per_v, q.bag_index);
+    else draw_jfet(p, q.idss_a, q.vp_v);
   }
   return d;
 }
@@ -122,10 +164,12 @@ stage apply_draw(const stage& st, const spread_draw& d) {
   stage s = st;
   s.jfet.idss_a = d.idss_a;
   s.jfet.vp_v = d.vp_v;
+  if (!std::isnan(d.lambda_per_v)) s.jfet.lambda_per_v = d.lambda_per_v;
   s.supply.volts_v = d.supply_v;
   for (std::size_t k = 0; k < d.later.size() && k < s.later.size(); ++k) {
     s.later[k].jfet.idss_a = d.later[k].idss_a;
     s.later[k].jfet.vp_v = d.later[k].vp_v;
+    if (!std::isnan(d.later[k].lambda_per_v)) s.later[k].jfet.lambda_per_v = d.later[k].lambda_per_v;
   }
   const auto keys = adjustable_resistor_keys(s);
   for (std::size_t k = 0; k < keys.size(); ++k) *resistor_field(s, keys[k]) *= d.resistor_factors[k];

@@ -3,6 +3,7 @@
 // correlated, as in real batches), resistor tolerances and a supply range (a draining
 // battery). Deterministic for a seed and independent of the thread count: every run draws
 // from its own generator seeded from (seed, run index).
+#include <cmath>
 #include <cstdint>
 #include <functional>
 #include <map>
@@ -17,6 +18,8 @@
 
 namespace pinchoff::model {
 
+struct part_figures;
+
 enum class spread_distribution { uniform, normal };
 
 /// The most Monte Carlo runs one spread takes. At 100,000 runs a yield is known to within
@@ -26,6 +29,14 @@ enum class spread_distribution { uniform, normal };
 inline constexpr int max_spread_runs = 100000;
 /// The most threads a spread starts: each is a system thread, and beyond the cores they only
 /// wait their turn (a thread per run of 100,000 runs exhausted the process's threads).
+
+/// A measured part a spread takes in place of drawn ranges: the model's values (IDSS at
+/// VDS = 0, real signs), made from a bench figure by parts_for_spread.
+struct bag_part {
+  std::string name;
+  double idss_a{}, vp_v{};
+  double lambda_per_v{NAN};  ///< the part's own, when fitted; NaN: the stage's
+};
 
 struct spread_settings {
   std::optional<base::value_range> idss_a;  ///< absent: the stage's value
@@ -38,18 +49,31 @@ struct spread_settings {
   std::uint64_t seed{1};
   int threads{0};                ///< 0: one per core; at most base::max_threads
   std::string class_name;        ///< the device class the ranges came from, if any
+  /// Measured parts in place of the IDSS and VP ranges. Every part once (runs = the number
+  /// of parts; run i takes part i, and in a chain stage k takes part (i + k) mod n), or, with
+  /// parts_drawn, each run's parts drawn from the bag at random.
+  std::vector<bag_part> parts;
+  bool parts_drawn{false};
+  std::string parts_source;      ///< the file the parts came from, for reports
 };
 
+/// The parts of a bag as a spread of `st` takes them: IDSS at VDS = 0 with the part's own
+/// lambda when it was fitted (else the stage's). Throws setting_error of the field "parts"
+/// for a part of the other polarity.
+std::vector<bag_part> parts_for_spread(const std::vector<part_figures>& parts, const stage& st);
+
 /// Checks ranges, correlation, tolerance and runs; throws setting_error naming the field
-/// ("idss_a", "vp_v", "supply_v", "correlation", "resistor_tolerance", "runs").
+/// ("idss_a", "vp_v", "supply_v", "correlation", "resistor_tolerance", "runs", "parts").
 void validate(const spread_settings& s, const stage& st);
 
 /// One drawn part and supply: the stage with these values substituted. In a chain every JFET
 /// is drawn on its own (the IDSS-VP correlation holds within each part).
 struct spread_draw {
   double idss_a{}, vp_v{}, supply_v{};   ///< the first (or only) stage's part, and the supply
+  double lambda_per_v{NAN};              ///< a measured part's own lambda; NaN: the stage's
+  int bag_index{-1};                     ///< the measured part taken (settings.parts), or -1
   std::vector<double> resistor_factors;  ///< one per adjustable_resistor_keys(stage) entry
-  struct part { double idss_a{}, vp_v{}; };
+  struct part { double idss_a{}, vp_v{}; double lambda_per_v{NAN}; int bag_index{-1}; };
   std::vector<part> later;               ///< a chain's second and later parts
 };
 

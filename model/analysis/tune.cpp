@@ -7,6 +7,9 @@
 #include "base/error.hpp"
 #include "base/units.hpp"
 #include "model/circuit/network.hpp"
+#include "model/analysis/small_signal.hpp"
+
+#include <Eigen/Dense>
 
 namespace pinchoff::model {
 namespace {
@@ -18,11 +21,12 @@ double quantity(const tune_target& t, const tune_point& p) {
     case target_kind::vds: return p.at.vds_v;
     case target_kind::vs: return p.at.vs_v;
     case target_kind::center: return p.headroom.symmetric_output_vpk;
+    case target_kind::gain: return p.gain_db;
   }
   return 0.0;
 }
 
-const char* quantity_unit(target_kind k) { return k == target_kind::id ? "A" : "V"; }
+const char* quantity_unit(target_kind k) { return k == target_kind::id ? "A" : (k == target_kind::gain ? "dB" : "V"); }
 const char* quantity_name(target_kind k) {
   switch (k) {
     case target_kind::vd: return "vd";
@@ -30,17 +34,24 @@ const char* quantity_name(target_kind k) {
     case target_kind::vds: return "vds";
     case target_kind::vs: return "vs";
     case target_kind::center: return "center";
+    case target_kind::gain: return "gain";
   }
   return "";
 }
 
-tune_point evaluate_point(const stage& s, std::string_view adjust_key, double value_ohm, bool with_headroom, int at_stage) {
+double gain_db_of(const network& net, const operating_point& op) {
+  return base::db_from_ratio(std::fabs(analyse_small_signal(net, op).gain_midband));
+}
+
+tune_point evaluate_point(const stage& s, std::string_view adjust_key, double value_ohm, bool with_headroom, int at_stage,
+                          bool with_gain) {
   stage copy = s;
   *resistor_field(copy, adjust_key) = value_ohm;
   const network net = build_network(copy);
   const operating_point op = solve_operating_point(net);
   tune_point p{value_ohm, at_stage == 0 ? op.at : terminals_of(net, op.x, at_stage), {}};
   if (with_headroom) p.headroom = analyse_headroom(net, op, headroom_detail::swing_only);
+  if (with_gain) p.gain_db = gain_db_of(net, op);
   return p;
 }
 
@@ -49,11 +60,12 @@ tune_point evaluate_point(const stage& s, std::string_view adjust_key, double va
 std::string target_text(const tune_target& t) {
   if (t.kind == target_kind::center) return "center (largest symmetric clean swing)";
   const std::string who = t.stage >= 0 ? "stage" + std::to_string(t.stage + 1) + "." : std::string();
+  if (t.kind == target_kind::gain) return "gain = " + base::format_number(t.value, 4) + " dB (mid-band)";
   return who + quantity_name(t.kind) + " = " + base::format_si(t.value, quantity_unit(t.kind), 4);
 }
 
 tune_point evaluate_with(const stage& s, std::string_view adjust_key, double value_ohm, int at_stage) {
-  return evaluate_point(s, adjust_key, value_ohm, true, at_stage);
+  return evaluate_point(s, adjust_key, value_ohm, true, at_stage, true);
 }
 
 int target_stage(const stage& s, std::string_view adjust_key, const tune_target& target) {
@@ -92,7 +104,7 @@ double solve_resistor(const stage& s, std::string_view adjust_key, const tune_ta
       stage t = s;
       *resistor_field(t, adjust_key) = r;
       validate(t);
-      return evaluate_point(s, adjust_key, r, want_center, at_stage);
+      return evaluate_point(s, adjust_key, r, want_center, at_stage, target.kind == target_kind::gain);
     } catch (const std::exception&) {
       return std::nullopt;
     }
@@ -175,7 +187,14 @@ double solve_resistor(const stage& s, std::string_view adjust_key, const tune_ta
 }
 
 double joint_tolerance(const tune_target& t) noexcept {
+  // A gain within 1e-5 dB: a ratio within about 1 ppm, as the bias targets.
+  if (t.kind == target_kind::gain) return 1e-5;
   return 1e-6 * std::fabs(t.value) + (t.kind == target_kind::id ? 1e-9 : 1e-6);
+}
+
+double midband_gain_db(const stage& s) {
+  const network net = build_network(s);
+  return gain_db_of(net, solve_operating_point(net));
 }
 
 void validate_pairs(const stage& s, const std::vector<tune_pair>& pairs) {
@@ -216,7 +235,8 @@ std::optional<double> solve_near(const stage& s, std::string_view key, const tun
       stage t = s;
       *resistor_field(t, key) = std::exp(lr);
       validate(t);
-      return quantity(target, evaluate_point(s, key, std::exp(lr), false, at_stage)) - target.value;
+      return quantity(target, evaluate_point(s, key, std::exp(lr), false, at_stage, target.kind == target_kind::gain)) -
+             target.value;
     } catch (const std::exception&) {
       return std::nullopt;
     }
@@ -262,8 +282,129 @@ std::optional<double> solve_near(const stage& s, std::string_view key, const tun
 
 }  // namespace
 
+namespace {
+
+joint_solution solve_one_at_a_time(const stage& s, const std::vector<tune_pair>& pairs);
+
+// Every pair's target quantity with the resistors at `ohm`; empty when the stage refuses the
+// values or has no operating point there.
+std::optional<std::vector<double>> joint_quantities(const stage& s, const std::vector<tune_pair>& pairs,
+                                                     const std::vector<int>& at, const std::vector<double>& ohm) {
+  try {
+    stage t = s;
+    for (std::size_t i = 0; i < pairs.size(); ++i) {
+      if (!(ohm[i] >= tune_min_ohm && ohm[i] <= tune_max_ohm)) return std::nullopt;
+      *resistor_field(t, pairs[i].adjust) = ohm[i];
+    }
+    validate(t);
+    const network net = build_network(t);
+    const operating_point op = solve_operating_point(net);
+    const bool any_gain = std::any_of(pairs.begin(), pairs.end(), [](const tune_pair& p) { return p.target.kind == target_kind::gain; });
+    const double gain = any_gain ? gain_db_of(net, op) : NAN;
+    std::vector<double> q;
+    for (std::size_t i = 0; i < pairs.size(); ++i)
+      q.push_back(quantity(pairs[i].target, tune_point{ohm[i], at[i] == 0 ? op.at : terminals_of(net, op.x, at[i]), {}, gain}));
+    return q;
+  } catch (const std::exception&) {
+    return std::nullopt;
+  }
+}
+
+// All pairs at once: damped Newton on log R with a finite-difference Jacobian, the errors
+// scaled to 1 V, 1 mA or 1 dB. Taken where solving one resistor at a time cannot start (a
+// target out of reach of its resistor while the others sit at the file's values) or does not
+// settle.
+joint_solution solve_jointly(const stage& s, const std::vector<tune_pair>& pairs, const std::vector<int>& at,
+                             std::vector<double> ohm) {
+  const std::size_t n = pairs.size();
+  auto scaled = [&](const std::vector<double>& q) {
+    Eigen::VectorXd e(static_cast<Eigen::Index>(n));
+    for (std::size_t i = 0; i < n; ++i)
+      e[static_cast<Eigen::Index>(i)] = (q[i] - pairs[i].target.value) / (pairs[i].target.kind == target_kind::id ? 1e-3 : 1.0);
+    return e;
+  };
+  joint_solution sol;
+  sol.ohm = ohm;
+  sol.all_at_once = true;
+  std::optional<std::vector<double>> q = joint_quantities(s, pairs, at, ohm);
+  if (!q) return sol;
+  Eigen::VectorXd e = scaled(*q);
+  for (sol.rounds = 1; sol.rounds <= 100; ++sol.rounds) {
+    bool settled = true;
+    for (std::size_t i = 0; i < n; ++i) settled = settled && std::fabs((*q)[i] - pairs[i].target.value) <= joint_tolerance(pairs[i].target);
+    if (settled) {
+      sol.ohm = ohm;
+      sol.settled = true;
+      return sol;
+    }
+    Eigen::MatrixXd jm(static_cast<Eigen::Index>(n), static_cast<Eigen::Index>(n));
+    for (std::size_t k = 0; k < n; ++k) {
+      std::vector<double> bumped = ohm;
+      const double h = 1e-5;
+      bumped[k] *= std::exp(h);
+      const std::optional<std::vector<double>> qb = joint_quantities(s, pairs, at, bumped);
+      if (!qb) return sol;
+      jm.col(static_cast<Eigen::Index>(k)) = (scaled(*qb) - e) / h;
+    }
+    const Eigen::VectorXd step = jm.colPivHouseholderQr().solve(-e);
+    if (!step.allFinite()) return sol;
+    // Damped: at most a factor e (2.7) per resistor a step, halved until the error falls.
+    double damp = std::min(1.0, 1.0 / std::max(1e-300, step.cwiseAbs().maxCoeff()));
+    bool moved = false;
+    for (int tries = 0; tries < 30 && !moved; ++tries, damp *= 0.5) {
+      std::vector<double> trial = ohm;
+      for (std::size_t k = 0; k < n; ++k) trial[k] *= std::exp(damp * step[static_cast<Eigen::Index>(k)]);
+      const std::optional<std::vector<double>> qt = joint_quantities(s, pairs, at, trial);
+      if (!qt) continue;
+      const Eigen::VectorXd et = scaled(*qt);
+      if (et.norm() < e.norm()) {
+        ohm = trial;
+        q = qt;
+        e = et;
+        moved = true;
+      }
+    }
+    if (!moved) return sol;
+  }
+  return sol;
+}
+
+}  // namespace
+
 joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pairs) {
   validate_pairs(s, pairs);
+  if (pairs.size() > 1) {
+    joint_solution gs;
+    try {
+      gs = solve_one_at_a_time(s, pairs);
+    } catch (const input_error&) {
+      // One resistor cannot reach its target with the others where they are: all at once,
+      // from the file's values, may still find the point where every target holds.
+      std::vector<int> at(pairs.size());
+      std::vector<double> start;
+      for (std::size_t i = 0; i < pairs.size(); ++i) {
+        at[i] = target_stage(s, pairs[i].adjust, pairs[i].target);
+        stage probe = s;
+        const double v = *resistor_field(probe, pairs[i].adjust);
+        start.push_back(v > 0 ? v : 1e3);
+      }
+      joint_solution nj = solve_jointly(s, pairs, at, start);
+      if (nj.settled) return nj;
+      throw;
+    }
+    if (gs.settled) return gs;
+    std::vector<int> at(pairs.size());
+    for (std::size_t i = 0; i < pairs.size(); ++i) at[i] = target_stage(s, pairs[i].adjust, pairs[i].target);
+    joint_solution nj = solve_jointly(s, pairs, at, gs.ohm);
+    return nj.settled ? nj : gs;
+  }
+  return solve_one_at_a_time(s, pairs);
+}
+
+namespace {
+
+// Each resistor in turn with the others held at their latest values (block Gauss-Seidel).
+joint_solution solve_one_at_a_time(const stage& s, const std::vector<tune_pair>& pairs) {
   joint_solution sol;
   stage t = s;
   sol.ohm.assign(pairs.size(), NAN);
@@ -289,8 +430,10 @@ joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pai
     const network net = build_network(t);
     const operating_point op = solve_operating_point(net);
     bool settled = true;
+    const bool any_gain = std::any_of(pairs.begin(), pairs.end(), [](const tune_pair& p) { return p.target.kind == target_kind::gain; });
+    const double gain = any_gain ? gain_db_of(net, op) : NAN;
     for (std::size_t i = 0; i < pairs.size(); ++i) {
-      const tune_point p{sol.ohm[i], at[i] == 0 ? op.at : terminals_of(net, op.x, at[i]), {}};
+      const tune_point p{sol.ohm[i], at[i] == 0 ? op.at : terminals_of(net, op.x, at[i]), {}, gain};
       settled = settled && std::fabs(quantity(pairs[i].target, p) - pairs[i].target.value) <= joint_tolerance(pairs[i].target);
     }
     if (settled) {
@@ -300,6 +443,54 @@ joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pai
   }
   sol.rounds = joint_max_rounds;
   return sol;
+}
+
+}  // namespace
+
+std::vector<joint_candidate> joint_candidates(const stage& s, const std::vector<tune_pair>& pairs, const joint_solution& sol,
+                                              base::eseries series) {
+  std::vector<int> at(pairs.size());
+  for (std::size_t i = 0; i < pairs.size(); ++i) at[i] = target_stage(s, pairs[i].adjust, pairs[i].target);
+  // Each resistor's choices: the series values at or below and at or above its exact value.
+  std::vector<std::vector<double>> choices(pairs.size());
+  for (std::size_t i = 0; i < pairs.size(); ++i) {
+    const double below = base::series_at_or_below(series, sol.ohm[i]);
+    const double above = base::series_at_or_above(series, sol.ohm[i]);
+    choices[i] = below == above ? std::vector<double>{below} : std::vector<double>{below, above};
+  }
+  std::vector<joint_candidate> out;
+  std::vector<std::size_t> pick(pairs.size(), 0);
+  for (;;) {
+    joint_candidate c;
+    stage t = s;
+    for (std::size_t i = 0; i < pairs.size(); ++i) {
+      c.ohm.push_back(choices[i][pick[i]]);
+      *resistor_field(t, pairs[i].adjust) = c.ohm.back();
+    }
+    try {
+      validate(t);
+      const network net = build_network(t);
+      const operating_point op = solve_operating_point(net);
+      c.gain_db = gain_db_of(net, op);
+      for (std::size_t i = 0; i < pairs.size(); ++i) {
+        const tune_point p{c.ohm[i], at[i] == 0 ? op.at : terminals_of(net, op.x, at[i]), {}, c.gain_db};
+        c.at.push_back(p.at);
+        const double got = quantity(pairs[i].target, p), want = pairs[i].target.value;
+        c.achieved.push_back(got);
+        const double rel = pairs[i].target.kind == target_kind::gain ? base::ratio_from_db(got - want) - 1.0
+                                                                      : (got - want) / std::max(std::fabs(want), 1e-12);
+        c.error += rel * rel;
+      }
+      out.push_back(std::move(c));
+    } catch (const std::exception&) {
+      // A combination the stage refuses or cannot bias is simply not offered.
+    }
+    std::size_t i = 0;
+    while (i < pick.size() && ++pick[i] == choices[i].size()) pick[i++] = 0;
+    if (i == pick.size()) break;
+  }
+  std::stable_sort(out.begin(), out.end(), [](const joint_candidate& a, const joint_candidate& b) { return a.error < b.error; });
+  return out;
 }
 
 tune_result tune_resistor(const stage& s, std::string_view adjust_key, const tune_target& target, base::eseries series) {

@@ -1,5 +1,6 @@
 #pragma once
 // Solving for one resistor that puts the operating point where the builder wants it.
+#include <cmath>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -11,10 +12,12 @@
 
 namespace pinchoff::model {
 
-enum class target_kind { vd, id, vds, vs, center };
+enum class target_kind { vd, id, vds, vs, center, gain };
 
-/// A bias target: a terminal quantity (vd, vds, vs in volts, id in amperes, real signs) to
-/// hit, or center (the bias with the largest symmetric clean output swing; value unused).
+/// A target: a terminal quantity (vd, vds, vs in volts, id in amperes, real signs) to hit,
+/// center (the bias with the largest symmetric clean output swing; value unused), or gain
+/// (the design's mid-band gain from the generator to the load, in dB; usually set by the
+/// drain resistor or the unbypassed source resistor).
 struct tune_target {
   target_kind kind{target_kind::vd};
   double value{};
@@ -27,6 +30,7 @@ struct tune_point {
   double value_ohm{};
   terminal_point at;          ///< of the target's stage
   headroom_figures headroom;
+  double gain_db{NAN};        ///< the design's mid-band gain, generator to load (NaN while searching a bias target)
 };
 
 struct tune_candidate {
@@ -66,8 +70,9 @@ struct tune_pair {
 /// place at once.
 struct joint_solution {
   std::vector<double> ohm;  ///< one per pair, in the order given
-  int rounds{};             ///< rounds of one-at-a-time solves taken
+  int rounds{};             ///< rounds of one-at-a-time solves taken (Newton steps when all_at_once)
   bool settled{false};      ///< every target within joint_tolerance of its value
+  bool all_at_once{false};  ///< solved by the all-at-once Newton (solve_resistors says when)
 };
 
 /// When a joint solve has settled: each target quantity within 1e-6 of its value, relative,
@@ -87,9 +92,28 @@ void validate_pairs(const stage& s, const std::vector<tune_pair>& pairs);
 /// values, until every target is within joint_tolerance with all values in place; pairs that
 /// do not interact settle in the first round. Each solve looks first near the value in place
 /// (the design's, then the last round's: the root nearest it), and takes solve_resistor's
-/// full search where that finds none. One pair is solve_resistor itself. Throws input_error
-/// when a pair is out of reach (as solve_resistor does).
+/// full search where that finds none. Where a resistor cannot reach its target with the
+/// others where they are, or the rounds do not settle, every value is solved at once by a
+/// damped Newton iteration on log R (all_at_once). One pair is solve_resistor itself. Throws
+/// input_error when a pair is out of reach both ways (as solve_resistor does).
 joint_solution solve_resistors(const stage& s, const std::vector<tune_pair>& pairs);
+
+/// Standard values around a joint solution: every combination of each resistor's nearest
+/// series values below and above its exact value, evaluated with all of them in place, the
+/// closest to the targets first (by the sum of squared relative errors; a gain's error
+/// taken as a voltage ratio).
+struct joint_candidate {
+  std::vector<double> ohm;                ///< one per pair
+  std::vector<terminal_point> at;         ///< the operating point of each pair's target stage
+  std::vector<double> achieved;           ///< each pair's target quantity with these values
+  double gain_db{};                       ///< the design's mid-band gain
+  double error{};                         ///< the sum of squared relative errors
+};
+std::vector<joint_candidate> joint_candidates(const stage& s, const std::vector<tune_pair>& pairs,
+                                              const joint_solution& sol, base::eseries series);
+
+/// The design's mid-band gain (generator to load) in dB with the stage as it is.
+double midband_gain_db(const stage& s);
 
 /// The stage a target's terminals belong to: its own `stage`, else the adjusted key's
 /// ("stage2.drain.resistor": 1), else 0 for a single stage. A chain's shared key with no

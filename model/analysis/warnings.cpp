@@ -29,6 +29,11 @@ std::vector<std::string> operating_warnings(const stage& s, const network& net, 
     if (ratings.vds_max_v && std::fabs(t.vds_v) > *ratings.vds_max_v)
       w.push_back(who + "vds " + format_si(std::fabs(t.vds_v), "V") + " exceeds the rating vds_max " +
                   format_si(*ratings.vds_max_v, "V"));
+    else if (ratings.vds_max_v && std::fabs(s.supply.volts_v) > *ratings.vds_max_v)
+      // When the channel cuts off (at power-up, or at the top of a large swing) the drain
+      // rises to the rail and the whole supply stands across the part (common practice).
+      w.push_back(who + "the supply " + format_si(std::fabs(s.supply.volts_v), "V") + " exceeds the rating vds_max " +
+                  format_si(*ratings.vds_max_v, "V") + ": the drain reaches the rail when the JFET cuts off");
     const double pd = std::fabs(t.id_a * t.vds_v);
     if (ratings.pd_max_w && pd > *ratings.pd_max_w)
       w.push_back(who + "dissipation " + format_si(pd, "W") + " exceeds the rating pd_max " + format_si(*ratings.pd_max_w, "W"));

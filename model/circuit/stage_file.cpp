@@ -102,7 +102,7 @@ const std::vector<section_spec>& stage_schema() {
   namespace r = ranges;
   static const std::vector<section_spec> s{
       {"jfet", {{"polarity", unit::none, rule::any_sign}, {"class", unit::none, rule::any_sign},
-                {"idss", unit::ampere, rule::positive, r::idss},
+                {"idss", unit::ampere, rule::positive, r::idss}, {"idss_vds", unit::volt, rule::non_negative, r::idss_vds},
                 {"vp", unit::volt, rule::any_sign, r::vp}, {"beta", unit::none, rule::positive, r::beta},
                 {"vto", unit::volt, rule::any_sign, r::vp}, {"lambda", unit::per_volt, rule::non_negative, r::lambda},
                 {"is", unit::ampere, rule::non_negative, r::is}, {"n", unit::none, rule::positive, r::n},
@@ -509,6 +509,7 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
     if (!g.has("jfet.n")) g.values["jfet.n"] = c.n;
     if (!g.has("jfet.cgs")) g.values["jfet.cgs"] = c.cgs_f;
     if (!g.has("jfet.cgd")) g.values["jfet.cgd"] = c.cgd_f;
+    if (!g.has("jfet.vds_max") && c.vds_max_v) g.values["jfet.vds_max"] = *c.vds_max_v;
   }
 
   // Device: idss + vp, or beta + vto.
@@ -538,6 +539,12 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
     if (!m.empty()) rd.fail_at(g.where["jfet.beta"], prefix + "jfet.beta", prefix + "jfet.beta: " + m);
   }
   st.jfet.lambda_per_v = g.get("jfet.lambda", 0.0);
+  // IDSS measured at VDS = idss_vds: the model's current there is idss (1 + lambda vds),
+  // so its own IDSS (at VDS = 0, what beta is made of) is idss / (1 + lambda idss_vds).
+  if (g.has("jfet.idss_vds") && form_b)
+    rd.fail_at(g.where["jfet.idss_vds"], prefix + "jfet.idss_vds",
+               prefix + "jfet.idss_vds is the VDS at which idss was measured; it has no meaning beside beta and vto");
+  if (!form_b) st.jfet.idss_a /= 1.0 + st.jfet.lambda_per_v * g.get("jfet.idss_vds", 0.0);
   st.jfet.is_a = g.get("jfet.is", 1e-14);
   st.jfet.n = g.get("jfet.n", 1.0);
   st.jfet.cgs_f = g.get("jfet.cgs");

@@ -81,7 +81,7 @@ std::vector<device_class> parse_device_classes(std::string_view text, std::strin
     throw input_error(where(file, e.source()) + std::string(e.description()));
   }
   static const std::vector<std::string_view> keys{"summary", "idss", "vp", "typical_idss", "typical_vp", "lambda",
-                                                  "is", "n", "cgs", "cgd"};
+                                                  "is", "n", "cgs", "cgd", "vds_max"};
   std::vector<device_class> out;
   for (auto&& [k, node] : root) {
     device_class c;
@@ -102,6 +102,7 @@ std::vector<device_class> parse_device_classes(std::string_view text, std::strin
       else if (key == "n") c.n = number(v, base::unit::none, r::n, file, full);
       else if (key == "cgs") c.cgs_f = number(v, base::unit::farad, r::junction_cap, file, full);
       else if (key == "cgd") c.cgd_f = number(v, base::unit::farad, r::junction_cap, file, full);
+      else if (key == "vds_max") c.vds_max_v = number(v, base::unit::volt, r::vds_max, file, full);
       else {
         std::string m = "unknown key '" + key + "' in [" + c.name + "]";
         if (const std::string near = base::nearest_name(key, keys); !near.empty()) m += "; did you mean '" + near + "'?";

@@ -2,6 +2,7 @@
 // Generic JFET classes (presets/devices.toml): parameter ranges of a general kind of
 // part plus typical values, in n-channel signs.
 #include <filesystem>
+#include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -17,6 +18,7 @@ struct device_class {
   base::value_range vp_v;    ///< n-channel: both < 0, lo is the most negative
   double typical_idss_a{}, typical_vp_v{};
   double lambda_per_v{0.0}, is_a{1e-14}, n{1.0}, cgs_f{0.0}, cgd_f{0.0};
+  std::optional<double> vds_max_v;  ///< the class's typical drain-source rating; a stage naming the class takes it
 };
 
 /// The most a device-class file may hold: the shipped one is about a kilobyte for three

@@ -10,6 +10,7 @@
 
 #include "base/error.hpp"
 #include "base/units.hpp"
+#include "model/device/parameter_ranges.hpp"
 
 namespace pinchoff::model {
 namespace {
@@ -184,16 +185,31 @@ fit_result fit_square_law(reading_kind kind, const std::vector<bench_reading>& i
   res.vp_v = -std::exp(q[1]);
   res.lambda_per_v = np == 3 ? q[2] : 0.0;
   const double dof = m - np;
+  // IDSS at the readings' own VDS (their mean, in the n-channel frame), where the bench
+  // measured it; with lambda not fitted it equals the model's IDSS.
+  if (vds_all) {
+    double sum = 0.0;
+    for (const bench_reading& r : rd) sum += r.vds_v;
+    res.idss_vds_v = std::max(0.0, sum / m);
+  }
+  res.idss_at_vds_a = res.idss_a * (1.0 + res.lambda_per_v * res.idss_vds_v);
   if (dof > 0) {
     const double s2 = cost / dof;
     const Eigen::MatrixXd cov = (cf.jm.transpose() * cf.jm).inverse() * s2;
     res.idss_se_a = res.idss_a * std::sqrt(std::max(0.0, cov(0, 0)));
     res.vp_se_v = std::fabs(res.vp_v) * std::sqrt(std::max(0.0, cov(1, 1)));
     res.lambda_se_per_v = np == 3 ? std::sqrt(std::max(0.0, cov(2, 2))) : 0.0;
+    // Propagated through the covariance: d/d ln idss = idss_at, d/d lambda = idss vds.
+    double var = res.idss_at_vds_a * res.idss_at_vds_a * cov(0, 0);
+    if (np == 3) {
+      const double gl = res.idss_a * res.idss_vds_v;
+      var += 2.0 * res.idss_at_vds_a * gl * cov(0, 2) + gl * gl * cov(2, 2);
+    }
+    res.idss_at_vds_se_a = std::sqrt(std::max(0.0, var));
   } else {
     // As many readings as parameters: the part is determined exactly, with no scatter
     // left to estimate errors from.
-    res.idss_se_a = res.vp_se_v = res.lambda_se_per_v = std::numeric_limits<double>::quiet_NaN();
+    res.idss_se_a = res.vp_se_v = res.lambda_se_per_v = res.idss_at_vds_se_a = std::numeric_limits<double>::quiet_NaN();
   }
   res.rms_residual_ratio = std::sqrt(cost / m);
   // Readings whose current hardly falls with the gate voltage are matched best by a part
@@ -263,8 +279,9 @@ std::string jfet_block(const fit_result& r) {
   os << "[jfet]\n";
   if (r.p_channel) os << "polarity = \"p\"\n";
   const bool exact = std::isnan(r.idss_se_a);
-  os << "idss = \"" << value(r.idss_a) << "\"    # "
-     << (exact ? std::string("from two readings, no error estimate") : "± " + base::format_si(r.idss_se_a, "A", 2)) << "\n";
+  os << "idss = \"" << value(r.idss_at_vds_a) << "\"    # "
+     << (exact ? std::string("from two readings, no error estimate") : "± " + base::format_si(r.idss_at_vds_se_a, "A", 2)) << "\n";
+  if (r.idss_vds_v > 0.0) os << "idss_vds = " << base::format_number(r.idss_vds_v, 3) << "    # V: the readings' mean VDS\n";
   os << "vp = " << base::format_number(r.vp_v, 4) << "    # "
      << (exact ? std::string("from two readings, no error estimate") : "± " + base::format_si(r.vp_se_v, "V", 2)) << "\n";
   if (r.lambda_fitted)
@@ -272,28 +289,175 @@ std::string jfet_block(const fit_result& r) {
   return os.str();
 }
 
-bench_table readings_from_table(const base::csv_table& t) {
-  const int c_vgs = t.column("vgs_v"), c_rs = t.column("rs_ohm"), c_id = t.column("id_a"), c_vds = t.column("vds_v");
-  if (c_id < 0) throw input_error(t.source + ": missing column 'id_a' (the drain current, A)");
+namespace {
+
+bench_table readings_of_rows(const base::csv_table& t, const std::vector<std::size_t>& rows) {
+  const int c_vgs = t.column("vgs_v"), c_rs = t.column("rs_ohm"), c_id = t.column("id_a"), c_vds = t.column("vds_v"),
+            c_vs = t.column("vs_v");
+  if ((c_id < 0) == (c_vs < 0) || (c_vs >= 0 && c_rs < 0)) {
+    if (c_id >= 0 && c_vs >= 0)
+      throw input_error(t.source + ": give the current as 'id_a' or the source voltage as 'vs_v' (with 'rs_ohm'), not both");
+    if (c_vs >= 0) throw input_error(t.source + ": column 'vs_v' (the source voltage of a self-bias jig) needs 'rs_ohm' beside it");
+    throw input_error(t.source + ": missing column 'id_a' (the drain current, A; or 'vs_v', a self-bias jig's source voltage)");
+  }
   if ((c_vgs < 0) == (c_rs < 0))
     throw input_error(t.source + ": give exactly one of the columns 'vgs_v' (gate sweep) or 'rs_ohm' (self-bias jig)");
   for (const std::string& c : t.columns)
-    if (c != "vgs_v" && c != "rs_ohm" && c != "id_a" && c != "vds_v")
-      throw input_error(t.source + ": unknown column '" + c + "' (expected vgs_v or rs_ohm, id_a, vds_v)");
+    if (c != "vgs_v" && c != "rs_ohm" && c != "id_a" && c != "vds_v" && c != "vs_v" && c != "part")
+      throw input_error(t.source + ": unknown column '" + c + "' (expected part, vgs_v or rs_ohm, id_a or vs_v, vds_v)");
   bench_table b;
-  b.kind = c_vgs >= 0 ? reading_kind::gate_sweep : reading_kind::self_bias_jig;
-  for (std::size_t k = 0; k < t.rows.size(); ++k) {
+  b.kind = c_vgs >= 0 || c_vs >= 0 ? reading_kind::gate_sweep : reading_kind::self_bias_jig;
+  b.source_voltage = c_vs >= 0;
+  for (const std::size_t k : rows) {
+    const std::vector<double>& row = t.rows[k];
     bench_reading r;
-    r.x = t.rows[k][static_cast<std::size_t>(c_vgs >= 0 ? c_vgs : c_rs)];
-    r.id_a = t.rows[k][static_cast<std::size_t>(c_id)];
+    r.line = t.line_of_row[k];
+    if (b.source_voltage) {
+      // The meter reads the source: vgs = -vs with the gate at 0 V, id = vs / rs.
+      const double rs = row[static_cast<std::size_t>(c_rs)], vs = row[static_cast<std::size_t>(c_vs)];
+      if (!(rs > 0))
+        throw input_error(t.source + ":" + std::to_string(r.line) + ": rs_ohm must be above 0 beside vs_v (the current is vs_v / rs_ohm)");
+      r.x = -vs;
+      r.id_a = vs / rs;
+    } else {
+      r.x = row[static_cast<std::size_t>(c_vgs >= 0 ? c_vgs : c_rs)];
+      r.id_a = row[static_cast<std::size_t>(c_id)];
+    }
     if (c_vds >= 0) {
-      r.vds_v = t.rows[k][static_cast<std::size_t>(c_vds)];
+      r.vds_v = row[static_cast<std::size_t>(c_vds)];
       r.has_vds = true;
     }
-    r.line = t.line_of_row[k];
     b.readings.push_back(r);
   }
   return b;
+}
+
+}  // namespace
+
+bench_table readings_from_table(const base::csv_table& t) {
+  std::vector<std::size_t> all(t.rows.size());
+  for (std::size_t k = 0; k < all.size(); ++k) all[k] = k;
+  return readings_of_rows(t, all);
+}
+
+std::vector<part_readings> parts_from_table(const base::csv_table& t) {
+  const int c_part = t.column("part");
+  if (c_part < 0) {
+    part_readings p;
+    p.table = readings_from_table(t);
+    if (!t.line_of_row.empty()) {
+      p.first_line = t.line_of_row.front();
+      p.last_line = t.line_of_row.back();
+    }
+    return {p};
+  }
+  std::vector<std::string> names;
+  std::vector<std::vector<std::size_t>> rows;
+  for (std::size_t k = 0; k < t.rows.size(); ++k) {
+    const std::string& name = t.text_rows[k][static_cast<std::size_t>(c_part)];
+    if (name.empty())
+      throw input_error(t.source + ":" + std::to_string(t.line_of_row[k]) + ": the 'part' cell is empty (name the part each row is of)");
+    const std::size_t at = static_cast<std::size_t>(std::find(names.begin(), names.end(), name) - names.begin());
+    if (at == names.size()) {
+      names.push_back(name);
+      rows.emplace_back();
+    }
+    rows[at].push_back(k);
+  }
+  std::vector<part_readings> out;
+  for (std::size_t p = 0; p < names.size(); ++p) {
+    part_readings pr;
+    pr.name = names[p];
+    pr.table = readings_of_rows(t, rows[p]);
+    pr.first_line = t.line_of_row[rows[p].front()];
+    pr.last_line = t.line_of_row[rows[p].back()];
+    out.push_back(std::move(pr));
+  }
+  if (out.empty()) out.push_back(part_readings{"", 0, 0, readings_from_table(t)});
+  return out;
+}
+
+const base::csv_layout& bench_layout() {
+  using base::unit;
+  static const base::csv_layout layout{
+      {"part", "flagged_lines", "idss_se_a", "vp_se_v", "lambda_se_per_v"},
+      {{"vgs_v", unit::volt}, {"vs_v", unit::volt}, {"vds_v", unit::volt}, {"id_a", unit::ampere}, {"rs_ohm", unit::ohm},
+       {"idss_a", unit::ampere}, {"vp_v", unit::volt}, {"lambda_per_v", unit::per_volt}, {"idss_vds_v", unit::volt}}};
+  return layout;
+}
+
+part_figures figures_of(const fit_result& f, std::string name, int line) {
+  part_figures p;
+  p.name = std::move(name);
+  p.p_channel = f.p_channel;
+  p.idss_a = f.idss_at_vds_a;
+  p.vp_v = f.vp_v;
+  p.lambda_per_v = f.lambda_per_v;
+  p.idss_vds_v = f.idss_vds_v;
+  p.idss_se_a = f.idss_at_vds_se_a;
+  p.vp_se_v = f.vp_se_v;
+  p.lambda_se_per_v = f.lambda_fitted ? f.lambda_se_per_v : std::numeric_limits<double>::quiet_NaN();
+  p.line = line;
+  return p;
+}
+
+bool is_parts_table(const base::csv_table& t) { return t.column("idss_a") >= 0 || t.column("vp_v") >= 0; }
+
+std::vector<part_figures> parts_from_parts_table(const base::csv_table& t) {
+  const int c_part = t.column("part"), c_idss = t.column("idss_a"), c_vp = t.column("vp_v"),
+            c_lambda = t.column("lambda_per_v"), c_vds = t.column("idss_vds_v");
+  if (c_part < 0 || c_idss < 0 || c_vp < 0)
+    throw input_error(t.source + ": a parts table needs the columns 'part', 'idss_a' and 'vp_v' (as the fit of a bag writes it)");
+  static const std::vector<std::string> known{"part", "idss_a", "vp_v", "lambda_per_v", "idss_vds_v", "idss_se_a",
+                                              "vp_se_v", "lambda_se_per_v", "readings", "rms_misfit_percent", "flagged_lines"};
+  for (const std::string& c : t.columns)
+    if (std::find(known.begin(), known.end(), c) == known.end())
+      throw input_error(t.source + ": unknown column '" + c + "' in a parts table (expected part, idss_a, vp_v, lambda_per_v, idss_vds_v)");
+  std::vector<part_figures> out;
+  for (std::size_t k = 0; k < t.rows.size(); ++k) {
+    const std::vector<double>& row = t.rows[k];
+    const std::string where = t.source + ":" + std::to_string(t.line_of_row[k]) + ": ";
+    part_figures p;
+    p.name = t.text_rows[k][static_cast<std::size_t>(c_part)];
+    p.line = t.line_of_row[k];
+    if (p.name.empty()) throw input_error(where + "the 'part' cell is empty (name the part each row is of)");
+    for (const part_figures& q : out)
+      if (q.name == p.name)
+        throw input_error(where + "part '" + p.name + "' is listed twice (first on line " + std::to_string(q.line) + ")");
+    const double idss = row[static_cast<std::size_t>(c_idss)], vp = row[static_cast<std::size_t>(c_vp)];
+    p.lambda_per_v = c_lambda >= 0 ? row[static_cast<std::size_t>(c_lambda)] : 0.0;
+    p.idss_vds_v = c_vds >= 0 ? std::fabs(row[static_cast<std::size_t>(c_vds)]) : 0.0;
+    // Bench signs: a p-channel part has a negative current and a positive VP.
+    if (!(vp != 0.0) || (idss > 0) != (vp < 0))
+      throw input_error(where + "idss_a and vp_v must have opposite signs (n-channel: idss_a > 0, vp_v < 0; p-channel: the reverse)");
+    p.p_channel = vp > 0;
+    p.idss_a = std::fabs(idss);
+    p.vp_v = vp;
+    const std::pair<const char*, std::string> checks[] = {
+        {"idss_a", base::bounds_refusal("idss_a", p.idss_a, ranges::idss, base::unit::ampere)},
+        {"vp_v", base::bounds_refusal("vp_v", std::fabs(vp), ranges::vp, base::unit::volt)},
+        {"lambda_per_v", base::bounds_refusal("lambda_per_v", p.lambda_per_v, ranges::lambda, base::unit::per_volt)},
+        {"idss_vds_v", base::bounds_refusal("idss_vds_v", p.idss_vds_v, ranges::idss_vds, base::unit::volt)}};
+    for (const auto& [name, refusal] : checks)
+      if (!refusal.empty()) throw input_error(where + refusal);
+    p.idss_se_a = p.vp_se_v = p.lambda_se_per_v = std::numeric_limits<double>::quiet_NaN();
+    out.push_back(std::move(p));
+  }
+  if (out.empty()) throw input_error(t.source + ": the parts table lists no parts");
+  return out;
+}
+
+std::vector<part_figures> read_parts(const base::csv_table& t) {
+  if (is_parts_table(t)) return parts_from_parts_table(t);
+  std::vector<part_figures> out;
+  for (const part_readings& pr : parts_from_table(t)) {
+    try {
+      out.push_back(figures_of(fit_square_law(pr.table.kind, pr.table.readings), pr.name, pr.first_line));
+    } catch (const input_error& e) {
+      throw input_error(t.source + ": " + (pr.name.empty() ? std::string() : "part '" + pr.name + "': ") + e.what());
+    }
+  }
+  return out;
 }
 
 }  // namespace pinchoff::model

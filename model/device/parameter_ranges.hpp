@@ -31,6 +31,8 @@ inline constexpr value_bounds flicker_coefficient{1e-25, 1e-10, true,
 inline constexpr value_bounds flicker_exponent{0.5, 2.5, false, "flicker exponents of real parts lie between 0.5 and 2"};
 inline constexpr value_bounds gate_leakage{1e-16, 1e-6, true,
                                            "gate leakage of real parts is picoamperes at room temperature, nanoamperes hot"};
+/// The VDS at which IDSS was measured (magnitude); 0 means the model's own IDSS, at VDS = 0.
+inline constexpr value_bounds idss_vds{0.01, 100.0, true, "IDSS is measured at a few volts to a few tens of volts"};
 inline constexpr value_bounds vds_max{0.1, 1e4, false, "ratings of real parts lie between a few volts and a kilovolt"};
 inline constexpr value_bounds pd_max{1e-4, 1e4, false, "ratings of real parts lie between 100 mW and a few hundred watts"};
 inline constexpr value_bounds igf_max{1e-9, 100.0, false, "ratings of real parts lie between 1 mA and an ampere or so"};

@@ -241,6 +241,21 @@ struct fixtures {
     write(f("negrs.csv"), "rs_ohm,id_a\n-100,1m\n1k,0.5m\n10k,0.1m\n");
     // Current that hardly falls: the best square law has VP at infinity (found by fuzzing).
     write(f("flat.csv"), "rs_ohm,id_a\n100,3.6m\n1k,1.02m\n10k,1.46m\n");
+    // ---- parts: a bag of parts in one CSV, the parts table, match
+    write(f("bag.csv"), "part,vgs_v,id_a\nA,0,5m\nA,-0.5,2.8125m\nA,-1,1.25m\nB,0,4m\nB,-0.5,2.25m\nB,-1,1m\n");
+    write(f("bag-emptyname.csv"), "part,vgs_v,id_a\nA,0,5m\n,-0.5,2.8m\n");
+    write(f("bag-short.csv"), "part,vgs_v,id_a\nA,0,5m\nA,-0.5,2.8125m\nA,-1,1.25m\nB,0,4m\n");
+    write(f("bag-vs-both.csv"), "part,rs_ohm,vs_v,id_a\nA,100,0.3,3m\n");
+    write(f("bag-vs-nors.csv"), "part,vgs_v,vs_v\nA,0,0.3\n");
+    write(f("bag-vs-zero.csv"), "part,rs_ohm,vs_v\nA,0,0.3\nA,1k,1\n");
+    write(f("parts-twice.csv"), "part,idss_a,vp_v\nA,5m,-2\nA,4m,-1.5\n");
+    write(f("parts-sign.csv"), "part,idss_a,vp_v\nA,5m,2\n");
+    write(f("parts-range.csv"), "part,idss_a,vp_v\nA,5,-2\n");
+    write(f("parts-nopart.csv"), "idss_a,vp_v\n5m,-2\n");
+    write(f("parts-unknown.csv"), "part,idss_a,vp_v,colour\nA,5m,-2,3\n");
+    write(f("parts-mixed.csv"), "part,idss_a,vp_v\nA,5m,-2\nB,-5m,2\n");
+    write(f("parts-pch.csv"), "part,idss_a,vp_v\nA,-5m,2\n");
+    write(f("idssvds-beta.toml"), with_line(with_line(good_stage, 6, "vto = -1.8"), 5, "beta = 0.001\nidss_vds = 10"));
 
     // ---- Sizes, special files and the ranges of values (the readers' bounds)
     write(f("huge.toml"), std::string(good_stage) + "# " + std::string(std::size_t{1} << 20, 'x') + "\n");
@@ -509,6 +524,38 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"current rising as the gate goes negative", {"fit", "@rising.csv"}, {"@rising.csv", "cannot come from a square-law part"}},
       {"negative source resistor", {"fit", "@negrs.csv"}, {"@negrs.csv", "line 2", "rs_ohm must not be negative"}},
       {"current that hardly falls (VP runs to infinity)", {"fit", "@flat.csv"}, {"@flat.csv", "do not determine IDSS and VP"}},
+      // ---- parts: a bag of parts in one CSV, the parts table, match
+      {"a part's row with no name", {"fit", "@bag-emptyname.csv"}, {"@bag-emptyname.csv:3:", "'part' cell is empty"}},
+      {"a part with too few readings", {"fit", "@bag-short.csv"}, {"@bag-short.csv", "part 'B' (lines 5-5)", "too few readings"}},
+      {"id_a beside vs_v", {"fit", "@bag-vs-both.csv"}, {"@bag-vs-both.csv", "'id_a' or the source voltage as 'vs_v'", "not both"}},
+      {"vs_v without rs_ohm", {"fit", "@bag-vs-nors.csv"}, {"@bag-vs-nors.csv", "'vs_v'", "needs 'rs_ohm'"}},
+      {"vs_v over a zero source resistor", {"fit", "@bag-vs-zero.csv"}, {"@bag-vs-zero.csv:2:", "rs_ohm must be above 0 beside vs_v"}},
+      {"--csv with --json", {"fit", "@bag.csv", "--csv", "--json"}, {"--csv", "excludes", "--json"}},
+      {"match: a part listed twice", {"match", "@parts-twice.csv"}, {"@parts-twice.csv:3:", "part 'A' is listed twice", "line 2"}},
+      {"match: idss_a and vp_v of one sign", {"match", "@parts-sign.csv"}, {"@parts-sign.csv:2:", "opposite signs"}},
+      {"match: an IDSS beyond every part", {"match", "@parts-range.csv"}, {"@parts-range.csv:2:", "idss_a", "lies outside"}},
+      {"match: a parts table without names", {"match", "@parts-nopart.csv"}, {"@parts-nopart.csv", "needs the columns 'part', 'idss_a' and 'vp_v'"}},
+      {"match: an unknown column in a parts table", {"match", "@parts-unknown.csv"}, {"@parts-unknown.csv", "unknown column 'colour'"}},
+      {"match: parts of both polarities", {"match", "@parts-mixed.csv"}, {"part 'B' is p-channel", "one polarity"}},
+      {"match: a bag part that does not fit", {"match", "@bag-short.csv"}, {"@bag-short.csv", "part 'B'", "too few readings"}},
+      {"match: --sets of 1", {"match", "@bag.csv", "--sets", "1"}, {"--sets: ", "2 to 16", "got 1"}},
+      {"match: --by of something else", {"match", "@bag.csv", "--by", "gm"}, {"--by 'gm'", "idss,vp or vgs@CURRENT"}},
+      {"match: --by vgs at no current", {"match", "@bag.csv", "--by", "vgs@0"}, {"--by vgs@0", "above 0"}},
+      {"match: --by vgs at a current that is not one", {"match", "@bag.csv", "--by", "vgs@1mV"}, {"--by vgs@", "'1mV'", "current"}},
+      {"match: --tolerance in percent for VGS", {"match", "@bag.csv", "--by", "vgs@1m", "--tolerance", "2%"}, {"--tolerance '2%'", "a voltage of VGS"}},
+      {"match: --tolerance of 0 %", {"match", "@bag.csv", "--tolerance", "0%"}, {"--tolerance '0%'", "above 0 and below 100"}},
+      {"match: --tolerance of two voltages", {"match", "@bag.csv", "--tolerance", "20mV,30mV"}, {"--tolerance '20mV,30mV'", "each tolerance once"}},
+      {"match: --tolerance of three pieces", {"match", "@bag.csv", "--tolerance", "2%,20mV,x"}, {"--tolerance '2%,20mV,x'", "expected a percentage"}},
+      {"match: a parts file that does not exist", {"match", "@missing.csv"}, {"@missing.csv", "No such file"}},
+      {"idss_vds beside beta and vto", {"bias", "@idssvds-beta.toml"}, {"@idssvds-beta.toml:6:", "jfet.idss_vds", "no meaning beside beta"}},
+      {"spread: --parts beside an IDSS range", {"spread", "@stage.toml", "--parts", "@bag.csv", "--idss", "2m..8m"}, {"--parts: ", "take the place of the IDSS and VP ranges"}},
+      {"spread: --parts of the other polarity", {"spread", "@stage.toml", "--parts", "@parts-pch.csv"}, {"--parts: ", "part 'A' is p-channel"}},
+      {"spread: --parts that does not exist", {"spread", "@stage.toml", "--parts", "@missing.csv"}, {"@missing.csv", "No such file"}},
+      {"tune: --over-spread --parts whose part does not fit", {"tune", "@stage.toml", "--target", "vd=4.5", "--over-spread", "--parts", "@bag-short.csv"}, {"@bag-short.csv", "part 'B'", "too few readings"}},
+      {"tune: --target gain without a value", {"tune", "@stage.toml", "--target", "gain"}, {"--target 'gain'", "give a value"}},
+      {"tune: --target gain that is not a number", {"tune", "@stage.toml", "--target", "gain=loud"}, {"--target gain", "'loud'", "gain in dB"}},
+      {"tune: --target gain out of reach", {"tune", "@stage.toml", "--target", "gain=60dB"}, {"gain = 60.00 dB (mid-band) is out of reach", "drain.resistor from"}},
+      {"tune: two targets and one resistor", {"tune", "@stage.toml", "--target", "gain=20dB", "--target", "vd=4.5", "--adjust", "drain.resistor"}, {"--adjust and --target come in pairs", "2 --target but 1 --adjust"}},
       // ---- tone: the output file and the levels
       {"output folder that does not exist", {"tone", "@nofolder/t.wav"}, {"@nofolder/t.wav", "does not exist"}},
       {"output onto a folder", {"tone", "@folder"}, {"@folder", "it is a folder"}},

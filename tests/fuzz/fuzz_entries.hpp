@@ -188,6 +188,19 @@ inline outcome units_entry(std::string_view text) {
     detail::require(d.design <= 3, "parse_design_set returned a design beyond the count");
   });
   attempt([&] {
+    // match's --by and --tolerance: a current above 0, tolerances above 0 and finite.
+    const cli::match_by by = cli::parse_match_by(text);
+    detail::require(by.basis == model::match_basis::idss_and_vp || (std::isfinite(by.current_a) && by.current_a > 0),
+                    "parse_match_by returned a current not above 0");
+  });
+  for (model::match_basis basis : {model::match_basis::idss_and_vp, model::match_basis::vgs_at_current})
+    attempt([&] {
+      model::match_settings ms;
+      cli::parse_match_tolerance(text, basis, ms);
+      for (const std::optional<double>& tol : {ms.idss_tolerance_ratio, ms.vp_tolerance_v, ms.vgs_tolerance_v})
+        detail::require(!tol || (std::isfinite(*tol) && *tol > 0), "parse_match_tolerance returned a tolerance not above 0");
+    });
+  attempt([&] {
     const model::requirement r = cli::parse_requirement(text);
     detail::require(!std::isnan(r.lo) && !std::isnan(r.hi) && r.lo <= r.hi, "parse_requirement returned a bad range");
   });
@@ -201,10 +214,11 @@ inline outcome units_entry(std::string_view text) {
 // ---------------------------------------------------------------------------------------
 // Bench CSV, then the square-law fit on what it read when the columns are those `pinchoff
 // fit` takes: the fit either refuses the readings or returns finite figures.
+inline outcome one_fit(model::reading_kind kind, const std::vector<model::bench_reading>& readings);
 inline outcome csv_fit_entry(std::string_view text) {
   base::csv_table t;
   try {
-    t = base::parse_csv(text, "fuzz.csv");
+    t = base::parse_csv(text, "fuzz.csv", model::bench_layout());
   } catch (const input_error& e) {
     detail::require(detail::starts_with(e.what(), "fuzz.csv"), std::string("CSV message does not say where: ") + e.what());
     return outcome::refused;
@@ -212,25 +226,55 @@ inline outcome csv_fit_entry(std::string_view text) {
   detail::require(t.rows.size() == t.line_of_row.size(), "rows and their line numbers differ in count");
   for (std::size_t k = 0; k < t.rows.size(); ++k) {
     detail::require(t.rows[k].size() == t.columns.size(), "a row with the wrong number of cells was accepted");
-    for (double v : t.rows[k]) detail::require(std::isfinite(v), "a non-finite cell was accepted");
+    detail::require(t.text_rows[k].size() == t.columns.size(), "a row's text cells differ in count from its columns");
+    for (std::size_t c = 0; c < t.columns.size(); ++c) {
+      const bool text_column = std::isnan(t.rows[k][c]);
+      detail::require(text_column || std::isfinite(t.rows[k][c]), "a non-finite cell was accepted");
+      detail::require(text_column || t.text_rows[k][c].empty(), "a numeric cell kept text");
+    }
     detail::require(t.line_of_row[k] >= 1 && (k == 0 || t.line_of_row[k] > t.line_of_row[k - 1]), "line numbers out of order");
   }
-  model::bench_table bt;
+  // A parts table: every part read has a name, finite figures and a JFET's signs.
+  if (model::is_parts_table(t)) {
+    try {
+      for (const model::part_figures& p : model::read_parts(t))
+        detail::require(!p.name.empty() && p.idss_a > 0 && std::isfinite(p.idss_a) && (p.p_channel ? p.vp_v > 0 : p.vp_v < 0) &&
+                            std::isfinite(p.model_idss_a()) && p.model_idss_a() > 0,
+                        "read_parts accepted a part that is not a JFET's");
+    } catch (const input_error& e) {
+      detail::require(detail::starts_with(e.what(), "fuzz.csv"), std::string("parts-table message does not say where: ") + e.what());
+    }
+    return outcome::accepted;
+  }
+  std::vector<model::part_readings> parts;
   try {
-    bt = model::readings_from_table(t);
+    parts = model::parts_from_table(t);
   } catch (const input_error& e) {
     detail::require(detail::starts_with(e.what(), "fuzz.csv"), std::string("column message does not say where: ") + e.what());
     return outcome::accepted;  // a well-formed table that is not a set of bench readings
   }
-  const model::reading_kind kind = bt.kind;
-  const std::vector<model::bench_reading>& readings = bt.readings;
+  std::size_t rows = 0;
+  for (const model::part_readings& p : parts) rows += p.table.readings.size();
+  detail::require(rows == t.rows.size(), "the parts' readings do not add up to the table's rows");
+  // Each part is fitted as `fit` fits it; the first refusal ends the run, as it does there.
+  for (const model::part_readings& p : parts) {
+    detail::require(parts.size() == 1 || !p.name.empty(), "a part without a name in a parts file");
+    const model::reading_kind kind = p.table.kind;
+    const std::vector<model::bench_reading>& readings = p.table.readings;
+    if (one_fit(kind, readings) == outcome::refused) return outcome::refused;
+  }
+  return outcome::accepted;
+}
+
+// One part's fit: refused, or finite figures of a JFET's signs.
+inline outcome one_fit(model::reading_kind kind, const std::vector<model::bench_reading>& readings) {
   try {
     const model::fit_result f = model::fit_square_law(kind, readings);
     const std::string figures = "idss " + std::to_string(f.idss_a) + " +- " + std::to_string(f.idss_se_a) + ", vp " +
                                 std::to_string(f.vp_v) + " +- " + std::to_string(f.vp_se_v) + ", lambda " +
                                 std::to_string(f.lambda_per_v) + " +- " + std::to_string(f.lambda_se_per_v) + ", rms " +
                                 std::to_string(f.rms_residual_ratio);
-    for (double v : {f.idss_a, f.vp_v, f.lambda_per_v, f.rms_residual_ratio})
+    for (double v : {f.idss_a, f.vp_v, f.lambda_per_v, f.rms_residual_ratio, f.idss_vds_v, f.idss_at_vds_a})
       detail::require(std::isfinite(v), "fit_square_law returned a non-finite figure: " + figures);
     // Errors are NaN by contract only when the readings determine the part exactly (as
     // many readings as parameters); otherwise they must be finite.

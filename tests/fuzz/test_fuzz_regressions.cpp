@@ -69,7 +69,11 @@ TEST_CASE("every saved fuzz input is refused cleanly or read within the parser's
 TEST_CASE("the valid seeds are accepted, so the entry functions reach the parsers' success paths") {
   // One known-good input per target (written by hand, or by the project's own writer for audio).
   const std::pair<const char*, const char*> good[] = {
-      {"stage_file", "preset-bass-booster"}, {"device_classes", "preset-devices.toml"}, {"units", "seed-0"}, {"csv_fit", "gate-sweep"}, {"sound", "tone-wav16.wav"}};
+      {"stage_file", "preset-bass-booster"}, {"device_classes", "preset-devices.toml"}, {"units", "seed-0"}, {"csv_fit", "gate-sweep"}, {"sound", "tone-wav16.wav"},
+      // A bag of parts, the parts table, match's --by, idss_vds, a class's rating.
+      {"csv_fit", "bag-jig-source-voltage"}, {"csv_fit", "bag-gate-sweep-interleaved"}, {"csv_fit", "parts-table"},
+      {"units", "match-by-vgs"}, {"units", "match-tolerance"}, {"stage_file", "idss-vds-with-lambda"},
+      {"device_classes", "class-vds-max"}};
   for (const auto& [name, file] : good) {
     CAPTURE(name);
     const auto t = std::find_if(std::begin(targets), std::end(targets), [&](const fuzz_target& x) { return std::string(x.name) == name; });

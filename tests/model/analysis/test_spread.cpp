@@ -8,6 +8,7 @@
 #include "base/error.hpp"
 #include "model/analysis/spread.hpp"
 #include "model/analysis/sweep.hpp"
+#include "model/device/fit.hpp"
 #include "support/stages.hpp"
 
 using namespace pinchoff;
@@ -333,4 +334,68 @@ TEST_CASE("trimmers for two stages over one batch: each part's pair of values is
     CHECK(t.fixed_ohm + t.trimmer_ohm >= t.r_max);
   }
   CHECK(set.coverage_all == 1.0);
+}
+
+TEST_CASE("over a bag of measured parts: every part once, each by its self-bias closed form") {
+  // Three measured parts (IDSS at VDS 9 V), a stage with lambda 0.01: each part's model IDSS
+  // is idss / (1 + 0.01 * 9) (level-1 saturation, Massobrio & Antognetti); a part with its own
+  // fitted lambda keeps it. Run i takes part i, and its current is the self-bias closed form.
+  const double vp_stage = -1.6, rs = 680.0, rd = 3.3e3, vdd = 9.0;
+  const stage st = test::stage_from(test::self_bias_text(vdd, 4.5e-3, vp_stage, rs, rd, "") + "");
+  auto measured = [](const char* name, double idss, double vp, double lambda) {
+    part_figures p;
+    p.name = name;
+    p.idss_a = idss;
+    p.vp_v = vp;
+    p.lambda_per_v = lambda;
+    p.idss_vds_v = 9.0;
+    return p;
+  };
+  stage lam = st;
+  lam.jfet.lambda_per_v = 0.01;
+  const std::vector<bag_part> bag =
+      parts_for_spread({measured("A", 5e-3, -1.9, 0.0), measured("B", 3e-3, -1.1, 0.0), measured("C", 7e-3, -2.4, 0.02)}, lam);
+  REQUIRE(bag.size() == 3);
+  CHECK(bag[0].idss_a == doctest::Approx(5e-3 / 1.09).epsilon(1e-15));
+  CHECK(std::isnan(bag[0].lambda_per_v));
+  CHECK(bag[2].idss_a == doctest::Approx(7e-3 / 1.18).epsilon(1e-15));
+  CHECK(bag[2].lambda_per_v == 0.02);
+  spread_settings s;
+  s.parts = parts_for_spread({measured("A", 5e-3, -1.9, 0.0), measured("B", 3e-3, -1.1, 0.0), measured("C", 7e-3, -2.4, 0.0)}, st);
+  s.runs = 3;
+  const spread_result r = run_spread(st, s, {});
+  REQUIRE(r.runs.size() == 3);
+  const double idss[] = {5e-3, 3e-3, 7e-3}, vp[] = {-1.9, -1.1, -2.4};
+  for (int i = 0; i < 3; ++i) {
+    CAPTURE(i);
+    CHECK(r.runs[static_cast<std::size_t>(i)].draw.bag_index == i);
+    CHECK(r.runs[static_cast<std::size_t>(i)].values.at("id") == doctest::Approx(self_bias_id(idss[i], vp[i], rs)).epsilon(1e-9));
+  }
+  // The trimmer spans exactly the bag: the smallest and largest need of the three parts.
+  const double vd = 4.5, id = (vdd - vd) / rd;
+  const trim_result t = size_trimmer(st, "source.resistor", {target_kind::vd, vd}, s, base::eseries::e24);
+  std::vector<double> need;
+  for (int i = 0; i < 3; ++i) need.push_back(std::fabs(vp[i]) * (1 - std::sqrt(id / idss[i])) / id);
+  CHECK(t.r_min == doctest::Approx(*std::min_element(need.begin(), need.end())).epsilon(1e-8));
+  CHECK(t.r_max == doctest::Approx(*std::max_element(need.begin(), need.end())).epsilon(1e-8));
+  CHECK(t.coverage == 1.0);
+  // Drawn from the bag: every run takes one of the three.
+  s.parts_drawn = true;
+  s.runs = 50;
+  for (int i = 0; i < s.runs; ++i) {
+    const spread_draw d = draw_part(s, st, i);
+    REQUIRE(d.bag_index >= 0);
+    REQUIRE(d.bag_index < 3);
+    CHECK(d.idss_a == s.parts[static_cast<std::size_t>(d.bag_index)].idss_a);
+  }
+  // Ranges beside parts, a count of runs that is not the bag's, a part of the other polarity.
+  spread_settings bad = s;
+  bad.parts_drawn = false;
+  CHECK_THROWS_AS(run_spread(st, bad, {}), setting_error);
+  bad.runs = 3;
+  bad.idss_a = base::value_range{2e-3, 8e-3};
+  CHECK_THROWS_AS(run_spread(st, bad, {}), setting_error);
+  part_figures pch = measured("P", 5e-3, 1.9, 0.0);
+  pch.p_channel = true;
+  CHECK_THROWS_WITH_AS(parts_for_spread({pch}, st), doctest::Contains("part 'P' is p-channel"), setting_error);
 }

@@ -5,6 +5,7 @@
 
 #include "base/error.hpp"
 #include "model/analysis/tune.hpp"
+#include "model/circuit/stage_file.hpp"
 #include "support/stages.hpp"
 
 using namespace pinchoff;
@@ -143,4 +144,89 @@ TEST_CASE("pairs that cannot be solved together are named by their field") {
       CHECK(std::string(e.what()).find(r.words) != std::string::npos);
     }
   }
+}
+
+namespace {
+// The degenerated common-source stage's mid-band gain, lambda = 0 (Sedra & Smith, any
+// edition): |A| = gm (RD || RL) / (1 + gm RSu), gm = 2 sqrt(idss id) / |vp| (Shockley).
+double cs_gain_db(double idss, double vp, double id, double rd, double rl, double ru) {
+  const double gm = 2.0 * std::sqrt(idss * id) / std::fabs(vp);
+  const double rdl = rd * rl / (rd + rl);
+  return 20.0 * std::log10(gm * rdl / (1.0 + gm * ru));
+}
+const std::string gain_stage_text = test::self_bias_text(18.0, 8e-3, -2.5, 2.2e3, 4.7e3,
+                                                         "unbypassed = 470\nbypass_cap = \"22u\"\n[output]\nload = \"47k\"\n"
+                                                         "coupling_cap = \"2.2u\"\n");
+}  // namespace
+
+TEST_CASE("a gain target: the stage built from the tuned resistor gives the gain to 0.01 dB") {
+  const stage s = test::stage_from(gain_stage_text);
+  for (const char* key : {"drain.resistor", "source.unbypassed"}) {
+    for (double want : {14.0, 17.0}) {
+      CAPTURE(key);
+      CAPTURE(want);
+      const tune_result r = tune_resistor(s, key, {target_kind::gain, want}, base::eseries::e24);
+      stage built = s;
+      *resistor_field(built, key) = r.exact_ohm;
+      const double got = midband_gain_db(built);
+      CHECK(std::fabs(got - want) < 0.01);
+      CHECK(std::fabs(r.exact.gain_db - want) < 0.01);
+      // The closed form at the tuned value's own operating point agrees.
+      const double rd = std::string(key) == "drain.resistor" ? r.exact_ohm : 4.7e3;
+      const double ru = std::string(key) == "source.unbypassed" ? r.exact_ohm : 470.0;
+      CHECK(std::fabs(cs_gain_db(8e-3, -2.5, r.exact.at.id_a, rd, 47e3, ru) - want) < 1e-4);
+      // Every candidate carries its gain; more drain resistance or less degeneration, more gain.
+      REQUIRE(r.candidates.size() == 2);
+      const bool rising = std::string(key) == "drain.resistor";
+      CHECK((r.candidates[0].point.gain_db <= want) == rising);
+      CHECK((r.candidates[1].point.gain_db >= want) == rising);
+    }
+  }
+  CHECK_THROWS_WITH_AS(tune_resistor(s, "source.unbypassed", {target_kind::gain, 60.0}, base::eseries::e24),
+                       doctest::Contains("out of reach"), input_error);
+}
+
+TEST_CASE("two targets met together: a gain and a drain voltage, and the standard-value pairs around them") {
+  // With vd = 9 V on 18 V the current is 9 V / RD, and the closed-form gain of that current
+  // and RD must be the target: both hold at the joint solution.
+  const stage s = test::stage_from(gain_stage_text);
+  const std::vector<tune_pair> pairs{{"drain.resistor", {target_kind::gain, 16.0}}, {"source.resistor", {target_kind::vd, 9.0}}};
+  const joint_solution sol = solve_resistors(s, pairs);
+  REQUIRE(sol.settled);
+  stage built = s;
+  built.drain_resistor_ohm = sol.ohm[0];
+  built.source.resistor_ohm = sol.ohm[1];
+  CHECK(std::fabs(midband_gain_db(built) - 16.0) < 0.01);
+  const tune_point p = evaluate_with(built, "drain.resistor", sol.ohm[0]);
+  CHECK(std::fabs(p.at.vd_v - 9.0) < 1e-4);
+  const double id = 9.0 / sol.ohm[0];
+  CHECK(std::fabs(cs_gain_db(8e-3, -2.5, id, sol.ohm[0], 47e3, 470.0) - 16.0) < 1e-3);
+  // The standard-value pairs: E24 values either side of each exact value, every
+  // combination, closest first.
+  const std::vector<joint_candidate> c = joint_candidates(s, pairs, sol, base::eseries::e24);
+  REQUIRE(c.size() == 4);
+  for (const joint_candidate& k : c) {
+    CHECK(k.ohm.size() == 2);
+    CHECK(std::fabs(k.ohm[0] - sol.ohm[0]) <= 0.1 * sol.ohm[0]);  // E24 steps are under 10 % (IEC 60062)
+    CHECK(std::fabs(k.ohm[1] - sol.ohm[1]) <= 0.1 * sol.ohm[1]);
+    CHECK(k.achieved[0] == doctest::Approx(k.gain_db).epsilon(1e-15));
+  }
+  for (std::size_t k = 1; k < c.size(); ++k) CHECK(c[k].error >= c[k - 1].error);
+}
+
+TEST_CASE("two targets out of reach one resistor at a time are still met together") {
+  // On the clean preamp preset 20 dB is beyond the drain resistor alone while the source
+  // resistor stays at the file's 2.2 kΩ (at most 17.2 dB), yet with the drain at 9 V both
+  // hold together (13 kΩ and 6.8 kΩ are the nearest E24 pair). The stage built from the
+  // solved values gives both.
+  const stage s = read_stage_file(std::string(PINCHOFF_PRESETS_DIR) + "/clean-preamp-18v.toml");
+  const std::vector<tune_pair> pairs{{"drain.resistor", {target_kind::gain, 20.0}}, {"source.resistor", {target_kind::vd, 9.0}}};
+  CHECK_THROWS_AS(solve_resistor(s, "drain.resistor", {target_kind::gain, 20.0}), input_error);
+  const joint_solution sol = solve_resistors(s, pairs);
+  REQUIRE(sol.settled);
+  stage built = s;
+  built.drain_resistor_ohm = sol.ohm[0];
+  built.source.resistor_ohm = sol.ohm[1];
+  CHECK(std::fabs(midband_gain_db(built) - 20.0) < 0.01);
+  CHECK(std::fabs(evaluate_with(built, "drain.resistor", sol.ohm[0]).at.vd_v - 9.0) < 1e-4);
 }

@@ -5,6 +5,9 @@
 #include "model/device/device_class.hpp"
 #include "model/analysis/spread.hpp"
 #include "model/circuit/stage_file.hpp"
+#include "model/circuit/network.hpp"
+#include "model/circuit/operating_point.hpp"
+#include "model/analysis/warnings.hpp"
 
 using namespace pinchoff;
 using namespace pinchoff::model;
@@ -76,4 +79,35 @@ TEST_CASE("a spread over a class stays inside the class's ranges") {
     CHECK(d.vp_v >= s.jfet_class->vp_v.lo);
     CHECK(d.vp_v <= s.jfet_class->vp_v.hi);
   }
+}
+
+TEST_CASE("a class's drain-source rating reaches the stage, and a drain above it warns") {
+  // The bundled general-purpose class is rated 25 V (typical of small-signal parts of the
+  // kind, common practice). At a 46 V supply the drain sits about 41 V above the source; at
+  // 30 V with a large drain resistor the rest VDS is under 25 V, but the drain reaches the
+  // rail when the part cuts off (common practice).
+  auto stage_at = [](const char* volts, const char* rd) {
+    std::string t = stage_text;
+    t.replace(t.find("volts = 9"), 9, std::string("volts = ") + volts);
+    t.replace(t.find("\"3.3k\""), 6, std::string("\"") + rd + "\"");
+    return parse_stage(t, "class-stage.toml", {}, devices);
+  };
+  auto warnings = [](const stage& s) {
+    const network net = build_network(s);
+    std::string all;
+    for (const std::string& w : operating_warnings(s, net, solve_operating_point(net))) all += w + "\n";
+    return all;
+  };
+  const stage hot = stage_at("46", "3.3k");
+  REQUIRE(hot.ratings.vds_max_v.has_value());
+  CHECK(*hot.ratings.vds_max_v == 25.0);
+  CHECK(warnings(hot).find("exceeds the rating vds_max 25") != std::string::npos);
+  const std::string rail = warnings(stage_at("30", "15k"));
+  CHECK(rail.find("the supply 30") != std::string::npos);
+  CHECK(rail.find("drain reaches the rail") != std::string::npos);
+  CHECK(warnings(stage_at("9", "3.3k")).find("vds_max") == std::string::npos);
+  // A stage's own rating wins over its class's.
+  std::string own = stage_text;
+  own.replace(own.find("class = "), 8, "vds_max = 50\nclass = ");
+  CHECK(*parse_stage(own, "own.toml", {}, devices).ratings.vds_max_v == 50.0);
 }
