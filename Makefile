@@ -51,6 +51,9 @@ demo: build
 	@echo "== pinchoff response presets/pickup-buffer-9v.toml (a pickup's resonance into a buffer)"
 	@$(PINCHOFF) response presets/pickup-buffer-9v.toml
 	@echo
+	@echo "== pinchoff match samples/bag-of-twenty.csv --tolerance 6%,50mV (matched pairs from a bag of parts)"
+	@$(PINCHOFF) match samples/bag-of-twenty.csv --tolerance 6%,50mV
+	@echo
 	@echo "== pinchoff render: the demo clip through two presets, loudness-matched, into out/"
 	@$(PINCHOFF) render presets/bass-booster-9v.toml presets/clean-preamp-18v.toml \
 	  --input samples/pluck-phrase-48k.wav --output out --dry --force
