@@ -1,4 +1,5 @@
 // pinchoff sweep: harmonic profile against drive, from the nonlinear engine.
+#include <algorithm>
 #include <cmath>
 #include <filesystem>
 #include <memory>
@@ -458,6 +459,11 @@ void print_text(const sweep_report& rep, bool verbose, std::ostream& out) {
     if (c.found)
       out << "drive " << format_si(c.drive_vpk, "Vpk") << " (" << dbu(c.drive_vpk) << "), output "
           << format_si(c.output_vpk, "Vpk") << " (" << dbu(c.output_vpk) << ")\n";
+    else if (const auto lowest = std::min_element(r.points.begin(), r.points.end(),
+                                                  [](const auto& a, const auto& b) { return a.drive_vpk < b.drive_vpk; });
+             lowest != r.points.end() && lowest->thd_percent >= c.thd_percent)
+      out << "already passed at the lowest drive (" << format_number(lowest->thd_percent, 3) << " % at "
+          << dbu(lowest->drive_vpk) << "): start the sweep lower to find it\n";
     else
       out << "not reached in this sweep\n";
   }

@@ -218,3 +218,17 @@ TEST_CASE("spread's histograms mark the --require limits") {
   const std::string id = pinchoff::testing::slurp(dir.file("batch-id.svg"));
   CHECK(has(id, "required max 20.0 mA (off to the right)"));
 }
+
+TEST_CASE("sweep says a THD level was passed below its lowest drive, not that it was never reached") {
+  // The bass booster is at several per cent THD from 0.3 V peak on: a sweep that starts
+  // there has crossed 1 % and 3 % below its first drive, and must say so.
+  const result r = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "0.5V,0.3V"});
+  REQUIRE(r.status == 0);
+  CHECK(has(r.out, "THD 1.0 %: already passed at the lowest drive"));
+  CHECK(has(r.out, "start the sweep lower"));
+  CHECK(!has(r.out, "THD 1.0 %: not reached"));
+  // A sweep that stays clean has not reached 10 %.
+  const result clean = run({"sweep", preset("bass-booster-9v.toml"), "--drive", "1mV,2mV"});
+  REQUIRE(clean.status == 0);
+  CHECK(has(clean.out, "THD 10 %: not reached in this sweep"));
+}
