@@ -183,6 +183,32 @@ dsp::sample_range stream_steady_part(dsp::sound_reader& rd, int channel, std::in
   return dsp::steady_part_of_blocks(rms, block, static_cast<std::size_t>(done));
 }
 
+// The recording opened and checked, and the part --start and --duration choose:
+// [first, first + count) in frames.
+struct recording_part {
+  dsp::sound_reader rd;
+  std::int64_t first{0}, count{0};
+};
+recording_part open_part(const measure_options& o, const char* why_a_file) {
+  dsp::require_seekable_file(o.path, why_a_file);
+  recording_part p{dsp::sound_reader::open(o.path)};
+  const dsp::sound_info& info = p.rd.info();
+  if (o.channel < 1 || o.channel > info.channels)
+    throw input_error("'" + o.path + "' has " + std::to_string(info.channels) + " channel" + (info.channels == 1 ? "" : "s") +
+                      "; --channel " + std::to_string(o.channel) + " does not exist");
+  if (info.frames <= 0) throw input_error("'" + o.path + "' holds no audio (a header and no frames)");
+  const double fs = info.rate_hz;
+  // In seconds first: a time far beyond the file does not fit in a count of frames.
+  if (!(o.start_s * fs < static_cast<double>(info.frames) - 0.5))
+    throw input_error("--start " + format_number(o.start_s) + " s lies beyond the end of '" + o.path + "' (" +
+                      format_number(info.seconds(), 4) + " s)");
+  p.first = static_cast<std::int64_t>(std::llround(o.start_s * fs));
+  p.count = info.frames - p.first;
+  if (o.duration_s > 0.0 && o.duration_s * fs < static_cast<double>(p.count))
+    p.count = static_cast<std::int64_t>(std::llround(o.duration_s * fs));
+  return p;
+}
+
 measure_report analyse(const measure_options& o) {
   measure_report r;
   r.path = o.path;
@@ -199,13 +225,10 @@ measure_report analyse(const measure_options& o) {
                       format_si(s.band_low_hz, "Hz") + " (AES17)");
   if (o.freq_text != "auto") s.approx_fundamental_hz = frequency(o.freq_text, "--freq");
 
-  dsp::require_seekable_file(o.path, "measure reads the recording twice (to find its steady part, then to analyse it)");
-  dsp::sound_reader rd = dsp::sound_reader::open(o.path);
+  recording_part part = open_part(o, "measure reads the recording twice (to find its steady part, then to analyse it)");
+  dsp::sound_reader& rd = part.rd;
   r.info = rd.info();
   r.channel = o.channel;
-  if (o.channel < 1 || o.channel > r.info.channels)
-    throw input_error("'" + o.path + "' has " + std::to_string(r.info.channels) + " channel" +
-                      (r.info.channels == 1 ? "" : "s") + "; --channel " + std::to_string(o.channel) + " does not exist");
   const double fs = r.info.rate_hz;
   // The band cannot reach past Nyquist; AES17's 20 kHz applies from 40 kHz sampling up.
   r.band_high_hz = s.band_high_hz = std::min(s.band_high_hz, fs / 2);
@@ -214,16 +237,8 @@ measure_report analyse(const measure_options& o) {
   if (o.freq_text != "auto" && s.approx_fundamental_hz < s.band_low_hz)
     throw input_error("--freq " + o.freq_text + " lies below the measurement band, which starts at " +
                       format_si(s.band_low_hz, "Hz") + " (AES17)");
-  if (r.info.frames <= 0) throw input_error("'" + o.path + "' holds no audio (a header and no frames)");
-  // In seconds first: a time far beyond the file does not fit in a count of frames.
-  const double frames_d = static_cast<double>(r.info.frames);
-  if (!(o.start_s * fs < frames_d - 0.5))
-    throw input_error("--start " + format_number(o.start_s) + " s lies beyond the end of '" + o.path + "' (" +
-                      format_number(r.info.seconds(), 4) + " s)");
-  r.first_frame = static_cast<std::int64_t>(std::llround(o.start_s * fs));
-  std::int64_t count = r.info.frames - r.first_frame;
-  if (o.duration_s > 0.0 && o.duration_s * fs < static_cast<double>(count))
-    count = static_cast<std::int64_t>(std::llround(o.duration_s * fs));
+  r.first_frame = part.first;
+  std::int64_t count = part.count;
   if (o.start_s == 0.0 && o.duration_s == 0.0) {
     const dsp::sample_range keep = stream_steady_part(rd, o.channel - 1, r.first_frame, count);
     r.trimmed = keep.begin != 0 || static_cast<std::int64_t>(keep.end) != count;
@@ -312,22 +327,13 @@ noise_report analyse_noise_recording(const measure_options& o) {
   std::optional<model::stage> st;
   if (!o.against_path.empty()) st = load_stage(o.against_path, o.overrides, o.devices);
 
-  dsp::require_seekable_file(o.path, "measure reads the recording from a file");
-  dsp::sound_reader rd = dsp::sound_reader::open(o.path);
+  recording_part part = open_part(o, "measure reads the recording from a file");
+  dsp::sound_reader& rd = part.rd;
   r.info = rd.info();
   r.channel = o.channel;
-  if (o.channel < 1 || o.channel > r.info.channels)
-    throw input_error("'" + o.path + "' has " + std::to_string(r.info.channels) + " channel" +
-                      (r.info.channels == 1 ? "" : "s") + "; --channel " + std::to_string(o.channel) + " does not exist");
-  if (r.info.frames <= 0) throw input_error("'" + o.path + "' holds no audio (a header and no frames)");
   const double fs = r.info.rate_hz;
-  if (!(o.start_s * fs < static_cast<double>(r.info.frames) - 0.5))
-    throw input_error("--start " + format_number(o.start_s) + " s lies beyond the end of '" + o.path + "' (" +
-                      format_number(r.info.seconds(), 4) + " s)");
-  r.first_frame = static_cast<std::int64_t>(std::llround(o.start_s * fs));
-  std::int64_t count = r.info.frames - r.first_frame;
-  if (o.duration_s > 0.0 && o.duration_s * fs < static_cast<double>(count))
-    count = static_cast<std::int64_t>(std::llround(o.duration_s * fs));
+  r.first_frame = part.first;
+  const std::int64_t count = part.count;
   r.available = count;
   rd.seek(r.first_frame);
   std::vector<double> x = dsp::read_channel(rd, o.channel - 1, std::min(count, max_analysed_frames));
