@@ -177,14 +177,12 @@ std::vector<int> pictured(const std::vector<double>& drives) {
 
 std::string drive_legend(double vpk) { return dbu(vpk) + " (" + format_si(vpk, "Vpk") + ")"; }
 
-// The output over one period at each pictured drive, each scaled to its own peak, so the
-// shapes (the bend, the flat tops, a lean to one side) compare at any level.
-void write_waveform_plot(const sweep_report& rep, const std::string& path, base::output_set& outputs) {
+// One curve per pictured drive over one steady-state period, the output scaled to its own
+// peak; `x_of` gives a point's abscissa from the folded period (the phase, or the
+// generator's voltage over its peak), and the curve closes where it began.
+template <class X>
+void add_period_curves(const sweep_report& rep, line_plot& pl, X x_of) {
   const model::sweep_result& r = rep.r;
-  line_plot pl;
-  pl.title = rep.st.name + ": one period of the output at " + format_si(r.frequency_hz, "Hz");
-  pl.x = {"phase of the generator's sine (degrees)", axis_scale::linear, 0.0, 360.0, false};
-  pl.top.y = {"output at the load, change from rest / its peak", axis_scale::linear, -1.05, 1.05, false};
   for (int i : pictured(rep.settings.drives_vpk)) {
     const model::sweep_point& p = r.points[static_cast<std::size_t>(i)];
     const model::period_trace t = model::fold_period(p, r, picture_points);
@@ -192,15 +190,28 @@ void write_waveform_plot(const sweep_report& rep, const std::string& path, base:
     for (double v : t.output_v) peak = std::max(peak, std::fabs(v));
     series s{drive_legend(p.drive_vpk), {}, {}, false};
     for (std::size_t k = 0; k < t.phase.size(); ++k) {
-      s.x.push_back(360.0 * t.phase[k]);
+      s.x.push_back(x_of(t, k, p));
       s.y.push_back(peak > 0 ? t.output_v[k] / peak : 0.0);
     }
-    if (!s.x.empty()) {  // the period closes at 360 degrees where it began
-      s.x.push_back(360.0);
+    if (!s.x.empty()) {
+      s.x.push_back(x_of(t, t.phase.size(), p));
       s.y.push_back(s.y.front());
     }
     pl.top.lines.push_back(std::move(s));
   }
+}
+
+// The output over one period at each pictured drive, each scaled to its own peak, so the
+// shapes (the bend, the flat tops, a lean to one side) compare at any level.
+void write_waveform_plot(const sweep_report& rep, const std::string& path, base::output_set& outputs) {
+  line_plot pl;
+  pl.title = rep.st.name + ": one period of the output at " + format_si(rep.r.frequency_hz, "Hz");
+  pl.x = {"phase of the generator's sine (degrees)", axis_scale::linear, 0.0, 360.0, false};
+  pl.top.y = {"output at the load, change from rest / its peak", axis_scale::linear, -1.05, 1.05, false};
+  // The closing point is 360 degrees.
+  add_period_curves(rep, pl, [](const model::period_trace& t, std::size_t k, const model::sweep_point&) {
+    return k < t.phase.size() ? 360.0 * t.phase[k] : 360.0;
+  });
   add_svg_output(outputs, path, render_svg(pl));
 }
 
@@ -210,27 +221,14 @@ void write_waveform_plot(const sweep_report& rep, const std::string& path, base:
 // where it clips, and a loop (the way down apart from the way up) shows the coupling
 // capacitors charging within the period.
 void write_transfer_plot(const sweep_report& rep, const std::string& path, base::output_set& outputs) {
-  const model::sweep_result& r = rep.r;
   line_plot pl;
-  pl.title = rep.st.name + ": transfer curve over one period at " + format_si(r.frequency_hz, "Hz");
+  pl.title = rep.st.name + ": transfer curve over one period at " + format_si(rep.r.frequency_hz, "Hz");
   pl.x = {"generator voltage / its peak", axis_scale::linear, -1.05, 1.05, false};
   pl.top.y = {"output at the load, change from rest / its peak", axis_scale::linear, -1.05, 1.05, false};
-  for (int i : pictured(rep.settings.drives_vpk)) {
-    const model::sweep_point& p = r.points[static_cast<std::size_t>(i)];
-    const model::period_trace t = model::fold_period(p, r, picture_points);
-    double peak = 0.0;
-    for (double v : t.output_v) peak = std::max(peak, std::fabs(v));
-    series s{drive_legend(p.drive_vpk), {}, {}, false};
-    for (std::size_t k = 0; k < t.phase.size(); ++k) {
-      s.x.push_back(t.generator_v[k] / p.drive_vpk);
-      s.y.push_back(peak > 0 ? t.output_v[k] / peak : 0.0);
-    }
-    if (!s.x.empty()) {  // the loop closes
-      s.x.push_back(s.x.front());
-      s.y.push_back(s.y.front());
-    }
-    pl.top.lines.push_back(std::move(s));
-  }
+  // The closing point is the first one again.
+  add_period_curves(rep, pl, [](const model::period_trace& t, std::size_t k, const model::sweep_point& p) {
+    return t.generator_v[k < t.phase.size() ? k : 0] / p.drive_vpk;
+  });
   add_svg_output(outputs, path, render_svg(pl));
 }
 
