@@ -321,7 +321,7 @@ function drawDesign() {
     input.value = f.value;
     input.dataset.index = i;
     input.dataset.key = (f.stage > 0 ? 'stage' + f.stage + '.' : '') + (f.section ? f.section + '.' : '') + f.key;
-    input.addEventListener('change', () => propose(i, input.value));
+    input.addEventListener('change', () => { clearTimeout(pending); propose(i, input.value); });
     input.addEventListener('keydown', (e) => {
       if (e.key === 'ArrowUp' || e.key === 'ArrowDown') { e.preventDefault(); step(i, e.key === 'ArrowUp' ? 1 : -1); }
     });
@@ -413,12 +413,15 @@ async function analyse(text, refused) {
   const body = await res.json();
   if (seq !== state.seq) return false;  // a newer edit is on its way
   if (res.status !== 200) {
+    document.body.dataset.refusals = String(+(document.body.dataset.refusals || 0) + 1);
     setStatus('refused: ' + body.error, 'error');
     if (refused) refused(body.error);
     return false;
   }
   state.analysis = body;
   showAll();
+  // For the browser tests: how many answers the page has shown.
+  document.body.dataset.answers = String(+(document.body.dataset.answers || 0) + 1);
   setStatus('figures ready in ' + Math.round(performance.now() - t0) + ' ms');
   return true;
 }
