@@ -132,6 +132,11 @@ def main():
         if cli.returncode != 2 or cli.stderr.strip() != "pinchoff bias: " + why:
             fail("refusal shown %r, the command line says %r" % (why, cli.stderr))
 
+        # Pin and compare: the pinned response and harmonic profile are drawn beside the current.
+        driver.find_element(By.ID, "pin").click()
+        if not driver.find_elements(By.CSS_SELECTOR, "#resp path.pinned") or not driver.find_elements(By.CSS_SELECTOR, "#sweep path.pinned"):
+            fail("pinning draws no pinned curve")
+
         # Render: an audio element with the clip's duration (the demo clip: 6.5 s).
         driver.find_element(By.ID, "render").click()
         WebDriverWait(driver, 120).until(lambda d: d.execute_script(

@@ -4,7 +4,12 @@
 // exactly what the command line gives), the refusals against what the server promises.
 #include <doctest/doctest.h>
 
+#include <signal.h>
+#include <sys/wait.h>
+
 #include <cctype>
+#include <chrono>
+#include <thread>
 #include <cstdio>
 #include <fstream>
 #include <set>
@@ -323,4 +328,50 @@ TEST_CASE("workbench: a port in use is refused by name before anything is served
   CHECK(cli.out.empty());
   CHECK(cli.err == "pinchoff workbench: cannot listen on 127.0.0.1 port " + port +
                        ": it is in use or needs privileges (give another --port, or 0 for a free one)\n");
+}
+
+TEST_CASE("workbench: a file index that is not one of the loaded files is refused") {
+  running r(settings_for({preset("bass-booster-9v.toml")}));
+  for (const std::string k : {"1", "-1", "x", "", "99999999999999999999999", "0x0"}) {
+    CAPTURE(k);
+    const auto res = r.client.Post(r.with_token("/api/analyse?file=" + k).c_str(), slurp(preset("bass-booster-9v.toml")), "text/plain");
+    REQUIRE(res);
+    CHECK(res->status == 400);
+    CHECK(nlohmann::json::parse(res->body).at("error").get<std::string>().find("file: give the index of a loaded file") == 0);
+  }
+}
+
+TEST_CASE("workbench: SIGTERM and Ctrl-C stop the server cleanly, exit status 0") {
+  for (const int sig : {SIGTERM, SIGINT}) {
+    CAPTURE(sig);
+    int port = 0;
+    {
+      // A port that was free a moment ago.
+      running probe(settings_for({preset("bass-booster-9v.toml")}));
+      port = probe.server.port();
+    }
+    const pid_t pid = pinchoff::testing::spawn_cli({"workbench", preset("bass-booster-9v.toml"), "--port", std::to_string(port)});
+    REQUIRE(pid > 0);
+    httplib::Client client("127.0.0.1", port);
+    bool up = false;
+    for (int k = 0; k < 200 && !up; ++k) {
+      up = static_cast<bool>(client.Get("/"));  // 403 without the token: it answers
+      if (!up) std::this_thread::sleep_for(std::chrono::milliseconds(50));
+    }
+    CHECK(up);
+    ::kill(pid, sig);
+    int status = -1;
+    for (int k = 0; k < 200; ++k) {
+      if (::waitpid(pid, &status, WNOHANG) == pid) break;
+      std::this_thread::sleep_for(std::chrono::milliseconds(50));
+      if (k == 199) {
+        ::kill(pid, SIGKILL);
+        ::waitpid(pid, &status, 0);
+        FAIL("the server did not stop within 10 s");
+      }
+    }
+    CHECK(WIFEXITED(status));
+    CHECK(WEXITSTATUS(status) == 0);
+    CHECK(!client.Get("/"));  // nothing listens any more
+  }
 }
