@@ -375,3 +375,30 @@ TEST_CASE("workbench: SIGTERM and Ctrl-C stop the server cleanly, exit status 0"
     CHECK(!client.Get("/"));  // nothing listens any more
   }
 }
+
+TEST_CASE("workbench: render and save refuse what they cannot do, by name") {
+  scratch_dir dir;
+  running r(settings_for({preset("bass-booster-9v.toml")}));  // no clip
+  const std::string text = slurp(preset("bass-booster-9v.toml"));
+  auto error_of = [](const httplib::Result& res) { return nlohmann::json::parse(res->body).at("error").get<std::string>(); };
+  auto res = r.client.Post(r.with_token("/api/render").c_str(), text, "text/plain");
+  REQUIRE(res);
+  CHECK(res->status == 400);
+  CHECK(error_of(res) == "no recording to render: start pinchoff workbench with --audio CLIP.wav");
+  res = r.client.Post(r.with_token("/api/save").c_str(), text, "text/plain");
+  REQUIRE(res);
+  CHECK(res->status == 400);
+  CHECK(error_of(res) == "save: type the path of the file to write");
+  // A save into a folder that does not exist: refused, nothing made.
+  res = r.client.Post(r.with_token("/api/save?path=" + url_encoded((dir.path / "no" / "such.toml").string())).c_str(), text,
+                      "text/plain");
+  REQUIRE(res);
+  CHECK(res->status == 400);
+  CHECK(!fs::exists(dir.path / "no"));
+
+  running with_clip(settings_for({preset("bass-booster-9v.toml")}, std::string(PINCHOFF_SAMPLES_DIR) + "/pluck-phrase-48k.wav"));
+  res = with_clip.client.Post(with_clip.with_token("/api/render?input_peak=loud").c_str(), text, "text/plain");
+  REQUIRE(res);
+  CHECK(res->status == 400);
+  CHECK(error_of(res).find("input peak") == 0);
+}
