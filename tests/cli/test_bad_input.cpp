@@ -895,6 +895,9 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"spread --require on the noise of one stage of a chain", {"spread", "@chain.toml", "--noise", "--require", "stage2.noise_a=..1u", "--runs", "10"}, {"--require: ", "noise_a is the whole design's", "without a stage"}},
       {"render --seed that is not a number", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--noise", "--seed", "x"}, {"--seed", "a whole number", "'x'"}},
       {"render --seed below 0", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--noise", "--seed", "-1"}, {"--seed", "a whole number from 0", "'-1'"}},
+      // ---- headroom as distortion: bias and tune --thd-levels
+      {"tune --thd-levels with --over-spread", {"tune", "@stage.toml", "--target", "vd=4.5", "--over-spread", "--runs", "4", "--thd-levels"}, {"--thd-levels: ", "one --target, without --over-spread"}},
+      {"tune --thd-levels with two targets", {"tune", "@stage.toml", "--target", "vd=4.5", "--target", "gain=15dB", "--adjust", "source.resistor,drain.resistor", "--thd-levels"}, {"--thd-levels: ", "one --target"}},
       // ---- first use: a key written out in full where the file abbreviates it
       {"a key written out in full", {"bias", "@stage.toml", "--set", "gate.coupling_capacitor=100n"}, {"--set gate.coupling_capacitor", "did you mean 'coupling_cap'"}},
       {"a key written out in full, in a sweep", {"sweep", "@stage.toml", "--set", "source.bypass_capacitor=100u"}, {"did you mean 'bypass_cap'"}},
