@@ -898,6 +898,11 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       // ---- headroom as distortion: bias and tune --thd-levels
       {"tune --thd-levels with --over-spread", {"tune", "@stage.toml", "--target", "vd=4.5", "--over-spread", "--runs", "4", "--thd-levels"}, {"--thd-levels: ", "one --target, without --over-spread"}},
       {"tune --thd-levels with two targets", {"tune", "@stage.toml", "--target", "vd=4.5", "--target", "gain=15dB", "--adjust", "source.resistor,drain.resistor", "--thd-levels"}, {"--thd-levels: ", "one --target"}},
+      // ---- temperature: bias --temperature and the part's own laws
+      {"bias --temperature beyond the rated range", {"bias", "@stage.toml", "--temperature", "0..200"}, {"--temperature 0..200", "-55 to 150"}},
+      {"bias --temperature that is not a range", {"bias", "@stage.toml", "--temperature", "warm"}, {"--temperature", "'warm'"}},
+      {"bias --vp-drift of the wrong sign", {"bias", "@stage.toml", "--temperature", "0..50", "--vp-drift", "2"}, {"--vp-drift/--beta-exponent: ", "0 to -10 mV/K", "got 2"}},
+      {"bias --beta-exponent out of range", {"bias", "@stage.toml", "--temperature", "0..50", "--beta-exponent", "1"}, {"--vp-drift/--beta-exponent: ", "-3 to 0", "got 1"}},
       // ---- first use: a key written out in full where the file abbreviates it
       {"a key written out in full", {"bias", "@stage.toml", "--set", "gate.coupling_capacitor=100n"}, {"--set gate.coupling_capacitor", "did you mean 'coupling_cap'"}},
       {"a key written out in full, in a sweep", {"sweep", "@stage.toml", "--set", "source.bypass_capacitor=100u"}, {"did you mean 'bypass_cap'"}},
