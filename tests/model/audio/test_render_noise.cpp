@@ -201,3 +201,40 @@ TEST_CASE("render --noise: the scale is the noiseless output's, and the file is 
   CHECK(std::fabs(std::sqrt(mean_square(diff)) / (rms_v * scale) - 1.0) < 2.5 * se);
   CHECK(read_all(d.file("again.wav")) == b);  // a seed repeats the file
 }
+
+TEST_CASE("render --noise: each channel hisses on its own stream, at the same level") {
+  scratch_dir d;
+  const std::size_t frames = static_cast<std::size_t>(5 * rate);
+  {
+    dsp::write_settings s;
+    s.rate_hz = rate;
+    s.channels = 2;
+    s.format = dsp::sample_format::wav_float;
+    dsp::sound_writer w = dsp::sound_writer::create(d.file("stereo.wav"), s);
+    w.write(std::vector<double>(2 * frames, 0.0));
+    w.commit();
+  }
+  const result r = run_cli({"render", preset("bass-booster-9v.toml"), "--input", d.file("stereo.wav"), "--output",
+                            d.file("hiss.wav"), "--output-peak", "1V", "--noise", "--json", "--quiet"});
+  REQUIRE(r.status == 0);
+  const double rms_v = nlohmann::json::parse(r.out)["outputs"][0]["noise"]["rms_v"].get<double>();
+  const std::vector<double> x = read_all(d.file("hiss.wav"));
+  REQUIRE(x.size() == 2 * frames);
+  std::vector<double> left(frames), right(frames);
+  double cross = 0.0;
+  for (std::size_t k = 0; k < frames; ++k) {
+    left[k] = x[2 * k];
+    right[k] = x[2 * k + 1];
+    cross += left[k] * right[k];
+  }
+  // The mean square's relative standard error se is sqrt(2 S2 / N) with S2 the sum of the
+  // squared normalised autocorrelation; the correlation coefficient of two independent
+  // streams of this noise has the standard error sqrt(S2 / N) = se / sqrt(2).
+  const double se = predicted("bass-booster-9v.toml").mean_square_error(frames);
+  const double corr = cross / static_cast<double>(frames) / std::sqrt(mean_square(left) * mean_square(right));
+  CAPTURE(se);
+  CAPTURE(corr);
+  CHECK(std::fabs(corr) < 5.0 * se / std::sqrt(2.0));
+  CHECK(std::fabs(std::sqrt(mean_square(left)) / rms_v - 1.0) < 2.5 * se);
+  CHECK(std::fabs(std::sqrt(mean_square(right)) / rms_v - 1.0) < 2.5 * se);
+}
