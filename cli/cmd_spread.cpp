@@ -135,9 +135,16 @@ void write_histograms(const model::spread_result& res, const std::vector<std::st
     c.floor = 0.0;
     for (int b = 0; b < bins; ++b) {
       const double centre = lo + (b + 0.5) * w;
+      // Enough digits that neighbouring bins read apart (-114.3, -114.1, ... for an EIN).
       const bool small = std::string_view(q.unit) == "A" || is_noise_quantity(q.name);
-      c.categories.push_back(small ? format_si(centre, "", 3) : format_number(centre, 3));
+      const double top = std::max(std::fabs(lo), std::fabs(hi));
+      const int digits = std::clamp(static_cast<int>(std::ceil(std::log10(top / w))) + 1, 3, 6);
+      c.categories.push_back(small && std::string_view(q.unit) != "dBu" ? format_si(centre, "", digits)
+                                                                      : format_number(centre, digits));
     }
+    // Labels longer than a bin is wide (about 6 characters) are kept on every other bin only.
+    if (std::any_of(c.categories.begin(), c.categories.end(), [](const std::string& l) { return l.size() > 6; }))
+      for (std::size_t b = 1; b < c.categories.size(); b += 2) c.categories[b].clear();
     for (double x : v) c.values[0][static_cast<std::size_t>(std::min(bins - 1, static_cast<int>((x - lo) / w)))] += 1.0;
     for (const auto& [x, label] : limits) {
       const double at = (x - lo) / w;
