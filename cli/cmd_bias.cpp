@@ -1,9 +1,12 @@
 // pinchoff bias: operating point, small-signal figures, headroom, corners and warnings.
+#include <algorithm>
 #include <cmath>
 #include <complex>
 #include <memory>
 #include <numbers>
 #include <optional>
+#include <string>
+#include <vector>
 
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
@@ -14,7 +17,9 @@
 #include "cli/text_table.hpp"
 #include "base/units.hpp"
 #include "model/analysis/bias.hpp"
+#include "model/analysis/distortion_headroom.hpp"
 #include "model/analysis/noise.hpp"
+#include "model/analysis/temperature_drift.hpp"
 #include "model/analysis/warnings.hpp"
 
 namespace pinchoff::cli {
@@ -27,6 +32,10 @@ using align = text_table::align;
 struct bias_options {
   stage_input input;
   std::string at_text;
+  bool thd_levels{false};
+  std::string temperature;         ///< --temperature LO..HI, °C
+  double vp_drift_mv{-2.2};        ///< --vp-drift, mV/K (n-channel frame)
+  double beta_exponent{-1.5};      ///< --beta-exponent
   bool json{false};
 };
 
@@ -35,7 +44,117 @@ struct bias_report {
   model::bias_figures b;
   double ein_a_dbu{};          ///< A-weighted EIN, 20 Hz to 20 kHz
   double self_noise_dba_spl{};  ///< a capsule's
+  std::optional<model::distortion_headroom> thd;  ///< --thd-levels
+  std::optional<model::temperature_drift> drift;  ///< --temperature
 };
+
+double celsius(double kelvin) { return kelvin - 273.15; }
+
+// --temperature: the rest point at each temperature, and each part's zero-TC current.
+void print_drift(const bias_report& r, std::ostream& out) {
+  const model::temperature_drift& d = *r.drift;
+  const int n = r.st.stage_count();
+  out << "\nTemperature drift (the part's figures at " << format_number(celsius(d.reference_k), 3) << " °C; VP "
+      << format_number(d.law.vp_drift_v_per_k * 1e3, 3) << " mV/K" << (r.st.pol == model::polarity::p ? " mirrored" : "")
+      << ", beta ∝ T^" << format_number(d.law.beta_exponent, 3) << ", gate leakage doubling every "
+      << format_number(d.law.leakage_doubling_k, 3) << " K)\n";
+  std::vector<align> cols{align::right};
+  std::vector<std::string> head{"°C"};
+  for (int k = 0; k < n; ++k) {
+    const std::string pre = n > 1 ? "stage" + std::to_string(k + 1) + " " : std::string();
+    cols.insert(cols.end(), {align::right, align::right, align::right});
+    head.insert(head.end(), {pre + "ID", pre + "VGS", pre + "VD"});
+  }
+  cols.push_back(align::right);
+  head.push_back("gain");
+  text_table t(cols);
+  t.add(head);
+  for (const model::drift_point& p : d.points) {
+    std::vector<std::string> row{format_number(celsius(p.temperature_k), 3)};
+    if (!p.solved) {
+      row.push_back("no operating point: " + p.failure);
+      while (row.size() < head.size()) row.push_back("");
+      t.add(row);
+      continue;
+    }
+    for (const model::terminal_point& at : p.stages)
+      row.insert(row.end(), {format_si(at.id_a, "A", 4), format_si(at.vgs_v, "V", 4), format_si(at.vd_v, "V", 4)});
+    row.push_back(format_number(p.gain_db, 4) + " dB");
+    t.add(row);
+  }
+  t.write(out);
+  for (int k = 0; k < n; ++k) {
+    const model::zero_tc_point& z = d.zero_tc[static_cast<std::size_t>(k)];
+    const double id = std::fabs(d.rest[static_cast<std::size_t>(k)].id_a);
+    out << "  " << (n > 1 ? "stage " + std::to_string(k + 1) + ": " : std::string()) << "zero-TC drain current "
+        << format_si(z.id_a, "A") << " (VGS = VP + " << format_si(z.vov_v, "V") << ")";
+    if (!z.below_idss)
+      out << ", above IDSS: out of reach with the gate reverse-biased; ID rises as the part warms\n";
+    else
+      out << "; the bias (" << format_si(id, "A") << ") is " << format_number(100.0 * id / z.id_a, 3) << " % of it"
+          << (std::fabs(id / z.id_a - 1.0) <= 0.1 ? ", near it: the drain current hardly drifts"
+              : id > z.id_a                        ? ": above, ID falls as the part warms"
+                                                   : ": below, ID rises as the part warms")
+          << "\n";
+  }
+  out << "  (at a fixed VGS; a source resistor's feedback shrinks the drift of a self-biased stage)\n";
+}
+
+nlohmann::json drift_json(const bias_report& r) {
+  const model::temperature_drift& d = *r.drift;
+  nlohmann::json points = nlohmann::json::array();
+  for (const model::drift_point& p : d.points) {
+    nlohmann::json stages = nlohmann::json::array();
+    for (const model::terminal_point& at : p.stages)
+      stages.push_back({{"id_a", at.id_a}, {"vgs_v", at.vgs_v}, {"vd_v", at.vd_v}, {"region", model::region_name(at.region)}});
+    points.push_back({{"temperature_c", celsius(p.temperature_k)},
+                      {"solved", p.solved},
+                      {"failure", p.solved ? nlohmann::json(nullptr) : nlohmann::json(p.failure)},
+                      {"stages", stages},
+                      {"gain_db", p.solved ? nlohmann::json(p.gain_db) : nlohmann::json(nullptr)}});
+  }
+  nlohmann::json ztc = nlohmann::json::array();
+  for (std::size_t k = 0; k < d.zero_tc.size(); ++k)
+    ztc.push_back({{"stage", k + 1},
+                   {"id_a", d.zero_tc[k].id_a},
+                   {"vov_v", d.zero_tc[k].vov_v},
+                   {"vgs_v", d.zero_tc[k].vgs_v},
+                   {"below_idss", d.zero_tc[k].below_idss},
+                   {"bias_id_a", std::fabs(d.rest[k].id_a)}});
+  return {{"reference_c", celsius(d.reference_k)},
+          {"law", {{"vp_drift_v_per_k", d.law.vp_drift_v_per_k},
+                   {"beta_exponent", d.law.beta_exponent},
+                   {"leakage_doubling_k", d.law.leakage_doubling_k}}},
+          {"points", points},
+          {"zero_tc", ztc}};
+}
+
+// Headroom as distortion (--thd-levels): the output at 1 %, 3 % and 10 % THD from the
+// engine, beside the clean swing; without the option, one line saying how to ask for it.
+void print_thd_levels(const bias_report& r, std::ostream& out) {
+  if (!r.thd) {
+    out << "  (--thd-levels adds the output at 1 %, 3 % and 10 % THD from the engine)\n";
+    return;
+  }
+  const model::distortion_headroom& d = *r.thd;
+  out << "  THD from the engine (a " << format_si(d.frequency_hz, "Hz", 4) << " sine, as sweep finds it):\n";
+  for (const model::thd_crossing& c : d.levels) {
+    out << "    " << format_number(c.thd_percent, 2) << " % ";
+    if (c.found)
+      out << "at " << format_si(c.output_vpk, "V") << " peak (" << format_number(base::dbu_from_vpk(c.output_vpk), 3)
+          << " dBu) at the load, drive " << format_si(c.drive_vpk, "V") << " peak\n";
+    else if (d.lowest_drive_thd_percent >= c.thd_percent)
+      out << "already passed at the lowest drive swept, " << format_si(d.from_vpk, "V") << " peak ("
+          << format_number(d.lowest_drive_thd_percent, 3) << " %)\n";
+    else
+      out << "not reached up to " << format_si(d.to_vpk, "V") << " peak of drive ("
+          << format_number(d.highest_drive_thd_percent, 3) << " %)\n";
+  }
+  out << "  the clean swing is the hard limit of the transfer curve; THD rises well before it\n";
+  if (d.unconverged > 0 || d.newton_failures > 0)
+    out << "  ! " << d.unconverged << " of " << d.points << " drives did not settle to a steady state, "
+        << d.newton_failures << " engine samples did not converge\n";
+}
 
 std::string db_text(double gain) { return format_number(base::db_from_ratio(std::fabs(gain)), 3) + " dB"; }
 
@@ -111,6 +230,7 @@ void print_chain_text(const bias_report& r, const std::string& path, std::ostrea
   }
   out << "  clean symmetric swing " << format_si(r.b.head.symmetric_output_vpk, "V") << " peak ("
       << format_number(base::dbu_from_vpk(r.b.head.symmetric_output_vpk), 3) << " dBu) at the load\n";
+  print_thd_levels(r, out);
 }
 
 void print_text(const bias_report& r, const std::string& path, std::ostream& out) {
@@ -162,6 +282,7 @@ void print_text(const bias_report& r, const std::string& path, std::ostream& out
       << format_number(base::dbu_from_vpk(r.b.head.symmetric_output_vpk), 3) << " dBu) at the load, for drive up to "
       << format_si(r.b.head.clean_drive_vpk, "V") << " peak ("
       << format_number(base::dbu_from_vpk(r.b.head.clean_drive_vpk), 3) << " dBu)\n";
+  print_thd_levels(r, out);
   print_tail(r, out);
 }
 
@@ -344,7 +465,25 @@ nlohmann::json bias_report_json(const bias_report& r) {
   j["headroom"] = {{"up", limit_json(r.b.head.up)},
                    {"down", limit_json(r.b.head.down)},
                    {"symmetric_output_vpk", r.b.head.symmetric_output_vpk},
-                   {"clean_drive_vpk", r.b.head.clean_drive_vpk}};
+                   {"clean_drive_vpk", r.b.head.clean_drive_vpk},
+                   {"thd_levels", nullptr}};
+  if (r.thd) {
+    nlohmann::json levels = nlohmann::json::array();
+    for (const model::thd_crossing& c : r.thd->levels)
+      levels.push_back({{"thd_percent", c.thd_percent},
+                        {"found", c.found},
+                        {"output_vpk", c.found ? nlohmann::json(c.output_vpk) : nlohmann::json(nullptr)},
+                        {"drive_vpk", c.found ? nlohmann::json(c.drive_vpk) : nlohmann::json(nullptr)},
+                        {"passed_at_lowest_drive", !c.found && r.thd->lowest_drive_thd_percent >= c.thd_percent}});
+    j["headroom"]["thd_levels"] = levels;
+    j["headroom"]["thd_sweep"] = {{"frequency_hz", r.thd->frequency_hz},
+                                  {"from_vpk", r.thd->from_vpk},
+                                  {"to_vpk", r.thd->to_vpk},
+                                  {"points", r.thd->points},
+                                  {"oversampling", r.thd->oversample},
+                                  {"unconverged", r.thd->unconverged},
+                                  {"newton_failures", r.thd->newton_failures}};
+  }
   nlohmann::json corners = nlohmann::json::array();
   for (const auto& c : r.b.ss.corners) corners.push_back(corner_json(c));
   j["corners"] = corners;
@@ -363,6 +502,7 @@ nlohmann::json bias_report_json(const bias_report& r) {
     j["reactances"] = xs;
   }
   j["warnings"] = r.b.warnings;
+  j["temperature"] = r.drift ? drift_json(r) : nlohmann::json(nullptr);
   j["noise"] = {{"ein_a_dbu", number_or_null(r.ein_a_dbu)},
                 {"self_noise_dba_spl", r.st.has_capsule() ? number_or_null(r.self_noise_dba_spl) : nlohmann::json(nullptr)}};
   return j;
@@ -375,6 +515,17 @@ CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
   add_stage_input(*sub, opt.input, data);
   sub->add_option("--at", opt.at_text, "Also show each capacitor's reactance and loss at this frequency, e.g. 1k or 40")
       ->type_name("FREQ");
+  sub->add_flag("--thd-levels", opt.thd_levels,
+                "Also the output at 1 %, 3 % and 10 % THD (1 kHz) from the engine, beside the clean swing: a sweep of "
+                "33 drives, which adds about 0.1 s on one stage and 0.5 to 2 s on a chain");
+  sub->add_option("--temperature", opt.temperature,
+                  "Also the operating point's drift over this range in °C, LO..HI (steps of at most 10 °C; -55 to 150), "
+                  "and each part's zero-TC drain current")
+      ->type_name("LO..HI");
+  sub->add_option("--vp-drift", opt.vp_drift_mv, "With --temperature: the part's pinch-off drift, mV/K (n-channel sign)")
+      ->capture_default_str();
+  sub->add_option("--beta-exponent", opt.beta_exponent, "With --temperature: m in beta ∝ T^m (the channel's mobility)")
+      ->capture_default_str();
   sub->add_flag("--json", opt.json, "Machine-readable output (keys carry their unit as a suffix)");
   sub->footer(
       "Examples:\n"
@@ -385,6 +536,10 @@ CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
       "  pinchoff bias presets/clean-preamp-18v.toml --set drain.resistor=3.9k --set supply.volts=9\n"
       "      try a change without editing the file\n"
       "  pinchoff bias presets/phantom-mic-follower.toml --json\n"
+      "  pinchoff bias presets/bass-booster-9v.toml --temperature 0..50\n"
+      "      how the bias drifts from a cold stage to a hot one, and where the zero-TC current is\n"
+      "  pinchoff bias presets/bass-booster-9v.toml --thd-levels\n"
+      "      the clean swing (the hard limit) beside the levels at 1 %, 3 % and 10 % THD\n"
       "  pinchoff bias presets/two-stage-boost-9v.toml --set stage2.source.resistor=1k\n"
       "      a chain: each stage's bias and gain, the chain's gain, and which stage clips first\n"
       "Headroom is found by sweeping the drive slowly with every coupling and bypass capacitor\n"
@@ -397,6 +552,20 @@ bias_report analyse_bias_report(model::stage st, std::optional<double> at_hz) {
   bias_report r;
   r.st = std::move(st);
   r.b = model::analyse_bias(r.st, at_hz);
+  if (opt.thd_levels) r.thd = model::find_distortion_headroom(r.st, r.b.head);
+  if (!opt.temperature.empty()) {
+    const base::value_range c = base::parse_range(opt.temperature, base::unit::none, "--temperature");
+    if (!(c.lo >= -55.0 && c.hi <= 150.0))
+      throw input_error("--temperature " + opt.temperature +
+                        ": give -55 to 150 °C (the range silicon parts are rated over, common practice)");
+    const int n = c.hi > c.lo ? std::max(2, static_cast<int>(std::ceil((c.hi - c.lo) / 10.0 - 1e-9)) + 1) : 1;
+    std::vector<double> kelvin;
+    for (int i = 0; i < n; ++i) kelvin.push_back(273.15 + c.lo + (n == 1 ? 0.0 : (c.hi - c.lo) * i / (n - 1)));
+    model::temperature_law law;
+    law.vp_drift_v_per_k = opt.vp_drift_mv * 1e-3;
+    law.beta_exponent = opt.beta_exponent;
+    r.drift = model::analyse_temperature_drift(r.st, kelvin, law);
+  }
   const model::noise_result n = model::analyse_noise(r.b.net, r.b.op, {.points = 2, .band_points_per_decade = 50});
   r.ein_a_dbu = model::dbu_of_rms(n.input_a_v());
   if (r.st.has_capsule()) r.self_noise_dba_spl = model::self_noise_db_spl(n.input_a_v(), r.st.capsule.sensitivity_v_per_pa);
@@ -409,6 +578,7 @@ void run(const bias_options& opt, std::ostream& out) {
   const bias_report r = analyse_bias_report(load_stage(opt.input), at_hz);
   if (opt.json) return print_json(r, out);
   print_text(r, opt.input.path, out);
+  if (r.drift) print_drift(r, out);
 }
 
 }  // namespace
@@ -418,7 +588,8 @@ nlohmann::json bias_json(const model::stage& st) { return bias_report_json(analy
 void register_bias(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<bias_options>();
   CLI::App* sub = setup(app, *opt, data);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&, base::output_set&) { run(*opt, out); }});
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream&, base::output_set&) { run(*opt, out); },
+                      {{"temperature_law", "--vp-drift/--beta-exponent"}}});
 }
 
 }  // namespace pinchoff::cli

@@ -251,7 +251,10 @@ void print_text(const noise_report& rep, std::ostream& out) {
   c.write(out);
 
   if (r.stages.size() > 1) {
-    out << "\n  per stage: noise at its output, its parts' share of the load's, signal-to-noise at the chain's clean drive\n";
+    out << "\n  per stage: noise at its output, its parts' share of the load's, signal-to-noise at the chain's clean drive\n"
+           "  (S/N: the stage's output at the largest drive the whole chain takes cleanly, " +
+               format_si(rep.head.clean_drive_vpk, "V") + " peak at the generator, over its noise;\n"
+           "  every stage but the one that limits the chain sits below its own clean swing there)\n";
     text_table s({align::left, align::right, align::right, align::right, align::right});
     s.add({"stage", "noise", "A-weighted", "share (A)", "S/N"});
     const double drive_rms = rms_of_vpk(rep.head.clean_drive_vpk);

@@ -4,6 +4,7 @@
 #include <algorithm>
 #include <cctype>
 #include <cmath>
+#include <cstdint>
 #include <cstdio>
 #include <filesystem>
 #include <map>
@@ -51,6 +52,8 @@ struct render_options {
   int threads{0};
   bool dry{false}, force{false}, quiet{false}, json{false};
   bool invert{false};  ///< write an inverting stage's output with its polarity restored
+  bool noise{false};   ///< add each stage's modelled noise
+  std::uint64_t seed{1};
 };
 
 // The fields the model names in its errors (model/audio/render.hpp, render_job), and the
@@ -68,6 +71,8 @@ struct render_outcome {
   double peak_dbfs{};
   bool fixed_level{false};
   bool dry{false};
+  bool noise{false};
+  std::uint64_t seed{1};
   std::size_t stage_count{};  // stage files
   std::vector<std::size_t> chain_lengths;  // stages in each stage file, in order
   std::vector<bool> inverting;             // each stage file's mid-band gain is negative
@@ -206,6 +211,15 @@ void write_text(const render_outcome& run, std::ostream& out) {
   out << "  newton  " << (newton.failed == 0 ? std::string("every sample converged") : std::to_string(newton.failed) + " samples did not converge")
       << ", " << format_number(newton.mean_evaluations(), 3) << " iterations a sample on average, " << newton.max_evaluations
       << " at most\n";
+  for (const model::output_report& x : r.outputs)
+    if (run.noise && !x.is_dry) {
+      out << "  noise   " << (n_out > 1 ? x.name + ": " : std::string()) << volts_text(x.noise_rms_v)
+          << " rms at the load (the modelled hiss, 0 to " << format_si(in.rate_hz / 2.0, "Hz", 3) << ", seed " << run.seed
+          << "), written at " << dbfs_text(x.noise_rms_v * x.noise_scale, "dBFS") << " rms\n";
+      if (x.noise_scale_from_swing)
+        out << "          the output's signal is below the floor, so the hiss is scaled as a signal peaking at\n"
+            << "          the clean swing (" << volts_text(x.clean_swing_vpk) << ") would be, at " << ceiling << '\n';
+    }
   out << '\n';
 
   text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right});
@@ -233,7 +247,12 @@ void write_text(const render_outcome& run, std::ostream& out) {
   };
   for (std::size_t i = 0; i < r.outputs.size(); ++i) {
     const model::output_report& x = r.outputs[i];
-    if (x.silent)
+    if (x.silent && run.noise && !x.is_dry)
+      note(x.path.string() + " holds only the modelled noise: " +
+           (x.input_below_floor ? "the input peaks at " + volts_text(r.input_peak_v) + " at the generator"
+                                : "the " + what(i, x) + " peaks at " + volts_text(x.peak_v)) +
+           ",\n    not above the floor of " + volts_text(r.floor_v) + " (the engine's accepted error a sample)");
+    else if (x.silent)
       note(x.path.string() + " is written as silence: " +
            (x.input_below_floor ? "the input peaks at " + volts_text(r.input_peak_v) + " at the generator"
                                 : "the " + what(i, x) + " peaks at " + volts_text(x.peak_v)) +
@@ -310,6 +329,16 @@ void write_json(const render_outcome& run, std::ostream& out) {
       j["polarity_restored"] = static_cast<bool>(run.restored[k]);
     }
     if (!x.is_dry)
+      j["noise"] = run.noise ? nlohmann::json{{"rms_v", x.noise_rms_v},
+                                              {"dbfs_rms", level_json(x.noise_rms_v * x.noise_scale)},
+                                              {"scale", x.noise_scale},
+                                              {"scaled_by", x.noise_scale_from_swing ? "clean_swing"
+                                                            : run.fixed_level      ? "fixed"
+                                                                                   : "signal"},
+                                              {"clean_swing_vpk", x.noise_scale_from_swing ? nlohmann::json(x.clean_swing_vpk)
+                                                                                           : nlohmann::json(nullptr)}}
+                             : nlohmann::json(nullptr);
+    if (!x.is_dry)
       j["engine"] = {{"samples", x.engine.samples},
                      {"newton_failures", x.engine.failed},
                      {"substepped", x.engine.substepped},
@@ -336,6 +365,7 @@ void write_json(const render_outcome& run, std::ostream& out) {
                          {"level", run.fixed_level ? "fixed" : (r.outputs.size() > 1 ? "loudness_matched" : "normalized")},
                          {"target_lufs", r.outputs.size() > 1 ? number_or_null(r.target_lufs) : nlohmann::json(nullptr)},
                          {"silence_floor_v", r.floor_v},
+                         {"noise_seed", run.noise ? nlohmann::json(run.seed) : nlohmann::json(nullptr)},
                          {"input_peak_v", r.input_peak_v},
                          {"outputs", outputs},
                          {"warnings", run.warnings},
@@ -361,6 +391,8 @@ model::render_job job_from(const render_options& o) {
     job.level = model::output_level::fixed;
     job.full_scale_v = option_level_vpk(o.output_peak, "--output-peak");
   }
+  job.noise = o.noise;
+  job.noise_seed = o.seed;
   return job;
 }
 
@@ -490,6 +522,8 @@ render_outcome run(const render_options& o, std::ostream& err, base::output_set&
   r.peak_dbfs = job.peak_dbfs;
   r.fixed_level = job.level == model::output_level::fixed;
   r.dry = o.dry;
+  r.noise = o.noise;
+  r.seed = o.seed;
   r.stage_count = job.stages.size();
   for (const model::render_stage& st : job.stages) {
     r.chain_lengths.push_back(std::max<std::size_t>(1, st.net.stages.size()));
@@ -540,6 +574,18 @@ CLI::App* setup(CLI::App& app, render_options& o) {
   sub->add_flag("--dry", o.dry, "Also write the input itself, matched in loudness, to compare against");
   sub->add_flag("--invert", o.invert,
                 "Write an inverting stage's output (common-source) with its polarity restored, for A/B listening");
+  sub->add_flag("--noise", o.noise,
+                "Add each stage's modelled hiss at the load (Gaussian, with the output noise density `noise` computes), "
+                "at its level against the signal through --input-peak; never normalised on its own");
+  sub->add_option("--seed", o.seed, "Seed of the --noise streams, 0 or more (the same seed gives the same file)")
+      ->capture_default_str()
+      ->check(CLI::Validator(
+          [](const std::string& v) {
+            const bool digits = !v.empty() && v.size() <= 19 &&
+                                std::all_of(v.begin(), v.end(), [](unsigned char c) { return std::isdigit(c) != 0; });
+            return digits ? std::string() : "expected a whole number from 0 to 9999999999999999999, got '" + v + "'";
+          },
+          "N"));
   sub->add_flag("--force", o.force, "Replace outputs that exist");
   sub->add_flag("--quiet", o.quiet, "No progress bar");
   sub->add_flag("--json", o.json, "Machine-readable summary of what was written");
@@ -557,7 +603,8 @@ CLI::App* setup(CLI::App& app, render_options& o) {
       "stages (and --dry) come out at one integrated loudness (ITU-R BS.1770), so that the\n"
       "comparison is not won by the louder stage. A channel whose input or stage output peaks\n"
       "no higher than the engine's accepted error a sample (10.1 nV) is written as silence, never\n"
-      "lifted: an all-zero input gives all-zero files. Each channel runs through its own copy of\n"
+      "lifted: an all-zero input gives all-zero files (with --noise, the hiss alone, scaled as a\n"
+      "signal at the stage's clean swing would be). Each channel runs through its own copy of\n"
       "the stage, starting at its DC operating point; the output keeps the input's length, rate,\n"
       "channels and sample format (unless --format), and is aligned with it sample for sample.\n"
       "Nothing is written until the output is complete: an existing file is kept (unless\n"
@@ -576,6 +623,9 @@ CLI::App* setup(CLI::App& app, render_options& o) {
       "      --input samples/pluck-phrase-48k.wav --output compare --dry\n"
       "      writes compare/bass-booster-9v.wav, compare/clean-preamp-18v.wav and compare/dry.wav\n"
       "      at the same loudness\n"
+      "  pinchoff render presets/three-stage-overdrive-9v.toml --input samples/pluck-phrase-48k.wav \\\n"
+      "      --output hiss.wav --noise\n"
+      "      the chain's own hiss under the phrase, at its level against the signal\n"
       "  pinchoff render presets/bass-booster-9v.toml --input di-take.wav --output hot.wav \\\n"
       "      --input-peak 2V --output-peak 5V\n"
       "      a hotter source, and a fixed scale: 5 V peak at the load is full scale");

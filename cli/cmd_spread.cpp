@@ -18,7 +18,9 @@
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "base/units.hpp"
+#include "model/analysis/noise.hpp"
 #include "model/analysis/spread.hpp"
+#include "model/circuit/network.hpp"
 #include "model/analysis/sweep.hpp"
 
 namespace pinchoff::cli {
@@ -33,13 +35,22 @@ struct spread_options {
   spread_input batch;
   std::vector<std::string> conditions;
   std::string drive, freq{"1k"};
+  bool noise{false};
   bool json{false}, csv{false};
   std::string plot;
 };
 
+// The quantities --noise measures (model::spread_quantities), and the band they are taken
+// over: noise's default, 20 Hz to 20 kHz.
+constexpr const char* noise_quantities[] = {"noise", "noise_a", "ein", "ein_a"};
+bool is_noise_quantity(std::string_view q) {
+  return std::find(std::begin(noise_quantities), std::end(noise_quantities), q) != std::end(noise_quantities);
+}
+
 std::string value_text(const model::quantity_def& q, double v) {
   if (std::string_view(q.unit) == "dB") return format_number(v, 3) + " dB";
   if (std::string_view(q.unit) == "%") return format_number(v, 3) + " %";
+  if (std::string_view(q.unit) == "dBu") return format_number(v, 4) + " dBu";
   return format_si(v, q.unit, 4);
 }
 
@@ -74,13 +85,17 @@ std::filesystem::path histogram_path(const std::string& base, std::string name) 
   return p.parent_path() / (p.stem().string() + "-" + name + p.extension().string());
 }
 
-// The required quantities (as resolve_requirements names them), else every stage's vd and id.
-std::vector<std::string> histogram_names(const model::stage& st, const std::vector<model::requirement>& reqs) {
+// The required quantities (as resolve_requirements names them), else every stage's vd and
+// id; with --noise, the A-weighted noise and EIN as well.
+std::vector<std::string> histogram_names(const model::stage& st, const std::vector<model::requirement>& reqs, bool noise) {
   std::vector<std::string> names;
   for (const auto& r : reqs) names.push_back(r.quantity);
-  if (!names.empty()) return names;
-  for (const char* q : {"vd", "id"})
-    for (int k = 0; k < st.stage_count(); ++k) names.push_back(model::stage_key(st, k, q));
+  if (names.empty())
+    for (const char* q : {"vd", "id"})
+      for (int k = 0; k < st.stage_count(); ++k) names.push_back(model::stage_key(st, k, q));
+  if (noise)
+    for (const char* q : {"noise_a", "ein_a"})
+      if (std::find(names.begin(), names.end(), q) == names.end()) names.push_back(q);
   return names;
 }
 
@@ -120,8 +135,16 @@ void write_histograms(const model::spread_result& res, const std::vector<std::st
     c.floor = 0.0;
     for (int b = 0; b < bins; ++b) {
       const double centre = lo + (b + 0.5) * w;
-      c.categories.push_back(std::string_view(q.unit) == "A" ? format_si(centre, "", 3) : format_number(centre, 3));
+      // Enough digits that neighbouring bins read apart (-114.3, -114.1, ... for an EIN).
+      const bool small = std::string_view(q.unit) == "A" || is_noise_quantity(q.name);
+      const double top = std::max(std::fabs(lo), std::fabs(hi));
+      const int digits = std::clamp(static_cast<int>(std::ceil(std::log10(top / w))) + 1, 3, 6);
+      c.categories.push_back(small && std::string_view(q.unit) != "dBu" ? format_si(centre, "", digits)
+                                                                      : format_number(centre, digits));
     }
+    // Labels longer than a bin is wide (about 6 characters) are kept on every other bin only.
+    if (std::any_of(c.categories.begin(), c.categories.end(), [](const std::string& l) { return l.size() > 6; }))
+      for (std::size_t b = 1; b < c.categories.size(); b += 2) c.categories[b].clear();
     for (double x : v) c.values[0][static_cast<std::size_t>(std::min(bins - 1, static_cast<int>((x - lo) / w)))] += 1.0;
     for (const auto& [x, label] : limits) {
       const double at = (x - lo) / w;
@@ -148,24 +171,43 @@ std::string json_key_of(const std::string& name) {
   return (n.stage >= 0 ? "stage" + std::to_string(n.stage + 1) + "." : std::string()) + n.def->json_key;
 }
 
+// A CSV field: quoted (quotes doubled) when it holds a comma, a quote or a line break.
+std::string csv_field(const std::string& text) {
+  if (text.find_first_of(",\"\r\n") == std::string::npos) return text;
+  std::string q = "\"";
+  for (char c : text) q += c == '"' ? std::string("\"\"") : std::string(1, c);
+  return q + "\"";
+}
+
 void write_csv(const spread_report& rep, std::ostream& out) {
   const model::spread_result& res = rep.res;
   const std::vector<std::string> names = model::spread_quantity_names(rep.st);
+  // With --parts every stage's part is named, before its IDSS and VP.
+  const bool named = !rep.settings.parts.empty();
+  auto part_name = [&](int bag_index) {
+    return bag_index >= 0 ? csv_field(rep.settings.parts[static_cast<std::size_t>(bag_index)].name) : std::string();
+  };
   if (rep.st.is_chain()) {
     out << "run";
     for (int k = 0; k < rep.st.stage_count(); ++k)
-      out << ',' << model::stage_key(rep.st, k, "idss_a") << ',' << model::stage_key(rep.st, k, "vp_v");
+      out << (named ? "," + model::stage_key(rep.st, k, "part") : std::string()) << ','
+          << model::stage_key(rep.st, k, "idss_a") << ',' << model::stage_key(rep.st, k, "vp_v");
     out << ",supply_v,solved";
   } else {
-    out << "run,idss_a,vp_v,supply_v,solved";
+    out << (named ? "run,part,idss_a,vp_v,supply_v,solved" : "run,idss_a,vp_v,supply_v,solved");
   }
   for (const std::string& name : names)
     if (res.stats.count(name)) out << ',' << json_key_of(name);
   out << ",meets\n";
   out.precision(10);
   for (const auto& r : res.runs) {
-    out << r.index << ',' << r.draw.idss_a << ',' << r.draw.vp_v;
-    for (const auto& p : r.draw.later) out << ',' << p.idss_a << ',' << p.vp_v;
+    out << r.index;
+    if (named) out << ',' << part_name(r.draw.bag_index);
+    out << ',' << r.draw.idss_a << ',' << r.draw.vp_v;
+    for (const auto& p : r.draw.later) {
+      if (named) out << ',' << part_name(p.bag_index);
+      out << ',' << p.idss_a << ',' << p.vp_v;
+    }
     out << ',' << r.draw.supply_v << ',' << (r.solved ? 1 : 0);
     for (const std::string& name : names)
       if (res.stats.count(name)) {
@@ -288,10 +330,13 @@ CLI::App* setup(CLI::App& app, spread_options& opt, const data_files& data) {
   add_spread_options(*sub, opt.batch);
   sub->add_option("--require", opt.conditions,
                   "A condition a good build meets, QUANTITY=LO..HI (repeatable): id, vd, vs, vds, vgs, gain (dB), swing (V peak), "
-                  "thd (%, with --drive); in a chain a stage's own names its stage, stage2.vd=3.5..5.5")
+                  "thd (%, with --drive), noise, noise_a (V rms), ein, ein_a (dBu; with --noise); in a chain a stage's own names its stage, stage2.vd=3.5..5.5")
       ->type_name("Q=LO..HI");
   sub->add_option("--drive", opt.drive, "Also simulate each part at this drive and report its THD (slower)")->type_name("LEVEL");
   sub->add_option("--freq", opt.freq, "Test-tone frequency for --drive")->capture_default_str();
+  sub->add_flag("--noise", opt.noise,
+                "Also report each part's noise over 20 Hz to 20 kHz: at the load unweighted (noise) and A-weighted "
+                "(noise_a), and the EIN (ein, ein_a, dBu), as `noise` computes them");
   sub->add_flag("--json", opt.json, "Machine-readable summary");
   sub->add_flag("--csv", opt.csv, "Every run as CSV");
   sub->add_option("--plot", opt.plot,
@@ -305,8 +350,10 @@ CLI::App* setup(CLI::App& app, spread_options& opt, const data_files& data) {
       "      the same part as the battery drains, with 5 % resistors\n"
       "  pinchoff spread presets/clean-preamp-18v.toml --idss 4m..12m --vp -1.5..-4 --plot batch.svg\n"
       "  pinchoff spread presets/bass-booster-9v.toml --class general-purpose --drive 300mVpk --require thd=..5\n"
-      "  pinchoff spread presets/bass-booster-9v.toml --parts parts.csv --require vd=3.5..6   (the bag on the bench)\n"
       "      how the distortion at a hard pluck spreads over a batch (thd in %)\n"
+      "  pinchoff spread presets/bass-booster-9v.toml --parts parts.csv --require vd=3.5..6   (the bag on the bench)\n"
+      "  pinchoff spread presets/phantom-mic-follower.toml --class low-cutoff --noise --require ein_a=..-120\n"
+      "      how the hiss spreads over a batch, and how many parts keep the A-weighted EIN below -120 dBu\n"
       "IDSS and |VP| are drawn with the given correlation (real batches: parts with a high IDSS\n"
       "also pinch off at a larger voltage). The yield counts runs biased in saturation that meet\n"
       "every --require. The same seed gives the same runs on any number of threads.");
@@ -326,7 +373,7 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::
       settings.parts.size() < 2)
     err << "pinchoff spread: note: nothing varies from run to run (one IDSS, one VP, exact resistors, "
            "one supply voltage); give --idss and --vp ranges or a --class, --tolerance or --supply\n";
-  model::run_extra extra;
+  model::run_extra thd_extra, noise_extra;
   if (!opt.drive.empty()) {
     model::sweep_settings sw;
     sw.drives_vpk = {option_level_vpk(opt.drive, "--drive", &rep.st)};
@@ -336,16 +383,38 @@ void run(const spread_options& opt, std::ostream& out, std::ostream& err, base::
     const model::sweep_plan plan = model::plan_sweep(sw);
     // Each run holds one record at a time: as many runs at once as fit the sweeps' memory.
     rep.settings.threads = model::concurrent_points(rep.settings.threads, plan.samples_per_record());
-    extra = [plan](const model::stage& drawn, std::map<std::string, double>& values) {
+    thd_extra = [plan](const model::stage& drawn, std::map<std::string, double>& values) {
       values["thd"] = model::run_sweep(drawn, plan).points[0].thd_percent;
     };
   }
-  for (const auto& r : rep.reqs)
-    if (r.quantity == "thd" && !extra) throw input_error("--require thd=... needs --drive (the level to measure THD at)");
+  if (opt.noise) {
+    // As `bias` takes it: 20 Hz to 20 kHz, 50 points a decade, without the density sweep
+    // `noise` prints.
+    const model::noise_settings ns{.points = 2, .band_points_per_decade = 50};
+    noise_extra = [ns](const model::stage& drawn, std::map<std::string, double>& values) {
+      const model::network net = model::build_network(drawn);
+      const model::noise_result r = model::analyse_noise(net, model::solve_operating_point(net), ns);
+      values["noise"] = r.output_v();
+      values["noise_a"] = r.output_a_v();
+      values["ein"] = model::dbu_of_rms(r.input_v());
+      values["ein_a"] = model::dbu_of_rms(r.input_a_v());
+    };
+  }
+  for (const auto& r : rep.reqs) {
+    if (r.quantity == "thd" && !thd_extra) throw input_error("--require thd=... needs --drive (the level to measure THD at)");
+    if (is_noise_quantity(r.quantity) && !noise_extra)
+      throw input_error("--require " + r.quantity + "=... needs --noise (each part's noise is computed only when asked)");
+  }
+  model::run_extra extra;
+  if (thd_extra || noise_extra)
+    extra = [thd_extra, noise_extra](const model::stage& drawn, std::map<std::string, double>& values) {
+      if (thd_extra) thd_extra(drawn, values);
+      if (noise_extra) noise_extra(drawn, values);
+    };
   rep.res = model::run_spread(rep.st, settings, rep.reqs, extra);
 
   std::ostringstream plots;
-  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.st, rep.reqs), rep.reqs, opt.plot, rep.st.name, plots, outputs);
+  if (!opt.plot.empty()) write_histograms(rep.res, histogram_names(rep.st, rep.reqs, opt.noise), rep.reqs, opt.plot, rep.st.name, plots, outputs);
   if (opt.csv) return write_csv(rep, out);
   if (opt.json) return print_json(rep, out);
   print_text(rep, plots.str(), out);
@@ -368,7 +437,7 @@ void register_spread(CLI::App& app, std::vector<command>& commands, const data_f
               std::vector<model::requirement> reqs;
               for (const std::string& r : opt->conditions) reqs.push_back(parse_requirement(r));
               const model::stage st = load_stage(opt->input);
-              for (const std::string& name : histogram_names(st, model::resolve_requirements(st, reqs)))
+              for (const std::string& name : histogram_names(st, model::resolve_requirements(st, reqs), opt->noise))
                 f.outputs.push_back({"--plot", histogram_path(opt->plot, name)});
               return f;
             }};

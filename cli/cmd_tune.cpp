@@ -14,6 +14,7 @@
 #include "cli/text_table.hpp"
 #include "base/eseries.hpp"
 #include "base/units.hpp"
+#include "model/analysis/distortion_headroom.hpp"
 #include "model/analysis/spread.hpp"
 #include "model/analysis/tune.hpp"
 
@@ -30,23 +31,68 @@ struct tune_options {
   std::string series{"E24"};
   bool json{false};
   bool over_spread{false};
+  bool thd_levels{false};
   spread_input batch;
 };
+
+// --thd-levels: each row's output at 1 %, 3 % and 10 % THD from the engine (the exact value
+// first, then the candidates in order), as bias --thd-levels gives them.
+using row_levels = std::vector<model::distortion_headroom>;
+
+row_levels levels_of_rows(const model::stage& st, const model::tune_result& r) {
+  row_levels out;
+  auto one = [&](const model::tune_point& p) {
+    model::stage s = st;
+    *model::resistor_field(s, r.adjust) = p.value_ohm;
+    out.push_back(model::find_distortion_headroom(s, p.headroom));
+  };
+  one(r.exact);
+  for (const model::tune_candidate& c : r.candidates) one(c.point);
+  return out;
+}
+
+std::string level_cell(const model::distortion_headroom& d, std::size_t k) {
+  const model::thd_crossing& c = d.levels[k];
+  if (c.found) return format_si(c.output_vpk, "V");
+  return d.lowest_drive_thd_percent >= c.thd_percent ? "passed" : "not reached";
+}
+
+nlohmann::json levels_json(const model::distortion_headroom& d) {
+  nlohmann::json a = nlohmann::json::array();
+  for (const model::thd_crossing& c : d.levels)
+    a.push_back({{"thd_percent", c.thd_percent},
+                 {"found", c.found},
+                 {"output_vpk", c.found ? nlohmann::json(c.output_vpk) : nlohmann::json(nullptr)},
+                 {"drive_vpk", c.found ? nlohmann::json(c.drive_vpk) : nlohmann::json(nullptr)},
+                 {"passed_at_lowest_drive", !c.found && d.lowest_drive_thd_percent >= c.thd_percent}});
+  return a;
+}
 
 nlohmann::json point_json(const model::tune_point& p) {
   nlohmann::json op = operating_point_json(p.at);
   return op;
 }
 
-void print_table(const model::tune_result& r, std::ostream& out) {
-  text_table t({align::left, align::right, align::right, align::right, align::right, align::right, align::right,
-                align::right, align::left});
-  t.add({"", r.adjust, "VD", "VS", "VDS", "ID", "gain", "swing", "region"});
+void print_table(const model::tune_result& r, std::ostream& out, const row_levels& levels = {}) {
+  std::vector<align> cols{align::left, align::right, align::right, align::right, align::right, align::right, align::right,
+                          align::right, align::left};
+  std::vector<std::string> head{"", r.adjust, "VD", "VS", "VDS", "ID", "gain", "swing", "region"};
+  if (!levels.empty()) {
+    cols.insert(cols.end(), 3, align::right);
+    head.insert(head.end(), {"1 % THD", "3 % THD", "10 % THD"});
+  }
+  text_table t(cols);
+  t.add(head);
+  std::size_t at = 0;
   auto row = [&](const std::string& label, const model::tune_point& p) {
-    t.add({label, format_si(p.value_ohm, "Ω", label == "exact" ? 4 : 3), format_si(p.at.vd_v, "V", 4),
-           format_si(p.at.vs_v, "V", 4), format_si(p.at.vds_v, "V", 4), format_si(p.at.id_a, "A", 4),
-           base::format_number(p.gain_db, 4) + " dB", format_si(p.headroom.symmetric_output_vpk, "V"),
-           model::region_name(p.at.region)});
+    std::vector<std::string> cells{label, format_si(p.value_ohm, "Ω", label == "exact" ? 4 : 3), format_si(p.at.vd_v, "V", 4),
+                                   format_si(p.at.vs_v, "V", 4), format_si(p.at.vds_v, "V", 4), format_si(p.at.id_a, "A", 4),
+                                   base::format_number(p.gain_db, 4) + " dB", format_si(p.headroom.symmetric_output_vpk, "V"),
+                                   model::region_name(p.at.region)};
+    if (at < levels.size())
+      for (std::size_t k = 0; k < 3; ++k) cells.push_back(level_cell(levels[at], k));
+    ++at;
+    t.add(cells);
   };
   row("exact", r.exact);
   for (const model::tune_candidate& c : r.candidates) {
@@ -56,13 +102,17 @@ void print_table(const model::tune_result& r, std::ostream& out) {
   t.write(out);
 }
 
-void print_text(const model::stage& st, const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
+void print_text(const model::stage& st, const model::tune_target& target, const model::tune_result& r, std::ostream& out,
+                const row_levels& levels = {}) {
   out << st.name << "\n  target " << model::target_text(target) << ", adjusting " << r.adjust << "\n\n";
-  print_table(r, out);
+  print_table(r, out, levels);
   out << "\n  gain: mid-band, generator to load; swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
+  if (!levels.empty())
+    out << "  1 % / 3 % / 10 % THD: the output (peak, at the load) where a 1 kHz sine reaches that THD in the engine,\n"
+           "  as sweep finds it; the swing is the hard limit, and THD rises well before it\n";
 }
 
-nlohmann::json result_json(const model::tune_target& target, const model::tune_result& r) {
+nlohmann::json result_json(const model::tune_target& target, const model::tune_result& r, const row_levels& levels = {}) {
   nlohmann::json j;
   j["adjust"] = r.adjust;
   j["exact_ohm"] = r.exact_ohm;
@@ -71,19 +121,23 @@ nlohmann::json result_json(const model::tune_target& target, const model::tune_r
                 {"operating_point", point_json(r.exact)},
                 {"gain_db", r.exact.gain_db},
                 {"symmetric_output_vpk", r.exact.headroom.symmetric_output_vpk}};
+  if (!levels.empty()) j["exact"]["thd_levels"] = levels_json(levels[0]);
   nlohmann::json cands = nlohmann::json::array();
-  for (const auto& c : r.candidates)
+  for (std::size_t k = 0; k < r.candidates.size(); ++k) {
+    const model::tune_candidate& c = r.candidates[k];
     cands.push_back({{"series", c.series},
                      {"value_ohm", c.point.value_ohm},
                      {"operating_point", point_json(c.point)},
                      {"gain_db", c.point.gain_db},
                      {"symmetric_output_vpk", c.point.headroom.symmetric_output_vpk}});
+    if (k + 1 < levels.size()) cands.back()["thd_levels"] = levels_json(levels[k + 1]);
+  }
   j["candidates"] = cands;
   return j;
 }
 
-void print_json(const model::tune_target& target, const model::tune_result& r, std::ostream& out) {
-  out << json_text(result_json(target, r)) << '\n';
+void print_json(const model::tune_target& target, const model::tune_result& r, std::ostream& out, const row_levels& levels = {}) {
+  out << json_text(result_json(target, r, levels)) << '\n';
 }
 
 // --over-spread: the trimmer that brings a batch to the target.
@@ -180,6 +234,9 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
       ->type_name("KEY");
   sub->add_option("--series", opt.series, "Standard values to offer: E12, E24 or E96")->capture_default_str();
   sub->add_flag("--json", opt.json, "Machine-readable output");
+  sub->add_flag("--thd-levels", opt.thd_levels,
+                "Also each row's output at 1 %, 3 % and 10 % THD (1 kHz) from the engine, beside the clean swing "
+                "(one --target; a sweep of 33 drives a row, about 0.1 s each on one stage)");
   sub->add_flag("--over-spread", opt.over_spread,
                 "Size a fixed resistor plus trimmer that brings every part of a batch to the target (with the batch options)");
   add_spread_options(*sub, opt.batch);
@@ -332,6 +389,8 @@ void run(const tune_options& opt, std::ostream& out) {
   const base::eseries series = base::parse_series(opt.series);
   const model::stage st = load_stage(opt.input);
   const std::vector<model::tune_pair> pairs = pairs_of(opt, st);
+  if (opt.thd_levels && (opt.over_spread || pairs.size() != 1))
+    throw input_error("--thd-levels: for the table of one resistor (one --target, without --over-spread)");
   if (opt.over_spread) {
     const model::spread_settings ss = spread_settings_from(opt.batch, st, opt.input);
     if (pairs.size() == 1) {
@@ -345,8 +404,9 @@ void run(const tune_options& opt, std::ostream& out) {
   }
   if (pairs.size() == 1) {
     const model::tune_result r = model::tune_resistor(st, pairs[0].adjust, pairs[0].target, series);
-    if (opt.json) return print_json(pairs[0].target, r, out);
-    return print_text(st, pairs[0].target, r, out);
+    const row_levels levels = opt.thd_levels ? levels_of_rows(st, r) : row_levels{};
+    if (opt.json) return print_json(pairs[0].target, r, out, levels);
+    return print_text(st, pairs[0].target, r, out, levels);
   }
   const model::joint_solution sol = model::solve_resistors(st, pairs);
   if (!sol.settled)

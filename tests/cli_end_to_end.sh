@@ -53,6 +53,12 @@ grep -q "1x oversampling (enough at this frequency" "$tmp/out" || { echo "FAIL: 
 check "compare of one design" 2 "$bin" compare "$presets/bass-booster-9v.toml"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for compare of one design"; fail=1; }
 check "render" 0 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav" --quiet
+check "render --noise" 0 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/hiss.wav" --noise --seed 3 --quiet --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); n=j["outputs"][0]["noise"]; assert n["rms_v"] > 0 and n["scaled_by"] == "signal" and j["noise_seed"] == 3' "$tmp/out" || { echo "FAIL: render --noise JSON"; fail=1; }
+check "bias --thd-levels --temperature" 0 "$bin" bias "$presets/bass-booster-9v.toml" --thd-levels --temperature 0..50 --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert len(j["headroom"]["thd_levels"]) == 3 and len(j["temperature"]["points"]) == 6' "$tmp/out" || { echo "FAIL: bias --thd-levels --temperature JSON"; fail=1; }
+check "spread --noise" 0 "$bin" spread "$presets/phantom-mic-follower.toml" --runs 20 --class low-cutoff --noise --require ein_a=..-118 --json
+python3 -c 'import json,sys; j=json.load(open(sys.argv[1])); assert "ein_a_dbu" in j["percentiles"]' "$tmp/out" || { echo "FAIL: spread --noise JSON"; fail=1; }
 check "render refuses an existing output" 2 "$bin" render "$presets/bass-booster-9v.toml" --input "$tmp/tone.wav" --output "$tmp/rendered.wav"
 [ -s "$tmp/out" ] && { echo "FAIL: output written for a refused render"; fail=1; }
 check "measure of a non-audio file" 2 "$bin" measure "$tmp/typo.toml"

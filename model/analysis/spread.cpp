@@ -181,6 +181,10 @@ const std::vector<quantity_def>& spread_quantities() {
       {"id", "id_a", "A", true},          {"vd", "vd_v", "V", true},        {"vs", "vs_v", "V", true},
       {"vds", "vds_v", "V", true},        {"vgs", "vgs_v", "V", true},      {"gain", "gain_db", "dB", false},
       {"swing", "swing_vpk", "V", false}, {"thd", "thd_percent", "%", false},
+      // The noise at the load over 20 Hz to 20 kHz and the EIN (model/analysis/noise.hpp),
+      // measured by a run_extra as thd is.
+      {"noise", "output_noise_v", "V", false}, {"noise_a", "output_noise_a_v", "V", false},
+      {"ein", "ein_dbu", "dBu", false},     {"ein_a", "ein_a_dbu", "dBu", false},
   };
   return q;
 }
@@ -236,7 +240,7 @@ std::vector<requirement> resolve_requirements(const stage& st, const std::vector
         choices += (k == 0 ? "" : k + 1 == st.stage_count() ? " or " : ", ") + spread_quantity_name(st, k, *n.def);
       throw setting_error("requirements", r.quantity + ": the file is a chain of " + std::to_string(st.stage_count()) +
                                               " stages, so name the stage whose " + plain + " it is: " + choices +
-                                              " (gain, swing and thd are the chain's, from the generator to the load)");
+                                              " (gain, swing and thd are the chain's, from the generator to the load, and so are noise and ein)");
     }
     requirement q = r;
     q.quantity = spread_quantity_name(st, std::max(n.stage, 0), *n.def);

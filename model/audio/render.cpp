@@ -10,8 +10,11 @@
 #include "base/error.hpp"
 #include "base/threads.hpp"
 #include "dsp/loudness.hpp"
+#include "dsp/shaped_noise.hpp"
 #include "dsp/io/sample_spool.hpp"
 #include "base/units.hpp"
+#include "model/analysis/headroom.hpp"
+#include "model/analysis/noise.hpp"
 #include "model/engine/dk_acceptance.hpp"
 
 namespace pinchoff::model {
@@ -142,6 +145,25 @@ long long scale_and_count(std::span<double> values, std::span<const double> gain
   return beyond;
 }
 
+// Adds the next frames of stage s's noise streams to interleaved `values`, channel c times
+// gains[c] (volts at the load: 1).
+void add_noise(std::vector<dsp::shaped_noise>& hiss, std::size_t s, std::span<double> values,
+               std::span<const double> gains, std::vector<double>& buf) {
+  const std::size_t ch = gains.size(), frames = values.size() / ch;
+  if (buf.size() < frames) buf.resize(frames);
+  for (std::size_t c = 0; c < ch; ++c) {
+    hiss[s * ch + c].generate(std::span<double>(buf).first(frames));
+    for (std::size_t k = 0; k < frames; ++k) values[k * ch + c] += gains[c] * buf[k];
+  }
+}
+
+// Counts the samples of `values` beyond full scale.
+long long count_beyond(std::span<const double> values) {
+  long long beyond = 0;
+  for (double v : values) beyond += std::abs(v) > 1.0;
+  return beyond;
+}
+
 // Raises peaks[c] to the largest |value| of channel c in interleaved `values`.
 void track_peaks(std::span<const double> values, std::vector<double>& peaks) {
   const std::size_t ch = peaks.size();
@@ -259,6 +281,13 @@ struct render_plan {
   std::vector<double> input_peak_v;             // per input channel, volts at the generator
   std::vector<std::vector<double>> peak_v;      // per output and channel, pass-1 volts
   std::vector<std::vector<double>> gains;       // per output and channel: the scale, or 0 below the floor
+  // Modelled noise (job.noise): one stream per unit, its gain per stage and channel (the
+  // output's scale, or the clean swing's for a silent output), pass-2 meters of the written
+  // values, and a buffer.
+  std::vector<dsp::shaped_noise> hiss;
+  std::vector<std::vector<double>> noise_gains;
+  std::vector<dsp::loudness_meter> written_meters;
+  std::vector<double> noise_block;
   // Progress: pass 1 costs a frame per unit-frame of engine work; a pass-2 frame of one
   // output (read, scale, write) is far cheaper (about 1/20 of an 8x engine frame).
   double total_frames{}, pass2_weight{}, total_work{};
@@ -273,6 +302,36 @@ struct render_plan {
     control->progress(p);
   }
 };
+
+// The shape of a stage's noise at the load for a file at rate_hz: the output density of
+// model/analysis/noise.hpp on the bins of dsp::shaped_noise_length(rate_hz), from 48 points
+// a decade interpolated in log-log (a first-order corner, the sharpest shape a stage's
+// noise has, bends by at most 1 in ln S per (ln f)^2, so the interpolation errs by under
+// 0.15 % at this spacing); the DC bin takes the lowest bin's value.
+std::shared_ptr<const dsp::noise_shape> stage_noise_shape(const render_stage& st, double rate_hz) {
+  const std::vector<noise_source> sources = noise_sources(st.net, st.op);
+  const std::size_t n = dsp::shaped_noise_length(rate_hz);
+  const double lo = rate_hz / static_cast<double>(n), hi = rate_hz / 2.0;
+  const int points = std::max(2, static_cast<int>(std::ceil(48.0 * std::log10(hi / lo))) + 1);
+  std::vector<double> lf(static_cast<std::size_t>(points)), ls(lf.size());
+  for (int i = 0; i < points; ++i) {
+    const double f = lo * std::pow(hi / lo, static_cast<double>(i) / (points - 1));
+    lf[static_cast<std::size_t>(i)] = std::log(f);
+    // A density of exactly 0 (no source reaches the load) stays 0 through the interpolation.
+    ls[static_cast<std::size_t>(i)] = std::log(std::max(noise_at(st.net, st.op, sources, f).output_v2_hz, 1e-300));
+  }
+  std::vector<double> density(n / 2 + 1, 0.0);
+  std::size_t j = 0;
+  for (std::size_t k = 1; k < density.size(); ++k) {
+    const double x = std::log(static_cast<double>(k) * lo);
+    while (j + 2 < lf.size() && lf[j + 1] < x) ++j;
+    const double t = std::clamp((x - lf[j]) / (lf[j + 1] - lf[j]), 0.0, 1.0);
+    const double v = std::exp(ls[j] + t * (ls[j + 1] - ls[j]));
+    density[k] = v > 1e-290 ? v : 0.0;
+  }
+  density[0] = density[1];  // continued to DC: a notch there would leak through the taper (dsp/shaped_noise.hpp)
+  return std::make_shared<const dsp::noise_shape>(density, rate_hz);
+}
 
 // ---- Phase: plan. Every writer first: an output that is the input or exists is refused
 // before any work. Then one unit per (stage, channel), the threads, spools and meters.
@@ -328,6 +387,19 @@ render_plan plan_render(const render_job& job, const render_control& control, cl
     o.name = o.is_dry ? "dry" : job.stages[i].name;
   }
   p.fixed_scale = 1.0 / job.full_scale_v;
+  if (job.noise) {
+    p.hiss.reserve(p.n_units);
+    for (std::size_t s = 0; s < p.n_stages; ++s) {
+      const auto shape = stage_noise_shape(job.stages[s], p.info.rate_hz);
+      rep.outputs[s].noise_rms_v = std::sqrt(shape->variance());
+      for (std::size_t c = 0; c < p.ch; ++c) p.hiss.emplace_back(shape, dsp::stream_seed(job.noise_seed, s * p.ch + c));
+    }
+    p.noise_gains = std::vector<std::vector<double>>(p.gains.begin(), p.gains.begin() + static_cast<std::ptrdiff_t>(p.n_stages));
+    for (std::size_t s = 0; s < p.n_stages; ++s) rep.outputs[s].noise_scale = p.fixed_scale;
+    if (p.two_pass)
+      for (std::size_t s = 0; s < p.n_stages; ++s) p.written_meters.emplace_back(p.info.channels, p.info.rate_hz);
+    p.noise_block.resize(p.block + static_cast<std::size_t>(rep.latency_samples));
+  }
 
   p.total_frames = static_cast<double>(p.info.frames);
   // The engine's share scales with the factor; pass 2 does not.
@@ -362,6 +434,8 @@ void store_block(render_plan& p, const unit_outputs& set, std::vector<double>& s
       p.meters[s].add(v);
       p.spools[s].write(v);
     } else {
+      // The peak above is the noiseless output's; the noise goes in, in volts, before the scale.
+      if (p.job->noise) add_noise(p.hiss, s, v, std::vector<double>(ch, 1.0), p.noise_block);
       rep.outputs[s].clipped_samples += scale_and_count(v, p.gains[s]);
       p.meters[s].add(v);
       p.writers[s].write(v);
@@ -473,6 +547,18 @@ void decide_scales(render_plan& p, render_report& rep) {
     std::fill(p.gains[i].begin(), p.gains[i].end(), flip ? -rep.outputs[i].scale : rep.outputs[i].scale);
     for (const int c : rep.outputs[i].silent_channels) p.gains[i][static_cast<std::size_t>(c - 1)] = 0.0;
   }
+  // The noise takes the output's scale on every channel, a silent one's too; an output with
+  // no scale of its own (below the floor) is scaled as a signal at its clean swing would be.
+  for (std::size_t s = 0; job.noise && s < p.n_stages; ++s) {
+    output_report& o = rep.outputs[s];
+    o.noise_scale = o.scale;
+    if (!(o.noise_scale > 0.0)) {
+      o.clean_swing_vpk = analyse_headroom(job.stages[s].net, job.stages[s].op, headroom_detail::swing_only).symmetric_output_vpk;
+      o.noise_scale = o.clean_swing_vpk > 0.0 ? ceiling / o.clean_swing_vpk : 0.0;
+      o.noise_scale_from_swing = true;
+    }
+    std::fill(p.noise_gains[s].begin(), p.noise_gains[s].end(), o.noise_scale);
+  }
 }
 
 // ---- Phase: the second pass. Scales the spooled volts (and the input, for dry) into the files.
@@ -498,7 +584,14 @@ void second_pass(render_plan& p, render_report& rep) {
       }
       if (n == 0) break;
       const std::span<double> v = std::span<double>(buf).first(n * ch);
-      o.clipped_samples += scale_and_count(v, p.gains[i]);
+      if (job.noise && !o.is_dry) {
+        scale_and_count(v, p.gains[i]);
+        add_noise(p.hiss, i, v, p.noise_gains[i], p.noise_block);
+        o.clipped_samples += count_beyond(v);
+        p.written_meters[i].add(v);
+      } else {
+        o.clipped_samples += scale_and_count(v, p.gains[i]);
+      }
       p.writers[i].write(v);
       work += static_cast<double>(n) * per_frame;
       p.report_progress(work, p.total_frames);
@@ -514,11 +607,14 @@ void second_pass(render_plan& p, render_report& rep) {
 void finish_outputs(render_plan& p, render_report& rep) {
   for (std::size_t i = 0; i < p.n_outputs; ++i) {
     output_report& o = rep.outputs[i];
-    const double g = p.two_pass ? rep.outputs[i].scale : 1.0;
-    const double l = p.meters[i].integrated_lufs();
+    // With noise, pass 2 metered what it wrote (the noise is not in the pass-1 figures).
+    const bool metered_again = p.two_pass && i < p.written_meters.size();
+    const dsp::loudness_meter& meter = metered_again ? p.written_meters[i] : p.meters[i];
+    const double g = p.two_pass && !metered_again ? rep.outputs[i].scale : 1.0;
+    const double l = meter.integrated_lufs();
     o.loudness_lufs = std::isfinite(l) ? l + base::db_from_ratio(g) : l;
-    o.sample_peak = p.meters[i].sample_peak() * g;
-    o.true_peak = p.meters[i].true_peak() * g;
+    o.sample_peak = meter.sample_peak() * g;
+    o.true_peak = meter.true_peak() * g;
     if (dsp::quantisation_bits(rep.format) > 0) o.clipped_samples = p.writers[i].clipped_samples();
     if (p.writers[i].frames_written() != p.info.frames)
       throw internal_error("render: wrote " + std::to_string(p.writers[i].frames_written()) + " frames to " +

@@ -43,6 +43,21 @@
 // lists it; an output whose channels are all below the floor is silent (scale 0) and is
 // left out of the loudness matching. A fixed scale lifts nothing and is written as it is.
 //
+// Modelled noise (`noise`): each stage's own hiss is added at the load, after the engine:
+// Gaussian noise whose density is the stage's output noise density at its operating point
+// (model/analysis/noise.hpp: every resistor, channel, flicker and gate-current source, as
+// `noise` reports them), shaped up to half the file's rate (dsp/shaped_noise.hpp), one
+// independent stream per stage and channel from `noise_seed`, so a seed repeats the file.
+// It is in volts at the load, so it stands to the signal as it would on the bench through
+// the input calibration (input_peak_v). It is never normalised on its own: the scale
+// comes from the noiseless output (pass 1 meters and peaks the noiseless volts; pass 2,
+// or the one pass at a fixed scale, adds the noise before writing), so hiss under silence
+// is not lifted to full scale. An output whose signal is below the silence floor has no
+// scale of its own; its noise is then scaled as a signal peaking at the stage's clean
+// swing would be (the largest clean output, model/analysis/headroom.hpp), so the file's
+// hiss sits below the ceiling by the signal-to-noise ratio at the clean swing. The
+// reported loudness and peaks are those of the written values, noise included.
+//
 // Files: every output is written to a temporary file beside it (dsp::sound_writer) and
 // committed only when all of them are complete, all or none (base::output_set): by
 // render() itself, or, when `control.outputs` is given, by the caller once it has done
@@ -141,6 +156,8 @@ struct render_job {
   int threads{0};
   std::size_t block_frames{8192};
   dk_options engine;
+  bool noise{false};            ///< add each stage's modelled noise (see the file comment)
+  std::uint64_t noise_seed{1};
 };
 
 struct render_progress {
@@ -179,6 +196,13 @@ struct output_report {
   std::vector<int> silent_channels;  ///< channels (from 1) written as zeros below the floor
   double peak_v{0};              ///< first pass: largest |volts| at the load (dry: at the generator)
   dk_stats engine;               ///< summed over the channels (not for dry)
+  /// With noise (not for dry): the rms of the noise added at the load, from 0 to half the
+  /// file's rate (the shaped density's exact variance), the scale it was written at (full
+  /// scale per volt), and whether that scale came from the clean swing (a silent output).
+  double noise_rms_v{0};
+  double noise_scale{0};
+  bool noise_scale_from_swing{false};
+  double clean_swing_vpk{0};     ///< the stage's clean swing at the load, when the noise was scaled by it
 };
 
 struct render_report {

@@ -890,6 +890,19 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"spread --require of stage 2 on a single stage", {"spread", "@stage.toml", "--require", "stage2.vd=3.5..5.5", "--runs", "10"}, {"--require: ", "describes one stage, so there is no stage 2"}},
       {"spread --require of the chain's gain by stage", {"spread", "@chain.toml", "--require", "stage2.gain=10..", "--runs", "10"}, {"--require: ", "gain is the whole design's", "without a stage"}},
       {"spread --plot with a requirement the chain refuses", {"spread", "@chain.toml", "--require", "id=1m..", "--plot", "@h.svg", "--runs", "10"}, {"--require: ", "stage1.id or stage2.id"}},
+      // ---- noise of a batch, modelled hiss in a render: spread --noise, render --noise --seed
+      {"spread --require on the noise without --noise", {"spread", "@stage.toml", "--require", "ein_a=..-120", "--runs", "10"}, {"--require ein_a=...", "needs --noise"}},
+      {"spread --require on the noise of one stage of a chain", {"spread", "@chain.toml", "--noise", "--require", "stage2.noise_a=..1u", "--runs", "10"}, {"--require: ", "noise_a is the whole design's", "without a stage"}},
+      {"render --seed that is not a number", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--noise", "--seed", "x"}, {"--seed", "a whole number", "'x'"}},
+      {"render --seed below 0", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--noise", "--seed", "-1"}, {"--seed", "a whole number from 0", "'-1'"}},
+      // ---- headroom as distortion: bias and tune --thd-levels
+      {"tune --thd-levels with --over-spread", {"tune", "@stage.toml", "--target", "vd=4.5", "--over-spread", "--runs", "4", "--thd-levels"}, {"--thd-levels: ", "one --target, without --over-spread"}},
+      {"tune --thd-levels with two targets", {"tune", "@stage.toml", "--target", "vd=4.5", "--target", "gain=15dB", "--adjust", "source.resistor,drain.resistor", "--thd-levels"}, {"--thd-levels: ", "one --target"}},
+      // ---- temperature: bias --temperature and the part's own laws
+      {"bias --temperature beyond the rated range", {"bias", "@stage.toml", "--temperature", "0..200"}, {"--temperature 0..200", "-55 to 150"}},
+      {"bias --temperature that is not a range", {"bias", "@stage.toml", "--temperature", "warm"}, {"--temperature", "'warm'"}},
+      {"bias --vp-drift of the wrong sign", {"bias", "@stage.toml", "--temperature", "0..50", "--vp-drift", "2"}, {"--vp-drift/--beta-exponent: ", "0 to -10 mV/K", "got 2"}},
+      {"bias --beta-exponent out of range", {"bias", "@stage.toml", "--temperature", "0..50", "--beta-exponent", "1"}, {"--vp-drift/--beta-exponent: ", "-3 to 0", "got 1"}},
       // ---- first use: a key written out in full where the file abbreviates it
       {"a key written out in full", {"bias", "@stage.toml", "--set", "gate.coupling_capacitor=100n"}, {"--set gate.coupling_capacitor", "did you mean 'coupling_cap'"}},
       {"a key written out in full, in a sweep", {"sweep", "@stage.toml", "--set", "source.bypass_capacitor=100u"}, {"did you mean 'bypass_cap'"}},

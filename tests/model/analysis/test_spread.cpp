@@ -264,7 +264,7 @@ TEST_CASE("on a chain every stage's bias is its own self-bias closed form, per d
   s.seed = 11;
   const std::vector<std::string> names = spread_quantity_names(st);
   CHECK(names == std::vector<std::string>{"stage1.id", "stage1.vd", "stage1.vs", "stage1.vds", "stage1.vgs", "stage2.id",
-                                          "stage2.vd", "stage2.vs", "stage2.vds", "stage2.vgs", "gain", "swing", "thd"});
+                                          "stage2.vd", "stage2.vs", "stage2.vds", "stage2.vgs", "gain", "swing", "thd", "noise", "noise_a", "ein", "ein_a"});
   const spread_result r = run_spread(st, s, {{"stage2.vd", 3.5, 6.0}});
   REQUIRE(r.unsolved == 0);
   int meets = 0, differ = 0, checked = 0;

@@ -1,0 +1,96 @@
+#include "model/analysis/temperature_drift.hpp"
+
+#include <cmath>
+#include <exception>
+
+#include "base/error.hpp"
+#include "base/units.hpp"
+#include "model/analysis/small_signal.hpp"
+#include "model/circuit/network.hpp"
+
+namespace pinchoff::model {
+
+void validate(const temperature_law& law) {
+  if (!(law.vp_drift_v_per_k <= 0.0 && law.vp_drift_v_per_k >= -10e-3))
+    throw setting_error("temperature_law", "the pinch-off drift must be 0 to -10 mV/K (n-channel frame), got " +
+                                               base::format_number(law.vp_drift_v_per_k * 1e3) + " mV/K");
+  if (!(law.beta_exponent >= -3.0 && law.beta_exponent <= 0.0))
+    throw setting_error("temperature_law",
+                        "the exponent of beta's temperature law must be -3 to 0, got " + base::format_number(law.beta_exponent));
+  if (!(law.leakage_doubling_k > 1.0) || !std::isfinite(law.leakage_doubling_k))
+    throw setting_error("temperature_law", "the gate leakage's doubling step must be above 1 K, got " +
+                                               base::format_number(law.leakage_doubling_k) + " K");
+}
+
+namespace {
+void move_part(jfet_params& p, polarity pol, double t0, double t, const temperature_law& law) {
+  const double sign = pol == polarity::p ? -1.0 : 1.0;  // real = sign * n-frame
+  const double vp0 = sign * p.vp_v;                     // n-frame, < 0
+  const double beta0 = p.idss_a / (vp0 * vp0);
+  const double vp = vp0 + law.vp_drift_v_per_k * (t - t0);
+  if (!(vp < 0.0))
+    throw input_error("at " + base::format_number(t - 273.15, 4) + " °C the pinch-off voltage would cross 0 V (" +
+                      base::format_number(vp0, 4) + " V at the stage's temperature, " +
+                      base::format_number(law.vp_drift_v_per_k * 1e3, 3) + " mV/K): the law does not reach so far");
+  const double beta = beta0 * std::pow(t / t0, law.beta_exponent);
+  p.vp_v = sign * vp;
+  p.idss_a = beta * vp * vp;
+  p.gate_leakage_a *= std::exp2((t - t0) / law.leakage_doubling_k);
+}
+}  // namespace
+
+stage at_temperature(const stage& st, double temperature_k, const temperature_law& law) {
+  stage s = st;
+  for (int k = 0; k < s.stage_count(); ++k) move_part(s.part(k).jfet, s.pol, st.temperature_k, temperature_k, law);
+  s.temperature_k = temperature_k;
+  return s;
+}
+
+zero_tc_point zero_tc(const jfet_params& p, polarity pol, double temperature_k, const temperature_law& law) {
+  const double sign = pol == polarity::p ? -1.0 : 1.0;
+  const double vp = sign * p.vp_v;  // n-frame, < 0
+  zero_tc_point z;
+  z.vov_v = 2.0 * temperature_k * law.vp_drift_v_per_k / law.beta_exponent;
+  z.id_a = p.idss_a / (vp * vp) * z.vov_v * z.vov_v;
+  z.vgs_v = sign * (vp + z.vov_v);
+  z.below_idss = vp + z.vov_v <= 0.0;
+  return z;
+}
+
+temperature_drift analyse_temperature_drift(const stage& st, const std::vector<double>& temperatures_k,
+                                            const temperature_law& law) {
+  validate(law);
+  temperature_drift d;
+  d.reference_k = st.temperature_k;
+  d.law = law;
+  auto terminals = [](const network& net, const operating_point& op, int k) {
+    const int device = net.stages.empty() ? k : net.stages[static_cast<std::size_t>(k)].jfet;
+    return terminals_of(net, op.x, device);
+  };
+  {
+    const network net = build_network(st);
+    const operating_point op = solve_operating_point(net);
+    for (int k = 0; k < st.stage_count(); ++k) {
+      d.rest.push_back(terminals(net, op, k));
+      d.zero_tc.push_back(zero_tc(st.part(k).jfet, st.pol, st.temperature_k, law));
+    }
+  }
+  for (double t : temperatures_k) {
+    drift_point p;
+    p.temperature_k = t;
+    try {
+      const stage s = at_temperature(st, t, law);
+      const network net = build_network(s);
+      const operating_point op = solve_operating_point(net);
+      for (int k = 0; k < s.stage_count(); ++k) p.stages.push_back(terminals(net, op, k));
+      p.gain_db = base::db_from_ratio(std::fabs(analyse_small_signal(net, op).gain_midband));
+      p.solved = true;
+    } catch (const std::exception& e) {
+      p.failure = e.what();
+    }
+    d.points.push_back(std::move(p));
+  }
+  return d;
+}
+
+}  // namespace pinchoff::model
