@@ -548,7 +548,9 @@ CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
   return sub;
 }
 
-bias_report analyse_bias_report(model::stage st, std::optional<double> at_hz) {
+// opt: the command's options (--thd-levels, --temperature); the workbench's analysis takes
+// the defaults, as `bias FILE --json` does.
+bias_report analyse_bias_report(model::stage st, std::optional<double> at_hz, const bias_options& opt = {}) {
   bias_report r;
   r.st = std::move(st);
   r.b = model::analyse_bias(r.st, at_hz);
@@ -575,7 +577,7 @@ bias_report analyse_bias_report(model::stage st, std::optional<double> at_hz) {
 void run(const bias_options& opt, std::ostream& out) {
   std::optional<double> at_hz;
   if (!opt.at_text.empty()) at_hz = parse_analysis_frequency_hz(opt.at_text, "--at");
-  const bias_report r = analyse_bias_report(load_stage(opt.input), at_hz);
+  const bias_report r = analyse_bias_report(load_stage(opt.input), at_hz, opt);
   if (opt.json) return print_json(r, out);
   print_text(r, opt.input.path, out);
   if (r.drift) print_drift(r, out);
