@@ -1,10 +1,12 @@
 // pinchoff measure: harmonic analysis of a recorded test tone (the bench half of the loop
 // that `pinchoff tone` starts).
 #include <algorithm>
+#include <cctype>
 #include <cmath>
 #include <cstdio>
 #include <memory>
 #include <optional>
+#include <sstream>
 #include <string>
 #include <vector>
 
@@ -13,11 +15,14 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "cli/option_text.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "dsp/io/sound_file.hpp"
 #include "base/units.hpp"
+#include "dsp/level_steps.hpp"
+#include "dsp/tone.hpp"
 #include "dsp/windowed_analysis.hpp"
 #include "model/circuit/stage_file.hpp"
 #include "model/analysis/noise.hpp"
@@ -52,6 +57,10 @@ struct measure_options {
   // --noise [--output-cal L]: a recording of noise alone, read unweighted and weighted.
   bool noise{false};
   std::string output_cal_text;
+  // --steps: a staircase, one analysis a step; --input-cal makes dBFS drives volts.
+  bool steps{false};
+  bool csv{false};
+  std::string input_cal_text;
 };
 
 // --noise: the readings of a recording that holds noise alone, and the stage's predicted
@@ -96,6 +105,7 @@ struct measure_report {
   dsp::windowed_analysis a;
   std::optional<dsp::display_spectrum> spectrum;  // with --plot
   std::optional<prediction> against;
+  double output_cal_vpk{0.0};  ///< --output-cal: a full-scale sine's peak volts at the recorder; 0: not given
 };
 
 dsp::window_kind parse_window(const std::string& t) {
@@ -119,6 +129,66 @@ std::string fixed(double v, int decimals) {
   return t;
 }
 
+// ---- Calibration and drives (--input-cal, --output-cal, dBFS drives)
+
+// A recorder's or a player's full scale: the peak volts of a full-scale sine there.
+double calibration_vpk(const std::string& text, const char* option) {
+  if (text.empty()) return 0.0;
+  const double v = option_level_vpk(text, option);
+  if (!(v >= 1e-3 && v <= 100.0))
+    throw input_error(std::string(option) + " must be 1 mV to 100 V peak (a full scale), got " +
+                      (v < 1e15 && v >= 1e-15 ? format_si(v, "V") : format_number(v) + " V"));
+  return v;
+}
+
+bool is_dbfs_text(const std::string& t) {
+  std::string l;
+  for (char c : t)
+    if (!std::isspace(static_cast<unsigned char>(c))) l.push_back(static_cast<char>(std::tolower(static_cast<unsigned char>(c))));
+  return l.size() > 4 && l.compare(l.size() - 4, 4, "dbfs") == 0;
+}
+
+// One drive at the generator: a voltage level, or a level of the played file in dBFS made
+// volts by --input-cal (the generator's peak for a full-scale sine in the file).
+double drive_vpk_of(const std::string& text, double input_cal_vpk, const model::stage* source) {
+  if (!is_dbfs_text(text)) return option_level_vpk(text, "--drive", source);
+  if (input_cal_vpk <= 0.0)
+    throw input_error("--drive " + text + " is a level of the played file: give --input-cal, the generator's level "
+                      "when the file holds a full-scale sine (such as 1Vpk or +4dBu), to make it volts");
+  const double dbfs = parse_db_value(text, "dBFS", "--drive");
+  if (dbfs > 0.0) throw input_error("--drive " + text + " is above full scale (0 dBFS at most)");
+  return input_cal_vpk * base::ratio_from_db(dbfs);
+}
+
+void check_drive_range(double vpk) {
+  // A generator's level, as render's --input-peak: beyond these no audio source is met
+  // (common practice), and the prediction's figures lose their meaning (1e300 V gave an
+  // infinite THD).
+  if (!(vpk >= 1e-6 && vpk <= 1e3))
+    throw input_error("--drive must be 1 µV to 1 kV peak at the generator, got " +
+                      (vpk < 1e15 && vpk >= 1e-15 ? format_si(vpk, "V") : format_number(vpk) + " V"));
+}
+
+// --steps --drive: one drive a step, as a comma-separated list of levels or the staircase
+// the played file holds (FROM..TO:STEP in dBFS, as `tone --steps` was given it).
+std::vector<double> step_drives_vpk(const std::string& text, double input_cal_vpk, const model::stage* source) {
+  std::vector<double> d;
+  if (looks_like_staircase(text)) {
+    if (input_cal_vpk <= 0.0)
+      throw input_error("--drive " + text + " is a staircase of the played file's levels: give --input-cal, the "
+                        "generator's level when the file holds a full-scale sine (such as 1Vpk), to make them volts");
+    const staircase_text st = parse_staircase(text, "--drive");
+    for (const dsp::tone_step& s : dsp::level_staircase(st.from_dbfs, st.to_dbfs, st.step_db, 1.0))
+      d.push_back(input_cal_vpk * base::ratio_from_db(s.level_dbfs));
+  } else {
+    std::stringstream ss(text);
+    std::string item;
+    while (std::getline(ss, item, ',')) d.push_back(drive_vpk_of(item, input_cal_vpk, source));
+  }
+  for (double v : d) check_drive_range(v);
+  return d;
+}
+
 // ---- Run
 
 // --against STAGE with its --drive and --set: the stage to predict, read before the
@@ -136,14 +206,9 @@ std::optional<prediction> load_against(const measure_options& o) {
   // A sound pressure level needs the capsule's sensitivity: the stage is read first then.
   const bool spl = is_spl_level(o.drive_text);
   if (spl) p.st = load_stage(p.path, p.overrides, o.devices);
-  p.drive_vpk = option_level_vpk(o.drive_text, "--drive", spl ? &p.st : nullptr);
+  p.drive_vpk = drive_vpk_of(o.drive_text, calibration_vpk(o.input_cal_text, "--input-cal"), spl ? &p.st : nullptr);
   if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
-  // A generator's level, as render's --input-peak: beyond these no audio source is met
-  // (common practice), and the prediction's figures lose their meaning (1e300 V gave an
-  // infinite THD).
-  if (!(p.drive_vpk >= 1e-6 && p.drive_vpk <= 1e3))
-    throw input_error("--drive must be 1 µV to 1 kV peak at the generator, got " +
-                      (p.drive_vpk < 1e15 && p.drive_vpk >= 1e-15 ? format_si(p.drive_vpk, "V") : format_number(p.drive_vpk) + " V"));
+  check_drive_range(p.drive_vpk);
   if (!spl) p.st = load_stage(p.path, p.overrides, o.devices);
   return p;
 }
@@ -209,6 +274,10 @@ recording_part open_part(const measure_options& o, const char* why_a_file) {
   return p;
 }
 
+// How far a tone's level may move within the span analysed (dsp::level_spread_db): a steady
+// tone reads under 0.6 dB, the nearest steps of a staircase 1 dB and up apart.
+constexpr double max_level_spread_db = 3.0;
+
 measure_report analyse(const measure_options& o) {
   measure_report r;
   r.path = o.path;
@@ -250,6 +319,14 @@ measure_report analyse(const measure_options& o) {
   std::vector<double> x = dsp::read_channel(rd, o.channel - 1, std::min(count, max_analysed_frames));
   if (x.size() < 64)
     throw input_error("'" + o.path + "' holds " + std::to_string(x.size()) + " frames to analyse; at least 64 are needed");
+  // One THD+N over several levels means nothing (the notch takes one fundamental's level):
+  // a span whose level moves by more than a few dB is refused with the way to measure it.
+  if (const double spread = dsp::level_spread_db(x, fs); spread > max_level_spread_db)
+    throw input_error("'" + o.path + "': the level changes by " + format_number(spread, 3) + " dB within the span analysed (" +
+                      fixed(static_cast<double>(r.first_frame) / fs, 3) + " s to " +
+                      fixed(static_cast<double>(r.first_frame + static_cast<std::int64_t>(x.size())) / fs, 3) +
+                      " s): it holds several levels, and one THD+N over them means nothing. Measure each level with "
+                      "--steps, or choose one with --start and --duration");
   x.resize(dsp::fast_analysis_length(x.size()));
   r.analysed = x.size();
   for (double v : x) r.sample_peak = std::max(r.sample_peak, std::abs(v));
@@ -307,6 +384,10 @@ std::string signed_db(double v) {
 noise_report analyse_noise_recording(const measure_options& o) {
   if (!o.drive_text.empty())
     throw input_error("--drive goes with a tone: --noise reads a recording of the stage's output with no signal");
+  if (o.steps) throw input_error("--steps and --noise: choose one (a staircase of tones, or a recording of noise alone)");
+  if (!o.input_cal_text.empty())
+    throw input_error("--input-cal goes with a tone's --drive: --noise reads a recording with no signal");
+  if (o.csv) throw input_error("--csv goes with --steps (one row a step)");
   if (o.freq_text != "auto") throw input_error("--freq goes with a tone: --noise reads a recording with no signal");
   if (!o.plot_path.empty()) throw input_error("--plot draws a tone's spectrum; with --noise there is no tone to mark");
   if (!o.against_path.empty() && o.output_cal_text.empty())
@@ -485,6 +566,10 @@ void write_against_text(const measure_report& r, std::ostream& out) {
   }
   t.add({"THD", format_number(a.thd_percent, 4) + " %", format_number(pt.thd_percent, 4) + " %",
          signed_db(base::db_from_ratio(a.thd_ratio / pt.thd_ratio))});
+  if (r.output_cal_vpk > 0.0) {
+    const double gain_db = base::db_from_ratio(a.fundamental_vpk * r.output_cal_vpk / p.drive_vpk);
+    t.add({"gain", fixed(gain_db, 2) + " dB", fixed(pt.gain_db, 2) + " dB", signed_db(gain_db - pt.gain_db)});
+  }
   t.write(out);
   out << "  difference: measured minus predicted; dBc figures do not depend on the recording's gain.\n"
          "  A measured harmonic near the noise floor reads the noise, not the "
@@ -511,6 +596,9 @@ void write_text(const measure_report& r, std::ostream& out) {
   text_table f({align::left, align::right});
   f.add({"frequency", fixed(a.fundamental_hz, 4) + " Hz"});
   f.add({"level", fixed(base::db_from_ratio(a.fundamental_vpk), 2) + " dBFS"});
+  if (r.output_cal_vpk > 0.0)
+    f.add({"output", format_si(a.fundamental_vpk * r.output_cal_vpk, "Vpk") + " (" +
+                         fixed(base::dbu_from_vpk(a.fundamental_vpk * r.output_cal_vpk), 2) + " dBu, --output-cal)"});
   f.add({"DC", fixed(base::db_from_ratio(std::abs(a.dc_v)), 1) + " dBFS"});
   f.write(out);
 
@@ -578,6 +666,10 @@ void write_json(const measure_report& r, std::ostream& out) {
                    {"noise_468_dbfs", dbfs_from_rms(a.noise_468_rms_v)},
                    {"noise_density_dbc_per_hz", a.noise_floor_dbc_per_hz},
                    {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)}};
+  if (r.output_cal_vpk > 0.0) {
+    j["output_cal_vpk"] = r.output_cal_vpk;
+    j["output_vpk"] = a.fundamental_vpk * r.output_cal_vpk;
+  }
   if (r.against) {
     const prediction& p = *r.against;
     const model::sweep_point& pt = p.point();
@@ -610,6 +702,12 @@ void write_json(const measure_report& r, std::ostream& out) {
                     {"thd_difference_db", number_or_null(base::db_from_ratio(a.thd_ratio / pt.thd_ratio))},
                     {"steady_state_converged", pt.converged},
                     {"warnings", p.warnings}};
+    j["against"]["gain_db"] = pt.gain_db;
+    if (r.output_cal_vpk > 0.0) {
+      const double gain_db = base::db_from_ratio(a.fundamental_vpk * r.output_cal_vpk / p.drive_vpk);
+      j["against"]["measured_gain_db"] = gain_db;
+      j["against"]["gain_difference_db"] = gain_db - pt.gain_db;
+    }
   }
   out << json_text(j) << '\n';
 }
@@ -641,13 +739,425 @@ void write_plot(const measure_report& r, const measure_options& o, base::output_
 }
 
 measure_report run(const measure_options& o) {
-  if (!o.output_cal_text.empty())
-    throw input_error("--output-cal goes with --noise (a tone's figures are in dBc and need no calibration)");
+  if (o.csv) throw input_error("--csv goes with --steps (one row a step); a single tone's report is --json");
+  const double output_cal = calibration_vpk(o.output_cal_text, "--output-cal");
   std::optional<prediction> against = load_against(o);
   measure_report r = analyse(o);
+  r.output_cal_vpk = output_cal;
   r.against = std::move(against);
   if (r.against) predict(r, o);
   return r;
+}
+
+// ---- A staircase (--steps)
+
+// The rms of each whole block of `block` frames of one channel of [first, first + count).
+std::vector<double> stream_block_rms(dsp::sound_reader& rd, int channel, std::int64_t first, std::int64_t count,
+                                     std::size_t block) {
+  rd.seek(first);
+  const auto ch = static_cast<std::size_t>(rd.info().channels);
+  std::vector<double> buf(8192 * ch), rms;
+  double sum = 0.0;
+  std::size_t in_block = 0;
+  std::int64_t done = 0;
+  while (done < count) {
+    const std::size_t want = static_cast<std::size_t>(std::min<std::int64_t>(8192, count - done));
+    const std::size_t got = rd.read(std::span<double>(buf).first(want * ch));
+    if (got == 0) break;
+    for (std::size_t i = 0; i < got; ++i) {
+      const double v = buf[i * ch + static_cast<std::size_t>(channel)];
+      sum += v * v;
+      if (++in_block == block) {
+        rms.push_back(std::sqrt(sum / static_cast<double>(block)));
+        sum = 0.0;
+        in_block = 0;
+      }
+    }
+    done += static_cast<std::int64_t>(got);
+  }
+  return rms;
+}
+
+struct step_row {
+  std::int64_t first_frame{0};  ///< in the file
+  std::size_t analysed{0};
+  dsp::windowed_analysis a;
+};
+
+struct steps_report {
+  std::string path;
+  dsp::sound_info info;
+  int channel{1};
+  dsp::window_kind window{};
+  double band_high_hz{};
+  int harmonics{model::default_harmonics};
+  std::int64_t first_frame{0}, count{0};  ///< the part searched
+  std::vector<step_row> steps;
+  std::vector<dsp::sample_range> no_tone;  ///< plateaus without a tone, in frames of the file
+  double input_cal_vpk{0.0}, output_cal_vpk{0.0};
+  std::optional<prediction> against;       ///< one sweep point a step, in order
+};
+
+// A plateau whose band power lies mostly off its strongest line holds no tone: noise, or the
+// recorder's floor between takes. A square wave, the most distorted test tone there is,
+// reads 43 % THD+N; this is far past it.
+constexpr double no_tone_thd_n = 0.9;
+
+steps_report analyse_steps(const measure_options& o) {
+  steps_report r;
+  r.path = o.path;
+  r.window = parse_window(o.window_text);
+  r.harmonics = o.harmonics;
+  if (o.harmonics < 2 || o.harmonics > 100) throw input_error("--harmonics must be 2 to 100, got " + std::to_string(o.harmonics));
+  if (!(o.start_s >= 0.0) || !(o.duration_s >= 0.0)) throw input_error("--start and --duration must not be negative");
+  r.input_cal_vpk = calibration_vpk(o.input_cal_text, "--input-cal");
+  r.output_cal_vpk = calibration_vpk(o.output_cal_text, "--output-cal");
+  dsp::windowed_settings s;
+  s.window = r.window;
+  s.harmonics = o.harmonics;
+  s.band_high_hz = option_frequency_hz(o.bandwidth_text, "--bandwidth");
+  if (!(s.band_high_hz > s.band_low_hz))
+    throw input_error("--bandwidth " + o.bandwidth_text + " must lie above the band's low edge, " +
+                      format_si(s.band_low_hz, "Hz") + " (AES17)");
+  if (o.freq_text != "auto") s.approx_fundamental_hz = option_frequency_hz(o.freq_text, "--freq");
+
+  recording_part part = open_part(o, "measure --steps reads the recording twice (to find its steps, then to analyse each)");
+  dsp::sound_reader& rd = part.rd;
+  r.info = rd.info();
+  r.channel = o.channel;
+  const double fs = r.info.rate_hz;
+  r.band_high_hz = s.band_high_hz = std::min(s.band_high_hz, fs / 2);
+  if (s.approx_fundamental_hz >= fs / 2)
+    throw input_error("--freq " + o.freq_text + " lies above half the file's sample rate (" + format_si(fs / 2, "Hz") + ")");
+  r.first_frame = part.first;
+  r.count = part.count;
+  const std::size_t block = dsp::step_block_samples(fs);
+  const std::vector<double> rms = stream_block_rms(rd, o.channel - 1, part.first, part.count, block);
+  const std::vector<dsp::sample_range> found = dsp::find_level_steps(rms, block);
+  if (found.empty())
+    throw input_error("'" + o.path + "': no step found: no level holds for " +
+                      format_number(static_cast<double>(dsp::step_settings{}.min_step_blocks) * dsp::step_block_seconds, 2) +
+                      " s or more within " + format_number(dsp::step_settings{}.tolerance_db, 2) +
+                      " dB (a staircase's steps must differ by more than 1 dB)");
+
+  // Each step read on its own; the loudest first, without a frequency unless --freq gave
+  // one, and the others at its frequency, so a quiet step near the floor does not lock onto
+  // hum.
+  std::size_t loudest = 0;
+  double loudest_rms = -1.0;
+  for (std::size_t k = 0; k < found.size(); ++k) {
+    double sum = 0.0;
+    for (std::size_t b = found[k].begin / block; b < found[k].end / block; ++b) sum += rms[b] * rms[b];
+    const double m = sum / static_cast<double>(std::max<std::size_t>(1, (found[k].end - found[k].begin) / block));
+    if (m > loudest_rms) {
+      loudest_rms = m;
+      loudest = k;
+    }
+  }
+  std::vector<std::optional<step_row>> rows(found.size());
+  const auto analyse_one = [&](std::size_t k, const dsp::windowed_settings& ws) {
+    step_row row;
+    row.first_frame = part.first + static_cast<std::int64_t>(found[k].begin);
+    rd.seek(row.first_frame);
+    std::vector<double> x =
+        dsp::read_channel(rd, o.channel - 1, std::min<std::int64_t>(static_cast<std::int64_t>(found[k].end - found[k].begin), max_analysed_frames));
+    x.resize(dsp::fast_analysis_length(x.size()));
+    row.analysed = x.size();
+    try {
+      row.a = dsp::analyse_windowed(x, fs, ws);
+    } catch (const input_error&) {
+      return std::optional<step_row>{};  // no tone in it (silence under noise, DC)
+    }
+    if (row.a.thd_n_ratio > no_tone_thd_n) return std::optional<step_row>{};
+    return std::optional<step_row>{row};
+  };
+  rows[loudest] = analyse_one(loudest, s);
+  if (!rows[loudest])
+    throw input_error("'" + o.path + "': no tone found in its loudest step (from " +
+                      fixed(static_cast<double>(part.first + static_cast<std::int64_t>(found[loudest].begin)) / fs, 3) + " s)");
+  dsp::windowed_settings at = s;
+  at.approx_fundamental_hz = rows[loudest]->a.fundamental_hz;
+  for (std::size_t k = 0; k < found.size(); ++k)
+    if (k != loudest) rows[k] = analyse_one(k, at);
+  for (std::size_t k = 0; k < found.size(); ++k) {
+    if (rows[k]) r.steps.push_back(std::move(*rows[k]));
+    else
+      r.no_tone.push_back({static_cast<std::size_t>(part.first) + found[k].begin, static_cast<std::size_t>(part.first) + found[k].end});
+  }
+  return r;
+}
+
+// The model at every step's drive, in one sweep at the loudest step's frequency.
+void predict_steps(steps_report& r, const measure_options& o) {
+  prediction& p = *r.against;
+  const bool spl = is_spl_level(o.drive_text);
+  const std::vector<double> drives = step_drives_vpk(o.drive_text, r.input_cal_vpk, spl ? &p.st : nullptr);
+  if (drives.size() != r.steps.size()) {
+    std::string where;
+    for (std::size_t k = 0; k < r.steps.size() && k < 12; ++k)
+      where += (k ? ", " : "") + fixed(static_cast<double>(r.steps[k].first_frame) / r.info.rate_hz, 2) + " s";
+    throw input_error("--drive gives " + std::to_string(drives.size()) + " level" + (drives.size() == 1 ? "" : "s") +
+                      " but the recording holds " + std::to_string(r.steps.size()) + " step" +
+                      (r.steps.size() == 1 ? "" : "s") + " with a tone (from " + where + (r.steps.size() > 12 ? ", ..." : "") +
+                      "): give one drive a step, in the order they were played");
+  }
+  double f_hz = 0.0, loudest = -1.0;
+  for (const step_row& s : r.steps)
+    if (s.a.fundamental_vpk > loudest) {
+      loudest = s.a.fundamental_vpk;
+      f_hz = s.a.fundamental_hz;
+    }
+  model::sweep_settings s;
+  s.frequency_hz = f_hz;
+  s.drives_vpk = drives;
+  s.harmonics = o.harmonics;
+  s.bandwidth_hz = r.band_high_hz;
+  if (!(s.frequency_hz < 0.5 * s.base_rate_hz))
+    throw input_error("the recording's fundamental, " + format_si(s.frequency_hz, "Hz") + ", lies above the " +
+                      format_si(0.5 * s.base_rate_hz, "Hz") + " the model's test tone can reach");
+  p.drive_vpk = drives.front();
+  p.sweep = model::run_sweep(p.st, s);
+  int failed = 0, unsettled = 0;
+  for (const model::sweep_point& pt : p.sweep.points) {
+    failed += static_cast<int>(pt.newton.failed);
+    unsettled += pt.converged ? 0 : 1;
+  }
+  if (failed > 0) p.warnings.push_back(std::to_string(failed) + " samples of the prediction did not converge even sub-stepped");
+  if (unsettled > 0)
+    p.warnings.push_back("the prediction's steady state was not reached at " + std::to_string(unsettled) + " drive" +
+                         (unsettled == 1 ? "" : "s"));
+}
+
+steps_report run_steps(const measure_options& o) {
+  if (o.json && o.csv) throw input_error("--json and --csv: choose one");
+  if (!o.drive_text.empty() && o.against_path.empty())
+    throw input_error("--drive and --set go with --against STAGE (the stage to predict)");
+  if (!o.against_path.empty() && o.drive_text.empty())
+    throw input_error("--steps --against needs --drive: one generator level a step (a list, or the staircase the played "
+                      "file holds, such as -40dBFS..0dBFS:6 with --input-cal)");
+  std::optional<prediction> against;
+  if (!o.against_path.empty()) {
+    against.emplace();
+    against->path = o.against_path;
+    against->overrides = o.overrides;
+    against->st = load_stage(o.against_path, o.overrides, o.devices);
+  } else if (!o.overrides.empty()) {
+    throw input_error("--drive and --set go with --against STAGE (the stage to predict)");
+  }
+  steps_report r = analyse_steps(o);
+  r.against = std::move(against);
+  if (r.against) predict_steps(r, o);
+  return r;
+}
+
+// A measured harmonic, or a predicted one, as text ("n/a" above the band).
+std::string step_dbc(double v) { return std::isfinite(v) ? fixed(v, 1) : "n/a"; }
+std::string predicted_dbc(double v) {
+  if (below_numerical_floor(v)) return floor_mark;
+  return step_dbc(v);
+}
+double harmonic_of(const std::vector<double>& h, int n) {
+  const auto i = static_cast<std::size_t>(n - 2);
+  return i < h.size() ? h[i] : std::nan("");
+}
+
+void write_steps_text(const steps_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  out << r.path << ": " << r.info.format_text << ", "
+      << (fs == std::floor(fs) ? std::to_string(static_cast<long long>(fs)) : format_number(fs, 6)) << " Hz, " << r.info.channels
+      << (r.info.channels == 1 ? " channel, " : " channels, ") << format_number(r.info.seconds(), 4) << " s\n";
+  out << "  channel " << r.channel << ", " << r.steps.size() << " step" << (r.steps.size() == 1 ? "" : "s")
+      << " with a tone found from " << fixed(static_cast<double>(r.first_frame) / fs, 3) << " s to "
+      << fixed(static_cast<double>(r.first_frame + r.count) / fs, 3) << " s; each read alone, "
+      << format_number(dsp::step_block_seconds * 1000.0, 3) << " ms left at each end\n"
+      << "  window " << window_description(r.window) << "; band 20 Hz to " << format_si(r.band_high_hz, "Hz") << " (AES17)\n";
+  for (const dsp::sample_range& n : r.no_tone)
+    out << "  ! a level held from " << fixed(static_cast<double>(n.begin) / fs, 3) << " s to "
+        << fixed(static_cast<double>(n.end) / fs, 3) << " s holds no tone (noise or silence): left out\n";
+  const bool cal = r.output_cal_vpk > 0.0;
+  out << "\nSteps\n";
+  std::vector<align> al(cal ? 10 : 9, align::right);
+  text_table t(al);
+  std::vector<std::string> head{"step", "from", "length", "frequency", "level"};
+  if (cal) head.push_back("output");
+  for (const char* h : {"THD", "THD+N", "H2", "H3"}) head.push_back(h);
+  t.add(head);
+  for (std::size_t k = 0; k < r.steps.size(); ++k) {
+    const step_row& s = r.steps[k];
+    std::vector<std::string> row{std::to_string(k + 1), fixed(static_cast<double>(s.first_frame) / fs, 3) + " s",
+                                 fixed(static_cast<double>(s.analysed) / fs, 3) + " s", fixed(s.a.fundamental_hz, 2) + " Hz",
+                                 fixed(base::db_from_ratio(s.a.fundamental_vpk), 2) + " dBFS"};
+    if (cal) row.push_back(format_si(s.a.fundamental_vpk * r.output_cal_vpk, "Vpk"));
+    row.push_back(format_number(s.a.thd_percent, 3) + " %");
+    row.push_back(format_number(s.a.thd_n_percent, 3) + " %");
+    row.push_back(step_dbc(harmonic_of(s.a.harmonics_dbc, 2)) + " dBc");
+    row.push_back(step_dbc(harmonic_of(s.a.harmonics_dbc, 3)) + " dBc");
+    t.add(row);
+  }
+  t.write(out);
+  out << "  level: the fundamental's peak in dBFS (0 for a sine reaching full scale)"
+      << (cal ? "; output: in volts through --output-cal" : "")
+      << ";\n  THD counts H2..H" << r.harmonics << " in the band (--json and --csv give each harmonic).\n";
+  if (!r.against) return;
+  const prediction& p = *r.against;
+  out << "\nAgainst the model\n  " << p.path;
+  for (const std::string& ov : p.overrides) out << " --set " << ov;
+  out << ": " << p.st.name << ", at " << fixed(p.sweep.frequency_hz, 3) << " Hz, " << p.sweep.oversample << "x oversampling\n";
+  for (const std::string& w : p.warnings) out << "  ! " << w << '\n';
+  out << '\n';
+  std::vector<std::string> head2{"step", "drive", "THD", "predicted", "H2", "predicted", "H3", "predicted"};
+  if (cal) {
+    head2.push_back("gain");
+    head2.push_back("predicted");
+  }
+  text_table a(std::vector<align>(head2.size(), align::right));
+  a.add(head2);
+  for (std::size_t k = 0; k < r.steps.size(); ++k) {
+    const dsp::windowed_analysis& m = r.steps[k].a;
+    const model::sweep_point& pt = p.sweep.points[k];
+    std::vector<std::string> row{std::to_string(k + 1), fixed(base::dbu_from_vpk(pt.drive_vpk), 2) + " dBu",
+                                 format_number(m.thd_percent, 3) + " %", format_number(pt.thd_percent, 3) + " %",
+                                 step_dbc(harmonic_of(m.harmonics_dbc, 2)), predicted_dbc(harmonic_of(pt.harmonics_dbc, 2)),
+                                 step_dbc(harmonic_of(m.harmonics_dbc, 3)), predicted_dbc(harmonic_of(pt.harmonics_dbc, 3))};
+    if (cal) {
+      row.push_back(fixed(base::db_from_ratio(m.fundamental_vpk * r.output_cal_vpk / pt.drive_vpk), 2) + " dB");
+      row.push_back(fixed(pt.gain_db, 2) + " dB");
+    }
+    a.add(row);
+  }
+  a.write(out);
+  out << "  H2, H3 in dBc; drive: the generator's level at each step"
+      << (r.input_cal_vpk > 0.0 ? " (the played file's levels through --input-cal)" : "")
+      << (cal ? ";\n  gain: from the generator to the load, measured through --output-cal" : "")
+      << ".\n  A measured harmonic near the noise floor reads the noise, not the " << (p.st.is_chain() ? "chain" : "stage")
+      << ".\n";
+}
+
+nlohmann::json harmonics_json(const std::vector<double>& h) {
+  nlohmann::json a = nlohmann::json::array();
+  for (double v : h) a.push_back(number_or_null(v));
+  return a;
+}
+
+void write_steps_json(const steps_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  nlohmann::json steps = nlohmann::json::array();
+  for (std::size_t k = 0; k < r.steps.size(); ++k) {
+    const step_row& s = r.steps[k];
+    nlohmann::json j{{"start_s", static_cast<double>(s.first_frame) / fs},
+                     {"duration_s", static_cast<double>(s.analysed) / fs},
+                     {"fundamental_hz", s.a.fundamental_hz},
+                     {"fundamental_dbfs", base::db_from_ratio(s.a.fundamental_vpk)},
+                     {"highest_harmonic", s.a.highest_harmonic},
+                     {"harmonics_dbc", harmonics_json(s.a.harmonics_dbc)},
+                     {"thd_percent", s.a.thd_percent},
+                     {"thd_n_percent", s.a.thd_n_percent},
+                     {"noise_dbc", s.a.noise_dbc}};
+    if (r.output_cal_vpk > 0.0) j["output_vpk"] = s.a.fundamental_vpk * r.output_cal_vpk;
+    if (r.against) {
+      const model::sweep_point& pt = r.against->sweep.points[k];
+      nlohmann::json hs = nlohmann::json::array();
+      for (double v : pt.harmonics_dbc) hs.push_back(dbc_or_null(v));
+      j["predicted"] = {{"drive_vpk", pt.drive_vpk},
+                        {"drive_dbu", base::dbu_from_vpk(pt.drive_vpk)},
+                        {"output_vpk", pt.output_vpk},
+                        {"gain_db", pt.gain_db},
+                        {"thd_percent", pt.thd_percent},
+                        {"harmonics_dbc", hs},
+                        {"harmonics_below_floor", below_floor_json(pt.harmonics_dbc)},
+                        {"steady_state_converged", pt.converged}};
+      if (r.output_cal_vpk > 0.0) j["gain_db"] = base::db_from_ratio(s.a.fundamental_vpk * r.output_cal_vpk / pt.drive_vpk);
+    }
+    steps.push_back(j);
+  }
+  nlohmann::json no_tone = nlohmann::json::array();
+  for (const dsp::sample_range& n : r.no_tone)
+    no_tone.push_back({{"start_s", static_cast<double>(n.begin) / fs}, {"duration_s", static_cast<double>(n.end - n.begin) / fs}});
+  nlohmann::json j{{"path", r.path},
+                   {"mode", "steps"},
+                   {"rate_hz", fs},
+                   {"channel", r.channel},
+                   {"window", std::string(dsp::window_name(r.window))},
+                   {"bandwidth_hz", r.band_high_hz},
+                   {"steps", steps},
+                   {"without_tone", no_tone}};
+  if (r.input_cal_vpk > 0.0) j["input_cal_vpk"] = r.input_cal_vpk;
+  if (r.output_cal_vpk > 0.0) j["output_cal_vpk"] = r.output_cal_vpk;
+  if (r.against) {
+    const prediction& p = *r.against;
+    j["against"] = {{"stage_path", p.path},     {"overrides", p.overrides},
+                    {"name", p.st.name},         {"frequency_hz", p.sweep.frequency_hz},
+                    {"oversampling", p.sweep.oversample}, {"numerical_floor_dbc", model::numerical_floor_dbc},
+                    {"warnings", p.warnings}};
+  }
+  out << json_text(j) << '\n';
+}
+
+// CSV: one row a step, the harmonics one column each; the model's beside them with --against.
+void write_steps_csv(const steps_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  const int n = r.harmonics;
+  const bool cal = r.output_cal_vpk > 0.0;
+  out << "step,start_s,duration_s,fundamental_hz,fundamental_dbfs,thd_percent,thd_n_percent";
+  for (int h = 2; h <= n; ++h) out << ",h" << h << "_dbc";
+  if (cal) out << ",output_vpk";
+  if (r.against) {
+    out << ",drive_vpk,predicted_output_vpk,predicted_gain_db,predicted_thd_percent";
+    for (int h = 2; h <= n; ++h) out << ",predicted_h" << h << "_dbc";
+    if (cal) out << ",gain_db";
+  }
+  out << '\n';
+  const auto num = [](double v) { return std::isfinite(v) ? format_number(v, 9) : std::string(); };
+  for (std::size_t k = 0; k < r.steps.size(); ++k) {
+    const dsp::windowed_analysis& a = r.steps[k].a;
+    out << k + 1 << ',' << num(static_cast<double>(r.steps[k].first_frame) / fs) << ','
+        << num(static_cast<double>(r.steps[k].analysed) / fs) << ',' << num(a.fundamental_hz) << ','
+        << num(base::db_from_ratio(a.fundamental_vpk)) << ',' << num(a.thd_percent) << ',' << num(a.thd_n_percent);
+    for (int h = 2; h <= n; ++h) out << ',' << num(harmonic_of(a.harmonics_dbc, h));
+    if (cal) out << ',' << num(a.fundamental_vpk * r.output_cal_vpk);
+    if (r.against) {
+      const model::sweep_point& pt = r.against->sweep.points[k];
+      out << ',' << num(pt.drive_vpk) << ',' << num(pt.output_vpk) << ',' << num(pt.gain_db) << ',' << num(pt.thd_percent);
+      for (int h = 2; h <= n; ++h) {
+        const double v = harmonic_of(pt.harmonics_dbc, h);
+        out << ',' << (below_numerical_floor(v) ? std::string() : num(v));  // below the floor: no figure
+      }
+      if (cal) out << ',' << num(base::db_from_ratio(a.fundamental_vpk * r.output_cal_vpk / pt.drive_vpk));
+    }
+    out << '\n';
+  }
+}
+
+// THD, H2 and H3 against the step's level, measured and (with --against) predicted.
+void write_steps_plot(const steps_report& r, const measure_options& o, base::output_set& outputs) {
+  const bool cal = r.output_cal_vpk > 0.0;
+  line_plot p;
+  p.title = "Steps of " + std::filesystem::path(o.path).filename().string() + ", channel " + std::to_string(o.channel);
+  p.x = axis{cal ? "output level (dBu)" : "output level (dBFS, sine peak)", axis_scale::linear, {}, {}, false};
+  p.top.y = axis{"re the fundamental (dB)", axis_scale::linear, {}, {}, false};
+  const auto level = [&](const step_row& s) {
+    return cal ? base::dbu_from_vpk(s.a.fundamental_vpk * r.output_cal_vpk) : base::db_from_ratio(s.a.fundamental_vpk);
+  };
+  const char* names[] = {"THD", "H2", "H3"};
+  for (int which = 0; which < 3; ++which) {
+    series m{std::string(names[which]) + " measured", {}, {}, true};
+    series q{std::string(names[which]) + " model", {}, {}, true};
+    for (std::size_t k = 0; k < r.steps.size(); ++k) {
+      const step_row& s = r.steps[k];
+      const double x = level(s);
+      m.x.push_back(x);
+      m.y.push_back(which == 0 ? s.a.thd_db : harmonic_of(s.a.harmonics_dbc, which + 1));
+      if (r.against) {
+        const model::sweep_point& pt = r.against->sweep.points[k];
+        const double v = which == 0 ? pt.thd_db : harmonic_of(pt.harmonics_dbc, which + 1);
+        q.x.push_back(x);
+        q.y.push_back(below_numerical_floor(v) ? std::nan("") : v);  // below the floor: no point
+      }
+    }
+    p.top.lines.push_back(std::move(m));
+    if (r.against) p.top.lines.push_back(std::move(q));
+  }
+  add_svg_output(outputs, o.plot_path, render_svg(p));
 }
 
 // ---- Setup: the options, their help and the worked examples.
@@ -670,7 +1180,9 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
   sub->add_flag("--json", o.json, "Machine-readable output (keys carry their unit as a suffix)");
   sub->add_option("--against", o.against_path, "Stage file (TOML) whose prediction is shown beside the measurement")
       ->type_name("STAGE");
-  sub->add_option("--drive", o.drive_text, "With --against: the generator level the stage was driven with, e.g. 100mVpk")
+  sub->add_option("--drive", o.drive_text,
+                  "With --against: the generator level the stage was driven with, e.g. 100mVpk, or -20dBFS with "
+                  "--input-cal; with --steps one a step, as a list or the played staircase FROM..TO:STEP in dBFS")
       ->type_name("LEVEL");
   sub->add_option("--set", o.overrides, "With --against: override a stage-file value, KEY=VALUE (repeatable)")
       ->type_name("KEY=VALUE")
@@ -681,16 +1193,30 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
                 "The recording holds noise alone (the stage's output, its input shorted or terminated): read it "
                 "unweighted, A-weighted and ITU-R 468 weighted");
   sub->add_option("--output-cal", o.output_cal_text,
-                  "With --noise: the level of a full-scale sine at the recorder's input, e.g. 1.55Vpk or +6dBu, so "
-                  "readings are in volts and dBu")
+                  "The level of a full-scale sine at the recorder's input, e.g. 1.55Vpk or +6dBu, so readings are in "
+                  "volts and dBu (and with --against, the measured gain beside the model's)")
       ->type_name("LEVEL");
+  sub->add_option("--input-cal", o.input_cal_text,
+                  "The generator's level when the played file holds a full-scale sine, e.g. 1Vpk or +4dBu, so --drive "
+                  "may be given in dBFS of the played file")
+      ->type_name("LEVEL");
+  sub->add_flag("--steps", o.steps,
+                "The recording holds a staircase of levels (as 'pinchoff tone --steps' writes): find each step and "
+                "measure it alone");
+  sub->add_flag("--csv", o.csv, "With --steps: one row a step as CSV, each harmonic a column");
   sub->footer(
       "Examples:\n"
       "  pinchoff measure stage-out.wav\n"
       "      the strongest tone, its harmonics H2..H10, THD, THD+N and noise\n"
       "  pinchoff measure stage-out.wav --freq 1k --channel 2 --plot spectrum.svg\n"
+      "  pinchoff measure staircase-out.wav --steps\n"
+      "      every step of a recorded 'pinchoff tone --steps' staircase: level, THD, THD+N, H2..H10\n"
+      "  pinchoff measure staircase-out.wav --steps --against presets/bass-booster-9v.toml \\\n"
+      "      --drive -40dBFS..0dBFS:6 --input-cal 0.5Vpk --output-cal 1.55Vpk --plot steps.svg\n"
+      "      each step beside the model at its drive: the played staircase (as given to tone --steps),\n"
+      "      the generator at 0.5 V peak for a full-scale sine, the recorder's full scale 1.55 V peak\n"
       "  pinchoff measure staircase-out.wav --start 4.01 --duration 1.98 --json\n"
-      "      one step of a 'pinchoff tone --steps' recording (tone prints where each step holds)\n"
+      "      one step of a staircase by hand (tone prints where each step holds)\n"
       "  pinchoff measure booster-out.wav --against presets/bass-booster-9v.toml --drive 100mVpk\n"
       "      beside each harmonic, what the model predicts for that drive at the measured frequency\n"
       "  pinchoff measure hiss.wav --noise --output-cal 1.55Vpk --against presets/phantom-mic-follower.toml\n"
@@ -704,7 +1230,11 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       "10.9 s at 192 kHz; a longer recording is analysed from the start of its steady part, and\n"
       "memory stays near 150 MB whatever the file's length). The recording must be a file, not a\n"
       "pipe: it is read twice. --drive is the generator's open-circuit\n"
-      "level as in `sweep`; the comparison is in dBc, so the recording's own gain does not matter.");
+      "level as in `sweep`; the comparison is in dBc, so the recording's own gain does not matter\n"
+      "(give --output-cal to compare the gain too). A span whose level moves by more than 3 dB is\n"
+      "refused: one THD+N over several levels means nothing; use --steps. --steps finds plateaus\n"
+      "held 0.3 s or more within 0.5 dB (steps 1 dB or more apart), leaves 50 ms at each end, and\n"
+      "leaves out a plateau that holds no tone (noise, the recorder's floor).");
   return sub;
 }
 
@@ -720,6 +1250,14 @@ void register_measure(CLI::App& app, std::vector<command>& commands, const data_
                           const noise_report n = analyse_noise_recording(*opt);
                           if (opt->json) write_noise_json(n, out);
                           else write_noise_text(n, out);
+                          return;
+                        }
+                        if (opt->steps) {
+                          const steps_report r = run_steps(*opt);
+                          if (!opt->plot_path.empty()) write_steps_plot(r, *opt, outputs);
+                          if (opt->json) write_steps_json(r, out);
+                          else if (opt->csv) write_steps_csv(r, out);
+                          else write_steps_text(r, out);
                           return;
                         }
                         const measure_report r = run(*opt);

@@ -16,6 +16,7 @@
 #include "cli/app.hpp"
 #include "cli/common.hpp"
 #include "cli/interrupt.hpp"
+#include "cli/option_text.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "dsp/io/sound_file.hpp"
@@ -50,44 +51,10 @@ struct tone_options {
 const std::map<std::string, std::string, std::less<>> tone_options_of_fields{{"fade_seconds", "--fade-ms"},
                                                                             {"rate_hz", "--rate"}};
 
-std::string trimmed(std::string_view t) {
-  while (!t.empty() && std::isspace(static_cast<unsigned char>(t.front()))) t.remove_prefix(1);
-  while (!t.empty() && std::isspace(static_cast<unsigned char>(t.back()))) t.remove_suffix(1);
-  return std::string(t);
-}
-
-// "-10dBFS", "-10 dBFS", "-10" (dBFS understood). `suffix` is the unit word accepted.
-double parse_db(std::string_view text, std::string_view suffix, std::string_view what) {
-  std::string t = trimmed(text);
-  std::string lower = t;
-  std::transform(lower.begin(), lower.end(), lower.begin(), [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
-  std::string suf(suffix);
-  std::transform(suf.begin(), suf.end(), suf.begin(), [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
-  if (lower.size() >= suf.size() && lower.compare(lower.size() - suf.size(), suf.size(), suf) == 0)
-    t = trimmed(std::string_view(t).substr(0, t.size() - suf.size()));
-  std::size_t used = 0;
-  double v = 0.0;
-  try {
-    v = std::stod(t, &used);
-  } catch (const std::exception&) {
-    used = 0;
-  }
-  if (t.empty() || used != t.size() || !std::isfinite(v))
-    throw input_error(std::string(what) + " '" + std::string(text) + "' is not a level; expected a number of " +
-                      std::string(suffix) + ", e.g. -10" + std::string(suffix));
-  return v;
-}
-
-// FROM..TO:STEP, e.g. "-40dBFS..0dBFS:10" or "-40..0:6dB".
+// FROM..TO:STEP, e.g. "-40dBFS..0dBFS:10" or "-40..0:6dB" (cli/option_text.hpp).
 std::vector<dsp::tone_step> parse_steps(const std::string& text, double seconds) {
-  const std::size_t dots = text.find("..");
-  const std::size_t colon = text.rfind(':');
-  if (dots == std::string::npos || colon == std::string::npos || colon < dots)
-    throw input_error("--steps '" + text + "' is not FROM..TO:STEP, e.g. -40dBFS..0dBFS:10 (levels in dBFS, step in dB)");
-  const double from = parse_db(text.substr(0, dots), "dBFS", "--steps start");
-  const double to = parse_db(text.substr(dots + 2, colon - dots - 2), "dBFS", "--steps end");
-  const double step = parse_db(text.substr(colon + 1), "dB", "--steps step");
-  return dsp::level_staircase(from, to, step, seconds);
+  const staircase_text st = parse_staircase(text, "--steps");
+  return dsp::level_staircase(st.from_dbfs, st.to_dbfs, st.step_db, seconds);
 }
 
 // What was written, for the formatters.
@@ -202,7 +169,7 @@ tone_report plan_tone(const tone_options& o) {
   r.plan.frequency_hz = option_frequency_hz(o.freq_text, "--freq");
   r.plan.rate_hz = o.rate_hz;
   r.plan.fade_seconds = o.fade_ms / 1000.0;
-  if (o.steps_text.empty()) r.plan.steps = {{parse_db(o.level_text, "dBFS", "--level"), o.seconds}};
+  if (o.steps_text.empty()) r.plan.steps = {{parse_db_value(o.level_text, "dBFS", "--level"), o.seconds}};
   else r.plan.steps = parse_steps(o.steps_text, o.step_seconds);
 
   // An integer file's largest code is one step short of full scale, and dither adds up to

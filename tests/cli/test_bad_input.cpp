@@ -285,6 +285,7 @@ struct fixtures {
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", f("rec48.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "1", f("rec1s.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", "--format", "float", f("float48.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--steps", "-30..0:10", "--step-seconds", "0.5", f("stair.wav")}).status == 0);
     write(f("empty.wav"), "");
     {
       // A WAV header (PCM, mono, 48 kHz, 16-bit) whose data chunk holds no frames.
@@ -797,11 +798,29 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure --noise with a spectrum plot", {"measure", "@rec1s.wav", "--noise", "--plot", "@made/n.svg"}, {"--plot", "no tone to mark"}},
       {"measure --noise against a stage without calibration", {"measure", "@rec1s.wav", "--noise", "--against", "@stage.toml"}, {"--output-cal", "full-scale sine"}},
       {"measure --noise with --set but no stage", {"measure", "@rec1s.wav", "--noise", "--set", "drain.resistor=4k7"}, {"--set goes with --against"}},
-      {"measure --output-cal on a tone", {"measure", "@rec1s.wav", "--output-cal", "1.55V"}, {"--output-cal goes with --noise"}},
       {"measure --output-cal of a kilovolt", {"measure", "@rec1s.wav", "--noise", "--output-cal", "1kV"}, {"--output-cal must be 1 mV to 100 V"}},
       {"measure --output-cal that is not a level", {"measure", "@rec1s.wav", "--noise", "--output-cal", "loud"}, {"--output-cal"}},
       {"measure --noise on a fifth of a second", {"measure", "@rec48.wav", "--noise"}, {"@rec48.wav", "at least 0.25 s"}},
       {"measure --noise with a bandwidth under 20 Hz", {"measure", "@rec1s.wav", "--noise", "--bandwidth", "10"}, {"--bandwidth", "above the band's low edge"}},
+      // ---- measure --steps, a span of several levels, and the calibrations (--input-cal, --output-cal)
+      {"measure a staircase as one tone", {"measure", "@stair.wav"}, {"@stair.wav", "level changes by", "several levels", "--steps"}},
+      {"measure --steps on silence", {"measure", "@silent.wav", "--steps"}, {"@silent.wav", "no step found", "0.30 s"}},
+      {"measure --steps on DC alone", {"measure", "@dc-only.wav", "--steps"}, {"@dc-only.wav", "no tone found in its loudest step"}},
+      {"measure --steps against a stage without drives", {"measure", "@stair.wav", "--steps", "--against", "@stage.toml"}, {"--steps --against needs --drive"}},
+      {"measure --steps with drives but no stage", {"measure", "@stair.wav", "--steps", "--drive", "1V"}, {"--drive and --set go with --against"}},
+      {"measure --steps with a drive for each of too few steps", {"measure", "@stair.wav", "--steps", "--against", "@stage.toml", "--drive", "10mV,20mV"}, {"--drive gives 2 levels", "holds 4 steps", "one drive a step"}},
+      {"measure --steps with a played staircase and no calibration", {"measure", "@stair.wav", "--steps", "--against", "@stage.toml", "--drive", "-30dBFS..0dBFS:10"}, {"--drive -30dBFS..0dBFS:10", "staircase", "--input-cal"}},
+      {"measure --steps with a staircase that is not levels", {"measure", "@stair.wav", "--steps", "--against", "@stage.toml", "--drive", "a..0:10", "--input-cal", "1V"}, {"--drive start 'a'", "not a level"}},
+      {"measure --steps as both JSON and CSV", {"measure", "@stair.wav", "--steps", "--json", "--csv"}, {"--json and --csv: choose one"}},
+      {"measure --csv without --steps", {"measure", "@rec1s.wav", "--csv"}, {"--csv goes with --steps"}},
+      {"measure --steps and --noise together", {"measure", "@rec1s.wav", "--steps", "--noise"}, {"--steps and --noise: choose one"}},
+      {"measure --noise with --input-cal", {"measure", "@rec1s.wav", "--noise", "--input-cal", "1V"}, {"--input-cal goes with a tone's --drive"}},
+      {"measure --noise with --csv", {"measure", "@rec1s.wav", "--noise", "--csv"}, {"--csv goes with --steps"}},
+      {"measure a drive in dBFS without --input-cal", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "-20dBFS"}, {"--drive -20dBFS", "played file", "--input-cal"}},
+      {"measure a drive above full scale", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "3dBFS", "--input-cal", "1V"}, {"--drive 3dBFS", "above full scale"}},
+      {"measure --input-cal of a kilovolt", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "-20dBFS", "--input-cal", "1kV"}, {"--input-cal must be 1 mV to 100 V", "1.00 kV"}},
+      {"measure --output-cal of a microvolt on a tone", {"measure", "@rec48.wav", "--output-cal", "1uV"}, {"--output-cal must be 1 mV to 100 V"}},
+      {"measure --steps --freq above half the rate", {"measure", "@stair.wav", "--steps", "--freq", "5k"}, {"--freq 5k", "half the file's sample rate"}},
 
       {"a bootstrap set on a common-source stage", {"bias", "@stage.toml", "--set", "gate.bootstrap=10u"}, {"gate.bootstrap", "belongs to a source follower"}},
       {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\", \"capsule\" or \"pickup\""}},
