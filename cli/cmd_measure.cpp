@@ -3,6 +3,8 @@
 #include <algorithm>
 #include <cctype>
 #include <cmath>
+#include <complex>
+#include <numbers>
 #include <cstdio>
 #include <memory>
 #include <optional>
@@ -21,11 +23,13 @@
 #include "base/error.hpp"
 #include "dsp/io/sound_file.hpp"
 #include "base/units.hpp"
+#include "dsp/exp_sweep.hpp"
 #include "dsp/level_steps.hpp"
 #include "dsp/tone.hpp"
 #include "dsp/windowed_analysis.hpp"
 #include "model/circuit/stage_file.hpp"
 #include "model/analysis/noise.hpp"
+#include "model/analysis/response.hpp"
 #include "model/analysis/sweep.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
@@ -61,6 +65,10 @@ struct measure_options {
   bool steps{false};
   bool csv{false};
   std::string input_cal_text;
+  // --response PLAYED [--sweep FROM..TO] [--points N]: a recorded sweep's linear response.
+  std::string response_path;
+  std::string sweep_text{"20..20k"};
+  int response_points{200};
 };
 
 // --noise: the readings of a recording that holds noise alone, and the stage's predicted
@@ -1160,6 +1168,244 @@ void write_steps_plot(const steps_report& r, const measure_options& o, base::out
   add_svg_output(outputs, o.plot_path, render_svg(p));
 }
 
+// ---- A frequency response from a recorded sweep (--response PLAYED)
+
+struct response_report {
+  std::string path, played_path;
+  dsp::sound_info info;
+  int channel{1};
+  dsp::exp_sweep_plan plan;
+  double delay_s{};             ///< the linear response's peak: the recording chain's latency, to the sample
+  double trusted_low_hz{}, trusted_high_hz{};
+  std::vector<double> frequency_hz;
+  std::vector<std::complex<double>> measured;  ///< recording re played file (full scale per full scale), or V/V calibrated
+  std::vector<std::vector<double>> harmonics_dbc;  ///< H2..H5 a point; NaN outside the band
+  double input_cal_vpk{0.0}, output_cal_vpk{0.0};
+  bool calibrated() const { return input_cal_vpk > 0.0 && output_cal_vpk > 0.0; }
+  double reference_hz{};  ///< uncalibrated: both curves read re their value here
+  // --against
+  std::string stage_path;
+  std::vector<std::string> overrides;
+  std::string stage_name;
+  std::vector<std::complex<double>> model;  ///< V/V at the load re the generator
+};
+
+constexpr int response_harmonics = 5;  // H2..H5 read from the sweep
+
+response_report analyse_response_recording(const measure_options& o) {
+  if (!o.drive_text.empty())
+    throw input_error("--drive goes with a tone: --response reads a recorded sweep, whose level is the played file's");
+  if (o.steps || o.noise) throw input_error("--response, --steps and --noise: choose one");
+  if (o.freq_text != "auto") throw input_error("--freq goes with a tone: a sweep covers the band given by --sweep");
+  if (o.json && o.csv) throw input_error("--json and --csv: choose one");
+  if (!o.overrides.empty() && o.against_path.empty()) throw input_error("--set goes with --against STAGE (the stage to predict)");
+  if (!(o.response_points >= 2 && o.response_points <= 2000))
+    throw input_error("--points must be 2 to 2000, got " + std::to_string(o.response_points));
+  response_report r;
+  r.path = o.path;
+  r.played_path = o.response_path;
+  r.input_cal_vpk = calibration_vpk(o.input_cal_text, "--input-cal");
+  r.output_cal_vpk = calibration_vpk(o.output_cal_text, "--output-cal");
+  if ((r.input_cal_vpk > 0.0) != (r.output_cal_vpk > 0.0))
+    throw input_error("--response compares volts only with both calibrations: --input-cal (the generator's level for a "
+                      "full-scale sine in the played file) and --output-cal (a full-scale sine's level at the recorder)");
+  const base::value_range band = base::parse_range(o.sweep_text, base::unit::hertz, "--sweep");
+  std::optional<model::stage> st;
+  if (!o.against_path.empty()) st = load_stage(o.against_path, o.overrides, o.devices);
+
+  recording_part part = open_part(o, "measure --response reads the recording from a file");
+  r.info = part.rd.info();
+  r.channel = o.channel;
+  const double fs = r.info.rate_hz;
+  part.rd.seek(part.first);
+  const std::vector<double> y = dsp::read_channel(part.rd, o.channel - 1, std::min<std::int64_t>(part.count, 2 * static_cast<std::int64_t>(dsp::max_sweep_frames)));
+
+  dsp::sound_reader played = dsp::sound_reader::open(o.response_path);
+  if (played.info().rate_hz != fs)
+    throw input_error("'" + o.response_path + "' is at " + format_number(played.info().rate_hz) + " Hz and '" + o.path + "' at " +
+                      format_number(fs) + " Hz: record at the rate the sweep was played");
+  if (played.info().frames > static_cast<std::int64_t>(dsp::max_sweep_frames))
+    throw input_error("'" + o.response_path + "' holds " + std::to_string(played.info().frames) + " frames; a sweep is at most " +
+                      std::to_string(dsp::max_sweep_frames));
+  const std::vector<double> x = dsp::read_channel(played, 0);
+  r.plan.start_hz = band.lo;
+  r.plan.end_hz = band.hi;
+  r.plan.rate_hz = fs;
+  r.plan.seconds = static_cast<double>(x.size()) / fs;
+  r.plan.level_dbfs = 0.0;     // the played file's own samples are divided out: its level is in them
+  r.plan.fade_seconds = 0.0;   // and so are its fades
+  dsp::sweep_deconvolution d;
+  try {
+    d = dsp::deconvolve_sweep(y, x, r.plan);
+  } catch (const setting_error& e) {
+    const std::string f = e.field();
+    throw input_error((f == "seconds" ? "'" + o.response_path + "' (the played sweep): " : std::string("--sweep ") + o.sweep_text + ": ") +
+                      e.what());
+  } catch (const input_error& e) {
+    throw input_error("'" + o.path + "': " + e.what());
+  }
+  r.delay_s = static_cast<double>(d.linear_index) / fs;
+  r.trusted_low_hz = d.trusted_low_hz();
+  r.trusted_high_hz = d.trusted_high_hz();
+  for (int i = 0; i < o.response_points; ++i)
+    r.frequency_hz.push_back(r.trusted_low_hz *
+                             std::pow(r.trusted_high_hz / r.trusted_low_hz, static_cast<double>(i) / (o.response_points - 1)));
+  r.measured = dsp::linear_response(d, r.frequency_hz);
+  const double scale = r.calibrated() ? r.output_cal_vpk / r.input_cal_vpk : 1.0;
+  for (std::complex<double>& v : r.measured) v *= scale;
+  r.harmonics_dbc.assign(r.frequency_hz.size(), std::vector<double>(response_harmonics - 1, std::nan("")));
+  for (int n = 2; n <= response_harmonics; ++n) {
+    const std::vector<double> h = dsp::harmonic_ratio(d, n, r.frequency_hz);
+    for (std::size_t i = 0; i < h.size(); ++i) r.harmonics_dbc[i][static_cast<std::size_t>(n - 2)] = base::db_from_ratio(h[i]);
+  }
+  // Uncalibrated, both curves are read re their value at the point nearest 1 kHz (or the band's
+  // middle, in log frequency, when 1 kHz lies outside it).
+  const double ref = r.trusted_low_hz <= 1000.0 && r.trusted_high_hz >= 1000.0 ? 1000.0 : std::sqrt(r.trusted_low_hz * r.trusted_high_hz);
+  r.reference_hz = ref;
+  if (st) {
+    r.stage_path = o.against_path;
+    r.overrides = o.overrides;
+    r.stage_name = st->name;
+    const model::network net = model::build_network(*st);
+    const model::operating_point op = model::solve_operating_point(net);
+    for (const double f : r.frequency_hz) r.model.push_back(model::response_at(net, op, f).gain);
+  }
+  return r;
+}
+
+// The magnitude in dB as reported: calibrated, the gain in dB; else re the value at the
+// point nearest the reference frequency. `curve` is the measured or the model's.
+std::vector<double> reported_db(const response_report& r, const std::vector<std::complex<double>>& curve) {
+  std::vector<double> db;
+  double ref = 1.0;
+  if (!r.calibrated()) {
+    std::size_t best = 0;
+    for (std::size_t i = 0; i < r.frequency_hz.size(); ++i)
+      if (std::fabs(std::log(r.frequency_hz[i] / r.reference_hz)) < std::fabs(std::log(r.frequency_hz[best] / r.reference_hz)))
+        best = i;
+    ref = std::abs(curve[best]);
+  }
+  for (const std::complex<double>& v : curve) db.push_back(base::db_from_ratio(std::abs(v) / ref));
+  return db;
+}
+double phase_deg(std::complex<double> v) { return std::arg(v) * 180.0 / std::numbers::pi; }
+
+void write_response_text(const response_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  out << r.path << ": " << r.info.format_text << ", "
+      << (fs == std::floor(fs) ? std::to_string(static_cast<long long>(fs)) : format_number(fs, 6)) << " Hz, "
+      << format_number(r.info.seconds(), 4) << " s, channel " << r.channel << "\n  the answer to " << r.played_path << ", a sweep "
+      << format_si(r.plan.start_hz, "Hz", 3) << " to " << format_si(r.plan.end_hz, "Hz", 3) << " in " << format_number(r.plan.seconds, 4)
+      << " s (Farina 2000: deconvolved, harmonics separated in time)\n  latency " << fixed(1000.0 * r.delay_s, 3)
+      << " ms (removed, to the sample); read from " << format_si(r.trusted_low_hz, "Hz", 3) << " to "
+      << format_si(r.trusted_high_hz, "Hz", 3) << '\n';
+  const std::vector<double> m = reported_db(r, r.measured);
+  const std::vector<double> q = r.model.empty() ? std::vector<double>{} : reported_db(r, r.model);
+  out << "\nResponse (" << (r.calibrated() ? "gain from the generator to the recorder's input, through --input-cal and --output-cal"
+                                           : "re its value at " + format_si(r.reference_hz, "Hz", 3) + "; give --input-cal and --output-cal for the gain")
+      << ")\n";
+  std::vector<std::string> head{"frequency", "magnitude", "phase", "H2", "H3"};
+  if (!r.model.empty()) {
+    head.insert(head.end(), {"model", "model phase", "difference"});
+  }
+  text_table t(std::vector<align>(head.size(), align::right));
+  t.add(head);
+  // About 24 rows: every k-th point.
+  const std::size_t every = std::max<std::size_t>(1, r.frequency_hz.size() / 24);
+  for (std::size_t i = 0; i < r.frequency_hz.size(); i += every) {
+    std::vector<std::string> row{format_si(r.frequency_hz[i], "Hz", 3), fixed(m[i], 2) + " dB", fixed(phase_deg(r.measured[i]), 1) + "°",
+                                 std::isfinite(r.harmonics_dbc[i][0]) ? fixed(r.harmonics_dbc[i][0], 1) + " dBc" : "-",
+                                 std::isfinite(r.harmonics_dbc[i][1]) ? fixed(r.harmonics_dbc[i][1], 1) + " dBc" : "-"};
+    if (!r.model.empty()) {
+      row.push_back(fixed(q[i], 2) + " dB");
+      row.push_back(fixed(phase_deg(r.model[i]), 1) + "°");
+      row.push_back(signed_db(m[i] - q[i]));
+    }
+    t.add(row);
+  }
+  t.write(out);
+  out << "  phase: referred to the impulse response's peak; a recording chain's latency that is not a whole\n"
+         "  number of samples adds up to 180 f / fs degrees ("
+      << fixed(180.0 * 1000.0 / fs, 1) << "° at 1 kHz here). H2, H3: the harmonic at the frequency\n"
+         "  played re the fundamental, \"-\" where the harmonic lies outside the band read.\n";
+  if (!r.model.empty()) {
+    out << "  model: " << r.stage_path;
+    for (const std::string& ov : r.overrides) out << " --set " << ov;
+    out << " (" << r.stage_name << "), its small-signal response at the load as `pinchoff response` gives it.\n";
+  }
+}
+
+void write_response_json(const response_report& r, std::ostream& out) {
+  const std::vector<double> m = reported_db(r, r.measured);
+  nlohmann::json pts = nlohmann::json::array();
+  for (std::size_t i = 0; i < r.frequency_hz.size(); ++i) {
+    nlohmann::json h = nlohmann::json::array();
+    for (double v : r.harmonics_dbc[i]) h.push_back(number_or_null(v));
+    pts.push_back({{"frequency_hz", r.frequency_hz[i]}, {"magnitude_db", m[i]}, {"phase_deg", phase_deg(r.measured[i])}, {"harmonics_dbc", h}});
+  }
+  nlohmann::json j{{"path", r.path},
+                   {"mode", "response"},
+                   {"played_path", r.played_path},
+                   {"rate_hz", r.info.rate_hz},
+                   {"channel", r.channel},
+                   {"sweep", {{"start_hz", r.plan.start_hz}, {"end_hz", r.plan.end_hz}, {"seconds", r.plan.seconds}}},
+                   {"latency_s", r.delay_s},
+                   {"band_hz", {r.trusted_low_hz, r.trusted_high_hz}},
+                   {"calibrated", r.calibrated()},
+                   {"points", pts}};
+  if (!r.calibrated()) j["reference_hz"] = r.reference_hz;
+  else {
+    j["input_cal_vpk"] = r.input_cal_vpk;
+    j["output_cal_vpk"] = r.output_cal_vpk;
+  }
+  if (!r.model.empty()) {
+    const std::vector<double> q = reported_db(r, r.model);
+    nlohmann::json mp = nlohmann::json::array();
+    for (std::size_t i = 0; i < r.frequency_hz.size(); ++i)
+      mp.push_back({{"frequency_hz", r.frequency_hz[i]}, {"magnitude_db", q[i]}, {"phase_deg", phase_deg(r.model[i])}});
+    j["model"] = {{"stage_path", r.stage_path}, {"overrides", r.overrides}, {"name", r.stage_name}, {"points", mp}};
+  }
+  out << json_text(j) << '\n';
+}
+
+void write_response_csv(const response_report& r, std::ostream& out) {
+  const std::vector<double> m = reported_db(r, r.measured);
+  const std::vector<double> q = r.model.empty() ? std::vector<double>{} : reported_db(r, r.model);
+  out << "frequency_hz,magnitude_db,phase_deg";
+  for (int n = 2; n <= response_harmonics; ++n) out << ",h" << n << "_dbc";
+  if (!r.model.empty()) out << ",model_magnitude_db,model_phase_deg";
+  out << '\n';
+  const auto num = [](double v) { return std::isfinite(v) ? format_number(v, 9) : std::string(); };
+  for (std::size_t i = 0; i < r.frequency_hz.size(); ++i) {
+    out << num(r.frequency_hz[i]) << ',' << num(m[i]) << ',' << num(phase_deg(r.measured[i]));
+    for (double v : r.harmonics_dbc[i]) out << ',' << num(v);
+    if (!r.model.empty()) out << ',' << num(q[i]) << ',' << num(phase_deg(r.model[i]));
+    out << '\n';
+  }
+}
+
+void write_response_plot(const response_report& r, const measure_options& o, base::output_set& outputs) {
+  line_plot p;
+  p.title = "Response of " + std::filesystem::path(o.path).filename().string() + " to " +
+            std::filesystem::path(o.response_path).filename().string();
+  p.x = axis{"frequency (Hz)", axis_scale::log10, r.trusted_low_hz, r.trusted_high_hz};
+  p.top.y = axis{r.calibrated() ? "gain (dB)" : "magnitude (dB re " + format_si(r.reference_hz, "Hz", 3) + ")", axis_scale::linear, {}, {}, false};
+  p.top.lines.push_back({"measured", r.frequency_hz, reported_db(r, r.measured), false});
+  panel ph;
+  ph.y = axis{"phase (degrees)", axis_scale::linear, -180.0, 180.0, false};
+  series mp{"measured", r.frequency_hz, {}, false};
+  for (const std::complex<double>& v : r.measured) mp.y.push_back(phase_deg(v));
+  ph.lines.push_back(std::move(mp));
+  if (!r.model.empty()) {
+    p.top.lines.push_back({"model", r.frequency_hz, reported_db(r, r.model), false});
+    series qp{"model", r.frequency_hz, {}, false};
+    for (const std::complex<double>& v : r.model) qp.y.push_back(phase_deg(v));
+    ph.lines.push_back(std::move(qp));
+  }
+  p.bottom = std::move(ph);
+  add_svg_output(outputs, o.plot_path, render_svg(p));
+}
+
 // ---- Setup: the options, their help and the worked examples.
 CLI::App* setup(CLI::App& app, measure_options& o) {
   CLI::App* sub = app.add_subcommand("measure", "Harmonics, THD, THD+N and noise of a recorded test tone");
@@ -1203,7 +1449,16 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
   sub->add_flag("--steps", o.steps,
                 "The recording holds a staircase of levels (as 'pinchoff tone --steps' writes): find each step and "
                 "measure it alone");
-  sub->add_flag("--csv", o.csv, "With --steps: one row a step as CSV, each harmonic a column");
+  sub->add_flag("--csv", o.csv, "With --steps or --response: the rows as CSV");
+  sub->add_option("--response", o.response_path,
+                  "The recording is a stage's answer to this played sweep ('pinchoff tone --sweep'): its frequency "
+                  "response by deconvolution, and its harmonics separated in time")
+      ->type_name("PLAYED");
+  sub->add_option("--sweep", o.sweep_text, "With --response: the band the played sweep covers, as given to tone --sweep")
+      ->type_name("FROM..TO")
+      ->capture_default_str();
+  sub->add_option("--points", o.response_points, "With --response: frequencies read, log-spaced over the band")
+      ->capture_default_str();
   sub->footer(
       "Examples:\n"
       "  pinchoff measure stage-out.wav\n"
@@ -1215,6 +1470,12 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       "      --drive -40dBFS..0dBFS:6 --input-cal 0.5Vpk --output-cal 1.55Vpk --plot steps.svg\n"
       "      each step beside the model at its drive: the played staircase (as given to tone --steps),\n"
       "      the generator at 0.5 V peak for a full-scale sine, the recorder's full scale 1.55 V peak\n"
+      "  pinchoff measure sweep-out.wav --response sweep.wav --sweep 20..20k --plot response.svg\n"
+      "      the answer to a played 'pinchoff tone --sweep 20..20k' sweep: magnitude and phase from\n"
+      "      28 Hz to 15.9 kHz (half an octave in from the start, a third from the end), H2..H5\n"
+      "  pinchoff measure sweep-out.wav --response sweep.wav --against presets/bass-booster-9v.toml \\\n"
+      "      --input-cal 1Vpk --output-cal 10Vpk\n"
+      "      the gain in volts beside what 'pinchoff response' predicts\n"
       "  pinchoff measure staircase-out.wav --start 4.01 --duration 1.98 --json\n"
       "      one step of a staircase by hand (tone prints where each step holds)\n"
       "  pinchoff measure booster-out.wav --against presets/bass-booster-9v.toml --drive 100mVpk\n"
@@ -1252,6 +1513,14 @@ void register_measure(CLI::App& app, std::vector<command>& commands, const data_
                           else write_noise_text(n, out);
                           return;
                         }
+                        if (!opt->response_path.empty()) {
+                          const response_report r = analyse_response_recording(*opt);
+                          if (!opt->plot_path.empty()) write_response_plot(r, *opt, outputs);
+                          if (opt->json) write_response_json(r, out);
+                          else if (opt->csv) write_response_csv(r, out);
+                          else write_response_text(r, out);
+                          return;
+                        }
                         if (opt->steps) {
                           const steps_report r = run_steps(*opt);
                           if (!opt->plot_path.empty()) write_steps_plot(r, *opt, outputs);
@@ -1269,6 +1538,7 @@ void register_measure(CLI::App& app, std::vector<command>& commands, const data_
                       [opt] {
                         command_files f;
                         f.inputs.push_back({"the recording", opt->path});
+                        if (!opt->response_path.empty()) f.inputs.push_back({"the played sweep", opt->response_path});
                         if (!opt->against_path.empty()) add_stage_inputs(f, opt->against_path, opt->devices, "the --against stage file");
                         if (!opt->plot_path.empty()) f.outputs.push_back({"--plot", opt->plot_path});
                         return f;

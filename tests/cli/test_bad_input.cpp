@@ -286,6 +286,12 @@ struct fixtures {
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "1", f("rec1s.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", "--format", "float", f("float48.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "8000", "--steps", "-30..0:10", "--step-seconds", "0.5", f("stair.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--sweep", "20..2k", "--seconds", "1", f("sweep8k.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "0.3", f("short8k.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "1.5", "--level", "-200", "--no-dither", "--format", "wav16",
+                     f("silent15.wav")})
+                .status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "263", "--format", "wav16", f("long8k.wav")}).status == 0);
     write(f("empty.wav"), "");
     {
       // A WAV header (PCM, mono, 48 kHz, 16-bit) whose data chunk holds no frames.
@@ -821,6 +827,30 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure --input-cal of a kilovolt", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "-20dBFS", "--input-cal", "1kV"}, {"--input-cal must be 1 mV to 100 V", "1.00 kV"}},
       {"measure --output-cal of a microvolt on a tone", {"measure", "@rec48.wav", "--output-cal", "1uV"}, {"--output-cal must be 1 mV to 100 V"}},
       {"measure --steps --freq above half the rate", {"measure", "@stair.wav", "--steps", "--freq", "5k"}, {"--freq 5k", "half the file's sample rate"}},
+      // ---- tone --sweep and measure --response: an exponential sweep and its deconvolution
+      {"tone --sweep that is not a range", {"tone", "--sweep", "low..high", "@t.wav"}, {"--sweep", "'low"}},
+      {"tone --sweep from 0 Hz", {"tone", "--sweep", "0..20k", "@t.wav"}, {"--sweep", "start at 1 Hz"}},
+      {"tone --sweep past half the rate", {"tone", "--sweep", "20..30k", "@t.wav"}, {"--sweep", "below half the sample rate", "24.0 kHz"}},
+      {"tone --sweep over less than two octaves", {"tone", "--sweep", "1k..2k", "@t.wav"}, {"--sweep", "two octaves"}},
+      {"tone --sweep too long", {"tone", "--sweep", "20..20k", "--seconds", "100", "@t.wav"}, {"--seconds", "0.5 s to 43.69 s"}},
+      {"tone --sweep with fades longer than a tenth", {"tone", "--sweep", "20..20k", "--seconds", "1", "--fade-ms", "200", "@t.wav"}, {"--fade-ms", "a tenth of the sweep"}},
+      {"tone --sweep above full scale", {"tone", "--sweep", "20..20k", "--level", "3", "@t.wav"}, {"3.00 dBFS", "above full scale"}},
+      {"tone --sweep with a frequency", {"tone", "--sweep", "20..20k", "--freq", "1k", "@t.wav"}, {"--freq excludes --sweep"}},
+      {"tone --sweep with --steps", {"tone", "--sweep", "20..20k", "--steps", "-20..0:10", "@t.wav"}, {"--steps excludes --sweep"}},
+      {"measure --response with a drive", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--drive", "1V"}, {"--drive goes with a tone", "--response"}},
+      {"measure --response with --steps", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--steps"}, {"--response, --steps and --noise: choose one"}},
+      {"measure --response with a frequency", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--freq", "1k"}, {"--freq goes with a tone", "--sweep"}},
+      {"measure --response as JSON and CSV", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--json", "--csv"}, {"--json and --csv: choose one"}},
+      {"measure --response with --set and no stage", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--set", "drain.resistor=4k7"}, {"--set goes with --against"}},
+      {"measure --response with one point", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--points", "1"}, {"--points must be 2 to 2000"}},
+      {"measure --response with one calibration", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--input-cal", "1V"}, {"both calibrations", "--output-cal"}},
+      {"measure --response at another rate", {"measure", "@rec48.wav", "--response", "@sweep8k.wav"}, {"@sweep8k.wav", "8000 Hz", "48000 Hz", "rate the sweep was played"}},
+      {"measure --response of a recording shorter than the sweep", {"measure", "@rec.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k"}, {"@rec.wav", "fewer than the sweep's", "whole sweep"}},
+      {"measure --response of silence", {"measure", "@silent15.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k"}, {"@silent15.wav", "no response to the sweep"}},
+      {"measure --response to a played file too short for a sweep", {"measure", "@rec.wav", "--response", "@short8k.wav", "--sweep", "20..2k"}, {"@short8k.wav", "the played sweep", "0.5 s"}},
+      {"measure --response to a played file longer than a sweep may be", {"measure", "@rec.wav", "--response", "@long8k.wav"}, {"@long8k.wav", "2104000 frames", "2097152"}},
+      {"measure --response with a band past the file's rate", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav"}, {"--sweep 20..20k", "below half the sample rate"}},
+      {"measure --response with a band of one octave", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "1k..2k"}, {"--sweep 1k..2k", "two octaves"}},
 
       {"a bootstrap set on a common-source stage", {"bias", "@stage.toml", "--set", "gate.bootstrap=10u"}, {"gate.bootstrap", "belongs to a source follower"}},
       {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\", \"capsule\" or \"pickup\""}},
