@@ -245,6 +245,7 @@ struct fixtures {
     write(f("bag.csv"), "part,vgs_v,id_a\nA,0,5m\nA,-0.5,2.8125m\nA,-1,1.25m\nB,0,4m\nB,-0.5,2.25m\nB,-1,1m\n");
     write(f("bag-emptyname.csv"), "part,vgs_v,id_a\nA,0,5m\n,-0.5,2.8m\n");
     write(f("bag-short.csv"), "part,vgs_v,id_a\nA,0,5m\nA,-0.5,2.8125m\nA,-1,1.25m\nB,0,4m\n");
+    write(f("bag-allshort.csv"), "part,vgs_v,id_a\nA,0,5m\nB,0,4m\n");
     write(f("bag-vs-both.csv"), "part,rs_ohm,vs_v,id_a\nA,100,0.3,3m\n");
     write(f("bag-vs-nors.csv"), "part,vgs_v,vs_v\nA,0,0.3\n");
     write(f("bag-vs-zero.csv"), "part,rs_ohm,vs_v\nA,0,0.3\nA,1k,1\n");
@@ -533,7 +534,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"current that hardly falls (VP runs to infinity)", {"fit", "@flat.csv"}, {"@flat.csv", "do not determine IDSS and VP"}},
       // ---- parts: a bag of parts in one CSV, the parts table, match
       {"a part's row with no name", {"fit", "@bag-emptyname.csv"}, {"@bag-emptyname.csv:3:", "'part' cell is empty"}},
-      {"a part with too few readings", {"fit", "@bag-short.csv"}, {"@bag-short.csv", "part 'B' (lines 5-5)", "too few readings"}},
+      {"a bag none of whose parts can be fitted", {"fit", "@bag-allshort.csv"}, {"@bag-allshort.csv", "no part could be fitted", "part 'A' (lines 2-2)", "part 'B' (lines 3-3)", "too few readings"}},
       {"id_a beside vs_v", {"fit", "@bag-vs-both.csv"}, {"@bag-vs-both.csv", "'id_a' or the source voltage as 'vs_v'", "not both"}},
       {"vs_v without rs_ohm", {"fit", "@bag-vs-nors.csv"}, {"@bag-vs-nors.csv", "'vs_v'", "needs 'rs_ohm'"}},
       {"vs_v over a zero source resistor", {"fit", "@bag-vs-zero.csv"}, {"@bag-vs-zero.csv:2:", "rs_ohm must be above 0 beside vs_v"}},
@@ -544,7 +545,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"match: a parts table without names", {"match", "@parts-nopart.csv"}, {"@parts-nopart.csv", "needs the columns 'part', 'idss_a' and 'vp_v'"}},
       {"match: an unknown column in a parts table", {"match", "@parts-unknown.csv"}, {"@parts-unknown.csv", "unknown column 'colour'"}},
       {"match: parts of both polarities", {"match", "@parts-mixed.csv"}, {"part 'B' is p-channel", "one polarity"}},
-      {"match: a bag part that does not fit", {"match", "@bag-short.csv"}, {"@bag-short.csv", "part 'B'", "too few readings"}},
+      {"match: a bag none of whose parts can be fitted", {"match", "@bag-allshort.csv"}, {"@bag-allshort.csv", "no part could be fitted", "too few readings"}},
       {"match: --sets of 1", {"match", "@bag.csv", "--sets", "1"}, {"--sets: ", "2 to 16", "got 1"}},
       {"match: --by of something else", {"match", "@bag.csv", "--by", "gm"}, {"--by 'gm'", "idss,vp or vgs@CURRENT"}},
       {"match: --by vgs at no current", {"match", "@bag.csv", "--by", "vgs@0"}, {"--by vgs@0", "above 0"}},
