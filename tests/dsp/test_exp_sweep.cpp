@@ -43,6 +43,12 @@ biquad rbj_highpass(double f0, double q, double fs) {
   const double a0 = 1 + alpha;
   return {(1 + c) / 2 / a0, -(1 + c) / a0, (1 + c) / 2 / a0, -2 * c / a0, (1 - alpha) / a0};
 }
+// A first-order RC high-pass (a coupling capacitor into its load) by the bilinear transform,
+// k = tan(pi fc / fs): H(z) = (1 - z^-1) / ((1 + k) + (k - 1) z^-1).
+biquad rc_highpass(double fc, double fs) {
+  const double k = std::tan(std::numbers::pi * fc / fs);
+  return {1 / (1 + k), -1 / (1 + k), 0, (k - 1) / (k + 1), 0};
+}
 std::vector<double> log_points(double lo, double hi, int n) {
   std::vector<double> f;
   for (int i = 0; i < n; ++i) f.push_back(lo * std::pow(hi / lo, i / (n - 1.0)));
@@ -63,7 +69,8 @@ TEST_CASE("a sweep through an RBJ biquad gives the biquad's closed-form response
   };
   const row rows[] = {{"RBJ cookbook peaking EQ, 1 kHz, Q 1, +6 dB", rbj_peaking(1000, 1, 6, fs)},
                       {"RBJ cookbook peaking EQ, 200 Hz, Q 4, -9 dB", rbj_peaking(200, 4, -9, fs)},
-                      {"RBJ cookbook high-pass, 80 Hz, Q 0.7071", rbj_highpass(80, 0.7071, fs)}};
+                      {"RBJ cookbook high-pass, 80 Hz, Q 0.7071", rbj_highpass(80, 0.7071, fs)},
+                      {"first-order RC high-pass, 50 Hz, bilinear transform", rc_highpass(50, fs)}};
   for (const row& r : rows) {
     CAPTURE(r.source);
     std::vector<double> padded = x;

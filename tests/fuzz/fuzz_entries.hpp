@@ -20,6 +20,7 @@
 #include "base/csv.hpp"
 #include "base/error.hpp"
 #include "dsp/io/sound_file.hpp"
+#include "dsp/exp_sweep.hpp"
 #include "dsp/level_steps.hpp"
 #include "base/units.hpp"
 #include "cli/option_text.hpp"
@@ -334,6 +335,24 @@ inline outcome sound_entry(std::span<const std::byte> bytes) {
     }
     const double spread = dsp::level_spread_db(x, info.rate_hz);
     detail::require(std::isfinite(spread) && spread >= 0.0, "level_spread_db returned a spread that is not a finite, non-negative dB figure");
+    // measure --response: the file deconvolved by itself as the played sweep (a band of two
+    // octaves below a quarter of its rate), when it is long enough to be one and short
+    // enough to keep the run quick; refused or an impulse response of finite samples.
+    if (info.rate_hz >= 64.0 && static_cast<double>(x.size()) >= 0.5 * info.rate_hz && x.size() <= (std::size_t{1} << 15)) {
+      dsp::exp_sweep_plan plan;
+      plan.rate_hz = info.rate_hz;
+      plan.start_hz = std::max(1.0, info.rate_hz / 64.0);
+      plan.end_hz = info.rate_hz / 4.0;
+      plan.seconds = static_cast<double>(x.size()) / info.rate_hz;
+      plan.level_dbfs = 0.0;
+      plan.fade_seconds = 0.0;
+      try {
+        const dsp::sweep_deconvolution d = dsp::deconvolve_sweep(x, x, plan);
+        for (double v : d.h) detail::require(std::isfinite(v), "deconvolve_sweep returned a sample that is not finite");
+      } catch (const setting_error&) {
+      } catch (const input_error&) {
+      }
+    }
     return outcome::accepted;
   } catch (const input_error& e) {
     detail::require(std::string_view(e.what()).find("fuzz.wav") != std::string_view::npos,
