@@ -31,6 +31,16 @@
 // q_k (q_{k,n} = 2 v_{k,n} - q_{k,n-1}). At DC (no capacitor current) q_k equals the
 // capacitor voltage, so the states are volts and start at the DC operating point.
 //
+// The solvers carry x, i, u and y as offsets from the DC point (x_dc, the states of the
+// DC operating point; i_dc, the device currents there; the supply): the update computes
+// x_n - x_dc = A (x_{n-1} - x_dc) + B (u_n - u_dc) + C (i_n - i_dc), which is the same
+// equation in exact arithmetic (x_dc = A x_dc + B u_dc + C i_dc at DC), but makes x_dc an
+// exact fixed point of the update as computed. Carried as absolute values, the DC point of
+// the rounded matrices lies off the network's: where a slow state (100 MΩ and 1 µF, a
+// time constant of 3.8e7 samples) holds a volt of DC, I - A has an eigenvalue near 5e-8,
+// and rounding of 1e-16 in A, B, C moved the engine's DC by several nanovolts from the
+// reference solver's. Offsets also keep the sums small at rest, so their rounding is.
+//
 // Everything inside is the n-channel network frame (model/circuit/network.hpp); the engine's
 // inputs and outputs are real (bench) signs: network u = sign * real u, real y = sign * y.
 #include <cstddef>

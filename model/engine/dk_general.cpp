@@ -488,8 +488,9 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     g.skip_t += fa * (2.02 * dv.is_a * std::exp(dv.skip_arg));
   }
 
-  // DC point: states from the operating point, then the shared refinement on the engine's
-  // own fixed-point equations (detail::refine_dc_point).
+  // DC point: states from the operating point, the port voltages refined on the engine's
+  // own port equations (detail::refine_dc_ports); the states are carried as offsets from
+  // these (dk_engine.hpp says why).
   const Eigen::Vector2d u(supply_v_, 0.0);
   Eigen::VectorXd q = dc_states(net, op.x);
   Eigen::VectorXd v(np);
@@ -498,11 +499,12 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     v[2 * j] = node_v(op.x, d.gate) - node_v(op.x, d.source);
     v[2 * j + 1] = node_v(op.x, d.drain) - node_v(op.x, d.source);
   }
-  detail::refine_dc_point(m_, g.dev, supply_v_, q, v);
+  detail::refine_dc_ports(m_, g.dev, supply_v_, q, v);
   x_dc_ = q;
   point_general(v, g.dc);
   g.p_dc = m_.d * q + m_.e * u;
-  y_dc_ = sign_ * (m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(g.dc.i));
+  g.y_dc = m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(g.dc.i);
+  y_dc_ = sign_ * g.y_dc;
   reset();
 }
 
@@ -526,8 +528,8 @@ void general_solver::point_general(const Eigen::VectorXd& v, port_set& out) noex
 
 void general_solver::reset() {
   storage& g = g_;
-  inputs_at_dc(g.dc.i);
-  g.q.noalias() = m_.d * x_dc_;
+  inputs_at_dc(g.dc.i.size());
+  g.q.setZero();
   for (port_set& s : g.ring) s = g.dc;
   g.head = 0;
   g.p_last = g.p_dc;
@@ -535,8 +537,8 @@ void general_solver::reset() {
 }
 
 void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
-  in_.head(m_.states) = x;
-  g_.q.noalias() = m_.d * x;
+  in_.head(m_.states) = x - x_dc_;
+  g_.q.noalias() = m_.d * in_.head(m_.states);
 }
 
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
@@ -781,8 +783,8 @@ double general_solver::process_k(double generator_v) noexcept {
     update_before_portable(g.w.data(), rows, in_.data(), ns + 2, g.pre.data());
   Eigen::Map<vec_p> p(g.p.data(), np), q(g.q.data(), np), p_last(g.p_last.data(), np), dp(g.dp.data(), np),
       guess(g.guess.data(), np);
-  const Eigen::Map<const vec_p> e0(m_.e.col(0).data(), np), e1(m_.e.col(1).data(), np);
-  p = q + e0 * supply_v_ + e1 * ug;
+  const Eigen::Map<const vec_p> p_dc(g.p_dc.data(), np), e1(m_.e.col(1).data(), np);
+  p = p_dc + q + e1 * ug;
 
   // Warm start as for one JFET: the last solution moved along the step of p by dv/dp at
   // the last three samples (Adams-Bashforth weights warm_; dk_single.cpp, step_t).
@@ -808,18 +810,19 @@ double general_solver::process_k(double generator_v) noexcept {
   g.head = (g.head + 1) & 3;
   p_last = p;
 
-  // The current columns of W times i, onto the pre-computed part.
+  // The current columns of W times i - i_dc, onto the pre-computed part.
   {
+    double* __restrict x_in = in_.data();
+    const double* __restrict i_dc = g.dc.i.data();
+    for (int c = 0; c < ni; ++c) x_in[ns + 2 + c] = g.last().i[c] - i_dc[c];
     const double* w_i = g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows;
 #if PINCHOFF_DK_GENERAL_WIDE
     if (wide_)
-      update_wide(w_i, rows, g.pre.data(), g.last().i.data(), ni, g.out.data());
+      update_wide(w_i, rows, g.pre.data(), x_in + ns + 2, ni, g.out.data());
     else
 #endif
-      update_after_portable(w_i, rows, g.pre.data(), g.last().i.data(), ni, g.out.data());
-    double* __restrict x_in = in_.data();
+      update_after_portable(w_i, rows, g.pre.data(), x_in + ns + 2, ni, g.out.data());
     const double* __restrict o = g.out.data();
-    for (int c = 0; c < ni; ++c) x_in[ns + 2 + c] = g.last().i[c];
     for (int row = 0; row < ns; ++row) x_in[row] += o[row];
   }
   q = Eigen::Map<const vec_p>(g.out.data() + ns, np);
@@ -827,7 +830,7 @@ double general_solver::process_k(double generator_v) noexcept {
   ++stats_.samples;
   stats_.evaluations += evals;
   stats_.max_evaluations = std::max(stats_.max_evaluations, evals);
-  return sign_ * g.out.data()[ns + np];
+  return sign_ * (g.y_dc + g.out.data()[ns + np]);
 }
 
 // One block: the number of JFETs is dispatched once, then the samples in turn.

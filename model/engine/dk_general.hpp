@@ -52,7 +52,8 @@ class general_solver : public dk_solver_base {
     detail::aligned_doubles w;
     detail::aligned_doubles pre, out;           // W's x and u columns times [x; u]; the product
     int rows{0};
-    Eigen::VectorXd q, p, p_last, p_dc, dp;
+    Eigen::VectorXd q, p, p_last, p_dc, dp;     // q: D times the states' offset from DC; p_dc: D x_dc + E u_dc
+    double y_dc{0};                             // the output at the DC point, network frame
     Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
     Eigen::VectorXd allowed, mag;               // the acceptance's rounding: per row, per current
     // The accepted points of the last three samples and the one being solved, in a ring:

@@ -158,7 +158,9 @@ single_solver::single_solver(const network& net, const operating_point& op, dk_m
     w_ = detail::aligned_doubles(static_cast<std::size_t>(w.size()));
     std::copy_n(w.data(), w.size(), w_.data());
     w_const_ = detail::aligned_doubles(static_cast<std::size_t>(rows));
-    Eigen::Map<Eigen::VectorXd>(w_const_.data(), rows) = w.col(ns) * supply_v_;
+    // The states and currents are carried as offsets from the DC point, where the supply
+    // does not change: its column adds nothing.
+    Eigen::Map<Eigen::VectorXd>(w_const_.data(), rows).setZero();
   }
   in_ = Eigen::VectorXd::Zero(ns + 5);
   out_ = Eigen::VectorXd::Zero(rows);
@@ -167,19 +169,20 @@ single_solver::single_solver(const network& net, const operating_point& op, dk_m
   cj_.resize(ns, 2);
   md_.resize(2, ns);
 
-  // DC point: states from the operating point, then the shared refinement on the engine's
-  // own fixed-point equations (detail::refine_dc_point), with the device as this loop
-  // evaluates it (its skip_arg).
+  // DC point: states from the operating point, the port voltages refined on the engine's
+  // own port equations (detail::refine_dc_ports), with the device as this loop evaluates
+  // it (its skip_arg); the states are carried as offsets from these (dk_engine.hpp).
   Eigen::VectorXd q = dc_states(net, op.x);
   const net_jfet& jf0 = net.jfet();
   Eigen::VectorXd v(2);
   v << node_v(op.x, jf0.gate) - node_v(op.x, jf0.source), node_v(op.x, jf0.drain) - node_v(op.x, jf0.source);
-  detail::refine_dc_point(m_, {&dev_, 1}, supply_v_, q, v);
+  detail::refine_dc_ports(m_, {&dev_, 1}, supply_v_, q, v);
   const Eigen::Vector2d u(supply_v_, 0.0);
   x_dc_ = q;
   dc_point_ = point_at(v);
   p_dc_ = m_.d * q + e1_ * u;
-  y_dc_ = sign_ * (m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(dc_point_.i));
+  y_dc_net_ = m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(dc_point_.i);
+  y_dc_ = sign_ * y_dc_net_;
   reset();
 }
 
@@ -195,8 +198,8 @@ single_solver::port_point single_solver::point_at(const Eigen::Vector2d& v) cons
 }
 
 void single_solver::reset() {
-  inputs_at_dc(dc_point_.i);
-  ls_.q = m_.d * x_dc_;
+  inputs_at_dc(3);
+  ls_.q.setZero();
   ls_.last = dc_point_;
   ls_.p_last = p_dc_;
   ls_.m_prev = dc_point_.m;
@@ -205,8 +208,8 @@ void single_solver::reset() {
 }
 
 void single_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
-  in_.head(m_.states) = x;
-  ls_.q = m_.d * x;
+  in_.head(m_.states) = x - x_dc_;
+  ls_.q = m_.d * in_.head(m_.states);
 }
 
 // An accepted point, element by element (no comma initialiser: a call the wide block loops,
@@ -429,7 +432,7 @@ __attribute__((always_inline)) inline int single_solver::step_t(loop_state& s, d
   } else {
     update_before_fixed<NS>(w_.data(), w_const_.data(), xin, pre, ns);
   }
-  const Eigen::Vector2d p = s.q + e1_.col(0) * supply_v_ + e1_.col(1) * ug;
+  const Eigen::Vector2d p = p_dc_ + s.q + e1_.col(1) * ug;
 
   // Warm start: in the DK form v = v(p) is a static map (the port equations at the new p),
   // solved at the last sample for p_last, where last.m = dv/dp. Along the step dl to the
@@ -475,9 +478,9 @@ __attribute__((always_inline)) inline int single_solver::step_t(loop_state& s, d
 
   s.p_last = p;
 
-  xin[ns + 2] = pt.i[0];
-  xin[ns + 3] = pt.i[1];
-  xin[ns + 4] = pt.i[2];
+  xin[ns + 2] = pt.i[0] - dc_point_.i[0];
+  xin[ns + 3] = pt.i[1] - dc_point_.i[1];
+  xin[ns + 4] = pt.i[2] - dc_point_.i[2];
   if constexpr (NS == 0) {
     update_after_dynamic(w_.data(), xin, pre, outv, ns);
   } else if constexpr (Wide) {
@@ -489,7 +492,7 @@ __attribute__((always_inline)) inline int single_solver::step_t(loop_state& s, d
   }
   s.q[0] = outv[ns];
   s.q[1] = outv[ns + 1];
-  y = sign_ * outv[ns + 2];
+  y = sign_ * (y_dc_net_ + outv[ns + 2]);
   return evals;
 }
 

@@ -128,17 +128,19 @@ class single_solver : public dk_solver_base {
   Eigen::Matrix2d e1_;
   Eigen::Matrix<double, 2, 3> f_abs_;
   Eigen::Array2d skip_t_{Eigen::Array2d::Zero()};  // bound on what skipped junction exponentials leave out, per port row
-  // Stacked update: [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n], ns + 3 rows, ns + 5 cols.
+  // Stacked update: [x_n - x_{n-1}; D x_n; y_n] = W [x_{n-1}; u_n; i_n], ns + 3 rows, ns + 5
+  // cols, every x, u, i and y taken as its offset from the DC point.
   detail::aligned_doubles w_;       // column-major, rows padded to whole packets (zero rows)
   Eigen::VectorXd out_;             // the product
   Eigen::VectorXd pre_;             // W's x and u columns times [x; u]
-  detail::aligned_doubles w_const_;  // W's supply column times the supply (constant)
+  detail::aligned_doubles w_const_;  // a constant term of the update: 0 (the inputs are offsets from DC)
   loop_state ls_;
   // Warm start: weights of dv/dp at the last three samples (Adams-Bashforth of order
   // predictor_order; detail::warm_start_weights).
   std::array<double, 3> warm_{};
   port_point dc_point_;
-  Eigen::Vector2d p_dc_{Eigen::Vector2d::Zero()};
+  Eigen::Vector2d p_dc_{Eigen::Vector2d::Zero()};  // D x_dc + E u_dc
+  double y_dc_net_{0};                             // the output at the DC point, network frame
   // Scratch for track().
   Eigen::Matrix<double, Eigen::Dynamic, 2> cj_;
   Eigen::Matrix<double, 2, Eigen::Dynamic> md_;

@@ -28,22 +28,20 @@ class dk_solver_base {
   const Eigen::VectorXd& dc_state() const noexcept { return x_dc_; }
   /// Output (real volts) the DC state gives with the generator at 0 V.
   double dc_output_v() const noexcept { return y_dc_; }
-  /// The state vector.
-  Eigen::VectorXd state() const { return in_.head(m_.states); }
+  /// The state vector (volts; the solvers carry it as its offset from dc_state()).
+  Eigen::VectorXd state() const { return x_dc_ + in_.head(m_.states); }
 
  protected:
   /// Takes the matrices, checks the options (internal_error naming the field) and reads the
   /// network's sign and supply.
   dk_solver_base(dk_matrices m, const dk_options& opt, const network& net);
 
-  /// [x; u; i] at the DC operating point, with the device currents i_dc there (3k).
-  void inputs_at_dc(const Eigen::Ref<const Eigen::VectorXd>& i_dc) {
-    const int ns = m_.states;
-    in_.resize(ns + 2 + i_dc.size());
-    in_.head(ns) = x_dc_;
-    in_[ns] = supply_v_;
-    in_[ns + 1] = 0.0;
-    in_.tail(i_dc.size()) = i_dc;
+  /// [x; u; i] at the DC operating point, as the solvers carry them: offsets from the DC
+  /// point (x - x_dc; the supply's offset, always 0, and the generator; i - i_dc for the
+  /// 3k device currents), so all zero. The offsets keep the DC point an exact fixed point
+  /// of the update as computed (the engine's file comment says why).
+  void inputs_at_dc(Eigen::Index currents) {
+    in_.setZero(m_.states + 2 + currents);
   }
 
   /// sensitivity <- (A + cj md) sensitivity, with cj = C Jf and md = M D at the converged
@@ -63,7 +61,7 @@ class dk_solver_base {
   Eigen::VectorXd x_dc_;
   double y_dc_{0};
   dk_stats stats_;
-  Eigen::VectorXd in_;              // [x; u; i]: states, supply and generator, device currents
+  Eigen::VectorXd in_;              // [x; u; i] - their DC values: states, supply and generator, device currents
   Eigen::MatrixXd phi_, tmp_;       // apply_factor's scratch (ns x ns)
 };
 

@@ -33,16 +33,14 @@ std::array<double, 3> warm_start_weights(int order) noexcept {
   return {ab[o][0], ab[o][1], ab[o][2]};
 }
 
-void refine_dc_point(const dk_matrices& m, std::span<const device_consts> devs, double supply_v, Eigen::VectorXd& q,
-                     Eigen::VectorXd& v) {
-  const int ns = m.states, k = static_cast<int>(devs.size()), np = 2 * k, ni = 3 * k;
+void refine_dc_ports(const dk_matrices& m, std::span<const device_consts> devs, double supply_v,
+                     const Eigen::VectorXd& q, Eigen::VectorXd& v) {
+  const int k = static_cast<int>(devs.size()), np = 2 * k, ni = 3 * k;
   const Eigen::Vector2d u(supply_v, 0.0);
-  const Eigen::MatrixXd a_minus_i = m.a - Eigen::MatrixXd::Identity(ns, ns);
-  Eigen::VectorXd qp = q, vp = v;
+  const Eigen::VectorXd p = m.d * q + m.e * u;
+  Eigen::VectorXd vp = v;
   Eigen::VectorXd i(ni);
   Eigen::MatrixXd jf = Eigen::MatrixXd::Zero(ni, np);
-  Eigen::MatrixXd jac(ns + np, ns + np);
-  Eigen::VectorXd res(ns + np);
   bool ok = false;
   for (int it = 0; it < 20; ++it) {
     for (int j = 0; j < k; ++j) {
@@ -51,27 +49,19 @@ void refine_dc_point(const dk_matrices& m, std::span<const device_consts> devs, 
       // JFET j's 3x2 block of the block-diagonal Jf: rows igs, igd, id; columns vgs, vds.
       jf.block<3, 2>(3 * j, 2 * j) << c.ggs_s, 0.0, c.ggd_s, -c.ggd_s, c.gm_s, c.gds_s;
     }
-    res.head(ns) = a_minus_i * qp + m.b * u + m.c * i;
-    res.tail(np) = m.d * qp + m.e * u + m.f * i - vp;
-    jac.topLeftCorner(ns, ns) = a_minus_i;
-    jac.topRightCorner(ns, np) = m.c * jf;
-    jac.bottomLeftCorner(np, ns) = m.d;
-    jac.bottomRightCorner(np, np) = m.f * jf - Eigen::MatrixXd::Identity(np, np);
+    const Eigen::VectorXd res = p + m.f * i - vp;
+    const Eigen::MatrixXd jac = m.f * jf - Eigen::MatrixXd::Identity(np, np);
     const Eigen::FullPivLU<Eigen::MatrixXd> lu(jac);
     if (!lu.isInvertible()) break;
     const Eigen::VectorXd delta = lu.solve(-res);
     if (!delta.allFinite()) break;
-    qp += delta.head(ns);
-    vp += delta.tail(np);
-    if (max_abs(delta) <= 1e-15 * (1.0 + max_abs(qp) + max_abs(vp))) {
+    vp += delta;
+    if (max_abs(delta) <= 1e-15 * (1.0 + max_abs(vp))) {
       ok = true;
       break;
     }
   }
-  if (ok && max_abs(qp - q) <= 1e-6 && max_abs(vp - v) <= 1e-6) {
-    q = qp;
-    v = vp;
-  }
+  if (ok && max_abs(vp - v) <= 1e-6) v = vp;
 }
 
 double junction_step_scale(const device_consts& d, double v0, double v1, double d0, double d1) noexcept {

@@ -24,15 +24,15 @@ void check_options(const dk_options& opt);
 /// Wanner, Solving ODEs I, sec. III.1, from memory).
 std::array<double, 3> warm_start_weights(int order) noexcept;
 
-/// The start point at the DC operating point: from the states q and port voltages v (2k)
-/// of a DC network solution, a few Newton steps on the engine's own fixed-point equations
-///   q = A q + B u + C i(v),   v = D q + E u + F i(v),   u = [supply_v, 0],
-/// so that silence in gives exactly constant samples out. Only rounding is to be removed:
-/// q and v are left as they are when the steps do not converge or move either by more
-/// than 1e-6 V (the equations then disagree). `devs` holds the k devices as the solver
-/// evaluates them.
-void refine_dc_point(const dk_matrices& m, std::span<const device_consts> devs, double supply_v, Eigen::VectorXd& q,
-                     Eigen::VectorXd& v);
+/// The port voltages of the DC operating point as the engine computes them: from the DC
+/// states q (taken as they are) and port voltages v (2k) of a DC network solution, a few
+/// Newton steps on the engine's port equations v = D q + E u + F i(v), u = [supply_v, 0],
+/// with the devices as the solver evaluates them. Only rounding is to be removed: v is left
+/// as it is when the steps do not converge or move it by more than 1e-6 V. The states are
+/// not refined: the solvers carry them as offsets from q, which makes q an exact fixed point
+/// of the update (the engine's file comment says why).
+void refine_dc_ports(const dk_matrices& m, std::span<const device_consts> devs, double supply_v,
+                     const Eigen::VectorXd& q, Eigen::VectorXd& v);
 
 /// Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim, model/device/jfet.hpp
 /// limit_junction) of a Newton step (d0, d1) from the port point (v0, v1) of device d: the

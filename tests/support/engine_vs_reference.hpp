@@ -29,10 +29,9 @@ struct side_by_side {
 };
 
 // Both start from the DC point, polished to the reference's own step tolerance (1e-10 V +
-// 1e-12 |v|; the DC solve stops at 1e-9 V + 1e-9 |v|): the engine refines its start on its
-// own equations (detail::refine_dc_point), the reference starts where it is given, so a
-// coarser start showed as a difference of up to 3e-9 V from the first sample on some
-// random chains, a difference of DC solves, not of the transient solvers compared here.
+// 1e-12 |v|; the DC solve stops at 1e-9 V + 1e-9 |v|): both take the states as they are
+// given (the engine refines only its port voltages, detail::refine_dc_ports), so a coarser
+// start would show as a difference of DC solves, not of the transient solvers compared here.
 inline side_by_side engine_against_reference(const model::network& net, double amp, double f_hz, int samples,
                                              double fs_hz, const model::dk_options& opt = {}) {
   model::operating_point op = model::solve_operating_point(net);

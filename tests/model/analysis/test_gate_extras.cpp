@@ -196,17 +196,27 @@ TEST_CASE("bootstrap, feedback and gate leakage in the DK engine: the reference 
   // Both solvers discretise the same network with the trapezoidal rule; the bootstrap
   // capacitor is one more state, the feedback resistor one more conductance, and a gate's
   // reverse leakage a constant current in the gate-source junction of both.
-  // The leakage case: 10 nA (a hot part) leaves a DC-coupled gate through a 10 MΩ source
-  // and a 100 MΩ gate resistor in parallel, lifting it by 91 mV. (Behind a coupling
-  // capacitor, a gate on a 100 MΩ resistor holds a state with a 100 s time constant, and
-  // there the engine's DC point parts from the exact one by about 2e-9 V with any DC
-  // across the resistor, leakage or a divider alike: a conditioning matter of the
-  // discretised state update, not of the leakage.)
+  // The leakage cases: 10 nA (a hot part) leaves a DC-coupled gate through a 10 MΩ source
+  // and a 100 MΩ gate resistor in parallel, lifting it by 91 mV; and the same leakage on a
+  // gate behind 1 µF on 100 MΩ, lifting it by 1 V. With it, a gate held at 1 V by a 1 GΩ
+  // divider behind 1 µF, no leakage. Behind the capacitor, the gate resistor holds a state
+  // with a 100 s time constant (3.8e7 samples) and a volt of DC across it, where an engine
+  // carrying its states as absolute values parts from the exact DC point by 2-8e-9 V
+  // (rounding of 1e-16 amplified by 1/(1 - 5e-8)); the offsets from the DC point the engine
+  // carries keep it there (model/engine/dk_engine.hpp).
   const std::string leaky =
       "topology = \"source-follower\"\n[supply]\nvolts = 12\n[signal]\nimpedance = \"10M\"\n[jfet]\nidss = \"4m\"\n"
       "vp = -2\nis = 0\nlambda = 0.01\ngate_leakage = \"10n\"\n[gate]\nresistor = \"100M\"\n[source]\nresistor = \"2.2k\"\n";
+  const std::string leaky_behind_cap =
+      "topology = \"source-follower\"\n[supply]\nvolts = 12\n[signal]\nimpedance = \"10k\"\n[jfet]\nidss = \"4m\"\n"
+      "vp = -2\nis = 0\nlambda = 0.01\ngate_leakage = \"10n\"\n[gate]\ncoupling_cap = \"1u\"\nresistor = \"100M\"\n"
+      "[source]\nresistor = \"2.2k\"\n";
+  const std::string divider_behind_cap =
+      "topology = \"source-follower\"\n[supply]\nvolts = 12\n[signal]\nimpedance = \"10k\"\n[jfet]\nidss = \"4m\"\n"
+      "vp = -2\nlambda = 0.01\n[gate]\ncoupling_cap = \"1u\"\nbias_top = \"11G\"\nbias_bottom = \"1G\"\n"
+      "[source]\nresistor = \"2.2k\"\n";
   const std::string rows[]{follower(1e6, "bias_bottom = \"100k\"\n", "bootstrap = \"10u\"\n", 0.01),
-                           feedback_stage(2.2e6, 0.01), leaky};
+                           feedback_stage(2.2e6, 0.01), leaky, leaky_behind_cap, divider_behind_cap};
   for (const std::string& text : rows) {
     const network net = build_network(test::stage_from(text));
     for (const double amp : {0.05, 3.0}) {
