@@ -748,6 +748,8 @@ void write_plot(const measure_report& r, const measure_options& o, base::output_
 
 measure_report run(const measure_options& o) {
   if (o.csv) throw input_error("--csv goes with --steps (one row a step); a single tone's report is --json");
+  if (!o.input_cal_text.empty() && o.against_path.empty())
+    throw input_error("--input-cal goes with --against and its --drive: it makes drives in dBFS of the played file volts");
   const double output_cal = calibration_vpk(o.output_cal_text, "--output-cal");
   std::optional<prediction> against = load_against(o);
   measure_report r = analyse(o);
@@ -938,6 +940,8 @@ void predict_steps(steps_report& r, const measure_options& o) {
 
 steps_report run_steps(const measure_options& o) {
   if (o.json && o.csv) throw input_error("--json and --csv: choose one");
+  if (!o.input_cal_text.empty() && o.against_path.empty())
+    throw input_error("--input-cal goes with --against and its --drive: it makes drives in dBFS of the played file volts");
   if (!o.drive_text.empty() && o.against_path.empty())
     throw input_error("--drive and --set go with --against STAGE (the stage to predict)");
   if (!o.against_path.empty() && o.drive_text.empty())

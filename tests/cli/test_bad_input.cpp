@@ -826,6 +826,8 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure a drive in dBFS without --input-cal", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "-20dBFS"}, {"--drive -20dBFS", "played file", "--input-cal"}},
       {"measure a drive above full scale", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "3dBFS", "--input-cal", "1V"}, {"--drive 3dBFS", "above full scale"}},
       {"measure --input-cal of a kilovolt", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "-20dBFS", "--input-cal", "1kV"}, {"--input-cal must be 1 mV to 100 V", "1.00 kV"}},
+      {"measure --input-cal without a stage", {"measure", "@rec48.wav", "--input-cal", "1V"}, {"--input-cal goes with --against"}},
+      {"measure --steps --input-cal without a stage", {"measure", "@stair.wav", "--steps", "--input-cal", "1V"}, {"--input-cal goes with --against"}},
       {"measure --output-cal of a microvolt on a tone", {"measure", "@rec48.wav", "--output-cal", "1uV"}, {"--output-cal must be 1 mV to 100 V"}},
       {"measure --steps --freq above half the rate", {"measure", "@stair.wav", "--steps", "--freq", "5k"}, {"--freq 5k", "half the file's sample rate"}},
       // ---- tone --sweep and measure --response: an exponential sweep and its deconvolution
