@@ -1426,7 +1426,10 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       ->capture_default_str();
   sub->add_option("--start", o.start_s, "Skip this many seconds at the start")->type_name("SECONDS");
   sub->add_option("--duration", o.duration_s, "Analyse this many seconds (default: to the end)")->type_name("SECONDS");
-  sub->add_option("--plot", o.plot_path, "Write the spectrum with the harmonics marked as SVG")->type_name("FILE.svg");
+  sub->add_option("--plot", o.plot_path,
+                  "Write the spectrum with the harmonics marked as SVG (with --steps: THD, H2 and H3 against the "
+                  "step's level; with --response: magnitude and phase against frequency)")
+      ->type_name("FILE.svg");
   sub->add_flag("--json", o.json, "Machine-readable output (keys carry their unit as a suffix)");
   sub->add_option("--against", o.against_path, "Stage file (TOML) whose prediction is shown beside the measurement")
       ->type_name("STAGE");
