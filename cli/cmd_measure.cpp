@@ -1395,16 +1395,24 @@ void write_response_plot(const response_report& r, const measure_options& o, bas
   p.x = axis{"frequency (Hz)", axis_scale::log10, r.trusted_low_hz, r.trusted_high_hz};
   p.top.y = axis{r.calibrated() ? "gain (dB)" : "magnitude (dB re " + format_si(r.reference_hz, "Hz", 3) + ")", axis_scale::linear, {}, {}, false};
   p.top.lines.push_back({"measured", r.frequency_hz, reported_db(r, r.measured), false});
+  // The phase drawn continuous (each step taken within +-180 degrees), from its value at the
+  // lowest frequency: an inverting stage's phase near 180 degrees would otherwise jump
+  // between +180 and -180 across the band.
+  const auto unwrapped = [](const std::vector<std::complex<double>>& curve) {
+    std::vector<double> deg;
+    for (const std::complex<double>& v : curve) {
+      double d = phase_deg(v);
+      if (!deg.empty()) d -= 360.0 * std::round((d - deg.back()) / 360.0);
+      deg.push_back(d);
+    }
+    return deg;
+  };
   panel ph;
-  ph.y = axis{"phase (degrees)", axis_scale::linear, -180.0, 180.0, false};
-  series mp{"measured", r.frequency_hz, {}, false};
-  for (const std::complex<double>& v : r.measured) mp.y.push_back(phase_deg(v));
-  ph.lines.push_back(std::move(mp));
+  ph.y = axis{"phase (degrees)", axis_scale::linear, {}, {}, false};
+  ph.lines.push_back({"measured", r.frequency_hz, unwrapped(r.measured), false});
   if (!r.model.empty()) {
     p.top.lines.push_back({"model", r.frequency_hz, reported_db(r, r.model), false});
-    series qp{"model", r.frequency_hz, {}, false};
-    for (const std::complex<double>& v : r.model) qp.y.push_back(phase_deg(v));
-    ph.lines.push_back(std::move(qp));
+    ph.lines.push_back({"model", r.frequency_hz, unwrapped(r.model), false});
   }
   p.bottom = std::move(ph);
   add_svg_output(outputs, o.plot_path, render_svg(p));
