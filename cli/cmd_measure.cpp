@@ -114,6 +114,8 @@ struct measure_report {
   std::optional<dsp::display_spectrum> spectrum;  // with --plot
   std::optional<prediction> against;
   double output_cal_vpk{0.0};  ///< --output-cal: a full-scale sine's peak volts at the recorder; 0: not given
+  double noise_line_dbc{};     ///< what the noise alone reads as a line (noise_line_dbc)
+  std::vector<bool> noise_flags;  ///< each harmonic at that floor
 };
 
 dsp::window_kind parse_window(const std::string& t) {
@@ -195,6 +197,33 @@ std::vector<double> step_drives_vpk(const std::string& text, double input_cal_vp
   }
   for (double v : d) check_drive_range(v);
   return d;
+}
+
+// ---- The noise floor under a harmonic
+
+// A measured harmonic within this of the noise in the window's bandwidth reads the noise as
+// much as the line (common practice: 10 dB above the noise for a reading within 0.4 dB).
+constexpr double noise_floor_margin_db = 10.0;
+
+// The level, re the fundamental, that the record's noise alone gives a line read under the
+// window: the noise density (dBc/Hz) over the window's equivalent noise bandwidth, ENBW
+// bins of fs / n (Harris 1978).
+double noise_line_dbc(const dsp::windowed_analysis& a, dsp::window_kind window, double fs_hz, std::size_t n) {
+  const double enbw = dsp::enbw_bins(dsp::make_window(window, 4096));  // in bins, the same at any length to 1e-3
+  return a.noise_floor_dbc_per_hz + 10.0 * std::log10(enbw * fs_hz / static_cast<double>(n));
+}
+
+// Each counted harmonic: true where it lies within noise_floor_margin_db of that level.
+std::vector<bool> at_noise_floor(const dsp::windowed_analysis& a, double line_dbc) {
+  std::vector<bool> flags;
+  for (const double h : a.harmonics_dbc) flags.push_back(std::isfinite(h) && h <= line_dbc + noise_floor_margin_db);
+  return flags;
+}
+
+nlohmann::json flags_json(const std::vector<bool>& flags) {
+  nlohmann::json j = nlohmann::json::array();
+  for (const bool f : flags) j.push_back(f);
+  return j;
 }
 
 // ---- Run
@@ -344,6 +373,8 @@ measure_report analyse(const measure_options& o) {
     throw input_error("'" + o.path + "': " + e.what());  // "no tone found" must say in which file
   }
 
+  r.noise_line_dbc = noise_line_dbc(r.a, r.window, fs, x.size());
+  r.noise_flags = at_noise_floor(r.a, r.noise_line_dbc);
   if (!o.plot_path.empty())
     r.spectrum = dsp::spectrum_for_display(x, fs, r.window, std::min(10.0, fs / 2 / 100), fs / 2);
   return r;
@@ -569,8 +600,9 @@ void write_against_text(const measure_report& r, std::ostream& out) {
     const double m = a.harmonics_dbc[i];
     const double q = i < pt.harmonics_dbc.size() ? pt.harmonics_dbc[i] : std::nan("");
     const bool is_floor = below_numerical_floor(q);  // a mark, not a number (cli/common.hpp)
-    t.add({"H" + std::to_string(n), dbc_text(m), is_floor ? std::string(floor_mark) + " dBc" : dbc_text(q),
-           is_floor ? std::string("-") : signed_db(m - q)});
+    const bool is_noise = r.noise_flags[i];
+    t.add({"H" + std::to_string(n), dbc_text(m) + (is_noise ? " (noise)" : ""),
+           is_floor ? std::string(floor_mark) + " dBc" : dbc_text(q), is_floor && is_noise ? std::string("-") : signed_db(m - q)});
   }
   t.add({"THD", format_number(a.thd_percent, 4) + " %", format_number(pt.thd_percent, 4) + " %",
          signed_db(base::db_from_ratio(a.thd_ratio / pt.thd_ratio))});
@@ -620,9 +652,11 @@ void write_text(const measure_report& r, std::ostream& out) {
       continue;
     }
     h.add({"H" + std::to_string(n), format_si(fh, "Hz", 4), dbc_text(a.harmonics_dbc[i]),
-           fixed(base::db_from_ratio(a.harmonics_vpk[i]), 2) + " dBFS"});
+           fixed(base::db_from_ratio(a.harmonics_vpk[i]), 2) + " dBFS" + (r.noise_flags[i] ? "  at the noise floor" : "")});
   }
   h.write(out);
+  out << "  at the noise floor: within " << format_number(noise_floor_margin_db, 2) << " dB of what the noise alone reads there ("
+      << fixed(r.noise_line_dbc, 1) << " dBc in the window's bandwidth)\n";
 
   out << "\nTotals\n";
   text_table t({align::left, align::right, align::right});
@@ -673,7 +707,9 @@ void write_json(const measure_report& r, std::ostream& out) {
                    {"noise_a_dbfs", dbfs_from_rms(a.noise_a_rms_v)},
                    {"noise_468_dbfs", dbfs_from_rms(a.noise_468_rms_v)},
                    {"noise_density_dbc_per_hz", a.noise_floor_dbc_per_hz},
-                   {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)}};
+                   {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)},
+                   {"noise_line_dbc", r.noise_line_dbc},
+                   {"harmonics_at_noise_floor", flags_json(r.noise_flags)}};
   if (r.output_cal_vpk > 0.0) {
     j["output_cal_vpk"] = r.output_cal_vpk;
     j["output_vpk"] = a.fundamental_vpk * r.output_cal_vpk;
@@ -689,7 +725,9 @@ void write_json(const measure_report& r, std::ostream& out) {
       const double q = i < pt.harmonics_dbc.size() ? pt.harmonics_dbc[i] : std::nan("");
       predicted.push_back(q);
       hs.push_back(dbc_or_null(q));
-      diff.push_back(below_numerical_floor(q) ? nlohmann::json(nullptr) : number_or_null(a.harmonics_dbc[i] - q));
+      // Two floors (the model's numerical one, the recording's noise) have no difference.
+      diff.push_back(below_numerical_floor(q) && r.noise_flags[i] ? nlohmann::json(nullptr)
+                                                                   : number_or_null(a.harmonics_dbc[i] - q));
     }
     j["against"] = {{"stage_path", p.path},
                     {"overrides", p.overrides},
@@ -792,6 +830,8 @@ struct step_row {
   std::int64_t first_frame{0};  ///< in the file
   std::size_t analysed{0};
   dsp::windowed_analysis a;
+  double noise_line_dbc{};
+  std::vector<bool> noise_flags;  ///< each harmonic at the noise floor
 };
 
 struct steps_report {
@@ -879,6 +919,8 @@ steps_report analyse_steps(const measure_options& o) {
       return std::optional<step_row>{};  // no tone in it (silence under noise, DC)
     }
     if (row.a.thd_n_ratio > no_tone_thd_n) return std::optional<step_row>{};
+    row.noise_line_dbc = noise_line_dbc(row.a, ws.window, fs, x.size());
+    row.noise_flags = at_noise_floor(row.a, row.noise_line_dbc);
     return std::optional<step_row>{row};
   };
   rows[loudest] = analyse_one(loudest, s);
@@ -1002,11 +1044,14 @@ void write_steps_text(const steps_report& r, std::ostream& out) {
     if (cal) row.push_back(format_si(s.a.fundamental_vpk * r.output_cal_vpk, "Vpk"));
     row.push_back(format_number(s.a.thd_percent, 3) + " %");
     row.push_back(format_number(s.a.thd_n_percent, 3) + " %");
-    row.push_back(step_dbc(harmonic_of(s.a.harmonics_dbc, 2)) + " dBc");
-    row.push_back(step_dbc(harmonic_of(s.a.harmonics_dbc, 3)) + " dBc");
+    for (int n : {2, 3})
+      row.push_back(step_dbc(harmonic_of(s.a.harmonics_dbc, n)) + " dBc" +
+                    (static_cast<std::size_t>(n - 2) < s.noise_flags.size() && s.noise_flags[static_cast<std::size_t>(n - 2)] ? "*" : " "));
     t.add(row);
   }
   t.write(out);
+  out << "  *: at the noise floor, within " << format_number(noise_floor_margin_db, 2)
+      << " dB of what the step's noise alone reads as a line.\n";
   out << "  level: the fundamental's peak in dBFS (0 for a sine reaching full scale)"
       << (cal ? "; output: in volts through --output-cal" : "")
       << ";\n  THD counts H2..H" << r.harmonics << " in the band (--json and --csv give each harmonic).\n";
@@ -1064,7 +1109,9 @@ void write_steps_json(const steps_report& r, std::ostream& out) {
                      {"harmonics_dbc", harmonics_json(s.a.harmonics_dbc)},
                      {"thd_percent", s.a.thd_percent},
                      {"thd_n_percent", s.a.thd_n_percent},
-                     {"noise_dbc", s.a.noise_dbc}};
+                     {"noise_dbc", s.a.noise_dbc},
+                     {"noise_line_dbc", s.noise_line_dbc},
+                     {"harmonics_at_noise_floor", flags_json(s.noise_flags)}};
     if (r.output_cal_vpk > 0.0) j["output_vpk"] = s.a.fundamental_vpk * r.output_cal_vpk;
     if (r.against) {
       const model::sweep_point& pt = r.against->sweep.points[k];

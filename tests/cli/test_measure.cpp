@@ -350,6 +350,9 @@ TEST_CASE("measure --steps finds every step of a tone --steps file at its writte
     CHECK(s["start_s"].get<double>() >= written[k]["steady_from_s"].get<double>());
     CHECK(s["start_s"].get<double>() + s["duration_s"].get<double>() <= written[k]["steady_to_s"].get<double>() + 1e-9);
     CHECK(s["harmonics_dbc"].size() == 9);  // H2..H10
+    // A pure tone's harmonics are all the dither's noise (24-bit): every one flagged.
+    REQUIRE(s["harmonics_at_noise_floor"].size() == 9);
+    for (const nlohmann::json& f : s["harmonics_at_noise_floor"]) CHECK(f == true);
     CHECK(s["thd_n_percent"].get<double>() < 0.01);
   }
   // The same recording measured whole: several levels in one span, refused with the way out.
@@ -466,4 +469,34 @@ TEST_CASE("measure --response: a sweep rendered through a stage gives the model'
   std::ifstream in(svg);
   const std::string picture((std::istreambuf_iterator<char>(in)), {});
   CHECK(picture.find("phase (degrees)") != std::string::npos);
+}
+
+TEST_CASE("measure flags the harmonics that read the noise, and only those") {
+  // A 1 kHz tone at 0.5 with H2 at -60 dBc, H3 at -100 dBc, nothing above, in white noise of
+  // sigma 1e-5 (closed form: density 2 sigma^2 / fs per hertz = -143.8 dB re 1 V^2/Hz, so
+  // -134.8 dBc/Hz re the tone's power of 0.125 V^2; the 4-term Blackman-Harris window's
+  // bandwidth of 2.00 bins at 48 kHz over 240000 samples is 0.40 Hz, -4.0 dB: a line of
+  // noise alone reads near -138.8 dBc). H2 stands 79 dB above it and H3 39 dB: lines;
+  // H4..H10 read the noise and are flagged.
+  scratch_dir dir;
+  const double fs = 48000.0, sigma = 1e-5;
+  std::vector<double> x = lines_signal(fs, 5.0, {{1000.0, 0.5, 0.0}, {2000.0, 0.5e-3, 0.3}, {3000.0, 0.5e-5, 1.1}});
+  std::mt19937_64 gen(7);
+  std::normal_distribution<double> noise(0.0, sigma);
+  for (double& v : x) v += noise(gen);
+  const std::string path = dir.file("noisy-h.wav");
+  write_float_wav(path, fs, x);
+  const auto j = measure_json({path});
+  CHECK(std::abs(j["noise_line_dbc"].get<double>() - (-138.8)) <= 0.5);
+  const nlohmann::json& flags = j["harmonics_at_noise_floor"];
+  REQUIRE(flags.size() == 9);
+  CHECK(flags[0] == false);
+  CHECK(flags[1] == false);
+  for (std::size_t k = 2; k < 9; ++k) {
+    CAPTURE(k);
+    CHECK(flags[k] == true);
+  }
+  const result text = run({"measure", path});
+  CHECK(text.out.find("H4   4.000 kHz") != std::string::npos);
+  CHECK(text.out.find("at the noise floor") != std::string::npos);
 }
