@@ -294,7 +294,9 @@ void print_json(const sweep_report& rep, std::ostream& out) {
     nlohmann::json sts = nlohmann::json::array();
     for (const auto& st : r.stages)
       sts.push_back({{"name", st.label},
-                     {"leaves_clean_at_drive_vpk", st.leaves_clean ? nlohmann::json(st.first_unclean_drive_vpk) : nlohmann::json(nullptr)},
+                     {"leaves_clean_at_drive_vpk", st.leaves_clean ? nlohmann::json(st.leaves_clean_drive_vpk) : nlohmann::json(nullptr)},
+                     {"last_clean_drive_vpk", st.leaves_clean && st.last_clean_drive_vpk > 0 ? nlohmann::json(st.last_clean_drive_vpk) : nlohmann::json(nullptr)},
+                     {"first_unclean_drive_vpk", st.leaves_clean ? nlohmann::json(st.first_unclean_drive_vpk) : nlohmann::json(nullptr)},
                      {"limit", st.leaves_clean ? nlohmann::json(model::swing_limit_text(st.limit)) : nlohmann::json(nullptr)}});
     j["stages"] = sts;
   }
@@ -398,8 +400,10 @@ void print_stages(const sweep_report& rep, std::ostream& out) {
       out << "out of its clean region already at the lowest drive, " << format_si(lowest, "Vpk") << " (" << dbu(lowest)
           << "), " << model::swing_limit_text(st.limit) << '\n';
     else if (st.leaves_clean)
-      out << "first out of its clean region at drive " << format_si(st.first_unclean_drive_vpk, "Vpk") << " ("
-          << dbu(st.first_unclean_drive_vpk) << "), " << model::swing_limit_text(st.limit) << '\n';
+      out << "leaves its clean region at about " << format_si(st.leaves_clean_drive_vpk, "Vpk") << " ("
+          << dbu(st.leaves_clean_drive_vpk) << ", between the drives " << format_si(st.last_clean_drive_vpk, "Vpk")
+          << " and " << format_si(st.first_unclean_drive_vpk, "Vpk") << "), " << model::swing_limit_text(st.limit)
+          << '\n';
     else
       out << "clean at every drive of this sweep\n";
   }

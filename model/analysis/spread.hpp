@@ -164,7 +164,7 @@ struct trim_result {
   double coverage{};              ///< fraction of all runs the pair can bring to the target
 };
 
-/// The target must be a bias quantity (not center: a setting_error of the field "target").
+/// The target must be a bias quantity or a gain (not center: a setting_error of the field "target").
 trim_result size_trimmer(const stage& st, std::string_view adjust_key, const tune_target& target,
                          const spread_settings& s, base::eseries series);
 

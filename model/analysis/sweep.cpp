@@ -149,6 +149,7 @@ double judge_clean(const network& net, int jfet, std::span<const double> ports, 
   const double scale = std::max(1.0, std::fabs(vp));
   const std::size_t per = 2 * static_cast<std::size_t>(net.devices());
   double worst = std::numeric_limits<double>::infinity();
+  double margin = std::numeric_limits<double>::infinity();
   sp.clean = true;
   sp.limit = swing_limit_kind::none;
   auto crossed = [&](double margin, swing_limit_kind kind) {
@@ -164,10 +165,12 @@ double judge_clean(const network& net, int jfet, std::span<const double> ports, 
     const double vgs = ports[n + 2 * static_cast<std::size_t>(jfet)];
     const double vds = ports[n + 2 * static_cast<std::size_t>(jfet) + 1];
     sum_vgs += vgs;
+    margin = std::min({margin, (vds - (vgs - vp)) / scale, (vgs - vp) / scale, -vgs / scale});
     if (vds < vgs - vp) crossed((vds - (vgs - vp)) / scale, swing_limit_kind::triode);
     if (!(vgs > vp)) crossed((vgs - vp) / scale, swing_limit_kind::cutoff);
     if (vgs > 0.0) crossed(-vgs / scale, swing_limit_kind::gate_forward);
   }
+  sp.margin = samples ? margin : 0.0;
   return samples ? sum_vgs / static_cast<double>(samples) : 0.0;
 }
 
@@ -326,13 +329,27 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
     for (std::size_t k = 0; k < net.stages.size(); ++k) {
       stage_sweep ss;
       ss.label = net.stages[k].label;
-      for (const sweep_point* p : sorted)
+      const sweep_point* below = nullptr;  // the last clean point before the first unclean one
+      for (const sweep_point* p : sorted) {
         if (!p->stages[k].clean) {
           ss.leaves_clean = true;
           ss.first_unclean_drive_vpk = p->drive_vpk;
+          ss.leaves_clean_drive_vpk = p->drive_vpk;
           ss.limit = p->stages[k].limit;
+          if (below) {
+            // The margin falls nearly linearly with the drive's amplitude where a limit is
+            // approached (the transfer curve smooth there); its zero between the two points.
+            const double ma = below->stages[k].margin, mb = p->stages[k].margin;
+            ss.last_clean_drive_vpk = below->drive_vpk;
+            if (ma > 0.0 && mb < ma) {
+              const double t = std::clamp(ma / (ma - mb), 0.0, 1.0);
+              ss.leaves_clean_drive_vpk = below->drive_vpk + t * (p->drive_vpk - below->drive_vpk);
+            }
+          }
           break;
         }
+        below = p;
+      }
       res.stages.push_back(ss);
     }
   return res;

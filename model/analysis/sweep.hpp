@@ -85,6 +85,9 @@ struct stage_point {
   bool clean{true};
   /// Not clean: the limit crossed furthest (margins scaled as headroom.hpp scales them).
   swing_limit_kind limit{swing_limit_kind::none};
+  /// The smallest margin to the clean region's limits over the period, scaled as the limits
+  /// are (volts over max(1 V, |VP|)): vds - (vgs - vp), vgs - vp and -vgs; below 0 out of it.
+  double margin{};
 };
 
 /// One stage of a chain over the whole sweep.
@@ -92,6 +95,13 @@ struct stage_sweep {
   std::string label;          ///< net_stage::label
   bool leaves_clean{false};   ///< some point of the sweep is not clean
   double first_unclean_drive_vpk{};  ///< the lowest drive of the sweep at which it is not
+  /// The highest drive below that one at which it is clean; 0 when the lowest drive of the
+  /// sweep is already not clean.
+  double last_clean_drive_vpk{};
+  /// Where it leaves the clean region, between the two: the drive at which the stage's
+  /// margin (stage_point::margin) crosses 0, interpolated linearly in drive between them
+  /// (first_unclean_drive_vpk when there is no clean point below it).
+  double leaves_clean_drive_vpk{};
   swing_limit_kind limit{swing_limit_kind::none};  ///< the limit at that drive
 };
 

@@ -21,6 +21,7 @@ struct side_by_side {
   double output_peak_v{0};           ///< the engine's output swing from its DC value
   int devices{0};
   std::vector<double> max_vgs_v;     ///< per JFET, network signs
+  std::vector<double> min_vgst_v;    ///< per JFET, the lowest vgs - vp (below 0: cut off), network signs
   long long engine_failed{0}, reference_failed{0};
   /// JFETs whose gate-source junction went forward of `v` on some sample.
   int gate_conducting(double v = 0.4) const {
@@ -45,6 +46,7 @@ inline side_by_side engine_against_reference(const model::network& net, double a
   side_by_side c;
   c.devices = eng.devices();
   c.max_vgs_v.assign(static_cast<std::size_t>(c.devices), -1e9);
+  c.min_vgst_v.assign(static_cast<std::size_t>(c.devices), 1e9);
   for (int n = 0; n < samples; ++n) {
     const double u = amp * std::sin(2.0 * std::numbers::pi * f_hz * n / fs_hz);
     const double y = eng.process(u);
@@ -52,7 +54,10 @@ inline side_by_side engine_against_reference(const model::network& net, double a
     c.output_peak_v = std::max(c.output_peak_v, std::fabs(y - eng.dc_output_v()));
     for (int k = 0; k < c.devices; ++k) {
       c.worst_ports_v = std::max(c.worst_ports_v, (eng.ports_v(k) - ref.ports_v(k)).cwiseAbs().maxCoeff());
-      c.max_vgs_v[static_cast<std::size_t>(k)] = std::max(c.max_vgs_v[static_cast<std::size_t>(k)], eng.ports_network_v(k)[0]);
+      const double vgs = eng.ports_network_v(k)[0];
+      const std::size_t j = static_cast<std::size_t>(k);
+      c.max_vgs_v[j] = std::max(c.max_vgs_v[j], vgs);
+      c.min_vgst_v[j] = std::min(c.min_vgst_v[j], vgs - net.jfets[j].device.vp_v);
     }
   }
   c.engine_failed = eng.stats().failed;

@@ -186,6 +186,46 @@ TEST_CASE("a trimmer sized over the batch brings every part to the target") {
     if (smaller < t.trimmer_ohm) CHECK(t.fixed_ohm + smaller < t.r_max);
 }
 
+TEST_CASE("a trimmer sized over the batch for a gain target: every part's drain resistor from the closed form") {
+  // Self bias with the source fully bypassed, square law (is = 0, lambda = 0): the rest
+  // current is set by RS alone, id from VGS = -id RS and id = idss (1 - VGS/vp)^2, so gm =
+  // 2 sqrt(idss id) / |vp| (Shockley) is fixed per part and the mid-band gain gm (RD || RL)
+  // (Sedra & Smith, any edition) gives the drain resistor each part needs:
+  // RD || RL = 10^(G/20) / gm.
+  const double vdd = 18.0, rs = 1e3, rl = 47e3, gain_db = 12.0;
+  const stage st = test::stage_from(test::self_bias_text(vdd, 4.5e-3, -1.6, rs, 2.2e3,
+                                                         "bypass_cap = \"100u\"\n[output]\nload = \"47k\"\n"
+                                                         "coupling_cap = \"2.2u\"\n"));
+  spread_settings s;
+  s.idss_a = base::value_range{2e-3, 8e-3};
+  s.vp_v = base::value_range{-3.0, -0.8};
+  s.runs = 60;
+  const trim_result t = size_trimmer(st, "drain.resistor", {target_kind::gain, gain_db}, s, base::eseries::e24);
+  int checked = 0;
+  for (int i = 0; i < s.runs; ++i) {
+    const spread_draw d = draw_part(s, st, i);
+    const double a = std::fabs(d.vp_v);
+    // id = idss (1 - id rs / a)^2, the root below idss on the square law's falling branch.
+    const double k = rs / a;
+    const double id = ((2 * k * d.idss_a + 1) - std::sqrt(4 * k * d.idss_a + 1)) / (2 * k * k * d.idss_a);
+    const double gm = 2.0 * std::sqrt(d.idss_a * id) / a;
+    const double rdl = std::pow(10.0, gain_db / 20.0) / gm;
+    const double need = rdl * rl / (rl - rdl);
+    CAPTURE(i);
+    const double got = t.exact_ohm[static_cast<std::size_t>(i)];
+    // A part the target would push out of saturation at that resistor is unreachable.
+    if (std::isnan(got)) {
+      CHECK(vdd - need * id < id * rs + (a - id * rs));
+      continue;
+    }
+    CHECK(got == doctest::Approx(need).epsilon(1e-6));
+    ++checked;
+  }
+  CHECK(checked > s.runs / 2);
+  CHECK(t.fixed_ohm <= t.r_min);
+  CHECK(t.fixed_ohm + t.trimmer_ohm >= t.r_max);
+}
+
 TEST_CASE("THD over a batch follows the square-law closed form per part") {
   // Ideal square law (gate DC-coupled at 0 V, grounded source, lambda = 0, no gate
   // current): HD2 = A / (4 (VGSQ - VP)) with VGSQ = 0 and no higher harmonics (Gray,

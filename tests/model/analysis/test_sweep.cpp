@@ -450,7 +450,28 @@ TEST_CASE("a chain's stages leave their clean region where the quasi-static clip
     CHECK(r.points[1].stages[k].limit == swing_limit_kind::none);
     CHECK(r.stages[k].leaves_clean);
     CHECK(r.stages[k].first_unclean_drive_vpk == r.points[0].drive_vpk);
+    CHECK(r.stages[k].last_clean_drive_vpk == r.points[1].drive_vpk);
     CHECK(r.stages[k].limit == c.kind);
+    // Where it leaves: the margin's zero between the two drives, against a sweep of 36
+    // drives 2 % apart over the same span (the first of them out of the clean region).
+    CHECK(r.points[1].stages[k].margin > 0.0);
+    CHECK(r.points[0].stages[k].margin < 0.0);
+    sweep_settings fine = s;
+    fine.drives_vpk.clear();
+    for (int i = 0; i <= 35; ++i) fine.drives_vpk.push_back(0.7 * c.drive_vpk * std::pow(2.0, i / 35.0));
+    const sweep_result rf = run_sweep(st, fine);
+    REQUIRE(rf.stages[k].leaves_clean);
+    const double lo = rf.stages[k].last_clean_drive_vpk, hi = rf.stages[k].first_unclean_drive_vpk;
+    MESSAGE("stage " << k << ": from two drives " << r.stages[k].leaves_clean_drive_vpk << " Vpk (first out at "
+                     << r.stages[k].first_unclean_drive_vpk << "); 36 drives: between " << lo << " and " << hi
+                     << " Vpk, interpolated " << rf.stages[k].leaves_clean_drive_vpk);
+    CHECK(r.stages[k].leaves_clean_drive_vpk > r.points[1].drive_vpk);
+    CHECK(r.stages[k].leaves_clean_drive_vpk < r.points[0].drive_vpk);
+    // The estimate from two drives a factor 2 apart lands at least twice as close to where
+    // the fine sweep finds it as the first drive out of the region does (the figure given
+    // before the interpolation): measured 13 % and 3 % off, against 33-39 %.
+    const double truth = 0.5 * (lo + hi);
+    CHECK(std::fabs(r.stages[k].leaves_clean_drive_vpk - truth) < 0.5 * std::fabs(r.stages[k].first_unclean_drive_vpk - truth));
   }
 }
 

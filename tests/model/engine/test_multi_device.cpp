@@ -17,6 +17,7 @@
 #include "model/engine/steady_state.hpp"
 #include "model/engine/transient_reference.hpp"
 #include "fixtures/multi_device_networks.hpp"
+#include "support/engine_vs_reference.hpp"
 
 namespace {
 
@@ -104,42 +105,12 @@ TEST_CASE("two independent copies of a stage: the general DK path gives the sing
   }
 }
 
-namespace {
-
-struct cascade_run {
-  double worst_output_v{0}, worst_ports_v{0};
-  double min_vgst_v[2]{1e9, 1e9}, max_vgs_v[2]{-1e9, -1e9};
-  long long engine_failed{0}, reference_failed{0};
-};
-
-cascade_run run_cascade(const model::network& net, double amp, int samples) {
-  const model::operating_point op = model::solve_operating_point(net);
-  model::dk_engine eng(net, op, fs_hz);
-  model::transient_reference ref(net, op, fs_hz);
-  cascade_run c;
-  for (int n = 0; n < samples; ++n) {
-    const double u = sine(amp, 1000.0, n);
-    c.worst_output_v = std::max(c.worst_output_v, std::fabs(eng.process(u) - ref.process(u)));
-    for (int k = 0; k < 2; ++k) {
-      c.worst_ports_v = std::max(c.worst_ports_v, (eng.ports_v(k) - ref.ports_v(k)).cwiseAbs().maxCoeff());
-      const Eigen::Vector2d v = eng.ports_network_v(k);
-      c.min_vgst_v[k] = std::min(c.min_vgst_v[k], v[0] - net.jfets[static_cast<std::size_t>(k)].device.vp_v);
-      c.max_vgs_v[k] = std::max(c.max_vgs_v[k], v[0]);
-    }
-  }
-  c.engine_failed = eng.stats().failed;
-  c.reference_failed = ref.stats().failed;
-  return c;
-}
-
-}  // namespace
-
 TEST_CASE("two cascaded stages: the DK engine follows the nodal reference to 1e-9 V") {
   // Same circuit, same device model, same trapezoidal rule (model/engine/transient_reference.hpp):
   // the two solvers must give the same samples to 1e-9 V, as for every one-JFET stage.
   const model::network net = test::two_stage_network();
   SUBCASE("small drive") {
-    const cascade_run c = run_cascade(net, 0.01, 600);
+    const test::side_by_side c = test::engine_against_reference(net, 0.01, 1000.0, 600, fs_hz);
     CAPTURE(c.worst_output_v);
     CHECK(c.worst_output_v <= 1e-9);
     CHECK(c.worst_ports_v <= 1e-9);
@@ -147,7 +118,7 @@ TEST_CASE("two cascaded stages: the DK engine follows the nodal reference to 1e-
     CHECK(c.reference_failed == 0);
   }
   SUBCASE("deep in clipping: gate conduction and cutoff in both stages") {
-    const cascade_run c = run_cascade(net, 6.0, 600);
+    const test::side_by_side c = test::engine_against_reference(net, 6.0, 1000.0, 600, fs_hz);
     CAPTURE(c.worst_output_v);
     CAPTURE(c.worst_ports_v);
     CHECK(c.worst_output_v <= 1e-9);
@@ -156,10 +127,11 @@ TEST_CASE("two cascaded stages: the DK engine follows the nodal reference to 1e-
     CHECK(c.reference_failed == 0);
     for (int k = 0; k < 2; ++k) {
       CAPTURE(k);
-      CAPTURE(c.min_vgst_v[k]);
-      CAPTURE(c.max_vgs_v[k]);
-      CHECK(c.min_vgst_v[k] < -0.5);  // channel cut off
-      CHECK(c.max_vgs_v[k] > 0.45);   // gate junction conducting
+      const std::size_t j = static_cast<std::size_t>(k);
+      CAPTURE(c.min_vgst_v[j]);
+      CAPTURE(c.max_vgs_v[j]);
+      CHECK(c.min_vgst_v[j] < -0.5);  // channel cut off
+      CHECK(c.max_vgs_v[j] > 0.45);   // gate junction conducting
     }
   }
 }
