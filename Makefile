@@ -110,6 +110,7 @@ test-fuzz: build-fuzz
 
 bench: build
 	@if [ -x $(BUILD_DIR)/pinchoff_bench ]; then $(BUILD_DIR)/pinchoff_bench; else echo "no benchmarks built"; fi
+	@if [ -x $(BUILD_DIR)/pinchoff_bench_api ]; then echo; $(BUILD_DIR)/pinchoff_bench_api; fi
 
 clean:
 	rm -rf $(BUILD_DIR) $(BUILD_DIR).configure.log $(ASAN_DIR) $(ASAN_DIR).configure.log $(FUZZ_DIR) $(FUZZ_DIR).configure.log out

@@ -59,6 +59,7 @@ int run(const std::vector<std::string>& args, std::ostream& out, std::ostream& e
   register_measure(app, commands, data);
   register_compare(app, commands, data);
   register_render(app, commands, data);
+  register_workbench(app, commands, data);
 
   if (!args.empty() && !args.front().empty() && args.front().front() != '-') {
     bool known = false;

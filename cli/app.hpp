@@ -59,5 +59,6 @@ void register_tone(CLI::App& app, std::vector<command>& commands, const data_fil
 void register_measure(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_compare(CLI::App& app, std::vector<command>& commands, const data_files& data);
 void register_render(CLI::App& app, std::vector<command>& commands, const data_files& data);
+void register_workbench(CLI::App& app, std::vector<command>& commands, const data_files& data);
 
 }  // namespace pinchoff::cli

@@ -10,6 +10,7 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "cli/report_json.hpp"
 #include "cli/text_table.hpp"
 #include "base/units.hpp"
 #include "model/analysis/bias.hpp"
@@ -322,7 +323,7 @@ void chain_json(const bias_report& r, nlohmann::json& j) {
   j["clip_order"] = order;
 }
 
-void print_json(const bias_report& r, std::ostream& out) {
+nlohmann::json bias_report_json(const bias_report& r) {
   nlohmann::json j;
   if (r.st.is_chain()) {
     j["name"] = r.st.name;
@@ -364,8 +365,10 @@ void print_json(const bias_report& r, std::ostream& out) {
   j["warnings"] = r.b.warnings;
   j["noise"] = {{"ein_a_dbu", number_or_null(r.ein_a_dbu)},
                 {"self_noise_dba_spl", r.st.has_capsule() ? number_or_null(r.self_noise_dba_spl) : nlohmann::json(nullptr)}};
-  out << json_text(j) << '\n';
+  return j;
 }
+
+void print_json(const bias_report& r, std::ostream& out) { out << json_text(bias_report_json(r)) << '\n'; }
 
 CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
   CLI::App* sub = app.add_subcommand("bias", "Operating point, gain, impedances, headroom and corners of a stage");
@@ -390,20 +393,27 @@ CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
   return sub;
 }
 
-void run(const bias_options& opt, std::ostream& out) {
-  std::optional<double> at_hz;
-  if (!opt.at_text.empty()) at_hz = parse_analysis_frequency_hz(opt.at_text, "--at");
+bias_report analyse_bias_report(model::stage st, std::optional<double> at_hz) {
   bias_report r;
-  r.st = load_stage(opt.input);
+  r.st = std::move(st);
   r.b = model::analyse_bias(r.st, at_hz);
   const model::noise_result n = model::analyse_noise(r.b.net, r.b.op, {.points = 2, .band_points_per_decade = 50});
   r.ein_a_dbu = model::dbu_of_rms(n.input_a_v());
   if (r.st.has_capsule()) r.self_noise_dba_spl = model::self_noise_db_spl(n.input_a_v(), r.st.capsule.sensitivity_v_per_pa);
+  return r;
+}
+
+void run(const bias_options& opt, std::ostream& out) {
+  std::optional<double> at_hz;
+  if (!opt.at_text.empty()) at_hz = parse_analysis_frequency_hz(opt.at_text, "--at");
+  const bias_report r = analyse_bias_report(load_stage(opt.input), at_hz);
   if (opt.json) return print_json(r, out);
   print_text(r, opt.input.path, out);
 }
 
 }  // namespace
+
+nlohmann::json bias_json(const model::stage& st) { return bias_report_json(analyse_bias_report(st, std::nullopt)); }
 
 void register_bias(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<bias_options>();

@@ -11,6 +11,7 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "cli/report_json.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
@@ -109,7 +110,7 @@ void write_plot(const noise_report& rep, const std::string& path, base::output_s
   add_svg_output(outputs, path, render_svg(p));
 }
 
-void print_json(const noise_report& rep, std::ostream& out) {
+nlohmann::json noise_report_json(const noise_report& rep) {
   const model::noise_result& r = rep.r;
   nlohmann::json j;
   j["warnings"] = rep.warnings;
@@ -179,8 +180,10 @@ void print_json(const noise_report& rep, std::ostream& out) {
     }
     j["stages"] = stages;
   }
-  out << json_text(j) << '\n';
+  return j;
 }
+
+void print_json(const noise_report& rep, std::ostream& out) { out << json_text(noise_report_json(rep)) << '\n'; }
 
 void write_csv(const noise_report& rep, std::ostream& out) {
   const model::noise_result& r = rep.r;
@@ -292,23 +295,8 @@ CLI::App* setup(CLI::App& app, noise_options& opt, const data_files& data) {
   return sub;
 }
 
-void run(const noise_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
-  if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
-  model::noise_settings s;
-  s.from_hz = parse_analysis_frequency_hz(opt.from, "--from");
-  s.to_hz = parse_analysis_frequency_hz(opt.to, "--to");
-  if (!(s.to_hz > s.from_hz)) throw input_error("--to must be above --from");
-  s.points = opt.points;
-  const base::value_range band = base::parse_range(opt.band, base::unit::hertz, "--band");
-  s.band_lo_hz = band.lo;
-  s.band_hi_hz = band.hi;
-  noise_report rep;
-  rep.st = load_stage(opt.input);
-  if (!opt.level.empty()) {
-    rep.level_vpk = option_level_vpk(opt.level, "--level", &rep.st);
-    if (!(rep.level_vpk > 0.0)) throw input_error("--level: give a level above 0 V, got " + opt.level);
-    rep.level_text = opt.level;
-  }
+// Everything from the stage (rep.st) and its level on.
+void analyse_noise_report(noise_report& rep, const model::noise_settings& s, std::ostream& err) {
   rep.net = model::build_network(rep.st);
   rep.op = model::solve_operating_point(rep.net);
   rep.warnings = rest_point_warnings(rep.st, rep.net, rep.op, "noise", err);
@@ -323,7 +311,31 @@ void run(const noise_options& opt, std::ostream& out, std::ostream& err, base::o
     rep.max_spl = model::find_drive_for_thd(rep.st, c, 1.0);
     rep.max_spl_db = model::capsule_level_db_spl(rep.st.capsule, rep.max_spl->drive_vpk);
   }
+}
 
+model::noise_settings noise_settings_of(const noise_options& opt) {
+  model::noise_settings s;
+  s.from_hz = parse_analysis_frequency_hz(opt.from, "--from");
+  s.to_hz = parse_analysis_frequency_hz(opt.to, "--to");
+  if (!(s.to_hz > s.from_hz)) throw input_error("--to must be above --from");
+  s.points = opt.points;
+  const base::value_range band = base::parse_range(opt.band, base::unit::hertz, "--band");
+  s.band_lo_hz = band.lo;
+  s.band_hi_hz = band.hi;
+  return s;
+}
+
+void run(const noise_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
+  if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
+  const model::noise_settings s = noise_settings_of(opt);
+  noise_report rep;
+  rep.st = load_stage(opt.input);
+  if (!opt.level.empty()) {
+    rep.level_vpk = option_level_vpk(opt.level, "--level", &rep.st);
+    if (!(rep.level_vpk > 0.0)) throw input_error("--level: give a level above 0 V, got " + opt.level);
+    rep.level_text = opt.level;
+  }
+  analyse_noise_report(rep, s, err);
   if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
   if (opt.json) return print_json(rep, out);
   if (opt.csv) return write_csv(rep, out);
@@ -332,6 +344,13 @@ void run(const noise_options& opt, std::ostream& out, std::ostream& err, base::o
 }
 
 }  // namespace
+
+nlohmann::json noise_json(const model::stage& st, std::ostream& err) {
+  noise_report rep;
+  rep.st = st;
+  analyse_noise_report(rep, noise_settings_of(noise_options{}), err);
+  return noise_report_json(rep);
+}
 
 void register_noise(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<noise_options>();

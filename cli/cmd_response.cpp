@@ -14,6 +14,7 @@
 #include "cli/app.hpp"
 #include "cli/common.hpp"
 #include "cli/plot.hpp"
+#include "cli/report_json.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "base/units.hpp"
@@ -116,7 +117,7 @@ void write_plot(const response_report& rep, const std::string& path, base::outpu
   add_svg_output(outputs, path, render_svg(p));
 }
 
-void print_json(const response_report& rep, std::ostream& out) {
+nlohmann::json response_report_json(const response_report& rep) {
   const model::response_result& r = rep.r;
   nlohmann::json j;
   j["midband_gain_db"] = rep.midband_db;
@@ -146,8 +147,10 @@ void print_json(const response_report& rep, std::ostream& out) {
                    {"zin_ohm", std::abs(r.points[k].zin_ohm)},
                    {"zin_phase_deg", std::arg(r.points[k].zin_ohm) * 180.0 / std::numbers::pi}});
   j["points"] = pts;
-  out << json_text(j) << '\n';
+  return j;
 }
+
+void print_json(const response_report& rep, std::ostream& out) { out << json_text(response_report_json(rep)) << '\n'; }
 
 void write_csv(const response_report& rep, std::ostream& out) {
   const model::response_result& r = rep.r;
@@ -215,6 +218,17 @@ CLI::App* setup(CLI::App& app, response_options& opt, const data_files& data) {
   return sub;
 }
 
+// Everything from the stage (rep.st) and the range (rep.lo_hz, rep.hi_hz) on.
+void analyse_response_report(response_report& rep, int points, std::ostream& err) {
+  rep.net = model::build_network(rep.st);
+  rep.op = model::solve_operating_point(rep.net);
+  rep.warnings = rest_point_warnings(rep.st, rep.net, rep.op, "response", err);
+  rep.r = model::analyse_response(rep.net, rep.op, rep.lo_hz, rep.hi_hz, points);
+  rep.phase_deg = unwrapped_phase_deg(rep.r.points);
+  rep.midband_db = base::db_from_ratio(std::fabs(rep.r.midband_gain));
+  rep.junction_note = junction_capacitance_note(rep.st, rep.r);
+}
+
 void run(const response_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
   if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
   response_report rep;
@@ -222,13 +236,7 @@ void run(const response_options& opt, std::ostream& out, std::ostream& err, base
   rep.hi_hz = parse_analysis_frequency_hz(opt.to, "--to");
   if (!(rep.hi_hz > rep.lo_hz)) throw input_error("--to must be above --from");
   rep.st = load_stage(opt.input);
-  rep.net = model::build_network(rep.st);
-  rep.op = model::solve_operating_point(rep.net);
-  rep.warnings = rest_point_warnings(rep.st, rep.net, rep.op, "response", err);
-  rep.r = model::analyse_response(rep.net, rep.op, rep.lo_hz, rep.hi_hz, opt.points);
-  rep.phase_deg = unwrapped_phase_deg(rep.r.points);
-  rep.midband_db = base::db_from_ratio(std::fabs(rep.r.midband_gain));
-  rep.junction_note = junction_capacitance_note(rep.st, rep.r);
+  analyse_response_report(rep, opt.points, err);
 
   if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
   if (opt.json) return print_json(rep, out);
@@ -239,6 +247,16 @@ void run(const response_options& opt, std::ostream& out, std::ostream& err, base
 }
 
 }  // namespace
+
+nlohmann::json response_json(const model::stage& st, std::ostream& err) {
+  const response_options defaults;
+  response_report rep;
+  rep.lo_hz = parse_analysis_frequency_hz(defaults.from, "--from");
+  rep.hi_hz = parse_analysis_frequency_hz(defaults.to, "--to");
+  rep.st = st;
+  analyse_response_report(rep, defaults.points, err);
+  return response_report_json(rep);
+}
 
 void register_response(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<response_options>();

@@ -15,6 +15,7 @@
 #include "cli/app.hpp"
 #include "cli/common.hpp"
 #include "cli/plot.hpp"
+#include "cli/report_json.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "base/units.hpp"
@@ -232,7 +233,7 @@ void write_transfer_plot(const sweep_report& rep, const std::string& path, base:
   add_svg_output(outputs, path, render_svg(pl));
 }
 
-void print_json(const sweep_report& rep, std::ostream& out) {
+nlohmann::json sweep_report_json(const sweep_report& rep) {
   const model::sweep_result& r = rep.r;
   nlohmann::json j;
   j["frequency_hz"] = r.frequency_hz;
@@ -321,8 +322,10 @@ void print_json(const sweep_report& rep, std::ostream& out) {
     j["max_spl_1_percent"] = one(m.one_percent, m.one_percent_db_spl);
   }
   j["warnings"] = rep.problems;
-  out << json_text(j) << '\n';
+  return j;
 }
+
+void print_json(const sweep_report& rep, std::ostream& out) { out << json_text(sweep_report_json(rep)) << '\n'; }
 
 void write_csv(const sweep_report& rep, std::ostream& out) {
   out << "drive_vpk,output_vpk,gain_db,thd_percent,alias_dbc,even_odd_ratio,dc_shift_v";
@@ -549,15 +552,12 @@ CLI::App* setup(CLI::App& app, sweep_options& opt, const data_files& data) {
   return sub;
 }
 
-void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
-  if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
-  sweep_report rep;
-  model::sweep_settings& s = rep.settings;
+// The settings as the options give them; `spl_stage`: the stage, read first when a level is
+// a sound pressure (its capsule's sensitivity turns it into volts).
+model::sweep_settings sweep_settings_of(const sweep_options& opt, const model::stage* spl_stage) {
+  model::sweep_settings s;
   s.frequency_hz = option_frequency_hz(opt.freq, "--freq");
-  // A sound pressure level needs the capsule's sensitivity: the stage is read first then.
-  const bool spl = is_spl_level(opt.drive) || is_spl_level(opt.from) || is_spl_level(opt.to);
-  if (spl) rep.st = load_stage(opt.input);
-  s.drives_vpk = drive_levels(opt, spl ? &rep.st : nullptr);
+  s.drives_vpk = drive_levels(opt, spl_stage);
   s.oversample = opt.oversample;
   s.automatic_oversample = !opt.oversample_given;
   s.harmonics = opt.harmonics;
@@ -567,8 +567,12 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
   s.per_stage = true;  // a chain's stages too; nothing changes for a single stage
   s.taps = true;       // the mean shift at the output tap, what moves under an AC-coupled load
   if (!opt.waveform.empty() || !opt.transfer.empty()) s.keep_records = pictured(s.drives_vpk);
-  const model::sweep_plan plan = model::plan_sweep(s);  // the settings' errors before any file is read
-  if (!spl) rep.st = load_stage(opt.input);
+  return s;
+}
+
+// Everything from the stage (rep.st) and the settings on.
+void analyse_sweep_report(sweep_report& rep, const model::sweep_plan& plan, std::ostream& err) {
+  const model::sweep_settings& s = rep.settings;
   // The rest point's cautions first (before the simulation's wait), then anything the
   // solver could not do: said, never hidden.
   rep.problems = rest_point_warnings(rep.st, "sweep", err);
@@ -598,7 +602,18 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
   }
   for (std::size_t k = rest_warnings; k < rep.problems.size(); ++k)
     err << "pinchoff sweep: warning: " << rep.problems[k] << '\n';
+}
 
+void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::output_set& outputs) {
+  if (opt.json && opt.csv) throw input_error("--json and --csv: choose one");
+  sweep_report rep;
+  // A sound pressure level needs the capsule's sensitivity: the stage is read first then.
+  const bool spl = is_spl_level(opt.drive) || is_spl_level(opt.from) || is_spl_level(opt.to);
+  if (spl) rep.st = load_stage(opt.input);
+  rep.settings = sweep_settings_of(opt, spl ? &rep.st : nullptr);
+  const model::sweep_plan plan = model::plan_sweep(rep.settings);  // the settings' errors before any file is read
+  if (!spl) rep.st = load_stage(opt.input);
+  analyse_sweep_report(rep, plan, err);
   if (!opt.plot.empty()) write_plot(rep, opt.plot, outputs);
   if (!opt.waveform.empty()) write_waveform_plot(rep, opt.waveform, outputs);
   if (!opt.transfer.empty()) write_transfer_plot(rep, opt.transfer, outputs);
@@ -611,6 +626,15 @@ void run(const sweep_options& opt, std::ostream& out, std::ostream& err, base::o
 }
 
 }  // namespace
+
+nlohmann::json sweep_json(const model::stage& st, std::ostream& err) {
+  sweep_report rep;
+  rep.settings = sweep_settings_of(sweep_options{}, nullptr);
+  const model::sweep_plan plan = model::plan_sweep(rep.settings);
+  rep.st = st;
+  analyse_sweep_report(rep, plan, err);
+  return sweep_report_json(rep);
+}
 
 void register_sweep(CLI::App& app, std::vector<command>& commands, const data_files& data) {
   auto opt = std::make_shared<sweep_options>();

@@ -32,6 +32,9 @@ data_files find_data_files(const fs::path& program, const char* devices_env) {
   } else if (const fs::path dir = data_dir_of(program); !dir.empty()) {
     d.devices = dir / "devices.toml";
   }
+  std::error_code ec;
+  if (const fs::path dir = data_dir_of(program); !dir.empty() && fs::is_regular_file(dir / "samples" / "pluck-phrase-48k.wav", ec))
+    d.demo_clip = dir / "samples" / "pluck-phrase-48k.wav";
   return d;
 }
 

@@ -11,6 +11,9 @@ struct data_files {
   /// The class file for a stage's `[jfet] class` when no devices.toml lies beside the stage
   /// file; empty when the program found none.
   std::filesystem::path devices;
+  /// The bundled demo recording (samples/pluck-phrase-48k.wav in the data folder), the
+  /// workbench's clip when none is given; empty when the program found none.
+  std::filesystem::path demo_clip;
 };
 
 /// The running program's own path: /proc/self/exe where the system has it, else `argv0`

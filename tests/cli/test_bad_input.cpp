@@ -945,6 +945,15 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       // ---- first use: a key written out in full where the file abbreviates it
       {"a key written out in full", {"bias", "@stage.toml", "--set", "gate.coupling_capacitor=100n"}, {"--set gate.coupling_capacitor", "did you mean 'coupling_cap'"}},
       {"a key written out in full, in a sweep", {"sweep", "@stage.toml", "--set", "source.bypass_capacitor=100u"}, {"did you mean 'bypass_cap'"}},
+      // ---- workbench: refused before the server starts (a port in use: tests/cli/test_workbench.cpp)
+      {"workbench --port above 65535", {"workbench", "@stage.toml", "--port", "70000"}, {"--port must be 0 (a free port) to 65535", "got 70000"}},
+      {"workbench --port below 0", {"workbench", "@stage.toml", "--port", "-1"}, {"--port must be 0 (a free port) to 65535", "got -1"}},
+      {"workbench on a stage file that does not exist", {"workbench", "@missing.toml"}, {"@missing.toml", "No such file"}},
+      {"workbench on a misspelt key", {"workbench", "@stage.toml", "@typo.toml"}, {"@typo.toml:13:1:", "unknown key 'resistr' in [source]"}},
+      {"workbench on binary garbage", {"workbench", "@garbage.bin"}, {"@garbage.bin:1:"}},
+      {"workbench --audio that does not exist", {"workbench", "@stage.toml", "--audio", "@missing.wav"}, {"@missing.wav", "No such file"}},
+      {"workbench --audio of garbage", {"workbench", "@stage.toml", "--audio", "@garbage.bin"}, {"@garbage.bin", "not recognised"}},
+      {"workbench --audio from a pipe", {"workbench", "@stage.toml", "--audio", "@pipe.wav"}, {"@pipe.wav", "it is a pipe", "several times"}},
   };
 
   REQUIRE(rows.size() >= 180);

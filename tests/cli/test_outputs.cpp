@@ -133,7 +133,7 @@ TEST_CASE("a plot is never written over the program's own device-class file") {
       "[drain]\nresistor = \"3.3k\"\n[source]\nresistor = \"680\"\n");
   std::ostringstream out, err;
   const int status = pinchoff::cli::run({"response", dir.file("stage.toml"), "--plot", dir.file("data/classes.toml")}, out,
-                                        err, pinchoff::cli::data_files{dir.path / "data" / "classes.toml"});
+                                        err, pinchoff::cli::data_files{dir.path / "data" / "classes.toml", {}});
   CAPTURE(err.str());
   CHECK(status == 2);
   CHECK(err.str().find("it is the input file") != std::string::npos);
