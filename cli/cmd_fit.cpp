@@ -29,10 +29,15 @@ struct fit_options {
 };
 
 /// One fitted part of the file, with what the report needs of its readings.
-struct fitted_part {
-  model::part_readings readings;
-  model::fit_result fit;
-};
+using fitted_part = model::fitted_readings;
+
+// The parts left out, for --json: each named, with its lines and the reason.
+nlohmann::json unfit_json(const std::vector<model::unfit_part>& unfit) {
+  nlohmann::json list = nlohmann::json::array();
+  for (const model::unfit_part& u : unfit)
+    list.push_back({{"part", u.name}, {"first_line", u.first_line}, {"last_line", u.last_line}, {"reason", u.reason}});
+  return list;
+}
 
 nlohmann::json rows_json(const model::fit_result& f) {
   nlohmann::json rows = nlohmann::json::array();
@@ -54,9 +59,9 @@ nlohmann::json std_errors_json(const model::fit_result& f) {
 
 // IDSS is reported at the VDS the readings were taken at (idss_vds_v; 0 when they do not
 // give it), which is what `[jfet] idss` with `idss_vds` means in a stage file.
-void print_json(const std::vector<fitted_part>& parts, std::ostream& out) {
+void print_json(const std::vector<fitted_part>& parts, const std::vector<model::unfit_part>& unfit, std::ostream& out) {
   nlohmann::json j;
-  if (parts.size() == 1) {
+  if (parts.size() == 1 && unfit.empty()) {
     const model::fit_result& f = parts.front().fit;
     if (!parts.front().readings.name.empty()) j["part"] = parts.front().readings.name;
     j["idss_a"] = f.idss_at_vds_a;
@@ -86,6 +91,7 @@ void print_json(const std::vector<fitted_part>& parts, std::ostream& out) {
                     {"rows", rows_json(f)}});
   }
   j["parts"] = list;
+  j["unfit"] = unfit_json(unfit);
   out << json_text(j) << '\n';
 }
 
@@ -165,7 +171,8 @@ void print_one(const base::csv_table& t, const fitted_part& p, std::ostream& out
 }
 
 // Many parts: one line each, with its misfit and the rows that do not fit.
-void print_parts(const base::csv_table& t, const std::vector<fitted_part>& parts, std::ostream& out) {
+void print_parts(const base::csv_table& t, const std::vector<fitted_part>& parts, const std::vector<model::unfit_part>& unfit,
+                 std::ostream& out) {
   out << "fit of " << t.source << " (" << parts.size() << " parts, " << t.rows.size() << " readings, "
       << kind_name(parts.front().readings.table) << ")\n\n";
   text_table tb({align::left, align::right, align::right, align::right, align::right, align::right, align::right,
@@ -190,6 +197,9 @@ void print_parts(const base::csv_table& t, const std::vector<fitted_part>& parts
           << (p.fit.lambda_fitted ? format_number(p.fit.lambda_per_v, 3) + " /V" : std::string("(not fitted)")) << ';';
     out << '\n';
   }
+  for (const model::unfit_part& u : unfit)
+    out << "\nleft out: " << model::part_label(u.name, u.first_line, u.last_line) << ": " << u.reason;
+  if (!unfit.empty()) out << '\n';
   out << "\nThe parts table for `pinchoff match` and `spread --parts`: the same command with --csv.\n";
 }
 
@@ -218,23 +228,16 @@ CLI::App* setup(CLI::App& app, fit_options& opt) {
   return sub;
 }
 
-void run(const fit_options& opt, std::ostream& out) {
+void run(const fit_options& opt, std::ostream& out, std::ostream& err) {
   const base::csv_table t = base::read_csv_file(opt.path, model::bench_readings_file_kind, model::bench_layout());
-  std::vector<fitted_part> parts;
-  for (model::part_readings& pr : model::parts_from_table(t)) {
-    fitted_part p{std::move(pr), {}};
-    try {
-      p.fit = model::fit_square_law(p.readings.table.kind, p.readings.table.readings);
-    } catch (const input_error& e) {
-      throw input_error(t.source + ": " + (p.readings.name.empty() ? std::string() : "part '" + p.readings.name + "' (lines " +
-                        std::to_string(p.readings.first_line) + "-" + std::to_string(p.readings.last_line) + "): ") + e.what());
-    }
-    parts.push_back(std::move(p));
-  }
-  if (opt.json) return print_json(parts, out);
-  if (opt.csv) return write_csv(parts, out);
-  if (parts.size() == 1) return print_one(t, parts.front(), out);
-  print_parts(t, parts, out);
+  const model::bag_fit bag = model::fit_bag(t);  // a part that cannot be fitted is left out, and said so
+  for (const model::unfit_part& u : bag.unfit)
+    err << "pinchoff fit: warning: " << t.source << ": " << model::part_label(u.name, u.first_line, u.last_line)
+        << " left out: " << u.reason << '\n';
+  if (opt.json) return print_json(bag.parts, bag.unfit, out);
+  if (opt.csv) return write_csv(bag.parts, out);
+  if (bag.parts.size() == 1 && bag.unfit.empty()) return print_one(t, bag.parts.front(), out);
+  print_parts(t, bag.parts, bag.unfit, out);
 }
 
 }  // namespace
@@ -242,7 +245,7 @@ void run(const fit_options& opt, std::ostream& out) {
 void register_fit(CLI::App& app, std::vector<command>& commands, const data_files&) {
   auto opt = std::make_shared<fit_options>();
   CLI::App* sub = setup(app, *opt);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&, base::output_set&) { run(*opt, out); }});
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err, base::output_set&) { run(*opt, out, err); }});
 }
 
 }  // namespace pinchoff::cli

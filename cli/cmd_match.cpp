@@ -33,6 +33,7 @@ struct match_options {
 struct match_report {
   std::string source;
   std::vector<model::part_figures> parts;
+  std::vector<model::unfit_part> unfit;  ///< a bag's parts that could not be fitted, left out
   model::match_settings settings;
   model::match_result result;
 };
@@ -64,6 +65,10 @@ void print_json(const match_report& r, std::ostream& out) {
                    {"by", by_vgs ? "vgs" : "idss,vp"},
                    {"sets", sets},
                    {"left_over", names_of(r.result.left_over, r.parts)}};
+  nlohmann::json unfit = nlohmann::json::array();
+  for (const model::unfit_part& u : r.unfit)
+    unfit.push_back({{"part", u.name}, {"first_line", u.first_line}, {"last_line", u.last_line}, {"reason", u.reason}});
+  j["unfit"] = unfit;
   if (by_vgs) j["current_a"] = r.settings.current_a;
   out << json_text(j) << '\n';
 }
@@ -120,6 +125,8 @@ void print_text(const match_report& r, std::ostream& out) {
     if (!cannot.empty())
       out << "\n  (" << joined(cannot) << ": IDSS below " << format_si(r.settings.current_a, "A") << ", cannot carry it)";
   }
+  for (const model::unfit_part& u : r.unfit)
+    out << "\nleft out: " << model::part_label(u.name, u.first_line, u.last_line) << ": " << u.reason;
   out << '\n';
 }
 
@@ -146,11 +153,14 @@ CLI::App* setup(CLI::App& app, match_options& opt) {
   return sub;
 }
 
-void run(const match_options& opt, std::ostream& out) {
+void run(const match_options& opt, std::ostream& out, std::ostream& err) {
   match_report r;
   const base::csv_table t = base::read_csv_file(opt.path, model::bench_readings_file_kind, model::bench_layout());
   r.source = t.source;
-  r.parts = model::read_parts(t);
+  r.parts = model::read_parts(t, &r.unfit);  // the fit's table loop, shared with `fit` (model::fit_bag)
+  for (const model::unfit_part& u : r.unfit)
+    err << "pinchoff match: warning: " << t.source << ": " << model::part_label(u.name, u.first_line, u.last_line)
+        << " left out: " << u.reason << '\n';
   const match_by by = parse_match_by(opt.by);
   r.settings.set_size = opt.sets;
   r.settings.basis = by.basis;
@@ -166,7 +176,7 @@ void run(const match_options& opt, std::ostream& out) {
 void register_match(CLI::App& app, std::vector<command>& commands, const data_files&) {
   auto opt = std::make_shared<match_options>();
   CLI::App* sub = setup(app, *opt);
-  commands.push_back({sub, [opt](std::ostream& out, std::ostream&, base::output_set&) { run(*opt, out); },
+  commands.push_back({sub, [opt](std::ostream& out, std::ostream& err, base::output_set&) { run(*opt, out, err); },
                       {{"set_size", "--sets"}, {"current", "--by"}, {"tolerance", "--tolerance"}}});
 }
 

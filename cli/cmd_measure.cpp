@@ -1,10 +1,14 @@
 // pinchoff measure: harmonic analysis of a recorded test tone (the bench half of the loop
 // that `pinchoff tone` starts).
 #include <algorithm>
+#include <cctype>
 #include <cmath>
+#include <complex>
+#include <numbers>
 #include <cstdio>
 #include <memory>
 #include <optional>
+#include <sstream>
 #include <string>
 #include <vector>
 
@@ -13,14 +17,19 @@
 
 #include "cli/app.hpp"
 #include "cli/common.hpp"
+#include "cli/option_text.hpp"
 #include "cli/plot.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "dsp/io/sound_file.hpp"
 #include "base/units.hpp"
+#include "dsp/exp_sweep.hpp"
+#include "dsp/level_steps.hpp"
+#include "dsp/tone.hpp"
 #include "dsp/windowed_analysis.hpp"
 #include "model/circuit/stage_file.hpp"
 #include "model/analysis/noise.hpp"
+#include "model/analysis/response.hpp"
 #include "model/analysis/sweep.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
@@ -52,6 +61,14 @@ struct measure_options {
   // --noise [--output-cal L]: a recording of noise alone, read unweighted and weighted.
   bool noise{false};
   std::string output_cal_text;
+  // --steps: a staircase, one analysis a step; --input-cal makes dBFS drives volts.
+  bool steps{false};
+  bool csv{false};
+  std::string input_cal_text;
+  // --response PLAYED [--sweep FROM..TO] [--points N]: a recorded sweep's linear response.
+  std::string response_path;
+  std::string sweep_text{"20..20k"};
+  int response_points{200};
 };
 
 // --noise: the readings of a recording that holds noise alone, and the stage's predicted
@@ -96,6 +113,9 @@ struct measure_report {
   dsp::windowed_analysis a;
   std::optional<dsp::display_spectrum> spectrum;  // with --plot
   std::optional<prediction> against;
+  double output_cal_vpk{0.0};  ///< --output-cal: a full-scale sine's peak volts at the recorder; 0: not given
+  double noise_line_dbc{};     ///< what the noise alone reads as a line (noise_line_dbc)
+  std::vector<bool> noise_flags;  ///< each harmonic at that floor
 };
 
 dsp::window_kind parse_window(const std::string& t) {
@@ -119,6 +139,93 @@ std::string fixed(double v, int decimals) {
   return t;
 }
 
+// ---- Calibration and drives (--input-cal, --output-cal, dBFS drives)
+
+// A recorder's or a player's full scale: the peak volts of a full-scale sine there.
+double calibration_vpk(const std::string& text, const char* option) {
+  if (text.empty()) return 0.0;
+  const double v = option_level_vpk(text, option);
+  if (!(v >= 1e-3 && v <= 100.0))
+    throw input_error(std::string(option) + " must be 1 mV to 100 V peak (a full scale), got " +
+                      (v < 1e15 && v >= 1e-15 ? format_si(v, "V") : format_number(v) + " V"));
+  return v;
+}
+
+bool is_dbfs_text(const std::string& t) {
+  std::string l;
+  for (char c : t)
+    if (!std::isspace(static_cast<unsigned char>(c))) l.push_back(static_cast<char>(std::tolower(static_cast<unsigned char>(c))));
+  return l.size() > 4 && l.compare(l.size() - 4, 4, "dbfs") == 0;
+}
+
+// One drive at the generator: a voltage level, or a level of the played file in dBFS made
+// volts by --input-cal (the generator's peak for a full-scale sine in the file).
+double drive_vpk_of(const std::string& text, double input_cal_vpk, const model::stage* source) {
+  if (!is_dbfs_text(text)) return option_level_vpk(text, "--drive", source);
+  if (input_cal_vpk <= 0.0)
+    throw input_error("--drive " + text + " is a level of the played file: give --input-cal, the generator's level "
+                      "when the file holds a full-scale sine (such as 1Vpk or +4dBu), to make it volts");
+  const double dbfs = parse_db_value(text, "dBFS", "--drive");
+  if (dbfs > 0.0) throw input_error("--drive " + text + " is above full scale (0 dBFS at most)");
+  return input_cal_vpk * base::ratio_from_db(dbfs);
+}
+
+void check_drive_range(double vpk) {
+  // A generator's level, as render's --input-peak: beyond these no audio source is met
+  // (common practice), and the prediction's figures lose their meaning (1e300 V gave an
+  // infinite THD).
+  if (!(vpk >= 1e-6 && vpk <= 1e3))
+    throw input_error("--drive must be 1 µV to 1 kV peak at the generator, got " +
+                      (vpk < 1e15 && vpk >= 1e-15 ? format_si(vpk, "V") : format_number(vpk) + " V"));
+}
+
+// --steps --drive: one drive a step, as a comma-separated list of levels or the staircase
+// the played file holds (FROM..TO:STEP in dBFS, as `tone --steps` was given it).
+std::vector<double> step_drives_vpk(const std::string& text, double input_cal_vpk, const model::stage* source) {
+  std::vector<double> d;
+  if (looks_like_staircase(text)) {
+    if (input_cal_vpk <= 0.0)
+      throw input_error("--drive " + text + " is a staircase of the played file's levels: give --input-cal, the "
+                        "generator's level when the file holds a full-scale sine (such as 1Vpk), to make them volts");
+    const staircase_text st = parse_staircase(text, "--drive");
+    for (const dsp::tone_step& s : dsp::level_staircase(st.from_dbfs, st.to_dbfs, st.step_db, 1.0))
+      d.push_back(input_cal_vpk * base::ratio_from_db(s.level_dbfs));
+  } else {
+    std::stringstream ss(text);
+    std::string item;
+    while (std::getline(ss, item, ',')) d.push_back(drive_vpk_of(item, input_cal_vpk, source));
+  }
+  for (double v : d) check_drive_range(v);
+  return d;
+}
+
+// ---- The noise floor under a harmonic
+
+// A measured harmonic within this of the noise in the window's bandwidth reads the noise as
+// much as the line (common practice: 10 dB above the noise for a reading within 0.4 dB).
+constexpr double noise_floor_margin_db = 10.0;
+
+// The level, re the fundamental, that the record's noise alone gives a line read under the
+// window: the noise density (dBc/Hz) over the window's equivalent noise bandwidth, ENBW
+// bins of fs / n (Harris 1978).
+double noise_line_dbc(const dsp::windowed_analysis& a, dsp::window_kind window, double fs_hz, std::size_t n) {
+  const double enbw = dsp::enbw_bins(dsp::make_window(window, 4096));  // in bins, the same at any length to 1e-3
+  return a.noise_floor_dbc_per_hz + 10.0 * std::log10(enbw * fs_hz / static_cast<double>(n));
+}
+
+// Each counted harmonic: true where it lies within noise_floor_margin_db of that level.
+std::vector<bool> at_noise_floor(const dsp::windowed_analysis& a, double line_dbc) {
+  std::vector<bool> flags;
+  for (const double h : a.harmonics_dbc) flags.push_back(std::isfinite(h) && h <= line_dbc + noise_floor_margin_db);
+  return flags;
+}
+
+nlohmann::json flags_json(const std::vector<bool>& flags) {
+  nlohmann::json j = nlohmann::json::array();
+  for (const bool f : flags) j.push_back(f);
+  return j;
+}
+
 // ---- Run
 
 // --against STAGE with its --drive and --set: the stage to predict, read before the
@@ -136,14 +243,9 @@ std::optional<prediction> load_against(const measure_options& o) {
   // A sound pressure level needs the capsule's sensitivity: the stage is read first then.
   const bool spl = is_spl_level(o.drive_text);
   if (spl) p.st = load_stage(p.path, p.overrides, o.devices);
-  p.drive_vpk = option_level_vpk(o.drive_text, "--drive", spl ? &p.st : nullptr);
+  p.drive_vpk = drive_vpk_of(o.drive_text, calibration_vpk(o.input_cal_text, "--input-cal"), spl ? &p.st : nullptr);
   if (!(p.drive_vpk > 0) || !std::isfinite(p.drive_vpk)) throw input_error("--drive must be above 0 V");
-  // A generator's level, as render's --input-peak: beyond these no audio source is met
-  // (common practice), and the prediction's figures lose their meaning (1e300 V gave an
-  // infinite THD).
-  if (!(p.drive_vpk >= 1e-6 && p.drive_vpk <= 1e3))
-    throw input_error("--drive must be 1 µV to 1 kV peak at the generator, got " +
-                      (p.drive_vpk < 1e15 && p.drive_vpk >= 1e-15 ? format_si(p.drive_vpk, "V") : format_number(p.drive_vpk) + " V"));
+  check_drive_range(p.drive_vpk);
   if (!spl) p.st = load_stage(p.path, p.overrides, o.devices);
   return p;
 }
@@ -209,6 +311,10 @@ recording_part open_part(const measure_options& o, const char* why_a_file) {
   return p;
 }
 
+// How far a tone's level may move within the span analysed (dsp::level_spread_db): a steady
+// tone reads under 0.6 dB, the nearest steps of a staircase 1 dB and up apart.
+constexpr double max_level_spread_db = 3.0;
+
 measure_report analyse(const measure_options& o) {
   measure_report r;
   r.path = o.path;
@@ -250,6 +356,14 @@ measure_report analyse(const measure_options& o) {
   std::vector<double> x = dsp::read_channel(rd, o.channel - 1, std::min(count, max_analysed_frames));
   if (x.size() < 64)
     throw input_error("'" + o.path + "' holds " + std::to_string(x.size()) + " frames to analyse; at least 64 are needed");
+  // One THD+N over several levels means nothing (the notch takes one fundamental's level):
+  // a span whose level moves by more than a few dB is refused with the way to measure it.
+  if (const double spread = dsp::level_spread_db(x, fs); spread > max_level_spread_db)
+    throw input_error("'" + o.path + "': the level changes by " + format_number(spread, 3) + " dB within the span analysed (" +
+                      fixed(static_cast<double>(r.first_frame) / fs, 3) + " s to " +
+                      fixed(static_cast<double>(r.first_frame + static_cast<std::int64_t>(x.size())) / fs, 3) +
+                      " s): it holds several levels, and one THD+N over them means nothing. Measure each level with "
+                      "--steps, or choose one with --start and --duration");
   x.resize(dsp::fast_analysis_length(x.size()));
   r.analysed = x.size();
   for (double v : x) r.sample_peak = std::max(r.sample_peak, std::abs(v));
@@ -259,6 +373,8 @@ measure_report analyse(const measure_options& o) {
     throw input_error("'" + o.path + "': " + e.what());  // "no tone found" must say in which file
   }
 
+  r.noise_line_dbc = noise_line_dbc(r.a, r.window, fs, x.size());
+  r.noise_flags = at_noise_floor(r.a, r.noise_line_dbc);
   if (!o.plot_path.empty())
     r.spectrum = dsp::spectrum_for_display(x, fs, r.window, std::min(10.0, fs / 2 / 100), fs / 2);
   return r;
@@ -307,6 +423,10 @@ std::string signed_db(double v) {
 noise_report analyse_noise_recording(const measure_options& o) {
   if (!o.drive_text.empty())
     throw input_error("--drive goes with a tone: --noise reads a recording of the stage's output with no signal");
+  if (o.steps) throw input_error("--steps and --noise: choose one (a staircase of tones, or a recording of noise alone)");
+  if (!o.input_cal_text.empty())
+    throw input_error("--input-cal goes with a tone's --drive: --noise reads a recording with no signal");
+  if (o.csv) throw input_error("--csv goes with --steps (one row a step)");
   if (o.freq_text != "auto") throw input_error("--freq goes with a tone: --noise reads a recording with no signal");
   if (!o.plot_path.empty()) throw input_error("--plot draws a tone's spectrum; with --noise there is no tone to mark");
   if (!o.against_path.empty() && o.output_cal_text.empty())
@@ -480,11 +600,16 @@ void write_against_text(const measure_report& r, std::ostream& out) {
     const double m = a.harmonics_dbc[i];
     const double q = i < pt.harmonics_dbc.size() ? pt.harmonics_dbc[i] : std::nan("");
     const bool is_floor = below_numerical_floor(q);  // a mark, not a number (cli/common.hpp)
-    t.add({"H" + std::to_string(n), dbc_text(m), is_floor ? std::string(floor_mark) + " dBc" : dbc_text(q),
-           is_floor ? std::string("-") : signed_db(m - q)});
+    const bool is_noise = r.noise_flags[i];
+    t.add({"H" + std::to_string(n), dbc_text(m) + (is_noise ? " (noise)" : ""),
+           is_floor ? std::string(floor_mark) + " dBc" : dbc_text(q), is_floor && is_noise ? std::string("-") : signed_db(m - q)});
   }
   t.add({"THD", format_number(a.thd_percent, 4) + " %", format_number(pt.thd_percent, 4) + " %",
          signed_db(base::db_from_ratio(a.thd_ratio / pt.thd_ratio))});
+  if (r.output_cal_vpk > 0.0) {
+    const double gain_db = base::db_from_ratio(a.fundamental_vpk * r.output_cal_vpk / p.drive_vpk);
+    t.add({"gain", fixed(gain_db, 2) + " dB", fixed(pt.gain_db, 2) + " dB", signed_db(gain_db - pt.gain_db)});
+  }
   t.write(out);
   out << "  difference: measured minus predicted; dBc figures do not depend on the recording's gain.\n"
          "  A measured harmonic near the noise floor reads the noise, not the "
@@ -511,6 +636,9 @@ void write_text(const measure_report& r, std::ostream& out) {
   text_table f({align::left, align::right});
   f.add({"frequency", fixed(a.fundamental_hz, 4) + " Hz"});
   f.add({"level", fixed(base::db_from_ratio(a.fundamental_vpk), 2) + " dBFS"});
+  if (r.output_cal_vpk > 0.0)
+    f.add({"output", format_si(a.fundamental_vpk * r.output_cal_vpk, "Vpk") + " (" +
+                         fixed(base::dbu_from_vpk(a.fundamental_vpk * r.output_cal_vpk), 2) + " dBu, --output-cal)"});
   f.add({"DC", fixed(base::db_from_ratio(std::abs(a.dc_v)), 1) + " dBFS"});
   f.write(out);
 
@@ -524,9 +652,11 @@ void write_text(const measure_report& r, std::ostream& out) {
       continue;
     }
     h.add({"H" + std::to_string(n), format_si(fh, "Hz", 4), dbc_text(a.harmonics_dbc[i]),
-           fixed(base::db_from_ratio(a.harmonics_vpk[i]), 2) + " dBFS"});
+           fixed(base::db_from_ratio(a.harmonics_vpk[i]), 2) + " dBFS" + (r.noise_flags[i] ? "  at the noise floor" : "")});
   }
   h.write(out);
+  out << "  at the noise floor: within " << format_number(noise_floor_margin_db, 2) << " dB of what the noise alone reads there ("
+      << fixed(r.noise_line_dbc, 1) << " dBc in the window's bandwidth)\n";
 
   out << "\nTotals\n";
   text_table t({align::left, align::right, align::right});
@@ -577,7 +707,13 @@ void write_json(const measure_report& r, std::ostream& out) {
                    {"noise_a_dbfs", dbfs_from_rms(a.noise_a_rms_v)},
                    {"noise_468_dbfs", dbfs_from_rms(a.noise_468_rms_v)},
                    {"noise_density_dbc_per_hz", a.noise_floor_dbc_per_hz},
-                   {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)}};
+                   {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)},
+                   {"noise_line_dbc", r.noise_line_dbc},
+                   {"harmonics_at_noise_floor", flags_json(r.noise_flags)}};
+  if (r.output_cal_vpk > 0.0) {
+    j["output_cal_vpk"] = r.output_cal_vpk;
+    j["output_vpk"] = a.fundamental_vpk * r.output_cal_vpk;
+  }
   if (r.against) {
     const prediction& p = *r.against;
     const model::sweep_point& pt = p.point();
@@ -589,7 +725,9 @@ void write_json(const measure_report& r, std::ostream& out) {
       const double q = i < pt.harmonics_dbc.size() ? pt.harmonics_dbc[i] : std::nan("");
       predicted.push_back(q);
       hs.push_back(dbc_or_null(q));
-      diff.push_back(below_numerical_floor(q) ? nlohmann::json(nullptr) : number_or_null(a.harmonics_dbc[i] - q));
+      // Two floors (the model's numerical one, the recording's noise) have no difference.
+      diff.push_back(below_numerical_floor(q) && r.noise_flags[i] ? nlohmann::json(nullptr)
+                                                                   : number_or_null(a.harmonics_dbc[i] - q));
     }
     j["against"] = {{"stage_path", p.path},
                     {"overrides", p.overrides},
@@ -610,6 +748,12 @@ void write_json(const measure_report& r, std::ostream& out) {
                     {"thd_difference_db", number_or_null(base::db_from_ratio(a.thd_ratio / pt.thd_ratio))},
                     {"steady_state_converged", pt.converged},
                     {"warnings", p.warnings}};
+    j["against"]["gain_db"] = pt.gain_db;
+    if (r.output_cal_vpk > 0.0) {
+      const double gain_db = base::db_from_ratio(a.fundamental_vpk * r.output_cal_vpk / p.drive_vpk);
+      j["against"]["measured_gain_db"] = gain_db;
+      j["against"]["gain_difference_db"] = gain_db - pt.gain_db;
+    }
   }
   out << json_text(j) << '\n';
 }
@@ -641,13 +785,684 @@ void write_plot(const measure_report& r, const measure_options& o, base::output_
 }
 
 measure_report run(const measure_options& o) {
-  if (!o.output_cal_text.empty())
-    throw input_error("--output-cal goes with --noise (a tone's figures are in dBc and need no calibration)");
+  if (o.csv) throw input_error("--csv goes with --steps (one row a step); a single tone's report is --json");
+  if (!o.input_cal_text.empty() && o.against_path.empty())
+    throw input_error("--input-cal goes with --against and its --drive: it makes drives in dBFS of the played file volts");
+  const double output_cal = calibration_vpk(o.output_cal_text, "--output-cal");
   std::optional<prediction> against = load_against(o);
   measure_report r = analyse(o);
+  r.output_cal_vpk = output_cal;
   r.against = std::move(against);
   if (r.against) predict(r, o);
   return r;
+}
+
+// ---- A staircase (--steps)
+
+// The rms of each whole block of `block` frames of one channel of [first, first + count).
+std::vector<double> stream_block_rms(dsp::sound_reader& rd, int channel, std::int64_t first, std::int64_t count,
+                                     std::size_t block) {
+  rd.seek(first);
+  const auto ch = static_cast<std::size_t>(rd.info().channels);
+  std::vector<double> buf(8192 * ch), rms;
+  double sum = 0.0;
+  std::size_t in_block = 0;
+  std::int64_t done = 0;
+  while (done < count) {
+    const std::size_t want = static_cast<std::size_t>(std::min<std::int64_t>(8192, count - done));
+    const std::size_t got = rd.read(std::span<double>(buf).first(want * ch));
+    if (got == 0) break;
+    for (std::size_t i = 0; i < got; ++i) {
+      const double v = buf[i * ch + static_cast<std::size_t>(channel)];
+      sum += v * v;
+      if (++in_block == block) {
+        rms.push_back(std::sqrt(sum / static_cast<double>(block)));
+        sum = 0.0;
+        in_block = 0;
+      }
+    }
+    done += static_cast<std::int64_t>(got);
+  }
+  return rms;
+}
+
+struct step_row {
+  std::int64_t first_frame{0};  ///< in the file
+  std::size_t analysed{0};
+  dsp::windowed_analysis a;
+  double noise_line_dbc{};
+  std::vector<bool> noise_flags;  ///< each harmonic at the noise floor
+};
+
+struct steps_report {
+  std::string path;
+  dsp::sound_info info;
+  int channel{1};
+  dsp::window_kind window{};
+  double band_high_hz{};
+  int harmonics{model::default_harmonics};
+  std::int64_t first_frame{0}, count{0};  ///< the part searched
+  std::vector<step_row> steps;
+  std::vector<dsp::sample_range> no_tone;  ///< plateaus without a tone, in frames of the file
+  double input_cal_vpk{0.0}, output_cal_vpk{0.0};
+  std::optional<prediction> against;       ///< one sweep point a step, in order
+};
+
+// A plateau whose band power lies mostly off its strongest line holds no tone: noise, or the
+// recorder's floor between takes. A square wave, the most distorted test tone there is,
+// reads 43 % THD+N; this is far past it.
+constexpr double no_tone_thd_n = 0.9;
+
+steps_report analyse_steps(const measure_options& o) {
+  steps_report r;
+  r.path = o.path;
+  r.window = parse_window(o.window_text);
+  r.harmonics = o.harmonics;
+  if (o.harmonics < 2 || o.harmonics > 100) throw input_error("--harmonics must be 2 to 100, got " + std::to_string(o.harmonics));
+  if (!(o.start_s >= 0.0) || !(o.duration_s >= 0.0)) throw input_error("--start and --duration must not be negative");
+  r.input_cal_vpk = calibration_vpk(o.input_cal_text, "--input-cal");
+  r.output_cal_vpk = calibration_vpk(o.output_cal_text, "--output-cal");
+  dsp::windowed_settings s;
+  s.window = r.window;
+  s.harmonics = o.harmonics;
+  s.band_high_hz = option_frequency_hz(o.bandwidth_text, "--bandwidth");
+  if (!(s.band_high_hz > s.band_low_hz))
+    throw input_error("--bandwidth " + o.bandwidth_text + " must lie above the band's low edge, " +
+                      format_si(s.band_low_hz, "Hz") + " (AES17)");
+  if (o.freq_text != "auto") s.approx_fundamental_hz = option_frequency_hz(o.freq_text, "--freq");
+
+  recording_part part = open_part(o, "measure --steps reads the recording twice (to find its steps, then to analyse each)");
+  dsp::sound_reader& rd = part.rd;
+  r.info = rd.info();
+  r.channel = o.channel;
+  const double fs = r.info.rate_hz;
+  r.band_high_hz = s.band_high_hz = std::min(s.band_high_hz, fs / 2);
+  if (s.approx_fundamental_hz >= fs / 2)
+    throw input_error("--freq " + o.freq_text + " lies above half the file's sample rate (" + format_si(fs / 2, "Hz") + ")");
+  r.first_frame = part.first;
+  r.count = part.count;
+  const std::size_t block = dsp::step_block_samples(fs);
+  const std::vector<double> rms = stream_block_rms(rd, o.channel - 1, part.first, part.count, block);
+  const std::vector<dsp::sample_range> found = dsp::find_level_steps(rms, block);
+  if (found.empty())
+    throw input_error("'" + o.path + "': no step found: no level holds for " +
+                      format_number(static_cast<double>(dsp::step_settings{}.min_step_blocks) * dsp::step_block_seconds, 2) +
+                      " s or more within " + format_number(dsp::step_settings{}.tolerance_db, 2) +
+                      " dB (a staircase's steps must differ by more than 1 dB)");
+
+  // Each step read on its own; the loudest first, without a frequency unless --freq gave
+  // one, and the others at its frequency, so a quiet step near the floor does not lock onto
+  // hum.
+  std::size_t loudest = 0;
+  double loudest_rms = -1.0;
+  for (std::size_t k = 0; k < found.size(); ++k) {
+    double sum = 0.0;
+    for (std::size_t b = found[k].begin / block; b < found[k].end / block; ++b) sum += rms[b] * rms[b];
+    const double m = sum / static_cast<double>(std::max<std::size_t>(1, (found[k].end - found[k].begin) / block));
+    if (m > loudest_rms) {
+      loudest_rms = m;
+      loudest = k;
+    }
+  }
+  std::vector<std::optional<step_row>> rows(found.size());
+  const auto analyse_one = [&](std::size_t k, const dsp::windowed_settings& ws) {
+    step_row row;
+    row.first_frame = part.first + static_cast<std::int64_t>(found[k].begin);
+    rd.seek(row.first_frame);
+    std::vector<double> x =
+        dsp::read_channel(rd, o.channel - 1, std::min<std::int64_t>(static_cast<std::int64_t>(found[k].end - found[k].begin), max_analysed_frames));
+    x.resize(dsp::fast_analysis_length(x.size()));
+    row.analysed = x.size();
+    try {
+      row.a = dsp::analyse_windowed(x, fs, ws);
+    } catch (const input_error&) {
+      return std::optional<step_row>{};  // no tone in it (silence under noise, DC)
+    }
+    if (row.a.thd_n_ratio > no_tone_thd_n) return std::optional<step_row>{};
+    row.noise_line_dbc = noise_line_dbc(row.a, ws.window, fs, x.size());
+    row.noise_flags = at_noise_floor(row.a, row.noise_line_dbc);
+    return std::optional<step_row>{row};
+  };
+  rows[loudest] = analyse_one(loudest, s);
+  if (!rows[loudest])
+    throw input_error("'" + o.path + "': no tone found in its loudest step (from " +
+                      fixed(static_cast<double>(part.first + static_cast<std::int64_t>(found[loudest].begin)) / fs, 3) + " s)");
+  dsp::windowed_settings at = s;
+  at.approx_fundamental_hz = rows[loudest]->a.fundamental_hz;
+  for (std::size_t k = 0; k < found.size(); ++k)
+    if (k != loudest) rows[k] = analyse_one(k, at);
+  for (std::size_t k = 0; k < found.size(); ++k) {
+    if (rows[k]) r.steps.push_back(std::move(*rows[k]));
+    else
+      r.no_tone.push_back({static_cast<std::size_t>(part.first) + found[k].begin, static_cast<std::size_t>(part.first) + found[k].end});
+  }
+  return r;
+}
+
+// The model at every step's drive, in one sweep at the loudest step's frequency.
+void predict_steps(steps_report& r, const measure_options& o) {
+  prediction& p = *r.against;
+  const bool spl = is_spl_level(o.drive_text);
+  const std::vector<double> drives = step_drives_vpk(o.drive_text, r.input_cal_vpk, spl ? &p.st : nullptr);
+  if (drives.size() != r.steps.size()) {
+    std::string where;
+    for (std::size_t k = 0; k < r.steps.size() && k < 12; ++k)
+      where += (k ? ", " : "") + fixed(static_cast<double>(r.steps[k].first_frame) / r.info.rate_hz, 2) + " s";
+    throw input_error("--drive gives " + std::to_string(drives.size()) + " level" + (drives.size() == 1 ? "" : "s") +
+                      " but the recording holds " + std::to_string(r.steps.size()) + " step" +
+                      (r.steps.size() == 1 ? "" : "s") + " with a tone (from " + where + (r.steps.size() > 12 ? ", ..." : "") +
+                      "): give one drive a step, in the order they were played");
+  }
+  double f_hz = 0.0, loudest = -1.0;
+  for (const step_row& s : r.steps)
+    if (s.a.fundamental_vpk > loudest) {
+      loudest = s.a.fundamental_vpk;
+      f_hz = s.a.fundamental_hz;
+    }
+  model::sweep_settings s;
+  s.frequency_hz = f_hz;
+  s.drives_vpk = drives;
+  s.harmonics = o.harmonics;
+  s.bandwidth_hz = r.band_high_hz;
+  if (!(s.frequency_hz < 0.5 * s.base_rate_hz))
+    throw input_error("the recording's fundamental, " + format_si(s.frequency_hz, "Hz") + ", lies above the " +
+                      format_si(0.5 * s.base_rate_hz, "Hz") + " the model's test tone can reach");
+  p.drive_vpk = drives.front();
+  p.sweep = model::run_sweep(p.st, s);
+  int failed = 0, unsettled = 0;
+  for (const model::sweep_point& pt : p.sweep.points) {
+    failed += static_cast<int>(pt.newton.failed);
+    unsettled += pt.converged ? 0 : 1;
+  }
+  if (failed > 0) p.warnings.push_back(std::to_string(failed) + " samples of the prediction did not converge even sub-stepped");
+  if (unsettled > 0)
+    p.warnings.push_back("the prediction's steady state was not reached at " + std::to_string(unsettled) + " drive" +
+                         (unsettled == 1 ? "" : "s"));
+}
+
+steps_report run_steps(const measure_options& o) {
+  if (o.json && o.csv) throw input_error("--json and --csv: choose one");
+  if (!o.input_cal_text.empty() && o.against_path.empty())
+    throw input_error("--input-cal goes with --against and its --drive: it makes drives in dBFS of the played file volts");
+  if (!o.drive_text.empty() && o.against_path.empty())
+    throw input_error("--drive and --set go with --against STAGE (the stage to predict)");
+  if (!o.against_path.empty() && o.drive_text.empty())
+    throw input_error("--steps --against needs --drive: one generator level a step (a list, or the staircase the played "
+                      "file holds, such as -40dBFS..0dBFS:6 with --input-cal)");
+  std::optional<prediction> against;
+  if (!o.against_path.empty()) {
+    against.emplace();
+    against->path = o.against_path;
+    against->overrides = o.overrides;
+    against->st = load_stage(o.against_path, o.overrides, o.devices);
+  } else if (!o.overrides.empty()) {
+    throw input_error("--drive and --set go with --against STAGE (the stage to predict)");
+  }
+  steps_report r = analyse_steps(o);
+  r.against = std::move(against);
+  if (r.against) predict_steps(r, o);
+  return r;
+}
+
+// A measured harmonic, or a predicted one, as text ("n/a" above the band).
+std::string step_dbc(double v) { return std::isfinite(v) ? fixed(v, 1) : "n/a"; }
+std::string predicted_dbc(double v) {
+  if (below_numerical_floor(v)) return floor_mark;
+  return step_dbc(v);
+}
+double harmonic_of(const std::vector<double>& h, int n) {
+  const auto i = static_cast<std::size_t>(n - 2);
+  return i < h.size() ? h[i] : std::nan("");
+}
+
+void write_steps_text(const steps_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  out << r.path << ": " << r.info.format_text << ", "
+      << (fs == std::floor(fs) ? std::to_string(static_cast<long long>(fs)) : format_number(fs, 6)) << " Hz, " << r.info.channels
+      << (r.info.channels == 1 ? " channel, " : " channels, ") << format_number(r.info.seconds(), 4) << " s\n";
+  out << "  channel " << r.channel << ", " << r.steps.size() << " step" << (r.steps.size() == 1 ? "" : "s")
+      << " with a tone found from " << fixed(static_cast<double>(r.first_frame) / fs, 3) << " s to "
+      << fixed(static_cast<double>(r.first_frame + r.count) / fs, 3) << " s; each read alone, "
+      << format_number(dsp::step_block_seconds * 1000.0, 3) << " ms left at each end\n"
+      << "  window " << window_description(r.window) << "; band 20 Hz to " << format_si(r.band_high_hz, "Hz") << " (AES17)\n";
+  for (const dsp::sample_range& n : r.no_tone)
+    out << "  ! a level held from " << fixed(static_cast<double>(n.begin) / fs, 3) << " s to "
+        << fixed(static_cast<double>(n.end) / fs, 3) << " s holds no tone (noise or silence): left out\n";
+  const bool cal = r.output_cal_vpk > 0.0;
+  out << "\nSteps\n";
+  std::vector<align> al(cal ? 10 : 9, align::right);
+  text_table t(al);
+  std::vector<std::string> head{"step", "from", "length", "frequency", "level"};
+  if (cal) head.push_back("output");
+  for (const char* h : {"THD", "THD+N", "H2", "H3"}) head.push_back(h);
+  t.add(head);
+  for (std::size_t k = 0; k < r.steps.size(); ++k) {
+    const step_row& s = r.steps[k];
+    std::vector<std::string> row{std::to_string(k + 1), fixed(static_cast<double>(s.first_frame) / fs, 3) + " s",
+                                 fixed(static_cast<double>(s.analysed) / fs, 3) + " s", fixed(s.a.fundamental_hz, 2) + " Hz",
+                                 fixed(base::db_from_ratio(s.a.fundamental_vpk), 2) + " dBFS"};
+    if (cal) row.push_back(format_si(s.a.fundamental_vpk * r.output_cal_vpk, "Vpk"));
+    row.push_back(format_number(s.a.thd_percent, 3) + " %");
+    row.push_back(format_number(s.a.thd_n_percent, 3) + " %");
+    for (int n : {2, 3})
+      row.push_back(step_dbc(harmonic_of(s.a.harmonics_dbc, n)) + " dBc" +
+                    (static_cast<std::size_t>(n - 2) < s.noise_flags.size() && s.noise_flags[static_cast<std::size_t>(n - 2)] ? "*" : " "));
+    t.add(row);
+  }
+  t.write(out);
+  out << "  *: at the noise floor, within " << format_number(noise_floor_margin_db, 2)
+      << " dB of what the step's noise alone reads as a line.\n";
+  out << "  level: the fundamental's peak in dBFS (0 for a sine reaching full scale)"
+      << (cal ? "; output: in volts through --output-cal" : "")
+      << ";\n  THD counts H2..H" << r.harmonics << " in the band (--json and --csv give each harmonic).\n";
+  if (!r.against) return;
+  const prediction& p = *r.against;
+  out << "\nAgainst the model\n  " << p.path;
+  for (const std::string& ov : p.overrides) out << " --set " << ov;
+  out << ": " << p.st.name << ", at " << fixed(p.sweep.frequency_hz, 3) << " Hz, " << p.sweep.oversample << "x oversampling\n";
+  for (const std::string& w : p.warnings) out << "  ! " << w << '\n';
+  out << '\n';
+  std::vector<std::string> head2{"step", "drive", "THD", "predicted", "H2", "predicted", "H3", "predicted"};
+  if (cal) {
+    head2.push_back("gain");
+    head2.push_back("predicted");
+  }
+  text_table a(std::vector<align>(head2.size(), align::right));
+  a.add(head2);
+  for (std::size_t k = 0; k < r.steps.size(); ++k) {
+    const dsp::windowed_analysis& m = r.steps[k].a;
+    const model::sweep_point& pt = p.sweep.points[k];
+    std::vector<std::string> row{std::to_string(k + 1), fixed(base::dbu_from_vpk(pt.drive_vpk), 2) + " dBu",
+                                 format_number(m.thd_percent, 3) + " %", format_number(pt.thd_percent, 3) + " %",
+                                 step_dbc(harmonic_of(m.harmonics_dbc, 2)), predicted_dbc(harmonic_of(pt.harmonics_dbc, 2)),
+                                 step_dbc(harmonic_of(m.harmonics_dbc, 3)), predicted_dbc(harmonic_of(pt.harmonics_dbc, 3))};
+    if (cal) {
+      row.push_back(fixed(base::db_from_ratio(m.fundamental_vpk * r.output_cal_vpk / pt.drive_vpk), 2) + " dB");
+      row.push_back(fixed(pt.gain_db, 2) + " dB");
+    }
+    a.add(row);
+  }
+  a.write(out);
+  out << "  H2, H3 in dBc; drive: the generator's level at each step"
+      << (r.input_cal_vpk > 0.0 ? " (the played file's levels through --input-cal)" : "")
+      << (cal ? ";\n  gain: from the generator to the load, measured through --output-cal" : "")
+      << ".\n  A measured harmonic near the noise floor reads the noise, not the " << (p.st.is_chain() ? "chain" : "stage")
+      << ".\n";
+}
+
+nlohmann::json harmonics_json(const std::vector<double>& h) {
+  nlohmann::json a = nlohmann::json::array();
+  for (double v : h) a.push_back(number_or_null(v));
+  return a;
+}
+
+void write_steps_json(const steps_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  nlohmann::json steps = nlohmann::json::array();
+  for (std::size_t k = 0; k < r.steps.size(); ++k) {
+    const step_row& s = r.steps[k];
+    nlohmann::json j{{"start_s", static_cast<double>(s.first_frame) / fs},
+                     {"duration_s", static_cast<double>(s.analysed) / fs},
+                     {"fundamental_hz", s.a.fundamental_hz},
+                     {"fundamental_dbfs", base::db_from_ratio(s.a.fundamental_vpk)},
+                     {"highest_harmonic", s.a.highest_harmonic},
+                     {"harmonics_dbc", harmonics_json(s.a.harmonics_dbc)},
+                     {"thd_percent", s.a.thd_percent},
+                     {"thd_n_percent", s.a.thd_n_percent},
+                     {"noise_dbc", s.a.noise_dbc},
+                     {"noise_line_dbc", s.noise_line_dbc},
+                     {"harmonics_at_noise_floor", flags_json(s.noise_flags)}};
+    if (r.output_cal_vpk > 0.0) j["output_vpk"] = s.a.fundamental_vpk * r.output_cal_vpk;
+    if (r.against) {
+      const model::sweep_point& pt = r.against->sweep.points[k];
+      nlohmann::json hs = nlohmann::json::array();
+      for (double v : pt.harmonics_dbc) hs.push_back(dbc_or_null(v));
+      j["predicted"] = {{"drive_vpk", pt.drive_vpk},
+                        {"drive_dbu", base::dbu_from_vpk(pt.drive_vpk)},
+                        {"output_vpk", pt.output_vpk},
+                        {"gain_db", pt.gain_db},
+                        {"thd_percent", pt.thd_percent},
+                        {"harmonics_dbc", hs},
+                        {"harmonics_below_floor", below_floor_json(pt.harmonics_dbc)},
+                        {"steady_state_converged", pt.converged}};
+      if (r.output_cal_vpk > 0.0) j["gain_db"] = base::db_from_ratio(s.a.fundamental_vpk * r.output_cal_vpk / pt.drive_vpk);
+    }
+    steps.push_back(j);
+  }
+  nlohmann::json no_tone = nlohmann::json::array();
+  for (const dsp::sample_range& n : r.no_tone)
+    no_tone.push_back({{"start_s", static_cast<double>(n.begin) / fs}, {"duration_s", static_cast<double>(n.end - n.begin) / fs}});
+  nlohmann::json j{{"path", r.path},
+                   {"mode", "steps"},
+                   {"rate_hz", fs},
+                   {"channel", r.channel},
+                   {"window", std::string(dsp::window_name(r.window))},
+                   {"bandwidth_hz", r.band_high_hz},
+                   {"steps", steps},
+                   {"without_tone", no_tone}};
+  if (r.input_cal_vpk > 0.0) j["input_cal_vpk"] = r.input_cal_vpk;
+  if (r.output_cal_vpk > 0.0) j["output_cal_vpk"] = r.output_cal_vpk;
+  if (r.against) {
+    const prediction& p = *r.against;
+    j["against"] = {{"stage_path", p.path},     {"overrides", p.overrides},
+                    {"name", p.st.name},         {"frequency_hz", p.sweep.frequency_hz},
+                    {"oversampling", p.sweep.oversample}, {"numerical_floor_dbc", model::numerical_floor_dbc},
+                    {"warnings", p.warnings}};
+  }
+  out << json_text(j) << '\n';
+}
+
+// CSV: one row a step, the harmonics one column each; the model's beside them with --against.
+void write_steps_csv(const steps_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  const int n = r.harmonics;
+  const bool cal = r.output_cal_vpk > 0.0;
+  out << "step,start_s,duration_s,fundamental_hz,fundamental_dbfs,thd_percent,thd_n_percent";
+  for (int h = 2; h <= n; ++h) out << ",h" << h << "_dbc";
+  if (cal) out << ",output_vpk";
+  if (r.against) {
+    out << ",drive_vpk,predicted_output_vpk,predicted_gain_db,predicted_thd_percent";
+    for (int h = 2; h <= n; ++h) out << ",predicted_h" << h << "_dbc";
+    if (cal) out << ",gain_db";
+  }
+  out << '\n';
+  const auto num = [](double v) { return std::isfinite(v) ? format_number(v, 9) : std::string(); };
+  for (std::size_t k = 0; k < r.steps.size(); ++k) {
+    const dsp::windowed_analysis& a = r.steps[k].a;
+    out << k + 1 << ',' << num(static_cast<double>(r.steps[k].first_frame) / fs) << ','
+        << num(static_cast<double>(r.steps[k].analysed) / fs) << ',' << num(a.fundamental_hz) << ','
+        << num(base::db_from_ratio(a.fundamental_vpk)) << ',' << num(a.thd_percent) << ',' << num(a.thd_n_percent);
+    for (int h = 2; h <= n; ++h) out << ',' << num(harmonic_of(a.harmonics_dbc, h));
+    if (cal) out << ',' << num(a.fundamental_vpk * r.output_cal_vpk);
+    if (r.against) {
+      const model::sweep_point& pt = r.against->sweep.points[k];
+      out << ',' << num(pt.drive_vpk) << ',' << num(pt.output_vpk) << ',' << num(pt.gain_db) << ',' << num(pt.thd_percent);
+      for (int h = 2; h <= n; ++h) {
+        const double v = harmonic_of(pt.harmonics_dbc, h);
+        out << ',' << (below_numerical_floor(v) ? std::string() : num(v));  // below the floor: no figure
+      }
+      if (cal) out << ',' << num(base::db_from_ratio(a.fundamental_vpk * r.output_cal_vpk / pt.drive_vpk));
+    }
+    out << '\n';
+  }
+}
+
+// THD, H2 and H3 against the step's level, measured and (with --against) predicted.
+void write_steps_plot(const steps_report& r, const measure_options& o, base::output_set& outputs) {
+  const bool cal = r.output_cal_vpk > 0.0;
+  line_plot p;
+  p.title = "Steps of " + std::filesystem::path(o.path).filename().string() + ", channel " + std::to_string(o.channel);
+  p.x = axis{cal ? "output level (dBu)" : "output level (dBFS, sine peak)", axis_scale::linear, {}, {}, false};
+  p.top.y = axis{"re the fundamental (dB)", axis_scale::linear, {}, {}, false};
+  const auto level = [&](const step_row& s) {
+    return cal ? base::dbu_from_vpk(s.a.fundamental_vpk * r.output_cal_vpk) : base::db_from_ratio(s.a.fundamental_vpk);
+  };
+  const char* names[] = {"THD", "H2", "H3"};
+  for (int which = 0; which < 3; ++which) {
+    series m{std::string(names[which]) + " measured", {}, {}, true};
+    series q{std::string(names[which]) + " model", {}, {}, true};
+    for (std::size_t k = 0; k < r.steps.size(); ++k) {
+      const step_row& s = r.steps[k];
+      const double x = level(s);
+      m.x.push_back(x);
+      m.y.push_back(which == 0 ? s.a.thd_db : harmonic_of(s.a.harmonics_dbc, which + 1));
+      if (r.against) {
+        const model::sweep_point& pt = r.against->sweep.points[k];
+        const double v = which == 0 ? pt.thd_db : harmonic_of(pt.harmonics_dbc, which + 1);
+        q.x.push_back(x);
+        q.y.push_back(below_numerical_floor(v) ? std::nan("") : v);  // below the floor: no point
+      }
+    }
+    p.top.lines.push_back(std::move(m));
+    if (r.against) p.top.lines.push_back(std::move(q));
+  }
+  add_svg_output(outputs, o.plot_path, render_svg(p));
+}
+
+// ---- A frequency response from a recorded sweep (--response PLAYED)
+
+struct response_report {
+  std::string path, played_path;
+  dsp::sound_info info;
+  int channel{1};
+  dsp::exp_sweep_plan plan;
+  double delay_s{};             ///< the linear response's peak: the recording chain's latency, to the sample
+  double trusted_low_hz{}, trusted_high_hz{};
+  std::vector<double> frequency_hz;
+  std::vector<std::complex<double>> measured;  ///< recording re played file (full scale per full scale), or V/V calibrated
+  std::vector<std::vector<double>> harmonics_dbc;  ///< H2..H5 a point; NaN outside the band
+  double input_cal_vpk{0.0}, output_cal_vpk{0.0};
+  bool calibrated() const { return input_cal_vpk > 0.0 && output_cal_vpk > 0.0; }
+  double reference_hz{};  ///< uncalibrated: both curves read re their value here
+  // --against
+  std::string stage_path;
+  std::vector<std::string> overrides;
+  std::string stage_name;
+  std::vector<std::complex<double>> model;  ///< V/V at the load re the generator
+};
+
+constexpr int response_harmonics = 5;  // H2..H5 read from the sweep
+
+response_report analyse_response_recording(const measure_options& o) {
+  if (!o.drive_text.empty())
+    throw input_error("--drive goes with a tone: --response reads a recorded sweep, whose level is the played file's");
+  if (o.steps || o.noise) throw input_error("--response, --steps and --noise: choose one");
+  if (o.freq_text != "auto") throw input_error("--freq goes with a tone: a sweep covers the band given by --sweep");
+  if (o.json && o.csv) throw input_error("--json and --csv: choose one");
+  if (!o.overrides.empty() && o.against_path.empty()) throw input_error("--set goes with --against STAGE (the stage to predict)");
+  if (!(o.response_points >= 2 && o.response_points <= 2000))
+    throw input_error("--points must be 2 to 2000, got " + std::to_string(o.response_points));
+  response_report r;
+  r.path = o.path;
+  r.played_path = o.response_path;
+  r.input_cal_vpk = calibration_vpk(o.input_cal_text, "--input-cal");
+  r.output_cal_vpk = calibration_vpk(o.output_cal_text, "--output-cal");
+  if ((r.input_cal_vpk > 0.0) != (r.output_cal_vpk > 0.0))
+    throw input_error("--response compares volts only with both calibrations: --input-cal (the generator's level for a "
+                      "full-scale sine in the played file) and --output-cal (a full-scale sine's level at the recorder)");
+  const base::value_range band = base::parse_range(o.sweep_text, base::unit::hertz, "--sweep");
+  std::optional<model::stage> st;
+  if (!o.against_path.empty()) st = load_stage(o.against_path, o.overrides, o.devices);
+
+  recording_part part = open_part(o, "measure --response reads the recording from a file");
+  r.info = part.rd.info();
+  r.channel = o.channel;
+  const double fs = r.info.rate_hz;
+  part.rd.seek(part.first);
+  const std::vector<double> y = dsp::read_channel(part.rd, o.channel - 1, std::min<std::int64_t>(part.count, 2 * static_cast<std::int64_t>(dsp::max_sweep_frames)));
+
+  dsp::sound_reader played = dsp::sound_reader::open(o.response_path);
+  if (played.info().rate_hz != fs)
+    throw input_error("'" + o.response_path + "' is at " + format_number(played.info().rate_hz) + " Hz and '" + o.path + "' at " +
+                      format_number(fs) + " Hz: record at the rate the sweep was played");
+  if (played.info().frames > static_cast<std::int64_t>(dsp::max_sweep_frames))
+    throw input_error("'" + o.response_path + "' holds " + std::to_string(played.info().frames) + " frames; a sweep is at most " +
+                      std::to_string(dsp::max_sweep_frames));
+  const std::vector<double> x = dsp::read_channel(played, 0);
+  r.plan.start_hz = band.lo;
+  r.plan.end_hz = band.hi;
+  r.plan.rate_hz = fs;
+  r.plan.seconds = static_cast<double>(x.size()) / fs;
+  r.plan.level_dbfs = 0.0;     // the played file's own samples are divided out: its level is in them
+  r.plan.fade_seconds = 0.0;   // and so are its fades
+  dsp::sweep_deconvolution d;
+  try {
+    d = dsp::deconvolve_sweep(y, x, r.plan);
+  } catch (const setting_error& e) {
+    const std::string f = e.field();
+    throw input_error((f == "seconds" ? "'" + o.response_path + "' (the played sweep): " : std::string("--sweep ") + o.sweep_text + ": ") +
+                      e.what());
+  } catch (const input_error& e) {
+    throw input_error("'" + o.path + "': " + e.what());
+  }
+  r.delay_s = static_cast<double>(d.linear_index) / fs;
+  r.trusted_low_hz = d.trusted_low_hz();
+  r.trusted_high_hz = d.trusted_high_hz();
+  for (int i = 0; i < o.response_points; ++i)
+    r.frequency_hz.push_back(r.trusted_low_hz *
+                             std::pow(r.trusted_high_hz / r.trusted_low_hz, static_cast<double>(i) / (o.response_points - 1)));
+  r.measured = dsp::linear_response(d, r.frequency_hz);
+  const double scale = r.calibrated() ? r.output_cal_vpk / r.input_cal_vpk : 1.0;
+  for (std::complex<double>& v : r.measured) v *= scale;
+  r.harmonics_dbc.assign(r.frequency_hz.size(), std::vector<double>(response_harmonics - 1, std::nan("")));
+  for (int n = 2; n <= response_harmonics; ++n) {
+    const std::vector<double> h = dsp::harmonic_ratio(d, n, r.frequency_hz);
+    for (std::size_t i = 0; i < h.size(); ++i) r.harmonics_dbc[i][static_cast<std::size_t>(n - 2)] = base::db_from_ratio(h[i]);
+  }
+  // Uncalibrated, both curves are read re their value at the point nearest 1 kHz (or the band's
+  // middle, in log frequency, when 1 kHz lies outside it).
+  const double ref = r.trusted_low_hz <= 1000.0 && r.trusted_high_hz >= 1000.0 ? 1000.0 : std::sqrt(r.trusted_low_hz * r.trusted_high_hz);
+  r.reference_hz = ref;
+  if (st) {
+    r.stage_path = o.against_path;
+    r.overrides = o.overrides;
+    r.stage_name = st->name;
+    const model::network net = model::build_network(*st);
+    const model::operating_point op = model::solve_operating_point(net);
+    for (const double f : r.frequency_hz) r.model.push_back(model::response_at(net, op, f).gain);
+  }
+  return r;
+}
+
+// The magnitude in dB as reported: calibrated, the gain in dB; else re the value at the
+// point nearest the reference frequency. `curve` is the measured or the model's.
+std::vector<double> reported_db(const response_report& r, const std::vector<std::complex<double>>& curve) {
+  std::vector<double> db;
+  double ref = 1.0;
+  if (!r.calibrated()) {
+    std::size_t best = 0;
+    for (std::size_t i = 0; i < r.frequency_hz.size(); ++i)
+      if (std::fabs(std::log(r.frequency_hz[i] / r.reference_hz)) < std::fabs(std::log(r.frequency_hz[best] / r.reference_hz)))
+        best = i;
+    ref = std::abs(curve[best]);
+  }
+  for (const std::complex<double>& v : curve) db.push_back(base::db_from_ratio(std::abs(v) / ref));
+  return db;
+}
+double phase_deg(std::complex<double> v) { return std::arg(v) * 180.0 / std::numbers::pi; }
+
+void write_response_text(const response_report& r, std::ostream& out) {
+  const double fs = r.info.rate_hz;
+  out << r.path << ": " << r.info.format_text << ", "
+      << (fs == std::floor(fs) ? std::to_string(static_cast<long long>(fs)) : format_number(fs, 6)) << " Hz, "
+      << format_number(r.info.seconds(), 4) << " s, channel " << r.channel << "\n  the answer to " << r.played_path << ", a sweep "
+      << format_si(r.plan.start_hz, "Hz", 3) << " to " << format_si(r.plan.end_hz, "Hz", 3) << " in " << format_number(r.plan.seconds, 4)
+      << " s (Farina 2000: deconvolved, harmonics separated in time)\n  latency " << fixed(1000.0 * r.delay_s, 3)
+      << " ms (removed, to the sample); read from " << format_si(r.trusted_low_hz, "Hz", 3) << " to "
+      << format_si(r.trusted_high_hz, "Hz", 3) << '\n';
+  const std::vector<double> m = reported_db(r, r.measured);
+  const std::vector<double> q = r.model.empty() ? std::vector<double>{} : reported_db(r, r.model);
+  out << "\nResponse (" << (r.calibrated() ? "gain from the generator to the recorder's input, through --input-cal and --output-cal"
+                                           : "re its value at " + format_si(r.reference_hz, "Hz", 3) + "; give --input-cal and --output-cal for the gain")
+      << ")\n";
+  std::vector<std::string> head{"frequency", "magnitude", "phase", "H2", "H3"};
+  if (!r.model.empty()) {
+    head.insert(head.end(), {"model", "model phase", "difference"});
+  }
+  text_table t(std::vector<align>(head.size(), align::right));
+  t.add(head);
+  // About 24 rows: every k-th point.
+  const std::size_t every = std::max<std::size_t>(1, r.frequency_hz.size() / 24);
+  for (std::size_t i = 0; i < r.frequency_hz.size(); i += every) {
+    std::vector<std::string> row{format_si(r.frequency_hz[i], "Hz", 3), fixed(m[i], 2) + " dB", fixed(phase_deg(r.measured[i]), 1) + "°",
+                                 std::isfinite(r.harmonics_dbc[i][0]) ? fixed(r.harmonics_dbc[i][0], 1) + " dBc" : "-",
+                                 std::isfinite(r.harmonics_dbc[i][1]) ? fixed(r.harmonics_dbc[i][1], 1) + " dBc" : "-"};
+    if (!r.model.empty()) {
+      row.push_back(fixed(q[i], 2) + " dB");
+      row.push_back(fixed(phase_deg(r.model[i]), 1) + "°");
+      row.push_back(signed_db(m[i] - q[i]));
+    }
+    t.add(row);
+  }
+  t.write(out);
+  out << "  phase: referred to the impulse response's peak; a recording chain's latency that is not a whole\n"
+         "  number of samples adds up to 180 f / fs degrees ("
+      << fixed(180.0 * 1000.0 / fs, 1) << "° at 1 kHz here). H2, H3: the harmonic at the frequency\n"
+         "  played re the fundamental, \"-\" where the harmonic lies outside the band read.\n";
+  if (!r.model.empty()) {
+    out << "  model: " << r.stage_path;
+    for (const std::string& ov : r.overrides) out << " --set " << ov;
+    out << " (" << r.stage_name << "), its small-signal response at the load as `pinchoff response` gives it.\n";
+  }
+}
+
+void write_response_json(const response_report& r, std::ostream& out) {
+  const std::vector<double> m = reported_db(r, r.measured);
+  nlohmann::json pts = nlohmann::json::array();
+  for (std::size_t i = 0; i < r.frequency_hz.size(); ++i) {
+    nlohmann::json h = nlohmann::json::array();
+    for (double v : r.harmonics_dbc[i]) h.push_back(number_or_null(v));
+    pts.push_back({{"frequency_hz", r.frequency_hz[i]}, {"magnitude_db", m[i]}, {"phase_deg", phase_deg(r.measured[i])}, {"harmonics_dbc", h}});
+  }
+  nlohmann::json j{{"path", r.path},
+                   {"mode", "response"},
+                   {"played_path", r.played_path},
+                   {"rate_hz", r.info.rate_hz},
+                   {"channel", r.channel},
+                   {"sweep", {{"start_hz", r.plan.start_hz}, {"end_hz", r.plan.end_hz}, {"seconds", r.plan.seconds}}},
+                   {"latency_s", r.delay_s},
+                   {"band_hz", {r.trusted_low_hz, r.trusted_high_hz}},
+                   {"calibrated", r.calibrated()},
+                   {"points", pts}};
+  if (!r.calibrated()) j["reference_hz"] = r.reference_hz;
+  else {
+    j["input_cal_vpk"] = r.input_cal_vpk;
+    j["output_cal_vpk"] = r.output_cal_vpk;
+  }
+  if (!r.model.empty()) {
+    const std::vector<double> q = reported_db(r, r.model);
+    nlohmann::json mp = nlohmann::json::array();
+    for (std::size_t i = 0; i < r.frequency_hz.size(); ++i)
+      mp.push_back({{"frequency_hz", r.frequency_hz[i]}, {"magnitude_db", q[i]}, {"phase_deg", phase_deg(r.model[i])}});
+    j["model"] = {{"stage_path", r.stage_path}, {"overrides", r.overrides}, {"name", r.stage_name}, {"points", mp}};
+  }
+  out << json_text(j) << '\n';
+}
+
+void write_response_csv(const response_report& r, std::ostream& out) {
+  const std::vector<double> m = reported_db(r, r.measured);
+  const std::vector<double> q = r.model.empty() ? std::vector<double>{} : reported_db(r, r.model);
+  out << "frequency_hz,magnitude_db,phase_deg";
+  for (int n = 2; n <= response_harmonics; ++n) out << ",h" << n << "_dbc";
+  if (!r.model.empty()) out << ",model_magnitude_db,model_phase_deg";
+  out << '\n';
+  const auto num = [](double v) { return std::isfinite(v) ? format_number(v, 9) : std::string(); };
+  for (std::size_t i = 0; i < r.frequency_hz.size(); ++i) {
+    out << num(r.frequency_hz[i]) << ',' << num(m[i]) << ',' << num(phase_deg(r.measured[i]));
+    for (double v : r.harmonics_dbc[i]) out << ',' << num(v);
+    if (!r.model.empty()) out << ',' << num(q[i]) << ',' << num(phase_deg(r.model[i]));
+    out << '\n';
+  }
+}
+
+void write_response_plot(const response_report& r, const measure_options& o, base::output_set& outputs) {
+  line_plot p;
+  p.title = "Response of " + std::filesystem::path(o.path).filename().string() + " to " +
+            std::filesystem::path(o.response_path).filename().string();
+  p.x = axis{"frequency (Hz)", axis_scale::log10, r.trusted_low_hz, r.trusted_high_hz};
+  p.top.y = axis{r.calibrated() ? "gain (dB)" : "magnitude (dB re " + format_si(r.reference_hz, "Hz", 3) + ")", axis_scale::linear, {}, {}, false};
+  p.top.lines.push_back({"measured", r.frequency_hz, reported_db(r, r.measured), false});
+  // The phase drawn continuous (each step taken within +-180 degrees), from its value at the
+  // lowest frequency: an inverting stage's phase near 180 degrees would otherwise jump
+  // between +180 and -180 across the band.
+  const auto unwrapped = [](const std::vector<std::complex<double>>& curve) {
+    std::vector<double> deg;
+    for (const std::complex<double>& v : curve) {
+      double d = phase_deg(v);
+      if (!deg.empty()) d -= 360.0 * std::round((d - deg.back()) / 360.0);
+      deg.push_back(d);
+    }
+    return deg;
+  };
+  panel ph;
+  ph.y = axis{"phase (degrees)", axis_scale::linear, {}, {}, false};
+  ph.lines.push_back({"measured", r.frequency_hz, unwrapped(r.measured), false});
+  if (!r.model.empty()) {
+    p.top.lines.push_back({"model", r.frequency_hz, reported_db(r, r.model), false});
+    ph.lines.push_back({"model", r.frequency_hz, unwrapped(r.model), false});
+  }
+  p.bottom = std::move(ph);
+  add_svg_output(outputs, o.plot_path, render_svg(p));
 }
 
 // ---- Setup: the options, their help and the worked examples.
@@ -666,11 +1481,16 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       ->capture_default_str();
   sub->add_option("--start", o.start_s, "Skip this many seconds at the start")->type_name("SECONDS");
   sub->add_option("--duration", o.duration_s, "Analyse this many seconds (default: to the end)")->type_name("SECONDS");
-  sub->add_option("--plot", o.plot_path, "Write the spectrum with the harmonics marked as SVG")->type_name("FILE.svg");
+  sub->add_option("--plot", o.plot_path,
+                  "Write the spectrum with the harmonics marked as SVG (with --steps: THD, H2 and H3 against the "
+                  "step's level; with --response: magnitude and phase against frequency)")
+      ->type_name("FILE.svg");
   sub->add_flag("--json", o.json, "Machine-readable output (keys carry their unit as a suffix)");
   sub->add_option("--against", o.against_path, "Stage file (TOML) whose prediction is shown beside the measurement")
       ->type_name("STAGE");
-  sub->add_option("--drive", o.drive_text, "With --against: the generator level the stage was driven with, e.g. 100mVpk")
+  sub->add_option("--drive", o.drive_text,
+                  "With --against: the generator level the stage was driven with, e.g. 100mVpk, or -20dBFS with "
+                  "--input-cal; with --steps one a step, as a list or the played staircase FROM..TO:STEP in dBFS")
       ->type_name("LEVEL");
   sub->add_option("--set", o.overrides, "With --against: override a stage-file value, KEY=VALUE (repeatable)")
       ->type_name("KEY=VALUE")
@@ -681,16 +1501,45 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
                 "The recording holds noise alone (the stage's output, its input shorted or terminated): read it "
                 "unweighted, A-weighted and ITU-R 468 weighted");
   sub->add_option("--output-cal", o.output_cal_text,
-                  "With --noise: the level of a full-scale sine at the recorder's input, e.g. 1.55Vpk or +6dBu, so "
-                  "readings are in volts and dBu")
+                  "The level of a full-scale sine at the recorder's input, e.g. 1.55Vpk or +6dBu, so readings are in "
+                  "volts and dBu (and with --against, the measured gain beside the model's)")
       ->type_name("LEVEL");
+  sub->add_option("--input-cal", o.input_cal_text,
+                  "The generator's level when the played file holds a full-scale sine, e.g. 1Vpk or +4dBu, so --drive "
+                  "may be given in dBFS of the played file")
+      ->type_name("LEVEL");
+  sub->add_flag("--steps", o.steps,
+                "The recording holds a staircase of levels (as 'pinchoff tone --steps' writes): find each step and "
+                "measure it alone");
+  sub->add_flag("--csv", o.csv, "With --steps or --response: the rows as CSV");
+  sub->add_option("--response", o.response_path,
+                  "The recording is a stage's answer to this played sweep ('pinchoff tone --sweep'): its frequency "
+                  "response by deconvolution, and its harmonics separated in time")
+      ->type_name("PLAYED");
+  sub->add_option("--sweep", o.sweep_text, "With --response: the band the played sweep covers, as given to tone --sweep")
+      ->type_name("FROM..TO")
+      ->capture_default_str();
+  sub->add_option("--points", o.response_points, "With --response: frequencies read, log-spaced over the band")
+      ->capture_default_str();
   sub->footer(
       "Examples:\n"
       "  pinchoff measure stage-out.wav\n"
       "      the strongest tone, its harmonics H2..H10, THD, THD+N and noise\n"
       "  pinchoff measure stage-out.wav --freq 1k --channel 2 --plot spectrum.svg\n"
+      "  pinchoff measure staircase-out.wav --steps\n"
+      "      every step of a recorded 'pinchoff tone --steps' staircase: level, THD, THD+N, H2..H10\n"
+      "  pinchoff measure staircase-out.wav --steps --against presets/bass-booster-9v.toml \\\n"
+      "      --drive -40dBFS..0dBFS:6 --input-cal 0.5Vpk --output-cal 1.55Vpk --plot steps.svg\n"
+      "      each step beside the model at its drive: the played staircase (as given to tone --steps),\n"
+      "      the generator at 0.5 V peak for a full-scale sine, the recorder's full scale 1.55 V peak\n"
+      "  pinchoff measure sweep-out.wav --response sweep.wav --sweep 20..20k --plot response.svg\n"
+      "      the answer to a played 'pinchoff tone --sweep 20..20k' sweep: magnitude and phase from\n"
+      "      28 Hz to 15.9 kHz (half an octave in from the start, a third from the end), H2..H5\n"
+      "  pinchoff measure sweep-out.wav --response sweep.wav --against presets/bass-booster-9v.toml \\\n"
+      "      --input-cal 1Vpk --output-cal 10Vpk\n"
+      "      the gain in volts beside what 'pinchoff response' predicts\n"
       "  pinchoff measure staircase-out.wav --start 4.01 --duration 1.98 --json\n"
-      "      one step of a 'pinchoff tone --steps' recording (tone prints where each step holds)\n"
+      "      one step of a staircase by hand (tone prints where each step holds)\n"
       "  pinchoff measure booster-out.wav --against presets/bass-booster-9v.toml --drive 100mVpk\n"
       "      beside each harmonic, what the model predicts for that drive at the measured frequency\n"
       "  pinchoff measure hiss.wav --noise --output-cal 1.55Vpk --against presets/phantom-mic-follower.toml\n"
@@ -704,7 +1553,11 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       "10.9 s at 192 kHz; a longer recording is analysed from the start of its steady part, and\n"
       "memory stays near 150 MB whatever the file's length). The recording must be a file, not a\n"
       "pipe: it is read twice. --drive is the generator's open-circuit\n"
-      "level as in `sweep`; the comparison is in dBc, so the recording's own gain does not matter.");
+      "level as in `sweep`; the comparison is in dBc, so the recording's own gain does not matter\n"
+      "(give --output-cal to compare the gain too). A span whose level moves by more than 3 dB is\n"
+      "refused: one THD+N over several levels means nothing; use --steps. --steps finds plateaus\n"
+      "held 0.3 s or more within 0.5 dB (steps 1 dB or more apart), leaves 50 ms at each end, and\n"
+      "leaves out a plateau that holds no tone (noise, the recorder's floor).");
   return sub;
 }
 
@@ -722,6 +1575,22 @@ void register_measure(CLI::App& app, std::vector<command>& commands, const data_
                           else write_noise_text(n, out);
                           return;
                         }
+                        if (!opt->response_path.empty()) {
+                          const response_report r = analyse_response_recording(*opt);
+                          if (!opt->plot_path.empty()) write_response_plot(r, *opt, outputs);
+                          if (opt->json) write_response_json(r, out);
+                          else if (opt->csv) write_response_csv(r, out);
+                          else write_response_text(r, out);
+                          return;
+                        }
+                        if (opt->steps) {
+                          const steps_report r = run_steps(*opt);
+                          if (!opt->plot_path.empty()) write_steps_plot(r, *opt, outputs);
+                          if (opt->json) write_steps_json(r, out);
+                          else if (opt->csv) write_steps_csv(r, out);
+                          else write_steps_text(r, out);
+                          return;
+                        }
                         const measure_report r = run(*opt);
                         if (r.spectrum) write_plot(r, *opt, outputs);
                         if (opt->json) write_json(r, out);
@@ -731,6 +1600,7 @@ void register_measure(CLI::App& app, std::vector<command>& commands, const data_
                       [opt] {
                         command_files f;
                         f.inputs.push_back({"the recording", opt->path});
+                        if (!opt->response_path.empty()) f.inputs.push_back({"the played sweep", opt->response_path});
                         if (!opt->against_path.empty()) add_stage_inputs(f, opt->against_path, opt->devices, "the --against stage file");
                         if (!opt->plot_path.empty()) f.outputs.push_back({"--plot", opt->plot_path});
                         return f;

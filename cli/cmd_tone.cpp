@@ -16,9 +16,11 @@
 #include "cli/app.hpp"
 #include "cli/common.hpp"
 #include "cli/interrupt.hpp"
+#include "cli/option_text.hpp"
 #include "cli/text_table.hpp"
 #include "base/error.hpp"
 #include "dsp/io/sound_file.hpp"
+#include "dsp/exp_sweep.hpp"
 #include "dsp/tone.hpp"
 #include "base/units.hpp"
 
@@ -37,6 +39,7 @@ struct tone_options {
   double seconds{5.0};
   std::string steps_text;
   double step_seconds{1.0};
+  std::string sweep_text;  ///< --sweep FROM..TO: an exponential sine sweep instead of a tone
   double rate_hz{48000.0};
   std::string format_text{"wav24"};
   int channels{1};
@@ -47,47 +50,15 @@ struct tone_options {
 };
 
 // The fields dsp::tone_generator names in its errors, and the options that set them.
-const std::map<std::string, std::string, std::less<>> tone_options_of_fields{{"fade_seconds", "--fade-ms"},
-                                                                            {"rate_hz", "--rate"}};
+// dsp::exp_sweep_plan's fields too.
+const std::map<std::string, std::string, std::less<>> tone_options_of_fields{
+    {"fade_seconds", "--fade-ms"}, {"rate_hz", "--rate"},   {"start_hz", "--sweep"},
+    {"end_hz", "--sweep"},         {"seconds", "--seconds"}, {"level_dbfs", "--level"}};
 
-std::string trimmed(std::string_view t) {
-  while (!t.empty() && std::isspace(static_cast<unsigned char>(t.front()))) t.remove_prefix(1);
-  while (!t.empty() && std::isspace(static_cast<unsigned char>(t.back()))) t.remove_suffix(1);
-  return std::string(t);
-}
-
-// "-10dBFS", "-10 dBFS", "-10" (dBFS understood). `suffix` is the unit word accepted.
-double parse_db(std::string_view text, std::string_view suffix, std::string_view what) {
-  std::string t = trimmed(text);
-  std::string lower = t;
-  std::transform(lower.begin(), lower.end(), lower.begin(), [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
-  std::string suf(suffix);
-  std::transform(suf.begin(), suf.end(), suf.begin(), [](unsigned char c) { return static_cast<char>(std::tolower(c)); });
-  if (lower.size() >= suf.size() && lower.compare(lower.size() - suf.size(), suf.size(), suf) == 0)
-    t = trimmed(std::string_view(t).substr(0, t.size() - suf.size()));
-  std::size_t used = 0;
-  double v = 0.0;
-  try {
-    v = std::stod(t, &used);
-  } catch (const std::exception&) {
-    used = 0;
-  }
-  if (t.empty() || used != t.size() || !std::isfinite(v))
-    throw input_error(std::string(what) + " '" + std::string(text) + "' is not a level; expected a number of " +
-                      std::string(suffix) + ", e.g. -10" + std::string(suffix));
-  return v;
-}
-
-// FROM..TO:STEP, e.g. "-40dBFS..0dBFS:10" or "-40..0:6dB".
+// FROM..TO:STEP, e.g. "-40dBFS..0dBFS:10" or "-40..0:6dB" (cli/option_text.hpp).
 std::vector<dsp::tone_step> parse_steps(const std::string& text, double seconds) {
-  const std::size_t dots = text.find("..");
-  const std::size_t colon = text.rfind(':');
-  if (dots == std::string::npos || colon == std::string::npos || colon < dots)
-    throw input_error("--steps '" + text + "' is not FROM..TO:STEP, e.g. -40dBFS..0dBFS:10 (levels in dBFS, step in dB)");
-  const double from = parse_db(text.substr(0, dots), "dBFS", "--steps start");
-  const double to = parse_db(text.substr(dots + 2, colon - dots - 2), "dBFS", "--steps end");
-  const double step = parse_db(text.substr(colon + 1), "dB", "--steps step");
-  return dsp::level_staircase(from, to, step, seconds);
+  const staircase_text st = parse_staircase(text, "--steps");
+  return dsp::level_staircase(st.from_dbfs, st.to_dbfs, st.step_db, seconds);
 }
 
 // What was written, for the formatters.
@@ -102,6 +73,7 @@ struct tone_report {
   std::int64_t clipped{0};
   std::vector<dsp::steady_span> spans;
   double ceiling_dbfs{0.0};  // < 0 when levels near full scale were lowered to fit the codes
+  std::optional<dsp::exp_sweep_plan> sweep;  // --sweep: the sweep written instead of a tone
 };
 
 std::string dbfs_text(double level_dbfs) {
@@ -133,12 +105,18 @@ const char* format_description(dsp::sample_format f) {
 void write_text(const tone_report& r, std::ostream& out) {
   const auto& p = r.plan;
   out << "Wrote " << r.path << '\n';
-  out << "  " << format_si(p.frequency_hz, "Hz", 4) << " sine, ";
-  if (p.steps.size() == 1) out << dbfs_text(p.steps[0].level_dbfs);
-  else
-    out << p.steps.size() << " levels from " << dbfs_text(p.steps.front().level_dbfs) << " to "
-        << dbfs_text(p.steps.back().level_dbfs);
-  out << ", " << seconds_text(r.frames, p.rate_hz) << " (" << r.frames << " frames)\n";
+  if (r.sweep) {
+    const dsp::exp_sweep_plan& w = *r.sweep;
+    out << "  exponential sine sweep " << format_si(w.start_hz, "Hz", 4) << " to " << format_si(w.end_hz, "Hz", 4) << ", "
+        << dbfs_text(w.level_dbfs) << ", " << seconds_text(r.frames, w.rate_hz) << " (" << r.frames << " frames)\n";
+  } else {
+    out << "  " << format_si(p.frequency_hz, "Hz", 4) << " sine, ";
+    if (p.steps.size() == 1) out << dbfs_text(p.steps[0].level_dbfs);
+    else
+      out << p.steps.size() << " levels from " << dbfs_text(p.steps.front().level_dbfs) << " to "
+          << dbfs_text(p.steps.back().level_dbfs);
+    out << ", " << seconds_text(r.frames, p.rate_hz) << " (" << r.frames << " frames)\n";
+  }
   out << "  " << rate_text(p.rate_hz) << " Hz, " << r.channels << (r.channels == 1 ? " channel, " : " channels (all the same), ")
       << format_description(r.format)
       << (dsp::quantisation_bits(r.format) == 0 ? "" : (r.dither ? ", TPDF dither" : ", no dither")) << '\n';
@@ -148,6 +126,12 @@ void write_text(const tone_report& r, std::ostream& out) {
     out << "  levels above " << format_number(r.ceiling_dbfs, 2) << " dBFS written at that level, the largest sine a "
         << dsp::quantisation_bits(r.format) << "-bit file holds" << (r.dither ? " with dither" : "") << " without clipping\n";
   if (r.clipped > 0) out << "  ! " << r.clipped << " samples clipped\n";
+  if (r.sweep) {
+    const double L = dsp::sweep_rate_constant_s(*r.sweep);
+    out << "  rate constant L = T / ln(f2/f1) = " << format_number(L, 4) << " s: harmonic n answers L ln n ahead of the\n"
+        << "  linear response (" << format_number(1000.0 * L * std::log(2.0), 4) << " ms for H2), where measure --response "
+        << "separates it\n";
+  }
   if (p.steps.size() > 1) {
     out << "\nSteps (steady: where the level holds, for measuring)\n";
     text_table t({align::right, align::right, align::right, align::right, align::right});
@@ -164,6 +148,27 @@ void write_text(const tone_report& r, std::ostream& out) {
 
 void write_json(const tone_report& r, std::ostream& out) {
   const auto& p = r.plan;
+  if (r.sweep) {
+    const dsp::exp_sweep_plan& w = *r.sweep;
+    const nlohmann::json j{{"path", r.path},
+                           {"sweep",
+                            {{"start_hz", w.start_hz},
+                             {"end_hz", w.end_hz},
+                             {"seconds", w.seconds},
+                             {"level_dbfs", w.level_dbfs},
+                             {"rate_constant_s", dsp::sweep_rate_constant_s(w)}}},
+                           {"rate_hz", w.rate_hz},
+                           {"channels", r.channels},
+                           {"format", std::string(dsp::sample_format_name(r.format))},
+                           {"dither", r.dither && dsp::quantisation_bits(r.format) != 0},
+                           {"frames", r.frames},
+                           {"duration_s", static_cast<double>(r.frames) / w.rate_hz},
+                           {"fade_s", w.fade_seconds},
+                           {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)},
+                           {"clipped_samples", r.clipped}};
+    out << json_text(j) << '\n';
+    return;
+  }
   nlohmann::json steps = nlohmann::json::array();
   for (std::size_t i = 0; i < p.steps.size(); ++i)
     steps.push_back({{"level_dbfs", p.steps[i].level_dbfs},
@@ -202,7 +207,29 @@ tone_report plan_tone(const tone_options& o) {
   r.plan.frequency_hz = option_frequency_hz(o.freq_text, "--freq");
   r.plan.rate_hz = o.rate_hz;
   r.plan.fade_seconds = o.fade_ms / 1000.0;
-  if (o.steps_text.empty()) r.plan.steps = {{parse_db(o.level_text, "dBFS", "--level"), o.seconds}};
+  if (!o.sweep_text.empty()) {
+    const base::value_range band = base::parse_range(o.sweep_text, base::unit::hertz, "--sweep");
+    dsp::exp_sweep_plan w;
+    w.start_hz = band.lo;
+    w.end_hz = band.hi;
+    w.seconds = o.seconds;
+    w.rate_hz = o.rate_hz;
+    w.level_dbfs = parse_db_value(o.level_text, "dBFS", "--level");
+    w.fade_seconds = o.fade_ms / 1000.0;
+    if (w.level_dbfs > 0.0)
+      throw input_error("level " + format_number(w.level_dbfs) + " dBFS is above full scale (0 dBFS at most)");
+    dsp::validate(w);
+    // As a tone's: an integer file's largest code and the dither leave a sine reaching 0 dBFS
+    // no room.
+    if (const int bits = dsp::quantisation_bits(r.format); bits > 0) {
+      const double codes = std::ldexp(1.0, bits - 1);
+      const double ceiling = base::db_from_ratio((codes - (r.dither ? 1.5 : 0.5) - 0.01) / codes);
+      if (w.level_dbfs > ceiling) w.level_dbfs = r.ceiling_dbfs = ceiling;
+    }
+    r.sweep = w;
+    return r;
+  }
+  if (o.steps_text.empty()) r.plan.steps = {{parse_db_value(o.level_text, "dBFS", "--level"), o.seconds}};
   else r.plan.steps = parse_steps(o.steps_text, o.step_seconds);
 
   // An integer file's largest code is one step short of full scale, and dither adds up to
@@ -226,6 +253,33 @@ tone_report plan_tone(const tone_options& o) {
 
 // Writes the planned tone to its file (nothing is left behind if it fails or Ctrl-C
 // stops it) and fills in what was written.
+// Writes the planned sweep (at most dsp::max_sweep_frames, made in memory).
+void write_sweep(const tone_options& o, tone_report& r, base::output_set& outputs) {
+  const std::vector<double> x = dsp::exp_sweep_samples(*r.sweep);
+  dsp::write_settings ws;
+  ws.rate_hz = o.rate_hz;
+  ws.channels = o.channels;
+  ws.format = r.format;
+  ws.tpdf_dither = r.dither;
+  ws.overwrite = o.force;
+  const interrupt_guard guard;
+  dsp::sound_writer w = dsp::sound_writer::create(o.output, ws);
+  const auto ch = static_cast<std::size_t>(o.channels);
+  std::vector<double> frames(8192 * ch);
+  for (std::size_t at = 0; at < x.size(); at += 8192) {
+    guard.check();
+    const std::size_t n = std::min<std::size_t>(8192, x.size() - at);
+    for (std::size_t t = 0; t < n; ++t) {
+      r.sample_peak = std::max(r.sample_peak, std::abs(x[at + t]));
+      for (std::size_t c = 0; c < ch; ++c) frames[t * ch + c] = x[at + t];
+    }
+    w.write(std::span<const double>(frames).first(n * ch));
+  }
+  r.frames = w.frames_written();
+  r.clipped = w.clipped_samples();
+  outputs.add(w.finish());
+}
+
 void write_tone(const tone_options& o, tone_report& r, base::output_set& outputs) {
   // The generator validates the plan before any file is made; a step's length was given by
   // --seconds (a plain tone) or --step-seconds (a staircase).
@@ -274,7 +328,8 @@ void write_tone(const tone_options& o, tone_report& r, base::output_set& outputs
 
 tone_report run(const tone_options& o, base::output_set& outputs) {
   tone_report r = plan_tone(o);
-  write_tone(o, r, outputs);
+  if (r.sweep) write_sweep(o, r, outputs);
+  else write_tone(o, r, outputs);
   return r;
 }
 
@@ -286,11 +341,16 @@ CLI::App* setup(CLI::App& app, tone_options& o) {
   sub->add_option("--level", o.level_text, "Level of a plain tone in dBFS (0 dBFS: the sine's peak reaches full scale)")
       ->type_name("dBFS")
       ->capture_default_str();
-  sub->add_option("--seconds", o.seconds, "Length of a plain tone")->capture_default_str();
+  sub->add_option("--seconds", o.seconds, "Length of a plain tone, or of a sweep")->capture_default_str();
   auto* steps = sub->add_option("--steps", o.steps_text,
                                 "A staircase of levels instead of one: FROM..TO:STEP, levels in dBFS, step in dB")
                     ->type_name("FROM..TO:STEP");
   sub->add_option("--step-seconds", o.step_seconds, "How long each step of --steps holds")->capture_default_str();
+  auto* sweep = sub->add_option("--sweep", o.sweep_text,
+                                "An exponential sine sweep instead of a tone: FROM..TO in hertz, over --seconds, at "
+                                "--level, with --fade-ms fades (read back with measure --response)")
+                    ->type_name("FROM..TO");
+  sweep->excludes(steps);
   sub->add_option("--rate", o.rate_hz, "Sample rate in hertz")->capture_default_str();
   sub->add_option("--format", o.format_text, "wav16, wav24, float (32-bit float WAV) or flac (24-bit)")
       ->capture_default_str();
@@ -302,6 +362,7 @@ CLI::App* setup(CLI::App& app, tone_options& o) {
   sub->add_flag("--json", o.json, "Machine-readable summary of what was written");
   sub->get_option("--level")->excludes(steps);
   sub->get_option("--seconds")->excludes(steps);
+  sub->get_option("--freq")->excludes(sweep);
   sub->footer(
       "Examples:\n"
       "  pinchoff tone --freq 1k --level -10dBFS --seconds 5 tone-1k.wav\n"
@@ -310,6 +371,11 @@ CLI::App* setup(CLI::App& app, tone_options& o) {
       "      -40 to -4 dBFS in 6 dB steps (0 dBFS is not a whole step away), 2 s each, to find\n"
       "      where a stage starts to distort\n"
       "  pinchoff tone --freq 100 --level -20dBFS --format float --rate 96000 low.wav\n"
+      "  pinchoff tone --sweep 20..20k --seconds 10 --level -20dBFS sweep.wav\n"
+      "      an exponential sine sweep (A. Farina, AES 108th Convention, 2000): x(t) = A sin(2 pi f1 L\n"
+      "      (exp(t/L) - 1)), L = T / ln(f2/f1), with raised-cosine fades of --fade-ms at both ends;\n"
+      "      record the stage's answer a second or more past its end and read it with\n"
+      "      'pinchoff measure REC.wav --response sweep.wav --sweep 20..20k'\n"
       "Play the file into the stage's input, record its output, and read the recording with\n"
       "'pinchoff measure'. Integer formats get triangular (TPDF) dither so that rounding adds\n"
       "noise rather than harmonics.");

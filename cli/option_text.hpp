@@ -6,9 +6,12 @@
 //   --set 2:KEY=VALUE        -> design_set              (compare: one design's override)
 //   --by idss,vp | vgs@1m    -> match_by                (match: what makes parts alike)
 //   --tolerance 2%,20mV      -> the match_settings tolerances
+//   --level -10dBFS          -> a number of dB with its unit word   (parse_db_value)
+//   --steps -40dBFS..0dBFS:6 -> a staircase of levels               (tone --steps, measure --drive)
 // Each throws input_error naming the option and the text given, with an example.
 // Header-only: the fuzz targets, which link only the libraries below cli/, call these too.
 #include <algorithm>
+#include <cctype>
 #include <cmath>
 #include <charconv>
 #include <cstddef>
@@ -207,6 +210,54 @@ inline void parse_match_tolerance(std::string_view text, model::match_basis basi
     from = comma + 1;
   }
   if (pieces > 2) throw input_error("--tolerance '" + all + "': at most two tolerances, for example " + example);
+}
+
+/// "-10dBFS", "-10 dBFS", "-10" (the unit understood): a number of dB, `suffix` being the
+/// unit word accepted (any case). `what` names the option in the error.
+inline double parse_db_value(std::string_view text, std::string_view suffix, std::string_view what) {
+  const auto trim = [](std::string_view t) {
+    while (!t.empty() && std::isspace(static_cast<unsigned char>(t.front()))) t.remove_prefix(1);
+    while (!t.empty() && std::isspace(static_cast<unsigned char>(t.back()))) t.remove_suffix(1);
+    return t;
+  };
+  std::string_view t = trim(text);
+  const auto ends_with_unit = [&] {
+    if (t.size() < suffix.size()) return false;
+    for (std::size_t i = 0; i < suffix.size(); ++i)
+      if (std::tolower(static_cast<unsigned char>(t[t.size() - suffix.size() + i])) !=
+          std::tolower(static_cast<unsigned char>(suffix[i])))
+        return false;
+    return true;
+  };
+  if (ends_with_unit()) t = trim(t.substr(0, t.size() - suffix.size()));
+  if (!t.empty() && t.front() == '+') t.remove_prefix(1);
+  double v = 0.0;
+  const auto [end, ec] = std::from_chars(t.data(), t.data() + t.size(), v);
+  if (t.empty() || ec != std::errc() || end != t.data() + t.size() || !std::isfinite(v))
+    throw input_error(std::string(what) + " '" + std::string(text) + "' is not a level; expected a number of " +
+                      std::string(suffix) + ", e.g. -10" + std::string(suffix));
+  return v;
+}
+
+/// FROM..TO:STEP, levels in dBFS and the step in dB ("-40dBFS..0dBFS:6", "-40..0:6dB"): the
+/// three numbers as written; dsp::level_staircase makes the levels of them.
+struct staircase_text {
+  double from_dbfs{}, to_dbfs{}, step_db{};
+};
+inline bool looks_like_staircase(std::string_view text) {
+  const std::size_t dots = text.find("..");
+  return dots != std::string_view::npos && text.rfind(':') != std::string_view::npos && text.rfind(':') > dots;
+}
+inline staircase_text parse_staircase(std::string_view text, std::string_view option) {
+  const std::string all(text);
+  if (!looks_like_staircase(text))
+    throw input_error(std::string(option) + " '" + all +
+                      "' is not FROM..TO:STEP, e.g. -40dBFS..0dBFS:10 (levels in dBFS, step in dB)");
+  const std::size_t dots = text.find(".."), colon = text.rfind(':');
+  const std::string o(option);
+  return {parse_db_value(text.substr(0, dots), "dBFS", o + " start"),
+          parse_db_value(text.substr(dots + 2, colon - dots - 2), "dBFS", o + " end"),
+          parse_db_value(text.substr(colon + 1), "dB", o + " step")};
 }
 
 }  // namespace pinchoff::cli

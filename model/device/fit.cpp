@@ -447,16 +447,44 @@ std::vector<part_figures> parts_from_parts_table(const base::csv_table& t) {
   return out;
 }
 
-std::vector<part_figures> read_parts(const base::csv_table& t) {
-  if (is_parts_table(t)) return parts_from_parts_table(t);
-  std::vector<part_figures> out;
-  for (const part_readings& pr : parts_from_table(t)) {
+std::string part_label(const std::string& name, int first_line, int last_line) {
+  if (name.empty()) return {};
+  return "part '" + name + "' (lines " + std::to_string(first_line) + "-" + std::to_string(last_line) + ")";
+}
+
+bag_fit fit_bag(const base::csv_table& t) {
+  bag_fit bag;
+  for (part_readings& pr : parts_from_table(t)) {
     try {
-      out.push_back(figures_of(fit_square_law(pr.table.kind, pr.table.readings), pr.name, pr.first_line));
+      fit_result f = fit_square_law(pr.table.kind, pr.table.readings);
+      bag.parts.push_back({std::move(pr), std::move(f)});
     } catch (const input_error& e) {
-      throw input_error(t.source + ": " + (pr.name.empty() ? std::string() : "part '" + pr.name + "': ") + e.what());
+      bag.unfit.push_back({pr.name, pr.first_line, pr.last_line, e.what()});
     }
   }
+  if (bag.parts.empty() && !bag.unfit.empty()) {
+    if (bag.unfit.size() == 1) {
+      const unfit_part& u = bag.unfit.front();
+      const std::string label = part_label(u.name, u.first_line, u.last_line);
+      throw input_error(t.source + ": " + (label.empty() ? std::string() : label + ": ") + u.reason);
+    }
+    std::string all;
+    for (const unfit_part& u : bag.unfit) all += "; " + part_label(u.name, u.first_line, u.last_line) + ": " + u.reason;
+    throw input_error(t.source + ": no part could be fitted" + all);
+  }
+  return bag;
+}
+
+std::vector<part_figures> read_parts(const base::csv_table& t, std::vector<unfit_part>* unfit) {
+  if (is_parts_table(t)) return parts_from_parts_table(t);
+  bag_fit bag = fit_bag(t);
+  if (!bag.unfit.empty() && unfit == nullptr) {
+    const unfit_part& u = bag.unfit.front();
+    throw input_error(t.source + ": " + part_label(u.name, u.first_line, u.last_line) + ": " + u.reason);
+  }
+  if (unfit != nullptr) *unfit = bag.unfit;
+  std::vector<part_figures> out;
+  for (const fitted_readings& p : bag.parts) out.push_back(figures_of(p.fit, p.readings.name, p.readings.first_line));
   return out;
 }
 

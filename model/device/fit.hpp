@@ -112,9 +112,38 @@ part_figures figures_of(const fit_result& f, std::string name, int line);
 bool is_parts_table(const base::csv_table& t);
 std::vector<part_figures> parts_from_parts_table(const base::csv_table& t);
 
+/// A part of a bag whose readings cannot be fitted: which, where, and fit_square_law's reason.
+struct unfit_part {
+  std::string name;
+  int first_line{}, last_line{};
+  std::string reason;
+};
+
+/// One part's readings and their fit.
+struct fitted_readings {
+  part_readings readings;
+  fit_result fit;
+};
+
+/// Every part of a table of bench readings fitted (fit_square_law), in the order the parts
+/// first appear. A part that cannot be fitted is left out and listed in `unfit`, so one bad
+/// part does not stop the bag. Throws input_error, starting with the table's source, when no
+/// part can be fitted (a table of one part: its reason, naming the part when it is named;
+/// several: each part and its reason).
+struct bag_fit {
+  std::vector<fitted_readings> parts;
+  std::vector<unfit_part> unfit;
+};
+bag_fit fit_bag(const base::csv_table& t);
+
+/// "part 'B' (lines 5-5)", or "" for a table without a part column.
+std::string part_label(const std::string& name, int first_line, int last_line);
+
 /// The parts of a CSV of either kind: a parts table as it is, or bench readings fitted part
-/// by part (fit_square_law; an error names the part).
-std::vector<part_figures> read_parts(const base::csv_table& t);
+/// by part (fit_bag). The parts that cannot be fitted go to `unfit` when it is given;
+/// without it the first of them throws input_error naming the part (a caller that cannot
+/// report what it leaves out must not leave it out silently).
+std::vector<part_figures> read_parts(const base::csv_table& t, std::vector<unfit_part>* unfit = nullptr);
 
 /// A [jfet] block to paste into a stage file.
 std::string jfet_block(const fit_result& r);

@@ -245,6 +245,7 @@ struct fixtures {
     write(f("bag.csv"), "part,vgs_v,id_a\nA,0,5m\nA,-0.5,2.8125m\nA,-1,1.25m\nB,0,4m\nB,-0.5,2.25m\nB,-1,1m\n");
     write(f("bag-emptyname.csv"), "part,vgs_v,id_a\nA,0,5m\n,-0.5,2.8m\n");
     write(f("bag-short.csv"), "part,vgs_v,id_a\nA,0,5m\nA,-0.5,2.8125m\nA,-1,1.25m\nB,0,4m\n");
+    write(f("bag-allshort.csv"), "part,vgs_v,id_a\nA,0,5m\nB,0,4m\n");
     write(f("bag-vs-both.csv"), "part,rs_ohm,vs_v,id_a\nA,100,0.3,3m\n");
     write(f("bag-vs-nors.csv"), "part,vgs_v,vs_v\nA,0,0.3\n");
     write(f("bag-vs-zero.csv"), "part,rs_ohm,vs_v\nA,0,0.3\nA,1k,1\n");
@@ -285,6 +286,13 @@ struct fixtures {
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", f("rec48.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "1", f("rec1s.wav")}).status == 0);
     REQUIRE(run_cli({"tone", "--rate", "48000", "--seconds", "0.2", "--format", "float", f("float48.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--steps", "-30..0:10", "--step-seconds", "0.5", f("stair.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--sweep", "20..2k", "--seconds", "1", f("sweep8k.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "0.3", f("short8k.wav")}).status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "1.5", "--level", "-200", "--no-dither", "--format", "wav16",
+                     f("silent15.wav")})
+                .status == 0);
+    REQUIRE(run_cli({"tone", "--rate", "8000", "--seconds", "263", "--format", "wav16", f("long8k.wav")}).status == 0);
     write(f("empty.wav"), "");
     {
       // A WAV header (PCM, mono, 48 kHz, 16-bit) whose data chunk holds no frames.
@@ -526,7 +534,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"current that hardly falls (VP runs to infinity)", {"fit", "@flat.csv"}, {"@flat.csv", "do not determine IDSS and VP"}},
       // ---- parts: a bag of parts in one CSV, the parts table, match
       {"a part's row with no name", {"fit", "@bag-emptyname.csv"}, {"@bag-emptyname.csv:3:", "'part' cell is empty"}},
-      {"a part with too few readings", {"fit", "@bag-short.csv"}, {"@bag-short.csv", "part 'B' (lines 5-5)", "too few readings"}},
+      {"a bag none of whose parts can be fitted", {"fit", "@bag-allshort.csv"}, {"@bag-allshort.csv", "no part could be fitted", "part 'A' (lines 2-2)", "part 'B' (lines 3-3)", "too few readings"}},
       {"id_a beside vs_v", {"fit", "@bag-vs-both.csv"}, {"@bag-vs-both.csv", "'id_a' or the source voltage as 'vs_v'", "not both"}},
       {"vs_v without rs_ohm", {"fit", "@bag-vs-nors.csv"}, {"@bag-vs-nors.csv", "'vs_v'", "needs 'rs_ohm'"}},
       {"vs_v over a zero source resistor", {"fit", "@bag-vs-zero.csv"}, {"@bag-vs-zero.csv:2:", "rs_ohm must be above 0 beside vs_v"}},
@@ -537,7 +545,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"match: a parts table without names", {"match", "@parts-nopart.csv"}, {"@parts-nopart.csv", "needs the columns 'part', 'idss_a' and 'vp_v'"}},
       {"match: an unknown column in a parts table", {"match", "@parts-unknown.csv"}, {"@parts-unknown.csv", "unknown column 'colour'"}},
       {"match: parts of both polarities", {"match", "@parts-mixed.csv"}, {"part 'B' is p-channel", "one polarity"}},
-      {"match: a bag part that does not fit", {"match", "@bag-short.csv"}, {"@bag-short.csv", "part 'B'", "too few readings"}},
+      {"match: a bag none of whose parts can be fitted", {"match", "@bag-allshort.csv"}, {"@bag-allshort.csv", "no part could be fitted", "too few readings"}},
       {"match: --sets of 1", {"match", "@bag.csv", "--sets", "1"}, {"--sets: ", "2 to 16", "got 1"}},
       {"match: --by of something else", {"match", "@bag.csv", "--by", "gm"}, {"--by 'gm'", "idss,vp or vgs@CURRENT"}},
       {"match: --by vgs at no current", {"match", "@bag.csv", "--by", "vgs@0"}, {"--by vgs@0", "above 0"}},
@@ -797,11 +805,55 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure --noise with a spectrum plot", {"measure", "@rec1s.wav", "--noise", "--plot", "@made/n.svg"}, {"--plot", "no tone to mark"}},
       {"measure --noise against a stage without calibration", {"measure", "@rec1s.wav", "--noise", "--against", "@stage.toml"}, {"--output-cal", "full-scale sine"}},
       {"measure --noise with --set but no stage", {"measure", "@rec1s.wav", "--noise", "--set", "drain.resistor=4k7"}, {"--set goes with --against"}},
-      {"measure --output-cal on a tone", {"measure", "@rec1s.wav", "--output-cal", "1.55V"}, {"--output-cal goes with --noise"}},
       {"measure --output-cal of a kilovolt", {"measure", "@rec1s.wav", "--noise", "--output-cal", "1kV"}, {"--output-cal must be 1 mV to 100 V"}},
       {"measure --output-cal that is not a level", {"measure", "@rec1s.wav", "--noise", "--output-cal", "loud"}, {"--output-cal"}},
       {"measure --noise on a fifth of a second", {"measure", "@rec48.wav", "--noise"}, {"@rec48.wav", "at least 0.25 s"}},
       {"measure --noise with a bandwidth under 20 Hz", {"measure", "@rec1s.wav", "--noise", "--bandwidth", "10"}, {"--bandwidth", "above the band's low edge"}},
+      // ---- measure --steps, a span of several levels, and the calibrations (--input-cal, --output-cal)
+      {"measure a staircase as one tone", {"measure", "@stair.wav"}, {"@stair.wav", "level changes by", "several levels", "--steps"}},
+      {"measure --steps on silence", {"measure", "@silent.wav", "--steps"}, {"@silent.wav", "no step found", "0.30 s"}},
+      {"measure --steps on DC alone", {"measure", "@dc-only.wav", "--steps"}, {"@dc-only.wav", "no tone found in its loudest step"}},
+      {"measure --steps against a stage without drives", {"measure", "@stair.wav", "--steps", "--against", "@stage.toml"}, {"--steps --against needs --drive"}},
+      {"measure --steps with drives but no stage", {"measure", "@stair.wav", "--steps", "--drive", "1V"}, {"--drive and --set go with --against"}},
+      {"measure --steps with a drive for each of too few steps", {"measure", "@stair.wav", "--steps", "--against", "@stage.toml", "--drive", "10mV,20mV"}, {"--drive gives 2 levels", "holds 4 steps", "one drive a step"}},
+      {"measure --steps with a played staircase and no calibration", {"measure", "@stair.wav", "--steps", "--against", "@stage.toml", "--drive", "-30dBFS..0dBFS:10"}, {"--drive -30dBFS..0dBFS:10", "staircase", "--input-cal"}},
+      {"measure --steps with a staircase that is not levels", {"measure", "@stair.wav", "--steps", "--against", "@stage.toml", "--drive", "a..0:10", "--input-cal", "1V"}, {"--drive start 'a'", "not a level"}},
+      {"measure --steps as both JSON and CSV", {"measure", "@stair.wav", "--steps", "--json", "--csv"}, {"--json and --csv: choose one"}},
+      {"measure --csv without --steps", {"measure", "@rec1s.wav", "--csv"}, {"--csv goes with --steps"}},
+      {"measure --steps and --noise together", {"measure", "@rec1s.wav", "--steps", "--noise"}, {"--steps and --noise: choose one"}},
+      {"measure --noise with --input-cal", {"measure", "@rec1s.wav", "--noise", "--input-cal", "1V"}, {"--input-cal goes with a tone's --drive"}},
+      {"measure --noise with --csv", {"measure", "@rec1s.wav", "--noise", "--csv"}, {"--csv goes with --steps"}},
+      {"measure a drive in dBFS without --input-cal", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "-20dBFS"}, {"--drive -20dBFS", "played file", "--input-cal"}},
+      {"measure a drive above full scale", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "3dBFS", "--input-cal", "1V"}, {"--drive 3dBFS", "above full scale"}},
+      {"measure --input-cal of a kilovolt", {"measure", "@rec48.wav", "--against", "@stage.toml", "--drive", "-20dBFS", "--input-cal", "1kV"}, {"--input-cal must be 1 mV to 100 V", "1.00 kV"}},
+      {"measure --input-cal without a stage", {"measure", "@rec48.wav", "--input-cal", "1V"}, {"--input-cal goes with --against"}},
+      {"measure --steps --input-cal without a stage", {"measure", "@stair.wav", "--steps", "--input-cal", "1V"}, {"--input-cal goes with --against"}},
+      {"measure --output-cal of a microvolt on a tone", {"measure", "@rec48.wav", "--output-cal", "1uV"}, {"--output-cal must be 1 mV to 100 V"}},
+      {"measure --steps --freq above half the rate", {"measure", "@stair.wav", "--steps", "--freq", "5k"}, {"--freq 5k", "half the file's sample rate"}},
+      // ---- tone --sweep and measure --response: an exponential sweep and its deconvolution
+      {"tone --sweep that is not a range", {"tone", "--sweep", "low..high", "@t.wav"}, {"--sweep", "'low"}},
+      {"tone --sweep from 0 Hz", {"tone", "--sweep", "0..20k", "@t.wav"}, {"--sweep", "start at 1 Hz"}},
+      {"tone --sweep past half the rate", {"tone", "--sweep", "20..30k", "@t.wav"}, {"--sweep", "below half the sample rate", "24.0 kHz"}},
+      {"tone --sweep over less than two octaves", {"tone", "--sweep", "1k..2k", "@t.wav"}, {"--sweep", "two octaves"}},
+      {"tone --sweep too long", {"tone", "--sweep", "20..20k", "--seconds", "100", "@t.wav"}, {"--seconds", "0.5 s to 43.69 s"}},
+      {"tone --sweep with fades longer than a tenth", {"tone", "--sweep", "20..20k", "--seconds", "1", "--fade-ms", "200", "@t.wav"}, {"--fade-ms", "a tenth of the sweep"}},
+      {"tone --sweep above full scale", {"tone", "--sweep", "20..20k", "--level", "3", "@t.wav"}, {"3.00 dBFS", "above full scale"}},
+      {"tone --sweep with a frequency", {"tone", "--sweep", "20..20k", "--freq", "1k", "@t.wav"}, {"--freq excludes --sweep"}},
+      {"tone --sweep with --steps", {"tone", "--sweep", "20..20k", "--steps", "-20..0:10", "@t.wav"}, {"--steps excludes --sweep"}},
+      {"measure --response with a drive", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--drive", "1V"}, {"--drive goes with a tone", "--response"}},
+      {"measure --response with --steps", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--steps"}, {"--response, --steps and --noise: choose one"}},
+      {"measure --response with a frequency", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--freq", "1k"}, {"--freq goes with a tone", "--sweep"}},
+      {"measure --response as JSON and CSV", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--json", "--csv"}, {"--json and --csv: choose one"}},
+      {"measure --response with --set and no stage", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--set", "drain.resistor=4k7"}, {"--set goes with --against"}},
+      {"measure --response with one point", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--points", "1"}, {"--points must be 2 to 2000"}},
+      {"measure --response with one calibration", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--input-cal", "1V"}, {"both calibrations", "--output-cal"}},
+      {"measure --response at another rate", {"measure", "@rec48.wav", "--response", "@sweep8k.wav"}, {"@sweep8k.wav", "8000 Hz", "48000 Hz", "rate the sweep was played"}},
+      {"measure --response of a recording shorter than the sweep", {"measure", "@rec.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k"}, {"@rec.wav", "fewer than the sweep's", "whole sweep"}},
+      {"measure --response of silence", {"measure", "@silent15.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k"}, {"@silent15.wav", "no response to the sweep"}},
+      {"measure --response to a played file too short for a sweep", {"measure", "@rec.wav", "--response", "@short8k.wav", "--sweep", "20..2k"}, {"@short8k.wav", "the played sweep", "0.5 s"}},
+      {"measure --response to a played file longer than a sweep may be", {"measure", "@rec.wav", "--response", "@long8k.wav"}, {"@long8k.wav", "2104000 frames", "2097152"}},
+      {"measure --response with a band past the file's rate", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav"}, {"--sweep 20..20k", "below half the sample rate"}},
+      {"measure --response with a band of one octave", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "1k..2k"}, {"--sweep 1k..2k", "two octaves"}},
 
       {"a bootstrap set on a common-source stage", {"bias", "@stage.toml", "--set", "gate.bootstrap=10u"}, {"gate.bootstrap", "belongs to a source follower"}},
       {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\", \"capsule\" or \"pickup\""}},

@@ -94,3 +94,35 @@ TEST_CASE("fit of one part keeps its keys, with the VDS its IDSS is at") {
   const result text = run({"fit", path});
   CHECK(text.out.find("idss_vds = 9") != std::string::npos);
 }
+
+TEST_CASE("a part of a bag that cannot be fitted is left out with a warning, and listed as unfit") {
+  // The bag above with a fourth part D read once: one reading cannot give IDSS and VP
+  // (two unknowns), so D is left out, named with its line and the reason, and the three
+  // others are fitted as before (closed form: A 5 mA, -2 V).
+  pinchoff::testing::scratch_dir dir;
+  const std::string path = dir.file("bag.csv");
+  std::ofstream(path) << bag() << "D,0,4.5 mA\n";
+  const result r = run({"fit", path, "--json"});
+  REQUIRE(r.status == 0);
+  CHECK(r.err.find("warning") != std::string::npos);
+  CHECK(r.err.find("part 'D' (lines 11-11) left out") != std::string::npos);
+  CHECK(r.err.find("too few readings") != std::string::npos);
+  const nlohmann::json j = nlohmann::json::parse(r.out);
+  REQUIRE(j["parts"].size() == 3);
+  CHECK(j["parts"][0]["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6));
+  REQUIRE(j["unfit"].size() == 1);
+  CHECK(j["unfit"][0]["part"] == "D");
+  CHECK(j["unfit"][0]["first_line"] == 11);
+  CHECK(j["unfit"][0]["reason"].get<std::string>().find("too few readings") != std::string::npos);
+  const result text = run({"fit", path});
+  REQUIRE(text.status == 0);
+  CHECK(text.out.find("left out: part 'D' (lines 11-11)") != std::string::npos);
+  // match reads the same bag through the same loop: A and C pair, B is left over, D unfit.
+  const result m = run({"match", path, "--json"});
+  REQUIRE(m.status == 0);
+  CHECK(m.err.find("part 'D' (lines 11-11) left out") != std::string::npos);
+  const nlohmann::json mj = nlohmann::json::parse(m.out);
+  REQUIRE(mj["sets"].size() == 1);
+  CHECK(mj["unfit"].size() == 1);
+  CHECK(mj["unfit"][0]["part"] == "D");
+}

@@ -20,6 +20,8 @@
 #include "base/csv.hpp"
 #include "base/error.hpp"
 #include "dsp/io/sound_file.hpp"
+#include "dsp/exp_sweep.hpp"
+#include "dsp/level_steps.hpp"
 #include "base/units.hpp"
 #include "cli/option_text.hpp"
 #include "model/device/device_class.hpp"
@@ -205,6 +207,12 @@ inline outcome units_entry(std::string_view text) {
     detail::require(!std::isnan(r.lo) && !std::isnan(r.hi) && r.lo <= r.hi, "parse_requirement returned a bad range");
   });
   attempt([&] {
+    // tone --steps and measure --drive: a staircase of finite levels.
+    const cli::staircase_text st = cli::parse_staircase(text, "--steps");
+    detail::require(std::isfinite(st.from_dbfs) && std::isfinite(st.to_dbfs) && std::isfinite(st.step_db),
+                    "parse_staircase returned a level that is not finite");
+  });
+  attempt([&] {
     const double x = base::parse_fraction(text, "key");
     detail::require(std::isfinite(x) && x >= 0.0 && x < 1.0, "parse_fraction returned a value outside [0, 1)");
   });
@@ -317,6 +325,34 @@ inline outcome sound_entry(std::span<const std::byte> bytes) {
     rd.seek(0);
     const std::vector<double> x = dsp::read_channel(rd, 0);
     detail::require(static_cast<std::int64_t>(x.size()) == info.frames, "read_channel returned a different number of frames");
+    // measure --steps: the steps found lie in order inside the record, each at least three
+    // blocks long; the level spread measure checks is finite and not negative.
+    const std::vector<dsp::sample_range> steps = dsp::find_level_steps(x, info.rate_hz);
+    std::size_t last_end = 0;
+    for (const dsp::sample_range& st : steps) {
+      detail::require(st.begin >= last_end && st.begin < st.end && st.end <= x.size(), "find_level_steps returned a step out of order or outside the record");
+      last_end = st.end;
+    }
+    const double spread = dsp::level_spread_db(x, info.rate_hz);
+    detail::require(std::isfinite(spread) && spread >= 0.0, "level_spread_db returned a spread that is not a finite, non-negative dB figure");
+    // measure --response: the file deconvolved by itself as the played sweep (a band of two
+    // octaves below a quarter of its rate), when it is long enough to be one and short
+    // enough to keep the run quick; refused or an impulse response of finite samples.
+    if (info.rate_hz >= 64.0 && static_cast<double>(x.size()) >= 0.5 * info.rate_hz && x.size() <= (std::size_t{1} << 15)) {
+      dsp::exp_sweep_plan plan;
+      plan.rate_hz = info.rate_hz;
+      plan.start_hz = std::max(1.0, info.rate_hz / 64.0);
+      plan.end_hz = info.rate_hz / 4.0;
+      plan.seconds = static_cast<double>(x.size()) / info.rate_hz;
+      plan.level_dbfs = 0.0;
+      plan.fade_seconds = 0.0;
+      try {
+        const dsp::sweep_deconvolution d = dsp::deconvolve_sweep(x, x, plan);
+        for (double v : d.h) detail::require(std::isfinite(v), "deconvolve_sweep returned a sample that is not finite");
+      } catch (const setting_error&) {
+      } catch (const input_error&) {
+      }
+    }
     return outcome::accepted;
   } catch (const input_error& e) {
     detail::require(std::string_view(e.what()).find("fuzz.wav") != std::string_view::npos,

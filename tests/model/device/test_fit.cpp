@@ -8,28 +8,16 @@
 #include "base/csv.hpp"
 #include "base/error.hpp"
 #include "model/device/fit.hpp"
+#include "support/bench_readings.hpp"
 #include "model/circuit/stage_file.hpp"
 
 using namespace pinchoff;
 using namespace pinchoff::model;
 
 namespace {
-// Shockley with channel-length modulation (level-1 saturation; Massobrio & Antognetti).
-double shockley(double idss, double vp, double lambda, double vgs, double vds) {
-  const double u = 1.0 - vgs / vp;
-  return u > 0.0 ? idss * u * u * (1.0 + lambda * vds) : 0.0;
-}
-// Self-bias closed form with the gate grounded (Boylestad & Nashelsky ch. 7), solved here
-// by bisection as an independent oracle.
-double jig(double idss, double vp, double rs) {
-  double lo = 0.0, hi = idss;
-  for (int i = 0; i < 200; ++i) {
-    const double mid = 0.5 * (lo + hi);
-    const double f = shockley(idss, vp, 0.0, -mid * rs, 0.0) - mid;
-    (f > 0 ? lo : hi) = mid;
-  }
-  return 0.5 * (lo + hi);
-}
+// Readings from the closed forms (tests/support/bench_readings.hpp).
+using pinchoff::testing::shockley;
+double jig(double idss, double vp, double rs) { return pinchoff::testing::self_bias_current(idss, vp, rs); }
 double unit(std::mt19937_64& g) { return static_cast<double>(g() >> 11) * 0x1.0p-53; }
 double gauss(std::mt19937_64& g) {
   // Box-Muller (Box & Muller 1958) on the raw generator, reproducible across platforms.

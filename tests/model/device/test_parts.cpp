@@ -10,27 +10,16 @@
 #include "base/error.hpp"
 #include "model/circuit/stage_file.hpp"
 #include "model/device/fit.hpp"
+#include "support/bench_readings.hpp"
 #include "model/device/jfet.hpp"
 
 using namespace pinchoff;
 using namespace pinchoff::model;
 
 namespace {
-// Shockley with channel-length modulation (level-1 saturation; Massobrio & Antognetti).
-double shockley(double idss, double vp, double lambda, double vgs, double vds) {
-  const double u = 1.0 - vgs / vp;
-  return u > 0.0 ? idss * u * u * (1.0 + lambda * vds) : 0.0;
-}
-// Self-bias jig, gate grounded: id = idss (1 - id rs / |vp|)^2 (Boylestad & Nashelsky ch. 7),
-// solved by bisection as an oracle independent of the fit's closed-form root.
-double jig(double idss, double vp, double rs) {
-  double lo = 0.0, hi = idss;
-  for (int i = 0; i < 200; ++i) {
-    const double mid = 0.5 * (lo + hi);
-    (shockley(idss, vp, 0.0, -mid * rs, 0.0) - mid > 0 ? lo : hi) = mid;
-  }
-  return 0.5 * (lo + hi);
-}
+// Readings from the closed forms (tests/support/bench_readings.hpp).
+using pinchoff::testing::shockley;
+double jig(double idss, double vp, double rs) { return pinchoff::testing::self_bias_current(idss, vp, rs); }
 std::string num(double v) {
   std::ostringstream os;
   os.precision(12);
