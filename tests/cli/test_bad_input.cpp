@@ -970,6 +970,7 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
   };
 
   REQUIRE(rows.size() >= 180);
+  MESSAGE("bad-input catalogue: " << rows.size() << " rows");
   const bool permissions_hold = ::geteuid() != 0;
   for (const row& r : rows) {
     std::vector<std::string> args;
