@@ -1504,9 +1504,9 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
                   "The level of a full-scale sine at the recorder's input, e.g. 1.55Vpk or +6dBu, so readings are in "
                   "volts and dBu (and with --against, the measured gain beside the model's)")
       ->type_name("LEVEL");
-  sub->add_option("--input-cal", o.input_cal_text,
+  sub->add_option("--input-cal,--drive-per-dbfs", o.input_cal_text,
                   "The generator's level when the played file holds a full-scale sine, e.g. 1Vpk or +4dBu, so --drive "
-                  "may be given in dBFS of the played file")
+                  "may be given in dBFS of the played file (--drive-per-dbfs: the same calibration)")
       ->type_name("LEVEL");
   sub->add_flag("--steps", o.steps,
                 "The recording holds a staircase of levels (as 'pinchoff tone --steps' writes): find each step and "

@@ -403,6 +403,9 @@ TEST_CASE("measure --steps --against: a staircase rendered through a stage reads
     CAPTURE(thd_p);
     if (thd_p > 1e-3) CHECK(std::abs(20 * std::log10(thd_m / thd_p)) <= 0.05);
   }
+  // --drive-per-dbfs is the same calibration under the name the bench uses.
+  CHECK(measure_json({out, "--steps", "--against", preset, "--drive", "-40dBFS..-4dBFS:12", "--drive-per-dbfs", "1Vpk",
+                      "--output-cal", "10Vpk"}) == j);
   const result plotted = run({"measure", out, "--steps", "--against", preset, "--drive", "-40dBFS..-4dBFS:12", "--input-cal",
                               "1Vpk", "--output-cal", "10Vpk", "--plot", svg});
   REQUIRE(plotted.status == 0);
