@@ -257,12 +257,11 @@ std::optional<prediction> load_against(const measure_options& o) {
 // its start and the report says how much was left out.
 constexpr std::int64_t max_analysed_frames = std::int64_t{1} << 21;
 
-// Streams one channel of [first, first + count) and finds its steady part (dsp::steady_part,
-// from 10 ms block rms values), in frames relative to `first`; holds only the block values.
-dsp::sample_range stream_steady_part(dsp::sound_reader& rd, int channel, std::int64_t first, std::int64_t count) {
+// The rms of each whole block of `block` frames of one channel of [first, first + count).
+std::vector<double> stream_block_rms(dsp::sound_reader& rd, int channel, std::int64_t first, std::int64_t count,
+                                     std::size_t block, std::int64_t* read = nullptr) {
   rd.seek(first);
   const auto ch = static_cast<std::size_t>(rd.info().channels);
-  const std::size_t block = dsp::steady_block_samples(rd.info().rate_hz);
   std::vector<double> buf(8192 * ch), rms;
   double sum = 0.0;
   std::size_t in_block = 0;
@@ -282,6 +281,16 @@ dsp::sample_range stream_steady_part(dsp::sound_reader& rd, int channel, std::in
     }
     done += static_cast<std::int64_t>(got);
   }
+  if (read) *read = done;
+  return rms;
+}
+
+// Streams one channel of [first, first + count) and finds its steady part (dsp::steady_part,
+// from 10 ms block rms values), in frames relative to `first`; holds only the block values.
+dsp::sample_range stream_steady_part(dsp::sound_reader& rd, int channel, std::int64_t first, std::int64_t count) {
+  const std::size_t block = dsp::steady_block_samples(rd.info().rate_hz);
+  std::int64_t done = 0;
+  const std::vector<double> rms = stream_block_rms(rd, channel, first, count, block, &done);
   return dsp::steady_part_of_blocks(rms, block, static_cast<std::size_t>(done));
 }
 
@@ -798,33 +807,6 @@ measure_report run(const measure_options& o) {
 }
 
 // ---- A staircase (--steps)
-
-// The rms of each whole block of `block` frames of one channel of [first, first + count).
-std::vector<double> stream_block_rms(dsp::sound_reader& rd, int channel, std::int64_t first, std::int64_t count,
-                                     std::size_t block) {
-  rd.seek(first);
-  const auto ch = static_cast<std::size_t>(rd.info().channels);
-  std::vector<double> buf(8192 * ch), rms;
-  double sum = 0.0;
-  std::size_t in_block = 0;
-  std::int64_t done = 0;
-  while (done < count) {
-    const std::size_t want = static_cast<std::size_t>(std::min<std::int64_t>(8192, count - done));
-    const std::size_t got = rd.read(std::span<double>(buf).first(want * ch));
-    if (got == 0) break;
-    for (std::size_t i = 0; i < got; ++i) {
-      const double v = buf[i * ch + static_cast<std::size_t>(channel)];
-      sum += v * v;
-      if (++in_block == block) {
-        rms.push_back(std::sqrt(sum / static_cast<double>(block)));
-        sum = 0.0;
-        in_block = 0;
-      }
-    }
-    done += static_cast<std::int64_t>(got);
-  }
-  return rms;
-}
 
 struct step_row {
   std::int64_t first_frame{0};  ///< in the file
