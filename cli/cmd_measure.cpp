@@ -285,6 +285,29 @@ std::vector<double> stream_block_rms(dsp::sound_reader& rd, int channel, std::in
   return rms;
 }
 
+// The analysis settings every tone measurement takes from its options: the window, the
+// harmonics, the band's top (--bandwidth) and the tone's frequency (--freq, or found).
+dsp::windowed_settings analysis_settings(const measure_options& o, dsp::window_kind window) {
+  dsp::windowed_settings s;
+  s.window = window;
+  s.harmonics = o.harmonics;
+  s.band_high_hz = option_frequency_hz(o.bandwidth_text, "--bandwidth");
+  if (!(s.band_high_hz > s.band_low_hz))
+    throw input_error("--bandwidth " + o.bandwidth_text + " must lie above the band's low edge, " +
+                      format_si(s.band_low_hz, "Hz") + " (AES17)");
+  if (o.freq_text != "auto") s.approx_fundamental_hz = option_frequency_hz(o.freq_text, "--freq");
+  return s;
+}
+
+// The band's top cut to the file's Nyquist frequency (AES17's 20 kHz applies from 40 kHz
+// sampling up), and a --freq above it refused; returns the band's top.
+double fit_to_rate(dsp::windowed_settings& s, const measure_options& o, double fs) {
+  s.band_high_hz = std::min(s.band_high_hz, fs / 2);
+  if (s.approx_fundamental_hz >= fs / 2)
+    throw input_error("--freq " + o.freq_text + " lies above half the file's sample rate (" + format_si(fs / 2, "Hz") + ")");
+  return s.band_high_hz;
+}
+
 // Streams one channel of [first, first + count) and finds its steady part (dsp::steady_part,
 // from 10 ms block rms values), in frames relative to `first`; holds only the block values.
 dsp::sample_range stream_steady_part(dsp::sound_reader& rd, int channel, std::int64_t first, std::int64_t count) {
@@ -330,25 +353,14 @@ measure_report analyse(const measure_options& o) {
   r.window = parse_window(o.window_text);
   if (o.harmonics < 2 || o.harmonics > 100) throw input_error("--harmonics must be 2 to 100, got " + std::to_string(o.harmonics));
   if (!(o.start_s >= 0.0) || !(o.duration_s >= 0.0)) throw input_error("--start and --duration must not be negative");
-  dsp::windowed_settings s;
-  s.window = r.window;
-  s.harmonics = o.harmonics;
-  auto frequency = [](const std::string& text, const char* option) { return option_frequency_hz(text, option); };
-  s.band_high_hz = frequency(o.bandwidth_text, "--bandwidth");
-  if (!(s.band_high_hz > s.band_low_hz))
-    throw input_error("--bandwidth " + o.bandwidth_text + " must lie above the band's low edge, " +
-                      format_si(s.band_low_hz, "Hz") + " (AES17)");
-  if (o.freq_text != "auto") s.approx_fundamental_hz = frequency(o.freq_text, "--freq");
+  dsp::windowed_settings s = analysis_settings(o, r.window);
 
   recording_part part = open_part(o, "measure reads the recording twice (to find its steady part, then to analyse it)");
   dsp::sound_reader& rd = part.rd;
   r.info = rd.info();
   r.channel = o.channel;
   const double fs = r.info.rate_hz;
-  // The band cannot reach past Nyquist; AES17's 20 kHz applies from 40 kHz sampling up.
-  r.band_high_hz = s.band_high_hz = std::min(s.band_high_hz, fs / 2);
-  if (s.approx_fundamental_hz >= fs / 2)
-    throw input_error("--freq " + o.freq_text + " lies above half the file's sample rate (" + format_si(fs / 2, "Hz") + ")");
+  r.band_high_hz = fit_to_rate(s, o, fs);
   if (o.freq_text != "auto" && s.approx_fundamental_hz < s.band_low_hz)
     throw input_error("--freq " + o.freq_text + " lies below the measurement band, which starts at " +
                       format_si(s.band_low_hz, "Hz") + " (AES17)");
@@ -844,23 +856,14 @@ steps_report analyse_steps(const measure_options& o) {
   if (!(o.start_s >= 0.0) || !(o.duration_s >= 0.0)) throw input_error("--start and --duration must not be negative");
   r.input_cal_vpk = calibration_vpk(o.input_cal_text, "--input-cal");
   r.output_cal_vpk = calibration_vpk(o.output_cal_text, "--output-cal");
-  dsp::windowed_settings s;
-  s.window = r.window;
-  s.harmonics = o.harmonics;
-  s.band_high_hz = option_frequency_hz(o.bandwidth_text, "--bandwidth");
-  if (!(s.band_high_hz > s.band_low_hz))
-    throw input_error("--bandwidth " + o.bandwidth_text + " must lie above the band's low edge, " +
-                      format_si(s.band_low_hz, "Hz") + " (AES17)");
-  if (o.freq_text != "auto") s.approx_fundamental_hz = option_frequency_hz(o.freq_text, "--freq");
+  dsp::windowed_settings s = analysis_settings(o, r.window);
 
   recording_part part = open_part(o, "measure --steps reads the recording twice (to find its steps, then to analyse each)");
   dsp::sound_reader& rd = part.rd;
   r.info = rd.info();
   r.channel = o.channel;
   const double fs = r.info.rate_hz;
-  r.band_high_hz = s.band_high_hz = std::min(s.band_high_hz, fs / 2);
-  if (s.approx_fundamental_hz >= fs / 2)
-    throw input_error("--freq " + o.freq_text + " lies above half the file's sample rate (" + format_si(fs / 2, "Hz") + ")");
+  r.band_high_hz = fit_to_rate(s, o, fs);
   r.first_frame = part.first;
   r.count = part.count;
   const std::size_t block = dsp::step_block_samples(fs);
