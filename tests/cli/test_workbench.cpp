@@ -130,7 +130,23 @@ TEST_CASE("workbench: analyse answers exactly what bias, response, sweep and noi
     CHECK(got.at("response") == cli_json({"response", preset(name), "--json"}));
     CHECK(got.at("sweep") == cli_json({"sweep", preset(name), "--json"}));
     CHECK(got.at("noise") == cli_json({"noise", preset(name), "--json"}));
+    // The page asks for the two halves at once: each the same as in the whole answer.
+    const auto small = r.client.Post(r.with_token("/api/analyse?parts=small").c_str(), slurp(preset(name)), "text/plain");
+    const auto sweep = r.client.Post(r.with_token("/api/analyse?parts=sweep").c_str(), slurp(preset(name)), "text/plain");
+    REQUIRE(small);
+    REQUIRE(sweep);
+    REQUIRE(small->status == 200);
+    REQUIRE(sweep->status == 200);
+    nlohmann::json halves = nlohmann::json::parse(small->body);
+    CHECK(!halves.contains("sweep"));
+    halves["sweep"] = nlohmann::json::parse(sweep->body).at("sweep");
+    CHECK(halves == got);
   }
+  running r(settings_for({preset("bass-booster-9v.toml")}));
+  const auto bad = r.client.Post(r.with_token("/api/analyse?parts=harmonics").c_str(), slurp(preset("bass-booster-9v.toml")), "text/plain");
+  REQUIRE(bad);
+  CHECK(bad->status == 400);
+  CHECK(nlohmann::json::parse(bad->body).at("error") == "parts: give small, sweep or all, got 'harmonics'");
 }
 
 TEST_CASE("workbench: an edited text is analysed as its file would be, and a bad one gets the command line's message") {
