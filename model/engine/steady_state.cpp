@@ -1,5 +1,6 @@
 #include "model/engine/steady_state.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -209,7 +210,8 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
     res.converged = newton(false);
   }
 
-  // Fallback: settle from the best start found, one period at a time. The distance is
+  // Fallback: settle from the best start found, one period at a time, within the period
+  // and sample budgets (a state that has not settled then is reported unconverged). The distance is
   // estimated with the last monodromy tracked, refreshed every 32 periods; a period whose
   // estimate passes is followed by a tracked one, whose fresh estimate decides.
   if (!res.converged) {
@@ -217,7 +219,9 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
     eng.set_state(best_x0);
     Eigen::VectorXd start = best_x0;
     bool confirm = false;
-    for (int k = 0; k < opt.max_settle_periods; ++k) {
+    const long long settle_periods =
+        std::min<long long>(opt.max_settle_periods, std::max<long long>(1, opt.max_settle_samples / p));
+    for (long long k = 0; k < settle_periods; ++k) {
       const bool track = confirm || !factored || k % 32 == 0;
       if (ports) res.start_state = start;
       run = run_period(eng, drive, res.output_v.data(), track ? &jac.m : nullptr, ports);

@@ -26,6 +26,9 @@ struct steady_state_options {
   /// |(M - I)^-1 (phi(x0) - x0)|, is below this (volts; states are volts, see dk_engine).
   double tol_v{1e-10};
   int max_settle_periods{20000};    ///< fallback: plain periods at most
+  /// fallback: samples at most over its periods, so that a long record (a two-tone one of
+  /// 6400 samples) cannot run 20000 periods: about 2 s on one JFET at 384 kHz.
+  long long max_settle_samples{20'000'000};
   /// Reuse the monodromy of the last tracked period while Newton converges fast (chord
   /// steps, a plain period's cost each); false tracks it over every shooting period.
   bool reuse_monodromy{true};

@@ -126,3 +126,20 @@ TEST_CASE("the monodromy over a period is the same with and without the wide ker
     CHECK((sa - sb).cwiseAbs().maxCoeff() <= 1e-11 * scale);
   }
 }
+
+TEST_CASE("the settling fallback stops at its sample budget and says it did not converge") {
+  // Without shooting the bass booster at 4 V settles over hundreds of periods (the 47 uF
+  // bypass); a budget of ten 96-sample periods ends it unconverged after the first period
+  // and ten settling ones.
+  const model::network net = preset_network("bass-booster-9v.toml");
+  const model::operating_point op = model::solve_operating_point(net);
+  model::steady_state_options o;
+  o.max_shooting_iterations = 0;
+  o.max_settle_samples = 96 * 10;
+  model::dk_engine eng(net, op, 96000.0);
+  const model::steady_state_result ss = model::periodic_steady_state(eng, 4.0, 96, o);
+  CHECK(ss.used_settling);
+  CHECK_FALSE(ss.converged);
+  CHECK(ss.periods_simulated == 11);
+  CHECK(ss.distance_v > o.tol_v);
+}
