@@ -160,6 +160,34 @@ TEST_CASE("workbench: an edited text is analysed as its file would be, and a bad
   CHECK(cli.err == "pinchoff bias: " + message + "\n");
 }
 
+TEST_CASE("workbench: a part's temperature coefficients are read as the command line reads them") {
+  // [jfet] vp_drift and beta_exponent: the page sends the text as it is; the server's answer
+  // is bias --json of that file, and a value out of range gets the command line's message.
+  scratch_dir dir;
+  const fs::path file = dir.path / "stage.toml";
+  std::string text = slurp(preset("bass-booster-9v.toml"));
+  const auto at = text.find("[jfet]\n");
+  REQUIRE(at != std::string::npos);
+  text.insert(at + 7, "vp_drift = \"-2.8mV/K\"\nbeta_exponent = -2\n");
+  write(file, text);
+  running r(settings_for({file}));
+  const auto ok = r.client.Post(r.with_token("/api/analyse").c_str(), text, "text/plain");
+  REQUIRE(ok);
+  REQUIRE(ok->status == 200);
+  CHECK(nlohmann::json::parse(ok->body).at("bias") == cli_json({"bias", file.string(), "--json"}));
+  std::string bad = text;
+  bad.replace(bad.find("beta_exponent = -2"), 18, "beta_exponent = 2");
+  const auto res = r.client.Post(r.with_token("/api/analyse").c_str(), bad, "text/plain");
+  REQUIRE(res);
+  CHECK(res->status == 400);
+  const std::string message = nlohmann::json::parse(res->body).at("error");
+  CHECK(message.find("jfet.beta_exponent must be -3 to 0") != std::string::npos);
+  write(file, bad);
+  const auto cli = run_cli({"bias", file.string()});
+  CHECK(cli.status == 2);
+  CHECK(cli.err == "pinchoff bias: " + message + "\n");
+}
+
 TEST_CASE("workbench: requests without the run's token are refused") {
   running r(settings_for({preset("bass-booster-9v.toml")}));
   CHECK(r.server.token().size() == 32);
