@@ -542,9 +542,15 @@ void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 }
 
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
-  g_.cj.noalias() = m_.c * g_.last().jf;
+  // C Jf by JFET j's 3 x 2 block of Jf (rows 3j.., columns 2j..), the rest of Jf zero; the
+  // small products coefficient by coefficient (a general product's packing costs more).
+  const Eigen::MatrixXd& jf = g_.last().jf;
+  for (int j = 0; j < m_.devices; ++j)
+    for (int t = 2 * j; t < 2 * j + 2; ++t)
+      g_.cj.col(t) = m_.c.col(3 * j) * jf(3 * j, t) + m_.c.col(3 * j + 1) * jf(3 * j + 1, t) +
+                     m_.c.col(3 * j + 2) * jf(3 * j + 2, t);
   inverse_of(g_.last().lu, g_.last().piv, g_.last().blocked, g_.mi);
-  g_.md.noalias() = g_.mi * m_.d;
+  g_.md.noalias() = g_.mi.lazyProduct(m_.d);
   apply_factor(g_.cj, g_.md, sensitivity);
 }
 

@@ -44,14 +44,15 @@ class dk_solver_base {
     in_.setZero(m_.states + 2 + currents);
   }
 
-  /// sensitivity <- (A + cj md) sensitivity, with cj = C Jf and md = M D at the converged
-  /// point: the per-sample factor of the monodromy matrix (Aprille & Trick 1972).
+  /// sensitivity <- (A + cj md) sensitivity, with cj = C Jf (ns x r) and md = M D (r x ns)
+  /// at the converged point: the per-sample factor of the monodromy matrix (Aprille &
+  /// Trick 1972). The product runs column by column over rows padded to whole packets
+  /// (monodromy_step), with AVX2 and FMA where the processor has them and the options allow.
   template <class CJ, class MD>
   void apply_factor(const CJ& cj, const MD& md, Eigen::MatrixXd& sensitivity) {
-    phi_ = m_.a;
-    phi_.noalias() += cj * md;
-    tmp_.noalias() = phi_ * sensitivity;
-    sensitivity = tmp_;
+    track_cj_.topRows(m_.states) = cj;
+    track_md_ = md;
+    monodromy_step(sensitivity);
   }
 
   dk_matrices m_;
@@ -62,7 +63,14 @@ class dk_solver_base {
   double y_dc_{0};
   dk_stats stats_;
   Eigen::VectorXd in_;              // [x; u; i] - their DC values: states, supply and generator, device currents
-  Eigen::MatrixXd phi_, tmp_;       // apply_factor's scratch (ns x ns)
+  // apply_factor's scratch: A, C Jf, A + C Jf M D and the product, column-major with
+  // track_rows_ rows (ns padded to whole packets of 4, the padding zero); M D (r x ns)
+  Eigen::MatrixXd track_a_, track_cj_, track_md_, phi_, tmp_;
+  Eigen::Index track_rows_{0};
+  bool track_wide_{false};
+
+ private:
+  void monodromy_step(Eigen::MatrixXd& sensitivity) noexcept;
 };
 
 /// The interface of a solver to the façade. Every call but construction allocates nothing.

@@ -1,5 +1,6 @@
 #include "model/engine/steady_state.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -43,18 +44,25 @@ period_run run_period(dk_engine& eng, const std::vector<double>& drive, double* 
 
 double max_abs(const Eigen::VectorXd& v) { return v.size() ? v.cwiseAbs().maxCoeff() : 0.0; }
 
-// Newton correction for the period map: solves (M - I) dx = -(phi - x0) in the least-
-// squares, minimum-norm sense. Directions where M - I is singular are left alone: they are
-// the undamped alternating modes the trapezoidal rule gives a loop of capacitors and ideal
-// sources (eigenvalue -1 per sample, +1 per even period), which the drive does not excite.
-Eigen::VectorXd newton_correction(const Eigen::MatrixXd& m, const Eigen::VectorXd& residual) {
-  if (m.rows() == 0) return Eigen::VectorXd(0);
-  const Eigen::MatrixXd j = m - Eigen::MatrixXd::Identity(m.rows(), m.cols());
+// The monodromy matrix M of the last tracked period and the factorisation of M - I that
+// gives Newton corrections: solves (M - I) dx = -(phi - x0) in the least-squares, minimum-
+// norm sense. Directions where M - I is singular are left alone: they are the undamped
+// alternating modes the trapezoidal rule gives a loop of capacitors and ideal sources
+// (eigenvalue -1 per sample, +1 per even period), which the drive does not excite.
+struct period_jacobian {
+  Eigen::MatrixXd m;
   Eigen::CompleteOrthogonalDecomposition<Eigen::MatrixXd> cod;
-  cod.setThreshold(1e-11);
-  cod.compute(j);
-  return cod.solve(-residual);
-}
+
+  explicit period_jacobian(int ns) : m(ns, ns) { cod.setThreshold(1e-11); }
+  void factor() {
+    if (m.rows() == 0) return;
+    cod.compute(m - Eigen::MatrixXd::Identity(m.rows(), m.cols()));
+  }
+  Eigen::VectorXd correction(const Eigen::VectorXd& residual) const {
+    if (m.rows() == 0) return Eigen::VectorXd(0);
+    return cod.solve(-residual);
+  }
+};
 
 }  // namespace
 
@@ -92,75 +100,151 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
 
   eng.reset();
   Eigen::VectorXd x0 = eng.dc_state();
-  Eigen::MatrixXd m(ns, ns);
+  period_jacobian jac(ns);
+  bool factored = false;  // jac holds a factored monodromy
   Eigen::VectorXd best_x0 = x0;
   double best_distance = std::numeric_limits<double>::infinity();
   period_run run;
+  constexpr double inf = std::numeric_limits<double>::infinity();
 
-  // Shooting: Newton on x0, damped by step halving where a full step does not shorten the
-  // estimated distance to the periodic solution (hard drive makes the period map strongly
-  // nonlinear: gate conduction recharges the coupling capacitors within a period).
-  auto shoot = [&](const Eigen::VectorXd& start, Eigen::VectorXd& r, Eigen::VectorXd& dx) {
+  // One period from `start`: the residual r = phi(start) - start and the correction dx.
+  // With `track` the monodromy is accumulated over this period (an ns x ns product a
+  // sample, most of a chain's cost); without, the correction comes from the last one
+  // tracked: a chord step (Ortega & Rheinboldt, Iterative Solution of Nonlinear Equations
+  // in Several Variables, 1970, 7.1), a plain period's cost. Returns max |dx|.
+  auto shoot = [&](const Eigen::VectorXd& start, bool track, Eigen::VectorXd& r, Eigen::VectorXd& dx) {
     eng.set_state(start);
     if (ports) res.start_state = start;
-    run = run_period(eng, drive, res.output_v.data(), &m, ports);
+    run = run_period(eng, drive, res.output_v.data(), track ? &jac.m : nullptr, ports);
     ++res.periods_simulated;
-    if (!run.finite) return std::numeric_limits<double>::infinity();
+    if (track) ++res.periods_tracked;
+    if (!run.finite) return inf;
+    if (track) {
+      jac.factor();
+      factored = true;
+    }
     r = run.end_state - start;
-    dx = newton_correction(m, r);
-    return dx.allFinite() ? max_abs(dx) : std::numeric_limits<double>::infinity();
+    dx = jac.correction(r);
+    return dx.allFinite() ? max_abs(dx) : inf;
   };
+
+  // Newton on x0 from its value, at most opt.max_shooting_iterations Newton updates.
+  // `damped`: step halving where a full step does not shorten the estimated distance to
+  // the periodic solution (hard drive makes the period map strongly nonlinear: gate
+  // conduction recharges the coupling capacitors within a period).
+  //
+  // Once a Newton step has shortened the distance at least tenfold (its quadratic
+  // convergence shows), the monodromy of the last tracked period serves the following
+  // steps as long as each shortens the distance at least tenfold too; a slower step
+  // tracks again. The acceptance stays the Newton estimate's: with a fresh monodromy the
+  // distance |(M - I)^-1 r| <= tol_v as before; with one of a chord step of contraction
+  // rho the bound |dx| / (1 - rho) on the start's distance (Ortega & Rheinboldt 12.1)
+  // <= tol_v, which is not looser.
+  constexpr double fast_ratio = 0.1;
   Eigen::VectorXd r(ns), dx(ns), r_try(ns), dx_try(ns);
-  double distance = shoot(x0, r, dx);
-  int periods_left = opt.max_shooting_iterations * 3;
-  while (std::isfinite(distance)) {
-    res.state_change_v = max_abs(r);
-    res.distance_v = distance;
-    if (distance < best_distance) {
-      best_distance = distance;
-      best_x0 = x0;
+  auto newton = [&](bool damped) {
+    bool fresh = true, chord = false;
+    double rho = 0.0;
+    int newton_steps = 0, chord_steps = 0;
+    int periods_left = opt.max_shooting_iterations * 3;
+    double distance = shoot(x0, true, r, dx);
+    while (std::isfinite(distance)) {
+      res.state_change_v = max_abs(r);
+      res.distance_v = distance;
+      if (distance < best_distance) {
+        best_distance = distance;
+        best_x0 = x0;
+      }
+      if ((fresh ? distance : distance / (1.0 - rho)) <= opt.tol_v || res.state_change_v == 0.0) return true;
+      if (newton_steps >= opt.max_shooting_iterations) return false;
+      if (chord && chord_steps < 3 * opt.max_shooting_iterations) {
+        const Eigen::VectorXd x_try = x0 + dx;
+        const double d_try = shoot(x_try, false, r_try, dx_try);
+        ++chord_steps;
+        if (std::isfinite(d_try) && d_try < distance) {  // progress: kept
+          ++res.shooting_iterations;
+          x0 = x_try;
+          r = r_try;
+          dx = dx_try;
+          if (d_try <= fast_ratio * distance) {
+            rho = d_try / distance;
+            distance = d_try;
+            fresh = false;
+            continue;
+          }
+        }
+        // Too slow: the monodromy is tracked again, from the start kept.
+        chord = false;
+        distance = shoot(x0, true, r, dx);
+        fresh = true;
+        continue;
+      }
+      if (periods_left <= 0) return false;
+      double lambda = 1.0, d_try = inf;
+      Eigen::VectorXd x_try = x0;
+      for (int h = 0; h < (damped ? 6 : 1) && periods_left > 0; ++h, lambda *= 0.5) {
+        x_try = x0 + lambda * dx;
+        d_try = shoot(x_try, true, r_try, dx_try);
+        --periods_left;
+        if (d_try < distance) break;
+      }
+      ++res.shooting_iterations;
+      ++newton_steps;
+      // Without a shorter distance even at the smallest step the last trial is kept anyway
+      // (the iteration cap ends a hopeless case); a non-finite one ends it now.
+      if (!std::isfinite(d_try)) return false;
+      chord = opt.reuse_monodromy && d_try <= fast_ratio * distance;
+      x0 = x_try;
+      r = r_try;
+      dx = dx_try;
+      distance = d_try;
+      fresh = true;
     }
-    if (distance <= opt.tol_v || res.state_change_v == 0.0) {
-      res.converged = true;
-      break;
-    }
-    if (res.shooting_iterations >= opt.max_shooting_iterations || periods_left <= 0) break;
-    double lambda = 1.0, d_try = std::numeric_limits<double>::infinity();
-    Eigen::VectorXd x_try = x0;
-    for (int h = 0; h < 6 && periods_left > 0; ++h, lambda *= 0.5) {
-      x_try = x0 + lambda * dx;
-      d_try = shoot(x_try, r_try, dx_try);
-      --periods_left;
-      if (d_try < distance) break;
-    }
-    ++res.shooting_iterations;
-    // Without a shorter distance even at the smallest step the last trial is kept anyway
-    // (the iteration cap ends a hopeless case); a non-finite one ends it now.
-    if (!std::isfinite(d_try)) break;
-    x0 = x_try;
-    r = r_try;
-    dx = dx_try;
-    distance = d_try;
+    return false;
+  };
+  res.converged = newton(true);
+  // The damping can stall where full steps converge (the estimated distance growing for a
+  // step or two on the way): full Newton steps from the best start found.
+  if (!res.converged && opt.max_shooting_iterations > 0 && std::isfinite(best_distance)) {
+    x0 = best_x0;
+    res.converged = newton(false);
   }
 
-  // Fallback: settle from the best start found, one period at a time.
+  // Fallback: settle from the best start found, one period at a time, within the period
+  // and sample budgets (a state that has not settled then is reported unconverged). The distance is
+  // estimated with the last monodromy tracked, refreshed every 32 periods; a period whose
+  // estimate passes is followed by a tracked one, whose fresh estimate decides.
   if (!res.converged) {
     res.used_settling = true;
     eng.set_state(best_x0);
     Eigen::VectorXd start = best_x0;
-    for (int k = 0; k < opt.max_settle_periods; ++k) {
+    bool confirm = false;
+    const long long settle_periods =
+        std::min<long long>(opt.max_settle_periods, std::max<long long>(1, opt.max_settle_samples / p));
+    for (long long k = 0; k < settle_periods; ++k) {
+      const bool track = confirm || !factored || k % 32 == 0;
       if (ports) res.start_state = start;
-      run = run_period(eng, drive, res.output_v.data(), &m, ports);
+      run = run_period(eng, drive, res.output_v.data(), track ? &jac.m : nullptr, ports);
       ++res.periods_simulated;
+      if (track) ++res.periods_tracked;
       if (!run.finite) break;
-      const Eigen::VectorXd r = run.end_state - start;
-      const Eigen::VectorXd dx = newton_correction(m, r);
+      if (track) {
+        jac.factor();
+        factored = true;
+      }
+      r = run.end_state - start;
+      dx = jac.correction(r);
       res.state_change_v = max_abs(r);
-      res.distance_v = dx.allFinite() ? max_abs(dx) : std::numeric_limits<double>::infinity();
+      res.distance_v = dx.allFinite() ? max_abs(dx) : inf;
       start = run.end_state;
       if (res.distance_v <= opt.tol_v) {
-        res.converged = true;
-        break;
+        if (track) {
+          res.converged = true;
+          break;
+        }
+        confirm = true;
+      } else {
+        confirm = false;
       }
     }
   }

@@ -26,6 +26,12 @@ struct steady_state_options {
   /// |(M - I)^-1 (phi(x0) - x0)|, is below this (volts; states are volts, see dk_engine).
   double tol_v{1e-10};
   int max_settle_periods{20000};    ///< fallback: plain periods at most
+  /// fallback: samples at most over its periods, so that a long record (a two-tone one of
+  /// 6400 samples) cannot run 20000 periods: about 2 s on one JFET at 384 kHz.
+  long long max_settle_samples{20'000'000};
+  /// Reuse the monodromy of the last tracked period while Newton converges fast (chord
+  /// steps, a plain period's cost each); false tracks it over every shooting period.
+  bool reuse_monodromy{true};
   /// Also return every JFET's port voltages at every sample of the returned periods and the
   /// state before them (steady_state_result::ports_network_v, start_state), from which the
   /// voltage of any node follows (model/engine/dk_probes.hpp). Recorded as each period runs,
@@ -45,6 +51,7 @@ struct steady_state_result {
   double distance_v{0};             ///< the Newton estimate of its distance to the periodic solution (V)
   int shooting_iterations{0};       ///< Newton updates made
   int periods_simulated{0};         ///< every period run, shooting, settling and output
+  int periods_tracked{0};           ///< of them, those that tracked the monodromy
   bool converged{false};
   bool used_settling{false};        ///< shooting did not converge; settling periods were run
   dk_stats engine;                  ///< Newton statistics over all periods
