@@ -67,6 +67,7 @@ bool is_unit_symbol(std::string_view s, unit u) noexcept {
     case unit::watt: return s == "W";
     case unit::per_volt: return s == "/V";
     case unit::volt_per_pascal: return s == "V/Pa";
+    case unit::volt_per_kelvin: return s == "V/K" || s == "V/\xC2\xB0C";  // a kelvin and a degree Celsius are one step
     case unit::henry: return s == "H";
     case unit::kelvin:
     case unit::none: return false;
@@ -84,6 +85,7 @@ const char* unit_noun(unit u) noexcept {
     case unit::watt: return "a power (such as 300m or 0.3)";
     case unit::per_volt: return "a value in 1/V (such as 0.004)";
     case unit::volt_per_pascal: return "a sensitivity in V/Pa (such as 12m or 12mV/Pa)";
+    case unit::volt_per_kelvin: return "a drift in V/K (such as -2.2m or -2.2mV/K)";
     case unit::kelvin: return "a temperature in kelvin (such as 300.15)";
     case unit::henry: return "an inductance (such as 2.5, 2.5H or 800m)";
     case unit::none: return "a number (such as 4.7k or 0.5)";
@@ -327,6 +329,7 @@ std::string_view unit_symbol(unit u) noexcept {
     case unit::per_volt: return "/V";
     case unit::kelvin: return "K";
     case unit::volt_per_pascal: return "V/Pa";
+    case unit::volt_per_kelvin: return "V/K";
     case unit::henry: return "H";
     case unit::none: return "";
   }

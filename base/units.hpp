@@ -13,7 +13,7 @@
 namespace pinchoff::base {
 
 /// The unit a value is read in; its symbols are accepted as an optional suffix.
-enum class unit { none, ohm, farad, volt, ampere, hertz, watt, per_volt, kelvin, volt_per_pascal, henry };
+enum class unit { none, ohm, farad, volt, ampere, hertz, watt, per_volt, kelvin, volt_per_pascal, henry, volt_per_kelvin };
 
 /// Parses a value as described above. Throws input_error naming the text and what was
 /// expected. `what` names the thing for the message ("drain.resistor").

@@ -34,8 +34,8 @@ struct bias_options {
   std::string at_text;
   bool thd_levels{false};
   std::string temperature;         ///< --temperature LO..HI, °C
-  double vp_drift_mv{-2.2};        ///< --vp-drift, mV/K (n-channel frame)
-  double beta_exponent{-1.5};      ///< --beta-exponent
+  std::optional<double> vp_drift_mv;    ///< --vp-drift, mV/K (n-channel frame); over every part's own
+  std::optional<double> beta_exponent;  ///< --beta-exponent; likewise
   bool json{false};
 };
 
@@ -50,14 +50,41 @@ struct bias_report {
 
 double celsius(double kelvin) { return kelvin - 273.15; }
 
+// A part's law as the text report writes it, each coefficient with where it came from when
+// not the default: "VP -2.2 mV/K, beta ∝ T^-1.5, gate leakage doubling every 10 K".
+std::string law_text(const model::part_law& l, model::polarity pol) {
+  auto from = [](model::coefficient_source s, const char* option) -> std::string {
+    switch (s) {
+      case model::coefficient_source::part: return " (the part's own)";
+      case model::coefficient_source::setting: return std::string(" (") + option + ")";
+      case model::coefficient_source::law_default: break;
+    }
+    return "";
+  };
+  return "VP " + format_number(l.law.vp_drift_v_per_k * 1e3, 3) + " mV/K" + (pol == model::polarity::p ? " mirrored" : "") +
+         from(l.vp_drift_from, "--vp-drift") + ", beta ∝ T^" + format_number(l.law.beta_exponent, 3) +
+         from(l.beta_exponent_from, "--beta-exponent") + ", gate leakage doubling every " +
+         format_number(l.law.leakage_doubling_k, 3) + " K";
+}
+
+// Where a coefficient came from, as the JSON report names it.
+const char* source_json(model::coefficient_source s) {
+  return s == model::coefficient_source::setting ? "option" : model::source_name(s);
+}
+
+bool all_laws_alike(const model::temperature_drift& d) {
+  return std::all_of(d.laws.begin(), d.laws.end(), [&](const model::part_law& l) {
+    return law_text(l, model::polarity::n) == law_text(d.laws.front(), model::polarity::n);
+  });
+}
+
 // --temperature: the rest point at each temperature, and each part's zero-TC current.
 void print_drift(const bias_report& r, std::ostream& out) {
   const model::temperature_drift& d = *r.drift;
   const int n = r.st.stage_count();
-  out << "\nTemperature drift (the part's figures at " << format_number(celsius(d.reference_k), 3) << " °C; VP "
-      << format_number(d.law.vp_drift_v_per_k * 1e3, 3) << " mV/K" << (r.st.pol == model::polarity::p ? " mirrored" : "")
-      << ", beta ∝ T^" << format_number(d.law.beta_exponent, 3) << ", gate leakage doubling every "
-      << format_number(d.law.leakage_doubling_k, 3) << " K)\n";
+  out << "\nTemperature drift (the parts' figures at " << format_number(celsius(d.reference_k), 3) << " °C";
+  if (all_laws_alike(d)) out << "; " << law_text(d.laws.front(), r.st.pol);
+  out << ")\n";
   std::vector<align> cols{align::right};
   std::vector<std::string> head{"°C"};
   for (int k = 0; k < n; ++k) {
@@ -86,7 +113,9 @@ void print_drift(const bias_report& r, std::ostream& out) {
   for (int k = 0; k < n; ++k) {
     const model::zero_tc_point& z = d.zero_tc[static_cast<std::size_t>(k)];
     const double id = std::fabs(d.rest[static_cast<std::size_t>(k)].id_a);
-    out << "  " << (n > 1 ? "stage " + std::to_string(k + 1) + ": " : std::string()) << "zero-TC drain current "
+    out << "  " << (n > 1 ? "stage " + std::to_string(k + 1) + ": " : std::string());
+    if (!all_laws_alike(d)) out << law_text(d.laws[static_cast<std::size_t>(k)], r.st.pol) << "; ";
+    out << "zero-TC drain current "
         << format_si(z.id_a, "A") << " (VGS = VP + " << format_si(z.vov_v, "V") << ")";
     if (!z.below_idss)
       out << ", above IDSS: out of reach with the gate reverse-biased; ID rises as the part warms\n";
@@ -113,18 +142,24 @@ nlohmann::json drift_json(const bias_report& r) {
                       {"stages", stages},
                       {"gain_db", p.solved ? nlohmann::json(p.gain_db) : nlohmann::json(nullptr)}});
   }
+  auto law_json = [](const model::part_law& l) {
+    return nlohmann::json{{"vp_drift_v_per_k", l.law.vp_drift_v_per_k},
+                          {"beta_exponent", l.law.beta_exponent},
+                          {"leakage_doubling_k", l.law.leakage_doubling_k},
+                          {"vp_drift_from", source_json(l.vp_drift_from)},
+                          {"beta_exponent_from", source_json(l.beta_exponent_from)}};
+  };
   nlohmann::json ztc = nlohmann::json::array();
   for (std::size_t k = 0; k < d.zero_tc.size(); ++k)
     ztc.push_back({{"stage", k + 1},
+                   {"law", law_json(d.laws[k])},
                    {"id_a", d.zero_tc[k].id_a},
                    {"vov_v", d.zero_tc[k].vov_v},
                    {"vgs_v", d.zero_tc[k].vgs_v},
                    {"below_idss", d.zero_tc[k].below_idss},
                    {"bias_id_a", std::fabs(d.rest[k].id_a)}});
   return {{"reference_c", celsius(d.reference_k)},
-          {"law", {{"vp_drift_v_per_k", d.law.vp_drift_v_per_k},
-                   {"beta_exponent", d.law.beta_exponent},
-                   {"leakage_doubling_k", d.law.leakage_doubling_k}}},
+          {"law", law_json(d.laws.front())},  // the first stage's; each stage's is in zero_tc
           {"points", points},
           {"zero_tc", ztc}};
 }
@@ -518,14 +553,20 @@ CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
   sub->add_flag("--thd-levels", opt.thd_levels,
                 "Also the output at 1 %, 3 % and 10 % THD (1 kHz) from the engine, beside the clean swing: a sweep of "
                 "33 drives, which adds about 0.1 s on one stage and 0.5 to 2 s on a chain");
-  sub->add_option("--temperature", opt.temperature,
+  CLI::Option* temperature = sub->add_option("--temperature", opt.temperature,
                   "Also the operating point's drift over this range in °C, LO..HI (steps of at most 10 °C; -55 to 150), "
                   "and each part's zero-TC drain current")
       ->type_name("LO..HI");
-  sub->add_option("--vp-drift", opt.vp_drift_mv, "With --temperature: the part's pinch-off drift, mV/K (n-channel sign)")
-      ->capture_default_str();
-  sub->add_option("--beta-exponent", opt.beta_exponent, "With --temperature: m in beta ∝ T^m (the channel's mobility)")
-      ->capture_default_str();
+  sub->add_option("--vp-drift", opt.vp_drift_mv,
+                  "With --temperature: the pinch-off drift of every part, mV/K (n-channel sign); overrides the file's "
+                  "[jfet] vp_drift; default: the part's own, else -2.2")
+      ->type_name("MV_PER_K")
+      ->needs(temperature);
+  sub->add_option("--beta-exponent", opt.beta_exponent,
+                  "With --temperature: m in beta ∝ T^m (the channel's mobility) for every part; overrides the file's "
+                  "[jfet] beta_exponent; default: the part's own, else -1.5")
+      ->type_name("M")
+      ->needs(temperature);
   sub->add_flag("--json", opt.json, "Machine-readable output (keys carry their unit as a suffix)");
   sub->footer(
       "Examples:\n"
@@ -563,10 +604,10 @@ bias_report analyse_bias_report(model::stage st, std::optional<double> at_hz, co
     const int n = c.hi > c.lo ? std::max(2, static_cast<int>(std::ceil((c.hi - c.lo) / 10.0 - 1e-9)) + 1) : 1;
     std::vector<double> kelvin;
     for (int i = 0; i < n; ++i) kelvin.push_back(273.15 + c.lo + (n == 1 ? 0.0 : (c.hi - c.lo) * i / (n - 1)));
-    model::temperature_law law;
-    law.vp_drift_v_per_k = opt.vp_drift_mv * 1e-3;
-    law.beta_exponent = opt.beta_exponent;
-    r.drift = model::analyse_temperature_drift(r.st, kelvin, law);
+    model::temperature_law_setting setting;
+    if (opt.vp_drift_mv) setting.vp_drift_v_per_k = *opt.vp_drift_mv * 1e-3;
+    setting.beta_exponent = opt.beta_exponent;
+    r.drift = model::analyse_temperature_drift(r.st, kelvin, setting);
   }
   const model::noise_result n = model::analyse_noise(r.b.net, r.b.op, {.points = 2, .band_points_per_decade = 50});
   r.ein_a_dbu = model::dbu_of_rms(n.input_a_v());

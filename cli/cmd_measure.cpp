@@ -69,7 +69,48 @@ struct measure_options {
   std::string response_path;
   std::string sweep_text{"20..20k"};
   int response_points{200};
+  std::string latency_text{"auto"};  ///< --latency SECONDS|auto
+  /// The options given on the command line (by their long name), to refuse one the chosen
+  /// reading does not use.
+  std::vector<std::string> given;
 };
+
+// Which reading of the recording the options choose.
+enum class reading { tone, steps, noise, response };
+reading reading_of(const measure_options& o) {
+  if (o.noise) return reading::noise;
+  if (!o.response_path.empty()) return reading::response;
+  if (o.steps) return reading::steps;
+  return reading::tone;
+}
+
+// Options a reading does not use: given with it, each is refused by name with what it needs,
+// rather than silently ignored. (Pairs a reading checks itself, such as --freq with --noise or
+// --csv with a tone, are refused there with their own words.)
+struct unused_option {
+  const char* option;
+  std::vector<reading> used_by;
+  const char* needs;
+};
+void refuse_unused(const measure_options& o) {
+  static const std::vector<unused_option> table{
+      {"--sweep", {reading::response}, "goes with --response PLAYED: the band of the played sweep"},
+      {"--points", {reading::response}, "goes with --response PLAYED: the frequencies its response is read at"},
+      {"--latency", {reading::response}, "goes with --response PLAYED: the recording chain's latency to remove"},
+      {"--window", {reading::tone, reading::steps},
+       "goes with a tone or --steps (the window of the harmonic analysis); --response and --noise use none"},
+      {"--harmonics", {reading::tone, reading::steps},
+       "goes with a tone or --steps (the highest harmonic in THD); --response reads H2..H5, --noise none"},
+      {"--bandwidth", {reading::tone, reading::steps, reading::noise},
+       "goes with a tone, --steps or --noise (the band's upper edge); --response reads the band of --sweep"},
+  };
+  const reading r = reading_of(o);
+  for (const unused_option& u : table) {
+    if (std::find(o.given.begin(), o.given.end(), u.option) == o.given.end()) continue;
+    if (std::find(u.used_by.begin(), u.used_by.end(), r) == u.used_by.end())
+      throw input_error(std::string(u.option) + " " + u.needs);
+  }
+}
 
 // --noise: the readings of a recording that holds noise alone, and the stage's predicted
 // output noise beside them (--against, in volts through --output-cal).
@@ -1211,7 +1252,9 @@ struct response_report {
   dsp::sound_info info;
   int channel{1};
   dsp::exp_sweep_plan plan;
-  double delay_s{};             ///< the linear response's peak: the recording chain's latency, to the sample
+  double delay_s{};             ///< the latency removed: the peak's, to the sample, or the one given
+  double peak_s{};              ///< where the linear impulse response peaks (to the sample)
+  bool latency_given{false};    ///< --latency SECONDS: delay_s removed exactly, as a linear phase
   double trusted_low_hz{}, trusted_high_hz{};
   std::vector<double> frequency_hz;
   std::vector<std::complex<double>> measured;  ///< recording re played file (full scale per full scale), or V/V calibrated
@@ -1227,6 +1270,16 @@ struct response_report {
 };
 
 constexpr int response_harmonics = 5;  // H2..H5 read from the sweep
+
+// --latency SECONDS|auto: nullopt for auto (the peak's, to the sample).
+std::optional<double> latency_of(const std::string& text) {
+  if (text == "auto") return std::nullopt;
+  const std::optional<double> v = base::try_parse_value(text, base::unit::none);
+  if (!v || !std::isfinite(*v) || *v < 0.0)
+    throw input_error("--latency '" + text + "': give auto, or the recording chain's latency in seconds (0 or more, "
+                      "such as 0.0021 or 2.1m)");
+  return v;
+}
 
 response_report analyse_response_recording(const measure_options& o) {
   if (!o.drive_text.empty())
@@ -1246,6 +1299,7 @@ response_report analyse_response_recording(const measure_options& o) {
     throw input_error("--response compares volts only with both calibrations: --input-cal (the generator's level for a "
                       "full-scale sine in the played file) and --output-cal (a full-scale sine's level at the recorder)");
   const base::value_range band = base::parse_range(o.sweep_text, base::unit::hertz, "--sweep");
+  const std::optional<double> latency = latency_of(o.latency_text);
   std::optional<model::stage> st;
   if (!o.against_path.empty()) st = load_stage(o.against_path, o.overrides, o.devices);
 
@@ -1280,13 +1334,23 @@ response_report analyse_response_recording(const measure_options& o) {
   } catch (const input_error& e) {
     throw input_error("'" + o.path + "': " + e.what());
   }
-  r.delay_s = static_cast<double>(d.linear_index) / fs;
+  r.peak_s = static_cast<double>(d.linear_index) / fs;
+  r.delay_s = r.peak_s;
+  if (latency) {
+    const double flat_s = dsp::linear_window_flat_samples(d) / fs;
+    if (!(std::fabs(*latency - r.peak_s) <= flat_s))
+      throw input_error("--latency " + o.latency_text + ": the impulse response peaks at " + format_si(r.peak_s, "s", 4) +
+                        ", and a latency more than " + format_si(flat_s, "s", 3) +
+                        " from it is not this recording's (the response is read in a window around the peak)");
+    r.delay_s = *latency;
+    r.latency_given = true;
+  }
   r.trusted_low_hz = d.trusted_low_hz();
   r.trusted_high_hz = d.trusted_high_hz();
   for (int i = 0; i < o.response_points; ++i)
     r.frequency_hz.push_back(r.trusted_low_hz *
                              std::pow(r.trusted_high_hz / r.trusted_low_hz, static_cast<double>(i) / (o.response_points - 1)));
-  r.measured = dsp::linear_response(d, r.frequency_hz);
+  r.measured = dsp::linear_response(d, r.frequency_hz, r.delay_s * fs);
   const double scale = r.calibrated() ? r.output_cal_vpk / r.input_cal_vpk : 1.0;
   for (std::complex<double>& v : r.measured) v *= scale;
   r.harmonics_dbc.assign(r.frequency_hz.size(), std::vector<double>(response_harmonics - 1, std::nan("")));
@@ -1332,8 +1396,10 @@ void write_response_text(const response_report& r, std::ostream& out) {
       << (fs == std::floor(fs) ? std::to_string(static_cast<long long>(fs)) : format_number(fs, 6)) << " Hz, "
       << format_number(r.info.seconds(), 4) << " s, channel " << r.channel << "\n  the answer to " << r.played_path << ", a sweep "
       << format_si(r.plan.start_hz, "Hz", 3) << " to " << format_si(r.plan.end_hz, "Hz", 3) << " in " << format_number(r.plan.seconds, 4)
-      << " s (Farina 2000: deconvolved, harmonics separated in time)\n  latency " << fixed(1000.0 * r.delay_s, 3)
-      << " ms (removed, to the sample); read from " << format_si(r.trusted_low_hz, "Hz", 3) << " to "
+      << " s (Farina 2000: deconvolved, harmonics separated in time)\n  latency " << fixed(1000.0 * r.delay_s, 4)
+      << (r.latency_given ? " ms (given, removed exactly; the impulse response peaks at " + fixed(1000.0 * r.peak_s, 4) + " ms)"
+                          : std::string(" ms (the impulse response's peak, removed to the sample)"))
+      << "; read from " << format_si(r.trusted_low_hz, "Hz", 3) << " to "
       << format_si(r.trusted_high_hz, "Hz", 3) << '\n';
   const std::vector<double> m = reported_db(r, r.measured);
   const std::vector<double> q = r.model.empty() ? std::vector<double>{} : reported_db(r, r.model);
@@ -1360,10 +1426,13 @@ void write_response_text(const response_report& r, std::ostream& out) {
     t.add(row);
   }
   t.write(out);
-  out << "  phase: referred to the impulse response's peak; a recording chain's latency that is not a whole\n"
-         "  number of samples adds up to 180 f / fs degrees ("
-      << fixed(180.0 * 1000.0 / fs, 1) << "° at 1 kHz here). H2, H3: the harmonic at the frequency\n"
-         "  played re the fundamental, \"-\" where the harmonic lies outside the band read.\n";
+  if (r.latency_given)
+    out << "  phase: with the latency given removed exactly.";
+  else
+    out << "  phase: referred to the impulse response's peak; a recording chain's latency that is not a whole\n"
+           "  number of samples adds up to 180 f / fs degrees ("
+        << fixed(180.0 * 1000.0 / fs, 1) << "° at 1 kHz here); --latency removes a known one exactly.";
+  out << " H2, H3: the\n  harmonic at the frequency played re the fundamental, \"-\" where it lies outside the band read.\n";
   if (!r.model.empty()) {
     out << "  model: " << r.stage_path;
     for (const std::string& ov : r.overrides) out << " --set " << ov;
@@ -1386,6 +1455,8 @@ void write_response_json(const response_report& r, std::ostream& out) {
                    {"channel", r.channel},
                    {"sweep", {{"start_hz", r.plan.start_hz}, {"end_hz", r.plan.end_hz}, {"seconds", r.plan.seconds}}},
                    {"latency_s", r.delay_s},
+                   {"latency_given", r.latency_given},
+                   {"peak_s", r.peak_s},
                    {"band_hz", {r.trusted_low_hz, r.trusted_high_hz}},
                    {"calibrated", r.calibrated()},
                    {"points", pts}};
@@ -1506,6 +1577,11 @@ CLI::App* setup(CLI::App& app, measure_options& o) {
       ->capture_default_str();
   sub->add_option("--points", o.response_points, "With --response: frequencies read, log-spaced over the band")
       ->capture_default_str();
+  sub->add_option("--latency", o.latency_text,
+                  "With --response: the recording chain's latency, removed exactly (a fraction of a sample as a "
+                  "linear phase), or auto: the impulse response's peak, to the sample")
+      ->type_name("SECONDS|auto")
+      ->capture_default_str();
   sub->footer(
       "Examples:\n"
       "  pinchoff measure stage-out.wav\n"
@@ -1553,7 +1629,11 @@ void register_measure(CLI::App& app, std::vector<command>& commands, const data_
   opt->devices = data.devices;
   CLI::App* sub = setup(app, *opt);
   commands.push_back({sub,
-                      [opt](std::ostream& out, std::ostream&, base::output_set& outputs) {
+                      [opt, sub](std::ostream& out, std::ostream&, base::output_set& outputs) {
+                        opt->given.clear();
+                        for (const CLI::Option* op : sub->get_options())
+                          if (op->count() > 0 && !op->get_lnames().empty()) opt->given.push_back("--" + op->get_lnames().front());
+                        refuse_unused(*opt);
                         if (opt->noise) {
                           const noise_report n = analyse_noise_recording(*opt);
                           if (opt->json) write_noise_json(n, out);

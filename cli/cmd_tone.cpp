@@ -345,7 +345,7 @@ CLI::App* setup(CLI::App& app, tone_options& o) {
   auto* steps = sub->add_option("--steps", o.steps_text,
                                 "A staircase of levels instead of one: FROM..TO:STEP, levels in dBFS, step in dB")
                     ->type_name("FROM..TO:STEP");
-  sub->add_option("--step-seconds", o.step_seconds, "How long each step of --steps holds")->capture_default_str();
+  sub->add_option("--step-seconds", o.step_seconds, "How long each step of --steps holds")->capture_default_str()->needs(steps);
   auto* sweep = sub->add_option("--sweep", o.sweep_text,
                                 "An exponential sine sweep instead of a tone: FROM..TO in hertz, over --seconds, at "
                                 "--level, with --fade-ms fades (read back with measure --response)")

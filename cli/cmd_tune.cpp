@@ -51,6 +51,28 @@ row_levels levels_of_rows(const model::stage& st, const model::tune_result& r) {
   return out;
 }
 
+// Several targets: each pair's table (its resistor's rows, the others at their exact values)
+// and each standard-value combination around the joint solution, with all its values in place.
+struct joint_levels {
+  std::vector<row_levels> tables;  ///< one per pair
+  row_levels candidates;           ///< one per joint candidate
+};
+
+joint_levels levels_of_joint(const std::vector<model::stage>& tables_stages, const std::vector<model::tune_result>& results,
+                             const model::stage& st, const std::vector<model::tune_pair>& pairs,
+                             const std::vector<model::joint_candidate>& cands) {
+  joint_levels out;
+  for (std::size_t k = 0; k < results.size(); ++k) out.tables.push_back(levels_of_rows(tables_stages[k], results[k]));
+  for (const model::joint_candidate& c : cands) {
+    model::stage s = st;
+    for (std::size_t m = 0; m + 1 < pairs.size(); ++m) *model::resistor_field(s, pairs[m].adjust) = c.ohm[m];
+    const model::tune_point p = model::evaluate_with(s, pairs.back().adjust, c.ohm.back());
+    *model::resistor_field(s, pairs.back().adjust) = c.ohm.back();
+    out.candidates.push_back(model::find_distortion_headroom(s, p.headroom));
+  }
+  return out;
+}
+
 std::string level_cell(const model::distortion_headroom& d, std::size_t k) {
   const model::thd_crossing& c = d.levels[k];
   if (c.found) return format_si(c.output_vpk, "V");
@@ -236,7 +258,8 @@ CLI::App* setup(CLI::App& app, tune_options& opt, const data_files& data) {
   sub->add_flag("--json", opt.json, "Machine-readable output");
   sub->add_flag("--thd-levels", opt.thd_levels,
                 "Also each row's output at 1 %, 3 % and 10 % THD (1 kHz) from the engine, beside the clean swing "
-                "(one --target; a sweep of 33 drives a row, about 0.1 s each on one stage)");
+                "(with several targets, every table's rows and every standard-value combination; not with --over-spread; "
+                "a sweep of 33 drives a row, about 0.1 s each on one stage)");
   sub->add_flag("--over-spread", opt.over_spread,
                 "Size a fixed resistor plus trimmer that brings every part of a batch to the target (with the batch options)");
   add_spread_options(*sub, opt.batch);
@@ -303,7 +326,7 @@ std::vector<model::tune_pair> pairs_of(const tune_options& opt, const model::sta
 
 // The standard-value combinations around the joint solution, closest to the targets first.
 void print_joint_candidates(const std::vector<model::tune_pair>& pairs, const std::vector<model::joint_candidate>& cands,
-                            base::eseries series, std::ostream& out) {
+                            base::eseries series, std::ostream& out, const row_levels& levels = {}) {
   std::vector<align> cols{align::left};
   std::vector<std::string> head{""};
   for (const model::tune_pair& p : pairs) {
@@ -319,6 +342,10 @@ void print_joint_candidates(const std::vector<model::tune_pair>& pairs, const st
     cols.push_back(align::right);
     head.push_back("gain");
   }
+  if (!levels.empty()) {
+    cols.insert(cols.end(), 3, align::right);
+    head.insert(head.end(), {"1 % THD", "3 % THD", "10 % THD"});
+  }
   text_table t(cols);
   t.add(head);
   int k = 0;
@@ -330,6 +357,8 @@ void print_joint_candidates(const std::vector<model::tune_pair>& pairs, const st
                         ? base::format_number(c.achieved[i], 4) + " dB"
                         : format_si(c.achieved[i], pairs[i].target.kind == model::target_kind::id ? "A" : "V", 4));
     if (!gain_shown) row.push_back(base::format_number(c.gain_db, 4) + " dB");
+    if (static_cast<std::size_t>(k - 1) < levels.size())
+      for (std::size_t n = 0; n < 3; ++n) row.push_back(level_cell(levels[static_cast<std::size_t>(k - 1)], n));
     t.add(row);
   }
   out << "\n  standard values around the joint solution, closest to the targets first\n\n";
@@ -339,23 +368,26 @@ void print_joint_candidates(const std::vector<model::tune_pair>& pairs, const st
 // Several pairs: each resistor's table at the values solved together (the others held at theirs).
 void print_pairs_text(const model::stage& st, const std::vector<model::tune_pair>& pairs, const model::joint_solution& sol,
                       const std::vector<model::tune_result>& results, const std::vector<model::joint_candidate>& cands,
-                      base::eseries series, std::ostream& out) {
+                      base::eseries series, std::ostream& out, const joint_levels& levels = {}) {
   out << st.name << "\n  " << pairs.size() << " resistors solved together, in " << sol.rounds
       << (sol.all_at_once ? (sol.rounds == 1 ? " step, all at once" : " steps, all at once")
                           : (sol.rounds == 1 ? " round" : " rounds"))
       << " (each target within 1 ppm + 1 µV or 1 nA; a gain within 1e-5 dB)\n";
   for (std::size_t k = 0; k < pairs.size(); ++k) {
     out << "\n  target " << model::target_text(pairs[k].target) << ", adjusting " << results[k].adjust << "\n\n";
-    print_table(results[k], out);
+    print_table(results[k], out, k < levels.tables.size() ? levels.tables[k] : row_levels{});
   }
-  print_joint_candidates(pairs, cands, series, out);
+  print_joint_candidates(pairs, cands, series, out, levels.candidates);
   out << "\n  each table above holds the other resistors at their exact values\n"
          "  gain: mid-band, generator to load; swing: largest clean symmetric output swing (peak) at the load, mid-band\n";
+  if (!levels.candidates.empty())
+    out << "  1 % / 3 % / 10 % THD: the output (peak, at the load) where a 1 kHz sine reaches that THD in the engine,\n"
+           "  as sweep finds it; the swing is the hard limit, and THD rises well before it\n";
 }
 
 void print_pairs_json(const std::vector<model::tune_pair>& pairs, const model::joint_solution& sol,
                       const std::vector<model::tune_result>& results, const std::vector<model::joint_candidate>& cands,
-                      base::eseries series, std::ostream& out) {
+                      base::eseries series, std::ostream& out, const joint_levels& levels = {}) {
   nlohmann::json j;
   j["rounds"] = sol.rounds;
   j["all_at_once"] = sol.all_at_once;
@@ -368,10 +400,12 @@ void print_pairs_json(const std::vector<model::tune_pair>& pairs, const model::j
   j["target"] = targets;
   j["exact_ohm"] = sol.ohm;
   nlohmann::json ps = nlohmann::json::array();
-  for (std::size_t k = 0; k < pairs.size(); ++k) ps.push_back(result_json(pairs[k].target, results[k]));
+  for (std::size_t k = 0; k < pairs.size(); ++k)
+    ps.push_back(result_json(pairs[k].target, results[k], k < levels.tables.size() ? levels.tables[k] : row_levels{}));
   j["pairs"] = ps;
   nlohmann::json cs = nlohmann::json::array();
-  for (const model::joint_candidate& c : cands) {
+  for (std::size_t k = 0; k < cands.size(); ++k) {
+    const model::joint_candidate& c = cands[k];
     nlohmann::json ops = nlohmann::json::array();
     for (const model::terminal_point& at : c.at) ops.push_back(operating_point_json(at));
     cs.push_back({{"series", base::series_name(series)},
@@ -379,6 +413,7 @@ void print_pairs_json(const std::vector<model::tune_pair>& pairs, const model::j
                   {"achieved", c.achieved},
                   {"gain_db", c.gain_db},
                   {"operating_points", ops}});
+    if (k < levels.candidates.size()) cs.back()["thd_levels"] = levels_json(levels.candidates[k]);
   }
   j["candidates"] = cs;
   out << json_text(j) << '\n';
@@ -389,8 +424,12 @@ void run(const tune_options& opt, std::ostream& out) {
   const base::eseries series = base::parse_series(opt.series);
   const model::stage st = load_stage(opt.input);
   const std::vector<model::tune_pair> pairs = pairs_of(opt, st);
-  if (opt.thd_levels && (opt.over_spread || pairs.size() != 1))
-    throw input_error("--thd-levels: for the table of one resistor (one --target, without --over-spread)");
+  // Over a batch the report is a trimmer's range over every part, not rows of values: levels
+  // for it would be a sweep for each part (thousands of drawn parts, 0.1 to 2 s each).
+  if (opt.thd_levels && opt.over_spread)
+    throw input_error("--thd-levels goes with the rows of values tune prints; --over-spread sizes a trimmer over a batch, "
+                      "whose parts would each take a sweep of their own: tune one part's stage with --thd-levels, or "
+                      "read a part at its trimmed value with bias --thd-levels --set");
   if (opt.over_spread) {
     const model::spread_settings ss = spread_settings_from(opt.batch, st, opt.input);
     if (pairs.size() == 1) {
@@ -415,15 +454,18 @@ void run(const tune_options& opt, std::ostream& out) {
   // Each pair's table: its resistor solved with the others held at their joint values (the
   // joint solution is a fixed point, so the exact value is the same), with its series values.
   std::vector<model::tune_result> results;
+  std::vector<model::stage> tables_stages;
   for (std::size_t k = 0; k < pairs.size(); ++k) {
     model::stage others = st;
     for (std::size_t m = 0; m < pairs.size(); ++m)
       if (m != k) *model::resistor_field(others, pairs[m].adjust) = sol.ohm[m];
     results.push_back(model::tune_resistor(others, pairs[k].adjust, pairs[k].target, series));
+    tables_stages.push_back(std::move(others));
   }
   const std::vector<model::joint_candidate> cands = model::joint_candidates(st, pairs, sol, series);
-  if (opt.json) return print_pairs_json(pairs, sol, results, cands, series, out);
-  print_pairs_text(st, pairs, sol, results, cands, series, out);
+  const joint_levels levels = opt.thd_levels ? levels_of_joint(tables_stages, results, st, pairs, cands) : joint_levels{};
+  if (opt.json) return print_pairs_json(pairs, sol, results, cands, series, out, levels);
+  print_pairs_text(st, pairs, sol, results, cands, series, out, levels);
 }
 
 }  // namespace

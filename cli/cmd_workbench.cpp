@@ -1,5 +1,6 @@
 // pinchoff workbench: serves a page on the loopback interface for editing stage files in a
 // browser, on the same analyses as the commands (cli/workbench_server.hpp).
+#include <fcntl.h>
 #include <signal.h>
 #include <spawn.h>
 #include <sys/wait.h>
@@ -8,6 +9,7 @@
 #include <chrono>
 #include <filesystem>
 #include <memory>
+#include <optional>
 #include <string>
 #include <thread>
 #include <vector>
@@ -32,17 +34,45 @@ struct workbench_options {
   data_files data;
 };
 
-// Starts xdg-open on the address where the system has it; says so where it has not.
-void open_browser(const std::string& address, std::ostream& err) {
-  const char* const argv[] = {"xdg-open", address.c_str(), nullptr};
-  pid_t pid = 0;
-  if (::posix_spawnp(&pid, "xdg-open", nullptr, nullptr, const_cast<char* const*>(argv), environ) != 0) {
-    err << "pinchoff workbench: --open: no xdg-open on this system; open the address above in a browser\n";
-    return;
+// The browser the page was opened in: xdg-open started on the address and not waited for
+// (it may stay until the browser closes, and the server must keep answering and stop on
+// Ctrl-C meanwhile); poll() says once whether it failed.
+class browser_opener {
+ public:
+  // Starts xdg-open where the system has it; says so where it has not. The child gets none
+  // of the server's descriptors (a browser it starts would otherwise keep the listening
+  // sockets open after the server stops) and its output goes to /dev/null.
+  browser_opener(const std::string& address, std::ostream& err) : err_(err) {
+    const char* const argv[] = {"xdg-open", address.c_str(), nullptr};
+    posix_spawn_file_actions_t fa;
+    posix_spawn_file_actions_init(&fa);
+    posix_spawn_file_actions_addopen(&fa, 1, "/dev/null", O_WRONLY, 0);
+    posix_spawn_file_actions_addopen(&fa, 2, "/dev/null", O_WRONLY, 0);
+    posix_spawn_file_actions_addclosefrom_np(&fa, 3);
+    if (::posix_spawnp(&pid_, "xdg-open", &fa, nullptr, const_cast<char* const*>(argv), environ) != 0) {
+      pid_ = 0;
+      err_ << "pinchoff workbench: --open: no xdg-open on this system; open the address above in a browser\n";
+      err_.flush();
+    }
+    posix_spawn_file_actions_destroy(&fa);
   }
-  int status = 0;
-  ::waitpid(pid, &status, 0);
-}
+  // Reaps xdg-open once it has ended and says when it could not open a browser.
+  void poll() {
+    if (pid_ <= 0) return;
+    int status = 0;
+    if (::waitpid(pid_, &status, WNOHANG) != pid_) return;
+    pid_ = 0;
+    if (!WIFEXITED(status) || WEXITSTATUS(status) != 0)
+      err_ << "pinchoff workbench: --open: xdg-open could not open a browser ("
+           << (WIFEXITED(status) ? "exit status " + std::to_string(WEXITSTATUS(status)) : std::string("killed"))
+           << "); open the address above in a browser\n";
+    err_.flush();
+  }
+
+ private:
+  std::ostream& err_;
+  pid_t pid_{0};
+};
 
 CLI::App* setup(CLI::App& app, workbench_options& opt) {
   CLI::App* sub = app.add_subcommand("workbench", "Edit stage files in a browser, on this machine only, and hear them");
@@ -78,8 +108,12 @@ void run(const workbench_options& opt, std::ostream& err) {
       << "; the token in the address is this run's own; Ctrl-C stops)\n"
       << "  mind the playback level: start with the volume low, especially on headphones\n";
   err.flush();
-  if (opt.open) open_browser(server.address(), err);
-  while (!guard.flag()->load(std::memory_order_relaxed)) std::this_thread::sleep_for(std::chrono::milliseconds(100));
+  std::optional<browser_opener> browser;
+  if (opt.open) browser.emplace(server.address(), err);
+  while (!guard.flag()->load(std::memory_order_relaxed)) {
+    std::this_thread::sleep_for(std::chrono::milliseconds(100));
+    if (browser) browser->poll();
+  }
   server.stop();
   err << "pinchoff workbench: stopped\n";
 }

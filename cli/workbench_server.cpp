@@ -222,18 +222,30 @@ void workbench_server::impl::routes(httplib::Server& s) {
 }
 
 void workbench_server::impl::analyse(const httplib::Request& req, httplib::Response& res) const {
+  // parts=small: bias, response and noise (quick on any design); parts=sweep: the sweep
+  // alone (most of the time on a chain); absent: all four. The page asks for both halves at
+  // once and shows each as it comes.
+  const std::string parts = req.has_param("parts") ? req.get_param_value("parts") : std::string("all");
+  if (parts != "all" && parts != "small" && parts != "sweep")
+    throw input_error("parts: give small, sweep or all, got '" + parts + "'");
   const model::stage st = parse(req.body, file_index(req));
-  // The sweep is most of the time; the small-signal reports run beside it.
-  auto linear = std::async(std::launch::async, [&st] {
+  const auto small = [&st] {
     null_buffer nb;
     std::ostream quiet(&nb);
     return nlohmann::json{{"bias", bias_json(st)}, {"response", response_json(st, quiet)}, {"noise", noise_json(st, quiet)}};
-  });
-  null_buffer nb;
-  std::ostream quiet(&nb);
-  nlohmann::json sweep = sweep_json(st, quiet);
+  };
+  const auto sweep = [&st] {
+    null_buffer nb;
+    std::ostream quiet(&nb);
+    return sweep_json(st, quiet);
+  };
+  if (parts == "small") return answer_json(res, 200, small());
+  if (parts == "sweep") return answer_json(res, 200, nlohmann::json{{"sweep", sweep()}});
+  // The sweep is most of the time; the small-signal reports run beside it.
+  auto linear = std::async(std::launch::async, small);
+  nlohmann::json sw = sweep();
   nlohmann::json j = linear.get();
-  j["sweep"] = std::move(sweep);
+  j["sweep"] = std::move(sw);
   answer_json(res, 200, j);
 }
 

@@ -168,13 +168,29 @@ sweep_deconvolution deconvolve_sweep(std::span<const double> y, std::span<const 
   return d;
 }
 
+namespace {
+double linear_before_samples(const sweep_deconvolution& d) {
+  return std::min(0.5 * d.rate_constant_s * std::log(2.0), 0.25) * d.rate_hz;
+}
+double linear_after_samples(const sweep_deconvolution& d) { return std::min(d.sweep_seconds, 2.0) * d.rate_hz; }
+}  // namespace
+
+double linear_window_flat_samples(const sweep_deconvolution& d) noexcept { return 0.5 * linear_before_samples(d); }
+
 std::vector<std::complex<double>> linear_response(const sweep_deconvolution& d, std::span<const double> f_hz) {
+  return linear_response(d, f_hz, static_cast<double>(d.linear_index));
+}
+
+std::vector<std::complex<double>> linear_response(const sweep_deconvolution& d, std::span<const double> f_hz,
+                                                  double latency_samples) {
   const double fs = d.rate_hz;
-  const double before = std::min(0.5 * d.rate_constant_s * std::log(2.0), 0.25) * fs;
-  const double after = std::min(d.sweep_seconds, 2.0) * fs;
+  const double centre = static_cast<double>(d.linear_index);
   std::vector<std::complex<double>> r;
   r.reserve(f_hz.size());
-  for (const double f : f_hz) r.push_back(windowed_dtft(d.h, static_cast<double>(d.linear_index), before, after, f, fs));
+  // sum h w exp(-j w (i - latency)) = exp(-j w (centre - latency)) sum h w exp(-j w (i - centre)).
+  for (const double f : f_hz)
+    r.push_back(windowed_dtft(d.h, centre, linear_before_samples(d), linear_after_samples(d), f, fs) *
+                std::polar(1.0, -2.0 * std::numbers::pi * f / fs * (centre - latency_samples)));
   return r;
 }
 

@@ -24,6 +24,7 @@
 // of the part before the centre and of the part after it):
 // - linear: from the peak of |h| (the latency, to the sample) minus min(L ln 2 / 2, 0.25 s)
 //   to plus min(T, 2 s); its DTFT at f, with the peak's delay removed, is the response at f.
+//   A latency known to a fraction of a sample is removed instead as the linear phase it is.
 // - harmonic n (2..10): around the peak position minus L ln n, reaching halfway to the
 //   windows of n - 1 and n + 1; the magnitude of its DTFT at n f is the n-th harmonic's
 //   level at the excitation frequency f re the fundamental of a unit-gain system, i.e. for a
@@ -84,6 +85,14 @@ sweep_deconvolution deconvolve_sweep(std::span<const double> recording, std::spa
 
 /// The linear response at each frequency (complex, output re input; the latency removed).
 std::vector<std::complex<double>> linear_response(const sweep_deconvolution& d, std::span<const double> frequency_hz);
+/// The same with a latency given in samples (fractional, >= 0) removed exactly, as the linear
+/// phase exp(j 2 pi f latency / fs), instead of the peak's whole sample; the window in time
+/// stays around the peak, so only the phase's reference moves.
+std::vector<std::complex<double>> linear_response(const sweep_deconvolution& d, std::span<const double> frequency_hz,
+                                                  double latency_samples);
+/// How far from the peak (samples, each way) the linear window is flat: a latency given
+/// further from the peak than this is not the response's.
+double linear_window_flat_samples(const sweep_deconvolution& d) noexcept;
 
 /// Harmonic n's level re the fundamental at each excitation frequency f (|H_n(n f)| over
 /// |H_1(f)|, a ratio); NaN where n f lies outside the trusted band.

@@ -227,7 +227,7 @@ function sweepLines(an, pinned) {
 
 function showSweep(a) {
   const p = a.sweep.points;
-  const lines = (state.pinned ? sweepLines(state.pinned.analysis, true) : []).concat(sweepLines(a, false));
+  const lines = (state.pinned && state.pinned.analysis.sweep ? sweepLines(state.pinned.analysis, true) : []).concat(sweepLines(a, false));
   $('sweep').innerHTML = plot({ label: 'THD and harmonics against drive', xmin: p[0].drive_dbu, xmax: p[p.length - 1].drive_dbu,
     xlabel: 'drive at the generator (dBu)', ylabel: 'dB re fundamental', yfloor: -140, lines });
   showBars();
@@ -235,14 +235,14 @@ function showSweep(a) {
 
 function showBars() {
   const a = state.analysis;
-  if (!a) return;
+  if (!a || !a.sweep) return;
   const slider = $('bar-drive');
   slider.max = a.sweep.points.length - 1;
   const i = Math.min(+slider.value, a.sweep.points.length - 1);
   const pt = a.sweep.points[i];
   $('bar-drive-text').textContent = num(pt.drive_dbu) + ' dBu, THD ' + num(pt.thd_percent) + ' %';
   const sets = [{ h: pt.harmonics_dbc, color: palette[1] }];
-  if (state.pinned && state.pinned.analysis.sweep.points[i]) sets.push({ h: state.pinned.analysis.sweep.points[i].harmonics_dbc, color: '#6b7079' });
+  if (state.pinned && state.pinned.analysis.sweep && state.pinned.analysis.sweep.points[i]) sets.push({ h: state.pinned.analysis.sweep.points[i].harmonics_dbc, color: '#6b7079' });
   const W = 320, H = 180, L = 40, B = 24, floor = -140;
   let s = `<svg viewBox="0 0 ${W} ${H}" role="img" aria-label="harmonic levels at one drive">`;
   for (let t = 0; t >= floor; t -= 20) {
@@ -278,14 +278,16 @@ function showNoise(a) {
 }
 
 function showWarnings(a) {
-  const all = new Set([...(a.bias.warnings || []), ...(a.response.warnings || []), ...(a.response.notes || []), ...(a.sweep.warnings || []), ...(a.noise.warnings || [])]);
+  const all = new Set([...(a.bias.warnings || []), ...(a.response.warnings || []), ...(a.response.notes || []), ...((a.sweep && a.sweep.warnings) || []), ...(a.noise.warnings || [])]);
   $('warn').innerHTML = all.size ? [...all].map((w) => `<li>${esc(w)}</li>`).join('') : '<li class="none">none</li>';
 }
 
 function showAll() {
   const a = state.analysis;
   if (!a) return;
-  showOperatingPoint(a); showHeadroom(a); showResponse(a); showSweep(a); showNoise(a); showWarnings(a);
+  showOperatingPoint(a); showHeadroom(a); showResponse(a); showNoise(a); showWarnings(a);
+  if (a.sweep) showSweep(a);
+  for (const id of ['card-sweep', 'card-bars']) $(id).classList.toggle('updating', !!state.sweepPending);
 }
 
 // ---- The design, drawn from the file's values
@@ -404,12 +406,17 @@ function setStatus(text, kind) {
 }
 
 // Posts the text; on success shows its figures and returns true; on a refusal passes the
-// server's message to `refused` and keeps the design as it was.
+// server's message to `refused` and keeps the design as it was. The two halves are asked
+// for at once: bias, response and noise come back quickly on any design and are shown (and
+// the edit taken) as soon as they do; the sweep, most of the time on a chain, follows, its
+// panels marked as updating meanwhile.
 async function analyse(text, refused) {
   const seq = ++state.seq;
   setStatus('computing', 'busy');
   const t0 = performance.now();
-  const res = await call('/api/analyse?file=' + state.index, text);
+  const path = '/api/analyse?file=' + state.index + '&parts=';
+  const sweepAnswer = call(path + 'sweep', text);
+  const res = await call(path + 'small', text);
   const body = await res.json();
   if (seq !== state.seq) return false;  // a newer edit is on its way
   if (res.status !== 200) {
@@ -418,11 +425,25 @@ async function analyse(text, refused) {
     if (refused) refused(body.error);
     return false;
   }
-  state.analysis = body;
+  const before = state.analysis;
+  state.analysis = Object.assign(body, { sweep: before ? before.sweep : null });
+  state.sweepPending = true;
+  $('pin').disabled = true;
   showAll();
-  // For the browser tests: how many answers the page has shown.
-  document.body.dataset.answers = String(+(document.body.dataset.answers || 0) + 1);
-  setStatus('figures ready in ' + Math.round(performance.now() - t0) + ' ms');
+  const tSmall = Math.round(performance.now() - t0);
+  setStatus('figures ready in ' + tSmall + ' ms; harmonics computing', 'busy');
+  sweepAnswer.then(async (r) => {
+    const b = await r.json();
+    if (seq !== state.seq) return;
+    state.sweepPending = false;
+    $('pin').disabled = false;
+    if (r.status !== 200) { setStatus('harmonics: ' + b.error, 'error'); showAll(); return; }
+    state.analysis.sweep = b.sweep;
+    showAll();
+    // For the browser tests: how many answers the page has shown in full.
+    document.body.dataset.answers = String(+(document.body.dataset.answers || 0) + 1);
+    setStatus('figures ready in ' + tSmall + ' ms, harmonics in ' + Math.round(performance.now() - t0) + ' ms');
+  });
   return true;
 }
 

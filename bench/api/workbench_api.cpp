@@ -43,12 +43,14 @@ using clock_type = std::chrono::steady_clock;
 // Best and median of `runs` edits, in milliseconds; each edit alternates the value so that
 // no two successive posts carry the same text.
 void time_edits(httplib::Client& client, const std::string& token, int file, const std::string& text,
-                const std::string& section, const std::string& a, const std::string& b, const char* what, double target_ms) {
+                const std::string& section, const std::string& a, const std::string& b, const char* what, double target_ms,
+                const std::string& parts = "all") {
   std::vector<double> ms;
   for (int k = 0; k < 7; ++k) {
     const std::string edited = with_value(text, section, "resistor", k % 2 ? a : b);
     const auto t0 = clock_type::now();
-    const auto res = client.Post(("/api/analyse?file=" + std::to_string(file) + "&token=" + token).c_str(), edited, "text/plain");
+    const auto res = client.Post(("/api/analyse?file=" + std::to_string(file) + "&parts=" + parts + "&token=" + token).c_str(), edited,
+                                 "text/plain");
     const double elapsed = std::chrono::duration<double, std::milli>(clock_type::now() - t0).count();
     if (!res || res->status != 200) {
       std::printf("  %-44s failed (%d)\n", what, res ? res->status : -1);
@@ -57,8 +59,11 @@ void time_edits(httplib::Client& client, const std::string& token, int file, con
     ms.push_back(elapsed);
   }
   std::sort(ms.begin(), ms.end());
-  std::printf("  %-44s %8.0f ms %8.0f ms   (target: under %.0f ms) %s\n", what, ms.front(), ms[ms.size() / 2], target_ms,
-              ms[ms.size() / 2] < target_ms ? "met" : "NOT met");
+  if (target_ms > 0)
+    std::printf("  %-44s %8.0f ms %8.0f ms   (target: under %.0f ms) %s\n", what, ms.front(), ms[ms.size() / 2], target_ms,
+                ms[ms.size() / 2] < target_ms ? "met" : "NOT met");
+  else
+    std::printf("  %-44s %8.0f ms %8.0f ms\n", what, ms.front(), ms[ms.size() / 2]);
 }
 
 }  // namespace
@@ -88,6 +93,9 @@ int main() {
   std::printf("  %-44s %11s %11s\n", "", "best", "median");
   time_edits(client, server.token(), 0, single, "[source]", "560", "820", "single stage (bass booster)", 100.0);
   time_edits(client, server.token(), 1, four, "[stage.source]", "2.2k", "2.7k", "four-stage chain (overdrive + one)", 300.0);
+  // What the page shows first (it asks for the two halves at once): no target of its own.
+  time_edits(client, server.token(), 1, four, "[stage.source]", "2.2k", "2.7k", "  its bias, response and noise (parts=small)", 0,
+             "small");
 
   std::vector<double> render_s;
   double rt = 0, clip_s = 0;

@@ -155,8 +155,9 @@ noise_point noise_at(const network& net, const operating_point& op, const std::v
   e(row(net.output_node), 0) = 1.0;
   for (int k = 0; k < nstages; ++k)
     if (net.stages[static_cast<std::size_t>(k)].output != 0) e(row(net.stages[static_cast<std::size_t>(k)].output), 1 + k) = 1.0;
-  const Eigen::MatrixXcd y = sys.a.transpose().fullPivLu().solve(e);
-  const Eigen::VectorXcd x = sys.a.fullPivLu().solve(sys.rhs);
+  const small_signal_factors lu(sys.a);
+  const Eigen::MatrixXcd y = lu.solve_transposed(e);
+  const Eigen::VectorXcd x = lu.solve(sys.rhs);
 
   noise_point p;
   p.frequency_hz = f_hz;

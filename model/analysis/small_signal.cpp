@@ -41,11 +41,30 @@ Eigen::VectorXcd solve_small_signal(const network& net, const jfet_linear& lin, 
 
 Eigen::VectorXcd solve_small_signal(const network& net, std::span<const jfet_linear> lins, const ac_setup& setup) {
   const small_signal_system sys = assemble_small_signal(net, lins, setup);
-  const Eigen::VectorXcd x = sys.a.fullPivLu().solve(sys.rhs);
+  const Eigen::VectorXcd x = small_signal_factors(sys.a).solve(sys.rhs);
   Eigen::VectorXcd v(net.node_count);
   v[0] = 0.0;
   for (int k = 1; k < net.node_count; ++k) v[k] = x[row(k)];
   return v;
+}
+
+small_signal_factors::small_signal_factors(const Eigen::MatrixXcd& a) : partial_(a) {
+  // The estimate alone misses an exact zero pivot (it then reads the infinite factors as
+  // well conditioned), so the pivots' spread is tested too.
+  const Eigen::VectorXd pivots = partial_.matrixLU().diagonal().cwiseAbs();
+  const bool spread_ok = pivots.size() == 0 || pivots.minCoeff() > 1e-12 * pivots.maxCoeff();
+  if (!spread_ok || !(partial_.rcond() >= 1e-12)) {
+    full_.compute(a);
+    complete_ = true;
+  }
+}
+
+Eigen::MatrixXcd small_signal_factors::solve(const Eigen::MatrixXcd& b) const {
+  return complete_ ? Eigen::MatrixXcd(full_.solve(b)) : Eigen::MatrixXcd(partial_.solve(b));
+}
+
+Eigen::MatrixXcd small_signal_factors::solve_transposed(const Eigen::MatrixXcd& b) const {
+  return complete_ ? Eigen::MatrixXcd(full_.transpose().solve(b)) : Eigen::MatrixXcd(partial_.transpose().solve(b));
 }
 
 small_signal_system assemble_small_signal(const network& net, std::span<const jfet_linear> lins, const ac_setup& setup) {

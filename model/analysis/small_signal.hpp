@@ -57,6 +57,25 @@ struct small_signal_system {
 };
 small_signal_system assemble_small_signal(const network& net, std::span<const jfet_linear> lins, const ac_setup& setup);
 
+/// The factors of a small-signal system's matrix, for solves with it and with its transpose
+/// (the adjoint network). LU with partial pivoting, the usual choice for nodal matrices
+/// (Golub & Van Loan, Matrix Computations, Alg. 3.4.1); where its reciprocal condition
+/// estimate, or its smallest pivot against its largest, is below 1e-12 (a node without a
+/// path at this frequency, say), LU with complete
+/// pivoting (its pivot search reads the magnitude of every remaining entry at every step,
+/// most of the time for complex entries).
+class small_signal_factors {
+ public:
+  explicit small_signal_factors(const Eigen::MatrixXcd& a);
+  Eigen::MatrixXcd solve(const Eigen::MatrixXcd& b) const;
+  Eigen::MatrixXcd solve_transposed(const Eigen::MatrixXcd& b) const;
+
+ private:
+  Eigen::PartialPivLU<Eigen::MatrixXcd> partial_;
+  Eigen::FullPivLU<Eigen::MatrixXcd> full_;
+  bool complete_{false};
+};
+
 /// Low-frequency corner of one large capacitor by the short-circuit time-constant method
 /// (Gray & Searle, Electronic Principles, 1969; Gray, Hurst, Lewis & Meyer, sec. 7.3):
 /// f = 1 / (2 pi R C), R = resistance its terminals see with the other large capacitors

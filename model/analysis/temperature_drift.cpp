@@ -7,19 +7,62 @@
 #include "base/units.hpp"
 #include "model/analysis/small_signal.hpp"
 #include "model/circuit/network.hpp"
+#include "model/device/parameter_ranges.hpp"
 
 namespace pinchoff::model {
 
+namespace {
+std::string drift_range_problem(double v_per_k) {
+  if (v_per_k <= 0.0 && v_per_k >= -ranges::vp_drift.hi) return {};
+  return "the pinch-off drift must be 0 to -10 mV/K (n-channel frame), got " + base::format_number(v_per_k * 1e3) + " mV/K";
+}
+std::string exponent_range_problem(double m) {
+  if (m >= -ranges::beta_exponent.hi && m <= 0.0) return {};
+  return "the exponent of beta's temperature law must be -3 to 0, got " + base::format_number(m);
+}
+}  // namespace
+
 void validate(const temperature_law& law) {
-  if (!(law.vp_drift_v_per_k <= 0.0 && law.vp_drift_v_per_k >= -10e-3))
-    throw setting_error("temperature_law", "the pinch-off drift must be 0 to -10 mV/K (n-channel frame), got " +
-                                               base::format_number(law.vp_drift_v_per_k * 1e3) + " mV/K");
-  if (!(law.beta_exponent >= -3.0 && law.beta_exponent <= 0.0))
-    throw setting_error("temperature_law",
-                        "the exponent of beta's temperature law must be -3 to 0, got " + base::format_number(law.beta_exponent));
+  if (const std::string m = drift_range_problem(law.vp_drift_v_per_k); !m.empty()) throw setting_error("temperature_law", m);
+  if (const std::string m = exponent_range_problem(law.beta_exponent); !m.empty()) throw setting_error("temperature_law", m);
   if (!(law.leakage_doubling_k > 1.0) || !std::isfinite(law.leakage_doubling_k))
     throw setting_error("temperature_law", "the gate leakage's doubling step must be above 1 K, got " +
                                                base::format_number(law.leakage_doubling_k) + " K");
+}
+
+const char* source_name(coefficient_source s) noexcept {
+  switch (s) {
+    case coefficient_source::law_default: return "default";
+    case coefficient_source::part: return "part";
+    case coefficient_source::setting: return "setting";
+  }
+  return "default";
+}
+
+part_law law_of(const stage& st, int k, const temperature_law_setting& setting) {
+  part_law out;
+  const jfet_tempco& own = st.part(k).tempco;
+  if (setting.vp_drift_v_per_k) {
+    out.law.vp_drift_v_per_k = *setting.vp_drift_v_per_k;
+    out.vp_drift_from = coefficient_source::setting;
+  } else if (own.vp_drift_v_per_k) {
+    const double n_frame = polarity_sign(st) * *own.vp_drift_v_per_k;
+    if (const std::string m = drift_range_problem(n_frame); !m.empty())
+      throw setting_error(stage_key(st, k, "jfet.vp_drift"), stage_key(st, k, "jfet.vp_drift") + ": " + m);
+    out.law.vp_drift_v_per_k = n_frame;
+    out.vp_drift_from = coefficient_source::part;
+  }
+  if (setting.beta_exponent) {
+    out.law.beta_exponent = *setting.beta_exponent;
+    out.beta_exponent_from = coefficient_source::setting;
+  } else if (own.beta_exponent) {
+    if (const std::string m = exponent_range_problem(*own.beta_exponent); !m.empty())
+      throw setting_error(stage_key(st, k, "jfet.beta_exponent"), stage_key(st, k, "jfet.beta_exponent") + ": " + m);
+    out.law.beta_exponent = *own.beta_exponent;
+    out.beta_exponent_from = coefficient_source::part;
+  }
+  validate(out.law);  // the setting's values
+  return out;
 }
 
 namespace {
@@ -39,9 +82,10 @@ void move_part(jfet_params& p, polarity pol, double t0, double t, const temperat
 }
 }  // namespace
 
-stage at_temperature(const stage& st, double temperature_k, const temperature_law& law) {
+stage at_temperature(const stage& st, double temperature_k, const temperature_law_setting& setting) {
   stage s = st;
-  for (int k = 0; k < s.stage_count(); ++k) move_part(s.part(k).jfet, s.pol, st.temperature_k, temperature_k, law);
+  for (int k = 0; k < s.stage_count(); ++k)
+    move_part(s.part(k).jfet, s.pol, st.temperature_k, temperature_k, law_of(st, k, setting).law);
   s.temperature_k = temperature_k;
   return s;
 }
@@ -58,11 +102,10 @@ zero_tc_point zero_tc(const jfet_params& p, polarity pol, double temperature_k, 
 }
 
 temperature_drift analyse_temperature_drift(const stage& st, const std::vector<double>& temperatures_k,
-                                            const temperature_law& law) {
-  validate(law);
+                                            const temperature_law_setting& setting) {
   temperature_drift d;
   d.reference_k = st.temperature_k;
-  d.law = law;
+  for (int k = 0; k < st.stage_count(); ++k) d.laws.push_back(law_of(st, k, setting));
   auto terminals = [](const network& net, const operating_point& op, int k) {
     const int device = net.stages.empty() ? k : net.stages[static_cast<std::size_t>(k)].jfet;
     return terminals_of(net, op.x, device);
@@ -72,14 +115,14 @@ temperature_drift analyse_temperature_drift(const stage& st, const std::vector<d
     const operating_point op = solve_operating_point(net);
     for (int k = 0; k < st.stage_count(); ++k) {
       d.rest.push_back(terminals(net, op, k));
-      d.zero_tc.push_back(zero_tc(st.part(k).jfet, st.pol, st.temperature_k, law));
+      d.zero_tc.push_back(zero_tc(st.part(k).jfet, st.pol, st.temperature_k, d.laws[static_cast<std::size_t>(k)].law));
     }
   }
   for (double t : temperatures_k) {
     drift_point p;
     p.temperature_k = t;
     try {
-      const stage s = at_temperature(st, t, law);
+      const stage s = at_temperature(st, t, setting);
       const network net = build_network(s);
       const operating_point op = solve_operating_point(net);
       for (int k = 0; k < s.stage_count(); ++k) p.stages.push_back(terminals(net, op, k));

@@ -20,8 +20,12 @@
 // I_ZTC = beta (2 T dVP/dT / m)^2 = IDSS (2 T dVP/dT / (m VP))^2. Above it the mobility
 // wins (ID falls as the part warms), below it the pinch-off shift does (ID rises). The
 // figure often quoted for silicon JFETs, VGS = VP + 0.63 V, is the same expression with a
-// beta falling 0.7 %/K (from memory); the defaults' T^-1.5 falls 0.5 %/K at 300 K. A part's
-// own coefficients are given as temperature_law's fields.
+// beta falling 0.7 %/K (from memory); the defaults' T^-1.5 falls 0.5 %/K at 300 K.
+//
+// A part's own coefficients (stage_parts::tempco, the stage file's `[jfet] vp_drift` and
+// `beta_exponent`, or its class's) replace the defaults for that part, and an analysis's
+// setting (temperature_law_setting: the command line's) replaces both, for every part.
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -40,9 +44,31 @@ struct temperature_law {
 /// sign or size (0 to -10 mV/K), an exponent outside -3..0, or a doubling step of 1 K or less.
 void validate(const temperature_law& law);
 
+/// What an analysis's settings give over every part's own coefficients: each one set wins
+/// (n-channel frame, as temperature_law's).
+struct temperature_law_setting {
+  std::optional<double> vp_drift_v_per_k;
+  std::optional<double> beta_exponent;
+};
+
+/// Where each coefficient of a part's law came from.
+enum class coefficient_source { law_default, part, setting };
+const char* source_name(coefficient_source s) noexcept;  ///< "default", "part", "setting"
+struct part_law {
+  temperature_law law;
+  coefficient_source vp_drift_from{coefficient_source::law_default};
+  coefficient_source beta_exponent_from{coefficient_source::law_default};
+};
+
+/// The law of one part: the setting's coefficients, else the part's own (its tempco, real
+/// signs, mirrored into the n-channel frame for a p-channel part), else the defaults.
+/// Throws setting_error("temperature_law") when the setting's values are out of range, and
+/// setting_error(KEY) naming the part's key ("stage2.jfet.vp_drift") when its own are.
+part_law law_of(const stage& st, int k, const temperature_law_setting& setting = {});
+
 /// The stage at temperature_k: every JFET's VP, IDSS and gate leakage moved from the
-/// stage's own temperature by `law`, and the stage's temperature set.
-stage at_temperature(const stage& st, double temperature_k, const temperature_law& law = {});
+/// stage's own temperature by its law (law_of), and the stage's temperature set.
+stage at_temperature(const stage& st, double temperature_k, const temperature_law_setting& setting = {});
 
 /// The zero-TC point of a part (real signs) at temperature_k (see the file comment).
 struct zero_tc_point {
@@ -63,7 +89,7 @@ struct drift_point {
 
 struct temperature_drift {
   double reference_k{};                ///< the stage's own temperature
-  temperature_law law;
+  std::vector<part_law> laws;          ///< each stage's part's law, in signal order
   std::vector<drift_point> points;     ///< in the order given
   std::vector<zero_tc_point> zero_tc;  ///< each stage's part, at the reference temperature
   std::vector<terminal_point> rest;    ///< each stage's JFET at the reference temperature
@@ -71,6 +97,6 @@ struct temperature_drift {
 
 /// The rest point at every temperature (K, 200 to 450 as a stage file takes).
 temperature_drift analyse_temperature_drift(const stage& st, const std::vector<double>& temperatures_k,
-                                            const temperature_law& law = {});
+                                            const temperature_law_setting& setting = {});
 
 }  // namespace pinchoff::model

@@ -122,6 +122,7 @@ struct stage_parts {
   polarity pol{polarity::n};
   jfet_params jfet;           ///< in real signs (vp > 0 for p-channel)
   jfet_ratings ratings;
+  jfet_tempco tempco;         ///< the part's own temperature coefficients, when the file (or its class) gives them
   std::optional<device_class> jfet_class;  ///< when the file names `class`: its ranges (n-channel signs)
   gate_part gate;
   double drain_resistor_ohm{0};    ///< 0 = drain straight to the supply (source follower)

@@ -111,7 +111,10 @@ const std::vector<section_spec>& stage_schema() {
                 {"igf_max", unit::ampere, rule::positive, r::igf_max},
                 {"flicker_coefficient", unit::none, rule::non_negative, r::flicker_coefficient},
                 {"flicker_exponent", unit::none, rule::positive, r::flicker_exponent},
-                {"gate_leakage", unit::ampere, rule::non_negative, r::gate_leakage}}},
+                {"gate_leakage", unit::ampere, rule::non_negative, r::gate_leakage},
+                // Each has one sign and its range, checked together in build_parts.
+                {"vp_drift", unit::volt_per_kelvin, rule::any_sign, source_cap},
+                {"beta_exponent", unit::none, rule::any_sign, source_cap}}},
       {"gate", {{"coupling_cap", unit::farad, rule::non_negative, capacitor}, {"resistor", unit::ohm, rule::positive, gate_resistor},
                 {"bias_top", unit::ohm, rule::positive, gate_resistor}, {"bias_bottom", unit::ohm, rule::positive, gate_resistor},
                 {"bootstrap", unit::farad, rule::non_negative, capacitor}, {"feedback", unit::ohm, rule::positive, gate_resistor}}},
@@ -510,6 +513,14 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
     if (!g.has("jfet.cgs")) g.values["jfet.cgs"] = c.cgs_f;
     if (!g.has("jfet.cgd")) g.values["jfet.cgd"] = c.cgd_f;
     if (!g.has("jfet.vds_max") && c.vds_max_v) g.values["jfet.vds_max"] = *c.vds_max_v;
+    if (!g.has("jfet.vp_drift") && c.vp_drift_v_per_k) {
+      g.values["jfet.vp_drift"] = sign * *c.vp_drift_v_per_k;  // the class's n-channel sign, mirrored
+      g.where["jfet.vp_drift"] = g.class_where;
+    }
+    if (!g.has("jfet.beta_exponent") && c.beta_exponent) {
+      g.values["jfet.beta_exponent"] = *c.beta_exponent;
+      g.where["jfet.beta_exponent"] = g.class_where;
+    }
   }
 
   // Device: idss + vp, or beta + vto.
@@ -555,6 +566,25 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
   if (g.has("jfet.vds_max")) st.ratings.vds_max_v = g.get("jfet.vds_max");
   if (g.has("jfet.pd_max")) st.ratings.pd_max_w = g.get("jfet.pd_max");
   if (g.has("jfet.igf_max")) st.ratings.igf_max_a = g.get("jfet.igf_max");
+  // The part's own temperature coefficients, in real signs: |VP| grows and beta falls as the
+  // part warms (model/analysis/temperature_drift.hpp), so each has one sign.
+  if (g.has("jfet.vp_drift")) {
+    const double v = g.get("jfet.vp_drift");
+    if (!(sign * v <= 0.0 && sign * v >= -ranges::vp_drift.hi))
+      rd.fail_at(g.where["jfet.vp_drift"], prefix + "jfet.vp_drift",
+                 prefix + "jfet.vp_drift must be " + (sign > 0 ? "0 to -10 mV/K" : "0 to +10 mV/K") + " for " + chan +
+                     " part, got " + base::format_si(v, "V/K", 3) + ": the pinch-off voltage grows in magnitude as the "
+                     "part warms, about 2 mV/K in silicon");
+    st.tempco.vp_drift_v_per_k = v;
+  }
+  if (g.has("jfet.beta_exponent")) {
+    const double m = g.get("jfet.beta_exponent");
+    if (!(m <= 0.0 && m >= -ranges::beta_exponent.hi))
+      rd.fail_at(g.where["jfet.beta_exponent"], prefix + "jfet.beta_exponent",
+                 prefix + "jfet.beta_exponent must be -3 to 0, got " + base::format_number(m, 3) +
+                     " (m in beta ∝ T^m): beta falls as the part warms, as " + std::string(ranges::beta_exponent.why));
+    st.tempco.beta_exponent = m;
+  }
 
   st.gate.coupling_cap_f = g.get("gate.coupling_cap");
   st.gate.resistor_ohm = g.get("gate.resistor");

@@ -2,6 +2,7 @@
 
 #include <cerrno>
 #include <cmath>
+#include <limits>
 #include <cstdint>
 #include <cstring>
 #include <fstream>
@@ -29,7 +30,7 @@ void check_bounds(const toml::node& n, double v, const base::value_bounds& b, ba
 }
 
 double number(const toml::node& n, base::unit u, const base::value_bounds& b, const std::string& file,
-              const std::string& key) {
+              const std::string& key, bool any_sign = false) {
   double v = 0.0;
   if (n.is_integer()) {
     v = static_cast<double>(*n.value<std::int64_t>());  // exact or rounded, never missing (above 2^53)
@@ -44,7 +45,7 @@ double number(const toml::node& n, base::unit u, const base::value_bounds& b, co
   } else {
     throw input_error(where(file, n.source()) + key + ": expected a number or a value string");
   }
-  if (v < 0 && u != base::unit::volt) throw input_error(where(file, n.source()) + key + " must not be negative");
+  if (v < 0 && u != base::unit::volt && !any_sign) throw input_error(where(file, n.source()) + key + " must not be negative");
   check_bounds(n, v, b, u, file, key);
   return v;
 }
@@ -81,7 +82,7 @@ std::vector<device_class> parse_device_classes(std::string_view text, std::strin
     throw input_error(where(file, e.source()) + std::string(e.description()));
   }
   static const std::vector<std::string_view> keys{"summary", "idss", "vp", "typical_idss", "typical_vp", "lambda",
-                                                  "is", "n", "cgs", "cgd", "vds_max"};
+                                                  "is", "n", "cgs", "cgd", "vds_max", "vp_drift", "beta_exponent"};
   std::vector<device_class> out;
   for (auto&& [k, node] : root) {
     device_class c;
@@ -103,6 +104,18 @@ std::vector<device_class> parse_device_classes(std::string_view text, std::strin
       else if (key == "cgs") c.cgs_f = number(v, base::unit::farad, r::junction_cap, file, full);
       else if (key == "cgd") c.cgd_f = number(v, base::unit::farad, r::junction_cap, file, full);
       else if (key == "vds_max") c.vds_max_v = number(v, base::unit::volt, r::vds_max, file, full);
+      else if (key == "vp_drift" || key == "beta_exponent") {
+        // Temperature coefficients, n-channel sign: |VP| grows and beta falls as the part warms.
+        const bool drift = key == "vp_drift";
+        const base::value_bounds any{0.0, std::numeric_limits<double>::infinity(), false, ""};
+        const double x = number(v, drift ? base::unit::volt_per_kelvin : base::unit::none, any, file, full, true);
+        if (!(x <= 0.0 && -x <= (drift ? r::vp_drift.hi : r::beta_exponent.hi)))
+          throw input_error(where(file, v.source()) + full + " must be " + (drift ? "0 to -10 mV/K" : "-3 to 0") +
+                            " (n-channel sign), got " + (drift ? base::format_si(x, "V/K", 3) : base::format_number(x, 3)) + ": " +
+                            (drift ? "the pinch-off voltage grows in magnitude as the part warms"
+                                   : "the channel's mobility, and with it beta, falls as the part warms"));
+        (drift ? c.vp_drift_v_per_k : c.beta_exponent) = x;
+      }
       else {
         std::string m = "unknown key '" + key + "' in [" + c.name + "]";
         if (const std::string near = base::nearest_name(key, keys); !near.empty()) m += "; did you mean '" + near + "'?";

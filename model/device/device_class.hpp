@@ -19,6 +19,8 @@ struct device_class {
   double typical_idss_a{}, typical_vp_v{};
   double lambda_per_v{0.0}, is_a{1e-14}, n{1.0}, cgs_f{0.0}, cgd_f{0.0};
   std::optional<double> vds_max_v;  ///< the class's typical drain-source rating; a stage naming the class takes it
+  std::optional<double> vp_drift_v_per_k;  ///< typical dVP/dT (n-channel sign, <= 0); a stage naming the class takes it
+  std::optional<double> beta_exponent;     ///< typical m in beta ∝ T^m; likewise
 };
 
 /// The most a device-class file may hold: the shipped one is about a kilobyte for three

@@ -32,6 +32,14 @@ struct jfet_ratings {
   std::optional<double> igf_max_a;
 };
 
+/// A part's own temperature coefficients (`[jfet] vp_drift`, `beta_exponent`), in real
+/// signs: a p-channel part's pinch-off drift is positive. A missing one takes the drift law's
+/// default (model/analysis/temperature_drift.hpp), and an analysis's own setting overrides both.
+struct jfet_tempco {
+  std::optional<double> vp_drift_v_per_k;  ///< dVP/dT; |VP| grows as the part warms
+  std::optional<double> beta_exponent;     ///< m in beta ∝ T^m, <= 0
+};
+
 inline double beta_of(const jfet_params& p) noexcept { return p.idss_a / (p.vp_v * p.vp_v); }
 
 /// Channel current drain -> source and its partial derivatives.

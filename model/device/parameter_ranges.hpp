@@ -33,6 +33,13 @@ inline constexpr value_bounds gate_leakage{1e-16, 1e-6, true,
                                            "gate leakage of real parts is picoamperes at room temperature, nanoamperes hot"};
 /// The VDS at which IDSS was measured (magnitude); 0 means the model's own IDSS, at VDS = 0.
 inline constexpr value_bounds idss_vds{0.01, 100.0, true, "IDSS is measured at a few volts to a few tens of volts"};
+/// Temperature coefficients, by magnitude (the reader checks the signs): the pinch-off
+/// voltage's drift (|VP| grows as the part warms) and the exponent m of beta ∝ T^m (m <= 0).
+/// The drift law (model/analysis/temperature_drift.hpp) holds the same ranges.
+inline constexpr value_bounds vp_drift{0.0, 10e-3, false,
+                                       "silicon JFETs drift about 2 mV/K, as the gate junction's built-in potential does"};
+inline constexpr value_bounds beta_exponent{0.0, 3.0, false,
+                                            "the channel's mobility falls as T^-1.5 to T^-2.5 in silicon"};
 inline constexpr value_bounds vds_max{0.1, 1e4, false, "ratings of real parts lie between a few volts and a kilovolt"};
 inline constexpr value_bounds pd_max{1e-4, 1e4, false, "ratings of real parts lie between 100 mW and a few hundred watts"};
 inline constexpr value_bounds igf_max{1e-9, 100.0, false, "ratings of real parts lie between 1 mA and an ampere or so"};

@@ -273,6 +273,17 @@ struct fixtures {
     write(f("bigint.toml"), with_line(good_stage, 11, "resistor = 9007199254740993"));  // above 2^53: once read as 0
     write(f("denormal.toml"), with_line(good_stage, 11, "resistor = 1e-320"));
     write(f("coldstage.toml"), with_line(good_stage, 1, "temperature = 1e-300"));
+    // temperature: a part's own coefficients out of range or of the wrong sign
+    write(f("tc-drift-big.toml"), with_line(good_stage, 6, "vp = -1.8\nvp_drift = \"-20m\""));
+    write(f("tc-drift-sign.toml"), with_line(good_stage, 6, "vp = -1.8\nvp_drift = \"2.2mV/K\""));
+    write(f("tc-drift-unit.toml"), with_line(good_stage, 6, "vp = -1.8\nvp_drift = \"-2.2mV/Pa\""));
+    write(f("tc-exp-sign.toml"), with_line(good_stage, 6, "vp = -1.8\nbeta_exponent = 1.5"));
+    write(f("tc-exp-big.toml"), with_line(good_stage, 6, "vp = -1.8\nbeta_exponent = -4"));
+    write(f("tc-chain.toml"), with_line(good_chain, 23, "vp = -1.8\nvp_drift = \"5m\""));
+    fs::create_directory(f("tcclass"));
+    write(f("tcclass/devices.toml"),
+          "[general]\nidss = \"1m..8m\"\nvp = \"-0.5..-3\"\ntypical_idss = \"4m\"\ntypical_vp = -1.5\nvp_drift = \"3m\"\n");
+    write(f("tcclass/stage.toml"), with_line(with_line(good_stage, 5, "class = \"general\""), 6, ""));
     write(f("hugebeta.toml"), with_line(with_line(good_stage, 5, "beta = 1e300"), 6, "vto = -1.8"));
     write(f("tinysupply.toml"), with_line(good_stage, 3, "volts = \"4.9e-324\""));
     write(f("hugestring.toml"), with_line(good_stage, 11, "resistor = \"1e400\""));
@@ -854,6 +865,20 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"measure --response to a played file longer than a sweep may be", {"measure", "@rec.wav", "--response", "@long8k.wav"}, {"@long8k.wav", "2104000 frames", "2097152"}},
       {"measure --response with a band past the file's rate", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav"}, {"--sweep 20..20k", "below half the sample rate"}},
       {"measure --response with a band of one octave", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "1k..2k"}, {"--sweep 1k..2k", "two octaves"}},
+      // ---- measure --response --latency, and options a reading does not use
+      {"measure --latency that is not a number", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k", "--latency", "soon"}, {"--latency 'soon'", "auto", "in seconds"}},
+      {"measure --latency below 0", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k", "--latency", "-1m"}, {"--latency '-1m'", "0 or more"}},
+      {"measure --latency far from the response's peak", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k", "--latency", "0.5"}, {"--latency 0.5", "peaks at 0", "not this recording's"}},
+      {"measure --sweep without --response", {"measure", "@rec.wav", "--sweep", "20..2k"}, {"--sweep goes with --response PLAYED"}},
+      {"measure --points without --response", {"measure", "@rec.wav", "--points", "50"}, {"--points goes with --response PLAYED"}},
+      {"measure --latency without --response", {"measure", "@rec.wav", "--latency", "1m"}, {"--latency goes with --response PLAYED"}},
+      {"measure --sweep with --steps", {"measure", "@stair.wav", "--steps", "--sweep", "20..2k"}, {"--sweep goes with --response PLAYED"}},
+      {"measure --window with --response", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k", "--window", "flat-top"}, {"--window goes with a tone or --steps", "--response and --noise use none"}},
+      {"measure --harmonics with --response", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k", "--harmonics", "5"}, {"--harmonics goes with a tone or --steps", "H2..H5"}},
+      {"measure --bandwidth with --response", {"measure", "@sweep8k.wav", "--response", "@sweep8k.wav", "--sweep", "20..2k", "--bandwidth", "2k"}, {"--bandwidth goes with", "the band of --sweep"}},
+      {"measure --window with --noise", {"measure", "@rec.wav", "--noise", "--window", "flat-top"}, {"--window goes with a tone or --steps"}},
+      {"measure --harmonics with --noise", {"measure", "@rec.wav", "--noise", "--harmonics", "5"}, {"--harmonics goes with a tone or --steps"}},
+      {"tone --step-seconds without --steps", {"tone", "--step-seconds", "2", "@t.wav"}, {"--step-seconds", "--steps"}},
 
       {"a bootstrap set on a common-source stage", {"bias", "@stage.toml", "--set", "gate.bootstrap=10u"}, {"gate.bootstrap", "belongs to a source follower"}},
       {"a capsule's kind set wrong from the command line", {"bias", "@capsule.toml", "--set", "signal.kind=ribbon"}, {"--set signal.kind", "\"resistive\", \"capsule\" or \"pickup\""}},
@@ -948,13 +973,23 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"render --seed that is not a number", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--noise", "--seed", "x"}, {"--seed", "a whole number", "'x'"}},
       {"render --seed below 0", {"render", "@stage.toml", "--input", "@rec48.wav", "--output", "@o.wav", "--noise", "--seed", "-1"}, {"--seed", "a whole number from 0", "'-1'"}},
       // ---- headroom as distortion: bias and tune --thd-levels
-      {"tune --thd-levels with --over-spread", {"tune", "@stage.toml", "--target", "vd=4.5", "--over-spread", "--runs", "4", "--thd-levels"}, {"--thd-levels: ", "one --target, without --over-spread"}},
-      {"tune --thd-levels with two targets", {"tune", "@stage.toml", "--target", "vd=4.5", "--target", "gain=15dB", "--adjust", "source.resistor,drain.resistor", "--thd-levels"}, {"--thd-levels: ", "one --target"}},
+      {"tune --thd-levels with --over-spread", {"tune", "@stage.toml", "--target", "vd=4.5", "--over-spread", "--runs", "4", "--thd-levels"}, {"--thd-levels goes with the rows", "--over-spread sizes a trimmer", "a sweep of their own"}},
       // ---- temperature: bias --temperature and the part's own laws
       {"bias --temperature beyond the rated range", {"bias", "@stage.toml", "--temperature", "0..200"}, {"--temperature 0..200", "-55 to 150"}},
       {"bias --temperature that is not a range", {"bias", "@stage.toml", "--temperature", "warm"}, {"--temperature", "'warm'"}},
       {"bias --vp-drift of the wrong sign", {"bias", "@stage.toml", "--temperature", "0..50", "--vp-drift", "2"}, {"--vp-drift/--beta-exponent: ", "0 to -10 mV/K", "got 2"}},
       {"bias --beta-exponent out of range", {"bias", "@stage.toml", "--temperature", "0..50", "--beta-exponent", "1"}, {"--vp-drift/--beta-exponent: ", "-3 to 0", "got 1"}},
+      {"bias --vp-drift without --temperature", {"bias", "@stage.toml", "--vp-drift", "-3"}, {"--vp-drift", "--temperature"}},
+      {"bias --beta-exponent without --temperature", {"bias", "@stage.toml", "--beta-exponent", "-2"}, {"--beta-exponent", "--temperature"}},
+      {"[jfet] vp_drift beyond 10 mV/K", {"bias", "@tc-drift-big.toml"}, {"@tc-drift-big.toml:7:12:", "jfet.vp_drift must be 0 to -10 mV/K for an n-channel part", "got -20.0 mV/K"}},
+      {"[jfet] vp_drift of the wrong sign", {"bias", "@tc-drift-sign.toml"}, {"@tc-drift-sign.toml:7:12:", "jfet.vp_drift must be 0 to -10 mV/K", "grows in magnitude"}},
+      {"[jfet] vp_drift in another unit", {"bias", "@tc-drift-unit.toml"}, {"@tc-drift-unit.toml:7:12:", "jfet.vp_drift", "V/K"}},
+      {"[jfet] beta_exponent above 0", {"bias", "@tc-exp-sign.toml"}, {"@tc-exp-sign.toml:7:17:", "jfet.beta_exponent must be -3 to 0", "got 1.5"}},
+      {"[jfet] beta_exponent below -3", {"bias", "@tc-exp-big.toml"}, {"@tc-exp-big.toml:7:17:", "jfet.beta_exponent must be -3 to 0", "got -4"}},
+      {"[stage.jfet] vp_drift of the wrong sign in a chain", {"bias", "@tc-chain.toml"}, {"@tc-chain.toml:24:12:", "stage2.jfet.vp_drift must be 0 to -10 mV/K"}},
+      {"--set jfet.beta_exponent out of range", {"bias", "@stage.toml", "--set", "jfet.beta_exponent=2"}, {"--set jfet.beta_exponent", "must be -3 to 0", "got 2.00"}},
+      {"--set stage1.jfet.vp_drift of the wrong sign", {"bias", "@chain.toml", "--set", "stage1.jfet.vp_drift=1m"}, {"stage1.jfet.vp_drift must be 0 to -10 mV/K"}},
+      {"a class's vp_drift of the wrong sign", {"bias", "@tcclass/stage.toml"}, {"tcclass/devices.toml:6:12:", "general.vp_drift must be 0 to -10 mV/K (n-channel sign)"}},
       // ---- first use: a key written out in full where the file abbreviates it
       {"a key written out in full", {"bias", "@stage.toml", "--set", "gate.coupling_capacitor=100n"}, {"--set gate.coupling_capacitor", "did you mean 'coupling_cap'"}},
       {"a key written out in full, in a sweep", {"sweep", "@stage.toml", "--set", "source.bypass_capacitor=100u"}, {"did you mean 'bypass_cap'"}},

@@ -79,3 +79,42 @@ TEST_CASE("tune --thd-levels: every row's levels, the exact row's as bias gives 
   REQUIRE(text.status == 0);
   CHECK(text.out.find("1 % THD") != std::string::npos);
 }
+
+TEST_CASE("tune --thd-levels with two targets: the joint solution's and each standard pair's levels, as bias gives them") {
+  // Each figure is bias --thd-levels of the stage with both resistors set to the row's values:
+  // the exact joint solution (each pair's table has it as its exact row) and every pair of
+  // standard values around it.
+  const std::string file = preset("bass-booster-9v.toml");
+  const result t = run({"tune", file, "--target", "gain=20dB", "--target", "vd=4.5", "--adjust",
+                        "drain.resistor,source.resistor", "--thd-levels", "--json"});
+  REQUIRE(t.status == 0);
+  const nlohmann::json j = nlohmann::json::parse(t.out);
+  auto bias_levels = [&](double drain_ohm, double source_ohm) {
+    char d[64], s[64];
+    std::snprintf(d, sizeof d, "drain.resistor=%.17g", drain_ohm);
+    std::snprintf(s, sizeof s, "source.resistor=%.17g", source_ohm);
+    const result b = run({"bias", file, "--set", d, "--set", s, "--thd-levels", "--json"});
+    REQUIRE(b.status == 0);
+    return nlohmann::json::parse(b.out)["headroom"]["thd_levels"];
+  };
+  auto same = [](const nlohmann::json& got, const nlohmann::json& want) {
+    REQUIRE(got.size() == 3);
+    for (std::size_t k = 0; k < 3; ++k) {
+      CAPTURE(k);
+      REQUIRE(got[k]["found"].get<bool>() == want[k]["found"].get<bool>());
+      if (want[k]["found"].get<bool>())
+        CHECK(std::fabs(got[k]["output_vpk"].get<double>() / want[k]["output_vpk"].get<double>() - 1.0) < 1e-6);
+    }
+  };
+  const nlohmann::json exact = bias_levels(j["exact_ohm"][0].get<double>(), j["exact_ohm"][1].get<double>());
+  for (const auto& p : j["pairs"]) same(p["exact"]["thd_levels"], exact);
+  REQUIRE(j["candidates"].size() >= 2);
+  for (const auto& c : j["candidates"]) {
+    CAPTURE(c["values_ohm"].dump());
+    same(c["thd_levels"], bias_levels(c["values_ohm"][0].get<double>(), c["values_ohm"][1].get<double>()));
+  }
+  const result text = run({"tune", file, "--target", "gain=20dB", "--target", "vd=4.5", "--adjust",
+                           "drain.resistor,source.resistor", "--thd-levels"});
+  REQUIRE(text.status == 0);
+  CHECK(text.out.find("10 % THD") != std::string::npos);
+}

@@ -4,7 +4,11 @@
 // exactly what the command line gives), the refusals against what the server promises.
 #include <doctest/doctest.h>
 
+#include <arpa/inet.h>
+#include <netinet/in.h>
 #include <signal.h>
+#include <sys/socket.h>
+#include <unistd.h>
 #include <sys/wait.h>
 
 #include <cctype>
@@ -126,7 +130,23 @@ TEST_CASE("workbench: analyse answers exactly what bias, response, sweep and noi
     CHECK(got.at("response") == cli_json({"response", preset(name), "--json"}));
     CHECK(got.at("sweep") == cli_json({"sweep", preset(name), "--json"}));
     CHECK(got.at("noise") == cli_json({"noise", preset(name), "--json"}));
+    // The page asks for the two halves at once: each the same as in the whole answer.
+    const auto small = r.client.Post(r.with_token("/api/analyse?parts=small").c_str(), slurp(preset(name)), "text/plain");
+    const auto sweep = r.client.Post(r.with_token("/api/analyse?parts=sweep").c_str(), slurp(preset(name)), "text/plain");
+    REQUIRE(small);
+    REQUIRE(sweep);
+    REQUIRE(small->status == 200);
+    REQUIRE(sweep->status == 200);
+    nlohmann::json halves = nlohmann::json::parse(small->body);
+    CHECK(!halves.contains("sweep"));
+    halves["sweep"] = nlohmann::json::parse(sweep->body).at("sweep");
+    CHECK(halves == got);
   }
+  running r(settings_for({preset("bass-booster-9v.toml")}));
+  const auto bad = r.client.Post(r.with_token("/api/analyse?parts=harmonics").c_str(), slurp(preset("bass-booster-9v.toml")), "text/plain");
+  REQUIRE(bad);
+  CHECK(bad->status == 400);
+  CHECK(nlohmann::json::parse(bad->body).at("error") == "parts: give small, sweep or all, got 'harmonics'");
 }
 
 TEST_CASE("workbench: an edited text is analysed as its file would be, and a bad one gets the command line's message") {
@@ -154,6 +174,34 @@ TEST_CASE("workbench: an edited text is analysed as its file would be, and a bad
   CHECK(res->status == 400);
   const std::string message = nlohmann::json::parse(res->body).at("error");
   // The same text in the file, through the command line.
+  write(file, bad);
+  const auto cli = run_cli({"bias", file.string()});
+  CHECK(cli.status == 2);
+  CHECK(cli.err == "pinchoff bias: " + message + "\n");
+}
+
+TEST_CASE("workbench: a part's temperature coefficients are read as the command line reads them") {
+  // [jfet] vp_drift and beta_exponent: the page sends the text as it is; the server's answer
+  // is bias --json of that file, and a value out of range gets the command line's message.
+  scratch_dir dir;
+  const fs::path file = dir.path / "stage.toml";
+  std::string text = slurp(preset("bass-booster-9v.toml"));
+  const auto at = text.find("[jfet]\n");
+  REQUIRE(at != std::string::npos);
+  text.insert(at + 7, "vp_drift = \"-2.8mV/K\"\nbeta_exponent = -2\n");
+  write(file, text);
+  running r(settings_for({file}));
+  const auto ok = r.client.Post(r.with_token("/api/analyse").c_str(), text, "text/plain");
+  REQUIRE(ok);
+  REQUIRE(ok->status == 200);
+  CHECK(nlohmann::json::parse(ok->body).at("bias") == cli_json({"bias", file.string(), "--json"}));
+  std::string bad = text;
+  bad.replace(bad.find("beta_exponent = -2"), 18, "beta_exponent = 2");
+  const auto res = r.client.Post(r.with_token("/api/analyse").c_str(), bad, "text/plain");
+  REQUIRE(res);
+  CHECK(res->status == 400);
+  const std::string message = nlohmann::json::parse(res->body).at("error");
+  CHECK(message.find("jfet.beta_exponent must be -3 to 0") != std::string::npos);
   write(file, bad);
   const auto cli = run_cli({"bias", file.string()});
   CHECK(cli.status == 2);
@@ -373,6 +421,106 @@ TEST_CASE("workbench: SIGTERM and Ctrl-C stop the server cleanly, exit status 0"
     CHECK(WIFEXITED(status));
     CHECK(WEXITSTATUS(status) == 0);
     CHECK(!client.Get("/"));  // nothing listens any more
+  }
+}
+
+namespace {
+
+// A port that was free a moment ago.
+int free_port() {
+  running probe(settings_for({preset("bass-booster-9v.toml")}));
+  return probe.server.port();
+}
+
+// The child's exit status once it ends within `seconds`, else -1 (the child then killed).
+int wait_for_exit(pid_t pid, double seconds) {
+  int status = -1;
+  for (int k = 0; k < static_cast<int>(seconds * 20); ++k) {
+    if (::waitpid(pid, &status, WNOHANG) == pid) return status;
+    std::this_thread::sleep_for(std::chrono::milliseconds(50));
+  }
+  ::kill(pid, SIGKILL);
+  ::waitpid(pid, &status, 0);
+  return -1;
+}
+
+// Whether anything accepts connections on 127.0.0.1:port (a listening socket held by any
+// process accepts the connection into its backlog, so this sees an inherited one too).
+bool accepts(int port) {
+  const int fd = ::socket(AF_INET, SOCK_STREAM, 0);
+  sockaddr_in a{};
+  a.sin_family = AF_INET;
+  a.sin_port = htons(static_cast<std::uint16_t>(port));
+  a.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
+  const bool ok = ::connect(fd, reinterpret_cast<const sockaddr*>(&a), sizeof a) == 0;
+  ::close(fd);
+  return ok;
+}
+
+// `xdg-open` in `dir`: a shell script that writes its argument to dir/opened, then runs
+// `then` (for a browser that stays, a sleep; for a failure, an exit status).
+void fake_xdg_open(const scratch_dir& dir, const std::string& then) {
+  const fs::path script = dir.path / "xdg-open";
+  write(script, "#!/bin/sh\necho \"$1\" > '" + dir.file("opened") + "'\n" + then + "\n");
+  fs::permissions(script, fs::perms::owner_all);
+}
+
+}  // namespace
+
+TEST_CASE("workbench: --open starts xdg-open on the address and keeps serving and stopping while it runs") {
+  // xdg-open may stay until the browser closes; the server must not wait for it, and a
+  // browser it starts must not hold the server's sockets after it stops.
+  scratch_dir dir;
+  fake_xdg_open(dir, "sleep 30");
+  const int port = free_port();
+  const pid_t pid = pinchoff::testing::spawn_cli(
+      {"workbench", preset("bass-booster-9v.toml"), "--port", std::to_string(port), "--open"},
+      {{"PATH=" + dir.path.string() + ":/usr/bin:/bin"}, dir.file("err")});
+  REQUIRE(pid > 0);
+  for (int k = 0; k < 200 && !fs::exists(dir.file("opened")); ++k) std::this_thread::sleep_for(std::chrono::milliseconds(50));
+  std::this_thread::sleep_for(std::chrono::milliseconds(100));
+  const std::string opened = slurp(dir.file("opened"));
+  const std::string err = slurp(dir.file("err"));
+  CHECK(opened.rfind("http://127.0.0.1:" + std::to_string(port) + "/", 0) == 0);
+  CHECK(opened.find("token=") != std::string::npos);
+  // The address opened is the one printed.
+  CHECK(err.find("serving on " + opened.substr(0, opened.size() - 1)) != std::string::npos);
+  httplib::Client client("127.0.0.1", port);
+  const std::string path_and_query = opened.substr(opened.find('/', 7), opened.size() - 1 - opened.find('/', 7));
+  const auto page = client.Get(path_and_query);
+  REQUIRE(page);
+  CHECK(page->status == 200);
+  ::kill(pid, SIGINT);
+  const int status = wait_for_exit(pid, 10.0);
+  REQUIRE(status != -1);  // else it waited for xdg-open
+  CHECK(WIFEXITED(status));
+  CHECK(WEXITSTATUS(status) == 0);
+  CHECK(!accepts(port));  // xdg-open, still running, holds no listening socket
+}
+
+TEST_CASE("workbench: --open says when there is no xdg-open, or when it fails, and serves on") {
+  for (const std::string& then : {std::string("exit 3"), std::string()}) {
+    CAPTURE(then);
+    scratch_dir dir;
+    if (!then.empty()) fake_xdg_open(dir, then);
+    const int port = free_port();
+    const pid_t pid = pinchoff::testing::spawn_cli(
+        {"workbench", preset("bass-booster-9v.toml"), "--port", std::to_string(port), "--open"},
+        {{"PATH=" + dir.path.string()}, dir.file("err")});
+    REQUIRE(pid > 0);
+    const std::string expected = then.empty() ? "--open: no xdg-open on this system; open the address above in a browser"
+                                              : "--open: xdg-open could not open a browser (exit status 3)";
+    std::string err;
+    for (int k = 0; k < 200 && err.find(expected) == std::string::npos; ++k) {
+      std::this_thread::sleep_for(std::chrono::milliseconds(50));
+      err = slurp(dir.file("err"));
+    }
+    CHECK(err.find(expected) != std::string::npos);
+    CHECK(accepts(port));  // still serving
+    ::kill(pid, SIGTERM);
+    const int status = wait_for_exit(pid, 10.0);
+    CHECK(WIFEXITED(status));
+    CHECK(WEXITSTATUS(status) == 0);
   }
 }
 

@@ -129,6 +129,51 @@ TEST_CASE("a sweep through a memoryless nonlinearity separates its harmonics at 
   }
 }
 
+// The sweep of Farina 2000, eq. 2, evaluated at any time (no fades): what a recording chain
+// with a latency of `delay_s` seconds records of it, sampled at fs.
+std::vector<double> delayed_sweep(const exp_sweep_plan& p, double delay_s, std::size_t n) {
+  const long double L = sweep_rate_constant_s(p), f1 = p.start_hz;
+  const double a = std::pow(10.0, p.level_dbfs / 20.0);
+  std::vector<double> y(n, 0.0);
+  for (std::size_t t = 0; t < n; ++t) {
+    const long double u = static_cast<long double>(t) / p.rate_hz - delay_s;
+    if (u < 0 || u >= p.seconds) continue;
+    const long double turns = f1 * L * std::expm1(u / L);
+    y[t] = a * std::sin(2.0 * std::numbers::pi * static_cast<double>(turns - std::floor(turns)));
+  }
+  return y;
+}
+
+TEST_CASE("a latency of a fraction of a sample: removed exactly when given, as a linear phase when read at the peak") {
+  // closed form: a pure delay tau has H(f) = exp(-j 2 pi f tau). Given tau, the response is 1
+  // (0 dB, 0 degrees); read at the peak's whole sample k, what is left is the linear phase
+  // -360 f (tau - k / fs) degrees. The issue's bounds: 0.1 dB and 1 degree.
+  const double fs = 48000.0;
+  exp_sweep_plan plan;
+  plan.start_hz = 20, plan.end_hz = 20000, plan.seconds = 4, plan.rate_hz = fs, plan.fade_seconds = 0;
+  const std::vector<double> x = exp_sweep_samples(plan);
+  for (const double delay_samples : {37.3, 120.45, 64.81}) {
+    CAPTURE(delay_samples);
+    const double tau = delay_samples / fs;
+    const std::vector<double> y = delayed_sweep(plan, tau, x.size() + static_cast<std::size_t>(fs / 2));
+    const sweep_deconvolution d = deconvolve_sweep(y, x, plan);
+    // The peak of a band-limited impulse lies at the nearest sample.
+    CHECK(static_cast<double>(d.linear_index) == std::round(delay_samples));
+    const std::vector<double> f = log_points(d.trusted_low_hz(), d.trusted_high_hz(), 41);
+    const std::vector<std::complex<double>> given = linear_response(d, f, delay_samples);
+    const std::vector<std::complex<double>> at_peak = linear_response(d, f);
+    for (std::size_t i = 0; i < f.size(); ++i) {
+      CAPTURE(f[i]);
+      CHECK(std::abs(20 * std::log10(std::abs(given[i]))) <= 0.1);
+      CHECK(std::abs(std::arg(given[i])) * 180 / std::numbers::pi <= 1.0);
+      const std::complex<double> residual = std::polar(1.0, -2 * std::numbers::pi * f[i] * (tau - std::round(delay_samples) / fs));
+      CHECK(std::abs(std::arg(at_peak[i] / residual)) * 180 / std::numbers::pi <= 1.0);
+    }
+    // At 15.9 kHz the whole-sample reading is off by the fraction's phase: tens of degrees.
+    CHECK(std::abs(std::arg(at_peak.back())) * 180 / std::numbers::pi > 20.0);
+  }
+}
+
 TEST_CASE("a sweep's plan is checked field by field") {
   exp_sweep_plan p;
   p.end_hz = 60;

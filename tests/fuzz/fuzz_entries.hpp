@@ -82,6 +82,14 @@ inline outcome stage_file_entry(std::string_view data) {
                        p.source.resistor_ohm, p.source.bypass_cap_f, p.output.coupling_cap_f, p.output.load_ohm,
                        p.rail.resistance_ohm, p.rail.capacitance_f})
         in_range(v);
+      // A part's own temperature coefficients: |VP| grows and beta falls as it warms.
+      const double sign = st.pol == model::polarity::p ? -1.0 : 1.0;
+      if (p.tempco.vp_drift_v_per_k)
+        detail::require(sign * *p.tempco.vp_drift_v_per_k <= 0.0 && sign * *p.tempco.vp_drift_v_per_k >= -10e-3,
+                        "parse_stage accepted a pinch-off drift of the wrong sign or beyond 10 mV/K");
+      if (p.tempco.beta_exponent)
+        detail::require(*p.tempco.beta_exponent <= 0.0 && *p.tempco.beta_exponent >= -3.0,
+                        "parse_stage accepted a beta exponent outside -3 to 0");
       detail::require(k > 0 || p.between.empty(), "parse_stage accepted a 'between' on the first stage");
       for (const model::between_part& b : p.between) {
         in_range(b.value);
@@ -119,6 +127,10 @@ inline outcome device_classes_entry(std::string_view text) {
       detail::require(c.idss_a.lo > 0 && c.idss_a.lo <= c.idss_a.hi && c.vp_v.lo <= c.vp_v.hi && c.vp_v.hi < 0 &&
                           c.typical_idss_a > 0 && c.typical_vp_v < 0,
                       "a device class with impossible ranges was accepted");
+      detail::require(!c.vp_drift_v_per_k || (*c.vp_drift_v_per_k <= 0.0 && *c.vp_drift_v_per_k >= -10e-3),
+                      "a device class with a pinch-off drift of the wrong sign or beyond 10 mV/K was accepted");
+      detail::require(!c.beta_exponent || (*c.beta_exponent <= 0.0 && *c.beta_exponent >= -3.0),
+                      "a device class with a beta exponent outside -3 to 0 was accepted");
     }
     return outcome::accepted;
   } catch (const input_error& e) {

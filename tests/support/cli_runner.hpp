@@ -35,20 +35,42 @@ inline cli_result run_cli(const std::vector<std::string>& args) {
 }
 
 #ifdef PINCHOFF_BINARY
+/// What a child started by spawn_cli gets besides its arguments: environment entries
+/// (NAME=VALUE, replacing the test runner's of the same name) and a file for its standard
+/// error (empty: /dev/null).
+struct spawn_extras {
+  std::vector<std::string> env;
+  std::string err_path;
+};
+
 /// `pinchoff ARGS...` as a child process (the built binary), its output sent to /dev/null.
 /// Returns the child's pid, or -1 when it could not be started.
-inline pid_t spawn_cli(const std::vector<std::string>& args) {
+inline pid_t spawn_cli(const std::vector<std::string>& args, const spawn_extras& extras = {}) {
   std::vector<std::string> all{PINCHOFF_BINARY};
   all.insert(all.end(), args.begin(), args.end());
   std::vector<char*> argv;
   for (std::string& a : all) argv.push_back(a.data());
   argv.push_back(nullptr);
+  std::vector<std::string> env_all = extras.env;
+  for (char** e = environ; *e; ++e) {
+    const std::string entry(*e);
+    const std::string name = entry.substr(0, entry.find('=') + 1);
+    bool replaced = false;
+    for (const std::string& x : extras.env) replaced = replaced || x.rfind(name, 0) == 0;
+    if (!replaced) env_all.push_back(entry);
+  }
+  std::vector<char*> envp;
+  for (std::string& e : env_all) envp.push_back(e.data());
+  envp.push_back(nullptr);
   posix_spawn_file_actions_t fa;
   posix_spawn_file_actions_init(&fa);
   posix_spawn_file_actions_addopen(&fa, 1, "/dev/null", O_WRONLY, 0);
-  posix_spawn_file_actions_addopen(&fa, 2, "/dev/null", O_WRONLY, 0);
+  if (extras.err_path.empty())
+    posix_spawn_file_actions_addopen(&fa, 2, "/dev/null", O_WRONLY, 0);
+  else
+    posix_spawn_file_actions_addopen(&fa, 2, extras.err_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0600);
   pid_t pid = -1;
-  const int e = posix_spawn(&pid, argv[0], &fa, nullptr, argv.data(), environ);
+  const int e = posix_spawn(&pid, argv[0], &fa, nullptr, argv.data(), envp.data());
   posix_spawn_file_actions_destroy(&fa);
   return e == 0 ? pid : -1;
 }

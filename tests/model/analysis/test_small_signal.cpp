@@ -161,3 +161,38 @@ TEST_CASE("a capacitor's loss at a frequency is exact for coupling and bypass ca
     }
   }
 }
+
+TEST_CASE("small-signal factors: a nodal matrix and its transpose solved, and a singular one by complete pivoting") {
+  // Closed form: a 1 S conductance between nodes 1 and 2, 0.5 S from node 2 to ground and
+  // 1 A into node 1 give v2 = 2 V, v1 = 3 V; the transpose of a symmetric nodal matrix is
+  // itself (reciprocity), so both solves agree.
+  using cplx = std::complex<double>;
+  Eigen::MatrixXcd a(2, 2);
+  a << cplx(1.0), cplx(-1.0), cplx(-1.0), cplx(1.5);
+  Eigen::MatrixXcd b(2, 1);
+  b << cplx(1.0), cplx(0.0);
+  const pinchoff::model::small_signal_factors lu(a);
+  const Eigen::MatrixXcd x = lu.solve(b), y = lu.solve_transposed(b);
+  CHECK(std::abs(x(0, 0) - 3.0) < 1e-14);
+  CHECK(std::abs(x(1, 0) - 2.0) < 1e-14);
+  CHECK((x - y).norm() < 1e-14);
+  // A capacitor (at s = j 1 rad/s, 1 F: admittance j S) in series: the transpose of a
+  // non-symmetric matrix (a voltage-controlled current source, gm = 2 S from node 1 into node
+  // 2) against the closed-form inverse.
+  Eigen::MatrixXcd g(2, 2);
+  g << cplx(0.0, 1.0), cplx(0.0, -1.0), cplx(2.0, -1.0), cplx(1.0, 1.0);
+  const Eigen::MatrixXcd exact_t = g.transpose().inverse() * b;  // 2 x 2: Eigen's closed-form inverse
+  CHECK((pinchoff::model::small_signal_factors(g).solve_transposed(b) - exact_t).norm() < 1e-14);
+  // A node with no path to the rest at DC (both its neighbours capacitors, open at s = 0):
+  // a zero row and column. Partial pivoting alone divides by zero there; the complete
+  // factors leave that node at 0 and solve the rest.
+  Eigen::MatrixXcd s(3, 3);
+  s << cplx(1.0), cplx(-1.0), cplx(0.0), cplx(-1.0), cplx(1.5), cplx(0.0), cplx(0.0), cplx(0.0), cplx(0.0);
+  Eigen::MatrixXcd r(3, 1);
+  r << cplx(1.0), cplx(0.0), cplx(0.0);
+  const Eigen::MatrixXcd z = pinchoff::model::small_signal_factors(s).solve(r);
+  CHECK(z.allFinite());
+  CHECK(std::abs(z(0, 0) - 3.0) < 1e-14);
+  CHECK(std::abs(z(1, 0) - 2.0) < 1e-14);
+  CHECK(std::abs(z(2, 0)) < 1e-14);
+}

@@ -97,11 +97,62 @@ TEST_CASE("temperature drift of a self-biased stage: every point solved, the ref
   CHECK(d.rest[0].vgs_v - -2.5 > d.zero_tc[0].vov_v);
   CHECK(d.points[2].stages[0].id_a < d.points[0].stages[0].id_a);
   // A law out of its range is refused by its field.
-  temperature_law bad;
+  temperature_law_setting bad;
   bad.vp_drift_v_per_k = 2e-3;
   CHECK_THROWS_AS(analyse_temperature_drift(st, {t0}, bad), setting_error);
   // A pinch-off crossing 0 V makes that point unsolved, with the reason.
   const temperature_drift far = analyse_temperature_drift(grounded(1e-3, -0.05), {t0 - 40.0});
   CHECK_FALSE(far.points[0].solved);
   CHECK(far.points[0].failure.find("would cross 0 V") != std::string::npos);
+}
+
+TEST_CASE("a part's own coefficients ([jfet] vp_drift, beta_exponent) move it by its own law; a setting overrides them") {
+  // The laws of the header with the part's coefficients in place of the defaults: VP(T) =
+  // VP(T0) + dVP/dT (T - T0), beta(T) = beta(T0) (T / T0)^m (closed form).
+  const double t0 = default_temperature_k, dt = 23.0;
+  const stage own = grounded(4e-3, -2.0, "vp_drift = \"-3.1mV/K\"\nbeta_exponent = -2.2\n");
+  REQUIRE(own.tempco.vp_drift_v_per_k);
+  CHECK(std::fabs(*own.tempco.vp_drift_v_per_k / -3.1e-3 - 1.0) < 1e-12);
+  CHECK(*own.tempco.beta_exponent == -2.2);
+  auto check_law = [&](const stage& s, double drift, double m) {
+    const double vp = -2.0 + drift * dt;
+    const double beta = 4e-3 / 4.0 * std::pow((t0 + dt) / t0, m);
+    CHECK(std::fabs(s.jfet.vp_v - vp) < 1e-12);
+    CHECK(std::fabs(s.jfet.idss_a / (beta * vp * vp) - 1.0) < 1e-12);
+  };
+  check_law(at_temperature(own, t0 + dt), -3.1e-3, -2.2);
+  const part_law l = law_of(own, 0);
+  CHECK(l.vp_drift_from == coefficient_source::part);
+  CHECK(l.beta_exponent_from == coefficient_source::part);
+  // A setting wins over the part's own, coefficient by coefficient.
+  temperature_law_setting set;
+  set.vp_drift_v_per_k = -1.0e-3;
+  check_law(at_temperature(own, t0 + dt, set), -1.0e-3, -2.2);
+  CHECK(law_of(own, 0, set).vp_drift_from == coefficient_source::setting);
+  CHECK(law_of(own, 0, set).beta_exponent_from == coefficient_source::part);
+  // A p-channel part gives its drift in real signs (VP > 0 grows): mirrored, the same law.
+  const stage p = test::stage_from("[supply]\nvolts = -30\n[jfet]\npolarity = \"p\"\nidss = \"4m\"\nvp = 2\nis = 0\n"
+                                   "vp_drift = \"3.1m\"\nbeta_exponent = -2.2\n[gate]\nresistor = \"1M\"\n[drain]\n"
+                                   "resistor = \"2k\"\n");
+  const stage pw = at_temperature(p, t0 + dt);
+  CHECK(std::fabs(pw.jfet.vp_v - (2.0 + 3.1e-3 * dt)) < 1e-12);
+  CHECK(std::fabs(pw.jfet.idss_a / at_temperature(own, t0 + dt).jfet.idss_a - 1.0) < 1e-12);
+  // In a chain each stage's part takes its own: stage 2's keys leave stage 1 on the defaults.
+  const stage chain = test::stage_from(
+      "[supply]\nvolts = 9\n[output]\nload = \"100k\"\n"
+      "[[stage]]\n[stage.jfet]\nidss = \"5m\"\nvp = -1.8\n[stage.gate]\ncoupling_cap = \"100n\"\nresistor = \"1M\"\n"
+      "[stage.drain]\nresistor = \"3.3k\"\n[stage.source]\nresistor = \"680\"\n[stage.output]\ncoupling_cap = \"100n\"\n"
+      "[[stage]]\nbetween = [ { pot = \"100k\", position = 0.5 } ]\n[stage.jfet]\nidss = \"5m\"\nvp = -1.8\nvp_drift = \"-4m\"\nbeta_exponent = -1\n[stage.gate]\n"
+      "coupling_cap = \"100n\"\nresistor = \"1M\"\n[stage.drain]\nresistor = \"3.3k\"\n[stage.source]\n"
+      "resistor = \"680\"\n[stage.output]\ncoupling_cap = \"1u\"\n");
+  const stage cw = at_temperature(chain, t0 + dt);
+  CHECK(std::fabs(cw.part(0).jfet.vp_v - (-1.8 - 2.2e-3 * dt)) < 1e-12);
+  CHECK(std::fabs(cw.part(1).jfet.vp_v - (-1.8 - 4e-3 * dt)) < 1e-12);
+  CHECK(std::fabs(cw.part(1).jfet.idss_a / (5e-3 / (1.8 * 1.8) * (t0 / (t0 + dt)) * std::pow(1.8 + 4e-3 * dt, 2)) - 1.0) <
+        1e-12);
+  const temperature_drift d = analyse_temperature_drift(chain, {t0 + dt});
+  REQUIRE(d.laws.size() == 2);
+  CHECK(d.laws[0].vp_drift_from == coefficient_source::law_default);
+  CHECK(std::fabs(d.laws[1].law.vp_drift_v_per_k / -4e-3 - 1.0) < 1e-12);
+  CHECK(std::fabs(d.zero_tc[1].vov_v - 2.0 * t0 * -4e-3 / -1.0) < 1e-12);  // closed form with its own law
 }
