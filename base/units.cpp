@@ -67,7 +67,7 @@ bool is_unit_symbol(std::string_view s, unit u) noexcept {
     case unit::watt: return s == "W";
     case unit::per_volt: return s == "/V";
     case unit::volt_per_pascal: return s == "V/Pa";
-    case unit::volt_per_kelvin: return s == "V/K" || s == "V/\xC2\xB0C";  // a kelvin and a degree Celsius are one step
+    case unit::volt_per_kelvin: return s == "V/K" || s == "V/\xC2\xB0" "C";  // a kelvin and a degree Celsius are one step
     case unit::henry: return s == "H";
     case unit::kelvin:
     case unit::none: return false;

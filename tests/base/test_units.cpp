@@ -54,6 +54,8 @@ TEST_CASE("SI prefixes and optional unit symbols are read") {
       {"negative", "-1.8", unit::volt, -1.8},
       {"milliamps with unit", "2.5mA", unit::ampere, 2.5e-3},
       {"kilohertz", "1kHz", unit::hertz, 1000},
+      {"millivolts a kelvin (SI: K)", "-2.8mV/K", unit::volt_per_kelvin, -2.8e-3},
+      {"millivolts a degree Celsius (U+00B0 C), the same step as a kelvin", "-2.8mV/\xC2\xB0" "C", unit::volt_per_kelvin, -2.8e-3},
   };
   for (const row& r : rows) {
     CAPTURE(r.source);
