@@ -7,7 +7,10 @@
 #include <sys/types.h>
 #include <unistd.h>
 
+#include <chrono>
+#include <fstream>
 #include <sstream>
+#include <thread>
 #include <string>
 #include <vector>
 
@@ -75,5 +78,23 @@ inline pid_t spawn_cli(const std::vector<std::string>& args, const spawn_extras&
   return e == 0 ? pid : -1;
 }
 #endif
+
+/// Waits (up to `seconds`) until process `pid` catches signal `sig`, as /proc/PID/status's
+/// SigCgt mask shows: a signal sent before the program installs its handler kills it
+/// instead, and a program built with the sanitizers starts slowly. False when it did not.
+inline bool wait_for_handler(pid_t pid, int sig, double seconds) {
+  const auto until = std::chrono::steady_clock::now() + std::chrono::duration<double>(seconds);
+  while (std::chrono::steady_clock::now() < until) {
+    std::ifstream status("/proc/" + std::to_string(pid) + "/status");
+    std::string line;
+    while (std::getline(status, line))
+      if (line.rfind("SigCgt:", 0) == 0) {
+        const unsigned long long mask = std::stoull(line.substr(7), nullptr, 16);
+        if (mask & (1ULL << (sig - 1))) return true;
+      }
+    std::this_thread::sleep_for(std::chrono::milliseconds(5));
+  }
+  return false;
+}
 
 }  // namespace pinchoff::testing

@@ -64,7 +64,7 @@ std::vector<std::string> names_in(const fs::path& dir) {
 TEST_CASE("Ctrl-C in the survey or the first pass of an automatic-rate render exits 130 at once, leaving nothing") {
   scratch_dir dir;
   write_long_tone(dir.path / "long.wav");
-  // 150 ms in: loading the stages or surveying the input; 400 ms: surveying or probing;
+  // 150 ms after the handler is in place: loading the stages or surveying the input; 400 ms: surveying or probing;
   // 1.5 s: the first pass.
   for (const int delay_ms : {150, 400, 1500}) {
     for (const bool two_stages : {false, true}) {
@@ -76,6 +76,9 @@ TEST_CASE("Ctrl-C in the survey or the first pass of an automatic-rate render ex
                                "--oversample", "auto"});
       const pid_t pid = pinchoff::testing::spawn_cli(args);
       REQUIRE(pid > 0);
+      // The delays count from when the program catches Ctrl-C (before that, the signal's
+      // default kills it: a test of the start-up time, not of the phases).
+      REQUIRE(pinchoff::testing::wait_for_handler(pid, SIGINT, 30.0));
       std::this_thread::sleep_for(std::chrono::milliseconds(delay_ms));
       const auto sent = std::chrono::steady_clock::now();
       REQUIRE(::kill(pid, SIGINT) == 0);
