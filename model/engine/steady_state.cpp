@@ -99,7 +99,9 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
   double* const ports = opt.record_ports ? res.ports_network_v.data() : nullptr;
 
   eng.reset();
-  Eigen::VectorXd x0 = eng.dc_state();
+  if (opt.start_from.size() != 0 && opt.start_from.size() != ns)
+    throw internal_error("periodic_steady_state: the start state has the wrong size");
+  Eigen::VectorXd x0 = opt.start_from.size() != 0 ? opt.start_from : eng.dc_state();
   period_jacobian jac(ns);
   bool factored = false;  // jac holds a factored monodromy
   Eigen::VectorXd best_x0 = x0;
@@ -115,6 +117,7 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
   auto shoot = [&](const Eigen::VectorXd& start, bool track, Eigen::VectorXd& r, Eigen::VectorXd& dx) {
     eng.set_state(start);
     if (ports) res.start_state = start;
+    res.periodic_state = start;
     run = run_period(eng, drive, res.output_v.data(), track ? &jac.m : nullptr, ports);
     ++res.periods_simulated;
     if (track) ++res.periods_tracked;
@@ -224,6 +227,7 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
     for (long long k = 0; k < settle_periods; ++k) {
       const bool track = confirm || !factored || k % 32 == 0;
       if (ports) res.start_state = start;
+      res.periodic_state = start;
       run = run_period(eng, drive, res.output_v.data(), track ? &jac.m : nullptr, ports);
       ++res.periods_simulated;
       if (track) ++res.periods_tracked;

@@ -37,6 +37,9 @@ struct steady_state_options {
   /// voltage of any node follows (model/engine/dk_probes.hpp). Recorded as each period runs,
   /// since which period is returned is known only after it.
   bool record_ports{false};
+  /// Where shooting starts (network-frame states; empty: the DC state). A sweep starts each
+  /// drive from the periodic state of the drive before it.
+  Eigen::VectorXd start_from;
   dk_options engine;
 };
 
@@ -60,6 +63,8 @@ struct steady_state_result {
   /// sample after sample (2 * devices values a sample, network frame); empty otherwise.
   Eigen::VectorXd start_state;
   std::vector<double> ports_network_v;
+  /// The start state of the returned periods (network frame), always filled.
+  Eigen::VectorXd periodic_state;
 };
 
 /// Steady state for the generator sine amplitude_v * sin(2 pi cycles n / samples_per_period)
