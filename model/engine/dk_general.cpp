@@ -415,13 +415,6 @@ __attribute__((target("avx2,fma"))) void update_wide(const double* __restrict w,
   for (; r0 + 32 <= rows; r0 += 32) update_block<8>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
   for (; r0 < rows; r0 += 4) update_block<1>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
 }
-
-bool wide_available() noexcept {
-  __builtin_cpu_init();
-  return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
-}
-#else
-bool wide_available() noexcept { return false; }
 #endif
 
 }  // namespace
@@ -447,7 +440,7 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   g.f_abs = m_.f.cwiseAbs();
 
   // Stacked update as for one JFET: the state rows hold the increment x_n - x_{n-1}.
-  wide_ = opt_.wide_kernels && wide_available();
+  wide_ = opt_.wide_kernels && detail::wide_kernels_available();
   g.rows = (ns + np + 1 + 3) / 4 * 4;
   {
     const Eigen::MatrixXd w = stacked_update(m_, g.rows);

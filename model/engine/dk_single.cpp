@@ -112,13 +112,6 @@ __attribute__((target("avx2,fma"))) void update_after_wide(const double* w, doub
   for (int k = 0; k < packets; ++k) _mm256_storeu_pd(out + 4 * k, o[k]);
   for (int k = 0; k < NS; ++k) in[k] += out[k];
 }
-
-bool wide_kernels_available() noexcept {
-  __builtin_cpu_init();
-  return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
-}
-#else
-bool wide_kernels_available() noexcept { return false; }
 #endif
 
 }  // namespace
@@ -151,7 +144,7 @@ single_solver::single_solver(const network& net, const operating_point& op, dk_m
   }
 
   // The stacked update (stacked_update), its rows padded to whole packets.
-  wide_ = opt_.wide_kernels && ns <= 8 && wide_kernels_available();
+  wide_ = opt_.wide_kernels && ns <= 8 && detail::wide_kernels_available();
   const int rows = padded_rows(ns, wide_ ? 4 : 2);
   {
     const Eigen::MatrixXd w = stacked_update(m_, rows);

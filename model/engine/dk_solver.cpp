@@ -86,16 +86,10 @@ bool factor_wide(const double* a, const double* cj, const double* md, const doub
     default: return false;
   }
 }
-
-bool track_wide_available() noexcept {
-  __builtin_cpu_init();
-  return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
-}
 #else
 bool factor_wide(const double*, const double*, const double*, const double*, int, int, int, double*, double*) noexcept {
   return false;
 }
-bool track_wide_available() noexcept { return false; }
 #endif
 
 }  // namespace
@@ -111,7 +105,7 @@ dk_solver_base::dk_solver_base(dk_matrices m, const dk_options& opt, const netwo
   track_md_.setZero(2 * m_.devices, ns);
   phi_.setZero(track_rows_, ns);
   tmp_.setZero(track_rows_, ns);
-  track_wide_ = opt_.wide_kernels && track_wide_available();
+  track_wide_ = opt_.wide_kernels && detail::wide_kernels_available();
 }
 
 void dk_solver_base::monodromy_step(Eigen::MatrixXd& sensitivity) noexcept {

@@ -17,6 +17,15 @@ double max_abs(const Eigen::Ref<const Eigen::VectorXd>& v) noexcept {
 
 }  // namespace
 
+bool wide_kernels_available() noexcept {
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
+  __builtin_cpu_init();
+  return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
+#else
+  return false;
+#endif
+}
+
 void check_options(const dk_options& opt) {
   if (opt.max_iterations < 1 || opt.max_iterations > 1000)
     throw internal_error("dk_options: max_iterations must be 1..1000");

@@ -19,6 +19,10 @@ namespace pinchoff::model::detail {
 /// Throws internal_error naming the field when an option is out of range.
 void check_options(const dk_options& opt);
 
+/// Whether this processor runs the engine's AVX2 + FMA kernels (false where they are not
+/// compiled: not x86-64, or not GCC or Clang).
+bool wide_kernels_available() noexcept;
+
 /// The warm start's Adams-Bashforth weights on dv/dp at the last three samples, for
 /// dk_options::predictor_order 0..3 (order 3: 23/12, -16/12, 5/12; Hairer, Norsett &
 /// Wanner, Solving ODEs I, sec. III.1, from memory).
