@@ -27,6 +27,8 @@
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_render_silence {
+
 namespace {
 
 using namespace pinchoff;
@@ -253,3 +255,5 @@ TEST_CASE("loudness matching gives a silent output (peak 0) scale 0") {
   CHECK(s[1] == 0.0);
   CHECK(std::abs(target - (-20.0 + base::db_from_ratio(2.0))) < 1e-12);
 }
+
+}  // namespace test_render_silence

@@ -17,6 +17,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "model/engine/steady_state.hpp"
 
+namespace test_steady_state_reuse {
+
 namespace {
 
 using namespace pinchoff;
@@ -143,3 +145,5 @@ TEST_CASE("the settling fallback stops at its sample budget and says it did not 
   CHECK(ss.periods_simulated == 11);
   CHECK(ss.distance_v > o.tol_v);
 }
+
+}  // namespace test_steady_state_reuse
