@@ -2,6 +2,7 @@
 #include <algorithm>
 #include <cmath>
 #include <complex>
+#include <cstdlib>
 #include <memory>
 #include <numbers>
 #include <optional>
@@ -34,7 +35,7 @@ struct bias_options {
   std::string at_text;
   bool thd_levels{false};
   std::string temperature;         ///< --temperature LO..HI, °C
-  std::optional<double> vp_drift_mv;    ///< --vp-drift, mV/K (n-channel frame); over every part's own
+  std::string vp_drift_text;           ///< --vp-drift: a plain number in mV/K, or a value with a unit (n-channel frame)
   std::optional<double> beta_exponent;  ///< --beta-exponent; likewise
   bool json{false};
 };
@@ -557,10 +558,11 @@ CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
                   "Also the operating point's drift over this range in °C, LO..HI (steps of at most 10 °C; -55 to 150), "
                   "and each part's zero-TC drain current")
       ->type_name("LO..HI");
-  sub->add_option("--vp-drift", opt.vp_drift_mv,
-                  "With --temperature: the pinch-off drift of every part, mV/K (n-channel sign); overrides the file's "
-                  "[jfet] vp_drift; default: the part's own, else -2.2")
-      ->type_name("MV_PER_K")
+  sub->add_option("--vp-drift", opt.vp_drift_text,
+                  "With --temperature: the pinch-off drift of every part (n-channel sign): a plain number in mV/K "
+                  "(-2.2), or a value with its unit (-2.2mV/K, -2.2m); overrides the file's [jfet] vp_drift; default: "
+                  "the part's own, else -2.2 mV/K")
+      ->type_name("DRIFT")
       ->needs(temperature);
   sub->add_option("--beta-exponent", opt.beta_exponent,
                   "With --temperature: m in beta ∝ T^m (the channel's mobility) for every part; overrides the file's "
@@ -589,6 +591,16 @@ CLI::App* setup(CLI::App& app, bias_options& opt, const data_files& data) {
   return sub;
 }
 
+// --vp-drift's value in V/K: a plain number is in mV/K (as the help says, and as datasheets
+// quote the drift); a value with a prefix or a unit is read as the files read vp_drift.
+double parse_vp_drift_v_per_k(const std::string& text) {
+  const char* b = text.c_str();
+  char* e = nullptr;
+  const double plain = std::strtod(b, &e);
+  if (e != b && *e == '\0' && std::isfinite(plain)) return plain * 1e-3;
+  return base::parse_value(text, base::unit::volt_per_kelvin, "--vp-drift");
+}
+
 // opt: the command's options (--thd-levels, --temperature); the workbench's analysis takes
 // the defaults, as `bias FILE --json` does.
 bias_report analyse_bias_report(model::stage st, std::optional<double> at_hz, const bias_options& opt = {}) {
@@ -605,7 +617,7 @@ bias_report analyse_bias_report(model::stage st, std::optional<double> at_hz, co
     std::vector<double> kelvin;
     for (int i = 0; i < n; ++i) kelvin.push_back(273.15 + c.lo + (n == 1 ? 0.0 : (c.hi - c.lo) * i / (n - 1)));
     model::temperature_law_setting setting;
-    if (opt.vp_drift_mv) setting.vp_drift_v_per_k = *opt.vp_drift_mv * 1e-3;
+    if (!opt.vp_drift_text.empty()) setting.vp_drift_v_per_k = parse_vp_drift_v_per_k(opt.vp_drift_text);
     setting.beta_exponent = opt.beta_exponent;
     r.drift = model::analyse_temperature_drift(r.st, kelvin, setting);
   }
@@ -632,7 +644,9 @@ void register_bias(CLI::App& app, std::vector<command>& commands, const data_fil
   auto opt = std::make_shared<bias_options>();
   CLI::App* sub = setup(app, *opt, data);
   commands.push_back({sub, [opt](std::ostream& out, std::ostream&, base::output_set&) { run(*opt, out); },
-                      {{"temperature_law", "--vp-drift/--beta-exponent"}}});
+                      {{"temperature_law", "--vp-drift/--beta-exponent"},
+                       {"temperature_law.vp_drift", "--vp-drift"},
+                       {"temperature_law.beta_exponent", "--beta-exponent"}}});
 }
 
 }  // namespace pinchoff::cli

@@ -146,26 +146,30 @@ void write_text(const tone_report& r, std::ostream& out) {
          "power amplifier or headphones is loud enough to harm hearing and speakers.\n";
 }
 
+// The keys every tone file's report has: where it went and what it holds.
+nlohmann::json file_json(const tone_report& r, double rate_hz, double fade_s) {
+  return {{"path", r.path},
+          {"rate_hz", rate_hz},
+          {"channels", r.channels},
+          {"format", std::string(dsp::sample_format_name(r.format))},
+          {"dither", r.dither && dsp::quantisation_bits(r.format) != 0},
+          {"frames", r.frames},
+          {"duration_s", static_cast<double>(r.frames) / rate_hz},
+          {"fade_s", fade_s},
+          {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)},
+          {"clipped_samples", r.clipped}};
+}
+
 void write_json(const tone_report& r, std::ostream& out) {
   const auto& p = r.plan;
   if (r.sweep) {
     const dsp::exp_sweep_plan& w = *r.sweep;
-    const nlohmann::json j{{"path", r.path},
-                           {"sweep",
-                            {{"start_hz", w.start_hz},
-                             {"end_hz", w.end_hz},
-                             {"seconds", w.seconds},
-                             {"level_dbfs", w.level_dbfs},
-                             {"rate_constant_s", dsp::sweep_rate_constant_s(w)}}},
-                           {"rate_hz", w.rate_hz},
-                           {"channels", r.channels},
-                           {"format", std::string(dsp::sample_format_name(r.format))},
-                           {"dither", r.dither && dsp::quantisation_bits(r.format) != 0},
-                           {"frames", r.frames},
-                           {"duration_s", static_cast<double>(r.frames) / w.rate_hz},
-                           {"fade_s", w.fade_seconds},
-                           {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)},
-                           {"clipped_samples", r.clipped}};
+    nlohmann::json j = file_json(r, w.rate_hz, w.fade_seconds);
+    j["sweep"] = {{"start_hz", w.start_hz},
+                  {"end_hz", w.end_hz},
+                  {"seconds", w.seconds},
+                  {"level_dbfs", w.level_dbfs},
+                  {"rate_constant_s", dsp::sweep_rate_constant_s(w)}};
     out << json_text(j) << '\n';
     return;
   }
@@ -175,19 +179,10 @@ void write_json(const tone_report& r, std::ostream& out) {
                      {"start_s", static_cast<double>(i == 0 ? 0 : r.spans[i - 1].end) / p.rate_hz},
                      {"steady_from_s", static_cast<double>(r.spans[i].begin) / p.rate_hz},
                      {"steady_to_s", static_cast<double>(r.spans[i].end) / p.rate_hz}});
-  nlohmann::json j{{"path", r.path},
-                   {"frequency_hz", p.frequency_hz},
-                   {"rate_hz", p.rate_hz},
-                   {"channels", r.channels},
-                   {"format", std::string(dsp::sample_format_name(r.format))},
-                   {"dither", r.dither && dsp::quantisation_bits(r.format) != 0},
-                   {"frames", r.frames},
-                   {"duration_s", static_cast<double>(r.frames) / p.rate_hz},
-                   {"fade_s", p.fade_seconds},
-                   {"sample_peak_dbfs", base::db_from_ratio(r.sample_peak)},
-                   {"clipped_samples", r.clipped},
-                   {"ceiling_dbfs", r.ceiling_dbfs},
-                   {"steps", steps}};
+  nlohmann::json j = file_json(r, p.rate_hz, p.fade_seconds);
+  j["frequency_hz"] = p.frequency_hz;
+  j["ceiling_dbfs"] = r.ceiling_dbfs;
+  j["steps"] = steps;
   out << json_text(j) << '\n';
 }
 

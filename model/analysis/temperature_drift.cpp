@@ -11,20 +11,12 @@
 
 namespace pinchoff::model {
 
-namespace {
-std::string drift_range_problem(double v_per_k) {
-  if (v_per_k <= 0.0 && v_per_k >= -ranges::vp_drift.hi) return {};
-  return "the pinch-off drift must be 0 to -10 mV/K (n-channel frame), got " + base::format_number(v_per_k * 1e3) + " mV/K";
-}
-std::string exponent_range_problem(double m) {
-  if (m >= -ranges::beta_exponent.hi && m <= 0.0) return {};
-  return "the exponent of beta's temperature law must be -3 to 0, got " + base::format_number(m);
-}
-}  // namespace
 
 void validate(const temperature_law& law) {
-  if (const std::string m = drift_range_problem(law.vp_drift_v_per_k); !m.empty()) throw setting_error("temperature_law", m);
-  if (const std::string m = exponent_range_problem(law.beta_exponent); !m.empty()) throw setting_error("temperature_law", m);
+  if (const std::string m = ranges::vp_drift_problem(law.vp_drift_v_per_k, "(n-channel sign)"); !m.empty())
+    throw setting_error("temperature_law.vp_drift", "the pinch-off drift " + m);
+  if (const std::string m = ranges::beta_exponent_problem(law.beta_exponent); !m.empty())
+    throw setting_error("temperature_law.beta_exponent", "the exponent of beta's temperature law " + m);
   if (!(law.leakage_doubling_k > 1.0) || !std::isfinite(law.leakage_doubling_k))
     throw setting_error("temperature_law", "the gate leakage's doubling step must be above 1 K, got " +
                                                base::format_number(law.leakage_doubling_k) + " K");
@@ -47,8 +39,9 @@ part_law law_of(const stage& st, int k, const temperature_law_setting& setting) 
     out.vp_drift_from = coefficient_source::setting;
   } else if (own.vp_drift_v_per_k) {
     const double n_frame = polarity_sign(st) * *own.vp_drift_v_per_k;
-    if (const std::string m = drift_range_problem(n_frame); !m.empty())
-      throw setting_error(stage_key(st, k, "jfet.vp_drift"), stage_key(st, k, "jfet.vp_drift") + ": " + m);
+    if (const std::string m = ranges::vp_drift_problem(n_frame, polarity_sign(st) > 0 ? "for an n-channel part" : "for a p-channel part");
+        !m.empty())
+      throw setting_error(stage_key(st, k, "jfet.vp_drift"), stage_key(st, k, "jfet.vp_drift") + " " + m);
     out.law.vp_drift_v_per_k = n_frame;
     out.vp_drift_from = coefficient_source::part;
   }
@@ -56,8 +49,8 @@ part_law law_of(const stage& st, int k, const temperature_law_setting& setting) 
     out.law.beta_exponent = *setting.beta_exponent;
     out.beta_exponent_from = coefficient_source::setting;
   } else if (own.beta_exponent) {
-    if (const std::string m = exponent_range_problem(*own.beta_exponent); !m.empty())
-      throw setting_error(stage_key(st, k, "jfet.beta_exponent"), stage_key(st, k, "jfet.beta_exponent") + ": " + m);
+    if (const std::string m = ranges::beta_exponent_problem(*own.beta_exponent); !m.empty())
+      throw setting_error(stage_key(st, k, "jfet.beta_exponent"), stage_key(st, k, "jfet.beta_exponent") + " " + m);
     out.law.beta_exponent = *own.beta_exponent;
     out.beta_exponent_from = coefficient_source::part;
   }

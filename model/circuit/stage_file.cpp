@@ -91,9 +91,10 @@ constexpr base::value_bounds cable_length{0.1, 300.0, true,
                                           "10 cm patch lead to a 300 m run"};
 constexpr base::value_bounds cable_per_metre{10e-12, 1e-9, false,
                                              "instrument and microphone cables have 50 to 200 pF per metre"};
-// signal.capacitance is a capsule's or a pickup's: read_source holds it to the kind's own
-// range (capsule_cap, pickup_cap), so the reader only asks for a positive number.
-constexpr base::value_bounds source_cap{0.0, std::numeric_limits<double>::infinity(), false, ""};
+// Bounds for a key whose range another check holds: signal.capacitance is a capsule's or a
+// pickup's, held by read_source to the kind's own range (capsule_cap, pickup_cap); the
+// temperature coefficients are held with their sign by build_parts (ranges::vp_drift_problem).
+constexpr base::value_bounds checked_elsewhere{0.0, std::numeric_limits<double>::infinity(), false, ""};
 
 constexpr base::value_bounds knob{0.0, 1.0, false, "a knob's rotation, from fully anticlockwise (0) to fully clockwise (1)"};
 
@@ -113,8 +114,8 @@ const std::vector<section_spec>& stage_schema() {
                 {"flicker_exponent", unit::none, rule::positive, r::flicker_exponent},
                 {"gate_leakage", unit::ampere, rule::non_negative, r::gate_leakage},
                 // Each has one sign and its range, checked together in build_parts.
-                {"vp_drift", unit::volt_per_kelvin, rule::any_sign, source_cap},
-                {"beta_exponent", unit::none, rule::any_sign, source_cap}}},
+                {"vp_drift", unit::volt_per_kelvin, rule::any_sign, checked_elsewhere},
+                {"beta_exponent", unit::none, rule::any_sign, checked_elsewhere}}},
       {"gate", {{"coupling_cap", unit::farad, rule::non_negative, capacitor}, {"resistor", unit::ohm, rule::positive, gate_resistor},
                 {"bias_top", unit::ohm, rule::positive, gate_resistor}, {"bias_bottom", unit::ohm, rule::positive, gate_resistor},
                 {"bootstrap", unit::farad, rule::non_negative, capacitor}, {"feedback", unit::ohm, rule::positive, gate_resistor}}},
@@ -133,7 +134,7 @@ const std::vector<section_spec>& shared_schema() {
       {"supply", {{"volts", unit::volt, rule::any_sign, supply_volts}, {"resistance", unit::ohm, rule::non_negative, optional_resistor},
                   {"capacitance", unit::farad, rule::non_negative, capacitor}, {"phantom", unit::none, rule::any_sign}}},
       {"signal", {{"kind", unit::none, rule::any_sign}, {"impedance", unit::ohm, rule::non_negative, optional_resistor},
-                  {"capacitance", unit::farad, rule::positive, source_cap}, {"stray", unit::farad, rule::non_negative, capacitor},
+                  {"capacitance", unit::farad, rule::positive, checked_elsewhere}, {"stray", unit::farad, rule::non_negative, capacitor},
                   {"sensitivity", unit::volt_per_pascal, rule::positive, capsule_sensitivity},
                   {"resistance", unit::ohm, rule::positive, pickup_resistance},
                   {"inductance", unit::henry, rule::positive, pickup_inductance},
@@ -570,19 +571,14 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
   // part warms (model/analysis/temperature_drift.hpp), so each has one sign.
   if (g.has("jfet.vp_drift")) {
     const double v = g.get("jfet.vp_drift");
-    if (!(sign * v <= 0.0 && sign * v >= -ranges::vp_drift.hi))
-      rd.fail_at(g.where["jfet.vp_drift"], prefix + "jfet.vp_drift",
-                 prefix + "jfet.vp_drift must be " + (sign > 0 ? "0 to -10 mV/K" : "0 to +10 mV/K") + " for " + chan +
-                     " part, got " + base::format_si(v, "V/K", 3) + ": the pinch-off voltage grows in magnitude as the "
-                     "part warms, about 2 mV/K in silicon");
+    if (const std::string m = ranges::vp_drift_problem(sign * v, std::string("for ") + chan + " part"); !m.empty())
+      rd.fail_at(g.where["jfet.vp_drift"], prefix + "jfet.vp_drift", prefix + "jfet.vp_drift " + m);
     st.tempco.vp_drift_v_per_k = v;
   }
   if (g.has("jfet.beta_exponent")) {
     const double m = g.get("jfet.beta_exponent");
-    if (!(m <= 0.0 && m >= -ranges::beta_exponent.hi))
-      rd.fail_at(g.where["jfet.beta_exponent"], prefix + "jfet.beta_exponent",
-                 prefix + "jfet.beta_exponent must be -3 to 0, got " + base::format_number(m, 3) +
-                     " (m in beta ∝ T^m): beta falls as the part warms, as " + std::string(ranges::beta_exponent.why));
+    if (const std::string why = ranges::beta_exponent_problem(m); !why.empty())
+      rd.fail_at(g.where["jfet.beta_exponent"], prefix + "jfet.beta_exponent", prefix + "jfet.beta_exponent " + why);
     st.tempco.beta_exponent = m;
   }
 

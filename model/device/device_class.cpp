@@ -109,11 +109,8 @@ std::vector<device_class> parse_device_classes(std::string_view text, std::strin
         const bool drift = key == "vp_drift";
         const base::value_bounds any{0.0, std::numeric_limits<double>::infinity(), false, ""};
         const double x = number(v, drift ? base::unit::volt_per_kelvin : base::unit::none, any, file, full, true);
-        if (!(x <= 0.0 && -x <= (drift ? r::vp_drift.hi : r::beta_exponent.hi)))
-          throw input_error(where(file, v.source()) + full + " must be " + (drift ? "0 to -10 mV/K" : "-3 to 0") +
-                            " (n-channel sign), got " + (drift ? base::format_si(x, "V/K", 3) : base::format_number(x, 3)) + ": " +
-                            (drift ? "the pinch-off voltage grows in magnitude as the part warms"
-                                   : "the channel's mobility, and with it beta, falls as the part warms"));
+        if (const std::string m = drift ? r::vp_drift_problem(x, "(n-channel sign)") : r::beta_exponent_problem(x); !m.empty())
+          throw input_error(where(file, v.source()) + full + " " + m);
         (drift ? c.vp_drift_v_per_k : c.beta_exponent) = x;
       }
       else {

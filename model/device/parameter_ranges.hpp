@@ -5,6 +5,9 @@
 // lies one or more decades beyond what real parts show (common practice: datasheets of
 // small-signal and power JFETs), so a refusal means a slip (a missing prefix, a wrong unit),
 // never an unusual part. README "Stage file" lists them.
+#include <string>
+#include <string_view>
+
 #include "base/units.hpp"
 
 namespace pinchoff::model::ranges {
@@ -40,6 +43,15 @@ inline constexpr value_bounds vp_drift{0.0, 10e-3, false,
                                        "silicon JFETs drift about 2 mV/K, as the gate junction's built-in potential does"};
 inline constexpr value_bounds beta_exponent{0.0, 3.0, false,
                                             "the channel's mobility falls as T^-1.5 to T^-2.5 in silicon"};
+/// The two coefficients' checks, the one place the stage file, the device-class file and the
+/// drift law (model/analysis/temperature_drift.cpp) all use: "" when the value lies in its
+/// range, else the refusal's words after the key ("must be 0 to -10 mV/K ..., got ...: why").
+/// n_frame_v_per_k: the drift in the n-channel frame; frame: how the value was given, said
+/// in the message ("for an n-channel part", "for a p-channel part", "(n-channel sign)"); a
+/// frame naming the p-channel quotes the range and the value in its real sign.
+std::string vp_drift_problem(double n_frame_v_per_k, std::string_view frame);
+std::string beta_exponent_problem(double m);
+
 inline constexpr value_bounds vds_max{0.1, 1e4, false, "ratings of real parts lie between a few volts and a kilovolt"};
 inline constexpr value_bounds pd_max{1e-4, 1e4, false, "ratings of real parts lie between 100 mW and a few hundred watts"};
 inline constexpr value_bounds igf_max{1e-9, 100.0, false, "ratings of real parts lie between 1 mA and an ampere or so"};

@@ -977,8 +977,10 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       // ---- temperature: bias --temperature and the part's own laws
       {"bias --temperature beyond the rated range", {"bias", "@stage.toml", "--temperature", "0..200"}, {"--temperature 0..200", "-55 to 150"}},
       {"bias --temperature that is not a range", {"bias", "@stage.toml", "--temperature", "warm"}, {"--temperature", "'warm'"}},
-      {"bias --vp-drift of the wrong sign", {"bias", "@stage.toml", "--temperature", "0..50", "--vp-drift", "2"}, {"--vp-drift/--beta-exponent: ", "0 to -10 mV/K", "got 2"}},
-      {"bias --beta-exponent out of range", {"bias", "@stage.toml", "--temperature", "0..50", "--beta-exponent", "1"}, {"--vp-drift/--beta-exponent: ", "-3 to 0", "got 1"}},
+      {"bias --vp-drift of the wrong sign", {"bias", "@stage.toml", "--temperature", "0..50", "--vp-drift", "2"}, {"--vp-drift: ", "the pinch-off drift must be 0 to -10 mV/K (n-channel sign)", "got 2.00 mV/K"}},
+      {"bias --beta-exponent out of range", {"bias", "@stage.toml", "--temperature", "0..50", "--beta-exponent", "1"}, {"--beta-exponent: ", "must be -3 to 0", "got 1"}},
+      {"bias --vp-drift with a unit that is not V/K", {"bias", "@stage.toml", "--temperature", "0..50", "--vp-drift", "-2mV"}, {"--vp-drift", "V/K"}},
+      {"bias --vp-drift as a value beyond 10 mV/K", {"bias", "@stage.toml", "--temperature", "0..50", "--vp-drift", "-20m"}, {"--vp-drift: ", "0 to -10 mV/K", "got -20.0 mV/K"}},
       {"bias --vp-drift without --temperature", {"bias", "@stage.toml", "--vp-drift", "-3"}, {"--vp-drift", "--temperature"}},
       {"bias --beta-exponent without --temperature", {"bias", "@stage.toml", "--beta-exponent", "-2"}, {"--beta-exponent", "--temperature"}},
       {"[jfet] vp_drift beyond 10 mV/K", {"bias", "@tc-drift-big.toml"}, {"@tc-drift-big.toml:7:12:", "jfet.vp_drift must be 0 to -10 mV/K for an n-channel part", "got -20.0 mV/K"}},

@@ -82,6 +82,9 @@ TEST_CASE("bias --temperature: a part's own [jfet] vp_drift and beta_exponent dr
   const nlohmann::json by_option =
       drift_of({"bias", plain, "--temperature", "0..50", "--vp-drift", "-3.1", "--beta-exponent", "-2.2", "--json"});
   same_drift(by_key, by_option);
+  // A value with its unit or prefix is the same drift as the plain number in mV/K.
+  for (const char* written : {"-3.1m", "-3.1mV/K"})
+    same_drift(by_option, drift_of({"bias", plain, "--temperature", "0..50", "--vp-drift", written, "--beta-exponent", "-2.2", "--json"}));
   CHECK(by_key["law"]["vp_drift_from"] == "part");
   CHECK(by_key["law"]["beta_exponent_from"] == "part");
   CHECK(by_option["law"]["vp_drift_from"] == "option");

@@ -40,52 +40,22 @@
 #include "support/cli_runner.hpp"
 #include "support/patch_float.hpp"
 #include "support/scratch_dir.hpp"
+#include "support/sound_files.hpp"
 
 namespace {
 
 using namespace pinchoff;
 using pinchoff::testing::scratch_dir;
 namespace fs = std::filesystem;
-
-struct result {
-  int status;
-  std::string out, err;
-};
-
-result run(std::vector<std::string> args) {
-  std::ostringstream out, err;
-  const int status = cli::run(args, out, err, testing::built_data_files());
-  return {status, out.str(), err.str()};
+using result = pinchoff::testing::cli_result;
+using audio = pinchoff::testing::sound;
+result run(const std::vector<std::string>& args) { return testing::run_cli(args); }
+audio read_audio(const fs::path& p) { return testing::read_sound(p); }
+void write_audio(const fs::path& p, double rate_hz, int channels, dsp::sample_format f, const std::vector<double>& x) {
+  testing::write_sound(p, x, rate_hz, channels, f);
 }
 
 std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
-
-void write_audio(const fs::path& p, double rate_hz, int channels, dsp::sample_format f, const std::vector<double>& x) {
-  dsp::write_settings s;
-  s.rate_hz = rate_hz;
-  s.channels = channels;
-  s.format = f;
-  dsp::sound_writer w = dsp::sound_writer::create(p, s);
-  w.write(x);
-  w.commit();
-}
-
-struct audio {
-  dsp::sound_info info;
-  std::vector<double> x;  // interleaved
-};
-
-audio read_audio(const fs::path& p) {
-  dsp::sound_reader r = dsp::sound_reader::open(p);
-  audio a{r.info(), std::vector<double>(static_cast<std::size_t>(r.info().frames * r.info().channels))};
-  std::size_t at = 0;
-  while (at < a.x.size()) {
-    const std::size_t got = r.read(std::span<double>(a.x).subspan(at));
-    if (got == 0) break;
-    at += got * static_cast<std::size_t>(r.info().channels);
-  }
-  return a;
-}
 
 std::vector<double> sine(double f_hz, double rate_hz, double amplitude, std::size_t n) {
   std::vector<double> x(n);

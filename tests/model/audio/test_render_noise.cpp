@@ -22,50 +22,23 @@
 #include "model/circuit/stage_file.hpp"
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
+#include "support/sound_files.hpp"
 #include "support/welch.hpp"
 
 namespace {
 
 using namespace pinchoff;
 using pinchoff::testing::scratch_dir;
+using result = pinchoff::testing::cli_result;
+using pinchoff::testing::run_cli;
 namespace fs = std::filesystem;
-
-struct result {
-  int status;
-  std::string out, err;
-};
-
-result run_cli(std::vector<std::string> args) {
-  std::ostringstream out, err;
-  const int status = cli::run(args, out, err, testing::built_data_files());
-  return {status, out.str(), err.str()};
-}
 
 std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
 
 constexpr double rate = 48000.0;
 
-void write_audio(const fs::path& p, const std::vector<double>& x) {
-  dsp::write_settings s;
-  s.rate_hz = rate;
-  s.channels = 1;
-  s.format = dsp::sample_format::wav_float;
-  dsp::sound_writer w = dsp::sound_writer::create(p, s);
-  w.write(x);
-  w.commit();
-}
-
-std::vector<double> read_all(const fs::path& p) {
-  dsp::sound_reader r = dsp::sound_reader::open(p);
-  std::vector<double> x(static_cast<std::size_t>(r.info().frames * r.info().channels));
-  std::size_t at = 0;
-  while (at < x.size()) {
-    const std::size_t got = r.read(std::span<double>(x).subspan(at));
-    if (got == 0) break;
-    at += got * static_cast<std::size_t>(r.info().channels);
-  }
-  return x;
-}
+void write_audio(const fs::path& p, const std::vector<double>& x) { testing::write_sound(p, x, rate); }
+std::vector<double> read_all(const fs::path& p) { return testing::read_sound(p).x; }
 
 double mean_square(const std::vector<double>& x) {
   double s = 0.0;

@@ -26,50 +26,25 @@
 #include "model/audio/render.hpp"
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
+#include "support/sound_files.hpp"
 
 namespace {
 
 using namespace pinchoff;
 using pinchoff::testing::scratch_dir;
+using result = pinchoff::testing::cli_result;
+using pinchoff::testing::run_cli;
 namespace fs = std::filesystem;
 
 // The documented acceptance of the engine (dk_stats.hpp): tol_v 1e-10 V plus at most 1e-8 V.
 constexpr double documented_floor_v = 1e-10 + 1e-8;
 
-struct result {
-  int status;
-  std::string out, err;
-};
-
-result run_cli(std::vector<std::string> args) {
-  std::ostringstream out, err;
-  const int status = cli::run(args, out, err, testing::built_data_files());
-  return {status, out.str(), err.str()};
+void write_audio(const fs::path& p, int channels, dsp::sample_format f, const std::vector<double>& x) {
+  testing::write_sound(p, x, 48000.0, channels, f);
 }
+std::vector<double> read_all(const fs::path& p) { return testing::read_sound(p).x; }
 
 std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
-
-void write_audio(const fs::path& p, int channels, dsp::sample_format f, const std::vector<double>& x) {
-  dsp::write_settings s;
-  s.rate_hz = 48000.0;
-  s.channels = channels;
-  s.format = f;
-  dsp::sound_writer w = dsp::sound_writer::create(p, s);
-  w.write(x);
-  w.commit();
-}
-
-std::vector<double> read_all(const fs::path& p) {
-  dsp::sound_reader r = dsp::sound_reader::open(p);
-  std::vector<double> x(static_cast<std::size_t>(r.info().frames * r.info().channels));
-  std::size_t at = 0;
-  while (at < x.size()) {
-    const std::size_t got = r.read(std::span<double>(x).subspan(at));
-    if (got == 0) break;
-    at += got * static_cast<std::size_t>(r.info().channels);
-  }
-  return x;
-}
 
 std::vector<double> sine(double f_hz, double amplitude, std::size_t n) {
   std::vector<double> x(n);
