@@ -304,7 +304,8 @@ void analyse_noise_report(noise_report& rep, const model::noise_settings& s, std
   rep.op = model::solve_operating_point(rep.net);
   rep.warnings = rest_point_warnings(rep.st, rep.net, rep.op, "noise", err);
   rep.r = model::analyse_noise(rep.net, rep.op, s);
-  rep.head = model::analyse_headroom(rep.net, rep.op);
+  // The swing alone: the report rates the signal-to-noise ratio at the clean drive, and names no clip order.
+  rep.head = model::analyse_headroom(rep.net, rep.op, model::headroom_detail::swing_only);
   if (rep.st.has_capsule()) {
     // The top of a microphone's dynamic range, as sweep and compare rate it (1 kHz).
     model::compare_settings c;

@@ -1,6 +1,7 @@
 #include "model/analysis/sweep.hpp"
 
 #include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -255,12 +256,31 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
   // of a run starts from the DC state.
   constexpr int run_length = 5;
   const int n_points = static_cast<int>(s.drives_vpk.size());
-  const auto point = [&](int i, Eigen::VectorXd& from) {
+  // The start is extrapolated linearly in the drive's amplitude from the two drives before
+  // (exact where the stage is linear: the periodic state's offset from DC scales with the
+  // drive), and shooting begins with chord steps on the monodromy the drive before ended
+  // with (steady_state_options::start_monodromy). Only from a drive within 3.5 dB (the
+  // default sweep steps by 2.5 dB): from 6 dB and more a start from DC tracked fewer
+  // periods on the three-stage preset (9 against 13 over 8 drives, 0.01 to 2 V).
+  constexpr double max_warm_step = 1.5;
+  struct warm_start {
+    double drive_vpk{};
+    Eigen::VectorXd state;      // the drive's periodic state
+    Eigen::MatrixXd monodromy;  // and the monodromy its last correction used
+  };
+  const auto point = [&](int i, warm_start& before, warm_start& last) {
     dk_engine eng(net, op, res.sample_rate_hz);
     steady_state_options so;
     so.cycles = s.cycles;
-    so.start_from = from;
     const double drive = s.drives_vpk[static_cast<std::size_t>(i)];
+    if (last.state.size() != 0 && std::max(drive / last.drive_vpk, last.drive_vpk / drive) <= max_warm_step) {
+      so.start_from = last.state;
+      so.start_monodromy = last.monodromy;
+      if (before.state.size() != 0 && last.drive_vpk != before.drive_vpk) {
+        const double t = std::clamp((drive - last.drive_vpk) / (last.drive_vpk - before.drive_vpk), 0.0, 2.0);
+        so.start_from += t * (last.state - before.state);
+      }
+    }
     steady_state_result ss;
     std::vector<double> period;
     if (probes) {
@@ -294,6 +314,7 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
     p.state_change_v = ss.state_change_v;
     p.shooting_iterations = ss.shooting_iterations;
     p.periods_simulated = ss.periods_simulated;
+    p.periods_tracked = ss.periods_tracked;
     p.converged = ss.converged;
     p.used_settling = ss.used_settling;
     p.newton = ss.engine;
@@ -307,11 +328,18 @@ sweep_result run_sweep(const stage& st, const sweep_plan& plan) {
         p.tap_shift_v = trace_mean(v, stride, tap_column + nst - 1) - rest_tap_v[nst - 1];
       }
     }
-    from = ss.converged ? ss.periodic_state : Eigen::VectorXd();
+    before = std::move(last);
+    last = ss.converged ? warm_start{drive, ss.periodic_state, ss.monodromy} : warm_start{};
   };
-  base::parallel_for((n_points + run_length - 1) / run_length, threads, [&](int run) {
-    Eigen::VectorXd from;
-    for (int i = run * run_length; i < std::min(n_points, (run + 1) * run_length); ++i) point(i, from);
+  // The runs go to the threads as they come free (the high drives' runs cost more): which
+  // thread runs a run changes nothing in it.
+  const int n_runs = (n_points + run_length - 1) / run_length;
+  std::atomic<int> next_run{0};
+  base::parallel_for(std::min(threads, n_runs), threads, [&](int) {
+    for (int run = next_run++; run < n_runs; run = next_run++) {
+      warm_start before, last;
+      for (int i = run * run_length; i < std::min(n_points, (run + 1) * run_length); ++i) point(i, before, last);
+    }
   });
 
 

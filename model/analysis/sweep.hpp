@@ -122,6 +122,7 @@ struct sweep_point {
   double state_change_v{};   ///< remaining period-to-period state change
   int shooting_iterations{};
   int periods_simulated{};
+  int periods_tracked{};     ///< of them, those that tracked the monodromy (3-6 times a plain one's cost)
   bool converged{};
   bool used_settling{};
   dk_stats newton;

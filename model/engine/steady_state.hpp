@@ -40,6 +40,11 @@ struct steady_state_options {
   /// Where shooting starts (network-frame states; empty: the DC state). A sweep starts each
   /// drive from the periodic state of the drive before it.
   Eigen::VectorXd start_from;
+  /// A monodromy to start from (ns x ns; empty: none): the last one tracked for a nearby
+  /// drive (steady_state_result::monodromy). Shooting then begins with chord steps on it
+  /// instead of tracking a period; a step that does not contract fast enough tracks as
+  /// usual, so it changes only how many periods are tracked, never the acceptance.
+  Eigen::MatrixXd start_monodromy;
   dk_options engine;
 };
 
@@ -65,6 +70,9 @@ struct steady_state_result {
   std::vector<double> ports_network_v;
   /// The start state of the returned periods (network frame), always filled.
   Eigen::VectorXd periodic_state;
+  /// The monodromy the last Newton correction used (tracked here, or the start_monodromy
+  /// given); empty when none was.
+  Eigen::MatrixXd monodromy;
 };
 
 /// Steady state for the generator sine amplitude_v * sin(2 pi cycles n / samples_per_period)

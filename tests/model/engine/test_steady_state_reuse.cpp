@@ -11,6 +11,7 @@
 #include <string>
 #include <vector>
 
+#include "base/error.hpp"
 #include "base/units.hpp"
 #include "model/circuit/network.hpp"
 #include "model/circuit/operating_point.hpp"
@@ -144,6 +145,54 @@ TEST_CASE("the settling fallback stops at its sample budget and says it did not 
   CHECK_FALSE(ss.converged);
   CHECK(ss.periods_simulated == 11);
   CHECK(ss.distance_v > o.tol_v);
+}
+
+TEST_CASE("shooting started from a nearby drive's state and monodromy reaches the same periodic state") {
+  // Where shooting starts, and which monodromy its first steps use, changes only how many
+  // periods it takes (Aprille & Trick 1972: the periodic solution of a stable stage is
+  // unique). The drive 2.5 dB up from a solved one, started from that one's periodic state
+  // and final monodromy (the chord and Broyden steps on it), against the same drive from
+  // the DC state tracking every period: within the acceptance, on one JFET and on a chain
+  // deep in clipping, and with fewer tracked periods.
+  for (const char* name : {"bass-booster-9v.toml", "three-stage-overdrive-9v.toml"}) {
+    for (double amp : {0.05, 1.0}) {
+      CAPTURE(name);
+      CAPTURE(amp);
+      const model::network net = preset_network(name);
+      const model::operating_point op = model::solve_operating_point(net);
+      const double rate = 96000.0;
+      const int period = 97;
+      model::steady_state_options cold, every;
+      cold.cycles = every.cycles = 3;
+      every.reuse_monodromy = false;
+      model::dk_engine e0(net, op, rate), e1(net, op, rate), e2(net, op, rate);
+      const model::steady_state_result below = model::periodic_steady_state(e0, amp / 1.3335, period, cold);
+      REQUIRE(below.converged);
+      REQUIRE(below.monodromy.rows() == e0.states());
+      model::steady_state_options warm = cold;
+      warm.start_from = below.periodic_state;
+      warm.start_monodromy = below.monodromy;
+      const model::steady_state_result a = model::periodic_steady_state(e1, amp, period, warm);
+      const model::steady_state_result b = model::periodic_steady_state(e2, amp, period, every);
+      REQUIRE(a.converged);
+      REQUIRE(b.converged);
+      CHECK_FALSE(a.used_settling);
+      CHECK(worst_difference(a.output_v, b.output_v) <= 1e-9);
+      CHECK((a.periodic_state - b.periodic_state).cwiseAbs().maxCoeff() <= 1e-9);
+      CAPTURE(a.periods_tracked);
+      CAPTURE(b.periods_tracked);
+      CHECK(a.periods_tracked < b.periods_tracked);
+    }
+  }
+}
+
+TEST_CASE("a start monodromy of the wrong size is refused as an internal error") {
+  const model::network net = preset_network("bass-booster-9v.toml");
+  const model::operating_point op = model::solve_operating_point(net);
+  model::dk_engine eng(net, op, 96000.0);
+  model::steady_state_options o;
+  o.start_monodromy = Eigen::MatrixXd::Identity(eng.states() + 1, eng.states() + 1);
+  CHECK_THROWS_AS(model::periodic_steady_state(eng, 0.1, 96, o), pinchoff::internal_error);
 }
 
 }  // namespace test_steady_state_reuse
