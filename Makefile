@@ -14,7 +14,7 @@ BUILD_JOBS = $(if $(findstring jobserver,$(MAKEFLAGS)),,-j$(JOBS))
 PINCHOFF = $(BUILD_DIR)/pinchoff
 MAKEFLAGS += --no-print-directory
 
-.PHONY: all deps configure build build-asan build-fuzz demo test test-all test-release test-asan test-fuzz fuzz bench soak clean
+.PHONY: all deps configure build build-tests build-asan build-fuzz demo test test-all test-release test-asan test-fuzz fuzz bench soak clean
 
 all: build
 
@@ -69,7 +69,12 @@ test:
 # The same as `make test` (kept for old habits).
 test-all: test
 
-test-release: build
+# Only what the suite runs (the test runner and the program): `make build`, `make bench` and
+# `make demo` build the rest.
+build-tests: configure
+	+@cmake --build $(BUILD_DIR) $(BUILD_JOBS) --target pinchoff_tests pinchoff
+
+test-release: build-tests
 	@echo "== tests: Release build"
 	@ctest --test-dir $(BUILD_DIR) --output-on-failure -j$(JOBS)
 

@@ -7,6 +7,8 @@
 #include "base/units.hpp"
 #include "base/eseries.hpp"
 
+namespace test_eseries {
+
 using namespace pinchoff::base;
 
 TEST_CASE("E12 and E24 are the tables of IEC 60063") {
@@ -58,3 +60,5 @@ TEST_CASE("nearest standard values below and above") {
   CHECK(series_at_or_above(eseries::e24, 4700) == doctest::Approx(4700).epsilon(1e-12));
   CHECK(series_at_or_below(eseries::e96, 0.95) == doctest::Approx(0.931).epsilon(1e-12));
 }
+
+}  // namespace test_eseries

@@ -28,6 +28,8 @@
 #include "support/files.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_output_file {
+
 namespace fs = std::filesystem;
 using pinchoff::base::existing;
 using pinchoff::base::output_file;
@@ -383,3 +385,5 @@ TEST_CASE("a stop signal during a commit waits until the set is whole") {
   CHECK(sigismember(&after, SIGINT) == sigismember(&before, SIGINT));
   CHECK(names_in(dir.path).size() == static_cast<std::size_t>(held_files));
 }
+
+}  // namespace test_output_file

@@ -13,6 +13,8 @@
 #include "base/text_file.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_text_file {
+
 using namespace pinchoff;
 using namespace pinchoff::base;
 
@@ -53,3 +55,5 @@ TEST_CASE("a CSV with a UTF-8 byte-order mark reads its first column by name") {
   REQUIRE(t.rows.size() == 2);
   CHECK(t.rows[1][1] == doctest::Approx(2.9e-3).epsilon(1e-15));
 }
+
+}  // namespace test_text_file

@@ -6,6 +6,8 @@
 #include "base/error.hpp"
 #include "base/toml_depth.hpp"
 
+namespace test_toml_depth {
+
 using pinchoff::input_error;
 using pinchoff::base::check_toml_depth;
 using pinchoff::base::max_toml_levels;
@@ -48,3 +50,5 @@ TEST_CASE("arrays nested across lines count as they open") {
   for (int i = 0; i < 200; ++i) shallow += "[1],\n";  // many arrays, never more than one open
   CHECK_NOTHROW(check_toml_depth("x = [" + shallow + "]", "f.toml"));
 }
+
+}  // namespace test_toml_depth

@@ -6,6 +6,8 @@
 #include "base/error.hpp"
 #include "base/units.hpp"
 
+namespace test_units {
+
 using namespace pinchoff;
 using namespace pinchoff::base;
 
@@ -171,3 +173,5 @@ TEST_CASE("physical bounds: each end accepted, beyond refused with the range in 
   CHECK(parse_value("12m", unit::volt_per_pascal) == doctest::Approx(12e-3).epsilon(1e-15));
   CHECK_THROWS_AS(parse_value("12mV", unit::volt_per_pascal), input_error);
 }
+
+}  // namespace test_units

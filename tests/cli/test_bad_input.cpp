@@ -27,6 +27,8 @@
 #include "support/patch_float.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_bad_input {
+
 namespace fs = std::filesystem;
 using pinchoff::testing::scratch_dir;
 
@@ -1053,3 +1055,5 @@ TEST_CASE("the value parsers refuse what later commands will rely on them to ref
   CHECK_THROWS_WITH_AS(base::parse_fraction("1", "--tolerance"), doctest::Contains("outside 0 to 100 %"), input_error);
   CHECK_THROWS_WITH_AS(pinchoff::cli::parse_requirement("gain=.."), doctest::Contains("at least one end"), input_error);
 }
+
+}  // namespace test_bad_input

@@ -12,6 +12,8 @@
 #include "cli/app.hpp"
 #include "support/cli_runner.hpp"
 
+namespace test_cli {
+
 namespace {
 using result = pinchoff::testing::cli_result;
 constexpr auto run = pinchoff::testing::run_cli;
@@ -426,3 +428,5 @@ TEST_CASE("a report standard output cannot take is exit 1 with a message, never 
     }
   }
 }
+
+}  // namespace test_cli

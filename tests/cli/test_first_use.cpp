@@ -14,6 +14,8 @@
 #include "support/files.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_first_use {
+
 namespace {
 using result = pinchoff::testing::cli_result;
 constexpr auto run = pinchoff::testing::run_cli;
@@ -232,3 +234,5 @@ TEST_CASE("sweep says a THD level was passed below its lowest drive, not that it
   REQUIRE(clean.status == 0);
   CHECK(has(clean.out, "THD 10 %: not reached in this sweep"));
 }
+
+}  // namespace test_first_use

@@ -8,6 +8,8 @@
 
 #include "support/cli_runner.hpp"
 
+namespace test_noise_cli {
+
 namespace {
 using result = pinchoff::testing::cli_result;
 constexpr auto run = pinchoff::testing::run_cli;
@@ -104,3 +106,5 @@ TEST_CASE("a capsule's dynamic range runs from its self-noise to its maximum SPL
   REQUIRE(text.status == 0);
   CHECK(text.out.find("dynamic range") != std::string::npos);
 }
+
+}  // namespace test_noise_cli

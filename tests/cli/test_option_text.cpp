@@ -8,6 +8,8 @@
 #include "base/error.hpp"
 #include "cli/option_text.hpp"
 
+namespace test_option_text {
+
 using namespace pinchoff;
 
 TEST_CASE("--set splits a key into its section and name and keeps the value as text") {
@@ -59,3 +61,5 @@ TEST_CASE("requirements are ranges with either end open") {
   CHECK_THROWS_WITH_AS(cli::parse_requirement("vd=3.5"), doctest::Contains("LO..HI"), input_error);
   CHECK_THROWS_WITH_AS(cli::parse_requirement("gain=.."), doctest::Contains("at least one end"), input_error);
 }
+
+}  // namespace test_option_text

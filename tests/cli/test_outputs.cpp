@@ -28,6 +28,8 @@
 #include "support/files.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_outputs {
+
 namespace fs = std::filesystem;
 using pinchoff::testing::run_cli;
 using pinchoff::testing::scratch_dir;
@@ -351,3 +353,5 @@ TEST_CASE("a full disk or a failed write: exit 2 saying why, no output or tempor
   CHECK(with_write_fault(dir.path / "small", write_fault::file_limit, tone_with_fault) ==
         "status 2; left: old.wav ; old old; says why");
 }
+
+}  // namespace test_outputs

@@ -10,6 +10,8 @@
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_parts_cli {
+
 namespace {
 using result = pinchoff::testing::cli_result;
 constexpr auto run = pinchoff::testing::run_cli;
@@ -126,3 +128,5 @@ TEST_CASE("a part of a bag that cannot be fitted is left out with a warning, and
   CHECK(mj["unfit"].size() == 1);
   CHECK(mj["unfit"][0]["part"] == "D");
 }
+
+}  // namespace test_parts_cli

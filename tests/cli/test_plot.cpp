@@ -21,6 +21,8 @@
 #include "base/error.hpp"
 #include "support/png_size.hpp"
 
+namespace test_plot {
+
 using namespace pinchoff::cli;
 namespace fs = std::filesystem;
 
@@ -228,3 +230,5 @@ TEST_CASE("plots escape text, check their inputs, and refuse a missing folder") 
     CHECK(std::string(e.what()).find("plot.svg") != std::string::npos);
   }
 }
+
+}  // namespace test_plot

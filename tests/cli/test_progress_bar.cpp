@@ -17,6 +17,8 @@
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_progress_bar {
+
 using pinchoff::cli::progress_bar;
 using pinchoff::testing::scratch_dir;
 
@@ -112,3 +114,5 @@ TEST_CASE("a render on a terminal shows the bar, then clears it for the report; 
   CHECK(hushed.find("% [") == std::string::npos);
   CHECK(hushed.find("Rendered") != std::string::npos);
 }
+
+}  // namespace test_progress_bar

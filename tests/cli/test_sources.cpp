@@ -9,6 +9,8 @@
 
 #include "support/cli_runner.hpp"
 
+namespace test_sources {
+
 namespace {
 using result = pinchoff::testing::cli_result;
 constexpr auto run = pinchoff::testing::run_cli;
@@ -130,3 +132,5 @@ TEST_CASE("sweep on a capsule stage gives a pressure column and the maximum SPL 
     CHECK(text.out.find(part) != std::string::npos);
   }
 }
+
+}  // namespace test_sources

@@ -12,6 +12,8 @@
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_spread_noise_cli {
+
 namespace {
 using result = pinchoff::testing::cli_result;
 constexpr auto run = pinchoff::testing::run_cli;
@@ -114,3 +116,5 @@ TEST_CASE("spread --csv with --parts names every run's part") {
   REQUIRE(plain.status == 0);
   CHECK(plain.out.rfind("run,idss_a,vp_v,supply_v,solved", 0) == 0);
 }
+
+}  // namespace test_spread_noise_cli

@@ -13,6 +13,8 @@
 #include "support/png_size.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_sweep_pictures {
+
 namespace fs = std::filesystem;
 
 namespace {
@@ -64,3 +66,5 @@ TEST_CASE("sweep --waveform and --transfer draw one period at up to six drives, 
   REQUIRE(two.status == 0);
   CHECK(count(pinchoff::testing::slurp(transfer), "<polyline") == 2);
 }
+
+}  // namespace test_sweep_pictures

@@ -11,6 +11,8 @@
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_temperature_cli {
+
 namespace {
 constexpr auto run = pinchoff::testing::run_cli;
 std::string preset(const char* name) { return std::string(PINCHOFF_PRESETS_DIR) + "/" + name; }
@@ -152,3 +154,5 @@ TEST_CASE("bias --temperature: in a chain each [stage.jfet] takes its own law, a
       drift_of({"bias", dir.file("classed.toml"), "--set", "jfet.vp_drift=-1m", "--temperature", "0..50", "--json"});
   CHECK(std::fabs(ck["law"]["vp_drift_v_per_k"].get<double>() / -1e-3 - 1.0) < 1e-12);
 }
+
+}  // namespace test_temperature_cli

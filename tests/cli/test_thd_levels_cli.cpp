@@ -12,6 +12,8 @@
 #include "base/units.hpp"
 #include "support/cli_runner.hpp"
 
+namespace test_thd_levels_cli {
+
 namespace {
 using result = pinchoff::testing::cli_result;
 constexpr auto run = pinchoff::testing::run_cli;
@@ -118,3 +120,5 @@ TEST_CASE("tune --thd-levels with two targets: the joint solution's and each sta
   REQUIRE(text.status == 0);
   CHECK(text.out.find("10 % THD") != std::string::npos);
 }
+
+}  // namespace test_thd_levels_cli

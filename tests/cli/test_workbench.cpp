@@ -29,6 +29,8 @@
 // Last: it brings <resolv.h>, whose `_res` macro breaks Eigen's headers included after it.
 #include <httplib.h>
 
+namespace test_workbench {
+
 namespace fs = std::filesystem;
 using pinchoff::cli::workbench_server;
 using pinchoff::cli::workbench_settings;
@@ -550,3 +552,5 @@ TEST_CASE("workbench: render and save refuse what they cannot do, by name") {
   CHECK(res->status == 400);
   CHECK(error_of(res).find("input peak") == 0);
 }
+
+}  // namespace test_workbench

@@ -15,6 +15,8 @@
 #include "dsp/windowed_analysis.hpp"
 #include "samples/pluck_phrase.hpp"
 
+namespace test_demo_sample {
+
 using namespace pinchoff::samples;
 namespace dsp = pinchoff::dsp;
 namespace fs = std::filesystem;
@@ -199,3 +201,5 @@ TEST_CASE("a plucked note's fundamental decays by 60 dB in the time asked") {
   CAPTURE(fall_db);
   CHECK(std::abs(fall_db - 60.0 * 1.0 / s.t60_s) <= 0.3);
 }
+
+}  // namespace test_demo_sample

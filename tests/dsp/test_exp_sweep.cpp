@@ -12,6 +12,8 @@
 #include "base/error.hpp"
 #include "dsp/exp_sweep.hpp"
 
+namespace test_exp_sweep {
+
 using namespace pinchoff::dsp;
 
 namespace {
@@ -188,3 +190,5 @@ TEST_CASE("a sweep's plan is checked field by field") {
   p.fade_seconds = 1;
   CHECK_THROWS_AS(validate(p), pinchoff::setting_error);
 }
+
+}  // namespace test_exp_sweep

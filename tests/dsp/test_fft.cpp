@@ -14,6 +14,8 @@
 #include "base/error.hpp"
 #include "dsp/fft.hpp"
 
+namespace test_fft {
+
 using pinchoff::dsp::real_fft;
 
 namespace {
@@ -220,3 +222,5 @@ TEST_CASE("real_fft copies plan independently and refuses wrong sizes") {
   std::vector<std::complex<double>> out(10);
   CHECK_THROWS_AS(a.forward(x, out), pinchoff::internal_error);
 }
+
+}  // namespace test_fft

@@ -13,6 +13,8 @@
 #include "base/error.hpp"
 #include "dsp/halfband.hpp"
 
+namespace test_halfband {
+
 using namespace pinchoff::dsp;
 using namespace pinchoff::base;
 
@@ -153,3 +155,5 @@ TEST_CASE("the polyphase interpolator and decimator equal zero-stuffing and plai
     }
   }
 }
+
+}  // namespace test_halfband

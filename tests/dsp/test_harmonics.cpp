@@ -12,6 +12,8 @@
 #include "dsp/fft.hpp"
 #include "dsp/harmonics.hpp"
 
+namespace test_harmonics {
+
 using namespace pinchoff::dsp;
 using namespace pinchoff::base;
 
@@ -235,3 +237,5 @@ TEST_CASE("coherent analysis refuses impossible records and settings") {
   CHECK_THROWS_AS(analyse_coherent(wrong, x, 384000.0, 1), pinchoff::internal_error);
   CHECK_NOTHROW(analyse_coherent(real_fft(384), x, 384000.0, 1));
 }
+
+}  // namespace test_harmonics

@@ -12,6 +12,8 @@
 #include "dsp/tone.hpp"
 #include "dsp/windowed_analysis.hpp"
 
+namespace test_level_steps {
+
 using namespace pinchoff::dsp;
 
 namespace {
@@ -135,3 +137,5 @@ TEST_CASE("noise at the recorder's floor between steps is a plateau, not a tone"
   }
   CHECK(tones == 1);
 }
+
+}  // namespace test_level_steps

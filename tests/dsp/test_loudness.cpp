@@ -12,6 +12,8 @@
 #include "dsp/loudness.hpp"
 #include "base/units.hpp"
 
+namespace test_loudness {
+
 namespace {
 
 using pinchoff::dsp::loudness_meter;
@@ -95,3 +97,5 @@ TEST_CASE("the meter is move-only and keeps its state when moved") {
   CHECK(std::abs(b.sample_peak() - 0.5) < 1e-3);
   CHECK(b.frames() == 96000);
 }
+
+}  // namespace test_loudness

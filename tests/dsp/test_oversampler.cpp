@@ -23,6 +23,8 @@
 #include "dsp/fft.hpp"
 #include "dsp/oversampler.hpp"
 
+namespace test_oversampler {
+
 using pinchoff::dsp::oversampler;
 using pinchoff::dsp::real_fft;
 
@@ -411,3 +413,5 @@ TEST_CASE("oversampler rejects unsupported factors, rates and buffer sizes") {
   CHECK_THROWS_AS(os.upsample(a, b), pinchoff::internal_error);
   CHECK_THROWS_AS(os.downsample(b, a), pinchoff::internal_error);
 }
+
+}  // namespace test_oversampler

@@ -12,6 +12,8 @@
 #include "dsp/shaped_noise.hpp"
 #include "support/welch.hpp"
 
+namespace test_shaped_noise {
+
 namespace {
 using namespace pinchoff;
 
@@ -99,3 +101,5 @@ TEST_CASE("shaped noise: a seed repeats its stream and two seeds differ") {
   CHECK(a == b);
   CHECK(a != c);
 }
+
+}  // namespace test_shaped_noise

@@ -25,6 +25,8 @@
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_tone {
+
 using namespace pinchoff::dsp;
 using namespace pinchoff::base;
 using pinchoff::testing::scratch_dir;
@@ -216,3 +218,5 @@ TEST_CASE("a tone stopped by Ctrl-C or SIGTERM exits 128 + the signal and leaves
     CHECK(dir.entries() == 0);  // no output, no temporary
   }
 }
+
+}  // namespace test_tone

@@ -5,6 +5,8 @@
 
 #include "dsp/weighting.hpp"
 
+namespace test_weighting {
+
 namespace {
 struct table_row {
   double f_hz;
@@ -57,3 +59,5 @@ TEST_CASE("ITU-R 468 weighting matches the table of the recommendation") {
   CHECK(pinchoff::dsp::itu468_weighting_gain(0.0) == 0.0);
   CHECK(pinchoff::dsp::a_weighting_gain(0.0) == 0.0);
 }
+
+}  // namespace test_weighting

@@ -12,6 +12,8 @@
 #include "dsp/fft.hpp"
 #include "dsp/window.hpp"
 
+namespace test_window {
+
 using namespace pinchoff::dsp;
 using namespace pinchoff::base;
 
@@ -99,3 +101,5 @@ TEST_CASE("window figures follow from their definitions for the closed-form case
   CHECK(main_lobe_half_width_bins(window_kind::hft90d) == 5);
   CHECK_THROWS_AS(make_window(window_kind::hann, 0), pinchoff::input_error);
 }
+
+}  // namespace test_window

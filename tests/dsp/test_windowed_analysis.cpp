@@ -14,6 +14,8 @@
 #include "dsp/weighting.hpp"
 #include "dsp/windowed_analysis.hpp"
 
+namespace test_windowed_analysis {
+
 using namespace pinchoff::dsp;
 using namespace pinchoff::base;
 
@@ -194,3 +196,5 @@ TEST_CASE("weighted noise readings: white noise against the weighting's integral
   }
   CHECK_THROWS_AS(analyse_noise_record(std::vector<double>(10, 0.0), fs), pinchoff::input_error);
 }
+
+}  // namespace test_windowed_analysis

@@ -16,6 +16,8 @@
 
 #include "tests/fuzz/fuzz_entries.hpp"
 
+namespace test_fuzz_regressions {
+
 namespace fs = std::filesystem;
 using pinchoff::fuzz::outcome;
 
@@ -81,3 +83,5 @@ TEST_CASE("the valid seeds are accepted, so the entry functions reach the parser
     CHECK(t->entry(bytes_of(fs::path(PINCHOFF_FUZZ_DIR) / "corpus" / name / file)) == outcome::accepted);
   }
 }
+
+}  // namespace test_fuzz_regressions

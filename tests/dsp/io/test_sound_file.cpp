@@ -20,6 +20,8 @@
 #include "support/patch_float.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_sound_file {
+
 using namespace pinchoff::dsp;
 using namespace pinchoff::base;
 using pinchoff::input_error;
@@ -389,3 +391,5 @@ TEST_CASE("TPDF dither makes the rounding error signal-independent noise of powe
     }
   }
 }
+
+}  // namespace test_sound_file

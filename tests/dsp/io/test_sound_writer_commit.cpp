@@ -15,6 +15,8 @@
 #include "dsp/io/sound_file.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_sound_writer_commit {
+
 namespace fs = std::filesystem;
 using pinchoff::testing::scratch_dir;
 
@@ -52,3 +54,5 @@ TEST_CASE("two sound writers committing one name at once: exactly one succeeds w
   for (const auto& e : fs::directory_iterator(dir.path)) left += e.path().filename().string().front() == '.';
   CHECK(left == 0);  // no temporary
 }
+
+}  // namespace test_sound_writer_commit

@@ -7,6 +7,8 @@
 #include "model/analysis/bias.hpp"
 #include "support/stages.hpp"
 
+namespace test_bias {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -32,3 +34,5 @@ TEST_CASE("bias gives the exact lower -3 dB point, not the sum of corners") {
   CHECK(*b.low_3db_hz < b.ss.low_corner_estimate_hz);
   CHECK_FALSE(b.high_3db_hz.has_value());  // no capacitance above: flat to the band's top
 }
+
+}  // namespace test_bias

@@ -16,6 +16,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "support/stages.hpp"
 
+namespace test_capsule {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -218,3 +220,5 @@ TEST_CASE("a sound pressure level and a capsule's voltage convert both ways") {
   CHECK(capsule_drive_vpk(c, 94.0) == doctest::Approx(17.01e-3).epsilon(1e-3));
   for (double l : {0.0, 40.0, 94.0, 120.0, 194.0}) CHECK(capsule_level_db_spl(c, capsule_drive_vpk(c, l)) == doctest::Approx(l).epsilon(1e-12));
 }
+
+}  // namespace test_capsule

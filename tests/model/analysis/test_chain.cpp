@@ -18,6 +18,8 @@
 #include "model/device/jfet.hpp"
 #include "support/stages.hpp"
 
+namespace test_chain {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -212,3 +214,5 @@ coupling_cap = "10u"
   // And the first stage's drain current is the supply's drop over its drain resistor.
   CHECK((12.0 - t1.vd_v) / 4.7e3 == doctest::Approx(t1.id_a).epsilon(1e-9));
 }
+
+}  // namespace test_chain

@@ -26,6 +26,8 @@
 #include "support/scratch_dir.hpp"
 #include "support/stages.hpp"
 
+namespace test_compare {
+
 using namespace pinchoff;
 using pinchoff::testing::scratch_dir;
 
@@ -347,3 +349,5 @@ TEST_CASE("compare --help explains the default and gives examples") {
   CHECK(r.out.find("Examples:") != std::string::npos);
   CHECK(r.out.find("-10 dBu") != std::string::npos);
 }
+
+}  // namespace test_compare

@@ -11,6 +11,8 @@
 #include "model/circuit/operating_point.hpp"
 #include "support/stages.hpp"
 
+namespace test_distortion_headroom {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -76,3 +78,5 @@ TEST_CASE("THD levels: the sweep spans the clean drive, and a stage reaches 1 % 
   for (std::size_t k = 1; k < d.levels.size(); ++k)
     if (d.levels[k].found) CHECK(d.levels[k].drive_vpk > d.levels[k - 1].drive_vpk);
 }
+
+}  // namespace test_distortion_headroom

@@ -19,6 +19,8 @@
 #include "support/engine_vs_reference.hpp"
 #include "support/stages.hpp"
 
+namespace test_gate_extras {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -263,3 +265,5 @@ TEST_CASE("a bootstrap belongs to a follower with a gate resistor's foot, feedba
   CHECK_THROWS_WITH_AS(test::stage_from(follower(1e6, "bias_bottom = \"100k\"\n", "", 0.0)),
                        doctest::Contains("needs both gate.bias_top and gate.bias_bottom"), input_error);
 }
+
+}  // namespace test_gate_extras

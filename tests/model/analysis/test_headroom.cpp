@@ -9,6 +9,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "support/stages.hpp"
 
+namespace test_headroom {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -104,3 +106,5 @@ TEST_CASE("the swing alone is the same swing: only the clip order is left out") 
     CHECK(swing.clip_order.empty());
   }
 }
+
+}  // namespace test_headroom

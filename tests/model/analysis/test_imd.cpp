@@ -10,6 +10,8 @@
 #include "model/analysis/imd.hpp"
 #include "support/stages.hpp"
 
+namespace test_imd {
+
 using namespace pinchoff;
 
 namespace {
@@ -89,3 +91,5 @@ TEST_CASE("the tones are snapped to whole cycles of the record") {
   s.base_rate_hz = 16000.0;
   CHECK_THROWS_AS(model::run_imd(test::stage_from(square_law), s), input_error);
 }
+
+}  // namespace test_imd

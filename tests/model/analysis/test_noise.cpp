@@ -16,6 +16,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "support/stages.hpp"
 
+namespace test_noise {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -224,3 +226,5 @@ TEST_CASE("noise settings are checked by field") {
   bad_f.from_hz = 0.0;
   CHECK_THROWS_AS(analyse_noise(s.net, s.op, bad_f), setting_error);
 }
+
+}  // namespace test_noise

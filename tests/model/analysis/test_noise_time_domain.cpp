@@ -19,6 +19,8 @@
 #include "model/engine/dk_engine.hpp"
 #include "support/stages.hpp"
 
+namespace test_noise_time_domain {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -99,3 +101,5 @@ TEST_CASE("the source resistance's noise run through the engine gives the predic
     CHECK(measured == doctest::Approx(predicted).epsilon(four_sigma));
   }
 }
+
+}  // namespace test_noise_time_domain

@@ -18,6 +18,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "support/stages.hpp"
 
+namespace test_pickup {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -149,3 +151,5 @@ TEST_CASE("a pickup's cable adds its capacitance per metre") {
   CHECK(test::stage_from(body + "cable = 5\ncable_capacitance = \"60p\"\n").pickup.total_capacitance_f() ==
         doctest::Approx(450e-12).epsilon(1e-12));
 }
+
+}  // namespace test_pickup

@@ -10,6 +10,8 @@
 #include "model/analysis/small_signal.hpp"
 #include "support/stages.hpp"
 
+namespace test_response {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -87,3 +89,5 @@ TEST_CASE("mid-band response equals the mid-band gain of the bias analysis") {
   const response_point p = response_at(net, op, 1000.0);
   CHECK(std::fabs(20 * std::log10(std::abs(p.gain) / std::fabs(ss.gain_midband))) < 0.01);
 }
+
+}  // namespace test_response

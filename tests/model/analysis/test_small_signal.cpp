@@ -10,6 +10,8 @@
 #include "model/analysis/small_signal.hpp"
 #include "support/stages.hpp"
 
+namespace test_small_signal {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -196,3 +198,5 @@ TEST_CASE("small-signal factors: a nodal matrix and its transpose solved, and a 
   CHECK(std::abs(z(1, 0) - 2.0) < 1e-14);
   CHECK(std::abs(z(2, 0)) < 1e-14);
 }
+
+}  // namespace test_small_signal

@@ -11,6 +11,8 @@
 #include "model/device/fit.hpp"
 #include "support/stages.hpp"
 
+namespace test_spread {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -439,3 +441,5 @@ TEST_CASE("over a bag of measured parts: every part once, each by its self-bias 
   pch.p_channel = true;
   CHECK_THROWS_WITH_AS(parts_for_spread({pch}, st), doctest::Contains("part 'P' is p-channel"), setting_error);
 }
+
+}  // namespace test_spread

@@ -18,6 +18,8 @@
 #include "model/analysis/sweep.hpp"
 #include "support/stages.hpp"
 
+namespace test_sweep {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -621,3 +623,5 @@ TEST_CASE("a sweep's drives, each started from the one before, find the periodic
     }
   }
 }
+
+}  // namespace test_sweep

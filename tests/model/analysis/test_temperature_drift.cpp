@@ -11,6 +11,8 @@
 #include "model/circuit/operating_point.hpp"
 #include "support/stages.hpp"
 
+namespace test_temperature_drift {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -156,3 +158,5 @@ TEST_CASE("a part's own coefficients ([jfet] vp_drift, beta_exponent) move it by
   CHECK(std::fabs(d.laws[1].law.vp_drift_v_per_k / -4e-3 - 1.0) < 1e-12);
   CHECK(std::fabs(d.zero_tc[1].vov_v - 2.0 * t0 * -4e-3 / -1.0) < 1e-12);  // closed form with its own law
 }
+
+}  // namespace test_temperature_drift

@@ -8,6 +8,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "support/stages.hpp"
 
+namespace test_tune {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -230,3 +232,5 @@ TEST_CASE("two targets out of reach one resistor at a time are still met togethe
   CHECK(std::fabs(midband_gain_db(built) - 20.0) < 0.01);
   CHECK(std::fabs(evaluate_with(built, "drain.resistor", sol.ohm[0]).at.vd_v - 9.0) < 1e-4);
 }
+
+}  // namespace test_tune

@@ -9,6 +9,8 @@
 #include "model/analysis/warnings.hpp"
 #include "support/stages.hpp"
 
+namespace test_warnings {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -62,3 +64,5 @@ TEST_CASE("a bias outside saturation is reported") {
       "[supply]\nvolts = 9\n[jfet]\nidss = \"10m\"\nvp = -2\nis = 0\n[gate]\nresistor = \"1M\"\n[drain]\nresistor = \"10k\"\n";
   CHECK(any_contains(warnings_of(triode), "triode"));
 }
+
+}  // namespace test_warnings

@@ -39,8 +39,11 @@
 #include "model/engine/steady_state.hpp"
 #include "support/cli_runner.hpp"
 #include "support/patch_float.hpp"
+#include "support/sanitized.hpp"
 #include "support/scratch_dir.hpp"
 #include "support/sound_files.hpp"
+
+namespace test_render {
 
 namespace {
 
@@ -236,7 +239,16 @@ TEST_CASE("several stages come out at the same integrated loudness, the dry inpu
   // ITU-R BS.1770 loudness of each written file, read back and measured again: within
   // 0.1 LU of each other (the 24-bit rounding and dither change it by far less).
   scratch_dir dir;
-  const fs::path clip = fs::path(PINCHOFF_SAMPLES_DIR) / "pluck-phrase-48k.wav";
+  fs::path clip = fs::path(PINCHOFF_SAMPLES_DIR) / "pluck-phrase-48k.wav";
+  if (pinchoff::testing::sanitized_build) {
+    // The clip's first 2 s (its first phrases) under the sanitizers: the same render, four
+    // hundred-millisecond loudness blocks many times over (tests/support/sanitized.hpp).
+    const audio whole = read_audio(clip);
+    REQUIRE(whole.info.channels == 1);
+    const std::vector<double> head(whole.x.begin(), whole.x.begin() + 2 * 48000);
+    write_audio(dir.path / "head.wav", whole.info.rate_hz, 1, dsp::sample_format::wav24, head);
+    clip = dir.path / "head.wav";
+  }
   const result r = run({"render", preset("bass-booster-9v.toml"), preset("clean-preamp-18v.toml"), "--input", clip.string(),
                         "--output", dir.file("cmp"), "--dry", "--json"});
   CAPTURE(r.err);
@@ -409,7 +421,11 @@ TEST_CASE("rendered harmonics agree with the periodic steady state at the same d
   // 0.01 dB below 20 kHz (dsp/oversampler.hpp), so H2 and H3 must agree within 0.2 dB.
   scratch_dir dir;
   const double rate = 48000.0, f0 = 1000.0;
-  write_audio(dir.path / "sine.wav", rate, 1, dsp::sample_format::wav_float, sine(f0, rate, 1.0, 3 * 48000));
+  // Read on one second (1000 cycles), or a tenth of that (100 cycles) under the sanitizers
+  // (tests/support/sanitized.hpp), after the same 1.9 s of settling.
+  const std::size_t window = pinchoff::testing::full_or_sanitized<std::size_t>(48000, 4800);
+  write_audio(dir.path / "sine.wav", rate, 1, dsp::sample_format::wav_float,
+              sine(f0, rate, 1.0, 91200 + window + 4800));
   for (double drive : {0.1, 0.5, 1.5}) {
     CAPTURE(drive);
     std::string name = std::to_string(static_cast<int>(drive * 10));
@@ -419,11 +435,11 @@ TEST_CASE("rendered harmonics agree with the periodic steady state at the same d
                           "--input-peak", base::format_number(drive, 6), "--output-peak", "20V", "--format", "float"});
     REQUIRE(r.status == 0);
     const audio a = read_audio(out);
-    // One second, 1000 whole cycles, from 1.9 s (coupling time constants of 0.1 s at most
-    // have settled to e^-19) to 0.1 s before the end: the aligned output's last samples
-    // answer the input's abrupt end (the oversampler's filters look ahead by its latency).
-    const std::vector<double> tail(a.x.end() - 48000 - 4800, a.x.end() - 4800);
-    const dsp::harmonic_analysis got = dsp::analyse_coherent(tail, rate, 1000);
+    // Whole cycles from 1.9 s (coupling time constants of 0.1 s at most have settled to
+    // e^-19) to 0.1 s before the end: the aligned output's last samples answer the input's
+    // abrupt end (the oversampler's filters look ahead by its latency).
+    const std::vector<double> tail(a.x.end() - static_cast<std::ptrdiff_t>(window) - 4800, a.x.end() - 4800);
+    const dsp::harmonic_analysis got = dsp::analyse_coherent(tail, rate, window * 1000 / 48000);
 
     const loaded s = load("bass-booster-9v.toml");
     const model::steady_state_result ss = model::periodic_steady_state(s.net, s.op, 8 * rate, drive, 384);
@@ -456,15 +472,23 @@ TEST_CASE("rendered harmonics agree with the periodic steady state at the same d
 
 namespace {
 
+// The stretch the aliasing is read on: one second (10000 cycles of 10 kHz) in the Release
+// suite, a tenth of that under the sanitizers (tests/support/sanitized.hpp). What costs is
+// the second of settling before it, which both keep: with 0.5 s the coupling capacitors'
+// charging leaves a floor near -61 dBc that hides 32x and 64x. Measured on bass-booster-9v
+// at 4 V: 1x to 64x -8.55, -17.06, -34.06, -47.67, -61.03, -74.79, -89.54 dBc on one
+// second, the same within 0.1 dB on a tenth.
+constexpr std::size_t alias_window_samples = pinchoff::testing::full_or_sanitized<std::size_t>(48000, 4800);
+
 // Non-harmonic energy below 20 kHz relative to the fundamental (dsp/harmonics.hpp
 // alias_dbc) of a 10 kHz sine rendered at 48 kHz: 4.8 samples a cycle, so products folded
-// at the engine rate land between the harmonic bins of a record of whole cycles. Read on one
-// second (10000 cycles) from 1 s, ending 0.1 s before the end (see the test above).
+// at the engine rate land between the harmonic bins of a record of whole cycles. Read on
+// alias_window_samples from 1 s, ending 0.1 s before the end (see the test above).
 double alias_at_10k(const loaded& s, double drive_v, int factor) {
-  const std::vector<double> x = sine(10000.0, 48000.0, drive_v, 2 * 48000 + 4800);
+  const std::vector<double> x = sine(10000.0, 48000.0, drive_v, 48000 + alias_window_samples + 4800);
   const std::vector<double> y = render_in_memory(s.net, s.op, factor, 48000.0, x, 4096);
-  const std::vector<double> tail(y.end() - 48000 - 4800, y.end() - 4800);
-  return dsp::analyse_coherent(tail, 48000.0, 10000).alias_dbc;
+  const std::vector<double> tail(y.end() - static_cast<std::ptrdiff_t>(alias_window_samples) - 4800, y.end() - 4800);
+  return dsp::analyse_coherent(tail, 48000.0, alias_window_samples * 10000 / 48000).alias_dbc;
 }
 
 }  // namespace
@@ -538,7 +562,8 @@ TEST_CASE("the automatic rate keeps a hard-clipped 10 kHz sine's aliasing below 
   // The issue's figure for a 10 kHz sine driven into hard clipping, met by the rate that
   // --oversample auto (the default) chooses, measured on the written file as above.
   scratch_dir dir;
-  write_audio(dir.path / "in.wav", 48000.0, 1, dsp::sample_format::wav_float, sine(10000.0, 48000.0, 1.0, 2 * 48000 + 4800));
+  write_audio(dir.path / "in.wav", 48000.0, 1, dsp::sample_format::wav_float,
+              sine(10000.0, 48000.0, 1.0, 48000 + alias_window_samples + 4800));
   const result r = run({"render", preset("bass-booster-9v.toml"), "--input", dir.file("in.wav"), "--output",
                         dir.file("out.wav"), "--input-peak", "4V", "--output-peak", "20V", "--format", "float", "--json"});
   CAPTURE(r.err);
@@ -550,8 +575,8 @@ TEST_CASE("the automatic rate keeps a hard-clipped 10 kHz sine's aliasing below 
   CHECK(j["oversampling_choice"]["target_met"].get<bool>());
   CHECK(std::abs(j["oversampling_choice"]["probe_vpk"].get<double>() - 4.0) < 1e-6);
   const audio a = read_audio(dir.path / "out.wav");
-  const std::vector<double> tail(a.x.end() - 48000 - 4800, a.x.end() - 4800);
-  const double alias = dsp::analyse_coherent(tail, 48000.0, 10000).alias_dbc;
+  const std::vector<double> tail(a.x.end() - static_cast<std::ptrdiff_t>(alias_window_samples) - 4800, a.x.end() - 4800);
+  const double alias = dsp::analyse_coherent(tail, 48000.0, alias_window_samples * 10000 / 48000).alias_dbc;
   MESSAGE("aliasing at the chosen rate: " << alias << " dBc");
   CHECK(alias < -80.0);
 
@@ -683,8 +708,13 @@ TEST_CASE("memory stays flat: a 60 s render peaks no higher than a 6 s one") {
     REQUIRE(WEXITSTATUS(status) == 0);
     return kib;
   };
-  const long short_kib = peak_kib(6), long_kib = peak_kib(60);
-  MESSAGE("peak RSS: 6 s " << short_kib << " KiB, 60 s " << long_kib << " KiB");
+  // 30 s under the sanitizers (tests/support/sanitized.hpp): held whole it would still add
+  // 11.5 MB, far beyond the bound.
+  const int long_s = pinchoff::testing::full_or_sanitized(60, 30);
+  const long short_kib = peak_kib(6), long_kib = peak_kib(long_s);
+  MESSAGE("peak RSS: 6 s " << short_kib << " KiB, " << long_s << " s " << long_kib << " KiB");
   CHECK(short_kib > 0);
   CHECK(long_kib - short_kib < 4096);
 }
+
+}  // namespace test_render

@@ -26,6 +26,8 @@
 #include "support/cli_runner.hpp"
 #include "support/scratch_dir.hpp"
 
+namespace test_render_interrupt {
+
 namespace {
 
 using namespace pinchoff;
@@ -103,3 +105,5 @@ TEST_CASE("the rate probes stop when asked") {
   stop = false;
   CHECK(model::choose_oversampling(refs, 2.0, 10000.0, 48000.0, -80.0, &stop).factor >= 8);
 }
+
+}  // namespace test_render_interrupt

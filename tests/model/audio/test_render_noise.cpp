@@ -25,6 +25,8 @@
 #include "support/sound_files.hpp"
 #include "support/welch.hpp"
 
+namespace test_render_noise {
+
 namespace {
 
 using namespace pinchoff;
@@ -211,3 +213,5 @@ TEST_CASE("render --noise: each channel hisses on its own stream, at the same le
   CHECK(std::fabs(std::sqrt(mean_square(left)) / rms_v - 1.0) < 2.5 * se);
   CHECK(std::fabs(std::sqrt(mean_square(right)) / rms_v - 1.0) < 2.5 * se);
 }
+
+}  // namespace test_render_noise

@@ -28,6 +28,8 @@
 #include "support/scratch_dir.hpp"
 #include "support/sound_files.hpp"
 
+namespace test_render_silence {
+
 namespace {
 
 using namespace pinchoff;
@@ -228,3 +230,5 @@ TEST_CASE("loudness matching gives a silent output (peak 0) scale 0") {
   CHECK(s[1] == 0.0);
   CHECK(std::abs(target - (-20.0 + base::db_from_ratio(2.0))) < 1e-12);
 }
+
+}  // namespace test_render_silence

@@ -9,6 +9,8 @@
 #include "model/circuit/network.hpp"
 #include "model/circuit/stage_file.hpp"
 
+namespace test_chain_file {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -134,3 +136,5 @@ TEST_CASE("chain messages give the stage's key and its line and column") {
   // Located at the [[stage]] header of the stage the node belongs to.
   CHECK(m.find("chain.toml:10:1: the stage1.output node has no DC path") != std::string::npos);
 }
+
+}  // namespace test_chain_file

@@ -7,6 +7,8 @@
 #include "model/circuit/operating_point.hpp"
 #include "support/stages.hpp"
 
+namespace test_operating_point {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -152,3 +154,5 @@ TEST_CASE("a gate's reverse leakage drops across the gate resistor: VG = I R, th
     CHECK(op.at.id_a == doctest::Approx(s * closed_form_id(idss, -1.5, rs, leak * rg)).epsilon(1e-7));
   }
 }
+
+}  // namespace test_operating_point

@@ -9,6 +9,8 @@
 #include "model/circuit/operating_point.hpp"
 #include "support/stages.hpp"
 
+namespace test_source_file {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -68,3 +70,5 @@ TEST_CASE("a phantom feed is refused beside the voltage it sets, and an unknown 
   CHECK_THROWS_WITH_AS(test::stage_from("topology = \"source-follower\"\n[supply]\nphantom = \"P36\"\n" + follower),
                        doctest::Contains("supply.phantom must be \"P48\", \"P24\" or \"P12\""), input_error);
 }
+
+}  // namespace test_source_file

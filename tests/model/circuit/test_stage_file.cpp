@@ -11,6 +11,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "base/text.hpp"
 
+namespace test_stage_file {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -171,3 +173,5 @@ TEST_CASE("nearest names for did-you-mean hints") {
   CHECK(base::nearest_name("bypascap", names) == "bypass_cap");
   CHECK(base::nearest_name("capacitance", names).empty());
 }
+
+}  // namespace test_stage_file

@@ -14,6 +14,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "model/engine/dk_matrices.hpp"
 
+namespace test_stage_ranges {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -223,3 +225,5 @@ TEST_CASE("a network the engine cannot solve is named by its file and its widest
   CHECK_THROWS_WITH_AS(discretise(net, 768000.0 * 64), doctest::Contains("supply.resistance (1.00e+16 Ω) against gate.coupling_cap"),
                        internal_error);
 }
+
+}  // namespace test_stage_ranges

@@ -9,6 +9,8 @@
 #include "model/circuit/operating_point.hpp"
 #include "model/analysis/warnings.hpp"
 
+namespace test_device_class {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -111,3 +113,5 @@ TEST_CASE("a class's drain-source rating reaches the stage, and a drain above it
   own.replace(own.find("class = "), 8, "vds_max = 50\nclass = ");
   CHECK(*parse_stage(own, "own.toml", {}, devices).ratings.vds_max_v == 50.0);
 }
+
+}  // namespace test_device_class

@@ -11,6 +11,8 @@
 #include "support/bench_readings.hpp"
 #include "model/circuit/stage_file.hpp"
 
+namespace test_fit {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -209,3 +211,5 @@ TEST_CASE("a long bench table fits, with its outlier found") {
   for (const auto& r : f.rows) flagged += r.flagged ? 1 : 0;
   CHECK(flagged <= 6);  // the bad row and chance: 4 standard deviations, 20,000 normal rows, about 1.3 (Poisson, at most 5 in 99.8 %)
 }
+
+}  // namespace test_fit

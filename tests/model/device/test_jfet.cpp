@@ -5,6 +5,8 @@
 
 #include "model/device/jfet.hpp"
 
+namespace test_jfet {
+
 using namespace pinchoff::model;
 
 namespace {
@@ -139,3 +141,5 @@ TEST_CASE("junction limiting keeps a large forward step logarithmic") {
   CHECK(lim > 0.6);
   CHECK(limit_junction(0.3, 0.2, vt, vcrit) == 0.3);  // below vcrit: untouched
 }
+
+}  // namespace test_jfet

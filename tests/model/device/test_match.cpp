@@ -10,6 +10,8 @@
 #include "base/error.hpp"
 #include "model/device/match.hpp"
 
+namespace test_match {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -153,3 +155,5 @@ TEST_CASE("match settings out of range name their field") {
   CHECK(r.sets.empty());
   CHECK(r.left_over.size() == 2);
 }
+
+}  // namespace test_match

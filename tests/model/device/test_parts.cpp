@@ -13,6 +13,8 @@
 #include "support/bench_readings.hpp"
 #include "model/device/jfet.hpp"
 
+namespace test_parts {
+
 using namespace pinchoff;
 using namespace pinchoff::model;
 
@@ -142,3 +144,5 @@ TEST_CASE("the parts table reads back as the parts it lists") {
   CHECK_THROWS_WITH_AS(read_parts(base::parse_csv("part,idss_a,vp_v\nA,5,-2\n", "r.csv", bench_layout())),
                        doctest::Contains("r.csv:2: idss_a"), input_error);
 }
+
+}  // namespace test_parts

@@ -11,6 +11,8 @@
 #include "model/engine/dk_engine.hpp"
 #include "model/engine/transient_reference.hpp"
 
+namespace test_chain_presets {
+
 namespace {
 
 using namespace pinchoff;
@@ -53,3 +55,5 @@ TEST_CASE("every chain preset, clean and deep in clipping: the engine gives the 
     }
   }
 }
+
+}  // namespace test_chain_presets

@@ -22,6 +22,8 @@
 #include "model/engine/transient_reference.hpp"
 #include "support/engine_vs_reference.hpp"
 
+namespace test_chains {
+
 namespace {
 
 using namespace pinchoff;
@@ -257,3 +259,5 @@ TEST_CASE("chains of two to seven stages: Newton steps factored by 2 x 2 blocks 
     }
   }
 }
+
+}  // namespace test_chains

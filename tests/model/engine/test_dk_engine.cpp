@@ -58,6 +58,8 @@ void free(void* p) { __libc_free(p); }
 }
 #endif
 
+namespace test_dk_engine {
+
 namespace {
 
 using namespace pinchoff;
@@ -376,3 +378,5 @@ TEST_CASE("the wide and the portable sample loops give the same samples") {
     CHECK(plain.stats().failed == 0);
   }
 }
+
+}  // namespace test_dk_engine

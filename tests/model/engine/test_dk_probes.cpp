@@ -19,6 +19,8 @@
 #include "model/engine/steady_state.hpp"
 #include "model/engine/transient_reference.hpp"
 
+namespace test_dk_probes {
+
 namespace {
 
 using namespace pinchoff;
@@ -159,3 +161,5 @@ TEST_CASE("a probe of a node outside the network is refused") {
   CHECK_THROWS_AS(dk_probes(net, {0}, fs_hz), internal_error);
   CHECK_THROWS_AS(dk_probes(net, {net.node_count}, fs_hz), internal_error);
 }
+
+}  // namespace test_dk_probes

@@ -12,6 +12,8 @@
 #include "model/engine/dk_stats.hpp"
 #include "model/engine/dk_steps.hpp"
 
+namespace test_dk_steps {
+
 namespace {
 
 using namespace pinchoff;
@@ -180,3 +182,5 @@ TEST_CASE("two runs' statistics add: counts summed, the most evaluations in one 
   CHECK(same.samples == a.samples);
   CHECK(same.max_evaluations == a.max_evaluations);
 }
+
+}  // namespace test_dk_steps

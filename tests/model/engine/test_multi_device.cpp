@@ -19,6 +19,8 @@
 #include "fixtures/multi_device_networks.hpp"
 #include "support/engine_vs_reference.hpp"
 
+namespace test_multi_device {
+
 namespace {
 
 using namespace pinchoff;
@@ -252,3 +254,5 @@ TEST_CASE("two cascaded stages: the tracked monodromy equals finite differences 
     CHECK(eng.stats().failed == 0);
   }
 }
+
+}  // namespace test_multi_device

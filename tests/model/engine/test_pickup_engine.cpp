@@ -18,6 +18,8 @@
 #include "support/engine_vs_reference.hpp"
 #include "support/files.hpp"
 
+namespace test_pickup_engine {
+
 namespace {
 
 using namespace pinchoff;
@@ -87,3 +89,5 @@ TEST_CASE("a pickup's coil holds its DC current as the engine's state: silence s
   const Eigen::VectorXd q = model::dc_states(net, op.x);
   CHECK(q[q.size() - 1] == doctest::Approx(model::inductor_state_ohm(2.5) * i_coil).epsilon(1e-12));
 }
+
+}  // namespace test_pickup_engine

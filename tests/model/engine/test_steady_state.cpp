@@ -12,6 +12,8 @@
 #include "model/analysis/small_signal.hpp"
 #include "model/engine/steady_state.hpp"
 
+namespace test_steady_state {
+
 namespace {
 
 using namespace pinchoff;
@@ -373,3 +375,5 @@ TEST_CASE("at tiny drive the simulation follows the small-signal response under 
     }
   }
 }
+
+}  // namespace test_steady_state

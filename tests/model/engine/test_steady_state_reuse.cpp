@@ -18,6 +18,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "model/engine/steady_state.hpp"
 
+namespace test_steady_state_reuse {
+
 namespace {
 
 using namespace pinchoff;
@@ -192,3 +194,5 @@ TEST_CASE("a start monodromy of the wrong size is refused as an internal error")
   o.start_monodromy = Eigen::MatrixXd::Identity(eng.states() + 1, eng.states() + 1);
   CHECK_THROWS_AS(model::periodic_steady_state(eng, 0.1, 96, o), pinchoff::internal_error);
 }
+
+}  // namespace test_steady_state_reuse

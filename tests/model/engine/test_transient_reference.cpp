@@ -11,6 +11,8 @@
 #include "model/circuit/stage_file.hpp"
 #include "model/engine/transient_reference.hpp"
 
+namespace test_transient_reference {
+
 namespace {
 
 using namespace pinchoff;
@@ -163,3 +165,5 @@ TEST_CASE("a warm start extrapolated across a kink does not end on a spurious po
   CHECK(c.worst_output_v <= 1e-9);
   CHECK(c.worst_ports_v <= 1e-9);
 }
+
+}  // namespace test_transient_reference
