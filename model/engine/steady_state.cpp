@@ -187,6 +187,26 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
     int newton_steps = 0, chord_steps = 0;
     int periods_left = opt.max_shooting_iterations * 3;
     double distance = shoot(x0, !chord_start, r, dx);
+    // After a plain period from x0 + dx (r_try its residual): Broyden's update of the
+    // monodromy, and the distance of the Newton estimate on it (inf when not finite).
+    auto broyden_distance = [&] {
+      jac.broyden(dx, r_try);
+      dx_try = jac.correction(r_try);
+      return dx_try.allFinite() ? max_abs(dx_try) : inf;
+    };
+    // Takes the trial x_new as the start, with its residual and step (r_try, dx_try) and its
+    // distance d_new: `tracked`, a fresh monodromy's estimate, else a chord step's of
+    // contraction d_new / distance.
+    auto take = [&](const Eigen::VectorXd& x_new, double d_new, bool tracked) {
+      ++res.shooting_iterations;
+      if (!tracked) rho = d_new / distance;
+      x0 = x_new;
+      r = r_try;
+      dx = dx_try;
+      distance = d_new;
+      fresh = tracked;
+      measured = true;
+    };
     while (std::isfinite(distance)) {
       res.state_change_v = max_abs(r);
       res.distance_v = distance;
@@ -201,23 +221,11 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
         const Eigen::VectorXd x_try = x0 + dx;
         double d_try = shoot(x_try, false, r_try, dx_try);
         ++chord_steps;
-        if (std::isfinite(d_try)) {
-          jac.broyden(dx, r_try);
-          dx_try = jac.correction(r_try);
-          d_try = dx_try.allFinite() ? max_abs(dx_try) : inf;
-        }
+        if (std::isfinite(d_try)) d_try = broyden_distance();
         if (std::isfinite(d_try) && d_try < distance) {  // progress: kept
-          ++res.shooting_iterations;
-          x0 = x_try;
-          r = r_try;
-          dx = dx_try;
-          if (d_try <= chord_ratio * distance) {
-            rho = d_try / distance;
-            distance = d_try;
-            fresh = false;
-            measured = true;
-            continue;
-          }
+          const bool fast = d_try <= chord_ratio * distance;
+          take(x_try, d_try, false);
+          if (fast) continue;
         }
         // Too slow: the monodromy is tracked again, from the start kept.
         chord = false;
@@ -235,22 +243,11 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
       if (opt.reuse_monodromy) {
         x_try = x0 + dx;
         d_try = shoot(x_try, false, r_try, dx_try);
+        if (std::isfinite(d_try) && d_try <= fast_ratio * distance) d_try = broyden_distance();
         if (std::isfinite(d_try) && d_try <= fast_ratio * distance) {
-          jac.broyden(dx, r_try);
-          dx_try = jac.correction(r_try);
-          d_try = dx_try.allFinite() ? max_abs(dx_try) : inf;
-        }
-        if (std::isfinite(d_try) && d_try <= fast_ratio * distance) {
-          ++res.shooting_iterations;
           ++newton_steps;
           chord = true;
-          rho = d_try / distance;
-          x0 = x_try;
-          r = r_try;
-          dx = dx_try;
-          distance = d_try;
-          fresh = false;
-          measured = true;
+          take(x_try, d_try, false);
           continue;
         }
       }
@@ -260,18 +257,15 @@ steady_state_result periodic_steady_state(dk_engine& eng, const std::vector<doub
         --periods_left;
         if (d_try < distance) break;
       }
-      ++res.shooting_iterations;
       ++newton_steps;
       // Without a shorter distance even at the smallest step the last trial is kept anyway
       // (the iteration cap ends a hopeless case); a non-finite one ends it now.
-      if (!std::isfinite(d_try)) return false;
+      if (!std::isfinite(d_try)) {
+        ++res.shooting_iterations;
+        return false;
+      }
       chord = opt.reuse_monodromy && d_try <= fast_ratio * distance;
-      x0 = x_try;
-      r = r_try;
-      dx = dx_try;
-      distance = d_try;
-      fresh = true;
-      measured = true;
+      take(x_try, d_try, true);
     }
     return false;
   };
