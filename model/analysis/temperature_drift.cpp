@@ -13,7 +13,7 @@ namespace pinchoff::model {
 
 
 void validate(const temperature_law& law) {
-  if (const std::string m = ranges::vp_drift_problem(law.vp_drift_v_per_k, "(n-channel sign)"); !m.empty())
+  if (const std::string m = ranges::vp_drift_problem(law.vp_drift_v_per_k, ranges::drift_frame::n_channel_sign); !m.empty())
     throw setting_error("temperature_law.vp_drift", "the pinch-off drift " + m);
   if (const std::string m = ranges::beta_exponent_problem(law.beta_exponent); !m.empty())
     throw setting_error("temperature_law.beta_exponent", "the exponent of beta's temperature law " + m);
@@ -39,8 +39,8 @@ part_law law_of(const stage& st, int k, const temperature_law_setting& setting) 
     out.vp_drift_from = coefficient_source::setting;
   } else if (own.vp_drift_v_per_k) {
     const double n_frame = polarity_sign(st) * *own.vp_drift_v_per_k;
-    if (const std::string m = ranges::vp_drift_problem(n_frame, polarity_sign(st) > 0 ? "for an n-channel part" : "for a p-channel part");
-        !m.empty())
+    const ranges::drift_frame frame = polarity_sign(st) > 0 ? ranges::drift_frame::n_channel_part : ranges::drift_frame::p_channel_part;
+    if (const std::string m = ranges::vp_drift_problem(n_frame, frame); !m.empty())
       throw setting_error(stage_key(st, k, "jfet.vp_drift"), stage_key(st, k, "jfet.vp_drift") + " " + m);
     out.law.vp_drift_v_per_k = n_frame;
     out.vp_drift_from = coefficient_source::part;

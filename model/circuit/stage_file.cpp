@@ -571,7 +571,7 @@ stage_parts build_parts(const reader& rd, const toml::table& table, gathered& g,
   // part warms (model/analysis/temperature_drift.hpp), so each has one sign.
   if (g.has("jfet.vp_drift")) {
     const double v = g.get("jfet.vp_drift");
-    if (const std::string m = ranges::vp_drift_problem(sign * v, std::string("for ") + chan + " part"); !m.empty())
+    if (const std::string m = ranges::vp_drift_problem(sign * v, sign > 0 ? ranges::drift_frame::n_channel_part : ranges::drift_frame::p_channel_part); !m.empty())
       rd.fail_at(g.where["jfet.vp_drift"], prefix + "jfet.vp_drift", prefix + "jfet.vp_drift " + m);
     st.tempco.vp_drift_v_per_k = v;
   }

@@ -109,7 +109,7 @@ std::vector<device_class> parse_device_classes(std::string_view text, std::strin
         const bool drift = key == "vp_drift";
         const base::value_bounds any{0.0, std::numeric_limits<double>::infinity(), false, ""};
         const double x = number(v, drift ? base::unit::volt_per_kelvin : base::unit::none, any, file, full, true);
-        if (const std::string m = drift ? r::vp_drift_problem(x, "(n-channel sign)") : r::beta_exponent_problem(x); !m.empty())
+        if (const std::string m = drift ? r::vp_drift_problem(x, r::drift_frame::n_channel_sign) : r::beta_exponent_problem(x); !m.empty())
           throw input_error(where(file, v.source()) + full + " " + m);
         (drift ? c.vp_drift_v_per_k : c.beta_exponent) = x;
       }

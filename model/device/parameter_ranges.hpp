@@ -6,7 +6,6 @@
 // small-signal and power JFETs), so a refusal means a slip (a missing prefix, a wrong unit),
 // never an unusual part. README "Stage file" lists them.
 #include <string>
-#include <string_view>
 
 #include "base/units.hpp"
 
@@ -46,10 +45,10 @@ inline constexpr value_bounds beta_exponent{0.0, 3.0, false,
 /// The two coefficients' checks, the one place the stage file, the device-class file and the
 /// drift law (model/analysis/temperature_drift.cpp) all use: "" when the value lies in its
 /// range, else the refusal's words after the key ("must be 0 to -10 mV/K ..., got ...: why").
-/// n_frame_v_per_k: the drift in the n-channel frame; frame: how the value was given, said
-/// in the message ("for an n-channel part", "for a p-channel part", "(n-channel sign)"); a
-/// frame naming the p-channel quotes the range and the value in its real sign.
-std::string vp_drift_problem(double n_frame_v_per_k, std::string_view frame);
+/// n_frame_v_per_k: the drift in the n-channel frame; frame: how the value was given, said in
+/// the message (a p-channel part's range and value are quoted in its real sign, positive).
+enum class drift_frame { n_channel_part, p_channel_part, n_channel_sign };
+std::string vp_drift_problem(double n_frame_v_per_k, drift_frame frame);
 std::string beta_exponent_problem(double m);
 
 inline constexpr value_bounds vds_max{0.1, 1e4, false, "ratings of real parts lie between a few volts and a kilovolt"};
