@@ -598,7 +598,9 @@ double parse_vp_drift_v_per_k(const std::string& text) {
   char* e = nullptr;
   const double plain = std::strtod(b, &e);
   if (e != b && *e == '\0' && std::isfinite(plain)) return plain * 1e-3;
-  return base::parse_value(text, base::unit::volt_per_kelvin, "--vp-drift");
+  if (const std::optional<double> v = base::try_parse_value(text, base::unit::volt_per_kelvin)) return *v;
+  throw input_error("--vp-drift: cannot read '" + text +
+                    "': give a plain number in mV/K (-2.2) or a value in V/K with its prefix (-2.2m, -2.2mV/K)");
 }
 
 // opt: the command's options (--thd-levels, --temperature); the workbench's analysis takes
