@@ -124,8 +124,10 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
     const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
     const Eigen::RowVectorXd vgs = diff(q.gate, q.source);
     const Eigen::RowVectorXd vds = diff(q.drain, q.source);
-    m.d.row(2 * j) = vgs.head(ns);
-    m.d.row(2 * j + 1) = vds.head(ns);
+    if (ns > 0) {  // a stage without capacitors has no states: no row to address
+      m.d.row(2 * j) = vgs.head(ns);
+      m.d.row(2 * j + 1) = vds.head(ns);
+    }
     m.e.row(2 * j) = vgs.segment(ns, 2);
     m.e.row(2 * j + 1) = vds.segment(ns, 2);
     m.f.row(2 * j) = vgs.tail(ni);

@@ -76,7 +76,9 @@ TEST_CASE("the valid seeds are accepted, so the entry functions reach the parser
       {"csv_fit", "bag-jig-source-voltage"}, {"csv_fit", "bag-gate-sweep-interleaved"}, {"csv_fit", "parts-table"},
       {"units", "match-by-vgs"}, {"units", "match-tolerance"}, {"stage_file", "idss-vds-with-lambda"},
       {"device_classes", "class-vds-max"}};
-  for (const auto& [name, file] : good) {
+  for (const auto& entry : good) {
+    const auto& name = entry.first;
+    const auto& file = entry.second;  // plain locals: clang 14 cannot capture structured bindings
     CAPTURE(name);
     const auto t = std::find_if(std::begin(targets), std::end(targets), [&](const fuzz_target& x) { return std::string(x.name) == name; });
     REQUIRE(t != std::end(targets));

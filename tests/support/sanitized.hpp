@@ -8,19 +8,22 @@
 // draws, in this build only: the same code and every assertion, with no tolerance changed.
 // Use it only where the shorter run still takes every path the full one takes.
 
+// A preprocessor form too, for code that must not be compiled under a sanitizer at all
+// (a test that replaces malloc, which the sanitizers' own allocator must own).
+#if defined(__SANITIZE_ADDRESS__) || defined(__SANITIZE_THREAD__)
+#define PINCHOFF_SANITIZED_BUILD 1
+#elif defined(__has_feature)
+#if __has_feature(address_sanitizer) || __has_feature(thread_sanitizer)
+#define PINCHOFF_SANITIZED_BUILD 1
+#endif
+#endif
+#ifndef PINCHOFF_SANITIZED_BUILD
+#define PINCHOFF_SANITIZED_BUILD 0
+#endif
+
 namespace pinchoff::testing {
 
-#if defined(__SANITIZE_ADDRESS__)
-inline constexpr bool sanitized_build = true;
-#elif defined(__has_feature)
-#if __has_feature(address_sanitizer)
-inline constexpr bool sanitized_build = true;
-#else
-inline constexpr bool sanitized_build = false;
-#endif
-#else
-inline constexpr bool sanitized_build = false;
-#endif
+inline constexpr bool sanitized_build = PINCHOFF_SANITIZED_BUILD != 0;
 
 /// `full` in a plain build, `shorter` under the sanitizers.
 template <typename T>

@@ -135,8 +135,10 @@ TEST_CASE("a pot between stages divides as its law says") {
   CHECK(pot_fraction(pot_taper::log, 1.0) == doctest::Approx(1.0));
   CHECK(pot_fraction(pot_taper::log, 0.0) == 0.0);
 
-  for (const auto& [between, x] : {std::pair<std::string, double>{"[ { pot = \"100k\", position = 0.3 } ]", 0.3},
-                                   {"[ { pot = \"100k\", position = 0.75, taper = \"log\" } ]", 0.55}}) {
+  for (const auto& row : {std::pair<std::string, double>{"[ { pot = \"100k\", position = 0.3 } ]", 0.3},
+                          {"[ { pot = \"100k\", position = 0.75, taper = \"log\" } ]", 0.55}}) {
+    const std::string& between = row.first;
+    const double x = row.second;  // plain locals: clang 14 cannot capture structured bindings
     CAPTURE(between);
     const stage st = test::stage_from(two_stages(between));
     const network net = build_network(st);

@@ -32,7 +32,9 @@ TEST_CASE("THD levels of a square-law stage: 1 %, 3 % and 10 % at A = 4 THD (VGS
   const std::string plain =
       "[supply]\nvolts = 30\n[jfet]\nidss = \"4m\"\nvp = -2\nis = 0\n[gate]\nresistor = \"1M\"\n[drain]\nresistor = \"2k\"\n";
   const std::string self_biased = test::self_bias_text(30.0, idss, vp, 250.0, rd, "bypass_cap = \"10m\"\n");
-  for (const auto& [text, rs] : {std::pair{plain, 0.0}, std::pair{self_biased, 250.0}}) {
+  for (const auto& row : {std::pair{plain, 0.0}, std::pair{self_biased, 250.0}}) {
+    const std::string& text = row.first;
+    const double rs = row.second;  // plain locals: clang 14 cannot capture structured bindings
     const stage st = test::stage_from(text);
     const network net = build_network(st);
     const operating_point op = solve_operating_point(net);

@@ -43,7 +43,8 @@ TEST_CASE("with only IDSS varied, the spread maps through the self-bias closed f
   // draws stays within 0.04 of the true one with probability 1 - 2 exp(-2 n 0.04^2) =
   // 99.7 % (Dvoretzky-Kiefer-Wolfowitz inequality, Massart 1990).
   const quantity_stats& id = r.stats.at("id");
-  for (auto [p, got] : {std::pair{0.05, id.p5}, std::pair{0.50, id.p50}, std::pair{0.95, id.p95}}) {
+  for (const auto& quantile : {std::pair{0.05, id.p5}, std::pair{0.50, id.p50}, std::pair{0.95, id.p95}}) {
+    const double p = quantile.first, got = quantile.second;  // plain locals: CAPTURE takes them by reference
     CAPTURE(p);
     const double lo = self_bias_id(2e-3 + std::max(0.0, p - 0.04) * 6e-3, vp, rs);
     const double hi = self_bias_id(2e-3 + std::min(1.0, p + 0.04) * 6e-3, vp, rs);

@@ -203,7 +203,9 @@ TEST_CASE("loudness matching leaves silent outputs silent, the dry input too") {
   scratch_dir dir;
   const std::pair<const char*, std::vector<double>> inputs[] = {{"all zero", std::vector<double>(24000, 0.0)},
                                                                 {"-200 dBFS", sine(1000.0, 1e-10, 24000)}};
-  for (const auto& [what, x] : inputs) {
+  for (const auto& input : inputs) {
+    const char* const what = input.first;  // a plain local: clang 14 cannot capture a structured binding
+    const std::vector<double>& x = input.second;
     CAPTURE(std::string(what));
     const std::string in = dir.file(std::string(what) + ".wav"), out = dir.file(std::string(what) + "-cmp");
     write_audio(in, 1, dsp::sample_format::wav_float, x);

@@ -13,6 +13,7 @@
 #include "fixtures/engine_stages.hpp"
 #include "fixtures/multi_device_networks.hpp"
 #include "model/engine/dk_device.hpp"
+#include "support/sanitized.hpp"
 #include "model/engine/dk_engine.hpp"
 #include "model/device/jfet.hpp"
 
@@ -22,7 +23,7 @@
 // so this sees every heap allocation, in release builds too (EIGEN_RUNTIME_NO_MALLOC only
 // asserts, and assertions are off under NDEBUG). Sanitizer builds bring their own
 // allocator; there the count is not available.
-#if defined(__GLIBC__) && !defined(__SANITIZE_ADDRESS__) && !defined(__SANITIZE_THREAD__)
+#if defined(__GLIBC__) && !PINCHOFF_SANITIZED_BUILD
 #define PINCHOFF_COUNT_ALLOCATIONS 1
 namespace {
 std::atomic<long> heap_allocations{0};
