@@ -99,8 +99,8 @@ soak: build
 	@$(BUILD_DIR)/pinchoff_tests -tc="soak*" --no-skip --success=false
 
 # libFuzzer targets (tests/fuzz/), built with clang in their own folder, with coverage
-# instrumentation the sanitizer tree does not carry. -O2 with line tables only: a report names file and line, and the
-# full debug information cost build time and nothing else.
+# instrumentation the sanitizer tree does not carry. -O2 with line tables only: a report
+# names file and line, and the full debug information cost build time and nothing else.
 build-fuzz: deps
 	@cmake -S . -B $(FUZZ_DIR) -DCMAKE_BUILD_TYPE=RelWithDebInfo "-DCMAKE_CXX_FLAGS_RELWITHDEBINFO=-O2 -gline-tables-only -DNDEBUG" \
 	  -DCMAKE_CXX_COMPILER=clang++ -DPINCHOFF_FUZZ=ON \
