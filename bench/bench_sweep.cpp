@@ -1,8 +1,8 @@
 // Cost of a 25-point drive sweep per preset (H2..H10, the default oversampling: 8x at
 // 1 kHz, 1x at 20 Hz, model::automatic_oversampling), wall clock on all cores, and the
-// steady-state records (periods of 3 cycles) simulated per point: at 1 kHz, and at 20 Hz,
-// the bottom of the audio band, whose record holds 50 periods of the 1 kHz one (7 201
-// samples at 48 kHz; 57 601 at 8x). The 20 Hz time is given as a ratio to the 1 kHz
+// steady-state records simulated per point: at 1 kHz (3 cycles, 1 153 samples at 8x), and
+// at 20 Hz, the bottom of the audio band, whose record holds 2 cycles (model::
+// automatic_cycles; 4 801 samples at 48 kHz, 4.2 times the 1 kHz record). The 20 Hz time is given as a ratio to the 1 kHz
 // time, and beside it the ratio of samples simulated and the cost a sample, so a cost that
 // grows faster than the record (a transform slow for the record's length) shows as a cost a
 // sample above the 1 kHz one.

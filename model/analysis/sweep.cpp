@@ -103,17 +103,18 @@ void validate(const sweep_settings& s) {
   for (double d : s.drives_vpk)
     if (!(d > 0) || !std::isfinite(d))
       throw setting_error("drives_vpk", "drive levels must be above 0 V, got " + format_si(d, "Vpk"));
-  if (s.cycles < 1 || s.cycles > 64) throw internal_error("sweep cycles out of range");
+  if (s.cycles < 0 || s.cycles > 64) throw internal_error("sweep cycles out of range");
+  const int cycles = s.cycles > 0 ? s.cycles : automatic_cycles(s.frequency_hz, fs);
   // The record a point holds (drive, output, spectrum and the transform's work, at most about
   // 120 bytes a sample, on every thread at once) must stay within memory. The bound is on the
   // record as asked; the snap moves it by a few samples.
-  const double m = s.cycles * fs / s.frequency_hz;
+  const double m = cycles * fs / s.frequency_hz;
   if (m > static_cast<double>(max_record_samples))
     throw setting_error("frequency_hz", "the test frequency " + format_si(s.frequency_hz, "Hz") + " needs a record of " +
-                                            std::to_string(std::llround(m)) + " samples (" + std::to_string(s.cycles) +
+                                            std::to_string(std::llround(m)) + " samples (" + std::to_string(cycles) +
                                             " cycles at the " + format_si(fs, "Hz") + " simulation rate), above the " +
                                             std::to_string(max_record_samples) + " a point may hold; at this rate the "
-                                            "frequency must be at least " + format_si(s.cycles * fs / max_record_samples, "Hz", 4) +
+                                            "frequency must be at least " + format_si(cycles * fs / max_record_samples, "Hz", 4) +
                                             ", or lower the oversampling or the audio rate");
 }
 
@@ -126,10 +127,16 @@ int automatic_oversampling(double frequency_hz, double base_rate_hz, double band
   return 8;
 }
 
+int automatic_cycles(double frequency_hz, double sample_rate_hz) noexcept {
+  if (!(frequency_hz > 0) || !(sample_rate_hz > 0)) return 3;
+  return 2.0 * sample_rate_hz / frequency_hz >= reference_bin_fold_order ? 2 : 3;
+}
+
 sweep_plan plan_sweep(const sweep_settings& asked) {
   sweep_settings s = asked;
   if (s.automatic_oversample) s.oversample = automatic_oversampling(s.frequency_hz, s.base_rate_hz, s.bandwidth_hz);
   validate(s);
+  if (s.cycles == 0) s.cycles = automatic_cycles(s.frequency_hz, s.base_rate_hz * s.oversample);
   sweep_plan p;
   p.settings_ = s;
   p.sample_rate_hz_ = s.base_rate_hz * s.oversample;

@@ -2,10 +2,10 @@
 // Drive sweeps: the periodic steady state of the stage for a sine at each drive level,
 // simulated at the oversampled rate, and the harmonic profile of the voltage at the load.
 //
-// The record is one steady-state period of M samples holding K whole cycles (K = 3, M
-// chosen coprime with K), so every harmonic falls on a bin (no window, no leakage) and
-// products folded from above the simulation's Nyquist frequency land between harmonic
-// bins, where they are measured as aliasing. The frequency is snapped to K fs / M and the
+// The record is one steady-state period of M samples holding K whole cycles (K = 3, or 2
+// where the record is long: automatic_cycles; M chosen coprime with K), so every harmonic
+// falls on a bin (no window, no leakage) and products folded from above the simulation's
+// Nyquist frequency land between harmonic bins, where they are measured as aliasing. The frequency is snapped to K fs / M and the
 // snapped value reported; M is the nearest such length at which the same harmonics lie
 // within the bandwidth as at the frequency asked (record_samples below). Any M transforms
 // in O(M log M) (dsp/fft.hpp), and M is bounded (max_record_samples).
@@ -42,7 +42,7 @@ struct sweep_settings {
   double base_rate_hz{48000.0};     ///< the audio rate the oversampling multiplies
   int harmonics{default_harmonics}; ///< N: H2..HN
   double bandwidth_hz{20000.0};     ///< harmonics above it are not counted (AES17)
-  int cycles{3};                    ///< K
+  int cycles{0};                    ///< K, 1..64; 0: automatic_cycles()
   int threads{0};                   ///< 0: one per core; results do not depend on it
   /// A chain: also each stage's output and clean region (sweep_point::stages). Ignored for
   /// a single stage.
@@ -65,6 +65,16 @@ struct sweep_settings {
 /// band; 8 where none is. So 8 at about 1 kHz and above at 48 kHz, 1 at 20-70 Hz.
 int automatic_oversampling(double frequency_hz, double base_rate_hz, double bandwidth_hz) noexcept;
 inline constexpr double reference_fold_order = (8 * 48000.0 - 20000.0) / 1000.0;  // 364
+
+/// The cycles a record holds when none are asked (sweep_settings::cycles = 0). With K
+/// cycles and M coprime with K, a product folded across a multiple m of the simulation rate
+/// lands between harmonic bins unless m is a multiple of K: the first one that can land on a
+/// harmonic's bin is of order about K fs / f. Three cycles put it at 1152 at 1 kHz and 8x
+/// 48 kHz (reference_bin_fold_order); two cycles are taken where they already put it that
+/// high (below about 83 Hz at 48 kHz, 666 Hz at 8x), since the record, which is also the
+/// steady state's period, is then a third shorter; otherwise three.
+int automatic_cycles(double frequency_hz, double sample_rate_hz) noexcept;
+inline constexpr double reference_bin_fold_order = 3 * 8 * 48000.0 / 1000.0;  // 1152
 
 /// Validates the settings against the simulation rate; throws setting_error naming the
 /// field ("oversampling", "base_rate_hz", "frequency_hz", "harmonics", "bandwidth_hz",
@@ -202,8 +212,8 @@ int record_samples(double frequency_hz, double sample_rate_hz, int cycles);
 /// at 20.03 kHz, outside).
 int record_samples(double frequency_hz, double sample_rate_hz, int cycles, int harmonics, double bandwidth_hz);
 
-/// The longest record a sweep point holds: 2^21 samples (0.55 Hz at 384 kHz with K = 3,
-/// 20 Hz up to a 14 MHz simulation rate). A point keeps the drive, the output, the spectrum
+/// The longest record a sweep point holds: 2^21 samples (0.37 Hz at 384 kHz with K = 2,
+/// 20 Hz up to a 21 MHz simulation rate). A point keeps the drive, the output, the spectrum
 /// and the transform's work, at most about 120 bytes a sample (0.25 GB at the limit), and
 /// the points share a transform plan of about 100 bytes a sample.
 inline constexpr int max_record_samples = 1 << 21;

@@ -701,9 +701,9 @@ TEST_CASE("every bad input gets exit status 2, a message that says what and wher
       {"two stage files of the same name", {"render", "@stage.toml", "@other/stage.toml", "--input", "@rec48.wav", "--output", "@cmp"}, {"two outputs would both be written", "stage.wav"}},
       {"a stage file with a misspelt key", {"render", "@typo.toml", "--input", "@rec48.wav", "--output", "@o.wav"}, {"@typo.toml:13:1:", "unknown key 'resistr'"}},
       // ---- records too long to hold (a low frequency at a high simulation rate)
-      {"sweep: 1 Hz at 768 kHz x 64", {"sweep", "@stage.toml", "--freq", "1", "--rate", "768k", "--oversample", "64"}, {"--freq: ", "147456000 samples", "49.2 MHz", "2097152 a point may hold", "at least 70.31 Hz", "oversampling"}},
-      {"sweep: 20 Hz at 768 kHz x 32", {"sweep", "@stage.toml", "--freq", "20", "--rate", "768k", "--oversample", "32"}, {"--freq: ", "3686400 samples", "2097152 a point may hold", "at least 35.16 Hz"}},
-      {"compare: 2 Hz at 48 kHz x 64", {"compare", "@stage.toml", "@stage.toml", "--freq", "2", "--oversample", "64"}, {"--freq: ", "4608000 samples", "2097152 a point may hold", "at least 4.395 Hz"}},
+      {"sweep: 1 Hz at 768 kHz x 64", {"sweep", "@stage.toml", "--freq", "1", "--rate", "768k", "--oversample", "64"}, {"--freq: ", "98304000 samples", "49.2 MHz", "2097152 a point may hold", "at least 46.88 Hz", "oversampling"}},
+      {"sweep: 20 Hz at 768 kHz x 32", {"sweep", "@stage.toml", "--freq", "20", "--rate", "768k", "--oversample", "32"}, {"--freq: ", "2457600 samples", "2097152 a point may hold", "at least 23.44 Hz"}},
+      {"compare: 2 Hz at 48 kHz x 64", {"compare", "@stage.toml", "@stage.toml", "--freq", "2", "--oversample", "64"}, {"--freq: ", "3072000 samples", "2097152 a point may hold", "at least 2.930 Hz"}},
       // ---- Sizes, special files and the ranges of values: every text input is read with a
       // bound, and every value is checked against a physical range where it is read.
       {"a stage file over 1 MiB", {"bias", "@huge.toml"}, {"@huge.toml", "holds more than 1 MiB", "the most a stage file may hold"}},

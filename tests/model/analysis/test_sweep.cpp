@@ -223,6 +223,45 @@ TEST_CASE("aliasing falls with the oversampling factor while THD stays put") {
   CHECK(prev_alias < -65.0);  // 16x
 }
 
+TEST_CASE("two cycles where the record is long: the same harmonic profile as three, a third fewer samples") {
+  // With K cycles and M coprime with K, a product folded across m times the simulation rate
+  // lands on a harmonic's bin only when K divides m (closed form: its bin is n K - m M), so
+  // the first such product is of order about K fs / f. Two cycles are taken where that
+  // order is at least three cycles' at 1 kHz and 8x 48 kHz (1152).
+  CHECK(automatic_cycles(1000.0, 384000.0) == 3);
+  CHECK(automatic_cycles(20.0, 48000.0) == 2);    // 4800
+  CHECK(automatic_cycles(83.0, 48000.0) == 2);    // 1157
+  CHECK(automatic_cycles(84.0, 48000.0) == 3);    // 1143
+  CHECK(automatic_cycles(666.0, 384000.0) == 2);
+  CHECK(automatic_cycles(667.0, 384000.0) == 3);
+  // The periodic steady state does not depend on how many of its cycles the record holds:
+  // at 20 Hz (1x) the automatic record (2 cycles, 4801 samples) and one of 3 cycles (7201)
+  // give the same harmonics, within what the snapped frequencies 0.007 % apart move them: the
+  // stage's response falls at most 18 dB an octave there (three capacitors: input, source
+  // bypass, output), so the fundamental moves by at most 3 df / f (closed form).
+  sweep_settings s;
+  s.frequency_hz = 20.0;
+  s.automatic_oversample = true;
+  s.drives_vpk = {0.03, 0.3, 3.0};
+  const sweep_plan two = plan_sweep(s);
+  CHECK(two.settings().cycles == 2);
+  CHECK(two.samples_per_record() == 4801);
+  s.cycles = 3;
+  const sweep_plan three = plan_sweep(s);
+  CHECK(three.samples_per_record() == 7201);
+  const stage st = preset("bass-booster-9v.toml");
+  const sweep_result a = run_sweep(st, two), b = run_sweep(st, three);
+  CHECK(a.cycles == 2);
+  const double df = std::fabs(a.frequency_hz - b.frequency_hz) / b.frequency_hz;
+  CHECK(df < 1e-4);
+  for (std::size_t i = 0; i < a.points.size(); ++i) {
+    CAPTURE(a.points[i].drive_vpk);
+    CHECK(a.points[i].output_vpk == doctest::Approx(b.points[i].output_vpk).epsilon(3 * df));
+    CHECK(std::fabs(a.points[i].thd_db - b.points[i].thd_db) < 0.01);
+    for (std::size_t h = 0; h < 4; ++h) CHECK(std::fabs(a.points[i].harmonics_dbc[h] - b.points[i].harmonics_dbc[h]) < 0.01);
+  }
+}
+
 TEST_CASE("the record is whole cycles and the frequency is snapped") {
   for (double f : {20.0, 82.4, 1000.0, 4987.0, 19000.0}) {
     CAPTURE(f);
@@ -253,7 +292,7 @@ TEST_CASE("every frequency in the supported range gets a record the transform ru
   // The property behind the bass-frequency hangs: a record length with a large prime factor
   // made the transform O(M p). For every frequency from 1 Hz to the audio Nyquist limit, at
   // rates from 8 kHz x 1 to 768 kHz x 64: either the record is refused as too long (and only
-  // then), or it is coprime with K = 3 (aliases between harmonic bins), its transform runs
+  // then), or it is coprime with K (aliases between harmonic bins), its transform runs
   // on radix 2..5 stages only over a length of at most 2.5 M (dsp/fft.hpp), it counts the
   // same harmonics as the frequency asked, and no nearer length does all that.
   struct rate {
@@ -272,23 +311,26 @@ TEST_CASE("every frequency in the supported range gets a record the transform ru
       s.base_rate_hz = r.base;
       s.oversample = r.oversample;
       s.bandwidth_hz = std::min(20000.0, 0.5 * fs);
-      const double exact = 3.0 * fs / f;
+      const int k = automatic_cycles(f, fs);
+      const double exact = k * fs / f;
       if (exact > max_record_samples) {
         CHECK_THROWS_AS((void)plan_sweep(s), setting_error);
         continue;
       }
       const sweep_plan p = plan_sweep(s);
       const int m = p.samples_per_record();
-      REQUIRE(std::gcd(m, 3) == 1);
+      REQUIRE(p.settings().cycles == k);
+      REQUIRE(std::gcd(m, k) == 1);
       const std::size_t c = m % 2 == 0 ? static_cast<std::size_t>(m) / 2 : static_cast<std::size_t>(m);
       const std::size_t l = dsp::transform_length(static_cast<std::size_t>(m));
       REQUIRE(dsp::largest_prime_factor(l) <= 5);
       REQUIRE(l <= (5 * c) / 2);  // c directly, or the chirp's L < 2.5 c
-      const int want = counted(f, exact, 3, s.harmonics, s.bandwidth_hz);
-      REQUIRE(counted(p.frequency_hz(), m, 3, s.harmonics, s.bandwidth_hz) == want);
+      const int want = counted(f, exact, k, s.harmonics, s.bandwidth_hz);
+      REQUIRE(counted(p.frequency_hz(), m, k, s.harmonics, s.bandwidth_hz) == want);
       const long long m0 = std::llround(exact);
       for (long long q = m0 - std::llabs(m - m0) + 1; q < m0 + std::llabs(m - m0); ++q)
-        if (q > 6 && std::gcd(q, 3LL) == 1) REQUIRE(counted(fs * 3 / double(q), double(q), 3, s.harmonics, s.bandwidth_hz) != want);
+        if (q > 2 * k && std::gcd(q, static_cast<long long>(k)) == 1)
+          REQUIRE(counted(fs * k / double(q), double(q), k, s.harmonics, s.bandwidth_hz) != want);
     }
   }
 }
@@ -328,7 +370,7 @@ TEST_CASE("a wrong sweep setting is named by its field, with its range and the v
       {"frequency_hz", with([](sweep_settings& s) { s.frequency_hz = 30000; }), "30.0 kHz is at or above the Nyquist limit"},
       {"frequency_hz", with([](sweep_settings& s) { s.frequency_hz = 0.5; }), "at least 1 Hz"},
       {"frequency_hz", with([](sweep_settings& s) { s.frequency_hz = 1; s.base_rate_hz = 768000; s.oversample = 64; }),
-       "needs a record of 147456000 samples (3 cycles at the 49.2 MHz simulation rate), above the 2097152 a point may hold"},
+       "needs a record of 98304000 samples (2 cycles at the 49.2 MHz simulation rate), above the 2097152 a point may hold"},
       {"harmonics", with([](sweep_settings& s) { s.harmonics = 0; }), "1 to 100, got 0"},
       {"bandwidth_hz", with([](sweep_settings& s) { s.bandwidth_hz = 1e9; }), "below half the simulation rate (192 kHz)"},
       {"drives_vpk", with([](sweep_settings& s) { s.drives_vpk = {0.1, 0.0}; }), "above 0 V"},
