@@ -193,6 +193,22 @@ __attribute__((always_inline)) inline void abs_bound_n(const double* a, int n_rt
   }
 }
 
+// The 2 x 2 block at d (column stride n) replaced by its inverse in closed form (one
+// division, as on the one-JFET path); false, the block left as it was, where it is not safely
+// invertible alone: |det| not above 1e-3 of |a00 a11| + |a01 a10| or not finite.
+__attribute__((always_inline)) inline bool invert_block(double* d, int n) noexcept {
+  const double a00 = d[0], a10 = d[1], a01 = d[n], a11 = d[n + 1];
+  const double p0 = a00 * a11, p1 = a01 * a10;
+  const double det = p0 - p1;
+  if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
+  const double inv = 1.0 / det;
+  d[0] = a11 * inv;
+  d[1] = -a10 * inv;
+  d[n] = -a01 * inv;
+  d[n + 1] = a00 * inv;
+  return true;
+}
+
 // Block LU without pivoting, in 2 x 2 blocks (one per JFET), of the n x n column-major
 // matrix `a` in place: A = L U with L unit block lower triangular and U block upper
 // triangular (Golub & Van Loan, Matrix Computations, 4th ed., 3.2.11, block LU, from memory).
@@ -210,16 +226,8 @@ __attribute__((always_inline)) inline bool block_factor_n(double* a, int n_rt) n
   constexpr int NL = N > 0 ? N : 1;
   for (int b = 0; b < n; b += 2) {
     double* d = a + b + b * n;
-    const double a00 = d[0], a10 = d[1], a01 = d[n], a11 = d[n + 1];
-    const double p0 = a00 * a11, p1 = a01 * a10;
-    const double det = p0 - p1;
-    if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
-    const double inv = 1.0 / det;
-    const double i00 = a11 * inv, i01 = -a01 * inv, i10 = -a10 * inv, i11 = a00 * inv;
-    d[0] = i00;
-    d[1] = i10;
-    d[n] = i01;
-    d[n + 1] = i11;
+    if (!invert_block(d, n)) return false;
+    const double i00 = d[0], i01 = d[n], i10 = d[1], i11 = d[n + 1];
     if (b + 2 >= n) break;
     // L's blocks below: A_ib D^-1; rows not below the block multiplied by an exact 0 in the
     // update (whole columns at the fixed size, as in lu_factor_n).
@@ -323,18 +331,8 @@ template <int N>
 __attribute__((always_inline)) inline bool torn_prepare_n(double* a) noexcept {
   static_assert(N > 0);
 #pragma GCC unroll 8
-  for (int b = 0; b < N; b += 2) {
-    double* d = a + b + b * N;
-    const double a00 = d[0], a10 = d[1], a01 = d[N], a11 = d[N + 1];
-    const double p0 = a00 * a11, p1 = a01 * a10;
-    const double det = p0 - p1;
-    if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
-    const double inv = 1.0 / det;
-    d[0] = a11 * inv;
-    d[1] = -a10 * inv;
-    d[N] = -a01 * inv;
-    d[N + 1] = a00 * inv;
-  }
+  for (int b = 0; b < N; b += 2)
+    if (!invert_block(a + b + b * N, N)) return false;
   return true;
 }
 

@@ -89,16 +89,34 @@ model::network heavy_cgd_chain() {
   return test::chain_network(v);
 }
 
+// The bench's chain of k stages with rail filters, AC-coupled or every second stage a
+// DC-coupled follower.
+model::network rail_chain(int k, bool dc) {
+  test::cascade_options o;
+  o.dc_follower = dc;
+  o.rail_filters = true;
+  return test::cascade(k, o);
+}
+
+// The engine against the nodal reference on 800 samples: the invariant, 1e-9 V.
+test::side_by_side check_against_reference(const model::network& net, double amp) {
+  const test::side_by_side c = test::engine_against_reference(net, amp, 1000.0, 800, fs_hz);
+  CAPTURE(c.worst_output_v);
+  CAPTURE(c.worst_ports_v);
+  CHECK(c.worst_output_v <= 1e-9);
+  CHECK(c.worst_ports_v <= 1e-9);
+  CHECK(c.engine_failed == 0);
+  CHECK(c.reference_failed == 0);
+  return c;
+}
+
 }  // namespace
 
 TEST_CASE("torn steps: chains of three to six stages give the samples of the factored steps, and are taken on AC-coupled chains") {
   // (Two stages take the factored step: dk_general.cpp, torn_min_devices.)
   for (int k = 3; k <= 6; ++k) {
     for (const bool dc : {false, true}) {
-      test::cascade_options o;
-      o.dc_follower = dc;
-      o.rail_filters = true;
-      const model::network net = test::cascade(k, o);
+      const model::network net = rail_chain(k, dc);
       for (const double amp : {0.01, 1.0, 10.0}) {
         CAPTURE(k);
         CAPTURE(dc);
@@ -132,19 +150,9 @@ TEST_CASE("torn steps: chains of three to six stages follow the nodal reference 
   // The chain tests hold 0.01 and 10 V (test_chains.cpp); here the drive between them.
   for (int k = 3; k <= 6; ++k) {
     for (const bool dc : {false, true}) {
-      test::cascade_options o;
-      o.dc_follower = dc;
-      o.rail_filters = true;
-      const model::network net = test::cascade(k, o);
       CAPTURE(k);
       CAPTURE(dc);
-      const test::side_by_side c = test::engine_against_reference(net, 1.0, 1000.0, 800, fs_hz);
-      CAPTURE(c.worst_output_v);
-      CAPTURE(c.worst_ports_v);
-      CHECK(c.worst_output_v <= 1e-9);
-      CHECK(c.worst_ports_v <= 1e-9);
-      CHECK(c.engine_failed == 0);
-      CHECK(c.reference_failed == 0);
+      check_against_reference(rail_chain(k, dc), 1.0);
     }
   }
 }
@@ -158,7 +166,7 @@ TEST_CASE("torn steps: strong backward coupling (a shared rail, heavy Cgd, DC-co
       {"shared rail behind 470 Ohm, no reservoir", shared_rail_chain()},
       {"220 pF gate-drain, gates behind 1 uF", heavy_cgd_chain()},
       {"four stages, every second a DC-coupled follower", test::cascade(4, {.dc_follower = true, .rail_filters = false})},
-      {"six stages, DC-coupled followers, rail filters", test::cascade(6, {.dc_follower = true, .rail_filters = true})},
+      {"six stages, DC-coupled followers, rail filters", rail_chain(6, true)},
   };
   long long fell_back = 0;
   for (const scenario& s : cases) {
@@ -176,12 +184,7 @@ TEST_CASE("torn steps: strong backward coupling (a shared rail, heavy Cgd, DC-co
       CHECK(r.confirmed.failed == 0);
       fell_back += r.torn.torn_full;
       // And against the reference solver itself.
-      const test::side_by_side c = test::engine_against_reference(s.net, amp, 1000.0, 800, fs_hz);
-      CAPTURE(c.worst_output_v);
-      CAPTURE(c.worst_ports_v);
-      CHECK(c.worst_output_v <= 1e-9);
-      CHECK(c.worst_ports_v <= 1e-9);
-      CHECK(c.engine_failed == 0);
+      const test::side_by_side c = check_against_reference(s.net, amp);
       if (amp > 1.0) CHECK(c.gate_conducting() >= 1);
     }
   }
@@ -197,7 +200,7 @@ TEST_CASE("torn steps: the coupling left by the sweeps is needed in the acceptan
   // on this chain). With the weight 1 neither happens.
   model::dk_options without;
   without.coupling_weight = 0.0;
-  const model::network net = test::cascade(3, {.dc_follower = false, .rail_filters = true});
+  const model::network net = rail_chain(3, false);
   const torn_against_full dropped = run_pair(net, 1.0, 1600, without);
   CAPTURE(dropped.worst_out);
   CAPTURE(dropped.worst_ports);
