@@ -5,7 +5,12 @@
 // (2k x 2k) factored on every Newton iteration: by 2 x 2 blocks, one per JFET, without
 // pivoting where that is safe (block_factor_n; a chain's I - F Jf is nearly block lower
 // triangular), else by LU with partial pivoting (Golub & Van Loan, Matrix Computations,
-// Alg. 3.4.1). The factorisation, the solves and the small
+// Alg. 3.4.1). From three JFETs a Newton step is first taken torn, stage by stage: block
+// Gauss-Seidel sweeps over each JFET's own 2 x 2 block of I - F Jf (no factorisation), the
+// coupling they leave in the linear residual added to the acceptance bound, and the bound
+// on the distance to the solution from the blocks (torn_abs_bound_n); where the sweeps do
+// not contract fast enough or the blocks cannot bound it, the step is factored as above
+// (solve_general). The factorisation, the solves and the small
 // products are plain loops: at these sizes (4 x 4 for two JFETs) Eigen's dynamic-size
 // kernels cost several times the arithmetic. Every vector and matrix is sized when the
 // solver is built, so a sample allocates nothing.
@@ -15,6 +20,7 @@
 #include <utility>
 #include <vector>
 
+#include "base/error.hpp"
 #include "model/engine/dk_acceptance.hpp"
 #include "model/engine/dk_general.hpp"
 #include "model/engine/dk_steps.hpp"
@@ -28,6 +34,26 @@
 
 namespace pinchoff::model {
 namespace {
+
+// The torn step is taken from three JFETs (compile-time sizes 3-6): at two, the block
+// factorisation it replaces is a single 2 x 2 Schur complement, and the sweeps, the bound
+// and the warm start's sweeps cost more than it (callgrind: 1,987 against 1,912
+// instructions a sample at 1 V; docs/engine-decisions.md).
+constexpr int torn_min_devices = 3;
+// The most block Gauss-Seidel sweeps of one torn Newton step (solve_general).
+constexpr int torn_max_sweeps = 6;
+// A sweep that shrinks the change of the step by less than this (the coupling between the
+// stages strong: DC-coupled followers, gate conduction) ends the torn step: J is factored.
+constexpr double torn_slow_ratio = 0.02;
+// After a torn step that ended so, this many samples are solved from the factors straight
+// away (the coupling that made it end does not change from one sample to the next).
+constexpr int torn_holdoff_samples = 32;
+// A step not yet small enough for the acceptance is swept until the coupling is below
+// this share of the residual (an inexact Newton step, Dembo, Eisenstat & Steihaug 1982:
+// its forcing term), so that the Newton converges as with the exact step.
+constexpr double torn_forcing = 1e-6;
+// The share of tol_v the coupling may take before the acceptance is tried on a torn step.
+constexpr double torn_coupling_share = 0.1;
 
 // Compile-time sizes for K JFETs (K = 0: dynamic).
 constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
@@ -167,6 +193,22 @@ __attribute__((always_inline)) inline void abs_bound_n(const double* a, int n_rt
   }
 }
 
+// The 2 x 2 block at d (column stride n) replaced by its inverse in closed form (one
+// division, as on the one-JFET path); false, the block left as it was, where it is not safely
+// invertible alone: |det| not above 1e-3 of |a00 a11| + |a01 a10| or not finite.
+__attribute__((always_inline)) inline bool invert_block(double* d, int n) noexcept {
+  const double a00 = d[0], a10 = d[1], a01 = d[n], a11 = d[n + 1];
+  const double p0 = a00 * a11, p1 = a01 * a10;
+  const double det = p0 - p1;
+  if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
+  const double inv = 1.0 / det;
+  d[0] = a11 * inv;
+  d[1] = -a10 * inv;
+  d[n] = -a01 * inv;
+  d[n + 1] = a00 * inv;
+  return true;
+}
+
 // Block LU without pivoting, in 2 x 2 blocks (one per JFET), of the n x n column-major
 // matrix `a` in place: A = L U with L unit block lower triangular and U block upper
 // triangular (Golub & Van Loan, Matrix Computations, 4th ed., 3.2.11, block LU, from memory).
@@ -184,16 +226,8 @@ __attribute__((always_inline)) inline bool block_factor_n(double* a, int n_rt) n
   constexpr int NL = N > 0 ? N : 1;
   for (int b = 0; b < n; b += 2) {
     double* d = a + b + b * n;
-    const double a00 = d[0], a10 = d[1], a01 = d[n], a11 = d[n + 1];
-    const double p0 = a00 * a11, p1 = a01 * a10;
-    const double det = p0 - p1;
-    if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
-    const double inv = 1.0 / det;
-    const double i00 = a11 * inv, i01 = -a01 * inv, i10 = -a10 * inv, i11 = a00 * inv;
-    d[0] = i00;
-    d[1] = i10;
-    d[n] = i01;
-    d[n + 1] = i11;
+    if (!invert_block(d, n)) return false;
+    const double i00 = d[0], i01 = d[n], i10 = d[1], i11 = d[n + 1];
     if (b + 2 >= n) break;
     // L's blocks below: A_ib D^-1; rows not below the block multiplied by an exact 0 in the
     // update (whole columns at the fixed size, as in lu_factor_n).
@@ -287,10 +321,141 @@ __attribute__((always_inline)) inline void block_abs_bound_n(const double* a, in
   }
 }
 
+// The per-stage (torn) step. J = I - F Jf of a chain is nearly block lower triangular, one
+// 2 x 2 block per JFET: a later stage acts on an earlier one only through the rail, gate
+// conduction and Cgd. torn_prepare_n replaces each diagonal block of J (column-major, n x n,
+// N > 0 at compile time) by its inverse in closed form, as block_factor_n does, and leaves
+// the rest of J as it is; false where a block is not safely invertible alone (the same
+// test as block_factor_n's). Nothing is eliminated: no Schur complements.
+template <int N>
+__attribute__((always_inline)) inline bool torn_prepare_n(double* a) noexcept {
+  static_assert(N > 0);
+#pragma GCC unroll 8
+  for (int b = 0; b < N; b += 2)
+    if (!invert_block(a + b + b * N, N)) return false;
+  return true;
+}
+
+// One block Gauss-Seidel sweep on J x = r with J prepared by torn_prepare_n: block by block
+// in signal order, x_b = D_b^-1 (r_b - sum over the other blocks c of J_bc x_c), the blocks
+// before b already swept (lower part) and those after b from the sweep before (upper part).
+// delta receives the change of x. With x^m - x^(m-1) = delta, J x^m = r - U delta (U: J's
+// strictly block upper part), so the sweep leaves the linear residual -U delta: the
+// coupling that torn_coupling_n bounds.
+template <int N>
+__attribute__((always_inline)) inline void torn_sweep_n(const double* a, const double* r, double* x,
+                                                        double* delta) noexcept {
+#pragma GCC unroll 8
+  for (int b = 0; b < N; b += 2) {
+    double y0 = r[b], y1 = r[b + 1];
+#pragma GCC unroll 8
+    for (int c = 0; c < N; c += 2) {
+      if (c == b) continue;
+      y0 -= a[b + c * N] * x[c] + a[b + (c + 1) * N] * x[c + 1];
+      y1 -= a[b + 1 + c * N] * x[c] + a[b + 1 + (c + 1) * N] * x[c + 1];
+    }
+    const double* d = a + b + b * N;
+    const double n0 = d[0] * y0 + d[N] * y1, n1 = d[1] * y0 + d[N + 1] * y1;
+    delta[b] = n0 - x[b];
+    delta[b + 1] = n1 - x[b + 1];
+    x[b] = n0;
+    x[b + 1] = n1;
+  }
+}
+
+// A bound on the linear residual a sweep leaves, |U delta| (torn_sweep_n), per row:
+// |U| |delta| with a rounding margin; the last block row has no upper part. Returns its
+// largest entry.
+template <int N>
+__attribute__((always_inline)) inline double torn_coupling_n(const double* a, const double* delta,
+                                                             double* e) noexcept {
+  double most = 0.0;
+#pragma GCC unroll 8
+  for (int b = 0; b < N; b += 2) {
+    double s0 = 0.0, s1 = 0.0;
+#pragma GCC unroll 8
+    for (int c = b + 2; c < N; c += 2) {
+      const double q0 = std::fabs(delta[c]), q1 = std::fabs(delta[c + 1]);
+      s0 += std::fabs(a[b + c * N]) * q0 + std::fabs(a[b + (c + 1) * N]) * q1;
+      s1 += std::fabs(a[b + 1 + c * N]) * q0 + std::fabs(a[b + 1 + (c + 1) * N]) * q1;
+    }
+    e[b] = s0 * (1.0 + detail::acceptance_round_k);
+    e[b + 1] = s1 * (1.0 + detail::acceptance_round_k);
+    most = std::max(most, std::max(e[b], e[b + 1]));
+  }
+  return most;
+}
+
+// A bound on |J^-1| t (t >= 0, in place) from J prepared by torn_prepare_n, without
+// factoring J. With J = L + U (L block lower with the diagonal blocks D, U strictly block
+// upper), J^-1 = sum_m (-L^-1 U)^m L^-1, so |J^-1| <= sum_m G^m |L^-1| with G = |L^-1| |U|,
+// and |L^-1| <= C = (I - |D^-1| |N_L|)^-1 |D^-1| (N_L = L - D is nilpotent: the
+// comparison-matrix argument of block_abs_bound_n). One forward pass gives s = C t and
+// w = C |U| 1; rho = max w bounds G's infinity norm, so G^m s <= rho^m max(s) 1 and
+// |J^-1| t <= s + max(s) rho / (1 - rho). Returns rho (t then holds the bound where
+// rho < 1, else is unusable).
+template <int N>
+__attribute__((always_inline)) inline double torn_abs_bound_n(const double* a, double* t) noexcept {
+  double w[N];
+#pragma GCC unroll 8
+  for (int b = 0; b < N; b += 2) {
+    double u0 = 0.0, u1 = 0.0;
+#pragma GCC unroll 8
+    for (int c = b + 2; c < N; c += 2) {
+      u0 += std::fabs(a[b + c * N]) + std::fabs(a[b + (c + 1) * N]);
+      u1 += std::fabs(a[b + 1 + c * N]) + std::fabs(a[b + 1 + (c + 1) * N]);
+    }
+    double y0 = t[b], y1 = t[b + 1];
+#pragma GCC unroll 8
+    for (int c = 0; c < b; c += 2) {
+      const double l00 = std::fabs(a[b + c * N]), l01 = std::fabs(a[b + (c + 1) * N]);
+      const double l10 = std::fabs(a[b + 1 + c * N]), l11 = std::fabs(a[b + 1 + (c + 1) * N]);
+      y0 += l00 * t[c] + l01 * t[c + 1];
+      y1 += l10 * t[c] + l11 * t[c + 1];
+      u0 += l00 * w[c] + l01 * w[c + 1];
+      u1 += l10 * w[c] + l11 * w[c + 1];
+    }
+    const double* d = a + b + b * N;
+    const double d00 = std::fabs(d[0]), d01 = std::fabs(d[N]), d10 = std::fabs(d[1]), d11 = std::fabs(d[N + 1]);
+    t[b] = d00 * y0 + d01 * y1;
+    t[b + 1] = d10 * y0 + d11 * y1;
+    w[b] = d00 * u0 + d01 * u1;
+    w[b + 1] = d10 * u0 + d11 * u1;
+  }
+  double rho = 0.0, smax = 0.0;
+  for (int r = 0; r < N; ++r) {
+    rho = std::max(rho, w[r]);
+    smax = std::max(smax, t[r]);
+  }
+  if (!(rho < 1.0)) return rho;
+  // Rounded up: the tail's factor is formed with a margin of its own rounding.
+  const double tail = smax * rho / (1.0 - rho) * (1.0 + detail::acceptance_round_k);
+  for (int r = 0; r < N; ++r) t[r] = (t[r] + tail) * (1.0 + detail::acceptance_round_k);
+  return rho;
+}
+
+// x = J^-1 b approximately (in place), by `sweeps` block Gauss-Seidel sweeps from 0: the
+// warm start's and the sub-steps' predictions from torn points (a prediction only; the
+// Newton that follows decides the accuracy).
+template <int N>
+__attribute__((always_inline)) inline void torn_solve_n(const double* a, double* b, int sweeps) noexcept {
+  double r[N], delta[N];
+  for (int q = 0; q < N; ++q) {
+    r[q] = b[q];
+    b[q] = 0.0;
+  }
+  for (int s = 0; s < sweeps; ++s) torn_sweep_n<N>(a, r, b, delta);
+}
+
 // Factors of either kind: `blocked` says which (block_factor_n's or lu_factor_n's).
+// `torn_sweeps` > 0 (N > 0 only): J prepared by torn_prepare_n, solved approximately by
+// that many sweeps.
 template <int N>
 __attribute__((always_inline)) inline void factors_solve_n(const double* a, int n, const int* piv, bool blocked,
-                                                           double* b) noexcept {
+                                                           double* b, int torn_sweeps = 0) noexcept {
+  if constexpr (N > 0) {
+    if (torn_sweeps > 0) return torn_solve_n<N>(a, b, torn_sweeps);
+  }
   if (blocked)
     block_solve_n<N>(a, n, b);
   else
@@ -427,10 +592,13 @@ void general_solver::port_set::resize(int k) {
   piv.resize(static_cast<std::size_t>(2 * k));
   for (int r = 0; r < 2 * k; ++r) piv[static_cast<std::size_t>(r)] = r;
   blocked = false;
+  torn = false;
 }
 
 general_solver::general_solver(const network& net, const operating_point& op, dk_matrices m, const dk_options& opt)
     : dk_solver_base(std::move(m), opt, net) {
+  if (!(opt_.coupling_weight >= 0.0 && opt_.coupling_weight <= 1.0))
+    throw internal_error("dk_options: coupling_weight must be 0..1");
   warm_ = detail::warm_start_weights(opt_.predictor_order);
   const int ns = m_.states, k = m_.devices, np = 2 * k, ni = 3 * k;
   storage& g = g_;
@@ -463,6 +631,8 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   g.cj.setZero(ns, np);
   g.md.setZero(np, ns);
   g.mi.setZero(np, np);
+  g.track_lu.setZero(np, np);
+  g.track_piv.assign(static_cast<std::size_t>(np), 0);
 
   // Far-reverse junctions, as on the one-JFET path (dk_single.cpp says why): below
   // v / (n Vt) = skip_arg a junction is taken as -is with no conductance, which leaves out
@@ -495,6 +665,22 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   detail::refine_dc_ports(m_, g.dev, supply_v_, q, v);
   x_dc_ = q;
   point_general(v, g.dc);
+  {
+    // How strongly the stages act backwards at the DC point: the infinity norm of
+    // L^-1 U (J = I - F Jf = L + U, L block lower with each JFET's 2 x 2 block), the
+    // contraction of a block Gauss-Seidel sweep. Where it is small, one sweep predicts the
+    // warm start from a torn point; else two (DC-coupled followers: 0.1-0.2).
+    const Eigen::MatrixXd j = Eigen::MatrixXd::Identity(np, np) - m_.f * g.dc.jf;
+    Eigen::MatrixXd lower = j, upper = Eigen::MatrixXd::Zero(np, np);
+    for (int c = 0; c < np; ++c)
+      for (int r = 0; r < c / 2 * 2; ++r) {
+        upper(r, c) = j(r, c);
+        lower(r, c) = 0.0;
+      }
+    const Eigen::MatrixXd g_s = lower.partialPivLu().solve(upper);
+    const double rho = g_s.cwiseAbs().rowwise().sum().maxCoeff();
+    torn_predict_ = rho < 1e-2 ? 1 : 2;
+  }
   g.p_dc = m_.d * q + m_.e * u;
   g.y_dc = m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(g.dc.i);
   y_dc_ = sign_ * g.y_dc;
@@ -515,6 +701,7 @@ void general_solver::point_general(const Eigen::VectorXd& v, port_set& out) noex
   out.v = v;
   one_minus_f_jf(m_.f, g.cur, out.lu);
   out.blocked = false;
+  out.torn = false;
   if (!(lu_factor(out.lu.data(), k * 2, out.piv.data()) > 0.0))
     out.lu.setConstant(std::numeric_limits<double>::quiet_NaN());
 }
@@ -525,6 +712,7 @@ void general_solver::reset() {
   g.q.setZero();
   for (port_set& s : g.ring) s = g.dc;
   g.head = 0;
+  torn_holdoff_ = 0;
   g.p_last = g.p_dc;
   stats_ = {};
 }
@@ -542,7 +730,23 @@ void general_solver::track(Eigen::MatrixXd& sensitivity) {
     for (int t = 2 * j; t < 2 * j + 2; ++t)
       g_.cj.col(t) = m_.c.col(3 * j) * jf(3 * j, t) + m_.c.col(3 * j + 1) * jf(3 * j + 1, t) +
                      m_.c.col(3 * j + 2) * jf(3 * j + 2, t);
-  inverse_of(g_.last().lu, g_.last().piv, g_.last().blocked, g_.mi);
+  const port_set& last = g_.last();
+  if (last.torn) {
+    // A torn point holds J = I - F Jf with its diagonal blocks inverted, not factors: J
+    // formed again from the point's Jf and factored with pivoting.
+    const int np = 2 * m_.devices, ni = 3 * m_.devices;
+    for (int c = 0; c < np; ++c)
+      for (int r = 0; r < np; ++r) {
+        double s = r == c ? 1.0 : 0.0;
+        for (int q = 0; q < ni; ++q) s -= m_.f(r, q) * jf(q, c);
+        g_.track_lu(r, c) = s;
+      }
+    if (!(lu_factor(g_.track_lu.data(), np, g_.track_piv.data()) > 0.0))
+      g_.track_lu.setConstant(std::numeric_limits<double>::quiet_NaN());
+    inverse_of(g_.track_lu, g_.track_piv, false, g_.mi);
+  } else {
+    inverse_of(last.lu, last.piv, last.blocked, g_.mi);
+  }
   g_.md.noalias() = g_.mi.lazyProduct(m_.d);
   apply_factor(g_.cj, g_.md, sensitivity);
 }
@@ -607,7 +811,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
     if (!std::isfinite(rn)) return false;
 
     // I - F Jf, column pair by column pair (Jf is block diagonal).
-    {
+    auto form_j = [&]() noexcept {
       double* jd = out.lu.data();
       for (int q = 0; q < k; ++q) {
         const detail::port_currents& c = g.cur[static_cast<std::size_t>(q)];
@@ -617,24 +821,12 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
           jd[row + (2 * q + 1) * np] = (row == 2 * q + 1 ? 1.0 : 0.0) - (-f1 * c.ggd_s + f2 * c.gds_s);
         }
       }
-    }
-    // Its factors, straight into the point's (kept when this step is accepted): by 2 x 2
-    // blocks where that is safe (block_factor_n), else with partial pivoting, I - F Jf
-    // formed again; and the step d = (I - F Jf)^-1 r.
-    out.blocked = opt_.block_factors && block_factor_n<lu_size_of(K)>(out.lu.data(), np);
-    if (!out.blocked) [[unlikely]] {
-      ++stats_.pivoted;
-      if (opt_.block_factors) one_minus_f_jf(m_.f, g.cur, out.lu);
-      if (!(lu_factor_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data()) > 1e-200)) return false;
-    }
-    d = r;
-    factors_solve_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), out.blocked, d.data());
-    if (!d.allFinite()) return false;
+    };
+    form_j();
 
     // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim), per JFET; the largest cut
     // scales the whole step.
-    bool limited = false;
-    {
+    auto limit_step = [&]() noexcept {
       double alpha = 1.0;
       for (int j = 0; j < k; ++j) {
         const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
@@ -644,14 +836,26 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       }
       if (alpha < 1.0) {
         d *= alpha;
-        limited = true;
+        return true;
       }
-    }
+      return false;
+    };
+    auto small_step = [&]() noexcept {
+      bool small = true;
+      for (int j = 0; j < k && small; ++j)
+        small = detail::small_junction_steps(g.dev[static_cast<std::size_t>(j)], d[2 * j], d[2 * j] - d[2 * j + 1]);
+      return small;
+    };
 
-    bool small = !limited;
-    for (int j = 0; j < k && small; ++j)
-      small = detail::small_junction_steps(g.dev[static_cast<std::size_t>(j)], d[2 * j], d[2 * j] - d[2 * j + 1]);
-    if (small) {
+    // The acceptance of the step d from v. coupling: null for an exact Newton step; for a
+    // torn step, the bound on the linear residual its last sweep left (torn_coupling_n),
+    // which the residual at v + d holds on top of |F| R, so it is added to t; the distance
+    // to the exact solution is then bounded by torn_abs_bound_n instead of the factors.
+    // Returns accept_yes (out holds the accepted point), accept_no, accept_sweep (a torn
+    // step that another sweep may make acceptable) or accept_full (a torn step whose bound
+    // cannot be had from J's blocks: factor J).
+    enum { accept_no, accept_yes, accept_sweep, accept_full };
+    auto try_accept = [&](const double* coupling) noexcept -> int {
       for (int j = 0; j < k; ++j) {
         const detail::step_remainders sr = detail::remainders_of(
             g.dev[static_cast<std::size_t>(j)], g.cur[static_cast<std::size_t>(j)], v[2 * j] + d[2 * j], v[2 * j + 1] + d[2 * j + 1], d[2 * j],
@@ -669,12 +873,25 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       t += Eigen::Map<const vec_p>(g.skip_t.data(), np);
       t += (allowed.array() - rounding_allowance_v).max(0.0).matrix();
       allowed = allowed.cwiseMin(rounding_allowance_v);
-      if (t.maxCoeff() <= tol) {
+      bool sweep_may_help = false;
+      if (coupling) {
+        sweep_may_help = t.maxCoeff() <= tol;
+        t += opt_.coupling_weight * Eigen::Map<const vec_p>(coupling, np);
+      }
+      if (!(t.maxCoeff() <= tol)) return sweep_may_help ? accept_sweep : accept_no;
+      bound = t;
+      if (coupling) {
+        if constexpr (K > 0) {
+          const double rho = torn_abs_bound_n<2 * K>(out.lu.data(), bound.data());
+          // Where the blocks cannot bound it (the coupling is already a small share of
+          // tol_v here, so more sweeps would not), the factors decide, as without tearing.
+          if (!(rho < 1.0 && bound.maxCoeff() <= tol)) return accept_full;
+        }
+      } else {
         // The bound on the error, |M| t with M = (I - F Jf)^-1, from the factors
         // (abs_bound_n: no inverse formed). Where that bound is too coarse (the
         // comparison matrices can overstate |U^-1| by far where U's entries cancel), |M| t
         // itself, from M formed column by column.
-        bound = t;
         if (out.blocked)
           block_abs_bound_n<lu_size_of(K)>(out.lu.data(), np, bound.data());
         else
@@ -682,45 +899,119 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         if (!(bound.maxCoeff() <= tol)) [[unlikely]]
           exact_abs_bound<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), out.blocked, t.data(), g.mi.data(),
                                          bound.data());
-        if (bound.maxCoeff() <= tol) {
-          if (opt_.confirm) {
-            bound = v + d;  // the accepted point (bound is free now)
-            for (int j = 0; j < k; ++j) {
-              // The exact device (no far-reverse skip), so the check covers the skip's bound too.
-              detail::device_consts exact = g.dev[static_cast<std::size_t>(j)];
-              exact.skip_arg = detail::junction_deep_reverse;
-              const detail::port_currents cc = detail::evaluate_ports(exact, bound[2 * j], bound[2 * j + 1]);
-              rem[3 * j] = cc.igs_a;
-              rem[3 * j + 1] = cc.igd_a;
-              rem[3 * j + 2] = cc.id_a;
-              g.cur[static_cast<std::size_t>(j)] = cc;
-            }
-            ++evals;
-            t = p - bound;
-            product_n<lu_size_of(K), true>(f.data(), np, ni, rem.data(), t.data());
-            if (!(t.cwiseAbs().array() <= tol + allowed.array()).all()) {
-              ++stats_.bound_misses;
-            } else {
-              out.v = g.bound;
-              i = rem;
-              for (int j = 0; j < k; ++j) put_block(out.jf, j, g.cur[static_cast<std::size_t>(j)]);
-              return true;
-            }
-          } else {
-            Eigen::Map<vec_p>(out.v.data(), np) = v + d;
-            for (int j = 0; j < k; ++j) {
-              const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
-              const double d0 = d[2 * j], d1 = d[2 * j + 1];
-              i[3 * j] = c.igs_a + c.ggs_s * d0;
-              i[3 * j + 1] = c.igd_a + c.ggd_s * (d0 - d1);
-              i[3 * j + 2] = c.id_a + (c.gm_s * d0 + c.gds_s * d1);
-              put_block(out.jf, j, c);
-            }
-            return true;
+        if (!(bound.maxCoeff() <= tol)) return accept_no;
+      }
+      if (opt_.confirm) {
+        bound = v + d;  // the accepted point (bound is free now)
+        for (int j = 0; j < k; ++j) {
+          // The exact device (no far-reverse skip), so the check covers the skip's bound too.
+          detail::device_consts exact = g.dev[static_cast<std::size_t>(j)];
+          exact.skip_arg = detail::junction_deep_reverse;
+          const detail::port_currents cc = detail::evaluate_ports(exact, bound[2 * j], bound[2 * j + 1]);
+          rem[3 * j] = cc.igs_a;
+          rem[3 * j + 1] = cc.igd_a;
+          rem[3 * j + 2] = cc.id_a;
+          g.cur[static_cast<std::size_t>(j)] = cc;
+        }
+        ++evals;
+        t = p - bound;
+        product_n<lu_size_of(K), true>(f.data(), np, ni, rem.data(), t.data());
+        if (!(t.cwiseAbs().array() <= tol + allowed.array()).all()) {
+          ++stats_.bound_misses;
+          return accept_no;
+        }
+        out.v = g.bound;
+        i = rem;
+        for (int j = 0; j < k; ++j) put_block(out.jf, j, g.cur[static_cast<std::size_t>(j)]);
+        return accept_yes;
+      }
+      Eigen::Map<vec_p>(out.v.data(), np) = v + d;
+      for (int j = 0; j < k; ++j) {
+        const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
+        const double d0 = d[2 * j], d1 = d[2 * j + 1];
+        i[3 * j] = c.igs_a + c.ggs_s * d0;
+        i[3 * j + 1] = c.igd_a + c.ggd_s * (d0 - d1);
+        i[3 * j + 2] = c.id_a + (c.gm_s * d0 + c.gds_s * d1);
+        put_block(out.jf, j, c);
+      }
+      return accept_yes;
+    };
+
+    bool limited = false;
+    bool full = true;
+    if constexpr (K >= torn_min_devices) {
+      // The torn step: block Gauss-Seidel sweeps on J d = r (torn_sweep_n), as many as the
+      // acceptance or the Newton's progress asks, each leaving the coupling -U delta in the
+      // linear residual, which enters the acceptance (try_accept). Where J's own blocks
+      // are not safely invertible, the sweeps stop contracting, or the bound cannot be had
+      // from the blocks, this step is computed from J's factors instead (below).
+      if (opt_.torn_solve && opt_.block_factors && torn_holdoff_ == 0 && torn_prepare_n<2 * K>(out.lu.data())) {
+        full = false;
+        out.torn = true;
+        out.blocked = false;
+        double delta[2 * K], coupling[2 * K];
+        d.setZero();
+        torn_sweep_n<2 * K>(out.lu.data(), r.data(), d.data(), delta);
+        int sweeps = 1;
+        double change = d.cwiseAbs().maxCoeff();
+        for (;;) {
+          const double coupling_most = torn_coupling_n<2 * K>(out.lu.data(), delta, coupling);
+          if (limit_step()) {
+            limited = true;
+            break;
           }
+          // The acceptance is tried once the coupling is a small part of tol_v (before,
+          // it fails on the coupling alone: another sweep is cheaper).
+          bool sweep_more = coupling_most > torn_forcing * rn;
+          if (small_step()) {
+            if (opt_.coupling_weight * coupling_most <= torn_coupling_share * tol) {
+              const int verdict = try_accept(coupling);
+              if (verdict == accept_yes) return true;
+              if (verdict == accept_full) {
+                full = true;
+                break;
+              }
+              sweep_more = sweep_more || verdict == accept_sweep;
+            } else {
+              sweep_more = true;
+            }
+          }
+          if (sweeps >= torn_max_sweeps || !sweep_more) break;
+          torn_sweep_n<2 * K>(out.lu.data(), r.data(), d.data(), delta);
+          ++sweeps;
+          double change_now = 0.0;
+          for (int q = 0; q < 2 * K; ++q) change_now = std::max(change_now, std::fabs(delta[q]));
+          if (!(change_now <= torn_slow_ratio * change)) {  // contracting slowly, or not at all (or not finite)
+            full = true;
+            break;
+          }
+          change = change_now;
+        }
+        if (full) {
+          ++stats_.torn_full;
+          torn_holdoff_ = torn_holdoff_samples;
+          form_j();
         }
       }
     }
+    if (full) {
+      out.torn = false;
+      // J's factors, straight into the point's (kept when this step is accepted): by 2 x 2
+      // blocks where that is safe (block_factor_n), else with partial pivoting, I - F Jf
+      // formed again; and the step d = (I - F Jf)^-1 r.
+      out.blocked = opt_.block_factors && block_factor_n<lu_size_of(K)>(out.lu.data(), np);
+      if (!out.blocked) [[unlikely]] {
+        ++stats_.pivoted;
+        if (opt_.block_factors) one_minus_f_jf(m_.f, g.cur, out.lu);
+        if (!(lu_factor_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data()) > 1e-200)) return false;
+      }
+      d = r;
+      factors_solve_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), out.blocked, d.data());
+      if (!d.allFinite()) return false;
+      limited = limit_step();
+      if (!limited && small_step() && try_accept(nullptr) == accept_yes) return true;
+    }
+    if (!d.allFinite()) return false;
     base = v;
     step = d;
     rn_base = rn;
@@ -752,7 +1043,7 @@ __attribute__((noinline)) void general_solver::substep_general(const Eigen::Vect
       g.dp = g.pj - g.pc;
       g.mdl = g.dp;
       factors_solve_n<lu_size_of(K)>(g.cur_pt.lu.data(), static_cast<int>(g.dp.size()), g.cur_pt.piv.data(),
-                                     g.cur_pt.blocked, g.mdl.data());
+                                     g.cur_pt.blocked, g.mdl.data(), g.cur_pt.torn ? 2 : 0);
       g.guess = g.cur_pt.v + g.mdl;
       if (!s.solve_general<K>(g.pj, g.guess, g.next_pt, evals)) return false;
       g.cur_pt = g.next_pt;
@@ -795,12 +1086,13 @@ double general_solver::process_k(double generator_v) noexcept {
       if (warm_[static_cast<std::size_t>(h)] == 0.0) continue;
       mdl = dp;
       const port_set& ph = g.back(h);
-      factors_solve_n<lu_size_of(K)>(ph.lu.data(), np, ph.piv.data(), ph.blocked, mdl.data());
+      factors_solve_n<lu_size_of(K)>(ph.lu.data(), np, ph.piv.data(), ph.blocked, mdl.data(), ph.torn ? torn_predict_ : 0);
       guess += warm_[static_cast<std::size_t>(h)] * mdl;
     }
   }
 
   int evals = 0;
+  if (torn_holdoff_ > 0) --torn_holdoff_;
   port_set& trial = g.trial();
   if (!solve_general<K>(g.p, g.guess, trial, evals)) substep_general<K>(g.p, trial, evals);
 

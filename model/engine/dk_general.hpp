@@ -2,7 +2,8 @@
 // The DK engine's solver for a network of any number k of JFETs: 2k port voltages, 3k
 // currents, the device Jacobian block diagonal, and I - F Jf (2k x 2k) factored each Newton
 // iteration, by 2 x 2 blocks where that is safe, else by LU with partial pivoting
-// (dk_general.cpp). The same acceptance bound,
+// (dk_general.cpp); from three JFETs each Newton step is tried torn first (stage by stage,
+// the coupling between the stages inside the acceptance bound). The same acceptance bound,
 // junction limiting, sub-stepping and DC start as the one-JFET solver (model/engine/
 // dk_acceptance.hpp, dk_steps.hpp). It meets the dk_solver interface (dk_solver.hpp) and
 // nothing else of the engine depends on its inside, so it can be replaced by any solver
@@ -41,6 +42,7 @@ class general_solver : public dk_solver_base {
     Eigen::MatrixXd lu;  ///< 2k x 2k: the LU factors of I - F Jf (dv/dp is its inverse)
     std::vector<int> piv;  ///< the factors' row interchanges (when not blocked)
     bool blocked{false};   ///< lu holds block factors in 2 x 2 blocks, no interchanges (dk_general.cpp)
+    bool torn{false};      ///< lu holds I - F Jf with its diagonal blocks inverted (a torn step, dk_general.cpp)
     void resize(int k);
   };
   struct storage {
@@ -69,6 +71,8 @@ class general_solver : public dk_solver_base {
     Eigen::VectorXd mdl;                        // the warm start's products
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
     Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M
+    Eigen::MatrixXd track_lu;                   // track() after a torn point: I - F Jf's factors
+    std::vector<int> track_piv;
   };
 
   void point_general(const Eigen::VectorXd& v, port_set& out) noexcept;
@@ -87,6 +91,8 @@ class general_solver : public dk_solver_base {
   // Warm start: weights of dv/dp at the last three samples (detail::warm_start_weights).
   std::array<double, 3> warm_{};
   bool wide_{false};  // the state update's AVX2 + FMA kernel (dk_general.cpp)
+  int torn_holdoff_{0};
+  int torn_predict_{1};  // sweeps of the warm start's prediction from a torn point (dk_general.cpp)  // samples left to solve from the factors after a torn step fell back (dk_general.cpp)
   storage g_;
 };
 

@@ -28,6 +28,15 @@ struct dk_options {
   /// (model/engine/dk_general.cpp, block_factor_n), else with partial pivoting. false: with
   /// partial pivoting always. Both are held to the same acceptance bound.
   bool block_factors{true};
+  /// Three to six JFETs: solve each Newton step stage by stage (block Gauss-Seidel sweeps
+  /// over each JFET's own 2 x 2 block, the coupling between the stages left in the linear
+  /// residual and added to the acceptance bound; model/engine/dk_general.cpp), where that
+  /// contracts, else from the factors as above. false (or block_factors false): from the
+  /// factors always.
+  bool torn_solve{true};
+  /// The weight of that coupling in the acceptance bound: 1. Anything else makes the bound
+  /// unsound; it exists so that a test can show the coupling is needed (0..1).
+  double coupling_weight{1.0};
 };
 
 struct dk_stats {
@@ -38,6 +47,7 @@ struct dk_stats {
   long long failed{0};           ///< samples that did not converge even sub-stepped
   long long bound_misses{0};     ///< confirm mode: accepted points whose residual was too big
   long long pivoted{0};          ///< more than one JFET: Newton steps factored with pivoting, not by blocks
+  long long torn_full{0};        ///< torn Newton steps that were computed from the factors after all
   double mean_evaluations() const noexcept { return samples ? double(evaluations) / double(samples) : 0.0; }
 
   /// The statistics of two runs together: the counts summed, the most in one sample the
@@ -50,6 +60,7 @@ struct dk_stats {
     failed += o.failed;
     bound_misses += o.bound_misses;
     pivoted += o.pivoted;
+    torn_full += o.torn_full;
     return *this;
   }
 };
