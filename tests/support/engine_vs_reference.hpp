@@ -65,4 +65,15 @@ inline side_by_side engine_against_reference(const model::network& net, double a
   return c;
 }
 
+/// The invariant every such test holds: engine and reference agree to 1e-9 V on every
+/// sample, at the output and at every JFET's ports, and neither fails a sample.
+inline void check_within_1e9(const side_by_side& c) {
+  CAPTURE(c.worst_output_v);
+  CAPTURE(c.worst_ports_v);
+  CHECK(c.worst_output_v <= 1e-9);
+  CHECK(c.worst_ports_v <= 1e-9);
+  CHECK(c.engine_failed == 0);
+  CHECK(c.reference_failed == 0);
+}
+
 }  // namespace pinchoff::test

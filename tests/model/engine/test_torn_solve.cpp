@@ -101,13 +101,21 @@ model::network rail_chain(int k, bool dc) {
 // The engine against the nodal reference on 800 samples: the invariant, 1e-9 V.
 test::side_by_side check_against_reference(const model::network& net, double amp) {
   const test::side_by_side c = test::engine_against_reference(net, amp, 1000.0, 800, fs_hz);
-  CAPTURE(c.worst_output_v);
-  CAPTURE(c.worst_ports_v);
-  CHECK(c.worst_output_v <= 1e-9);
-  CHECK(c.worst_ports_v <= 1e-9);
-  CHECK(c.engine_failed == 0);
-  CHECK(c.reference_failed == 0);
+  test::check_within_1e9(c);
   return c;
+}
+
+// What every torn run must show: the factored step's samples to 1e-9 V, no failed sample,
+// and no accepted point whose actual residual exceeds the tolerance (confirm mode).
+void check_torn_matches(const torn_against_full& r) {
+  CAPTURE(r.worst_out);
+  CAPTURE(r.worst_ports);
+  CAPTURE(r.torn.torn_full);
+  CHECK(r.worst_out <= 1e-9);
+  CHECK(r.worst_ports <= 1e-9);
+  CHECK(r.torn.failed == 0);
+  CHECK(r.confirmed.bound_misses == 0);
+  CHECK(r.confirmed.failed == 0);
 }
 
 }  // namespace
@@ -122,17 +130,9 @@ TEST_CASE("torn steps: chains of three to six stages give the samples of the fac
         CAPTURE(dc);
         CAPTURE(amp);
         const torn_against_full r = run_pair(net, amp, 1600);
-        CAPTURE(r.worst_out);
-        CAPTURE(r.worst_ports);
-        CAPTURE(r.torn.torn_full);
         CAPTURE(r.torn.evaluations);
-        CHECK(r.worst_out <= 1e-9);
-        CHECK(r.worst_ports <= 1e-9);
-        CHECK(r.torn.failed == 0);
+        check_torn_matches(r);  // the torn bound accepts only points within tol_v
         CHECK(r.full.torn_full == 0);
-        // The torn bound accepts only points whose actual residual is within tol_v.
-        CHECK(r.confirmed.bound_misses == 0);
-        CHECK(r.confirmed.failed == 0);
         // On AC-coupled chains the stages act backwards only through the rail and Cgd (the
         // coupling measured at 1e-4-1e-3 of a step): nine torn steps in ten at least are
         // accepted without the factors, for the Newton evaluations of the factored solver
@@ -174,14 +174,7 @@ TEST_CASE("torn steps: strong backward coupling (a shared rail, heavy Cgd, DC-co
       CAPTURE(s.name);
       CAPTURE(amp);
       const torn_against_full r = run_pair(s.net, amp, 1600);
-      CAPTURE(r.worst_out);
-      CAPTURE(r.worst_ports);
-      CAPTURE(r.torn.torn_full);
-      CHECK(r.worst_out <= 1e-9);
-      CHECK(r.worst_ports <= 1e-9);
-      CHECK(r.torn.failed == 0);
-      CHECK(r.confirmed.bound_misses == 0);
-      CHECK(r.confirmed.failed == 0);
+      check_torn_matches(r);
       fell_back += r.torn.torn_full;
       // And against the reference solver itself.
       const test::side_by_side c = check_against_reference(s.net, amp);
