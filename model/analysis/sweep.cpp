@@ -104,7 +104,7 @@ void validate(const sweep_settings& s) {
     if (!(d > 0) || !std::isfinite(d))
       throw setting_error("drives_vpk", "drive levels must be above 0 V, got " + format_si(d, "Vpk"));
   if (s.cycles < 0 || s.cycles > 64) throw internal_error("sweep cycles out of range");
-  const int cycles = s.cycles > 0 ? s.cycles : automatic_cycles(s.frequency_hz, fs);
+  const int cycles = record_cycles(s);
   // The record a point holds (drive, output, spectrum and the transform's work, at most about
   // 120 bytes a sample, on every thread at once) must stay within memory. The bound is on the
   // record as asked; the snap moves it by a few samples.
@@ -132,11 +132,15 @@ int automatic_cycles(double frequency_hz, double sample_rate_hz) noexcept {
   return 2.0 * sample_rate_hz / frequency_hz >= reference_bin_fold_order ? 2 : 3;
 }
 
+int record_cycles(const sweep_settings& s) noexcept {
+  return s.cycles > 0 ? s.cycles : automatic_cycles(s.frequency_hz, s.base_rate_hz * s.oversample);
+}
+
 sweep_plan plan_sweep(const sweep_settings& asked) {
   sweep_settings s = asked;
   if (s.automatic_oversample) s.oversample = automatic_oversampling(s.frequency_hz, s.base_rate_hz, s.bandwidth_hz);
   validate(s);
-  if (s.cycles == 0) s.cycles = automatic_cycles(s.frequency_hz, s.base_rate_hz * s.oversample);
+  s.cycles = record_cycles(s);
   sweep_plan p;
   p.settings_ = s;
   p.sample_rate_hz_ = s.base_rate_hz * s.oversample;

@@ -75,6 +75,9 @@ inline constexpr double reference_fold_order = (8 * 48000.0 - 20000.0) / 1000.0;
 /// steady state's period, is then a third shorter; otherwise three.
 int automatic_cycles(double frequency_hz, double sample_rate_hz) noexcept;
 inline constexpr double reference_bin_fold_order = 3 * 8 * 48000.0 / 1000.0;  // 1152
+/// The cycles a record of these settings holds: sweep_settings::cycles, or automatic_cycles()
+/// at the simulation rate when that is 0.
+int record_cycles(const sweep_settings& s) noexcept;
 
 /// Validates the settings against the simulation rate; throws setting_error naming the
 /// field ("oversampling", "base_rate_hz", "frequency_hz", "harmonics", "bandwidth_hz",

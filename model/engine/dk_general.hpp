@@ -91,8 +91,8 @@ class general_solver : public dk_solver_base {
   // Warm start: weights of dv/dp at the last three samples (detail::warm_start_weights).
   std::array<double, 3> warm_{};
   bool wide_{false};  // the state update's AVX2 + FMA kernel (dk_general.cpp)
-  int torn_holdoff_{0};
-  int torn_predict_{1};  // sweeps of the warm start's prediction from a torn point (dk_general.cpp)  // samples left to solve from the factors after a torn step fell back (dk_general.cpp)
+  int torn_holdoff_{0};   // samples left to solve from the factors after a torn step fell back (dk_general.cpp)
+  int torn_predict_{1};   // sweeps of the warm start's prediction from a torn point (dk_general.cpp)
   storage g_;
 };
 
