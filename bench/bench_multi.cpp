@@ -3,8 +3,11 @@
 // interstage treble cuts and volume dividers) at 0.01 to 10 V peak, against the targets:
 // real-time factor at 8x 48 kHz on one core (two stages 30x, aim 40x; three 20x, aim 30x;
 // four 15x), cost per JFET against the one-JFET path on one stage of the same chain (at
-// most 1.5x), and the speed-up over the nodal reference solver. Then a two-stage chain at
-// 16x, and two independent copies of one stage against the stage alone. Ratios only.
+// most 1.5x), and the speed-up over the nodal reference solver; beside them the real-time
+// factor of k stages at exactly the one-JFET path's time each (a cost per JFET of 1.0x),
+// which says how far the real-time targets need the one-JFET sample itself. Then a
+// two-stage chain at 16x, and two independent copies of one stage against the stage alone.
+// Ratios only.
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
@@ -106,6 +109,7 @@ void bench_multi_device() {
               "failed", "per JFET", "speed-up");
   struct size_summary {
     double worst_rt{1e300}, worst_per_jfet{0}, worst_speedup{1e300}, best_speedup{0};
+    double worst_separable{1e300};  // k stages at the one-JFET path's own time each (per JFET 1.0x)
     long long failed{0};
   };
   size_summary sum[7];
@@ -127,6 +131,7 @@ void bench_multi_device() {
       s.worst_per_jfet = std::max(s.worst_per_jfet, per_jfet);
       s.worst_speedup = std::min(s.worst_speedup, speedup);
       s.best_speedup = std::max(s.best_speedup, speedup);
+      s.worst_separable = std::min(s.worst_separable, 1.0 / rate_hz / (k * ts.b));
       s.failed += st.failed;
       char drive_text[32];
       std::snprintf(drive_text, sizeof drive_text, "%gVpk", drives[d]);
@@ -136,8 +141,8 @@ void bench_multi_device() {
   }
 
   std::printf("\nchains against the targets (worst over 0.01-10 Vpk):\n");
-  std::printf("%-7s %14s %17s %20s %18s\n", "stages", "realtime", "target (aim)", "per JFET (max 1.5x)",
-              "speed-up over ref");
+  std::printf("%-7s %14s %17s %20s %18s %16s\n", "stages", "realtime", "target (aim)", "per JFET (max 1.5x)",
+              "speed-up over ref", "at 1.0x per JFET");
   for (int k = 2; k <= 6; ++k) {
     const size_summary& s = sum[k];
     char target[40] = "-";
@@ -150,10 +155,13 @@ void bench_multi_device() {
     }
     char per[40];
     std::snprintf(per, sizeof per, "%.2fx %s", s.worst_per_jfet, verdict(s.worst_per_jfet <= 1.5));
-    std::printf("%-7d %13.1fx %17s %20s %8.1f-%.1fx\n", k, s.worst_rt, target, per, s.worst_speedup,
-                s.best_speedup);
+    std::printf("%-7d %13.1fx %17s %20s %8.1f-%.1fx %15.1fx\n", k, s.worst_rt, target, per, s.worst_speedup,
+                s.best_speedup, s.worst_separable);
   }
   std::printf("sample loop on this processor: %s\n", loop);
+  std::printf("at 1.0x per JFET: the real-time factor of k stages each taking exactly the one-JFET path's time on\n");
+  std::printf("the first stage (a cost per JFET of 1.0x, no coupling): below a target, that target also needs a\n");
+  std::printf("faster one-JFET sample.\n");
 
   // The oversampling factor's cost: the two-stage chain at 8x and 16x.
   std::printf("\ntwo-stage chain at 8x and 16x 48 kHz (realtime at each rate)\n");
