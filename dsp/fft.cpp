@@ -26,6 +26,41 @@ std::size_t next_5_smooth(std::size_t n) {
   return n;
 }
 
+// forward()'s work buffers, one set a thread. A set up to kept_work_bytes stays between
+// calls, so a loop of transforms of one length (a sweep's points) neither allocates nor
+// touches fresh pages each call: freed and allocated again each call, a 20 Hz record's
+// 0.5 MB of buffers made the allocator give the heap's top back to the system and fault it
+// in again, as much system time as the sweep's own work. A larger set (a long recording's
+// transform) is freed after its call.
+constexpr std::size_t kept_work_bytes = std::size_t{4} << 20;
+
+class work_lease {
+ public:
+  // Three buffers of at least n0, n1 and n2 values.
+  work_lease(std::size_t n0, std::size_t n1, std::size_t n2) {
+    std::vector<cpx>* b[3] = {&set_.a, &set_.b, &set_.c};
+    const std::size_t n[3] = {n0, n1, n2};
+    for (int i = 0; i < 3; ++i)
+      if (b[i]->size() < n[i]) b[i]->resize(n[i]);
+  }
+  ~work_lease() {
+    const std::size_t bytes = sizeof(cpx) * (set_.a.capacity() + set_.b.capacity() + set_.c.capacity());
+    if (bytes > kept_work_bytes) set_ = {};
+  }
+  work_lease(const work_lease&) = delete;
+  work_lease& operator=(const work_lease&) = delete;
+  cpx* a() { return set_.a.data(); }
+  cpx* b() { return set_.b.data(); }
+  cpx* c() { return set_.c.data(); }
+
+ private:
+  struct buffers {
+    std::vector<cpx> a, b, c;
+  };
+  static thread_local buffers set_;
+};
+thread_local work_lease::buffers work_lease::set_;
+
 }  // namespace
 
 std::size_t transform_length(std::size_t n) {
@@ -99,15 +134,15 @@ struct real_fft::plan {
     }
   }
 
-  // Z[k] = sum_t a[t] exp(-2 pi i k t / c) for all k < c, by the chirp; `work` holds L values.
-  void chirp_dft(const cpx* a, std::vector<cpx>& work, cpx* z) const {
+  // Z[k] = sum_t a[t] exp(-2 pi i k t / c) for all k < c, by the chirp; `work` and `spec`
+  // hold L values each.
+  void chirp_dft(const cpx* a, cpx* work, cpx* spec, cpx* z) const {
     for (std::size_t t = 0; t < c; ++t) work[t] = a[t] * w[t];
-    std::fill(work.begin() + static_cast<std::ptrdiff_t>(c), work.end(), cpx{0.0, 0.0});
-    std::vector<cpx> spec(l);
-    fft.transform(work.data(), spec.data());
+    std::fill(work + c, work + l, cpx{0.0, 0.0});
+    fft.transform(work, spec);
     // Inverse by conjugation: IDFT(Y) = conj(DFT(conj(Y))); the 1/L is in the kernel.
     for (std::size_t k = 0; k < l; ++k) spec[k] = std::conj(spec[k] * kernel[k]);
-    fft.transform(spec.data(), work.data());
+    fft.transform(spec, work);
     for (std::size_t k = 0; k < c; ++k) z[k] = std::conj(work[k]) * w[k];
   }
 };
@@ -159,18 +194,19 @@ void real_fft::forward(std::span<const double> x, std::span<std::complex<double>
       out[n_ / 2] = {nyquist, 0.0};
       return;
     }
-    std::vector<cpx> in(x.begin(), x.end());
-    std::vector<cpx> full(n_);
-    p.fft.transform(in.data(), full.data());
-    for (std::size_t k = 0; k < out.size(); ++k) out[k] = full[k];
+    work_lease buf(n_, n_, 0);
+    std::copy(x.begin(), x.end(), buf.a());
+    p.fft.transform(buf.a(), buf.b());
+    std::copy_n(buf.b(), out.size(), out.begin());
     return;
   }
-  std::vector<cpx> work(p.l);
   if (n_ % 2 != 0) {
-    std::vector<cpx> in(x.begin(), x.end());
-    std::vector<cpx> full(p.c);
-    p.chirp_dft(in.data(), work, full.data());
-    for (std::size_t k = 0; k < out.size(); ++k) out[k] = full[k];
+    // c: the samples as complex values, read by the chirp before it writes the spectrum there.
+    work_lease buf(p.l, p.l, p.c);
+    std::copy(x.begin(), x.end(), buf.c());
+    cpx* full = buf.c();
+    p.chirp_dft(full, buf.a(), buf.b(), full);
+    std::copy_n(full, out.size(), out.begin());
     out[0] = {full[0].real(), 0.0};  // the DC bin of a real sequence is real; drop the rounding
     return;
   }
@@ -178,8 +214,9 @@ void real_fft::forward(std::span<const double> x, std::span<std::complex<double>
   // E[k] = (Z[k] + conj Z[c-k]) / 2 and O[k] = (Z[k] - conj Z[c-k]) / 2i, and
   // X[k] = E[k] + exp(-2 pi i k / n) O[k], X[c - k] = conj(E[k] - exp(-2 pi i k / n) O[k]).
   const std::size_t c = p.c;
-  std::vector<cpx> z(c);
-  p.chirp_dft(reinterpret_cast<const cpx*>(x.data()), work, z.data());
+  work_lease buf(p.l, p.l, c);
+  cpx* z = buf.c();
+  p.chirp_dft(reinterpret_cast<const cpx*>(x.data()), buf.a(), buf.b(), z);
   out[0] = {z[0].real() + z[0].imag(), 0.0};
   out[c] = {z[0].real() - z[0].imag(), 0.0};
   for (std::size_t k = 1; 2 * k <= c; ++k) {

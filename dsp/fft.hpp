@@ -23,9 +23,9 @@
 // Accuracy and Stability of Numerical Algorithms, 2nd ed., 2002, Thm 24.2; from memory);
 // the chirp path adds the error of three length-L transforms.
 //
-// Thread safety: forward() is const and keeps no state between calls (the butterflies used
-// keep none, and the chirp's work buffers are allocated per call), so one plan may be used
-// by several threads at once.
+// Thread safety: forward() is const and keeps no state in the plan (the butterflies used
+// keep none; the work buffers are the calling thread's own, kept between its calls up to
+// 4 MB), so one plan may be used by several threads at once.
 #include <complex>
 #include <cstddef>
 #include <memory>
@@ -75,9 +75,10 @@ class real_fft {
 /// 5-smooth L >= 2c - 1.
 std::size_t transform_length(std::size_t n);
 
-/// Bytes one forward() call of a plan of n allocates for its work: none on the direct path
-/// of an even n, copies in and out (2n complex) for an odd n, and through the chirp two
-/// length-L buffers and the length-c ones.
+/// Bytes of work one forward() call of a plan of n uses: none on the direct path of an even
+/// n, copies in and out (2n complex) for an odd n, and through the chirp two length-L
+/// buffers and the length-c ones. They are the calling thread's, kept for its next call
+/// when they total at most 4 MB.
 std::size_t forward_work_bytes(std::size_t n);
 
 /// The largest prime factor of n (1 for n <= 1).

@@ -65,7 +65,7 @@ int record_samples(double frequency_hz, double sample_rate_hz, int cycles, int h
 }
 
 std::size_t sweep_point_bytes(int samples_per_record, int stages_probed) {
-  // drive, output and the spectrum (m/2 + 1 complex), and what one transform allocates;
+  // drive, output and the spectrum (m/2 + 1 complex), and what one transform uses;
   // probed stages add their JFETs' ports (2 a stage), their traced outputs and one record
   const std::size_t m = static_cast<std::size_t>(std::max(samples_per_record, 1));
   const std::size_t k = static_cast<std::size_t>(std::max(stages_probed, 0));

@@ -9,6 +9,7 @@
 #include <limits>
 #include <numbers>
 #include <random>
+#include <thread>
 #include <vector>
 
 #include "base/error.hpp"
@@ -206,6 +207,32 @@ TEST_CASE("real_fft puts a cosine at Nyquist on the last bin with |X| = A n") {
   CHECK(X[n / 2].real() == doctest::Approx(0.75 * n).epsilon(1e-13));
   CHECK(X[n / 2].imag() == 0.0);
   CHECK(std::abs(X[0]) <= 1e-12 * 0.75 * n);  // alternating terms cancel exactly in pairs
+}
+
+TEST_CASE("real_fft reuses a thread's work buffers without carrying anything from one call to the next") {
+  // The work buffers are the calling thread's and kept between calls (fft.hpp): a call on a
+  // thread whose buffers hold an earlier transform, of this length or another, must give
+  // bitwise the bins a new thread gives, whose buffers start empty. Lengths: a prime odd
+  // one (4801, the 20 Hz record) and an even one through the chirp (2 * 1153), a direct odd
+  // one (2025 = 3^4 5^2), and one whose buffers exceed what a thread keeps (60013, prime).
+  const std::size_t lengths[] = {4801, 2 * 1153, 2025, 60013, 4801};
+  std::vector<std::vector<std::complex<double>>> fresh;
+  for (std::size_t n : lengths) {
+    std::vector<std::complex<double>> bins;
+    std::thread([&] { bins = real_fft(n).forward(noise(n, n)); }).join();
+    fresh.push_back(std::move(bins));
+  }
+  std::vector<std::vector<std::complex<double>>> reused;
+  std::thread([&] {
+    for (std::size_t n : lengths) {
+      real_fft(n).forward(noise(n, n + 1));  // leaves other samples' values in the buffers
+      reused.push_back(real_fft(n).forward(noise(n, n)));
+    }
+  }).join();
+  for (std::size_t i = 0; i < fresh.size(); ++i) {
+    CAPTURE(lengths[i]);
+    CHECK(reused[i] == fresh[i]);
+  }
 }
 
 TEST_CASE("real_fft copies plan independently and refuses wrong sizes") {
