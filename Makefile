@@ -60,9 +60,11 @@ demo: build
 
 # `make test`: every gate. The suite on the Release build, the suite again under
 # AddressSanitizer and UndefinedBehaviorSanitizer (halting on the first report), and a short
-# run of each fuzz target. `make test-release` is the quick one while working. The gates run
-# side by side, sharing JOBS compile jobs, so both cores stay busy until the last one ends;
-# each gate's suite starts as soon as its own build is done.
+# run of each fuzz target, built in the sanitizer tree (its libraries, with coverage on the
+# files the targets parse with; tests/fuzz/CMakeLists.txt). `make test-release` is the
+# quick one while working. The gates run side by side, sharing JOBS compile jobs, so both
+# cores stay busy until the last one ends; each gate's suite starts as soon as its own
+# build is done.
 test:
 	+@$(MAKE) -j$(JOBS) test-release test-asan test-fuzz
 
@@ -83,11 +85,11 @@ test-release: build-tests
 # UndefinedBehaviorSanitizer checks pointer arithmetic too, which gcc's does not. -O1 with
 # line tables only: all a sanitizer report needs, at half the build time of -O2 -g. Only what
 # the suite runs is built (the test runner and the program; not the benchmarks or the
-# demo-clip writer).
+# demo-clip writer), and the fuzz targets for the smoke run.
 build-asan: deps
 	@cmake -S . -B $(ASAN_DIR) -DCMAKE_BUILD_TYPE=RelWithDebInfo "-DCMAKE_CXX_FLAGS_RELWITHDEBINFO=-O1 -gline-tables-only -DNDEBUG" \
 	  -DCMAKE_CXX_COMPILER=clang++ -DPINCHOFF_SANITIZE=ON $(CMAKE_FLAGS) > $(ASAN_DIR).configure.log 2>&1 || { cat $(ASAN_DIR).configure.log; exit 1; }
-	+@cmake --build $(ASAN_DIR) $(BUILD_JOBS) --target pinchoff_tests pinchoff
+	+@cmake --build $(ASAN_DIR) $(BUILD_JOBS) --target pinchoff_tests pinchoff fuzz_targets
 
 test-asan: build-asan
 	@echo "== tests: AddressSanitizer + UndefinedBehaviorSanitizer build"
@@ -98,9 +100,9 @@ test-asan: build-asan
 soak: build
 	@$(BUILD_DIR)/pinchoff_tests -tc="soak*" --no-skip --success=false
 
-# libFuzzer targets (tests/fuzz/), built with clang in their own folder, with coverage
-# instrumentation the sanitizer tree does not carry. -O2 with line tables only: a report
-# names file and line, and the full debug information cost build time and nothing else.
+# libFuzzer targets (tests/fuzz/) for long runs, built with clang in their own folder with
+# every library instrumented for coverage. -O2 with line tables only: a report names file
+# and line, and the full debug information cost build time and nothing else.
 build-fuzz: deps
 	@cmake -S . -B $(FUZZ_DIR) -DCMAKE_BUILD_TYPE=RelWithDebInfo "-DCMAKE_CXX_FLAGS_RELWITHDEBINFO=-O2 -gline-tables-only -DNDEBUG" \
 	  -DCMAKE_CXX_COMPILER=clang++ -DPINCHOFF_FUZZ=ON \
@@ -112,9 +114,10 @@ fuzz: build-fuzz
 	@echo "== fuzzing, $(FUZZ_SECONDS) s per target"
 	@scripts/run-fuzz $(FUZZ_DIR) $(FUZZ_SECONDS) $(FUZZ_TARGETS)
 
-test-fuzz: build-fuzz
+# The smoke run of `make test`: the targets built in the sanitizer tree.
+test-fuzz: build-asan
 	@echo "== fuzz smoke run, $(FUZZ_SMOKE_SECONDS) s per target"
-	@scripts/run-fuzz $(FUZZ_DIR) $(FUZZ_SMOKE_SECONDS) $(FUZZ_TARGETS)
+	@scripts/run-fuzz $(ASAN_DIR) $(FUZZ_SMOKE_SECONDS) $(FUZZ_TARGETS)
 
 bench: build
 	@if [ -x $(BUILD_DIR)/pinchoff_bench ]; then $(BUILD_DIR)/pinchoff_bench; else echo "no benchmarks built"; fi
