@@ -12,6 +12,7 @@
 #include <sys/wait.h>
 
 #include <cctype>
+#include <cmath>
 #include <chrono>
 #include <thread>
 #include <cstdio>
@@ -227,6 +228,33 @@ TEST_CASE("workbench: requests without the run's token are refused") {
   CHECK(ok->status == 200);
   // Two runs draw different tokens (128 bits from getrandom).
   CHECK(pinchoff::cli::random_token() != pinchoff::cli::random_token());
+}
+
+TEST_CASE("workbench: the series the page steps values through are the IEC 60063 series") {
+  // IEC 60063:2015 (from memory): E12 holds 12 values a decade from 1.0 to 8.2, E24 24 from
+  // 1.0 to 9.1 (with 2.7, 3.3, 4.7), E96 96 from 1.00 to 9.76.
+  running r(settings_for({preset("bass-booster-9v.toml")}));
+  const auto res = r.client.Get(r.with_token("/api/series").c_str());
+  REQUIRE(res);
+  CHECK(res->status == 200);
+  const nlohmann::json j = nlohmann::json::parse(res->body);
+  const struct {
+    const char* name;
+    std::size_t count;
+    double first, last, holds;
+  } rows[] = {{"E12", 12, 1.0, 8.2, 4.7}, {"E24", 24, 1.0, 9.1, 2.7}, {"E96", 96, 1.0, 9.76, 4.75}};
+  for (const auto& row : rows) {
+    const std::string name = row.name;
+    CAPTURE(name);
+    REQUIRE(j.contains(name));
+    const std::vector<double> v = j[name].get<std::vector<double>>();
+    REQUIRE(v.size() == row.count);
+    CHECK(v.front() == doctest::Approx(row.first));
+    CHECK(v.back() == doctest::Approx(row.last));
+    bool found = false;
+    for (double x : v) found = found || std::abs(x - row.holds) < 1e-9;
+    CHECK(found);
+  }
 }
 
 TEST_CASE("workbench: a Host header other than the loopback address served is refused (DNS rebinding)") {
