@@ -558,10 +558,33 @@ void single_solver::process(const double* in, double* out, std::size_t n) noexce
 #else
 #define PINCHOFF_DK_WIDE_CASE(N)
 #endif
+#define PINCHOFF_DK_WIDE_ONLY(N) \
+  case N:                        \
+    PINCHOFF_DK_WIDE_CASE(N)     \
+    break;
 #define PINCHOFF_DK_CASE(N)   \
   case N:                     \
     PINCHOFF_DK_WIDE_CASE(N)  \
     return block_portable<N>(in, out, n);
+#if defined(PINCHOFF_RUNTIME_SIZES)
+  // Sanitizer builds (set by the build): the wide loop at every state count (its kernels
+  // differ by count), the portable one at run-time size only (the same source as its
+  // fixed-size loops, which only fix the bounds).
+  if (wide_) {
+    switch (m_.states) {
+      PINCHOFF_DK_WIDE_ONLY(1)
+      PINCHOFF_DK_WIDE_ONLY(2)
+      PINCHOFF_DK_WIDE_ONLY(3)
+      PINCHOFF_DK_WIDE_ONLY(4)
+      PINCHOFF_DK_WIDE_ONLY(5)
+      PINCHOFF_DK_WIDE_ONLY(6)
+      PINCHOFF_DK_WIDE_ONLY(7)
+      PINCHOFF_DK_WIDE_ONLY(8)
+      default: break;
+    }
+  }
+  return block_portable<0>(in, out, n);
+#else
   switch (m_.states) {
     PINCHOFF_DK_CASE(1)
     PINCHOFF_DK_CASE(2)
@@ -573,7 +596,9 @@ void single_solver::process(const double* in, double* out, std::size_t n) noexce
     PINCHOFF_DK_CASE(8)
     default: return block_portable<0>(in, out, n);
   }
+#endif
 #undef PINCHOFF_DK_CASE
+#undef PINCHOFF_DK_WIDE_ONLY
 #undef PINCHOFF_DK_WIDE_CASE
 }
 
