@@ -51,13 +51,21 @@ class bin_grid {
     }
   }
   std::vector<double> tone(std::size_t len, std::size_t k, double amplitude = 1.0) const {
-    std::vector<double> x(len);
+    std::vector<double> x;
+    tone_into(x, len, k, amplitude);
+    return x;
+  }
+  /// The same tone written into x (resized to len), so a loop over many tones of one length
+  /// reuses one buffer instead of allocating and faulting in a fresh one each time.
+  void tone_into(std::vector<double>& x, std::size_t len, std::size_t k, double amplitude = 1.0) const {
+    x.resize(len);
+    k %= n_;
     std::size_t idx = 0;
     for (std::size_t t = 0; t < len; ++t) {
       x[t] = amplitude * sine_[idx];
-      idx = (idx + k) % n_;
+      idx += k;  // (idx + k) mod n, both below n
+      if (idx >= n_) idx -= n_;
     }
-    return x;
   }
   /// y must hold exactly one period (n samples).
   std::complex<long double> amplitude(std::span<const double> y, std::size_t k) const {
@@ -86,6 +94,12 @@ std::vector<double> down(oversampler& os, const std::vector<double>& x) {
   std::vector<double> y(x.size() / static_cast<std::size_t>(os.factor()));
   os.downsample(x, y);
   return y;
+}
+
+// down() into a buffer kept by the caller.
+void down_into(oversampler& os, const std::vector<double>& x, std::vector<double>& y) {
+  y.resize(x.size() / static_cast<std::size_t>(os.factor()));
+  os.downsample(x, y);
 }
 
 double db(double ratio) { return 20.0 * std::log10(ratio); }
@@ -179,6 +193,7 @@ TEST_CASE("downsampling rejects by at least 100 dB what would alias into 0 - 20 
     const std::size_t n = record_length(fb);
     const real_fft fft(n);
     const std::size_t band_bins = static_cast<std::size_t>(audio_band_hz / 10.0);
+    std::vector<double> x, y;  // each tone and its decimated copy, one buffer for all
     for (const int factor : factors) {
       const std::size_t f = static_cast<std::size_t>(factor);
       const double nyquist_hz = 0.5 * fb * factor;
@@ -192,8 +207,8 @@ TEST_CASE("downsampling rejects by at least 100 dB what would alias into 0 - 20 
           CAPTURE(factor);
           CAPTURE(hz);
           os.reset();
-          const std::vector<double> x = high.tone((warmup_base + n) * f, static_cast<std::size_t>(std::lround(hz / 10.0)));
-          const std::vector<double> y = down(os, x);
+          high.tone_into(x, (warmup_base + n) * f, static_cast<std::size_t>(std::lround(hz / 10.0)));
+          down_into(os, x, y);
           const std::vector<std::complex<double>> bins = fft.forward(std::span(y).subspan(warmup_base));
           double power = 0.0;
           for (std::size_t b = 0; b <= band_bins; ++b) {
