@@ -83,9 +83,11 @@ test-release: build-tests
 # Built with clang (installed for the fuzz targets anyway): it compiles the sanitized tree in
 # about four fifths of gcc's processor time (a command-file batch 74 to 47 CPU-s), and its
 # UndefinedBehaviorSanitizer checks pointer arithmetic too, which gcc's does not. -O1 with
-# line tables only: all a sanitizer report needs, at half the build time of -O2 -g. Only what
-# the suite runs is built (the test runner and the program; not the benchmarks or the
-# demo-clip writer), and the fuzz targets for the smoke run.
+# line tables only: all a sanitizer report needs, at half the build time of -O2 -g; the
+# command files and the test files at -O0, the engines at -Og (cli/, tests/ and model/
+# CMakeLists.txt say why). Only what the suite runs is built (the test runner and the
+# program; not the benchmarks or the demo-clip writer), and the fuzz targets for the smoke
+# run.
 build-asan: deps
 	@cmake -S . -B $(ASAN_DIR) -DCMAKE_BUILD_TYPE=RelWithDebInfo "-DCMAKE_CXX_FLAGS_RELWITHDEBINFO=-O1 -gline-tables-only -DNDEBUG" \
 	  -DCMAKE_CXX_COMPILER=clang++ -DPINCHOFF_SANITIZE=ON $(CMAKE_FLAGS) > $(ASAN_DIR).configure.log 2>&1 || { cat $(ASAN_DIR).configure.log; exit 1; }
