@@ -92,7 +92,7 @@ TEST_CASE("fit --json follows the contract") {
   const result r = run({"fit", path.string(), "--json"});
   REQUIRE(r.status == 0);
   const nlohmann::json j = nlohmann::json::parse(r.out);
-  CHECK(j["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6));
+  CHECK(j["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6).scale(0));
   CHECK(j["vp_v"].get<double>() == doctest::Approx(-2.0).epsilon(1e-6));
   CHECK(j["std_errors"].contains("idss_a"));
   CHECK(j["rows"].size() == 4);

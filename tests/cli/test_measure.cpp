@@ -147,7 +147,7 @@ TEST_CASE("harmonics at -60 and -100 dBc off the bin grid are read within 0.05 d
     CHECK(std::abs(j["fundamental_hz"].get<double>() - f1) <= 1e-4);
     CHECK(std::abs(j["fundamental_dbfs"].get<double>() - 20 * std::log10(a1)) <= 0.01);
     // THD = sqrt(1e-6 + 1e-10) (definition, IEC 61000-2-2 usage)
-    CHECK(j["thd_percent"].get<double>() == doctest::Approx(100 * std::sqrt(1e-6 + 1e-10)).epsilon(0.006));
+    CHECK(j["thd_percent"].get<double>() == doctest::Approx(100 * std::sqrt(1e-6 + 1e-10)).epsilon(0.006).scale(0));
   }
 }
 
@@ -308,7 +308,7 @@ TEST_CASE("measure --noise: white noise of known variance, in dBFS and through t
   CHECK(j["mode"] == "noise");
   CHECK(std::abs(j["noise_dbfs"].get<double>() - 20.0 * std::log10(s * std::sqrt(2.0) * band)) <= 0.05);
   CHECK(std::abs(j["noise_dbu"].get<double>() - 20.0 * std::log10(s * band * 1.55 / 0.7746)) <= 0.05);
-  CHECK(j["noise_v"].get<double>() == doctest::Approx(s * band * 1.55).epsilon(0.01));
+  CHECK(j["noise_v"].get<double>() == doctest::Approx(s * band * 1.55).epsilon(0.01).scale(0));
   // Weighted readings of white noise: A below, 468 above the unweighted (their curves'
   // noise bandwidths; the values themselves are checked in the dsp tests).
   CHECK(j["noise_a_dbfs"].get<double>() < j["noise_dbfs"].get<double>());
@@ -331,8 +331,8 @@ TEST_CASE("measure --noise --against: the prediction is the noise command's own 
   const result r = run({"noise", preset, "--json"});
   REQUIRE(r.status == 0);
   const nlohmann::json n = nlohmann::json::parse(r.out);
-  CHECK(m["against"]["predicted"]["noise_a_v"].get<double>() == doctest::Approx(n["output_noise_a_v"].get<double>()).epsilon(1e-3));
-  CHECK(m["against"]["predicted"]["noise_v"].get<double>() == doctest::Approx(n["output_noise_v"].get<double>()).epsilon(1e-3));
+  CHECK(m["against"]["predicted"]["noise_a_v"].get<double>() == doctest::Approx(n["output_noise_a_v"].get<double>()).epsilon(1e-3).scale(0));
+  CHECK(m["against"]["predicted"]["noise_v"].get<double>() == doctest::Approx(n["output_noise_v"].get<double>()).epsilon(1e-3).scale(0));
   CHECK(m["against"]["difference"]["noise_a_db"].get<double>() ==
         doctest::Approx(m["noise_a_dbu"].get<double>() - m["against"]["predicted"]["noise_a_dbu"].get<double>()).epsilon(1e-9));
 }

@@ -64,8 +64,8 @@ TEST_CASE("fit of a parts file: every part, the issue's JSON keys, and a parts t
     const nlohmann::json mj = nlohmann::json::parse(m.out);
     REQUIRE(mj["sets"].size() == 1);
     CHECK(mj["sets"][0]["parts"] == nlohmann::json::array({"A", "C"}));
-    CHECK(mj["sets"][0]["idss_spread_a"].get<double>() == doctest::Approx(0.05e-3).epsilon(1e-4));
-    CHECK(mj["sets"][0]["vp_spread_v"].get<double>() == doctest::Approx(0.02).epsilon(1e-4));
+    CHECK(mj["sets"][0]["idss_spread_a"].get<double>() == doctest::Approx(0.05e-3).epsilon(1e-4).scale(0));
+    CHECK(mj["sets"][0]["vp_spread_v"].get<double>() == doctest::Approx(0.02).epsilon(1e-4).scale(0));
     CHECK_FALSE(mj["sets"][0].contains("vgs_spread_v"));
     CHECK(mj["left_over"] == nlohmann::json::array({"B"}));
   }
@@ -91,7 +91,7 @@ TEST_CASE("fit of one part keeps its keys, with the VDS its IDSS is at") {
   REQUIRE(r.status == 0);
   const nlohmann::json j = nlohmann::json::parse(r.out);
   CHECK_FALSE(j.contains("parts"));
-  CHECK(j["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6));
+  CHECK(j["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6).scale(0));
   CHECK(j["idss_vds_v"].get<double>() == 9.0);
   const result text = run({"fit", path});
   CHECK(text.out.find("idss_vds = 9") != std::string::npos);
@@ -111,7 +111,7 @@ TEST_CASE("a part of a bag that cannot be fitted is left out with a warning, and
   CHECK(r.err.find("too few readings") != std::string::npos);
   const nlohmann::json j = nlohmann::json::parse(r.out);
   REQUIRE(j["parts"].size() == 3);
-  CHECK(j["parts"][0]["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6));
+  CHECK(j["parts"][0]["idss_a"].get<double>() == doctest::Approx(5e-3).epsilon(1e-6).scale(0));
   REQUIRE(j["unfit"].size() == 1);
   CHECK(j["unfit"][0]["part"] == "D");
   CHECK(j["unfit"][0]["first_line"] == 11);

@@ -129,8 +129,8 @@ TEST_CASE("a pot between stages divides as its law says") {
   // Linear: the wiper-to-ground part is x R. Log (audio): 10 % at half rotation, two straight
   // segments (common practice).
   CHECK(pot_fraction(pot_taper::linear, 0.3) == doctest::Approx(0.3));
-  CHECK(pot_fraction(pot_taper::log, 0.5) == doctest::Approx(0.1));
-  CHECK(pot_fraction(pot_taper::log, 0.25) == doctest::Approx(0.05));
+  CHECK(pot_fraction(pot_taper::log, 0.5) == doctest::Approx(0.1).epsilon(1e-12).scale(0));
+  CHECK(pot_fraction(pot_taper::log, 0.25) == doctest::Approx(0.05).epsilon(1e-12).scale(0));
   CHECK(pot_fraction(pot_taper::log, 0.75) == doctest::Approx(0.55));
   CHECK(pot_fraction(pot_taper::log, 1.0) == doctest::Approx(1.0));
   CHECK(pot_fraction(pot_taper::log, 0.0) == 0.0);
@@ -212,9 +212,9 @@ coupling_cap = "10u"
   CHECK(t2.vg_v == doctest::Approx(t1.vd_v).epsilon(1e-12));
   // Closed form of the follower: ID = VS / RS on the square law (lambda 0) at VGS = VG - VS.
   const double id = t2.vs_v / 2.2e3;
-  CHECK(id == doctest::Approx(8e-3 * std::pow(1.0 - t2.vgs_v / -2.5, 2)).epsilon(1e-9));
+  CHECK(id == doctest::Approx(8e-3 * std::pow(1.0 - t2.vgs_v / -2.5, 2)).epsilon(1e-9).scale(0));
   // And the first stage's drain current is the supply's drop over its drain resistor.
-  CHECK((12.0 - t1.vd_v) / 4.7e3 == doctest::Approx(t1.id_a).epsilon(1e-9));
+  CHECK((12.0 - t1.vd_v) / 4.7e3 == doctest::Approx(t1.id_a).epsilon(1e-9).scale(0));
 }
 
 }  // namespace test_chain

@@ -138,7 +138,7 @@ TEST_CASE("the DC point with a pickup is the one with its coil's resistance alon
   // 10 mV across the coil's 6 kΩ, so the check bites.
   const double i_coil = a.x[inductor_current_unknown(with_coil, 0)];
   CHECK(std::fabs(i_coil) > 1e-6);
-  CHECK(node_v(a.x, with_coil.jfet().gate) == doctest::Approx(-6e3 * i_coil).epsilon(1e-9));
+  CHECK(node_v(a.x, with_coil.jfet().gate) == doctest::Approx(-6e3 * i_coil).epsilon(1e-9).scale(0));
   CHECK(node_v(a.x, with_coil.input_node) == doctest::Approx(node_v(b.x, resistive.input_node)).epsilon(1e-12));
 }
 
@@ -147,9 +147,9 @@ TEST_CASE("a pickup's cable adds its capacitance per metre") {
   const std::string body = "[supply]\nvolts = 9\n[jfet]\nidss = \"3m\"\nvp = -2\n[gate]\nresistor = \"1M\"\n"
                            "[drain]\nresistor = \"2.7k\"\n[source]\nresistor = \"1.5k\"\n[signal]\nkind = \"pickup\"\n"
                            "resistance = \"6k\"\ninductance = 2.5\ncapacitance = \"150p\"\n";
-  CHECK(test::stage_from(body + "cable = 3\n").pickup.total_capacitance_f() == doctest::Approx(450e-12).epsilon(1e-12));
+  CHECK(test::stage_from(body + "cable = 3\n").pickup.total_capacitance_f() == doctest::Approx(450e-12).epsilon(1e-12).scale(0));
   CHECK(test::stage_from(body + "cable = 5\ncable_capacitance = \"60p\"\n").pickup.total_capacitance_f() ==
-        doctest::Approx(450e-12).epsilon(1e-12));
+        doctest::Approx(450e-12).epsilon(1e-12).scale(0));
 }
 
 }  // namespace test_pickup

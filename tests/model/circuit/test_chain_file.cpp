@@ -74,15 +74,15 @@ TEST_CASE("a chain file gives each stage its own parts and the chain the shared 
   CHECK(st.is_chain());
   CHECK(st.part(0).label == "first");
   CHECK(st.part(0).drain_resistor_ohm == doctest::Approx(3.9e3));
-  CHECK(st.part(0).drain_shunt_cap_f == doctest::Approx(1e-9));
+  CHECK(st.part(0).drain_shunt_cap_f == doctest::Approx(1e-9).epsilon(1e-12).scale(0));
   CHECK(st.part(0).output.load_ohm == 0.0);
   CHECK(st.part(1).topo == topology::source_follower);
   CHECK(st.part(1).rail.resistance_ohm == doctest::Approx(100.0));
-  CHECK(st.part(1).rail.capacitance_f == doctest::Approx(47e-6));
+  CHECK(st.part(1).rail.capacitance_f == doctest::Approx(47e-6).epsilon(1e-12).scale(0));
   REQUIRE(st.part(1).between.size() == 3);
   CHECK(st.part(1).between[0].kind == between_kind::series);
   CHECK(st.part(1).between[1].kind == between_kind::shunt_cap);
-  CHECK(st.part(1).between[1].value == doctest::Approx(2.2e-9));
+  CHECK(st.part(1).between[1].value == doctest::Approx(2.2e-9).epsilon(1e-12).scale(0));
   CHECK(st.part(1).between[2].kind == between_kind::pot);
   CHECK(st.part(1).between[2].taper == pot_taper::log);
   CHECK(st.last().output.load_ohm == doctest::Approx(100e3));

@@ -38,9 +38,9 @@ TEST_CASE("exact gate-sweep readings give back the part to 1e-6") {
   }
   const fit_result f = fit_square_law(reading_kind::gate_sweep, rd);
   CHECK(f.lambda_fitted);
-  CHECK(f.idss_a == doctest::Approx(idss).epsilon(1e-6));
+  CHECK(f.idss_a == doctest::Approx(idss).epsilon(1e-6).scale(0));
   CHECK(f.vp_v == doctest::Approx(vp).epsilon(1e-6));
-  CHECK(f.lambda_per_v == doctest::Approx(lambda).epsilon(1e-6));
+  CHECK(f.lambda_per_v == doctest::Approx(lambda).epsilon(1e-6).scale(0));
   CHECK(f.rms_residual_ratio < 1e-9);
 }
 
@@ -50,7 +50,7 @@ TEST_CASE("exact self-bias jig readings give back the part to 1e-6") {
   for (double rs : {47.0, 220.0, 1e3, 4.7e3}) rd.push_back({rs, jig(idss, vp, rs), 0.0, false, 1});
   const fit_result f = fit_square_law(reading_kind::self_bias_jig, rd);
   CHECK_FALSE(f.lambda_fitted);
-  CHECK(f.idss_a == doctest::Approx(idss).epsilon(1e-6));
+  CHECK(f.idss_a == doctest::Approx(idss).epsilon(1e-6).scale(0));
   CHECK(f.vp_v == doctest::Approx(vp).epsilon(1e-6));
 }
 
@@ -60,7 +60,7 @@ TEST_CASE("a p-channel part is fitted from bench signs") {
   for (double vgs : {0.0, 0.5, 1.0, 1.5}) rd.push_back({vgs, -shockley(4e-3, -2.0, 0.0, -vgs, 0.0), 0.0, false, 1});
   const fit_result f = fit_square_law(reading_kind::gate_sweep, rd);
   CHECK(f.p_channel);
-  CHECK(f.idss_a == doctest::Approx(4e-3).epsilon(1e-6));
+  CHECK(f.idss_a == doctest::Approx(4e-3).epsilon(1e-6).scale(0));
   CHECK(f.vp_v == doctest::Approx(2.0).epsilon(1e-6));
 }
 
@@ -70,7 +70,7 @@ TEST_CASE("two readings determine the part exactly") {
   const std::vector<bench_reading> two{{100.0, jig(4e-3, -1.4, 100.0), 0, false, 2},
                                        {2200.0, jig(4e-3, -1.4, 2200.0), 0, false, 3}};
   const fit_result f = fit_square_law(reading_kind::self_bias_jig, two);
-  CHECK(f.idss_a == doctest::Approx(4e-3).epsilon(1e-6));
+  CHECK(f.idss_a == doctest::Approx(4e-3).epsilon(1e-6).scale(0));
   CHECK(f.vp_v == doctest::Approx(-1.4).epsilon(1e-6));
   CHECK(std::isnan(f.idss_se_a));
   CHECK(jfet_block(f).find("no error estimate") != std::string::npos);
@@ -131,7 +131,7 @@ TEST_CASE("the pasted block reads back as the fitted part") {
   const fit_result f = fit_square_law(reading_kind::gate_sweep, rd);
   const std::string text = "[supply]\nvolts = 9\n" + jfet_block(f) + "[gate]\nresistor = \"1M\"\n[drain]\nresistor = \"2k\"\n";
   const stage s = parse_stage(text, "pasted.toml");
-  CHECK(s.jfet.idss_a == doctest::Approx(5.17e-3).epsilon(1e-3));
+  CHECK(s.jfet.idss_a == doctest::Approx(5.17e-3).epsilon(1e-3).scale(0));
   CHECK(s.jfet.vp_v == doctest::Approx(-1.96).epsilon(1e-3));
 }
 
@@ -204,7 +204,7 @@ TEST_CASE("a long bench table fits, with its outlier found") {
   }
   rd[777].id_a *= 1.2;
   const fit_result f = fit_square_law(reading_kind::gate_sweep, rd);
-  CHECK(f.idss_a == doctest::Approx(5e-3).epsilon(1e-3));
+  CHECK(f.idss_a == doctest::Approx(5e-3).epsilon(1e-3).scale(0));
   CHECK(f.vp_v == doctest::Approx(-1.8).epsilon(1e-3));
   CHECK(f.rows[777].flagged);
   int flagged = 0;
