@@ -567,9 +567,9 @@ void single_solver::process(const double* in, double* out, std::size_t n) noexce
     PINCHOFF_DK_WIDE_CASE(N)  \
     return block_portable<N>(in, out, n);
 #if defined(PINCHOFF_RUNTIME_SIZES)
-  // Sanitizer builds (set by the build): the wide loop at every state count (its kernels
-  // differ by count), the portable one at run-time size only (the same source as its
-  // fixed-size loops, which only fix the bounds).
+  // Sanitizer builds (set by the build): the wide loop at every state count, the portable
+  // one at run-time size only. The portable fixed-count loops are the same Newton code with
+  // fixed-size buffers and update kernels; the Release suite runs them.
   if (wide_) {
     switch (m_.states) {
       PINCHOFF_DK_WIDE_ONLY(1)
