@@ -1,16 +1,12 @@
-# Read by ctest after the discovered tests (tests/CMakeLists.txt adds it to the folder's
-# TEST_INCLUDE_FILES), and by tests/CMakeLists.txt itself for the script tests it adds
-# (named in pinchoff_cost_tests). Each line of test_costs.txt is "SECONDS NAME": the test's run time
-# measured on the sanitizer build. It becomes the test's COST, and `ctest -j` starts the
-# tests in falling order of cost, so the long render and aliasing tests start first and the
-# short ones fill in beside them, rather than a long test starting last with the other core
-# idle. (ctest's own record of past times, Testing/Temporary/CTestCostData.txt, cannot hold
-# names with spaces before CMake 3.32, and a fresh build folder has none.) A test missing
-# from the list costs 0 and runs among the short ones; a name no longer discovered is
-# skipped. Refresh the list with scripts/test-costs after tests change much.
-if(NOT DEFINED pinchoff_cost_tests)
-  set(pinchoff_cost_tests ${pinchoff_tests_TESTS})
-endif()
+# Read by tests/CMakeLists.txt for the script tests it adds (named in pinchoff_cost_tests);
+# the runner's own cases get theirs in tests/register_tests.cmake. Each line of
+# test_costs.txt is "SECONDS NAME": the test's run time measured on the sanitizer build. It
+# becomes the test's COST, and `ctest -j` starts the tests in falling order of cost, so the
+# long render and aliasing tests start first and the short ones fill in beside them, rather
+# than a long test starting last with the other core idle. (ctest's own record of past
+# times, Testing/Temporary/CTestCostData.txt, cannot hold names with spaces before CMake
+# 3.32, and a fresh build folder has none.) A test missing from the list costs 0 and runs
+# among the short ones. Refresh the list with scripts/test-costs after tests change much.
 file(STRINGS "${CMAKE_CURRENT_LIST_DIR}/test_costs.txt" pinchoff_cost_lines)
 foreach(pinchoff_cost_line IN LISTS pinchoff_cost_lines)
   if(pinchoff_cost_line MATCHES "^([0-9.]+) (.+)$")

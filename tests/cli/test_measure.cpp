@@ -71,7 +71,7 @@ nlohmann::json measure_json(const std::vector<std::string>& extra) {
 }
 }  // namespace
 
-TEST_CASE("band-limited square and triangle waves give the THD of their Fourier series") {
+TEST_CASE("measure reads band-limited square and triangle waves at the THD of their Fourier series") {
   // Any text on Fourier series: square wave, odd harmonics of amplitude 1/n; triangle wave,
   // odd harmonics 1/n^2 with alternating sign. Full series: THD = sqrt(pi^2/8 - 1) =
   // 48.343 % and sqrt(pi^4/96 - 1) = 12.115 % (CHECKS.md). Band-limited: only the
