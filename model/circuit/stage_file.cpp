@@ -149,8 +149,6 @@ const section_spec* find_section(const std::vector<section_spec>& schema, std::s
   return it == schema.end() ? nullptr : &*it;
 }
 
-constexpr std::array<std::string_view, 3> top_scalars{"name", "topology", "temperature"};
-
 class reader {
  public:
   reader(std::string_view source_name) : source_(source_name) {}

@@ -25,7 +25,8 @@
 #include "model/engine/dk_general.hpp"
 #include "model/engine/dk_steps.hpp"
 
-#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
+// PINCHOFF_PORTABLE_ONLY (set by the build for the sanitizer tree): the portable loops only.
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__)) && !defined(PINCHOFF_PORTABLE_ONLY)
 #include <immintrin.h>
 #define PINCHOFF_DK_GENERAL_WIDE 1
 #else
@@ -608,7 +609,7 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   g.f_abs = m_.f.cwiseAbs();
 
   // Stacked update as for one JFET: the state rows hold the increment x_n - x_{n-1}.
-  wide_ = opt_.wide_kernels && detail::wide_kernels_available();
+  wide_ = PINCHOFF_DK_GENERAL_WIDE && opt_.wide_kernels && detail::wide_kernels_available();
   g.rows = (ns + np + 1 + 3) / 4 * 4;
   {
     const Eigen::MatrixXd w = stacked_update(m_, g.rows);
