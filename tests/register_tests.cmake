@@ -88,7 +88,7 @@ foreach(case IN LISTS cases)
     pinchoff_filter_escape(f_name "${name}")
     pinchoff_quote(q_filter "--test-case=${f_name}")
     # Its COST: `ctest -j` starts the costliest first, so a long one does not start last
-    # with the other core idle (the short-case groups cost 0 and fill in beside them).
+    # with the other core idle (a group not in the list costs 0 and fills in beside them).
     string(APPEND script "add_test(${q_name} \"${RUNNER}\" ${q_filter})\n"
       "set_tests_properties(${q_name} PROPERTIES WORKING_DIRECTORY \"${WORKDIR}\" COST ${cost_of_${cost_key}})\n")
     if(long_of_${key} STREQUAL "")
