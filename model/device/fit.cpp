@@ -38,8 +38,8 @@ double model_current(reading_kind kind, const bench_reading& r, double idss, dou
 
 // The Jacobian has three columns, the third zero when lambda is not fitted; the normal
 // matrices are fixed 3x3 (identity-padded in the unused row and column), so the solves are
-// closed-form small ones rather than Eigen's dynamic-size factorisations, a fifth of the
-// compile time of this file, for the same numbers to rounding.
+// Eigen's fixed-size ones rather than its dynamic-size factorisations: this file compiles in
+// under half the time (19 to 8 CPU-s at -O3), for the same numbers to rounding.
 using jacobian_t = Eigen::Matrix<double, Eigen::Dynamic, 3>;
 
 struct core_fit {
