@@ -84,7 +84,7 @@ test-release: build-tests
 # about four fifths of gcc's processor time (a command-file batch 74 to 47 CPU-s), and its
 # UndefinedBehaviorSanitizer checks pointer arithmetic too, which gcc's does not. -O1 with
 # line tables only: all a sanitizer report needs, at half the build time of -O2 -g; the
-# command files and the test files at -O0, the engines at -Og (cli/, tests/ and model/
+# command files and the test files at -O0, the engines at -O2 (cli/, tests/ and model/
 # CMakeLists.txt say why). Only what the suite runs is built (the test runner and the
 # program; not the benchmarks or the demo-clip writer), and the fuzz targets for the smoke
 # run.

@@ -41,6 +41,18 @@ namespace {
 // and the warm start's sweeps cost more than it (callgrind: 1,987 against 1,912
 // instructions a sample at 1 V; docs/engine-decisions.md).
 constexpr int torn_min_devices = 3;
+// The most JFETs a chain holds (stage file), so the most ports a torn step's stack arrays
+// need at run-time size.
+constexpr int torn_max_devices = 6;
+constexpr int torn_max_ports = 2 * torn_max_devices;
+// Sanitizer builds (PINCHOFF_RUNTIME_SIZES) take the torn step at run-time size too: one
+// sample loop for every number of JFETs instead of one per compile-time size, the same
+// Newton code (the fixed-size loops run in the Release suite).
+#if defined(PINCHOFF_RUNTIME_SIZES)
+constexpr bool torn_at_runtime_size = true;
+#else
+constexpr bool torn_at_runtime_size = false;
+#endif
 // The most block Gauss-Seidel sweeps of one torn Newton step (solve_general).
 constexpr int torn_max_sweeps = 6;
 // A sweep that shrinks the change of the step by less than this (the coupling between the
@@ -325,15 +337,15 @@ __attribute__((always_inline)) inline void block_abs_bound_n(const double* a, in
 // The per-stage (torn) step. J = I - F Jf of a chain is nearly block lower triangular, one
 // 2 x 2 block per JFET: a later stage acts on an earlier one only through the rail, gate
 // conduction and Cgd. torn_prepare_n replaces each diagonal block of J (column-major, n x n,
-// N > 0 at compile time) by its inverse in closed form, as block_factor_n does, and leaves
-// the rest of J as it is; false where a block is not safely invertible alone (the same
-// test as block_factor_n's). Nothing is eliminated: no Schur complements.
+// N at compile time, or n_rt when N = 0) by its inverse in closed form, as block_factor_n
+// does, and leaves the rest of J as it is; false where a block is not safely invertible
+// alone (the same test as block_factor_n's). Nothing is eliminated: no Schur complements.
 template <int N>
-__attribute__((always_inline)) inline bool torn_prepare_n(double* a) noexcept {
-  static_assert(N > 0);
+__attribute__((always_inline)) inline bool torn_prepare_n(double* a, int n_rt) noexcept {
+  const int n = N > 0 ? N : n_rt;
 #pragma GCC unroll 8
-  for (int b = 0; b < N; b += 2)
-    if (!invert_block(a + b + b * N, N)) return false;
+  for (int b = 0; b < n; b += 2)
+    if (!invert_block(a + b + b * n, n)) return false;
   return true;
 }
 
@@ -344,19 +356,20 @@ __attribute__((always_inline)) inline bool torn_prepare_n(double* a) noexcept {
 // strictly block upper part), so the sweep leaves the linear residual -U delta: the
 // coupling that torn_coupling_n bounds.
 template <int N>
-__attribute__((always_inline)) inline void torn_sweep_n(const double* a, const double* r, double* x,
+__attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_rt, const double* r, double* x,
                                                         double* delta) noexcept {
+  const int n = N > 0 ? N : n_rt;
 #pragma GCC unroll 8
-  for (int b = 0; b < N; b += 2) {
+  for (int b = 0; b < n; b += 2) {
     double y0 = r[b], y1 = r[b + 1];
 #pragma GCC unroll 8
-    for (int c = 0; c < N; c += 2) {
+    for (int c = 0; c < n; c += 2) {
       if (c == b) continue;
-      y0 -= a[b + c * N] * x[c] + a[b + (c + 1) * N] * x[c + 1];
-      y1 -= a[b + 1 + c * N] * x[c] + a[b + 1 + (c + 1) * N] * x[c + 1];
+      y0 -= a[b + c * n] * x[c] + a[b + (c + 1) * n] * x[c + 1];
+      y1 -= a[b + 1 + c * n] * x[c] + a[b + 1 + (c + 1) * n] * x[c + 1];
     }
-    const double* d = a + b + b * N;
-    const double n0 = d[0] * y0 + d[N] * y1, n1 = d[1] * y0 + d[N + 1] * y1;
+    const double* d = a + b + b * n;
+    const double n0 = d[0] * y0 + d[n] * y1, n1 = d[1] * y0 + d[n + 1] * y1;
     delta[b] = n0 - x[b];
     delta[b + 1] = n1 - x[b + 1];
     x[b] = n0;
@@ -368,17 +381,18 @@ __attribute__((always_inline)) inline void torn_sweep_n(const double* a, const d
 // |U| |delta| with a rounding margin; the last block row has no upper part. Returns its
 // largest entry.
 template <int N>
-__attribute__((always_inline)) inline double torn_coupling_n(const double* a, const double* delta,
+__attribute__((always_inline)) inline double torn_coupling_n(const double* a, int n_rt, const double* delta,
                                                              double* e) noexcept {
+  const int n = N > 0 ? N : n_rt;
   double most = 0.0;
 #pragma GCC unroll 8
-  for (int b = 0; b < N; b += 2) {
+  for (int b = 0; b < n; b += 2) {
     double s0 = 0.0, s1 = 0.0;
 #pragma GCC unroll 8
-    for (int c = b + 2; c < N; c += 2) {
+    for (int c = b + 2; c < n; c += 2) {
       const double q0 = std::fabs(delta[c]), q1 = std::fabs(delta[c + 1]);
-      s0 += std::fabs(a[b + c * N]) * q0 + std::fabs(a[b + (c + 1) * N]) * q1;
-      s1 += std::fabs(a[b + 1 + c * N]) * q0 + std::fabs(a[b + 1 + (c + 1) * N]) * q1;
+      s0 += std::fabs(a[b + c * n]) * q0 + std::fabs(a[b + (c + 1) * n]) * q1;
+      s1 += std::fabs(a[b + 1 + c * n]) * q0 + std::fabs(a[b + 1 + (c + 1) * n]) * q1;
     }
     e[b] = s0 * (1.0 + detail::acceptance_round_k);
     e[b + 1] = s1 * (1.0 + detail::acceptance_round_k);
@@ -394,68 +408,70 @@ __attribute__((always_inline)) inline double torn_coupling_n(const double* a, co
 // comparison-matrix argument of block_abs_bound_n). One forward pass gives s = C t and
 // w = C |U| 1; rho = max w bounds G's infinity norm, so G^m s <= rho^m max(s) 1 and
 // |J^-1| t <= s + max(s) rho / (1 - rho). Returns rho (t then holds the bound where
-// rho < 1, else is unusable).
+// rho < 1, else is unusable). At run-time size (N = 0), n_rt <= torn_max_ports.
 template <int N>
-__attribute__((always_inline)) inline double torn_abs_bound_n(const double* a, double* t) noexcept {
-  double w[N];
+__attribute__((always_inline)) inline double torn_abs_bound_n(const double* a, int n_rt, double* t) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  double w[N > 0 ? N : torn_max_ports];
 #pragma GCC unroll 8
-  for (int b = 0; b < N; b += 2) {
+  for (int b = 0; b < n; b += 2) {
     double u0 = 0.0, u1 = 0.0;
 #pragma GCC unroll 8
-    for (int c = b + 2; c < N; c += 2) {
-      u0 += std::fabs(a[b + c * N]) + std::fabs(a[b + (c + 1) * N]);
-      u1 += std::fabs(a[b + 1 + c * N]) + std::fabs(a[b + 1 + (c + 1) * N]);
+    for (int c = b + 2; c < n; c += 2) {
+      u0 += std::fabs(a[b + c * n]) + std::fabs(a[b + (c + 1) * n]);
+      u1 += std::fabs(a[b + 1 + c * n]) + std::fabs(a[b + 1 + (c + 1) * n]);
     }
     double y0 = t[b], y1 = t[b + 1];
 #pragma GCC unroll 8
     for (int c = 0; c < b; c += 2) {
-      const double l00 = std::fabs(a[b + c * N]), l01 = std::fabs(a[b + (c + 1) * N]);
-      const double l10 = std::fabs(a[b + 1 + c * N]), l11 = std::fabs(a[b + 1 + (c + 1) * N]);
+      const double l00 = std::fabs(a[b + c * n]), l01 = std::fabs(a[b + (c + 1) * n]);
+      const double l10 = std::fabs(a[b + 1 + c * n]), l11 = std::fabs(a[b + 1 + (c + 1) * n]);
       y0 += l00 * t[c] + l01 * t[c + 1];
       y1 += l10 * t[c] + l11 * t[c + 1];
       u0 += l00 * w[c] + l01 * w[c + 1];
       u1 += l10 * w[c] + l11 * w[c + 1];
     }
-    const double* d = a + b + b * N;
-    const double d00 = std::fabs(d[0]), d01 = std::fabs(d[N]), d10 = std::fabs(d[1]), d11 = std::fabs(d[N + 1]);
+    const double* d = a + b + b * n;
+    const double d00 = std::fabs(d[0]), d01 = std::fabs(d[n]), d10 = std::fabs(d[1]), d11 = std::fabs(d[n + 1]);
     t[b] = d00 * y0 + d01 * y1;
     t[b + 1] = d10 * y0 + d11 * y1;
     w[b] = d00 * u0 + d01 * u1;
     w[b + 1] = d10 * u0 + d11 * u1;
   }
   double rho = 0.0, smax = 0.0;
-  for (int r = 0; r < N; ++r) {
+  for (int r = 0; r < n; ++r) {
     rho = std::max(rho, w[r]);
     smax = std::max(smax, t[r]);
   }
   if (!(rho < 1.0)) return rho;
   // Rounded up: the tail's factor is formed with a margin of its own rounding.
   const double tail = smax * rho / (1.0 - rho) * (1.0 + detail::acceptance_round_k);
-  for (int r = 0; r < N; ++r) t[r] = (t[r] + tail) * (1.0 + detail::acceptance_round_k);
+  for (int r = 0; r < n; ++r) t[r] = (t[r] + tail) * (1.0 + detail::acceptance_round_k);
   return rho;
 }
 
 // x = J^-1 b approximately (in place), by `sweeps` block Gauss-Seidel sweeps from 0: the
 // warm start's and the sub-steps' predictions from torn points (a prediction only; the
-// Newton that follows decides the accuracy).
+// Newton that follows decides the accuracy). At run-time size, n_rt <= torn_max_ports.
 template <int N>
-__attribute__((always_inline)) inline void torn_solve_n(const double* a, double* b, int sweeps) noexcept {
-  double r[N], delta[N];
-  for (int q = 0; q < N; ++q) {
+__attribute__((always_inline)) inline void torn_solve_n(const double* a, int n_rt, double* b, int sweeps) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  double r[N > 0 ? N : torn_max_ports], delta[N > 0 ? N : torn_max_ports];
+  for (int q = 0; q < n; ++q) {
     r[q] = b[q];
     b[q] = 0.0;
   }
-  for (int s = 0; s < sweeps; ++s) torn_sweep_n<N>(a, r, b, delta);
+  for (int s = 0; s < sweeps; ++s) torn_sweep_n<N>(a, n, r, b, delta);
 }
 
 // Factors of either kind: `blocked` says which (block_factor_n's or lu_factor_n's).
-// `torn_sweeps` > 0 (N > 0 only): J prepared by torn_prepare_n, solved approximately by
-// that many sweeps.
+// `torn_sweeps` > 0 (N > 0, or run-time size in a sanitizer build): J prepared by
+// torn_prepare_n, solved approximately by that many sweeps.
 template <int N>
 __attribute__((always_inline)) inline void factors_solve_n(const double* a, int n, const int* piv, bool blocked,
                                                            double* b, int torn_sweeps = 0) noexcept {
-  if constexpr (N > 0) {
-    if (torn_sweeps > 0) return torn_solve_n<N>(a, b, torn_sweeps);
+  if constexpr (N > 0 || torn_at_runtime_size) {
+    if (torn_sweeps > 0) return torn_solve_n<N>(a, n, b, torn_sweeps);
   }
   if (blocked)
     block_solve_n<N>(a, n, b);
@@ -882,8 +898,8 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       if (!(t.maxCoeff() <= tol)) return sweep_may_help ? accept_sweep : accept_no;
       bound = t;
       if (coupling) {
-        if constexpr (K > 0) {
-          const double rho = torn_abs_bound_n<2 * K>(out.lu.data(), bound.data());
+        if constexpr (K > 0 || torn_at_runtime_size) {
+          const double rho = torn_abs_bound_n<lu_size_of(K)>(out.lu.data(), np, bound.data());
           // Where the blocks cannot bound it (the coupling is already a small share of
           // tol_v here, so more sweeps would not), the factors decide, as without tearing.
           if (!(rho < 1.0 && bound.maxCoeff() <= tol)) return accept_full;
@@ -940,23 +956,25 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
 
     bool limited = false;
     bool full = true;
-    if constexpr (K >= torn_min_devices) {
+    if constexpr (K >= torn_min_devices || (K == 0 && torn_at_runtime_size)) {
       // The torn step: block Gauss-Seidel sweeps on J d = r (torn_sweep_n), as many as the
       // acceptance or the Newton's progress asks, each leaving the coupling -U delta in the
       // linear residual, which enters the acceptance (try_accept). Where J's own blocks
       // are not safely invertible, the sweeps stop contracting, or the bound cannot be had
       // from the blocks, this step is computed from J's factors instead (below).
-      if (opt_.torn_solve && opt_.block_factors && torn_holdoff_ == 0 && torn_prepare_n<2 * K>(out.lu.data())) {
+      // (At run-time size, from torn_min_devices to torn_max_devices JFETs.)
+      if ((K > 0 || (k >= torn_min_devices && k <= torn_max_devices)) && opt_.torn_solve && opt_.block_factors &&
+          torn_holdoff_ == 0 && torn_prepare_n<lu_size_of(K)>(out.lu.data(), np)) {
         full = false;
         out.torn = true;
         out.blocked = false;
-        double delta[2 * K], coupling[2 * K];
+        double delta[K > 0 ? 2 * K : torn_max_ports], coupling[K > 0 ? 2 * K : torn_max_ports];
         d.setZero();
-        torn_sweep_n<2 * K>(out.lu.data(), r.data(), d.data(), delta);
+        torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, r.data(), d.data(), delta);
         int sweeps = 1;
         double change = d.cwiseAbs().maxCoeff();
         for (;;) {
-          const double coupling_most = torn_coupling_n<2 * K>(out.lu.data(), delta, coupling);
+          const double coupling_most = torn_coupling_n<lu_size_of(K)>(out.lu.data(), np, delta, coupling);
           if (limit_step()) {
             limited = true;
             break;
@@ -978,10 +996,10 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
             }
           }
           if (sweeps >= torn_max_sweeps || !sweep_more) break;
-          torn_sweep_n<2 * K>(out.lu.data(), r.data(), d.data(), delta);
+          torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, r.data(), d.data(), delta);
           ++sweeps;
           double change_now = 0.0;
-          for (int q = 0; q < 2 * K; ++q) change_now = std::max(change_now, std::fabs(delta[q]));
+          for (int q = 0; q < np; ++q) change_now = std::max(change_now, std::fabs(delta[q]));
           if (!(change_now <= torn_slow_ratio * change)) {  // contracting slowly, or not at all (or not finite)
             full = true;
             break;
@@ -1164,14 +1182,14 @@ void general_solver::process(const double* in, double* out, std::size_t n) noexc
 #endif
   switch (m_.devices) {
 #if !defined(PINCHOFF_RUNTIME_SIZES)
-    // Sanitizer builds (PINCHOFF_RUNTIME_SIZES, set by the build) run two JFETs at run-time
-    // size: the same Newton code, which has no torn step below three JFETs either.
     case 2: return block_k<2>(in, out, n);
-#endif
     case 3: return block_k<3>(in, out, n);
     case 4: return block_k<4>(in, out, n);
     case 5: return block_k<5>(in, out, n);
     case 6: return block_k<6>(in, out, n);
+#endif
+    // Sanitizer builds (PINCHOFF_RUNTIME_SIZES, set by the build) run every number of JFETs
+    // at run-time size: the same Newton code, the torn step included (torn_at_runtime_size).
     default: return block_k<0>(in, out, n);
   }
 }
