@@ -41,7 +41,9 @@ void bench_engine() {
               "max", "failed", "speed-up");
   const std::size_t n_engine = static_cast<std::size_t>(rate_hz / 10);  // 0.1 s of audio
   const std::size_t n_reference = 20000;
-  double worst_rt = 1e300;
+  // The one-JFET target holds for single-stage presets; the chain presets have the chain
+  // table's targets by stage count (bench_multi.cpp).
+  double worst_rt = 1e300, worst_chain_rt = 1e300;
   std::string loop_name = "?";
   for (const auto& path : presets) {
     const model::network net = model::build_network(model::read_stage_file(path));
@@ -65,7 +67,8 @@ void bench_engine() {
       const double ns_engine = 1e9 * t_engine / double(n_engine);
       const double ns_ref = 1e9 * t_ref / double(n_reference);
       const double realtime = 1e9 / rate_hz / ns_engine;
-      worst_rt = std::min(worst_rt, realtime);
+      double& worst = net.devices() == 1 ? worst_rt : worst_chain_rt;
+      worst = std::min(worst, realtime);
       char drive_text[32];
       std::snprintf(drive_text, sizeof drive_text, "%gVpk", drive);
       std::printf("%-28s %7s %6d %8.1f %8.1fx %8.3f %6d %7lld %8.1fx%s\n", path.stem().string().c_str(), drive_text,
@@ -73,6 +76,9 @@ void bench_engine() {
                   ns_ref / ns_engine, std::isfinite(sink) ? "" : " (non-finite output!)");
     }
   }
-  std::printf("\nslowest case: %.1fx real time (target 30x, aim 50x)\n", worst_rt);
+  std::printf("\nslowest single-stage case: %.1fx real time (target 30x, aim 50x)\n", worst_rt);
+  if (worst_chain_rt < 1e300)
+    std::printf("slowest chain preset: %.1fx real time (the chains' targets by stage count: the chain table below)\n",
+                worst_chain_rt);
   std::printf("sample loop on this processor: %s\n", loop_name.c_str());
 }
