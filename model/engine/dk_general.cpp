@@ -36,10 +36,11 @@
 namespace pinchoff::model {
 namespace {
 
-// The torn step is taken from three JFETs (compile-time sizes 3-6): at two, the block
-// factorisation it replaces is a single 2 x 2 Schur complement, and the sweeps, the bound
-// and the warm start's sweeps cost more than it (callgrind: 1,987 against 1,912
-// instructions a sample at 1 V; docs/engine-decisions.md).
+// The torn step is taken from three to six JFETs (at compile-time sizes 3-6; at run-time
+// size in sanitizer builds, below): at two, the block factorisation it replaces is a single
+// 2 x 2 Schur complement, and the sweeps, the bound and the warm start's sweeps cost more
+// than it (callgrind: 1,987 against 1,912 instructions a sample at 1 V;
+// docs/engine-decisions.md).
 constexpr int torn_min_devices = 3;
 // The most JFETs a chain holds (stage file), so the most ports a torn step's stack arrays
 // need at run-time size.
