@@ -101,8 +101,9 @@ class dk_engine {
   double dc_output_v() const noexcept { return base().dc_output_v(); }
 
   const dk_stats& stats() const noexcept { return base().stats(); }
-  /// Which compiled sample loop runs: "AVX2+FMA" or "portable" (the general solver's
-  /// AVX2+FMA loop covers 2-6 JFETs; more take the portable one).
+  /// Which compiled sample loop runs: "AVX2+FMA" or "portable"; two JFETs with AVX2 + FMA
+  /// take a loop of their own, "AVX2+FMA, two-JFET" (the general solver's other AVX2+FMA
+  /// loop covers 3-6 JFETs; more take the portable one).
   const char* sample_loop() const noexcept {
     return std::visit([](const auto& s) { return s.sample_loop(); }, solver_);
   }

@@ -25,9 +25,16 @@
 #include "model/engine/dk_general.hpp"
 #include "model/engine/dk_steps.hpp"
 
-// PINCHOFF_PORTABLE_ONLY (set by the build for the sanitizer tree): the portable loops only.
-#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__)) && !defined(PINCHOFF_PORTABLE_ONLY)
+// PINCHOFF_DK_PAIR: the two-JFET sample loop (process_pair, AVX2 + FMA), in both trees.
+// PINCHOFF_PORTABLE_ONLY (set by the build for the sanitizer tree): of the loops for any
+// number of JFETs, the portable ones only.
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
 #include <immintrin.h>
+#define PINCHOFF_DK_PAIR 1
+#else
+#define PINCHOFF_DK_PAIR 0
+#endif
+#if PINCHOFF_DK_PAIR && !defined(PINCHOFF_PORTABLE_ONLY)
 #define PINCHOFF_DK_GENERAL_WIDE 1
 #else
 #define PINCHOFF_DK_GENERAL_WIDE 0
@@ -68,6 +75,9 @@ constexpr int torn_holdoff_samples = 32;
 constexpr double torn_forcing = 1e-6;
 // The share of tol_v the coupling may take before the acceptance is tried on a torn step.
 constexpr double torn_coupling_share = 0.1;
+// Two JFETs: the Newton iterations process_pair makes itself before solve_general<2> takes
+// over (at 1 and 10 V on the bench's chain, 2.5 and 4.4 % of the samples needed a third).
+constexpr int pair_inline_iterations = 4;
 
 // Compile-time sizes for K JFETs (K = 0: dynamic).
 constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
@@ -283,6 +293,57 @@ __attribute__((always_inline)) inline bool block_factor_n(double* a, int n_rt) n
     }
   }
   return true;
+}
+
+// block_factor_n<4> written out for two JFETs (the same factors, the same tests: each
+// diagonal block safely invertible alone, the multipliers at most 1e4), without the masked
+// whole columns the general size needs. a: I - F Jf, column-major, in place.
+__attribute__((always_inline)) inline bool pair_factor(double* a) noexcept {
+  if (!invert_block(a, 4)) return false;
+  const double i00 = a[0], i10 = a[1], i01 = a[4], i11 = a[5];
+  const double l00 = a[2] * i00 + a[6] * i10, l01 = a[2] * i01 + a[6] * i11;
+  const double l10 = a[3] * i00 + a[7] * i10, l11 = a[3] * i01 + a[7] * i11;
+  if (!(std::max(std::max(std::fabs(l00), std::fabs(l01)), std::max(std::fabs(l10), std::fabs(l11))) <= 1e4))
+    return false;
+  a[2] = l00;
+  a[3] = l10;
+  a[6] = l01;
+  a[7] = l11;
+  const double u00 = a[8], u10 = a[9], u01 = a[12], u11 = a[13];
+  a[10] -= l00 * u00 + l01 * u10;
+  a[11] -= l10 * u00 + l11 * u10;
+  a[14] -= l00 * u01 + l01 * u11;
+  a[15] -= l10 * u01 + l11 * u11;
+  return invert_block(a + 10, 4);
+}
+
+// M = (I - F Jf)^-1 in full from the factors of pair_factor (block_factor_n<4>): with
+// A = D1^-1, L = L21, U = U12, T = S^-1, M = [A + X L, -X; -T L, T], X = A U T.
+__attribute__((always_inline)) inline void pair_inverse(const double* jd, double* mt) noexcept {
+  const double a00 = jd[0], a10 = jd[1], a01 = jd[4], a11 = jd[5];
+  const double l00 = jd[2], l10 = jd[3], l01 = jd[6], l11 = jd[7];
+  const double u00 = jd[8], u10 = jd[9], u01 = jd[12], u11 = jd[13];
+  const double t00 = jd[10], t10 = jd[11], t01 = jd[14], t11 = jd[15];
+  const double au00 = a00 * u00 + a01 * u10, au01 = a00 * u01 + a01 * u11;
+  const double au10 = a10 * u00 + a11 * u10, au11 = a10 * u01 + a11 * u11;
+  const double x00 = au00 * t00 + au01 * t10, x01 = au00 * t01 + au01 * t11;
+  const double x10 = au10 * t00 + au11 * t10, x11 = au10 * t01 + au11 * t11;
+  mt[0] = a00 + (x00 * l00 + x01 * l10);
+  mt[1] = a10 + (x10 * l00 + x11 * l10);
+  mt[2] = -(t00 * l00 + t01 * l10);
+  mt[3] = -(t10 * l00 + t11 * l10);
+  mt[4] = a01 + (x00 * l01 + x01 * l11);
+  mt[5] = a11 + (x10 * l01 + x11 * l11);
+  mt[6] = -(t00 * l01 + t01 * l11);
+  mt[7] = -(t10 * l01 + t11 * l11);
+  mt[8] = -x00;
+  mt[9] = -x10;
+  mt[10] = t00;
+  mt[11] = t10;
+  mt[12] = -x01;
+  mt[13] = -x11;
+  mt[14] = t01;
+  mt[15] = t11;
 }
 
 // Solves (the matrix factored by block_factor_n) x = b in place: forward with L's blocks,
@@ -556,7 +617,7 @@ void update_after_portable(const double* __restrict w, int rows, const double* _
   }
 }
 
-#if PINCHOFF_DK_GENERAL_WIDE
+#if PINCHOFF_DK_PAIR
 // AVX2 + FMA: rows padded to a multiple of 4. Up to 12 packets (48 rows: six stages with
 // rail filters) are held in registers while the columns pass once (each input broadcast
 // once, the packets' fused multiply-adds independent); taller matrices pass in blocks of 8
@@ -646,6 +707,9 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   g.mag.setZero(ni);
   for (port_set* s : {&g.ring[0], &g.ring[1], &g.ring[2], &g.ring[3], &g.dc, &g.cur_pt, &g.next_pt}) s->resize(k);
   g.mdl.setZero(np);
+  pair_ = PINCHOFF_DK_PAIR && opt_.wide_kernels && detail::wide_kernels_available() && k == 2 && opt_.block_factors;
+  g.mring = detail::aligned_doubles(64);
+  std::fill_n(g.mring.data(), 64, 0.0);
   g.cj.setZero(ns, np);
   g.md.setZero(np, ns);
   g.mi.setZero(np, np);
@@ -730,9 +794,19 @@ void general_solver::reset() {
   g.q.setZero();
   for (port_set& s : g.ring) s = g.dc;
   g.head = 0;
+  if (pair_)
+    for (int slot = 0; slot < 4; ++slot) pair_m_of(slot);
   torn_holdoff_ = 0;
   g.p_last = g.p_dc;
   stats_ = {};
+}
+
+// dv/dp of ring point `slot` in full, from its factors (two JFETs: process_pair).
+void general_solver::pair_m_of(int slot) noexcept {
+  const port_set& pt = g_.ring[slot];
+  if (pt.blocked && !pt.torn) return pair_inverse(pt.lu.data(), g_.mring.data() + 16 * slot);
+  inverse_of(pt.lu, pt.piv, pt.blocked, g_.mi);
+  std::copy_n(g_.mi.data(), 16, g_.mring.data() + 16 * slot);
 }
 
 void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
@@ -1168,11 +1242,270 @@ __attribute__((PINCHOFF_DK_GENERAL_FLATTEN target("avx2,fma"))) void general_sol
 #undef PINCHOFF_DK_GENERAL_FLATTEN
 #endif
 
+#if PINCHOFF_DK_PAIR
+// Two JFETs, the sample as the one-JFET path lays it out (dk_single.cpp): the four port
+// voltages, the residual, the step and each column of F, of I - F Jf and of
+// M = (I - F Jf)^-1 in one AVX2 register each; M formed in full from the 2 x 2 block
+// factors (block_factor_n: the same factors, kept in the point for track() and the
+// sub-steps) and kept for the three points the warm start uses, so the warm start, the
+// step and the bound |M| t are each four fused multiply-adds a column. The same Newton,
+// the same acceptance (the bound |M| t itself, which block_abs_bound_n bounds from
+// above) and the same warm start as solve_general; up to pair_inline_iterations
+// iterations here, and anything else (a junction step to limit, a step to damp, factors
+// that need pivoting, more iterations) by solve_general<2> from where they stopped
+// (pair_rest).
+namespace {
+__attribute__((target("avx2,fma"), always_inline)) inline double hmax_abs(__m256d x) noexcept {
+  const __m256d a = _mm256_andnot_pd(_mm256_set1_pd(-0.0), x);
+  const __m128d m = _mm_max_pd(_mm256_castpd256_pd128(a), _mm256_extractf128_pd(a, 1));
+  return _mm_cvtsd_f64(_mm_max_sd(m, _mm_unpackhi_pd(m, m)));
+}
+__attribute__((target("avx2,fma"), always_inline)) inline __m256d abs4(__m256d x) noexcept {
+  return _mm256_andnot_pd(_mm256_set1_pd(-0.0), x);
+}
+// y + sum_c col_c x_c over four columns of a 4 x 4 column-major matrix.
+__attribute__((target("avx2,fma"), always_inline)) inline __m256d mul4(const double* a, const double* x,
+                                                                       __m256d y) noexcept {
+  y = _mm256_fmadd_pd(_mm256_load_pd(a), _mm256_broadcast_sd(x), y);
+  y = _mm256_fmadd_pd(_mm256_load_pd(a + 4), _mm256_broadcast_sd(x + 1), y);
+  y = _mm256_fmadd_pd(_mm256_load_pd(a + 8), _mm256_broadcast_sd(x + 2), y);
+  return _mm256_fmadd_pd(_mm256_load_pd(a + 12), _mm256_broadcast_sd(x + 3), y);
+}
+}  // namespace
+
+// The sanitizer tree (PINCHOFF_RUNTIME_SIZES) compiles the general Newton at run-time size only.
+#if defined(PINCHOFF_RUNTIME_SIZES)
+constexpr int pair_general_k = 0;
+#else
+constexpr int pair_general_k = 2;
+#endif
+
+__attribute__((noinline)) void general_solver::pair_rest(int& evals, bool attempt_failed) noexcept {
+  port_set& trial = g_.trial();
+  if (attempt_failed || !solve_general<pair_general_k>(g_.p, g_.guess, trial, evals))
+    substep_general<pair_general_k>(g_.p, trial, evals);
+  pair_m_of((g_.head + 1) & 3);
+}
+
+__attribute__((target("avx2,fma"), always_inline)) inline double general_solver::process_pair(double generator_v) noexcept {
+  storage& g = g_;
+  const int ns = m_.states, rows = g.rows;
+  const double ug = sign_ * generator_v;
+  double* __restrict x_in = in_.data();
+  x_in[ns + 1] = ug;
+  update_wide(g.w.data(), rows, nullptr, x_in, ns + 2, g.pre.data());
+  const double* f = m_.f.data();
+  const double* fa = g.f_abs.data();
+  const __m256d p = _mm256_fmadd_pd(_mm256_loadu_pd(m_.e.col(1).data()), _mm256_set1_pd(ug),
+                                    _mm256_add_pd(_mm256_loadu_pd(g.p_dc.data()), _mm256_loadu_pd(g.q.data())));
+  _mm256_storeu_pd(g.p.data(), p);
+
+  // Warm start (as process_k): the last solution moved along the step of p by M at the
+  // last three points, Adams-Bashforth weights.
+  alignas(32) double dp[4];
+  _mm256_store_pd(dp, _mm256_sub_pd(p, _mm256_loadu_pd(g.p_last.data())));
+  __m256d v = _mm256_loadu_pd(g.last().v.data());
+  for (int h = 0; h < 3; ++h) {
+    const double wh = warm_[static_cast<std::size_t>(h)];
+    if (wh == 0.0) continue;
+    alignas(32) double s[4];
+    _mm256_store_pd(s, _mm256_mul_pd(_mm256_set1_pd(wh), _mm256_load_pd(dp)));
+    v = mul4(g.mring.data() + 16 * ((g.head - h) & 3), s, v);
+  }
+  _mm256_storeu_pd(g.guess.data(), v);
+
+  const int slot = (g.head + 1) & 3;
+  port_set& trial = g.trial();
+  double* mt = g.mring.data() + 16 * slot;
+  const double tol = opt_.tol_v;
+  const detail::device_consts& dv0 = g.dev[0];
+  const detail::device_consts& dv1 = g.dev[1];
+  int evals = 0;
+  bool accepted = false;
+  double rn_base = 0.0;
+  __m256d base = v, step = _mm256_setzero_pd(), restart = v;
+  const int inline_iterations = std::min(opt_.max_iterations, pair_inline_iterations);
+  int it = 0;
+  for (; it < inline_iterations; ++it) {
+    alignas(32) double vv[4];
+    _mm256_store_pd(vv, v);
+    const detail::port_currents c0 = detail::evaluate_ports(dv0, vv[0], vv[1]);
+    const detail::port_currents c1 = detail::evaluate_ports(dv1, vv[2], vv[3]);
+    ++evals;
+    __m256d r = _mm256_sub_pd(p, v);
+    r = _mm256_fmadd_pd(_mm256_loadu_pd(f), _mm256_set1_pd(c0.igs_a), r);
+    r = _mm256_fmadd_pd(_mm256_loadu_pd(f + 4), _mm256_set1_pd(c0.igd_a), r);
+    r = _mm256_fmadd_pd(_mm256_loadu_pd(f + 8), _mm256_set1_pd(c0.id_a), r);
+    r = _mm256_fmadd_pd(_mm256_loadu_pd(f + 12), _mm256_set1_pd(c1.igs_a), r);
+    r = _mm256_fmadd_pd(_mm256_loadu_pd(f + 16), _mm256_set1_pd(c1.igd_a), r);
+    r = _mm256_fmadd_pd(_mm256_loadu_pd(f + 20), _mm256_set1_pd(c1.id_a), r);
+    const double rn = hmax_abs(r);
+    // The second iteration's damping test (detail::halve_step): a step to halve goes to
+    // solve_general.
+    if (!std::isfinite(rn) || (it > 0 && detail::halve_step(true, rn, rn_base, tol, 0))) {
+      // solve_general from the halved step (the damped Newton's next point), or from the
+      // warm start where the first residual was not finite.
+      restart = it > 0 ? _mm256_fmadd_pd(_mm256_set1_pd(0.5), step, base) : restart;
+      break;
+    }
+    restart = v;
+
+    // I - F Jf by columns, into the point's factor storage, and its block factors.
+    double* jd = trial.lu.data();
+    const __m256d f0 = _mm256_loadu_pd(f), f1 = _mm256_loadu_pd(f + 4), f2 = _mm256_loadu_pd(f + 8);
+    const __m256d f3 = _mm256_loadu_pd(f + 12), f4 = _mm256_loadu_pd(f + 16), f5 = _mm256_loadu_pd(f + 20);
+    __m256d j0 = _mm256_mul_pd(f0, _mm256_set1_pd(c0.ggs_s));
+    j0 = _mm256_fmadd_pd(f1, _mm256_set1_pd(c0.ggd_s), j0);
+    j0 = _mm256_fmadd_pd(f2, _mm256_set1_pd(c0.gm_s), j0);
+    __m256d j1 = _mm256_mul_pd(f2, _mm256_set1_pd(c0.gds_s));
+    j1 = _mm256_fnmadd_pd(f1, _mm256_set1_pd(c0.ggd_s), j1);
+    __m256d j2 = _mm256_mul_pd(f3, _mm256_set1_pd(c1.ggs_s));
+    j2 = _mm256_fmadd_pd(f4, _mm256_set1_pd(c1.ggd_s), j2);
+    j2 = _mm256_fmadd_pd(f5, _mm256_set1_pd(c1.gm_s), j2);
+    __m256d j3 = _mm256_mul_pd(f5, _mm256_set1_pd(c1.gds_s));
+    j3 = _mm256_fnmadd_pd(f4, _mm256_set1_pd(c1.ggd_s), j3);
+    _mm256_storeu_pd(jd, _mm256_sub_pd(_mm256_setr_pd(1.0, 0.0, 0.0, 0.0), j0));
+    _mm256_storeu_pd(jd + 4, _mm256_sub_pd(_mm256_setr_pd(0.0, 1.0, 0.0, 0.0), j1));
+    _mm256_storeu_pd(jd + 8, _mm256_sub_pd(_mm256_setr_pd(0.0, 0.0, 1.0, 0.0), j2));
+    _mm256_storeu_pd(jd + 12, _mm256_sub_pd(_mm256_setr_pd(0.0, 0.0, 0.0, 1.0), j3));
+    if (!pair_factor(jd)) break;
+    trial.blocked = true;
+    trial.torn = false;
+    pair_inverse(jd, mt);
+    alignas(32) double rv[4];
+    _mm256_store_pd(rv, r);
+    const __m256d d = mul4(mt, rv, _mm256_setzero_pd());
+    alignas(32) double dd[4];
+    _mm256_store_pd(dd, d);
+    if (!std::isfinite(dd[0] + dd[1] + dd[2] + dd[3])) break;
+    // A junction landing above vcrit may need limiting: solve_general.
+    if (vv[0] + dd[0] > dv0.vcrit_v || (vv[0] - vv[1]) + (dd[0] - dd[1]) > dv0.vcrit_v ||
+        vv[2] + dd[2] > dv1.vcrit_v || (vv[2] - vv[3]) + (dd[2] - dd[3]) > dv1.vcrit_v)
+      break;
+    const __m256d vn = _mm256_add_pd(v, d);
+    if (detail::small_junction_steps(dv0, dd[0], dd[0] - dd[1]) &&
+        detail::small_junction_steps(dv1, dd[2], dd[2] - dd[3])) {
+      alignas(32) double vnv[4];
+      _mm256_store_pd(vnv, vn);
+      const detail::step_remainders s0 = detail::remainders_of(dv0, c0, vnv[0], vnv[1], dd[0], dd[1]);
+      const detail::step_remainders s1 = detail::remainders_of(dv1, c1, vnv[2], vnv[3], dd[2], dd[3]);
+      // As solve_general's try_accept: the rounding of each row, allowed up to the
+      // allowance; t the residual bound less what is allowed; then |M| t.
+      __m256d al = _mm256_add_pd(abs4(p), abs4(vn));
+      __m256d t = _mm256_loadu_pd(g.skip_t.data());
+      const double mags[6] = {s0.mag[0], s0.mag[1], s0.mag[2], s1.mag[0], s1.mag[1], s1.mag[2]};
+      const double rems[6] = {s0.rem[0], s0.rem[1], s0.rem[2], s1.rem[0], s1.rem[1], s1.rem[2]};
+      __m256d fm = _mm256_setzero_pd();
+      for (int c = 0; c < 6; ++c) {
+        const __m256d fc = _mm256_loadu_pd(fa + 4 * c);
+        fm = _mm256_fmadd_pd(fc, _mm256_set1_pd(mags[c]), fm);
+        t = _mm256_fmadd_pd(fc, _mm256_set1_pd(rems[c]), t);
+      }
+      al = _mm256_mul_pd(_mm256_set1_pd(detail::acceptance_round_k), _mm256_add_pd(fm, al));
+      t = _mm256_add_pd(t, _mm256_max_pd(_mm256_sub_pd(al, _mm256_set1_pd(detail::rounding_allowance_v)),
+                                         _mm256_setzero_pd()));
+      alignas(32) double tv[4];
+      _mm256_store_pd(tv, t);
+      if (std::max(std::max(tv[0], tv[1]), std::max(tv[2], tv[3])) <= tol) {
+        __m256d e = _mm256_mul_pd(abs4(_mm256_load_pd(mt)), _mm256_broadcast_sd(tv));
+        e = _mm256_fmadd_pd(abs4(_mm256_load_pd(mt + 4)), _mm256_broadcast_sd(tv + 1), e);
+        e = _mm256_fmadd_pd(abs4(_mm256_load_pd(mt + 8)), _mm256_broadcast_sd(tv + 2), e);
+        e = _mm256_fmadd_pd(abs4(_mm256_load_pd(mt + 12)), _mm256_broadcast_sd(tv + 3), e);
+        if (hmax_abs(e) <= tol && opt_.confirm) [[unlikely]] {
+          // Confirm mode, as solve_general: the exact devices (no far-reverse skip) at the
+          // point, whose residual must be below tol_v plus the row's rounding allowance.
+          detail::device_consts x0 = dv0, x1 = dv1;
+          x0.skip_arg = x1.skip_arg = detail::junction_deep_reverse;
+          const detail::port_currents k0 = detail::evaluate_ports(x0, vnv[0], vnv[1]);
+          const detail::port_currents k1 = detail::evaluate_ports(x1, vnv[2], vnv[3]);
+          ++evals;
+          const double ik[6] = {k0.igs_a, k0.igd_a, k0.id_a, k1.igs_a, k1.igd_a, k1.id_a};
+          __m256d q = _mm256_sub_pd(p, vn);
+          for (int c = 0; c < 6; ++c) q = _mm256_fmadd_pd(_mm256_loadu_pd(f + 4 * c), _mm256_set1_pd(ik[c]), q);
+          const __m256d lim = _mm256_add_pd(_mm256_set1_pd(tol), _mm256_min_pd(al, _mm256_set1_pd(detail::rounding_allowance_v)));
+          if (_mm256_movemask_pd(_mm256_cmp_pd(abs4(q), lim, _CMP_LE_OQ)) != 15) {
+            ++stats_.bound_misses;
+          } else {
+            _mm256_storeu_pd(trial.v.data(), vn);
+            std::copy_n(ik, 6, trial.i.data());
+            put_block(trial.jf, 0, k0);
+            put_block(trial.jf, 1, k1);
+            accepted = true;
+            break;
+          }
+        } else if (hmax_abs(e) <= tol) {
+          _mm256_storeu_pd(trial.v.data(), vn);
+          double* i = trial.i.data();
+          i[0] = c0.igs_a + c0.ggs_s * dd[0];
+          i[1] = c0.igd_a + c0.ggd_s * (dd[0] - dd[1]);
+          i[2] = c0.id_a + s0.id_lin_d;
+          i[3] = c1.igs_a + c1.ggs_s * dd[2];
+          i[4] = c1.igd_a + c1.ggd_s * (dd[2] - dd[3]);
+          i[5] = c1.id_a + s1.id_lin_d;
+          put_block(trial.jf, 0, c0);
+          put_block(trial.jf, 1, c1);
+          accepted = true;
+          break;
+        }
+      }
+    }
+    rn_base = rn;
+    base = v;
+    step = d;
+    v = vn;
+    restart = vn;
+  }
+  if (!accepted) [[unlikely]] {
+    // Where the two iterations stopped (see above): solve_general goes on from there.
+    _mm256_storeu_pd(g.guess.data(), restart);
+    // All of max_iterations made here: the attempt has failed, as solve_general's would.
+    pair_rest(evals, it == opt_.max_iterations);
+  }
+
+  g.head = slot;
+  _mm256_storeu_pd(g.p_last.data(), p);
+
+  // The current columns of W times i - i_dc, onto the pre-computed part.
+  {
+    const double* __restrict i_dc = g.dc.i.data();
+    const double* __restrict il = g.last().i.data();
+    for (int c = 0; c < 6; ++c) x_in[ns + 2 + c] = il[c] - i_dc[c];
+    update_wide(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2, 6,
+                g.out.data());
+    const double* __restrict o = g.out.data();
+    int row = 0;
+    for (; row + 4 <= ns; row += 4)
+      _mm256_storeu_pd(x_in + row, _mm256_add_pd(_mm256_loadu_pd(x_in + row), _mm256_load_pd(o + row)));
+    for (; row < ns; ++row) x_in[row] += o[row];
+    _mm256_storeu_pd(g.q.data(), _mm256_loadu_pd(o + ns));
+  }
+  ++stats_.samples;
+  stats_.evaluations += evals;
+  stats_.max_evaluations = std::max(stats_.max_evaluations, evals);
+  return sign_ * (g.y_dc + g.out.data()[ns + 4]);
+}
+
+#if defined(PINCHOFF_NO_FLATTEN)
+#define PINCHOFF_DK_PAIR_FLATTEN
+#else
+#define PINCHOFF_DK_PAIR_FLATTEN flatten,
+#endif
+__attribute__((PINCHOFF_DK_PAIR_FLATTEN target("avx2,fma"))) void general_solver::block_pair(const double* in, double* out,
+                                                                               std::size_t n) noexcept {
+  for (std::size_t k = 0; k < n; ++k) out[k] = process_pair(in[k]);
+}
+#undef PINCHOFF_DK_PAIR_FLATTEN
+#endif
+
 void general_solver::process(const double* in, double* out, std::size_t n) noexcept {
+#if PINCHOFF_DK_PAIR
+  if (pair_) return block_pair(in, out, n);
+#endif
 #if PINCHOFF_DK_GENERAL_WIDE
+  // (Two JFETs with AVX2 + FMA take the pair loop above, unless the factors are to be
+  // pivoted always: then the portable loop.)
   if (wide_) {
     switch (m_.devices) {
-      case 2: return block_wide<2>(in, out, n);
       case 3: return block_wide<3>(in, out, n);
       case 4: return block_wide<4>(in, out, n);
       case 5: return block_wide<5>(in, out, n);

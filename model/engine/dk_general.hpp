@@ -5,7 +5,10 @@
 // (dk_general.cpp); from three JFETs each Newton step is tried torn first (stage by stage,
 // the coupling between the stages inside the acceptance bound). The same acceptance bound,
 // junction limiting, sub-stepping and DC start as the one-JFET solver (model/engine/
-// dk_acceptance.hpp, dk_steps.hpp). It meets the dk_solver interface (dk_solver.hpp) and
+// dk_acceptance.hpp, dk_steps.hpp). Two JFETs on a processor with AVX2 + FMA take a sample
+// loop of their own (process_pair: the four port voltages in one register, dv/dp kept in
+// full), which hands what it does not settle in four Newton iterations to the general one.
+// It meets the dk_solver interface (dk_solver.hpp) and
 // nothing else of the engine depends on its inside, so it can be replaced by any solver
 // that meets that interface. Every size is fixed when it is built: a sample allocates
 // nothing.
@@ -32,7 +35,9 @@ class general_solver : public dk_solver_base {
   Eigen::Vector2d ports_network_v(int device) const noexcept {
     return Eigen::Vector2d(g_.last().v.segment<2>(2 * device));
   }
-  const char* sample_loop() const noexcept { return wide_ && m_.devices <= 6 ? "AVX2+FMA" : "portable"; }
+  const char* sample_loop() const noexcept {
+    return pair_ ? "AVX2+FMA, two-JFET" : wide_ && m_.devices >= 3 && m_.devices <= 6 ? "AVX2+FMA" : "portable";
+  }
 
  private:
   struct port_set {
@@ -69,6 +74,9 @@ class general_solver : public dk_solver_base {
     port_set& back(int n) noexcept { return ring[(head - n) & 3]; }
     port_set& trial() noexcept { return ring[(head + 1) & 3]; }
     Eigen::VectorXd mdl;                        // the warm start's products
+    // Two JFETs (process_pair): dv/dp = (I - F Jf)^-1 of each ring point in full, 4 x 4
+    // column-major, 16 doubles a slot in the ring's order.
+    detail::aligned_doubles mring;
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
     Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M
     Eigen::MatrixXd track_lu;                   // track() after a torn point: I - F Jf's factors
@@ -87,10 +95,18 @@ class general_solver : public dk_solver_base {
   bool solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& guess, port_set& out, int& evals) noexcept;
   template <int K>
   void substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept;
+  // Two JFETs with AVX2 + FMA: the sample with the four port voltages in one register and
+  // dv/dp kept in full (dk_general.cpp, process_pair); what it does not settle in two
+  // Newton iterations goes to solve_general<2>.
+  double process_pair(double generator_v) noexcept;
+  void block_pair(const double* in, double* out, std::size_t n) noexcept;
+  void pair_m_of(int slot) noexcept;
+  void pair_rest(int& evals, bool attempt_failed) noexcept;
 
   // Warm start: weights of dv/dp at the last three samples (detail::warm_start_weights).
   std::array<double, 3> warm_{};
   bool wide_{false};  // the state update's AVX2 + FMA kernel (dk_general.cpp)
+  bool pair_{false};  // two JFETs: process_pair (dk_general.cpp)
   int torn_holdoff_{0};   // samples left to solve from the factors after a torn step fell back (dk_general.cpp)
   int torn_predict_{1};   // sweeps of the warm start's prediction from a torn point (dk_general.cpp)
   storage g_;

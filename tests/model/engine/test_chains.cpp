@@ -19,6 +19,7 @@
 #include "model/circuit/nodal.hpp"
 #include "model/circuit/operating_point.hpp"
 #include "model/engine/dk_engine.hpp"
+#include "model/engine/dk_steps.hpp"
 #include "model/engine/transient_reference.hpp"
 #include "support/engine_vs_reference.hpp"
 
@@ -250,8 +251,41 @@ TEST_CASE("chains of two to seven stages: Newton steps factored by 2 x 2 blocks 
         // (confirm mode evaluates the devices there).
         CHECK(checked.stats().bound_misses == 0);
         CHECK(checked.stats().failed == 0);
+        // Two JFETs on a processor with AVX2 + FMA: these are the two-JFET loop's samples
+        // (model/engine/dk_general.cpp, process_pair), the pivoted ones the portable loop's.
+        if (k == 2 && model::detail::wide_kernels_available()) {
+          CHECK(std::string(blocks.sample_loop()) == "AVX2+FMA, two-JFET");
+          CHECK(std::string(checked.sample_loop()) == "AVX2+FMA, two-JFET");
+          CHECK(std::string(pivots.sample_loop()) == "portable");
+        }
       }
     }
+  }
+}
+
+TEST_CASE("two stages, three Newton iterations an attempt: the samples that need more are sub-stepped and still follow the reference") {
+  // With max_iterations = 3 the two-JFET loop's own iterations are the whole attempt: a
+  // sample they do not settle goes straight to the sub-steps (detail::substep), whose last
+  // part solves the sample's own equations, so the output is still the reference's to the
+  // engine's 1e-9 V.
+  model::dk_options few;
+  few.max_iterations = 3;
+  for (const bool dc : {false, true}) {
+    test::cascade_options o;
+    o.dc_follower = dc;
+    o.rail_filters = true;
+    const model::network net = test::cascade(2, o);
+    const model::operating_point op = model::solve_operating_point(net);
+    CAPTURE(dc);
+    model::dk_engine eng(net, op, fs_hz, few);
+    for (int n = 0; n < 1600; ++n) eng.process(20.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / fs_hz));
+    CHECK(eng.stats().substepped > 0);
+    CHECK(eng.stats().failed == 0);
+    CHECK(eng.stats().max_evaluations > 3);
+    const test::side_by_side c = run_chain(net, 20.0, 1600, few);
+    CHECK(c.worst_output_v <= 1e-9);
+    CHECK(c.worst_ports_v <= 1e-9);
+    CHECK(c.engine_failed == 0);
   }
 }
 
