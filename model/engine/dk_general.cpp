@@ -705,6 +705,10 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     v->setZero(np);
   g.rem.setZero(ni);
   g.mag.setZero(ni);
+  g.corr_q.setZero(ni);
+  g.corr_r.setZero(ni);
+  g.corr_e.setZero(np);
+  g.corr_t.setZero(np);
   for (port_set* s : {&g.ring[0], &g.ring[1], &g.ring[2], &g.ring[3], &g.dc, &g.cur_pt, &g.next_pt}) s->resize(k);
   g.mdl.setZero(np);
   pair_ = PINCHOFF_DK_PAIR && opt_.wide_kernels && detail::wide_kernels_available() && k == 2 && opt_.block_factors;
@@ -946,6 +950,55 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
     // Returns accept_yes (out holds the accepted point), accept_no, accept_sweep (a torn
     // step that another sweep may make acceptable) or accept_full (a torn step whose bound
     // cannot be had from J's blocks: factor J).
+    // The correction of a point the factored step accepts (detail::correction_floor): the
+    // step e = J^-1 F R from v + d, R the junctions' remainders themselves (by their
+    // series), and the point v + d + e with the junctions' currents i(v + d) + Jf e and the
+    // channels' linearised ones, where the bound on the residual there (|F| R' + the
+    // rest of t, R' from detail::correction_remainders) and on the error (from the
+    // factors, as the acceptance) are below tol_v. False: not taken (out unchanged).
+    auto correct_point = [&]() noexcept -> bool {
+      Eigen::Map<vec_i> cq(g.corr_q.data(), ni), cr(g.corr_r.data(), ni);
+      Eigen::Map<vec_p> ce(g.corr_e.data(), np);
+      for (int j = 0; j < k; ++j) {
+        const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
+        if (!detail::correction_applies(dv, v[2 * j], v[2 * j + 1], 0.0, 0.0)) return false;
+        const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
+        cq[3 * j] = detail::junction_remainder(c.ggs_s, dv, d[2 * j]);
+        cq[3 * j + 1] = detail::junction_remainder(c.ggd_s, dv, d[2 * j] - d[2 * j + 1]);
+        cq[3 * j + 2] = 0.0;
+      }
+      product_n<lu_size_of(K), false>(f.data(), np, ni, cq.data(), ce.data());
+      factors_solve_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), out.blocked, ce.data());
+      for (int j = 0; j < k; ++j) {
+        const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
+        const double e0 = ce[2 * j], e1 = ce[2 * j + 1];
+        if (!detail::correction_applies(dv, v[2 * j], v[2 * j + 1], e0, e1)) return false;
+        const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
+        const double d0 = d[2 * j], d1 = d[2 * j + 1];
+        const double id_end = c.id_a + (c.gm_s * d0 + c.gds_s * d1);
+        detail::correction_remainders(dv, c, d0, d1, e0, e1, v[2 * j] + d0 + e0, v[2 * j + 1] + d1 + e1, id_end,
+                                      cr.data() + 3 * j);
+      }
+      product_n<lu_size_of(K), false>(f_abs.data(), np, ni, cr.data(), bound.data());
+      bound += Eigen::Map<const vec_p>(g.corr_t.data(), np);
+      if (!(bound.maxCoeff() <= tol)) return false;
+      if (out.blocked)
+        block_abs_bound_n<lu_size_of(K)>(out.lu.data(), np, bound.data());
+      else
+        abs_bound_n<lu_size_of(K)>(out.lu.data(), np, out.piv.data(), bound.data());
+      if (!(bound.maxCoeff() <= tol)) return false;
+      Eigen::Map<vec_p>(out.v.data(), np) = v + d + ce;
+      for (int j = 0; j < k; ++j) {
+        const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
+        const double d0 = d[2 * j], d1 = d[2 * j + 1], e0 = ce[2 * j], e1 = ce[2 * j + 1];
+        i[3 * j] = c.igs_a + c.ggs_s * (d0 + e0) + cq[3 * j];
+        i[3 * j + 1] = c.igd_a + c.ggd_s * ((d0 - d1) + (e0 - e1)) + cq[3 * j + 1];
+        i[3 * j + 2] = c.id_a + (c.gm_s * d0 + c.gds_s * d1) + (c.gm_s * e0 + c.gds_s * e1);
+        put_block(out.jf, j, c);
+      }
+      return true;
+    };
+
     enum { accept_no, accept_yes, accept_sweep, accept_full };
     auto try_accept = [&](const double* coupling) noexcept -> int {
       for (int j = 0; j < k; ++j) {
@@ -961,9 +1014,22 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       // what is allowed (so t <= tol_v is the test of the residual).
       product_n<lu_size_of(K), false>(f_abs.data(), np, ni, mag.data(), allowed.data());
       allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
+      // The junctions' part of |F| R, for the correction's test (two JFETs only, below).
+      double junctions_most = 0.0;
+      if (k == 2 && opt_.correct_junctions) {
+        Eigen::Map<vec_i> cq(g.corr_q.data(), ni);
+        for (int j = 0; j < k; ++j) {
+          cq[3 * j] = rem[3 * j];
+          cq[3 * j + 1] = rem[3 * j + 1];
+          cq[3 * j + 2] = 0.0;
+        }
+        product_n<lu_size_of(K), false>(f_abs.data(), np, ni, cq.data(), g.corr_e.data());
+        junctions_most = Eigen::Map<const vec_p>(g.corr_e.data(), np).maxCoeff();
+      }
       product_n<lu_size_of(K), false>(f_abs.data(), np, ni, rem.data(), t.data());
-      t += Eigen::Map<const vec_p>(g.skip_t.data(), np);
-      t += (allowed.array() - rounding_allowance_v).max(0.0).matrix();
+      Eigen::Map<vec_p> rest(g.corr_t.data(), np);  // skip_t and the rounding beyond the allowance
+      rest = Eigen::Map<const vec_p>(g.skip_t.data(), np) + (allowed.array() - rounding_allowance_v).max(0.0).matrix();
+      t += rest;
       allowed = allowed.cwiseMin(rounding_allowance_v);
       bool sweep_may_help = false;
       if (coupling) {
@@ -1017,6 +1083,15 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         for (int j = 0; j < k; ++j) put_block(out.jf, j, g.cur[static_cast<std::size_t>(j)]);
         return accept_yes;
       }
+      // The correction (detail::correction_floor says why), where the remainders move the
+      // point by more than a thousandth of tol_v and its own bound holds; at two JFETs
+      // only. From three, a sample's step may be torn (it solves the linearised equations
+      // only up to its coupling, and takes no correction) or factored, and which one a
+      // sample takes differs between the kernel sets; with the correction on the factored
+      // steps alone their points would part by up to the correction.
+      if (!coupling && k == 2 && junctions_most > detail::correction_floor * tol && opt_.correct_junctions &&
+          correct_point()) [[unlikely]]
+        return accept_yes;
       Eigen::Map<vec_p>(out.v.data(), np) = v + d;
       for (int j = 0; j < k; ++j) {
         const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
@@ -1271,6 +1346,76 @@ __attribute__((target("avx2,fma"), always_inline)) inline __m256d mul4(const dou
   y = _mm256_fmadd_pd(_mm256_load_pd(a + 8), _mm256_broadcast_sd(x + 2), y);
   return _mm256_fmadd_pd(_mm256_load_pd(a + 12), _mm256_broadcast_sd(x + 3), y);
 }
+// |A| x (x >= 0) for a 4 x 4 column-major A.
+__attribute__((target("avx2,fma"), always_inline)) inline __m256d mul4_abs(const double* a, const double* x) noexcept {
+  __m256d y = _mm256_mul_pd(abs4(_mm256_load_pd(a)), _mm256_broadcast_sd(x));
+  y = _mm256_fmadd_pd(abs4(_mm256_load_pd(a + 4)), _mm256_broadcast_sd(x + 1), y);
+  y = _mm256_fmadd_pd(abs4(_mm256_load_pd(a + 8)), _mm256_broadcast_sd(x + 2), y);
+  return _mm256_fmadd_pd(abs4(_mm256_load_pd(a + 12)), _mm256_broadcast_sd(x + 3), y);
+}
+
+struct pair_out {
+  double* v;  // 4 port voltages
+  double* i;  // 6 currents
+};
+
+// The correction of an accepted two-JFET point (detail::correction_floor): the step
+// e = M F R from vn = v + d, R the junctions' remainders themselves; the point vn + e with
+// the junctions' currents i(vn) + Jf e and the channels' linearised ones is stored in
+// `out` where the bound on the residual there,
+// |F| R' + the rest of t (skip_t and the rounding beyond the allowance: `excess`), and
+// |M| times it are below tol_v (R': detail::correction_remainders). False: not taken.
+__attribute__((target("avx2,fma"), noinline)) bool pair_correct(
+    const detail::device_consts& dv0, const detail::device_consts& dv1, const detail::port_currents& c0,
+    const detail::port_currents& c1, const detail::step_remainders& s0, const detail::step_remainders& s1,
+    const double* vv, const double* dd, __m256d vn, const double* mt, const double* f,
+    const double* fa, __m256d excess, double tol, pair_out out) noexcept {
+  // The junctions' part of the bound, |M| |F| R_junctions, against the floor.
+  {
+    const double rj[6] = {s0.rem[0], s0.rem[1], 0.0, s1.rem[0], s1.rem[1], 0.0};
+    __m256d tj = _mm256_setzero_pd();
+    for (int c = 0; c < 6; ++c) tj = _mm256_fmadd_pd(_mm256_loadu_pd(fa + 4 * c), _mm256_set1_pd(rj[c]), tj);
+    alignas(32) double tjv[4];
+    _mm256_store_pd(tjv, tj);
+    if (!(hmax_abs(mul4_abs(mt, tjv)) > detail::correction_floor * tol)) return false;
+  }
+  if (!detail::correction_applies(dv0, vv[0], vv[1], 0.0, 0.0) || !detail::correction_applies(dv1, vv[2], vv[3], 0.0, 0.0))
+    return false;
+  const double q[6] = {detail::junction_remainder(c0.ggs_s, dv0, dd[0]),
+                       detail::junction_remainder(c0.ggd_s, dv0, dd[0] - dd[1]), 0.0,
+                       detail::junction_remainder(c1.ggs_s, dv1, dd[2]),
+                       detail::junction_remainder(c1.ggd_s, dv1, dd[2] - dd[3]), 0.0};
+  __m256d fr = _mm256_setzero_pd();
+  for (int c = 0; c < 6; ++c) fr = _mm256_fmadd_pd(_mm256_loadu_pd(f + 4 * c), _mm256_set1_pd(q[c]), fr);
+  alignas(32) double frv[4], ev[4], vcv[4];
+  _mm256_store_pd(frv, fr);
+  const __m256d e = mul4(mt, frv, _mm256_setzero_pd());
+  _mm256_store_pd(ev, e);
+  if (!detail::correction_applies(dv0, vv[0], vv[1], ev[0], ev[1]) ||
+      !detail::correction_applies(dv1, vv[2], vv[3], ev[2], ev[3]))
+    return false;
+  const __m256d vc = _mm256_add_pd(vn, e);
+  _mm256_store_pd(vcv, vc);
+  const double id0 = c0.id_a + s0.id_lin_d, id1 = c1.id_a + s1.id_lin_d;
+  double r[6];
+  detail::correction_remainders(dv0, c0, dd[0], dd[1], ev[0], ev[1], vcv[0], vcv[1], id0, r);
+  detail::correction_remainders(dv1, c1, dd[2], dd[3], ev[2], ev[3], vcv[2], vcv[3], id1, r + 3);
+  __m256d t = excess;
+  for (int c = 0; c < 6; ++c) t = _mm256_fmadd_pd(_mm256_loadu_pd(fa + 4 * c), _mm256_set1_pd(r[c]), t);
+  alignas(32) double tv[4];
+  _mm256_store_pd(tv, t);
+  if (!(std::max(std::max(tv[0], tv[1]), std::max(tv[2], tv[3])) <= tol) || !(hmax_abs(mul4_abs(mt, tv)) <= tol))
+    return false;
+  _mm256_storeu_pd(out.v, vc);
+  double* i = out.i;
+  i[0] = c0.igs_a + c0.ggs_s * (dd[0] + ev[0]) + q[0];
+  i[1] = c0.igd_a + c0.ggd_s * (dd[0] - dd[1] + ev[0] - ev[1]) + q[1];
+  i[2] = id0 + c0.gm_s * ev[0] + c0.gds_s * ev[1];
+  i[3] = c1.igs_a + c1.ggs_s * (dd[2] + ev[2]) + q[3];
+  i[4] = c1.igd_a + c1.ggd_s * (dd[2] - dd[3] + ev[2] - ev[3]) + q[4];
+  i[5] = id1 + c1.gm_s * ev[2] + c1.gds_s * ev[3];
+  return true;
+}
 }  // namespace
 
 // The sanitizer tree (PINCHOFF_RUNTIME_SIZES) compiles the general Newton at run-time size only.
@@ -1395,15 +1540,17 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       __m256d t = _mm256_loadu_pd(g.skip_t.data());
       const double mags[6] = {s0.mag[0], s0.mag[1], s0.mag[2], s1.mag[0], s1.mag[1], s1.mag[2]};
       const double rems[6] = {s0.rem[0], s0.rem[1], s0.rem[2], s1.rem[0], s1.rem[1], s1.rem[2]};
-      __m256d fm = _mm256_setzero_pd();
+      __m256d fm = _mm256_setzero_pd(), tr = _mm256_setzero_pd();
       for (int c = 0; c < 6; ++c) {
         const __m256d fc = _mm256_loadu_pd(fa + 4 * c);
         fm = _mm256_fmadd_pd(fc, _mm256_set1_pd(mags[c]), fm);
-        t = _mm256_fmadd_pd(fc, _mm256_set1_pd(rems[c]), t);
+        tr = _mm256_fmadd_pd(fc, _mm256_set1_pd(rems[c]), tr);
       }
       al = _mm256_mul_pd(_mm256_set1_pd(detail::acceptance_round_k), _mm256_add_pd(fm, al));
-      t = _mm256_add_pd(t, _mm256_max_pd(_mm256_sub_pd(al, _mm256_set1_pd(detail::rounding_allowance_v)),
-                                         _mm256_setzero_pd()));
+      const __m256d excess =
+          _mm256_add_pd(t, _mm256_max_pd(_mm256_sub_pd(al, _mm256_set1_pd(detail::rounding_allowance_v)),
+                                         _mm256_setzero_pd()));  // skip_t and the rounding beyond the allowance
+      t = _mm256_add_pd(tr, excess);
       alignas(32) double tv[4];
       _mm256_store_pd(tv, t);
       if (std::max(std::max(tv[0], tv[1]), std::max(tv[2], tv[3])) <= tol) {
@@ -1434,6 +1581,17 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
             break;
           }
         } else if (hmax_abs(e) <= tol) {
+          // The correction (detail::correction_floor says why), where the remainders move
+          // the point by more than a thousandth of tol_v and its own bound holds.
+          // (A junction taken as -is has no conductance and no remainder: at rest all are.)
+          if ((c0.ggs_s > 0.0 || c0.ggd_s > 0.0 || c1.ggs_s > 0.0 || c1.ggd_s > 0.0) && opt_.correct_junctions &&
+              pair_correct(dv0, dv1, c0, c1, s0, s1, vv, dd, vn, mt, f, fa, excess, tol,
+                           pair_out{trial.v.data(), trial.i.data()})) [[unlikely]] {
+            put_block(trial.jf, 0, c0);
+            put_block(trial.jf, 1, c1);
+            accepted = true;
+            break;
+          }
           _mm256_storeu_pd(trial.v.data(), vn);
           double* i = trial.i.data();
           i[0] = c0.igs_a + c0.ggs_s * dd[0];

@@ -63,6 +63,8 @@ class general_solver : public dk_solver_base {
     double y_dc{0};                             // the output at the DC point, network frame
     Eigen::VectorXd v, r, d, base, step, rem, t, bound, pc, pj, guess;
     Eigen::VectorXd allowed, mag;               // the acceptance's rounding: per row, per current
+    Eigen::VectorXd corr_q, corr_r;             // the correction (dk_general.cpp): remainders, their change bounds (3k)
+    Eigen::VectorXd corr_e, corr_t;             // its step and the acceptance's rest of t (2k)
     // The accepted points of the last three samples and the one being solved, in a ring:
     // ring[head] the last, head - 1 and head - 2 the two before (the warm start's dv/dp from
     // their factors), head + 1 the trial. A sample moves head on; nothing is copied.

@@ -37,6 +37,11 @@ struct dk_options {
   /// The weight of that coupling in the acceptance bound: 1. Anything else makes the bound
   /// unsound; it exists so that a test can show the coupling is needed (0..1).
   double coupling_weight{1.0};
+  /// Two JFETs: correct an accepted point for its junctions' remainders (one more step
+  /// with the same matrix, no device evaluation; model/engine/dk_acceptance.hpp,
+  /// correction_floor), so that a state charged by gate conduction does not drift by their
+  /// sum over many samples. false exists so that a test can show the correction is needed.
+  bool correct_junctions{true};
 };
 
 struct dk_stats {
