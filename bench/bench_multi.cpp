@@ -1,6 +1,7 @@
-// Engine speed with more than one JFET: the DK engine's general path on chains of two to
-// six stages (fixtures/multi_device_networks.hpp: cascade, with per-stage rail filters and
-// interstage treble cuts and volume dividers) at 0.01 to 10 V peak, against the targets:
+// Engine speed with more than one JFET: the DK engine's general solver (two JFETs in a loop
+// of their own) on chains of two to six stages (fixtures/multi_device_networks.hpp: cascade,
+// with per-stage rail filters and interstage treble cuts and volume dividers) at 0.01 to
+// 10 V peak, against the targets:
 // real-time factor at 8x 48 kHz on one core (two stages 30x, aim 40x; three 20x, aim 30x;
 // four 15x), cost per JFET against the one-JFET path on one stage of the same chain (at
 // most 1.5x), and the speed-up over the nodal reference solver; beside them the real-time
@@ -101,10 +102,10 @@ void bench_multi_device() {
   const model::network one = test::cascade(1, opts);
   const model::operating_point op_one = model::solve_operating_point(one);
 
-  std::printf("DK engine on chains of stages (general path), %g kHz, %g Hz sine; per-stage rail filters,\n",
+  std::printf("DK engine on chains of stages (general solver; two stages in its two-JFET loop), %g kHz, %g Hz sine;\n",
               rate_hz / 1000.0, tone_hz);
-  std::printf("treble cut and volume divider between stages. per JFET = (chain time / stages) / one-stage time,\n");
-  std::printf("the chain and its first stage alone timed in turn, best of each.\n\n");
+  std::printf("per-stage rail filters, treble cut and volume divider between stages. per JFET = (chain time / stages)\n");
+  std::printf("/ one-stage time, the chain and its first stage alone timed in turn, best of each.\n\n");
   std::printf("%-7s %7s %6s %9s %8s %6s %7s %9s %9s\n", "stages", "drive", "states", "realtime", "iter/smp", "max",
               "failed", "per JFET", "speed-up");
   struct size_summary {
@@ -179,7 +180,7 @@ void bench_multi_device() {
     }
   }
 
-  std::printf("\nsame circuit twice: two independent copies (general path) against the single stage (2x2 path)\n");
+  std::printf("\nsame circuit twice: two independent copies (the two-JFET loop) against the single stage (one-JFET loop)\n");
   std::printf("%-28s %7s %14s %14s %12s\n", "network", "drive", "realtime twin", "realtime one", "cost ratio");
   const model::network single = test::stiff_booster();
   const model::network twin = test::twin_of(single, 1);

@@ -44,7 +44,9 @@ void bench_engine() {
   // The one-JFET target holds for single-stage presets; the chain presets have the chain
   // table's targets by stage count (bench_multi.cpp).
   double worst_rt = 1e300, worst_chain_rt = 1e300;
-  std::string loop_name = "?";
+  // The compiled sample loop that ran, by number of JFETs (the one-JFET loop, the two-JFET
+  // loop and the general one differ).
+  std::string loop_one = "?", loop_two = "-", loop_more = "-";
   for (const auto& path : presets) {
     const model::network net = model::build_network(model::read_stage_file(path));
     const model::operating_point op = model::solve_operating_point(net);
@@ -52,7 +54,7 @@ void bench_engine() {
       const std::vector<double> u = tone(drive, n_engine);
       std::vector<double> y(n_engine);
       model::dk_engine eng(net, op, rate_hz);
-      loop_name = eng.sample_loop();
+      (net.devices() == 1 ? loop_one : net.devices() == 2 ? loop_two : loop_more) = eng.sample_loop();
       double sink = 0.0;
       eng.process(u, y);  // a first block from the DC point, untimed
       const double t_engine = best_seconds(30, [&] {
@@ -80,5 +82,6 @@ void bench_engine() {
   if (worst_chain_rt < 1e300)
     std::printf("slowest chain preset: %.1fx real time (the chains' targets by stage count: the chain table below)\n",
                 worst_chain_rt);
-  std::printf("sample loop on this processor: %s\n", loop_name.c_str());
+  std::printf("sample loops on this processor: one JFET %s; two JFETs %s; three or more %s\n", loop_one.c_str(),
+              loop_two.c_str(), loop_more.c_str());
 }
