@@ -295,29 +295,7 @@ __attribute__((always_inline)) inline bool block_factor_n(double* a, int n_rt) n
   return true;
 }
 
-// block_factor_n<4> written out for two JFETs (the same factors, the same tests: each
-// diagonal block safely invertible alone, the multipliers at most 1e4), without the masked
-// whole columns the general size needs. a: I - F Jf, column-major, in place.
-__attribute__((always_inline)) inline bool pair_factor(double* a) noexcept {
-  if (!invert_block(a, 4)) return false;
-  const double i00 = a[0], i10 = a[1], i01 = a[4], i11 = a[5];
-  const double l00 = a[2] * i00 + a[6] * i10, l01 = a[2] * i01 + a[6] * i11;
-  const double l10 = a[3] * i00 + a[7] * i10, l11 = a[3] * i01 + a[7] * i11;
-  if (!(std::max(std::max(std::fabs(l00), std::fabs(l01)), std::max(std::fabs(l10), std::fabs(l11))) <= 1e4))
-    return false;
-  a[2] = l00;
-  a[3] = l10;
-  a[6] = l01;
-  a[7] = l11;
-  const double u00 = a[8], u10 = a[9], u01 = a[12], u11 = a[13];
-  a[10] -= l00 * u00 + l01 * u10;
-  a[11] -= l10 * u00 + l11 * u10;
-  a[14] -= l00 * u01 + l01 * u11;
-  a[15] -= l10 * u01 + l11 * u11;
-  return invert_block(a + 10, 4);
-}
-
-// M = (I - F Jf)^-1 in full from the factors of pair_factor (block_factor_n<4>): with
+// M = (I - F Jf)^-1 in full from the block factors of two JFETs (block_factor_n<4>): with
 // A = D1^-1, L = L21, U = U12, T = S^-1, M = [A + X L, -X; -T L, T], X = A U T.
 __attribute__((always_inline)) inline void pair_inverse(const double* jd, double* mt) noexcept {
   const double a00 = jd[0], a10 = jd[1], a01 = jd[4], a11 = jd[5];
@@ -1016,7 +994,12 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
       // The junctions' part of |F| R, for the correction's test (two JFETs only, below).
       double junctions_most = 0.0;
-      if (k == 2 && opt_.correct_junctions) {
+      bool junction_on = false;  // a junction taken as -is has no conductance and no remainder
+      for (int j = 0; j < k && k == 2; ++j) {
+        const detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
+        junction_on = junction_on || c.ggs_s > 0.0 || c.ggd_s > 0.0;
+      }
+      if (k == 2 && junction_on && opt_.correct_junctions) {
         Eigen::Map<vec_i> cq(g.corr_q.data(), ni);
         for (int j = 0; j < k; ++j) {
           cq[3 * j] = rem[3 * j];
@@ -1443,7 +1426,6 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   const double* fa = g.f_abs.data();
   const __m256d p = _mm256_fmadd_pd(_mm256_loadu_pd(m_.e.col(1).data()), _mm256_set1_pd(ug),
                                     _mm256_add_pd(_mm256_loadu_pd(g.p_dc.data()), _mm256_loadu_pd(g.q.data())));
-  _mm256_storeu_pd(g.p.data(), p);
 
   // Warm start (as process_k): the last solution moved along the step of p by M at the
   // last three points, Adams-Bashforth weights.
@@ -1457,7 +1439,6 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     _mm256_store_pd(s, _mm256_mul_pd(_mm256_set1_pd(wh), _mm256_load_pd(dp)));
     v = mul4(g.mring.data() + 16 * ((g.head - h) & 3), s, v);
   }
-  _mm256_storeu_pd(g.guess.data(), v);
 
   const int slot = (g.head + 1) & 3;
   port_set& trial = g.trial();
@@ -1513,7 +1494,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     _mm256_storeu_pd(jd + 4, _mm256_sub_pd(_mm256_setr_pd(0.0, 1.0, 0.0, 0.0), j1));
     _mm256_storeu_pd(jd + 8, _mm256_sub_pd(_mm256_setr_pd(0.0, 0.0, 1.0, 0.0), j2));
     _mm256_storeu_pd(jd + 12, _mm256_sub_pd(_mm256_setr_pd(0.0, 0.0, 0.0, 1.0), j3));
-    if (!pair_factor(jd)) break;
+    if (!block_factor_n<4>(jd, 4)) break;
     trial.blocked = true;
     trial.torn = false;
     pair_inverse(jd, mt);
@@ -1614,7 +1595,9 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     restart = vn;
   }
   if (!accepted) [[unlikely]] {
-    // Where the two iterations stopped (see above): solve_general goes on from there.
+    // Where the inline iterations stopped (see above): solve_general goes on from there,
+    // at this sample's p.
+    _mm256_storeu_pd(g.p.data(), p);
     _mm256_storeu_pd(g.guess.data(), restart);
     // All of max_iterations made here: the attempt has failed, as solve_general's would.
     pair_rest(evals, it == opt_.max_iterations);
