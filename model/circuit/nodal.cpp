@@ -9,6 +9,12 @@ namespace {
 // Node k's row in the unknown vector, or -1 for ground.
 inline int row(int node) noexcept { return node - 1; }
 
+// The full voltage of `node` for unknowns x: x itself, or the origin plus x when the
+// unknowns are offsets (mna_system::origin).
+inline double full_v(const mna_system& lin, const Eigen::VectorXd& x, int node) noexcept {
+  return lin.origin.size() == 0 ? node_v(x, node) : node_v(lin.origin, node) + node_v(x, node);
+}
+
 // Residual F = A x + i_nl(x) - rhs, plus a scale per row for the relative tolerance: the
 // componentwise backward error of Oettli & Prager (Numer. Math. 6, 1964), |F| against
 // |A| |x| + |rhs|, with each device's tangent conductances entering like the entries of A
@@ -19,6 +25,8 @@ inline int row(int node) noexcept { return node - 1; }
 // drain whose resistor carries microamperes: their currents nearly cancel, and the rounding
 // floor of the sum (one ulp of a 30 V node times their conductance of a siemens or so, a
 // few 1e-15 A) is far above a relative tolerance of the microamperes alone.
+// With an origin (offset unknowns) the linear part's scale is that of the system solved,
+// |A| |dx| + |rhs|; the devices count at their full terminal voltages, as they are evaluated.
 void residual(const network& net, const mna_system& lin, const Eigen::VectorXd& x, Eigen::VectorXd& f,
               Eigen::VectorXd& scale) {
   f = lin.a * x - lin.rhs;
@@ -29,7 +37,7 @@ void residual(const network& net, const mna_system& lin, const Eigen::VectorXd& 
     scale[row(node)] += std::fabs(a) + std::fabs(b) + conductance_times_v;
   };
   for (const net_jfet& q : net.jfets) {
-    const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
+    const double vd = full_v(lin, x, q.drain), vg = full_v(lin, x, q.gate), vs = full_v(lin, x, q.source);
     const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
     const junction_eval js = gate_source_current(q.device, vg - vs, net.vt_v);
     const junction_eval jd = junction_current(q.device, vg - vd, net.vt_v);
@@ -39,6 +47,28 @@ void residual(const network& net, const mna_system& lin, const Eigen::VectorXd& 
     add(q.drain, ch.id_a, -jd.i_a, gch + ggd);
     add(q.gate, js.i_a, jd.i_a, ggs + ggd);
     add(q.source, -ch.id_a, -js.i_a, gch + ggs);
+  }
+}
+
+// r = b - J x with every product and sum carried exactly to the end (Ogita, Rump & Oishi,
+// SIAM J. Sci. Comput. 26(6), 2005, algorithm Dot2: TwoProduct by fused multiply-add,
+// Knuth's TwoSum, the errors summed on the side): as accurate as in twice the working
+// precision, then rounded once. Where two nodes are tied by a conductance of siemens and
+// each swings by volts, the entries J x cancel terms of amperes, and the working-precision
+// sum loses eps times those amperes: over a node's megohms, a fraction of a nanovolt.
+void compensated_residual(const Eigen::MatrixXd& j, const Eigen::VectorXd& x, const Eigen::VectorXd& b,
+                          Eigen::VectorXd& r) {
+  const Eigen::Index n = b.size();
+  for (Eigen::Index i = 0; i < n; ++i) {
+    double s = b[i], err = 0.0;
+    for (Eigen::Index k = 0; k < n; ++k) {
+      const double a = -j(i, k), p = a * x[k];
+      const double ep = std::fma(a, x[k], -p);
+      const double t = s + p, z = t - s;
+      err += ((s - (t - z)) + (p - z)) + ep;
+      s = t;
+    }
+    r[i] = s + err;
   }
 }
 
@@ -126,7 +156,10 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
   // biased; each Newton step solves the network with the junctions replaced by their
   // tangent (Norton) at those voltages. The first evaluation starts at most at vcrit.
   // Every JFET has its own pair of limited junction voltages.
-  auto vpair = [&](const Eigen::VectorXd& v, int p, int q) { return node_v(v, p) - node_v(v, q); };
+  auto vpair = [&](const Eigen::VectorXd& v, int p, int q) { return full_v(lin, v, p) - full_v(lin, v, q); };
+  // The junctions' voltages at the origin (zero without one): the tangent of a junction
+  // taken at its limited full voltage, in the offset unknowns.
+  auto origin_pair = [&](int p, int q) { return lin.origin.size() == 0 ? 0.0 : node_v(lin.origin, p) - node_v(lin.origin, q); };
   struct junction_state {
     double nvt, vcrit, jgs, jgd;
   };
@@ -149,17 +182,18 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
       const net_jfet& q = net.jfets[k];
       const junction_state& st = js_state[k];
       const double vd = node_v(x, q.drain), vg = node_v(x, q.gate), vs = node_v(x, q.source);
-      const channel_eval ch = drain_current(q.device, vg - vs, vd - vs);
+      const channel_eval ch = drain_current(q.device, vpair(x, q.gate, q.source), vpair(x, q.drain, q.source));
       const junction_eval js = gate_source_current(q.device, st.jgs, net.vt_v);
       const junction_eval jd = junction_current(q.device, st.jgd, net.vt_v);
       const int nodes[3] = {q.drain, q.gate, q.source};
       const double did[3] = {ch.gds_s, ch.gm_s, -ch.gm_s - ch.gds_s};
       const double digs[3] = {0.0, js.g_s, -js.g_s};
       const double digd[3] = {-jd.g_s, jd.g_s, 0.0};
-      // Current of each element at the expansion point, minus its tangent times that point.
+      // Current of each element at the expansion point, minus its tangent times that point
+      // (in the unknowns' frame: vd, vg, vs are offsets when there is an origin).
       const double id0 = ch.id_a - (did[0] * vd + did[1] * vg + did[2] * vs);
-      const double igs0 = js.i_a - js.g_s * st.jgs;
-      const double igd0 = jd.i_a - jd.g_s * st.jgd;
+      const double igs0 = js.i_a - js.g_s * (st.jgs - origin_pair(q.gate, q.source));
+      const double igd0 = jd.i_a - jd.g_s * (st.jgd - origin_pair(q.gate, q.drain));
       auto add_rhs = [&](int node, double i) {
         if (node != 0) rhs[row(node)] -= i;
       };
@@ -176,12 +210,17 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
     }
     lu.compute(jac);
     x_new = lu.solve(rhs);
-    // One step of iterative refinement (Wilkinson; Golub & Van Loan, sec. 3.5.3): the
-    // iterate is solved for in absolute terms, and with the large companion conductances of
-    // a transient step the plain solve's rounding (about 1e-10 V on a 9 V node) sits above
-    // the 1e-12 V step tolerance, so Newton would never see its step fall below it.
-    rhs.noalias() -= jac * x_new;
-    x_new += lu.solve(rhs);
+    // One step of iterative refinement (Wilkinson; Golub & Van Loan, sec. 3.5.3): in
+    // absolute unknowns with large conductances the plain solve's rounding (about 1e-10 V
+    // on a 9 V node) sits above a 1e-12 V step tolerance, so Newton would never see its
+    // step fall below it. Cheap next to the factorisation, so it stays in either frame.
+    if (opt.compensated_refinement) {
+      compensated_residual(jac, x_new, rhs, f);
+      x_new += lu.solve(f);
+    } else {
+      rhs.noalias() -= jac * x_new;
+      x_new += lu.solve(rhs);
+    }
     if (!x_new.allFinite()) break;
 
     // Channel step limiting (in the spirit of SPICE's fetlim): the square law is only
@@ -197,8 +236,10 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
       if (scale_back < 1.0) x_new = x + scale_back * (x_new - x);
     }
     double worst_step = 0.0;
-    for (int k = 0; k < lin.node_unknowns; ++k)
-      worst_step = std::max(worst_step, std::fabs(x_new[k] - x[k]) / (opt.vtol_v + opt.vtol_rel * std::fabs(x_new[k])));
+    for (int k = 0; k < lin.node_unknowns; ++k) {
+      const double v = lin.origin.size() == 0 ? x_new[k] : lin.origin[k] + x_new[k];
+      worst_step = std::max(worst_step, std::fabs(x_new[k] - x[k]) / (opt.vtol_v + opt.vtol_rel * std::fabs(v)));
+    }
     x = x_new;
 
     bool limited = false, junctions_settled = true;

@@ -41,10 +41,16 @@ inline int inductor_current_unknown(const network& net, int j) noexcept { return
 /// One treatment per network capacitor, all the same.
 std::vector<cap_treatment> uniform_caps(const network& net, cap_treatment::kind how);
 
+/// The linear part A x + i(x) = rhs of a nodal solve. With an `origin` (a full solution
+/// vector of the same layout) the unknowns are offsets from it: A dx + i(origin + dx) = rhs,
+/// where rhs already holds the linear part's currents at the origin (the caller forms
+/// that once, see transient_reference). Large conductances then multiply small offsets, and
+/// the solution is not rounded at eps times their currents at the origin.
 struct mna_system {
   Eigen::MatrixXd a;    ///< square, node_unknowns + branch unknowns
   Eigen::VectorXd rhs;
   int node_unknowns{0};
+  Eigen::VectorXd origin;  ///< empty: the unknowns are absolute
 };
 
 /// Linear part of the network with the given capacitor treatments and source values
@@ -65,11 +71,17 @@ struct nodal_options {
   double vtol_rel{1e-9};
   double itol_a{1e-15};   ///< residual tolerance, plus itol_rel * largest branch current
   double itol_rel{1e-12};
+  /// Each Newton step's linear solve is refined once with its residual b - J x summed as
+  /// if in twice the working precision (error-free products and sums: Ogita, Rump & Oishi,
+  /// SIAM J. Sci. Comput. 26(6), 2005, Dot2), instead of in working precision.
+  bool compensated_refinement{false};
 };
 
 /// Solves the linear system plus every JFET by damped Newton with junction limiting.
 /// `v` holds all unknowns: on entry the starting guess, on exit the solution (or the last
-/// iterate when not converged).
+/// iterate when not converged); offsets from lin.origin when it is set. The devices always
+/// see full terminal voltages, and the tolerances keep their meaning in either frame: the
+/// step tolerance's relative part is taken of the full node voltage.
 newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::VectorXd& v,
                           const nodal_options& opt = {});
 
