@@ -4,6 +4,14 @@
 // capacitors, G = 2C/T, and inductors, G = T/(2L), then solve_nodal), with the same device model and the same
 // trapezoidal rule as the DK engine. Slow and simple on purpose: tests compare the fast
 // engine with it sample by sample.
+//
+// The unknowns are offsets from the DC operating point, x = x_dc + dx (mna_system::origin).
+// A bypass capacitor's companion conductance 2C/T is tens of siemens at 384 kHz; solved in
+// absolute volts, its history current G v_{n-1} is tens of amperes, and the rounding of the
+// node voltages (eps times that current over the smallest conductance the node sees) made
+// the last Newton steps wander by up to about 1e-9 V. In offsets the history is
+// -(G dv_{n-1} + i_{n-1}) with dv the capacitor's voltage less its DC voltage (G v_dc cancels
+// against the DC point), and an inductor's is its current less its DC current.
 #include <vector>
 
 #include <Eigen/Dense>
@@ -30,6 +38,7 @@ inline nodal_options transient_nodal_options() {
   nodal_options o;
   o.vtol_v = 1e-10;
   o.vtol_rel = 1e-12;
+  o.compensated_refinement = true;
   return o;
 }
 
@@ -54,10 +63,13 @@ class transient_reference {
   nodal_options opt_;
   double t_s_{0};
   std::vector<cap_treatment> caps_;
-  std::vector<double> cap_v_, cap_i_;  // voltage a - b and current a -> b of each capacitor
+  std::vector<double> cap_dv_, cap_i_;  // voltage a - b less its DC voltage, and current a -> b, of each capacitor
   std::vector<ind_treatment> inds_;
-  std::vector<double> ind_v_, ind_i_;  // voltage a - b and current a -> b of each inductor
-  Eigen::VectorXd x_;
+  std::vector<double> ind_v_, ind_di_;  // voltage a - b, and current a -> b less its DC current, of each inductor
+  Eigen::VectorXd x_dc_;   // the DC operating point (companion layout: no inductor unknowns)
+  Eigen::VectorXd dc_rhs_;  // the DC point's constant part of the offset system (see the constructor)
+  Eigen::VectorXd dx_;     // the last solution, as offsets from x_dc_
+  Eigen::VectorXd x_;      // x_dc_ + dx_
   reference_stats stats_;
 };
 
