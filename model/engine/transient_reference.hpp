@@ -29,11 +29,15 @@ struct reference_stats {
 };
 
 /// Nodal Newton tolerances for the reference: a last step below 1e-10 V + 1e-12 |v| (the
-/// error after it is far smaller still, by quadratic convergence). Not tighter: with
-/// companion conductances 2C/T of tens of siemens the node voltages are solved from history
-/// currents of tens of amperes, and rounding (eps times that current over the smallest
-/// conductance the node sees, measured at about 2e-11 V on an 18 V stage) makes the last
-/// Newton steps alternate at that level forever.
+/// error after it is far smaller still, by quadratic convergence), each step's linear solve
+/// refined with a compensated residual. With the unknowns as offsets from the DC point and
+/// that refinement, the samples of 1000 random 2-4 stage chains driven to clipping move by
+/// at most 1.3e-10 V when the step tolerance is made 10x or 100x tighter, and every sample
+/// converges at this tolerance. Not tighter: at 10x, 16 samples in 8 of those chains no
+/// longer converge within the iteration limit (318 samples in 58 chains at 100x): the last
+/// iterates alternate between points about 5e-11 V apart whose KCL residuals are both at
+/// the rounding floor, 1e-4 of the residual tolerance (a node's voltage is only fixed to
+/// the rounding of the currents that meet there, over its conductance).
 inline nodal_options transient_nodal_options() {
   nodal_options o;
   o.vtol_v = 1e-10;
