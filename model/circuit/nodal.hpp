@@ -43,9 +43,9 @@ std::vector<cap_treatment> uniform_caps(const network& net, cap_treatment::kind 
 
 /// The linear part A x + i(x) = rhs of a nodal solve. With an `origin` (a full solution
 /// vector of the same layout) the unknowns are offsets from it: A dx + i(origin + dx) = rhs,
-/// where rhs already holds the linear part's currents at the origin (the caller forms
-/// that once, see transient_reference). Large conductances then multiply small offsets, and
-/// the solution is not rounded at eps times their currents at the origin.
+/// where rhs already holds the sources less the linear part's currents at the origin (the
+/// caller forms that once). Large conductances then multiply small offsets, and the
+/// solution is not rounded at eps times their currents at the origin.
 struct mna_system {
   Eigen::MatrixXd a;    ///< square, node_unknowns + branch unknowns
   Eigen::VectorXd rhs;
