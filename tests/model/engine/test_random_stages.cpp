@@ -1,5 +1,6 @@
 // Property test: every random valid stage gets an operating point that satisfies
 // Kirchhoff's current law, and finite small-signal and headroom figures.
+#include <algorithm>
 #include <cmath>
 #include <cstdlib>
 #include <numbers>
@@ -119,6 +120,29 @@ std::string sci(double v) {
   return os.str();
 }
 
+// The chains' drive (3 V peak at 1 kHz, 384 kHz, 1 ms) through the engine and the
+// reference, from the DC point: the largest difference of their outputs.
+double drive_against_reference(dk_engine& eng, transient_reference& ref) {
+  double worst = 0.0;
+  for (int n = 0; n < 384; ++n) {
+    const double u = 3.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / 384000.0);
+    worst = std::max(worst, std::fabs(eng.process(u) - ref.process(u)));
+  }
+  return worst;
+}
+
+// Chains k of the soak (seed 777: the k+1-th draw_chain()), in the order of k.
+std::vector<stage> soak_chains(std::vector<int> ks) {
+  std::sort(ks.begin(), ks.end());
+  test::stage_sampler sampler(777);
+  std::vector<stage> chains;
+  for (int k = 0; k <= ks.back(); ++k) {
+    stage s = sampler.draw_chain();
+    if (std::binary_search(ks.begin(), ks.end(), k)) chains.push_back(s);
+  }
+  return chains;
+}
+
 struct chain_counts {
   int drawn{0}, solved{0}, compared{0}, dc_coupled{0};
   int offset_over_1nv{0};  ///< compared chains where the engine parts from the reference by more than 1e-9 V
@@ -173,11 +197,7 @@ chain_counts check_random_chains(std::uint64_t seed, int count, int compare_ever
       transient_reference ref(net, op, 384000.0);
       // Every sample, from the first: the engine carries its states as offsets from the DC
       // point, so its rest point is the reference's (model/engine/dk_engine.hpp).
-      double worst = 0.0;
-      for (int n = 0; n < 384; ++n) {
-        const double u = 3.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / 384000.0);
-        worst = std::max(worst, std::fabs(eng.process(u) - ref.process(u)));
-      }
+      const double worst = drive_against_reference(eng, ref);
       CHECK(eng.stats().failed == 0);
       // The engine's invariant: 1e-9 V on every sample.
       CHECK(worst <= 1e-9);
@@ -372,12 +392,7 @@ TEST_CASE("regression: random chains the soak found drifting from the reference 
   // every sample). The engine now corrects an accepted point for its junctions' remainders
   // (dk_options::correct_junctions); without the correction the drift is back, which shows
   // the check can fail.
-  test::stage_sampler sampler(777);
-  std::vector<stage> chains;
-  for (int k = 0; k <= 7530; ++k) {
-    stage s = sampler.draw_chain();
-    if (k == 830 || k == 7530) chains.push_back(s);
-  }
+  const std::vector<stage> chains = soak_chains({830, 7530});
   REQUIRE(chains.size() == 2);
   for (const stage& s : chains) {
     const network net = build_network(s);
@@ -390,10 +405,7 @@ TEST_CASE("regression: random chains the soak found drifting from the reference 
       o.correct_junctions = correct;
       dk_engine eng(net, op, 384000.0, o);
       transient_reference ref(net, op, 384000.0);
-      for (int n = 0; n < 384; ++n) {
-        const double u = 3.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / 384000.0);
-        worst[correct ? 0 : 1] = std::max(worst[correct ? 0 : 1], std::fabs(eng.process(u) - ref.process(u)));
-      }
+      worst[correct ? 0 : 1] = drive_against_reference(eng, ref);
       CHECK(eng.stats().failed == 0);
       ref_failed += ref.stats().failed;
     }
@@ -412,12 +424,7 @@ TEST_CASE("regression: random chains the soak found beyond 1e-9 V through the re
   // tens of amperes, and its samples moved by 0.5-1.5e-9 V with its tolerance (chain 5890
   // left 9 samples unconverged). With offsets from the DC point and a compensated
   // refinement every sample converges and the engine agrees to 1e-9 V (0.06-0.64e-9 V).
-  test::stage_sampler sampler(777);
-  std::vector<stage> chains;
-  for (int k = 0; k <= 8200; ++k) {
-    stage s = sampler.draw_chain();
-    if (k == 2450 || k == 5890 || k == 6210 || k == 8200) chains.push_back(s);
-  }
+  const std::vector<stage> chains = soak_chains({2450, 5890, 6210, 8200});
   REQUIRE(chains.size() == 4);
   for (const stage& s : chains) {
     const std::string what = describe_chain(s);
@@ -426,11 +433,7 @@ TEST_CASE("regression: random chains the soak found beyond 1e-9 V through the re
     const operating_point op = solve_operating_point(net);
     dk_engine eng(net, op, 384000.0);
     transient_reference ref(net, op, 384000.0);
-    double worst = 0.0;
-    for (int n = 0; n < 384; ++n) {
-      const double u = 3.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / 384000.0);
-      worst = std::max(worst, std::fabs(eng.process(u) - ref.process(u)));
-    }
+    const double worst = drive_against_reference(eng, ref);
     CAPTURE(worst);
     CHECK(eng.stats().failed == 0);
     CHECK(ref.stats().failed == 0);
