@@ -171,6 +171,14 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
                         std::min(vpair(x, q.gate, q.drain), vcrit)});
   }
 
+  // Each JFET's stamp into the Jacobian (rows drain, gate, source; columns the same nodes),
+  // kept apart for the compensated refinement below.
+  struct device_stamp {
+    int nodes[3];
+    double rows[3][3];
+  };
+  std::vector<device_stamp> stamps(net.jfets.size());
+
   newton_result res;
   for (int it = 1; it <= opt.max_iterations; ++it) {
     res.iterations = it;
@@ -200,12 +208,17 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
       add_rhs(q.drain, id0 - igd0);
       add_rhs(q.gate, igs0 + igd0);
       add_rhs(q.source, -id0 - igs0);
+      device_stamp& ds = stamps[k];
       for (int col = 0; col < 3; ++col) {
+        ds.nodes[col] = nodes[col];
+        ds.rows[0][col] = did[col] - digd[col];
+        ds.rows[1][col] = digs[col] + digd[col];
+        ds.rows[2][col] = -did[col] - digs[col];
         if (nodes[col] == 0) continue;
         const int cj = row(nodes[col]);
-        if (q.drain != 0) jac(row(q.drain), cj) += did[col] - digd[col];
-        if (q.gate != 0) jac(row(q.gate), cj) += digs[col] + digd[col];
-        if (q.source != 0) jac(row(q.source), cj) += -did[col] - digs[col];
+        if (q.drain != 0) jac(row(q.drain), cj) += ds.rows[0][col];
+        if (q.gate != 0) jac(row(q.gate), cj) += ds.rows[1][col];
+        if (q.source != 0) jac(row(q.source), cj) += ds.rows[2][col];
       }
     }
     lu.compute(jac);
@@ -215,7 +228,21 @@ newton_result solve_nodal(const network& net, const mna_system& lin, Eigen::Vect
     // on a 9 V node) sits above a 1e-12 V step tolerance, so Newton would never see its
     // step fall below it. Cheap next to the factorisation, so it stays in either frame.
     if (opt.compensated_refinement) {
-      compensated_residual(jac, x_new, rhs, f);
+      // The residual of the network with each device's tangent applied on its own, not
+      // through jac: added into a diagonal of siemens (a coupling capacitor's companion), a
+      // channel conductance keeps only its bits above that entry's last place, while rhs
+      // carries its tangent's constant term in full; the fixed point of the iteration then
+      // sits where the two disagree, (the lost bits) times the node's offset, over the
+      // node's megohms. Apart, the fixed point is the network's own.
+      compensated_residual(lin.a, x_new, rhs, f);
+      for (const device_stamp& ds : stamps) {
+        double across[3];
+        for (int col = 0; col < 3; ++col) across[col] = ds.nodes[col] == 0 ? 0.0 : x_new[row(ds.nodes[col])];
+        for (int r = 0; r < 3; ++r) {
+          if (ds.nodes[r] == 0) continue;
+          f[row(ds.nodes[r])] -= ds.rows[r][0] * across[0] + ds.rows[r][1] * across[1] + ds.rows[r][2] * across[2];
+        }
+      }
       x_new += lu.solve(f);
     } else {
       rhs.noalias() -= jac * x_new;

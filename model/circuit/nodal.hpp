@@ -73,7 +73,9 @@ struct nodal_options {
   double itol_rel{1e-12};
   /// Each Newton step's linear solve is refined once with its residual b - J x summed as
   /// if in twice the working precision (error-free products and sums: Ogita, Rump & Oishi,
-  /// SIAM J. Sci. Comput. 26(6), 2005, Dot2), instead of in working precision.
+  /// SIAM J. Sci. Comput. 26(6), 2005, Dot2), instead of in working precision, and with J
+  /// taken as the linear network plus each device's tangent applied apart (not J as
+  /// summed, whose entries keep a device's conductance only to their own last place).
   bool compensated_refinement{false};
 };
 

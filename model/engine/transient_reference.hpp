@@ -14,7 +14,11 @@
 // against the DC point), and an inductor's is its current less its DC current. Where a
 // coupling capacitor of siemens carries a swing of volts into a load of megohms the offsets
 // are as large as the voltages, and each Newton step's solve is refined with a residual
-// summed as if in twice the working precision (nodal_options::compensated_refinement).
+// summed as if in twice the working precision (nodal_options::compensated_refinement),
+// with the devices' tangents applied apart from the network's matrix: stamped into a
+// diagonal of siemens, a channel's conductance keeps only the bits above that entry's last
+// place, and with offsets of volts the Newton's fixed point moved by 1-3e-9 V where that
+// node sees megohms.
 // Neither shares code with the engine: this is what the engine is checked against.
 #include <vector>
 
