@@ -79,6 +79,77 @@ constexpr double torn_coupling_share = 0.1;
 // over (at 1 and 10 V on the bench's chain, 2.5 and 4.4 % of the samples needed a third).
 constexpr int pair_inline_iterations = 4;
 
+// A column of N doubles (N even, fixed) as packets of four and a tail of two, in GCC's
+// generic vectors: in the AVX2 + FMA loop they are ymm registers and the products fuse
+// (-ffp-contract=fast, GNU C++), in the portable loop pairs of SSE2 registers. The loads and
+// stores are unaligned (a chain's matrices have N rows, not always a multiple of four).
+// The small matrix loops below are written with them where the compiler's own vectorising
+// of the scalar loops, inside the flattened sample loop, came and went with the code around
+// it (callgrind: the same loop 2-5x its instructions after an unrelated change).
+using vd4 = double __attribute__((vector_size(32)));
+using vd2 = double __attribute__((vector_size(16)));
+using vl4 = long long __attribute__((vector_size(32)));
+using vl2 = long long __attribute__((vector_size(16)));
+template <int N>
+struct vcol {
+  static_assert(N > 0 && N % 2 == 0, "vcol: N even and fixed");
+  static constexpr int Q = N / 4, H = N % 4 / 2;
+  vd4 q[Q > 0 ? Q : 1];
+  vd2 h;
+  __attribute__((always_inline)) static vcol zero() noexcept {
+    vcol c;
+    for (int i = 0; i < (Q > 0 ? Q : 1); ++i) c.q[i] = vd4{0.0, 0.0, 0.0, 0.0};
+    c.h = vd2{0.0, 0.0};
+    return c;
+  }
+  __attribute__((always_inline)) static vcol load(const double* p) noexcept {
+    vcol c = zero();
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) __builtin_memcpy(&c.q[i], p + 4 * i, sizeof(vd4));
+    if constexpr (H > 0) __builtin_memcpy(&c.h, p + 4 * Q, sizeof(vd2));
+    return c;
+  }
+  __attribute__((always_inline)) void store(double* p) const noexcept {
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) __builtin_memcpy(p + 4 * i, &q[i], sizeof(vd4));
+    if constexpr (H > 0) __builtin_memcpy(p + 4 * Q, &h, sizeof(vd2));
+  }
+  // this += s * the column at p
+  __attribute__((always_inline)) void add(const double* p, double s) noexcept {
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) {
+      vd4 x;
+      __builtin_memcpy(&x, p + 4 * i, sizeof(vd4));
+      q[i] += x * s;
+    }
+    if constexpr (H > 0) {
+      vd2 x;
+      __builtin_memcpy(&x, p + 4 * Q, sizeof(vd2));
+      h += x * s;
+    }
+  }
+  // this += s * |the column at p|, on the rows lo <= r < hi only (lo, hi known at compile
+  // time once unrolled: the masks fold to constants).
+  __attribute__((always_inline)) void add_abs(const double* p, double s, int lo, int hi) noexcept {
+    constexpr long long magnitude = 0x7fffffffffffffffLL;
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) {
+      vd4 x;
+      __builtin_memcpy(&x, p + 4 * i, sizeof(vd4));
+      const vl4 r = vl4{0, 1, 2, 3} + 4 * i;
+      const vl4 keep = (r >= lo) & (r < hi) & magnitude;
+      q[i] += reinterpret_cast<vd4>(reinterpret_cast<vl4>(x) & keep) * s;
+    }
+    if constexpr (H > 0) {
+      vd2 x;
+      __builtin_memcpy(&x, p + 4 * Q, sizeof(vd2));
+      const vl2 r = vl2{0, 1} + 4 * Q;
+      const vl2 keep = (r >= lo) & (r < hi) & magnitude;
+      h += reinterpret_cast<vd2>(reinterpret_cast<vl2>(x) & keep) * s;
+    }
+  }
+};
+
 // Compile-time sizes for K JFETs (K = 0: dynamic).
 constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
 constexpr int currents_of(int k) noexcept { return k > 0 ? 3 * k : Eigen::Dynamic; }
@@ -389,31 +460,43 @@ __attribute__((always_inline)) inline bool torn_prepare_n(double* a, int n_rt) n
   return true;
 }
 
-// One block Gauss-Seidel sweep on J x = r with J prepared by torn_prepare_n: block by block
-// in signal order, x_b = D_b^-1 (r_b - sum over the other blocks c of J_bc x_c), the blocks
-// before b already swept (lower part) and those after b from the sweep before (upper part).
-// delta receives the change of x. With x^m - x^(m-1) = delta, J x^m = r - U delta (U: J's
-// strictly block upper part), so the sweep leaves the linear residual -U delta: the
-// coupling that torn_coupling_n bounds.
+// One block Gauss-Seidel sweep on J x = r with J prepared by torn_prepare_n, on the running
+// residual t = r - J x (in and out; t = r where the sweeps start from x = 0): block by block
+// in signal order, delta_b = D_b^-1 t_b, x_b += delta_b, and t less J's column pair b times
+// delta_b, every row but b's own (the rows of the blocks already swept are not read again
+// this sweep).
+// That is x_b = D_b^-1 (r_b - sum over the other blocks c of J_bc x_c), the blocks before b
+// already swept (lower part) and those after b from the sweep before (upper part), with J's
+// columns read whole (contiguous, in packets at the fixed size) instead of its rows. With
+// x^m - x^(m-1) = delta, J x^m = r - U delta (U: J's strictly block upper part), so the
+// sweep leaves the linear residual -U delta (t, up to rounding): the coupling that
+// torn_coupling_n bounds.
 template <int N>
-__attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_rt, const double* r, double* x,
+__attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_rt, double* t, double* x,
                                                         double* delta) noexcept {
   const int n = N > 0 ? N : n_rt;
 #pragma GCC unroll 8
   for (int b = 0; b < n; b += 2) {
-    double y0 = r[b], y1 = r[b + 1];
-#pragma GCC unroll 8
-    for (int c = 0; c < n; c += 2) {
-      if (c == b) continue;
-      y0 -= a[b + c * n] * x[c] + a[b + (c + 1) * n] * x[c + 1];
-      y1 -= a[b + 1 + c * n] * x[c] + a[b + 1 + (c + 1) * n] * x[c + 1];
-    }
     const double* d = a + b + b * n;
-    const double n0 = d[0] * y0 + d[n] * y1, n1 = d[1] * y0 + d[n + 1] * y1;
-    delta[b] = n0 - x[b];
-    delta[b + 1] = n1 - x[b + 1];
-    x[b] = n0;
-    x[b + 1] = n1;
+    const double e0 = d[0] * t[b] + d[n] * t[b + 1], e1 = d[1] * t[b] + d[n + 1] * t[b + 1];
+    delta[b] = e0;
+    delta[b + 1] = e1;
+    x[b] += e0;
+    x[b + 1] += e1;
+    const double* c0 = a + b * n;
+    const double* c1 = c0 + n;
+    if constexpr (N > 0) {
+      vcol<N> tc = vcol<N>::load(t);
+      tc.add(c0, -e0);
+      tc.add(c1, -e1);
+      tc.store(t);
+    } else {
+      for (int q = 0; q < n; ++q) t[q] -= c0[q] * e0 + c1[q] * e1;
+    }
+    // The block's own rows hold D_b^-1 in place of J_bb: its residual, J_bb delta_b less
+    // t_b, is 0.
+    t[b] = 0.0;
+    t[b + 1] = 0.0;
   }
 }
 
@@ -425,6 +508,18 @@ __attribute__((always_inline)) inline double torn_coupling_n(const double* a, in
                                                              double* e) noexcept {
   const int n = N > 0 ? N : n_rt;
   double most = 0.0;
+  if constexpr (N > 0) {
+    // Column by column: column c adds to the rows of the blocks before its own.
+    vcol<N> acc = vcol<N>::zero();
+#pragma GCC unroll 16
+    for (int c = 2; c < N; ++c) acc.add_abs(a + c * N, std::fabs(delta[c]), 0, c / 2 * 2);
+    acc.store(e);
+    for (int r = 0; r < N; ++r) {
+      e[r] *= 1.0 + detail::acceptance_round_k;
+      most = std::max(most, e[r]);
+    }
+    return most;
+  }
 #pragma GCC unroll 8
   for (int b = 0; b < n; b += 2) {
     double s0 = 0.0, s1 = 0.0;
@@ -453,30 +548,58 @@ template <int N>
 __attribute__((always_inline)) inline double torn_abs_bound_n(const double* a, int n_rt, double* t) noexcept {
   const int n = N > 0 ? N : n_rt;
   double w[N > 0 ? N : torn_max_ports];
+  if constexpr (N > 0) {
+    // Column by column (the same sums in another order; every term non-negative): u = |U| 1
+    // first, then block by block t_b and w_b from |D_b^-1|, and block b's columns of |L|
+    // times them onto the rows below.
+    vcol<N> y = vcol<N>::load(t), u = vcol<N>::zero();
+#pragma GCC unroll 16
+    for (int c = 2; c < N; ++c) u.add_abs(a + c * N, 1.0, 0, c / 2 * 2);
+    double ys[N], us[N];
+    y.store(ys);
+    u.store(us);
 #pragma GCC unroll 8
-  for (int b = 0; b < n; b += 2) {
-    double u0 = 0.0, u1 = 0.0;
-#pragma GCC unroll 8
-    for (int c = b + 2; c < n; c += 2) {
-      u0 += std::fabs(a[b + c * n]) + std::fabs(a[b + (c + 1) * n]);
-      u1 += std::fabs(a[b + 1 + c * n]) + std::fabs(a[b + 1 + (c + 1) * n]);
+    for (int b = 0; b < N; b += 2) {
+      const double* d = a + b + b * N;
+      const double d00 = std::fabs(d[0]), d01 = std::fabs(d[N]), d10 = std::fabs(d[1]), d11 = std::fabs(d[N + 1]);
+      t[b] = d00 * ys[b] + d01 * ys[b + 1];
+      t[b + 1] = d10 * ys[b] + d11 * ys[b + 1];
+      w[b] = d00 * us[b] + d01 * us[b + 1];
+      w[b + 1] = d10 * us[b] + d11 * us[b + 1];
+      if (b + 2 >= N) break;
+      y.add_abs(a + b * N, t[b], b + 2, N);
+      y.add_abs(a + (b + 1) * N, t[b + 1], b + 2, N);
+      u.add_abs(a + b * N, w[b], b + 2, N);
+      u.add_abs(a + (b + 1) * N, w[b + 1], b + 2, N);
+      y.store(ys);
+      u.store(us);
     }
-    double y0 = t[b], y1 = t[b + 1];
+  } else {
 #pragma GCC unroll 8
-    for (int c = 0; c < b; c += 2) {
-      const double l00 = std::fabs(a[b + c * n]), l01 = std::fabs(a[b + (c + 1) * n]);
-      const double l10 = std::fabs(a[b + 1 + c * n]), l11 = std::fabs(a[b + 1 + (c + 1) * n]);
-      y0 += l00 * t[c] + l01 * t[c + 1];
-      y1 += l10 * t[c] + l11 * t[c + 1];
-      u0 += l00 * w[c] + l01 * w[c + 1];
-      u1 += l10 * w[c] + l11 * w[c + 1];
+    for (int b = 0; b < n; b += 2) {
+      double u0 = 0.0, u1 = 0.0;
+#pragma GCC unroll 8
+      for (int c = b + 2; c < n; c += 2) {
+        u0 += std::fabs(a[b + c * n]) + std::fabs(a[b + (c + 1) * n]);
+        u1 += std::fabs(a[b + 1 + c * n]) + std::fabs(a[b + 1 + (c + 1) * n]);
+      }
+      double y0 = t[b], y1 = t[b + 1];
+#pragma GCC unroll 8
+      for (int c = 0; c < b; c += 2) {
+        const double l00 = std::fabs(a[b + c * n]), l01 = std::fabs(a[b + (c + 1) * n]);
+        const double l10 = std::fabs(a[b + 1 + c * n]), l11 = std::fabs(a[b + 1 + (c + 1) * n]);
+        y0 += l00 * t[c] + l01 * t[c + 1];
+        y1 += l10 * t[c] + l11 * t[c + 1];
+        u0 += l00 * w[c] + l01 * w[c + 1];
+        u1 += l10 * w[c] + l11 * w[c + 1];
+      }
+      const double* d = a + b + b * n;
+      const double d00 = std::fabs(d[0]), d01 = std::fabs(d[n]), d10 = std::fabs(d[1]), d11 = std::fabs(d[n + 1]);
+      t[b] = d00 * y0 + d01 * y1;
+      t[b + 1] = d10 * y0 + d11 * y1;
+      w[b] = d00 * u0 + d01 * u1;
+      w[b + 1] = d10 * u0 + d11 * u1;
     }
-    const double* d = a + b + b * n;
-    const double d00 = std::fabs(d[0]), d01 = std::fabs(d[n]), d10 = std::fabs(d[1]), d11 = std::fabs(d[n + 1]);
-    t[b] = d00 * y0 + d01 * y1;
-    t[b + 1] = d10 * y0 + d11 * y1;
-    w[b] = d00 * u0 + d01 * u1;
-    w[b + 1] = d10 * u0 + d11 * u1;
   }
   double rho = 0.0, smax = 0.0;
   for (int r = 0; r < n; ++r) {
@@ -496,12 +619,12 @@ __attribute__((always_inline)) inline double torn_abs_bound_n(const double* a, i
 template <int N>
 __attribute__((always_inline)) inline void torn_solve_n(const double* a, int n_rt, double* b, int sweeps) noexcept {
   const int n = N > 0 ? N : n_rt;
-  double r[N > 0 ? N : torn_max_ports], delta[N > 0 ? N : torn_max_ports];
+  double t[N > 0 ? N : torn_max_ports], delta[N > 0 ? N : torn_max_ports];
   for (int q = 0; q < n; ++q) {
-    r[q] = b[q];
+    t[q] = b[q];
     b[q] = 0.0;
   }
-  for (int s = 0; s < sweeps; ++s) torn_sweep_n<N>(a, n, r, b, delta);
+  for (int s = 0; s < sweeps; ++s) torn_sweep_n<N>(a, n, t, b, delta);
 }
 
 // Factors of either kind: `blocked` says which (block_factor_n's or lu_factor_n's).
@@ -543,11 +666,17 @@ template <int N, bool Add>
 __attribute__((always_inline)) inline void product_n(const double* __restrict a, int n_rt, int m,
                                                      const double* __restrict x, double* __restrict y) noexcept {
   const int n = N > 0 ? N : n_rt;
-  if constexpr (!Add)
-    for (int r = 0; r < n; ++r) y[r] = 0.0;
-  for (int c = 0; c < m; ++c) {
-    const double xc = x[c];
-    for (int r = 0; r < n; ++r) y[r] += a[r + c * n] * xc;
+  if constexpr (N > 0) {
+    vcol<N> acc = Add ? vcol<N>::load(y) : vcol<N>::zero();
+    for (int c = 0; c < m; ++c) acc.add(a + c * N, x[c]);
+    acc.store(y);
+  } else {
+    if constexpr (!Add)
+      for (int r = 0; r < n; ++r) y[r] = 0.0;
+    for (int c = 0; c < m; ++c) {
+      const double xc = x[c];
+      for (int r = 0; r < n; ++r) y[r] += a[r + c * n] * xc;
+    }
   }
 }
 
@@ -887,6 +1016,24 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
     // I - F Jf, column pair by column pair (Jf is block diagonal).
     auto form_j = [&]() noexcept {
       double* jd = out.lu.data();
+      if constexpr (K > 0) {
+        constexpr int NP = 2 * K;
+        for (int q = 0; q < K; ++q) {
+          const detail::port_currents& c = g.cur[static_cast<std::size_t>(q)];
+          const double* f0 = f.data() + 3 * q * NP;
+          vcol<NP> c0 = vcol<NP>::zero(), c1 = vcol<NP>::zero();
+          c0.add(f0, -c.ggs_s);
+          c0.add(f0 + NP, -c.ggd_s);
+          c0.add(f0 + 2 * NP, -c.gm_s);
+          c1.add(f0 + NP, c.ggd_s);
+          c1.add(f0 + 2 * NP, -c.gds_s);
+          c0.store(jd + 2 * q * NP);
+          c1.store(jd + (2 * q + 1) * NP);
+          jd[2 * q + 2 * q * NP] += 1.0;
+          jd[2 * q + 1 + (2 * q + 1) * NP] += 1.0;
+        }
+        return;
+      }
       for (int q = 0; q < k; ++q) {
         const detail::port_currents& c = g.cur[static_cast<std::size_t>(q)];
         for (int row = 0; row < np; ++row) {
@@ -1102,8 +1249,10 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         out.torn = true;
         out.blocked = false;
         double delta[K > 0 ? 2 * K : torn_max_ports], coupling[K > 0 ? 2 * K : torn_max_ports];
+        double left[K > 0 ? 2 * K : torn_max_ports];  // the running residual of the sweeps
+        for (int q = 0; q < np; ++q) left[q] = r[q];
         d.setZero();
-        torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, r.data(), d.data(), delta);
+        torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, left, d.data(), delta);
         int sweeps = 1;
         double change = d.cwiseAbs().maxCoeff();
         for (;;) {
@@ -1129,7 +1278,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
             }
           }
           if (sweeps >= torn_max_sweeps || !sweep_more) break;
-          torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, r.data(), d.data(), delta);
+          torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, left, d.data(), delta);
           ++sweeps;
           double change_now = 0.0;
           for (int q = 0; q < np; ++q) change_now = std::max(change_now, std::fabs(delta[q]));
