@@ -86,10 +86,28 @@ constexpr int pair_inline_iterations = 4;
 // The small matrix loops below are written with them where the compiler's own vectorising
 // of the scalar loops, inside the flattened sample loop, came and went with the code around
 // it (callgrind: the same loop 2-5x its instructions after an unrelated change).
+// (Packets passed by value between always-inline helpers: GCC's note that a 32-byte vector
+// argument's ABI differs without AVX concerns calls that are never made out of line.)
+#pragma GCC diagnostic ignored "-Wpsabi"
 using vd4 = double __attribute__((vector_size(32)));
 using vd2 = double __attribute__((vector_size(16)));
 using vl4 = long long __attribute__((vector_size(32)));
 using vl2 = long long __attribute__((vector_size(16)));
+[[maybe_unused]] __attribute__((always_inline)) inline vd4 vabs(const vd4& x) noexcept {
+  return reinterpret_cast<vd4>(reinterpret_cast<vl4>(x) & 0x7fffffffffffffffLL);
+}
+[[maybe_unused]] __attribute__((always_inline)) inline vd2 vabs(const vd2& x) noexcept {
+  return reinterpret_cast<vd2>(reinterpret_cast<vl2>(x) & 0x7fffffffffffffffLL);
+}
+// Lane by lane max(x, y) and min(x, y) (y where x is NaN, as std::max(y, x) would give).
+template <class V>
+__attribute__((always_inline)) inline V vmax(const V& x, const V& y) noexcept {
+  return x > y ? x : y;
+}
+template <class V>
+__attribute__((always_inline)) inline V vmin(const V& x, const V& y) noexcept {
+  return x < y ? x : y;
+}
 template <int N>
 struct vcol {
   static_assert(N > 0 && N % 2 == 0, "vcol: N even and fixed");
@@ -128,6 +146,69 @@ struct vcol {
       h += x * s;
     }
   }
+  // Each JFET's junction voltages (gs, gd) from its port voltages (gs, ds) in rows 2j, 2j + 1.
+  __attribute__((always_inline)) vcol junctions() const noexcept {
+    vcol c = zero();
+    const vl4 odd4{0, -1, 0, -1};
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i)
+      c.q[i] = __builtin_shufflevector(q[i], q[i], 0, 0, 2, 2) - reinterpret_cast<vd4>(reinterpret_cast<vl4>(q[i]) & odd4);
+    if constexpr (H > 0) c.h = __builtin_shufflevector(h, h, 0, 0) - reinterpret_cast<vd2>(reinterpret_cast<vl2>(h) & vl2{0, -1});
+    return c;
+  }
+  // Whether any row is above (or, all_at_most, every row at most, in magnitude) the column at p.
+  __attribute__((always_inline)) bool any_above(const double* p) const noexcept {
+    const vcol lim = load(p);
+    vl4 m4{0, 0, 0, 0};
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) m4 |= q[i] > lim.q[i];
+    vl2 m2{m4[0] | m4[2], m4[1] | m4[3]};
+    if constexpr (H > 0) m2 |= h > lim.h;
+    return (m2[0] | m2[1]) != 0;
+  }
+  __attribute__((always_inline)) bool all_at_most(const double* p) const noexcept {
+    constexpr long long magnitude = 0x7fffffffffffffffLL;
+    const vcol lim = load(p);
+    vl4 m4{-1, -1, -1, -1};
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) m4 &= reinterpret_cast<vd4>(reinterpret_cast<vl4>(q[i]) & magnitude) <= lim.q[i];
+    vl2 m2{m4[0] & m4[2], m4[1] & m4[3]};
+    if constexpr (H > 0) m2 &= reinterpret_cast<vd2>(reinterpret_cast<vl2>(h) & magnitude) <= lim.h;
+    return (m2[0] & m2[1]) != 0;
+  }
+  // fn(this, o) lane by lane (fn takes either packet type).
+  template <class Fn>
+  __attribute__((always_inline)) vcol zip(const vcol& o, Fn fn) const noexcept {
+    vcol c = zero();
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) c.q[i] = fn(q[i], o.q[i]);
+    if constexpr (H > 0) c.h = fn(h, o.h);
+    return c;
+  }
+  // The largest magnitude; NaN where any row is NaN.
+  __attribute__((always_inline)) double abs_max() const noexcept {
+    double most = 0.0;
+    bool nan = false;
+    for (int i = 0; i < Q; ++i)
+      for (int l = 0; l < 4; ++l) {
+        most = std::max(most, std::fabs(q[i][l]));
+        nan = nan || q[i][l] != q[i][l];
+      }
+    if constexpr (H > 0)
+      for (int l = 0; l < 2; ++l) {
+        most = std::max(most, std::fabs(h[l]));
+        nan = nan || h[l] != h[l];
+      }
+    return nan ? std::numeric_limits<double>::quiet_NaN() : most;
+  }
+  // this += the column at p
+  __attribute__((always_inline)) vcol plus(const double* p) const noexcept {
+    vcol c = load(p);
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) c.q[i] += q[i];
+    if constexpr (H > 0) c.h += h;
+    return c;
+  }
   // this += s * |the column at p|, on the rows lo <= r < hi only (lo, hi known at compile
   // time once unrolled: the masks fold to constants).
   __attribute__((always_inline)) void add_abs(const double* p, double s, int lo, int hi) noexcept {
@@ -149,6 +230,20 @@ struct vcol {
     }
   }
 };
+
+// out = a - s b over n entries, in packets of four (out may be a).
+__attribute__((always_inline)) inline void vec_sub(double* out, const double* a, const double* b, int n,
+                                                   double s = 1.0) noexcept {
+  int r = 0;
+  for (; r + 4 <= n; r += 4) {
+    vd4 x, y;
+    __builtin_memcpy(&x, a + r, sizeof(vd4));
+    __builtin_memcpy(&y, b + r, sizeof(vd4));
+    x -= y * s;
+    __builtin_memcpy(out + r, &x, sizeof(vd4));
+  }
+  for (; r < n; ++r) out[r] = a[r] - b[r] * s;
+}
 
 // Compile-time sizes for K JFETs (K = 0: dynamic).
 constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
@@ -833,6 +928,13 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   // every JFET go through |F| into the acceptance bound (skip_t), and skip_arg is set so
   // that the sum over the JFETs stays below a thousandth of tol_v (never above exp(-16)).
   g.skip_t.setZero(np);
+  g.junction_vcrit.resize(np);
+  g.junction_small.resize(np);
+  for (int j = 0; j < k; ++j) {
+    const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
+    g.junction_vcrit[2 * j] = g.junction_vcrit[2 * j + 1] = dv.vcrit_v;
+    g.junction_small[2 * j] = g.junction_small[2 * j + 1] = 0.01 * dv.nvt_v;
+  }
   for (int j = 0; j < k; ++j) {
     detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
     const Eigen::VectorXd fa = g.f_abs.col(3 * j) + g.f_abs.col(3 * j + 1);
@@ -1001,9 +1103,17 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       i[3 * j + 2] = c.id_a;
     }
     ++evals;
-    r = p - v;
-    product_n<lu_size_of(K), true>(f.data(), np, ni, i.data(), r.data());
-    const double rn = r.cwiseAbs().maxCoeff();
+    double rn;
+    if constexpr (K > 0) {
+      vcol<2 * K> rc = vcol<2 * K>::load(p.data()).zip(vcol<2 * K>::load(v.data()), [](const auto& x, const auto& y) { return x - y; });
+      for (int c = 0; c < 3 * K; ++c) rc.add(f.data() + c * 2 * K, i[c]);
+      rc.store(r.data());
+      rn = rc.abs_max();
+    } else {
+      r = p - v;
+      product_n<lu_size_of(K), true>(f.data(), np, ni, i.data(), r.data());
+      rn = r.cwiseAbs().maxCoeff();
+    }
     // Damped Newton: halve a step that made the residual grow (or not finite).
     if (detail::halve_step(may_damp, rn, rn_base, tol, halvings)) {
       step *= 0.5;
@@ -1048,6 +1158,10 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
     // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim), per JFET; the largest cut
     // scales the whole step.
     auto limit_step = [&]() noexcept {
+      if constexpr (K > 0) {
+        // Which junction would pass vcrit, all JFETs at once (the scalar loop below then).
+        if (!vcol<2 * K>::load(v.data()).plus(d.data()).junctions().any_above(g.junction_vcrit.data())) return false;
+      }
       double alpha = 1.0;
       for (int j = 0; j < k; ++j) {
         const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
@@ -1062,6 +1176,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       return false;
     };
     auto small_step = [&]() noexcept {
+      if constexpr (K > 0) return vcol<2 * K>::load(d.data()).junctions().all_at_most(g.junction_small.data());
       bool small = true;
       for (int j = 0; j < k && small; ++j)
         small = detail::small_junction_steps(g.dev[static_cast<std::size_t>(j)], d[2 * j], d[2 * j] - d[2 * j + 1]);
@@ -1137,8 +1252,27 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       }
       // allowed: the rounding of each row, up to the allowance; t: the residual bound less
       // what is allowed (so t <= tol_v is the test of the residual).
-      product_n<lu_size_of(K), false>(f_abs.data(), np, ni, mag.data(), allowed.data());
-      allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
+      if constexpr (K > 0) {
+        // The same sums, both products in one pass over |F|, in fixed-size vectors.
+        constexpr int NP = 2 * K;
+        vcol<NP> ma = vcol<NP>::zero(), ta = vcol<NP>::zero();
+        for (int c = 0; c < 3 * K; ++c) {
+          ma.add(f_abs.data() + c * NP, mag[c]);
+          ta.add(f_abs.data() + c * NP, rem[c]);
+        }
+        const vcol<NP> al = ma.zip(vcol<NP>::load(p.data()), [](const auto& x, const auto& y) { return x + vabs(y); })
+                                .zip(vcol<NP>::load(v.data()).plus(d.data()),
+                                     [](const auto& x, const auto& y) { return acceptance_round_k * (x + vabs(y)); });
+        const vcol<NP> rs = vcol<NP>::load(g.skip_t.data()).zip(al, [](const auto& x, const auto& y) {
+          return x + vmax(y - rounding_allowance_v, decltype(y){} );
+        });
+        rs.store(g.corr_t.data());
+        ta.zip(rs, [](const auto& x, const auto& y) { return x + y; }).store(t.data());
+        al.zip(al, [](const auto& x, const auto&) { return vmin(x, x - x + rounding_allowance_v); }).store(allowed.data());
+      } else {
+        product_n<lu_size_of(K), false>(f_abs.data(), np, ni, mag.data(), allowed.data());
+        allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
+      }
       // The junctions' part of |F| R, for the correction's test (two JFETs only, below).
       double junctions_most = 0.0;
       bool junction_on = false;  // a junction taken as -is has no conductance and no remainder
@@ -1156,11 +1290,13 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         product_n<lu_size_of(K), false>(f_abs.data(), np, ni, cq.data(), g.corr_e.data());
         junctions_most = Eigen::Map<const vec_p>(g.corr_e.data(), np).maxCoeff();
       }
-      product_n<lu_size_of(K), false>(f_abs.data(), np, ni, rem.data(), t.data());
-      Eigen::Map<vec_p> rest(g.corr_t.data(), np);  // skip_t and the rounding beyond the allowance
-      rest = Eigen::Map<const vec_p>(g.skip_t.data(), np) + (allowed.array() - rounding_allowance_v).max(0.0).matrix();
-      t += rest;
-      allowed = allowed.cwiseMin(rounding_allowance_v);
+      if constexpr (K == 0) {
+        product_n<lu_size_of(K), false>(f_abs.data(), np, ni, rem.data(), t.data());
+        Eigen::Map<vec_p> rest(g.corr_t.data(), np);  // skip_t and the rounding beyond the allowance
+        rest = Eigen::Map<const vec_p>(g.skip_t.data(), np) + (allowed.array() - rounding_allowance_v).max(0.0).matrix();
+        t += rest;
+        allowed = allowed.cwiseMin(rounding_allowance_v);
+      }
       bool sweep_may_help = false;
       if (coupling) {
         sweep_may_help = t.maxCoeff() <= tol;
@@ -1406,7 +1542,7 @@ double general_solver::process_k(double generator_v) noexcept {
   {
     double* __restrict x_in = in_.data();
     const double* __restrict i_dc = g.dc.i.data();
-    for (int c = 0; c < ni; ++c) x_in[ns + 2 + c] = g.last().i[c] - i_dc[c];
+    vec_sub(x_in + ns + 2, g.last().i.data(), i_dc, ni);
     const double* w_i = g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows;
 #if PINCHOFF_DK_GENERAL_WIDE
     if (wide_)
@@ -1415,7 +1551,7 @@ double general_solver::process_k(double generator_v) noexcept {
 #endif
       update_after_portable(w_i, rows, g.pre.data(), x_in + ns + 2, ni, g.out.data());
     const double* __restrict o = g.out.data();
-    for (int row = 0; row < ns; ++row) x_in[row] += o[row];
+    vec_sub(x_in, x_in, o, ns, -1.0);
   }
   q = Eigen::Map<const vec_p>(g.out.data() + ns, np);
 
