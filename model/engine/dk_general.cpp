@@ -176,6 +176,13 @@ struct vcol {
     if constexpr (H > 0) m2 &= reinterpret_cast<vd2>(reinterpret_cast<vl2>(h) & magnitude) <= lim.h;
     return (m2[0] & m2[1]) != 0;
   }
+  __attribute__((always_inline)) double get(int r) const noexcept { return r < 4 * Q ? q[r / 4][r % 4] : h[r - 4 * Q]; }
+  __attribute__((always_inline)) void set(int r, double x) noexcept {
+    if (r < 4 * Q)
+      q[r / 4][r % 4] = x;
+    else
+      h[r - 4 * Q] = x;
+  }
   // fn(this, o) lane by lane (fn takes either packet type).
   template <class Fn>
   __attribute__((always_inline)) vcol zip(const vcol& o, Fn fn) const noexcept {
@@ -570,7 +577,29 @@ template <int N>
 __attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_rt, double* t, double* x,
                                                         double* delta) noexcept {
   const int n = N > 0 ? N : n_rt;
+  if constexpr (N > 0) {
+    // t held in registers through the sweep (a packet stored and reloaded around each
+    // block's scalar writes would stall on store forwarding).
+    vcol<N> tc = vcol<N>::load(t);
 #pragma GCC unroll 8
+    for (int b = 0; b < N; b += 2) {
+      const double* d = a + b + b * N;
+      const double t0 = tc.get(b), t1 = tc.get(b + 1);
+      const double e0 = d[0] * t0 + d[N] * t1, e1 = d[1] * t0 + d[N + 1] * t1;
+      delta[b] = e0;
+      delta[b + 1] = e1;
+      x[b] += e0;
+      x[b + 1] += e1;
+      tc.add(a + b * N, -e0);
+      tc.add(a + (b + 1) * N, -e1);
+      // The block's own rows hold D_b^-1 in place of J_bb: its residual, J_bb delta_b less
+      // t_b, is 0.
+      tc.set(b, 0.0);
+      tc.set(b + 1, 0.0);
+    }
+    tc.store(t);
+    return;
+  }
   for (int b = 0; b < n; b += 2) {
     const double* d = a + b + b * n;
     const double e0 = d[0] * t[b] + d[n] * t[b + 1], e1 = d[1] * t[b] + d[n + 1] * t[b + 1];
@@ -580,16 +609,7 @@ __attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_r
     x[b + 1] += e1;
     const double* c0 = a + b * n;
     const double* c1 = c0 + n;
-    if constexpr (N > 0) {
-      vcol<N> tc = vcol<N>::load(t);
-      tc.add(c0, -e0);
-      tc.add(c1, -e1);
-      tc.store(t);
-    } else {
-      for (int q = 0; q < n; ++q) t[q] -= c0[q] * e0 + c1[q] * e1;
-    }
-    // The block's own rows hold D_b^-1 in place of J_bb: its residual, J_bb delta_b less
-    // t_b, is 0.
+    for (int q = 0; q < n; ++q) t[q] -= c0[q] * e0 + c1[q] * e1;
     t[b] = 0.0;
     t[b + 1] = 0.0;
   }
