@@ -578,18 +578,19 @@ __attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_r
                                                         double* delta) noexcept {
   const int n = N > 0 ? N : n_rt;
   if constexpr (N > 0) {
-    // t held in registers through the sweep (a packet stored and reloaded around each
-    // block's scalar writes would stall on store forwarding).
-    vcol<N> tc = vcol<N>::load(t);
+    // t, x and delta held in registers through the sweep and stored whole at its end (a
+    // packet stored and reloaded around each block's scalar writes, or loaded whole after
+    // them, stalls on store forwarding).
+    vcol<N> tc = vcol<N>::load(t), xc = vcol<N>::load(x), dc = vcol<N>::zero();
 #pragma GCC unroll 8
     for (int b = 0; b < N; b += 2) {
       const double* d = a + b + b * N;
       const double t0 = tc.get(b), t1 = tc.get(b + 1);
       const double e0 = d[0] * t0 + d[N] * t1, e1 = d[1] * t0 + d[N + 1] * t1;
-      delta[b] = e0;
-      delta[b + 1] = e1;
-      x[b] += e0;
-      x[b + 1] += e1;
+      dc.set(b, e0);
+      dc.set(b + 1, e1);
+      xc.set(b, xc.get(b) + e0);
+      xc.set(b + 1, xc.get(b + 1) + e1);
       tc.add(a + b * N, -e0);
       tc.add(a + (b + 1) * N, -e1);
       // The block's own rows hold D_b^-1 in place of J_bb: its residual, J_bb delta_b less
@@ -598,6 +599,8 @@ __attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_r
       tc.set(b + 1, 0.0);
     }
     tc.store(t);
+    xc.store(x);
+    dc.store(delta);
     return;
   }
   for (int b = 0; b < n; b += 2) {
