@@ -79,6 +79,179 @@ constexpr double torn_coupling_share = 0.1;
 // over (at 1 and 10 V on the bench's chain, 2.5 and 4.4 % of the samples needed a third).
 constexpr int pair_inline_iterations = 4;
 
+// A column of N doubles (N even, fixed) as packets of four and a tail of two, in GCC's
+// generic vectors: in the AVX2 + FMA loop they are ymm registers and the products fuse
+// (-ffp-contract=fast, GNU C++), in the portable loop pairs of SSE2 registers. The loads and
+// stores are unaligned (a chain's matrices have N rows, not always a multiple of four).
+// The small matrix loops below are written with them where the compiler's own vectorising
+// of the scalar loops, inside the flattened sample loop, came and went with the code around
+// it (callgrind: the same loop 2-5x its instructions after an unrelated change).
+// (Packets passed by value between always-inline helpers: GCC's note that a 32-byte vector
+// argument's ABI differs without AVX concerns calls that are never made out of line.)
+#pragma GCC diagnostic ignored "-Wpsabi"
+using vd4 = double __attribute__((vector_size(32)));
+using vd2 = double __attribute__((vector_size(16)));
+using vl4 = long long __attribute__((vector_size(32)));
+using vl2 = long long __attribute__((vector_size(16)));
+[[maybe_unused]] __attribute__((always_inline)) inline vd4 vabs(const vd4& x) noexcept {
+  return reinterpret_cast<vd4>(reinterpret_cast<vl4>(x) & 0x7fffffffffffffffLL);
+}
+[[maybe_unused]] __attribute__((always_inline)) inline vd2 vabs(const vd2& x) noexcept {
+  return reinterpret_cast<vd2>(reinterpret_cast<vl2>(x) & 0x7fffffffffffffffLL);
+}
+// Lane by lane max(x, y) and min(x, y) (y where x is NaN, as std::max(y, x) would give).
+template <class V>
+__attribute__((always_inline)) inline V vmax(const V& x, const V& y) noexcept {
+  return x > y ? x : y;
+}
+template <class V>
+__attribute__((always_inline)) inline V vmin(const V& x, const V& y) noexcept {
+  return x < y ? x : y;
+}
+template <int N>
+struct vcol {
+  static_assert(N > 0 && N % 2 == 0, "vcol: N even and fixed");
+  static constexpr int Q = N / 4, H = N % 4 / 2;
+  vd4 q[Q > 0 ? Q : 1];
+  vd2 h;
+  __attribute__((always_inline)) static vcol zero() noexcept {
+    vcol c;
+    for (int i = 0; i < (Q > 0 ? Q : 1); ++i) c.q[i] = vd4{0.0, 0.0, 0.0, 0.0};
+    c.h = vd2{0.0, 0.0};
+    return c;
+  }
+  __attribute__((always_inline)) static vcol load(const double* p) noexcept {
+    vcol c = zero();
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) __builtin_memcpy(&c.q[i], p + 4 * i, sizeof(vd4));
+    if constexpr (H > 0) __builtin_memcpy(&c.h, p + 4 * Q, sizeof(vd2));
+    return c;
+  }
+  __attribute__((always_inline)) void store(double* p) const noexcept {
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) __builtin_memcpy(p + 4 * i, &q[i], sizeof(vd4));
+    if constexpr (H > 0) __builtin_memcpy(p + 4 * Q, &h, sizeof(vd2));
+  }
+  // this += s * the column at p
+  __attribute__((always_inline)) void add(const double* p, double s) noexcept {
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) {
+      vd4 x;
+      __builtin_memcpy(&x, p + 4 * i, sizeof(vd4));
+      q[i] += x * s;
+    }
+    if constexpr (H > 0) {
+      vd2 x;
+      __builtin_memcpy(&x, p + 4 * Q, sizeof(vd2));
+      h += x * s;
+    }
+  }
+  // Each JFET's junction voltages (gs, gd) from its port voltages (gs, ds) in rows 2j, 2j + 1.
+  __attribute__((always_inline)) vcol junctions() const noexcept {
+    vcol c = zero();
+    const vl4 odd4{0, -1, 0, -1};
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i)
+      c.q[i] = __builtin_shufflevector(q[i], q[i], 0, 0, 2, 2) - reinterpret_cast<vd4>(reinterpret_cast<vl4>(q[i]) & odd4);
+    if constexpr (H > 0) c.h = __builtin_shufflevector(h, h, 0, 0) - reinterpret_cast<vd2>(reinterpret_cast<vl2>(h) & vl2{0, -1});
+    return c;
+  }
+  // Whether any row is above (or, all_at_most, every row at most, in magnitude) the column at p.
+  __attribute__((always_inline)) bool any_above(const double* p) const noexcept {
+    const vcol lim = load(p);
+    vl4 m4{0, 0, 0, 0};
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) m4 |= q[i] > lim.q[i];
+    vl2 m2{m4[0] | m4[2], m4[1] | m4[3]};
+    if constexpr (H > 0) m2 |= h > lim.h;
+    return (m2[0] | m2[1]) != 0;
+  }
+  __attribute__((always_inline)) bool all_at_most(const double* p) const noexcept {
+    constexpr long long magnitude = 0x7fffffffffffffffLL;
+    const vcol lim = load(p);
+    vl4 m4{-1, -1, -1, -1};
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) m4 &= reinterpret_cast<vd4>(reinterpret_cast<vl4>(q[i]) & magnitude) <= lim.q[i];
+    vl2 m2{m4[0] & m4[2], m4[1] & m4[3]};
+    if constexpr (H > 0) m2 &= reinterpret_cast<vd2>(reinterpret_cast<vl2>(h) & magnitude) <= lim.h;
+    return (m2[0] & m2[1]) != 0;
+  }
+  __attribute__((always_inline)) double get(int r) const noexcept { return r < 4 * Q ? q[r / 4][r % 4] : h[r - 4 * Q]; }
+  __attribute__((always_inline)) void set(int r, double x) noexcept {
+    if (r < 4 * Q)
+      q[r / 4][r % 4] = x;
+    else
+      h[r - 4 * Q] = x;
+  }
+  // fn(this, o) lane by lane (fn takes either packet type).
+  template <class Fn>
+  __attribute__((always_inline)) vcol zip(const vcol& o, Fn fn) const noexcept {
+    vcol c = zero();
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) c.q[i] = fn(q[i], o.q[i]);
+    if constexpr (H > 0) c.h = fn(h, o.h);
+    return c;
+  }
+  // The largest magnitude; NaN where any row is NaN.
+  __attribute__((always_inline)) double abs_max() const noexcept {
+    double most = 0.0;
+    bool nan = false;
+    for (int i = 0; i < Q; ++i)
+      for (int l = 0; l < 4; ++l) {
+        most = std::max(most, std::fabs(q[i][l]));
+        nan = nan || q[i][l] != q[i][l];
+      }
+    if constexpr (H > 0)
+      for (int l = 0; l < 2; ++l) {
+        most = std::max(most, std::fabs(h[l]));
+        nan = nan || h[l] != h[l];
+      }
+    return nan ? std::numeric_limits<double>::quiet_NaN() : most;
+  }
+  // this += the column at p
+  __attribute__((always_inline)) vcol plus(const double* p) const noexcept {
+    vcol c = load(p);
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) c.q[i] += q[i];
+    if constexpr (H > 0) c.h += h;
+    return c;
+  }
+  // this += s * |the column at p|, on the rows lo <= r < hi only (lo, hi known at compile
+  // time once unrolled: the masks fold to constants).
+  __attribute__((always_inline)) void add_abs(const double* p, double s, int lo, int hi) noexcept {
+    constexpr long long magnitude = 0x7fffffffffffffffLL;
+#pragma GCC unroll 4
+    for (int i = 0; i < Q; ++i) {
+      vd4 x;
+      __builtin_memcpy(&x, p + 4 * i, sizeof(vd4));
+      const vl4 r = vl4{0, 1, 2, 3} + 4 * i;
+      const vl4 keep = (r >= lo) & (r < hi) & magnitude;
+      q[i] += reinterpret_cast<vd4>(reinterpret_cast<vl4>(x) & keep) * s;
+    }
+    if constexpr (H > 0) {
+      vd2 x;
+      __builtin_memcpy(&x, p + 4 * Q, sizeof(vd2));
+      const vl2 r = vl2{0, 1} + 4 * Q;
+      const vl2 keep = (r >= lo) & (r < hi) & magnitude;
+      h += reinterpret_cast<vd2>(reinterpret_cast<vl2>(x) & keep) * s;
+    }
+  }
+};
+
+// out = a - s b over n entries, in packets of four (out may be a).
+__attribute__((always_inline)) inline void vec_sub(double* out, const double* a, const double* b, int n,
+                                                   double s = 1.0) noexcept {
+  int r = 0;
+  for (; r + 4 <= n; r += 4) {
+    vd4 x, y;
+    __builtin_memcpy(&x, a + r, sizeof(vd4));
+    __builtin_memcpy(&y, b + r, sizeof(vd4));
+    x -= y * s;
+    __builtin_memcpy(out + r, &x, sizeof(vd4));
+  }
+  for (; r < n; ++r) out[r] = a[r] - b[r] * s;
+}
+
 // Compile-time sizes for K JFETs (K = 0: dynamic).
 constexpr int ports_of(int k) noexcept { return k > 0 ? 2 * k : Eigen::Dynamic; }
 constexpr int currents_of(int k) noexcept { return k > 0 ? 3 * k : Eigen::Dynamic; }
@@ -389,31 +562,59 @@ __attribute__((always_inline)) inline bool torn_prepare_n(double* a, int n_rt) n
   return true;
 }
 
-// One block Gauss-Seidel sweep on J x = r with J prepared by torn_prepare_n: block by block
-// in signal order, x_b = D_b^-1 (r_b - sum over the other blocks c of J_bc x_c), the blocks
-// before b already swept (lower part) and those after b from the sweep before (upper part).
-// delta receives the change of x. With x^m - x^(m-1) = delta, J x^m = r - U delta (U: J's
-// strictly block upper part), so the sweep leaves the linear residual -U delta: the
-// coupling that torn_coupling_n bounds.
+// One block Gauss-Seidel sweep on J x = r with J prepared by torn_prepare_n, on the running
+// residual t = r - J x (in and out; t = r where the sweeps start from x = 0): block by block
+// in signal order, delta_b = D_b^-1 t_b, x_b += delta_b, and t less J's column pair b times
+// delta_b, every row but b's own (the rows of the blocks already swept are not read again
+// this sweep).
+// That is x_b = D_b^-1 (r_b - sum over the other blocks c of J_bc x_c), the blocks before b
+// already swept (lower part) and those after b from the sweep before (upper part), with J's
+// columns read whole (contiguous, in packets at the fixed size) instead of its rows. With
+// x^m - x^(m-1) = delta, J x^m = r - U delta (U: J's strictly block upper part), so the
+// sweep leaves the linear residual -U delta (t, up to rounding): the coupling that
+// torn_coupling_n bounds.
 template <int N>
-__attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_rt, const double* r, double* x,
+__attribute__((always_inline)) inline void torn_sweep_n(const double* a, int n_rt, double* t, double* x,
                                                         double* delta) noexcept {
   const int n = N > 0 ? N : n_rt;
+  if constexpr (N > 0) {
+    // t, x and delta held in registers through the sweep and stored whole at its end (a
+    // packet stored and reloaded around each block's scalar writes, or loaded whole after
+    // them, stalls on store forwarding).
+    vcol<N> tc = vcol<N>::load(t), xc = vcol<N>::load(x), dc = vcol<N>::zero();
 #pragma GCC unroll 8
-  for (int b = 0; b < n; b += 2) {
-    double y0 = r[b], y1 = r[b + 1];
-#pragma GCC unroll 8
-    for (int c = 0; c < n; c += 2) {
-      if (c == b) continue;
-      y0 -= a[b + c * n] * x[c] + a[b + (c + 1) * n] * x[c + 1];
-      y1 -= a[b + 1 + c * n] * x[c] + a[b + 1 + (c + 1) * n] * x[c + 1];
+    for (int b = 0; b < N; b += 2) {
+      const double* d = a + b + b * N;
+      const double t0 = tc.get(b), t1 = tc.get(b + 1);
+      const double e0 = d[0] * t0 + d[N] * t1, e1 = d[1] * t0 + d[N + 1] * t1;
+      dc.set(b, e0);
+      dc.set(b + 1, e1);
+      xc.set(b, xc.get(b) + e0);
+      xc.set(b + 1, xc.get(b + 1) + e1);
+      tc.add(a + b * N, -e0);
+      tc.add(a + (b + 1) * N, -e1);
+      // The block's own rows hold D_b^-1 in place of J_bb: its residual, J_bb delta_b less
+      // t_b, is 0.
+      tc.set(b, 0.0);
+      tc.set(b + 1, 0.0);
     }
+    tc.store(t);
+    xc.store(x);
+    dc.store(delta);
+    return;
+  }
+  for (int b = 0; b < n; b += 2) {
     const double* d = a + b + b * n;
-    const double n0 = d[0] * y0 + d[n] * y1, n1 = d[1] * y0 + d[n + 1] * y1;
-    delta[b] = n0 - x[b];
-    delta[b + 1] = n1 - x[b + 1];
-    x[b] = n0;
-    x[b + 1] = n1;
+    const double e0 = d[0] * t[b] + d[n] * t[b + 1], e1 = d[1] * t[b] + d[n + 1] * t[b + 1];
+    delta[b] = e0;
+    delta[b + 1] = e1;
+    x[b] += e0;
+    x[b + 1] += e1;
+    const double* c0 = a + b * n;
+    const double* c1 = c0 + n;
+    for (int q = 0; q < n; ++q) t[q] -= c0[q] * e0 + c1[q] * e1;
+    t[b] = 0.0;
+    t[b + 1] = 0.0;
   }
 }
 
@@ -425,6 +626,18 @@ __attribute__((always_inline)) inline double torn_coupling_n(const double* a, in
                                                              double* e) noexcept {
   const int n = N > 0 ? N : n_rt;
   double most = 0.0;
+  if constexpr (N > 0) {
+    // Column by column: column c adds to the rows of the blocks before its own.
+    vcol<N> acc = vcol<N>::zero();
+#pragma GCC unroll 16
+    for (int c = 2; c < N; ++c) acc.add_abs(a + c * N, std::fabs(delta[c]), 0, c / 2 * 2);
+    acc.store(e);
+    for (int r = 0; r < N; ++r) {
+      e[r] *= 1.0 + detail::acceptance_round_k;
+      most = std::max(most, e[r]);
+    }
+    return most;
+  }
 #pragma GCC unroll 8
   for (int b = 0; b < n; b += 2) {
     double s0 = 0.0, s1 = 0.0;
@@ -453,30 +666,58 @@ template <int N>
 __attribute__((always_inline)) inline double torn_abs_bound_n(const double* a, int n_rt, double* t) noexcept {
   const int n = N > 0 ? N : n_rt;
   double w[N > 0 ? N : torn_max_ports];
+  if constexpr (N > 0) {
+    // Column by column (the same sums in another order; every term non-negative): u = |U| 1
+    // first, then block by block t_b and w_b from |D_b^-1|, and block b's columns of |L|
+    // times them onto the rows below.
+    vcol<N> y = vcol<N>::load(t), u = vcol<N>::zero();
+#pragma GCC unroll 16
+    for (int c = 2; c < N; ++c) u.add_abs(a + c * N, 1.0, 0, c / 2 * 2);
+    double ys[N], us[N];
+    y.store(ys);
+    u.store(us);
 #pragma GCC unroll 8
-  for (int b = 0; b < n; b += 2) {
-    double u0 = 0.0, u1 = 0.0;
-#pragma GCC unroll 8
-    for (int c = b + 2; c < n; c += 2) {
-      u0 += std::fabs(a[b + c * n]) + std::fabs(a[b + (c + 1) * n]);
-      u1 += std::fabs(a[b + 1 + c * n]) + std::fabs(a[b + 1 + (c + 1) * n]);
+    for (int b = 0; b < N; b += 2) {
+      const double* d = a + b + b * N;
+      const double d00 = std::fabs(d[0]), d01 = std::fabs(d[N]), d10 = std::fabs(d[1]), d11 = std::fabs(d[N + 1]);
+      t[b] = d00 * ys[b] + d01 * ys[b + 1];
+      t[b + 1] = d10 * ys[b] + d11 * ys[b + 1];
+      w[b] = d00 * us[b] + d01 * us[b + 1];
+      w[b + 1] = d10 * us[b] + d11 * us[b + 1];
+      if (b + 2 >= N) break;
+      y.add_abs(a + b * N, t[b], b + 2, N);
+      y.add_abs(a + (b + 1) * N, t[b + 1], b + 2, N);
+      u.add_abs(a + b * N, w[b], b + 2, N);
+      u.add_abs(a + (b + 1) * N, w[b + 1], b + 2, N);
+      y.store(ys);
+      u.store(us);
     }
-    double y0 = t[b], y1 = t[b + 1];
+  } else {
 #pragma GCC unroll 8
-    for (int c = 0; c < b; c += 2) {
-      const double l00 = std::fabs(a[b + c * n]), l01 = std::fabs(a[b + (c + 1) * n]);
-      const double l10 = std::fabs(a[b + 1 + c * n]), l11 = std::fabs(a[b + 1 + (c + 1) * n]);
-      y0 += l00 * t[c] + l01 * t[c + 1];
-      y1 += l10 * t[c] + l11 * t[c + 1];
-      u0 += l00 * w[c] + l01 * w[c + 1];
-      u1 += l10 * w[c] + l11 * w[c + 1];
+    for (int b = 0; b < n; b += 2) {
+      double u0 = 0.0, u1 = 0.0;
+#pragma GCC unroll 8
+      for (int c = b + 2; c < n; c += 2) {
+        u0 += std::fabs(a[b + c * n]) + std::fabs(a[b + (c + 1) * n]);
+        u1 += std::fabs(a[b + 1 + c * n]) + std::fabs(a[b + 1 + (c + 1) * n]);
+      }
+      double y0 = t[b], y1 = t[b + 1];
+#pragma GCC unroll 8
+      for (int c = 0; c < b; c += 2) {
+        const double l00 = std::fabs(a[b + c * n]), l01 = std::fabs(a[b + (c + 1) * n]);
+        const double l10 = std::fabs(a[b + 1 + c * n]), l11 = std::fabs(a[b + 1 + (c + 1) * n]);
+        y0 += l00 * t[c] + l01 * t[c + 1];
+        y1 += l10 * t[c] + l11 * t[c + 1];
+        u0 += l00 * w[c] + l01 * w[c + 1];
+        u1 += l10 * w[c] + l11 * w[c + 1];
+      }
+      const double* d = a + b + b * n;
+      const double d00 = std::fabs(d[0]), d01 = std::fabs(d[n]), d10 = std::fabs(d[1]), d11 = std::fabs(d[n + 1]);
+      t[b] = d00 * y0 + d01 * y1;
+      t[b + 1] = d10 * y0 + d11 * y1;
+      w[b] = d00 * u0 + d01 * u1;
+      w[b + 1] = d10 * u0 + d11 * u1;
     }
-    const double* d = a + b + b * n;
-    const double d00 = std::fabs(d[0]), d01 = std::fabs(d[n]), d10 = std::fabs(d[1]), d11 = std::fabs(d[n + 1]);
-    t[b] = d00 * y0 + d01 * y1;
-    t[b + 1] = d10 * y0 + d11 * y1;
-    w[b] = d00 * u0 + d01 * u1;
-    w[b + 1] = d10 * u0 + d11 * u1;
   }
   double rho = 0.0, smax = 0.0;
   for (int r = 0; r < n; ++r) {
@@ -496,12 +737,12 @@ __attribute__((always_inline)) inline double torn_abs_bound_n(const double* a, i
 template <int N>
 __attribute__((always_inline)) inline void torn_solve_n(const double* a, int n_rt, double* b, int sweeps) noexcept {
   const int n = N > 0 ? N : n_rt;
-  double r[N > 0 ? N : torn_max_ports], delta[N > 0 ? N : torn_max_ports];
+  double t[N > 0 ? N : torn_max_ports], delta[N > 0 ? N : torn_max_ports];
   for (int q = 0; q < n; ++q) {
-    r[q] = b[q];
+    t[q] = b[q];
     b[q] = 0.0;
   }
-  for (int s = 0; s < sweeps; ++s) torn_sweep_n<N>(a, n, r, b, delta);
+  for (int s = 0; s < sweeps; ++s) torn_sweep_n<N>(a, n, t, b, delta);
 }
 
 // Factors of either kind: `blocked` says which (block_factor_n's or lu_factor_n's).
@@ -543,11 +784,17 @@ template <int N, bool Add>
 __attribute__((always_inline)) inline void product_n(const double* __restrict a, int n_rt, int m,
                                                      const double* __restrict x, double* __restrict y) noexcept {
   const int n = N > 0 ? N : n_rt;
-  if constexpr (!Add)
-    for (int r = 0; r < n; ++r) y[r] = 0.0;
-  for (int c = 0; c < m; ++c) {
-    const double xc = x[c];
-    for (int r = 0; r < n; ++r) y[r] += a[r + c * n] * xc;
+  if constexpr (N > 0) {
+    vcol<N> acc = Add ? vcol<N>::load(y) : vcol<N>::zero();
+    for (int c = 0; c < m; ++c) acc.add(a + c * N, x[c]);
+    acc.store(y);
+  } else {
+    if constexpr (!Add)
+      for (int r = 0; r < n; ++r) y[r] = 0.0;
+    for (int c = 0; c < m; ++c) {
+      const double xc = x[c];
+      for (int r = 0; r < n; ++r) y[r] += a[r + c * n] * xc;
+    }
   }
 }
 
@@ -704,6 +951,13 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   // every JFET go through |F| into the acceptance bound (skip_t), and skip_arg is set so
   // that the sum over the JFETs stays below a thousandth of tol_v (never above exp(-16)).
   g.skip_t.setZero(np);
+  g.junction_vcrit.resize(np);
+  g.junction_small.resize(np);
+  for (int j = 0; j < k; ++j) {
+    const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
+    g.junction_vcrit[2 * j] = g.junction_vcrit[2 * j + 1] = dv.vcrit_v;
+    g.junction_small[2 * j] = g.junction_small[2 * j + 1] = 0.01 * dv.nvt_v;
+  }
   for (int j = 0; j < k; ++j) {
     detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
     const Eigen::VectorXd fa = g.f_abs.col(3 * j) + g.f_abs.col(3 * j + 1);
@@ -872,9 +1126,17 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       i[3 * j + 2] = c.id_a;
     }
     ++evals;
-    r = p - v;
-    product_n<lu_size_of(K), true>(f.data(), np, ni, i.data(), r.data());
-    const double rn = r.cwiseAbs().maxCoeff();
+    double rn;
+    if constexpr (K > 0) {
+      vcol<2 * K> rc = vcol<2 * K>::load(p.data()).zip(vcol<2 * K>::load(v.data()), [](const auto& x, const auto& y) { return x - y; });
+      for (int c = 0; c < 3 * K; ++c) rc.add(f.data() + c * 2 * K, i[c]);
+      rc.store(r.data());
+      rn = rc.abs_max();
+    } else {
+      r = p - v;
+      product_n<lu_size_of(K), true>(f.data(), np, ni, i.data(), r.data());
+      rn = r.cwiseAbs().maxCoeff();
+    }
     // Damped Newton: halve a step that made the residual grow (or not finite).
     if (detail::halve_step(may_damp, rn, rn_base, tol, halvings)) {
       step *= 0.5;
@@ -887,6 +1149,24 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
     // I - F Jf, column pair by column pair (Jf is block diagonal).
     auto form_j = [&]() noexcept {
       double* jd = out.lu.data();
+      if constexpr (K > 0) {
+        constexpr int NP = 2 * K;
+        for (int q = 0; q < K; ++q) {
+          const detail::port_currents& c = g.cur[static_cast<std::size_t>(q)];
+          const double* f0 = f.data() + 3 * q * NP;
+          vcol<NP> c0 = vcol<NP>::zero(), c1 = vcol<NP>::zero();
+          c0.add(f0, -c.ggs_s);
+          c0.add(f0 + NP, -c.ggd_s);
+          c0.add(f0 + 2 * NP, -c.gm_s);
+          c1.add(f0 + NP, c.ggd_s);
+          c1.add(f0 + 2 * NP, -c.gds_s);
+          c0.store(jd + 2 * q * NP);
+          c1.store(jd + (2 * q + 1) * NP);
+          jd[2 * q + 2 * q * NP] += 1.0;
+          jd[2 * q + 1 + (2 * q + 1) * NP] += 1.0;
+        }
+        return;
+      }
       for (int q = 0; q < k; ++q) {
         const detail::port_currents& c = g.cur[static_cast<std::size_t>(q)];
         for (int row = 0; row < np; ++row) {
@@ -901,6 +1181,10 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
     // Junction-voltage limiting (Nagel 1975, SPICE2 pnjlim), per JFET; the largest cut
     // scales the whole step.
     auto limit_step = [&]() noexcept {
+      if constexpr (K > 0) {
+        // Which junction would pass vcrit, all JFETs at once (the scalar loop below then).
+        if (!vcol<2 * K>::load(v.data()).plus(d.data()).junctions().any_above(g.junction_vcrit.data())) return false;
+      }
       double alpha = 1.0;
       for (int j = 0; j < k; ++j) {
         const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
@@ -915,6 +1199,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       return false;
     };
     auto small_step = [&]() noexcept {
+      if constexpr (K > 0) return vcol<2 * K>::load(d.data()).junctions().all_at_most(g.junction_small.data());
       bool small = true;
       for (int j = 0; j < k && small; ++j)
         small = detail::small_junction_steps(g.dev[static_cast<std::size_t>(j)], d[2 * j], d[2 * j] - d[2 * j + 1]);
@@ -990,8 +1275,27 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
       }
       // allowed: the rounding of each row, up to the allowance; t: the residual bound less
       // what is allowed (so t <= tol_v is the test of the residual).
-      product_n<lu_size_of(K), false>(f_abs.data(), np, ni, mag.data(), allowed.data());
-      allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
+      if constexpr (K > 0) {
+        // The same sums, both products in one pass over |F|, in fixed-size vectors.
+        constexpr int NP = 2 * K;
+        vcol<NP> ma = vcol<NP>::zero(), ta = vcol<NP>::zero();
+        for (int c = 0; c < 3 * K; ++c) {
+          ma.add(f_abs.data() + c * NP, mag[c]);
+          ta.add(f_abs.data() + c * NP, rem[c]);
+        }
+        const vcol<NP> al = ma.zip(vcol<NP>::load(p.data()), [](const auto& x, const auto& y) { return x + vabs(y); })
+                                .zip(vcol<NP>::load(v.data()).plus(d.data()),
+                                     [](const auto& x, const auto& y) { return acceptance_round_k * (x + vabs(y)); });
+        const vcol<NP> rs = vcol<NP>::load(g.skip_t.data()).zip(al, [](const auto& x, const auto& y) {
+          return x + vmax(y - rounding_allowance_v, decltype(y){} );
+        });
+        rs.store(g.corr_t.data());
+        ta.zip(rs, [](const auto& x, const auto& y) { return x + y; }).store(t.data());
+        al.zip(al, [](const auto& x, const auto&) { return vmin(x, x - x + rounding_allowance_v); }).store(allowed.data());
+      } else {
+        product_n<lu_size_of(K), false>(f_abs.data(), np, ni, mag.data(), allowed.data());
+        allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
+      }
       // The junctions' part of |F| R, for the correction's test (two JFETs only, below).
       double junctions_most = 0.0;
       bool junction_on = false;  // a junction taken as -is has no conductance and no remainder
@@ -1009,11 +1313,13 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         product_n<lu_size_of(K), false>(f_abs.data(), np, ni, cq.data(), g.corr_e.data());
         junctions_most = Eigen::Map<const vec_p>(g.corr_e.data(), np).maxCoeff();
       }
-      product_n<lu_size_of(K), false>(f_abs.data(), np, ni, rem.data(), t.data());
-      Eigen::Map<vec_p> rest(g.corr_t.data(), np);  // skip_t and the rounding beyond the allowance
-      rest = Eigen::Map<const vec_p>(g.skip_t.data(), np) + (allowed.array() - rounding_allowance_v).max(0.0).matrix();
-      t += rest;
-      allowed = allowed.cwiseMin(rounding_allowance_v);
+      if constexpr (K == 0) {
+        product_n<lu_size_of(K), false>(f_abs.data(), np, ni, rem.data(), t.data());
+        Eigen::Map<vec_p> rest(g.corr_t.data(), np);  // skip_t and the rounding beyond the allowance
+        rest = Eigen::Map<const vec_p>(g.skip_t.data(), np) + (allowed.array() - rounding_allowance_v).max(0.0).matrix();
+        t += rest;
+        allowed = allowed.cwiseMin(rounding_allowance_v);
+      }
       bool sweep_may_help = false;
       if (coupling) {
         sweep_may_help = t.maxCoeff() <= tol;
@@ -1102,8 +1408,10 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         out.torn = true;
         out.blocked = false;
         double delta[K > 0 ? 2 * K : torn_max_ports], coupling[K > 0 ? 2 * K : torn_max_ports];
+        double left[K > 0 ? 2 * K : torn_max_ports];  // the running residual of the sweeps
+        for (int q = 0; q < np; ++q) left[q] = r[q];
         d.setZero();
-        torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, r.data(), d.data(), delta);
+        torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, left, d.data(), delta);
         int sweeps = 1;
         double change = d.cwiseAbs().maxCoeff();
         for (;;) {
@@ -1129,7 +1437,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
             }
           }
           if (sweeps >= torn_max_sweeps || !sweep_more) break;
-          torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, r.data(), d.data(), delta);
+          torn_sweep_n<lu_size_of(K)>(out.lu.data(), np, left, d.data(), delta);
           ++sweeps;
           double change_now = 0.0;
           for (int q = 0; q < np; ++q) change_now = std::max(change_now, std::fabs(delta[q]));
@@ -1257,7 +1565,7 @@ double general_solver::process_k(double generator_v) noexcept {
   {
     double* __restrict x_in = in_.data();
     const double* __restrict i_dc = g.dc.i.data();
-    for (int c = 0; c < ni; ++c) x_in[ns + 2 + c] = g.last().i[c] - i_dc[c];
+    vec_sub(x_in + ns + 2, g.last().i.data(), i_dc, ni);
     const double* w_i = g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows;
 #if PINCHOFF_DK_GENERAL_WIDE
     if (wide_)
@@ -1266,7 +1574,7 @@ double general_solver::process_k(double generator_v) noexcept {
 #endif
       update_after_portable(w_i, rows, g.pre.data(), x_in + ns + 2, ni, g.out.data());
     const double* __restrict o = g.out.data();
-    for (int row = 0; row < ns; ++row) x_in[row] += o[row];
+    vec_sub(x_in, x_in, o, ns, -1.0);
   }
   q = Eigen::Map<const vec_p>(g.out.data() + ns, np);
 

@@ -80,6 +80,7 @@ class general_solver : public dk_solver_base {
     // column-major, 16 doubles a slot in the ring's order.
     detail::aligned_doubles mring;
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
+    Eigen::VectorXd junction_vcrit, junction_small;  // per port row 2j, 2j + 1: JFET j's vcrit_v, and 0.01 n Vt
     Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M
     Eigen::MatrixXd track_lu;                   // track() after a torn point: I - F Jf's factors
     std::vector<int> track_piv;
