@@ -120,6 +120,12 @@ struct vcol {
     c.h = vd2{0.0, 0.0};
     return c;
   }
+  __attribute__((always_inline)) static vcol fill(double x) noexcept {
+    vcol c;
+    for (int i = 0; i < (Q > 0 ? Q : 1); ++i) c.q[i] = vd4{x, x, x, x};
+    c.h = vd2{x, x};
+    return c;
+  }
   __attribute__((always_inline)) static vcol load(const double* p) noexcept {
     vcol c = zero();
 #pragma GCC unroll 4
@@ -1291,7 +1297,8 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
         });
         rs.store(g.corr_t.data());
         ta.zip(rs, [](const auto& x, const auto& y) { return x + y; }).store(t.data());
-        al.zip(al, [](const auto& x, const auto&) { return vmin(x, x - x + rounding_allowance_v); }).store(allowed.data());
+        al.zip(vcol<NP>::fill(rounding_allowance_v), [](const auto& x, const auto& y) { return vmin(x, y); })
+            .store(allowed.data());
       } else {
         product_n<lu_size_of(K), false>(f_abs.data(), np, ni, mag.data(), allowed.data());
         allowed = acceptance_round_k * (allowed + p.cwiseAbs() + (v + d).cwiseAbs());
