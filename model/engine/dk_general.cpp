@@ -244,18 +244,18 @@ struct vcol {
   }
 };
 
-// out = a - s b over n entries, in packets of four (out may be a).
-__attribute__((always_inline)) inline void vec_sub(double* out, const double* a, const double* b, int n,
-                                                   double s = 1.0) noexcept {
+// out = a + s b over n entries, in packets of four (out may be a).
+__attribute__((always_inline)) inline void vec_add_scaled(double* out, const double* a, const double* b, int n,
+                                                          double s) noexcept {
   int r = 0;
   for (; r + 4 <= n; r += 4) {
     vd4 x, y;
     __builtin_memcpy(&x, a + r, sizeof(vd4));
     __builtin_memcpy(&y, b + r, sizeof(vd4));
-    x -= y * s;
+    x += y * s;
     __builtin_memcpy(out + r, &x, sizeof(vd4));
   }
-  for (; r < n; ++r) out[r] = a[r] - b[r] * s;
+  for (; r < n; ++r) out[r] = a[r] + b[r] * s;
 }
 
 // Compile-time sizes for K JFETs (K = 0: dynamic).
@@ -679,6 +679,8 @@ __attribute__((always_inline)) inline double torn_abs_bound_n(const double* a, i
     vcol<N> y = vcol<N>::load(t), u = vcol<N>::zero();
 #pragma GCC unroll 16
     for (int c = 2; c < N; ++c) u.add_abs(a + c * N, 1.0, 0, c / 2 * 2);
+    // Each block's two rows read back from a store of the packets (lane extracts instead
+    // measured no faster).
     double ys[N], us[N];
     y.store(ys);
     u.store(us);
@@ -1572,7 +1574,7 @@ double general_solver::process_k(double generator_v) noexcept {
   {
     double* __restrict x_in = in_.data();
     const double* __restrict i_dc = g.dc.i.data();
-    vec_sub(x_in + ns + 2, g.last().i.data(), i_dc, ni);
+    vec_add_scaled(x_in + ns + 2, g.last().i.data(), i_dc, ni, -1.0);
     const double* w_i = g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows;
 #if PINCHOFF_DK_GENERAL_WIDE
     if (wide_)
@@ -1581,7 +1583,7 @@ double general_solver::process_k(double generator_v) noexcept {
 #endif
       update_after_portable(w_i, rows, g.pre.data(), x_in + ns + 2, ni, g.out.data());
     const double* __restrict o = g.out.data();
-    vec_sub(x_in, x_in, o, ns, -1.0);
+    vec_add_scaled(x_in, x_in, o, ns, 1.0);
   }
   q = Eigen::Map<const vec_p>(g.out.data() + ns, np);
 
@@ -1929,10 +1931,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     update_wide(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2, 6,
                 g.out.data());
     const double* __restrict o = g.out.data();
-    int row = 0;
-    for (; row + 4 <= ns; row += 4)
-      _mm256_storeu_pd(x_in + row, _mm256_add_pd(_mm256_loadu_pd(x_in + row), _mm256_load_pd(o + row)));
-    for (; row < ns; ++row) x_in[row] += o[row];
+    vec_add_scaled(x_in, x_in, o, ns, 1.0);
     _mm256_storeu_pd(g.q.data(), _mm256_loadu_pd(o + ns));
   }
   ++stats_.samples;
