@@ -905,6 +905,7 @@ void general_solver::port_set::resize(int k) {
   for (int r = 0; r < 2 * k; ++r) piv[static_cast<std::size_t>(r)] = r;
   blocked = false;
   torn = false;
+  pending = false;
 }
 
 general_solver::general_solver(const network& net, const operating_point& op, dk_matrices m, const dk_options& opt)
@@ -1028,6 +1029,7 @@ void general_solver::point_general(const Eigen::VectorXd& v, port_set& out) noex
   one_minus_f_jf(m_.f, g.cur, out.lu);
   out.blocked = false;
   out.torn = false;
+  out.pending = false;
   if (!(lu_factor(out.lu.data(), k * 2, out.piv.data()) > 0.0))
     out.lu.setConstant(std::numeric_limits<double>::quiet_NaN());
 }
@@ -1045,8 +1047,28 @@ void general_solver::reset() {
   stats_ = {};
 }
 
+// A point process_pair accepted holds I - F Jf itself (`pending`): its factors, as
+// solve_general would have left them, for what reads them (the sub-steps, track() in a
+// steady state's tracked periods, pair_m_of); the pair loop's own samples use M in full.
+void general_solver::ensure_factors(port_set& pt) noexcept {
+  if (!pt.pending) return;
+  pt.pending = false;
+  pt.torn = false;
+  const int np = 2 * m_.devices;
+  pt.blocked = opt_.block_factors && block_factor_n<0>(pt.lu.data(), np);
+  if (pt.blocked) return;
+  for (int c = 0; c < np; ++c)
+    for (int r = 0; r < np; ++r) {
+      double s = r == c ? 1.0 : 0.0;
+      for (int q = 0; q < 3 * m_.devices; ++q) s -= m_.f(r, q) * pt.jf(q, c);
+      pt.lu(r, c) = s;
+    }
+  if (!(lu_factor(pt.lu.data(), np, pt.piv.data()) > 0.0)) pt.lu.setConstant(std::numeric_limits<double>::quiet_NaN());
+}
+
 // dv/dp of ring point `slot` in full, from its factors (two JFETs: process_pair).
 void general_solver::pair_m_of(int slot) noexcept {
+  ensure_factors(g_.ring[slot]);
   const port_set& pt = g_.ring[slot];
   if (pt.blocked && !pt.torn) return pair_inverse(pt.lu.data(), g_.mring.data() + 16 * slot);
   inverse_of(pt.lu, pt.piv, pt.blocked, g_.mi);
@@ -1061,6 +1083,7 @@ void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
   // C Jf by JFET j's 3 x 2 block of Jf (rows 3j.., columns 2j..), the rest of Jf zero; the
   // small products coefficient by coefficient (a general product's packing costs more).
+  ensure_factors(g_.last());
   const Eigen::MatrixXd& jf = g_.last().jf;
   for (int j = 0; j < m_.devices; ++j)
     for (int t = 2 * j; t < 2 * j + 2; ++t)
@@ -1157,6 +1180,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
     // I - F Jf, column pair by column pair (Jf is block diagonal).
     auto form_j = [&]() noexcept {
       double* jd = out.lu.data();
+      out.pending = false;
       if constexpr (K > 0) {
         constexpr int NP = 2 * K;
         for (int q = 0; q < K; ++q) {
@@ -1500,6 +1524,7 @@ __attribute__((noinline)) void general_solver::substep_general(const Eigen::Vect
     const Eigen::VectorXd& p;
     port_set& out;
     void restart() noexcept {
+      s.ensure_factors(s.g_.last());
       s.g_.cur_pt = s.g_.last();
       s.g_.pc = s.g_.p_last;
     }
@@ -1620,10 +1645,12 @@ __attribute__((PINCHOFF_DK_GENERAL_FLATTEN target("avx2,fma"))) void general_sol
 #if PINCHOFF_DK_PAIR
 // Two JFETs, the sample as the one-JFET path lays it out (dk_single.cpp): the four port
 // voltages, the residual, the step and each column of F, of I - F Jf and of
-// M = (I - F Jf)^-1 in one AVX2 register each; M formed in full from the 2 x 2 block
-// factors (block_factor_n: the same factors, kept in the point for track() and the
-// sub-steps) and kept for the three points the warm start uses, so the warm start, the
-// step and the bound |M| t are each four fused multiply-adds a column. The same Newton,
+// M = (I - F Jf)^-1 in one AVX2 register each; M formed in full in registers by 2 x 2
+// blocks (pair_inverse_regs: the block factors' arithmetic and tests, without their round
+// trip through memory; the point keeps I - F Jf itself, factored only where the sub-steps
+// or track() read it: ensure_factors) and kept for the three points the warm start uses,
+// so the warm start, the step and the bound |M| t are each four fused multiply-adds a
+// column. The same Newton,
 // the same acceptance (the bound |M| t itself, which block_abs_bound_n bounds from
 // above) and the same warm start as solve_general; up to pair_inline_iterations
 // iterations here, and anything else (a junction step to limit, a step to damp, factors
@@ -1652,6 +1679,57 @@ __attribute__((target("avx2,fma"), always_inline)) inline __m256d mul4_abs(const
   y = _mm256_fmadd_pd(abs4(_mm256_load_pd(a + 4)), _mm256_broadcast_sd(x + 1), y);
   y = _mm256_fmadd_pd(abs4(_mm256_load_pd(a + 8)), _mm256_broadcast_sd(x + 2), y);
   return _mm256_fmadd_pd(abs4(_mm256_load_pd(a + 12)), _mm256_broadcast_sd(x + 3), y);
+}
+
+// The 2 x 2 block with columns c0, c1 inverted as invert_block does (the same test), into
+// the columns i0, i1.
+__attribute__((always_inline)) inline bool invert_block_cols(vd2 c0, vd2 c1, vd2& i0, vd2& i1) noexcept {
+  const double a00 = c0[0], a10 = c0[1], a01 = c1[0], a11 = c1[1];
+  const double p0 = a00 * a11, p1 = a01 * a10;
+  const double det = p0 - p1;
+  if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
+  const double inv = 1.0 / det;
+  i0 = vd2{a11 * inv, -a10 * inv};
+  i1 = vd2{-a01 * inv, a00 * inv};
+  return true;
+}
+
+// M = (I - F Jf)^-1 of two JFETs in registers, from the four columns k0..k3 of I - F Jf:
+// the block factors block_factor_n<4> forms (D1^-1, L21 = A21 D1^-1, S = A22 - L21 A12,
+// T = S^-1, each 2 x 2 block inverted as invert_block does) and M from them as pair_inverse
+// does, with the same tests (a block not safely invertible, a multiplier above 1e4: false),
+// without the factors' round trip through memory. Columns of M in m0..m3.
+__attribute__((target("avx2,fma"), always_inline)) inline bool pair_inverse_regs(__m256d k0, __m256d k1, __m256d k2,
+                                                                                  __m256d k3, __m256d& m0, __m256d& m1,
+                                                                                  __m256d& m2, __m256d& m3) noexcept {
+  // The blocks' columns (rows 0-1 and 2-3 of each column of I - F Jf).
+  const vd2 a0 = _mm256_castpd256_pd128(k0), a1 = _mm256_castpd256_pd128(k1);
+  const vd2 c0 = _mm256_extractf128_pd(k0, 1), c1 = _mm256_extractf128_pd(k1, 1);
+  const vd2 b0 = _mm256_castpd256_pd128(k2), b1 = _mm256_castpd256_pd128(k3);
+  const vd2 d0 = _mm256_extractf128_pd(k2, 1), d1 = _mm256_extractf128_pd(k3, 1);
+  vd2 ai0, ai1;  // A^-1
+  if (!invert_block_cols(a0, a1, ai0, ai1)) return false;
+  // L = C A^-1, its growth; S = D - L B.
+  const vd2 l0 = c0 * ai0[0] + c1 * ai0[1];
+  const vd2 l1 = c0 * ai1[0] + c1 * ai1[1];
+  {
+    const vd2 g = vmax(vabs(l0), vabs(l1));
+    if (!(std::max(g[0], g[1]) <= 1e4)) return false;
+  }
+  const vd2 s0 = d0 - (l0 * b0[0] + l1 * b0[1]);
+  const vd2 s1 = d1 - (l0 * b1[0] + l1 * b1[1]);
+  vd2 t0, t1;  // T = S^-1
+  if (!invert_block_cols(s0, s1, t0, t1)) return false;
+  // X = A^-1 B T; M = [A^-1 + X L, -X; -T L, T].
+  const vd2 au0 = ai0 * b0[0] + ai1 * b0[1], au1 = ai0 * b1[0] + ai1 * b1[1];
+  const vd2 x0 = au0 * t0[0] + au1 * t0[1], x1 = au0 * t1[0] + au1 * t1[1];
+  const vd2 top0 = ai0 + (x0 * l0[0] + x1 * l0[1]), top1 = ai1 + (x0 * l1[0] + x1 * l1[1]);
+  const vd2 bot0 = -(t0 * l0[0] + t1 * l0[1]), bot1 = -(t0 * l1[0] + t1 * l1[1]);
+  m0 = _mm256_set_m128d(bot0, top0);
+  m1 = _mm256_set_m128d(bot1, top1);
+  m2 = _mm256_set_m128d(t0, -x0);
+  m3 = _mm256_set_m128d(t1, -x1);
+  return true;
 }
 
 struct pair_out {
@@ -1807,17 +1885,31 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     j2 = _mm256_fmadd_pd(f5, _mm256_set1_pd(c1.gm_s), j2);
     __m256d j3 = _mm256_mul_pd(f5, _mm256_set1_pd(c1.gds_s));
     j3 = _mm256_fnmadd_pd(f4, _mm256_set1_pd(c1.ggd_s), j3);
-    _mm256_storeu_pd(jd, _mm256_sub_pd(_mm256_setr_pd(1.0, 0.0, 0.0, 0.0), j0));
-    _mm256_storeu_pd(jd + 4, _mm256_sub_pd(_mm256_setr_pd(0.0, 1.0, 0.0, 0.0), j1));
-    _mm256_storeu_pd(jd + 8, _mm256_sub_pd(_mm256_setr_pd(0.0, 0.0, 1.0, 0.0), j2));
-    _mm256_storeu_pd(jd + 12, _mm256_sub_pd(_mm256_setr_pd(0.0, 0.0, 0.0, 1.0), j3));
-    if (!block_factor_n<4>(jd, 4)) break;
-    trial.blocked = true;
+    const __m256d k0 = _mm256_sub_pd(_mm256_setr_pd(1.0, 0.0, 0.0, 0.0), j0);
+    const __m256d k1 = _mm256_sub_pd(_mm256_setr_pd(0.0, 1.0, 0.0, 0.0), j1);
+    const __m256d k2 = _mm256_sub_pd(_mm256_setr_pd(0.0, 0.0, 1.0, 0.0), j2);
+    const __m256d k3 = _mm256_sub_pd(_mm256_setr_pd(0.0, 0.0, 0.0, 1.0), j3);
+    // I - F Jf itself into the point (its factors formed only where something reads them:
+    // ensure_factors), M in registers and into the ring for the warm start.
+    _mm256_storeu_pd(jd, k0);
+    _mm256_storeu_pd(jd + 4, k1);
+    _mm256_storeu_pd(jd + 8, k2);
+    _mm256_storeu_pd(jd + 12, k3);
+    trial.pending = true;
+    trial.blocked = false;
     trial.torn = false;
-    pair_inverse(jd, mt);
+    __m256d mc0, mc1, mc2, mc3;
+    if (!pair_inverse_regs(k0, k1, k2, k3, mc0, mc1, mc2, mc3)) break;
+    _mm256_store_pd(mt, mc0);
+    _mm256_store_pd(mt + 4, mc1);
+    _mm256_store_pd(mt + 8, mc2);
+    _mm256_store_pd(mt + 12, mc3);
     alignas(32) double rv[4];
     _mm256_store_pd(rv, r);
-    const __m256d d = mul4(mt, rv, _mm256_setzero_pd());
+    __m256d d = _mm256_mul_pd(mc0, _mm256_broadcast_sd(rv));
+    d = _mm256_fmadd_pd(mc1, _mm256_broadcast_sd(rv + 1), d);
+    d = _mm256_fmadd_pd(mc2, _mm256_broadcast_sd(rv + 2), d);
+    d = _mm256_fmadd_pd(mc3, _mm256_broadcast_sd(rv + 3), d);
     alignas(32) double dd[4];
     _mm256_store_pd(dd, d);
     if (!std::isfinite(dd[0] + dd[1] + dd[2] + dd[3])) break;
@@ -1852,10 +1944,10 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       alignas(32) double tv[4];
       _mm256_store_pd(tv, t);
       if (std::max(std::max(tv[0], tv[1]), std::max(tv[2], tv[3])) <= tol) {
-        __m256d e = _mm256_mul_pd(abs4(_mm256_load_pd(mt)), _mm256_broadcast_sd(tv));
-        e = _mm256_fmadd_pd(abs4(_mm256_load_pd(mt + 4)), _mm256_broadcast_sd(tv + 1), e);
-        e = _mm256_fmadd_pd(abs4(_mm256_load_pd(mt + 8)), _mm256_broadcast_sd(tv + 2), e);
-        e = _mm256_fmadd_pd(abs4(_mm256_load_pd(mt + 12)), _mm256_broadcast_sd(tv + 3), e);
+        __m256d e = _mm256_mul_pd(abs4(mc0), _mm256_broadcast_sd(tv));
+        e = _mm256_fmadd_pd(abs4(mc1), _mm256_broadcast_sd(tv + 1), e);
+        e = _mm256_fmadd_pd(abs4(mc2), _mm256_broadcast_sd(tv + 2), e);
+        e = _mm256_fmadd_pd(abs4(mc3), _mm256_broadcast_sd(tv + 3), e);
         if (hmax_abs(e) <= tol && opt_.confirm) [[unlikely]] {
           // Confirm mode, as solve_general: the exact devices (no far-reverse skip) at the
           // point, whose residual must be below tol_v plus the row's rounding allowance.

@@ -48,6 +48,7 @@ class general_solver : public dk_solver_base {
     std::vector<int> piv;  ///< the factors' row interchanges (when not blocked)
     bool blocked{false};   ///< lu holds block factors in 2 x 2 blocks, no interchanges (dk_general.cpp)
     bool torn{false};      ///< lu holds I - F Jf with its diagonal blocks inverted (a torn step, dk_general.cpp)
+    bool pending{false};   ///< lu holds I - F Jf itself, factors not formed yet (process_pair; ensure_factors)
     void resize(int k);
   };
   struct storage {
@@ -87,6 +88,7 @@ class general_solver : public dk_solver_base {
   };
 
   void point_general(const Eigen::VectorXd& v, port_set& out) noexcept;
+  void ensure_factors(port_set& pt) noexcept;
   // K JFETs at compile time (fixed-size views of the storage), or K = 0: any number.
   template <int K>
   void block_k(const double* in, double* out, std::size_t n) noexcept;
