@@ -330,7 +330,13 @@ std::string impedance_text(std::complex<double> z) {
 void print_input(const bias_report& r, std::ostream& out) {
   out << "\nWhat the source sees" << (r.st.is_chain() ? " (stage 1)" : "") << '\n';
   text_table in({align::left, align::right, align::left});
-  in.add({"input capacitance", format_si(r.b.input.capacitance_f, "F"), "cgs and the Miller cgd, at 1 kHz"});
+  // Without junction capacitances the model has none at the input: say so, rather than let
+  // "0 F" read as a measured property of the stage.
+  const bool no_junction_caps = r.st.jfet.cgs_f == 0.0 && r.st.jfet.cgd_f == 0.0;
+  in.add({"input capacitance", format_si(r.b.input.capacitance_f, "F"),
+          no_junction_caps ? "none modelled: " + model::stage_key(r.st, 0, "jfet.cgs") + " and " +
+                                 model::stage_key(r.st, 0, "jfet.cgd") + " not given (a datasheet's Ciss and Crss)"
+                           : std::string("cgs and the Miller cgd, at 1 kHz")});
   in.add({"input impedance", impedance_text(r.b.input.z_1khz_ohm), "at 1 kHz"});
   in.add({"", impedance_text(r.b.input.z_10khz_ohm), "at 10 kHz"});
   if (r.st.has_pickup()) {

@@ -43,6 +43,20 @@ TEST_CASE("response says when no junction capacitance is given, so the response 
   CHECK(!has(given.out, "are not given"));
 }
 
+TEST_CASE("bias says the input capacitance is not modelled when no junction capacitance is given") {
+  // "0 F" alone would read as a property of the stage; it is an omission of the file.
+  const result bare = run({"bias", preset("two-stage-boost-9v.toml"), "--set", "stage1.jfet.cgs=0", "--set",
+                           "stage1.jfet.cgd=0"});
+  REQUIRE(bare.status == 0);
+  CHECK(has(bare.out, "none modelled: stage1.jfet.cgs and stage1.jfet.cgd not given"));
+  // Only the first stage counts (the source sees it): the second's own capacitances do not.
+  const result later = run({"bias", preset("two-stage-boost-9v.toml"), "--set", "stage2.jfet.cgs=0", "--set",
+                            "stage2.jfet.cgd=0"});
+  REQUIRE(later.status == 0);
+  CHECK(has(later.out, "cgs and the Miller cgd, at 1 kHz"));
+  CHECK(!has(later.out, "none modelled"));
+}
+
 TEST_CASE("compare and sweep report the same harmonics by default") {
   // One default, H2..H10 (model::default_harmonics): a design compared and swept at the same
   // drive shows the same table.
