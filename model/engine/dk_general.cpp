@@ -399,16 +399,26 @@ __attribute__((always_inline)) inline void abs_bound_n(const double* a, int n_rt
 // The 2 x 2 block at d (column stride n) replaced by its inverse in closed form (one
 // division, as on the one-JFET path); false, the block left as it was, where it is not safely
 // invertible alone: |det| not above 1e-3 of |a00 a11| + |a01 a10| or not finite.
-__attribute__((always_inline)) inline bool invert_block(double* d, int n) noexcept {
-  const double a00 = d[0], a10 = d[1], a01 = d[n], a11 = d[n + 1];
+// The test and the inverse of the block [a00, a01; a10, a11] (column-major into `i`).
+__attribute__((always_inline)) inline bool invert_2x2(double a00, double a10, double a01, double a11,
+                                                     double* i) noexcept {
   const double p0 = a00 * a11, p1 = a01 * a10;
   const double det = p0 - p1;
   if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
   const double inv = 1.0 / det;
-  d[0] = a11 * inv;
-  d[1] = -a10 * inv;
-  d[n] = -a01 * inv;
-  d[n + 1] = a00 * inv;
+  i[0] = a11 * inv;
+  i[1] = -a10 * inv;
+  i[2] = -a01 * inv;
+  i[3] = a00 * inv;
+  return true;
+}
+__attribute__((always_inline)) inline bool invert_block(double* d, int n) noexcept {
+  double i[4];
+  if (!invert_2x2(d[0], d[1], d[n], d[n + 1], i)) return false;
+  d[0] = i[0];
+  d[1] = i[1];
+  d[n] = i[2];
+  d[n + 1] = i[3];
   return true;
 }
 
@@ -1650,12 +1660,11 @@ __attribute__((PINCHOFF_DK_GENERAL_FLATTEN target("avx2,fma"))) void general_sol
 // trip through memory; the point keeps I - F Jf itself, factored only where the sub-steps
 // or track() read it: ensure_factors) and kept for the three points the warm start uses,
 // so the warm start, the step and the bound |M| t are each four fused multiply-adds a
-// column. The same Newton,
-// the same acceptance (the bound |M| t itself, which block_abs_bound_n bounds from
-// above) and the same warm start as solve_general; up to pair_inline_iterations
-// iterations here, and anything else (a junction step to limit, a step to damp, factors
-// that need pivoting, more iterations) by solve_general<2> from where they stopped
-// (pair_rest).
+// column. The same Newton, the same acceptance (the bound |M| t itself, which
+// block_abs_bound_n bounds from above) and the same warm start as solve_general; up to
+// pair_inline_iterations iterations here, and anything else (a junction step to limit, a
+// step to damp, factors that need pivoting, more iterations) by solve_general<2> from
+// where they stopped (pair_rest).
 namespace {
 __attribute__((target("avx2,fma"), always_inline)) inline double hmax_abs(__m256d x) noexcept {
   const __m256d a = _mm256_andnot_pd(_mm256_set1_pd(-0.0), x);
@@ -1681,16 +1690,13 @@ __attribute__((target("avx2,fma"), always_inline)) inline __m256d mul4_abs(const
   return _mm256_fmadd_pd(abs4(_mm256_load_pd(a + 12)), _mm256_broadcast_sd(x + 3), y);
 }
 
-// The 2 x 2 block with columns c0, c1 inverted as invert_block does (the same test), into
-// the columns i0, i1.
+// The 2 x 2 block with columns c0, c1 inverted as invert_block does (invert_2x2), into the
+// columns i0, i1.
 __attribute__((always_inline)) inline bool invert_block_cols(vd2 c0, vd2 c1, vd2& i0, vd2& i1) noexcept {
-  const double a00 = c0[0], a10 = c0[1], a01 = c1[0], a11 = c1[1];
-  const double p0 = a00 * a11, p1 = a01 * a10;
-  const double det = p0 - p1;
-  if (!(std::fabs(det) > 1e-3 * (std::fabs(p0) + std::fabs(p1))) || !std::isfinite(det)) return false;
-  const double inv = 1.0 / det;
-  i0 = vd2{a11 * inv, -a10 * inv};
-  i1 = vd2{-a01 * inv, a00 * inv};
+  double i[4];
+  if (!invert_2x2(c0[0], c0[1], c1[0], c1[1], i)) return false;
+  i0 = vd2{i[0], i[1]};
+  i1 = vd2{i[2], i[3]};
   return true;
 }
 
