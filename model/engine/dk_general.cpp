@@ -286,6 +286,17 @@ void one_minus_f_jf(const Eigen::MatrixXd& f, const std::vector<detail::port_cur
   j.diagonal().array() += 1.0;
 }
 
+// I - F Jf from a point's stored Jf (3k x 2k, block diagonal), coefficient by coefficient
+// (no product temporaries): where the point's factors must be formed again.
+void one_minus_f_jf(const Eigen::MatrixXd& f, const Eigen::MatrixXd& jf, Eigen::MatrixXd& j) noexcept {
+  for (int c = 0; c < j.cols(); ++c)
+    for (int r = 0; r < j.rows(); ++r) {
+      double s = r == c ? 1.0 : 0.0;
+      for (int q = 0; q < f.cols(); ++q) s -= f(r, q) * jf(q, c);
+      j(r, c) = s;
+    }
+}
+
 // LU with partial pivoting of the n x n column-major matrix `a` in place, the row
 // interchanges applied to whole rows as they happen (LAPACK's getrf order); piv[k] is the
 // row swapped with row k at step k. U's diagonal is stored as its reciprocals (the solve
@@ -396,10 +407,9 @@ __attribute__((always_inline)) inline void abs_bound_n(const double* a, int n_rt
   }
 }
 
-// The 2 x 2 block at d (column stride n) replaced by its inverse in closed form (one
-// division, as on the one-JFET path); false, the block left as it was, where it is not safely
-// invertible alone: |det| not above 1e-3 of |a00 a11| + |a01 a10| or not finite.
-// The test and the inverse of the block [a00, a01; a10, a11] (column-major into `i`).
+// The inverse of the block [a00, a01; a10, a11] in closed form (one division, as on the
+// one-JFET path), column-major into `i`; false where it is not safely invertible alone:
+// |det| not above 1e-3 of |a00 a11| + |a01 a10| or not finite.
 __attribute__((always_inline)) inline bool invert_2x2(double a00, double a10, double a01, double a11,
                                                      double* i) noexcept {
   const double p0 = a00 * a11, p1 = a01 * a10;
@@ -412,6 +422,8 @@ __attribute__((always_inline)) inline bool invert_2x2(double a00, double a10, do
   i[3] = a00 * inv;
   return true;
 }
+// The 2 x 2 block at d (column stride n) replaced by its inverse (invert_2x2); false, the
+// block left as it was, where it is not safely invertible.
 __attribute__((always_inline)) inline bool invert_block(double* d, int n) noexcept {
   double i[4];
   if (!invert_2x2(d[0], d[1], d[n], d[n + 1], i)) return false;
@@ -1058,8 +1070,8 @@ void general_solver::reset() {
 }
 
 // A point process_pair accepted holds I - F Jf itself (`pending`): its factors, as
-// solve_general would have left them, for what reads them (the sub-steps, track() in a
-// steady state's tracked periods, pair_m_of); the pair loop's own samples use M in full.
+// solve_general would have left them, for what reads them (the sub-steps, pair_m_of); the
+// pair loop's own samples and track() use M in full.
 void general_solver::ensure_factors(port_set& pt) noexcept {
   if (!pt.pending) return;
   pt.pending = false;
@@ -1067,12 +1079,7 @@ void general_solver::ensure_factors(port_set& pt) noexcept {
   const int np = 2 * m_.devices;
   pt.blocked = opt_.block_factors && block_factor_n<0>(pt.lu.data(), np);
   if (pt.blocked) return;
-  for (int c = 0; c < np; ++c)
-    for (int r = 0; r < np; ++r) {
-      double s = r == c ? 1.0 : 0.0;
-      for (int q = 0; q < 3 * m_.devices; ++q) s -= m_.f(r, q) * pt.jf(q, c);
-      pt.lu(r, c) = s;
-    }
+  one_minus_f_jf(m_.f, pt.jf, pt.lu);
   if (!(lu_factor(pt.lu.data(), np, pt.piv.data()) > 0.0)) pt.lu.setConstant(std::numeric_limits<double>::quiet_NaN());
 }
 
@@ -1093,23 +1100,21 @@ void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
   // C Jf by JFET j's 3 x 2 block of Jf (rows 3j.., columns 2j..), the rest of Jf zero; the
   // small products coefficient by coefficient (a general product's packing costs more).
-  ensure_factors(g_.last());
   const Eigen::MatrixXd& jf = g_.last().jf;
   for (int j = 0; j < m_.devices; ++j)
     for (int t = 2 * j; t < 2 * j + 2; ++t)
       g_.cj.col(t) = m_.c.col(3 * j) * jf(3 * j, t) + m_.c.col(3 * j + 1) * jf(3 * j + 1, t) +
                      m_.c.col(3 * j + 2) * jf(3 * j + 2, t);
   const port_set& last = g_.last();
-  if (last.torn) {
+  if (pair_) {
+    // The two-JFET loop keeps M of every ring point in full (its own points' I - F Jf left
+    // unfactored).
+    g_.mi = Eigen::Map<const Eigen::Matrix4d>(g_.mring.data() + 16 * g_.head);
+  } else if (last.torn) {
     // A torn point holds J = I - F Jf with its diagonal blocks inverted, not factors: J
     // formed again from the point's Jf and factored with pivoting.
-    const int np = 2 * m_.devices, ni = 3 * m_.devices;
-    for (int c = 0; c < np; ++c)
-      for (int r = 0; r < np; ++r) {
-        double s = r == c ? 1.0 : 0.0;
-        for (int q = 0; q < ni; ++q) s -= m_.f(r, q) * jf(q, c);
-        g_.track_lu(r, c) = s;
-      }
+    const int np = 2 * m_.devices;
+    one_minus_f_jf(m_.f, jf, g_.track_lu);
     if (!(lu_factor(g_.track_lu.data(), np, g_.track_piv.data()) > 0.0))
       g_.track_lu.setConstant(std::numeric_limits<double>::quiet_NaN());
     inverse_of(g_.track_lu, g_.track_piv, false, g_.mi);
@@ -1658,7 +1663,7 @@ __attribute__((PINCHOFF_DK_GENERAL_FLATTEN target("avx2,fma"))) void general_sol
 // M = (I - F Jf)^-1 in one AVX2 register each; M formed in full in registers by 2 x 2
 // blocks (pair_inverse_regs: the block factors' arithmetic and tests, without their round
 // trip through memory; the point keeps I - F Jf itself, factored only where the sub-steps
-// or track() read it: ensure_factors) and kept for the three points the warm start uses,
+// read it: ensure_factors) and kept for the three points the warm start uses and track(),
 // so the warm start, the step and the bound |M| t are each four fused multiply-adds a
 // column. The same Newton, the same acceptance (the bound |M| t itself, which
 // block_abs_bound_n bounds from above) and the same warm start as solve_general; up to
