@@ -14,11 +14,34 @@ namespace {
 
 inline int row(int node) noexcept { return node - 1; }
 
+// rows * z for rows that read one node, or the difference of two scaled alike (every row
+// discrete_mna builds): c (z_a - z_b), rounded as the difference first.
+Eigen::MatrixXd read_rows(const Eigen::MatrixXd& rows, const Eigen::MatrixXd& z) {
+  Eigen::MatrixXd out = Eigen::MatrixXd::Zero(rows.rows(), z.cols());
+  for (Eigen::Index r = 0; r < rows.rows(); ++r) {
+    Eigen::Index a = -1, b = -1;
+    for (Eigen::Index k = 0; k < rows.cols(); ++k) {
+      if (rows(r, k) == 0.0) continue;
+      if (a < 0) a = k;
+      else if (b < 0) b = k;
+      else throw internal_error("discretise: a read row with more than two entries");
+    }
+    if (a < 0) continue;
+    if (b < 0) {
+      out.row(r) = rows(r, a) * z.row(a);
+    } else {
+      if (rows(r, a) != -rows(r, b)) throw internal_error("discretise: a read row that is not a difference");
+      out.row(r) = rows(r, a) * (z.row(a) - z.row(b));
+    }
+  }
+  return out;
+}
+
 }  // namespace
 
 double inductor_state_ohm(double henry) noexcept { return 2.0 * std::numbers::pi * 1000.0 * henry; }
 
-dk_matrices discretise(const network& net, double sample_rate_hz) {
+discrete_network discrete_mna(const network& net, double sample_rate_hz) {
   if (!(sample_rate_hz > 0.0) || !std::isfinite(sample_rate_hz))
     throw internal_error("discretise: the sample rate must be a positive number of hertz");
   const double t = 1.0 / sample_rate_hz;
@@ -40,8 +63,14 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   const int n = static_cast<int>(lin.a.rows());
   const int nu = lin.node_unknowns;
 
+  discrete_network d;
+  d.s = lin.a;
+  d.node_unknowns = nu;
+  d.states = ns;
+  d.devices = nd;
   // Right-hand sides: S z = Nx q + Nu u - Nl i.
-  Eigen::MatrixXd rhs = Eigen::MatrixXd::Zero(n, ns + 2 + ni);
+  d.rhs = Eigen::MatrixXd::Zero(n, ns + 2 + ni);
+  Eigen::MatrixXd& rhs = d.rhs;
   for (int k = 0; k < nc; ++k) {
     const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
     const double g = caps[static_cast<std::size_t>(k)].g_s;
@@ -72,13 +101,47 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
     leave(q.source, 3 * j + 2, -1.0);
   }
 
+  // What is read from the solution z: V(a) - V(b) as a row over z.
+  auto diff = [&](int a, int b) -> Eigen::RowVectorXd {
+    Eigen::RowVectorXd r = Eigen::RowVectorXd::Zero(n);
+    if (a != 0) r[row(a)] += 1.0;
+    if (b != 0) r[row(b)] -= 1.0;
+    return r;
+  };
+  // Capacitor voltages v_n; q_n = 2 v_n - q_{n-1}. Inductor voltages likewise;
+  // q_n = q_{n-1} + 2 G rho v_n.
+  d.state_rows.resize(ns, n);
+  d.state_self = Eigen::VectorXd::Constant(ns, -1.0);
+  for (int k = 0; k < nc; ++k) {
+    const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
+    d.state_rows.row(k) = 2.0 * diff(c.a, c.b);
+  }
+  for (int j = 0; j < nl; ++j) {
+    const net_inductor& l = net.inductors[static_cast<std::size_t>(j)];
+    d.state_rows.row(nc + j) = (2.0 * inds[static_cast<std::size_t>(j)].g_s * inductor_state_ohm(l.henry)) * diff(l.a, l.b);
+    d.state_self[nc + j] = 1.0;
+  }
+  d.port_rows.resize(2 * nd, n);
+  for (int j = 0; j < nd; ++j) {
+    const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
+    d.port_rows.row(2 * j) = diff(q.gate, q.source);
+    d.port_rows.row(2 * j + 1) = diff(q.drain, q.source);
+  }
+  d.out_row = diff(net.output_node, 0);
+  return d;
+}
+
+dk_matrices discretise(const network& net, double sample_rate_hz) {
+  const discrete_network dn = discrete_mna(net, sample_rate_hz);
+  const int ns = dn.states, nd = dn.devices, ni = 3 * nd;
+
   // S^-1 [Nx Nu -Nl] in extended precision, with one refinement step, then rounded: the
   // states are history voltages of the order of the supply, and the outputs (a coupled
   // output sits at 0 V) are differences of them, so rounding in these matrices shows
   // directly as an output offset (about 1e-10 V with a plain double solve).
   using matrix_ld = Eigen::Matrix<long double, Eigen::Dynamic, Eigen::Dynamic>;
-  const matrix_ld s_ld = lin.a.cast<long double>();
-  const matrix_ld rhs_ld = rhs.cast<long double>();
+  const matrix_ld s_ld = dn.s.cast<long double>();
+  const matrix_ld rhs_ld = dn.rhs.cast<long double>();
   const Eigen::FullPivLU<matrix_ld> lu(s_ld);
   dk_matrices m;
   m.states = ns;
@@ -93,48 +156,16 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   z_ld += lu.solve(matrix_ld(rhs_ld - s_ld * z_ld));
   const Eigen::MatrixXd z = z_ld.cast<double>();  // n x (ns + 2 + 3k): columns q, u, i
 
-  auto diff = [&](int a, int b) -> Eigen::RowVectorXd {
-    Eigen::RowVectorXd r = Eigen::RowVectorXd::Zero(ns + 2 + ni);
-    if (a != 0) r += z.row(row(a));
-    if (b != 0) r -= z.row(row(b));
-    return r;
-  };
-  // Capacitor voltages v_n = Nc z; q_n = 2 v_n - q_{n-1}. Inductor voltages likewise;
-  // q_n = q_{n-1} + 2 G rho v_n.
-  Eigen::MatrixXd vc(ns, ns + 2 + ni);
-  Eigen::VectorXd q_prev = Eigen::VectorXd::Constant(ns, -1.0);
-  for (int k = 0; k < nc; ++k) {
-    const net_capacitor& c = net.capacitors[static_cast<std::size_t>(k)];
-    vc.row(k) = 2.0 * diff(c.a, c.b);
-  }
-  for (int j = 0; j < nl; ++j) {
-    const net_inductor& l = net.inductors[static_cast<std::size_t>(j)];
-    vc.row(nc + j) = (2.0 * inds[static_cast<std::size_t>(j)].g_s * inductor_state_ohm(l.henry)) * diff(l.a, l.b);
-    q_prev[nc + j] = 1.0;
-  }
+  const Eigen::MatrixXd vc = read_rows(dn.state_rows, z);
   m.a = vc.leftCols(ns);
-  m.a.diagonal() += q_prev;
+  m.a.diagonal() += dn.state_self;
   m.b = vc.middleCols(ns, 2);
   m.c = vc.rightCols(ni);
-
-  m.d.resize(2 * nd, ns);
-  m.e.resize(2 * nd, 2);
-  m.f.resize(2 * nd, ni);
-  for (int j = 0; j < nd; ++j) {
-    const net_jfet& q = net.jfets[static_cast<std::size_t>(j)];
-    const Eigen::RowVectorXd vgs = diff(q.gate, q.source);
-    const Eigen::RowVectorXd vds = diff(q.drain, q.source);
-    if (ns > 0) {  // a stage without capacitors has no states: no row to address
-      m.d.row(2 * j) = vgs.head(ns);
-      m.d.row(2 * j + 1) = vds.head(ns);
-    }
-    m.e.row(2 * j) = vgs.segment(ns, 2);
-    m.e.row(2 * j + 1) = vds.segment(ns, 2);
-    m.f.row(2 * j) = vgs.tail(ni);
-    m.f.row(2 * j + 1) = vds.tail(ni);
-  }
-
-  const Eigen::RowVectorXd out = diff(net.output_node, 0);
+  const Eigen::MatrixXd vp = read_rows(dn.port_rows, z);
+  m.d = vp.leftCols(ns);
+  m.e = vp.middleCols(ns, 2);
+  m.f = vp.rightCols(ni);
+  const Eigen::RowVectorXd out = read_rows(dn.out_row, z);
   m.d_out = out.head(ns);
   m.e_out = out.segment(ns, 2);
   m.f_out = out.tail(ni);

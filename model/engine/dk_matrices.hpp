@@ -46,6 +46,27 @@ struct dk_matrices {
   double rcond{0};  ///< reciprocal condition estimate (1-norm) of the MNA matrix S
 };
 
+/// The discretised network before it is solved: S z = R [q; u; i] for the MNA unknowns z
+/// (node voltages 1..N-1, then the supply's and the generator's branch currents), and the
+/// rows that read from z what the engine needs: the state update q_n = state_rows z +
+/// state_self q_{n-1} (state_self -1 for a capacitor, +1 for an inductor), the port voltages
+/// (vgs, vds of each JFET) and the output. discretise() solves it whole; the split at a
+/// chain's joints (dk_split.hpp) solves it stage by stage.
+struct discrete_network {
+  Eigen::MatrixXd s;          ///< n x n, the MNA matrix with the companions
+  Eigen::MatrixXd rhs;        ///< n x (ns + 2 + 3k): R
+  Eigen::MatrixXd state_rows; ///< ns x n
+  Eigen::VectorXd state_self; ///< ns
+  Eigen::MatrixXd port_rows;  ///< 2k x n
+  Eigen::RowVectorXd out_row; ///< 1 x n
+  int node_unknowns{0};
+  int states{0};
+  int devices{0};
+};
+
+/// The discretised network at `sample_rate_hz` (> 0), not yet solved.
+discrete_network discrete_mna(const network& net, double sample_rate_hz);
+
 /// Builds the matrices for the network at `sample_rate_hz` (> 0). Throws internal_error when
 /// S is singular or too ill-conditioned to trust (rcond < 1e-15).
 dk_matrices discretise(const network& net, double sample_rate_hz);
