@@ -234,11 +234,10 @@ std::optional<dk_split> split_at_joints(const network& net, double sample_rate_h
       row_ld in, on_j;
       if (!read(dn.port_rows.row(2 * k + p), at, in, on_j) || (at >= 0 && at != k)) return std::nullopt;
       if (at < 0) in = row_ld::Zero(static_cast<Eigen::Index>(b.columns.size()));
-      b.ports_in.row(p) = in.cast<double>();
+      if (!b.columns.empty()) b.ports_in.row(p) = in.cast<double>();  // (a JFET on joints alone reads no column)
       b.ports_j.row(p) = on_j.cast<double>();
     }
   }
-  std::vector<std::vector<double>> held_in_rows;
   for (int s = 0; s < ns; ++s) {
     int at = -1;
     row_ld in, on_j;
