@@ -131,6 +131,12 @@ discrete_network discrete_mna(const network& net, double sample_rate_hz) {
   return d;
 }
 
+matrix_ld refined_solve(const Eigen::FullPivLU<matrix_ld>& lu, const matrix_ld& a, const matrix_ld& rhs) {
+  matrix_ld x = lu.solve(rhs);
+  x += lu.solve(matrix_ld(rhs - a * x));
+  return x;
+}
+
 dk_matrices discretise(const network& net, double sample_rate_hz) {
   const discrete_network dn = discrete_mna(net, sample_rate_hz);
   const int ns = dn.states, nd = dn.devices, ni = 3 * nd;
@@ -139,7 +145,6 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
   // states are history voltages of the order of the supply, and the outputs (a coupled
   // output sits at 0 V) are differences of them, so rounding in these matrices shows
   // directly as an output offset (about 1e-10 V with a plain double solve).
-  using matrix_ld = Eigen::Matrix<long double, Eigen::Dynamic, Eigen::Dynamic>;
   const matrix_ld s_ld = dn.s.cast<long double>();
   const matrix_ld rhs_ld = dn.rhs.cast<long double>();
   const Eigen::FullPivLU<matrix_ld> lu(s_ld);
@@ -152,9 +157,7 @@ dk_matrices discretise(const network& net, double sample_rate_hz) {
     throw internal_error(source_prefix(net) + "the stage's network matrix at " + base::format_si(sample_rate_hz, "Hz") +
                          " is singular or too ill-conditioned (rcond " + base::format_number(m.rcond, 2) +
                          "): the parts' conductances lie too far apart, from " + widest_parts(net, sample_rate_hz));
-  matrix_ld z_ld = lu.solve(rhs_ld);
-  z_ld += lu.solve(matrix_ld(rhs_ld - s_ld * z_ld));
-  const Eigen::MatrixXd z = z_ld.cast<double>();  // n x (ns + 2 + 3k): columns q, u, i
+  const Eigen::MatrixXd z = refined_solve(lu, s_ld, rhs_ld).cast<double>();  // n x (ns + 2 + 3k): columns q, u, i
 
   const Eigen::MatrixXd vc = read_rows(dn.state_rows, z);
   m.a = vc.leftCols(ns);

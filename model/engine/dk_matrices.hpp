@@ -67,6 +67,13 @@ struct discrete_network {
 /// The discretised network at `sample_rate_hz` (> 0), not yet solved.
 discrete_network discrete_mna(const network& net, double sample_rate_hz);
 
+/// Extended precision, for solving the discretised network once when it is built.
+using matrix_ld = Eigen::Matrix<long double, Eigen::Dynamic, Eigen::Dynamic>;
+
+/// a^-1 rhs from a's factors, with one step of iterative refinement: what discretise and the
+/// split at the joints (dk_split.hpp) solve, so that their matrices round alike.
+matrix_ld refined_solve(const Eigen::FullPivLU<matrix_ld>& lu, const matrix_ld& a, const matrix_ld& rhs);
+
 /// Builds the matrices for the network at `sample_rate_hz` (> 0). Throws internal_error when
 /// S is singular or too ill-conditioned to trust (rcond < 1e-15).
 dk_matrices discretise(const network& net, double sample_rate_hz);

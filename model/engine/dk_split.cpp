@@ -6,7 +6,6 @@
 namespace pinchoff::model {
 namespace {
 
-using matrix_ld = Eigen::Matrix<long double, Eigen::Dynamic, Eigen::Dynamic>;
 using row_ld = Eigen::Matrix<long double, 1, Eigen::Dynamic>;
 
 matrix_ld rows_cols(const matrix_ld& m, const std::vector<int>& r, const std::vector<int>& c) {
@@ -186,10 +185,8 @@ std::optional<dk_split> split_at_joints(const network& net, double sample_rate_h
     const matrix_ld s_bj = rows_cols(s_ld, b.unknowns, sp.joint_unknowns);
     const matrix_ld s_jb = rows_cols(s_ld, sp.joint_unknowns, b.unknowns);
     const matrix_ld r_b = rows_cols(r_ld, b.unknowns, b.columns);
-    kbj[static_cast<std::size_t>(k)] = lu.solve(s_bj);
-    kbr[static_cast<std::size_t>(k)] = lu.solve(r_b);
-    kbj[static_cast<std::size_t>(k)] += lu.solve(matrix_ld(s_bj - s_bb * kbj[static_cast<std::size_t>(k)]));
-    kbr[static_cast<std::size_t>(k)] += lu.solve(matrix_ld(r_b - s_bb * kbr[static_cast<std::size_t>(k)]));
+    kbj[static_cast<std::size_t>(k)] = refined_solve(lu, s_bb, s_bj);
+    kbr[static_cast<std::size_t>(k)] = refined_solve(lu, s_bb, r_b);
     sigma -= s_jb * kbj[static_cast<std::size_t>(k)];
     const matrix_ld to_joint = -(s_jb * kbr[static_cast<std::size_t>(k)]);
     b.to_joint = to_joint.cast<double>();
