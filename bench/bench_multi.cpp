@@ -114,15 +114,14 @@ void bench_multi_device() {
     long long failed{0};
   };
   size_summary sum[7];
-  const char* loop_two = "";   // the sample loop two stages ran in
-  const char* loop_more = "";  // and more
+  const char* loops[7] = {};  // the sample loop k stages ran in
   for (int k = 2; k <= 6; ++k) {
     const model::network net = test::cascade(k, opts);
     const model::operating_point op = model::solve_operating_point(net);
     for (int d = 0; d < 4; ++d) {
       const std::vector<double> u = tone(drives[d], n_engine);
       model::dk_engine eng(net, op, rate_hz), e_one(one, op_one, rate_hz);
-      (k == 2 ? loop_two : loop_more) = eng.sample_loop();
+      loops[k] = eng.sample_loop();
       const pair_seconds ts = engine_seconds_alternating(eng, e_one, u, sink);
       const double t = ts.a;
       const model::dk_stats st = eng.stats();
@@ -160,7 +159,9 @@ void bench_multi_device() {
     std::printf("%-7d %13.1fx %17s %20s %8.1f-%.1fx %15.1fx\n", k, s.worst_rt, target, per, s.worst_speedup,
                 s.best_speedup, s.worst_separable);
   }
-  std::printf("sample loops on this processor: two stages %s; three or more %s\n", loop_two, loop_more);
+  std::printf("sample loops on this processor:");
+  for (int k = 2; k <= 6; ++k) std::printf("%s %d stages %s", k == 2 ? "" : ";", k, loops[k] ? loops[k] : "-");
+  std::printf("\n");
   std::printf("at 1.0x per JFET: the real-time factor of k stages each taking exactly the one-JFET path's time on\n");
   std::printf("the first stage (a cost per JFET of 1.0x, no coupling): below a target, that target also needs a\n");
   std::printf("faster one-JFET sample.\n");

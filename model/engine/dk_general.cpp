@@ -40,6 +40,14 @@
 #define PINCHOFF_DK_GENERAL_WIDE 0
 #endif
 
+// The sample loops' attribute: everything but the rare paths inlined into them (dk_single.cpp
+// says why flattening), except in the sanitizer tree (PINCHOFF_NO_FLATTEN).
+#if defined(PINCHOFF_NO_FLATTEN)
+#define PINCHOFF_DK_FLATTEN
+#else
+#define PINCHOFF_DK_FLATTEN flatten,
+#endif
+
 namespace pinchoff::model {
 namespace {
 
@@ -78,6 +86,18 @@ constexpr double torn_coupling_share = 0.1;
 // Two JFETs: the Newton iterations process_pair makes itself before solve_general<2> takes
 // over (at 1 and 10 V on the bench's chain, 2.5 and 4.4 % of the samples needed a third).
 constexpr int pair_inline_iterations = 4;
+// Three and four JFETs: the same for process_n (callgrind, the bench's chains at 1 and 10 V:
+// 8 took 0.7-2 % fewer instructions a sample than 4).
+constexpr int wide_inline_iterations = 8;
+// The most JFETs process_n takes. At five and six its Gauss-Jordan inverse (O(k^3) a Newton
+// iteration) made the sample dearer than the torn loop's: callgrind at 1 V, 5,708 -> 6,118
+// and 7,037 -> 8,037 instructions (docs/engine-decisions.md).
+constexpr int full_max_devices = 4;
+
+// The rows of the JFETs' constants in lanes, four JFETs a row (process_n, below).
+struct lane_consts {
+  enum : int { beta, vto, lambda, is, leak, inv_nvt, skip_arg, vcrit, small, k_junction, count };
+};
 
 // A column of N doubles (N even, fixed) as packets of four and a tail of two, in GCC's
 // generic vectors: in the AVX2 + FMA loop they are ymm registers and the products fuse
@@ -273,6 +293,17 @@ void put_block(Eigen::MatrixXd& jf, int j, const detail::port_currents& c) noexc
   jf(r + 1, k + 1) = -c.ggd_s;
   jf(r + 2, k) = c.gm_s;
   jf(r + 2, k + 1) = c.gds_s;
+}
+
+// The same from the four derivatives.
+void put_block_of(Eigen::MatrixXd& jf, int j, double ggs, double ggd, double gm, double gds) noexcept {
+  const Eigen::Index r = 3 * j, k = 2 * j;
+  jf(r, k) = ggs;
+  jf(r, k + 1) = 0.0;
+  jf(r + 1, k) = ggd;
+  jf(r + 1, k + 1) = -ggd;
+  jf(r + 2, k) = gm;
+  jf(r + 2, k + 1) = gds;
 }
 
 // I - F Jf from the per-JFET derivatives, column pair by column pair (Jf is block diagonal,
@@ -968,8 +999,24 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   for (port_set* s : {&g.ring[0], &g.ring[1], &g.ring[2], &g.ring[3], &g.dc, &g.cur_pt, &g.next_pt}) s->resize(k);
   g.mdl.setZero(np);
   pair_ = PINCHOFF_DK_PAIR && opt_.wide_kernels && detail::wide_kernels_available() && k == 2 && opt_.block_factors;
-  g.mring = detail::aligned_doubles(64);
-  std::fill_n(g.mring.data(), 64, 0.0);
+  full_ = PINCHOFF_DK_PAIR && opt_.wide_kernels && detail::wide_kernels_available() && k >= 3 && k <= full_max_devices &&
+          opt_.block_factors && opt_.full_inverse;
+  {
+    const int padded = (np + 3) / 4 * 4;  // process_n: columns of F, |F|, M padded to this
+    const std::size_t ring = std::max<std::size_t>(64, static_cast<std::size_t>(4 * padded * np));
+    g.mring = detail::aligned_doubles(ring);
+    std::fill_n(g.mring.data(), ring, 0.0);
+    g.fpad = detail::aligned_doubles(static_cast<std::size_t>(padded * ni));
+    g.mw = detail::aligned_doubles(static_cast<std::size_t>(padded * np));
+    g.fapad = detail::aligned_doubles(static_cast<std::size_t>(padded * ni));
+    g.vpad = detail::aligned_doubles(static_cast<std::size_t>(3 * padded));
+    std::fill_n(g.vpad.data(), 3 * padded, 0.0);
+    for (int c = 0; c < ni; ++c)
+      for (int r = 0; r < padded; ++r) {
+        g.fpad.data()[c * padded + r] = r < np ? m_.f(r, c) : 0.0;
+        g.fapad.data()[c * padded + r] = r < np ? g.f_abs(r, c) : 0.0;
+      }
+  }
   g.cj.setZero(ns, np);
   g.md.setZero(np, ns);
   g.mi.setZero(np, np);
@@ -1031,6 +1078,36 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     torn_predict_ = rho < 1e-2 ? 1 : 2;
   }
   g.p_dc = m_.d * q + m_.e * u;
+  {
+    const int padded = (np + 3) / 4 * 4;
+    for (int r = 0; r < np; ++r) {
+      g.vpad.data()[r] = g.p_dc[r];
+      g.vpad.data()[padded + r] = m_.e(r, 1);
+      g.vpad.data()[2 * padded + r] = g.skip_t[r];
+    }
+  }
+  // process_n's devices in lanes (dk_general.cpp, lane_consts): four a row, the lanes past
+  // k a JFET that conducts nothing and whose junctions are always taken as -is.
+  {
+    constexpr int count = lane_consts::count;
+    const int rows = (k + 3) / 4;
+    g.lanes = detail::aligned_doubles(static_cast<std::size_t>(4 * count * rows));
+    for (int j = 0; j < 4 * rows; ++j) {
+      double* c = g.lanes.data() + 4 * count * (j / 4) + j % 4;
+      const bool real = j < k;
+      const detail::device_consts dv = real ? g.dev[static_cast<std::size_t>(j)] : detail::device_consts{};
+      c[4 * lane_consts::beta] = real ? dv.beta : 0.0;
+      c[4 * lane_consts::vto] = real ? dv.vto_v : -1.0;
+      c[4 * lane_consts::lambda] = real ? dv.lambda : 0.0;
+      c[4 * lane_consts::is] = real ? dv.is_a : 0.0;
+      c[4 * lane_consts::leak] = real ? dv.leak_a : 0.0;
+      c[4 * lane_consts::inv_nvt] = real ? dv.inv_nvt : 1.0;
+      c[4 * lane_consts::skip_arg] = real ? dv.skip_arg : std::numeric_limits<double>::infinity();
+      c[4 * lane_consts::vcrit] = real ? dv.vcrit_v : std::numeric_limits<double>::infinity();
+      c[4 * lane_consts::small] = real ? 0.01 * dv.nvt_v : std::numeric_limits<double>::infinity();
+      c[4 * lane_consts::k_junction] = real ? 0.505 * dv.inv_nvt : 0.0;
+    }
+  }
   g.y_dc = m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(g.dc.i);
   y_dc_ = sign_ * g.y_dc;
   reset();
@@ -1064,6 +1141,11 @@ void general_solver::reset() {
   g.head = 0;
   if (pair_)
     for (int slot = 0; slot < 4; ++slot) pair_m_of(slot);
+  if (full_) {
+    for (int slot = 0; slot < 4; ++slot) ring_m_of(slot);
+    const int np = 2 * m_.devices;
+    combine_warm<0>((np + 3) / 4 * 4 * np);
+  }
   torn_holdoff_ = 0;
   g.p_last = g.p_dc;
   stats_ = {};
@@ -1073,6 +1155,11 @@ void general_solver::reset() {
 // solve_general would have left them, for what reads them (the sub-steps, pair_m_of); the
 // pair loop's own samples and track() use M in full.
 void general_solver::ensure_factors(port_set& pt) noexcept {
+  if (pt.stale) {
+    one_minus_f_jf(m_.f, pt.jf, pt.lu);
+    pt.stale = false;
+    pt.pending = true;
+  }
   if (!pt.pending) return;
   pt.pending = false;
   pt.torn = false;
@@ -1090,6 +1177,40 @@ void general_solver::pair_m_of(int slot) noexcept {
   if (pt.blocked && !pt.torn) return pair_inverse(pt.lu.data(), g_.mring.data() + 16 * slot);
   inverse_of(pt.lu, pt.piv, pt.blocked, g_.mi);
   std::copy_n(g_.mi.data(), 16, g_.mring.data() + 16 * slot);
+}
+
+// process_n's warm-start matrix: the weights warm_ on M of the last three ring points, summed
+// (N entries a slot, N a multiple of four; 0: n_rt at run time).
+template <int N>
+__attribute__((always_inline)) inline void general_solver::combine_warm(int n_rt) noexcept {
+  const int n = N > 0 ? N : n_rt;
+  const double* m0 = g_.mring.data() + static_cast<std::ptrdiff_t>(n) * g_.head;
+  const double* m1 = g_.mring.data() + static_cast<std::ptrdiff_t>(n) * ((g_.head - 1) & 3);
+  const double* m2 = g_.mring.data() + static_cast<std::ptrdiff_t>(n) * ((g_.head - 2) & 3);
+  double* out = g_.mw.data();
+  const double w0 = warm_[0], w1 = warm_[1], w2 = warm_[2];
+#pragma GCC unroll 4
+  for (int e = 0; e < n; ++e) out[e] = w0 * m0[e] + w1 * m1[e] + w2 * m2[e];
+}
+
+// M of ring point `slot` in full, from its factors, into the ring in columns of P rows
+// (three to six JFETs: process_n).
+void general_solver::ring_m_of(int slot) noexcept {
+  port_set& pt = g_.ring[slot];
+  ensure_factors(pt);
+  const int np = 2 * m_.devices, rows = (np + 3) / 4 * 4;
+  if (pt.torn) {
+    // A torn point holds J with its diagonal blocks inverted: J formed again and factored.
+    one_minus_f_jf(m_.f, pt.jf, g_.track_lu);
+    if (!(lu_factor(g_.track_lu.data(), np, g_.track_piv.data()) > 0.0))
+      g_.track_lu.setConstant(std::numeric_limits<double>::quiet_NaN());
+    inverse_of(g_.track_lu, g_.track_piv, false, g_.mi);
+  } else {
+    inverse_of(pt.lu, pt.piv, pt.blocked, g_.mi);
+  }
+  double* m = g_.mring.data() + static_cast<std::ptrdiff_t>(rows) * np * slot;
+  for (int c = 0; c < np; ++c)
+    for (int r = 0; r < rows; ++r) m[c * rows + r] = r < np ? g_.mi(r, c) : 0.0;
 }
 
 void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
@@ -1110,6 +1231,11 @@ void general_solver::track(Eigen::MatrixXd& sensitivity) {
     // The two-JFET loop keeps M of every ring point in full (its own points' I - F Jf left
     // unfactored).
     g_.mi = Eigen::Map<const Eigen::Matrix4d>(g_.mring.data() + 16 * g_.head);
+  } else if (full_) {
+    // So does the loop for three to six JFETs, in columns padded to a multiple of four rows.
+    const int np = 2 * m_.devices, rows = (np + 3) / 4 * 4;
+    g_.mi = Eigen::Map<const Eigen::MatrixXd, 0, Eigen::OuterStride<>>(
+        g_.mring.data() + static_cast<std::ptrdiff_t>(rows) * np * g_.head, np, np, Eigen::OuterStride<>(rows));
   } else if (last.torn) {
     // A torn point holds J = I - F Jf with its diagonal blocks inverted, not factors: J
     // formed again from the point's Jf and factored with pivoting.
@@ -1644,17 +1770,11 @@ void general_solver::block_k(const double* in, double* out, std::size_t n) noexc
 // it, as on the one-JFET path (dk_single.cpp says why flattening). It rounds differently
 // from the portable loop; a processor always takes the same one.
 #if PINCHOFF_DK_GENERAL_WIDE
-#if defined(PINCHOFF_NO_FLATTEN)
-#define PINCHOFF_DK_GENERAL_FLATTEN
-#else
-#define PINCHOFF_DK_GENERAL_FLATTEN flatten,
-#endif
 template <int K>
-__attribute__((PINCHOFF_DK_GENERAL_FLATTEN target("avx2,fma"))) void general_solver::block_wide(const double* in, double* out,
+__attribute__((PINCHOFF_DK_FLATTEN target("avx2,fma"))) void general_solver::block_wide(const double* in, double* out,
                                                                                   std::size_t n) noexcept {
   for (std::size_t k = 0; k < n; ++k) out[k] = process_k<K>(in[k]);
 }
-#undef PINCHOFF_DK_GENERAL_FLATTEN
 #endif
 
 #if PINCHOFF_DK_PAIR
@@ -2043,21 +2163,771 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   return sign_ * (g.y_dc + g.out.data()[ns + 4]);
 }
 
-#if defined(PINCHOFF_NO_FLATTEN)
-#define PINCHOFF_DK_PAIR_FLATTEN
-#else
-#define PINCHOFF_DK_PAIR_FLATTEN flatten,
-#endif
-__attribute__((PINCHOFF_DK_PAIR_FLATTEN target("avx2,fma"))) void general_solver::block_pair(const double* in, double* out,
+__attribute__((PINCHOFF_DK_FLATTEN target("avx2,fma"))) void general_solver::block_pair(const double* in, double* out,
                                                                                std::size_t n) noexcept {
   for (std::size_t k = 0; k < n; ++k) out[k] = process_pair(in[k]);
 }
-#undef PINCHOFF_DK_PAIR_FLATTEN
+
+// Three and four JFETs (full_max_devices), the two-JFET loop's layout widened (process_n): the 2k port voltages,
+// the residual, the step and each column of F, |F| and M = (I - F Jf)^-1 in R = ceil(2k / 4)
+// AVX2 registers, the rows past 2k zero; M formed in full each Newton iteration by
+// Gauss-Jordan elimination in 2 x 2 pivot blocks, one per JFET, in place in the ring slot
+// the warm start reads (gauss_jordan_blocks). The same Newton, acceptance (the bound |M| t
+// itself), correction and warm start as solve_general; a junction step to limit, a step to
+// damp, a pivot block not safely invertible or a multiplier above 1e4, or more than
+// wide_inline_iterations iterations go to solve_general<K> from where they stopped
+// (wide_rest).
+namespace {
+template <int K>
+struct wide_dims {
+  static constexpr int NP = 2 * K, NI = 3 * K, R = (NP + 3) / 4, P = 4 * R;
+};
+// The lanes of packet r that hold one of NP rows (all four but in the last packet of a
+// column of 6 or 10 rows).
+template <int NP>
+__attribute__((target("avx2,fma"), always_inline)) inline __m256i rows_mask(int r) noexcept {
+  const long long a = 4 * r < NP ? -1 : 0, b = 4 * r + 1 < NP ? -1 : 0, c = 4 * r + 2 < NP ? -1 : 0,
+                  d = 4 * r + 3 < NP ? -1 : 0;
+  return _mm256_setr_epi64x(a, b, c, d);
+}
+template <int NP>
+__attribute__((target("avx2,fma"), always_inline)) inline __m256d load_rows(const double* x, int r) noexcept {
+  if (4 * r + 4 <= NP) return _mm256_loadu_pd(x + 4 * r);
+  return _mm256_maskload_pd(x + 4 * r, rows_mask<NP>(r));
+}
+template <int NP>
+__attribute__((target("avx2,fma"), always_inline)) inline void store_rows(double* x, int r, __m256d v) noexcept {
+  if (4 * r + 4 <= NP) return _mm256_storeu_pd(x + 4 * r, v);
+  _mm256_maskstore_pd(x + 4 * r, rows_mask<NP>(r), v);
+}
+
+// M = A^-1 in place, A (NP x NP, column-major, column stride P, rows NP..P-1 zero) by
+// Gauss-Jordan elimination without interchanges in 2 x 2 pivot blocks, one per JFET
+// (Golub & Van Loan, Matrix Computations, 4th ed., 1.2 and 3.2.11, from memory): at pivot
+// block s, Pi = A_ss^-1 (invert_2x2: false where it is not safely invertible alone), then
+// A_sc <- Pi A_sc, A_ic <- A_ic - A_is Pi A_sc, A_is <- -A_is Pi, A_ss <- Pi (i, c not s).
+// Each column is updated as a whole by G = A_:s - E_s (E_s the unit columns of the block)
+// with u = Pi A_sc: A_:c - G u leaves u in the pivot rows and the update elsewhere, and the
+// pivot columns become E_s - G Pi. false also where a multiplier (an entry of -A_is Pi)
+// grew above 1e4, as block_factor_n.
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline bool gauss_jordan_blocks(double* a) noexcept {
+  using D = wide_dims<K>;
+  constexpr int NP = D::NP, R = D::R, P = D::P;
+  #pragma GCC unroll 16
+  for (int b = 0; b < K; ++b) {
+    const int s = 2 * b;
+    double* cs0 = a + s * P;
+    double* cs1 = a + (s + 1) * P;
+    double pi[4];
+    if (!invert_2x2(cs0[s], cs0[s + 1], cs1[s], cs1[s + 1], pi)) return false;
+    cs0[s] -= 1.0;
+    cs1[s + 1] -= 1.0;
+    __m256d g0[R], g1[R];
+    #pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      g0[r] = _mm256_load_pd(cs0 + 4 * r);
+      g1[r] = _mm256_load_pd(cs1 + 4 * r);
+    }
+    #pragma GCC unroll 16
+    for (int c = 0; c < NP; ++c) {
+      if (c == s || c == s + 1) continue;
+      double* cc = a + c * P;
+      const double a0 = cc[s], a1 = cc[s + 1];
+      const __m256d u0 = _mm256_set1_pd(pi[0] * a0 + pi[2] * a1), u1 = _mm256_set1_pd(pi[1] * a0 + pi[3] * a1);
+      #pragma GCC unroll 16
+      for (int r = 0; r < R; ++r)
+        _mm256_store_pd(cc + 4 * r, _mm256_fnmadd_pd(g1[r], u1, _mm256_fnmadd_pd(g0[r], u0, _mm256_load_pd(cc + 4 * r))));
+    }
+    const __m256d p0 = _mm256_set1_pd(pi[0]), p1 = _mm256_set1_pd(pi[1]), p2 = _mm256_set1_pd(pi[2]),
+                  p3 = _mm256_set1_pd(pi[3]);
+    __m256d grow = _mm256_setzero_pd();
+    #pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      const __m256d n0 = _mm256_fmadd_pd(g1[r], p1, _mm256_mul_pd(g0[r], p0));
+      const __m256d n1 = _mm256_fmadd_pd(g1[r], p3, _mm256_mul_pd(g0[r], p2));
+      _mm256_store_pd(cs0 + 4 * r, _mm256_sub_pd(_mm256_setzero_pd(), n0));
+      _mm256_store_pd(cs1 + 4 * r, _mm256_sub_pd(_mm256_setzero_pd(), n1));
+      // The multipliers: every row but the pivot rows (there G Pi is Pi - I).
+      const long long l = 4 * r;
+      const __m256d keep = _mm256_castsi256_pd(_mm256_setr_epi64x(
+          l == s || l == s + 1 ? 0 : -1, l + 1 == s || l + 1 == s + 1 ? 0 : -1, l + 2 == s || l + 2 == s + 1 ? 0 : -1,
+          l + 3 == s || l + 3 == s + 1 ? 0 : -1));
+      grow = _mm256_max_pd(_mm256_and_pd(keep, _mm256_max_pd(abs4(n0), abs4(n1))), grow);
+    }
+    cs0[s] = pi[0];
+    cs0[s + 1] = pi[1];
+    cs1[s] = pi[2];
+    cs1[s + 1] = pi[3];
+    // (max_pd returns its second operand where one is NaN: a NaN multiplier is not caught
+    // here, and the step or the bound it makes is not finite, which the loop tests.)
+    if (!(hmax_abs(grow) <= 1e4)) return false;
+  }
+  return true;
+}
+}  // namespace
+
+namespace {
+// process_n's devices in lanes, one JFET a lane (four a register; the lanes past k a
+// device that conducts nothing: beta = 0, is = 0, its junctions always taken as -is): the
+// constants of detail::device_consts as columns of lanes, the same equations as
+// detail::evaluate_ports / remainders_of (dk_device.hpp, dk_acceptance.hpp) on all JFETs
+// at once, the junction exponentials on the lanes that need one by the scalar function.
+// The port voltages (vgs0, vds0, vgs1, vds1, ...) of packets a and b as vgs and vds of
+// JFETs 0-3 of the two packets.
+__attribute__((target("avx2,fma"), always_inline)) inline void lanes_of(__m256d a, __m256d b, __m256d& gs,
+                                                                        __m256d& ds) noexcept {
+  gs = _mm256_permute4x64_pd(_mm256_unpacklo_pd(a, b), 0xD8);
+  ds = _mm256_permute4x64_pd(_mm256_unpackhi_pd(a, b), 0xD8);
+}
+struct lane_currents {
+  __m256d igs, igd, id, ggs, ggd, gm, gds;
+};
+// forward_channel (dk_device.hpp) on lanes: f, d f / d g, d f / d w at (g, w), w >= 0.
+__attribute__((target("avx2,fma"), always_inline)) inline void channel_lanes(const double* c, __m256d g, __m256d w,
+                                                                             __m256d& f, __m256d& fg,
+                                                                             __m256d& fw) noexcept {
+  const __m256d beta = _mm256_load_pd(c + 4 * lane_consts::beta), lambda = _mm256_load_pd(c + 4 * lane_consts::lambda);
+  const __m256d vgst = _mm256_sub_pd(g, _mm256_load_pd(c + 4 * lane_consts::vto));
+  const __m256d on = _mm256_cmp_pd(vgst, _mm256_setzero_pd(), _CMP_GT_OQ);
+  const __m256d clm = _mm256_add_pd(_mm256_set1_pd(1.0), _mm256_mul_pd(lambda, w));
+  const __m256d tri = _mm256_cmp_pd(w, vgst, _CMP_LT_OQ);
+  const __m256d two_beta = _mm256_mul_pd(_mm256_set1_pd(2.0), beta);
+  const __m256d core = _mm256_mul_pd(w, _mm256_sub_pd(_mm256_mul_pd(_mm256_set1_pd(2.0), vgst), w));
+  const __m256d ft = _mm256_mul_pd(_mm256_mul_pd(beta, core), clm);
+  const __m256d fs = _mm256_mul_pd(_mm256_mul_pd(_mm256_mul_pd(beta, vgst), vgst), clm);
+  const __m256d gt = _mm256_mul_pd(_mm256_mul_pd(two_beta, w), clm);
+  const __m256d gsat = _mm256_mul_pd(_mm256_mul_pd(two_beta, vgst), clm);
+  const __m256d wt = _mm256_mul_pd(
+      beta, _mm256_add_pd(_mm256_mul_pd(_mm256_sub_pd(_mm256_mul_pd(_mm256_set1_pd(2.0), vgst),
+                                                      _mm256_mul_pd(_mm256_set1_pd(2.0), w)),
+                                        clm),
+                          _mm256_mul_pd(core, lambda)));
+  const __m256d ws = _mm256_mul_pd(_mm256_mul_pd(_mm256_mul_pd(beta, vgst), vgst), lambda);
+  f = _mm256_and_pd(on, _mm256_blendv_pd(fs, ft, tri));
+  fg = _mm256_and_pd(on, _mm256_blendv_pd(gsat, gt, tri));
+  fw = _mm256_and_pd(on, _mm256_blendv_pd(ws, wt, tri));
+}
+// channel_current (dk_device.hpp) on lanes.
+__attribute__((target("avx2,fma"), always_inline)) inline __m256d channel_current_lanes(const double* c, __m256d gs,
+                                                                                        __m256d ds) noexcept {
+  const __m256d inv = _mm256_cmp_pd(ds, _mm256_setzero_pd(), _CMP_LT_OQ);
+  const __m256d g = _mm256_blendv_pd(gs, _mm256_sub_pd(gs, ds), inv);
+  const __m256d w = _mm256_blendv_pd(ds, _mm256_sub_pd(_mm256_setzero_pd(), ds), inv);
+  const __m256d beta = _mm256_load_pd(c + 4 * lane_consts::beta), lambda = _mm256_load_pd(c + 4 * lane_consts::lambda);
+  const __m256d vgst = _mm256_sub_pd(g, _mm256_load_pd(c + 4 * lane_consts::vto));
+  const __m256d on = _mm256_cmp_pd(vgst, _mm256_setzero_pd(), _CMP_GT_OQ);
+  const __m256d clm = _mm256_add_pd(_mm256_set1_pd(1.0), _mm256_mul_pd(lambda, w));
+  const __m256d tri = _mm256_cmp_pd(w, vgst, _CMP_LT_OQ);
+  const __m256d ft =
+      _mm256_mul_pd(_mm256_mul_pd(beta, _mm256_mul_pd(w, _mm256_sub_pd(_mm256_mul_pd(_mm256_set1_pd(2.0), vgst), w))), clm);
+  const __m256d fs = _mm256_mul_pd(_mm256_mul_pd(_mm256_mul_pd(beta, vgst), vgst), clm);
+  const __m256d f = _mm256_and_pd(on, _mm256_blendv_pd(fs, ft, tri));
+  return _mm256_blendv_pd(f, _mm256_sub_pd(_mm256_setzero_pd(), f), inv);
+}
+// evaluate_ports on lanes; `dev` the JFETs' scalar constants (for the lanes whose junction
+// needs its exponential), `first` the JFET of lane 0, `k` the JFETs in all.
+__attribute__((target("avx2,fma"), always_inline)) inline lane_currents evaluate_lanes(
+    const double* c, const detail::device_consts* dev, int first, int k, __m256d gs, __m256d ds) noexcept {
+  lane_currents o;
+  const __m256d inv_nvt = _mm256_load_pd(c + 4 * lane_consts::inv_nvt), skip = _mm256_load_pd(c + 4 * lane_consts::skip_arg);
+  const __m256d is = _mm256_load_pd(c + 4 * lane_consts::is);
+  const __m256d gd = _mm256_sub_pd(gs, ds);
+  const __m256d need_gs = _mm256_cmp_pd(_mm256_mul_pd(gs, inv_nvt), skip, _CMP_NLT_UQ);
+  const __m256d need_gd = _mm256_cmp_pd(_mm256_mul_pd(gd, inv_nvt), skip, _CMP_NLT_UQ);
+  o.igs = o.igd = _mm256_sub_pd(_mm256_setzero_pd(), is);
+  o.ggs = o.ggd = _mm256_setzero_pd();
+  const int m_gs = _mm256_movemask_pd(need_gs), m_gd = _mm256_movemask_pd(need_gd);
+  if ((m_gs | m_gd) != 0) [[unlikely]] {
+    alignas(32) double vg[4], vd[4], ig[4], gg[4], id[4], gdd[4];
+    _mm256_store_pd(vg, gs);
+    _mm256_store_pd(vd, gd);
+    _mm256_store_pd(ig, o.igs);
+    _mm256_store_pd(gg, o.ggs);
+    _mm256_store_pd(id, o.igd);
+    _mm256_store_pd(gdd, o.ggd);
+    for (int l = 0; l < 4 && first + l < k; ++l) {
+      if (m_gs >> l & 1) detail::junction(dev[first + l], vg[l], ig[l], gg[l]);
+      if (m_gd >> l & 1) detail::junction(dev[first + l], vd[l], id[l], gdd[l]);
+    }
+    o.igs = _mm256_load_pd(ig);
+    o.ggs = _mm256_load_pd(gg);
+    o.igd = _mm256_load_pd(id);
+    o.ggd = _mm256_load_pd(gdd);
+  }
+  o.igs = _mm256_sub_pd(o.igs, _mm256_load_pd(c + 4 * lane_consts::leak));
+  const __m256d inv = _mm256_cmp_pd(ds, _mm256_setzero_pd(), _CMP_LT_OQ);
+  const __m256d g = _mm256_blendv_pd(gs, gd, inv);
+  const __m256d w = _mm256_blendv_pd(ds, _mm256_sub_pd(_mm256_setzero_pd(), ds), inv);
+  __m256d f, fg, fw;
+  channel_lanes(c, g, w, f, fg, fw);
+  o.id = _mm256_blendv_pd(f, _mm256_sub_pd(_mm256_setzero_pd(), f), inv);
+  o.gm = _mm256_blendv_pd(fg, _mm256_sub_pd(_mm256_setzero_pd(), fg), inv);
+  o.gds = _mm256_blendv_pd(fw, _mm256_add_pd(fg, fw), inv);
+  return o;
+}
+struct lane_remainders {
+  __m256d rem[3], mag[3], id_lin;
+};
+// remainders_of (dk_acceptance.hpp) on lanes: the step (d0, d1) to (vn0, vn1).
+__attribute__((target("avx2,fma"), always_inline)) inline lane_remainders remainders_lanes(const double* c,
+                                                                                           const lane_currents& o,
+                                                                                           __m256d vn0, __m256d vn1,
+                                                                                           __m256d d0,
+                                                                                           __m256d d1) noexcept {
+  lane_remainders s;
+  const __m256d dgd = _mm256_sub_pd(d0, d1);
+  const __m256d kj = _mm256_load_pd(c + 4 * lane_consts::k_junction);
+  s.rem[0] = _mm256_mul_pd(_mm256_mul_pd(_mm256_mul_pd(kj, o.ggs), d0), d0);
+  s.rem[1] = _mm256_mul_pd(_mm256_mul_pd(_mm256_mul_pd(kj, o.ggd), dgd), dgd);
+  const __m256d id_new = channel_current_lanes(c, vn0, vn1);
+  const __m256d gm_d = _mm256_mul_pd(o.gm, d0), gds_d = _mm256_mul_pd(o.gds, d1);
+  s.id_lin = _mm256_add_pd(gm_d, gds_d);
+  const __m256d k = _mm256_set1_pd(detail::acceptance_round_k);
+  s.rem[2] = _mm256_add_pd(
+      abs4(_mm256_sub_pd(_mm256_sub_pd(id_new, o.id), s.id_lin)),
+      _mm256_mul_pd(k, _mm256_add_pd(_mm256_add_pd(abs4(id_new), abs4(o.id)), _mm256_add_pd(abs4(gm_d), abs4(gds_d)))));
+  s.mag[0] = _mm256_add_pd(abs4(o.igs), abs4(_mm256_mul_pd(o.ggs, d0)));
+  s.mag[1] = _mm256_add_pd(abs4(o.igd), abs4(_mm256_mul_pd(o.ggd, dgd)));
+  s.mag[2] = _mm256_add_pd(abs4(o.id), abs4(s.id_lin));
+  return s;
+}
+}  // namespace
+
+namespace {
+// acc += M x (|M| x where Abs) for an NP x NP M in columns of P rows, in two sums of half the
+// columns each, added last: the latency of the chain of fused multiply-adds, not their
+// count, sets the time of process_n's sample.
+template <int K, bool Abs>
+__attribute__((target("avx2,fma"), always_inline)) inline void add_product(const double* m, const double* x,
+                                                                           __m256d* acc) noexcept {
+  constexpr int NP = wide_dims<K>::NP, R = wide_dims<K>::R, P = wide_dims<K>::P;
+  __m256d b[R];
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) b[r] = _mm256_setzero_pd();
+#pragma GCC unroll 16
+  for (int c = 0; c < NP; c += 2) {
+    const __m256d x0 = _mm256_broadcast_sd(x + c), x1 = _mm256_broadcast_sd(x + c + 1);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      const __m256d m0 = _mm256_load_pd(m + c * P + 4 * r), m1 = _mm256_load_pd(m + (c + 1) * P + 4 * r);
+      acc[r] = _mm256_fmadd_pd(Abs ? abs4(m0) : m0, x0, acc[r]);
+      b[r] = _mm256_fmadd_pd(Abs ? abs4(m1) : m1, x1, b[r]);
+    }
+  }
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) acc[r] = _mm256_add_pd(acc[r], b[r]);
+}
+
+// col = start + sum_j m_j x_j (|m_j| where `absolute`), over `cols` columns of P rows.
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline void wide_times(const double* m, int cols, const double* x,
+                                                                          const double* start, bool absolute,
+                                                                          double* col) noexcept {
+  constexpr int R = wide_dims<K>::R, P = wide_dims<K>::P;
+  __m256d acc[R];
+  #pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) acc[r] = start ? _mm256_load_pd(start + 4 * r) : _mm256_setzero_pd();
+  #pragma GCC unroll 16
+  for (int j = 0; j < cols; ++j) {
+    const __m256d xj = _mm256_broadcast_sd(x + j);
+    #pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      const __m256d mj = _mm256_load_pd(m + j * P + 4 * r);
+      acc[r] = _mm256_fmadd_pd(absolute ? abs4(mj) : mj, xj, acc[r]);
+    }
+  }
+  #pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) _mm256_store_pd(col + 4 * r, acc[r]);
+}
+
+// The correction of an accepted point of K JFETs, as pair_correct (detail::correction_floor):
+// the step e = M F R from vn = v + d, R the junctions' remainders themselves; the point
+// vn + e with the junctions' currents i(vn) + Jf e and the channels' linearised ones is
+// stored in `out` where the bound on the residual there, |F| R' + `excess`, and |M| times it
+// are below tol_v. False: not taken. F, |F| and M in columns of P rows.
+template <int K>
+__attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::device_consts* dv,
+                                                                const double* cur_rows,
+                                                                const double* rem_rows, const double* vv,
+                                                                const double* dd, const double* vnv, const double* mt,
+                                                                const double* f, const double* fa,
+                                                                const double* excess, double tol, pair_out out) noexcept {
+  using D = wide_dims<K>;
+  constexpr int NP = D::NP, NI = D::NI, P = D::P, W = 4 * ((K + 3) / 4);
+  // The devices' rows of lanes (process_n: cur, sr) as the scalar functions take them.
+  detail::port_currents c[K];
+  detail::step_remainders s[K];
+  for (int j = 0; j < K; ++j) {
+    c[j] = detail::port_currents{cur_rows[j],         cur_rows[W + j],     cur_rows[2 * W + j], cur_rows[3 * W + j],
+                                 cur_rows[4 * W + j], cur_rows[5 * W + j], cur_rows[6 * W + j]};
+    for (int q = 0; q < 3; ++q) {
+      s[j].rem[q] = rem_rows[q * W + j];
+      s[j].mag[q] = rem_rows[(3 + q) * W + j];
+    }
+    s[j].id_lin_d = rem_rows[6 * W + j];
+  }
+  alignas(32) double col[P];
+  auto col_max = [&]() noexcept {
+    double m = 0.0;
+    #pragma GCC unroll 16
+    for (int r = 0; r < NP; ++r) m = std::max(m, std::fabs(col[r]));
+    return m;
+  };
+  // The junctions' part of the bound, |M| |F| R_junctions, against the floor.
+  {
+    double rj[NI];
+    #pragma GCC unroll 16
+    for (int j = 0; j < K; ++j) {
+      rj[3 * j] = s[j].rem[0];
+      rj[3 * j + 1] = s[j].rem[1];
+      rj[3 * j + 2] = 0.0;
+    }
+    wide_times<K>(fa, NI, rj, nullptr, false, col);
+    alignas(32) double tj[P];
+    std::copy_n(col, P, tj);
+    wide_times<K>(mt, NP, tj, nullptr, true, col);
+    if (!(col_max() > detail::correction_floor * tol)) return false;
+  }
+  #pragma GCC unroll 16
+  for (int j = 0; j < K; ++j)
+    if (!detail::correction_applies(dv[j], vv[2 * j], vv[2 * j + 1], 0.0, 0.0)) return false;
+  double q[NI];
+  #pragma GCC unroll 16
+  for (int j = 0; j < K; ++j) {
+    q[3 * j] = detail::junction_remainder(c[j].ggs_s, dv[j], dd[2 * j]);
+    q[3 * j + 1] = detail::junction_remainder(c[j].ggd_s, dv[j], dd[2 * j] - dd[2 * j + 1]);
+    q[3 * j + 2] = 0.0;
+  }
+  wide_times<K>(f, NI, q, nullptr, false, col);
+  alignas(32) double fr[P], ev[P];
+  std::copy_n(col, P, fr);
+  wide_times<K>(mt, NP, fr, nullptr, false, col);
+  std::copy_n(col, P, ev);
+  #pragma GCC unroll 16
+  for (int j = 0; j < K; ++j)
+    if (!detail::correction_applies(dv[j], vv[2 * j], vv[2 * j + 1], ev[2 * j], ev[2 * j + 1])) return false;
+  double rr[NI];
+  double id_end[K];
+  #pragma GCC unroll 16
+  for (int j = 0; j < K; ++j) {
+    id_end[j] = c[j].id_a + s[j].id_lin_d;
+    detail::correction_remainders(dv[j], c[j], dd[2 * j], dd[2 * j + 1], ev[2 * j], ev[2 * j + 1],
+                                  vnv[2 * j] + ev[2 * j], vnv[2 * j + 1] + ev[2 * j + 1], id_end[j], rr + 3 * j);
+  }
+  wide_times<K>(fa, NI, rr, excess, false, col);
+  alignas(32) double tv[P];
+  std::copy_n(col, P, tv);
+  if (!(col_max() <= tol)) return false;
+  wide_times<K>(mt, NP, tv, nullptr, true, col);
+  if (!(col_max() <= tol)) return false;
+  #pragma GCC unroll 16
+  for (int r = 0; r < NP; ++r) out.v[r] = vnv[r] + ev[r];
+  #pragma GCC unroll 16
+  for (int j = 0; j < K; ++j) {
+    const double d0 = dd[2 * j], d1 = dd[2 * j + 1], e0 = ev[2 * j], e1 = ev[2 * j + 1];
+    out.i[3 * j] = c[j].igs_a + c[j].ggs_s * (d0 + e0) + q[3 * j];
+    out.i[3 * j + 1] = c[j].igd_a + c[j].ggd_s * (d0 - d1 + e0 - e1) + q[3 * j + 1];
+    out.i[3 * j + 2] = id_end[j] + c[j].gm_s * e0 + c[j].gds_s * e1;
+  }
+  return true;
+}
+}  // namespace
+
+// Where the inline iterations of process_n stopped, solve_general<K> (or the sub-steps)
+// goes on; M of the point it accepts into the ring (ring_m_of).
+#if defined(PINCHOFF_RUNTIME_SIZES)
+template <int K>
+constexpr int wide_general_k = 0;
+#else
+template <int K>
+constexpr int wide_general_k = K;
+#endif
+
+template <int K>
+__attribute__((noinline)) void general_solver::wide_rest(int& evals, bool attempt_failed) noexcept {
+  port_set& trial = g_.trial();
+  if (attempt_failed || !solve_general<wide_general_k<K>>(g_.p, g_.guess, trial, evals))
+    substep_general<wide_general_k<K>>(g_.p, trial, evals);
+  ring_m_of((g_.head + 1) & 3);
+}
+
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline double general_solver::process_n(double generator_v) noexcept {
+  using D = wide_dims<K>;
+  constexpr int NP = D::NP, NI = D::NI, R = D::R, P = D::P;
+  storage& g = g_;
+  const int ns = m_.states, rows = g.rows;
+  const double ug = sign_ * generator_v;
+  double* __restrict x_in = in_.data();
+  x_in[ns + 1] = ug;
+  update_wide(g.w.data(), rows, nullptr, x_in, ns + 2, g.pre.data());
+  const double* f = g.fpad.data();
+  const double* fa = g.fapad.data();
+  const double* pads = g.vpad.data();  // p_dc, e1, skip_t: P each
+  __m256d p[R];
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r)
+    p[r] = _mm256_fmadd_pd(_mm256_load_pd(pads + P + 4 * r), _mm256_set1_pd(ug),
+                           _mm256_add_pd(_mm256_load_pd(pads + 4 * r), load_rows<NP>(g.q.data(), r)));
+
+  // Warm start (as process_k): the last solution moved along the step of p by M at the
+  // last three points, Adams-Bashforth weights, combined into one matrix at the end of the
+  // last sample (g.mw, combine_warm: off this sample's chain of dependent operations). Two
+  // sums of half the columns each: the latency of the chain, not the count, sets the time.
+  __m256d v[R];
+  {
+    alignas(32) double dp[P];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      _mm256_store_pd(dp + 4 * r, _mm256_sub_pd(p[r], load_rows<NP>(g.p_last.data(), r)));
+      v[r] = load_rows<NP>(g.last().v.data(), r);
+    }
+    add_product<K, false>(g.mw.data(), dp, v);
+  }
+
+  const int slot = (g.head + 1) & 3;
+  port_set& trial = g.trial();
+  double* mt = g.mring.data() + P * NP * slot;
+  const double tol = opt_.tol_v;
+  const detail::device_consts* dev = g.dev.data();
+  int evals = 0;
+  bool accepted = false;
+  double rn_base = 0.0;
+  __m256d base[R], step[R], restart[R];
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) {
+    base[r] = v[r];
+    step[r] = _mm256_setzero_pd();
+    restart[r] = v[r];
+  }
+  // The devices' currents and derivatives at the iterate, a row of lanes each (igs, igd,
+  // id, ggs, ggd, gm, gds), for the broadcasts of the products below.
+  constexpr int L = (K + 3) / 4;
+  constexpr int LC = lane_consts::count;
+  const double* lc = g.lanes.data();
+  alignas(32) double cur[7][4 * L];
+  lane_currents cl[L];
+  __m256d gs[L], ds[L];
+  const int inline_iterations = std::min(opt_.max_iterations, wide_inline_iterations);
+  int it = 0;
+  for (; it < inline_iterations; ++it) {
+    alignas(32) double vv[P];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) _mm256_store_pd(vv + 4 * r, v[r]);
+#pragma GCC unroll 4
+    for (int l = 0; l < L; ++l) {
+      lanes_of(v[2 * l], 2 * l + 1 < R ? v[2 * l + 1] : _mm256_setzero_pd(), gs[l], ds[l]);
+      cl[l] = evaluate_lanes(lc + 4 * LC * l, dev, 4 * l, K, gs[l], ds[l]);
+      _mm256_store_pd(cur[0] + 4 * l, cl[l].igs);
+      _mm256_store_pd(cur[1] + 4 * l, cl[l].igd);
+      _mm256_store_pd(cur[2] + 4 * l, cl[l].id);
+      _mm256_store_pd(cur[3] + 4 * l, cl[l].ggs);
+      _mm256_store_pd(cur[4] + 4 * l, cl[l].ggd);
+      _mm256_store_pd(cur[5] + 4 * l, cl[l].gm);
+      _mm256_store_pd(cur[6] + 4 * l, cl[l].gds);
+    }
+    ++evals;
+    // The residual in three sums (gate-source, gate-drain, channel columns), added last.
+    __m256d res[R], res1[R], res2[R];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      res[r] = _mm256_sub_pd(p[r], v[r]);
+      res1[r] = res2[r] = _mm256_setzero_pd();
+    }
+#pragma GCC unroll 16
+    for (int j = 0; j < K; ++j) {
+      const __m256d i0 = _mm256_broadcast_sd(cur[0] + j), i1 = _mm256_broadcast_sd(cur[1] + j),
+                    i2 = _mm256_broadcast_sd(cur[2] + j);
+      const double* fj = f + 3 * j * P;
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) {
+        res[r] = _mm256_fmadd_pd(_mm256_load_pd(fj + 4 * r), i0, res[r]);
+        res1[r] = _mm256_fmadd_pd(_mm256_load_pd(fj + P + 4 * r), i1, res1[r]);
+        res2[r] = _mm256_fmadd_pd(_mm256_load_pd(fj + 2 * P + 4 * r), i2, res2[r]);
+      }
+    }
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) res[r] = _mm256_add_pd(res[r], _mm256_add_pd(res1[r], res2[r]));
+    __m256d rmax = abs4(res[0]);
+#pragma GCC unroll 16
+    for (int r = 1; r < R; ++r) rmax = _mm256_max_pd(rmax, abs4(res[r]));
+    const double rn = hmax_abs(rmax);
+    // The second iteration's damping test (detail::halve_step): a step to halve goes to
+    // solve_general.
+    if (!std::isfinite(rn) || (it > 0 && detail::halve_step(true, rn, rn_base, tol, 0))) {
+      if (it > 0)
+#pragma GCC unroll 16
+        for (int r = 0; r < R; ++r) restart[r] = _mm256_fmadd_pd(_mm256_set1_pd(0.5), step[r], base[r]);
+      break;
+    }
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) restart[r] = v[r];
+
+    // I - F Jf by column pairs into the ring slot, then M in place.
+#pragma GCC unroll 16
+    for (int j = 0; j < K; ++j) {
+      const double* fj = f + 3 * j * P;
+      const __m256d gs = _mm256_broadcast_sd(cur[3] + j), gd = _mm256_broadcast_sd(cur[4] + j),
+                    gm = _mm256_broadcast_sd(cur[5] + j), gds = _mm256_broadcast_sd(cur[6] + j);
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) {
+        const __m256d f0 = _mm256_load_pd(fj + 4 * r), f1 = _mm256_load_pd(fj + P + 4 * r),
+                      f2 = _mm256_load_pd(fj + 2 * P + 4 * r);
+        const __m256d j0 = _mm256_fmadd_pd(f2, gm, _mm256_fmadd_pd(f1, gd, _mm256_mul_pd(f0, gs)));
+        const __m256d j1 = _mm256_fnmadd_pd(f1, gd, _mm256_mul_pd(f2, gds));
+        _mm256_store_pd(mt + 2 * j * P + 4 * r, _mm256_sub_pd(_mm256_setzero_pd(), j0));
+        _mm256_store_pd(mt + (2 * j + 1) * P + 4 * r, _mm256_sub_pd(_mm256_setzero_pd(), j1));
+      }
+      mt[2 * j * P + 2 * j] += 1.0;
+      mt[(2 * j + 1) * P + 2 * j + 1] += 1.0;
+    }
+    if (!gauss_jordan_blocks<K>(mt)) break;
+    alignas(32) double rv[P];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) _mm256_store_pd(rv + 4 * r, res[r]);
+    __m256d d[R];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) d[r] = _mm256_setzero_pd();
+    add_product<K, false>(mt, rv, d);
+    alignas(32) double dd[P];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) _mm256_store_pd(dd + 4 * r, d[r]);
+    {
+      double sum = 0.0;
+#pragma GCC unroll 16
+      for (int q = 0; q < NP; ++q) sum += dd[q];
+      if (!std::isfinite(sum)) break;
+    }
+    // The step's lanes; a junction landing above vcrit may need limiting: solve_general.
+    __m256d dgs[L], dds[L];
+    int limit = 0, large = 0;
+#pragma GCC unroll 4
+    for (int l = 0; l < L; ++l) {
+      lanes_of(d[2 * l], 2 * l + 1 < R ? d[2 * l + 1] : _mm256_setzero_pd(), dgs[l], dds[l]);
+      const double* c = lc + 4 * LC * l;
+      const __m256d vcrit = _mm256_load_pd(c + 4 * lane_consts::vcrit), lim = _mm256_load_pd(c + 4 * lane_consts::small);
+      const __m256d dgd = _mm256_sub_pd(dgs[l], dds[l]);
+      limit |= _mm256_movemask_pd(_mm256_or_pd(
+          _mm256_cmp_pd(_mm256_add_pd(gs[l], dgs[l]), vcrit, _CMP_GT_OQ),
+          _mm256_cmp_pd(_mm256_add_pd(_mm256_sub_pd(gs[l], ds[l]), dgd), vcrit, _CMP_GT_OQ)));
+      // detail::small_junction_steps on the lanes.
+      large |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(abs4(dgs[l]), lim, _CMP_NLE_UQ),
+                                               _mm256_cmp_pd(abs4(dgd), lim, _CMP_NLE_UQ)));
+    }
+    if (limit != 0) break;
+    __m256d vn[R];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) vn[r] = _mm256_add_pd(v[r], d[r]);
+    if (large == 0) {
+      alignas(32) double vnv[P];
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) _mm256_store_pd(vnv + 4 * r, vn[r]);
+      // The remainders (rem, mag: rows 0-2, 3-5) and the channels' linear change (row 6),
+      // a row of lanes each.
+      alignas(32) double sr[7][4 * L];
+#pragma GCC unroll 4
+      for (int l = 0; l < L; ++l) {
+        const lane_remainders q = remainders_lanes(lc + 4 * LC * l, cl[l], _mm256_add_pd(gs[l], dgs[l]),
+                                                   _mm256_add_pd(ds[l], dds[l]), dgs[l], dds[l]);
+        for (int m = 0; m < 3; ++m) {
+          _mm256_store_pd(sr[m] + 4 * l, q.rem[m]);
+          _mm256_store_pd(sr[3 + m] + 4 * l, q.mag[m]);
+        }
+        _mm256_store_pd(sr[6] + 4 * l, q.id_lin);
+      }
+      // As solve_general's try_accept: the rounding of each row, allowed up to the
+      // allowance; t the residual bound less what is allowed; then |M| t.
+      // Each in two sums (the junctions' columns and the channels'), added last.
+      __m256d fm[R], tr[R], fm2[R], tr2[R];
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) fm[r] = tr[r] = fm2[r] = tr2[r] = _mm256_setzero_pd();
+#pragma GCC unroll 16
+      for (int j = 0; j < K; ++j)
+#pragma GCC unroll 16
+        for (int q = 0; q < 3; ++q) {
+          const __m256d mg = _mm256_broadcast_sd(sr[3 + q] + j), rm = _mm256_broadcast_sd(sr[q] + j);
+#pragma GCC unroll 16
+          for (int r = 0; r < R; ++r) {
+            const __m256d fc = _mm256_load_pd(fa + (3 * j + q) * P + 4 * r);
+            if (q == 2) {
+              fm2[r] = _mm256_fmadd_pd(fc, mg, fm2[r]);
+              tr2[r] = _mm256_fmadd_pd(fc, rm, tr2[r]);
+            } else {
+              fm[r] = _mm256_fmadd_pd(fc, mg, fm[r]);
+              tr[r] = _mm256_fmadd_pd(fc, rm, tr[r]);
+            }
+          }
+        }
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) {
+        fm[r] = _mm256_add_pd(fm[r], fm2[r]);
+        tr[r] = _mm256_add_pd(tr[r], tr2[r]);
+      }
+      alignas(32) double tv[P], excess[P];
+      __m256d tmax = _mm256_setzero_pd();
+      __m256d al[R];
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) {
+        al[r] = _mm256_mul_pd(_mm256_set1_pd(detail::acceptance_round_k),
+                              _mm256_add_pd(fm[r], _mm256_add_pd(abs4(p[r]), abs4(vn[r]))));
+        const __m256d ex = _mm256_add_pd(_mm256_load_pd(pads + 2 * P + 4 * r),
+                                         _mm256_max_pd(_mm256_sub_pd(al[r], _mm256_set1_pd(detail::rounding_allowance_v)),
+                                                       _mm256_setzero_pd()));
+        _mm256_store_pd(excess + 4 * r, ex);
+        const __m256d t = _mm256_add_pd(tr[r], ex);
+        _mm256_store_pd(tv + 4 * r, t);
+        tmax = _mm256_max_pd(tmax, t);
+      }
+      if (hmax_abs(tmax) <= tol) {
+        __m256d e[R];
+#pragma GCC unroll 16
+        for (int r = 0; r < R; ++r) e[r] = _mm256_setzero_pd();
+        add_product<K, true>(mt, tv, e);
+        __m256d emax = e[0];
+#pragma GCC unroll 16
+        for (int r = 1; r < R; ++r) emax = _mm256_max_pd(emax, e[r]);
+        const bool within = hmax_abs(emax) <= tol;
+        if (within && opt_.confirm) [[unlikely]] {
+          // Confirm mode, as solve_general: the exact devices (no far-reverse skip) at the
+          // point, whose residual must be below tol_v plus the row's rounding allowance.
+          detail::port_currents kc[K];
+#pragma GCC unroll 16
+          for (int j = 0; j < K; ++j) {
+            detail::device_consts x = dev[j];
+            x.skip_arg = detail::junction_deep_reverse;
+            kc[j] = detail::evaluate_ports(x, vnv[2 * j], vnv[2 * j + 1]);
+          }
+          ++evals;
+          bool ok = true;
+#pragma GCC unroll 16
+          for (int r = 0; r < R; ++r) {
+            __m256d q = _mm256_sub_pd(p[r], vn[r]);
+#pragma GCC unroll 16
+            for (int j = 0; j < K; ++j) {
+              const double* fj = f + 3 * j * P + 4 * r;
+              q = _mm256_fmadd_pd(_mm256_load_pd(fj), _mm256_set1_pd(kc[j].igs_a), q);
+              q = _mm256_fmadd_pd(_mm256_load_pd(fj + P), _mm256_set1_pd(kc[j].igd_a), q);
+              q = _mm256_fmadd_pd(_mm256_load_pd(fj + 2 * P), _mm256_set1_pd(kc[j].id_a), q);
+            }
+            const __m256d lim =
+                _mm256_add_pd(_mm256_set1_pd(tol), _mm256_min_pd(al[r], _mm256_set1_pd(detail::rounding_allowance_v)));
+            ok = ok && _mm256_movemask_pd(_mm256_cmp_pd(abs4(q), lim, _CMP_LE_OQ)) == 15;
+          }
+          if (!ok) {
+            ++stats_.bound_misses;
+          } else {
+#pragma GCC unroll 16
+            for (int r = 0; r < R; ++r) store_rows<NP>(trial.v.data(), r, vn[r]);
+#pragma GCC unroll 16
+            for (int j = 0; j < K; ++j) {
+              trial.i[3 * j] = kc[j].igs_a;
+              trial.i[3 * j + 1] = kc[j].igd_a;
+              trial.i[3 * j + 2] = kc[j].id_a;
+              put_block(trial.jf, j, kc[j]);
+            }
+            accepted = true;
+            break;
+          }
+        } else if (within) {
+          // The correction (detail::correction_floor says why), where the remainders move
+          // the point by more than a thousandth of tol_v and its own bound holds.
+          int conducting = 0;
+#pragma GCC unroll 4
+          for (int l = 0; l < L; ++l)
+            conducting |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(cl[l].ggs, _mm256_setzero_pd(), _CMP_GT_OQ),
+                                                          _mm256_cmp_pd(cl[l].ggd, _mm256_setzero_pd(), _CMP_GT_OQ)));
+          if (conducting != 0 && opt_.correct_junctions &&
+              wide_correct<K>(dev, &cur[0][0], &sr[0][0], vv, dd, vnv, mt, f, fa, excess, tol,
+                              pair_out{trial.v.data(), trial.i.data()})) [[unlikely]] {
+#pragma GCC unroll 16
+            for (int j = 0; j < K; ++j) put_block_of(trial.jf, j, cur[3][j], cur[4][j], cur[5][j], cur[6][j]);
+            accepted = true;
+            break;
+          }
+#pragma GCC unroll 16
+          for (int r = 0; r < R; ++r) store_rows<NP>(trial.v.data(), r, vn[r]);
+          double* i = trial.i.data();
+#pragma GCC unroll 16
+          for (int j = 0; j < K; ++j) {
+            i[3 * j] = cur[0][j] + cur[3][j] * dd[2 * j];
+            i[3 * j + 1] = cur[1][j] + cur[4][j] * (dd[2 * j] - dd[2 * j + 1]);
+            i[3 * j + 2] = cur[2][j] + sr[6][j];
+            put_block_of(trial.jf, j, cur[3][j], cur[4][j], cur[5][j], cur[6][j]);
+          }
+          accepted = true;
+          break;
+        }
+      }
+    }
+    rn_base = rn;
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      base[r] = v[r];
+      step[r] = d[r];
+      v[r] = vn[r];
+      restart[r] = vn[r];
+    }
+  }
+  if (accepted) [[likely]] {
+    // The point's I - F Jf is formed from its Jf where something reads its factors
+    // (ensure_factors); M is in the ring.
+    trial.stale = true;
+    trial.pending = false;
+    trial.blocked = false;
+    trial.torn = false;
+  } else {
+    // Where the inline iterations stopped (see above): solve_general goes on from there,
+    // at this sample's p.
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      store_rows<NP>(g.p.data(), r, p[r]);
+      store_rows<NP>(g.guess.data(), r, restart[r]);
+    }
+    // All of max_iterations made here: the attempt has failed, as solve_general's would.
+    wide_rest<K>(evals, it == opt_.max_iterations);
+  }
+
+  g.head = slot;
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) store_rows<NP>(g.p_last.data(), r, p[r]);
+  combine_warm<P * NP>(P * NP);
+
+  // The current columns of W times i - i_dc, onto the pre-computed part.
+  {
+    const double* __restrict i_dc = g.dc.i.data();
+    const double* __restrict il = g.last().i.data();
+#pragma GCC unroll 16
+    for (int q = 0; q < NI; ++q) x_in[ns + 2 + q] = il[q] - i_dc[q];
+    update_wide(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2, NI,
+                g.out.data());
+    const double* __restrict o = g.out.data();
+    vec_add_scaled(x_in, x_in, o, ns, 1.0);
+    std::copy_n(o + ns, NP, g.q.data());
+  }
+  ++stats_.samples;
+  stats_.evaluations += evals;
+  stats_.max_evaluations = std::max(stats_.max_evaluations, evals);
+  return sign_ * (g.y_dc + g.out.data()[ns + NP]);
+}
+
+template <int K>
+__attribute__((PINCHOFF_DK_FLATTEN target("avx2,fma"))) void general_solver::block_n(const double* in, double* out,
+                                                                                           std::size_t n) noexcept {
+  for (std::size_t k = 0; k < n; ++k) out[k] = process_n<K>(in[k]);
+}
 #endif
 
 void general_solver::process(const double* in, double* out, std::size_t n) noexcept {
 #if PINCHOFF_DK_PAIR
   if (pair_) return block_pair(in, out, n);
+  if (full_) {
+    switch (m_.devices) {
+      case 3: return block_n<3>(in, out, n);
+      case 4: return block_n<4>(in, out, n);
+      default: break;
+    }
+  }
 #endif
 #if PINCHOFF_DK_GENERAL_WIDE
   // (Two JFETs with AVX2 + FMA take the pair loop above, unless the factors are to be

@@ -36,7 +36,7 @@ class general_solver : public dk_solver_base {
     return Eigen::Vector2d(g_.last().v.segment<2>(2 * device));
   }
   const char* sample_loop() const noexcept {
-    return pair_ ? "AVX2+FMA, two-JFET" : wide_ && m_.devices >= 3 && m_.devices <= 6 ? "AVX2+FMA" : "portable";
+    return pair_ ? "AVX2+FMA, two-JFET" : full_ ? "AVX2+FMA, M in full" : wide_ && m_.devices >= 3 && m_.devices <= 6 ? "AVX2+FMA" : "portable";
   }
 
  private:
@@ -49,6 +49,7 @@ class general_solver : public dk_solver_base {
     bool blocked{false};   ///< lu holds block factors in 2 x 2 blocks, no interchanges (dk_general.cpp)
     bool torn{false};      ///< lu holds I - F Jf with its diagonal blocks inverted (a torn step, dk_general.cpp)
     bool pending{false};   ///< lu holds I - F Jf itself, factors not formed yet (process_pair; ensure_factors)
+    bool stale{false};     ///< lu holds nothing yet: I - F Jf formed from jf where it is read (process_n; ensure_factors)
     void resize(int k);
   };
   struct storage {
@@ -79,7 +80,13 @@ class general_solver : public dk_solver_base {
     Eigen::VectorXd mdl;                        // the warm start's products
     // Two JFETs (process_pair): dv/dp = (I - F Jf)^-1 of each ring point in full, 4 x 4
     // column-major, 16 doubles a slot in the ring's order.
+    // Three and four JFETs (process_n): the same in columns of P rows (2k rounded up to a
+    // multiple of 4, the rows past 2k zero), P x 2k a slot.
     detail::aligned_doubles mring;
+    // process_n: F and |F| in columns of P rows; p_dc, E's generator column and skip_t, P each.
+    detail::aligned_doubles fpad, fapad, vpad;
+    detail::aligned_doubles mw;     // process_n: the warm start's M (combine_warm)
+    detail::aligned_doubles lanes;  // process_n: the JFETs' constants in lanes (dk_general.cpp, lane_consts)
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
     Eigen::VectorXd junction_vcrit, junction_small;  // per port row 2j, 2j + 1: JFET j's vcrit_v, and 0.01 n Vt
     Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M
@@ -107,11 +114,23 @@ class general_solver : public dk_solver_base {
   void block_pair(const double* in, double* out, std::size_t n) noexcept;
   void pair_m_of(int slot) noexcept;
   void pair_rest(int& evals, bool attempt_failed) noexcept;
+  // Three and four JFETs with AVX2 + FMA: the same layout in ceil(2k / 4) registers a column,
+  // M = (I - F Jf)^-1 formed in full by 2 x 2 pivot blocks (dk_general.cpp, process_n).
+  template <int K>
+  double process_n(double generator_v) noexcept;
+  template <int K>
+  void block_n(const double* in, double* out, std::size_t n) noexcept;
+  template <int K>
+  void wide_rest(int& evals, bool attempt_failed) noexcept;
+  void ring_m_of(int slot) noexcept;
+  template <int N>
+  void combine_warm(int n_rt) noexcept;
 
   // Warm start: weights of dv/dp at the last three samples (detail::warm_start_weights).
   std::array<double, 3> warm_{};
   bool wide_{false};  // the state update's AVX2 + FMA kernel (dk_general.cpp)
   bool pair_{false};  // two JFETs: process_pair (dk_general.cpp)
+  bool full_{false};  // three to six JFETs: process_n (dk_general.cpp)
   int torn_holdoff_{0};   // samples left to solve from the factors after a torn step fell back (dk_general.cpp)
   int torn_predict_{1};   // sweeps of the warm start's prediction from a torn point (dk_general.cpp)
   storage g_;

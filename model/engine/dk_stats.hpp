@@ -34,6 +34,10 @@ struct dk_options {
   /// contracts, else from the factors as above. false (or block_factors false): from the
   /// factors always.
   bool torn_solve{true};
+  /// Three and four JFETs on a processor with AVX2 + FMA (and block_factors): the sample loop
+  /// that keeps M = (I - F Jf)^-1 in full, as two JFETs have (model/engine/dk_general.cpp,
+  /// process_n), handing what it does not settle to the loop above. false: that loop.
+  bool full_inverse{true};
   /// The weight of that coupling in the acceptance bound: 1. Anything else makes the bound
   /// unsound; it exists so that a test can show the coupling is needed (0..1).
   double coupling_weight{1.0};

@@ -8,6 +8,7 @@
 #include <cmath>
 #include <numbers>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "base/error.hpp"
@@ -213,6 +214,32 @@ TEST_CASE("two cascaded stages: shooting converges and the tiny-drive gain is th
   }
 }
 
+// The tracked monodromy of `eng` over a period of a 1 kHz sine at `amp` (from three periods
+// in), against central differences of the period map over the states (h = 1e-6 V): the
+// largest difference of an entry, and the largest entry.
+std::pair<double, double> monodromy_against_differences(model::dk_engine& eng, double amp) {
+  const int ns = eng.states();
+  eng.reset();
+  for (int n = 0; n < 3 * 384; ++n) eng.process(sine(amp, 1000.0, n));
+  const Eigen::VectorXd x0 = eng.state();
+  Eigen::MatrixXd m = Eigen::MatrixXd::Identity(ns, ns);
+  for (int n = 0; n < 384; ++n) eng.process_tracked(sine(amp, 1000.0, n), m);
+  Eigen::MatrixXd fd(ns, ns);
+  const double h = 1e-6;
+  for (int c = 0; c < ns; ++c) {
+    Eigen::VectorXd end[2];
+    for (int side = 0; side < 2; ++side) {
+      Eigen::VectorXd x = x0;
+      x[c] += side == 0 ? h : -h;
+      eng.set_state(x);
+      for (int n = 0; n < 384; ++n) eng.process(sine(amp, 1000.0, n));
+      end[side] = eng.state();
+    }
+    fd.col(c) = (end[0] - end[1]) / (2.0 * h);
+  }
+  return {(m - fd).cwiseAbs().maxCoeff(), m.cwiseAbs().maxCoeff()};
+}
+
 TEST_CASE("two cascaded stages: the tracked monodromy equals finite differences of the period map") {
   // process_tracked multiplies A + C Jf (I - F Jf)^-1 D sample by sample (Aprille & Trick
   // 1972); central differences of the period map over the states are the oracle (common
@@ -221,32 +248,37 @@ TEST_CASE("two cascaded stages: the tracked monodromy equals finite differences 
   const model::network net = test::two_stage_network();
   const model::operating_point op = model::solve_operating_point(net);
   model::dk_engine eng(net, op, fs_hz);
-  const int ns = eng.states();
   for (double amp : {0.01, 2.0}) {
     CAPTURE(amp);
-    eng.reset();
-    for (int n = 0; n < 3 * 384; ++n) eng.process(sine(amp, 1000.0, n));
-    const Eigen::VectorXd x0 = eng.state();
-    Eigen::MatrixXd m = Eigen::MatrixXd::Identity(ns, ns);
-    for (int n = 0; n < 384; ++n) eng.process_tracked(sine(amp, 1000.0, n), m);
-    Eigen::MatrixXd fd(ns, ns);
-    const double h = 1e-6;
-    for (int c = 0; c < ns; ++c) {
-      Eigen::VectorXd end[2];
-      for (int side = 0; side < 2; ++side) {
-        Eigen::VectorXd x = x0;
-        x[c] += side == 0 ? h : -h;
-        eng.set_state(x);
-        for (int n = 0; n < 384; ++n) eng.process(sine(amp, 1000.0, n));
-        end[side] = eng.state();
-      }
-      fd.col(c) = (end[0] - end[1]) / (2.0 * h);
-    }
-    const double worst = (m - fd).cwiseAbs().maxCoeff();
+    const auto [worst, largest] = monodromy_against_differences(eng, amp);
     CAPTURE(worst);
     CHECK(worst <= 5e-4);
-    CHECK(m.cwiseAbs().maxCoeff() > 1.0);  // not a trivial map
+    CHECK(largest > 1.0);  // not a trivial map
     CHECK(eng.stats().failed == 0);
+  }
+}
+
+TEST_CASE("three and four cascaded stages: the tracked monodromy equals finite differences of the period map") {
+  // As above, on the chains that take the loop keeping (I - F Jf)^-1 in full (its M is
+  // what process_tracked multiplies by, dk_general.cpp process_n), with and without a
+  // DC-coupled follower, at rest and with gates conducting. Same oracle and tolerance.
+  for (const int k : {3, 4}) {
+    test::cascade_options o;
+    o.dc_follower = k == 4;
+    o.rail_filters = true;
+    const model::network net = test::cascade(k, o);
+    const model::operating_point op = model::solve_operating_point(net);
+    model::dk_engine eng(net, op, fs_hz);
+    if (model::detail::wide_kernels_available()) CHECK(std::string(eng.sample_loop()) == "AVX2+FMA, M in full");
+    for (double amp : {0.01, 2.0}) {
+      CAPTURE(k);
+      CAPTURE(amp);
+      const auto [worst, largest] = monodromy_against_differences(eng, amp);
+      CAPTURE(worst);
+      CHECK(worst <= 5e-4);
+      CHECK(largest > 1.0);  // not a trivial map
+      CHECK(eng.stats().failed == 0);
+    }
   }
 }
 

@@ -36,7 +36,10 @@ struct torn_against_full {
 // The torn engine (options `torn`) and the factored one side by side on `samples` samples
 // of a 1 kHz sine from the DC point; a third engine, torn in confirm mode, evaluates the
 // devices at every accepted point (dk_options::confirm).
+// Both in the loop that takes torn steps: not the one that keeps (I - F Jf)^-1 in full
+// (dk_options::full_inverse), which takes none of its own.
 torn_against_full run_pair(const model::network& net, double amp, int samples, model::dk_options torn = {}) {
+  torn.full_inverse = false;
   const model::operating_point op = model::solve_operating_point(net);
   model::dk_options full = torn;
   full.torn_solve = false;
