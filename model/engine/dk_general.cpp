@@ -86,13 +86,13 @@ constexpr double torn_coupling_share = 0.1;
 // Two JFETs: the Newton iterations process_pair makes itself before solve_general<2> takes
 // over (at 1 and 10 V on the bench's chain, 2.5 and 4.4 % of the samples needed a third).
 constexpr int pair_inline_iterations = 4;
-// Three and four JFETs: the same for process_n (callgrind, the bench's chains at 1 and 10 V:
+// Three to five JFETs: the same for process_n (callgrind, the bench's chains at 1 and 10 V:
 // 8 took 0.7-2 % fewer instructions a sample than 4).
 constexpr int wide_inline_iterations = 8;
-// The most JFETs process_n takes. At five and six its Gauss-Jordan inverse (O(k^3) a Newton
-// iteration) made the sample dearer than the torn loop's: callgrind at 1 V, 5,708 -> 6,118
-// and 7,037 -> 8,037 instructions (docs/engine-decisions.md).
-constexpr int full_max_devices = 4;
+// The most JFETs process_n takes. At six its Gauss-Jordan inverse (O(k^3) a Newton
+// iteration, three packets a column) makes the sample as dear as the torn loop's or dearer:
+// time against it 0.97 at 0.1 V and 1.06 at 1 V (docs/engine-decisions.md).
+constexpr int full_max_devices = 5;
 
 // The rows of the JFETs' constants in lanes, four JFETs a row (process_n, below).
 struct lane_consts {
@@ -1009,8 +1009,13 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     g.fpad = detail::aligned_doubles(static_cast<std::size_t>(padded * ni));
     g.mw = detail::aligned_doubles(static_cast<std::size_t>(padded * np));
     g.fapad = detail::aligned_doubles(static_cast<std::size_t>(padded * ni));
-    g.vpad = detail::aligned_doubles(static_cast<std::size_t>(3 * padded));
-    std::fill_n(g.vpad.data(), 3 * padded, 0.0);
+    g.vpad = detail::aligned_doubles(static_cast<std::size_t>(6 * padded));
+    std::fill_n(g.vpad.data(), 6 * padded, 0.0);
+    // W's q rows (the next sample's port prediction) of the current columns, P rows a column.
+    g.wq = detail::aligned_doubles(static_cast<std::size_t>(padded * ni));
+    for (int c = 0; c < ni; ++c)
+      for (int r = 0; r < padded; ++r)
+        g.wq.data()[c * padded + r] = r < np ? g.w.data()[static_cast<std::ptrdiff_t>(ns + 2 + c) * g.rows + ns + r] : 0.0;
     for (int c = 0; c < ni; ++c)
       for (int r = 0; r < padded; ++r) {
         g.fpad.data()[c * padded + r] = r < np ? m_.f(r, c) : 0.0;
@@ -1143,8 +1148,13 @@ void general_solver::reset() {
     for (int slot = 0; slot < 4; ++slot) pair_m_of(slot);
   if (full_) {
     for (int slot = 0; slot < 4; ++slot) ring_m_of(slot);
-    const int np = 2 * m_.devices;
-    combine_warm<0>((np + 3) / 4 * 4 * np);
+    const int np = 2 * m_.devices, padded = (np + 3) / 4 * 4;
+    combine_warm<0>(padded * np);
+    for (int r = 0; r < np; ++r) {
+      g.vpad.data()[3 * padded + r] = g.last().v[r];
+      g.vpad.data()[4 * padded + r] = g.p_dc[r];
+      g.vpad.data()[5 * padded + r] = 0.0;  // q
+    }
   }
   torn_holdoff_ = 0;
   g.p_last = g.p_dc;
@@ -1177,6 +1187,28 @@ void general_solver::pair_m_of(int slot) noexcept {
   if (pt.blocked && !pt.torn) return pair_inverse(pt.lu.data(), g_.mring.data() + 16 * slot);
   inverse_of(pt.lu, pt.piv, pt.blocked, g_.mi);
   std::copy_n(g_.mi.data(), 16, g_.mring.data() + 16 * slot);
+}
+
+// M = (I - F Jf)^-1 into `mt` (columns of `rows` rows) from I - F Jf factored with partial
+// pivoting (process_n, where its 2 x 2 pivot blocks do not serve), Jf from the JFETs'
+// derivatives as rows of lanes (ggs, ggd, gm, gds; `stride` apart). False: singular.
+bool general_solver::pivoted_m(double* mt, const double* derivatives, int stride) noexcept {
+  storage& g = g_;
+  const int k = m_.devices, np = 2 * k, rows = (np + 3) / 4 * 4;
+  ++stats_.pivoted;
+  for (int j = 0; j < k; ++j) {
+    detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
+    c.ggs_s = derivatives[j];
+    c.ggd_s = derivatives[stride + j];
+    c.gm_s = derivatives[2 * stride + j];
+    c.gds_s = derivatives[3 * stride + j];
+  }
+  one_minus_f_jf(m_.f, g.cur, g.track_lu);
+  if (!(lu_factor(g.track_lu.data(), np, g.track_piv.data()) > 1e-200)) return false;
+  inverse_of(g.track_lu, g.track_piv, false, g.mi);
+  for (int c = 0; c < np; ++c)
+    for (int r = 0; r < rows; ++r) mt[c * rows + r] = r < np ? g.mi(r, c) : 0.0;
+  return true;
 }
 
 // process_n's warm-start matrix: the weights warm_ on M of the last three ring points, summed
@@ -1216,6 +1248,10 @@ void general_solver::ring_m_of(int slot) noexcept {
 void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
   in_.head(m_.states) = x - x_dc_;
   g_.q.noalias() = m_.d * in_.head(m_.states);
+  if (full_) {
+    const int np = 2 * m_.devices, padded = (np + 3) / 4 * 4;
+    std::copy_n(g_.q.data(), np, g_.vpad.data() + 5 * padded);
+  }
 }
 
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
@@ -2168,7 +2204,7 @@ __attribute__((PINCHOFF_DK_FLATTEN target("avx2,fma"))) void general_solver::blo
   for (std::size_t k = 0; k < n; ++k) out[k] = process_pair(in[k]);
 }
 
-// Three and four JFETs (full_max_devices), the two-JFET loop's layout widened (process_n): the 2k port voltages,
+// Three to five JFETs (full_max_devices), the two-JFET loop's layout widened (process_n): the 2k port voltages,
 // the residual, the step and each column of F, |F| and M = (I - F Jf)^-1 in R = ceil(2k / 4)
 // AVX2 registers, the rows past 2k zero; M formed in full each Newton iteration by
 // Gauss-Jordan elimination in 2 x 2 pivot blocks, one per JFET, in place in the ring slot
@@ -2189,6 +2225,17 @@ __attribute__((target("avx2,fma"), always_inline)) inline __m256i rows_mask(int 
   const long long a = 4 * r < NP ? -1 : 0, b = 4 * r + 1 < NP ? -1 : 0, c = 4 * r + 2 < NP ? -1 : 0,
                   d = 4 * r + 3 < NP ? -1 : 0;
   return _mm256_setr_epi64x(a, b, c, d);
+}
+// Packet r of the unit column e_row.
+__attribute__((target("avx2,fma"), always_inline)) inline __m256d unit_packet(int row, int r) noexcept {
+  const int l = row - 4 * r;
+  return _mm256_setr_pd(l == 0 ? 1.0 : 0.0, l == 1 ? 1.0 : 0.0, l == 2 ? 1.0 : 0.0, l == 3 ? 1.0 : 0.0);
+}
+// Packet r of the column with x0, x1 in rows s, s + 1 and 0 elsewhere.
+__attribute__((target("avx2,fma"), always_inline)) inline __m256d pivot_packet(int s, int r, double x0, double x1) noexcept {
+  const int l = s - 4 * r;
+  return _mm256_setr_pd(l == 0 ? x0 : l == -1 ? x1 : 0.0, l == 1 ? x0 : l == 0 ? x1 : 0.0, l == 2 ? x0 : l == 1 ? x1 : 0.0,
+                        l == 3 ? x0 : l == 2 ? x1 : 0.0);
 }
 template <int NP>
 __attribute__((target("avx2,fma"), always_inline)) inline __m256d load_rows(const double* x, int r) noexcept {
@@ -2221,13 +2268,13 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool gauss_jordan_bloc
     double* cs1 = a + (s + 1) * P;
     double pi[4];
     if (!invert_2x2(cs0[s], cs0[s + 1], cs1[s], cs1[s + 1], pi)) return false;
-    cs0[s] -= 1.0;
-    cs1[s + 1] -= 1.0;
+    // (Every write below a whole packet: a packet loaded after a scalar store into it
+    // waits for the store instead of taking it forwarded, on the step's chain.)
     __m256d g0[R], g1[R];
     #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) {
-      g0[r] = _mm256_load_pd(cs0 + 4 * r);
-      g1[r] = _mm256_load_pd(cs1 + 4 * r);
+      g0[r] = _mm256_sub_pd(_mm256_load_pd(cs0 + 4 * r), unit_packet(s, r));
+      g1[r] = _mm256_sub_pd(_mm256_load_pd(cs1 + 4 * r), unit_packet(s + 1, r));
     }
     #pragma GCC unroll 16
     for (int c = 0; c < NP; ++c) {
@@ -2246,19 +2293,18 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool gauss_jordan_bloc
     for (int r = 0; r < R; ++r) {
       const __m256d n0 = _mm256_fmadd_pd(g1[r], p1, _mm256_mul_pd(g0[r], p0));
       const __m256d n1 = _mm256_fmadd_pd(g1[r], p3, _mm256_mul_pd(g0[r], p2));
-      _mm256_store_pd(cs0 + 4 * r, _mm256_sub_pd(_mm256_setzero_pd(), n0));
-      _mm256_store_pd(cs1 + 4 * r, _mm256_sub_pd(_mm256_setzero_pd(), n1));
-      // The multipliers: every row but the pivot rows (there G Pi is Pi - I).
+      // The multipliers: every row but the pivot rows (there G Pi is Pi - I; they take
+      // Pi itself).
       const long long l = 4 * r;
       const __m256d keep = _mm256_castsi256_pd(_mm256_setr_epi64x(
           l == s || l == s + 1 ? 0 : -1, l + 1 == s || l + 1 == s + 1 ? 0 : -1, l + 2 == s || l + 2 == s + 1 ? 0 : -1,
           l + 3 == s || l + 3 == s + 1 ? 0 : -1));
+      _mm256_store_pd(cs0 + 4 * r,
+                      _mm256_blendv_pd(pivot_packet(s, r, pi[0], pi[1]), _mm256_sub_pd(_mm256_setzero_pd(), n0), keep));
+      _mm256_store_pd(cs1 + 4 * r,
+                      _mm256_blendv_pd(pivot_packet(s, r, pi[2], pi[3]), _mm256_sub_pd(_mm256_setzero_pd(), n1), keep));
       grow = _mm256_max_pd(_mm256_and_pd(keep, _mm256_max_pd(abs4(n0), abs4(n1))), grow);
     }
-    cs0[s] = pi[0];
-    cs0[s + 1] = pi[1];
-    cs1[s] = pi[2];
-    cs1[s + 1] = pi[3];
     // (max_pd returns its second operand where one is NaN: a NaN multiplier is not caught
     // here, and the step or the bound it makes is not finite, which the loop tests.)
     if (!(hmax_abs(grow) <= 1e4)) return false;
@@ -2564,12 +2610,12 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   update_wide(g.w.data(), rows, nullptr, x_in, ns + 2, g.pre.data());
   const double* f = g.fpad.data();
   const double* fa = g.fapad.data();
-  const double* pads = g.vpad.data();  // p_dc, e1, skip_t: P each
+  double* pads = g.vpad.data();  // p_dc, e1, skip_t, the last point's v and p: P each
   __m256d p[R];
 #pragma GCC unroll 16
   for (int r = 0; r < R; ++r)
     p[r] = _mm256_fmadd_pd(_mm256_load_pd(pads + P + 4 * r), _mm256_set1_pd(ug),
-                           _mm256_add_pd(_mm256_load_pd(pads + 4 * r), load_rows<NP>(g.q.data(), r)));
+                           _mm256_add_pd(_mm256_load_pd(pads + 4 * r), _mm256_load_pd(pads + 5 * P + 4 * r)));
 
   // Warm start (as process_k): the last solution moved along the step of p by M at the
   // last three points, Adams-Bashforth weights, combined into one matrix at the end of the
@@ -2580,8 +2626,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     alignas(32) double dp[P];
 #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) {
-      _mm256_store_pd(dp + 4 * r, _mm256_sub_pd(p[r], load_rows<NP>(g.p_last.data(), r)));
-      v[r] = load_rows<NP>(g.last().v.data(), r);
+      _mm256_store_pd(dp + 4 * r, _mm256_sub_pd(p[r], _mm256_load_pd(pads + 4 * P + 4 * r)));
+      v[r] = _mm256_load_pd(pads + 3 * P + 4 * r);
     }
     add_product<K, false>(g.mw.data(), dp, v);
   }
@@ -2593,8 +2639,10 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   const detail::device_consts* dev = g.dev.data();
   int evals = 0;
   bool accepted = false;
-  double rn_base = 0.0;
-  __m256d base[R], step[R], restart[R];
+  double rn_base = std::numeric_limits<double>::infinity();
+  bool may_damp = false;
+  int halvings = 0;
+  __m256d base[R], step[R], restart[R], vacc[R];  // vacc: the accepted point
 #pragma GCC unroll 16
   for (int r = 0; r < R; ++r) {
     base[r] = v[r];
@@ -2653,16 +2701,21 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
 #pragma GCC unroll 16
     for (int r = 1; r < R; ++r) rmax = _mm256_max_pd(rmax, abs4(res[r]));
     const double rn = hmax_abs(rmax);
-    // The second iteration's damping test (detail::halve_step): a step to halve goes to
-    // solve_general.
-    if (!std::isfinite(rn) || (it > 0 && detail::halve_step(true, rn, rn_base, tol, 0))) {
-      if (it > 0)
+    // Damped Newton, as solve_general: a step that made the residual grow (or not finite)
+    // is halved, from where it began.
+    if (detail::halve_step(may_damp, rn, rn_base, tol, halvings)) [[unlikely]] {
 #pragma GCC unroll 16
-        for (int r = 0; r < R; ++r) restart[r] = _mm256_fmadd_pd(_mm256_set1_pd(0.5), step[r], base[r]);
-      break;
+      for (int r = 0; r < R; ++r) {
+        step[r] = _mm256_mul_pd(_mm256_set1_pd(0.5), step[r]);
+        v[r] = _mm256_add_pd(base[r], step[r]);
+        restart[r] = v[r];
+      }
+      ++halvings;
+      continue;
     }
-#pragma GCC unroll 16
-    for (int r = 0; r < R; ++r) restart[r] = v[r];
+    // Not finite where it may not damp: solve_general from this point (it fails there too,
+    // and the sub-steps take the sample).
+    if (!std::isfinite(rn)) break;
 
     // I - F Jf by column pairs into the ring slot, then M in place.
 #pragma GCC unroll 16
@@ -2676,13 +2729,14 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
                       f2 = _mm256_load_pd(fj + 2 * P + 4 * r);
         const __m256d j0 = _mm256_fmadd_pd(f2, gm, _mm256_fmadd_pd(f1, gd, _mm256_mul_pd(f0, gs)));
         const __m256d j1 = _mm256_fnmadd_pd(f1, gd, _mm256_mul_pd(f2, gds));
-        _mm256_store_pd(mt + 2 * j * P + 4 * r, _mm256_sub_pd(_mm256_setzero_pd(), j0));
-        _mm256_store_pd(mt + (2 * j + 1) * P + 4 * r, _mm256_sub_pd(_mm256_setzero_pd(), j1));
+        _mm256_store_pd(mt + 2 * j * P + 4 * r, _mm256_sub_pd(unit_packet(2 * j, r), j0));
+        _mm256_store_pd(mt + (2 * j + 1) * P + 4 * r, _mm256_sub_pd(unit_packet(2 * j + 1, r), j1));
       }
-      mt[2 * j * P + 2 * j] += 1.0;
-      mt[(2 * j + 1) * P + 2 * j + 1] += 1.0;
     }
-    if (!gauss_jordan_blocks<K>(mt)) break;
+    // A pivot block not safely invertible alone, or a multiplier above 1e4: M from I - F Jf
+    // factored with partial pivoting, as solve_general would (stats: pivoted).
+    if (!gauss_jordan_blocks<K>(mt) && !pivoted_m(mt, &cur[3][0], 4 * L)) [[unlikely]]
+      break;
     alignas(32) double rv[P];
 #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) _mm256_store_pd(rv + 4 * r, res[r]);
@@ -2699,7 +2753,9 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       for (int q = 0; q < NP; ++q) sum += dd[q];
       if (!std::isfinite(sum)) break;
     }
-    // The step's lanes; a junction landing above vcrit may need limiting: solve_general.
+    // The step's lanes; a junction landing above vcrit is limited as in solve_general
+    // (Nagel's pnjlim through detail::junction_step_scale), and a limited step is taken
+    // without the acceptance, and not damped after.
     __m256d dgs[L], dds[L];
     int limit = 0, large = 0;
 #pragma GCC unroll 4
@@ -2715,11 +2771,25 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       large |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(abs4(dgs[l]), lim, _CMP_NLE_UQ),
                                                _mm256_cmp_pd(abs4(dgd), lim, _CMP_NLE_UQ)));
     }
-    if (limit != 0) break;
+    bool limited = false;
+    if (limit != 0) [[unlikely]] {
+      double alpha = 1.0;
+#pragma GCC unroll 16
+      for (int j = 0; j < K; ++j) {
+        const double gs_new = vv[2 * j] + dd[2 * j], gd_new = (vv[2 * j] - vv[2 * j + 1]) + dd[2 * j] - dd[2 * j + 1];
+        if (gs_new > dev[j].vcrit_v || gd_new > dev[j].vcrit_v)
+          alpha = std::min(alpha, detail::junction_step_scale(dev[j], vv[2 * j], vv[2 * j + 1], dd[2 * j], dd[2 * j + 1]));
+      }
+      if (alpha < 1.0) {
+        limited = true;
+#pragma GCC unroll 16
+        for (int r = 0; r < R; ++r) d[r] = _mm256_mul_pd(_mm256_set1_pd(alpha), d[r]);
+      }
+    }
     __m256d vn[R];
 #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) vn[r] = _mm256_add_pd(v[r], d[r]);
-    if (large == 0) {
+    if (large == 0 && !limited) {
       alignas(32) double vnv[P];
 #pragma GCC unroll 16
       for (int r = 0; r < R; ++r) _mm256_store_pd(vnv + 4 * r, vn[r]);
@@ -2818,7 +2888,10 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
             ++stats_.bound_misses;
           } else {
 #pragma GCC unroll 16
-            for (int r = 0; r < R; ++r) store_rows<NP>(trial.v.data(), r, vn[r]);
+            for (int r = 0; r < R; ++r) {
+              store_rows<NP>(trial.v.data(), r, vn[r]);
+              vacc[r] = vn[r];
+            }
 #pragma GCC unroll 16
             for (int j = 0; j < K; ++j) {
               trial.i[3 * j] = kc[j].igs_a;
@@ -2842,11 +2915,16 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
                               pair_out{trial.v.data(), trial.i.data()})) [[unlikely]] {
 #pragma GCC unroll 16
             for (int j = 0; j < K; ++j) put_block_of(trial.jf, j, cur[3][j], cur[4][j], cur[5][j], cur[6][j]);
+#pragma GCC unroll 16
+            for (int r = 0; r < R; ++r) vacc[r] = load_rows<NP>(trial.v.data(), r);
             accepted = true;
             break;
           }
 #pragma GCC unroll 16
-          for (int r = 0; r < R; ++r) store_rows<NP>(trial.v.data(), r, vn[r]);
+          for (int r = 0; r < R; ++r) {
+            store_rows<NP>(trial.v.data(), r, vn[r]);
+            vacc[r] = vn[r];
+          }
           double* i = trial.i.data();
 #pragma GCC unroll 16
           for (int j = 0; j < K; ++j) {
@@ -2861,6 +2939,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       }
     }
     rn_base = rn;
+    may_damp = !limited;
+    halvings = 0;
 #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) {
       base[r] = v[r];
@@ -2886,11 +2966,19 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     }
     // All of max_iterations made here: the attempt has failed, as solve_general's would.
     wide_rest<K>(evals, it == opt_.max_iterations);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) vacc[r] = load_rows<NP>(trial.v.data(), r);
   }
 
   g.head = slot;
 #pragma GCC unroll 16
-  for (int r = 0; r < R; ++r) store_rows<NP>(g.p_last.data(), r, p[r]);
+  for (int r = 0; r < R; ++r) {
+    store_rows<NP>(g.p_last.data(), r, p[r]);
+    // The next sample's warm start reads these whole packets (a masked store is not
+    // forwarded to a load).
+    _mm256_store_pd(pads + 3 * P + 4 * r, vacc[r]);
+    _mm256_store_pd(pads + 4 * P + 4 * r, p[r]);
+  }
   combine_warm<P * NP>(P * NP);
 
   // The current columns of W times i - i_dc, onto the pre-computed part.
@@ -2899,11 +2987,40 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     const double* __restrict il = g.last().i.data();
 #pragma GCC unroll 16
     for (int q = 0; q < NI; ++q) x_in[ns + 2 + q] = il[q] - i_dc[q];
+    // The next sample's q (D x, its p less the DC and generator parts) first, on its own:
+    // the next sample waits for it, not for the states (their rows of the product below
+    // feed only the next sample's `pre`, done beside its Newton). Three sums, whole
+    // packets into `pads` for the next sample's loads.
+    {
+      const double* wq = g.wq.data();
+      __m256d q0[R], q1[R], q2[R];
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) {
+        q0[r] = load_rows<NP>(g.pre.data() + ns, r);
+        q1[r] = q2[r] = _mm256_setzero_pd();
+      }
+#pragma GCC unroll 16
+      for (int j = 0; j < K; ++j) {
+        const __m256d x0 = _mm256_broadcast_sd(x_in + ns + 2 + 3 * j), x1 = _mm256_broadcast_sd(x_in + ns + 3 + 3 * j),
+                      x2 = _mm256_broadcast_sd(x_in + ns + 4 + 3 * j);
+#pragma GCC unroll 16
+        for (int r = 0; r < R; ++r) {
+          q0[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + 3 * j * P + 4 * r), x0, q0[r]);
+          q1[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + (3 * j + 1) * P + 4 * r), x1, q1[r]);
+          q2[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + (3 * j + 2) * P + 4 * r), x2, q2[r]);
+        }
+      }
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) {
+        const __m256d qr = _mm256_add_pd(q0[r], _mm256_add_pd(q1[r], q2[r]));
+        _mm256_store_pd(pads + 5 * P + 4 * r, qr);
+        store_rows<NP>(g.q.data(), r, qr);
+      }
+    }
     update_wide(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2, NI,
                 g.out.data());
     const double* __restrict o = g.out.data();
     vec_add_scaled(x_in, x_in, o, ns, 1.0);
-    std::copy_n(o + ns, NP, g.q.data());
   }
   ++stats_.samples;
   stats_.evaluations += evals;
@@ -2925,6 +3042,7 @@ void general_solver::process(const double* in, double* out, std::size_t n) noexc
     switch (m_.devices) {
       case 3: return block_n<3>(in, out, n);
       case 4: return block_n<4>(in, out, n);
+      case 5: return block_n<5>(in, out, n);
       default: break;
     }
   }

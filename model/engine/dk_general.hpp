@@ -80,12 +80,14 @@ class general_solver : public dk_solver_base {
     Eigen::VectorXd mdl;                        // the warm start's products
     // Two JFETs (process_pair): dv/dp = (I - F Jf)^-1 of each ring point in full, 4 x 4
     // column-major, 16 doubles a slot in the ring's order.
-    // Three and four JFETs (process_n): the same in columns of P rows (2k rounded up to a
+    // Three to five JFETs (process_n): the same in columns of P rows (2k rounded up to a
     // multiple of 4, the rows past 2k zero), P x 2k a slot.
     detail::aligned_doubles mring;
-    // process_n: F and |F| in columns of P rows; p_dc, E's generator column and skip_t, P each.
+    // process_n: F and |F| in columns of P rows; p_dc, E's generator column, skip_t, the last
+    // accepted point's v and its p, and q, P each.
     detail::aligned_doubles fpad, fapad, vpad;
     detail::aligned_doubles mw;     // process_n: the warm start's M (combine_warm)
+    detail::aligned_doubles wq;     // process_n: W's q rows of the current columns, P rows a column
     detail::aligned_doubles lanes;  // process_n: the JFETs' constants in lanes (dk_general.cpp, lane_consts)
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
     Eigen::VectorXd junction_vcrit, junction_small;  // per port row 2j, 2j + 1: JFET j's vcrit_v, and 0.01 n Vt
@@ -114,7 +116,7 @@ class general_solver : public dk_solver_base {
   void block_pair(const double* in, double* out, std::size_t n) noexcept;
   void pair_m_of(int slot) noexcept;
   void pair_rest(int& evals, bool attempt_failed) noexcept;
-  // Three and four JFETs with AVX2 + FMA: the same layout in ceil(2k / 4) registers a column,
+  // Three to five JFETs with AVX2 + FMA: the same layout in ceil(2k / 4) registers a column,
   // M = (I - F Jf)^-1 formed in full by 2 x 2 pivot blocks (dk_general.cpp, process_n).
   template <int K>
   double process_n(double generator_v) noexcept;
@@ -123,6 +125,7 @@ class general_solver : public dk_solver_base {
   template <int K>
   void wide_rest(int& evals, bool attempt_failed) noexcept;
   void ring_m_of(int slot) noexcept;
+  __attribute__((noinline)) bool pivoted_m(double* mt, const double* derivatives, int stride) noexcept;
   template <int N>
   void combine_warm(int n_rt) noexcept;
 

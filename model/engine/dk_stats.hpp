@@ -34,7 +34,7 @@ struct dk_options {
   /// contracts, else from the factors as above. false (or block_factors false): from the
   /// factors always.
   bool torn_solve{true};
-  /// Three and four JFETs on a processor with AVX2 + FMA (and block_factors): the sample loop
+  /// Three to five JFETs on a processor with AVX2 + FMA (and block_factors): the sample loop
   /// that keeps M = (I - F Jf)^-1 in full, as two JFETs have (model/engine/dk_general.cpp,
   /// process_n), handing what it does not settle to the loop above. false: that loop.
   bool full_inverse{true};
