@@ -250,7 +250,8 @@ TEST_CASE("two cascaded stages: the tracked monodromy equals finite differences 
   model::dk_engine eng(net, op, fs_hz);
   for (double amp : {0.01, 2.0}) {
     CAPTURE(amp);
-    const auto [worst, largest] = monodromy_against_differences(eng, amp);
+    const std::pair<double, double> diff = monodromy_against_differences(eng, amp);
+    const double worst = diff.first, largest = diff.second;  // (not a structured binding: CAPTURE takes it in a lambda)
     CAPTURE(worst);
     CHECK(worst <= 5e-4);
     CHECK(largest > 1.0);  // not a trivial map
@@ -273,7 +274,8 @@ TEST_CASE("three and four cascaded stages: the tracked monodromy equals finite d
     for (double amp : {0.01, 2.0}) {
       CAPTURE(k);
       CAPTURE(amp);
-      const auto [worst, largest] = monodromy_against_differences(eng, amp);
+      const std::pair<double, double> diff = monodromy_against_differences(eng, amp);
+      const double worst = diff.first, largest = diff.second;
       CAPTURE(worst);
       CHECK(worst <= 5e-4);
       CHECK(largest > 1.0);  // not a trivial map
