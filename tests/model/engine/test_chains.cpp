@@ -270,19 +270,21 @@ TEST_CASE("chains of two to seven stages: Newton steps factored by 2 x 2 blocks 
   }
 }
 
-TEST_CASE("two stages, three Newton iterations an attempt: the samples that need more are sub-stepped and still follow the reference") {
-  // With max_iterations = 3 the two-JFET loop's own iterations are the whole attempt: a
-  // sample they do not settle goes straight to the sub-steps (detail::substep), whose last
-  // part solves the sample's own equations, so the output is still the reference's to the
-  // engine's 1e-9 V.
+TEST_CASE("two and three stages, three Newton iterations an attempt: the samples that need more are sub-stepped and still follow the reference") {
+  // With max_iterations = 3 the two-JFET loop's own iterations (and the three-JFET loop's,
+  // process_n) are the whole attempt: a sample they do not settle goes straight to the
+  // sub-steps (detail::substep), whose last part solves the sample's own equations, so the
+  // output is still the reference's to the engine's 1e-9 V.
   model::dk_options few;
   few.max_iterations = 3;
+  for (const int k : {2, 3})
   for (const bool dc : {false, true}) {
     test::cascade_options o;
     o.dc_follower = dc;
     o.rail_filters = true;
-    const model::network net = test::cascade(2, o);
+    const model::network net = test::cascade(k, o);
     const model::operating_point op = model::solve_operating_point(net);
+    CAPTURE(k);
     CAPTURE(dc);
     model::dk_engine eng(net, op, fs_hz, few);
     for (int n = 0; n < 1600; ++n) eng.process(20.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / fs_hz));
