@@ -2204,15 +2204,16 @@ __attribute__((PINCHOFF_DK_FLATTEN target("avx2,fma"))) void general_solver::blo
   for (std::size_t k = 0; k < n; ++k) out[k] = process_pair(in[k]);
 }
 
-// Three to five JFETs (full_max_devices), the two-JFET loop's layout widened (process_n): the 2k port voltages,
-// the residual, the step and each column of F, |F| and M = (I - F Jf)^-1 in R = ceil(2k / 4)
-// AVX2 registers, the rows past 2k zero; M formed in full each Newton iteration by
-// Gauss-Jordan elimination in 2 x 2 pivot blocks, one per JFET, in place in the ring slot
-// the warm start reads (gauss_jordan_blocks). The same Newton, acceptance (the bound |M| t
-// itself), correction and warm start as solve_general; a junction step to limit, a step to
-// damp, a pivot block not safely invertible or a multiplier above 1e4, or more than
-// wide_inline_iterations iterations go to solve_general<K> from where they stopped
-// (wide_rest).
+// Three to five JFETs (full_max_devices), the two-JFET loop's layout widened (process_n):
+// the 2k port voltages, the residual, the step and each column of F, |F| and
+// M = (I - F Jf)^-1 in R = ceil(2k / 4) AVX2 registers, the rows past 2k zero; M formed in
+// full each Newton iteration by Gauss-Jordan elimination in 2 x 2 pivot blocks, one per
+// JFET, in place in the ring slot the warm start reads (gauss_jordan_blocks), or from
+// pivoted factors where a pivot block is not safely invertible or a multiplier grows above
+// 1e4 (pivoted_m). The same damped Newton, junction limiting, acceptance (the bound |M| t
+// itself), correction and warm start as solve_general; what is not settled in
+// wide_inline_iterations iterations, or not finite where the step may not be halved, goes
+// to solve_general<K> from where it stopped (wide_rest).
 namespace {
 template <int K>
 struct wide_dims {

@@ -7,8 +7,11 @@
 // junction limiting, sub-stepping and DC start as the one-JFET solver (model/engine/
 // dk_acceptance.hpp, dk_steps.hpp). Two JFETs on a processor with AVX2 + FMA take a sample
 // loop of their own (process_pair: the four port voltages in one register, dv/dp kept in
-// full), which hands what it does not settle in four Newton iterations to the general one.
-// It meets the dk_solver interface (dk_solver.hpp) and
+// full), which hands what it does not settle in four Newton iterations to the general one;
+// three to five JFETs the same layout widened (process_n: dv/dp formed in full by
+// Gauss-Jordan elimination, the JFETs four to a register), whose own Newton hands over only
+// after eight iterations; so only six JFETs (and every count in the portable loop) take
+// torn steps. It meets the dk_solver interface (dk_solver.hpp) and
 // nothing else of the engine depends on its inside, so it can be replaced by any solver
 // that meets that interface. Every size is fixed when it is built: a sample allocates
 // nothing.
