@@ -285,17 +285,6 @@ constexpr int currents_of(int k) noexcept { return k > 0 ? 3 * k : Eigen::Dynami
 constexpr int lu_size_of(int k) noexcept { return k > 0 ? 2 * k : 0; }
 
 // JFET j's 3x2 block of the block-diagonal Jf: rows igs, igd, id; columns vgs, vds.
-void put_block(Eigen::MatrixXd& jf, int j, const detail::port_currents& c) noexcept {
-  const Eigen::Index r = 3 * j, k = 2 * j;
-  jf(r, k) = c.ggs_s;
-  jf(r, k + 1) = 0.0;
-  jf(r + 1, k) = c.ggd_s;
-  jf(r + 1, k + 1) = -c.ggd_s;
-  jf(r + 2, k) = c.gm_s;
-  jf(r + 2, k + 1) = c.gds_s;
-}
-
-// The same from the four derivatives.
 void put_block_of(Eigen::MatrixXd& jf, int j, double ggs, double ggd, double gm, double gds) noexcept {
   const Eigen::Index r = 3 * j, k = 2 * j;
   jf(r, k) = ggs;
@@ -305,6 +294,10 @@ void put_block_of(Eigen::MatrixXd& jf, int j, double ggs, double ggd, double gm,
   jf(r + 2, k) = gm;
   jf(r + 2, k + 1) = gds;
 }
+void put_block(Eigen::MatrixXd& jf, int j, const detail::port_currents& c) noexcept {
+  put_block_of(jf, j, c.ggs_s, c.ggd_s, c.gm_s, c.gds_s);
+}
+
 
 // I - F Jf from the per-JFET derivatives, column pair by column pair (Jf is block diagonal,
 // so each column of F Jf combines three columns of F).
@@ -1006,6 +999,9 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     const std::size_t ring = std::max<std::size_t>(64, static_cast<std::size_t>(4 * padded * np));
     g.mring = detail::aligned_doubles(ring);
     std::fill_n(g.mring.data(), ring, 0.0);
+  }
+  if (full_) {
+    const int padded = (np + 3) / 4 * 4;
     g.fpad = detail::aligned_doubles(static_cast<std::size_t>(padded * ni));
     g.mw = detail::aligned_doubles(static_cast<std::size_t>(padded * np));
     g.fapad = detail::aligned_doubles(static_cast<std::size_t>(padded * ni));
@@ -1083,7 +1079,7 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
     torn_predict_ = rho < 1e-2 ? 1 : 2;
   }
   g.p_dc = m_.d * q + m_.e * u;
-  {
+  if (full_) {
     const int padded = (np + 3) / 4 * 4;
     for (int r = 0; r < np; ++r) {
       g.vpad.data()[r] = g.p_dc[r];
@@ -1093,7 +1089,7 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   }
   // process_n's devices in lanes (dk_general.cpp, lane_consts): four a row, the lanes past
   // k a JFET that conducts nothing and whose junctions are always taken as -is.
-  {
+  if (full_) {
     constexpr int count = lane_consts::count;
     const int rows = (k + 3) / 4;
     g.lanes = detail::aligned_doubles(static_cast<std::size_t>(4 * count * rows));
@@ -1189,6 +1185,14 @@ void general_solver::pair_m_of(int slot) noexcept {
   std::copy_n(g_.mi.data(), 16, g_.mring.data() + 16 * slot);
 }
 
+// The square matrix m into `out` column by column, `rows` rows a column (m's rows, then
+// zeros): process_n's layout of M.
+static void padded_columns(const Eigen::MatrixXd& m, int rows, double* out) noexcept {
+  const int n = static_cast<int>(m.rows());
+  for (int c = 0; c < n; ++c)
+    for (int r = 0; r < rows; ++r) out[c * rows + r] = r < n ? m(r, c) : 0.0;
+}
+
 // M = (I - F Jf)^-1 into `mt` (columns of `rows` rows) from I - F Jf factored with partial
 // pivoting (process_n, where its 2 x 2 pivot blocks do not serve), Jf from the JFETs'
 // derivatives as rows of lanes (ggs, ggd, gm, gds; `stride` apart). False: singular.
@@ -1196,6 +1200,7 @@ bool general_solver::pivoted_m(double* mt, const double* derivatives, int stride
   storage& g = g_;
   const int k = m_.devices, np = 2 * k, rows = (np + 3) / 4 * 4;
   ++stats_.pivoted;
+  // (g.cur and track_lu are scratch here, as in solve_general and track().)
   for (int j = 0; j < k; ++j) {
     detail::port_currents& c = g.cur[static_cast<std::size_t>(j)];
     c.ggs_s = derivatives[j];
@@ -1206,8 +1211,7 @@ bool general_solver::pivoted_m(double* mt, const double* derivatives, int stride
   one_minus_f_jf(m_.f, g.cur, g.track_lu);
   if (!(lu_factor(g.track_lu.data(), np, g.track_piv.data()) > 1e-200)) return false;
   inverse_of(g.track_lu, g.track_piv, false, g.mi);
-  for (int c = 0; c < np; ++c)
-    for (int r = 0; r < rows; ++r) mt[c * rows + r] = r < np ? g.mi(r, c) : 0.0;
+  padded_columns(g.mi, rows, mt);
   return true;
 }
 
@@ -1226,7 +1230,7 @@ __attribute__((always_inline)) inline void general_solver::combine_warm(int n_rt
 }
 
 // M of ring point `slot` in full, from its factors, into the ring in columns of P rows
-// (three to six JFETs: process_n).
+// (three to five JFETs: process_n).
 void general_solver::ring_m_of(int slot) noexcept {
   port_set& pt = g_.ring[slot];
   ensure_factors(pt);
@@ -1240,9 +1244,7 @@ void general_solver::ring_m_of(int slot) noexcept {
   } else {
     inverse_of(pt.lu, pt.piv, pt.blocked, g_.mi);
   }
-  double* m = g_.mring.data() + static_cast<std::ptrdiff_t>(rows) * np * slot;
-  for (int c = 0; c < np; ++c)
-    for (int r = 0; r < rows; ++r) m[c * rows + r] = r < np ? g_.mi(r, c) : 0.0;
+  padded_columns(g_.mi, rows, g_.mring.data() + static_cast<std::ptrdiff_t>(rows) * np * slot);
 }
 
 void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
@@ -1268,7 +1270,7 @@ void general_solver::track(Eigen::MatrixXd& sensitivity) {
     // unfactored).
     g_.mi = Eigen::Map<const Eigen::Matrix4d>(g_.mring.data() + 16 * g_.head);
   } else if (full_) {
-    // So does the loop for three to six JFETs, in columns padded to a multiple of four rows.
+    // So does the loop for three to five JFETs, in columns padded to a multiple of four rows.
     const int np = 2 * m_.devices, rows = (np + 3) / 4 * 4;
     g_.mi = Eigen::Map<const Eigen::MatrixXd, 0, Eigen::OuterStride<>>(
         g_.mring.data() + static_cast<std::ptrdiff_t>(rows) * np * g_.head, np, np, Eigen::OuterStride<>(rows));
@@ -1970,6 +1972,17 @@ constexpr int pair_general_k = 0;
 constexpr int pair_general_k = 2;
 #endif
 
+// The start of a sample in the two wide loops: the generator's voltage (network frame,
+// returned) into the inputs, and W's state and input columns times them into `pre`.
+__attribute__((target("avx2,fma"), always_inline)) inline double general_solver::start_wide_sample(
+    double generator_v) noexcept {
+  const int ns = m_.states;
+  const double ug = sign_ * generator_v;
+  in_[ns + 1] = ug;
+  update_wide(g_.w.data(), g_.rows, nullptr, in_.data(), ns + 2, g_.pre.data());
+  return ug;
+}
+
 __attribute__((noinline)) void general_solver::pair_rest(int& evals, bool attempt_failed) noexcept {
   port_set& trial = g_.trial();
   if (attempt_failed || !solve_general<pair_general_k>(g_.p, g_.guess, trial, evals))
@@ -1980,10 +1993,8 @@ __attribute__((noinline)) void general_solver::pair_rest(int& evals, bool attemp
 __attribute__((target("avx2,fma"), always_inline)) inline double general_solver::process_pair(double generator_v) noexcept {
   storage& g = g_;
   const int ns = m_.states, rows = g.rows;
-  const double ug = sign_ * generator_v;
   double* __restrict x_in = in_.data();
-  x_in[ns + 1] = ug;
-  update_wide(g.w.data(), rows, nullptr, x_in, ns + 2, g.pre.data());
+  const double ug = start_wide_sample(generator_v);
   const double* f = m_.f.data();
   const double* fa = g.f_abs.data();
   const __m256d p = _mm256_fmadd_pd(_mm256_loadu_pd(m_.e.col(1).data()), _mm256_set1_pd(ug),
@@ -2605,10 +2616,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   constexpr int NP = D::NP, NI = D::NI, R = D::R, P = D::P;
   storage& g = g_;
   const int ns = m_.states, rows = g.rows;
-  const double ug = sign_ * generator_v;
   double* __restrict x_in = in_.data();
-  x_in[ns + 1] = ug;
-  update_wide(g.w.data(), rows, nullptr, x_in, ns + 2, g.pre.data());
+  const double ug = start_wide_sample(generator_v);
   const double* f = g.fpad.data();
   const double* fa = g.fapad.data();
   double* pads = g.vpad.data();  // p_dc, e1, skip_t, the last point's v and p: P each
@@ -3014,8 +3023,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
 #pragma GCC unroll 16
       for (int r = 0; r < R; ++r) {
         const __m256d qr = _mm256_add_pd(q0[r], _mm256_add_pd(q1[r], q2[r]));
-        _mm256_store_pd(pads + 5 * P + 4 * r, qr);
-        store_rows<NP>(g.q.data(), r, qr);
+        _mm256_store_pd(pads + 5 * P + 4 * r, qr);  // (g.q, which the other loops read, not kept)
       }
     }
     update_wide(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2, NI,

@@ -116,6 +116,7 @@ class general_solver : public dk_solver_base {
   // dv/dp kept in full (dk_general.cpp, process_pair); what it does not settle in two
   // Newton iterations goes to solve_general<2>.
   double process_pair(double generator_v) noexcept;
+  double start_wide_sample(double generator_v) noexcept;
   void block_pair(const double* in, double* out, std::size_t n) noexcept;
   void pair_m_of(int slot) noexcept;
   void pair_rest(int& evals, bool attempt_failed) noexcept;
@@ -136,7 +137,7 @@ class general_solver : public dk_solver_base {
   std::array<double, 3> warm_{};
   bool wide_{false};  // the state update's AVX2 + FMA kernel (dk_general.cpp)
   bool pair_{false};  // two JFETs: process_pair (dk_general.cpp)
-  bool full_{false};  // three to six JFETs: process_n (dk_general.cpp)
+  bool full_{false};  // three to five JFETs: process_n (dk_general.cpp)
   int torn_holdoff_{0};   // samples left to solve from the factors after a torn step fell back (dk_general.cpp)
   int torn_predict_{1};   // sweeps of the warm start's prediction from a torn point (dk_general.cpp)
   storage g_;
