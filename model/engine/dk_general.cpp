@@ -1140,6 +1140,7 @@ void general_solver::reset() {
   g.q.setZero();
   for (port_set& s : g.ring) s = g.dc;
   g.head = 0;
+  for (bool& r : g.ring_rescued) r = false;
   if (pair_)
     for (int slot = 0; slot < 4; ++slot) pair_m_of(slot);
   if (full_) {
@@ -1257,6 +1258,15 @@ void general_solver::set_state(const Eigen::Ref<const Eigen::VectorXd>& x) {
 }
 
 void general_solver::track(Eigen::MatrixXd& sensitivity) {
+  const bool rescued = full_ && g_.ring_rescued[g_.head];
+  if (rescued) {
+    // Accepted after a rescue step: Jf at the point itself (the one it holds is the
+    // iterate's, a Newton step away), and below, M from it.
+    port_set& pt = g_.last();
+    for (int j = 0; j < m_.devices; ++j)
+      put_block(pt.jf, j, detail::evaluate_ports(g_.dev[static_cast<std::size_t>(j)], pt.v[2 * j], pt.v[2 * j + 1]));
+    pt.stale = true;
+  }
   // C Jf by JFET j's 3 x 2 block of Jf (rows 3j.., columns 2j..), the rest of Jf zero; the
   // small products coefficient by coefficient (a general product's packing costs more).
   const Eigen::MatrixXd& jf = g_.last().jf;
@@ -1269,14 +1279,15 @@ void general_solver::track(Eigen::MatrixXd& sensitivity) {
     // The two-JFET loop keeps M of every ring point in full (its own points' I - F Jf left
     // unfactored).
     g_.mi = Eigen::Map<const Eigen::Matrix4d>(g_.mring.data() + 16 * g_.head);
-  } else if (full_) {
+  } else if (full_ && !rescued) {
     // So does the loop for three to five JFETs, in columns padded to a multiple of four rows.
     const int np = 2 * m_.devices, rows = (np + 3) / 4 * 4;
     g_.mi = Eigen::Map<const Eigen::MatrixXd, 0, Eigen::OuterStride<>>(
         g_.mring.data() + static_cast<std::ptrdiff_t>(rows) * np * g_.head, np, np, Eigen::OuterStride<>(rows));
-  } else if (last.torn) {
-    // A torn point holds J = I - F Jf with its diagonal blocks inverted, not factors: J
-    // formed again from the point's Jf and factored with pivoting.
+  } else if (last.torn || rescued) {
+    // A torn point holds J = I - F Jf with its diagonal blocks inverted, not factors (and a
+    // rescued point's M is the iterate's): J formed again from the point's Jf and factored
+    // with pivoting.
     const int np = 2 * m_.devices;
     one_minus_f_jf(m_.f, jf, g_.track_lu);
     if (!(lu_factor(g_.track_lu.data(), np, g_.track_piv.data()) > 0.0))
@@ -2425,7 +2436,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline lane_currents evaluate
   return o;
 }
 struct lane_remainders {
-  __m256d rem[3], mag[3], id_lin;
+  __m256d rem[3], mag[3], id_lin, id_rem;  // id_rem: the channel's remainder, signed
 };
 // remainders_of (dk_acceptance.hpp) on lanes: the step (d0, d1) to (vn0, vn1).
 __attribute__((target("avx2,fma"), always_inline)) inline lane_remainders remainders_lanes(const double* c,
@@ -2442,8 +2453,9 @@ __attribute__((target("avx2,fma"), always_inline)) inline lane_remainders remain
   const __m256d gm_d = _mm256_mul_pd(o.gm, d0), gds_d = _mm256_mul_pd(o.gds, d1);
   s.id_lin = _mm256_add_pd(gm_d, gds_d);
   const __m256d k = _mm256_set1_pd(detail::acceptance_round_k);
+  s.id_rem = _mm256_sub_pd(_mm256_sub_pd(id_new, o.id), s.id_lin);
   s.rem[2] = _mm256_add_pd(
-      abs4(_mm256_sub_pd(_mm256_sub_pd(id_new, o.id), s.id_lin)),
+      abs4(s.id_rem),
       _mm256_mul_pd(k, _mm256_add_pd(_mm256_add_pd(abs4(id_new), abs4(o.id)), _mm256_add_pd(abs4(gm_d), abs4(gds_d)))));
   s.mag[0] = _mm256_add_pd(abs4(o.igs), abs4(_mm256_mul_pd(o.ggs, d0)));
   s.mag[1] = _mm256_add_pd(abs4(o.igd), abs4(_mm256_mul_pd(o.ggd, dgd)));
@@ -2510,7 +2522,8 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
                                                                 const double* rem_rows, const double* vv,
                                                                 const double* dd, const double* vnv, const double* mt,
                                                                 const double* f, const double* fa,
-                                                                const double* excess, double tol, pair_out out) noexcept {
+                                                                const double* excess, double tol, pair_out out,
+                                                                bool rescue) noexcept {
   using D = wide_dims<K>;
   constexpr int NP = D::NP, NI = D::NI, P = D::P, W = 4 * ((K + 3) / 4);
   // The devices' rows of lanes (process_n: cur, sr) as the scalar functions take them.
@@ -2533,7 +2546,7 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
     return m;
   };
   // The junctions' part of the bound, |M| |F| R_junctions, against the floor.
-  {
+  if (!rescue) {
     double rj[NI];
     #pragma GCC unroll 16
     for (int j = 0; j < K; ++j) {
@@ -2555,7 +2568,7 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
   for (int j = 0; j < K; ++j) {
     q[3 * j] = detail::junction_remainder(c[j].ggs_s, dv[j], dd[2 * j]);
     q[3 * j + 1] = detail::junction_remainder(c[j].ggd_s, dv[j], dd[2 * j] - dd[2 * j + 1]);
-    q[3 * j + 2] = 0.0;
+    q[3 * j + 2] = rescue ? rem_rows[7 * W + j] : 0.0;
   }
   wide_times<K>(f, NI, q, nullptr, false, col);
   alignas(32) double fr[P], ev[P];
@@ -2569,7 +2582,7 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
   double id_end[K];
   #pragma GCC unroll 16
   for (int j = 0; j < K; ++j) {
-    id_end[j] = c[j].id_a + s[j].id_lin_d;
+    id_end[j] = c[j].id_a + s[j].id_lin_d + q[3 * j + 2];
     detail::correction_remainders(dv[j], c[j], dd[2 * j], dd[2 * j + 1], ev[2 * j], ev[2 * j + 1],
                                   vnv[2 * j] + ev[2 * j], vnv[2 * j + 1] + ev[2 * j + 1], id_end[j], rr + 3 * j);
   }
@@ -2591,6 +2604,36 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
   return true;
 }
 }  // namespace
+
+// Confirm mode (dk_options::confirm) at the point vpt of K JFETs: the exact devices (no
+// far-reverse skip) into kc, and whether the residual p - v + F i there is within tol_v
+// plus each row's rounding allowance (al, up to detail::rounding_allowance_v).
+template <int K>
+__attribute__((target("avx2,fma"), noinline)) bool confirmed_at(const detail::device_consts* dev, const double* vpt,
+                                                                const __m256d* p, const __m256d* al, const double* f,
+                                                                double tol, detail::port_currents* kc) noexcept {
+  using D = wide_dims<K>;
+  constexpr int NP = D::NP, R = D::R, P = D::P;
+  for (int j = 0; j < K; ++j) {
+    detail::device_consts x = dev[j];
+    x.skip_arg = detail::junction_deep_reverse;
+    kc[j] = detail::evaluate_ports(x, vpt[2 * j], vpt[2 * j + 1]);
+  }
+  bool ok = true;
+  for (int r = 0; r < R; ++r) {
+    __m256d q = _mm256_sub_pd(p[r], load_rows<NP>(vpt, r));
+    for (int j = 0; j < K; ++j) {
+      const double* fj = f + 3 * j * P + 4 * r;
+      q = _mm256_fmadd_pd(_mm256_load_pd(fj), _mm256_set1_pd(kc[j].igs_a), q);
+      q = _mm256_fmadd_pd(_mm256_load_pd(fj + P), _mm256_set1_pd(kc[j].igd_a), q);
+      q = _mm256_fmadd_pd(_mm256_load_pd(fj + 2 * P), _mm256_set1_pd(kc[j].id_a), q);
+    }
+    const __m256d lim =
+        _mm256_add_pd(_mm256_set1_pd(tol), _mm256_min_pd(al[r], _mm256_set1_pd(detail::rounding_allowance_v)));
+    ok = ok && _mm256_movemask_pd(_mm256_cmp_pd(abs4(q), lim, _CMP_LE_OQ)) == 15;
+  }
+  return ok;
+}
 
 // Where the inline iterations of process_n stopped, solve_general<K> (or the sub-steps)
 // goes on; M of the point it accepts into the ring (ring_m_of).
@@ -2668,6 +2711,16 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   lane_currents cl[L];
   __m256d gs[L], ds[L];
   const int inline_iterations = std::min(opt_.max_iterations, wide_inline_iterations);
+  bool rescued = false;
+  // A point that wide_correct stored in trial (the corrected or rescued one) accepted, with
+  // the iterate's Jf.
+  auto take_corrected = [&]() __attribute__((target("avx2,fma"), always_inline)) {
+#pragma GCC unroll 16
+    for (int j = 0; j < K; ++j) put_block_of(trial.jf, j, cur[3][j], cur[4][j], cur[5][j], cur[6][j]);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) vacc[r] = load_rows<NP>(trial.v.data(), r);
+    accepted = true;
+  };
   int it = 0;
   for (; it < inline_iterations; ++it) {
     alignas(32) double vv[P];
@@ -2777,9 +2830,19 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       limit |= _mm256_movemask_pd(_mm256_or_pd(
           _mm256_cmp_pd(_mm256_add_pd(gs[l], dgs[l]), vcrit, _CMP_GT_OQ),
           _mm256_cmp_pd(_mm256_add_pd(_mm256_sub_pd(gs[l], ds[l]), dgd), vcrit, _CMP_GT_OQ)));
-      // detail::small_junction_steps on the lanes.
-      large |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(abs4(dgs[l]), lim, _CMP_NLE_UQ),
-                                               _mm256_cmp_pd(abs4(dgd), lim, _CMP_NLE_UQ)));
+      // detail::small_junction_steps on the lanes; but a junction taken as -is at v (no
+      // conductance: far reverse) may take any step after which it still is (its argument
+      // below skip_arg: what it leaves out there is within skip_t).
+      const __m256d skip = _mm256_load_pd(c + 4 * lane_consts::skip_arg),
+                    inv_nvt = _mm256_load_pd(c + 4 * lane_consts::inv_nvt);
+      const __m256d off_gs =
+          _mm256_and_pd(_mm256_cmp_pd(cl[l].ggs, _mm256_setzero_pd(), _CMP_EQ_OQ),
+                        _mm256_cmp_pd(_mm256_mul_pd(_mm256_add_pd(gs[l], dgs[l]), inv_nvt), skip, _CMP_LT_OQ));
+      const __m256d off_gd = _mm256_and_pd(
+          _mm256_cmp_pd(cl[l].ggd, _mm256_setzero_pd(), _CMP_EQ_OQ),
+          _mm256_cmp_pd(_mm256_mul_pd(_mm256_add_pd(_mm256_sub_pd(gs[l], ds[l]), dgd), inv_nvt), skip, _CMP_LT_OQ));
+      large |= _mm256_movemask_pd(_mm256_or_pd(_mm256_andnot_pd(off_gs, _mm256_cmp_pd(abs4(dgs[l]), lim, _CMP_NLE_UQ)),
+                                               _mm256_andnot_pd(off_gd, _mm256_cmp_pd(abs4(dgd), lim, _CMP_NLE_UQ))));
     }
     bool limited = false;
     if (limit != 0) [[unlikely]] {
@@ -2805,7 +2868,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       for (int r = 0; r < R; ++r) _mm256_store_pd(vnv + 4 * r, vn[r]);
       // The remainders (rem, mag: rows 0-2, 3-5) and the channels' linear change (row 6),
       // a row of lanes each.
-      alignas(32) double sr[7][4 * L];
+      alignas(32) double sr[8][4 * L];
 #pragma GCC unroll 4
       for (int l = 0; l < L; ++l) {
         const lane_remainders q = remainders_lanes(lc + 4 * LC * l, cl[l], _mm256_add_pd(gs[l], dgs[l]),
@@ -2815,6 +2878,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
           _mm256_store_pd(sr[3 + m] + 4 * l, q.mag[m]);
         }
         _mm256_store_pd(sr[6] + 4 * l, q.id_lin);
+        _mm256_store_pd(sr[7] + 4 * l, q.id_rem);
       }
       // As solve_general's try_accept: the rounding of each row, allowed up to the
       // allowance; t the residual bound less what is allowed; then |M| t.
@@ -2872,29 +2936,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
           // Confirm mode, as solve_general: the exact devices (no far-reverse skip) at the
           // point, whose residual must be below tol_v plus the row's rounding allowance.
           detail::port_currents kc[K];
-#pragma GCC unroll 16
-          for (int j = 0; j < K; ++j) {
-            detail::device_consts x = dev[j];
-            x.skip_arg = detail::junction_deep_reverse;
-            kc[j] = detail::evaluate_ports(x, vnv[2 * j], vnv[2 * j + 1]);
-          }
           ++evals;
-          bool ok = true;
-#pragma GCC unroll 16
-          for (int r = 0; r < R; ++r) {
-            __m256d q = _mm256_sub_pd(p[r], vn[r]);
-#pragma GCC unroll 16
-            for (int j = 0; j < K; ++j) {
-              const double* fj = f + 3 * j * P + 4 * r;
-              q = _mm256_fmadd_pd(_mm256_load_pd(fj), _mm256_set1_pd(kc[j].igs_a), q);
-              q = _mm256_fmadd_pd(_mm256_load_pd(fj + P), _mm256_set1_pd(kc[j].igd_a), q);
-              q = _mm256_fmadd_pd(_mm256_load_pd(fj + 2 * P), _mm256_set1_pd(kc[j].id_a), q);
-            }
-            const __m256d lim =
-                _mm256_add_pd(_mm256_set1_pd(tol), _mm256_min_pd(al[r], _mm256_set1_pd(detail::rounding_allowance_v)));
-            ok = ok && _mm256_movemask_pd(_mm256_cmp_pd(abs4(q), lim, _CMP_LE_OQ)) == 15;
-          }
-          if (!ok) {
+          if (!confirmed_at<K>(dev, vnv, p, al, f, tol, kc)) {
             ++stats_.bound_misses;
           } else {
 #pragma GCC unroll 16
@@ -2922,12 +2965,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
                                                           _mm256_cmp_pd(cl[l].ggd, _mm256_setzero_pd(), _CMP_GT_OQ)));
           if (conducting != 0 && opt_.correct_junctions &&
               wide_correct<K>(dev, &cur[0][0], &sr[0][0], vv, dd, vnv, mt, f, fa, excess, tol,
-                              pair_out{trial.v.data(), trial.i.data()})) [[unlikely]] {
-#pragma GCC unroll 16
-            for (int j = 0; j < K; ++j) put_block_of(trial.jf, j, cur[3][j], cur[4][j], cur[5][j], cur[6][j]);
-#pragma GCC unroll 16
-            for (int r = 0; r < R; ++r) vacc[r] = load_rows<NP>(trial.v.data(), r);
-            accepted = true;
+                              pair_out{trial.v.data(), trial.i.data()}, false)) [[unlikely]] {
+            take_corrected();
             break;
           }
 #pragma GCC unroll 16
@@ -2944,6 +2983,27 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
             put_block_of(trial.jf, j, cur[3][j], cur[4][j], cur[5][j], cur[6][j]);
           }
           accepted = true;
+          break;
+        }
+      }
+      // Missed: one more step with the same M from the currents' remainders at vn (the
+      // junctions' from their series, the channel's exactly), where its own bound holds
+      // (wide_correct); else the next Newton iteration, from vn.
+      if (opt_.rescue_steps && wide_correct<K>(dev, &cur[0][0], &sr[0][0], vv, dd, vnv, mt, f, fa, excess, tol,
+                                               pair_out{trial.v.data(), trial.i.data()}, true)) {
+        bool ok = true;
+        if (opt_.confirm) [[unlikely]] {
+          // As above (the rescued point's own rounding allowance not counted: the main
+          // step's, al).
+          detail::port_currents kc[K];
+          ++evals;
+          ok = confirmed_at<K>(dev, trial.v.data(), p, al, f, tol, kc);
+          if (!ok) ++stats_.bound_misses;
+        }
+        if (ok) {
+          ++stats_.rescued;
+          rescued = true;
+          take_corrected();
           break;
         }
       }
@@ -2966,7 +3026,9 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     trial.pending = false;
     trial.blocked = false;
     trial.torn = false;
+    g.ring_rescued[slot] = rescued;
   } else {
+    g.ring_rescued[slot] = false;
     // Where the inline iterations stopped (see above): solve_general goes on from there,
     // at this sample's p.
 #pragma GCC unroll 16

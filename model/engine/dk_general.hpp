@@ -90,6 +90,9 @@ class general_solver : public dk_solver_base {
     // accepted point's v and its p, and q, P each.
     detail::aligned_doubles fpad, fapad, vpad;
     detail::aligned_doubles mw;     // process_n: the warm start's M (combine_warm)
+    // process_n: the ring point was accepted after a rescue step (dk_options::rescue_steps):
+    // its Jf and M are those of the iterate before, a step away (track() evaluates its own).
+    bool ring_rescued[4]{};
     detail::aligned_doubles wq;     // process_n: W's q rows of the current columns, P rows a column
     detail::aligned_doubles lanes;  // process_n: the JFETs' constants in lanes (dk_general.cpp, lane_consts)
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row

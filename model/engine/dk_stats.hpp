@@ -38,6 +38,10 @@ struct dk_options {
   /// that keeps M = (I - F Jf)^-1 in full, as two JFETs have (model/engine/dk_general.cpp,
   /// process_n), handing what it does not settle to the loop above. false: that loop.
   bool full_inverse{true};
+  /// In that loop, where a Newton step misses the acceptance: one more step with the same
+  /// M from the currents' remainders (no device evaluation; model/engine/dk_general.cpp,
+  /// wide_correct), accepted where its own bound holds; else the next Newton iteration.
+  bool rescue_steps{true};
   /// The weight of that coupling in the acceptance bound: 1. Anything else makes the bound
   /// unsound; it exists so that a test can show the coupling is needed (0..1).
   double coupling_weight{1.0};
@@ -57,6 +61,7 @@ struct dk_stats {
   long long bound_misses{0};     ///< confirm mode: accepted points whose residual was too big
   long long pivoted{0};          ///< more than one JFET: Newton steps factored with pivoting, not by blocks
   long long torn_full{0};        ///< torn Newton steps that were computed from the factors after all
+  long long rescued{0};          ///< three to five JFETs: samples accepted after a step with the same M (rescue_steps)
   double mean_evaluations() const noexcept { return samples ? double(evaluations) / double(samples) : 0.0; }
 
   /// The statistics of two runs together: the counts summed, the most in one sample the
@@ -70,6 +75,7 @@ struct dk_stats {
     bound_misses += o.bound_misses;
     pivoted += o.pivoted;
     torn_full += o.torn_full;
+    rescued += o.rescued;
     return *this;
   }
 };
