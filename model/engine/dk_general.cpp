@@ -89,6 +89,11 @@ constexpr int pair_inline_iterations = 4;
 // Three to five JFETs: the same for process_n (callgrind, the bench's chains at 1 and 10 V:
 // 8 took 0.7-2 % fewer instructions a sample than 4).
 constexpr int wide_inline_iterations = 8;
+// Three to five JFETs (process_n): where a Newton step misses the acceptance
+// (dk_options::rescue_steps), a rescue step is tried only if the step's residual bound t is
+// at most this many times tol_v. On the bench's chains of three stages at 1 and 10 V every
+// rescue that held had t below 1e4 tol_v, and half of those that failed had it above.
+constexpr double rescue_reach = 1e4;
 // The most JFETs process_n takes. At six its Gauss-Jordan inverse (O(k^3) a Newton
 // iteration, three packets a column) makes the sample as dear as the torn loop's or dearer:
 // time against it 0.97 at 0.1 V and 1.06 at 1 V (docs/engine-decisions.md).
@@ -1976,6 +1981,25 @@ __attribute__((target("avx2,fma"), noinline)) bool pair_correct(
 }
 }  // namespace
 
+// Confirm mode (dk_options::confirm) at the two-JFET point vpt: the exact devices (no
+// far-reverse skip) into k0, k1, and whether the residual p - v + F i there is within tol_v
+// plus each row's rounding allowance (al, up to detail::rounding_allowance_v).
+__attribute__((target("avx2,fma"), noinline)) bool pair_confirmed(const detail::device_consts& dv0,
+                                                                  const detail::device_consts& dv1, const double* vpt,
+                                                                  __m256d p, __m256d al, const double* f, double tol,
+                                                                  detail::port_currents& k0,
+                                                                  detail::port_currents& k1) noexcept {
+  detail::device_consts x0 = dv0, x1 = dv1;
+  x0.skip_arg = x1.skip_arg = detail::junction_deep_reverse;
+  k0 = detail::evaluate_ports(x0, vpt[0], vpt[1]);
+  k1 = detail::evaluate_ports(x1, vpt[2], vpt[3]);
+  const double ik[6] = {k0.igs_a, k0.igd_a, k0.id_a, k1.igs_a, k1.igd_a, k1.id_a};
+  __m256d q = _mm256_sub_pd(p, _mm256_loadu_pd(vpt));
+  for (int c = 0; c < 6; ++c) q = _mm256_fmadd_pd(_mm256_loadu_pd(f + 4 * c), _mm256_set1_pd(ik[c]), q);
+  const __m256d lim = _mm256_add_pd(_mm256_set1_pd(tol), _mm256_min_pd(al, _mm256_set1_pd(detail::rounding_allowance_v)));
+  return _mm256_movemask_pd(_mm256_cmp_pd(abs4(q), lim, _CMP_LE_OQ)) == 15;
+}
+
 // The sanitizer tree (PINCHOFF_RUNTIME_SIZES) compiles the general Newton at run-time size only.
 #if defined(PINCHOFF_RUNTIME_SIZES)
 constexpr int pair_general_k = 0;
@@ -2140,19 +2164,13 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
         if (hmax_abs(e) <= tol && opt_.confirm) [[unlikely]] {
           // Confirm mode, as solve_general: the exact devices (no far-reverse skip) at the
           // point, whose residual must be below tol_v plus the row's rounding allowance.
-          detail::device_consts x0 = dv0, x1 = dv1;
-          x0.skip_arg = x1.skip_arg = detail::junction_deep_reverse;
-          const detail::port_currents k0 = detail::evaluate_ports(x0, vnv[0], vnv[1]);
-          const detail::port_currents k1 = detail::evaluate_ports(x1, vnv[2], vnv[3]);
+          detail::port_currents k0, k1;
           ++evals;
-          const double ik[6] = {k0.igs_a, k0.igd_a, k0.id_a, k1.igs_a, k1.igd_a, k1.id_a};
-          __m256d q = _mm256_sub_pd(p, vn);
-          for (int c = 0; c < 6; ++c) q = _mm256_fmadd_pd(_mm256_loadu_pd(f + 4 * c), _mm256_set1_pd(ik[c]), q);
-          const __m256d lim = _mm256_add_pd(_mm256_set1_pd(tol), _mm256_min_pd(al, _mm256_set1_pd(detail::rounding_allowance_v)));
-          if (_mm256_movemask_pd(_mm256_cmp_pd(abs4(q), lim, _CMP_LE_OQ)) != 15) {
+          if (!pair_confirmed(dv0, dv1, vnv, p, al, f, tol, k0, k1)) {
             ++stats_.bound_misses;
           } else {
             _mm256_storeu_pd(trial.v.data(), vn);
+            const double ik[6] = {k0.igs_a, k0.igd_a, k0.id_a, k1.igs_a, k1.igd_a, k1.id_a};
             std::copy_n(ik, 6, trial.i.data());
             put_block(trial.jf, 0, k0);
             put_block(trial.jf, 1, k1);
@@ -2489,6 +2507,21 @@ __attribute__((target("avx2,fma"), always_inline)) inline void add_product(const
   for (int r = 0; r < R; ++r) acc[r] = _mm256_add_pd(acc[r], b[r]);
 }
 
+// The largest entry of |M| t (the acceptance's bound on the distance to the solution).
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline double abs_product_max(const double* m,
+                                                                                 const double* t) noexcept {
+  constexpr int R = wide_dims<K>::R;
+  __m256d e[R];
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) e[r] = _mm256_setzero_pd();
+  add_product<K, true>(m, t, e);
+  __m256d emax = e[0];
+#pragma GCC unroll 16
+  for (int r = 1; r < R; ++r) emax = _mm256_max_pd(emax, e[r]);
+  return hmax_abs(emax);
+}
+
 // col = start + sum_j m_j x_j (|m_j| where `absolute`), over `cols` columns of P rows.
 template <int K>
 __attribute__((target("avx2,fma"), always_inline)) inline void wide_times(const double* m, int cols, const double* x,
@@ -2522,8 +2555,7 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
                                                                 const double* rem_rows, const double* vv,
                                                                 const double* dd, const double* vnv, const double* mt,
                                                                 const double* f, const double* fa,
-                                                                const double* excess, double tol, pair_out out,
-                                                                bool rescue) noexcept {
+                                                                const double* excess, double tol, pair_out out) noexcept {
   using D = wide_dims<K>;
   constexpr int NP = D::NP, NI = D::NI, P = D::P, W = 4 * ((K + 3) / 4);
   // The devices' rows of lanes (process_n: cur, sr) as the scalar functions take them.
@@ -2546,7 +2578,7 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
     return m;
   };
   // The junctions' part of the bound, |M| |F| R_junctions, against the floor.
-  if (!rescue) {
+  {
     double rj[NI];
     #pragma GCC unroll 16
     for (int j = 0; j < K; ++j) {
@@ -2568,7 +2600,7 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
   for (int j = 0; j < K; ++j) {
     q[3 * j] = detail::junction_remainder(c[j].ggs_s, dv[j], dd[2 * j]);
     q[3 * j + 1] = detail::junction_remainder(c[j].ggd_s, dv[j], dd[2 * j] - dd[2 * j + 1]);
-    q[3 * j + 2] = rescue ? rem_rows[7 * W + j] : 0.0;
+    q[3 * j + 2] = 0.0;
   }
   wide_times<K>(f, NI, q, nullptr, false, col);
   alignas(32) double fr[P], ev[P];
@@ -2582,7 +2614,7 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
   double id_end[K];
   #pragma GCC unroll 16
   for (int j = 0; j < K; ++j) {
-    id_end[j] = c[j].id_a + s[j].id_lin_d + q[3 * j + 2];
+    id_end[j] = c[j].id_a + s[j].id_lin_d;
     detail::correction_remainders(dv[j], c[j], dd[2 * j], dd[2 * j + 1], ev[2 * j], ev[2 * j + 1],
                                   vnv[2 * j] + ev[2 * j], vnv[2 * j + 1] + ev[2 * j + 1], id_end[j], rr + 3 * j);
   }
@@ -2604,6 +2636,155 @@ __attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::de
   return true;
 }
 }  // namespace
+
+// acc += sum_j m_j x_j over the K JFETs' three current columns of m (P rows a column), x0,
+// x1, x2 the gate-source, gate-drain and channel rows of lanes; in three sums (one per
+// current: the latency of the chain, not the count, sets the time), added last.
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline void by_currents(const double* m, const double* x0,
+                                                                           const double* x1, const double* x2,
+                                                                           __m256d* acc) noexcept {
+  constexpr int R = wide_dims<K>::R, P = wide_dims<K>::P;
+  __m256d a1[R], a2[R];
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) a1[r] = a2[r] = _mm256_setzero_pd();
+#pragma GCC unroll 16
+  for (int j = 0; j < K; ++j) {
+    const double* mj = m + 3 * j * P;
+    const __m256d b0 = _mm256_broadcast_sd(x0 + j), b1 = _mm256_broadcast_sd(x1 + j), b2 = _mm256_broadcast_sd(x2 + j);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      acc[r] = _mm256_fmadd_pd(_mm256_load_pd(mj + 4 * r), b0, acc[r]);
+      a1[r] = _mm256_fmadd_pd(_mm256_load_pd(mj + P + 4 * r), b1, a1[r]);
+      a2[r] = _mm256_fmadd_pd(_mm256_load_pd(mj + 2 * P + 4 * r), b2, a2[r]);
+    }
+  }
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) acc[r] = _mm256_add_pd(acc[r], _mm256_add_pd(a1[r], a2[r]));
+}
+
+// A rescue step of K JFETs on lanes (dk_options::rescue_steps): where the Newton step d from
+// v to vn missed the acceptance, one more step e = M F q with the same M, q the currents'
+// remainders at vn themselves: the junctions' from their series (detail::junction_remainder;
+// a junction taken as -is has none), the channels' exactly (id_rem, from their currents at
+// vn). The point vc = vn + e, with the currents i(v) + Jf (d + e) + q, is stored in `out`
+// where the bound on the residual there, |F| R' + `excess` (R' as
+// detail::correction_remainders, the channels' from their currents at vc), and |M| times it
+// are below tol_v. The same bound as wide_correct's, which takes the junctions only.
+// `rows`: the lanes' rows id_lin and id_rem (process_n's sr[6], sr[7]).
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline bool wide_rescue(
+    const double* lc, const lane_currents* cl, const __m256d* gs, const __m256d* ds, const __m256d* dgs,
+    const __m256d* dds, const double* id_lin, const double* id_rem, const __m256d* vn, const double* mt,
+    const double* f, const double* fa, const double* excess, double tol, pair_out out) noexcept {
+  using D = wide_dims<K>;
+  constexpr int NP = D::NP, R = D::R, P = D::P, L = (K + 3) / 4, LC = lane_consts::count;
+  // The junctions' series need their arguments below the exponential's limit (as
+  // detail::correction_applies).
+  int bad = 0;
+  alignas(32) double q[3][4 * L];
+#pragma GCC unroll 4
+  for (int l = 0; l < L; ++l) {
+    const double* c = lc + 4 * LC * l;
+    const __m256d inv_nvt = _mm256_load_pd(c + 4 * lane_consts::inv_nvt);
+    const __m256d lim = _mm256_set1_pd(detail::junction_exp_limit - 1.0);
+    bad |= _mm256_movemask_pd(
+        _mm256_or_pd(_mm256_cmp_pd(_mm256_mul_pd(gs[l], inv_nvt), lim, _CMP_NLT_UQ),
+                     _mm256_cmp_pd(_mm256_mul_pd(_mm256_sub_pd(gs[l], ds[l]), inv_nvt), lim, _CMP_NLT_UQ)));
+    // g d x (1/2 + x (1/6 + x (1/24 + x / 120))), x = d / nVt: detail::junction_remainder.
+    auto series = [&](__m256d g, __m256d d) __attribute__((target("avx2,fma"), always_inline)) {
+      const __m256d x = _mm256_mul_pd(d, inv_nvt);
+      __m256d h = _mm256_fmadd_pd(x, _mm256_set1_pd(1.0 / 120.0), _mm256_set1_pd(1.0 / 24.0));
+      h = _mm256_fmadd_pd(x, h, _mm256_set1_pd(1.0 / 6.0));
+      h = _mm256_fmadd_pd(x, h, _mm256_set1_pd(0.5));
+      return _mm256_mul_pd(_mm256_mul_pd(g, d), _mm256_mul_pd(x, h));
+    };
+    _mm256_store_pd(q[0] + 4 * l, series(cl[l].ggs, dgs[l]));
+    _mm256_store_pd(q[1] + 4 * l, series(cl[l].ggd, _mm256_sub_pd(dgs[l], dds[l])));
+    _mm256_store_pd(q[2] + 4 * l, _mm256_load_pd(id_rem + 4 * l));
+  }
+  if (bad != 0) return false;
+  // e = M F q.
+  alignas(32) double fq[P];
+  {
+    __m256d a[R];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) a[r] = _mm256_setzero_pd();
+    by_currents<K>(f, q[0], q[1], q[2], a);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) _mm256_store_pd(fq + 4 * r, a[r]);
+  }
+  __m256d e[R], vc[R];
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) e[r] = _mm256_setzero_pd();
+  add_product<K, false>(mt, fq, e);
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) vc[r] = _mm256_add_pd(vn[r], e[r]);
+  // R' (detail::correction_remainders) on the lanes; e small enough for its junction bound.
+  alignas(32) double rr[3][4 * L], cur_out[3][4 * L];
+  int large = 0;
+#pragma GCC unroll 4
+  for (int l = 0; l < L; ++l) {
+    const double* c = lc + 4 * LC * l;
+    const __m256d inv_nvt = _mm256_load_pd(c + 4 * lane_consts::inv_nvt), small = _mm256_load_pd(c + 4 * lane_consts::small);
+    __m256d egs, eds, cgs, cds;
+    lanes_of(e[2 * l], 2 * l + 1 < R ? e[2 * l + 1] : _mm256_setzero_pd(), egs, eds);
+    lanes_of(vc[2 * l], 2 * l + 1 < R ? vc[2 * l + 1] : _mm256_setzero_pd(), cgs, cds);
+    const __m256d egd = _mm256_sub_pd(egs, eds), dgd = _mm256_sub_pd(dgs[l], dds[l]);
+    large |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(abs4(egs), small, _CMP_NLE_UQ),
+                                             _mm256_cmp_pd(abs4(egd), small, _CMP_NLE_UQ)));
+    const __m256d k1 = _mm256_set1_pd(1.0101), k2 = _mm256_set1_pd(0.5101);
+    _mm256_store_pd(rr[0] + 4 * l,
+                    _mm256_mul_pd(_mm256_mul_pd(cl[l].ggs, abs4(egs)),
+                                  _mm256_mul_pd(inv_nvt, _mm256_fmadd_pd(k1, abs4(dgs[l]), _mm256_mul_pd(k2, abs4(egs))))));
+    _mm256_store_pd(rr[1] + 4 * l,
+                    _mm256_mul_pd(_mm256_mul_pd(cl[l].ggd, abs4(egd)),
+                                  _mm256_mul_pd(inv_nvt, _mm256_fmadd_pd(k1, abs4(dgd), _mm256_mul_pd(k2, abs4(egd))))));
+    const __m256d id_end =
+        _mm256_add_pd(_mm256_add_pd(cl[l].id, _mm256_load_pd(id_lin + 4 * l)), _mm256_load_pd(q[2] + 4 * l));
+    const __m256d id_c = channel_current_lanes(c, cgs, cds);
+    const __m256d gm_e = _mm256_mul_pd(cl[l].gm, egs), gds_e = _mm256_mul_pd(cl[l].gds, eds);
+    const __m256d lin = _mm256_add_pd(gm_e, gds_e);
+    _mm256_store_pd(rr[2] + 4 * l,
+                    _mm256_add_pd(abs4(_mm256_sub_pd(_mm256_sub_pd(id_c, id_end), lin)),
+                                  _mm256_mul_pd(_mm256_set1_pd(detail::acceptance_round_k),
+                                                _mm256_add_pd(_mm256_add_pd(abs4(id_c), abs4(id_end)),
+                                                              _mm256_add_pd(abs4(gm_e), abs4(gds_e))))));
+    // The currents at vc: i(v) + Jf (d + e) + q.
+    _mm256_store_pd(cur_out[0] + 4 * l,
+                    _mm256_add_pd(_mm256_fmadd_pd(cl[l].ggs, _mm256_add_pd(dgs[l], egs), cl[l].igs),
+                                  _mm256_load_pd(q[0] + 4 * l)));
+    _mm256_store_pd(cur_out[1] + 4 * l,
+                    _mm256_add_pd(_mm256_fmadd_pd(cl[l].ggd, _mm256_add_pd(dgd, egd), cl[l].igd),
+                                  _mm256_load_pd(q[1] + 4 * l)));
+    _mm256_store_pd(cur_out[2] + 4 * l, _mm256_add_pd(id_end, lin));
+  }
+  if (large != 0) return false;
+  // t = |F| R' + excess; then |M| t.
+  alignas(32) double tv[P];
+  __m256d tmax = _mm256_setzero_pd();
+  {
+    __m256d t[R];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) t[r] = _mm256_load_pd(excess + 4 * r);
+    by_currents<K>(fa, rr[0], rr[1], rr[2], t);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      _mm256_store_pd(tv + 4 * r, t[r]);
+      tmax = _mm256_max_pd(tmax, t[r]);
+    }
+  }
+  if (!(hmax_abs(tmax) <= tol) || !(abs_product_max<K>(mt, tv) <= tol)) return false;
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) store_rows<NP>(out.v, r, vc[r]);
+#pragma GCC unroll 16
+  for (int j = 0; j < K; ++j) {
+    out.i[3 * j] = cur_out[0][j];
+    out.i[3 * j + 1] = cur_out[1][j];
+    out.i[3 * j + 2] = cur_out[2][j];
+  }
+  return true;
+}
 
 // Confirm mode (dk_options::confirm) at the point vpt of K JFETs: the exact devices (no
 // far-reverse skip) into kc, and whether the residual p - v + F i there is within tol_v
@@ -2712,8 +2893,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   __m256d gs[L], ds[L];
   const int inline_iterations = std::min(opt_.max_iterations, wide_inline_iterations);
   bool rescued = false;
-  // A point that wide_correct stored in trial (the corrected or rescued one) accepted, with
-  // the iterate's Jf.
+  // A point that wide_correct or wide_rescue stored in trial (corrected or rescued)
+  // accepted, with the iterate's Jf.
   auto take_corrected = [&]() __attribute__((target("avx2,fma"), always_inline)) {
 #pragma GCC unroll 16
     for (int j = 0; j < K; ++j) put_block_of(trial.jf, j, cur[3][j], cur[4][j], cur[5][j], cur[6][j]);
@@ -2739,27 +2920,11 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       _mm256_store_pd(cur[6] + 4 * l, cl[l].gds);
     }
     ++evals;
-    // The residual in three sums (gate-source, gate-drain, channel columns), added last.
-    __m256d res[R], res1[R], res2[R];
+    // The residual p - v + F i.
+    __m256d res[R];
 #pragma GCC unroll 16
-    for (int r = 0; r < R; ++r) {
-      res[r] = _mm256_sub_pd(p[r], v[r]);
-      res1[r] = res2[r] = _mm256_setzero_pd();
-    }
-#pragma GCC unroll 16
-    for (int j = 0; j < K; ++j) {
-      const __m256d i0 = _mm256_broadcast_sd(cur[0] + j), i1 = _mm256_broadcast_sd(cur[1] + j),
-                    i2 = _mm256_broadcast_sd(cur[2] + j);
-      const double* fj = f + 3 * j * P;
-#pragma GCC unroll 16
-      for (int r = 0; r < R; ++r) {
-        res[r] = _mm256_fmadd_pd(_mm256_load_pd(fj + 4 * r), i0, res[r]);
-        res1[r] = _mm256_fmadd_pd(_mm256_load_pd(fj + P + 4 * r), i1, res1[r]);
-        res2[r] = _mm256_fmadd_pd(_mm256_load_pd(fj + 2 * P + 4 * r), i2, res2[r]);
-      }
-    }
-#pragma GCC unroll 16
-    for (int r = 0; r < R; ++r) res[r] = _mm256_add_pd(res[r], _mm256_add_pd(res1[r], res2[r]));
+    for (int r = 0; r < R; ++r) res[r] = _mm256_sub_pd(p[r], v[r]);
+    by_currents<K>(f, cur[0], cur[1], cur[2], res);
     __m256d rmax = abs4(res[0]);
 #pragma GCC unroll 16
     for (int r = 1; r < R; ++r) rmax = _mm256_max_pd(rmax, abs4(res[r]));
@@ -2924,14 +3089,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
         tmax = _mm256_max_pd(tmax, t);
       }
       if (hmax_abs(tmax) <= tol) {
-        __m256d e[R];
-#pragma GCC unroll 16
-        for (int r = 0; r < R; ++r) e[r] = _mm256_setzero_pd();
-        add_product<K, true>(mt, tv, e);
-        __m256d emax = e[0];
-#pragma GCC unroll 16
-        for (int r = 1; r < R; ++r) emax = _mm256_max_pd(emax, e[r]);
-        const bool within = hmax_abs(emax) <= tol;
+        const bool within = abs_product_max<K>(mt, tv) <= tol;
         if (within && opt_.confirm) [[unlikely]] {
           // Confirm mode, as solve_general: the exact devices (no far-reverse skip) at the
           // point, whose residual must be below tol_v plus the row's rounding allowance.
@@ -2965,7 +3123,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
                                                           _mm256_cmp_pd(cl[l].ggd, _mm256_setzero_pd(), _CMP_GT_OQ)));
           if (conducting != 0 && opt_.correct_junctions &&
               wide_correct<K>(dev, &cur[0][0], &sr[0][0], vv, dd, vnv, mt, f, fa, excess, tol,
-                              pair_out{trial.v.data(), trial.i.data()}, false)) [[unlikely]] {
+                              pair_out{trial.v.data(), trial.i.data()})) [[unlikely]] {
             take_corrected();
             break;
           }
@@ -2988,9 +3146,10 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       }
       // Missed: one more step with the same M from the currents' remainders at vn (the
       // junctions' from their series, the channel's exactly), where its own bound holds
-      // (wide_correct); else the next Newton iteration, from vn.
-      if (opt_.rescue_steps && wide_correct<K>(dev, &cur[0][0], &sr[0][0], vv, dd, vnv, mt, f, fa, excess, tol,
-                                               pair_out{trial.v.data(), trial.i.data()}, true)) {
+      // (wide_rescue); else the next Newton iteration, from vn.
+      if (opt_.rescue_steps && hmax_abs(tmax) <= rescue_reach * tol &&
+          wide_rescue<K>(lc, cl, gs, ds, dgs, dds, sr[6], sr[7], vn, mt, f, fa, excess, tol,
+                         pair_out{trial.v.data(), trial.i.data()})) {
         bool ok = true;
         if (opt_.confirm) [[unlikely]] {
           // As above (the rescued point's own rounding allowance not counted: the main

@@ -271,7 +271,8 @@ TEST_CASE("chains of two to seven stages: Newton steps factored by 2 x 2 blocks 
           CHECK(std::string(blocks.sample_loop()) == "AVX2+FMA, M in full");
           CHECK(std::string(checked.sample_loop()) == "AVX2+FMA, M in full");
           // Its rescue steps (dk_options::rescue_steps) are taken once the drive bends the
-          // channels, and confirm mode held each rescued point to its actual residual too.
+          // channels, and confirm mode held each rescued point to its actual residual too
+          // (bound_misses above).
           CAPTURE(checked.stats().rescued);
           if (amp >= 1.0) CHECK(checked.stats().rescued > 0);
         }
