@@ -1981,25 +1981,6 @@ __attribute__((target("avx2,fma"), noinline)) bool pair_correct(
 }
 }  // namespace
 
-// Confirm mode (dk_options::confirm) at the two-JFET point vpt: the exact devices (no
-// far-reverse skip) into k0, k1, and whether the residual p - v + F i there is within tol_v
-// plus each row's rounding allowance (al, up to detail::rounding_allowance_v).
-__attribute__((target("avx2,fma"), noinline)) bool pair_confirmed(const detail::device_consts& dv0,
-                                                                  const detail::device_consts& dv1, const double* vpt,
-                                                                  __m256d p, __m256d al, const double* f, double tol,
-                                                                  detail::port_currents& k0,
-                                                                  detail::port_currents& k1) noexcept {
-  detail::device_consts x0 = dv0, x1 = dv1;
-  x0.skip_arg = x1.skip_arg = detail::junction_deep_reverse;
-  k0 = detail::evaluate_ports(x0, vpt[0], vpt[1]);
-  k1 = detail::evaluate_ports(x1, vpt[2], vpt[3]);
-  const double ik[6] = {k0.igs_a, k0.igd_a, k0.id_a, k1.igs_a, k1.igd_a, k1.id_a};
-  __m256d q = _mm256_sub_pd(p, _mm256_loadu_pd(vpt));
-  for (int c = 0; c < 6; ++c) q = _mm256_fmadd_pd(_mm256_loadu_pd(f + 4 * c), _mm256_set1_pd(ik[c]), q);
-  const __m256d lim = _mm256_add_pd(_mm256_set1_pd(tol), _mm256_min_pd(al, _mm256_set1_pd(detail::rounding_allowance_v)));
-  return _mm256_movemask_pd(_mm256_cmp_pd(abs4(q), lim, _CMP_LE_OQ)) == 15;
-}
-
 // The sanitizer tree (PINCHOFF_RUNTIME_SIZES) compiles the general Newton at run-time size only.
 #if defined(PINCHOFF_RUNTIME_SIZES)
 constexpr int pair_general_k = 0;
@@ -2164,13 +2145,19 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
         if (hmax_abs(e) <= tol && opt_.confirm) [[unlikely]] {
           // Confirm mode, as solve_general: the exact devices (no far-reverse skip) at the
           // point, whose residual must be below tol_v plus the row's rounding allowance.
-          detail::port_currents k0, k1;
+          detail::device_consts x0 = dv0, x1 = dv1;
+          x0.skip_arg = x1.skip_arg = detail::junction_deep_reverse;
+          const detail::port_currents k0 = detail::evaluate_ports(x0, vnv[0], vnv[1]);
+          const detail::port_currents k1 = detail::evaluate_ports(x1, vnv[2], vnv[3]);
           ++evals;
-          if (!pair_confirmed(dv0, dv1, vnv, p, al, f, tol, k0, k1)) {
+          const double ik[6] = {k0.igs_a, k0.igd_a, k0.id_a, k1.igs_a, k1.igd_a, k1.id_a};
+          __m256d q = _mm256_sub_pd(p, vn);
+          for (int c = 0; c < 6; ++c) q = _mm256_fmadd_pd(_mm256_loadu_pd(f + 4 * c), _mm256_set1_pd(ik[c]), q);
+          const __m256d lim = _mm256_add_pd(_mm256_set1_pd(tol), _mm256_min_pd(al, _mm256_set1_pd(detail::rounding_allowance_v)));
+          if (_mm256_movemask_pd(_mm256_cmp_pd(abs4(q), lim, _CMP_LE_OQ)) != 15) {
             ++stats_.bound_misses;
           } else {
             _mm256_storeu_pd(trial.v.data(), vn);
-            const double ik[6] = {k0.igs_a, k0.igd_a, k0.id_a, k1.igs_a, k1.igd_a, k1.id_a};
             std::copy_n(ik, 6, trial.i.data());
             put_block(trial.jf, 0, k0);
             put_block(trial.jf, 1, k1);
@@ -2671,7 +2658,9 @@ __attribute__((target("avx2,fma"), always_inline)) inline void by_currents(const
 // where the bound on the residual there, |F| R' + `excess` (R' as
 // detail::correction_remainders, the channels' from their currents at vc), and |M| times it
 // are below tol_v. The same bound as wide_correct's, which takes the junctions only.
-// `rows`: the lanes' rows id_lin and id_rem (process_n's sr[6], sr[7]).
+// cl, gs, ds: the currents and port voltages at v, dgs, dds the step, in lanes; id_lin and
+// id_rem: the channels' linear change and remainder over it, rows of lanes (process_n's
+// sr[6], sr[7]).
 template <int K>
 __attribute__((target("avx2,fma"), always_inline)) inline bool wide_rescue(
     const double* lc, const lane_currents* cl, const __m256d* gs, const __m256d* ds, const __m256d* dgs,
