@@ -2509,119 +2509,6 @@ __attribute__((target("avx2,fma"), always_inline)) inline double abs_product_max
   return hmax_abs(emax);
 }
 
-// col = start + sum_j m_j x_j (|m_j| where `absolute`), over `cols` columns of P rows.
-template <int K>
-__attribute__((target("avx2,fma"), always_inline)) inline void wide_times(const double* m, int cols, const double* x,
-                                                                          const double* start, bool absolute,
-                                                                          double* col) noexcept {
-  constexpr int R = wide_dims<K>::R, P = wide_dims<K>::P;
-  __m256d acc[R];
-  #pragma GCC unroll 16
-  for (int r = 0; r < R; ++r) acc[r] = start ? _mm256_load_pd(start + 4 * r) : _mm256_setzero_pd();
-  #pragma GCC unroll 16
-  for (int j = 0; j < cols; ++j) {
-    const __m256d xj = _mm256_broadcast_sd(x + j);
-    #pragma GCC unroll 16
-    for (int r = 0; r < R; ++r) {
-      const __m256d mj = _mm256_load_pd(m + j * P + 4 * r);
-      acc[r] = _mm256_fmadd_pd(absolute ? abs4(mj) : mj, xj, acc[r]);
-    }
-  }
-  #pragma GCC unroll 16
-  for (int r = 0; r < R; ++r) _mm256_store_pd(col + 4 * r, acc[r]);
-}
-
-// The correction of an accepted point of K JFETs, as pair_correct (detail::correction_floor):
-// the step e = M F R from vn = v + d, R the junctions' remainders themselves; the point
-// vn + e with the junctions' currents i(vn) + Jf e and the channels' linearised ones is
-// stored in `out` where the bound on the residual there, |F| R' + `excess`, and |M| times it
-// are below tol_v. False: not taken. F, |F| and M in columns of P rows.
-template <int K>
-__attribute__((target("avx2,fma"), noinline)) bool wide_correct(const detail::device_consts* dv,
-                                                                const double* cur_rows,
-                                                                const double* rem_rows, const double* vv,
-                                                                const double* dd, const double* vnv, const double* mt,
-                                                                const double* f, const double* fa,
-                                                                const double* excess, double tol, pair_out out) noexcept {
-  using D = wide_dims<K>;
-  constexpr int NP = D::NP, NI = D::NI, P = D::P, W = 4 * ((K + 3) / 4);
-  // The devices' rows of lanes (process_n: cur, sr) as the scalar functions take them.
-  detail::port_currents c[K];
-  detail::step_remainders s[K];
-  for (int j = 0; j < K; ++j) {
-    c[j] = detail::port_currents{cur_rows[j],         cur_rows[W + j],     cur_rows[2 * W + j], cur_rows[3 * W + j],
-                                 cur_rows[4 * W + j], cur_rows[5 * W + j], cur_rows[6 * W + j]};
-    for (int q = 0; q < 3; ++q) {
-      s[j].rem[q] = rem_rows[q * W + j];
-      s[j].mag[q] = rem_rows[(3 + q) * W + j];
-    }
-    s[j].id_lin_d = rem_rows[6 * W + j];
-  }
-  alignas(32) double col[P];
-  auto col_max = [&]() noexcept {
-    double m = 0.0;
-    #pragma GCC unroll 16
-    for (int r = 0; r < NP; ++r) m = std::max(m, std::fabs(col[r]));
-    return m;
-  };
-  // The junctions' part of the bound, |M| |F| R_junctions, against the floor.
-  {
-    double rj[NI];
-    #pragma GCC unroll 16
-    for (int j = 0; j < K; ++j) {
-      rj[3 * j] = s[j].rem[0];
-      rj[3 * j + 1] = s[j].rem[1];
-      rj[3 * j + 2] = 0.0;
-    }
-    wide_times<K>(fa, NI, rj, nullptr, false, col);
-    alignas(32) double tj[P];
-    std::copy_n(col, P, tj);
-    wide_times<K>(mt, NP, tj, nullptr, true, col);
-    if (!(col_max() > detail::correction_floor * tol)) return false;
-  }
-  #pragma GCC unroll 16
-  for (int j = 0; j < K; ++j)
-    if (!detail::correction_applies(dv[j], vv[2 * j], vv[2 * j + 1], 0.0, 0.0)) return false;
-  double q[NI];
-  #pragma GCC unroll 16
-  for (int j = 0; j < K; ++j) {
-    q[3 * j] = detail::junction_remainder(c[j].ggs_s, dv[j], dd[2 * j]);
-    q[3 * j + 1] = detail::junction_remainder(c[j].ggd_s, dv[j], dd[2 * j] - dd[2 * j + 1]);
-    q[3 * j + 2] = 0.0;
-  }
-  wide_times<K>(f, NI, q, nullptr, false, col);
-  alignas(32) double fr[P], ev[P];
-  std::copy_n(col, P, fr);
-  wide_times<K>(mt, NP, fr, nullptr, false, col);
-  std::copy_n(col, P, ev);
-  #pragma GCC unroll 16
-  for (int j = 0; j < K; ++j)
-    if (!detail::correction_applies(dv[j], vv[2 * j], vv[2 * j + 1], ev[2 * j], ev[2 * j + 1])) return false;
-  double rr[NI];
-  double id_end[K];
-  #pragma GCC unroll 16
-  for (int j = 0; j < K; ++j) {
-    id_end[j] = c[j].id_a + s[j].id_lin_d;
-    detail::correction_remainders(dv[j], c[j], dd[2 * j], dd[2 * j + 1], ev[2 * j], ev[2 * j + 1],
-                                  vnv[2 * j] + ev[2 * j], vnv[2 * j + 1] + ev[2 * j + 1], id_end[j], rr + 3 * j);
-  }
-  wide_times<K>(fa, NI, rr, excess, false, col);
-  alignas(32) double tv[P];
-  std::copy_n(col, P, tv);
-  if (!(col_max() <= tol)) return false;
-  wide_times<K>(mt, NP, tv, nullptr, true, col);
-  if (!(col_max() <= tol)) return false;
-  #pragma GCC unroll 16
-  for (int r = 0; r < NP; ++r) out.v[r] = vnv[r] + ev[r];
-  #pragma GCC unroll 16
-  for (int j = 0; j < K; ++j) {
-    const double d0 = dd[2 * j], d1 = dd[2 * j + 1], e0 = ev[2 * j], e1 = ev[2 * j + 1];
-    out.i[3 * j] = c[j].igs_a + c[j].ggs_s * (d0 + e0) + q[3 * j];
-    out.i[3 * j + 1] = c[j].igd_a + c[j].ggd_s * (d0 - d1 + e0 - e1) + q[3 * j + 1];
-    out.i[3 * j + 2] = id_end[j] + c[j].gm_s * e0 + c[j].gds_s * e1;
-  }
-  return true;
-}
 }  // namespace
 
 // acc += sum_j m_j x_j over the K JFETs' three current columns of m (P rows a column), x0,
@@ -2650,24 +2537,38 @@ __attribute__((target("avx2,fma"), always_inline)) inline void by_currents(const
   for (int r = 0; r < R; ++r) acc[r] = _mm256_add_pd(acc[r], _mm256_add_pd(a1[r], a2[r]));
 }
 
-// A rescue step of K JFETs on lanes (dk_options::rescue_steps): where the Newton step d from
-// v to vn missed the acceptance, one more step e = M F q with the same M, q the currents'
-// remainders at vn themselves: the junctions' from their series (detail::junction_remainder;
-// a junction taken as -is has none), the channels' exactly (id_rem, from their currents at
-// vn). The point vc = vn + e, with the currents i(v) + Jf (d + e) + q, is stored in `out`
-// where the bound on the residual there, |F| R' + `excess` (R' as
-// detail::correction_remainders, the channels' from their currents at vc), and |M| times it
-// are below tol_v. The same bound as wide_correct's, which takes the junctions only.
-// cl, gs, ds: the currents and port voltages at v, dgs, dds the step, in lanes; id_lin and
-// id_rem: the channels' linear change and remainder over it, rows of lanes (process_n's
-// sr[6], sr[7]).
-template <int K>
-__attribute__((target("avx2,fma"), always_inline)) inline bool wide_rescue(
+// One more step of K JFETs from vn = v + d with the same M, on lanes: e = M F q, q the
+// currents' remainders at vn themselves, the junctions' from their series
+// (detail::junction_remainder; a junction taken as -is has none) and, for a rescue, the
+// channels' exactly (id_rem, from their currents at vn). The point vc = vn + e, with the
+// currents i(v) + Jf (d + e) + q, is stored in `out` where the bound on the residual there,
+// |F| R' + `excess` (R' as detail::correction_remainders, the channels' from their currents
+// at vc), and |M| times it are below tol_v. False: not taken.
+// - Rescue (dk_options::rescue_steps): where the step d missed the acceptance.
+// - Not (the correction of an accepted point, detail::correction_floor says why): the
+//   junctions only, and only where their part of the bound, |M| |F| R_junctions (rem_gs,
+//   rem_gd: their remainder bounds over d), is above correction_floor tol_v.
+// cl, gs, ds: the currents and port voltages at v, dgs, dds the step, in lanes; rem_gs,
+// rem_gd, id_lin and id_rem rows of lanes (process_n's sr[0], sr[1], sr[6], sr[7]).
+template <int K, bool Rescue>
+__attribute__((target("avx2,fma"), always_inline)) inline bool remainder_step(
     const double* lc, const lane_currents* cl, const __m256d* gs, const __m256d* ds, const __m256d* dgs,
-    const __m256d* dds, const double* id_lin, const double* id_rem, const __m256d* vn, const double* mt,
-    const double* f, const double* fa, const double* excess, double tol, pair_out out) noexcept {
+    const __m256d* dds, const double* rem_gs, const double* rem_gd, const double* id_lin, const double* id_rem,
+    const __m256d* vn, const double* mt, const double* f, const double* fa, const double* excess, double tol,
+    pair_out out) noexcept {
   using D = wide_dims<K>;
   constexpr int NP = D::NP, R = D::R, P = D::P, L = (K + 3) / 4, LC = lane_consts::count;
+  if constexpr (!Rescue) {
+    alignas(32) double none[4 * L] = {};
+    alignas(32) double tj[P];
+    __m256d a[R];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) a[r] = _mm256_setzero_pd();
+    by_currents<K>(fa, rem_gs, rem_gd, none, a);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) _mm256_store_pd(tj + 4 * r, a[r]);
+    if (!(abs_product_max<K>(mt, tj) > detail::correction_floor * tol)) return false;
+  }
   // The junctions' series need their arguments below the exponential's limit (as
   // detail::correction_applies).
   int bad = 0;
@@ -2690,7 +2591,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool wide_rescue(
     };
     _mm256_store_pd(q[0] + 4 * l, series(cl[l].ggs, dgs[l]));
     _mm256_store_pd(q[1] + 4 * l, series(cl[l].ggd, _mm256_sub_pd(dgs[l], dds[l])));
-    _mm256_store_pd(q[2] + 4 * l, _mm256_load_pd(id_rem + 4 * l));
+    _mm256_store_pd(q[2] + 4 * l, Rescue ? _mm256_load_pd(id_rem + 4 * l) : _mm256_setzero_pd());
   }
   if (bad != 0) return false;
   // e = M F q.
@@ -2773,6 +2674,16 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool wide_rescue(
     out.i[3 * j + 2] = cur_out[2][j];
   }
   return true;
+}
+
+// The correction of an accepted point (remainder_step), out of line: it is rare.
+template <int K>
+__attribute__((target("avx2,fma"), noinline)) bool wide_correct(
+    const double* lc, const lane_currents* cl, const __m256d* gs, const __m256d* ds, const __m256d* dgs,
+    const __m256d* dds, const double* rem_gs, const double* rem_gd, const double* id_lin, const __m256d* vn,
+    const double* mt, const double* f, const double* fa, const double* excess, double tol, pair_out out) noexcept {
+  return remainder_step<K, false>(lc, cl, gs, ds, dgs, dds, rem_gs, rem_gd, id_lin, nullptr, vn, mt, f, fa, excess,
+                                  tol, out);
 }
 
 // Confirm mode (dk_options::confirm) at the point vpt of K JFETs: the exact devices (no
@@ -2882,8 +2793,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   __m256d gs[L], ds[L];
   const int inline_iterations = std::min(opt_.max_iterations, wide_inline_iterations);
   bool rescued = false;
-  // A point that wide_correct or wide_rescue stored in trial (corrected or rescued)
-  // accepted, with the iterate's Jf.
+  // A point that remainder_step stored in trial (corrected or rescued) accepted, with the
+  // iterate's Jf.
   auto take_corrected = [&]() __attribute__((target("avx2,fma"), always_inline)) {
 #pragma GCC unroll 16
     for (int j = 0; j < K; ++j) put_block_of(trial.jf, j, cur[3][j], cur[4][j], cur[5][j], cur[6][j]);
@@ -3111,7 +3022,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
             conducting |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(cl[l].ggs, _mm256_setzero_pd(), _CMP_GT_OQ),
                                                           _mm256_cmp_pd(cl[l].ggd, _mm256_setzero_pd(), _CMP_GT_OQ)));
           if (conducting != 0 && opt_.correct_junctions &&
-              wide_correct<K>(dev, &cur[0][0], &sr[0][0], vv, dd, vnv, mt, f, fa, excess, tol,
+              wide_correct<K>(lc, cl, gs, ds, dgs, dds, sr[0], sr[1], sr[6], vn, mt, f, fa, excess, tol,
                               pair_out{trial.v.data(), trial.i.data()})) [[unlikely]] {
             take_corrected();
             break;
@@ -3135,10 +3046,10 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       }
       // Missed: one more step with the same M from the currents' remainders at vn (the
       // junctions' from their series, the channel's exactly), where its own bound holds
-      // (wide_rescue); else the next Newton iteration, from vn.
+      // (remainder_step); else the next Newton iteration, from vn.
       if (opt_.rescue_steps && hmax_abs(tmax) <= rescue_reach * tol &&
-          wide_rescue<K>(lc, cl, gs, ds, dgs, dds, sr[6], sr[7], vn, mt, f, fa, excess, tol,
-                         pair_out{trial.v.data(), trial.i.data()})) {
+          remainder_step<K, true>(lc, cl, gs, ds, dgs, dds, sr[0], sr[1], sr[6], sr[7], vn, mt, f, fa, excess, tol,
+                                  pair_out{trial.v.data(), trial.i.data()})) {
         bool ok = true;
         if (opt_.confirm) [[unlikely]] {
           // As above (the rescued point's own rounding allowance not counted: the main

@@ -40,7 +40,7 @@ struct dk_options {
   bool full_inverse{true};
   /// In that loop, where a Newton step misses the acceptance: one more step with the same
   /// M from the currents' remainders (no device evaluation; model/engine/dk_general.cpp,
-  /// wide_rescue), accepted where its own bound holds; else the next Newton iteration.
+  /// remainder_step), accepted where its own bound holds; else the next Newton iteration.
   bool rescue_steps{true};
   /// The weight of that coupling in the acceptance bound: 1. Anything else makes the bound
   /// unsound; it exists so that a test can show the coupling is needed (0..1).
