@@ -261,8 +261,9 @@ TEST_CASE("two cascaded stages: the tracked monodromy equals finite differences 
 
 TEST_CASE("three and four cascaded stages: the tracked monodromy equals finite differences of the period map") {
   // As above, on the chains that take the loop keeping (I - F Jf)^-1 in full (its M is
-  // what process_tracked multiplies by, dk_general.cpp process_n), with and without a
-  // DC-coupled follower, at 0.01 and 2 V peak. Same oracle and tolerance.
+  // what process_tracked multiplies by, dk_general.cpp process_n; at a point accepted after
+  // a rescue step, M of the point's own Jf), with and without a DC-coupled follower, at
+  // 0.01 and 2 V peak. Same oracle and tolerance.
   for (const int k : {3, 4}) {
     test::cascade_options o;
     o.dc_follower = k == 4;
