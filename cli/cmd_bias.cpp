@@ -244,8 +244,9 @@ void print_chain_text(const bias_report& r, const std::string& path, std::ostrea
   ss.add({"output impedance", format_si(r.b.ss.zout_ohm, "Ω"), "looking back from the load"});
   ss.write(out);
 
-  out << "\nClip order (drive at the chain's input where each stage leaves its clean region;\n"
-         "mid-band, capacitors holding their rest voltages)\n";
+  out << "\nClip order (drive at the chain's input where each stage leaves its clean region,\n"
+         "negative where the input's negative swing gets there first; mid-band, capacitors\n"
+         "holding their rest voltages)\n";
   text_table co({align::left, align::left, align::right, align::left});
   for (const model::stage_clip& c : r.b.head.clip_order) {
     if (c.kind == model::swing_limit_kind::none)
