@@ -1,5 +1,5 @@
 // Engine speed with more than one JFET: the DK engine's general solver (two JFETs in a loop
-// of their own, three to five in the loop that keeps (I - F Jf)^-1 in full) on chains of
+// of their own, three to six in the loop that keeps (I - F Jf)^-1 in full) on chains of
 // two to six stages (fixtures/multi_device_networks.hpp: cascade, with per-stage rail
 // filters and interstage treble cuts and volume dividers) at 0.01 to 10 V peak, against
 // the targets:
@@ -103,8 +103,8 @@ void bench_multi_device() {
   const model::network one = test::cascade(1, opts);
   const model::operating_point op_one = model::solve_operating_point(one);
 
-  std::printf("DK engine on chains of stages (general solver: two stages in its two-JFET loop, three to five with M in\n"
-              "full, six with torn steps), %g kHz, %g Hz sine;\n",
+  std::printf("DK engine on chains of stages (general solver: two stages in its two-JFET loop, three to six with M in\n"
+              "full), %g kHz, %g Hz sine;\n",
               rate_hz / 1000.0, tone_hz);
   std::printf("per-stage rail filters, treble cut and volume divider between stages. per JFET = (chain time / stages)\n");
   std::printf("/ one-stage time, the chain and its first stage alone timed in turn, best of each.\n\n");

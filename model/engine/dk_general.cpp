@@ -86,22 +86,39 @@ constexpr double torn_coupling_share = 0.1;
 // Two JFETs: the Newton iterations process_pair makes itself before solve_general<2> takes
 // over (at 1 and 10 V on the bench's chain, 2.5 and 4.4 % of the samples needed a third).
 constexpr int pair_inline_iterations = 4;
-// Three to five JFETs: the same for process_n (callgrind, the bench's chains at 1 and 10 V:
+// Three to six JFETs: the same for process_n (callgrind, the bench's chains at 1 and 10 V:
 // 8 took 0.7-2 % fewer instructions a sample than 4).
 constexpr int wide_inline_iterations = 8;
-// Three to five JFETs (process_n): where a Newton step misses the acceptance
+// Three to six JFETs (process_n): where a Newton step misses the acceptance
 // (dk_options::rescue_steps), a rescue step is tried only if the step's residual bound t is
 // at most this many times tol_v. On the bench's chains of three stages at 1 and 10 V every
 // rescue that held had t below 1e4 tol_v, and half of those that failed had it above.
 constexpr double rescue_reach = 1e4;
-// The most JFETs process_n takes. At six its Gauss-Jordan inverse (O(k^3) a Newton
-// iteration, three packets a column) makes the sample as dear as the torn loop's or dearer:
-// time against it 0.97 at 0.1 V and 1.06 at 1 V (docs/engine-decisions.md).
-constexpr int full_max_devices = 5;
+// process_n: a gate junction whose conductance puts at most this into any entry of F Jf
+// (g times |F|'s largest entry in its current's column) is left out of the Newton step's M
+// (channel_m); its linear change g d then goes into the acceptance's remainders (and g e
+// into a rescue's), so the bound is as strict as with the junction in M. The residual it
+// leaves after the step is at most 1e-8 |d| a junction. Measured on the bench's chains: the
+// same Newton evaluations with 1e-12, 1e-10, 1e-8 and 1e-6; M from the channels on 54, 56
+// and 60 % of the steps at 1 V for the last three, and on a DC-coupled follower's chain at
+// 10 V on 91 % with 1e-8 against 20 % with 1e-12 (its follower's gate junction sits
+// between the two).
+constexpr double slight_junction = 1e-8;
+// process_n: M from the channels (channel_m) is updated for up to k / 2 significant
+// junctions, one rank-one update each (junction_update); more, and I - F Jf is eliminated.
+// An update costs about what one pivot block of that elimination does (k of them). Measured
+// (A/B, the bench's chains at 1 and 10 V): one update at most was best at three JFETs, two
+// to four alike at four and five, two or four better than one at six.
+constexpr int max_junction_updates(int k) noexcept { return k / 2; }
+// The most JFETs process_n takes (a stage file's most). At six it was as dear as the torn
+// loop while every step eliminated I - F Jf (O(k^3), three packets a column); with M from
+// the channels (channel_m) it takes 0.64-0.89 of the torn loop's time at 0.01-10 V
+// (docs/engine-decisions.md).
+constexpr int full_max_devices = 6;
 
 // The rows of the JFETs' constants in lanes, four JFETs a row (process_n, below).
 struct lane_consts {
-  enum : int { beta, vto, lambda, is, leak, inv_nvt, skip_arg, vcrit, small, k_junction, count };
+  enum : int { beta, vto, lambda, is, leak, inv_nvt, skip_arg, vcrit, small, k_junction, slight_gs, slight_gd, count };
 };
 
 // A column of N doubles (N even, fixed) as packets of four and a tail of two, in GCC's
@@ -1112,7 +1129,21 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
       c[4 * lane_consts::vcrit] = real ? dv.vcrit_v : std::numeric_limits<double>::infinity();
       c[4 * lane_consts::small] = real ? 0.01 * dv.nvt_v : std::numeric_limits<double>::infinity();
       c[4 * lane_consts::k_junction] = real ? 0.505 * dv.inv_nvt : 0.0;
+      const double fgs = real ? g.f_abs.col(3 * j).maxCoeff() : 0.0, fgd = real ? g.f_abs.col(3 * j + 1).maxCoeff() : 0.0;
+      c[4 * lane_consts::slight_gs] = fgs > 0.0 ? slight_junction / fgs : std::numeric_limits<double>::infinity();
+      c[4 * lane_consts::slight_gd] = fgd > 0.0 ? slight_junction / fgd : std::numeric_limits<double>::infinity();
     }
+  }
+  if (full_) {
+    const int lr = (k + 3) / 4, lanes = 4 * lr;
+    g.fch = detail::aligned_doubles(static_cast<std::size_t>(lanes * (2 * k + 2)));
+    std::fill_n(g.fch.data(), lanes * (2 * k + 2), 0.0);
+    for (int c = 0; c <= k; ++c)
+      for (int j = 0; j < k; ++j) {
+        const int col = 3 * (c < k ? c : j) + 2;  // c = k: each JFET's own channel
+        g.fch.data()[2 * c * lanes + j] = m_.f(2 * j, col);
+        g.fch.data()[(2 * c + 1) * lanes + j] = m_.f(2 * j + 1, col);
+      }
   }
   g.y_dc = m_.d_out.dot(q) + m_.e_out.dot(u) + m_.f_out.dot(g.dc.i);
   y_dc_ = sign_ * g.y_dc;
@@ -1236,7 +1267,7 @@ __attribute__((always_inline)) inline void general_solver::combine_warm(int n_rt
 }
 
 // M of ring point `slot` in full, from its factors, into the ring in columns of P rows
-// (three to five JFETs: process_n).
+// (three to six JFETs: process_n).
 void general_solver::ring_m_of(int slot) noexcept {
   port_set& pt = g_.ring[slot];
   ensure_factors(pt);
@@ -1285,7 +1316,7 @@ void general_solver::track(Eigen::MatrixXd& sensitivity) {
     // unfactored).
     g_.mi = Eigen::Map<const Eigen::Matrix4d>(g_.mring.data() + 16 * g_.head);
   } else if (full_ && !rescued) {
-    // So does the loop for three to five JFETs, in columns padded to a multiple of four rows.
+    // So does the loop for three to six JFETs, in columns padded to a multiple of four rows.
     const int np = 2 * m_.devices, rows = (np + 3) / 4 * 4;
     g_.mi = Eigen::Map<const Eigen::MatrixXd, 0, Eigen::OuterStride<>>(
         g_.mring.data() + static_cast<std::ptrdiff_t>(rows) * np * g_.head, np, np, Eigen::OuterStride<>(rows));
@@ -2231,13 +2262,15 @@ __attribute__((PINCHOFF_DK_FLATTEN target("avx2,fma"))) void general_solver::blo
   for (std::size_t k = 0; k < n; ++k) out[k] = process_pair(in[k]);
 }
 
-// Three to five JFETs (full_max_devices), the two-JFET loop's layout widened (process_n):
+// Three to six JFETs (full_max_devices), the two-JFET loop's layout widened (process_n):
 // the 2k port voltages, the residual, the step and each column of F, |F| and
 // M = (I - F Jf)^-1 in R = ceil(2k / 4) AVX2 registers, the rows past 2k zero; M formed in
-// full each Newton iteration by Gauss-Jordan elimination in 2 x 2 pivot blocks, one per
-// JFET, in place in the ring slot the warm start reads (gauss_jordan_blocks), or from
-// pivoted factors where a pivot block is not safely invertible or a multiplier grows above
-// 1e4 (pivoted_m). The same damped Newton, junction limiting, acceptance (the bound |M| t
+// full each Newton iteration, in place in the ring slot the warm start reads: from the k
+// channels (channel_m, a k x k inverse) and a rank-one update for each of up to k / 2
+// significant gate junctions (junction_update), the slight ones left to the remainders;
+// else by Gauss-Jordan elimination in 2 x 2 pivot blocks, one per JFET
+// (gauss_jordan_blocks), or from pivoted factors where a pivot block is not safely
+// invertible or a multiplier grows above 1e4 (pivoted_m). The same damped Newton, junction limiting, acceptance (the bound |M| t
 // itself), correction and warm start as solve_general; what is not settled in
 // wide_inline_iterations iterations, or not finite where the step may not be halved, goes
 // to solve_general<K> from where it stopped (wide_rest).
@@ -2339,6 +2372,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool gauss_jordan_bloc
   }
   return true;
 }
+
+
 }  // namespace
 
 namespace {
@@ -2494,6 +2529,15 @@ __attribute__((target("avx2,fma"), always_inline)) inline void add_product(const
   for (int r = 0; r < R; ++r) acc[r] = _mm256_add_pd(acc[r], b[r]);
 }
 
+// out = M x, as add_product.
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline void product_of(const double* m, const double* x,
+                                                                          __m256d* out) noexcept {
+#pragma GCC unroll 16
+  for (int r = 0; r < wide_dims<K>::R; ++r) out[r] = _mm256_setzero_pd();
+  add_product<K, false>(m, x, out);
+}
+
 // The largest entry of |M| t (the acceptance's bound on the distance to the solution).
 template <int K>
 __attribute__((target("avx2,fma"), always_inline)) inline double abs_product_max(const double* m,
@@ -2507,6 +2551,162 @@ __attribute__((target("avx2,fma"), always_inline)) inline double abs_product_max
 #pragma GCC unroll 16
   for (int r = 1; r < R; ++r) emax = _mm256_max_pd(emax, e[r]);
   return hmax_abs(emax);
+}
+
+// I - F Jf into `a` (NP x NP, columns of P rows) by column pairs, from F in columns of P rows
+// and the JFETs' ggs, ggd, gm and gds as rows (one entry a JFET).
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline void one_minus_f_jf_wide(const double* f, const double* ggs,
+                                                                                   const double* ggd, const double* gm,
+                                                                                   const double* gds,
+                                                                                   double* a) noexcept {
+  constexpr int R = wide_dims<K>::R, P = wide_dims<K>::P;
+#pragma GCC unroll 16
+  for (int j = 0; j < K; ++j) {
+    const double* fj = f + 3 * j * P;
+    const __m256d bs = _mm256_broadcast_sd(ggs + j), bd = _mm256_broadcast_sd(ggd + j),
+                  bm = _mm256_broadcast_sd(gm + j), bw = _mm256_broadcast_sd(gds + j);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      const __m256d f0 = _mm256_load_pd(fj + 4 * r), f1 = _mm256_load_pd(fj + P + 4 * r),
+                    f2 = _mm256_load_pd(fj + 2 * P + 4 * r);
+      const __m256d j0 = _mm256_fmadd_pd(f2, bm, _mm256_fmadd_pd(f1, bd, _mm256_mul_pd(f0, bs)));
+      const __m256d j1 = _mm256_fnmadd_pd(f1, bd, _mm256_mul_pd(f2, bw));
+      _mm256_store_pd(a + 2 * j * P + 4 * r, _mm256_sub_pd(unit_packet(2 * j, r), j0));
+      _mm256_store_pd(a + (2 * j + 1) * P + 4 * r, _mm256_sub_pd(unit_packet(2 * j + 1, r), j1));
+    }
+  }
+}
+
+// M = (I - F Jf)^-1 into `a` (as gauss_jordan_blocks leaves it) where no gate junction
+// conducts at the iterate: every ggs and ggd is zero, so are Jf's junction rows, and
+// I - F Jf = I - Fc G, with Fc F's K channel columns (NP x K) and G (K x NP) the channels'
+// derivatives (row j: gm_j at column 2j, gds_j at 2j + 1). By the Woodbury identity
+// (Golub & Van Loan, Matrix Computations, 4th ed., 2.1.4, from memory)
+//   M = I + Fc S^-1 G,  S = I - G Fc (K x K),
+// so column 2j of M is e_2j + gm_j Q_j and column 2j + 1 is e_2j+1 + gds_j Q_j, with
+// Q = Fc S^-1: a K x K elimination where gauss_jordan_blocks eliminates 2K x 2K. S^-1 by
+// Gauss-Jordan without interchanges in 1 x 1 pivots, rows in lanes (JFET j in lane j), the
+// same scheme as gauss_jordan_blocks. det(S) = det(I - F Jf) (Sylvester's determinant
+// identity): the one is singular where the other is. false (a not written) where a pivot
+// is not safely nonzero: S's diagonal entry formed with cancellation (|S_jj| not above 1e-3
+// of 1 + |gm_j F| + |gds_j F|, its two terms), the pivot after the elimination not above
+// 1e-3 of that entry, or a multiplier above 1e4; the caller then eliminates I - F Jf.
+// f: F in columns of P rows; fch: storage::fch; gm, gds: the channels' derivatives in lanes,
+// gmv, gdsv the same as rows of lanes in memory.
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline bool channel_m(const double* f, const double* fch,
+                                                                         const lane_currents* cl, const double* gmv,
+                                                                         const double* gdsv, double* a) noexcept {
+  using D = wide_dims<K>;
+  constexpr int R = D::R, P = D::P, L = (K + 3) / 4, C = 4 * L;
+  int bad = 0;
+#pragma GCC unroll 4
+  for (int l = 0; l < L; ++l) {
+    const __m256d t0 = _mm256_mul_pd(cl[l].gm, _mm256_load_pd(fch + 4 * (2 * K * L + l))),
+                  t1 = _mm256_mul_pd(cl[l].gds, _mm256_load_pd(fch + 4 * ((2 * K + 1) * L + l)));
+    const __m256d one = _mm256_set1_pd(1.0);
+    const __m256d d = _mm256_sub_pd(_mm256_sub_pd(one, t0), t1);
+    const __m256d mag = _mm256_add_pd(one, _mm256_add_pd(abs4(t0), abs4(t1)));
+    bad |= _mm256_movemask_pd(_mm256_cmp_pd(abs4(d), _mm256_mul_pd(_mm256_set1_pd(1e-3), mag), _CMP_NGT_UQ));
+  }
+  if (bad != 0) return false;
+  // S in columns of C rows (lanes past K zero), in memory: its pivots are read as scalars.
+  alignas(32) double s[K * C];
+#pragma GCC unroll 16
+  for (int c = 0; c < K; ++c)
+#pragma GCC unroll 4
+    for (int l = 0; l < L; ++l) {
+      const __m256d fe = _mm256_load_pd(fch + 4 * (2 * c * L + l)), fo = _mm256_load_pd(fch + 4 * ((2 * c + 1) * L + l));
+      _mm256_store_pd(s + c * C + 4 * l,
+                      _mm256_sub_pd(unit_packet(c, l), _mm256_fmadd_pd(cl[l].gds, fo, _mm256_mul_pd(cl[l].gm, fe))));
+    }
+  double diag[K];
+#pragma GCC unroll 16
+  for (int b = 0; b < K; ++b) diag[b] = s[b * C + b];
+#pragma GCC unroll 16
+  for (int b = 0; b < K; ++b) {
+    double* cs = s + b * C;
+    const double piv = cs[b];
+    if (!(std::fabs(piv) > 1e-3 * std::fabs(diag[b]))) return false;
+    const double pi = 1.0 / piv;
+    __m256d g[L];
+#pragma GCC unroll 4
+    for (int l = 0; l < L; ++l) g[l] = _mm256_sub_pd(_mm256_load_pd(cs + 4 * l), unit_packet(b, l));
+#pragma GCC unroll 16
+    for (int c = 0; c < K; ++c) {
+      if (c == b) continue;
+      double* cc = s + c * C;
+      const __m256d u = _mm256_set1_pd(pi * cc[b]);
+#pragma GCC unroll 4
+      for (int l = 0; l < L; ++l) _mm256_store_pd(cc + 4 * l, _mm256_fnmadd_pd(g[l], u, _mm256_load_pd(cc + 4 * l)));
+    }
+    const __m256d pv = _mm256_set1_pd(pi);
+    __m256d grow = _mm256_setzero_pd();
+#pragma GCC unroll 4
+    for (int l = 0; l < L; ++l) {
+      const __m256d n = _mm256_mul_pd(g[l], pv);
+      const long long q = 4 * l;
+      const __m256d keep = _mm256_castsi256_pd(
+          _mm256_setr_epi64x(q == b ? 0 : -1, q + 1 == b ? 0 : -1, q + 2 == b ? 0 : -1, q + 3 == b ? 0 : -1));
+      _mm256_store_pd(cs + 4 * l,
+                      _mm256_blendv_pd(_mm256_mul_pd(unit_packet(b, l), pv), _mm256_sub_pd(_mm256_setzero_pd(), n), keep));
+      grow = _mm256_max_pd(_mm256_and_pd(keep, abs4(n)), grow);
+    }
+    if (!(hmax_abs(grow) <= 1e4)) return false;
+  }
+  // Q_j = Fc (S^-1)_:j, then M's columns 2j and 2j + 1.
+#pragma GCC unroll 16
+  for (int j = 0; j < K; ++j) {
+    __m256d q[R];
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) q[r] = _mm256_setzero_pd();
+#pragma GCC unroll 16
+    for (int c = 0; c < K; ++c) {
+      const __m256d w = _mm256_broadcast_sd(s + j * C + c);
+      const double* fc = f + (3 * c + 2) * P;
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) q[r] = _mm256_fmadd_pd(_mm256_load_pd(fc + 4 * r), w, q[r]);
+    }
+    const __m256d gj = _mm256_broadcast_sd(gmv + j), dj = _mm256_broadcast_sd(gdsv + j);
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) {
+      _mm256_store_pd(a + 2 * j * P + 4 * r, _mm256_fmadd_pd(q[r], gj, unit_packet(2 * j, r)));
+      _mm256_store_pd(a + (2 * j + 1) * P + 4 * r, _mm256_fmadd_pd(q[r], dj, unit_packet(2 * j + 1, r)));
+    }
+  }
+  return true;
+}
+
+// M = (J - u v')^-1 from M = J^-1 in place (Sherman & Morrison; Golub & Van Loan, Matrix
+// Computations, 4th ed., 2.1.4, from memory): M + (M u) (v' M) / (1 - v' M u), for a gate
+// junction of JFET j that channel_m left out, u its current's column of F and v' its row of
+// Jf: g e_2j' (gate-source) or g (e_2j - e_2j+1)' (gate-drain, `drain`), g its conductance.
+// false (M left as it may be half-updated: the caller eliminates I - F Jf) where the
+// denominator 1 - x is formed with cancellation: |1 - x| not above 1e-3 of 1 + |x|.
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline bool junction_update(double* a, const double* f, int j,
+                                                                               bool drain, double g) noexcept {
+  using D = wide_dims<K>;
+  constexpr int NP = D::NP, R = D::R, P = D::P;
+  const double* u = f + (3 * j + (drain ? 1 : 0)) * P;
+  __m256d w[R];
+  product_of<K>(a, u, w);
+  alignas(32) double wv[P];
+#pragma GCC unroll 16
+  for (int r = 0; r < R; ++r) _mm256_store_pd(wv + 4 * r, w[r]);
+  const double x = g * (drain ? wv[2 * j] - wv[2 * j + 1] : wv[2 * j]);
+  const double den = 1.0 - x;
+  if (!(std::fabs(den) > 1e-3 * (1.0 + std::fabs(x)))) return false;
+  const double sc = g / den;
+#pragma GCC unroll 16
+  for (int c = 0; c < NP; ++c) {
+    double* mc = a + c * P;
+    const __m256d z = _mm256_set1_pd(sc * (drain ? mc[2 * j] - mc[2 * j + 1] : mc[2 * j]));
+#pragma GCC unroll 16
+    for (int r = 0; r < R; ++r) _mm256_store_pd(mc + 4 * r, _mm256_fmadd_pd(w[r], z, _mm256_load_pd(mc + 4 * r)));
+  }
+  return true;
 }
 
 }  // namespace
@@ -2555,9 +2755,11 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool remainder_step(
     const double* lc, const lane_currents* cl, const __m256d* gs, const __m256d* ds, const __m256d* dgs,
     const __m256d* dds, const double* rem_gs, const double* rem_gd, const double* id_lin, const double* id_rem,
     const __m256d* vn, const double* mt, const double* f, const double* fa, const double* excess, double tol,
-    pair_out out) noexcept {
+    const __m256d* off_gs, const __m256d* off_gd, pair_out out) noexcept {
   using D = wide_dims<K>;
   constexpr int NP = D::NP, R = D::R, P = D::P, L = (K + 3) / 4, LC = lane_consts::count;
+  // The junctions that M leaves out (off_gs, off_gd: all-ones lanes; channel_m): their
+  // linear changes, g d over d and g e over e, are remainders too (in F q and in R').
   if constexpr (!Rescue) {
     alignas(32) double none[4 * L] = {};
     alignas(32) double tj[P];
@@ -2572,7 +2774,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool remainder_step(
   // The junctions' series need their arguments below the exponential's limit (as
   // detail::correction_applies).
   int bad = 0;
-  alignas(32) double q[3][4 * L];
+  alignas(32) double q[3][4 * L], qf[2][4 * L];
 #pragma GCC unroll 4
   for (int l = 0; l < L; ++l) {
     const double* c = lc + 4 * LC * l;
@@ -2589,8 +2791,12 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool remainder_step(
       h = _mm256_fmadd_pd(x, h, _mm256_set1_pd(0.5));
       return _mm256_mul_pd(_mm256_mul_pd(g, d), _mm256_mul_pd(x, h));
     };
-    _mm256_store_pd(q[0] + 4 * l, series(cl[l].ggs, dgs[l]));
-    _mm256_store_pd(q[1] + 4 * l, series(cl[l].ggd, _mm256_sub_pd(dgs[l], dds[l])));
+    const __m256d dgd = _mm256_sub_pd(dgs[l], dds[l]);
+    const __m256d q0 = series(cl[l].ggs, dgs[l]), q1 = series(cl[l].ggd, dgd);
+    _mm256_store_pd(q[0] + 4 * l, q0);
+    _mm256_store_pd(q[1] + 4 * l, q1);
+    _mm256_store_pd(qf[0] + 4 * l, _mm256_add_pd(q0, _mm256_and_pd(off_gs[l], _mm256_mul_pd(cl[l].ggs, dgs[l]))));
+    _mm256_store_pd(qf[1] + 4 * l, _mm256_add_pd(q1, _mm256_and_pd(off_gd[l], _mm256_mul_pd(cl[l].ggd, dgd))));
     _mm256_store_pd(q[2] + 4 * l, Rescue ? _mm256_load_pd(id_rem + 4 * l) : _mm256_setzero_pd());
   }
   if (bad != 0) return false;
@@ -2600,7 +2806,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool remainder_step(
     __m256d a[R];
 #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) a[r] = _mm256_setzero_pd();
-    by_currents<K>(f, q[0], q[1], q[2], a);
+    by_currents<K>(f, qf[0], qf[1], q[2], a);
 #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) _mm256_store_pd(fq + 4 * r, a[r]);
   }
@@ -2624,12 +2830,15 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool remainder_step(
     large |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(abs4(egs), small, _CMP_NLE_UQ),
                                              _mm256_cmp_pd(abs4(egd), small, _CMP_NLE_UQ)));
     const __m256d k1 = _mm256_set1_pd(1.0101), k2 = _mm256_set1_pd(0.5101);
+    const __m256d lin_gs = _mm256_mul_pd(cl[l].ggs, abs4(egs)), lin_gd = _mm256_mul_pd(cl[l].ggd, abs4(egd));
     _mm256_store_pd(rr[0] + 4 * l,
-                    _mm256_mul_pd(_mm256_mul_pd(cl[l].ggs, abs4(egs)),
-                                  _mm256_mul_pd(inv_nvt, _mm256_fmadd_pd(k1, abs4(dgs[l]), _mm256_mul_pd(k2, abs4(egs))))));
+                    _mm256_fmadd_pd(lin_gs,
+                                    _mm256_mul_pd(inv_nvt, _mm256_fmadd_pd(k1, abs4(dgs[l]), _mm256_mul_pd(k2, abs4(egs)))),
+                                    _mm256_and_pd(off_gs[l], lin_gs)));
     _mm256_store_pd(rr[1] + 4 * l,
-                    _mm256_mul_pd(_mm256_mul_pd(cl[l].ggd, abs4(egd)),
-                                  _mm256_mul_pd(inv_nvt, _mm256_fmadd_pd(k1, abs4(dgd), _mm256_mul_pd(k2, abs4(egd))))));
+                    _mm256_fmadd_pd(lin_gd,
+                                    _mm256_mul_pd(inv_nvt, _mm256_fmadd_pd(k1, abs4(dgd), _mm256_mul_pd(k2, abs4(egd)))),
+                                    _mm256_and_pd(off_gd[l], lin_gd)));
     const __m256d id_end =
         _mm256_add_pd(_mm256_add_pd(cl[l].id, _mm256_load_pd(id_lin + 4 * l)), _mm256_load_pd(q[2] + 4 * l));
     const __m256d id_c = channel_current_lanes(c, cgs, cds);
@@ -2681,9 +2890,10 @@ template <int K>
 __attribute__((target("avx2,fma"), noinline)) bool wide_correct(
     const double* lc, const lane_currents* cl, const __m256d* gs, const __m256d* ds, const __m256d* dgs,
     const __m256d* dds, const double* rem_gs, const double* rem_gd, const double* id_lin, const __m256d* vn,
-    const double* mt, const double* f, const double* fa, const double* excess, double tol, pair_out out) noexcept {
+    const double* mt, const double* f, const double* fa, const double* excess, double tol, const __m256d* off_gs,
+    const __m256d* off_gd, pair_out out) noexcept {
   return remainder_step<K, false>(lc, cl, gs, ds, dgs, dds, rem_gs, rem_gd, id_lin, nullptr, vn, mt, f, fa, excess,
-                                  tol, out);
+                                  tol, off_gs, off_gd, out);
 }
 
 // Confirm mode (dk_options::confirm) at the point vpt of K JFETs: the exact devices (no
@@ -2845,33 +3055,54 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     // and the sub-steps take the sample).
     if (!std::isfinite(rn)) break;
 
-    // I - F Jf by column pairs into the ring slot, then M in place.
-#pragma GCC unroll 16
-    for (int j = 0; j < K; ++j) {
-      const double* fj = f + 3 * j * P;
-      const __m256d gs = _mm256_broadcast_sd(cur[3] + j), gd = _mm256_broadcast_sd(cur[4] + j),
-                    gm = _mm256_broadcast_sd(cur[5] + j), gds = _mm256_broadcast_sd(cur[6] + j);
-#pragma GCC unroll 16
-      for (int r = 0; r < R; ++r) {
-        const __m256d f0 = _mm256_load_pd(fj + 4 * r), f1 = _mm256_load_pd(fj + P + 4 * r),
-                      f2 = _mm256_load_pd(fj + 2 * P + 4 * r);
-        const __m256d j0 = _mm256_fmadd_pd(f2, gm, _mm256_fmadd_pd(f1, gd, _mm256_mul_pd(f0, gs)));
-        const __m256d j1 = _mm256_fnmadd_pd(f1, gd, _mm256_mul_pd(f2, gds));
-        _mm256_store_pd(mt + 2 * j * P + 4 * r, _mm256_sub_pd(unit_packet(2 * j, r), j0));
-        _mm256_store_pd(mt + (2 * j + 1) * P + 4 * r, _mm256_sub_pd(unit_packet(2 * j + 1, r), j1));
+    // M into the ring slot: from the channels alone where every gate junction is off or
+    // slight (channel_m; slight_junction), else I - F Jf by column pairs, then M in place.
+    int conducting = 0, n_significant = 0;
+    __m256d sig_gs[L], sig_gd[L], off_gs[L], off_gd[L];
+#pragma GCC unroll 4
+    for (int l = 0; l < L; ++l) {
+      const double* c = lc + 4 * LC * l;
+      conducting |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(cl[l].ggs, _mm256_setzero_pd(), _CMP_GT_OQ),
+                                                    _mm256_cmp_pd(cl[l].ggd, _mm256_setzero_pd(), _CMP_GT_OQ)));
+      sig_gs[l] = _mm256_cmp_pd(cl[l].ggs, _mm256_load_pd(c + 4 * lane_consts::slight_gs), _CMP_NLE_UQ);
+      sig_gd[l] = _mm256_cmp_pd(cl[l].ggd, _mm256_load_pd(c + 4 * lane_consts::slight_gd), _CMP_NLE_UQ);
+      n_significant += __builtin_popcount(_mm256_movemask_pd(sig_gs[l])) + __builtin_popcount(_mm256_movemask_pd(sig_gd[l]));
+    }
+    // by_channels: M from the channels and the significant junctions (junction_update on
+    // each); the slight junctions left out, their linear change a remainder below.
+    bool by_channels = n_significant <= max_junction_updates(K) && opt_.channel_inverse &&
+                       channel_m<K>(f, g.fch.data(), cl, cur[5], cur[6], mt);
+    if (by_channels && n_significant > 0) [[unlikely]] {
+#pragma GCC unroll 4
+      for (int l = 0; l < L && by_channels; ++l) {
+        const int mg = _mm256_movemask_pd(sig_gs[l]), md = _mm256_movemask_pd(sig_gd[l]);
+        for (int b = 0; b < 4 && by_channels; ++b) {
+          if (mg >> b & 1) by_channels = junction_update<K>(mt, f, 4 * l + b, false, cur[3][4 * l + b]);
+          if (by_channels && (md >> b & 1)) by_channels = junction_update<K>(mt, f, 4 * l + b, true, cur[4][4 * l + b]);
+        }
       }
     }
-    // A pivot block not safely invertible alone, or a multiplier above 1e4: M from I - F Jf
-    // factored with partial pivoting, as solve_general would (stats: pivoted).
-    if (!gauss_jordan_blocks<K>(mt) && !pivoted_m(mt, &cur[3][0], 4 * L)) [[unlikely]]
-      break;
+#pragma GCC unroll 4
+    for (int l = 0; l < L; ++l) {
+      const __m256d all = _mm256_castsi256_pd(_mm256_set1_epi64x(by_channels ? -1 : 0));
+      off_gs[l] = _mm256_andnot_pd(sig_gs[l], all);
+      off_gd[l] = _mm256_andnot_pd(sig_gd[l], all);
+    }
+    if (by_channels) {
+      ++stats_.channel_steps;
+      stats_.junction_updates += n_significant;
+    } else {
+      // A pivot block not safely invertible alone, or a multiplier above 1e4: M from
+      // I - F Jf factored with partial pivoting, as solve_general would (stats: pivoted).
+      one_minus_f_jf_wide<K>(f, cur[3], cur[4], cur[5], cur[6], mt);
+      if (!gauss_jordan_blocks<K>(mt) && !pivoted_m(mt, &cur[3][0], 4 * L)) [[unlikely]]
+        break;
+    }
     alignas(32) double rv[P];
 #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) _mm256_store_pd(rv + 4 * r, res[r]);
     __m256d d[R];
-#pragma GCC unroll 16
-    for (int r = 0; r < R; ++r) d[r] = _mm256_setzero_pd();
-    add_product<K, false>(mt, rv, d);
+    product_of<K>(mt, rv, d);
     alignas(32) double dd[P];
 #pragma GCC unroll 16
     for (int r = 0; r < R; ++r) _mm256_store_pd(dd + 4 * r, d[r]);
@@ -2936,8 +3167,11 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       alignas(32) double sr[8][4 * L];
 #pragma GCC unroll 4
       for (int l = 0; l < L; ++l) {
-        const lane_remainders q = remainders_lanes(lc + 4 * LC * l, cl[l], _mm256_add_pd(gs[l], dgs[l]),
-                                                   _mm256_add_pd(ds[l], dds[l]), dgs[l], dds[l]);
+        lane_remainders q = remainders_lanes(lc + 4 * LC * l, cl[l], _mm256_add_pd(gs[l], dgs[l]),
+                                             _mm256_add_pd(ds[l], dds[l]), dgs[l], dds[l]);
+        q.rem[0] = _mm256_add_pd(q.rem[0], _mm256_and_pd(off_gs[l], abs4(_mm256_mul_pd(cl[l].ggs, dgs[l]))));
+        q.rem[1] = _mm256_add_pd(q.rem[1],
+                                 _mm256_and_pd(off_gd[l], abs4(_mm256_mul_pd(cl[l].ggd, _mm256_sub_pd(dgs[l], dds[l])))));
         for (int m = 0; m < 3; ++m) {
           _mm256_store_pd(sr[m] + 4 * l, q.rem[m]);
           _mm256_store_pd(sr[3 + m] + 4 * l, q.mag[m]);
@@ -3016,13 +3250,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
         } else if (within) {
           // The correction (detail::correction_floor says why), where the remainders move
           // the point by more than a thousandth of tol_v and its own bound holds.
-          int conducting = 0;
-#pragma GCC unroll 4
-          for (int l = 0; l < L; ++l)
-            conducting |= _mm256_movemask_pd(_mm256_or_pd(_mm256_cmp_pd(cl[l].ggs, _mm256_setzero_pd(), _CMP_GT_OQ),
-                                                          _mm256_cmp_pd(cl[l].ggd, _mm256_setzero_pd(), _CMP_GT_OQ)));
           if (conducting != 0 && opt_.correct_junctions &&
-              wide_correct<K>(lc, cl, gs, ds, dgs, dds, sr[0], sr[1], sr[6], vn, mt, f, fa, excess, tol,
+              wide_correct<K>(lc, cl, gs, ds, dgs, dds, sr[0], sr[1], sr[6], vn, mt, f, fa, excess, tol, off_gs, off_gd,
                               pair_out{trial.v.data(), trial.i.data()})) [[unlikely]] {
             take_corrected();
             break;
@@ -3048,7 +3277,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       // junctions' from their series, the channel's exactly), where its own bound holds
       // (remainder_step); else the next Newton iteration, from vn.
       if (opt_.rescue_steps && hmax_abs(tmax) <= rescue_reach * tol &&
-          remainder_step<K, true>(lc, cl, gs, ds, dgs, dds, sr[0], sr[1], sr[6], sr[7], vn, mt, f, fa, excess, tol,
+          remainder_step<K, true>(lc, cl, gs, ds, dgs, dds, sr[0], sr[1], sr[6], sr[7], vn, mt, f, fa, excess, tol, off_gs, off_gd,
                                   pair_out{trial.v.data(), trial.i.data()})) {
         bool ok = true;
         if (opt_.confirm) [[unlikely]] {
@@ -3173,6 +3402,7 @@ void general_solver::process(const double* in, double* out, std::size_t n) noexc
       case 3: return block_n<3>(in, out, n);
       case 4: return block_n<4>(in, out, n);
       case 5: return block_n<5>(in, out, n);
+      case 6: return block_n<6>(in, out, n);
       default: break;
     }
   }

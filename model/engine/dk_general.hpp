@@ -8,10 +8,10 @@
 // dk_acceptance.hpp, dk_steps.hpp). Two JFETs on a processor with AVX2 + FMA take a sample
 // loop of their own (process_pair: the four port voltages in one register, dv/dp kept in
 // full), which hands what it does not settle in four Newton iterations to the general one;
-// three to five JFETs the same layout widened (process_n: dv/dp formed in full by
-// Gauss-Jordan elimination, the JFETs four to a register), whose own Newton hands over only
-// after eight iterations; so only six JFETs (and every count in the portable loop) take
-// torn steps. It meets the dk_solver interface (dk_solver.hpp) and
+// three to six JFETs the same layout widened (process_n: dv/dp formed in full from the
+// channels and the conducting junctions, or by Gauss-Jordan elimination; the JFETs four to
+// a register), whose own Newton hands over only after eight iterations; so torn steps are
+// taken where it hands over, in the portable loop and with full_inverse off. It meets the dk_solver interface (dk_solver.hpp) and
 // nothing else of the engine depends on its inside, so it can be replaced by any solver
 // that meets that interface. Every size is fixed when it is built: a sample allocates
 // nothing.
@@ -83,7 +83,7 @@ class general_solver : public dk_solver_base {
     Eigen::VectorXd mdl;                        // the warm start's products
     // Two JFETs (process_pair): dv/dp = (I - F Jf)^-1 of each ring point in full, 4 x 4
     // column-major, 16 doubles a slot in the ring's order.
-    // Three to five JFETs (process_n): the same in columns of P rows (2k rounded up to a
+    // Three to six JFETs (process_n): the same in columns of P rows (2k rounded up to a
     // multiple of 4, the rows past 2k zero), P x 2k a slot.
     detail::aligned_doubles mring;
     // process_n: F and |F| in columns of P rows; p_dc, E's generator column, skip_t, the last
@@ -95,6 +95,10 @@ class general_solver : public dk_solver_base {
     bool ring_rescued[4]{};
     detail::aligned_doubles wq;     // process_n: W's q rows of the current columns, P rows a column
     detail::aligned_doubles lanes;  // process_n: the JFETs' constants in lanes (dk_general.cpp, lane_consts)
+    // process_n, channel_m: F's entries from each channel current c to the JFETs' vgs and
+    // vds rows in lanes (JFET j in lane j), L registers each: vgs rows of c, then vds rows,
+    // c = 0..k-1; then the same of each JFET's own channel (c = j) in one pair of rows.
+    detail::aligned_doubles fch;
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
     Eigen::VectorXd junction_vcrit, junction_small;  // per port row 2j, 2j + 1: JFET j's vcrit_v, and 0.01 n Vt
     Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M
@@ -123,8 +127,8 @@ class general_solver : public dk_solver_base {
   void block_pair(const double* in, double* out, std::size_t n) noexcept;
   void pair_m_of(int slot) noexcept;
   void pair_rest(int& evals, bool attempt_failed) noexcept;
-  // Three to five JFETs with AVX2 + FMA: the same layout in ceil(2k / 4) registers a column,
-  // M = (I - F Jf)^-1 formed in full by 2 x 2 pivot blocks (dk_general.cpp, process_n).
+  // Three to six JFETs with AVX2 + FMA: the same layout in ceil(2k / 4) registers a column,
+  // M = (I - F Jf)^-1 formed in full (dk_general.cpp, process_n).
   template <int K>
   double process_n(double generator_v) noexcept;
   template <int K>
@@ -140,7 +144,7 @@ class general_solver : public dk_solver_base {
   std::array<double, 3> warm_{};
   bool wide_{false};  // the state update's AVX2 + FMA kernel (dk_general.cpp)
   bool pair_{false};  // two JFETs: process_pair (dk_general.cpp)
-  bool full_{false};  // three to five JFETs: process_n (dk_general.cpp)
+  bool full_{false};  // three to six JFETs: process_n (dk_general.cpp)
   int torn_holdoff_{0};   // samples left to solve from the factors after a torn step fell back (dk_general.cpp)
   int torn_predict_{1};   // sweeps of the warm start's prediction from a torn point (dk_general.cpp)
   storage g_;

@@ -34,7 +34,7 @@ struct dk_options {
   /// contracts, else from the factors as above. false (or block_factors false): from the
   /// factors always.
   bool torn_solve{true};
-  /// Three to five JFETs on a processor with AVX2 + FMA (and block_factors): the sample loop
+  /// Three to six JFETs on a processor with AVX2 + FMA (and block_factors): the sample loop
   /// that keeps M = (I - F Jf)^-1 in full, as two JFETs have (model/engine/dk_general.cpp,
   /// process_n), handing what it does not settle to the loop above. false: that loop.
   bool full_inverse{true};
@@ -42,6 +42,12 @@ struct dk_options {
   /// M from the currents' remainders (no device evaluation; model/engine/dk_general.cpp,
   /// remainder_step), accepted where its own bound holds; else the next Newton iteration.
   bool rescue_steps{true};
+  /// In that loop, where no gate junction conducts at the Newton iterate: M from the
+  /// channels alone, M = I + Fc (I - G Fc)^-1 G with Fc F's k channel columns and G their gm
+  /// and gds (k x k inverse, the Woodbury identity; model/engine/dk_general.cpp, channel_m),
+  /// instead of eliminating the 2k x 2k I - F Jf. The same matrix up to rounding. false:
+  /// the elimination always.
+  bool channel_inverse{true};
   /// The weight of that coupling in the acceptance bound: 1. Anything else makes the bound
   /// unsound; it exists so that a test can show the coupling is needed (0..1).
   double coupling_weight{1.0};
@@ -61,7 +67,9 @@ struct dk_stats {
   long long bound_misses{0};     ///< confirm mode: accepted points whose residual was too big
   long long pivoted{0};          ///< more than one JFET: Newton steps factored with pivoting, not by blocks
   long long torn_full{0};        ///< torn Newton steps that were computed from the factors after all
-  long long rescued{0};          ///< three to five JFETs: samples accepted after a step with the same M (rescue_steps)
+  long long rescued{0};          ///< three to six JFETs: samples accepted after a step with the same M (rescue_steps)
+  long long channel_steps{0};    ///< three to six JFETs: Newton steps whose M came from the channels (channel_inverse)
+  long long junction_updates{0}; ///< of those, the rank-one updates of M for a conducting gate junction
   double mean_evaluations() const noexcept { return samples ? double(evaluations) / double(samples) : 0.0; }
 
   /// The statistics of two runs together: the counts summed, the most in one sample the
@@ -76,6 +84,8 @@ struct dk_stats {
     pivoted += o.pivoted;
     torn_full += o.torn_full;
     rescued += o.rescued;
+    channel_steps += o.channel_steps;
+    junction_updates += o.junction_updates;
     return *this;
   }
 };
