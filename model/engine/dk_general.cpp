@@ -960,6 +960,47 @@ __attribute__((target("avx2,fma"))) void update_wide(const double* __restrict w,
   for (; r0 + 32 <= rows; r0 += 32) update_block<8>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
   for (; r0 < rows; r0 += 4) update_block<1>(w + r0, rows, start ? start + r0 : nullptr, x, cols, o + r0);
 }
+
+// update_block over K JFETs' current columns (igs, igd, id of each, x their offsets from the
+// DC point), a JFET's two junction columns passed over where both offsets are exactly zero:
+// a junction taken as -is (far reverse) now and at the DC point carries the same current.
+template <int P, int K>
+__attribute__((target("avx2,fma"), always_inline)) inline void update_currents_block(const double* __restrict w,
+                                                                                     int rows,
+                                                                                     const double* __restrict start,
+                                                                                     const double* __restrict x,
+                                                                                     double* __restrict o) noexcept {
+  __m256d a[P];
+  for (int q = 0; q < P; ++q) a[q] = _mm256_load_pd(start + 4 * q);
+  for (int j = 0; j < K; ++j) {
+    const double* wj = w + static_cast<std::ptrdiff_t>(3 * j) * rows;
+    if (x[3 * j] != 0.0 || x[3 * j + 1] != 0.0) {
+      const __m256d x0 = _mm256_broadcast_sd(x + 3 * j), x1 = _mm256_broadcast_sd(x + 3 * j + 1);
+      for (int q = 0; q < P; ++q) a[q] = _mm256_fmadd_pd(_mm256_load_pd(wj + 4 * q), x0, a[q]);
+      for (int q = 0; q < P; ++q) a[q] = _mm256_fmadd_pd(_mm256_load_pd(wj + rows + 4 * q), x1, a[q]);
+    }
+    const __m256d x2 = _mm256_broadcast_sd(x + 3 * j + 2);
+    for (int q = 0; q < P; ++q) a[q] = _mm256_fmadd_pd(_mm256_load_pd(wj + 2 * rows + 4 * q), x2, a[q]);
+  }
+  for (int q = 0; q < P; ++q) _mm256_store_pd(o + 4 * q, a[q]);
+}
+template <int K>
+__attribute__((target("avx2,fma"), always_inline)) inline void update_currents_wide(const double* __restrict w, int rows,
+                                                                                    const double* __restrict start,
+                                                                                    const double* __restrict x,
+                                                                                    double* __restrict o) noexcept {
+  switch (rows / 4) {
+    case 5: return update_currents_block<5, K>(w, rows, start, x, o);
+    case 6: return update_currents_block<6, K>(w, rows, start, x, o);
+    case 7: return update_currents_block<7, K>(w, rows, start, x, o);
+    case 8: return update_currents_block<8, K>(w, rows, start, x, o);
+    case 9: return update_currents_block<9, K>(w, rows, start, x, o);
+    case 10: return update_currents_block<10, K>(w, rows, start, x, o);
+    case 11: return update_currents_block<11, K>(w, rows, start, x, o);
+    case 12: return update_currents_block<12, K>(w, rows, start, x, o);
+    default: return update_wide(w, rows, start, x, 3 * K, o);
+  }
+}
 #endif
 
 }  // namespace
@@ -2245,8 +2286,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     const double* __restrict i_dc = g.dc.i.data();
     const double* __restrict il = g.last().i.data();
     for (int c = 0; c < 6; ++c) x_in[ns + 2 + c] = il[c] - i_dc[c];
-    update_wide(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2, 6,
-                g.out.data());
+    update_currents_wide<2>(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2,
+                            g.out.data());
     const double* __restrict o = g.out.data();
     vec_add_scaled(x_in, x_in, o, ns, 1.0);
     _mm256_storeu_pd(g.q.data(), _mm256_loadu_pd(o + ns));
@@ -3361,14 +3402,20 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       }
 #pragma GCC unroll 16
       for (int j = 0; j < K; ++j) {
-        const __m256d x0 = _mm256_broadcast_sd(x_in + ns + 2 + 3 * j), x1 = _mm256_broadcast_sd(x_in + ns + 3 + 3 * j),
-                      x2 = _mm256_broadcast_sd(x_in + ns + 4 + 3 * j);
+        const double* xj = x_in + ns + 2 + 3 * j;
+        // (A JFET's junction columns passed over where both offsets are zero, as
+        // update_currents_block.)
+        if (xj[0] != 0.0 || xj[1] != 0.0) {
+          const __m256d x0 = _mm256_broadcast_sd(xj), x1 = _mm256_broadcast_sd(xj + 1);
 #pragma GCC unroll 16
-        for (int r = 0; r < R; ++r) {
-          q0[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + 3 * j * P + 4 * r), x0, q0[r]);
-          q1[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + (3 * j + 1) * P + 4 * r), x1, q1[r]);
-          q2[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + (3 * j + 2) * P + 4 * r), x2, q2[r]);
+          for (int r = 0; r < R; ++r) {
+            q0[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + 3 * j * P + 4 * r), x0, q0[r]);
+            q1[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + (3 * j + 1) * P + 4 * r), x1, q1[r]);
+          }
         }
+        const __m256d x2 = _mm256_broadcast_sd(xj + 2);
+#pragma GCC unroll 16
+        for (int r = 0; r < R; ++r) q2[r] = _mm256_fmadd_pd(_mm256_load_pd(wq + (3 * j + 2) * P + 4 * r), x2, q2[r]);
       }
 #pragma GCC unroll 16
       for (int r = 0; r < R; ++r) {
@@ -3376,8 +3423,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
         _mm256_store_pd(pads + 5 * P + 4 * r, qr);  // (g.q, which the other loops read, not kept)
       }
     }
-    update_wide(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2, NI,
-                g.out.data());
+    update_currents_wide<K>(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2,
+                            g.out.data());
     const double* __restrict o = g.out.data();
     vec_add_scaled(x_in, x_in, o, ns, 1.0);
   }
