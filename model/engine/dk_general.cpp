@@ -964,12 +964,16 @@ __attribute__((target("avx2,fma"))) void update_wide(const double* __restrict w,
 // update_block over K JFETs' current columns (igs, igd, id of each, x their offsets from the
 // DC point), a JFET's two junction columns passed over where both offsets are exactly zero:
 // a junction taken as -is (far reverse) now and at the DC point carries the same current.
+// The first ns rows (the states' increments) are added onto the states `st` themselves (the
+// packets wholly among them not stored in o); the rest go to o.
 template <int P, int K>
 __attribute__((target("avx2,fma"), always_inline)) inline void update_currents_block(const double* __restrict w,
                                                                                      int rows,
                                                                                      const double* __restrict start,
                                                                                      const double* __restrict x,
-                                                                                     double* __restrict o) noexcept {
+                                                                                     double* __restrict o,
+                                                                                     double* __restrict st,
+                                                                                     int ns) noexcept {
   __m256d a[P];
   for (int q = 0; q < P; ++q) a[q] = _mm256_load_pd(start + 4 * q);
   for (int j = 0; j < K; ++j) {
@@ -982,23 +986,33 @@ __attribute__((target("avx2,fma"), always_inline)) inline void update_currents_b
     const __m256d x2 = _mm256_broadcast_sd(x + 3 * j + 2);
     for (int q = 0; q < P; ++q) a[q] = _mm256_fmadd_pd(_mm256_load_pd(wj + 2 * rows + 4 * q), x2, a[q]);
   }
-  for (int q = 0; q < P; ++q) _mm256_store_pd(o + 4 * q, a[q]);
+  for (int q = 0; q < P; ++q) {
+    if (4 * q + 4 <= ns)
+      _mm256_storeu_pd(st + 4 * q, _mm256_add_pd(_mm256_loadu_pd(st + 4 * q), a[q]));
+    else
+      _mm256_store_pd(o + 4 * q, a[q]);
+  }
+  for (int r = ns / 4 * 4; r < ns; ++r) st[r] += o[r];
 }
 template <int K>
 __attribute__((target("avx2,fma"), always_inline)) inline void update_currents_wide(const double* __restrict w, int rows,
                                                                                     const double* __restrict start,
                                                                                     const double* __restrict x,
-                                                                                    double* __restrict o) noexcept {
+                                                                                    double* __restrict o,
+                                                                                    double* __restrict st,
+                                                                                    int ns) noexcept {
   switch (rows / 4) {
-    case 5: return update_currents_block<5, K>(w, rows, start, x, o);
-    case 6: return update_currents_block<6, K>(w, rows, start, x, o);
-    case 7: return update_currents_block<7, K>(w, rows, start, x, o);
-    case 8: return update_currents_block<8, K>(w, rows, start, x, o);
-    case 9: return update_currents_block<9, K>(w, rows, start, x, o);
-    case 10: return update_currents_block<10, K>(w, rows, start, x, o);
-    case 11: return update_currents_block<11, K>(w, rows, start, x, o);
-    case 12: return update_currents_block<12, K>(w, rows, start, x, o);
-    default: return update_wide(w, rows, start, x, 3 * K, o);
+    case 5: return update_currents_block<5, K>(w, rows, start, x, o, st, ns);
+    case 6: return update_currents_block<6, K>(w, rows, start, x, o, st, ns);
+    case 7: return update_currents_block<7, K>(w, rows, start, x, o, st, ns);
+    case 8: return update_currents_block<8, K>(w, rows, start, x, o, st, ns);
+    case 9: return update_currents_block<9, K>(w, rows, start, x, o, st, ns);
+    case 10: return update_currents_block<10, K>(w, rows, start, x, o, st, ns);
+    case 11: return update_currents_block<11, K>(w, rows, start, x, o, st, ns);
+    case 12: return update_currents_block<12, K>(w, rows, start, x, o, st, ns);
+    default:
+      update_wide(w, rows, start, x, 3 * K, o);
+      vec_add_scaled(st, st, o, ns, 1.0);
   }
 }
 #endif
@@ -2287,9 +2301,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     const double* __restrict il = g.last().i.data();
     for (int c = 0; c < 6; ++c) x_in[ns + 2 + c] = il[c] - i_dc[c];
     update_currents_wide<2>(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2,
-                            g.out.data());
+                            g.out.data(), x_in, ns);
     const double* __restrict o = g.out.data();
-    vec_add_scaled(x_in, x_in, o, ns, 1.0);
     _mm256_storeu_pd(g.q.data(), _mm256_loadu_pd(o + ns));
   }
   ++stats_.samples;
@@ -3424,9 +3437,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
       }
     }
     update_currents_wide<K>(g.w.data() + static_cast<std::ptrdiff_t>(ns + 2) * rows, rows, g.pre.data(), x_in + ns + 2,
-                            g.out.data());
-    const double* __restrict o = g.out.data();
-    vec_add_scaled(x_in, x_in, o, ns, 1.0);
+                            g.out.data(), x_in, ns);
   }
   ++stats_.samples;
   stats_.evaluations += evals;
