@@ -2324,10 +2324,11 @@ __attribute__((PINCHOFF_DK_FLATTEN target("avx2,fma"))) void general_solver::blo
 // significant gate junctions (junction_update), the slight ones left to the remainders;
 // else by Gauss-Jordan elimination in 2 x 2 pivot blocks, one per JFET
 // (gauss_jordan_blocks), or from pivoted factors where a pivot block is not safely
-// invertible or a multiplier grows above 1e4 (pivoted_m). The same damped Newton, junction limiting, acceptance (the bound |M| t
-// itself), correction and warm start as solve_general; what is not settled in
-// wide_inline_iterations iterations, or not finite where the step may not be halved, goes
-// to solve_general<K> from where it stopped (wide_rest).
+// invertible or a multiplier grows above 1e4 (pivoted_m). The same damped Newton, junction
+// limiting, acceptance (the bound |M| t itself), correction and warm start as
+// solve_general; what is not settled in wide_inline_iterations iterations, or not finite
+// where the step may not be halved, goes to solve_general<K> from where it stopped
+// (wide_rest).
 namespace {
 template <int K>
 struct wide_dims {
@@ -2426,7 +2427,6 @@ __attribute__((target("avx2,fma"), always_inline)) inline bool gauss_jordan_bloc
   }
   return true;
 }
-
 
 }  // namespace
 
@@ -2632,8 +2632,9 @@ __attribute__((target("avx2,fma"), always_inline)) inline void one_minus_f_jf_wi
   }
 }
 
-// M = (I - F Jf)^-1 into `a` (as gauss_jordan_blocks leaves it) where no gate junction
-// conducts at the iterate: every ggs and ggd is zero, so are Jf's junction rows, and
+// M = (I - F Jf)^-1 into `a` (as gauss_jordan_blocks leaves it) with the gate junctions
+// left out of Jf (process_n leaves out the off and the slight ones, slight_junction, and adds
+// the significant ones after, junction_update). Without the junctions' rows,
 // I - F Jf = I - Fc G, with Fc F's K channel columns (NP x K) and G (K x NP) the channels'
 // derivatives (row j: gm_j at column 2j, gds_j at 2j + 1). By the Woodbury identity
 // (Golub & Van Loan, Matrix Computations, 4th ed., 2.1.4, from memory)
@@ -2646,8 +2647,8 @@ __attribute__((target("avx2,fma"), always_inline)) inline void one_minus_f_jf_wi
 // is not safely nonzero: S's diagonal entry formed with cancellation (|S_jj| not above 1e-3
 // of 1 + |gm_j F| + |gds_j F|, its two terms), the pivot after the elimination not above
 // 1e-3 of that entry, or a multiplier above 1e4; the caller then eliminates I - F Jf.
-// f: F in columns of P rows; fch: storage::fch; gm, gds: the channels' derivatives in lanes,
-// gmv, gdsv the same as rows of lanes in memory.
+// f: F in columns of P rows; fch: storage::fch; cl: the devices at the iterate in lanes;
+// gmv, gdsv: their gm and gds as rows of lanes in memory.
 template <int K>
 __attribute__((target("avx2,fma"), always_inline)) inline bool channel_m(const double* f, const double* fch,
                                                                          const lane_currents* cl, const double* gmv,
