@@ -42,13 +42,14 @@ struct dk_options {
   /// M from the currents' remainders (no device evaluation; model/engine/dk_general.cpp,
   /// remainder_step), accepted where its own bound holds; else the next Newton iteration.
   bool rescue_steps{true};
-  /// In that loop, where no gate junction conducts at the Newton iterate: M from the
-  /// channels alone, M = I + Fc (I - G Fc)^-1 G with Fc F's k channel columns and G their gm
-  /// and gds (k x k inverse, the Woodbury identity; model/engine/dk_general.cpp, channel_m),
-  /// instead of eliminating the 2k x 2k I - F Jf. The same matrix up to rounding. false:
-  /// the elimination always.
+  /// In that loop: M from the channels, M = I + Fc (I - G Fc)^-1 G with Fc F's k channel
+  /// columns and G their gm and gds (a k x k inverse, the Woodbury identity;
+  /// model/engine/dk_general.cpp, channel_m), each conducting gate junction added by a
+  /// rank-one update (up to k / 2 of them, junction_update) and the slightly conducting ones
+  /// left to the acceptance's remainders, instead of eliminating the 2k x 2k I - F Jf. The
+  /// same matrix up to rounding. false: the elimination always.
   bool channel_inverse{true};
-  /// The weight of that coupling in the acceptance bound: 1. Anything else makes the bound
+  /// The weight of the torn step's coupling (torn_solve) in the acceptance bound: 1. Anything else makes the bound
   /// unsound; it exists so that a test can show the coupling is needed (0..1).
   double coupling_weight{1.0};
   /// Two JFETs: correct an accepted point for its junctions' remainders (one more step

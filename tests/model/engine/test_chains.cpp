@@ -31,6 +31,23 @@ using namespace pinchoff;
 
 constexpr double fs_hz = 384000.0;  // 8 x 48 kHz
 
+// The fixture's chain of k stages with per-stage rail filters (a DC-coupled follower in
+// every second stage where `dc`), and its DC point.
+struct rail_chain {
+  model::network net;
+  model::operating_point op;
+};
+rail_chain rail_cascade(int k, bool dc) {
+  test::cascade_options o;
+  o.dc_follower = dc;
+  o.rail_filters = true;
+  rail_chain c{test::cascade(k, o), {}};
+  c.op = model::solve_operating_point(c.net);
+  return c;
+}
+
+// Sample n of a 1 kHz sine of `amp` volts peak at fs_hz.
+double tone(double amp, int n) { return amp * std::sin(2.0 * std::numbers::pi * 1000.0 * n / fs_hz); }
 
 // The engine and the reference side by side on `samples` samples of a 1 kHz sine
 // (tests/support/engine_vs_reference.hpp, which says how both start).
@@ -215,11 +232,9 @@ TEST_CASE("chains of two to seven stages: Newton steps factored by 2 x 2 blocks 
   confirm.confirm = true;
   for (int k = 2; k <= 7; ++k) {  // 7: the run-time sizes
     for (const bool dc : {false, true}) {
-      test::cascade_options o;
-      o.dc_follower = dc;
-      o.rail_filters = true;
-      const model::network net = test::cascade(k, o);
-      const model::operating_point op = model::solve_operating_point(net);
+      const rail_chain chain = rail_cascade(k, dc);
+      const model::network& net = chain.net;
+      const model::operating_point& op = chain.op;
       for (const double amp : {0.01, 1.0, 10.0}) {
         CAPTURE(k);
         CAPTURE(dc);
@@ -227,7 +242,7 @@ TEST_CASE("chains of two to seven stages: Newton steps factored by 2 x 2 blocks 
         model::dk_engine blocks(net, op, fs_hz), pivots(net, op, fs_hz, pivoted), checked(net, op, fs_hz, confirm);
         double worst_out = 0.0, worst_ports = 0.0;
         for (int n = 0; n < 1600; ++n) {
-          const double u = amp * std::sin(2.0 * std::numbers::pi * 1000.0 * n / fs_hz);
+          const double u = tone(amp, n);
           const double yb = blocks.process(u), yp = pivots.process(u);
           checked.process(u);
           worst_out = std::max(worst_out, std::fabs(yb - yp));
@@ -305,11 +320,9 @@ TEST_CASE("three to six stages: M from the channels and a rank-one update per co
   if (!model::detail::wide_kernels_available()) return;
   for (int k = 3; k <= 6; ++k)
     for (const bool dc : {false, true}) {
-      test::cascade_options o;
-      o.dc_follower = dc;
-      o.rail_filters = true;
-      const model::network net = test::cascade(k, o);
-      const model::operating_point op = model::solve_operating_point(net);
+      const rail_chain chain = rail_cascade(k, dc);
+      const model::network& net = chain.net;
+      const model::operating_point& op = chain.op;
       for (const double amp : {0.01, 1.0, 10.0}) {
         CAPTURE(k);
         CAPTURE(dc);
@@ -317,7 +330,7 @@ TEST_CASE("three to six stages: M from the channels and a rank-one update per co
         model::dk_engine by_channels(net, op, fs_hz), by_blocks(net, op, fs_hz, eliminate);
         double worst = 0.0;
         for (int n = 0; n < 1600; ++n) {
-          const double u = amp * std::sin(2.0 * std::numbers::pi * 1000.0 * n / fs_hz);
+          const double u = tone(amp, n);
           worst = std::max(worst, std::fabs(by_channels.process(u) - by_blocks.process(u)));
           for (int j = 0; j < k; ++j)
             worst = std::max(worst, (by_channels.ports_v(j) - by_blocks.ports_v(j)).cwiseAbs().maxCoeff());
@@ -348,15 +361,12 @@ TEST_CASE("two and three stages, three Newton iterations an attempt: the samples
   few.max_iterations = 3;
   for (const int k : {2, 3})
   for (const bool dc : {false, true}) {
-    test::cascade_options o;
-    o.dc_follower = dc;
-    o.rail_filters = true;
-    const model::network net = test::cascade(k, o);
-    const model::operating_point op = model::solve_operating_point(net);
+    const rail_chain chain = rail_cascade(k, dc);
+    const model::network& net = chain.net;
     CAPTURE(k);
     CAPTURE(dc);
-    model::dk_engine eng(net, op, fs_hz, few);
-    for (int n = 0; n < 1600; ++n) eng.process(20.0 * std::sin(2.0 * std::numbers::pi * 1000.0 * n / fs_hz));
+    model::dk_engine eng(net, chain.op, fs_hz, few);
+    for (int n = 0; n < 1600; ++n) eng.process(tone(20.0, n));
     CHECK(eng.stats().substepped > 0);
     CHECK(eng.stats().failed == 0);
     CHECK(eng.stats().max_evaluations > 3);
