@@ -118,7 +118,8 @@ constexpr int full_max_devices = 6;
 
 // The rows of the JFETs' constants in lanes, four JFETs a row (process_n, below).
 struct lane_consts {
-  enum : int { beta, vto, lambda, is, leak, inv_nvt, skip_arg, vcrit, small, k_junction, slight_gs, slight_gd, count };
+  enum : int { beta, vto, lambda, is, leak, inv_nvt, skip_arg, vcrit, small, k_junction, slight_gs, slight_gd, knee_gs,
+                knee_gd, count };
 };
 
 // A column of N doubles (N even, fixed) as packets of four and a tail of two, in GCC's
@@ -1109,10 +1110,20 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
   g.skip_t.setZero(np);
   g.junction_vcrit.resize(np);
   g.junction_small.resize(np);
+  g.guess_knee.resize(np);
   for (int j = 0; j < k; ++j) {
     const detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
     g.junction_vcrit[2 * j] = g.junction_vcrit[2 * j + 1] = dv.vcrit_v;
     g.junction_small[2 * j] = g.junction_small[2 * j + 1] = 0.01 * dv.nvt_v;
+    // The guess's knees (solve_general): where the junction's conductance times the
+    // network's resistance at the junction (its diagonal entry of F) reaches 1.
+    const double self_gs = std::fabs(m_.f(2 * j, 3 * j));
+    const double self_gd = std::fabs(m_.f(2 * j, 3 * j + 1) - m_.f(2 * j + 1, 3 * j + 1));
+    for (int q = 0; q < 2; ++q) {
+      const double self = q == 0 ? self_gs : self_gd;
+      const double knee = dv.is_a > 0.0 && self > 0.0 ? dv.nvt_v * std::log(dv.nvt_v / (dv.is_a * self)) : dv.vcrit_v;
+      g.guess_knee[2 * j + q] = std::min(dv.vcrit_v, knee);
+    }
   }
   for (int j = 0; j < k; ++j) {
     detail::device_consts& dv = g.dev[static_cast<std::size_t>(j)];
@@ -1187,6 +1198,8 @@ general_solver::general_solver(const network& net, const operating_point& op, dk
       const double fgs = real ? g.f_abs.col(3 * j).maxCoeff() : 0.0, fgd = real ? g.f_abs.col(3 * j + 1).maxCoeff() : 0.0;
       c[4 * lane_consts::slight_gs] = fgs > 0.0 ? slight_junction / fgs : std::numeric_limits<double>::infinity();
       c[4 * lane_consts::slight_gd] = fgd > 0.0 ? slight_junction / fgd : std::numeric_limits<double>::infinity();
+      c[4 * lane_consts::knee_gs] = real ? g.guess_knee[2 * j] : std::numeric_limits<double>::infinity();
+      c[4 * lane_consts::knee_gd] = real ? g.guess_knee[2 * j + 1] : std::numeric_limits<double>::infinity();
     }
   }
   if (full_) {
@@ -1391,6 +1404,32 @@ void general_solver::track(Eigen::MatrixXd& sensitivity) {
   apply_factor(g_.cj, g_.md, sensitivity);
 }
 
+// A guess extrapolated past a corner of the waveform can put a gate junction far forward
+// where the solution has it off: Newton then walks down the exponential by about n Vt an
+// iteration (up to 40 evaluations a sample where the bench's chains clip at 10 V). Each
+// JFET's part of the guess is limited as a Newton step from the point it was extrapolated
+// from (pnjlim, Nagel 1975), with the junction's knee in place of vcrit: where its
+// conductance times the network's resistance at the junction (F's diagonal entry) reaches
+// 1, at most vcrit (storage::guess_knee).
+__attribute__((noinline)) void general_solver::limit_guess(double* v, const double* from) const noexcept {
+  const int k = m_.devices;
+  for (int j = 0; j < k; ++j) {
+    const double gs = v[2 * j], gd = v[2 * j] - v[2 * j + 1];
+    if (!(gs > g_.guess_knee[2 * j] || gd > g_.guess_knee[2 * j + 1])) continue;
+    const double nvt = g_.dev[static_cast<std::size_t>(j)].nvt_v;
+    const double gs0 = from[2 * j], gd0 = from[2 * j] - from[2 * j + 1];
+    const double ls = limit_junction(gs, gs0, nvt, g_.guess_knee[2 * j]);
+    const double ld = limit_junction(gd, gd0, nvt, g_.guess_knee[2 * j + 1]);
+    double alpha = 1.0;
+    if (ls != gs) alpha = std::min(alpha, (ls - gs0) / (gs - gs0));
+    if (ld != gd) alpha = std::min(alpha, (ld - gd0) / (gd - gd0));
+    if (alpha < 1.0 && alpha >= 0.0) {
+      v[2 * j] = from[2 * j] + alpha * (v[2 * j] - from[2 * j]);
+      v[2 * j + 1] = from[2 * j + 1] + alpha * (v[2 * j + 1] - from[2 * j + 1]);
+    }
+  }
+}
+
 // Newton on r(v) = p + F i(v) - v = 0 from `guess`, for k JFETs; the argument of
 // newton_iteration() (dk_single.cpp) carried over, with the same acceptance. After the step
 // dv computed at v, device j's currents at v + dv differ from their linearisation by a
@@ -1406,8 +1445,8 @@ void general_solver::track(Eigen::MatrixXd& sensitivity) {
 // K > 0: the number of JFETs at compile time (fixed-size views of the engine's storage, so
 // the small products unroll); K = 0: any number, at run time.
 template <int K>
-bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd& guess, port_set& out,
-                              int& evals) noexcept {
+bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::VectorXd& guess, const double* from,
+                                   port_set& out, int& evals) noexcept {
   using vec_p = Eigen::Matrix<double, ports_of(K), 1>;
   using vec_i = Eigen::Matrix<double, currents_of(K), 1>;
   using mat_f = Eigen::Matrix<double, ports_of(K), currents_of(K)>;
@@ -1424,6 +1463,7 @@ bool general_solver::solve_general(const Eigen::VectorXd& p_in, const Eigen::Vec
   using detail::acceptance_round_k;
   using detail::rounding_allowance_v;
   v = Eigen::Map<const vec_p>(guess.data(), np);
+  if (from != nullptr) limit_guess(v.data(), from);
   base = v;
   step.setZero();
   double rn_base = std::numeric_limits<double>::infinity();
@@ -1820,7 +1860,7 @@ __attribute__((noinline)) void general_solver::substep_general(const Eigen::Vect
       factors_solve_n<lu_size_of(K)>(g.cur_pt.lu.data(), static_cast<int>(g.dp.size()), g.cur_pt.piv.data(),
                                      g.cur_pt.blocked, g.mdl.data(), g.cur_pt.torn ? 2 : 0);
       g.guess = g.cur_pt.v + g.mdl;
-      if (!s.solve_general<K>(g.pj, g.guess, g.next_pt, evals)) return false;
+      if (!s.solve_general<K>(g.pj, g.guess, g.cur_pt.v.data(), g.next_pt, evals)) return false;
       g.cur_pt = g.next_pt;
       g.pc = g.pj;
       return true;
@@ -1869,7 +1909,7 @@ double general_solver::process_k(double generator_v) noexcept {
   int evals = 0;
   if (torn_holdoff_ > 0) --torn_holdoff_;
   port_set& trial = g.trial();
-  if (!solve_general<K>(g.p, g.guess, trial, evals)) substep_general<K>(g.p, trial, evals);
+  if (!solve_general<K>(g.p, g.guess, g.last().v.data(), trial, evals)) substep_general<K>(g.p, trial, evals);
 
   // The trial becomes the last point; the two before it stay in the ring for the next
   // warm start (nothing copied).
@@ -1929,7 +1969,8 @@ __attribute__((PINCHOFF_DK_FLATTEN target("avx2,fma"))) void general_solver::blo
 // block_abs_bound_n bounds from above) and the same warm start as solve_general; up to
 // pair_inline_iterations iterations here, and anything else (a junction step to limit, a
 // step to damp, factors that need pivoting, more iterations) by solve_general<2> from
-// where they stopped (pair_rest).
+// where they stopped (pair_rest; the warm start limited here as solve_general limits its
+// guess: limit_guess).
 namespace {
 __attribute__((target("avx2,fma"), always_inline)) inline double hmax_abs(__m256d x) noexcept {
   const __m256d a = _mm256_andnot_pd(_mm256_set1_pd(-0.0), x);
@@ -2087,7 +2128,7 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
 
 __attribute__((noinline)) void general_solver::pair_rest(int& evals, bool attempt_failed) noexcept {
   port_set& trial = g_.trial();
-  if (attempt_failed || !solve_general<pair_general_k>(g_.p, g_.guess, trial, evals))
+  if (attempt_failed || !solve_general<pair_general_k>(g_.p, g_.guess, nullptr, trial, evals))
     substep_general<pair_general_k>(g_.p, trial, evals);
   pair_m_of((g_.head + 1) & 3);
 }
@@ -2115,6 +2156,16 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
     v = mul4(g.mring.data() + 16 * ((g.head - h) & 3), s, v);
   }
 
+  // The guess limited where a junction would rise past its knee (limit_guess).
+  {
+    const __m256d junctions = _mm256_sub_pd(_mm256_permute_pd(v, 0), _mm256_and_pd(v, _mm256_castsi256_pd(_mm256_setr_epi64x(0, -1, 0, -1))));
+    if (_mm256_movemask_pd(_mm256_cmp_pd(junctions, _mm256_loadu_pd(g.guess_knee.data()), _CMP_GT_OQ)) != 0) [[unlikely]] {
+      alignas(32) double gv[4];
+      _mm256_store_pd(gv, v);
+      limit_guess(gv, g.last().v.data());
+      v = _mm256_load_pd(gv);
+    }
+  }
   const int slot = (g.head + 1) & 3;
   port_set& trial = g.trial();
   double* mt = g.mring.data() + 16 * slot;
@@ -2982,7 +3033,8 @@ __attribute__((target("avx2,fma"), noinline)) bool confirmed_at(const detail::de
 }
 
 // Where the inline iterations of process_n stopped, solve_general<K> (or the sub-steps)
-// goes on; M of the point it accepts into the ring (ring_m_of).
+// goes on; M of the point it accepts into the ring (ring_m_of). Its guess, an iterate or
+// the warm start process_n has limited already, is not limited again.
 #if defined(PINCHOFF_RUNTIME_SIZES)
 template <int K>
 constexpr int wide_general_k = 0;
@@ -2994,7 +3046,7 @@ constexpr int wide_general_k = K;
 template <int K>
 __attribute__((noinline)) void general_solver::wide_rest(int& evals, bool attempt_failed) noexcept {
   port_set& trial = g_.trial();
-  if (attempt_failed || !solve_general<wide_general_k<K>>(g_.p, g_.guess, trial, evals))
+  if (attempt_failed || !solve_general<wide_general_k<K>>(g_.p, g_.guess, nullptr, trial, evals))
     substep_general<wide_general_k<K>>(g_.p, trial, evals);
   ring_m_of((g_.head + 1) & 3);
 }
@@ -3056,6 +3108,27 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   alignas(32) double cur[7][4 * L];
   lane_currents cl[L];
   __m256d gs[L], ds[L];
+  // The guess limited where a junction would rise past its knee (limit_guess).
+  {
+    int above = 0;
+#pragma GCC unroll 4
+    for (int l = 0; l < L; ++l) {
+      __m256d a, b;
+      lanes_of(v[2 * l], 2 * l + 1 < R ? v[2 * l + 1] : _mm256_setzero_pd(), a, b);
+      const double* c = lc + 4 * LC * l;
+      above |= _mm256_movemask_pd(
+          _mm256_or_pd(_mm256_cmp_pd(a, _mm256_load_pd(c + 4 * lane_consts::knee_gs), _CMP_GT_OQ),
+                       _mm256_cmp_pd(_mm256_sub_pd(a, b), _mm256_load_pd(c + 4 * lane_consts::knee_gd), _CMP_GT_OQ)));
+    }
+    if (above != 0) [[unlikely]] {
+      alignas(32) double gv[P];
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) _mm256_store_pd(gv + 4 * r, v[r]);
+      limit_guess(gv, pads + 3 * P);
+#pragma GCC unroll 16
+      for (int r = 0; r < R; ++r) base[r] = restart[r] = v[r] = _mm256_load_pd(gv + 4 * r);
+    }
+  }
   const int inline_iterations = std::min(opt_.max_iterations, wide_inline_iterations);
   bool rescued = false;
   // A point that remainder_step stored in trial (corrected or rescued) accepted, with the

@@ -101,6 +101,7 @@ class general_solver : public dk_solver_base {
     detail::aligned_doubles fch;
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
     Eigen::VectorXd junction_vcrit, junction_small;  // per port row 2j, 2j + 1: JFET j's vcrit_v, and 0.01 n Vt
+    Eigen::VectorXd guess_knee;  // JFET j's gs (2j) and gd (2j + 1) junction knees for the guess (solve_general)
     Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M
     Eigen::MatrixXd track_lu;                   // track() after a torn point: I - F Jf's factors
     std::vector<int> track_piv;
@@ -115,8 +116,12 @@ class general_solver : public dk_solver_base {
   void block_wide(const double* in, double* out, std::size_t n) noexcept;
   template <int K>
   double process_k(double generator_v) noexcept;
+  // v (2k port voltages) limited where a junction would rise past its knee from `from`.
+  void limit_guess(double* v, const double* from) const noexcept;
+  // from: the point `guess` was extrapolated from (its junctions limit the guess), or null.
   template <int K>
-  bool solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& guess, port_set& out, int& evals) noexcept;
+  bool solve_general(const Eigen::VectorXd& p, const Eigen::VectorXd& guess, const double* from, port_set& out,
+                     int& evals) noexcept;
   template <int K>
   void substep_general(const Eigen::VectorXd& p, port_set& out, int& evals) noexcept;
   // Two JFETs with AVX2 + FMA: the sample with the four port voltages in one register and

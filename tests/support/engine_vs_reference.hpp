@@ -23,6 +23,7 @@ struct side_by_side {
   std::vector<double> max_vgs_v;     ///< per JFET, network signs
   std::vector<double> min_vgst_v;    ///< per JFET, the lowest vgs - vp (below 0: cut off), network signs
   long long engine_failed{0}, reference_failed{0};
+  int engine_max_evaluations{0};   ///< the most Newton evaluations the engine took in one sample
   /// JFETs whose gate-source junction went forward of `v` on some sample.
   int gate_conducting(double v = 0.4) const {
     return static_cast<int>(std::count_if(max_vgs_v.begin(), max_vgs_v.end(), [v](double x) { return x > v; }));
@@ -61,6 +62,7 @@ inline side_by_side engine_against_reference(const model::network& net, double a
     }
   }
   c.engine_failed = eng.stats().failed;
+  c.engine_max_evaluations = eng.stats().max_evaluations;
   c.reference_failed = ref.stats().failed;
   return c;
 }
