@@ -1259,6 +1259,8 @@ void general_solver::reset() {
   }
   torn_holdoff_ = 0;
   g.p_last = g.p_dc;
+  std::fill_n(g.guess_mean, 4, 0.0);
+  std::fill_n(g.guess_extrapolated, 4, 0.0);
   stats_ = {};
 }
 
@@ -2145,16 +2147,26 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
 
   // Warm start (as process_k): the last solution moved along the step of p by M at the
   // last three points, Adams-Bashforth weights.
+  // Where the trapezoidal rule rings at Nyquist on a node a conducting junction loads (a
+  // follower's gate held forward), M alternates from sample to sample and the extrapolation
+  // of the three Ms overshoots; the mean of the last two Ms does not. Whichever of the two
+  // guesses came closer to the last sample's solution is taken.
   alignas(32) double dp[4];
   _mm256_store_pd(dp, _mm256_sub_pd(p, _mm256_loadu_pd(g.p_last.data())));
-  __m256d v = _mm256_loadu_pd(g.last().v.data());
+  const __m256d v_last = _mm256_loadu_pd(g.last().v.data());
+  const bool by_mean = hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_mean))) <
+                       hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_extrapolated)));
+  __m256d v = v_last, v_mean = v_last;
   for (int h = 0; h < 3; ++h) {
     const double wh = warm_[static_cast<std::size_t>(h)];
-    if (wh == 0.0) continue;
-    alignas(32) double s[4];
-    _mm256_store_pd(s, _mm256_mul_pd(_mm256_set1_pd(wh), _mm256_load_pd(dp)));
-    v = mul4(g.mring.data() + 16 * ((g.head - h) & 3), s, v);
+    if (wh == 0.0 && h > 1) continue;
+    const __m256d mdp = mul4(g.mring.data() + 16 * ((g.head - h) & 3), dp, _mm256_setzero_pd());
+    v = _mm256_fmadd_pd(_mm256_set1_pd(wh), mdp, v);
+    if (h < 2) v_mean = _mm256_fmadd_pd(_mm256_set1_pd(0.5), mdp, v_mean);
   }
+  _mm256_storeu_pd(g.guess_extrapolated, v);
+  _mm256_storeu_pd(g.guess_mean, v_mean);
+  if (by_mean) v = v_mean;
 
   // The guess limited where a junction would rise past its knee (limit_guess).
   {

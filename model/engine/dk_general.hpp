@@ -101,6 +101,9 @@ class general_solver : public dk_solver_base {
     detail::aligned_doubles fch;
     Eigen::VectorXd skip_t;                     // bound on what skipped junction exponentials leave out, per port row
     Eigen::VectorXd junction_vcrit, junction_small;  // per port row 2j, 2j + 1: JFET j's vcrit_v, and 0.01 n Vt
+    // process_pair: the last sample's two warm starts, by the extrapolation of three Ms and
+    // by the mean of the last two.
+    double guess_extrapolated[4]{}, guess_mean[4]{};
     Eigen::VectorXd guess_knee;  // JFET j's gs (2j) and gd (2j + 1) junction knees for the guess (solve_general)
     Eigen::MatrixXd cj, md, mi;                 // track(): C Jf (ns x 2k), M D (2k x ns), M
     Eigen::MatrixXd track_lu;                   // track() after a torn point: I - F Jf's factors
