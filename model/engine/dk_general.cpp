@@ -2154,8 +2154,9 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   alignas(32) double dp[4];
   _mm256_store_pd(dp, _mm256_sub_pd(p, _mm256_loadu_pd(g.p_last.data())));
   const __m256d v_last = _mm256_loadu_pd(g.last().v.data());
-  const bool by_mean = hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_mean))) <
-                       hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_extrapolated)));
+  const bool by_mean = warm_[1] != 0.0 &&  // an extrapolating predictor (predictor_order 2 or 3)
+                       hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_mean))) <
+                           hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_extrapolated)));
   __m256d v = v_last, v_mean = v_last;
   for (int h = 0; h < 3; ++h) {
     const double wh = warm_[static_cast<std::size_t>(h)];
@@ -2170,8 +2171,10 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
 
   // The guess limited where a junction would rise past its knee (limit_guess).
   {
-    const __m256d junctions = _mm256_sub_pd(_mm256_permute_pd(v, 0), _mm256_and_pd(v, _mm256_castsi256_pd(_mm256_setr_epi64x(0, -1, 0, -1))));
-    if (_mm256_movemask_pd(_mm256_cmp_pd(junctions, _mm256_loadu_pd(g.guess_knee.data()), _CMP_GT_OQ)) != 0) [[unlikely]] {
+    const __m256d odd = _mm256_castsi256_pd(_mm256_setr_epi64x(0, -1, 0, -1));
+    const __m256d junctions = _mm256_sub_pd(_mm256_permute_pd(v, 0), _mm256_and_pd(v, odd));  // gs, gd of each
+    const __m256d knees = _mm256_loadu_pd(g.guess_knee.data());
+    if (_mm256_movemask_pd(_mm256_cmp_pd(junctions, knees, _CMP_GT_OQ)) != 0) [[unlikely]] {
       alignas(32) double gv[4];
       _mm256_store_pd(gv, v);
       limit_guess(gv, g.last().v.data());
