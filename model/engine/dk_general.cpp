@@ -1408,7 +1408,7 @@ void general_solver::track(Eigen::MatrixXd& sensitivity) {
 
 // A guess extrapolated past a corner of the waveform can put a gate junction far forward
 // where the solution has it off: Newton then walks down the exponential by about n Vt an
-// iteration (up to 40 evaluations a sample where the bench's chains clip at 10 V). Each
+// iteration (24-43 evaluations in one sample where the bench's chains clip at 10 V). Each
 // JFET's part of the guess is limited as a Newton step from the point it was extrapolated
 // from (pnjlim, Nagel 1975), with the junction's knee in place of vcrit: where its
 // conductance times the network's resistance at the junction (F's diagonal entry) reaches
@@ -2154,16 +2154,16 @@ __attribute__((target("avx2,fma"), always_inline)) inline double general_solver:
   alignas(32) double dp[4];
   _mm256_store_pd(dp, _mm256_sub_pd(p, _mm256_loadu_pd(g.p_last.data())));
   const __m256d v_last = _mm256_loadu_pd(g.last().v.data());
-  const bool by_mean = warm_[1] != 0.0 &&  // an extrapolating predictor (predictor_order 2 or 3)
-                       hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_mean))) <
-                           hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_extrapolated)));
+  const bool two_guesses = warm_[1] != 0.0;  // an extrapolating predictor (predictor_order 2 or 3)
+  const bool by_mean = two_guesses && hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_mean))) <
+                                          hmax_abs(_mm256_sub_pd(v_last, _mm256_loadu_pd(g.guess_extrapolated)));
   __m256d v = v_last, v_mean = v_last;
   for (int h = 0; h < 3; ++h) {
     const double wh = warm_[static_cast<std::size_t>(h)];
-    if (wh == 0.0 && h > 1) continue;
+    if (wh == 0.0) continue;
     const __m256d mdp = mul4(g.mring.data() + 16 * ((g.head - h) & 3), dp, _mm256_setzero_pd());
     v = _mm256_fmadd_pd(_mm256_set1_pd(wh), mdp, v);
-    if (h < 2) v_mean = _mm256_fmadd_pd(_mm256_set1_pd(0.5), mdp, v_mean);
+    if (two_guesses && h < 2) v_mean = _mm256_fmadd_pd(_mm256_set1_pd(0.5), mdp, v_mean);
   }
   _mm256_storeu_pd(g.guess_extrapolated, v);
   _mm256_storeu_pd(g.guess_mean, v_mean);
